@@ -1,0 +1,5 @@
+import type { Command } from '../command.js';
+import { checkConfigCommand } from './check-config.js';
+
+/** Every sub-command, in the order `turnwise help` lists them. */
+export const commands: readonly Command[] = [checkConfigCommand];

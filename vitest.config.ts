@@ -1,0 +1,11 @@
+import { defineConfig } from 'vitest/config';
+
+export default defineConfig({
+  test: {
+    include: ['test/**/*.test.ts'],
+    // Native addons (serialport, epoll) are not safe in worker threads: keep the default forks pool.
+    pool: 'forks',
+    testTimeout: 60_000,
+    hookTimeout: 60_000,
+  },
+});
