@@ -2,7 +2,7 @@ import type { Config } from '../config/schema.js';
 import { UserError } from '../errors.js';
 import type { SourceItem } from '../../drivers/source.js';
 import { AccelerationStage, RawStats } from './acceleration.js';
-import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, velocityLinePower } from './spectrum.js';
+import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, SpectrumPlan, velocityLinePower } from './spectrum.js';
 import { orderComponent, SampleRing, SyncAverager, wrapDeg } from './sync-average.js';
 import { RevolutionTracker, rpmFromPeriod, TachDetector } from './tach.js';
 import type { ChannelResult, OrderVector, WindowResult } from './types.js';
@@ -120,6 +120,7 @@ export class Analyzer {
 
     const maxRevSamples = Math.ceil((60 * sampleRate) / cfg.tach.min_rpm) + 2;
     const ringSize = maxRevSamples + maxBlock + 4;
+    const plan = new SpectrumPlan(this.spectrumSize);
     this.chans = cfg.sensors.map((s) => ({
       id: s.id,
       channel: s.channel,
@@ -130,7 +131,7 @@ export class Analyzer {
       stats: new RawStats(s.full_scale_v ?? Infinity),
       ring: new SampleRing(ringSize),
       avg: new SyncAverager(cfg.dsp.resample_points),
-      spectrum: new SpectrumAccumulator(this.spectrumSize),
+      spectrum: new SpectrumAccumulator(plan),
     }));
     this.scratch = new Float32Array(maxBlock);
     this.tachChannel = cfg.tach.channel;

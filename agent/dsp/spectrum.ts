@@ -11,23 +11,19 @@ import FFT from 'fft.js';
  * (sum of w^2), so a tone's energy is counted whole whichever lines it leaks into.
  */
 
-export class SpectrumAccumulator {
-  readonly size: number;
-  /** Sum over segments of |X_k|^2, k = 0..size/2. */
-  readonly powerSum: Float64Array;
-  segments = 0;
-  private readonly seg: Float64Array;
-  private readonly window: Float64Array;
-  private readonly out: Float64Array;
-  private readonly fft: FFT;
-  private fill = 0;
+/**
+ * What every channel's accumulator of one size shares: the FFT (fft.js keeps its tables in the
+ * instance, so one per size), the Hann window and the transform's output scratch.
+ */
+export class SpectrumPlan {
+  readonly fft: FFT;
+  readonly window: Float64Array;
   /** Sum of squared window weights. */
   readonly windowPower: number;
+  readonly out: Float64Array;
 
-  constructor(size: number) {
+  constructor(readonly size: number) {
     if (size < 16 || (size & (size - 1)) !== 0) throw new Error(`spectrum size must be a power of two >= 16, got ${size}`);
-    this.size = size;
-    this.seg = new Float64Array(size);
     this.window = new Float64Array(size);
     let s2 = 0;
     for (let n = 0; n < size; n++) {
@@ -38,18 +34,41 @@ export class SpectrumAccumulator {
     }
     this.windowPower = s2;
     this.out = new Float64Array(2 * size);
-    this.powerSum = new Float64Array(size / 2 + 1);
     this.fft = new FFT(size);
+  }
+}
+
+export class SpectrumAccumulator {
+  readonly size: number;
+  /** Sum over segments of |X_k|^2, k = 0..size/2. */
+  readonly powerSum: Float64Array;
+  segments = 0;
+  private readonly seg: Float64Array;
+  private readonly plan: SpectrumPlan;
+  private fill = 0;
+
+  constructor(planOrSize: SpectrumPlan | number) {
+    this.plan = typeof planOrSize === 'number' ? new SpectrumPlan(planOrSize) : planOrSize;
+    this.size = this.plan.size;
+    this.seg = new Float64Array(this.size);
+    this.powerSum = new Float64Array(this.size / 2 + 1);
+  }
+
+  /** Sum of squared window weights. */
+  get windowPower(): number {
+    return this.plan.windowPower;
   }
 
   push(x: Float32Array, length = x.length): void {
     const seg = this.seg;
+    const w = this.plan.window;
     const N = this.size;
     let i = 0;
     while (i < length) {
       const run = Math.min(length - i, N - this.fill);
       let f = this.fill;
-      for (let j = 0; j < run; j++) seg[f++] = x[i + j]!;
+      // The window is applied while copying.
+      for (let j = 0; j < run; j++, f++) seg[f] = x[i + j]! * w[f]!;
       this.fill = f;
       i += run;
       if (f === N) this.transformSegment();
@@ -57,14 +76,11 @@ export class SpectrumAccumulator {
   }
 
   private transformSegment(): void {
-    const seg = this.seg;
-    const w = this.window;
-    const N = this.size;
-    for (let n = 0; n < N; n++) seg[n] = seg[n]! * w[n]!;
-    this.fft.realTransform(this.out, seg);
-    const out = this.out;
+    const { fft, out } = this.plan;
+    fft.realTransform(out, this.seg);
     const p = this.powerSum;
-    for (let k = 0; k <= N / 2; k++) {
+    const half = this.size / 2;
+    for (let k = 0; k <= half; k++) {
       const re = out[2 * k]!;
       const im = out[2 * k + 1]!;
       p[k] = p[k]! + re * re + im * im;
