@@ -4,7 +4,7 @@
  */
 import { readFileSync } from 'node:fs';
 import { z } from 'zod';
-import { formatIssues } from '../config/load.js';
+import { formatPath } from '../config/load.js';
 import { UserError } from '../errors.js';
 import type { StoredCoefficients } from './coefficients.js';
 import type { BalanceJob } from './job.js';
@@ -152,6 +152,34 @@ export function readJsonFile(file: string, what: string): unknown {
   } catch (e) {
     throw new UserError(file, `not valid JSON: ${(e as Error).message}`, 'fix the JSON syntax (quotes, commas, brackets)');
   }
+}
+
+function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
+  let cur: unknown = root;
+  for (const p of path) {
+    if (cur === null || typeof cur !== 'object') return undefined;
+    cur = (cur as Record<PropertyKey, unknown>)[p as string];
+  }
+  return cur;
+}
+
+function describeFound(value: unknown): string {
+  if (value === undefined) return 'nothing';
+  if (typeof value === 'string') return JSON.stringify(value);
+  if (value !== null && typeof value === 'object') return Array.isArray(value) ? 'a list' : 'an object';
+  return String(value);
+}
+
+/** One line per problem: file, JSON path, what is wrong (and what was found where that helps). */
+function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown): string[] {
+  return issues.map((iss) => {
+    const where = formatPath(iss.path);
+    if (iss.code === 'unrecognized_keys') return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against \`turnwise help balance\``;
+    const found = valueAt(raw, iss.path);
+    // Cross-field messages already quote what they found; a refused number is worth repeating.
+    if (iss.code === 'custom' && typeof found !== 'number') return `${file}: ${where}: ${iss.message}`;
+    return `${file}: ${where}: ${iss.message} (found ${describeFound(found)})`;
+  });
 }
 
 function validate<T>(schema: z.ZodType<T>, raw: unknown, file: string, what: string, hint: string): T {

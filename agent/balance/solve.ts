@@ -332,7 +332,12 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
   const Cm = leastSquares(H, V0);
   const C = planes.map((_, p) => getEl(Cm, p, 0));
   const HC = cmul(H, Cm);
-  const residuals = sensors.map((s, k) => vectorOut(s, add(v0[k]!, getEl(HC, k, 0))));
+  // Round-off below a billionth of the largest reading is shown as zero (its phase means nothing).
+  const scaleAmp = Math.max(...v0.map(abs));
+  const residuals = sensors.map((s, k) => {
+    const v = add(v0[k]!, getEl(HC, k, 0));
+    return abs(v) <= 1e-9 * scaleAmp ? { sensor: s, amp: 0, phase_deg: 0 } : vectorOut(s, v);
+  });
   const left = planeSums(job, job.runs.length - 1);
   const D = C.map((c, p) => sub(c, left[p]!));
 

@@ -1,5 +1,6 @@
 import type { Command } from '../command.js';
+import { balanceCommand } from './balance.js';
 import { checkConfigCommand } from './check-config.js';
 
 /** Every sub-command, in the order `turnwise help` lists them. */
-export const commands: readonly Command[] = [checkConfigCommand];
+export const commands: readonly Command[] = [checkConfigCommand, balanceCommand];
