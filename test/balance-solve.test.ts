@@ -63,6 +63,70 @@ describe('angle conventions: the correction lands opposite the heavy spot (simul
   });
 });
 
+describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solutions to Unbalance and Misalignment (Fairmont Press, 2004), chapter 5', () => {
+  const P = (amp: number, deg: number) => ({ re: amp * Math.cos((deg * Math.PI) / 180), im: amp * Math.sin((deg * Math.PI) / 180) });
+  const plus = (a: { re: number; im: number }, b: { re: number; im: number }): Reading => {
+    const re = a.re + b.re;
+    const im = a.im + b.im;
+    return { amp: Math.hypot(re, im), phase_deg: ((Math.atan2(im, re) * 180) / Math.PI + 360) % 360 };
+  };
+  // Masses are in ounces in the book; they go into mass_g unchanged: the solver is linear in mass,
+  // so the corrections come out in the trial weights' unit.
+
+  it('single plane, pp. 71-75: O = 3.5 mils at 60 deg, O+T = 5.0 mils at 120 deg, 5 oz trial', () => {
+    // Published: T = 4.44409 mils, angle between O and T = 77 deg (law of sines, p. 75; 79 deg read
+    // graphically, p. 73); correction weight = trial weight x O / T (eq. 6.2, p. 107) = 3.94 oz, placed
+    // 77 deg from the trial weight, counterclockwise while the reading moved clockwise from 60 to 120
+    // (p. 73): trial - 77 deg in the book's numbering, which is this project's with_rotation (see
+    // Example 5-4 below), i.e. 283 deg with the trial at 0; counted against rotation, +77 deg.
+    for (const conv of ['against_rotation', 'with_rotation'] as const) {
+      const r = solveBalanceJob({
+        angle_convention: conv,
+        planes: ['P1'],
+        amp_unit: 'mil pp',
+        runs: [
+          { weights: [], readings: { V: { amp: 3.5, phase_deg: 60 } } },
+          { weights: [{ plane: 'P1', mass_g: 5, angle_deg: 0 }], readings: { V: { amp: 5.0, phase_deg: 120 } } },
+        ],
+      });
+      expect(r.ok).toBe(true);
+      expect(r.influence_coefficients[0]!.amp_per_g * 5).toBeCloseTo(4.44409, 4);
+      expect(r.corrections[0]!.mass_g).toBeCloseTo((5 * 3.5) / 4.44409, 3);
+      expect(angDist(r.corrections[0]!.angle_deg, conv === 'against_rotation' ? 77 : 283)).toBeLessThan(0.5);
+    }
+  });
+
+  it('two planes, Example 5-4, pp. 89-96: published corrections 8 oz at 214 deg (near) and 5 oz at 282 deg (far)', () => {
+    // Published data: N0 = 7.1 mils at 60 deg, F0 = 5.4 mils at 215 deg (pp. 92-93); trial T1 = 8 oz at
+    // 270 deg in the near plane, T2 = 10 oz at 180 deg in the far plane (p. 96); trial effects as the book
+    // measured them (p. 92): N0>N1 6.3 at 198, F0>F1 2.1 at 7, F0>F2 7.1 at 121, N0>N2 3.3 at 281.
+    // The book solves graphically with rounded ratios (a = .3, b = .5, c = 1, d = .5), so its answer is
+    // good to a few per cent and a degree or two. Its weight angles run opposite to its phase angles
+    // (correction at T - c, p. 96): this project's with_rotation convention.
+    const N0 = P(7.1, 60);
+    const F0 = P(5.4, 215);
+    const runs = (t1: number, t2: number): JobRun[] => [
+      { weights: [], readings: { N: plus(N0, P(0, 0)), F: plus(F0, P(0, 0)) } },
+      { weights: [{ plane: 'near', mass_g: 8, angle_deg: t1 }], readings: { N: plus(N0, P(6.3, 198)), F: plus(F0, P(2.1, 7)) } },
+      { weights: [{ plane: 'far', mass_g: 10, angle_deg: t2 }], readings: { N: plus(N0, P(3.3, 281)), F: plus(F0, P(7.1, 121)) } },
+    ];
+    const w = solveBalanceJob({ angle_convention: 'with_rotation', planes: ['near', 'far'], amp_unit: 'mil pp', runs: runs(270, 180) });
+    // The far-end reading with T2 rebuilt from F0 and F0>F2 is the book's F2 = 8.6 mils at 160 deg (p. 91).
+    expect(runs(270, 180)[2]!.readings.F!.amp).toBeCloseTo(8.6, 1);
+    expect(angDist(runs(270, 180)[2]!.readings.F!.phase_deg, 160)).toBeLessThan(0.5);
+    expect(w.ok).toBe(true);
+    expect(Math.abs(w.corrections[0]!.mass_g - 8) / 8).toBeLessThan(0.05);
+    expect(angDist(w.corrections[0]!.angle_deg, 214)).toBeLessThan(2);
+    expect(Math.abs(w.corrections[1]!.mass_g - 5) / 5).toBeLessThan(0.05);
+    expect(angDist(w.corrections[1]!.angle_deg, 282)).toBeLessThan(2);
+    // The same rotor with weight angles counted against rotation: every angle mirrored.
+    const a = solveBalanceJob({ angle_convention: 'against_rotation', planes: ['near', 'far'], runs: runs(90, 180) });
+    expect(a.corrections[0]!.mass_g).toBeCloseTo(w.corrections[0]!.mass_g, 9);
+    expect(angDist(a.corrections[0]!.angle_deg, 360 - 214)).toBeLessThan(2);
+    expect(angDist(a.corrections[1]!.angle_deg, 360 - 282)).toBeLessThan(2);
+  });
+});
+
 describe('published example: Tiwari, Theory and Practice of Rotor Dynamics (NPTEL, IIT Guwahati), module 13 lecture 2, Example 13.5', () => {
   // Problem data as published: a symmetric rigid rotor; a 0.3 kg trial mass at end 1, 30 deg from the
   // reference, changes the vibration by 50 um at 61 deg at end 1 and 42 um at 130 deg at end 2;
