@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import type { AngleConvention } from '../agent/balance/conventions.js';
 import type { BalanceJob, JobRun, JobWeight, Reading } from '../agent/balance/job.js';
 import { parseBalanceJob } from '../agent/balance/job-input.js';
-import { solveBalanceJob } from '../agent/balance/solve.js';
+import { solveBalanceJob, trialMove } from '../agent/balance/solve.js';
 import { measure, type Rig, type RigMass, twoBearingRig } from './balance-rig.js';
 
 /** Smallest angular distance, degrees. */
@@ -428,7 +428,21 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     expect(r.ok).toBe(false);
     expect(r.corrections).toEqual([]);
     expect(r.problems[0]!.code).toBe('trial_no_effect');
-    expect(r.problems[0]!.message).toMatch(/runs\[1\] changed the 1x vectors by less than 5 %/);
+    expect(r.problems[0]!.message).toMatch(/the trial weight in P1 \(runs\[1\]\) changed the 1x vectors by less than 5 %/);
+  });
+
+  it('a later trial that did nothing is caught even when an earlier trial weight was left in', () => {
+    const r2 = twoBearingRig('ccw');
+    const planes = ['P1', 'P2'];
+    const U: RigMass[] = [{ plane: 0, mass_g: 80, angle_deg: 10, convention: conv }];
+    const t1: JobWeight = { plane: 'P1', mass_g: 40, angle_deg: 0 };
+    const first = run(r2, U, [t1], planes, conv);
+    // Run 2 claims a P2 trial weight, but the readings are those of run 1 (the weight fell off, say).
+    const r = solveBalanceJob({ angle_convention: conv, planes, runs: [run(r2, U, [], planes, conv), first, { ...first, weights: [t1, { plane: 'P2', mass_g: 40, angle_deg: 90 }] }] });
+    expect(r.ok).toBe(false);
+    expect(r.corrections).toEqual([]);
+    expect(r.problems.map((p) => p.code)).toEqual(['trial_no_effect']);
+    expect(r.problems[0]!.message).toContain('the trial weight in P2 (runs[2])');
   });
 
   it('a trial run below the 30 % / 30 degree rule (common practice): solved, with a warning', () => {
@@ -437,6 +451,15 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     expect(r.trial_checks[0]!.moved_enough).toBe(false);
     expect(r.warnings.map((w) => w.code)).toContain('trial_small_effect');
     expect(r.corrections[0]!.mass_g).toBeCloseTo(80, 6);
+  });
+
+  it('the 30 % / 30 degree trial rule (common practice), by hand', () => {
+    expect(trialMove({ amp: 5, phase_deg: 100 }, { amp: 6.4, phase_deg: 110 }).moved_enough).toBe(false); // +28 %, +10 deg
+    expect(trialMove({ amp: 5, phase_deg: 100 }, { amp: 6.5, phase_deg: 110 }).moved_enough).toBe(true); // +30 %
+    expect(trialMove({ amp: 5, phase_deg: 350 }, { amp: 5, phase_deg: 20 }).moved_enough).toBe(true); // +30 deg across 0
+    const m = trialMove({ amp: 5, phase_deg: 350 }, { amp: 5, phase_deg: 20 });
+    expect(m.phase_change_deg).toBeCloseTo(30, 12);
+    expect(m.vector_change_pct).toBeCloseTo(200 * Math.sin((15 * Math.PI) / 180), 9); // chord of 30 deg
   });
 
   it('readings at different speeds: warning naming the run and speeds', () => {
@@ -466,18 +489,32 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     expect(r.problems[0]!.hint).toContain('H and V at one bearing are not independent');
   });
 
-  it('a badly conditioned matrix: solved, warning with the condition number (diag(1, 0.05) has condition number 20)', () => {
+  it('a badly conditioned matrix: solved, warning with the condition number ([[1, 0.9], [0.9, 1]] has condition number 1.9 / 0.1 = 19)', () => {
+    const r = solveBalanceJob({
+      angle_convention: conv,
+      planes: ['P1', 'P2'],
+      runs: [{ weights: [], readings: { A: { amp: 1, phase_deg: 0 }, B: { amp: 1, phase_deg: 180 } } }],
+      influence_coefficients: { A: { P1: { amp_per_g: 1, phase_deg: 0 }, P2: { amp_per_g: 0.9, phase_deg: 0 } }, B: { P1: { amp_per_g: 0.9, phase_deg: 0 }, P2: { amp_per_g: 1, phase_deg: 0 } } },
+    });
+    expect(r.ok).toBe(true);
+    expect(r.condition_number).toBeCloseTo(19, 9);
+    expect(r.warnings.find((w) => w.code === 'ill_conditioned')!.message).toContain('condition number 19.0');
+    // By hand: C = -H^-1 V0 with V0 = (1, -1): C1 = -10, C2 = +10 (10 g at 180 deg, 10 g at 0 deg).
+    expect(r.corrections[0]!.mass_g).toBeCloseTo(10, 9);
+    expect(r.corrections[0]!.angle_deg).toBeCloseTo(180, 9);
+    expect(r.corrections[1]!.mass_g).toBeCloseTo(10, 9);
+  });
+
+  it('a plane that is only less sensitive is not ill-conditioned (diag(1, 0.05): columns scaled, condition number 1)', () => {
     const r = solveBalanceJob({
       angle_convention: conv,
       planes: ['P1', 'P2'],
       runs: [{ weights: [], readings: { A: { amp: 1, phase_deg: 0 }, B: { amp: 1, phase_deg: 0 } } }],
       influence_coefficients: { A: { P1: { amp_per_g: 1, phase_deg: 0 }, P2: { amp_per_g: 0, phase_deg: 0 } }, B: { P1: { amp_per_g: 0, phase_deg: 0 }, P2: { amp_per_g: 0.05, phase_deg: 0 } } },
     });
-    expect(r.ok).toBe(true);
-    expect(r.condition_number).toBeCloseTo(20, 9);
-    expect(r.warnings.find((w) => w.code === 'ill_conditioned')!.message).toContain('condition number 20.0');
+    expect(r.condition_number).toBeCloseTo(1, 12);
+    expect(r.warnings).toEqual([]);
     expect(r.corrections[1]!.mass_g).toBeCloseTo(20, 9);
-    expect(r.corrections[1]!.angle_deg).toBeCloseTo(180, 9);
   });
 
   it('a weight larger than the plane allows: warning and flag', () => {

@@ -145,9 +145,9 @@ export interface BalanceResult {
   /** 1x vectors expected after the corrections (non-zero when sensors outnumber planes). */
   readonly predicted_residuals: readonly SensorVector[];
   readonly trial_checks: readonly TrialCheck[];
-  /** Condition number of the influence matrix (sensors x planes). */
+  /** Condition number of the influence matrix (sensors x planes), columns scaled to unit length. */
   readonly condition_number: number | null;
-  /** Condition number of the trial-weight matrix (runs x planes). */
+  /** Condition number of the trial-weight matrix (runs x planes), columns scaled to unit length. */
   readonly trial_condition_number: number | null;
   /** Mean speed of the runs that carry one, r/min. */
   readonly speed_rpm: number | null;

@@ -150,6 +150,27 @@ export function conditionNumber(a: CMatrix): number {
 }
 
 /**
+ * Condition number after scaling every column to unit length. Scaling a column only changes the unit
+ * of one unknown (grams in one plane), so this is the measure of how well the columns are told
+ * apart; a plane that is merely less sensitive than another does not count as ill-conditioning.
+ * Infinity when a column is zero.
+ */
+export function columnScaledConditionNumber(a: CMatrix): number {
+  const b = cmatrix(a.rows, a.cols);
+  for (let j = 0; j < a.cols; j++) {
+    let n = 0;
+    for (let i = 0; i < a.rows; i++) n += a.re[i * a.cols + j]! ** 2 + a.im[i * a.cols + j]! ** 2;
+    n = Math.sqrt(n);
+    if (n === 0) return Infinity;
+    for (let i = 0; i < a.rows; i++) {
+      b.re[i * a.cols + j] = a.re[i * a.cols + j]! / n;
+      b.im[i * a.cols + j] = a.im[i * a.cols + j]! / n;
+    }
+  }
+  return conditionNumber(b);
+}
+
+/**
  * Least-squares solution X minimising ||A X - B|| column by column (exact when A is square and
  * regular), by Householder QR of the real embedding. A must have full column rank: check
  * `conditionNumber` first. Returns X (cols(A) x cols(B)).

@@ -18,6 +18,7 @@ import { abs, add, argDeg, type Complex, deltaDeg, fromPolar, neg, scale, sub, Z
 import { type AngleConvention, conventionText, fromInternalDeg, toInternalDeg } from './conventions.js';
 import type {
   BalanceJob,
+  Reading,
   BalanceResult,
   CoefficientOut,
   Issue,
@@ -27,7 +28,7 @@ import type {
   TrialCheck,
   UnbalanceReport,
 } from './job.js';
-import { cmatrix, type CMatrix, cmul, conditionNumber, getEl, leastSquares, setEl } from './linalg.js';
+import { cmatrix, type CMatrix, cmul, columnScaledConditionNumber, getEl, leastSquares, setEl } from './linalg.js';
 import { centrifugalForceN, permissibleUnbalanceGmm } from './weights.js';
 
 export interface SolveOptions {
@@ -91,6 +92,32 @@ function reading(job: BalanceJob, j: number, sensor: string): Complex {
   return fromPolar(r.amp, r.phase_deg);
 }
 
+export interface TrialMove {
+  readonly amp_change_pct: number;
+  readonly phase_change_deg: number;
+  readonly vector_change_pct: number;
+  readonly moved_enough: boolean;
+}
+
+/**
+ * How far a trial run moved one sensor's 1x vector from as found, and whether that is enough by the
+ * rule of thumb (common practice): at least 30 % in amplitude or 30 degrees in phase.
+ */
+export function trialMove(asFound: Reading, withTrial: Reading, options: Partial<SolveOptions> = {}): TrialMove {
+  const opt = { ...DEFAULT_SOLVE_OPTIONS, ...options };
+  const v0 = fromPolar(asFound.amp, asFound.phase_deg);
+  const v1 = fromPolar(withTrial.amp, withTrial.phase_deg);
+  const base = Math.max(asFound.amp, 1e-12);
+  const ampPct = ((withTrial.amp - asFound.amp) / base) * 100;
+  const phase = deltaDeg(withTrial.phase_deg, asFound.phase_deg);
+  return {
+    amp_change_pct: ampPct,
+    phase_change_deg: phase,
+    vector_change_pct: (abs(sub(v1, v0)) / base) * 100,
+    moved_enough: Math.abs(ampPct) >= opt.trialMinAmpPct || Math.abs(phase) >= opt.trialMinPhaseDeg,
+  };
+}
+
 function vectorOut(sensor: string, v: Complex): SensorVector {
   return { sensor, amp: abs(v), phase_deg: argDeg(v) };
 }
@@ -137,24 +164,10 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
   for (let j = 1; j < job.runs.length; j++) {
     const sums = planeSums(job, j);
     const carries = sums.some((z) => abs(z) > 0);
-    const checks = sensors.map((s, k): TrialCheck => {
-      const a0 = abs(v0[k]!);
-      const vj = reading(job, j, s);
-      const aj = abs(vj);
-      const base = Math.max(a0, 1e-12);
-      const ampPct = ((aj - a0) / base) * 100;
-      const phase = deltaDeg(argDeg(vj), argDeg(v0[k]!));
-      const label = job.runs[j]!.label;
-      return {
-        run: j,
-        ...(label !== undefined ? { label } : {}),
-        sensor: s,
-        amp_change_pct: ampPct,
-        phase_change_deg: phase,
-        vector_change_pct: (abs(sub(vj, v0[k]!)) / base) * 100,
-        moved_enough: Math.abs(ampPct) >= opt.trialMinAmpPct || Math.abs(phase) >= opt.trialMinPhaseDeg,
-      };
-    });
+    const label = job.runs[j]!.label;
+    const checks = sensors.map(
+      (s): TrialCheck => ({ run: j, ...(label !== undefined ? { label } : {}), sensor: s, ...trialMove(job.runs[0]!.readings[s]!, job.runs[j]!.readings[s]!, opt) }),
+    );
     const largest = checks.reduce((a, b) => (b.vector_change_pct > a.vector_change_pct ? b : a));
     if (!carries) {
       if (largest.vector_change_pct > 2 * opt.trialNothingPct) {
@@ -168,13 +181,7 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     }
     weighted.push(j);
     trialChecks.push(...checks);
-    if (checks.every((c) => c.vector_change_pct < opt.trialNothingPct)) {
-      problems.push({
-        code: 'trial_no_effect',
-        message: `${runName(job, j)} changed the 1x vectors by less than ${opt.trialNothingPct} % at every sensor (largest ${fmt(largest.vector_change_pct)} % at ${largest.sensor}): its weights had no measurable effect`,
-        hint: 'check the weights are where the job says, then repeat with a larger trial weight (see `turnwise balance trial-weight`)',
-      });
-    } else if (!checks.some((c) => c.moved_enough)) {
+    if (largest.vector_change_pct >= opt.trialNothingPct && !checks.some((c) => c.moved_enough)) {
       warnings.push({
         code: 'trial_small_effect',
         message: `${runName(job, j)} moved no sensor's 1x vector by ${opt.trialMinAmpPct} % in amplitude or ${opt.trialMinPhaseDeg} degrees in phase (largest change ${fmt(largest.vector_change_pct)} % at ${largest.sensor})`,
@@ -197,7 +204,7 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
       sensors.forEach((s, k) => setEl(dV, r, k, sub(reading(job, j, s), v0[k]!)));
     });
     const bare = planes.filter((_, p) => weighted.every((_j, r) => abs(getEl(T, r, p)) === 0));
-    trialCond = conditionNumber(T);
+    trialCond = columnScaledConditionNumber(T);
     if (bare.length) {
       problems.push({
         code: 'plane_without_trial',
@@ -221,6 +228,26 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
       const X = leastSquares(T, dV); // P x S
       H = cmatrix(S, P);
       for (let k = 0; k < S; k++) for (let p = 0; p < P; p++) setEl(H, k, p, getEl(X, p, k));
+      // Did each plane's trial weight change anything measurable? (Per plane, not per run, so a trial
+      // weight left in from an earlier run cannot hide a later one that did nothing.)
+      for (let p = 0; p < P; p++) {
+        let tMax = 0;
+        for (let r = 0; r < R; r++) tMax = Math.max(tMax, abs(getEl(T, r, p)));
+        let best = 0;
+        let at = sensors[0]!;
+        for (let k = 0; k < S; k++) {
+          const pct = ((abs(getEl(H, k, p)) * tMax) / Math.max(abs(v0[k]!), 1e-12)) * 100;
+          if (pct > best) [best, at] = [pct, sensors[k]!];
+        }
+        if (best < opt.trialNothingPct) {
+          const runs = weighted.filter((_j, r) => abs(getEl(T, r, p)) > 0).map((j) => runName(job, j));
+          problems.push({
+            code: 'trial_no_effect',
+            message: `the trial weight in ${planes[p]} (${list(runs)}) changed the 1x vectors by less than ${opt.trialNothingPct} % (largest ${fmt(best)} % at ${at}): it had no measurable effect`,
+            hint: 'check the weight is where the job says, then repeat with a larger trial weight (see `turnwise balance trial-weight`)',
+          });
+        }
+      }
       if (R > P) {
         const fit = cmul(T, X);
         for (let k = 0; k < S; k++) {
@@ -285,7 +312,7 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
 
   let hCond: number | null = null;
   if (H && !problems.length) {
-    hCond = conditionNumber(H);
+    hCond = columnScaledConditionNumber(H);
     if (S < P) {
       problems.push({
         code: 'fewer_readings_than_planes',

@@ -76,19 +76,14 @@ function args<T extends NonNullable<ParseArgsConfig['options']>>(sub: string, ar
   }
 }
 
-/** Where a mistake is, as printed after the CLI's own "turnwise balance: " prefix. */
-function where(sub: string): string {
-  return sub;
-}
-
 function num(sub: string, flag: string, v: string | undefined, opts: { required?: boolean; positive?: boolean; integer?: boolean } = {}): number | undefined {
   if (v === undefined) {
-    if (opts.required) throw new UserError(where(sub), `--${flag} is required`, `usage: see \`turnwise help balance\``);
+    if (opts.required) throw new UserError(sub, `--${flag} is required`, '`turnwise help balance` shows every option');
     return undefined;
   }
   const x = Number(v);
   if (!Number.isFinite(x) || (opts.positive && x <= 0) || (opts.integer && !Number.isInteger(x))) {
-    throw new UserError(where(sub), `--${flag} must be a ${opts.integer ? 'whole ' : ''}number${opts.positive ? ' above 0' : ''} (found "${v}")`, `give --${flag} as a plain number, e.g. --${flag} 600`);
+    throw new UserError(sub, `--${flag} must be a ${opts.integer ? 'whole ' : ''}number${opts.positive ? ' above 0' : ''} (found "${v}")`, `give --${flag} as a plain number, e.g. --${flag} 600`);
   }
   return x;
 }
@@ -117,14 +112,14 @@ function out(text: string): void {
 }
 
 function singleFile(sub: string, positionals: string[], what: string): string {
-  if (positionals.length !== 1) throw new UserError(where(sub), `expects exactly one ${what} file`, `usage: turnwise balance ${sub} FILE.json [--json]`);
+  if (positionals.length !== 1) throw new UserError(sub, `expects exactly one ${what} file`, `usage: turnwise balance ${sub} FILE.json [--json]`);
   return positionals[0]!;
 }
 
 function stateDirOf(sub: string, values: { 'state-dir'?: string; config?: string }, cfg: Config | null): string {
   if (values['state-dir']) return values['state-dir'];
   if (cfg) return cfg.state_dir;
-  throw new UserError(where(sub), 'needs to know the state directory', 'give --state-dir DIR or --config FILE (its state_dir is used)');
+  throw new UserError(sub, 'needs to know the state directory', 'give --state-dir DIR or --config FILE (its state_dir is used)');
 }
 
 /** Fills what the job leaves out from the config's `balance:` section. The job's own values win. */
@@ -258,19 +253,19 @@ async function trialWeight(argv: string[]): Promise<number> {
     config: { type: 'string' },
     json: { type: 'boolean' },
   });
-  if (positionals.length) throw new UserError(where(sub), `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
+  if (positionals.length) throw new UserError(sub, `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
   const cfg = values.config ? loadConfig(values.config) : null;
   const bearingKgFlag = num(sub, 'bearing-kg', values['bearing-kg'], { positive: true });
   const rotorKg = num(sub, 'rotor-kg', values['rotor-kg'], { positive: true }) ?? cfg?.balance?.rotor_mass_kg;
   const bearings = num(sub, 'bearings', values.bearings, { positive: true, integer: true }) ?? cfg?.balance?.bearings ?? 2;
   if (bearingKgFlag === undefined && rotorKg === undefined) {
-    throw new UserError(where(sub), 'needs the rotor mass', 'give --rotor-kg KG (and --bearings N, default 2), or --bearing-kg KG for the load on the nearest bearing');
+    throw new UserError(sub, 'needs the rotor mass', 'give --rotor-kg KG (and --bearings N, default 2), or --bearing-kg KG for the load on the nearest bearing');
   }
   const bearingKg = bearingKgFlag ?? rotorKg! / bearings;
   const radiusMm = num(sub, 'radius-mm', values['radius-mm'], { required: true, positive: true })!;
   const speedRpm = num(sub, 'speed-rpm', values['speed-rpm'], { required: true, positive: true })!;
   const fraction = num(sub, 'fraction', values.fraction, { positive: true }) ?? 0.1;
-  if (fraction > 0.5) throw new UserError(where(sub), `--fraction ${fraction} would load the bearing with more than half its static load`, 'use 0.1 (the usual rule) or less');
+  if (fraction > 0.5) throw new UserError(sub, `--fraction ${fraction} would load the bearing with more than half its static load`, 'use 0.1 (the usual rule) or less');
   const mass = suggestTrialMassG(bearingKg, radiusMm, speedRpm, fraction);
   const force = centrifugalForceN(mass, radiusMm, speedRpm);
   const result = {
@@ -306,14 +301,14 @@ async function checkGrade(argv: string[]): Promise<number> {
     planes: { type: 'string' },
     json: { type: 'boolean' },
   });
-  if (positionals.length) throw new UserError(where(sub), `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
+  if (positionals.length) throw new UserError(sub, `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
   const rotorKg = num(sub, 'rotor-kg', values['rotor-kg'], { required: true, positive: true })!;
   const speedRpm = num(sub, 'speed-rpm', values['speed-rpm'], { required: true, positive: true })!;
-  if (values.grade === undefined) throw new UserError(where(sub), '--grade is required', 'give the balance quality grade, e.g. --grade G6.3 (fans usually G6.3)');
+  if (values.grade === undefined) throw new UserError(sub, '--grade is required', 'give the balance quality grade, e.g. --grade G6.3 (fans usually G6.3)');
   const grade = parseGrade(values.grade);
-  if (!(grade > 0)) throw new UserError(where(sub), `--grade "${values.grade}" is not a balance quality grade`, 'write it as G6.3 or 6.3 (mm/s)');
+  if (!(grade > 0)) throw new UserError(sub, `--grade "${values.grade}" is not a balance quality grade`, 'write it as G6.3 or 6.3 (mm/s)');
   const residual = num(sub, 'residual-g-mm', values['residual-g-mm']);
-  if (residual !== undefined && residual < 0) throw new UserError(where(sub), '--residual-g-mm must be 0 or more', 'give the residual unbalance magnitude in g mm');
+  if (residual !== undefined && residual < 0) throw new UserError(sub, '--residual-g-mm must be 0 or more', 'give the residual unbalance magnitude in g mm');
   const planes = num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1;
   const uper = permissibleUnbalanceGmm(grade, rotorKg, speedRpm);
   const result = {
@@ -342,7 +337,7 @@ async function checkGrade(argv: string[]): Promise<number> {
 
 async function jobs(argv: string[]): Promise<number> {
   const { values, positionals } = args('jobs', argv, { 'state-dir': { type: 'string' }, config: { type: 'string' }, json: { type: 'boolean' } });
-  if (positionals.length) throw new UserError(where('jobs'), `unexpected argument "${positionals[0]}"`, 'usage: turnwise balance jobs [--state-dir DIR | --config FILE] [--json]');
+  if (positionals.length) throw new UserError('jobs', `unexpected argument "${positionals[0]}"`, 'usage: turnwise balance jobs [--state-dir DIR | --config FILE] [--json]');
   const cfg = values.config ? loadConfig(values.config) : null;
   const store = new FileBalanceStore(stateDirOf('jobs', values, cfg));
   const ids = await store.listJobs();
@@ -353,11 +348,11 @@ async function jobs(argv: string[]): Promise<number> {
 
 async function exportJob(argv: string[]): Promise<number> {
   const { values, positionals } = args('export', argv, { 'state-dir': { type: 'string' }, config: { type: 'string' } });
-  if (positionals.length !== 1) throw new UserError(where('export'), 'expects exactly one job id', 'usage: turnwise balance export JOB_ID [--state-dir DIR | --config FILE]; `turnwise balance jobs` lists them');
+  if (positionals.length !== 1) throw new UserError('export', 'expects exactly one job id', 'usage: turnwise balance export JOB_ID [--state-dir DIR | --config FILE]; `turnwise balance jobs` lists them');
   const cfg = values.config ? loadConfig(values.config) : null;
   const store = new FileBalanceStore(stateDirOf('export', values, cfg));
   const rec = await store.loadJob(positionals[0]!);
-  if (!rec) throw new UserError(where('export'), `no job "${positionals[0]}" in ${store.jobsDir}`, '`turnwise balance jobs` lists the recorded jobs');
+  if (!rec) throw new UserError('export', `no job "${positionals[0]}" in ${store.jobsDir}`, '`turnwise balance jobs` lists the recorded jobs');
   out(JSON.stringify(rec, null, 2) + '\n');
   return 0;
 }
