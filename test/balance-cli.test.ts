@@ -7,7 +7,7 @@ import { existsSync, mkdtempSync, readdirSync, readFileSync, statSync, writeFile
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { BalanceJob } from '../agent/balance/job.js';
-import { measure, type RigMass, twoBearingRig } from './balance-rig.js';
+import { ISSUE_EXAMPLE_JOB, measure, type RigMass, twoBearingRig } from './balance-rig.js';
 
 const CLI = 'dist/agent/cli/main.js';
 
@@ -55,15 +55,6 @@ function kessrowJob(): BalanceJob {
   };
 }
 
-const issueExample = {
-  angle_convention: 'against_rotation',
-  planes: ['P1', 'P2'],
-  runs: [
-    { weights: [], readings: { 'DE-V': { amp: 6.1, phase_deg: 120 } } },
-    { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 3.2, phase_deg: 95 } } },
-    { weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 7.0, phase_deg: 140 } } },
-  ],
-};
 
 describe('turnwise balance solve', () => {
   it('--json: corrections relative to as found, coefficients, residuals, convention', () => {
@@ -95,13 +86,13 @@ describe('turnwise balance solve', () => {
   });
 
   it("the issue's own example (one sensor, two planes): exit 3, a clear message, no numbers", () => {
-    const json = cli(['balance', 'solve', file('job.json', issueExample), '--json']);
+    const json = cli(['balance', 'solve', file('job.json', ISSUE_EXAMPLE_JOB), '--json']);
     expect(json.code).toBe(3);
     const out = JSON.parse(json.stdout);
     expect(out.ok).toBe(false);
     expect(out.corrections).toEqual([]);
     expect(out.problems[0].code).toBe('fewer_readings_than_planes');
-    const table = cli(['balance', 'solve', file('job.json', issueExample)]);
+    const table = cli(['balance', 'solve', file('job.json', ISSUE_EXAMPLE_JOB)]);
     expect(table.code).toBe(3);
     expect(table.stdout).toContain('NO CORRECTION GIVEN');
     expect(table.stderr).toContain('1 sensor reading per run (DE-V) for 2 planes (P1, P2)');
@@ -153,7 +144,7 @@ describe('turnwise balance solve', () => {
   });
 
   it('a wrong field: exit 2, names the JSON path', () => {
-    const bad = structuredClone(issueExample);
+    const bad = structuredClone(ISSUE_EXAMPLE_JOB);
     (bad.runs[1]!.weights[0] as { plane: string }).plane = 'P9';
     (bad.runs[2]!.readings['DE-V'] as { amp: number }).amp = -1;
     const r = cli(['balance', 'solve', file('job.json', bad)]);

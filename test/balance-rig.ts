@@ -84,3 +84,14 @@ export function twoBearingRig(rotation: 'ccw' | 'cw'): Rig {
     ],
   };
 }
+
+/** The example job of the CLI contract in issue 6: one sensor for two planes (cannot be solved). */
+export const ISSUE_EXAMPLE_JOB = {
+  angle_convention: 'against_rotation',
+  planes: ['P1', 'P2'],
+  runs: [
+    { weights: [], readings: { 'DE-V': { amp: 6.1, phase_deg: 120 } } },
+    { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 3.2, phase_deg: 95 } } },
+    { weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 7.0, phase_deg: 140 } } },
+  ],
+};

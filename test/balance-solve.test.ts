@@ -3,7 +3,7 @@ import type { AngleConvention } from '../agent/balance/conventions.js';
 import type { BalanceJob, JobRun, JobWeight, Reading } from '../agent/balance/job.js';
 import { parseBalanceJob } from '../agent/balance/job-input.js';
 import { solveBalanceJob, trialMove } from '../agent/balance/solve.js';
-import { measure, type Rig, type RigMass, twoBearingRig } from './balance-rig.js';
+import { ISSUE_EXAMPLE_JOB, measure, type Rig, type RigMass, twoBearingRig } from './balance-rig.js';
 
 /** Smallest angular distance, degrees. */
 function angDist(a: number, b: number): number {
@@ -389,18 +389,9 @@ describe('trim run from stored influence coefficients, no new trial runs', () =>
 });
 
 describe('warnings and refusals: never a confident wrong answer', () => {
-  const issueExample = {
-    angle_convention: 'against_rotation',
-    planes: ['P1', 'P2'],
-    runs: [
-      { weights: [], readings: { 'DE-V': { amp: 6.1, phase_deg: 120 } } },
-      { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 3.2, phase_deg: 95 } } },
-      { weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 7.0, phase_deg: 140 } } },
-    ],
-  };
-
+  
   it("the issue's own example (one sensor, two planes) gives a clear message and no numbers", () => {
-    const r = solveBalanceJob(parseBalanceJob(issueExample));
+    const r = solveBalanceJob(parseBalanceJob(ISSUE_EXAMPLE_JOB));
     expect(r.ok).toBe(false);
     expect(r.corrections).toEqual([]);
     expect(r.problems.map((p) => p.code)).toEqual(['fewer_readings_than_planes']);

@@ -4,7 +4,7 @@
  */
 import { readFileSync } from 'node:fs';
 import { z } from 'zod';
-import { formatPath } from '../config/load.js';
+import { formatPath, valueAt } from '../config/load.js';
 import { UserError } from '../errors.js';
 import type { StoredCoefficients } from './coefficients.js';
 import type { BalanceJob } from './job.js';
@@ -152,15 +152,6 @@ export function readJsonFile(file: string, what: string): unknown {
   } catch (e) {
     throw new UserError(file, `not valid JSON: ${(e as Error).message}`, 'fix the JSON syntax (quotes, commas, brackets)');
   }
-}
-
-function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
-  let cur: unknown = root;
-  for (const p of path) {
-    if (cur === null || typeof cur !== 'object') return undefined;
-    cur = (cur as Record<PropertyKey, unknown>)[p as string];
-  }
-  return cur;
 }
 
 function describeFound(value: unknown): string {
