@@ -133,6 +133,11 @@ describe('turnwise balance solve', () => {
     expect(tout.method).toBe('given_coefficients');
     expect(tout.corrections[0]).toMatchObject({ plane: 'P1', mass_g: 30, angle_deg: 280 });
     expect(tout.corrections[1].mass_g).toBeLessThan(1e-6);
+    // Without amp_unit the readings are taken in the stored unit, and the output says so.
+    const { amp_unit: _unit, ...noUnit } = trim;
+    const n = JSON.parse(cli(['balance', 'solve', file('trim.json', noUnit), '--json', '--coefficients', join(state, 'balance', 'coefficients.json')]).stdout);
+    expect(n.amp_unit).toBe('mm/s pk');
+    expect(n.warnings.map((w: { code: string }) => w.code)).toContain('unit_assumed');
   });
 
   it('bad JSON: exit 2, names the file and what to do, no stack trace', () => {

@@ -3,7 +3,7 @@ import { loadConfig } from '../../config/load.js';
 import type { Config } from '../../config/schema.js';
 import { UserError } from '../../errors.js';
 import { conventionText } from '../../balance/conventions.js';
-import type { BalanceJob } from '../../balance/job.js';
+import type { BalanceJob, Issue } from '../../balance/job.js';
 import { parseBalanceJob, parseCombineRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
 import { balancingCautions, cautionBlock, conventionLine, fixed, formatSolveReport, formatSplitReport } from '../../balance/report.js';
@@ -152,11 +152,17 @@ async function solve(argv: string[]): Promise<number> {
   const file = singleFile('solve', positionals, 'job');
   const cfg = values.config ? loadConfig(values.config) : null;
   let job: BalanceJob = parseBalanceJob(withConfigDefaults(readJsonFile(file, 'balancing job'), cfg), file);
+  const notes: Issue[] = [];
   if (values.coefficients) {
     const stored = parseStoredCoefficients(readJsonFile(values.coefficients, 'influence coefficients'), values.coefficients);
+    if (job.amp_unit === undefined) {
+      job = { ...job, amp_unit: 'mm/s pk' };
+      notes.push({ code: 'unit_assumed', message: 'the job gives no amp_unit: its readings are taken as mm/s pk, the unit of the stored coefficients', hint: 'set "amp_unit" in the job to say what the readings are' });
+    }
     job = { ...job, influence_coefficients: coefficientsForJob(stored, job, values.coefficients), coefficients_speed_rpm: stored.speed_rpm };
   }
-  const result = solveBalanceJob(job);
+  const solved = solveBalanceJob(job);
+  const result = notes.length ? { ...solved, warnings: [...solved.warnings, ...notes] } : solved;
   const asset = values.asset ?? job.asset ?? cfg?.machine.id ?? null;
 
   let saved: Record<string, unknown> | null = null;
