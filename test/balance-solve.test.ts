@@ -127,7 +127,7 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
   });
 });
 
-describe('published example: Tiwari, Theory and Practice of Rotor Dynamics (NPTEL, IIT Guwahati), module 13 lecture 2, Example 13.5', () => {
+describe('published example: Tiwari, Theory and Practice of Rotor Dynamics (NPTEL course, IIT Guwahati), module 13, Example 13.5', () => {
   // Problem data as published: a symmetric rigid rotor; a 0.3 kg trial mass at end 1, 30 deg from the
   // reference, changes the vibration by 50 um at 61 deg at end 1 and 42 um at 130 deg at end 2;
   // unbalance vibration 30 um at 230 deg (end 1) and 70 um at 330 deg (end 2). By the stated symmetry
