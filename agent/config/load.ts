@@ -22,7 +22,8 @@ function describeFound(value: unknown): string {
   return String(value);
 }
 
-function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
+/** The value at a zod issue path inside the raw parsed document (undefined when absent). */
+export function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
   let cur: unknown = root;
   for (const p of path) {
     if (cur === null || typeof cur !== 'object') return undefined;
