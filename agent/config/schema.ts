@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { acquisitionSchema } from './acquisition.js';
 
 /**
  * The one configuration schema. Every key a user can write lives here, with its meaning.
@@ -77,6 +78,7 @@ export const configSchema = z
     tach: tachSchema,
     sensors: z.array(sensorSchema).min(1),
     dsp: dspSchema,
+    acquisition: acquisitionSchema.optional().describe('Where the samples come from (recording, serial board, simulator).'),
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
   })
   .strict()
