@@ -33,7 +33,7 @@ export interface SerialSourceOptions {
   readonly nowMs?: () => number;
   /** Period of the housekeeping timer (stall check, log summaries), ms. */
   readonly tickMs?: number;
-  /** Quiet time that ends a burst of log lines, ms. */
+  /** Quiet time that ends a burst of log lines, ms (at least twice reconnectMaxMs). */
   readonly burstQuietMs?: number;
 }
 
@@ -85,6 +85,11 @@ export type SerialHealth = {
 
 type SerialPortModule = typeof import('serialport');
 
+/** Wait before reopen attempt number `attempt` (0 = first): doubling from `minMs`, capped at `maxMs`. */
+export function reconnectDelayMs(attempt: number, minMs: number, maxMs: number): number {
+  return Math.min(maxMs, minMs * 2 ** Math.min(attempt, 30));
+}
+
 export class SerialSource implements SampleSource {
   private readonly opts: SerialSourceOptions;
   private readonly nowMs: () => number;
@@ -116,7 +121,9 @@ export class SerialSource implements SampleSource {
     this.opts = opts;
     this.nowMs = opts.nowMs ?? Date.now;
     this.log = opts.log;
-    this.burst = new BurstLog(opts.log, { nowMs: this.nowMs, quietMs: opts.burstQuietMs ?? 10_000 });
+    // A burst must outlast the longest wait between reopen attempts, or an unplugged board would
+    // start a new burst (and a new log line) at every attempt.
+    this.burst = new BurstLog(opts.log, { nowMs: this.nowMs, quietMs: Math.max(opts.burstQuietMs ?? 10_000, 2 * opts.reconnectMaxMs) });
     this.queue = new BlockQueue(opts.queueFrames);
     const sink: FrameSink = {
       frame: (f) => this.onFrame(f),
@@ -282,8 +289,7 @@ export class SerialSource implements SampleSource {
 
   private scheduleReopen(): void {
     if (this.closing || this.reopenTimer) return;
-    const delay = Math.min(this.opts.reconnectMaxMs, this.opts.reconnectMinMs * 2 ** Math.min(this.attempt, 20));
-    this.attempt++;
+    const delay = reconnectDelayMs(this.attempt++, this.opts.reconnectMinMs, this.opts.reconnectMaxMs);
     this.reopenTimer = setTimeout(() => this.tryOpen(), delay);
   }
 
