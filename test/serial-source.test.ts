@@ -3,9 +3,10 @@
  * board emulator writing frames into the other end.
  */
 import { execFileSync } from 'node:child_process';
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
+import { afterEach, beforeEach, describe, expect, it, vi } from 'vitest';
 import { SerialPort } from 'serialport';
-import { BoardEmulator, DeviceWriter, SineTachSignal, type BoardSignal } from '../drivers/serial/board-emulator.js';
+import { probeSerialCommand } from '../agent/cli/commands/probe-serial.js';
+import { BoardEmulator, DeviceWriter, SineTachSignal, playRealtime, type BoardSignal } from '../drivers/serial/board-emulator.js';
 import { listPorts } from '../drivers/serial/ports.js';
 import { SerialSource, reconnectDelayMs, type SerialSourceOptions } from '../drivers/serial/serial-source.js';
 import type { GapMarker } from '../drivers/source.js';
@@ -368,5 +369,40 @@ describe('finding the board', () => {
     expect(listing.stable).toEqual([]);
     if (hasUdevadm) expect(listing.listError).toBeNull();
     else expect(listing.listError).toMatch(/udevadm is not installed.*install the Debian package udev/);
+  });
+});
+
+describe('turnwise probe-serial', () => {
+  it('reports the board\'s format and counters from a real pty', async () => {
+    await pty.start();
+    writer = await DeviceWriter.open(pty.boardPath);
+    const board = newBoard(777);
+    let stop = false;
+    const w = writer;
+    const playing = playRealtime(board, w, (SPF / RATE) * 1000, () => stop);
+    const chunks: string[] = [];
+    const spy = vi.spyOn(process.stdout, 'write').mockImplementation((s: string | Uint8Array) => (chunks.push(String(s)), true));
+    const errSpy = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
+    let code: number;
+    try {
+      code = await probeSerialCommand.run(['--device', pty.agentPath, '--seconds', '1.5', '--json']);
+    } finally {
+      spy.mockRestore();
+      errSpy.mockRestore();
+      stop = true;
+    }
+    await playing;
+    const r = JSON.parse(chunks.join(''));
+    expect(code).toBe(0);
+    expect(r.format).toEqual({ channels: CHANNELS, sample_rate_hz: RATE, sample_format: 'int24', samples_per_frame: SPF, tach_timed: true });
+    expect(r.counters.frames_ok).toBeGreaterThan(50);
+    expect(r.counters.crc_errors).toBe(0);
+    // Paced by the emulator's real-time loop; loose bounds, this is a sanity check of the estimate.
+    expect(r.measured_rate_hz).toBeGreaterThan(0.75 * RATE);
+    expect(r.measured_rate_hz).toBeLessThan(1.25 * RATE);
+  });
+
+  it('names a missing device and what to do', async () => {
+    await expect(probeSerialCommand.run(['--device', '/nonexistent/tty-board', '--seconds', '1'])).rejects.toThrow(/\/nonexistent\/tty-board does not exist/);
   });
 });

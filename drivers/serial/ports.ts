@@ -93,7 +93,7 @@ export function describeOpenFailure(device: string, err: Error): OpenFailure {
     return {
       kind: 'permission',
       detail: `no permission to open ${device}`,
-      hint: 'add the service user to the dialout group (sudo usermod -aG dialout USER, then log in again) or install deploy/udev/99-turnwise-daq.rules',
+      hint: 'add the service user to the dialout group (sudo usermod -aG dialout USER, then log in again) or install deploy/udev/70-turnwise-daq.rules',
     };
   }
   if (/Cannot lock port/i.test(msg)) {
@@ -107,7 +107,7 @@ export function describeOpenFailure(device: string, err: Error): OpenFailure {
     return {
       kind: 'busy',
       detail: `${device} is busy`,
-      hint: 'ModemManager probes new ttyACM devices for several seconds: install deploy/udev/99-turnwise-daq.rules (sets ID_MM_DEVICE_IGNORE) or stop ModemManager',
+      hint: 'ModemManager probes new ttyACM devices for several seconds: install deploy/udev/70-turnwise-daq.rules (sets ID_MM_DEVICE_IGNORE) or stop ModemManager',
     };
   }
   return { kind: 'other', detail: `cannot open ${device}: ${msg}`, hint: 'check the device path and the board' };
