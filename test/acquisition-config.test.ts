@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { validateConfig } from '../agent/config/load.js';
-import { silentLog } from '../drivers/log.js';
+import { silentLogger } from '../agent/log.js';
 import { serialOptionsFromConfig } from '../drivers/serial/serial-source.js';
 
 const base = {
@@ -17,7 +17,7 @@ describe('acquisition config section', () => {
   it('fills the serial defaults and maps them to the driver options', () => {
     const cfg = validateConfig({ ...base, acquisition: { driver: 'serial', device: '/dev/serial/by-id/usb-Kessrow_DAQ_0001-if00', sample_rate_hz: 25600, channels: 8 } });
     expect(cfg.acquisition).toMatchObject({ driver: 'serial', baud: 921600, realtime: false, reconnect_min_ms: 500, reconnect_max_ms: 10000, stall_timeout_ms: 5000, queue_frames: 256 });
-    const o = serialOptionsFromConfig(cfg.acquisition!, silentLog);
+    const o = serialOptionsFromConfig(cfg.acquisition!, silentLogger);
     expect(o).toMatchObject({ device: '/dev/serial/by-id/usb-Kessrow_DAQ_0001-if00', sampleRateHz: 25600, channels: 8, reconnectMinMs: 500, maxFrameBytes: 262144 });
   });
 

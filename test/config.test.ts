@@ -64,3 +64,12 @@ describe('config loading', () => {
     expect(() => loadConfig('/nonexistent/turnwise.yaml')).toThrow(/config file not found/);
   });
 });
+
+describe('exported JSON Schema', () => {
+  it('config/turnwise.schema.json is up to date with the zod schema (run `npm run schema`)', async () => {
+    const { readFileSync } = await import('node:fs');
+    const { configJsonSchema, CONFIG_SCHEMA_PATH } = await import('../agent/config/json-schema.js');
+    const committed = JSON.parse(readFileSync(CONFIG_SCHEMA_PATH, 'utf8'));
+    expect(committed).toEqual(JSON.parse(JSON.stringify(configJsonSchema())));
+  });
+});

@@ -7,7 +7,7 @@ import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
 import { OnoffLines, explainGpioError, type GpioClass } from '../drivers/gpio/onoff-lines.js';
 import { globalLineNumber, pickGpioChip, readGpioChips, type GpioChip } from '../drivers/gpio/sysfs-chips.js';
 import { GpioTachSpeed, PulseSpeed } from '../drivers/gpio/tach-speed.js';
-import { RecordingLog } from './support/recording-log.js';
+import { MemoryLogger } from '../agent/log.js';
 
 const trees: string[] = [];
 afterEach(() => {
@@ -134,7 +134,7 @@ const PI4: GpioChip = { name: 'gpiochip512', base: 512, label: 'pinctrl-bcm2711'
 describe('onoff adapter (against a stand-in for onoff)', () => {
   it('drives outputs by physical level, applying active-low itself', async () => {
     const { Gpio, made } = stubGpio();
-    const lines = new OnoffLines(Gpio, PI4, new RecordingLog(), () => 1234);
+    const lines = new OnoffLines(Gpio, PI4, new MemoryLogger(), () => 1234);
     const relay = await lines.output('relay', 17, { initial: false });
     const lamp = await lines.output('lamp', 27, { activeLow: true, initial: false });
     expect(made.map((m) => [m.n, m.direction])).toEqual([
@@ -152,7 +152,7 @@ describe('onoff adapter (against a stand-in for onoff)', () => {
 
   it('turns an active-low button into logical presses and maps the edge', async () => {
     const { Gpio, made } = stubGpio();
-    const lines = new OnoffLines(Gpio, PI4, new RecordingLog(), () => 5000);
+    const lines = new OnoffLines(Gpio, PI4, new MemoryLogger(), () => 5000);
     const button = await lines.input('ack', 22, { activeLow: true, debounceMs: 30, edge: 'rising' });
     expect(made[0]).toMatchObject({ n: 534, direction: 'in', edge: 'falling', options: { debounceTimeout: 30 } });
     const seen: [boolean, number][] = [];
@@ -165,7 +165,7 @@ describe('onoff adapter (against a stand-in for onoff)', () => {
 
   it('explains EACCES: gpio group or udev rule', async () => {
     const err = Object.assign(new Error("EACCES: permission denied, open '/sys/class/gpio/export'"), { code: 'EACCES' });
-    const lines = new OnoffLines(stubGpio(err).Gpio, PI4, new RecordingLog());
+    const lines = new OnoffLines(stubGpio(err).Gpio, PI4, new MemoryLogger());
     const e = await lines.output('relay', 17).then(
       () => null,
       (x: unknown) => x,
@@ -179,7 +179,7 @@ describe('onoff adapter (against a stand-in for onoff)', () => {
 
   it('checks the line against the chip before touching onoff', async () => {
     const { Gpio, made } = stubGpio();
-    const lines = new OnoffLines(Gpio, PI4, new RecordingLog());
+    const lines = new OnoffLines(Gpio, PI4, new MemoryLogger());
     await expect(lines.output('relay', 99)).rejects.toThrow(/line 99 does not exist on gpiochip512/);
     expect(made).toHaveLength(0);
   });

@@ -11,7 +11,7 @@ import { listPorts } from '../drivers/serial/ports.js';
 import { SerialSource, reconnectDelayMs, type SerialSourceOptions } from '../drivers/serial/serial-source.js';
 import type { GapMarker } from '../drivers/source.js';
 import { PtyPair } from './support/pty-pair.js';
-import { RecordingLog } from './support/recording-log.js';
+import { MemoryLogger } from '../agent/log.js';
 
 const RATE = 25_600;
 const SPF = 256;
@@ -92,7 +92,7 @@ function expectExact(blocks: Received['blocks']): void {
 let pty: PtyPair;
 let source: SerialSource | null;
 let writer: DeviceWriter | null;
-let log: RecordingLog;
+let log: MemoryLogger;
 
 function makeSource(overrides: Partial<SerialSourceOptions> = {}): SerialSource {
   source = new SerialSource({
@@ -115,7 +115,7 @@ function makeSource(overrides: Partial<SerialSourceOptions> = {}): SerialSource 
 
 beforeEach(async () => {
   pty = new PtyPair();
-  log = new RecordingLog();
+  log = new MemoryLogger();
   source = null;
   writer = null;
 });
@@ -212,8 +212,8 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expect(h).toMatchObject({ frames_ok: 26, crc_errors: 10, bad_lengths: 1, gaps: 12, samples_lost: 14 * SPF });
     expectExact(got.blocks);
     // Ten CRC errors in one burst: one line when it starts, not one per frame.
-    expect(log.matching(/CRC mismatch/).length).toBe(1);
-    await waitFor('burst summary', () => log.matching(/"crc" burst over: 10 occurrence/).length === 1, 3000);
+    expect(log.lines.filter((l) => /CRC mismatch/.test(l.msg)).length).toBe(1);
+    await waitFor('burst summary', () => log.lines.filter((l) => /"crc" burst over: 10 occurrence/.test(l.msg)).length === 1, 3000);
     expect(h.last_error).toMatch(/sequence jump 32 -> 36|samples lost/);
   });
 
@@ -255,8 +255,8 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expect(h).toMatchObject({ reconnects: 1, connected: true, samples_lost: 7 * SPF });
     // Logged once per burst: one "does not exist" line however many attempts failed.
     expect(h.open_failures).toBeGreaterThanOrEqual(3);
-    expect(log.matching(/does not exist/).length).toBe(1);
-    expect(log.matching(/stable serial links present now/).length).toBe(1);
+    expect(log.lines.filter((l) => /does not exist/.test(l.msg)).length).toBe(1);
+    expect(log.lines.filter((l) => /stable serial links present now/.test(l.msg)).length).toBe(1);
   });
 
   it('waits for a device that is absent at start, then samples', async () => {
@@ -283,7 +283,7 @@ describe('SerialSource through a real pseudo-terminal', () => {
     await src.open();
     await waitFor('a failed attempt', () => src.health().open_failures >= 1);
     expect(src.health().last_error).toMatch(/locked by another open handle/);
-    expect(log.matching(/another program .* has the port open/).length).toBe(1);
+    expect(log.lines.filter((l) => /another program .* has the port open/.test(l.msg)).length).toBe(1);
     await new Promise<void>((res) => other.close(() => res()));
     await waitFor('connection', () => src.health().connected);
   });

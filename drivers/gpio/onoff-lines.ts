@@ -11,7 +11,7 @@
  */
 import type { BinaryValue, Direction, Edge, Gpio as OnoffGpio, Options as OnoffOptions } from 'onoff';
 import { UserError } from '../../agent/errors.js';
-import type { Log } from '../log.js';
+import type { Logger } from '../../agent/log.js';
 import { globalLineNumber, pickGpioChip, readGpioChips, SYSFS_GPIO_ROOT, type GpioChip } from './sysfs-chips.js';
 import type { DigitalInput, DigitalOutput, EdgeListener, GpioLines } from './types.js';
 
@@ -22,7 +22,7 @@ export interface OnoffLinesOptions {
   /** Label of the GPIO chip the line offsets refer to (e.g. "pinctrl-bcm2711"); see pickGpioChip. */
   readonly chipLabel?: string;
   readonly sysfsRoot?: string;
-  readonly log: Log;
+  readonly log: Logger;
   readonly nowMs?: () => number;
 }
 
@@ -53,7 +53,7 @@ export class OnoffLines implements GpioLines {
   constructor(
     private readonly Gpio: GpioClass,
     readonly chip: GpioChip,
-    private readonly log: Log,
+    private readonly log: Logger,
     nowMs?: () => number,
   ) {
     this.nowMs = nowMs ?? Date.now;

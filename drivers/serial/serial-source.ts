@@ -10,7 +10,8 @@
 import type { SerialPort as SerialPortClass } from 'serialport';
 import type { AcquisitionConfig } from '../../agent/config/acquisition.js';
 import { UserError } from '../../agent/errors.js';
-import { BurstLog, type Log } from '../log.js';
+import { BurstLog } from '../../agent/burst-log.js';
+import type { Logger } from '../../agent/log.js';
 import type { SampleSource, SourceInfo, SourceItem } from '../source.js';
 import { BlockQueue } from './block-queue.js';
 import { FrameDecoder, type DecodedFrame, type DecodeProblem, type FrameSink } from './frame.js';
@@ -28,7 +29,7 @@ export interface SerialSourceOptions {
   readonly stallTimeoutMs: number;
   readonly queueFrames: number;
   readonly maxFrameBytes: number;
-  readonly log: Log;
+  readonly log: Logger;
   /** Wall clock, ms. */
   readonly nowMs?: () => number;
   /** Period of the housekeeping timer (stall check, log summaries), ms. */
@@ -37,7 +38,7 @@ export interface SerialSourceOptions {
   readonly burstQuietMs?: number;
 }
 
-export function serialOptionsFromConfig(a: AcquisitionConfig, log: Log): SerialSourceOptions {
+export function serialOptionsFromConfig(a: AcquisitionConfig, log: Logger): SerialSourceOptions {
   if (a.driver !== 'serial' || !a.device || a.sample_rate_hz === undefined || a.channels === undefined) {
     throw new UserError('acquisition', 'the serial driver needs device, sample_rate_hz and channels', 'set acquisition.driver: serial with device, sample_rate_hz and channels');
   }
@@ -93,7 +94,7 @@ export function reconnectDelayMs(attempt: number, minMs: number, maxMs: number):
 export class SerialSource implements SampleSource {
   private readonly opts: SerialSourceOptions;
   private readonly nowMs: () => number;
-  private readonly log: Log;
+  private readonly log: Logger;
   private readonly burst: BurstLog;
   private readonly decoder: FrameDecoder;
   private readonly queue: BlockQueue;

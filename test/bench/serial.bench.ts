@@ -12,7 +12,7 @@ import { parseArgs } from 'node:util';
 import { fileURLToPath } from 'node:url';
 import { BoardEmulator, DeviceWriter, SineTachSignal, playRealtime } from '../../drivers/serial/board-emulator.js';
 import { FrameDecoder } from '../../drivers/serial/frame.js';
-import { silentLog } from '../../drivers/log.js';
+import { silentLogger } from '../../agent/log.js';
 import { SerialSource } from '../../drivers/serial/serial-source.js';
 import { PtyPair } from '../support/pty-pair.js';
 import { SerialPort } from 'serialport';
@@ -105,7 +105,7 @@ async function measure(kind: 'raw' | 'source', seconds: number): Promise<Measure
       stallTimeoutMs: 5000,
       queueFrames: 256,
       maxFrameBytes: 262_144,
-      log: silentLog,
+      log: silentLogger,
     });
     await source.open();
     while (!source.health().connected) await new Promise((r) => setTimeout(r, 10));

@@ -1,21 +1,4 @@
-/**
- * The logging interface drivers are given through their constructors. A pino logger satisfies it
- * as it is (`pino()` in production); tests pass a recording logger.
- */
-export interface Log {
-  debug(fields: object, msg: string): void;
-  info(fields: object, msg: string): void;
-  warn(fields: object, msg: string): void;
-  error(fields: object, msg: string): void;
-}
-
-/** Discards everything; for callers that do not care (e.g. a one-shot probe's internals). */
-export const silentLog: Log = {
-  debug() {},
-  info() {},
-  warn() {},
-  error() {},
-};
+import type { Logger } from './log.js';
 
 interface Burst {
   readonly firstMs: number;
@@ -47,7 +30,7 @@ export class BurstLog {
   private readonly nowMs: () => number;
 
   constructor(
-    private readonly log: Log,
+    private readonly log: Logger,
     opts: BurstLogOptions = {},
   ) {
     this.quietMs = opts.quietMs ?? 10_000;
@@ -56,7 +39,7 @@ export class BurstLog {
   }
 
   /** One occurrence of problem `key`; `detail` says what happened this time. */
-  report(key: string, detail: string, fields: object = {}): void {
+  report(key: string, detail: string, fields: Record<string, unknown> = {}): void {
     const now = this.nowMs();
     const b = this.bursts.get(key);
     if (!b) {

@@ -1,0 +1,117 @@
+import { loadConfig } from '../../config/load.js';
+import type { Config } from '../../config/schema.js';
+import { Analyzer } from '../../dsp/analyzer.js';
+import type { WindowResult } from '../../dsp/types.js';
+import { UserError } from '../../errors.js';
+import { fmtVel, round, table } from '../../report/units.js';
+import { WavSource } from '../../../drivers/wav/reader.js';
+import { parseCommandArgs } from '../args.js';
+import type { Command } from '../command.js';
+import { Progress } from '../progress.js';
+
+const usage = 'turnwise analyze REC.wav --config CFG.yaml [--json] [--pcm-full-scale-v VOLTS]';
+
+/** Runs the measurement core over a whole recording: one window. */
+export async function analyzeRecording(file: string, cfg: Config, opts: { pcmFullScaleV?: number; progress?: Progress } = {}): Promise<WindowResult> {
+  const src = new WavSource(file, { blockFrames: 8192, pcmFullScaleV: opts.pcmFullScaleV });
+  const info = await src.open();
+  try {
+    const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 8192, totalSamples: info.totalSamples, sourceName: file });
+    const total = info.totalSamples ?? 0;
+    for await (const item of src.items()) {
+      an.push(item);
+      if (item.kind === 'samples') {
+        const done = item.startIndex + (item.channels[0]?.length ?? 0);
+        opts.progress?.update(done, total, `${(done / info.sampleRate).toFixed(1)} of ${(total / info.sampleRate).toFixed(1)} s`);
+      }
+    }
+    opts.progress?.done();
+    const problem = an.diagnoseTach();
+    if (problem) throw new UserError(file, problem, 'no order vectors can be measured without a trustworthy once-per-turn reference');
+    return an.takeWindow();
+  } finally {
+    await src.close();
+  }
+}
+
+/** The JSON document `turnwise analyze --json` prints. Units are in the field names. */
+export function analysisJson(file: string, w: WindowResult): Record<string, unknown> {
+  return {
+    file,
+    sample_rate_hz: w.sample_rate_hz,
+    duration_s: round((w.end_index - w.start_index) / w.sample_rate_hz, 3),
+    speed_rpm: round(w.speed_rpm, 1),
+    speed_min_rpm: round(w.speed_min_rpm, 1),
+    speed_max_rpm: round(w.speed_max_rpm, 1),
+    revolutions: w.revolutions,
+    revolutions_rejected: w.revolutions_rejected,
+    band_hz: w.band_hz,
+    spectrum_resolution_hz: round(w.spectrum_resolution_hz, 4),
+    spectrum_segments: w.spectrum_segments,
+    phase_convention: 'lag in degrees (0-360 of the order\'s own cycle) from the tach rising edge to the positive peak of the velocity component',
+    tach: w.tach,
+    channels: w.channels.map((c) => ({
+      id: c.id,
+      channel: c.channel,
+      bearing: c.bearing,
+      direction: c.direction,
+      overall_rms_mm_s: round(c.overall_rms_mm_s, 3),
+      one_x_share: round(c.one_x_share, 3),
+      orders: Object.fromEntries(
+        Object.entries(c.orders).map(([k, o]) => [k, { freq_hz: round(o.freq_hz, 3), amp_pk_mm_s: round(o.amp_pk_mm_s, 3), amp_rms_mm_s: round(o.amp_rms_mm_s, 3), phase_deg: round(o.phase_deg, 1) }]),
+      ),
+      nonsync_peaks: c.nonsync_peaks.map((p) => ({ freq_hz: round(p.freq_hz, 2), order: round(p.order, 3), amp_rms_mm_s: round(p.amp_rms_mm_s, 3) })),
+      stats: { dc_v: round(c.stats.dc_v, 4), ac_rms_v: round(c.stats.ac_rms_v, 5), min_v: round(c.stats.min_v, 4), max_v: round(c.stats.max_v, 4), clipped_samples: c.stats.clipped_samples },
+    })),
+    warnings: w.warnings,
+  };
+}
+
+export function analysisTable(file: string, w: WindowResult, cfg: Config): string {
+  const u = cfg.units;
+  const orders = Object.keys(w.channels[0]?.orders ?? {});
+  const header = ['sensor', `overall ${u} rms`, ...orders.flatMap((k) => [`${k}x ${u} pk`, `${k}x phase deg`])];
+  const rows = w.channels.map((c) => [
+    `${c.id} (${c.bearing} ${c.direction[0]!.toUpperCase()})`,
+    fmtVel(c.overall_rms_mm_s, u),
+    ...orders.flatMap((k) => {
+      const o = c.orders[k];
+      return [fmtVel(o?.amp_pk_mm_s, u), o ? o.phase_deg.toFixed(1) : '-'];
+    }),
+  ]);
+  const head =
+    `${file}: ${cfg.machine.id}, ${((w.end_index - w.start_index) / w.sample_rate_hz).toFixed(1)} s at ${w.sample_rate_hz} Hz\n` +
+    `speed ${w.speed_rpm?.toFixed(1)} r/min (${w.speed_min_rpm?.toFixed(1)}-${w.speed_max_rpm?.toFixed(1)}), ${w.revolutions} revolutions averaged` +
+    (w.revolutions_rejected ? `, ${w.revolutions_rejected} rejected` : '') +
+    `\noverall band ${w.band_hz.low}-${w.band_hz.high} Hz; phase = lag from the tach edge to the positive velocity peak\n\n`;
+  const peaks = w.channels
+    .filter((c) => c.nonsync_peaks.length > 0)
+    .map((c) => `  ${c.id}: ` + c.nonsync_peaks.slice(0, 3).map((p) => `${p.freq_hz.toFixed(1)} Hz (${p.order.toFixed(2)}x) ${fmtVel(p.amp_rms_mm_s, u)} ${u} rms`).join(', '));
+  const tail = (peaks.length ? `\n\nlargest non-synchronous peaks:\n${peaks.join('\n')}` : '') + (w.warnings.length ? `\n\nwarnings:\n${w.warnings.map((x) => `  - ${x}`).join('\n')}` : '');
+  return head + table(header, rows) + tail + '\n';
+}
+
+export const analyzeCommand: Command = {
+  name: 'analyze',
+  summary: 'measure overall velocity and order vectors (1x, 2x, ...) from a WAV recording',
+  usage,
+  async run(argv) {
+    const { values, positionals } = parseCommandArgs('analyze', usage, argv, {
+      config: { type: 'string', short: 'c' },
+      json: { type: 'boolean' },
+      'pcm-full-scale-v': { type: 'string' },
+    });
+    const file = positionals[0];
+    if (!file || positionals.length > 1) throw new UserError('turnwise analyze', 'expects exactly one recording', `usage: ${usage}`);
+    if (!values.config) throw new UserError('turnwise analyze', 'missing --config', `usage: ${usage}`);
+    let pcmFullScaleV: number | undefined;
+    if (values['pcm-full-scale-v'] !== undefined) {
+      pcmFullScaleV = Number(values['pcm-full-scale-v']);
+      if (!(pcmFullScaleV > 0)) throw new UserError('--pcm-full-scale-v', `expects a positive number of volts, got "${values['pcm-full-scale-v']}"`, 'e.g. --pcm-full-scale-v 10 for a +/-10 V board');
+    }
+    const cfg = loadConfig(values.config);
+    const w = await analyzeRecording(file, cfg, { pcmFullScaleV, progress: new Progress('analyze') });
+    process.stdout.write(values.json ? JSON.stringify(analysisJson(file, w), null, 2) + '\n' : analysisTable(file, w, cfg));
+    return 0;
+  },
+};

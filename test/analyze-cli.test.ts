@@ -1,0 +1,112 @@
+import { beforeAll, describe, expect, it } from 'vitest';
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { synthesize } from './support/synth.js';
+import { writeFloatWav } from './support/wav.js';
+import { expectNoStack, runCli } from './support/cli.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'tw-analyze-'));
+const cfgFile = join(dir, 'fan.yaml');
+const rec = join(dir, 'rec.wav');
+const fs = 25600;
+
+function cfgYaml(over: { tachChannel?: number; sensorChannel?: number; maxRpm?: number } = {}): string {
+  return `machine: {id: test-fan, group: 2, support: rigid, rated_rpm: 1485}
+tach: {channel: ${over.tachChannel ?? 2}, trigger_v: 2.5${over.maxRpm ? `, max_rpm: ${over.maxRpm}` : ''}}
+sensors:
+  - {id: DE-V, channel: ${over.sensorChannel ?? 0}, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}
+  - {id: DE-H, channel: 1, bearing: DE, direction: horizontal, sensitivity_mv_per_g: 100}
+`;
+}
+
+beforeAll(() => {
+  const sig = synthesize({
+    sampleRate: fs,
+    seconds: 12,
+    rpm: () => 1485,
+    channels: [
+      { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }, { order: 2, velPk: 0.35, phaseDeg: 75 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
+    ],
+    tachChannel: 2,
+  });
+  writeFloatWav(rec, fs, sig);
+  writeFileSync(cfgFile, cfgYaml());
+});
+
+describe('turnwise analyze', () => {
+  it('prints the JSON contract', () => {
+    const r = runCli(['analyze', rec, '--config', cfgFile, '--json']);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(j.speed_rpm).toBeCloseTo(1485, 0);
+    expect(j.revolutions).toBeGreaterThan(290);
+    const de = j.channels.find((c: { id: string }) => c.id === 'DE-V');
+    expect(de.orders['1'].amp_pk_mm_s).toBeCloseTo(6.0, 1);
+    expect(de.orders['1'].amp_rms_mm_s).toBeCloseTo(6.0 / Math.SQRT2, 1);
+    expect(de.orders['1'].phase_deg).toBeCloseTo(40, 0);
+    expect(de.orders['2'].phase_deg).toBeCloseTo(75, 0);
+    expect(de.overall_rms_mm_s).toBeGreaterThan(4.2);
+    expect(de.overall_rms_mm_s).toBeLessThan(4.4);
+    const dh = j.channels.find((c: { id: string }) => c.id === 'DE-H');
+    expect(dh.orders['1'].phase_deg).toBeCloseTo(130, 0);
+  });
+
+  it('prints a readable table with units by default', () => {
+    const r = runCli(['analyze', rec, '--config', cfgFile]);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/speed 1485\.0 r\/min/);
+    expect(r.stdout).toMatch(/1x mm\/s pk/);
+    expect(r.stdout).toMatch(/DE-V \(DE V\)\s+4\.\d\d\s+(5\.99|6\.0\d)\s+40\.\d/);
+  });
+
+  const bad: Array<[string, string, RegExp]> = [
+    ['a sensor on a channel the recording lacks', cfgYaml({ sensorChannel: 5 }), /sensors\[0\]\.channel: sensor DE-V is on channel 5 but .*rec\.wav has 3 channel\(s\), numbered 0-2/],
+    ['a tach channel the recording lacks', cfgYaml({ tachChannel: 7 }), /tach\.channel: the tach is on channel 7 but .* has 3 channel\(s\)/],
+    ['a flat tach (the tach is pointed at a vibration channel)', cfgYaml({ tachChannel: 1, sensorChannel: 0 }).replace('channel: 1, bearing: DE, direction: horizontal', 'channel: 2, bearing: DE, direction: horizontal'), /never reached the 2\.5 V trigger \(signal between/],
+    ['a tach at an impossible speed', cfgYaml({ maxRpm: 1000 }), /tach pulses imply about 1485 r\/min, above tach\.max_rpm \(1000\)/],
+  ];
+  for (const [what, yaml, msg] of bad) {
+    it(`gives one clear message for ${what}`, () => {
+      const f = join(dir, `bad-${what.length}.yaml`);
+      writeFileSync(f, yaml);
+      const r = runCli(['analyze', rec, '--config', f]);
+      expect(r.code).toBe(2);
+      expect(r.stdout).toBe('');
+      expectNoStack(r.stderr);
+      expect(r.stderr).toMatch(msg);
+    });
+  }
+
+  it('refuses a sample rate too low for the band', () => {
+    const low = join(dir, 'low.wav');
+    writeFloatWav(low, 2000, [new Float32Array(4000), new Float32Array(4000), new Float32Array(4000)]);
+    const r = runCli(['analyze', low, '--config', cfgFile]);
+    expect(r.code).toBe(2);
+    expectNoStack(r.stderr);
+    expect(r.stderr).toMatch(/sample rate 2000 Hz is too low for the band up to 1000 Hz: it needs at least 2560 Hz/);
+  });
+
+  it('explains usage mistakes', () => {
+    const r = runCli(['analyze', rec]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/missing --config/);
+    const r2 = runCli(['analyze', '--bogus']);
+    expect(r2.code).toBe(2);
+    expectNoStack(r2.stderr);
+    expect(r2.stderr).toMatch(/usage: turnwise analyze/);
+  });
+
+  it('check-config reports problems and exits non-zero', () => {
+    const f = join(dir, 'broken.yaml');
+    writeFileSync(f, 'machine: {id: "bad id", group: 2, support: rigid}\ntach: {channel: 2, trigger_v: 2.5}\nsensors: []\n');
+    const r = runCli(['check-config', f]);
+    expect(r.code).toBe(2);
+    expectNoStack(r.stderr);
+    expect(r.stderr).toMatch(/machine\.id: letters, digits/);
+    expect(r.stderr).toMatch(/sensors: .*(at least|>=) ?1/i);
+    expect(runCli(['check-config', 'config/example.yaml']).code).toBe(0);
+  });
+});
