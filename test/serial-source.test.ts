@@ -113,6 +113,17 @@ function makeSource(overrides: Partial<SerialSourceOptions> = {}): SerialSource 
   return source;
 }
 
+/** Brings the pty up, opens the source, starts consuming, and opens the board's end for writing. */
+async function startStreaming(overrides: Partial<SerialSourceOptions> = {}): Promise<{ src: SerialSource; got: Received; w: DeviceWriter }> {
+  await pty.start();
+  const src = makeSource(overrides);
+  await src.open();
+  const got = consume(src);
+  await waitFor('connection', () => src.health().connected);
+  writer = await DeviceWriter.open(pty.boardPath);
+  return { src, got, w: writer };
+}
+
 beforeEach(async () => {
   pty = new PtyPair();
   log = new MemoryLogger();
@@ -149,23 +160,18 @@ describe('SerialSource through a real pseudo-terminal', () => {
   });
 
   it('resynchronises after garbage between frames and inside a frame; the hit frame is an exact gap', async () => {
-    await pty.start();
-    const src = makeSource();
-    await src.open();
-    const got = consume(src);
-    await waitFor('connection', () => src.health().connected);
-    writer = await DeviceWriter.open(pty.boardPath);
+    const { src, got, w } = await startStreaming();
     const board = newBoard();
-    for (let k = 0; k < 10; k++) await writer.write(board.nextFrame());
+    for (let k = 0; k < 10; k++) await w.write(board.nextFrame());
     // Garbage without the sync word's first byte, so every one of its bytes must be skipped.
     const junk = Buffer.from(Array.from({ length: 500 }, (_, i) => ((i * 37 + 11) & 0xff) === 0xa5 ? 0x42 : (i * 37 + 11) & 0xff));
-    await writer.write(junk);
-    for (let k = 10; k < 20; k++) await writer.write(board.nextFrame());
+    await w.write(junk);
+    for (let k = 10; k < 20; k++) await w.write(board.nextFrame());
     const hitIndex = board.nextIndex;
     const hit = Buffer.from(board.nextFrame());
     const hitWithJunk = Buffer.concat([hit.subarray(0, 300), junk.subarray(0, 77), hit.subarray(300)]);
-    await writer.write(hitWithJunk);
-    for (let k = 21; k < 30; k++) await writer.write(board.nextFrame());
+    await w.write(hitWithJunk);
+    for (let k = 21; k < 30; k++) await w.write(board.nextFrame());
     await waitFor('29 blocks', () => got.blocks.length === 29);
     const h = src.health();
     expect(h.frames_ok).toBe(29);
@@ -178,12 +184,7 @@ describe('SerialSource through a real pseudo-terminal', () => {
   });
 
   it('reports damaged CRCs, bad lengths and dropped frames as gaps with exact bounds, logging once per burst', async () => {
-    await pty.start();
-    const src = makeSource();
-    await src.open();
-    const got = consume(src);
-    await waitFor('connection', () => src.health().connected);
-    writer = await DeviceWriter.open(pty.boardPath);
+    const { src, got, w } = await startStreaming();
     const board = newBoard(1_000_000);
     const expectedGaps: [number, number][] = [];
     for (let k = 0; k < 40; k++) {
@@ -192,17 +193,17 @@ describe('SerialSource through a real pseudo-terminal', () => {
         // A burst of 10 frames with one flipped bit in a sample.
         const f = Buffer.from(board.nextFrame());
         f[f.length - 20] ^= 0x10;
-        await writer.write(f);
+        await w.write(f);
         expectedGaps.push([at, at + SPF]);
       } else if (k === 30) {
         const f = Buffer.from(board.nextFrame());
         f.writeUInt32LE(f.readUInt32LE(8) - 6, 8);
-        await writer.write(f);
+        await w.write(f);
         expectedGaps.push([at, at + SPF]);
       } else if (k >= 33 && k < 36) {
         board.skipFrame(); // lost on the link
         if (k === 33) expectedGaps.push([at, at + 3 * SPF]);
-      } else await writer.write(board.nextFrame());
+      } else await w.write(board.nextFrame());
     }
     await waitFor('all good frames', () => got.blocks.length === 40 - 10 - 1 - 3);
     expect(got.gaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(expectedGaps);
@@ -218,19 +219,14 @@ describe('SerialSource through a real pseudo-terminal', () => {
   });
 
   it('reopens with backoff after the device vanishes, resumes sampling and reports the exact gap', async () => {
-    await pty.start();
-    const src = makeSource();
-    await src.open();
-    const got = consume(src);
-    await waitFor('connection', () => src.health().connected);
-    writer = await DeviceWriter.open(pty.boardPath);
+    const { src, got, w } = await startStreaming();
     const board = newBoard();
-    for (let k = 0; k < 10; k++) await writer.write(board.nextFrame());
+    for (let k = 0; k < 10; k++) await w.write(board.nextFrame());
     await waitFor('10 blocks', () => got.blocks.length === 10);
     const lostFrom = board.nextIndex;
 
     // Unplug: socat goes away with both ends of the pty.
-    await writer.close();
+    await w.close();
     writer = null;
     await pty.stop();
     await waitFor('disconnect noticed', () => !src.health().connected);
@@ -242,9 +238,10 @@ describe('SerialSource through a real pseudo-terminal', () => {
     // Plug back in.
     await pty.start();
     await waitFor('reconnect', () => src.health().reconnects === 1 && src.health().connected);
-    writer = await DeviceWriter.open(pty.boardPath);
+    const w2 = await DeviceWriter.open(pty.boardPath);
+    writer = w2;
     const resumeAt = board.nextIndex;
-    for (let k = 0; k < 10; k++) await writer.write(board.nextFrame());
+    for (let k = 0; k < 10; k++) await w2.write(board.nextFrame());
     await waitFor('20 blocks', () => got.blocks.length === 20);
 
     expect(got.gaps).toEqual([expect.objectContaining({ fromIndex: lostFrom, toIndex: resumeAt })]);
@@ -289,17 +286,12 @@ describe('SerialSource through a real pseudo-terminal', () => {
   });
 
   it('closes and reopens a device that goes silent', async () => {
-    await pty.start();
-    const src = makeSource({ stallTimeoutMs: 300 });
-    await src.open();
-    const got = consume(src);
-    await waitFor('connection', () => src.health().connected);
-    writer = await DeviceWriter.open(pty.boardPath);
+    const { src, got, w } = await startStreaming({ stallTimeoutMs: 300 });
     const board = newBoard();
-    await writer.write(board.nextFrame());
+    await w.write(board.nextFrame());
     await waitFor('a stall', () => src.health().stalls >= 1);
     await waitFor('reopened', () => src.health().reconnects >= 1 && src.health().connected);
-    for (let k = 0; k < 3; k++) await writer.write(board.nextFrame());
+    for (let k = 0; k < 3; k++) await w.write(board.nextFrame());
     await waitFor('4 blocks', () => got.blocks.length === 4);
     expectExact(got.blocks);
     expect(src.health().last_error).toMatch(/no good frame for/);
@@ -324,16 +316,11 @@ describe('SerialSource through a real pseudo-terminal', () => {
   });
 
   it('carries a sine and its tach edges through unchanged within the int24 quantisation', async () => {
-    await pty.start();
-    const src = makeSource({ channels: 2 });
-    await src.open();
-    const got = consume(src);
-    await waitFor('connection', () => src.health().connected);
-    writer = await DeviceWriter.open(pty.boardPath);
+    const { src, got, w } = await startStreaming({ channels: 2 });
     const signal = new SineTachSignal(RATE, 1485, [{ amp_v: 1.5, lag_deg: 30 }, { amp_v: 0.2, lag_deg: 120, dc_v: 10 }], 12.75);
     const scale = [2 ** -22, 2 ** -19];
     const board = new BoardEmulator(signal, { sampleRateHz: RATE, samplesPerFrame: SPF, format: 'int24', scaleVPerCount: scale, tachTimed: true });
-    for (let k = 0; k < 20; k++) await writer.write(board.nextFrame());
+    for (let k = 0; k < 20; k++) await w.write(board.nextFrame());
     await waitFor('20 blocks', () => got.blocks.length === 20);
     const samplesPerRev = (RATE * 60) / 1485;
     let maxErr = [0, 0];
