@@ -4,10 +4,10 @@
  *
  * The decoder copies each chunk into one preallocated buffer, finds frames by their sync word with
  * Buffer.indexOf (no per-byte handler), checks the header, the length and the CRC-32, and decodes
- * the samples into preallocated Float32Arrays. After garbage or a damaged frame it rescans from the
- * byte after the failed sync word, so it is back in step at the next intact frame. Sequence numbers
- * and sample-clock indices are checked across frames; missing samples are reported as gap markers
- * with exact sample-clock bounds.
+ * the samples into Float32Arrays sized once for the largest frame seen and then reused. After
+ * garbage or a damaged frame it rescans from the byte after the failed sync word, so it is back in
+ * step at the next intact frame. Sequence numbers and sample-clock indices are checked across
+ * frames; missing samples are reported as gap markers with exact sample-clock bounds.
  */
 import { crc32 as zlibCrc32 } from 'node:zlib';
 import type { GapMarker } from '../source.js';
@@ -246,7 +246,9 @@ export class FrameDecoder {
   private len = 0;
   private skipping = false;
 
-  private readonly chanBufs: Float32Array[];
+  /** Decoded samples; grown to the largest frame seen (channels x samples), then reused. */
+  private chanBufs: Float32Array[] = [];
+  private chanCap = 0;
   private readonly edgeBuf: Float64Array;
   private readonly scales: Float64Array;
   private readonly offsets: Float64Array;
@@ -275,7 +277,6 @@ export class FrameDecoder {
     this.nowMs = opts.nowMs ?? Date.now;
     this.buf = Buffer.alloc(Math.max(2 * l.maxFrameBytes, 65_536));
     this.dv = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
-    this.chanBufs = Array.from({ length: l.maxChannels }, () => new Float32Array(l.maxSamplesPerChannel));
     this.edgeBuf = new Float64Array(l.maxTachEdges);
     this.scales = new Float64Array(l.maxChannels);
     this.offsets = new Float64Array(l.maxChannels);
@@ -461,6 +462,11 @@ export class FrameDecoder {
       o += TACH_EDGE_LEN;
     }
 
+    if (spc > this.chanCap || channelCount > this.chanBufs.length) {
+      this.chanCap = Math.max(spc, this.chanCap);
+      this.chanBufs = Array.from({ length: Math.max(channelCount, this.chanBufs.length) }, () => new Float32Array(this.chanCap));
+      this.viewSpc = -1;
+    }
     if (spc !== this.viewSpc || this.views.length !== channelCount) {
       this.views = this.chanBufs.slice(0, channelCount).map((b) => b.subarray(0, spc));
       this.viewSpc = spc;

@@ -132,7 +132,7 @@ export class SerialSource implements SampleSource {
       problem: (kind, detail) => this.onProblem(kind, detail),
     };
     this.decoder = new FrameDecoder(sink, {
-      limits: { maxFrameBytes: opts.maxFrameBytes, maxChannels: Math.max(64, opts.channels) },
+      limits: { maxFrameBytes: opts.maxFrameBytes },
       expect: { channelCount: opts.channels, sampleRateHz: opts.sampleRateHz },
       nowMs: this.nowMs,
     });
