@@ -4,6 +4,7 @@
  * Used by the tests and the benchmark through a real pseudo-terminal; the fan simulator can drive
  * it by implementing `BoardSignal`.
  */
+import { constants } from 'node:fs';
 import { open, type FileHandle } from 'node:fs/promises';
 import { COUNT_RANGE, encodeFrame, type SampleFormat } from './frame.js';
 
@@ -156,7 +157,8 @@ export class DeviceWriter {
   private constructor(private readonly fh: FileHandle) {}
 
   static async open(path: string): Promise<DeviceWriter> {
-    return new DeviceWriter(await open(path, 'r+'));
+    // O_NOCTTY: never become this terminal's controlling process.
+    return new DeviceWriter(await open(path, constants.O_RDWR | constants.O_NOCTTY));
   }
 
   async write(bytes: Uint8Array): Promise<void> {
