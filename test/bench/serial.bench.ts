@@ -85,7 +85,15 @@ interface Measured {
  */
 async function measure(kind: 'raw' | 'source', seconds: number): Promise<Measured> {
   const pty = new PtyPair();
-  await pty.start();
+  try {
+    await pty.start();
+    return await measureOn(pty, kind, seconds);
+  } finally {
+    await pty.dispose(); // never leave socat running, whatever happened
+  }
+}
+
+async function measureOn(pty: PtyPair, kind: 'raw' | 'source', seconds: number): Promise<Measured> {
   let samples = 0;
   let bytes = 0;
   let gaps = 0;
@@ -154,7 +162,6 @@ async function measure(kind: 'raw' | 'source', seconds: number): Promise<Measure
   await source?.close();
   if (raw) await new Promise<void>((res) => raw!.close(() => res()));
   await consumer;
-  await pty.dispose();
   if (!Number.isFinite(checksum)) throw new Error('non-finite samples');
   return {
     wall_s: wallS,
