@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { acquisitionSchema } from './acquisition.js';
 import { balanceSchema } from './balance.js';
 
 /**
@@ -78,6 +79,7 @@ export const configSchema = z
     tach: tachSchema,
     sensors: z.array(sensorSchema).min(1),
     dsp: dspSchema,
+    acquisition: acquisitionSchema.optional().describe('Where the samples come from (recording, serial board, simulator).'),
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
     balance: balanceSchema,
   })
