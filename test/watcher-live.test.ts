@@ -1,4 +1,4 @@
-import { appendFileSync, mkdtempSync, readFileSync, existsSync } from 'node:fs';
+import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -198,6 +198,30 @@ describe('baseline, vector change and restarts on real files', () => {
     const next = g.case('quiet', 3);
     expect(next.every((e) => e.id.includes('/r2/'))).toBe(true);
     expect(next.length).toBeGreaterThan(0);
+  });
+});
+
+describe('disk trouble', () => {
+  it('keeps watching when history cannot be written, and says so in the status', () => {
+    const dir = tmp();
+    const f = start(dir, { history: { interval_s: 10 } });
+    f.case('quiet', 2);
+    // Replace the history file by a directory: every further append fails with EISDIR.
+    rmSync(join(dir, 'watcher', 'history.jsonl'));
+    mkdirSync(join(dir, 'watcher', 'history.jsonl'));
+    const events = f.case('static', 2);
+    expect(events.some((e) => e.type === 'unbalance_found')).toBe(true);
+    expect(f.w.status().warnings.join('\n')).toMatch(/history not saved: .*EISDIR/);
+  });
+
+  it('refuses a state directory that holds another fan\'s baseline', () => {
+    const dir = tmp();
+    const f = start(dir);
+    f.w.startLearning();
+    f.case('static', 4);
+    f.w.stopLearning();
+    const other = demoConfig({ state_dir: dir, machine: { id: 'other-fan' } });
+    expect(() => openWatcher(other, new FakeClock(T0))).toThrow(/state_dir: the stored baseline belongs to asset "kessrow-id3a", this config is for "other-fan"/);
   });
 });
 

@@ -2,7 +2,9 @@ import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { seriesTrend, theilSen, type NamedLimit } from '../agent/watcher/trend.js';
+import type { HistoryPoint } from '../agent/watcher/history.js';
+import { resolveWatcherSettings } from '../agent/watcher/settings.js';
+import { seriesTrend, theilSen, trendReport, type NamedLimit } from '../agent/watcher/trend.js';
 import { openWatcher } from '../agent/watcher/watcher.js';
 import { FakeClock } from './support/fake-clock.js';
 import { demoConfig, fanCase, synthWindow } from './support/fan-windows.js';
@@ -15,7 +17,7 @@ const LIMITS: NamedLimit[] = [
   { name: 'zone B/C', value_mm_s: 2.8 },
   { name: 'zone C/D', value_mm_s: 4.5 },
 ];
-const CFG = { min_points: 12, min_span_s: 3600, max_points: 400, min_r2: 0.5 };
+const CFG = { min_points: 12, min_span_s: 3600, span_s: 30 * 86400, max_points: 200, min_r2: 0.5 };
 
 /** Deterministic pseudo-random numbers in [-1, 1) (a linear congruential generator). */
 function noise(seed: number): () => number {
@@ -84,6 +86,22 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
     const tr = seriesTrend(tMs, [1, 1.1, 1.2, 1.3, 1.4], LIMITS, CFG);
     expect(tr.state).toBe('too_little_data');
     expect(tr.why).toBe('5 point(s) over 4.0 h; a trend needs at least 12 points over 1.0 h');
+  });
+
+  it('leaves out history from before the baseline was learned (an earlier balance state)', () => {
+    const cfg = demoConfig();
+    const s = resolveWatcherSettings(cfg);
+    const pt = (h: number, v: number): HistoryPoint => ({ ts: new Date(T0 + h * H).toISOString(), windows: 6, speed_rpm: 1485, channels: { 'DE-V': { overall_rms_mm_s: v, one_x_rms_mm_s: v, one_x_phase_deg: 40 } } });
+    // 24 h at 3.5 mm/s, a balancing job and a new baseline, then 24 h rising 0.02 mm/s per hour from 1.0 mm/s.
+    const pts = [...Array.from({ length: 24 }, (_, h) => pt(h, 3.5)), ...Array.from({ length: 24 }, (_, h) => pt(30 + h, 1.0 + 0.02 * h))];
+    const base = { version: 1 as const, asset: s.asset, source: 'learned' as const, learned_at: new Date(T0 + 29 * H).toISOString(), windows: 6, speed_rpm: 1485, channels: {} };
+    expect(trendReport(s, pts, null).channels['DE-V']!.overall.state).not.toBe('rising'); // the step of the job hides the rise
+    const after = trendReport(s, pts, base).channels['DE-V']!.overall;
+    expect(after.points).toBe(24);
+    expect(after.state).toBe('rising');
+    // Last point 1.0 + 0.02 x 23 = 1.46 mm/s, past A/B 1.4; B/C 2.8 is (2.8 - 1.46) / 0.02 = 67 h later (ISO 20816-3 group 2 rigid).
+    expect(after.next_limit!.name).toBe('zone B/C');
+    expect(Date.parse(after.crossing_at!)).toBeCloseTo(T0 + (53 + 67) * H, -4);
   });
 
   it('the live watcher keeps history points and forecasts the crossing for a fan whose unbalance grows', () => {

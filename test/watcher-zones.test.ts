@@ -155,3 +155,19 @@ describe('start-up and coast-down', () => {
     expect(a.zone.channels['DE-V']!.alarm_mm_s).toBe(5.6);
   });
 });
+
+describe('watcher config section', () => {
+  it('is optional: the example config gets every default', () => {
+    const w = demoConfig().watcher;
+    expect(w.limits).toEqual({ source: 'iso20816' });
+    expect([w.on_delay_s, w.hysteresis_share, w.min_speed_share, w.below_min_speed, w.window_s]).toEqual([20, 0.05, 0.8, 'inhibit', 10]);
+    expect(w.unbalance.phase_tolerance_deg).toBe(30);
+    expect(w.history).toEqual({ interval_s: 60, max_points: 4000 });
+  });
+
+  it('rejects a misspelt key and a bearing without radial sensors, by name', () => {
+    expect(() => demoConfig({ watcher: { on_delay: 5 } })).toThrow(/watcher: unknown key\(s\) "on_delay"/);
+    const cfg = demoConfig({ watcher: { unbalance: { bearings: ['DE', 'MOTOR'] } } });
+    expect(() => assessWindow(cfg, synthWindow(fanCase('static')))).toThrow(/watcher\.unbalance\.bearings\[1\]: bearing "MOTOR" has no vertical or horizontal sensor/);
+  });
+});

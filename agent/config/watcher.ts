@@ -109,7 +109,8 @@ export const watcherSchema = z
       .object({
         min_points: z.number().int().min(4).max(10000).default(12),
         min_span_s: z.number().min(0).default(3600).describe('History must span at least this long before a trend is stated, seconds.'),
-        max_points: z.number().int().min(10).max(2000).default(400).describe('Newest history points used for the fit.'),
+        span_s: z.number().positive().default(604800).describe('The fit uses the history of this many newest seconds (default 7 days), and none from before the baseline was learned.'),
+        max_points: z.number().int().min(10).max(1000).default(200).describe('The history in the span is averaged into at most this many points for the fit (its cost grows with the square).'),
         min_r2: z.number().min(0).max(1).default(0.5).describe('Fits explaining less of the variation than this are reported as "no trend".'),
       })
       .strict()

@@ -23,29 +23,72 @@ export interface LineFit {
   readonly n: number;
 }
 
-function medianSorted(a: Float64Array): number {
+/**
+ * Puts the k-th smallest of a[left..right] at index k, smaller ones before it and larger after it
+ * (quickselect, median-of-three pivot), in place. Far cheaper than a sort for a few order statistics.
+ */
+function select(a: Float64Array, k: number, left = 0, right = a.length - 1): number {
+  while (right > left) {
+    const mid = (left + right) >> 1;
+    // Median of three to the middle as pivot.
+    if (a[mid]! < a[left]!) swap(a, mid, left);
+    if (a[right]! < a[left]!) swap(a, right, left);
+    if (a[right]! < a[mid]!) swap(a, right, mid);
+    const pivot = a[mid]!;
+    let i = left;
+    let j = right;
+    while (i <= j) {
+      while (a[i]! < pivot) i++;
+      while (a[j]! > pivot) j--;
+      if (i <= j) swap(a, i++, j--);
+    }
+    if (k <= j) right = j;
+    else if (k >= i) left = i;
+    else break;
+  }
+  return a[k]!;
+}
+
+function swap(a: Float64Array, i: number, j: number): void {
+  const t = a[i]!;
+  a[i] = a[j]!;
+  a[j] = t;
+}
+
+function median(a: Float64Array): number {
   const m = a.length >> 1;
-  return a.length % 2 ? a[m]! : (a[m - 1]! + a[m]!) / 2;
+  const hi = select(a, m);
+  if (a.length % 2) return hi;
+  let lo = -Infinity;
+  for (let i = 0; i < m; i++) if (a[i]! > lo) lo = a[i]!; // after select, everything below m is <= a[m]
+  return (lo + hi) / 2;
 }
 
 /** Theil-Sen fit of y over t (seconds). Null with fewer than 3 points or no spread in t. */
 export function theilSen(t: ArrayLike<number>, y: ArrayLike<number>): LineFit | null {
   const n = t.length;
   if (n < 3) return null;
-  const slopes = new Float64Array((n * (n - 1)) / 2);
+  const all = new Float64Array((n * (n - 1)) / 2);
   let k = 0;
   for (let i = 0; i < n; i++) {
     for (let j = i + 1; j < n; j++) {
       const dt = t[j]! - t[i]!;
-      if (dt !== 0) slopes[k++] = (y[j]! - y[i]!) / dt;
+      if (dt !== 0) all[k++] = (y[j]! - y[i]!) / dt;
     }
   }
   if (k === 0) return null;
-  const s = slopes.subarray(0, k).sort();
-  const slope = medianSorted(s);
+  const s = all.subarray(0, k);
+  const slope = median(s);
+  // Sen's confidence range: C = z * sqrt(Var S), Var S = n(n-1)(2n+5)/18 (ties ignored); the bounds are
+  // the M1-th and (M2+1)-th smallest slopes, M1 = (N - C) / 2, M2 = (N + C) / 2.
+  const c = 1.96 * Math.sqrt((n * (n - 1) * (2 * n + 5)) / 18);
+  const lo = Math.max(0, Math.min(k - 1, Math.round((k - c) / 2) - 1));
+  const hi = Math.max(0, Math.min(k - 1, Math.round((k + c) / 2)));
+  const slopeLow = select(s, lo);
+  const slopeHigh = select(s, hi, lo);
   const resid = new Float64Array(n);
   for (let i = 0; i < n; i++) resid[i] = y[i]! - slope * t[i]!;
-  const intercept = medianSorted(resid.sort());
+  const intercept = median(resid);
   let mean = 0;
   for (let i = 0; i < n; i++) mean += y[i]!;
   mean /= n;
@@ -55,11 +98,7 @@ export function theilSen(t: ArrayLike<number>, y: ArrayLike<number>): LineFit | 
     ssTot += (y[i]! - mean) ** 2;
     ssRes += (y[i]! - (intercept + slope * t[i]!)) ** 2;
   }
-  // Sen's confidence range: C = z * sqrt(Var S), Var S = n(n-1)(2n+5)/18 (ties ignored).
-  const c = 1.96 * Math.sqrt((n * (n - 1) * (2 * n + 5)) / 18);
-  const lo = Math.max(0, Math.min(k - 1, Math.round((k - c) / 2) - 1));
-  const hi = Math.max(0, Math.min(k - 1, Math.round((k + c) / 2)));
-  return { slope, slopeLow: s[lo]!, slopeHigh: s[hi]!, intercept, r2: ssTot > 0 ? 1 - ssRes / ssTot : 0, n };
+  return { slope, slopeLow, slopeHigh, intercept, r2: ssTot > 0 ? 1 - ssRes / ssTot : 0, n };
 }
 
 export interface NamedLimit {
@@ -87,6 +126,7 @@ export interface SeriesTrend {
 export interface TrendSettings {
   readonly min_points: number;
   readonly min_span_s: number;
+  readonly span_s: number;
   readonly max_points: number;
   readonly min_r2: number;
 }
@@ -96,33 +136,47 @@ const iso = (ms: number): string => new Date(ms).toISOString();
 const perDay = (x: number): string => `${(x * DAY_S).toFixed(3)} mm/s per day`;
 
 /**
- * Trend of one series. `tMs` oldest first; null values are skipped. `limits` are the levels whose
- * crossing is forecast (zone boundaries, alarm).
+ * Trend of one series over the newest `span_s`. `tMs` oldest first; null values are skipped. `limits`
+ * are the levels whose crossing is forecast (zone boundaries, alarm).
  */
 export function seriesTrend(tMs: readonly number[], values: readonly (number | null)[], limits: readonly NamedLimit[], cfg: TrendSettings): SeriesTrend {
+  let tLast = -Infinity;
+  for (let i = 0; i < tMs.length; i++) if (values[i] != null && tMs[i]! > tLast) tLast = tMs[i]!;
   const t: number[] = [];
   const y: number[] = [];
   for (let i = 0; i < tMs.length; i++) {
     const v = values[i];
-    if (v !== null && v !== undefined) {
+    if (v !== null && v !== undefined && tMs[i]! >= tLast - cfg.span_s * 1000) {
       t.push(tMs[i]!);
       y.push(v);
     }
   }
-  const use = Math.min(t.length, cfg.max_points);
-  const t0 = use ? t[t.length - use]! : 0;
-  const ts = t.slice(-use).map((x) => (x - t0) / 1000);
-  const ys = y.slice(-use);
-  const empty = { points: use, slope_mm_s_per_day: null, slope_range_mm_s_per_day: null, r2: null, fitted_now_mm_s: null, next_limit: null, crossing_at: null, crossing_range: null };
-  const spanS = use ? ts[ts.length - 1]! : 0;
-  if (use < cfg.min_points || spanS < cfg.min_span_s) {
-    return { state: 'too_little_data', why: `${use} point(s) over ${(spanS / 3600).toFixed(1)} h; a trend needs at least ${cfg.min_points} points over ${(cfg.min_span_s / 3600).toFixed(1)} h`, ...empty };
+  const n = t.length;
+  const t0 = n ? t[0]! : 0;
+  const spanS = n ? (t[n - 1]! - t0) / 1000 : 0;
+  const empty = { points: n, slope_mm_s_per_day: null, slope_range_mm_s_per_day: null, r2: null, fitted_now_mm_s: null, next_limit: null, crossing_at: null, crossing_range: null };
+  if (n < cfg.min_points || spanS < cfg.min_span_s) {
+    return { state: 'too_little_data', why: `${n} point(s) over ${(spanS / 3600).toFixed(1)} h; a trend needs at least ${cfg.min_points} points over ${(cfg.min_span_s / 3600).toFixed(1)} h`, ...empty };
+  }
+  // At most max_points equal-count bins (means of time and value) keep the pairwise fit cheap.
+  const g = Math.min(n, cfg.max_points);
+  const ts = new Float64Array(g);
+  const ys = new Float64Array(g);
+  for (let b = 0; b < g; b++) {
+    const from = Math.floor((b * n) / g);
+    const to = Math.floor(((b + 1) * n) / g);
+    for (let i = from; i < to; i++) {
+      ts[b] += (t[i]! - t0) / 1000;
+      ys[b] += y[i]!;
+    }
+    ts[b] /= to - from;
+    ys[b] /= to - from;
   }
   const fit = theilSen(ts, ys);
   if (!fit) return { state: 'too_little_data', why: 'all points at the same time', ...empty };
   const fittedNow = fit.intercept + fit.slope * spanS;
   const base = {
-    points: use,
+    points: n,
     slope_mm_s_per_day: fit.slope * DAY_S,
     slope_range_mm_s_per_day: [fit.slopeLow * DAY_S, fit.slopeHigh * DAY_S] as const,
     r2: fit.r2,
@@ -139,7 +193,7 @@ export function seriesTrend(tMs: readonly number[], values: readonly (number | n
   if (fit.slope < 0) return { state: 'falling', why: `falling ${perDay(-fit.slope)} (95 % range ${range})`, ...base, ...none };
 
   const next = [...limits].sort((a, b) => a.value_mm_s - b.value_mm_s).find((l) => l.value_mm_s > fittedNow) ?? null;
-  const tEndMs = t0 + spanS * 1000;
+  const tEndMs = t[n - 1]!;
   if (!next) return { state: 'rising', why: `rising ${perDay(fit.slope)} (95 % range ${range}), already above every limit`, ...base, ...none };
   const gap = next.value_mm_s - fittedNow;
   const at = tEndMs + (gap / fit.slope) * 1000;
@@ -162,9 +216,14 @@ export interface TrendReport {
 /**
  * Trend of overall and 1x per sensor over the history, with crossings of the zone boundaries and, once
  * a baseline exists, of the alarm level. (1x reaching a limit means the overall is at least there too.)
+ * History from before a learned baseline (an earlier balance state) is left out.
  */
-export function trendReport(s: WatcherSettings, points: readonly HistoryPoint[], baseline: Baseline | null): TrendReport {
-  const tMs = points.map((p) => Date.parse(p.ts));
+export function trendReport(s: WatcherSettings, allPoints: readonly HistoryPoint[], baseline: Baseline | null): TrendReport {
+  const since = baseline?.learned_at ? Date.parse(baseline.learned_at) : -Infinity;
+  const allMs = allPoints.map((p) => Date.parse(p.ts));
+  const keep = allPoints.flatMap((_, i) => (allMs[i]! >= since ? [i] : []));
+  const points = keep.map((i) => allPoints[i]!);
+  const tMs = keep.map((i) => allMs[i]!);
   const channels: Record<string, { overall: SeriesTrend; one_x: SeriesTrend }> = {};
   let soonest: TrendReport['soonest'] = null;
   for (const sensor of s.sensors) {

@@ -120,11 +120,14 @@ export class Watcher {
 
     const fromConfig = baselineFromConfig(s);
     const stored = deps.baselineStore.load();
-    if (fromConfig && stored) this.warnings.push('a learned baseline is stored but watcher.baseline in the config takes precedence');
+    if (stored && stored.asset !== s.asset) {
+      throw new UserError('state_dir', `the stored baseline belongs to asset "${stored.asset}", this config is for "${s.asset}"`, 'point state_dir at this fan\'s own state directory');
+    }
+    if (fromConfig && stored) this.warn('a learned baseline is stored but watcher.baseline in the config takes precedence');
     this.baselineValue = fromConfig ?? stored;
 
     this.history = new History(deps.historyStore, s.w.history.max_points);
-    this.warnings.push(...this.history.warnings);
+    for (const w of this.history.warnings) this.warn(w);
     this.aggregator = new HistoryAggregator(s.w.history.interval_s);
     this.reloadCoefficients();
     this.trendCache = this.computeTrend();
@@ -266,7 +269,7 @@ export class Watcher {
 
       const point = this.aggregator.add(window, health, nowMs);
       if (point) {
-        this.history.add(point);
+        this.guarded('history not saved', () => this.history.add(point));
         this.trendCache = this.computeTrend();
       }
     }
@@ -276,8 +279,23 @@ export class Watcher {
       : this.coeffs
         ? forecastBalance(s.asset, this.coeffs, this.baselineValue, window, health)
         : null;
-    this.persist();
+    this.guarded('confirmed states not saved', () => this.persist());
     return { events, status: this.status() };
+  }
+
+  /** Keeps watching when the disk fails (full, read-only): the problem is reported in status.warnings. */
+  private guarded(what: string, fn: () => void): void {
+    try {
+      fn();
+    } catch (e) {
+      this.warn(`${what}: ${isUserError(e) ? e.format() : (e as Error).message}`);
+    }
+  }
+
+  private warn(message: string): void {
+    if (this.warnings.includes(message)) return;
+    this.warnings.push(message);
+    if (this.warnings.length > 20) this.warnings.shift();
   }
 
   private snapshot(): WatcherSnapshot {
@@ -320,7 +338,7 @@ export class Watcher {
       learning: this.learner ? { windows: this.learner.windowCount } : null,
       trend: this.trendCache,
       forecast: this.forecastValue,
-      warnings: this.warnings,
+      warnings: [...this.warnings],
     };
   }
 }

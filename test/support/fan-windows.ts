@@ -183,7 +183,7 @@ export function fanCase(c: FanCase, opts: { amp?: number; phase?: number; start_
 
 /** The demo config (config/example.yaml, invented scenario) with healthy IEPE bias windows and overrides. */
 export function demoConfig(overrides: { machine?: Record<string, unknown>; watcher?: Record<string, unknown>; state_dir?: string; sensors?: (s: Record<string, unknown>) => Record<string, unknown> | null } = {}): Config {
-  const raw = parse(readFileSync(new URL('../../config/example.yaml', import.meta.url), 'utf8')) as Record<string, unknown> & { sensors: Record<string, unknown>[]; machine: Record<string, unknown> };
+  const raw = parse(readFileSync('config/example.yaml', 'utf8')) as Record<string, unknown> & { sensors: Record<string, unknown>[]; machine: Record<string, unknown> };
   // Healthy IEPE bias 8-12 V DC (common practice).
   let sensors = raw.sensors.map((s) => ({ ...s, bias_v: { min: 8, max: 12 }, full_scale_v: 20 }));
   if (overrides.sensors) sensors = sensors.flatMap((s) => overrides.sensors!(s) ?? []) as typeof sensors;
