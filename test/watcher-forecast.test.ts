@@ -13,7 +13,7 @@ import { FakeClock } from './support/fake-clock.js';
 import { demoConfig, synthWindow, type Vec } from './support/fan-windows.js';
 
 /**
- * Influence-coefficient method (common practice, shared/field-notes.md section 5): V = V0 + H W; one
+ * Influence-coefficient method (common practice): V = V0 + H W; one
  * plane W = -V0 / H; two planes W = -H^-1 V0; with more sensors than planes, least squares. Here the
  * "V0" is the change from baseline, so the forecast weight brings the 1x vectors back to baseline.
  */

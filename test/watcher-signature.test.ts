@@ -4,8 +4,8 @@ import type { WindowResult } from '../agent/dsp/types.js';
 import { demoConfig, fanCase, synthWindow, type FanCase, type WindowSpec } from './support/fan-windows.js';
 
 /**
- * Unbalance signature. The patterns and thresholds are the trade's rules (common practice,
- * shared/field-notes.md section 2): 1x dominates; H and V about 90 deg apart (+/-30) with H/V ratio
+ * Unbalance signature. The patterns and thresholds are the trade's rules (common practice):
+ * 1x dominates; H and V about 90 deg apart (+/-30) with H/V ratio
  * below about 3; bearing-to-bearing near 0 = static, near 180 = couple, in between = dynamic; high
  * in-phase axial on an overhung rotor; high 2x with axial 180 apart = misalignment; straight-line
  * motion = eccentricity, looseness, resonance or weak support; unstable phase = no fixed heavy spot.
@@ -14,11 +14,10 @@ import { demoConfig, fanCase, synthWindow, type FanCase, type WindowSpec } from 
 const cfg = demoConfig();
 
 /** Windows of one state with a little phase and amplitude jitter, as a steady fan gives (oldest first). */
-function series(c: FanCase, n: number, opts: { cfgCase?: FanCase; jitterDeg?: number } = {}): WindowResult[] {
+function series(c: FanCase, n: number): WindowResult[] {
   const out: WindowResult[] = [];
   for (let i = 0; i < n; i++) {
-    const j = opts.jitterDeg ?? 3;
-    out.push(synthWindow(fanCase(c, { phase: 40 + (i % 2 ? j : -j), amp: 4 * (1 + 0.02 * (i % 3)), start_index: i * 51200 })));
+    out.push(synthWindow(fanCase(c, { phase: 40 + (i % 2 ? 3 : -3), amp: 4 * (1 + 0.02 * (i % 3)), start_index: i * 51200 })));
   }
   return out;
 }

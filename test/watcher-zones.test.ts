@@ -13,7 +13,7 @@ import { UserError } from '../agent/errors.js';
 import { demoConfig, fanCase, synthWindow } from './support/fan-windows.js';
 
 /** Values in mm/s r.m.s. of broadband velocity on the bearing housing. */
-describe('ISO 20816-3 zone boundaries (ISO 20816-3 table; values in shared/field-notes.md section 3)', () => {
+describe('ISO 20816-3 zone boundaries (ISO 20816-3 zone boundary table for groups 1 and 2, velocity r.m.s.)', () => {
   // [group, support, A/B, B/C, C/D] as the standard tabulates them.
   const table: [1 | 2, 'rigid' | 'flexible', number, number, number][] = [
     [1, 'rigid', 2.3, 4.5, 7.1],
@@ -49,7 +49,7 @@ describe('ISO 20816-3 zone boundaries (ISO 20816-3 table; values in shared/field
 });
 
 describe('ISO 14694 fan limits (from memory: check against the current edition)', () => {
-  // [category, mounting, start-up, alarm, shut-down] in mm/s r.m.s., from memory (shared/field-notes.md section 3).
+  // [category, mounting, start-up, alarm, shut-down] in mm/s r.m.s., ISO 14694 in-situ limits from memory.
   const table: ['BV-3' | 'BV-4', 'rigid' | 'flexible', number, number, number][] = [
     ['BV-3', 'rigid', 4.5, 7.1, 9.0],
     ['BV-3', 'flexible', 6.3, 11.8, 12.5],

@@ -96,7 +96,8 @@ export interface BalanceForecast {
   readonly cautions: readonly string[];
 }
 
-const unavailable = (why: string, coeffs: StoredCoefficients | null = null): BalanceForecast => ({
+/** A forecast that cannot be given, and why. */
+export const unavailable = (why: string, coeffs: StoredCoefficients | null = null): BalanceForecast => ({
   available: false,
   why,
   job_id: coeffs?.job_id ?? null,

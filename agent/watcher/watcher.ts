@@ -8,7 +8,7 @@ import { baselineFromConfig, BaselineLearner, type Baseline } from './baseline.j
 import { systemClock, type Clock } from './clock.js';
 import { OnDelay } from './debounce.js';
 import { watcherEvent, type EventOrigin } from './events.js';
-import { forecastBalance, type BalanceForecast } from './forecast.js';
+import { forecastBalance, unavailable, type BalanceForecast } from './forecast.js';
 import { assessHealth, type TachState } from './health.js';
 import { FileHistoryStore, History, HistoryAggregator, type HistoryStore } from './history.js';
 import { worseZone, zoneWithHysteresis, type Zone } from './limits.js';
@@ -275,7 +275,7 @@ export class Watcher {
     }
 
     this.forecastValue = this.coeffsProblem
-      ? { ...forecastBalance(s.asset, null, this.baselineValue, window, health), why: this.coeffsProblem }
+      ? unavailable(this.coeffsProblem)
       : this.coeffs
         ? forecastBalance(s.asset, this.coeffs, this.baselineValue, window, health)
         : null;

@@ -1,7 +1,7 @@
 /**
  * Builds DSP windows (WindowResult) the way the DSP would deliver them from the invented demo fan
  * (Kessrow Board Mill ID-3A, config/example.yaml) in a given mechanical state. The 1x vectors follow the
- * rules of the trade for each state (common practice, shared/field-notes.md section 2); overall, 1x
+ * rules of the trade for each state (common practice); overall, 1x
  * share and raw-signal statistics are derived from the vectors so the window is self-consistent.
  */
 import { readFileSync } from 'node:fs';
