@@ -1,6 +1,7 @@
 import { z } from 'zod';
 import { acquisitionSchema } from './acquisition.js';
 import { balanceSchema } from './balance.js';
+import { watcherSchema } from './watcher.js';
 
 /**
  * The one configuration schema. Every key a user can write lives here, with its meaning.
@@ -82,6 +83,8 @@ export const configSchema = z
     acquisition: acquisitionSchema.optional().describe('Where the samples come from (recording, serial board, simulator).'),
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
     balance: balanceSchema,
+
+    watcher: watcherSchema,
   })
   .strict()
   .superRefine((cfg, ctx) => {
