@@ -1,4 +1,6 @@
 import { z } from 'zod';
+import { advisorySchema } from './advisory.js';
+import { mqttSchema } from './mqtt.js';
 
 /**
  * The one configuration schema. Every key a user can write lives here, with its meaning.
@@ -78,6 +80,8 @@ export const configSchema = z
     sensors: z.array(sensorSchema).min(1),
     dsp: dspSchema,
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
+    mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
+    advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
   })
   .strict()
   .superRefine((cfg, ctx) => {
