@@ -57,7 +57,10 @@ export function describeConnectError(err: unknown): { kind: string; reason: stri
   const code = e.code;
   if (code === 'PUBLISH_TIMEOUT') return { kind: 'publish-timeout', reason: e.message };
   if (code === 4 || code === 134) return { kind: 'bad-credentials', reason: 'the broker refused the user name or password; check mqtt.username and mqtt.password' };
-  if (code === 5 || code === 135) return { kind: 'not-authorised', reason: "the broker refused this client (not authorised); check the broker's users, certificates and ACL" };
+  if (code === 5 || code === 135) {
+    // mosquitto answers a wrong password with "not authorised" too.
+    return { kind: 'not-authorised', reason: "the broker refused the login (not authorised): wrong user name or password, or this client is not allowed; check mqtt.username, mqtt.password and the broker's users" };
+  }
   if (code === 2 || code === 133) return { kind: 'client-id', reason: 'the broker rejected the client id; set mqtt.client_id' };
   if (typeof code === 'number') return { kind: `refused-${code}`, reason: `the broker refused the connection (code ${code}: ${e.message})` };
   if (code === 'ECONNREFUSED') return { kind: code, reason: 'nothing accepts connections there (connection refused); is the broker running and the port right?' };

@@ -1,11 +1,12 @@
 /**
  * A child process holding a real plant link (outbox on disk + MQTT publisher), for tests that kill
  * it with SIGKILL. Run: node --import ./test/support/ts-hooks.mjs test/support/link-child.ts '<json>'
- * JSON: { url, prefix, asset, stateDir, mode, count?, idPrefix? }
+ * JSON: { url, prefix, asset, stateDir, mode, count?, idPrefix?, waitForGo? }
  *   mode "add":   queue `count` events, print {"durable": id} as each is on disk, then wait forever
  *   mode "loop":  queue events without end, printing {"durable": id} as each is on disk
  *   mode "drain": queue nothing; print {"drained": true} once the outbox is empty, then exit 0
- * Prints {"connected": true} when the broker accepts the connection.
+ * Prints {"connected": true} when the broker accepts the connection. With waitForGo, "add" starts only
+ * after a line arrives on stdin.
  */
 import { openPlantLink } from '../../agent/mqtt/plant-link.js';
 import { mqttSchema } from '../../agent/config/mqtt.js';
@@ -19,6 +20,7 @@ interface ChildArgs {
   mode: 'add' | 'loop' | 'drain';
   count?: number;
   idPrefix?: string;
+  waitForGo?: boolean;
 }
 
 const args = JSON.parse(process.argv[2] ?? '{}') as ChildArgs;
@@ -48,6 +50,9 @@ async function addOne(): Promise<void> {
   else say({ not_durable: id, outcome });
 }
 
+if (args.waitForGo) {
+  await new Promise<void>((resolve) => process.stdin.once('data', () => resolve()));
+}
 if (args.mode === 'add') {
   for (let i = 0; i < (args.count ?? 10); i++) await addOne();
   say({ all_durable: true });

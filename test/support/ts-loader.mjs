@@ -1,9 +1,13 @@
 // Module hooks: resolve "./x.js" imported from a .ts file to "./x.ts" when only the .ts exists,
 // and strip types from .ts files with the TypeScript compiler already in devDependencies.
-import { existsSync } from 'node:fs';
-import { readFile } from 'node:fs/promises';
+// Output is cached under node_modules/.cache (keyed by path, size and mtime), so a child process
+// restarted many times loads the compiler only once.
+import { createHash } from 'node:crypto';
+import { existsSync, mkdirSync, readFileSync, statSync, writeFileSync, renameSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import ts from 'typescript';
+
+const cacheDir = fileURLToPath(new URL('../../node_modules/.cache/tw-ts-loader/', import.meta.url));
+let ts = null;
 
 export async function resolve(specifier, context, next) {
   if (specifier.startsWith('.') && specifier.endsWith('.js') && context.parentURL?.endsWith('.ts')) {
@@ -15,13 +19,20 @@ export async function resolve(specifier, context, next) {
 }
 
 export async function load(url, context, next) {
-  if (url.startsWith('file:') && url.endsWith('.ts')) {
-    const file = fileURLToPath(url);
-    const out = ts.transpileModule(await readFile(file, 'utf8'), {
-      fileName: file,
-      compilerOptions: { module: ts.ModuleKind.ESNext, target: ts.ScriptTarget.ES2022, inlineSourceMap: true },
-    });
-    return { format: 'module', source: out.outputText, shortCircuit: true };
-  }
-  return next(url, context);
+  if (!url.startsWith('file:') || !url.endsWith('.ts')) return next(url, context);
+  const file = fileURLToPath(url);
+  const st = statSync(file);
+  const key = createHash('sha1').update(`${file}\0${st.size}\0${st.mtimeMs}`).digest('hex');
+  const cached = `${cacheDir}${key}.mjs`;
+  if (existsSync(cached)) return { format: 'module', source: readFileSync(cached, 'utf8'), shortCircuit: true };
+  ts ??= (await import('typescript')).default;
+  const out = ts.transpileModule(readFileSync(file, 'utf8'), {
+    fileName: file,
+    compilerOptions: { module: ts.ModuleKind.ESNext, target: ts.ScriptTarget.ES2022, inlineSourceMap: true },
+  });
+  mkdirSync(cacheDir, { recursive: true });
+  const tmp = `${cached}.${process.pid}.tmp`;
+  writeFileSync(tmp, out.outputText);
+  renameSync(tmp, cached);
+  return { format: 'module', source: out.outputText, shortCircuit: true };
 }
