@@ -80,7 +80,7 @@ export class CommandRouter {
     }
     if (!reply.ok) {
       this.counts.refused++;
-      this.burst.occurred('command-refused', `command refused (${reply.error.code}): ${reply.error.message}`, { cmd: reply.cmd, id: reply.id });
+      this.burst.occurred('command-refused', `command refused (${reply.error.code}): ${reply.error.message}; repeats are counted in the heartbeat, not logged`, { cmd: reply.cmd, id: reply.id }, reply.error.code);
     }
     return reply;
   }
