@@ -1,10 +1,12 @@
-import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
 import { mqttSchema } from '../agent/config/mqtt.js';
 import type { AgentEvent } from '../agent/events.js';
 import { openPlantLink, type PlantLink } from '../agent/mqtt/plant-link.js';
+import { nodeOutboxFs, type OutboxFs } from '../agent/outbox/fs.js';
+import { recordName } from '../agent/outbox/outbox.js';
 import { SCHEMA_IDS } from '../agent/mqtt/payloads.js';
 import { CaptureLog } from './support/capture-log.js';
 import { Mosquitto, plainBroker } from './support/mosquitto.js';
@@ -194,5 +196,41 @@ describe('MQTT publishing against a real mosquitto', () => {
     expect(firstArrivals(sub, `${base}/event/`)).toEqual(['ev-0000', 'ev-0001', 'ev-0002']);
     expect(sub.messages.length).toBeGreaterThanOrEqual(3);
     expect(log.matching(/not acknowledged within 1 s/, 'warn').length).toBeGreaterThanOrEqual(1);
+  });
+
+  it('full disk under state_dir: keeps publishing from memory, reports it once as an event, recovers by itself (injected ENOSPC)', async () => {
+    const broker = await plainBroker();
+    cleanups.push(() => broker.dispose());
+    const prefix = uniquePrefix();
+    const base = `${prefix}/${ASSET}`;
+    const sub = await subscriber(broker.url, [`${base}/event/#`]);
+    const dir = stateDir();
+    // A damaged record left by an earlier run is quarantined and reported, not fatal.
+    mkdirSync(join(dir, 'outbox'), { recursive: true });
+    writeFileSync(join(dir, 'outbox', recordName(1)), 'twob1 00000000 5\nhello\n');
+    let full = false;
+    const fs: OutboxFs = {
+      ...nodeOutboxFs,
+      writeNewSynced: async (f, d) => {
+        if (full) throw Object.assign(new Error('ENOSPC: no space left on device, write'), { code: 'ENOSPC' });
+        await nodeOutboxFs.writeNewSynced(f, d);
+      },
+    };
+    const log = new CaptureLog();
+    const l = await link({ mqtt: fastMqtt(broker.url, prefix), asset: ASSET, stateDir: dir, log, fs });
+    await sub.waitFor((m) => m.some((x) => x.topic === `${base}/event/outbox_record_quarantined`), 10_000, 'the quarantine event');
+    full = true;
+    for (let i = 0; i < 5; i++) expect(await l.queueEvent(testEvent(i, 'alarm'))).toBe('memory');
+    await sub.waitFor((m) => m.filter((x) => x.topic === `${base}/event/test_step`).length >= 5, 10_000, 'events published from memory');
+    await new Promise((r) => setTimeout(r, 2500)); // the outbox retries (1 s, 2 s ...) and fails again
+    full = false;
+    await sub.waitFor((m) => m.some((x) => x.topic === `${base}/event/outbox_store_recovered`), 10_000, 'the recovery event');
+    const types = sub.messages.map((x) => (x.json as { type: string }).type);
+    expect(types.filter((t) => t === 'outbox_store_failed')).toHaveLength(1);
+    expect(log.matching(/cannot save events under the state directory \(ENOSPC/, 'warn')).toHaveLength(1);
+    for (const m of sub.messages.filter((x) => (x.json as { type: string }).type.startsWith('outbox_'))) assertMatches('event-outbox.v1', m.json);
+    expect(sub.messages.find((x) => x.topic.endsWith('/outbox_record_quarantined'))!.json).toMatchObject({ problem: expect.stringMatching(/checksum|cut short|trailing/) });
+    expect(firstArrivals(sub, `${base}/event/test_step`)).toEqual(['ev-0000', 'ev-0001', 'ev-0002', 'ev-0003', 'ev-0004']);
+    expect(l.outbox.health()).toMatchObject({ store_ok: true, quarantined_total: 1 });
   });
 });
