@@ -124,6 +124,41 @@ describe('TLS and credentials against a real mosquitto', () => {
   });
 });
 
+describe('recommended broker ACL (README, "Commands")', () => {
+  it('lets the control room command the agent and keeps other users off the command topic', async () => {
+    const base = `kessrow/boiler3/${ASSET}`;
+    const acl = [`user id3a-agent`, `topic write ${base}/#`, `topic read ${base}/cmd`, `user control-room`, `topic write ${base}/cmd`, `topic read ${base}/#`, `user viewer`, `topic read ${base}/#`].join('\n') + '\n';
+    const broker = await Mosquitto.start({ users: { 'id3a-agent': PASSWORD, 'control-room': 'cr-pass', viewer: 'v-pass' }, acl });
+    cleanups.push(() => broker.dispose());
+    const dir = tmp();
+    let snapshots = 0;
+    const l = await link({
+      mqtt: mqttSchema.parse({ url: broker.url, topic_prefix: 'kessrow/boiler3', username: 'id3a-agent', password: { file: secretFile(dir, 'pw', PASSWORD) }, commands: { token: { file: secretFile(dir, 'tok', 'tok-123') } } }),
+      asset: ASSET,
+      stateDir: dir,
+      log: new CaptureLog(),
+      handlers: { takeSnapshot: () => ({ snapshot: ++snapshots }) },
+    });
+    const room = await TestSubscriber.open(broker.url, [`${base}/cmd/reply`, `${base}/event/#`], { extra: { username: 'control-room', password: 'cr-pass' } });
+    cleanups.push(() => room.close());
+    const viewer = await TestSubscriber.open(broker.url, [`${base}/#`], { extra: { username: 'viewer', password: 'v-pass' } });
+    cleanups.push(() => viewer.close());
+    await until(() => l.publisher.isConnected(), 5000, 'agent connection');
+    await new Promise((r) => setTimeout(r, 200));
+    // The viewer holds the token but the broker drops its command: nothing runs, no reply.
+    await viewer.publish(`${base}/cmd`, JSON.stringify({ id: 'v-1', token: 'tok-123', cmd: 'snapshot.take' }));
+    await room.publish(`${base}/cmd`, JSON.stringify({ id: 'cr-1', token: 'tok-123', cmd: 'snapshot.take' }));
+    await room.waitFor((m) => m.some((x) => x.topic.endsWith('/cmd/reply')), 5000, 'the reply to the control room');
+    await new Promise((r) => setTimeout(r, 300));
+    const replies = room.messages.filter((x) => x.topic.endsWith('/cmd/reply')).map((x) => x.json);
+    expect(replies).toEqual([expect.objectContaining({ id: 'cr-1', ok: true, result: { snapshot: 1 } })]);
+    expect(snapshots).toBe(1);
+    // The agent may still publish its events, and readers see them.
+    await l.queueEvent(event(3));
+    await viewer.waitFor((m) => m.some((x) => x.topic === `${base}/event/test_step`), 5000, 'the event at the viewer');
+  });
+});
+
 describe('secrets', () => {
   const base = () => ({ url: 'mqtts://broker.kessrow.invalid:8883', topic_prefix: 'kessrow/boiler3', username: 'id3a-agent' });
 
