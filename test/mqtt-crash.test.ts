@@ -1,9 +1,9 @@
 import { spawn, type ChildProcess } from 'node:child_process';
-import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { createInterface } from 'node:readline';
-import { afterEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
+import { testResources, uniquePrefix } from './support/harness.js';
 import { freePort, Mosquitto } from './support/mosquitto.js';
 import { assertMatches } from './support/payload-schemas.js';
 import { TestSubscriber } from './support/subscriber.js';
@@ -18,10 +18,7 @@ import { HoldingProxy } from './support/tcp-proxy.js';
 
 const ASSET = 'kessrow-id3a'; // invented demo fan
 const ROOT = join(import.meta.dirname, '..');
-const cleanups: Array<() => Promise<unknown> | unknown> = [];
-afterEach(async () => {
-  for (const c of cleanups.splice(0).reverse()) await c();
-});
+const res = testResources('tw-crash-');
 
 interface Child {
   readonly proc: ChildProcess;
@@ -43,7 +40,7 @@ function startChild(args: Record<string, unknown>): Child {
     }
   });
   const exited = new Promise<number | null>((r) => proc.once('exit', (code) => r(code)));
-  cleanups.push(() => {
+  res.defer(() => {
     if (proc.exitCode === null && proc.signalCode === null) proc.kill('SIGKILL');
     return exited;
   });
@@ -68,22 +65,24 @@ async function killHard(c: Child): Promise<void> {
   await c.exited;
 }
 
-function tmp(): string {
-  const d = mkdtempSync(join(tmpdir(), 'tw-crash-'));
-  cleanups.push(() => rmSync(d, { recursive: true, force: true }));
-  return d;
+/** A broker, a plant-side subscriber to the event topics, and an empty state directory. */
+async function scene(filters: (base: string) => string[] = (b) => [`${b}/event/#`]) {
+  const broker = await Mosquitto.start();
+  res.defer(() => broker.dispose());
+  const prefix = uniquePrefix();
+  const base = `${prefix}/${ASSET}`;
+  const sub = await TestSubscriber.open(broker.url, filters(base));
+  res.defer(() => sub.close());
+  return { broker, prefix, base, sub, stateDir: res.tmpDir() };
 }
 const recs = (stateDir: string) => readdirSync(join(stateDir, 'outbox')).filter((n) => n.endsWith('.rec'));
-const prefixFor = () => `test/${Math.random().toString(36).slice(2, 10)}`;
+
+// Child processes start slowly on a busy 2-core machine (Node + module hooks): generous timeouts.
+const SLOW = 180_000;
 
 describe('agent killed with SIGKILL (child process, real files, real mosquitto)', () => {
   it('events saved while the broker was unreachable survive kill -9 and go out once, in order, after restart', async () => {
-    const broker = await Mosquitto.start();
-    cleanups.push(() => broker.dispose());
-    const prefix = prefixFor();
-    const sub = await TestSubscriber.open(broker.url, [`${prefix}/${ASSET}/event/#`]);
-    cleanups.push(() => sub.close());
-    const stateDir = tmp();
+    const { broker, prefix, sub, stateDir } = await scene();
     const deadUrl = `mqtt://127.0.0.1:${await freePort()}`;
 
     const a = startChild({ url: deadUrl, prefix, asset: ASSET, stateDir, mode: 'add', count: 12 });
@@ -99,18 +98,12 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
     expect(ids).toEqual(Array.from({ length: 12 }, (_, i) => `ev-${String(i).padStart(5, '0')}`));
     for (const m of sub.messages) assertMatches('event.v1', m.json);
     expect(recs(stateDir)).toEqual([]);
-  });
+  }, SLOW);
 
   it('kill -9 between publish and PUBACK: the events are sent again after restart with the same ids and bytes; the last-will says "connection lost"', async () => {
-    const broker = await Mosquitto.start();
-    cleanups.push(() => broker.dispose());
+    const { broker, prefix, base, sub, stateDir } = await scene((b) => [`${b}/event/#`, `${b}/status`]);
     const proxy = await HoldingProxy.start(broker.port);
-    cleanups.push(() => proxy.close());
-    const prefix = prefixFor();
-    const base = `${prefix}/${ASSET}`;
-    const sub = await TestSubscriber.open(broker.url, [`${base}/event/#`, `${base}/status`]);
-    cleanups.push(() => sub.close());
-    const stateDir = tmp();
+    res.defer(() => proxy.close());
 
     const a = startChild({ url: proxy.url, prefix, asset: ASSET, stateDir, mode: 'add', count: 10, waitForGo: true });
     await a.waitFor((l) => l.connected === true, 30_000, 'connection');
@@ -140,15 +133,10 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
     // The four delivered before the kill come again unchanged: same bytes, so the same id.
     expect(afterRestart.slice(0, 4)).toEqual(firstCopies);
     expect(recs(stateDir)).toEqual([]);
-  });
+  }, SLOW);
 
   it('random kill -9 while saving and publishing: every event reported saved is delivered at least once', async () => {
-    const broker = await Mosquitto.start();
-    cleanups.push(() => broker.dispose());
-    const prefix = prefixFor();
-    const sub = await TestSubscriber.open(broker.url, [`${prefix}/${ASSET}/event/#`]);
-    cleanups.push(() => sub.close());
-    const stateDir = tmp();
+    const { broker, prefix, sub, stateDir } = await scene();
     const durable = new Set<string>();
     const ROUNDS = 5;
     for (let round = 0; round < ROUNDS; round++) {
@@ -176,5 +164,5 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
     for (const q of quarantined) expect(q).toMatch(/\.rec\.tmp\./);
     expect(recs(stateDir)).toEqual([]);
     console.info(`random kill -9: ${ROUNDS} rounds, ${durable.size} events reported saved, ${sub.messages.length} messages received (duplicates allowed), ${quarantined.length} torn temp file(s) quarantined`);
-  });
+  }, SLOW);
 });

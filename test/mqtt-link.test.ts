@@ -1,7 +1,6 @@
-import { mkdirSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { mkdirSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { afterEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { mqttSchema } from '../agent/config/mqtt.js';
 import type { AgentEvent } from '../agent/events.js';
 import { openPlantLink, type PlantLink } from '../agent/mqtt/plant-link.js';
@@ -9,44 +8,27 @@ import { nodeOutboxFs, type OutboxFs } from '../agent/outbox/fs.js';
 import { recordName } from '../agent/outbox/outbox.js';
 import { SCHEMA_IDS } from '../agent/mqtt/payloads.js';
 import { CaptureLog } from './support/capture-log.js';
+import { testResources, uniquePrefix, until } from './support/harness.js';
 import { Mosquitto, plainBroker } from './support/mosquitto.js';
 import { assertMatches } from './support/payload-schemas.js';
 import { TestSubscriber } from './support/subscriber.js';
 import { HoldingProxy } from './support/tcp-proxy.js';
 
 const ASSET = 'kessrow-id3a'; // invented demo fan (config/example.yaml)
-const cleanups: Array<() => Promise<unknown> | unknown> = [];
-afterEach(async () => {
-  for (const c of cleanups.splice(0).reverse()) await c();
-});
-
-function stateDir(): string {
-  const d = mkdtempSync(join(tmpdir(), 'tw-state-'));
-  cleanups.push(() => rmSync(d, { recursive: true, force: true }));
-  return d;
-}
-function uniquePrefix(): string {
-  return `test/${Math.random().toString(36).slice(2, 10)}`;
-}
+const res = testResources('tw-state-');
+const stateDir = res.tmpDir;
 function fastMqtt(url: string, prefix: string, extra: Record<string, unknown> = {}) {
   return mqttSchema.parse({ url, topic_prefix: prefix, reconnect_min_s: 0.1, reconnect_max_s: 0.5, connect_timeout_s: 2, ...extra });
 }
 async function link(o: Parameters<typeof openPlantLink>[0]): Promise<PlantLink> {
   const l = await openPlantLink(o);
-  cleanups.push(() => l.close());
+  res.defer(() => l.close());
   return l;
 }
 async function subscriber(url: string, filters: string[], sessionId?: string): Promise<TestSubscriber> {
   const s = await TestSubscriber.open(url, filters, { sessionId });
-  cleanups.push(() => s.close());
+  res.defer(() => s.close());
   return s;
-}
-async function until(pred: () => boolean, ms: number, what: string): Promise<void> {
-  const end = Date.now() + ms;
-  while (!pred()) {
-    if (Date.now() > end) throw new Error(`timed out after ${ms} ms waiting for ${what}`);
-    await new Promise((r) => setTimeout(r, 20));
-  }
 }
 function testEvent(i: number, severity: AgentEvent['severity'] = 'warning'): AgentEvent {
   return { id: `ev-${String(i).padStart(4, '0')}`, ts: new Date().toISOString(), asset: ASSET, type: 'test_step', severity, step: i };
@@ -67,7 +49,7 @@ function firstArrivals(sub: TestSubscriber, topicPrefix: string): string[] {
 describe('MQTT publishing against a real mosquitto', () => {
   it('publishes status, events in order, heartbeat and live messages that match the committed schemas', async () => {
     const broker = await plainBroker();
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const prefix = uniquePrefix();
     const base = `${prefix}/${ASSET}`;
     const sub = await subscriber(broker.url, [`${base}/#`]);
@@ -118,7 +100,7 @@ describe('MQTT publishing against a real mosquitto', () => {
 
   it('loses nothing and keeps order when the broker restarts mid-stream', async () => {
     const broker = await Mosquitto.start();
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const prefix = uniquePrefix();
     const base = `${prefix}/${ASSET}`;
     const sub = await subscriber(broker.url, [`${base}/event/#`], `tw-plant-${Math.random().toString(36).slice(2, 8)}`);
@@ -149,7 +131,7 @@ describe('MQTT publishing against a real mosquitto', () => {
     const base = `${prefix}/${ASSET}`;
     // The plant side subscribes with a persistent session first, then the broker goes away.
     const broker = await Mosquitto.start();
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const sub = await subscriber(broker.url, [`${base}/event/#`], `tw-plant-${Math.random().toString(36).slice(2, 8)}`);
     await broker.stop();
 
@@ -176,10 +158,10 @@ describe('MQTT publishing against a real mosquitto', () => {
 
   it('rebuilds the connection when a PUBACK does not come back in time, then delivers (same ids)', async () => {
     const broker = await plainBroker();
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const port = Number(new URL(broker.url).port);
     const proxy = await HoldingProxy.start(port);
-    cleanups.push(() => proxy.close());
+    res.defer(() => proxy.close());
     const prefix = uniquePrefix();
     const base = `${prefix}/${ASSET}`;
     const sub = await subscriber(broker.url, [`${base}/event/#`]);
@@ -200,7 +182,7 @@ describe('MQTT publishing against a real mosquitto', () => {
 
   it('full disk under state_dir: keeps publishing from memory, reports it once as an event, recovers by itself (injected ENOSPC)', async () => {
     const broker = await plainBroker();
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const prefix = uniquePrefix();
     const base = `${prefix}/${ASSET}`;
     const sub = await subscriber(broker.url, [`${base}/event/#`]);

@@ -1,27 +1,20 @@
-import { chmodSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { chmodSync, readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { inspect } from 'node:util';
 import { connect as mqttConnect } from 'mqtt';
-import { afterEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { mqttSchema } from '../agent/config/mqtt.js';
 import { UserError } from '../agent/errors.js';
 import { openPlantLink, type PlantLink, type PlantLinkOptions } from '../agent/mqtt/plant-link.js';
 import { resolveMqttSettings } from '../agent/mqtt/settings.js';
 import { CaptureLog } from './support/capture-log.js';
+import { testResources, uniquePrefix, until } from './support/harness.js';
 import { Mosquitto } from './support/mosquitto.js';
 import { TestSubscriber } from './support/subscriber.js';
 
 const ASSET = 'kessrow-id3a'; // invented demo fan
-const cleanups: Array<() => Promise<unknown> | unknown> = [];
-afterEach(async () => {
-  for (const c of cleanups.splice(0).reverse()) await c();
-});
-function tmp(): string {
-  const d = mkdtempSync(join(tmpdir(), 'tw-sec-'));
-  cleanups.push(() => rmSync(d, { recursive: true, force: true }));
-  return d;
-}
+const res = testResources('tw-sec-');
+const tmp = res.tmpDir;
 function secretFile(dir: string, name: string, text: string, mode = 0o600): string {
   const f = join(dir, name);
   writeFileSync(f, text + '\n');
@@ -30,15 +23,8 @@ function secretFile(dir: string, name: string, text: string, mode = 0o600): stri
 }
 async function link(o: PlantLinkOptions): Promise<PlantLink> {
   const l = await openPlantLink(o);
-  cleanups.push(() => l.close());
+  res.defer(() => l.close());
   return l;
-}
-async function until(pred: () => boolean, ms: number, what: string): Promise<void> {
-  const end = Date.now() + ms;
-  while (!pred()) {
-    if (Date.now() > end) throw new Error(`timed out after ${ms} ms waiting for ${what}`);
-    await new Promise((r) => setTimeout(r, 20));
-  }
 }
 const event = (i: number) => ({ id: `sec-${i}`, ts: new Date().toISOString(), asset: ASSET, type: 'test_step', severity: 'alarm' as const });
 const PASSWORD = 'k3ssrow-Pa55-do-not-log';
@@ -46,14 +32,14 @@ const PASSWORD = 'k3ssrow-Pa55-do-not-log';
 describe('TLS and credentials against a real mosquitto', () => {
   it('connects over mqtts with the test CA, a client certificate and a password, and delivers events', async () => {
     const broker = await Mosquitto.start({ tls: { requireClientCert: true }, users: { 'id3a-agent': PASSWORD, plant: 'plant-pass' } });
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const certs = broker.certs!;
     const dir = tmp();
-    const prefix = `test/${Math.random().toString(36).slice(2, 10)}`;
+    const prefix = uniquePrefix();
     const sub = await TestSubscriber.open(broker.tlsUrl, [`${prefix}/${ASSET}/event/#`], {
       extra: { ca: [readFileSync(certs.caCert)], cert: readFileSync(certs.clientCert), key: readFileSync(certs.clientKey), username: 'plant', password: 'plant-pass' },
     });
-    cleanups.push(() => sub.close());
+    res.defer(() => sub.close());
     const log = new CaptureLog();
     const mqtt = mqttSchema.parse({
       url: broker.tlsUrl,
@@ -73,7 +59,7 @@ describe('TLS and credentials against a real mosquitto', () => {
 
   it('refuses a broker certificate from another CA, says so once, and keeps retrying', async () => {
     const broker = await Mosquitto.start({ tls: { requireClientCert: false } });
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const log = new CaptureLog();
     const mqtt = mqttSchema.parse({ url: broker.tlsUrl, topic_prefix: 'test/tls', tls: { ca_file: broker.certs!.otherCaCert }, reconnect_min_s: 0.05, reconnect_max_s: 0.2 });
     const l = await link({ mqtt, asset: ASSET, stateDir: tmp(), log });
@@ -86,7 +72,7 @@ describe('TLS and credentials against a real mosquitto', () => {
 
   it('bad credentials: keeps retrying with growing backoff, says so once, and recovers by itself when the broker accepts the password', async () => {
     const broker = await Mosquitto.start({ users: { 'id3a-agent': 'the-old-password' } });
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const dir = tmp();
     const log = new CaptureLog();
     const attempts: number[] = [];
@@ -129,7 +115,7 @@ describe('recommended broker ACL (README, "Commands")', () => {
     const base = `kessrow/boiler3/${ASSET}`;
     const acl = [`user id3a-agent`, `topic write ${base}/#`, `topic read ${base}/cmd`, `user control-room`, `topic write ${base}/cmd`, `topic read ${base}/#`, `user viewer`, `topic read ${base}/#`].join('\n') + '\n';
     const broker = await Mosquitto.start({ users: { 'id3a-agent': PASSWORD, 'control-room': 'cr-pass', viewer: 'v-pass' }, acl });
-    cleanups.push(() => broker.dispose());
+    res.defer(() => broker.dispose());
     const dir = tmp();
     let snapshots = 0;
     const l = await link({
@@ -140,9 +126,9 @@ describe('recommended broker ACL (README, "Commands")', () => {
       handlers: { takeSnapshot: () => ({ snapshot: ++snapshots }) },
     });
     const room = await TestSubscriber.open(broker.url, [`${base}/cmd/reply`, `${base}/event/#`], { extra: { username: 'control-room', password: 'cr-pass' } });
-    cleanups.push(() => room.close());
+    res.defer(() => room.close());
     const viewer = await TestSubscriber.open(broker.url, [`${base}/#`], { extra: { username: 'viewer', password: 'v-pass' } });
-    cleanups.push(() => viewer.close());
+    res.defer(() => viewer.close());
     await until(() => l.publisher.isConnected(), 5000, 'agent connection');
     await new Promise((r) => setTimeout(r, 200));
     // The viewer holds the token but the broker drops its command: nothing runs, no reply.
