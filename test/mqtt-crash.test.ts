@@ -86,12 +86,12 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
     const deadUrl = `mqtt://127.0.0.1:${await freePort()}`;
 
     const a = startChild({ url: deadUrl, prefix, asset: ASSET, stateDir, mode: 'add', count: 12 });
-    await a.waitFor((l) => l.all_durable === true, 30_000, 'all events durable');
+    await a.waitFor((l) => l.all_durable === true, 60_000, 'all events durable');
     await killHard(a);
     expect(recs(stateDir)).toHaveLength(12);
 
     const b = startChild({ url: broker.url, prefix, asset: ASSET, stateDir, mode: 'drain' });
-    await b.waitFor((l) => 'drained' in l, 30_000, 'drain');
+    await b.waitFor((l) => 'drained' in l, 60_000, 'drain');
     expect(await b.exited).toBe(0);
     await sub.waitFor((m) => m.length >= 12, 5000, 'twelve events');
     const ids = sub.messages.map((m) => (m.json as { id: string }).id);
@@ -106,10 +106,10 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
     res.defer(() => proxy.close());
 
     const a = startChild({ url: proxy.url, prefix, asset: ASSET, stateDir, mode: 'add', count: 10, waitForGo: true });
-    await a.waitFor((l) => l.connected === true, 30_000, 'connection');
+    await a.waitFor((l) => l.connected === true, 60_000, 'connection');
     proxy.holdReplies = true; // from now on no PUBACK reaches the agent
     a.proc.stdin!.write('go\n');
-    await a.waitFor((l) => l.all_durable === true, 30_000, 'all events durable');
+    await a.waitFor((l) => l.all_durable === true, 60_000, 'all events durable');
     // The child keeps at most 4 unacknowledged events in flight (inflight_window: 4): those 4 reach
     // the broker, the other 6 wait on disk.
     await sub.waitFor((m) => m.filter((x) => x.topic.includes('/event/')).length >= 4, 10_000, 'the first four events at the broker');
@@ -124,7 +124,7 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
 
     const firstCopies = sub.messages.filter((x) => x.topic.includes('/event/')).map((x) => x.payload.toString());
     const b = startChild({ url: broker.url, prefix, asset: ASSET, stateDir, mode: 'drain' });
-    await b.waitFor((l) => 'drained' in l, 30_000, 'drain');
+    await b.waitFor((l) => 'drained' in l, 60_000, 'drain');
     expect(await b.exited).toBe(0);
     await sub.waitFor((m) => m.filter((x) => x.topic.includes('/event/')).length >= 14, 5000, 'all ten events after the restart');
     const all = sub.messages.filter((x) => x.topic.includes('/event/'));
@@ -141,7 +141,7 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
     const ROUNDS = 5;
     for (let round = 0; round < ROUNDS; round++) {
       const c = startChild({ url: broker.url, prefix, asset: ASSET, stateDir, mode: 'loop', idPrefix: `r${round}` });
-      await c.waitFor((l) => typeof l.durable === 'string', 30_000, 'a first saved event');
+      await c.waitFor((l) => typeof l.durable === 'string', 60_000, 'a first saved event');
       await new Promise((r) => setTimeout(r, 50 + Math.random() * 400));
       await killHard(c);
       for (const l of c.lines) if (typeof l.durable === 'string') durable.add(l.durable);

@@ -6,7 +6,8 @@ import type { AgentEvent } from '../agent/events.js';
 import { openPlantLink, type PlantLink } from '../agent/mqtt/plant-link.js';
 import { nodeOutboxFs, type OutboxFs } from '../agent/outbox/fs.js';
 import { recordName } from '../agent/outbox/outbox.js';
-import { SCHEMA_IDS } from '../agent/mqtt/payloads.js';
+import type { WindowResult } from '../agent/dsp/types.js';
+import { livePayloadFromWindow } from '../agent/mqtt/live.js';
 import { CaptureLog } from './support/capture-log.js';
 import { testResources, uniquePrefix, until } from './support/harness.js';
 import { Mosquitto, plainBroker } from './support/mosquitto.js';
@@ -30,6 +31,28 @@ async function subscriber(url: string, filters: string[], sessionId?: string): P
   res.defer(() => s.close());
   return s;
 }
+/** A DSP window as the DSP stage would hand it over (invented figures for the demo fan). */
+const stats = { dc_v: 10.1, ac_rms_v: 0.05, min_v: 9.9, max_v: 10.3, clipped_samples: 0, samples: 51200 };
+const window: WindowResult = {
+  start_index: 0,
+  end_index: 51200,
+  sample_rate_hz: 25600,
+  speed_rpm: 1484.6,
+  speed_min_rpm: 1484.1,
+  speed_max_rpm: 1485.0,
+  revolutions: 49,
+  revolutions_rejected: 0,
+  band_hz: { low: 10, high: 1000 },
+  spectrum_segments: 3,
+  spectrum_resolution_hz: 1,
+  gap_samples: 0,
+  tach: { edges: 50, missing_pulses: 0, double_triggers: 0, min_v: 0.1, max_v: 4.9 },
+  channels: [
+    { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', mounting_angle_deg: 0, overall_rms_mm_s: 3.1, orders: { '1': { order: 1, freq_hz: 24.74, amp_pk_mm_s: 3.9, amp_rms_mm_s: 2.76, phase_deg: 212.5 } }, one_x_share: 0.89, nonsync_peaks: [], stats },
+    { id: 'NDE-V', channel: 3, bearing: 'NDE', direction: 'vertical', mounting_angle_deg: 0, overall_rms_mm_s: null, orders: {}, one_x_share: null, nonsync_peaks: [], stats },
+  ],
+  warnings: [],
+};
 function testEvent(i: number, severity: AgentEvent['severity'] = 'warning'): AgentEvent {
   return { id: `ev-${String(i).padStart(4, '0')}`, ts: new Date().toISOString(), asset: ASSET, type: 'test_step', severity, step: i };
 }
@@ -59,15 +82,9 @@ describe('MQTT publishing against a real mosquitto', () => {
     for (let i = 0; i < 6; i++) void l.queueEvent(testEvent(i, severities[i % 3]));
     await sub.waitFor((m) => m.filter((x) => x.topic === `${base}/event/test_step`).length >= 6, 10_000, 'six events');
     await until(() => l.publisher.isConnected(), 5000, 'connection');
-    const live = {
-      schema: SCHEMA_IDS.live,
-      asset: ASSET,
-      ts: new Date().toISOString(),
-      speed_rpm: 1484.6,
-      channels: [{ id: 'DE-V', bearing: 'DE', direction: 'vertical' as const, overall_rms_mm_s: 3.1, one_x_amp_pk_mm_s: 3.9, one_x_phase_deg: 212.5, zone: 'B' as const, ok: true }],
-    };
-    expect(l.publishLive(() => live)).toBe(true);
-    expect(l.publishLive(() => live)).toBe(false); // within live_interval_s
+    const live = () => livePayloadFromWindow(window, ASSET, new Date().toISOString(), (id) => (id === 'DE-V' ? { zone: 'B', ok: true } : undefined));
+    expect(l.publishLive(live)).toBe(true);
+    expect(l.publishLive(live)).toBe(false); // within live_interval_s
     await sub.waitFor((m) => m.some((x) => x.topic === `${base}/live`) && m.some((x) => x.topic === `${base}/heartbeat`) && m.some((x) => x.topic === `${base}/status`), 10_000, 'live, heartbeat and status');
 
     const events = sub.on(`${base}/event/test_step`);
@@ -79,7 +96,9 @@ describe('MQTT publishing against a real mosquitto', () => {
     const hb = sub.on(`${base}/heartbeat`)[0]!;
     assertMatches('heartbeat.v1', hb.json);
     expect(hb.json).toMatchObject({ agent: { watcher_windows_total: 12 }, mqtt: { connects_total: 1 } });
-    assertMatches('live.v1', sub.on(`${base}/live`)[0]!.json);
+    const liveMsg = sub.on(`${base}/live`)[0]!.json;
+    assertMatches('live.v1', liveMsg);
+    expect(liveMsg).toMatchObject({ speed_rpm: 1484.6, channels: [{ id: 'DE-V', overall_rms_mm_s: 3.1, one_x_amp_pk_mm_s: 3.9, one_x_phase_deg: 212.5, zone: 'B', ok: true }, { id: 'NDE-V', one_x_amp_pk_mm_s: null, zone: null, ok: null }] });
     // The schema check can fail: a wrong severity or a missing id is refused.
     expect(() => assertMatches('event.v1', { ...(events[0]!.json as object), severity: 'fatal' })).toThrow(/severity/);
     expect(() => assertMatches('event.v1', { ...(events[0]!.json as object), id: undefined })).toThrow(/id/);

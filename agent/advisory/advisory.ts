@@ -102,6 +102,7 @@ export class SafeStopAdvisory {
   private lastT = -Infinity;
   private lastInputWall = 0;
   private stalled = false;
+  private stopped = false;
   private without: readonly string[] | null = null;
 
   private written: boolean | null = null;
@@ -215,7 +216,7 @@ export class SafeStopAdvisory {
   }
 
   energised(): boolean {
-    return this.st === 'normal' && !this.stalled;
+    return this.st === 'normal' && !this.stalled && !this.stopped;
   }
 
   health(): Record<string, number | string | boolean | null> {
@@ -240,7 +241,7 @@ export class SafeStopAdvisory {
   async close(): Promise<void> {
     if (this.timer) clearInterval(this.timer);
     this.unwatch?.();
-    this.stalled = true; // energised() is now false
+    this.stopped = true;
     this.applyOutputs();
     await this.settled();
     for (const line of [this.relay, this.lamp, this.button]) await line?.close().catch(() => {});
