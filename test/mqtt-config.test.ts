@@ -9,6 +9,8 @@ import { recordName } from '../agent/outbox/outbox.js';
 import { encodeRecord } from '../agent/outbox/record.js';
 import { renderPayloadSchemas } from '../agent/mqtt/payloads.js';
 import { topicsFor } from '../agent/mqtt/topics.js';
+import { livePayloadFromFrame } from '../agent/mqtt/live.js';
+import { assertMatches } from './support/payload-schemas.js';
 
 const SCHEMA_DIR = join(import.meta.dirname, '..', 'config', 'schemas', 'mqtt');
 const dirs: string[] = [];
@@ -104,5 +106,24 @@ describe('turnwise mqtt outbox', () => {
     out = '';
     expect(await mqttCommand.run(['outbox', '--config', join(d, 'cfg.yaml'), '--json'])).toBe(0);
     expect(JSON.parse(out)).toMatchObject({ pending: [{ id: 'e-3', severity: 'alarm', type: 'zone_change' }], quarantined: [expect.stringMatching(/^0000000000000002\.rec\./)] });
+  });
+});
+
+describe('live message from the per-revolution vectors', () => {
+  it('takes 1x from the frame, bearing and direction from the config, and matches live.v1', () => {
+    const sensors = loadConfig('config/example.yaml').sensors;
+    const x1 = { order: 1, freq_hz: 24.75, amp_pk_mm_s: 4.2, amp_rms_mm_s: 2.97, phase_deg: 118 };
+    const p = livePayloadFromFrame(
+      { sample_index: 25600, speed_rpm: 1485, revolutions_weight: 7.5, age_s: 0.04, channels: [{ id: 'NDE-H', orders: { '1': x1 } }, { id: 'DE-A', orders: {} }] },
+      sensors,
+      null,
+      'kessrow-id3a',
+      '2025-03-01T10:00:00.000Z',
+    );
+    assertMatches('live.v1', p);
+    expect(p.channels).toEqual([
+      { id: 'NDE-H', bearing: 'NDE', direction: 'horizontal', overall_rms_mm_s: null, one_x_amp_pk_mm_s: 4.2, one_x_phase_deg: 118, zone: null, ok: null },
+      { id: 'DE-A', bearing: 'DE', direction: 'axial', overall_rms_mm_s: null, one_x_amp_pk_mm_s: null, one_x_phase_deg: null, zone: null, ok: null },
+    ]);
   });
 });

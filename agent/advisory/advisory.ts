@@ -4,7 +4,7 @@ import type { SensorConfig } from '../config/schema.js';
 import { UserError } from '../errors.js';
 import type { AgentEvent } from '../events.js';
 import type { DigitalInput, DigitalOutput, GpioLines } from '../../drivers/gpio/types.js';
-import type { OutputLog } from '../mqtt/burst.js';
+import type { Logger } from '../log.js';
 import type { AdvisoryInput } from './input.js';
 import type { LatchRecord, LatchStore } from './latch-file.js';
 import { countVotes, type Vote, type VoteSettings } from './vote.js';
@@ -61,7 +61,7 @@ export interface AdvisoryOptions {
   /** Receives every advisory event (route it to the outbox). */
   readonly emit: (event: AgentEvent) => void;
   readonly store: LatchStore;
-  readonly log: OutputLog;
+  readonly log: Logger;
   /** Wall clock, ms: event times and the stall check. */
   readonly now?: () => number;
   readonly newId?: () => string;
@@ -83,7 +83,7 @@ export class SafeStopAdvisory {
   private readonly asset: string;
   private readonly emitEvent: (e: AgentEvent) => void;
   private readonly store: LatchStore;
-  private readonly log: OutputLog;
+  private readonly log: Logger;
   private readonly now: () => number;
   private readonly newId: () => string;
 

@@ -1,9 +1,4 @@
-/** The logging the output stages need; a pino logger fits it. */
-export interface OutputLog {
-  info(fields: object, msg: string): void;
-  warn(fields: object, msg: string): void;
-  error(fields: object, msg: string): void;
-}
+import type { Logger } from '../log.js';
 
 /**
  * Says a recurring problem once per burst instead of once per occurrence: the first occurrence is
@@ -15,13 +10,13 @@ export class BurstReporter {
   private readonly open = new Map<string, { since: number; last: number; count: number; kind: string }>();
 
   constructor(
-    private readonly log: OutputLog,
+    private readonly log: Logger,
     private readonly now: () => number = Date.now,
     private readonly quietMs = 0,
   ) {}
 
   /** Records one occurrence. `kind` distinguishes problems under one key (default: the message). Returns true when it was logged. */
-  occurred(key: string, message: string, fields: object = {}, kind = message): boolean {
+  occurred(key: string, message: string, fields: Record<string, unknown> = {}, kind = message): boolean {
     const t = this.now();
     const b = this.open.get(key);
     if (b && b.kind === kind && (this.quietMs === 0 || t - b.last < this.quietMs)) {
@@ -35,7 +30,7 @@ export class BurstReporter {
   }
 
   /** Ends the burst under `key`, if any, logging `message` with the count and duration. */
-  resolved(key: string, message: string, fields: object = {}): boolean {
+  resolved(key: string, message: string, fields: Record<string, unknown> = {}): boolean {
     const b = this.open.get(key);
     if (!b) return false;
     this.open.delete(key);

@@ -1,6 +1,7 @@
 import { createHash, timingSafeEqual } from 'node:crypto';
 import { isUserError } from '../errors.js';
-import { BurstReporter, type OutputLog } from './burst.js';
+import type { Logger } from '../log.js';
+import { BurstReporter } from './burst.js';
 import { COMMANDS, commandPayload, SCHEMA_IDS, type CommandName, type CommandPayload, type ReplyErrorCode, type ReplyPayload } from './payloads.js';
 import type { Secret } from './secrets.js';
 
@@ -44,7 +45,7 @@ export interface CommandRouterOptions {
   readonly asset: string;
   readonly token: Secret;
   readonly handlers: CommandHandlers;
-  readonly log: OutputLog;
+  readonly log: Logger;
   readonly now?: () => number;
 }
 

@@ -4,7 +4,7 @@ import type { AgentEvent } from '../events.js';
 import type { OutboxFs } from '../outbox/fs.js';
 import { eventFromNotice } from '../outbox/notice-events.js';
 import { Outbox, type AddOutcome, type OutboxNotice } from '../outbox/outbox.js';
-import type { OutputLog } from './burst.js';
+import type { Logger } from '../log.js';
 import { CommandRouter, type CommandHandlers } from './commands.js';
 import type { LivePayload } from './payloads.js';
 import { MqttPublisher, type ConnectFn } from './publisher.js';
@@ -20,7 +20,7 @@ export interface PlantLinkOptions {
   /** machine.id */
   readonly asset: string;
   readonly stateDir: string;
-  readonly log: OutputLog;
+  readonly log: Logger;
   /**
    * Command handlers, looked up when each command arrives, so parts started later (advisory,
    * watcher, balancing) can be added to this object afterwards.

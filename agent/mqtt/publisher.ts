@@ -1,7 +1,8 @@
 import { connect as mqttConnect, type IClientOptions, type MqttClient } from 'mqtt';
 import type { AgentEvent } from '../events.js';
 import type { AddOutcome, Outbox } from '../outbox/outbox.js';
-import { BurstReporter, type OutputLog } from './burst.js';
+import type { Logger } from '../log.js';
+import { BurstReporter } from './burst.js';
 import { SCHEMA_IDS, type HeartbeatPayload, type LinkHealth, type LivePayload, type ReplyPayload, type StatusPayload } from './payloads.js';
 import type { MqttSettings } from './settings.js';
 
@@ -28,7 +29,7 @@ export interface PublisherOptions {
   readonly settings: MqttSettings;
   readonly asset: string;
   readonly outbox: Outbox;
-  readonly log: OutputLog;
+  readonly log: Logger;
   /** Command router; without it the agent does not subscribe to the command topic. */
   readonly commands?: CommandSink;
   /** Health figures of the other stages, put into every heartbeat under `agent`. */
@@ -77,7 +78,7 @@ export class MqttPublisher {
   private readonly s: MqttSettings;
   private readonly asset: string;
   private readonly outbox: Outbox;
-  private readonly log: OutputLog;
+  private readonly log: Logger;
   private readonly commands?: CommandSink;
   private readonly extraHealth: () => Record<string, number | string | boolean | null>;
   private readonly connectFn: ConnectFn;

@@ -1,24 +1,8 @@
-import type { OutputLog } from '../../agent/mqtt/burst.js';
+import { MemoryLogger } from '../../agent/log.js';
 
-export interface LogLine {
-  readonly level: 'info' | 'warn' | 'error';
-  readonly msg: string;
-  readonly fields: object;
-}
-
-/** An OutputLog that keeps every line, for assertions on what the agent said (and how often). */
-export class CaptureLog implements OutputLog {
-  readonly lines: LogLine[] = [];
-  info(fields: object, msg: string): void {
-    this.lines.push({ level: 'info', msg, fields });
-  }
-  warn(fields: object, msg: string): void {
-    this.lines.push({ level: 'warn', msg, fields });
-  }
-  error(fields: object, msg: string): void {
-    this.lines.push({ level: 'error', msg, fields });
-  }
-  matching(re: RegExp, level?: LogLine['level']): LogLine[] {
+/** The project's memory logger with the look-ups these tests need: which lines match, and all text. */
+export class CaptureLog extends MemoryLogger {
+  matching(re: RegExp, level?: 'debug' | 'info' | 'warn' | 'error') {
     return this.lines.filter((l) => re.test(l.msg) && (!level || l.level === level));
   }
   /** Everything logged, as one string (to check that no secret appears). */

@@ -10,7 +10,7 @@
  */
 import { openPlantLink } from '../../agent/mqtt/plant-link.js';
 import { mqttSchema } from '../../agent/config/mqtt.js';
-import type { OutputLog } from '../../agent/mqtt/burst.js';
+import type { Logger } from '../../agent/log.js';
 
 interface ChildArgs {
   url: string;
@@ -25,7 +25,8 @@ interface ChildArgs {
 
 const args = JSON.parse(process.argv[2] ?? '{}') as ChildArgs;
 const say = (o: object) => process.stdout.write(JSON.stringify(o) + '\n');
-const log: OutputLog = {
+const log: Logger = {
+  debug: () => {},
   info: (f, m) => say({ log: 'info', msg: m }),
   warn: (f, m) => say({ log: 'warn', msg: m }),
   error: (f, m) => say({ log: 'error', msg: m }),
