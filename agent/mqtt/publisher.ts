@@ -191,11 +191,13 @@ export class MqttPublisher {
     this.unsubscribeOutbox?.();
     const c = this.client;
     if (!c) return;
-    if (this.connected) {
+    const wasConnected = this.connected;
+    if (wasConnected) {
       await withTimeout(new Promise<void>((r) => c.publish(this.s.topics.status, JSON.stringify(this.status(false, 'stopped')), { qos: 1, retain: true }, () => r())), STOP_WAIT_MS);
     }
     this.dropClient(c);
-    await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
+    // A clean DISCONNECT (so the broker does not publish the last-will) only makes sense when connected.
+    if (wasConnected) await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
     c.end(true);
   }
 

@@ -399,9 +399,9 @@ export class Outbox {
   ack(seq: number): void {
     const entry = this.entries.get(seq);
     if (!entry) return;
-    const wasSaving = entry.state === 'saving';
     this.forget(entry);
-    if (!wasSaving && entry.state === 'durable') this.queueRemove(seq);
+    // A 'memory' entry has no file; a 'saving' one is removed by save() once its write finishes.
+    if (entry.state === 'durable') this.queueRemove(seq);
   }
 
   /**
