@@ -1,6 +1,8 @@
 import { z } from 'zod';
 import { acquisitionSchema } from './acquisition.js';
+import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
+import { mqttSchema } from './mqtt.js';
 import { watcherSchema } from './watcher.js';
 
 /**
@@ -85,6 +87,9 @@ export const configSchema = z
     balance: balanceSchema,
 
     watcher: watcherSchema,
+
+    mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
+    advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
   })
   .strict()
   .superRefine((cfg, ctx) => {
