@@ -22,8 +22,9 @@
  * Axial motion: an unbalance force sets up a small rocking moment on the housings that shows as axial
  * 1x at both bearings, in phase. It is modelled as an axial force equal to `axial_coupling` times each
  * plane's force (projected on the axial sensor's angular position), the same at both bearings. The
- * coupling is small for planes between the bearings (centre-hung: little axial) and large for planes
- * outside them (overhung: high axial 1x, in phase at both bearings).
+ * coupling is small for planes between the bearings (default 0.05; centre-hung: little axial) and large
+ * for planes outside them (default 1.5; overhung: high axial 1x, in phase at both bearings). These two
+ * numbers are a signature model, not derived from the rotor's dimensions.
  *
  * The model is linear in the unbalance: the 1x velocity at every sensor is a sum of influence
  * coefficients times the plane unbalances, and the coefficients stay constant at constant speed, so an
@@ -221,14 +222,4 @@ export function unbalanceVelocity(g: RotorGeometry, at: SensorPlace, unbalance: 
     im += v.im;
   }
   return { re, im };
-}
-
-/** Radial force phasor (N, rotor frame before projection on a sensor) carried by a bearing. */
-export function bearingForce(g: RotorGeometry, bearing: 0 | 1, unbalance: readonly Phasor[], omegaRadS: number): Phasor {
-  let f: Phasor = ZERO;
-  g.planes.forEach((p, i) => {
-    const share = leverShares(g.bearings[0].position_mm, g.bearings[1].position_mm, p.position_mm)[bearing];
-    f = add(f, scale(unbalance[i] ?? ZERO, share * omegaRadS * omegaRadS));
-  });
-  return f;
 }

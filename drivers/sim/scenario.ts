@@ -421,7 +421,8 @@ export function resolveScenario(s: Scenario, cfg: Config, scenarioFile = 'scenar
       problems.push(`${configFile}: sensors[${i}].bearing: bearing "${x.bearing}" is not in ${scenarioFile} rotor.bearings (${bearingNames.join(', ')}); name the scenario's bearings as the config does`);
     }
   });
-  const overhung = s.rotor.planes.some((p) => isOutboard(buildGeometry(s), p.position_mm));
+  const geometry = buildGeometry(s);
+  const overhung = s.rotor.planes.some((p) => isOutboard(geometry, p.position_mm));
   if (overhung !== (cfg.machine.rotor === 'overhung')) {
     sp(
       'rotor.planes',
@@ -490,7 +491,6 @@ export function resolveScenario(s: Scenario, cfg: Config, scenarioFile = 'scenar
     throw new UserError(scenarioFile, `${problems.length} problem(s) between the scenario and the config:\n  ${problems.join('\n  ')}`, 'make the scenario and the config describe the same fan and channels');
   }
 
-  const geometry = buildGeometry(s);
   const sensors: SimSensor[] = cfg.sensors.map((x) => {
     const place: SensorPlace = { bearing: bearingIndex(s, x.bearing), direction: x.direction, mounting_angle_deg: x.mounting_angle_deg };
     const bias = s.signal.iepe_bias_v ?? (x.bias_v ? (x.bias_v.min + x.bias_v.max) / 2 : 0);

@@ -9,7 +9,7 @@ import {
 } from './physics.js';
 import { NOISE_TABLE_BITS, normalTable, Random } from './random.js';
 import type { SimPlan } from './scenario.js';
-import { FanState, type ActiveFault, type AppliedEvent, type WeightOnRotor } from './state.js';
+import { FanState, type ActiveFault, type AppliedEvent } from './state.js';
 
 /**
  * Synthesizes the acquisition board's channels (volts) for the simulated fan, block by block.
@@ -145,19 +145,6 @@ export class FanSimulator {
     return (this.omegaLast * 60) / TWO_PI;
   }
 
-  /** Fits a balance weight now; the 1x vectors move from the next sub-block on. */
-  addWeight(w: WeightOnRotor): void {
-    this.state.addWeight(w);
-  }
-
-  removeWeight(id: string): boolean {
-    return this.state.removeWeight(id);
-  }
-
-  weights(): WeightOnRotor[] {
-    return this.state.weights();
-  }
-
   /**
    * What the model says the velocity vector of one order is at every sensor right now (steady state at
    * the current speed; sensor faults and noise not included). Order 1 is the 1x vector.
@@ -184,6 +171,9 @@ export class FanSimulator {
    */
   render(out: readonly Float32Array[], count: number, offset = 0): number {
     if (out.length < this.channelCount) throw new Error(`render needs ${this.channelCount} channel arrays, got ${out.length}`);
+    for (let c = 0; c < this.channelCount; c++) {
+      if (out[c]!.length < offset + count) throw new Error(`render: channel array ${c} holds ${out[c]!.length} samples, needs ${offset + count}`);
+    }
     this.edgeCount = 0;
     let done = 0;
     while (done < count) {

@@ -98,17 +98,21 @@ export class SimSource implements SampleSource {
     this.closed = true;
   }
 
-  /** Fits a balance weight on the running simulated fan (trial or correction weight of a balancing job). */
+  /**
+   * Fits a balance weight on the running simulated fan (trial or correction weight of a balancing
+   * job); the 1x vectors move from the next 10 ms on.
+   */
   addWeight(w: WeightOnRotor): void {
-    this.sim.addWeight(w);
+    this.sim.state.addWeight(w);
   }
 
+  /** Takes a weight off; false when no weight has that id. */
   removeWeight(id: string): boolean {
-    return this.sim.removeWeight(id);
+    return this.sim.state.removeWeight(id);
   }
 
   weights(): WeightOnRotor[] {
-    return this.sim.weights();
+    return this.sim.state.weights();
   }
 
   /** The model's steady-state velocity vectors of one order at every sensor now (for checks and demos). */
