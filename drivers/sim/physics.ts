@@ -52,8 +52,8 @@
  *   Adding a weight beta degrees further against rotation adds beta to every sensor's phase lag.
  */
 
-/** Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901). */
-export const STANDARD_GRAVITY_M_S2 = 9.80665;
+/** Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901): one constant for the whole project. */
+export { STANDARD_GRAVITY_M_S2 } from '../../agent/dsp/acceleration.js';
 
 export type Direction = 'vertical' | 'horizontal' | 'axial';
 export type AngleConvention = 'against_rotation' | 'with_rotation';

@@ -1,7 +1,9 @@
 import { loadConfig } from '../../config/load.js';
 import { UserError } from '../../errors.js';
+import { fmtVel, round, table, type DisplayUnits } from '../../report/units.js';
 import { parseCommandArgs } from '../args.js';
 import type { Command } from '../command.js';
+import { Progress } from '../progress.js';
 import { formatAt, loadScenario, resolveScenario } from '../../../drivers/sim/scenario.js';
 import { FanSimulator } from '../../../drivers/sim/simulator.js';
 import type { AppliedEvent } from '../../../drivers/sim/state.js';
@@ -52,7 +54,7 @@ export const simulateCommand: Command = {
     }
 
     const events: AppliedEvent[] = [];
-    const tty = process.stderr.isTTY === true;
+    const progress = new Progress('simulating');
     const human = !values.json;
     const sim = new FanSimulator(plan, {
       startS: fromDay * 86400,
@@ -60,7 +62,7 @@ export const simulateCommand: Command = {
       seed,
       onEvent: (e) => {
         events.push(e);
-        if (human) process.stderr.write(`${tty ? '\r\x1b[K' : ''}${e.text}\n`);
+        if (human) process.stderr.write(`${process.stderr.isTTY ? '\r\x1b[K' : ''}${e.text}\n`);
       },
     });
     const startS = sim.scenarioTimeS;
@@ -77,7 +79,6 @@ export const simulateCommand: Command = {
 
     const buffers = Array.from({ length: plan.channelCount }, () => new Float32Array(BLOCK));
     const t0 = performance.now();
-    let lastProgress = t0;
     let done = 0;
     try {
       while (done < frames) {
@@ -85,15 +86,11 @@ export const simulateCommand: Command = {
         sim.render(buffers, n);
         await writer.write(buffers, n);
         done += n;
-        const now = performance.now();
-        if (tty && now - lastProgress > 250) {
-          lastProgress = now;
-          process.stderr.write(`\r\x1b[Ksimulating ${(done / plan.sampleRate).toFixed(1)} / ${seconds} s (${Math.floor((100 * done) / frames)} %)`);
-        }
+        progress.update(done, frames, `${(done / plan.sampleRate).toFixed(1)} of ${seconds} s`);
       }
     } finally {
       const bytes = await writer.close();
-      if (tty) process.stderr.write('\r\x1b[K');
+      progress.done();
       const elapsed = (performance.now() - t0) / 1000;
       const model = sim.modelOrder(1);
       const summary = {
@@ -125,12 +122,7 @@ export const simulateCommand: Command = {
   },
 };
 
-function round(v: number, digits: number): number {
-  const k = 10 ** digits;
-  return Math.round(v * k) / k;
-}
-
-function humanSummary(s: {
+type Summary = {
   file: string;
   duration_s: number;
   channels: number;
@@ -138,27 +130,26 @@ function humanSummary(s: {
   bytes: number;
   start_at: string;
   end_at: string;
-  speed_start_rpm: number;
-  speed_end_rpm: number;
+  speed_start_rpm: number | null;
+  speed_end_rpm: number | null;
   channel_map: { channel: number; id: string; what: string }[];
-  model_1x_end: { id: string; amp_pk_mm_s: number; amp_rms_mm_s: number; phase_deg: number }[];
+  model_1x_end: { id: string; amp_pk_mm_s: number | null; amp_rms_mm_s: number | null; phase_deg: number | null }[];
   events: { text: string }[];
-  elapsed_s: number;
-  realtime_factor: number;
-}, units: 'mm/s' | 'in/s'): string {
-  const k = units === 'in/s' ? 1 / 25.4 : 1;
-  const d = units === 'in/s' ? 4 : 2;
+  elapsed_s: number | null;
+  realtime_factor: number | null;
+};
+
+function humanSummary(s: Summary, units: DisplayUnits): string {
   const rows = s.channel_map.map((c) => {
     const m = s.model_1x_end.find((x) => x.id === c.id);
-    const oneX = m ? `${(m.amp_rms_mm_s * k).toFixed(d)} ${units} r.m.s. at ${m.phase_deg.toFixed(0)} deg lag` : '';
-    return `  ${String(c.channel).padEnd(7)} ${c.id.padEnd(8)} ${c.what.padEnd(28)} ${oneX}`;
+    return [String(c.channel), c.id, c.what, m ? fmtVel(m.amp_rms_mm_s, units) : '-', m?.phase_deg != null ? m.phase_deg.toFixed(0) : '-'];
   });
   return (
     `wrote ${s.file}: ${s.duration_s.toFixed(1)} s, ${s.channels} channels x ${s.sample_rate_hz} Hz, float32 volts, ${(s.bytes / 1e6).toFixed(1)} MB\n` +
-    `scenario time ${s.start_at} to ${s.end_at}; speed ${s.speed_start_rpm.toFixed(1)} r/min at start, ${s.speed_end_rpm.toFixed(1)} r/min at end\n` +
-    `  channel id       what                         model 1x at the end (phase: lag from the tach edge)\n` +
-    rows.join('\n') +
-    `\n${s.events.length} timeline event(s) during the recording\n` +
-    `simulated ${s.duration_s.toFixed(1)} s in ${s.elapsed_s.toFixed(2)} s (${s.realtime_factor}x real time)\n`
+    `scenario time ${s.start_at} to ${s.end_at}; speed ${s.speed_start_rpm?.toFixed(1)} r/min at start, ${s.speed_end_rpm?.toFixed(1)} r/min at end\n` +
+    `model 1x at the end (phase = lag from the tach edge to the positive velocity peak):\n\n` +
+    table(['channel', 'id', 'what', `1x ${units} rms`, '1x phase deg'], rows) +
+    `\n\n${s.events.length} timeline event(s) during the recording\n` +
+    `simulated ${s.duration_s.toFixed(1)} s in ${s.elapsed_s?.toFixed(2)} s (${s.realtime_factor}x real time)\n`
   );
 }
