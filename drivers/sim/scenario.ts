@@ -436,7 +436,7 @@ export function resolveScenario(s: Scenario, cfg: Config, scenarioFile = 'scenar
     sp('tach.mark_width_deg', `must be under half the pulse pitch (${180 / cfg.tach.pulses_per_rev} deg for ${configFile} tach.pulses_per_rev ${cfg.tach.pulses_per_rev})`);
   }
   const rated = s.speed.rated_rpm ?? cfg.machine.rated_rpm;
-  if (rated === undefined) sp('speed.rated_rpm', `not set and ${configFile} has no machine.rated_rpm; give the speed fault amplitudes refer to`);
+  if (rated === undefined) sp('speed.rated_rpm', `not set and ${configFile} has no machine.rated_rpm; give the speed that fault amplitudes refer to`);
   s.rotor.unbalance.forEach((m, i) => checkPlane(`rotor.unbalance[${i}].plane`, m.plane));
   const weights = new Set<string>();
   s.rotor.weights.forEach((w, i) => {

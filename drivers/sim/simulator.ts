@@ -96,6 +96,8 @@ export class FanSimulator {
   private tones: ToneRun[] = [];
   private toneCoefPrev = new Float64Array(0);
   private toneCoefNext = new Float64Array(0);
+  /** cos and sin rows of every tone for one sub-block. */
+  private toneBuf = new Float64Array(0);
   private toneGeneration = -1;
   private pulsePresent = true;
   private lastPsi = 0;
@@ -147,7 +149,8 @@ export class FanSimulator {
 
   /**
    * What the model says the velocity vector of one order is at every sensor right now (steady state at
-   * the current speed; sensor faults and noise not included). Order 1 is the 1x vector.
+   * the current speed): unbalance and the synchronous fault terms. Noise, sensor faults and the tones
+   * (blade pass, bearing defects, fixed tones) are not included. Order 1 is the 1x vector.
    */
   modelOrder(order = 1): OrderVectorModel[] {
     const ts = this.produced * this.dt;
@@ -468,8 +471,6 @@ export class FanSimulator {
     }
     this.noiseState = x;
   }
-
-  private toneBuf = new Float64Array(0);
 
   private toneScratch(tones: number): Float64Array {
     if (this.toneBuf.length < tones * SUB_BLOCK * 2) this.toneBuf = new Float64Array(tones * SUB_BLOCK * 2);

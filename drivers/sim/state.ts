@@ -107,7 +107,8 @@ export class FanState {
   tachFault: TachFaultState | undefined;
   /** Bumped whenever the set of faults changes (the synthesizer rebuilds its tone list). */
   faultGeneration = 0;
-  private readonly log: (e: AppliedEvent) => void;
+  private readonly onEvent: (e: AppliedEvent) => void;
+  private replaying = false;
   private lastTc: number;
 
   constructor(plan: SimPlan, opts: { startS: number; timeScale: number; draw: () => number; onEvent?: (e: AppliedEvent) => void }) {
@@ -115,7 +116,7 @@ export class FanState {
     this.startS = opts.startS;
     this.timeScale = opts.timeScale;
     this.draw = opts.draw;
-    this.log = opts.onEvent ?? (() => undefined);
+    this.onEvent = opts.onEvent ?? (() => undefined);
     const w0 = rpmToRadS(plan.startRpm);
     this.segment = { t0: -Infinity, kind: 'ramp', from: w0, to: w0, dur: 0 };
     const planes = plan.geometry.planes.map((p) => p.name);
@@ -129,10 +130,9 @@ export class FanState {
     this.supports = plan.geometry.bearings.map((b) => (['vertical', 'horizontal', 'axial'] as const).map((d) => ({ base: b.support[d] })));
     this.lastTc = opts.startS;
     // replay the history before the start, quietly
-    const quiet = this.log;
-    this.log = () => undefined;
+    this.replaying = true;
     this.advance(0);
-    this.log = quiet;
+    this.replaying = false;
   }
 
   /** Scenario time at signal time ts. */
@@ -171,8 +171,12 @@ export class FanState {
     return u;
   }
 
+  private supportSlot(bearing: number, direction: Direction): { base: SupportDynamics; ramp?: SupportRamp } {
+    return this.supports[bearing]![direction === 'vertical' ? 0 : direction === 'horizontal' ? 1 : 2]!;
+  }
+
   support(bearing: number, direction: Direction, tc: number): SupportDynamics {
-    const s = this.supports[bearing]![direction === 'vertical' ? 0 : direction === 'horizontal' ? 1 : 2]!;
+    const s = this.supportSlot(bearing, direction);
     if (!s.ramp) return s.base;
     const x = s.ramp.durS > 0 ? Math.min(1, Math.max(0, (tc - s.ramp.startTc) / s.ramp.durS)) : 1;
     const lerp = (a: number, b: number) => a + (b - a) * x;
@@ -193,6 +197,10 @@ export class FanState {
     return [...this.weightsOn.values()].map((x) => x.w);
   }
 
+  private log(e: AppliedEvent): void {
+    if (!this.replaying) this.onEvent(e);
+  }
+
   /** Fits a balance weight now (e.g. a trial or correction weight of a balancing job). */
   addWeight(w: WeightOnRotor): void {
     if (this.weightsOn.has(w.id)) throw new Error(`weight "${w.id}" is already on the rotor`);
@@ -200,10 +208,10 @@ export class FanState {
     this.log({ at_s: this.lastTc, text: `${formatAt(this.lastTc)} weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg ${w.convention.replace('_', ' ')}, plane ${w.plane}` });
   }
 
-  /** Takes a weight off (or loses it). Returns false when no such weight is on the rotor. */
-  removeWeight(id: string, how = 'removed'): boolean {
+  /** Takes a weight off now. Returns false when no such weight is on the rotor. */
+  removeWeight(id: string): boolean {
     if (!this.weightsOn.delete(id)) return false;
-    this.log({ at_s: this.lastTc, text: `${formatAt(this.lastTc)} weight ${id} ${how}` });
+    this.log({ at_s: this.lastTc, text: `${formatAt(this.lastTc)} weight ${id} removed` });
     return true;
   }
 
@@ -272,7 +280,7 @@ export class FanState {
     } else if (e.support_change) {
       const c = e.support_change;
       const b = this.bearingIndex(c.bearing);
-      const slot = this.supports[b]![c.direction === 'vertical' ? 0 : c.direction === 'horizontal' ? 1 : 2]!;
+      const slot = this.supportSlot(b, c.direction);
       const from = this.support(b, c.direction, tc);
       const to: SupportDynamics = {
         stiffness_n_per_m: c.stiffness_mn_per_m !== undefined ? c.stiffness_mn_per_m * 1e6 : from.stiffness_n_per_m,
