@@ -7,7 +7,7 @@
  * speed of rendering plus writing a WAV file (fsync'ed).
  */
 import { mkdtempSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { loadConfig } from '../../agent/config/load.js';
 import { loadScenario, resolveScenario, type Scenario } from '../../drivers/sim/scenario.js';
@@ -35,7 +35,7 @@ function withAllFaults(s: Scenario): Scenario {
   return { ...s, timeline: [...s.timeline.filter((e) => e.at < at), ...faults.map((fault) => ({ at, fault }))] as Scenario['timeline'] };
 }
 
-function timeRender(scenario: Scenario, startDay: number): { seconds: number; x_realtime: number; ns_per_sample_channel: number; heap_growth_kb: number } {
+function timeRender(scenario: Scenario, startDay: number): { seconds: number; cpu_s: number; x_realtime: number; x_realtime_cpu: number; ns_per_sample_channel: number; heap_growth_kb: number } {
   const plan = resolveScenario(scenario, cfg);
   const sim = new FanSimulator(plan, { startS: startDay * 86400 });
   const out = Array.from({ length: plan.channelCount }, () => new Float32Array(BLOCK));
@@ -44,17 +44,23 @@ function timeRender(scenario: Scenario, startDay: number): { seconds: number; x_
   globalThis.gc?.();
   const heap0 = process.memoryUsage().heapUsed;
   let secs = Infinity;
+  let cpu = Infinity;
   for (let rep = 0; rep < REPEATS; rep++) {
     const t0 = performance.now();
+    const c0 = process.cpuUsage();
     for (let done = 0; done < total; done += BLOCK) sim.render(out, BLOCK);
+    const c = process.cpuUsage(c0);
     secs = Math.min(secs, (performance.now() - t0) / 1000);
+    cpu = Math.min(cpu, (c.user + c.system) / 1e6);
   }
   globalThis.gc?.();
   const heap1 = process.memoryUsage().heapUsed;
   return {
     seconds: secs,
+    cpu_s: cpu,
     x_realtime: SECONDS / secs,
-    ns_per_sample_channel: (secs * 1e9) / (total * plan.channelCount),
+    x_realtime_cpu: SECONDS / cpu,
+    ns_per_sample_channel: (cpu * 1e9) / (total * plan.channelCount),
     heap_growth_kb: (heap1 - heap0) / 1024,
   };
 }
@@ -99,17 +105,18 @@ const result = {
   render_all_faults: faults,
   render_and_write_wav: wav,
   gc_exposed: typeof globalThis.gc === 'function',
+  load_average_1min: loadavg()[0],
 };
 if (process.argv.includes('--json')) {
   process.stdout.write(JSON.stringify(result, null, 2) + '\n');
 } else {
   const row = (name: string, r: { seconds: number; x_realtime: number }, extra: string) =>
-    `  ${name.padEnd(34)} ${r.seconds.toFixed(3).padStart(7)} s  ${r.x_realtime.toFixed(0).padStart(5)}x real time  ${extra}`;
+    `  ${name.padEnd(30)} wall ${r.seconds.toFixed(3).padStart(6)} s (${r.x_realtime.toFixed(0).padStart(4)}x real time)  ${extra}`;
   process.stdout.write(
-    `fan simulator, ${SECONDS} s of 7 channels at 25.6 kHz, best of ${REPEATS} runs (node ${process.version}, ${process.arch})\n` +
-      row('render, demo scenario', demo, `${demo.ns_per_sample_channel.toFixed(1)} ns per sample per channel, heap growth ${demo.heap_growth_kb.toFixed(0)} kB`) +
+    `fan simulator, ${SECONDS} s of 7 channels at 25.6 kHz, best of ${REPEATS} runs (node ${process.version}, ${process.arch}, load average ${loadavg()[0]!.toFixed(1)})\n` +
+      row('render, demo scenario', demo, `cpu ${demo.cpu_s.toFixed(3)} s (${demo.x_realtime_cpu.toFixed(0)}x), ${demo.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${demo.heap_growth_kb.toFixed(0)} kB`) +
       '\n' +
-      row('render, every fault kind on', faults, `${faults.ns_per_sample_channel.toFixed(1)} ns per sample per channel, heap growth ${faults.heap_growth_kb.toFixed(0)} kB`) +
+      row('render, every fault kind on', faults, `cpu ${faults.cpu_s.toFixed(3)} s (${faults.x_realtime_cpu.toFixed(0)}x), ${faults.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${faults.heap_growth_kb.toFixed(0)} kB`) +
       '\n' +
       row('render + write WAV (fsync)', wav, `${wav.mb_per_s.toFixed(0)} MB/s`) +
       '\n',
