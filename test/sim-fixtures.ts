@@ -105,10 +105,8 @@ export function risingEdges(x: ArrayLike<number>, level: number): number[] {
   return out;
 }
 
-/** Smallest difference between two angles, degrees (signed, -180..180). */
-export function angleDiff(a: number, b: number): number {
-  return ((((a - b) % 360) + 540) % 360) - 180;
-}
+/** Signed difference of two angles a - b, degrees in (-180, 180]. */
+export { deltaDeg as angleDiff } from '../agent/balance/complex.js';
 
 export function mean(x: ArrayLike<number>): number {
   let s = 0;

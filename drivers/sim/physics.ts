@@ -52,56 +52,33 @@
  *   Adding a weight beta degrees further against rotation adds beta to every sensor's phase lag.
  */
 
+import { abs, add, div, mul, scale, sub, wrapDeg, ZERO, type Complex } from '../../agent/balance/complex.js';
+import type { AngleConvention } from '../../agent/balance/conventions.js';
+
 /** Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901): one constant for the whole project. */
 export { STANDARD_GRAVITY_M_S2 } from '../../agent/dsp/acceleration.js';
 
 export type Direction = 'vertical' | 'horizontal' | 'axial';
-export type AngleConvention = 'against_rotation' | 'with_rotation';
+export type { AngleConvention };
 
-/** A complex amplitude; see the module comment for the convention. */
-export interface Phasor {
-  readonly re: number;
-  readonly im: number;
-}
+/**
+ * A complex amplitude; see the module comment for the convention (lag = -arg). The arithmetic is the
+ * project's one complex module; only the phase reading below is the simulator's own.
+ */
+export type Phasor = Complex;
+export { add, div, mul, scale, sub, ZERO };
+export { abs as magnitude };
 
 const DEG = Math.PI / 180;
 
-export const ZERO: Phasor = { re: 0, im: 0 };
-
+/** A phasor of amplitude `amp` lagging by `lagDeg` degrees. */
 export function phasor(amp: number, lagDeg: number): Phasor {
   return { re: amp * Math.cos(lagDeg * DEG), im: -amp * Math.sin(lagDeg * DEG) };
 }
 
-export function magnitude(p: Phasor): number {
-  return Math.hypot(p.re, p.im);
-}
-
 /** Phase lag in degrees, 0 <= lag < 360. */
 export function lagDeg(p: Phasor): number {
-  const d = -Math.atan2(p.im, p.re) / DEG;
-  const w = ((d % 360) + 360) % 360;
-  return w >= 360 ? 0 : w;
-}
-
-export function add(a: Phasor, b: Phasor): Phasor {
-  return { re: a.re + b.re, im: a.im + b.im };
-}
-
-export function sub(a: Phasor, b: Phasor): Phasor {
-  return { re: a.re - b.re, im: a.im - b.im };
-}
-
-export function mul(a: Phasor, b: Phasor): Phasor {
-  return { re: a.re * b.re - a.im * b.im, im: a.re * b.im + a.im * b.re };
-}
-
-export function div(a: Phasor, b: Phasor): Phasor {
-  const d = b.re * b.re + b.im * b.im;
-  return { re: (a.re * b.re + a.im * b.im) / d, im: (a.im * b.re - a.re * b.im) / d };
-}
-
-export function scale(a: Phasor, s: number): Phasor {
-  return { re: a.re * s, im: a.im * s };
+  return wrapDeg(-Math.atan2(p.im, p.re) / DEG);
 }
 
 /** e^{-i angle}: a delay of `deg` degrees of the cycle. */
