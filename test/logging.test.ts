@@ -4,7 +4,15 @@ import { closeSync, fstatSync, mkdtempSync, openSync, readFileSync, statSync } f
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { REDACTED, syslogPrefix, urlWithoutPassword } from '../agent/logging/pino-logger.js';
+import { validateConfig } from '../agent/config/load.js';
+import { pinoOptionsFromConfig, REDACTED, syslogPrefix, urlWithoutPassword } from '../agent/logging/pino-logger.js';
+
+/** A valid config without a logging section (raw, before defaults). */
+const minimalConfig = () => ({
+  machine: { id: 'kessrow-id3a', group: 2, support: 'rigid' },
+  tach: { channel: 1, trigger_v: 2.5 },
+  sensors: [{ id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 }],
+});
 
 // The child is the compiled test/support/log-child.ts (npm test builds dist/ first).
 const CHILD = fileURLToPath(new URL('../dist/test/support/log-child.js', import.meta.url));
@@ -112,5 +120,19 @@ describe('log helpers', () => {
     expect(urlWithoutPassword('mqtt://h:1883')).toBe('mqtt://h:1883');
     expect(urlWithoutPassword('mqtt://u@h')).toBe('mqtt://u@h');
     expect(urlWithoutPassword('wss://u:p%40ss@h/mqtt')).toBe(`wss://u:${REDACTED}@h/mqtt`);
+  });
+});
+
+describe('logging: config section', () => {
+  it('defaults to info, automatic prefix, summaries every 10 min; maps to logger options', () => {
+    const cfg = validateConfig(minimalConfig());
+    expect(cfg.logging).toEqual({ level: 'info', syslog_prefix: 'auto', repeat_summary_min: 10 });
+    expect(pinoOptionsFromConfig(cfg.logging)).toEqual({ level: 'info', syslogPrefix: 'auto' });
+    const on = validateConfig({ ...minimalConfig(), logging: { level: 'debug', syslog_prefix: 'on' } });
+    expect(pinoOptionsFromConfig(on.logging)).toEqual({ level: 'debug', syslogPrefix: true });
+  });
+
+  it('names a wrong level and where it is', () => {
+    expect(() => validateConfig({ ...minimalConfig(), logging: { level: 'verbose' } }, 'board.yaml')).toThrow(/board\.yaml: logging\.level: .*found "verbose"/);
   });
 });

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { loggingSchema } from './logging.js';
 
 /**
  * The one configuration schema. Every key a user can write lives here, with its meaning.
@@ -78,6 +79,7 @@ export const configSchema = z
     sensors: z.array(sensorSchema).min(1),
     dsp: dspSchema,
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
+    logging: loggingSchema,
   })
   .strict()
   .superRefine((cfg, ctx) => {

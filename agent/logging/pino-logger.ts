@@ -1,5 +1,6 @@
 import { fstatSync } from 'node:fs';
 import { pino, type DestinationStream } from 'pino';
+import type { LoggingConfig } from '../config/logging.js';
 import type { Logger } from '../log.js';
 
 /**
@@ -136,6 +137,11 @@ export class PinoLogger implements Logger {
   setLevel(level: LogLevel): void {
     this.p.level = level;
   }
+}
+
+/** Logger options from the config's `logging:` section. */
+export function pinoOptionsFromConfig(c: LoggingConfig): PinoLoggerOptions {
+  return { level: c.level, syslogPrefix: c.syslog_prefix === 'auto' ? 'auto' : c.syslog_prefix === 'on' };
 }
 
 /**
