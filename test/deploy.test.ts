@@ -353,4 +353,15 @@ if (cmd === 'check-config') {
     expect(c.stderr).toBe('');
     expect(c.stdout).toMatch(/turnwise\.yaml\.example: OK\n {2}machine kessrow-id3a/);
   }, 300_000);
+
+  const SYSTEM = process.env.TURNWISE_SYSTEM_TESTS === '1';
+  it(
+    SYSTEM ? 'works under systemd as PID 1 (test/system/under-systemd.sh)' : 'works under systemd as PID 1 (test/system/under-systemd.sh) [SKIPPED: set TURNWISE_SYSTEM_TESTS=1; needs root, overlayfs and systemd-nspawn]',
+    { skip: !SYSTEM, timeout: 900_000 },
+    () => {
+      const r = spawnSync('bash', [join(REPO, 'test/system/under-systemd.sh')], { encoding: 'utf8', timeout: 900_000 });
+      expect(r.stdout).toContain('all checks passed');
+      expect(r.status, r.stdout + r.stderr).toBe(0);
+    },
+  );
 });

@@ -25,7 +25,11 @@ import { NoopNotifier, notifyMessage, type ServiceNotifier } from './notifier.js
  * The relay is restarted with back-off if it dies; up to 16 messages wait for it meanwhile.
  */
 
-/** The relay program (python3 -I -S -c ...). Send errors go to stderr, one line each. */
+/**
+ * The relay program. It travels in the environment so that the process list and
+ * `systemctl status` show one short line, `python3 ... turnwise-sd-notify-relay`, not the code.
+ * Send errors go to stderr, one line each.
+ */
 export const RELAY_PY = `
 import json, os, socket, sys
 addr = os.environ["NOTIFY_SOCKET"]
@@ -160,9 +164,9 @@ export class SystemdNotifier implements ServiceNotifier {
   private startRelay(): void {
     this.cancelRestart = null;
     this.startedAt = this.timers.nowMs();
-    const child = spawn(this.python, ['-I', '-S', '-c', RELAY_PY], {
+    const child = spawn(this.python, ['-I', '-S', '-c', 'import os; exec(os.environ["TURNWISE_RELAY_PY"])', 'turnwise-sd-notify-relay'], {
       stdio: ['pipe', 'ignore', 'pipe'],
-      env: { NOTIFY_SOCKET: this.socketName, PATH: this.path, LC_ALL: 'C.UTF-8' },
+      env: { NOTIFY_SOCKET: this.socketName, TURNWISE_RELAY_PY: RELAY_PY, PATH: this.path, LC_ALL: 'C.UTF-8' },
     });
     this.child = child;
     child.stdin!.on('error', () => {}); // EPIPE when the relay died; the 'exit' handler restarts it
