@@ -157,7 +157,7 @@ check "priorities stored as sent (<7> <6> <4> <3>)" node -e '
 check "secret redacted in the journal" bash -c "! grep -q hunter2 '$P/journal.txt' && grep -q '\"password\":\"\\[redacted\\]\"' '$P/journal.txt'"
 check "sandbox: state dir writable, the rest read-only, /root hidden, groups dialout and gpio" \
   grep -qE '"groups":"dialout gpio turnwise".*"write_state":"ok","write_own_dir_outside_state":"EROFS","list_root_home":"(EACCES|ENOENT)"' "$P/journal.txt"
-check "STOPPING=1 sent, probe stopped itself" grep -q 'probe stopped' "$P/journal.txt"
+check "STOPPING=1 with its STATUS arrived, probe stopped itself" bash -c "grep -q '^stopped: .*StatusText=probe stopping on SIGTERM' '$R' && grep -q 'probe stopped' '$P/journal.txt'"
 grep -o '"facts":{[^}]*}' "$P/journal.txt" | head -n1
 echo "--- systemctl status while healthy:"; cat "$P/status.txt"
 echo "--- journalctl -u turnwise -p warning -o cat:"; cat "$P/journal-warning.txt"
