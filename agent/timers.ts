@@ -1,10 +1,10 @@
+import type { Clock } from './clock.js';
+
 /**
- * Time and one-shot timers, injected so that code which waits or counts time can be tested with a
- * fake clock (test/support/fake-timers.ts) instead of real sleeps.
+ * A clock that can also wake code up later: for parts that wait (the watchdog keeper, the
+ * sd_notify relay's restart), tested with test/support/fake-timers.ts instead of real sleeps.
  */
-export interface Timers {
-  /** Wall-clock milliseconds since the Unix epoch (Date.now() in production). */
-  nowMs(): number;
+export interface Timers extends Clock {
   /** Calls `fn` once, `ms` milliseconds from now. Returns a function that cancels it. */
   after(ms: number, fn: () => void): () => void;
 }
@@ -14,7 +14,7 @@ export interface Timers {
  * on its own, so a shutdown is never held up by them.
  */
 export const systemTimers: Timers = {
-  nowMs: () => Date.now(),
+  now: () => Date.now(),
   after(ms, fn) {
     const t = setTimeout(fn, ms);
     t.unref();

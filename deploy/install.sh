@@ -8,8 +8,9 @@
 #   /opt/turnwise/previous -> releases/...              what --rollback goes back to
 #   /etc/turnwise/turnwise.yaml                          the plant's config (never overwritten)
 #   /var/lib/turnwise/                                   state (systemd StateDirectory=)
-#   /etc/systemd/system/turnwise.service, /etc/udev/rules.d/60-turnwise.rules,
-#   /etc/systemd/journald.conf.d/60-turnwise.conf, /usr/local/bin/turnwise
+#   /etc/systemd/system/turnwise.service, /etc/udev/rules.d/70-turnwise-daq.rules and
+#   99-turnwise-gpio.rules (from deploy/udev/), /etc/systemd/journald.conf.d/60-turnwise.conf,
+#   /usr/local/bin/turnwise
 #
 # Every change is printed as "+ command" before it runs; --dry-run prints them and runs none.
 # Running it twice changes nothing the second time.
@@ -100,7 +101,10 @@ ETC=/etc/turnwise
 STATE=/var/lib/turnwise
 UNIT=/etc/systemd/system/turnwise.service
 UNIT_D=/etc/systemd/system/turnwise.service.d
-UDEV_RULES=/etc/udev/rules.d/60-turnwise.rules
+UDEV_DAQ=/etc/udev/rules.d/70-turnwise-daq.rules
+UDEV_GPIO=/etc/udev/rules.d/99-turnwise-gpio.rules
+# The USB id in deploy/udev/70-turnwise-daq.rules until --daq-usb-id replaces it (pid.codes test id).
+PLACEHOLDER_USB_ID=1209:0001
 JOURNALD_CONF=/etc/systemd/journald.conf.d/60-turnwise.conf
 CLI_LINK=/usr/local/bin/turnwise
 R_OPT="$ROOT$OPT"
@@ -194,7 +198,7 @@ check_node() {
 
 check_source() {
   local p
-  for p in package.json package-lock.json dist/agent/cli/main.js deploy/turnwise.service deploy/60-turnwise.rules; do
+  for p in package.json package-lock.json dist/agent/cli/main.js deploy/turnwise.service deploy/udev/70-turnwise-daq.rules deploy/udev/99-turnwise-gpio.rules; do
     [ -e "$SRC_DIR/$p" ] || die "$SRC_DIR/$p is missing: not a built turnwise release tree" \
       "run \`npm ci\` in the source tree (it compiles dist/), or give the right tree with --from DIR"
   done
@@ -334,10 +338,10 @@ udev_ids() {
     printf '%s' "${id,,}"
     return 0
   fi
-  if [ -f "$ROOT$UDEV_RULES" ]; then
-    v=$(sed -n 's/.*ATTRS{idVendor}=="\([0-9a-f]\{4\}\)".*/\1/p' "$ROOT$UDEV_RULES" | head -n1)
-    p=$(sed -n 's/.*ATTRS{idProduct}=="\([0-9a-f]\{4\}\)".*/\1/p' "$ROOT$UDEV_RULES" | head -n1)
-    if [ -n "$v" ] && [ -n "$p" ]; then printf '%s:%s' "$v" "$p"; fi
+  if [ -f "$ROOT$UDEV_DAQ" ]; then
+    v=$(sed -n 's/.*ATTRS{idVendor}=="\([0-9a-f]\{4\}\)".*/\1/p' "$ROOT$UDEV_DAQ" | head -n1)
+    p=$(sed -n 's/.*ATTRS{idProduct}=="\([0-9a-f]\{4\}\)".*/\1/p' "$ROOT$UDEV_DAQ" | head -n1)
+    if [ -n "$v" ] && [ -n "$p" ] && [ "$v:$p" != "$PLACEHOLDER_USB_ID" ]; then printf '%s:%s' "$v" "$p"; fi
   fi
 }
 
@@ -362,16 +366,17 @@ install_system_files() {
   ids=$(udev_ids)
   rules=$(tmpfile)
   if [ -n "$ids" ]; then
-    sed -e "s/ATTRS{idVendor}==\"XXXX\"/ATTRS{idVendor}==\"${ids%%:*}\"/" \
-      -e "s/ATTRS{idProduct}==\"YYYY\"/ATTRS{idProduct}==\"${ids##*:}\"/" "$dir/deploy/60-turnwise.rules" >"$rules"
+    sed -e "s/ATTRS{idVendor}==\"${PLACEHOLDER_USB_ID%%:*}\"/ATTRS{idVendor}==\"${ids%%:*}\"/" \
+      -e "s/ATTRS{idProduct}==\"${PLACEHOLDER_USB_ID##*:}\"/ATTRS{idProduct}==\"${ids##*:}\"/" "$dir/deploy/udev/70-turnwise-daq.rules" >"$rules"
     say "acquisition board USB id: $ids -> /dev/turnwise-daq"
   else
-    cat "$dir/deploy/60-turnwise.rules" >"$rules"
+    cat "$dir/deploy/udev/70-turnwise-daq.rules" >"$rules"
     warn "no USB id for the acquisition board: /dev/turnwise-daq will not appear. Run again with --daq-usb-id VVVV:PPPP (see lsusb)."
   fi
   local before=$CHANGED
   CHANGED=0
-  put_file "$rules" "$UDEV_RULES" 0644
+  put_file "$rules" "$UDEV_DAQ" 0644
+  put_file "$dir/deploy/udev/99-turnwise-gpio.rules" "$UDEV_GPIO" 0644
   if [ "$CHANGED" = 1 ]; then
     if ! { sys udevadm control --reload-rules && sys udevadm trigger --action=change --subsystem-match=tty --subsystem-match=gpio; }; then
       warn "udev did not reload (not running here: a container or an image build?); the rules apply from the next boot"
@@ -499,7 +504,8 @@ do_uninstall() {
   fi
   remove "$UNIT"
   remove "$UNIT_D"
-  remove "$UDEV_RULES"
+  remove "$UDEV_DAQ"
+  remove "$UDEV_GPIO"
   sys udevadm control --reload-rules || true
   if [ -e "$ROOT$JOURNALD_CONF" ]; then
     remove "$JOURNALD_CONF"

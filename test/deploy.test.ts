@@ -16,7 +16,8 @@ const REPO = fileURLToPath(new URL('..', import.meta.url));
 const DEPLOY = join(REPO, 'deploy');
 const INSTALL = join(DEPLOY, 'install.sh');
 const UNIT_FILE = join(DEPLOY, 'turnwise.service');
-const RULES_FILE = join(DEPLOY, '60-turnwise.rules');
+const DAQ_RULES = join(DEPLOY, 'udev/70-turnwise-daq.rules');
+const GPIO_RULES = join(DEPLOY, 'udev/99-turnwise-gpio.rules');
 
 function which(cmd: string): string | null {
   const r = spawnSync('sh', ['-c', `command -v ${cmd}`], { encoding: 'utf8' });
@@ -104,39 +105,39 @@ describe('systemd unit deploy/turnwise.service', () => {
   });
 });
 
-describe('udev rules deploy/60-turnwise.rules', () => {
-  const rules = readFileSync(RULES_FILE, 'utf8')
-    .split('\n')
-    .filter((l) => l.trim() && !l.startsWith('#'));
+describe('udev rules deploy/udev/ (installed by install.sh)', () => {
   // udev(7) rule syntax: comma-separated KEY{attr} OP "value" pairs.
   const pair = /^\s*([A-Z_]+)(\{[^}]+\})?\s*(==|!=|\+=|-=|:=|=)\s*"((?:[^"\\]|\\.)*)"\s*$/;
-  const parsed = rules.map((r) =>
-    r.split(/,(?=\s*[A-Z_]+(?:\{[^}]+\})?\s*(?:==|!=|\+=|-=|:=|=)\s*")/).map((p) => {
-      const m = pair.exec(p);
-      if (!m) throw new Error(`not a udev key/value pair: ${p}\n in rule: ${r}`);
-      return { key: m[1]! + (m[2] ?? ''), op: m[3]!, value: m[4]! };
-    }),
-  );
-  const has = (rule: typeof parsed[number], key: string, op: string, value: string) => rule.some((p) => p.key === key && p.op === op && p.value === value);
+  const parse = (file: string) =>
+    readFileSync(file, 'utf8')
+      .split('\n')
+      .filter((l) => l.trim() && !l.startsWith('#'))
+      .map((r) =>
+        r.split(/,(?=\s*[A-Z_]+(?:\{[^}]+\})?\s*(?:==|!=|\+=|-=|:=|=)\s*")/).map((p) => {
+          const m = pair.exec(p);
+          if (!m) throw new Error(`${file}: not a udev key/value pair: ${p}\n in rule: ${r}`);
+          return { key: m[1]! + (m[2] ?? ''), op: m[3]!, value: m[4]! };
+        }),
+      );
+  type Rule = ReturnType<typeof parse>[number];
+  const has = (rule: Rule, key: string, op: string, value: string) => rule.some((p) => p.key === key && p.op === op && p.value === value);
 
-  it('parses as udev rules (every rule is KEY OP "value" pairs)', () => {
-    expect(parsed.length).toBe(4);
-  });
-
-  it('names the acquisition board /dev/turnwise-daq and keeps ModemManager away from it', () => {
-    const daq = parsed.filter((r) => has(r, 'SYMLINK', '+=', 'turnwise-daq'));
+  it('name the acquisition board /dev/turnwise-daq, keep ModemManager away, and carry the id install.sh replaces', () => {
+    const daq = parse(DAQ_RULES).filter((r) => has(r, 'SYMLINK', '+=', 'turnwise-daq'));
     expect(daq).toHaveLength(1);
     expect(has(daq[0]!, 'ENV{ID_MM_DEVICE_IGNORE}', '=', '1')).toBe(true);
     expect(has(daq[0]!, 'SUBSYSTEM', '==', 'tty')).toBe(true);
-    expect(has(daq[0]!, 'ATTRS{idVendor}', '==', 'XXXX')).toBe(true); // filled in by --daq-usb-id
-    expect(has(daq[0]!, 'ATTRS{idProduct}', '==', 'YYYY')).toBe(true);
+    const installSh = readFileSync(INSTALL, 'utf8');
+    const [vid, pid] = /^PLACEHOLDER_USB_ID=([0-9a-f]{4}):([0-9a-f]{4})$/m.exec(installSh)!.slice(1);
+    expect(has(daq[0]!, 'ATTRS{idVendor}', '==', vid!)).toBe(true);
+    expect(has(daq[0]!, 'ATTRS{idProduct}', '==', pid!)).toBe(true);
     // Sorts before ModemManager's 77-mm-* and 80-mm-candidate rules.
-    expect('60-turnwise.rules' < '77-mm-usb-device-blacklist.rules').toBe(true);
+    expect('70-turnwise-daq.rules' < '77-mm-usb-device-blacklist.rules').toBe(true);
   });
 
-  it('gives the gpio group the GPIO character devices and the sysfs interface', () => {
-    expect(parsed.some((r) => has(r, 'KERNEL', '==', 'gpiochip*') && has(r, 'GROUP', '=', 'gpio'))).toBe(true);
-    expect(parsed.some((r) => r.some((p) => p.key === 'RUN' && p.value.includes('chgrp gpio /sys/class/gpio/export')))).toBe(true);
+  it('give the gpio group the sysfs GPIO interface', () => {
+    const gpio = parse(GPIO_RULES);
+    expect(gpio.some((r) => has(r, 'SUBSYSTEM', '==', 'gpio') && r.some((p) => p.value.includes('chgrp -R gpio /sys/class/gpio')))).toBe(true);
   });
 });
 
@@ -174,7 +175,8 @@ describe('deploy/install.sh', () => {
       /^\+ mv -T \/opt\/turnwise\/\.current\.new \/opt\/turnwise\/current$/,
       /^\+ install -D -m 0644 \S+\/deploy\/turnwise\.service \/etc\/systemd\/system\/turnwise\.service$/,
       /^acquisition board USB id: 2e8a:000a -> \/dev\/turnwise-daq$/,
-      /^\+ install -D -m 0644 \S+ \/etc\/udev\/rules\.d\/60-turnwise\.rules$/,
+      /^\+ install -D -m 0644 \S+ \/etc\/udev\/rules\.d\/70-turnwise-daq\.rules$/,
+      /^\+ install -D -m 0644 \S+\/deploy\/udev\/99-turnwise-gpio\.rules \/etc\/udev\/rules\.d\/99-turnwise-gpio\.rules$/,
       /^\+ udevadm control --reload-rules$/,
       /^\+ install -D -m 0644 \S+\/deploy\/journald-turnwise\.conf \/etc\/systemd\/journald\.conf\.d\/60-turnwise\.conf$/,
       /^\+ ln -sfn \/opt\/turnwise\/current\/dist\/agent\/cli\/main\.js \/usr\/local\/bin\/turnwise$/,
@@ -255,8 +257,9 @@ if (cmd === 'check-config') {
       expect(readFileSync(join(root, 'etc/systemd/system/turnwise.service'), 'utf8')).toBe(readFileSync(UNIT_FILE, 'utf8'));
       const dropIn = readFileSync(join(root, 'etc/systemd/system/turnwise.service.d/10-node.conf'), 'utf8');
       expect(dropIn).toContain(`[Service]\nExecStart=\nExecStart=${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js run --config /etc/turnwise/turnwise.yaml\n`);
-      const rules = readFileSync(join(root, 'etc/udev/rules.d/60-turnwise.rules'), 'utf8');
-      expect(rules).toContain('ATTRS{idVendor}=="2e8a", ATTRS{idProduct}=="000a", SYMLINK+="turnwise-daq"');
+      const rules = readFileSync(join(root, 'etc/udev/rules.d/70-turnwise-daq.rules'), 'utf8');
+      expect(rules).toContain('ATTRS{idVendor}=="2e8a", ATTRS{idProduct}=="000a", ENV{ID_MM_DEVICE_IGNORE}="1"');
+      expect(readFileSync(join(root, 'etc/udev/rules.d/99-turnwise-gpio.rules'), 'utf8')).toBe(readFileSync(GPIO_RULES, 'utf8'));
       expect(readFileSync(join(root, 'etc/systemd/journald.conf.d/60-turnwise.conf'), 'utf8')).toContain('SystemMaxUse=200M');
       expect(existsSync(join(root, 'etc/turnwise/turnwise.yaml.example'))).toBe(true);
       expect(readlinkSync(join(root, 'usr/local/bin/turnwise'))).toBe('/opt/turnwise/current/dist/agent/cli/main.js');
@@ -271,7 +274,7 @@ if (cmd === 'check-config') {
       expect(r.out).toMatch(/^release 9\.9\.1-[0-9a-f]{10} is already installed$/m);
       expect(r.out).toContain('current release is already 9.9.1-');
       expect(r.out).toContain('unchanged: /etc/systemd/system/turnwise.service');
-      expect(r.out).toContain('unchanged: /etc/udev/rules.d/60-turnwise.rules'); // USB id kept from the installed rules
+      expect(r.out).toContain('unchanged: /etc/udev/rules.d/70-turnwise-daq.rules'); // USB id kept from the installed rules
       // Only the offline enable and the skipped system calls are printed as actions.
       const actions = r.out.split('\n').filter((l) => l.startsWith('+ ') && !l.startsWith('+ (not run under --root)'));
       expect(actions.map((l) => l.replace(root, 'ROOT'))).toEqual(SYSTEMCTL ? ['+ systemctl --root=ROOT enable turnwise.service'] : []);
@@ -323,7 +326,7 @@ if (cmd === 'check-config') {
       mkdirSync(join(root, 'var/lib/turnwise'), { recursive: true });
       const r = run(['--root', root, '--uninstall']);
       expect(r.code).toBe(0);
-      for (const p of ['opt/turnwise', 'etc/systemd/system/turnwise.service', 'etc/udev/rules.d/60-turnwise.rules', 'etc/systemd/journald.conf.d/60-turnwise.conf', 'usr/local/bin/turnwise']) {
+      for (const p of ['opt/turnwise', 'etc/systemd/system/turnwise.service', 'etc/udev/rules.d/70-turnwise-daq.rules', 'etc/udev/rules.d/99-turnwise-gpio.rules', 'etc/systemd/journald.conf.d/60-turnwise.conf', 'usr/local/bin/turnwise']) {
         expect(existsSync(join(root, p)), p).toBe(false);
       }
       if (SYSTEMCTL) expect(existsSync(join(root, 'etc/systemd/system/multi-user.target.wants/turnwise.service'))).toBe(false);

@@ -124,9 +124,9 @@ describe('log helpers', () => {
 });
 
 describe('logging: config section', () => {
-  it('defaults to info, automatic prefix, summaries every 10 min; maps to logger options', () => {
+  it('defaults to info and an automatic prefix; maps to logger options', () => {
     const cfg = validateConfig(minimalConfig());
-    expect(cfg.logging).toEqual({ level: 'info', syslog_prefix: 'auto', repeat_summary_min: 10 });
+    expect(cfg.logging).toEqual({ level: 'info', syslog_prefix: 'auto' });
     expect(pinoOptionsFromConfig(cfg.logging)).toEqual({ level: 'info', syslogPrefix: 'auto' });
     const on = validateConfig({ ...minimalConfig(), logging: { level: 'debug', syslog_prefix: 'on' } });
     expect(pinoOptionsFromConfig(on.logging)).toEqual({ level: 'debug', syslogPrefix: true });

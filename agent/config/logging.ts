@@ -8,14 +8,8 @@ export const loggingSchema = z
       .enum(['auto', 'on', 'off'])
       .default('auto')
       .describe('Syslog priority prefix (<3> error, <4> warn, <6> info, <7> debug) in front of each line, so `journalctl -p warning` works. auto: on when stdout is the systemd journal.'),
-    repeat_summary_min: z
-      .number()
-      .positive()
-      .max(1440)
-      .default(10)
-      .describe('A problem that keeps repeating is logged once, then summarised every this many minutes while it goes on.'),
   })
   .strict()
-  .default({ level: 'info', syslog_prefix: 'auto', repeat_summary_min: 10 });
+  .default({ level: 'info', syslog_prefix: 'auto' });
 
 export type LoggingConfig = z.infer<typeof loggingSchema>;

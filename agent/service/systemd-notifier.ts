@@ -1,6 +1,6 @@
 import { spawn, type ChildProcess } from 'node:child_process';
 import type { Logger } from '../log.js';
-import { BurstLog } from '../logging/burst.js';
+import { BurstLog } from '../burst-log.js';
 import { systemTimers, type Timers } from '../timers.js';
 import { NoopNotifier, notifyMessage, type ServiceNotifier } from './notifier.js';
 
@@ -22,7 +22,9 @@ import { NoopNotifier, notifyMessage, type ServiceNotifier } from './notifier.js
  *   python3 is on the board anyway: node-gyp needs it to build epoll, and deploy/install.sh
  *   installs it.
  *
- * The relay is restarted with back-off if it dies; up to 16 messages wait for it meanwhile.
+ * The relay is restarted with back-off if it dies; up to 16 messages wait for it meanwhile. The
+ * first failure is logged as an error; repeats are counted and summarised (BurstLog, flushed on
+ * every message, i.e. at least every watchdog period).
  */
 
 /**
@@ -106,7 +108,7 @@ export class SystemdNotifier implements ServiceNotifier {
     const env = opts.env ?? process.env;
     this.logger = opts.logger;
     this.timers = opts.timers ?? systemTimers;
-    this.problems = new BurstLog(this.logger, this.timers);
+    this.problems = new BurstLog(this.logger, { nowMs: () => this.timers.now(), quietMs: 5 * 60_000, summaryEveryMs: 10 * 60_000 });
     this.python = opts.python ?? 'python3';
     this.path = env.PATH ?? '/usr/local/bin:/usr/bin:/bin';
     this.watchdogPingMs = watchdogPingMsFromEnv(env, opts.pid ?? process.pid);
@@ -133,7 +135,7 @@ export class SystemdNotifier implements ServiceNotifier {
 
   private async shutdown(): Promise<void> {
     this.cancelRestart?.();
-    this.problems.flush();
+    this.problems.flush(true);
     const child = this.child;
     if (!child || child.exitCode !== null || child.signalCode !== null) return;
     await new Promise<void>((resolve) => {
@@ -151,6 +153,7 @@ export class SystemdNotifier implements ServiceNotifier {
 
   private send(msg: string): void {
     if (this.closing) return;
+    this.problems.flush();
     const line = JSON.stringify(msg) + '\n';
     const stdin = this.child?.stdin;
     if (stdin && stdin.writable) {
@@ -163,7 +166,7 @@ export class SystemdNotifier implements ServiceNotifier {
 
   private startRelay(): void {
     this.cancelRestart = null;
-    this.startedAt = this.timers.nowMs();
+    this.startedAt = this.timers.now();
     const child = spawn(this.python, ['-I', '-S', '-c', 'import os; exec(os.environ["TURNWISE_RELAY_PY"])', 'turnwise-sd-notify-relay'], {
       stdio: ['pipe', 'ignore', 'pipe'],
       env: { NOTIFY_SOCKET: this.socketName, TURNWISE_RELAY_PY: RELAY_PY, PATH: this.path, LC_ALL: 'C.UTF-8' },
@@ -176,7 +179,7 @@ export class SystemdNotifier implements ServiceNotifier {
       const lines = (partial + chunk).split('\n');
       partial = lines.pop()!;
       for (const l of lines) {
-        if (l.trim()) this.problems.warn('sd-notify-send', { relay_said: l.trim() }, 'the sd_notify relay could not send a message to systemd');
+        if (l.trim()) this.problems.report('sd-notify-send', 'the sd_notify relay could not send a message to systemd', { relay_said: l.trim() });
       }
     });
     child.on('error', (err) => {
@@ -193,14 +196,13 @@ export class SystemdNotifier implements ServiceNotifier {
     if (this.child !== child) return; // already handled ('error' and 'exit' can both come)
     this.child = null;
     if (this.closing) return;
-    if (this.timers.nowMs() - this.startedAt > 60_000) this.failures = 0;
+    if (this.timers.now() - this.startedAt > 60_000) this.failures = 0;
     this.failures++;
     const delayMs = Math.min(60_000, 1000 * 2 ** (this.failures - 1));
-    this.problems.error(
-      'sd-notify-relay',
-      { reason: why, python: this.python, retry_in_s: delayMs / 1000 },
-      'the sd_notify relay stopped: systemd hears nothing from the agent until it is back, and restarts the service when its watchdog runs out. Check that python3 is installed (deploy/install.sh installs it)',
-    );
+    const fields = { reason: why, python: this.python, retry_in_s: delayMs / 1000 };
+    const msg = 'the sd_notify relay stopped: systemd hears nothing from the agent until it is back, and restarts the service when its watchdog runs out. Check that python3 is installed (deploy/install.sh installs it)';
+    if (this.failures === 1) this.logger.error(fields, msg);
+    else this.problems.report('sd-notify-relay', msg, fields);
     this.cancelRestart = this.timers.after(delayMs, () => this.startRelay());
   }
 }
