@@ -26,6 +26,9 @@ function which(cmd: string): string | null {
 const SYSTEMD_ANALYZE = which('systemd-analyze');
 const SHELLCHECK = which('shellcheck');
 const SYSTEMCTL = which('systemctl');
+for (const [tool, pkg] of [[SYSTEMD_ANALYZE, 'systemd'], [SHELLCHECK, 'shellcheck']] as const) {
+  if (!tool) console.warn(`test/deploy.test.ts: ${pkg} is not installed, its checks are SKIPPED (apt-get install ${pkg})`);
+}
 /** Test names carry the reason when a tool is missing, so a skip is never silent. */
 const needs = (tool: string | null, pkg: string, name: string) => (tool ? name : `${name} [SKIPPED: ${pkg} is not installed; apt-get install ${pkg}]`);
 

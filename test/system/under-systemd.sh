@@ -47,6 +47,7 @@ log.info({ n: 2 }, 'probe info line');
 log.warn({ n: 3 }, 'probe warn line');
 log.error({ n: 4, password: 'hunter2' }, 'probe error line');
 const tryWrite = (f) => { try { writeFileSync(f, 'x'); return 'ok'; } catch (e) { return e.code; } };
+const tryRead = (f) => { try { readFileSync(f); return 'ok'; } catch (e) { return e.code; } };
 const tryList = (d) => { try { readdirSync(d); return 'ok'; } catch (e) { return e.code; } };
 const groupNames = readFileSync('/etc/group', 'utf8').split('\n').map((l) => l.split(':')).filter((f) => process.getgroups().includes(Number(f[2]))).map((f) => f[0]).sort();
 log.info({
@@ -54,6 +55,7 @@ log.info({
     uid: process.getuid(), groups: groupNames.join(' '), cwd: process.cwd(),
     state_directory: process.env.STATE_DIRECTORY ?? null,
     // /var/lib/tw-probe-owned belongs to the service user: only ProtectSystem=strict stops the write.
+    read_config: tryRead('/etc/turnwise/turnwise.yaml'), read_secret: tryRead('/etc/turnwise/mqtt-password'),
     write_state: tryWrite('/var/lib/turnwise/probe'), write_own_dir_outside_state: tryWrite('/var/lib/tw-probe-owned/probe'),
     list_root_home: tryList('/root'), write_tmp: tryWrite('/tmp/probe'),
   },
@@ -81,6 +83,8 @@ show() { for p in ActiveState SubState NRestarts StatusText; do printf '%s=%s ' 
 /srv/turnwise/deploy/install.sh --no-apt --daq-usb-id 2e8a:000a >/probe/install.log 2>&1
 echo "install_rc=$?" >/probe/results.txt
 sed 's#^state_dir: .*#state_dir: /var/lib/turnwise#' /etc/turnwise/turnwise.yaml.example >/etc/turnwise/turnwise.yaml
+# A secret the way README says to put one there: readable by the service user only.
+printf 'not-a-real-password\n' | install -m 0600 -o turnwise -g turnwise /dev/stdin /etc/turnwise/mqtt-password
 mkdir -p /etc/systemd/system/turnwise.service.d
 cat >/etc/systemd/system/turnwise.service.d/50-probe.conf <<'CONF'
 [Service]
@@ -155,8 +159,8 @@ check "priorities stored as sent (<7> <6> <4> <3>)" node -e '
   const got = ["probe debug line", "probe info line", "probe warn line", "probe error line"].map(pri).join(",");
   if (got !== "7,6,4,3") { console.error("priorities: " + got); process.exit(1); }' "$P/journal.json"
 check "secret redacted in the journal" bash -c "! grep -q hunter2 '$P/journal.txt' && grep -q '\"password\":\"\\[redacted\\]\"' '$P/journal.txt'"
-check "sandbox: state dir writable, the rest read-only, /root hidden, groups dialout and gpio" \
-  grep -qE '"groups":"dialout gpio turnwise".*"write_state":"ok","write_own_dir_outside_state":"EROFS","list_root_home":"(EACCES|ENOENT)"' "$P/journal.txt"
+check "sandbox: config and a 0600 secret readable, state dir writable, the rest read-only, /root hidden, groups dialout and gpio" \
+  grep -qE '"groups":"dialout gpio turnwise".*"read_config":"ok","read_secret":"ok","write_state":"ok","write_own_dir_outside_state":"EROFS","list_root_home":"(EACCES|ENOENT)"' "$P/journal.txt"
 check "STOPPING=1 with its STATUS arrived, probe stopped itself" bash -c "grep -q '^stopped: .*StatusText=probe stopping on SIGTERM' '$R' && grep -q 'probe stopped' '$P/journal.txt'"
 grep -o '"facts":{[^}]*}' "$P/journal.txt" | head -n1
 echo "--- systemctl status while healthy:"; cat "$P/status.txt"
