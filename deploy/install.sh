@@ -182,6 +182,7 @@ check_node() {
   fi
   local v major minor
   v=$("$NODE" -p 'process.versions.node') || die "$NODE does not run" "check the Node.js installation"
+  [[ "$v" =~ ^[0-9]+\.[0-9]+ ]] || die "$NODE reports version '$v', not a Node.js version" "point TURNWISE_NODE at the node binary"
   major=${v%%.*}
   minor=${v#*.}
   minor=${minor%%.*}
@@ -237,11 +238,12 @@ ensure_user() {
 
 # ---- releases ----------------------------------------------------------------------------------
 release_name() {
-  local version hash
+  local version hash p present=()
   version=$("$NODE" -e 'process.stdout.write(String(require(process.argv[1]).version))' "$SRC_DIR/package.json")
+  for p in "${RELEASE_PATHS[@]}"; do if [ -e "$SRC_DIR/$p" ]; then present+=("$p"); fi; done
   # Content hash: the same tree always gives the same name (a second run finds it installed);
   # a rebuilt tree with the same version number gets a new one.
-  hash=$(cd "$SRC_DIR" && find "${RELEASE_PATHS[@]}" -type f -print0 2>/dev/null | LC_ALL=C sort -z | xargs -0 sha256sum | sha256sum | cut -c1-10)
+  hash=$(cd "$SRC_DIR" && find "${present[@]}" -type f -print0 | LC_ALL=C sort -z | xargs -0 sha256sum | sha256sum | cut -c1-10)
   printf '%s-%s' "$version" "$hash"
 }
 
