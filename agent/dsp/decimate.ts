@@ -231,6 +231,11 @@ export class DecimatorPlan {
   /** Input rate / output rate (a power of two; 1 when no stage is needed). */
   readonly factor: number;
   readonly outputRateHz: number;
+  /**
+   * Input samples a fresh decimator takes in before its first output (the cascade's window span
+   * minus one): the sum over stages i = 0, 1, ... of 2^i (taps_i - 1).
+   */
+  readonly startupSamples: number;
 
   /**
    * @param inputRateHz sample rate of the signal
@@ -242,13 +247,13 @@ export class DecimatorPlan {
     readonly inputRateHz: number,
     readonly bandHighHz: number,
     minOutputRateHz: number,
-    readonly attenuationDbWanted = DEFAULT_ATTENUATION_DB,
+    attenuationDb = DEFAULT_ATTENUATION_DB,
   ) {
     if (!(minOutputRateHz > 2 * bandHighHz)) throw new Error(`decimator output rate ${minOutputRateHz} Hz leaves no transition band above ${bandHighHz} Hz`);
     const stages: HalfBandStageDesign[] = [];
     let rate = inputRateHz;
     while (rate / 2 >= minOutputRateHz) {
-      stages.push(designHalfBand(rate, bandHighHz, attenuationDbWanted));
+      stages.push(designHalfBand(rate, bandHighHz, attenuationDb));
       rate /= 2;
     }
     this.stages = stages;
@@ -258,12 +263,6 @@ export class DecimatorPlan {
     stages.forEach((s, i) => (delay += 2 ** i * (s.taps.length - 1)));
     this.startupSamples = delay;
   }
-
-  /**
-   * Input samples a fresh decimator takes in before its first output (the cascade's window span
-   * minus one): sum over stages i = 0, 1, ... of 2^i (taps_i - 1).
-   */
-  readonly startupSamples: number;
 
   /** Outputs a fresh (or reset) decimator yields from `inputSamples` contiguous samples. */
   outputsFor(inputSamples: number): number {
