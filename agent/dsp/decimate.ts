@@ -295,9 +295,11 @@ class HalfBandState {
 
   /**
    * Computes every output whose input window is complete into out[at..], keeps the unused inputs
-   * for the next call, and returns the number of outputs. Output m is
-   * 0.5 x[s + centre] + sum_j g_j (x[s + 2j] + x[s + last - 2j]) with s = 2m; four outputs are
-   * computed together so each tap is loaded once for four of them.
+   * for the next call, and returns the number of outputs. Output m (s = 2m) is
+   *   0.5 x[s + centre] + sum_j g_j (x[s + 2j] + x[s + last - 2j]).
+   * Four outputs are computed together: for outputs s, s+2, s+4, s+6 the left samples at tap j are
+   * x[s + 2j + 2r], r = 0..3, a window that slides by one sample per tap (likewise the right ones,
+   * the other way), so each tap loads two new samples instead of eight.
    */
   run(out: Float64Array, at: number): number {
     const buf = this.buf;
@@ -313,12 +315,29 @@ class HalfBandState {
       let a1 = 0.5 * buf[s + centre + 2]!;
       let a2 = 0.5 * buf[s + centre + 4]!;
       let a3 = 0.5 * buf[s + centre + 6]!;
-      for (let j = 0, p = s, q = s + last; j < k; j++, p += 2, q -= 2) {
+      let l0 = buf[s]!;
+      let l1 = buf[s + 2]!;
+      let l2 = buf[s + 4]!;
+      let l3 = buf[s + 6]!;
+      let r0 = buf[s + last]!;
+      let r1 = buf[s + last + 2]!;
+      let r2 = buf[s + last + 4]!;
+      let r3 = buf[s + last + 6]!;
+      for (let j = 0, p = s + 8, q = s + last - 2; ; p += 2, q -= 2) {
         const gj = g[j]!;
-        a0 += gj * (buf[p]! + buf[q]!);
-        a1 += gj * (buf[p + 2]! + buf[q + 2]!);
-        a2 += gj * (buf[p + 4]! + buf[q + 4]!);
-        a3 += gj * (buf[p + 6]! + buf[q + 6]!);
+        a0 += gj * (l0 + r0);
+        a1 += gj * (l1 + r1);
+        a2 += gj * (l2 + r2);
+        a3 += gj * (l3 + r3);
+        if (++j === k) break;
+        l0 = l1;
+        l1 = l2;
+        l2 = l3;
+        l3 = buf[p]!;
+        r3 = r2;
+        r2 = r1;
+        r1 = r0;
+        r0 = buf[q]!;
       }
       out[o] = a0;
       out[o + 1] = a1;
