@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { besselI0, Decimator, DecimatorPlan, designHalfBand, type SampleSink } from '../agent/dsp/decimate.js';
+import { Decimator, DecimatorPlan, designHalfBand, equirippleHalfBandTaps, type SampleSink } from '../agent/dsp/decimate.js';
 import { Analyzer } from '../agent/dsp/analyzer.js';
 import { bandRms, SpectrumAccumulator, velocityLinePower } from '../agent/dsp/spectrum.js';
 import { asBlocks, gaussian, synthesize } from './support/synth.js';
@@ -70,20 +70,6 @@ function toneAmplitude(y: Float64Array, f: number, fs: number, from = 0): number
   return Math.hypot((yc * ss - ys * cs) / det, (ys * cc - yc * cs) / det);
 }
 
-describe('Kaiser window building block', () => {
-  it('I0 matches reference values (scipy.special.i0, SciPy 1.17, a general-purpose reference library)', () => {
-    const ref: Array<[number, number]> = [
-      [0.5, 1.0634833707413234],
-      [1, 1.2660658777520082],
-      [2, 2.279585302336067],
-      [5, 27.239871823604442],
-      [10, 2815.716628466254],
-      [14, 129418.56270064856],
-    ];
-    for (const [x, v] of ref) expect(Math.abs(besselI0(x) / v - 1)).toBeLessThan(1e-14);
-  });
-});
-
 describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
   const plan = new DecimatorPlan(25600, 1000, 2560);
 
@@ -106,9 +92,9 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
         expect(h[c - m]).toBe(0);
       }
       for (let m = 1; m <= c; m += 2) expect(h[c + m]).toBe(h[c - m]);
-      // Unity gain at DC, nothing at the input's Nyquist frequency (which folds onto DC).
-      expect(Math.abs(h.reduce((a, b) => a + b, 0) - 1)).toBeLessThan(1e-15);
-      expect(mag(h, s.inputRateHz / 2, s.inputRateHz)).toBeLessThan(1e-14);
+      // Gain 1 at DC and 0 at the input's Nyquist frequency (which folds onto DC), within the ripple.
+      expect(Math.abs(h.reduce((a, b) => a + b, 0) - 1)).toBeLessThanOrEqual(1e-6);
+      expect(mag(h, s.inputRateHz / 2, s.inputRateHz)).toBeLessThanOrEqual(1e-6);
     }
   });
 
@@ -139,27 +125,34 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
     }
   });
 
-  it('is the shortest Kaiser half-band meeting the spec: with 4 taps fewer no window shape reaches it', () => {
-    // Taps built here from the textbook definition: ideal half-band sin(pi m / 2) / (pi m) times a
-    // Kaiser window I0(beta sqrt(1 - (m / c)^2)) / I0(beta) (Oppenheim & Schafer, Discrete-Time
-    // Signal Processing, 3rd ed., sec. 7.5.3, from memory), odd taps scaled to unity DC gain.
+  /** Extrema of A(f) - 1 over [0, edge] on a dense grid (own DTFT), as signed values in order. */
+  const passbandExtrema = (h: Float64Array, rate: number, edge: number): number[] => {
+    const c = (h.length - 1) / 2;
+    const pts = 20000;
+    const e = Array.from({ length: pts + 1 }, (_, i) => {
+      const f = (edge * i) / pts;
+      const H = dtft(h, f, rate);
+      return H.re * Math.cos((2 * Math.PI * f * c) / rate) - H.im * Math.sin((2 * Math.PI * f * c) / rate) - 1;
+    });
+    return e.filter((v, i) => (i === 0 || Math.abs(v) >= Math.abs(e[i - 1]!)) && (i === pts || Math.abs(v) >= Math.abs(e[i + 1]!)));
+  };
+  /** Count of sign alternations among the extrema whose size is within 1 % of the largest. */
+  const alternations = (ext: number[]): number => {
+    const top = Math.max(...ext.map(Math.abs));
+    const big = ext.filter((v) => Math.abs(v) >= 0.99 * top);
+    return big.filter((v, i) => i === 0 || Math.sign(v) !== Math.sign(big[i - 1]!)).length;
+  };
+
+  it('is equiripple, hence the best its length allows, and one tap pair fewer misses the spec (alternation theorem: Parks & McClellan, IEEE Trans. Circuit Theory CT-19, 1972)', () => {
     for (const s of plan.stages) {
-      const c = (s.taps.length + 1) / 2 - 3; // centre index of the filter with K - 1
-      let best = Infinity;
-      for (let beta = 0; beta <= 25; beta += 0.05) {
-        const odd: number[] = [];
-        for (let m = 1; m <= c; m += 2) odd.push((Math.sin((Math.PI * m) / 2) / (Math.PI * m)) * (besselI0(beta * Math.sqrt(1 - (m / c) ** 2)) / besselI0(beta)));
-        const k = 0.25 / odd.reduce((a, b) => a + b, 0);
-        let worst = 0;
-        for (let i = 0; i <= 400; i++) {
-          const f = (s.passbandEdgeHz * i) / 400;
-          let a = 0.5;
-          odd.forEach((h, j) => (a += 2 * k * h * Math.cos((2 * Math.PI * f * (2 * j + 1)) / s.inputRateHz)));
-          worst = Math.max(worst, Math.abs(a - 1));
-        }
-        best = Math.min(best, worst);
-      }
-      expect(best).toBeGreaterThan(1e-6);
+      const k = (s.taps.length + 1) / 4;
+      // An error that reaches its maximum with alternating signs at K+1 frequencies is minimax.
+      expect(alternations(passbandExtrema(s.taps, s.inputRateHz, s.passbandEdgeHz))).toBeGreaterThanOrEqual(k + 1);
+      // The same for K-1 pairs: the best any shorter half-band can do, and it is not good enough.
+      const shorter = equirippleHalfBandTaps(k - 1, s.passbandEdgeHz / s.inputRateHz)!.taps;
+      const ext = passbandExtrema(shorter, s.inputRateHz, s.passbandEdgeHz);
+      expect(alternations(ext)).toBeGreaterThanOrEqual(k);
+      expect(Math.max(...ext.map(Math.abs))).toBeGreaterThan(1e-6);
     }
   });
 
@@ -359,8 +352,9 @@ describe('the analyzer with decimation', () => {
     const cut = 10 * fs + 1234; // samples [cut, cut + lost) never arrive
     const lost = 3 * fs;
     // The stretch after the gap is 10 outputs short of two 4096-point segments once the restarted
-    // filters have filled (258 samples); filters that kept their history would deliver two.
-    const after = 258 + 1 + 8 * (2 * 4096 - 10 - 1);
+    // filters have filled; filters that kept their history would deliver two.
+    const plan = new DecimatorPlan(fs, 1000, 2560);
+    const after = plan.startupSamples + 1 + 8 * (2 * 4096 - 10 - 1);
     const total = cut + lost + after;
     const sig = synthesize({ sampleRate: fs, seconds: total / fs, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 6, phaseDeg: 40 }], tones: [{ freqHz: 3200, accelPk: 5 * G }], noiseMmS2: 300 }], tachChannel: 1, seed: 3 });
     const an = new Analyzer({ config: cfg, sampleRate: fs, channelCount: 2, maxBlock: 4096 });
@@ -381,10 +375,8 @@ describe('the analyzer with decimation', () => {
     const w = an.takeWindow();
     expect(w.gap_samples).toBe(lost);
     // Each contiguous stretch is decimated on its own (filters restarted, partial segment dropped).
-    const plan = new DecimatorPlan(fs, 1000, 2560);
     const N = an.spectrumSize;
     expect(N).toBe(4096);
-    expect(plan.startupSamples).toBe(258);
     expect(plan.outputsFor(after)).toBe(2 * N - 10);
     expect(w.spectrum_segments).toBe(Math.floor(plan.outputsFor(cut) / N) + 1);
     // 6 mm/s pk at 1x, plus white noise: (2 sigma^2 / fs) / (4 pi^2) (1/10 - 1/1000) (textbook relations).
