@@ -43,10 +43,15 @@ export interface SourceInfo {
   readonly totalSamples?: number;
 }
 
+/** Counters and states a live source reports for the heartbeat; field names carry their units. */
+export type SourceHealth = Readonly<Record<string, number | string | boolean | null>>;
+
 export interface SampleSource {
   /** Opens the source and reads its format. Rejects with a UserError naming the problem. */
   open(): Promise<SourceInfo>;
   /** Yields items until the source ends (recording) or close() is called (live). */
   items(): AsyncIterable<SourceItem>;
   close(): Promise<void>;
+  /** Live sources: health counters (frames, errors, gaps, reconnects ...) for the heartbeat. */
+  health?(): SourceHealth;
 }

@@ -145,6 +145,12 @@ describe('tach', () => {
     expect(t.doubleTriggers).toBe(1);
   });
 
+  it('does not average a revolution whose length jumps from the previous one', () => {
+    const { revs, t } = track([0, 1000, 2000, 3000, 3750, 4750, 5750]);
+    for (const [a, b] of revs) expect(b - a).toBe(1000);
+    expect(t.unevenRevolutions).toBeGreaterThan(0);
+  });
+
   it('groups pulses_per_rev pulses into one revolution', () => {
     const edges = Array.from({ length: 13 }, (_, i) => i * 250);
     const { revs } = track(edges, 4);
@@ -228,5 +234,36 @@ describe('spectrum and integration to velocity', () => {
     expect(planSpectrumSize(25600, 1)).toBe(32768);
     expect(planSpectrumSize(25600, 0.25)).toBe(131072);
     expect(planSpectrumSize(25600, 1, 25600 * 2)).toBe(16384);
+  });
+});
+
+describe('live vectors', () => {
+  it('follow a step change within a few dozen revolutions while the window keeps the whole average', async () => {
+    const { Analyzer } = await import('../agent/dsp/analyzer.js');
+    const { asBlocks, synthesize } = await import('./support/synth.js');
+    const { testConfig } = await import('./support/config.js');
+    const fs = 25600;
+    // 1x moves from 6 mm/s at 40 deg to 6 mm/s at 100 deg (a phase swing at constant amplitude) at t = 6 s.
+    const sig = synthesize({
+      sampleRate: fs,
+      seconds: 12,
+      rpm: () => 1485,
+      channels: [{ orders: [{ order: 1, velPk: 6, phaseDeg: 40, untilS: 6 }, { order: 1, velPk: 6, phaseDeg: 100, fromS: 6 }] }],
+      tachChannel: 1,
+    });
+    const an = new Analyzer({ config: testConfig([['DE-V', 0, 'DE', 'vertical']]), sampleRate: fs, channelCount: 2, maxBlock: 1024, liveRevolutions: 16 });
+    const phases: Array<[number, number]> = [];
+    for (const b of asBlocks(sig, 1024)) {
+      an.push(b);
+      const f = an.liveFrame();
+      if (f.speed_rpm) phases.push([f.sample_index / fs, f.channels[0]!.orders['1']!.phase_deg]);
+    }
+    const at = (t: number) => phases.find(([s]) => s >= t)![1];
+    expect(Math.abs(at(5.9) - 40)).toBeLessThan(1);
+    expect(Math.abs(at(6 + (6 * 16) / 24.75) - 100)).toBeLessThan(1.5); // six time constants later
+    const w = an.takeWindow();
+    // The window average of two equal vectors 60 deg apart: amplitude 6 cos 30 deg, phase 70 deg.
+    expect(w.channels[0]!.orders['1']!.phase_deg).toBeCloseTo(70, 0);
+    expect(w.channels[0]!.orders['1']!.amp_pk_mm_s).toBeCloseTo(6 * Math.cos(Math.PI / 6), 1);
   });
 });

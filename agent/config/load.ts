@@ -22,7 +22,8 @@ function describeFound(value: unknown): string {
   return String(value);
 }
 
-function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
+/** The value at a zod issue path inside the raw parsed document (undefined when absent). */
+export function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
   let cur: unknown = root;
   for (const p of path) {
     if (cur === null || typeof cur !== 'object') return undefined;
@@ -31,12 +32,15 @@ function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
   return cur;
 }
 
-/** One line per problem: where, what was expected, what was found. */
-export function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown): string[] {
+/**
+ * One line per problem: where, what was expected, what was found. `keysReference` names the document
+ * to check spelling against when a key is unknown.
+ */
+export function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown, keysReference = 'config/turnwise.schema.json'): string[] {
   return issues.map((iss) => {
     const where = formatPath(iss.path);
     if (iss.code === 'unrecognized_keys') {
-      return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against config/turnwise.schema.json`;
+      return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against ${keysReference}`;
     }
     const found = describeFound(valueAt(raw, iss.path));
     return `${file}: ${where}: ${iss.message} (found ${found})`;
@@ -53,14 +57,17 @@ export function validateConfig(raw: unknown, file = 'config'): Config {
   return res.data;
 }
 
-/** Reads and validates a YAML config file. Throws UserError naming the file and each problem. */
-export function loadConfig(file: string): Config {
+/**
+ * Reads a YAML file into plain data. `kind` names the file in messages ("config", "scenario") and
+ * `example` is a path shown when the file is missing. Throws UserError for unreadable files and bad YAML.
+ */
+export function readYamlFile(file: string, kind: string, example: string): unknown {
   let text: string;
   try {
     text = readFileSync(file, 'utf8');
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    throw new UserError(file, code === 'ENOENT' ? 'config file not found' : `cannot read config file (${code ?? String(e)})`, 'give the path of a YAML config, e.g. config/example.yaml');
+    throw new UserError(file, code === 'ENOENT' ? `${kind} file not found` : `cannot read ${kind} file (${code ?? String(e)})`, `give the path of a YAML ${kind}, e.g. ${example}`);
   }
   const doc = parseDocument(text, { prettyErrors: true });
   if (doc.errors.length > 0) {
@@ -69,5 +76,10 @@ export function loadConfig(file: string): Config {
     const at = pos ? `line ${pos.line}, column ${pos.col}` : 'unknown position';
     throw new UserError(file, `not valid YAML at ${at}: ${first.message.split('\n')[0]}`, 'fix the YAML syntax (indentation, colons, quotes)');
   }
-  return validateConfig(doc.toJS(), file);
+  return doc.toJS();
+}
+
+/** Reads and validates a YAML config file. Throws UserError naming the file and each problem. */
+export function loadConfig(file: string): Config {
+  return validateConfig(readYamlFile(file, 'config', 'config/example.yaml'), file);
 }

@@ -1,4 +1,9 @@
 import { z } from 'zod';
+import { acquisitionSchema } from './acquisition.js';
+import { advisorySchema } from './advisory.js';
+import { balanceSchema } from './balance.js';
+import { mqttSchema } from './mqtt.js';
+import { watcherSchema } from './watcher.js';
 
 /**
  * The one configuration schema. Every key a user can write lives here, with its meaning.
@@ -77,7 +82,14 @@ export const configSchema = z
     tach: tachSchema,
     sensors: z.array(sensorSchema).min(1),
     dsp: dspSchema,
+    acquisition: acquisitionSchema.optional().describe('Where the samples come from (recording, serial board, simulator).'),
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
+    balance: balanceSchema,
+
+    watcher: watcherSchema,
+
+    mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
+    advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
   })
   .strict()
   .superRefine((cfg, ctx) => {

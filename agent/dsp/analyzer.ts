@@ -6,7 +6,7 @@ import { Decimator, DecimatorPlan } from './decimate.js';
 import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, SpectrumPlan, velocityLinePower } from './spectrum.js';
 import { orderComponent, SampleRing, SyncAverager, wrapDeg } from './sync-average.js';
 import { RevolutionTracker, rpmFromPeriod, TachDetector } from './tach.js';
-import type { ChannelResult, OrderVector, WindowResult } from './types.js';
+import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './types.js';
 
 /**
  * The measurement core: source items in, one WindowResult per window out.
@@ -38,6 +38,8 @@ export interface AnalyzerOptions {
   readonly boardTimesTach?: boolean;
   /** Description of the source for error messages (file name, device). */
   readonly sourceName?: string;
+  /** Time constant of the live vectors, revolutions. */
+  readonly liveRevolutions?: number;
 }
 
 /** Picks the spectrum size: the line spacing asked for, reduced so that short records still give 2 segments. */
@@ -87,6 +89,9 @@ export class Analyzer {
   private firstRawEdge = NaN;
   private lastRawEdge = NaN;
   private readonly boardTimesTach: boolean;
+  private livePeriod = 0;
+  private lastRevEnd = NaN;
+  private readonly liveDecay: number;
 
   constructor(opts: AnalyzerOptions) {
     const { config: cfg, sampleRate, channelCount } = opts;
@@ -94,6 +99,7 @@ export class Analyzer {
     this.cfg = cfg;
     this.sampleRate = sampleRate;
     this.boardTimesTach = opts.boardTimesTach ?? false;
+    this.liveDecay = 1 - 1 / Math.max(1, opts.liveRevolutions ?? 32);
     const maxBlock = opts.maxBlock ?? 65536;
 
     const lastCh = channelCount - 1;
@@ -138,7 +144,7 @@ export class Analyzer {
       accel: new AccelerationStage(s.sensitivity_mv_per_g, sampleRate),
       stats: new RawStats(s.full_scale_v ?? Infinity),
       ring: new SampleRing(ringSize),
-      avg: new SyncAverager(cfg.dsp.resample_points),
+      avg: new SyncAverager(cfg.dsp.resample_points, opts.liveRevolutions),
       decimator: new Decimator(decimation),
       spectrum: new SpectrumAccumulator(plan),
     }));
@@ -159,6 +165,8 @@ export class Analyzer {
     for (const c of this.chans) if (!c.ring.holds(from, to)) return;
     for (const c of this.chans) c.avg.addRevolution(c.ring, start, end);
     const p = end - start;
+    this.livePeriod = this.livePeriod * this.liveDecay + p;
+    this.lastRevEnd = end;
     this.sumPeriod += p;
     if (p < this.minPeriod) this.minPeriod = p;
     if (p > this.maxPeriod) this.maxPeriod = p;
@@ -238,6 +246,34 @@ export class Analyzer {
     return `${this.rawEdges} tach pulses found but their spacing is too irregular to trust any revolution (about ${apparent.toFixed(0)} r/min on average): check the pickup and tach.pulses_per_rev`;
   }
 
+  /** Order vectors in velocity from an averaged revolution of acceleration. */
+  private velocityOrders(sum: Float64Array, weight: number, fRev: number): Record<string, OrderVector> {
+    const orders: Record<string, OrderVector> = {};
+    for (const k of this.orders) {
+      const a = orderComponent(sum, weight, k);
+      const f = k * fRev;
+      const pk = a.amp / (2 * Math.PI * f);
+      // Velocity lags acceleration by a quarter of the order's cycle.
+      orders[String(k)] = { order: k, freq_hz: f, amp_pk_mm_s: pk, amp_rms_mm_s: pk / Math.SQRT2, phase_deg: wrapDeg(a.phaseDeg + 90) };
+    }
+    return orders;
+  }
+
+  /** The live vectors now (cheap: a few hundred multiply-adds per channel). */
+  liveFrame(): LiveFrame {
+    const c0 = this.chans[0];
+    const weight = c0?.avg.liveWeight ?? 0;
+    const now = this.nextIndex ?? 0;
+    const fRev = weight > 0 ? this.sampleRate / (this.livePeriod / weight) : null;
+    return {
+      sample_index: now,
+      speed_rpm: fRev !== null ? fRev * 60 : null,
+      revolutions_weight: weight,
+      age_s: Number.isNaN(this.lastRevEnd) ? Infinity : (now - this.lastRevEnd) / this.sampleRate,
+      channels: this.chans.map((c) => ({ id: c.id, orders: fRev !== null ? this.velocityOrders(c.avg.live, weight, fRev) : {} })),
+    };
+  }
+
   /** Closes the current window: results over everything since the previous call. */
   takeWindow(): WindowResult {
     const fs = this.sampleRate;
@@ -252,16 +288,7 @@ export class Analyzer {
     const speedSpread = revs > 0 ? (this.maxPeriod - this.minPeriod) / meanPeriod : 0;
 
     const channels: ChannelResult[] = this.chans.map((c) => {
-      const orders: Record<string, OrderVector> = {};
-      if (revs > 0 && fRev !== null) {
-        for (const k of this.orders) {
-          const a = orderComponent(c.avg.sum, revs, k);
-          const f = k * fRev;
-          const pk = a.amp / (2 * Math.PI * f);
-          // Velocity lags acceleration by a quarter of the order's cycle.
-          orders[String(k)] = { order: k, freq_hz: f, amp_pk_mm_s: pk, amp_rms_mm_s: pk / Math.SQRT2, phase_deg: wrapDeg(a.phaseDeg + 90) };
-        }
-      }
+      const orders = revs > 0 && fRev !== null ? this.velocityOrders(c.avg.sum, revs, fRev) : {};
       const sp = c.spectrum;
       let overall: number | null = null;
       let peaks: ChannelResult['nonsync_peaks'] = [];

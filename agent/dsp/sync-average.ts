@@ -51,9 +51,22 @@ export class SampleRing {
 export class SyncAverager {
   readonly sum: Float64Array;
   revolutions = 0;
+  /**
+   * Exponentially weighted average for the live view: each revolution is added with weight 1 and
+   * older ones fade by `liveDecay` per revolution, so the live vectors follow a balancing run within
+   * a few seconds while the window sum keeps every revolution equally.
+   */
+  readonly live: Float64Array;
+  liveWeight = 0;
+  private readonly liveDecay: number;
 
-  constructor(readonly points: number) {
+  constructor(
+    readonly points: number,
+    liveRevolutions = 32,
+  ) {
     this.sum = new Float64Array(points);
+    this.live = new Float64Array(points);
+    this.liveDecay = 1 - 1 / Math.max(1, liveRevolutions);
   }
 
   /** Resamples revolution [start, end] from `ring` and adds it to the sum. The caller checks `ring.holds`. */
@@ -63,13 +76,18 @@ export class SyncAverager {
     const d = ring.data;
     const mask = ring.mask;
     const sum = this.sum;
+    const live = this.live;
+    const decay = this.liveDecay;
     for (let m = 0; m < M; m++) {
       const pos = start + m * step;
       const i0 = Math.floor(pos);
       const f = pos - i0;
       const a = d[i0 & mask]!;
-      sum[m] = sum[m]! + a + f * (d[(i0 + 1) & mask]! - a);
+      const x = a + f * (d[(i0 + 1) & mask]! - a);
+      sum[m] = sum[m]! + x;
+      live[m] = live[m]! * decay + x;
     }
+    this.liveWeight = this.liveWeight * decay + 1;
     this.revolutions++;
   }
 

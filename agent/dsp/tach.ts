@@ -96,6 +96,8 @@ export type RevolutionSink = (start: number, end: number) => void;
 /** Interval ratio limits against the reference interval (common practice: speed changes little in one pulse). */
 const SHORT_RATIO = 0.6;
 const LONG_RATIO = 1.4;
+/** Largest change of revolution length from one revolution to the next that is still averaged. */
+const MAX_REV_CHANGE = 0.1;
 
 export class RevolutionTracker {
   private last: number | undefined;
@@ -104,6 +106,7 @@ export class RevolutionTracker {
   private lastIgnored: number | undefined;
   private revStart: number | undefined;
   private pulsesInRev = 0;
+  private lastRevLength: number | undefined;
   private readonly minPulse: number;
   private readonly maxPulse: number;
   /** Window counters. */
@@ -112,6 +115,8 @@ export class RevolutionTracker {
   doubleTriggers = 0;
   /** Pulses that came regularly faster than max_rpm allows. */
   tooFastPulses = 0;
+  /** Revolutions not averaged because their length changed too much from the previous one. */
+  unevenRevolutions = 0;
   revolutionsRejected = 0;
 
   constructor(
@@ -127,6 +132,7 @@ export class RevolutionTracker {
     if (this.confirmed && this.revStart !== undefined) this.revolutionsRejected++;
     this.revStart = t;
     this.pulsesInRev = 0;
+    this.lastRevLength = undefined;
   }
 
   edge(t: number): void {
@@ -219,6 +225,16 @@ export class RevolutionTracker {
       const start = this.revStart!;
       this.revStart = t;
       this.pulsesInRev = 0;
+      const len = t - start;
+      const prev = this.lastRevLength;
+      this.lastRevLength = len;
+      // Averaging assumes the shaft turns evenly within a revolution: a revolution much longer or
+      // shorter than the previous one (a spliced record, a slipping belt) is counted but not averaged.
+      if (prev !== undefined && Math.abs(len / prev - 1) > MAX_REV_CHANGE) {
+        this.revolutionsRejected++;
+        this.unevenRevolutions++;
+        return;
+      }
       this.sink(start, t);
     }
   }
@@ -232,6 +248,7 @@ export class RevolutionTracker {
     this.lastIgnored = undefined;
     this.revStart = undefined;
     this.pulsesInRev = 0;
+    this.lastRevLength = undefined;
   }
 
   resetWindowStats(): void {
@@ -239,6 +256,7 @@ export class RevolutionTracker {
     this.missingPulses = 0;
     this.doubleTriggers = 0;
     this.tooFastPulses = 0;
+    this.unevenRevolutions = 0;
     this.revolutionsRejected = 0;
   }
 }

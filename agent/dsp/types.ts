@@ -94,3 +94,16 @@ export interface WindowResult {
   /** Plain-language warnings about the measurement itself (short record, speed change, ...). */
   readonly warnings: readonly string[];
 }
+
+/** The live 1x (and other order) vectors, updated every revolution with exponential forgetting. */
+export interface LiveFrame {
+  /** Sample-clock index of the newest sample seen. */
+  readonly sample_index: number;
+  /** Speed from the same weighted average of revolution periods, r/min; null before the first revolution. */
+  readonly speed_rpm: number | null;
+  /** Effective number of revolutions in the live average (sum of weights). */
+  readonly revolutions_weight: number;
+  /** Seconds since the last trusted revolution (large when the tach is lost). */
+  readonly age_s: number;
+  readonly channels: ReadonlyArray<{ readonly id: string; readonly orders: Readonly<Record<string, OrderVector>> }>;
+}

@@ -15,6 +15,10 @@ export interface OrderSpec {
   readonly velPk: number;
   /** Phase lag, degrees of the order's own cycle, from the tach mark to the positive velocity peak. */
   readonly phaseDeg: number;
+  /** Present only from this time on, seconds (a step change). */
+  readonly fromS?: number;
+  /** Present only before this time, seconds. */
+  readonly untilS?: number;
 }
 
 export interface ToneSpec {
@@ -108,6 +112,7 @@ export function synthesize(spec: SynthSpec): Float32Array[] {
       const t = i / fs;
       let a = 0;
       for (const o of ch.orders ?? []) {
+        if ((o.fromS !== undefined && t < o.fromS) || (o.untilS !== undefined && t >= o.untilS)) continue;
         // v = V cos(k theta - phi)  ->  dv/dt = -V k omega sin(k theta - phi)
         a -= o.velPk * o.order * omega[i]! * Math.sin(o.order * theta[i]! - (o.phaseDeg * Math.PI) / 180);
       }

@@ -1,0 +1,158 @@
+/**
+ * Readable text for people: tables of balancing results with units and the angle convention on
+ * every one, and the safety cautions. Pure string builders; the CLI prints them.
+ */
+import { conventionText, type AngleConvention } from './conventions.js';
+import type { BalanceResult, Issue, PlaneWeight } from './job.js';
+import { centrifugalForceN, type SplitPart } from './weights.js';
+
+/** Columns padded to their widest cell; numbers right-aligned (cells starting with a digit or -). */
+export function table(header: readonly string[], rows: readonly (readonly string[])[], indent = '  '): string {
+  const all = [header, ...rows];
+  const widths = header.map((_, c) => Math.max(...all.map((r) => (r[c] ?? '').length)));
+  const numeric = header.map((_, c) => rows.length > 0 && rows.every((r) => /^[-+0-9]/.test(r[c] ?? '')));
+  return all
+    .map((r) =>
+      indent +
+      r
+        .map((cell, c) => (numeric[c] ? cell.padStart(widths[c]!) : cell.padEnd(widths[c]!)))
+        .join('  ')
+        .trimEnd(),
+    )
+    .join('\n');
+}
+
+export function fixed(x: number, digits: number): string {
+  return x.toFixed(digits);
+}
+
+/** Safety cautions shown with every balancing result meant for people. */
+export function balancingCautions(): string[] {
+  const example = centrifugalForceN(50, 600, 1480);
+  return [
+    'Lock out and tag out the fan before anyone touches the rotor, and prove it cannot turn.',
+    `Every weight pulls outward with F = m r omega^2 at speed (50 g at 600 mm at 1480 r/min: about ${fixed(example, 0)} N). Weld or bolt weights only as the fan maker allows; check trial weights are secure before every start.`,
+    'Nobody stands in line with the impeller (in its plane of rotation) at start-up or during the runs.',
+    "These figures support, and do not replace, a competent balancing technician: follow the plant's procedures, local codes and licensed practice.",
+  ];
+}
+
+export function cautionBlock(): string {
+  return 'SAFETY\n' + balancingCautions().map((c) => `  ! ${c}`).join('\n') + '\n';
+}
+
+export function conventionLine(convention: AngleConvention): string {
+  return `Angles: ${conventionText(convention)}.`;
+}
+
+function issueLines(title: string, issues: readonly Issue[]): string {
+  if (!issues.length) return '';
+  return `${title}\n` + issues.map((i) => `  - ${i.message}\n    -> ${i.hint}`).join('\n') + '\n';
+}
+
+function weightRows(ws: readonly PlaneWeight[]): string[][] {
+  return ws.map((w) => [
+    w.plane,
+    fixed(w.mass_g, 1),
+    fixed(w.angle_deg, 1),
+    w.unbalance_g_mm !== undefined ? fixed(w.unbalance_g_mm, 0) : '-',
+    w.force_n !== undefined ? fixed(w.force_n, 0) : '-',
+    w.over_max ? 'OVER max_mass_g' : '',
+  ]);
+}
+
+const WEIGHT_HEADER = ['plane', 'mass g', 'angle deg', 'unbalance g mm', 'force N', ''];
+
+export function formatSolveReport(r: BalanceResult): string {
+  const unit = r.amp_unit ?? 'job unit';
+  const out: string[] = [];
+  out.push(
+    `Balancing job: ${r.planes.length} plane(s) (${r.planes.join(', ')}), ${r.sensors.length} sensor(s) (${r.sensors.join(', ')})` +
+      (r.speed_rpm !== null ? `, ${fixed(r.speed_rpm, 0)} r/min` : '') +
+      (r.method === 'given_coefficients' ? ', trim run from given influence coefficients' : ''),
+  );
+  out.push(conventionLine(r.angle_convention));
+  out.push(`Amplitudes: ${unit}.\n`);
+  if (!r.ok) {
+    out.push('NO CORRECTION GIVEN: the job cannot be solved honestly as it stands.');
+    out.push(issueLines('Problems:', r.problems));
+  } else {
+    out.push('Corrections to add, relative to the rotor as found, with ALL trial weights removed:');
+    out.push(table(WEIGHT_HEADER, weightRows(r.corrections)));
+    out.push('\nOr, leaving the weights of the last run on the rotor, add:');
+    out.push(table(WEIGHT_HEADER, weightRows(r.corrections_trials_left_in)));
+    if (r.static_couple) {
+      const sc = r.static_couple;
+      out.push(
+        `\nThe same correction as static and couple pairs: static ${fixed(sc.static_pair.mass_g_each, 1)} g in each plane at ${fixed(sc.static_pair.angle_deg, 1)} deg; ` +
+          `couple ${fixed(sc.couple_pair.mass_g_each, 1)} g in each plane, ${r.planes[0]} at ${fixed(sc.couple_pair.angle_deg_first_plane, 1)} deg and ${r.planes[1]} at ${fixed(sc.couple_pair.angle_deg_second_plane, 1)} deg.`,
+      );
+    }
+    out.push('');
+  }
+  if (r.influence_coefficients.length) {
+    out.push(`Influence coefficients (1x vector a 1 g weight on the reference mark adds, ${unit} per g):`);
+    out.push(table(['sensor', 'plane', `amp per g`, 'phase deg'], r.influence_coefficients.map((c) => [c.sensor, c.plane, c.amp_per_g.toPrecision(4), fixed(c.phase_deg, 1)])));
+    out.push('');
+  }
+  const pred = new Map(r.predicted_residuals.map((v) => [v.sensor, v]));
+  out.push(`1x vectors (${unit}):`);
+  out.push(
+    table(
+      ['sensor', 'as found', 'phase deg', 'predicted after correction', 'phase deg'],
+      r.as_found.map((v) => {
+        const p = pred.get(v.sensor);
+        const shown = p && p.amp > 0;
+        return [v.sensor, v.amp.toPrecision(3), fixed(v.phase_deg, 1), p ? (shown ? p.amp.toPrecision(3) : '0') : '-', shown ? fixed(p.phase_deg, 1) : '-'];
+      }),
+    ),
+  );
+  if (r.trial_checks.length) {
+    out.push('\nRuns with weights against as found (#n = runs[n]; enough: 30 % in amplitude or 30 deg in phase, common practice):');
+    out.push(
+      table(
+        ['run', 'sensor', 'amp change %', 'phase change deg', 'vector change %', 'enough'],
+        r.trial_checks.map((c) => [`#${c.run}` + (c.label ? ` ${c.label}` : ''), c.sensor, fixed(c.amp_change_pct, 1), fixed(c.phase_change_deg, 1), fixed(c.vector_change_pct, 1), c.moved_enough ? 'yes' : 'no']),
+      ),
+    );
+  }
+  const conds: string[] = [];
+  if (r.condition_number !== null && Number.isFinite(r.condition_number)) conds.push(`influence matrix ${fixed(r.condition_number, 2)}`);
+  if (r.trial_condition_number !== null && Number.isFinite(r.trial_condition_number)) conds.push(`trial-weight matrix ${fixed(r.trial_condition_number, 2)}`);
+  if (conds.length) out.push(`\nCondition numbers: ${conds.join(', ')} (1 is ideal; above 10 reading errors are amplified).`);
+  if (r.unbalance) {
+    const u = r.unbalance;
+    out.push('\nUnbalance estimated from the vibration through the influence coefficients (g mm):');
+    out.push(table(['plane', 'as found', 'at last run'], r.planes.map((p) => [p, fixed(u.as_found_g_mm[p]!, 0), fixed(u.last_run_g_mm[p]!, 0)])));
+    if (u.permissible_g_mm !== null) {
+      out.push(
+        `  ISO 21940-11 permissible residual unbalance ${fixed(u.permissible_g_mm, 0)} g mm for the rotor, ${fixed(u.permissible_per_plane_g_mm!, 0)} g mm per plane if shared equally: ` +
+          `last run ${u.last_run_within_grade ? 'WITHIN' : 'NOT within'} the grade.`,
+      );
+    }
+  }
+  out.push('');
+  out.push(issueLines('Warnings:', r.warnings));
+  return out.filter((l, i, a) => !(l === '' && a[i - 1] === '')).join('\n');
+}
+
+export function formatSplitReport(s: {
+  angle_convention: AngleConvention;
+  mass_g: number;
+  angle_deg: number;
+  moved_mass_g: number;
+  radius_mm: number | null;
+  positions_radius_mm: number | null;
+  weights: readonly SplitPart[];
+}): string {
+  const out: string[] = [];
+  out.push(conventionLine(s.angle_convention));
+  out.push('Positions are numbered from 0 at first_deg, counting in the direction the angles are measured.');
+  out.push(`Weight: ${fixed(s.mass_g, 1)} g at ${fixed(s.angle_deg, 1)} deg` + (s.radius_mm !== null ? `, radius ${fixed(s.radius_mm, 1)} mm` : ''));
+  if (s.radius_mm !== null && s.positions_radius_mm !== null && s.radius_mm !== s.positions_radius_mm) {
+    out.push(`Moved to the positions' radius ${fixed(s.positions_radius_mm, 1)} mm: ${fixed(s.moved_mass_g, 2)} g (mass x ${fixed(s.radius_mm, 1)} / ${fixed(s.positions_radius_mm, 1)}).`);
+  }
+  out.push('Fit:');
+  out.push(table(['position', 'angle deg', 'mass g'], s.weights.map((w) => [String(w.position), fixed(w.angle_deg, 1), fixed(w.mass_g, 2)])));
+  return out.join('\n') + '\n';
+}

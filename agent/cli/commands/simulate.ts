@@ -1,0 +1,155 @@
+import { loadConfig } from '../../config/load.js';
+import { UserError } from '../../errors.js';
+import { fmtVel, round, table, type DisplayUnits } from '../../report/units.js';
+import { parseCommandArgs } from '../args.js';
+import type { Command } from '../command.js';
+import { Progress } from '../progress.js';
+import { formatAt, loadScenario, resolveScenario } from '../../../drivers/sim/scenario.js';
+import { FanSimulator } from '../../../drivers/sim/simulator.js';
+import type { AppliedEvent } from '../../../drivers/sim/state.js';
+import { maxWavFrames, WavWriter } from '../../../drivers/wav/writer.js';
+
+const usage =
+  'turnwise simulate --scenario S.yaml --config CFG.yaml --out REC.wav --seconds N [--from-day D] [--time-scale K] [--seed N] [--json]';
+
+/** Samples per channel rendered and written at a time. */
+const BLOCK = 8192;
+
+function numberOption(name: string, raw: string | undefined, check: (v: number) => boolean, what: string): number | undefined {
+  if (raw === undefined) return undefined;
+  const v = Number(raw);
+  if (!Number.isFinite(v) || !check(v)) throw new UserError(`turnwise simulate --${name}`, `expected ${what}, got "${raw}"`, `usage: ${usage}`);
+  return v;
+}
+
+export const simulateCommand: Command = {
+  name: 'simulate',
+  summary: 'play a scenario on the simulated fan and record it as a WAV file (float32 volts, the board\'s channel map)',
+  usage,
+  async run(argv) {
+    const { values, positionals } = parseCommandArgs('simulate', usage, argv, {
+      scenario: { type: 'string' },
+      config: { type: 'string' },
+      out: { type: 'string' },
+      seconds: { type: 'string' },
+      'from-day': { type: 'string' },
+      'time-scale': { type: 'string' },
+      seed: { type: 'string' },
+      json: { type: 'boolean' },
+    });
+    if (positionals.length > 0) throw new UserError('turnwise simulate', `unexpected argument "${positionals[0]}"`, `usage: ${usage}`);
+    for (const k of ['scenario', 'config', 'out', 'seconds'] as const) {
+      if (!values[k]) throw new UserError('turnwise simulate', `--${k} is required`, `usage: ${usage}`);
+    }
+    const seconds = numberOption('seconds', values.seconds, (v) => v > 0, 'a duration in seconds above 0')!;
+    const fromDay = numberOption('from-day', values['from-day'], (v) => v >= 0 && v <= 3650, 'a scenario day from 0 to 3650') ?? 0;
+    const timeScale = numberOption('time-scale', values['time-scale'], (v) => v > 0 && v <= 1e6, 'a factor above 0 (at most 1e6)') ?? 1;
+    const seed = numberOption('seed', values.seed, (v) => Number.isInteger(v) && v >= 0 && v < 2 ** 31, 'a whole number from 0 to 2^31-1');
+
+    const cfg = loadConfig(values.config!);
+    const plan = resolveScenario(loadScenario(values.scenario!), cfg, values.scenario!, values.config!);
+    const frames = Math.round(seconds * plan.sampleRate);
+    if (frames > maxWavFrames(plan.channelCount)) {
+      throw new UserError('turnwise simulate --seconds', `${seconds} s of ${plan.channelCount} channels at ${plan.sampleRate} Hz would pass the 4 GiB limit of a WAV file`, `record at most ${Math.floor(maxWavFrames(plan.channelCount) / plan.sampleRate)} s per file`);
+    }
+
+    const events: AppliedEvent[] = [];
+    const progress = new Progress('simulating');
+    const human = !values.json;
+    const sim = new FanSimulator(plan, {
+      startS: fromDay * 86400,
+      timeScale,
+      seed,
+      onEvent: (e) => {
+        events.push(e);
+        if (human) process.stderr.write(`${process.stderr.isTTY ? '\r\x1b[K' : ''}${e.text}\n`);
+      },
+    });
+    const startS = sim.scenarioTimeS;
+    const speedStart = sim.speedRpm;
+    const channelMap = [
+      ...plan.sensors.map((s) => ({ channel: s.channel, id: s.id, what: `${cfg.sensors.find((x) => x.id === s.id)!.bearing} ${s.place.direction}` })),
+      { channel: plan.tach.channel, id: 'tach', what: `once-per-turn pulse ${plan.tach.low_v}-${plan.tach.high_v} V` },
+    ].sort((a, b) => a.channel - b.channel);
+    const writer = await WavWriter.create(values.out!, {
+      sampleRate: plan.sampleRate,
+      channelCount: plan.channelCount,
+      comment: `turnwise simulate: ${plan.name}; from ${formatAt(startS)}; channels: ${channelMap.map((c) => `${c.channel}=${c.id}`).join(' ')}; volts`,
+    });
+
+    const buffers = Array.from({ length: plan.channelCount }, () => new Float32Array(BLOCK));
+    const t0 = performance.now();
+    let done = 0;
+    try {
+      while (done < frames) {
+        const n = Math.min(BLOCK, frames - done);
+        sim.render(buffers, n);
+        await writer.write(buffers, n);
+        done += n;
+        progress.update(done, frames, `${(done / plan.sampleRate).toFixed(1)} of ${seconds} s`);
+      }
+    } finally {
+      const bytes = await writer.close();
+      progress.done();
+      const elapsed = (performance.now() - t0) / 1000;
+      const model = sim.modelOrder(1);
+      const summary = {
+        file: values.out!,
+        scenario: plan.name,
+        sample_rate_hz: plan.sampleRate,
+        channels: plan.channelCount,
+        frames: done,
+        duration_s: done / plan.sampleRate,
+        bytes,
+        from_day: fromDay,
+        time_scale: timeScale,
+        start_at: formatAt(startS),
+        end_at: formatAt(sim.scenarioTimeS),
+        speed_start_rpm: round(speedStart, 2),
+        speed_end_rpm: round(sim.speedRpm, 2),
+        channel_map: channelMap.map((c) => ({ channel: c.channel, id: c.id, what: c.what })),
+        events: events.map((e) => ({ at_s: e.at_s, text: e.text })),
+        model_1x_end: model.map((m) => ({ id: m.id, amp_pk_mm_s: round(m.amp_pk_mm_s, 4), amp_rms_mm_s: round(m.amp_pk_mm_s / Math.SQRT2, 4), phase_deg: round(m.phase_deg, 2) })),
+        elapsed_s: round(elapsed, 3),
+        realtime_factor: round(done / plan.sampleRate / elapsed, 1),
+      };
+      if (done === frames) {
+        if (values.json) process.stdout.write(JSON.stringify(summary, null, 2) + '\n');
+        else process.stdout.write(humanSummary(summary, cfg.units));
+      }
+    }
+    return 0;
+  },
+};
+
+type Summary = {
+  file: string;
+  duration_s: number;
+  channels: number;
+  sample_rate_hz: number;
+  bytes: number;
+  start_at: string;
+  end_at: string;
+  speed_start_rpm: number | null;
+  speed_end_rpm: number | null;
+  channel_map: { channel: number; id: string; what: string }[];
+  model_1x_end: { id: string; amp_pk_mm_s: number | null; amp_rms_mm_s: number | null; phase_deg: number | null }[];
+  events: { text: string }[];
+  elapsed_s: number | null;
+  realtime_factor: number | null;
+};
+
+function humanSummary(s: Summary, units: DisplayUnits): string {
+  const rows = s.channel_map.map((c) => {
+    const m = s.model_1x_end.find((x) => x.id === c.id);
+    return [String(c.channel), c.id, c.what, m ? fmtVel(m.amp_rms_mm_s, units) : '-', m?.phase_deg != null ? m.phase_deg.toFixed(0) : '-'];
+  });
+  return (
+    `wrote ${s.file}: ${s.duration_s.toFixed(1)} s, ${s.channels} channels x ${s.sample_rate_hz} Hz, float32 volts, ${(s.bytes / 1e6).toFixed(1)} MB\n` +
+    `scenario time ${s.start_at} to ${s.end_at}; speed ${s.speed_start_rpm?.toFixed(1)} r/min at start, ${s.speed_end_rpm?.toFixed(1)} r/min at end\n` +
+    `model 1x at the end (phase = lag from the tach edge to the positive velocity peak):\n\n` +
+    table(['channel', 'id', 'what', `1x ${units} rms`, '1x phase deg'], rows) +
+    `\n\n${s.events.length} timeline event(s) during the recording\n` +
+    `simulated ${s.duration_s.toFixed(1)} s in ${s.elapsed_s?.toFixed(2)} s (${s.realtime_factor}x real time)\n`
+  );
+}

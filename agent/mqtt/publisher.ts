@@ -1,0 +1,364 @@
+import { connect as mqttConnect, type IClientOptions, type MqttClient } from 'mqtt';
+import type { AgentEvent } from '../events.js';
+import type { AddOutcome, Outbox } from '../outbox/outbox.js';
+import type { Logger } from '../log.js';
+import { BurstReporter } from './burst.js';
+import { SCHEMA_IDS, type HeartbeatPayload, type LinkHealth, type LivePayload, type ReplyPayload, type StatusPayload } from './payloads.js';
+import type { MqttSettings } from './settings.js';
+
+/**
+ * Publishes to the plant broker with mqtt.js, on the project's own terms:
+ * - the durable outbox is the only queue for events: the client is fed only while connected, with
+ *   at most `inflightWindow` unacknowledged QoS 1 messages, and an event is deleted from the outbox
+ *   only on its PUBACK; after a reconnect everything unacknowledged is sent again from the oldest;
+ * - a fresh client per connection attempt (mqtt.js's own reconnect is switched off): no hidden
+ *   in-memory resend, and reconnect runs with exponential backoff and jitter, also after a refused
+ *   CONNACK (bad credentials), saying what is wrong once per burst;
+ * - a publish not acknowledged within `publishTimeoutMs` tears the connection down and rebuilds it;
+ * - nothing here is awaited by the sampling path: `queueEvent` and `publishLive` return at once.
+ */
+
+export type ConnectFn = (url: string, opts: IClientOptions) => MqttClient;
+
+export interface CommandSink {
+  handle(raw: Buffer): Promise<ReplyPayload>;
+  readonly counts: { readonly total: number; readonly refused: number };
+}
+
+export interface PublisherOptions {
+  readonly settings: MqttSettings;
+  readonly asset: string;
+  readonly outbox: Outbox;
+  readonly log: Logger;
+  /** Command router; without it the agent does not subscribe to the command topic. */
+  readonly commands?: CommandSink;
+  /** Health figures of the other stages, put into every heartbeat under `agent`. */
+  readonly health?: () => Record<string, number | string | boolean | null>;
+  readonly connect?: ConnectFn;
+  readonly now?: () => number;
+  readonly random?: () => number;
+  readonly agentVersion?: string;
+}
+
+/** A connection that lasted this long resets the reconnect backoff. */
+const STABLE_MS = 10_000;
+/** QoS 0 live messages are skipped while this many bytes wait in the socket. */
+const LIVE_BACKLOG_BYTES = 64 * 1024;
+const STOP_WAIT_MS = 2000;
+
+interface InFlight {
+  readonly client: MqttClient;
+  readonly timer: NodeJS.Timeout;
+}
+
+/** Why a connection attempt failed or a connection ended, in words with what to do, and a kind for "once per burst". */
+export function describeConnectError(err: unknown): { kind: string; reason: string } {
+  const e = err as (Error & { code?: string | number }) | null;
+  if (!e) return { kind: 'closed', reason: 'the connection was closed' };
+  const code = e.code;
+  if (code === 'PUBLISH_TIMEOUT') return { kind: 'publish-timeout', reason: e.message };
+  if (code === 4 || code === 134) return { kind: 'bad-credentials', reason: 'the broker refused the user name or password; check mqtt.username and mqtt.password' };
+  if (code === 5 || code === 135) {
+    // mosquitto answers a wrong password with "not authorised" too.
+    return { kind: 'not-authorised', reason: "the broker refused the login (not authorised): wrong user name or password, or this client is not allowed; check mqtt.username, mqtt.password and the broker's users" };
+  }
+  if (code === 2 || code === 133) return { kind: 'client-id', reason: 'the broker rejected the client id; set mqtt.client_id' };
+  if (typeof code === 'number') return { kind: `refused-${code}`, reason: `the broker refused the connection (code ${code}: ${e.message})` };
+  if (code === 'ECONNREFUSED') return { kind: code, reason: 'nothing accepts connections there (connection refused); is the broker running and the port right?' };
+  if (code === 'ENOTFOUND' || code === 'EAI_AGAIN') return { kind: code, reason: `cannot resolve the host name (${code}); check the name and the board's DNS` };
+  if (code === 'EHOSTUNREACH' || code === 'ENETUNREACH' || code === 'ETIMEDOUT') return { kind: code, reason: `the broker cannot be reached (${code}); check the network` };
+  if (typeof code === 'string' && (code.startsWith('ERR_TLS') || code.startsWith('ERR_SSL') || code.includes('CERT') || code.includes('SIGNATURE'))) {
+    return { kind: `tls-${code}`, reason: `TLS failed (${code}: ${e.message}); check mqtt.tls.ca_file, the name in the broker certificate (mqtt.tls.servername) and the client certificate` };
+  }
+  if (/connack timeout/i.test(e.message)) return { kind: 'timeout', reason: 'no answer from the broker within mqtt.connect_timeout_s' };
+  return { kind: String(code ?? e.message), reason: e.message };
+}
+
+export class MqttPublisher {
+  private readonly s: MqttSettings;
+  private readonly asset: string;
+  private readonly outbox: Outbox;
+  private readonly log: Logger;
+  private readonly commands?: CommandSink;
+  private readonly extraHealth: () => Record<string, number | string | boolean | null>;
+  private readonly connectFn: ConnectFn;
+  private readonly now: () => number;
+  private readonly random: () => number;
+  private readonly version: string;
+  private readonly burst: BurstReporter;
+
+  private client: MqttClient | null = null;
+  private connected = false;
+  private connectedAt = 0;
+  private sessionStartedTs = '';
+  private lastError: unknown = null;
+  private failures = 0;
+  private readonly inflight = new Map<number, InFlight>();
+  private reconnectTimer: NodeJS.Timeout | null = null;
+  private heartbeatTimer: NodeJS.Timeout | null = null;
+  private unsubscribeOutbox: (() => void) | null = null;
+  private startedAt = 0;
+  private lastLiveAt = -Infinity;
+  private started = false;
+  private stopping = false;
+  private readonly counts = { connects: 0, connect_failures: 0, events_published: 0, publish_timeouts: 0, live_sent: 0, live_skipped: 0 };
+
+  constructor(opts: PublisherOptions) {
+    this.s = opts.settings;
+    this.asset = opts.asset;
+    this.outbox = opts.outbox;
+    this.log = opts.log;
+    this.commands = opts.settings.commandToken ? opts.commands : undefined;
+    this.extraHealth = opts.health ?? (() => ({}));
+    this.connectFn = opts.connect ?? mqttConnect;
+    this.now = opts.now ?? Date.now;
+    this.random = opts.random ?? Math.random;
+    this.version = opts.agentVersion ?? '0.0.0';
+    this.burst = new BurstReporter(opts.log, this.now);
+  }
+
+  /** Starts connecting in the background. Returns at once; the broker may be down. */
+  start(): void {
+    if (this.started) throw new Error('publisher already started');
+    this.started = true;
+    this.startedAt = this.now();
+    this.unsubscribeOutbox = this.outbox.onChange(() => this.pump());
+    this.heartbeatTimer = setInterval(() => this.heartbeat(), this.s.heartbeatMs);
+    this.heartbeatTimer.unref();
+    this.connectNow();
+  }
+
+  /** Adds the payload schema id and queues the event in the durable outbox. Never rejects. */
+  queueEvent(event: AgentEvent): Promise<AddOutcome> {
+    return this.outbox.add({ schema: SCHEMA_IDS.event, ...event });
+  }
+
+  /**
+   * Publishes a live message at QoS 0 when connected and at least `liveIntervalMs` after the last
+   * one; `build` is only called when the message will be sent. Returns whether it was sent.
+   */
+  publishLive(build: () => LivePayload): boolean {
+    if (this.s.liveIntervalMs <= 0) return false;
+    const t = this.now();
+    if (t - this.lastLiveAt < this.s.liveIntervalMs) return false;
+    const c = this.client;
+    const backlog = (c?.stream as { writableLength?: number } | undefined)?.writableLength ?? 0;
+    if (!this.connected || !c || backlog > LIVE_BACKLOG_BYTES) {
+      this.counts.live_skipped++;
+      return false;
+    }
+    this.lastLiveAt = t;
+    c.publish(this.s.topics.live, JSON.stringify(build()), { qos: 0 }, () => {});
+    this.counts.live_sent++;
+    return true;
+  }
+
+  isConnected(): boolean {
+    return this.connected;
+  }
+
+  health(): LinkHealth & { connected: boolean } {
+    return {
+      connected: this.connected,
+      connects_total: this.counts.connects,
+      connect_failures_total: this.counts.connect_failures,
+      events_published_total: this.counts.events_published,
+      publish_timeouts_total: this.counts.publish_timeouts,
+      live_sent_total: this.counts.live_sent,
+      live_skipped_total: this.counts.live_skipped,
+      commands_total: this.commands?.counts.total ?? 0,
+      commands_refused_total: this.commands?.counts.refused ?? 0,
+    };
+  }
+
+  /** Waits until the outbox is empty (true) or `timeoutMs` has passed (false). */
+  async drain(timeoutMs: number): Promise<boolean> {
+    const until = this.now() + timeoutMs;
+    while (this.outbox.size > 0) {
+      if (this.now() >= until) return false;
+      await new Promise((r) => setTimeout(r, 50));
+    }
+    return true;
+  }
+
+  /** Publishes the retained "stopped" status, disconnects cleanly and stops reconnecting. */
+  async stop(): Promise<void> {
+    if (this.stopping) return;
+    this.stopping = true;
+    if (this.heartbeatTimer) clearInterval(this.heartbeatTimer);
+    if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
+    this.heartbeatTimer = this.reconnectTimer = null;
+    this.unsubscribeOutbox?.();
+    const c = this.client;
+    if (!c) return;
+    const wasConnected = this.connected;
+    if (wasConnected) {
+      await withTimeout(new Promise<void>((r) => c.publish(this.s.topics.status, JSON.stringify(this.status(false, 'stopped')), { qos: 1, retain: true }, () => r())), STOP_WAIT_MS);
+    }
+    this.dropClient(c);
+    // A clean DISCONNECT (so the broker does not publish the last-will) only makes sense when connected.
+    if (wasConnected) await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
+    c.end(true);
+  }
+
+  private status(online: boolean, reason: StatusPayload['reason']): StatusPayload {
+    return { schema: SCHEMA_IDS.status, asset: this.asset, online, reason, session_started_ts: this.sessionStartedTs, agent_version: this.version };
+  }
+
+  private connectNow(): void {
+    this.reconnectTimer = null;
+    if (this.stopping) return;
+    this.lastError = null;
+    this.sessionStartedTs = new Date(this.now()).toISOString();
+    const tls = this.s.tls;
+    const opts: IClientOptions = {
+      clientId: this.s.clientId,
+      protocolVersion: 4,
+      clean: true,
+      reconnectPeriod: 0,
+      connectTimeout: this.s.connectTimeoutMs,
+      keepalive: this.s.keepaliveS,
+      queueQoSZero: false,
+      resubscribe: false,
+      will: { topic: this.s.topics.status, payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))), qos: 1, retain: true },
+      username: this.s.username,
+      password: this.s.password?.reveal(),
+      ca: tls?.ca,
+      cert: tls?.cert,
+      key: tls?.key?.reveal(),
+      servername: tls?.servername,
+      rejectUnauthorized: true,
+    };
+    let c: MqttClient;
+    try {
+      c = this.connectFn(this.s.url, opts);
+    } catch (e) {
+      this.lastError = e;
+      this.scheduleReconnect(false);
+      return;
+    }
+    this.client = c;
+    c.on('error', (e) => {
+      if (c === this.client) this.lastError = e;
+    });
+    c.on('connect', () => this.onConnect(c));
+    c.on('close', () => this.onClose(c));
+    c.on('message', (topic, payload) => this.onMessage(c, topic, payload));
+  }
+
+  private onConnect(c: MqttClient): void {
+    if (c !== this.client) return;
+    this.connected = true;
+    this.connectedAt = this.now();
+    this.counts.connects++;
+    if (!this.burst.resolved('connect', `connected to ${this.s.url} after ${this.failures} failed attempt(s)`, { client_id: this.s.clientId })) {
+      this.log.info({ client_id: this.s.clientId }, `connected to ${this.s.url}`);
+    }
+    c.publish(this.s.topics.status, JSON.stringify(this.status(true, 'connected')), { qos: 1, retain: true }, () => {});
+    if (this.commands) {
+      c.subscribe(this.s.topics.cmd, { qos: 1 }, (err, granted) => {
+        if (err || granted?.some((g) => g.qos === 128)) {
+          this.burst.occurred('subscribe', `the broker refused the subscription to ${this.s.topics.cmd}; commands will not arrive (check the broker ACL)`);
+        }
+      });
+    }
+    this.heartbeat();
+    this.pump();
+  }
+
+  private onClose(c: MqttClient): void {
+    if (c !== this.client) return;
+    const wasConnected = this.connected;
+    this.dropClient(c);
+    c.end(true);
+    if (this.stopping) return;
+    if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
+    this.scheduleReconnect(wasConnected);
+  }
+
+  /** Forgets a client: not connected, nothing in flight (unacknowledged events are resent from the outbox). */
+  private dropClient(c: MqttClient): void {
+    if (c !== this.client) return;
+    this.client = null;
+    this.connected = false;
+    for (const f of this.inflight.values()) clearTimeout(f.timer);
+    this.inflight.clear();
+  }
+
+  private scheduleReconnect(wasConnected: boolean): void {
+    const { kind, reason } = describeConnectError(this.lastError);
+    if (!wasConnected) this.counts.connect_failures++;
+    const delay = Math.min(this.s.reconnectMaxMs, this.s.reconnectMinMs * 2 ** Math.min(this.failures, 30)) * (0.8 + 0.4 * this.random());
+    this.failures++;
+    const backoff = `with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s); events wait in the outbox`;
+    const message = wasConnected ? `lost the connection to ${this.s.url}: ${reason}; reconnecting ${backoff}` : `cannot connect to ${this.s.url}: ${reason}; retrying ${backoff}`;
+    this.burst.occurred('connect', message, { client_id: this.s.clientId }, kind);
+    this.reconnectTimer = setTimeout(() => this.connectNow(), delay);
+  }
+
+  /** Feeds the client from the outbox, in order, keeping at most `inflightWindow` unacknowledged. */
+  private pump(): void {
+    const c = this.client;
+    if (!this.connected || !c) return;
+    for (const ev of this.outbox.sendable()) {
+      if (this.inflight.size >= this.s.inflightWindow) return;
+      if (this.inflight.has(ev.seq)) continue;
+      const timer = setTimeout(() => this.onPublishTimeout(c), this.s.publishTimeoutMs);
+      this.inflight.set(ev.seq, { client: c, timer });
+      c.publish(this.s.topics.event(ev.type), ev.json, { qos: 1 }, (err) => {
+        const f = this.inflight.get(ev.seq);
+        if (f?.client === c) {
+          clearTimeout(f.timer);
+          this.inflight.delete(ev.seq);
+        }
+        if (err) return; // connection going down: the event stays in the outbox and is resent
+        this.counts.events_published++;
+        this.outbox.ack(ev.seq);
+        this.pump();
+      });
+    }
+  }
+
+  private onPublishTimeout(c: MqttClient): void {
+    if (c !== this.client) return;
+    this.counts.publish_timeouts++;
+    this.lastError = Object.assign(new Error(`an event was not acknowledged within ${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`), { code: 'PUBLISH_TIMEOUT' });
+    this.onClose(c);
+  }
+
+  private onMessage(c: MqttClient, topic: string, payload: Buffer): void {
+    if (c !== this.client || topic !== this.s.topics.cmd || !this.commands) return;
+    void this.commands.handle(payload).then((reply) => {
+      // Replies are not durable: a sender that loses the connection asks again (same id, same reply).
+      if (c === this.client && this.connected) c.publish(this.s.topics.cmdReply, JSON.stringify(reply), { qos: 1 }, () => {});
+    });
+  }
+
+  private heartbeat(): void {
+    const c = this.client;
+    if (!this.connected || !c) return;
+    const t = this.now();
+    const { connected: _c, ...link } = this.health();
+    const hb: HeartbeatPayload = {
+      schema: SCHEMA_IDS.heartbeat,
+      asset: this.asset,
+      ts: new Date(t).toISOString(),
+      uptime_s: Math.round((t - this.startedAt) / 100) / 10,
+      connected_s: Math.round((t - this.connectedAt) / 100) / 10,
+      outbox: this.outbox.health(),
+      mqtt: link,
+      agent: this.extraHealth(),
+    };
+    c.publish(this.s.topics.heartbeat, JSON.stringify(hb), { qos: 0 }, () => {});
+  }
+}
+
+function withTimeout(p: Promise<void>, ms: number): Promise<void> {
+  return new Promise((resolve) => {
+    const t = setTimeout(resolve, ms);
+    void p.then(() => {
+      clearTimeout(t);
+      resolve();
+    });
+  });
+}

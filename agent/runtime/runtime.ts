@@ -1,0 +1,132 @@
+import type { SampleSource, SourceInfo } from '../../drivers/source.js';
+import type { Clock } from '../clock.js';
+import type { Config } from '../config/schema.js';
+import { Analyzer } from '../dsp/analyzer.js';
+import type { LiveFrame, WindowResult } from '../dsp/types.js';
+import type { Logger } from '../log.js';
+
+/**
+ * The agent's main loop: source -> DSP -> window consumers (watcher, outputs) and live consumers.
+ *
+ * Time inside the loop is the sample clock: a window closes every `windowSeconds` of samples and a
+ * live frame goes out every `liveSeconds` of samples, so a recording or a simulation run faster than
+ * real time behaves exactly as the live fan would. The wall-clock time of a sample is the source's
+ * start time plus its index over the sample rate.
+ */
+
+export interface WindowConsumer {
+  /** Called once per closed window, in order; `atMs` is the wall-clock time of the window's end. */
+  onWindow(w: WindowResult, atMs: number): void | Promise<void>;
+}
+
+export interface LiveConsumer {
+  onLive(f: LiveFrame, atMs: number): void;
+}
+
+export interface RuntimeOptions {
+  readonly config: Config;
+  readonly source: SampleSource;
+  readonly clock: Clock;
+  readonly logger: Logger;
+  readonly windowSeconds: number;
+  readonly liveSeconds: number;
+  readonly liveRevolutions?: number;
+  readonly windowConsumers: readonly WindowConsumer[];
+  readonly liveConsumers: readonly LiveConsumer[];
+  /** Wall-clock time of sample 0, ms; default: the clock when the source opened. */
+  readonly startMs?: number;
+  /** True when blocks carry board-timed tach edges. */
+  readonly boardTimesTach?: boolean;
+}
+
+export interface RunSummary {
+  readonly info: SourceInfo;
+  readonly windows: number;
+  readonly samples: number;
+  readonly gaps: number;
+}
+
+export class AgentRuntime {
+  private analyzer: Analyzer | undefined;
+  private stopped = false;
+
+  constructor(private readonly opts: RuntimeOptions) {}
+
+  /** Runs until the source ends or stop() is called; rejects only on programming errors or a failing consumer. */
+  async run(): Promise<RunSummary> {
+    const { source, config, clock, logger } = this.opts;
+    const info = await source.open();
+    const fs = info.sampleRate;
+    const startMs = this.opts.startMs ?? clock.now();
+    const maxBlock = 1 << 16;
+    const an = new Analyzer({
+      config,
+      sampleRate: fs,
+      channelCount: info.channelCount,
+      maxBlock,
+      boardTimesTach: this.opts.boardTimesTach,
+      sourceName: info.description,
+      liveRevolutions: this.opts.liveRevolutions,
+    });
+    this.analyzer = an;
+    logger.info({ source: info.description, sample_rate_hz: fs, channels: info.channelCount }, 'acquisition started');
+    const windowSamples = Math.round(this.opts.windowSeconds * fs);
+    const liveSamples = Math.max(1, Math.round(this.opts.liveSeconds * fs));
+    let windowEnd = windowSamples;
+    let nextLive = liveSamples;
+    let windows = 0;
+    let samples = 0;
+    let gaps = 0;
+    let first: number | undefined;
+    const timeOf = (index: number) => startMs + (index / fs) * 1000;
+    try {
+      for await (const item of source.items()) {
+        if (this.stopped) break;
+        if (item.kind === 'gap') {
+          gaps++;
+          an.push(item);
+          continue;
+        }
+        if (first === undefined) {
+          first = item.startIndex;
+          windowEnd = first + windowSamples;
+          nextLive = first + liveSamples;
+        }
+        const n = item.channels[0]?.length ?? 0;
+        // Split blocks larger than the analyzer's buffers.
+        for (let off = 0; off < n; off += maxBlock) {
+          const len = Math.min(maxBlock, n - off);
+          if (off === 0 && len === n) {
+            an.push(item);
+            continue;
+          }
+          const from = item.startIndex + off;
+          const edges = item.tachEdges?.filter((t) => t >= from && t < from + len);
+          an.push({ kind: 'samples', startIndex: from, channels: item.channels.map((c) => c.subarray(off, off + len)), ...(edges ? { tachEdges: edges } : {}) });
+        }
+        samples += n;
+        const end = item.startIndex + n;
+        if (end >= nextLive) {
+          const f = an.liveFrame();
+          for (const c of this.opts.liveConsumers) c.onLive(f, timeOf(end));
+          while (nextLive <= end) nextLive += liveSamples;
+        }
+        if (end >= windowEnd) {
+          const w = an.takeWindow();
+          windows++;
+          for (const c of this.opts.windowConsumers) await c.onWindow(w, timeOf(end));
+          // Windows stay on a fixed grid of the sample clock, whatever the block size.
+          while (windowEnd <= end) windowEnd += windowSamples;
+        }
+      }
+    } finally {
+      await source.close();
+    }
+    logger.info({ windows, samples, gaps }, 'acquisition ended');
+    return { info, windows, samples, gaps };
+  }
+
+  stop(): void {
+    this.stopped = true;
+  }
+}

@@ -1,0 +1,135 @@
+import { join } from 'node:path';
+import { z } from 'zod';
+import type { StoredCoefficients } from '../balance/coefficients.js';
+import { formatIssues } from '../config/load.js';
+import { UserError } from '../errors.js';
+import type { Baseline } from './baseline.js';
+import { parseJsonFile, readTextOrNull, removeFile, writeFileAtomic } from './files.js';
+import type { TachState } from './health.js';
+import type { Zone } from './limits.js';
+import type { UnbalanceKind } from './signature.js';
+
+/**
+ * The watcher's persistent state sits behind these interfaces; the file implementations keep it under
+ * `<state_dir>/watcher/` (and read balancing results from `<state_dir>/balance/`).
+ */
+
+export interface BaselineStore {
+  load(): Baseline | null;
+  save(b: Baseline): void;
+  /** Returns false when there was nothing to clear. */
+  clear(): boolean;
+}
+
+export type SpeedState = 'in_range' | 'low' | 'high';
+
+/** What the watcher has confirmed and reported, so a restart neither repeats nor loses events. */
+export interface WatcherSnapshot {
+  readonly version: 1;
+  /** Incremented at every start; part of every event id. */
+  readonly run: number;
+  readonly machine_zone: Zone | null;
+  readonly zones: Readonly<Record<string, Zone>>;
+  readonly over_alarm: Readonly<Record<string, boolean>>;
+  readonly unbalance: UnbalanceKind | null;
+  readonly sensor_ok: Readonly<Record<string, boolean>>;
+  readonly tach: TachState | null;
+  readonly speed: SpeedState | null;
+  readonly vector_changed: Readonly<Record<string, boolean>>;
+}
+
+export interface WatcherStateStore {
+  load(): WatcherSnapshot | null;
+  save(s: WatcherSnapshot): void;
+}
+
+/** Where stored influence coefficients come from; null when no balancing job saved any. */
+export interface CoefficientsSource {
+  load(): StoredCoefficients | null;
+}
+
+function validate<T>(schema: z.ZodType<T>, file: string, text: string, fix: string): T {
+  const raw = parseJsonFile(file, text);
+  const res = schema.safeParse(raw);
+  if (!res.success) throw new UserError(file, `unexpected contents:\n  ${formatIssues(file, res.error.issues, raw).join('\n  ')}`, fix);
+  return res.data;
+}
+
+const zone = z.enum(['A', 'B', 'C', 'D']);
+const baselineFileSchema = z.object({
+  version: z.literal(1),
+  asset: z.string(),
+  source: z.enum(['learned', 'config']),
+  learned_at: z.string().nullable(),
+  windows: z.number().int().min(0),
+  speed_rpm: z.number().nullable(),
+  channels: z.record(z.string(), z.object({ one_x_rms_mm_s: z.number().min(0), one_x_phase_deg: z.number(), overall_rms_mm_s: z.number().nullable() })),
+});
+const snapshotSchema = z.object({
+  version: z.literal(1),
+  run: z.number().int().min(0),
+  machine_zone: zone.nullable(),
+  zones: z.record(z.string(), zone),
+  over_alarm: z.record(z.string(), z.boolean()),
+  unbalance: z.enum(['static', 'couple', 'dynamic', 'overhung', 'none']).nullable(),
+  sensor_ok: z.record(z.string(), z.boolean()),
+  tach: z.enum(['ok', 'lost', 'stopped']).nullable(),
+  speed: z.enum(['in_range', 'low', 'high']).nullable(),
+  vector_changed: z.record(z.string(), z.boolean()),
+});
+const coefficientsSchema = z.object({
+  version: z.literal(1),
+  asset: z.string(),
+  saved_at: z.string(),
+  job_id: z.string(),
+  angle_convention: z.enum(['against_rotation', 'with_rotation']),
+  speed_rpm: z.number().positive(),
+  planes: z.array(z.string()).min(1),
+  coefficients: z.record(z.string(), z.record(z.string(), z.object({ amp_mm_s_pk_per_g: z.number().min(0), phase_deg: z.number() }))),
+});
+
+export function watcherDir(stateDir: string): string {
+  return join(stateDir, 'watcher');
+}
+
+export class FileBaselineStore implements BaselineStore {
+  readonly file: string;
+  constructor(stateDir: string) {
+    this.file = join(watcherDir(stateDir), 'baseline.json');
+  }
+  load(): Baseline | null {
+    const text = readTextOrNull(this.file);
+    return text === null ? null : validate(baselineFileSchema, this.file, text, 'learn the baseline again (`turnwise condition clear-baseline` removes this file)');
+  }
+  save(b: Baseline): void {
+    writeFileAtomic(this.file, JSON.stringify(b, null, 2) + '\n');
+  }
+  clear(): boolean {
+    return removeFile(this.file);
+  }
+}
+
+export class FileWatcherStateStore implements WatcherStateStore {
+  readonly file: string;
+  constructor(stateDir: string) {
+    this.file = join(watcherDir(stateDir), 'state.json');
+  }
+  load(): WatcherSnapshot | null {
+    const text = readTextOrNull(this.file);
+    return text === null ? null : validate(snapshotSchema, this.file, text, 'delete the file to start afresh (the current zones and states will be reported again)');
+  }
+  save(s: WatcherSnapshot): void {
+    writeFileAtomic(this.file, JSON.stringify(s) + '\n');
+  }
+}
+
+export class FileCoefficientsSource implements CoefficientsSource {
+  readonly file: string;
+  constructor(stateDir: string) {
+    this.file = join(stateDir, 'balance', 'coefficients.json');
+  }
+  load(): StoredCoefficients | null {
+    const text = readTextOrNull(this.file);
+    return text === null ? null : validate(coefficientsSchema, this.file, text, 'save the balancing job again, or delete the file');
+  }
+}

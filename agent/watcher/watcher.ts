@@ -1,0 +1,355 @@
+import type { StoredCoefficients } from '../balance/coefficients.js';
+import type { Config } from '../config/schema.js';
+import type { WindowResult } from '../dsp/types.js';
+import type { AgentEvent } from '../events.js';
+import { isUserError, UserError } from '../errors.js';
+import { assessWith, type WindowAssessment } from './assess.js';
+import { baselineFromConfig, BaselineLearner, type Baseline } from './baseline.js';
+import { systemClock, type Clock } from './clock.js';
+import { OnDelay } from './debounce.js';
+import { watcherEvent, type EventOrigin } from './events.js';
+import { forecastBalance, unavailable, type BalanceForecast } from './forecast.js';
+import { assessHealth, type TachState } from './health.js';
+import { FileHistoryStore, History, HistoryAggregator, type HistoryStore } from './history.js';
+import { worseZone, zoneWithHysteresis, type Zone } from './limits.js';
+import { resolveWatcherSettings, type WatcherSettings } from './settings.js';
+import type { RecentWindow, UnbalanceKind } from './signature.js';
+import {
+  FileBaselineStore,
+  FileCoefficientsSource,
+  FileWatcherStateStore,
+  type BaselineStore,
+  type CoefficientsSource,
+  type SpeedState,
+  type WatcherSnapshot,
+  type WatcherStateStore,
+} from './stores.js';
+import { trendReport, type TrendReport } from './trend.js';
+
+export interface WatcherDeps {
+  readonly clock: Clock;
+  readonly baselineStore: BaselineStore;
+  readonly stateStore: WatcherStateStore;
+  readonly historyStore: HistoryStore;
+  readonly coefficients: CoefficientsSource;
+}
+
+export interface WatchStatus {
+  readonly ts: string;
+  readonly window: { readonly start_index: number; readonly end_index: number } | null;
+  /** This window's findings, before on-delay. */
+  readonly latest: WindowAssessment | null;
+  /** States confirmed after hysteresis and on-delay (what events were sent about). */
+  readonly confirmed: Omit<WatcherSnapshot, 'version' | 'run'>;
+  readonly baseline: Baseline | null;
+  readonly learning: { readonly windows: number } | null;
+  readonly trend: TrendReport | null;
+  readonly forecast: BalanceForecast | null;
+  readonly warnings: readonly string[];
+}
+
+export interface WatchUpdate {
+  readonly events: readonly AgentEvent[];
+  readonly status: WatchStatus;
+}
+
+const zoneSeverity = (z: Zone): AgentEvent['severity'] => (z === 'D' ? 'alarm' : z === 'C' ? 'warning' : 'info');
+
+/** Boolean state with hysteresis: once true, it stays true until the value falls `share` below the limit. */
+function overWithHysteresis(prev: boolean | undefined, value: number, limit: number, share: number): boolean {
+  return prev ? value > limit * (1 - share) : value >= limit;
+}
+
+function recordOf<T>(m: Map<string, OnDelay<T>>): Record<string, T> {
+  const out: Record<string, T> = {};
+  for (const [k, d] of m) if (d.value !== undefined) out[k] = d.value;
+  return out;
+}
+
+/**
+ * The live watcher: feeds each DSP window through the pure rules, holds zones, verdicts and sensor states
+ * behind hysteresis and on-delay, returns events for what changed, learns and keeps the baseline, keeps
+ * history and its trend, and forecasts the balance correction when coefficients are stored.
+ */
+export class Watcher {
+  readonly settings: WatcherSettings;
+  private readonly run: number;
+  private readonly recent: RecentWindow[] = [];
+  private readonly zoneHyst = new Map<string, Zone>();
+  private readonly zones = new Map<string, OnDelay<Zone>>();
+  private readonly machineZone: OnDelay<Zone>;
+  private readonly alarms = new Map<string, OnDelay<boolean>>();
+  private readonly sensors = new Map<string, OnDelay<boolean>>();
+  private readonly vectors = new Map<string, OnDelay<boolean>>();
+  private readonly unbalance: OnDelay<UnbalanceKind>;
+  private readonly tach: OnDelay<TachState>;
+  private readonly speed: OnDelay<SpeedState>;
+  private baselineValue: Baseline | null;
+  private learner: BaselineLearner | null = null;
+  private readonly history: History;
+  private readonly aggregator: HistoryAggregator;
+  private trendCache: TrendReport | null = null;
+  private coeffs: StoredCoefficients | null = null;
+  private coeffsProblem: string | null = null;
+  private forecastValue: BalanceForecast | null = null;
+  private latest: WindowAssessment | null = null;
+  private lastWindow: WindowResult | null = null;
+  private savedSnapshot = '';
+  private readonly warnings: string[] = [];
+
+  constructor(
+    cfg: Config,
+    private readonly deps: WatcherDeps,
+  ) {
+    const s = (this.settings = resolveWatcherSettings(cfg));
+    const delay = s.w.on_delay_s;
+    const prev = deps.stateStore.load();
+    this.run = (prev?.run ?? 0) + 1;
+    for (const sensor of s.sensors) {
+      this.zones.set(sensor.id, new OnDelay<Zone>(delay, prev?.zones[sensor.id]));
+      this.alarms.set(sensor.id, new OnDelay<boolean>(delay, prev?.over_alarm[sensor.id]));
+      this.sensors.set(sensor.id, new OnDelay<boolean>(delay, prev?.sensor_ok[sensor.id]));
+      this.vectors.set(sensor.id, new OnDelay<boolean>(delay, prev?.vector_changed[sensor.id]));
+      const z = prev?.zones[sensor.id];
+      if (z) this.zoneHyst.set(sensor.id, z);
+    }
+    this.machineZone = new OnDelay<Zone>(delay, prev?.machine_zone ?? undefined);
+    this.unbalance = new OnDelay<UnbalanceKind>(delay, prev?.unbalance ?? undefined);
+    this.tach = new OnDelay<TachState>(delay, prev?.tach ?? undefined);
+    this.speed = new OnDelay<SpeedState>(delay, prev?.speed ?? undefined);
+
+    const fromConfig = baselineFromConfig(s);
+    const stored = deps.baselineStore.load();
+    if (stored && stored.asset !== s.asset) {
+      throw new UserError('state_dir', `the stored baseline belongs to asset "${stored.asset}", this config is for "${s.asset}"`, 'point state_dir at this fan\'s own state directory');
+    }
+    if (fromConfig && stored) this.warn('a learned baseline is stored but watcher.baseline in the config takes precedence');
+    this.baselineValue = fromConfig ?? stored;
+
+    this.history = new History(deps.historyStore, s.w.history.max_points);
+    for (const w of this.history.warnings) this.warn(w);
+    this.aggregator = new HistoryAggregator(s.w.history.interval_s);
+    this.reloadCoefficients();
+    this.trendCache = this.computeTrend();
+    this.persist(); // records the new start counter
+  }
+
+  get baseline(): Baseline | null {
+    return this.baselineValue;
+  }
+
+  /** Reads the stored influence coefficients again (call after a balancing job saved new ones). */
+  reloadCoefficients(): void {
+    try {
+      this.coeffs = this.deps.coefficients.load();
+      this.coeffsProblem = null;
+    } catch (e) {
+      if (!isUserError(e)) throw e;
+      this.coeffs = null;
+      this.coeffsProblem = e.format();
+    }
+  }
+
+  /** Starts learning a baseline from the coming windows (healthy sensors, steady speed). */
+  startLearning(): void {
+    if (this.settings.w.baseline) {
+      throw new UserError('watcher.baseline', 'the baseline is set in the config', 'remove watcher.baseline from the config to learn one from the running fan');
+    }
+    this.learner = new BaselineLearner(this.settings);
+  }
+
+  /** Ends learning, stores the baseline and starts comparing against it. */
+  stopLearning(): { baseline: Baseline; left_out: string[] } {
+    if (!this.learner) throw new UserError('baseline learning', 'learning was not started', 'start learning first, let the fan run steadily for a few windows, then stop');
+    const learner = this.learner;
+    this.learner = null;
+    const res = learner.finish(new Date(this.deps.clock.now()).toISOString());
+    this.deps.baselineStore.save(res.baseline);
+    this.setBaseline(res.baseline);
+    return res;
+  }
+
+  cancelLearning(): void {
+    this.learner = null;
+  }
+
+  /** Removes the learned baseline (a baseline in the config stays). */
+  clearBaseline(): boolean {
+    const removed = this.deps.baselineStore.clear();
+    this.setBaseline(baselineFromConfig(this.settings));
+    return removed;
+  }
+
+  private setBaseline(b: Baseline | null): void {
+    this.baselineValue = b;
+    for (const d of this.vectors.values()) d.reset(false);
+    this.trendCache = this.computeTrend();
+    this.persist();
+  }
+
+  process(window: WindowResult): WatchUpdate {
+    const s = this.settings;
+    const nowMs = this.deps.clock.now();
+    const origin: EventOrigin = { asset: s.asset, run: this.run, window, ts: new Date(nowMs).toISOString() };
+    const health = assessHealth(window, s);
+    const a = assessWith(s, window, health, this.baselineValue, this.recent);
+    this.recent.push({ window, health });
+    if (this.recent.length >= s.w.unbalance.stability_windows) this.recent.shift();
+    this.latest = a;
+    this.lastWindow = window;
+
+    const t0 = window.start_index / window.sample_rate_hz;
+    const t1 = window.end_index / window.sample_rate_hz;
+    const events: AgentEvent[] = [];
+    const emit = (...args: Parameters<typeof watcherEvent> extends [EventOrigin, ...infer R] ? R : never): void => {
+      events.push(watcherEvent(origin, ...args));
+    };
+
+    // Sensors and tach.
+    for (const h of health.channels) {
+      const ch = this.sensors.get(h.id)!.update(h.ok, t0, t1);
+      if (!ch) continue;
+      if (!ch.to) emit('sensor_not_ok', h.id, 'warning', { problems: h.problems });
+      else if (ch.from === false) emit('sensor_ok', h.id, 'info', {});
+    }
+    const tc = this.tach.update(health.tach.state, t0, t1);
+    if (tc?.to === 'lost') emit('tach_lost', 'machine', 'warning', { why: health.tach.why });
+    else if (tc?.to === 'ok' && tc.from === 'lost') emit('tach_back', 'machine', 'info', { why: health.tach.why });
+
+    // Speed.
+    if (a.speed.state !== null) {
+      const sc = this.speed.update(a.speed.state, t0, t1);
+      if (sc && sc.to !== 'in_range') emit('speed_out_of_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm, why: a.speed.why });
+      else if (sc && sc.from !== undefined) emit('speed_in_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm });
+    }
+
+    const hold = a.zone.inhibited || !health.running;
+    if (!hold) {
+      // Zones: hysteresis per window, then on-delay.
+      let machine: Zone | null = null;
+      for (const h of health.channels) {
+        const cz = a.zone.channels[h.id]!;
+        if (cz.zone === null) continue;
+        const z = zoneWithHysteresis(cz.overall_rms_mm_s!, this.zoneHyst.get(h.id) ?? null, a.zone.limits, s.w.hysteresis_share);
+        this.zoneHyst.set(h.id, z);
+        machine = machine ? worseZone(machine, z) : z;
+        const zc = this.zones.get(h.id)!.update(z, t0, t1);
+        if (zc) emit('zone_changed', h.id, zoneSeverity(zc.to), { scope: 'sensor', zone: zc.to, from_zone: zc.from ?? null, overall_rms_mm_s: cz.overall_rms_mm_s, limits: a.zone.limits });
+        const alarm = this.alarms.get(h.id)!;
+        const over = overWithHysteresis(alarm.value, cz.overall_rms_mm_s!, cz.alarm_mm_s, s.w.hysteresis_share);
+        const ac = alarm.update(over, t0, t1);
+        if (ac?.to) emit('alarm_level_exceeded', h.id, 'warning', { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s, baseline: this.baselineValue !== null });
+        else if (ac && ac.from) emit('alarm_level_cleared', h.id, 'info', { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s });
+      }
+      if (machine) {
+        const mc = this.machineZone.update(machine, t0, t1);
+        if (mc) emit('zone_changed', 'machine', zoneSeverity(mc.to), { scope: 'machine', zone: mc.to, from_zone: mc.from ?? null, limits: a.zone.limits });
+      }
+
+      // Unbalance and vector change need the phase reference.
+      if (health.tach.state === 'ok') {
+        const u = a.unbalance;
+        const uc = this.unbalance.update(u.kind, t0, t1);
+        const fields = { kind: u.kind, confidence: u.confidence, evidence: u.evidence, limits: u.limits };
+        if (uc && uc.to === 'none' && uc.from !== undefined) emit('unbalance_cleared', 'machine', 'info', { ...fields, from_kind: uc.from, points_to: u.points_to });
+        else if (uc && uc.to !== 'none' && (uc.from === undefined || uc.from === 'none')) emit('unbalance_found', 'machine', 'warning', fields);
+        else if (uc && uc.to !== 'none') emit('unbalance_kind_changed', 'machine', 'info', { ...fields, from_kind: uc.from });
+
+        for (const [id, vc] of Object.entries(a.vector_change ?? {})) {
+          const d = this.vectors.get(id);
+          if (!d) continue;
+          const changed = overWithHysteresis(d.value, vc.delta_mm_s, a.vector_change_limit_mm_s, s.w.hysteresis_share);
+          const c = d.update(changed, t0, t1);
+          const f = { delta_mm_s: vc.delta_mm_s, amp_change_mm_s: vc.amp_change_mm_s, phase_change_deg: vc.phase_change_deg, limit_mm_s: a.vector_change_limit_mm_s };
+          if (c?.to) emit('vector_change', id, 'warning', f);
+          else if (c && c.from) emit('vector_change_cleared', id, 'info', f);
+        }
+        if (this.learner && (a.speed.state === 'in_range' || a.speed.state === null)) this.learner.add(window, health);
+      }
+
+      const point = this.aggregator.add(window, health, nowMs);
+      if (point) {
+        this.guarded('history not saved', () => this.history.add(point));
+        this.trendCache = this.computeTrend();
+      }
+    }
+
+    this.forecastValue = this.coeffsProblem
+      ? unavailable(this.coeffsProblem)
+      : this.coeffs
+        ? forecastBalance(s.asset, this.coeffs, this.baselineValue, window, health)
+        : null;
+    this.guarded('confirmed states not saved', () => this.persist());
+    return { events, status: this.status() };
+  }
+
+  /** Keeps watching when the disk fails (full, read-only): the problem is reported in status.warnings. */
+  private guarded(what: string, fn: () => void): void {
+    try {
+      fn();
+    } catch (e) {
+      this.warn(`${what}: ${isUserError(e) ? e.format() : (e as Error).message}`);
+    }
+  }
+
+  private warn(message: string): void {
+    if (this.warnings.includes(message)) return;
+    this.warnings.push(message);
+    if (this.warnings.length > 20) this.warnings.shift();
+  }
+
+  private snapshot(): WatcherSnapshot {
+    return {
+      version: 1,
+      run: this.run,
+      machine_zone: this.machineZone.value ?? null,
+      zones: recordOf(this.zones),
+      over_alarm: recordOf(this.alarms),
+      unbalance: this.unbalance.value ?? null,
+      sensor_ok: recordOf(this.sensors),
+      tach: this.tach.value ?? null,
+      speed: this.speed.value ?? null,
+      vector_changed: recordOf(this.vectors),
+    };
+  }
+
+  /** Saves the confirmed states when they changed (rarely: a few small atomic writes a day). */
+  private persist(): void {
+    const snap = this.snapshot();
+    const text = JSON.stringify(snap);
+    if (text === this.savedSnapshot) return;
+    this.deps.stateStore.save(snap);
+    this.savedSnapshot = text;
+  }
+
+  private computeTrend(): TrendReport {
+    return trendReport(this.settings, this.history.points, this.baselineValue);
+  }
+
+  status(): WatchStatus {
+    const snap = this.snapshot();
+    const { version: _v, run: _r, ...confirmed } = snap;
+    return {
+      ts: new Date(this.deps.clock.now()).toISOString(),
+      window: this.lastWindow ? { start_index: this.lastWindow.start_index, end_index: this.lastWindow.end_index } : null,
+      latest: this.latest,
+      confirmed,
+      baseline: this.baselineValue,
+      learning: this.learner ? { windows: this.learner.windowCount } : null,
+      trend: this.trendCache,
+      forecast: this.forecastValue,
+      warnings: [...this.warnings],
+    };
+  }
+}
+
+/** A watcher over the real files under `cfg.state_dir`. */
+export function openWatcher(cfg: Config, clock: Clock = systemClock): Watcher {
+  return new Watcher(cfg, {
+    clock,
+    baselineStore: new FileBaselineStore(cfg.state_dir),
+    stateStore: new FileWatcherStateStore(cfg.state_dir),
+    historyStore: new FileHistoryStore(cfg.state_dir),
+    coefficients: new FileCoefficientsSource(cfg.state_dir),
+  });
+}

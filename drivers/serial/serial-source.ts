@@ -1,0 +1,310 @@
+/**
+ * The acquisition board on a serial port (USB CDC or UART), speaking the frame protocol of
+ * PROTOCOL.md. Keeps sampling through garbage, damaged frames, unplugging and re-plugging: the
+ * port is reopened with backoff once its close has completed, every loss is counted and reported
+ * as a gap with exact sample-clock bounds, and problems are logged once per burst.
+ *
+ * serialport is loaded when the source opens, so nothing that merely imports this module needs
+ * the native binding. The port must stay on the main thread (serialport does not work in workers).
+ */
+import type { SerialPort as SerialPortClass } from 'serialport';
+import type { AcquisitionConfig } from '../../agent/config/acquisition.js';
+import { UserError } from '../../agent/errors.js';
+import { BurstLog } from '../../agent/burst-log.js';
+import type { Logger } from '../../agent/log.js';
+import type { SampleSource, SourceInfo, SourceItem } from '../source.js';
+import { BlockQueue } from './block-queue.js';
+import { FrameDecoder, type DecodedFrame, type DecodeProblem, type FrameSink } from './frame.js';
+import { describeOpenFailure, listStablePorts } from './ports.js';
+
+export interface SerialSourceOptions {
+  /** Device path; prefer the stable /dev/serial/by-id/... link. */
+  readonly device: string;
+  readonly baud: number;
+  /** What the board must send; other frames are rejected and counted. */
+  readonly sampleRateHz: number;
+  readonly channels: number;
+  readonly reconnectMinMs: number;
+  readonly reconnectMaxMs: number;
+  readonly stallTimeoutMs: number;
+  readonly queueFrames: number;
+  readonly maxFrameBytes: number;
+  readonly log: Logger;
+  /** Wall clock, ms. */
+  readonly nowMs?: () => number;
+  /** Period of the housekeeping timer (stall check, log summaries), ms. */
+  readonly tickMs?: number;
+  /** Quiet time that ends a burst of log lines, ms (at least twice reconnectMaxMs). */
+  readonly burstQuietMs?: number;
+}
+
+export function serialOptionsFromConfig(a: AcquisitionConfig, log: Logger): SerialSourceOptions {
+  if (a.driver !== 'serial' || !a.device || a.sample_rate_hz === undefined || a.channels === undefined) {
+    throw new UserError('acquisition', 'the serial driver needs device, sample_rate_hz and channels', 'set acquisition.driver: serial with device, sample_rate_hz and channels');
+  }
+  return {
+    device: a.device,
+    baud: a.baud,
+    sampleRateHz: a.sample_rate_hz,
+    channels: a.channels,
+    reconnectMinMs: a.reconnect_min_ms,
+    reconnectMaxMs: a.reconnect_max_ms,
+    stallTimeoutMs: a.stall_timeout_ms,
+    queueFrames: a.queue_frames,
+    maxFrameBytes: a.max_frame_bytes,
+    log,
+  };
+}
+
+/** Health counters, for the heartbeat and `turnwise probe-serial`. (A type, not an interface, so it fits SourceHealth.) */
+export type SerialHealth = {
+  readonly device: string;
+  readonly connected: boolean;
+  readonly bytes_received: number;
+  readonly frames_ok: number;
+  readonly crc_errors: number;
+  readonly bad_lengths: number;
+  readonly bad_headers: number;
+  readonly rejected_frames: number;
+  readonly resyncs: number;
+  readonly bytes_skipped: number;
+  readonly gaps: number;
+  readonly samples_lost: number;
+  readonly sequence_anomalies: number;
+  readonly clock_restarts: number;
+  /** Frames dropped because the DSP fell behind (included in gaps and samples_lost). */
+  readonly overruns: number;
+  /** Times an open device went silent for stall_timeout_ms and was reopened. */
+  readonly stalls: number;
+  /** Successful reopenings after the first open. */
+  readonly reconnects: number;
+  readonly open_failures: number;
+  readonly last_error: string | null;
+  /** ISO 8601 UTC. */
+  readonly last_error_at: string | null;
+};
+
+type SerialPortModule = typeof import('serialport');
+
+/** Wait before reopen attempt number `attempt` (0 = first): doubling from `minMs`, capped at `maxMs`. */
+export function reconnectDelayMs(attempt: number, minMs: number, maxMs: number): number {
+  return Math.min(maxMs, minMs * 2 ** Math.min(attempt, 30));
+}
+
+export class SerialSource implements SampleSource {
+  private readonly opts: SerialSourceOptions;
+  private readonly nowMs: () => number;
+  private readonly log: Logger;
+  private readonly burst: BurstLog;
+  private readonly decoder: FrameDecoder;
+  private readonly queue: BlockQueue;
+
+  private mod: SerialPortModule | null = null;
+  private port: SerialPortClass | null = null;
+  private opened = false;
+  private closing = false;
+  private everConnected = false;
+  private connected = false;
+  private attempt = 0;
+  private reopenTimer: NodeJS.Timeout | null = null;
+  private tickTimer: NodeJS.Timeout | null = null;
+  private lastFrameMs = 0;
+  /** Why this agent closed the port itself (stall), for the gap reason; null otherwise. */
+  private closeReason: string | null = null;
+  private stalls = 0;
+  private reconnects = 0;
+  private openFailures = 0;
+  private lastError: string | null = null;
+  private lastErrorAt: string | null = null;
+  private closed: Promise<void> | null = null;
+
+  constructor(opts: SerialSourceOptions) {
+    this.opts = opts;
+    this.nowMs = opts.nowMs ?? Date.now;
+    this.log = opts.log;
+    // A burst must outlast the longest wait between reopen attempts, or an unplugged board would
+    // start a new burst (and a new log line) at every attempt.
+    this.burst = new BurstLog(opts.log, { nowMs: this.nowMs, quietMs: Math.max(opts.burstQuietMs ?? 10_000, 2 * opts.reconnectMaxMs) });
+    this.queue = new BlockQueue(opts.queueFrames);
+    const sink: FrameSink = {
+      frame: (f) => this.onFrame(f),
+      gap: (g) => this.queue.pushGap(g),
+      problem: (kind, detail) => this.onProblem(kind, detail),
+    };
+    this.decoder = new FrameDecoder(sink, {
+      limits: { maxFrameBytes: opts.maxFrameBytes },
+      expect: { channelCount: opts.channels, sampleRateHz: opts.sampleRateHz },
+      nowMs: this.nowMs,
+    });
+  }
+
+  async open(): Promise<SourceInfo> {
+    if (this.opened) throw new Error('SerialSource.open() called twice');
+    try {
+      this.mod = await import('serialport');
+    } catch (e) {
+      throw new UserError(
+        'acquisition.driver: serial',
+        `the serialport native module could not be loaded (${(e as Error).message})`,
+        'on this board run `npm rebuild @serialport/bindings-cpp` (needs build tools: build-essential, python3)',
+      );
+    }
+    this.opened = true;
+    this.tickTimer = setInterval(() => this.tick(), this.opts.tickMs ?? 1000);
+    this.tryOpen();
+    return {
+      sampleRate: this.opts.sampleRateHz,
+      channelCount: this.opts.channels,
+      description: `serial board on ${this.opts.device}`,
+    };
+  }
+
+  items(): AsyncIterable<SourceItem> {
+    return this.queue.items();
+  }
+
+  health(): SerialHealth {
+    const c = this.decoder.counters;
+    const q = this.queue;
+    return {
+      device: this.opts.device,
+      connected: this.connected,
+      bytes_received: c.bytes_received,
+      frames_ok: c.frames_ok,
+      crc_errors: c.crc_errors,
+      bad_lengths: c.bad_lengths,
+      bad_headers: c.bad_headers,
+      rejected_frames: c.rejected_frames,
+      resyncs: c.resyncs,
+      bytes_skipped: c.bytes_skipped,
+      gaps: c.gaps + q.overrunGaps,
+      samples_lost: c.samples_lost + q.overrunSamples,
+      sequence_anomalies: c.sequence_anomalies,
+      clock_restarts: c.clock_restarts,
+      overruns: q.overruns,
+      stalls: this.stalls,
+      reconnects: this.reconnects,
+      open_failures: this.openFailures,
+      last_error: this.lastError,
+      last_error_at: this.lastErrorAt,
+    };
+  }
+
+  close(): Promise<void> {
+    if (this.closed) return this.closed;
+    this.closing = true;
+    if (this.reopenTimer) clearTimeout(this.reopenTimer);
+    if (this.tickTimer) clearInterval(this.tickTimer);
+    this.reopenTimer = this.tickTimer = null;
+    const port = this.port;
+    this.closed = new Promise<void>((resolve) => {
+      if (port && port.isOpen) port.close(() => resolve());
+      else resolve();
+    }).then(() => {
+      this.port = null;
+      this.connected = false;
+      this.burst.flush(true);
+      this.queue.end();
+    });
+    return this.closed;
+  }
+
+  private recordError(detail: string): void {
+    this.lastError = detail;
+    this.lastErrorAt = new Date(this.nowMs()).toISOString();
+  }
+
+  private onProblem(kind: DecodeProblem, detail: string): void {
+    if (kind !== 'sequence') this.recordError(detail);
+    this.burst.report(kind, `${this.opts.device}: ${detail}`, { device: this.opts.device });
+  }
+
+  private onFrame(f: DecodedFrame): void {
+    this.lastFrameMs = this.nowMs();
+    this.attempt = 0;
+    this.queue.pushBlock(f.startIndex, f.channels, f.tachEdges);
+  }
+
+  private tryOpen(): void {
+    this.reopenTimer = null;
+    if (this.closing) return;
+    const { SerialPort } = this.mod!;
+    let port: SerialPortClass;
+    try {
+      port = new SerialPort({ path: this.opts.device, baudRate: this.opts.baud, autoOpen: false });
+    } catch (e) {
+      this.openFailed(e as Error);
+      return;
+    }
+    // Without a listener an 'error' event would end the process; open and close errors come here.
+    port.on('error', (e: Error) => {
+      this.recordError(`${this.opts.device}: ${e.message}`);
+      this.burst.report('port_error', `${this.opts.device}: port error: ${e.message}`, { device: this.opts.device });
+    });
+    port.open((err) => {
+      if (err) {
+        this.openFailed(err);
+        return;
+      }
+      if (this.closing) {
+        port.close();
+        return;
+      }
+      this.port = port;
+      this.connected = true;
+      this.lastFrameMs = this.nowMs();
+      if (this.everConnected) this.reconnects++;
+      this.log.info({ device: this.opts.device, reconnects: this.reconnects }, this.everConnected ? `${this.opts.device}: reopened` : `${this.opts.device}: opened`);
+      this.everConnected = true;
+      port.on('data', (chunk: Buffer) => this.decoder.push(chunk));
+      port.once('close', (closeErr: (Error & { disconnected?: boolean }) | null) => this.onClosed(port, closeErr));
+    });
+  }
+
+  private onClosed(port: SerialPortClass, err: (Error & { disconnected?: boolean }) | null): void {
+    if (this.port === port) this.port = null;
+    this.connected = false;
+    port.removeAllListeners('data');
+    const why = err?.disconnected ? `device disconnected (${err.message})` : err ? `port closed: ${err.message}` : (this.closeReason ?? 'port closed');
+    this.closeReason = null;
+    this.decoder.linkDown(`${this.opts.device}: ${why}`);
+    if (this.closing) return;
+    this.recordError(`${this.opts.device}: ${why}`);
+    this.burst.report('disconnect', `${this.opts.device}: ${why}; reopening with backoff`, { device: this.opts.device });
+    // Reopen only now that the close has completed: reopening a port still closing can fail with "Cannot lock port".
+    this.scheduleReopen();
+  }
+
+  private openFailed(err: Error): void {
+    this.openFailures++;
+    const f = describeOpenFailure(this.opts.device, err);
+    this.recordError(f.detail);
+    if (f.kind === 'not_found') {
+      void listStablePorts().then((ports) => {
+        const present = ports.length ? ports.map((p) => p.path).join(', ') : 'none';
+        this.burst.report('open_failed', `${f.detail}; ${f.hint}; stable serial links present now: ${present}`, { device: this.opts.device });
+      });
+    } else this.burst.report('open_failed', `${f.detail}; ${f.hint}`, { device: this.opts.device });
+    this.scheduleReopen();
+  }
+
+  private scheduleReopen(): void {
+    if (this.closing || this.reopenTimer) return;
+    const delay = reconnectDelayMs(this.attempt++, this.opts.reconnectMinMs, this.opts.reconnectMaxMs);
+    this.reopenTimer = setTimeout(() => this.tryOpen(), delay);
+  }
+
+  private tick(): void {
+    const now = this.nowMs();
+    if (this.connected && this.port && now - this.lastFrameMs >= this.opts.stallTimeoutMs) {
+      this.stalls++;
+      const silent = `no good frame for ${((now - this.lastFrameMs) / 1000).toFixed(1)} s`;
+      this.recordError(`${this.opts.device}: ${silent}`);
+      this.burst.report('stall', `${this.opts.device}: ${silent}; closing and reopening the port`, { device: this.opts.device });
+      // The close handler reopens with backoff.
+      this.closeReason = `closed after ${silent}`;
+      this.port.close();
+    }
+    this.burst.flush();
+  }
+}
