@@ -15,7 +15,8 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
  *                                         +--> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
  *   tach volts --TachDetector--> edges --RevolutionTracker--> trusted revolutions
  *
- * All buffers are allocated here, once; `push` allocates nothing.
+ * All buffers are allocated here, once; `push` allocates nothing per sample (only small typed-array
+ * views per block or chunk when copying).
  */
 
 /** ISO 20816-3 measurement band for broadband velocity: 10-1000 Hz, or 2-1000 Hz below 600 r/min. */
