@@ -7,7 +7,7 @@ import { RunCapture, type CaptureSettings } from '../agent/live/capture.js';
  * revolutions at steady speed, restarting on speed changes. Frames are built here with known vectors.
  */
 
-const SETTINGS: CaptureSettings = { revolutions: 100, settleRevolutions: 50, speedTolerancePct: 1, maxRestarts: 2, maxAgeS: 2, scatterWarnPct: 10 };
+const SETTINGS: CaptureSettings = { revolutions: 100, settleRevolutions: 50, speedTolerancePct: 1, maxRestarts: 2, maxAgeS: 2, scatterWarnPct: 10, scatterFloorMmS: 0.05 };
 
 function frame(speed: number | null, vectors: Record<string, [number, number]>, ageS = 0.02): LiveFrame {
   return {
@@ -59,6 +59,15 @@ describe('capturing a balancing run from the live vectors', () => {
     // Scatter of A: every frame is 5 sin(10 deg) from the mean, i.e. tan(10 deg) = 17.6 % of it: flagged.
     expect(r.readings.A!.scatter_pct).toBeCloseTo(100 * Math.tan((10 * Math.PI) / 180), 1);
     expect(r.notes.some((n) => n.includes('A was unsteady'))).toBe(true);
+  });
+
+  it('does not call a small vector unsteady for scatter below the floor', () => {
+    // A residual of 0.02 mm/s pk that wanders +-20 degrees: 36 % of itself, but only 0.007 mm/s.
+    const cap = new RunCapture(['A'], SETTINGS);
+    feed(cap, (i) => frame(1500, { A: [0.02, 40 + (i % 2 ? 20 : -20)] }));
+    expect(cap.result!.readings.A!.scatter_pct).toBeGreaterThan(30);
+    expect(cap.result!.readings.A!.scatter_pk_mm_s).toBeLessThan(0.05);
+    expect(cap.result!.notes).toEqual([]);
   });
 
   it('restarts the averaging when the speed moves beyond the tolerance, and says so', () => {

@@ -1,4 +1,4 @@
-import { chmodSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { chmodSync, mkdtempSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -15,6 +15,7 @@ import { LiveServer } from '../agent/live/server.js';
 import { MemoryLogger } from '../agent/log.js';
 import { Secret } from '../agent/mqtt/secrets.js';
 import { UserError } from '../agent/errors.js';
+import { expectNoStack, runCli } from './support/cli.js';
 
 /** The text a user sees for a UserError: the message and what to do. */
 function userText(fn: () => unknown): string {
@@ -429,5 +430,53 @@ describe('live access tokens and config', () => {
     await expect(b.start()).rejects.toThrow(new RegExp(`port ${port} is already in use on 127.0.0.1`));
     await a.stop();
     rmSync(dir, { recursive: true, force: true });
+  });
+});
+
+describe('turnwise live (command line)', () => {
+  it('makes a token file only its owner can read, and checks a config that uses it without printing it', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tw-live-cli-'));
+    try {
+      const tok = join(dir, 'crew-token');
+      const made = runCli(['live', 'make-token', tok]);
+      expect(made.code).toBe(0);
+      expect(made.stdout).toContain(`file: ${tok}`);
+      expect(statSync(tok).mode & 0o777).toBe(0o600);
+      const token = readFileSync(tok, 'utf8').trim();
+      expect(token).toMatch(/^[A-Za-z0-9_-]{43}$/);
+      expect(made.stdout).not.toContain(token);
+      const again = runCli(['live', 'make-token', tok]);
+      expect(again.code).toBe(2);
+      expect(again.stderr).toMatch(/already exists/);
+      expect(again.stderr).toMatch(/--force/);
+      expectNoStack(again.stderr);
+      const cfg = join(dir, 'cfg.yaml');
+      writeFileSync(
+        cfg,
+        [
+          'machine: { id: test-fan, group: 2, support: rigid }',
+          'tach: { channel: 1, trigger_v: 2.5 }',
+          'sensors: [{ id: DE-V, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100 }]',
+          'live:',
+          '  bind: 0.0.0.0',
+          '  tokens:',
+          `    - { name: crew, role: operator, file: ${tok} }`,
+          '',
+        ].join('\n'),
+      );
+      const ok = runCli(['live', 'check', '--config', cfg]);
+      expect(ok.code).toBe(0);
+      expect(ok.stdout).toMatch(/listens on http:\/\/0\.0\.0\.0:8480\/ \(no TLS/);
+      expect(ok.stdout).toContain('token "crew": operator');
+      expect(ok.stdout).not.toContain(token);
+      chmodSync(tok, 0o640);
+      const open = runCli(['live', 'check', '--config', cfg]);
+      expect(open.code).toBe(2);
+      expect(open.stderr).toMatch(/live\.tokens\[0\]\.file: secret file .* is open to group or others/);
+      expect(open.stderr).toMatch(/chmod 600/);
+      expectNoStack(open.stderr);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
   });
 });

@@ -22,14 +22,18 @@ export interface CaptureSettings {
   readonly maxRestarts: number;
   /** A frame whose last trusted revolution is older than this is not used, s. */
   readonly maxAgeS: number;
-  /** Vector scatter (r.m.s. distance of the frames from their mean, % of the mean) that is flagged. */
+  /** Vector scatter (r.m.s. distance of the frames from their mean, % of the mean) that is flagged ... */
   readonly scatterWarnPct: number;
+  /** ... when it is also above this, mm/s pk (a tiny residual vector always scatters by a large share of itself). */
+  readonly scatterFloorMmS: number;
 }
 
 export interface CaptureReading {
   readonly amp_pk_mm_s: number;
   readonly phase_deg: number;
-  /** r.m.s. distance of the live vectors from their mean over the run, % of the mean's amplitude. */
+  /** r.m.s. distance of the live vectors from their mean over the run, mm/s pk ... */
+  readonly scatter_pk_mm_s: number;
+  /** ... and as % of the mean's amplitude. */
   readonly scatter_pct: number;
 }
 
@@ -217,11 +221,12 @@ export class RunCapture {
       const amp = Math.hypot(mRe, mIm);
       let dev = 0;
       for (const f of this.frameVecs) dev += f.w * ((f.re[k]! - mRe) ** 2 + (f.im[k]! - mIm) ** 2);
-      const scatter = amp > 0 ? (Math.sqrt(dev / W) / amp) * 100 : 0;
+      const spread = Math.sqrt(dev / W);
+      const scatter = amp > 0 ? (spread / amp) * 100 : 0;
       let phase = Math.atan2(mIm, mRe) / D2R;
       if (phase < 0) phase += 360;
-      readings[id] = { amp_pk_mm_s: amp, phase_deg: phase >= 360 ? 0 : phase, scatter_pct: scatter };
-      if (scatter > this.settings.scatterWarnPct) {
+      readings[id] = { amp_pk_mm_s: amp, phase_deg: phase >= 360 ? 0 : phase, scatter_pk_mm_s: spread, scatter_pct: scatter };
+      if (scatter > this.settings.scatterWarnPct && spread > this.settings.scatterFloorMmS) {
         this.notes.push(`the 1x vector at ${id} was unsteady during the run (scatter ${fmt(scatter)} % of its amplitude): load, speed or a loose sensor; consider repeating the run`);
       }
     });

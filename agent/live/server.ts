@@ -128,6 +128,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
         maxRestarts: opts.live.capture.max_restarts,
         maxAgeS: 2,
         scatterWarnPct: 10,
+        scatterFloorMmS: 0.05,
       },
       liveSpeed: () => this.view.speedRpm,
       onChange: () => this.markDirty('job'),

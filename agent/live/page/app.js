@@ -176,7 +176,7 @@ function connect() {
 function jobNote(view) {
   const el = $('job-note');
   el.hidden = !view || view.job.status !== 'open';
-  if (view) el.textContent = `Balancing job ${view.job.job_id} is open. Weight angles: ${view.convention}.`;
+  if (view) el.textContent = `Balancing job ${view.job.job_id} is open. Conventions: ${view.convention}.`;
 }
 
 function route() {

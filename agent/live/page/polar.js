@@ -44,7 +44,7 @@ export class PolarPlot {
     ctx.setTransform(dpr, 0, 0, dpr, 0, 0);
     const size = css;
     const mid = size / 2;
-    const R = mid - 26;
+    const R = mid - 34;
     ctx.clearRect(0, 0, size, size);
 
     const all = [...trail, ...(current ? [current] : [])];
@@ -78,7 +78,7 @@ export class PolarPlot {
     ctx.textBaseline = 'middle';
     for (const a of [0, 90, 180, 270]) {
       const t = (a * Math.PI) / 180;
-      ctx.fillText(`${a}\u00b0`, mid + (R + 14) * Math.sin(t), mid - (R + 14) * Math.cos(t));
+      ctx.fillText(`${a}\u00b0`, mid + (R + 17) * Math.sin(t), mid - (R + 15) * Math.cos(t));
     }
     ctx.textAlign = 'left';
     ctx.font = 'bold 12px system-ui, sans-serif';

@@ -41,9 +41,10 @@ export class Workbench {
     this.formKey = '';
     this.status = h('div');
     this.form = h('div', { class: 'no-print' });
+    this.details = h('div');
     this.message = h('div', { 'aria-live': 'polite' });
     this.tools = this.buildTools();
-    root.append(this.message, this.status, this.form, this.tools);
+    root.append(this.status, this.message, this.form, this.details, this.tools);
   }
 
   show() {
@@ -72,10 +73,12 @@ export class Workbench {
     const v = this.view ?? this.closed;
     if (!v) {
       fill(this.status, h('h1', null, 'Balancing'), h('p', null, 'No balancing job is open.'));
+      fill(this.details);
       this.setForm('start', () => (this.mayAct ? this.startForm() : h('p', { class: 'msg msg-warn' }, 'Your token is a viewer token: an operator token is needed to run a balancing job.')));
       return;
     }
     fill(this.status, this.statusBlock(v));
+    fill(this.details, v.job.solution ? this.solutionBlock(v) : null, this.runsBlock(v));
     const j = v.job;
     const last = j.runs[j.runs.length - 1];
     const key = [j.job_id, j.status, v.step, j.runs.length, last?.capture?.at ?? '', j.solution?.at ?? '', last?.discarded ? 'd' : ''].join('|');
@@ -85,6 +88,8 @@ export class Workbench {
   /** @param {string} key @param {() => any} build */
   setForm(key, build) {
     if (key === this.formKey) return;
+    // A message about the previous step is out of date once the step changes.
+    if (this.formKey && key.split('|').slice(0, 3).join('|') !== this.formKey.split('|').slice(0, 3).join('|')) fill(this.message);
     this.formKey = key;
     fill(this.form, build());
   }
@@ -131,17 +136,30 @@ export class Workbench {
       'div',
       null,
       h('h1', null, `Balancing job: ${KIND_TEXT[/** @type {'trim'} */ (s.kind)]}`),
-      h('div', { class: 'conv-banner', dataset: { convention: s.angle_convention } }, `Weight angles: ${v.convention}.`),
+      h('div', { class: 'conv-banner', dataset: { convention: s.angle_convention } }, `Conventions: ${v.convention}.`),
       h('p', null, `Job ${j.job_id}, started ${when(j.created_at)} by ${j.created_by.name}. Planes: ${s.planes.map((/** @type {any} */ p) => `${p.name} (radius ${num(p.radius_mm, 0)} mm)`).join(', ')}. Sensors: ${s.sensors.join(', ')}.`),
       j.status !== 'open'
         ? h('div', { class: 'msg msg-ok' }, `This job is ${j.status} (${when(j.closed?.at)}, ${j.closed?.by.name}${j.closed?.note ? `: ${j.closed.note}` : ''}).`, ' ', h('a', { href: `#report/${encodeURIComponent(j.job_id)}` }, 'Open the report'))
         : h('ol', { class: 'steps' }, steps.map((t, i) => h('li', { class: i < doneCount ? 'done' : i === doneCount ? 'now' : '' }, t))),
       j.status === 'open' ? h('p', { class: 'msg', id: 'next-step', dataset: { step: v.step } }, h('strong', null, 'Next: '), v.next) : null,
       v.capture ? this.captureBlock(v.capture) : null,
+      this.latestBlock(v),
       this.weightsBlock(v),
-      this.runsBlock(v),
-      j.solution ? this.solutionBlock(v) : null,
     );
+  }
+
+  /** The newest result worth seeing first: the last run's residual or trial check, or the correction. @param {any} v */
+  latestBlock(v) {
+    const j = v.job;
+    const last = [...j.runs].reverse().find((/** @type {any} */ r) => r.capture && !r.discarded);
+    if (!last || j.status !== 'open') return null;
+    if (last.residual) return this.residualBlock(last, j, 'latest');
+    if (v.step === 'correct' && j.solution?.result.ok) {
+      const r = j.solution.result;
+      return h('div', { class: 'msg msg-ok' }, h('strong', null, 'Correction (all trial weights removed): '), r.corrections.map((/** @type {any} */ c) => `${c.plane} ${num(c.mass_g, 1)} g at ${deg(c.angle_deg)}`).join(', '), '. Details below the form.');
+    }
+    if (last.trial_check && !j.solution) return this.trialCheckBlock(last, 'latest');
+    return null;
   }
 
   /** @param {any} c */
@@ -179,13 +197,14 @@ export class Workbench {
       'div',
       null,
       h('h2', null, 'Runs'),
+      h('p', null, `Each sensor: 1x amplitude in ${units.velocity} pk / phase lag. Weights: mass at angle, relative to as found.`),
       h(
         'div',
         { class: 'scroll' },
         h(
           'table',
           { id: 'runs' },
-          h('thead', null, h('tr', null, h('th', null, '#'), h('th', null, 'run'), h('th', null, 'weights'), h('th', null, 'speed r/min'), sensors.map((/** @type {string} */ s) => h('th', null, `${s} 1x ${units.velocity} pk / phase`)), h('th', null, 'notes'))),
+          h('thead', null, h('tr', null, h('th', null, '#'), h('th', null, 'run'), h('th', null, 'weights'), h('th', null, 'r/min'), sensors.map((/** @type {string} */ s) => h('th', null, s)), h('th', null, 'notes'))),
           h(
             'tbody',
             null,
@@ -212,12 +231,12 @@ export class Workbench {
     );
   }
 
-  /** @param {any} r */
-  trialCheckBlock(r) {
+  /** @param {any} r @param {string} [where] */
+  trialCheckBlock(r, where = 'runs') {
     const enough = r.trial_check.some((/** @type {any} */ t) => t.moved_enough);
     return h(
       'div',
-      { class: 'trial-check', dataset: { run: String(r.index), enough: enough ? 'yes' : 'no' } },
+      { class: 'trial-check', dataset: { run: String(r.index), enough: enough ? 'yes' : 'no', where } },
       h('h3', null, `Did ${r.label} move the 1x enough? (at least 30 % in amplitude or 30\u00b0 in phase: common practice)`),
       h(
         'table',
@@ -231,12 +250,12 @@ export class Workbench {
     );
   }
 
-  /** @param {any} r @param {any} j */
-  residualBlock(r, j) {
+  /** @param {any} r @param {any} j @param {string} [where] */
+  residualBlock(r, j, where = 'runs') {
     const x = r.residual;
     return h(
       'div',
-      { class: 'panel residual', dataset: { run: String(r.index) } },
+      { class: 'panel residual', dataset: { run: String(r.index), where } },
       h('h3', null, `Residual after ${r.label}`),
       h(
         'table',
@@ -601,7 +620,7 @@ export class Workbench {
       return rowsOf(p, split).map((/** @type {any} */ a, /** @type {number} */ i) => ({ plane: a.plane, mass_g: Number(val(form, `m${k}_${i}`) || a.mass_g), angle_deg: Number(val(form, `a${k}_${i}`) || a.angle_deg), radius_mm: Number(val(form, `r${k}_${i}`) || a.radius_mm) }));
     };
     const caution = this.cautionBlock(() => rowsNow().map((/** @type {any} */ r) => ({ label: `weight in ${r.plane}`, mass_g: r.mass_g, radius_mm: r.radius_mm })), button, v);
-    append(form, h('h2', null, v.step === 'check' ? 'Trim' : 'Fit the correction'), h('div', { class: 'conv-banner' }, `Weight angles: ${v.convention}.`), cards, caution.block, h('div', { class: 'buttons' }, button));
+    append(form, h('h2', null, v.step === 'check' ? 'Trim' : 'Fit the correction'), h('div', { class: 'conv-banner' }, `Conventions: ${v.convention}.`), cards, caution.block, h('div', { class: 'buttons' }, button));
     form.addEventListener('submit', (ev) => {
       ev.preventDefault();
       const p = v.proposals[chosen()];
