@@ -180,7 +180,8 @@ describe('live page in a real browser', () => {
     // Trial 1: the suggested trial weight (10 % of the rotor weight on one bearing, common practice).
     await page.waitForSelector('#trial-form');
     expect(await page.textContent('#trial-suggestion')).toMatch(/Suggested: 23 g at 760 mm/);
-    expect(await page.textContent('#cautions')).toMatch(/F = m r ω² = \d+ N at 148\d r\/min/);
+    expect(await page.textContent('#cautions')).toMatch(/23\.0 g at 760 mm pulls F = m r ω² = 4\d\d N at 148\d r\/min \(10 % of the rotor weight on one bearing\)/);
+    if (process.env.TURNWISE_SCREENSHOT_DIR) await page.screenshot({ path: join(shots, 'trial-form.png'), fullPage: true });
     await declare();
     expect((await applyPlacement(1)).map((i) => `${i.action} ${i.id} ${i.plane}`)).toEqual(['fit T1 back_plate']);
     await capture(1);
@@ -211,6 +212,9 @@ describe('live page in a real browser', () => {
     // Fit the corrections with the trial weights off.
     await page.waitForSelector('#correction-form');
     expect(await page.textContent('#correction-form .conv-banner')).toMatch(/WITH rotation/);
+    await page.waitForFunction('document.querySelector("#cautions").textContent.includes("weight in front_shroud")');
+    // F = m r omega^2 of the proposed weights, shown before the change (about 1000 N for 55 g here).
+    expect(await page.textContent('#cautions')).toMatch(/weight in back_plate: 5\d\.\d g at 760 mm pulls F = m r ω² = \d{3,4} N/);
     await declare();
     expect((await applyPlacement(3)).map((i) => `${i.action} ${i.id}`)).toEqual(['remove T2', 'fit C1', 'fit C2']);
     await capture(3);
@@ -238,6 +242,31 @@ describe('live page in a real browser', () => {
     expect(report).toContain('Test Technician');
     const pdf = await page.pdf({ path: join(shots, 'report.pdf'), format: 'A4' });
     expect(pdf.length).toBeGreaterThan(20_000);
+    if (process.env.TURNWISE_SCREENSHOT_DIR) {
+      await page.emulateMedia({ media: 'print' });
+      await page.screenshot({ path: join(shots, 'report-print.png'), fullPage: true });
+      await page.emulateMedia({ media: 'screen' });
+    }
     expect(pageErrors).toEqual([]);
+  });
+
+  it('shows a viewer the job but no way to change it', async () => {
+    const viewer = await browser.newPage({ viewport: { width: 800, height: 900 } });
+    try {
+      await viewer.goto(url + '#job');
+      await viewer.fill('#token', VIEWER);
+      await viewer.click('#login-form button');
+      await viewer.waitForSelector('#role');
+      await viewer.waitForFunction('document.querySelector("#role").textContent.includes("viewer: read only")');
+      await viewer.click('nav a[data-nav=job]');
+      await viewer.waitForSelector('#view-job .msg-warn');
+      expect(await viewer.textContent('#view-job')).toMatch(/No balancing job is open.*viewer token: an operator token is needed/is);
+      expect(await viewer.locator('#view-job button.primary').count()).toBe(0);
+      await viewer.click('nav a[data-nav=records]');
+      await viewer.waitForSelector('#records tr[data-job]');
+      expect(await viewer.locator('#records tr[data-job]').count()).toBe(1);
+    } finally {
+      await viewer.close();
+    }
   });
 });

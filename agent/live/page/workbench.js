@@ -551,6 +551,7 @@ export class Workbench {
       caution.block,
       h('div', { class: 'buttons' }, button),
     );
+    caution.refresh(); // now that the fields exist
     form.addEventListener('submit', (ev) => {
       ev.preventDefault();
       const mass = Number(val(form, 'mass'));
@@ -610,7 +611,10 @@ export class Workbench {
         draw();
         caution.refresh();
       });
-      setTimeout(draw);
+      setTimeout(() => {
+        draw();
+        caution.refresh();
+      });
     });
     const chosen = () => Number(/** @type {HTMLInputElement | null} */ (form.querySelector('input[name=proposal]:checked'))?.value ?? 0);
     const rowsNow = () => {
