@@ -98,6 +98,13 @@ describe('capturing a balancing run from the live vectors', () => {
     expect(cap.result!.readings.A!.amp_pk_mm_s).toBeCloseTo(3, 9);
   });
 
+  it('allows a slow fan three revolutions between trusted revolutions', () => {
+    // 60 r/min: a revolution a second, so a last revolution 2.5 s ago is still live; 3.5 s is not.
+    const cap = new RunCapture(['A'], { ...SETTINGS, revolutions: 10, settleRevolutions: 0 });
+    expect(cap.push(frame(60, { A: [3, 10] }, 2.5), 0).waiting).toBeNull();
+    expect(cap.push(frame(60, { A: [3, 10] }, 3.5), 4000).waiting).toMatch(/no trusted revolution for 3\.5 s/);
+  });
+
   it('fails naming the sensor when a 1x vector is missing', () => {
     const cap = new RunCapture(['A', 'B'], { ...SETTINGS, settleRevolutions: 0 });
     feed(cap, () => frame(1500, { A: [3, 10] }));

@@ -357,7 +357,10 @@ describe('live page server', () => {
 
     // Every action is evented in the common envelope, with unique ids, after the record was saved.
     const ours = events.filter((e) => e.job_id === id);
-    expect(ours.map((e) => e.type)).toEqual(['balancing_job_started', 'balancing_run_captured', 'balancing_weights_changed', 'balancing_run_captured', 'balancing_job_solved', 'balancing_weights_changed', 'balancing_run_captured', 'balancing_job_finished']);
+    expect(ours.map((e) => e.type)).toEqual([
+      'balancing_job_started', 'balancing_capture_started', 'balancing_run_captured', 'balancing_weights_changed', 'balancing_capture_started', 'balancing_run_captured',
+      'balancing_job_solved', 'balancing_weights_changed', 'balancing_capture_started', 'balancing_run_captured', 'balancing_job_finished',
+    ]);
     for (const e of ours) {
       expect(e).toMatchObject({ asset: 'test-fan', severity: 'info', by: { token: 'crew', role: 'operator' } });
       expect(Date.parse(e.ts)).toBe(clock.now());

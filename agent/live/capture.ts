@@ -20,7 +20,7 @@ export interface CaptureSettings {
   readonly speedTolerancePct: number;
   /** Restarts after speed changes before the capture gives up. */
   readonly maxRestarts: number;
-  /** A frame whose last trusted revolution is older than this is not used, s. */
+  /** A frame whose last trusted revolution is older than this (or than three revolutions) is not used, s. */
   readonly maxAgeS: number;
   /** Vector scatter (r.m.s. distance of the frames from their mean, % of the mean) that is flagged ... */
   readonly scatterWarnPct: number;
@@ -131,7 +131,9 @@ export class RunCapture {
     const prev = this.prevAt;
     this.prevAt = atMs;
     const speed = frame.speed_rpm;
-    if (speed === null || !(speed > 0) || frame.age_s > this.settings.maxAgeS) {
+    // A slow fan turns less often: allow three revolutions' time as well.
+    const maxAge = speed !== null && speed > 0 ? Math.max(this.settings.maxAgeS, 180 / speed) : this.settings.maxAgeS;
+    if (speed === null || !(speed > 0) || frame.age_s > maxAge) {
       this.waiting = speed === null ? 'no speed yet: is the fan turning and the tach pickup seeing its mark?' : `no trusted revolution for ${fmt(Math.min(frame.age_s, 9999))} s: tach lost or fan stopped`;
       this.restartSettling(null);
       return this.progress();

@@ -484,11 +484,12 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       const body = req.method === 'POST' ? await this.readBody(req) : undefined;
       const params = route.pattern.exec(path)!.slice(1);
       const result = await route.handler({ req, principal, params, body });
-      if (route.act) this.opts.logger.info({ path, token: principal.name, role: principal.role, remote }, 'live page: action done');
+      if (route.act) this.opts.logger.debug({ path, token: principal.name, role: principal.role, remote }, 'live page: action done');
       return this.reply(res, 200, result, route.download?.(params));
     } catch (e) {
       if (e instanceof ApiError) {
         if (e.status >= 500) this.opts.logger.error({ path, error: e.message }, 'live page: request failed');
+        else if (req.method === 'POST' && e.status !== 401 && e.status !== 403) this.opts.logger.info({ path, code: e.code, error: e.message, remote }, 'live page: request refused');
         return this.reply(res, e.status, e.body());
       }
       this.opts.logger.error({ path, error: (e as Error)?.stack ?? String(e) }, 'live page: internal error');

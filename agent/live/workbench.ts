@@ -487,9 +487,12 @@ export class BalancingWorkbench {
       if (last.purpose !== 'check') job.solution = null; // a failed attempt is out of date once a run changes
       const settings: CaptureSettings = { ...this.deps.capture, revolutions: req.revolutions ?? this.deps.capture.revolutions };
       this.capture = { run: last.index, cap: new RunCapture(job.setup.sensors, settings), by: actor };
-      this.log(job, actor, 'capture_started', `${runName(last)}${last.capture ? ' (repeat)' : ''}: ${settings.settleRevolutions} revolutions to settle, ${settings.revolutions} averaged`);
-      this.deps.logger.info({ job_id: job.job_id, run: last.index, by: actor.name, token: actor.token }, 'balancing capture started');
-      this.changed();
+      await this.record(job, actor, 'capture_started', 'info', `${runName(last)}${last.capture ? ' (repeat)' : ''}: ${settings.settleRevolutions} revolutions to settle, ${settings.revolutions} averaged`, {
+        run: last.index,
+        label: last.label,
+        settle_revolutions: settings.settleRevolutions,
+        revolutions: settings.revolutions,
+      });
       return this.view(job)!;
     });
   }
