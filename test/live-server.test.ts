@@ -1,3 +1,4 @@
+import { spawnSync } from 'node:child_process';
 import { chmodSync, mkdtempSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -433,6 +434,14 @@ describe('live access tokens and config', () => {
     await expect(b.start()).rejects.toThrow(new RegExp(`port ${port} is already in use on 127.0.0.1`));
     await a.stop();
     rmSync(dir, { recursive: true, force: true });
+  });
+});
+
+describe('the page\'s own JavaScript', () => {
+  it('type-checks against the DOM library (agent/live/page/tsconfig.json)', () => {
+    const r = spawnSync(process.execPath, [join('node_modules', 'typescript', 'bin', 'tsc'), '-p', join('agent', 'live', 'page', 'tsconfig.json')], { encoding: 'utf8', timeout: 120_000 });
+    expect(r.stdout + r.stderr).toBe('');
+    expect(r.status).toBe(0);
   });
 });
 
