@@ -18,6 +18,7 @@
  * solved for the correction (as found plus trial runs, or as found plus the stored coefficients), and
  * `workbench` holds every run (check runs included) with its capture details and the action log.
  */
+import type { z } from 'zod';
 import type { StoredCoefficients } from '../balance/coefficients.js';
 import { conventionText, type AngleConvention } from '../balance/conventions.js';
 import type { BalanceJob, BalanceResult, CoefficientValue, Issue, JobRun, PlaneWeight } from '../balance/job.js';
@@ -399,12 +400,8 @@ export class BalancingWorkbench {
     });
   }
 
-  async declareRun(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(declareRunSchema, raw, 'run');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
-      this.noCapture(job);
+  declareRun(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(declareRunSchema, raw, 'run', jobId, by, 'refuse', async (job, actor, req) => {
       const last = job.runs[job.runs.length - 1]!;
       if (!last.capture && !last.discarded) throw conflict(`${runName(last)} is declared but not measured yet`, 'capture it first, or discard it and declare again');
       if (req.acknowledge_cautions !== true) {
@@ -469,16 +466,11 @@ export class BalancingWorkbench {
         weights_on_rotor: weights,
         angle_convention: job.setup.angle_convention,
       });
-      return this.view(job)!;
     });
   }
 
-  async startCapture(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(captureSchema, raw ?? {}, 'capture request');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
-      this.noCapture(job);
+  startCapture(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(captureSchema, raw, 'capture request', jobId, by, 'refuse', async (job, actor, req) => {
       const last = job.runs[job.runs.length - 1]!;
       if (last.discarded) throw conflict(`${runName(last)} was discarded`, 'declare the next run first');
       if (last.capture && job.solution?.result.ok && last.purpose !== 'check') {
@@ -493,31 +485,22 @@ export class BalancingWorkbench {
         settle_revolutions: settings.settleRevolutions,
         revolutions: settings.revolutions,
       });
-      return this.view(job)!;
     });
   }
 
-  async cancelCapture(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(byOnlySchema, raw ?? {}, 'request');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
+  cancelCapture(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(byOnlySchema, raw, 'request', jobId, by, 'allow', async (job, actor, req) => {
       const c = this.capture;
       if (!c) throw conflict('no capture is running', 'nothing to cancel');
       this.capture = null;
       const run = job.runs[c.run]!;
       run.capture_failures.push({ at: this.nowIso(), why: `cancelled by ${actor.name}` });
       await this.record(job, actor, 'capture_cancelled', 'info', `${runName(run)}: capture cancelled`, { run: run.index });
-      return this.view(job)!;
     });
   }
 
-  async discardRun(jobId: string, index: number, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(reasonSchema, raw, 'discard request');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
-      this.noCapture(job);
+  discardRun(jobId: string, index: number, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(reasonSchema, raw, 'discard request', jobId, by, 'refuse', async (job, actor, req) => {
       const run = job.runs[index];
       if (!run) throw new ApiError(404, 'not_found', `job ${job.job_id} has no run ${index}`, `runs are numbered 0-${job.runs.length - 1}`);
       if (run.purpose === 'as_found') throw conflict('the as-found run cannot be discarded', 'repeat its capture instead, or abandon the job');
@@ -533,16 +516,11 @@ export class BalancingWorkbench {
         run.discarded = { at: this.nowIso(), by: actor, reason: req.reason };
         await this.record(job, actor, 'run_discarded', 'info', `${runName(run)} left out of the solution: ${req.reason}`, { run: index, reason: req.reason });
       }
-      return this.view(job)!;
     });
   }
 
-  async solve(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(byOnlySchema, raw ?? {}, 'request');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
-      this.noCapture(job);
+  solve(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(byOnlySchema, raw, 'request', jobId, by, 'refuse', async (job, actor, req) => {
       if (job.runs.some((r) => r.purpose === 'check')) throw conflict('the correction is already being checked', 'finish the job, or abandon it and start again to solve anew');
       const pending = job.runs.find((r) => !r.capture && !r.discarded);
       if (pending) throw conflict(`${runName(pending)} is not measured yet`, 'capture it (or discard it) before solving');
@@ -578,16 +556,11 @@ export class BalancingWorkbench {
         warnings: result.warnings.map((w) => w.code),
         problems: result.problems.map((p) => p.code),
       });
-      return this.view(job)!;
     });
   }
 
-  async finish(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(finishSchema, raw ?? {}, 'finish request');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
-      this.noCapture(job);
+  finish(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(finishSchema, raw, 'finish request', jobId, by, 'refuse', async (job, actor, req) => {
       if (!job.solution?.result.ok) throw conflict('the job has no correction to keep', 'solve it first (with enough good runs), or abandon it');
       const pending = job.runs.find((r) => !r.capture && !r.discarded);
       if (pending) throw conflict(`${runName(pending)} is declared but not measured`, 'capture it or discard it first');
@@ -615,15 +588,11 @@ export class BalancingWorkbench {
         }
       }
       this.changed();
-      return this.view(job)!;
     });
   }
 
-  async abandon(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    const req = parseBody(reasonSchema, raw, 'abandon request');
-    return this.serial(async () => {
-      const job = this.openJob(jobId);
-      const actor = this.actor(job, by, req.by);
+  abandon(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
+    return this.step(reasonSchema, raw, 'abandon request', jobId, by, 'allow', async (job, actor, req) => {
       if (this.capture) this.capture = null;
       job.status = 'abandoned';
       job.closed = { at: this.nowIso(), by: actor, note: req.reason };
@@ -634,7 +603,6 @@ export class BalancingWorkbench {
       });
       this.active = null;
       this.changed();
-      return this.view(job)!;
     });
   }
 
@@ -694,6 +662,26 @@ export class BalancingWorkbench {
   }
 
   // ---- internals ----
+
+  /** One action on the open job: the body checked, run in turn with the others, the job's view returned. */
+  private async step<T extends { by?: string }>(
+    schema: z.ZodType<T>,
+    raw: unknown,
+    what: string,
+    jobId: string,
+    by: Omit<Actor, 'name'>,
+    duringCapture: 'refuse' | 'allow',
+    body: (job: WorkbenchJob, actor: Actor, req: T) => Promise<void>,
+  ): Promise<JobView> {
+    const req = parseBody(schema, raw ?? {}, what);
+    return this.serial(async () => {
+      const job = this.openJob(jobId);
+      const actor = this.actor(job, by, req.by);
+      if (duringCapture === 'refuse') this.noCapture(job);
+      await body(job, actor, req);
+      return this.view(job)!;
+    });
+  }
 
   private serial<T>(fn: () => Promise<T>): Promise<T> {
     const next = this.queue.then(fn, fn);
