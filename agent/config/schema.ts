@@ -3,6 +3,7 @@ import { acquisitionSchema } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
 import { liveSchema } from './live.js';
+import { loggingSchema } from './logging.js';
 import { mqttSchema } from './mqtt.js';
 import { watcherSchema } from './watcher.js';
 
@@ -92,6 +93,8 @@ export const configSchema = z
     mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
     advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
     live: liveSchema.optional().describe('Live page and balancing workbench for the technician (HTTP + WebSocket); without it no port is opened.'),
+
+    logging: loggingSchema,
   })
   .strict()
   .superRefine((cfg, ctx) => {
