@@ -208,7 +208,7 @@ export interface WorkbenchDeps {
 
 const TRIALS_NEEDED: Record<JobKind, number> = { single_plane: 1, two_plane: 2, static_couple: 2, trim: 0 };
 const PLANES_NEEDED: Record<JobKind, number> = { single_plane: 1, two_plane: 2, static_couple: 2, trim: 0 };
-export const AMP_UNIT = 'mm/s pk';
+const AMP_UNIT = 'mm/s pk';
 
 function wrap360(a: number): number {
   const r = a % 360;
@@ -489,7 +489,7 @@ export class BalancingWorkbench {
   }
 
   cancelCapture(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    return this.step(byOnlySchema, raw, 'request', jobId, by, 'allow', async (job, actor, req) => {
+    return this.step(byOnlySchema, raw, 'request', jobId, by, 'allow', async (job, actor) => {
       const c = this.capture;
       if (!c) throw conflict('no capture is running', 'nothing to cancel');
       this.capture = null;
@@ -520,7 +520,7 @@ export class BalancingWorkbench {
   }
 
   solve(jobId: string, raw: unknown, by: Omit<Actor, 'name'>): Promise<JobView> {
-    return this.step(byOnlySchema, raw, 'request', jobId, by, 'refuse', async (job, actor, req) => {
+    return this.step(byOnlySchema, raw, 'request', jobId, by, 'refuse', async (job, actor) => {
       if (job.runs.some((r) => r.purpose === 'check')) throw conflict('the correction is already being checked', 'finish the job, or abandon it and start again to solve anew');
       const pending = job.runs.find((r) => !r.capture && !r.discarded);
       if (pending) throw conflict(`${runName(pending)} is not measured yet`, 'capture it (or discard it) before solving');
