@@ -2,6 +2,7 @@ import { z } from 'zod';
 import { acquisitionSchema } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
+import { liveSchema } from './live.js';
 import { loggingSchema } from './logging.js';
 import { mqttSchema } from './mqtt.js';
 import { watcherSchema } from './watcher.js';
@@ -91,6 +92,7 @@ export const configSchema = z
 
     mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
     advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
+    live: liveSchema.optional().describe('Live page and balancing workbench for the technician (HTTP + WebSocket); without it no port is opened.'),
 
     logging: loggingSchema,
   })

@@ -3,9 +3,10 @@ import { analyzeCommand } from './analyze.js';
 import { balanceCommand } from './balance.js';
 import { checkConfigCommand } from './check-config.js';
 import { conditionCommand } from './condition.js';
+import { liveCommand } from './live.js';
 import { mqttCommand } from './mqtt.js';
 import { probeSerialCommand } from './probe-serial.js';
 import { simulateCommand } from './simulate.js';
 
 /** Every sub-command, in the order `turnwise help` lists them. */
-export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, mqttCommand, probeSerialCommand, simulateCommand];
+export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, liveCommand, mqttCommand, probeSerialCommand, simulateCommand];
