@@ -5,7 +5,8 @@ import { checkConfigCommand } from './check-config.js';
 import { conditionCommand } from './condition.js';
 import { mqttCommand } from './mqtt.js';
 import { probeSerialCommand } from './probe-serial.js';
+import { simBoardCommand } from './sim-board.js';
 import { simulateCommand } from './simulate.js';
 
 /** Every sub-command, in the order `turnwise help` lists them. */
-export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, mqttCommand, probeSerialCommand, simulateCommand];
+export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, mqttCommand, probeSerialCommand, simBoardCommand, simulateCommand];
