@@ -1,7 +1,11 @@
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { validateConfig } from '../agent/config/load.js';
 import { silentLogger } from '../agent/log.js';
 import { serialOptionsFromConfig } from '../drivers/serial/serial-source.js';
+import { expectNoStack, runCli } from './support/cli.js';
 
 const base = {
   machine: { id: 'kessrow-id3a', group: 2, support: 'rigid' },
@@ -63,5 +67,19 @@ describe('acquisition config section', () => {
     expect(() => validateConfig({ ...sensorOut, acquisition: serial }, 'f.yaml')).toThrow(/f\.yaml: sensors\[1\]\.channel: sensor NDE-V is on channel 8 but acquisition\.channels is 8 \(the board sends channels 0-7\)/);
     // the simulator makes the channels the config names; a recording's count is checked when it is opened
     expect(validateConfig({ ...sensorOut, acquisition: { driver: 'sim', scenario: 's.yaml' } }).sensors).toHaveLength(2);
+  });
+
+  it('probe-serial refuses a config whose acquisition is not the serial board, saying what to give instead', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tw-acq-'));
+    try {
+      const file = join(dir, 'agent.yaml');
+      writeFileSync(file, JSON.stringify({ ...base, acquisition: { driver: 'sim', scenario: 'fan.yaml' } }));
+      const r = runCli(['probe-serial', '--config', file]);
+      expect(r.code).toBe(2);
+      expect(r.stderr).toContain(`${file}: acquisition.driver: is "sim", not "serial": there is no board device in this config\n  -> give the board with --device PATH, or use a config with acquisition.driver: serial`);
+      expectNoStack(r.stderr);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
   });
 });

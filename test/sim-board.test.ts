@@ -270,6 +270,31 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
   }, 30_000);
 });
 
+describe('turnwise sim-board killed outright', () => {
+  it('takes socat with it even while socat is blocked on a full pseudo-terminal nobody reads', async () => {
+    const device = join(tempDir(), 'board');
+    const child = spawn(process.execPath, [CLI, 'sim-board', '--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--link', device, '--from-day', '1'], { stdio: 'ignore' });
+    const exited = new Promise((res) => child.once('exit', res));
+    const socatFor = () => execFileSync('ps', ['-eo', 'args'], { encoding: 'utf8' }).split('\n').filter((l) => l.includes(`link=${device}`));
+    try {
+      for (const t0 = Date.now(); !existsSync(device); ) {
+        if (Date.now() - t0 > 10_000) throw new Error('sim-board did not make its link');
+        await new Promise((r) => setTimeout(r, 20));
+      }
+      // a second of frames with nobody reading: the pseudo-terminal is full and socat waits on it
+      await new Promise((r) => setTimeout(r, 1000));
+      expect(socatFor()).toHaveLength(1);
+    } finally {
+      child.kill('SIGKILL');
+      await exited;
+    }
+    for (const t0 = Date.now(); socatFor().length > 0 || existsSync(device); ) {
+      if (Date.now() - t0 > 5000) throw new Error(`socat outlived sim-board: ${socatFor().join('; ')}; link ${existsSync(device) ? 'still there' : 'gone'}`);
+      await new Promise((r) => setTimeout(r, 50));
+    }
+  }, 20_000);
+});
+
 describe('turnwise sim-board --device: into an existing serial line', () => {
   it('writes intact int16 frames with board-timed tach edges into one end of a pty pair; the agent reads them at the other', async () => {
     const pty = new PtyPair();

@@ -8,12 +8,14 @@
  * behind and socat's backlog passes `maxBacklogBytes`, whole frames are dropped (and counted), so the
  * agent sees a sequence gap, never a torn frame.
  *
- * socat reads its stdin, so it ends by itself when this process dies, even by SIGKILL; `stop()` ends
- * it at once and waits until it has removed its link.
+ * `stop()` ends socat at once and waits until it has removed its link. Should this process die without
+ * stopping it (even by SIGKILL), socat ends too: started through setpriv (util-linux) with a parent-death
+ * signal where setpriv is installed, and in any case when it next reads its closed stdin (it does not
+ * read while the pseudo-terminal is full, hence setpriv).
  */
 import { spawn, type ChildProcess } from 'node:child_process';
-import { existsSync, lstatSync, readlinkSync, unlinkSync } from 'node:fs';
-import { dirname, resolve } from 'node:path';
+import { accessSync, constants, existsSync, lstatSync, readlinkSync, statSync, unlinkSync } from 'node:fs';
+import { delimiter, dirname, join, resolve } from 'node:path';
 import { UserError } from '../../agent/errors.js';
 
 export type SocatTarget =
@@ -23,8 +25,6 @@ export type SocatTarget =
   | { readonly kind: 'device'; readonly path: string; readonly baud: number };
 
 export interface SocatLinkOptions {
-  /** Program to run; default `socat` from PATH. */
-  readonly program?: string;
   /** How long socat may take to make the link, ms. */
   readonly startTimeoutMs?: number;
   /**
@@ -40,6 +40,21 @@ export interface SocatExit {
 }
 
 const INSTALL_HINT = 'install socat (Debian/Ubuntu: apt-get install socat) and try again';
+
+/** The first executable file called `name` in a folder of PATH, or null. */
+function onPath(name: string): string | null {
+  for (const dir of (process.env.PATH ?? '').split(delimiter)) {
+    if (!dir) continue;
+    const file = join(dir, name);
+    try {
+      accessSync(file, constants.X_OK);
+      if (statSync(file).isFile()) return file;
+    } catch {
+      // not here
+    }
+  }
+  return null;
+}
 
 /** Before socat makes `link`: refuse a path in use, clear a link left behind by an earlier run. */
 function prepareLinkPath(link: string): void {
@@ -88,19 +103,24 @@ export class SocatLink {
 
   /** Starts socat and waits until the link (or the device) is ready. Rejects with a UserError naming the problem. */
   static async start(target: SocatTarget, opts: SocatLinkOptions = {}): Promise<SocatLink> {
-    const program = opts.program ?? 'socat';
+    const socat = onPath('socat');
+    if (!socat) throw new UserError('socat', 'socat is not installed (it makes the serial link)', INSTALL_HINT);
     if (target.kind === 'pty') prepareLinkPath(target.link);
     else if (!existsSync(target.path)) throw new UserError(target.path, 'no such device', 'give the serial device to write to (e.g. /dev/ttyUSB0), or leave --device out to make a pseudo-terminal');
     const out = target.kind === 'pty' ? `pty,rawer,link=${target.link}` : `${target.path},rawer,b${target.baud}`;
+    const args = ['-d', '-d', '-u', 'STDIN', out];
+    const setpriv = onPath('setpriv');
     // Its own process group: Ctrl-C in the terminal reaches this process only, which then stops socat.
-    const proc = spawn(program, ['-d', '-d', '-u', 'STDIN', out], { stdio: ['pipe', 'ignore', 'pipe'], detached: true });
+    const proc = setpriv
+      ? spawn(setpriv, ['--pdeathsig', 'TERM', '--', socat, ...args], { stdio: ['pipe', 'ignore', 'pipe'], detached: true })
+      : spawn(socat, args, { stdio: ['pipe', 'ignore', 'pipe'], detached: true });
     const spawned = await new Promise<Error | null>((res) => {
       proc.once('spawn', () => res(null));
       proc.once('error', (e) => res(e));
     });
     if (spawned) {
       const code = (spawned as NodeJS.ErrnoException).code;
-      throw new UserError(program, code === 'ENOENT' ? 'socat is not installed (it makes the serial link)' : `cannot start socat (${spawned.message})`, INSTALL_HINT);
+      throw new UserError(socat, `cannot start socat (${code ?? spawned.message})`, INSTALL_HINT);
     }
     const link = new SocatLink(proc, target, opts.maxBacklogBytes ?? 256 * 1024);
     try {
