@@ -52,6 +52,47 @@ describe('turnwise analyze', () => {
     expect(de.overall_rms_mm_s).toBeLessThan(4.4);
     const dh = j.channels.find((c: { id: string }) => c.id === 'DE-H');
     expect(dh.orders['1'].phase_deg).toBeCloseTo(130, 0);
+    // ISO 20816-3, group 2, rigid: B/C 2.8, C/D 4.5 mm/s r.m.s.; 4.25 mm/s lies in zone C.
+    expect(j.zone.machine).toBe('C');
+    expect(j.zone.boundaries_mm_s).toEqual({ a_b: 1.4, b_c: 2.8, c_d: 4.5 });
+    expect(de.zone).toBe('C');
+    // One bearing only: a verdict from what exists, with the gap stated (never a confident one).
+    expect(j.unbalance.kind).toBe('dynamic');
+    expect(j.unbalance.confidence).toBe('low');
+    expect(j.unbalance.limits.join(' ')).toMatch(/only one bearing/);
+    expect(j.window.channels[0].stats.samples).toBe(12 * fs);
+  });
+
+  it('tells static unbalance from the phase relation of the two bearings', () => {
+    // Static unbalance on a centre-hung rotor: both bearings move in phase, H lags V by 90 degrees
+    // at each bearing (common practice; see shared field notes, section 2).
+    const sig = synthesize({
+      sampleRate: fs,
+      seconds: 12,
+      rpm: () => 1485,
+      channels: [
+        { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 },
+        { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
+        { orders: [{ order: 1, velPk: 5.5, phaseDeg: 45 }], noiseMmS2: 100 },
+        { orders: [{ order: 1, velPk: 4.8, phaseDeg: 137 }], noiseMmS2: 100 },
+      ],
+      tachChannel: 4,
+    });
+    const f = join(dir, 'static.wav');
+    writeFloatWav(f, fs, sig);
+    const c = join(dir, 'static.yaml');
+    writeFileSync(
+      c,
+      cfgYaml({ tachChannel: 4 }) +
+        '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n',
+    );
+    const r = runCli(['analyze', f, '--config', c, '--json']);
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(j.unbalance.kind).toBe('static');
+    expect(j.unbalance.evidence.join(' ')).toMatch(/DE.*NDE|bearing/i);
+    const t = runCli(['analyze', f, '--config', c]);
+    expect(t.stdout).toMatch(/unbalance: static/);
   });
 
   it('prints a readable table with units by default', () => {
@@ -59,7 +100,7 @@ describe('turnwise analyze', () => {
     expect(r.code).toBe(0);
     expect(r.stdout).toMatch(/speed 1485\.0 r\/min/);
     expect(r.stdout).toMatch(/1x mm\/s pk/);
-    expect(r.stdout).toMatch(/DE-V \(DE V\)\s+4\.\d\d\s+(5\.99|6\.0\d)\s+40\.\d/);
+    expect(r.stdout).toMatch(/DE-V \(DE V\)\s+4\.\d\d\s+C\s+(5\.99|6\.0\d)\s+40\.\d/);
   });
 
   const bad: Array<[string, string, RegExp]> = [

@@ -74,7 +74,7 @@ describe('WAV writer (RIFF/WAVE IEEE float32)', () => {
       'fs, d = wavfile.read(sys.argv[1])',
       'print(json.dumps({"fs": fs, "shape": list(d.shape), "dtype": str(d.dtype), "sum": [float(np.sum(d[:, c].astype(np.float64))) for c in range(d.shape[1])], "first": [float(x) for x in d[0]], "last": [float(x) for x in d[-1]]}))',
     ].join('\n');
-    const out = JSON.parse(execFileSync('python3', ['-c', py, f], { encoding: 'utf8' })) as { fs: number; shape: number[]; dtype: string; sum: number[]; first: number[]; last: number[] };
+    const out = JSON.parse(execFileSync(process.env.TURNWISE_PYTHON ?? 'python3', ['-c', py, f], { encoding: 'utf8' })) as { fs: number; shape: number[]; dtype: string; sum: number[]; first: number[]; last: number[] };
     expect(out.fs).toBe(25600);
     expect(out.shape).toEqual([frames, 7]);
     expect(out.dtype).toBe('float32');

@@ -2,6 +2,7 @@ import { z } from 'zod';
 import { acquisitionSchema, checkAcquisitionChannels } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
+import { loggingSchema } from './logging.js';
 import { mqttSchema } from './mqtt.js';
 import { watcherSchema } from './watcher.js';
 
@@ -90,6 +91,8 @@ export const configSchema = z
 
     mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
     advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
+
+    logging: loggingSchema,
   })
   .strict()
   .superRefine((cfg, ctx) => {

@@ -2,6 +2,7 @@ import type { Config } from '../config/schema.js';
 import { UserError } from '../errors.js';
 import type { SourceItem } from '../../drivers/source.js';
 import { AccelerationStage, RawStats } from './acceleration.js';
+import { Decimator, DecimatorPlan } from './decimate.js';
 import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, SpectrumPlan, velocityLinePower } from './spectrum.js';
 import { orderComponent, SampleRing, SyncAverager, wrapDeg } from './sync-average.js';
 import { RevolutionTracker, rpmFromPeriod, TachDetector } from './tach.js';
@@ -11,10 +12,11 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
  * The measurement core: source items in, one WindowResult per window out.
  *
  *   volts --AccelerationStage--> mm/s^2 --+--> SampleRing --(tach revolutions)--> SyncAverager --> order vectors
- *                                         +--> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
+ *                                         +--> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
  *   tach volts --TachDetector--> edges --RevolutionTracker--> trusted revolutions
  *
- * All buffers are allocated here, once; `push` allocates nothing.
+ * All buffers are allocated here, once; `push` allocates nothing per sample (only small typed-array
+ * views per block or chunk when copying).
  */
 
 /** ISO 20816-3 measurement band for broadband velocity: 10-1000 Hz, or 2-1000 Hz below 600 r/min. */
@@ -62,11 +64,14 @@ interface ChannelState {
   readonly stats: RawStats;
   readonly ring: SampleRing;
   readonly avg: SyncAverager;
+  readonly decimator: Decimator;
   readonly spectrum: SpectrumAccumulator;
 }
 
 export class Analyzer {
   readonly sampleRate: number;
+  /** Sample rate of the spectrum after decimation, Hz (= sampleRate when the source is already slow). */
+  readonly spectrumRate: number;
   readonly spectrumSize: number;
   readonly orders: readonly number[];
   private readonly cfg: Config;
@@ -112,9 +117,13 @@ export class Analyzer {
       throw new UserError(src, `sample rate ${sampleRate} Hz is too low for the band up to ${bandHigh} Hz: it needs at least ${MIN_SAMPLES_PER_HZ * bandHigh} Hz (2.56 x the upper band edge)`, 'record at a higher sample rate (25.6 kHz is usual)');
     }
 
+    // The spectrum only needs the band: decimate while the rate stays >= 2.56 x the band edge.
+    const decimation = new DecimatorPlan(sampleRate, bandHigh, MIN_SAMPLES_PER_HZ * bandHigh);
+    this.spectrumRate = decimation.outputRateHz;
     const rated = cfg.machine.rated_rpm;
     const resolution = cfg.dsp.spectrum_resolution_hz ?? (rated !== undefined && rated < 600 ? 0.25 : 1);
-    this.spectrumSize = planSpectrumSize(sampleRate, resolution, opts.totalSamples);
+    const spectrumTotal = opts.totalSamples === undefined ? undefined : decimation.outputsFor(opts.totalSamples);
+    this.spectrumSize = planSpectrumSize(this.spectrumRate, resolution, spectrumTotal);
 
     const orders = new Set(cfg.dsp.orders);
     if (cfg.machine.blades) orders.add(cfg.machine.blades);
@@ -137,6 +146,7 @@ export class Analyzer {
       stats: new RawStats(s.full_scale_v ?? Infinity),
       ring: new SampleRing(ringSize),
       avg: new SyncAverager(cfg.dsp.resample_points, opts.liveRevolutions),
+      decimator: new Decimator(decimation),
       spectrum: new SpectrumAccumulator(plan),
     }));
     this.scratch = new Float32Array(maxBlock);
@@ -167,7 +177,10 @@ export class Analyzer {
     this.gapSamples += Math.max(0, toIndex - fromIndex);
     this.tracker.reset();
     this.detector.reset();
-    for (const c of this.chans) c.spectrum.discardPartial();
+    for (const c of this.chans) {
+      c.decimator.reset();
+      c.spectrum.discardPartial();
+    }
     this.nextIndex = toIndex;
   }
 
@@ -188,7 +201,7 @@ export class Analyzer {
       c.stats.add(volts);
       c.accel.process(volts, scratch);
       c.ring.write(scratch, start, n);
-      c.spectrum.push(scratch, n);
+      c.decimator.process(scratch, n, c.spectrum);
     }
     if (item.tachEdges) {
       for (let i = 0; i < item.tachEdges.length; i++) this.onRawEdge(item.tachEdges[i]!);
@@ -271,7 +284,7 @@ export class Analyzer {
     const fRev = speed !== null ? speed / 60 : null;
     const band = this.cfg.dsp.band_hz ?? isoBand(speed ?? this.cfg.machine.rated_rpm);
     const N = this.spectrumSize;
-    const df = fs / N;
+    const df = this.spectrumRate / N;
     const warnings: string[] = [];
     const speedSpread = revs > 0 ? (this.maxPeriod - this.minPeriod) / meanPeriod : 0;
 
@@ -281,7 +294,7 @@ export class Analyzer {
       let overall: number | null = null;
       let peaks: ChannelResult['nonsync_peaks'] = [];
       if (sp.segments > 0) {
-        const lines = velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, fs);
+        const lines = velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, this.spectrumRate);
         overall = bandRms(lines, df, band.low, band.high);
         const tol = (h: number) => 3 * df + (fRev ?? 0) * h * (speedSpread / 2 + 0.005);
         peaks = nonSynchronousPeaks(lines, df, band.low, band.high, fRev, tol, Math.max(0.02 * overall, 1e-4), 5).map((p) => ({
@@ -313,7 +326,7 @@ export class Analyzer {
     });
 
     const segments = this.chans[0]?.spectrum.segments ?? 0;
-    if (segments === 0) warnings.push(`no spectrum segment of ${(N / fs).toFixed(2)} s completed in this window: no overall level`);
+    if (segments === 0) warnings.push(`no spectrum segment of ${(N / this.spectrumRate).toFixed(2)} s completed in this window: no overall level`);
     if (revs > 0 && revs < 10) warnings.push(`only ${revs} revolution(s) averaged: order vectors are uncertain`);
     if (speedSpread > 0.05) warnings.push(`speed varied by ${(speedSpread * 100).toFixed(1)} % over the window: vectors are averaged over that range`);
     if (speed !== null && speed < 600 && !this.cfg.dsp.band_hz && df > 0.3) {

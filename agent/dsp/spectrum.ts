@@ -1,9 +1,11 @@
 import FFT from 'fft.js';
+import type { SampleSink } from './decimate.js';
 
 /**
  * Stage 3: averaged power spectrum (fft.js, Hann window, non-overlapping segments) of the
  * acceleration, and from it the velocity spectrum, the overall velocity r.m.s. in a band and the
- * non-synchronous peaks.
+ * non-synchronous peaks. The analyzer feeds it the acceleration decimated to a few kHz
+ * (decimate.ts), so `sampleRate` below is the decimated rate.
  *
  * Integration to velocity is done in the frequency domain (divide each line by 2*pi*f): exact at
  * every frequency in the band, with no integrator drift and no filter phase. The overall r.m.s. is
@@ -38,7 +40,7 @@ export class SpectrumPlan {
   }
 }
 
-export class SpectrumAccumulator {
+export class SpectrumAccumulator implements SampleSink {
   readonly size: number;
   /** Sum over segments of |X_k|^2, k = 0..size/2. */
   readonly powerSum: Float64Array;
@@ -59,7 +61,7 @@ export class SpectrumAccumulator {
     return this.plan.windowPower;
   }
 
-  push(x: Float32Array, length = x.length): void {
+  push(x: Float32Array | Float64Array, length = x.length): void {
     const seg = this.seg;
     const w = this.plan.window;
     const N = this.size;

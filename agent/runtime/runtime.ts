@@ -109,13 +109,14 @@ export class AgentRuntime {
         if (end >= nextLive) {
           const f = an.liveFrame();
           for (const c of this.opts.liveConsumers) c.onLive(f, timeOf(end));
-          nextLive = end + liveSamples;
+          while (nextLive <= end) nextLive += liveSamples;
         }
         if (end >= windowEnd) {
           const w = an.takeWindow();
           windows++;
           for (const c of this.opts.windowConsumers) await c.onWindow(w, timeOf(end));
-          windowEnd = end + windowSamples;
+          // Windows stay on a fixed grid of the sample clock, whatever the block size.
+          while (windowEnd <= end) windowEnd += windowSamples;
         }
       }
     } finally {

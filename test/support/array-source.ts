@@ -7,6 +7,8 @@ export class ArraySource implements SampleSource {
     private readonly sampleRate: number,
     private readonly block = 4096,
     private readonly gaps: ReadonlyArray<readonly [number, number]> = [],
+    /** Wall-clock pause after each block, ms (0 = as fast as possible). */
+    private readonly paceMs = 0,
   ) {}
   async open(): Promise<SourceInfo> {
     return { sampleRate: this.sampleRate, channelCount: this.channels.length, description: 'memory', totalSamples: this.channels[0]!.length };
@@ -24,6 +26,7 @@ export class ArraySource implements SampleSource {
       const e = Math.min(nextGap, i + this.block);
       yield { kind: 'samples', startIndex: i, channels: this.channels.map((c) => c.subarray(i, e)) };
       i = e;
+      if (this.paceMs > 0) await new Promise((r) => setTimeout(r, this.paceMs));
     }
   }
   async close(): Promise<void> {}

@@ -1,0 +1,178 @@
+import { join } from 'node:path';
+import type { GpioLines } from '../../drivers/gpio/types.js';
+import type { SampleSource } from '../../drivers/source.js';
+import { advisorySettings, SafeStopAdvisory } from '../advisory/advisory.js';
+import type { AdvisoryChannelInput } from '../advisory/input.js';
+import { LatchFile } from '../advisory/latch-file.js';
+import { ManualClock, type Clock } from '../clock.js';
+import type { Config } from '../config/schema.js';
+import type { LiveFrame, WindowResult } from '../dsp/types.js';
+import type { AgentEvent } from '../events.js';
+import type { Logger } from '../log.js';
+import type { CommandHandlers } from '../mqtt/commands.js';
+import { livePayloadFromFrame, type ChannelVerdict } from '../mqtt/live.js';
+import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
+import { openWatcher, type Watcher, type WatchStatus } from '../watcher/index.js';
+import { AgentRuntime, type LiveConsumer, type RunSummary, type WindowConsumer } from './runtime.js';
+
+/**
+ * `turnwise run` wired: source -> DSP -> watcher -> outputs (durable outbox and MQTT, local
+ * advisory, live consumers such as the technician's page). Every part is injected or built from
+ * the config; nothing here waits on the network on the sampling path.
+ */
+export interface AgentOptions {
+  readonly config: Config;
+  readonly source: SampleSource;
+  readonly boardTimesTach: boolean;
+  readonly clock: Clock;
+  readonly logger: Logger;
+  /** GPIO lines for the advisory; required when the config has an `advisory` section. */
+  readonly gpio?: GpioLines;
+  /** Further consumers (the live page). */
+  readonly windowConsumers?: readonly WindowConsumer[];
+  readonly liveConsumers?: readonly LiveConsumer[];
+  /** Receives every event as it is queued (the live page shows them). */
+  readonly onEvent?: (e: AgentEvent) => void;
+  readonly agentVersion?: string;
+  readonly env?: NodeJS.ProcessEnv;
+  /** Wall-clock time of sample 0 (simulations that start on a given day), ms. */
+  readonly startMs?: number;
+}
+
+export interface AgentSummary extends RunSummary {
+  readonly events: number;
+  /** False when the outbox still held events at exit (they stay on disk for the next start). */
+  readonly drained: boolean;
+  /** Events that were only in memory (disk failure) and were lost at exit. */
+  readonly lostInMemory: number;
+}
+
+export class Agent {
+  readonly watcher: Watcher;
+  readonly handlers: CommandHandlers = {};
+  private link: PlantLink | null = null;
+  private advisory: SafeStopAdvisory | null = null;
+  private runtime: AgentRuntime | null = null;
+  private lastWindow: WindowResult | null = null;
+  private lastStatus: WatchStatus | null = null;
+  private events = 0;
+  /** The watcher's clock follows the sample clock, so events carry the time their data was measured. */
+  private readonly dataClock: ManualClock;
+
+  constructor(private readonly o: AgentOptions) {
+    this.dataClock = new ManualClock(o.startMs ?? o.clock.now());
+    this.watcher = openWatcher(o.config, this.dataClock);
+  }
+
+  get status(): WatchStatus | null {
+    return this.lastStatus;
+  }
+
+  private emit(e: AgentEvent): void {
+    this.events++;
+    this.o.onEvent?.(e);
+    void this.link?.queueEvent(e);
+  }
+
+  private verdict = (id: string): ChannelVerdict | undefined => {
+    const latest = this.lastStatus?.latest;
+    if (!latest) return undefined;
+    const z = latest.zone.inhibited ? null : (latest.zone.channels[id]?.zone ?? null);
+    return { zone: z === 'A' || z === 'B' || z === 'C' || z === 'D' ? z : null, ok: latest.sensors.find((s) => s.id === id)?.ok ?? null };
+  };
+
+  private onWindow(w: WindowResult, atMs: number): void {
+    const cfg = this.o.config;
+    this.dataClock.set(atMs);
+    const { events, status } = this.watcher.process(w);
+    this.lastWindow = w;
+    this.lastStatus = status;
+    for (const e of events) this.emit(e);
+    for (const warning of status.warnings) this.o.logger.warn({ window_end: w.end_index }, warning);
+    if (this.advisory) {
+      const channels: AdvisoryChannelInput[] = cfg.sensors.map((s) => {
+        const v = this.verdict(s.id);
+        return { id: s.id, bearing: s.bearing, zone: v?.zone ?? null, ok: v?.ok ?? false };
+      });
+      this.advisory.update({ t_ms: (w.end_index / w.sample_rate_hz) * 1000, channels });
+    }
+  }
+
+  private onLive(f: LiveFrame, atMs: number): void {
+    const cfg = this.o.config;
+    this.link?.publishLive(() => livePayloadFromFrame(f, cfg.sensors, this.lastWindow, cfg.machine.id, new Date(atMs).toISOString(), this.verdict));
+  }
+
+  /** Opens outputs, runs until the source ends or stop(), then drains the outbox for at most `drainMs`. */
+  async run(drainMs = 5000): Promise<AgentSummary> {
+    const cfg = this.o.config;
+    const log = this.o.logger;
+    const h = this.handlers;
+    h.startBaseline = () => {
+      this.watcher.startLearning();
+      return { learning: true };
+    };
+    h.stopBaseline = () => {
+      const r = this.watcher.stopLearning();
+      return { baseline_channels: Object.keys(r.baseline.channels), left_out: r.left_out };
+    };
+    h.takeSnapshot = () => ({ window: this.lastWindow, status: this.lastStatus });
+    if (cfg.mqtt) {
+      this.link = await openPlantLink({
+        mqtt: cfg.mqtt,
+        asset: cfg.machine.id,
+        stateDir: cfg.state_dir,
+        log,
+        handlers: h,
+        env: this.o.env,
+        agentVersion: this.o.agentVersion,
+        health: () => ({ windows: this.runtime ? 1 : 0, events: this.events, ...(this.advisory?.health() ?? {}) }),
+      });
+    }
+    if (cfg.advisory) {
+      if (!this.o.gpio) throw new Error('advisory configured but no GPIO lines were given');
+      this.advisory = await SafeStopAdvisory.start({
+        settings: advisorySettings(cfg.advisory, cfg.sensors),
+        gpio: this.o.gpio,
+        asset: cfg.machine.id,
+        emit: (e) => this.emit(e),
+        store: new LatchFile(join(cfg.state_dir, 'advisory.json')),
+        log,
+        // The stall watchdog needs the wall clock: a stalled source stops the sample clock too.
+        now: () => this.o.clock.now(),
+      });
+      h.acknowledgeAdvisory = (a) => ({ ...this.advisory!.acknowledge(`mqtt: ${a.by}`) });
+    }
+    const w = cfg.watcher;
+    this.runtime = new AgentRuntime({
+      config: cfg,
+      source: this.o.source,
+      clock: this.o.clock,
+      logger: log,
+      windowSeconds: w.window_s,
+      liveSeconds: 1,
+      boardTimesTach: this.o.boardTimesTach,
+      startMs: this.o.startMs,
+      windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
+      liveConsumers: [{ onLive: (f, at) => this.onLive(f, at) }, ...(this.o.liveConsumers ?? [])],
+    });
+    let summary: RunSummary;
+    try {
+      summary = await this.runtime.run();
+    } finally {
+      await this.advisory?.close();
+    }
+    let drained = true;
+    let lost = 0;
+    if (this.link) {
+      drained = await this.link.drain(drainMs);
+      if (!drained) log.warn({ pending: this.link.outbox.size }, 'events not yet delivered stay on disk and go out at the next start');
+      lost = await this.link.close();
+    }
+    return { ...summary, events: this.events, drained, lostInMemory: lost };
+  }
+
+  stop(): void {
+    this.runtime?.stop();
+  }
+}

@@ -1,0 +1,94 @@
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { mkdtempSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { ManualClock } from '../agent/clock.js';
+import { validateConfig } from '../agent/config/load.js';
+import { MemoryLogger } from '../agent/log.js';
+import { Agent } from '../agent/runtime/agent.js';
+import { ArraySource } from './support/array-source.js';
+import { FakeGpio } from './support/fake-gpio.js';
+import { plainBroker } from './support/mosquitto.js';
+import { assertMatches } from './support/payload-schemas.js';
+import { TestSubscriber } from './support/subscriber.js';
+import { synthesize } from './support/synth.js';
+
+/**
+ * The whole agent on a synthesized fan: source -> DSP -> watcher -> outbox/MQTT (real mosquitto)
+ * and the local advisory (fake GPIO lines, the only fake: there are no GPIO lines here).
+ * The fan runs in zone B for 20 s, then its unbalance grows into zone D (ISO 20816-3 group 2 rigid:
+ * C/D = 4.5 mm/s r.m.s.) at both bearings.
+ */
+describe('turnwise agent end to end', () => {
+  let broker: { url: string; dispose(): Promise<void> };
+  beforeAll(async () => {
+    broker = await plainBroker();
+  });
+  afterAll(async () => {
+    await broker?.dispose();
+  });
+
+  it('publishes zone, unbalance and advisory events and drops the relay on danger at one bearing', async () => {
+    const fs = 5120;
+    const step = 20;
+    const ch = (pkBefore: number, pkAfter: number, phase: number) => ({
+      orders: [
+        { order: 1, velPk: pkBefore, phaseDeg: phase, untilS: step },
+        { order: 1, velPk: pkAfter, phaseDeg: phase, fromS: step },
+      ],
+      noiseMmS2: 50,
+    });
+    // Static unbalance: bearings in phase, H 90 deg behind V (common practice).
+    const sig = synthesize({ sampleRate: fs, seconds: 70, rpm: () => 1485, channels: [ch(2, 9, 40), ch(1.8, 8, 130), ch(2, 8.5, 45), ch(1.7, 7.5, 135)], tachChannel: 4 });
+    const dir = mkdtempSync(join(tmpdir(), 'tw-agent-'));
+    const prefix = `test/${Math.random().toString(16).slice(2)}`;
+    const cfg = validateConfig({
+      machine: { id: 'kessrow-id3a', group: 2, support: 'rigid', rated_rpm: 1485 },
+      tach: { channel: 4, trigger_v: 2.5 },
+      sensors: [
+        { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+        { id: 'DE-H', channel: 1, bearing: 'DE', direction: 'horizontal', sensitivity_mv_per_g: 100 },
+        { id: 'NDE-V', channel: 2, bearing: 'NDE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+        { id: 'NDE-H', channel: 3, bearing: 'NDE', direction: 'horizontal', sensitivity_mv_per_g: 100 },
+      ],
+      state_dir: join(dir, 'state'),
+      mqtt: { url: broker.url, topic_prefix: prefix },
+      advisory: { relay: { line: 17 }, lamp: { line: 27 } },
+      watcher: { window_s: 5, on_delay_s: 10 },
+    });
+    const sub = await TestSubscriber.open(broker.url, [`${prefix}/#`]);
+    const gpio = new FakeGpio();
+    const t0 = Date.UTC(2026, 11, 2, 6, 0, 0);
+    const log = new MemoryLogger();
+    const agent = new Agent({ config: cfg, source: new ArraySource(sig, fs, 2048, [], 15), boardTimesTach: false, clock: new ManualClock(t0), logger: log, gpio, startMs: t0 });
+    const sum = await agent.run(10_000);
+    expect(sum.drained).toBe(true);
+    expect(sum.windows).toBe(14);
+    const base = `${prefix}/kessrow-id3a`;
+    await sub.waitFor((m) => m.some((x) => x.topic === `${base}/event/advisory_raised`), 10_000, 'advisory_raised');
+    const events = sub.messages.filter((m) => m.topic.startsWith(`${base}/event/`));
+    for (const e of events) assertMatches(e.topic.includes('/event/advisory_') ? 'event-advisory.v1' : 'event.v1', e.json);
+    const types = events.map((e) => (e.json as { type: string }).type);
+    expect(types).toContain('zone_changed');
+    expect(types).toContain('unbalance_found');
+    const zoneD = events.map((e) => e.json as { type: string; zone?: string; ts: string }).find((e) => e.type === 'zone_changed' && e.zone === 'D');
+    expect(zoneD).toBeDefined();
+    // Times follow the data: zone D is confirmed after the step (20 s) plus the 10 s on-delay.
+    const tD = (Date.parse(zoneD!.ts) - t0) / 1000;
+    expect(tD).toBeGreaterThanOrEqual(step + 10);
+    expect(tD).toBeLessThanOrEqual(step + 10 + 2 * 5);
+    const unb = events.map((e) => e.json as { type: string; kind?: string; evidence?: string[] }).find((e) => e.type === 'unbalance_found')!;
+    expect(unb.kind).toBe('static');
+    expect(unb.evidence!.length).toBeGreaterThan(0);
+    // Ids are unique.
+    expect(new Set(events.map((e) => (e.json as { id: string }).id)).size).toBe(events.length);
+    // Fail-safe outputs: energised while all was well, de-energised once the advisory was raised.
+    const relay = gpio.outputs.get(17)!;
+    expect(relay.writes).toContain(true);
+    expect(relay.level).toBe(false);
+    const live = sub.on(`${base}/live`);
+    expect(live.length).toBeGreaterThan(0);
+    for (const m of live) assertMatches('live.v1', m.json);
+    await sub.close();
+  });
+});

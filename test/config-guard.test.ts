@@ -1,0 +1,36 @@
+import { describe, expect, it } from 'vitest';
+import { copyFileSync, existsSync, mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { defaultLastGoodPath, loadGuardedConfig } from '../agent/runtime/config-guard.js';
+
+describe('a bad config on the board', () => {
+  const dir = mkdtempSync(join(tmpdir(), 'tw-guard-'));
+  const cfg = join(dir, 'turnwise.yaml');
+  const lastGood = join(dir, 'state', 'last-good-config.yaml');
+
+  it('keeps a copy of the last config that loaded', () => {
+    copyFileSync('config/example.yaml', cfg);
+    const g = loadGuardedConfig(cfg, lastGood);
+    expect(g.rejected).toBeUndefined();
+    expect(g.from).toBe(cfg);
+    expect(existsSync(lastGood)).toBe(true);
+  });
+
+  it('runs on the last good copy and says why when the new one is broken', () => {
+    writeFileSync(cfg, 'machine: {id: kessrow-id3a, group: 5, support: rigid}\n');
+    const g = loadGuardedConfig(cfg, lastGood);
+    expect(g.from).toBe(lastGood);
+    expect(g.config.machine.id).toBe('kessrow-id3a');
+    expect(g.rejected?.message).toMatch(/machine\.group/);
+  });
+
+  it('refuses to start without a last good copy', () => {
+    expect(() => loadGuardedConfig(cfg, join(dir, 'none.yaml'))).toThrow(/machine\.group/);
+  });
+
+  it('keeps the last good copy where systemd says state lives', () => {
+    expect(defaultLastGoodPath({ STATE_DIRECTORY: '/var/lib/turnwise' })).toBe('/var/lib/turnwise/last-good-config.yaml');
+    expect(defaultLastGoodPath({})).toBe('state/last-good-config.yaml');
+  });
+});
