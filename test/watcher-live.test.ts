@@ -44,9 +44,10 @@ class Feeder {
   }
 }
 
+/** These tests feed 10 s windows with a 20 s on-delay (a state is reported on its second window). */
 function start(dir: string, watcher: Record<string, unknown> = {}, ms = T0): Feeder {
   const clock = new FakeClock(ms);
-  return new Feeder(openWatcher(demoConfig({ state_dir: dir, watcher }), clock), clock);
+  return new Feeder(openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10, on_delay_s: 20, ...watcher } }), clock), clock);
 }
 
 const types = (es: readonly AgentEvent[]): string[] => es.map((e) => `${e.type}:${(e['sensor'] as string | undefined) ?? 'machine'}`);

@@ -160,7 +160,7 @@ describe('watcher config section', () => {
   it('is optional: the example config gets every default', () => {
     const w = demoConfig().watcher;
     expect(w.limits).toEqual({ source: 'iso20816' });
-    expect([w.on_delay_s, w.hysteresis_share, w.min_speed_share, w.below_min_speed, w.window_s]).toEqual([20, 0.05, 0.8, 'inhibit', 10]);
+    expect([w.on_delay_s, w.hysteresis_share, w.min_speed_share, w.below_min_speed, w.window_s]).toEqual([2, 0.05, 0.8, 'inhibit', 2]);
     expect(w.unbalance.phase_tolerance_deg).toBe(30);
     expect(w.history).toEqual({ interval_s: 60, max_points: 4000 });
   });
