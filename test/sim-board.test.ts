@@ -353,6 +353,7 @@ describe('turnwise sim-board: bad input', () => {
       [[...base, '--link', taken], /taken: already exists and is not a link to a pseudo-terminal\n\s+-> choose another --link path/],
       [[...base, '--link', join(dir, 'b'), '--format', 'int12'], /--format: expected one of int24, int16, float32, got "int12"/],
       [[...base, '--link', join(dir, 'b'), '--baud', '9600'], /--baud applies to --device only/],
+      [[...base, '--link', join(dir, 'b,c')], /b,c: socat cannot take a path with "," or "!" in it\n\s+-> choose a path without them/],
     ];
     for (const [args, want] of cases) {
       const r = runCli(args);

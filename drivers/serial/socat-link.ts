@@ -105,6 +105,9 @@ export class SocatLink {
   static async start(target: SocatTarget, opts: SocatLinkOptions = {}): Promise<SocatLink> {
     const socat = onPath('socat');
     if (!socat) throw new UserError('socat', 'socat is not installed (it makes the serial link)', INSTALL_HINT);
+    const path = target.kind === 'pty' ? target.link : target.path;
+    // socat would read these as the end of the path (",": options follow; "!!": a second address)
+    if (/[,!]/.test(path)) throw new UserError(path, 'socat cannot take a path with "," or "!" in it', 'choose a path without them');
     if (target.kind === 'pty') prepareLinkPath(target.link);
     else if (!existsSync(target.path)) throw new UserError(target.path, 'no such device', 'give the serial device to write to (e.g. /dev/ttyUSB0), or leave --device out to make a pseudo-terminal');
     const out = target.kind === 'pty' ? `pty,rawer,link=${target.link}` : `${target.path},rawer,b${target.baud}`;
