@@ -12,8 +12,9 @@ export class Progress {
     const now = Date.now();
     if (now - this.last < 250) return;
     this.last = now;
-    const pct = total > 0 ? Math.min(100, (100 * done) / total) : 0;
-    process.stderr.write(`\r${this.label}: ${pct.toFixed(0).padStart(3)} % ${detail}\x1b[K`);
+    // without a known total (endless work) only the detail is shown
+    const pct = total > 0 ? `${Math.min(100, (100 * done) / total).toFixed(0).padStart(3)} % ` : '';
+    process.stderr.write(`\r${this.label}: ${pct}${detail}\x1b[K`);
     this.shown = true;
   }
 

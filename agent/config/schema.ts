@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { acquisitionSchema } from './acquisition.js';
+import { acquisitionSchema, checkAcquisitionChannels } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
 import { liveSchema } from './live.js';
@@ -116,6 +116,7 @@ export const configSchema = z
         ctx.addIssue({ code: 'custom', path: ['sensors', i, 'bias_v', 'min'], message: 'bias_v.min must be below bias_v.max' });
       }
     });
+    checkAcquisitionChannels(cfg, (path, message) => ctx.addIssue({ code: 'custom', path, message }));
     if (cfg.dsp.band_hz && cfg.dsp.band_hz.low >= cfg.dsp.band_hz.high) {
       ctx.addIssue({ code: 'custom', path: ['dsp', 'band_hz', 'low'], message: 'band_hz.low must be below band_hz.high' });
     }

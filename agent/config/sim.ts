@@ -7,7 +7,10 @@ import { z } from 'zod';
 export const simDriverSchema = z
   .object({
     driver: z.literal('sim'),
-    scenario: z.string().min(1).describe('Scenario file (YAML), relative to this config file; see config/example-scenario.yaml.'),
+    scenario: z
+      .string({ error: (iss) => (iss.input === undefined ? 'driver "sim" needs scenario: the scenario file, relative to this config file (e.g. example-scenario.yaml)' : undefined) })
+      .min(1)
+      .describe('Scenario file (YAML), relative to this config file; see config/example-scenario.yaml.'),
     pace: z.enum(['realtime', 'fast']).default('realtime').describe('realtime: blocks arrive as a board would deliver them; fast: as fast as they are taken.'),
     time_scale: z.number().positive().max(1e6).default(1).describe('Scenario seconds per second of signal: 3600 plays a day of the timeline in 24 s of signal.'),
     from_day: z.number().min(0).max(3650).default(0).describe('Scenario day to start at (fractions allowed: 5.5 is day 5 at noon).'),

@@ -178,7 +178,7 @@ export class DeviceWriter {
  * Sends frames in real time (one frame each samplesPerFrame / sampleRate seconds, on a schedule
  * that does not drift) until `until()` says stop or a write fails. Returns frames sent.
  */
-export async function playRealtime(board: BoardEmulator, out: DeviceWriter, framePeriodMs: number, until: () => boolean): Promise<number> {
+export async function playRealtime(board: BoardEmulator, out: Pick<DeviceWriter, 'write'>, framePeriodMs: number, until: () => boolean): Promise<number> {
   const start = performance.now();
   let sent = 0;
   while (!until()) {

@@ -8,7 +8,7 @@
  * the native binding. The port must stay on the main thread (serialport does not work in workers).
  */
 import type { SerialPort as SerialPortClass } from 'serialport';
-import type { AcquisitionConfig } from '../../agent/config/acquisition.js';
+import type { SerialDriverConfig } from '../../agent/config/acquisition.js';
 import { UserError } from '../../agent/errors.js';
 import { BurstLog } from '../../agent/burst-log.js';
 import type { Logger } from '../../agent/log.js';
@@ -38,10 +38,7 @@ export interface SerialSourceOptions {
   readonly burstQuietMs?: number;
 }
 
-export function serialOptionsFromConfig(a: AcquisitionConfig, log: Logger): SerialSourceOptions {
-  if (a.driver !== 'serial' || !a.device || a.sample_rate_hz === undefined || a.channels === undefined) {
-    throw new UserError('acquisition', 'the serial driver needs device, sample_rate_hz and channels', 'set acquisition.driver: serial with device, sample_rate_hz and channels');
-  }
+export function serialOptionsFromConfig(a: SerialDriverConfig, log: Logger): SerialSourceOptions {
   return {
     device: a.device,
     baud: a.baud,

@@ -563,3 +563,19 @@ function buildGeometry(s: Scenario): RotorGeometry {
 export function scenarioPathFromConfig(configFile: string, scenarioPath: string): string {
   return resolvePath(dirname(configFile), scenarioPath);
 }
+
+export interface ChannelUse {
+  readonly channel: number;
+  /** Sensor id, or "tach". */
+  readonly id: string;
+  /** In words: bearing and direction, or the tach pulse's levels. */
+  readonly what: string;
+}
+
+/** What each channel of the simulated board carries, in channel order. */
+export function channelMap(plan: SimPlan, cfg: Config): ChannelUse[] {
+  return [
+    ...plan.sensors.map((s) => ({ channel: s.channel, id: s.id, what: `${cfg.sensors.find((x) => x.id === s.id)!.bearing} ${s.place.direction}` })),
+    { channel: plan.tach.channel, id: 'tach', what: `once-per-turn pulse ${plan.tach.low_v}-${plan.tach.high_v} V` },
+  ].sort((a, b) => a.channel - b.channel);
+}

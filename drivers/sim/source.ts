@@ -1,5 +1,6 @@
 import type { Config } from '../../agent/config/schema.js';
 import type { SimDriverConfig } from '../../agent/config/sim.js';
+import { systemPacer, waitForSamples, type Pacer } from '../pacer.js';
 import type { SampleSource, SourceInfo, SourceItem } from '../source.js';
 import { loadScenario, resolveScenario, scenarioPathFromConfig, type SimPlan } from './scenario.js';
 import { FanSimulator, type OrderVectorModel } from './simulator.js';
@@ -10,17 +11,7 @@ import type { AppliedEvent, WeightOnRotor } from './state.js';
  * channel map, paced in real time (like a board) or as fast as the consumer takes them.
  */
 
-/** Wall clock for pacing; injected so tests can run without waiting. */
-export interface Pacer {
-  /** Milliseconds, monotonic. */
-  now(): number;
-  sleep(ms: number): Promise<void>;
-}
-
-export const systemPacer: Pacer = {
-  now: () => performance.now(),
-  sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms)),
-};
+export type { Pacer } from '../pacer.js';
 
 export interface SimSourceOptions {
   /** Scenario time to start at, seconds from day 0. */
@@ -80,9 +71,7 @@ export class SimSource implements SampleSource {
       const n = Math.min(this.opts.blockSamples, left);
       this.sim.render(this.channels, n);
       if (this.opts.pace === 'realtime') {
-        const due = t0 + ((startIndex + n - first) / fs) * 1000;
-        const wait = due - this.pacer.now();
-        if (wait > 0) await this.pacer.sleep(wait);
+        await waitForSamples(this.pacer, t0, startIndex + n - first, fs);
       } else {
         await new Promise<void>((resolve) => setImmediate(resolve));
       }

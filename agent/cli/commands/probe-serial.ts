@@ -25,7 +25,11 @@ export const probeSerialCommand: Command = {
       json: { type: 'boolean' },
     });
     if (positionals.length > 0) throw new UserError('turnwise probe-serial', `unexpected argument "${positionals[0]}"`, `usage: ${usage}`);
-    const acq = values.config ? loadConfig(values.config).acquisition : undefined;
+    const configured = values.config ? loadConfig(values.config).acquisition : undefined;
+    if (configured && configured.driver !== 'serial' && !values.device) {
+      throw new UserError(`${values.config}: acquisition.driver`, `is "${configured.driver}", not "serial": there is no board device in this config`, 'give the board with --device PATH, or use a config with acquisition.driver: serial');
+    }
+    const acq = configured?.driver === 'serial' ? configured : undefined;
     const device = values.device ?? acq?.device;
     const baud = num(values.baud, 'baud', acq?.baud ?? 921_600);
     const seconds = num(values.seconds, 'seconds', 5);
@@ -52,8 +56,8 @@ export const probeSerialCommand: Command = {
     const r = await probeSerial(device, baud, seconds, (m) => process.stderr.write(`  ${m}\n`));
     const mismatch: string[] = [];
     if (acq && r.format) {
-      if (acq.channels !== undefined && acq.channels !== r.format.channels) mismatch.push(`the board sends ${r.format.channels} channel(s), acquisition.channels is ${acq.channels}`);
-      if (acq.sample_rate_hz !== undefined && acq.sample_rate_hz !== r.format.sample_rate_hz) mismatch.push(`the board samples at ${r.format.sample_rate_hz} Hz, acquisition.sample_rate_hz is ${acq.sample_rate_hz}`);
+      if (acq.channels !== r.format.channels) mismatch.push(`the board sends ${r.format.channels} channel(s), acquisition.channels is ${acq.channels}`);
+      if (acq.sample_rate_hz !== r.format.sample_rate_hz) mismatch.push(`the board samples at ${r.format.sample_rate_hz} Hz, acquisition.sample_rate_hz is ${acq.sample_rate_hz}`);
     }
     const c = r.counters;
     const ok = c.frames_ok > 0 && mismatch.length === 0;

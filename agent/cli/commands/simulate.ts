@@ -1,10 +1,11 @@
 import { loadConfig } from '../../config/load.js';
 import { UserError } from '../../errors.js';
 import { fmtVel, round, table, type DisplayUnits } from '../../report/units.js';
-import { parseCommandArgs } from '../args.js';
+import { numberOption, parseCommandArgs } from '../args.js';
 import type { Command } from '../command.js';
 import { Progress } from '../progress.js';
-import { formatAt, loadScenario, resolveScenario } from '../../../drivers/sim/scenario.js';
+import { parseSimTiming, simTimingArgs } from '../sim-options.js';
+import { channelMap, formatAt, loadScenario, resolveScenario } from '../../../drivers/sim/scenario.js';
 import { FanSimulator } from '../../../drivers/sim/simulator.js';
 import type { AppliedEvent } from '../../../drivers/sim/state.js';
 import { maxWavFrames, WavWriter } from '../../../drivers/wav/writer.js';
@@ -14,13 +15,6 @@ const usage =
 
 /** Samples per channel rendered and written at a time. */
 const BLOCK = 8192;
-
-function numberOption(name: string, raw: string | undefined, check: (v: number) => boolean, what: string): number | undefined {
-  if (raw === undefined) return undefined;
-  const v = Number(raw);
-  if (!Number.isFinite(v) || !check(v)) throw new UserError(`turnwise simulate --${name}`, `expected ${what}, got "${raw}"`, `usage: ${usage}`);
-  return v;
-}
 
 export const simulateCommand: Command = {
   name: 'simulate',
@@ -32,19 +26,15 @@ export const simulateCommand: Command = {
       config: { type: 'string' },
       out: { type: 'string' },
       seconds: { type: 'string' },
-      'from-day': { type: 'string' },
-      'time-scale': { type: 'string' },
-      seed: { type: 'string' },
+      ...simTimingArgs,
       json: { type: 'boolean' },
     });
     if (positionals.length > 0) throw new UserError('turnwise simulate', `unexpected argument "${positionals[0]}"`, `usage: ${usage}`);
     for (const k of ['scenario', 'config', 'out', 'seconds'] as const) {
       if (!values[k]) throw new UserError('turnwise simulate', `--${k} is required`, `usage: ${usage}`);
     }
-    const seconds = numberOption('seconds', values.seconds, (v) => v > 0, 'a duration in seconds above 0')!;
-    const fromDay = numberOption('from-day', values['from-day'], (v) => v >= 0 && v <= 3650, 'a scenario day from 0 to 3650') ?? 0;
-    const timeScale = numberOption('time-scale', values['time-scale'], (v) => v > 0 && v <= 1e6, 'a factor above 0 (at most 1e6)') ?? 1;
-    const seed = numberOption('seed', values.seed, (v) => Number.isInteger(v) && v >= 0 && v < 2 ** 31, 'a whole number from 0 to 2^31-1');
+    const seconds = numberOption('simulate', usage, 'seconds', values.seconds, (v) => v > 0, 'a duration in seconds above 0')!;
+    const { fromDay, timeScale, seed } = parseSimTiming('simulate', usage, values);
 
     const cfg = loadConfig(values.config!);
     const plan = resolveScenario(loadScenario(values.scenario!), cfg, values.scenario!, values.config!);
@@ -67,14 +57,11 @@ export const simulateCommand: Command = {
     });
     const startS = sim.scenarioTimeS;
     const speedStart = sim.speedRpm;
-    const channelMap = [
-      ...plan.sensors.map((s) => ({ channel: s.channel, id: s.id, what: `${cfg.sensors.find((x) => x.id === s.id)!.bearing} ${s.place.direction}` })),
-      { channel: plan.tach.channel, id: 'tach', what: `once-per-turn pulse ${plan.tach.low_v}-${plan.tach.high_v} V` },
-    ].sort((a, b) => a.channel - b.channel);
+    const channels = channelMap(plan, cfg);
     const writer = await WavWriter.create(values.out!, {
       sampleRate: plan.sampleRate,
       channelCount: plan.channelCount,
-      comment: `turnwise simulate: ${plan.name}; from ${formatAt(startS)}; channels: ${channelMap.map((c) => `${c.channel}=${c.id}`).join(' ')}; volts`,
+      comment: `turnwise simulate: ${plan.name}; from ${formatAt(startS)}; channels: ${channels.map((c) => `${c.channel}=${c.id}`).join(' ')}; volts`,
     });
 
     const buffers = Array.from({ length: plan.channelCount }, () => new Float32Array(BLOCK));
@@ -107,7 +94,7 @@ export const simulateCommand: Command = {
         end_at: formatAt(sim.scenarioTimeS),
         speed_start_rpm: round(speedStart, 2),
         speed_end_rpm: round(sim.speedRpm, 2),
-        channel_map: channelMap.map((c) => ({ channel: c.channel, id: c.id, what: c.what })),
+        channel_map: channels.map((c) => ({ channel: c.channel, id: c.id, what: c.what })),
         events: events.map((e) => ({ at_s: e.at_s, text: e.text })),
         model_1x_end: model.map((m) => ({ id: m.id, amp_pk_mm_s: round(m.amp_pk_mm_s, 4), amp_rms_mm_s: round(m.amp_pk_mm_s / Math.SQRT2, 4), phase_deg: round(m.phase_deg, 2) })),
         elapsed_s: round(elapsed, 3),
