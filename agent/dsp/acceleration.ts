@@ -1,9 +1,9 @@
 /**
  * Stage 1: volts -> acceleration in mm/s^2 with DC removed, plus raw-signal statistics.
  *
- * The DC estimate is updated once per block (exponential average of block means, time constant
- * `dcTimeConstantS`) and held constant within a block, so removing it adds no phase shift at any
- * frequency, unlike a high-pass filter would.
+ * The DC estimate is an exponential average of means over fixed spans of samples (1 s, time constant
+ * `dcTimeConstantS`) and is held constant between span ends, so removing it adds no phase shift at any
+ * frequency, unlike a high-pass filter would, and does not depend on the block size.
  */
 
 /** Standard gravity, m/s^2 (3rd CGPM, 1901; ISO 80000-3). */
@@ -80,18 +80,27 @@ export class AccelerationStage {
   private dc = 0;
   private primed = false;
   private readonly scale: number;
+  private readonly spanSamples: number;
+  private spanSum = 0;
+  private spanN = 0;
+  private readonly alpha: number;
 
   /**
    * @param sensitivityMvPerG accelerometer sensitivity
    * @param sampleRate samples per second
    * @param dcTimeConstantS time constant of the DC estimate
+   * @param dcSpanS the DC estimate changes only once per this many seconds of samples, whatever the
+   *   block size: a mean over a block shorter than a revolution would follow the 1x signal itself
    */
   constructor(
     sensitivityMvPerG: number,
-    private readonly sampleRate: number,
-    private readonly dcTimeConstantS = 1,
+    sampleRate: number,
+    dcTimeConstantS = 4,
+    dcSpanS = 1,
   ) {
     this.scale = mmPerS2PerVolt(sensitivityMvPerG);
+    this.spanSamples = Math.max(1, Math.round(sampleRate * dcSpanS));
+    this.alpha = Math.min(1, dcSpanS / dcTimeConstantS);
   }
 
   /** Current DC estimate, volts. */
@@ -105,13 +114,20 @@ export class AccelerationStage {
     if (n === 0) return;
     let s = 0;
     for (let i = 0; i < n; i++) s += volts[i]!;
-    const blockMean = s / n;
+    this.spanSum += s;
+    this.spanN += n;
     if (!this.primed) {
-      this.dc = blockMean;
-      this.primed = true;
-    } else {
-      const alpha = Math.min(1, n / (this.sampleRate * this.dcTimeConstantS));
-      this.dc += alpha * (blockMean - this.dc);
+      // Until the first whole span: the mean of everything so far.
+      this.dc = this.spanSum / this.spanN;
+      if (this.spanN >= this.spanSamples) {
+        this.primed = true;
+        this.spanSum = 0;
+        this.spanN = 0;
+      }
+    } else if (this.spanN >= this.spanSamples) {
+      this.dc += this.alpha * (this.spanSum / this.spanN - this.dc);
+      this.spanSum = 0;
+      this.spanN = 0;
     }
     const dc = this.dc;
     const k = this.scale;
