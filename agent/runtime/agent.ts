@@ -37,6 +37,8 @@ export interface AgentOptions {
   readonly env?: NodeJS.ProcessEnv;
   /** Wall-clock time of sample 0 (simulations that start on a given day), ms. */
   readonly startMs?: number;
+  /** Called once the outputs are open and sampling starts (systemd READY). */
+  readonly onStarted?: () => void;
 }
 
 export interface AgentSummary extends RunSummary {
@@ -56,6 +58,7 @@ export class Agent {
   private lastWindow: WindowResult | null = null;
   private lastStatus: WatchStatus | null = null;
   private events = 0;
+  private readonly early: AgentEvent[] = [];
   /** The watcher's clock follows the sample clock, so events carry the time their data was measured. */
   private readonly dataClock: ManualClock;
 
@@ -68,10 +71,16 @@ export class Agent {
     return this.lastStatus;
   }
 
+  /** Queues an event from another part (the live page, the agent itself) like the watcher's own. */
+  queueEvent(e: AgentEvent): void {
+    this.emit(e);
+  }
+
   private emit(e: AgentEvent): void {
     this.events++;
     this.o.onEvent?.(e);
-    void this.link?.queueEvent(e);
+    if (this.link) void this.link.queueEvent(e);
+    else if (this.o.config.mqtt) this.early.push(e); // queued as soon as the outbox is open
   }
 
   private verdict = (id: string): ChannelVerdict | undefined => {
@@ -128,6 +137,7 @@ export class Agent {
         agentVersion: this.o.agentVersion,
         health: () => ({ windows: this.runtime ? 1 : 0, events: this.events, ...(this.advisory?.health() ?? {}) }),
       });
+      for (const e of this.early.splice(0)) void this.link.queueEvent(e);
     }
     if (cfg.advisory) {
       if (!this.o.gpio) throw new Error('advisory configured but no GPIO lines were given');
@@ -150,12 +160,14 @@ export class Agent {
       clock: this.o.clock,
       logger: log,
       windowSeconds: w.window_s,
-      liveSeconds: 1,
+      // The page and the live topic update at least once a second.
+      liveSeconds: 0.5,
       boardTimesTach: this.o.boardTimesTach,
       startMs: this.o.startMs,
       windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
       liveConsumers: [{ onLive: (f, at) => this.onLive(f, at) }, ...(this.o.liveConsumers ?? [])],
     });
+    this.o.onStarted?.();
     let summary: RunSummary;
     try {
       summary = await this.runtime.run();

@@ -6,8 +6,9 @@ import { conditionCommand } from './condition.js';
 import { liveCommand } from './live.js';
 import { mqttCommand } from './mqtt.js';
 import { probeSerialCommand } from './probe-serial.js';
+import { runCommand } from './run.js';
 import { simBoardCommand } from './sim-board.js';
 import { simulateCommand } from './simulate.js';
 
 /** Every sub-command, in the order `turnwise help` lists them. */
-export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, liveCommand, mqttCommand, probeSerialCommand, simBoardCommand, simulateCommand];
+export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, liveCommand, mqttCommand, probeSerialCommand, runCommand, simBoardCommand, simulateCommand];

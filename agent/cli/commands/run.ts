@@ -1,0 +1,113 @@
+import { randomUUID } from 'node:crypto';
+import { createSource } from '../../../drivers/create-source.js';
+import type { GpioLines } from '../../../drivers/gpio/types.js';
+import { systemClock } from '../../clock.js';
+import { UserError } from '../../errors.js';
+import { LiveServer } from '../../live/server.js';
+import { createPinoLogger, pinoOptionsFromConfig } from '../../logging/pino-logger.js';
+import { defaultLastGoodPath, loadGuardedConfig } from '../../runtime/config-guard.js';
+import { Agent } from '../../runtime/agent.js';
+import { createServiceNotifier } from '../../service/systemd-notifier.js';
+import { WatchdogKeeper } from '../../service/watchdog.js';
+import { systemTimers } from '../../timers.js';
+import { parseCommandArgs } from '../args.js';
+import type { Command } from '../command.js';
+
+const usage = 'turnwise run --config CFG.yaml [--drain-timeout-s S] [--last-good FILE]';
+
+/** Seconds without a closed window after which the service watchdog stops being fed. */
+const STALE_WINDOW_S = 120;
+
+export const runCommand: Command = {
+  name: 'run',
+  summary: 'the agent: acquire, measure, watch, publish over MQTT, drive the advisory, serve the live page',
+  usage,
+  async run(argv) {
+    const { values, positionals } = parseCommandArgs('run', usage, argv, {
+      config: { type: 'string', short: 'c' },
+      'drain-timeout-s': { type: 'string' },
+      'last-good': { type: 'string' },
+    });
+    if (!values.config || positionals.length > 0) throw new UserError('turnwise run', values.config ? `unexpected argument "${positionals[0]}"` : 'missing --config', `usage: ${usage}`);
+    const drainS = values['drain-timeout-s'] === undefined ? 5 : Number(values['drain-timeout-s']);
+    if (!(drainS >= 0)) throw new UserError('--drain-timeout-s', `expects seconds (0 or more), got "${values['drain-timeout-s']}"`, 'e.g. --drain-timeout-s 5');
+    const file = values.config;
+    const guarded = loadGuardedConfig(file, values['last-good'] ?? defaultLastGoodPath());
+    const cfg = guarded.config;
+    const log = createPinoLogger({ ...pinoOptionsFromConfig(cfg.logging), base: { asset: cfg.machine.id } });
+    if (guarded.rejected) {
+      log.error({ config: file, running_on: guarded.from }, `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`);
+    }
+    const notifier = createServiceNotifier({ logger: log });
+    let gpio: GpioLines | undefined;
+    if (cfg.advisory) {
+      const { OnoffLines } = await import('../../../drivers/gpio/onoff-lines.js');
+      gpio = await OnoffLines.open({ log });
+    }
+    // Relative paths (recording, scenario) are read beside the file the user gave.
+    const { source, boardTimesTach } = createSource(cfg, file, { log });
+    let lastWindowAt = Date.now();
+    let agent: Agent;
+    let live: LiveServer | null = null;
+    if (cfg.live) {
+      live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() });
+    }
+    agent = new Agent({
+      config: cfg,
+      source,
+      boardTimesTach,
+      clock: systemClock,
+      logger: log,
+      gpio,
+      agentVersion: process.env['npm_package_version'],
+      windowConsumers: [
+        {
+          onWindow: (w, at) => {
+            lastWindowAt = Date.now();
+            if (live) {
+              live.onWindow(w, at);
+              if (agent.status) live.onWatch(agent.status);
+            }
+          },
+        },
+      ],
+      liveConsumers: live ? [live] : [],
+      onStarted: () => notifier.ready(`watching ${cfg.machine.id}`),
+    });
+    if (live) agent.handlers.balancingSession = (a) => live!.workbench.sessionCommand(a);
+    if (guarded.rejected) {
+      agent.queueEvent({
+        id: randomUUID(),
+        ts: new Date().toISOString(),
+        asset: cfg.machine.id,
+        type: 'config_rejected',
+        severity: 'alarm',
+        message: `the config ${file} was rejected; monitoring continues on the last good config (${guarded.from})`,
+        error: guarded.rejected.message,
+      });
+    }
+    const keeper = new WatchdogKeeper(notifier, systemTimers, log, () => ((Date.now() - lastWindowAt) / 1000 > STALE_WINDOW_S ? `no measurement window for over ${STALE_WINDOW_S} s` : null));
+    keeper.start();
+    const stop = (sig: string) => {
+      log.info({ signal: sig }, 'stopping');
+      notifier.stopping(`stopping on ${sig}`);
+      agent.stop();
+    };
+    process.once('SIGTERM', () => stop('SIGTERM'));
+    process.once('SIGINT', () => stop('SIGINT'));
+    try {
+      if (live) {
+        const { url } = await live.start();
+        log.info({ url }, 'live page ready');
+        process.stderr.write(`turnwise run: live page at ${url}\n`);
+      }
+      const sum = await agent.run(drainS * 1000);
+      log.info({ windows: sum.windows, events: sum.events, drained: sum.drained, gaps: sum.gaps }, 'run ended');
+      return sum.lostInMemory > 0 ? 1 : 0;
+    } finally {
+      keeper.stop();
+      await live?.stop();
+      await notifier.close();
+    }
+  },
+};
