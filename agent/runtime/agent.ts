@@ -37,6 +37,8 @@ export interface AgentOptions {
   readonly env?: NodeJS.ProcessEnv;
   /** Wall-clock time of sample 0 (simulations that start on a given day), ms. */
   readonly startMs?: number;
+  /** Calendar seconds per second of samples (a simulation's time_scale); event times follow it. */
+  readonly timeScale?: number;
   /** Called once the outputs are open and sampling starts (systemd READY). */
   readonly onStarted?: () => void;
 }
@@ -164,6 +166,7 @@ export class Agent {
       liveSeconds: 0.5,
       boardTimesTach: this.o.boardTimesTach,
       startMs: this.o.startMs,
+      timeScale: this.o.timeScale,
       windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
       liveConsumers: [{ onLive: (f, at) => this.onLive(f, at) }, ...(this.o.liveConsumers ?? [])],
     });

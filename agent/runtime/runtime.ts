@@ -35,6 +35,8 @@ export interface RuntimeOptions {
   readonly liveConsumers: readonly LiveConsumer[];
   /** Wall-clock time of sample 0, ms; default: the clock when the source opened. */
   readonly startMs?: number;
+  /** Seconds of (simulated) calendar per second of samples: a simulation at time_scale 3600 plays an hour a second. */
+  readonly timeScale?: number;
   /** True when blocks carry board-timed tach edges. */
   readonly boardTimesTach?: boolean;
 }
@@ -78,7 +80,8 @@ export class AgentRuntime {
     let samples = 0;
     let gaps = 0;
     let first: number | undefined;
-    const timeOf = (index: number) => startMs + (index / fs) * 1000;
+    const scale = this.opts.timeScale ?? 1;
+    const timeOf = (index: number) => startMs + (index / fs) * 1000 * scale;
     try {
       for await (const item of source.items()) {
         if (this.stopped) break;

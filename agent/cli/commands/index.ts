@@ -3,6 +3,7 @@ import { analyzeCommand } from './analyze.js';
 import { balanceCommand } from './balance.js';
 import { checkConfigCommand } from './check-config.js';
 import { conditionCommand } from './condition.js';
+import { demoCommand } from './demo.js';
 import { liveCommand } from './live.js';
 import { mqttCommand } from './mqtt.js';
 import { probeSerialCommand } from './probe-serial.js';
@@ -11,4 +12,4 @@ import { simBoardCommand } from './sim-board.js';
 import { simulateCommand } from './simulate.js';
 
 /** Every sub-command, in the order `turnwise help` lists them. */
-export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, liveCommand, mqttCommand, probeSerialCommand, runCommand, simBoardCommand, simulateCommand];
+export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, demoCommand, liveCommand, mqttCommand, probeSerialCommand, runCommand, simBoardCommand, simulateCommand];

@@ -1,0 +1,171 @@
+import { randomBytes } from 'node:crypto';
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { createServer, type Server } from 'node:net';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { parse } from 'yaml';
+import { createSource } from '../../../drivers/create-source.js';
+import { FakeGpioLines } from '../../../drivers/gpio/fake-lines.js';
+import { systemClock } from '../../clock.js';
+import { validateConfig } from '../../config/load.js';
+import type { AgentEvent } from '../../events.js';
+import { LiveServer } from '../../live/server.js';
+import { createPinoLogger } from '../../logging/pino-logger.js';
+import { Agent } from '../../runtime/agent.js';
+import { numberOption, parseCommandArgs } from '../args.js';
+
+const num = (name: string, raw: string | undefined, def: number, min: number, max: number): number =>
+  numberOption('demo', usage, name, raw, (v) => v >= min && v <= max, `a number from ${min} to ${max}`) ?? def;
+import type { Command } from '../command.js';
+
+const usage = 'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S]';
+
+const CONFIG_DIR = fileURLToPath(new URL('../../../../config/', import.meta.url));
+
+async function listenFree(server: Server, preferred: number): Promise<number> {
+  const tryPort = (p: number) =>
+    new Promise<number>((resolve, reject) => {
+      server.once('error', reject);
+      server.listen(p, '127.0.0.1', () => {
+        server.removeListener('error', reject);
+        resolve((server.address() as { port: number }).port);
+      });
+    });
+  try {
+    return await tryPort(preferred);
+  } catch {
+    return tryPort(0);
+  }
+}
+
+/** Day and time of the scenario for an event, e.g. "day 5 14:23". */
+function scenarioTime(ts: string, startMs: number): string {
+  const s = (Date.parse(ts) - startMs) / 1000;
+  // Events timed by the wall clock (the advisory's own) are not on the scenario's calendar.
+  if (s < 0 || s > 30 * 86400) return 'now';
+  const day = Math.floor(s / 86400);
+  const h = Math.floor((s % 86400) / 3600);
+  const m = Math.floor((s % 3600) / 60);
+  return `day ${day} ${String(h).padStart(2, '0')}:${String(m).padStart(2, '0')}`;
+}
+
+function describeEvent(e: AgentEvent): string {
+  const who = (e['sensor'] as string | undefined) ?? (e['scope'] === 'machine' ? 'machine' : '');
+  const extra = e['zone'] ? `zone ${String(e['zone'])}` : e['kind'] ? `kind ${String(e['kind'])}` : '';
+  return [e.type, who, extra].filter(Boolean).join(' ');
+}
+
+export const demoCommand: Command = {
+  name: 'demo',
+  summary: 'the whole product on a laptop: simulated demo fan, MQTT broker, live page, a week in minutes',
+  usage,
+  async run(argv) {
+    const { values } = parseCommandArgs('demo', usage, argv, {
+      broker: { type: 'string' },
+      'mqtt-port': { type: 'string' },
+      port: { type: 'string' },
+      speed: { type: 'string' },
+      'from-day': { type: 'string' },
+      seconds: { type: 'string' },
+    });
+    const speed = num('speed', values.speed, 3600, 1, 1e6);
+    const fromDay = num('from-day', values['from-day'], 0, 0, 7);
+    const seconds = values.seconds === undefined ? Infinity : num('seconds', values.seconds, 0, 1, 1e9);
+    const livePort = num('port', values.port, 8480, 0, 65535);
+    const log = createPinoLogger({ level: 'warn' });
+
+    // The embedded broker (aedes), unless the user gave one.
+    let brokerUrl = values.broker;
+    let closeBroker = async () => {};
+    if (!brokerUrl) {
+      const { Aedes } = await import('aedes');
+      const aedes = await Aedes.createBroker();
+      const server = createServer(aedes.handle);
+      const port = await listenFree(server, num('mqtt-port', values['mqtt-port'], 1883, 0, 65535));
+      brokerUrl = `mqtt://127.0.0.1:${port}`;
+      closeBroker = async () => {
+        await new Promise<void>((r) => aedes.close(() => r()));
+        await new Promise<void>((r) => server.close(() => r()));
+      };
+    }
+
+    const token = randomBytes(18).toString('base64url');
+    const configFile = join(CONFIG_DIR, 'example.yaml');
+    const raw = parse(readFileSync(configFile, 'utf8')) as Record<string, unknown>;
+    const stateDir = mkdtempSync(join(tmpdir(), 'turnwise-demo-'));
+    const prefix = 'demo/kessrow';
+    const cfg = validateConfig(
+      {
+        ...raw,
+        acquisition: { driver: 'sim', scenario: 'example-scenario.yaml', pace: 'realtime', time_scale: speed, from_day: fromDay },
+        mqtt: { url: brokerUrl, topic_prefix: prefix },
+        // A laptop has no GPIO lines: the advisory drives lines in memory, shown in events.
+        // The demo raises it from zone C (the default is zone D) so the invented week shows one.
+        advisory: { relay: { line: 17 }, lamp: { line: 27 }, zone: 'C', hold_s: 1 },
+        live: { bind: '127.0.0.1', port: livePort, tokens: [{ name: 'demo-operator', role: 'operator', env: 'TURNWISE_DEMO_TOKEN' }] },
+        state_dir: stateDir,
+      },
+      'demo config (config/example.yaml with demo settings)',
+    );
+    const { source } = createSource(cfg, configFile, { log });
+    const startMs = Date.UTC(2026, 0, 5, 0, 0, 0) + fromDay * 86400_000;
+    let agent: Agent;
+    const live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() }, { ...process.env, TURNWISE_DEMO_TOKEN: token });
+    agent = new Agent({
+      config: cfg,
+      source,
+      boardTimesTach: false,
+      clock: systemClock,
+      logger: log,
+      gpio: new FakeGpioLines(),
+      startMs,
+      timeScale: speed,
+      windowConsumers: [
+        {
+          onWindow: (w, at) => {
+            live.onWindow(w, at);
+            if (agent.status) live.onWatch(agent.status);
+          },
+        },
+      ],
+      liveConsumers: [live],
+      onEvent: (e) => process.stdout.write(`  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`),
+    });
+    agent.handlers.balancingSession = (a) => live.workbench.sessionCommand(a);
+    let url: string;
+    try {
+      ({ url } = await live.start());
+    } catch (e) {
+      await closeBroker();
+      throw e;
+    }
+    const [host, port] = brokerUrl.replace('mqtt://', '').split(':');
+    process.stdout.write(
+      `turnwise demo: the invented Kessrow Board Mill ID fan 3A, simulated (INVENTED DATA)\n` +
+        `  live page   ${url}\n` +
+        `  token       ${token}   (operator role; the page asks for it)\n` +
+        `  MQTT        ${brokerUrl}${values.broker ? '' : ' (embedded broker)'}\n` +
+        `  watch with  mosquitto_sub -h ${host} -p ${port ?? 1883} -t '${prefix}/#' -v\n` +
+        `  topics      ${prefix}/${cfg.machine.id}/status, /heartbeat, /live, /event/<type>, /cmd, /cmd/reply\n` +
+        `  timeline    one scenario day every ${(86400 / speed).toFixed(0)} s: start-up, build-up from day 3, a cable fault on day 4,\n` +
+        `              a balance weight thrown on day 5 (alarm and safe-stop advisory), stop on day 6\n` +
+        `  advisory    demo condition: zone C or worse on two OK channels of one bearing for 1 s of signal (default: zone D for 3 s)\n` +
+        `  state       ${stateDir}\n` +
+        `The safe-stop advisory is an advice to people, not a protective trip. Ctrl-C stops the demo.\nEvents:\n`,
+    );
+    const stop = () => agent.stop();
+    process.once('SIGINT', stop);
+    process.once('SIGTERM', stop);
+    const timer = Number.isFinite(seconds) ? setTimeout(stop, seconds * 1000) : undefined;
+    try {
+      await agent.run(2000);
+    } finally {
+      if (timer) clearTimeout(timer);
+      await live.stop();
+      await closeBroker();
+    }
+    return 0;
+  },
+};
+
