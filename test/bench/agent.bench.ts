@@ -103,10 +103,15 @@ async function soak(days: number, timeScale: number): Promise<void> {
   const agent = new Agent({ config: cfg, source, boardTimesTach: false, clock: systemClock, logger: silentLogger, startMs: Date.UTC(2026, 0, 5), timeScale });
   const signalS = (days * 86400) / timeScale;
   const rss: number[] = [];
+  const heap: number[] = [];
+  const gc = (globalThis as { gc?: () => void }).gc;
   const t0 = Date.now();
   const timer = setInterval(() => {
+    // Live heap after a full collection shows a leak; RSS alone also shows the allocator's slack.
+    gc?.();
     rss.push(process.memoryUsage().rss);
-    if (rss.length % 10 === 0) log(`soak: ${((Date.now() - t0) / 1000).toFixed(0)} s, RSS ${(rss[rss.length - 1]! / 2 ** 20).toFixed(0)} MB`);
+    heap.push(process.memoryUsage().heapUsed);
+    if (rss.length % 10 === 0) log(`soak: ${((Date.now() - t0) / 1000).toFixed(0)} s, RSS ${(rss[rss.length - 1]! / 2 ** 20).toFixed(0)} MB, heap ${(heap[heap.length - 1]! / 2 ** 20).toFixed(1)} MB`);
   }, 1000);
   // The simulated source never ends by itself: stop after the signal of `days` days has been played.
   let done = false;
@@ -120,9 +125,10 @@ async function soak(days: number, timeScale: number): Promise<void> {
   const sum = await agent.run(5000);
   clearInterval(timer);
   clearInterval(check);
-  const q = (f: number) => rss[Math.min(rss.length - 1, Math.floor(rss.length * f))]! / 2 ** 20;
+  const q = (f: number, a = rss) => a[Math.min(a.length - 1, Math.floor(a.length * f))]! / 2 ** 20;
   console.log(`soak: ${days} simulated days (${signalS.toFixed(0)} s of signal) in ${((Date.now() - t0) / 1000).toFixed(0)} s wall; ${sum.windows} windows, ${sum.events} events`);
   console.log(`soak RSS at 10/50/90/100 % of the run: ${q(0.1).toFixed(0)} / ${q(0.5).toFixed(0)} / ${q(0.9).toFixed(0)} / ${q(1).toFixed(0)} MB; state directory ${(dirBytes(cfg.state_dir) / 1024).toFixed(0)} KiB`);
+  if (gc) console.log(`soak live heap after GC at 10/50/90/100 %: ${q(0.1, heap).toFixed(1)} / ${q(0.5, heap).toFixed(1)} / ${q(0.9, heap).toFixed(1)} / ${q(1, heap).toFixed(1)} MB`);
   await b.close();
 }
 
