@@ -70,3 +70,7 @@ export function deltaDeg(a: number, b: number): number {
   const d = wrapDeg(a - b);
   return d > 180 ? d - 360 : d;
 }
+
+export function conj(a: Complex): Complex {
+  return { re: a.re, im: -a.im };
+}

@@ -1,67 +1,22 @@
 /**
- * Small complex-number and angle helpers for 1x vectors. A vector is written as amplitude at an angle;
- * the angle is the phase lag in degrees exactly as the DSP reports it (no sign flip), so every
- * difference and ratio below stays in that same convention.
+ * Angle helpers for 1x vectors, over the project's one complex-number module (agent/balance/complex.ts).
+ * A vector is written as amplitude at an angle; the angle is the phase lag in degrees exactly as the
+ * DSP reports it (no sign flip), so every difference and ratio stays in that same convention.
  */
+import { argDeg, deltaDeg, wrapDeg } from '../balance/complex.js';
 
-export interface Complex {
-  readonly re: number;
-  readonly im: number;
-}
+export { abs, add, conj, div, fromPolar, mul, scale, sub, ZERO, type Complex } from '../balance/complex.js';
 
 const RAD = Math.PI / 180;
 
-export function fromPolar(amp: number, angleDeg: number): Complex {
-  return { re: amp * Math.cos(angleDeg * RAD), im: amp * Math.sin(angleDeg * RAD) };
-}
-
-export function abs(a: Complex): number {
-  return Math.hypot(a.re, a.im);
-}
-
 /** Angle in degrees, 0-360. */
-export function angleDeg(a: Complex): number {
-  return normDeg(Math.atan2(a.im, a.re) / RAD);
-}
-
-export function add(a: Complex, b: Complex): Complex {
-  return { re: a.re + b.re, im: a.im + b.im };
-}
-
-export function sub(a: Complex, b: Complex): Complex {
-  return { re: a.re - b.re, im: a.im - b.im };
-}
-
-export function mul(a: Complex, b: Complex): Complex {
-  return { re: a.re * b.re - a.im * b.im, im: a.re * b.im + a.im * b.re };
-}
-
-export function div(a: Complex, b: Complex): Complex {
-  const d = b.re * b.re + b.im * b.im;
-  return { re: (a.re * b.re + a.im * b.im) / d, im: (a.im * b.re - a.re * b.im) / d };
-}
-
-export function conj(a: Complex): Complex {
-  return { re: a.re, im: -a.im };
-}
-
-export function scale(a: Complex, k: number): Complex {
-  return { re: a.re * k, im: a.im * k };
-}
-
-export const ZERO: Complex = { re: 0, im: 0 };
+export const angleDeg = argDeg;
 
 /** Any angle in degrees to 0-360. */
-export function normDeg(deg: number): number {
-  const r = deg % 360;
-  return r < 0 ? r + 360 : r === 0 ? 0 : r;
-}
+export const normDeg = wrapDeg;
 
 /** Signed difference a - b in degrees, folded to (-180, 180]. */
-export function diffDeg(a: number, b: number): number {
-  const d = normDeg(a - b);
-  return d > 180 ? d - 360 : d;
-}
+export const diffDeg = deltaDeg;
 
 /** Unsigned angular separation of a and b, 0-180 degrees. */
 export function sepDeg(a: number, b: number): number {
