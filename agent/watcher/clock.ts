@@ -1,7 +1,2 @@
-/** Wall-clock time, injected so that logic never reads the system clock itself. */
-export interface Clock {
-  /** Milliseconds since 1970-01-01T00:00:00Z. */
-  now(): number;
-}
-
-export const systemClock: Clock = { now: () => Date.now() };
+/** The watcher takes the project's one clock interface (agent/clock.ts). */
+export { systemClock, type Clock } from '../clock.js';
