@@ -7,10 +7,11 @@
  * uses): combining and splitting do not depend on the direction angles are counted in, as long as
  * the inputs and the fixed positions share it.
  */
+import { STANDARD_GRAVITY_M_S2 } from '../dsp/acceleration.js';
 import { abs, add, argDeg, fromPolar, wrapDeg, ZERO } from './complex.js';
 
-/** Standard gravity, m/s^2. */
-export const STANDARD_GRAVITY = 9.80665;
+/** Standard gravity, m/s^2 (the one definition lives with the acceleration stage). */
+export const STANDARD_GRAVITY = STANDARD_GRAVITY_M_S2;
 
 export interface PlacedWeight {
   readonly mass_g: number;

@@ -1,3 +1,4 @@
+import { STANDARD_GRAVITY_M_S2 as G } from '../../agent/dsp/acceleration.js';
 import { phasor, type Phasor, type RotorGeometry, type SensorPlace } from './physics.js';
 import type { FaultSpec } from './scenario.js';
 
@@ -116,7 +117,6 @@ export interface ToneDef {
   amplitude(place: SensorPlace, sensorIndex: number, omegaRadS: number, speedRatio: number, factor: number): Phasor;
 }
 
-const G = 9.80665;
 
 /** Per-sensor lag drawn from a fault's random numbers, degrees. */
 function sensorLag(draws: Float64Array, slot: number, sensorIndex: number): number {
