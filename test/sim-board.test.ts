@@ -253,7 +253,9 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       expect(await exited).toBe(0);
       const summary = JSON.parse(stdout) as { stopped_by: string; socat_exit: number | string; frames_sent: number; channels: number; model_1x_end: OrderVectorModel[] };
       expect(summary).toMatchObject({ stopped_by: 'signal', channels: 8 });
-      expect(summary.frames_sent).toBeGreaterThan((MEASURE_S * 25600) / 256);
+      // the agent measured MEASURE_S seconds from this board, so the board sent at least that many frames
+      // (exactly that many when SIGINT lands right after the last one the agent needed)
+      expect(summary.frames_sent).toBeGreaterThanOrEqual((MEASURE_S * 25600) / 256);
       expect(w.revolutions).toBeGreaterThan(140);
       const worst = expectModel1x(w, summary.model_1x_end);
       console.log(`sim-board process, tach on channel 6: ${w.revolutions} revolutions, ${gaps} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
