@@ -26,4 +26,43 @@ describe('logging once per burst', () => {
     b.flush(true);
     expect(log.lines.filter((l) => /burst over/.test(l.msg))).toHaveLength(1);
   });
+
+  it('starts a new burst for another kind of problem under the same key, and after a quiet spell', () => {
+    let now = 0;
+    const log = new MemoryLogger();
+    const b = new BurstLog(log, { nowMs: () => now, quietMs: 60_000 });
+    expect(b.report('connect', 'connection refused', {}, 'refused')).toBe(true);
+    now = 1000;
+    expect(b.report('connect', 'connection refused', {}, 'refused')).toBe(false);
+    now = 2000;
+    // a different kind is said at once; the refused burst is summarised first
+    expect(b.report('connect', 'bad user name or password', {}, 'auth')).toBe(true);
+    expect(log.lines.map((l) => [l.level, l.msg.slice(0, 40)])).toEqual([
+      ['warn', 'connection refused (further "connect" pr'],
+      ['info', '"connect" burst over: 2 occurrence(s) in'],
+      ['warn', 'bad user name or password (further "conn'],
+    ]);
+    // after a minute without one, the same problem is news again
+    now = 62_000;
+    expect(b.report('connect', 'bad user name or password', {}, 'auth')).toBe(true);
+  });
+
+  it('ends a burst when the caller says the problem is over, with the count and duration', () => {
+    let now = 0;
+    const log = new MemoryLogger();
+    const b = new BurstLog(log, { nowMs: () => now, quietMs: Infinity });
+    expect(b.resolved('connect', 'connected')).toBe(false);
+    for (let k = 0; k < 5; k++) {
+      now = k * 30_000; // one failed attempt every 30 s: never quiet long enough to end by itself
+      b.report('connect', `attempt ${k} failed`);
+    }
+    b.flush();
+    expect(b.isOpen('connect')).toBe(true);
+    now = 125_000;
+    expect(b.resolved('connect', 'connected after 5 failed attempts')).toBe(true);
+    expect(b.isOpen('connect')).toBe(false);
+    const last = log.lines.at(-1)!;
+    expect(last).toMatchObject({ level: 'info', msg: 'connected after 5 failed attempts' });
+    expect(last.fields).toMatchObject({ problem: 'connect', occurrences: 5, lasted_s: 125 });
+  });
 });

@@ -26,7 +26,7 @@ import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import { isUserError, UserError } from '../errors.js';
 import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
-import { BurstReporter } from '../mqtt/burst.js';
+import { BurstLog } from '../burst-log.js';
 import { readSecretFile } from '../mqtt/secrets.js';
 import type { LiveConsumer, WindowConsumer } from '../runtime/runtime.js';
 import type { WatchStatus } from '../watcher/index.js';
@@ -93,7 +93,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   readonly view: LiveView;
   private readonly opts: LiveServerOptions;
   private readonly check: TokenCheck;
-  private readonly burst: BurstReporter;
+  private readonly burst: BurstLog;
   private readonly routes: Route[];
   private files: Map<string, StaticFile> | null = null;
   private server: Server | null = null;
@@ -110,7 +110,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   constructor(opts: LiveServerOptions) {
     this.opts = opts;
     this.check = new TokenCheck(opts.tokens);
-    this.burst = new BurstReporter(opts.logger, () => opts.clock.now(), 60_000);
+    this.burst = new BurstLog(opts.logger, { nowMs: () => opts.clock.now(), quietMs: 60_000 });
     this.view = new LiveView(opts.config, opts.live.trail_points, opts.live.trend_max_points);
     const memory = opts.liveRevolutions ?? 32;
     this.settleRevolutions = opts.live.capture.settle_revolutions ?? 5 * memory;
@@ -498,7 +498,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   }
 
   private refused(remote: string, what: string): void {
-    this.burst.occurred(`live-auth-${remote}`, 'live page: request with a missing or wrong token refused; repeats from this address are counted, not logged', { remote, what });
+    this.burst.report(`live-auth-${remote}`, 'live page: request with a missing or wrong token refused', { remote, what });
   }
 
   private readBody(req: IncomingMessage): Promise<unknown> {

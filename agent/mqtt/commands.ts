@@ -1,7 +1,7 @@
 import { createHash, timingSafeEqual } from 'node:crypto';
 import { isUserError } from '../errors.js';
 import type { Logger } from '../log.js';
-import { BurstReporter } from './burst.js';
+import { BurstLog } from '../burst-log.js';
 import { COMMANDS, commandPayload, SCHEMA_IDS, type CommandName, type CommandPayload, type ReplyErrorCode, type ReplyPayload } from './payloads.js';
 import type { Secret } from './secrets.js';
 
@@ -58,7 +58,7 @@ export class CommandRouter {
   private readonly handlers: CommandHandlers;
   private readonly asset: string;
   private readonly now: () => number;
-  private readonly burst: BurstReporter;
+  private readonly burst: BurstLog;
   private readonly recent = new Map<string, ReplyPayload>();
   readonly counts = { total: 0, refused: 0 };
 
@@ -67,7 +67,7 @@ export class CommandRouter {
     this.handlers = opts.handlers;
     this.asset = opts.asset;
     this.now = opts.now ?? Date.now;
-    this.burst = new BurstReporter(opts.log, this.now, 60_000);
+    this.burst = new BurstLog(opts.log, { nowMs: this.now, quietMs: 60_000 });
   }
 
   /** Handles one raw command message and returns the reply to publish. Never throws. */
@@ -81,7 +81,7 @@ export class CommandRouter {
     }
     if (!reply.ok) {
       this.counts.refused++;
-      this.burst.occurred('command-refused', `command refused (${reply.error.code}): ${reply.error.message}; repeats are counted in the heartbeat, not logged`, { cmd: reply.cmd, id: reply.id }, reply.error.code);
+      this.burst.report('command-refused', `command refused (${reply.error.code}): ${reply.error.message}; the heartbeat counts every refusal`, { cmd: reply.cmd, id: reply.id }, reply.error.code);
     }
     return reply;
   }

@@ -2,7 +2,7 @@ import { connect as mqttConnect, type IClientOptions, type MqttClient } from 'mq
 import type { AgentEvent } from '../events.js';
 import type { AddOutcome, Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
-import { BurstReporter } from './burst.js';
+import { BurstLog } from '../burst-log.js';
 import { SCHEMA_IDS, type HeartbeatPayload, type LinkHealth, type LivePayload, type ReplyPayload, type StatusPayload } from './payloads.js';
 import type { MqttSettings } from './settings.js';
 
@@ -85,7 +85,7 @@ export class MqttPublisher {
   private readonly now: () => number;
   private readonly random: () => number;
   private readonly version: string;
-  private readonly burst: BurstReporter;
+  private readonly burst: BurstLog;
 
   private client: MqttClient | null = null;
   private connected = false;
@@ -114,7 +114,7 @@ export class MqttPublisher {
     this.now = opts.now ?? Date.now;
     this.random = opts.random ?? Math.random;
     this.version = opts.agentVersion ?? '0.0.0';
-    this.burst = new BurstReporter(opts.log, this.now);
+    this.burst = new BurstLog(opts.log, { nowMs: this.now, quietMs: Infinity });
   }
 
   /** Starts connecting in the background. Returns at once; the broker may be down. */
@@ -258,7 +258,7 @@ export class MqttPublisher {
     if (this.commands) {
       c.subscribe(this.s.topics.cmd, { qos: 1 }, (err, granted) => {
         if (err || granted?.some((g) => g.qos === 128)) {
-          this.burst.occurred('subscribe', `the broker refused the subscription to ${this.s.topics.cmd}; commands will not arrive (check the broker ACL)`);
+          this.burst.report('subscribe', `the broker refused the subscription to ${this.s.topics.cmd}; commands will not arrive (check the broker ACL)`);
         }
       });
     }
@@ -292,7 +292,7 @@ export class MqttPublisher {
     this.failures++;
     const backoff = `with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s); events wait in the outbox`;
     const message = wasConnected ? `lost the connection to ${this.s.url}: ${reason}; reconnecting ${backoff}` : `cannot connect to ${this.s.url}: ${reason}; retrying ${backoff}`;
-    this.burst.occurred('connect', message, { client_id: this.s.clientId }, kind);
+    this.burst.report('connect', message, { client_id: this.s.clientId }, kind);
     this.reconnectTimer = setTimeout(() => this.connectNow(), delay);
   }
 
