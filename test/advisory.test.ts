@@ -11,7 +11,7 @@ import { loadConfig } from '../agent/config/load.js';
 import { UserError } from '../agent/errors.js';
 import type { AgentEvent } from '../agent/events.js';
 import { CaptureLog } from './support/capture-log.js';
-import { FakeGpio } from './support/fake-gpio.js';
+import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
 import { assertMatches } from './support/payload-schemas.js';
 
 const RELAY = 17;
@@ -49,12 +49,12 @@ function win(t_s: number, z: { deV?: Z; deH?: Z; ndeV?: Z; ndeH?: Z; deVok?: boo
 }
 
 async function startAdvisory(over: Partial<AdvisorySettings> = {}, store = latchFile()) {
-  const gpio = new FakeGpio();
+  const gpio = new FakeGpioLines();
   const events: AgentEvent[] = [];
   const log = new CaptureLog();
   const adv = await SafeStopAdvisory.start({ settings: settings(over), gpio, asset: 'kessrow-id3a', emit: (e) => events.push(e), store, log, tickMs: 0 });
   await adv.settled();
-  return { adv, gpio, events, log, store, relay: gpio.outputs.get(RELAY)!, lamp: gpio.outputs.get(LAMP)!, button: gpio.inputs.get(BUTTON)! };
+  return { adv, gpio, events, log, store };
 }
 
 describe('vote counting', () => {
@@ -77,15 +77,15 @@ describe('vote counting', () => {
 
 describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
   it('energises relay and lamp at start when all is well (fail-safe)', async () => {
-    const { relay, lamp, events } = await startAdvisory();
-    expect(relay.writes).toEqual([true]);
-    expect(lamp.writes).toEqual([true]);
+    const { gpio, events } = await startAdvisory();
+    expect(gpio.writes('advisory relay')).toEqual([true]);
+    expect(gpio.writes('advisory lamp')).toEqual([true]);
     expect(events.map((e) => e.type)).toEqual(['advisory_started']);
     assertMatches('event-advisory.v1', { schema: 'turnwise.event.v1', ...events[0] });
   });
 
   it('raises after the hold time, latches, and clears only after acknowledgement', async () => {
-    const { adv, relay, lamp, events } = await startAdvisory();
+    const { adv, gpio, events } = await startAdvisory();
     adv.update(win(0, { deV: 'D', deH: 'D' }));
     adv.update(win(2, { deV: 'D', deH: 'D' })); // held 2 s < 3 s
     await adv.settled();
@@ -93,8 +93,8 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     adv.update(win(4, { deV: 'D', deH: 'D' })); // held 4 s >= 3 s
     await adv.settled();
     expect(adv.state).toBe('raised');
-    expect(relay.level).toBe(false);
-    expect(lamp.level).toBe(false);
+    expect(gpio.level('advisory relay')).toBe(false);
+    expect(gpio.level('advisory lamp')).toBe(false);
     const raised = events.find((e) => e.type === 'advisory_raised')!;
     expect(raised).toMatchObject({ severity: 'alarm', bearing: 'DE', channels: ['DE-V', 'DE-H'], outputs_energised: false });
     expect(String(raised.message)).toMatch(/stop the fan safely/);
@@ -103,40 +103,40 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     for (const t of [6, 8, 10]) adv.update(win(t, {}));
     await adv.settled();
     expect(adv.state).toBe('latched');
-    expect(relay.level).toBe(false);
+    expect(gpio.level('advisory relay')).toBe(false);
     expect(events.filter((e) => e.type === 'advisory_cleared').map((e) => e.severity)).toEqual(['warning']);
 
     expect(adv.acknowledge('shift lead (test)')).toEqual({ state: 'normal', outputs_energised: true, changed: true });
     await adv.settled();
-    expect(relay.level).toBe(true);
-    expect(lamp.level).toBe(true);
+    expect(gpio.level('advisory relay')).toBe(true);
+    expect(gpio.level('advisory lamp')).toBe(true);
     expect(adv.acknowledge('again')).toMatchObject({ changed: false });
     for (const e of events) assertMatches('event-advisory.v1', { schema: 'turnwise.event.v1', ...e });
   });
 
   it('acknowledged while the condition is still present: outputs stay dropped until it clears', async () => {
-    const { adv, relay, button, events } = await startAdvisory({ holdMs: 0 });
+    const { adv, gpio, events } = await startAdvisory({ holdMs: 0 });
     adv.update(win(0, { deV: 'D', deH: 'D' }));
-    button.set(true); // local push-button
-    button.set(false);
+    gpio.press('advisory acknowledge button'); // local push-button
+    gpio.release('advisory acknowledge button');
     await adv.settled();
     expect(adv.state).toBe('acknowledged');
-    expect(relay.level).toBe(false);
+    expect(gpio.level('advisory relay')).toBe(false);
     expect(events.find((e) => e.type === 'advisory_acknowledged')).toMatchObject({ acknowledged_by: 'local button', state: 'acknowledged' });
     adv.update(win(1, { deV: 'D', deH: 'D' }));
     adv.update(win(2, {}));
     await adv.settled();
     expect(adv.state).toBe('normal');
-    expect(relay.level).toBe(true);
+    expect(gpio.level('advisory relay')).toBe(true);
   });
 
   it('is never raised by channels that are not OK, and reports lost voting coverage', async () => {
-    const { adv, relay, events } = await startAdvisory({ holdMs: 0 });
+    const { adv, gpio, events } = await startAdvisory({ holdMs: 0 });
     // DE-H reads zone D but its sensor is judged faulty (e.g. cable off): only one OK vote at DE.
     for (let t = 0; t < 10; t++) adv.update(win(t, { deV: 'D', deH: 'D', deHok: false }));
     await adv.settled();
     expect(adv.state).toBe('normal');
-    expect(relay.level).toBe(true);
+    expect(gpio.level('advisory relay')).toBe(true);
     const cov = events.filter((e) => e.type === 'advisory_coverage');
     expect(cov).toHaveLength(1); // said once, not every window
     expect(cov[0]).toMatchObject({ severity: 'warning', bearings_without_vote: ['DE'] });
@@ -160,33 +160,32 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     const first = await startAdvisory({ holdMs: 0 }, store);
     first.adv.update(win(0, { deV: 'D', deH: 'D' }));
     await first.adv.close();
-    expect(first.relay.level).toBe(false); // stopping drops the outputs, like a dead agent
+    expect(first.gpio.level('advisory relay')).toBe(false); // stopping drops the outputs, like a dead agent
 
     const second = await startAdvisory({ holdMs: 0 }, store);
     expect(second.adv.state).toBe('latched');
-    expect(second.relay.writes).toEqual([false]);
+    expect(second.gpio.writes('advisory relay')).toEqual([false]);
     expect(second.events[0]).toMatchObject({ type: 'advisory_started', severity: 'alarm', outputs_energised: false });
     expect(String(second.events[0]!.message)).toMatch(/stays latched until acknowledged/);
     second.adv.acknowledge('mqtt: control room (test)');
     await second.adv.settled();
-    expect(second.relay.level).toBe(true);
+    expect(second.gpio.level('advisory relay')).toBe(true);
   });
 
   it('starts as normal with a warning when the saved state is unreadable', async () => {
     const store = latchFile();
     writeFileSync(store.file, '{ torn');
-    const { adv, events, relay } = await startAdvisory({}, store);
+    const { adv, events, gpio } = await startAdvisory({}, store);
     expect(adv.state).toBe('normal');
-    expect(relay.level).toBe(true);
+    expect(gpio.level('advisory relay')).toBe(true);
     expect(events[0]).toMatchObject({ severity: 'warning', message: expect.stringMatching(/could not be read .*not valid JSON/) });
   });
 
   it('drops the outputs when measurements stop arriving, and restores them when they resume', async () => {
     let now = 1_000_000;
-    const gpio = new FakeGpio();
+    const gpio = new FakeGpioLines({ nowMs: () => now });
     const events: AgentEvent[] = [];
     const adv = await SafeStopAdvisory.start({ settings: settings({ stallMs: 30_000 }), gpio, asset: 'kessrow-id3a', emit: (e) => events.push(e), store: latchFile(), log: new CaptureLog(), now: () => now, tickMs: 0 });
-    const relay = gpio.outputs.get(RELAY)!;
     now += 29_000;
     adv.tick();
     expect(adv.energised()).toBe(true);
@@ -194,18 +193,18 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     adv.tick();
     adv.tick();
     await adv.settled();
-    expect(relay.level).toBe(false);
+    expect(gpio.level('advisory relay')).toBe(false);
     expect(events.filter((e) => e.type === 'advisory_stalled')).toHaveLength(1);
     adv.update(win(0, {}));
     await adv.settled();
-    expect(relay.level).toBe(true);
+    expect(gpio.level('advisory relay')).toBe(true);
     expect(events.at(-1)).toMatchObject({ type: 'advisory_resumed' });
     expect(adv.state).toBe('normal'); // a stall never latches
   });
 
   it('reports a failed output write once as an alarm event and retries until the line responds', async () => {
-    const { adv, relay, events, log } = await startAdvisory({ holdMs: 0 });
-    relay.failWrites = true;
+    const { adv, gpio, events, log } = await startAdvisory({ holdMs: 0 });
+    gpio.breakLine('advisory relay', Object.assign(new Error('EIO writing the relay line'), { code: 'EIO' }));
     adv.update(win(0, { deV: 'D', deH: 'D' }));
     await adv.settled();
     adv.tick();
@@ -213,10 +212,10 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     await adv.settled();
     expect(events.filter((e) => e.type === 'advisory_output_fault')).toHaveLength(1);
     expect(adv.health()).toMatchObject({ advisory_output_fault: true });
-    relay.failWrites = false;
+    gpio.breakLine('advisory relay', null);
     adv.tick();
     await adv.settled();
-    expect(relay.level).toBe(false);
+    expect(gpio.level('advisory relay')).toBe(false);
     expect(adv.health()).toMatchObject({ advisory_output_fault: false });
     expect(log.matching(/respond again/)).toHaveLength(1);
   });

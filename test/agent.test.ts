@@ -7,7 +7,7 @@ import { validateConfig } from '../agent/config/load.js';
 import { MemoryLogger } from '../agent/log.js';
 import { Agent } from '../agent/runtime/agent.js';
 import { ArraySource } from './support/array-source.js';
-import { FakeGpio } from './support/fake-gpio.js';
+import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
 import { plainBroker } from './support/mosquitto.js';
 import { assertMatches } from './support/payload-schemas.js';
 import { TestSubscriber } from './support/subscriber.js';
@@ -57,7 +57,7 @@ describe('turnwise agent end to end', () => {
       watcher: { window_s: 5, on_delay_s: 10 },
     });
     const sub = await TestSubscriber.open(broker.url, [`${prefix}/#`]);
-    const gpio = new FakeGpio();
+    const gpio = new FakeGpioLines();
     const t0 = Date.UTC(2026, 11, 2, 6, 0, 0);
     const log = new MemoryLogger();
     const agent = new Agent({ config: cfg, source: new ArraySource(sig, fs, 2048, [], 15), boardTimesTach: false, clock: new ManualClock(t0), logger: log, gpio, startMs: t0 });
@@ -83,9 +83,8 @@ describe('turnwise agent end to end', () => {
     // Ids are unique.
     expect(new Set(events.map((e) => (e.json as { id: string }).id)).size).toBe(events.length);
     // Fail-safe outputs: energised while all was well, de-energised once the advisory was raised.
-    const relay = gpio.outputs.get(17)!;
-    expect(relay.writes).toContain(true);
-    expect(relay.level).toBe(false);
+    expect(gpio.writes('advisory relay')).toContain(true);
+    expect(gpio.level('advisory relay')).toBe(false);
     const live = sub.on(`${base}/live`);
     expect(live.length).toBeGreaterThan(0);
     for (const m of live) assertMatches('live.v1', m.json);

@@ -11,7 +11,7 @@ import { UserError } from '../agent/errors.js';
 import type { CommandHandlers } from '../agent/mqtt/commands.js';
 import { openPlantLink, type PlantLink } from '../agent/mqtt/plant-link.js';
 import { CaptureLog } from './support/capture-log.js';
-import { FakeGpio } from './support/fake-gpio.js';
+import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
 import { plainBroker } from './support/mosquitto.js';
 import { assertMatches } from './support/payload-schemas.js';
 import { TestSubscriber } from './support/subscriber.js';
@@ -30,7 +30,7 @@ let dir: string;
 let link: PlantLink;
 let plant: TestSubscriber;
 let advisory: SafeStopAdvisory;
-let gpio: FakeGpio;
+let gpio: FakeGpioLines;
 const log = new CaptureLog();
 const calls: string[] = [];
 
@@ -40,7 +40,7 @@ beforeAll(async () => {
   const tokenFile = join(dir, 'cmd-token');
   writeFileSync(tokenFile, TOKEN + '\n');
   chmodSync(tokenFile, 0o600);
-  gpio = new FakeGpio();
+  gpio = new FakeGpioLines();
   const handlers: CommandHandlers = {
     takeSnapshot: (a) => {
       calls.push(`snapshot ${a.note ?? ''}`);
@@ -143,14 +143,14 @@ describe('commands on the command topic', () => {
     advisory.update({ t_ms: 1000, channels: [{ id: 'DE-V', bearing: 'DE', zone: 'B', ok: true }, { id: 'DE-H', bearing: 'DE', zone: 'B', ok: true }] });
     await advisory.settled();
     expect(advisory.state).toBe('latched');
-    expect(gpio.outputs.get(17)!.level).toBe(false);
+    expect(gpio.level('advisory relay')).toBe(false);
     // An unauthorised acknowledgement changes nothing.
     expect(await send(JSON.stringify({ id: 'ack-bad', token: 'guess', cmd: 'advisory.ack', args: { by: 'intruder' } }))).toMatchObject({ ok: false, error: { code: 'unauthorised' } });
     expect(advisory.state).toBe('latched');
     const r = await send(JSON.stringify({ id: 'ack-1', token: TOKEN, cmd: 'advisory.ack', args: { by: 'control room (test)' } }));
     expect(r).toMatchObject({ ok: true, id: 'ack-1', result: { state: 'normal', outputs_energised: true, changed: true } });
     await advisory.settled();
-    expect(gpio.outputs.get(17)!.level).toBe(true);
+    expect(gpio.level('advisory relay')).toBe(true);
     // The advisory's events reached the plant, in order, each matching its schema.
     await plant.waitFor((m) => m.some((x) => x.topic === `${base}/event/advisory_acknowledged`), 10_000, 'the acknowledgement event');
     const types = plant.messages.filter((x) => x.topic.startsWith(`${base}/event/`)).map((x) => (x.json as { type: string }).type);

@@ -16,6 +16,8 @@ class FakeLine {
   closed = false;
   failure: Error | null = null;
   readonly history: OutputChange[] = [];
+  /** Every level written, changed or not, in order (not the initial level). */
+  readonly writes: boolean[] = [];
   readonly listeners = new Set<EdgeListener>();
 
   constructor(
@@ -57,6 +59,7 @@ export class FakeGpioLines implements GpioLines {
     return {
       write: async (on) => {
         l.check();
+        l.writes.push(on);
         if (on !== l.value) l.history.push({ on, atMs: this.nowMs() });
         l.value = on;
       },
@@ -128,6 +131,11 @@ export class FakeGpioLines implements GpioLines {
   /** Every level an output took, starting with its initial level. */
   history(name: string): readonly OutputChange[] {
     return this.get(name, 'output').history;
+  }
+
+  /** Every level written to an output, changed or not (a fail-safe output is written at start). */
+  writes(name: string): readonly boolean[] {
+    return this.get(name, 'output').writes;
   }
 
   isClosed(name: string): boolean {
