@@ -70,6 +70,34 @@ describe('complex linear algebra', () => {
     expect(getEl(x, 1, 0).re).toBeCloseTo(x2.re, 12);
     expect(getEl(x, 1, 0).im).toBeCloseTo(x2.im, 12);
   });
+  it('with more equations than unknowns, the residual is orthogonal to the columns (normal equations A^H r = 0)', () => {
+    const rows = [
+      [fromPolar(0.05, 30), fromPolar(0.02, 200)],
+      [fromPolar(0.015, 310), fromPolar(0.06, 80)],
+      [fromPolar(0.04, 45), fromPolar(0.01, 170)],
+      [fromPolar(0.02, 300), fromPolar(0.05, 95)],
+    ];
+    const b = [fromPolar(3, 120), fromPolar(1.5, 250), fromPolar(2.6, 140), fromPolar(0.4, 10)];
+    const x = leastSquares(cmatrixFrom(rows), cmatrixFrom(b.map((v) => [v])));
+    const x0 = getEl(x, 0, 0);
+    const x1 = getEl(x, 1, 0);
+    const mul = (p: { re: number; im: number }, q: { re: number; im: number }) => complex(p.re * q.re - p.im * q.im, p.re * q.im + p.im * q.re);
+    for (let j = 0; j < 2; j++) {
+      let re = 0;
+      let im = 0;
+      rows.forEach((row, i) => {
+        const fit = mul(row[0]!, x0);
+        const fit1 = mul(row[1]!, x1);
+        const r = complex(fit.re + fit1.re - b[i]!.re, fit.im + fit1.im - b[i]!.im);
+        const d = mul(complex(row[j]!.re, -row[j]!.im), r);
+        re += d.re;
+        im += d.im;
+      });
+      expect(Math.hypot(re, im)).toBeLessThan(1e-12);
+    }
+    // and it is a real fit, not an exact solve: the residual itself is not zero
+    expect(Math.hypot(b[2]!.re - mul(rows[2]![0]!, x0).re - mul(rows[2]![1]!, x1).re, b[2]!.im - mul(rows[2]![0]!, x0).im - mul(rows[2]![1]!, x1).im)).toBeGreaterThan(0.1);
+  });
 });
 
 describe('splitting a weight onto fixed positions (law of sines, checked by hand)', () => {

@@ -1,7 +1,9 @@
 import type { StoredCoefficients } from '../balance/coefficients.js';
 import type { WindowResult } from '../dsp/types.js';
 import type { Baseline } from './baseline.js';
-import { abs, add, angleDeg, conj, div, fromPolar, mul, sub, ZERO, type Complex } from './complex.js';
+import { DEFAULT_SOLVE_OPTIONS } from '../balance/solve.js';
+import { cmatrixFrom, columnScaledConditionNumber, getEl, leastSquares } from '../balance/linalg.js';
+import { abs, add, angleDeg, fromPolar, mul, sub, ZERO, type Complex } from './complex.js';
 import type { HealthReport } from './health.js';
 
 /**
@@ -11,66 +13,9 @@ import type { HealthReport } from './health.js';
  * H W = V_target - V_now. Vectors use the phase lag as their angle and weights the angle convention of
  * the stored job, the same representation the coefficients were computed in.
  *
- * This is a small solver of its own; agent/balance/ may bring the balancing workbench's solver, and the
- * two should be unified then.
+ * The solve, the condition number and its limits are the balancing workbench's own
+ * (agent/balance/), so a forecast and a trim run from the same coefficients agree.
  */
-
-export interface LeastSquares {
-  readonly x: Complex[];
-  /** Condition number of H (ratio of its largest to smallest singular value); null for more than 2 unknowns. */
-  readonly condition: number | null;
-}
-
-/**
- * Complex least squares min |H x - b| through the normal equations (H^H H) x = H^H b, solved by Gaussian
- * elimination with partial pivoting. H is m x p with m >= p. Null when H^H H is singular.
- */
-export function complexLeastSquares(h: readonly (readonly Complex[])[], b: readonly Complex[]): LeastSquares | null {
-  const m = h.length;
-  const p = h[0]?.length ?? 0;
-  if (m < p || p === 0) return null;
-  const a: Complex[][] = [];
-  const r: Complex[] = [];
-  for (let i = 0; i < p; i++) {
-    a.push([]);
-    let ri = ZERO;
-    for (let k = 0; k < m; k++) ri = add(ri, mul(conj(h[k]![i]!), b[k]!));
-    r.push(ri);
-    for (let j = 0; j < p; j++) {
-      let s = ZERO;
-      for (let k = 0; k < m; k++) s = add(s, mul(conj(h[k]![i]!), h[k]![j]!));
-      a[i]!.push(s);
-    }
-  }
-  let condition: number | null = null;
-  if (p === 1) condition = 1;
-  else if (p === 2) {
-    // Eigenvalues of the 2x2 Hermitian H^H H are the squared singular values of H.
-    const t = (a[0]![0]!.re + a[1]![1]!.re) / 2;
-    const d = Math.sqrt(((a[0]![0]!.re - a[1]![1]!.re) / 2) ** 2 + abs(a[0]![1]!) ** 2);
-    condition = t - d > 0 ? Math.sqrt((t + d) / (t - d)) : Infinity;
-  }
-  const scaleRef = Math.max(...a.map((row, i) => abs(row[i]!)));
-  for (let col = 0; col < p; col++) {
-    let piv = col;
-    for (let i = col + 1; i < p; i++) if (abs(a[i]![col]!) > abs(a[piv]![col]!)) piv = i;
-    if (abs(a[piv]![col]!) <= 1e-12 * scaleRef) return null;
-    [a[col], a[piv]] = [a[piv]!, a[col]!];
-    [r[col], r[piv]] = [r[piv]!, r[col]!];
-    for (let i = col + 1; i < p; i++) {
-      const f = div(a[i]![col]!, a[col]![col]!);
-      for (let j = col; j < p; j++) a[i]![j] = sub(a[i]![j]!, mul(f, a[col]![j]!));
-      r[i] = sub(r[i]!, mul(f, r[col]!));
-    }
-  }
-  const x: Complex[] = new Array(p).fill(ZERO);
-  for (let i = p - 1; i >= 0; i--) {
-    let s = r[i]!;
-    for (let j = i + 1; j < p; j++) s = sub(s, mul(a[i]![j]!, x[j]!));
-    x[i] = div(s, a[i]![i]!);
-  }
-  return { x, condition };
-}
 
 export const BALANCE_CAUTIONS: readonly string[] = [
   'A forecast to prepare a weight before a planned stop, not an instruction: confirm with a check run after fitting it.',
@@ -150,18 +95,21 @@ export function forecastBalance(
   if (used.length < coeffs.planes.length) {
     return { ...unavailable(`${used.length} healthy sensor(s) with coefficients for ${coeffs.planes.length} plane(s): at least as many sensors as planes are needed`, coeffs), notes };
   }
-  const sol = complexLeastSquares(rows, rhs);
-  if (!sol) return { ...unavailable('the stored coefficients cannot separate the planes with the sensors available (singular system)', coeffs), notes };
-  if (sol.condition !== null && sol.condition > 20) {
-    notes.push(`the planes are hard to separate with these sensors (condition number ${sol.condition.toFixed(0)}): treat the split between planes with care`);
+  const h = cmatrixFrom(rows);
+  const condition = columnScaledConditionNumber(h);
+  if (condition >= DEFAULT_SOLVE_OPTIONS.conditionLimit) return { ...unavailable('the stored coefficients cannot separate the planes with the sensors available (singular system)', coeffs), notes };
+  if (condition > DEFAULT_SOLVE_OPTIONS.conditionWarn) {
+    notes.push(`the planes are hard to separate with these sensors (condition number ${condition.toFixed(0)}): treat the split between planes with care`);
   }
+  const solved = leastSquares(h, cmatrixFrom(rhs.map((r) => [r])));
+  const x = coeffs.planes.map((_, j) => getEl(solved, j, 0));
   if (window.speed_rpm !== null && Math.abs(window.speed_rpm - coeffs.speed_rpm) / coeffs.speed_rpm > 0.05) {
     notes.push(`coefficients were measured at ${coeffs.speed_rpm.toFixed(0)} r/min, the fan runs at ${window.speed_rpm.toFixed(0)} r/min: the forecast is less reliable`);
   }
   let ss = 0;
   rows.forEach((row, i) => {
     let pred = ZERO;
-    row.forEach((hij, j) => (pred = add(pred, mul(hij, sol.x[j]!))));
+    row.forEach((hij, j) => (pred = add(pred, mul(hij, x[j]!))));
     ss += abs(sub(pred, rhs[i]!)) ** 2;
   });
   return {
@@ -170,10 +118,10 @@ export function forecastBalance(
     job_id: coeffs.job_id,
     angle_convention: coeffs.angle_convention,
     target: baseline ? 'baseline' : 'zero',
-    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(sol.x[j]!), angle_deg: angleDeg(sol.x[j]!) })),
+    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(x[j]!), angle_deg: angleDeg(x[j]!) })),
     sensors_used: used,
     residual_pk_mm_s: Math.sqrt(ss / used.length),
-    condition: sol.condition,
+    condition,
     notes,
     cautions: BALANCE_CAUTIONS,
   };
