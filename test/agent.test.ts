@@ -77,6 +77,12 @@ describe('turnwise agent end to end', () => {
     const tD = (Date.parse(zoneD!.ts) - t0) / 1000;
     expect(tD).toBeGreaterThanOrEqual(step + 10);
     expect(tD).toBeLessThanOrEqual(step + 10 + 2 * 5);
+    // The advisory's events sit on the same (data) time line, although this wall clock never moves:
+    // raised once zone D held on both DE channels for the default 3 s, at a window's end.
+    const raised = events.map((e) => e.json as { type: string; ts: string }).find((e) => e.type === 'advisory_raised')!;
+    const tRaised = (Date.parse(raised.ts) - t0) / 1000;
+    expect(tRaised).toBeGreaterThanOrEqual(tD);
+    expect(tRaised).toBeLessThanOrEqual(tD + 3 + 5);
     const unb = events.map((e) => e.json as { type: string; kind?: string; evidence?: string[] }).find((e) => e.type === 'unbalance_found')!;
     expect(unb.kind).toBe('static');
     expect(unb.evidence!.length).toBeGreaterThan(0);

@@ -62,8 +62,14 @@ export interface AdvisoryOptions {
   readonly emit: (event: AgentEvent) => void;
   readonly store: LatchStore;
   readonly log: Logger;
-  /** Wall clock, ms: event times and the stall check. */
+  /** Wall clock, ms: the stall check (a stalled source stops the sample clock too). */
   readonly now?: () => number;
+  /**
+   * Time of the measurements, ms: stamped on events and on the saved state, so the advisory's
+   * events sit on the same time line as the watcher's (they differ when a recording or the
+   * simulator runs faster than real time). Default: `now`.
+   */
+  readonly measuredNow?: () => number;
   readonly newId?: () => string;
   /** Period of the stall check and output retry, ms (default 1000; 0 = call tick() yourself). */
   readonly tickMs?: number;
@@ -85,6 +91,7 @@ export class SafeStopAdvisory {
   private readonly store: LatchStore;
   private readonly log: Logger;
   private readonly now: () => number;
+  private readonly measuredNow: () => number;
   private readonly newId: () => string;
 
   private relay: DigitalOutput | null = null;
@@ -119,6 +126,7 @@ export class SafeStopAdvisory {
     this.store = opts.store;
     this.log = opts.log;
     this.now = opts.now ?? Date.now;
+    this.measuredNow = opts.measuredNow ?? this.now;
     this.newId = opts.newId ?? randomUUID;
   }
 
@@ -139,7 +147,7 @@ export class SafeStopAdvisory {
     }
     const saved = await opts.store.load();
     let note = '';
-    a.since = new Date(a.now()).toISOString();
+    a.since = new Date(a.measuredNow()).toISOString();
     if (saved && 'problem' in saved) {
       note = `; the saved advisory state could not be read (${saved.problem}), starting as normal`;
     } else if (saved && saved.state !== 'normal') {
@@ -284,7 +292,7 @@ export class SafeStopAdvisory {
 
   private setState(next: AdvisoryState): void {
     this.st = next;
-    this.since = new Date(this.now()).toISOString();
+    this.since = new Date(this.measuredNow()).toISOString();
     const rec: LatchRecord = { version: 1, state: next, since_ts: this.since, bearing: this.bearing, channels: [...this.channels] };
     this.saving = this.saving.then(() =>
       this.store.save(rec).then(
@@ -324,7 +332,7 @@ export class SafeStopAdvisory {
   private event(type: AdvisoryEventType, severity: AgentEvent['severity'], message: string, extra: Record<string, unknown> = {}): void {
     this.emitEvent({
       id: this.newId(),
-      ts: new Date(this.now()).toISOString(),
+      ts: new Date(this.measuredNow()).toISOString(),
       asset: this.asset,
       type,
       severity,

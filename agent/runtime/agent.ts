@@ -152,6 +152,8 @@ export class Agent {
         log,
         // The stall watchdog needs the wall clock: a stalled source stops the sample clock too.
         now: () => this.o.clock.now(),
+        // Events carry the time of the measurement that caused them, as the watcher's do.
+        measuredNow: () => this.dataClock.now(),
       });
       h.acknowledgeAdvisory = (a) => ({ ...this.advisory!.acknowledge(`mqtt: ${a.by}`) });
     }

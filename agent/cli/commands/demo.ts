@@ -42,7 +42,7 @@ async function listenFree(server: Server, preferred: number): Promise<number> {
 /** Day and time of the scenario for an event, e.g. "day 5 14:23". */
 function scenarioTime(ts: string, startMs: number): string {
   const s = (Date.parse(ts) - startMs) / 1000;
-  // Events timed by the wall clock (the advisory's own) are not on the scenario's calendar.
+  // Events not caused by a measurement (the plant link's own notices) are timed by the wall clock.
   if (s < 0 || s > 30 * 86400) return 'now';
   const day = Math.floor(s / 86400);
   const h = Math.floor((s % 86400) / 3600);
