@@ -37,6 +37,7 @@ describe('config loading', () => {
     const msg = (err as UserError).message;
     expect(msg).toContain('machine.group');
     expect(msg).toContain('found 3');
+    expect(msg).toMatch(/machine\.group: .*expected one of 1\|2/);
     expect(msg).toContain('sensors[0].direction');
     expect(msg).toContain('found "sideways"');
   });

@@ -21,7 +21,7 @@ export const machineSchema = z
   .object({
     id: assetId.describe('Asset id, used in events and MQTT topics.'),
     name: z.string().optional().describe('Free-text name shown to people.'),
-    group: z.union([z.literal(1), z.literal(2)]).describe('ISO 20816-3 machine group: 1 (over 300 kW) or 2 (15-300 kW).'),
+    group: z.literal([1, 2]).describe('ISO 20816-3 machine group: 1 (over 300 kW) or 2 (15-300 kW).'),
     support: z.enum(['rigid', 'flexible']).describe('ISO 20816-3 support class.'),
     rated_rpm: z.number().positive().max(60000).optional().describe('Rated running speed, r/min. Sets the spectrum resolution and the speed checks.'),
     blades: z.number().int().min(2).max(64).optional().describe('Impeller blade count; adds the blade-pass order to the order vectors.'),
