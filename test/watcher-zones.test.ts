@@ -135,6 +135,18 @@ describe('hysteresis and on-delay (common practice: no chatter at a boundary)', 
     expect(d.update('D', 0, 10)).toBeNull();
     expect(d.update('D', 10, 20)).toEqual({ from: 'C', to: 'D' });
   });
+
+  it('at the defaults (2 s delay, windows of whole revolutions, so at least 2 s) one window confirms; a delay above the window length needs two that agree', () => {
+    const w = demoConfig().watcher;
+    expect(w).toMatchObject({ on_delay_s: 2, window_s: 2 });
+    const one = new OnDelay<Zone>(w.on_delay_s, 'B');
+    expect(one.update('C', 0, 2.08)).toEqual({ from: 'B', to: 'C' });
+    const two = new OnDelay<Zone>(4, 'B');
+    expect(two.update('C', 0, 2.08)).toBeNull();
+    expect(two.update('B', 2.08, 4.16)).toBeNull(); // the second window disagrees: nothing reported
+    expect(two.update('C', 4.16, 6.24)).toBeNull();
+    expect(two.update('C', 6.24, 8.32)).toEqual({ from: 'B', to: 'C' });
+  });
 });
 
 describe('start-up and coast-down', () => {

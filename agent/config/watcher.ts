@@ -51,7 +51,7 @@ export const watcherSchema = z
       .default(true)
       .describe('Once a baseline exists, alarm at baseline + 0.25 x (B/C), capped at 1.25 x (B/C) (ISO 20816-3 practice). Without a baseline the alarm sits at the B/C boundary.'),
     hysteresis_share: z.number().min(0).max(0.5).default(0.05).describe('A zone is left downwards only once the value is this share below the boundary.'),
-    on_delay_s: z.number().min(0).max(3600).default(2).describe('A new zone, alarm, verdict or sensor state must hold this long (seconds of measured data) before it is reported. Machinery-protection practice uses about 1-3 s (API 670, from memory); with 2 s windows an event follows a step change within about 4 s.'),
+    on_delay_s: z.number().min(0).max(3600).default(2).describe('A new zone, alarm, verdict or sensor state must hold this long (seconds of measured data) before it is reported. Timed from the start of the first window that showed it, so with 2 s windows the default confirms on one window (about 50 revolutions); set it above window_s to need two windows that agree. Machinery-protection practice uses about 1-3 s (API 670, from memory).'),
     window_s: z.number().min(1).max(600).default(2).describe('Length of one analysis window for the live agent, seconds (about 50 revolutions at 1485 r/min).'),
     min_speed_share: z
       .number()
