@@ -1,20 +1,35 @@
 import { describe, expect, it } from 'vitest';
-import { copyFileSync, existsSync, mkdtempSync, writeFileSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { defaultLastGoodPath, loadGuardedConfig } from '../agent/runtime/config-guard.js';
+import { defaultLastGoodPath, fallbackConfig, keepLastGood, loadGuardedConfig } from '../agent/runtime/config-guard.js';
+import { UserError } from '../agent/errors.js';
 
 describe('a bad config on the board', () => {
   const dir = mkdtempSync(join(tmpdir(), 'tw-guard-'));
   const cfg = join(dir, 'turnwise.yaml');
   const lastGood = join(dir, 'state', 'last-good-config.yaml');
 
-  it('keeps a copy of the last config that loaded', () => {
+  it('loading keeps no copy; a config becomes last good only when the agent has measured with it (keepLastGood)', () => {
     copyFileSync('config/example.yaml', cfg);
     const g = loadGuardedConfig(cfg, lastGood);
     expect(g.rejected).toBeUndefined();
     expect(g.from).toBe(cfg);
-    expect(existsSync(lastGood)).toBe(true);
+    expect(existsSync(lastGood)).toBe(false);
+    keepLastGood(cfg, lastGood, (e) => {
+      throw e;
+    });
+    expect(readFileSync(lastGood, 'utf8')).toBe(readFileSync(cfg, 'utf8'));
+    // a copy that cannot be kept is reported, never thrown
+    const errors: Error[] = [];
+    keepLastGood(join(dir, 'missing.yaml'), lastGood, (e) => errors.push(e));
+    expect(errors).toHaveLength(1);
+  });
+
+  it('does not fall back to a last good copy that is the failing config itself', () => {
+    const why = new UserError(cfg, 'failed at start-up', 'fix it');
+    expect(fallbackConfig(cfg, lastGood, why)).toBeNull(); // same text as the copy
+    expect(fallbackConfig(cfg, join(dir, 'none.yaml'), why)).toBeNull();
   });
 
   it('runs on the last good copy and says why when the new one is broken', () => {

@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { mkdtempSync, readdirSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { freePort, plainBroker } from './support/mosquitto.js';
@@ -82,5 +82,36 @@ logging: {level: warn}
     expect(r3.code).toBe(2);
     expectNoStack(r3.stderr);
     expect(r3.stderr).toMatch(/machine\.group/);
+  });
+
+  it('refuses a config that loads but cannot start the agent: back to the last good one, which it never overwrites', async () => {
+    const prefix = `test/${Math.random().toString(16).slice(2)}`;
+    const state = join(dir, 'state3');
+    const cfgFile = join(dir, 'fan3.yaml');
+    const lastGood = join(dir, 'lg3.yaml');
+    const good = config(broker.url, prefix, state);
+    writeFileSync(cfgFile, good);
+    expect(runCli(['run', '--config', cfgFile, '--last-good', lastGood]).code).toBe(0);
+    expect(readFileSync(lastGood, 'utf8')).toBe(good);
+    rmSync(state, { recursive: true }); // a fresh watcher, so the fallback run reports the zones again
+    // Valid YAML and schema, but the recording it names does not exist: the agent cannot measure.
+    const sub = await TestSubscriber.open(broker.url, [`${prefix}/+/event/#`]);
+    writeFileSync(cfgFile, good.replace('file: rec.wav', 'file: no-such-recording.wav'));
+    const r = runCli(['run', '--config', cfgFile, '--last-good', lastGood]);
+    expectNoStack(r.stderr);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/config rejected, monitoring continues on the last good config: .*no-such-recording\.wav/);
+    await sub.waitFor((m) => m.some((x) => x.topic.endsWith('/event/config_rejected')), 10_000, 'config_rejected');
+    const rejected = sub.messages.find((x) => x.topic.endsWith('/event/config_rejected'))!.json as { severity: string; error: string };
+    expect(rejected).toMatchObject({ severity: 'alarm', error: expect.stringMatching(/no-such-recording\.wav/) });
+    // It measured on the last good config (the recording it names), and the failing config was not kept.
+    await sub.waitFor((m) => m.some((x) => x.topic.endsWith('/event/zone_changed')), 10_000, 'zone events from the fallback run');
+    expect(readFileSync(lastGood, 'utf8')).toBe(good);
+    await sub.close();
+    // Without a different last good copy the start-up error is the answer, as a clear message.
+    const r2 = runCli(['run', '--config', cfgFile, '--last-good', join(dir, 'none3.yaml')]);
+    expect(r2.code).toBe(2);
+    expectNoStack(r2.stderr);
+    expect(r2.stderr).toMatch(/no-such-recording\.wav/);
   });
 });

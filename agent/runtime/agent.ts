@@ -141,41 +141,47 @@ export class Agent {
       });
       for (const e of this.early.splice(0)) void this.link.queueEvent(e);
     }
-    if (cfg.advisory) {
-      if (!this.o.gpio) throw new Error('advisory configured but no GPIO lines were given');
-      this.advisory = await SafeStopAdvisory.start({
-        settings: advisorySettings(cfg.advisory, cfg.sensors),
-        gpio: this.o.gpio,
-        asset: cfg.machine.id,
-        emit: (e) => this.emit(e),
-        store: new LatchFile(join(cfg.state_dir, 'advisory.json')),
-        log,
-        // The stall watchdog needs the wall clock: a stalled source stops the sample clock too.
-        now: () => this.o.clock.now(),
-        // Events carry the time of the measurement that caused them, as the watcher's do.
-        measuredNow: () => this.dataClock.now(),
-      });
-      h.acknowledgeAdvisory = (a) => ({ ...this.advisory!.acknowledge(`mqtt: ${a.by}`) });
-    }
-    const w = cfg.watcher;
-    this.runtime = new AgentRuntime({
-      config: cfg,
-      source: this.o.source,
-      clock: this.o.clock,
-      logger: log,
-      windowSeconds: w.window_s,
-      // The page and the live topic update at least once a second.
-      liveSeconds: 0.5,
-      boardTimesTach: this.o.boardTimesTach,
-      startMs: this.o.startMs,
-      timeScale: this.o.timeScale,
-      windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
-      liveConsumers: [{ onLive: (f, at) => this.onLive(f, at) }, ...(this.o.liveConsumers ?? [])],
-    });
-    this.o.onStarted?.();
     let summary: RunSummary;
     try {
+      if (cfg.advisory) {
+        if (!this.o.gpio) throw new Error('advisory configured but no GPIO lines were given');
+        this.advisory = await SafeStopAdvisory.start({
+          settings: advisorySettings(cfg.advisory, cfg.sensors),
+          gpio: this.o.gpio,
+          asset: cfg.machine.id,
+          emit: (e) => this.emit(e),
+          store: new LatchFile(join(cfg.state_dir, 'advisory.json')),
+          log,
+          // The stall watchdog needs the wall clock: a stalled source stops the sample clock too.
+          now: () => this.o.clock.now(),
+          // Events carry the time of the measurement that caused them, as the watcher's do.
+          measuredNow: () => this.dataClock.now(),
+        });
+        h.acknowledgeAdvisory = (a) => ({ ...this.advisory!.acknowledge(`mqtt: ${a.by}`) });
+      }
+      const w = cfg.watcher;
+      this.runtime = new AgentRuntime({
+        config: cfg,
+        source: this.o.source,
+        clock: this.o.clock,
+        logger: log,
+        windowSeconds: w.window_s,
+        // The page and the live topic update at least once a second.
+        liveSeconds: 0.5,
+        boardTimesTach: this.o.boardTimesTach,
+        startMs: this.o.startMs,
+        timeScale: this.o.timeScale,
+        windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
+        liveConsumers: [{ onLive: (f, at) => this.onLive(f, at) }, ...(this.o.liveConsumers ?? [])],
+      });
+      this.o.onStarted?.();
       summary = await this.runtime.run();
+    } catch (e) {
+      // Failed to start or to go on: let go of the broker connection so a retry (or the fallback
+      // to the last good config) does not meet this one under the same client id.
+      await this.link?.close();
+      this.link = null;
+      throw e;
     } finally {
       await this.advisory?.close();
     }

@@ -8,12 +8,15 @@ import { isUserError, UserError } from '../errors.js';
  * What happens when the config on the board is broken (someone edited /etc/turnwise/turnwise.yaml
  * and made a mistake): the fan must not be left unwatched, and the mistake must be loud.
  *
- * - A config that loads is copied to the last-good file (atomically, fsynced) and used.
- * - A config that does not load, when a last-good copy exists: the agent runs on the last-good copy,
- *   logs the error at error priority (journal) and publishes a `config_rejected` alarm event, so the
- *   plant sees both that monitoring continues and that the new config was refused.
- * - No last-good copy (first start): the agent exits with the error; systemd restarts it and the
- *   journal shows the error at every attempt.
+ * - A config is "good" once the agent has measured with it: at its first analysis window the file
+ *   is copied to the last-good file (atomically, fsynced; `keepLastGood`). A config that loads but
+ *   cannot start the agent (a token file missing, a recording not found) never becomes last-good.
+ * - A config that does not load, or that loads but fails at start-up before the first window, when
+ *   a last-good copy exists that differs from it: the agent runs on the last-good copy, logs the
+ *   error at error priority (journal) and publishes a `config_rejected` alarm event, so the plant
+ *   sees both that monitoring continues and that the new config was refused.
+ * - No last-good copy (first start), or the last-good copy is the failing config itself: the agent
+ *   exits with the error; systemd restarts it and the journal shows the error at every attempt.
  */
 export interface GuardedConfig {
   readonly config: Config;
@@ -48,23 +51,49 @@ function writeAtomic(file: string, text: string): void {
   }
 }
 
+/** Loads `file`, or falls back to the last-good copy when `file` does not load (see above). */
 export function loadGuardedConfig(file: string, lastGood: string): GuardedConfig {
   try {
-    const config = loadConfig(file);
-    try {
-      writeAtomic(lastGood, readFileSync(file, 'utf8'));
-    } catch {
-      // Keeping the copy is a convenience; failing to keep it must not stop monitoring.
-    }
-    return { config, from: file };
+    return { config: loadConfig(file), from: file };
   } catch (e) {
     if (!isUserError(e)) throw e;
-    let config: Config;
-    try {
-      config = loadConfig(lastGood);
-    } catch {
-      throw e; // no usable last-good copy: the original error is what the user must see
-    }
-    return { config, from: lastGood, rejected: e };
+    const fallback = fallbackConfig(file, lastGood, e);
+    if (!fallback) throw e; // no usable last-good copy: the original error is what the user must see
+    return fallback;
+  }
+}
+
+/**
+ * The last-good copy to run on after `file` failed with `error`, or null when there is none, it
+ * does not load, or it is the same text as `file` (falling back would fail the same way).
+ */
+export function fallbackConfig(file: string, lastGood: string, error: UserError): GuardedConfig | null {
+  let text: string;
+  try {
+    text = readFileSync(lastGood, 'utf8');
+  } catch {
+    return null;
+  }
+  try {
+    if (readFileSync(file, 'utf8') === text) return null;
+  } catch {
+    // the given file is unreadable: the copy is different by definition
+  }
+  try {
+    return { config: loadConfig(lastGood), from: lastGood, rejected: error };
+  } catch {
+    return null;
+  }
+}
+
+/**
+ * Keeps `file` as the last-good config: call it once the agent has measured with it. Failing to
+ * keep the copy is reported to `onError` and never stops monitoring.
+ */
+export function keepLastGood(file: string, lastGood: string, onError: (e: Error) => void): void {
+  try {
+    writeAtomic(lastGood, readFileSync(file, 'utf8'));
+  } catch (e) {
+    onError(e as Error);
   }
 }

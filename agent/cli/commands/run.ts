@@ -2,10 +2,10 @@ import { randomUUID } from 'node:crypto';
 import { createSource } from '../../../drivers/create-source.js';
 import type { GpioLines } from '../../../drivers/gpio/types.js';
 import { systemClock } from '../../clock.js';
-import { UserError } from '../../errors.js';
+import { isUserError, UserError } from '../../errors.js';
 import { LiveServer } from '../../live/server.js';
 import { createPinoLogger, pinoOptionsFromConfig } from '../../logging/pino-logger.js';
-import { defaultLastGoodPath, loadGuardedConfig } from '../../runtime/config-guard.js';
+import { defaultLastGoodPath, fallbackConfig, keepLastGood, loadGuardedConfig, type GuardedConfig } from '../../runtime/config-guard.js';
 import { Agent } from '../../runtime/agent.js';
 import { createServiceNotifier } from '../../service/systemd-notifier.js';
 import { WatchdogKeeper } from '../../service/watchdog.js';
@@ -17,6 +17,18 @@ const usage = 'turnwise run --config CFG.yaml [--drain-timeout-s S] [--last-good
 
 /** Seconds without a closed window after which the service watchdog stops being fed. */
 const STALE_WINDOW_S = 120;
+
+interface RunPlan {
+  readonly file: string;
+  readonly guarded: GuardedConfig;
+  readonly lastGood: string;
+  readonly drainS: number;
+}
+
+/** Signal handling for the whole process: SIGTERM/SIGINT stop whichever agent is running. */
+interface StopSwitch {
+  current: ((sig: string) => void) | null;
+}
 
 export const runCommand: Command = {
   name: 'run',
@@ -32,26 +44,59 @@ export const runCommand: Command = {
     const drainS = values['drain-timeout-s'] === undefined ? 5 : Number(values['drain-timeout-s']);
     if (!(drainS >= 0)) throw new UserError('--drain-timeout-s', `expects seconds (0 or more), got "${values['drain-timeout-s']}"`, 'e.g. --drain-timeout-s 5');
     const file = values.config;
-    const guarded = loadGuardedConfig(file, values['last-good'] ?? defaultLastGoodPath());
-    const cfg = guarded.config;
-    const log = createPinoLogger({ ...pinoOptionsFromConfig(cfg.logging), base: { asset: cfg.machine.id } });
-    if (guarded.rejected) {
-      log.error({ config: file, running_on: guarded.from }, `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`);
+    const lastGood = values['last-good'] ?? defaultLastGoodPath();
+    const guarded = loadGuardedConfig(file, lastGood);
+    const stopSwitch: StopSwitch = { current: null };
+    let stopRequested: string | null = null;
+    const onSignal = (sig: string) => {
+      stopRequested = sig;
+      stopSwitch.current?.(sig);
+    };
+    process.once('SIGTERM', () => onSignal('SIGTERM'));
+    process.once('SIGINT', () => onSignal('SIGINT'));
+    const progress = { measured: false };
+    try {
+      return await runAgent({ file, guarded, lastGood, drainS }, stopSwitch, progress);
+    } catch (e) {
+      // A config that loads but cannot start the agent (before its first window) is refused like
+      // one that does not load: back to the last good copy, loudly.
+      if (!isUserError(e) || progress.measured || guarded.rejected || stopRequested) throw e;
+      const fallback = fallbackConfig(file, lastGood, e);
+      if (!fallback) throw e;
+      return await runAgent({ file, guarded: fallback, lastGood, drainS }, stopSwitch, { measured: false });
     }
-    const notifier = createServiceNotifier({ logger: log });
+  },
+};
+
+async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measured: boolean }): Promise<number> {
+  const { file, guarded, drainS } = plan;
+  const cfg = guarded.config;
+  const log = createPinoLogger({ ...pinoOptionsFromConfig(cfg.logging), base: { asset: cfg.machine.id } });
+  if (guarded.rejected) {
+    log.error({ config: file, running_on: guarded.from }, `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`);
+  }
+  const notifier = createServiceNotifier({ logger: log });
+  let keeper: WatchdogKeeper | null = null;
+  let live: LiveServer | null = null;
+  try {
     let gpio: GpioLines | undefined;
     if (cfg.advisory) {
       const { OnoffLines } = await import('../../../drivers/gpio/onoff-lines.js');
       gpio = await OnoffLines.open({ log });
     }
-    // Relative paths (recording, scenario) are read beside the file the user gave.
+    // Relative paths (recording, scenario) are read beside the file the user gave, also when
+    // running on the last-good copy (a copy of an earlier version of that file).
     const { source, boardTimesTach } = createSource(cfg, file, { log });
     let lastWindowAt = Date.now();
     let agent: Agent;
-    let live: LiveServer | null = null;
     if (cfg.live) {
       live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() });
     }
+    const firstWindow = () => {
+      progress.measured = true;
+      if (guarded.from !== file) return;
+      keepLastGood(file, plan.lastGood, (e) => log.warn({ last_good: plan.lastGood }, `cannot keep a copy of the config as the last good one (${e.message}); a broken config later would find no fallback`));
+    };
     agent = new Agent({
       config: cfg,
       source,
@@ -64,6 +109,7 @@ export const runCommand: Command = {
         {
           onWindow: (w, at) => {
             lastWindowAt = Date.now();
+            if (!progress.measured) firstWindow();
             if (live) {
               live.onWindow(w, at);
               if (agent.status) live.onWatch(agent.status);
@@ -86,28 +132,25 @@ export const runCommand: Command = {
         error: guarded.rejected.message,
       });
     }
-    const keeper = new WatchdogKeeper(notifier, systemTimers, log, () => ((Date.now() - lastWindowAt) / 1000 > STALE_WINDOW_S ? `no measurement window for over ${STALE_WINDOW_S} s` : null));
+    keeper = new WatchdogKeeper(notifier, systemTimers, log, () => ((Date.now() - lastWindowAt) / 1000 > STALE_WINDOW_S ? `no measurement window for over ${STALE_WINDOW_S} s` : null));
     keeper.start();
-    const stop = (sig: string) => {
+    stopSwitch.current = (sig: string) => {
       log.info({ signal: sig }, 'stopping');
       notifier.stopping(`stopping on ${sig}`);
       agent.stop();
     };
-    process.once('SIGTERM', () => stop('SIGTERM'));
-    process.once('SIGINT', () => stop('SIGINT'));
-    try {
-      if (live) {
-        const { url } = await live.start();
-        log.info({ url }, 'live page ready');
-        process.stderr.write(`turnwise run: live page at ${url}\n`);
-      }
-      const sum = await agent.run(drainS * 1000);
-      log.info({ windows: sum.windows, events: sum.events, drained: sum.drained, gaps: sum.gaps }, 'run ended');
-      return sum.lostInMemory > 0 ? 1 : 0;
-    } finally {
-      keeper.stop();
-      await live?.stop();
-      await notifier.close();
+    if (live) {
+      const { url } = await live.start();
+      log.info({ url }, 'live page ready');
+      process.stderr.write(`turnwise run: live page at ${url}\n`);
     }
-  },
-};
+    const sum = await agent.run(drainS * 1000);
+    log.info({ windows: sum.windows, events: sum.events, drained: sum.drained, gaps: sum.gaps }, 'run ended');
+    return sum.lostInMemory > 0 ? 1 : 0;
+  } finally {
+    stopSwitch.current = null;
+    keeper?.stop();
+    await live?.stop();
+    await notifier.close();
+  }
+}
