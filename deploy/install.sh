@@ -358,7 +358,9 @@ install_system_files() {
   if [ "$NODE" != /usr/bin/node ]; then
     node_conf=$(tmpfile)
     { printf '# Written by install.sh: Node.js is at %s\n[Service]\nExecStart=\n' "$NODE"
-      sed -n "s#^ExecStart=/usr/bin/node #ExecStart=$NODE #p" "$dir/deploy/turnwise.service"; } >"$node_conf"
+      sed -n "s#^ExecStart=/usr/bin/node #ExecStart=$NODE #p" "$dir/deploy/turnwise.service"
+      printf 'ExecStopPost=\n'
+      sed -n "s#^ExecStopPost=-/usr/bin/node #ExecStopPost=-$NODE #p" "$dir/deploy/turnwise.service"; } >"$node_conf"
     put_file "$node_conf" "$UNIT_D/10-node.conf" 0644
   elif [ -e "$ROOT$UNIT_D/10-node.conf" ]; then
     remove "$UNIT_D/10-node.conf"

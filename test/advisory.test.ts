@@ -1,4 +1,4 @@
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
@@ -11,7 +11,11 @@ import { loadConfig } from '../agent/config/load.js';
 import { UserError } from '../agent/errors.js';
 import type { AgentEvent } from '../agent/events.js';
 import { CaptureLog } from './support/capture-log.js';
+import { expectNoStack, runCli } from './support/cli.js';
 import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
+import { OnoffLines, type GpioClass } from '../drivers/gpio/onoff-lines.js';
+import type { GpioChip } from '../drivers/gpio/sysfs-chips.js';
+import { releaseAdvisoryOutputs } from '../agent/advisory/release.js';
 import { assertMatches } from './support/payload-schemas.js';
 
 const RELAY = 17;
@@ -225,5 +229,84 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     expect(() => advisorySettings(cfg, loadConfig('config/example.yaml').sensors)).toThrow(UserError);
     expect(() => advisorySettings(cfg, loadConfig('config/example.yaml').sensors)).toThrow(/advisory\.sensors\[1\]: no sensor has id "DE-X"/);
     expect(advisorySchema.safeParse({ zone: 'D' }).success).toBe(false); // neither relay nor lamp
+  });
+});
+
+/**
+ * sysfs GPIO as the next process sees it: pin levels outlive the process that set them. A stand-in
+ * for onoff's Gpio class over one shared table of pins, so "the agent died" and "systemd ran
+ * outputs-off afterwards" can be played in one test.
+ */
+function sysfsPins() {
+  const pins = new Map<number, 0 | 1>();
+  const Gpio = class {
+    constructor(
+      private readonly n: number,
+      direction: string,
+    ) {
+      if (direction === 'high') pins.set(n, 1);
+      else if (direction === 'low') pins.set(n, 0);
+    }
+    read(): Promise<0 | 1> {
+      return Promise.resolve(pins.get(this.n) ?? 0);
+    }
+    write(v: 0 | 1): Promise<void> {
+      pins.set(this.n, v);
+      return Promise.resolve();
+    }
+    watch(): void {}
+    unwatch(): void {}
+    unexport(): void {
+      pins.delete(this.n); // handed back to the kernel: the level is no longer defined
+    }
+  };
+  return { pins, Gpio: Gpio as unknown as GpioClass };
+}
+
+describe('outputs dropped after the agent died (systemd ExecStopPost: turnwise outputs-off)', () => {
+  const PI4: GpioChip = { name: 'gpiochip512', base: 512, label: 'pinctrl-bcm2711', ngpio: 58 };
+  const s = settings({ lamp: { line: LAMP, activeLow: true } });
+
+  it('a killed agent leaves the relay energised; outputs-off drops relay and lamp, honouring active-low', async () => {
+    const { pins, Gpio } = sysfsPins();
+    const adv = await SafeStopAdvisory.start({ settings: s, gpio: new OnoffLines(Gpio, PI4, new CaptureLog()), asset: 'kessrow-id3a', emit: () => {}, store: latchFile(), log: new CaptureLog(), tickMs: 0 });
+    await adv.settled();
+    expect(adv.energised()).toBe(true);
+    expect(pins.get(512 + RELAY)).toBe(1); // all well: relay energised (fail-safe)
+    expect(pins.get(512 + LAMP)).toBe(0); // active-low lamp lit: pin low
+    // kill -9: no close(), the pins keep their levels
+    const dropped = await releaseAdvisoryOutputs(new OnoffLines(Gpio, PI4, new CaptureLog()), s);
+    expect(dropped).toEqual(['advisory relay', 'advisory lamp']);
+    expect(pins.get(512 + RELAY)).toBe(0);
+    expect(pins.get(512 + LAMP)).toBe(1); // active-low off: pin high
+  });
+
+  it('an orderly stop drops the outputs itself and leaves them driven, not floating', async () => {
+    const { pins, Gpio } = sysfsPins();
+    const adv = await SafeStopAdvisory.start({ settings: s, gpio: new OnoffLines(Gpio, PI4, new CaptureLog()), asset: 'kessrow-id3a', emit: () => {}, store: latchFile(), log: new CaptureLog(), tickMs: 0 });
+    await adv.settled();
+    await adv.close();
+    expect(pins.get(512 + RELAY)).toBe(0);
+    expect(pins.get(512 + LAMP)).toBe(1);
+  });
+});
+
+describe('turnwise outputs-off (the command systemd runs after the agent stopped)', () => {
+  it('says there is nothing to drop when the config has no advisory', () => {
+    const r = runCli(['outputs-off', '--config', 'config/example.yaml', '--last-good', join(mkdtempSync(join(tmpdir(), 'tw-off-')), 'none.yaml')]);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/no advisory outputs in config\/example\.yaml: nothing to drop/);
+  });
+
+  it.skipIf(existsSync('/sys/class/gpio'))('on a machine without sysfs GPIO: exit 2 and what to check, no stack trace', () => {
+    const d = mkdtempSync(join(tmpdir(), 'tw-off-'));
+    dirs.push(d);
+    const cfg = join(d, 'fan.yaml');
+    writeFileSync(cfg, `${readFileSync('config/example.yaml', 'utf8')}\nadvisory: {relay: {line: ${RELAY}}, lamp: {line: ${LAMP}}}\n`);
+    const r = runCli(['outputs-off', '--config', cfg, '--last-good', join(d, 'none.yaml')]);
+    expectNoStack(r.stderr);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/\/sys\/class\/gpio: no GPIO chips found/);
+    expect(r.stderr).toMatch(/CONFIG_GPIO_SYSFS/);
   });
 });

@@ -67,7 +67,7 @@ describe('systemd unit deploy/turnwise.service', () => {
   it(needs(SYSTEMD_ANALYZE, 'systemd', 'passes `systemd-analyze verify` without a single warning'), { skip: !SYSTEMD_ANALYZE }, () => {
     const dir = tmp('tw-unit-');
     // verify checks that ExecStart's binary exists: point it at this machine's node if needed.
-    const text = existsSync('/usr/bin/node') ? unit : unit.replace('/usr/bin/node', process.execPath);
+    const text = existsSync('/usr/bin/node') ? unit : unit.replaceAll('/usr/bin/node', process.execPath);
     writeFileSync(join(dir, 'turnwise.service'), text);
     const r = spawnSync(SYSTEMD_ANALYZE!, ['verify', join(dir, 'turnwise.service')], { encoding: 'utf8' });
     const mine = (r.stderr + r.stdout).split('\n').filter((l) => l.includes('turnwise.service'));
@@ -102,6 +102,9 @@ describe('systemd unit deploy/turnwise.service', () => {
     expect(existsSync(join(REPO, 'dist/agent/cli/main.js'))).toBe(true);
     expect(readFileSync(INSTALL, 'utf8')).toContain('"$OPT/current/dist/agent/cli/main.js"');
     expect(exec.slice(2)).toEqual(['run', '--config', '/etc/turnwise/turnwise.yaml']);
+    // After every stop, however it happened, the advisory outputs are dropped from outside, with the
+    // same binary and config (a GPIO line keeps its level when the process that drove it dies).
+    expect(one('ExecStopPost')!.split(' ')).toEqual(['-/usr/bin/node', '/opt/turnwise/current/dist/agent/cli/main.js', 'outputs-off', '--config', '/etc/turnwise/turnwise.yaml']);
     // V8's heap limit sits below the cgroup's, so the heap is collected before the kernel kills.
     const heapMb = Number(/--max-old-space-size=(\d+)/.exec(unit)![1]);
     expect(heapMb).toBeLessThan(Number.parseInt(one('MemoryHigh')!, 10));
@@ -260,6 +263,7 @@ if (cmd === 'check-config') {
       expect(readFileSync(join(root, 'etc/systemd/system/turnwise.service'), 'utf8')).toBe(readFileSync(UNIT_FILE, 'utf8'));
       const dropIn = readFileSync(join(root, 'etc/systemd/system/turnwise.service.d/10-node.conf'), 'utf8');
       expect(dropIn).toContain(`[Service]\nExecStart=\nExecStart=${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js run --config /etc/turnwise/turnwise.yaml\n`);
+      expect(dropIn).toContain(`ExecStopPost=\nExecStopPost=-${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js outputs-off --config /etc/turnwise/turnwise.yaml\n`);
       const rules = readFileSync(join(root, 'etc/udev/rules.d/70-turnwise-daq.rules'), 'utf8');
       expect(rules).toContain('ATTRS{idVendor}=="2e8a", ATTRS{idProduct}=="000a", ENV{ID_MM_DEVICE_IGNORE}="1"');
       expect(readFileSync(join(root, 'etc/udev/rules.d/99-turnwise-gpio.rules'), 'utf8')).toBe(readFileSync(GPIO_RULES, 'utf8'));

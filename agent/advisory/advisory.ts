@@ -15,8 +15,10 @@ import { countVotes, type Vote, type VoteSettings } from './vote.js';
  * machinery protection system, and wiring it into a trip circuit is for the plant's qualified
  * engineers under local codes and licensed practice.
  *
- * Fail-safe: both outputs are energised while all is well, so a dead agent, a lost board or a
- * stopped process drops them. Raised when `minChannels` OK channels of one bearing sit at or above
+ * Fail-safe: both outputs are energised while all is well. An orderly stop, a stall or a lost board
+ * drops them here; after the agent is killed or crashes, systemd drops them from outside
+ * (release.ts, `turnwise outputs-off`, ExecStopPost), since a GPIO line keeps its level when the
+ * process that drove it dies. Raised when `minChannels` OK channels of one bearing sit at or above
  * the configured zone for `holdMs` (channels that are not OK never vote); latched until acknowledged
  * by the local button or an authorised command; the latch survives a restart. Every change is an event.
  *
@@ -245,7 +247,7 @@ export class SafeStopAdvisory {
     await this.saving;
   }
 
-  /** Stops: de-energises the outputs (as a dead agent would) and releases the lines. */
+  /** Stops: de-energises the outputs and lets go of the lines (left driven, see DigitalOutput.close). */
   async close(): Promise<void> {
     if (this.timer) clearInterval(this.timer);
     this.unwatch?.();

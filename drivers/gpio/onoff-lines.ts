@@ -90,7 +90,9 @@ export class OnoffLines implements GpioLines {
     return {
       write: (on) => g.write(level(on)),
       read: async () => ((await g.read()) === 1) !== activeLow,
-      close: async () => g.unexport(),
+      // Not unexported: an unexported line may float (see DigitalOutput.close). The next start
+      // finds it exported and drives it again.
+      close: async () => {},
     };
   }
 

@@ -7,6 +7,10 @@ export interface DigitalOutput {
   /** Drives the line: true = energised / high (after any active-low inversion in the adapter). */
   write(on: boolean): Promise<void>;
   read(): Promise<boolean>;
+  /**
+   * Lets go of the handle. The line stays driven at its last level: a line handed back to the
+   * kernel may float, and a floating relay input is not a defined state.
+   */
   close(): Promise<void>;
 }
 
