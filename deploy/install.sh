@@ -399,6 +399,17 @@ install_system_files() {
   if [ ! -d "$ROOT$ETC" ]; then act install -d -m 0750 "$ROOT$ETC"; fi
   if [ "$(stat -c %U:%G "$ROOT$ETC" 2>/dev/null || true)" != root:turnwise ]; then sys chown root:turnwise "$ROOT$ETC"; fi
   put_file "$dir/config/example.yaml" "$ETC/turnwise.yaml.example" 0644
+  # The live page's first token (operator role), made once and never replaced: the config's live
+  # section names it (README "Live view and balancing workbench"); its holder reads it with
+  # `sudo cat`. Readable by the service user only, as the agent requires of secret files.
+  if [ ! -e "$ROOT$ETC/live-operator-token" ]; then
+    local tok
+    tok=$(tmpfile)
+    head -c 32 /dev/urandom | base64 -w0 | tr '+/' '-_' | tr -d '=' >"$tok"
+    printf '\n' >>"$tok"
+    act install -m 0600 "$tok" "$ROOT$ETC/live-operator-token"
+    sys chown turnwise:turnwise "$ROOT$ETC/live-operator-token"
+  fi
 
   if [ "$(readlink "$ROOT$CLI_LINK" 2>/dev/null || true)" != "$OPT/current/dist/agent/cli/main.js" ]; then
     act mkdir -p "$ROOT${CLI_LINK%/*}"

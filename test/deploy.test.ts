@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
-import { chmodSync, cpSync, existsSync, lstatSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, readlinkSync, symlinkSync, writeFileSync } from 'node:fs';
+import { chmodSync, cpSync, existsSync, lstatSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, readlinkSync, statSync, symlinkSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -248,6 +248,7 @@ if (cmd === 'check-config') {
     // A Node.js that is not /usr/bin/node, to see the drop-in that points the unit at it.
     const otherNodeDir = tmp('tw-node-');
     symlinkSync(process.execPath, join(otherNodeDir, 'node'));
+    let tokenMade = '';
 
     it('installs a release: files, links, unit, rules, no start without a config', () => {
       const r = run(['--root', root, '--from', relA, '--daq-usb-id', '2e8a:000a'], { TURNWISE_NODE: join(otherNodeDir, 'node') });
@@ -269,6 +270,12 @@ if (cmd === 'check-config') {
       expect(readFileSync(join(root, 'etc/udev/rules.d/99-turnwise-gpio.rules'), 'utf8')).toBe(readFileSync(GPIO_RULES, 'utf8'));
       expect(readFileSync(join(root, 'etc/systemd/journald.conf.d/60-turnwise.conf'), 'utf8')).toContain('SystemMaxUse=200M');
       expect(existsSync(join(root, 'etc/turnwise/turnwise.yaml.example'))).toBe(true);
+      // The live page's operator token: random, 43 base64url characters (256 bits), mode 600.
+      const token = join(root, 'etc/turnwise/live-operator-token');
+      expect(readFileSync(token, 'utf8')).toMatch(/^[A-Za-z0-9_-]{43}\n$/);
+      expect(statSync(token).mode & 0o777).toBe(0o600);
+      expect(r.out).toMatch(/^\+ \(not run under --root\) chown turnwise:turnwise .*live-operator-token$/m);
+      tokenMade = readFileSync(token, 'utf8');
       expect(readlinkSync(join(root, 'usr/local/bin/turnwise'))).toBe('/opt/turnwise/current/dist/agent/cli/main.js');
       if (SYSTEMCTL) expect(lstatSync(join(root, 'etc/systemd/system/multi-user.target.wants/turnwise.service')).isSymbolicLink()).toBe(true);
       expect(r.out).toContain('Installed, enabled, not started: there is no config yet.');
@@ -278,6 +285,7 @@ if (cmd === 'check-config') {
     it('changes nothing when run again with the same release (idempotent)', () => {
       const r = run(['--root', root, '--from', relA], { TURNWISE_NODE: join(otherNodeDir, 'node') });
       expect(r.code).toBe(0);
+      expect(readFileSync(join(root, 'etc/turnwise/live-operator-token'), 'utf8')).toBe(tokenMade); // never replaced
       expect(r.out).toMatch(/^release 9\.9\.1-[0-9a-f]{10} is already installed$/m);
       expect(r.out).toContain('current release is already 9.9.1-');
       expect(r.out).toContain('unchanged: /etc/systemd/system/turnwise.service');
