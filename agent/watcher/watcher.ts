@@ -167,11 +167,9 @@ export class Watcher {
     this.reloadCoefficients();
     this.trendCache = this.computeTrend();
     // Records the new start counter. If it cannot be saved, a restart would use the same one again:
-    // this run counts from the clock instead, so its event ids cannot be repeated by the next.
-    if (!this.persist()) {
-      this.run = Math.max(this.run, this.runFromClock());
-      this.persist();
-    }
+    // this run counts from the clock instead, so its event ids cannot be repeated by the next (every
+    // window tries to save it again).
+    if (!this.persist()) this.run = Math.max(this.run, this.runFromClock());
   }
 
   /** A start counter from the clock's whole seconds (far above any ordinary count of starts). */
@@ -364,7 +362,8 @@ export class Watcher {
     } catch (e) {
       const detail = `${key}: ${errorText(e)}`;
       this.problems.set(key, detail);
-      this.burst.report(key, detail, {}, (e as NodeJS.ErrnoException)?.code);
+      const code = (e as NodeJS.ErrnoException)?.code;
+      this.burst.report(key, detail, code ? { error_code: code } : {}, code);
       return false;
     }
     if (this.problems.delete(key)) this.burst.resolved(key, recovered);
