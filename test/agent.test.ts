@@ -1,9 +1,10 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { mkdtempSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ManualClock } from '../agent/clock.js';
 import { validateConfig } from '../agent/config/load.js';
+import type { AgentEvent } from '../agent/events.js';
 import { MemoryLogger } from '../agent/log.js';
 import { Agent } from '../agent/runtime/agent.js';
 import { ArraySource } from './support/array-source.js';
@@ -12,6 +13,7 @@ import { plainBroker } from './support/mosquitto.js';
 import { assertMatches } from './support/payload-schemas.js';
 import { TestSubscriber } from './support/subscriber.js';
 import { synthesize } from './support/synth.js';
+import { fillUp, tryMountTmpfs, unmountTmpfs } from './support/tmpfs.js';
 
 /**
  * The whole agent on a synthesized fan: source -> DSP -> watcher -> outbox/MQTT (real mosquitto)
@@ -95,5 +97,74 @@ describe('turnwise agent end to end', () => {
     expect(live.length).toBeGreaterThan(0);
     for (const m of live) assertMatches('live.v1', m.json);
     await sub.close();
+  });
+});
+
+/**
+ * The agent on a state directory in trouble: no MQTT, no advisory, only the watcher's own files. The
+ * fan runs 40 s in zone D (9 mm/s peak 1x = 6.4 mm/s r.m.s. > C/D 4.5 mm/s, ISO 20816-3 group 2 rigid).
+ */
+describe('turnwise agent on a faulty state directory', () => {
+  const fs = 5120;
+  const t0 = Date.UTC(2026, 11, 2, 6, 0, 0);
+  function agentOn(stateDir: string, log: MemoryLogger, events: AgentEvent[]): Agent {
+    const sig = synthesize({ sampleRate: fs, seconds: 40, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 9, phaseDeg: 40 }], noiseMmS2: 50 }, { orders: [{ order: 1, velPk: 8, phaseDeg: 130 }], noiseMmS2: 50 }], tachChannel: 2 });
+    const config = validateConfig({
+      machine: { id: 'kessrow-id3a', group: 2, support: 'rigid', rated_rpm: 1485 },
+      tach: { channel: 2, trigger_v: 2.5 },
+      sensors: [
+        { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+        { id: 'DE-H', channel: 1, bearing: 'DE', direction: 'horizontal', sensitivity_mv_per_g: 100 },
+      ],
+      state_dir: stateDir,
+      watcher: { window_s: 5, on_delay_s: 5, history: { interval_s: 10 } },
+    });
+    return new Agent({ config, source: new ArraySource(sig, fs, 2048), boardTimesTach: false, clock: new ManualClock(t0), logger: log, startMs: t0, onEvent: (e) => events.push(e) });
+  }
+  const problemWarnings = (log: MemoryLogger, key: string) => log.lines.filter((l) => l.level === 'warn' && l.fields['problem'] === key);
+
+  it('starts on a full state directory (a real 64 KiB tmpfs) and keeps producing windows and events (needs root to mount)', async (ctx) => {
+    const mnt = tryMountTmpfs();
+    if (!mnt) return ctx.skip('cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); test/watcher-live.test.ts covers the same path with EISDIR');
+    try {
+      const stateDir = join(mnt, 'state');
+      mkdirSync(join(stateDir, 'watcher'), { recursive: true });
+      expect(fillUp(mnt).code).toBe('ENOSPC');
+      const log = new MemoryLogger();
+      const events: AgentEvent[] = [];
+      const agent = agentOn(stateDir, log, events); // used to die here: ENOSPC, exit 70
+      const sum = await agent.run();
+      expect(sum.windows).toBe(8);
+      expect(events.map((e) => `${e.type}:${(e['sensor'] as string | undefined) ?? 'machine'}`)).toContain('zone_changed:machine');
+      expect(events.find((e) => e.type === 'zone_changed' && e['scope'] === 'machine')).toMatchObject({ zone: 'D', severity: 'alarm' });
+      expect(agent.status!.warnings.join('\n')).toMatch(/confirmed states not saved: ENOSPC[\s\S]*history not saved: ENOSPC/);
+      // Once per burst, not once per window (8 windows, 3 history points).
+      expect(problemWarnings(log, 'confirmed states not saved')).toHaveLength(1);
+      expect(problemWarnings(log, 'history not saved')).toHaveLength(1);
+      expect(log.lines.filter((l) => l.level === 'warn')).toHaveLength(2);
+      expect(existsSync(join(stateDir, 'watcher', 'state.json'))).toBe(false);
+    } finally {
+      unmountTmpfs(mnt);
+    }
+  });
+
+  it('moves a corrupt state.json aside and runs', async () => {
+    const stateDir = join(mkdtempSync(join(tmpdir(), 'tw-agent-')), 'state');
+    const file = join(stateDir, 'watcher', 'state.json');
+    mkdirSync(join(stateDir, 'watcher'), { recursive: true });
+    writeFileSync(file, 'garbage, not JSON');
+    const log = new MemoryLogger();
+    const events: AgentEvent[] = [];
+    const sum = await agentOn(stateDir, log, events).run(); // used to stop with exit 2
+    expect(sum.windows).toBe(8);
+    const qdir = join(stateDir, 'watcher', 'quarantine');
+    const moved = readdirSync(qdir);
+    expect(moved).toEqual([`state.json.${new Date(t0).toISOString().replace(/[:.]/g, '-')}`]);
+    expect(readFileSync(join(qdir, moved[0]!), 'utf8')).toBe('garbage, not JSON');
+    expect(log.lines.filter((l) => l.level === 'warn').map((l) => l.msg)).toEqual([expect.stringMatching(/state\.json is damaged \(not valid JSON.*moved to .*quarantine.* the watcher starts afresh/)]);
+    expect(events[0]).toMatchObject({ type: 'state_files_quarantined', severity: 'warning', files: [{ file, moved_to: join(qdir, moved[0]!) }] });
+    expect(events.some((e) => e.type === 'zone_changed' && e['zone'] === 'D')).toBe(true);
+    expect(JSON.parse(readFileSync(file, 'utf8'))).toMatchObject({ run: Math.floor(t0 / 1000), machine_zone: 'D' });
+    rmSync(stateDir, { recursive: true, force: true });
   });
 });

@@ -1,4 +1,3 @@
-import { execFileSync } from 'node:child_process';
 import { mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -8,6 +7,7 @@ import type { AgentEvent } from '../agent/events.js';
 import { nodeOutboxFs, type OutboxFs } from '../agent/outbox/fs.js';
 import { Outbox, recordName, type OutboxNotice } from '../agent/outbox/outbox.js';
 import { decodeRecord, encodeRecord } from '../agent/outbox/record.js';
+import { fillUp, tryMountTmpfs, unmountTmpfs } from './support/tmpfs.js';
 
 const dirs: string[] = [];
 function tmp(): string {
@@ -205,39 +205,16 @@ describe('durable outbox on real files', () => {
   });
 });
 
-// A real full filesystem: a 64 KiB tmpfs. Mounting needs root (CAP_SYS_ADMIN); where it is not
-// allowed the test is skipped and the injected-ENOSPC test above covers the same code path.
-function tryMountTmpfs(): string | null {
-  if (process.getuid?.() !== 0) return null;
-  const d = mkdtempSync(join(tmpdir(), 'tw-tmpfs-'));
-  try {
-    execFileSync('mount', ['-t', 'tmpfs', '-o', 'size=64k', 'tmpfs', d], { stdio: 'ignore' });
-    return d;
-  } catch {
-    rmSync(d, { recursive: true, force: true });
-    return null;
-  }
-}
-
 describe('durable outbox on a real full tmpfs', () => {
   it('reports ENOSPC once, keeps accepting events, and recovers by itself when space is freed (needs root to mount)', async (ctx) => {
     const mnt = tryMountTmpfs();
-    if (!mnt) return ctx.skip('cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN)');
+    if (!mnt) return ctx.skip('cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the injected-ENOSPC test covers the same path');
     try {
       const dir = join(mnt, 'outbox');
       const notices: OutboxNotice[] = [];
       const ob = await Outbox.open({ dir, retryMinMs: 20, retryMaxMs: 50, onNotice: (n) => notices.push(n) });
-      // Fill the filesystem with a ballast file until the kernel refuses.
-      const ballast = join(mnt, 'ballast');
-      const err = (() => {
-        try {
-          writeFileSync(ballast, Buffer.alloc(128 * 1024));
-          return null;
-        } catch (e) {
-          return (e as NodeJS.ErrnoException).code;
-        }
-      })();
-      expect(err).toBe('ENOSPC');
+      const { code, ballast } = fillUp(mnt);
+      expect(code).toBe('ENOSPC');
       const outcomes = [];
       for (let i = 0; i < 5; i++) outcomes.push(await ob.add(ev(i, 'alarm')));
       expect(outcomes).toEqual(Array(5).fill('memory'));
@@ -253,8 +230,7 @@ describe('durable outbox on a real full tmpfs', () => {
       expect(notices.filter((n) => n.kind === 'store_recovered')).toHaveLength(1);
       await ob.close();
     } finally {
-      execFileSync('umount', [mnt]);
-      rmSync(mnt, { recursive: true, force: true });
+      unmountTmpfs(mnt);
     }
   });
 });

@@ -1,14 +1,16 @@
-import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import type { WindowResult } from '../agent/dsp/types.js';
 import type { AgentEvent } from '../agent/events.js';
 import { UserError } from '../agent/errors.js';
+import { MemoryLogger, silentLogger, type Logger } from '../agent/log.js';
 import { FileHistoryStore, History, type HistoryPoint } from '../agent/watcher/history.js';
 import { openWatcher, type Watcher } from '../agent/watcher/watcher.js';
 import { FakeClock } from './support/fake-clock.js';
 import { demoConfig, fanCase, synthWindow, type FanCase, type WindowSpec } from './support/fan-windows.js';
+import { fillUp, tryMountTmpfs, unmountTmpfs } from './support/tmpfs.js';
 
 const T0 = Date.parse('2031-03-02T08:00:00Z');
 const WINDOW_SAMPLES = 51200; // 10 s at 5120 Hz, as the synthesizer builds them
@@ -45,9 +47,9 @@ class Feeder {
 }
 
 /** These tests feed 10 s windows with a 20 s on-delay (a state is reported on its second window). */
-function start(dir: string, watcher: Record<string, unknown> = {}, ms = T0): Feeder {
+function start(dir: string, watcher: Record<string, unknown> = {}, ms = T0, log: Logger = silentLogger): Feeder {
   const clock = new FakeClock(ms);
-  return new Feeder(openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10, on_delay_s: 20, ...watcher } }), clock), clock);
+  return new Feeder(openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10, on_delay_s: 20, ...watcher } }), clock, log), clock);
 }
 
 const types = (es: readonly AgentEvent[]): string[] => es.map((e) => `${e.type}:${(e['sensor'] as string | undefined) ?? 'machine'}`);
@@ -202,17 +204,154 @@ describe('baseline, vector change and restarts on real files', () => {
   });
 });
 
+/** Log lines about one save problem (the burst logger puts its key in `problem`). */
+function problemLines(log: MemoryLogger, key: string, level: 'warn' | 'info'): MemoryLogger['lines'] {
+  return log.lines.filter((l) => l.level === level && l.fields['problem'] === key);
+}
+
 describe('disk trouble', () => {
-  it('keeps watching when history cannot be written, and says so in the status', () => {
+  it('logs a failing save once per burst, lists it while it lasts, and clears it with an info line once saving works again', () => {
+    const dir = tmp();
+    const log = new MemoryLogger();
+    const f = start(dir, { history: { interval_s: 10 } }, T0, log);
+    f.case('quiet', 2);
+    // A directory where each file should be: every save fails (EISDIR), as on a broken disk; no root needed.
+    const w = join(dir, 'watcher');
+    for (const name of ['state.json', 'history.jsonl']) {
+      rmSync(join(w, name));
+      mkdirSync(join(w, name));
+    }
+    const events = f.case('static', 6);
+    expect(events.some((e) => e.type === 'unbalance_found')).toBe(true);
+    const warnings = f.w.status().warnings.join('\n');
+    expect(warnings).toMatch(/confirmed states not saved: .*EISDIR/);
+    expect(warnings).toMatch(/history not saved: .*EISDIR/);
+    // Tried on every window (state) and every history point, written once.
+    expect(problemLines(log, 'confirmed states not saved', 'warn')).toHaveLength(1);
+    expect(problemLines(log, 'history not saved', 'warn')).toHaveLength(1);
+
+    for (const name of ['state.json', 'history.jsonl']) rmSync(join(w, name), { recursive: true });
+    f.case('static');
+    expect(f.w.status().warnings).toEqual([]);
+    // The states were confirmed on the second static window (20 s on-delay): 5 failed saves, then the 6th worked.
+    expect(problemLines(log, 'confirmed states not saved', 'info')).toEqual([expect.objectContaining({ msg: 'confirmed states saved again', fields: expect.objectContaining({ occurrences: 5 }) })]);
+    // One point per 10 s window after the first: 6 failed appends; the points kept in memory are saved late.
+    expect(problemLines(log, 'history not saved', 'info')).toEqual([expect.objectContaining({ fields: expect.objectContaining({ occurrences: 6 }) })]);
+    expect(new FileHistoryStore(dir).load().points).toHaveLength(2 + 6 + 1 - 1);
+    expect(log.lines.filter((l) => l.level === 'warn')).toHaveLength(2);
+    // What was saved after the recovery is complete: a restart repeats nothing.
+    const g = start(dir, { history: { interval_s: 10 } }, f.clock.now() + 10_000);
+    expect(g.case('static', 3)).toEqual([]);
+  });
+
+  it('starts on a full state directory (a real 64 KiB tmpfs), keeps producing events, and saves once space is freed (needs root to mount)', (ctx) => {
+    const mnt = tryMountTmpfs();
+    if (!mnt) return ctx.skip('cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the EISDIR test above covers the same path');
+    try {
+      const dir = join(mnt, 'state');
+      mkdirSync(join(dir, 'watcher'), { recursive: true });
+      const { code, ballast } = fillUp(mnt);
+      expect(code).toBe('ENOSPC');
+      const log = new MemoryLogger();
+      const f = start(dir, { history: { interval_s: 10 } }, T0, log); // used to throw ENOSPC here
+      expect(f.w.status().warnings).toEqual([expect.stringMatching(/^confirmed states not saved: ENOSPC/)]);
+      f.case('quiet', 2);
+      f.case('static', 4);
+      expect(types(f.events)).toContain('zone_changed:machine');
+      expect(types(f.events)).toContain('unbalance_found:machine');
+      // The start counter could not be saved: this run counts from the clock's seconds, so a restart
+      // that reads the old counter again cannot repeat these event ids.
+      const run = Math.floor(T0 / 1000);
+      expect(f.events.every((e) => e.id.includes(`/r${run}/`))).toBe(true);
+      expect(problemLines(log, 'confirmed states not saved', 'warn')).toHaveLength(1);
+      expect(problemLines(log, 'history not saved', 'warn')).toHaveLength(1);
+      expect(readdirSync(join(dir, 'watcher')).filter((n) => n.includes('.tmp-'))).toEqual([]); // nothing half-written left
+      expect(existsSync(join(dir, 'watcher', 'state.json'))).toBe(false);
+
+      rmSync(ballast);
+      f.case('static');
+      expect(f.w.status().warnings).toEqual([]);
+      const state = JSON.parse(readFileSync(join(dir, 'watcher', 'state.json'), 'utf8'));
+      expect(state).toMatchObject({ run, machine_zone: 'C', unbalance: 'static' });
+      expect(new FileHistoryStore(dir).load()).toMatchObject({ points: { length: 2 + 4 + 1 - 1 }, warnings: [] });
+      const g = start(dir, { history: { interval_s: 10 } }, f.clock.now() + 10_000);
+      expect(g.case('static', 3)).toEqual([]);
+      expect(g.case('quiet', 3).every((e) => e.id.includes(`/r${run + 1}/`))).toBe(true);
+    } finally {
+      unmountTmpfs(mnt);
+    }
+  });
+
+  it('moves a damaged state.json aside, starts afresh and says so in the log, the status and an event', () => {
+    const dir = tmp();
+    const f = start(dir);
+    f.case('static', 4);
+    const file = join(dir, 'watcher', 'state.json');
+    const torn = '{"version":1,"run":1,"machine_zone":"C","zo';
+    writeFileSync(file, torn);
+    const log = new MemoryLogger();
+    const t1 = f.clock.now() + 60_000;
+    const g = start(dir, {}, t1, log); // used to stop with a UserError (exit 2)
+    const qdir = join(dir, 'watcher', 'quarantine');
+    const movedTo = join(qdir, `state.json.${new Date(t1).toISOString().replace(/[:.]/g, '-')}`);
+    expect(readdirSync(qdir)).toEqual([movedTo.slice(qdir.length + 1)]);
+    expect(readFileSync(movedTo, 'utf8')).toBe(torn);
+    const said = log.lines.filter((l) => l.level === 'warn');
+    expect(said).toHaveLength(1);
+    expect(said[0]!.msg).toMatch(/state\.json is damaged \(not valid JSON .*\); moved to .*quarantine\/state\.json\.\S+ for inspection; the watcher starts afresh/);
+    expect(g.w.status().warnings).toEqual([said[0]!.msg]);
+
+    const first = g.case('static', 2);
+    const q = first.filter((e) => e.type === 'state_files_quarantined');
+    expect(q).toEqual([expect.objectContaining({ severity: 'warning', files: [{ file, moved_to: movedTo, problem: expect.stringMatching(/^not valid JSON/) }] })]);
+    // The states are reported again, under a start counter from the clock (the stored one was lost).
+    expect(types(first)).toContain('unbalance_found:machine');
+    const run = Math.floor(t1 / 1000);
+    expect(first.every((e) => e.id.includes(`/r${run}/`))).toBe(true);
+    expect(JSON.parse(readFileSync(file, 'utf8'))).toMatchObject({ run, unbalance: 'static' });
+    g.case('static', 3);
+    expect(log.lines.filter((l) => l.level === 'warn')).toHaveLength(1); // said once, not per window
+  });
+
+  it('moves a damaged baseline aside and watches on without it', () => {
+    const dir = tmp();
+    const f = start(dir);
+    f.w.startLearning();
+    f.case('static', 4);
+    f.w.stopLearning();
+    const file = join(dir, 'watcher', 'baseline.json');
+    writeFileSync(file, JSON.stringify({ version: 1, asset: 'kessrow-id3a', channels: 'overwritten' }));
+    const log = new MemoryLogger();
+    const g = start(dir, {}, f.clock.now() + 60_000, log); // used to stop with a UserError (exit 2)
+    expect(g.w.baseline).toBeNull();
+    expect(existsSync(file)).toBe(false);
+    expect(readdirSync(join(dir, 'watcher', 'quarantine'))).toEqual([expect.stringMatching(/^baseline\.json\.\d{4}-\d\d-\d\dT\d\d-\d\d-\d\d-\d{3}Z$/)]);
+    expect(g.w.status().warnings).toEqual([expect.stringMatching(/baseline\.json is damaged \(unexpected contents[\s\S]*moved to [\s\S]*learn it again/)]);
+    const events = g.case('quiet', 3);
+    expect(events.filter((e) => e.type === 'state_files_quarantined')).toHaveLength(1);
+    expect(types(events)).toContain('zone_changed:machine');
+    // The state file was fine: the start counter simply goes on.
+    expect(events.every((e) => e.id.includes('/r2/'))).toBe(true);
+  });
+
+  it('moves a history file that cannot be read at all aside; a torn line is said once, not per window', () => {
     const dir = tmp();
     const f = start(dir, { history: { interval_s: 10 } });
-    f.case('quiet', 2);
-    // Replace the history file by a directory: every further append fails with EISDIR.
-    rmSync(join(dir, 'watcher', 'history.jsonl'));
-    mkdirSync(join(dir, 'watcher', 'history.jsonl'));
-    const events = f.case('static', 2);
-    expect(events.some((e) => e.type === 'unbalance_found')).toBe(true);
-    expect(f.w.status().warnings.join('\n')).toMatch(/history not saved: .*EISDIR/);
+    f.case('quiet', 3);
+    const file = join(dir, 'watcher', 'history.jsonl');
+    appendFileSync(file, '{"ts":"2031-03-02T08:0');
+    const log = new MemoryLogger();
+    const g = start(dir, { history: { interval_s: 10 } }, f.clock.now() + 10_000, log);
+    g.case('quiet', 5);
+    expect(log.lines.filter((l) => l.level === 'warn').map((l) => l.msg)).toEqual([expect.stringMatching(/line 3 is not valid JSON \(torn write after a power cut\?\), skipped/)]);
+    expect(new FileHistoryStore(dir).load()).toMatchObject({ points: { length: 2 + 4 }, warnings: [] }); // repaired
+
+    rmSync(file);
+    mkdirSync(file); // read fails with EISDIR
+    const h = start(dir, { history: { interval_s: 10 } }, g.clock.now() + 10_000);
+    expect(h.w.status().warnings).toEqual([expect.stringMatching(/history\.jsonl is damaged \(cannot be read \(EISDIR\)\); moved to .* the history starts afresh/)]);
+    h.case('quiet', 3);
+    expect(new FileHistoryStore(dir).load().points).toHaveLength(2);
   });
 
   it('refuses a state directory that holds another fan\'s baseline', () => {

@@ -1,6 +1,7 @@
 import { join } from 'node:path';
 import type { AgentEvent } from '../events.js';
 import { UserError } from '../errors.js';
+import { QUARANTINE_DIR, quarantinePath } from '../quarantine.js';
 import { nodeOutboxFs, type OutboxFs } from './fs.js';
 import { decodeRecord, encodeRecord, type Severity } from './record.js';
 
@@ -120,7 +121,7 @@ export class Outbox {
 
   private constructor(opts: OutboxOptions) {
     this.dir = opts.dir;
-    this.quarantineDir = join(opts.dir, 'quarantine');
+    this.quarantineDir = join(opts.dir, QUARANTINE_DIR);
     this.fs = opts.fs ?? nodeOutboxFs;
     this.maxEvents = opts.maxEvents ?? 5000;
     this.maxBytes = opts.maxBytes ?? 8 * 1024 * 1024;
@@ -222,8 +223,7 @@ export class Outbox {
 
   private async quarantine(name: string, problem: string): Promise<void> {
     this.totals.quarantined++;
-    const movedName = `${name}.${new Date(this.now()).toISOString().replace(/[:.]/g, '-')}`;
-    let movedTo: string | null = join(this.quarantineDir, movedName);
+    let movedTo: string | null = quarantinePath(join(this.dir, name), this.now());
     try {
       await this.fs.rename(join(this.dir, name), movedTo);
       await this.fs.syncDir(this.quarantineDir);

@@ -66,7 +66,9 @@ export class Agent {
 
   constructor(private readonly o: AgentOptions) {
     this.dataClock = new ManualClock(o.startMs ?? o.clock.now());
-    this.watcher = openWatcher(o.config, this.dataClock);
+    // A state directory that is full or holds damaged files does not stop the agent: the watcher
+    // logs such trouble itself (once per burst) and lists it in status.warnings.
+    this.watcher = openWatcher(o.config, this.dataClock, o.logger);
   }
 
   get status(): WatchStatus | null {
@@ -99,7 +101,6 @@ export class Agent {
     this.lastWindow = w;
     this.lastStatus = status;
     for (const e of events) this.emit(e);
-    for (const warning of status.warnings) this.o.logger.warn({ window_end: w.end_index }, warning);
     if (this.advisory) {
       const channels: AdvisoryChannelInput[] = cfg.sensors.map((s) => {
         const v = this.verdict(s.id);

@@ -16,7 +16,8 @@ export type WatcherEventType =
   | 'tach_lost'
   | 'tach_back'
   | 'speed_out_of_range'
-  | 'speed_in_range';
+  | 'speed_in_range'
+  | 'state_files_quarantined';
 
 export interface EventOrigin {
   readonly asset: string;

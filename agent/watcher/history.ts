@@ -2,9 +2,9 @@ import { join } from 'node:path';
 import { z } from 'zod';
 import type { WindowResult } from '../dsp/types.js';
 import { abs, add, angleDeg, fromPolar, scale, ZERO, type Complex } from './complex.js';
-import { appendLineDurable, readTextOrNull, writeFileAtomic } from './files.js';
+import { appendLineDurable, moveAside, readTextOrNull, writeFileAtomic } from './files.js';
 import type { HealthReport } from './health.js';
-import { watcherDir } from './stores.js';
+import { watcherDir, type Quarantinable } from './stores.js';
 
 /**
  * History of overall and 1x per sensor over time, one point per `history.interval_s`, kept bounded:
@@ -27,10 +27,11 @@ export interface HistoryPoint {
   readonly channels: Readonly<Record<string, HistoryChannel>>;
 }
 
-export interface HistoryStore {
+export interface HistoryStore extends Quarantinable {
   /**
    * Points oldest first, words about anything that had to be skipped, and whether the stored form
-   * should be rewritten from the points (a torn or unreadable line).
+   * should be rewritten from the points (a torn or unreadable line). Throws DamagedFileError when the
+   * stored history cannot be read at all.
    */
   load(): { points: HistoryPoint[]; warnings: string[]; rewrite: boolean };
   append(p: HistoryPoint): void;
@@ -84,6 +85,10 @@ export class FileHistoryStore implements HistoryStore {
 
   replace(points: readonly HistoryPoint[]): void {
     writeFileAtomic(this.file, points.map((p) => JSON.stringify(p) + '\n').join(''));
+  }
+
+  quarantine(nowMs: number): string | null {
+    return moveAside(this.file, nowMs);
   }
 }
 
@@ -140,31 +145,51 @@ export function decimate(points: readonly HistoryPoint[], max: number): HistoryP
   return out;
 }
 
-/** In-memory history over a store, bounded by `maxPoints`. */
+/**
+ * In-memory history over a store, bounded by `maxPoints`. The points in memory are the truth: when
+ * the store refuses a write (full disk), the next successful write rewrites the whole history, so
+ * points kept only in memory meanwhile are saved late rather than lost.
+ */
 export class History {
   private pts: HistoryPoint[];
   readonly warnings: readonly string[];
+  /** The store does not hold what is in memory (repair pending, merged, or a write failed). */
+  private unsaved: boolean;
 
+  /** `loaded`: what the store held (the caller may have read it already, to deal with a damaged file). */
   constructor(
     private readonly store: HistoryStore,
     private readonly maxPoints: number,
+    loaded: ReturnType<HistoryStore['load']> = store.load(),
   ) {
-    const loaded = store.load();
     this.warnings = loaded.warnings;
     this.pts = decimate(loaded.points, maxPoints);
-    if (loaded.rewrite || this.pts.length < loaded.points.length) store.replace(this.pts);
+    this.unsaved = loaded.rewrite || this.pts.length < loaded.points.length;
   }
 
   get points(): readonly HistoryPoint[] {
     return this.pts;
   }
 
+  /** Points not yet in the store are written now (a whole rewrite); false when there was nothing to do. Throws when the store fails. */
+  flush(): boolean {
+    if (!this.unsaved) return false;
+    this.store.replace(this.pts);
+    this.unsaved = false;
+    return true;
+  }
+
+  /** Adds a point (kept in memory even when the store throws). */
   add(p: HistoryPoint): void {
     this.pts.push(p);
     if (this.pts.length > this.maxPoints) {
       this.pts = decimate(this.pts, this.maxPoints);
-      this.store.replace(this.pts);
-    } else this.store.append(p);
+      this.unsaved = true;
+    }
+    if (this.flush()) return;
+    this.unsaved = true; // until the append has succeeded
+    this.store.append(p);
+    this.unsaved = false;
   }
 }
 

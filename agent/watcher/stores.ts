@@ -2,9 +2,8 @@ import { join } from 'node:path';
 import { z } from 'zod';
 import type { StoredCoefficients } from '../balance/coefficients.js';
 import { formatIssues } from '../config/load.js';
-import { UserError } from '../errors.js';
 import type { Baseline } from './baseline.js';
-import { parseJsonFile, readTextOrNull, removeFile, writeFileAtomic } from './files.js';
+import { DamagedFileError, moveAside, parseJsonFile, readTextOrNull, removeFile, writeFileAtomic } from './files.js';
 import type { TachState } from './health.js';
 import type { Zone } from './limits.js';
 import type { UnbalanceKind } from './signature.js';
@@ -14,7 +13,17 @@ import type { UnbalanceKind } from './signature.js';
  * `<state_dir>/watcher/` (and read balancing results from `<state_dir>/balance/`).
  */
 
-export interface BaselineStore {
+/** A stored file that can be moved aside when it turns out to be damaged. */
+export interface Quarantinable {
+  /**
+   * Moves the damaged stored file to `quarantine/` beside it, named with the time `nowMs`; returns
+   * where it went, or null when it could not be moved.
+   */
+  quarantine(nowMs: number): string | null;
+}
+
+export interface BaselineStore extends Quarantinable {
+  /** Throws DamagedFileError when a stored baseline exists but cannot be read or understood. */
   load(): Baseline | null;
   save(b: Baseline): void;
   /** Returns false when there was nothing to clear. */
@@ -38,7 +47,8 @@ export interface WatcherSnapshot {
   readonly vector_changed: Readonly<Record<string, boolean>>;
 }
 
-export interface WatcherStateStore {
+export interface WatcherStateStore extends Quarantinable {
+  /** Throws DamagedFileError when a stored state exists but cannot be read or understood. */
   load(): WatcherSnapshot | null;
   save(s: WatcherSnapshot): void;
 }
@@ -51,7 +61,7 @@ export interface CoefficientsSource {
 function validate<T>(schema: z.ZodType<T>, file: string, text: string, fix: string): T {
   const raw = parseJsonFile(file, text);
   const res = schema.safeParse(raw);
-  if (!res.success) throw new UserError(file, `unexpected contents:\n  ${formatIssues(file, res.error.issues, raw).join('\n  ')}`, fix);
+  if (!res.success) throw new DamagedFileError(file, `unexpected contents:\n  ${formatIssues(file, res.error.issues, raw).join('\n  ')}`, fix);
   return res.data;
 }
 
@@ -99,7 +109,10 @@ export class FileBaselineStore implements BaselineStore {
   }
   load(): Baseline | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(baselineFileSchema, this.file, text, 'learn the baseline again (`turnwise condition clear-baseline` removes this file)');
+    return text === null ? null : validate(baselineFileSchema, this.file, text, 'learn the baseline again (`turnwise condition clear-baseline` removes this file; `turnwise run` moves it to quarantine/)');
+  }
+  quarantine(nowMs: number): string | null {
+    return moveAside(this.file, nowMs);
   }
   save(b: Baseline): void {
     writeFileAtomic(this.file, JSON.stringify(b, null, 2) + '\n');
@@ -116,7 +129,10 @@ export class FileWatcherStateStore implements WatcherStateStore {
   }
   load(): WatcherSnapshot | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(snapshotSchema, this.file, text, 'delete the file to start afresh (the current zones and states will be reported again)');
+    return text === null ? null : validate(snapshotSchema, this.file, text, '`turnwise run` moves it to quarantine/ and starts afresh (the current zones and states are reported again); or delete it');
+  }
+  quarantine(nowMs: number): string | null {
+    return moveAside(this.file, nowMs);
   }
   save(s: WatcherSnapshot): void {
     writeFileAtomic(this.file, JSON.stringify(s) + '\n');

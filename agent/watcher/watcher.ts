@@ -1,13 +1,16 @@
 import type { StoredCoefficients } from '../balance/coefficients.js';
 import type { Config } from '../config/schema.js';
 import type { WindowResult } from '../dsp/types.js';
+import { BurstLog } from '../burst-log.js';
 import type { AgentEvent } from '../events.js';
 import { isUserError, UserError } from '../errors.js';
+import { silentLogger, type Logger } from '../log.js';
 import { assessWith, type WindowAssessment } from './assess.js';
 import { baselineFromConfig, BaselineLearner, type Baseline } from './baseline.js';
 import { systemClock, type Clock } from './clock.js';
 import { OnDelay } from './debounce.js';
 import { watcherEvent, type EventOrigin } from './events.js';
+import { DamagedFileError } from './files.js';
 import { forecastBalance, unavailable, type BalanceForecast } from './forecast.js';
 import { assessHealth, type TachState } from './health.js';
 import { FileHistoryStore, History, HistoryAggregator, type HistoryStore } from './history.js';
@@ -20,6 +23,7 @@ import {
   FileWatcherStateStore,
   type BaselineStore,
   type CoefficientsSource,
+  type Quarantinable,
   type SpeedState,
   type WatcherSnapshot,
   type WatcherStateStore,
@@ -32,6 +36,16 @@ export interface WatcherDeps {
   readonly stateStore: WatcherStateStore;
   readonly historyStore: HistoryStore;
   readonly coefficients: CoefficientsSource;
+  /** Where disk trouble (once per burst) and damaged state files are reported. */
+  readonly log: Logger;
+}
+
+/** A damaged state file found at start, moved aside. */
+export interface QuarantinedFile {
+  readonly file: string;
+  /** Where it went; null when it could not be moved. */
+  readonly moved_to: string | null;
+  readonly problem: string;
 }
 
 export interface WatchStatus {
@@ -51,6 +65,14 @@ export interface WatchStatus {
 export interface WatchUpdate {
   readonly events: readonly AgentEvent[];
   readonly status: WatchStatus;
+}
+
+/** Problems saving under state_dir: each is logged once per burst and listed in status.warnings until a save works again. */
+const STATE_NOT_SAVED = 'confirmed states not saved';
+const HISTORY_NOT_SAVED = 'history not saved';
+
+function errorText(e: unknown): string {
+  return isUserError(e) ? e.format() : e instanceof Error ? e.message : String(e);
 }
 
 const zoneSeverity = (z: Zone): AgentEvent['severity'] => (z === 'D' ? 'alarm' : z === 'C' ? 'warning' : 'info');
@@ -73,7 +95,6 @@ function recordOf<T>(m: Map<string, OnDelay<T>>): Record<string, T> {
  */
 export class Watcher {
   readonly settings: WatcherSettings;
-  private readonly run: number;
   private readonly recent: RecentWindow[] = [];
   private readonly zoneHyst = new Map<string, Zone>();
   private readonly zones = new Map<string, OnDelay<Zone>>();
@@ -94,17 +115,29 @@ export class Watcher {
   private forecastValue: BalanceForecast | null = null;
   private latest: WindowAssessment | null = null;
   private lastWindow: WindowResult | null = null;
+  private run: number;
   private savedSnapshot = '';
-  private readonly warnings: string[] = [];
+  /** Facts about this start (damaged files moved aside, torn history lines, ...): logged once, listed for the whole run. */
+  private readonly notes: string[] = [];
+  /** Current save problems by key; cleared when a save works again. */
+  private readonly problems = new Map<string, string>();
+  private readonly burst: BurstLog;
+  /** Damaged files moved aside at start, reported by an event with the first window. */
+  private quarantined: QuarantinedFile[] = [];
 
   constructor(
     cfg: Config,
     private readonly deps: WatcherDeps,
   ) {
     const s = (this.settings = resolveWatcherSettings(cfg));
+    // Only resolved() ends a burst: every window (state) or history point retries the save.
+    this.burst = new BurstLog(deps.log, { nowMs: () => deps.clock.now(), quietMs: Infinity, summaryEveryMs: 3600_000 });
     const delay = s.w.on_delay_s;
-    const prev = deps.stateStore.load();
+    const prev = this.loadOrQuarantine(deps.stateStore, null, 'the watcher starts afresh: the current zones and states are reported again');
     this.run = (prev?.run ?? 0) + 1;
+    // Without the stored start counter, the next one is unknown: count on from the clock's seconds, so
+    // event ids do not repeat those of earlier starts.
+    if (this.quarantined.length) this.run = this.runFromClock();
     for (const sensor of s.sensors) {
       this.zones.set(sensor.id, new OnDelay<Zone>(delay, prev?.zones[sensor.id]));
       this.alarms.set(sensor.id, new OnDelay<boolean>(delay, prev?.over_alarm[sensor.id]));
@@ -119,19 +152,45 @@ export class Watcher {
     this.speed = new OnDelay<SpeedState>(delay, prev?.speed ?? undefined);
 
     const fromConfig = baselineFromConfig(s);
-    const stored = deps.baselineStore.load();
+    const stored = this.loadOrQuarantine(deps.baselineStore, null, 'no learned baseline: learn it again at steady running (baseline-relative alarm and vector change are off until then)');
     if (stored && stored.asset !== s.asset) {
       throw new UserError('state_dir', `the stored baseline belongs to asset "${stored.asset}", this config is for "${s.asset}"`, 'point state_dir at this fan\'s own state directory');
     }
-    if (fromConfig && stored) this.warn('a learned baseline is stored but watcher.baseline in the config takes precedence');
+    if (fromConfig && stored) this.note('a learned baseline is stored but watcher.baseline in the config takes precedence');
     this.baselineValue = fromConfig ?? stored;
 
-    this.history = new History(deps.historyStore, s.w.history.max_points);
-    for (const w of this.history.warnings) this.warn(w);
+    const noHistory = { points: [], warnings: [], rewrite: false };
+    this.history = new History(deps.historyStore, s.w.history.max_points, this.loadOrQuarantine(deps.historyStore, noHistory, 'the history starts afresh'));
+    for (const w of this.history.warnings) this.note(w);
+    this.guarded(HISTORY_NOT_SAVED, () => this.history.flush(), 'history saved again');
     this.aggregator = new HistoryAggregator(s.w.history.interval_s);
     this.reloadCoefficients();
     this.trendCache = this.computeTrend();
-    this.persist(); // records the new start counter
+    // Records the new start counter. If it cannot be saved, a restart would use the same one again:
+    // this run counts from the clock instead, so its event ids cannot be repeated by the next (every
+    // window tries to save it again).
+    if (!this.persist()) this.run = Math.max(this.run, this.runFromClock());
+  }
+
+  /** A start counter from the clock's whole seconds (far above any ordinary count of starts). */
+  private runFromClock(): number {
+    return Math.max(1, Math.floor(this.deps.clock.now() / 1000));
+  }
+
+  /**
+   * Loads one stored file. A damaged one does not stop the watcher: it is moved aside, said loudly
+   * (log, status, an event with the first window), and the watcher goes on with `fresh`.
+   */
+  private loadOrQuarantine<T, F>(store: Quarantinable & { load(): T }, fresh: F, consequence: string): T | F {
+    try {
+      return store.load();
+    } catch (e) {
+      if (!(e instanceof DamagedFileError)) throw e;
+      const movedTo = store.quarantine(this.deps.clock.now());
+      this.quarantined.push({ file: e.file, moved_to: movedTo, problem: e.problem });
+      this.note(`${e.file} is damaged (${e.problem}); ${movedTo ? `moved to ${movedTo} for inspection` : 'it could not be moved aside'}; ${consequence}`);
+      return fresh;
+    }
   }
 
   get baseline(): Baseline | null {
@@ -161,10 +220,9 @@ export class Watcher {
   /** Ends learning, stores the baseline and starts comparing against it. */
   stopLearning(): { baseline: Baseline; left_out: string[] } {
     if (!this.learner) throw new UserError('baseline learning', 'learning was not started', 'start learning first, let the fan run steadily for a few windows, then stop');
-    const learner = this.learner;
+    const res = this.learner.finish(new Date(this.deps.clock.now()).toISOString());
+    this.deps.baselineStore.save(res.baseline); // when this throws, learning goes on and stopping can be tried again
     this.learner = null;
-    const res = learner.finish(new Date(this.deps.clock.now()).toISOString());
-    this.deps.baselineStore.save(res.baseline);
     this.setBaseline(res.baseline);
     return res;
   }
@@ -204,6 +262,15 @@ export class Watcher {
     const emit = (...args: Parameters<typeof watcherEvent> extends [EventOrigin, ...infer R] ? R : never): void => {
       events.push(watcherEvent(origin, ...args));
     };
+
+    if (this.quarantined.length) {
+      const files = this.quarantined;
+      this.quarantined = [];
+      emit('state_files_quarantined', 'machine', 'warning', {
+        message: `damaged watcher file(s) moved aside at start, the watcher went on without them: ${files.map((f) => `${f.file} (${f.problem.split('\n')[0]})`).join('; ')}`,
+        files,
+      });
+    }
 
     // Sensors and tach.
     for (const h of health.channels) {
@@ -269,7 +336,7 @@ export class Watcher {
 
       const point = this.aggregator.add(window, health, nowMs);
       if (point) {
-        this.guarded('history not saved', () => this.history.add(point));
+        this.guarded(HISTORY_NOT_SAVED, () => this.history.add(point), 'history saved again (points kept in memory meanwhile written)');
         this.trendCache = this.computeTrend();
       }
     }
@@ -279,23 +346,34 @@ export class Watcher {
       : this.coeffs
         ? forecastBalance(s.asset, this.coeffs, this.baselineValue, window, health)
         : null;
-    this.guarded('confirmed states not saved', () => this.persist());
+    this.persist();
+    this.burst.flush();
     return { events, status: this.status() };
   }
 
-  /** Keeps watching when the disk fails (full, read-only): the problem is reported in status.warnings. */
-  private guarded(what: string, fn: () => void): void {
+  /**
+   * Keeps watching when the disk fails (full, read-only): the first failure of a burst is logged, the
+   * rest counted, and the problem listed in status.warnings; the first save that works again clears
+   * it with an info line (`recovered`). False when `fn` threw.
+   */
+  private guarded(key: string, fn: () => void, recovered: string): boolean {
     try {
       fn();
     } catch (e) {
-      this.warn(`${what}: ${isUserError(e) ? e.format() : (e as Error).message}`);
+      const detail = `${key}: ${errorText(e)}`;
+      this.problems.set(key, detail);
+      const code = (e as NodeJS.ErrnoException)?.code;
+      this.burst.report(key, detail, code ? { error_code: code } : {}, code);
+      return false;
     }
+    if (this.problems.delete(key)) this.burst.resolved(key, recovered);
+    return true;
   }
 
-  private warn(message: string): void {
-    if (this.warnings.includes(message)) return;
-    this.warnings.push(message);
-    if (this.warnings.length > 20) this.warnings.shift();
+  /** A fact about this start: logged once as a warning and listed in status.warnings for the run. */
+  private note(message: string): void {
+    this.deps.log.warn({}, message);
+    this.notes.push(message);
   }
 
   private snapshot(): WatcherSnapshot {
@@ -313,13 +391,22 @@ export class Watcher {
     };
   }
 
-  /** Saves the confirmed states when they changed (rarely: a few small atomic writes a day). */
-  private persist(): void {
+  /**
+   * Saves the confirmed states when they changed (rarely: a few small atomic writes a day); after a
+   * failed save every call tries again. False when the save failed (reported, never thrown).
+   */
+  private persist(): boolean {
     const snap = this.snapshot();
     const text = JSON.stringify(snap);
-    if (text === this.savedSnapshot) return;
-    this.deps.stateStore.save(snap);
-    this.savedSnapshot = text;
+    if (text === this.savedSnapshot) return true;
+    return this.guarded(
+      STATE_NOT_SAVED,
+      () => {
+        this.deps.stateStore.save(snap);
+        this.savedSnapshot = text;
+      },
+      'confirmed states saved again',
+    );
   }
 
   private computeTrend(): TrendReport {
@@ -338,15 +425,16 @@ export class Watcher {
       learning: this.learner ? { windows: this.learner.windowCount } : null,
       trend: this.trendCache,
       forecast: this.forecastValue,
-      warnings: [...this.warnings],
+      warnings: [...this.notes, ...this.problems.values()],
     };
   }
 }
 
 /** A watcher over the real files under `cfg.state_dir`. */
-export function openWatcher(cfg: Config, clock: Clock = systemClock): Watcher {
+export function openWatcher(cfg: Config, clock: Clock = systemClock, log: Logger = silentLogger): Watcher {
   return new Watcher(cfg, {
     clock,
+    log,
     baselineStore: new FileBaselineStore(cfg.state_dir),
     stateStore: new FileWatcherStateStore(cfg.state_dir),
     historyStore: new FileHistoryStore(cfg.state_dir),

@@ -3,6 +3,7 @@ import { join } from 'node:path';
 import { loadConfig } from '../../config/load.js';
 import { UserError } from '../../errors.js';
 import { decodeRecord } from '../../outbox/record.js';
+import { QUARANTINE_DIR } from '../../quarantine.js';
 import { renderPayloadSchemas } from '../../mqtt/payloads.js';
 import { outboxSettings } from '../../mqtt/settings.js';
 import { topicsFor } from '../../mqtt/topics.js';
@@ -44,7 +45,7 @@ function outboxAction(cfgFile: string, json: boolean): number {
       const rec = decodeRecord(readFileSync(join(dir, n)));
       return 'problem' in rec ? { file: n, problem: rec.problem } : { file: n, id: rec.id, type: rec.type, severity: rec.severity, ts: (JSON.parse(rec.json) as { ts?: string }).ts ?? null };
     });
-  const qdir = join(dir, 'quarantine');
+  const qdir = join(dir, QUARANTINE_DIR);
   const quarantined = existsSync(qdir) ? readdirSync(qdir).sort() : [];
   if (json) {
     process.stdout.write(JSON.stringify({ dir, pending, quarantined }, null, 2) + '\n');
