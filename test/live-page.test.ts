@@ -250,6 +250,36 @@ describe('live page in a real browser', () => {
     expect(pageErrors).toEqual([]);
   });
 
+  it("shows the watcher's correction forecast from the job just finished; fitting it on the fan lowers the 1x further", async () => {
+    // The job's coefficients went to the watcher (reloads === 1 above); it has no baseline, so the
+    // forecast aims at zero 1x: a trim of what the correction left (influence-coefficient method).
+    await page.click('nav a[data-nav=live]');
+    await page.waitForSelector('#forecast tr[data-plane]', { timeout: 30_000 });
+    expect(await page.textContent('#forecast .conv-banner')).toMatch(/measured WITH rotation/);
+    const rows = await page.$$eval('#forecast tr[data-plane]', (trs) => trs.map((r) => ({ ...(r as unknown as El).dataset })));
+    expect(rows.map((r) => [r.plane, r.radiusMm])).toEqual([
+      ['back_plate', '760'],
+      ['front_shroud', '760'],
+    ]);
+    expect(await page.textContent('#forecast .cautions')).toMatch(/Lock out and tag out/);
+    /** Sum of the live 1x amplitudes of every card, averaged over a few updates. */
+    const oneX = async () => {
+      let sum = 0;
+      for (let k = 0; k < 4; k++) {
+        sum += (await page.$$eval('#cards .card', (cs) => cs.map((c) => Number((c as unknown as El).dataset.amp)))).reduce((a, b) => a + b, 0);
+        await new Promise((r) => setTimeout(r, 500));
+      }
+      return sum / 4;
+    };
+    const before = await oneX();
+    for (const r of rows) src.addWeight({ id: `F-${r.plane}`, plane: r.plane!, mass_g: Number(r.massG), radius_mm: Number(r.radiusMm), angle_deg: Number(r.angleDeg), convention: 'with_rotation' });
+    await new Promise((r) => setTimeout(r, 6000)); // 48 s of the simulated fan: the live average settles
+    const after = await oneX();
+    console.log(`forecast trim fitted on the simulated fan: sum of live 1x ${before.toFixed(3)} -> ${after.toFixed(3)} mm/s pk`);
+    expect(after).toBeLessThan(before);
+    expect(pageErrors).toEqual([]);
+  }, 60_000);
+
   it('shows a viewer the job but no way to change it', async () => {
     const viewer = await browser.newPage({ viewport: { width: 800, height: 900 } });
     try {

@@ -17,6 +17,11 @@ export interface StoredCoefficients {
   /** Mean speed of the runs the coefficients were measured at, r/min. */
   readonly speed_rpm: number;
   readonly planes: readonly string[];
+  /**
+   * Radius the job's weights sat at, per plane, mm (when the job gave it): a coefficient per gram
+   * holds at that radius, so weights derived from it go there too.
+   */
+  readonly radius_mm?: Readonly<Record<string, number>>;
   /** coefficients[sensorId][plane] */
   readonly coefficients: Readonly<Record<string, Readonly<Record<string, { readonly amp_mm_s_pk_per_g: number; readonly phase_deg: number }>>>>;
 }

@@ -134,6 +134,7 @@ export const storedCoefficientsSchema = z
     angle_convention: convention,
     speed_rpm: positive,
     planes: z.array(name).min(1),
+    radius_mm: z.record(name, positive).optional(),
     coefficients: z.record(name, z.record(name, coefficientEntry)),
   })
   .strict();

@@ -45,6 +45,7 @@ export function exportCoefficients(
       angle_convention: result.angle_convention,
       speed_rpm: result.speed_rpm,
       planes: [...result.planes],
+      ...(job.radius_mm ? { radius_mm: { ...job.radius_mm } } : {}),
       coefficients,
     },
   };

@@ -6,6 +6,7 @@
  */
 import type { Config } from '../config/schema.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
+import type { BalanceForecast } from '../watcher/forecast.js';
 import type { WatchStatus, Zone } from '../watcher/index.js';
 
 export interface VectorView {
@@ -40,6 +41,12 @@ export interface LiveSnapshot {
   readonly zone_limits: { readonly ab_mm_s: number; readonly bc_mm_s: number; readonly cd_mm_s: number; readonly basis: string } | null;
   readonly tach: { readonly state: string; readonly why: string } | null;
   readonly channels: readonly ChannelView[];
+  /**
+   * The watcher's balance forecast (correction weights that would bring the 1x back to baseline,
+   * from the influence coefficients of an earlier job), so the crew can prepare a weight before a
+   * stop; null when no coefficients are stored.
+   */
+  readonly forecast: BalanceForecast | null;
 }
 
 export interface TrendPoint {
@@ -70,6 +77,7 @@ export class LiveView {
   private machineZone: LiveSnapshot['machine_zone'] = null;
   private limits: LiveSnapshot['zone_limits'] = null;
   private tach: LiveSnapshot['tach'] = null;
+  private forecast: BalanceForecast | null = null;
   private readonly trendPoints: TrendPoint[] = [];
   /** Bumped on every change, so senders can tell whether there is anything new. */
   version = 0;
@@ -118,6 +126,7 @@ export class LiveView {
     this.machineZone = a.zone.machine;
     this.limits = { ab_mm_s: a.zone.limits.ab_mm_s, bc_mm_s: a.zone.limits.bc_mm_s, cd_mm_s: a.zone.limits.cd_mm_s, basis: a.zone.limits.basis };
     this.tach = { state: a.tach.state, why: a.tach.why };
+    this.forecast = status.forecast;
     for (const c of this.channels) {
       const z = a.zone.channels[c.id];
       const h = a.sensors.find((s) => s.id === c.id);
@@ -147,6 +156,7 @@ export class LiveView {
         ok: c.ok,
         problems: c.problems,
       })),
+      forecast: this.forecast,
     };
   }
 

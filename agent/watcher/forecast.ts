@@ -32,7 +32,8 @@ export interface BalanceForecast {
   readonly angle_convention: StoredCoefficients['angle_convention'] | null;
   /** Target of the correction: the baseline 1x vectors, or zero when no baseline exists. */
   readonly target: 'baseline' | 'zero' | null;
-  readonly weights: readonly { readonly plane: string; readonly mass_g: number; readonly angle_deg: number }[];
+  /** Per plane: mass and angle, at the radius the job's weights sat at (null when the job did not say). */
+  readonly weights: readonly { readonly plane: string; readonly mass_g: number; readonly angle_deg: number; readonly radius_mm: number | null }[];
   readonly sensors_used: readonly string[];
   /** Predicted remaining 1x difference from the target after the correction, r.m.s. over the sensors used, mm/s peak. */
   readonly residual_pk_mm_s: number | null;
@@ -118,7 +119,7 @@ export function forecastBalance(
     job_id: coeffs.job_id,
     angle_convention: coeffs.angle_convention,
     target: baseline ? 'baseline' : 'zero',
-    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(x[j]!), angle_deg: angleDeg(x[j]!) })),
+    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(x[j]!), angle_deg: angleDeg(x[j]!), radius_mm: coeffs.radius_mm?.[plane] ?? null })),
     sensors_used: used,
     residual_pk_mm_s: Math.sqrt(ss / used.length),
     condition,

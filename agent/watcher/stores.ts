@@ -1,6 +1,7 @@
 import { join } from 'node:path';
 import { z } from 'zod';
 import type { StoredCoefficients } from '../balance/coefficients.js';
+import { storedCoefficientsSchema } from '../balance/job-input.js';
 import { formatIssues } from '../config/load.js';
 import type { Baseline } from './baseline.js';
 import { DamagedFileError, moveAside, parseJsonFile, readTextOrNull, removeFile, writeFileAtomic } from './files.js';
@@ -87,16 +88,6 @@ const snapshotSchema = z.object({
   speed: z.enum(['in_range', 'low', 'high']).nullable(),
   vector_changed: z.record(z.string(), z.boolean()),
 });
-const coefficientsSchema = z.object({
-  version: z.literal(1),
-  asset: z.string(),
-  saved_at: z.string(),
-  job_id: z.string(),
-  angle_convention: z.enum(['against_rotation', 'with_rotation']),
-  speed_rpm: z.number().positive(),
-  planes: z.array(z.string()).min(1),
-  coefficients: z.record(z.string(), z.record(z.string(), z.object({ amp_mm_s_pk_per_g: z.number().min(0), phase_deg: z.number() }))),
-});
 
 export function watcherDir(stateDir: string): string {
   return join(stateDir, 'watcher');
@@ -146,6 +137,6 @@ export class FileCoefficientsSource implements CoefficientsSource {
   }
   load(): StoredCoefficients | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(coefficientsSchema, this.file, text, 'save the balancing job again, or delete the file');
+    return text === null ? null : validate(storedCoefficientsSchema as z.ZodType<StoredCoefficients>, this.file, text, 'save the balancing job again, or delete the file');
   }
 }

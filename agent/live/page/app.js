@@ -123,7 +123,43 @@ function renderLive(live) {
     const pv = (/** @type {any} */ v) => ({ amp: conv(v.amp_pk_mm_s), phase_deg: v.phase_deg });
     el.plot.draw(c.one_x ? pv(c.one_x) : null, c.trail.map(pv), `${units.velocity}`);
   }
+  renderForecast(live.forecast);
   checkStale();
+}
+
+/** The forecast now on the page (JSON), so a new one is drawn only when it changed. */
+let shownForecast = '';
+
+/**
+ * The watcher's balance forecast: the weight a crew could prepare before the next stop, with the
+ * job it comes from, the angle convention and the cautions. Hidden while no coefficients are stored.
+ * @param {any} f
+ */
+function renderForecast(f) {
+  const box = $('forecast');
+  box.hidden = !f;
+  const key = JSON.stringify(f);
+  if (!f || key === shownForecast) return;
+  shownForecast = key;
+  const conv = f.angle_convention === 'with_rotation' ? 'WITH rotation' : 'AGAINST rotation';
+  fill(
+    box,
+    h('h2', null, 'Correction forecast'),
+    f.available
+      ? [
+          h('div', { class: 'conv-banner' }, `Weight angles in degrees from the reference mark, measured ${conv} (as in job ${f.job_id}).`),
+          h(
+            'table',
+            { class: 'forecast-weights' },
+            h('thead', null, h('tr', null, h('th', null, 'plane'), h('th', null, 'mass, g'), h('th', null, 'angle, deg'), h('th', null, 'radius, mm'))),
+            h('tbody', null, ...f.weights.map((/** @type {any} */ w) => h('tr', { dataset: { plane: w.plane, massG: String(w.mass_g), angleDeg: String(w.angle_deg), radiusMm: String(w.radius_mm ?? '') } }, h('td', null, w.plane), h('td', { class: 'big' }, num(w.mass_g, 1)), h('td', { class: 'big' }, deg(w.angle_deg)), h('td', null, w.radius_mm === null ? 'as in the job' : num(w.radius_mm, 0))))),
+          ),
+          h('p', { class: 'note' }, `${f.why}. Predicted 1x left after it: ${vel(f.residual_pk_mm_s)} ${units.velocity} pk (r.m.s. over ${f.sensors_used.length} sensors).`),
+          ...f.notes.map((/** @type {string} */ n) => h('p', { class: 'msg msg-warn' }, n)),
+        ]
+      : h('p', { class: 'note' }, `No forecast: ${f.why}.`),
+    h('ul', { class: 'cautions' }, ...f.cautions.map((/** @type {string} */ c) => h('li', null, c))),
+  );
 }
 
 function checkStale() {
