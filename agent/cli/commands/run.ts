@@ -1,6 +1,5 @@
 import { randomUUID } from 'node:crypto';
 import { createSource } from '../../../drivers/create-source.js';
-import type { GpioLines } from '../../../drivers/gpio/types.js';
 import { systemClock } from '../../clock.js';
 import { UserError } from '../../errors.js';
 import { LiveServer } from '../../live/server.js';
@@ -11,6 +10,7 @@ import { createServiceNotifier } from '../../service/systemd-notifier.js';
 import { WatchdogKeeper } from '../../service/watchdog.js';
 import { systemTimers } from '../../timers.js';
 import { parseCommandArgs } from '../args.js';
+import { openBoardGpio } from '../board-gpio.js';
 import type { Command } from '../command.js';
 
 const usage = 'turnwise run --config CFG.yaml [--drain-timeout-s S] [--last-good FILE]';
@@ -39,11 +39,7 @@ export const runCommand: Command = {
       log.error({ config: file, running_on: guarded.from }, `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`);
     }
     const notifier = createServiceNotifier({ logger: log });
-    let gpio: GpioLines | undefined;
-    if (cfg.advisory) {
-      const { OnoffLines } = await import('../../../drivers/gpio/onoff-lines.js');
-      gpio = await OnoffLines.open({ log });
-    }
+    const gpio = await openBoardGpio(cfg, log);
     // Relative paths (recording, scenario) are read beside the file the user gave.
     const { source, boardTimesTach } = createSource(cfg, file, { log });
     let lastWindowAt = Date.now();
