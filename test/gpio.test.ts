@@ -8,6 +8,10 @@ import { OnoffLines, explainGpioError, type GpioClass } from '../drivers/gpio/on
 import { globalLineNumber, pickGpioChip, readGpioChips, type GpioChip } from '../drivers/gpio/sysfs-chips.js';
 import { GpioTachSpeed, PulseSpeed } from '../drivers/gpio/tach-speed.js';
 import { MemoryLogger } from '../agent/log.js';
+import { openBoardGpio, usesGpio } from '../agent/cli/board-gpio.js';
+import { validateConfig } from '../agent/config/load.js';
+import type { WindowResult } from '../agent/dsp/types.js';
+import { GpioSpeedCheck, judgeGpioSpeed } from '../agent/runtime/gpio-speed-check.js';
 
 const trees: string[] = [];
 afterEach(() => {
@@ -80,7 +84,10 @@ describe('sysfs GPIO chip and dynamic base', () => {
     expect(pickGpioChip(chips, 'expander', root).base).toBe(32);
     const e = thrown(() => pickGpioChip(chips, 'pinctrl-rp1', root));
     expect(e.message).toMatch(/no GPIO chip labelled "pinctrl-rp1"; chips present: gpiochip0 "board-io" \(base 0, 32 lines\); gpiochip32 "expander"/);
-    expect(thrown(() => pickGpioChip(chips, undefined, root)).hint).toMatch(/set the GPIO chip label/);
+    // The hints name the config key that chooses the chip.
+    expect(e.where).toBe('gpio.chip_label "pinctrl-rp1"');
+    expect(e.hint).toBe('set gpio.chip_label in the config to one of the labels listed');
+    expect(thrown(() => pickGpioChip(chips, undefined, root)).hint).toMatch(/^set gpio\.chip_label in the config to the label of the chip your relay, lamp, button and GPIO tach input are wired to/);
   });
 
   it('refuses a line the chip does not have, saying which lines exist', () => {
@@ -269,3 +276,101 @@ describe('tach speed from GPIO pulses (speed only)', () => {
     expect(s.rpm(80)).toBeCloseTo(1500, 9);
   });
 });
+
+/** A minimal valid config with the given extra sections. */
+function cfgWith(extra: Record<string, unknown>) {
+  return validateConfig({
+    machine: { id: 'kessrow-id3a', group: 2, support: 'rigid' },
+    tach: { channel: 2, trigger_v: 2.5 },
+    sensors: [{ id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 }],
+    ...extra,
+  });
+}
+
+describe('GPIO lines for `turnwise run` (gpio.chip_label)', () => {
+  const twoChips = () =>
+    sysfs([
+      { name: 'gpiochip0', base: 0, label: 'board-io', ngpio: 32 },
+      { name: 'gpiochip32', base: 32, label: 'expander', ngpio: 16 },
+    ]);
+
+  it('opens no GPIO when neither the advisory nor the GPIO tach input is configured', async () => {
+    const cfg = cfgWith({ gpio: { chip_label: 'expander' } });
+    expect(usesGpio(cfg)).toBe(false);
+    expect(await openBoardGpio(cfg, new MemoryLogger(), '/nonexistent/sys/class/gpio')).toBeUndefined();
+  });
+
+  it('with several chips and no header chip, tells the user to set gpio.chip_label', async () => {
+    const root = twoChips();
+    const err = await openBoardGpio(cfgWith({ gpio: { tach_speed: { line: 5 } } }), new MemoryLogger(), root).catch((e: unknown) => e);
+    expect(err).toBeInstanceOf(UserError);
+    expect((err as UserError).message).toMatch(/several GPIO chips and none is known to carry the pin header: gpiochip0 "board-io" .*gpiochip32 "expander"/);
+    expect((err as UserError).hint).toMatch(/set gpio\.chip_label in the config/);
+  });
+
+  it('passes gpio.chip_label through to the chip choice', async () => {
+    const root = twoChips();
+    const log = new MemoryLogger();
+    const lines = (await openBoardGpio(cfgWith({ advisory: { relay: { line: 3 } }, gpio: { chip_label: 'expander' } }), log, root)) as OnoffLines;
+    expect(lines.chip).toMatchObject({ name: 'gpiochip32', base: 32, label: 'expander' });
+    expect(log.lines.some((l) => l.msg === 'GPIO: using gpiochip32 "expander", base 32')).toBe(true);
+    const wrong = await openBoardGpio(cfgWith({ advisory: { relay: { line: 3 } }, gpio: { chip_label: 'pinctrl-rp1' } }), log, root).catch((e: unknown) => e);
+    expect((wrong as UserError).where).toBe('gpio.chip_label "pinctrl-rp1"');
+  });
+});
+
+/** A window's speed part as the DSP reports it. */
+const speeds = (mean: number | null, min = mean, max = mean) => ({ speed_rpm: mean, speed_min_rpm: min, speed_max_rpm: max });
+
+describe('GPIO speed as a cross-check of the tach channel (never phase)', () => {
+  it('judges agreement against the window speed range widened by the tolerance', () => {
+    expect(judgeGpioSpeed(speeds(1485), 1500, 5).state).toBe('agree'); // +1 %
+    // 1485 * 1.05 = 1559.25: just inside, just outside.
+    expect(judgeGpioSpeed(speeds(1485), 1559, 5).state).toBe('agree');
+    expect(judgeGpioSpeed(speeds(1485), 1560, 5)).toMatchObject({ state: 'mismatch', detail: expect.stringMatching(/1560\.0 r\/min, the tach channel 1485\.0 r\/min .*\+5\.1 %/) });
+    // A fan running up within the window: 1400 to 1485, mean 1440. 1380 is 4.2 % below the mean
+    // and inside 1400 * 0.95 = 1330; 1320 is not.
+    expect(judgeGpioSpeed(speeds(1440, 1400, 1485), 1380, 5).state).toBe('agree');
+    expect(judgeGpioSpeed(speeds(1440, 1400, 1485), 1320, 5).state).toBe('mismatch');
+    expect(judgeGpioSpeed(speeds(null), 742, 5)).toMatchObject({ state: 'tach_lost', detail: expect.stringMatching(/tach channel gave no speed .* turns at 742\.0 r\/min: check the tach pickup, its cable and tach\.trigger_v/) });
+    expect(judgeGpioSpeed(speeds(1485), null, 5)).toMatchObject({ state: 'gpio_silent', detail: expect.stringMatching(/gpio\.tach_speed\.line/) });
+    expect(judgeGpioSpeed(speeds(null), null, 5)).toEqual({ state: 'stopped', detail: null });
+  });
+
+  it('reads pulses from a fake GPIO input, warns once per burst when the tach channel is lost, and counts', async () => {
+    let now = 0;
+    const gpio = new FakeGpioLines({ nowMs: () => now });
+    const log = new MemoryLogger();
+    const cfg = cfgWith({ gpio: { tach_speed: { line: 23, tolerance_pct: 3 } } });
+    const check = await GpioSpeedCheck.open({ config: cfg.gpio!.tach_speed!, tach: cfg.tach, gpio, log, nowMs: () => now });
+    const period = 60_000 / 1485;
+    let k = 0;
+    const window = (tachRpm: number | null, seconds = 2) => {
+      const until = now + seconds * 1000;
+      for (; k * period <= until; k++) gpio.pulse('gpio tach', k * period);
+      now = until;
+      return check.onWindow({ ...speeds(tachRpm), end_index: now } as unknown as WindowResult);
+    };
+    expect(check.health()).toMatchObject({ gpio_speed_check: null, gpio_speed_disagreements_total: 0 });
+    expect(window(1485).state).toBe('agree');
+    expect(check.rpm()).toBeCloseTo(1485, 6);
+    // The tach channel loses its pulse for three windows while the GPIO input sees the fan turn.
+    expect([window(null), window(null), window(null)].map((v) => v.state)).toEqual(['tach_lost', 'tach_lost', 'tach_lost']);
+    expect(window(1485).state).toBe('agree');
+    const lines = log.lines.filter((l) => l.fields['problem'] === 'gpio_speed_check');
+    expect(lines.map((l) => [l.level, l.fields['occurrences'] ?? null])).toEqual([
+      ['warn', null],
+      ['info', 3],
+    ]);
+    expect(lines[0]!.fields).toMatchObject({ gpio_speed_rpm: 1485, tach_speed_rpm: null });
+    expect(check.health()).toMatchObject({ gpio_speed_rpm: 1485, gpio_speed_check: 'agree', gpio_speed_disagreements_total: 3, gpio_tach_double_triggers_total: 0, gpio_tach_dropouts_total: 0 });
+    expect(check.health()['gpio_tach_edges_total']).toBe(k);
+    // The pickup goes quiet: after 2 s (1 / tach.min_rpm of 30 r/min) the GPIO speed is unknown.
+    now += 2500;
+    expect(check.health()['gpio_speed_rpm']).toBeNull();
+    expect(check.onWindow({ ...speeds(1485), end_index: now } as unknown as WindowResult).state).toBe('gpio_silent');
+    await check.close();
+    expect(gpio.isClosed('gpio tach')).toBe(true);
+  });
+});
+

@@ -38,6 +38,7 @@ describe('mqtt and advisory config sections', () => {
     const cfg = loadConfig('config/example-network.yaml');
     expect(cfg.mqtt).toMatchObject({ url: 'mqtts://broker.kessrow.invalid:8883', topic_prefix: 'kessrow/boiler3', inflight_window: 8, publish_timeout_s: 15, outbox_max_events: 5000 });
     expect(cfg.advisory).toMatchObject({ zone: 'D', min_channels: 2, hold_s: 3, stall_s: 60, relay: { line: 17, active_low: false } });
+    expect(cfg.gpio).toEqual({ tach_speed: { line: 23, active_low: false, pulses_per_rev: 1, average_revs: 4, tolerance_pct: 5 } });
   });
 
   it('name each mistake with its path', () => {

@@ -96,6 +96,12 @@ describe('MQTT publishing against a real mosquitto', () => {
     const hb = sub.on(`${base}/heartbeat`)[0]!;
     assertMatches('heartbeat.v1', hb.json);
     expect(hb.json).toMatchObject({ agent: { watcher_windows_total: 12 }, mqtt: { connects_total: 1 } });
+    // The agent part types the fields it declares and still takes others (a compatible extension of v1).
+    const withAgent = (agent: Record<string, unknown>) => ({ ...(hb.json as object), agent });
+    assertMatches('heartbeat.v1', withAgent({ windows: 40, gaps: 0, source_crc_errors: 2, gpio_speed_check: 'agree', some_future_stage_total: 1 }));
+    expect(() => assertMatches('heartbeat.v1', withAgent({ windows: 'many' }))).toThrow(/agent\.windows/);
+    expect(() => assertMatches('heartbeat.v1', withAgent({ gpio_speed_check: 'maybe' }))).toThrow(/agent\.gpio_speed_check/);
+    expect(() => assertMatches('heartbeat.v1', withAgent({ nested: { a: 1 } }))).toThrow(/agent\.nested/);
     const liveMsg = sub.on(`${base}/live`)[0]!.json;
     assertMatches('live.v1', liveMsg);
     expect(liveMsg).toMatchObject({ speed_rpm: 1484.6, channels: [{ id: 'DE-V', overall_rms_mm_s: 3.1, one_x_amp_pk_mm_s: 3.9, one_x_phase_deg: 212.5, zone: 'B', ok: true }, { id: 'NDE-V', one_x_amp_pk_mm_s: null, zone: null, ok: null }] });

@@ -1,11 +1,11 @@
 import { z } from 'zod';
+import { gpioLine } from './gpio.js';
 
 /**
  * The `advisory` section: the local safe-stop advisory (a relay and a lamp, energised while all is
  * well). An advisory to people, not a protective trip. Optional: without it no GPIO is touched.
  */
 
-const gpioLine = z.number().int().min(0).max(1023).describe('Chip-relative GPIO line offset (the adapter adds the chip base).');
 const output = z
   .object({
     line: gpioLine,

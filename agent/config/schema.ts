@@ -2,6 +2,7 @@ import { z } from 'zod';
 import { acquisitionSchema, checkAcquisitionChannels } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
+import { gpioSchema } from './gpio.js';
 import { liveSchema } from './live.js';
 import { loggingSchema } from './logging.js';
 import { mqttSchema } from './mqtt.js';
@@ -91,7 +92,8 @@ export const configSchema = z
     watcher: watcherSchema,
 
     mqtt: mqttSchema.optional().describe('Plant broker connection; without it nothing is published.'),
-    advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it no GPIO is used.'),
+    advisory: advisorySchema.optional().describe('Local safe-stop advisory (relay and lamp); without it (and without gpio.tach_speed) no GPIO is used.'),
+    gpio: gpioSchema.optional().describe('GPIO chip choice and the optional GPIO tach input (speed cross-check only).'),
     live: liveSchema.optional().describe('Live page and balancing workbench for the technician (HTTP + WebSocket); without it no port is opened.'),
 
     logging: loggingSchema,
@@ -117,10 +119,35 @@ export const configSchema = z
       }
     });
     checkAcquisitionChannels(cfg, (path, message) => ctx.addIssue({ code: 'custom', path, message }));
+    checkGpioLines(cfg, (path, message) => ctx.addIssue({ code: 'custom', path, message }));
+    const gt = cfg.gpio?.tach_speed;
+    if (gt && (gt.min_rpm ?? cfg.tach.min_rpm) >= (gt.max_rpm ?? cfg.tach.max_rpm)) {
+      ctx.addIssue({ code: 'custom', path: ['gpio', 'tach_speed', gt.min_rpm === undefined ? 'max_rpm' : 'min_rpm'], message: `min_rpm ${gt.min_rpm ?? cfg.tach.min_rpm} must be below max_rpm ${gt.max_rpm ?? cfg.tach.max_rpm} (an unset one is taken from the tach section)` });
+    }
     if (cfg.dsp.band_hz && cfg.dsp.band_hz.low >= cfg.dsp.band_hz.high) {
       ctx.addIssue({ code: 'custom', path: ['dsp', 'band_hz', 'low'], message: 'band_hz.low must be below band_hz.high' });
     }
   });
+
+/** Every GPIO line offset is used once (all offsets refer to the same chip, gpio.chip_label). */
+function checkGpioLines(
+  cfg: { advisory?: { relay?: { line: number }; lamp?: { line: number }; ack_button?: { line: number } }; gpio?: { tach_speed?: { line: number } } },
+  issue: (path: (string | number)[], message: string) => void,
+): void {
+  const uses: [string[], number | undefined][] = [
+    [['advisory', 'relay', 'line'], cfg.advisory?.relay?.line],
+    [['advisory', 'lamp', 'line'], cfg.advisory?.lamp?.line],
+    [['advisory', 'ack_button', 'line'], cfg.advisory?.ack_button?.line],
+    [['gpio', 'tach_speed', 'line'], cfg.gpio?.tach_speed?.line],
+  ];
+  const seen = new Map<number, string>();
+  for (const [path, line] of uses) {
+    if (line === undefined) continue;
+    const prev = seen.get(line);
+    if (prev !== undefined) issue(path, `line ${line} is already used by ${prev}; each GPIO line can serve one purpose`);
+    else seen.set(line, path.join('.'));
+  }
+}
 
 export type Config = z.infer<typeof configSchema>;
 export type SensorConfig = Config['sensors'][number];

@@ -61,6 +61,63 @@ const linkHealth = z
   })
   .strict();
 
+const healthValue = z.union([z.number(), z.string(), z.boolean(), z.null()]);
+const optCount = (d: string) => count.optional().describe(d);
+
+/**
+ * The `agent` part of the heartbeat: a flat record of scalars. The fields below are the ones the
+ * agent writes today, all optional; further fields may appear (each stage adds its own, with a
+ * prefix), so subscribers validating against an older copy of this schema keep working.
+ */
+const agentHealth = z
+  .object({
+    windows: optCount('Analysis windows closed since the agent started.'),
+    gaps: optCount('Gap markers the measurement loop received from the source since the agent started (samples lost before the DSP).'),
+    events: optCount('Events raised since the agent started.'),
+    last_window_revolutions: count.nullable().optional().describe('Revolutions averaged in the last closed window; null before the first window.'),
+    last_window_revolutions_rejected: count.nullable().optional().describe('Revolutions thrown away in the last window (missing pulse, gap, speed outside limits).'),
+    last_window_speed_rpm: z.number().nullable().optional().describe('Mean speed of the last window from the tach channel, r/min; null when no revolution was averaged.'),
+    source_connected: z.boolean().optional().describe('Serial board: the device is open.'),
+    source_device: z.string().optional().describe('Serial board: device path.'),
+    source_bytes_received: optCount('Serial board: bytes read.'),
+    source_frames_ok: optCount('Serial board: frames accepted.'),
+    source_crc_errors: optCount('Serial board: frames with a bad CRC-32.'),
+    source_bad_lengths: optCount('Serial board: frames with an impossible length.'),
+    source_bad_headers: optCount('Serial board: frames with a bad header.'),
+    source_rejected_frames: optCount('Serial board: intact frames refused (wrong rate or channel count).'),
+    source_resyncs: optCount('Serial board: times the decoder searched for the next sync bytes.'),
+    source_bytes_skipped: optCount('Serial board: bytes skipped while resynchronising.'),
+    source_gaps: optCount('Serial board: gaps reported (lost frames, overruns).'),
+    source_samples_lost: optCount('Serial board: samples per channel lost in gaps.'),
+    source_sequence_anomalies: optCount('Serial board: sequence numbers out of order.'),
+    source_clock_restarts: optCount('Serial board: sample clock restarted (board reset).'),
+    source_overruns: optCount('Serial board: frames dropped because the DSP fell behind.'),
+    source_stalls: optCount('Serial board: an open device went silent for stall_timeout_ms and was reopened.'),
+    source_reconnects: optCount('Serial board: successful reopenings after the first open.'),
+    source_open_failures: optCount('Serial board: failed attempts to open the device.'),
+    source_last_error: z.string().nullable().optional().describe('Serial board: the last problem, in words.'),
+    source_last_error_at: z.string().nullable().optional().describe('Serial board: when the last problem happened, ISO 8601 UTC.'),
+    gpio_speed_rpm: z.number().nullable().optional().describe('Speed from the GPIO tach input (gpio.tach_speed), r/min; speed only, never phase; null when unknown.'),
+    gpio_speed_check: z
+      .enum(['agree', 'stopped', 'mismatch', 'tach_lost', 'gpio_silent'])
+      .nullable()
+      .optional()
+      .describe('GPIO speed against the tach channel at the last window: agree, stopped (neither turns), mismatch (beyond tolerance_pct), tach_lost (tach channel gave no speed, GPIO says it turns), gpio_silent; null before the first window.'),
+    gpio_speed_disagreements_total: optCount('Windows judged mismatch, tach_lost or gpio_silent.'),
+    gpio_tach_edges_total: optCount('Rising edges seen on the GPIO tach input.'),
+    gpio_tach_double_triggers_total: optCount('GPIO tach edges ignored as faster than max_rpm.'),
+    gpio_tach_dropouts_total: optCount('GPIO tach intervals slower than min_rpm (stopped shaft or lost pulses).'),
+    advisory_state: z.enum(['normal', 'raised', 'acknowledged', 'latched']).optional().describe('Safe-stop advisory state (see event-advisory.v1).'),
+    advisory_outputs_energised: z.boolean().optional().describe('Relay and lamp energised (true = all well).'),
+    advisory_output_fault: z.boolean().optional().describe('Writing the relay or lamp failed.'),
+    advisory_stalled: z.boolean().optional().describe('No measurement reached the advisory for advisory.stall_s.'),
+    advisory_raised_total: optCount('Times the advisory was raised since the agent started.'),
+    advisory_acknowledged_total: optCount('Acknowledgements since the agent started.'),
+    advisory_bearings_without_vote: z.string().nullable().optional().describe('Comma-separated bearings with too few OK voting channels; null when none.'),
+  })
+  .catchall(healthValue)
+  .describe('Health figures of the other stages: measurement loop, acquisition source (source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory (advisory_*).');
+
 export const heartbeatPayload = z
   .object({
     schema: z.literal(SCHEMA_IDS.heartbeat),
@@ -70,7 +127,7 @@ export const heartbeatPayload = z
     connected_s: z.number().min(0).describe('Time since this broker session began, s.'),
     outbox: outboxHealth,
     mqtt: linkHealth,
-    agent: z.record(z.string(), z.union([z.number(), z.string(), z.boolean(), z.null()])).describe('Health figures of the other stages (watcher, advisory, source).'),
+    agent: agentHealth,
   })
   .strict()
   .describe('<prefix>/<asset>/heartbeat, QoS 0, every mqtt.heartbeat_s.');

@@ -13,6 +13,7 @@ import type { CommandHandlers } from '../mqtt/commands.js';
 import { livePayloadFromFrame, type ChannelVerdict } from '../mqtt/live.js';
 import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
 import { openWatcher, type Watcher, type WatchStatus } from '../watcher/index.js';
+import { GpioSpeedCheck } from './gpio-speed-check.js';
 import { AgentRuntime, type LiveConsumer, type RunSummary, type WindowConsumer } from './runtime.js';
 
 /**
@@ -26,7 +27,7 @@ export interface AgentOptions {
   readonly boardTimesTach: boolean;
   readonly clock: Clock;
   readonly logger: Logger;
-  /** GPIO lines for the advisory; required when the config has an `advisory` section. */
+  /** GPIO lines for the advisory and the GPIO tach input; required when the config has `advisory` or `gpio.tach_speed`. */
   readonly gpio?: GpioLines;
   /** Further consumers (the live page). */
   readonly windowConsumers?: readonly WindowConsumer[];
@@ -56,6 +57,7 @@ export class Agent {
   readonly handlers: CommandHandlers = {};
   private link: PlantLink | null = null;
   private advisory: SafeStopAdvisory | null = null;
+  private gpioSpeed: GpioSpeedCheck | null = null;
   private runtime: AgentRuntime | null = null;
   private lastWindow: WindowResult | null = null;
   private lastStatus: WatchStatus | null = null;
@@ -101,6 +103,7 @@ export class Agent {
     this.lastWindow = w;
     this.lastStatus = status;
     for (const e of events) this.emit(e);
+    this.gpioSpeed?.onWindow(w);
     if (this.advisory) {
       const channels: AdvisoryChannelInput[] = cfg.sensors.map((s) => {
         const v = this.verdict(s.id);
@@ -113,6 +116,28 @@ export class Agent {
   private onLive(f: LiveFrame, atMs: number): void {
     const cfg = this.o.config;
     this.link?.publishLive(() => livePayloadFromFrame(f, cfg.sensors, this.lastWindow, cfg.machine.id, new Date(atMs).toISOString(), this.verdict));
+  }
+
+  /**
+   * The `agent` part of the heartbeat: counts of this run, the last window's revolutions, the
+   * source's own health counters (prefixed source_), the GPIO speed cross-check and the advisory.
+   */
+  health(): Record<string, number | string | boolean | null> {
+    const c = this.runtime?.counts();
+    const w = this.lastWindow;
+    const source: Record<string, number | string | boolean | null> = {};
+    for (const [k, v] of Object.entries(this.o.source.health?.() ?? {})) source[`source_${k}`] = v;
+    return {
+      windows: c?.windows ?? 0,
+      gaps: c?.gaps ?? 0,
+      events: this.events,
+      last_window_revolutions: w?.revolutions ?? null,
+      last_window_revolutions_rejected: w?.revolutions_rejected ?? null,
+      last_window_speed_rpm: w?.speed_rpm == null ? null : Math.round(w.speed_rpm * 10) / 10,
+      ...source,
+      ...(this.gpioSpeed?.health() ?? {}),
+      ...(this.advisory?.health() ?? {}),
+    };
   }
 
   /** Opens outputs, runs until the source ends or stop(), then drains the outbox for at most `drainMs`. */
@@ -138,12 +163,18 @@ export class Agent {
         handlers: h,
         env: this.o.env,
         agentVersion: this.o.agentVersion,
-        health: () => ({ windows: this.runtime ? 1 : 0, events: this.events, ...(this.advisory?.health() ?? {}) }),
+        health: () => this.health(),
       });
       for (const e of this.early.splice(0)) void this.link.queueEvent(e);
     }
     let summary: RunSummary;
     try {
+      // Opened before the advisory energises its outputs, so a refused input line leaves them untouched.
+      if (cfg.gpio?.tach_speed) {
+        if (!this.o.gpio) throw new Error('gpio.tach_speed configured but no GPIO lines were given');
+        // Speed cross-check only: GPIO edges are timed by the wall clock, far too coarsely for phase.
+        this.gpioSpeed = await GpioSpeedCheck.open({ config: cfg.gpio.tach_speed, tach: cfg.tach, gpio: this.o.gpio, log, nowMs: () => this.o.clock.now() });
+      }
       if (cfg.advisory) {
         if (!this.o.gpio) throw new Error('advisory configured but no GPIO lines were given');
         this.advisory = await SafeStopAdvisory.start({
@@ -185,6 +216,7 @@ export class Agent {
       throw e;
     } finally {
       await this.advisory?.close();
+      await this.gpioSpeed?.close();
     }
     let drained = true;
     let lost = 0;

@@ -41,16 +41,26 @@ export interface RuntimeOptions {
   readonly boardTimesTach?: boolean;
 }
 
-export interface RunSummary {
-  readonly info: SourceInfo;
+/** What the loop has handled so far (for the heartbeat while it runs, and the summary). */
+export interface RuntimeCounts {
+  /** Analysis windows closed. */
   readonly windows: number;
+  /** Samples per channel received. */
   readonly samples: number;
+  /** Gap markers received from the source (samples lost before they reached the DSP). */
   readonly gaps: number;
+}
+
+export interface RunSummary extends RuntimeCounts {
+  readonly info: SourceInfo;
 }
 
 export class AgentRuntime {
   private analyzer: Analyzer | undefined;
   private stopped = false;
+  private windows = 0;
+  private samples = 0;
+  private gaps = 0;
 
   constructor(private readonly opts: RuntimeOptions) {}
 
@@ -76,9 +86,6 @@ export class AgentRuntime {
     const liveSamples = Math.max(1, Math.round(this.opts.liveSeconds * fs));
     let windowEnd = windowSamples;
     let nextLive = liveSamples;
-    let windows = 0;
-    let samples = 0;
-    let gaps = 0;
     let first: number | undefined;
     const scale = this.opts.timeScale ?? 1;
     const timeOf = (index: number) => startMs + (index / fs) * 1000 * scale;
@@ -86,7 +93,7 @@ export class AgentRuntime {
       for await (const item of source.items()) {
         if (this.stopped) break;
         if (item.kind === 'gap') {
-          gaps++;
+          this.gaps++;
           an.push(item);
           continue;
         }
@@ -107,7 +114,7 @@ export class AgentRuntime {
           const edges = item.tachEdges?.filter((t) => t >= from && t < from + len);
           an.push({ kind: 'samples', startIndex: from, channels: item.channels.map((c) => c.subarray(off, off + len)), ...(edges ? { tachEdges: edges } : {}) });
         }
-        samples += n;
+        this.samples += n;
         const end = item.startIndex + n;
         if (end >= nextLive) {
           const f = an.liveFrame();
@@ -116,7 +123,7 @@ export class AgentRuntime {
         }
         if (end >= windowEnd) {
           const w = an.takeWindow();
-          windows++;
+          this.windows++;
           for (const c of this.opts.windowConsumers) await c.onWindow(w, timeOf(end));
           // Windows stay on a fixed grid of the sample clock, whatever the block size.
           while (windowEnd <= end) windowEnd += windowSamples;
@@ -125,8 +132,13 @@ export class AgentRuntime {
     } finally {
       await source.close();
     }
-    logger.info({ windows, samples, gaps }, 'acquisition ended');
-    return { info, windows, samples, gaps };
+    const counts = this.counts();
+    logger.info({ ...counts }, 'acquisition ended');
+    return { info, ...counts };
+  }
+
+  counts(): RuntimeCounts {
+    return { windows: this.windows, samples: this.samples, gaps: this.gaps };
   }
 
   stop(): void {

@@ -22,6 +22,9 @@ export interface GpioChip {
  * kernel device trees: BCM2835/2836/2837 boards, BCM2711 on the Pi 4, RP1 on the Pi 5). Used only
  * when several chips exist and no label is configured.
  */
+/** The config key that chooses the chip (agent/config/gpio.ts); errors name it. */
+export const CHIP_LABEL_KEY = 'gpio.chip_label';
+
 export const HEADER_CHIP_LABELS: readonly string[] = ['pinctrl-rp1', 'pinctrl-bcm2711', 'pinctrl-bcm2835'];
 
 /** Reads every gpiochip under `root`. Missing root: empty list. Unreadable entries are skipped. */
@@ -63,9 +66,9 @@ export function pickGpioChip(chips: readonly GpioChip[], label?: string, root = 
     const hit = chips.filter((c) => c.label === label);
     if (hit.length === 1) return hit[0]!;
     throw new UserError(
-      root,
+      `${CHIP_LABEL_KEY} "${label}"`,
       hit.length === 0 ? `no GPIO chip labelled "${label}"; chips present: ${describe(chips)}` : `${hit.length} GPIO chips are labelled "${label}": ${describe(hit)}`,
-      'set the GPIO chip label to one of the labels listed',
+      hit.length === 0 ? `set ${CHIP_LABEL_KEY} in the config to one of the labels listed` : `${CHIP_LABEL_KEY} cannot tell chips with the same label apart; wire the lines to a chip whose label is unique`,
     );
   }
   if (chips.length === 1) return chips[0]!;
@@ -73,7 +76,11 @@ export function pickGpioChip(chips: readonly GpioChip[], label?: string, root = 
     const hit = chips.filter((c) => c.label === l);
     if (hit.length === 1) return hit[0]!;
   }
-  throw new UserError(root, `several GPIO chips and none is known to carry the pin header: ${describe(chips)}`, 'set the GPIO chip label to the chip your relay, lamp and button are wired to');
+  throw new UserError(
+    root,
+    `several GPIO chips and none is known to carry the pin header: ${describe(chips)}`,
+    `set ${CHIP_LABEL_KEY} in the config to the label of the chip your relay, lamp, button and GPIO tach input are wired to (one of the labels listed)`,
+  );
 }
 
 /** Global sysfs number of line `offset` on `chip`; throws UserError when the chip has no such line. */

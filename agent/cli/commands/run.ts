@@ -1,6 +1,5 @@
 import { randomUUID } from 'node:crypto';
 import { createSource } from '../../../drivers/create-source.js';
-import type { GpioLines } from '../../../drivers/gpio/types.js';
 import { systemClock } from '../../clock.js';
 import { isUserError, UserError } from '../../errors.js';
 import { LiveServer } from '../../live/server.js';
@@ -11,6 +10,7 @@ import { createServiceNotifier } from '../../service/systemd-notifier.js';
 import { WatchdogKeeper } from '../../service/watchdog.js';
 import { systemTimers } from '../../timers.js';
 import { parseCommandArgs } from '../args.js';
+import { openBoardGpio } from '../board-gpio.js';
 import type { Command } from '../command.js';
 
 const usage = 'turnwise run --config CFG.yaml [--drain-timeout-s S] [--last-good FILE]';
@@ -79,11 +79,7 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
   let keeper: WatchdogKeeper | null = null;
   let live: LiveServer | null = null;
   try {
-    let gpio: GpioLines | undefined;
-    if (cfg.advisory) {
-      const { OnoffLines } = await import('../../../drivers/gpio/onoff-lines.js');
-      gpio = await OnoffLines.open({ log });
-    }
+    const gpio = await openBoardGpio(cfg, log);
     // Relative paths (recording, scenario) are read beside the file the user gave, also when
     // running on the last-good copy (a copy of an earlier version of that file).
     const { source, boardTimesTach } = createSource(cfg, file, { log });
