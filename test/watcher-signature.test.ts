@@ -275,7 +275,8 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
     expect(hint(5, rated / 5)).toBeNull();
     expect(hint(1, rated / 2)).toBeNull(); // no half pulse per turn: the fan really runs at half speed
     expect(hint(3, rated / 2)).toBeNull();
-    expect(hint(2, rated / 2, 0.02)).toBeNull(); // 4 % spread: starting or coasting through rated / 2
+    expect(hint(2, rated / 2, 0.01)).toBeNull(); // 2 % spread: starting or coasting through rated / 2
+    expect(hint(2, rated / 2, 0.007)!.fits).toBe(1); // 1.4 %: steady enough
     const noRated = demoConfig({ machine: { rated_rpm: undefined }, tach: { pulses_per_rev: 2 } });
     expect(pulsesPerRevHint(resolveWatcherSettings(noRated), synthWindow(fanCase('static', { speed_rpm: rated / 2 })))).toBeNull();
   });

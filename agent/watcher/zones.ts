@@ -28,8 +28,8 @@ export interface PulsesPerRevHint {
 const PPR_MAX_FACTOR = 4;
 /** How close to rated x k or rated / k the speed must be (a fan's speed sits within a few % of rated). */
 const PPR_RATIO_TOLERANCE = 0.03;
-/** Largest speed spread over the window, (max - min) / mean, for the speed to count as steady. */
-const PPR_STEADY_SPREAD = 0.03;
+/** Largest speed spread over the window, (max - min) / mean, for the speed to count as steady (a 180 s coast-down passes rated / 2 at about 2 % per 2 s window). */
+const PPR_STEADY_SPREAD = 0.015;
 
 /**
  * A steady speed close to rated x k or rated / k (k = 2..4, within 3 %) while machine.rated_rpm is
