@@ -20,6 +20,32 @@ sensors:
 `;
 }
 
+const NDE_SENSORS =
+  '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n';
+
+/**
+ * Static unbalance on a centre-hung rotor at 1485 r/min, once-per-turn tach on channel 4: both
+ * bearings move in phase, H lags V by 90 degrees at each bearing (common practice; see shared field
+ * notes, section 2). Returns the WAV's path.
+ */
+function writeStaticRecord(name: string): string {
+  const sig = synthesize({
+    sampleRate: fs,
+    seconds: 12,
+    rpm: () => 1485,
+    channels: [
+      { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 5.5, phaseDeg: 45 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 4.8, phaseDeg: 137 }], noiseMmS2: 100 },
+    ],
+    tachChannel: 4,
+  });
+  const f = join(dir, name);
+  writeFloatWav(f, fs, sig);
+  return f;
+}
+
 beforeAll(() => {
   const sig = synthesize({
     sampleRate: fs,
@@ -64,28 +90,9 @@ describe('turnwise analyze', () => {
   });
 
   it('tells static unbalance from the phase relation of the two bearings', () => {
-    // Static unbalance on a centre-hung rotor: both bearings move in phase, H lags V by 90 degrees
-    // at each bearing (common practice; see shared field notes, section 2).
-    const sig = synthesize({
-      sampleRate: fs,
-      seconds: 12,
-      rpm: () => 1485,
-      channels: [
-        { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 5.5, phaseDeg: 45 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 4.8, phaseDeg: 137 }], noiseMmS2: 100 },
-      ],
-      tachChannel: 4,
-    });
-    const f = join(dir, 'static.wav');
-    writeFloatWav(f, fs, sig);
+    const f = writeStaticRecord('static.wav'); // both bearings in phase, H 90 deg after V (common practice)
     const c = join(dir, 'static.yaml');
-    writeFileSync(
-      c,
-      cfgYaml({ tachChannel: 4 }) +
-        '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n',
-    );
+    writeFileSync(c, cfgYaml({ tachChannel: 4 }) + NDE_SENSORS);
     const r = runCli(['analyze', f, '--config', c, '--json']);
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
@@ -97,23 +104,9 @@ describe('turnwise analyze', () => {
 
   it('warns that tach.pulses_per_rev is probably wrong when the speed reads rated / 2, and claims no high confidence', () => {
     // A once-per-turn pickup (synthesized: one pulse per turn, 1485 r/min) configured with pulses_per_rev: 2.
-    const sig = synthesize({
-      sampleRate: fs,
-      seconds: 12,
-      rpm: () => 1485,
-      channels: [
-        { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 5.5, phaseDeg: 45 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 4.8, phaseDeg: 137 }], noiseMmS2: 100 },
-      ],
-      tachChannel: 4,
-    });
-    const f = join(dir, 'one-pulse.wav');
-    writeFloatWav(f, fs, sig);
-    const nde = '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n';
+    const f = writeStaticRecord('one-pulse.wav');
     const wrong = join(dir, 'ppr2.yaml');
-    writeFileSync(wrong, cfgYaml({ tachChannel: 4, ppr: 2 }) + nde);
+    writeFileSync(wrong, cfgYaml({ tachChannel: 4, ppr: 2 }) + NDE_SENSORS);
     const r = runCli(['analyze', f, '--config', wrong, '--json']);
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
@@ -127,7 +120,7 @@ describe('turnwise analyze', () => {
     expect(t.stdout).toMatch(/warnings:\n {2}- 743 r\/min is about 1\/2 of machine\.rated_rpm.*set tach\.pulses_per_rev: 1/);
     // Control: the right setting on the same record, no such warning and a real 1x.
     const right = join(dir, 'ppr1.yaml');
-    writeFileSync(right, cfgYaml({ tachChannel: 4 }) + nde);
+    writeFileSync(right, cfgYaml({ tachChannel: 4 }) + NDE_SENSORS);
     const ok = JSON.parse(runCli(['analyze', f, '--config', right, '--json']).stdout);
     expect(ok.speed_rpm).toBeCloseTo(1485, 0);
     expect(ok.warnings.join(' ')).not.toMatch(/pulses_per_rev/);
