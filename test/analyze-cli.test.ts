@@ -11,13 +11,39 @@ const cfgFile = join(dir, 'fan.yaml');
 const rec = join(dir, 'rec.wav');
 const fs = 25600;
 
-function cfgYaml(over: { tachChannel?: number; sensorChannel?: number; maxRpm?: number } = {}): string {
+function cfgYaml(over: { tachChannel?: number; sensorChannel?: number; maxRpm?: number; ppr?: number } = {}): string {
   return `machine: {id: test-fan, group: 2, support: rigid, rated_rpm: 1485}
-tach: {channel: ${over.tachChannel ?? 2}, trigger_v: 2.5${over.maxRpm ? `, max_rpm: ${over.maxRpm}` : ''}}
+tach: {channel: ${over.tachChannel ?? 2}, trigger_v: 2.5${over.maxRpm ? `, max_rpm: ${over.maxRpm}` : ''}${over.ppr ? `, pulses_per_rev: ${over.ppr}` : ''}}
 sensors:
   - {id: DE-V, channel: ${over.sensorChannel ?? 0}, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}
   - {id: DE-H, channel: 1, bearing: DE, direction: horizontal, sensitivity_mv_per_g: 100}
 `;
+}
+
+const NDE_SENSORS =
+  '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n';
+
+/**
+ * Static unbalance on a centre-hung rotor at 1485 r/min, once-per-turn tach on channel 4: both
+ * bearings move in phase, H lags V by 90 degrees at each bearing (common practice; see shared field
+ * notes, section 2). Returns the WAV's path.
+ */
+function writeStaticRecord(name: string): string {
+  const sig = synthesize({
+    sampleRate: fs,
+    seconds: 12,
+    rpm: () => 1485,
+    channels: [
+      { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 5.5, phaseDeg: 45 }], noiseMmS2: 100 },
+      { orders: [{ order: 1, velPk: 4.8, phaseDeg: 137 }], noiseMmS2: 100 },
+    ],
+    tachChannel: 4,
+  });
+  const f = join(dir, name);
+  writeFloatWav(f, fs, sig);
+  return f;
 }
 
 beforeAll(() => {
@@ -64,28 +90,9 @@ describe('turnwise analyze', () => {
   });
 
   it('tells static unbalance from the phase relation of the two bearings', () => {
-    // Static unbalance on a centre-hung rotor: both bearings move in phase, H lags V by 90 degrees
-    // at each bearing (common practice; see shared field notes, section 2).
-    const sig = synthesize({
-      sampleRate: fs,
-      seconds: 12,
-      rpm: () => 1485,
-      channels: [
-        { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 5.5, phaseDeg: 45 }], noiseMmS2: 100 },
-        { orders: [{ order: 1, velPk: 4.8, phaseDeg: 137 }], noiseMmS2: 100 },
-      ],
-      tachChannel: 4,
-    });
-    const f = join(dir, 'static.wav');
-    writeFloatWav(f, fs, sig);
+    const f = writeStaticRecord('static.wav'); // both bearings in phase, H 90 deg after V (common practice)
     const c = join(dir, 'static.yaml');
-    writeFileSync(
-      c,
-      cfgYaml({ tachChannel: 4 }) +
-        '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n',
-    );
+    writeFileSync(c, cfgYaml({ tachChannel: 4 }) + NDE_SENSORS);
     const r = runCli(['analyze', f, '--config', c, '--json']);
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
@@ -93,6 +100,32 @@ describe('turnwise analyze', () => {
     expect(j.unbalance.evidence.join(' ')).toMatch(/DE.*NDE|bearing/i);
     const t = runCli(['analyze', f, '--config', c]);
     expect(t.stdout).toMatch(/unbalance: static/);
+  });
+
+  it('warns that tach.pulses_per_rev is probably wrong when the speed reads rated / 2, and claims no high confidence', () => {
+    // A once-per-turn pickup (synthesized: one pulse per turn, 1485 r/min) configured with pulses_per_rev: 2.
+    const f = writeStaticRecord('one-pulse.wav');
+    const wrong = join(dir, 'ppr2.yaml');
+    writeFileSync(wrong, cfgYaml({ tachChannel: 4, ppr: 2 }) + NDE_SENSORS);
+    const r = runCli(['analyze', f, '--config', wrong, '--json']);
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(j.speed_rpm).toBeCloseTo(742.5, 0); // what the wrong setting makes of 1485 r/min
+    expect(j.channels[0].orders['1'].amp_pk_mm_s).toBeLessThan(0.1); // the "1x" is the half order: near 0
+    expect(j.warnings[0]).toMatch(/743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/);
+    expect(j.unbalance.confidence).toBe('low');
+    expect(j.unbalance.limits[0]).toMatch(/^confidence held low: .*pulses_per_rev/);
+    const t = runCli(['analyze', f, '--config', wrong]);
+    expect(t.stdout).toMatch(/unbalance: none \(confidence low\)/);
+    expect(t.stdout).toMatch(/warnings:\n {2}- 743 r\/min is about 1\/2 of machine\.rated_rpm.*set tach\.pulses_per_rev: 1/);
+    // Control: the right setting on the same record, no such warning and a real 1x.
+    const right = join(dir, 'ppr1.yaml');
+    writeFileSync(right, cfgYaml({ tachChannel: 4 }) + NDE_SENSORS);
+    const ok = JSON.parse(runCli(['analyze', f, '--config', right, '--json']).stdout);
+    expect(ok.speed_rpm).toBeCloseTo(1485, 0);
+    expect(ok.warnings.join(' ')).not.toMatch(/pulses_per_rev/);
+    expect(ok.unbalance.limits.join(' ')).not.toMatch(/pulses_per_rev/);
+    expect(ok.channels[0].orders['1'].amp_pk_mm_s).toBeCloseTo(6.0, 1);
   });
 
   it('prints a readable table with units by default', () => {

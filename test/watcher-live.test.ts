@@ -134,6 +134,16 @@ describe('watcher events over time', () => {
     expect(types(high)).toContain('speed_out_of_range:machine');
     expect(high.find((e) => e.type === 'speed_out_of_range')!['speed_rpm']).toBe(1700);
     expect(types(f.case('static', 2))).toContain('speed_in_range:machine');
+    // 1700 r/min is no multiple of rated: no word about tach.pulses_per_rev.
+    expect(String(high.find((e) => e.type === 'speed_out_of_range')!['why'])).not.toMatch(/pulses_per_rev/);
+  });
+
+  it('speed steady at twice rated: the speed event says tach.pulses_per_rev is probably wrong', () => {
+    const f = start(tmp());
+    f.case('static', 2);
+    const twice = f.feed(fanCase('static', { speed_rpm: 2 * 1485 }), 2);
+    const e = twice.find((x) => x.type === 'speed_out_of_range')!;
+    expect(String(e['why'])).toMatch(/above .* % of rated\); 2970 r\/min is about 2 x machine\.rated_rpm \(1485\): tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 2/);
   });
 
   it('unbalance kind change and clearing after a balance job', () => {

@@ -1,5 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { assessWindow } from '../agent/watcher/assess.js';
+import { resolveWatcherSettings } from '../agent/watcher/settings.js';
+import { pulsesPerRevHint } from '../agent/watcher/zones.js';
 import type { WindowResult } from '../agent/dsp/types.js';
 import { demoConfig, fanCase, synthWindow, type FanCase, type WindowSpec } from './support/fan-windows.js';
 
@@ -234,5 +236,65 @@ describe('faulty and missing sensors', () => {
     const windows = [0, 1, 2, 3].map((i) => synthWindow({ ...spec, oneX, sensors, start_index: i * 51200 }));
     const u = judge(windows, flipped);
     expect(u.kind).toBe('static');
+  });
+});
+
+/**
+ * A tach.pulses_per_rev that does not match the pickup makes every "revolution" 1/k of a turn or k
+ * turns: the speed reads rated x k or rated / k and the 1x is not the shaft's 1x. The project's own
+ * rule (no standard): a steady speed within 3 % of rated x k or rated / k, k = 2..4, with a whole
+ * pulses_per_rev that would fit.
+ */
+describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
+  const rated = 1485; // machine.rated_rpm of config/example.yaml (invented demo fan)
+  const withPpr = (ppr: number) => demoConfig({ tach: { pulses_per_rev: ppr } });
+  const hint = (ppr: number, speed: number, spread = 0.001) => {
+    const w = { ...synthWindow(fanCase('static', { speed_rpm: speed })), speed_min_rpm: speed * (1 - spread), speed_max_rpm: speed * (1 + spread) };
+    return pulsesPerRevHint(resolveWatcherSettings(withPpr(ppr)), w);
+  };
+
+  it('names the pulses_per_rev that would fit, within 3 % of rated x k or rated / k', () => {
+    expect(hint(2, rated / 2)).toMatchObject({ configured: 2, fits: 1, speed_ratio: 0.5 });
+    expect(hint(2, (rated / 2) * 1.029)!.fits).toBe(1);
+    expect(hint(2, (rated / 2) * 0.971)!.fits).toBe(1);
+    expect(hint(3, rated / 3)!.fits).toBe(1);
+    expect(hint(4, rated / 2)!.fits).toBe(2);
+    expect(hint(4, rated / 4)!.fits).toBe(1);
+    expect(hint(1, rated * 2)).toMatchObject({ configured: 1, fits: 2, speed_ratio: 2 });
+    expect(hint(1, rated * 3)!.fits).toBe(3);
+    expect(hint(2, rated * 4)!.fits).toBe(8);
+    expect(hint(2, rated / 2)!.why).toMatch(/743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/);
+  });
+
+  it('says nothing at rated speed, beyond 3 %, for k above 4, when no whole value fits, while the speed moves, or without rated_rpm', () => {
+    expect(hint(1, rated)).toBeNull();
+    expect(hint(2, rated * 0.98)).toBeNull();
+    expect(hint(2, (rated / 2) * 1.04)).toBeNull();
+    expect(hint(2, (rated / 2) * 0.96)).toBeNull();
+    expect(hint(1, rated * 5)).toBeNull();
+    expect(hint(5, rated / 5)).toBeNull();
+    expect(hint(1, rated / 2)).toBeNull(); // no half pulse per turn: the fan really runs at half speed
+    expect(hint(3, rated / 2)).toBeNull();
+    expect(hint(2, rated / 2, 0.01)).toBeNull(); // 2 % spread: starting or coasting through rated / 2
+    expect(hint(2, rated / 2, 0.007)!.fits).toBe(1); // 1.4 %: steady enough
+    const noRated = demoConfig({ machine: { rated_rpm: undefined }, tach: { pulses_per_rev: 2 } });
+    expect(pulsesPerRevHint(resolveWatcherSettings(noRated), synthWindow(fanCase('static', { speed_rpm: rated / 2 })))).toBeNull();
+  });
+
+  it('the unbalance verdict claims no high confidence then, and says why', () => {
+    // The reported case: a 1-pulse tach with pulses_per_rev 2 reads half speed and a 1x near 0.
+    const quietHalf = synthWindow(fanCase('quiet', { speed_rpm: rated / 2 }));
+    const right = assessWindow(withPpr(1), quietHalf, { baseline: null }).unbalance;
+    expect(right.kind).toBe('none');
+    expect(right.confidence).toBe('high'); // control: without the hint the same window is a confident "none"
+    const wrong = assessWindow(withPpr(2), quietHalf, { baseline: null });
+    expect(wrong.unbalance.confidence).toBe('low');
+    expect(wrong.unbalance.limits[0]).toMatch(/^confidence held low: .*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/);
+    expect(wrong.speed.pulses_per_rev_hint!.fits).toBe(1);
+    // A clear static pattern too: never high while the hint stands.
+    const steady = [0, 1, 2, 3, 4, 5].map((i) => synthWindow(fanCase('static', { speed_rpm: rated * 2, phase: 40 + (i % 2 ? 3 : -3), start_index: i * 51200 })));
+    const u = judge(steady, withPpr(1));
+    expect(u.confidence).toBe('low');
+    expect(u.limits.join('\n')).toMatch(/about 2 x machine\.rated_rpm.*set tach\.pulses_per_rev: 2/);
   });
 });

@@ -9,6 +9,8 @@ export interface WatcherSettings {
   readonly w: WatcherConfig;
   readonly limits: Limits;
   readonly ratedRpm: number | null;
+  /** tach.pulses_per_rev as configured. */
+  readonly pulsesPerRev: number;
   readonly rotor: 'centre_hung' | 'overhung';
   readonly blades: number | null;
   readonly sensors: readonly SensorConfig[];
@@ -70,6 +72,7 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
     w,
     limits,
     ratedRpm: cfg.machine.rated_rpm ?? null,
+    pulsesPerRev: cfg.tach.pulses_per_rev,
     rotor: cfg.machine.rotor,
     blades: cfg.machine.blades ?? null,
     sensors: cfg.sensors,

@@ -2,6 +2,7 @@ import type { ChannelResult, WindowResult } from '../dsp/types.js';
 import { circularSpread, normDeg, sepDeg } from './complex.js';
 import type { HealthReport } from './health.js';
 import type { WatcherSettings } from './settings.js';
+import { pulsesPerRevHint } from './zones.js';
 
 /**
  * Unbalance signature over one window (plus recent windows for phase stability), from the rules of
@@ -129,6 +130,9 @@ export function diagnoseUnbalance(s: WatcherSettings, window: WindowResult, heal
   };
   let missing = 0; // rules the data did not allow, weighted: 3 or more leaves the verdict unsupported (low)
 
+  // A speed that betrays a wrong tach.pulses_per_rev: the vectors may not be the shaft's orders at all.
+  const pprHint = pulsesPerRevHint(s, window);
+  if (pprHint) limits.push(`confidence held low: ${pprHint.why}`);
   for (const h of health.channels) if (!h.ok) limits.push(`${h.id} left out: ${h.problems.join('; ')}`);
   if (health.tach.state !== 'ok') limits.push(`no phase rules: ${health.tach.why}`);
   else for (const h of health.channels) if (h.ok && !h.phase_ok) limits.push(`${h.id} not used for phase rules: ${h.phase_notes.join('; ')}`);
@@ -147,7 +151,7 @@ export function diagnoseUnbalance(s: WatcherSettings, window: WindowResult, heal
   };
   const finish = (kind: UnbalanceKind, confidence?: Confidence): UnbalanceAssessment => ({
     kind,
-    confidence: confidence ?? (radial.length <= 1 || missing >= 3 ? 'low' : missing >= 1 ? 'medium' : 'high'),
+    confidence: pprHint ? 'low' : (confidence ?? (radial.length <= 1 || missing >= 3 ? 'low' : missing >= 1 ? 'medium' : 'high')),
     evidence,
     points_to: kind === 'none' ? [...pointsTo].map(([cause, whys]) => ({ cause, why: whys.join('; ') })) : [],
     limits,

@@ -286,7 +286,7 @@ export class Watcher {
     // Speed.
     if (a.speed.state !== null) {
       const sc = this.speed.update(a.speed.state, t0, t1);
-      if (sc && sc.to !== 'in_range') emit('speed_out_of_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm, why: a.speed.why });
+      if (sc && sc.to !== 'in_range') emit('speed_out_of_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm, why: a.speed.pulses_per_rev_hint ? `${a.speed.why}; ${a.speed.pulses_per_rev_hint.why}` : a.speed.why });
       else if (sc && sc.from !== undefined) emit('speed_in_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm });
     }
 

@@ -182,8 +182,8 @@ export function fanCase(c: FanCase, opts: { amp?: number; phase?: number; start_
 }
 
 /** The demo config (config/example.yaml, invented scenario) with healthy IEPE bias windows and overrides. */
-export function demoConfig(overrides: { machine?: Record<string, unknown>; watcher?: Record<string, unknown>; state_dir?: string; sensors?: (s: Record<string, unknown>) => Record<string, unknown> | null } = {}): Config {
-  const raw = parse(readFileSync('config/example.yaml', 'utf8')) as Record<string, unknown> & { sensors: Record<string, unknown>[]; machine: Record<string, unknown> };
+export function demoConfig(overrides: { machine?: Record<string, unknown>; tach?: Record<string, unknown>; watcher?: Record<string, unknown>; state_dir?: string; sensors?: (s: Record<string, unknown>) => Record<string, unknown> | null } = {}): Config {
+  const raw = parse(readFileSync('config/example.yaml', 'utf8')) as Record<string, unknown> & { sensors: Record<string, unknown>[]; machine: Record<string, unknown>; tach: Record<string, unknown> };
   // Healthy IEPE bias 8-12 V DC (common practice).
   let sensors = raw.sensors.map((s) => ({ ...s, bias_v: { min: 8, max: 12 }, full_scale_v: 20 }));
   if (overrides.sensors) sensors = sensors.flatMap((s) => overrides.sensors!(s) ?? []) as typeof sensors;
@@ -192,6 +192,7 @@ export function demoConfig(overrides: { machine?: Record<string, unknown>; watch
       ...raw,
       sensors,
       machine: { ...raw.machine, ...overrides.machine },
+      tach: { ...raw.tach, ...overrides.tach },
       ...(overrides.watcher ? { watcher: overrides.watcher } : {}),
       ...(overrides.state_dir ? { state_dir: overrides.state_dir } : {}),
     },

@@ -35,6 +35,12 @@ export async function analyzeRecording(file: string, cfg: Config, opts: { pcmFul
   }
 }
 
+/** The DSP's warnings, and the watcher's about the setup (a tach.pulses_per_rev that does not fit the rated speed). */
+export function analysisWarnings(w: WindowResult, a: WindowAssessment): string[] {
+  const hint = a.speed.pulses_per_rev_hint;
+  return hint ? [hint.why, ...w.warnings] : [...w.warnings];
+}
+
 /** The JSON document `turnwise analyze --json` prints. Units are in the field names. */
 export function analysisJson(file: string, w: WindowResult, a: WindowAssessment): Record<string, unknown> {
   const z = a.zone;
@@ -77,7 +83,7 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
       nonsync_peaks: c.nonsync_peaks.map((p) => ({ freq_hz: round(p.freq_hz, 2), order: round(p.order, 3), amp_rms_mm_s: round(p.amp_rms_mm_s, 3) })),
       stats: { dc_v: round(c.stats.dc_v, 4), ac_rms_v: round(c.stats.ac_rms_v, 5), min_v: round(c.stats.min_v, 4), max_v: round(c.stats.max_v, 4), clipped_samples: c.stats.clipped_samples },
     })),
-    warnings: w.warnings,
+    warnings: analysisWarnings(w, a),
     /** The DSP window itself, unrounded, for `turnwise condition learn-baseline --from`. */
     window: w,
   };
@@ -113,7 +119,8 @@ export function analysisTable(file: string, w: WindowResult, cfg: Config, a: Win
     (a.unbalance.points_to.length ? `\npoints to:\n${a.unbalance.points_to.map((p) => `  - ${p.cause}: ${p.why}`).join('\n')}` : '') +
     (a.unbalance.limits.length ? `\nnot judged:\n${a.unbalance.limits.map((l) => `  - ${l}`).join('\n')}` : '') +
     (a.sensors.some((h) => !h.ok) ? `\nsensors not OK:\n${a.sensors.filter((h) => !h.ok).map((h) => `  - ${h.id}: ${h.problems.join('; ')}`).join('\n')}` : '');
-  const tail = verdict + (peaks.length ? `\n\nlargest non-synchronous peaks:\n${peaks.join('\n')}` : '') + (w.warnings.length ? `\n\nwarnings:\n${w.warnings.map((x) => `  - ${x}`).join('\n')}` : '');
+  const warnings = analysisWarnings(w, a);
+  const tail = verdict + (peaks.length ? `\n\nlargest non-synchronous peaks:\n${peaks.join('\n')}` : '') + (warnings.length ? `\n\nwarnings:\n${warnings.map((x) => `  - ${x}`).join('\n')}` : '');
   return head + table(header, rows) + tail + '\n';
 }
 

@@ -1,8 +1,8 @@
 import { randomBytes } from 'node:crypto';
-import { mkdtempSync, readFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { createServer, type Server } from 'node:net';
 import { tmpdir } from 'node:os';
-import { join } from 'node:path';
+import { join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { parse } from 'yaml';
 import { createSource } from '../../../drivers/create-source.js';
@@ -19,7 +19,7 @@ const num = (name: string, raw: string | undefined, def: number, min: number, ma
   numberOption('demo', usage, name, raw, (v) => v >= min && v <= max, `a number from ${min} to ${max}`) ?? def;
 import type { Command } from '../command.js';
 
-const usage = 'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S]';
+const usage = 'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S] [--state-dir DIR]';
 
 const CONFIG_DIR = fileURLToPath(new URL('../../../../config/', import.meta.url));
 
@@ -68,6 +68,7 @@ export const demoCommand: Command = {
       speed: { type: 'string' },
       'from-day': { type: 'string' },
       seconds: { type: 'string' },
+      'state-dir': { type: 'string' },
     });
     const speed = num('speed', values.speed, 3600, 1, 1e6);
     const fromDay = num('from-day', values['from-day'], 0, 0, 7);
@@ -90,82 +91,90 @@ export const demoCommand: Command = {
       };
     }
 
-    const token = randomBytes(18).toString('base64url');
-    const configFile = join(CONFIG_DIR, 'example.yaml');
-    const raw = parse(readFileSync(configFile, 'utf8')) as Record<string, unknown>;
-    const stateDir = mkdtempSync(join(tmpdir(), 'turnwise-demo-'));
-    const prefix = 'demo/kessrow';
-    const cfg = validateConfig(
-      {
-        ...raw,
-        acquisition: { driver: 'sim', scenario: 'example-scenario.yaml', pace: 'realtime', time_scale: speed, from_day: fromDay },
-        mqtt: { url: brokerUrl, topic_prefix: prefix },
-        // A laptop has no GPIO lines: the advisory drives lines in memory, shown in events.
-        // The demo raises it from zone C (the default is zone D) so the invented week shows one.
-        advisory: { relay: { line: 17 }, lamp: { line: 27 }, zone: 'C', hold_s: 1 },
-        live: { bind: '127.0.0.1', port: livePort, tokens: [{ name: 'demo-operator', role: 'operator', env: 'TURNWISE_DEMO_TOKEN' }] },
-        state_dir: stateDir,
-      },
-      'demo config (config/example.yaml with demo settings)',
-    );
-    const { source } = createSource(cfg, configFile, { log });
-    const startMs = Date.UTC(2026, 0, 5, 0, 0, 0) + fromDay * 86400_000;
-    let agent: Agent;
-    const live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() }, { ...process.env, TURNWISE_DEMO_TOKEN: token });
-    agent = new Agent({
-      config: cfg,
-      source,
-      boardTimesTach: false,
-      clock: systemClock,
-      logger: log,
-      gpio: new FakeGpioLines(),
-      startMs,
-      timeScale: speed,
-      windowConsumers: [
+    // State (outbox, advisory latch, history) goes to the user's directory, which is kept, or to a
+    // temporary one removed when the demo ends, however it ends (Ctrl-C, --seconds, an error).
+    const givenState = values['state-dir'];
+    const stateDir = givenState !== undefined ? resolve(givenState) : mkdtempSync(join(tmpdir(), 'turnwise-demo-'));
+    if (givenState !== undefined) mkdirSync(stateDir, { recursive: true });
+    try {
+      const token = randomBytes(18).toString('base64url');
+      const configFile = join(CONFIG_DIR, 'example.yaml');
+      const raw = parse(readFileSync(configFile, 'utf8')) as Record<string, unknown>;
+      const prefix = 'demo/kessrow';
+      const cfg = validateConfig(
         {
-          onWindow: (w, at) => {
-            live.onWindow(w, at);
-            if (agent.status) live.onWatch(agent.status);
-          },
+          ...raw,
+          acquisition: { driver: 'sim', scenario: 'example-scenario.yaml', pace: 'realtime', time_scale: speed, from_day: fromDay },
+          mqtt: { url: brokerUrl, topic_prefix: prefix },
+          // A laptop has no GPIO lines: the advisory drives lines in memory, shown in events.
+          // The demo raises it from zone C (the default is zone D) so the invented week shows one.
+          advisory: { relay: { line: 17 }, lamp: { line: 27 }, zone: 'C', hold_s: 1 },
+          live: { bind: '127.0.0.1', port: livePort, tokens: [{ name: 'demo-operator', role: 'operator', env: 'TURNWISE_DEMO_TOKEN' }] },
+          state_dir: stateDir,
         },
-      ],
-      liveConsumers: [live],
-      onEvent: (e) => process.stdout.write(`  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`),
-    });
-    agent.handlers.balancingSession = (a) => live.workbench.sessionCommand(a);
-    let url: string;
-    try {
-      ({ url } = await live.start());
-    } catch (e) {
-      await closeBroker();
-      throw e;
-    }
-    const [host, port] = brokerUrl.replace('mqtt://', '').split(':');
-    process.stdout.write(
-      `turnwise demo: the invented Kessrow Board Mill ID fan 3A, simulated (INVENTED DATA)\n` +
-        `  live page   ${url}\n` +
-        `  token       ${token}   (operator role; the page asks for it)\n` +
-        `  MQTT        ${brokerUrl}${values.broker ? '' : ' (embedded broker)'}\n` +
-        `  watch with  mosquitto_sub -h ${host} -p ${port ?? 1883} -t '${prefix}/#' -v\n` +
-        `  topics      ${prefix}/${cfg.machine.id}/status, /heartbeat, /live, /event/<type>, /cmd, /cmd/reply\n` +
-        `  timeline    one scenario day every ${(86400 / speed).toFixed(0)} s: start-up, build-up from day 3, a cable fault on day 4,\n` +
-        `              a balance weight thrown on day 5 (alarm and safe-stop advisory), stop on day 6\n` +
-        `  advisory    demo condition: zone C or worse on two OK channels of one bearing for 1 s of signal (default: zone D for 3 s)\n` +
-        `  state       ${stateDir}\n` +
-        `The safe-stop advisory is an advice to people, not a protective trip. Ctrl-C stops the demo.\nEvents:\n`,
-    );
-    const stop = () => agent.stop();
-    process.once('SIGINT', stop);
-    process.once('SIGTERM', stop);
-    const timer = Number.isFinite(seconds) ? setTimeout(stop, seconds * 1000) : undefined;
-    try {
-      await agent.run(2000);
+        'demo config (config/example.yaml with demo settings)',
+      );
+      const { source } = createSource(cfg, configFile, { log });
+      const startMs = Date.UTC(2026, 0, 5, 0, 0, 0) + fromDay * 86400_000;
+      let agent: Agent;
+      const live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() }, { ...process.env, TURNWISE_DEMO_TOKEN: token });
+      agent = new Agent({
+        config: cfg,
+        source,
+        boardTimesTach: false,
+        clock: systemClock,
+        logger: log,
+        gpio: new FakeGpioLines(),
+        startMs,
+        timeScale: speed,
+        windowConsumers: [
+          {
+            onWindow: (w, at) => {
+              live.onWindow(w, at);
+              if (agent.status) live.onWatch(agent.status);
+            },
+          },
+        ],
+        liveConsumers: [live],
+        onEvent: (e) => process.stdout.write(`  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`),
+      });
+      agent.handlers.balancingSession = (a) => live.workbench.sessionCommand(a);
+      const { url } = await live.start();
+      const [host, port] = brokerUrl.replace('mqtt://', '').split(':');
+      process.stdout.write(
+        `turnwise demo: the invented Kessrow Board Mill ID fan 3A, simulated (INVENTED DATA)\n` +
+          `  live page   ${url}\n` +
+          `  token       ${token}   (operator role; the page asks for it)\n` +
+          `  MQTT        ${brokerUrl}${values.broker ? '' : ' (embedded broker)'}\n` +
+          `  watch with  mosquitto_sub -h ${host} -p ${port ?? 1883} -t '${prefix}/#' -v\n` +
+          `  topics      ${prefix}/${cfg.machine.id}/status, /heartbeat, /live, /event/<type>, /cmd, /cmd/reply\n` +
+          `  timeline    one scenario day every ${(86400 / speed).toFixed(0)} s: start-up, build-up from day 3, a cable fault on day 4,\n` +
+          `              a balance weight thrown on day 5 (alarm and safe-stop advisory), stop on day 6\n` +
+          `  advisory    demo condition: zone C or worse on two OK channels of one bearing for 1 s of signal (default: zone D for 3 s)\n` +
+          `  state       ${stateDir}${givenState === undefined ? '   (temporary: removed when the demo ends; --state-dir DIR keeps it)' : ''}\n` +
+          `The safe-stop advisory is an advice to people, not a protective trip. Ctrl-C stops the demo.\nEvents:\n`,
+      );
+      const stop = () => agent.stop();
+      process.once('SIGINT', stop);
+      process.once('SIGTERM', stop);
+      const timer = Number.isFinite(seconds) ? setTimeout(stop, seconds * 1000) : undefined;
+      try {
+        await agent.run(2000);
+      } finally {
+        if (timer) clearTimeout(timer);
+        await live.stop();
+      }
+      return 0;
     } finally {
-      if (timer) clearTimeout(timer);
-      await live.stop();
       await closeBroker();
+      if (givenState === undefined) {
+        try {
+          rmSync(stateDir, { recursive: true, force: true });
+        } catch (e) {
+          process.stderr.write(`turnwise demo: could not remove the temporary state directory ${stateDir}: ${(e as Error).message}\n`);
+        }
+      }
     }
-    return 0;
   },
 };
 
