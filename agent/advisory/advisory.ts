@@ -8,6 +8,7 @@ import type { Logger } from '../log.js';
 import type { AdvisoryInput } from './input.js';
 import type { LatchRecord, LatchStore } from './latch-file.js';
 import { countVotes, type Vote, type VoteSettings } from './vote.js';
+import { advisoryOutputs } from './release.js';
 
 /**
  * Local safe-stop ADVISORY: a relay and a lamp that tell the people at the fan it should be stopped
@@ -139,8 +140,8 @@ export class SafeStopAdvisory {
   static async start(opts: AdvisoryOptions): Promise<SafeStopAdvisory> {
     const a = new SafeStopAdvisory(opts);
     const { gpio, settings: s } = opts;
-    if (s.relay) a.relay = await gpio.output('advisory relay', s.relay.line, { activeLow: s.relay.activeLow, initial: false });
-    if (s.lamp) a.lamp = await gpio.output('advisory lamp', s.lamp.line, { activeLow: s.lamp.activeLow, initial: false });
+    // The same names and lines that `turnwise outputs-off` drops after the agent died (release.ts).
+    for (const o of advisoryOutputs(s)) a[o.role] = await gpio.output(o.name, o.line, { activeLow: o.activeLow, initial: false });
     if (s.button) {
       a.button = await gpio.input('advisory acknowledge button', s.button.line, { activeLow: s.button.activeLow, debounceMs: s.button.debounceMs, edge: 'both' });
       a.unwatch = a.button.watch((pressed) => {

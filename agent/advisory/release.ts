@@ -2,10 +2,10 @@ import type { GpioLines } from '../../drivers/gpio/types.js';
 import type { AdvisorySettings } from './advisory.js';
 
 /** The outputs the advisory drives, with the names it opens them under. */
-export function advisoryOutputs(s: Pick<AdvisorySettings, 'relay' | 'lamp'>): { name: string; line: number; activeLow: boolean }[] {
-  const out: { name: string; line: number; activeLow: boolean }[] = [];
-  if (s.relay) out.push({ name: 'advisory relay', line: s.relay.line, activeLow: s.relay.activeLow });
-  if (s.lamp) out.push({ name: 'advisory lamp', line: s.lamp.line, activeLow: s.lamp.activeLow });
+export function advisoryOutputs(s: Pick<AdvisorySettings, 'relay' | 'lamp'>): { role: 'relay' | 'lamp'; name: string; line: number; activeLow: boolean }[] {
+  const out: { role: 'relay' | 'lamp'; name: string; line: number; activeLow: boolean }[] = [];
+  if (s.relay) out.push({ role: 'relay', name: 'advisory relay', line: s.relay.line, activeLow: s.relay.activeLow });
+  if (s.lamp) out.push({ role: 'lamp', name: 'advisory lamp', line: s.lamp.line, activeLow: s.lamp.activeLow });
   return out;
 }
 
