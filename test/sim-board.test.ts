@@ -2,7 +2,8 @@
  * The simulated fan playing the serial acquisition board: SimBoardSignal against the simulator it
  * wraps, then the whole path through a real pseudo-terminal made by socat (Debian package socat):
  * FanSimulator -> frames -> socat pty -> SerialSource -> measurement core, in process and through the
- * `turnwise sim-board` command as a real process.
+ * `turnwise sim-board` command as a real process; clean, and with faults injected on the line (garbage
+ * bytes, frames with a bad CRC, the link vanishing and coming back).
  */
 import { spawn, execFileSync } from 'node:child_process';
 import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
@@ -18,12 +19,13 @@ import { MemoryLogger } from '../agent/log.js';
 import { createSource } from '../drivers/create-source.js';
 import { BoardEmulator, playRealtime } from '../drivers/serial/board-emulator.js';
 import { frameLength } from '../drivers/serial/frame.js';
+import { FrameFaults, type CorruptedFrame } from '../drivers/serial/link-faults.js';
 import { SerialSource } from '../drivers/serial/serial-source.js';
 import { SocatLink } from '../drivers/serial/socat-link.js';
 import { boardScales, SimBoardSignal } from '../drivers/sim/board-signal.js';
 import { loadScenario, resolveScenario } from '../drivers/sim/scenario.js';
 import { FanSimulator, type OrderVectorModel } from '../drivers/sim/simulator.js';
-import type { SampleSource, SourceInfo } from '../drivers/source.js';
+import type { GapMarker, SampleSource, SourceInfo } from '../drivers/source.js';
 import { expectNoStack, runCli } from './support/cli.js';
 import { PtyPair } from './support/pty-pair.js';
 import { angleDiff, plan as testPlan, testScenario } from './sim-fixtures.js';
@@ -77,6 +79,27 @@ function expectModel1x(w: WindowResult, model: readonly { id: string; amp_pk_mm_
     worstPhase = Math.max(worstPhase, ph);
   }
   return { amp_pct: worstAmp * 100, phase_deg: worstPhase };
+}
+
+/** The invented fan at day 5 15:00 playing a board of `channels` int24 inputs in 256-sample frames. */
+function dayFiveBoard(cfg: Config, channels: number, tachTimed: boolean): { sim: FanSimulator; board: BoardEmulator } {
+  const sim = new FanSimulator(resolveScenario(loadScenario('config/example-scenario.yaml'), cfg), { startS: DAY5_1500 * 86400 });
+  const board = new BoardEmulator(new SimBoardSignal(sim, { channelCount: channels, maxBlock: 256 }), {
+    sampleRateHz: sim.sampleRate,
+    samplesPerFrame: 256,
+    format: 'int24',
+    scaleVPerCount: boardScales(sim.plan, channels, 'int24'),
+    tachTimed,
+  });
+  return { sim, board };
+}
+
+/** Waits until the agent's source has opened the device (so the board can start without losing a frame). */
+async function untilConnected(source: SampleSource, device: string): Promise<void> {
+  for (const t0 = Date.now(); !source.health!().connected; ) {
+    if (Date.now() - t0 > 5000) throw new Error(`the agent did not open ${device}: ${JSON.stringify(source.health!())}`);
+    await new Promise((r) => setTimeout(r, 20));
+  }
 }
 
 describe('SimBoardSignal: the simulated fan as the board\'s inputs', () => {
@@ -187,14 +210,7 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
     const device = join(dir, 'board');
     // a 6-channel board: the tach reaches the agent only as edge times in the frames
     const cfg = demoConfig({ driver: 'serial', device, sample_rate_hz: 25600, channels: 6, board_tach_edges: true, reconnect_min_ms: 100 });
-    const sim = new FanSimulator(resolveScenario(loadScenario(scenarioFile), cfg), { startS: DAY5_1500 * 86400 });
-    const board = new BoardEmulator(new SimBoardSignal(sim, { channelCount: 6, maxBlock: 256 }), {
-      sampleRateHz: sim.sampleRate,
-      samplesPerFrame: 256,
-      format: 'int24',
-      scaleVPerCount: boardScales(sim.plan, 6, 'int24'),
-      tachTimed: true,
-    });
+    const { sim, board } = dayFiveBoard(cfg, 6, true);
     // a second of frames may wait for socat (as turnwise sim-board allows), so a stall of this process loses nothing
     const link = await SocatLink.start({ kind: 'pty', link: device }, { maxBacklogBytes: 100 * frameLength(6, 256, 'int24', 0) });
     let stop = false;
@@ -204,10 +220,7 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       expect(boardTimesTach).toBe(true);
       const info = await source.open();
       // the board starts once the agent listens, so no frame is dropped at the start
-      for (const t0 = Date.now(); !source.health!().connected; ) {
-        if (Date.now() - t0 > 5000) throw new Error(`the agent did not open ${device}: ${JSON.stringify(source.health!())}`);
-        await new Promise((r) => setTimeout(r, 20));
-      }
+      await untilConnected(source, device);
       const playing = playRealtime(board, { write: async (b) => void link.write(b) }, (256 / 25600) * 1000, () => stop);
       const { w, gaps } = await measure(source, info, cfg, boardTimesTach, MEASURE_S);
       stop = true;
@@ -220,6 +233,81 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       console.log(`in process, board-timed tach: ${w.revolutions} revolutions, ${gaps} gap(s), ${link.framesSent} frames sent, ${link.framesDropped} dropped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
     } finally {
       stop = true;
+      await link.stop();
+    }
+    expect(existsSync(device)).toBe(false);
+  }, 30_000);
+
+  it(`in process, with garbage bytes and damaged frames on the line: every lost frame is a gap with exact bounds, CRC failures are counted, and the model's 1x is still found`, async () => {
+    const dir = tempDir();
+    const device = join(dir, 'board');
+    // 7 channels with the tach digitised on channel 6: the tach detector also has to pick up again after each gap
+    const cfg = demoConfig({ driver: 'serial', device, sample_rate_hz: 25600, channels: 7, reconnect_min_ms: 100 });
+    const { sim, board } = dayFiveBoard(cfg, 7, false);
+    // 600 frames (6 s): 200 garbage bytes after every 7th frame (85 bursts), one bit flipped in every 37th
+    // (16 frames); the last frame is intact, so the last damaged one shows as a gap too
+    const FRAMES = 600;
+    const corrupted: CorruptedFrame[] = [];
+    const faults = new FrameFaults({ garbageEvery: 7, garbageBytes: 200, corruptEvery: 37, seed: 11 }, (f) => corrupted.push(f));
+    const link = await SocatLink.start({ kind: 'pty', link: device }, { maxBacklogBytes: 100 * frameLength(7, 256, 'int24', 0) });
+    let corruptedBytes = 0;
+    let written = 0;
+    try {
+      const { source, boardTimesTach } = createSource(cfg, join(dir, 'agent.yaml'), { log: new MemoryLogger() });
+      expect(boardTimesTach).toBe(false);
+      const info = await source.open();
+      await untilConnected(source, device);
+      let frames = 0;
+      const playing = playRealtime(
+        board,
+        {
+          write: async (b) => {
+            const before = faults.corruptedFrames;
+            const bytes = faults.apply(b);
+            if (faults.corruptedFrames > before) corruptedBytes += b.length;
+            written += bytes.length;
+            link.write(bytes);
+            frames++;
+          },
+        },
+        (256 / 25600) * 1000,
+        () => frames >= FRAMES,
+      );
+      // the agent side: the measurement core, and every block and gap as the source hands them out
+      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 4096, boardTimesTach, sourceName: info.description });
+      const gaps: GapMarker[] = [];
+      let next = 0;
+      for await (const item of source.items()) {
+        an.push(item);
+        if (item.kind === 'gap') {
+          gaps.push(item);
+          next = item.toIndex;
+        } else {
+          // blocks and gaps tile the board's sample clock: nothing lost unreported, nothing reported twice
+          expect(item.startIndex).toBe(next);
+          next = item.startIndex + item.channels[0]!.length;
+        }
+        if (next >= FRAMES * 256) break;
+      }
+      await playing;
+      const h = source.health!() as Record<string, unknown>;
+      await source.close();
+      const w = an.takeWindow();
+
+      expect(link.framesDropped).toBe(0);
+      expect(faults).toMatchObject({ frames: FRAMES, garbageBursts: 85, garbageBytes: 85 * 200, corruptedFrames: 16 });
+      // each damaged frame, and only those, is a gap with the frame's exact sample-clock bounds (PROTOCOL.md)
+      expect(gaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(corrupted.map((f) => [f.first_sample, f.first_sample + f.samples]));
+      expect(corrupted.map((f) => f.sequence)).toEqual(Array.from({ length: 16 }, (_, k) => 37 * (k + 1) - 1));
+      for (const g of gaps) expect(g.reason).toMatch(/1 CRC error/);
+      // garbage costs no samples: all of it and the damaged frames are skipped, nothing else
+      expect(h).toMatchObject({ bytes_received: written, frames_ok: FRAMES - 16, crc_errors: 16, bad_lengths: 0, bad_headers: 0, gaps: 16, samples_lost: 16 * 256, bytes_skipped: 85 * 200 + corruptedBytes });
+      expect(w.gap_samples).toBe(16 * 256);
+      // each gap costs the revolution it falls in and the tach's pick-up after it; the rest is averaged
+      expect(w.revolutions).toBeGreaterThan(100);
+      const worst = expectModel1x(w, sim.modelOrder(1));
+      console.log(`in process, garbage and bad CRCs: ${w.revolutions} revolutions (${w.revolutions_rejected} rejected), ${gaps.length} gap(s), ${h['crc_errors']} CRC error(s), ${h['resyncs']} resync(s), ${h['bytes_skipped']} bytes skipped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
+    } finally {
       await link.stop();
     }
     expect(existsSync(device)).toBe(false);
@@ -269,6 +357,103 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
     expect(existsSync(device)).toBe(false);
     const running = execFileSync('ps', ['-eo', 'args'], { encoding: 'utf8' });
     expect(running).not.toContain(`link=${device}`);
+  }, 30_000);
+});
+
+describe('turnwise sim-board with faults injected', () => {
+  it('garbage, bad CRCs and a link that vanishes and comes back: the agent reports every loss as a gap with exact bounds, reconnects, and finds the model\'s 1x', async () => {
+    const dir = tempDir();
+    const device = join(dir, 'sim-board');
+    const agentConfig = join(dir, 'agent.yaml');
+    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<string, unknown>;
+    writeFileSync(agentConfig, JSON.stringify({ ...raw, acquisition: { driver: 'serial', device, sample_rate_hz: 25600, channels: 7, reconnect_min_ms: 100, reconnect_max_ms: 200 } }));
+    const args = ['--garbage-every', '5', '--garbage-bytes', '100', '--corrupt-every', '50', '--link-drop-at', '2', '--link-down-s', '1', '--seconds', '12'];
+    const child = spawn(process.execPath, [CLI, 'sim-board', '--scenario', 'config/example-scenario.yaml', '--config', agentConfig, '--link', device, '--from-day', String(DAY5_1500), ...args, '--json'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    let stdout = '';
+    let stderr = '';
+    child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
+    child.stderr.on('data', (d: Buffer) => (stderr += d.toString()));
+    const exited = new Promise<number | null>((res) => child.once('exit', (code) => res(code)));
+    const cfg = validateConfig(readYamlFile(agentConfig, 'config', agentConfig), agentConfig);
+    const { source, boardTimesTach } = createSource(cfg, agentConfig, { log: new MemoryLogger() });
+    try {
+      const info = await source.open(); // waits for the link to appear, as the agent does
+      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 4096, boardTimesTach, sourceName: info.description });
+      const gaps: GapMarker[] = [];
+      let next: number | null = null;
+      let first: number | null = null;
+      let samples = 0;
+      const reading = (async () => {
+        for await (const item of source.items()) {
+          an.push(item);
+          if (item.kind === 'gap') {
+            gaps.push(item);
+            expect(item.fromIndex).toBe(next);
+            next = item.toIndex;
+          } else {
+            if (next !== null) expect(item.startIndex).toBe(next);
+            first ??= item.startIndex;
+            next = item.startIndex + item.channels[0]!.length;
+            samples += item.channels[0]!.length;
+          }
+        }
+      })();
+      expect(await exited).toBe(0);
+      // what was written before sim-board ended has been read once the agent goes quiet
+      for (let last = -1; samples !== last; ) {
+        last = samples;
+        await new Promise((r) => setTimeout(r, 300));
+      }
+      const h = source.health!() as Record<string, number>;
+      await source.close();
+      await reading;
+      const w = an.takeWindow();
+      const summary = JSON.parse(stdout) as Record<string, number> & { model_1x_end: OrderVectorModel[] };
+      expect(stderr).toMatch(/faults injected: 100 garbage bytes after every 5 frames; one bit flipped \(bad CRC\) in one frame in 50; the link removed at 2 s of signal and made again 1 s later/);
+      expect(stderr).toMatch(/link dropped at 2\.00 s of signal: .*sim-board removed, made again in 1 s\n[^]*link back at 3\.00 s of signal/);
+      // 12 s of frames: those from 2 s to 3 s of signal never sent (the link was gone); the rest handed to
+      // socat, or dropped whole when the agent was more than a second late to read (rare, on a loaded machine)
+      expect(summary, stdout).toMatchObject({ stopped_by: 'seconds', link_drops: 1, frames_unsent_link_down: 100, garbage_bursts: 220, garbage_bytes: 22_000, frames_corrupted: 22 });
+      expect(summary.frames_sent + summary.frames_dropped).toBe(1100);
+      // The frames damaged: every 50th handed to the link, i.e. sequence 49, 99, 149, 199 before the drop and
+      // (the count going on after the 100 unsent frames) 349, 399, ... 1199 after it.
+      const damaged = Array.from({ length: 1200 }, (_, seq) => seq).filter((seq) => (seq < 200 ? seq + 1 : seq >= 300 ? seq + 1 - 100 : 1) % 50 === 0);
+      expect(damaged).toHaveLength(22);
+      // one gap for the link drop: from the last frame before it to the first read after the agent reopened
+      const down = gaps.filter((g) => /device disconnected/.test(g.reason));
+      expect(down).toHaveLength(1);
+      expect(down[0]!.fromIndex).toBeLessThanOrEqual(200 * 256);
+      expect(down[0]!.toIndex).toBeGreaterThanOrEqual(300 * 256);
+      expect(down[0]!.fromIndex % 256).toBe(0);
+      expect(down[0]!.toIndex % 256).toBe(0);
+      // frames the board dropped whole (none, unless the agent fell a second behind) are gaps of their own
+      const crcGap = /^sequence jump \d+ -> \d+ \(1 frame\(s\) missing\); since the last good frame: 1 CRC error\(s\), 5576 byte\(s\) skipped$/;
+      const crcGaps = gaps.filter((g) => g !== down[0] && crcGap.test(g.reason));
+      const boardDrops = gaps.filter((g) => g !== down[0] && !crcGap.test(g.reason));
+      for (const g of boardDrops) expect(g.reason).toMatch(/^sequence jump \d+ -> \d+ \(\d+ frame\(s\) missing\)/);
+      expect(boardDrops.reduce((n, g) => n + (g.toIndex - g.fromIndex) / 256, 0)).toBeLessThanOrEqual(summary.frames_dropped);
+      // every CRC gap is one damaged frame, exactly its samples; every damaged frame is one, unless it fell
+      // in another gap, before the first frame the agent read (it opens the link a moment after it appears)
+      // or is the very last frame (1199: no good frame follows to show its gap)
+      const inOther = (seq: number) => [...down, ...boardDrops].some((g) => seq * 256 >= g.fromIndex && seq * 256 < g.toIndex);
+      expect(first!).toBeLessThan(20 * 256);
+      expect(crcGaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(damaged.filter((seq) => seq * 256 > first! && seq * 256 < next! && !inOther(seq)).map((seq) => [seq * 256, (seq + 1) * 256]));
+      expect(crcGaps.length).toBeGreaterThanOrEqual(18);
+      // CRC failures counted: those gaps, the last frame, and any damaged frame read just before another gap
+      // (e.g. frame 199 just before the link drop, its gap then merged into the drop's)
+      expect(h['crc_errors']).toBeGreaterThanOrEqual(crcGaps.length + 1);
+      expect(h['crc_errors']).toBeLessThanOrEqual(crcGaps.length + 1 + down.length + boardDrops.length);
+      expect(h).toMatchObject({ reconnects: 1, bad_lengths: 0, bad_headers: 0, rejected_frames: 0, gaps: gaps.length });
+      const worst = expectModel1x(w, summary.model_1x_end);
+      console.log(`sim-board process with faults: ${w.revolutions} revolutions, ${gaps.length} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
+    } finally {
+      await source.close();
+      if (child.exitCode === null) {
+        child.kill('SIGKILL');
+        await exited;
+      }
+    }
+    expect(existsSync(device)).toBe(false);
   }, 30_000);
 });
 
@@ -356,6 +541,8 @@ describe('turnwise sim-board: bad input', () => {
       [[...base, '--link', join(dir, 'b'), '--format', 'int12'], /--format: expected one of int24, int16, float32, got "int12"/],
       [[...base, '--link', join(dir, 'b'), '--baud', '9600'], /--baud applies to --device only/],
       [[...base, '--link', join(dir, 'b,c')], /b,c: socat cannot take a path with "," or "!" in it\n\s+-> choose a path without them/],
+      [[...base, '--device', '/dev/null', '--link-drop-at', '1'], /--link-drop-at needs the pseudo-terminal \(--link\): a serial device given with --device cannot be removed and made again/],
+      [[...base, '--link', join(dir, 'b'), '--garbage-every', '0'], /turnwise sim-board --garbage-every: expected a whole number of frames from 1 to 1000000, got "0"/],
     ];
     for (const [args, want] of cases) {
       const r = runCli(args);

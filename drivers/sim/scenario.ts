@@ -177,7 +177,7 @@ const eventSchema = z
       .object({
         bearing: name,
         direction: z.enum(['vertical', 'horizontal', 'axial']),
-        natural_hz: positive.max(1e5).optional(),
+        natural_hz: positive.max(1e5).optional().describe('New natural frequency, Hz. Default: unchanged, or moved with sqrt(new/old stiffness) when stiffness_mn_per_m is given (same mass on the support).'),
         stiffness_mn_per_m: positive.max(1e5).optional(),
         damping_ratio: z.number().gt(0).lt(1).optional(),
         ramp_days: rampDays,

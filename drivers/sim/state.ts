@@ -282,9 +282,11 @@ export class FanState {
       const b = this.bearingIndex(c.bearing);
       const slot = this.supportSlot(b, c.direction);
       const from = this.support(b, c.direction, tc);
+      const k = c.stiffness_mn_per_m !== undefined ? c.stiffness_mn_per_m * 1e6 : from.stiffness_n_per_m;
       const to: SupportDynamics = {
-        stiffness_n_per_m: c.stiffness_mn_per_m !== undefined ? c.stiffness_mn_per_m * 1e6 : from.stiffness_n_per_m,
-        natural_hz: c.natural_hz ?? from.natural_hz,
+        stiffness_n_per_m: k,
+        // a stiffness change alone keeps the mass on the support: f_n = sqrt(k/m) / 2 pi moves with sqrt(k)
+        natural_hz: c.natural_hz ?? from.natural_hz * Math.sqrt(k / from.stiffness_n_per_m),
         damping_ratio: c.damping_ratio ?? from.damping_ratio,
       };
       slot.base = to;
