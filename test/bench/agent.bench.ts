@@ -6,7 +6,9 @@
  *     steady RSS; the simulated fan throws a balance weight part-way and the time from that step to
  *     the MQTT event is measured at the subscriber;
  *  2. soak: 7 simulated days played faster than real time (time_scale 60: a minute of the scenario per
- *     second of signal): RSS over the run and the state directory's size on disk;
+ *     second of signal): RSS, V8's young generation, live heap and ArrayBuffers after GC beside the
+ *     history's size (the heap just after each merge of the history compares like with like), and
+ *     the state directory's size on disk;
  *  3. outage: one simulated day with the broker unreachable, then the broker comes back: events kept on
  *     disk, bytes, and the time to deliver them.
  * Figures go to stdout; progress to stderr.
@@ -138,15 +140,18 @@ async function soak(days: number, timeScale: number): Promise<void> {
   if (!gc) return void (await b.close());
   console.log(`soak live heap after GC at 10/50/90/100 %: ${series((s) => mb(s.heap))} MB with ${series((s) => String(s.hist))} history points; ArrayBuffers ${series((s) => mb(s.ab, 2))} MB`);
   // The history is bounded: it grows to max_points, then is merged back to 3/4 of it and grows again.
-  const full = samples.findIndex((s) => s.hist >= maxPoints);
-  if (full < 0) console.log(`soak: the history did not reach max_points ${maxPoints}`);
+  const full = samples.findIndex((s, i) => i > 0 && s.hist < samples[i - 1]!.hist);
+  if (full < 0) console.log(`soak: the history did not reach max_points ${maxPoints} (no merge seen)`);
   else {
     const after = samples.slice(full);
     const h = after.map((s) => s.heap);
     console.log(
-      `soak: history full (${maxPoints} points) from window ${after[0]!.win} (${((full / samples.length) * 100).toFixed(0)} % of the run); after that live heap ${mb(Math.min(...h))}-${mb(Math.max(...h))} MB ` +
+      `soak: history full (${maxPoints} points, first merge) at window ${after[0]!.win} (${((full / samples.length) * 100).toFixed(0)} % of the run); after that live heap ${mb(Math.min(...h))}-${mb(Math.max(...h))} MB ` +
         `(first ${mb(h[0]!)}, last ${mb(h[h.length - 1]!)} MB), ArrayBuffers ${mb(after[0]!.ab, 2)} -> ${mb(after[after.length - 1]!.ab, 2)} MB`,
     );
+    // Like for like: the heap just after each merge, when the history is back to about 3/4 of max_points.
+    const merged = samples.filter((s, i) => i > 0 && s.hist < samples[i - 1]!.hist);
+    console.log(`soak: live heap just after each merge of the history: ${merged.map((s) => `${mb(s.heap)} MB (window ${s.win}, ${s.hist} points)`).join(', ')}`);
   }
   await b.close();
 }
