@@ -4,6 +4,7 @@ import type { AddOutcome, Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
 import { SCHEMA_IDS, type HeartbeatPayload, type LinkHealth, type LivePayload, type ReplyPayload, type StatusPayload } from './payloads.js';
+import { settleMqttPacketCaches } from './packet-cache.js';
 import type { MqttSettings } from './settings.js';
 
 /**
@@ -122,6 +123,8 @@ export class MqttPublisher {
     if (this.started) throw new Error('publisher already started');
     this.started = true;
     this.startedAt = this.now();
+    // Before the first packet: mqtt-packet's process-wide caches must not grow over months (packet-cache.ts).
+    settleMqttPacketCaches();
     this.unsubscribeOutbox = this.outbox.onChange(() => this.pump());
     this.heartbeatTimer = setInterval(() => this.heartbeat(), this.s.heartbeatMs);
     this.heartbeatTimer.unref();
@@ -220,6 +223,8 @@ export class MqttPublisher {
       keepalive: this.s.keepaliveS,
       queueQoSZero: false,
       resubscribe: false,
+      // No 65536-entry number cache (6.5 MB of heap) for a few messages a second (packet-cache.ts).
+      writeCache: false,
       will: { topic: this.s.topics.status, payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))), qos: 1, retain: true },
       username: this.s.username,
       password: this.s.password?.reveal(),
