@@ -197,6 +197,11 @@ export class Watcher {
     return this.baselineValue;
   }
 
+  /** History points in memory (at most watcher.history.max_points). */
+  get historySize(): number {
+    return this.history.points.length;
+  }
+
   /** Reads the stored influence coefficients again (call after a balancing job saved new ones). */
   reloadCoefficients(): void {
     try {

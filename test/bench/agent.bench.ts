@@ -16,6 +16,7 @@ import { mkdtempSync, readdirSync, readFileSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { getHeapSpaceStatistics } from 'node:v8';
 import { connect } from 'mqtt';
 import { parse } from 'yaml';
 import { Aedes } from 'aedes';
@@ -26,6 +27,7 @@ import { silentLogger } from '../../agent/log.js';
 import { Agent } from '../../agent/runtime/agent.js';
 
 const log = (s: string) => process.stderr.write(`bench: ${s}\n`);
+const mb = (bytes: number, digits = 1) => (bytes / 2 ** 20).toFixed(digits);
 const configFile = fileURLToPath(new URL('../../../config/example.yaml', import.meta.url));
 const arg = (name: string, def: number) => {
   const i = process.argv.indexOf(`--${name}`);
@@ -102,16 +104,20 @@ async function soak(days: number, timeScale: number): Promise<void> {
   const { source } = createSource(cfg, configFile, { log: silentLogger });
   const agent = new Agent({ config: cfg, source, boardTimesTach: false, clock: systemClock, logger: silentLogger, startMs: Date.UTC(2026, 0, 5), timeScale });
   const signalS = (days * 86400) / timeScale;
-  const rss: number[] = [];
-  const heap: number[] = [];
+  const maxPoints = cfg.watcher.history.max_points;
+  const windowSamples = cfg.watcher.window_s * 25600;
+  // One sample a second: RSS; live heap and ArrayBuffer memory after a full collection (a leak shows
+  // there; RSS alone also shows the allocator's slack); V8's young generation; the history's size.
+  const samples: Array<{ win: number; rss: number; heap: number; ab: number; young: number; hist: number }> = [];
   const gc = (globalThis as { gc?: () => void }).gc;
   const t0 = Date.now();
   const timer = setInterval(() => {
-    // Live heap after a full collection shows a leak; RSS alone also shows the allocator's slack.
     gc?.();
-    rss.push(process.memoryUsage().rss);
-    heap.push(process.memoryUsage().heapUsed);
-    if (rss.length % 10 === 0) log(`soak: ${((Date.now() - t0) / 1000).toFixed(0)} s, RSS ${(rss[rss.length - 1]! / 2 ** 20).toFixed(0)} MB, heap ${(heap[heap.length - 1]! / 2 ** 20).toFixed(1)} MB`);
+    const m = process.memoryUsage();
+    const young = getHeapSpaceStatistics().find((s) => s.space_name === 'new_space')?.space_size ?? 0;
+    samples.push({ win: agent.status?.window ? Math.round(agent.status.window.end_index / windowSamples) : 0, rss: m.rss, heap: m.heapUsed, ab: m.arrayBuffers, young, hist: agent.watcher.historySize });
+    const l = samples[samples.length - 1]!;
+    if (samples.length % 10 === 0) log(`soak: ${((Date.now() - t0) / 1000).toFixed(0)} s, RSS ${mb(l.rss, 0)} MB, heap ${mb(l.heap)} MB, history ${l.hist} points`);
   }, 1000);
   // The simulated source never ends by itself: stop after the signal of `days` days has been played.
   let done = false;
@@ -125,10 +131,23 @@ async function soak(days: number, timeScale: number): Promise<void> {
   const sum = await agent.run(5000);
   clearInterval(timer);
   clearInterval(check);
-  const q = (f: number, a = rss) => a[Math.min(a.length - 1, Math.floor(a.length * f))]! / 2 ** 20;
+  const at = (f: number) => samples[Math.min(samples.length - 1, Math.floor(samples.length * f))]!;
+  const series = (get: (s: (typeof samples)[number]) => string) => [0.1, 0.5, 0.9, 1].map((f) => get(at(f))).join(' / ');
   console.log(`soak: ${days} simulated days (${signalS.toFixed(0)} s of signal) in ${((Date.now() - t0) / 1000).toFixed(0)} s wall; ${sum.windows} windows, ${sum.events} events`);
-  console.log(`soak RSS at 10/50/90/100 % of the run: ${q(0.1).toFixed(0)} / ${q(0.5).toFixed(0)} / ${q(0.9).toFixed(0)} / ${q(1).toFixed(0)} MB; state directory ${(dirBytes(cfg.state_dir) / 1024).toFixed(0)} KiB`);
-  if (gc) console.log(`soak live heap after GC at 10/50/90/100 %: ${q(0.1, heap).toFixed(1)} / ${q(0.5, heap).toFixed(1)} / ${q(0.9, heap).toFixed(1)} / ${q(1, heap).toFixed(1)} MB`);
+  console.log(`soak RSS at 10/50/90/100 % of the run: ${series((s) => mb(s.rss, 0))} MB (V8 young generation ${series((s) => mb(s.young, 0))} MB); state directory ${(dirBytes(cfg.state_dir) / 1024).toFixed(0)} KiB`);
+  if (!gc) return void (await b.close());
+  console.log(`soak live heap after GC at 10/50/90/100 %: ${series((s) => mb(s.heap))} MB with ${series((s) => String(s.hist))} history points; ArrayBuffers ${series((s) => mb(s.ab, 2))} MB`);
+  // The history is bounded: it grows to max_points, then is merged back to 3/4 of it and grows again.
+  const full = samples.findIndex((s) => s.hist >= maxPoints);
+  if (full < 0) console.log(`soak: the history did not reach max_points ${maxPoints}`);
+  else {
+    const after = samples.slice(full);
+    const h = after.map((s) => s.heap);
+    console.log(
+      `soak: history full (${maxPoints} points) from window ${after[0]!.win} (${((full / samples.length) * 100).toFixed(0)} % of the run); after that live heap ${mb(Math.min(...h))}-${mb(Math.max(...h))} MB ` +
+        `(first ${mb(h[0]!)}, last ${mb(h[h.length - 1]!)} MB), ArrayBuffers ${mb(after[0]!.ab, 2)} -> ${mb(after[after.length - 1]!.ab, 2)} MB`,
+    );
+  }
   await b.close();
 }
 
