@@ -181,12 +181,29 @@ async function outage(timeScale: number): Promise<void> {
 }
 
 /** CPU time (user, system) of a process so far, s, from /proc/<pid>/stat. */
-function procCpuS(pid: number): { user: number; system: number } {
-  const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+function procCpuS(pid: number, file = `/proc/${pid}/stat`): { user: number; system: number } {
+  const stat = readFileSync(file, 'utf8');
   // Fields after the command name (which may hold spaces) in parentheses; utime and stime are fields 14 and 15.
   const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
   const tick = 100; // USER_HZ: 100 on every Linux architecture the board runs
   return { user: Number(f[11]) / tick, system: Number(f[12]) / tick };
+}
+
+/** CPU time so far of each thread of a process, s, by thread name (the main thread first, as "main"). */
+function threadCpuS(pid: number): Map<string, number> {
+  const by = new Map<string, number>();
+  for (const tid of readdirSync(`/proc/${pid}/task`)) {
+    let name: string;
+    let cpu: { user: number; system: number };
+    try {
+      name = Number(tid) === pid ? 'main' : readFileSync(`/proc/${pid}/task/${tid}/comm`, 'utf8').trim();
+      cpu = procCpuS(Number(tid), `/proc/${pid}/task/${tid}/stat`);
+    } catch {
+      continue; // the thread ended meanwhile
+    }
+    by.set(name, (by.get(name) ?? 0) + cpu.user + cpu.system);
+  }
+  return by;
 }
 
 function procRssMb(pid: number): number {
@@ -232,6 +249,8 @@ interface SerialRun {
   user_s: number;
   system_s: number;
   board_cpu_pct: number;
+  /** Share of one core by thread name ("main" = the JavaScript thread). */
+  threads_pct: Record<string, number>;
   rss_mb: number;
   loadavg_before: string;
   loadavg_after: string;
@@ -276,10 +295,12 @@ async function serialRun(seconds: number, broker: Mosquitto, profileDir: string 
     const live0 = live;
     const load0 = loadavg();
     const a0 = procCpuS(agent.proc.pid!);
+    const th0 = threadCpuS(agent.proc.pid!);
     const b0 = procCpuS(board.proc.pid!);
     const t0 = performance.now();
     await new Promise((r) => setTimeout(r, seconds * 1000));
     const a1 = procCpuS(agent.proc.pid!);
+    const th1 = threadCpuS(agent.proc.pid!);
     const b1 = procCpuS(board.proc.pid!);
     const wall = (performance.now() - t0) / 1000;
     const rss = procRssMb(agent.proc.pid!);
@@ -305,6 +326,7 @@ async function serialRun(seconds: number, broker: Mosquitto, profileDir: string 
       user_s: user,
       system_s: system,
       board_cpu_pct: ((b1.user + b1.system - b0.user - b0.system) / wall) * 100,
+      threads_pct: Object.fromEntries([...th1].map(([name, s1]) => [name, ((s1 - (th0.get(name) ?? 0)) / wall) * 100]).filter(([, p]) => (p as number) >= 0.05)),
       rss_mb: rss,
       loadavg_before: load0,
       loadavg_after: load1,
@@ -337,7 +359,7 @@ async function serial(seconds: number, runs: number, profileDir: string | undefi
       const unread = r.frames_sent - r.frames_dropped - r.samples / 256;
       console.log(
         `serial run ${i}: turnwise run ${r.cpu_pct.toFixed(1)} % of one core over ${r.wall_s.toFixed(0)} s (user ${r.user_s.toFixed(2)} s, system ${r.system_s.toFixed(2)} s); ` +
-          `RSS ${r.rss_mb.toFixed(0)} MB; sim-board ${r.board_cpu_pct.toFixed(1)} %; load average ${r.loadavg_before} -> ${r.loadavg_after}; ` +
+          `threads: ${Object.entries(r.threads_pct).map(([n, p]) => `${n} ${p.toFixed(1)} %`).join(', ')}; RSS ${r.rss_mb.toFixed(0)} MB; sim-board ${r.board_cpu_pct.toFixed(1)} %; load average ${r.loadavg_before} -> ${r.loadavg_after}; ` +
           `${r.live_messages} live messages in the measurement; whole run: ${r.windows} windows, frames ${r.frames_sent} sent, ${r.frames_dropped} dropped by the board, ${r.gaps} gap(s) at the agent, ${unread} sent after the agent stopped reading`,
       );
     }
