@@ -206,9 +206,11 @@ function threadCpuS(pid: number): Map<string, number> {
   return by;
 }
 
-function procRssMb(pid: number): number {
-  const m = /VmRSS:\s+(\d+) kB/.exec(readFileSync(`/proc/${pid}/status`, 'utf8'));
-  return m ? Number(m[1]) / 1024 : NaN;
+/** Resident memory now (VmRSS) and its peak since start (VmHWM), MB. */
+function procRssMb(pid: number): { now: number; peak: number } {
+  const status = readFileSync(`/proc/${pid}/status`, 'utf8');
+  const kb = (field: string) => Number(new RegExp(`${field}:\\s+(\\d+) kB`).exec(status)?.[1] ?? NaN);
+  return { now: kb('VmRSS') / 1024, peak: kb('VmHWM') / 1024 };
 }
 
 const loadavg = () => readFileSync('/proc/loadavg', 'utf8').split(' ').slice(0, 3).join(' ');
@@ -251,7 +253,7 @@ interface SerialRun {
   board_cpu_pct: number;
   /** Share of one core by thread name ("main" = the JavaScript thread). */
   threads_pct: Record<string, number>;
-  rss_mb: number;
+  rss_mb: { now: number; peak: number };
   loadavg_before: string;
   loadavg_after: string;
   live_messages: number;
@@ -348,7 +350,9 @@ async function serialRun(seconds: number, broker: Mosquitto, profileDir: string 
 }
 
 async function serial(seconds: number, runs: number, profileDir: string | undefined): Promise<void> {
-  const broker = await Mosquitto.start();
+  const broker = await Mosquitto.start().catch((e: Error) => {
+    throw new Error(`bench serial: could not start mosquitto (${e.message}); install the Debian package mosquitto, or set TURNWISE_MOSQUITTO to its path`);
+  });
   const cpus: number[] = [];
   try {
     for (let i = 1; i <= runs; i++) {
@@ -359,7 +363,7 @@ async function serial(seconds: number, runs: number, profileDir: string | undefi
       const unread = r.frames_sent - r.frames_dropped - r.samples / 256;
       console.log(
         `serial run ${i}: turnwise run ${r.cpu_pct.toFixed(1)} % of one core over ${r.wall_s.toFixed(0)} s (user ${r.user_s.toFixed(2)} s, system ${r.system_s.toFixed(2)} s); ` +
-          `threads: ${Object.entries(r.threads_pct).map(([n, p]) => `${n} ${p.toFixed(1)} %`).join(', ')}; RSS ${r.rss_mb.toFixed(0)} MB; sim-board ${r.board_cpu_pct.toFixed(1)} %; load average ${r.loadavg_before} -> ${r.loadavg_after}; ` +
+          `threads: ${Object.entries(r.threads_pct).map(([n, p]) => `${n} ${p.toFixed(1)} %`).join(', ')}; RSS ${r.rss_mb.now.toFixed(0)} MB (peak ${r.rss_mb.peak.toFixed(0)} MB); sim-board ${r.board_cpu_pct.toFixed(1)} %; load average ${r.loadavg_before} -> ${r.loadavg_after}; ` +
           `${r.live_messages} live messages in the measurement; whole run: ${r.windows} windows, frames ${r.frames_sent} sent, ${r.frames_dropped} dropped by the board, ${r.gaps} gap(s) at the agent, ${unread} sent after the agent stopped reading`,
       );
     }
