@@ -5,6 +5,8 @@
  * (port reading, decoder, block queue and a consumer that reads every sample).
  * Also measures reading alone, without decoding: the agent's PortReader, and serialport's stream
  * (the path the agent used before, for comparison); and the decoder alone on bytes in memory.
+ * As the floor of reading on readiness, a Node timer that only wakes this process as often as the
+ * PortReader read, doing nothing else.
  *
  *   npm run build && node dist/test/bench/serial.bench.js [--seconds 20] [--json]
  */
@@ -65,6 +67,26 @@ function decoderCeiling(): { mb_per_s: number; realtime_factor: number } {
   const mbPerS = (bytes.length * rounds) / s / 1e6;
   const realtimeBytesPerS = (bytes.length / (500 * SPF)) * RATE;
   return { mb_per_s: mbPerS, realtime_factor: (mbPerS * 1e6) / realtimeBytesPerS };
+}
+
+/** CPU share of a timer that wakes this process `perS` times a second and does nothing else. */
+async function wakeFloor(perS: number, seconds: number): Promise<{ wakeups_per_s: number; cpu_percent_of_one_core: number }> {
+  let n = 0;
+  let stop = false;
+  const cpu0 = process.cpuUsage();
+  const t0 = performance.now();
+  // On a schedule that does not drift (timers have whole milliseconds).
+  const tick = () => {
+    if (stop) return;
+    n++;
+    setTimeout(tick, Math.max(0, t0 + ((n + 1) * 1000) / perS - performance.now()));
+  };
+  setTimeout(tick, 1000 / perS);
+  await new Promise((r) => setTimeout(r, seconds * 1000));
+  const cpu = process.cpuUsage(cpu0);
+  const wallS = (performance.now() - t0) / 1000;
+  stop = true;
+  return { wakeups_per_s: n / wallS, cpu_percent_of_one_core: (100 * (cpu.user + cpu.system)) / 1e6 / wallS };
 }
 
 interface Measured {
@@ -226,6 +248,8 @@ async function main(): Promise<void> {
   const src = await measure('source', seconds);
   const readerM = await measure('reader', seconds);
   const streamM = await measure('stream', seconds);
+  process.stderr.write(`serial bench: a timer waking ${readerM.reads_per_s.toFixed(0)} times a second for ${seconds} s...\n`);
+  const floor = await wakeFloor(readerM.reads_per_s, seconds);
   const keepsUp = src.received === src.frames_sent && src.gaps === 0 && src.overruns === 0 && readerM.received === readerM.bytes_sent;
   const result = {
     stream: { channels: CHANNELS, sample_rate_hz: RATE, format: 'int24', samples_per_frame: SPF, payload_bytes_per_s: RATE * CHANNELS * 3 },
@@ -233,6 +257,7 @@ async function main(): Promise<void> {
     source: { ...src, cpu_percent_of_one_core: cpuPercent(src) },
     port_reader_only: { ...readerM, cpu_percent_of_one_core: cpuPercent(readerM) },
     serialport_stream_only: { ...streamM, cpu_percent_of_one_core: cpuPercent(streamM) },
+    timer_wakeups_only: floor,
     decoder_alone_mb_per_s: ceiling.mb_per_s,
     decoder_alone_x_realtime: ceiling.realtime_factor,
     node: process.version,
@@ -250,6 +275,7 @@ async function main(): Promise<void> {
       ['reader CPU (SerialSource)', `${cpuPercent(src).toFixed(2)} % of one core (user ${src.cpu_user_s.toFixed(2)} s, system ${src.cpu_system_s.toFixed(2)} s)`],
       ['PortReader alone', `${cpuPercent(readerM).toFixed(2)} % of one core (no decoding; ${readerM.reads_per_s.toFixed(0)} reads/s)`],
       ['serialport stream alone', `${cpuPercent(streamM).toFixed(2)} % of one core (no decoding; ${streamM.reads_per_s.toFixed(0)} reads/s; the agent's former path)`],
+      ['timer waking as often, alone', `${floor.cpu_percent_of_one_core.toFixed(2)} % of one core (${floor.wakeups_per_s.toFixed(0)} wake-ups/s, nothing read)`],
       ['heap growth (SerialSource)', `${src.heap_growth_mb.toFixed(2)} MB`],
       ['decoder alone', `${ceiling.mb_per_s.toFixed(0)} MB/s = ${ceiling.realtime_factor.toFixed(0)} x real time`],
     ];
