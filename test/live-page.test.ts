@@ -50,6 +50,8 @@ describe('live page in a real browser', () => {
   const events: AgentEvent[] = [];
   const pageErrors: string[] = [];
   let reloads = 0;
+  /** The correction weights fitted on the simulated fan by the job (as the page listed them). */
+  let corrections: Record<string, string | undefined>[] = [];
 
   beforeAll(async () => {
     dir = mkdtempSync(join(tmpdir(), 'tw-live-page-'));
@@ -216,7 +218,9 @@ describe('live page in a real browser', () => {
     // F = m r omega^2 of the proposed weights, shown before the change (about 1000 N for 55 g here).
     expect(await page.textContent('#cautions')).toMatch(/weight in back_plate: 5\d\.\d g at 760 mm pulls F = m r ω² = \d{3,4} N/);
     await declare();
-    expect((await applyPlacement(3)).map((i) => `${i.action} ${i.id}`)).toEqual(['remove T2', 'fit C1', 'fit C2']);
+    const placed = await applyPlacement(3);
+    expect(placed.map((i) => `${i.action} ${i.id}`)).toEqual(['remove T2', 'fit C1', 'fit C2']);
+    corrections = placed.filter((i) => i.action === 'fit');
     await capture(3);
     await page.waitForSelector('.residual[data-run="3"][data-where="latest"]');
     const pcts = await page.$$eval('.residual[data-run="3"][data-where="runs"] tr[data-pct]', (rows) => rows.map((r) => Number((r as unknown as El).dataset.pct)));
@@ -250,33 +254,32 @@ describe('live page in a real browser', () => {
     expect(pageErrors).toEqual([]);
   });
 
-  it("shows the watcher's correction forecast from the job just finished; fitting it on the fan lowers the 1x further", async () => {
+  it("shows the watcher's correction forecast from the job's coefficients: when a correction weight is thrown, it forecasts its replacement", async () => {
     // The job's coefficients went to the watcher (reloads === 1 above); it has no baseline, so the
-    // forecast aims at zero 1x: a trim of what the correction left (influence-coefficient method).
+    // forecast aims at zero 1x (influence-coefficient method: W = least squares of H W = -V).
     await page.click('nav a[data-nav=live]');
     await page.waitForSelector('#forecast tr[data-plane]', { timeout: 30_000 });
     expect(await page.textContent('#forecast .conv-banner')).toMatch(/measured WITH rotation/);
-    const rows = await page.$$eval('#forecast tr[data-plane]', (trs) => trs.map((r) => ({ ...(r as unknown as El).dataset })));
-    expect(rows.map((r) => [r.plane, r.radiusMm])).toEqual([
-      ['back_plate', '760'],
-      ['front_shroud', '760'],
-    ]);
     expect(await page.textContent('#forecast .cautions')).toMatch(/Lock out and tag out/);
-    /** Sum of the live 1x amplitudes of every card, averaged over a few updates. */
-    const oneX = async () => {
-      let sum = 0;
-      for (let k = 0; k < 4; k++) {
-        sum += (await page.$$eval('#cards .card', (cs) => cs.map((c) => Number((c as unknown as El).dataset.amp)))).reduce((a, b) => a + b, 0);
-        await new Promise((r) => setTimeout(r, 500));
-      }
-      return sum / 4;
-    };
-    const before = await oneX();
-    for (const r of rows) src.addWeight({ id: `F-${r.plane}`, plane: r.plane!, mass_g: Number(r.massG), radius_mm: Number(r.radiusMm), angle_deg: Number(r.angleDeg), convention: 'with_rotation' });
-    await new Promise((r) => setTimeout(r, 6000)); // 48 s of the simulated fan: the live average settles
-    const after = await oneX();
-    console.log(`forecast trim fitted on the simulated fan: sum of live 1x ${before.toFixed(3)} -> ${after.toFixed(3)} mm/s pk`);
-    expect(after).toBeLessThan(before);
+    const c1 = corrections.find((c) => c.id === 'C1')!;
+    expect(c1.plane).toBe('back_plate');
+    // The weight C1 flies off the simulated fan.
+    expect(src.removeWeight('C1')).toBe(true);
+    await page.waitForFunction(
+      (m) => Number((globalThis as unknown as { document: { querySelector(q: string): El | null } }).document.querySelector('#forecast tr[data-plane="back_plate"]')?.dataset.massG) > m,
+      0.5 * Number(c1.massG),
+      { timeout: 30_000 },
+    );
+    await new Promise((r) => setTimeout(r, 2000)); // a few more windows on the new state
+    const rows = await page.$$eval('#forecast tr[data-plane]', (trs) => trs.map((r) => ({ ...(r as unknown as El).dataset })));
+    const back = rows.find((r) => r.plane === 'back_plate')!;
+    const front = rows.find((r) => r.plane === 'front_shroud')!;
+    console.log(`thrown C1 ${Number(c1.massG).toFixed(1)} g at ${Number(c1.angleDeg).toFixed(0)} deg; forecast back_plate ${Number(back.massG).toFixed(1)} g at ${Number(back.angleDeg).toFixed(0)} deg, front_shroud ${Number(front.massG).toFixed(1)} g`);
+    // The replacement: C1's mass and angle (same convention, same radius), the other plane about untouched.
+    expect(back.radiusMm).toBe('760');
+    expect(Math.abs(Number(back.massG) / Number(c1.massG) - 1)).toBeLessThan(0.15);
+    expect(Math.abs(((Number(back.angleDeg) - Number(c1.angleDeg) + 540) % 360) - 180)).toBeLessThan(10);
+    expect(Number(front.massG)).toBeLessThan(0.25 * Number(c1.massG));
     expect(pageErrors).toEqual([]);
   }, 60_000);
 

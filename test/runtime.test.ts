@@ -4,6 +4,7 @@ import { SyncAverager } from '../agent/dsp/sync-average.js';
 import type { LiveFrame, WindowResult } from '../agent/dsp/types.js';
 import { MemoryLogger } from '../agent/log.js';
 import { AgentRuntime } from '../agent/runtime/runtime.js';
+import { SerialSource } from '../drivers/serial/serial-source.js';
 import { ArraySource } from './support/array-source.js';
 import { testConfig } from './support/config.js';
 import { synthesize } from './support/synth.js';
@@ -147,5 +148,20 @@ describe('agent runtime loop', () => {
       const { lost } = await check(gaps);
       expect(lost).toBe(10);
     });
+  });
+});
+
+describe('stopping', () => {
+  it('ends promptly even when the live source delivers nothing (serial board unplugged)', async () => {
+    // A device path that does not exist: the serial source keeps trying to open it and yields nothing.
+    const source = new SerialSource({ device: '/dev/turnwise-test-absent', baud: 115_200, sampleRateHz: 25_600, channels: 2, reconnectMinMs: 100, reconnectMaxMs: 200, stallTimeoutMs: 5000, queueFrames: 4, maxFrameBytes: 4096, log: new MemoryLogger() });
+    const rt = new AgentRuntime({ config: testConfig([['DE-V', 0, 'DE', 'vertical']]), source, clock: new ManualClock(), logger: new MemoryLogger(), windowSeconds: 2, liveSeconds: 0.5, windowConsumers: [], liveConsumers: [] });
+    const running = rt.run();
+    await new Promise((r) => setTimeout(r, 500));
+    const t0 = Date.now();
+    rt.stop();
+    const sum = await running;
+    expect(sum.windows).toBe(0);
+    expect(Date.now() - t0).toBeLessThan(5000); // a systemd stop would otherwise wait for TimeoutStopSec
   });
 });

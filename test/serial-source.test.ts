@@ -3,10 +3,14 @@
  * board emulator writing frames into the other end.
  */
 import { execFileSync } from 'node:child_process';
+import { closeSync, mkdtempSync, openSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it, vi } from 'vitest';
 import { SerialPort } from 'serialport';
 import { probeSerialCommand } from '../agent/cli/commands/probe-serial.js';
 import { BoardEmulator, DeviceWriter, SineTachSignal, playRealtime, type BoardSignal } from '../drivers/serial/board-emulator.js';
+import { PortReader, type ReadMode } from '../drivers/serial/port-reader.js';
 import { listPorts } from '../drivers/serial/ports.js';
 import { SerialSource, reconnectDelayMs, type SerialSourceOptions } from '../drivers/serial/serial-source.js';
 import type { GapMarker } from '../drivers/source.js';
@@ -337,6 +341,72 @@ describe('SerialSource through a real pseudo-terminal', () => {
     const edges = got.blocks.flatMap((b) => b.tachEdges);
     expect(edges.length).toBe(Math.floor((20 * SPF - 12.75) / samplesPerRev) + 1);
     edges.forEach((e, k) => expect(e).toBeCloseTo(12.75 + k * samplesPerRev, 6));
+  });
+});
+
+describe('PortReader: the port read straight from its descriptor', () => {
+  // Both ways of reading, on serialport's own Linux binding port: 'poll' (the agent's, chosen by
+  // itself wherever the binding has a poller) and 'binding' (its read(), the fallback elsewhere).
+  for (const mode of ['poll', 'binding'] as ReadMode[]) {
+    it(`${mode}: every byte in order, then the vanished device ends it once as a failure`, async () => {
+      await pty.start();
+      const port = await SerialPort.binding.open({ path: pty.agentPath, baudRate: 921_600 });
+      const chunks: Buffer[] = [];
+      const failures: Error[] = [];
+      const reader = new PortReader(port, { data: (c) => chunks.push(Buffer.from(c)), failed: (e) => failures.push(e) }, { bufferBytes: 4096, mode });
+      if (mode === 'poll') expect(new PortReader(port, { data() {}, failed() {} }).mode).toBe('poll');
+      reader.start();
+      writer = await DeviceWriter.open(pty.boardPath);
+      const sent = Buffer.from(Array.from({ length: 100_000 }, (_, i) => (i * 31 + (i >> 8)) & 0xff));
+      for (let o = 0; o < sent.length; o += 7000) await writer.write(sent.subarray(o, o + 7000));
+      await waitFor('all bytes', () => chunks.reduce((n, c) => n + c.length, 0) >= sent.length);
+      expect(Buffer.concat(chunks).equals(sent)).toBe(true);
+      // the 4 KiB buffer is reused: more than 100 000 / 4096 reads
+      expect(reader.reads).toBeGreaterThanOrEqual(Math.ceil(sent.length / 4096));
+      // Unplug: the pty vanishes with socat; the reader reports it once and calls nothing after.
+      await writer.close();
+      writer = null;
+      await pty.stop();
+      await waitFor('the failure', () => failures.length === 1);
+      // the poller's own error (libuv's EBADF on the hung-up descriptor), or EIO from the read
+      expect(failures[0]!.message).toMatch(/bad file descriptor|EIO/);
+      await port.close();
+      await new Promise((r) => setTimeout(r, 100));
+      expect(failures).toHaveLength(1);
+    });
+  }
+
+  it('stop(): closing the port afterwards calls the sink no more', async () => {
+    await pty.start();
+    const port = await SerialPort.binding.open({ path: pty.agentPath, baudRate: 921_600 });
+    let calls = 0;
+    const reader = new PortReader(port, { data: () => calls++, failed: () => calls++ });
+    reader.start();
+    reader.stop();
+    writer = await DeviceWriter.open(pty.boardPath);
+    await writer.write(Buffer.alloc(1000, 7));
+    await port.close();
+    await new Promise((r) => setTimeout(r, 100));
+    expect(calls).toBe(0);
+  });
+
+  it('end of file (a hung-up tty reads 0 bytes: POSIX read(2), Linux tty hang-up) is a failure, not a spin', async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tw-eof-'));
+    try {
+      writeFileSync(join(dir, 'empty'), '');
+      const fd = openSync(join(dir, 'empty'), 'r');
+      // a port whose poller always says readable, on a descriptor that reads end of file
+      const port = { isOpen: true, fd, poller: { once: (_e: 'readable', cb: (err: Error | null) => void) => setImmediate(() => cb(null)) }, read: () => Promise.reject(new Error('not used')) };
+      const failures: Error[] = [];
+      let data = 0;
+      new PortReader(port, { data: () => data++, failed: (e) => failures.push(e) }).start();
+      await new Promise((r) => setTimeout(r, 50));
+      closeSync(fd);
+      expect(data).toBe(0);
+      expect(failures.map((e) => e.message)).toEqual(['the device hung up (read returned end of file)']);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
   });
 });
 

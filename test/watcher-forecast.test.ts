@@ -59,6 +59,18 @@ describe('balance forecast from stored coefficients', () => {
     expect(f.cautions.join(' ')).toMatch(/Lock out and tag out/);
   });
 
+  it('the same job counted WITH rotation: 270 deg against rotation is 90 deg with it (H does not depend on the convention)', () => {
+    // agent/balance/conventions.ts: H is the response to 1 g on the reference mark; a weight beta
+    // degrees with rotation adds H m e^(-i beta), so every weight angle changes sign.
+    const base = baseline({ 'DE-V': { amp: 1.0, phase: 40 } });
+    const w = windowOf({ 'DE-V': add(fromPolar(1.0 * Math.SQRT2, 40), fromPolar(3.0, 120)) });
+    const withRot = { ...coeffs({ 'DE-V': { P1: { amp_mm_s_pk_per_g: 0.05, phase_deg: 30 } } }), angle_convention: 'with_rotation' as const };
+    const f = forecastBalance('kessrow-id3a', withRot, base, w, assessHealth(w, s));
+    expect(f.weights[0]!.mass_g).toBeCloseTo(60, 6);
+    expect(f.weights[0]!.angle_deg).toBeCloseTo(90, 6);
+    expect(f.why).toMatch(/weight angles from the reference mark, with rotation/);
+  });
+
   it('two planes, four sensors: recovers the weight set that explains the change', () => {
     const h: Record<string, [Complex, Complex]> = {
       'DE-V': [fromPolar(0.05, 30), fromPolar(0.02, 200)],

@@ -58,6 +58,7 @@ export interface RunSummary extends RuntimeCounts {
 export class AgentRuntime {
   private analyzer: Analyzer | undefined;
   private stopped = false;
+  private stopTimer: ReturnType<typeof setTimeout> | null = null;
   private windows = 0;
   private samples = 0;
   private gaps = 0;
@@ -130,6 +131,7 @@ export class AgentRuntime {
         }
       }
     } finally {
+      if (this.stopTimer) clearTimeout(this.stopTimer);
       await source.close();
     }
     const counts = this.counts();
@@ -142,6 +144,10 @@ export class AgentRuntime {
   }
 
   stop(): void {
+    if (this.stopped) return;
     this.stopped = true;
+    // The loop notices at the next item. A live source with nothing to deliver (a serial board
+    // unplugged) would keep it waiting: close the source if the loop has not ended within a second.
+    this.stopTimer = setTimeout(() => void this.opts.source.close().catch(() => {}), 1000);
   }
 }

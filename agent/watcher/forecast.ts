@@ -1,6 +1,7 @@
 import type { StoredCoefficients } from '../balance/coefficients.js';
 import type { WindowResult } from '../dsp/types.js';
 import type { Baseline } from './baseline.js';
+import { fromInternalDeg } from '../balance/conventions.js';
 import { DEFAULT_SOLVE_OPTIONS } from '../balance/solve.js';
 import { cmatrixFrom, columnScaledConditionNumber, getEl, leastSquares } from '../balance/linalg.js';
 import { abs, add, angleDeg, fromPolar, mul, sub, ZERO, type Complex } from './complex.js';
@@ -10,8 +11,10 @@ import type { HealthReport } from './health.js';
  * Balance forecast: with influence coefficients kept from an earlier balancing job, the correction
  * weight per plane that would bring today's 1x vectors back to baseline (or to zero without one).
  * Influence-coefficient method (common practice): V = V0 + H W, so W = least-squares solution of
- * H W = V_target - V_now. Vectors use the phase lag as their angle and weights the angle convention of
- * the stored job, the same representation the coefficients were computed in.
+ * H W = V_target - V_now. Vectors use the phase lag as their angle. H is the response to 1 g ON the
+ * reference mark, the same in both angle conventions, so W comes out in the balancing workbench's
+ * internal (against-rotation) frame and is given to people in the stored job's convention
+ * (agent/balance/conventions.ts: with rotation, every angle changes sign).
  *
  * The solve, the condition number and its limits are the balancing workbench's own
  * (agent/balance/), so a forecast and a trim run from the same coefficients agree.
@@ -119,7 +122,7 @@ export function forecastBalance(
     job_id: coeffs.job_id,
     angle_convention: coeffs.angle_convention,
     target: baseline ? 'baseline' : 'zero',
-    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(x[j]!), angle_deg: angleDeg(x[j]!), radius_mm: coeffs.radius_mm?.[plane] ?? null })),
+    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(x[j]!), angle_deg: fromInternalDeg(angleDeg(x[j]!), coeffs.angle_convention), radius_mm: coeffs.radius_mm?.[plane] ?? null })),
     sensors_used: used,
     residual_pk_mm_s: Math.sqrt(ss / used.length),
     condition,

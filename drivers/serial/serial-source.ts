@@ -6,8 +6,9 @@
  *
  * serialport is loaded when the source opens, so nothing that merely imports this module needs
  * the native binding. The port must stay on the main thread (serialport does not work in workers).
+ * Only serialport's binding is used (open, close, and its poller): `PortReader` reads the port,
+ * which costs far less CPU than serialport's stream (see port-reader.ts).
  */
-import type { SerialPort as SerialPortClass } from 'serialport';
 import type { SerialDriverConfig } from '../../agent/config/acquisition.js';
 import { UserError } from '../../agent/errors.js';
 import { BurstLog } from '../../agent/burst-log.js';
@@ -15,6 +16,7 @@ import type { Logger } from '../../agent/log.js';
 import type { SampleSource, SourceInfo, SourceItem } from '../source.js';
 import { BlockQueue } from './block-queue.js';
 import { FrameDecoder, type DecodedFrame, type DecodeProblem, type FrameSink } from './frame.js';
+import { PortReader, type ReadablePort } from './port-reader.js';
 import { describeOpenFailure, listStablePorts } from './ports.js';
 
 export interface SerialSourceOptions {
@@ -83,6 +85,11 @@ export type SerialHealth = {
 
 type SerialPortModule = typeof import('serialport');
 
+/** An open port of serialport's binding. */
+interface OpenPort extends ReadablePort {
+  close(): Promise<void>;
+}
+
 /** Wait before reopen attempt number `attempt` (0 = first): doubling from `minMs`, capped at `maxMs`. */
 export function reconnectDelayMs(attempt: number, minMs: number, maxMs: number): number {
   return Math.min(maxMs, minMs * 2 ** Math.min(attempt, 30));
@@ -97,7 +104,10 @@ export class SerialSource implements SampleSource {
   private readonly queue: BlockQueue;
 
   private mod: SerialPortModule | null = null;
-  private port: SerialPortClass | null = null;
+  private port: OpenPort | null = null;
+  private reader: PortReader | null = null;
+  /** The port's close under way (after a failure or a stall), for close() to wait on. */
+  private portClosing: Promise<void> | null = null;
   private opened = false;
   private closing = false;
   private everConnected = false;
@@ -194,10 +204,7 @@ export class SerialSource implements SampleSource {
     if (this.tickTimer) clearInterval(this.tickTimer);
     this.reopenTimer = this.tickTimer = null;
     const port = this.port;
-    this.closed = new Promise<void>((resolve) => {
-      if (port && port.isOpen) port.close(() => resolve());
-      else resolve();
-    }).then(() => {
+    this.closed = (port ? this.closePort(port, null) : (this.portClosing ?? Promise.resolve())).then(() => {
       this.port = null;
       this.connected = false;
       this.burst.flush(true);
@@ -225,44 +232,61 @@ export class SerialSource implements SampleSource {
   private tryOpen(): void {
     this.reopenTimer = null;
     if (this.closing) return;
-    const { SerialPort } = this.mod!;
-    let port: SerialPortClass;
+    let opening: Promise<OpenPort>;
     try {
-      port = new SerialPort({ path: this.opts.device, baudRate: this.opts.baud, autoOpen: false });
+      opening = this.mod!.SerialPort.binding.open({ path: this.opts.device, baudRate: this.opts.baud });
     } catch (e) {
       this.openFailed(e as Error);
       return;
     }
-    // Without a listener an 'error' event would end the process; open and close errors come here.
-    port.on('error', (e: Error) => {
-      this.recordError(`${this.opts.device}: ${e.message}`);
-      this.burst.report('port_error', `${this.opts.device}: port error: ${e.message}`, { device: this.opts.device });
-    });
-    port.open((err) => {
-      if (err) {
-        this.openFailed(err);
-        return;
-      }
-      if (this.closing) {
-        port.close();
-        return;
-      }
-      this.port = port;
-      this.connected = true;
-      this.lastFrameMs = this.nowMs();
-      if (this.everConnected) this.reconnects++;
-      this.log.info({ device: this.opts.device, reconnects: this.reconnects }, this.everConnected ? `${this.opts.device}: reopened` : `${this.opts.device}: opened`);
-      this.everConnected = true;
-      port.on('data', (chunk: Buffer) => this.decoder.push(chunk));
-      port.once('close', (closeErr: (Error & { disconnected?: boolean }) | null) => this.onClosed(port, closeErr));
-    });
+    opening.then(
+      (port) => this.onOpened(port),
+      (err: Error) => this.openFailed(err),
+    );
   }
 
-  private onClosed(port: SerialPortClass, err: (Error & { disconnected?: boolean }) | null): void {
-    if (this.port === port) this.port = null;
+  private onOpened(port: OpenPort): void {
+    if (this.closing) {
+      void port.close().catch(() => {});
+      return;
+    }
+    this.port = port;
+    this.connected = true;
+    this.lastFrameMs = this.nowMs();
+    if (this.everConnected) this.reconnects++;
+    const reader = new PortReader(port, {
+      data: (chunk) => this.decoder.push(chunk),
+      // A read error is the device going away (unplugged, hung up): close and reopen with backoff.
+      failed: (err) => void this.closePort(port, err),
+    });
+    this.log.info({ device: this.opts.device, reconnects: this.reconnects, read_mode: reader.mode }, this.everConnected ? `${this.opts.device}: reopened` : `${this.opts.device}: opened`);
+    this.everConnected = true;
+    this.reader = reader;
+    reader.start();
+  }
+
+  /** Stops reading and closes the port; `failure` is the read error that made it necessary, if any. */
+  private closePort(port: OpenPort, failure: Error | null): Promise<void> {
+    if (this.port !== port) return this.portClosing ?? Promise.resolve();
+    this.port = null;
+    this.reader?.stop();
+    this.reader = null;
+    const closing = (port.isOpen ? port.close() : Promise.resolve())
+      .catch((e: Error) => {
+        this.recordError(`${this.opts.device}: ${e.message}`);
+        this.burst.report('port_error', `${this.opts.device}: port error on close: ${e.message}`, { device: this.opts.device });
+      })
+      .then(() => {
+        if (this.portClosing === closing) this.portClosing = null;
+        this.onClosed(failure);
+      });
+    this.portClosing = closing;
+    return closing;
+  }
+
+  private onClosed(failure: Error | null): void {
     this.connected = false;
-    port.removeAllListeners('data');
-    const why = err?.disconnected ? `device disconnected (${err.message})` : err ? `port closed: ${err.message}` : (this.closeReason ?? 'port closed');
+    const why = failure ? `device disconnected (${failure.message})` : (this.closeReason ?? 'port closed');
     this.closeReason = null;
     this.decoder.linkDown(`${this.opts.device}: ${why}`);
     if (this.closing) return;
@@ -300,7 +324,7 @@ export class SerialSource implements SampleSource {
       this.burst.report('stall', `${this.opts.device}: ${silent}; closing and reopening the port`, { device: this.opts.device });
       // The close handler reopens with backoff.
       this.closeReason = `closed after ${silent}`;
-      this.port.close();
+      void this.closePort(this.port, null);
     }
     this.burst.flush();
   }

@@ -10,11 +10,18 @@
  *     history's size (the heap just after each merge of the history compares like with like), and
  *     the state directory's size on disk;
  *  3. outage: one simulated day with the broker unreachable, then the broker comes back: events kept on
- *     disk, bytes, and the time to deliver them.
+ *     disk, bytes, and the time to deliver them;
+ *  4. serial: the real path as on the plant, in separate processes: `turnwise run` (driver serial,
+ *     8 channels x 25.6 kHz, MQTT to a mosquitto started here on a free loopback port) reading
+ *     `turnwise sim-board` through a socat pty. The run process's CPU time (utime + stime from
+ *     /proc/<pid>/stat, so its thread pool counts too) over --seconds of wall time after 10 s of
+ *     settling, repeated --runs times with fresh processes; frames lost anywhere are reported.
+ *     Needs socat and mosquitto (Debian packages). `--profile DIR` runs the agent under --cpu-prof.
  * Figures go to stdout; progress to stderr.
  */
+import { spawn, type ChildProcess } from 'node:child_process';
 import { createServer } from 'node:net';
-import { mkdtempSync, readdirSync, readFileSync, statSync } from 'node:fs';
+import { mkdtempSync, readdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -27,6 +34,7 @@ import { systemClock } from '../../agent/clock.js';
 import { validateConfig } from '../../agent/config/load.js';
 import { silentLogger } from '../../agent/log.js';
 import { Agent } from '../../agent/runtime/agent.js';
+import { Mosquitto } from '../support/mosquitto.js';
 
 const log = (s: string) => process.stderr.write(`bench: ${s}\n`);
 const mb = (bytes: number, digits = 1) => (bytes / 2 ** 20).toFixed(digits);
@@ -34,6 +42,10 @@ const configFile = fileURLToPath(new URL('../../../config/example.yaml', import.
 const arg = (name: string, def: number) => {
   const i = process.argv.indexOf(`--${name}`);
   return i > 0 ? Number(process.argv[i + 1]) : def;
+};
+const strArg = (name: string) => {
+  const i = process.argv.indexOf(`--${name}`);
+  return i > 0 ? process.argv[i + 1] : undefined;
 };
 
 async function broker(port = 0): Promise<{ url: string; close(): Promise<void> }> {
@@ -192,8 +204,202 @@ async function outage(timeScale: number): Promise<void> {
   await b.close();
 }
 
+/** CPU time (user, system) of a process so far, s, from /proc/<pid>/stat. */
+function procCpuS(pid: number, file = `/proc/${pid}/stat`): { user: number; system: number } {
+  const stat = readFileSync(file, 'utf8');
+  // Fields after the command name (which may hold spaces) in parentheses; utime and stime are fields 14 and 15.
+  const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+  const tick = 100; // USER_HZ: 100 on every Linux architecture the board runs
+  return { user: Number(f[11]) / tick, system: Number(f[12]) / tick };
+}
+
+/** CPU time so far of each thread of a process, s, by thread name (the main thread first, as "main"). */
+function threadCpuS(pid: number): Map<string, number> {
+  const by = new Map<string, number>();
+  for (const tid of readdirSync(`/proc/${pid}/task`)) {
+    let name: string;
+    let cpu: { user: number; system: number };
+    try {
+      name = Number(tid) === pid ? 'main' : readFileSync(`/proc/${pid}/task/${tid}/comm`, 'utf8').trim();
+      cpu = procCpuS(Number(tid), `/proc/${pid}/task/${tid}/stat`);
+    } catch {
+      continue; // the thread ended meanwhile
+    }
+    by.set(name, (by.get(name) ?? 0) + cpu.user + cpu.system);
+  }
+  return by;
+}
+
+/** Resident memory now (VmRSS) and its peak since start (VmHWM), MB. */
+function procRssMb(pid: number): { now: number; peak: number } {
+  const status = readFileSync(`/proc/${pid}/status`, 'utf8');
+  const kb = (field: string) => Number(new RegExp(`${field}:\\s+(\\d+) kB`).exec(status)?.[1] ?? NaN);
+  return { now: kb('VmRSS') / 1024, peak: kb('VmHWM') / 1024 };
+}
+
+const loadavg = () => readFileSync('/proc/loadavg', 'utf8').split(' ').slice(0, 3).join(' ');
+
+/** A child process whose output is collected; `waitFor` resolves when its stdout or stderr matches. */
+function startChild(args: string[], nodeArgs: string[] = []): { proc: ChildProcess; out: () => string; stdout: () => string; waitFor(re: RegExp, timeoutMs: number): Promise<void>; exited: Promise<number | null> } {
+  const proc = spawn(process.execPath, [...nodeArgs, cli, ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
+  let text = '';
+  let stdout = '';
+  proc.stdout!.on('data', (d: Buffer) => {
+    text += d.toString();
+    stdout += d.toString();
+  });
+  proc.stderr!.on('data', (d: Buffer) => (text += d.toString()));
+  const exited = new Promise<number | null>((r) => proc.once('exit', (code) => r(code)));
+  return {
+    proc,
+    out: () => text,
+    stdout: () => stdout,
+    exited,
+    async waitFor(re, timeoutMs) {
+      const t0 = Date.now();
+      while (!re.test(text)) {
+        if (proc.exitCode !== null || proc.signalCode !== null) throw new Error(`${args[0]} exited before /${re.source}/: ${text}`);
+        if (Date.now() - t0 > timeoutMs) throw new Error(`${args[0]}: no /${re.source}/ within ${timeoutMs} ms: ${text}`);
+        await new Promise((r) => setTimeout(r, 50));
+      }
+    },
+  };
+}
+
+const cli = fileURLToPath(new URL('../../agent/cli/main.js', import.meta.url));
+const scenarioFile = fileURLToPath(new URL('../../../config/example-scenario.yaml', import.meta.url));
+
+interface SerialRun {
+  wall_s: number;
+  cpu_pct: number;
+  user_s: number;
+  system_s: number;
+  board_cpu_pct: number;
+  /** Share of one core by thread name ("main" = the JavaScript thread). */
+  threads_pct: Record<string, number>;
+  rss_mb: { now: number; peak: number };
+  loadavg_before: string;
+  loadavg_after: string;
+  live_messages: number;
+  windows: number;
+  samples: number;
+  gaps: number;
+  frames_sent: number;
+  frames_dropped: number;
+}
+
+/** One run of `turnwise run` on the serial driver against `turnwise sim-board`, both as processes. */
+async function serialRun(seconds: number, broker: Mosquitto, profileDir: string | undefined): Promise<SerialRun> {
+  const dir = mkdtempSync(join(tmpdir(), 'tw-bench-serial-'));
+  const link = join(dir, 'board');
+  const cfgFile = join(dir, 'agent.yaml');
+  const raw = parse(readFileSync(configFile, 'utf8')) as Record<string, unknown>;
+  // JSON is YAML. Logging stays at the config's level (info), as on the board.
+  writeFileSync(
+    cfgFile,
+    JSON.stringify({
+      ...raw,
+      state_dir: join(dir, 'state'),
+      acquisition: { driver: 'serial', device: link, sample_rate_hz: 25600, channels: 8, reconnect_min_ms: 100, reconnect_max_ms: 200 },
+      mqtt: { url: broker.url, topic_prefix: 'bench' },
+    }),
+  );
+  const sub = connect(broker.url);
+  let live = 0;
+  await new Promise<void>((r) => sub.once('connect', () => sub.subscribe('bench/+/live', { qos: 0 }, () => r())));
+  sub.on('message', () => live++);
+  // The agent first, waiting for its device; the board second, so the agent opens the pty within
+  // reconnect_max_ms of its appearing and nothing is lost at start (the board queues up to 1 s).
+  const agent = startChild(['run', '--config', cfgFile, '--last-good', join(dir, 'last-good.yaml')], profileDir ? ['--cpu-prof', '--cpu-prof-dir', profileDir] : []);
+  const board = startChild(['sim-board', '--scenario', scenarioFile, '--config', cfgFile, '--link', link, '--from-day', '5.625', '--json']);
+  try {
+    await agent.waitFor(/acquisition started/, 30_000);
+    await board.waitFor(/point the agent at it/, 30_000);
+    await agent.waitFor(/: opened"/, 10_000);
+    // Settle: JIT warm-up, the first windows, the broker session.
+    await new Promise((r) => setTimeout(r, 10_000));
+    const live0 = live;
+    const load0 = loadavg();
+    const a0 = procCpuS(agent.proc.pid!);
+    const th0 = threadCpuS(agent.proc.pid!);
+    const b0 = procCpuS(board.proc.pid!);
+    const t0 = performance.now();
+    await new Promise((r) => setTimeout(r, seconds * 1000));
+    const a1 = procCpuS(agent.proc.pid!);
+    const th1 = threadCpuS(agent.proc.pid!);
+    const b1 = procCpuS(board.proc.pid!);
+    const wall = (performance.now() - t0) / 1000;
+    const rss = procRssMb(agent.proc.pid!);
+    const liveN = live - live0;
+    const load1 = loadavg();
+    // The agent stops first (it would wait for a vanished device), then the board.
+    agent.proc.kill('SIGTERM');
+    if ((await agent.exited) !== 0) throw new Error(`turnwise run ended badly: ${agent.out()}`);
+    board.proc.kill('SIGINT');
+    await board.exited;
+    const ended = agent
+      .stdout()
+      .split('\n')
+      .map((l) => (l.startsWith('{') ? (JSON.parse(l) as Record<string, unknown>) : null))
+      .find((l) => l?.msg === 'acquisition ended') as { windows: number; samples: number; gaps: number } | undefined;
+    const summary = JSON.parse(board.stdout()) as { frames_sent: number; frames_dropped: number };
+    if (!ended) throw new Error(`turnwise run did not report its end: ${agent.out()}`);
+    const user = a1.user - a0.user;
+    const system = a1.system - a0.system;
+    return {
+      wall_s: wall,
+      cpu_pct: ((user + system) / wall) * 100,
+      user_s: user,
+      system_s: system,
+      board_cpu_pct: ((b1.user + b1.system - b0.user - b0.system) / wall) * 100,
+      threads_pct: Object.fromEntries([...th1].map(([name, s1]) => [name, ((s1 - (th0.get(name) ?? 0)) / wall) * 100]).filter(([, p]) => (p as number) >= 0.05)),
+      rss_mb: rss,
+      loadavg_before: load0,
+      loadavg_after: load1,
+      live_messages: liveN,
+      windows: ended.windows,
+      samples: ended.samples,
+      gaps: ended.gaps,
+      frames_sent: summary.frames_sent,
+      frames_dropped: summary.frames_dropped,
+    };
+  } finally {
+    for (const c of [agent, board]) if (c.proc.exitCode === null && c.proc.signalCode === null) {
+      c.proc.kill('SIGKILL');
+      await c.exited;
+    }
+    sub.end(true);
+    rmSync(dir, { recursive: true, force: true });
+  }
+}
+
+async function serial(seconds: number, runs: number, profileDir: string | undefined): Promise<void> {
+  const broker = await Mosquitto.start().catch((e: Error) => {
+    throw new Error(`bench serial: could not start mosquitto (${e.message}); install the Debian package mosquitto, or set TURNWISE_MOSQUITTO to its path`);
+  });
+  const cpus: number[] = [];
+  try {
+    for (let i = 1; i <= runs; i++) {
+      log(`serial: run ${i}/${runs}: turnwise run (serial, 8 ch x 25.6 kHz, MQTT to mosquitto) reading turnwise sim-board through a socat pty, ${seconds} s measured after 10 s ...`);
+      const r = await serialRun(seconds, broker, profileDir);
+      cpus.push(r.cpu_pct);
+      // sim-board's own frames in flight at the agent's stop are the only ones it may not have read.
+      const unread = r.frames_sent - r.frames_dropped - r.samples / 256;
+      console.log(
+        `serial run ${i}: turnwise run ${r.cpu_pct.toFixed(1)} % of one core over ${r.wall_s.toFixed(0)} s (user ${r.user_s.toFixed(2)} s, system ${r.system_s.toFixed(2)} s); ` +
+          `threads: ${Object.entries(r.threads_pct).map(([n, p]) => `${n} ${p.toFixed(1)} %`).join(', ')}; RSS ${r.rss_mb.now.toFixed(0)} MB (peak ${r.rss_mb.peak.toFixed(0)} MB); sim-board ${r.board_cpu_pct.toFixed(1)} %; load average ${r.loadavg_before} -> ${r.loadavg_after}; ` +
+          `${r.live_messages} live messages in the measurement; whole run: ${r.windows} windows, frames ${r.frames_sent} sent, ${r.frames_dropped} dropped by the board, ${r.gaps} gap(s) at the agent, ${unread} sent after the agent stopped reading`,
+      );
+    }
+    if (runs > 1) console.log(`serial: turnwise run ${[...cpus].sort((a, b) => a - b).map((c) => c.toFixed(1)).join(', ')} % of one core over ${runs} runs`);
+  } finally {
+    await broker.dispose();
+  }
+}
+
 const which = process.argv[2] ?? 'all';
 if (which === 'all' || which === 'realtime') await realtime(arg('seconds', 60));
 if (which === 'all' || which === 'soak') await soak(arg('days', 7), arg('time-scale', 60));
 if (which === 'all' || which === 'outage') await outage(arg('outage-time-scale', 600));
+if (which === 'all' || which === 'serial') await serial(arg('seconds', 60), arg('runs', 3), strArg('profile'));
 process.exit(0);

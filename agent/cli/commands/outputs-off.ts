@@ -4,6 +4,7 @@ import { UserError } from '../../errors.js';
 import type { Logger } from '../../log.js';
 import { defaultLastGoodPath, loadGuardedConfig } from '../../runtime/config-guard.js';
 import { parseCommandArgs } from '../args.js';
+import { openBoardGpio } from '../board-gpio.js';
 import type { Command } from '../command.js';
 
 const usage = 'turnwise outputs-off --config CFG.yaml [--last-good FILE]';
@@ -37,8 +38,8 @@ export const outputsOffCommand: Command = {
       process.stdout.write(`no advisory outputs in ${from}: nothing to drop\n`);
       return 0;
     }
-    const { OnoffLines } = await import('../../../drivers/gpio/onoff-lines.js');
-    const gpio = await OnoffLines.open({ log: stderrLogger });
+    // The same chip as `turnwise run` (gpio.chip_label).
+    const gpio = (await openBoardGpio(config, stderrLogger))!;
     const dropped = await releaseAdvisoryOutputs(gpio, advisorySettings(config.advisory, config.sensors));
     process.stdout.write(`dropped (de-energised): ${dropped.join(', ') || 'none configured'} (config ${from})\n`);
     return 0;
