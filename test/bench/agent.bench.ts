@@ -152,7 +152,8 @@ async function soak(days: number, timeScale: number): Promise<void> {
   if (!gc) return void (await b.close());
   console.log(`soak live heap after GC at 10/50/90/100 %: ${series((s) => mb(s.heap))} MB with ${series((s) => String(s.hist))} history points; ArrayBuffers ${series((s) => mb(s.ab, 2))} MB`);
   // The history is bounded: it grows to max_points, then is merged back to 3/4 of it and grows again.
-  const full = samples.findIndex((s, i) => i > 0 && s.hist < samples[i - 1]!.hist);
+  const merged = samples.filter((s, i) => i > 0 && s.hist < samples[i - 1]!.hist);
+  const full = merged.length ? samples.indexOf(merged[0]!) : -1;
   if (full < 0) console.log(`soak: the history did not reach max_points ${maxPoints} (no merge seen)`);
   else {
     const after = samples.slice(full);
@@ -162,7 +163,6 @@ async function soak(days: number, timeScale: number): Promise<void> {
         `(first ${mb(h[0]!)}, last ${mb(h[h.length - 1]!)} MB), ArrayBuffers ${mb(after[0]!.ab, 2)} -> ${mb(after[after.length - 1]!.ab, 2)} MB`,
     );
     // Like for like: the heap just after each merge, when the history is back to about 3/4 of max_points.
-    const merged = samples.filter((s, i) => i > 0 && s.hist < samples[i - 1]!.hist);
     console.log(`soak: live heap just after each merge of the history: ${merged.map((s) => `${mb(s.heap)} MB (window ${s.win}, ${s.hist} points)`).join(', ')}`);
   }
   await b.close();
