@@ -1,8 +1,9 @@
-import { mkdirSync, openSync, closeSync, fsyncSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
-import { dirname, join } from 'node:path';
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { loadConfig } from '../config/load.js';
 import type { Config } from '../config/schema.js';
 import { isUserError, UserError } from '../errors.js';
+import { writeFileAtomic } from '../watcher/files.js';
 
 /**
  * What happens when the config on the board is broken (someone edited /etc/turnwise/turnwise.yaml
@@ -30,25 +31,6 @@ export interface GuardedConfig {
 export function defaultLastGoodPath(env: NodeJS.ProcessEnv = process.env): string {
   const dir = env['STATE_DIRECTORY']?.split(':')[0] || 'state';
   return join(dir, 'last-good-config.yaml');
-}
-
-function writeAtomic(file: string, text: string): void {
-  mkdirSync(dirname(file), { recursive: true });
-  const tmp = `${file}.tmp`;
-  writeFileSync(tmp, text, { mode: 0o600 });
-  const fd = openSync(tmp, 'r');
-  try {
-    fsyncSync(fd);
-  } finally {
-    closeSync(fd);
-  }
-  renameSync(tmp, file);
-  const dfd = openSync(dirname(file), 'r');
-  try {
-    fsyncSync(dfd);
-  } finally {
-    closeSync(dfd);
-  }
 }
 
 /** Loads `file`, or falls back to the last-good copy when `file` does not load (see above). */
@@ -92,7 +74,8 @@ export function fallbackConfig(file: string, lastGood: string, error: UserError)
  */
 export function keepLastGood(file: string, lastGood: string, onError: (e: Error) => void): void {
   try {
-    writeAtomic(lastGood, readFileSync(file, 'utf8'));
+    // Readable by the service user only: a config may name secrets' files and the broker's address.
+    writeFileAtomic(lastGood, readFileSync(file, 'utf8'), 0o600);
   } catch (e) {
     onError(e as Error);
   }

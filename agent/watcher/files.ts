@@ -40,12 +40,12 @@ function writeAll(fd: number, text: string): void {
  * contents: write a temporary file beside it, fsync it, rename over, fsync the directory. When that
  * fails (full disk), the temporary file is removed again and the old contents stay.
  */
-export function writeFileAtomic(file: string, text: string): void {
+export function writeFileAtomic(file: string, text: string, mode = 0o666): void {
   const dir = dirname(file);
   mkdirSync(dir, { recursive: true });
   const tmp = `${file}.tmp-${process.pid}`;
   try {
-    const fd = openSync(tmp, 'w');
+    const fd = openSync(tmp, 'w', mode);
     try {
       writeAll(fd, text);
       fsyncSync(fd);
