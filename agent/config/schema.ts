@@ -6,6 +6,7 @@ import { gpioSchema } from './gpio.js';
 import { liveSchema } from './live.js';
 import { loggingSchema } from './logging.js';
 import { mqttSchema } from './mqtt.js';
+import { sweepSchema } from './sweep.js';
 import { watcherSchema } from './watcher.js';
 
 /**
@@ -88,6 +89,7 @@ export const configSchema = z
     acquisition: acquisitionSchema.optional().describe('Where the samples come from (recording, serial board, simulator).'),
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
     balance: balanceSchema,
+    sweep: sweepSchema.describe('How run-ups and coast-downs are found and read (turnwise sweep).'),
 
     watcher: watcherSchema,
 
