@@ -117,5 +117,5 @@ export function parseBody<T>(schema: z.ZodType<T>, raw: unknown, what: string): 
     if (iss.code === 'unrecognized_keys') return `${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}`;
     return `${where}: ${iss.message} (found ${found(valueAt(raw, iss.path))})`;
   });
-  throw new ApiError(400, 'invalid_request', `${problems.length} problem(s) in the ${what}: ${problems.join('; ')}`, 'fix the fields named and send it again; README "Live view and balancing workbench" lists every field', problems);
+  throw new ApiError(400, 'invalid_request', `${problems.length} problem(s) in the ${what}: ${problems.join('; ')}`, 'fix the fields named and send it again; docs/live-page.md, "HTTP API", lists every field', problems);
 }

@@ -36,7 +36,7 @@ function schemasAction(out: string | undefined, check: boolean): number {
 
 function outboxAction(cfgFile: string, json: boolean): number {
   const cfg = loadConfig(cfgFile);
-  if (!cfg.mqtt) throw new UserError(cfgFile, 'has no mqtt section, so there is no outbox', 'add an mqtt section (see README, "Plant network")');
+  if (!cfg.mqtt) throw new UserError(cfgFile, 'has no mqtt section, so there is no outbox', 'add an mqtt section (see docs/plant-network.md, "Config", and config/example-network.yaml)');
   const { dir } = outboxSettings(cfg.mqtt, cfg.state_dir);
   const names = existsSync(dir) ? readdirSync(dir).sort() : [];
   const pending = names
