@@ -58,7 +58,6 @@ function describeEvent(e: AgentEvent): string {
 
 export const demoCommand: Command = {
   name: 'demo',
-  summary: 'the whole product on a laptop: simulated demo fan, MQTT broker, live page, a week in minutes',
   usage,
   async run(argv) {
     const { values } = parseCommandArgs('demo', usage, argv, {
