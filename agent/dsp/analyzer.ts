@@ -11,8 +11,8 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
 /**
  * The measurement core: source items in, one WindowResult per window out.
  *
- *   volts --AccelerationStage--> mm/s^2 --+--> SampleRing --(tach revolutions)--> SyncAverager --> order vectors
- *                                         +--> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
+ *   volts --AccelerationStage--> mm/s^2 (constant reference removed) --> SampleRing --(tach revolutions)--> SyncAverager --> order vectors
+ *                                     (DC estimate removed) --> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
  *   tach volts --TachDetector--> edges --RevolutionTracker--> trusted revolutions
  *
  * All buffers are allocated here, once; `push` allocates nothing per sample (only small typed-array
@@ -77,6 +77,7 @@ export class Analyzer {
   private readonly cfg: Config;
   private readonly chans: ChannelState[];
   private readonly scratch: Float32Array;
+  private readonly syncScratch: Float32Array;
   private readonly detector: TachDetector;
   private readonly tracker: RevolutionTracker;
   private readonly tachChannel: number;
@@ -150,6 +151,7 @@ export class Analyzer {
       spectrum: new SpectrumAccumulator(plan),
     }));
     this.scratch = new Float32Array(maxBlock);
+    this.syncScratch = new Float32Array(maxBlock);
     this.tachChannel = cfg.tach.channel;
     const ppr = cfg.tach.pulses_per_rev;
     this.detector = new TachDetector({
@@ -178,6 +180,7 @@ export class Analyzer {
     this.tracker.reset();
     this.detector.reset();
     for (const c of this.chans) {
+      c.accel.rebase();
       c.decimator.reset();
       c.spectrum.discardPartial();
     }
@@ -196,11 +199,12 @@ export class Analyzer {
     const n = item.channels[0]?.length ?? 0;
     if (n > this.scratch.length) throw new Error(`block of ${n} samples exceeds maxBlock ${this.scratch.length}`);
     const scratch = this.scratch;
+    const sync = this.syncScratch;
     for (const c of this.chans) {
       const volts = item.channels[c.channel]!;
       c.stats.add(volts);
-      c.accel.process(volts, scratch);
-      c.ring.write(scratch, start, n);
+      c.accel.process(volts, scratch, sync);
+      c.ring.write(sync, start, n);
       c.decimator.process(scratch, n, c.spectrum);
     }
     if (item.tachEdges) {

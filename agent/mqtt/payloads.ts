@@ -97,6 +97,11 @@ const agentHealth = z
     source_open_failures: optCount('Serial board: failed attempts to open the device.'),
     source_last_error: z.string().nullable().optional().describe('Serial board: the last problem, in words.'),
     source_last_error_at: z.string().nullable().optional().describe('Serial board: when the last problem happened, ISO 8601 UTC.'),
+    time_anchors: optCount('Times the sample clock was anchored to the wall clock: 1 at start, +1 per board restart or wall-clock step.'),
+    wall_clock_steps_back: optCount('Live board: the wall clock stepped back against the sample clock by more than the tolerance (times re-anchored).'),
+    wall_clock_steps_forward: optCount('Live board: the wall clock stepped forward against the sample clock for a whole second of samples (times re-anchored).'),
+    time_latency_ms: z.number().nullable().optional().describe('Live board: arrival of the last block minus its stamped time, ms; null for recordings and simulations.'),
+    time_slew_ms: z.number().optional().describe('Live board: correction slewed into the time anchor since it was set, ms (the board crystal against the wall clock).'),
     gpio_speed_rpm: z.number().nullable().optional().describe('Speed from the GPIO tach input (gpio.tach_speed), r/min; speed only, never phase; null when unknown.'),
     gpio_speed_check: z
       .enum(['agree', 'stopped', 'mismatch', 'tach_lost', 'gpio_silent'])

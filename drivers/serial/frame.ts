@@ -164,6 +164,8 @@ export class DecodedFrame {
   channels: readonly Float32Array[] = [];
   /** Rising tach edges, absolute fractional output-clock indices; undefined when the board does not time the tach. */
   tachEdges: Float64Array | undefined = undefined;
+  /** Per-channel timing delay in ticks (version 2 frames: ADC delay + channel skew); undefined for version 1. */
+  channelDelays: Float64Array | undefined = undefined;
 }
 
 export type DecodeProblem = 'crc' | 'bad_length' | 'bad_header' | 'rejected' | 'resync' | 'gap' | 'sequence' | 'clock_restart';
@@ -543,6 +545,7 @@ export class FrameDecoder {
     let from: number;
     let to: number;
     let what: string;
+    let restart = false;
     if (boardFirst > expected) {
       from = expected + this.clockOffset;
       to = boardFirst + this.clockOffset;
@@ -552,6 +555,7 @@ export class FrameDecoder {
       // The board's clock went backwards: it restarted. How much was lost is only known from the
       // wall clock: the time since the last good frame, less this frame's own duration.
       this.counters.clock_restarts++;
+      restart = true;
       const elapsedMs = Math.max(0, this.nowMs() - this.lastGoodMs);
       const estimate = Math.max(1, Math.round((elapsedMs / 1000) * (this.lastRate || rate)) - spc);
       from = expected + this.clockOffset;
@@ -564,7 +568,7 @@ export class FrameDecoder {
     this.counters.gaps++;
     this.counters.samples_lost += to - from;
     this.sink.problem('gap', `${to - from} samples lost (${from} .. ${to}): ${reason}`);
-    this.sink.gap({ kind: 'gap', fromIndex: from, toIndex: to, reason });
+    this.sink.gap(restart ? { kind: 'gap', fromIndex: from, toIndex: to, reason, clockRestart: true } : { kind: 'gap', fromIndex: from, toIndex: to, reason });
   }
 
   private describeCause(what: string): string {

@@ -226,7 +226,7 @@ export class SerialSource implements SampleSource {
   private onFrame(f: DecodedFrame): void {
     this.lastFrameMs = this.nowMs();
     this.attempt = 0;
-    this.queue.pushBlock(f.startIndex, f.channels, f.tachEdges);
+    this.queue.pushBlock(f.startIndex, f.channels, f.tachEdges, this.lastFrameMs, f.channelDelays);
   }
 
   private tryOpen(): void {
