@@ -271,12 +271,20 @@ describe('frame decoding', () => {
     expect(dec.counters.bad_lengths).toBe(1);
   });
 
-  it('counts an unknown protocol version as a bad header and says which version it reads', () => {
+  it('counts an unknown protocol version as a bad header and says which versions it reads', () => {
+    const f = Buffer.from(encodeFrame(content(0, 0)));
+    f[4] = 3;
+    const { sink, dec } = decodeAll(f);
+    expect(dec.counters.bad_headers).toBe(1);
+    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/protocol version 3 \(this agent reads versions 1 and 2\)/);
+  });
+
+  it('counts a version 2 frame with a version 1 header length as a bad header, naming both', () => {
     const f = Buffer.from(encodeFrame(content(0, 0)));
     f[4] = 2;
     const { sink, dec } = decodeAll(f);
     expect(dec.counters.bad_headers).toBe(1);
-    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/protocol version 2 \(this agent reads version 1\)/);
+    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/header length 40 below 48 \(version 2\)/);
   });
 
   it('rejects intact frames that do not match the configured channel count or sample rate', () => {
