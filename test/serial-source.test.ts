@@ -451,12 +451,58 @@ describe('turnwise probe-serial', () => {
     await playing;
     const r = JSON.parse(chunks.join(''));
     expect(code).toBe(0);
-    expect(r.format).toEqual({ channels: CHANNELS, sample_rate_hz: RATE, sample_format: 'int24', samples_per_frame: SPF, tach_timed: true });
+    const v1 = { protocol_version: 1, channels: CHANNELS, sample_rate_hz: RATE, sample_format: 'int24', samples_per_frame: SPF, tach_timed: true, sample_delay_ticks: null, tach_delay_ticks: null, max_skew_ticks: null };
+    expect(r.format).toEqual(v1);
+    expect(r.formats_seen).toEqual([{ ...v1, frames: r.counters.frames_ok, first_sequence: expect.any(Number) }]);
+    expect(r.modem_lines).toMatch(/^(asserted|not supported by the device \(.+\))$/);
     expect(r.counters.frames_ok).toBeGreaterThan(50);
     expect(r.counters.crc_errors).toBe(0);
     // Paced by the emulator's real-time loop; loose bounds, this is a sanity check of the estimate.
     expect(r.measured_rate_hz).toBeGreaterThan(0.75 * RATE);
     expect(r.measured_rate_hz).toBeLessThan(1.25 * RATE);
+  });
+
+  it('reports every format and frame size seen, and every gap of a burst with its bounds', async () => {
+    await pty.start();
+    writer = await DeviceWriter.open(pty.boardPath);
+    const w = writer;
+    const sig = new RampSignal();
+    const mk = (format: 'int24' | 'int16' | 'float32', spf: number, first: number, seq: number, timing?: { sampleDelayTicks: number; tachDelayTicks: number; skewTicks: number[] }) =>
+      new BoardEmulator(sig, { sampleRateHz: RATE, samplesPerFrame: spf, format, scaleVPerCount: SCALES, offsetV: OFFSETS, tachTimed: true, firstSample: first, firstSequence: seq, ...(timing ? { timing } : {}) });
+    const chunks: string[] = [];
+    const spy = vi.spyOn(process.stdout, 'write').mockImplementation((s: string | Uint8Array) => (chunks.push(String(s)), true));
+    const errSpy = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
+    let code: number;
+    try {
+      const probing = probeSerialCommand.run(['--device', pty.agentPath, '--seconds', '1.5', '--json']);
+      await new Promise((r) => setTimeout(r, 300));
+      // int24 x 256, then int16 x 128 with a burst of three single-frame gaps, then version 2 float32 x 512.
+      const a = mk('int24', 256, 0, 0);
+      for (let i = 0; i < 10; i++) await w.write(a.nextFrame());
+      const b = mk('int16', 128, a.nextIndex, a.nextSequence);
+      for (let i = 0; i < 12; i++) {
+        if (i === 3 || i === 5 || i === 7) b.skipFrame();
+        else await w.write(b.nextFrame());
+      }
+      const c = mk('float32', 512, b.nextIndex, b.nextSequence, { sampleDelayTicks: 38, tachDelayTicks: 1.5, skewTicks: [0, 0.25, 0.5, 0.75] });
+      for (let i = 0; i < 5; i++) await w.write(c.nextFrame());
+      code = await probing;
+    } finally {
+      spy.mockRestore();
+      errSpy.mockRestore();
+    }
+    const r = JSON.parse(chunks.join(''));
+    expect(code).toBe(0);
+    const base = { channels: CHANNELS, sample_rate_hz: RATE, tach_timed: true };
+    expect(r.formats_seen).toEqual([
+      { ...base, protocol_version: 1, sample_format: 'int24', samples_per_frame: 256, sample_delay_ticks: null, tach_delay_ticks: null, max_skew_ticks: null, frames: 10, first_sequence: 0 },
+      { ...base, protocol_version: 1, sample_format: 'int16', samples_per_frame: 128, sample_delay_ticks: null, tach_delay_ticks: null, max_skew_ticks: null, frames: 9, first_sequence: 10 },
+      { ...base, protocol_version: 2, sample_format: 'float32', samples_per_frame: 512, sample_delay_ticks: 38, tach_delay_ticks: 1.5, max_skew_ticks: 0.75, frames: 5, first_sequence: 22 },
+    ]);
+    // Each gap of the burst is counted and listed with its exact bounds.
+    expect(r.counters.gaps).toBe(3);
+    expect(r.gap_list.map((g: { from_index: number; to_index: number }) => [g.from_index, g.to_index])).toEqual([3, 5, 7].map((i) => [2560 + i * 128, 2560 + (i + 1) * 128]));
+    expect(r.gap_list[0].reason).toMatch(/sequence jump 12 -> 14 \(1 frame\(s\) missing\)/);
   });
 
   it('names a missing device and what to do', async () => {

@@ -202,3 +202,97 @@ describe('SampleTimeline (pure)', () => {
     expect(t.health().time_slew_ms).toBeGreaterThan(300); // 100 ppm of an hour is 360 ms
   });
 });
+
+describe('a board declaring its ADC delay, tach delay and channel skew (protocol version 2), through a real pty', () => {
+  // A multiplexed 4-channel board with a sigma-delta ADC: every value describes the input 38 ticks
+  // before its index, less the channel's skew (0, 1/4, 1/2, 3/4 of a sample period); its tach
+  // input capture reports each edge 3.5 ticks late. Channel 3 carries the tach pulse as well.
+  const D = 38;
+  const T = 3.5;
+  const SKEW = [0, 0.25, 0.5, 0.75];
+  const RPM = 1481;
+  const SPR = (RATE * 60) / RPM; // samples per revolution
+  const LAG = [40, 160, 290]; // acceleration lag of each vibration channel, degrees (velocity: +90)
+  const E0 = 37.25; // first true tach edge, ticks
+
+  class DelayedBoard {
+    readonly channelCount = 4;
+    fill(first: number, n: number, out: readonly Float64Array[], edges: Float64Array): number {
+      const w = (2 * Math.PI) / SPR;
+      for (let c = 0; c < 4; c++) {
+        const o = out[c]!;
+        for (let i = 0; i < n; i++) {
+          const t = first + i - D + SKEW[c]!; // the instant this value describes
+          if (c < 3) o[i] = 0.2 * Math.cos(w * (t - E0) - (LAG[c]! * Math.PI) / 180);
+          else {
+            // 5 V pulse with a linear rise over 2 ticks, crossing 2.5 V at each true edge.
+            const since = ((((t - E0) % SPR) + SPR + 1) % SPR) - 1;
+            o[i] = since < -1 || since > 0.1 * SPR ? 0 : Math.min(5, 2.5 + 2.5 * since);
+          }
+        }
+      }
+      let count = 0;
+      for (let k = Math.ceil((first - T - E0) / SPR); ; k++) {
+        const reported = E0 + k * SPR + T;
+        if (reported >= first + n) break;
+        if (reported >= first) edges[count++] = reported;
+      }
+      return count;
+    }
+  }
+
+  async function phases(declare: boolean, boardTimesTach: boolean): Promise<number[]> {
+    await pty.start();
+    const log = new MemoryLogger();
+    source = new SerialSource({ device: pty.agentPath, baud: 921_600, sampleRateHz: RATE, channels: 4, boardTachEdges: boardTimesTach, reconnectMinMs: 100, reconnectMaxMs: 400, stallTimeoutMs: 60_000, queueFrames: 4096, maxFrameBytes: 65_536, log, tickMs: 50 });
+    const src = source;
+    const windows: number[][] = [];
+    const rt = new AgentRuntime({
+      config: testConfig([['A', 0, 'DE', 'vertical'], ['B', 1, 'DE', 'horizontal'], ['C', 2, 'NDE', 'vertical']], { tachChannel: 3 }),
+      source: src,
+      clock: new ManualClock(),
+      logger: log,
+      windowSeconds: 1,
+      liveSeconds: 0.5,
+      boardTimesTach,
+      windowConsumers: [{ onWindow: (w) => void windows.push(w.channels.map((c) => c.orders['1']!.phase_deg)) }],
+      liveConsumers: [],
+    });
+    const running = rt.run();
+    const t0 = Date.now();
+    while (!src.health().connected) {
+      if (Date.now() - t0 > 10_000) throw new Error('the serial source did not open the pty');
+      await new Promise((r) => setTimeout(r, 20));
+    }
+    writer = await DeviceWriter.open(pty.boardPath);
+    const b = new BoardEmulator(new DelayedBoard(), { sampleRateHz: RATE, samplesPerFrame: SPF, format: 'float32', scaleVPerCount: [1, 1, 1, 1], tachTimed: boardTimesTach, ...(declare ? { timing: { sampleDelayTicks: D, tachDelayTicks: boardTimesTach ? T : 0, skewTicks: SKEW } } : {}) });
+    const frames = Math.ceil((1.1 * RATE) / SPF);
+    for (let i = 0; i < frames; i++) await writer.write(b.nextFrame());
+    while (src.health().frames_ok < frames && Date.now() - t0 < 20_000) await new Promise((r) => setTimeout(r, 20));
+    await new Promise((r) => setTimeout(r, 100));
+    rt.stop();
+    await running;
+    expect(windows.length).toBe(1);
+    if (declare) expect(src.health()).toMatchObject({ protocol_version: 2, sample_delay_ticks: D, max_skew_ticks: 0.75, timing_faults: 0 });
+    return windows[0]!;
+  }
+
+  const diff = (a: number, b: number) => ((((a - b) % 360) + 540) % 360) - 180;
+  for (const boardTimesTach of [true, false]) {
+    const mode = boardTimesTach ? 'tach timed by the board' : 'tach found on channel 3';
+    it(`${mode}: declared, the phases are the true ones within 0.05 degree`, async () => {
+      const got = await phases(true, boardTimesTach);
+      for (let c = 0; c < 3; c++) expect(Math.abs(diff(got[c]!, LAG[c]! + 90)), `channel ${c}`).toBeLessThan(0.05);
+    });
+    it(`${mode}: the same samples as version 1 frames (no declaration) read late by the delay, as predicted`, async () => {
+      const got = await phases(false, boardTimesTach);
+      for (let c = 0; c < 3; c++) {
+        // Own computation: a value read d ticks late moves the peak d x 360 / samples-per-revolution degrees later;
+        // board-timed edges reported T late move the reference the same way; a tach found on channel 3 carries that channel's delay.
+        const readLate = D - SKEW[c]! - (boardTimesTach ? T : D - SKEW[3]!);
+        const predicted = (readLate * 360) / SPR;
+        expect(Math.abs(diff(got[c]!, LAG[c]! + 90 + predicted)), `channel ${c}: predicted error ${predicted.toFixed(2)} degrees`).toBeLessThan(0.05);
+      }
+    });
+  }
+});

@@ -105,7 +105,7 @@ export class AgentRuntime {
     const timeline = new SampleTimeline({
       sampleRate: fs,
       timeScale: this.opts.timeScale,
-      stepToleranceMs: this.opts.clockStepToleranceMs,
+      stepToleranceMs: this.opts.clockStepToleranceMs ?? (config.acquisition?.driver === 'serial' ? config.acquisition.clock_step_tolerance_ms : undefined),
       onStep: (kind, detail, stepMs) => stepLog.report(kind, `${info.description}: ${detail}`, { step_ms: Math.round(stepMs) }),
     });
     this.timeline = timeline;
