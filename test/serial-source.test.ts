@@ -55,17 +55,21 @@ function newBoard(firstSample = 0): BoardEmulator {
 
 interface Received {
   blocks: { startIndex: number; channels: Float32Array[]; tachEdges: number[] }[];
+  arrivals: number[];
   gaps: GapMarker[];
   done: Promise<void>;
 }
 
 /** Consumes the source in the background, copying every block (its arrays are reused). */
 function consume(source: SerialSource): Received {
-  const r: Received = { blocks: [], gaps: [], done: Promise.resolve() };
+  const r: Received = { blocks: [], arrivals: [], gaps: [], done: Promise.resolve() };
   r.done = (async () => {
     for await (const item of source.items()) {
       if (item.kind === 'gap') r.gaps.push(item);
-      else r.blocks.push({ startIndex: item.startIndex, channels: item.channels.map((c) => Float32Array.from(c)), tachEdges: Array.from(item.tachEdges ?? []) });
+      else {
+        r.blocks.push({ startIndex: item.startIndex, channels: item.channels.map((c) => Float32Array.from(c)), tachEdges: Array.from(item.tachEdges ?? []) });
+        r.arrivals.push(item.arrivedMs ?? NaN);
+      }
     }
   })();
   return r;
@@ -159,6 +163,13 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expect(got.blocks.reduce((n, b) => n + b.tachEdges.length, 0)).toBe(Math.floor((5000 + 60 * SPF - FIRST_EDGE) / EDGE_PERIOD) - Math.ceil((5000 - FIRST_EDGE) / EDGE_PERIOD) + 1);
     const h = src.health();
     expect(h).toMatchObject({ frames_ok: 60, crc_errors: 0, bad_lengths: 0, resyncs: 0, bytes_skipped: 0, gaps: 0, samples_lost: 0, reconnects: 0 });
+    // The agent tried to assert DTR and RTS: a pseudo-terminal has no modem lines and refuses the ioctl (Linux tty driver).
+    expect(h.modem_lines).toMatch(/^not supported by the device \(.*Inappropriate ioctl/);
+    expect(log.lines.some((l) => l.level === 'debug' && /DTR and RTS could not be set/.test(l.msg))).toBe(true);
+    // Version 1 frames: no timing declared.
+    expect(h).toMatchObject({ protocol_version: 1, sample_delay_ticks: null, timing_faults: 0 });
+    // Every block carries the wall-clock time it arrived, for the runtime's time anchoring.
+    expect(got.arrivals.every((t, i) => t >= (got.arrivals[i - 1] ?? 0) && Math.abs(t - Date.now()) < 30_000)).toBe(true);
     await src.close();
     await got.done; // the item stream ends on close
   });
@@ -218,8 +229,24 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expectExact(got.blocks);
     // Ten CRC errors in one burst: one line when it starts, not one per frame.
     expect(log.lines.filter((l) => /CRC mismatch/.test(l.msg)).length).toBe(1);
+    // Each gap of the burst stays visible: one debug line each with its bounds, the last in the health report.
+    const gapLines = log.lines.filter((l) => l.level === 'debug' && /: gap \d+ \.\. \d+: /.test(l.msg));
+    expect(gapLines.map((l) => [l.fields['from_index'], l.fields['to_index']])).toEqual(expectedGaps);
+    expect(h).toMatchObject({ last_gap_from_index: expectedGaps.at(-1)![0], last_gap_to_index: expectedGaps.at(-1)![1], last_gap_reason: 'sequence jump 32 -> 36 (3 frame(s) missing)' });
     await waitFor('burst summary', () => log.lines.filter((l) => /"crc" burst over: 10 occurrence/.test(l.msg)).length === 1, 3000);
     expect(h.last_error).toMatch(/sequence jump 32 -> 36|samples lost/);
+  });
+
+  it('board-timed edges are used only with board_tach_edges: true; a disagreeing board is reported once per burst', async () => {
+    const { src, got, w } = await startStreaming({ boardTachEdges: false });
+    const board = newBoard();
+    for (let k = 0; k < 20; k++) await w.write(board.nextFrame());
+    await waitFor('20 blocks', () => got.blocks.length === 20);
+    expect(got.blocks.every((b) => b.tachEdges.length === 0)).toBe(true); // edges not passed on
+    expect(src.health().tach_mode_mismatches).toBe(20);
+    const lines = log.lines.filter((l) => /carries board-timed tach edges but acquisition\.board_tach_edges is false/.test(l.msg));
+    expect(lines.length).toBe(1);
+    expect(lines[0]!.level).toBe('warn');
   });
 
   it('reopens with backoff after the device vanishes, resumes sampling and reports the exact gap', async () => {
