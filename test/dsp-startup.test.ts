@@ -12,14 +12,10 @@
  * +90 degrees (textbook relation). The analytic 1x is checked too.
  */
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { ManualClock } from '../agent/clock.js';
 import type { LiveFrame, WindowResult } from '../agent/dsp/types.js';
-import { MemoryLogger } from '../agent/log.js';
-import { AgentRuntime } from '../agent/runtime/runtime.js';
-import { BoardEmulator, DeviceWriter, type BoardSignal } from '../drivers/serial/board-emulator.js';
-import { SerialSource } from '../drivers/serial/serial-source.js';
+import { BoardEmulator, type BoardSignal } from '../drivers/serial/board-emulator.js';
 import { testConfig } from './support/config.js';
-import { PtyPair } from './support/pty-pair.js';
+import { PtyRuntimeRig } from './support/pty-runtime.js';
 
 const FS = 25_600;
 const F0 = 1481 / 60; // rev/s
@@ -129,54 +125,31 @@ function phaseDiff(a: number, b: number): number {
   return ((((a - b) % 360) + 540) % 360) - 180;
 }
 
-let pty: PtyPair;
-let source: SerialSource | null;
-let writer: DeviceWriter | null;
+let rig: PtyRuntimeRig;
 beforeEach(() => {
-  pty = new PtyPair();
-  source = null;
-  writer = null;
+  rig = new PtyRuntimeRig();
 });
-afterEach(async () => {
-  await source?.close();
-  await writer?.close().catch(() => {});
-  await pty.dispose();
-});
+afterEach(() => rig.dispose());
 
 /** Plays 2.6 s of the plant (as fast as the pty takes it) and returns the live frames and windows. */
 async function run(boardTimesTach: boolean): Promise<{ lives: LiveFrame[]; windows: WindowResult[] }> {
-  await pty.start();
-  const log = new MemoryLogger();
-  source = new SerialSource({ device: pty.agentPath, baud: 921_600, sampleRateHz: FS, channels: 3, reconnectMinMs: 100, reconnectMaxMs: 400, stallTimeoutMs: 60_000, queueFrames: 4096, maxFrameBytes: 65_536, log, tickMs: 50 });
-  const src = source;
   const lives: LiveFrame[] = [];
   const windows: WindowResult[] = [];
-  const rt = new AgentRuntime({
-    config: testConfig([['DE-V', 0, 'DE', 'vertical'], ['DE-H', 1, 'DE', 'horizontal']], { tachChannel: 2, dsp: { resample_points: 256 } }),
-    source: src,
-    clock: new ManualClock(),
-    logger: log,
-    windowSeconds: 2,
-    liveSeconds: 0.5,
-    boardTimesTach,
-    windowConsumers: [{ onWindow: (w) => void windows.push(structuredClone(w)) }],
-    liveConsumers: [{ onLive: (f) => void lives.push(structuredClone(f)) }],
-  });
-  const running = rt.run();
-  const t0 = Date.now();
-  while (!src.health().connected) {
-    if (Date.now() - t0 > 10_000) throw new Error('the serial source did not open the pty');
-    await new Promise((r) => setTimeout(r, 20));
-  }
-  writer = await DeviceWriter.open(pty.boardPath);
+  const { writer } = await rig.start(
+    { sampleRateHz: FS, channels: 3 },
+    {
+      config: testConfig([['DE-V', 0, 'DE', 'vertical'], ['DE-H', 1, 'DE', 'horizontal']], { tachChannel: 2, dsp: { resample_points: 256 } }),
+      windowSeconds: 2,
+      liveSeconds: 0.5,
+      boardTimesTach,
+      windowConsumers: [{ onWindow: (w) => void windows.push(structuredClone(w)) }],
+      liveConsumers: [{ onLive: (f) => void lives.push(structuredClone(f)) }],
+    },
+  );
   const b = new BoardEmulator(new PlantSignal(), { sampleRateHz: FS, samplesPerFrame: SPF, format: 'float32', scaleVPerCount: [1, 1, 1], tachTimed: boardTimesTach });
   const frames = Math.ceil((2.6 * FS) / SPF);
   for (let i = 0; i < frames; i++) await writer.write(b.nextFrame());
-  const t1 = Date.now();
-  while (src.health().frames_ok < frames && Date.now() - t1 < 10_000) await new Promise((r) => setTimeout(r, 20));
-  await new Promise((r) => setTimeout(r, 100));
-  rt.stop();
-  await running;
+  await rig.finish(frames);
   return { lives, windows };
 }
 

@@ -7,13 +7,13 @@
  */
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { ManualClock } from '../agent/clock.js';
-import { MemoryLogger } from '../agent/log.js';
-import { AgentRuntime } from '../agent/runtime/runtime.js';
+import type { MemoryLogger } from '../agent/log.js';
+import type { AgentRuntime } from '../agent/runtime/runtime.js';
 import { SampleTimeline, type TimeStepKind } from '../agent/runtime/sample-time.js';
-import { BoardEmulator, DeviceWriter, SineTachSignal } from '../drivers/serial/board-emulator.js';
-import { SerialSource } from '../drivers/serial/serial-source.js';
+import { BoardEmulator, SineTachSignal, type DeviceWriter } from '../drivers/serial/board-emulator.js';
+import type { SerialSource } from '../drivers/serial/serial-source.js';
 import { testConfig } from './support/config.js';
-import { PtyPair } from './support/pty-pair.js';
+import { PtyRuntimeRig } from './support/pty-runtime.js';
 
 const RATE = 25_600;
 const SPF = 256;
@@ -21,21 +21,11 @@ const FRAME_MS = (SPF / RATE) * 1000;
 /** A message stamped with the time of its last sample is handed over within this of the wall clock (ms). */
 const STAMP_TOLERANCE_MS = 250;
 
-let pty: PtyPair;
-let source: SerialSource | null;
-let writer: DeviceWriter | null;
-
+let rig: PtyRuntimeRig;
 beforeEach(() => {
-  pty = new PtyPair();
-  source = null;
-  writer = null;
+  rig = new PtyRuntimeRig();
 });
-
-afterEach(async () => {
-  await source?.close();
-  await writer?.close().catch(() => {});
-  await pty.dispose();
-});
+afterEach(() => rig.dispose());
 
 function board(firstSample: number, firstSequence: number): BoardEmulator {
   // 1481 r/min, 0.2 V at 40 degrees and 0.1 V at 250 degrees, 10 V IEPE bias on the first channel.
@@ -55,36 +45,24 @@ interface Stamp {
  * runtime (for its time counters), after `play` has finished and the runtime has stopped.
  */
 async function runWithBoard(play: (w: DeviceWriter) => Promise<void>, wall: () => number = Date.now): Promise<{ stamps: Stamp[]; rt: AgentRuntime; log: MemoryLogger; src: SerialSource }> {
-  await pty.start();
-  const log = new MemoryLogger();
-  source = new SerialSource({ device: pty.agentPath, baud: 921_600, sampleRateHz: RATE, channels: 2, reconnectMinMs: 100, reconnectMaxMs: 400, stallTimeoutMs: 60_000, queueFrames: 4096, maxFrameBytes: 65_536, log, tickMs: 50, burstQuietMs: 300, nowMs: wall });
-  const src = source;
   const stamps: Stamp[] = [];
-  const rt = new AgentRuntime({
-    config: testConfig([['DE-V', 0, 'DE', 'vertical'], ['DE-H', 1, 'DE', 'horizontal']]),
-    source: src,
-    // The runtime's own clock is far from the truth: live times must not come from it.
-    clock: new ManualClock(Date.UTC(2020, 0, 1)),
-    logger: log,
-    windowSeconds: 1,
-    liveSeconds: 0.5,
-    boardTimesTach: true,
-    windowConsumers: [{ onWindow: (_w, at) => void stamps.push({ kind: 'window', atMs: at, wallMs: wall() }) }],
-    liveConsumers: [{ onLive: (_f, at) => void stamps.push({ kind: 'live', atMs: at, wallMs: wall() }) }],
-  });
-  const running = rt.run();
-  const t0 = Date.now();
-  while (!src.health().connected) {
-    if (Date.now() - t0 > 10_000) throw new Error('the serial source did not open the pty');
-    await new Promise((r) => setTimeout(r, 20));
-  }
-  writer = await DeviceWriter.open(pty.boardPath);
+  const { source, writer, runtime } = await rig.start(
+    { sampleRateHz: RATE, channels: 2, burstQuietMs: 300, nowMs: wall },
+    {
+      config: testConfig([['DE-V', 0, 'DE', 'vertical'], ['DE-H', 1, 'DE', 'horizontal']]),
+      // The runtime's own clock is far from the truth: live times must not come from it.
+      clock: new ManualClock(Date.UTC(2020, 0, 1)),
+      windowSeconds: 1,
+      liveSeconds: 0.5,
+      boardTimesTach: true,
+      windowConsumers: [{ onWindow: (_w, at) => void stamps.push({ kind: 'window', atMs: at, wallMs: wall() }) }],
+      liveConsumers: [{ onLive: (_f, at) => void stamps.push({ kind: 'live', atMs: at, wallMs: wall() }) }],
+    },
+  );
   await play(writer);
   // Let the last frames through, then stop.
-  await new Promise((r) => setTimeout(r, 200));
-  rt.stop();
-  await running;
-  return { stamps, rt, log, src };
+  await rig.finish(null);
+  return { stamps, rt: runtime, log: rig.log, src: source };
 }
 
 /** Writes `frames` frames in real time. */
@@ -242,36 +220,22 @@ describe('a board declaring its ADC delay, tach delay and channel skew (protocol
   }
 
   async function phases(declare: boolean, boardTimesTach: boolean): Promise<number[]> {
-    await pty.start();
-    const log = new MemoryLogger();
-    source = new SerialSource({ device: pty.agentPath, baud: 921_600, sampleRateHz: RATE, channels: 4, boardTachEdges: boardTimesTach, reconnectMinMs: 100, reconnectMaxMs: 400, stallTimeoutMs: 60_000, queueFrames: 4096, maxFrameBytes: 65_536, log, tickMs: 50 });
-    const src = source;
     const windows: number[][] = [];
-    const rt = new AgentRuntime({
-      config: testConfig([['A', 0, 'DE', 'vertical'], ['B', 1, 'DE', 'horizontal'], ['C', 2, 'NDE', 'vertical']], { tachChannel: 3 }),
-      source: src,
-      clock: new ManualClock(),
-      logger: log,
-      windowSeconds: 1,
-      liveSeconds: 0.5,
-      boardTimesTach,
-      windowConsumers: [{ onWindow: (w) => void windows.push(w.channels.map((c) => c.orders['1']!.phase_deg)) }],
-      liveConsumers: [],
-    });
-    const running = rt.run();
-    const t0 = Date.now();
-    while (!src.health().connected) {
-      if (Date.now() - t0 > 10_000) throw new Error('the serial source did not open the pty');
-      await new Promise((r) => setTimeout(r, 20));
-    }
-    writer = await DeviceWriter.open(pty.boardPath);
+    const { source: src, writer } = await rig.start(
+      { sampleRateHz: RATE, channels: 4, boardTachEdges: boardTimesTach },
+      {
+        config: testConfig([['A', 0, 'DE', 'vertical'], ['B', 1, 'DE', 'horizontal'], ['C', 2, 'NDE', 'vertical']], { tachChannel: 3 }),
+        windowSeconds: 1,
+        liveSeconds: 0.5,
+        boardTimesTach,
+        windowConsumers: [{ onWindow: (w) => void windows.push(w.channels.map((c) => c.orders['1']!.phase_deg)) }],
+        liveConsumers: [],
+      },
+    );
     const b = new BoardEmulator(new DelayedBoard(), { sampleRateHz: RATE, samplesPerFrame: SPF, format: 'float32', scaleVPerCount: [1, 1, 1, 1], tachTimed: boardTimesTach, ...(declare ? { timing: { sampleDelayTicks: D, tachDelayTicks: boardTimesTach ? T : 0, skewTicks: SKEW } } : {}) });
     const frames = Math.ceil((1.1 * RATE) / SPF);
     for (let i = 0; i < frames; i++) await writer.write(b.nextFrame());
-    while (src.health().frames_ok < frames && Date.now() - t0 < 20_000) await new Promise((r) => setTimeout(r, 20));
-    await new Promise((r) => setTimeout(r, 100));
-    rt.stop();
-    await running;
+    await rig.finish(frames);
     expect(windows.length).toBe(1);
     if (declare) expect(src.health()).toMatchObject({ protocol_version: 2, sample_delay_ticks: D, max_skew_ticks: 0.75, timing_faults: 0 });
     return windows[0]!;
