@@ -97,25 +97,28 @@ describe('CRC-32', () => {
   });
 });
 
+/** The example frame of PROTOCOL.md section 7 (as content). */
+const EXAMPLE_FRAME: FrameContent = {
+  sequence: 7,
+  firstSample: 1000,
+  sampleRateHz: 25600,
+  format: 'int24',
+  scaleVPerCount: [2 ** -20, 2 ** -18],
+  offsetV: [0, 0.5],
+  samples: [
+    [1, -1, 8388607],
+    [-8388608, 0, 4096],
+  ],
+  tachEdges: [1001.5],
+};
+
 describe('frame encoding', () => {
   it('matches the example frame printed in PROTOCOL.md byte for byte', () => {
     const doc = readFileSync(new URL('../drivers/serial/PROTOCOL.md', import.meta.url), 'utf8');
     const block = /<!-- example-frame -->\s*```\n([\s\S]*?)```/.exec(doc);
     expect(block).not.toBeNull();
     const docBytes = Buffer.from(block![1]!.replace(/\s+/g, ''), 'hex');
-    const f = encodeFrame({
-      sequence: 7,
-      firstSample: 1000,
-      sampleRateHz: 25600,
-      format: 'int24',
-      scaleVPerCount: [2 ** -20, 2 ** -18],
-      offsetV: [0, 0.5],
-      samples: [
-        [1, -1, 8388607],
-        [-8388608, 0, 4096],
-      ],
-      tachEdges: [1001.5],
-    });
+    const f = encodeFrame(EXAMPLE_FRAME);
     expect(Buffer.from(f).toString('hex')).toBe(docBytes.toString('hex'));
     // The CRC in the example is right by the independent routine.
     expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)));
@@ -406,20 +409,7 @@ describe('protocol version 2: the board declares its timing', () => {
     const block = /<!-- example-frame-v2 -->\s*```\n([\s\S]*?)```/.exec(doc);
     expect(block).not.toBeNull();
     const docBytes = Buffer.from(block![1]!.replace(/\s+/g, ''), 'hex');
-    const f = encodeFrame({
-      sequence: 7,
-      firstSample: 1000,
-      sampleRateHz: 25600,
-      format: 'int24',
-      scaleVPerCount: [2 ** -20, 2 ** -18],
-      offsetV: [0, 0.5],
-      samples: [
-        [1, -1, 8388607],
-        [-8388608, 0, 4096],
-      ],
-      tachEdges: [1001.5],
-      timing: { sampleDelayTicks: 38.5, tachDelayTicks: 2, skewTicks: [0, 0.5] },
-    });
+    const f = encodeFrame({ ...EXAMPLE_FRAME, timing: { sampleDelayTicks: 38.5, tachDelayTicks: 2, skewTicks: [0, 0.5] } });
     expect(Buffer.from(f).toString('hex')).toBe(docBytes.toString('hex'));
     // Read back field by field at the documented offsets (Node's Buffer readers, not the decoder).
     expect(docBytes[4]).toBe(2);
