@@ -249,6 +249,28 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expect(lines[0]!.level).toBe('warn');
   });
 
+  it('bad input from the board: a rate beyond the tolerance and an impossible timing declaration, each one warning, counted, sampling goes on', async () => {
+    const { src, got, w } = await startStreaming({ sampleRateTolerancePpm: 100 });
+    const mk = (rate: number, first: number, seq: number, timing?: { sampleDelayTicks: number; tachDelayTicks: number; skewTicks: number[] }) =>
+      new BoardEmulator(new RampSignal(), { sampleRateHz: rate, samplesPerFrame: SPF, format: 'int24', scaleVPerCount: SCALES, offsetV: OFFSETS, tachTimed: true, firstSample: first, firstSequence: seq, ...(timing ? { timing } : {}) });
+    // 25 700 Hz is +3906 ppm: rejected; 25 601 Hz is +39 ppm: accepted.
+    const far = mk(25_700, 0, 0);
+    for (let k = 0; k < 10; k++) await w.write(far.nextFrame());
+    const near = mk(25_601, far.nextIndex, far.nextSequence);
+    for (let k = 0; k < 10; k++) await w.write(near.nextFrame());
+    // A skew of 1.5 sample periods is impossible: samples still delivered.
+    const bad = mk(RATE, near.nextIndex, near.nextSequence, { sampleDelayTicks: 38, tachDelayTicks: 0, skewTicks: [0, 1.5, 0, 0] });
+    for (let k = 0; k < 10; k++) await w.write(bad.nextFrame());
+    await waitFor('20 blocks', () => got.blocks.length === 20);
+    const h = src.health();
+    expect(h).toMatchObject({ connected: true, frames_ok: 20, rejected_frames: 10, timing_faults: 10, protocol_version: 2, sample_delay_ticks: null });
+    const rate = log.lines.filter((l) => /sample rate 25700 Hz declared, \+3906 ppm from the configured 25600 Hz, beyond the tolerance of 100 ppm/.test(l.msg));
+    expect(rate.map((l) => l.level)).toEqual(['warn']);
+    const timing = log.lines.filter((l) => /impossible timing declaration \(channel 1 skew_ticks 1\.5 outside 0 to below 1/.test(l.msg));
+    expect(timing.map((l) => l.level)).toEqual(['warn']);
+    expect(timing[0]!.msg).toMatch(/none yet: no delay compensation/);
+  });
+
   it('reopens with backoff after the device vanishes, resumes sampling and reports the exact gap', async () => {
     const { src, got, w } = await startStreaming();
     const board = newBoard();
