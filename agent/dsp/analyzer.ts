@@ -340,6 +340,7 @@ export class Analyzer {
     const fRev = weight > 0 ? this.sampleRate / (this.livePeriod / weight) : null;
     return {
       sample_index: now,
+      sample_rate_hz: this.sampleRate,
       speed_rpm: fRev !== null ? fRev * 60 : null,
       revolutions_weight: weight,
       age_s: Number.isNaN(this.lastRevEnd) ? Infinity : (now - this.lastRevEnd) / this.sampleRate,
