@@ -314,38 +314,37 @@ export class SerialSource implements SampleSource {
     this.connected = true;
     this.lastFrameMs = this.nowMs();
     if (this.everConnected) this.reconnects++;
-    this.assertModemLines(port);
     const reader = new PortReader(port, {
       data: (chunk) => this.decoder.push(chunk),
       // A read error is the device going away (unplugged, hung up): close and reopen with backoff.
       failed: (err) => void this.closePort(port, err),
     });
-    this.log.info({ device: this.opts.device, reconnects: this.reconnects, read_mode: reader.mode }, this.everConnected ? `${this.opts.device}: reopened` : `${this.opts.device}: opened`);
+    const what = this.everConnected ? 'reopened' : 'opened';
     this.everConnected = true;
     this.reader = reader;
     reader.start();
+    // Says what became of DTR and RTS in the same line (once the ioctl has answered).
+    void this.assertModemLines(port).then((lines) => {
+      this.log.info({ device: this.opts.device, reconnects: this.reconnects, read_mode: reader.mode, modem_lines: lines }, `${this.opts.device}: ${what}, 8N1 at ${this.opts.baud} bit/s, DTR and RTS ${lines}`);
+    });
   }
 
   /**
    * Asserts DTR and RTS, as many USB CDC firmwares stream only once the host has raised DTR
    * ("terminal ready"). A pseudo-terminal has no modem lines: that is noted, not an error.
    */
-  private assertModemLines(port: OpenPort): void {
+  private async assertModemLines(port: OpenPort): Promise<string> {
     const p = port as OpenPort & { set?: (o: { dtr?: boolean; rts?: boolean }) => Promise<void> };
-    if (typeof p.set !== 'function') {
-      this.modemLines = 'not available from this port';
-      return;
-    }
-    p.set({ dtr: true, rts: true }).then(
-      () => {
+    if (typeof p.set !== 'function') this.modemLines = 'not available from this port';
+    else {
+      try {
+        await p.set({ dtr: true, rts: true });
         this.modemLines = 'asserted';
-        this.log.debug({ device: this.opts.device }, `${this.opts.device}: DTR and RTS asserted`);
-      },
-      (e: Error) => {
-        this.modemLines = `not supported by the device (${e.message})`;
-        this.log.debug({ device: this.opts.device }, `${this.opts.device}: DTR and RTS could not be set (${e.message}); a pseudo-terminal has no modem lines`);
-      },
-    );
+      } catch (e) {
+        this.modemLines = `not supported by the device (${(e as Error).message}; a pseudo-terminal has no modem lines)`;
+      }
+    }
+    return this.modemLines;
   }
 
   /** Stops reading and closes the port; `failure` is the read error that made it necessary, if any. */
