@@ -73,6 +73,7 @@ function fmt(x: number, d = 1): string {
 export class RunCapture {
   private phase: CapturePhase = 'settling';
   private prevAt: number | null = null;
+  private prevIndex: number | null = null;
   private settled = 0;
   private measured = 0;
   private refSpeed: number | null = null;
@@ -129,7 +130,9 @@ export class RunCapture {
   push(frame: LiveFrame, atMs: number): CaptureProgress {
     if (this.finished) return this.progress();
     const prev = this.prevAt;
+    const prevIndex = this.prevIndex;
     this.prevAt = atMs;
+    this.prevIndex = frame.sample_index;
     const speed = frame.speed_rpm;
     // A slow fan turns less often: allow three revolutions' time as well.
     const maxAge = speed !== null && speed > 0 ? Math.max(this.settings.maxAgeS, 180 / speed) : this.settings.maxAgeS;
@@ -143,8 +146,12 @@ export class RunCapture {
       return this.progress(); // the first good frame after a pause only marks the time
     }
     this.refSpeed ??= speed;
-    if (prev === null || atMs <= prev) return this.progress();
-    const revs = ((atMs - prev) / 60000) * speed;
+    // Elapsed time from the sample clock when the frame says its rate: the wall-clock time on live
+    // frames is re-anchored after a board restart or a wall-clock step, and must not count revolutions.
+    const fs = frame.sample_rate_hz;
+    const elapsedS = fs !== undefined && fs > 0 && prevIndex !== null ? (frame.sample_index - prevIndex) / fs : prev === null ? 0 : (atMs - prev) / 1000;
+    if (!(elapsedS > 0)) return this.progress();
+    const revs = (elapsedS / 60) * speed;
     const ref = this.refSpeed;
     const changePct = (Math.abs(speed - ref) / ref) * 100;
     if (changePct > this.settings.speedTolerancePct) {

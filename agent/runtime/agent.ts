@@ -141,6 +141,7 @@ export class Agent {
       last_window_revolutions_rejected: w?.revolutions_rejected ?? null,
       last_window_speed_rpm: w?.speed_rpm == null ? null : Math.round(w.speed_rpm * 10) / 10,
       ...source,
+      ...(this.runtime?.timeHealth() ?? {}),
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
       ...(this.capturer ? { captures_written: this.capturer.written, captures_failed: this.capturer.failed, captures_removed: this.capturer.removed } : {}),
