@@ -1,9 +1,11 @@
 /**
- * The bodies the live page's HTTP API accepts, as zod schemas, and the error every refusal becomes:
- * an HTTP status, a short code, a message naming what was wrong and where, and what to do.
+ * The requests the balancing workbench accepts (the live page's HTTP API bodies and the MQTT
+ * `balancing.session` parameters), as zod schemas, and the error every refusal becomes: a status
+ * (the HTTP status the live server answers with), a short code, a message naming what was wrong and
+ * where, and what to do.
  */
 import { z } from 'zod';
-import { formatPath, valueAt } from '../config/load.js';
+import { formatPath, valueAt } from '../../config/load.js';
 
 export class ApiError extends Error {
   constructor(

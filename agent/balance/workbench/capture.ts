@@ -9,7 +9,8 @@
  * revolutions that passed since the previous one, so the mean covers the N revolutions evenly.
  * Amplitudes are mm/s peak; phase is the lag from the tach edge to the 1x peak, degrees.
  */
-import type { LiveFrame } from '../dsp/types.js';
+import type { LiveConfig } from '../../config/live.js';
+import type { LiveFrame } from '../../dsp/types.js';
 
 export interface CaptureSettings {
   /** Revolutions averaged. */
@@ -26,6 +27,23 @@ export interface CaptureSettings {
   readonly scatterWarnPct: number;
   /** ... when it is also above this, mm/s pk (a tiny residual vector always scatters by a large share of itself). */
   readonly scatterFloorMmS: number;
+}
+
+/**
+ * The capture settings of the `live.capture` config section. `liveRevolutions` is the memory of the
+ * runtime's live average (AgentRuntime liveRevolutions); without settle_revolutions the capture skips
+ * five times that, for the average to forget what came before.
+ */
+export function captureSettingsFrom(capture: LiveConfig['capture'], liveRevolutions = 32): CaptureSettings {
+  return {
+    revolutions: capture.revolutions,
+    settleRevolutions: capture.settle_revolutions ?? 5 * liveRevolutions,
+    speedTolerancePct: capture.speed_tolerance_pct,
+    maxRestarts: capture.max_restarts,
+    maxAgeS: 2,
+    scatterWarnPct: 10,
+    scatterFloorMmS: 0.05,
+  };
 }
 
 export interface CaptureReading {
