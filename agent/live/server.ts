@@ -33,7 +33,7 @@ import type { LiveConsumer, WindowConsumer } from '../runtime/runtime.js';
 import type { WatchStatus } from '../watcher/index.js';
 import { bearerToken, mayAct, resolveLiveTokens, TokenCheck, type LiveToken, type Principal } from './auth.js';
 import { loadStaticFiles, type StaticFile } from './static.js';
-import { LiveView, sessionView, type SessionView } from './view.js';
+import { LiveView, sessionView, type PageMessage, type SessionView } from './view.js';
 
 export interface LiveServerOptions {
   readonly config: Config;
@@ -287,7 +287,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   private refuseWs(ws: WebSocket, remote: string): void {
     this.refused(remote, 'websocket');
-    ws.send(JSON.stringify({ type: 'error', code: 'unauthorised', message: 'missing or wrong token' }));
+    const refusal: PageMessage = { type: 'error', code: 'unauthorised', message: 'missing or wrong token' };
+    ws.send(JSON.stringify(refusal));
     ws.close(4401, 'unauthorised');
   }
 
@@ -303,12 +304,12 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     }
   }
 
-  private sendTo(c: Client, msg: unknown): void {
+  private sendTo(c: Client, msg: PageMessage): void {
     if (c.ws.readyState !== c.ws.OPEN || c.ws.bufferedAmount > MAX_BUFFERED_BYTES) return;
     c.ws.send(JSON.stringify(msg));
   }
 
-  private send(msg: unknown): void {
+  private send(msg: PageMessage): void {
     if (this.clients.size === 0) return;
     const text = JSON.stringify(msg);
     for (const c of this.clients) {

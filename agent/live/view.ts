@@ -7,6 +7,7 @@
 import { conventionText, type AngleConvention } from '../balance/conventions.js';
 import { balancingCautions } from '../balance/report.js';
 import type { CaptureSettings } from '../balance/workbench/capture.js';
+import type { JobView } from '../balance/workbench/view.js';
 import type { LiveConfig } from '../config/live.js';
 import type { Config } from '../config/schema.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
@@ -235,3 +236,12 @@ export function sessionView(cfg: Config, live: LiveConfig, capture: CaptureSetti
     cautions: balancingCautions(),
   };
 }
+
+/** Every message the server sends the page over the WebSocket. */
+export type PageMessage =
+  | { readonly type: 'welcome'; readonly session: SessionView }
+  | { readonly type: 'trend'; readonly points: readonly TrendPoint[] }
+  | { readonly type: 'trend_point'; readonly point: TrendPoint }
+  | { readonly type: 'live'; readonly live: LiveSnapshot }
+  | { readonly type: 'job'; readonly view: JobView | null }
+  | { readonly type: 'error'; readonly code: string; readonly message: string };

@@ -8,9 +8,7 @@ import { h, units } from './format.js';
 /** Distinct, dark colours that read on white in sunlight. */
 export const SENSOR_COLOURS = ['#003a8c', '#b3001b', '#0b6e2f', '#7a3e00', '#6a1b9a', '#00695c', '#000000', '#c25e00'];
 
-/**
- * @typedef {{ t_ms: number, speed_rpm: number | null, channels: Record<string, { one_x_pk_mm_s: number | null, overall_rms_mm_s: number | null }> }} TrendPoint
- */
+/** @typedef {import('../view.js').TrendPoint} TrendPoint */
 
 export class Trend {
   /** @param {HTMLElement} root @param {string[]} sensors */
@@ -63,7 +61,7 @@ export class Trend {
     return [xs, ...this.sensors.map((id) => this.points.map((p) => f(p.channels[id])))];
   }
 
-  /** @param {TrendPoint[]} points */
+  /** @param {readonly TrendPoint[]} points */
   set(points) {
     this.points = points.slice();
     this.redraw();
