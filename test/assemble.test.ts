@@ -26,9 +26,21 @@ function config(withLive: boolean) {
   dirs.push(dir);
   return validateConfig({
     ...loadConfig('config/example.yaml'),
-    acquisition: { driver: 'sim', scenario: 'example-scenario.yaml', pace: 'fast', from_day: 5.625 },
+    acquisition: {
+      driver: 'sim',
+      scenario: 'example-scenario.yaml',
+      pace: 'fast',
+      from_day: 5.625,
+    },
     state_dir: dir,
-    ...(withLive ? { live: { port: 0, tokens: [{ name: 'balancing-crew', role: 'operator', env: 'TW_ASSEMBLE_OPERATOR' }] } } : {}),
+    ...(withLive
+      ? {
+          live: {
+            port: 0,
+            tokens: [{ name: 'balancing-crew', role: 'operator', env: 'TW_ASSEMBLE_OPERATOR' }],
+          },
+        }
+      : {}),
   });
 }
 
@@ -68,7 +80,10 @@ describe('assemble: the agent, the live page and their links', () => {
     expect(url).toMatch(/^http:\/\/127\.0\.0\.1:\d+\/$/);
     try {
       await runFor(asm, windows, 3);
-      const get = async (path: string) => (await fetch(url + path.slice(1), { headers: { Authorization: `Bearer ${OPERATOR}` } })).json() as Promise<any>;
+      const get = async (path: string) =>
+        (
+          await fetch(url + path.slice(1), { headers: { Authorization: `Bearer ${OPERATOR}` } })
+        ).json() as Promise<any>;
       const trend = await get('/api/trend');
       // Every window the agent closed reached the page's trend.
       expect(windows.n).toBeGreaterThanOrEqual(3);
@@ -86,7 +101,14 @@ describe('assemble: the agent, the live page and their links', () => {
       const handler = asm.agent.handlers.balancingSession;
       expect(handler).toBeDefined();
       expect(await handler!({ action: 'status' })).toEqual({ job_id: null, status: 'none' });
-      const started = await handler!({ action: 'start', params: { kind: 'single_plane', by: 'A. Tester (invented)', planes: [{ name: 'P1', radius_mm: 600 }] } });
+      const started = await handler!({
+        action: 'start',
+        params: {
+          kind: 'single_plane',
+          by: 'A. Tester (invented)',
+          planes: [{ name: 'P1', radius_mm: 600 }],
+        },
+      });
       expect(started['status']).toBe('open');
       const open = await get('/api/jobs/open');
       expect(open.view.job.job_id).toBe(started['job_id']);

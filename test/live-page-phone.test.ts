@@ -27,11 +27,23 @@ const OPERATOR = 'operator-phone-0123456789abcdef';
 const SPEED_UP = 8;
 const PHONE = { width: 390, height: 844 };
 const TURNED = { width: 844, height: 390 };
-const CHROMIUM_ARGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
+const CHROMIUM_ARGS = [
+  '--headless',
+  '--no-sandbox',
+  '--disable-gpu',
+  '--disable-quic',
+  '--no-first-run',
+  '--disable-background-networking',
+  '--disable-component-update',
+  '--disable-sync',
+];
 
 function fastPacer(k: number): Pacer {
   const t0 = performance.now();
-  return { now: () => t0 + (performance.now() - t0) * k, sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)) };
+  return {
+    now: () => t0 + (performance.now() - t0) * k,
+    sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)),
+  };
 }
 
 interface Fit {
@@ -68,8 +80,17 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
 
   const fits = async (screen: string): Promise<Fit> => {
     const f = (await page.evaluate(MEASURE)) as Fit;
+    // With the screenshots kept (documentation runs), the measured widths are written out too.
+    if (process.env.TURNWISE_SCREENSHOT_DIR) {
+      process.stderr.write(
+        `phone: ${screen} at ${f.innerWidth} px: page ${f.scrollWidth} px, charts ${f.charts.join(', ') || 'none'} px\n`,
+      );
+    }
     // The message names the screen and what sticks out, so a failure says where to look.
-    expect(f.scrollWidth, `${screen} at ${f.innerWidth} px: page ${f.scrollWidth} px wide; past the edge: ${f.over.join(', ')}`).toBeLessThanOrEqual(f.innerWidth);
+    expect(
+      f.scrollWidth,
+      `${screen} at ${f.innerWidth} px: page ${f.scrollWidth} px wide; past the edge: ${f.over.join(', ')}`,
+    ).toBeLessThanOrEqual(f.innerWidth);
     expect(f.over, `${screen} at ${f.innerWidth} px`).toEqual([]);
     return f;
   };
@@ -85,13 +106,26 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
     const cfg = validateConfig({
       ...loadConfig('config/example.yaml'),
       state_dir: dir,
-      live: { port: 0, tokens: [{ name: 'balancing-crew', role: 'operator', env: 'TW_PHONE_OPERATOR' }], update_hz: 4 },
+      live: {
+        port: 0,
+        tokens: [{ name: 'balancing-crew', role: 'operator', env: 'TW_PHONE_OPERATOR' }],
+        update_hz: 4,
+      },
     });
     const plan = resolveScenario(loadScenario('config/example-scenario.yaml'), cfg);
-    const src = new SimSource(plan, { startS: 5.625 * 86400, blockSamples: 2560, pace: 'realtime', pacer: fastPacer(SPEED_UP) });
+    const src = new SimSource(plan, {
+      startS: 5.625 * 86400,
+      blockSamples: 2560,
+      pace: 'realtime',
+      pacer: fastPacer(SPEED_UP),
+    });
     const logger = new MemoryLogger();
     const watcher = openWatcher(cfg);
-    server = LiveServer.fromConfig(cfg, { logger, clock: systemClock, emit: () => undefined }, { TW_PHONE_OPERATOR: OPERATOR });
+    server = LiveServer.fromConfig(
+      cfg,
+      { logger, clock: systemClock, emit: () => undefined },
+      { TW_PHONE_OPERATOR: OPERATOR },
+    );
     url = (await server.start()).url;
     rt = new AgentRuntime({
       config: cfg,
@@ -124,7 +158,9 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
     await fits('token screen');
     await page.fill('#token', OPERATOR);
     await page.click('#login-form button');
-    await page.waitForSelector('#view-live:not([hidden]) .card[data-at-ms]:not([data-at-ms=""])', { timeout: 30_000 });
+    await page.waitForSelector('#view-live:not([hidden]) .card[data-at-ms]:not([data-at-ms=""])', {
+      timeout: 30_000,
+    });
     await page.waitForFunction('document.querySelectorAll("#trend canvas").length >= 2');
     await page.waitForSelector('.card[data-sensor="DE-V"] .okbadge.ok-yes', { timeout: 20_000 });
     await page.waitForTimeout(2500); // a few trend points
@@ -159,17 +195,28 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
     // A single-plane job with its as-found run captured, so the runs table, the trial suggestion
     // and the trial form are on the screen.
     const post = async (path: string, body: unknown) => {
-      const res = await fetch(url + path.slice(1), { method: 'POST', headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'application/json' }, body: JSON.stringify(body) });
+      const res = await fetch(url + path.slice(1), {
+        method: 'POST',
+        headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'application/json' },
+        body: JSON.stringify(body),
+      });
       expect(res.status, path).toBe(200);
       return (await res.json()) as any;
     };
-    const created = await post('/api/jobs', { kind: 'single_plane', by: 'P. Phone (invented)', planes: [{ name: 'front_shroud', radius_mm: 600, positions: { count: 12 } }], rotor_mass_kg: 850 });
+    const created = await post('/api/jobs', {
+      kind: 'single_plane',
+      by: 'P. Phone (invented)',
+      planes: [{ name: 'front_shroud', radius_mm: 600, positions: { count: 12 } }],
+      rotor_mass_kg: 850,
+    });
     jobId = created.view.job.job_id;
     await post(`/api/jobs/${jobId}/capture`, { revolutions: 40 });
     await page.waitForSelector('#view-job:has-text("declare the trial run")', { timeout: 60_000 });
     await page.waitForTimeout(300);
     await fits('balancing, open job');
-    await page.evaluate(`document.querySelectorAll('#view-job details').forEach((d) => { d.open = true; })`);
+    await page.evaluate(
+      `document.querySelectorAll('#view-job details').forEach((d) => { d.open = true; })`,
+    );
     await page.waitForTimeout(200);
     await fits('balancing, open job, tools open');
     if (process.env.TURNWISE_SCREENSHOT_DIR) {

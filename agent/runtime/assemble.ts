@@ -27,7 +27,10 @@ export interface AssemblyFactories {
   /** GPIO lines for the advisory and the GPIO tach input (undefined when the config uses none). */
   readonly openGpio: (cfg: Config) => Promise<GpioLines | undefined> | GpioLines | undefined;
   /** The sample source of the config, and whether the board times the tach itself. */
-  readonly openSource: (cfg: Config) => { readonly source: SampleSource; readonly boardTimesTach: boolean };
+  readonly openSource: (cfg: Config) => {
+    readonly source: SampleSource;
+    readonly boardTimesTach: boolean;
+  };
 }
 
 export interface AssemblyOptions extends AssemblyFactories {

@@ -16,7 +16,14 @@
  * Everything here is pure: records in, records out.
  */
 import { conventionText, type AngleConvention } from '../conventions.js';
-import type { BalanceJob, BalanceResult, CoefficientValue, Issue, JobRun, PlaneWeight } from '../job.js';
+import type {
+  BalanceJob,
+  BalanceResult,
+  CoefficientValue,
+  Issue,
+  JobRun,
+  PlaneWeight,
+} from '../job.js';
 import { solveBalanceJob, trialMove, type TrialMove } from '../solve.js';
 import type { BalanceJobRecord } from '../store.js';
 import { permissibleUnbalanceGmm } from '../weights.js';
@@ -50,7 +57,11 @@ export interface JobSetup {
   readonly speed_rpm: number | null;
   readonly notes: string | null;
   /** Trim jobs: the stored coefficients used. */
-  readonly coefficients_from: { readonly job_id: string; readonly saved_at: string; readonly speed_rpm: number } | null;
+  readonly coefficients_from: {
+    readonly job_id: string;
+    readonly saved_at: string;
+    readonly speed_rpm: number;
+  } | null;
 }
 
 export interface FittedWeight {
@@ -76,7 +87,13 @@ export interface TrialCheckRow extends TrialMove {
 
 export interface ResidualReport {
   /** Per sensor: the check run against as found (mm/s pk). */
-  readonly sensors: ReadonlyArray<{ readonly sensor: string; readonly as_found_pk_mm_s: number; readonly amp_pk_mm_s: number; readonly phase_deg: number; readonly pct_of_as_found: number }>;
+  readonly sensors: ReadonlyArray<{
+    readonly sensor: string;
+    readonly as_found_pk_mm_s: number;
+    readonly amp_pk_mm_s: number;
+    readonly phase_deg: number;
+    readonly pct_of_as_found: number;
+  }>;
   /** Residual unbalance per plane from the check run through the job's coefficients, g mm. */
   readonly unbalance_g_mm: Readonly<Record<string, number>> | null;
   readonly permissible_g_mm: number | null;
@@ -145,15 +162,36 @@ export interface WorkbenchRecord extends BalanceJobRecord {
 export interface ProposedChange {
   readonly title: string;
   readonly remove: 'all' | 'all_trials' | readonly string[];
-  readonly add: ReadonlyArray<{ readonly plane: string; readonly mass_g: number; readonly angle_deg: number; readonly radius_mm: number }>;
+  readonly add: ReadonlyArray<{
+    readonly plane: string;
+    readonly mass_g: number;
+    readonly angle_deg: number;
+    readonly radius_mm: number;
+  }>;
   /** The same weights split onto each plane's fixed positions (null when no plane has positions). */
-  readonly add_split: ReadonlyArray<{ readonly plane: string; readonly mass_g: number; readonly angle_deg: number; readonly radius_mm: number; readonly position: number }> | null;
+  readonly add_split: ReadonlyArray<{
+    readonly plane: string;
+    readonly mass_g: number;
+    readonly angle_deg: number;
+    readonly radius_mm: number;
+    readonly position: number;
+  }> | null;
 }
 
 export type JobStep = 'capture' | 'trial' | 'solve' | 'correct' | 'check' | 'closed';
 
-export const TRIALS_NEEDED: Record<JobKind, number> = { single_plane: 1, two_plane: 2, static_couple: 2, trim: 0 };
-export const PLANES_NEEDED: Record<JobKind, number> = { single_plane: 1, two_plane: 2, static_couple: 2, trim: 0 };
+export const TRIALS_NEEDED: Record<JobKind, number> = {
+  single_plane: 1,
+  two_plane: 2,
+  static_couple: 2,
+  trim: 0,
+};
+export const PLANES_NEEDED: Record<JobKind, number> = {
+  single_plane: 1,
+  two_plane: 2,
+  static_couple: 2,
+  trim: 0,
+};
 export const AMP_UNIT = 'mm/s pk';
 
 export function wrap360(a: number): number {
@@ -172,11 +210,21 @@ export function runName(r: WorkbenchRun): string {
 /** The highest weight ids handed out so far (T for trial, C for correction), from the runs. */
 export function countersOf(job: WorkbenchJob): { trial: number; correction: number } {
   const all = job.runs.flatMap((r) => r.weights);
-  const max = (p: string) => all.filter((w) => w.id.startsWith(p)).reduce((m, w) => Math.max(m, Number(w.id.slice(1))), 0);
+  const max = (p: string) =>
+    all.filter((w) => w.id.startsWith(p)).reduce((m, w) => Math.max(m, Number(w.id.slice(1))), 0);
   return { trial: max('T'), correction: max('C') };
 }
 
-export function newRun(job: WorkbenchJob, purpose: WorkbenchRun['purpose'], label: string, weights: FittedWeight[], changes: WeightChange[], at: string, by: Actor, ack: boolean): WorkbenchRun {
+export function newRun(
+  job: WorkbenchJob,
+  purpose: WorkbenchRun['purpose'],
+  label: string,
+  weights: FittedWeight[],
+  changes: WeightChange[],
+  at: string,
+  by: Actor,
+  ack: boolean,
+): WorkbenchRun {
   return {
     index: job.runs.length,
     label,
@@ -205,14 +253,30 @@ export function balanceJobOf(job: WorkbenchJob): BalanceJob {
   const s = job.setup;
   const planeRadius = new Map(s.planes.map((p) => [p.name, p.radius_mm]));
   const runs: JobRun[] = job.runs
-    .filter((r) => r.capture && !r.discarded && (r.purpose === 'as_found' || (r.purpose === 'trial' && s.kind !== 'trim')))
+    .filter(
+      (r) =>
+        r.capture &&
+        !r.discarded &&
+        (r.purpose === 'as_found' || (r.purpose === 'trial' && s.kind !== 'trim')),
+    )
     .map((r) => ({
       label: r.label,
       speed_rpm: r.capture!.speed_rpm,
-      weights: r.weights.map((w) => ({ plane: w.plane, mass_g: (w.mass_g * w.radius_mm) / planeRadius.get(w.plane)!, angle_deg: w.angle_deg })),
-      readings: Object.fromEntries(Object.entries(r.capture!.readings).map(([id, v]) => [id, { amp: v.amp_pk_mm_s, phase_deg: v.phase_deg }])),
+      weights: r.weights.map((w) => ({
+        plane: w.plane,
+        mass_g: (w.mass_g * w.radius_mm) / planeRadius.get(w.plane)!,
+        angle_deg: w.angle_deg,
+      })),
+      readings: Object.fromEntries(
+        Object.entries(r.capture!.readings).map(([id, v]) => [
+          id,
+          { amp: v.amp_pk_mm_s, phase_deg: v.phase_deg },
+        ]),
+      ),
     }));
-  const maxMass = Object.fromEntries(s.planes.filter((p) => p.max_mass_g !== null).map((p) => [p.name, p.max_mass_g!]));
+  const maxMass = Object.fromEntries(
+    s.planes.filter((p) => p.max_mass_g !== null).map((p) => [p.name, p.max_mass_g!]),
+  );
   return {
     job_id: job.job_id,
     asset: job.asset,
@@ -229,11 +293,21 @@ export function balanceJobOf(job: WorkbenchJob): BalanceJob {
 }
 
 /** A trial run against as found, per sensor: did the trial weight move the 1x enough? */
-export function trialCheckOf(job: WorkbenchJob, asFound: CaptureResult, result: CaptureResult): TrialCheckRow[] {
+export function trialCheckOf(
+  job: WorkbenchJob,
+  asFound: CaptureResult,
+  result: CaptureResult,
+): TrialCheckRow[] {
   return job.setup.sensors.map((sensor) => {
     const a = asFound.readings[sensor]!;
     const b = result.readings[sensor]!;
-    return { sensor, ...trialMove({ amp: a.amp_pk_mm_s, phase_deg: a.phase_deg }, { amp: b.amp_pk_mm_s, phase_deg: b.phase_deg }) };
+    return {
+      sensor,
+      ...trialMove(
+        { amp: a.amp_pk_mm_s, phase_deg: a.phase_deg },
+        { amp: b.amp_pk_mm_s, phase_deg: b.phase_deg },
+      ),
+    };
   });
 }
 
@@ -243,28 +317,51 @@ export function residualOf(job: WorkbenchJob, run: WorkbenchRun): ResidualReport
   const asFound = job.runs[0]!.capture!;
   const cap = run.capture!;
   const coeffs: Record<string, Record<string, CoefficientValue>> = {};
-  for (const c of sol.result.influence_coefficients) (coeffs[c.sensor] ??= {})[c.plane] = { amp_per_g: c.amp_per_g, phase_deg: c.phase_deg };
+  for (const c of sol.result.influence_coefficients)
+    (coeffs[c.sensor] ??= {})[c.plane] = { amp_per_g: c.amp_per_g, phase_deg: c.phase_deg };
   const trimJob: BalanceJob = {
     ...sol.job,
-    runs: [{ label: run.label, speed_rpm: cap.speed_rpm, weights: [], readings: Object.fromEntries(job.setup.sensors.map((s) => [s, { amp: cap.readings[s]!.amp_pk_mm_s, phase_deg: cap.readings[s]!.phase_deg }])) }],
+    runs: [
+      {
+        label: run.label,
+        speed_rpm: cap.speed_rpm,
+        weights: [],
+        readings: Object.fromEntries(
+          job.setup.sensors.map((s) => [
+            s,
+            { amp: cap.readings[s]!.amp_pk_mm_s, phase_deg: cap.readings[s]!.phase_deg },
+          ]),
+        ),
+      },
+    ],
     influence_coefficients: coeffs,
     ...(sol.result.speed_rpm !== null ? { coefficients_speed_rpm: sol.result.speed_rpm } : {}),
   };
   const r = solveBalanceJob(trimJob);
   const u = r.unbalance;
   const s = job.setup;
-  const per = s.rotor_mass_kg !== null && s.grade_mm_s !== null ? permissibleUnbalanceGmm(s.grade_mm_s, s.rotor_mass_kg, cap.speed_rpm) : null;
+  const per =
+    s.rotor_mass_kg !== null && s.grade_mm_s !== null
+      ? permissibleUnbalanceGmm(s.grade_mm_s, s.rotor_mass_kg, cap.speed_rpm)
+      : null;
   const perPlane = per === null ? null : per / s.planes.length;
   return {
     sensors: job.setup.sensors.map((sensor) => {
       const a = asFound.readings[sensor]!.amp_pk_mm_s;
       const b = cap.readings[sensor]!;
-      return { sensor, as_found_pk_mm_s: a, amp_pk_mm_s: b.amp_pk_mm_s, phase_deg: b.phase_deg, pct_of_as_found: a > 0 ? (b.amp_pk_mm_s / a) * 100 : 0 };
+      return {
+        sensor,
+        as_found_pk_mm_s: a,
+        amp_pk_mm_s: b.amp_pk_mm_s,
+        phase_deg: b.phase_deg,
+        pct_of_as_found: a > 0 ? (b.amp_pk_mm_s / a) * 100 : 0,
+      };
     }),
     unbalance_g_mm: u ? u.as_found_g_mm : null,
     permissible_g_mm: per,
     permissible_per_plane_g_mm: perPlane,
-    within_grade: u && perPlane !== null ? Object.values(u.as_found_g_mm).every((x) => x <= perPlane) : null,
+    within_grade:
+      u && perPlane !== null ? Object.values(u.as_found_g_mm).every((x) => x <= perPlane) : null,
     trim: r.ok ? r.corrections : [],
     warnings: [...r.warnings, ...r.problems],
   };
@@ -277,7 +374,14 @@ export function recordOf(job: WorkbenchJob, savedAt: string): WorkbenchRecord {
     const bj = balanceJobOf(job);
     solved = { at: savedAt, by: job.created_by, job: bj, result: solveBalanceJob(bj) };
   }
-  const bj: BalanceJob = solved?.job ?? { job_id: job.job_id, asset: job.asset, angle_convention: job.setup.angle_convention, planes: job.setup.planes.map((p) => p.name), runs: [], amp_unit: AMP_UNIT };
+  const bj: BalanceJob = solved?.job ?? {
+    job_id: job.job_id,
+    asset: job.asset,
+    angle_convention: job.setup.angle_convention,
+    planes: job.setup.planes.map((p) => p.name),
+    runs: [],
+    amp_unit: AMP_UNIT,
+  };
   const result: BalanceResult = solved?.result ?? {
     ok: false,
     angle_convention: job.setup.angle_convention,
@@ -298,7 +402,23 @@ export function recordOf(job: WorkbenchJob, savedAt: string): WorkbenchRecord {
     speed_rpm: null,
     unbalance: null,
     warnings: [],
-    problems: [{ code: 'no_runs', message: 'the as-found run is not measured yet', hint: 'capture the as-found run' }],
+    problems: [
+      {
+        code: 'no_runs',
+        message: 'the as-found run is not measured yet',
+        hint: 'capture the as-found run',
+      },
+    ],
   };
-  return { version: 1, job_id: job.job_id, asset: job.asset, recorded_by: job.created_by.name, saved_at: savedAt, angle_convention: job.setup.angle_convention, job: bj, result, workbench: job };
+  return {
+    version: 1,
+    job_id: job.job_id,
+    asset: job.asset,
+    recorded_by: job.created_by.name,
+    saved_at: savedAt,
+    angle_convention: job.setup.angle_convention,
+    job: bj,
+    result,
+    workbench: job,
+  };
 }

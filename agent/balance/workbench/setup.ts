@@ -15,15 +15,22 @@ import { ApiError, conflict, type CreateJobRequest } from './requests.js';
  * The setup of a new job. `stored` is the fan's stored influence coefficients (only read for trim
  * jobs; null when none are stored).
  */
-export function jobSetupFrom(req: CreateJobRequest, cfg: Config, stored: StoredCoefficients | null): JobSetup {
+export function jobSetupFrom(
+  req: CreateJobRequest,
+  cfg: Config,
+  stored: StoredCoefficients | null,
+): JobSetup {
   const bal = cfg.balance;
   const convention = req.angle_convention ?? bal?.angle_convention ?? 'against_rotation';
   const sensorIds = cfg.sensors.map((x) => x.id);
-  const sensors = req.sensors ?? cfg.sensors.filter((x) => x.direction !== 'axial').map((x) => x.id);
+  const sensors =
+    req.sensors ?? cfg.sensors.filter((x) => x.direction !== 'axial').map((x) => x.id);
   const problems: string[] = [];
   sensors.forEach((id, i) => {
     if (!sensorIds.includes(id)) {
-      problems.push(`sensors[${i}]: "${id}" is not a sensor of this machine (${sensorIds.join(', ')})`);
+      problems.push(
+        `sensors[${i}]: "${id}" is not a sensor of this machine (${sensorIds.join(', ')})`,
+      );
     }
     if (sensors.indexOf(id) !== i) problems.push(`sensors[${i}]: "${id}" is listed twice`);
   });
@@ -42,7 +49,11 @@ export function jobSetupFrom(req: CreateJobRequest, cfg: Config, stored: StoredC
         'a trim run needs coefficients measured on this fan',
       );
     }
-    coefficientsFrom = { job_id: stored.job_id, saved_at: stored.saved_at, speed_rpm: stored.speed_rpm };
+    coefficientsFrom = {
+      job_id: stored.job_id,
+      saved_at: stored.saved_at,
+      speed_rpm: stored.speed_rpm,
+    };
     planesIn ??= stored.planes.map((p) => {
       const c = bal?.planes?.[p];
       if (!c) {
@@ -57,7 +68,9 @@ export function jobSetupFrom(req: CreateJobRequest, cfg: Config, stored: StoredC
         ...(c?.positions ? { positions: c.positions } : {}),
       };
     });
-    const unknownPlanes = planesIn.filter((p) => !stored.planes.includes(p.name)).map((p) => p.name);
+    const unknownPlanes = planesIn
+      .filter((p) => !stored.planes.includes(p.name))
+      .map((p) => p.name);
     if (unknownPlanes.length) {
       problems.push(
         `planes: ${unknownPlanes.join(', ')} not in the stored coefficients (planes ${stored.planes.join(', ')})`,
@@ -90,9 +103,12 @@ export function jobSetupFrom(req: CreateJobRequest, cfg: Config, stored: StoredC
     name: p.name,
     radius_mm: p.radius_mm,
     max_mass_g: p.max_mass_g ?? null,
-    positions: p.positions ? { count: p.positions.count, first_deg: p.positions.first_deg ?? 0 } : null,
+    positions: p.positions
+      ? { count: p.positions.count, first_deg: p.positions.first_deg ?? 0 }
+      : null,
   }));
-  if (new Set(planes.map((p) => p.name)).size !== planes.length) problems.push('planes: the two planes need different names');
+  if (new Set(planes.map((p) => p.name)).size !== planes.length)
+    problems.push('planes: the two planes need different names');
   if (planes.length > 0 && sensors.length < planes.length) {
     problems.push(
       `sensors: ${planes.length} planes need at least ${planes.length} sensors, at different bearings (${sensors.length} given)`,

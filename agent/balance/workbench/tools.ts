@@ -18,7 +18,13 @@ import {
   STANDARD_GRAVITY,
   suggestTrialMassG,
 } from '../weights.js';
-import { ApiError, gradeSchema, moveRadiusSchema, parseBody, trialWeightSchema } from './requests.js';
+import {
+  ApiError,
+  gradeSchema,
+  moveRadiusSchema,
+  parseBody,
+  trialWeightSchema,
+} from './requests.js';
 
 /** agent/balance's parsers throw UserError with every problem; the API answers 400 with the same text. */
 function parseWithBalance<T>(fn: () => T): T {

@@ -8,7 +8,12 @@ import type { Config } from '../../config/schema.js';
 import { conventionText } from '../conventions.js';
 import type { PlaneWeight } from '../job.js';
 import { balancingCautions } from '../report.js';
-import { centrifugalForceN, splitOntoPositions, suggestTrialMassG, type SplitPart } from '../weights.js';
+import {
+  centrifugalForceN,
+  splitOntoPositions,
+  suggestTrialMassG,
+  type SplitPart,
+} from '../weights.js';
 import type { CaptureProgress } from './capture.js';
 import {
   runName,
@@ -31,7 +36,13 @@ export interface JobView {
   readonly capture: CaptureProgress | null;
   readonly weights_on_rotor: readonly FittedWeight[];
   readonly speed_for_forces_rpm: number | null;
-  readonly trial_suggestion: ReadonlyArray<{ readonly plane: string; readonly mass_g: number; readonly radius_mm: number; readonly force_n: number; readonly bearing_load_kg: number }> | null;
+  readonly trial_suggestion: ReadonlyArray<{
+    readonly plane: string;
+    readonly mass_g: number;
+    readonly radius_mm: number;
+    readonly force_n: number;
+    readonly bearing_load_kg: number;
+  }> | null;
   readonly trial_suggestion_missing: string | null;
   readonly proposals: readonly ProposedChange[];
   readonly cautions: readonly string[];
@@ -48,8 +59,17 @@ export interface ViewContext {
 }
 
 /** Speed for forces and suggestions: the job's given speed, else the as-found run's, else live, else rated, r/min. */
-export function speedFor(job: WorkbenchJob, ctx: Pick<ViewContext, 'liveSpeedRpm' | 'ratedRpm'>): number | null {
-  return job.setup.speed_rpm ?? job.runs[0]?.capture?.speed_rpm ?? ctx.liveSpeedRpm ?? ctx.ratedRpm ?? null;
+export function speedFor(
+  job: WorkbenchJob,
+  ctx: Pick<ViewContext, 'liveSpeedRpm' | 'ratedRpm'>,
+): number | null {
+  return (
+    job.setup.speed_rpm ??
+    job.runs[0]?.capture?.speed_rpm ??
+    ctx.liveSpeedRpm ??
+    ctx.ratedRpm ??
+    null
+  );
 }
 
 /** The rated speed a view falls back on. */
@@ -63,7 +83,7 @@ export function jobView(job: WorkbenchJob, ctx: ViewContext): JobView {
   const last = job.runs[job.runs.length - 1];
   const onRotor = last?.weights ?? [];
   const step = stepOf(job);
-  
+
   let trial: JobView['trial_suggestion'] = null;
   let missing: string | null = null;
   if (s.kind !== 'trim') {
@@ -73,7 +93,13 @@ export function jobView(job: WorkbenchJob, ctx: ViewContext): JobView {
       const load = s.rotor_mass_kg / s.bearings;
       trial = s.planes.map((p) => {
         const m = suggestTrialMassG(load, p.radius_mm, speed);
-        return { plane: p.name, mass_g: m, radius_mm: p.radius_mm, force_n: centrifugalForceN(m, p.radius_mm, speed), bearing_load_kg: load };
+        return {
+          plane: p.name,
+          mass_g: m,
+          radius_mm: p.radius_mm,
+          force_n: centrifugalForceN(m, p.radius_mm, speed),
+          bearing_load_kg: load,
+        };
       });
     }
   }
@@ -97,10 +123,14 @@ export function stepOf(job: WorkbenchJob): JobStep {
   const last = job.runs[job.runs.length - 1]!;
   if (!last.capture && !last.discarded) return 'capture';
   if (!job.solution?.result.ok) {
-    const trials = job.runs.filter((r) => r.purpose === 'trial' && !r.discarded && r.capture).length;
+    const trials = job.runs.filter(
+      (r) => r.purpose === 'trial' && !r.discarded && r.capture,
+    ).length;
     return trials < TRIALS_NEEDED[job.setup.kind] ? 'trial' : 'solve';
   }
-  return job.runs.some((r) => r.purpose === 'check' && r.capture && !r.discarded) ? 'check' : 'correct';
+  return job.runs.some((r) => r.purpose === 'check' && r.capture && !r.discarded)
+    ? 'check'
+    : 'correct';
 }
 
 export function nextText(job: WorkbenchJob, step: JobStep): string {
@@ -111,12 +141,20 @@ export function nextText(job: WorkbenchJob, step: JobStep): string {
     case 'capture':
       return `bring the fan to steady speed and capture ${runName(last)}`;
     case 'trial': {
-      const n = job.runs.filter((r) => r.purpose === 'trial' && !r.discarded && r.capture).length + 1;
-      if (job.setup.kind === 'static_couple') return n === 1 ? 'declare trial 1: a static pair (equal weights at the same angle in both planes)' : 'declare trial 2: a couple pair (equal weights 180 degrees apart)';
-      return job.setup.planes.length === 1 ? 'declare the trial run: one trial weight in the plane' : `declare trial ${n}: a trial weight in plane ${job.setup.planes[n - 1]?.name ?? ''}`;
+      const n =
+        job.runs.filter((r) => r.purpose === 'trial' && !r.discarded && r.capture).length + 1;
+      if (job.setup.kind === 'static_couple')
+        return n === 1
+          ? 'declare trial 1: a static pair (equal weights at the same angle in both planes)'
+          : 'declare trial 2: a couple pair (equal weights 180 degrees apart)';
+      return job.setup.planes.length === 1
+        ? 'declare the trial run: one trial weight in the plane'
+        : `declare trial ${n}: a trial weight in plane ${job.setup.planes[n - 1]?.name ?? ''}`;
     }
     case 'solve':
-      return job.setup.kind === 'trim' ? 'solve from the stored influence coefficients' : 'solve for the correction weights (or add another trial run)';
+      return job.setup.kind === 'trim'
+        ? 'solve from the stored influence coefficients'
+        : 'solve for the correction weights (or add another trial run)';
     case 'correct':
       return 'fit the correction weights and declare the check run';
     case 'check':
@@ -124,18 +162,43 @@ export function nextText(job: WorkbenchJob, step: JobStep): string {
   }
 }
 
-function splitOf(plane: PlaneSetup, w: { mass_g: number; angle_deg: number; radius_mm: number }): SplitPart[] | null {
+function splitOf(
+  plane: PlaneSetup,
+  w: { mass_g: number; angle_deg: number; radius_mm: number },
+): SplitPart[] | null {
   return plane.positions ? splitOntoPositions(w.mass_g, w.angle_deg, plane.positions) : null;
 }
 
-function proposalFrom(job: WorkbenchJob, title: string, remove: ProposedChange['remove'], weights: readonly PlaneWeight[]): ProposedChange {
-  const add = weights.filter((w) => w.mass_g > 0).map((w) => ({ plane: w.plane, mass_g: w.mass_g, angle_deg: wrap360(w.angle_deg), radius_mm: job.setup.planes.find((p) => p.name === w.plane)!.radius_mm }));
+function proposalFrom(
+  job: WorkbenchJob,
+  title: string,
+  remove: ProposedChange['remove'],
+  weights: readonly PlaneWeight[],
+): ProposedChange {
+  const add = weights
+    .filter((w) => w.mass_g > 0)
+    .map((w) => ({
+      plane: w.plane,
+      mass_g: w.mass_g,
+      angle_deg: wrap360(w.angle_deg),
+      radius_mm: job.setup.planes.find((p) => p.name === w.plane)!.radius_mm,
+    }));
   const anyPositions = job.setup.planes.some((p) => p.positions);
   const add_split = anyPositions
     ? add.flatMap((a) => {
         const plane = job.setup.planes.find((p) => p.name === a.plane)!;
         const parts = splitOf(plane, a);
-        return parts ? parts.filter((p) => p.mass_g > 0.005).map((p) => ({ plane: a.plane, mass_g: p.mass_g, angle_deg: p.angle_deg, radius_mm: a.radius_mm, position: p.position })) : [{ ...a, position: -1 }];
+        return parts
+          ? parts
+              .filter((p) => p.mass_g > 0.005)
+              .map((p) => ({
+                plane: a.plane,
+                mass_g: p.mass_g,
+                angle_deg: p.angle_deg,
+                radius_mm: a.radius_mm,
+                position: p.position,
+              }))
+          : [{ ...a, position: -1 }];
       })
     : null;
   return { title, remove, add, add_split };
@@ -148,11 +211,33 @@ export function proposals(job: WorkbenchJob): ProposedChange[] {
   const checks = job.runs.filter((x) => x.purpose === 'check' && x.capture && !x.discarded);
   const lastRun = job.runs[job.runs.length - 1]!;
   if (checks.length && lastRun.residual && lastRun.purpose === 'check') {
-    return [proposalFrom(job, 'add the trim weights, leaving the weights now on the rotor', [], lastRun.residual.trim)];
+    return [
+      proposalFrom(
+        job,
+        'add the trim weights, leaving the weights now on the rotor',
+        [],
+        lastRun.residual.trim,
+      ),
+    ];
   }
   if (checks.length) return [];
   const trialsOn = weightsOnRotor(job).some((w) => w.role === 'trial');
-  const out = [proposalFrom(job, trialsOn ? 'take the trial weights off and fit the corrections' : 'fit the corrections', trialsOn ? 'all_trials' : [], r.corrections)];
-  if (trialsOn) out.push(proposalFrom(job, 'leave the trial weights on and add these', [], r.corrections_trials_left_in));
+  const out = [
+    proposalFrom(
+      job,
+      trialsOn ? 'take the trial weights off and fit the corrections' : 'fit the corrections',
+      trialsOn ? 'all_trials' : [],
+      r.corrections,
+    ),
+  ];
+  if (trialsOn)
+    out.push(
+      proposalFrom(
+        job,
+        'leave the trial weights on and add these',
+        [],
+        r.corrections_trials_left_in,
+      ),
+    );
   return out;
 }
