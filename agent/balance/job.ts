@@ -119,7 +119,7 @@ export interface UnbalanceReport {
   readonly last_run_g_mm: Readonly<Record<string, number>>;
   /** ISO 21940-11 permissible residual unbalance of the whole rotor, g mm (when mass, grade, speed known). */
   readonly permissible_g_mm: number | null;
-  /** permissible_g_mm shared equally between the planes (a simplification: see README). */
+  /** permissible_g_mm shared equally between the planes (a simplification: see docs/live-page.md, "A balancing job on the page"). */
   readonly permissible_per_plane_g_mm: number | null;
   readonly last_run_within_grade: boolean | null;
 }

@@ -4,7 +4,7 @@ import type { SourceItem } from '../../drivers/source.js';
 import { AccelerationStage, RawStats } from './acceleration.js';
 import { Decimator, DecimatorPlan } from './decimate.js';
 import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, SpectrumPlan, velocityLinePower } from './spectrum.js';
-import { orderComponent, SampleRing, SyncAverager, wrapDeg } from './sync-average.js';
+import { SampleRing, SyncAverager, velocityOrderComponent } from './sync-average.js';
 import { RevolutionTracker, rpmFromPeriod, TachDetector } from './tach.js';
 import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './types.js';
 
@@ -41,6 +41,19 @@ export interface AnalyzerOptions {
   readonly sourceName?: string;
   /** Time constant of the live vectors, revolutions. */
   readonly liveRevolutions?: number;
+  /** Also told of every averaged revolution and every gap (the speed-sweep recorder). */
+  readonly revolutionTap?: RevolutionTap;
+}
+
+/**
+ * A consumer of the trusted revolutions, beside the window's own average: called with the rings of
+ * acceleration (mm/s^2, one per configured sensor, in config order) and the revolution's fractional
+ * sample bounds. It must copy what it needs at once: the rings move on.
+ */
+export interface RevolutionTap {
+  revolution(rings: readonly SampleRing[], start: number, end: number): void;
+  /** Samples were lost: revolutions on either side are not one run. */
+  gap(): void;
 }
 
 /** Picks the spectrum size: the line spacing asked for, reduced so that short records still give 2 segments. */
@@ -93,6 +106,8 @@ export class Analyzer {
   private livePeriod = 0;
   private lastRevEnd = NaN;
   private readonly liveDecay: number;
+  private readonly tap: RevolutionTap | undefined;
+  private readonly rings: readonly SampleRing[];
 
   constructor(opts: AnalyzerOptions) {
     const { config: cfg, sampleRate, channelCount } = opts;
@@ -149,6 +164,8 @@ export class Analyzer {
       decimator: new Decimator(decimation),
       spectrum: new SpectrumAccumulator(plan),
     }));
+    this.rings = this.chans.map((c) => c.ring);
+    this.tap = opts.revolutionTap;
     this.scratch = new Float32Array(maxBlock);
     this.tachChannel = cfg.tach.channel;
     const ppr = cfg.tach.pulses_per_rev;
@@ -165,6 +182,7 @@ export class Analyzer {
     const to = Math.ceil(end);
     for (const c of this.chans) if (!c.ring.holds(from, to)) return;
     for (const c of this.chans) c.avg.addRevolution(c.ring, start, end);
+    this.tap?.revolution(this.rings, start, end);
     const p = end - start;
     this.livePeriod = this.livePeriod * this.liveDecay + p;
     this.lastRevEnd = end;
@@ -175,6 +193,7 @@ export class Analyzer {
 
   private onGap(fromIndex: number, toIndex: number): void {
     this.gapSamples += Math.max(0, toIndex - fromIndex);
+    this.tap?.gap();
     this.tracker.reset();
     this.detector.reset();
     for (const c of this.chans) {
@@ -251,11 +270,8 @@ export class Analyzer {
   private velocityOrders(sum: Float64Array, weight: number, fRev: number): Record<string, OrderVector> {
     const orders: Record<string, OrderVector> = {};
     for (const k of this.orders) {
-      const a = orderComponent(sum, weight, k);
-      const f = k * fRev;
-      const pk = a.amp / (2 * Math.PI * f);
-      // Velocity lags acceleration by a quarter of the order's cycle.
-      orders[String(k)] = { order: k, freq_hz: f, amp_pk_mm_s: pk, amp_rms_mm_s: pk / Math.SQRT2, phase_deg: wrapDeg(a.phaseDeg + 90) };
+      const v = velocityOrderComponent(sum, weight, k, fRev);
+      orders[String(k)] = { order: k, freq_hz: k * fRev, amp_pk_mm_s: v.amp, amp_rms_mm_s: v.amp / Math.SQRT2, phase_deg: v.phaseDeg };
     }
     return orders;
   }

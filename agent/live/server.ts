@@ -128,7 +128,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   /** Reads the tokens named in `config.live` and builds the server. UserError when the section is missing or a token is unusable. */
   static fromConfig(config: Config, deps: Omit<LiveServerOptions, 'config' | 'live' | 'tokens'>, env: NodeJS.ProcessEnv = process.env): LiveServer {
-    if (!config.live) throw new UserError('live', 'the config has no live section', 'add live: with bind, port and tokens (README "Live view and balancing workbench")');
+    if (!config.live) throw new UserError('live', 'the config has no live section', 'add live: with bind, port and tokens (docs/live-page.md, "Opening it")');
     return new LiveServer({ ...deps, config, live: config.live, tokens: resolveLiveTokens(config.live, env) });
   }
 
@@ -389,8 +389,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       if (!route) {
         const other = this.routes.some((rt) => rt.pattern.test(path));
         throw other
-          ? new ApiError(405, 'method_not_allowed', `${req.method} is not allowed on ${path}`, 'see README "Live view and balancing workbench" for the API')
-          : new ApiError(404, 'not_found', `no API endpoint ${path}`, 'see README "Live view and balancing workbench" for the API');
+          ? new ApiError(405, 'method_not_allowed', `${req.method} is not allowed on ${path}`, 'see docs/live-page.md, "HTTP API", for the API')
+          : new ApiError(404, 'not_found', `no API endpoint ${path}`, 'see docs/live-page.md, "HTTP API", for the API');
       }
       const principal = this.check.identify(bearerToken(req.headers.authorization));
       if (!principal) {

@@ -76,6 +76,9 @@ const agentHealth = z
     events: optCount('Events raised since the agent started.'),
     last_window_revolutions: count.nullable().optional().describe('Revolutions averaged in the last closed window; null before the first window.'),
     last_window_revolutions_rejected: count.nullable().optional().describe('Revolutions thrown away in the last window (missing pulse, gap, speed outside limits).'),
+    captures_written: count.optional().describe('Event captures written under state_dir/captures since start.'),
+    captures_failed: count.optional().describe('Event captures that could not be written (full disk...); the log says why, once per burst.'),
+    captures_removed: count.optional().describe('Old event captures removed to stay within capture.max_count and capture.max_mb.'),
     last_window_speed_rpm: z.number().nullable().optional().describe('Mean speed of the last window from the tach channel, r/min; null when no revolution was averaged.'),
     source_connected: z.boolean().optional().describe('Serial board: the device is open.'),
     source_device: z.string().optional().describe('Serial board: device path.'),
@@ -214,6 +217,7 @@ export const commandPayload = z
     z.object({ ...commandEnvelope, cmd: z.literal('baseline.start'), args: noArgs }).strict(),
     z.object({ ...commandEnvelope, cmd: z.literal('baseline.stop'), args: noArgs }).strict(),
     z.object({ ...commandEnvelope, cmd: z.literal('snapshot.take'), args: noArgs }).strict(),
+    z.object({ ...commandEnvelope, cmd: z.literal('capture.take'), args: noArgs }).strict().describe('Writes an event capture (raw samples around now) under state_dir/captures; the reply names its id.'),
     z
       .object({
         ...commandEnvelope,
@@ -228,7 +232,7 @@ export const commandPayload = z
       .strict(),
   ])
   .describe('<prefix>/<asset>/cmd, QoS 1.');
-export const COMMANDS = ['advisory.ack', 'baseline.start', 'baseline.stop', 'snapshot.take', 'balancing.session'] as const;
+export const COMMANDS = ['advisory.ack', 'baseline.start', 'baseline.stop', 'snapshot.take', 'capture.take', 'balancing.session'] as const;
 export type CommandName = (typeof COMMANDS)[number];
 
 export const REPLY_ERRORS = ['malformed', 'unauthorised', 'unknown_command', 'invalid_args', 'unavailable', 'rejected', 'failed', 'too_large'] as const;

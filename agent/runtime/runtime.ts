@@ -1,4 +1,4 @@
-import type { SampleSource, SourceInfo } from '../../drivers/source.js';
+import type { SampleSource, SourceInfo, SourceItem } from '../../drivers/source.js';
 import type { Clock } from '../clock.js';
 import type { Config } from '../config/schema.js';
 import { Analyzer } from '../dsp/analyzer.js';
@@ -23,6 +23,13 @@ export interface LiveConsumer {
   onLive(f: LiveFrame, atMs: number): void;
 }
 
+/** Sees every source item as it arrives, before the DSP (the event captures' raw ring). */
+export interface RawTap {
+  onItem(item: SourceItem): void;
+  /** At the end of the run: finish what is pending. */
+  close(): Promise<void>;
+}
+
 export interface RuntimeOptions {
   readonly config: Config;
   readonly source: SampleSource;
@@ -39,6 +46,8 @@ export interface RuntimeOptions {
   readonly timeScale?: number;
   /** True when blocks carry board-timed tach edges. */
   readonly boardTimesTach?: boolean;
+  /** Built once the source is open (it needs the sample rate and channel count). */
+  readonly rawTap?: (info: SourceInfo, timeOf: (index: number) => number, maxBlock: number) => RawTap;
 }
 
 /** What the loop has handled so far (for the heartbeat while it runs, and the summary). */
@@ -90,9 +99,11 @@ export class AgentRuntime {
     let first: number | undefined;
     const scale = this.opts.timeScale ?? 1;
     const timeOf = (index: number) => startMs + (index / fs) * 1000 * scale;
+    const tap = this.opts.rawTap?.(info, timeOf, maxBlock);
     try {
       for await (const item of source.items()) {
         if (this.stopped) break;
+        tap?.onItem(item);
         if (item.kind === 'gap') {
           this.gaps++;
           an.push(item);
@@ -133,6 +144,7 @@ export class AgentRuntime {
     } finally {
       if (this.stopTimer) clearTimeout(this.stopTimer);
       await source.close();
+      await tap?.close();
     }
     const counts = this.counts();
     logger.info({ ...counts }, 'acquisition ended');

@@ -178,7 +178,7 @@ export function parseBody<T>(schema: z.ZodType<T>, raw: unknown, what: string): 
     400,
     'invalid_request',
     `${problems.length} problem(s) in the ${what}: ${problems.join('; ')}`,
-    'fix the fields named and send it again; README "Live view and balancing workbench" lists every field',
+    'fix the fields named and send it again; docs/live-page.md, "HTTP API", lists every field',
     problems,
   );
 }

@@ -14,7 +14,6 @@ function num(v: string | undefined, name: string, dflt: number): number {
 
 export const probeSerialCommand: Command = {
   name: 'probe-serial',
-  summary: 'list serial ports, or listen to the acquisition board and report what it sends',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('probe-serial', usage, argv, {

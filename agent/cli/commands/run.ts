@@ -31,7 +31,6 @@ interface StopSwitch {
 
 export const runCommand: Command = {
   name: 'run',
-  summary: 'the agent: acquire, measure, watch, publish over MQTT, drive the advisory, serve the live page',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('run', usage, argv, {
