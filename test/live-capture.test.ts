@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import type { LiveFrame } from '../agent/dsp/types.js';
-import { RunCapture, type CaptureSettings } from '../agent/live/capture.js';
+import { RunCapture, type CaptureSettings } from '../agent/balance/workbench/capture.js';
 
 /**
  * Capturing a balancing run from live frames: settle, then average the live 1x vectors over N

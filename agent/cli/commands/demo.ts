@@ -10,9 +10,8 @@ import { FakeGpioLines } from '../../../drivers/gpio/fake-lines.js';
 import { systemClock } from '../../clock.js';
 import { validateConfig } from '../../config/load.js';
 import type { AgentEvent } from '../../events.js';
-import { LiveServer } from '../../live/server.js';
 import { createPinoLogger } from '../../logging/pino-logger.js';
-import { Agent } from '../../runtime/agent.js';
+import { assemble } from '../../runtime/assemble.js';
 import { UserError } from '../../errors.js';
 import { numberOption, parseCommandArgs } from '../args.js';
 
@@ -153,32 +152,20 @@ export const demoCommand: Command = {
         },
         'demo config (config/example.yaml with demo settings)',
       );
-      const { source } = createSource(cfg, configFile, { log });
       const startMs = Date.UTC(2026, 0, 5, 0, 0, 0) + fromDay * 86400_000;
-      let agent: Agent;
-      const live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() }, { ...process.env, TURNWISE_DEMO_TOKEN: token });
-      agent = new Agent({
+      const { agent, startLive, stopLive } = await assemble({
         config: cfg,
-        source,
-        boardTimesTach: false,
         clock: systemClock,
         logger: log,
-        gpio: new FakeGpioLines(),
+        env: { ...process.env, TURNWISE_DEMO_TOKEN: token },
+        // A laptop has no GPIO lines: the advisory drives lines in memory.
+        openGpio: () => new FakeGpioLines(),
+        openSource: (c) => ({ source: createSource(c, configFile, { log }).source, boardTimesTach: false }),
         startMs,
         timeScale: speed,
-        windowConsumers: [
-          {
-            onWindow: (w, at) => {
-              live.onWindow(w, at);
-              if (agent.status) live.onWatch(agent.status);
-            },
-          },
-        ],
-        liveConsumers: [live],
         onEvent: (e) => process.stdout.write(`  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`),
       });
-      agent.handlers.balancingSession = (a) => live.workbench.sessionCommand(a);
-      const { url } = await live.start();
+      const url = await startLive();
       const [host, port] = brokerUrl.replace('mqtt://', '').split(':');
       process.stdout.write(
         `turnwise demo: the invented Kessrow Board Mill ID fan 3A, simulated (INVENTED DATA)\n` +
@@ -201,7 +188,7 @@ export const demoCommand: Command = {
         await agent.run(2000);
       } finally {
         if (timer) clearTimeout(timer);
-        await live.stop();
+        await stopLive();
       }
       return 0;
     } finally {
