@@ -95,6 +95,12 @@ export const watcherSchema = z
         clipped_share_max: z.number().min(0).max(1).default(0.0001).describe('Share of clipped samples above which the channel is not OK.'),
         running_overall_mm_s: mmS.default(0.2).describe('Overall above this on any healthy channel means the fan runs (used when there is no speed).'),
         missing_pulse_share_max: z.number().min(0).max(1).default(0.1).describe('Share of revolutions with a missing tach pulse above which the tach counts as lost.'),
+        ok_after_s: z
+          .number()
+          .min(0)
+          .max(86400)
+          .default(10)
+          .describe('A sensor fault must be gone this long (seconds of measured data) before the sensor is OK again and sensor_ok is sent; an intermittent connector comes and goes, so this is longer than on_delay_s (own choice: five 2 s windows).'),
       })
       .strict()
       .prefault({}),

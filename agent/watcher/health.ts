@@ -1,4 +1,5 @@
 import type { ChannelResult, WindowResult } from '../dsp/types.js';
+import type { FaultCode } from './events.js';
 import type { WatcherSettings } from './settings.js';
 
 /**
@@ -14,8 +15,15 @@ export interface ChannelHealth {
   readonly phase_ok: boolean;
   /** Why the sensor is not OK, in words (empty when OK). */
   readonly problems: readonly string[];
+  /** The same problems as codes, in the same order. */
+  readonly faults: readonly { readonly code: FaultCode; readonly words: string }[];
   /** Why an OK channel cannot take part in phase rules, in words. */
   readonly phase_notes: readonly string[];
+  /**
+   * Findings that could be a sensor fault or real vibration: the channel stays in the zones, but it
+   * cannot raise the machine to zone D on its own (empty when none).
+   */
+  readonly doubts: readonly string[];
 }
 
 export type TachState = 'ok' | 'lost' | 'stopped';
@@ -37,20 +45,21 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
   const byId = new Map<string, ChannelResult>(window.channels.map((c) => [c.id, c]));
 
   // Faults that need no knowledge of whether the fan turns.
-  const faults = new Map<string, string[]>();
+  type Fault = { code: FaultCode; words: string };
+  const faults = new Map<string, Fault[]>();
   for (const sensor of s.sensors) {
     const c = byId.get(sensor.id);
-    const p: string[] = [];
-    if (!c) p.push('no data for this sensor in the window');
-    else if (c.stats.samples === 0) p.push('no samples in the window');
+    const p: Fault[] = [];
+    if (!c) p.push({ code: 'no_data', words: 'no data for this sensor in the window' });
+    else if (c.stats.samples === 0) p.push({ code: 'no_data', words: 'no samples in the window' });
     else {
       if (sensor.bias_v && (c.stats.dc_v < sensor.bias_v.min || c.stats.dc_v > sensor.bias_v.max)) {
         const hint = c.stats.dc_v < sensor.bias_v.min ? 'short circuit or no sensor power' : 'open cable or sensor';
-        p.push(`bias ${f(c.stats.dc_v)} V outside its ${sensor.bias_v.min}-${sensor.bias_v.max} V window (${hint})`);
+        p.push({ code: 'bias', words: `bias ${f(c.stats.dc_v)} V outside its ${sensor.bias_v.min}-${sensor.bias_v.max} V window (${hint})` });
       }
       const clipShare = c.stats.clipped_samples / c.stats.samples;
       if (c.stats.clipped_samples > 0 && clipShare > h.clipped_share_max) {
-        p.push(`clipped: ${c.stats.clipped_samples} of ${c.stats.samples} samples at full scale (input range too small or sensor overloaded)`);
+        p.push({ code: 'clipped', words: `clipped: ${c.stats.clipped_samples} of ${c.stats.samples} samples at full scale (input range too small or sensor overloaded)` });
       }
     }
     faults.set(sensor.id, p);
@@ -67,7 +76,7 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
     for (const sensor of s.sensors) {
       const c = byId.get(sensor.id);
       if (c && c.stats.samples > 0 && c.stats.ac_rms_v < h.flat_ac_rms_v) {
-        faults.get(sensor.id)!.push(`flat line: ${f(c.stats.ac_rms_v * 1000, 3)} mV r.m.s. while the fan turns (dead sensor or broken cable)`);
+        faults.get(sensor.id)!.push({ code: 'flat', words: `flat line: ${f(c.stats.ac_rms_v * 1000, 3)} mV r.m.s. while the fan turns (dead sensor or broken cable)` });
       }
     }
   }
@@ -86,7 +95,8 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
   } else tach = { state: 'ok', why: `${window.tach.edges} tach edges, ${window.revolutions} revolutions averaged` };
 
   const channels = s.sensors.map((sensor): ChannelHealth => {
-    const problems = faults.get(sensor.id)!;
+    const found = faults.get(sensor.id)!;
+    const problems = found.map((x) => x.words);
     const ok = problems.length === 0;
     const c = byId.get(sensor.id);
     const phaseNotes: string[] = [];
@@ -94,7 +104,7 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
       if (tach.state !== 'ok') phaseNotes.push(tach.state === 'lost' ? 'tach lost: no phase reference' : 'fan stopped');
       else if (!c?.orders['1']) phaseNotes.push('no 1x vector in this window');
     }
-    return { id: sensor.id, ok, phase_ok: ok && phaseNotes.length === 0, problems, phase_notes: phaseNotes };
+    return { id: sensor.id, ok, phase_ok: ok && phaseNotes.length === 0, problems, faults: found, phase_notes: phaseNotes, doubts: [] };
   });
 
   return { channels, tach, running };

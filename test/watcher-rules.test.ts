@@ -1,0 +1,121 @@
+import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import type { AgentEvent } from '../agent/events.js';
+import { assessWindow } from '../agent/watcher/assess.js';
+import { WATCHER_EVENT_TYPES } from '../agent/watcher/events.js';
+import { RULES } from '../agent/watcher/rules/index.js';
+import { STATE_ROWS } from '../agent/watcher/state-table.js';
+import { openWatcher } from '../agent/watcher/watcher.js';
+import { FakeClock } from './support/fake-clock.js';
+import { demoConfig, fanCase, synthWindow, type WindowSpec } from './support/fan-windows.js';
+import { assertMatches } from './support/payload-schemas.js';
+
+const T0 = Date.parse('2031-03-02T08:00:00Z');
+const WINDOW_SAMPLES = 51200; // 10 s at 5120 Hz (test/support/fan-windows.ts)
+
+function feeder(dir: string, watcher: Record<string, unknown> = {}) {
+  const clock = new FakeClock(T0);
+  const w = openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10, on_delay_s: 20, ...watcher } }), clock);
+  let index = 0;
+  const all: AgentEvent[] = [];
+  return {
+    w,
+    all,
+    feed(spec: WindowSpec, n = 1): AgentEvent[] {
+      const out: AgentEvent[] = [];
+      for (let i = 0; i < n; i++) {
+        clock.advance(10);
+        out.push(...w.process(synthWindow({ ...spec, start_index: index })).events);
+        index += WINDOW_SAMPLES;
+      }
+      all.push(...out);
+      return out;
+    },
+  };
+}
+
+describe('watcher rules as declarations', () => {
+  it('every rule under agent/watcher/rules/ reports its own evidence, limits, causes and what was missing', () => {
+    const a = assessWindow(demoConfig(), synthWindow(fanCase('misalignment')));
+    expect(a.unbalance.rules.map((r) => r.rule)).toEqual(RULES.map((r) => r.name));
+    expect(RULES.map((r) => r.name)).toEqual(['sensor-faults', 'one-x-size', 'one-x-share', 'harmonics', 'hv-shape', 'bearing-phase', 'axial', 'phase-stability']);
+    const byName = Object.fromEntries(a.unbalance.rules.map((r) => [r.rule, r]));
+    // The misalignment case (test/support/fan-windows.ts): 2x at 90 % of 1x, axial 1x 178 deg apart.
+    expect(byName['harmonics']!.facts.two_x_high).toBe(true);
+    expect(byName['harmonics']!.points_to.map((p) => p.cause)).toEqual(['misalignment']);
+    expect(byName['axial']!.evidence.join('\n')).toMatch(/178 deg apart end to end/);
+    // One window only: the stability rule says what it missed, with its weight.
+    expect(byName['phase-stability']!.missing).toBe(1);
+    expect(byName['phase-stability']!.limits[0]).toMatch(/1x phase stability not judged: 1 window/);
+    // The whole is the concatenation of the parts.
+    expect(a.unbalance.evidence).toEqual(a.unbalance.rules.flatMap((r) => r.evidence));
+  });
+
+  it('a rule that stops (1x too small to judge) ends the list', () => {
+    const a = assessWindow(demoConfig(), synthWindow(fanCase('quiet')));
+    expect(a.unbalance.rules.map((r) => r.rule)).toEqual(['sensor-faults', 'one-x-size']);
+    expect(a.unbalance.kind).toBe('none');
+  });
+});
+
+describe('state table and event payloads', () => {
+  it('every table row names only event types that have a payload schema', () => {
+    const types = new Set<string>(WATCHER_EVENT_TYPES);
+    for (const [key, row] of Object.entries(STATE_ROWS)) {
+      const samples = row.value.safeParse(true).success ? [true, false] : (row.value as unknown as { options: string[] }).options;
+      for (const from of [undefined, ...samples]) for (const to of samples) {
+        const e = (row.event as (f: unknown, t: unknown) => { type: string } | null)(from, to);
+        if (e) expect(types.has(e.type), `${key}: ${String(from)} -> ${String(to)} raises ${e.type}`).toBe(true);
+      }
+    }
+  });
+
+  it('every event of a run through unbalance, a sensor fault, a lost tach and back matches event-watcher.v1.schema.json', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tw-rules-'));
+    const f = feeder(dir);
+    f.feed(fanCase('quiet'), 2);
+    f.feed(fanCase('static'), 3);
+    const spec = fanCase('static');
+    f.feed({ ...spec, stats: { 'NDE-V': { dc_v: 0.3 } } }, 3);
+    f.feed({ ...spec, tachEdges: 0 }, 3);
+    f.feed(fanCase('couple'), 8);
+    f.feed(fanCase('quiet'), 3);
+    const seen = new Set(f.all.map((e) => e.type));
+    for (const t of ['zone_changed', 'unbalance_found', 'sensor_not_ok', 'sensor_ok', 'tach_lost', 'tach_back', 'unbalance_cleared', 'alarm_level_exceeded']) expect(seen, t).toContain(t);
+    for (const e of f.all) {
+      assertMatches('event-watcher.v1', { schema: 'turnwise.event.v1', ...e });
+      assertMatches('event.v1', { schema: 'turnwise.event.v1', ...e });
+    }
+    const notOk = f.all.find((e) => e.type === 'sensor_not_ok')!;
+    expect(notOk['faults']).toEqual([{ code: 'bias', words: expect.stringMatching(/bias 0\.30 V outside/) }]);
+  });
+
+  it('the schema refuses a watcher event with a field of the wrong type', () => {
+    const e = { schema: 'turnwise.event.v1', id: 'a/zone_changed/machine/r1/0', ts: '2031-03-02T08:00:00Z', asset: 'a', type: 'zone_changed', severity: 'info', window: { start_index: 0, end_index: 1 }, scope: 'machine', zone: 'E', from_zone: null, limits: { ab_mm_s: 1, bc_mm_s: 2, cd_mm_s: 3, basis: 'x', multiplier: 1 } };
+    expect(() => assertMatches('event-watcher.v1', e)).toThrow(/zone/);
+    expect(() => assertMatches('event-watcher.v1', { ...e, zone: 'C' })).not.toThrow();
+  });
+
+  it('reads a v1 state.json, keeps its confirmed states (no event repeated) and writes it back as v2', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tw-rules-'));
+    mkdirSync(join(dir, 'watcher'), { recursive: true });
+    const zones = { 'DE-V': 'C', 'DE-H': 'C', 'DE-A': 'A', 'NDE-V': 'C', 'NDE-H': 'B', 'NDE-A': 'A' };
+    const ok = Object.fromEntries(Object.keys(zones).map((k) => [k, true]));
+    // A file as the v1 watcher wrote it (before the state table).
+    const v1 = { version: 1, run: 7, machine_zone: 'C', zones, over_alarm: { 'DE-V': true, 'DE-H': true, 'NDE-V': true }, unbalance: 'static', sensor_ok: ok, tach: 'ok', speed: 'in_range', vector_changed: {} };
+    writeFileSync(join(dir, 'watcher', 'state.json'), JSON.stringify(v1));
+    const f = feeder(dir);
+    const first = f.feed(fanCase('static'), 3);
+    // The same fan state as stored: nothing to report again, except what v1 could not know.
+    expect(first.filter((e) => e.type === 'unbalance_found' || (e.type === 'zone_changed' && !e['sensor']))).toEqual([]);
+    const saved = JSON.parse(readFileSync(join(dir, 'watcher', 'state.json'), 'utf8'));
+    expect(saved.version).toBe(2);
+    expect(saved.run).toBe(8);
+    expect(saved.unbalance).toBe('static');
+    // v1 had no sensor_doubt: it starts empty and is confirmed false on the fan's healthy sensors.
+    expect(Object.values(saved.sensor_doubt)).toEqual([false, false, false, false, false, false]);
+    expect(Object.keys(saved).sort()).toEqual(['run', 'version', ...Object.keys(STATE_ROWS)].sort());
+  });
+});
