@@ -95,6 +95,54 @@ export const watcherSchema = z
         clipped_share_max: z.number().min(0).max(1).default(0.0001).describe('Share of clipped samples above which the channel is not OK.'),
         running_overall_mm_s: mmS.default(0.2).describe('Overall above this on any healthy channel means the fan runs (used when there is no speed).'),
         missing_pulse_share_max: z.number().min(0).max(1).default(0.1).describe('Share of revolutions with a missing tach pulse above which the tach counts as lost.'),
+        spike_ratio: z
+          .number()
+          .min(3)
+          .max(1000)
+          .default(8)
+          .describe('A 10 ms span whose largest excursion from the mean reaches this many times the median span r.m.s. holds an impulse (Gaussian noise passes 5x its r.m.s. in about 6 of 10 million samples: own computation).'),
+        spike_one_sided_ratio: z
+          .number()
+          .min(1.5)
+          .max(100)
+          .default(3)
+          .describe('An impulse is one-sided (no ringing) when its excursion one way is at least this many times the other way; an impact ringing a resonance swings both ways about equally (common practice).'),
+        spikes_per_s: z
+          .number()
+          .positive()
+          .max(1000)
+          .default(1)
+          .describe('One-sided impulses per second (and at least 2 in the window) at or above which the channel is not OK (connector or cable fault).'),
+        pile_share_min: z
+          .number()
+          .positive()
+          .max(1)
+          .default(0.0002)
+          .describe('Share of samples within tolerance of one extreme value at or above which, with few samples just below (see pile_ratio_min), the signal counts as cut off there.'),
+        pile_ratio_min: z
+          .number()
+          .min(1.5)
+          .max(1000)
+          .default(4)
+          .describe('Samples at the extreme over samples in the band just below it: about 1.4 for a sine (own computation), far more when the signal is cut off.'),
+        saturation_share: z
+          .number()
+          .min(0.1)
+          .max(1)
+          .default(0.95)
+          .describe('A signal cut off below this share of full_scale_v is the sensor saturating, not the input range.'),
+        steps_spanned_min: z
+          .number()
+          .min(2)
+          .max(1e6)
+          .default(5)
+          .describe('While the fan turns, a signal spanning fewer converter steps than this is quantisation noise only (a converter at rest toggles 1-2 steps either side of its value, 2-4 steps in all: own judgement).'),
+        level_step_ratio: z
+          .number()
+          .min(2)
+          .max(1000)
+          .default(5)
+          .describe('A 100 ms r.m.s. this many times above (or below) the window median, reached by a jump of at least its square root between neighbouring 100 ms groups, is a sudden level step.'),
         ok_after_s: z
           .number()
           .min(0)
