@@ -40,7 +40,7 @@ describe('watcher rules as declarations', () => {
   it('every rule under agent/watcher/rules/ reports its own evidence, limits, causes and what was missing', () => {
     const a = assessWindow(demoConfig(), synthWindow(fanCase('misalignment')));
     expect(a.unbalance.rules.map((r) => r.rule)).toEqual(RULES.map((r) => r.name));
-    expect(RULES.map((r) => r.name)).toEqual(['sensor-faults', 'one-x-size', 'one-x-share', 'harmonics', 'hv-shape', 'bearing-phase', 'axial', 'phase-stability']);
+    expect(RULES.map((r) => r.name)).toEqual(['sensor-faults', 'one-x-size', 'one-x-share', 'harmonics', 'hv-shape', 'bearing-phase', 'axial', 'phase-stability', 'significance']);
     const byName = Object.fromEntries(a.unbalance.rules.map((r) => [r.rule, r]));
     // The misalignment case (test/support/fan-windows.ts): 2x at 90 % of 1x, axial 1x 178 deg apart.
     expect(byName['harmonics']!.facts.two_x_high).toBe(true);
@@ -117,5 +117,52 @@ describe('state table and event payloads', () => {
     // v1 had no sensor_doubt: it starts empty and is confirmed false on the fan's healthy sensors.
     expect(Object.values(saved.sensor_doubt)).toEqual([false, false, false, false, false, false]);
     expect(Object.keys(saved).sort()).toEqual(['run', 'version', ...Object.keys(STATE_ROWS)].sort());
+  });
+});
+
+describe('significance before a finding (watcher.unbalance.significance)', () => {
+  // Group 2 rigid (config/example.yaml): A/B 1.4, B/C 2.8 mm/s r.m.s. (ISO 20816-3).
+  // A static pattern of 1x 0.75 mm/s on DE-V: the synthesizer's overall sqrt(1 + 0.1^2 + 0.05^2 + 0.3^2) x 0.75 = 0.79 mm/s, zone A.
+  const small = { ...fanCase('static', { amp: 0.75 }) };
+
+  it('zone A, no baseline: kind none, the residual static pattern given as information', () => {
+    const a = assessWindow(demoConfig(), synthWindow(small));
+    expect(a.zone.machine).toBe('A');
+    expect(a.unbalance.kind).toBe('none');
+    expect(a.unbalance.residual_pattern).toBe('static');
+    expect(a.unbalance.evidence.join('\n')).toMatch(/not significant: the largest overall is 0\.79 mm\/s at DE-V, within the A\/B boundary, 1\.40 mm\/s \(ISO 20816-3 group 2, rigid support\)/);
+    expect(a.unbalance.evidence.join('\n')).toMatch(/vertical: DE and NDE 1x are 12 deg apart, in phase \(static pattern\)/);
+  });
+
+  it('the same pattern grown into zone B is reported', () => {
+    // 1x 1.6 mm/s: overall 1.68 mm/s, zone B.
+    const a = assessWindow(demoConfig(), synthWindow(fanCase('static', { amp: 1.6 })));
+    expect(a.zone.machine).toBe('B');
+    expect(a.unbalance.kind).toBe('static');
+    expect(a.unbalance.residual_pattern).toBeNull();
+    expect(a.unbalance.evidence.join('\n')).toMatch(/significant: overall DE-V 1\.68 mm\/s above 1\.40 mm\/s/);
+  });
+
+  it('in zone A a significant 1x change from the baseline is a finding', () => {
+    const cfg = demoConfig({ watcher: { baseline: { channels: { 'DE-V': { one_x_rms_mm_s: 0.1, one_x_phase_deg: 220 } } } } });
+    const a = assessWindow(cfg, synthWindow(small));
+    expect(a.zone.machine).toBe('A');
+    // Change 0.85 mm/s >= 0.25 x B/C = 0.70 mm/s (ISO 20816-3 change criterion).
+    expect(a.vector_change!['DE-V']!.significant).toBe(true);
+    expect(a.unbalance.kind).toBe('static');
+  });
+
+  it('custom level: the user\'s own overall', () => {
+    const a = assessWindow(demoConfig({ watcher: { unbalance: { significance: { basis: 'custom', overall_mm_s: 0.5 } } } }), synthWindow(small));
+    expect(a.unbalance.kind).toBe('static');
+  });
+
+  it('the live watcher sends no unbalance_found in zone A, and one when the 1x grows into B', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'tw-rules-'));
+    const f = feeder(dir);
+    expect(f.feed(small, 4).filter((e) => e.type.startsWith('unbalance'))).toEqual([]);
+    expect(f.w.status().confirmed.unbalance).toBe('none');
+    const grown = f.feed(fanCase('static', { amp: 1.6 }), 3).filter((e) => e.type.startsWith('unbalance'));
+    expect(grown.map((e) => `${e.type}:${e['kind']}`)).toEqual(['unbalance_found:static']);
   });
 });

@@ -86,6 +86,20 @@ export const watcherSchema = z
           .default(30)
           .describe('1x phase jumping more than this (median, window to window) is unstable; a baseline is learned only when the phase stays within this of its mean, degrees.'),
         stability_windows: z.number().int().min(3).max(100).default(6).describe('Recent windows used for the phase-stability rule.'),
+        significance: z
+          .discriminatedUnion('basis', [
+            z.object({ basis: z.literal('zone_ab') }).strict().describe('Significant once an OK sensor\'s overall is above the A/B boundary in force (ISO 20816-3 zone A/B).'),
+            z
+              .object({ basis: z.literal('baseline_change') })
+              .strict()
+              .describe('Significant once an overall is 0.25 x (B/C) above that sensor\'s baseline overall (ISO 20816-3 change criterion); the A/B boundary where there is no baseline overall.'),
+            z
+              .object({ basis: z.literal('custom'), overall_mm_s: mmS.describe('Overall, mm/s r.m.s., above which the 1x is judged; at most the C/D boundary.') })
+              .strict()
+              .describe('The user\'s own level.'),
+          ])
+          .prefault({ basis: 'zone_ab' })
+          .describe('No unbalance finding (kind none, the residual pattern as information) while every OK sensor is at or below this level and no 1x vector changed significantly from the baseline.'),
       })
       .strict()
       .prefault({}),

@@ -12,6 +12,7 @@ import {
   type RuleContext,
   type RuleFacts,
   type RuleResult,
+  type SignificanceInputs,
   type UnbalanceKind,
   type UnbalanceMeasures,
   type WatcherRule,
@@ -40,11 +41,16 @@ export interface UnbalanceAssessment {
   /** What the data could not show: sensors left out, rules not checked. */
   readonly limits: readonly string[];
   readonly measures: UnbalanceMeasures;
+  /**
+   * With kind "none" because nothing is significant (zone A, no baseline change): the pattern the
+   * residual 1x shows (static, couple, ...), as information; null otherwise.
+   */
+  readonly residual_pattern: UnbalanceKind | null;
   /** Each rule's own result, in the order run (rules not run because an earlier one stopped are absent). */
   readonly rules: readonly RuleResult[];
 }
 
-function contextFor(s: WatcherSettings, window: WindowResult, health: HealthReport, recent: readonly RecentWindow[], facts: RuleFacts, measures: UnbalanceMeasures): RuleContext {
+function contextFor(s: WatcherSettings, window: WindowResult, health: HealthReport, recent: readonly RecentWindow[], facts: RuleFacts, measures: UnbalanceMeasures, inputs: SignificanceInputs | null): RuleContext {
   const readings = readingsOf(window, health);
   const radial = readings.filter(isRadial);
   const maxRadial = radial.length ? radial.reduce((a, r) => (r.amp > a.amp ? r : a)) : null;
@@ -60,6 +66,7 @@ function contextFor(s: WatcherSettings, window: WindowResult, health: HealthRepo
     main: maxRadial ? radial.filter((r) => r.amp >= 0.5 * maxRadial.amp) : [],
     bearingNames: [...new Set(readings.map((r) => r.bearing))],
     measures,
+    inputs,
     facts,
     pick,
     pairRelation(direction): PhasePair | null {
@@ -79,6 +86,7 @@ export function diagnoseUnbalance(
   health: HealthReport,
   recent: readonly RecentWindow[] = [],
   rules: readonly WatcherRule[] = RULES,
+  inputs: SignificanceInputs | null = null,
 ): UnbalanceAssessment {
   const measures: UnbalanceMeasures = {
     max_radial_one_x_rms_mm_s: null,
@@ -91,7 +99,7 @@ export function diagnoseUnbalance(
     stability_windows: 0,
   };
   const facts: RuleFacts = {};
-  const ctx = contextFor(s, window, health, recent, facts, measures);
+  const ctx = contextFor(s, window, health, recent, facts, measures, inputs);
   const results: RuleResult[] = [];
   for (const rule of rules) {
     const r = { rule: rule.name, ...rule.run(ctx) };
@@ -105,14 +113,16 @@ export function diagnoseUnbalance(
   const pointsTo = new Map<OneXCause, string[]>();
   for (const r of results) for (const p of r.points_to) pointsTo.set(p.cause, [...(pointsTo.get(p.cause) ?? []), p.why]);
 
-  let kind: UnbalanceKind;
-  if (facts.stop || facts.not_one_x || pointsTo.size > 0) kind = 'none';
-  else if (s.rotor === 'overhung' || facts.overhung_pattern) kind = 'overhung';
-  else if (facts.pair_kind) kind = facts.pair_kind;
+  let pattern: UnbalanceKind;
+  if (facts.stop || facts.not_one_x || pointsTo.size > 0) pattern = 'none';
+  else if (s.rotor === 'overhung' || facts.overhung_pattern) pattern = 'overhung';
+  else if (facts.pair_kind) pattern = facts.pair_kind;
   else {
     limits.push('reported as dynamic unbalance, the general case (two correction planes), because the bearings could not be compared');
-    kind = 'dynamic';
+    pattern = 'dynamic';
   }
+  // Below the significance level the pattern is kept as information only.
+  const kind: UnbalanceKind = facts.not_significant ? 'none' : pattern;
   const confidence: Confidence = facts.confidence_low || ctx.radial.length <= 1 || missing >= 3 ? 'low' : missing >= 1 ? 'medium' : 'high';
   return {
     kind,
@@ -121,6 +131,7 @@ export function diagnoseUnbalance(
     points_to: kind === 'none' ? [...pointsTo].map(([cause, whys]) => ({ cause, why: whys.join('; ') })) : [],
     limits,
     measures,
+    residual_pattern: facts.not_significant ? pattern : null,
     rules: results,
   };
 }

@@ -1,6 +1,8 @@
 import type { ChannelResult, WindowResult } from '../../dsp/types.js';
 import { normDeg, sepDeg } from '../complex.js';
+import type { Baseline } from '../baseline.js';
 import type { HealthReport } from '../health.js';
+import type { ZoneReport } from '../zones.js';
 import type { WatcherSettings } from '../settings.js';
 
 /**
@@ -77,6 +79,15 @@ export interface RuleFacts {
   overhung_pattern?: boolean;
   /** Held to "low" whatever the rest says (e.g. a suspect tach.pulses_per_rev). */
   confidence_low?: boolean;
+  /** Nothing is significant (zone A, no baseline change): no finding, the pattern is information. */
+  not_significant?: boolean;
+}
+
+/** What the significance rule compares against: this window's zones and the change from the baseline. */
+export interface SignificanceInputs {
+  readonly zone: ZoneReport;
+  readonly vectorChange: Readonly<Record<string, { readonly delta_mm_s: number; readonly significant: boolean }>> | null;
+  readonly baseline: Baseline | null;
 }
 
 export interface RuleResult {
@@ -108,6 +119,8 @@ export interface RuleContext {
   readonly main: readonly Reading[];
   readonly bearingNames: readonly string[];
   readonly measures: UnbalanceMeasures;
+  /** Zones and baseline change of this window; null when the caller has none (then nothing is gated). */
+  readonly inputs: SignificanceInputs | null;
   /** Facts stated by the rules run before this one. */
   readonly facts: Readonly<RuleFacts>;
   /** The healthy reading at a bearing in a direction. */
