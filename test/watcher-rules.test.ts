@@ -9,7 +9,8 @@ import { RULES } from '../agent/watcher/rules/index.js';
 import { STATE_ROWS } from '../agent/watcher/state-table.js';
 import { openWatcher } from '../agent/watcher/watcher.js';
 import { FakeClock } from './support/fake-clock.js';
-import { demoConfig, fanCase, synthWindow, type WindowSpec } from './support/fan-windows.js';
+import { validateConfig } from '../agent/config/load.js';
+import { DEMO_SENSORS, demoConfig, fanCase, synthWindow, type WindowSpec } from './support/fan-windows.js';
 import { assertMatches } from './support/payload-schemas.js';
 
 const T0 = Date.parse('2031-03-02T08:00:00Z');
@@ -164,5 +165,49 @@ describe('significance before a finding (watcher.unbalance.significance)', () =>
     expect(f.w.status().confirmed.unbalance).toBe('none');
     const grown = f.feed(fanCase('static', { amp: 1.6 }), 3).filter((e) => e.type.startsWith('unbalance'));
     expect(grown.map((e) => `${e.type}:${e['kind']}`)).toEqual(['unbalance_found:static']);
+  });
+});
+
+describe('bent shaft vs misalignment, as the trade reads them (common practice)', () => {
+  // An axial sensor on the motor's drive-end bearing (M-DE), across the coupling from the fan's DE.
+  const withMotor = (coupling: boolean) => {
+    const base = demoConfig();
+    return validateConfig(
+      {
+        ...base,
+        sensors: [...base.sensors, { id: 'M-A', channel: 7, bearing: 'M-DE', direction: 'axial', sensitivity_mv_per_g: 100, bias_v: { min: 8, max: 12 }, full_scale_v: 20 }],
+        watcher: coupling ? { unbalance: { coupling: { driver: 'M-DE', driven: 'DE' } } } : {},
+      },
+      'test config',
+    );
+  };
+  const sensors = [...DEMO_SENSORS, { id: 'M-A', channel: 7, bearing: 'M-DE', direction: 'axial' as const, mounting_angle_deg: 0 }];
+  const mis = fanCase('misalignment');
+  // fanCase misalignment: DE-A at phase 50, NDE-A at 228 (178 apart end to end), 2x at 90 % of 1x.
+  const spec = (motorPhase: number): WindowSpec => ({ ...mis, sensors, oneX: { ...mis.oneX, 'M-A': { amp: 3, phase: motorPhase } }, orders: { ...mis.orders, 'M-A': { 2: { amp: 2.7, phase: 0 } } } });
+
+  it('high 2x with axial 1x 180 apart across the coupling -> misalignment only', () => {
+    const a = assessWindow(withMotor(true), synthWindow(spec(230)));
+    expect(a.unbalance.points_to.map((p) => p.cause)).toEqual(['misalignment']);
+    expect(a.unbalance.evidence.join('\n')).toMatch(/axial 1x 180 deg apart across the coupling: points to misalignment/);
+  });
+
+  it('high 2x but axial in phase across the coupling, 180 apart end to end on the fan -> bent shaft', () => {
+    const a = assessWindow(withMotor(true), synthWindow(spec(55)));
+    expect(a.unbalance.points_to.map((p) => p.cause).sort()).toEqual(['bent_shaft', 'misalignment']);
+    expect(a.unbalance.points_to.find((p) => p.cause === 'bent_shaft')!.why).toMatch(/across the coupling the axial 1x are 5 deg apart, not opposed/);
+    // The 2x itself still points to misalignment (harmonics rule); the axial reading does not.
+    expect(a.unbalance.points_to.find((p) => p.cause === 'misalignment')!.why).not.toMatch(/axial/);
+  });
+
+  it('without watcher.unbalance.coupling the motor sensor is not used for it, and the rule says so', () => {
+    const a = assessWindow(withMotor(false), synthWindow(spec(230)));
+    expect(a.unbalance.limits.join('\n')).toMatch(/no sensor on the driver side of the coupling/);
+  });
+
+  it('a coupling bearing without an axial sensor is refused with its path', () => {
+    const base = demoConfig();
+    const cfg = validateConfig({ ...base, watcher: { unbalance: { coupling: { driver: 'M-DE', driven: 'DE' } } } }, 'test config');
+    expect(() => assessWindow(cfg, synthWindow(mis))).toThrow(/watcher\.unbalance\.coupling\.driver.*bearing "M-DE" has no axial sensor/s);
   });
 });

@@ -72,6 +72,14 @@ export const watcherSchema = z
           .tuple([z.string().min(1), z.string().min(1)])
           .optional()
           .describe('The two rotor bearings compared for static/couple (default: the first two bearings with radial sensors).'),
+        coupling: z
+          .object({
+            driver: z.string().min(1).describe('Bearing on the driver (motor) side of the coupling, with an axial sensor.'),
+            driven: z.string().min(1).describe('Bearing on the driven (fan) side of the coupling, with an axial sensor.'),
+          })
+          .strict()
+          .optional()
+          .describe('The bearings either side of the coupling. Misalignment is read from high 2x with axial 1x about 180 deg apart across them (common practice); without them it cannot be told from a bent shaft.'),
         min_one_x_rms_mm_s: mmS.optional().describe('1x below this (mm/s r.m.s.) is too small to judge. Default half the A/B boundary.'),
         one_x_share_min: z.number().min(0).max(1).default(0.7).describe('1x must be at least this share of the overall r.m.s. (0.7 = half the power).'),
         two_x_ratio_max: z.number().positive().max(5).default(0.5).describe('2x/1x at or above this points to misalignment.'),

@@ -16,6 +16,8 @@ export interface WatcherSettings {
   readonly sensors: readonly SensorConfig[];
   /** The two rotor bearings compared for static/couple; null when fewer than two carry radial sensors. */
   readonly bearings: readonly [string, string] | null;
+  /** The bearings either side of the coupling (watcher.unbalance.coupling); null when not configured. */
+  readonly coupling: { readonly driver: string; readonly driven: string } | null;
   /** 1x below this is too small to judge, mm/s r.m.s. */
   readonly minOneXMmS: number;
   /** Reported size of a 1x vector change from baseline, mm/s r.m.s. */
@@ -67,8 +69,20 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
     bearings = w.unbalance.bearings;
   }
 
+  const coupling = w.unbalance.coupling ?? null;
+  if (coupling) {
+    const axialBearings = [...new Set(cfg.sensors.filter((x) => x.direction === 'axial').map((x) => x.bearing))];
+    for (const side of ['driver', 'driven'] as const) {
+      if (!axialBearings.includes(coupling[side])) {
+        throw new UserError(`watcher.unbalance.coupling.${side}`, `bearing "${coupling[side]}" has no axial sensor`, `name bearings that carry an axial sensor: ${axialBearings.join(', ') || '(none)'}`);
+      }
+    }
+    if (coupling.driver === coupling.driven) throw new UserError('watcher.unbalance.coupling', 'names the same bearing on both sides', 'name the driver-side and the driven-side bearing of the coupling');
+  }
+
   return {
     asset: cfg.machine.id,
+    coupling,
     w,
     limits,
     ratedRpm: cfg.machine.rated_rpm ?? null,
