@@ -69,6 +69,19 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
     bearings = w.unbalance.bearings;
   }
 
+  // Levels that only make sense below the C/D boundary of the limits in force.
+  const cd = limits.cd_mm_s;
+  const levels: [string, number | undefined][] = [
+    ['watcher.unbalance.significance.overall_mm_s', w.unbalance.significance.basis === 'custom' ? w.unbalance.significance.overall_mm_s : undefined],
+    ['watcher.unbalance.min_one_x_rms_mm_s', w.unbalance.min_one_x_rms_mm_s],
+    ['watcher.vector_change_mm_s', w.vector_change_mm_s],
+  ];
+  for (const [path, v] of levels) {
+    if (v !== undefined && v > cd) {
+      throw new UserError(path, `${v} mm/s is above the C/D boundary (${cd} mm/s, ${limits.basis}): nothing below zone D would ever reach it`, `give a value above 0 and at most ${cd} mm/s`);
+    }
+  }
+
   const coupling = w.unbalance.coupling ?? null;
   if (coupling) {
     const axialBearings = [...new Set(cfg.sensors.filter((x) => x.direction === 'axial').map((x) => x.bearing))];
