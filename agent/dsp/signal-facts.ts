@@ -132,24 +132,39 @@ export class SignalFactsStage {
     let mn = this.mn;
     let prev = this.prev;
     let minStep = this.minStep;
-    for (let i = 0; i < len; i++) {
-      const v = x[i]!;
-      const d = v - shift;
-      const d2 = d * d;
-      s1 += d;
-      s2 += d2;
-      s3 += d2 * d;
-      s4 += d2 * d2;
-      if (v > mx) mx = v;
-      if (v < mn) mn = v;
-      const step = v > prev ? v - prev : prev - v;
-      if (step > 0 && step < minStep) minStep = step;
-      prev = v;
-      this.curSum += d;
-      this.curSq += d2;
-      if (v > this.curMax) this.curMax = v;
-      if (v < this.curMin) this.curMin = v;
-      if (++this.curN === this.spanLen) this.closeSpan();
+    let i = 0;
+    while (i < len) {
+      // One stretch up to the end of the current span, with the span's sums in locals.
+      const start = i;
+      const end = Math.min(len, i + (this.spanLen - this.curN));
+      let cs = 0;
+      let cq = 0;
+      let cmx = this.curMax;
+      let cmn = this.curMin;
+      for (; i < end; i++) {
+        const v = x[i]!;
+        const d = v - shift;
+        const d2 = d * d;
+        cs += d;
+        cq += d2;
+        s3 += d2 * d;
+        s4 += d2 * d2;
+        if (v > cmx) cmx = v;
+        if (v < cmn) cmn = v;
+        const step = v > prev ? v - prev : prev - v;
+        if (step > 0 && step < minStep) minStep = step;
+        prev = v;
+      }
+      s1 += cs;
+      s2 += cq;
+      if (cmx > mx) mx = cmx;
+      if (cmn < mn) mn = cmn;
+      this.curSum += cs;
+      this.curSq += cq;
+      this.curMax = cmx;
+      this.curMin = cmn;
+      this.curN += end - start;
+      if (this.curN === this.spanLen) this.closeSpan();
     }
     this.s1 += s1;
     this.s2 += s2;
