@@ -178,10 +178,11 @@ describe('the four kinds of unbalance, from signals (field notes section 2, comm
 });
 
 describe('1x that is not unbalance, from signals (field notes section 2, common practice)', () => {
-  it('misalignment at the DE coupling: high 2x and axial 180 deg apart across the coupling -> none, points to misalignment', async () => {
+  it('misalignment at the DE coupling, fan sensors only: high 2x and axial 180 deg apart -> none, misalignment or a bent shaft (no driver-side sensor to tell them apart)', async () => {
     const w = await watch(withFault({ kind: 'misalignment', coupling_bearing: 'DE', amp_pk_mm_s: 3 }));
     expect(w.a.unbalance.kind).toBe('none');
-    expect(causes(w)).toEqual(['misalignment']);
+    expect(causes(w)).toEqual(['bent_shaft', 'misalignment']);
+    expect(w.a.unbalance.limits.join('\n')).toMatch(/misalignment cannot be told from a bent shaft with these sensors/);
     // high 2x (at or above half the 1x, the configured default) and high axial 180 apart -> misalignment
     expect(w.a.unbalance.measures.two_x_over_one_x!).toBeGreaterThan(0.5);
     expect(pair(w, 'axial').phase_diff_deg).toBeGreaterThan(150);

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { WATCHER_EVENT_FIELDS, WATCHER_EVENT_TYPES } from '../watcher/events.js';
 
 /**
  * Every MQTT payload the agent publishes or accepts, as zod schemas. Each payload names its own
@@ -195,6 +196,23 @@ export const outboxEventPayload = eventPayload
   })
   .describe('Outbox events (a subset of turnwise.event.v1).');
 
+/** The watcher's events (agent/watcher/events.ts): the envelope plus each type's own fields. */
+const watcherEnvelope = {
+  schema: z.literal(SCHEMA_IDS.event),
+  id: z.string().min(1).max(128),
+  ts: isoTs,
+  asset,
+  severity,
+  sensor: z.string().optional().describe('The sensor the event is about; absent for the machine.'),
+  window: z.object({ start_index: count, end_index: count }).strict().describe('Sample-clock indices of the window that confirmed it.'),
+};
+export const watcherEventPayload = z
+  .discriminatedUnion(
+    'type',
+    WATCHER_EVENT_TYPES.map((type) => WATCHER_EVENT_FIELDS[type].extend({ ...watcherEnvelope, type: z.literal(type) })) as unknown as [z.ZodObject, ...z.ZodObject[]],
+  )
+  .describe('Watcher events (a subset of turnwise.event.v1), one shape per type.');
+
 export const livePayload = z
   .object({
     schema: z.literal(SCHEMA_IDS.live),
@@ -293,6 +311,7 @@ export const PAYLOAD_SCHEMAS: ReadonlyArray<readonly [string, z.ZodType]> = [
   ['event.v1.schema.json', eventPayload],
   ['event-advisory.v1.schema.json', advisoryEventPayload],
   ['event-outbox.v1.schema.json', outboxEventPayload],
+  ['event-watcher.v1.schema.json', watcherEventPayload],
   ['live.v1.schema.json', livePayload],
   ['cmd.v1.schema.json', commandPayload],
   ['cmd-reply.v1.schema.json', replyPayload],
