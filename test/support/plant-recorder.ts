@@ -266,11 +266,6 @@ export function receptance(sup: Support, w: number): Cx {
   return cdiv([1, 0], [k - sup.mass_kg * w * w, sup.mass_kg * 2 * sup.zeta * wn * w]);
 }
 
-/** Axis angle of a sensor, degrees in the direction of rotation from the tach pickup (where it physically is). */
-export function axisDeg(spec: PlantSpec, s: SensorSpec): number {
-  return spec.vertical_axis_deg + (s.direction === 'horizontal' ? 90 : 0) + (s.opposite_side ? 180 : 0);
-}
-
 function bearingShare(spec: PlantSpec, bearing: string, planeMm: number): number {
   const [b1, b2] = spec.bearings;
   const L = b2.position_mm - b1.position_mm;
