@@ -1,5 +1,5 @@
-import { describe, expect, it } from 'vitest';
-import { mkdtempSync } from 'node:fs';
+import { afterAll, describe, expect, it } from 'vitest';
+import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { runCli } from './support/cli.js';
@@ -165,6 +165,8 @@ const CASES: readonly Case[] = [
 ];
 
 const dir = mkdtempSync(join(tmpdir(), 'tw-realism-'));
+// About 6 MB per recording: leave nothing behind.
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
 const circDiff = (a: number, b: number): number => Math.abs(((a - b + 540) % 360) - 180);
 
 describe('realism corpus through turnwise analyze (own recorder physics, real CLI process)', () => {
