@@ -124,6 +124,39 @@ export const combineRequestSchema = z
 
 export type CombineRequest = z.infer<typeof combineRequestSchema>;
 
+export const fourRunSchema = z
+  .object({
+    angle_convention: convention.default('against_rotation'),
+    sensor: name.optional(),
+    amp_unit: z.string().max(16).optional(),
+    as_found: positive.describe('1x amplitude as found, job unit'),
+    trial_mass_g: positive,
+    radius_mm: positive.optional(),
+    speed_rpm: positive.optional(),
+    amp_scatter_pct: positive.max(50).optional(),
+    trials: z
+      .array(z.object({ angle_deg: finite, amp: finite.refine((x) => x >= 0, 'must be 0 or more') }).strict())
+      .min(3, 'needs the trial weight at three positions (with two, two mirror-image answers fit and the method cannot choose)')
+      .max(12, 'at most 12 trial positions'),
+    notes: z.string().max(2000).optional(),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    const angles = r.trials.map((t) => ((t.angle_deg % 360) + 360) % 360);
+    // Positions closer than 10 degrees are one position read twice: they add no geometry.
+    const distinct: number[] = [];
+    for (const a of angles) if (!distinct.some((b) => Math.min(Math.abs(a - b), 360 - Math.abs(a - b)) < 10)) distinct.push(a);
+    if (r.trials.length >= 3 && distinct.length < 3) {
+      ctx.addIssue({
+        code: 'custom',
+        path: ['trials'],
+        message: `the trial positions (${angles.map((a) => a.toFixed(0)).join(', ')} deg) give only ${distinct.length} distinct position(s) at least 10 deg apart; the method needs three, best spread round the rotor (0, 120, 240 deg)`,
+      });
+    }
+  });
+
+export type FourRunRequest = z.infer<typeof fourRunSchema>;
+
 const coefficientEntry = z.object({ amp_mm_s_pk_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
 export const storedCoefficientsSchema = z
   .object({
@@ -193,6 +226,10 @@ export function parseSplitRequest(raw: unknown, file = 'split'): SplitRequest {
 
 export function parseCombineRequest(raw: unknown, file = 'combine'): CombineRequest {
   return validate(combineRequestSchema, raw, file, 'combine request', 'fix the file; `turnwise help balance` shows the format');
+}
+
+export function parseFourRun(raw: unknown, file = 'four-run'): FourRunRequest {
+  return validate(fourRunSchema, raw, file, 'four-run request', 'fix the file; `turnwise help balance` shows the format of `balance four-run`');
 }
 
 export function parseStoredCoefficients(raw: unknown, file = 'coefficients'): StoredCoefficients {

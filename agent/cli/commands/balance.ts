@@ -4,9 +4,10 @@ import type { Config } from '../../config/schema.js';
 import { UserError } from '../../errors.js';
 import { conventionText } from '../../balance/conventions.js';
 import type { BalanceJob, Issue } from '../../balance/job.js';
-import { parseBalanceJob, parseCombineRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import { parseBalanceJob, parseCombineRequest, parseFourRun, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import { solveFourRun } from '../../balance/four-run.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
-import { balancingCautions, cautionBlock, conventionLine, fixed, formatSolveReport, formatSplitReport } from '../../balance/report.js';
+import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
 import { solveBalanceJob } from '../../balance/solve.js';
 import { checkJobId, FileBalanceStore, newJobId, type BalanceJobRecord } from '../../balance/store.js';
 import {
@@ -37,6 +38,17 @@ const usage = `turnwise balance SUB-COMMAND ...   (influence-coefficient balanci
       given too. --save records the job under <state_dir>/balance/jobs/ and its influence
       coefficients in <state_dir>/balance/coefficients.json (state_dir from --state-dir or --config).
       Exit 0 solved, 2 bad input, 3 the job cannot be solved (the reason is printed; no numbers).
+
+  four-run FOUR.json [--json]
+      Amplitude-only balancing in one plane (no phase reference: the tach is missing or failed):
+      as found, then one trial weight at three (or more) positions in turn. FOUR.json:
+        {"as_found": 10.0, "trial_mass_g": 50, "angle_convention": "against_rotation",
+         "trials": [{"angle_deg": 0, "amp": 7.0}, {"angle_deg": 120, "amp": 12.0},
+                    {"angle_deg": 240, "amp": 18.0}]}
+      Optional: "amp_unit", "sensor", "radius_mm", "speed_rpm", "amp_scatter_pct" (default 5).
+      Gives the correction (trial weight removed), its uncertainty, the trial effect and how far
+      the circles miss one point (least squares). Exit 0 solved, 2 bad input, 3 the readings do
+      not fix the weight (the reason is printed; no numbers).
 
   split SPLIT.json [--json]
       Splits a weight onto fixed positions (blades, holes) by the law of sines, first moving it to
@@ -209,6 +221,20 @@ async function solve(argv: string[]): Promise<number> {
   return 0;
 }
 
+async function fourRun(argv: string[]): Promise<number> {
+  const { values, positionals } = args('four-run', argv, { json: { type: 'boolean' } });
+  const file = singleFile('four-run', positionals, 'four-run request');
+  const req = parseFourRun(readJsonFile(file, 'four-run request'), file);
+  const result = solveFourRun(req);
+  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
+  else out(formatFourRunReport(result) + '\n' + cautionBlock());
+  if (!result.ok) {
+    if (!values.json) process.stderr.write(`turnwise balance four-run: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    return EXIT_UNSOLVABLE;
+  }
+  return 0;
+}
+
 async function split(argv: string[]): Promise<number> {
   const { values, positionals } = args('split', argv, { json: { type: 'boolean' } });
   const file = singleFile('split', positionals, 'split request');
@@ -236,12 +262,13 @@ async function combine(argv: string[]): Promise<number> {
   const req = parseCombineRequest(readJsonFile(file, 'combine request'), file);
   const w = combineWeights(req.weights, req.to_radius_mm);
   const result = { angle_convention: req.angle_convention, convention: conventionText(req.angle_convention), ...w, ...(req.to_radius_mm !== undefined ? { radius_mm: req.to_radius_mm } : {}) };
-  if (values.json) out(jsonText(result));
+  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else {
     out(
       `${conventionLine(req.angle_convention)}\n${req.weights.length} weight(s) act as one weight of ${fixed(w.mass_g, 2)} g at ${fixed(w.angle_deg, 1)} deg` +
         (req.to_radius_mm !== undefined ? ` at radius ${fixed(req.to_radius_mm, 1)} mm` : '') +
-        '.\n',
+        '.\n\n' +
+        cautionBlock(),
     );
   }
   return 0;
@@ -365,6 +392,7 @@ async function exportJob(argv: string[]): Promise<number> {
 
 const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
   solve,
+  'four-run': fourRun,
   split,
   combine,
   'trial-weight': trialWeight,
@@ -375,7 +403,7 @@ const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
 
 export const balanceCommand: Command = {
   name: 'balance',
-  summary: 'influence-coefficient balancing: solve a job, split or combine weights, trial weight, ISO 21940-11 check',
+  summary: 'balancing: solve a job, amplitude-only four-run, split or combine weights, trial weight, ISO 21940-11 check',
   usage,
   async run(argv) {
     const [sub, ...rest] = argv;

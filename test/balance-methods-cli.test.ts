@@ -1,0 +1,85 @@
+/**
+ * The balancing-method commands of docs/balancing-methods.md through the compiled CLI
+ * (dist/agent/cli/main.js, built by `npm run build`) as a real process.
+ */
+import { beforeAll, describe, expect, it } from 'vitest';
+import { spawnSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, statSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+
+const CLI = 'dist/agent/cli/main.js';
+
+beforeAll(() => {
+  if (!existsSync(CLI)) throw new Error(`${CLI} is missing: run \`npm run build\` first`);
+  const sources = [...readdirSync('agent/balance').map((f) => join('agent/balance', f)), 'agent/cli/commands/balance.ts', 'agent/cli/commands/zone.ts'];
+  for (const src of sources.filter((f) => f.endsWith('.ts') && existsSync(f))) {
+    const js = join('dist', src.replace(/\.ts$/, '.js'));
+    if (!existsSync(js) || statSync(js).mtimeMs < statSync(src).mtimeMs) throw new Error(`${js} is older than ${src}: run \`npm run build\` first`);
+  }
+});
+
+function cli(args: string[]): { code: number; stdout: string; stderr: string } {
+  const r = spawnSync(process.execPath, [CLI, ...args], { encoding: 'utf8' });
+  return { code: r.status ?? -1, stdout: r.stdout, stderr: r.stderr };
+}
+
+function file(name: string, content: unknown): string {
+  const dir = mkdtempSync(join(tmpdir(), 'tw-bal-methods-'));
+  const f = join(dir, name);
+  writeFileSync(f, typeof content === 'string' ? content : JSON.stringify(content, null, 2));
+  return f;
+}
+
+const CAUTION_WORDS = [/Watch the vibration during every trial and check run/, /draft of other fans/, /confined-space entry/, /reference mark is work on the machine/, /fan maker/];
+
+describe('turnwise balance four-run', () => {
+  // the input of the issue (also the example of D. Shreve, "Balancing Without Phase", Reliabilityweb.com)
+  const four = { as_found: 10.0, trial_mass_g: 50, trials: [{ angle_deg: 0, amp: 7.0 }, { angle_deg: 120, amp: 12.0 }, { angle_deg: 240, amp: 18.0 }], angle_convention: 'against_rotation' };
+
+  it('--json: correction, trial effect, fit residual, convention and the cautions', () => {
+    const r = cli(['balance', 'four-run', file('four.json', four), '--json']);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    const out = JSON.parse(r.stdout);
+    // own computation (scipy.optimize.least_squares, test/balance-four-run.test.ts): 59.26 g at 41.66 deg
+    expect(out.correction.mass_g).toBeCloseTo(59.26, 1);
+    expect(out.correction.angle_deg).toBeCloseTo(41.66, 1);
+    expect(out.trial_effect.amp).toBeCloseTo(8.44, 2);
+    expect(out.fit_residual.rms_amp).toBeGreaterThan(0.1);
+    expect(out.convention).toContain('AGAINST rotation');
+    for (const w of CAUTION_WORDS) expect(out.cautions.join(' ')).toMatch(w);
+  });
+
+  it('table mode prints the correction with its uncertainty and the safety block', () => {
+    const r = cli(['balance', 'four-run', file('four.json', four)]);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/Correction to fit, with the trial weight REMOVED/);
+    expect(r.stdout).toMatch(/\+\/- g/);
+    for (const w of CAUTION_WORDS) expect(r.stdout).toMatch(w);
+  });
+
+  it('amplitudes that do not move: exit 3, no numbers, the reason on stderr', () => {
+    const r = cli(['balance', 'four-run', file('four.json', { ...four, trials: [{ angle_deg: 0, amp: 10.1 }, { angle_deg: 120, amp: 9.8 }, { angle_deg: 240, amp: 10.0 }] }), '--json']);
+    expect(r.code).toBe(3);
+    const out = JSON.parse(r.stdout);
+    expect(out.correction).toBeNull();
+    expect(out.problems[0].code).toBe('trial_no_effect');
+  });
+
+  it('a bad file names the JSON path (exit 2)', () => {
+    const r = cli(['balance', 'four-run', file('four.json', { ...four, trials: four.trials.slice(0, 2) })]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/four\.json: trials: needs the trial weight at three positions/);
+  });
+});
+
+describe('cautions on every output that gives a weight to fit', () => {
+  it('balance combine carries them too', () => {
+    const r = cli(['balance', 'combine', file('c.json', { weights: [{ mass_g: 20, angle_deg: 0 }, { mass_g: 20, angle_deg: 90 }] }), '--json']);
+    expect(r.code).toBe(0);
+    for (const w of CAUTION_WORDS) expect(JSON.parse(r.stdout).cautions.join(' ')).toMatch(w);
+    const t = cli(['balance', 'combine', file('c.json', { weights: [{ mass_g: 20, angle_deg: 0 }] })]);
+    expect(t.stdout).toMatch(/SAFETY/);
+  });
+});
