@@ -83,3 +83,42 @@ describe('cautions on every output that gives a weight to fit', () => {
     expect(t.stdout).toMatch(/SAFETY/);
   });
 });
+
+describe('turnwise zone', () => {
+  it('ISO 20816-3 group 1 rigid: 4.6 mm/s is zone C (B/C 4.5, C/D 7.1: ISO 20816-3 as in the field notes, section 3)', () => {
+    const r = cli(['zone', '--mm-s', '4.6', '--group', '1', '--support', 'rigid', '--json']);
+    expect(r.code).toBe(0);
+    const out = JSON.parse(r.stdout);
+    expect(out.zone).toBe('C');
+    expect(out.boundaries.map((b: { value_mm_s: number }) => b.value_mm_s)).toEqual([2.3, 4.5, 7.1]);
+    expect(out.boundaries[1].source).toMatch(/ISO 20816-3 group 1, rigid support/);
+  });
+
+  it('a value on a boundary belongs to the zone below; group 2 flexible; readable lines name each boundary and source', () => {
+    expect(JSON.parse(cli(['zone', '--mm-s', '4.5', '--group', '2', '--support', 'flexible', '--json']).stdout).zone).toBe('B');
+    const t = cli(['zone', '--mm-s', '7.2', '--group', '2', '--support', 'flexible']);
+    expect(t.stdout).toMatch(/zone D of ISO 20816-3 group 2, flexible support/);
+    expect(t.stdout).toMatch(/C\/D\s+7\.1 mm\/s r\.m\.s\.\s+passed\s+source: ISO 20816-3/);
+  });
+
+  it('ISO 14694 BV-3 rigid (from memory: start-up 4.5, alarm 7.1, shut-down 9.0): 8 mm/s is above alarm', () => {
+    const out = JSON.parse(cli(['zone', '--mm-s', '8', '--fan-category', 'BV-3', '--support', 'rigid', '--json']).stdout);
+    expect(out.standard).toBe('ISO 14694');
+    expect(out.zone).toBe('C');
+    expect(out.boundaries.map((b: { value_mm_s: number }) => b.value_mm_s)).toEqual([4.5, 7.1, 9.0]);
+    expect(out.basis).toMatch(/from memory/);
+  });
+
+  it('missing or wrong options say what to give', () => {
+    const a = cli(['zone', '--mm-s', '4', '--support', 'rigid']);
+    expect(a.code).toBe(2);
+    expect(a.stderr).toMatch(/--group: is required/);
+    const b = cli(['zone', '--mm-s', 'fast', '--group', '1', '--support', 'rigid']);
+    expect(b.code).toBe(2);
+    expect(b.stderr).toMatch(/--mm-s/);
+    const c = cli(['zone', '--mm-s', '4', '--group', '1']);
+    expect(c.stderr).toMatch(/--support: is required/);
+    const d = cli(['zone', '--mm-s', '4', '--fan-category', 'BV-9', '--support', 'rigid']);
+    expect(d.stderr).toMatch(/expected one of BV-3, BV-4/);
+  });
+});

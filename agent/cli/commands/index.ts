@@ -11,6 +11,7 @@ import { probeSerialCommand } from './probe-serial.js';
 import { runCommand } from './run.js';
 import { simBoardCommand } from './sim-board.js';
 import { simulateCommand } from './simulate.js';
+import { zoneCommand } from './zone.js';
 
 /** Every sub-command, in the order `turnwise help` lists them. */
-export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, demoCommand, liveCommand, mqttCommand, outputsOffCommand, probeSerialCommand, runCommand, simBoardCommand, simulateCommand];
+export const commands: readonly Command[] = [analyzeCommand, balanceCommand, checkConfigCommand, conditionCommand, demoCommand, liveCommand, mqttCommand, outputsOffCommand, probeSerialCommand, runCommand, simBoardCommand, simulateCommand, zoneCommand];
