@@ -122,3 +122,23 @@ describe('turnwise zone', () => {
     expect(d.stderr).toMatch(/expected one of BV-3, BV-4/);
   });
 });
+
+describe('turnwise balance split between holes', () => {
+  it('two holes at given angles, after moving the weight to their radius; cautions included', () => {
+    const r = cli(['balance', 'split', file('s.json', { mass_g: 62.4, angle_deg: 250, radius_mm: 355.6, holes: { angles_deg: [235, 290], radius_mm: 406.4 } }), '--json']);
+    expect(r.code).toBe(0);
+    const out = JSON.parse(r.stdout);
+    const moved = (62.4 * 355.6) / 406.4; // own computation
+    expect(out.moved_mass_g).toBeCloseTo(moved, 3);
+    expect(out.weights[0]).toMatchObject({ position: 0, angle_deg: 235 });
+    expect(out.weights[0].mass_g).toBeCloseTo((moved * Math.sin((40 * Math.PI) / 180)) / Math.sin((55 * Math.PI) / 180), 3);
+    for (const w of CAUTION_WORDS) expect(out.cautions.join(' ')).toMatch(w);
+  });
+
+  it('holes 180 deg apart: exit 2 naming the file, the key and what to do', () => {
+    const r = cli(['balance', 'split', file('s.json', { mass_g: 30, angle_deg: 100, holes: { angles_deg: [10, 190] } })]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/s\.json: holes\.angles_deg: the holes either side of 100\.0 deg \(10\.0 and 190\.0 deg\) are 180 deg apart/);
+    expect(r.stderr).toMatch(/-> use a hole between them/);
+  });
+});

@@ -109,6 +109,29 @@ export const splitRequestSchema = z
 
 export type SplitRequest = z.infer<typeof splitRequestSchema>;
 
+/** A split between holes at given angles (any spacing): two holes, or a list to pick the nearest two from. */
+export const splitHolesRequestSchema = z
+  .object({
+    angle_convention: convention.default('against_rotation'),
+    mass_g: positive,
+    angle_deg: finite,
+    radius_mm: positive.optional(),
+    holes: z
+      .object({
+        angles_deg: z.array(finite).min(2, 'needs at least two hole angles').max(360),
+        radius_mm: positive.optional(),
+      })
+      .strict(),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    if ((r.radius_mm === undefined) !== (r.holes.radius_mm === undefined)) {
+      ctx.addIssue({ code: 'custom', path: [r.radius_mm === undefined ? 'radius_mm' : 'holes'], message: "give both radius_mm and holes.radius_mm (to move the weight to the holes' radius), or neither" });
+    }
+  });
+
+export type SplitHolesRequest = z.infer<typeof splitHolesRequestSchema>;
+
 export const combineRequestSchema = z
   .object({
     angle_convention: convention.default('against_rotation'),
@@ -222,6 +245,10 @@ export function parseBalanceJob(raw: unknown, file = 'job'): BalanceJob {
 
 export function parseSplitRequest(raw: unknown, file = 'split'): SplitRequest {
   return validate(splitRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
+}
+
+export function parseSplitHolesRequest(raw: unknown, file = 'split'): SplitHolesRequest {
+  return validate(splitHolesRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
 }
 
 export function parseCombineRequest(raw: unknown, file = 'combine'): CombineRequest {

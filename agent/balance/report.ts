@@ -149,10 +149,10 @@ export function formatSplitReport(s: {
   radius_mm: number | null;
   positions_radius_mm: number | null;
   weights: readonly SplitPart[];
-}): string {
+}, numbering = 'Positions are numbered from 0 at first_deg, counting in the direction the angles are measured.'): string {
   const out: string[] = [];
   out.push(conventionLine(s.angle_convention));
-  out.push('Positions are numbered from 0 at first_deg, counting in the direction the angles are measured.');
+  out.push(numbering);
   out.push(`Weight: ${fixed(s.mass_g, 1)} g at ${fixed(s.angle_deg, 1)} deg` + (s.radius_mm !== null ? `, radius ${fixed(s.radius_mm, 1)} mm` : ''));
   if (s.radius_mm !== null && s.positions_radius_mm !== null && s.radius_mm !== s.positions_radius_mm) {
     out.push(`Moved to the positions' radius ${fixed(s.positions_radius_mm, 1)} mm: ${fixed(s.moved_mass_g, 2)} g (mass x ${fixed(s.radius_mm, 1)} / ${fixed(s.positions_radius_mm, 1)}).`);

@@ -4,7 +4,7 @@ import type { Config } from '../../config/schema.js';
 import { UserError } from '../../errors.js';
 import { conventionText } from '../../balance/conventions.js';
 import type { BalanceJob, Issue } from '../../balance/job.js';
-import { parseBalanceJob, parseCombineRequest, parseFourRun, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import { parseBalanceJob, parseCombineRequest, parseFourRun, parseSplitHolesRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
 import { solveFourRun } from '../../balance/four-run.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
 import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
@@ -16,6 +16,8 @@ import {
   moveToRadius,
   parseGrade,
   permissibleUnbalanceGmm,
+  splitBetweenHoles,
+  SplitRefused,
   splitOntoPositions,
   STANDARD_GRAVITY,
   suggestTrialMassG,
@@ -56,6 +58,11 @@ const usage = `turnwise balance SUB-COMMAND ...   (influence-coefficient balanci
         {"mass_g": 62.4, "angle_deg": 250, "radius_mm": 355.6,
          "positions": {"count": 9, "first_deg": 0, "radius_mm": 406.4}}
       Positions are numbered from 0 at first_deg, counting in the direction angles are measured.
+      Holes at any angles instead of equally spaced positions:
+        {"mass_g": 62.4, "angle_deg": 250, "holes": {"angles_deg": [235, 290]}}
+      two holes are used as given; with a longer list the two nearest either side of the weight.
+      Refused (exit 2, with what to do): holes 180 deg apart, or no two holes either side of the
+      weight less than 180 deg apart.
 
   combine COMBINE.json [--json]
       Several weights in one plane as one: {"weights": [{"mass_g": 20, "angle_deg": 10}, ...]}
@@ -235,10 +242,50 @@ async function fourRun(argv: string[]): Promise<number> {
   return 0;
 }
 
+async function splitHoles(raw: unknown, file: string, json: boolean): Promise<number> {
+  const req = parseSplitHolesRequest(raw, file);
+  const moved = req.radius_mm !== undefined && req.holes.radius_mm !== undefined ? moveToRadius(req.mass_g, req.radius_mm, req.holes.radius_mm) : req.mass_g;
+  let split;
+  try {
+    split = splitBetweenHoles(moved, req.angle_deg, req.holes.angles_deg);
+  } catch (e) {
+    if (e instanceof SplitRefused) throw new UserError(`${file}: holes.angles_deg`, e.message, e.hint);
+    throw e;
+  }
+  const summary = {
+    angle_convention: req.angle_convention,
+    convention: conventionText(req.angle_convention),
+    mass_g: req.mass_g,
+    angle_deg: req.angle_deg,
+    radius_mm: req.radius_mm ?? null,
+    positions_radius_mm: req.holes.radius_mm ?? null,
+    moved_mass_g: moved,
+    weights: split.weights,
+    total_mass_g: split.total_mass_g,
+    gap_deg: split.gap_deg,
+    warnings: split.warnings,
+  };
+  if (json) out(jsonText({ ...summary, cautions: balancingCautions() }));
+  else {
+    out(
+      formatSplitReport(summary, 'Holes are numbered 0, 1, ... in the order holes.angles_deg lists them.') +
+        `  parts add up to ${fixed(split.total_mass_g, 2)} g` +
+        (split.gap_deg > 0 ? ` (holes ${fixed(split.gap_deg, 1)} deg apart)` : '') +
+        '\n' +
+        split.warnings.map((w) => `Warning: ${w.message}\n  -> ${w.hint}\n`).join('') +
+        '\n' +
+        cautionBlock(),
+    );
+  }
+  return 0;
+}
+
 async function split(argv: string[]): Promise<number> {
   const { values, positionals } = args('split', argv, { json: { type: 'boolean' } });
   const file = singleFile('split', positionals, 'split request');
-  const req = parseSplitRequest(readJsonFile(file, 'split request'), file);
+  const raw = readJsonFile(file, 'split request');
+  if (raw !== null && typeof raw === 'object' && 'holes' in raw) return splitHoles(raw, file, values.json === true);
+  const req = parseSplitRequest(raw, file);
   const moved = req.radius_mm !== undefined && req.positions.radius_mm !== undefined ? moveToRadius(req.mass_g, req.radius_mm, req.positions.radius_mm) : req.mass_g;
   const weights = splitOntoPositions(moved, req.angle_deg, req.positions);
   const summary = {
