@@ -142,3 +142,23 @@ describe('turnwise balance split between holes', () => {
     expect(r.stderr).toMatch(/-> use a hole between them/);
   });
 });
+
+describe('turnwise balance check-grade with the rotor geometry', () => {
+  it('allocates U_per to the planes (ISO 21940-11, from memory) and says so', () => {
+    const r = cli(['balance', 'check-grade', '--rotor-kg', '850', '--speed-rpm', '1485', '--grade', 'G6.3', '--bearings-mm', '0,1400', '--com-mm', '500', '--planes-mm', '300,1100', '--json']);
+    expect(r.code).toBe(0);
+    const out = JSON.parse(r.stdout);
+    expect(out.allocation.by_plane_g_mm.I / out.permissible_g_mm).toBeCloseTo(900 / 1400, 4);
+    expect(out.allocation.basis).toMatch(/ISO 21940-11, from memory/);
+  });
+
+  it('centre of mass outside the bearings of a centre-hung rotor: the warning and the fallback, in words', () => {
+    const r = cli(['balance', 'check-grade', '--rotor-kg', '850', '--speed-rpm', '1485', '--grade', 'G6.3', '--bearings-mm', '0,1400', '--com-mm', '1600', '--planes-mm', '300,1100']);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/Warning: the centre of mass at 1600 mm lies outside the bearings/);
+    expect(r.stdout).toMatch(/shared equally between the planes instead \(fallback\)/);
+    const partial = cli(['balance', 'check-grade', '--rotor-kg', '850', '--speed-rpm', '1485', '--grade', 'G6.3', '--com-mm', '500']);
+    expect(partial.code).toBe(2);
+    expect(partial.stderr).toMatch(/missing --bearings-mm, --planes-mm/);
+  });
+});

@@ -1,5 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { combineWeights, moveToRadius, splitBetweenHoles, SplitRefused } from '../agent/balance/weights.js';
+import { allocatePermissible, type RotorGeometry } from '../agent/balance/allocation.js';
+import { solveBalanceJob } from '../agent/balance/solve.js';
+import { combineWeights, moveToRadius, permissibleUnbalanceGmm, splitBetweenHoles, SplitRefused } from '../agent/balance/weights.js';
+import { measure, type RigMass, twoBearingRig } from './balance-rig.js';
 
 const D2R = Math.PI / 180;
 
@@ -70,5 +73,94 @@ describe('split between holes at any angles (law of sines)', () => {
     const list = refusal(() => splitBetweenHoles(30, 200, [0, 40, 90]));
     expect(list.code).toBe('not_between');
     expect(refusal(() => splitBetweenHoles(30, 200, [50, 50])).code).toBe('holes_coincide');
+  });
+});
+
+describe('ISO 21940-11 allocation of U_per to the planes (from memory; hand computations)', () => {
+  const geo = (com: number, planes: [number, number], rotor: RotorGeometry['rotor'] = 'centre_hung'): RotorGeometry => ({ rotor, bearing_a_mm: 0, bearing_b_mm: 1400, centre_of_mass_mm: com, planes_mm: { P1: planes[0], P2: planes[1] } });
+
+  it('symmetric rotor: the allocation gives the equal split', () => {
+    const a = allocatePermissible(10000, ['P1', 'P2'], geo(700, [300, 1100]));
+    expect(a.method).toBe('iso21940_11_bearing_planes');
+    expect(a.by_plane_g_mm).toEqual({ P1: 5000, P2: 5000 });
+  });
+
+  it('centre of mass 500 mm from bearing A of a 1400 mm span: A gets 900/1400, B 500/1400 (U_per,A = U_per L_B / L)', () => {
+    const a = allocatePermissible(10000, ['P1', 'P2'], geo(500, [300, 1100]));
+    expect(a.bearing_planes_g_mm!.A).toBeCloseTo((10000 * 900) / 1400, 9);
+    expect(a.by_plane_g_mm.P1).toBeCloseTo(6428.57, 2);
+    expect(a.by_plane_g_mm.P2).toBeCloseTo(3571.43, 2);
+    expect(a.basis).toMatch(/from memory/);
+    // the planes may be listed the other way round: the one nearer bearing A still gets U_per,A
+    const b = allocatePermissible(10000, ['P1', 'P2'], { ...geo(500, [1100, 300]) });
+    expect(b.by_plane_g_mm.P2).toBeCloseTo(6428.57, 2);
+  });
+
+  it('each bearing share is kept within 0.3-0.7 of U_per', () => {
+    const a = allocatePermissible(10000, ['P1', 'P2'], geo(100, [300, 1100]));
+    expect(a.by_plane_g_mm.P1).toBeCloseTo(7000, 9);
+    expect(a.by_plane_g_mm.P2).toBeCloseTo(3000, 9);
+    expect(a.warnings.map((w) => w.code)).toEqual(['share_bounded']);
+  });
+
+  it('planes close together: a conservative transfer, labelled own derivation', () => {
+    // planes at 600 and 800 (200 mm apart < 1400/3); U_A = 10000 x 900/1400 at com 500.
+    // a = (1400 - z)/1400: 800/1400 + 600/1400 = 1; b = z/1400: 600/1400 + 800/1400 = 1
+    // u = min(U_A / 1, U_B / 1) = U_B = 3571.4 g mm in each plane (own computation)
+    const a = allocatePermissible(10000, ['P1', 'P2'], geo(500, [600, 800]));
+    expect(a.method).toBe('iso21940_11_with_conservative_transfer');
+    expect(a.by_plane_g_mm.P1).toBeCloseTo((10000 * 500) / 1400, 9);
+    expect(a.by_plane_g_mm.P2).toBeCloseTo((10000 * 500) / 1400, 9);
+    expect(a.basis).toMatch(/own derivation/);
+  });
+
+  it('centre of mass outside the bearings of a centre-hung rotor: a warning with what to do, and only the stated fallback', () => {
+    const a = allocatePermissible(10000, ['P1', 'P2'], geo(1600, [300, 1100]));
+    expect(a.method).toBe('equal_split_fallback');
+    expect(a.by_plane_g_mm).toEqual({ P1: 5000, P2: 5000 });
+    expect(a.warnings[0]!.code).toBe('com_outside_bearings');
+    expect(a.warnings[0]!.hint).toMatch(/overhung/);
+    const o = allocatePermissible(10000, ['P1', 'P2'], geo(1600, [1500, 1700], 'overhung'));
+    expect(o.method).toBe('equal_split_fallback');
+    expect(o.warnings[0]!.code).toBe('overhung_rules');
+  });
+
+  it('no geometry: the equal split, stated as the fallback; one plane takes all', () => {
+    const a = allocatePermissible(10000, ['P1', 'P2']);
+    expect(a.method).toBe('equal_split_fallback');
+    expect(a.basis).toMatch(/fallback/);
+    expect(allocatePermissible(10000, ['P1']).by_plane_g_mm).toEqual({ P1: 10000 });
+  });
+
+  it('the solver judges the last run against each plane\'s allocated share, not the equal split', () => {
+    const rig = twoBearingRig('ccw');
+    // residual unbalance after balancing: 50 g at 120 mm in P1 = 6000 g mm, 10 g in P2 = 1200 g mm
+    const U: RigMass[] = [
+      { plane: 0, mass_g: 50, angle_deg: 40, convention: 'against_rotation' },
+      { plane: 1, mass_g: 10, angle_deg: 200, convention: 'against_rotation' },
+    ];
+    const t = (plane: number): RigMass => ({ plane, mass_g: 40, angle_deg: 0, convention: 'against_rotation' });
+    const job = {
+      angle_convention: 'against_rotation' as const,
+      planes: ['P1', 'P2'],
+      radius_mm: { P1: 120, P2: 120 },
+      rotor_mass_kg: 250,
+      grade_mm_s: 6.3,
+      runs: [
+        { speed_rpm: 1485, weights: [], readings: measure(rig, U) },
+        { speed_rpm: 1485, weights: [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], readings: measure(rig, [...U, t(0)]) },
+        { speed_rpm: 1485, weights: [{ plane: 'P2', mass_g: 40, angle_deg: 0 }], readings: measure(rig, [...U, t(1)]) },
+        { speed_rpm: 1485, weights: [], readings: measure(rig, U) },
+      ],
+    };
+    const per = permissibleUnbalanceGmm(6.3, 250, 1485); // about 10 128 g mm
+    const equal = solveBalanceJob(job);
+    expect(equal.unbalance!.allocation!.method).toBe('equal_split_fallback');
+    expect(equal.unbalance!.last_run_g_mm.P1).toBeCloseTo(6000, 3);
+    expect(equal.unbalance!.last_run_within_grade).toBe(false); // 6000 > per / 2
+    // centre of mass near P1's bearing: P1 may keep 0.7 x U_per = 7090 g mm, P2 0.3 x U_per = 3038
+    const near = solveBalanceJob({ ...job, geometry: { rotor: 'centre_hung', bearing_a_mm: 0, bearing_b_mm: 1000, centre_of_mass_mm: 250, planes_mm: { P1: 150, P2: 850 } } });
+    expect(near.unbalance!.permissible_by_plane_g_mm!.P1).toBeCloseTo(0.7 * per, 6);
+    expect(near.unbalance!.last_run_within_grade).toBe(true);
   });
 });

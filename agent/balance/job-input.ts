@@ -25,6 +25,16 @@ const runSchema = z
   })
   .strict();
 const coefficientSchema = z.object({ amp_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
+export const rotorGeometrySchema = z
+  .object({
+    rotor: z.enum(['centre_hung', 'overhung']),
+    bearing_a_mm: finite,
+    bearing_b_mm: finite,
+    centre_of_mass_mm: finite,
+    planes_mm: z.record(name, finite),
+  })
+  .strict()
+  .describe('Axial positions along the shaft from one datum, mm: the two bearings, the centre of mass and every correction plane.');
 
 export const balanceJobSchema = z
   .object({
@@ -40,10 +50,15 @@ export const balanceJobSchema = z
     grade_mm_s: positive.optional(),
     influence_coefficients: z.record(name, z.record(name, coefficientSchema)).optional(),
     coefficients_speed_rpm: positive.optional(),
+    geometry: rotorGeometrySchema.optional(),
     notes: z.string().max(2000).optional(),
   })
   .strict()
   .superRefine((job, ctx) => {
+    if (job.geometry) {
+      for (const p of job.planes) if (job.geometry.planes_mm[p] === undefined) ctx.addIssue({ code: 'custom', path: ['geometry', 'planes_mm'], message: `no axial position for plane "${p}"` });
+      for (const p of Object.keys(job.geometry.planes_mm)) if (!job.planes.includes(p)) ctx.addIssue({ code: 'custom', path: ['geometry', 'planes_mm', p], message: `"${p}" is not one of the planes` });
+    }
     const planes = new Set<string>();
     job.planes.forEach((p, i) => {
       if (planes.has(p)) ctx.addIssue({ code: 'custom', path: ['planes', i], message: `plane "${p}" is listed twice` });

@@ -129,11 +129,14 @@ export function formatSolveReport(r: BalanceResult): string {
     const u = r.unbalance;
     out.push('\nUnbalance estimated from the vibration through the influence coefficients (g mm):');
     out.push(table(['plane', 'as found', 'at last run'], r.planes.map((p) => [p, fixed(u.as_found_g_mm[p]!, 0), fixed(u.last_run_g_mm[p]!, 0)])));
-    if (u.permissible_g_mm !== null) {
+    if (u.permissible_g_mm !== null && u.allocation) {
+      const a = u.allocation;
       out.push(
-        `  ISO 21940-11 permissible residual unbalance ${fixed(u.permissible_g_mm, 0)} g mm for the rotor, ${fixed(u.permissible_per_plane_g_mm!, 0)} g mm per plane if shared equally: ` +
-          `last run ${u.last_run_within_grade ? 'WITHIN' : 'NOT within'} the grade.`,
+        `  ISO 21940-11 permissible residual unbalance ${fixed(u.permissible_g_mm, 0)} g mm for the rotor; per plane ` +
+          r.planes.map((p) => `${p} ${fixed(a.by_plane_g_mm[p]!, 0)}`).join(', ') +
+          ` g mm: last run ${u.last_run_within_grade ? 'WITHIN' : 'NOT within'} the grade.`,
       );
+      out.push(`  allocation: ${a.basis}`);
     }
   }
   out.push('');

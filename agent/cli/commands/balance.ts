@@ -6,6 +6,7 @@ import { conventionText } from '../../balance/conventions.js';
 import type { BalanceJob, Issue } from '../../balance/job.js';
 import { parseBalanceJob, parseCombineRequest, parseFourRun, parseSplitHolesRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
 import { solveFourRun } from '../../balance/four-run.js';
+import { allocatePermissible, type RotorGeometry } from '../../balance/allocation.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
 import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
 import { solveBalanceJob } from '../../balance/solve.js';
@@ -74,8 +75,13 @@ const usage = `turnwise balance SUB-COMMAND ...   (influence-coefficient balanci
       m_t = F * M_b * g / (r * omega^2) (rule of thumb, common practice).
 
   check-grade --rotor-kg KG --speed-rpm RPM --grade G [--residual-g-mm U] [--planes N] [--json]
+              [--bearings-mm A,B --com-mm X --planes-mm I,II [--rotor centre-hung|overhung]]
       ISO 21940-11 permissible residual unbalance U_per = 9549 * G * m / n (g mm; G mm/s, m kg,
-      n r/min), optionally compared with a residual unbalance.
+      n r/min), optionally compared with a residual unbalance. With the rotor geometry (axial
+      positions from one datum, mm) U_per is allocated to the two planes as ISO 21940-11 describes
+      (from memory); without it, shared equally (fallback). A job file takes the same geometry as
+      "geometry": {"rotor": "centre_hung", "bearing_a_mm": 0, "bearing_b_mm": 1400,
+      "centre_of_mass_mm": 650, "planes_mm": {"P1": 450, "P2": 950}}.
 
   jobs [--state-dir DIR | --config FILE] [--json]      list recorded jobs
   export JOB_ID [--state-dir DIR | --config FILE]      print a recorded job as JSON
@@ -379,6 +385,10 @@ async function checkGrade(argv: string[]): Promise<number> {
     grade: { type: 'string' },
     'residual-g-mm': { type: 'string' },
     planes: { type: 'string' },
+    'bearings-mm': { type: 'string' },
+    'com-mm': { type: 'string' },
+    'planes-mm': { type: 'string' },
+    rotor: { type: 'string' },
     json: { type: 'boolean' },
   });
   if (positionals.length) throw new UserError(sub, `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
@@ -389,8 +399,28 @@ async function checkGrade(argv: string[]): Promise<number> {
   if (!(grade > 0)) throw new UserError(sub, `--grade "${values.grade}" is not a balance quality grade`, 'write it as G6.3 or 6.3 (mm/s)');
   const residual = num(sub, 'residual-g-mm', values['residual-g-mm']);
   if (residual !== undefined && residual < 0) throw new UserError(sub, '--residual-g-mm must be 0 or more', 'give the residual unbalance magnitude in g mm');
-  const planes = num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1;
+  const geometryFlags = ['bearings-mm', 'com-mm', 'planes-mm'] as const;
+  const given = geometryFlags.filter((f) => values[f] !== undefined);
+  let geometry: RotorGeometry | undefined;
+  if (given.length) {
+    if (given.length !== geometryFlags.length) {
+      throw new UserError(sub, `the rotor geometry needs all of --bearings-mm, --com-mm and --planes-mm (missing ${geometryFlags.filter((f) => values[f] === undefined).map((f) => `--${f}`).join(', ')})`, 'axial positions from one datum, mm, e.g. --bearings-mm 0,1400 --com-mm 650 --planes-mm 450,950');
+    }
+    const pair = (flag: string, v: string): [number, number] => {
+      const xs = v.split(',').map((x) => Number(x.trim()));
+      if (xs.length !== 2 || !xs.every(Number.isFinite)) throw new UserError(sub, `--${flag} must be two positions in mm separated by a comma (found "${v}")`, `e.g. --${flag} 0,1400`);
+      return [xs[0]!, xs[1]!];
+    };
+    const [ba, bb] = pair('bearings-mm', values['bearings-mm']!);
+    const [p1, p2] = pair('planes-mm', values['planes-mm']!);
+    const rotor = values.rotor ?? 'centre-hung';
+    if (rotor !== 'centre-hung' && rotor !== 'overhung') throw new UserError(sub, `--rotor must be centre-hung or overhung (found "${rotor}")`, 'centre-hung: impeller between the bearings; overhung: impeller outboard of both');
+    geometry = { rotor: rotor === 'overhung' ? 'overhung' : 'centre_hung', bearing_a_mm: ba, bearing_b_mm: bb, centre_of_mass_mm: num(sub, 'com-mm', values['com-mm'], { required: true })!, planes_mm: { I: p1, II: p2 } };
+  }
+  const planes = geometry ? 2 : (num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1);
   const uper = permissibleUnbalanceGmm(grade, rotorKg, speedRpm);
+  const planeNames = planes === 2 ? ['I', 'II'] : Array.from({ length: planes }, (_, i) => `P${i + 1}`);
+  const allocation = allocatePermissible(uper, planeNames, geometry);
   const result = {
     grade_mm_s: grade,
     rotor_mass_kg: rotorKg,
@@ -398,6 +428,7 @@ async function checkGrade(argv: string[]): Promise<number> {
     permissible_g_mm: uper,
     planes,
     permissible_per_plane_g_mm: uper / planes,
+    allocation,
     residual_g_mm: residual ?? null,
     within: residual === undefined ? null : residual <= uper,
     rule: 'ISO 21940-11: U_per = 9549 * G * m / n (g mm; G mm/s, m kg, n r/min), from memory: check the current edition',
@@ -406,8 +437,13 @@ async function checkGrade(argv: string[]): Promise<number> {
   else {
     out(
       `ISO 21940-11, G${grade}: permissible residual unbalance ${fixed(uper, 0)} g mm for a ${rotorKg} kg rotor at ${speedRpm} r/min` +
-        (planes > 1 ? ` (${fixed(uper / planes, 0)} g mm per plane if shared equally between ${planes} planes; the standard allocates by plane and bearing distances)` : '') +
         '.\n' +
+        (planes > 1
+          ? `  per plane: ${planeNames.map((p) => `${p} ${fixed(allocation.by_plane_g_mm[p]!, 0)} g mm`).join(', ')}` +
+            (allocation.bearing_planes_g_mm ? ` (bearing planes A ${fixed(allocation.bearing_planes_g_mm.A, 0)}, B ${fixed(allocation.bearing_planes_g_mm.B, 0)} g mm)` : '') +
+            `\n  allocation: ${allocation.basis}\n` +
+            allocation.warnings.map((w) => `  Warning: ${w.message}\n    -> ${w.hint}\n`).join('')
+          : '') +
         (residual !== undefined ? `Residual ${fixed(residual, 0)} g mm: ${residual <= uper ? 'WITHIN' : 'NOT within'} G${grade}.\n` : '') +
         `  ${result.rule}\n`,
     );
