@@ -162,3 +162,40 @@ describe('turnwise balance check-grade with the rotor geometry', () => {
     expect(partial.stderr).toMatch(/missing --bearings-mm, --planes-mm/);
   });
 });
+
+describe('turnwise balance multi-speed', () => {
+  /** Exact 1x vectors of a one-plane rotor whose response is H_i per speed: V = V0 + H_i * m e^(i theta) (own computation). */
+  const runAt = (rpm: number, hAmp: number, hDeg: number) => {
+    const c = (a: number, d: number) => ({ re: a * Math.cos((d * Math.PI) / 180), im: a * Math.sin((d * Math.PI) / 180) });
+    const u = c(80, 30); // unbalance 80 g at 30 deg (against rotation)
+    const h = c(hAmp, hDeg);
+    const resp = (z: { re: number; im: number }) => ({ re: h.re * z.re - h.im * z.im, im: h.re * z.im + h.im * z.re });
+    const reading = (z: { re: number; im: number }) => ({ amp: Math.hypot(z.re, z.im), phase_deg: (((Math.atan2(z.im, z.re) * 180) / Math.PI) + 360) % 360 });
+    const v0 = resp(u);
+    const v1 = resp({ re: u.re + 50, im: u.im });
+    return { speed_rpm: rpm, runs: [{ weights: [], readings: { 'DE-H': reading(v0) } }, { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-H': reading(v1) } }] };
+  };
+
+  it('--json: one correction, the predicted residual per speed, cautions', () => {
+    const job = { angle_convention: 'against_rotation', planes: ['P1'], amp_unit: 'mm/s pk', radius_mm: { P1: 600 }, speeds: [runAt(800, 0.02, 40), runAt(1485, 0.07, 75)] };
+    const r = cli(['balance', 'multi-speed', file('m.json', job), '--json']);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    const out = JSON.parse(r.stdout);
+    expect(out.corrections[0].mass_g).toBeCloseTo(80, 3);
+    expect(out.corrections[0].angle_deg).toBeCloseTo(210, 2);
+    expect(out.speeds).toHaveLength(2);
+    expect(out.speeds[1].residual_share).toBeLessThan(1e-6);
+    for (const w of CAUTION_WORDS) expect(out.cautions.join(' ')).toMatch(w);
+    const t = cli(['balance', 'multi-speed', file('m.json', job)]);
+    expect(t.stdout).toMatch(/Per speed/);
+    expect(t.stdout).toMatch(/SAFETY/);
+  });
+
+  it('speeds not distinct: exit 3 and the reason on stderr', () => {
+    const job = { planes: ['P1'], speeds: [runAt(1485, 0.07, 75), runAt(1490, 0.07, 75)] };
+    const r = cli(['balance', 'multi-speed', file('m.json', job)]);
+    expect(r.code).toBe(3);
+    expect(r.stderr).toMatch(/less than 2 % apart/);
+  });
+});

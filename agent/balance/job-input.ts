@@ -101,6 +101,43 @@ export const balanceJobSchema = z
     }
   });
 
+export const multiSpeedSchema = z
+  .object({
+    angle_convention: convention.default('against_rotation'),
+    planes: z.array(name).min(1, 'needs at least one plane').max(8, 'at most 8 planes'),
+    amp_unit: z.string().max(16).optional(),
+    radius_mm: z.record(name, positive).optional(),
+    max_mass_g: z.record(name, positive).optional(),
+    max_residual_share: positive.max(1, 'must be at most 1 (the as-found vibration)').optional(),
+    speeds: z
+      .array(
+        z
+          .object({
+            speed_rpm: positive,
+            weight: positive.optional(),
+            label: z.string().max(64).optional(),
+            runs: z.array(runSchema).min(1, 'needs at least the as-found run at this speed'),
+          })
+          .strict(),
+      )
+      .min(2, 'needs runs at two or more speeds (for one speed use `turnwise balance solve`)')
+      .max(20),
+    notes: z.string().max(2000).optional(),
+  })
+  .strict()
+  .superRefine((job, ctx) => {
+    // Every speed group must be a valid one-speed job with the same sensors.
+    const sensors = Object.keys(job.speeds[0]?.runs[0]?.readings ?? {}).sort().join(',');
+    job.speeds.forEach((g, i) => {
+      const res = balanceJobSchema.safeParse({ angle_convention: job.angle_convention, planes: job.planes, runs: g.runs });
+      if (!res.success) for (const iss of res.error.issues) ctx.addIssue({ code: 'custom', path: ['speeds', i, ...iss.path], message: iss.message });
+      const here = Object.keys(g.runs[0]?.readings ?? {}).sort().join(',');
+      if (i > 0 && here !== sensors) ctx.addIssue({ code: 'custom', path: ['speeds', i, 'runs', 0, 'readings'], message: `sensors ${here || 'none'} differ from speeds[0]'s ${sensors}; every speed needs the same sensors` });
+    });
+  });
+
+export type MultiSpeedRequest = z.infer<typeof multiSpeedSchema>;
+
 export const splitRequestSchema = z
   .object({
     angle_convention: convention.default('against_rotation'),
@@ -264,6 +301,10 @@ export function parseSplitRequest(raw: unknown, file = 'split'): SplitRequest {
 
 export function parseSplitHolesRequest(raw: unknown, file = 'split'): SplitHolesRequest {
   return validate(splitHolesRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
+}
+
+export function parseMultiSpeed(raw: unknown, file = 'multi-speed'): MultiSpeedRequest {
+  return validate(multiSpeedSchema, raw, file, 'multi-speed job', 'fix the file; `turnwise help balance` shows the format of `balance multi-speed`');
 }
 
 export function parseCombineRequest(raw: unknown, file = 'combine'): CombineRequest {

@@ -4,6 +4,7 @@
  */
 import { conventionText, type AngleConvention } from './conventions.js';
 import type { FourRunResult } from './four-run.js';
+import type { MultiSpeedResult } from './multi-speed.js';
 import type { BalanceResult, Issue, PlaneWeight } from './job.js';
 import { centrifugalForceN, type SplitPart } from './weights.js';
 
@@ -196,5 +197,40 @@ export function formatFourRunReport(r: FourRunResult): string {
   out.push('\nFit the correction, remove the trial weight, and do a check run: the 1x should drop well below as found; a second round of the method trims what is left.');
   out.push('');
   out.push(issueLines('Warnings:', r.warnings));
+  return out.filter((l, i, a) => !(l === '' && a[i - 1] === '')).join('\n');
+}
+
+export function formatMultiSpeedReport(r: MultiSpeedResult): string {
+  const unit = r.amp_unit ?? 'job unit';
+  const out: string[] = [];
+  out.push(`Multi-speed balancing: ${r.speeds.length} speeds (${r.speeds.map((s) => fixed(s.speed_rpm, 0)).join(', ')} r/min), ${r.planes.length} plane(s) (${r.planes.join(', ')}), ${r.sensors.length} sensor(s) (${r.sensors.join(', ')})`);
+  out.push(conventionLine(r.angle_convention));
+  out.push(`One correction minimising the weighted least squares of the 1x over all speeds and sensors. Amplitudes: ${unit}.\n`);
+  if (!r.ok) {
+    out.push('NO CORRECTION GIVEN:');
+    out.push(issueLines('Problems:', r.problems));
+  } else {
+    out.push('Correction to add, relative to the rotor as found, with ALL trial weights removed (force at the highest speed):');
+    out.push(table(WEIGHT_HEADER, weightRows(r.corrections)));
+    out.push('');
+  }
+  const shown = r.speeds.some((s) => s.residual_share !== null);
+  out.push(`Per speed (${unit}; "left" = r.m.s. over the sensors of predicted / as found${r.ok ? '' : ', for the compromise that was refused'}):`);
+  out.push(
+    table(
+      ['speed r/min', 'weight', ...r.sensors.map((s) => `${s} as found`), ...(shown ? r.sensors.map((s) => `${s} predicted`) : []), ...(shown ? ['left %'] : []), 'own correction'],
+      r.speeds.map((s) => [
+        fixed(s.speed_rpm, 0),
+        fixed(s.weight, 2),
+        ...s.as_found.map((v) => `${v.amp.toPrecision(3)} @ ${fixed(v.phase_deg, 0)}`),
+        ...(shown ? s.predicted_residuals.map((v) => `${v.amp.toPrecision(3)} @ ${fixed(v.phase_deg, 0)}`) : []),
+        ...(shown ? [s.residual_share === null ? '-' : fixed(s.residual_share * 100, 0)] : []),
+        s.own_corrections.length ? s.own_corrections.map((w) => `${w.plane} ${fixed(w.mass_g, 1)} g @ ${fixed(w.angle_deg, 0)}`).join(', ') : '-',
+      ]),
+    ),
+  );
+  if (r.condition_number !== null && Number.isFinite(r.condition_number)) out.push(`\nCondition number of the stacked influence matrix: ${fixed(r.condition_number, 2)} (1 is ideal).`);
+  out.push('');
+  out.push(issueLines('Warnings:', [...r.warnings, ...r.speeds.flatMap((s) => s.warnings.map((w) => ({ ...w, message: `${fixed(s.speed_rpm, 0)} r/min: ${w.message}` })))]));
   return out.filter((l, i, a) => !(l === '' && a[i - 1] === '')).join('\n');
 }

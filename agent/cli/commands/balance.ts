@@ -4,11 +4,12 @@ import type { Config } from '../../config/schema.js';
 import { UserError } from '../../errors.js';
 import { conventionText } from '../../balance/conventions.js';
 import type { BalanceJob, Issue } from '../../balance/job.js';
-import { parseBalanceJob, parseCombineRequest, parseFourRun, parseSplitHolesRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import { parseBalanceJob, parseCombineRequest, parseFourRun, parseMultiSpeed, parseSplitHolesRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
 import { solveFourRun } from '../../balance/four-run.js';
+import { solveMultiSpeed } from '../../balance/multi-speed.js';
 import { allocatePermissible, type RotorGeometry } from '../../balance/allocation.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
-import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
+import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatMultiSpeedReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
 import { solveBalanceJob } from '../../balance/solve.js';
 import { checkJobId, FileBalanceStore, newJobId, type BalanceJobRecord } from '../../balance/store.js';
 import {
@@ -52,6 +53,16 @@ const usage = `turnwise balance SUB-COMMAND ...   (influence-coefficient balanci
       Gives the correction (trial weight removed), its uncertainty, the trial effect and how far
       the circles miss one point (least squares). Exit 0 solved, 2 bad input, 3 the readings do
       not fix the weight (the reason is printed; no numbers).
+
+  multi-speed MULTI.json [--json]
+      One correction for a fan that runs over a speed range (variable-speed drive): runs at
+      several speeds, influence coefficients per speed, least squares over all speeds and sensors.
+        {"angle_convention": "against_rotation", "planes": ["P1"], "amp_unit": "mm/s pk",
+         "speeds": [{"speed_rpm": 900, "weight": 1, "runs": [as found, trial runs ... as in solve]},
+                    {"speed_rpm": 1485, "weight": 2, "runs": [...]}]}
+      "weight" (default 1) gives a speed more say; "max_residual_share" (default 0.5) refuses a
+      compromise that leaves any speed above that share of its as-found 1x. Shows the predicted
+      residual at every speed and each speed's own correction. Exit 0, 2 bad input, 3 refused.
 
   split SPLIT.json [--json]
       Splits a weight onto fixed positions (blades, holes) by the law of sines, first moving it to
@@ -243,6 +254,20 @@ async function fourRun(argv: string[]): Promise<number> {
   else out(formatFourRunReport(result) + '\n' + cautionBlock());
   if (!result.ok) {
     if (!values.json) process.stderr.write(`turnwise balance four-run: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    return EXIT_UNSOLVABLE;
+  }
+  return 0;
+}
+
+async function multiSpeed(argv: string[]): Promise<number> {
+  const { values, positionals } = args('multi-speed', argv, { json: { type: 'boolean' } });
+  const file = singleFile('multi-speed', positionals, 'multi-speed job');
+  const job = parseMultiSpeed(readJsonFile(file, 'multi-speed job'), file);
+  const result = solveMultiSpeed(job);
+  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
+  else out(formatMultiSpeedReport(result) + '\n' + cautionBlock());
+  if (!result.ok) {
+    if (!values.json) process.stderr.write(`turnwise balance multi-speed: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
     return EXIT_UNSOLVABLE;
   }
   return 0;
@@ -476,6 +501,7 @@ async function exportJob(argv: string[]): Promise<number> {
 const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
   solve,
   'four-run': fourRun,
+  'multi-speed': multiSpeed,
   split,
   combine,
   'trial-weight': trialWeight,
@@ -486,7 +512,7 @@ const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
 
 export const balanceCommand: Command = {
   name: 'balance',
-  summary: 'balancing: solve a job, amplitude-only four-run, split or combine weights, trial weight, ISO 21940-11 check',
+  summary: 'balancing: solve a job, amplitude-only four-run, multi-speed, split or combine weights, trial weight, ISO 21940-11 check',
   usage,
   async run(argv) {
     const [sub, ...rest] = argv;
