@@ -3,10 +3,10 @@
  * (dist/agent/cli/main.js, built by `npm run build`) as a real process.
  */
 import { beforeAll, describe, expect, it } from 'vitest';
-import { spawnSync } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { expectNoStack, runCli } from './support/cli.js';
 
 const CLI = 'dist/agent/cli/main.js';
 
@@ -19,9 +19,10 @@ beforeAll(() => {
   }
 });
 
-function cli(args: string[]): { code: number; stdout: string; stderr: string } {
-  const r = spawnSync(process.execPath, [CLI, ...args], { encoding: 'utf8' });
-  return { code: r.status ?? -1, stdout: r.stdout, stderr: r.stderr };
+function cli(args: string[]): { code: number | null; stdout: string; stderr: string } {
+  const r = runCli(args);
+  expectNoStack(r.stderr);
+  return r;
 }
 
 function file(name: string, content: unknown): string {

@@ -1,4 +1,7 @@
 import { describe, expect, it } from 'vitest';
+import { oneXAmplitude } from '../agent/balance/amplitude.js';
+import type { WindowResult } from '../agent/dsp/types.js';
+import { fanCase, synthWindow } from './support/fan-windows.js';
 import { allocatePermissible, type RotorGeometry } from '../agent/balance/allocation.js';
 import { solveBalanceJob } from '../agent/balance/solve.js';
 import { combineWeights, moveToRadius, permissibleUnbalanceGmm, splitBetweenHoles, SplitRefused } from '../agent/balance/weights.js';
@@ -162,5 +165,33 @@ describe('ISO 21940-11 allocation of U_per to the planes (from memory; hand comp
     const near = solveBalanceJob({ ...job, geometry: { rotor: 'centre_hung', bearing_a_mm: 0, bearing_b_mm: 1000, centre_of_mass_mm: 250, planes_mm: { P1: 150, P2: 850 } } });
     expect(near.unbalance!.permissible_by_plane_g_mm!.P1).toBeCloseTo(0.7 * per, 6);
     expect(near.unbalance!.last_run_within_grade).toBe(true);
+  });
+});
+
+describe('the 1x amplitude for the four-run method from one analysis window', () => {
+  const base = synthWindow(fanCase('static', { amp: 3 }));
+  const de = base.channels.find((c) => c.id === 'DE-H')!;
+
+  it('with the tach working: the synchronous 1x amplitude', () => {
+    const a = oneXAmplitude(base, 'DE-H', 1485);
+    expect(a.source).toBe('tach');
+    expect(a.amp_pk_mm_s).toBe(de.orders['1']!.amp_pk_mm_s);
+  });
+
+  it('without the tach: the spectral peak near the stated speed, as zero-to-peak; an upper bound when it is below the threshold', () => {
+    const noTach = (peaks: { freq_hz: number; amp_rms_mm_s: number }[]): WindowResult => ({
+      ...base,
+      revolutions: 0,
+      speed_rpm: null,
+      channels: base.channels.map((c) => ({ ...c, orders: {}, nonsync_peaks: peaks.map((p) => ({ ...p, order: null })) as unknown as typeof c.nonsync_peaks })),
+    });
+    const a = oneXAmplitude(noTach([{ freq_hz: 247.5, amp_rms_mm_s: 0.3 }, { freq_hz: 24.6, amp_rms_mm_s: 2.0 }]), 'DE-H', 1485);
+    expect(a).toMatchObject({ source: 'spectrum', upper_bound: false, amp_rms_mm_s: 2.0 });
+    expect(a.amp_pk_mm_s).toBeCloseTo(2.0 * Math.SQRT2, 12);
+    const b = oneXAmplitude(noTach([{ freq_hz: 247.5, amp_rms_mm_s: 0.3 }]), 'DE-H', 1485);
+    expect(b.upper_bound).toBe(true);
+    expect(b.amp_rms_mm_s).toBeCloseTo(0.02 * de.overall_rms_mm_s!, 12);
+    expect(() => oneXAmplitude(noTach([]), 'DE-H', 1485)).toThrow(/no spectral peak within 5 % of 1485 r\/min/);
+    expect(() => oneXAmplitude(base, 'XX', 1485)).toThrow(/sensor XX/);
   });
 });
