@@ -303,16 +303,24 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
     const hx = -P.y / (radius * radius);
     const hy = P.x / (radius * radius);
     const varA = hx * hx * cxx + 2 * hx * hy * cxy + hy * hy * cyy;
-    angleSd = (Math.sqrt(Math.max(varA, 0)) * 180) / Math.PI;
+    // The as-found reading scatters too: it moves every trial point radially. Its effect is found by
+    // solving again with the as-found amplitude one scatter higher (a numerical derivative).
+    const a1 = a0 + sigma;
+    const c1 = c.map((ck) => ({ x: (ck.x * a1) / a0, y: (ck.y * a1) / a0 }));
+    const P1 = refine(c1, amps, P, scale);
+    const r1 = Math.hypot(P1.x, P1.y);
+    const dAng = r1 > 0 ? Math.atan2(P.x * P1.y - P.y * P1.x, P.x * P1.x + P.y * P1.y) : Math.PI;
+    angleSd = (Math.sqrt(Math.max(varA, 0) + dAng * dAng) * 180) / Math.PI;
     const mass = (m * a0) / radius;
-    massSd = mass * Math.sqrt((sigma / a0) ** 2 + Math.max(varR, 0) / (radius * radius));
+    const dMassRel = r1 > 0 ? (a1 / r1 - a0 / radius) / (a0 / radius) : Infinity;
+    massSd = mass * Math.sqrt(dMassRel * dMassRel + Math.max(varR, 0) / (radius * radius));
   }
 
   const effectPct = (radius / a0) * 100;
   const fits: FourRunTrialFit[] = input.trials.map((t, k) => ({ angle_deg: wrapDeg(t.angle_deg), measured_amp: t.amp, fitted_amp: Math.hypot(c[k]!.x - P.x, c[k]!.y - P.y) }));
   const misfitPct = (rmsMisfit / a0) * 100;
 
-  if (radius <= 2 * sigma || !Number.isFinite(angleSd) || angleSd > opt.angleLimitDeg) {
+  if (radius <= 3 * sigma || !Number.isFinite(angleSd) || angleSd > opt.angleLimitDeg) {
     problems.push({
       code: 'not_determined',
       message:
@@ -334,7 +342,7 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
       hint: 'repeat the as-found run and any doubtful trial run at the same speed and load; check the trial radius and positions, that the sensor did not move, and that the 1x really is unbalance (steady, not resonance or looseness)',
     });
   }
-  if (radius > 2 * sigma && effectPct < opt.trialMinPct) {
+  if (effectPct < opt.trialMinPct) {
     warnings.push({
       code: 'trial_small_effect',
       message: `the trial weight changed the vibration by ${fmt(effectPct, 0)} % of the as-found amplitude (less than the usual ${opt.trialMinPct} %)`,
