@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Installs, upgrades, rolls back or removes turnwise on a Debian-based board image
-# (Debian 12, Raspberry Pi OS bookworm, Ubuntu 22.04 or newer). See README, "Installing on the board".
+# (Debian 12, Raspberry Pi OS bookworm, Ubuntu 22.04 or newer). See docs/deployment.md.
 #
 # Layout it maintains:
 #   /opt/turnwise/releases/<version>-<content hash>/   one directory per release, never changed once complete
@@ -111,7 +111,7 @@ R_OPT="$ROOT$OPT"
 R_RELEASES="$R_OPT/releases"
 
 # What a release holds, relative to the source tree (dist/test and the TypeScript sources stay behind).
-RELEASE_PATHS=(package.json package-lock.json dist/agent dist/drivers deploy config README.md)
+RELEASE_PATHS=(package.json package-lock.json dist/agent dist/drivers deploy config README.md docs)
 COMPLETE_MARK=.turnwise-release-complete
 CHANGED=0
 
@@ -400,7 +400,7 @@ install_system_files() {
   if [ "$(stat -c %U:%G "$ROOT$ETC" 2>/dev/null || true)" != root:turnwise ]; then sys chown root:turnwise "$ROOT$ETC"; fi
   put_file "$dir/config/example.yaml" "$ETC/turnwise.yaml.example" 0644
   # The live page's first token (operator role), made once and never replaced: the config's live
-  # section names it (README "Live view and balancing workbench"); its holder reads it with
+  # section names it (docs/live-page.md, "Opening it"); its holder reads it with
   # `sudo cat`. Readable by the service user only, as the agent requires of secret files.
   if [ ! -e "$ROOT$ETC/live-operator-token" ]; then
     local tok

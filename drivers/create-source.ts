@@ -35,7 +35,7 @@ export interface CreateSourceDeps {
 export function createSource(cfg: Config, configFile: string, deps: CreateSourceDeps): CreatedSource {
   const a = cfg.acquisition;
   if (!a) {
-    throw new UserError(`${configFile}: acquisition`, 'the config says nowhere where the samples come from', 'add an acquisition section: driver wav (a recording), serial (the board) or sim (the simulated fan); see config/example.yaml and README');
+    throw new UserError(`${configFile}: acquisition`, 'the config says nowhere where the samples come from', 'add an acquisition section: driver wav (a recording), serial (the board) or sim (the simulated fan); see config/example.yaml and docs/acquisition.md');
   }
   switch (a.driver) {
     case 'wav': {

@@ -121,7 +121,7 @@ describe('live page in a real browser', () => {
       await page.waitForTimeout(150);
     }
     expect(seen.size).toBeGreaterThanOrEqual(3);
-    // The page shows what the measurement core measures: DE-V near the model's 1x (README: 2.56 mm/s
+    // The page shows what the measurement core measures: DE-V near the model's 1x (docs/simulator.md: 2.56 mm/s
     // r.m.s. = 3.62 mm/s pk at 104 deg at day 5 15:00).
     const amp = Number(await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-amp'));
     const phase = Number(await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-phase'));

@@ -10,7 +10,7 @@ import { testResources } from './support/harness.js';
 
 /**
  * mqtt-packet's remaining-length cache over a long run: the pool blocks its entries keep alive must
- * stay bounded however many new packet lengths the agent meets (README, "Evidence": soak).
+ * stay bounded however many new packet lengths the agent meets (docs/evidence.md: soak).
  */
 
 const res = testResources('tw-packet-cache-');

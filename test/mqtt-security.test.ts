@@ -110,7 +110,7 @@ describe('TLS and credentials against a real mosquitto', () => {
   });
 });
 
-describe('recommended broker ACL (README, "Commands")', () => {
+describe('recommended broker ACL (docs/plant-network.md, "Commands")', () => {
   it('lets the control room command the agent and keeps other users off the command topic', async () => {
     const base = `kessrow/boiler3/${ASSET}`;
     const acl = [`user id3a-agent`, `topic write ${base}/#`, `topic read ${base}/cmd`, `user control-room`, `topic write ${base}/cmd`, `topic read ${base}/#`, `user viewer`, `topic read ${base}/#`].join('\n') + '\n';

@@ -91,7 +91,7 @@ describe('agent runtime loop', () => {
     /**
      * Revolutions lost to one gap: each revolution between two tach marks that overlaps the gap (one,
      * plus one per mark inside it), and the first revolution after it, which the tracker uses to learn
-     * the pulse interval again (README "How it measures": two consistent intervals before it trusts any).
+     * the pulse interval again (docs/measuring.md, "How it measures": two consistent intervals before it trusts any).
      */
     const lostTo = (g: readonly [number, number]) => marksIn(g).length + 1 + 1;
 

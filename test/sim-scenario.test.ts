@@ -143,7 +143,7 @@ describe('scenario errors name the file, the path and what to do', () => {
     expect(msg).toContain('timeline[1].fault.kind: Invalid discriminator value');
     expect(msg).toContain('(found "wobble")');
     expect(msg).toContain('timeline[2].build_up: unknown key(s) "angle"');
-    expect(msg).toContain('README.md');
+    expect(msg).toContain('docs/simulator.md, "Scenario file"');
   });
 
   it('checks across keys once each key is valid: one action per event, time order, tach edge', () => {

@@ -36,7 +36,7 @@ export function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
  * One line per problem: where, what was expected, what was found. `keysReference` names the document
  * to check spelling against when a key is unknown.
  */
-export function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown, keysReference = 'config/turnwise.schema.json'): string[] {
+export function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown, keysReference = 'docs/configuration.md (or config/turnwise.schema.json)'): string[] {
   return issues.map((iss) => {
     const where = formatPath(iss.path);
     if (iss.code === 'unrecognized_keys') {

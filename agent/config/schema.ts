@@ -2,10 +2,12 @@ import { z } from 'zod';
 import { acquisitionSchema, checkAcquisitionChannels } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
+import { captureSchema } from './capture.js';
 import { gpioSchema } from './gpio.js';
 import { liveSchema } from './live.js';
 import { loggingSchema } from './logging.js';
 import { mqttSchema } from './mqtt.js';
+import { sweepSchema } from './sweep.js';
 import { watcherSchema } from './watcher.js';
 
 /**
@@ -88,6 +90,8 @@ export const configSchema = z
     acquisition: acquisitionSchema.optional().describe('Where the samples come from (recording, serial board, simulator).'),
     state_dir: z.string().min(1).default('./state').describe('Where history, the outbox and balancing jobs are kept.'),
     balance: balanceSchema,
+    capture: captureSchema.describe('Raw signal kept around every alarm and on command (state_dir/captures).'),
+    sweep: sweepSchema.describe('How run-ups and coast-downs are found and read (turnwise sweep).'),
 
     watcher: watcherSchema,
 

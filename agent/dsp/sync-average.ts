@@ -117,6 +117,16 @@ export function orderComponent(sum: Float64Array, revolutions: number, order: nu
   return { amp, phaseDeg: wrapDeg((-Math.atan2(im, re) * 180) / Math.PI) };
 }
 
+/**
+ * Order k of an averaged revolution of acceleration, as velocity: amplitude divided by the order's
+ * angular frequency, and a lag 90 degrees larger (velocity lags acceleration by a quarter of the
+ * order's cycle; textbook relation).
+ */
+export function velocityOrderComponent(sum: Float64Array, revolutions: number, order: number, fRevHz: number): OrderComponent {
+  const a = orderComponent(sum, revolutions, order);
+  return { amp: a.amp / (2 * Math.PI * order * fRevHz), phaseDeg: wrapDeg(a.phaseDeg + 90) };
+}
+
 /** Wraps an angle to [0, 360). */
 export function wrapDeg(deg: number): number {
   const r = deg % 360;

@@ -25,6 +25,7 @@ export interface CommandHandlers {
   startBaseline?: Handler<'baseline.start'>;
   stopBaseline?: Handler<'baseline.stop'>;
   takeSnapshot?: Handler<'snapshot.take'>;
+  takeCapture?: Handler<'capture.take'>;
   balancingSession?: Handler<'balancing.session'>;
 }
 
@@ -33,6 +34,7 @@ const HANDLER_OF: Record<CommandName, keyof CommandHandlers> = {
   'baseline.start': 'startBaseline',
   'baseline.stop': 'stopBaseline',
   'snapshot.take': 'takeSnapshot',
+  'capture.take': 'takeCapture',
   'balancing.session': 'balancingSession',
 };
 

@@ -76,6 +76,9 @@ const agentHealth = z
     events: optCount('Events raised since the agent started.'),
     last_window_revolutions: count.nullable().optional().describe('Revolutions averaged in the last closed window; null before the first window.'),
     last_window_revolutions_rejected: count.nullable().optional().describe('Revolutions thrown away in the last window (missing pulse, gap, speed outside limits).'),
+    captures_written: count.optional().describe('Event captures written under state_dir/captures since start.'),
+    captures_failed: count.optional().describe('Event captures that could not be written (full disk...); the log says why, once per burst.'),
+    captures_removed: count.optional().describe('Old event captures removed to stay within capture.max_count and capture.max_mb.'),
     last_window_speed_rpm: z.number().nullable().optional().describe('Mean speed of the last window from the tach channel, r/min; null when no revolution was averaged.'),
     source_connected: z.boolean().optional().describe('Serial board: the device is open.'),
     source_device: z.string().optional().describe('Serial board: device path.'),
@@ -91,12 +94,27 @@ const agentHealth = z
     source_samples_lost: optCount('Serial board: samples per channel lost in gaps.'),
     source_sequence_anomalies: optCount('Serial board: sequence numbers out of order.'),
     source_clock_restarts: optCount('Serial board: sample clock restarted (board reset).'),
+    source_timing_faults: optCount('Serial board: version 2 frames with an impossible timing declaration (used with the last good one).'),
+    source_protocol_version: count.nullable().optional().describe('Serial board: protocol version of the last good frame (1, or 2 with a timing declaration); null before the first.'),
+    source_sample_delay_ticks: z.number().nullable().optional().describe('Serial board: declared ADC delay in use, sample periods; null when not declared (version 1).'),
+    source_tach_delay_ticks: z.number().nullable().optional().describe('Serial board: declared delay of the board-timed tach edges, sample periods; null when not declared.'),
+    source_max_skew_ticks: z.number().nullable().optional().describe('Serial board: largest declared channel skew, sample periods (0: all channels simultaneous); null when not declared.'),
+    source_tach_mode_mismatches: optCount('Serial board: frames whose tach timing disagrees with acquisition.board_tach_edges.'),
+    source_last_gap_from_index: count.nullable().optional().describe('Serial board: first missing sample index of the last gap (agent sample clock); null before any gap.'),
+    source_last_gap_to_index: count.nullable().optional().describe('Serial board: first sample index present again after the last gap; null before any gap.'),
+    source_last_gap_reason: z.string().nullable().optional().describe('Serial board: why the last gap happened, in words.'),
+    source_modem_lines: z.string().nullable().optional().describe('Serial board: DTR and RTS after opening: "asserted", or why not.'),
     source_overruns: optCount('Serial board: frames dropped because the DSP fell behind.'),
     source_stalls: optCount('Serial board: an open device went silent for stall_timeout_ms and was reopened.'),
     source_reconnects: optCount('Serial board: successful reopenings after the first open.'),
     source_open_failures: optCount('Serial board: failed attempts to open the device.'),
     source_last_error: z.string().nullable().optional().describe('Serial board: the last problem, in words.'),
     source_last_error_at: z.string().nullable().optional().describe('Serial board: when the last problem happened, ISO 8601 UTC.'),
+    time_anchors: optCount('Times the sample clock was anchored to the wall clock: 1 at start, +1 per board restart or wall-clock step.'),
+    wall_clock_steps_back: optCount('Live board: the wall clock stepped back against the sample clock by more than the tolerance (times re-anchored).'),
+    wall_clock_steps_forward: optCount('Live board: the wall clock stepped forward against the sample clock for a whole second of samples (times re-anchored).'),
+    time_latency_ms: z.number().nullable().optional().describe('Live board: arrival of the last block minus its stamped time, ms; null for recordings and simulations.'),
+    time_slew_ms: z.number().optional().describe('Live board: correction slewed into the time anchor since it was set, ms (the board crystal against the wall clock).'),
     gpio_speed_rpm: z.number().nullable().optional().describe('Speed from the GPIO tach input (gpio.tach_speed), r/min; speed only, never phase; null when unknown.'),
     gpio_speed_check: z
       .enum(['agree', 'stopped', 'mismatch', 'tach_lost', 'gpio_silent'])
@@ -214,6 +232,7 @@ export const commandPayload = z
     z.object({ ...commandEnvelope, cmd: z.literal('baseline.start'), args: noArgs }).strict(),
     z.object({ ...commandEnvelope, cmd: z.literal('baseline.stop'), args: noArgs }).strict(),
     z.object({ ...commandEnvelope, cmd: z.literal('snapshot.take'), args: noArgs }).strict(),
+    z.object({ ...commandEnvelope, cmd: z.literal('capture.take'), args: noArgs }).strict().describe('Writes an event capture (raw samples around now) under state_dir/captures; the reply names its id.'),
     z
       .object({
         ...commandEnvelope,
@@ -228,7 +247,7 @@ export const commandPayload = z
       .strict(),
   ])
   .describe('<prefix>/<asset>/cmd, QoS 1.');
-export const COMMANDS = ['advisory.ack', 'baseline.start', 'baseline.stop', 'snapshot.take', 'balancing.session'] as const;
+export const COMMANDS = ['advisory.ack', 'baseline.start', 'baseline.stop', 'snapshot.take', 'capture.take', 'balancing.session'] as const;
 export type CommandName = (typeof COMMANDS)[number];
 
 export const REPLY_ERRORS = ['malformed', 'unauthorised', 'unknown_command', 'invalid_args', 'unavailable', 'rejected', 'failed', 'too_large'] as const;

@@ -9,10 +9,12 @@ import type { Config } from '../config/schema.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
+import { UserError } from '../errors.js';
 import type { CommandHandlers } from '../mqtt/commands.js';
 import { livePayloadFromFrame, type ChannelVerdict } from '../mqtt/live.js';
 import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
 import { openWatcher, type Watcher, type WatchStatus } from '../watcher/index.js';
+import { EventCapturer } from '../capture/event-capture.js';
 import { GpioSpeedCheck } from './gpio-speed-check.js';
 import { AgentRuntime, type LiveConsumer, type RunSummary, type WindowConsumer } from './runtime.js';
 
@@ -59,6 +61,7 @@ export class Agent {
   private advisory: SafeStopAdvisory | null = null;
   private gpioSpeed: GpioSpeedCheck | null = null;
   private runtime: AgentRuntime | null = null;
+  private capturer: EventCapturer | null = null;
   private lastWindow: WindowResult | null = null;
   private lastStatus: WatchStatus | null = null;
   private events = 0;
@@ -82,7 +85,10 @@ export class Agent {
     this.emit(e);
   }
 
-  private emit(e: AgentEvent): void {
+  private emit(event: AgentEvent): void {
+    // Every alarm keeps the raw signal around it; the event names the capture.
+    const captureId = event.severity === 'alarm' ? (this.capturer?.trigger(event.type, event.id) ?? null) : null;
+    const e: AgentEvent = captureId ? { ...event, capture_id: captureId } : event;
     this.events++;
     this.o.onEvent?.(e);
     if (this.link) void this.link.queueEvent(e);
@@ -135,8 +141,10 @@ export class Agent {
       last_window_revolutions_rejected: w?.revolutions_rejected ?? null,
       last_window_speed_rpm: w?.speed_rpm == null ? null : Math.round(w.speed_rpm * 10) / 10,
       ...source,
+      ...(this.runtime?.timeHealth() ?? {}),
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
+      ...(this.capturer ? { captures_written: this.capturer.written, captures_failed: this.capturer.failed, captures_removed: this.capturer.removed } : {}),
     };
   }
 
@@ -154,6 +162,11 @@ export class Agent {
       return { baseline_channels: Object.keys(r.baseline.channels), left_out: r.left_out };
     };
     h.takeSnapshot = () => ({ window: this.lastWindow, status: this.lastStatus });
+    h.takeCapture = () => {
+      const id = this.capturer?.trigger('command') ?? null;
+      if (!id) throw new UserError('capture.take', cfg.capture.enabled ? 'sampling has not started yet' : 'captures are off (capture.enabled: false)', cfg.capture.enabled ? 'send it again in a few seconds' : 'set capture.enabled: true in the config');
+      return { capture_id: id, ready_after_s: cfg.capture.post_s };
+    };
     if (cfg.mqtt) {
       this.link = await openPlantLink({
         mqtt: cfg.mqtt,
@@ -201,6 +214,10 @@ export class Agent {
         // The page and the live topic update at least once a second.
         liveSeconds: 0.5,
         boardTimesTach: this.o.boardTimesTach,
+        rawTap: (info, timeOf, maxBlock) => {
+          this.capturer = new EventCapturer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock, log, timeOf, nowMs: () => this.o.clock.now() });
+          return this.capturer;
+        },
         startMs: this.o.startMs,
         timeScale: this.o.timeScale,
         windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],

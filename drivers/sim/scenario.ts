@@ -329,7 +329,7 @@ export type FaultSpec = NonNullable<ScenarioEvent['fault']>;
 export type WeightSpec = z.infer<typeof weightSchema>;
 export type MassSpec = z.infer<typeof massSchema>;
 
-const SCENARIO_DOC = 'the scenario section of README.md';
+const SCENARIO_DOC = 'docs/simulator.md, "Scenario file"';
 
 /** Validates parsed scenario data. Throws UserError listing every problem by path. */
 export function validateScenario(raw: unknown, file = 'scenario'): Scenario {

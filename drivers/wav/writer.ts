@@ -128,7 +128,13 @@ export class WavWriter {
       throw new UserError(path, `cannot create the recording (${code ?? String(e)})`, code === 'ENOENT' ? 'create the folder first' : 'choose a writable path');
     }
     const head = wavHeader(opts, 0);
-    await fh.write(head.header, 0, head.header.length, 0);
+    try {
+      await fh.write(head.header, 0, head.header.length, 0);
+    } catch (e) {
+      // A full disk refuses the header: do not leave the file open.
+      await fh.close().catch(() => undefined);
+      throw e;
+    }
     return new WavWriter(fh, path, opts, head);
   }
 
@@ -164,6 +170,13 @@ export class WavWriter {
     }
     await this.fh.write(this.buf, 0, bytes, this.headerBytes + this.frames * ch * 4);
     this.frames += count;
+  }
+
+  /** Closes the file without patching or flushing (after a failed write; the caller removes it). */
+  async abandon(): Promise<void> {
+    if (this.closed) return;
+    this.closed = true;
+    await this.fh.close().catch(() => undefined);
   }
 
   /** Patches the sizes into the header, flushes to disk and closes. Returns the file size in bytes. */

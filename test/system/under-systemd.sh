@@ -83,7 +83,7 @@ show() { for p in ActiveState SubState NRestarts StatusText; do printf '%s=%s ' 
 /srv/turnwise/deploy/install.sh --no-apt --daq-usb-id 2e8a:000a >/probe/install.log 2>&1
 echo "install_rc=$?" >/probe/results.txt
 sed 's#^state_dir: .*#state_dir: /var/lib/turnwise#' /etc/turnwise/turnwise.yaml.example >/etc/turnwise/turnwise.yaml
-# A secret the way README says to put one there: readable by the service user only.
+# A secret the way docs/deployment.md says to put one there: readable by the service user only.
 printf 'not-a-real-password\n' | install -m 0600 -o turnwise -g turnwise /dev/stdin /etc/turnwise/mqtt-password
 mkdir -p /etc/systemd/system/turnwise.service.d
 cat >/etc/systemd/system/turnwise.service.d/50-probe.conf <<'CONF'

@@ -512,7 +512,6 @@ const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
 
 export const balanceCommand: Command = {
   name: 'balance',
-  summary: 'balancing: solve a job, amplitude-only four-run, multi-speed, split or combine weights, trial weight, ISO 21940-11 check',
   usage,
   async run(argv) {
     const [sub, ...rest] = argv;

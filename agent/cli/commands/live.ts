@@ -52,7 +52,7 @@ function check(argv: string[]): number {
   if (positionals.length || !values.config) throw new UserError('turnwise live check', 'needs --config FILE', 'usage: turnwise live check --config FILE [--json]');
   const cfg = loadConfig(values.config);
   const live = cfg.live;
-  if (!live) throw new UserError(values.config, 'has no live section, so the agent serves no page', 'add live: with bind, port and tokens (README "Live view and balancing workbench")');
+  if (!live) throw new UserError(values.config, 'has no live section, so the agent serves no page', 'add live: with bind, port and tokens (docs/live-page.md, "Opening it")');
   const tokens = resolveLiveTokens(live);
   const scheme = live.tls ? 'https' : 'http';
   const host = live.bind.includes(':') ? `[${live.bind}]` : live.bind;
@@ -76,7 +76,6 @@ function check(argv: string[]): number {
 
 export const liveCommand: Command = {
   name: 'live',
-  summary: 'make access tokens for the live page and check its config',
   usage,
   async run(argv) {
     const [sub, ...rest] = argv;

@@ -36,7 +36,7 @@ function schemasAction(out: string | undefined, check: boolean): number {
 
 function outboxAction(cfgFile: string, json: boolean): number {
   const cfg = loadConfig(cfgFile);
-  if (!cfg.mqtt) throw new UserError(cfgFile, 'has no mqtt section, so there is no outbox', 'add an mqtt section (see README, "Plant network")');
+  if (!cfg.mqtt) throw new UserError(cfgFile, 'has no mqtt section, so there is no outbox', 'add an mqtt section (see docs/plant-network.md, "Config", and config/example-network.yaml)');
   const { dir } = outboxSettings(cfg.mqtt, cfg.state_dir);
   const names = existsSync(dir) ? readdirSync(dir).sort() : [];
   const pending = names
@@ -83,7 +83,6 @@ function topicsAction(cfgFile: string, json: boolean): number {
 
 export const mqttCommand: Command = {
   name: 'mqtt',
-  summary: 'plant-network helpers: topic layout, outbox contents, payload schemas',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('mqtt', usage, argv, {

@@ -64,7 +64,6 @@ export function classifyReading(valueMmS: number, limits: Limits): ZoneClassific
 
 export const zoneCommand: Command = {
   name: 'zone',
-  summary: 'classify one handheld velocity reading against ISO 20816-3 or ISO 14694, with the boundaries and their source',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('zone', usage, argv, {

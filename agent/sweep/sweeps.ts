@@ -1,0 +1,99 @@
+import type { Config } from '../config/schema.js';
+import type { SpeedPoint } from '../dsp/speed-points.js';
+import { findSweeps } from './detect.js';
+import { findResonances, type Resonance } from './resonance.js';
+
+/**
+ * From a speed trace of 1x points to run-ups and coast-downs with their resonances (pure): what
+ * `turnwise sweep` prints and what the agent will record. Phase as everywhere in turnwise: a lag in
+ * degrees from the tach rising edge to the positive peak of the 1x velocity component, as measured
+ * (the sensor's mounting_angle_deg is reported beside it, not subtracted).
+ */
+
+export interface SweepChannel {
+  readonly id: string;
+  readonly bearing: string;
+  readonly direction: 'vertical' | 'horizontal' | 'axial';
+  readonly mounting_angle_deg: number;
+  /** In the order measured (descending speed for a coast-down). */
+  readonly points: readonly { readonly rpm: number; readonly amp_pk_mm_s: number; readonly phase_deg: number }[];
+  readonly resonances: readonly Resonance[];
+}
+
+export interface Sweep {
+  readonly direction: 'up' | 'down';
+  readonly from_rpm: number;
+  readonly to_rpm: number;
+  /** Seconds from the start of the record (sample clock) to the sweep's first point. */
+  readonly start_s: number;
+  readonly duration_s: number;
+  /** Mean rate of speed change, r/min per second (negative on a coast-down). */
+  readonly rate_rpm_per_s: number;
+  readonly points: number;
+  readonly channels: readonly SweepChannel[];
+  readonly warnings: readonly string[];
+}
+
+export function sweepsFromPoints(points: readonly SpeedPoint[], cfg: Config, sampleRate: number, firstIndex = 0): Sweep[] {
+  const s = cfg.sweep;
+  const rpm = Float64Array.from(points, (p) => p.rpm);
+  let ref = cfg.machine.rated_rpm;
+  if (ref === undefined) ref = rpm.reduce((m, v) => Math.max(m, v), 0);
+  if (!(ref > 0)) return [];
+  const spans = findSweeps(rpm, { minChangeRpm: s.min_change_share * ref, reversalRpm: s.reversal_share * ref, steadyRpm: s.steady_share * ref });
+  return spans.map((span) => {
+    const pts = points.slice(span.start, span.end + 1);
+    const first = pts[0]!;
+    const last = pts[pts.length - 1]!;
+    const duration = (last.end_index - first.end_index) / sampleRate;
+    const warnings: string[] = [];
+    let worst = 0;
+    let worstAt = 0;
+    for (let i = 1; i < pts.length; i++) {
+      const change = Math.abs(pts[i]!.rpm - pts[i - 1]!.rpm) / pts[i - 1]!.rpm;
+      if (change > worst) {
+        worst = change;
+        worstAt = i;
+      }
+    }
+    if (worst * 100 > s.max_point_change_pct) {
+      const a = pts[worstAt - 1]!;
+      const b = pts[worstAt]!;
+      const rate = ((b.rpm - a.rpm) * sampleRate) / (b.end_index - a.end_index);
+      warnings.push(
+        `the speed changed ${(worst * 100).toFixed(1)} % between two points near ${b.rpm.toFixed(0)} r/min (${rate.toFixed(0)} r/min per s): ` +
+          `too fast for ${s.revolutions_per_point} revolution(s) per point, so the curve is smeared there; lower sweep.revolutions_per_point, or sweep more slowly (limit sweep.max_point_change_pct = ${s.max_point_change_pct} %)`,
+      );
+    }
+    const gaps = pts.slice(1).filter((p) => p.after_gap).length;
+    if (gaps > 0) warnings.push(`${gaps} gap(s) in the samples during this sweep: the curve has holes there`);
+    const ascending = span.direction === 'up' ? pts : [...pts].reverse();
+    const channels: SweepChannel[] = cfg.sensors.map((sensor, c) => {
+      const res = findResonances(
+        ascending.map((p) => p.rpm),
+        ascending.map((p) => p.amp_pk_mm_s[c]!),
+        ascending.map((p) => p.phase_deg[c]!),
+        { minPhaseShiftDeg: s.min_phase_shift_deg, ratedRpm: cfg.machine.rated_rpm },
+      );
+      return {
+        id: sensor.id,
+        bearing: sensor.bearing,
+        direction: sensor.direction,
+        mounting_angle_deg: sensor.mounting_angle_deg,
+        points: pts.map((p) => ({ rpm: p.rpm, amp_pk_mm_s: p.amp_pk_mm_s[c]!, phase_deg: p.phase_deg[c]! })),
+        resonances: res,
+      };
+    });
+    return {
+      direction: span.direction,
+      from_rpm: first.rpm,
+      to_rpm: last.rpm,
+      start_s: (first.end_index - firstIndex) / sampleRate,
+      duration_s: duration,
+      rate_rpm_per_s: duration > 0 ? (last.rpm - first.rpm) / duration : 0,
+      points: pts.length,
+      channels,
+      warnings,
+    };
+  });
+}
