@@ -480,7 +480,7 @@ export class Workbench {
             ),
           ]
         : h('p', null, 'No weight change: the rotor as found.'),
-      h('div', { class: 'cautions' }, h('h3', null, 'Before start-up'), h('ul', null, h('li', null, 'Everyone clear of the fan; nobody in line with the impeller (in its plane of rotation).'), h('li', null, 'Every weight secured as the fan maker allows; tools and loose parts removed.'))),
+      h('div', { class: 'cautions' }, h('h3', null, 'Before start-up'), h('ul', null, h('li', null, 'Everyone clear of the fan; nobody in line with the impeller (in its plane of rotation).'), h('li', null, 'Every weight secured as the fan maker allows; tools and loose parts removed.'), h('li', null, "Watch the vibration during the run; stop the fan at once if it climbs into zone D or to the plant's trip level."))),
       h('p', null, `Run the fan at steady speed. The reading settles over ${this.session.capture.settle_revolutions} revolutions, then the 1x vectors are averaged over:`),
       h('label', { for: 'f-revolutions' }, 'revolutions'),
       revs,
