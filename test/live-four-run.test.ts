@@ -20,6 +20,8 @@ import { SimSource, type Pacer } from '../drivers/sim/source.js';
  */
 
 const OPERATOR = 'operator-0123456789abcdef-op';
+/** What the test reads of the page's document (the project compiles without the DOM library). */
+type Doc = { document: { querySelector(sel: string): { textContent: string | null } | null } };
 const SPEED_UP = 8;
 const CHROMIUM_ARGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
 
@@ -75,7 +77,7 @@ describe('four-run balancing on the live page with the tach lost', () => {
   async function read(field: string): Promise<number> {
     const before = await page.textContent('#fourrun-read');
     await page.click(`#fourrun button[data-reads="${field}"]`);
-    await page.waitForFunction((b) => (document.querySelector('#fourrun-read')?.textContent ?? '') !== b, before);
+    await page.waitForFunction((b) => ((globalThis as unknown as Doc).document.querySelector('#fourrun-read')?.textContent ?? '') !== b, before);
     expect(await page.textContent('#fourrun-read')).toMatch(/spectral peak at 24\.\d+ Hz \(no tach\)|below the peak threshold/);
     return Number(await page.inputValue(`#fourrun [name="${field}"]`));
   }
