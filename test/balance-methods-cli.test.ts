@@ -86,7 +86,7 @@ describe('cautions on every output that gives a weight to fit', () => {
 });
 
 describe('turnwise zone', () => {
-  it('ISO 20816-3 group 1 rigid: 4.6 mm/s is zone C (B/C 4.5, C/D 7.1: ISO 20816-3 as in the field notes, section 3)', () => {
+  it('ISO 20816-3 group 1 rigid: 4.6 mm/s is zone C (B/C 4.5, C/D 7.1: ISO 20816-3, from memory)', () => {
     const r = cli(['zone', '--mm-s', '4.6', '--group', '1', '--support', 'rigid', '--json']);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);

@@ -14,7 +14,7 @@ function angleDiff(a: number, b: number): number {
 
 /** A variable-speed fan built from geometry (test/balance-rig.ts): response per plane and sensor changes with speed (invented figures). */
 function rigAt(rpm: number, sensors: string[] = ['DE-V', 'NDE-V'], flipP2 = false): Rig {
-  const k = (rpm / 1485) ** 2; // below the first critical speed the response grows roughly with speed squared (field notes, common practice)
+  const k = (rpm / 1485) ** 2; // below the first critical speed the response grows roughly with speed squared (common practice)
   const lag = (base: number) => base + 40 * (rpm / 1485); // lag grows with speed (invented)
   const all = [
     { id: 'DE-V', mountDeg: 90, planes: [{ gain: 0.06 * k, lagDeg: lag(20) }, { gain: 0.025 * k, lagDeg: lag(flipP2 && rpm > 1200 ? 240 : rpm > 1200 ? 95 : 30) }] },
