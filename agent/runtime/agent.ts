@@ -12,6 +12,7 @@ import type { Logger } from '../log.js';
 import type { CommandHandlers } from '../mqtt/commands.js';
 import { livePayloadFromFrame, type ChannelVerdict } from '../mqtt/live.js';
 import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
+import { metricValues } from '../mqtt/sparkplug/metrics.js';
 import { openWatcher, type Watcher, type WatchStatus } from '../watcher/index.js';
 import { GpioSpeedCheck } from './gpio-speed-check.js';
 import { AgentRuntime, type LiveConsumer, type RunSummary, type WindowConsumer } from './runtime.js';
@@ -111,6 +112,11 @@ export class Agent {
       });
       this.advisory.update({ t_ms: (w.end_index / w.sample_rate_hz) * 1000, channels });
     }
+    if (this.link?.sparkplug) {
+      const a = this.advisory?.health();
+      const adv = a ? { state: typeof a.advisory_state === 'string' ? a.advisory_state : null, energised: typeof a.advisory_outputs_energised === 'boolean' ? a.advisory_outputs_energised : null } : null;
+      this.link.updateSparkplug(metricValues(cfg.sensors, w, status, adv));
+    }
   }
 
   private onLive(f: LiveFrame, atMs: number): void {
@@ -164,6 +170,7 @@ export class Agent {
         env: this.o.env,
         agentVersion: this.o.agentVersion,
         health: () => this.health(),
+        sensors: cfg.sensors,
       });
       for (const e of this.early.splice(0)) void this.link.queueEvent(e);
     }
