@@ -8,10 +8,17 @@ import { deviceMetrics, type MetricValue } from '../agent/mqtt/sparkplug/metrics
 import { FileBdSeqStore, SparkplugNode, type BdSeqStore } from '../agent/mqtt/sparkplug/node.js';
 import { Outbox } from '../agent/outbox/outbox.js';
 import { testConfig } from './support/config.js';
+import { ManualClock } from '../agent/clock.js';
+import { validateConfig } from '../agent/config/load.js';
+import { Agent } from '../agent/runtime/agent.js';
+import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
+import { ArraySource } from './support/array-source.js';
+import { synthesize } from './support/synth.js';
+import { TestSubscriber } from './support/subscriber.js';
 import { CaptureLog } from './support/capture-log.js';
 import { testResources, until } from './support/harness.js';
 import { Mosquitto } from './support/mosquitto.js';
-import { HostRecorder, PythonSparkplug, type HostMessage } from './support/sparkplug-host.js';
+import { HostRecorder, PythonSparkplug, type HostMessage, type HostMetric } from './support/sparkplug-host.js';
 
 /**
  * The Sparkplug B edge node checked the way a host application sees it: a real mosquitto, a plain
@@ -334,6 +341,67 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
     await until(() => log.matching(/is not \{"online": true\|false/).length >= 1, 5000, 'bad STATE reported');
     expect(node.isBorn()).toBe(true);
   }, 60_000);
+});
+
+describe('Sparkplug through the whole agent', () => {
+  it('a synthesized fan going into zone D reaches the host as measured metrics, verdicts, advisory state and events (Sparkplug only)', async () => {
+    const m = await broker();
+    const rec = await recorder(m.url);
+    const prefix = `test/${Math.random().toString(16).slice(2)}`;
+    const json = await TestSubscriber.open(m.url, [`${prefix}/#`]);
+    res.defer(() => json.close());
+    const fs = 5120;
+    const step = 20;
+    const ch = (pkBefore: number, pkAfter: number, phase: number) => ({ orders: [{ order: 1, velPk: pkBefore, phaseDeg: phase, untilS: step }, { order: 1, velPk: pkAfter, phaseDeg: phase, fromS: step }], noiseMmS2: 50 });
+    // The signal the agent.test.ts fan uses: static unbalance growing from zone B to zone D at 1485 r/min.
+    const sig = synthesize({ sampleRate: fs, seconds: 50, rpm: () => 1485, channels: [ch(2, 9, 40), ch(1.8, 8, 130), ch(2, 8.5, 45), ch(1.7, 7.5, 135)], tachChannel: 4 });
+    const dir = res.tmpDir();
+    const cfgA = validateConfig({
+      machine: { id: ASSET, group: 2, support: 'rigid', rated_rpm: 1485 },
+      tach: { channel: 4, trigger_v: 2.5 },
+      sensors: [
+        { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+        { id: 'DE-H', channel: 1, bearing: 'DE', direction: 'horizontal', sensitivity_mv_per_g: 100 },
+        { id: 'NDE-V', channel: 2, bearing: 'NDE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+        { id: 'NDE-H', channel: 3, bearing: 'NDE', direction: 'horizontal', sensitivity_mv_per_g: 100 },
+      ],
+      state_dir: join(dir, 'state'),
+      mqtt: { url: m.url, topic_prefix: prefix, sparkplug: { group_id: GROUP, edge_node_id: NODE, json_topics: false } },
+      advisory: { relay: { line: 17 }, lamp: { line: 27 } },
+      watcher: { window_s: 5, on_delay_s: 10 },
+    });
+    const t0 = Date.UTC(2026, 11, 2, 6, 0, 0);
+    const agent = new Agent({ config: cfgA, source: new ArraySource(sig, fs, 2048, [], 15), boardTimesTach: false, clock: new ManualClock(t0), logger: new CaptureLog(), gpio: new FakeGpioLines(), startMs: t0 });
+    const sum = await agent.run(15_000);
+    expect(sum.drained).toBe(true);
+    await until(() => rec.count('NDEATH') >= 1, 5000, 'NDEATH at the end of the run');
+    const msgs = py.decode(rec.messages);
+    expect(sessionViolations(msgs, GROUP, NODE, ASSET)).toEqual([]);
+    // The host's view: the last value of each metric, from the DBIRTH and the DDATA that followed.
+    const dbirth = msgs.find((x) => kind(x) === 'DBIRTH')!;
+    const nameOf = new Map((dbirth.payload!.metrics ?? []).map((x) => [x.alias!, x.name!]));
+    const last = new Map<string, HostMetric>();
+    const events: Array<{ type: string; historical: boolean }> = [];
+    for (const x of msgs.filter((y) => kind(y) === 'DBIRTH' || kind(y) === 'DDATA')) {
+      for (const mt of x.payload!.metrics ?? []) {
+        const n = mt.name ?? nameOf.get(mt.alias!)!;
+        if (n === 'Event' && mt.string_value) events.push({ type: (JSON.parse(mt.string_value) as { type: string }).type, historical: mt.is_historical === true });
+        else last.set(n, mt);
+      }
+    }
+    // Expected values: what the synthesized signal was built with (1485 r/min; 1x 9 mm/s pk at DE-V after the step) and the agent.test.ts verdicts for it.
+    expect(last.get('Speed')!.double_value!).toBeCloseTo(1485, 0);
+    expect(last.get('DE-V/1x Amplitude')!.double_value!).toBeGreaterThan(9 * 0.95);
+    expect(last.get('DE-V/1x Amplitude')!.double_value!).toBeLessThan(9 * 1.05);
+    expect(last.get('Machine Zone')!.string_value).toBe('D');
+    expect(last.get('Unbalance/Verdict')!.string_value).toBe('static');
+    expect(last.get('Advisory/State')!.string_value).toBe('raised');
+    expect(last.get('Advisory/Outputs Energised')!.boolean_value).toBe(false);
+    expect(events.map((e) => e.type)).toContain('zone_changed');
+    expect(events.map((e) => e.type)).toContain('advisory_raised');
+    expect(json.messages.filter((x) => x.topic.includes('/event/'))).toEqual([]); // json_topics: false
+    console.info(`through the agent: ${msgs.length} Sparkplug messages, ${events.length} events (${events.filter((e) => e.historical).length} historical)`);
+  }, 90_000);
 });
 
 describe('the session checker itself', () => {
