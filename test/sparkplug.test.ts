@@ -7,6 +7,7 @@ import { resolveMqttSettings } from '../agent/mqtt/settings.js';
 import { deviceMetrics, type MetricValue } from '../agent/mqtt/sparkplug/metrics.js';
 import { FileBdSeqStore, SparkplugNode, type BdSeqStore } from '../agent/mqtt/sparkplug/node.js';
 import { Outbox } from '../agent/outbox/outbox.js';
+import { readEventLog } from '../agent/eventlog/event-log.js';
 import { testConfig } from './support/config.js';
 import { ManualClock } from '../agent/clock.js';
 import { validateConfig } from '../agent/config/load.js';

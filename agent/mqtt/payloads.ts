@@ -114,9 +114,12 @@ const agentHealth = z
     advisory_raised_total: optCount('Times the advisory was raised since the agent started.'),
     advisory_acknowledged_total: optCount('Acknowledgements since the agent started.'),
     advisory_bearings_without_vote: z.string().nullable().optional().describe('Comma-separated bearings with too few OK voting channels; null when none.'),
+    event_log_written_total: optCount('Events written to the event log under state_dir (turnwise events) since the agent started.'),
+    event_log_failed_total: optCount('Events the event log could not write (disk full, permissions).'),
+    event_log_ok: z.boolean().optional().describe('The last write to the event log worked.'),
   })
   .catchall(healthValue)
-  .describe('Health figures of the other stages: measurement loop, acquisition source (source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory (advisory_*).');
+  .describe('Health figures of the other stages: measurement loop, acquisition source (source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory (advisory_*), event log (event_log_*).');
 
 export const heartbeatPayload = z
   .object({

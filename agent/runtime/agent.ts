@@ -9,6 +9,7 @@ import type { Config } from '../config/schema.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
+import { EventLog } from '../eventlog/event-log.js';
 import type { CommandHandlers } from '../mqtt/commands.js';
 import { livePayloadFromFrame, type ChannelVerdict } from '../mqtt/live.js';
 import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
@@ -57,6 +58,7 @@ export class Agent {
   readonly watcher: Watcher;
   readonly handlers: CommandHandlers = {};
   private link: PlantLink | null = null;
+  private readonly eventLog: EventLog | null;
   private advisory: SafeStopAdvisory | null = null;
   private gpioSpeed: GpioSpeedCheck | null = null;
   private runtime: AgentRuntime | null = null;
@@ -72,6 +74,8 @@ export class Agent {
     // A state directory that is full or holds damaged files does not stop the agent: the watcher
     // logs such trouble itself (once per burst) and lists it in status.warnings.
     this.watcher = openWatcher(o.config, this.dataClock, o.logger);
+    const el = o.config.event_log;
+    this.eventLog = el.enabled ? new EventLog({ stateDir: o.config.state_dir, maxBytes: Math.round(el.max_mb * 1024 * 1024), log: o.logger }) : null;
   }
 
   get status(): WatchStatus | null {
@@ -85,6 +89,7 @@ export class Agent {
 
   private emit(e: AgentEvent): void {
     this.events++;
+    this.eventLog?.append(e);
     this.o.onEvent?.(e);
     if (this.link) void this.link.queueEvent(e);
     else if (this.o.config.mqtt) this.early.push(e); // queued as soon as the outbox is open
@@ -143,6 +148,7 @@ export class Agent {
       ...source,
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
+      ...(this.eventLog?.health() ?? {}),
     };
   }
 
@@ -224,6 +230,7 @@ export class Agent {
     } finally {
       await this.advisory?.close();
       await this.gpioSpeed?.close();
+      this.eventLog?.close();
     }
     let drained = true;
     let lost = 0;
