@@ -74,3 +74,16 @@ export function stuckReason(c: MqttClient, s: { connected: boolean; attemptAtMs:
   }
   return null;
 }
+
+/** Ends a client at once, whatever state it is in (a stuck client may not even have a socket; mqtt.js then throws). */
+export function forceEnd(c: MqttClient): void {
+  try {
+    c.end(true);
+  } catch {
+    try {
+      c.stream?.destroy();
+    } catch {
+      // nothing more to end
+    }
+  }
+}

@@ -1,6 +1,6 @@
 import { connect as mqttConnect, type IClientOptions, type IConnackPacket, type IPublishPacket, type MqttClient } from 'mqtt';
 import { reconnectDelayMs } from './backoff.js';
-import { brokerLimits, ProtocolChoice, publishPacketBytes, stuckReason, type BrokerLimits } from './link-habits.js';
+import { brokerLimits, forceEnd, ProtocolChoice, publishPacketBytes, stuckReason, type BrokerLimits } from './link-habits.js';
 import type { AgentEvent } from '../events.js';
 import type { AddOutcome, Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
@@ -357,7 +357,7 @@ export class MqttPublisher {
     if (c !== this.client) return;
     const wasConnected = this.connected;
     this.dropClient(c);
-    c.end(true);
+    forceEnd(c);
     if (this.stopping) return;
     if (!wasConnected && this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)) {
       this.log.info({ url: this.s.url }, `the broker at ${this.s.url} does not take MQTT 5 (${describeConnectError(this.lastError).reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`);

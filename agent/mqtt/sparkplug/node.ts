@@ -1,6 +1,7 @@
 import { closeSync, fsyncSync, mkdirSync, openSync, readFileSync, renameSync, writeSync } from 'node:fs';
 import { dirname } from 'node:path';
-import { connect as mqttConnect, type IClientOptions, type MqttClient } from 'mqtt';
+import { connect as mqttConnect, type IClientOptions, type IConnackPacket, type MqttClient } from 'mqtt';
+import { brokerLimits, forceEnd, ProtocolChoice, publishPacketBytes, stuckReason, type BrokerLimits } from '../link-habits.js';
 import type { AgentEvent } from '../../events.js';
 import type { AddOutcome, Outbox } from '../../outbox/outbox.js';
 import type { Logger } from '../../log.js';
@@ -133,6 +134,9 @@ export interface SparkplugHealth {
   readonly messages_total: number;
   readonly events_sent_total: number;
   readonly commands_refused_total: number;
+  readonly protocol_version: 4 | 5;
+  readonly refused_too_large_total: number;
+  readonly stuck_replaced_total: number;
 }
 
 export const NAMESPACE = 'spBv1.0';
@@ -197,7 +201,14 @@ export class SparkplugNode {
   private readonly reported = new Map<string, MetricValue>();
   /** Ids of events queued while born in this session: sent as live; every other event is historical. */
   private readonly liveIds = new Set<string>();
-  private readonly counts = { connects: 0, births: 0, rebirths: 0, messages: 0, events: 0, refused: 0 };
+  private readonly counts = { connects: 0, births: 0, rebirths: 0, messages: 0, events: 0, refused: 0, too_large: 0, stuck: 0 };
+  private readonly protocol: ProtocolChoice;
+  private protoVersion: 4 | 5 = 5;
+  private limits: BrokerLimits = { receiveMaximum: null, maximumPacketSize: null };
+  private attemptAt = 0;
+  private gotConnack = false;
+  private lostSince: number | null = null;
+  private livenessTimer: NodeJS.Timeout | null = null;
 
   constructor(o: SparkplugNodeOptions) {
     this.s = o.mqtt;
@@ -217,6 +228,7 @@ export class SparkplugNode {
     this.hostWaitReportMs = o.hostWaitReportMs ?? 10_000;
     this.burst = new BurstLog(o.log, { nowMs: this.now, quietMs: Infinity });
     this.topics = sparkplugTopics(o.ids);
+    this.protocol = new ProtocolChoice(this.now);
   }
 
   start(): void {
@@ -224,6 +236,8 @@ export class SparkplugNode {
     this.started = true;
     settleMqttPacketCaches();
     this.unsubscribeOutbox = this.outbox.onChange(() => this.pump());
+    this.livenessTimer = setInterval(() => this.checkLiveness(), 1000);
+    this.livenessTimer.unref();
     this.connectNow();
   }
 
@@ -261,6 +275,9 @@ export class SparkplugNode {
       messages_total: this.counts.messages,
       events_sent_total: this.counts.events,
       commands_refused_total: this.counts.refused,
+      protocol_version: this.protoVersion,
+      refused_too_large_total: this.counts.too_large,
+      stuck_replaced_total: this.counts.stuck,
     };
   }
 
@@ -284,6 +301,7 @@ export class SparkplugNode {
     this.stopping = true;
     if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
     if (this.hostTimer) clearTimeout(this.hostTimer);
+    if (this.livenessTimer) clearInterval(this.livenessTimer);
     this.unsubscribeOutbox?.();
     const c = this.client;
     if (!c) return;
@@ -310,11 +328,17 @@ export class SparkplugNode {
     if (this.stopping) return;
     this.lastError = null;
     this.bdSeq = this.store.next();
+    this.protoVersion = this.protocol.version;
+    this.attemptAt = this.now();
+    this.gotConnack = false;
+    this.lostSince = null;
     const tls = this.s.tls;
     const opts: IClientOptions = {
       clientId: this.ids.clientId,
-      protocolVersion: 4,
+      protocolVersion: this.protoVersion,
       clean: true,
+      // Sparkplug 3.0 over MQTT 5: Clean Start true and Session Expiry Interval 0.
+      ...(this.protoVersion === 5 ? { properties: { sessionExpiryInterval: 0 } } : {}),
       reconnectPeriod: 0,
       connectTimeout: this.s.connectTimeoutMs,
       keepalive: this.s.keepaliveS,
@@ -342,13 +366,15 @@ export class SparkplugNode {
     c.on('error', (e) => {
       if (c === this.client) this.lastError = e;
     });
-    c.on('connect', () => this.onConnect(c));
+    c.on('connect', (connack) => this.onConnect(c, connack));
     c.on('close', () => this.onClose(c));
     c.on('message', (topic, payload) => this.onMessage(c, topic, payload));
   }
 
-  private onConnect(c: MqttClient): void {
+  private onConnect(c: MqttClient, connack?: IConnackPacket): void {
     if (c !== this.client) return;
+    this.gotConnack = true;
+    this.limits = brokerLimits(connack);
     this.connected = true;
     this.connectedAt = this.now();
     this.counts.connects++;
@@ -393,8 +419,13 @@ export class SparkplugNode {
     this.sending = false;
     this.liveIds.clear();
     if (this.hostTimer) clearTimeout(this.hostTimer);
-    c.end(true);
+    forceEnd(c);
     if (this.stopping) return;
+    if (!wasConnected && this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)) {
+      this.log.info({ url: this.s.url }, `the broker at ${this.s.url} does not take MQTT 5; the Sparkplug session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`);
+      this.reconnectTimer = setTimeout(() => this.connectNow(), Math.min(this.s.reconnectMinMs, 500));
+      return;
+    }
     if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
     this.scheduleReconnect(wasConnected);
   }
@@ -439,15 +470,41 @@ export class SparkplugNode {
     this.pump();
   }
 
-  /** Publishes one Sparkplug message at QoS 0, retain false, with the next seq. */
-  private send(topic: string, p: Omit<PayloadMsg, 'seq'>, cb?: (err?: Error) => void): void {
+  private checkLiveness(): void {
     const c = this.client;
-    if (!c) return;
+    if (!c || this.stopping) return;
+    if (this.connected && !c.connected) this.lostSince ??= this.now();
+    else this.lostSince = null;
+    const why = stuckReason(c, { connected: this.connected, attemptAtMs: this.attemptAt, connectTimeoutMs: this.s.connectTimeoutMs, keepaliveS: this.s.keepaliveS, lostSinceMs: this.lostSince }, this.now());
+    if (!why) return;
+    this.counts.stuck++;
+    this.lastError = Object.assign(new Error(why), { code: 'STUCK' });
+    this.onClose(c);
+  }
+
+  /**
+   * Publishes one Sparkplug message at QoS 0, retain false, with the next seq. A message over the
+   * broker's maximum packet size is not sent (the broker would drop the session) and does not use
+   * a seq; it is said once per burst. Returns whether it was sent.
+   */
+  private send(topic: string, p: Omit<PayloadMsg, 'seq'>, cb?: (err?: Error) => void): boolean {
+    const c = this.client;
+    if (!c) return false;
     const seq = this.seq;
-    this.seq = (this.seq + 1) % 256;
     const bytes = this.codec.encode({ ...p, seq });
+    const max = this.limits.maximumPacketSize;
+    if (max !== null) {
+      const size = publishPacketBytes(topic, bytes.length, 0, this.protoVersion);
+      if (size > max) {
+        this.counts.too_large++;
+        this.burst.report('too-large', `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (raise the broker's max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`, { topic, bytes: size, max_bytes: max }, topic.split('/')[2]);
+        return false;
+      }
+    }
+    this.seq = (this.seq + 1) % 256;
     this.counts.messages++;
     c.publish(topic, bytes, { qos: 0, retain: false }, (err) => cb?.(err ?? undefined));
+    return true;
   }
 
   /** Sends the oldest waiting event, one at a time. */
@@ -472,7 +529,7 @@ export class SparkplugNode {
     const historical = !this.liveIds.has(e.id);
     this.sending = true;
     const metric: MetricMsg = { alias: this.eventAlias, timestamp: ts, string_value: e.json, ...(historical ? { is_historical: true } : {}) };
-    this.send(this.topics.ddata, { timestamp: this.now(), metrics: [metric] }, (err) => {
+    const sent = this.send(this.topics.ddata, { timestamp: this.now(), metrics: [metric] }, (err) => {
       if (c !== this.client) return;
       this.sending = false;
       if (err) return; // connection going down: the event stays in the outbox
@@ -481,6 +538,14 @@ export class SparkplugNode {
       this.counts.events++;
       this.pump();
     });
+    if (!sent) {
+      // Too large for the broker: it would block every later event. It stays in the event log under state_dir (turnwise events).
+      this.sending = false;
+      this.outbox.ack(e.seq);
+      this.liveIds.delete(e.id);
+      this.log.warn({ event_id: e.id, type: e.type }, `Sparkplug: event ${e.id} (${e.type}) is too large for the broker and was not sent as a metric; it is kept in the agent's event log (turnwise events)`);
+      setTimeout(() => this.pump(), 0).unref();
+    }
   }
 
   // --- incoming ------------------------------------------------------------------------------
