@@ -1,12 +1,13 @@
 import protobuf from 'protobufjs';
 
 /**
- * The Sparkplug B payload schema, written for this project from the Eclipse Sparkplug 3.0.0
+ * The Sparkplug B payload schema, written for this project after the Eclipse Sparkplug 3.0.0
  * specification, section 6.4 "Sparkplug B MQTT Payload Definition" (6.4.1 Google Protocol Buffer
  * Schema, 6.4.5 Payload, 6.4.6 Metric, 6.4.7 MetaData, 6.4.8 PropertySet, 6.4.9 PropertyValue,
  * 6.4.10 PropertySetList, 6.4.11-13 DataSet, 6.4.14-15 Template, 6.4.16 Data Types). Field numbers
- * and types are the specification's; the extension ranges are left out (protobuf skips unknown
- * fields when decoding, and this node never writes extensions). Parsed once by protobufjs.
+ * and types are those of the schema file the specification points to (eclipse/tahu
+ * sparkplug_b/sparkplug_b.proto); the extension ranges are left out (protobuf skips unknown
+ * fields when decoding, and this node never writes extensions). Parsed by protobufjs, once per codec.
  */
 export const SPARKPLUG_B_PROTO = `
 syntax = "proto2";
