@@ -87,7 +87,7 @@ export async function openPlantLink(o: PlantLinkOptions): Promise<PlantLink> {
   let spOutbox: Outbox | null = null;
   if (sp) {
     // Its own outbox: an event leaves it when written to the Sparkplug session (QoS 0), independently of the JSON topic's PUBACKs.
-    spOutbox = await Outbox.open({ dir: join(o.stateDir, 'sparkplug-outbox'), maxEvents: ob.maxEvents, maxBytes: ob.maxBytes, fs: o.fs, now, onNotice: (n) => o.log.warn({ notice: n.kind }, `Sparkplug outbox: ${n.kind}`) });
+    spOutbox = await Outbox.open({ dir: join(o.stateDir, 'sparkplug-outbox'), maxEvents: ob.maxEvents, maxBytes: ob.maxBytes, fs: o.fs, now, onNotice: (n) => o.log.warn({ notice: n.kind }, `Sparkplug outbox: ${String(eventFromNotice(n, o.asset, new Date(now()).toISOString(), randomUUID()).message)}`) });
     node = new SparkplugNode({
       mqtt: settings,
       ids: { groupId: sp.group_id, edgeNodeId: sp.edge_node_id, deviceId: sp.device_id ?? o.asset, primaryHostId: sp.primary_host_id, clientId: sp.client_id ?? `${settings.clientId}-spb` },
