@@ -149,7 +149,28 @@ export class Agent {
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
       ...(this.eventLog?.health() ?? {}),
+      ...this.linkHealth(),
     };
+  }
+
+  /** MQTT session facts for the heartbeat: protocol level, refusals, stuck clients, and the Sparkplug node's state. */
+  private linkHealth(): Record<string, number | boolean | null> {
+    if (!this.link) return {};
+    const i = this.link.publisher.linkInfo();
+    const out: Record<string, number | boolean | null> = { mqtt_protocol_version: i.protocol_version, mqtt_refused_too_large_total: i.refused_too_large_total, mqtt_stuck_replaced_total: i.stuck_replaced_total };
+    const sp = this.link.sparkplug?.health();
+    if (sp) {
+      Object.assign(out, {
+        sparkplug_connected: sp.connected,
+        sparkplug_born: sp.born,
+        sparkplug_primary_host_online: sp.primary_host_online,
+        sparkplug_bdseq: sp.bdseq,
+        sparkplug_births_total: sp.births_total,
+        sparkplug_events_sent_total: sp.events_sent_total,
+        sparkplug_commands_refused_total: sp.commands_refused_total,
+      });
+    }
+    return out;
   }
 
   /** Opens outputs, runs until the source ends or stop(), then drains the outbox for at most `drainMs`. */
