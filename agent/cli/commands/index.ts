@@ -11,6 +11,7 @@ export const commands: readonly CommandEntry[] = [
   { name: 'check-config', summary: 'validate a YAML config file and print what it sets', load: async () => (await import('./check-config.js')).checkConfigCommand },
   { name: 'condition', summary: 'show baseline, last reported zone and trend; learn or clear the 1x baseline', load: async () => (await import('./condition.js')).conditionCommand },
   { name: 'demo', summary: 'the whole product on a laptop: simulated demo fan, MQTT broker, live page, a week in minutes', load: async () => (await import('./demo.js')).demoCommand },
+  { name: 'events', summary: 'list the events the agent kept under state_dir (survives reboots; the journal may not)', load: async () => (await import('./events.js')).eventsCommand },
   { name: 'live', summary: 'make access tokens for the live page and check its config', load: async () => (await import('./live.js')).liveCommand },
   { name: 'mqtt', summary: 'plant-network helpers: topic layout, outbox contents, payload schemas', load: async () => (await import('./mqtt.js')).mqttCommand },
   { name: 'outputs-off', summary: 'drop the advisory relay and lamp (run by systemd after the agent stopped, however it stopped)', load: async () => (await import('./outputs-off.js')).outputsOffCommand },
