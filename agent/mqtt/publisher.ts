@@ -7,6 +7,7 @@ import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
 import { SCHEMA_IDS, type HeartbeatPayload, type LinkHealth, type LivePayload, type ReplyPayload, type StatusPayload } from './payloads.js';
 import { settleMqttPacketCaches } from './packet-cache.js';
+import { clientOptions } from './client-options.js';
 import type { MqttSettings } from './settings.js';
 
 /**
@@ -284,29 +285,7 @@ export class MqttPublisher {
     this.attemptAt = this.now();
     this.gotConnack = false;
     this.lostSince = null;
-    const tls = this.s.tls;
-    const opts: IClientOptions = {
-      clientId: this.s.clientId,
-      protocolVersion: this.protoVersion,
-      clean: true,
-      // MQTT 5: clean start and a session that ends with the connection, as clean session does in 3.1.1.
-      ...(this.protoVersion === 5 ? { properties: { sessionExpiryInterval: 0 } } : {}),
-      reconnectPeriod: 0,
-      connectTimeout: this.s.connectTimeoutMs,
-      keepalive: this.s.keepaliveS,
-      queueQoSZero: false,
-      resubscribe: false,
-      // No 65536-entry number cache (6.5 MB of heap) for a few messages a second (packet-cache.ts).
-      writeCache: false,
-      will: { topic: this.s.topics.status, payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))), qos: 1, retain: true },
-      username: this.s.username,
-      password: this.s.password?.reveal(),
-      ca: tls?.ca,
-      cert: tls?.cert,
-      key: tls?.key?.reveal(),
-      servername: tls?.servername,
-      rejectUnauthorized: true,
-    };
+    const opts = clientOptions(this.s, this.s.clientId, this.protoVersion, { topic: this.s.topics.status, payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))), qos: 1, retain: true });
     let c: MqttClient;
     try {
       c = this.connectFn(this.s.url, opts);

@@ -1,12 +1,10 @@
 import { loadConfig } from '../../config/load.js';
 import type { Config } from '../../config/schema.js';
-import { Analyzer } from '../../dsp/analyzer.js';
 import type { WindowResult } from '../../dsp/types.js';
 import { assessWindow, FileBaselineStore, type WindowAssessment } from '../../watcher/index.js';
 import { UserError } from '../../errors.js';
 import { fmtVel, round, table } from '../../report/units.js';
-import { WavSource } from '../../../drivers/wav/reader.js';
-import { parseCommandArgs } from '../args.js';
+import { measureRecording, recordingArgs } from '../recording.js';
 import type { Command } from '../command.js';
 import { Progress } from '../progress.js';
 
@@ -14,25 +12,7 @@ const usage = 'turnwise analyze REC.wav --config CFG.yaml [--json] [--pcm-full-s
 
 /** Runs the measurement core over a whole recording: one window. */
 export async function analyzeRecording(file: string, cfg: Config, opts: { pcmFullScaleV?: number; progress?: Progress } = {}): Promise<WindowResult> {
-  const src = new WavSource(file, { blockFrames: 8192, pcmFullScaleV: opts.pcmFullScaleV });
-  const info = await src.open();
-  try {
-    const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 8192, totalSamples: info.totalSamples, sourceName: file });
-    const total = info.totalSamples ?? 0;
-    for await (const item of src.items()) {
-      an.push(item);
-      if (item.kind === 'samples') {
-        const done = item.startIndex + (item.channels[0]?.length ?? 0);
-        opts.progress?.update(done, total, `${(done / info.sampleRate).toFixed(1)} of ${(total / info.sampleRate).toFixed(1)} s`);
-      }
-    }
-    opts.progress?.done();
-    const problem = an.diagnoseTach();
-    if (problem) throw new UserError(file, problem, 'no order vectors can be measured without a trustworthy once-per-turn reference');
-    return an.takeWindow();
-  } finally {
-    await src.close();
-  }
+  return (await measureRecording(file, cfg, opts)).analyzer.takeWindow();
 }
 
 /** The DSP's warnings, and the watcher's about the setup (a tach.pulses_per_rev that does not fit the rated speed). */
@@ -130,24 +110,12 @@ export const analyzeCommand: Command = {
   name: 'analyze',
   usage,
   async run(argv) {
-    const { values, positionals } = parseCommandArgs('analyze', usage, argv, {
-      config: { type: 'string', short: 'c' },
-      json: { type: 'boolean' },
-      'pcm-full-scale-v': { type: 'string' },
-    });
-    const file = positionals[0];
-    if (!file || positionals.length > 1) throw new UserError('turnwise analyze', 'expects exactly one recording', `usage: ${usage}`);
-    if (!values.config) throw new UserError('turnwise analyze', 'missing --config', `usage: ${usage}`);
-    let pcmFullScaleV: number | undefined;
-    if (values['pcm-full-scale-v'] !== undefined) {
-      pcmFullScaleV = Number(values['pcm-full-scale-v']);
-      if (!(pcmFullScaleV > 0)) throw new UserError('--pcm-full-scale-v', `expects a positive number of volts, got "${values['pcm-full-scale-v']}"`, 'e.g. --pcm-full-scale-v 10 for a +/-10 V board');
-    }
-    const cfg = loadConfig(values.config);
+    const { file, config, json, pcmFullScaleV } = recordingArgs('analyze', usage, argv);
+    const cfg = loadConfig(config);
     const w = await analyzeRecording(file, cfg, { pcmFullScaleV, progress: new Progress('analyze') });
     // The stored baseline (learned at commissioning) when there is one, for the baseline-relative alarm.
     const a = assessWindow(cfg, w, { baseline: new FileBaselineStore(cfg.state_dir).load() ?? undefined });
-    process.stdout.write(values.json ? JSON.stringify(analysisJson(file, w, a), null, 2) + '\n' : analysisTable(file, w, cfg, a));
+    process.stdout.write(json ? JSON.stringify(analysisJson(file, w, a), null, 2) + '\n' : analysisTable(file, w, cfg, a));
     return 0;
   },
 };

@@ -1,12 +1,10 @@
 import { loadConfig } from '../../config/load.js';
 import type { Config } from '../../config/schema.js';
-import { Analyzer } from '../../dsp/analyzer.js';
 import { SpeedPointRecorder } from '../../dsp/speed-points.js';
 import { UserError } from '../../errors.js';
 import { fmtVel, round, table } from '../../report/units.js';
 import { sweepsFromPoints, type Sweep } from '../../sweep/sweeps.js';
-import { WavSource } from '../../../drivers/wav/reader.js';
-import { parseCommandArgs } from '../args.js';
+import { measureRecording, recordingArgs } from '../recording.js';
 import type { Command } from '../command.js';
 import { Progress } from '../progress.js';
 
@@ -14,26 +12,11 @@ const usage = 'turnwise sweep REC.wav --config CFG.yaml [--json] [--pcm-full-sca
 
 /** Reads a recording into run-ups and coast-downs (the 1x vector against speed, resonances). */
 export async function sweepRecording(file: string, cfg: Config, opts: { pcmFullScaleV?: number; progress?: Progress } = {}): Promise<{ sweeps: Sweep[]; points: number; sampleRate: number }> {
-  const src = new WavSource(file, { blockFrames: 8192, pcmFullScaleV: opts.pcmFullScaleV });
-  const info = await src.open();
-  try {
-    const recorder = new SpeedPointRecorder({ channels: cfg.sensors.length, sampleRate: info.sampleRate, resamplePoints: cfg.dsp.resample_points, revolutionsPerPoint: cfg.sweep.revolutions_per_point });
-    const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 8192, totalSamples: info.totalSamples, sourceName: file, revolutionTap: recorder });
-    const total = info.totalSamples ?? 0;
-    for await (const item of src.items()) {
-      an.push(item);
-      if (item.kind === 'samples') {
-        const done = item.startIndex + (item.channels[0]?.length ?? 0);
-        opts.progress?.update(done, total, `${(done / info.sampleRate).toFixed(1)} of ${(total / info.sampleRate).toFixed(1)} s`);
-      }
-    }
-    opts.progress?.done();
-    const problem = an.diagnoseTach();
-    if (problem) throw new UserError(file, problem, 'no 1x vector can be measured without a trustworthy once-per-turn reference');
-    return { sweeps: sweepsFromPoints(recorder.points(), cfg, info.sampleRate), points: recorder.length, sampleRate: info.sampleRate };
-  } finally {
-    await src.close();
-  }
+  let recorder: SpeedPointRecorder | undefined;
+  const tapFor = (sampleRate: number) =>
+    (recorder = new SpeedPointRecorder({ channels: cfg.sensors.length, sampleRate, resamplePoints: cfg.dsp.resample_points, revolutionsPerPoint: cfg.sweep.revolutions_per_point }));
+  const { sampleRate } = await measureRecording(file, cfg, { ...opts, tapFor });
+  return { sweeps: sweepsFromPoints(recorder!.points(), cfg, sampleRate), points: recorder!.length, sampleRate };
 }
 
 /** The JSON `turnwise sweep --json` prints. Units are in the field names. */
@@ -107,23 +90,11 @@ export const sweepCommand: Command = {
   name: 'sweep',
   usage,
   async run(argv) {
-    const { values, positionals } = parseCommandArgs('sweep', usage, argv, {
-      config: { type: 'string', short: 'c' },
-      json: { type: 'boolean' },
-      'pcm-full-scale-v': { type: 'string' },
-    });
-    const file = positionals[0];
-    if (!file || positionals.length > 1) throw new UserError('turnwise sweep', 'expects exactly one recording', `usage: ${usage}`);
-    if (!values.config) throw new UserError('turnwise sweep', 'missing --config', `usage: ${usage}`);
-    let pcmFullScaleV: number | undefined;
-    if (values['pcm-full-scale-v'] !== undefined) {
-      pcmFullScaleV = Number(values['pcm-full-scale-v']);
-      if (!(pcmFullScaleV > 0)) throw new UserError('--pcm-full-scale-v', `expects a positive number of volts, got "${values['pcm-full-scale-v']}"`, 'e.g. --pcm-full-scale-v 10 for a +/-10 V board');
-    }
-    const cfg = loadConfig(values.config);
+    const { file, config, json, pcmFullScaleV } = recordingArgs('sweep', usage, argv);
+    const cfg = loadConfig(config);
     const { sweeps } = await sweepRecording(file, cfg, { pcmFullScaleV, progress: new Progress('sweep') });
     if (sweeps.length === 0) process.stderr.write('turnwise sweep: no run-up or coast-down found\n');
-    process.stdout.write(values.json ? JSON.stringify(sweepJson(file, sweeps), null, 2) + '\n' : sweepTable(file, sweeps, cfg));
+    process.stdout.write(json ? JSON.stringify(sweepJson(file, sweeps), null, 2) + '\n' : sweepTable(file, sweeps, cfg));
     return 0;
   },
 };

@@ -9,6 +9,7 @@ import { BurstLog } from '../../burst-log.js';
 import { reconnectDelayMs } from '../backoff.js';
 import { settleMqttPacketCaches } from '../packet-cache.js';
 import { describeConnectError, type ConnectFn } from '../publisher.js';
+import { clientOptions } from '../client-options.js';
 import type { MqttSettings } from '../settings.js';
 import { EVENT_METRIC, propertiesOf, sameValue, valueFields, type MetricDef, type MetricValue } from './metrics.js';
 import { DataType, SparkplugCodec, type MetricMsg, type PayloadMsg } from './proto.js';
@@ -332,28 +333,7 @@ export class SparkplugNode {
     this.attemptAt = this.now();
     this.gotConnack = false;
     this.lostSince = null;
-    const tls = this.s.tls;
-    const opts: IClientOptions = {
-      clientId: this.ids.clientId,
-      protocolVersion: this.protoVersion,
-      clean: true,
-      // Sparkplug 3.0 over MQTT 5: Clean Start true and Session Expiry Interval 0.
-      ...(this.protoVersion === 5 ? { properties: { sessionExpiryInterval: 0 } } : {}),
-      reconnectPeriod: 0,
-      connectTimeout: this.s.connectTimeoutMs,
-      keepalive: this.s.keepaliveS,
-      queueQoSZero: false,
-      resubscribe: false,
-      writeCache: false,
-      will: { topic: this.topics.ndeath, payload: this.deathPayload(), qos: 1, retain: false },
-      username: this.s.username,
-      password: this.s.password?.reveal(),
-      ca: tls?.ca,
-      cert: tls?.cert,
-      key: tls?.key?.reveal(),
-      servername: tls?.servername,
-      rejectUnauthorized: true,
-    };
+    const opts = clientOptions(this.s, this.ids.clientId, this.protoVersion, { topic: this.topics.ndeath, payload: this.deathPayload(), qos: 1, retain: false });
     let c: MqttClient;
     try {
       c = this.connectFn(this.s.url, opts);
