@@ -1,7 +1,7 @@
 import type { SampleSource, SourceInfo, SourceItem } from '../../drivers/source.js';
 import type { Clock } from '../clock.js';
 import type { Config } from '../config/schema.js';
-import { Analyzer } from '../dsp/analyzer.js';
+import { Analyzer, type RevolutionTap } from '../dsp/analyzer.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { Logger } from '../log.js';
 
@@ -48,6 +48,8 @@ export interface RuntimeOptions {
   readonly boardTimesTach?: boolean;
   /** Built once the source is open (it needs the sample rate and channel count). */
   readonly rawTap?: (info: SourceInfo, timeOf: (index: number) => number, maxBlock: number) => RawTap;
+  /** Built once the source is open: sees every trusted revolution (the sweep recorder's speed points). */
+  readonly revolutionTap?: (info: SourceInfo, timeOf: (index: number) => number) => RevolutionTap;
 }
 
 /** What the loop has handled so far (for the heartbeat while it runs, and the summary). */
@@ -81,6 +83,8 @@ export class AgentRuntime {
     const fs = info.sampleRate;
     const startMs = this.opts.startMs ?? clock.now();
     const maxBlock = 1 << 16;
+    const scale = this.opts.timeScale ?? 1;
+    const timeOf = (index: number) => startMs + (index / fs) * 1000 * scale;
     const an = new Analyzer({
       config,
       sampleRate: fs,
@@ -89,6 +93,7 @@ export class AgentRuntime {
       boardTimesTach: this.opts.boardTimesTach,
       sourceName: info.description,
       liveRevolutions: this.opts.liveRevolutions,
+      revolutionTap: this.opts.revolutionTap?.(info, timeOf),
     });
     this.analyzer = an;
     logger.info({ source: info.description, sample_rate_hz: fs, channels: info.channelCount }, 'acquisition started');
@@ -97,8 +102,6 @@ export class AgentRuntime {
     let windowEnd = windowSamples;
     let nextLive = liveSamples;
     let first: number | undefined;
-    const scale = this.opts.timeScale ?? 1;
-    const timeOf = (index: number) => startMs + (index / fs) * 1000 * scale;
     const tap = this.opts.rawTap?.(info, timeOf, maxBlock);
     try {
       for await (const item of source.items()) {
