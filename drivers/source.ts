@@ -18,6 +18,18 @@ export interface SampleBlock {
    * the DSP then finds edges on the tach channel.
    */
   readonly tachEdges?: Float64Array;
+  /**
+   * Live sources: wall-clock time (ms) at which the block's last sample was received. The runtime
+   * anchors the sample clock to it (never to "sample 0 = agent start"). Absent for recordings and
+   * the simulator, whose time is their start time plus index over rate.
+   */
+  readonly arrivedMs?: number;
+  /**
+   * Sample-clock ticks by which each channel's samples lag the instant their index names (the ADC's
+   * filter delay plus the channel's skew inside a multiplexed sample), one per channel; absent: 0.
+   * Tach edges in `tachEdges` are already true instants (the board's tach delay removed).
+   */
+  readonly channelDelays?: Float64Array;
 }
 
 export interface GapMarker {
@@ -28,6 +40,11 @@ export interface GapMarker {
   readonly toIndex: number;
   /** Why samples were lost, in words (e.g. "sequence jump 41 -> 44", "device unplugged"). */
   readonly reason: string;
+  /**
+   * The source's sample clock restarted (board power cycle or reset): the length of the gap is an
+   * estimate, and wall-clock times must be anchored again at the next block.
+   */
+  readonly clockRestart?: boolean;
 }
 
 export type SourceItem = SampleBlock | GapMarker;

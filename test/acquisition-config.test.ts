@@ -21,10 +21,10 @@ describe('acquisition config section', () => {
 
   it('fills the serial defaults and maps them to the driver options', () => {
     const cfg = validateConfig({ ...base, acquisition: serial });
-    expect(cfg.acquisition).toEqual({ ...serial, baud: 921600, board_tach_edges: false, reconnect_min_ms: 500, reconnect_max_ms: 10000, stall_timeout_ms: 5000, queue_frames: 256, max_frame_bytes: 262144 });
+    expect(cfg.acquisition).toEqual({ ...serial, baud: 921600, board_tach_edges: false, reconnect_min_ms: 500, reconnect_max_ms: 10000, stall_timeout_ms: 5000, queue_frames: 256, max_frame_bytes: 262144, sample_rate_tolerance_ppm: 100, max_samples_per_channel: 8192, clock_step_tolerance_ms: 1000 });
     if (cfg.acquisition?.driver !== 'serial') throw new Error('expected the serial driver');
     const o = serialOptionsFromConfig(cfg.acquisition, silentLogger);
-    expect(o).toMatchObject({ device: '/dev/serial/by-id/usb-Kessrow_DAQ_0001-if00', sampleRateHz: 25600, channels: 8, reconnectMinMs: 500, maxFrameBytes: 262144 });
+    expect(o).toMatchObject({ device: '/dev/serial/by-id/usb-Kessrow_DAQ_0001-if00', sampleRateHz: 25600, channels: 8, reconnectMinMs: 500, maxFrameBytes: 262144, sampleRateTolerancePpm: 100, maxSamplesPerChannel: 8192, boardTachEdges: false });
   });
 
   it('names each key the serial driver is missing', () => {

@@ -164,10 +164,13 @@ describe('turnwise agent end to end', () => {
       last_window_revolutions_rejected: last.revolutions_rejected,
       last_window_speed_rpm: Math.round(last.speed_rpm! * 10) / 10,
       // The source's own counters, prefixed, read when the heartbeat goes out.
+      time_anchors: 1, // a source without arrival times: anchored once, at its start time
       source_device: '/dev/turnwise-daq',
       source_connected: true,
       source_frames_ok: source.blocksSent,
       source_gaps: 1,
+      source_last_gap_from_index: 4 * fs,
+      source_last_gap_to_index: 4 * fs + 1024,
       source_samples_lost: 1024,
       source_crc_errors: 3,
       source_stalls: 1,
@@ -278,6 +281,7 @@ class BoardLikeSource implements SampleSource {
   blocksSent = 0;
   private gapsSent = 0;
   private samplesLost = 0;
+  private lastGap: readonly [number, number] | null = null;
   private nextPulseS = 0.01;
 
   constructor(
@@ -300,6 +304,7 @@ class BoardLikeSource implements SampleSource {
       if (gap) {
         this.gapsSent++;
         this.samplesLost += gap[1] - gap[0];
+        this.lastGap = gap;
         yield { kind: 'gap', fromIndex: gap[0], toIndex: gap[1], reason: 'test: frames lost' };
         i = gap[1];
         continue;
@@ -343,6 +348,16 @@ class BoardLikeSource implements SampleSource {
       samples_lost: this.samplesLost,
       sequence_anomalies: 0,
       clock_restarts: 0,
+      timing_faults: 0,
+      protocol_version: 2,
+      sample_delay_ticks: 38.5,
+      tach_delay_ticks: 2,
+      max_skew_ticks: 0,
+      tach_mode_mismatches: 0,
+      last_gap_from_index: this.lastGap?.[0] ?? null,
+      last_gap_to_index: this.lastGap?.[1] ?? null,
+      last_gap_reason: this.lastGap ? 'test: frames lost' : null,
+      modem_lines: 'asserted',
       overruns: 0,
       stalls: 1,
       reconnects: 1,

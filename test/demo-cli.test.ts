@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { spawn } from 'node:child_process';
+import { createServer, type Server } from 'node:net';
 import { existsSync, mkdtempSync, readdirSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -105,6 +106,30 @@ describe('turnwise demo (npm start)', () => {
       expect(readdirSync(mine).length).toBeGreaterThan(0);
     } finally {
       rmSync(join(mine, '..'), { recursive: true, force: true });
+    }
+  });
+
+  it('a port already in use gets one message naming the port and the option that changes it, before anything starts', async () => {
+    // A real listener holds a loopback port, as a demo left running would.
+    const holder: Server = createServer();
+    await new Promise<void>((r) => holder.listen(0, '127.0.0.1', () => r()));
+    const taken = (holder.address() as { port: number }).port;
+    try {
+      const live = runCli(['demo', '--seconds', '2', '--port', String(taken), '--mqtt-port', '0'], { timeoutMs: 30_000 });
+      expectNoStack(live.stderr);
+      expect(live.code).toBe(2);
+      expect(live.stdout).toBe('');
+      expect(live.stderr).toBe(
+        `turnwise demo: --port ${taken}: port ${taken} on 127.0.0.1, for the live page, is already in use, probably by another turnwise demo\n` +
+          `  -> start the demo on another port, e.g. \`npm start -- --port ${taken + 1}\` (or --port 0 for any free port), or stop the program using port ${taken}\n`,
+      );
+      const mqtt = runCli(['demo', '--seconds', '2', '--port', '0', '--mqtt-port', String(taken)], { timeoutMs: 30_000 });
+      expectNoStack(mqtt.stderr);
+      expect(mqtt.code).toBe(2);
+      expect(mqtt.stdout).toBe('');
+      expect(mqtt.stderr).toMatch(new RegExp(`^turnwise demo: --mqtt-port ${taken}: port ${taken} on 127\\.0\\.0\\.1, for the embedded MQTT broker, is already in use, .+\\n {2}-> start the demo on another port, e\\.g\\. \`npm start -- --mqtt-port ${taken + 1}\`.+\\n$`));
+    } finally {
+      await new Promise<void>((r) => holder.close(() => r()));
     }
   });
 });

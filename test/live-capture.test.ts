@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import type { LiveFrame } from '../agent/dsp/types.js';
-import { RunCapture, type CaptureSettings } from '../agent/live/capture.js';
+import { RunCapture, type CaptureSettings } from '../agent/balance/workbench/capture.js';
 
 /**
  * Capturing a balancing run from live frames: settle, then average the live 1x vectors over N
@@ -59,6 +59,22 @@ describe('capturing a balancing run from the live vectors', () => {
     // Scatter of A: every frame is 5 sin(10 deg) from the mean, i.e. tan(10 deg) = 17.6 % of it: flagged.
     expect(r.readings.A!.scatter_pct).toBeCloseTo(100 * Math.tan((10 * Math.PI) / 180), 1);
     expect(r.notes.some((n) => n.includes('A was unsteady'))).toBe(true);
+  });
+
+  it('counts revolutions on the sample clock: a wall-clock step forward in the frame times does not end the averaging early', () => {
+    const fs = 25_600;
+    const at = (i: number) => ({ ...frame(1500, { A: [5, 40] }), sample_index: (i + 1) * fs * 0.5, sample_rate_hz: fs });
+    const cap = new RunCapture(['A'], SETTINGS);
+    // Frame times 0.5 s apart on the sample clock; at frame 6 the wall clock stepped 60 s forward
+    // (the runtime re-anchored): 1500 revolutions by the wall clock, 12.5 by the samples.
+    const t = (i: number) => 1_000_000 + i * 500 + (i >= 6 ? 60_000 : 0);
+    let i = 0;
+    for (; i < 40 && !cap.finished; i++) cap.push(at(i), t(i));
+    const r = cap.result!;
+    // Own computation: 50 settling + 100 averaged revolutions at 12.5 per frame need 12 frames after the first.
+    expect(i).toBe(13);
+    expect(r.revolutions).toBeGreaterThanOrEqual(100);
+    expect(r.revolutions).toBeLessThan(100 + 12.5 + 1e-9);
   });
 
   it('does not call a small vector unsteady for scatter below the floor', () => {

@@ -28,6 +28,9 @@ describe('without native addons', () => {
       import('../drivers/serial/probe.js'),
     ]);
     expect(mods[0].commands.map((c) => c.name)).toContain('probe-serial');
+    // Each command's module loads only when the command runs: load every one here.
+    const loaded = await Promise.all(mods[0].commands.map((c) => c.load()));
+    expect(loaded.map((c) => c.name)).toEqual(mods[0].commands.map((c) => c.name));
   });
 
   it('turns a missing onoff into a UserError after picking the chip', async () => {

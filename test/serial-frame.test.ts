@@ -97,25 +97,28 @@ describe('CRC-32', () => {
   });
 });
 
+/** The example frame of PROTOCOL.md section 7 (as content). */
+const EXAMPLE_FRAME: FrameContent = {
+  sequence: 7,
+  firstSample: 1000,
+  sampleRateHz: 25600,
+  format: 'int24',
+  scaleVPerCount: [2 ** -20, 2 ** -18],
+  offsetV: [0, 0.5],
+  samples: [
+    [1, -1, 8388607],
+    [-8388608, 0, 4096],
+  ],
+  tachEdges: [1001.5],
+};
+
 describe('frame encoding', () => {
   it('matches the example frame printed in PROTOCOL.md byte for byte', () => {
     const doc = readFileSync(new URL('../drivers/serial/PROTOCOL.md', import.meta.url), 'utf8');
     const block = /<!-- example-frame -->\s*```\n([\s\S]*?)```/.exec(doc);
     expect(block).not.toBeNull();
     const docBytes = Buffer.from(block![1]!.replace(/\s+/g, ''), 'hex');
-    const f = encodeFrame({
-      sequence: 7,
-      firstSample: 1000,
-      sampleRateHz: 25600,
-      format: 'int24',
-      scaleVPerCount: [2 ** -20, 2 ** -18],
-      offsetV: [0, 0.5],
-      samples: [
-        [1, -1, 8388607],
-        [-8388608, 0, 4096],
-      ],
-      tachEdges: [1001.5],
-    });
+    const f = encodeFrame(EXAMPLE_FRAME);
     expect(Buffer.from(f).toString('hex')).toBe(docBytes.toString('hex'));
     // The CRC in the example is right by the independent routine.
     expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)));
@@ -271,12 +274,20 @@ describe('frame decoding', () => {
     expect(dec.counters.bad_lengths).toBe(1);
   });
 
-  it('counts an unknown protocol version as a bad header and says which version it reads', () => {
+  it('counts an unknown protocol version as a bad header and says which versions it reads', () => {
+    const f = Buffer.from(encodeFrame(content(0, 0)));
+    f[4] = 3;
+    const { sink, dec } = decodeAll(f);
+    expect(dec.counters.bad_headers).toBe(1);
+    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/protocol version 3 \(this agent reads versions 1 and 2\)/);
+  });
+
+  it('counts a version 2 frame with a version 1 header length as a bad header, naming both', () => {
     const f = Buffer.from(encodeFrame(content(0, 0)));
     f[4] = 2;
     const { sink, dec } = decodeAll(f);
     expect(dec.counters.bad_headers).toBe(1);
-    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/protocol version 2 \(this agent reads version 1\)/);
+    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/header length 40 below 48 \(version 2\)/);
   });
 
   it('rejects intact frames that do not match the configured channel count or sample rate', () => {
@@ -386,5 +397,86 @@ describe('frame decoding', () => {
     expect(dec.counters.frames_ok).toBe(400);
     expect(sink.gaps).toEqual([]);
     expect(frameLength(3, 64, 'int24', 0)).toBe(frames[0]!.length);
+  });
+});
+
+describe('protocol version 2: the board declares its timing', () => {
+  const timing = { sampleDelayTicks: 38.5, tachDelayTicks: 2.25, skewTicks: [0, 0.25, 0.5] };
+  const v2 = (seq: number, first: number, t: FrameContent['timing'] = timing, edges: number[] = [first + 5.5]) => encodeFrame({ ...content(seq, first, { edges }), timing: t });
+
+  it('matches the version 2 example frame printed in PROTOCOL.md byte for byte, fields at the offsets given there', () => {
+    const doc = readFileSync(new URL('../drivers/serial/PROTOCOL.md', import.meta.url), 'utf8');
+    const block = /<!-- example-frame-v2 -->\s*```\n([\s\S]*?)```/.exec(doc);
+    expect(block).not.toBeNull();
+    const docBytes = Buffer.from(block![1]!.replace(/\s+/g, ''), 'hex');
+    const f = encodeFrame({ ...EXAMPLE_FRAME, timing: { sampleDelayTicks: 38.5, tachDelayTicks: 2, skewTicks: [0, 0.5] } });
+    expect(Buffer.from(f).toString('hex')).toBe(docBytes.toString('hex'));
+    // Read back field by field at the documented offsets (Node's Buffer readers, not the decoder).
+    expect(docBytes[4]).toBe(2);
+    expect(docBytes[5]).toBe(48);
+    expect(docBytes[6]).toBe(12);
+    expect(docBytes.readFloatLE(40)).toBe(38.5);
+    expect(docBytes.readFloatLE(44)).toBe(2);
+    expect(docBytes.readFloatLE(48 + 8)).toBe(0); // channel 0 skew
+    expect(docBytes.readFloatLE(48 + 12 + 8)).toBe(0.5); // channel 1 skew
+    expect(docBytes.length).toBe(48 + 2 * 12 + 8 + 3 * 2 * 3 + 4);
+    expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)));
+  });
+
+  it('gives each channel its delay (ADC delay less skew) and the tach edges as true instants (tach delay removed)', () => {
+    const { sink, dec } = decodeAll(concat([v2(0, 1000), v2(1, 1000 + SPC)]));
+    const frames = sink.items.filter((i) => i.kind === 'frame').map((i) => i.frame);
+    expect(frames).toHaveLength(2);
+    expect(frames[0]!.channelDelays).toEqual([38.5, 38.25, 38]);
+    expect(frames[0]!.tachEdges).toEqual([1000 + 5.5 - 2.25]);
+    // Samples decode exactly as in version 1.
+    expect(frames[1]!.channels[2]![3]).toBe(voltsAt(2, 1000 + SPC + 3));
+    expect(dec.timing).toMatchObject({ protocolVersion: 2, declared: true, sampleDelayTicks: 38.5, tachDelayTicks: 2.25, maxSkewTicks: 0.5 });
+    expect(dec.counters.timing_faults).toBe(0);
+  });
+
+  it('version 1 frames carry no delays: channels taken as simultaneous and undelayed', () => {
+    const { sink, dec } = decodeAll(concat(stream(2)));
+    const frames = sink.items.filter((i) => i.kind === 'frame').map((i) => i.frame);
+    expect(frames.every((f) => f.channelDelays === undefined)).toBe(true);
+    expect(dec.timing).toMatchObject({ protocolVersion: 1, declared: false });
+  });
+
+  const impossible: [string, FrameContent['timing'], RegExp][] = [
+    ['a negative ADC delay', { ...timing, sampleDelayTicks: -3 }, /sample_delay_ticks -3 outside 0\.\.1024/],
+    ['an ADC delay that is not a number', { ...timing, sampleDelayTicks: NaN }, /sample_delay_ticks NaN/],
+    ['an ADC delay of 5000 ticks', { ...timing, sampleDelayTicks: 5000 }, /sample_delay_ticks 5000 outside/],
+    ['a negative tach delay', { ...timing, tachDelayTicks: -0.5 }, /tach_delay_ticks -0\.5 outside/],
+    ['a skew of a whole sample period', { ...timing, skewTicks: [0, 1, 0.5] }, /channel 1 skew_ticks 1 outside 0 to below 1/],
+    ['a negative skew', { ...timing, skewTicks: [0, 0.25, -0.125] }, /channel 2 skew_ticks -0\.125/],
+  ];
+  for (const [what, bad, msg] of impossible) {
+    it(`${what}: counted, one clear message, samples kept with the last good declaration`, () => {
+      const { sink, dec } = decodeAll(concat([v2(0, 1000), v2(1, 1000 + SPC, bad), v2(2, 1000 + 2 * SPC, bad)]));
+      const frames = sink.items.filter((i) => i.kind === 'frame').map((i) => i.frame);
+      expect(frames).toHaveLength(3); // monitoring goes on
+      expect(dec.counters.timing_faults).toBe(2);
+      expect(frames[2]!.channelDelays).toEqual([38.5, 38.25, 38]);
+      const p = sink.problems.filter((x) => x.kind === 'timing');
+      expect(p).toHaveLength(2); // one per frame here; SerialSource logs them once per burst
+      expect(p[0]!.detail).toMatch(msg);
+      expect(p[0]!.detail).toMatch(/frame 1: impossible timing declaration .* used with the last good declaration \(sample delay 38\.5 ticks, tach delay 2\.25 ticks\).*PROTOCOL\.md 2\.6/);
+    });
+  }
+
+  it('an impossible declaration before any good one: samples used without compensation, and it says so', () => {
+    const { sink, dec } = decodeAll(v2(0, 1000, { ...timing, sampleDelayTicks: -1 }));
+    expect(sink.items.filter((i) => i.kind === 'frame')).toHaveLength(1);
+    expect(dec.counters.timing_faults).toBe(1);
+    expect(sink.problems.find((x) => x.kind === 'timing')!.detail).toMatch(/none yet: no delay compensation/);
+  });
+
+  it('rejects a declared sample rate beyond the tolerance, naming it and the key; accepts one within', () => {
+    const within = decodeAll(encodeFrame(content(0, 0, { rate: RATE * (1 + 80e-6) })), { expect: { sampleRateHz: RATE, sampleRateTolerancePpm: 100 } });
+    expect(within.dec.counters.frames_ok).toBe(1);
+    const beyond = decodeAll(encodeFrame(content(0, 0, { rate: RATE * (1 + 150e-6) })), { expect: { sampleRateHz: RATE, sampleRateTolerancePpm: 100 } });
+    expect(beyond.dec.counters.frames_ok).toBe(0);
+    expect(beyond.dec.counters.rejected_frames).toBe(1);
+    expect(beyond.sink.problems.find((p) => p.kind === 'rejected')!.detail).toMatch(/\+150 ppm from the configured 25600 Hz, beyond the tolerance of 100 ppm: .*acquisition\.sample_rate_tolerance_ppm/);
   });
 });

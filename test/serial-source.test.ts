@@ -55,17 +55,21 @@ function newBoard(firstSample = 0): BoardEmulator {
 
 interface Received {
   blocks: { startIndex: number; channels: Float32Array[]; tachEdges: number[] }[];
+  arrivals: number[];
   gaps: GapMarker[];
   done: Promise<void>;
 }
 
 /** Consumes the source in the background, copying every block (its arrays are reused). */
 function consume(source: SerialSource): Received {
-  const r: Received = { blocks: [], gaps: [], done: Promise.resolve() };
+  const r: Received = { blocks: [], arrivals: [], gaps: [], done: Promise.resolve() };
   r.done = (async () => {
     for await (const item of source.items()) {
       if (item.kind === 'gap') r.gaps.push(item);
-      else r.blocks.push({ startIndex: item.startIndex, channels: item.channels.map((c) => Float32Array.from(c)), tachEdges: Array.from(item.tachEdges ?? []) });
+      else {
+        r.blocks.push({ startIndex: item.startIndex, channels: item.channels.map((c) => Float32Array.from(c)), tachEdges: Array.from(item.tachEdges ?? []) });
+        r.arrivals.push(item.arrivedMs ?? NaN);
+      }
     }
   })();
   return r;
@@ -159,6 +163,13 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expect(got.blocks.reduce((n, b) => n + b.tachEdges.length, 0)).toBe(Math.floor((5000 + 60 * SPF - FIRST_EDGE) / EDGE_PERIOD) - Math.ceil((5000 - FIRST_EDGE) / EDGE_PERIOD) + 1);
     const h = src.health();
     expect(h).toMatchObject({ frames_ok: 60, crc_errors: 0, bad_lengths: 0, resyncs: 0, bytes_skipped: 0, gaps: 0, samples_lost: 0, reconnects: 0 });
+    // The agent tried to assert DTR and RTS: a pseudo-terminal has no modem lines and refuses the ioctl (Linux tty driver).
+    expect(h.modem_lines).toMatch(/^not supported by the device \(.*Inappropriate ioctl/);
+    expect(log.lines.filter((l) => l.level === 'info' && /: opened, 8N1 at 921600 bit\/s, DTR and RTS not supported by the device/.test(l.msg)).length).toBe(1);
+    // Version 1 frames: no timing declared.
+    expect(h).toMatchObject({ protocol_version: 1, sample_delay_ticks: null, timing_faults: 0 });
+    // Every block carries the wall-clock time it arrived, for the runtime's time anchoring.
+    expect(got.arrivals.every((t, i) => t >= (got.arrivals[i - 1] ?? 0) && Math.abs(t - Date.now()) < 30_000)).toBe(true);
     await src.close();
     await got.done; // the item stream ends on close
   });
@@ -218,8 +229,46 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expectExact(got.blocks);
     // Ten CRC errors in one burst: one line when it starts, not one per frame.
     expect(log.lines.filter((l) => /CRC mismatch/.test(l.msg)).length).toBe(1);
+    // Each gap of the burst stays visible: one debug line each with its bounds, the last in the health report.
+    const gapLines = log.lines.filter((l) => l.level === 'debug' && /: gap \d+ \.\. \d+: /.test(l.msg));
+    expect(gapLines.map((l) => [l.fields['from_index'], l.fields['to_index']])).toEqual(expectedGaps);
+    expect(h).toMatchObject({ last_gap_from_index: expectedGaps.at(-1)![0], last_gap_to_index: expectedGaps.at(-1)![1], last_gap_reason: 'sequence jump 32 -> 36 (3 frame(s) missing)' });
     await waitFor('burst summary', () => log.lines.filter((l) => /"crc" burst over: 10 occurrence/.test(l.msg)).length === 1, 3000);
     expect(h.last_error).toMatch(/sequence jump 32 -> 36|samples lost/);
+  });
+
+  it('board-timed edges are used only with board_tach_edges: true; a disagreeing board is reported once per burst', async () => {
+    const { src, got, w } = await startStreaming({ boardTachEdges: false });
+    const board = newBoard();
+    for (let k = 0; k < 20; k++) await w.write(board.nextFrame());
+    await waitFor('20 blocks', () => got.blocks.length === 20);
+    expect(got.blocks.every((b) => b.tachEdges.length === 0)).toBe(true); // edges not passed on
+    expect(src.health().tach_mode_mismatches).toBe(20);
+    const lines = log.lines.filter((l) => /carries board-timed tach edges but acquisition\.board_tach_edges is false/.test(l.msg));
+    expect(lines.length).toBe(1);
+    expect(lines[0]!.level).toBe('warn');
+  });
+
+  it('bad input from the board: a rate beyond the tolerance and an impossible timing declaration, each one warning, counted, sampling goes on', async () => {
+    const { src, got, w } = await startStreaming({ sampleRateTolerancePpm: 100 });
+    const mk = (rate: number, first: number, seq: number, timing?: { sampleDelayTicks: number; tachDelayTicks: number; skewTicks: number[] }) =>
+      new BoardEmulator(new RampSignal(), { sampleRateHz: rate, samplesPerFrame: SPF, format: 'int24', scaleVPerCount: SCALES, offsetV: OFFSETS, tachTimed: true, firstSample: first, firstSequence: seq, ...(timing ? { timing } : {}) });
+    // 25 700 Hz is +3906 ppm: rejected; 25 601 Hz is +39 ppm: accepted.
+    const far = mk(25_700, 0, 0);
+    for (let k = 0; k < 10; k++) await w.write(far.nextFrame());
+    const near = mk(25_601, far.nextIndex, far.nextSequence);
+    for (let k = 0; k < 10; k++) await w.write(near.nextFrame());
+    // A skew of 1.5 sample periods is impossible: samples still delivered.
+    const bad = mk(RATE, near.nextIndex, near.nextSequence, { sampleDelayTicks: 38, tachDelayTicks: 0, skewTicks: [0, 1.5, 0, 0] });
+    for (let k = 0; k < 10; k++) await w.write(bad.nextFrame());
+    await waitFor('20 blocks', () => got.blocks.length === 20);
+    const h = src.health();
+    expect(h).toMatchObject({ connected: true, frames_ok: 20, rejected_frames: 10, timing_faults: 10, protocol_version: 2, sample_delay_ticks: null });
+    const rate = log.lines.filter((l) => /sample rate 25700 Hz declared, \+3906 ppm from the configured 25600 Hz, beyond the tolerance of 100 ppm/.test(l.msg));
+    expect(rate.map((l) => l.level)).toEqual(['warn']);
+    const timing = log.lines.filter((l) => /impossible timing declaration \(channel 1 skew_ticks 1\.5 outside 0 to below 1/.test(l.msg));
+    expect(timing.map((l) => l.level)).toEqual(['warn']);
+    expect(timing[0]!.msg).toMatch(/none yet: no delay compensation/);
   });
 
   it('reopens with backoff after the device vanishes, resumes sampling and reports the exact gap', async () => {
@@ -451,12 +500,58 @@ describe('turnwise probe-serial', () => {
     await playing;
     const r = JSON.parse(chunks.join(''));
     expect(code).toBe(0);
-    expect(r.format).toEqual({ channels: CHANNELS, sample_rate_hz: RATE, sample_format: 'int24', samples_per_frame: SPF, tach_timed: true });
+    const v1 = { protocol_version: 1, channels: CHANNELS, sample_rate_hz: RATE, sample_format: 'int24', samples_per_frame: SPF, tach_timed: true, sample_delay_ticks: null, tach_delay_ticks: null, max_skew_ticks: null };
+    expect(r.format).toEqual(v1);
+    expect(r.formats_seen).toEqual([{ ...v1, frames: r.counters.frames_ok, first_sequence: expect.any(Number) }]);
+    expect(r.modem_lines).toMatch(/^(asserted|not supported by the device \(.+\))$/);
     expect(r.counters.frames_ok).toBeGreaterThan(50);
     expect(r.counters.crc_errors).toBe(0);
     // Paced by the emulator's real-time loop; loose bounds, this is a sanity check of the estimate.
     expect(r.measured_rate_hz).toBeGreaterThan(0.75 * RATE);
     expect(r.measured_rate_hz).toBeLessThan(1.25 * RATE);
+  });
+
+  it('reports every format and frame size seen, and every gap of a burst with its bounds', async () => {
+    await pty.start();
+    writer = await DeviceWriter.open(pty.boardPath);
+    const w = writer;
+    const sig = new RampSignal();
+    const mk = (format: 'int24' | 'int16' | 'float32', spf: number, first: number, seq: number, timing?: { sampleDelayTicks: number; tachDelayTicks: number; skewTicks: number[] }) =>
+      new BoardEmulator(sig, { sampleRateHz: RATE, samplesPerFrame: spf, format, scaleVPerCount: SCALES, offsetV: OFFSETS, tachTimed: true, firstSample: first, firstSequence: seq, ...(timing ? { timing } : {}) });
+    const chunks: string[] = [];
+    const spy = vi.spyOn(process.stdout, 'write').mockImplementation((s: string | Uint8Array) => (chunks.push(String(s)), true));
+    const errSpy = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
+    let code: number;
+    try {
+      const probing = probeSerialCommand.run(['--device', pty.agentPath, '--seconds', '1.5', '--json']);
+      await new Promise((r) => setTimeout(r, 300));
+      // int24 x 256, then int16 x 128 with a burst of three single-frame gaps, then version 2 float32 x 512.
+      const a = mk('int24', 256, 0, 0);
+      for (let i = 0; i < 10; i++) await w.write(a.nextFrame());
+      const b = mk('int16', 128, a.nextIndex, a.nextSequence);
+      for (let i = 0; i < 12; i++) {
+        if (i === 3 || i === 5 || i === 7) b.skipFrame();
+        else await w.write(b.nextFrame());
+      }
+      const c = mk('float32', 512, b.nextIndex, b.nextSequence, { sampleDelayTicks: 38, tachDelayTicks: 1.5, skewTicks: [0, 0.25, 0.5, 0.75] });
+      for (let i = 0; i < 5; i++) await w.write(c.nextFrame());
+      code = await probing;
+    } finally {
+      spy.mockRestore();
+      errSpy.mockRestore();
+    }
+    const r = JSON.parse(chunks.join(''));
+    expect(code).toBe(0);
+    const base = { channels: CHANNELS, sample_rate_hz: RATE, tach_timed: true };
+    expect(r.formats_seen).toEqual([
+      { ...base, protocol_version: 1, sample_format: 'int24', samples_per_frame: 256, sample_delay_ticks: null, tach_delay_ticks: null, max_skew_ticks: null, frames: 10, first_sequence: 0 },
+      { ...base, protocol_version: 1, sample_format: 'int16', samples_per_frame: 128, sample_delay_ticks: null, tach_delay_ticks: null, max_skew_ticks: null, frames: 9, first_sequence: 10 },
+      { ...base, protocol_version: 2, sample_format: 'float32', samples_per_frame: 512, sample_delay_ticks: 38, tach_delay_ticks: 1.5, max_skew_ticks: 0.75, frames: 5, first_sequence: 22 },
+    ]);
+    // Each gap of the burst is counted and listed with its exact bounds.
+    expect(r.counters.gaps).toBe(3);
+    expect(r.gap_list.map((g: { from_index: number; to_index: number }) => [g.from_index, g.to_index])).toEqual([3, 5, 7].map((i) => [2560 + i * 128, 2560 + (i + 1) * 128]));
+    expect(r.gap_list[0].reason).toMatch(/sequence jump 12 -> 14 \(1 frame\(s\) missing\)/);
   });
 
   it('names a missing device and what to do', async () => {

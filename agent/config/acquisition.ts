@@ -43,7 +43,13 @@ export const serialDriverSchema = z
       .number(needs('serial', 'sample_rate_hz', "the board's sample rate"))
       .positive()
       .max(1_000_000)
-      .describe("The board's sample rate, Hz. Frames with another rate are rejected and counted."),
+      .describe("The board's sample rate, Hz. Frames declaring a rate further from it than sample_rate_tolerance_ppm are rejected and counted."),
+    sample_rate_tolerance_ppm: z
+      .number()
+      .min(0)
+      .max(10_000)
+      .default(100)
+      .describe('How far the rate a frame declares may be from sample_rate_hz, ppm (100 ppm = 0.01 %). Within it the DSP uses sample_rate_hz (a 100 ppm error is a 0.01 % speed error, no phase error: the tach is on the same clock).'),
     channels: z
       .number(needs('serial', 'channels', 'how many channels the board sends'))
       .int()
@@ -65,6 +71,19 @@ export const serialDriverSchema = z
       .default(256)
       .describe('Frames held for the DSP when it falls behind; beyond that frames are dropped and reported as a gap.'),
     max_frame_bytes: z.number().int().min(1024).max(16_777_216).default(262_144).describe('Longest frame accepted, bytes; longer length fields count as bad lengths.'),
+    max_samples_per_channel: z
+      .number()
+      .int()
+      .min(1)
+      .max(65_535)
+      .default(8192)
+      .describe('Most samples per channel one frame may carry; frames with more count as bad lengths (the frame must also fit max_frame_bytes).'),
+    clock_step_tolerance_ms: z
+      .number()
+      .min(50)
+      .max(3_600_000)
+      .default(1000)
+      .describe('A frame arriving this much earlier than its time on the sample clock (or later, for a whole second of samples) is a step of the wall clock (NTP, manual setting): times are anchored again, the step counted and logged once, ms.'),
   })
   .strict()
   .superRefine((a, ctx) => {

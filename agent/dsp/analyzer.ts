@@ -11,8 +11,8 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
 /**
  * The measurement core: source items in, one WindowResult per window out.
  *
- *   volts --AccelerationStage--> mm/s^2 --+--> SampleRing --(tach revolutions)--> SyncAverager --> order vectors
- *                                         +--> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
+ *   volts --AccelerationStage--> mm/s^2 (constant reference removed) --> SampleRing --(tach revolutions)--> SyncAverager --> order vectors
+ *                                     (DC estimate removed) --> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
  *   tach volts --TachDetector--> edges --RevolutionTracker--> trusted revolutions
  *
  * All buffers are allocated here, once; `push` allocates nothing per sample (only small typed-array
@@ -23,6 +23,12 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
 export function isoBand(speedRpm: number | null | undefined): { low: number; high: number } {
   return { low: speedRpm != null && speedRpm < 600 ? 2 : 10, high: 1000 };
 }
+
+/**
+ * Largest shift between a channel's samples and the tach's instants the analyzer makes room for,
+ * ticks: the serial protocol allows delays up to 1024 ticks plus a skew below 1 (PROTOCOL.md 2.6).
+ */
+export const MAX_TIMING_SHIFT_TICKS = 1026;
 
 /** Sampling at least 2.56 times the highest frequency of interest (common practice in vibration analysers). */
 export const MIN_SAMPLES_PER_HZ = 2.56;
@@ -51,7 +57,8 @@ export interface AnalyzerOptions {
  * sample bounds. It must copy what it needs at once: the rings move on.
  */
 export interface RevolutionTap {
-  revolution(rings: readonly SampleRing[], start: number, end: number): void;
+  /** `shifts[i]`: sensor i's samples of this revolution are [start + shifts[i], end + shifts[i]] (declared board delays; 0 without). */
+  revolution(rings: readonly SampleRing[], start: number, end: number, shifts: Float64Array): void;
   /** Samples were lost: revolutions on either side are not one run. */
   gap(): void;
 }
@@ -90,6 +97,7 @@ export class Analyzer {
   private readonly cfg: Config;
   private readonly chans: ChannelState[];
   private readonly scratch: Float32Array;
+  private readonly syncScratch: Float32Array;
   private readonly detector: TachDetector;
   private readonly tracker: RevolutionTracker;
   private readonly tachChannel: number;
@@ -108,6 +116,15 @@ export class Analyzer {
   private readonly liveDecay: number;
   private readonly tap: RevolutionTap | undefined;
   private readonly rings: readonly SampleRing[];
+  /** Per configured sensor, the shift its revolution was read at (handed to the tap). */
+  private readonly tapShifts: Float64Array;
+  /** Declared timing delay of each source channel, ticks (version 2 boards; zeros otherwise). */
+  private readonly delays: Float64Array;
+  /** Revolutions waiting for their delayed samples (a small ring of [start, end]). */
+  private readonly pendingStart = new Float64Array(64);
+  private readonly pendingEnd = new Float64Array(64);
+  private pendingHead = 0;
+  private pendingCount = 0;
 
   constructor(opts: AnalyzerOptions) {
     const { config: cfg, sampleRate, channelCount } = opts;
@@ -117,6 +134,7 @@ export class Analyzer {
     this.boardTimesTach = opts.boardTimesTach ?? false;
     this.liveDecay = 1 - 1 / Math.max(1, opts.liveRevolutions ?? 32);
     const maxBlock = opts.maxBlock ?? 65536;
+    this.delays = new Float64Array(channelCount);
 
     const lastCh = channelCount - 1;
     cfg.sensors.forEach((s, i) => {
@@ -149,7 +167,8 @@ export class Analyzer {
     }
 
     const maxRevSamples = Math.ceil((60 * sampleRate) / cfg.tach.min_rpm) + 2;
-    const ringSize = maxRevSamples + maxBlock + 4;
+    // Room for a revolution read up to MAX_TIMING_SHIFT_TICKS late or early (declared delays).
+    const ringSize = maxRevSamples + maxBlock + 2 * MAX_TIMING_SHIFT_TICKS + 4;
     const plan = new SpectrumPlan(this.spectrumSize);
     this.chans = cfg.sensors.map((s) => ({
       id: s.id,
@@ -166,7 +185,9 @@ export class Analyzer {
     }));
     this.rings = this.chans.map((c) => c.ring);
     this.tap = opts.revolutionTap;
+    this.tapShifts = new Float64Array(this.chans.length);
     this.scratch = new Float32Array(maxBlock);
+    this.syncScratch = new Float32Array(maxBlock);
     this.tachChannel = cfg.tach.channel;
     const ppr = cfg.tach.pulses_per_rev;
     this.detector = new TachDetector({
@@ -177,12 +198,63 @@ export class Analyzer {
     this.tracker = new RevolutionTracker({ pulsesPerRev: ppr, sampleRate, minRpm: cfg.tach.min_rpm, maxRpm: cfg.tach.max_rpm }, (a, b) => this.onRevolution(a, b));
   }
 
+  /**
+   * Ticks by which channel `c`'s samples must be read later than the tach's instants: the
+   * channel's declared delay (ADC filter delay less its skew, from a version 2 board) less the
+   * delay of what timed the tach (board-timed edges are true instants already; edges found on a
+   * tach channel carry that channel's delay).
+   */
+  private shiftOf(c: ChannelState): number {
+    return this.delays[c.channel]! - (this.boardTimesTach ? 0 : this.delays[this.tachChannel] ?? 0);
+  }
+
   private onRevolution(start: number, end: number): void {
-    const from = Math.floor(start);
-    const to = Math.ceil(end);
-    for (const c of this.chans) if (!c.ring.holds(from, to)) return;
-    for (const c of this.chans) c.avg.addRevolution(c.ring, start, end);
-    this.tap?.revolution(this.rings, start, end);
+    let lastNeeded = -Infinity;
+    for (const c of this.chans) {
+      const s = this.shiftOf(c);
+      const from = Math.floor(start + s);
+      if (from < 0 || from < c.ring.end - c.ring.data.length) return;
+      lastNeeded = Math.max(lastNeeded, Math.ceil(end + s));
+    }
+    // With a declared delay the revolution's last samples may not have arrived yet: wait for them.
+    if (lastNeeded >= (this.chans[0]?.ring.end ?? 0)) {
+      if (this.pendingCount === this.pendingStart.length) return; // cannot happen with delays <= 1024 ticks; never grows
+      const k = (this.pendingHead + this.pendingCount) % this.pendingStart.length;
+      this.pendingStart[k] = start;
+      this.pendingEnd[k] = end;
+      this.pendingCount++;
+      return;
+    }
+    this.addRevolution(start, end);
+  }
+
+  /** Adds the waiting revolutions whose samples have all arrived (all, or drops the rest when `gap`). */
+  private drainPending(gap: boolean): void {
+    const cap = this.pendingStart.length;
+    while (this.pendingCount > 0) {
+      const start = this.pendingStart[this.pendingHead]!;
+      const end = this.pendingEnd[this.pendingHead]!;
+      let ready = true;
+      for (const c of this.chans) {
+        const s = this.shiftOf(c);
+        if (!c.ring.holds(Math.floor(start + s), Math.ceil(end + s))) ready = false;
+      }
+      if (!ready && !gap) return;
+      this.pendingHead = (this.pendingHead + 1) % cap;
+      this.pendingCount--;
+      if (ready) this.addRevolution(start, end);
+    }
+  }
+
+  private addRevolution(start: number, end: number): void {
+    for (const c of this.chans) {
+      const s = this.shiftOf(c);
+      c.avg.addRevolution(c.ring, start + s, end + s);
+    }
+    if (this.tap) {
+      for (let i = 0; i < this.chans.length; i++) this.tapShifts[i] = this.shiftOf(this.chans[i]!);
+      this.tap.revolution(this.rings, start, end, this.tapShifts);
+    }
     const p = end - start;
     this.livePeriod = this.livePeriod * this.liveDecay + p;
     this.lastRevEnd = end;
@@ -192,11 +264,13 @@ export class Analyzer {
   }
 
   private onGap(fromIndex: number, toIndex: number): void {
+    this.drainPending(true);
     this.gapSamples += Math.max(0, toIndex - fromIndex);
     this.tap?.gap();
     this.tracker.reset();
     this.detector.reset();
     for (const c of this.chans) {
+      c.accel.rebase();
       c.decimator.reset();
       c.spectrum.discardPartial();
     }
@@ -215,20 +289,25 @@ export class Analyzer {
     const n = item.channels[0]?.length ?? 0;
     if (n > this.scratch.length) throw new Error(`block of ${n} samples exceeds maxBlock ${this.scratch.length}`);
     const scratch = this.scratch;
+    const sync = this.syncScratch;
     for (const c of this.chans) {
       const volts = item.channels[c.channel]!;
       c.stats.add(volts);
-      c.accel.process(volts, scratch);
-      c.ring.write(scratch, start, n);
+      c.accel.process(volts, scratch, sync);
+      c.ring.write(sync, start, n);
       c.decimator.process(scratch, n, c.spectrum);
     }
-    if (item.tachEdges) {
-      for (let i = 0; i < item.tachEdges.length; i++) this.onRawEdge(item.tachEdges[i]!);
-    } else if (!this.boardTimesTach) {
+    if (item.channelDelays) this.delays.set(item.channelDelays.subarray(0, this.delays.length));
+    // Board-timed edges are used only when the config says the board times the tach
+    // (board_tach_edges); otherwise the tach is found on its channel.
+    if (this.boardTimesTach) {
+      if (item.tachEdges) for (let i = 0; i < item.tachEdges.length; i++) this.onRawEdge(item.tachEdges[i]!);
+    } else {
       const count = this.detector.process(item.channels[this.tachChannel]!, start);
       const edges = this.detector.edges;
       for (let i = 0; i < count; i++) this.onRawEdge(edges[i]!);
     }
+    if (this.pendingCount > 0) this.drainPending(false);
     this.nextIndex = start + n;
   }
 
@@ -284,6 +363,7 @@ export class Analyzer {
     const fRev = weight > 0 ? this.sampleRate / (this.livePeriod / weight) : null;
     return {
       sample_index: now,
+      sample_rate_hz: this.sampleRate,
       speed_rpm: fRev !== null ? fRev * 60 : null,
       revolutions_weight: weight,
       age_s: Number.isNaN(this.lastRevEnd) ? Infinity : (now - this.lastRevEnd) / this.sampleRate,

@@ -62,8 +62,8 @@ export class SpeedPointRecorder implements RevolutionTap {
     this.afterGap = new Uint8Array(this.cap);
   }
 
-  revolution(rings: readonly SampleRing[], start: number, end: number): void {
-    for (let c = 0; c < this.avgs.length; c++) this.avgs[c]!.addRevolution(rings[c]!, start, end);
+  revolution(rings: readonly SampleRing[], start: number, end: number, shifts: Float64Array): void {
+    for (let c = 0; c < this.avgs.length; c++) this.avgs[c]!.addRevolution(rings[c]!, start + shifts[c]!, end + shifts[c]!);
     this.revs++;
     this.periodSum += end - start;
     if (this.revs >= this.opts.revolutionsPerPoint) this.closePoint(end);

@@ -99,6 +99,8 @@ export interface WindowResult {
 export interface LiveFrame {
   /** Sample-clock index of the newest sample seen. */
   readonly sample_index: number;
+  /** Samples per second of that clock (absent in frames made by hand): elapsed sample time between frames, free of wall-clock steps. */
+  readonly sample_rate_hz?: number;
   /** Speed from the same weighted average of revolution periods, r/min; null before the first revolution. */
   readonly speed_rpm: number | null;
   /** Effective number of revolutions in the live average (sum of weights). */

@@ -14,16 +14,17 @@ import { createServer as createHttpsServer } from 'node:https';
 import { readFileSync } from 'node:fs';
 import type { AddressInfo, Socket } from 'node:net';
 import { WebSocketServer, type WebSocket } from 'ws';
-import { conventionText } from '../balance/conventions.js';
-import { parseCombineRequest, parseSplitRequest } from '../balance/job-input.js';
-import { balancingCautions } from '../balance/report.js';
 import { FileBalanceStore, type BalanceStore } from '../balance/store.js';
-import { centrifugalForceN, combineWeights, moveToRadius, parseGrade, permissibleUnbalanceGmm, splitOntoPositions, STANDARD_GRAVITY, suggestTrialMassG } from '../balance/weights.js';
+import { BalancingWorkbench } from '../balance/workbench/actions.js';
+import { captureSettingsFrom, type CaptureSettings } from '../balance/workbench/capture.js';
+import { ApiError } from '../balance/workbench/requests.js';
+import { combineTool, gradeTool, moveRadiusTool, splitTool, trialWeightTool } from '../balance/workbench/tools.js';
+import type { JobView } from '../balance/workbench/view.js';
 import type { Clock } from '../clock.js';
 import type { LiveConfig } from '../config/live.js';
 import type { Config } from '../config/schema.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
-import { isUserError, UserError } from '../errors.js';
+import { UserError } from '../errors.js';
 import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
@@ -31,10 +32,8 @@ import { readSecretFile } from '../mqtt/secrets.js';
 import type { LiveConsumer, WindowConsumer } from '../runtime/runtime.js';
 import type { WatchStatus } from '../watcher/index.js';
 import { bearerToken, mayAct, resolveLiveTokens, TokenCheck, type LiveToken, type Principal } from './auth.js';
-import { ApiError, gradeSchema, moveRadiusSchema, parseBody, trialWeightSchema } from './requests.js';
 import { loadStaticFiles, type StaticFile } from './static.js';
-import { LiveView } from './view.js';
-import { BalancingWorkbench, type JobView } from './workbench.js';
+import { LiveView, sessionView, type PageMessage, type SessionView } from './view.js';
 
 export interface LiveServerOptions {
   readonly config: Config;
@@ -105,15 +104,14 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   private lastFlush = 0;
   private flushTimer: NodeJS.Timeout | null = null;
   private pingTimer: NodeJS.Timeout | null = null;
-  private readonly settleRevolutions: number;
+  private readonly captureSettings: CaptureSettings;
 
   constructor(opts: LiveServerOptions) {
     this.opts = opts;
     this.check = new TokenCheck(opts.tokens);
     this.burst = new BurstLog(opts.logger, { nowMs: () => opts.clock.now(), quietMs: 60_000 });
     this.view = new LiveView(opts.config, opts.live.trail_points, opts.live.trend_max_points);
-    const memory = opts.liveRevolutions ?? 32;
-    this.settleRevolutions = opts.live.capture.settle_revolutions ?? 5 * memory;
+    this.captureSettings = captureSettingsFrom(opts.live.capture, opts.liveRevolutions);
     this.workbench = new BalancingWorkbench({
       config: opts.config,
       store: opts.store ?? new FileBalanceStore(opts.config.state_dir),
@@ -121,15 +119,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       logger: opts.logger,
       emit: opts.emit,
       onCoefficientsSaved: opts.onCoefficientsSaved,
-      capture: {
-        revolutions: opts.live.capture.revolutions,
-        settleRevolutions: this.settleRevolutions,
-        speedTolerancePct: opts.live.capture.speed_tolerance_pct,
-        maxRestarts: opts.live.capture.max_restarts,
-        maxAgeS: 2,
-        scatterWarnPct: 10,
-        scatterFloorMmS: 0.05,
-      },
+      capture: this.captureSettings,
       liveSpeed: () => this.view.speedRpm,
       onChange: () => this.markDirty('job'),
     });
@@ -297,7 +287,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   private refuseWs(ws: WebSocket, remote: string): void {
     this.refused(remote, 'websocket');
-    ws.send(JSON.stringify({ type: 'error', code: 'unauthorised', message: 'missing or wrong token' }));
+    const refusal: PageMessage = { type: 'error', code: 'unauthorised', message: 'missing or wrong token' };
+    ws.send(JSON.stringify(refusal));
     ws.close(4401, 'unauthorised');
   }
 
@@ -313,12 +304,12 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     }
   }
 
-  private sendTo(c: Client, msg: unknown): void {
+  private sendTo(c: Client, msg: PageMessage): void {
     if (c.ws.readyState !== c.ws.OPEN || c.ws.bufferedAmount > MAX_BUFFERED_BYTES) return;
     c.ws.send(JSON.stringify(msg));
   }
 
-  private send(msg: unknown): void {
+  private send(msg: PageMessage): void {
     if (this.clients.size === 0) return;
     const text = JSON.stringify(msg);
     for (const c of this.clients) {
@@ -345,31 +336,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   // ---- HTTP ----
 
-  private session(p: Principal): Record<string, unknown> {
-    const cfg = this.opts.config;
-    const b = cfg.balance;
-    return {
-      role: p.role,
-      token_name: p.name,
-      may_act: mayAct(p),
-      asset: cfg.machine.id,
-      machine_name: cfg.machine.name ?? cfg.machine.id,
-      units: cfg.units,
-      rated_rpm: cfg.machine.rated_rpm ?? null,
-      sensors: cfg.sensors.map((s) => ({ id: s.id, bearing: s.bearing, direction: s.direction })),
-      balance_defaults: {
-        angle_convention: b?.angle_convention ?? 'against_rotation',
-        rotor_mass_kg: b?.rotor_mass_kg ?? null,
-        bearings: b?.bearings ?? 2,
-        grade_mm_s: b?.grade_mm_s ?? null,
-        planes: Object.entries(b?.planes ?? {}).map(([name, pl]) => ({ name, radius_mm: pl.radius_mm, max_mass_g: pl.max_mass_g ?? null, positions: pl.positions ?? null })),
-      },
-      capture: { revolutions: this.opts.live.capture.revolutions, settle_revolutions: this.settleRevolutions },
-      update_hz: this.opts.live.update_hz,
-      phase_convention: 'phase is the lag in degrees from the tach edge (reference mark) to the positive peak of the 1x velocity',
-      conventions: { against_rotation: conventionText('against_rotation'), with_rotation: conventionText('with_rotation') },
-      cautions: balancingCautions(),
-    };
+  private session(p: Principal): SessionView {
+    return sessionView(this.opts.config, this.opts.live, this.captureSettings, p);
   }
 
   private buildRoutes(): Route[] {
@@ -399,59 +367,12 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       r('POST', '/api/jobs/:id/solve', true, async ({ principal, body, params }) => jobView(await wb.solve(params[0]!, body, by(principal)))),
       r('POST', '/api/jobs/:id/finish', true, async ({ principal, body, params }) => jobView(await wb.finish(params[0]!, body, by(principal)))),
       r('POST', '/api/jobs/:id/abandon', true, async ({ principal, body, params }) => jobView(await wb.abandon(params[0]!, body, by(principal)))),
-      r('POST', '/api/tools/trial-weight', false, ({ body }) => {
-        const q = parseBody(trialWeightSchema, body, 'trial-weight request');
-        const load = q.bearing_load_kg ?? q.rotor_mass_kg! / q.bearings;
-        const m = suggestTrialMassG(load, q.radius_mm, q.speed_rpm, q.fraction);
-        return {
-          mass_g: m,
-          radius_mm: q.radius_mm,
-          speed_rpm: q.speed_rpm,
-          bearing_load_kg: load,
-          bearing_load_n: load * STANDARD_GRAVITY,
-          fraction: q.fraction,
-          force_n: centrifugalForceN(m, q.radius_mm, q.speed_rpm),
-          rule: 'm_t = fraction x M_b x g / (r x omega^2), fraction 0.1: common practice',
-          cautions: balancingCautions(),
-        };
-      }),
-      r('POST', '/api/tools/split', false, ({ body }) => {
-        const q = this.parseWithBalance(() => parseSplitRequest(body, 'split request'));
-        const moved = q.radius_mm !== undefined && q.positions.radius_mm !== undefined ? moveToRadius(q.mass_g, q.radius_mm, q.positions.radius_mm) : q.mass_g;
-        return { angle_convention: q.angle_convention, convention: conventionText(q.angle_convention), moved_mass_g: moved, weights: splitOntoPositions(moved, q.angle_deg, q.positions) };
-      }),
-      r('POST', '/api/tools/combine', false, ({ body }) => {
-        const q = this.parseWithBalance(() => parseCombineRequest(body, 'combine request'));
-        return { angle_convention: q.angle_convention, convention: conventionText(q.angle_convention), ...combineWeights(q.weights, q.to_radius_mm), radius_mm: q.to_radius_mm ?? null };
-      }),
-      r('POST', '/api/tools/move-radius', false, ({ body }) => {
-        const q = parseBody(moveRadiusSchema, body, 'move-radius request');
-        return { mass_g: moveToRadius(q.mass_g, q.from_radius_mm, q.to_radius_mm), radius_mm: q.to_radius_mm, rule: 'same unbalance m x r: mass x r_old / r_new' };
-      }),
-      r('POST', '/api/tools/grade', false, ({ body }) => {
-        const q = parseBody(gradeSchema, body, 'grade request');
-        const g = parseGrade(q.grade);
-        const per = permissibleUnbalanceGmm(g, q.rotor_mass_kg, q.speed_rpm);
-        return {
-          grade_mm_s: g,
-          permissible_g_mm: per,
-          permissible_per_plane_g_mm: per / q.planes,
-          residual_g_mm: q.residual_g_mm ?? null,
-          within: q.residual_g_mm === undefined ? null : q.residual_g_mm <= per,
-          rule: 'ISO 21940-11: U_per = 9549 x G x m / n (g mm), from memory: check the current edition',
-        };
-      }),
+      r('POST', '/api/tools/trial-weight', false, ({ body }) => trialWeightTool(body)),
+      r('POST', '/api/tools/split', false, ({ body }) => splitTool(body)),
+      r('POST', '/api/tools/combine', false, ({ body }) => combineTool(body)),
+      r('POST', '/api/tools/move-radius', false, ({ body }) => moveRadiusTool(body)),
+      r('POST', '/api/tools/grade', false, ({ body }) => gradeTool(body)),
     ];
-  }
-
-  /** agent/balance's parsers throw UserError with every problem; the API answers 400 with the same text. */
-  private parseWithBalance<T>(fn: () => T): T {
-    try {
-      return fn();
-    } catch (e) {
-      if (isUserError(e)) throw new ApiError(400, 'invalid_request', e.message, e.hint);
-      throw e;
-    }
   }
 
   private async handle(req: IncomingMessage, res: ServerResponse): Promise<void> {

@@ -4,10 +4,16 @@
  * watcher's status (zone and sensor health of the latest window). Plain data out, in the units of
  * its field names; the page converts to the display units.
  */
+import { conventionText, type AngleConvention } from '../balance/conventions.js';
+import { balancingCautions } from '../balance/report.js';
+import type { CaptureSettings } from '../balance/workbench/capture.js';
+import type { JobView } from '../balance/workbench/view.js';
+import type { LiveConfig } from '../config/live.js';
 import type { Config } from '../config/schema.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { BalanceForecast } from '../watcher/forecast.js';
 import type { WatchStatus, Zone } from '../watcher/index.js';
+import { mayAct, type Principal } from './auth.js';
 
 export interface VectorView {
   readonly amp_pk_mm_s: number;
@@ -169,3 +175,73 @@ export class LiveView {
     return this.speed;
   }
 }
+
+/** What the page learns when it connects: who it is, the machine, the defaults for a balancing job. */
+export interface SessionView {
+  readonly role: Principal['role'];
+  readonly token_name: string;
+  readonly may_act: boolean;
+  readonly asset: string;
+  readonly machine_name: string;
+  readonly units: Config['units'];
+  readonly rated_rpm: number | null;
+  readonly sensors: ReadonlyArray<{ readonly id: string; readonly bearing: string; readonly direction: 'vertical' | 'horizontal' | 'axial' }>;
+  readonly balance_defaults: {
+    readonly angle_convention: AngleConvention;
+    readonly rotor_mass_kg: number | null;
+    readonly bearings: number;
+    readonly grade_mm_s: number | null;
+    readonly planes: ReadonlyArray<{
+      readonly name: string;
+      readonly radius_mm: number;
+      readonly max_mass_g: number | null;
+      readonly positions: { readonly count: number; readonly first_deg?: number } | null;
+    }>;
+  };
+  readonly capture: { readonly revolutions: number; readonly settle_revolutions: number };
+  readonly update_hz: number;
+  readonly phase_convention: string;
+  readonly conventions: Readonly<Record<AngleConvention, string>>;
+  readonly cautions: readonly string[];
+}
+
+/** The session of one token on this machine. */
+export function sessionView(cfg: Config, live: LiveConfig, capture: CaptureSettings, p: Principal): SessionView {
+  const b = cfg.balance;
+  return {
+    role: p.role,
+    token_name: p.name,
+    may_act: mayAct(p),
+    asset: cfg.machine.id,
+    machine_name: cfg.machine.name ?? cfg.machine.id,
+    units: cfg.units,
+    rated_rpm: cfg.machine.rated_rpm ?? null,
+    sensors: cfg.sensors.map((s) => ({ id: s.id, bearing: s.bearing, direction: s.direction })),
+    balance_defaults: {
+      angle_convention: b?.angle_convention ?? 'against_rotation',
+      rotor_mass_kg: b?.rotor_mass_kg ?? null,
+      bearings: b?.bearings ?? 2,
+      grade_mm_s: b?.grade_mm_s ?? null,
+      planes: Object.entries(b?.planes ?? {}).map(([name, pl]) => ({
+        name,
+        radius_mm: pl.radius_mm,
+        max_mass_g: pl.max_mass_g ?? null,
+        positions: pl.positions ?? null,
+      })),
+    },
+    capture: { revolutions: capture.revolutions, settle_revolutions: capture.settleRevolutions },
+    update_hz: live.update_hz,
+    phase_convention: 'phase is the lag in degrees from the tach edge (reference mark) to the positive peak of the 1x velocity',
+    conventions: { against_rotation: conventionText('against_rotation'), with_rotation: conventionText('with_rotation') },
+    cautions: balancingCautions(),
+  };
+}
+
+/** Every message the server sends the page over the WebSocket. */
+export type PageMessage =
+  | { readonly type: 'welcome'; readonly session: SessionView }
+  | { readonly type: 'trend'; readonly points: readonly TrendPoint[] }
+  | { readonly type: 'trend_point'; readonly point: TrendPoint }
+  | { readonly type: 'live'; readonly live: LiveSnapshot }
+  | { readonly type: 'job'; readonly view: JobView | null }
+  | { readonly type: 'error'; readonly code: string; readonly message: string };

@@ -152,6 +152,7 @@ export class Agent {
       last_window_revolutions_rejected: w?.revolutions_rejected ?? null,
       last_window_speed_rpm: w?.speed_rpm == null ? null : Math.round(w.speed_rpm * 10) / 10,
       ...source,
+      ...(this.runtime?.timeHealth() ?? {}),
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
       ...(this.sweeps ? { sweeps_recorded: this.sweeps.recorded, sweeps_failed: this.sweeps.failed, sweeps_removed: this.sweeps.removed } : {}),

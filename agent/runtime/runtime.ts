@@ -4,14 +4,18 @@ import type { Config } from '../config/schema.js';
 import { Analyzer, type RevolutionTap } from '../dsp/analyzer.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { Logger } from '../log.js';
+import { BurstLog } from '../burst-log.js';
+import { SampleTimeline, type TimelineHealth } from './sample-time.js';
 
 /**
  * The agent's main loop: source -> DSP -> window consumers (watcher, outputs) and live consumers.
  *
  * Time inside the loop is the sample clock: a window closes every `windowSeconds` of samples and a
  * live frame goes out every `liveSeconds` of samples, so a recording or a simulation run faster than
- * real time behaves exactly as the live fan would. The wall-clock time of a sample is the source's
- * start time plus its index over the sample rate.
+ * real time behaves exactly as the live fan would. The wall-clock time of a sample comes from the
+ * sample clock anchored to the wall clock (`SampleTimeline`): for a live board at the arrival of the
+ * first block after every start of the agent or restart of the board, then slewed and checked for
+ * wall-clock steps; for recordings and simulations at the source's start time.
  */
 
 export interface WindowConsumer {
@@ -50,6 +54,8 @@ export interface RuntimeOptions {
   readonly rawTap?: (info: SourceInfo, timeOf: (index: number) => number, maxBlock: number) => RawTap;
   /** Built once the source is open: sees every trusted revolution (the sweep recorder's speed points). */
   readonly revolutionTap?: (info: SourceInfo, timeOf: (index: number) => number) => RevolutionTap;
+  /** A live block later or earlier than its stamped time by more than this is a wall-clock step, ms. */
+  readonly clockStepToleranceMs?: number;
 }
 
 /** What the loop has handled so far (for the heartbeat while it runs, and the summary). */
@@ -73,8 +79,14 @@ export class AgentRuntime {
   private windows = 0;
   private samples = 0;
   private gaps = 0;
+  private timeline: SampleTimeline | null = null;
 
   constructor(private readonly opts: RuntimeOptions) {}
+
+  /** The time anchoring's counters (for the heartbeat); null before the source opened. */
+  timeHealth(): TimelineHealth | null {
+    return this.timeline?.health() ?? null;
+  }
 
   /** Runs until the source ends or stop() is called; rejects only on programming errors or a failing consumer. */
   async run(): Promise<RunSummary> {
@@ -83,8 +95,16 @@ export class AgentRuntime {
     const fs = info.sampleRate;
     const startMs = this.opts.startMs ?? clock.now();
     const maxBlock = 1 << 16;
-    const scale = this.opts.timeScale ?? 1;
-    const timeOf = (index: number) => startMs + (index / fs) * 1000 * scale;
+    // Wall-clock steps and board restarts are logged once per burst, and counted in timeHealth().
+    const stepLog = new BurstLog(logger, { nowMs: () => clock.now(), quietMs: 60_000 });
+    const timeline = new SampleTimeline({
+      sampleRate: fs,
+      timeScale: this.opts.timeScale,
+      stepToleranceMs: this.opts.clockStepToleranceMs ?? (config.acquisition?.driver === 'serial' ? config.acquisition.clock_step_tolerance_ms : undefined),
+      onStep: (kind, detail, stepMs) => stepLog.report(kind, `${info.description}: ${detail}`, { step_ms: Math.round(stepMs) }),
+    });
+    this.timeline = timeline;
+    const timeOf = (index: number) => timeline.timeOf(index);
     const an = new Analyzer({
       config,
       sampleRate: fs,
@@ -109,15 +129,18 @@ export class AgentRuntime {
         tap?.onItem(item);
         if (item.kind === 'gap') {
           this.gaps++;
+          if (item.clockRestart) timeline.restart();
           an.push(item);
           continue;
         }
+        const n = item.channels[0]?.length ?? 0;
+        if (item.arrivedMs !== undefined) timeline.observe(item.startIndex + n, item.arrivedMs);
+        else if (!timeline.isAnchored) timeline.anchor(item.startIndex, startMs);
         if (first === undefined) {
           first = item.startIndex;
           windowEnd = first + windowSamples;
           nextLive = first + liveSamples;
         }
-        const n = item.channels[0]?.length ?? 0;
         // Split blocks larger than the analyzer's buffers.
         for (let off = 0; off < n; off += maxBlock) {
           const len = Math.min(maxBlock, n - off);
@@ -145,6 +168,7 @@ export class AgentRuntime {
         }
       }
     } finally {
+      stepLog.flush(true);
       if (this.stopTimer) clearTimeout(this.stopTimer);
       await source.close();
       await tap?.close();

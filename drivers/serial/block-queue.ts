@@ -13,9 +13,10 @@ class Slot {
   private views: Float32Array[] = [];
   private viewLen = -1;
   private edges = new Float64Array(0);
+  private delays = new Float64Array(0);
 
   /** Copies the frame's samples and edges into this slot's arrays (grown only when a frame is larger). */
-  fill(startIndex: number, channels: readonly Float32Array[], tachEdges: Float64Array | undefined): SampleBlock {
+  fill(startIndex: number, channels: readonly Float32Array[], tachEdges: Float64Array | undefined, arrivedMs?: number, channelDelays?: Float64Array): SampleBlock {
     const n = channels[0]!.length;
     if (n > this.capacity || channels.length !== this.bufs.length) {
       this.capacity = Math.max(n, this.capacity);
@@ -33,7 +34,20 @@ class Slot {
       this.edges.set(tachEdges);
       edges = this.edges.subarray(0, tachEdges.length);
     }
-    return edges ? { kind: 'samples', startIndex, channels: this.views, tachEdges: edges } : { kind: 'samples', startIndex, channels: this.views };
+    let delays: Float64Array | undefined;
+    if (channelDelays) {
+      if (this.delays.length !== channelDelays.length) this.delays = new Float64Array(channelDelays.length);
+      this.delays.set(channelDelays);
+      delays = this.delays;
+    }
+    return {
+      kind: 'samples',
+      startIndex,
+      channels: this.views,
+      ...(edges ? { tachEdges: edges } : {}),
+      ...(arrivedMs !== undefined ? { arrivedMs } : {}),
+      ...(delays ? { channelDelays: delays } : {}),
+    };
   }
 }
 
@@ -62,7 +76,7 @@ export class BlockQueue {
   }
 
   /** Queues a copy of a decoded frame, or drops it when the consumer is too far behind. */
-  pushBlock(startIndex: number, channels: readonly Float32Array[], tachEdges: Float64Array | undefined): boolean {
+  pushBlock(startIndex: number, channels: readonly Float32Array[], tachEdges: Float64Array | undefined, arrivedMs?: number, channelDelays?: Float64Array): boolean {
     const slot = this.free.pop();
     if (!slot) {
       this.overruns++;
@@ -70,7 +84,7 @@ export class BlockQueue {
       return false;
     }
     this.fillGapTo(startIndex);
-    this.entries.push({ item: slot.fill(startIndex, channels, tachEdges), slot });
+    this.entries.push({ item: slot.fill(startIndex, channels, tachEdges, arrivedMs, channelDelays), slot });
     this.queuedEnd = startIndex + channels[0]!.length;
     this.notify();
     return true;

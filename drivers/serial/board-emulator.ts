@@ -6,7 +6,7 @@
  */
 import { constants } from 'node:fs';
 import { open, type FileHandle } from 'node:fs/promises';
-import { COUNT_RANGE, encodeFrame, type SampleFormat } from './frame.js';
+import { COUNT_RANGE, encodeFrame, type BoardTiming, type SampleFormat } from './frame.js';
 
 /** Whatever produces the board's input signals, sample by sample on the board's clock. */
 export interface BoardSignal {
@@ -79,6 +79,11 @@ export interface BoardEmulatorOptions {
   readonly tachTimed: boolean;
   readonly firstSample?: number;
   readonly firstSequence?: number;
+  /**
+   * Send version 2 frames declaring this timing. The emulator only declares it: a signal that
+   * models the delay (values describing earlier instants, edges reported late) is the signal's job.
+   */
+  readonly timing?: BoardTiming;
 }
 
 export class BoardEmulator {
@@ -134,6 +139,7 @@ export class BoardEmulator {
       offsetV: this.opts.offsetV,
       samples: this.raw,
       tachEdges: this.opts.tachTimed ? this.edges.subarray(0, edgeCount) : undefined,
+      ...(this.opts.timing ? { timing: this.opts.timing } : {}),
     });
     this.skipFrame();
     return bytes;

@@ -1,6 +1,7 @@
 /**
- * The turnwise serial frame protocol, version 1 (specified for firmware authors in PROTOCOL.md):
- * a pure encoder and a chunk-driven decoder.
+ * The turnwise serial frame protocol, versions 1 and 2 (specified for firmware authors in
+ * PROTOCOL.md): a pure encoder and a chunk-driven decoder. Version 2 adds the board's timing
+ * declaration (ADC delay, tach delay, per-channel skew); version 1 frames decode as before.
  *
  * The decoder copies each chunk into one preallocated buffer, finds frames by their sync word with
  * Buffer.indexOf (no per-byte handler), checks the header, the length and the CRC-32, and decodes
@@ -13,11 +14,22 @@ import { crc32 as zlibCrc32 } from 'node:zlib';
 import type { GapMarker } from '../source.js';
 
 export const FRAME_SYNC: Readonly<Uint8Array> = Uint8Array.of(0xa5, 0x5a, 0x54, 0x57);
+/** Version 1 frames carry no timing declaration; kept byte for byte. */
 export const PROTOCOL_VERSION = 1;
-/** Length of the fixed header this version writes; later minor additions make it longer. */
+/** Version 2: the board declares its ADC delay, tach delay and per-channel skew. */
+export const PROTOCOL_VERSION_TIMED = 2;
+/** Versions this decoder reads. */
+export const PROTOCOL_VERSIONS: readonly number[] = [1, 2];
+/** Length of the fixed header version 1 writes; later minor additions make it longer. */
 export const HEADER_LEN_V1 = 40;
-/** Bytes per channel-table entry this version writes (f32 scale, f32 offset). */
+/** Bytes per channel-table entry version 1 writes (f32 scale, f32 offset). */
 export const CHANNEL_ENTRY_LEN_V1 = 8;
+/** Version 2 fixed header: version 1's plus f32 sample_delay_ticks and f32 tach_delay_ticks. */
+export const HEADER_LEN_V2 = 48;
+/** Version 2 channel entry: version 1's plus f32 skew_ticks. */
+export const CHANNEL_ENTRY_LEN_V2 = 12;
+/** Largest ADC or tach delay a board may declare, ticks (sigma-delta filters delay tens of samples). */
+export const MAX_DELAY_TICKS = 1024;
 export const TACH_EDGE_LEN = 8;
 export const CRC_LEN = 4;
 /** Flags bit 0: the board times the tach itself; the edge list is authoritative even when empty. */
@@ -46,9 +58,33 @@ export function crc32(bytes: Uint8Array): number {
   return zlibCrc32(bytes) >>> 0;
 }
 
-/** Total bytes of a version 1 frame with these contents. */
-export function frameLength(channelCount: number, samplesPerChannel: number, format: SampleFormat, tachEdgeCount: number): number {
-  return HEADER_LEN_V1 + channelCount * CHANNEL_ENTRY_LEN_V1 + tachEdgeCount * TACH_EDGE_LEN + samplesPerChannel * channelCount * BYTES_PER_SAMPLE[format] + CRC_LEN;
+/** Total bytes of a frame with these contents (version 1 unless `version` says 2). */
+export function frameLength(channelCount: number, samplesPerChannel: number, format: SampleFormat, tachEdgeCount: number, version: 1 | 2 = 1): number {
+  const [h, e] = version === 2 ? [HEADER_LEN_V2, CHANNEL_ENTRY_LEN_V2] : [HEADER_LEN_V1, CHANNEL_ENTRY_LEN_V1];
+  return h + channelCount * e + tachEdgeCount * TACH_EDGE_LEN + samplesPerChannel * channelCount * BYTES_PER_SAMPLE[format] + CRC_LEN;
+}
+
+/** A version 2 board's timing declaration (PROTOCOL.md 2.6). */
+export interface BoardTiming {
+  /** The value indexed i describes the input at tick i - sampleDelayTicks (+ the channel's skew). */
+  readonly sampleDelayTicks: number;
+  /** A board-timed edge reported at tick t happened at t - tachDelayTicks. */
+  readonly tachDelayTicks: number;
+  /** Per channel, how long after the sample instant it is converted, ticks, 0 <= skew < 1 (all 0: simultaneous). */
+  readonly skewTicks: ArrayLike<number>;
+}
+
+/** Why a timing declaration is impossible, or null when it is fine. */
+export function timingFault(t: { sampleDelayTicks: number; tachDelayTicks: number; skewTicks: ArrayLike<number> }): string | null {
+  const d = t.sampleDelayTicks;
+  if (!Number.isFinite(d) || d < 0 || d > MAX_DELAY_TICKS) return `sample_delay_ticks ${d} outside 0..${MAX_DELAY_TICKS}`;
+  const td = t.tachDelayTicks;
+  if (!Number.isFinite(td) || td < 0 || td > MAX_DELAY_TICKS) return `tach_delay_ticks ${td} outside 0..${MAX_DELAY_TICKS}`;
+  for (let c = 0; c < t.skewTicks.length; c++) {
+    const s = t.skewTicks[c]!;
+    if (!Number.isFinite(s) || s < 0 || s >= 1) return `channel ${c} skew_ticks ${s} outside 0 to below 1 (a channel is converted within its sample period)`;
+  }
+  return null;
 }
 
 export interface FrameContent {
@@ -72,9 +108,11 @@ export interface FrameContent {
    * [firstSample, firstSample + samples per channel). Undefined: the board does not time the tach.
    */
   readonly tachEdges?: ArrayLike<number>;
+  /** Present: a version 2 frame declaring this timing; absent: a version 1 frame. Encoded as given (not checked), so tests can send impossible ones. */
+  readonly timing?: BoardTiming;
 }
 
-/** Encodes one version 1 frame. Pure; throws RangeError on content that cannot be encoded. */
+/** Encodes one version 1 frame, or version 2 when `timing` is given. Pure; throws RangeError on content that cannot be encoded. */
 export function encodeFrame(c: FrameContent): Uint8Array {
   const channelCount = c.samples.length;
   if (channelCount < 1 || channelCount > 255) throw new RangeError(`channel count ${channelCount} outside 1..255`);
@@ -89,13 +127,17 @@ export function encodeFrame(c: FrameContent): Uint8Array {
   const edgeCount = edges ? edges.length : 0;
   if (edgeCount > 65535) throw new RangeError(`${edgeCount} tach edges in one frame`);
 
-  const total = frameLength(channelCount, spc, c.format, edgeCount);
+  const timing = c.timing;
+  if (timing && timing.skewTicks.length !== channelCount) throw new RangeError(`${timing.skewTicks.length} skew(s) for ${channelCount} channel(s)`);
+  const headerLen = timing ? HEADER_LEN_V2 : HEADER_LEN_V1;
+  const entryLen = timing ? CHANNEL_ENTRY_LEN_V2 : CHANNEL_ENTRY_LEN_V1;
+  const total = frameLength(channelCount, spc, c.format, edgeCount, timing ? 2 : 1);
   const out = new Uint8Array(total);
   const dv = new DataView(out.buffer);
   out.set(FRAME_SYNC, 0);
-  dv.setUint8(4, PROTOCOL_VERSION);
-  dv.setUint8(5, HEADER_LEN_V1);
-  dv.setUint8(6, CHANNEL_ENTRY_LEN_V1);
+  dv.setUint8(4, timing ? PROTOCOL_VERSION_TIMED : PROTOCOL_VERSION);
+  dv.setUint8(5, headerLen);
+  dv.setUint8(6, entryLen);
   dv.setUint8(7, SAMPLE_FORMAT_CODE[c.format]);
   dv.setUint32(8, total, true);
   dv.setUint32(12, c.sequence, true);
@@ -107,12 +149,17 @@ export function encodeFrame(c: FrameContent): Uint8Array {
   dv.setUint8(35, edges ? FLAG_TACH_TIMED : 0);
   dv.setUint16(36, edgeCount, true);
   dv.setUint16(38, 0, true);
+  if (timing) {
+    dv.setFloat32(40, timing.sampleDelayTicks, true);
+    dv.setFloat32(44, timing.tachDelayTicks, true);
+  }
 
-  let o = HEADER_LEN_V1;
+  let o = headerLen;
   for (let ch = 0; ch < channelCount; ch++) {
     dv.setFloat32(o, c.scaleVPerCount[ch]!, true);
     dv.setFloat32(o + 4, c.offsetV ? c.offsetV[ch]! : 0, true);
-    o += CHANNEL_ENTRY_LEN_V1;
+    if (timing) dv.setFloat32(o + 8, timing.skewTicks[ch]!, true);
+    o += entryLen;
   }
   for (let i = 0; i < edgeCount; i++) {
     const e = edges![i]!;
@@ -164,9 +211,11 @@ export class DecodedFrame {
   channels: readonly Float32Array[] = [];
   /** Rising tach edges, absolute fractional output-clock indices; undefined when the board does not time the tach. */
   tachEdges: Float64Array | undefined = undefined;
+  /** Per-channel timing delay in ticks (version 2 frames: ADC delay + channel skew); undefined for version 1. */
+  channelDelays: Float64Array | undefined = undefined;
 }
 
-export type DecodeProblem = 'crc' | 'bad_length' | 'bad_header' | 'rejected' | 'resync' | 'gap' | 'sequence' | 'clock_restart';
+export type DecodeProblem = 'crc' | 'bad_length' | 'bad_header' | 'rejected' | 'resync' | 'gap' | 'sequence' | 'clock_restart' | 'timing';
 
 export interface FrameSink {
   /** A good frame, in order. `f` and its arrays are reused after the call returns. */
@@ -187,10 +236,13 @@ export interface DecoderLimits {
 
 export const DEFAULT_LIMITS: DecoderLimits = { maxFrameBytes: 262_144, maxChannels: 64, maxSamplesPerChannel: 8192, maxTachEdges: 256 };
 
+/** Default tolerance on the declared sample rate against the configured one, ppm (acquisition.sample_rate_tolerance_ppm). */
+export const DEFAULT_RATE_TOLERANCE_PPM = 100;
+
 export interface DecoderOptions {
   readonly limits?: Partial<DecoderLimits>;
   /** Frames that do not match are rejected (counted, and their samples reported as lost). */
-  readonly expect?: { readonly channelCount?: number; readonly sampleRateHz?: number };
+  readonly expect?: { readonly channelCount?: number; readonly sampleRateHz?: number; readonly sampleRateTolerancePpm?: number };
   /** Wall clock, ms; used only to estimate what was lost when the board's sample clock restarts. */
   readonly nowMs?: () => number;
 }
@@ -216,10 +268,23 @@ export interface DecoderCounters {
   sequence_anomalies: number;
   /** Times the board's sample clock went backwards (board restarted). */
   clock_restarts: number;
+  /** Version 2 frames whose timing declaration was impossible (their samples were used with the last good declaration). */
+  timing_faults: number;
 }
 
 function zeroCounters(): DecoderCounters {
-  return { bytes_received: 0, frames_ok: 0, crc_errors: 0, bad_lengths: 0, bad_headers: 0, rejected_frames: 0, resyncs: 0, bytes_skipped: 0, gaps: 0, samples_lost: 0, sequence_anomalies: 0, clock_restarts: 0 };
+  return { bytes_received: 0, frames_ok: 0, crc_errors: 0, bad_lengths: 0, bad_headers: 0, rejected_frames: 0, resyncs: 0, bytes_skipped: 0, gaps: 0, samples_lost: 0, sequence_anomalies: 0, clock_restarts: 0, timing_faults: 0 };
+}
+
+/** The timing in use, for the health report. */
+export interface TimingState {
+  /** Version of the last good frame (0 before the first). */
+  protocolVersion: number;
+  /** True once a version 2 frame declared a valid timing. */
+  declared: boolean;
+  sampleDelayTicks: number;
+  tachDelayTicks: number;
+  maxSkewTicks: number;
 }
 
 /** What went wrong between the last good frame and the next, to explain a gap. */
@@ -239,7 +304,14 @@ export class FrameDecoder {
   private readonly limits: DecoderLimits;
   private readonly expectChannels: number | undefined;
   private readonly expectRate: number | undefined;
+  private readonly rateTolerance: number;
   private readonly nowMs: () => number;
+  /** The timing in use (the last valid declaration; zeros until one arrives). */
+  readonly timing: TimingState = { protocolVersion: 0, declared: false, sampleDelayTicks: 0, tachDelayTicks: 0, maxSkewTicks: 0 };
+  private readonly skews: Float64Array;
+  private readonly goodSkews: Float64Array;
+  private readonly delays: Float64Array;
+  private delayView: Float64Array | null = null;
 
   private readonly buf: Buffer;
   private readonly dv: DataView;
@@ -274,12 +346,16 @@ export class FrameDecoder {
     if (l.maxFrameBytes < HEADER_LEN_V1 + CHANNEL_ENTRY_LEN_V1 + CRC_LEN + 2) throw new RangeError(`maxFrameBytes ${l.maxFrameBytes} is too small`);
     this.expectChannels = opts.expect?.channelCount;
     this.expectRate = opts.expect?.sampleRateHz;
+    this.rateTolerance = (opts.expect?.sampleRateTolerancePpm ?? DEFAULT_RATE_TOLERANCE_PPM) * 1e-6;
     this.nowMs = opts.nowMs ?? Date.now;
     this.buf = Buffer.alloc(Math.max(2 * l.maxFrameBytes, 65_536));
     this.dv = new DataView(this.buf.buffer, this.buf.byteOffset, this.buf.byteLength);
     this.edgeBuf = new Float64Array(l.maxTachEdges);
     this.scales = new Float64Array(l.maxChannels);
     this.offsets = new Float64Array(l.maxChannels);
+    this.skews = new Float64Array(l.maxChannels);
+    this.goodSkews = new Float64Array(l.maxChannels);
+    this.delays = new Float64Array(l.maxChannels);
   }
 
   /** Bytes held while waiting for the rest of a frame. */
@@ -363,9 +439,11 @@ export class FrameDecoder {
       const l = this.limits;
 
       let headerFault: string | null = null;
-      if (version !== PROTOCOL_VERSION) headerFault = `protocol version ${version} (this agent reads version ${PROTOCOL_VERSION})`;
-      else if (headerLen < HEADER_LEN_V1) headerFault = `header length ${headerLen} below ${HEADER_LEN_V1}`;
-      else if (entryLen < CHANNEL_ENTRY_LEN_V1) headerFault = `channel entry length ${entryLen} below ${CHANNEL_ENTRY_LEN_V1}`;
+      const minHeader = version === PROTOCOL_VERSION_TIMED ? HEADER_LEN_V2 : HEADER_LEN_V1;
+      const minEntry = version === PROTOCOL_VERSION_TIMED ? CHANNEL_ENTRY_LEN_V2 : CHANNEL_ENTRY_LEN_V1;
+      if (version !== PROTOCOL_VERSION && version !== PROTOCOL_VERSION_TIMED) headerFault = `protocol version ${version} (this agent reads versions ${PROTOCOL_VERSIONS.join(' and ')})`;
+      else if (headerLen < minHeader) headerFault = `header length ${headerLen} below ${minHeader} (version ${version})`;
+      else if (entryLen < minEntry) headerFault = `channel entry length ${entryLen} below ${minEntry} (version ${version})`;
       else if (!format) headerFault = `unknown sample format code ${buf[pos + 7]}`;
       else if (channelCount < 1 || channelCount > l.maxChannels) headerFault = `channel count ${channelCount} outside 1..${l.maxChannels}`;
       if (headerFault) {
@@ -404,7 +482,7 @@ export class FrameDecoder {
         continue;
       }
 
-      const accepted = this.accept(pos, headerLen, entryLen, format!, channelCount, spc, flags, edgeCount);
+      const accepted = this.accept(pos, version, headerLen, entryLen, format!, channelCount, spc, flags, edgeCount);
       this.skipping = false;
       if (!accepted) {
         // Intact but unusable: its bytes count as skipped; the gap shows at the next good frame.
@@ -416,7 +494,7 @@ export class FrameDecoder {
   }
 
   /** Decodes an intact frame at `pos` and hands it on. Returns false when the frame is rejected. */
-  private accept(pos: number, headerLen: number, entryLen: number, format: SampleFormat, channelCount: number, spc: number, flags: number, edgeCount: number): boolean {
+  private accept(pos: number, version: number, headerLen: number, entryLen: number, format: SampleFormat, channelCount: number, spc: number, flags: number, edgeCount: number): boolean {
     const buf = this.buf;
     const dv = this.dv;
     const sequence = dv.getUint32(pos + 12, true);
@@ -441,9 +519,16 @@ export class FrameDecoder {
     if (this.expectChannels !== undefined && channelCount !== this.expectChannels) {
       return reject('rejected', `${channelCount} channel(s), the configuration says ${this.expectChannels} (acquisition.channels)`);
     }
-    if (this.expectRate !== undefined && Math.abs(rate - this.expectRate) > 1e-6 * this.expectRate) {
-      return reject('rejected', `sample rate ${rate} Hz, the configuration says ${this.expectRate} Hz (acquisition.sample_rate_hz)`);
+    if (this.expectRate !== undefined && Math.abs(rate - this.expectRate) > this.rateTolerance * this.expectRate) {
+      const ppm = ((rate - this.expectRate) / this.expectRate) * 1e6;
+      return reject(
+        'rejected',
+        `sample rate ${rate} Hz declared, ${ppm >= 0 ? '+' : ''}${ppm.toFixed(0)} ppm from the configured ${this.expectRate} Hz, beyond the tolerance of ${(this.rateTolerance * 1e6).toFixed(0)} ppm: set acquisition.sample_rate_hz to the board's rate (or widen acquisition.sample_rate_tolerance_ppm)`,
+      );
     }
+    const timed = version === PROTOCOL_VERSION_TIMED;
+    const sampleDelay = timed ? dv.getFloat32(pos + 40, true) : 0;
+    const tachDelay = timed ? dv.getFloat32(pos + 44, true) : 0;
 
     let o = pos + headerLen;
     for (let ch = 0; ch < channelCount; ch++) {
@@ -452,13 +537,36 @@ export class FrameDecoder {
       if (!Number.isFinite(scale) || !Number.isFinite(offset)) return reject('bad_header', `channel ${ch} scale ${scale} V/count or offset ${offset} V is not finite`);
       this.scales[ch] = scale;
       this.offsets[ch] = offset;
+      if (timed) this.skews[ch] = dv.getFloat32(o + 8, true);
       o += entryLen;
     }
+    // An impossible timing declaration does not stop monitoring: it is counted and reported, and the
+    // samples are placed with the last good declaration (zeros if none came yet).
+    const tm = this.timing;
+    if (timed) {
+      const fault = timingFault({ sampleDelayTicks: sampleDelay, tachDelayTicks: tachDelay, skewTicks: this.skews.subarray(0, channelCount) });
+      if (fault) {
+        this.counters.timing_faults++;
+        this.sink.problem('timing', `frame ${sequence}: impossible timing declaration (${fault}); its samples are used with the last good declaration (${tm.declared ? `sample delay ${tm.sampleDelayTicks} ticks, tach delay ${tm.tachDelayTicks} ticks` : 'none yet: no delay compensation'}): fix the board's firmware (PROTOCOL.md 2.6)`);
+      } else {
+        tm.declared = true;
+        tm.sampleDelayTicks = sampleDelay;
+        tm.tachDelayTicks = tachDelay;
+        let mx = 0;
+        for (let ch = 0; ch < channelCount; ch++) {
+          this.goodSkews[ch] = this.skews[ch]!;
+          if (this.skews[ch]! > mx) mx = this.skews[ch]!;
+        }
+        tm.maxSkewTicks = mx;
+      }
+    }
+    tm.protocolVersion = version;
+    const tachShift = timed ? tm.tachDelayTicks : 0;
     // Tach edges are decoded relative to the board clock here; shifted to the output clock below.
     for (let i = 0; i < edgeCount; i++) {
       const rel = dv.getUint32(o, true);
       if (rel >= spc) return reject('bad_header', `tach edge at sample ${rel} of a ${spc}-sample frame`);
-      this.edgeBuf[i] = boardFirst + rel + dv.getUint32(o + 4, true) / TWO_POW_32;
+      this.edgeBuf[i] = boardFirst + rel + dv.getUint32(o + 4, true) / TWO_POW_32 - tachShift;
       o += TACH_EDGE_LEN;
     }
 
@@ -515,6 +623,11 @@ export class FrameDecoder {
         out.tachEdges = this.edgeBuf.subarray(0, edgeCount);
       }
     } else out.tachEdges = undefined;
+    if (timed && tm.declared) {
+      if (!this.delayView || this.delayView.length !== channelCount) this.delayView = this.delays.subarray(0, channelCount);
+      for (let ch = 0; ch < channelCount; ch++) this.delayView[ch] = tm.sampleDelayTicks - this.goodSkews[ch]!;
+      out.channelDelays = this.delayView;
+    } else out.channelDelays = undefined;
 
     this.counters.frames_ok++;
     this.nextBoardIndex = boardFirst + spc;
@@ -543,6 +656,7 @@ export class FrameDecoder {
     let from: number;
     let to: number;
     let what: string;
+    let restart = false;
     if (boardFirst > expected) {
       from = expected + this.clockOffset;
       to = boardFirst + this.clockOffset;
@@ -552,6 +666,7 @@ export class FrameDecoder {
       // The board's clock went backwards: it restarted. How much was lost is only known from the
       // wall clock: the time since the last good frame, less this frame's own duration.
       this.counters.clock_restarts++;
+      restart = true;
       const elapsedMs = Math.max(0, this.nowMs() - this.lastGoodMs);
       const estimate = Math.max(1, Math.round((elapsedMs / 1000) * (this.lastRate || rate)) - spc);
       from = expected + this.clockOffset;
@@ -564,7 +679,7 @@ export class FrameDecoder {
     this.counters.gaps++;
     this.counters.samples_lost += to - from;
     this.sink.problem('gap', `${to - from} samples lost (${from} .. ${to}): ${reason}`);
-    this.sink.gap({ kind: 'gap', fromIndex: from, toIndex: to, reason });
+    this.sink.gap(restart ? { kind: 'gap', fromIndex: from, toIndex: to, reason, clockRestart: true } : { kind: 'gap', fromIndex: from, toIndex: to, reason });
   }
 
   private describeCause(what: string): string {

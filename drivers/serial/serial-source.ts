@@ -13,7 +13,7 @@ import type { SerialDriverConfig } from '../../agent/config/acquisition.js';
 import { UserError } from '../../agent/errors.js';
 import { BurstLog } from '../../agent/burst-log.js';
 import type { Logger } from '../../agent/log.js';
-import type { SampleSource, SourceInfo, SourceItem } from '../source.js';
+import type { GapMarker, SampleSource, SourceInfo, SourceItem } from '../source.js';
 import { BlockQueue } from './block-queue.js';
 import { FrameDecoder, type DecodedFrame, type DecodeProblem, type FrameSink } from './frame.js';
 import { PortReader, type ReadablePort } from './port-reader.js';
@@ -25,7 +25,13 @@ export interface SerialSourceOptions {
   readonly baud: number;
   /** What the board must send; other frames are rejected and counted. */
   readonly sampleRateHz: number;
+  /** How far a frame's declared rate may be from sampleRateHz, ppm (default 100). */
+  readonly sampleRateTolerancePpm?: number;
   readonly channels: number;
+  /** The config says the board times the tach (acquisition.board_tach_edges); frames that disagree are reported once. */
+  readonly boardTachEdges?: boolean;
+  /** Most samples per channel in one frame (default 8192). */
+  readonly maxSamplesPerChannel?: number;
   readonly reconnectMinMs: number;
   readonly reconnectMaxMs: number;
   readonly stallTimeoutMs: number;
@@ -45,7 +51,10 @@ export function serialOptionsFromConfig(a: SerialDriverConfig, log: Logger): Ser
     device: a.device,
     baud: a.baud,
     sampleRateHz: a.sample_rate_hz,
+    sampleRateTolerancePpm: a.sample_rate_tolerance_ppm,
     channels: a.channels,
+    boardTachEdges: a.board_tach_edges,
+    maxSamplesPerChannel: a.max_samples_per_channel,
     reconnectMinMs: a.reconnect_min_ms,
     reconnectMaxMs: a.reconnect_max_ms,
     stallTimeoutMs: a.stall_timeout_ms,
@@ -71,6 +80,22 @@ export type SerialHealth = {
   readonly samples_lost: number;
   readonly sequence_anomalies: number;
   readonly clock_restarts: number;
+  /** Version 2 frames with an impossible timing declaration (used with the last good one). */
+  readonly timing_faults: number;
+  /** Protocol version of the last good frame; null before the first. */
+  readonly protocol_version: number | null;
+  /** Timing in use: declared by a version 2 board, or null (version 1: samples taken as simultaneous and undelayed). */
+  readonly sample_delay_ticks: number | null;
+  readonly tach_delay_ticks: number | null;
+  readonly max_skew_ticks: number | null;
+  /** Frames whose tach mode disagrees with acquisition.board_tach_edges (their edges, or the lack of them, noted once). */
+  readonly tach_mode_mismatches: number;
+  /** Bounds of the last gap on the agent's sample clock (first missing index, first index present again), and why. */
+  readonly last_gap_from_index: number | null;
+  readonly last_gap_to_index: number | null;
+  readonly last_gap_reason: string | null;
+  /** DTR and RTS after the open: "asserted", or why not (a pseudo-terminal has no modem lines). */
+  readonly modem_lines: string | null;
   /** Frames dropped because the DSP fell behind (included in gaps and samples_lost). */
   readonly overruns: number;
   /** Times an open device went silent for stall_timeout_ms and was reopened. */
@@ -124,6 +149,9 @@ export class SerialSource implements SampleSource {
   private lastError: string | null = null;
   private lastErrorAt: string | null = null;
   private closed: Promise<void> | null = null;
+  private tachModeMismatches = 0;
+  private lastGap: GapMarker | null = null;
+  private modemLines: string | null = null;
 
   constructor(opts: SerialSourceOptions) {
     this.opts = opts;
@@ -135,12 +163,12 @@ export class SerialSource implements SampleSource {
     this.queue = new BlockQueue(opts.queueFrames);
     const sink: FrameSink = {
       frame: (f) => this.onFrame(f),
-      gap: (g) => this.queue.pushGap(g),
+      gap: (g) => this.onGap(g),
       problem: (kind, detail) => this.onProblem(kind, detail),
     };
     this.decoder = new FrameDecoder(sink, {
-      limits: { maxFrameBytes: opts.maxFrameBytes },
-      expect: { channelCount: opts.channels, sampleRateHz: opts.sampleRateHz },
+      limits: { maxFrameBytes: opts.maxFrameBytes, ...(opts.maxSamplesPerChannel !== undefined ? { maxSamplesPerChannel: opts.maxSamplesPerChannel } : {}) },
+      expect: { channelCount: opts.channels, sampleRateHz: opts.sampleRateHz, sampleRateTolerancePpm: opts.sampleRateTolerancePpm },
       nowMs: this.nowMs,
     });
   }
@@ -172,6 +200,7 @@ export class SerialSource implements SampleSource {
 
   health(): SerialHealth {
     const c = this.decoder.counters;
+    const t = this.decoder.timing;
     const q = this.queue;
     return {
       device: this.opts.device,
@@ -188,6 +217,16 @@ export class SerialSource implements SampleSource {
       samples_lost: c.samples_lost + q.overrunSamples,
       sequence_anomalies: c.sequence_anomalies,
       clock_restarts: c.clock_restarts,
+      timing_faults: c.timing_faults,
+      protocol_version: t.protocolVersion || null,
+      sample_delay_ticks: t.declared ? t.sampleDelayTicks : null,
+      tach_delay_ticks: t.declared ? t.tachDelayTicks : null,
+      max_skew_ticks: t.declared ? t.maxSkewTicks : null,
+      tach_mode_mismatches: this.tachModeMismatches,
+      last_gap_from_index: this.lastGap?.fromIndex ?? null,
+      last_gap_to_index: this.lastGap?.toIndex ?? null,
+      last_gap_reason: this.lastGap?.reason ?? null,
+      modem_lines: this.modemLines,
       overruns: q.overruns,
       stalls: this.stalls,
       reconnects: this.reconnects,
@@ -223,10 +262,30 @@ export class SerialSource implements SampleSource {
     this.burst.report(kind, `${this.opts.device}: ${detail}`, { device: this.opts.device });
   }
 
+  private onGap(g: GapMarker): void {
+    // Every gap, also those inside a burst that the warning summarises: bounds in the heartbeat and a debug line.
+    this.lastGap = g;
+    this.log.debug({ device: this.opts.device, from_index: g.fromIndex, to_index: g.toIndex, samples: g.toIndex - g.fromIndex, clock_restart: g.clockRestart === true }, `${this.opts.device}: gap ${g.fromIndex} .. ${g.toIndex}: ${g.reason}`);
+    this.queue.pushGap(g);
+  }
+
   private onFrame(f: DecodedFrame): void {
     this.lastFrameMs = this.nowMs();
     this.attempt = 0;
-    this.queue.pushBlock(f.startIndex, f.channels, f.tachEdges);
+    let edges = f.tachEdges;
+    const want = this.opts.boardTachEdges;
+    if (want !== undefined && want !== (edges !== undefined)) {
+      this.tachModeMismatches++;
+      this.burst.report(
+        'tach_mode',
+        want
+          ? `${this.opts.device}: acquisition.board_tach_edges is true but frame ${f.sequence} does not set tach_timed (flags bit 0): no revolution can be averaged; set board_tach_edges: false and tach.channel, or fix the board`
+          : `${this.opts.device}: frame ${f.sequence} carries board-timed tach edges but acquisition.board_tach_edges is false: the edges are ignored and the tach is found on tach.channel; set board_tach_edges: true to use them`,
+        { device: this.opts.device },
+      );
+    }
+    if (want === false) edges = undefined;
+    this.queue.pushBlock(f.startIndex, f.channels, edges, this.lastFrameMs, f.channelDelays);
   }
 
   private tryOpen(): void {
@@ -234,7 +293,8 @@ export class SerialSource implements SampleSource {
     if (this.closing) return;
     let opening: Promise<OpenPort>;
     try {
-      opening = this.mod!.SerialPort.binding.open({ path: this.opts.device, baudRate: this.opts.baud });
+      // UART settings: 8 data bits, no parity, 1 stop bit, no flow control; DTR and RTS dropped on close (hupcl).
+      opening = this.mod!.SerialPort.binding.open({ path: this.opts.device, baudRate: this.opts.baud, dataBits: 8, parity: 'none', stopBits: 1, rtscts: false, xon: false, xoff: false, hupcl: true });
     } catch (e) {
       this.openFailed(e as Error);
       return;
@@ -259,10 +319,32 @@ export class SerialSource implements SampleSource {
       // A read error is the device going away (unplugged, hung up): close and reopen with backoff.
       failed: (err) => void this.closePort(port, err),
     });
-    this.log.info({ device: this.opts.device, reconnects: this.reconnects, read_mode: reader.mode }, this.everConnected ? `${this.opts.device}: reopened` : `${this.opts.device}: opened`);
+    const what = this.everConnected ? 'reopened' : 'opened';
     this.everConnected = true;
     this.reader = reader;
     reader.start();
+    // Says what became of DTR and RTS in the same line (once the ioctl has answered).
+    void this.assertModemLines(port).then((lines) => {
+      this.log.info({ device: this.opts.device, reconnects: this.reconnects, read_mode: reader.mode, modem_lines: lines }, `${this.opts.device}: ${what}, 8N1 at ${this.opts.baud} bit/s, DTR and RTS ${lines}`);
+    });
+  }
+
+  /**
+   * Asserts DTR and RTS, as many USB CDC firmwares stream only once the host has raised DTR
+   * ("terminal ready"). A pseudo-terminal has no modem lines: that is noted, not an error.
+   */
+  private async assertModemLines(port: OpenPort): Promise<string> {
+    const p = port as OpenPort & { set?: (o: { dtr?: boolean; rts?: boolean }) => Promise<void> };
+    if (typeof p.set !== 'function') this.modemLines = 'not available from this port';
+    else {
+      try {
+        await p.set({ dtr: true, rts: true });
+        this.modemLines = 'asserted';
+      } catch (e) {
+        this.modemLines = `not supported by the device (${(e as Error).message}; a pseudo-terminal has no modem lines)`;
+      }
+    }
+    return this.modemLines;
   }
 
   /** Stops reading and closes the port; `failure` is the read error that made it necessary, if any. */

@@ -8,6 +8,7 @@ export interface CopiedFrame {
   readonly sampleRateHz: number;
   readonly channels: number[][];
   readonly tachEdges: number[] | undefined;
+  readonly channelDelays: number[] | undefined;
 }
 
 export type Recorded = { kind: 'frame'; frame: CopiedFrame } | { kind: 'gap'; gap: GapMarker };
@@ -27,6 +28,7 @@ export class RecordingSink implements FrameSink {
         sampleRateHz: f.sampleRateHz,
         channels: f.channels.map((c) => Array.from(c)),
         tachEdges: f.tachEdges ? Array.from(f.tachEdges) : undefined,
+        channelDelays: f.channelDelays ? Array.from(f.channelDelays) : undefined,
       },
     });
   }

@@ -126,7 +126,6 @@ export function analysisTable(file: string, w: WindowResult, cfg: Config, a: Win
 
 export const analyzeCommand: Command = {
   name: 'analyze',
-  summary: 'measure overall velocity and order vectors (1x, 2x, ...) from a WAV recording',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('analyze', usage, argv, {

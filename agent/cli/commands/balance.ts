@@ -375,7 +375,6 @@ const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
 
 export const balanceCommand: Command = {
   name: 'balance',
-  summary: 'influence-coefficient balancing: solve a job, split or combine weights, trial weight, ISO 21940-11 check',
   usage,
   async run(argv) {
     const [sub, ...rest] = argv;

@@ -7,7 +7,6 @@ const usage = 'turnwise check-config FILE [--json]';
 
 export const checkConfigCommand: Command = {
   name: 'check-config',
-  summary: 'validate a YAML config file and print what it sets',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('check-config', usage, argv, { json: { type: 'boolean' } });

@@ -93,7 +93,6 @@ function learn(cfg: Config, file: string, json: boolean, clock: Clock): void {
 export function makeConditionCommand(clock: Clock = systemClock): Command {
   return {
     name: 'condition',
-    summary: 'show baseline, last reported zone and trend; learn or clear the 1x baseline',
     usage,
     async run(argv) {
       const { values, positionals } = parseCommandArgs('condition', usage, argv, { config: { type: 'string', short: 'c' }, json: { type: 'boolean' } });

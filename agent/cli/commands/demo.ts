@@ -10,9 +10,9 @@ import { FakeGpioLines } from '../../../drivers/gpio/fake-lines.js';
 import { systemClock } from '../../clock.js';
 import { validateConfig } from '../../config/load.js';
 import type { AgentEvent } from '../../events.js';
-import { LiveServer } from '../../live/server.js';
 import { createPinoLogger } from '../../logging/pino-logger.js';
-import { Agent } from '../../runtime/agent.js';
+import { assemble } from '../../runtime/assemble.js';
+import { UserError } from '../../errors.js';
 import { numberOption, parseCommandArgs } from '../args.js';
 
 const num = (name: string, raw: string | undefined, def: number, min: number, max: number): number =>
@@ -23,19 +23,50 @@ const usage = 'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port
 
 const CONFIG_DIR = fileURLToPath(new URL('../../../../config/', import.meta.url));
 
-async function listenFree(server: Server, preferred: number): Promise<number> {
-  const tryPort = (p: number) =>
-    new Promise<number>((resolve, reject) => {
-      server.once('error', reject);
-      server.listen(p, '127.0.0.1', () => {
-        server.removeListener('error', reject);
-        resolve((server.address() as { port: number }).port);
-      });
+function listenOn(server: Server, port: number): Promise<number> {
+  return new Promise<number>((resolve, reject) => {
+    server.once('error', reject);
+    server.listen(port, '127.0.0.1', () => {
+      server.removeListener('error', reject);
+      resolve((server.address() as { port: number }).port);
     });
+  });
+}
+
+/** The one message for a demo port that another program (often a demo still running) holds. */
+function portInUse(option: '--port' | '--mqtt-port', port: number, what: string): UserError {
+  return new UserError(
+    `${option} ${port}`,
+    `port ${port} on 127.0.0.1, for ${what}, is already in use, probably by another turnwise demo${option === '--mqtt-port' ? ' or an MQTT broker such as mosquitto' : ''}`,
+    `start the demo on another port, e.g. \`npm start -- ${option} ${port + 1}\` (or ${option} 0 for any free port), or stop the program using port ${port}`,
+  );
+}
+
+/**
+ * Listens on `port`; when the user gave no port and the default is taken, on any free port
+ * (reported in the banner); a port the user asked for that is taken ends the demo with one message.
+ */
+async function listenDemoPort(server: Server, port: number, userGave: boolean, option: '--port' | '--mqtt-port', what: string): Promise<{ port: number; fellBackFrom?: number }> {
   try {
-    return await tryPort(preferred);
-  } catch {
-    return tryPort(0);
+    return { port: await listenOn(server, port) };
+  } catch (e) {
+    if ((e as NodeJS.ErrnoException).code !== 'EADDRINUSE') throw e;
+    if (userGave) throw portInUse(option, port, what);
+    return { port: await listenOn(server, 0), fellBackFrom: port };
+  }
+}
+
+/** Fails with the one message when the live page's port is taken, before anything else starts. */
+async function checkPortFree(port: number, option: '--port', what: string): Promise<void> {
+  if (port === 0) return;
+  const probe = createServer();
+  try {
+    await listenOn(probe, port);
+  } catch (e) {
+    if ((e as NodeJS.ErrnoException).code === 'EADDRINUSE') throw portInUse(option, port, what);
+    throw e;
+  } finally {
+    await new Promise<void>((r) => (probe.listening ? probe.close(() => r()) : r()));
   }
 }
 
@@ -58,7 +89,6 @@ function describeEvent(e: AgentEvent): string {
 
 export const demoCommand: Command = {
   name: 'demo',
-  summary: 'the whole product on a laptop: simulated demo fan, MQTT broker, live page, a week in minutes',
   usage,
   async run(argv) {
     const { values } = parseCommandArgs('demo', usage, argv, {
@@ -74,16 +104,24 @@ export const demoCommand: Command = {
     const fromDay = num('from-day', values['from-day'], 0, 0, 7);
     const seconds = values.seconds === undefined ? Infinity : num('seconds', values.seconds, 0, 1, 1e9);
     const livePort = num('port', values.port, 8480, 0, 65535);
+    // A port in use is said at once, naming the option to change, before the broker starts.
+    await checkPortFree(livePort, '--port', 'the live page');
     const log = createPinoLogger({ level: 'warn' });
 
     // The embedded broker (aedes), unless the user gave one.
     let brokerUrl = values.broker;
     let closeBroker = async () => {};
+    let brokerNote = '';
     if (!brokerUrl) {
       const { Aedes } = await import('aedes');
       const aedes = await Aedes.createBroker();
       const server = createServer(aedes.handle);
-      const port = await listenFree(server, num('mqtt-port', values['mqtt-port'], 1883, 0, 65535));
+      const bound = await listenDemoPort(server, num('mqtt-port', values['mqtt-port'], 1883, 0, 65535), values['mqtt-port'] !== undefined, '--mqtt-port', 'the embedded MQTT broker').catch(async (e: unknown) => {
+        await new Promise<void>((r) => aedes.close(() => r()));
+        throw e;
+      });
+      const port = bound.port;
+      if (bound.fellBackFrom) brokerNote = `, port ${bound.fellBackFrom} was in use`;
       brokerUrl = `mqtt://127.0.0.1:${port}`;
       closeBroker = async () => {
         await new Promise<void>((r) => aedes.close(() => r()));
@@ -114,38 +152,26 @@ export const demoCommand: Command = {
         },
         'demo config (config/example.yaml with demo settings)',
       );
-      const { source } = createSource(cfg, configFile, { log });
       const startMs = Date.UTC(2026, 0, 5, 0, 0, 0) + fromDay * 86400_000;
-      let agent: Agent;
-      const live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() }, { ...process.env, TURNWISE_DEMO_TOKEN: token });
-      agent = new Agent({
+      const { agent, startLive, stopLive } = await assemble({
         config: cfg,
-        source,
-        boardTimesTach: false,
         clock: systemClock,
         logger: log,
-        gpio: new FakeGpioLines(),
+        env: { ...process.env, TURNWISE_DEMO_TOKEN: token },
+        // A laptop has no GPIO lines: the advisory drives lines in memory.
+        openGpio: () => new FakeGpioLines(),
+        openSource: (c) => ({ source: createSource(c, configFile, { log }).source, boardTimesTach: false }),
         startMs,
         timeScale: speed,
-        windowConsumers: [
-          {
-            onWindow: (w, at) => {
-              live.onWindow(w, at);
-              if (agent.status) live.onWatch(agent.status);
-            },
-          },
-        ],
-        liveConsumers: [live],
         onEvent: (e) => process.stdout.write(`  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`),
       });
-      agent.handlers.balancingSession = (a) => live.workbench.sessionCommand(a);
-      const { url } = await live.start();
+      const url = await startLive();
       const [host, port] = brokerUrl.replace('mqtt://', '').split(':');
       process.stdout.write(
         `turnwise demo: the invented Kessrow Board Mill ID fan 3A, simulated (INVENTED DATA)\n` +
           `  live page   ${url}\n` +
           `  token       ${token}   (operator role; the page asks for it)\n` +
-          `  MQTT        ${brokerUrl}${values.broker ? '' : ' (embedded broker)'}\n` +
+          `  MQTT        ${brokerUrl}${values.broker ? '' : ` (embedded broker${brokerNote})`}\n` +
           `  watch with  mosquitto_sub -h ${host} -p ${port ?? 1883} -t '${prefix}/#' -v\n` +
           `  topics      ${prefix}/${cfg.machine.id}/status, /heartbeat, /live, /event/<type>, /cmd, /cmd/reply\n` +
           `  timeline    one scenario day every ${(86400 / speed).toFixed(0)} s: start-up, build-up from day 3, a cable fault on day 4,\n` +
@@ -162,7 +188,7 @@ export const demoCommand: Command = {
         await agent.run(2000);
       } finally {
         if (timer) clearTimeout(timer);
-        await live.stop();
+        await stopLive();
       }
       return 0;
     } finally {

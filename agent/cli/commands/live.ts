@@ -76,7 +76,6 @@ function check(argv: string[]): number {
 
 export const liveCommand: Command = {
   name: 'live',
-  summary: 'make access tokens for the live page and check its config',
   usage,
   async run(argv) {
     const [sub, ...rest] = argv;

@@ -83,7 +83,6 @@ function topicsAction(cfgFile: string, json: boolean): number {
 
 export const mqttCommand: Command = {
   name: 'mqtt',
-  summary: 'plant-network helpers: topic layout, outbox contents, payload schemas',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('mqtt', usage, argv, {

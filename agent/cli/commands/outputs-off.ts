@@ -24,7 +24,6 @@ const stderrLogger: Logger = {
  */
 export const outputsOffCommand: Command = {
   name: 'outputs-off',
-  summary: 'drop the advisory relay and lamp (run by systemd after the agent stopped, however it stopped)',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('outputs-off', usage, argv, {

@@ -2,10 +2,9 @@ import { randomUUID } from 'node:crypto';
 import { createSource } from '../../../drivers/create-source.js';
 import { systemClock } from '../../clock.js';
 import { isUserError, UserError } from '../../errors.js';
-import { LiveServer } from '../../live/server.js';
 import { createPinoLogger, pinoOptionsFromConfig } from '../../logging/pino-logger.js';
 import { defaultLastGoodPath, fallbackConfig, keepLastGood, loadGuardedConfig, type GuardedConfig } from '../../runtime/config-guard.js';
-import { Agent } from '../../runtime/agent.js';
+import { assemble, type Assembly } from '../../runtime/assemble.js';
 import { createServiceNotifier } from '../../service/systemd-notifier.js';
 import { WatchdogKeeper } from '../../service/watchdog.js';
 import { systemTimers } from '../../timers.js';
@@ -32,7 +31,6 @@ interface StopSwitch {
 
 export const runCommand: Command = {
   name: 'run',
-  summary: 'the agent: acquire, measure, watch, publish over MQTT, drive the advisory, serve the live page',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('run', usage, argv, {
@@ -77,46 +75,30 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
   }
   const notifier = createServiceNotifier({ logger: log });
   let keeper: WatchdogKeeper | null = null;
-  let live: LiveServer | null = null;
+  let assembly: Assembly | null = null;
   try {
-    const gpio = await openBoardGpio(cfg, log);
-    // Relative paths (recording, scenario) are read beside the file the user gave, also when
-    // running on the last-good copy (a copy of an earlier version of that file).
-    const { source, boardTimesTach } = createSource(cfg, file, { log });
     let lastWindowAt = Date.now();
-    let agent: Agent;
-    if (cfg.live) {
-      live = LiveServer.fromConfig(cfg, { logger: log, clock: systemClock, emit: (e) => agent.queueEvent(e), onCoefficientsSaved: () => agent.watcher.reloadCoefficients() });
-    }
     const firstWindow = () => {
       progress.measured = true;
       if (guarded.from !== file) return;
       keepLastGood(file, plan.lastGood, (e) => log.warn({ last_good: plan.lastGood }, `cannot keep a copy of the config as the last good one (${e.message}); a broken config later would find no fallback`));
     };
-    agent = new Agent({
+    assembly = await assemble({
       config: cfg,
-      source,
-      boardTimesTach,
       clock: systemClock,
       logger: log,
-      gpio,
+      openGpio: (c) => openBoardGpio(c, log),
+      // Relative paths (recording, scenario) are read beside the file the user gave, also when
+      // running on the last-good copy (a copy of an earlier version of that file).
+      openSource: (c) => createSource(c, file, { log }),
       agentVersion: process.env['npm_package_version'],
-      windowConsumers: [
-        {
-          onWindow: (w, at) => {
-            lastWindowAt = Date.now();
-            if (!progress.measured) firstWindow();
-            if (live) {
-              live.onWindow(w, at);
-              if (agent.status) live.onWatch(agent.status);
-            }
-          },
-        },
-      ],
-      liveConsumers: live ? [live] : [],
+      onWindow: () => {
+        lastWindowAt = Date.now();
+        if (!progress.measured) firstWindow();
+      },
       onStarted: () => notifier.ready(`watching ${cfg.machine.id}`),
     });
-    if (live) agent.handlers.balancingSession = (a) => live!.workbench.sessionCommand(a);
+    const { agent, live } = assembly;
     if (guarded.rejected) {
       agent.queueEvent({
         id: randomUUID(),
@@ -136,7 +118,7 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
       agent.stop();
     };
     if (live) {
-      const { url } = await live.start();
+      const url = await assembly.startLive();
       log.info({ url }, 'live page ready');
       process.stderr.write(`turnwise run: live page at ${url}\n`);
     }
@@ -146,7 +128,7 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
   } finally {
     stopSwitch.current = null;
     keeper?.stop();
-    await live?.stop();
+    await assembly?.stopLive();
     await notifier.close();
   }
 }

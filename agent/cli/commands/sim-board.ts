@@ -29,7 +29,6 @@ const FORMATS: readonly SampleFormat[] = ['int24', 'int16', 'float32'];
  */
 export const simBoardCommand: Command = {
   name: 'sim-board',
-  summary: 'play the simulated fan as the serial acquisition board on a pseudo-terminal, in real time, until stopped',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('sim-board', usage, argv, {

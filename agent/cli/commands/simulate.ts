@@ -18,7 +18,6 @@ const BLOCK = 8192;
 
 export const simulateCommand: Command = {
   name: 'simulate',
-  summary: 'play a scenario on the simulated fan and record it as a WAV file (float32 volts, the board\'s channel map)',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('simulate', usage, argv, {

@@ -81,7 +81,6 @@ export function sweepTable(file: string, sweeps: readonly Sweep[], cfg: Config):
 
 export const sweepCommand: Command = {
   name: 'sweep',
-  summary: 'find run-ups and coast-downs in a recording: 1x vector against speed (Bode, polar) and resonances',
   usage,
   async run(argv) {
     const { values, positionals } = parseCommandArgs('sweep', usage, argv, {

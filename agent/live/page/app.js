@@ -11,15 +11,21 @@ import { Trend } from './trend.js';
 import { Workbench } from './workbench.js';
 import { showRecords, showReport } from './report.js';
 
+// The server's own types: the page is checked against what agent/live/view.ts sends.
+/** @typedef {import('../view.js').SessionView} SessionView */
+/** @typedef {import('../view.js').LiveSnapshot} LiveSnapshot */
+/** @typedef {import('../view.js').PageMessage} PageMessage */
+/** @typedef {import('../../balance/workbench/view.js').JobView} JobView */
+
 const TOKEN_KEY = 'turnwise.token';
 const $ = (/** @type {string} */ id) => /** @type {HTMLElement} */ (document.getElementById(id));
 
-/** @type {any} */
+/** @type {SessionView | null} */
 let session = null;
 /** @type {WebSocket | null} */
 let socket = null;
 let lastLiveAt = 0;
-/** @type {any} */
+/** @type {LiveSnapshot | null} */
 let lastLive = null;
 /** @type {Map<string, { card: HTMLElement, plot: PolarPlot, amp: HTMLElement, phase: HTMLElement, overall: HTMLElement, zone: HTMLElement, ok: HTMLElement, problems: HTMLElement }>} */
 const cards = new Map();
@@ -41,29 +47,33 @@ function showLogin(message = '') {
 
 async function start(token) {
   api.token = token;
+  /** @type {SessionView} */
+  let me;
   try {
-    session = await api.get('/api/session');
+    me = await api.get('/api/session');
   } catch (e) {
     showLogin(/** @type {any} */ (e).status === 401 ? 'That token was not accepted. Check it and try again.' : `Cannot reach the agent: ${/** @type {any} */ (e).message}`);
     return;
   }
+  session = me;
   sessionStorage.setItem(TOKEN_KEY, token);
-  units.velocity = session.units;
+  units.velocity = me.units;
   $('login').hidden = true;
-  $('machine').textContent = session.machine_name;
-  $('role').textContent = `${session.token_name} (${session.role === 'operator' ? 'operator' : 'viewer: read only'})`;
-  buildCards();
-  if (!trend) trend = new Trend($('trend'), session.sensors.map((/** @type {any} */ s) => s.id));
-  workbench ??= new Workbench($('view-job'), session, () => lastLive);
+  $('machine').textContent = me.machine_name;
+  $('role').textContent = `${me.token_name} (${me.role === 'operator' ? 'operator' : 'viewer: read only'})`;
+  buildCards(me);
+  if (!trend) trend = new Trend($('trend'), me.sensors.map((s) => s.id));
+  workbench ??= new Workbench($('view-job'), me, () => lastLive);
   connect();
   route();
 }
 
-function buildCards() {
+/** @param {SessionView} me */
+function buildCards(me) {
   const root = $('cards');
   root.replaceChildren();
   cards.clear();
-  for (const s of session.sensors) {
+  for (const s of me.sensors) {
     const canvas = /** @type {HTMLCanvasElement} */ (h('canvas', { width: 200, height: 200, 'aria-label': `1x vector of ${s.id}` }));
     const amp = h('span', { class: 'big' }, '-');
     const phase = h('span', { class: 'big' }, '-');
@@ -94,7 +104,7 @@ function buildCards() {
   }
 }
 
-/** @param {any} live */
+/** @param {LiveSnapshot} live */
 function renderLive(live) {
   lastLive = live;
   lastLiveAt = Date.now();
@@ -183,7 +193,7 @@ function connect() {
   socket = ws;
   ws.onopen = () => ws.send(JSON.stringify({ type: 'hello', token: api.token }));
   ws.onmessage = (ev) => {
-    /** @type {any} */
+    /** @type {PageMessage} */
     const m = JSON.parse(String(ev.data));
     if (m.type === 'welcome') {
       reconnectMs = 1000;
@@ -208,7 +218,7 @@ function connect() {
   };
 }
 
-/** The open job's angle convention, shown on the live screen too. @param {any} view */
+/** The open job's angle convention, shown on the live screen too. @param {JobView | null} view */
 function jobNote(view) {
   const el = $('job-note');
   el.hidden = !view || view.job.status !== 'open';

@@ -8,9 +8,7 @@ import { h, units } from './format.js';
 /** Distinct, dark colours that read on white in sunlight. */
 export const SENSOR_COLOURS = ['#003a8c', '#b3001b', '#0b6e2f', '#7a3e00', '#6a1b9a', '#00695c', '#000000', '#c25e00'];
 
-/**
- * @typedef {{ t_ms: number, speed_rpm: number | null, channels: Record<string, { one_x_pk_mm_s: number | null, overall_rms_mm_s: number | null }> }} TrendPoint
- */
+/** @typedef {import('../view.js').TrendPoint} TrendPoint */
 
 export class Trend {
   /** @param {HTMLElement} root @param {string[]} sensors */
@@ -49,11 +47,27 @@ export class Trend {
       };
       this.plots.push(new U(opts, this.data(k), box));
     });
-    window.addEventListener('resize', () => this.plots.forEach((p) => p.setSize({ width: this.width(), height: 220 })));
+    // The charts follow their box: the window's width, a phone turned, the view shown after being
+    // hidden (a hidden box is 0 px wide and is left alone until it is shown).
+    this.drawnWidth = this.width();
+    new ResizeObserver(() => this.resize()).observe(root);
   }
 
+  /** The chart width that fits the plot box (inside its border and padding), CSS px. */
   width() {
-    return Math.max(280, Math.min(this.root.clientWidth || 600, 1400) - 8);
+    const box = /** @type {HTMLElement | null} */ (this.root.querySelector('.trend-plot'));
+    if (!box || box.clientWidth === 0) return 280;
+    const cs = getComputedStyle(box);
+    const inner = box.clientWidth - parseFloat(cs.paddingLeft) - parseFloat(cs.paddingRight);
+    return Math.max(200, Math.min(Math.floor(inner), 1400));
+  }
+
+  resize() {
+    if (this.root.clientWidth === 0) return;
+    const width = this.width();
+    if (width === this.drawnWidth) return;
+    this.drawnWidth = width;
+    this.plots.forEach((p) => p.setSize({ width, height: 220 }));
   }
 
   /** @param {number} k */
@@ -63,7 +77,7 @@ export class Trend {
     return [xs, ...this.sensors.map((id) => this.points.map((p) => f(p.channels[id])))];
   }
 
-  /** @param {TrendPoint[]} points */
+  /** @param {readonly TrendPoint[]} points */
   set(points) {
     this.points = points.slice();
     this.redraw();

@@ -7,6 +7,15 @@
  */
 import { api, append, deg, errorBox, fill, forceN, h, num, units, vel, when } from './format.js';
 
+// The server's own types: the page is checked against what agent/balance/workbench/view.ts sends.
+/** @typedef {import('../../balance/workbench/view.js').JobView} JobView */
+/** @typedef {import('../../balance/workbench/records.js').WorkbenchRun} WorkbenchRun */
+/** @typedef {import('../../balance/workbench/records.js').FittedWeight} FittedWeight */
+/** @typedef {import('../../balance/workbench/records.js').ProposedChange} ProposedChange */
+/** @typedef {import('../../balance/job.js').PlaneWeight} PlaneWeight */
+/** @typedef {import('../view.js').SessionView} SessionView */
+/** @typedef {import('../view.js').LiveSnapshot} LiveSnapshot */
+
 const KIND_TEXT = { single_plane: 'single-plane', two_plane: 'two-plane', static_couple: 'static-couple (two planes)', trim: 'trim run from stored coefficients' };
 
 /** @param {string} id @param {HTMLElement} form */
@@ -29,14 +38,14 @@ function numField(name, label, value, unit, extra = {}) {
 }
 
 export class Workbench {
-  /** @param {HTMLElement} root @param {any} session @param {() => any} getLive */
+  /** @param {HTMLElement} root @param {SessionView} session @param {() => LiveSnapshot | null} getLive */
   constructor(root, session, getLive) {
     this.root = root;
     this.session = session;
     this.getLive = getLive;
-    /** @type {any} */
+    /** @type {JobView | null} */
     this.view = null;
-    /** @type {any} */
+    /** @type {JobView | null} */
     this.closed = null;
     this.formKey = '';
     this.status = h('div');
@@ -51,7 +60,7 @@ export class Workbench {
     this.render();
   }
 
-  /** @param {any} view */
+  /** @param {JobView | null} view */
   update(view) {
     if (!view && this.view && this.view.job.status === 'open') {
       // The open job was closed (here or elsewhere): keep showing it, read only.
@@ -116,20 +125,20 @@ export class Workbench {
 
   // ---- status (redrawn on every update) ----
 
-  /** @param {any} v */
+  /** @param {JobView} v */
   statusBlock(v) {
     const j = v.job;
     const s = j.setup;
     const trials = { single_plane: ['trial'], two_plane: ['trial 1', 'trial 2'], static_couple: ['static pair', 'couple pair'], trim: [] }[/** @type {'trim'} */ (s.kind)];
     const steps = ['as found', ...trials, 'solve', 'correction fitted', 'check run'];
     const doneCount = (() => {
-      const measured = j.runs.filter((/** @type {any} */ r) => r.capture && !r.discarded);
-      const nTrials = measured.filter((/** @type {any} */ r) => r.purpose === 'trial').length;
-      let n = measured.some((/** @type {any} */ r) => r.purpose === 'as_found') ? 1 : 0;
+      const measured = j.runs.filter((r) => r.capture && !r.discarded);
+      const nTrials = measured.filter((r) => r.purpose === 'trial').length;
+      let n = measured.some((r) => r.purpose === 'as_found') ? 1 : 0;
       n += Math.min(nTrials, trials.length);
       if (j.solution?.result.ok) n = 1 + trials.length + 1;
-      if (j.runs.some((/** @type {any} */ r) => r.purpose === 'check')) n = 2 + trials.length + 1;
-      if (j.runs.some((/** @type {any} */ r) => r.purpose === 'check' && r.capture)) n = steps.length;
+      if (j.runs.some((r) => r.purpose === 'check')) n = 2 + trials.length + 1;
+      if (j.runs.some((r) => r.purpose === 'check' && r.capture)) n = steps.length;
       return n;
     })();
     return h(
@@ -137,7 +146,7 @@ export class Workbench {
       null,
       h('h1', null, `Balancing job: ${KIND_TEXT[/** @type {'trim'} */ (s.kind)]}`),
       h('div', { class: 'conv-banner', dataset: { convention: s.angle_convention } }, `Conventions: ${v.convention}.`),
-      h('p', null, `Job ${j.job_id}, started ${when(j.created_at)} by ${j.created_by.name}. Planes: ${s.planes.map((/** @type {any} */ p) => `${p.name} (radius ${num(p.radius_mm, 0)} mm)`).join(', ')}. Sensors: ${s.sensors.join(', ')}.`),
+      h('p', null, `Job ${j.job_id}, started ${when(j.created_at)} by ${j.created_by.name}. Planes: ${s.planes.map((p) => `${p.name} (radius ${num(p.radius_mm, 0)} mm)`).join(', ')}. Sensors: ${s.sensors.join(', ')}.`),
       j.status !== 'open'
         ? h('div', { class: 'msg msg-ok' }, `This job is ${j.status} (${when(j.closed?.at)}, ${j.closed?.by.name}${j.closed?.note ? `: ${j.closed.note}` : ''}).`, ' ', h('a', { href: `#report/${encodeURIComponent(j.job_id)}` }, 'Open the report'))
         : h('ol', { class: 'steps' }, steps.map((t, i) => h('li', { class: i < doneCount ? 'done' : i === doneCount ? 'now' : '' }, t))),
@@ -148,21 +157,21 @@ export class Workbench {
     );
   }
 
-  /** The newest result worth seeing first: the last run's residual or trial check, or the correction. @param {any} v */
+  /** The newest result worth seeing first: the last run's residual or trial check, or the correction. @param {JobView} v */
   latestBlock(v) {
     const j = v.job;
-    const last = [...j.runs].reverse().find((/** @type {any} */ r) => r.capture && !r.discarded);
+    const last = [...j.runs].reverse().find((r) => r.capture && !r.discarded);
     if (!last || j.status !== 'open') return null;
     if (last.residual) return this.residualBlock(last, j, 'latest');
     if (v.step === 'correct' && j.solution?.result.ok) {
       const r = j.solution.result;
-      return h('div', { class: 'msg msg-ok' }, h('strong', null, 'Correction (all trial weights removed): '), r.corrections.map((/** @type {any} */ c) => `${c.plane} ${num(c.mass_g, 1)} g at ${deg(c.angle_deg)}`).join(', '), '. Details below the form.');
+      return h('div', { class: 'msg msg-ok' }, h('strong', null, 'Correction (all trial weights removed): '), r.corrections.map((c) => `${c.plane} ${num(c.mass_g, 1)} g at ${deg(c.angle_deg)}`).join(', '), '. Details below the form.');
     }
     if (last.trial_check && !j.solution) return this.trialCheckBlock(last, 'latest');
     return null;
   }
 
-  /** @param {any} c */
+  /** @param {NonNullable<JobView['capture']>} c */
   captureBlock(c) {
     return h(
       'div',
@@ -178,18 +187,18 @@ export class Workbench {
     );
   }
 
-  /** @param {any} v */
+  /** @param {JobView} v */
   weightsBlock(v) {
     const w = v.weights_on_rotor;
     return h(
       'div',
       null,
       h('h3', null, 'Weights on the rotor now (relative to as found)'),
-      w.length ? h('ul', { id: 'weights-on-rotor' }, w.map((/** @type {any} */ x) => h('li', null, weightText(x)))) : h('p', { id: 'weights-on-rotor' }, 'none: the rotor as found'),
+      w.length ? h('ul', { id: 'weights-on-rotor' }, w.map((x) => h('li', null, weightText(x)))) : h('p', { id: 'weights-on-rotor' }, 'none: the rotor as found'),
     );
   }
 
-  /** @param {any} v */
+  /** @param {JobView} v */
   runsBlock(v) {
     const j = v.job;
     const sensors = j.setup.sensors;
@@ -208,32 +217,33 @@ export class Workbench {
           h(
             'tbody',
             null,
-            j.runs.map((/** @type {any} */ r) =>
+            j.runs.map((r) =>
               h(
                 'tr',
                 { dataset: { run: String(r.index), captured: r.capture ? 'yes' : 'no' } },
                 h('td', { class: 'n' }, String(r.index)),
                 h('td', null, r.label, r.discarded ? ' (left out)' : ''),
-                h('td', null, r.weights.length ? r.weights.map((/** @type {any} */ w) => `${w.id} ${num(w.mass_g, 1)} g @ ${deg(w.angle_deg)}`).join(', ') : 'none'),
+                h('td', null, r.weights.length ? r.weights.map((w) => `${w.id} ${num(w.mass_g, 1)} g @ ${deg(w.angle_deg)}`).join(', ') : 'none'),
                 h('td', { class: 'n' }, r.capture ? num(r.capture.speed_rpm, 0) : 'not measured'),
                 sensors.map((/** @type {string} */ s) => {
                   const x = r.capture?.readings[s];
                   return h('td', { class: 'n' }, x ? `${vel(x.amp_pk_mm_s)} / ${deg(x.phase_deg)}` : '-');
                 }),
-                h('td', null, [...(r.capture?.notes ?? []), ...r.capture_failures.map((/** @type {any} */ f) => `capture failed: ${f.why}`), r.discarded ? `left out: ${r.discarded.reason}` : ''].filter(Boolean).join('; ')),
+                h('td', null, [...(r.capture?.notes ?? []), ...r.capture_failures.map((f) => `capture failed: ${f.why}`), r.discarded ? `left out: ${r.discarded.reason}` : ''].filter(Boolean).join('; ')),
               ),
             ),
           ),
         ),
       ),
-      j.runs.filter((/** @type {any} */ r) => r.trial_check).map((/** @type {any} */ r) => this.trialCheckBlock(r)),
-      j.runs.filter((/** @type {any} */ r) => r.residual).map((/** @type {any} */ r) => this.residualBlock(r, j)),
+      j.runs.filter((r) => r.trial_check).map((r) => this.trialCheckBlock(r)),
+      j.runs.filter((r) => r.residual).map((r) => this.residualBlock(r, j)),
     );
   }
 
-  /** @param {any} r @param {string} [where] */
+  /** @param {WorkbenchRun} r @param {string} [where] */
   trialCheckBlock(r, where = 'runs') {
-    const enough = r.trial_check.some((/** @type {any} */ t) => t.moved_enough);
+    const checks = r.trial_check ?? [];
+    const enough = checks.some((t) => t.moved_enough);
     return h(
       'div',
       { class: 'trial-check', dataset: { run: String(r.index), enough: enough ? 'yes' : 'no', where } },
@@ -242,7 +252,7 @@ export class Workbench {
         'table',
         null,
         h('tr', null, h('th', null, 'sensor'), h('th', null, 'amplitude change %'), h('th', null, 'phase change'), h('th', null, 'vector change %'), h('th', null, 'enough')),
-        r.trial_check.map((/** @type {any} */ t) =>
+        checks.map((t) =>
           h('tr', null, h('td', null, t.sensor), h('td', { class: 'n' }, num(t.amp_change_pct, 1)), h('td', { class: 'n' }, `${num(t.phase_change_deg, 1)}\u00b0`), h('td', { class: 'n' }, num(t.vector_change_pct, 1)), h('td', { class: t.moved_enough ? 'yes' : 'no' }, t.moved_enough ? 'yes' : 'no')),
         ),
       ),
@@ -250,9 +260,10 @@ export class Workbench {
     );
   }
 
-  /** @param {any} r @param {any} j @param {string} [where] */
+  /** @param {WorkbenchRun} r @param {JobView['job']} j @param {string} [where] */
   residualBlock(r, j, where = 'runs') {
     const x = r.residual;
+    if (!x) return null;
     return h(
       'div',
       { class: 'panel residual', dataset: { run: String(r.index), where } },
@@ -261,7 +272,7 @@ export class Workbench {
         'table',
         null,
         h('tr', null, h('th', null, 'sensor'), h('th', null, `as found ${units.velocity} pk`), h('th', null, `now ${units.velocity} pk`), h('th', null, 'phase'), h('th', null, '% of as found')),
-        x.sensors.map((/** @type {any} */ s) => h('tr', { dataset: { sensor: s.sensor, pct: String(s.pct_of_as_found) } }, h('td', null, s.sensor), h('td', { class: 'n' }, vel(s.as_found_pk_mm_s)), h('td', { class: 'n' }, vel(s.amp_pk_mm_s)), h('td', { class: 'n' }, deg(s.phase_deg)), h('td', { class: 'n' }, num(s.pct_of_as_found, 1)))),
+        x.sensors.map((s) => h('tr', { dataset: { sensor: s.sensor, pct: String(s.pct_of_as_found) } }, h('td', null, s.sensor), h('td', { class: 'n' }, vel(s.as_found_pk_mm_s)), h('td', { class: 'n' }, vel(s.amp_pk_mm_s)), h('td', { class: 'n' }, deg(s.phase_deg)), h('td', { class: 'n' }, num(s.pct_of_as_found, 1)))),
       ),
       x.unbalance_g_mm
         ? h(
@@ -273,16 +284,17 @@ export class Workbench {
               : 'Give the rotor mass and a G grade to compare with ISO 21940-11.',
           )
         : null,
-      x.trim.length ? h('p', null, `Trim weights that would remove the residual: ${x.trim.map((/** @type {any} */ w) => `${w.plane} ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)}`).join(', ')}.`) : null,
-      x.warnings.map((/** @type {any} */ w) => h('div', { class: 'msg msg-warn' }, w.message, ' \u2192 ', w.hint)),
+      x.trim.length ? h('p', null, `Trim weights that would remove the residual: ${x.trim.map((w) => `${w.plane} ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)}`).join(', ')}.`) : null,
+      x.warnings.map((w) => h('div', { class: 'msg msg-warn' }, w.message, ' \u2192 ', w.hint)),
     );
   }
 
-  /** @param {any} v */
+  /** @param {JobView} v */
   solutionBlock(v) {
+    if (!v.job.solution) return null;
     const r = v.job.solution.result;
     const conv = v.job.setup.angle_convention === 'against_rotation' ? 'against rotation' : 'with rotation';
-    const wtable = (/** @type {any[]} */ ws, /** @type {string} */ id) =>
+    const wtable = (/** @type {readonly PlaneWeight[]} */ ws, /** @type {string} */ id) =>
       h(
         'table',
         { id },
@@ -297,7 +309,7 @@ export class Workbench {
         ? [
             h('h3', null, 'Weights to add relative to the rotor as found, with ALL trial weights removed'),
             wtable(r.corrections, 'corrections'),
-            r.corrections_trials_left_in.length && v.job.runs.some((/** @type {any} */ x) => x.weights.some((/** @type {any} */ w) => w.role === 'trial'))
+            r.corrections_trials_left_in.length && v.job.runs.some((x) => x.weights.some((w) => w.role === 'trial'))
               ? [h('h3', null, 'Or, leaving the weights of the last trial run on the rotor, add'), wtable(r.corrections_trials_left_in, 'corrections-left-in')]
               : null,
             r.static_couple
@@ -308,7 +320,7 @@ export class Workbench {
                 )
               : null,
           ]
-        : r.problems.map((/** @type {any} */ p) => h('div', { class: 'msg msg-error' }, p.message, ' \u2192 ', p.hint)),
+        : r.problems.map((p) => h('div', { class: 'msg msg-error' }, p.message, ' \u2192 ', p.hint)),
       r.influence_coefficients.length
         ? [
             h('h3', null, `Influence coefficients (1x a 1 g weight on the reference mark adds, ${units.velocity} pk per g)`),
@@ -316,12 +328,12 @@ export class Workbench {
               'table',
               null,
               h('tr', null, h('th', null, 'sensor'), h('th', null, 'plane'), h('th', null, 'per g'), h('th', null, 'phase')),
-              r.influence_coefficients.map((/** @type {any} */ c) => h('tr', null, h('td', null, c.sensor), h('td', null, c.plane), h('td', { class: 'n' }, units.velocity === 'in/s' ? (c.amp_per_g / 25.4).toPrecision(3) : c.amp_per_g.toPrecision(3)), h('td', { class: 'n' }, deg(c.phase_deg)))),
+              r.influence_coefficients.map((c) => h('tr', null, h('td', null, c.sensor), h('td', null, c.plane), h('td', { class: 'n' }, units.velocity === 'in/s' ? (c.amp_per_g / 25.4).toPrecision(3) : c.amp_per_g.toPrecision(3)), h('td', { class: 'n' }, deg(c.phase_deg)))),
             ),
           ]
         : null,
       r.condition_number !== null ? h('p', null, `Condition number of the influence matrix: ${num(r.condition_number, 2)} (1 is ideal; above 10 reading errors are amplified).`) : null,
-      r.warnings.map((/** @type {any} */ w) => h('div', { class: 'msg msg-warn' }, w.message, ' \u2192 ', w.hint)),
+      r.warnings.map((w) => h('div', { class: 'msg msg-warn' }, w.message, ' \u2192 ', w.hint)),
     );
   }
 
@@ -373,7 +385,7 @@ export class Workbench {
         'fieldset',
         null,
         h('legend', null, 'Sensors read in every run'),
-        s.sensors.map((/** @type {any} */ x) => h('label', { class: 'check' }, h('input', { type: 'checkbox', name: 'sensor', value: x.id, checked: x.direction !== 'axial' }), `${x.id} (${x.bearing}, ${x.direction})`)),
+        s.sensors.map((x) => h('label', { class: 'check' }, h('input', { type: 'checkbox', name: 'sensor', value: x.id, checked: x.direction !== 'axial' }), `${x.id} (${x.bearing}, ${x.direction})`)),
       ),
       h(
         'div',
@@ -418,7 +430,7 @@ export class Workbench {
     return form;
   }
 
-  /** @param {any} v */
+  /** @param {JobView} v */
   stepForm(v) {
     const j = v.job;
     if (j.status !== 'open') return h('div', { class: 'buttons' }, this.mayAct ? h('button', { class: 'primary', id: 'new-job', onclick: () => { this.closed = null; this.formKey = ''; this.render(); } }, 'Start another job') : null);
@@ -429,7 +441,7 @@ export class Workbench {
     if (v.step === 'trial' || v.step === 'solve') {
       if (v.step === 'solve') parts.push(h('div', { class: 'panel' }, h('h2', null, 'Solve'), h('p', null, j.setup.kind === 'trim' ? 'The correction comes from the stored influence coefficients and the as-found run.' : 'The influence coefficients come from the trial runs; the correction follows from them and the as-found run.'), h('div', { class: 'buttons' }, h('button', { class: 'primary', id: 'solve', onclick: () => void this.act(`/api/jobs/${id}/solve`, {}, 'Solved.') }, 'Solve'))));
       if (j.setup.kind !== 'trim') parts.push(v.step === 'trial' ? this.trialForm(v, id) : h('details', null, h('summary', null, 'Add another trial run'), this.trialForm(v, id)));
-      const lastTrial = [...j.runs].reverse().find((/** @type {any} */ r) => r.purpose === 'trial' && r.capture && !r.discarded);
+      const lastTrial = [...j.runs].reverse().find((r) => r.purpose === 'trial' && r.capture && !r.discarded);
       if (lastTrial) parts.push(this.discardForm(id, lastTrial));
     }
     if (v.step === 'correct' || v.step === 'check') {
@@ -442,7 +454,7 @@ export class Workbench {
     return parts;
   }
 
-  /** @param {any} v @param {string} id */
+  /** @param {JobView} v @param {string} id */
   captureForm(v, id) {
     const last = v.job.runs[v.job.runs.length - 1];
     const running = !!v.capture;
@@ -457,7 +469,7 @@ export class Workbench {
             h(
               'ol',
               { class: 'placement', id: 'placement', dataset: { run: String(last.index) } },
-              last.changes.map((/** @type {any} */ c) =>
+              last.changes.map((c) =>
                 h(
                   'li',
                   { dataset: { action: c.action, id: c.weight.id, plane: c.weight.plane, massG: String(c.weight.mass_g), angleDeg: String(c.weight.angle_deg), radiusMm: String(c.weight.radius_mm) } },
@@ -489,7 +501,7 @@ export class Workbench {
    * that enables the button.
    * @param {() => Array<{ label: string, mass_g: number, radius_mm: number }>} weights
    * @param {HTMLButtonElement} button
-   * @param {any} v
+   * @param {JobView} v
    */
   cautionBlock(weights, button, v) {
     const speed = v.speed_for_forces_rpm;
@@ -512,23 +524,23 @@ export class Workbench {
     return { block: h('div', { class: 'cautions', id: 'cautions' }, h('h3', null, 'SAFETY: before anyone touches the rotor'), list, h('label', { class: 'check' }, ack, 'I have read these cautions. The fan is locked out and tagged out while weights are changed.')), refresh, ack };
   }
 
-  /** @param {any} v @param {string} id */
+  /** @param {JobView} v @param {string} id */
   trialForm(v, id) {
     const j = v.job;
     const s = j.setup;
-    const measuredTrials = j.runs.filter((/** @type {any} */ r) => r.purpose === 'trial' && r.capture && !r.discarded).length;
+    const measuredTrials = j.runs.filter((r) => r.purpose === 'trial' && r.capture && !r.discarded).length;
     const n = measuredTrials + 1;
     const sc = s.kind === 'static_couple';
     const plane = s.planes[Math.min(n - 1, s.planes.length - 1)];
-    const sug = v.trial_suggestion?.find((/** @type {any} */ t) => t.plane === plane.name);
-    const trialsOn = v.weights_on_rotor.filter((/** @type {any} */ w) => w.role === 'trial');
+    const sug = v.trial_suggestion?.find((t) => t.plane === plane.name);
+    const trialsOn = v.weights_on_rotor.filter((w) => w.role === 'trial');
     const form = h('form', { class: 'panel', id: 'trial-form' });
     const button = /** @type {HTMLButtonElement} */ (h('button', { type: 'submit', class: 'primary', id: 'declare-run' }, 'Record weight change'));
     const what = sc ? (n === 1 ? 'Static pair: the same weight in both planes at the same angle' : 'Couple pair: the same weight in both planes, 180\u00b0 apart') : `Trial weight in plane ${plane.name}`;
     const weights = () => {
       const m = Number(val(form, 'mass')) || 0;
       const r = Number(val(form, 'radius')) || plane.radius_mm;
-      return sc ? s.planes.map((/** @type {any} */ p) => ({ label: `trial weight in ${p.name}`, mass_g: m, radius_mm: r })) : [{ label: `trial weight in ${plane.name}`, mass_g: m, radius_mm: r }];
+      return sc ? s.planes.map((p) => ({ label: `trial weight in ${p.name}`, mass_g: m, radius_mm: r })) : [{ label: `trial weight in ${plane.name}`, mass_g: m, radius_mm: r }];
     };
     const caution = this.cautionBlock(weights, button, v);
     append(
@@ -543,7 +555,7 @@ export class Workbench {
         ? h(
             'fieldset',
             null,
-            h('legend', null, `Trial weight(s) now on the rotor: ${trialsOn.map((/** @type {any} */ w) => w.id).join(', ')}`),
+            h('legend', null, `Trial weight(s) now on the rotor: ${trialsOn.map((w) => w.id).join(', ')}`),
             h('label', { class: 'check' }, h('input', { type: 'radio', name: 'previous', value: 'remove', checked: true }), 'take them off for this run'),
             h('label', { class: 'check' }, h('input', { type: 'radio', name: 'previous', value: 'keep' }), 'leave them on'),
           )
@@ -557,38 +569,39 @@ export class Workbench {
       const mass = Number(val(form, 'mass'));
       const angle = Number(val(form, 'angle'));
       const radius = Number(val(form, 'radius'));
-      const add = sc ? s.planes.map((/** @type {any} */ p, i) => ({ plane: p.name, mass_g: mass, angle_deg: n === 2 && i === 1 ? angle + 180 : angle, radius_mm: radius })) : [{ plane: plane.name, mass_g: mass, angle_deg: angle, radius_mm: radius }];
+      const add = sc ? s.planes.map((p, i) => ({ plane: p.name, mass_g: mass, angle_deg: n === 2 && i === 1 ? angle + 180 : angle, radius_mm: radius })) : [{ plane: plane.name, mass_g: mass, angle_deg: angle, radius_mm: radius }];
       const keep = /** @type {HTMLInputElement | null} */ (form.querySelector('input[name=previous]:checked'))?.value === 'keep';
       void this.act(`/api/jobs/${id}/runs`, { purpose: 'trial', remove: keep ? [] : 'all_trials', add, acknowledge_cautions: caution.ack.checked }, 'Weight change recorded. Run the fan and capture.');
     });
     return form;
   }
 
-  /** @param {any} v @param {string} id */
+  /** @param {JobView} v @param {string} id */
   correctionForm(v, id) {
     const form = h('form', { class: 'panel', id: 'correction-form' });
     const button = /** @type {HTMLButtonElement} */ (h('button', { type: 'submit', class: 'primary', id: 'declare-run' }, 'Record weight change'));
     const j = v.job;
-    const rowsOf = (/** @type {any} */ p, /** @type {boolean} */ split) => (split && p.add_split ? p.add_split : p.add);
+    const rowsOf = (/** @type {ProposedChange} */ p, /** @type {boolean} */ split) =>
+      /** @type {ReadonlyArray<ProposedChange['add'][number] & { position?: number }>} */ (split && p.add_split ? p.add_split : p.add);
     /** @type {HTMLElement[]} */
     const cards = [];
-    v.proposals.forEach((/** @type {any} */ p, k) => {
+    v.proposals.forEach((p, k) => {
       const body = h('div');
       const splitBox = p.add_split ? /** @type {HTMLInputElement} */ (h('input', { type: 'checkbox', name: `split${k}` })) : null;
       const draw = () => {
         const rows = rowsOf(p, !!splitBox?.checked);
         fill(
           body,
-          p.remove === 'all_trials' ? h('p', null, `Take off: ${v.weights_on_rotor.filter((/** @type {any} */ w) => w.role === 'trial').map((/** @type {any} */ w) => w.id).join(', ')}`) : null,
+          p.remove === 'all_trials' ? h('p', null, `Take off: ${v.weights_on_rotor.filter((w) => w.role === 'trial').map((w) => w.id).join(', ')}`) : null,
           h(
             'table',
             null,
             h('tr', null, h('th', null, 'plane'), h('th', null, 'mass g'), h('th', null, 'angle deg'), h('th', null, 'radius mm')),
-            rows.map((/** @type {any} */ a, /** @type {number} */ i) =>
+            rows.map((a, /** @type {number} */ i) =>
               h(
                 'tr',
                 { dataset: { row: String(i) } },
-                h('td', null, a.plane, a.position >= 0 ? ` (position ${a.position})` : ''),
+                h('td', null, a.plane, a.position !== undefined && a.position >= 0 ? ` (position ${a.position})` : ''),
                 h('td', null, h('input', { type: 'number', step: 'any', name: `m${k}_${i}`, value: num(a.mass_g, 1), oninput: caution.refresh })),
                 h('td', null, h('input', { type: 'number', step: 'any', name: `a${k}_${i}`, value: num(a.angle_deg, 1) })),
                 h('td', null, h('input', { type: 'number', step: 'any', name: `r${k}_${i}`, value: num(a.radius_mm, 0), oninput: caution.refresh })),
@@ -621,9 +634,9 @@ export class Workbench {
       const k = chosen();
       const p = v.proposals[k];
       const split = /** @type {HTMLInputElement | null} */ (form.querySelector(`input[name=split${k}]`))?.checked ?? false;
-      return rowsOf(p, split).map((/** @type {any} */ a, /** @type {number} */ i) => ({ plane: a.plane, mass_g: Number(val(form, `m${k}_${i}`) || a.mass_g), angle_deg: Number(val(form, `a${k}_${i}`) || a.angle_deg), radius_mm: Number(val(form, `r${k}_${i}`) || a.radius_mm) }));
+      return rowsOf(p, split).map((a, /** @type {number} */ i) => ({ plane: a.plane, mass_g: Number(val(form, `m${k}_${i}`) || a.mass_g), angle_deg: Number(val(form, `a${k}_${i}`) || a.angle_deg), radius_mm: Number(val(form, `r${k}_${i}`) || a.radius_mm) }));
     };
-    const caution = this.cautionBlock(() => rowsNow().map((/** @type {any} */ r) => ({ label: `weight in ${r.plane}`, mass_g: r.mass_g, radius_mm: r.radius_mm })), button, v);
+    const caution = this.cautionBlock(() => rowsNow().map((r) => ({ label: `weight in ${r.plane}`, mass_g: r.mass_g, radius_mm: r.radius_mm })), button, v);
     append(form, h('h2', null, v.step === 'check' ? 'Trim' : 'Fit the correction'), h('div', { class: 'conv-banner' }, `Conventions: ${v.convention}.`), cards, caution.block, h('div', { class: 'buttons' }, button));
     form.addEventListener('submit', (ev) => {
       ev.preventDefault();
@@ -647,7 +660,7 @@ export class Workbench {
     );
   }
 
-  /** @param {string} id @param {any} run */
+  /** @param {string} id @param {WorkbenchRun} run */
   discardForm(id, run) {
     const reason = h('input', { name: 'reason', maxlength: 500, value: '' });
     return h(
@@ -660,14 +673,14 @@ export class Workbench {
     );
   }
 
-  /** @param {string} id @param {any} v */
+  /** @param {string} id @param {JobView} v */
   abandonForm(id, v) {
     const reason = h('input', { name: 'reason', maxlength: 500, value: '' });
     return h(
       'details',
       null,
       h('summary', null, 'Abandon this job'),
-      v.weights_on_rotor.length ? h('p', { class: 'msg msg-warn' }, `Still on the rotor: ${v.weights_on_rotor.map((/** @type {any} */ w) => weightText(w)).join('; ')}.`) : null,
+      v.weights_on_rotor.length ? h('p', { class: 'msg msg-warn' }, `Still on the rotor: ${v.weights_on_rotor.map((w) => weightText(w)).join('; ')}.`) : null,
       h('label', null, 'Why'),
       reason,
       h('div', { class: 'buttons' }, h('button', { class: 'danger', id: 'abandon', onclick: () => void this.act(`/api/jobs/${id}/abandon`, { reason: /** @type {HTMLInputElement} */ (reason).value }, 'Job abandoned.') }, 'Abandon')),
@@ -716,7 +729,7 @@ export class Workbench {
             positions: { count: n(f, 's_count'), first_deg: n(f, 's_first') ?? 0, ...(n(f, 's_radius') !== undefined || n(f, 's_pradius') !== undefined ? { radius_mm: n(f, 's_pradius') } : {}) },
           },
         ],
-        (r) => r.weights.map((/** @type {any} */ w) => `position ${w.position} (${deg(w.angle_deg)}): ${num(w.mass_g, 2)} g`).join('; '),
+        (r) => r.weights.map((w) => `position ${w.position} (${deg(w.angle_deg)}): ${num(w.mass_g, 2)} g`).join('; '),
       ),
       tool(
         'Same unbalance at another radius (mass x r_old / r_new)',
@@ -740,7 +753,7 @@ export class Workbench {
   }
 }
 
-/** @param {any} w */
+/** @param {FittedWeight} w */
 export function weightText(w) {
   return `${w.id}: ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)} in ${w.plane}, radius ${num(w.radius_mm, 0)} mm`;
 }

@@ -9,7 +9,8 @@
  * revolutions that passed since the previous one, so the mean covers the N revolutions evenly.
  * Amplitudes are mm/s peak; phase is the lag from the tach edge to the 1x peak, degrees.
  */
-import type { LiveFrame } from '../dsp/types.js';
+import type { LiveConfig } from '../../config/live.js';
+import type { LiveFrame } from '../../dsp/types.js';
 
 export interface CaptureSettings {
   /** Revolutions averaged. */
@@ -26,6 +27,26 @@ export interface CaptureSettings {
   readonly scatterWarnPct: number;
   /** ... when it is also above this, mm/s pk (a tiny residual vector always scatters by a large share of itself). */
   readonly scatterFloorMmS: number;
+}
+
+/**
+ * The capture settings of the `live.capture` config section. `liveRevolutions` is the memory of the
+ * runtime's live average (AgentRuntime liveRevolutions); without settle_revolutions the capture skips
+ * five times that, for the average to forget what came before.
+ */
+export function captureSettingsFrom(
+  capture: LiveConfig['capture'],
+  liveRevolutions = 32,
+): CaptureSettings {
+  return {
+    revolutions: capture.revolutions,
+    settleRevolutions: capture.settle_revolutions ?? 5 * liveRevolutions,
+    speedTolerancePct: capture.speed_tolerance_pct,
+    maxRestarts: capture.max_restarts,
+    maxAgeS: 2,
+    scatterWarnPct: 10,
+    scatterFloorMmS: 0.05,
+  };
 }
 
 export interface CaptureReading {
@@ -73,6 +94,7 @@ function fmt(x: number, d = 1): string {
 export class RunCapture {
   private phase: CapturePhase = 'settling';
   private prevAt: number | null = null;
+  private prevIndex: number | null = null;
   private settled = 0;
   private measured = 0;
   private refSpeed: number | null = null;
@@ -129,12 +151,20 @@ export class RunCapture {
   push(frame: LiveFrame, atMs: number): CaptureProgress {
     if (this.finished) return this.progress();
     const prev = this.prevAt;
+    const prevIndex = this.prevIndex;
     this.prevAt = atMs;
+    this.prevIndex = frame.sample_index;
     const speed = frame.speed_rpm;
     // A slow fan turns less often: allow three revolutions' time as well.
-    const maxAge = speed !== null && speed > 0 ? Math.max(this.settings.maxAgeS, 180 / speed) : this.settings.maxAgeS;
+    const maxAge =
+      speed !== null && speed > 0
+        ? Math.max(this.settings.maxAgeS, 180 / speed)
+        : this.settings.maxAgeS;
     if (speed === null || !(speed > 0) || frame.age_s > maxAge) {
-      this.waiting = speed === null ? 'no speed yet: is the fan turning and the tach pickup seeing its mark?' : `no trusted revolution for ${fmt(Math.min(frame.age_s, 9999))} s: tach lost or fan stopped`;
+      this.waiting =
+        speed === null
+          ? 'no speed yet: is the fan turning and the tach pickup seeing its mark?'
+          : `no trusted revolution for ${fmt(Math.min(frame.age_s, 9999))} s: tach lost or fan stopped`;
       this.restartSettling(null);
       return this.progress();
     }
@@ -143,16 +173,24 @@ export class RunCapture {
       return this.progress(); // the first good frame after a pause only marks the time
     }
     this.refSpeed ??= speed;
-    if (prev === null || atMs <= prev) return this.progress();
-    const revs = ((atMs - prev) / 60000) * speed;
+    // Elapsed time from the sample clock when the frame says its rate: the wall-clock time on live
+    // frames is re-anchored after a board restart or a wall-clock step, and must not count revolutions.
+    const fs = frame.sample_rate_hz;
+    const elapsedS = fs !== undefined && fs > 0 && prevIndex !== null ? (frame.sample_index - prevIndex) / fs : prev === null ? 0 : (atMs - prev) / 1000;
+    if (!(elapsedS > 0)) return this.progress();
+    const revs = (elapsedS / 60) * speed;
     const ref = this.refSpeed;
     const changePct = (Math.abs(speed - ref) / ref) * 100;
     if (changePct > this.settings.speedTolerancePct) {
       if (this.phase === 'measuring' && this.measured > 0) {
         this.restarts++;
-        this.notes.push(`speed changed from ${fmt(ref, 0)} to ${fmt(speed, 0)} r/min (${fmt(changePct)} %) during the averaging: restarted`);
+        this.notes.push(
+          `speed changed from ${fmt(ref, 0)} to ${fmt(speed, 0)} r/min (${fmt(changePct)} %) during the averaging: restarted`,
+        );
         if (this.restarts > this.settings.maxRestarts) {
-          return this.fail(`the speed kept changing (${this.restarts} restarts, last ${fmt(ref, 0)} -> ${fmt(speed, 0)} r/min): hold the fan at a steady speed and capture the run again`);
+          return this.fail(
+            `the speed kept changing (${this.restarts} restarts, last ${fmt(ref, 0)} -> ${fmt(speed, 0)} r/min): hold the fan at a steady speed and capture the run again`,
+          );
         }
       }
       this.restartSettling(speed);
@@ -174,7 +212,9 @@ export class RunCapture {
       const id = this.sensors[k]!;
       const v = frame.channels.find((c) => c.id === id)?.orders['1'];
       if (!v || !Number.isFinite(v.amp_pk_mm_s) || !Number.isFinite(v.phase_deg)) {
-        return this.fail(`no 1x vector for ${id} in the live data: check the sensor (the live page shows whether it is OK), or leave it out of the job`);
+        return this.fail(
+          `no 1x vector for ${id} in the live data: check the sensor (the live page shows whether it is OK), or leave it out of the job`,
+        );
       }
       re[k] = v.amp_pk_mm_s * Math.cos(v.phase_deg * D2R);
       im[k] = v.amp_pk_mm_s * Math.sin(v.phase_deg * D2R);
@@ -227,9 +267,16 @@ export class RunCapture {
       const scatter = amp > 0 ? (spread / amp) * 100 : 0;
       let phase = Math.atan2(mIm, mRe) / D2R;
       if (phase < 0) phase += 360;
-      readings[id] = { amp_pk_mm_s: amp, phase_deg: phase >= 360 ? 0 : phase, scatter_pk_mm_s: spread, scatter_pct: scatter };
+      readings[id] = {
+        amp_pk_mm_s: amp,
+        phase_deg: phase >= 360 ? 0 : phase,
+        scatter_pk_mm_s: spread,
+        scatter_pct: scatter,
+      };
       if (scatter > this.settings.scatterWarnPct && spread > this.settings.scatterFloorMmS) {
-        this.notes.push(`the 1x vector at ${id} was unsteady during the run (scatter ${fmt(scatter)} % of its amplitude): load, speed or a loose sensor; consider repeating the run`);
+        this.notes.push(
+          `the 1x vector at ${id} was unsteady during the run (scatter ${fmt(scatter)} % of its amplitude): load, speed or a loose sensor; consider repeating the run`,
+        );
       }
     });
     this.resultValue = {

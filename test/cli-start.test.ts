@@ -1,0 +1,111 @@
+import { describe, expect, it, afterAll } from 'vitest';
+import { spawnSync } from 'node:child_process';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { MIN_NODE, nodeVersionProblem } from '../agent/cli/node-version.js';
+import { commands } from '../agent/cli/commands/index.js';
+import { expectNoStack } from './support/cli.js';
+
+/**
+ * How the CLI starts: the command list without any command's dependencies, each command loading
+ * only its own, and the Node version check before anything else. Which modules load is read from
+ * a real process (module resolve hooks log every import); how long start-up takes is measured by
+ * `npm run bench` (test/bench/startup.bench.ts), never here.
+ */
+const CLI = fileURLToPath(new URL('../dist/agent/cli/main.js', import.meta.url));
+const IMPORT_LOG = fileURLToPath(new URL('./support/import-log.mjs', import.meta.url));
+const VERSION_AS = fileURLToPath(new URL('./support/node-version-as.mjs', import.meta.url));
+const EXAMPLE = fileURLToPath(new URL('../config/example.yaml', import.meta.url));
+const dir = mkdtempSync(join(tmpdir(), 'tw-cli-start-'));
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+/** Runs the compiled CLI and returns its output with the npm packages it imported. */
+function runLogged(args: string[], env: NodeJS.ProcessEnv = {}, preload: string[] = []): { code: number | null; stdout: string; stderr: string; packages: Set<string>; modules: string[] } {
+  const log = join(dir, `imports-${Math.random().toString(36).slice(2)}.txt`);
+  writeFileSync(log, '');
+  const r = spawnSync(process.execPath, ['--import', IMPORT_LOG, ...preload.flatMap((p) => ['--import', p]), CLI, ...args], {
+    encoding: 'utf8',
+    env: { ...process.env, ...env, TW_IMPORT_LOG: log },
+    timeout: 60_000,
+  });
+  const modules = readFileSync(log, 'utf8').split('\n').filter(Boolean);
+  const packages = new Set(modules.map((u) => /\/node_modules\/((?:@[^/]+\/)?[^/]+)\//.exec(u)?.[1]).filter((p): p is string => !!p));
+  return { code: r.status, stdout: r.stdout, stderr: r.stderr, packages, modules };
+}
+
+describe('turnwise start-up', () => {
+  it('--help lists every command without loading a single package or command module', () => {
+    const r = runLogged(['--help']);
+    expect(r.code).toBe(0);
+    for (const c of commands) expect(r.stdout).toContain(`  ${c.name}`);
+    expect(r.stdout).toContain('validate a YAML config file and print what it sets');
+    expect([...r.packages]).toEqual([]);
+    expect(r.modules.filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m))).toEqual([]);
+  });
+
+  it('help COMMAND shows that command\'s usage, loading only that command', () => {
+    const r = runLogged(['help', 'check-config']);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toBe('usage: turnwise check-config FILE [--json]\n');
+    expect(r.modules.filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m)).map((m) => m.replace(/.*\//, ''))).toEqual(['check-config.js']);
+    for (const p of ['mqtt', 'aedes', 'serialport', 'ws', 'pino']) expect(r.packages.has(p)).toBe(false);
+  });
+
+  it('help for a command that does not exist names it and exits 2', () => {
+    const r = runLogged(['help', 'analyse']);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toBe('turnwise help: unknown command "analyse"\n  -> run `turnwise help` for the list of commands\n');
+  });
+
+  it('check-config loads the schema and YAML parser, nothing of MQTT, the broker, serial ports, GPIO or the DSP', () => {
+    const r = runLogged(['check-config', EXAMPLE]);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/example\.yaml: OK\n/);
+    expect(r.packages.has('zod')).toBe(true);
+    expect(r.packages.has('yaml')).toBe(true);
+    for (const p of ['mqtt', 'aedes', 'serialport', 'onoff', 'ws', 'pino', 'fft.js']) expect(r.packages.has(p)).toBe(false);
+    expect(r.modules.filter((m) => /\/agent\/(dsp|mqtt|live|outbox)\//.test(m))).toEqual([]);
+  });
+
+  it('every registered command loads, under the name it is registered with', async () => {
+    const loaded = await Promise.all(commands.map((c) => c.load()));
+    expect(loaded.map((c) => c.name)).toEqual(commands.map((c) => c.name));
+    for (const c of loaded) expect(c.usage).toMatch(new RegExp(`^turnwise ${c.name} `));
+  });
+});
+
+describe('Node.js version check', () => {
+  it('MIN_NODE is the version package.json "engines" asks for', () => {
+    const pkg = JSON.parse(readFileSync(fileURLToPath(new URL('../package.json', import.meta.url)), 'utf8')) as { engines: { node: string } };
+    expect(pkg.engines.node).toBe(`>=${MIN_NODE.replace(/\.0$/, '')}`);
+  });
+
+  it('accepts 20.19.0 and newer, refuses older with the version it needs', () => {
+    for (const ok of ['20.19.0', '20.19.5', '20.20.2', '22.0.0', '24.1.0']) expect(nodeVersionProblem(ok)).toBeNull();
+    for (const old of ['20.18.3', '20.0.0', '18.20.4', '16.20.2']) {
+      const m = nodeVersionProblem(old);
+      expect(m).toContain(`Node.js ${old} is too old; turnwise needs Node.js 20.19 or newer`);
+      expect(m).toMatch(/-> install Node\.js 20 LTS \(20\.19 or later\)/);
+    }
+  });
+
+  it('an older Node gets one message and exit 2 before any command or package loads', () => {
+    const r = runLogged(['check-config', EXAMPLE], { TW_NODE_VERSION_AS: '20.18.1' }, [VERSION_AS]);
+    expect(r.code).toBe(2);
+    expectNoStack(r.stderr);
+    expect(r.stdout).toBe('');
+    expect(r.stderr.split('\n').filter(Boolean)).toHaveLength(2);
+    expect(r.stderr).toMatch(/^turnwise: Node\.js 20\.18\.1 is too old; turnwise needs Node\.js 20\.19 or newer \(.*node\)\n {2}-> install Node\.js 20 LTS/);
+    expect([...r.packages]).toEqual([]);
+    expect(r.modules.filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m))).toEqual([]);
+  });
+
+  it('`npm start` (turnwise demo) on an older Node stops with the same message', () => {
+    const r = runLogged(['demo', '--seconds', '1', '--port', '0', '--mqtt-port', '0'], { TW_NODE_VERSION_AS: '18.19.1' }, [VERSION_AS]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/^turnwise: Node\.js 18\.19\.1 is too old/);
+    expect(r.packages.has('aedes')).toBe(false);
+  });
+});
