@@ -394,7 +394,11 @@ install_system_files() {
     put_file "$dir/deploy/journald-turnwise.conf" "$JOURNALD_CONF" 0644
     if [ "$CHANGED" = 1 ]; then sys systemctl restart systemd-journald.service; fi
     CHANGED=$before # the agent need not restart for this
+    say "journal: kept on disk from now on (Storage=persistent in $JOURNALD_CONF); Raspberry Pi OS keeps it in RAM by default, so the log before a reboot would be lost"
+  else
+    warn "journald left as it is (--no-journald-limits): Raspberry Pi OS keeps the journal in RAM by default, so its lines are lost at every reboot"
   fi
+  say "events: turnwise also keeps every event under its state_dir (bounded by event_log.max_mb); after a reboot read them with: turnwise events --config $ETC/turnwise.yaml --since 24h"
 
   if [ ! -d "$ROOT$ETC" ]; then act install -d -m 0750 "$ROOT$ETC"; fi
   if [ "$(stat -c %U:%G "$ROOT$ETC" 2>/dev/null || true)" != root:turnwise ]; then sys chown root:turnwise "$ROOT$ETC"; fi

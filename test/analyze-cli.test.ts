@@ -25,8 +25,7 @@ const NDE_SENSORS =
 
 /**
  * Static unbalance on a centre-hung rotor at 1485 r/min, once-per-turn tach on channel 4: both
- * bearings move in phase, H lags V by 90 degrees at each bearing (common practice; see shared field
- * notes, section 2). Returns the WAV's path.
+ * bearings move in phase, H lags V by 90 degrees at each bearing (common practice). Returns the WAV's path.
  */
 function writeStaticRecord(name: string): string {
   const sig = synthesize({

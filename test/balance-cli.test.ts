@@ -208,7 +208,7 @@ describe('turnwise balance trial-weight, check-grade, combine', () => {
     expect(bad.stderr).toContain('--rotor-kg must be a number above 0 (found "heavy")');
   });
 
-  it('ISO 21940-11: 500 kg, 1480 r/min, G6.3 is about 20 300 g mm (field notes, from memory)', () => {
+  it('ISO 21940-11: 500 kg, 1480 r/min, G6.3 is about 20 300 g mm (ISO 21940-11, from memory)', () => {
     const r = cli(['balance', 'check-grade', '--rotor-kg', '500', '--speed-rpm', '1480', '--grade', 'G6.3', '--residual-g-mm', '25000', '--json']);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);

@@ -161,8 +161,8 @@ describe('combining weights (by hand)', () => {
   });
 });
 
-describe('trial weight, force and ISO 21940-11 (field-notes figures)', () => {
-  it('centrifugal force: 50 g at 600 mm at 1480 r/min is about 720 N (field notes, from memory)', () => {
+describe('trial weight, force and ISO 21940-11 (textbook force, common-practice trial rule, ISO 21940-11 from memory)', () => {
+  it('centrifugal force: 50 g at 600 mm at 1480 r/min is about 720 N (F = m r omega^2, textbook; own computation)', () => {
     expect(centrifugalForceN(50, 600, 1480)).toBeGreaterThan(715);
     expect(centrifugalForceN(50, 600, 1480)).toBeLessThan(725);
   });
@@ -176,7 +176,7 @@ describe('trial weight, force and ISO 21940-11 (field-notes figures)', () => {
     expect(suggestTrialMassG(425, 600, 1485, 0.05)).toBeCloseTo(m / 2, 12);
   });
 
-  it('U_per: 500 kg, 1480 r/min, G6.3 gives about 20 300 g mm (field notes; ISO 21940-11 from memory)', () => {
+  it('U_per: 500 kg, 1480 r/min, G6.3 gives about 20 300 g mm (ISO 21940-11, from memory)', () => {
     const u = permissibleUnbalanceGmm(6.3, 500, 1480);
     expect(Math.abs(u - 20300) / 20300).toBeLessThan(0.005);
     // The rounded constant 9549 = 60000 / (2 pi) agrees to 1 part in 10^4.

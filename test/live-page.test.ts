@@ -146,7 +146,7 @@ describe('live page in a real browser', () => {
     await page.waitForSelector('#start-form');
     await page.selectOption('#f-kind', 'two_plane');
     await page.check('input[name=convention][value=with_rotation]');
-    await page.fill('#f-by', 'Test Technician');
+    await page.fill('#f-by', 'T. Technician (invented)');
     await page.fill('#f-plane0_name', 'back_plate');
     await page.fill('#f-plane0_radius', '760');
     await page.fill('#f-plane1_name', 'front_shroud');
@@ -243,7 +243,7 @@ describe('live page in a real browser', () => {
     const report = (await page.textContent('#report'))!;
     expect(report).toMatch(/Conventions: weight angles in degrees from the reference mark, measured WITH rotation/);
     for (const label of ['as found', 'trial 1', 'trial 2', 'check']) expect(report).toContain(label);
-    expect(report).toContain('Test Technician');
+    expect(report).toContain('T. Technician (invented)');
     const pdf = await page.pdf({ path: join(shots, 'report.pdf'), format: 'A4' });
     expect(pdf.length).toBeGreaterThan(20_000);
     if (process.env.TURNWISE_SCREENSHOT_DIR) {

@@ -70,7 +70,7 @@ function config(stateDir: string, live: Record<string, unknown> = {}): Config {
  * A one-plane rotor at 1500 r/min (invented figures): as found 4 mm/s pk at 100 deg at DE-V; a gram
  * on the reference mark adds 0.05 mm/s pk at 30 deg (influence coefficient H). A weight theta
  * against rotation adds H m e^{i theta} (agent/balance/conventions.ts). One-plane correction
- * W = -V0 / H (field notes section 5): 4 / 0.05 = 80 g at 100 - 30 + 180 = 250 deg.
+ * W = -V0 / H (influence-coefficient method, textbook): 4 / 0.05 = 80 g at 100 - 30 + 180 = 250 deg.
  */
 const D2R = Math.PI / 180;
 function rotor1x(weights: ReadonlyArray<{ mass_g: number; angle_deg: number; radius_mm: number }>): [number, number] {
@@ -175,7 +175,7 @@ describe('live page server', () => {
   });
 
   it('lets a viewer look but not act, and logs the refusal without any token', async () => {
-    const r = await call('POST', '/api/jobs', VIEWER, { kind: 'single_plane', by: 'Ana' });
+    const r = await call('POST', '/api/jobs', VIEWER, { kind: 'single_plane', by: 'A. Ruiz (invented)' });
     expect(r.status).toBe(403);
     expect(r.body.error.message).toMatch(/"control-room" is a viewer token/);
     expect(r.body.error.hint).toMatch(/operator token/);
@@ -194,10 +194,10 @@ describe('live page server', () => {
     expect(problems.some((p) => p.includes('unknown key(s) "colour"'))).toBe(true);
     expect(bad.body.error.hint).toMatch(/fix the fields named/);
 
-    const wrongSensor = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'Ana', sensors: ['DE-X'] });
+    const wrongSensor = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)', sensors: ['DE-X'] });
     expect(wrongSensor.status).toBe(400);
     expect(wrongSensor.body.error.problems[0]).toMatch(/sensors\[0\]: "DE-X" is not a sensor of this machine \(DE-V, DE-A\)/);
-    const twoPlanes = await call('POST', '/api/jobs', OPERATOR, { kind: 'two_plane', by: 'Ana' });
+    const twoPlanes = await call('POST', '/api/jobs', OPERATOR, { kind: 'two_plane', by: 'A. Ruiz (invented)' });
     expect(twoPlanes.status).toBe(400);
     expect(twoPlanes.body.error.message).toMatch(/two-plane job needs 2 plane\(s\), 1 given \(from the config's balance.planes\)/);
 
@@ -206,7 +206,7 @@ describe('live page server', () => {
     expect(notJson.body.error.code).toBe('invalid_json');
     const text = await fetch(base + '/api/jobs', { method: 'POST', headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'text/plain' }, body: 'kind=x' });
     expect(text.status).toBe(415);
-    const huge = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'Ana', notes: 'x'.repeat(70 * 1024) });
+    const huge = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)', notes: 'x'.repeat(70 * 1024) });
     expect(huge.status).toBe(413);
     expect((await call('GET', '/api/nothing', VIEWER)).status).toBe(404);
     expect((await call('GET', '/api/tools/split', VIEWER)).status).toBe(405);
@@ -219,11 +219,12 @@ describe('live page server', () => {
     const badSplit = await call('POST', '/api/tools/split', VIEWER, { mass_g: 10, angle_deg: 0, positions: { count: 2 } });
     expect(badSplit.status).toBe(400);
     expect(badSplit.body.error.message).toMatch(/positions\.count: needs at least 3 positions/);
-    // ISO 21940-11 (from memory, field notes section 5): 500 kg, 1480 r/min, G6.3 -> about 20 300 g mm.
+    // ISO 21940-11 (from memory): 500 kg, 1480 r/min, G6.3 -> about 20 300 g mm.
     const grade = await call('POST', '/api/tools/grade', VIEWER, { rotor_mass_kg: 500, speed_rpm: 1480, grade: 'G6.3' });
     expect(grade.body.permissible_g_mm).toBeGreaterThan(20250);
     expect(grade.body.permissible_g_mm).toBeLessThan(20350);
-    // Field notes section 5: 50 g at 600 mm at 1480 r/min pulls about 720 N; the trial rule inverts it.
+    // F = m r omega^2 (textbook; own computation): 50 g at 600 mm at 1480 r/min pulls about 720 N; the trial rule
+    // (common practice: trial force about 10 % of the rotor weight on the nearest bearing) inverts it.
     const trial = await call('POST', '/api/tools/trial-weight', VIEWER, { bearing_load_kg: 720 / 9.80665 / 0.1, radius_mm: 600, speed_rpm: 1480 });
     expect(trial.body.mass_g).toBeGreaterThan(49.5);
     expect(trial.body.mass_g).toBeLessThan(50.5);
@@ -264,13 +265,13 @@ describe('live page server', () => {
   });
 
   it('runs a single-plane job through the API to the correction W = -V0/H, checked, recorded and evented', async () => {
-    const created = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'Ana Ruiz', sensors: ['DE-V'] });
+    const created = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)', sensors: ['DE-V'] });
     expect(created.status).toBe(200);
     const job = created.body.view.job;
     const id = job.job_id as string;
     expect(job.setup).toMatchObject({ kind: 'single_plane', angle_convention: 'against_rotation', planes: [{ name: 'P1', radius_mm: 500, max_mass_g: 150 }], rotor_mass_kg: 400, grade_mm_s: 6.3 });
     expect(created.body.view.convention).toMatch(/AGAINST rotation/);
-    expect((await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'Bo' })).status).toBe(409);
+    expect((await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'B. Olsen (invented)' })).status).toBe(409);
     const early = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'trial', add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], acknowledge_cautions: true });
     expect(early.status).toBe(409);
     expect(early.body.error.message).toMatch(/run 0 \(as found\) is declared but not measured yet/);
@@ -337,7 +338,7 @@ describe('live page server', () => {
     expect(res.trim[0].angle_deg).toBeCloseTo(250, 6);
     expect(view.step).toBe('check');
 
-    const finished = await call('POST', `/api/jobs/${id}/finish`, OPERATOR, { note: 'within G6.3', by: 'Ana Ruiz' });
+    const finished = await call('POST', `/api/jobs/${id}/finish`, OPERATOR, { note: 'within G6.3', by: 'A. Ruiz (invented)' });
     expect(finished.status).toBe(200);
     expect(finished.body.view.job.status).toBe('finished');
     expect(finished.body.view.job.coefficients).toEqual({ saved: true, reason: null });
@@ -348,7 +349,7 @@ describe('live page server', () => {
     const onDisk = JSON.parse(readFileSync(join(dir, 'balance', 'jobs', `${id}.json`), 'utf8'));
     expect(onDisk.workbench.runs).toHaveLength(3);
     expect(onDisk.result.corrections[0].mass_g).toBeCloseTo(80, 6);
-    expect(onDisk.recorded_by).toBe('Ana Ruiz');
+    expect(onDisk.recorded_by).toBe('A. Ruiz (invented)');
     const exported = await call('GET', `/api/jobs/${id}/export`, VIEWER);
     expect(exported.headers.get('content-disposition')).toBe(`attachment; filename="${id}.json"`);
     expect(exported.body.workbench.log.map((e: { action: string }) => e.action)).toEqual([
@@ -371,13 +372,13 @@ describe('live page server', () => {
     const logText = JSON.stringify(logger.lines);
     expect(logText).not.toContain(VIEWER);
     expect(logText).not.toContain(OPERATOR);
-    expect(logger.lines.some((l) => l.msg.includes('balancing: finished') && l.fields.by === 'Ana Ruiz' && l.fields.token === 'crew')).toBe(true);
+    expect(logger.lines.some((l) => l.msg.includes('balancing: finished') && l.fields.by === 'A. Ruiz (invented)' && l.fields.token === 'crew')).toBe(true);
     const list = await call('GET', '/api/jobs', VIEWER);
-    expect(list.body.jobs[0]).toMatchObject({ job_id: id, status: 'finished', kind: 'single_plane', created_by: 'Ana Ruiz' });
+    expect(list.body.jobs[0]).toMatchObject({ job_id: id, status: 'finished', kind: 'single_plane', created_by: 'A. Ruiz (invented)' });
   });
 
   it('reopens a job left open when the agent starts again, and answers the plant command', async () => {
-    const created = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'Ana Ruiz' });
+    const created = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)' });
     const id = created.body.view.job.job_id;
     const second = LiveServer.fromConfig(config(dir), { logger: new MemoryLogger(), clock, emit: () => undefined }, ENV);
     await second.workbench.restore();

@@ -90,7 +90,7 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
   });
 
   it('solves a static-couple job from a static pair and a couple pair', async () => {
-    const created = await post('/api/jobs', { kind: 'static_couple', by: 'Ana Ruiz' });
+    const created = await post('/api/jobs', { kind: 'static_couple', by: 'A. Ruiz (invented)' });
     expect(created.status).toBe(200);
     const id = created.body.view.job.job_id;
     expect(created.body.view.job.setup.angle_convention).toBe('with_rotation');
@@ -133,7 +133,7 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
   it('trims from the stored coefficients without trial runs after the rotor picks up build-up', async () => {
     // 12 g of build-up in P2 at 150 deg against rotation, on top of the balanced rotor.
     rotor.push({ plane: 1, mass_g: 12, angle_deg: 150, convention: 'against_rotation' });
-    const created = await post('/api/jobs', { kind: 'trim', by: 'Ana Ruiz' });
+    const created = await post('/api/jobs', { kind: 'trim', by: 'A. Ruiz (invented)' });
     expect(created.status).toBe(200);
     const id = created.body.view.job.job_id;
     expect(created.body.view.job.setup.coefficients_from.speed_rpm).toBeCloseTo(1500, 6);

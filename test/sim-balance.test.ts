@@ -10,7 +10,7 @@ import { angleDiff } from './sim-fixtures.js';
 /**
  * A two-plane balancing job played on the simulated demo fan (invented Kessrow ID-3A, day 5 15:00,
  * after balance weight W1 was thrown), end to end through the parts built apart: simulator ->
- * measurement core -> influence-coefficient solver (W = -H^+ V0, field notes section 5) -> weights
+ * measurement core -> influence-coefficient solver (W = -H^+ V0, least squares; textbook method) -> weights
  * fitted on the running simulated fan -> check run.
  */
 describe('balancing the simulated fan', () => {
@@ -65,7 +65,7 @@ describe('balancing the simulated fan', () => {
     for (const id of radial) {
       const before = runs[0]!.readings[id]!.amp;
       expect(check[id]!.amp / before).toBeLessThan(0.02);
-      // zone A for a group 2 machine on a rigid support: below 1.4 mm/s r.m.s. (ISO 20816-3, field notes section 3)
+      // zone A for a group 2 machine on a rigid support: below 1.4 mm/s r.m.s. (ISO 20816-3)
       expect(check[id]!.amp / Math.SQRT2).toBeLessThan(1.4);
     }
     await src.close();

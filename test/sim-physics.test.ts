@@ -35,7 +35,7 @@ describe('physics of the simulated rotor', () => {
     expect(STANDARD_GRAVITY_M_S2).toBe(9.80665);
   });
 
-  it('gives the centrifugal force F = m r omega^2 (textbook; field notes section 5: 50 g at 600 mm at 1480 r/min is about 720 N)', () => {
+  it('gives the centrifugal force F = m r omega^2 (textbook; own computation: 50 g at 600 mm at 1480 r/min is about 720 N)', () => {
     const f = centrifugalForceN(0.05, 0.6, rpmToRadS(1480));
     expect(f).toBeCloseTo(0.05 * 0.6 * ((1480 * 2 * Math.PI) / 60) ** 2, 9);
     expect(Math.abs(f - 720)).toBeLessThan(5);
@@ -59,7 +59,7 @@ describe('physics of the simulated rotor', () => {
     const res = receptance(s, 2 * Math.PI * 40);
     expect(magnitude(res)).toBeCloseTo(1 / (2 * 0.05 * 30e6), 15);
     expect(lagDeg(res)).toBeCloseTo(90, 9);
-    // below the first critical speed the high spot lags the heavy spot by less than 90 deg (field notes section 4)
+    // below the first critical speed the high spot lags the heavy spot by less than 90 deg (textbook rotor dynamics, from memory)
     for (const hz of [5, 20, 35, 39]) expect(lagDeg(receptance(s, 2 * Math.PI * hz))).toBeLessThan(90);
     expect(lagDeg(receptance(s, 2 * Math.PI * 60))).toBeGreaterThan(90);
   });
@@ -99,7 +99,7 @@ describe('physics of the simulated rotor', () => {
     expect(angleDiff(lagDeg(w), -40)).toBeCloseTo(0, 9);
   });
 
-  it('is balanced in one plane by W = -V0 / H (influence-coefficient method, field notes section 5)', () => {
+  it('is balanced in one plane by W = -V0 / H (influence-coefficient method, textbook)', () => {
     const as = [u(40, 30), ZERO];
     const v0 = unbalanceVelocity(g, DE_V, as, omega);
     const t = u(20, 0);
@@ -113,7 +113,7 @@ describe('physics of the simulated rotor', () => {
     expect(angleDiff(lagDeg(w), 210)).toBeCloseTo(0, 6);
   });
 
-  it('is balanced in two planes by W = -H^-1 V0 (influence-coefficient method, field notes section 5)', () => {
+  it('is balanced in two planes by W = -H^-1 V0 (influence-coefficient method, textbook)', () => {
     const as: Phasor[] = [u(40, 30), u(25, 200)];
     const at = [DE_V, NDE_V];
     const v0 = at.map((s) => unbalanceVelocity(g, s, as, omega));
@@ -125,7 +125,7 @@ describe('physics of the simulated rotor', () => {
     for (let i = 0; i < 2; i++) expect(magnitude(after[i]!)).toBeLessThan(1e-9 * magnitude(v0[i]!));
   });
 
-  it('reads static unbalance in phase at both bearings and couple unbalance 180 deg apart (common practice, field notes section 2)', () => {
+  it('reads static unbalance in phase at both bearings and couple unbalance 180 deg apart (common practice)', () => {
     // symmetric rotor so both bearings have the same supports: planes at 1000 and 1400, centre of mass at 1200
     const sym = plan(testScenario({ rotor: { ...(testScenario().rotor as object), planes: [{ name: 'P1', position_mm: 1000 }, { name: 'P2', position_mm: 1400 }], centre_of_mass_mm: 1200 } }));
     const gs = sym.geometry;
@@ -137,7 +137,7 @@ describe('physics of the simulated rotor', () => {
     }
   });
 
-  it('reads horizontal and vertical about 90 deg apart, H/V ratio below 3 (common practice, field notes section 2)', () => {
+  it('reads horizontal and vertical about 90 deg apart, H/V ratio below 3 (common practice)', () => {
     for (const [v, h] of [[DE_V, DE_H], [NDE_V, NDE_H]] as const) {
       const uu = [u(40, 30), u(10, 300)];
       const vv = unbalanceVelocity(g, v, uu, omega);
@@ -149,7 +149,7 @@ describe('physics of the simulated rotor', () => {
     }
   });
 
-  it('reads a sensor on the opposite side 180 deg shifted (field notes section 2)', () => {
+  it('reads a sensor on the opposite side 180 deg shifted (common practice; own computation: its axis is reversed)', () => {
     const uu = [u(40, 30), ZERO];
     const a = unbalanceVelocity(g, NDE_V, uu, omega);
     const b = unbalanceVelocity(g, { ...NDE_V, mounting_angle_deg: 180 }, uu, omega);
@@ -157,7 +157,7 @@ describe('physics of the simulated rotor', () => {
     expect(magnitude(b)).toBeCloseTo(magnitude(a), 15);
   });
 
-  it('gives an overhung rotor high axial 1x in phase at both bearings, a centre-hung one little axial (common practice, field notes section 2)', () => {
+  it('gives an overhung rotor high axial 1x in phase at both bearings, a centre-hung one little axial (common practice)', () => {
     const over = plan(
       testScenario({
         rotor: {
@@ -190,7 +190,7 @@ describe('physics of the simulated rotor', () => {
     expect(magnitude(axialCh) / magnitude(unbalanceVelocity(g, DE_V, ch, omega))).toBeLessThan(0.1);
   });
 
-  it('grows the displacement with speed squared well below the first critical speed (common practice, field notes section 2)', () => {
+  it('grows the displacement with speed squared well below the first critical speed (common practice)', () => {
     const uu = [u(40, 30), ZERO];
     const x = (w: number) => magnitude(unbalanceVelocity(g, DE_V, uu, w)) / w;
     const w1 = rpmToRadS(150);

@@ -46,7 +46,7 @@ describe('the demo scenario (invented Kessrow Board Mill fan ID-3A)', () => {
     const d3 = oneX(3);
     const d5 = oneX(5.5);
     const d6 = oneX(5.7);
-    expect(d1.amp_pk_mm_s / Math.SQRT2).toBeLessThan(1.4); // zone A for group 2 rigid (ISO 20816-3, field notes section 3)
+    expect(d1.amp_pk_mm_s / Math.SQRT2).toBeLessThan(1.4); // zone A for group 2 rigid (ISO 20816-3)
     expect(Math.abs(angleDiff(d3.phase_deg, d1.phase_deg))).toBeLessThan(1);
     expect(Math.abs(angleDiff(d5.phase_deg, d3.phase_deg))).toBeGreaterThan(30);
     expect(d6.amp_pk_mm_s / d5.amp_pk_mm_s).toBeGreaterThan(2.5);

@@ -151,7 +151,7 @@ describe('speed profiles', () => {
   });
 });
 
-describe('fault signatures (common practice, field notes section 2)', () => {
+describe('fault signatures (common practice)', () => {
   const noUnbalance = { unbalance: [] };
 
   it('misalignment: 2x above 1x radially, axial 180 deg apart across the coupling', () => {

@@ -14,8 +14,8 @@ import { angleDiff, plan, testConfig, testScenario } from './sim-fixtures.js';
  * watcher's health and signature assessment judges the last window with the earlier ones as its
  * recent history, as the live watcher does (assessWindow: the path `turnwise analyze` takes).
  *
- * Each expectation names the trade rule behind it: field notes section 2 ("what says unbalance and
- * what says something else", common practice) and section 3 (ISO 20816-3 zones). The simulator's
+ * Each expectation names the trade rule behind it: the rules for what says unbalance and what says
+ * something else (common practice) and the ISO 20816-3 zones. The simulator's
  * fault models are signature models (drivers/sim/faults.ts); the point here is that a signal carrying
  * the pattern reaches the right verdict through the DSP, not only a hand-made DSP result.
  *
@@ -95,7 +95,7 @@ function forceLag(parts: { share: number; mass_g: number; angle_deg: number }[])
 /** Lag of a single-degree-of-freedom receptance at frequency ratio r, degrees (textbook). */
 const sdofLagDeg = (r: number, zeta: number) => (Math.atan2(2 * zeta * r, 1 - r * r) * 180) / Math.PI;
 
-describe('the four kinds of unbalance, from signals (field notes section 2, common practice)', () => {
+describe('the four kinds of unbalance, from signals (common practice)', () => {
   it('static: the same mass at the same angle in both planes -> DE and NDE in phase, H 90 deg from V: static, high confidence', async () => {
     const w = await watch(scenario({ unbalance: [mass('P1', 40, 30), mass('P2', 40, 30)] }));
     const u = w.a.unbalance;
@@ -115,7 +115,7 @@ describe('the four kinds of unbalance, from signals (field notes section 2, comm
     expect(u.measures.one_x_share!).toBeGreaterThan(0.99);
     expect(u.measures.two_x_over_one_x!).toBeLessThan(0.05);
     expect(evidence(w)).toMatch(/1x phase steady: a median 0 deg from one window to the next over the last 6 windows/);
-    // ISO 20816-3 group 2 rigid, zone boundaries 1.4 / 2.8 / 4.5 mm/s r.m.s. (field notes section 3)
+    // ISO 20816-3 group 2 rigid, zone boundaries 1.4 / 2.8 / 4.5 mm/s r.m.s.
     const top = Math.max(...w.windows[5]!.channels.map((c) => c.overall_rms_mm_s!));
     expect(top).toBeGreaterThan(4.5);
     expect(w.a.zone.machine).toBe('D');
@@ -149,7 +149,7 @@ describe('the four kinds of unbalance, from signals (field notes section 2, comm
   it('overhung: impeller outboard of both bearings -> high axial 1x in phase at both bearings: overhung', async () => {
     const cfg = testConfig({ rotor: 'overhung' });
     // 400 kg, bearings 1000 mm apart, impeller 400 mm outboard of NDE; supports stiff enough to stay
-    // above running speed ("rigid": lowest natural frequency at least 25 % above it, field notes section 3)
+    // above running speed (ISO 20816-3 "rigid": lowest natural frequency at least 25 % above it)
     const w = await watch(
       scenario({
         rotor: {
@@ -177,11 +177,12 @@ describe('the four kinds of unbalance, from signals (field notes section 2, comm
   });
 });
 
-describe('1x that is not unbalance, from signals (field notes section 2, common practice)', () => {
-  it('misalignment at the DE coupling: high 2x and axial 180 deg apart across the coupling -> none, points to misalignment', async () => {
+describe('1x that is not unbalance, from signals (common practice)', () => {
+  it('misalignment at the DE coupling, fan sensors only: high 2x and axial 180 deg apart -> none, misalignment or a bent shaft (no driver-side sensor to tell them apart)', async () => {
     const w = await watch(withFault({ kind: 'misalignment', coupling_bearing: 'DE', amp_pk_mm_s: 3 }));
     expect(w.a.unbalance.kind).toBe('none');
-    expect(causes(w)).toEqual(['misalignment']);
+    expect(causes(w)).toEqual(['bent_shaft', 'misalignment']);
+    expect(w.a.unbalance.limits.join('\n')).toMatch(/misalignment cannot be told from a bent shaft with these sensors/);
     // high 2x (at or above half the 1x, the configured default) and high axial 180 apart -> misalignment
     expect(w.a.unbalance.measures.two_x_over_one_x!).toBeGreaterThan(0.5);
     expect(pair(w, 'axial').phase_diff_deg).toBeGreaterThan(150);
@@ -299,8 +300,8 @@ describe('1x that is not unbalance, from signals (field notes section 2, common 
   });
 });
 
-describe('sensor and tach faults, from signals (machinery-protection practice, field notes section 3)', () => {
-  const cfg = testConfig({ bias: true }); // healthy IEPE bias 8-12 V DC (common practice, field notes section 4)
+describe('sensor and tach faults, from signals (machinery-protection practice, API 670 from memory)', () => {
+  const cfg = testConfig({ bias: true }); // healthy IEPE bias 8-12 V DC (common practice)
   const staticRotor = { unbalance: [mass('P1', 40, 30), mass('P2', 40, 30)] };
 
   it('an open cable on NDE-V during static unbalance: the channel is not OK and left out, the verdict stays static', async () => {

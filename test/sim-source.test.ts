@@ -88,7 +88,7 @@ describe('SimSource (driver: sim)', () => {
     expect(n).toBe(2);
   });
 
-  it('moves the 1x when a weight is fitted as influence coefficients say, and a one-plane balancing job on it converges (field notes section 5)', async () => {
+  it('moves the 1x when a weight is fitted as influence coefficients say, and a one-plane balancing job on it converges (influence-coefficient method, textbook)', async () => {
     // one plane, read at NDE-V: as found, trial run, correction W = -V0 / H, check run
     const src = new SimSource(plan(testScenario({ signal: { noise_rms_g: 0.003 } })), { blockSamples: 8 * REV, pace: 'fast' });
     await src.open();

@@ -25,6 +25,16 @@ const runSchema = z
   })
   .strict();
 const coefficientSchema = z.object({ amp_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
+export const rotorGeometrySchema = z
+  .object({
+    rotor: z.enum(['centre_hung', 'overhung']),
+    bearing_a_mm: finite,
+    bearing_b_mm: finite,
+    centre_of_mass_mm: finite,
+    planes_mm: z.record(name, finite),
+  })
+  .strict()
+  .describe('Axial positions along the shaft from one datum, mm: the two bearings, the centre of mass and every correction plane.');
 
 export const balanceJobSchema = z
   .object({
@@ -40,10 +50,15 @@ export const balanceJobSchema = z
     grade_mm_s: positive.optional(),
     influence_coefficients: z.record(name, z.record(name, coefficientSchema)).optional(),
     coefficients_speed_rpm: positive.optional(),
+    geometry: rotorGeometrySchema.optional(),
     notes: z.string().max(2000).optional(),
   })
   .strict()
   .superRefine((job, ctx) => {
+    if (job.geometry) {
+      for (const p of job.planes) if (job.geometry.planes_mm[p] === undefined) ctx.addIssue({ code: 'custom', path: ['geometry', 'planes_mm'], message: `no axial position for plane "${p}"` });
+      for (const p of Object.keys(job.geometry.planes_mm)) if (!job.planes.includes(p)) ctx.addIssue({ code: 'custom', path: ['geometry', 'planes_mm', p], message: `"${p}" is not one of the planes` });
+    }
     const planes = new Set<string>();
     job.planes.forEach((p, i) => {
       if (planes.has(p)) ctx.addIssue({ code: 'custom', path: ['planes', i], message: `plane "${p}" is listed twice` });
@@ -86,6 +101,43 @@ export const balanceJobSchema = z
     }
   });
 
+export const multiSpeedSchema = z
+  .object({
+    angle_convention: convention.default('against_rotation'),
+    planes: z.array(name).min(1, 'needs at least one plane').max(8, 'at most 8 planes'),
+    amp_unit: z.string().max(16).optional(),
+    radius_mm: z.record(name, positive).optional(),
+    max_mass_g: z.record(name, positive).optional(),
+    max_residual_share: positive.max(1, 'must be at most 1 (the as-found vibration)').optional(),
+    speeds: z
+      .array(
+        z
+          .object({
+            speed_rpm: positive,
+            weight: positive.optional(),
+            label: z.string().max(64).optional(),
+            runs: z.array(runSchema).min(1, 'needs at least the as-found run at this speed'),
+          })
+          .strict(),
+      )
+      .min(2, 'needs runs at two or more speeds (for one speed use `turnwise balance solve`)')
+      .max(20),
+    notes: z.string().max(2000).optional(),
+  })
+  .strict()
+  .superRefine((job, ctx) => {
+    // Every speed group must be a valid one-speed job with the same sensors.
+    const sensors = Object.keys(job.speeds[0]?.runs[0]?.readings ?? {}).sort().join(',');
+    job.speeds.forEach((g, i) => {
+      const res = balanceJobSchema.safeParse({ angle_convention: job.angle_convention, planes: job.planes, runs: g.runs });
+      if (!res.success) for (const iss of res.error.issues) ctx.addIssue({ code: 'custom', path: ['speeds', i, ...iss.path], message: iss.message });
+      const here = Object.keys(g.runs[0]?.readings ?? {}).sort().join(',');
+      if (i > 0 && here !== sensors) ctx.addIssue({ code: 'custom', path: ['speeds', i, 'runs', 0, 'readings'], message: `sensors ${here || 'none'} differ from speeds[0]'s ${sensors}; every speed needs the same sensors` });
+    });
+  });
+
+export type MultiSpeedRequest = z.infer<typeof multiSpeedSchema>;
+
 export const splitRequestSchema = z
   .object({
     angle_convention: convention.default('against_rotation'),
@@ -109,6 +161,29 @@ export const splitRequestSchema = z
 
 export type SplitRequest = z.infer<typeof splitRequestSchema>;
 
+/** A split between holes at given angles (any spacing): two holes, or a list to pick the nearest two from. */
+export const splitHolesRequestSchema = z
+  .object({
+    angle_convention: convention.default('against_rotation'),
+    mass_g: positive,
+    angle_deg: finite,
+    radius_mm: positive.optional(),
+    holes: z
+      .object({
+        angles_deg: z.array(finite).min(2, 'needs at least two hole angles').max(360),
+        radius_mm: positive.optional(),
+      })
+      .strict(),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    if ((r.radius_mm === undefined) !== (r.holes.radius_mm === undefined)) {
+      ctx.addIssue({ code: 'custom', path: [r.radius_mm === undefined ? 'radius_mm' : 'holes'], message: "give both radius_mm and holes.radius_mm (to move the weight to the holes' radius), or neither" });
+    }
+  });
+
+export type SplitHolesRequest = z.infer<typeof splitHolesRequestSchema>;
+
 export const combineRequestSchema = z
   .object({
     angle_convention: convention.default('against_rotation'),
@@ -123,6 +198,39 @@ export const combineRequestSchema = z
   });
 
 export type CombineRequest = z.infer<typeof combineRequestSchema>;
+
+export const fourRunSchema = z
+  .object({
+    angle_convention: convention.default('against_rotation'),
+    sensor: name.optional(),
+    amp_unit: z.string().max(16).optional(),
+    as_found: positive.describe('1x amplitude as found, job unit'),
+    trial_mass_g: positive,
+    radius_mm: positive.optional(),
+    speed_rpm: positive.optional(),
+    amp_scatter_pct: positive.max(50).optional(),
+    trials: z
+      .array(z.object({ angle_deg: finite, amp: finite.refine((x) => x >= 0, 'must be 0 or more') }).strict())
+      .min(3, 'needs the trial weight at three positions (with two, two mirror-image answers fit and the method cannot choose)')
+      .max(12, 'at most 12 trial positions'),
+    notes: z.string().max(2000).optional(),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    const angles = r.trials.map((t) => ((t.angle_deg % 360) + 360) % 360);
+    // Positions closer than 10 degrees are one position read twice: they add no geometry.
+    const distinct: number[] = [];
+    for (const a of angles) if (!distinct.some((b) => Math.min(Math.abs(a - b), 360 - Math.abs(a - b)) < 10)) distinct.push(a);
+    if (r.trials.length >= 3 && distinct.length < 3) {
+      ctx.addIssue({
+        code: 'custom',
+        path: ['trials'],
+        message: `the trial positions (${angles.map((a) => a.toFixed(0)).join(', ')} deg) give only ${distinct.length} distinct position(s) at least 10 deg apart; the method needs three, best spread round the rotor (0, 120, 240 deg)`,
+      });
+    }
+  });
+
+export type FourRunRequest = z.infer<typeof fourRunSchema>;
 
 const coefficientEntry = z.object({ amp_mm_s_pk_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
 export const storedCoefficientsSchema = z
@@ -191,8 +299,20 @@ export function parseSplitRequest(raw: unknown, file = 'split'): SplitRequest {
   return validate(splitRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
 }
 
+export function parseSplitHolesRequest(raw: unknown, file = 'split'): SplitHolesRequest {
+  return validate(splitHolesRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
+}
+
+export function parseMultiSpeed(raw: unknown, file = 'multi-speed'): MultiSpeedRequest {
+  return validate(multiSpeedSchema, raw, file, 'multi-speed job', 'fix the file; `turnwise help balance` shows the format of `balance multi-speed`');
+}
+
 export function parseCombineRequest(raw: unknown, file = 'combine'): CombineRequest {
   return validate(combineRequestSchema, raw, file, 'combine request', 'fix the file; `turnwise help balance` shows the format');
+}
+
+export function parseFourRun(raw: unknown, file = 'four-run'): FourRunRequest {
+  return validate(fourRunSchema, raw, file, 'four-run request', 'fix the file; `turnwise help balance` shows the format of `balance four-run`');
 }
 
 export function parseStoredCoefficients(raw: unknown, file = 'coefficients'): StoredCoefficients {

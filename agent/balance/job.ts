@@ -7,6 +7,7 @@
  * RELATIVE TO AS FOUND (a trial weight left in from an earlier run is listed again). Weight angles
  * follow `angle_convention` (see conventions.ts); phases are always lags.
  */
+import type { Allocation, RotorGeometry } from './allocation.js';
 import type { AngleConvention } from './conventions.js';
 
 export interface Reading {
@@ -53,6 +54,8 @@ export interface BalanceJob {
   readonly influence_coefficients?: Readonly<Record<string, Readonly<Record<string, CoefficientValue>>>>;
   /** Speed the given influence_coefficients were measured at, r/min (checked against the runs). */
   readonly coefficients_speed_rpm?: number;
+  /** Bearing, centre-of-mass and plane positions for the ISO 21940-11 allocation to the planes. */
+  readonly geometry?: RotorGeometry;
   readonly notes?: string;
 }
 
@@ -119,8 +122,13 @@ export interface UnbalanceReport {
   readonly last_run_g_mm: Readonly<Record<string, number>>;
   /** ISO 21940-11 permissible residual unbalance of the whole rotor, g mm (when mass, grade, speed known). */
   readonly permissible_g_mm: number | null;
-  /** permissible_g_mm shared equally between the planes (a simplification: see docs/live-page.md, "A balancing job on the page"). */
+  /** permissible_g_mm shared equally between the planes (the fallback; kept for comparison). */
   readonly permissible_per_plane_g_mm: number | null;
+  /** permissible_g_mm allocated to each plane (ISO 21940-11 from the geometry, else the equal split). */
+  readonly permissible_by_plane_g_mm: Readonly<Record<string, number>> | null;
+  /** How the allocation was made, and its warnings. */
+  readonly allocation: Allocation | null;
+  /** Every plane's last-run unbalance within its allocated share. */
   readonly last_run_within_grade: boolean | null;
 }
 

@@ -3,6 +3,8 @@
  * every one, and the safety cautions. Pure string builders; the CLI prints them.
  */
 import { conventionText, type AngleConvention } from './conventions.js';
+import type { FourRunResult } from './four-run.js';
+import type { MultiSpeedResult } from './multi-speed.js';
 import type { BalanceResult, Issue, PlaneWeight } from './job.js';
 import { centrifugalForceN, type SplitPart } from './weights.js';
 
@@ -33,7 +35,11 @@ export function balancingCautions(): string[] {
     'Lock out and tag out the fan before anyone touches the rotor, and prove it cannot turn.',
     `Every weight pulls outward with F = m r omega^2 at speed (50 g at 600 mm at 1480 r/min: about ${fixed(example, 0)} N). Weld or bolt weights only as the fan maker allows; check trial weights are secure before every start.`,
     'Nobody stands in line with the impeller (in its plane of rotation) at start-up or during the runs.',
-    "These figures support, and do not replace, a competent balancing technician: follow the plant's procedures, local codes and licensed practice.",
+    "Watch the vibration during every trial and check run, and stop the fan at once if it climbs into zone D or to the plant's trip level: a trial weight in the wrong place can double the vibration.",
+    'A draft fan can turn from the draft of other fans on the same duct or stack: block the rotor against turning and close and isolate the dampers before anyone reaches in.',
+    "Reaching the impeller may be confined-space entry, with hot gas, dust or too little oxygen in the casing: it needs the plant's permit (gas test, standby, rescue plan) before anyone goes in.",
+    'Fitting sensors or the reference mark is work on the machine: do it under the same lock-out as fitting weights.',
+    "These figures support, and do not replace, a competent balancing technician: follow the fan maker's instructions, the plant's procedures, local codes and licensed practice.",
   ];
 }
 
@@ -124,11 +130,14 @@ export function formatSolveReport(r: BalanceResult): string {
     const u = r.unbalance;
     out.push('\nUnbalance estimated from the vibration through the influence coefficients (g mm):');
     out.push(table(['plane', 'as found', 'at last run'], r.planes.map((p) => [p, fixed(u.as_found_g_mm[p]!, 0), fixed(u.last_run_g_mm[p]!, 0)])));
-    if (u.permissible_g_mm !== null) {
+    if (u.permissible_g_mm !== null && u.allocation) {
+      const a = u.allocation;
       out.push(
-        `  ISO 21940-11 permissible residual unbalance ${fixed(u.permissible_g_mm, 0)} g mm for the rotor, ${fixed(u.permissible_per_plane_g_mm!, 0)} g mm per plane if shared equally: ` +
-          `last run ${u.last_run_within_grade ? 'WITHIN' : 'NOT within'} the grade.`,
+        `  ISO 21940-11 permissible residual unbalance ${fixed(u.permissible_g_mm, 0)} g mm for the rotor; per plane ` +
+          r.planes.map((p) => `${p} ${fixed(a.by_plane_g_mm[p]!, 0)}`).join(', ') +
+          ` g mm: last run ${u.last_run_within_grade ? 'WITHIN' : 'NOT within'} the grade.`,
       );
+      out.push(`  allocation: ${a.basis}`);
     }
   }
   out.push('');
@@ -144,10 +153,10 @@ export function formatSplitReport(s: {
   radius_mm: number | null;
   positions_radius_mm: number | null;
   weights: readonly SplitPart[];
-}): string {
+}, numbering = 'Positions are numbered from 0 at first_deg, counting in the direction the angles are measured.'): string {
   const out: string[] = [];
   out.push(conventionLine(s.angle_convention));
-  out.push('Positions are numbered from 0 at first_deg, counting in the direction the angles are measured.');
+  out.push(numbering);
   out.push(`Weight: ${fixed(s.mass_g, 1)} g at ${fixed(s.angle_deg, 1)} deg` + (s.radius_mm !== null ? `, radius ${fixed(s.radius_mm, 1)} mm` : ''));
   if (s.radius_mm !== null && s.positions_radius_mm !== null && s.radius_mm !== s.positions_radius_mm) {
     out.push(`Moved to the positions' radius ${fixed(s.positions_radius_mm, 1)} mm: ${fixed(s.moved_mass_g, 2)} g (mass x ${fixed(s.radius_mm, 1)} / ${fixed(s.positions_radius_mm, 1)}).`);
@@ -155,4 +164,73 @@ export function formatSplitReport(s: {
   out.push('Fit:');
   out.push(table(['position', 'angle deg', 'mass g'], s.weights.map((w) => [String(w.position), fixed(w.angle_deg, 1), fixed(w.mass_g, 2)])));
   return out.join('\n') + '\n';
+}
+
+export function formatFourRunReport(r: FourRunResult): string {
+  const unit = r.amp_unit ?? 'job unit';
+  const out: string[] = [];
+  out.push(`Amplitude-only balancing (four-run method: as found, trial weight at ${r.fit_residual?.trials.length ?? 'three'} positions), one plane` + (r.sensor ? `, sensor ${r.sensor}` : ''));
+  out.push(conventionLine(r.angle_convention));
+  out.push(`The method uses amplitudes only (no phase); the correction angle is counted like the trial angles. Amplitudes: ${unit}.\n`);
+  if (!r.ok || !r.correction) {
+    out.push('NO CORRECTION GIVEN: the readings do not fix the weight honestly.');
+    out.push(issueLines('Problems:', r.problems));
+    out.push(issueLines('Warnings:', r.warnings));
+    return out.filter((l, i, a) => !(l === '' && a[i - 1] === '')).join('\n');
+  }
+  const c = r.correction;
+  const u = r.correction_uncertainty!;
+  out.push('Correction to fit, with the trial weight REMOVED (relative to the rotor as found):');
+  out.push(
+    table(
+      ['mass g', '+/- g', 'angle deg', '+/- deg', 'unbalance g mm', 'force N'],
+      [[fixed(c.mass_g, 1), fixed(u.mass_g, 1), fixed(c.angle_deg, 1), fixed(u.angle_deg, 1), c.unbalance_g_mm !== undefined ? fixed(c.unbalance_g_mm, 0) : '-', c.force_n !== undefined ? fixed(c.force_n, 0) : '-']],
+    ),
+  );
+  out.push(`  (+/- is one standard deviation at a reading scatter of ${u.scatter_amp.toPrecision(3)} ${unit})`);
+  const t = r.trial_effect!;
+  out.push(`\nTrial effect: ${t.amp.toPrecision(3)} ${unit} for ${fixed(r.trial_mass_g, 1)} g (${t.amp_per_g.toPrecision(3)} per g), ${fixed(t.pct_of_as_found, 0)} % of the as-found ${r.as_found.toPrecision(3)}.`);
+  const f = r.fit_residual!;
+  out.push(`Circles: as-found circle radius ${r.as_found.toPrecision(3)}, trial circles round the trial positions; least-squares meeting point at radius ${r.intersection!.radius.toPrecision(3)}, ${fixed(r.intersection!.angle_deg, 1)} deg.`);
+  out.push(table(['trial at deg', 'measured', 'fitted'], f.trials.map((x) => [fixed(x.angle_deg, 1), x.measured_amp.toPrecision(3), x.fitted_amp.toPrecision(3)])));
+  out.push(`  fit residual ${f.rms_amp.toPrecision(3)} ${unit} r.m.s. (${fixed(f.pct_of_as_found, 1)} % of as found)`);
+  out.push('\nFit the correction, remove the trial weight, and do a check run: the 1x should drop well below as found; a second round of the method trims what is left.');
+  out.push('');
+  out.push(issueLines('Warnings:', r.warnings));
+  return out.filter((l, i, a) => !(l === '' && a[i - 1] === '')).join('\n');
+}
+
+export function formatMultiSpeedReport(r: MultiSpeedResult): string {
+  const unit = r.amp_unit ?? 'job unit';
+  const out: string[] = [];
+  out.push(`Multi-speed balancing: ${r.speeds.length} speeds (${r.speeds.map((s) => fixed(s.speed_rpm, 0)).join(', ')} r/min), ${r.planes.length} plane(s) (${r.planes.join(', ')}), ${r.sensors.length} sensor(s) (${r.sensors.join(', ')})`);
+  out.push(conventionLine(r.angle_convention));
+  out.push(`One correction minimising the weighted least squares of the 1x over all speeds and sensors. Amplitudes: ${unit}.\n`);
+  if (!r.ok) {
+    out.push('NO CORRECTION GIVEN:');
+    out.push(issueLines('Problems:', r.problems));
+  } else {
+    out.push('Correction to add, relative to the rotor as found, with ALL trial weights removed (force at the highest speed):');
+    out.push(table(WEIGHT_HEADER, weightRows(r.corrections)));
+    out.push('');
+  }
+  const shown = r.speeds.some((s) => s.residual_share !== null);
+  out.push(`Per speed (${unit}; "left" = r.m.s. over the sensors of predicted / as found${r.ok ? '' : ', for the compromise that was refused'}):`);
+  out.push(
+    table(
+      ['speed r/min', 'weight', ...r.sensors.map((s) => `${s} as found`), ...(shown ? r.sensors.map((s) => `${s} predicted`) : []), ...(shown ? ['left %'] : []), 'own correction'],
+      r.speeds.map((s) => [
+        fixed(s.speed_rpm, 0),
+        fixed(s.weight, 2),
+        ...s.as_found.map((v) => `${v.amp.toPrecision(3)} @ ${fixed(v.phase_deg, 0)}`),
+        ...(shown ? s.predicted_residuals.map((v) => `${v.amp.toPrecision(3)} @ ${fixed(v.phase_deg, 0)}`) : []),
+        ...(shown ? [s.residual_share === null ? '-' : fixed(s.residual_share * 100, 0)] : []),
+        s.own_corrections.length ? s.own_corrections.map((w) => `${w.plane} ${fixed(w.mass_g, 1)} g @ ${fixed(w.angle_deg, 0)}`).join(', ') : '-',
+      ]),
+    ),
+  );
+  if (r.condition_number !== null && Number.isFinite(r.condition_number)) out.push(`\nCondition number of the stacked influence matrix: ${fixed(r.condition_number, 2)} (1 is ideal).`);
+  out.push('');
+  out.push(issueLines('Warnings:', [...r.warnings, ...r.speeds.flatMap((s) => s.warnings.map((w) => ({ ...w, message: `${fixed(s.speed_rpm, 0)} r/min: ${w.message}` })))]));
+  return out.filter((l, i, a) => !(l === '' && a[i - 1] === '')).join('\n');
 }

@@ -14,6 +14,7 @@
  *    C = -V0 / H; two planes: C = -H^-1 V0), complex least squares for more sensors.
  *    Fewer sensors than planes, or a singular matrix, gives problems and no numbers.
  */
+import { allocatePermissible } from './allocation.js';
 import { abs, add, argDeg, type Complex, deltaDeg, fromPolar, neg, scale, sub, ZERO } from './complex.js';
 import { type AngleConvention, conventionText, fromInternalDeg, toInternalDeg } from './conventions.js';
 import type {
@@ -410,12 +411,16 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     const asFoundU = Object.fromEntries(planes.map((p, i) => [p, abs(C[i]!) * radii[p]!]));
     const lastU = Object.fromEntries(planes.map((p, i) => [p, abs(D[i]!) * radii[p]!]));
     const per = job.rotor_mass_kg !== undefined && job.grade_mm_s !== undefined && speedRpm !== null ? permissibleUnbalanceGmm(job.grade_mm_s, job.rotor_mass_kg, speedRpm) : null;
+    const allocation = per === null ? null : allocatePermissible(per, planes, job.geometry);
+    if (allocation) warnings.push(...allocation.warnings.filter((w) => w.code !== 'share_bounded'));
     unbalance = {
       as_found_g_mm: asFoundU,
       last_run_g_mm: lastU,
       permissible_g_mm: per,
       permissible_per_plane_g_mm: per === null ? null : per / P,
-      last_run_within_grade: per === null ? null : planes.every((p) => lastU[p]! <= per / P),
+      permissible_by_plane_g_mm: allocation ? allocation.by_plane_g_mm : null,
+      allocation,
+      last_run_within_grade: allocation === null ? null : planes.every((p) => lastU[p]! <= allocation.by_plane_g_mm[p]!),
     };
   }
 

@@ -8,7 +8,7 @@
  * the inputs and the fixed positions share it.
  */
 import { STANDARD_GRAVITY_M_S2 } from '../dsp/acceleration.js';
-import { abs, add, argDeg, fromPolar, wrapDeg, ZERO } from './complex.js';
+import { abs, add, argDeg, deltaDeg, fromPolar, wrapDeg, ZERO } from './complex.js';
 
 /** Standard gravity, m/s^2 (the one definition lives with the acceleration stage). */
 export const STANDARD_GRAVITY = STANDARD_GRAVITY_M_S2;
@@ -88,6 +88,91 @@ export function splitOntoPositions(massG: number, angleDeg: number, positions: F
     { position: b, angle_deg: at(b), mass_g: (massG * Math.sin(da * rad)) / denom },
   ];
   return parts.sort((x, y) => x.position - y.position);
+}
+
+export interface HoleSplit {
+  /** Parts to fit: `position` is the index into the given list of holes. */
+  readonly weights: readonly SplitPart[];
+  /** Sum of the part masses, g (more than the weight unless it goes to one hole). */
+  readonly total_mass_g: number;
+  /** Angle between the two holes used, degrees (0 when the weight goes to one hole whole). */
+  readonly gap_deg: number;
+  readonly warnings: readonly { readonly code: string; readonly message: string; readonly hint: string }[];
+}
+
+/** Why a split between holes cannot be given. */
+export class SplitRefused extends Error {
+  constructor(
+    readonly code: string,
+    message: string,
+    readonly hint: string,
+  ) {
+    super(message);
+    this.name = 'SplitRefused';
+  }
+}
+
+/** Parts add up to more than this multiple of the weight: warn (this project's choice). */
+const SPLIT_TOTAL_WARN = 1.5;
+
+/**
+ * Splits a weight between holes at any angles (not only equally spaced), by the law of sines: for a
+ * weight W at angle t between holes a and b (going from a to b in the direction angles are counted,
+ * gap g = b - a, 0 < g < 180),
+ *   W_a = W sin(b - t) / sin(g),   W_b = W sin(t - a) / sin(g).
+ * With exactly two holes those two are used; with more, the two nearest holes either side of t.
+ * Refuses (SplitRefused) when no honest split exists: two holes 180 degrees apart (their parts can
+ * only make a weight on the line through them), holes that do not lie either side of t within less
+ * than 180 degrees (one part would be negative, i.e. mass to take off), or coincident holes. A weight
+ * within 1e-9 degrees of a hole goes there whole.
+ */
+export function splitBetweenHoles(massG: number, angleDeg: number, holesDeg: readonly number[]): HoleSplit {
+  if (holesDeg.length < 2) throw new SplitRefused('too_few_holes', `${holesDeg.length} hole(s) given; a split needs two`, 'give the angles of at least two holes');
+  const t = wrapDeg(angleDeg);
+  const holes = holesDeg.map((h, i) => ({ i, a: wrapDeg(h) }));
+  const on = holes.find((h) => Math.abs(deltaDeg(h.a, t)) < 1e-9);
+  if (on) return { weights: [{ position: on.i, angle_deg: on.a, mass_g: massG }], total_mass_g: massG, gap_deg: 0, warnings: [] };
+  // Nearest hole before t (counting backwards) and after t (counting forwards).
+  const before = holes.reduce((best, h) => (wrapDeg(t - h.a) < wrapDeg(t - best.a) ? h : best));
+  const after = holes.reduce((best, h) => (wrapDeg(h.a - t) < wrapDeg(h.a - best.a) ? h : best));
+  const gap = wrapDeg(after.a - before.a);
+  const list = holesDeg.map((h) => `${wrapDeg(h).toFixed(1)}`).join(', ');
+  if (before.i === after.i || gap < 1e-6) {
+    throw new SplitRefused('holes_coincide', `the holes (${list} deg) are all at one angle: no split can move the weight off it`, 'give two holes either side of the weight\'s angle');
+  }
+  if (Math.abs(gap - 180) < 1e-6) {
+    throw new SplitRefused(
+      'holes_opposite',
+      `the holes either side of ${t.toFixed(1)} deg (${before.a.toFixed(1)} and ${after.a.toFixed(1)} deg) are 180 deg apart: weights in them only act along the line through them, never at ${t.toFixed(1)} deg`,
+      'use a hole between them, or two holes less than 180 deg apart with the weight\'s angle between them',
+    );
+  }
+  if (gap > 180) {
+    throw new SplitRefused(
+      'not_between',
+      `${t.toFixed(1)} deg does not lie between two of the holes (${list} deg) less than 180 deg apart: the nearest either side are ${gap.toFixed(1)} deg apart, so one part would be negative (mass to take off)`,
+      'give holes on both sides of the weight\'s angle, less than 180 deg apart, or fit the weight at its own angle',
+    );
+  }
+  const rad = Math.PI / 180;
+  const den = Math.sin(gap * rad);
+  const da = wrapDeg(t - before.a);
+  const parts: SplitPart[] = [
+    { position: before.i, angle_deg: before.a, mass_g: (massG * Math.sin((gap - da) * rad)) / den },
+    { position: after.i, angle_deg: after.a, mass_g: (massG * Math.sin(da * rad)) / den },
+  ];
+  const total = parts[0]!.mass_g + parts[1]!.mass_g;
+  const warnings =
+    total > SPLIT_TOTAL_WARN * massG
+      ? [
+          {
+            code: 'split_heavy',
+            message: `the two parts add up to ${total.toFixed(1)} g, ${(total / massG).toFixed(2)} times the ${massG.toFixed(1)} g weight, because the holes are ${gap.toFixed(0)} deg apart`,
+            hint: 'holes closer to the weight\'s angle need less mass; check the plane takes the larger part',
+          },
+        ]
+      : [];
+  return { weights: parts.sort((x, y) => x.position - y.position), total_mass_g: total, gap_deg: gap, warnings };
 }
 
 /** Centrifugal force a mass sees, N: F = m r omega^2. */

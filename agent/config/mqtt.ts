@@ -35,6 +35,43 @@ const secretRef = (what: string) =>
     })
     .strict();
 
+/**
+ * Sparkplug B ids (group, edge node, device, host): the specification (Sparkplug 3.0, "Topic Namespace
+ * Elements", tck-id-topic-structure-namespace-valid-group-id / -edge-node-id / -device-id) allows any
+ * UTF-8 string except the reserved characters "+", "/" and "#". The agent also refuses the empty
+ * string, NUL (not allowed in MQTT topics) and surrounding spaces (a copy-paste slip, never meant).
+ */
+export function sparkplugIdProblem(id: string): string | null {
+  if (id.length === 0) return 'must not be empty';
+  const bad = [...new Set([...id].filter((ch) => ch === '+' || ch === '/' || ch === '#'))];
+  if (bad.length > 0) return `contains ${bad.map((c) => `"${c}"`).join(', ')}, which the Sparkplug specification reserves (no "+", "/" or "#" in a group, edge node, device or host id)`;
+  if (id.includes('\u0000')) return 'contains a NUL character, which MQTT topics cannot carry';
+  if (id.trim() !== id) return 'starts or ends with a space';
+  return null;
+}
+const sparkplugId = (what: string) =>
+  z
+    .string()
+    .max(128)
+    .superRefine((v, ctx) => {
+      const p = sparkplugIdProblem(v);
+      if (p) ctx.addIssue({ code: 'custom', message: `${what} ${JSON.stringify(v)} ${p}; choose another id (letters, digits, "-", "_", "." are always safe)` });
+    });
+
+export const sparkplugSchema = z
+  .object({
+    group_id: sparkplugId('group_id').describe('Sparkplug group id: topics are spBv1.0/<group_id>/<message type>/<edge_node_id>[/<device_id>].'),
+    edge_node_id: sparkplugId('edge_node_id').describe('Sparkplug edge node id of this board; unique within the group.'),
+    device_id: sparkplugId('device_id').optional().describe('Sparkplug device id of the fan (one device per asset). Default: machine.id.'),
+    primary_host_id: sparkplugId('primary_host_id')
+      .optional()
+      .describe('Sparkplug host id of the primary host application. When given, the node publishes its births only after spBv1.0/STATE/<primary_host_id> says online, and goes quiet when it goes offline.'),
+    client_id: z.string().regex(/^[A-Za-z0-9_.-]{1,64}$/, 'letters, digits, "_", "." or "-", at most 64').optional().describe('MQTT client id of the Sparkplug session (its own connection, because the NDEATH is its will). Default: <mqtt client id>-spb.'),
+    json_topics: z.boolean().default(true).describe('Keep publishing the JSON topics beside Sparkplug (true), or Sparkplug only (false).'),
+  })
+  .strict();
+export type SparkplugConfig = z.infer<typeof sparkplugSchema>;
+
 export const mqttSchema = z
   .object({
     url: z.string().superRefine(checkUrl).describe('Broker URL: mqtt://HOST:PORT, or mqtts://HOST:PORT for TLS.'),
@@ -71,6 +108,7 @@ export const mqttSchema = z
       .strict()
       .optional()
       .describe('Accept commands on <prefix>/<asset>/cmd; each must carry this token. Without this key the agent does not listen for commands.'),
+    sparkplug: sparkplugSchema.optional().describe('Also (or only) speak Sparkplug B 3.0 as an edge node: see docs/sparkplug.md.'),
   })
   .strict()
   .superRefine((m, ctx) => {

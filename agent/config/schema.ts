@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { eventLogSchema } from './event-log.js';
 import { acquisitionSchema, checkAcquisitionChannels } from './acquisition.js';
 import { advisorySchema } from './advisory.js';
 import { balanceSchema } from './balance.js';
@@ -101,6 +102,7 @@ export const configSchema = z
     live: liveSchema.optional().describe('Live page and balancing workbench for the technician (HTTP + WebSocket); without it no port is opened.'),
 
     logging: loggingSchema,
+    event_log: eventLogSchema,
   })
   .strict()
   .superRefine((cfg, ctx) => {

@@ -72,6 +72,14 @@ export const watcherSchema = z
           .tuple([z.string().min(1), z.string().min(1)])
           .optional()
           .describe('The two rotor bearings compared for static/couple (default: the first two bearings with radial sensors).'),
+        coupling: z
+          .object({
+            driver: z.string().min(1).describe('Bearing on the driver (motor) side of the coupling, with an axial sensor.'),
+            driven: z.string().min(1).describe('Bearing on the driven (fan) side of the coupling, with an axial sensor.'),
+          })
+          .strict()
+          .optional()
+          .describe('The bearings either side of the coupling. Misalignment is read from high 2x with axial 1x about 180 deg apart across them (common practice); without them it cannot be told from a bent shaft.'),
         min_one_x_rms_mm_s: mmS.optional().describe('1x below this (mm/s r.m.s.) is too small to judge. Default half the A/B boundary.'),
         one_x_share_min: z.number().min(0).max(1).default(0.7).describe('1x must be at least this share of the overall r.m.s. (0.7 = half the power).'),
         two_x_ratio_max: z.number().positive().max(5).default(0.5).describe('2x/1x at or above this points to misalignment.'),
@@ -86,6 +94,20 @@ export const watcherSchema = z
           .default(30)
           .describe('1x phase jumping more than this (median, window to window) is unstable; a baseline is learned only when the phase stays within this of its mean, degrees.'),
         stability_windows: z.number().int().min(3).max(100).default(6).describe('Recent windows used for the phase-stability rule.'),
+        significance: z
+          .discriminatedUnion('basis', [
+            z.object({ basis: z.literal('zone_ab') }).strict().describe('Significant once an OK sensor\'s overall is above the A/B boundary in force (ISO 20816-3 zone A/B).'),
+            z
+              .object({ basis: z.literal('baseline_change') })
+              .strict()
+              .describe('Significant once an overall is 0.25 x (B/C) above that sensor\'s baseline overall (ISO 20816-3 change criterion); the A/B boundary where there is no baseline overall.'),
+            z
+              .object({ basis: z.literal('custom'), overall_mm_s: mmS.describe('Overall, mm/s r.m.s., above which the 1x is judged; at most the C/D boundary.') })
+              .strict()
+              .describe('The user\'s own level.'),
+          ])
+          .prefault({ basis: 'zone_ab' })
+          .describe('No unbalance finding (kind none, the residual pattern as information) while every OK sensor is at or below this level and no 1x vector changed significantly from the baseline.'),
       })
       .strict()
       .prefault({}),
@@ -95,6 +117,60 @@ export const watcherSchema = z
         clipped_share_max: z.number().min(0).max(1).default(0.0001).describe('Share of clipped samples above which the channel is not OK.'),
         running_overall_mm_s: mmS.default(0.2).describe('Overall above this on any healthy channel means the fan runs (used when there is no speed).'),
         missing_pulse_share_max: z.number().min(0).max(1).default(0.1).describe('Share of revolutions with a missing tach pulse above which the tach counts as lost.'),
+        spike_ratio: z
+          .number()
+          .min(3)
+          .max(1000)
+          .default(8)
+          .describe('A 10 ms span whose largest excursion from the mean reaches this many times the median span r.m.s. holds an impulse (Gaussian noise passes 5x its r.m.s. in about 6 of 10 million samples: own computation).'),
+        spike_one_sided_ratio: z
+          .number()
+          .min(1.5)
+          .max(100)
+          .default(3)
+          .describe('An impulse is one-sided (no ringing) when its excursion one way is at least this many times the other way; an impact ringing a resonance swings both ways about equally (common practice).'),
+        spikes_per_s: z
+          .number()
+          .positive()
+          .max(1000)
+          .default(1)
+          .describe('One-sided impulses per second (and at least 2 in the window) at or above which the channel is not OK (connector or cable fault).'),
+        pile_share_min: z
+          .number()
+          .positive()
+          .max(1)
+          .default(0.0002)
+          .describe('Share of samples within tolerance of one extreme value at or above which, with few samples just below (see pile_ratio_min), the signal counts as cut off there.'),
+        pile_ratio_min: z
+          .number()
+          .min(1.5)
+          .max(1000)
+          .default(4)
+          .describe('Samples at the extreme over samples in the band just below it: about 1.4 for a sine (own computation), far more when the signal is cut off.'),
+        saturation_share: z
+          .number()
+          .min(0.1)
+          .max(1)
+          .default(0.95)
+          .describe('A signal cut off below this share of full_scale_v is the sensor saturating, not the input range.'),
+        steps_spanned_min: z
+          .number()
+          .min(2)
+          .max(1e6)
+          .default(5)
+          .describe('While the fan turns, a signal spanning fewer converter steps than this is quantisation noise only (a converter at rest toggles 1-2 steps either side of its value, 2-4 steps in all: own judgement).'),
+        level_step_ratio: z
+          .number()
+          .min(2)
+          .max(1000)
+          .default(5)
+          .describe('A 100 ms r.m.s. this many times above (or below) the window median, reached by a jump of at least its square root between neighbouring 100 ms groups, is a sudden level step.'),
+        ok_after_s: z
+          .number()
+          .min(0)
+          .max(86400)
+          .default(10)
+          .describe('A sensor fault must be gone this long (seconds of measured data) before the sensor is OK again and sensor_ok is sent; an intermittent connector comes and goes, so this is longer than on_delay_s (own choice: five 2 s windows).'),
       })
       .strict()
       .prefault({}),

@@ -2,6 +2,7 @@ import type { Config } from '../config/schema.js';
 import { UserError } from '../errors.js';
 import type { SourceItem } from '../../drivers/source.js';
 import { AccelerationStage, RawStats } from './acceleration.js';
+import { SignalFactsStage } from './signal-facts.js';
 import { Decimator, DecimatorPlan } from './decimate.js';
 import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, SpectrumPlan, velocityLinePower } from './spectrum.js';
 import { SampleRing, SyncAverager, velocityOrderComponent } from './sync-average.js';
@@ -82,6 +83,7 @@ interface ChannelState {
   readonly mountingAngleDeg: number;
   readonly accel: AccelerationStage;
   readonly stats: RawStats;
+  readonly shape: SignalFactsStage;
   readonly ring: SampleRing;
   readonly avg: SyncAverager;
   readonly decimator: Decimator;
@@ -170,6 +172,9 @@ export class Analyzer {
     // Room for a revolution read up to MAX_TIMING_SHIFT_TICKS late or early (declared delays).
     const ringSize = maxRevSamples + maxBlock + 2 * MAX_TIMING_SHIFT_TICKS + 4;
     const plan = new SpectrumPlan(this.spectrumSize);
+    const health = cfg.watcher.sensor_health;
+    // The shape stage keeps 10 ms spans of the window: sized for the recording, or 1.5 live windows.
+    const maxWindowSamples = opts.totalSamples ?? Math.ceil(1.5 * cfg.watcher.window_s * sampleRate);
     this.chans = cfg.sensors.map((s) => ({
       id: s.id,
       channel: s.channel,
@@ -178,6 +183,7 @@ export class Analyzer {
       mountingAngleDeg: s.mounting_angle_deg,
       accel: new AccelerationStage(s.sensitivity_mv_per_g, sampleRate),
       stats: new RawStats(s.full_scale_v ?? Infinity),
+      shape: new SignalFactsStage({ sampleRate, maxWindowSamples, spikeRatio: health.spike_ratio, oneSidedRatio: health.spike_one_sided_ratio }),
       ring: new SampleRing(ringSize),
       avg: new SyncAverager(cfg.dsp.resample_points, opts.liveRevolutions),
       decimator: new Decimator(decimation),
@@ -293,6 +299,7 @@ export class Analyzer {
     for (const c of this.chans) {
       const volts = item.channels[c.channel]!;
       c.stats.add(volts);
+      c.shape.add(volts);
       c.accel.process(volts, scratch, sync);
       c.ring.write(sync, start, n);
       c.decimator.process(scratch, n, c.spectrum);
@@ -417,6 +424,7 @@ export class Analyzer {
           max_v: c.stats.samples ? c.stats.max : 0,
           clipped_samples: c.stats.clipped,
           samples: c.stats.samples,
+          ...(c.stats.samples ? { signal: c.shape.facts()! } : {}),
         },
       };
     });
@@ -462,6 +470,7 @@ export class Analyzer {
       c.avg.reset();
       c.spectrum.resetSums();
       c.stats.reset();
+      c.shape.reset();
     }
     this.tracker.resetWindowStats();
     this.detector.resetWindowStats();

@@ -1,3 +1,5 @@
+import type { SignalFacts } from './signal-facts.js';
+
 /**
  * What the DSP stage hands to the watcher and the outputs: one `WindowResult` per analysis window
  * (a whole recording for `turnwise analyze`, a few seconds of revolutions for the live agent).
@@ -37,6 +39,8 @@ export interface ChannelStats {
   /** Samples at or beyond the channel's full scale (0 when full_scale_v is not configured). */
   readonly clipped_samples: number;
   readonly samples: number;
+  /** Shape of the signal for the sensor-fault rules (absent in windows written before it existed). */
+  readonly signal?: SignalFacts;
 }
 
 export interface ChannelResult {

@@ -22,7 +22,7 @@ import { FileBalanceStore, type BalanceStore } from '../balance/store.js';
 import { BalancingWorkbench } from '../balance/workbench/actions.js';
 import { captureSettingsFrom, type CaptureSettings } from '../balance/workbench/capture.js';
 import { ApiError } from '../balance/workbench/requests.js';
-import { combineTool, gradeTool, moveRadiusTool, splitTool, trialWeightTool } from '../balance/workbench/tools.js';
+import { combineTool, fourRunTool, gradeTool, moveRadiusTool, oneXAmplitudeTool, splitTool, trialWeightTool } from '../balance/workbench/tools.js';
 import type { JobView } from '../balance/workbench/view.js';
 import type { Clock } from '../clock.js';
 import type { LiveConfig } from '../config/live.js';
@@ -422,6 +422,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       r('POST', '/api/tools/combine', false, ({ body }) => combineTool(body)),
       r('POST', '/api/tools/move-radius', false, ({ body }) => moveRadiusTool(body)),
       r('POST', '/api/tools/grade', false, ({ body }) => gradeTool(body)),
+      r('POST', '/api/tools/four-run', false, ({ body }) => fourRunTool(body)),
+      r('POST', '/api/tools/one-x-amplitude', false, ({ body }) => oneXAmplitudeTool(body, this.view.latestWindow)),
       r('GET', '/api/captures', false, () => ({ captures: listCaptures(this.captureDir).reverse() })),
       r('GET', '/api/captures/:cid/:ext', false, ({ params }) => this.captureFile(params[0]!, params[1]!)),
       r('GET', '/api/sweeps', false, () => ({ sweeps: this.sweepStore().map(sweepSummary).reverse() })),

@@ -112,7 +112,11 @@ export class LiveView {
   }
 
   /** Records the window's overall values and adds a trend point; returns the point. */
+  /** The latest analysis window and its wall-clock end (for the four-run tool's amplitude reading). */
+  latestWindow: { readonly window: WindowResult; readonly at_ms: number } | null = null;
+
   onWindow(w: WindowResult, atMs: number): TrendPoint {
+    this.latestWindow = { window: w, at_ms: atMs };
     const channels: Record<string, { one_x_pk_mm_s: number | null; overall_rms_mm_s: number | null }> = {};
     for (const c of this.channels) {
       const r = w.channels.find((x) => x.id === c.id);

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { WATCHER_EVENT_FIELDS, WATCHER_EVENT_TYPES } from '../watcher/events.js';
 
 /**
  * Every MQTT payload the agent publishes or accepts, as zod schemas. Each payload names its own
@@ -135,9 +136,22 @@ const agentHealth = z
     advisory_raised_total: optCount('Times the advisory was raised since the agent started.'),
     advisory_acknowledged_total: optCount('Acknowledgements since the agent started.'),
     advisory_bearings_without_vote: z.string().nullable().optional().describe('Comma-separated bearings with too few OK voting channels; null when none.'),
+    event_log_written_total: optCount('Events written to the event log under state_dir (turnwise events) since the agent started.'),
+    event_log_failed_total: optCount('Events the event log could not write (disk full, permissions).'),
+    event_log_ok: z.boolean().optional().describe('The last write to the event log worked.'),
+    mqtt_protocol_version: z.union([z.literal(4), z.literal(5)]).optional().describe('MQTT level of the JSON session: 5, or 4 (3.1.1) when the broker does not take 5.'),
+    mqtt_refused_too_large_total: optCount("Messages not sent because they were over the broker's maximum packet size (each event so refused gets an mqtt_payload_refused event)."),
+    mqtt_stuck_replaced_total: optCount('Clients replaced by the liveness check (stuck neither connecting nor closing).'),
+    sparkplug_connected: z.boolean().optional().describe('Sparkplug session connected (mqtt.sparkplug).'),
+    sparkplug_born: z.boolean().optional().describe('Sparkplug births published in this session (false while waiting for the primary host).'),
+    sparkplug_primary_host_online: z.boolean().nullable().optional().describe('Last STATE of the primary host; null without primary_host_id or before any STATE.'),
+    sparkplug_bdseq: z.number().int().min(0).max(255).optional().describe('bdSeq of the current Sparkplug CONNECT.'),
+    sparkplug_births_total: optCount('NBIRTH+DBIRTH sequences published (connects and rebirths).'),
+    sparkplug_events_sent_total: optCount('Events sent as the Sparkplug Event metric.'),
+    sparkplug_commands_refused_total: optCount('NCMD/DCMD metrics refused (unknown, not writable, malformed).'),
   })
   .catchall(healthValue)
-  .describe('Health figures of the other stages: measurement loop, acquisition source (source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory (advisory_*).');
+  .describe('Health figures of the other stages: measurement loop, acquisition source (source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory (advisory_*), event log (event_log_*), MQTT sessions (mqtt_*, sparkplug_*).');
 
 export const heartbeatPayload = z
   .object({
@@ -197,6 +211,23 @@ export const outboxEventPayload = eventPayload
     lasted_s: z.number().optional(),
   })
   .describe('Outbox events (a subset of turnwise.event.v1).');
+
+/** The watcher's events (agent/watcher/events.ts): the envelope plus each type's own fields. */
+const watcherEnvelope = {
+  schema: z.literal(SCHEMA_IDS.event),
+  id: z.string().min(1).max(128),
+  ts: isoTs,
+  asset,
+  severity,
+  sensor: z.string().optional().describe('The sensor the event is about; absent for the machine.'),
+  window: z.object({ start_index: count, end_index: count }).strict().describe('Sample-clock indices of the window that confirmed it.'),
+};
+export const watcherEventPayload = z
+  .discriminatedUnion(
+    'type',
+    WATCHER_EVENT_TYPES.map((type) => WATCHER_EVENT_FIELDS[type].extend({ ...watcherEnvelope, type: z.literal(type) })) as unknown as [z.ZodObject, ...z.ZodObject[]],
+  )
+  .describe('Watcher events (a subset of turnwise.event.v1), one shape per type.');
 
 export const livePayload = z
   .object({
@@ -296,6 +327,7 @@ export const PAYLOAD_SCHEMAS: ReadonlyArray<readonly [string, z.ZodType]> = [
   ['event.v1.schema.json', eventPayload],
   ['event-advisory.v1.schema.json', advisoryEventPayload],
   ['event-outbox.v1.schema.json', outboxEventPayload],
+  ['event-watcher.v1.schema.json', watcherEventPayload],
   ['live.v1.schema.json', livePayload],
   ['cmd.v1.schema.json', commandPayload],
   ['cmd-reply.v1.schema.json', replyPayload],

@@ -1,4 +1,6 @@
-import { connect as mqttConnect, type IClientOptions, type MqttClient } from 'mqtt';
+import { connect as mqttConnect, type IClientOptions, type IConnackPacket, type IPublishPacket, type MqttClient } from 'mqtt';
+import { reconnectDelayMs } from './backoff.js';
+import { brokerLimits, forceEnd, ProtocolChoice, publishPacketBytes, stuckReason, type BrokerLimits } from './link-habits.js';
 import type { AgentEvent } from '../events.js';
 import type { AddOutcome, Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
@@ -16,6 +18,11 @@ import type { MqttSettings } from './settings.js';
  *   in-memory resend, and reconnect runs with exponential backoff and jitter, also after a refused
  *   CONNACK (bad credentials), saying what is wrong once per burst;
  * - a publish not acknowledged within `publishTimeoutMs` tears the connection down and rebuilds it;
+ * - MQTT 5 where the broker speaks it (3.1.1 otherwise): the window shrinks to the broker's Receive
+ *   Maximum, a message over its Maximum Packet Size is refused here with an event (never sent to be
+ *   dropped by the broker, never silently lost), live and heartbeat messages carry a message expiry,
+ *   and a command's response topic and correlation data are honoured;
+ * - a liveness check replaces a client that is stuck neither connecting nor closing;
  * - nothing here is awaited by the sampling path: `queueEvent` and `publishLive` return at once.
  */
 
@@ -58,6 +65,7 @@ export function describeConnectError(err: unknown): { kind: string; reason: stri
   if (!e) return { kind: 'closed', reason: 'the connection was closed' };
   const code = e.code;
   if (code === 'PUBLISH_TIMEOUT') return { kind: 'publish-timeout', reason: e.message };
+  if (code === 'STUCK') return { kind: 'stuck', reason: `${e.message}; the client was replaced` };
   if (code === 4 || code === 134) return { kind: 'bad-credentials', reason: 'the broker refused the user name or password; check mqtt.username and mqtt.password' };
   if (code === 5 || code === 135) {
     // mosquitto answers a wrong password with "not authorised" too.
@@ -102,7 +110,15 @@ export class MqttPublisher {
   private lastLiveAt = -Infinity;
   private started = false;
   private stopping = false;
-  private readonly counts = { connects: 0, connect_failures: 0, events_published: 0, publish_timeouts: 0, live_sent: 0, live_skipped: 0 };
+  private readonly counts = { connects: 0, connect_failures: 0, events_published: 0, publish_timeouts: 0, live_sent: 0, live_skipped: 0, refused_too_large: 0, stuck_replaced: 0 };
+  private readonly protocol: ProtocolChoice;
+  private protoVersion: 4 | 5 = 5;
+  private limits: BrokerLimits = { receiveMaximum: null, maximumPacketSize: null };
+  private attemptAt = 0;
+  private gotConnack = false;
+  private lostSince: number | null = null;
+  private livenessTimer: NodeJS.Timeout | null = null;
+  private maxInflightSeen = 0;
 
   constructor(opts: PublisherOptions) {
     this.s = opts.settings;
@@ -116,6 +132,7 @@ export class MqttPublisher {
     this.random = opts.random ?? Math.random;
     this.version = opts.agentVersion ?? '0.0.0';
     this.burst = new BurstLog(opts.log, { nowMs: this.now, quietMs: Infinity });
+    this.protocol = new ProtocolChoice(this.now);
   }
 
   /** Starts connecting in the background. Returns at once; the broker may be down. */
@@ -128,6 +145,8 @@ export class MqttPublisher {
     this.unsubscribeOutbox = this.outbox.onChange(() => this.pump());
     this.heartbeatTimer = setInterval(() => this.heartbeat(), this.s.heartbeatMs);
     this.heartbeatTimer.unref();
+    this.livenessTimer = setInterval(() => this.checkLiveness(), 1000);
+    this.livenessTimer.unref();
     this.connectNow();
   }
 
@@ -151,7 +170,14 @@ export class MqttPublisher {
       return false;
     }
     this.lastLiveAt = t;
-    c.publish(this.s.topics.live, JSON.stringify(build()), { qos: 0 }, () => {});
+    const body = JSON.stringify(build());
+    if (this.tooLarge(this.s.topics.live, Buffer.byteLength(body), 0, 'live')) {
+      this.counts.live_skipped++;
+      return false;
+    }
+    // MQTT 5: a live value older than two intervals is of no use to anyone; the broker may drop it.
+    const properties = this.protoVersion === 5 ? { messageExpiryInterval: Math.max(1, Math.ceil((2 * this.s.liveIntervalMs) / 1000)) } : undefined;
+    c.publish(this.s.topics.live, body, { qos: 0, properties }, () => {});
     this.counts.live_sent++;
     return true;
   }
@@ -174,6 +200,46 @@ export class MqttPublisher {
     };
   }
 
+  /** What the broker said it takes (MQTT 5 CONNACK), the protocol level of this connection, and the window in force. */
+  linkInfo(): { protocol_version: 4 | 5; receive_maximum: number | null; maximum_packet_size: number | null; inflight_window: number; inflight_max_seen: number; refused_too_large_total: number; stuck_replaced_total: number } {
+    return {
+      protocol_version: this.protoVersion,
+      receive_maximum: this.limits.receiveMaximum,
+      maximum_packet_size: this.limits.maximumPacketSize,
+      inflight_window: this.window(),
+      inflight_max_seen: this.maxInflightSeen,
+      refused_too_large_total: this.counts.refused_too_large,
+      stuck_replaced_total: this.counts.stuck_replaced,
+    };
+  }
+
+  private window(): number {
+    return Math.max(1, Math.min(this.s.inflightWindow, this.limits.receiveMaximum ?? Infinity));
+  }
+
+  /** True (and said once per burst) when a message would pass the broker's Maximum Packet Size. */
+  private tooLarge(topic: string, payloadBytes: number, qos: number, what: string): boolean {
+    const max = this.limits.maximumPacketSize;
+    if (max === null) return false;
+    const size = publishPacketBytes(topic, payloadBytes, qos, this.protoVersion, 16);
+    if (size <= max) return false;
+    this.counts.refused_too_large++;
+    this.burst.report('too-large', `a ${what} message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (the broker would drop the connection). Raise the broker's max_packet_size or send less`, { topic, bytes: size, max_bytes: max }, what);
+    return true;
+  }
+
+  private checkLiveness(): void {
+    const c = this.client;
+    if (!c || this.stopping) return;
+    if (this.connected && !c.connected) this.lostSince ??= this.now();
+    else this.lostSince = null;
+    const why = stuckReason(c, { connected: this.connected, attemptAtMs: this.attemptAt, connectTimeoutMs: this.s.connectTimeoutMs, keepaliveS: this.s.keepaliveS, lostSinceMs: this.lostSince }, this.now());
+    if (!why) return;
+    this.counts.stuck_replaced++;
+    this.lastError = Object.assign(new Error(why), { code: 'STUCK' });
+    this.onClose(c);
+  }
+
   /** Waits until the outbox is empty (true) or `timeoutMs` has passed (false). */
   async drain(timeoutMs: number): Promise<boolean> {
     const until = this.now() + timeoutMs;
@@ -189,6 +255,7 @@ export class MqttPublisher {
     if (this.stopping) return;
     this.stopping = true;
     if (this.heartbeatTimer) clearInterval(this.heartbeatTimer);
+    if (this.livenessTimer) clearInterval(this.livenessTimer);
     if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
     this.heartbeatTimer = this.reconnectTimer = null;
     this.unsubscribeOutbox?.();
@@ -213,11 +280,17 @@ export class MqttPublisher {
     if (this.stopping) return;
     this.lastError = null;
     this.sessionStartedTs = new Date(this.now()).toISOString();
+    this.protoVersion = this.protocol.version;
+    this.attemptAt = this.now();
+    this.gotConnack = false;
+    this.lostSince = null;
     const tls = this.s.tls;
     const opts: IClientOptions = {
       clientId: this.s.clientId,
-      protocolVersion: 4,
+      protocolVersion: this.protoVersion,
       clean: true,
+      // MQTT 5: clean start and a session that ends with the connection, as clean session does in 3.1.1.
+      ...(this.protoVersion === 5 ? { properties: { sessionExpiryInterval: 0 } } : {}),
       reconnectPeriod: 0,
       connectTimeout: this.s.connectTimeoutMs,
       keepalive: this.s.keepaliveS,
@@ -246,13 +319,22 @@ export class MqttPublisher {
     c.on('error', (e) => {
       if (c === this.client) this.lastError = e;
     });
-    c.on('connect', () => this.onConnect(c));
+    c.on('connect', (connack) => this.onConnect(c, connack));
     c.on('close', () => this.onClose(c));
-    c.on('message', (topic, payload) => this.onMessage(c, topic, payload));
+    c.on('message', (topic, payload, packet) => this.onMessage(c, topic, payload, packet));
   }
 
-  private onConnect(c: MqttClient): void {
+  private onConnect(c: MqttClient, connack?: IConnackPacket): void {
     if (c !== this.client) return;
+    this.gotConnack = true;
+    const before = this.limits;
+    this.limits = brokerLimits(connack);
+    if (this.limits.receiveMaximum !== before.receiveMaximum || this.limits.maximumPacketSize !== before.maximumPacketSize) {
+      this.log.info(
+        { protocol_version: this.protoVersion, receive_maximum: this.limits.receiveMaximum, maximum_packet_size: this.limits.maximumPacketSize },
+        `broker limits (MQTT ${this.protoVersion === 5 ? '5' : '3.1.1'}): receive maximum ${this.limits.receiveMaximum ?? 'not given'}, maximum packet size ${this.limits.maximumPacketSize ?? 'not given'}; events in flight at most ${this.window()}`,
+      );
+    }
     this.connected = true;
     this.connectedAt = this.now();
     this.counts.connects++;
@@ -275,8 +357,13 @@ export class MqttPublisher {
     if (c !== this.client) return;
     const wasConnected = this.connected;
     this.dropClient(c);
-    c.end(true);
+    forceEnd(c);
     if (this.stopping) return;
+    if (!wasConnected && this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)) {
+      this.log.info({ url: this.s.url }, `the broker at ${this.s.url} does not take MQTT 5 (${describeConnectError(this.lastError).reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`);
+      this.reconnectTimer = setTimeout(() => this.connectNow(), Math.min(this.s.reconnectMinMs, 500));
+      return;
+    }
     if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
     this.scheduleReconnect(wasConnected);
   }
@@ -293,7 +380,7 @@ export class MqttPublisher {
   private scheduleReconnect(wasConnected: boolean): void {
     const { kind, reason } = describeConnectError(this.lastError);
     if (!wasConnected) this.counts.connect_failures++;
-    const delay = Math.min(this.s.reconnectMaxMs, this.s.reconnectMinMs * 2 ** Math.min(this.failures, 30)) * (0.8 + 0.4 * this.random());
+    const delay = reconnectDelayMs(this.failures, this.s.reconnectMinMs, this.s.reconnectMaxMs, this.random);
     this.failures++;
     const backoff = `with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s); events wait in the outbox`;
     const message = wasConnected ? `lost the connection to ${this.s.url}: ${reason}; reconnecting ${backoff}` : `cannot connect to ${this.s.url}: ${reason}; retrying ${backoff}`;
@@ -305,11 +392,17 @@ export class MqttPublisher {
   private pump(): void {
     const c = this.client;
     if (!this.connected || !c) return;
+    const window = this.window();
     for (const ev of this.outbox.sendable()) {
-      if (this.inflight.size >= this.s.inflightWindow) return;
+      if (this.inflight.size >= window) return;
       if (this.inflight.has(ev.seq)) continue;
+      if (this.tooLarge(this.s.topics.event(ev.type), Buffer.byteLength(ev.json), 1, 'event')) {
+        this.refuseEvent(ev);
+        continue;
+      }
       const timer = setTimeout(() => this.onPublishTimeout(c), this.s.publishTimeoutMs);
       this.inflight.set(ev.seq, { client: c, timer });
+      this.maxInflightSeen = Math.max(this.maxInflightSeen, this.inflight.size);
       c.publish(this.s.topics.event(ev.type), ev.json, { qos: 1 }, (err) => {
         const f = this.inflight.get(ev.seq);
         if (f?.client === c) {
@@ -324,6 +417,29 @@ export class MqttPublisher {
     }
   }
 
+  /**
+   * An event the broker cannot take (over its maximum packet size): it leaves the outbox (it would
+   * block every later event) and a small event says which one, how big and the limit; the event
+   * itself stays in the event log under state_dir (turnwise events). An alarm's refusal is an alarm.
+   */
+  private refuseEvent(ev: { seq: number; id: string; type: string; severity: 'info' | 'warning' | 'alarm'; json: string }): void {
+    this.outbox.ack(ev.seq);
+    const bytes = Buffer.byteLength(ev.json);
+    const max = this.limits.maximumPacketSize;
+    void this.queueEvent({
+      id: `mqtt-refused-${ev.id}`.slice(0, 128),
+      ts: new Date(this.now()).toISOString(),
+      asset: this.asset,
+      type: 'mqtt_payload_refused',
+      severity: ev.severity === 'alarm' ? 'alarm' : 'warning',
+      message: `event ${ev.id} (${ev.type}, ${bytes} bytes) is over the broker's maximum packet size (${max} bytes) and was not published; it is kept in the agent's event log (turnwise events). Raise the broker's max_packet_size`,
+      refused_id: ev.id,
+      refused_type: ev.type,
+      payload_bytes: bytes,
+      max_packet_bytes: max,
+    });
+  }
+
   private onPublishTimeout(c: MqttClient): void {
     if (c !== this.client) return;
     this.counts.publish_timeouts++;
@@ -331,11 +447,20 @@ export class MqttPublisher {
     this.onClose(c);
   }
 
-  private onMessage(c: MqttClient, topic: string, payload: Buffer): void {
+  private onMessage(c: MqttClient, topic: string, payload: Buffer, packet?: IPublishPacket): void {
     if (c !== this.client || topic !== this.s.topics.cmd || !this.commands) return;
+    // MQTT 5 request/response: the reply goes to the sender's response topic with its correlation data.
+    const rt = packet?.properties?.responseTopic;
+    const responseTopic = typeof rt === 'string' && rt.length > 0 && rt.length <= 512 && !/[+#]/.test(rt) ? rt : null;
+    const correlationData = packet?.properties?.correlationData;
     void this.commands.handle(payload).then((reply) => {
       // Replies are not durable: a sender that loses the connection asks again (same id, same reply).
-      if (c === this.client && this.connected) c.publish(this.s.topics.cmdReply, JSON.stringify(reply), { qos: 1 }, () => {});
+      if (c !== this.client || !this.connected) return;
+      const to = responseTopic ?? this.s.topics.cmdReply;
+      const body = JSON.stringify(reply);
+      if (this.tooLarge(to, Buffer.byteLength(body), 1, 'command reply')) return;
+      const properties = this.protoVersion === 5 && correlationData ? { correlationData } : undefined;
+      c.publish(to, body, { qos: 1, properties }, () => {});
     });
   }
 
@@ -354,7 +479,11 @@ export class MqttPublisher {
       mqtt: link,
       agent: this.extraHealth(),
     };
-    c.publish(this.s.topics.heartbeat, JSON.stringify(hb), { qos: 0 }, () => {});
+    const body = JSON.stringify(hb);
+    if (this.tooLarge(this.s.topics.heartbeat, Buffer.byteLength(body), 0, 'heartbeat')) return;
+    // A heartbeat three periods old says nothing about now.
+    const properties = this.protoVersion === 5 ? { messageExpiryInterval: Math.max(1, Math.ceil((3 * this.s.heartbeatMs) / 1000)) } : undefined;
+    c.publish(this.s.topics.heartbeat, body, { qos: 0, properties }, () => {});
   }
 }
 

@@ -10,9 +10,11 @@ import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
 import { UserError } from '../errors.js';
+import { EventLog } from '../eventlog/event-log.js';
 import type { CommandHandlers } from '../mqtt/commands.js';
 import { livePayloadFromFrame, type ChannelVerdict } from '../mqtt/live.js';
 import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
+import { metricValues } from '../mqtt/sparkplug/metrics.js';
 import { openWatcher, type Watcher, type WatchStatus } from '../watcher/index.js';
 import { EventCapturer } from '../capture/event-capture.js';
 import { SweepRecorder } from '../sweep/recorder.js';
@@ -62,6 +64,7 @@ export class Agent {
   readonly watcher: Watcher;
   readonly handlers: CommandHandlers = {};
   private link: PlantLink | null = null;
+  private readonly eventLog: EventLog | null;
   private advisory: SafeStopAdvisory | null = null;
   private gpioSpeed: GpioSpeedCheck | null = null;
   private runtime: AgentRuntime | null = null;
@@ -79,6 +82,8 @@ export class Agent {
     // A state directory that is full or holds damaged files does not stop the agent: the watcher
     // logs such trouble itself (once per burst) and lists it in status.warnings.
     this.watcher = openWatcher(o.config, this.dataClock, o.logger);
+    const el = o.config.event_log;
+    this.eventLog = el.enabled ? new EventLog({ stateDir: o.config.state_dir, maxBytes: Math.round(el.max_mb * 1024 * 1024), log: o.logger }) : null;
   }
 
   get status(): WatchStatus | null {
@@ -100,6 +105,7 @@ export class Agent {
     const captureId = event.severity === 'alarm' ? (this.capturer?.trigger(event.type, event.id) ?? null) : null;
     const e: AgentEvent = captureId ? { ...event, capture_id: captureId } : event;
     this.events++;
+    this.eventLog?.append(e);
     this.o.onEvent?.(e);
     if (this.link) void this.link.queueEvent(e);
     else if (this.o.config.mqtt) this.early.push(e); // queued as soon as the outbox is open
@@ -127,6 +133,11 @@ export class Agent {
         return { id: s.id, bearing: s.bearing, zone: v?.zone ?? null, ok: v?.ok ?? false };
       });
       this.advisory.update({ t_ms: (w.end_index / w.sample_rate_hz) * 1000, channels });
+    }
+    if (this.link?.sparkplug) {
+      const a = this.advisory?.health();
+      const adv = a ? { state: typeof a.advisory_state === 'string' ? a.advisory_state : null, energised: typeof a.advisory_outputs_energised === 'boolean' ? a.advisory_outputs_energised : null } : null;
+      this.link.updateSparkplug(metricValues(cfg.sensors, w, status, adv));
     }
   }
 
@@ -157,7 +168,29 @@ export class Agent {
       ...(this.advisory?.health() ?? {}),
       ...(this.sweeps ? { sweeps_recorded: this.sweeps.recorded, sweeps_failed: this.sweeps.failed, sweeps_removed: this.sweeps.removed } : {}),
       ...(this.capturer ? { captures_written: this.capturer.written, captures_failed: this.capturer.failed, captures_removed: this.capturer.removed } : {}),
+      ...(this.eventLog?.health() ?? {}),
+      ...this.linkHealth(),
     };
+  }
+
+  /** MQTT session facts for the heartbeat: protocol level, refusals, stuck clients, and the Sparkplug node's state. */
+  private linkHealth(): Record<string, number | boolean | null> {
+    if (!this.link) return {};
+    const i = this.link.publisher.linkInfo();
+    const out: Record<string, number | boolean | null> = { mqtt_protocol_version: i.protocol_version, mqtt_refused_too_large_total: i.refused_too_large_total, mqtt_stuck_replaced_total: i.stuck_replaced_total };
+    const sp = this.link.sparkplug?.health();
+    if (sp) {
+      Object.assign(out, {
+        sparkplug_connected: sp.connected,
+        sparkplug_born: sp.born,
+        sparkplug_primary_host_online: sp.primary_host_online,
+        sparkplug_bdseq: sp.bdseq,
+        sparkplug_births_total: sp.births_total,
+        sparkplug_events_sent_total: sp.events_sent_total,
+        sparkplug_commands_refused_total: sp.commands_refused_total,
+      });
+    }
+    return out;
   }
 
   /** Opens outputs, runs until the source ends or stop(), then drains the outbox for at most `drainMs`. */
@@ -189,6 +222,7 @@ export class Agent {
         env: this.o.env,
         agentVersion: this.o.agentVersion,
         health: () => this.health(),
+        sensors: cfg.sensors,
       });
       for (const e of this.early.splice(0)) void this.link.queueEvent(e);
     }
@@ -252,6 +286,7 @@ export class Agent {
     } finally {
       await this.advisory?.close();
       await this.gpioSpeed?.close();
+      this.eventLog?.close();
     }
     let drained = true;
     let lost = 0;

@@ -3,6 +3,7 @@ import type { WindowResult } from '../dsp/types.js';
 import { baselineFromConfig, vectorChange, type Baseline, type VectorChange } from './baseline.js';
 import { assessHealth, type HealthReport } from './health.js';
 import { resolveWatcherSettings, type WatcherSettings } from './settings.js';
+import { RULES } from './rules/index.js';
 import { diagnoseUnbalance, type RecentWindow, type UnbalanceAssessment } from './signature.js';
 import { evaluateZones, speedReport, type SpeedReport, type ZoneReport } from './zones.js';
 
@@ -41,13 +42,15 @@ export function vectorChanges(s: WatcherSettings, window: WindowResult, health: 
 /** The same as assessWindow, with settings resolved and health known (the live watcher's path). */
 export function assessWith(s: WatcherSettings, window: WindowResult, health: HealthReport, baseline: Baseline | null, recent: readonly RecentWindow[]): WindowAssessment {
   const speed = speedReport(s, window);
+  const zone = evaluateZones(s, window, health, baseline, speed);
+  const vectorChange = vectorChanges(s, window, health, baseline);
   return {
-    zone: evaluateZones(s, window, health, baseline, speed),
-    unbalance: diagnoseUnbalance(s, window, health, recent),
+    zone,
+    unbalance: diagnoseUnbalance(s, window, health, recent, RULES, { zone, vectorChange, baseline }),
     sensors: health.channels,
     tach: health.tach,
     speed,
-    vector_change: vectorChanges(s, window, health, baseline),
+    vector_change: vectorChange,
     vector_change_limit_mm_s: s.vectorChangeMmS,
   };
 }

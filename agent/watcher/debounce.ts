@@ -10,8 +10,9 @@ export class OnDelay<T> {
   private pendingSinceS = 0;
   private lastEndS = -Infinity;
 
+  /** @param delayS seconds a new value must hold; a function gives each value its own delay */
   constructor(
-    private readonly delayS: number,
+    private readonly delayS: number | ((to: T) => number),
     initial?: T,
   ) {
     this.confirmed = initial;
@@ -36,7 +37,7 @@ export class OnDelay<T> {
       this.pending = seen;
       this.pendingSinceS = startS;
     }
-    if (endS - this.pendingSinceS < this.delayS) return null;
+    if (endS - this.pendingSinceS < (typeof this.delayS === 'function' ? this.delayS(seen) : this.delayS)) return null;
     const from = this.confirmed;
     this.confirmed = seen;
     this.pending = undefined;

@@ -16,6 +16,8 @@ export interface WatcherSettings {
   readonly sensors: readonly SensorConfig[];
   /** The two rotor bearings compared for static/couple; null when fewer than two carry radial sensors. */
   readonly bearings: readonly [string, string] | null;
+  /** The bearings either side of the coupling (watcher.unbalance.coupling); null when not configured. */
+  readonly coupling: { readonly driver: string; readonly driven: string } | null;
   /** 1x below this is too small to judge, mm/s r.m.s. */
   readonly minOneXMmS: number;
   /** Reported size of a 1x vector change from baseline, mm/s r.m.s. */
@@ -67,8 +69,33 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
     bearings = w.unbalance.bearings;
   }
 
+  // Levels that only make sense below the C/D boundary of the limits in force.
+  const cd = limits.cd_mm_s;
+  const levels: [string, number | undefined][] = [
+    ['watcher.unbalance.significance.overall_mm_s', w.unbalance.significance.basis === 'custom' ? w.unbalance.significance.overall_mm_s : undefined],
+    ['watcher.unbalance.min_one_x_rms_mm_s', w.unbalance.min_one_x_rms_mm_s],
+    ['watcher.vector_change_mm_s', w.vector_change_mm_s],
+  ];
+  for (const [path, v] of levels) {
+    if (v !== undefined && v > cd) {
+      throw new UserError(path, `${v} mm/s is above the C/D boundary (${cd} mm/s, ${limits.basis}): nothing below zone D would ever reach it`, `give a value above 0 and at most ${cd} mm/s`);
+    }
+  }
+
+  const coupling = w.unbalance.coupling ?? null;
+  if (coupling) {
+    const axialBearings = [...new Set(cfg.sensors.filter((x) => x.direction === 'axial').map((x) => x.bearing))];
+    for (const side of ['driver', 'driven'] as const) {
+      if (!axialBearings.includes(coupling[side])) {
+        throw new UserError(`watcher.unbalance.coupling.${side}`, `bearing "${coupling[side]}" has no axial sensor`, `name bearings that carry an axial sensor: ${axialBearings.join(', ') || '(none)'}`);
+      }
+    }
+    if (coupling.driver === coupling.driven) throw new UserError('watcher.unbalance.coupling', 'names the same bearing on both sides', 'name the driver-side and the driven-side bearing of the coupling');
+  }
+
   return {
     asset: cfg.machine.id,
+    coupling,
     w,
     limits,
     ratedRpm: cfg.machine.rated_rpm ?? null,

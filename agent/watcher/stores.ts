@@ -5,9 +5,7 @@ import { storedCoefficientsSchema } from '../balance/job-input.js';
 import { formatIssues } from '../config/load.js';
 import type { Baseline } from './baseline.js';
 import { DamagedFileError, moveAside, parseJsonFile, readTextOrNull, removeFile, writeFileAtomic } from './files.js';
-import type { TachState } from './health.js';
-import type { Zone } from './limits.js';
-import type { UnbalanceKind } from './signature.js';
+import { snapshotFileSchema, type WatcherSnapshot } from './state-table.js';
 
 /**
  * The watcher's persistent state sits behind these interfaces; the file implementations keep it under
@@ -33,20 +31,8 @@ export interface BaselineStore extends Quarantinable {
 
 export type SpeedState = 'in_range' | 'low' | 'high';
 
-/** What the watcher has confirmed and reported, so a restart neither repeats nor loses events. */
-export interface WatcherSnapshot {
-  readonly version: 1;
-  /** Incremented at every start; part of every event id. */
-  readonly run: number;
-  readonly machine_zone: Zone | null;
-  readonly zones: Readonly<Record<string, Zone>>;
-  readonly over_alarm: Readonly<Record<string, boolean>>;
-  readonly unbalance: UnbalanceKind | null;
-  readonly sensor_ok: Readonly<Record<string, boolean>>;
-  readonly tach: TachState | null;
-  readonly speed: SpeedState | null;
-  readonly vector_changed: Readonly<Record<string, boolean>>;
-}
+/** What the watcher has confirmed and reported (state.json), derived from STATE_ROWS in state-table.ts. */
+export type { WatcherSnapshot };
 
 export interface WatcherStateStore extends Quarantinable {
   /** Throws DamagedFileError when a stored state exists but cannot be read or understood. */
@@ -59,7 +45,7 @@ export interface CoefficientsSource {
   load(): StoredCoefficients | null;
 }
 
-function validate<T>(schema: z.ZodType<T>, file: string, text: string, fix: string): T {
+function validate<T>(schema: z.ZodType<T, unknown>, file: string, text: string, fix: string): T {
   const raw = parseJsonFile(file, text);
   const res = schema.safeParse(raw);
   if (!res.success) throw new DamagedFileError(file, `unexpected contents:\n  ${formatIssues(file, res.error.issues, raw).join('\n  ')}`, fix);
@@ -76,19 +62,6 @@ const baselineFileSchema = z.object({
   speed_rpm: z.number().nullable(),
   channels: z.record(z.string(), z.object({ one_x_rms_mm_s: z.number().min(0), one_x_phase_deg: z.number(), overall_rms_mm_s: z.number().nullable() })),
 });
-const snapshotSchema = z.object({
-  version: z.literal(1),
-  run: z.number().int().min(0),
-  machine_zone: zone.nullable(),
-  zones: z.record(z.string(), zone),
-  over_alarm: z.record(z.string(), z.boolean()),
-  unbalance: z.enum(['static', 'couple', 'dynamic', 'overhung', 'none']).nullable(),
-  sensor_ok: z.record(z.string(), z.boolean()),
-  tach: z.enum(['ok', 'lost', 'stopped']).nullable(),
-  speed: z.enum(['in_range', 'low', 'high']).nullable(),
-  vector_changed: z.record(z.string(), z.boolean()),
-});
-
 export function watcherDir(stateDir: string): string {
   return join(stateDir, 'watcher');
 }
@@ -120,7 +93,7 @@ export class FileWatcherStateStore implements WatcherStateStore {
   }
   load(): WatcherSnapshot | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(snapshotSchema, this.file, text, '`turnwise run` moves it to quarantine/ and starts afresh (the current zones and states are reported again); or delete it');
+    return text === null ? null : validate(snapshotFileSchema as unknown as z.ZodType<WatcherSnapshot>, this.file, text, '`turnwise run` moves it to quarantine/ and starts afresh (the current zones and states are reported again); or delete it');
   }
   quarantine(nowMs: number): string | null {
     return moveAside(this.file, nowMs);

@@ -8,15 +8,15 @@ import { silentLogger, type Logger } from '../log.js';
 import { assessWith, type WindowAssessment } from './assess.js';
 import { baselineFromConfig, BaselineLearner, type Baseline } from './baseline.js';
 import { systemClock, type Clock } from './clock.js';
-import { OnDelay } from './debounce.js';
-import { watcherEvent, type EventOrigin } from './events.js';
+import { watcherEvent, type EventOrigin, type WatcherEventType } from './events.js';
 import { DamagedFileError } from './files.js';
 import { forecastBalance, unavailable, type BalanceForecast } from './forecast.js';
-import { assessHealth, type TachState } from './health.js';
+import { assessHealth } from './health.js';
 import { FileHistoryStore, History, HistoryAggregator, type HistoryStore } from './history.js';
-import { worseZone, zoneWithHysteresis, type Zone } from './limits.js';
+import { zoneIndex, worseZone, zoneWithHysteresis, type Zone } from './limits.js';
 import { resolveWatcherSettings, type WatcherSettings } from './settings.js';
-import type { RecentWindow, UnbalanceKind } from './signature.js';
+import type { RecentWindow } from './signature.js';
+import { StateTable, STATE_VERSION, type ConfirmedStates, type StateChange, type StateKey, type ValueOf, type WatcherSnapshot } from './state-table.js';
 import {
   FileBaselineStore,
   FileCoefficientsSource,
@@ -24,8 +24,6 @@ import {
   type BaselineStore,
   type CoefficientsSource,
   type Quarantinable,
-  type SpeedState,
-  type WatcherSnapshot,
   type WatcherStateStore,
 } from './stores.js';
 import { trendReport, type TrendReport } from './trend.js';
@@ -53,8 +51,8 @@ export interface WatchStatus {
   readonly window: { readonly start_index: number; readonly end_index: number } | null;
   /** This window's findings, before on-delay. */
   readonly latest: WindowAssessment | null;
-  /** States confirmed after hysteresis and on-delay (what events were sent about). */
-  readonly confirmed: Omit<WatcherSnapshot, 'version' | 'run'>;
+  /** States confirmed after hysteresis and on-delay (what events were sent about), keyed as STATE_ROWS. */
+  readonly confirmed: ConfirmedStates;
   readonly baseline: Baseline | null;
   readonly learning: { readonly windows: number } | null;
   readonly trend: TrendReport | null;
@@ -75,17 +73,9 @@ function errorText(e: unknown): string {
   return isUserError(e) ? e.format() : e instanceof Error ? e.message : String(e);
 }
 
-const zoneSeverity = (z: Zone): AgentEvent['severity'] => (z === 'D' ? 'alarm' : z === 'C' ? 'warning' : 'info');
-
 /** Boolean state with hysteresis: once true, it stays true until the value falls `share` below the limit. */
 function overWithHysteresis(prev: boolean | undefined, value: number, limit: number, share: number): boolean {
   return prev ? value > limit * (1 - share) : value >= limit;
-}
-
-function recordOf<T>(m: Map<string, OnDelay<T>>): Record<string, T> {
-  const out: Record<string, T> = {};
-  for (const [k, d] of m) if (d.value !== undefined) out[k] = d.value;
-  return out;
 }
 
 /**
@@ -97,14 +87,7 @@ export class Watcher {
   readonly settings: WatcherSettings;
   private readonly recent: RecentWindow[] = [];
   private readonly zoneHyst = new Map<string, Zone>();
-  private readonly zones = new Map<string, OnDelay<Zone>>();
-  private readonly machineZone: OnDelay<Zone>;
-  private readonly alarms = new Map<string, OnDelay<boolean>>();
-  private readonly sensors = new Map<string, OnDelay<boolean>>();
-  private readonly vectors = new Map<string, OnDelay<boolean>>();
-  private readonly unbalance: OnDelay<UnbalanceKind>;
-  private readonly tach: OnDelay<TachState>;
-  private readonly speed: OnDelay<SpeedState>;
+  private readonly states: StateTable;
   private baselineValue: Baseline | null;
   private learner: BaselineLearner | null = null;
   private readonly history: History;
@@ -132,24 +115,16 @@ export class Watcher {
     const s = (this.settings = resolveWatcherSettings(cfg));
     // Only resolved() ends a burst: every window (state) or history point retries the save.
     this.burst = new BurstLog(deps.log, { nowMs: () => deps.clock.now(), quietMs: Infinity, summaryEveryMs: 3600_000 });
-    const delay = s.w.on_delay_s;
     const prev = this.loadOrQuarantine(deps.stateStore, null, 'the watcher starts afresh: the current zones and states are reported again');
     this.run = (prev?.run ?? 0) + 1;
     // Without the stored start counter, the next one is unknown: count on from the clock's seconds, so
     // event ids do not repeat those of earlier starts.
     if (this.quarantined.length) this.run = this.runFromClock();
+    this.states = new StateTable(s.w, s.sensors.map((x) => x.id), prev);
     for (const sensor of s.sensors) {
-      this.zones.set(sensor.id, new OnDelay<Zone>(delay, prev?.zones[sensor.id]));
-      this.alarms.set(sensor.id, new OnDelay<boolean>(delay, prev?.over_alarm[sensor.id]));
-      this.sensors.set(sensor.id, new OnDelay<boolean>(delay, prev?.sensor_ok[sensor.id]));
-      this.vectors.set(sensor.id, new OnDelay<boolean>(delay, prev?.vector_changed[sensor.id]));
       const z = prev?.zones[sensor.id];
       if (z) this.zoneHyst.set(sensor.id, z);
     }
-    this.machineZone = new OnDelay<Zone>(delay, prev?.machine_zone ?? undefined);
-    this.unbalance = new OnDelay<UnbalanceKind>(delay, prev?.unbalance ?? undefined);
-    this.tach = new OnDelay<TachState>(delay, prev?.tach ?? undefined);
-    this.speed = new OnDelay<SpeedState>(delay, prev?.speed ?? undefined);
 
     const fromConfig = baselineFromConfig(s);
     const stored = this.loadOrQuarantine(deps.baselineStore, null, 'no learned baseline: learn it again at steady running (baseline-relative alarm and vector change are off until then)');
@@ -245,7 +220,7 @@ export class Watcher {
 
   private setBaseline(b: Baseline | null): void {
     this.baselineValue = b;
-    for (const d of this.vectors.values()) d.reset(false);
+    this.states.reset('vector_changed', false);
     this.trendCache = this.computeTrend();
     this.persist();
   }
@@ -267,6 +242,12 @@ export class Watcher {
     const emit = (...args: Parameters<typeof watcherEvent> extends [EventOrigin, ...infer R] ? R : never): void => {
       events.push(watcherEvent(origin, ...args));
     };
+    /** Feeds one state of the table; a confirmed change raises the row's event with `fields`. */
+    const track = <K extends StateKey>(key: K, subject: string, seen: ValueOf<K>, fields: (c: StateChange<ValueOf<K>>) => object): StateChange<ValueOf<K>> | null => {
+      const c = this.states.update(key, subject, seen, t0, t1);
+      if (c?.event) events.push(watcherEvent(origin, c.event.type as WatcherEventType, subject, c.event.severity, fields(c) as never));
+      return c;
+    };
 
     if (this.quarantined.length) {
       const files = this.quarantined;
@@ -279,62 +260,59 @@ export class Watcher {
 
     // Sensors and tach.
     for (const h of health.channels) {
-      const ch = this.sensors.get(h.id)!.update(h.ok, t0, t1);
-      if (!ch) continue;
-      if (!ch.to) emit('sensor_not_ok', h.id, 'warning', { problems: h.problems });
-      else if (ch.from === false) emit('sensor_ok', h.id, 'info', {});
+      track('sensor_ok', h.id, h.ok, (c) => (c.to ? {} : { problems: h.problems, faults: h.faults }));
+      track('sensor_doubt', h.id, h.ok && h.doubts.length > 0, (c) => (c.to ? { doubts: h.doubts } : {}));
     }
-    const tc = this.tach.update(health.tach.state, t0, t1);
-    if (tc?.to === 'lost') emit('tach_lost', 'machine', 'warning', { why: health.tach.why });
-    else if (tc?.to === 'ok' && tc.from === 'lost') emit('tach_back', 'machine', 'info', { why: health.tach.why });
+    track('tach', 'machine', health.tach.state, () => ({ why: health.tach.why }));
 
     // Speed.
     if (a.speed.state !== null) {
-      const sc = this.speed.update(a.speed.state, t0, t1);
-      if (sc && sc.to !== 'in_range') emit('speed_out_of_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm, why: a.speed.pulses_per_rev_hint ? `${a.speed.why}; ${a.speed.pulses_per_rev_hint.why}` : a.speed.why });
-      else if (sc && sc.from !== undefined) emit('speed_in_range', 'machine', 'info', { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm });
+      track('speed', 'machine', a.speed.state, (c) =>
+        c.to !== 'in_range'
+          ? { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm, why: a.speed.pulses_per_rev_hint ? `${a.speed.why}; ${a.speed.pulses_per_rev_hint.why}` : a.speed.why }
+          : { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm },
+      );
     }
 
     const hold = a.zone.inhibited || !health.running;
     if (!hold) {
-      // Zones: hysteresis per window, then on-delay.
+      // Zones: hysteresis per window, then on-delay. A doubtful sensor alone does not put the machine in D.
       let machine: Zone | null = null;
+      let machineSure: Zone | null = null;
+      const doubtfulD: string[] = [];
       for (const h of health.channels) {
         const cz = a.zone.channels[h.id]!;
         if (cz.zone === null) continue;
         const z = zoneWithHysteresis(cz.overall_rms_mm_s!, this.zoneHyst.get(h.id) ?? null, a.zone.limits, s.w.hysteresis_share);
         this.zoneHyst.set(h.id, z);
         machine = machine ? worseZone(machine, z) : z;
-        const zc = this.zones.get(h.id)!.update(z, t0, t1);
-        if (zc) emit('zone_changed', h.id, zoneSeverity(zc.to), { scope: 'sensor', zone: zc.to, from_zone: zc.from ?? null, overall_rms_mm_s: cz.overall_rms_mm_s, limits: a.zone.limits });
-        const alarm = this.alarms.get(h.id)!;
-        const over = overWithHysteresis(alarm.value, cz.overall_rms_mm_s!, cz.alarm_mm_s, s.w.hysteresis_share);
-        const ac = alarm.update(over, t0, t1);
-        if (ac?.to) emit('alarm_level_exceeded', h.id, 'warning', { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s, baseline: this.baselineValue !== null });
-        else if (ac && ac.from) emit('alarm_level_cleared', h.id, 'info', { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s });
+        const sure: Zone = h.doubts.length && z === 'D' ? 'C' : z;
+        if (sure !== z) doubtfulD.push(h.id);
+        machineSure = machineSure ? worseZone(machineSure, sure) : sure;
+        track('zones', h.id, z, (c) => ({ scope: 'sensor', zone: c.to, from_zone: c.from ?? null, overall_rms_mm_s: cz.overall_rms_mm_s!, limits: a.zone.limits }));
+        const over = overWithHysteresis(this.states.value('over_alarm', h.id), cz.overall_rms_mm_s!, cz.alarm_mm_s, s.w.hysteresis_share);
+        track('over_alarm', h.id, over, (c) =>
+          c.to ? { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s, baseline: this.baselineValue !== null } : { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s },
+        );
       }
-      if (machine) {
-        const mc = this.machineZone.update(machine, t0, t1);
-        if (mc) emit('zone_changed', 'machine', zoneSeverity(mc.to), { scope: 'machine', zone: mc.to, from_zone: mc.from ?? null, limits: a.zone.limits });
+      // Two doubtful sensors that agree on D are not one channel alone.
+      if (machineSure && doubtfulD.length >= 2) machineSure = worseZone(machineSure, 'D');
+      if (machine && machineSure) {
+        const held = zoneIndex(machineSure) < zoneIndex(machine);
+        track('machine_zone', 'machine', machineSure, (c) => ({ scope: 'machine', zone: c.to, from_zone: c.from ?? null, limits: a.zone.limits, ...(held ? { held_below_d_by: doubtfulD } : {}) }));
       }
 
       // Unbalance and vector change need the phase reference.
       if (health.tach.state === 'ok') {
         const u = a.unbalance;
-        const uc = this.unbalance.update(u.kind, t0, t1);
         const fields = { kind: u.kind, confidence: u.confidence, evidence: u.evidence, limits: u.limits };
-        if (uc && uc.to === 'none' && uc.from !== undefined) emit('unbalance_cleared', 'machine', 'info', { ...fields, from_kind: uc.from, points_to: u.points_to });
-        else if (uc && uc.to !== 'none' && (uc.from === undefined || uc.from === 'none')) emit('unbalance_found', 'machine', 'warning', fields);
-        else if (uc && uc.to !== 'none') emit('unbalance_kind_changed', 'machine', 'info', { ...fields, from_kind: uc.from });
+        track('unbalance', 'machine', u.kind, (c) =>
+          c.event?.type === 'unbalance_cleared' ? { ...fields, from_kind: c.from, points_to: u.points_to } : c.event?.type === 'unbalance_kind_changed' ? { ...fields, from_kind: c.from } : fields,
+        );
 
         for (const [id, vc] of Object.entries(a.vector_change ?? {})) {
-          const d = this.vectors.get(id);
-          if (!d) continue;
-          const changed = overWithHysteresis(d.value, vc.delta_mm_s, a.vector_change_limit_mm_s, s.w.hysteresis_share);
-          const c = d.update(changed, t0, t1);
-          const f = { delta_mm_s: vc.delta_mm_s, amp_change_mm_s: vc.amp_change_mm_s, phase_change_deg: vc.phase_change_deg, limit_mm_s: a.vector_change_limit_mm_s };
-          if (c?.to) emit('vector_change', id, 'warning', f);
-          else if (c && c.from) emit('vector_change_cleared', id, 'info', f);
+          const changed = overWithHysteresis(this.states.value('vector_changed', id), vc.delta_mm_s, a.vector_change_limit_mm_s, s.w.hysteresis_share);
+          track('vector_changed', id, changed, () => ({ delta_mm_s: vc.delta_mm_s, amp_change_mm_s: vc.amp_change_mm_s, phase_change_deg: vc.phase_change_deg, limit_mm_s: a.vector_change_limit_mm_s }));
         }
         if (this.learner && (a.speed.state === 'in_range' || a.speed.state === null)) this.learner.add(window, health);
       }
@@ -382,18 +360,7 @@ export class Watcher {
   }
 
   private snapshot(): WatcherSnapshot {
-    return {
-      version: 1,
-      run: this.run,
-      machine_zone: this.machineZone.value ?? null,
-      zones: recordOf(this.zones),
-      over_alarm: recordOf(this.alarms),
-      unbalance: this.unbalance.value ?? null,
-      sensor_ok: recordOf(this.sensors),
-      tach: this.tach.value ?? null,
-      speed: this.speed.value ?? null,
-      vector_changed: recordOf(this.vectors),
-    };
+    return { version: STATE_VERSION, run: this.run, ...this.states.states() };
   }
 
   /**

@@ -10,6 +10,27 @@ import { parseJsonFile, readTextOrNull } from './files.js';
  */
 
 const orderSchema = z.object({ order: z.number(), freq_hz: z.number(), amp_pk_mm_s: z.number().min(0), amp_rms_mm_s: z.number().min(0), phase_deg: z.number() });
+/** agent/dsp/signal-facts.ts (absent in windows written before it existed). */
+const pileSchema = z.object({ v: z.number(), samples: z.number().int(), below: z.number().int() });
+const signalSchema = z.object({
+  crest_factor: z.number(),
+  kurtosis: z.number(),
+  min_step_v: z.number().nullable(),
+  steps_spanned: z.number().nullable(),
+  span_s: z.number(),
+  span_rms_median_v: z.number(),
+  impulses: z.number().int(),
+  impulses_one_sided: z.number().int(),
+  peak_over_level: z.number(),
+  group_s: z.number(),
+  groups: z.number().int(),
+  group_rms_median_v: z.number(),
+  group_rms_max_v: z.number(),
+  group_rms_min_v: z.number(),
+  group_jump_ratio: z.number(),
+  pile_high: pileSchema,
+  pile_low: pileSchema,
+});
 const channelSchema = z.object({
   id: z.string(),
   channel: z.number().int(),
@@ -20,7 +41,15 @@ const channelSchema = z.object({
   orders: z.record(z.string(), orderSchema),
   one_x_share: z.number().nullable(),
   nonsync_peaks: z.array(z.object({ freq_hz: z.number(), order: z.number(), amp_rms_mm_s: z.number() })),
-  stats: z.object({ dc_v: z.number(), ac_rms_v: z.number(), min_v: z.number(), max_v: z.number(), clipped_samples: z.number().int(), samples: z.number().int() }),
+  stats: z.object({
+    dc_v: z.number(),
+    ac_rms_v: z.number(),
+    min_v: z.number(),
+    max_v: z.number(),
+    clipped_samples: z.number().int(),
+    samples: z.number().int(),
+    signal: signalSchema.optional(),
+  }),
 });
 export const windowResultSchema: z.ZodType<WindowResult> = z.object({
   start_index: z.number(),

@@ -20,6 +20,8 @@ export interface MosquittoOptions {
   readonly tls?: { readonly requireClientCert: boolean };
   /** Plain listener port (default: a free one). */
   readonly port?: number;
+  /** Further lines for mosquitto.conf, before the listeners (e.g. "max_packet_size 2048", "max_inflight_messages 2"). */
+  readonly extraConfig?: readonly string[];
 }
 
 export const MOSQUITTO_BIN = process.env.TURNWISE_MOSQUITTO ?? (existsSync('/usr/sbin/mosquitto') ? '/usr/sbin/mosquitto' : 'mosquitto');
@@ -112,6 +114,7 @@ export class Mosquitto {
       'log_type warning',
       'log_type notice',
       'log_type information',
+      ...(o.extraConfig ?? []),
       `listener ${this.port} 127.0.0.1`,
     ];
     if (o.tls && this.certs) {

@@ -1,12 +1,17 @@
 /**
  * The balancing calculators the live page offers beside a job (trial weight, split onto fixed
- * positions, combine, move to another radius, balance quality grade): each takes a request body,
+ * positions or between holes, combine, move to another radius, balance quality grade, the four-run
+ * method without phase and the 1x amplitude it needs): each takes a request body,
  * checks it (ApiError 400 naming every problem) and answers with plain data in the units of its field
  * names. Pure: the maths is agent/balance/weights.ts.
  */
+import { z } from 'zod';
+import type { WindowResult } from '../../dsp/types.js';
 import { isUserError } from '../../errors.js';
+import { oneXAmplitude } from '../amplitude.js';
+import { solveFourRun } from '../four-run.js';
 import { conventionText } from '../conventions.js';
-import { parseCombineRequest, parseSplitRequest } from '../job-input.js';
+import { parseCombineRequest, parseFourRun, parseSplitHolesRequest, parseSplitRequest } from '../job-input.js';
 import { balancingCautions } from '../report.js';
 import {
   centrifugalForceN,
@@ -14,7 +19,9 @@ import {
   moveToRadius,
   parseGrade,
   permissibleUnbalanceGmm,
+  splitBetweenHoles,
   splitOntoPositions,
+  SplitRefused,
   STANDARD_GRAVITY,
   suggestTrialMassG,
 } from '../weights.js';
@@ -56,6 +63,7 @@ export function trialWeightTool(body: unknown) {
 
 /** A weight split onto the two fixed positions either side of its angle (moved to their radius first). */
 export function splitTool(body: unknown) {
+  if (body !== null && typeof body === 'object' && 'holes' in body) return splitHolesTool(body);
   const q = parseWithBalance(() => parseSplitRequest(body, 'split request'));
   const moved =
     q.radius_mm !== undefined && q.positions.radius_mm !== undefined
@@ -103,4 +111,41 @@ export function gradeTool(body: unknown) {
     within: q.residual_g_mm === undefined ? null : q.residual_g_mm <= per,
     rule: 'ISO 21940-11: U_per = 9549 x G x m / n (g mm), from memory: check the current edition',
   };
+}
+
+/** A weight split between two holes at any angles, or the two nearest either side from a list. */
+function splitHolesTool(body: unknown) {
+  const q = parseWithBalance(() => parseSplitHolesRequest(body, 'split request'));
+  const moved = q.radius_mm !== undefined && q.holes.radius_mm !== undefined ? moveToRadius(q.mass_g, q.radius_mm, q.holes.radius_mm) : q.mass_g;
+  try {
+    const split = splitBetweenHoles(moved, q.angle_deg, q.holes.angles_deg);
+    return { angle_convention: q.angle_convention, convention: conventionText(q.angle_convention), moved_mass_g: moved, ...split, cautions: balancingCautions() };
+  } catch (e) {
+    if (e instanceof SplitRefused) throw new ApiError(400, e.code, `holes.angles_deg: ${e.message}`, e.hint);
+    throw e;
+  }
+}
+
+/** Amplitude-only balancing (four-run method): correction, uncertainty, trial effect, fit residual. */
+export function fourRunTool(body: unknown) {
+  const q = parseWithBalance(() => parseFourRun(body, 'four-run request'));
+  return { ...solveFourRun(q), cautions: balancingCautions() };
+}
+
+const oneXRequestSchema = z
+  .object({
+    sensor: z.string().min(1).max(32),
+    speed_rpm: z.number().positive('must be above 0').max(60000).describe('Running speed the technician states (handheld tachometer, drive display)'),
+  })
+  .strict();
+
+/**
+ * The 1x amplitude of one sensor in the latest analysis window, for the four-run method: the
+ * synchronous 1x while the tach works, the spectral peak near the stated speed when it does not.
+ */
+export function oneXAmplitudeTool(body: unknown, window: { readonly window: WindowResult; readonly at_ms: number } | null) {
+  const q = parseBody(oneXRequestSchema, body, '1x amplitude request');
+  if (!window) throw new ApiError(409, 'no_window', 'no analysis window has been measured yet', 'wait a few seconds with the fan at steady speed, then read again');
+  const a = parseWithBalance(() => oneXAmplitude(window.window, q.sensor, q.speed_rpm));
+  return { ...a, window_end_ms: window.at_ms, window_s: (window.window.end_index - window.window.start_index) / window.window.sample_rate_hz, tach_revolutions: window.window.revolutions };
 }

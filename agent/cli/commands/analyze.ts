@@ -65,7 +65,7 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
       inhibited: z.inhibited,
       notes: z.notes,
     },
-    unbalance: { kind: a.unbalance.kind, confidence: a.unbalance.confidence, evidence: a.unbalance.evidence, points_to: a.unbalance.points_to, limits: a.unbalance.limits },
+    unbalance: { kind: a.unbalance.kind, confidence: a.unbalance.confidence, evidence: a.unbalance.evidence, points_to: a.unbalance.points_to, limits: a.unbalance.limits, residual_pattern: a.unbalance.residual_pattern },
     channels: w.channels.map((c) => ({
       id: c.id,
       channel: c.channel,
@@ -76,6 +76,8 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
       zone: z.channels[c.id]?.zone ?? null,
       sensor_ok: a.sensors.find((h) => h.id === c.id)?.ok ?? null,
       sensor_problems: a.sensors.find((h) => h.id === c.id)?.problems ?? [],
+      sensor_faults: a.sensors.find((h) => h.id === c.id)?.faults.map((f) => f.code) ?? [],
+      sensor_doubts: a.sensors.find((h) => h.id === c.id)?.doubts ?? [],
       one_x_share: round(c.one_x_share, 3),
       orders: Object.fromEntries(
         Object.entries(c.orders).map(([k, o]) => [k, { freq_hz: round(o.freq_hz, 3), amp_pk_mm_s: round(o.amp_pk_mm_s, 3), amp_rms_mm_s: round(o.amp_rms_mm_s, 3), phase_deg: round(o.phase_deg, 1) }]),

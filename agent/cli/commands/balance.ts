@@ -4,9 +4,12 @@ import type { Config } from '../../config/schema.js';
 import { UserError } from '../../errors.js';
 import { conventionText } from '../../balance/conventions.js';
 import type { BalanceJob, Issue } from '../../balance/job.js';
-import { parseBalanceJob, parseCombineRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import { parseBalanceJob, parseCombineRequest, parseFourRun, parseMultiSpeed, parseSplitHolesRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import { solveFourRun } from '../../balance/four-run.js';
+import { solveMultiSpeed } from '../../balance/multi-speed.js';
+import { allocatePermissible, type RotorGeometry } from '../../balance/allocation.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
-import { balancingCautions, cautionBlock, conventionLine, fixed, formatSolveReport, formatSplitReport } from '../../balance/report.js';
+import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatMultiSpeedReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
 import { solveBalanceJob } from '../../balance/solve.js';
 import { checkJobId, FileBalanceStore, newJobId, type BalanceJobRecord } from '../../balance/store.js';
 import {
@@ -15,6 +18,8 @@ import {
   moveToRadius,
   parseGrade,
   permissibleUnbalanceGmm,
+  splitBetweenHoles,
+  SplitRefused,
   splitOntoPositions,
   STANDARD_GRAVITY,
   suggestTrialMassG,
@@ -38,12 +43,38 @@ const usage = `turnwise balance SUB-COMMAND ...   (influence-coefficient balanci
       coefficients in <state_dir>/balance/coefficients.json (state_dir from --state-dir or --config).
       Exit 0 solved, 2 bad input, 3 the job cannot be solved (the reason is printed; no numbers).
 
+  four-run FOUR.json [--json]
+      Amplitude-only balancing in one plane (no phase reference: the tach is missing or failed):
+      as found, then one trial weight at three (or more) positions in turn. FOUR.json:
+        {"as_found": 10.0, "trial_mass_g": 50, "angle_convention": "against_rotation",
+         "trials": [{"angle_deg": 0, "amp": 7.0}, {"angle_deg": 120, "amp": 12.0},
+                    {"angle_deg": 240, "amp": 18.0}]}
+      Optional: "amp_unit", "sensor", "radius_mm", "speed_rpm", "amp_scatter_pct" (default 5).
+      Gives the correction (trial weight removed), its uncertainty, the trial effect and how far
+      the circles miss one point (least squares). Exit 0 solved, 2 bad input, 3 the readings do
+      not fix the weight (the reason is printed; no numbers).
+
+  multi-speed MULTI.json [--json]
+      One correction for a fan that runs over a speed range (variable-speed drive): runs at
+      several speeds, influence coefficients per speed, least squares over all speeds and sensors.
+        {"angle_convention": "against_rotation", "planes": ["P1"], "amp_unit": "mm/s pk",
+         "speeds": [{"speed_rpm": 900, "weight": 1, "runs": [as found, trial runs ... as in solve]},
+                    {"speed_rpm": 1485, "weight": 2, "runs": [...]}]}
+      "weight" (default 1) gives a speed more say; "max_residual_share" (default 0.5) refuses a
+      compromise that leaves any speed above that share of its as-found 1x. Shows the predicted
+      residual at every speed and each speed's own correction. Exit 0, 2 bad input, 3 refused.
+
   split SPLIT.json [--json]
       Splits a weight onto fixed positions (blades, holes) by the law of sines, first moving it to
       the positions' radius (mass x r_old / r_new). SPLIT.json:
         {"mass_g": 62.4, "angle_deg": 250, "radius_mm": 355.6,
          "positions": {"count": 9, "first_deg": 0, "radius_mm": 406.4}}
       Positions are numbered from 0 at first_deg, counting in the direction angles are measured.
+      Holes at any angles instead of equally spaced positions:
+        {"mass_g": 62.4, "angle_deg": 250, "holes": {"angles_deg": [235, 290]}}
+      two holes are used as given; with a longer list the two nearest either side of the weight.
+      Refused (exit 2, with what to do): holes 180 deg apart, or no two holes either side of the
+      weight less than 180 deg apart.
 
   combine COMBINE.json [--json]
       Several weights in one plane as one: {"weights": [{"mass_g": 20, "angle_deg": 10}, ...]}
@@ -55,8 +86,13 @@ const usage = `turnwise balance SUB-COMMAND ...   (influence-coefficient balanci
       m_t = F * M_b * g / (r * omega^2) (rule of thumb, common practice).
 
   check-grade --rotor-kg KG --speed-rpm RPM --grade G [--residual-g-mm U] [--planes N] [--json]
+              [--bearings-mm A,B --com-mm X --planes-mm I,II [--rotor centre-hung|overhung]]
       ISO 21940-11 permissible residual unbalance U_per = 9549 * G * m / n (g mm; G mm/s, m kg,
-      n r/min), optionally compared with a residual unbalance.
+      n r/min), optionally compared with a residual unbalance. With the rotor geometry (axial
+      positions from one datum, mm) U_per is allocated to the two planes as ISO 21940-11 describes
+      (from memory); without it, shared equally (fallback). A job file takes the same geometry as
+      "geometry": {"rotor": "centre_hung", "bearing_a_mm": 0, "bearing_b_mm": 1400,
+      "centre_of_mass_mm": 650, "planes_mm": {"P1": 450, "P2": 950}}.
 
   jobs [--state-dir DIR | --config FILE] [--json]      list recorded jobs
   export JOB_ID [--state-dir DIR | --config FILE]      print a recorded job as JSON
@@ -209,10 +245,78 @@ async function solve(argv: string[]): Promise<number> {
   return 0;
 }
 
+async function fourRun(argv: string[]): Promise<number> {
+  const { values, positionals } = args('four-run', argv, { json: { type: 'boolean' } });
+  const file = singleFile('four-run', positionals, 'four-run request');
+  const req = parseFourRun(readJsonFile(file, 'four-run request'), file);
+  const result = solveFourRun(req);
+  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
+  else out(formatFourRunReport(result) + '\n' + cautionBlock());
+  if (!result.ok) {
+    if (!values.json) process.stderr.write(`turnwise balance four-run: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    return EXIT_UNSOLVABLE;
+  }
+  return 0;
+}
+
+async function multiSpeed(argv: string[]): Promise<number> {
+  const { values, positionals } = args('multi-speed', argv, { json: { type: 'boolean' } });
+  const file = singleFile('multi-speed', positionals, 'multi-speed job');
+  const job = parseMultiSpeed(readJsonFile(file, 'multi-speed job'), file);
+  const result = solveMultiSpeed(job);
+  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
+  else out(formatMultiSpeedReport(result) + '\n' + cautionBlock());
+  if (!result.ok) {
+    if (!values.json) process.stderr.write(`turnwise balance multi-speed: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    return EXIT_UNSOLVABLE;
+  }
+  return 0;
+}
+
+async function splitHoles(raw: unknown, file: string, json: boolean): Promise<number> {
+  const req = parseSplitHolesRequest(raw, file);
+  const moved = req.radius_mm !== undefined && req.holes.radius_mm !== undefined ? moveToRadius(req.mass_g, req.radius_mm, req.holes.radius_mm) : req.mass_g;
+  let split;
+  try {
+    split = splitBetweenHoles(moved, req.angle_deg, req.holes.angles_deg);
+  } catch (e) {
+    if (e instanceof SplitRefused) throw new UserError(`${file}: holes.angles_deg`, e.message, e.hint);
+    throw e;
+  }
+  const summary = {
+    angle_convention: req.angle_convention,
+    convention: conventionText(req.angle_convention),
+    mass_g: req.mass_g,
+    angle_deg: req.angle_deg,
+    radius_mm: req.radius_mm ?? null,
+    positions_radius_mm: req.holes.radius_mm ?? null,
+    moved_mass_g: moved,
+    weights: split.weights,
+    total_mass_g: split.total_mass_g,
+    gap_deg: split.gap_deg,
+    warnings: split.warnings,
+  };
+  if (json) out(jsonText({ ...summary, cautions: balancingCautions() }));
+  else {
+    out(
+      formatSplitReport(summary, 'Holes are numbered 0, 1, ... in the order holes.angles_deg lists them.') +
+        `  parts add up to ${fixed(split.total_mass_g, 2)} g` +
+        (split.gap_deg > 0 ? ` (holes ${fixed(split.gap_deg, 1)} deg apart)` : '') +
+        '\n' +
+        split.warnings.map((w) => `Warning: ${w.message}\n  -> ${w.hint}\n`).join('') +
+        '\n' +
+        cautionBlock(),
+    );
+  }
+  return 0;
+}
+
 async function split(argv: string[]): Promise<number> {
   const { values, positionals } = args('split', argv, { json: { type: 'boolean' } });
   const file = singleFile('split', positionals, 'split request');
-  const req = parseSplitRequest(readJsonFile(file, 'split request'), file);
+  const raw = readJsonFile(file, 'split request');
+  if (raw !== null && typeof raw === 'object' && 'holes' in raw) return splitHoles(raw, file, values.json === true);
+  const req = parseSplitRequest(raw, file);
   const moved = req.radius_mm !== undefined && req.positions.radius_mm !== undefined ? moveToRadius(req.mass_g, req.radius_mm, req.positions.radius_mm) : req.mass_g;
   const weights = splitOntoPositions(moved, req.angle_deg, req.positions);
   const summary = {
@@ -236,12 +340,13 @@ async function combine(argv: string[]): Promise<number> {
   const req = parseCombineRequest(readJsonFile(file, 'combine request'), file);
   const w = combineWeights(req.weights, req.to_radius_mm);
   const result = { angle_convention: req.angle_convention, convention: conventionText(req.angle_convention), ...w, ...(req.to_radius_mm !== undefined ? { radius_mm: req.to_radius_mm } : {}) };
-  if (values.json) out(jsonText(result));
+  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else {
     out(
       `${conventionLine(req.angle_convention)}\n${req.weights.length} weight(s) act as one weight of ${fixed(w.mass_g, 2)} g at ${fixed(w.angle_deg, 1)} deg` +
         (req.to_radius_mm !== undefined ? ` at radius ${fixed(req.to_radius_mm, 1)} mm` : '') +
-        '.\n',
+        '.\n\n' +
+        cautionBlock(),
     );
   }
   return 0;
@@ -305,6 +410,10 @@ async function checkGrade(argv: string[]): Promise<number> {
     grade: { type: 'string' },
     'residual-g-mm': { type: 'string' },
     planes: { type: 'string' },
+    'bearings-mm': { type: 'string' },
+    'com-mm': { type: 'string' },
+    'planes-mm': { type: 'string' },
+    rotor: { type: 'string' },
     json: { type: 'boolean' },
   });
   if (positionals.length) throw new UserError(sub, `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
@@ -315,8 +424,28 @@ async function checkGrade(argv: string[]): Promise<number> {
   if (!(grade > 0)) throw new UserError(sub, `--grade "${values.grade}" is not a balance quality grade`, 'write it as G6.3 or 6.3 (mm/s)');
   const residual = num(sub, 'residual-g-mm', values['residual-g-mm']);
   if (residual !== undefined && residual < 0) throw new UserError(sub, '--residual-g-mm must be 0 or more', 'give the residual unbalance magnitude in g mm');
-  const planes = num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1;
+  const geometryFlags = ['bearings-mm', 'com-mm', 'planes-mm'] as const;
+  const given = geometryFlags.filter((f) => values[f] !== undefined);
+  let geometry: RotorGeometry | undefined;
+  if (given.length) {
+    if (given.length !== geometryFlags.length) {
+      throw new UserError(sub, `the rotor geometry needs all of --bearings-mm, --com-mm and --planes-mm (missing ${geometryFlags.filter((f) => values[f] === undefined).map((f) => `--${f}`).join(', ')})`, 'axial positions from one datum, mm, e.g. --bearings-mm 0,1400 --com-mm 650 --planes-mm 450,950');
+    }
+    const pair = (flag: string, v: string): [number, number] => {
+      const xs = v.split(',').map((x) => Number(x.trim()));
+      if (xs.length !== 2 || !xs.every(Number.isFinite)) throw new UserError(sub, `--${flag} must be two positions in mm separated by a comma (found "${v}")`, `e.g. --${flag} 0,1400`);
+      return [xs[0]!, xs[1]!];
+    };
+    const [ba, bb] = pair('bearings-mm', values['bearings-mm']!);
+    const [p1, p2] = pair('planes-mm', values['planes-mm']!);
+    const rotor = values.rotor ?? 'centre-hung';
+    if (rotor !== 'centre-hung' && rotor !== 'overhung') throw new UserError(sub, `--rotor must be centre-hung or overhung (found "${rotor}")`, 'centre-hung: impeller between the bearings; overhung: impeller outboard of both');
+    geometry = { rotor: rotor === 'overhung' ? 'overhung' : 'centre_hung', bearing_a_mm: ba, bearing_b_mm: bb, centre_of_mass_mm: num(sub, 'com-mm', values['com-mm'], { required: true })!, planes_mm: { I: p1, II: p2 } };
+  }
+  const planes = geometry ? 2 : (num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1);
   const uper = permissibleUnbalanceGmm(grade, rotorKg, speedRpm);
+  const planeNames = planes === 2 ? ['I', 'II'] : Array.from({ length: planes }, (_, i) => `P${i + 1}`);
+  const allocation = allocatePermissible(uper, planeNames, geometry);
   const result = {
     grade_mm_s: grade,
     rotor_mass_kg: rotorKg,
@@ -324,6 +453,7 @@ async function checkGrade(argv: string[]): Promise<number> {
     permissible_g_mm: uper,
     planes,
     permissible_per_plane_g_mm: uper / planes,
+    allocation,
     residual_g_mm: residual ?? null,
     within: residual === undefined ? null : residual <= uper,
     rule: 'ISO 21940-11: U_per = 9549 * G * m / n (g mm; G mm/s, m kg, n r/min), from memory: check the current edition',
@@ -332,8 +462,13 @@ async function checkGrade(argv: string[]): Promise<number> {
   else {
     out(
       `ISO 21940-11, G${grade}: permissible residual unbalance ${fixed(uper, 0)} g mm for a ${rotorKg} kg rotor at ${speedRpm} r/min` +
-        (planes > 1 ? ` (${fixed(uper / planes, 0)} g mm per plane if shared equally between ${planes} planes; the standard allocates by plane and bearing distances)` : '') +
         '.\n' +
+        (planes > 1
+          ? `  per plane: ${planeNames.map((p) => `${p} ${fixed(allocation.by_plane_g_mm[p]!, 0)} g mm`).join(', ')}` +
+            (allocation.bearing_planes_g_mm ? ` (bearing planes A ${fixed(allocation.bearing_planes_g_mm.A, 0)}, B ${fixed(allocation.bearing_planes_g_mm.B, 0)} g mm)` : '') +
+            `\n  allocation: ${allocation.basis}\n` +
+            allocation.warnings.map((w) => `  Warning: ${w.message}\n    -> ${w.hint}\n`).join('')
+          : '') +
         (residual !== undefined ? `Residual ${fixed(residual, 0)} g mm: ${residual <= uper ? 'WITHIN' : 'NOT within'} G${grade}.\n` : '') +
         `  ${result.rule}\n`,
     );
@@ -365,6 +500,8 @@ async function exportJob(argv: string[]): Promise<number> {
 
 const subcommands: Record<string, (argv: string[]) => Promise<number>> = {
   solve,
+  'four-run': fourRun,
+  'multi-speed': multiSpeed,
   split,
   combine,
   'trial-weight': trialWeight,

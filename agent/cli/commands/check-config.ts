@@ -2,6 +2,7 @@ import { loadConfig } from '../../config/load.js';
 import { parseCommandArgs } from '../args.js';
 import type { Command } from '../command.js';
 import { UserError } from '../../errors.js';
+import { startChecks } from '../../runtime/start-checks.js';
 
 const usage = 'turnwise check-config FILE [--json]';
 
@@ -13,6 +14,13 @@ export const checkConfigCommand: Command = {
     const file = positionals[0];
     if (!file || positionals.length > 1) throw new UserError('turnwise check-config', 'expects exactly one config file', `usage: ${usage}`);
     const cfg = loadConfig(file);
+    // The same checks across sections as `turnwise run` at start.
+    try {
+      startChecks(cfg);
+    } catch (e) {
+      if (e instanceof UserError) throw new UserError(`${file}: ${e.where}`, e.message.slice(e.where.length + 2), e.hint);
+      throw e;
+    }
     if (values.json) {
       process.stdout.write(JSON.stringify({ ok: true, file, config: cfg }, null, 2) + '\n');
     } else {

@@ -5,6 +5,7 @@ import { isUserError, UserError } from '../../errors.js';
 import { createPinoLogger, pinoOptionsFromConfig } from '../../logging/pino-logger.js';
 import { defaultLastGoodPath, fallbackConfig, keepLastGood, loadGuardedConfig, type GuardedConfig } from '../../runtime/config-guard.js';
 import { assemble, type Assembly } from '../../runtime/assemble.js';
+import { startChecks } from '../../runtime/start-checks.js';
 import { createServiceNotifier } from '../../service/systemd-notifier.js';
 import { WatchdogKeeper } from '../../service/watchdog.js';
 import { systemTimers } from '../../timers.js';
@@ -69,6 +70,7 @@ export const runCommand: Command = {
 async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measured: boolean }): Promise<number> {
   const { file, guarded, drainS } = plan;
   const cfg = guarded.config;
+  startChecks(cfg); // the same as `turnwise check-config`
   const log = createPinoLogger({ ...pinoOptionsFromConfig(cfg.logging), base: { asset: cfg.machine.id } });
   if (guarded.rejected) {
     log.error({ config: file, running_on: guarded.from }, `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`);

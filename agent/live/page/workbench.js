@@ -480,7 +480,7 @@ export class Workbench {
             ),
           ]
         : h('p', null, 'No weight change: the rotor as found.'),
-      h('div', { class: 'cautions' }, h('h3', null, 'Before start-up'), h('ul', null, h('li', null, 'Everyone clear of the fan; nobody in line with the impeller (in its plane of rotation).'), h('li', null, 'Every weight secured as the fan maker allows; tools and loose parts removed.'))),
+      h('div', { class: 'cautions' }, h('h3', null, 'Before start-up'), h('ul', null, h('li', null, 'Everyone clear of the fan; nobody in line with the impeller (in its plane of rotation).'), h('li', null, 'Every weight secured as the fan maker allows; tools and loose parts removed.'), h('li', null, "Watch the vibration during the run; stop the fan at once if it climbs into zone D or to the plant's trip level."))),
       h('p', null, `Run the fan at steady speed. The reading settles over ${this.session.capture.settle_revolutions} revolutions, then the 1x vectors are averaged over:`),
       h('label', { for: 'f-revolutions' }, 'revolutions'),
       revs,
@@ -709,8 +709,9 @@ export class Workbench {
     return h(
       'details',
       { class: 'tools' },
-      h('summary', null, 'Weight tools: trial weight, split, other radius, combine, ISO 21940-11 grade'),
+      h('summary', null, 'Weight tools: trial weight, split, other radius, combine, ISO 21940-11 grade, balancing without phase'),
       h('p', null, 'Angles in these tools are in one convention of your choice, the same for every angle you enter.'),
+      this.fourRunTool(),
       tool(
         'Trial weight (force 10 % of the rotor weight on one bearing, common practice)',
         [numField('t_rotor', 'rotor mass', this.session.balance_defaults.rotor_mass_kg, 'kg'), numField('t_bearings', 'bearings', this.session.balance_defaults.bearings, 'count'), numField('t_radius', 'radius', '', 'mm'), numField('t_speed', 'speed', this.session.rated_rpm, 'r/min')],
@@ -732,6 +733,12 @@ export class Workbench {
         (r) => r.weights.map((w) => `position ${w.position} (${deg(w.angle_deg)}): ${num(w.mass_g, 2)} g`).join('; '),
       ),
       tool(
+        'Split between two holes at any angles (or the two nearest of a list)',
+        [numField('h_mass', 'mass', '', 'g'), numField('h_angle', 'angle', '', 'deg'), field('h_holes', 'hole angles, deg, comma-separated', '')],
+        (f) => ['/api/tools/split', { mass_g: n(f, 'h_mass'), angle_deg: n(f, 'h_angle'), holes: { angles_deg: val(f, 'h_holes').split(',').filter((x) => x.trim() !== '').map(Number) } }],
+        (r) => r.weights.map((w) => `hole ${w.position} (${deg(w.angle_deg)}): ${num(w.mass_g, 2)} g`).join('; ') + ` (together ${num(r.total_mass_g, 2)} g)` + r.warnings.map((w) => `. ${w.message}`).join(''),
+      ),
+      tool(
         'Same unbalance at another radius (mass x r_old / r_new)',
         [numField('r_mass', 'mass', '', 'g'), numField('r_from', 'from radius', '', 'mm'), numField('r_to', 'to radius', '', 'mm')],
         (f) => ['/api/tools/move-radius', { mass_g: n(f, 'r_mass'), from_radius_mm: n(f, 'r_from'), to_radius_mm: n(f, 'r_to') }],
@@ -750,6 +757,96 @@ export class Workbench {
         (r) => `U_per = ${num(r.permissible_g_mm, 0)} g mm for the rotor${r.within === null ? '' : r.within ? ': the residual is WITHIN it' : ': the residual is NOT within it'}`,
       ),
     );
+  }
+
+  /**
+   * Balancing without phase (the four-run method) for when the once-per-turn pickup is missing or
+   * failed: as found, then one trial weight at three positions; each amplitude typed in or read from
+   * the latest analysis window ("Read": the synchronous 1x if the tach works, else the spectral peak
+   * near the stated speed). One plane, one sensor.
+   */
+  fourRunTool() {
+    const radial = this.session.sensors.filter((x) => x.direction !== 'axial');
+    const out = h('div', { class: 'result', id: 'fourrun-result', 'aria-live': 'polite' });
+    const note = h('div', { class: 'result', id: 'fourrun-read', 'aria-live': 'polite' });
+    /** @param {string} name */
+    const readButton = (name) => {
+      const b = h('button', { type: 'button', class: 'read', dataset: { reads: name } }, 'Read');
+      b.addEventListener('click', async () => {
+        const sensor = val(form, 'fr_sensor');
+        const speed = numVal(form, 'fr_speed');
+        try {
+          const r = await api.post('/api/tools/one-x-amplitude', { sensor, speed_rpm: speed });
+          const input = /** @type {HTMLInputElement} */ (form.querySelector(`[name="${name}"]`));
+          input.value = r.amp_pk_mm_s.toFixed(3);
+          fill(note, `${sensor}: ${num(r.amp_pk_mm_s, 3)} mm/s pk ${r.upper_bound ? '(below the peak threshold: an upper bound) ' : ''}from ${r.source === 'tach' ? 'the synchronous 1x' : `the spectral peak at ${num(r.freq_hz, 2)} Hz (no tach)`}, window of ${num(r.window_s, 1)} s ending ${when(new Date(r.window_end_ms).toISOString())}. Wait for a fresh window after every weight change.`);
+        } catch (e) {
+          fill(note, errorBox(e));
+        }
+      });
+      return b;
+    };
+    /** @param {string} name @param {string} label */
+    const ampField = (name, label) => h('div', null, h('label', { for: `f-${name}` }, `${label} (mm/s pk)`), h('div', { class: 'with-button' }, h('input', { id: `f-${name}`, name, type: 'number', step: 'any', inputmode: 'decimal' }), readButton(name)));
+    const form = h(
+      'form',
+      { class: 'tool', id: 'fourrun' },
+      h('h3', null, 'Balancing without phase (four-run method: as found, trial weight at three positions)'),
+      h('p', null, 'For when the tach pickup cannot be mounted or has failed. Fit the same trial weight at the three positions in turn (same radius), run at the same speed, read the 1x after each; take the trial weight off before fitting the correction.'),
+      h(
+        'div',
+        { class: 'grid' },
+        h('div', null, h('label', { for: 'f-fr_sensor' }, 'sensor'), h('select', { id: 'f-fr_sensor', name: 'fr_sensor' }, radial.map((x) => h('option', { value: x.id }, `${x.id} (${x.bearing}, ${x.direction})`)))),
+        numField('fr_speed', 'running speed you read (tachometer, drive)', this.session.rated_rpm, 'r/min'),
+        h('div', null, h('label', { for: 'f-fr_conv' }, 'angles measured'), h('select', { id: 'f-fr_conv', name: 'fr_conv' }, h('option', { value: 'against_rotation' }, 'against rotation'), h('option', { value: 'with_rotation' }, 'with rotation'))),
+        numField('fr_mass', 'trial mass', '', 'g'),
+        numField('fr_radius', 'radius (optional)', '', 'mm'),
+        ampField('fr_a0', 'as found'),
+        [0, 1, 2].map((k) => [numField(`fr_t${k}`, `trial position ${k + 1}`, [0, 120, 240][k], 'deg'), ampField(`fr_a${k + 1}`, `with the trial weight at position ${k + 1}`)]).flat(),
+      ),
+      note,
+      h('button', { type: 'submit' }, 'Work it out'),
+      out,
+    );
+    form.addEventListener('submit', async (ev) => {
+      ev.preventDefault();
+      const radius = numVal(form, 'fr_radius');
+      const body = {
+        as_found: numVal(form, 'fr_a0'),
+        trial_mass_g: numVal(form, 'fr_mass'),
+        angle_convention: val(form, 'fr_conv'),
+        sensor: val(form, 'fr_sensor'),
+        amp_unit: 'mm/s pk',
+        ...(numVal(form, 'fr_speed') !== undefined ? { speed_rpm: numVal(form, 'fr_speed') } : {}),
+        ...(radius !== undefined ? { radius_mm: radius } : {}),
+        trials: [0, 1, 2].map((k) => ({ angle_deg: numVal(form, `fr_t${k}`), amp: numVal(form, `fr_a${k + 1}`) })),
+      };
+      try {
+        const r = await api.post('/api/tools/four-run', body);
+        const issues = (/** @type {{message: string, hint: string}[]} */ list) => (list.length ? h('ul', null, list.map((i) => h('li', null, `${i.message} \u2192 ${i.hint}`))) : null);
+        const cautions = h('div', { class: 'cautions' }, h('h3', null, 'SAFETY'), h('ul', null, r.cautions.map((/** @type {string} */ c) => h('li', null, c))));
+        if (!r.ok) {
+          fill(out, h('div', { class: 'msg msg-error', role: 'alert', dataset: { ok: 'false' } }, h('strong', null, 'No correction given: the readings do not fix the weight.'), issues(r.problems)), issues(r.warnings), cautions);
+          return;
+        }
+        const c = r.correction;
+        const u = r.correction_uncertainty;
+        fill(
+          out,
+          h(
+            'p',
+            { class: 'fourrun-answer', dataset: { ok: 'true', mass: String(c.mass_g), angle: String(c.angle_deg) } },
+            h('strong', null, `Fit ${num(c.mass_g, 1)} g (\u00b1 ${num(u.mass_g, 1)}) at ${deg(c.angle_deg)} (\u00b1 ${num(u.angle_deg, 1)} deg), ${r.angle_convention === 'against_rotation' ? 'against' : 'with'} rotation from the reference mark`),
+            `, with the trial weight removed${c.force_n !== undefined ? `: ${num(c.force_n, 0)} N at speed` : ''}. Trial effect ${num(r.trial_effect.amp, 2)} mm/s pk (${num(r.trial_effect.pct_of_as_found, 0)} % of as found); the circles miss one point by ${num(r.fit_residual.rms_amp, 2)} mm/s pk r.m.s. (${num(r.fit_residual.pct_of_as_found, 1)} %). Then do a check run.`,
+          ),
+          issues(r.warnings),
+          cautions,
+        );
+      } catch (e) {
+        fill(out, errorBox(e));
+      }
+    });
+    return form;
   }
 }
 
