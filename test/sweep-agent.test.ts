@@ -149,3 +149,30 @@ describe('sweeps recorded by the agent', () => {
     }
   }, 120_000);
 });
+
+describe('the last sweep as evidence for the watcher', () => {
+  it('running speed inside a resonance half-power band adds resonance to the 1x causes, with the sweep as its reason; outside it changes nothing', async () => {
+    const { openWatcher } = await import('../agent/watcher/watcher.js');
+    const { FakeClock } = await import('./support/fake-clock.js');
+    const { demoConfig, fanCase, synthWindow } = await import('./support/fan-windows.js');
+    const verdict = (band: [number, number] | null) => {
+      const dir = mkdtempSync(join(tmpdir(), 'tw-sweep-evidence-'));
+      const w = openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10 } }), new FakeClock(Date.parse('2031-03-02T08:00:00Z')));
+      if (band) w.setSweepEvidence({ sweep_id: '20310302T070000Z-up', direction: 'up', resonances: [{ sensor: 'DE-H', rpm: (band[0] + band[1]) / 2, half_power_rpm: band }] });
+      let last = null as ReturnType<typeof w.process> | null;
+      for (let i = 0; i < 3; i++) last = w.process(synthWindow({ ...fanCase('static', { speed_rpm: 1485 }), start_index: i * 51200 }));
+      return last!.status.latest!.unbalance;
+    };
+    const plain = verdict(null);
+    expect(plain.kind).toBe('static');
+    // Running speed 1485 r/min inside 1440-1530: the 1x is not read as unbalance alone.
+    const inside = verdict([1440, 1530]);
+    expect(inside.kind).toBe('none');
+    const res = inside.points_to.find((p) => p.cause === 'resonance');
+    expect(res?.why).toMatch(/inside the half-power band 1440-1530 r\/min .* \(sweep 20310302T070000Z-up\)/);
+    // A band below running speed: the verdict is the plain one.
+    const outside = verdict([860, 960]);
+    expect(outside.kind).toBe('static');
+    expect(outside.points_to).toEqual([]);
+  });
+});

@@ -125,7 +125,12 @@ export class Agent {
     this.lastWindow = w;
     this.lastStatus = status;
     for (const e of events) this.emit(e);
-    this.sweeps?.onWindow(w);
+    if (this.sweeps) {
+      const before = this.sweeps.lastSweep;
+      this.sweeps.onWindow(w);
+      // The last sweep is evidence for the watcher from the next window on.
+      if (this.sweeps.lastSweep !== before) this.watcher.setSweepEvidence(this.sweeps.evidence());
+    }
     this.gpioSpeed?.onWindow(w);
     if (this.advisory) {
       const channels: AdvisoryChannelInput[] = cfg.sensors.map((s) => {
@@ -266,6 +271,7 @@ export class Agent {
         },
         revolutionTap: (info, timeOf) => {
           this.sweeps = new SweepRecorder({ config: cfg, sampleRate: info.sampleRate, log, timeOf, nowMs: () => this.o.clock.now(), emit: (e) => this.emit(e), onStored: this.o.onSweep });
+          this.watcher.setSweepEvidence(this.sweeps.evidence());
           return this.sweeps.points;
         },
         startMs: this.o.startMs,

@@ -6,6 +6,7 @@ import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
 import { round } from '../report/units.js';
 import { findSweeps } from './detect.js';
+import type { SweepEvidence } from '../watcher/rules/types.js';
 import { SweepStore, type StoredSweep } from './store.js';
 import { sweepRecordJson, sweepsFromPoints, type Sweep } from './sweeps.js';
 
@@ -108,6 +109,21 @@ export class SweepRecorder {
     this.store = new SweepStore(o.config.state_dir, { maxCount: s.max_count, maxBytes: s.max_mb * 2 ** 20, referenceId: s.reference_id });
     this.settle = s.settle_s * o.sampleRate;
     this.burst = new BurstLog(o.log, { nowMs: o.nowMs, quietMs: 60_000 });
+    // After a restart, the newest stored sweep is the last one known.
+    const newest = this.store.list()[this.store.list().length - 1];
+    this.last = newest ? this.store.read(newest.id) : null;
+  }
+
+  /** The last sweep's resonances with their half-power bands, for the watcher's 1x rules. */
+  evidence(): SweepEvidence | null {
+    const s = this.last;
+    if (!s) return null;
+    const resonances = s.channels.flatMap((c) =>
+      c.resonances
+        .filter((r) => r.rpm !== null && r.half_power_rpm[0] != null && r.half_power_rpm[1] != null)
+        .map((r) => ({ sensor: c.id, rpm: r.rpm!, half_power_rpm: [r.half_power_rpm[0]!, r.half_power_rpm[1]!] as const })),
+    );
+    return { sweep_id: s.id, direction: s.direction, resonances };
   }
 
   get removed(): number {
