@@ -124,3 +124,27 @@ describe('sweeps and captures on the live page', () => {
     }
   }, 180_000);
 });
+
+describe('balancing near a resonance', () => {
+  it('the workbench warns that influence coefficients at a speed inside the last sweep\'s resonance band are unreliable', async () => {
+    const { LiveServer } = await import('../agent/live/server.js');
+    const OPERATOR = 'operator-0123456789abcdef-sweeps';
+    const dir = mkdtempSync(join(tmpdir(), 'tw-wb-resonance-'));
+    const cfg = agentConfig(join(dir, 'state'), undefined, {}, { live: { port: 0, tokens: [{ name: 'crew', role: 'operator', env: 'TW_WB_OP' }] } });
+    let band: [number, number] = [1440, 1530];
+    const server = LiveServer.fromConfig(cfg, { logger: new MemoryLogger(), clock: systemClock, emit: () => undefined, sweepEvidence: () => ({ sweep_id: '20261203T060007Z-up', direction: 'up', resonances: [{ sensor: 'DE-H', rpm: 1485, half_power_rpm: band }] }) }, { TW_WB_OP: OPERATOR });
+    const url = (await server.start()).url;
+    try {
+      const post = async (path: string, body: unknown) => (await fetch(url + path.slice(1), { method: 'POST', headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'application/json' }, body: JSON.stringify(body) })).json() as Promise<{ view: { resonance_warning: string | null } }>;
+      const get = async (path: string) => (await fetch(url + path.slice(1), { headers: { Authorization: `Bearer ${OPERATOR}` } })).json() as Promise<{ view: { resonance_warning: string | null } }>;
+      const v = await post('/api/jobs', { kind: 'single_plane', by: 'A. Ruiz (invented)', speed_rpm: 1500, planes: [{ name: 'P1', radius_mm: 760 }] });
+      expect(v.view, JSON.stringify(v)).toBeDefined();
+      expect(v.view.resonance_warning).toMatch(/1500 r\/min is inside the band .*\(sweep 20261203T060007Z-up\).*1485 r\/min on DE-H \(half-power band 1440-1530\)\. Influence coefficients measured here are unreliable/);
+      band = [860, 960];
+      expect((await get('/api/jobs/open')).view.resonance_warning).toBeNull();
+    } finally {
+      await server.stop();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+});

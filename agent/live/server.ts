@@ -15,6 +15,7 @@ import { createReadStream, readFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
 import { isCaptureId, listCaptures } from '../capture/event-capture.js';
 import type { LiveSweep } from '../sweep/recorder.js';
+import type { SweepEvidence } from '../watcher/rules/types.js';
 import { isSweepId, SweepStore, type StoredSweep } from '../sweep/store.js';
 import type { AddressInfo, Socket } from 'node:net';
 import { WebSocketServer, type WebSocket } from 'ws';
@@ -55,6 +56,8 @@ export interface LiveServerOptions {
   readonly store?: BalanceStore;
   /** Memory of the runtime's live average, revolutions (AgentRuntime liveRevolutions; default 32). */
   readonly liveRevolutions?: number;
+  /** Resonances of the last recorded sweep (the workbench warns when balancing inside one's band). */
+  readonly sweepEvidence?: () => SweepEvidence | null;
   /** The run-up or coast-down going on now (the agent's sweep recorder); pushed to the page at each window. */
   readonly sweepLive?: () => LiveSweep | null;
   /** Directory of the page files; default the package's agent/live/page. */
@@ -155,6 +158,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       onCoefficientsSaved: opts.onCoefficientsSaved,
       capture: this.captureSettings,
       liveSpeed: () => this.view.speedRpm,
+      ...(opts.sweepEvidence ? { sweepEvidence: opts.sweepEvidence } : {}),
       onChange: () => this.markDirty('job'),
     });
     this.routes = this.buildRoutes();

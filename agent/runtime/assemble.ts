@@ -83,6 +83,7 @@ export async function assemble(o: AssemblyOptions): Promise<Assembly> {
           emit: (e) => theAgent().queueEvent(e),
           onCoefficientsSaved: () => theAgent().watcher.reloadCoefficients(),
           sweepLive: () => agent?.sweepRecorder?.live() ?? null,
+          sweepEvidence: () => agent?.sweepRecorder?.evidence() ?? null,
         },
         o.env,
       )
