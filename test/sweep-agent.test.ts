@@ -43,16 +43,48 @@ describe('sweeps recorded by the agent', () => {
     const sub = await TestSubscriber.open(broker.url, [`${prefix}/#`]);
     const t0 = Date.UTC(2026, 11, 3, 6, 0, 0);
     const seconds = 240;
-    const src = new SimSource(plan(scenario(15, { fnH: 13.5 }), cfg), { blockSamples: 1024, pace: 'fast', totalSamples: seconds * FS });
+    const src = new SimSource(plan(scenario(15, { fnH: 13.5 }), cfg), {
+      blockSamples: 1024,
+      pace: 'fast',
+      totalSamples: seconds * FS,
+    });
     const log = new MemoryLogger();
-    const agent = new Agent({ config: cfg, source: src, boardTimesTach: false, clock: new ManualClock(t0), logger: log, startMs: t0 });
+    const agent = new Agent({
+      config: cfg,
+      source: src,
+      boardTimesTach: false,
+      clock: new ManualClock(t0),
+      logger: log,
+      startMs: t0,
+    });
     const sum = await agent.run(10_000);
     expect(sum.drained).toBe(true);
     const base = `${prefix}/kessrow-id3a/event`;
-    await sub.waitFor((m) => m.filter((x) => x.topic === `${base}/sweep_recorded`).length >= 3, 10_000, 'three sweep_recorded');
-    await sub.waitFor((m) => m.some((x) => x.topic === `${base}/resonance_moved`), 10_000, 'resonance_moved');
-    const recorded = sub.on(`${base}/sweep_recorded`).map((m) => m.json as Record<string, unknown> & { resonances: { sensor: string; rpm: number; amplification_factor: number; phase_shift_deg: number }[] });
-    for (const m of sub.messages.filter((x) => x.topic.startsWith(`${base}/`))) assertMatches('event.v1', m.json);
+    await sub.waitFor(
+      (m) => m.filter((x) => x.topic === `${base}/sweep_recorded`).length >= 3,
+      10_000,
+      'three sweep_recorded',
+    );
+    await sub.waitFor(
+      (m) => m.some((x) => x.topic === `${base}/resonance_moved`),
+      10_000,
+      'resonance_moved',
+    );
+    const recorded = sub
+      .on(`${base}/sweep_recorded`)
+      .map(
+        (m) =>
+          m.json as Record<string, unknown> & {
+            resonances: {
+              sensor: string;
+              rpm: number;
+              amplification_factor: number;
+              phase_shift_deg: number;
+            }[];
+          },
+      );
+    for (const m of sub.messages.filter((x) => x.topic.startsWith(`${base}/`)))
+      assertMatches('event.v1', m.json);
     expect(recorded.map((e) => e.direction)).toEqual(['up', 'down', 'up']);
     const want1 = velocityPeakRpm(15, 0.06);
     const want2 = velocityPeakRpm(13.5, 0.06);
@@ -64,7 +96,9 @@ describe('sweeps recorded by the agent', () => {
       const sensors = e.resonances.map((r) => r.sensor).sort();
       expect(sensors).toEqual(['DE-H', 'NDE-H']);
       for (const r of e.resonances) {
-        found.push(`${e.direction} ${r.sensor} ${r.rpm} r/min (want ${want.toFixed(1)}) AF ${r.amplification_factor} shift ${r.phase_shift_deg}`);
+        found.push(
+          `${e.direction} ${r.sensor} ${r.rpm} r/min (want ${want.toFixed(1)}) AF ${r.amplification_factor} shift ${r.phase_shift_deg}`,
+        );
         expect(Math.abs(r.rpm - want) / want).toBeLessThan(0.03);
         // AF about 1 / (2 zeta) = 8.3 for a lightly damped mode (textbook); the curve from 4-revolution points is coarser.
         expect(r.amplification_factor).toBeGreaterThan(5);
@@ -78,7 +112,12 @@ describe('sweeps recorded by the agent', () => {
     expect(recorded[1]!.reference).toBe(true);
     expect(recorded[2]!.reference).toBe(false);
     expect(recorded[2]!.compared_with).toBe(recorded[0]!.sweep_id);
-    const moved = sub.on(`${base}/resonance_moved`).map((m) => m.json as { sensor: string; severity: string; moved_pct: number; reference_id: string });
+    const moved = sub
+      .on(`${base}/resonance_moved`)
+      .map(
+        (m) =>
+          m.json as { sensor: string; severity: string; moved_pct: number; reference_id: string },
+      );
     expect(moved.map((m) => m.sensor).sort()).toEqual(['DE-H', 'NDE-H']);
     for (const m of moved) {
       expect(m.severity).toBe('warning');
@@ -92,7 +131,9 @@ describe('sweeps recorded by the agent', () => {
     // On disk, the same as turnwise sweep --json prints per sweep, with id and reference.
     const files = readdirSync(join(cfg.state_dir, 'sweeps')).sort();
     expect(files).toEqual(recorded.map((e) => `${e.sweep_id as string}.json`).sort());
-    const first = JSON.parse(readFileSync(join(cfg.state_dir, 'sweeps', files[0]!), 'utf8')) as StoredSweep;
+    const first = JSON.parse(
+      readFileSync(join(cfg.state_dir, 'sweeps', files[0]!), 'utf8'),
+    ) as StoredSweep;
     expect(first.channels).toHaveLength(6);
     expect(first.channels[0]!.points.length).toBeGreaterThan(50);
     expect(agent.health().sweeps_recorded).toBe(3);
@@ -100,14 +141,33 @@ describe('sweeps recorded by the agent', () => {
   }, 120_000);
 
   it('compares: a moved resonance, and a new one within the margin of running speed, are findings; the reference itself is none', () => {
-    const ch = (id: string, res: { rpm: number; margin_ok: boolean }[]) => ({ id, resonances: res.map((r) => ({ ...r, separation_margin_pct: 100 * Math.abs(1500 - r.rpm) / 1500, required_margin_pct: 14 })) });
-    const ref = { channels: [ch('DE-H', [{ rpm: 900, margin_ok: true }])] } as unknown as StoredSweep;
+    const ch = (id: string, res: { rpm: number; margin_ok: boolean }[]) => ({
+      id,
+      resonances: res.map((r) => ({
+        ...r,
+        separation_margin_pct: (100 * Math.abs(1500 - r.rpm)) / 1500,
+        required_margin_pct: 14,
+      })),
+    });
+    const ref = {
+      channels: [ch('DE-H', [{ rpm: 900, margin_ok: true }])],
+    } as unknown as StoredSweep;
     expect(compareSweeps(ref, ref, 0.05)).toEqual([]);
-    const cur = { channels: [ch('DE-H', [{ rpm: 930, margin_ok: true }, { rpm: 1400, margin_ok: false }])] } as unknown as StoredSweep;
+    const cur = {
+      channels: [
+        ch('DE-H', [
+          { rpm: 930, margin_ok: true },
+          { rpm: 1400, margin_ok: false },
+        ]),
+      ],
+    } as unknown as StoredSweep;
     const f = compareSweeps(cur, ref, 0.05);
     // 930 is 3.3 % from 900: within 5 %; 1400 is new and 6.7 % from running speed, inside 14 %.
     expect(f.map((x) => x.kind)).toEqual(['near_running']);
-    expect(compareSweeps(cur, ref, 0.02).map((x) => `${x.kind} ${x.rpm}`)).toEqual(['moved 930', 'near_running 1400']);
+    expect(compareSweeps(cur, ref, 0.02).map((x) => `${x.kind} ${x.rpm}`)).toEqual([
+      'moved 930',
+      'near_running 1400',
+    ]);
   });
 
   it('keeps the newest sweeps within max_count, never the reference; a full disk logs once and monitoring goes on', async () => {
@@ -115,11 +175,26 @@ describe('sweeps recorded by the agent', () => {
     // Five run-up/coast-down cycles of 20 s each way.
     const sc = scenario(15);
     const tl: unknown[] = [];
-    for (let k = 0; k < 3; k++) tl.push({ at: 1 + 50 * k, start: { rpm: 1500, ramp_s: 20 } }, { at: 26 + 50 * k, stop: { coast_s: 20 } });
+    for (let k = 0; k < 3; k++)
+      tl.push(
+        { at: 1 + 50 * k, start: { rpm: 1500, ramp_s: 20 } },
+        { at: 26 + 50 * k, stop: { coast_s: 20 } },
+      );
     const run = async (stateDir: string, seconds: number) => {
       const cfg = agentConfig(stateDir, undefined, { max_count: 2 });
       const log = new MemoryLogger();
-      const agent = new Agent({ config: cfg, source: new SimSource(plan({ ...sc, timeline: tl }, cfg), { blockSamples: 1024, pace: 'fast', totalSamples: seconds * FS }), boardTimesTach: false, clock: new ManualClock(0), logger: log, startMs: Date.UTC(2026, 11, 3) });
+      const agent = new Agent({
+        config: cfg,
+        source: new SimSource(plan({ ...sc, timeline: tl }, cfg), {
+          blockSamples: 1024,
+          pace: 'fast',
+          totalSamples: seconds * FS,
+        }),
+        boardTimesTach: false,
+        clock: new ManualClock(0),
+        logger: log,
+        startMs: Date.UTC(2026, 11, 3),
+      });
       const sum = await agent.run(1000);
       return { agent, log, sum, cfg };
     };
@@ -127,9 +202,16 @@ describe('sweeps recorded by the agent', () => {
     const h = a.agent.health();
     expect(h.sweeps_recorded).toBe(6);
     const files = readdirSync(join(a.cfg.state_dir, 'sweeps')).sort();
-    const stored = files.map((f) => JSON.parse(readFileSync(join(a.cfg.state_dir, 'sweeps', f), 'utf8')) as StoredSweep);
+    const stored = files.map(
+      (f) => JSON.parse(readFileSync(join(a.cfg.state_dir, 'sweeps', f), 'utf8')) as StoredSweep,
+    );
     // The two references (first up, first down) plus the two newest others.
-    expect(stored.filter((s) => s.reference).map((s) => s.direction).sort()).toEqual(['down', 'up']);
+    expect(
+      stored
+        .filter((s) => s.reference)
+        .map((s) => s.direction)
+        .sort(),
+    ).toEqual(['down', 'up']);
     expect(stored.filter((s) => !s.reference)).toHaveLength(2);
     expect(h.sweeps_removed).toBe(2);
     const mnt = tryMountTmpfs();
@@ -157,10 +239,21 @@ describe('the last sweep as evidence for the watcher', () => {
     const { demoConfig, fanCase, synthWindow } = await import('./support/fan-windows.js');
     const verdict = (band: [number, number] | null) => {
       const dir = mkdtempSync(join(tmpdir(), 'tw-sweep-evidence-'));
-      const w = openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10 } }), new FakeClock(Date.parse('2031-03-02T08:00:00Z')));
-      if (band) w.setSweepEvidence({ sweep_id: '20310302T070000Z-up', direction: 'up', resonances: [{ sensor: 'DE-H', rpm: (band[0] + band[1]) / 2, half_power_rpm: band }] });
+      const w = openWatcher(
+        demoConfig({ state_dir: dir, watcher: { window_s: 10 } }),
+        new FakeClock(Date.parse('2031-03-02T08:00:00Z')),
+      );
+      if (band)
+        w.setSweepEvidence({
+          sweep_id: '20310302T070000Z-up',
+          direction: 'up',
+          resonances: [{ sensor: 'DE-H', rpm: (band[0] + band[1]) / 2, half_power_rpm: band }],
+        });
       let last = null as ReturnType<typeof w.process> | null;
-      for (let i = 0; i < 3; i++) last = w.process(synthWindow({ ...fanCase('static', { speed_rpm: 1485 }), start_index: i * 51200 }));
+      for (let i = 0; i < 3; i++)
+        last = w.process(
+          synthWindow({ ...fanCase('static', { speed_rpm: 1485 }), start_index: i * 51200 }),
+        );
       return last!.status.latest!.unbalance;
     };
     const plain = verdict(null);
@@ -169,7 +262,9 @@ describe('the last sweep as evidence for the watcher', () => {
     const inside = verdict([1440, 1530]);
     expect(inside.kind).toBe('none');
     const res = inside.points_to.find((p) => p.cause === 'resonance');
-    expect(res?.why).toMatch(/inside the half-power band 1440-1530 r\/min .* \(sweep 20310302T070000Z-up\)/);
+    expect(res?.why).toMatch(
+      /inside the half-power band 1440-1530 r\/min .* \(sweep 20310302T070000Z-up\)/,
+    );
     // A band below running speed: the verdict is the plain one.
     const outside = verdict([860, 960]);
     expect(outside.kind).toBe('static');

@@ -29,7 +29,11 @@ import { sweepRecordJson, sweepsFromPoints, type Sweep } from './sweeps.js';
 export interface LiveSweep {
   readonly direction: 'up' | 'down';
   /** Points so far, in the order measured: speed and per channel (config order) 1x amplitude and phase. */
-  readonly points: readonly { readonly rpm: number; readonly amp_pk_mm_s: readonly number[]; readonly phase_deg: readonly number[] }[];
+  readonly points: readonly {
+    readonly rpm: number;
+    readonly amp_pk_mm_s: readonly number[];
+    readonly phase_deg: readonly number[];
+  }[];
 }
 
 export interface SweepRecorderOptions {
@@ -61,22 +65,46 @@ export interface ResonanceFinding {
  * false) that has no reference resonance within `movedShare` of it is "near_running" (with no
  * reference, every such resonance is).
  */
-export function compareSweeps(cur: Pick<StoredSweep, 'channels'>, ref: Pick<StoredSweep, 'channels'> | null, movedShare: number): ResonanceFinding[] {
+export function compareSweeps(
+  cur: Pick<StoredSweep, 'channels'>,
+  ref: Pick<StoredSweep, 'channels'> | null,
+  movedShare: number,
+): ResonanceFinding[] {
   const out: ResonanceFinding[] = [];
   for (const c of cur.channels) {
     const rc = ref?.channels.find((x) => x.id === c.id);
     const refRes = (rc?.resonances ?? []).filter((r) => r.rpm !== null);
     for (const r of refRes) {
       let best: number | null = null;
-      for (const x of c.resonances) if (x.rpm !== null && (best === null || Math.abs(x.rpm - r.rpm!) < Math.abs(best - r.rpm!))) best = x.rpm;
+      for (const x of c.resonances)
+        if (x.rpm !== null && (best === null || Math.abs(x.rpm - r.rpm!) < Math.abs(best - r.rpm!)))
+          best = x.rpm;
       if (best === null) continue;
       const moved = (best - r.rpm!) / r.rpm!;
-      if (Math.abs(moved) > movedShare) out.push({ kind: 'moved', sensor: c.id, rpm: best, reference_rpm: r.rpm, moved_pct: round(moved * 100, 1), separation_margin_pct: null, required_margin_pct: null });
+      if (Math.abs(moved) > movedShare)
+        out.push({
+          kind: 'moved',
+          sensor: c.id,
+          rpm: best,
+          reference_rpm: r.rpm,
+          moved_pct: round(moved * 100, 1),
+          separation_margin_pct: null,
+          required_margin_pct: null,
+        });
     }
     for (const x of c.resonances) {
       if (x.margin_ok !== false || x.rpm === null) continue;
       const known = refRes.some((r) => Math.abs(x.rpm! - r.rpm!) <= movedShare * r.rpm!);
-      if (!known) out.push({ kind: 'near_running', sensor: c.id, rpm: x.rpm, reference_rpm: null, moved_pct: null, separation_margin_pct: x.separation_margin_pct, required_margin_pct: x.required_margin_pct });
+      if (!known)
+        out.push({
+          kind: 'near_running',
+          sensor: c.id,
+          rpm: x.rpm,
+          reference_rpm: null,
+          moved_pct: null,
+          separation_margin_pct: x.separation_margin_pct,
+          required_margin_pct: x.required_margin_pct,
+        });
     }
   }
   return out;
@@ -84,7 +112,10 @@ export function compareSweeps(cur: Pick<StoredSweep, 'channels'>, ref: Pick<Stor
 
 /** `20261203T063000Z`: a time as a safe file name. */
 function compactTime(ms: number): string {
-  return new Date(ms).toISOString().replace(/[-:]/g, '').replace(/\.\d+Z$/, 'Z');
+  return new Date(ms)
+    .toISOString()
+    .replace(/[-:]/g, '')
+    .replace(/\.\d+Z$/, 'Z');
 }
 
 export class SweepRecorder {
@@ -105,8 +136,18 @@ export class SweepRecorder {
 
   constructor(private readonly o: SweepRecorderOptions) {
     const s = o.config.sweep;
-    this.points = new SpeedPointRecorder({ channels: o.config.sensors.length, sampleRate: o.sampleRate, resamplePoints: o.config.dsp.resample_points, revolutionsPerPoint: s.revolutions_per_point, maxPoints: s.max_points });
-    this.store = new SweepStore(o.config.state_dir, { maxCount: s.max_count, maxBytes: s.max_mb * 2 ** 20, referenceId: s.reference_id });
+    this.points = new SpeedPointRecorder({
+      channels: o.config.sensors.length,
+      sampleRate: o.sampleRate,
+      resamplePoints: o.config.dsp.resample_points,
+      revolutionsPerPoint: s.revolutions_per_point,
+      maxPoints: s.max_points,
+    });
+    this.store = new SweepStore(o.config.state_dir, {
+      maxCount: s.max_count,
+      maxBytes: s.max_mb * 2 ** 20,
+      referenceId: s.reference_id,
+    });
     this.settle = s.settle_s * o.sampleRate;
     this.burst = new BurstLog(o.log, { nowMs: o.nowMs, quietMs: 60_000 });
     // After a restart, the newest stored sweep is the last one known.
@@ -121,7 +162,11 @@ export class SweepRecorder {
     const resonances = s.channels.flatMap((c) =>
       c.resonances
         .filter((r) => r.rpm !== null && r.half_power_rpm[0] != null && r.half_power_rpm[1] != null)
-        .map((r) => ({ sensor: c.id, rpm: r.rpm!, half_power_rpm: [r.half_power_rpm[0]!, r.half_power_rpm[1]!] as const })),
+        .map((r) => ({
+          sensor: c.id,
+          rpm: r.rpm!,
+          half_power_rpm: [r.half_power_rpm[0]!, r.half_power_rpm[1]!] as const,
+        })),
     );
     return { sweep_id: s.id, direction: s.direction, resonances };
   }
@@ -176,7 +221,13 @@ export class SweepRecorder {
     let ref = cfg.machine.rated_rpm;
     if (ref === undefined) ref = rpm.reduce((m, v) => Math.max(m, v), 0);
     const s = cfg.sweep;
-    return ref > 0 ? findSweeps(rpm, { minChangeRpm: s.min_change_share * ref, reversalRpm: s.reversal_share * ref, steadyRpm: s.steady_share * ref }) : [];
+    return ref > 0
+      ? findSweeps(rpm, {
+          minChangeRpm: s.min_change_share * ref,
+          reversalRpm: s.reversal_share * ref,
+          steadyRpm: s.steady_share * ref,
+        })
+      : [];
   }
 
   private take(nowIndex: number, stopping: boolean): void {
@@ -191,13 +242,20 @@ export class SweepRecorder {
       if (stale) this.points.clear();
       return;
     }
-    const ended = spans.filter((sp) => stale || full || stopping || lastEnd - this.points.endIndexAt(sp.end) >= this.settle);
+    const ended = spans.filter(
+      (sp) => stale || full || stopping || lastEnd - this.points.endIndexAt(sp.end) >= this.settle,
+    );
     if (ended.length === 0) return;
     const sweeps = sweepsFromPoints(this.points.points(), this.o.config, this.o.sampleRate, 0);
     const lastIdx = this.points.endIndexAt(ended[ended.length - 1]!.end);
     for (const s of sweeps) {
       if (s.last_index > lastIdx) continue;
-      const warn = full && !stale && s.last_index === lastIdx ? [`the held points were full (sweep.max_points = ${this.o.config.sweep.max_points}): the sweep is recorded as far as it had got`] : [];
+      const warn =
+        full && !stale && s.last_index === lastIdx
+          ? [
+              `the held points were full (sweep.max_points = ${this.o.config.sweep.max_points}): the sweep is recorded as far as it had got`,
+            ]
+          : [];
       this.record(s, warn);
     }
     let drop = 0;
@@ -243,7 +301,9 @@ export class SweepRecorder {
     }
     this.last = stored;
     const ts = stored.end_ts;
-    const resonances = stored.channels.flatMap((c) => c.resonances.map((r) => ({ sensor: c.id, ...r })));
+    const resonances = stored.channels.flatMap((c) =>
+      c.resonances.map((r) => ({ sensor: c.id, ...r })),
+    );
     this.o.emit({
       id: `${asset}/sweep_recorded/${id}`,
       ts,
@@ -263,11 +323,34 @@ export class SweepRecorder {
     });
     const running = cfg.machine.rated_rpm ?? null;
     compareSweeps(stored, ref, cfg.sweep.moved_share).forEach((f, i) => {
-      const common = { id: `${asset}/resonance_${f.kind === 'moved' ? 'moved' : 'near_running_speed'}/${f.sensor}/${id}/${i}`, ts, asset, severity: 'warning' as const, sensor: f.sensor, sweep_id: id, direction: s.direction, rpm: f.rpm };
+      const common = {
+        id: `${asset}/resonance_${f.kind === 'moved' ? 'moved' : 'near_running_speed'}/${f.sensor}/${id}/${i}`,
+        ts,
+        asset,
+        severity: 'warning' as const,
+        sensor: f.sensor,
+        sweep_id: id,
+        direction: s.direction,
+        rpm: f.rpm,
+      };
       if (f.kind === 'moved') {
-        this.o.emit({ ...common, type: 'resonance_moved', reference_id: ref!.id, reference_rpm: f.reference_rpm, moved_pct: f.moved_pct, moved_share_limit: cfg.sweep.moved_share });
+        this.o.emit({
+          ...common,
+          type: 'resonance_moved',
+          reference_id: ref!.id,
+          reference_rpm: f.reference_rpm,
+          moved_pct: f.moved_pct,
+          moved_share_limit: cfg.sweep.moved_share,
+        });
       } else {
-        this.o.emit({ ...common, type: 'resonance_near_running_speed', reference_id: ref?.id ?? null, running_rpm: running, separation_margin_pct: f.separation_margin_pct, required_margin_pct: f.required_margin_pct });
+        this.o.emit({
+          ...common,
+          type: 'resonance_near_running_speed',
+          reference_id: ref?.id ?? null,
+          running_rpm: running,
+          separation_margin_pct: f.separation_margin_pct,
+          required_margin_pct: f.required_margin_pct,
+        });
       }
     });
     this.queue = this.queue.then(() => this.write(stored));
@@ -283,9 +366,15 @@ export class SweepRecorder {
     } catch (e) {
       this.failed++;
       // A reference that never reached the disk is no reference: the next sweep takes its place.
-      if (s.reference && this.pendingRef.get(s.direction) === s.id) this.pendingRef.delete(s.direction);
+      if (s.reference && this.pendingRef.get(s.direction) === s.id)
+        this.pendingRef.delete(s.direction);
       const code = (e as NodeJS.ErrnoException).code ?? (e as Error).message;
-      this.burst.report('sweep not written', `sweep ${s.id} could not be written to ${this.store.dir} (${code}); monitoring goes on`, { sweep_id: s.id, error_code: code }, code);
+      this.burst.report(
+        'sweep not written',
+        `sweep ${s.id} could not be written to ${this.store.dir} (${code}); monitoring goes on`,
+        { sweep_id: s.id, error_code: code },
+        code,
+      );
     }
   }
 }

@@ -48,7 +48,14 @@ export class SweepStore {
   private index: SweepIndexEntry[] = [];
   removed = 0;
 
-  constructor(stateDir: string, private readonly bounds: { readonly maxCount: number; readonly maxBytes: number; readonly referenceId?: string }) {
+  constructor(
+    stateDir: string,
+    private readonly bounds: {
+      readonly maxCount: number;
+      readonly maxBytes: number;
+      readonly referenceId?: string;
+    },
+  ) {
     this.dir = join(stateDir, 'sweeps');
     this.index = this.scan();
   }
@@ -86,7 +93,10 @@ export class SweepStore {
     mkdirSync(this.dir, { recursive: true });
     this.makeRoom(bytes, s.reference);
     await writeFileAtomic(join(this.dir, `${s.id}.json`), text);
-    this.index = [...this.index.filter((e) => e.id !== s.id), { id: s.id, direction: s.direction, bytes, reference: s.reference }].sort((a, b) => a.id.localeCompare(b.id));
+    this.index = [
+      ...this.index.filter((e) => e.id !== s.id),
+      { id: s.id, direction: s.direction, bytes, reference: s.reference },
+    ].sort((a, b) => a.id.localeCompare(b.id));
   }
 
   private protectedId(e: SweepIndexEntry): boolean {
@@ -97,7 +107,10 @@ export class SweepStore {
     if (isReference) return;
     const others = this.index.filter((e) => !this.protectedId(e));
     let total = others.reduce((t, e) => t + e.bytes, 0);
-    while (others.length > 0 && (others.length >= this.bounds.maxCount || total + bytes > this.bounds.maxBytes)) {
+    while (
+      others.length > 0 &&
+      (others.length >= this.bounds.maxCount || total + bytes > this.bounds.maxBytes)
+    ) {
       const old = others.shift()!;
       rmSync(join(this.dir, `${old.id}.json`), { force: true });
       total -= old.bytes;
@@ -124,7 +137,12 @@ export class SweepStore {
       try {
         const text = readFileSync(join(this.dir, n), 'utf8');
         const s = JSON.parse(text) as StoredSweep;
-        out.push({ id, direction: s.direction, bytes: Buffer.byteLength(text), reference: s.reference === true });
+        out.push({
+          id,
+          direction: s.direction,
+          bytes: Buffer.byteLength(text),
+          reference: s.reference === true,
+        });
       } catch {
         // unreadable: left alone, not counted
       }

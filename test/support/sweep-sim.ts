@@ -23,8 +23,19 @@ export function velocityPeakRpm(fnHz: number, zeta: number): number {
   return at;
 }
 
-export function agentConfig(stateDir: string, mqtt?: { url: string; topic_prefix: string }, sweep: Record<string, unknown> = {}, extra: Record<string, unknown> = {}) {
-  const sensor = (id: string, channel: number, bearing: string, direction: string) => ({ id, channel, bearing, direction, sensitivity_mv_per_g: 100 });
+export function agentConfig(
+  stateDir: string,
+  mqtt?: { url: string; topic_prefix: string },
+  sweep: Record<string, unknown> = {},
+  extra: Record<string, unknown> = {},
+) {
+  const sensor = (id: string, channel: number, bearing: string, direction: string) => ({
+    id,
+    channel,
+    bearing,
+    direction,
+    sensitivity_mv_per_g: 100,
+  });
   return validateConfig({
     machine: { id: 'kessrow-id3a', group: 2, support: 'rigid', rated_rpm: 1500 },
     tach: { channel: 6, trigger_v: 2.5 },
@@ -47,17 +58,30 @@ export function agentConfig(stateDir: string, mqtt?: { url: string; topic_prefix
 
 /** Stand still, run up over 60 s to 1500 r/min, run 20 s, coast down over 60 s; then softer horizontal supports and a second run-up. */
 export function scenario(fnH: number, second?: { fnH: number }) {
-  const base = testScenario({ sample_rate_hz: FS, speed: { rpm: 0 }, tach: { noise_rms_v: 0, rise_us: 600 } }) as { rotor: { support: Record<string, unknown> } };
-  base.rotor.support = { ...base.rotor.support, vertical: { stiffness_mn_per_m: 35, natural_hz: 45 }, horizontal: { stiffness_mn_per_m: 25, natural_hz: fnH } };
+  const base = testScenario({
+    sample_rate_hz: FS,
+    speed: { rpm: 0 },
+    tach: { noise_rms_v: 0, rise_us: 600 },
+  }) as { rotor: { support: Record<string, unknown> } };
+  base.rotor.support = {
+    ...base.rotor.support,
+    vertical: { stiffness_mn_per_m: 35, natural_hz: 45 },
+    horizontal: { stiffness_mn_per_m: 25, natural_hz: fnH },
+  };
   const timeline: unknown[] = [
     { at: 1, start: { rpm: 1500, ramp_s: 60 } },
     { at: 81, stop: { coast_s: 60 } },
   ];
   if (second) {
-    timeline.push({ at: 150, support_change: { bearing: 'DE', direction: 'horizontal', natural_hz: second.fnH } });
-    timeline.push({ at: 150, support_change: { bearing: 'NDE', direction: 'horizontal', natural_hz: second.fnH } });
+    timeline.push({
+      at: 150,
+      support_change: { bearing: 'DE', direction: 'horizontal', natural_hz: second.fnH },
+    });
+    timeline.push({
+      at: 150,
+      support_change: { bearing: 'NDE', direction: 'horizontal', natural_hz: second.fnH },
+    });
     timeline.push({ at: 151, start: { rpm: 1500, ramp_s: 60 } });
   }
   return { ...base, timeline };
 }
-

@@ -33,28 +33,57 @@ export class SweepsView {
     this.live = null;
     /** @type {any[]} */
     this.plots = [];
-    this.status = h('p', { class: 'note', id: 'sweep-status' }, 'No run-up or coast-down recorded yet.');
-    this.select = /** @type {HTMLSelectElement} */ (h('select', { id: 'sweep-sensor', 'aria-label': 'sensor' }, ...this.sensors.map((s) => h('option', { value: s }, s))));
+    this.status = h(
+      'p',
+      { class: 'note', id: 'sweep-status' },
+      'No run-up or coast-down recorded yet.',
+    );
+    this.select = /** @type {HTMLSelectElement} */ (
+      h(
+        'select',
+        { id: 'sweep-sensor', 'aria-label': 'sensor' },
+        ...this.sensors.map((s) => h('option', { value: s }, s)),
+      )
+    );
     this.select.value = this.sensor;
     this.select.onchange = () => {
       this.sensor = this.select.value;
       this.draw();
     };
     this.bode = h('div', { class: 'bode', id: 'bode' });
-    this.polar = /** @type {HTMLCanvasElement} */ (h('canvas', { id: 'sweep-polar', class: 'sweep-polar', 'aria-label': '1x vector along the sweep' }));
+    this.polar = /** @type {HTMLCanvasElement} */ (
+      h('canvas', {
+        id: 'sweep-polar',
+        class: 'sweep-polar',
+        'aria-label': '1x vector along the sweep',
+      })
+    );
     this.listBox = h('div', { id: 'sweep-list' });
     this.captures = h('div', { id: 'capture-list' });
     root.append(
       h('h2', null, 'Run-ups and coast-downs'),
-      h('p', { class: 'legend' }, 'Bode plot: 1x amplitude and phase lag against speed. Polar plot: the 1x vector along the sweep, 0° at the top, lag clockwise. Rings mark the resonances found (amplitude peak with the phase swing through it).'),
-      h('div', { class: 'sweep-controls' }, h('label', { for: 'sweep-sensor' }, 'Sensor '), this.select),
+      h(
+        'p',
+        { class: 'legend' },
+        'Bode plot: 1x amplitude and phase lag against speed. Polar plot: the 1x vector along the sweep, 0° at the top, lag clockwise. Rings mark the resonances found (amplitude peak with the phase swing through it).',
+      ),
+      h(
+        'div',
+        { class: 'sweep-controls' },
+        h('label', { for: 'sweep-sensor' }, 'Sensor '),
+        this.select,
+      ),
       this.status,
       this.bode,
       this.polar,
       h('h3', null, 'Recorded sweeps (tick to compare)'),
       this.listBox,
       h('h2', null, 'Event captures'),
-      h('p', { class: 'legend' }, 'Raw samples of every channel around each alarm. The .wav opens with turnwise analyze or sweep, using the .yaml beside it.'),
+      h(
+        'p',
+        { class: 'legend' },
+        'Raw samples of every channel around each alarm. The .wav opens with turnwise analyze or sweep, using the .yaml beside it.',
+      ),
       this.captures,
     );
     new ResizeObserver(() => this.draw()).observe(root);
@@ -62,14 +91,20 @@ export class SweepsView {
 
   async load() {
     try {
-      const [{ sweeps }, { captures }, { sweep }] = await Promise.all([api.get('/api/sweeps'), api.get('/api/captures'), api.get('/api/sweeps/live')]);
+      const [{ sweeps }, { captures }, { sweep }] = await Promise.all([
+        api.get('/api/sweeps'),
+        api.get('/api/captures'),
+        api.get('/api/sweeps/live'),
+      ]);
       this.list = sweeps;
       this.live = sweep;
       if (this.ticked.size === 0) {
         // The newest, and the reference of its direction, for comparison.
         const newest = sweeps[0];
         if (newest) this.ticked.add(newest.id);
-        const ref = newest && sweeps.find((/** @type {any} */ s) => s.reference && s.direction === newest.direction);
+        const ref =
+          newest &&
+          sweeps.find((/** @type {any} */ s) => s.reference && s.direction === newest.direction);
         if (ref) this.ticked.add(ref.id);
       }
       await this.fetchTicked();
@@ -77,12 +112,21 @@ export class SweepsView {
       this.renderCaptures(captures);
       this.draw();
     } catch (e) {
-      fill(this.status, h('span', { class: 'msg msg-error' }, `Cannot load the sweeps: ${/** @type {any} */ (e).message}`));
+      fill(
+        this.status,
+        h(
+          'span',
+          { class: 'msg msg-error' },
+          `Cannot load the sweeps: ${/** @type {any} */ (e).message}`,
+        ),
+      );
     }
   }
 
   async fetchTicked() {
-    for (const id of this.ticked) if (!this.full.has(id)) this.full.set(id, await api.get(`/api/sweeps/${encodeURIComponent(id)}`));
+    for (const id of this.ticked)
+      if (!this.full.has(id))
+        this.full.set(id, await api.get(`/api/sweeps/${encodeURIComponent(id)}`));
   }
 
   /** A point of the sweep going on now (or null when it has ended). @param {any} sweep */
@@ -109,7 +153,9 @@ export class SweepsView {
             'ul',
             { class: 'sweep-list' },
             ...this.list.map((s) => {
-              const box = /** @type {HTMLInputElement} */ (h('input', { type: 'checkbox', id: `tick-${s.id}` }));
+              const box = /** @type {HTMLInputElement} */ (
+                h('input', { type: 'checkbox', id: `tick-${s.id}` })
+              );
               box.checked = this.ticked.has(s.id);
               box.onchange = async () => {
                 if (box.checked) this.ticked.add(s.id);
@@ -122,8 +168,18 @@ export class SweepsView {
                 'li',
                 { dataset: { sweep: s.id } },
                 box,
-                h('label', { for: `tick-${s.id}` }, `${s.ts.slice(0, 16).replace('T', ' ')} ${s.direction === 'up' ? 'run-up' : 'coast-down'} ${num(s.from_rpm, 0)}-${num(s.to_rpm, 0)} r/min${s.reference ? ' (reference)' : ''}`),
-                h('span', { class: 'note' }, res.length ? ` resonance ${res.map((/** @type {any} */ r) => `${num(r.rpm, 0)} r/min, AF ${num(r.amplification_factor, 1)}${r.margin_ok === false ? ' TOO CLOSE to running speed' : ''}`).join('; ')}` : ''),
+                h(
+                  'label',
+                  { for: `tick-${s.id}` },
+                  `${s.ts.slice(0, 16).replace('T', ' ')} ${s.direction === 'up' ? 'run-up' : 'coast-down'} ${num(s.from_rpm, 0)}-${num(s.to_rpm, 0)} r/min${s.reference ? ' (reference)' : ''}`,
+                ),
+                h(
+                  'span',
+                  { class: 'note' },
+                  res.length
+                    ? ` resonance ${res.map((/** @type {any} */ r) => `${num(r.rpm, 0)} r/min, AF ${num(r.amplification_factor, 1)}${r.margin_ok === false ? ' TOO CLOSE to running speed' : ''}`).join('; ')}`
+                    : '',
+                ),
               );
             }),
           ),
@@ -135,7 +191,11 @@ export class SweepsView {
     fill(
       this.captures,
       captures.length === 0
-        ? h('p', { class: 'note' }, 'No capture yet: one is written at every alarm (and on the capture.take command).')
+        ? h(
+            'p',
+            { class: 'note' },
+            'No capture yet: one is written at every alarm (and on the capture.take command).',
+          )
         : h(
             'ul',
             { class: 'capture-list' },
@@ -145,7 +205,11 @@ export class SweepsView {
                 { dataset: { capture: c.id } },
                 h('span', null, `${c.ts.slice(0, 19).replace('T', ' ')} ${c.reason} `),
                 ...['wav', 'yaml', 'json'].map((ext) => {
-                  const b = h('button', { type: 'button', class: 'small', dataset: { ext } }, `.${ext}`);
+                  const b = h(
+                    'button',
+                    { type: 'button', class: 'small', dataset: { ext } },
+                    `.${ext}`,
+                  );
                   b.onclick = () => void download(`/api/captures/${c.id}/${ext}`, `${c.id}.${ext}`);
                   return b;
                 }),
@@ -164,17 +228,36 @@ export class SweepsView {
       const f = this.full.get(s.id);
       const ch = f?.channels.find((/** @type {any} */ c) => c.id === this.sensor);
       if (!ch) continue;
-      out.push({ id: s.id, label: `${s.ts.slice(5, 16).replace('T', ' ')} ${s.direction}${s.reference ? ' ref' : ''}`, points: ch.points, resonances: ch.resonances });
+      out.push({
+        id: s.id,
+        label: `${s.ts.slice(5, 16).replace('T', ' ')} ${s.direction}${s.reference ? ' ref' : ''}`,
+        points: ch.points,
+        resonances: ch.resonances,
+      });
     }
     const k = this.sensors.indexOf(this.sensor);
-    if (this.live && k >= 0) out.push({ id: 'live', label: `now (${this.live.direction === 'up' ? 'run-up' : 'coast-down'})`, points: this.live.points.map((/** @type {any} */ p) => ({ rpm: p.rpm, amp_pk_mm_s: p.amp_pk_mm_s[k], phase_deg: p.phase_deg[k] })), resonances: [] });
+    if (this.live && k >= 0)
+      out.push({
+        id: 'live',
+        label: `now (${this.live.direction === 'up' ? 'run-up' : 'coast-down'})`,
+        points: this.live.points.map((/** @type {any} */ p) => ({
+          rpm: p.rpm,
+          amp_pk_mm_s: p.amp_pk_mm_s[k],
+          phase_deg: p.phase_deg[k],
+        })),
+        resonances: [],
+      });
     return out;
   }
 
   draw() {
     if (this.root.clientWidth === 0) return;
     const curves = this.curves();
-    this.status.textContent = this.live ? `${this.live.direction === 'up' ? 'Run-up' : 'Coast-down'} going on: ${this.live.points.length} points so far.` : curves.length ? `${this.sensor}: ${curves.length} sweep(s) shown.` : 'No run-up or coast-down to show yet.';
+    this.status.textContent = this.live
+      ? `${this.live.direction === 'up' ? 'Run-up' : 'Coast-down'} going on: ${this.live.points.length} points so far.`
+      : curves.length
+        ? `${this.sensor}: ${curves.length} sweep(s) shown.`
+        : 'No run-up or coast-down to show yet.';
     this.drawBode(curves);
     drawPolar(this.polar, curves, Math.min(this.root.clientWidth - 4, 420));
   }
@@ -190,12 +273,17 @@ export class SweepsView {
     // One x (speed) for all curves: uPlot.join aligns them, missing points are gaps.
     const tables = curves.map((c) => {
       const pts = [...c.points].sort((a, b) => a.rpm - b.rpm);
-      return [pts.map((p) => p.rpm), pts.map((p) => conv(p.amp_pk_mm_s)), pts.map((p) => p.phase_deg)];
+      return [
+        pts.map((p) => p.rpm),
+        pts.map((p) => conv(p.amp_pk_mm_s)),
+        pts.map((p) => p.phase_deg),
+      ];
     });
     const ampData = U.join(tables.map((t) => [t[0], t[1]]));
     const phaseData = U.join(tables.map((t) => [t[0], t[2]]));
     const width = Math.max(260, Math.min(this.root.clientWidth - 4, 1000));
-    const colour = (/** @type {number} */ i) => (curves[i]?.id === 'live' ? LIVE_COLOUR : COLOURS[(curves.length - 1 - i) % COLOURS.length]);
+    const colour = (/** @type {number} */ i) =>
+      curves[i]?.id === 'live' ? LIVE_COLOUR : COLOURS[(curves.length - 1 - i) % COLOURS.length];
     const marks = (/** @type {any} */ u) => {
       const ctx = u.ctx;
       curves.forEach((c, i) => {
@@ -215,18 +303,41 @@ export class SweepsView {
     };
     /** @param {string} title @param {any} data @param {any} yScale */
     const plot = (title, data, yScale) => {
-      const box = h('div', { class: 'trend-plot bode-plot', dataset: { plot: title } }, h('h3', null, title));
+      const box = h(
+        'div',
+        { class: 'trend-plot bode-plot', dataset: { plot: title } },
+        h('h3', null, title),
+      );
       this.bode.append(box);
       const opts = {
         width,
         height: 200,
         scales: { x: { time: false }, y: yScale },
         axes: [
-          { stroke: '#000', grid: { stroke: '#c8c8c8' }, font: 'bold 12px system-ui, sans-serif', label: 'r/min', labelSize: 18 },
-          { stroke: '#000', grid: { stroke: '#c8c8c8' }, font: 'bold 12px system-ui, sans-serif', size: 48 },
+          {
+            stroke: '#000',
+            grid: { stroke: '#c8c8c8' },
+            font: 'bold 12px system-ui, sans-serif',
+            label: 'r/min',
+            labelSize: 18,
+          },
+          {
+            stroke: '#000',
+            grid: { stroke: '#c8c8c8' },
+            font: 'bold 12px system-ui, sans-serif',
+            size: 48,
+          },
         ],
         legend: { live: false },
-        series: [{}, ...curves.map((c, i) => ({ label: c.label, stroke: colour(i), width: c.id === 'live' ? 3 : 2, spanGaps: true }))],
+        series: [
+          {},
+          ...curves.map((c, i) => ({
+            label: c.label,
+            stroke: colour(i),
+            width: c.id === 'live' ? 3 : 2,
+            spanGaps: true,
+          })),
+        ],
         hooks: { draw: [marks] },
       };
       this.plots.push(new U(opts, data, box));
@@ -253,7 +364,11 @@ function drawPolar(c, curves, css) {
   const mid = css / 2;
   const R = mid - 30;
   const conv = (/** @type {number} */ x) => (units.velocity === 'in/s' ? x / 25.4 : x);
-  const max = curves.reduce((m, cv) => cv.points.reduce((mm, p) => Math.max(mm, conv(p.amp_pk_mm_s)), m), 0) || 1;
+  const max =
+    curves.reduce(
+      (m, cv) => cv.points.reduce((mm, p) => Math.max(mm, conv(p.amp_pk_mm_s)), m),
+      0,
+    ) || 1;
   const p10 = 10 ** Math.floor(Math.log10(max));
   const S = [1, 2, 2.5, 5, 10].map((n) => n * p10).find((v) => v >= max) ?? max;
   const at = (/** @type {number} */ amp, /** @type {number} */ ph) => {
@@ -279,7 +394,8 @@ function drawPolar(c, curves, css) {
   ctx.fillText(`${num(S, S < 1 ? 2 : 1)} ${units.velocity} pk`, 4, 14);
   curves.forEach((cv, i) => {
     if (cv.points.length === 0) return;
-    const colour = cv.id === 'live' ? LIVE_COLOUR : COLOURS[(curves.length - 1 - i) % COLOURS.length];
+    const colour =
+      cv.id === 'live' ? LIVE_COLOUR : COLOURS[(curves.length - 1 - i) % COLOURS.length];
     ctx.strokeStyle = colour;
     ctx.fillStyle = colour;
     ctx.lineWidth = cv.id === 'live' ? 3 : 2;
@@ -291,7 +407,10 @@ function drawPolar(c, curves, css) {
     });
     ctx.stroke();
     for (const r of cv.resonances) {
-      const near = cv.points.reduce((b, p) => (Math.abs(p.rpm - r.rpm) < Math.abs(b.rpm - r.rpm) ? p : b), cv.points[0]);
+      const near = cv.points.reduce(
+        (b, p) => (Math.abs(p.rpm - r.rpm) < Math.abs(b.rpm - r.rpm) ? p : b),
+        cv.points[0],
+      );
       const [x, y] = at(near.amp_pk_mm_s, near.phase_deg);
       ctx.beginPath();
       ctx.arc(x, y, 7, 0, 2 * Math.PI);
@@ -310,7 +429,9 @@ function drawPolar(c, curves, css) {
 async function download(path, name) {
   const res = await fetch(path, { headers: { Authorization: `Bearer ${api.token}` } });
   if (!res.ok) {
-    alert(`Download failed (${res.status}): the capture may have been removed to keep within capture.max_count.`);
+    alert(
+      `Download failed (${res.status}): the capture may have been removed to keep within capture.max_count.`,
+    );
     return;
   }
   const url = URL.createObjectURL(await res.blob());

@@ -8,7 +8,8 @@ import { Finding, type WatcherRule } from './types.js';
  */
 export const sweepResonance: WatcherRule = {
   name: 'sweep-resonance',
-  summary: 'running speed within the half-power band of a resonance on the last recorded run-up or coast-down (common practice)',
+  summary:
+    'running speed within the half-power band of a resonance on the last recorded run-up or coast-down (common practice)',
   run({ window, inputs }) {
     const f = new Finding();
     const sweep = inputs?.sweep ?? null;
