@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { mkdtempSync, readdirSync, readFileSync } from 'node:fs';
+import { mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ManualClock } from '../agent/clock.js';
@@ -138,6 +138,7 @@ describe('sweeps recorded by the agent', () => {
     expect(first.channels[0]!.points.length).toBeGreaterThan(50);
     expect(agent.health().sweeps_recorded).toBe(3);
     await sub.close();
+    rmSync(dir, { recursive: true, force: true });
   }, 120_000);
 
   it('compares: a moved resonance, and a new one within the margin of running speed, are findings; the reference itself is none', () => {
@@ -214,6 +215,7 @@ describe('sweeps recorded by the agent', () => {
     ).toEqual(['down', 'up']);
     expect(stored.filter((s) => !s.reference)).toHaveLength(2);
     expect(h.sweeps_removed).toBe(2);
+    rmSync(dir, { recursive: true, force: true });
     const mnt = tryMountTmpfs();
     if (!mnt) {
       console.log('full-disk part skipped: no tmpfs mount allowed here');
