@@ -41,7 +41,7 @@ describe('watcher rules as declarations', () => {
   it('every rule under agent/watcher/rules/ reports its own evidence, limits, causes and what was missing', () => {
     const a = assessWindow(demoConfig(), synthWindow(fanCase('misalignment')));
     expect(a.unbalance.rules.map((r) => r.rule)).toEqual(RULES.map((r) => r.name));
-    expect(RULES.map((r) => r.name)).toEqual(['sensor-faults', 'one-x-size', 'one-x-share', 'harmonics', 'hv-shape', 'bearing-phase', 'axial', 'phase-stability', 'significance']);
+    expect(RULES.map((r) => r.name)).toEqual(['sensor-faults', 'one-x-size', 'one-x-share', 'harmonics', 'hv-shape', 'bearing-phase', 'axial', 'phase-stability', 'sweep-resonance', 'significance']);
     const byName = Object.fromEntries(a.unbalance.rules.map((r) => [r.rule, r]));
     // The misalignment case (test/support/fan-windows.ts): 2x at 90 % of 1x, axial 1x 178 deg apart.
     expect(byName['harmonics']!.facts.two_x_high).toBe(true);

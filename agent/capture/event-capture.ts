@@ -72,6 +72,26 @@ export function isCaptureId(id: string): boolean {
   return ID_RE.test(id);
 }
 
+/** Complete captures in `dir` (state_dir/captures), oldest first. */
+export function listCaptures(dir: string): CaptureRecord[] {
+  let names: string[];
+  try {
+    names = readdirSync(dir);
+  } catch {
+    return [];
+  }
+  const out: CaptureRecord[] = [];
+  for (const n of names) {
+    if (!n.endsWith('.json') || !isCaptureId(n.slice(0, -5))) continue;
+    try {
+      out.push(JSON.parse(readFileSync(join(dir, n), 'utf8')) as CaptureRecord);
+    } catch {
+      // unreadable record: left for removeIncomplete at the next start
+    }
+  }
+  return out.sort((a, b) => (a.ts < b.ts ? -1 : a.ts > b.ts ? 1 : a.id.localeCompare(b.id)));
+}
+
 export class EventCapturer {
   readonly dir: string;
   private readonly ring: RawRing;
@@ -128,22 +148,7 @@ export class EventCapturer {
 
   /** Complete captures on disk, oldest first. */
   list(): CaptureRecord[] {
-    let names: string[];
-    try {
-      names = readdirSync(this.dir);
-    } catch {
-      return [];
-    }
-    const out: CaptureRecord[] = [];
-    for (const n of names) {
-      if (!n.endsWith('.json') || !isCaptureId(n.slice(0, -5))) continue;
-      try {
-        out.push(JSON.parse(readFileSync(join(this.dir, n), 'utf8')) as CaptureRecord);
-      } catch {
-        // unreadable record: left for removeIncomplete at the next start
-      }
-    }
-    return out.sort((a, b) => (a.ts < b.ts ? -1 : a.ts > b.ts ? 1 : a.id.localeCompare(b.id)));
+    return listCaptures(this.dir);
   }
 
   private complete(p: Pending): void {

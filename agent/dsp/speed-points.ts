@@ -97,6 +97,28 @@ export class SpeedPointRecorder implements RevolutionTap {
     return Array.from({ length: this.count }, (_, i) => this.point(i));
   }
 
+  /** Forgets the `k` oldest points (those of a sweep already taken). */
+  dropOldest(k: number): void {
+    const m = Math.max(0, Math.min(this.count, Math.floor(k)));
+    this.head = (this.head + m) % this.cap;
+    this.count -= m;
+  }
+
+  /** Speed of point i (0 = oldest held), r/min, without building the point object. */
+  rpmAt(i: number): number {
+    return this.rpmArr[(this.head + i) % this.cap]!;
+  }
+
+  /** Sample-clock end index of point i (0 = oldest held). */
+  endIndexAt(i: number): number {
+    return this.endIdx[(this.head + i) % this.cap]!;
+  }
+
+  /** The bound on held points (Infinity when none). */
+  get maxPoints(): number {
+    return this.opts.maxPoints ?? Infinity;
+  }
+
   /** Forgets every point (after a sweep has been taken). */
   clear(): void {
     this.head = 0;

@@ -11,7 +11,12 @@
  */
 import { createServer as createHttpServer, type IncomingMessage, type Server, type ServerResponse } from 'node:http';
 import { createServer as createHttpsServer } from 'node:https';
-import { readFileSync } from 'node:fs';
+import { createReadStream, readFileSync, statSync } from 'node:fs';
+import { join } from 'node:path';
+import { isCaptureId, listCaptures } from '../capture/event-capture.js';
+import type { LiveSweep } from '../sweep/recorder.js';
+import type { SweepEvidence } from '../watcher/rules/types.js';
+import { isSweepId, SweepStore, type StoredSweep } from '../sweep/store.js';
 import type { AddressInfo, Socket } from 'node:net';
 import { WebSocketServer, type WebSocket } from 'ws';
 import { FileBalanceStore, type BalanceStore } from '../balance/store.js';
@@ -51,6 +56,10 @@ export interface LiveServerOptions {
   readonly store?: BalanceStore;
   /** Memory of the runtime's live average, revolutions (AgentRuntime liveRevolutions; default 32). */
   readonly liveRevolutions?: number;
+  /** Resonances of the last recorded sweep (the workbench warns when balancing inside one's band). */
+  readonly sweepEvidence?: () => SweepEvidence | null;
+  /** The run-up or coast-down going on now (the agent's sweep recorder); pushed to the page at each window. */
+  readonly sweepLive?: () => LiveSweep | null;
   /** Directory of the page files; default the package's agent/live/page. */
   readonly pageDir?: string;
 }
@@ -77,6 +86,33 @@ interface Client {
 }
 
 type Handler = (ctx: { req: IncomingMessage; principal: Principal; params: string[]; body: unknown }) => Promise<unknown> | unknown;
+
+/** A file sent as it is (capture downloads), streamed from disk. */
+class FileReply {
+  constructor(
+    readonly path: string,
+    readonly type: string,
+    readonly filename: string,
+  ) {}
+}
+
+const CAPTURE_FILES: Record<string, string> = { wav: 'audio/wav', yaml: 'application/yaml; charset=utf-8', json: 'application/json; charset=utf-8' };
+
+/** What the sweep list shows of each stored sweep (the points come with /api/sweeps/ID). */
+export function sweepSummary(s: StoredSweep) {
+  return {
+    id: s.id,
+    ts: s.ts,
+    end_ts: s.end_ts,
+    direction: s.direction,
+    from_rpm: s.from_rpm,
+    to_rpm: s.to_rpm,
+    duration_s: s.duration_s,
+    reference: s.reference,
+    compared_with: s.compared_with,
+    resonances: s.channels.flatMap((c) => c.resonances.map((r) => ({ sensor: c.id, rpm: r.rpm, amplification_factor: r.amplification_factor, margin_ok: r.margin_ok }))),
+  };
+}
 
 interface Route {
   readonly method: 'GET' | 'POST';
@@ -105,6 +141,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   private flushTimer: NodeJS.Timeout | null = null;
   private pingTimer: NodeJS.Timeout | null = null;
   private readonly captureSettings: CaptureSettings;
+  private sweepShown = false;
 
   constructor(opts: LiveServerOptions) {
     this.opts = opts;
@@ -121,6 +158,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       onCoefficientsSaved: opts.onCoefficientsSaved,
       capture: this.captureSettings,
       liveSpeed: () => this.view.speedRpm,
+      ...(opts.sweepEvidence ? { sweepEvidence: opts.sweepEvidence } : {}),
       onChange: () => this.markDirty('job'),
     });
     this.routes = this.buildRoutes();
@@ -228,7 +266,16 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   onWindow(w: WindowResult, atMs: number): void {
     const point = this.view.onWindow(w, atMs);
     this.send({ type: 'trend_point', point });
+    const sweep = this.opts.sweepLive?.() ?? null;
+    // While a run-up or coast-down goes on, the page draws it as it happens (and once more when it has ended).
+    if (sweep || this.sweepShown) this.send({ type: 'sweep_live', sweep });
+    this.sweepShown = sweep !== null;
     this.markDirty('live');
+  }
+
+  /** A sweep was recorded and stored: the page adds it to its list. */
+  onSweep(s: StoredSweep): void {
+    this.send({ type: 'sweep_recorded', sweep: sweepSummary(s) });
   }
 
   /** The watcher's status after each window (zones and sensor health shown per channel). */
@@ -346,7 +393,14 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     const jobView = (v: JobView | null) => ({ view: v });
     const r = (method: Route['method'], path: string, act: boolean, handler: Handler, download?: Route['download']): Route => ({
       method,
-      pattern: new RegExp(`^${path.replace(/:id/g, '([A-Za-z0-9][A-Za-z0-9_.-]{0,63})').replace(/:n/g, '([0-9]{1,4})')}$`),
+      pattern: new RegExp(
+        `^${path
+          .replace(/:id/g, '([A-Za-z0-9][A-Za-z0-9_.-]{0,63})')
+          .replace(/:n/g, '([0-9]{1,4})')
+          .replace(/:cid/g, '([0-9]{8}T[0-9]{6}Z-[0-9]{1,9})')
+          .replace(/:ext/g, '(wav|yaml|json)')
+          .replace(/:sid/g, '([0-9]{8}T[0-9]{6}Z-(?:up|down)(?:-[0-9]{1,4})?)')}$`,
+      ),
       act,
       handler,
       ...(download ? { download } : {}),
@@ -374,7 +428,40 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       r('POST', '/api/tools/grade', false, ({ body }) => gradeTool(body)),
       r('POST', '/api/tools/four-run', false, ({ body }) => fourRunTool(body)),
       r('POST', '/api/tools/one-x-amplitude', false, ({ body }) => oneXAmplitudeTool(body, this.view.latestWindow)),
+      r('GET', '/api/captures', false, () => ({ captures: listCaptures(this.captureDir).reverse() })),
+      r('GET', '/api/captures/:cid/:ext', false, ({ params }) => this.captureFile(params[0]!, params[1]!)),
+      r('GET', '/api/sweeps', false, () => ({ sweeps: this.sweepStore().map(sweepSummary).reverse() })),
+      r('GET', '/api/sweeps/live', false, () => ({ sweep: this.opts.sweepLive?.() ?? null })),
+      r('GET', '/api/sweeps/:sid', false, ({ params }) => this.sweep(params[0]!)),
     ];
+  }
+
+  private get captureDir(): string {
+    return join(this.opts.config.state_dir, 'captures');
+  }
+
+  private captureFile(id: string, ext: string): FileReply {
+    const type = CAPTURE_FILES[ext];
+    if (!isCaptureId(id) || !type) throw new ApiError(404, 'not_found', `no capture file ${id}.${ext}`, 'GET /api/captures lists the captures; each has a .wav, .yaml and .json');
+    // Only captures whose record is written (complete) are served; the name is rebuilt from a checked id.
+    if (!listCaptures(this.captureDir).some((c) => c.id === id)) throw new ApiError(404, 'not_found', `no capture ${id} (removed to keep within capture.max_count / max_mb, or not yet complete)`, 'GET /api/captures lists the captures there are');
+    return new FileReply(join(this.captureDir, `${id}.${ext}`), type, `${id}.${ext}`);
+  }
+
+  private sweepStore(): StoredSweep[] {
+    const c = this.opts.config.sweep;
+    const store = new SweepStore(this.opts.config.state_dir, { maxCount: c.max_count, maxBytes: c.max_mb * 2 ** 20, referenceId: c.reference_id });
+    return store
+      .list()
+      .map((e) => store.read(e.id))
+      .filter((x): x is StoredSweep => x !== null);
+  }
+
+  private sweep(id: string): StoredSweep {
+    const c = this.opts.config.sweep;
+    const s = isSweepId(id) ? new SweepStore(this.opts.config.state_dir, { maxCount: c.max_count, maxBytes: c.max_mb * 2 ** 20 }).read(id) : null;
+    if (!s) throw new ApiError(404, 'not_found', `no sweep ${id}`, 'GET /api/sweeps lists the recorded sweeps');
+    return s;
   }
 
   private async handle(req: IncomingMessage, res: ServerResponse): Promise<void> {
@@ -408,6 +495,7 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       const params = route.pattern.exec(path)!.slice(1);
       const result = await route.handler({ req, principal, params, body });
       if (route.act) this.opts.logger.debug({ path, token: principal.name, role: principal.role, remote }, 'live page: action done');
+      if (result instanceof FileReply) return this.sendFile(res, result);
       return this.reply(res, 200, result, route.download?.(params));
     } catch (e) {
       if (e instanceof ApiError) {
@@ -466,6 +554,20 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     }
     res.writeHead(200, { 'Content-Type': file.type, 'Content-Length': file.body.length });
     res.end(req.method === 'HEAD' ? undefined : file.body);
+  }
+
+  private sendFile(res: ServerResponse, f: FileReply): void {
+    let size: number;
+    try {
+      size = statSync(f.path).size;
+    } catch {
+      return this.reply(res, 404, new ApiError(404, 'not_found', `${f.filename} is gone (removed to keep within the capture bounds)`, 'GET /api/captures lists the captures there are').body());
+    }
+    for (const [k, v] of Object.entries(SECURITY_HEADERS)) res.setHeader(k, v);
+    res.writeHead(200, { 'Content-Type': f.type, 'Content-Length': size, 'Cache-Control': 'no-store', 'Content-Disposition': `attachment; filename="${f.filename}"` });
+    const stream = createReadStream(f.path);
+    stream.on('error', () => res.destroy());
+    stream.pipe(res);
   }
 
   private reply(res: ServerResponse, status: number, body: unknown, disposition?: string): void {

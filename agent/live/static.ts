@@ -24,7 +24,7 @@ const TYPES: Record<string, string> = {
 };
 
 /** Our own page files, by URL path. */
-export const PAGE_FILES = ['index.html', 'style.css', 'app.js', 'format.js', 'polar.js', 'trend.js', 'workbench.js', 'report.js'] as const;
+export const PAGE_FILES = ['index.html', 'style.css', 'app.js', 'format.js', 'polar.js', 'trend.js', 'workbench.js', 'report.js', 'sweeps.js'] as const;
 
 /** The package root: the nearest directory above this module holding package.json (works from agent/ and dist/agent/). */
 function packageRoot(): string {

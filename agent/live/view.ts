@@ -246,6 +246,8 @@ export type PageMessage =
   | { readonly type: 'welcome'; readonly session: SessionView }
   | { readonly type: 'trend'; readonly points: readonly TrendPoint[] }
   | { readonly type: 'trend_point'; readonly point: TrendPoint }
+  | { readonly type: 'sweep_live'; readonly sweep: unknown }
+  | { readonly type: 'sweep_recorded'; readonly sweep: unknown }
   | { readonly type: 'live'; readonly live: LiveSnapshot }
   | { readonly type: 'job'; readonly view: JobView | null }
   | { readonly type: 'error'; readonly code: string; readonly message: string };

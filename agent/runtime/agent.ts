@@ -17,6 +17,8 @@ import { openPlantLink, type PlantLink } from '../mqtt/plant-link.js';
 import { metricValues } from '../mqtt/sparkplug/metrics.js';
 import { openWatcher, type Watcher, type WatchStatus } from '../watcher/index.js';
 import { EventCapturer } from '../capture/event-capture.js';
+import { SweepRecorder } from '../sweep/recorder.js';
+import type { StoredSweep } from '../sweep/store.js';
 import { GpioSpeedCheck } from './gpio-speed-check.js';
 import { AgentRuntime, type LiveConsumer, type RunSummary, type WindowConsumer } from './runtime.js';
 
@@ -44,6 +46,8 @@ export interface AgentOptions {
   readonly startMs?: number;
   /** Calendar seconds per second of samples (a simulation's time_scale); event times follow it. */
   readonly timeScale?: number;
+  /** Told of every recorded sweep once it is stored (the live page). */
+  readonly onSweep?: (s: StoredSweep) => void;
   /** Called once the outputs are open and sampling starts (systemd READY). */
   readonly onStarted?: () => void;
 }
@@ -65,6 +69,7 @@ export class Agent {
   private gpioSpeed: GpioSpeedCheck | null = null;
   private runtime: AgentRuntime | null = null;
   private capturer: EventCapturer | null = null;
+  private sweeps: SweepRecorder | null = null;
   private lastWindow: WindowResult | null = null;
   private lastStatus: WatchStatus | null = null;
   private events = 0;
@@ -83,6 +88,11 @@ export class Agent {
 
   get status(): WatchStatus | null {
     return this.lastStatus;
+  }
+
+  /** The run-up and coast-down recorder (null until sampling starts). */
+  get sweepRecorder(): SweepRecorder | null {
+    return this.sweeps;
   }
 
   /** Queues an event from another part (the live page, the agent itself) like the watcher's own. */
@@ -115,6 +125,12 @@ export class Agent {
     this.lastWindow = w;
     this.lastStatus = status;
     for (const e of events) this.emit(e);
+    if (this.sweeps) {
+      const before = this.sweeps.lastSweep;
+      this.sweeps.onWindow(w);
+      // The last sweep is evidence for the watcher from the next window on.
+      if (this.sweeps.lastSweep !== before) this.watcher.setSweepEvidence(this.sweeps.evidence());
+    }
     this.gpioSpeed?.onWindow(w);
     if (this.advisory) {
       const channels: AdvisoryChannelInput[] = cfg.sensors.map((s) => {
@@ -155,6 +171,7 @@ export class Agent {
       ...(this.runtime?.timeHealth() ?? {}),
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
+      ...(this.sweeps ? { sweeps_recorded: this.sweeps.recorded, sweeps_failed: this.sweeps.failed, sweeps_removed: this.sweeps.removed } : {}),
       ...(this.capturer ? { captures_written: this.capturer.written, captures_failed: this.capturer.failed, captures_removed: this.capturer.removed } : {}),
       ...(this.eventLog?.health() ?? {}),
       ...this.linkHealth(),
@@ -252,6 +269,11 @@ export class Agent {
           this.capturer = new EventCapturer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock, log, timeOf, nowMs: () => this.o.clock.now() });
           return this.capturer;
         },
+        revolutionTap: (info, timeOf) => {
+          this.sweeps = new SweepRecorder({ config: cfg, sampleRate: info.sampleRate, log, timeOf, nowMs: () => this.o.clock.now(), emit: (e) => this.emit(e), onStored: this.o.onSweep });
+          this.watcher.setSweepEvidence(this.sweeps.evidence());
+          return this.sweeps.points;
+        },
         startMs: this.o.startMs,
         timeScale: this.o.timeScale,
         windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
@@ -259,6 +281,8 @@ export class Agent {
       });
       this.o.onStarted?.();
       summary = await this.runtime.run();
+      // A sweep still going at the stop is recorded as far as it got.
+      await this.sweeps?.close(this.lastWindow?.end_index ?? 0);
     } catch (e) {
       // Failed to start or to go on: let go of the broker connection so a retry (or the fallback
       // to the last good config) does not meet this one under the same client id.

@@ -12,6 +12,7 @@
  *
  * Nothing is started here: `agent.run()` opens the outputs and samples, `startLive()` listens.
  */
+import type { StoredSweep } from '../sweep/store.js';
 import type { GpioLines } from '../../drivers/gpio/types.js';
 import type { SampleSource } from '../../drivers/source.js';
 import type { Clock } from '../clock.js';
@@ -81,6 +82,8 @@ export async function assemble(o: AssemblyOptions): Promise<Assembly> {
           clock: o.clock,
           emit: (e) => theAgent().queueEvent(e),
           onCoefficientsSaved: () => theAgent().watcher.reloadCoefficients(),
+          sweepLive: () => agent?.sweepRecorder?.live() ?? null,
+          sweepEvidence: () => agent?.sweepRecorder?.evidence() ?? null,
         },
         o.env,
       )
@@ -109,6 +112,7 @@ export async function assemble(o: AssemblyOptions): Promise<Assembly> {
     ],
     liveConsumers: live ? [live] : [],
     onEvent: o.onEvent,
+    ...(live ? { onSweep: (s: StoredSweep) => live.onSweep(s) } : {}),
     onStarted: o.onStarted,
   });
   agent = built;

@@ -1,7 +1,7 @@
 import type { SampleSource, SourceInfo, SourceItem } from '../../drivers/source.js';
 import type { Clock } from '../clock.js';
 import type { Config } from '../config/schema.js';
-import { Analyzer } from '../dsp/analyzer.js';
+import { Analyzer, type RevolutionTap } from '../dsp/analyzer.js';
 import type { LiveFrame, WindowResult } from '../dsp/types.js';
 import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
@@ -52,6 +52,8 @@ export interface RuntimeOptions {
   readonly boardTimesTach?: boolean;
   /** Built once the source is open (it needs the sample rate and channel count). */
   readonly rawTap?: (info: SourceInfo, timeOf: (index: number) => number, maxBlock: number) => RawTap;
+  /** Built once the source is open: sees every trusted revolution (the sweep recorder's speed points). */
+  readonly revolutionTap?: (info: SourceInfo, timeOf: (index: number) => number) => RevolutionTap;
   /** A live block later or earlier than its stamped time by more than this is a wall-clock step, ms. */
   readonly clockStepToleranceMs?: number;
 }
@@ -93,22 +95,6 @@ export class AgentRuntime {
     const fs = info.sampleRate;
     const startMs = this.opts.startMs ?? clock.now();
     const maxBlock = 1 << 16;
-    const an = new Analyzer({
-      config,
-      sampleRate: fs,
-      channelCount: info.channelCount,
-      maxBlock,
-      boardTimesTach: this.opts.boardTimesTach,
-      sourceName: info.description,
-      liveRevolutions: this.opts.liveRevolutions,
-    });
-    this.analyzer = an;
-    logger.info({ source: info.description, sample_rate_hz: fs, channels: info.channelCount }, 'acquisition started');
-    const windowSamples = Math.round(this.opts.windowSeconds * fs);
-    const liveSamples = Math.max(1, Math.round(this.opts.liveSeconds * fs));
-    let windowEnd = windowSamples;
-    let nextLive = liveSamples;
-    let first: number | undefined;
     // Wall-clock steps and board restarts are logged once per burst, and counted in timeHealth().
     const stepLog = new BurstLog(logger, { nowMs: () => clock.now(), quietMs: 60_000 });
     const timeline = new SampleTimeline({
@@ -119,6 +105,23 @@ export class AgentRuntime {
     });
     this.timeline = timeline;
     const timeOf = (index: number) => timeline.timeOf(index);
+    const an = new Analyzer({
+      config,
+      sampleRate: fs,
+      channelCount: info.channelCount,
+      maxBlock,
+      boardTimesTach: this.opts.boardTimesTach,
+      sourceName: info.description,
+      liveRevolutions: this.opts.liveRevolutions,
+      revolutionTap: this.opts.revolutionTap?.(info, timeOf),
+    });
+    this.analyzer = an;
+    logger.info({ source: info.description, sample_rate_hz: fs, channels: info.channelCount }, 'acquisition started');
+    const windowSamples = Math.round(this.opts.windowSeconds * fs);
+    const liveSamples = Math.max(1, Math.round(this.opts.liveSeconds * fs));
+    let windowEnd = windowSamples;
+    let nextLive = liveSamples;
+    let first: number | undefined;
     const tap = this.opts.rawTap?.(info, timeOf, maxBlock);
     try {
       for await (const item of source.items()) {

@@ -1,5 +1,6 @@
 import type { Config } from '../config/schema.js';
 import type { SpeedPoint } from '../dsp/speed-points.js';
+import { round } from '../report/units.js';
 import { findSweeps } from './detect.js';
 import { findResonances, type Resonance } from './resonance.js';
 
@@ -30,6 +31,9 @@ export interface Sweep {
   /** Mean rate of speed change, r/min per second (negative on a coast-down). */
   readonly rate_rpm_per_s: number;
   readonly points: number;
+  /** Sample-clock end indices of the sweep's first and last points. */
+  readonly first_index: number;
+  readonly last_index: number;
   readonly channels: readonly SweepChannel[];
   readonly warnings: readonly string[];
 }
@@ -92,8 +96,70 @@ export function sweepsFromPoints(points: readonly SpeedPoint[], cfg: Config, sam
       duration_s: duration,
       rate_rpm_per_s: duration > 0 ? (last.rpm - first.rpm) / duration : 0,
       points: pts.length,
+      first_index: first.end_index,
+      last_index: last.end_index,
       channels,
       warnings,
     };
   });
 }
+
+/** One sweep as `turnwise sweep --json` prints it (also the body of each sweep the agent stores). */
+export function sweepRecordJson(s: Sweep): SweepRecordJson {
+  return {
+    direction: s.direction,
+    from_rpm: round(s.from_rpm, 1),
+    to_rpm: round(s.to_rpm, 1),
+    start_s: round(s.start_s, 2),
+    duration_s: round(s.duration_s, 2),
+    rate_rpm_per_s: round(s.rate_rpm_per_s, 2),
+    channels: s.channels.map((c) => ({
+      id: c.id,
+      bearing: c.bearing,
+      direction: c.direction,
+      mounting_angle_deg: c.mounting_angle_deg,
+      points: c.points.map((p) => ({ rpm: round(p.rpm, 1), amp_pk_mm_s: round(p.amp_pk_mm_s, 3), phase_deg: round(p.phase_deg, 1) })),
+      resonances: c.resonances.map((r) => ({
+        rpm: round(r.rpm, 1),
+        amp_pk_mm_s: round(r.amp_pk_mm_s, 3),
+        phase_deg: round(r.phase_deg, 1),
+        half_power_rpm: r.half_power_rpm.map((x) => round(x, 1)),
+        phase_shift_deg: round(r.phase_shift_deg, 1),
+        amplification_factor: round(r.amplification_factor, 2),
+        separation_margin_pct: round(r.separation_margin_pct, 1),
+        required_margin_pct: round(r.required_margin_pct, 1),
+        margin_ok: r.margin_ok,
+      })),
+    })),
+    warnings: s.warnings,
+  };
+}
+
+
+export type SweepRecordJson = {
+  direction: 'up' | 'down';
+  from_rpm: number | null;
+  to_rpm: number | null;
+  start_s: number | null;
+  duration_s: number | null;
+  rate_rpm_per_s: number | null;
+  channels: {
+    id: string;
+    bearing: string;
+    direction: string;
+    mounting_angle_deg: number;
+    points: { rpm: number | null; amp_pk_mm_s: number | null; phase_deg: number | null }[];
+    resonances: {
+      rpm: number | null;
+      amp_pk_mm_s: number | null;
+      phase_deg: number | null;
+      half_power_rpm: (number | null)[];
+      phase_shift_deg: number | null;
+      amplification_factor: number | null;
+      separation_margin_pct: number | null;
+      required_margin_pct: number | null;
+      margin_ok: boolean | null;
+    }[];
+  }[];
+  warnings: readonly string[];
+};

@@ -4,6 +4,7 @@ import { baselineFromConfig, vectorChange, type Baseline, type VectorChange } fr
 import { assessHealth, type HealthReport } from './health.js';
 import { resolveWatcherSettings, type WatcherSettings } from './settings.js';
 import { RULES } from './rules/index.js';
+import type { SweepEvidence } from './rules/types.js';
 import { diagnoseUnbalance, type RecentWindow, type UnbalanceAssessment } from './signature.js';
 import { evaluateZones, speedReport, type SpeedReport, type ZoneReport } from './zones.js';
 
@@ -40,13 +41,13 @@ export function vectorChanges(s: WatcherSettings, window: WindowResult, health: 
 }
 
 /** The same as assessWindow, with settings resolved and health known (the live watcher's path). */
-export function assessWith(s: WatcherSettings, window: WindowResult, health: HealthReport, baseline: Baseline | null, recent: readonly RecentWindow[]): WindowAssessment {
+export function assessWith(s: WatcherSettings, window: WindowResult, health: HealthReport, baseline: Baseline | null, recent: readonly RecentWindow[], sweep: SweepEvidence | null = null): WindowAssessment {
   const speed = speedReport(s, window);
   const zone = evaluateZones(s, window, health, baseline, speed);
   const vectorChange = vectorChanges(s, window, health, baseline);
   return {
     zone,
-    unbalance: diagnoseUnbalance(s, window, health, recent, RULES, { zone, vectorChange, baseline }),
+    unbalance: diagnoseUnbalance(s, window, health, recent, RULES, { zone, vectorChange, baseline, sweep }),
     sensors: health.channels,
     tach: health.tach,
     speed,

@@ -16,6 +16,7 @@ import { FileHistoryStore, History, HistoryAggregator, type HistoryStore } from 
 import { zoneIndex, worseZone, zoneWithHysteresis, type Zone } from './limits.js';
 import { resolveWatcherSettings, type WatcherSettings } from './settings.js';
 import type { RecentWindow } from './signature.js';
+import type { SweepEvidence } from './rules/types.js';
 import { StateTable, STATE_VERSION, type ConfirmedStates, type StateChange, type StateKey, type ValueOf, type WatcherSnapshot } from './state-table.js';
 import {
   FileBaselineStore,
@@ -84,6 +85,7 @@ function overWithHysteresis(prev: boolean | undefined, value: number, limit: num
  * history and its trend, and forecasts the balance correction when coefficients are stored.
  */
 export class Watcher {
+  private sweepEvidence: SweepEvidence | null = null;
   readonly settings: WatcherSettings;
   private readonly recent: RecentWindow[] = [];
   private readonly zoneHyst = new Map<string, Zone>();
@@ -178,6 +180,11 @@ export class Watcher {
   }
 
   /** Reads the stored influence coefficients again (call after a balancing job saved new ones). */
+  /** The last recorded sweep's resonances, used as evidence from the next window on (null: none known). */
+  setSweepEvidence(e: SweepEvidence | null): void {
+    this.sweepEvidence = e;
+  }
+
   reloadCoefficients(): void {
     try {
       this.coeffs = this.deps.coefficients.load();
@@ -230,7 +237,7 @@ export class Watcher {
     const nowMs = this.deps.clock.now();
     const origin: EventOrigin = { asset: s.asset, run: this.run, window, ts: new Date(nowMs).toISOString() };
     const health = assessHealth(window, s);
-    const a = assessWith(s, window, health, this.baselineValue, this.recent);
+    const a = assessWith(s, window, health, this.baselineValue, this.recent, this.sweepEvidence);
     this.recent.push({ window, health });
     if (this.recent.length >= s.w.unbalance.stability_windows) this.recent.shift();
     this.latest = a;

@@ -7,6 +7,7 @@
  * action is validated, logged, evented and saved, one at a time. The live server's HTTP routes and
  * the MQTT `balancing.session` command call these actions; they hold no logic of their own.
  */
+import type { SweepEvidence } from '../../watcher/rules/types.js';
 import type { z } from 'zod';
 import type { Clock } from '../../clock.js';
 import type { Config } from '../../config/schema.js';
@@ -63,6 +64,8 @@ export interface WorkbenchDeps {
   readonly capture: Omit<CaptureSettings, 'revolutions'> & { readonly revolutions: number };
   /** Latest live speed, r/min. */
   readonly liveSpeed: () => number | null;
+  /** Resonances of the last recorded run-up or coast-down (agent/sweep), for the warning near one. */
+  readonly sweepEvidence?: () => SweepEvidence | null;
   /** Told whenever the open job changes (also on capture progress). */
   readonly onChange?: (view: JobView | null) => void;
 }
@@ -136,6 +139,7 @@ export class BalancingWorkbench {
       capture,
       liveSpeedRpm: this.deps.liveSpeed(),
       ratedRpm: ratedRpmOf(this.deps.config),
+      sweep: this.deps.sweepEvidence?.() ?? null,
     });
   }
 

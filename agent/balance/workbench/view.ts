@@ -4,6 +4,7 @@
  * moment's context (capture progress, live speed) in, plain data out. The page's workbench script
  * (agent/live/page/workbench.js) is type-checked against JobView.
  */
+import type { SweepEvidence } from '../../watcher/rules/types.js';
 import type { Config } from '../../config/schema.js';
 import { conventionText } from '../conventions.js';
 import type { PlaneWeight } from '../job.js';
@@ -45,6 +46,8 @@ export interface JobView {
   }> | null;
   readonly trial_suggestion_missing: string | null;
   readonly proposals: readonly ProposedChange[];
+  /** Set when the balancing speed sits inside a resonance's half-power band on the last recorded sweep. */
+  readonly resonance_warning: string | null;
   readonly cautions: readonly string[];
 }
 
@@ -56,6 +59,24 @@ export interface ViewContext {
   readonly liveSpeedRpm: number | null;
   /** The machine's rated speed, r/min (config machine.rated_rpm). */
   readonly ratedRpm: number | null;
+  /** Resonances of the last recorded sweep; absent or null when none is known. */
+  readonly sweep?: SweepEvidence | null;
+}
+
+/**
+ * Influence coefficients measured near a resonance are unreliable (common practice: there the 1x
+ * amplitude and phase change sharply with small speed changes, so the trial run's change is not the
+ * weight's alone). Returns the warning when `speedRpm` is inside a half-power band of the sweep.
+ */
+export function resonanceWarning(speedRpm: number | null, sweep: SweepEvidence | null | undefined): string | null {
+  if (speedRpm === null || !sweep) return null;
+  const near = sweep.resonances.filter((r) => speedRpm >= r.half_power_rpm[0] && speedRpm <= r.half_power_rpm[1]);
+  if (near.length === 0) return null;
+  const where = near.map((r) => `${Math.round(r.rpm)} r/min on ${r.sensor} (half-power band ${Math.round(r.half_power_rpm[0])}-${Math.round(r.half_power_rpm[1])})`).join('; ');
+  return (
+    `The balancing speed ${Math.round(speedRpm)} r/min is inside the band of a resonance found on the last ${sweep.direction === 'up' ? 'run-up' : 'coast-down'} (sweep ${sweep.sweep_id}): ${where}. ` +
+    'Influence coefficients measured here are unreliable: the 1x swings with small speed changes. Balance at a speed away from the resonance if the process allows, and have the support checked.'
+  );
 }
 
 /** Speed for forces and suggestions: the job's given speed, else the as-found run's, else live, else rated, r/min. */
@@ -114,6 +135,7 @@ export function jobView(job: WorkbenchJob, ctx: ViewContext): JobView {
     trial_suggestion: trial,
     trial_suggestion_missing: missing,
     proposals: proposals(job),
+    resonance_warning: resonanceWarning(speed, ctx.sweep),
     cautions: balancingCautions(),
   };
 }

@@ -1,9 +1,8 @@
 import { loadConfig } from '../../config/load.js';
 import type { Config } from '../../config/schema.js';
 import { SpeedPointRecorder } from '../../dsp/speed-points.js';
-import { UserError } from '../../errors.js';
 import { fmtVel, round, table } from '../../report/units.js';
-import { sweepsFromPoints, type Sweep } from '../../sweep/sweeps.js';
+import { sweepRecordJson, sweepsFromPoints, type Sweep } from '../../sweep/sweeps.js';
 import { measureRecording, recordingArgs } from '../recording.js';
 import type { Command } from '../command.js';
 import { Progress } from '../progress.js';
@@ -26,33 +25,7 @@ export function sweepJson(file: string, sweeps: readonly Sweep[]): Record<string
     phase_convention: "lag in degrees (0-360) from the tach rising edge to the positive peak of the 1x velocity component, as measured (mounting_angle_deg not subtracted)",
     amplification_factor_method: 'half-power on the measured 1x amplitude curve: AF = N_peak / (N2 - N1) at 0.707 of the peak (API 684 practice, from memory)',
     separation_margin_basis: 'separation_margin_pct = 100 x |rated - N_peak| / rated; required_margin_pct per API 684 for that AF (from memory)',
-    sweeps: sweeps.map((s) => ({
-      direction: s.direction,
-      from_rpm: round(s.from_rpm, 1),
-      to_rpm: round(s.to_rpm, 1),
-      start_s: round(s.start_s, 2),
-      duration_s: round(s.duration_s, 2),
-      rate_rpm_per_s: round(s.rate_rpm_per_s, 2),
-      channels: s.channels.map((c) => ({
-        id: c.id,
-        bearing: c.bearing,
-        direction: c.direction,
-        mounting_angle_deg: c.mounting_angle_deg,
-        points: c.points.map((p) => ({ rpm: round(p.rpm, 1), amp_pk_mm_s: round(p.amp_pk_mm_s, 3), phase_deg: round(p.phase_deg, 1) })),
-        resonances: c.resonances.map((r) => ({
-          rpm: round(r.rpm, 1),
-          amp_pk_mm_s: round(r.amp_pk_mm_s, 3),
-          phase_deg: round(r.phase_deg, 1),
-          half_power_rpm: r.half_power_rpm.map((x) => round(x, 1)),
-          phase_shift_deg: round(r.phase_shift_deg, 1),
-          amplification_factor: round(r.amplification_factor, 2),
-          separation_margin_pct: round(r.separation_margin_pct, 1),
-          required_margin_pct: round(r.required_margin_pct, 1),
-          margin_ok: r.margin_ok,
-        })),
-      })),
-      warnings: s.warnings,
-    })),
+    sweeps: sweeps.map(sweepRecordJson),
   };
 }
 

@@ -10,6 +10,7 @@ import { PolarPlot } from './polar.js';
 import { Trend } from './trend.js';
 import { Workbench } from './workbench.js';
 import { showRecords, showReport } from './report.js';
+import { SweepsView } from './sweeps.js';
 
 // The server's own types: the page is checked against what agent/live/view.ts sends.
 /** @typedef {import('../view.js').SessionView} SessionView */
@@ -33,13 +34,15 @@ const cards = new Map();
 let trend = null;
 /** @type {Workbench | null} */
 let workbench = null;
+/** @type {SweepsView | null} */
+let sweeps = null;
 let reconnectMs = 1000;
 
 function showLogin(message = '') {
   sessionStorage.removeItem(TOKEN_KEY);
   socket?.close();
   socket = null;
-  for (const id of ['view-live', 'view-job', 'view-records', 'view-report']) $(id).hidden = true;
+  for (const id of ['view-live', 'view-job', 'view-records', 'view-report', 'view-sweeps']) $(id).hidden = true;
   $('login').hidden = false;
   fill($('login-msg'), message ? h('div', { class: 'msg msg-error', role: 'alert' }, message) : null);
   /** @type {HTMLInputElement} */ ($('token')).focus();
@@ -64,6 +67,7 @@ async function start(token) {
   buildCards(me);
   if (!trend) trend = new Trend($('trend'), me.sensors.map((s) => s.id));
   workbench ??= new Workbench($('view-job'), me, () => lastLive);
+  sweeps ??= new SweepsView($('view-sweeps'), me.sensors);
   connect();
   route();
 }
@@ -201,6 +205,8 @@ function connect() {
     } else if (m.type === 'live') renderLive(m.live);
     else if (m.type === 'trend') trend?.set(m.points);
     else if (m.type === 'trend_point') trend?.add(m.point);
+    else if (m.type === 'sweep_live') sweeps?.onLive(m.sweep);
+    else if (m.type === 'sweep_recorded') void sweeps?.onRecorded(m.sweep);
     else if (m.type === 'job') {
       workbench?.update(m.view);
       jobNote(m.view);
@@ -229,13 +235,14 @@ function route() {
   if (!session) return;
   const hash = location.hash.replace(/^#/, '') || 'live';
   const [page, arg] = hash.split('/');
-  const views = { live: 'view-live', job: 'view-job', records: 'view-records', report: 'view-report' };
+  const views = { live: 'view-live', job: 'view-job', records: 'view-records', report: 'view-report', sweeps: 'view-sweeps' };
   const current = /** @type {keyof typeof views} */ (page && page in views ? page : 'live');
   for (const [k, id] of Object.entries(views)) $(id).hidden = k !== current;
   document.querySelectorAll('nav a').forEach((a) => a.classList.toggle('active', /** @type {HTMLElement} */ (a).dataset.nav === (current === 'report' ? 'records' : current)));
   if (current === 'records') void showRecords($('view-records'));
   if (current === 'report' && arg) void showReport($('view-report'), decodeURIComponent(arg), session);
   if (current === 'job') workbench?.show();
+  if (current === 'sweeps') void sweeps?.load();
   if (current === 'live') lastLive && renderLive(lastLive);
 }
 

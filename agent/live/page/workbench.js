@@ -151,6 +151,7 @@ export class Workbench {
         ? h('div', { class: 'msg msg-ok' }, `This job is ${j.status} (${when(j.closed?.at)}, ${j.closed?.by.name}${j.closed?.note ? `: ${j.closed.note}` : ''}).`, ' ', h('a', { href: `#report/${encodeURIComponent(j.job_id)}` }, 'Open the report'))
         : h('ol', { class: 'steps' }, steps.map((t, i) => h('li', { class: i < doneCount ? 'done' : i === doneCount ? 'now' : '' }, t))),
       j.status === 'open' ? h('p', { class: 'msg', id: 'next-step', dataset: { step: v.step } }, h('strong', null, 'Next: '), v.next) : null,
+      j.status === 'open' && v.resonance_warning ? h('p', { class: 'msg msg-warn', id: 'resonance-warning', role: 'alert' }, v.resonance_warning) : null,
       v.capture ? this.captureBlock(v.capture) : null,
       this.latestBlock(v),
       this.weightsBlock(v),

@@ -7,6 +7,7 @@ import { oneXSize } from './one-x-size.js';
 import { phaseStabilityRule } from './phase-stability.js';
 import { sensorFaults } from './sensor-faults.js';
 import { significance } from './significance.js';
+import { sweepResonance } from './sweep-resonance.js';
 import type { WatcherRule } from './types.js';
 
 /**
@@ -15,6 +16,6 @@ import type { WatcherRule } from './types.js';
  * To add one: a file here exporting a WatcherRule, a line in this list, its thresholds as keys of
  * watcher.unbalance in agent/config/watcher.ts (DEVELOPERS.md, "How to add a watcher rule").
  */
-export const RULES: readonly WatcherRule[] = [sensorFaults, oneXSize, oneXShare, harmonics, hvShape, bearingPhase, axial, phaseStabilityRule, significance];
+export const RULES: readonly WatcherRule[] = [sensorFaults, oneXSize, oneXShare, harmonics, hvShape, bearingPhase, axial, phaseStabilityRule, sweepResonance, significance];
 
 export * from './types.js';

@@ -83,11 +83,20 @@ export interface RuleFacts {
   not_significant?: boolean;
 }
 
+/** The resonances of the last recorded run-up or coast-down (agent/sweep), as evidence for the 1x rules. */
+export interface SweepEvidence {
+  readonly sweep_id: string;
+  readonly direction: 'up' | 'down';
+  readonly resonances: readonly { readonly sensor: string; readonly rpm: number; readonly half_power_rpm: readonly [number, number] }[];
+}
+
 /** What the significance rule compares against: this window's zones and the change from the baseline. */
 export interface SignificanceInputs {
   readonly zone: ZoneReport;
   readonly vectorChange: Readonly<Record<string, { readonly delta_mm_s: number; readonly significant: boolean }>> | null;
   readonly baseline: Baseline | null;
+  /** The last recorded sweep's resonances; absent or null when no sweep is known. */
+  readonly sweep?: SweepEvidence | null;
 }
 
 export interface RuleResult {
