@@ -50,7 +50,12 @@ export class BurstLog {
    * problems under one key (a refused password and a refused connection, say). Returns true when
    * this occurrence was written, false when it was only counted.
    */
-  report(key: string, detail: string, fields: Record<string, unknown> = {}, kind?: string): boolean {
+  report(
+    key: string,
+    detail: string,
+    fields: Record<string, unknown> = {},
+    kind?: string,
+  ): boolean {
     const now = this.nowMs();
     const b = this.bursts.get(key);
     if (b && b.kind === kind && now - b.lastMs < this.quietMs) {
@@ -61,8 +66,19 @@ export class BurstLog {
       return false;
     }
     if (b) this.end(key, b);
-    this.bursts.set(key, { firstMs: now, lastMs: now, lastSummaryMs: now, count: 1, unlogged: 0, lastDetail: detail, kind });
-    this.log.warn({ ...fields, problem: key }, `${detail} (further "${key}" problems are counted and summarised)`);
+    this.bursts.set(key, {
+      firstMs: now,
+      lastMs: now,
+      lastSummaryMs: now,
+      count: 1,
+      unlogged: 0,
+      lastDetail: detail,
+      kind,
+    });
+    this.log.warn(
+      { ...fields, problem: key },
+      `${detail} (further "${key}" problems are counted and summarised)`,
+    );
     return true;
   }
 
@@ -71,7 +87,10 @@ export class BurstLog {
     const b = this.bursts.get(key);
     if (!b) return false;
     this.bursts.delete(key);
-    this.log.info({ ...fields, problem: key, occurrences: b.count, lasted_s: this.lastedS(b, this.nowMs()) }, message);
+    this.log.info(
+      { ...fields, problem: key, occurrences: b.count, lasted_s: this.lastedS(b, this.nowMs()) },
+      message,
+    );
     return true;
   }
 
@@ -100,7 +119,10 @@ export class BurstLog {
     this.bursts.delete(key);
     if (b.count < 2) return;
     const lasted = this.lastedS(b, b.lastMs);
-    this.log.info({ problem: key, occurrences: b.count, lasted_s: lasted }, `"${key}" burst over: ${b.count} occurrence(s) in ${lasted.toFixed(1)} s; last: ${b.lastDetail}`);
+    this.log.info(
+      { problem: key, occurrences: b.count, lasted_s: lasted },
+      `"${key}" burst over: ${b.count} occurrence(s) in ${lasted.toFixed(1)} s; last: ${b.lastDetail}`,
+    );
   }
 
   private lastedS(b: Burst, untilMs: number): number {

@@ -12,7 +12,11 @@ export interface Logger {
 
 /** A logger that keeps every line, for tests. */
 export class MemoryLogger implements Logger {
-  readonly lines: Array<{ level: 'debug' | 'info' | 'warn' | 'error'; msg: string; fields: Record<string, unknown> }> = [];
+  readonly lines: Array<{
+    level: 'debug' | 'info' | 'warn' | 'error';
+    msg: string;
+    fields: Record<string, unknown>;
+  }> = [];
   debug(fields: Record<string, unknown>, msg: string): void {
     this.lines.push({ level: 'debug', msg, fields });
   }

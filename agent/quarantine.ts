@@ -9,5 +9,9 @@ export const QUARANTINE_DIR = 'quarantine';
  * never overwrites an earlier one. Used by the outbox (records) and the watcher (state, baseline, history).
  */
 export function quarantinePath(file: string, nowMs: number): string {
-  return join(dirname(file), QUARANTINE_DIR, `${basename(file)}.${new Date(nowMs).toISOString().replace(/[:.]/g, '-')}`);
+  return join(
+    dirname(file),
+    QUARANTINE_DIR,
+    `${basename(file)}.${new Date(nowMs).toISOString().replace(/[:.]/g, '-')}`,
+  );
 }

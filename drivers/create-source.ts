@@ -32,21 +32,37 @@ export interface CreateSourceDeps {
  * the section are relative to the config file's folder. Nothing is opened here: `source.open()` does
  * that and names what is wrong (a missing recording, an absent board is retried).
  */
-export function createSource(cfg: Config, configFile: string, deps: CreateSourceDeps): CreatedSource {
+export function createSource(
+  cfg: Config,
+  configFile: string,
+  deps: CreateSourceDeps,
+): CreatedSource {
   const a = cfg.acquisition;
   if (!a) {
-    throw new UserError(`${configFile}: acquisition`, 'the config says nowhere where the samples come from', 'add an acquisition section: driver wav (a recording), serial (the board) or sim (the simulated fan); see config/example.yaml and docs/acquisition.md');
+    throw new UserError(
+      `${configFile}: acquisition`,
+      'the config says nowhere where the samples come from',
+      'add an acquisition section: driver wav (a recording), serial (the board) or sim (the simulated fan); see config/example.yaml and docs/acquisition.md',
+    );
   }
   switch (a.driver) {
     case 'wav': {
-      const wav = new WavSource(existingFile(configFile, 'file', a.file, 'recording'), { pcmFullScaleV: a.pcm_full_scale_v });
+      const wav = new WavSource(existingFile(configFile, 'file', a.file, 'recording'), {
+        pcmFullScaleV: a.pcm_full_scale_v,
+      });
       return { source: a.realtime ? new PacedSource(wav, deps.pacer) : wav, boardTimesTach: false };
     }
     case 'serial':
-      return { source: new SerialSource(serialOptionsFromConfig(a, deps.log)), boardTimesTach: a.board_tach_edges };
+      return {
+        source: new SerialSource(serialOptionsFromConfig(a, deps.log)),
+        boardTimesTach: a.board_tach_edges,
+      };
     case 'sim':
       existingFile(configFile, 'scenario', a.scenario, 'scenario file');
-      return { source: createSimSource(cfg, a, configFile, { pacer: deps.pacer }), boardTimesTach: a.board_tach_edges };
+      return {
+        source: createSimSource(cfg, a, configFile, { pacer: deps.pacer }),
+        boardTimesTach: a.board_tach_edges,
+      };
   }
 }
 
@@ -55,7 +71,11 @@ function existingFile(configFile: string, key: string, path: string, what: strin
   const folder = dirname(resolve(configFile));
   const abs = resolve(folder, path);
   if (!existsSync(abs)) {
-    throw new UserError(`${configFile}: acquisition.${key}`, `${what} ${abs} not found (a relative path is taken from the config file's folder, ${folder})`, `fix acquisition.${key}, or put the ${what} there`);
+    throw new UserError(
+      `${configFile}: acquisition.${key}`,
+      `${what} ${abs} not found (a relative path is taken from the config file's folder, ${folder})`,
+      `fix acquisition.${key}, or put the ${what} there`,
+    );
   }
   return abs;
 }

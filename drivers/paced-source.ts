@@ -29,7 +29,12 @@ export class PacedSource implements SampleSource {
           first = item.startIndex;
           t0 = this.pacer.now();
         }
-        await waitForSamples(this.pacer, t0, item.startIndex + (item.channels[0]?.length ?? 0) - first, this.sampleRate);
+        await waitForSamples(
+          this.pacer,
+          t0,
+          item.startIndex + (item.channels[0]?.length ?? 0) - first,
+          this.sampleRate,
+        );
       }
       yield item;
     }

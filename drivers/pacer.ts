@@ -16,7 +16,12 @@ export const systemPacer: Pacer = {
 };
 
 /** Waits until `samples` samples after `t0Ms` (a `pacer.now()` reading) are due at `sampleRate` per second. */
-export async function waitForSamples(pacer: Pacer, t0Ms: number, samples: number, sampleRate: number): Promise<void> {
+export async function waitForSamples(
+  pacer: Pacer,
+  t0Ms: number,
+  samples: number,
+  sampleRate: number,
+): Promise<void> {
   const wait = t0Ms + (samples / sampleRate) * 1000 - pacer.now();
   if (wait > 0) await pacer.sleep(wait);
 }

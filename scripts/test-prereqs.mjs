@@ -35,9 +35,17 @@ export function findExecutable(name, env = process.env) {
 
 /** Python modules the tests import, with the Debian package that provides each. */
 const PY_MODULES = [
-  { module: 'numpy', pkg: 'python3-numpy', why: 'reference WAV reading and the numpy/scipy bench peer' },
+  {
+    module: 'numpy',
+    pkg: 'python3-numpy',
+    why: 'reference WAV reading and the numpy/scipy bench peer',
+  },
   { module: 'scipy', pkg: 'python3-scipy', why: 'reference WAV reading (scipy.io.wavfile)' },
-  { module: 'google.protobuf', pkg: 'python3-protobuf', why: 'Sparkplug B payloads decoded by the reference protobuf library' },
+  {
+    module: 'google.protobuf',
+    pkg: 'python3-protobuf',
+    why: 'Sparkplug B payloads decoded by the reference protobuf library',
+  },
 ];
 
 /**
@@ -59,41 +67,104 @@ function pythonMissing(python, env) {
  */
 export function testPython(env = process.env) {
   if (env.TURNWISE_PYTHON) return env.TURNWISE_PYTHON;
-  const candidates = [findExecutable('python3', env), existsSync('/usr/bin/python3') ? '/usr/bin/python3' : null].filter((p, i, a) => p && a.indexOf(p) === i);
+  const candidates = [
+    findExecutable('python3', env),
+    existsSync('/usr/bin/python3') ? '/usr/bin/python3' : null,
+  ].filter((p, i, a) => p && a.indexOf(p) === i);
   for (const p of candidates) if (pythonMissing(p, env)?.length === 0) return p;
   return candidates.at(-1) ?? 'python3';
 }
 
 /** Tools the tests start, with the Debian package that provides each and what the tests use it for. */
 const TOOLS = [
-  { name: 'mosquitto', pkg: 'mosquitto', why: 'the real MQTT broker the MQTT tests publish to', found: (env) => env.TURNWISE_MOSQUITTO ?? findExecutable('mosquitto', env) },
-  { name: 'mosquitto_passwd', pkg: 'mosquitto', why: 'password files for the broker security tests', found: (env) => findExecutable('mosquitto_passwd', env) },
-  { name: 'socat', pkg: 'socat', why: 'real pseudo-terminals for the serial-port tests', found: (env) => findExecutable('socat', env) },
+  {
+    name: 'mosquitto',
+    pkg: 'mosquitto',
+    why: 'the real MQTT broker the MQTT tests publish to',
+    found: (env) => env.TURNWISE_MOSQUITTO ?? findExecutable('mosquitto', env),
+  },
+  {
+    name: 'mosquitto_passwd',
+    pkg: 'mosquitto',
+    why: 'password files for the broker security tests',
+    found: (env) => findExecutable('mosquitto_passwd', env),
+  },
+  {
+    name: 'socat',
+    pkg: 'socat',
+    why: 'real pseudo-terminals for the serial-port tests',
+    found: (env) => findExecutable('socat', env),
+  },
   // test/live-page.test.ts starts this exact path through playwright-core.
-  { name: 'chromium', pkg: 'chromium', why: 'the real browser for the live-page tests (/usr/bin/chromium)', found: () => (existsSync('/usr/bin/chromium') ? '/usr/bin/chromium' : null) },
-  { name: 'openssl', pkg: 'openssl', why: 'the test CA and certificates for the TLS tests', found: (env) => findExecutable('openssl', env) },
-  { name: 'protoc', pkg: 'protobuf-compiler', why: 'Sparkplug B payload checks against the protobuf compiler', found: (env) => findExecutable('protoc', env) },
-  { name: 'shellcheck', pkg: 'shellcheck', why: 'the lint of deploy/install.sh', found: (env) => findExecutable('shellcheck', env) },
-  { name: 'systemd-analyze', pkg: 'systemd', why: 'the verification of the systemd unit', found: (env) => findExecutable('systemd-analyze', env) },
+  {
+    name: 'chromium',
+    pkg: 'chromium',
+    why: 'the real browser for the live-page tests (/usr/bin/chromium)',
+    found: () => (existsSync('/usr/bin/chromium') ? '/usr/bin/chromium' : null),
+  },
+  {
+    name: 'openssl',
+    pkg: 'openssl',
+    why: 'the test CA and certificates for the TLS tests',
+    found: (env) => findExecutable('openssl', env),
+  },
+  {
+    name: 'protoc',
+    pkg: 'protobuf-compiler',
+    why: 'Sparkplug B payload checks against the protobuf compiler',
+    found: (env) => findExecutable('protoc', env),
+  },
+  {
+    name: 'shellcheck',
+    pkg: 'shellcheck',
+    why: 'the lint of deploy/install.sh',
+    found: (env) => findExecutable('shellcheck', env),
+  },
+  {
+    name: 'systemd-analyze',
+    pkg: 'systemd',
+    why: 'the verification of the systemd unit',
+    found: (env) => findExecutable('systemd-analyze', env),
+  },
 ];
 
 /** Every missing prerequisite as { name, pkg, why }. */
 export function missingPrerequisites(env = process.env) {
-  const missing = TOOLS.filter((t) => !t.found(env)).map(({ name, pkg, why }) => ({ name, pkg, why }));
+  const missing = TOOLS.filter((t) => !t.found(env)).map(({ name, pkg, why }) => ({
+    name,
+    pkg,
+    why,
+  }));
   const python = testPython(env);
   const absent = pythonMissing(python, env);
-  if (absent === null) missing.push({ name: 'python3', pkg: 'python3', why: 'reference checks and helpers written in Python' });
-  for (const m of PY_MODULES) if (absent === null || absent.includes(m.module)) missing.push({ name: `python3 module ${m.module}${absent ? ` (in ${python})` : ''}`, pkg: m.pkg, why: m.why });
+  if (absent === null)
+    missing.push({
+      name: 'python3',
+      pkg: 'python3',
+      why: 'reference checks and helpers written in Python',
+    });
+  for (const m of PY_MODULES)
+    if (absent === null || absent.includes(m.module))
+      missing.push({
+        name: `python3 module ${m.module}${absent ? ` (in ${python})` : ''}`,
+        pkg: m.pkg,
+        why: m.why,
+      });
   return missing;
 }
 
 function versionParts(v) {
-  return v.replace(/^[v>=\s]+/, '').split('.').map((p) => Number.parseInt(p, 10) || 0);
+  return v
+    .replace(/^[v>=\s]+/, '')
+    .split('.')
+    .map((p) => Number.parseInt(p, 10) || 0);
 }
 
 /** The message for a Node older than package.json "engines" asks, else null. */
 export function nodeProblem(version = process.versions.node) {
-  const pkg = JSON.parse(readFileSync(fileURLToPath(new URL('../package.json', import.meta.url)), 'utf8'));
+  const pkg = JSON.parse(
+    readFileSync(fileURLToPath(new URL('../package.json', import.meta.url)), 'utf8'),
+  );
   const need = versionParts(pkg.engines.node);
   const have = versionParts(version);
   for (let i = 0; i < 3; i++) {
@@ -109,7 +180,8 @@ export function nodeProblem(version = process.versions.node) {
 }
 
 const packagesOf = (missing) => [...new Set(missing.map((m) => m.pkg))];
-export const installCommand = (missing) => `apt-get install -y --no-install-recommends ${packagesOf(missing).join(' ')}`;
+export const installCommand = (missing) =>
+  `apt-get install -y --no-install-recommends ${packagesOf(missing).join(' ')}`;
 
 /** Why this run may not install: null when it may (root, apt-get present, not switched off). */
 export function cannotInstallBecause(env = process.env) {
@@ -123,20 +195,29 @@ export function cannotInstallBecause(env = process.env) {
 export function missingMessage(missing, why) {
   const w = Math.max(...missing.map((m) => m.name.length));
   const aptLike = !/no apt-get/.test(why);
-  const otherPython = missing.map((m) => / \(in (.+)\)$/.exec(m.name)?.[1]).find((p) => p && p !== '/usr/bin/python3');
+  const otherPython = missing
+    .map((m) => / \(in (.+)\)$/.exec(m.name)?.[1])
+    .find((p) => p && p !== '/usr/bin/python3');
   return (
     `${ME}: cannot run the tests: ${missing.length === 1 ? 'this tool they use is' : `these ${missing.length} tools they use are`} missing (${why}):\n` +
     missing.map((m) => `  ${m.name.padEnd(w)}  ${m.why}; Debian package ${m.pkg}`).join('\n') +
     `\n  -> install ${missing.length === 1 ? 'it' : 'them'}, then run \`npm test\` again:\n` +
     `       sudo apt-get update && sudo ${installCommand(missing)}\n` +
-    (aptLike ? '' : '     (these are the Debian/Ubuntu package names; use the same tools from your system\'s packages)\n') +
-    (otherPython ? `     (Debian's python3-* packages install into /usr/bin/python3; ${otherPython} needs them from its own pip, or unset TURNWISE_PYTHON)\n` : '')
+    (aptLike
+      ? ''
+      : "     (these are the Debian/Ubuntu package names; use the same tools from your system's packages)\n") +
+    (otherPython
+      ? `     (Debian's python3-* packages install into /usr/bin/python3; ${otherPython} needs them from its own pip, or unset TURNWISE_PYTHON)\n`
+      : '')
   );
 }
 
 function run(cmd, args) {
   process.stderr.write(`${ME}: ${cmd} ${args.join(' ')}\n`);
-  const r = spawnSync(cmd, args, { stdio: ['ignore', 2, 2], env: { ...process.env, DEBIAN_FRONTEND: 'noninteractive' } });
+  const r = spawnSync(cmd, args, {
+    stdio: ['ignore', 2, 2],
+    env: { ...process.env, DEBIAN_FRONTEND: 'noninteractive' },
+  });
   return r.status === 0;
 }
 
@@ -155,16 +236,28 @@ export function main() {
       process.stderr.write(missingMessage(missing, why));
       return 2;
     }
-    process.stderr.write(`${ME}: installing the Debian packages the tests need: ${packagesOf(missing).join(' ')} (missing: ${missing.map((m) => m.name).join(', ')})\n`);
-    const ok = run('apt-get', ['update', '-q']) && run('apt-get', ['install', '-y', '-q', '--no-install-recommends', ...packagesOf(missing)]);
+    process.stderr.write(
+      `${ME}: installing the Debian packages the tests need: ${packagesOf(missing).join(' ')} (missing: ${missing.map((m) => m.name).join(', ')})\n`,
+    );
+    const ok =
+      run('apt-get', ['update', '-q']) &&
+      run('apt-get', ['install', '-y', '-q', '--no-install-recommends', ...packagesOf(missing)]);
     missing = missingPrerequisites();
     if (missing.length > 0) {
-      process.stderr.write(missingMessage(missing, ok ? 'still missing after apt-get install' : 'apt-get failed, see its output above'));
+      process.stderr.write(
+        missingMessage(
+          missing,
+          ok ? 'still missing after apt-get install' : 'apt-get failed, see its output above',
+        ),
+      );
       return 2;
     }
   }
-  process.stderr.write(`${ME}: prerequisites OK (Node.js ${process.versions.node}, ${TOOLS.map((t) => t.name).join(', ')}, ${testPython()} with ${PY_MODULES.map((m) => m.module).join(', ')}) in ${((Date.now() - t0) / 1000).toFixed(1)} s\n`);
+  process.stderr.write(
+    `${ME}: prerequisites OK (Node.js ${process.versions.node}, ${TOOLS.map((t) => t.name).join(', ')}, ${testPython()} with ${PY_MODULES.map((m) => m.module).join(', ')}) in ${((Date.now() - t0) / 1000).toFixed(1)} s\n`,
+  );
   return 0;
 }
 
-if (process.argv[1] && fileURLToPath(import.meta.url) === process.argv[1]) process.exitCode = main();
+if (process.argv[1] && fileURLToPath(import.meta.url) === process.argv[1])
+  process.exitCode = main();

@@ -2,7 +2,11 @@ import { existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'no
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
-import { advisorySettings, SafeStopAdvisory, type AdvisorySettings } from '../agent/advisory/advisory.js';
+import {
+  advisorySettings,
+  SafeStopAdvisory,
+  type AdvisorySettings,
+} from '../agent/advisory/advisory.js';
 import type { AdvisoryChannelInput, AdvisoryInput } from '../agent/advisory/input.js';
 import { LatchFile } from '../agent/advisory/latch-file.js';
 import { countVotes } from '../agent/advisory/vote.js';
@@ -34,13 +38,23 @@ function latchFile(): LatchFile {
 // Default condition: zone D on two OK channels of one bearing for 3 s. Two-channel agreement at one
 // bearing and a 1-3 s time delay follow machinery-protection practice (API 670, from memory).
 const settings = (over: Partial<AdvisorySettings> = {}): AdvisorySettings => ({
-  ...advisorySettings(advisorySchema.parse({ relay: { line: RELAY }, lamp: { line: LAMP }, ack_button: { line: BUTTON } }), loadConfig('config/example.yaml').sensors),
+  ...advisorySettings(
+    advisorySchema.parse({
+      relay: { line: RELAY },
+      lamp: { line: LAMP },
+      ack_button: { line: BUTTON },
+    }),
+    loadConfig('config/example.yaml').sensors,
+  ),
   ...over,
 });
 
 type Z = AdvisoryChannelInput['zone'];
 /** One window for the example fan's radial sensors: DE-V, DE-H, NDE-V, NDE-H. */
-function win(t_s: number, z: { deV?: Z; deH?: Z; ndeV?: Z; ndeH?: Z; deVok?: boolean; deHok?: boolean }): AdvisoryInput {
+function win(
+  t_s: number,
+  z: { deV?: Z; deH?: Z; ndeV?: Z; ndeH?: Z; deVok?: boolean; deHok?: boolean },
+): AdvisoryInput {
   return {
     t_ms: t_s * 1000,
     channels: [
@@ -56,7 +70,15 @@ async function startAdvisory(over: Partial<AdvisorySettings> = {}, store = latch
   const gpio = new FakeGpioLines();
   const events: AgentEvent[] = [];
   const log = new CaptureLog();
-  const adv = await SafeStopAdvisory.start({ settings: settings(over), gpio, asset: 'kessrow-id3a', emit: (e) => events.push(e), store, log, tickMs: 0 });
+  const adv = await SafeStopAdvisory.start({
+    settings: settings(over),
+    gpio,
+    asset: 'kessrow-id3a',
+    emit: (e) => events.push(e),
+    store,
+    log,
+    tickMs: 0,
+  });
   await adv.settled();
   return { adv, gpio, events, log, store };
 }
@@ -64,7 +86,11 @@ async function startAdvisory(over: Partial<AdvisorySettings> = {}, store = latch
 describe('vote counting', () => {
   const s = { zone: 'D' as const, minChannels: 2, voters: null };
   it('needs two OK channels of the same bearing in zone D', () => {
-    expect(countVotes(win(0, { deV: 'D', deH: 'D' }), s)).toMatchObject({ met: true, bearing: 'DE', channels: ['DE-V', 'DE-H'] });
+    expect(countVotes(win(0, { deV: 'D', deH: 'D' }), s)).toMatchObject({
+      met: true,
+      bearing: 'DE',
+      channels: ['DE-V', 'DE-H'],
+    });
     expect(countVotes(win(0, { deV: 'D', deH: 'C' }), s).met).toBe(false);
     expect(countVotes(win(0, { deV: 'D', ndeV: 'D' }), s).met).toBe(false); // two bearings, one vote each
   });
@@ -75,7 +101,9 @@ describe('vote counting', () => {
   });
   it('zone C setting counts C and D; the voter list restricts who votes', () => {
     expect(countVotes(win(0, { deV: 'C', deH: 'D' }), { ...s, zone: 'C' }).met).toBe(true);
-    expect(countVotes(win(0, { deV: 'D', deH: 'D' }), { ...s, voters: new Set(['DE-V', 'NDE-V']) }).met).toBe(false);
+    expect(
+      countVotes(win(0, { deV: 'D', deH: 'D' }), { ...s, voters: new Set(['DE-V', 'NDE-V']) }).met,
+    ).toBe(false);
   });
 });
 
@@ -100,7 +128,12 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     expect(gpio.level('advisory relay')).toBe(false);
     expect(gpio.level('advisory lamp')).toBe(false);
     const raised = events.find((e) => e.type === 'advisory_raised')!;
-    expect(raised).toMatchObject({ severity: 'alarm', bearing: 'DE', channels: ['DE-V', 'DE-H'], outputs_energised: false });
+    expect(raised).toMatchObject({
+      severity: 'alarm',
+      bearing: 'DE',
+      channels: ['DE-V', 'DE-H'],
+      outputs_energised: false,
+    });
     expect(String(raised.message)).toMatch(/stop the fan safely/);
 
     // The vibration falls back: still latched, outputs stay dropped.
@@ -108,14 +141,21 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     await adv.settled();
     expect(adv.state).toBe('latched');
     expect(gpio.level('advisory relay')).toBe(false);
-    expect(events.filter((e) => e.type === 'advisory_cleared').map((e) => e.severity)).toEqual(['warning']);
+    expect(events.filter((e) => e.type === 'advisory_cleared').map((e) => e.severity)).toEqual([
+      'warning',
+    ]);
 
-    expect(adv.acknowledge('shift lead (test)')).toEqual({ state: 'normal', outputs_energised: true, changed: true });
+    expect(adv.acknowledge('shift lead (test)')).toEqual({
+      state: 'normal',
+      outputs_energised: true,
+      changed: true,
+    });
     await adv.settled();
     expect(gpio.level('advisory relay')).toBe(true);
     expect(gpio.level('advisory lamp')).toBe(true);
     expect(adv.acknowledge('again')).toMatchObject({ changed: false });
-    for (const e of events) assertMatches('event-advisory.v1', { schema: 'turnwise.event.v1', ...e });
+    for (const e of events)
+      assertMatches('event-advisory.v1', { schema: 'turnwise.event.v1', ...e });
   });
 
   it('acknowledged while the condition is still present: outputs stay dropped until it clears', async () => {
@@ -126,7 +166,10 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     await adv.settled();
     expect(adv.state).toBe('acknowledged');
     expect(gpio.level('advisory relay')).toBe(false);
-    expect(events.find((e) => e.type === 'advisory_acknowledged')).toMatchObject({ acknowledged_by: 'local button', state: 'acknowledged' });
+    expect(events.find((e) => e.type === 'advisory_acknowledged')).toMatchObject({
+      acknowledged_by: 'local button',
+      state: 'acknowledged',
+    });
     adv.update(win(1, { deV: 'D', deH: 'D' }));
     adv.update(win(2, {}));
     await adv.settled();
@@ -145,7 +188,10 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     expect(cov).toHaveLength(1); // said once, not every window
     expect(cov[0]).toMatchObject({ severity: 'warning', bearings_without_vote: ['DE'] });
     adv.update(win(11, {}));
-    expect(events.filter((e) => e.type === 'advisory_coverage').at(-1)).toMatchObject({ severity: 'info', bearings_without_vote: [] });
+    expect(events.filter((e) => e.type === 'advisory_coverage').at(-1)).toMatchObject({
+      severity: 'info',
+      bearings_without_vote: [],
+    });
   });
 
   it('resets the hold when the vote drops out, so a short excursion raises nothing', async () => {
@@ -169,7 +215,11 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     const second = await startAdvisory({ holdMs: 0 }, store);
     expect(second.adv.state).toBe('latched');
     expect(second.gpio.writes('advisory relay')).toEqual([false]);
-    expect(second.events[0]).toMatchObject({ type: 'advisory_started', severity: 'alarm', outputs_energised: false });
+    expect(second.events[0]).toMatchObject({
+      type: 'advisory_started',
+      severity: 'alarm',
+      outputs_energised: false,
+    });
     expect(String(second.events[0]!.message)).toMatch(/stays latched until acknowledged/);
     second.adv.acknowledge('mqtt: control room (test)');
     await second.adv.settled();
@@ -182,14 +232,26 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     const { adv, events, gpio } = await startAdvisory({}, store);
     expect(adv.state).toBe('normal');
     expect(gpio.level('advisory relay')).toBe(true);
-    expect(events[0]).toMatchObject({ severity: 'warning', message: expect.stringMatching(/could not be read .*not valid JSON/) });
+    expect(events[0]).toMatchObject({
+      severity: 'warning',
+      message: expect.stringMatching(/could not be read .*not valid JSON/),
+    });
   });
 
   it('drops the outputs when measurements stop arriving, and restores them when they resume', async () => {
     let now = 1_000_000;
     const gpio = new FakeGpioLines({ nowMs: () => now });
     const events: AgentEvent[] = [];
-    const adv = await SafeStopAdvisory.start({ settings: settings({ stallMs: 30_000 }), gpio, asset: 'kessrow-id3a', emit: (e) => events.push(e), store: latchFile(), log: new CaptureLog(), now: () => now, tickMs: 0 });
+    const adv = await SafeStopAdvisory.start({
+      settings: settings({ stallMs: 30_000 }),
+      gpio,
+      asset: 'kessrow-id3a',
+      emit: (e) => events.push(e),
+      store: latchFile(),
+      log: new CaptureLog(),
+      now: () => now,
+      tickMs: 0,
+    });
     now += 29_000;
     adv.tick();
     expect(adv.energised()).toBe(true);
@@ -208,7 +270,10 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
 
   it('reports a failed output write once as an alarm event and retries until the line responds', async () => {
     const { adv, gpio, events, log } = await startAdvisory({ holdMs: 0 });
-    gpio.breakLine('advisory relay', Object.assign(new Error('EIO writing the relay line'), { code: 'EIO' }));
+    gpio.breakLine(
+      'advisory relay',
+      Object.assign(new Error('EIO writing the relay line'), { code: 'EIO' }),
+    );
     adv.update(win(0, { deV: 'D', deH: 'D' }));
     await adv.settled();
     adv.tick();
@@ -226,8 +291,12 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
 
   it('checks advisory.sensors against the configured sensors', () => {
     const cfg = advisorySchema.parse({ relay: { line: 5 }, sensors: ['DE-V', 'DE-X'] });
-    expect(() => advisorySettings(cfg, loadConfig('config/example.yaml').sensors)).toThrow(UserError);
-    expect(() => advisorySettings(cfg, loadConfig('config/example.yaml').sensors)).toThrow(/advisory\.sensors\[1\]: no sensor has id "DE-X"/);
+    expect(() => advisorySettings(cfg, loadConfig('config/example.yaml').sensors)).toThrow(
+      UserError,
+    );
+    expect(() => advisorySettings(cfg, loadConfig('config/example.yaml').sensors)).toThrow(
+      /advisory\.sensors\[1\]: no sensor has id "DE-X"/,
+    );
     expect(advisorySchema.safeParse({ zone: 'D' }).success).toBe(false); // neither relay nor lamp
   });
 });
@@ -269,7 +338,15 @@ describe('outputs dropped after the agent died (systemd ExecStopPost: turnwise o
 
   it('a killed agent leaves the relay energised; outputs-off drops relay and lamp, honouring active-low', async () => {
     const { pins, Gpio } = sysfsPins();
-    const adv = await SafeStopAdvisory.start({ settings: s, gpio: new OnoffLines(Gpio, PI4, new CaptureLog()), asset: 'kessrow-id3a', emit: () => {}, store: latchFile(), log: new CaptureLog(), tickMs: 0 });
+    const adv = await SafeStopAdvisory.start({
+      settings: s,
+      gpio: new OnoffLines(Gpio, PI4, new CaptureLog()),
+      asset: 'kessrow-id3a',
+      emit: () => {},
+      store: latchFile(),
+      log: new CaptureLog(),
+      tickMs: 0,
+    });
     await adv.settled();
     expect(adv.energised()).toBe(true);
     expect(pins.get(512 + RELAY)).toBe(1); // all well: relay energised (fail-safe)
@@ -283,7 +360,15 @@ describe('outputs dropped after the agent died (systemd ExecStopPost: turnwise o
 
   it('an orderly stop drops the outputs itself and leaves them driven, not floating', async () => {
     const { pins, Gpio } = sysfsPins();
-    const adv = await SafeStopAdvisory.start({ settings: s, gpio: new OnoffLines(Gpio, PI4, new CaptureLog()), asset: 'kessrow-id3a', emit: () => {}, store: latchFile(), log: new CaptureLog(), tickMs: 0 });
+    const adv = await SafeStopAdvisory.start({
+      settings: s,
+      gpio: new OnoffLines(Gpio, PI4, new CaptureLog()),
+      asset: 'kessrow-id3a',
+      emit: () => {},
+      store: latchFile(),
+      log: new CaptureLog(),
+      tickMs: 0,
+    });
     await adv.settled();
     await adv.close();
     expect(pins.get(512 + RELAY)).toBe(0);
@@ -293,20 +378,32 @@ describe('outputs dropped after the agent died (systemd ExecStopPost: turnwise o
 
 describe('turnwise outputs-off (the command systemd runs after the agent stopped)', () => {
   it('says there is nothing to drop when the config has no advisory', () => {
-    const r = runCli(['outputs-off', '--config', 'config/example.yaml', '--last-good', join(mkdtempSync(join(tmpdir(), 'tw-off-')), 'none.yaml')]);
+    const r = runCli([
+      'outputs-off',
+      '--config',
+      'config/example.yaml',
+      '--last-good',
+      join(mkdtempSync(join(tmpdir(), 'tw-off-')), 'none.yaml'),
+    ]);
     expect(r.code).toBe(0);
     expect(r.stdout).toMatch(/no advisory outputs in config\/example\.yaml: nothing to drop/);
   });
 
-  it.skipIf(existsSync('/sys/class/gpio'))('on a machine without sysfs GPIO: exit 2 and what to check, no stack trace', () => {
-    const d = mkdtempSync(join(tmpdir(), 'tw-off-'));
-    dirs.push(d);
-    const cfg = join(d, 'fan.yaml');
-    writeFileSync(cfg, `${readFileSync('config/example.yaml', 'utf8')}\nadvisory: {relay: {line: ${RELAY}}, lamp: {line: ${LAMP}}}\n`);
-    const r = runCli(['outputs-off', '--config', cfg, '--last-good', join(d, 'none.yaml')]);
-    expectNoStack(r.stderr);
-    expect(r.code).toBe(2);
-    expect(r.stderr).toMatch(/\/sys\/class\/gpio: no GPIO chips found/);
-    expect(r.stderr).toMatch(/CONFIG_GPIO_SYSFS/);
-  });
+  it.skipIf(existsSync('/sys/class/gpio'))(
+    'on a machine without sysfs GPIO: exit 2 and what to check, no stack trace',
+    () => {
+      const d = mkdtempSync(join(tmpdir(), 'tw-off-'));
+      dirs.push(d);
+      const cfg = join(d, 'fan.yaml');
+      writeFileSync(
+        cfg,
+        `${readFileSync('config/example.yaml', 'utf8')}\nadvisory: {relay: {line: ${RELAY}}, lamp: {line: ${LAMP}}}\n`,
+      );
+      const r = runCli(['outputs-off', '--config', cfg, '--last-good', join(d, 'none.yaml')]);
+      expectNoStack(r.stderr);
+      expect(r.code).toBe(2);
+      expect(r.stderr).toMatch(/\/sys\/class\/gpio: no GPIO chips found/);
+      expect(r.stderr).toMatch(/CONFIG_GPIO_SYSFS/);
+    },
+  );
 });

@@ -11,7 +11,9 @@ const cfgFile = join(dir, 'fan.yaml');
 const rec = join(dir, 'rec.wav');
 const fs = 25600;
 
-function cfgYaml(over: { tachChannel?: number; sensorChannel?: number; maxRpm?: number; ppr?: number } = {}): string {
+function cfgYaml(
+  over: { tachChannel?: number; sensorChannel?: number; maxRpm?: number; ppr?: number } = {},
+): string {
   return `machine: {id: test-fan, group: 2, support: rigid, rated_rpm: 1485}
 tach: {channel: ${over.tachChannel ?? 2}, trigger_v: 2.5${over.maxRpm ? `, max_rpm: ${over.maxRpm}` : ''}${over.ppr ? `, pulses_per_rev: ${over.ppr}` : ''}}
 sensors:
@@ -51,7 +53,13 @@ beforeAll(() => {
     seconds: 12,
     rpm: () => 1485,
     channels: [
-      { orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }, { order: 2, velPk: 0.35, phaseDeg: 75 }], noiseMmS2: 100 },
+      {
+        orders: [
+          { order: 1, velPk: 6.0, phaseDeg: 40 },
+          { order: 2, velPk: 0.35, phaseDeg: 75 },
+        ],
+        noiseMmS2: 100,
+      },
       { orders: [{ order: 1, velPk: 5.0, phaseDeg: 130 }], noiseMmS2: 100 },
     ],
     tachChannel: 2,
@@ -111,12 +119,16 @@ describe('turnwise analyze', () => {
     const j = JSON.parse(r.stdout);
     expect(j.speed_rpm).toBeCloseTo(742.5, 0); // what the wrong setting makes of 1485 r/min
     expect(j.channels[0].orders['1'].amp_pk_mm_s).toBeLessThan(0.1); // the "1x" is the half order: near 0
-    expect(j.warnings[0]).toMatch(/743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/);
+    expect(j.warnings[0]).toMatch(
+      /743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/,
+    );
     expect(j.unbalance.confidence).toBe('low');
     expect(j.unbalance.limits[0]).toMatch(/^confidence held low: .*pulses_per_rev/);
     const t = runCli(['analyze', f, '--config', wrong]);
     expect(t.stdout).toMatch(/unbalance: none \(confidence low\)/);
-    expect(t.stdout).toMatch(/warnings:\n {2}- 743 r\/min is about 1\/2 of machine\.rated_rpm.*set tach\.pulses_per_rev: 1/);
+    expect(t.stdout).toMatch(
+      /warnings:\n {2}- 743 r\/min is about 1\/2 of machine\.rated_rpm.*set tach\.pulses_per_rev: 1/,
+    );
     // Control: the right setting on the same record, no such warning and a real 1x.
     const right = join(dir, 'ppr1.yaml');
     writeFileSync(right, cfgYaml({ tachChannel: 4 }) + NDE_SENSORS);
@@ -136,10 +148,29 @@ describe('turnwise analyze', () => {
   });
 
   const bad: Array<[string, string, RegExp]> = [
-    ['a sensor on a channel the recording lacks', cfgYaml({ sensorChannel: 5 }), /sensors\[0\]\.channel: sensor DE-V is on channel 5 but .*rec\.wav has 3 channel\(s\), numbered 0-2/],
-    ['a tach channel the recording lacks', cfgYaml({ tachChannel: 7 }), /tach\.channel: the tach is on channel 7 but .* has 3 channel\(s\)/],
-    ['a flat tach (the tach is pointed at a vibration channel)', cfgYaml({ tachChannel: 1, sensorChannel: 0 }).replace('channel: 1, bearing: DE, direction: horizontal', 'channel: 2, bearing: DE, direction: horizontal'), /never reached the 2\.5 V trigger \(signal between/],
-    ['a tach at an impossible speed', cfgYaml({ maxRpm: 1000 }), /tach pulses imply about 1485 r\/min, above tach\.max_rpm \(1000\)/],
+    [
+      'a sensor on a channel the recording lacks',
+      cfgYaml({ sensorChannel: 5 }),
+      /sensors\[0\]\.channel: sensor DE-V is on channel 5 but .*rec\.wav has 3 channel\(s\), numbered 0-2/,
+    ],
+    [
+      'a tach channel the recording lacks',
+      cfgYaml({ tachChannel: 7 }),
+      /tach\.channel: the tach is on channel 7 but .* has 3 channel\(s\)/,
+    ],
+    [
+      'a flat tach (the tach is pointed at a vibration channel)',
+      cfgYaml({ tachChannel: 1, sensorChannel: 0 }).replace(
+        'channel: 1, bearing: DE, direction: horizontal',
+        'channel: 2, bearing: DE, direction: horizontal',
+      ),
+      /never reached the 2\.5 V trigger \(signal between/,
+    ],
+    [
+      'a tach at an impossible speed',
+      cfgYaml({ maxRpm: 1000 }),
+      /tach pulses imply about 1485 r\/min, above tach\.max_rpm \(1000\)/,
+    ],
   ];
   for (const [what, yaml, msg] of bad) {
     it(`gives one clear message for ${what}`, () => {
@@ -155,11 +186,17 @@ describe('turnwise analyze', () => {
 
   it('refuses a sample rate too low for the band', () => {
     const low = join(dir, 'low.wav');
-    writeFloatWav(low, 2000, [new Float32Array(4000), new Float32Array(4000), new Float32Array(4000)]);
+    writeFloatWav(low, 2000, [
+      new Float32Array(4000),
+      new Float32Array(4000),
+      new Float32Array(4000),
+    ]);
     const r = runCli(['analyze', low, '--config', cfgFile]);
     expect(r.code).toBe(2);
     expectNoStack(r.stderr);
-    expect(r.stderr).toMatch(/sample rate 2000 Hz is too low for the band up to 1000 Hz: it needs at least 2560 Hz/);
+    expect(r.stderr).toMatch(
+      /sample rate 2000 Hz is too low for the band up to 1000 Hz: it needs at least 2560 Hz/,
+    );
   });
 
   it('explains usage mistakes', () => {
@@ -174,7 +211,10 @@ describe('turnwise analyze', () => {
 
   it('check-config reports problems and exits non-zero', () => {
     const f = join(dir, 'broken.yaml');
-    writeFileSync(f, 'machine: {id: "bad id", group: 2, support: rigid}\ntach: {channel: 2, trigger_v: 2.5}\nsensors: []\n');
+    writeFileSync(
+      f,
+      'machine: {id: "bad id", group: 2, support: rigid}\ntach: {channel: 2, trigger_v: 2.5}\nsensors: []\n',
+    );
     const r = runCli(['check-config', f]);
     expect(r.code).toBe(2);
     expectNoStack(r.stderr);

@@ -3,7 +3,14 @@
  */
 import { beforeAll, describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
-import { existsSync, mkdtempSync, readdirSync, readFileSync, statSync, writeFileSync } from 'node:fs';
+import {
+  existsSync,
+  mkdtempSync,
+  readdirSync,
+  readFileSync,
+  statSync,
+  writeFileSync,
+} from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { BalanceJob } from '../agent/balance/job.js';
@@ -14,10 +21,14 @@ const CLI = 'dist/agent/cli/main.js';
 beforeAll(() => {
   if (!existsSync(CLI)) throw new Error(`${CLI} is missing: run \`npm run build\` first`);
   // A stale build would test old code: every balancing source must be older than its compiled file.
-  const sources = [...readdirSync('agent/balance').map((f) => join('agent/balance', f)), 'agent/cli/commands/balance.ts'];
+  const sources = [
+    ...readdirSync('agent/balance').map((f) => join('agent/balance', f)),
+    'agent/cli/commands/balance.ts',
+  ];
   for (const src of sources.filter((f) => f.endsWith('.ts'))) {
     const js = join('dist', src.replace(/\.ts$/, '.js'));
-    if (!existsSync(js) || statSync(js).mtimeMs < statSync(src).mtimeMs) throw new Error(`${js} is older than ${src}: run \`npm run build\` first`);
+    if (!existsSync(js) || statSync(js).mtimeMs < statSync(src).mtimeMs)
+      throw new Error(`${js} is older than ${src}: run \`npm run build\` first`);
   }
 });
 
@@ -40,7 +51,12 @@ function kessrowJob(): BalanceJob {
     { plane: 0, mass_g: 120, angle_deg: 40, convention: 'against_rotation' },
     { plane: 1, mass_g: 70, angle_deg: 200, convention: 'against_rotation' },
   ];
-  const t = (plane: number): RigMass => ({ plane, mass_g: 50, angle_deg: 0, convention: 'against_rotation' });
+  const t = (plane: number): RigMass => ({
+    plane,
+    mass_g: 50,
+    angle_deg: 0,
+    convention: 'against_rotation',
+  });
   return {
     asset: 'kessrow-id3a',
     angle_convention: 'against_rotation',
@@ -49,12 +65,21 @@ function kessrowJob(): BalanceJob {
     radius_mm: { P1: 600, P2: 600 },
     runs: [
       { label: 'as found', speed_rpm: 1485, weights: [], readings: measure(rig, U) },
-      { label: 'trial P1', speed_rpm: 1485, weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: measure(rig, [...U, t(0)]) },
-      { label: 'trial P2', speed_rpm: 1485, weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], readings: measure(rig, [...U, t(1)]) },
+      {
+        label: 'trial P1',
+        speed_rpm: 1485,
+        weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }],
+        readings: measure(rig, [...U, t(0)]),
+      },
+      {
+        label: 'trial P2',
+        speed_rpm: 1485,
+        weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }],
+        readings: measure(rig, [...U, t(1)]),
+      },
     ],
   };
 }
-
 
 describe('turnwise balance solve', () => {
   it('--json: corrections relative to as found, coefficients, residuals, convention', () => {
@@ -67,7 +92,10 @@ describe('turnwise balance solve', () => {
     expect(out.corrections).toHaveLength(2);
     expect(out.corrections[0]).toMatchObject({ plane: 'P1', mass_g: 120, angle_deg: 220 });
     expect(out.corrections[1]).toMatchObject({ plane: 'P2', mass_g: 70, angle_deg: 20 });
-    expect(out.corrections[0].force_n).toBeCloseTo(0.12 * 0.6 * ((1485 * 2 * Math.PI) / 60) ** 2, 0);
+    expect(out.corrections[0].force_n).toBeCloseTo(
+      0.12 * 0.6 * ((1485 * 2 * Math.PI) / 60) ** 2,
+      0,
+    );
     expect(out.influence_coefficients).toHaveLength(4);
     expect(out.predicted_residuals.every((v: { amp: number }) => v.amp < 1e-6)).toBe(true);
     expect(out.warnings).toEqual([]);
@@ -101,16 +129,42 @@ describe('turnwise balance solve', () => {
 
   it('--save records the job and the coefficients; jobs lists it; export prints it; a trim run uses them', () => {
     const state = mkdtempSync(join(tmpdir(), 'tw-bal-state-'));
-    const r = cli(['balance', 'solve', file('job.json', kessrowJob()), '--json', '--save', '--state-dir', state, '--by', 'A. Technician (invented)', '--job-id', 'id3a-2026-03-01']);
+    const r = cli([
+      'balance',
+      'solve',
+      file('job.json', kessrowJob()),
+      '--json',
+      '--save',
+      '--state-dir',
+      state,
+      '--by',
+      'A. Technician (invented)',
+      '--job-id',
+      'id3a-2026-03-01',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(out.saved.job_id).toBe('id3a-2026-03-01');
     expect(out.saved.coefficients_file).toBe(join(state, 'balance', 'coefficients.json'));
-    const rec = JSON.parse(readFileSync(join(state, 'balance', 'jobs', 'id3a-2026-03-01.json'), 'utf8'));
-    expect(rec).toMatchObject({ version: 1, job_id: 'id3a-2026-03-01', asset: 'kessrow-id3a', recorded_by: 'A. Technician (invented)', angle_convention: 'against_rotation' });
+    const rec = JSON.parse(
+      readFileSync(join(state, 'balance', 'jobs', 'id3a-2026-03-01.json'), 'utf8'),
+    );
+    expect(rec).toMatchObject({
+      version: 1,
+      job_id: 'id3a-2026-03-01',
+      asset: 'kessrow-id3a',
+      recorded_by: 'A. Technician (invented)',
+      angle_convention: 'against_rotation',
+    });
     expect(Date.parse(rec.saved_at)).not.toBeNaN();
     const stored = JSON.parse(readFileSync(join(state, 'balance', 'coefficients.json'), 'utf8'));
-    expect(stored).toMatchObject({ version: 1, asset: 'kessrow-id3a', job_id: 'id3a-2026-03-01', speed_rpm: 1485, planes: ['P1', 'P2'] });
+    expect(stored).toMatchObject({
+      version: 1,
+      asset: 'kessrow-id3a',
+      job_id: 'id3a-2026-03-01',
+      speed_rpm: 1485,
+      planes: ['P1', 'P2'],
+    });
     expect(stored.coefficients['DE-V'].P1.amp_mm_s_pk_per_g).toBeCloseTo(0.06, 6);
 
     const list = cli(['balance', 'jobs', '--state-dir', state, '--json']);
@@ -125,9 +179,24 @@ describe('turnwise balance solve', () => {
       angle_convention: 'against_rotation',
       planes: ['P1', 'P2'],
       amp_unit: 'mm/s pk',
-      runs: [{ speed_rpm: 1485, weights: [], readings: measure(rig, [{ plane: 0, mass_g: 30, angle_deg: 100, convention: 'against_rotation' }]) }],
+      runs: [
+        {
+          speed_rpm: 1485,
+          weights: [],
+          readings: measure(rig, [
+            { plane: 0, mass_g: 30, angle_deg: 100, convention: 'against_rotation' },
+          ]),
+        },
+      ],
     };
-    const t = cli(['balance', 'solve', file('trim.json', trim), '--json', '--coefficients', join(state, 'balance', 'coefficients.json')]);
+    const t = cli([
+      'balance',
+      'solve',
+      file('trim.json', trim),
+      '--json',
+      '--coefficients',
+      join(state, 'balance', 'coefficients.json'),
+    ]);
     expect(t.code).toBe(0);
     const tout = JSON.parse(t.stdout);
     expect(tout.method).toBe('given_coefficients');
@@ -135,7 +204,16 @@ describe('turnwise balance solve', () => {
     expect(tout.corrections[1].mass_g).toBeLessThan(1e-6);
     // Without amp_unit the readings are taken in the stored unit, and the output says so.
     const { amp_unit: _unit, ...noUnit } = trim;
-    const n = JSON.parse(cli(['balance', 'solve', file('trim.json', noUnit), '--json', '--coefficients', join(state, 'balance', 'coefficients.json')]).stdout);
+    const n = JSON.parse(
+      cli([
+        'balance',
+        'solve',
+        file('trim.json', noUnit),
+        '--json',
+        '--coefficients',
+        join(state, 'balance', 'coefficients.json'),
+      ]).stdout,
+    );
     expect(n.amp_unit).toBe('mm/s pk');
     expect(n.warnings.map((w: { code: string }) => w.code)).toContain('unit_assumed');
   });
@@ -154,7 +232,9 @@ describe('turnwise balance solve', () => {
     (bad.runs[2]!.readings['DE-V'] as { amp: number }).amp = -1;
     const r = cli(['balance', 'solve', file('job.json', bad)]);
     expect(r.code).toBe(2);
-    expect(r.stderr).toContain('runs[1].weights[0].plane: "P9" is not one of the planes ("P1", "P2")');
+    expect(r.stderr).toContain(
+      'runs[1].weights[0].plane: "P9" is not one of the planes ("P1", "P2")',
+    );
     expect(r.stderr).toContain('runs[2].readings.DE-V.amp: must be 0 or more (found -1)');
     expect(r.stderr).not.toMatch(/\n\s+at /);
   });
@@ -174,7 +254,17 @@ describe('turnwise balance solve', () => {
 
 describe('turnwise balance split', () => {
   it('the contract example (positions numbered from 0 at first_deg)', () => {
-    const r = cli(['balance', 'split', file('split.json', { mass_g: 62.4, angle_deg: 250, radius_mm: 355.6, positions: { count: 9, first_deg: 0, radius_mm: 406.4 } }), '--json']);
+    const r = cli([
+      'balance',
+      'split',
+      file('split.json', {
+        mass_g: 62.4,
+        angle_deg: 250,
+        radius_mm: 355.6,
+        positions: { count: 9, first_deg: 0, radius_mm: 406.4 },
+      }),
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     // Law of sines by hand: 54.6 g moved; 42.47 g at position 6 (240 deg), 14.75 g at position 7 (280 deg).
@@ -184,13 +274,26 @@ describe('turnwise balance split', () => {
     expect(out.weights[1]).toMatchObject({ position: 7, angle_deg: 280 });
     expect(out.weights[1].mass_g).toBeCloseTo(14.75, 2);
     expect(out.moved_mass_g).toBeCloseTo(54.6, 6);
-    const table = cli(['balance', 'split', file('split.json', { mass_g: 62.4, angle_deg: 250, radius_mm: 355.6, positions: { count: 9, first_deg: 0, radius_mm: 406.4 } })]);
+    const table = cli([
+      'balance',
+      'split',
+      file('split.json', {
+        mass_g: 62.4,
+        angle_deg: 250,
+        radius_mm: 355.6,
+        positions: { count: 9, first_deg: 0, radius_mm: 406.4 },
+      }),
+    ]);
     expect(table.stdout).toContain('measured AGAINST rotation');
     expect(table.stdout).toContain('SAFETY');
   });
 
   it('two positions cannot hold an arbitrary weight: exit 2 naming positions.count', () => {
-    const r = cli(['balance', 'split', file('split.json', { mass_g: 10, angle_deg: 20, positions: { count: 2 } })]);
+    const r = cli([
+      'balance',
+      'split',
+      file('split.json', { mass_g: 10, angle_deg: 20, positions: { count: 2 } }),
+    ]);
     expect(r.code).toBe(2);
     expect(r.stderr).toContain('positions.count: needs at least 3 positions');
   });
@@ -198,29 +301,79 @@ describe('turnwise balance split', () => {
 
 describe('turnwise balance trial-weight, check-grade, combine', () => {
   it('trial weight for the invented Kessrow fan: 850 kg on 2 bearings, 600 mm, 1485 r/min', () => {
-    const r = cli(['balance', 'trial-weight', '--rotor-kg', '850', '--radius-mm', '600', '--speed-rpm', '1485', '--json']);
+    const r = cli([
+      'balance',
+      'trial-weight',
+      '--rotor-kg',
+      '850',
+      '--radius-mm',
+      '600',
+      '--speed-rpm',
+      '1485',
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(out.trial_mass_g).toBeCloseTo(28.72, 2);
     expect(out.force_n / out.bearing_load_n).toBeCloseTo(0.1, 6);
-    const bad = cli(['balance', 'trial-weight', '--rotor-kg', 'heavy', '--radius-mm', '600', '--speed-rpm', '1485']);
+    const bad = cli([
+      'balance',
+      'trial-weight',
+      '--rotor-kg',
+      'heavy',
+      '--radius-mm',
+      '600',
+      '--speed-rpm',
+      '1485',
+    ]);
     expect(bad.code).toBe(2);
     expect(bad.stderr).toContain('--rotor-kg must be a number above 0 (found "heavy")');
   });
 
   it('ISO 21940-11: 500 kg, 1480 r/min, G6.3 is about 20 300 g mm (ISO 21940-11, from memory)', () => {
-    const r = cli(['balance', 'check-grade', '--rotor-kg', '500', '--speed-rpm', '1480', '--grade', 'G6.3', '--residual-g-mm', '25000', '--json']);
+    const r = cli([
+      'balance',
+      'check-grade',
+      '--rotor-kg',
+      '500',
+      '--speed-rpm',
+      '1480',
+      '--grade',
+      'G6.3',
+      '--residual-g-mm',
+      '25000',
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(Math.abs(out.permissible_g_mm - 20300) / 20300).toBeLessThan(0.005);
     expect(out.within).toBe(false);
-    const bad = cli(['balance', 'check-grade', '--rotor-kg', '500', '--speed-rpm', '1480', '--grade', 'G-six']);
+    const bad = cli([
+      'balance',
+      'check-grade',
+      '--rotor-kg',
+      '500',
+      '--speed-rpm',
+      '1480',
+      '--grade',
+      'G-six',
+    ]);
     expect(bad.code).toBe(2);
     expect(bad.stderr).toContain('is not a balance quality grade');
   });
 
   it('combines weights into one', () => {
-    const r = cli(['balance', 'combine', file('c.json', { weights: [{ mass_g: 20, angle_deg: 0 }, { mass_g: 20, angle_deg: 90 }] }), '--json']);
+    const r = cli([
+      'balance',
+      'combine',
+      file('c.json', {
+        weights: [
+          { mass_g: 20, angle_deg: 0 },
+          { mass_g: 20, angle_deg: 90 },
+        ],
+      }),
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(out.mass_g).toBeCloseTo(28.2843, 3);
@@ -233,7 +386,10 @@ describe('--config: the balance section supplies what the job leaves out', () =>
     const state = mkdtempSync(join(tmpdir(), 'tw-bal-state-'));
     const cfg = file(
       'turnwise.yaml',
-      readFileSync('config/example.yaml', 'utf8').replace(/^state_dir:.*$/m, `state_dir: ${state}`) +
+      readFileSync('config/example.yaml', 'utf8').replace(
+        /^state_dir:.*$/m,
+        `state_dir: ${state}`,
+      ) +
         '\nbalance:\n  angle_convention: with_rotation\n  rotor_mass_kg: 850\n  grade_mm_s: 6.3\n  planes:\n    P1: { radius_mm: 600, max_mass_g: 40, positions: { count: 10 } }\n',
     );
     const rig = twoBearingRig('cw');
@@ -243,15 +399,31 @@ describe('--config: the balance section supplies what the job leaves out', () =>
       amp_unit: 'mm/s pk',
       runs: [
         { speed_rpm: 1485, weights: [], readings: measure(rig, U) },
-        { speed_rpm: 1485, weights: [{ plane: 'P1', mass_g: 30, angle_deg: 45 }], readings: measure(rig, [...U, { plane: 0, mass_g: 30, angle_deg: 45, convention: 'with_rotation' }]) },
+        {
+          speed_rpm: 1485,
+          weights: [{ plane: 'P1', mass_g: 30, angle_deg: 45 }],
+          readings: measure(rig, [
+            ...U,
+            { plane: 0, mass_g: 30, angle_deg: 45, convention: 'with_rotation' },
+          ]),
+        },
       ],
     };
     const r = cli(['balance', 'solve', file('job.json', job), '--json', '--config', cfg, '--save']);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(out.angle_convention).toBe('with_rotation');
-    expect(out.corrections[0]).toMatchObject({ plane: 'P1', mass_g: 55, angle_deg: 120, unbalance_g_mm: 33000, over_max: true });
-    expect(out.unbalance.permissible_g_mm).toBeCloseTo((60000 / (2 * Math.PI)) * 6.3 * 850 / 1485, 0);
+    expect(out.corrections[0]).toMatchObject({
+      plane: 'P1',
+      mass_g: 55,
+      angle_deg: 120,
+      unbalance_g_mm: 33000,
+      over_max: true,
+    });
+    expect(out.unbalance.permissible_g_mm).toBeCloseTo(
+      ((60000 / (2 * Math.PI)) * 6.3 * 850) / 1485,
+      0,
+    );
     expect(out.saved.job_file.startsWith(join(state, 'balance', 'jobs'))).toBe(true);
     expect(JSON.parse(readFileSync(out.saved.job_file, 'utf8')).asset).toBe('kessrow-id3a');
   });

@@ -10,7 +10,7 @@ const D2R = Math.PI / 180;
 const PYTHON = existsSync('/usr/bin/python3') ? '/usr/bin/python3' : 'python3';
 
 function angleDiff(a: number, b: number): number {
-  const d = (((a - b) % 360) + 540) % 360 - 180;
+  const d = ((((a - b) % 360) + 540) % 360) - 180;
   return d;
 }
 
@@ -24,8 +24,16 @@ function angleDiff(a: number, b: number): number {
  * Misalignment, Fairmont Press 2004, ch. 6 "A Single Plane Balancing Technique", pp. 103-107,
  * equation 6.2: correction weight = trial weight x O / T at the angle of the T vector).
  */
-function graphical(a0: number, m: number, trials: readonly { angle_deg: number; amp: number }[]): { mass_g: number; angle_deg: number; spread: number } {
-  const pts = trials.map((t) => ({ x: a0 * Math.cos(t.angle_deg * D2R), y: a0 * Math.sin(t.angle_deg * D2R), r: t.amp }));
+function graphical(
+  a0: number,
+  m: number,
+  trials: readonly { angle_deg: number; amp: number }[],
+): { mass_g: number; angle_deg: number; spread: number } {
+  const pts = trials.map((t) => ({
+    x: a0 * Math.cos(t.angle_deg * D2R),
+    y: a0 * Math.sin(t.angle_deg * D2R),
+    r: t.amp,
+  }));
   const pairs: { x: number; y: number }[][] = [];
   for (let i = 0; i < pts.length; i++) {
     for (let j = i + 1; j < pts.length; j++) {
@@ -52,12 +60,16 @@ function graphical(a0: number, m: number, trials: readonly { angle_deg: number; 
     const spread = Math.max(...chosen.map((p) => Math.hypot(p.x - cx, p.y - cy)));
     if (spread < best.spread) best = { spread, x: cx, y: cy };
   }
-  const ang = ((Math.atan2(best.y, best.x) / D2R) % 360 + 360) % 360;
+  const ang = (((Math.atan2(best.y, best.x) / D2R) % 360) + 360) % 360;
   return { mass_g: (m * a0) / Math.hypot(best.x, best.y), angle_deg: ang, spread: best.spread };
 }
 
 /** scipy.optimize.least_squares on the same objective (reference library). */
-function scipyFit(a0: number, m: number, trials: readonly { angle_deg: number; amp: number }[]): { mass_g: number; angle_deg: number } {
+function scipyFit(
+  a0: number,
+  m: number,
+  trials: readonly { angle_deg: number; amp: number }[],
+): { mass_g: number; angle_deg: number } {
   const script = `
 import json, sys, numpy as np
 from scipy.optimize import least_squares
@@ -72,7 +84,9 @@ for r0 in (0.3, 1.0, 2.0):
 P = best.x[0] + 1j * best.x[1]
 print(json.dumps({'mass_g': d['m'] * d['a0'] / abs(P), 'angle_deg': float(np.degrees(np.angle(P)) % 360)}))
 `;
-  const r = spawnSync(PYTHON, ['-c', script, JSON.stringify({ a0, m, trials })], { encoding: 'utf8' });
+  const r = spawnSync(PYTHON, ['-c', script, JSON.stringify({ a0, m, trials })], {
+    encoding: 'utf8',
+  });
   if (r.status !== 0) throw new Error(`python3/scipy failed: ${r.stderr}`);
   return JSON.parse(r.stdout) as { mass_g: number; angle_deg: number };
 }
@@ -111,11 +125,18 @@ describe('four-run method (amplitude only)', () => {
     expect(r.fit_residual!.rms_amp).toBeGreaterThan(0.1);
     expect(r.fit_residual!.pct_of_as_found).toBeLessThan(5);
     expect(r.warnings.map((w) => w.code)).toEqual([]);
-    expect(r.trial_effect!.amp).toBeCloseTo(SHREVE.as_found * SHREVE.trial_mass_g / r.correction!.mass_g, 9);
+    expect(r.trial_effect!.amp).toBeCloseTo(
+      (SHREVE.as_found * SHREVE.trial_mass_g) / r.correction!.mass_g,
+      9,
+    );
   });
 
   /** One-plane rotor built from the geometry (test/balance-rig.ts), not from the solver's algebra. */
-  const rig = (rotation: 'ccw' | 'cw', lagDeg: number): Rig => ({ rotation, pickupDeg: 35, sensors: [{ id: 'DE-H', mountDeg: 0, planes: [{ gain: 0.04, lagDeg }] }] });
+  const rig = (rotation: 'ccw' | 'cw', lagDeg: number): Rig => ({
+    rotation,
+    pickupDeg: 35,
+    sensors: [{ id: 'DE-H', mountDeg: 0, planes: [{ gain: 0.04, lagDeg }] }],
+  });
   const cases: [AngleConvention, 'ccw' | 'cw', number][] = [
     ['against_rotation', 'ccw', 40],
     ['against_rotation', 'cw', 110],
@@ -127,13 +148,29 @@ describe('four-run method (amplitude only)', () => {
       const R = rig(rotation, lag);
       const heavy: RigMass = { plane: 0, mass_g: 85, angle_deg: 150, convention: conv };
       const amp = (ms: RigMass[]) => measure(R, ms)['DE-H']!.amp;
-      const trials = [30, 150, 270].map((a) => ({ angle_deg: a, amp: amp([heavy, { plane: 0, mass_g: 60, angle_deg: a, convention: conv }]) }));
-      const r = solveFourRun({ as_found: amp([heavy]), trial_mass_g: 60, trials, angle_convention: conv });
+      const trials = [30, 150, 270].map((a) => ({
+        angle_deg: a,
+        amp: amp([heavy, { plane: 0, mass_g: 60, angle_deg: a, convention: conv }]),
+      }));
+      const r = solveFourRun({
+        as_found: amp([heavy]),
+        trial_mass_g: 60,
+        trials,
+        angle_convention: conv,
+      });
       expect(r.ok).toBe(true);
       expect(r.correction!.mass_g).toBeCloseTo(85, 5);
       expect(Math.abs(angleDiff(r.correction!.angle_deg, 330))).toBeLessThan(1e-5);
       expect(r.fit_residual!.rms_amp).toBeLessThan(1e-8);
-      const after = amp([heavy, { plane: 0, mass_g: r.correction!.mass_g, angle_deg: r.correction!.angle_deg, convention: conv }]);
+      const after = amp([
+        heavy,
+        {
+          plane: 0,
+          mass_g: r.correction!.mass_g,
+          angle_deg: r.correction!.angle_deg,
+          convention: conv,
+        },
+      ]);
       expect(after / amp([heavy])).toBeLessThan(1e-6);
     });
   }
@@ -142,8 +179,16 @@ describe('four-run method (amplitude only)', () => {
     const R = rig('ccw', 60);
     const heavy: RigMass = { plane: 0, mass_g: 40, angle_deg: 10, convention: 'against_rotation' };
     const amp = (ms: RigMass[]) => measure(R, ms)['DE-H']!.amp;
-    const trials = [0, 70, 200, 290].map((a) => ({ angle_deg: a, amp: amp([heavy, { plane: 0, mass_g: 30, angle_deg: a, convention: 'against_rotation' }]) }));
-    const r = solveFourRun({ as_found: amp([heavy]), trial_mass_g: 30, trials, angle_convention: 'against_rotation' });
+    const trials = [0, 70, 200, 290].map((a) => ({
+      angle_deg: a,
+      amp: amp([heavy, { plane: 0, mass_g: 30, angle_deg: a, convention: 'against_rotation' }]),
+    }));
+    const r = solveFourRun({
+      as_found: amp([heavy]),
+      trial_mass_g: 30,
+      trials,
+      angle_convention: 'against_rotation',
+    });
     expect(r.correction!.mass_g).toBeCloseTo(40, 5);
     expect(Math.abs(angleDiff(r.correction!.angle_deg, 190))).toBeLessThan(1e-5);
   });
@@ -151,7 +196,14 @@ describe('four-run method (amplitude only)', () => {
 
 describe('four-run bad input: a clear refusal, never a confident wrong weight', () => {
   it('trial amplitudes equal within the scatter: no correction, says why and what to do', () => {
-    const r = solveFourRun({ ...SHREVE, trials: [{ angle_deg: 0, amp: 10.2 }, { angle_deg: 120, amp: 9.9 }, { angle_deg: 240, amp: 10.1 }] });
+    const r = solveFourRun({
+      ...SHREVE,
+      trials: [
+        { angle_deg: 0, amp: 10.2 },
+        { angle_deg: 120, amp: 9.9 },
+        { angle_deg: 240, amp: 10.1 },
+      ],
+    });
     expect(r.ok).toBe(false);
     expect(r.correction).toBeNull();
     expect(r.problems[0]!.code).toBe('trial_no_effect');
@@ -161,14 +213,28 @@ describe('four-run bad input: a clear refusal, never a confident wrong weight', 
 
   it('a trial effect too small for the scatter: the angle uncertainty refuses it', () => {
     // readings that differ just over the scatter test but pin nothing down
-    const r = solveFourRun({ ...SHREVE, trials: [{ angle_deg: 0, amp: 11.2 }, { angle_deg: 120, amp: 10.0 }, { angle_deg: 240, amp: 9.9 }] });
+    const r = solveFourRun({
+      ...SHREVE,
+      trials: [
+        { angle_deg: 0, amp: 11.2 },
+        { angle_deg: 120, amp: 10.0 },
+        { angle_deg: 240, amp: 9.9 },
+      ],
+    });
     expect(r.ok).toBe(false);
     expect(r.problems[0]!.code).toBe('not_determined');
     expect(r.problems[0]!.message).toMatch(/uncertain by/);
   });
 
   it('circles that disagree badly get a warning naming how far they miss', () => {
-    const r = solveFourRun({ ...SHREVE, trials: [{ angle_deg: 0, amp: 4.0 }, { angle_deg: 120, amp: 16.0 }, { angle_deg: 240, amp: 6.0 }] });
+    const r = solveFourRun({
+      ...SHREVE,
+      trials: [
+        { angle_deg: 0, amp: 4.0 },
+        { angle_deg: 120, amp: 16.0 },
+        { angle_deg: 240, amp: 6.0 },
+      ],
+    });
     const codes = [...r.warnings, ...r.problems].map((w) => w.code);
     expect(codes).toContain('circles_disagree');
     const w = [...r.warnings, ...r.problems].find((x) => x.code === 'circles_disagree')!;
@@ -176,9 +242,25 @@ describe('four-run bad input: a clear refusal, never a confident wrong weight', 
   });
 
   it('positions that are not distinct, or only two trials, are refused by the parser', () => {
-    expect(() => parseFourRun({ ...SHREVE, trials: [{ angle_deg: 0, amp: 7 }, { angle_deg: 5, amp: 7.2 }, { angle_deg: 240, amp: 18 }] }, 'f.json')).toThrow(/only 2 distinct position/);
-    expect(() => parseFourRun({ ...SHREVE, trials: SHREVE.trials.slice(0, 2) }, 'f.json')).toThrow(/three positions/);
-    expect(() => parseFourRun({ ...SHREVE, as_found: 0 }, 'f.json')).toThrow(/as_found: must be above 0/);
+    expect(() =>
+      parseFourRun(
+        {
+          ...SHREVE,
+          trials: [
+            { angle_deg: 0, amp: 7 },
+            { angle_deg: 5, amp: 7.2 },
+            { angle_deg: 240, amp: 18 },
+          ],
+        },
+        'f.json',
+      ),
+    ).toThrow(/only 2 distinct position/);
+    expect(() => parseFourRun({ ...SHREVE, trials: SHREVE.trials.slice(0, 2) }, 'f.json')).toThrow(
+      /three positions/,
+    );
+    expect(() => parseFourRun({ ...SHREVE, as_found: 0 }, 'f.json')).toThrow(
+      /as_found: must be above 0/,
+    );
   });
 });
 
@@ -201,9 +283,18 @@ describe('four-run under reading scatter (own computation, fixed-seed simulation
         const a0 = 10;
         const alpha = rnd() * 360;
         const t = effect * a0;
-        const amp = (th: number) => Math.hypot(a0 * Math.cos(alpha * D2R) + t * Math.cos(th * D2R), a0 * Math.sin(alpha * D2R) + t * Math.sin(th * D2R));
+        const amp = (th: number) =>
+          Math.hypot(
+            a0 * Math.cos(alpha * D2R) + t * Math.cos(th * D2R),
+            a0 * Math.sin(alpha * D2R) + t * Math.sin(th * D2R),
+          );
         const noisy = (x: number) => x * (1 + 0.05 * gauss());
-        const r = solveFourRun({ as_found: noisy(a0), trial_mass_g: 50, trials: [0, 120, 240].map((th) => ({ angle_deg: th, amp: noisy(amp(th)) })), angle_convention: 'against_rotation' });
+        const r = solveFourRun({
+          as_found: noisy(a0),
+          trial_mass_g: 50,
+          trials: [0, 120, 240].map((th) => ({ angle_deg: th, amp: noisy(amp(th)) })),
+          angle_convention: 'against_rotation',
+        });
         if (!r.ok) continue;
         accepted++;
         const miss = Math.abs(angleDiff(r.correction!.angle_deg, (alpha + 180) % 360));

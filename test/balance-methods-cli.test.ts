@@ -12,10 +12,15 @@ const CLI = 'dist/agent/cli/main.js';
 
 beforeAll(() => {
   if (!existsSync(CLI)) throw new Error(`${CLI} is missing: run \`npm run build\` first`);
-  const sources = [...readdirSync('agent/balance').map((f) => join('agent/balance', f)), 'agent/cli/commands/balance.ts', 'agent/cli/commands/zone.ts'];
+  const sources = [
+    ...readdirSync('agent/balance').map((f) => join('agent/balance', f)),
+    'agent/cli/commands/balance.ts',
+    'agent/cli/commands/zone.ts',
+  ];
   for (const src of sources.filter((f) => f.endsWith('.ts') && existsSync(f))) {
     const js = join('dist', src.replace(/\.ts$/, '.js'));
-    if (!existsSync(js) || statSync(js).mtimeMs < statSync(src).mtimeMs) throw new Error(`${js} is older than ${src}: run \`npm run build\` first`);
+    if (!existsSync(js) || statSync(js).mtimeMs < statSync(src).mtimeMs)
+      throw new Error(`${js} is older than ${src}: run \`npm run build\` first`);
   }
 });
 
@@ -32,11 +37,26 @@ function file(name: string, content: unknown): string {
   return f;
 }
 
-const CAUTION_WORDS = [/Watch the vibration during every trial and check run/, /draft of other fans/, /confined-space entry/, /reference mark is work on the machine/, /fan maker/];
+const CAUTION_WORDS = [
+  /Watch the vibration during every trial and check run/,
+  /draft of other fans/,
+  /confined-space entry/,
+  /reference mark is work on the machine/,
+  /fan maker/,
+];
 
 describe('turnwise balance four-run', () => {
   // the input of the issue (also the example of D. Shreve, "Balancing Without Phase", Reliabilityweb.com)
-  const four = { as_found: 10.0, trial_mass_g: 50, trials: [{ angle_deg: 0, amp: 7.0 }, { angle_deg: 120, amp: 12.0 }, { angle_deg: 240, amp: 18.0 }], angle_convention: 'against_rotation' };
+  const four = {
+    as_found: 10.0,
+    trial_mass_g: 50,
+    trials: [
+      { angle_deg: 0, amp: 7.0 },
+      { angle_deg: 120, amp: 12.0 },
+      { angle_deg: 240, amp: 18.0 },
+    ],
+    angle_convention: 'against_rotation',
+  };
 
   it('--json: correction, trial effect, fit residual, convention and the cautions', () => {
     const r = cli(['balance', 'four-run', file('four.json', four), '--json']);
@@ -61,7 +81,19 @@ describe('turnwise balance four-run', () => {
   });
 
   it('amplitudes that do not move: exit 3, no numbers, the reason on stderr', () => {
-    const r = cli(['balance', 'four-run', file('four.json', { ...four, trials: [{ angle_deg: 0, amp: 10.1 }, { angle_deg: 120, amp: 9.8 }, { angle_deg: 240, amp: 10.0 }] }), '--json']);
+    const r = cli([
+      'balance',
+      'four-run',
+      file('four.json', {
+        ...four,
+        trials: [
+          { angle_deg: 0, amp: 10.1 },
+          { angle_deg: 120, amp: 9.8 },
+          { angle_deg: 240, amp: 10.0 },
+        ],
+      }),
+      '--json',
+    ]);
     expect(r.code).toBe(3);
     const out = JSON.parse(r.stdout);
     expect(out.correction).toBeNull();
@@ -69,7 +101,11 @@ describe('turnwise balance four-run', () => {
   });
 
   it('a bad file names the JSON path (exit 2)', () => {
-    const r = cli(['balance', 'four-run', file('four.json', { ...four, trials: four.trials.slice(0, 2) })]);
+    const r = cli([
+      'balance',
+      'four-run',
+      file('four.json', { ...four, trials: four.trials.slice(0, 2) }),
+    ]);
     expect(r.code).toBe(2);
     expect(r.stderr).toMatch(/four\.json: trials: needs the trial weight at three positions/);
   });
@@ -77,10 +113,24 @@ describe('turnwise balance four-run', () => {
 
 describe('cautions on every output that gives a weight to fit', () => {
   it('balance combine carries them too', () => {
-    const r = cli(['balance', 'combine', file('c.json', { weights: [{ mass_g: 20, angle_deg: 0 }, { mass_g: 20, angle_deg: 90 }] }), '--json']);
+    const r = cli([
+      'balance',
+      'combine',
+      file('c.json', {
+        weights: [
+          { mass_g: 20, angle_deg: 0 },
+          { mass_g: 20, angle_deg: 90 },
+        ],
+      }),
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     for (const w of CAUTION_WORDS) expect(JSON.parse(r.stdout).cautions.join(' ')).toMatch(w);
-    const t = cli(['balance', 'combine', file('c.json', { weights: [{ mass_g: 20, angle_deg: 0 }] })]);
+    const t = cli([
+      'balance',
+      'combine',
+      file('c.json', { weights: [{ mass_g: 20, angle_deg: 0 }] }),
+    ]);
     expect(t.stdout).toMatch(/SAFETY/);
   });
 });
@@ -91,22 +141,32 @@ describe('turnwise zone', () => {
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(out.zone).toBe('C');
-    expect(out.boundaries.map((b: { value_mm_s: number }) => b.value_mm_s)).toEqual([2.3, 4.5, 7.1]);
+    expect(out.boundaries.map((b: { value_mm_s: number }) => b.value_mm_s)).toEqual([
+      2.3, 4.5, 7.1,
+    ]);
     expect(out.boundaries[1].source).toMatch(/ISO 20816-3 group 1, rigid support/);
   });
 
   it('a value on a boundary belongs to the zone below; group 2 flexible; readable lines name each boundary and source', () => {
-    expect(JSON.parse(cli(['zone', '--mm-s', '4.5', '--group', '2', '--support', 'flexible', '--json']).stdout).zone).toBe('B');
+    expect(
+      JSON.parse(
+        cli(['zone', '--mm-s', '4.5', '--group', '2', '--support', 'flexible', '--json']).stdout,
+      ).zone,
+    ).toBe('B');
     const t = cli(['zone', '--mm-s', '7.2', '--group', '2', '--support', 'flexible']);
     expect(t.stdout).toMatch(/zone D of ISO 20816-3 group 2, flexible support/);
     expect(t.stdout).toMatch(/C\/D\s+7\.1 mm\/s r\.m\.s\.\s+passed\s+source: ISO 20816-3/);
   });
 
   it('ISO 14694 BV-3 rigid (from memory: start-up 4.5, alarm 7.1, shut-down 9.0): 8 mm/s is above alarm', () => {
-    const out = JSON.parse(cli(['zone', '--mm-s', '8', '--fan-category', 'BV-3', '--support', 'rigid', '--json']).stdout);
+    const out = JSON.parse(
+      cli(['zone', '--mm-s', '8', '--fan-category', 'BV-3', '--support', 'rigid', '--json']).stdout,
+    );
     expect(out.standard).toBe('ISO 14694');
     expect(out.zone).toBe('C');
-    expect(out.boundaries.map((b: { value_mm_s: number }) => b.value_mm_s)).toEqual([4.5, 7.1, 9.0]);
+    expect(out.boundaries.map((b: { value_mm_s: number }) => b.value_mm_s)).toEqual([
+      4.5, 7.1, 9.0,
+    ]);
     expect(out.basis).toMatch(/from memory/);
   });
 
@@ -126,27 +186,62 @@ describe('turnwise zone', () => {
 
 describe('turnwise balance split between holes', () => {
   it('two holes at given angles, after moving the weight to their radius; cautions included', () => {
-    const r = cli(['balance', 'split', file('s.json', { mass_g: 62.4, angle_deg: 250, radius_mm: 355.6, holes: { angles_deg: [235, 290], radius_mm: 406.4 } }), '--json']);
+    const r = cli([
+      'balance',
+      'split',
+      file('s.json', {
+        mass_g: 62.4,
+        angle_deg: 250,
+        radius_mm: 355.6,
+        holes: { angles_deg: [235, 290], radius_mm: 406.4 },
+      }),
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     const moved = (62.4 * 355.6) / 406.4; // own computation
     expect(out.moved_mass_g).toBeCloseTo(moved, 3);
     expect(out.weights[0]).toMatchObject({ position: 0, angle_deg: 235 });
-    expect(out.weights[0].mass_g).toBeCloseTo((moved * Math.sin((40 * Math.PI) / 180)) / Math.sin((55 * Math.PI) / 180), 3);
+    expect(out.weights[0].mass_g).toBeCloseTo(
+      (moved * Math.sin((40 * Math.PI) / 180)) / Math.sin((55 * Math.PI) / 180),
+      3,
+    );
     for (const w of CAUTION_WORDS) expect(out.cautions.join(' ')).toMatch(w);
   });
 
   it('holes 180 deg apart: exit 2 naming the file, the key and what to do', () => {
-    const r = cli(['balance', 'split', file('s.json', { mass_g: 30, angle_deg: 100, holes: { angles_deg: [10, 190] } })]);
+    const r = cli([
+      'balance',
+      'split',
+      file('s.json', { mass_g: 30, angle_deg: 100, holes: { angles_deg: [10, 190] } }),
+    ]);
     expect(r.code).toBe(2);
-    expect(r.stderr).toMatch(/s\.json: holes\.angles_deg: the holes either side of 100\.0 deg \(10\.0 and 190\.0 deg\) are 180 deg apart/);
+    expect(r.stderr).toMatch(
+      /s\.json: holes\.angles_deg: the holes either side of 100\.0 deg \(10\.0 and 190\.0 deg\) are 180 deg apart/,
+    );
     expect(r.stderr).toMatch(/-> use a hole between them/);
   });
 });
 
 describe('turnwise balance check-grade with the rotor geometry', () => {
   it('allocates U_per to the planes (ISO 21940-11, from memory) and says so', () => {
-    const r = cli(['balance', 'check-grade', '--rotor-kg', '850', '--speed-rpm', '1485', '--grade', 'G6.3', '--bearings-mm', '0,1400', '--com-mm', '500', '--planes-mm', '300,1100', '--json']);
+    const r = cli([
+      'balance',
+      'check-grade',
+      '--rotor-kg',
+      '850',
+      '--speed-rpm',
+      '1485',
+      '--grade',
+      'G6.3',
+      '--bearings-mm',
+      '0,1400',
+      '--com-mm',
+      '500',
+      '--planes-mm',
+      '300,1100',
+      '--json',
+    ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
     expect(out.allocation.by_plane_g_mm.I / out.permissible_g_mm).toBeCloseTo(900 / 1400, 4);
@@ -154,11 +249,37 @@ describe('turnwise balance check-grade with the rotor geometry', () => {
   });
 
   it('centre of mass outside the bearings of a centre-hung rotor: the warning and the fallback, in words', () => {
-    const r = cli(['balance', 'check-grade', '--rotor-kg', '850', '--speed-rpm', '1485', '--grade', 'G6.3', '--bearings-mm', '0,1400', '--com-mm', '1600', '--planes-mm', '300,1100']);
+    const r = cli([
+      'balance',
+      'check-grade',
+      '--rotor-kg',
+      '850',
+      '--speed-rpm',
+      '1485',
+      '--grade',
+      'G6.3',
+      '--bearings-mm',
+      '0,1400',
+      '--com-mm',
+      '1600',
+      '--planes-mm',
+      '300,1100',
+    ]);
     expect(r.code).toBe(0);
     expect(r.stdout).toMatch(/Warning: the centre of mass at 1600 mm lies outside the bearings/);
     expect(r.stdout).toMatch(/shared equally between the planes instead \(fallback\)/);
-    const partial = cli(['balance', 'check-grade', '--rotor-kg', '850', '--speed-rpm', '1485', '--grade', 'G6.3', '--com-mm', '500']);
+    const partial = cli([
+      'balance',
+      'check-grade',
+      '--rotor-kg',
+      '850',
+      '--speed-rpm',
+      '1485',
+      '--grade',
+      'G6.3',
+      '--com-mm',
+      '500',
+    ]);
     expect(partial.code).toBe(2);
     expect(partial.stderr).toMatch(/missing --bearings-mm, --planes-mm/);
   });
@@ -167,18 +288,39 @@ describe('turnwise balance check-grade with the rotor geometry', () => {
 describe('turnwise balance multi-speed', () => {
   /** Exact 1x vectors of a one-plane rotor whose response is H_i per speed: V = V0 + H_i * m e^(i theta) (own computation). */
   const runAt = (rpm: number, hAmp: number, hDeg: number) => {
-    const c = (a: number, d: number) => ({ re: a * Math.cos((d * Math.PI) / 180), im: a * Math.sin((d * Math.PI) / 180) });
+    const c = (a: number, d: number) => ({
+      re: a * Math.cos((d * Math.PI) / 180),
+      im: a * Math.sin((d * Math.PI) / 180),
+    });
     const u = c(80, 30); // unbalance 80 g at 30 deg (against rotation)
     const h = c(hAmp, hDeg);
-    const resp = (z: { re: number; im: number }) => ({ re: h.re * z.re - h.im * z.im, im: h.re * z.im + h.im * z.re });
-    const reading = (z: { re: number; im: number }) => ({ amp: Math.hypot(z.re, z.im), phase_deg: (((Math.atan2(z.im, z.re) * 180) / Math.PI) + 360) % 360 });
+    const resp = (z: { re: number; im: number }) => ({
+      re: h.re * z.re - h.im * z.im,
+      im: h.re * z.im + h.im * z.re,
+    });
+    const reading = (z: { re: number; im: number }) => ({
+      amp: Math.hypot(z.re, z.im),
+      phase_deg: ((Math.atan2(z.im, z.re) * 180) / Math.PI + 360) % 360,
+    });
     const v0 = resp(u);
     const v1 = resp({ re: u.re + 50, im: u.im });
-    return { speed_rpm: rpm, runs: [{ weights: [], readings: { 'DE-H': reading(v0) } }, { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-H': reading(v1) } }] };
+    return {
+      speed_rpm: rpm,
+      runs: [
+        { weights: [], readings: { 'DE-H': reading(v0) } },
+        { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-H': reading(v1) } },
+      ],
+    };
   };
 
   it('--json: one correction, the predicted residual per speed, cautions', () => {
-    const job = { angle_convention: 'against_rotation', planes: ['P1'], amp_unit: 'mm/s pk', radius_mm: { P1: 600 }, speeds: [runAt(800, 0.02, 40), runAt(1485, 0.07, 75)] };
+    const job = {
+      angle_convention: 'against_rotation',
+      planes: ['P1'],
+      amp_unit: 'mm/s pk',
+      radius_mm: { P1: 600 },
+      speeds: [runAt(800, 0.02, 40), runAt(1485, 0.07, 75)],
+    };
     const r = cli(['balance', 'multi-speed', file('m.json', job), '--json']);
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);

@@ -4,7 +4,13 @@ import type { WindowResult } from '../agent/dsp/types.js';
 import { fanCase, synthWindow } from './support/fan-windows.js';
 import { allocatePermissible, type RotorGeometry } from '../agent/balance/allocation.js';
 import { solveBalanceJob } from '../agent/balance/solve.js';
-import { combineWeights, moveToRadius, permissibleUnbalanceGmm, splitBetweenHoles, SplitRefused } from '../agent/balance/weights.js';
+import {
+  combineWeights,
+  moveToRadius,
+  permissibleUnbalanceGmm,
+  splitBetweenHoles,
+  SplitRefused,
+} from '../agent/balance/weights.js';
 import { measure, type RigMass, twoBearingRig } from './balance-rig.js';
 
 const D2R = Math.PI / 180;
@@ -36,7 +42,10 @@ describe('split between holes at any angles (law of sines)', () => {
   it('two arbitrary holes: the parts add up, as vectors, to the weight (checked by vector sum, own computation)', () => {
     const s = splitBetweenHoles(62.4, 250, [290, 235]);
     expect(s.weights.map((w) => w.position)).toEqual([0, 1]); // numbered as listed
-    expect(s.weights.find((w) => w.angle_deg === 235)!.mass_g).toBeCloseTo((62.4 * Math.sin(40 * D2R)) / Math.sin(55 * D2R), 12);
+    expect(s.weights.find((w) => w.angle_deg === 235)!.mass_g).toBeCloseTo(
+      (62.4 * Math.sin(40 * D2R)) / Math.sin(55 * D2R),
+      12,
+    );
     const back = combineWeights(s.weights);
     expect(back.mass_g).toBeCloseTo(62.4, 10);
     expect(back.angle_deg).toBeCloseTo(250, 10);
@@ -54,7 +63,9 @@ describe('split between holes at any angles (law of sines)', () => {
     expect(back.mass_g).toBeCloseTo(20, 10);
     expect(back.angle_deg).toBeCloseTo(355, 10);
     // a weight on a hole goes there whole
-    expect(splitBetweenHoles(20, 200, [100, 340, 15, 200]).weights).toEqual([{ position: 3, angle_deg: 200, mass_g: 20 }]);
+    expect(splitBetweenHoles(20, 200, [100, 340, 15, 200]).weights).toEqual([
+      { position: 3, angle_deg: 200, mass_g: 20 },
+    ]);
   });
 
   it('holes wide apart: the split is given with a warning that the parts weigh much more than the weight', () => {
@@ -80,7 +91,17 @@ describe('split between holes at any angles (law of sines)', () => {
 });
 
 describe('ISO 21940-11 allocation of U_per to the planes (from memory; hand computations)', () => {
-  const geo = (com: number, planes: [number, number], rotor: RotorGeometry['rotor'] = 'centre_hung'): RotorGeometry => ({ rotor, bearing_a_mm: 0, bearing_b_mm: 1400, centre_of_mass_mm: com, planes_mm: { P1: planes[0], P2: planes[1] } });
+  const geo = (
+    com: number,
+    planes: [number, number],
+    rotor: RotorGeometry['rotor'] = 'centre_hung',
+  ): RotorGeometry => ({
+    rotor,
+    bearing_a_mm: 0,
+    bearing_b_mm: 1400,
+    centre_of_mass_mm: com,
+    planes_mm: { P1: planes[0], P2: planes[1] },
+  });
 
   it('symmetric rotor: the allocation gives the equal split', () => {
     const a = allocatePermissible(10000, ['P1', 'P2'], geo(700, [300, 1100]));
@@ -135,14 +156,19 @@ describe('ISO 21940-11 allocation of U_per to the planes (from memory; hand comp
     expect(allocatePermissible(10000, ['P1']).by_plane_g_mm).toEqual({ P1: 10000 });
   });
 
-  it('the solver judges the last run against each plane\'s allocated share, not the equal split', () => {
+  it("the solver judges the last run against each plane's allocated share, not the equal split", () => {
     const rig = twoBearingRig('ccw');
     // residual unbalance after balancing: 50 g at 120 mm in P1 = 6000 g mm, 10 g in P2 = 1200 g mm
     const U: RigMass[] = [
       { plane: 0, mass_g: 50, angle_deg: 40, convention: 'against_rotation' },
       { plane: 1, mass_g: 10, angle_deg: 200, convention: 'against_rotation' },
     ];
-    const t = (plane: number): RigMass => ({ plane, mass_g: 40, angle_deg: 0, convention: 'against_rotation' });
+    const t = (plane: number): RigMass => ({
+      plane,
+      mass_g: 40,
+      angle_deg: 0,
+      convention: 'against_rotation',
+    });
     const job = {
       angle_convention: 'against_rotation' as const,
       planes: ['P1', 'P2'],
@@ -151,8 +177,16 @@ describe('ISO 21940-11 allocation of U_per to the planes (from memory; hand comp
       grade_mm_s: 6.3,
       runs: [
         { speed_rpm: 1485, weights: [], readings: measure(rig, U) },
-        { speed_rpm: 1485, weights: [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], readings: measure(rig, [...U, t(0)]) },
-        { speed_rpm: 1485, weights: [{ plane: 'P2', mass_g: 40, angle_deg: 0 }], readings: measure(rig, [...U, t(1)]) },
+        {
+          speed_rpm: 1485,
+          weights: [{ plane: 'P1', mass_g: 40, angle_deg: 0 }],
+          readings: measure(rig, [...U, t(0)]),
+        },
+        {
+          speed_rpm: 1485,
+          weights: [{ plane: 'P2', mass_g: 40, angle_deg: 0 }],
+          readings: measure(rig, [...U, t(1)]),
+        },
         { speed_rpm: 1485, weights: [], readings: measure(rig, U) },
       ],
     };
@@ -162,7 +196,16 @@ describe('ISO 21940-11 allocation of U_per to the planes (from memory; hand comp
     expect(equal.unbalance!.last_run_g_mm.P1).toBeCloseTo(6000, 3);
     expect(equal.unbalance!.last_run_within_grade).toBe(false); // 6000 > per / 2
     // centre of mass near P1's bearing: P1 may keep 0.7 x U_per = 7090 g mm, P2 0.3 x U_per = 3038
-    const near = solveBalanceJob({ ...job, geometry: { rotor: 'centre_hung', bearing_a_mm: 0, bearing_b_mm: 1000, centre_of_mass_mm: 250, planes_mm: { P1: 150, P2: 850 } } });
+    const near = solveBalanceJob({
+      ...job,
+      geometry: {
+        rotor: 'centre_hung',
+        bearing_a_mm: 0,
+        bearing_b_mm: 1000,
+        centre_of_mass_mm: 250,
+        planes_mm: { P1: 150, P2: 850 },
+      },
+    });
     expect(near.unbalance!.permissible_by_plane_g_mm!.P1).toBeCloseTo(0.7 * per, 6);
     expect(near.unbalance!.last_run_within_grade).toBe(true);
   });
@@ -183,15 +226,31 @@ describe('the 1x amplitude for the four-run method from one analysis window', ()
       ...base,
       revolutions: 0,
       speed_rpm: null,
-      channels: base.channels.map((c) => ({ ...c, orders: {}, nonsync_peaks: peaks.map((p) => ({ ...p, order: null })) as unknown as typeof c.nonsync_peaks })),
+      channels: base.channels.map((c) => ({
+        ...c,
+        orders: {},
+        nonsync_peaks: peaks.map((p) => ({
+          ...p,
+          order: null,
+        })) as unknown as typeof c.nonsync_peaks,
+      })),
     });
-    const a = oneXAmplitude(noTach([{ freq_hz: 247.5, amp_rms_mm_s: 0.3 }, { freq_hz: 24.6, amp_rms_mm_s: 2.0 }]), 'DE-H', 1485);
+    const a = oneXAmplitude(
+      noTach([
+        { freq_hz: 247.5, amp_rms_mm_s: 0.3 },
+        { freq_hz: 24.6, amp_rms_mm_s: 2.0 },
+      ]),
+      'DE-H',
+      1485,
+    );
     expect(a).toMatchObject({ source: 'spectrum', upper_bound: false, amp_rms_mm_s: 2.0 });
     expect(a.amp_pk_mm_s).toBeCloseTo(2.0 * Math.SQRT2, 12);
     const b = oneXAmplitude(noTach([{ freq_hz: 247.5, amp_rms_mm_s: 0.3 }]), 'DE-H', 1485);
     expect(b.upper_bound).toBe(true);
     expect(b.amp_rms_mm_s).toBeCloseTo(0.02 * de.overall_rms_mm_s!, 12);
-    expect(() => oneXAmplitude(noTach([]), 'DE-H', 1485)).toThrow(/no spectral peak within 5 % of 1485 r\/min/);
+    expect(() => oneXAmplitude(noTach([]), 'DE-H', 1485)).toThrow(
+      /no spectral peak within 5 % of 1485 r\/min/,
+    );
     expect(() => oneXAmplitude(base, 'XX', 1485)).toThrow(/sensor XX/);
   });
 });

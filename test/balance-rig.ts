@@ -79,8 +79,22 @@ export function twoBearingRig(rotation: 'ccw' | 'cw'): Rig {
     rotation,
     pickupDeg: 20,
     sensors: [
-      { id: 'DE-V', mountDeg: 90, planes: [{ gain: 0.060, lagDeg: 35 }, { gain: 0.022, lagDeg: 70 }] },
-      { id: 'NDE-V', mountDeg: 90, planes: [{ gain: 0.018, lagDeg: 80 }, { gain: 0.055, lagDeg: 40 }] },
+      {
+        id: 'DE-V',
+        mountDeg: 90,
+        planes: [
+          { gain: 0.06, lagDeg: 35 },
+          { gain: 0.022, lagDeg: 70 },
+        ],
+      },
+      {
+        id: 'NDE-V',
+        mountDeg: 90,
+        planes: [
+          { gain: 0.018, lagDeg: 80 },
+          { gain: 0.055, lagDeg: 40 },
+        ],
+      },
     ],
   };
 }
@@ -91,7 +105,13 @@ export const ISSUE_EXAMPLE_JOB = {
   planes: ['P1', 'P2'],
   runs: [
     { weights: [], readings: { 'DE-V': { amp: 6.1, phase_deg: 120 } } },
-    { weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 3.2, phase_deg: 95 } } },
-    { weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], readings: { 'DE-V': { amp: 7.0, phase_deg: 140 } } },
+    {
+      weights: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }],
+      readings: { 'DE-V': { amp: 3.2, phase_deg: 95 } },
+    },
+    {
+      weights: [{ plane: 'P2', mass_g: 50, angle_deg: 0 }],
+      readings: { 'DE-V': { amp: 7.0, phase_deg: 140 } },
+    },
   ],
 };

@@ -3,7 +3,13 @@ import type { AngleConvention } from '../agent/balance/conventions.js';
 import type { BalanceJob, JobRun, JobWeight, Reading } from '../agent/balance/job.js';
 import { parseBalanceJob } from '../agent/balance/job-input.js';
 import { solveBalanceJob, trialMove } from '../agent/balance/solve.js';
-import { ISSUE_EXAMPLE_JOB, measure, type Rig, type RigMass, twoBearingRig } from './balance-rig.js';
+import {
+  ISSUE_EXAMPLE_JOB,
+  measure,
+  type Rig,
+  type RigMass,
+  twoBearingRig,
+} from './balance-rig.js';
 
 /** Smallest angular distance, degrees. */
 function angDist(a: number, b: number): number {
@@ -11,8 +17,20 @@ function angDist(a: number, b: number): number {
   return Math.min(d, 360 - d);
 }
 
-function run(rig: Rig, unbalance: readonly RigMass[], weights: readonly JobWeight[], planes: readonly string[], conv: AngleConvention, extra: Partial<JobRun> = {}): JobRun {
-  const added = weights.map((w) => ({ plane: planes.indexOf(w.plane), mass_g: w.mass_g, angle_deg: w.angle_deg, convention: conv }));
+function run(
+  rig: Rig,
+  unbalance: readonly RigMass[],
+  weights: readonly JobWeight[],
+  planes: readonly string[],
+  conv: AngleConvention,
+  extra: Partial<JobRun> = {},
+): JobRun {
+  const added = weights.map((w) => ({
+    plane: planes.indexOf(w.plane),
+    mass_g: w.mass_g,
+    angle_deg: w.angle_deg,
+    convention: conv,
+  }));
   return { weights, readings: measure(rig, [...unbalance, ...added]), ...extra };
 }
 
@@ -35,7 +53,10 @@ describe('angle conventions: the correction lands opposite the heavy spot (simul
         const job: BalanceJob = {
           angle_convention: conv,
           planes: ['P1'],
-          runs: [run(rig, heavy, [], ['P1'], conv), run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv)],
+          runs: [
+            run(rig, heavy, [], ['P1'], conv),
+            run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv),
+          ],
         };
         const r = solveBalanceJob(job);
         expect(r.ok).toBe(true);
@@ -44,8 +65,14 @@ describe('angle conventions: the correction lands opposite the heavy spot (simul
         expect(angDist(r.corrections[0]!.angle_deg, 250)).toBeLessThan(1e-6);
         // Put where the result says, in the same convention, it cancels the vibration.
         const c = r.corrections[0]!;
-        expect(residualAmp(rig, heavy, [{ plane: 0, mass_g: c.mass_g, angle_deg: c.angle_deg, convention: conv }])).toBeLessThan(1e-9);
-        expect(r.convention).toContain(conv === 'against_rotation' ? 'AGAINST rotation' : 'WITH rotation');
+        expect(
+          residualAmp(rig, heavy, [
+            { plane: 0, mass_g: c.mass_g, angle_deg: c.angle_deg, convention: conv },
+          ]),
+        ).toBeLessThan(1e-9);
+        expect(r.convention).toContain(
+          conv === 'against_rotation' ? 'AGAINST rotation' : 'WITH rotation',
+        );
       });
     }
   }
@@ -53,22 +80,33 @@ describe('angle conventions: the correction lands opposite the heavy spot (simul
   it('negative control: solving with the wrong convention mirrors the correction and it does not balance', () => {
     const rig = singlePlaneRig('ccw');
     const heavy: RigMass[] = [{ plane: 0, mass_g: 80, angle_deg: 70, convention: 'with_rotation' }];
-    const runs = [run(rig, heavy, [], ['P1'], 'with_rotation'), run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 30 }], ['P1'], 'with_rotation')];
+    const runs = [
+      run(rig, heavy, [], ['P1'], 'with_rotation'),
+      run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 30 }], ['P1'], 'with_rotation'),
+    ];
     const wrong = solveBalanceJob({ angle_convention: 'against_rotation', planes: ['P1'], runs });
     const c = wrong.corrections[0]!;
     expect(angDist(c.angle_deg, 250)).toBeGreaterThan(30);
     const before = residualAmp(rig, heavy, []);
-    const after = residualAmp(rig, heavy, [{ plane: 0, mass_g: c.mass_g, angle_deg: c.angle_deg, convention: 'with_rotation' }]);
+    const after = residualAmp(rig, heavy, [
+      { plane: 0, mass_g: c.mass_g, angle_deg: c.angle_deg, convention: 'with_rotation' },
+    ]);
     expect(after).toBeGreaterThan(0.5 * before);
   });
 });
 
 describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solutions to Unbalance and Misalignment (Fairmont Press, 2004), chapter 5', () => {
-  const P = (amp: number, deg: number) => ({ re: amp * Math.cos((deg * Math.PI) / 180), im: amp * Math.sin((deg * Math.PI) / 180) });
+  const P = (amp: number, deg: number) => ({
+    re: amp * Math.cos((deg * Math.PI) / 180),
+    im: amp * Math.sin((deg * Math.PI) / 180),
+  });
   const plus = (a: { re: number; im: number }, b: { re: number; im: number }): Reading => {
     const re = a.re + b.re;
     const im = a.im + b.im;
-    return { amp: Math.hypot(re, im), phase_deg: ((Math.atan2(im, re) * 180) / Math.PI + 360) % 360 };
+    return {
+      amp: Math.hypot(re, im),
+      phase_deg: ((Math.atan2(im, re) * 180) / Math.PI + 360) % 360,
+    };
   };
   // Masses are in ounces in the book; they go into mass_g unchanged: the solver is linear in mass,
   // so the corrections come out in the trial weights' unit.
@@ -86,13 +124,18 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
         amp_unit: 'mil pp',
         runs: [
           { weights: [], readings: { V: { amp: 3.5, phase_deg: 60 } } },
-          { weights: [{ plane: 'P1', mass_g: 5, angle_deg: 0 }], readings: { V: { amp: 5.0, phase_deg: 120 } } },
+          {
+            weights: [{ plane: 'P1', mass_g: 5, angle_deg: 0 }],
+            readings: { V: { amp: 5.0, phase_deg: 120 } },
+          },
         ],
       });
       expect(r.ok).toBe(true);
       expect(r.influence_coefficients[0]!.amp_per_g * 5).toBeCloseTo(4.44409, 4);
       expect(r.corrections[0]!.mass_g).toBeCloseTo((5 * 3.5) / 4.44409, 3);
-      expect(angDist(r.corrections[0]!.angle_deg, conv === 'against_rotation' ? 77 : 283)).toBeLessThan(0.5);
+      expect(
+        angDist(r.corrections[0]!.angle_deg, conv === 'against_rotation' ? 77 : 283),
+      ).toBeLessThan(0.5);
     }
   });
 
@@ -107,10 +150,21 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
     const F0 = P(5.4, 215);
     const runs = (t1: number, t2: number): JobRun[] => [
       { weights: [], readings: { N: plus(N0, P(0, 0)), F: plus(F0, P(0, 0)) } },
-      { weights: [{ plane: 'near', mass_g: 8, angle_deg: t1 }], readings: { N: plus(N0, P(6.3, 198)), F: plus(F0, P(2.1, 7)) } },
-      { weights: [{ plane: 'far', mass_g: 10, angle_deg: t2 }], readings: { N: plus(N0, P(3.3, 281)), F: plus(F0, P(7.1, 121)) } },
+      {
+        weights: [{ plane: 'near', mass_g: 8, angle_deg: t1 }],
+        readings: { N: plus(N0, P(6.3, 198)), F: plus(F0, P(2.1, 7)) },
+      },
+      {
+        weights: [{ plane: 'far', mass_g: 10, angle_deg: t2 }],
+        readings: { N: plus(N0, P(3.3, 281)), F: plus(F0, P(7.1, 121)) },
+      },
     ];
-    const w = solveBalanceJob({ angle_convention: 'with_rotation', planes: ['near', 'far'], amp_unit: 'mil pp', runs: runs(270, 180) });
+    const w = solveBalanceJob({
+      angle_convention: 'with_rotation',
+      planes: ['near', 'far'],
+      amp_unit: 'mil pp',
+      runs: runs(270, 180),
+    });
     // The far-end reading with T2 rebuilt from F0 and F0>F2 is the book's F2 = 8.6 mils at 160 deg (p. 91).
     expect(runs(270, 180)[2]!.readings.F!.amp).toBeCloseTo(8.6, 1);
     expect(angDist(runs(270, 180)[2]!.readings.F!.phase_deg, 160)).toBeLessThan(0.5);
@@ -120,7 +174,11 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
     expect(Math.abs(w.corrections[1]!.mass_g - 5) / 5).toBeLessThan(0.05);
     expect(angDist(w.corrections[1]!.angle_deg, 282)).toBeLessThan(2);
     // The same rotor with weight angles counted against rotation: every angle mirrored.
-    const a = solveBalanceJob({ angle_convention: 'against_rotation', planes: ['near', 'far'], runs: runs(90, 180) });
+    const a = solveBalanceJob({
+      angle_convention: 'against_rotation',
+      planes: ['near', 'far'],
+      runs: runs(90, 180),
+    });
     expect(a.corrections[0]!.mass_g).toBeCloseTo(w.corrections[0]!.mass_g, 9);
     expect(angDist(a.corrections[0]!.angle_deg, 360 - 214)).toBeLessThan(2);
     expect(angDist(a.corrections[1]!.angle_deg, 360 - 282)).toBeLessThan(2);
@@ -136,11 +194,17 @@ describe('published example: Tiwari, Theory and Practice of Rotor Dynamics (NPTE
   // (alpha = dV / T; W = -alpha^-1 V0, worked separately with Python's cmath):
   //   alpha11 = alpha22 = 166.67 um/kg at 31 deg, alpha21 = alpha12 = 140 um/kg at 100 deg,
   //   W1 = 0.3325 kg at 28.9 deg, W2 = 0.1884 kg at 151.2 deg.
-  const P = (amp: number, deg: number) => ({ re: amp * Math.cos((deg * Math.PI) / 180), im: amp * Math.sin((deg * Math.PI) / 180) });
+  const P = (amp: number, deg: number) => ({
+    re: amp * Math.cos((deg * Math.PI) / 180),
+    im: amp * Math.sin((deg * Math.PI) / 180),
+  });
   const plus = (a: { re: number; im: number }, b: { re: number; im: number }): Reading => {
     const re = a.re + b.re;
     const im = a.im + b.im;
-    return { amp: Math.hypot(re, im), phase_deg: ((Math.atan2(im, re) * 180) / Math.PI + 360) % 360 };
+    return {
+      amp: Math.hypot(re, im),
+      phase_deg: ((Math.atan2(im, re) * 180) / Math.PI + 360) % 360,
+    };
   };
   const v1 = P(30, 230);
   const v2 = P(70, 330);
@@ -150,15 +214,22 @@ describe('published example: Tiwari, Theory and Practice of Rotor Dynamics (NPTE
     amp_unit: 'um',
     runs: [
       { weights: [], readings: { end1: plus(v1, P(0, 0)), end2: plus(v2, P(0, 0)) } },
-      { weights: [{ plane: 'end1', mass_g: 300, angle_deg: trialDeg }], readings: { end1: plus(v1, P(50, 61)), end2: plus(v2, P(42, 130)) } },
-      { weights: [{ plane: 'end2', mass_g: 300, angle_deg: trialDeg }], readings: { end1: plus(v1, P(42, 130)), end2: plus(v2, P(50, 61)) } },
+      {
+        weights: [{ plane: 'end1', mass_g: 300, angle_deg: trialDeg }],
+        readings: { end1: plus(v1, P(50, 61)), end2: plus(v2, P(42, 130)) },
+      },
+      {
+        weights: [{ plane: 'end2', mass_g: 300, angle_deg: trialDeg }],
+        readings: { end1: plus(v1, P(42, 130)), end2: plus(v2, P(50, 61)) },
+      },
     ],
   });
 
   it('against rotation (angles as published)', () => {
     const r = solveBalanceJob(job('against_rotation', 30));
     expect(r.ok).toBe(true);
-    const h = (s: string, p: string) => r.influence_coefficients.find((c) => c.sensor === s && c.plane === p)!;
+    const h = (s: string, p: string) =>
+      r.influence_coefficients.find((c) => c.sensor === s && c.plane === p)!;
     expect(h('end1', 'end1').amp_per_g * 1000).toBeCloseTo(166.67, 1);
     expect(h('end1', 'end1').phase_deg).toBeCloseTo(31, 6);
     expect(h('end2', 'end1').amp_per_g * 1000).toBeCloseTo(140, 6);
@@ -206,8 +277,16 @@ describe('two planes, round trip on a simulated two-bearing fan', () => {
         expect(angDist(r.corrections[1]!.angle_deg, 20)).toBeLessThan(1e-6);
         // Trial weights were removed after each run, so the last run still carries the P2 trial.
         const left = r.corrections_trials_left_in;
-        const added = left.map((w, p) => ({ plane: p, mass_g: w.mass_g, angle_deg: w.angle_deg, convention: conv }));
-        const withTrial: RigMass[] = [...U, { plane: 1, mass_g: 60, angle_deg: 280, convention: conv }];
+        const added = left.map((w, p) => ({
+          plane: p,
+          mass_g: w.mass_g,
+          angle_deg: w.angle_deg,
+          convention: conv,
+        }));
+        const withTrial: RigMass[] = [
+          ...U,
+          { plane: 1, mass_g: 60, angle_deg: 280, convention: conv },
+        ];
         expect(residualAmp(rig, withTrial, added)).toBeLessThan(1e-9);
         expect(r.condition_number).toBeGreaterThan(1);
         expect(r.condition_number).toBeLessThan(10);
@@ -230,7 +309,11 @@ describe('two planes, round trip on a simulated two-bearing fan', () => {
     const job: BalanceJob = {
       angle_convention: conv,
       planes,
-      runs: [run(rig, U, [], planes, conv), run(rig, U, t1, planes, conv), run(rig, U, [...t1, t2], planes, conv)],
+      runs: [
+        run(rig, U, [], planes, conv),
+        run(rig, U, t1, planes, conv),
+        run(rig, U, [...t1, t2], planes, conv),
+      ],
     };
     const r = solveBalanceJob(job);
     expect(r.ok).toBe(true);
@@ -239,8 +322,18 @@ describe('two planes, round trip on a simulated two-bearing fan', () => {
     expect(r.corrections[1]!.mass_g).toBeCloseTo(45, 6);
     expect(angDist(r.corrections[1]!.angle_deg, 280)).toBeLessThan(1e-6);
     // With every trial weight left on, the weights to add finish the job.
-    const present = [...t1, t2].map((w) => ({ plane: planes.indexOf(w.plane), mass_g: w.mass_g, angle_deg: w.angle_deg, convention: conv }));
-    const add = r.corrections_trials_left_in.map((w, p) => ({ plane: p, mass_g: w.mass_g, angle_deg: w.angle_deg, convention: conv }));
+    const present = [...t1, t2].map((w) => ({
+      plane: planes.indexOf(w.plane),
+      mass_g: w.mass_g,
+      angle_deg: w.angle_deg,
+      convention: conv,
+    }));
+    const add = r.corrections_trials_left_in.map((w, p) => ({
+      plane: p,
+      mass_g: w.mass_g,
+      angle_deg: w.angle_deg,
+      convention: conv,
+    }));
     expect(residualAmp(rig, [...U, ...present], add)).toBeLessThan(1e-9);
   });
 
@@ -259,7 +352,15 @@ describe('two planes, round trip on a simulated two-bearing fan', () => {
       { plane: 'P1', mass_g: 40, angle_deg: 90 },
       { plane: 'P2', mass_g: 40, angle_deg: 270 },
     ];
-    const r = solveBalanceJob({ angle_convention: conv, planes, runs: [run(rig, U, [], planes, conv), run(rig, U, staticPair, planes, conv), run(rig, U, couplePair, planes, conv)] });
+    const r = solveBalanceJob({
+      angle_convention: conv,
+      planes,
+      runs: [
+        run(rig, U, [], planes, conv),
+        run(rig, U, staticPair, planes, conv),
+        run(rig, U, couplePair, planes, conv),
+      ],
+    });
     expect(r.ok).toBe(true);
     expect(r.corrections[0]!.mass_g).toBeCloseTo(100, 6);
     expect(angDist(r.corrections[0]!.angle_deg, 190)).toBeLessThan(1e-6);
@@ -268,10 +369,30 @@ describe('two planes, round trip on a simulated two-bearing fan', () => {
     // The static and couple pairs, fitted together, balance the rotor too.
     const sc = r.static_couple!;
     const pairs: RigMass[] = [
-      { plane: 0, mass_g: sc.static_pair.mass_g_each, angle_deg: sc.static_pair.angle_deg, convention: conv },
-      { plane: 1, mass_g: sc.static_pair.mass_g_each, angle_deg: sc.static_pair.angle_deg, convention: conv },
-      { plane: 0, mass_g: sc.couple_pair.mass_g_each, angle_deg: sc.couple_pair.angle_deg_first_plane, convention: conv },
-      { plane: 1, mass_g: sc.couple_pair.mass_g_each, angle_deg: sc.couple_pair.angle_deg_second_plane, convention: conv },
+      {
+        plane: 0,
+        mass_g: sc.static_pair.mass_g_each,
+        angle_deg: sc.static_pair.angle_deg,
+        convention: conv,
+      },
+      {
+        plane: 1,
+        mass_g: sc.static_pair.mass_g_each,
+        angle_deg: sc.static_pair.angle_deg,
+        convention: conv,
+      },
+      {
+        plane: 0,
+        mass_g: sc.couple_pair.mass_g_each,
+        angle_deg: sc.couple_pair.angle_deg_first_plane,
+        convention: conv,
+      },
+      {
+        plane: 1,
+        mass_g: sc.couple_pair.mass_g_each,
+        angle_deg: sc.couple_pair.angle_deg_second_plane,
+        convention: conv,
+      },
     ];
     expect(residualAmp(rig, U, pairs)).toBeLessThan(1e-9);
   });
@@ -285,8 +406,22 @@ describe('more sensors than planes: complex least squares', () => {
       pickupDeg: 0,
       sensors: [
         ...twoBearingRig('ccw').sensors,
-        { id: 'DE-H', mountDeg: 0, planes: [{ gain: 0.045, lagDeg: 50 }, { gain: 0.015, lagDeg: 95 }] },
-        { id: 'NDE-H', mountDeg: 0, planes: [{ gain: 0.012, lagDeg: 100 }, { gain: 0.05, lagDeg: 60 }] },
+        {
+          id: 'DE-H',
+          mountDeg: 0,
+          planes: [
+            { gain: 0.045, lagDeg: 50 },
+            { gain: 0.015, lagDeg: 95 },
+          ],
+        },
+        {
+          id: 'NDE-H',
+          mountDeg: 0,
+          planes: [
+            { gain: 0.012, lagDeg: 100 },
+            { gain: 0.05, lagDeg: 60 },
+          ],
+        },
       ],
     };
     const planes = ['P1', 'P2'];
@@ -294,7 +429,11 @@ describe('more sensors than planes: complex least squares', () => {
       { plane: 0, mass_g: 75, angle_deg: 160, convention: conv },
       { plane: 1, mass_g: 110, angle_deg: 20, convention: conv },
     ];
-    const runs = [run(rig, U, [], planes, conv), run(rig, U, [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], planes, conv), run(rig, U, [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], planes, conv)];
+    const runs = [
+      run(rig, U, [], planes, conv),
+      run(rig, U, [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], planes, conv),
+      run(rig, U, [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], planes, conv),
+    ];
     const exact = solveBalanceJob({ angle_convention: conv, planes, runs });
     expect(exact.ok).toBe(true);
     expect(exact.corrections[0]!.mass_g).toBeCloseTo(75, 6);
@@ -303,7 +442,20 @@ describe('more sensors than planes: complex least squares', () => {
 
     // Disturb the as-found readings (as scatter would): least squares no longer fits exactly.
     const noisy = runs.map((r, j) =>
-      j === 0 ? { ...r, readings: Object.fromEntries(Object.entries(r.readings).map(([s, v], k) => [s, { amp: v.amp * (1 + 0.05 * (k % 2 ? 1 : -1)), phase_deg: v.phase_deg + 3 * (k - 1.5) }])) } : r,
+      j === 0
+        ? {
+            ...r,
+            readings: Object.fromEntries(
+              Object.entries(r.readings).map(([s, v], k) => [
+                s,
+                {
+                  amp: v.amp * (1 + 0.05 * (k % 2 ? 1 : -1)),
+                  phase_deg: v.phase_deg + 3 * (k - 1.5),
+                },
+              ]),
+            ),
+          }
+        : r,
     );
     const ls = solveBalanceJob({ angle_convention: conv, planes, runs: noisy });
     expect(ls.ok).toBe(true);
@@ -314,7 +466,9 @@ describe('more sensors than planes: complex least squares', () => {
       let re = 0;
       let im = 0;
       for (const v of res) {
-        const h = ls.influence_coefficients.find((c) => c.sensor === v.sensor && c.plane === plane)!;
+        const h = ls.influence_coefficients.find(
+          (c) => c.sensor === v.sensor && c.plane === plane,
+        )!;
         const a = ((v.phase_deg - h.phase_deg) * Math.PI) / 180;
         re += h.amp_per_g * v.amp * Math.cos(a);
         im += h.amp_per_g * v.amp * Math.sin(a);
@@ -351,7 +505,9 @@ describe('more sensors than planes: complex least squares', () => {
       angle_convention: 'against_rotation',
       planes: ['P1'],
       runs: [{ weights: [], readings: Object.fromEntries(sensors.map((s, k) => [s, V[k]!])) }],
-      influence_coefficients: Object.fromEntries(sensors.map((s, k) => [s, { P1: { amp_per_g: H[k]!.amp, phase_deg: H[k]!.ph } }])),
+      influence_coefficients: Object.fromEntries(
+        sensors.map((s, k) => [s, { P1: { amp_per_g: H[k]!.amp, phase_deg: H[k]!.ph } }]),
+      ),
     });
     expect(r.ok).toBe(true);
     expect(r.method).toBe('given_coefficients');
@@ -369,16 +525,26 @@ describe('trim run from stored influence coefficients, no new trial runs', () =>
     const first = solveBalanceJob({
       angle_convention: conv,
       planes,
-      runs: [run(rig, U1, [], planes, conv), run(rig, U1, [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], planes, conv), run(rig, U1, [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], planes, conv)],
+      runs: [
+        run(rig, U1, [], planes, conv),
+        run(rig, U1, [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], planes, conv),
+        run(rig, U1, [{ plane: 'P2', mass_g: 50, angle_deg: 0 }], planes, conv),
+      ],
     });
     const coeffs: Record<string, Record<string, { amp_per_g: number; phase_deg: number }>> = {};
-    for (const c of first.influence_coefficients) (coeffs[c.sensor] ??= {})[c.plane] = { amp_per_g: c.amp_per_g, phase_deg: c.phase_deg };
+    for (const c of first.influence_coefficients)
+      (coeffs[c.sensor] ??= {})[c.plane] = { amp_per_g: c.amp_per_g, phase_deg: c.phase_deg };
     // Months later: dust build-up on the impeller.
     const U2: RigMass[] = [
       { plane: 0, mass_g: 35, angle_deg: 250, convention: conv },
       { plane: 1, mass_g: 25, angle_deg: 75, convention: conv },
     ];
-    const trim = solveBalanceJob({ angle_convention: conv, planes, runs: [run(rig, U2, [], planes, conv)], influence_coefficients: coeffs });
+    const trim = solveBalanceJob({
+      angle_convention: conv,
+      planes,
+      runs: [run(rig, U2, [], planes, conv)],
+      influence_coefficients: coeffs,
+    });
     expect(trim.ok).toBe(true);
     expect(trim.method).toBe('given_coefficients');
     expect(trim.corrections[0]!.mass_g).toBeCloseTo(35, 6);
@@ -389,13 +555,14 @@ describe('trim run from stored influence coefficients, no new trial runs', () =>
 });
 
 describe('warnings and refusals: never a confident wrong answer', () => {
-  
   it("the issue's own example (one sensor, two planes) gives a clear message and no numbers", () => {
     const r = solveBalanceJob(parseBalanceJob(ISSUE_EXAMPLE_JOB));
     expect(r.ok).toBe(false);
     expect(r.corrections).toEqual([]);
     expect(r.problems.map((p) => p.code)).toEqual(['fewer_readings_than_planes']);
-    expect(r.problems[0]!.message).toContain('1 sensor reading per run (DE-V) for 2 planes (P1, P2)');
+    expect(r.problems[0]!.message).toContain(
+      '1 sensor reading per run (DE-V) for 2 planes (P1, P2)',
+    );
     expect(r.problems[0]!.hint).toContain('add readings from 1 more sensor');
     // The coefficients themselves are still measured and shown: 3.2@95 - 6.1@120 over 50 g at 0.
     const h = r.influence_coefficients.find((c) => c.plane === 'P1')!;
@@ -414,12 +581,20 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const r = solveBalanceJob({
       angle_convention: conv,
       planes: ['P1'],
-      runs: [asFound, { weights: [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], readings: { 'DE-V': { amp: v.amp * 1.01, phase_deg: v.phase_deg + 0.5 } } }],
+      runs: [
+        asFound,
+        {
+          weights: [{ plane: 'P1', mass_g: 40, angle_deg: 0 }],
+          readings: { 'DE-V': { amp: v.amp * 1.01, phase_deg: v.phase_deg + 0.5 } },
+        },
+      ],
     });
     expect(r.ok).toBe(false);
     expect(r.corrections).toEqual([]);
     expect(r.problems[0]!.code).toBe('trial_no_effect');
-    expect(r.problems[0]!.message).toMatch(/the trial weight in P1 \(runs\[1\]\) changed the 1x vectors by less than 5 %/);
+    expect(r.problems[0]!.message).toMatch(
+      /the trial weight in P1 \(runs\[1\]\) changed the 1x vectors by less than 5 %/,
+    );
   });
 
   it('a later trial that did nothing is caught even when an earlier trial weight was left in', () => {
@@ -429,7 +604,15 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const t1: JobWeight = { plane: 'P1', mass_g: 40, angle_deg: 0 };
     const first = run(r2, U, [t1], planes, conv);
     // Run 2 claims a P2 trial weight, but the readings are those of run 1 (the weight fell off, say).
-    const r = solveBalanceJob({ angle_convention: conv, planes, runs: [run(r2, U, [], planes, conv), first, { ...first, weights: [t1, { plane: 'P2', mass_g: 40, angle_deg: 90 }] }] });
+    const r = solveBalanceJob({
+      angle_convention: conv,
+      planes,
+      runs: [
+        run(r2, U, [], planes, conv),
+        first,
+        { ...first, weights: [t1, { plane: 'P2', mass_g: 40, angle_deg: 90 }] },
+      ],
+    });
     expect(r.ok).toBe(false);
     expect(r.corrections).toEqual([]);
     expect(r.problems.map((p) => p.code)).toEqual(['trial_no_effect']);
@@ -437,7 +620,11 @@ describe('warnings and refusals: never a confident wrong answer', () => {
   });
 
   it('a trial run below the 30 % / 30 degree rule (common practice): solved, with a warning', () => {
-    const r = solveBalanceJob({ angle_convention: conv, planes: ['P1'], runs: [asFound, run(rig, heavy, [{ plane: 'P1', mass_g: 12, angle_deg: 200 }], ['P1'], conv)] });
+    const r = solveBalanceJob({
+      angle_convention: conv,
+      planes: ['P1'],
+      runs: [asFound, run(rig, heavy, [{ plane: 'P1', mass_g: 12, angle_deg: 200 }], ['P1'], conv)],
+    });
     expect(r.ok).toBe(true);
     expect(r.trial_checks[0]!.moved_enough).toBe(false);
     expect(r.warnings.map((w) => w.code)).toContain('trial_small_effect');
@@ -445,9 +632,15 @@ describe('warnings and refusals: never a confident wrong answer', () => {
   });
 
   it('the 30 % / 30 degree trial rule (common practice), by hand', () => {
-    expect(trialMove({ amp: 5, phase_deg: 100 }, { amp: 6.4, phase_deg: 110 }).moved_enough).toBe(false); // +28 %, +10 deg
-    expect(trialMove({ amp: 5, phase_deg: 100 }, { amp: 6.5, phase_deg: 110 }).moved_enough).toBe(true); // +30 %
-    expect(trialMove({ amp: 5, phase_deg: 350 }, { amp: 5, phase_deg: 20 }).moved_enough).toBe(true); // +30 deg across 0
+    expect(trialMove({ amp: 5, phase_deg: 100 }, { amp: 6.4, phase_deg: 110 }).moved_enough).toBe(
+      false,
+    ); // +28 %, +10 deg
+    expect(trialMove({ amp: 5, phase_deg: 100 }, { amp: 6.5, phase_deg: 110 }).moved_enough).toBe(
+      true,
+    ); // +30 %
+    expect(trialMove({ amp: 5, phase_deg: 350 }, { amp: 5, phase_deg: 20 }).moved_enough).toBe(
+      true,
+    ); // +30 deg across 0
     const m = trialMove({ amp: 5, phase_deg: 350 }, { amp: 5, phase_deg: 20 });
     expect(m.phase_change_deg).toBeCloseTo(30, 12);
     expect(m.vector_change_pct).toBeCloseTo(200 * Math.sin((15 * Math.PI) / 180), 9); // chord of 30 deg
@@ -457,7 +650,13 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const r = solveBalanceJob({
       angle_convention: conv,
       planes: ['P1'],
-      runs: [{ ...asFound, speed_rpm: 1485 }, run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv, { speed_rpm: 1440, label: 'trial P1' })],
+      runs: [
+        { ...asFound, speed_rpm: 1485 },
+        run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv, {
+          speed_rpm: 1440,
+          label: 'trial P1',
+        }),
+      ],
     });
     const w = r.warnings.find((x) => x.code === 'speed_mismatch')!;
     expect(w.message).toContain('runs[1] ("trial P1") at 1440 r/min against 1485 r/min as found');
@@ -468,11 +667,19 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const r = solveBalanceJob({
       angle_convention: conv,
       planes: ['P1', 'P2'],
-      runs: [{ weights: [], readings: { 'DE-V': { amp: 5, phase_deg: 100 }, 'DE-H': { amp: 4, phase_deg: 10 } } }],
+      runs: [
+        {
+          weights: [],
+          readings: { 'DE-V': { amp: 5, phase_deg: 100 }, 'DE-H': { amp: 4, phase_deg: 10 } },
+        },
+      ],
       // DE-H = DE-V x 0.8 at -90 deg for both planes: one independent reading, not two.
       influence_coefficients: {
         'DE-V': { P1: { amp_per_g: 0.05, phase_deg: 30 }, P2: { amp_per_g: 0.02, phase_deg: 80 } },
-        'DE-H': { P1: { amp_per_g: 0.04, phase_deg: 300 }, P2: { amp_per_g: 0.016, phase_deg: 350 } },
+        'DE-H': {
+          P1: { amp_per_g: 0.04, phase_deg: 300 },
+          P2: { amp_per_g: 0.016, phase_deg: 350 },
+        },
       },
     });
     expect(r.ok).toBe(false);
@@ -484,12 +691,19 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const r = solveBalanceJob({
       angle_convention: conv,
       planes: ['P1', 'P2'],
-      runs: [{ weights: [], readings: { A: { amp: 1, phase_deg: 0 }, B: { amp: 1, phase_deg: 180 } } }],
-      influence_coefficients: { A: { P1: { amp_per_g: 1, phase_deg: 0 }, P2: { amp_per_g: 0.9, phase_deg: 0 } }, B: { P1: { amp_per_g: 0.9, phase_deg: 0 }, P2: { amp_per_g: 1, phase_deg: 0 } } },
+      runs: [
+        { weights: [], readings: { A: { amp: 1, phase_deg: 0 }, B: { amp: 1, phase_deg: 180 } } },
+      ],
+      influence_coefficients: {
+        A: { P1: { amp_per_g: 1, phase_deg: 0 }, P2: { amp_per_g: 0.9, phase_deg: 0 } },
+        B: { P1: { amp_per_g: 0.9, phase_deg: 0 }, P2: { amp_per_g: 1, phase_deg: 0 } },
+      },
     });
     expect(r.ok).toBe(true);
     expect(r.condition_number).toBeCloseTo(19, 9);
-    expect(r.warnings.find((w) => w.code === 'ill_conditioned')!.message).toContain('condition number 19.0');
+    expect(r.warnings.find((w) => w.code === 'ill_conditioned')!.message).toContain(
+      'condition number 19.0',
+    );
     // By hand: C = -H^-1 V0 with V0 = (1, -1): C1 = -10, C2 = +10 (10 g at 180 deg, 10 g at 0 deg).
     expect(r.corrections[0]!.mass_g).toBeCloseTo(10, 9);
     expect(r.corrections[0]!.angle_deg).toBeCloseTo(180, 9);
@@ -500,8 +714,13 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const r = solveBalanceJob({
       angle_convention: conv,
       planes: ['P1', 'P2'],
-      runs: [{ weights: [], readings: { A: { amp: 1, phase_deg: 0 }, B: { amp: 1, phase_deg: 0 } } }],
-      influence_coefficients: { A: { P1: { amp_per_g: 1, phase_deg: 0 }, P2: { amp_per_g: 0, phase_deg: 0 } }, B: { P1: { amp_per_g: 0, phase_deg: 0 }, P2: { amp_per_g: 0.05, phase_deg: 0 } } },
+      runs: [
+        { weights: [], readings: { A: { amp: 1, phase_deg: 0 }, B: { amp: 1, phase_deg: 0 } } },
+      ],
+      influence_coefficients: {
+        A: { P1: { amp_per_g: 1, phase_deg: 0 }, P2: { amp_per_g: 0, phase_deg: 0 } },
+        B: { P1: { amp_per_g: 0, phase_deg: 0 }, P2: { amp_per_g: 0.05, phase_deg: 0 } },
+      },
     });
     expect(r.condition_number).toBeCloseTo(1, 12);
     expect(r.warnings).toEqual([]);
@@ -509,16 +728,30 @@ describe('warnings and refusals: never a confident wrong answer', () => {
   });
 
   it('a weight larger than the plane allows: warning and flag', () => {
-    const r = solveBalanceJob({ angle_convention: conv, planes: ['P1'], max_mass_g: { P1: 50 }, runs: [asFound, run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv)] });
+    const r = solveBalanceJob({
+      angle_convention: conv,
+      planes: ['P1'],
+      max_mass_g: { P1: 50 },
+      runs: [asFound, run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv)],
+    });
     expect(r.ok).toBe(true);
     expect(r.corrections[0]!.over_max).toBe(true);
-    expect(r.warnings.find((w) => w.code === 'over_max_mass')!.message).toContain('the correction for P1 is 80.0 g, more than the 50.0 g this plane takes');
+    expect(r.warnings.find((w) => w.code === 'over_max_mass')!.message).toContain(
+      'the correction for P1 is 80.0 g, more than the 50.0 g this plane takes',
+    );
   });
 
   it('a plane that never carried a trial weight: refused', () => {
     const r2 = twoBearingRig('ccw');
     const U: RigMass[] = [{ plane: 0, mass_g: 50, angle_deg: 0, convention: conv }];
-    const r = solveBalanceJob({ angle_convention: conv, planes: ['P1', 'P2'], runs: [run(r2, U, [], ['P1', 'P2'], conv), run(r2, U, [{ plane: 'P1', mass_g: 30, angle_deg: 0 }], ['P1', 'P2'], conv)] });
+    const r = solveBalanceJob({
+      angle_convention: conv,
+      planes: ['P1', 'P2'],
+      runs: [
+        run(r2, U, [], ['P1', 'P2'], conv),
+        run(r2, U, [{ plane: 'P1', mass_g: 30, angle_deg: 0 }], ['P1', 'P2'], conv),
+      ],
+    });
     expect(r.ok).toBe(false);
     expect(r.problems[0]!.code).toBe('plane_without_trial');
     expect(r.problems[0]!.message).toContain('P2');
@@ -537,7 +770,12 @@ describe('warnings and refusals: never a confident wrong answer', () => {
       radius_mm: { P1: 600 },
       rotor_mass_kg: 500,
       grade_mm_s: 6.3,
-      runs: [{ ...asFound, speed_rpm: 1480 }, run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv, { speed_rpm: 1480 })],
+      runs: [
+        { ...asFound, speed_rpm: 1480 },
+        run(rig, heavy, [{ plane: 'P1', mass_g: 40, angle_deg: 0 }], ['P1'], conv, {
+          speed_rpm: 1480,
+        }),
+      ],
     });
     const u = r.unbalance!;
     expect(u.as_found_g_mm.P1).toBeCloseTo(80 * 600, 4);

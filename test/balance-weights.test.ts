@@ -1,6 +1,12 @@
 import { describe, expect, it } from 'vitest';
 import { argDeg, complex, deltaDeg, fromPolar, wrapDeg } from '../agent/balance/complex.js';
-import { cmatrixFrom, conditionNumber, getEl, leastSquares, singularValues } from '../agent/balance/linalg.js';
+import {
+  cmatrixFrom,
+  conditionNumber,
+  getEl,
+  leastSquares,
+  singularValues,
+} from '../agent/balance/linalg.js';
 import {
   centrifugalForceN,
   combineWeights,
@@ -40,23 +46,44 @@ describe('complex linear algebra', () => {
 
   it('a unitary matrix has condition number 1; a rank-1 matrix is singular', () => {
     const k = 1 / Math.SQRT2;
-    expect(conditionNumber(cmatrixFrom([[complex(k, 0), complex(0, k)], [complex(0, k), complex(k, 0)]]))).toBeCloseTo(1, 12);
+    expect(
+      conditionNumber(
+        cmatrixFrom([
+          [complex(k, 0), complex(0, k)],
+          [complex(0, k), complex(k, 0)],
+        ]),
+      ),
+    ).toBeCloseTo(1, 12);
     const h1 = fromPolar(0.05, 30);
     const h2 = fromPolar(0.02, 80);
     const m = fromPolar(0.8, -90);
-    const mul = (a: { re: number; im: number }, b: { re: number; im: number }) => complex(a.re * b.re - a.im * b.im, a.re * b.im + a.im * b.re);
-    expect(conditionNumber(cmatrixFrom([[h1, h2], [mul(h1, m), mul(h2, m)]]))).toBeGreaterThan(1e12);
+    const mul = (a: { re: number; im: number }, b: { re: number; im: number }) =>
+      complex(a.re * b.re - a.im * b.im, a.re * b.im + a.im * b.re);
+    expect(
+      conditionNumber(
+        cmatrixFrom([
+          [h1, h2],
+          [mul(h1, m), mul(h2, m)],
+        ]),
+      ),
+    ).toBeGreaterThan(1e12);
   });
 
-  it('solves a 2x2 complex system as Cramer\'s rule does', () => {
+  it("solves a 2x2 complex system as Cramer's rule does", () => {
     const a11 = complex(1, 2);
     const a12 = complex(-0.5, 0.3);
     const a21 = complex(0.2, -1);
     const a22 = complex(2, 0.5);
     const b1 = complex(3, -1);
     const b2 = complex(-2, 4);
-    const mul = (x: { re: number; im: number }, y: { re: number; im: number }) => ({ re: x.re * y.re - x.im * y.im, im: x.re * y.im + x.im * y.re });
-    const sub = (x: { re: number; im: number }, y: { re: number; im: number }) => ({ re: x.re - y.re, im: x.im - y.im });
+    const mul = (x: { re: number; im: number }, y: { re: number; im: number }) => ({
+      re: x.re * y.re - x.im * y.im,
+      im: x.re * y.im + x.im * y.re,
+    });
+    const sub = (x: { re: number; im: number }, y: { re: number; im: number }) => ({
+      re: x.re - y.re,
+      im: x.im - y.im,
+    });
     const div = (x: { re: number; im: number }, y: { re: number; im: number }) => {
       const d = y.re * y.re + y.im * y.im;
       return { re: (x.re * y.re + x.im * y.im) / d, im: (x.im * y.re - x.re * y.im) / d };
@@ -64,7 +91,13 @@ describe('complex linear algebra', () => {
     const det = sub(mul(a11, a22), mul(a12, a21));
     const x1 = div(sub(mul(b1, a22), mul(a12, b2)), det);
     const x2 = div(sub(mul(a11, b2), mul(b1, a21)), det);
-    const x = leastSquares(cmatrixFrom([[a11, a12], [a21, a22]]), cmatrixFrom([[b1], [b2]]));
+    const x = leastSquares(
+      cmatrixFrom([
+        [a11, a12],
+        [a21, a22],
+      ]),
+      cmatrixFrom([[b1], [b2]]),
+    );
     expect(getEl(x, 0, 0).re).toBeCloseTo(x1.re, 12);
     expect(getEl(x, 0, 0).im).toBeCloseTo(x1.im, 12);
     expect(getEl(x, 1, 0).re).toBeCloseTo(x2.re, 12);
@@ -81,7 +114,8 @@ describe('complex linear algebra', () => {
     const x = leastSquares(cmatrixFrom(rows), cmatrixFrom(b.map((v) => [v])));
     const x0 = getEl(x, 0, 0);
     const x1 = getEl(x, 1, 0);
-    const mul = (p: { re: number; im: number }, q: { re: number; im: number }) => complex(p.re * q.re - p.im * q.im, p.re * q.im + p.im * q.re);
+    const mul = (p: { re: number; im: number }, q: { re: number; im: number }) =>
+      complex(p.re * q.re - p.im * q.im, p.re * q.im + p.im * q.re);
     for (let j = 0; j < 2; j++) {
       let re = 0;
       let im = 0;
@@ -96,7 +130,12 @@ describe('complex linear algebra', () => {
       expect(Math.hypot(re, im)).toBeLessThan(1e-12);
     }
     // and it is a real fit, not an exact solve: the residual itself is not zero
-    expect(Math.hypot(b[2]!.re - mul(rows[2]![0]!, x0).re - mul(rows[2]![1]!, x1).re, b[2]!.im - mul(rows[2]![0]!, x0).im - mul(rows[2]![1]!, x1).im)).toBeGreaterThan(0.1);
+    expect(
+      Math.hypot(
+        b[2]!.re - mul(rows[2]![0]!, x0).re - mul(rows[2]![1]!, x1).re,
+        b[2]!.im - mul(rows[2]![0]!, x0).im - mul(rows[2]![1]!, x1).im,
+      ),
+    ).toBeGreaterThan(0.1);
   });
 });
 
@@ -130,8 +169,12 @@ describe('splitting a weight onto fixed positions (law of sines, checked by hand
   });
 
   it('a weight on a position goes there whole; fewer than 3 positions is refused', () => {
-    expect(splitOntoPositions(12, 120, { count: 6, first_deg: 0 })).toEqual([{ position: 2, angle_deg: 120, mass_g: 12 }]);
-    expect(splitOntoPositions(12, 359.9999999999, { count: 6, first_deg: 0 })).toEqual([{ position: 0, angle_deg: 0, mass_g: 12 }]);
+    expect(splitOntoPositions(12, 120, { count: 6, first_deg: 0 })).toEqual([
+      { position: 2, angle_deg: 120, mass_g: 12 },
+    ]);
+    expect(splitOntoPositions(12, 359.9999999999, { count: 6, first_deg: 0 })).toEqual([
+      { position: 0, angle_deg: 0, mass_g: 12 },
+    ]);
     expect(() => splitOntoPositions(12, 30, { count: 2, first_deg: 0 })).toThrow(/at least 3/);
   });
 });
@@ -157,7 +200,15 @@ describe('combining weights (by hand)', () => {
     );
     expect(w.mass_g).toBeCloseTo(Math.hypot(1000, 3000) / 200, 12);
     expect(w.angle_deg).toBeCloseTo(Math.atan2(3, 1) / D2R, 12);
-    expect(() => combineWeights([{ mass_g: 1, angle_deg: 0, radius_mm: 10 }, { mass_g: 1, angle_deg: 0 }], 10)).toThrow();
+    expect(() =>
+      combineWeights(
+        [
+          { mass_g: 1, angle_deg: 0, radius_mm: 10 },
+          { mass_g: 1, angle_deg: 0 },
+        ],
+        10,
+      ),
+    ).toThrow();
   });
 });
 

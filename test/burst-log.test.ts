@@ -14,11 +14,17 @@ describe('logging once per burst', () => {
     }
     b.report('open_failed', 'device gone');
     expect(log.lines.map((l) => l.level)).toEqual(['warn', 'warn', 'warn']);
-    expect(log.lines[0]!.msg).toMatch(/^CRC mismatch in frame 0 \(further "crc" problems are counted/);
-    expect(log.lines[1]!.msg).toBe('"crc" still happening: 600 more in the last 60 s (601 in this burst); last: CRC mismatch in frame 600');
+    expect(log.lines[0]!.msg).toMatch(
+      /^CRC mismatch in frame 0 \(further "crc" problems are counted/,
+    );
+    expect(log.lines[1]!.msg).toBe(
+      '"crc" still happening: 600 more in the last 60 s (601 in this burst); last: CRC mismatch in frame 600',
+    );
     now += 10_000;
     b.flush();
-    expect(log.lines[3]!.msg).toBe('"crc" burst over: 1000 occurrence(s) in 99.9 s; last: CRC mismatch in frame 999');
+    expect(log.lines[3]!.msg).toBe(
+      '"crc" burst over: 1000 occurrence(s) in 99.9 s; last: CRC mismatch in frame 999',
+    );
     // A new burst of the same problem starts with a line of its own again.
     b.report('crc', 'CRC mismatch in frame 5000');
     expect(log.lines.at(-1)!.msg).toMatch(/^CRC mismatch in frame 5000/);

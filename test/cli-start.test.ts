@@ -22,16 +22,34 @@ const dir = mkdtempSync(join(tmpdir(), 'tw-cli-start-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
 
 /** Runs the compiled CLI and returns its output with the npm packages it imported. */
-function runLogged(args: string[], env: NodeJS.ProcessEnv = {}, preload: string[] = []): { code: number | null; stdout: string; stderr: string; packages: Set<string>; modules: string[] } {
+function runLogged(
+  args: string[],
+  env: NodeJS.ProcessEnv = {},
+  preload: string[] = [],
+): {
+  code: number | null;
+  stdout: string;
+  stderr: string;
+  packages: Set<string>;
+  modules: string[];
+} {
   const log = join(dir, `imports-${Math.random().toString(36).slice(2)}.txt`);
   writeFileSync(log, '');
-  const r = spawnSync(process.execPath, ['--import', IMPORT_LOG, ...preload.flatMap((p) => ['--import', p]), CLI, ...args], {
-    encoding: 'utf8',
-    env: { ...process.env, ...env, TW_IMPORT_LOG: log },
-    timeout: 60_000,
-  });
+  const r = spawnSync(
+    process.execPath,
+    ['--import', IMPORT_LOG, ...preload.flatMap((p) => ['--import', p]), CLI, ...args],
+    {
+      encoding: 'utf8',
+      env: { ...process.env, ...env, TW_IMPORT_LOG: log },
+      timeout: 60_000,
+    },
+  );
   const modules = readFileSync(log, 'utf8').split('\n').filter(Boolean);
-  const packages = new Set(modules.map((u) => /\/node_modules\/((?:@[^/]+\/)?[^/]+)\//.exec(u)?.[1]).filter((p): p is string => !!p));
+  const packages = new Set(
+    modules
+      .map((u) => /\/node_modules\/((?:@[^/]+\/)?[^/]+)\//.exec(u)?.[1])
+      .filter((p): p is string => !!p),
+  );
   return { code: r.status, stdout: r.stdout, stderr: r.stderr, packages, modules };
 }
 
@@ -45,18 +63,25 @@ describe('turnwise start-up', () => {
     expect(r.modules.filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m))).toEqual([]);
   });
 
-  it('help COMMAND shows that command\'s usage, loading only that command', () => {
+  it("help COMMAND shows that command's usage, loading only that command", () => {
     const r = runLogged(['help', 'check-config']);
     expect(r.code).toBe(0);
     expect(r.stdout).toBe('usage: turnwise check-config FILE [--json]\n');
-    expect(r.modules.filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m)).map((m) => m.replace(/.*\//, ''))).toEqual(['check-config.js']);
-    for (const p of ['mqtt', 'aedes', 'serialport', 'ws', 'pino']) expect(r.packages.has(p)).toBe(false);
+    expect(
+      r.modules
+        .filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m))
+        .map((m) => m.replace(/.*\//, '')),
+    ).toEqual(['check-config.js']);
+    for (const p of ['mqtt', 'aedes', 'serialport', 'ws', 'pino'])
+      expect(r.packages.has(p)).toBe(false);
   });
 
   it('help for a command that does not exist names it and exits 2', () => {
     const r = runLogged(['help', 'analyse']);
     expect(r.code).toBe(2);
-    expect(r.stderr).toBe('turnwise help: unknown command "analyse"\n  -> run `turnwise help` for the list of commands\n');
+    expect(r.stderr).toBe(
+      'turnwise help: unknown command "analyse"\n  -> run `turnwise help` for the list of commands\n',
+    );
   });
 
   it('check-config loads the schema and YAML parser, nothing of MQTT, the broker, serial ports, GPIO or the DSP', () => {
@@ -65,7 +90,8 @@ describe('turnwise start-up', () => {
     expect(r.stdout).toMatch(/example\.yaml: OK\n/);
     expect(r.packages.has('zod')).toBe(true);
     expect(r.packages.has('yaml')).toBe(true);
-    for (const p of ['mqtt', 'aedes', 'serialport', 'onoff', 'ws', 'pino', 'fft.js']) expect(r.packages.has(p)).toBe(false);
+    for (const p of ['mqtt', 'aedes', 'serialport', 'onoff', 'ws', 'pino', 'fft.js'])
+      expect(r.packages.has(p)).toBe(false);
     expect(r.modules.filter((m) => /\/agent\/(dsp|mqtt|live|outbox)\//.test(m))).toEqual([]);
   });
 
@@ -78,12 +104,15 @@ describe('turnwise start-up', () => {
 
 describe('Node.js version check', () => {
   it('MIN_NODE is the version package.json "engines" asks for', () => {
-    const pkg = JSON.parse(readFileSync(fileURLToPath(new URL('../package.json', import.meta.url)), 'utf8')) as { engines: { node: string } };
+    const pkg = JSON.parse(
+      readFileSync(fileURLToPath(new URL('../package.json', import.meta.url)), 'utf8'),
+    ) as { engines: { node: string } };
     expect(pkg.engines.node).toBe(`>=${MIN_NODE.replace(/\.0$/, '')}`);
   });
 
   it('accepts 20.19.0 and newer, refuses older with the version it needs', () => {
-    for (const ok of ['20.19.0', '20.19.5', '20.20.2', '22.0.0', '24.1.0']) expect(nodeVersionProblem(ok)).toBeNull();
+    for (const ok of ['20.19.0', '20.19.5', '20.20.2', '22.0.0', '24.1.0'])
+      expect(nodeVersionProblem(ok)).toBeNull();
     for (const old of ['20.18.3', '20.0.0', '18.20.4', '16.20.2']) {
       const m = nodeVersionProblem(old);
       expect(m).toContain(`Node.js ${old} is too old; turnwise needs Node.js 20.19 or newer`);
@@ -97,13 +126,19 @@ describe('Node.js version check', () => {
     expectNoStack(r.stderr);
     expect(r.stdout).toBe('');
     expect(r.stderr.split('\n').filter(Boolean)).toHaveLength(2);
-    expect(r.stderr).toMatch(/^turnwise: Node\.js 20\.18\.1 is too old; turnwise needs Node\.js 20\.19 or newer \(.*node\)\n {2}-> install Node\.js 20 LTS/);
+    expect(r.stderr).toMatch(
+      /^turnwise: Node\.js 20\.18\.1 is too old; turnwise needs Node\.js 20\.19 or newer \(.*node\)\n {2}-> install Node\.js 20 LTS/,
+    );
     expect([...r.packages]).toEqual([]);
     expect(r.modules.filter((m) => /\/cli\/commands\/(?!index\.js)/.test(m))).toEqual([]);
   });
 
   it('`npm start` (turnwise demo) on an older Node stops with the same message', () => {
-    const r = runLogged(['demo', '--seconds', '1', '--port', '0', '--mqtt-port', '0'], { TW_NODE_VERSION_AS: '18.19.1' }, [VERSION_AS]);
+    const r = runLogged(
+      ['demo', '--seconds', '1', '--port', '0', '--mqtt-port', '0'],
+      { TW_NODE_VERSION_AS: '18.19.1' },
+      [VERSION_AS],
+    );
     expect(r.code).toBe(2);
     expect(r.stderr).toMatch(/^turnwise: Node\.js 18\.19\.1 is too old/);
     expect(r.packages.has('aedes')).toBe(false);

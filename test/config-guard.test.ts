@@ -2,7 +2,12 @@ import { describe, expect, it } from 'vitest';
 import { copyFileSync, existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { defaultLastGoodPath, fallbackConfig, keepLastGood, loadGuardedConfig } from '../agent/runtime/config-guard.js';
+import {
+  defaultLastGoodPath,
+  fallbackConfig,
+  keepLastGood,
+  loadGuardedConfig,
+} from '../agent/runtime/config-guard.js';
 import { UserError } from '../agent/errors.js';
 
 describe('a bad config on the board', () => {
@@ -45,7 +50,9 @@ describe('a bad config on the board', () => {
   });
 
   it('keeps the last good copy where systemd says state lives', () => {
-    expect(defaultLastGoodPath({ STATE_DIRECTORY: '/var/lib/turnwise' })).toBe('/var/lib/turnwise/last-good-config.yaml');
+    expect(defaultLastGoodPath({ STATE_DIRECTORY: '/var/lib/turnwise' })).toBe(
+      '/var/lib/turnwise/last-good-config.yaml',
+    );
     expect(defaultLastGoodPath({})).toBe('state/last-good-config.yaml');
   });
 });

@@ -48,24 +48,56 @@ describe('config loading', () => {
       'machine: {id: f1, group: 2, support: rigid}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n  - {id: A, channel: 6, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: A, channel: 1, bearing: DE, direction: horizontal, sensitivity_mv_per_g: 100}\n',
     );
     expect(() => loadConfig(f)).toThrow(/sensors\[0\]\.channel: channel 6 is the tach channel/);
-    expect(() => loadConfig(f)).toThrow(/sensors\[1\]\.id: sensor id "A" is already used by sensors\[0\]/);
+    expect(() => loadConfig(f)).toThrow(
+      /sensors\[1\]\.id: sensor id "A" is already used by sensors\[0\]/,
+    );
   });
 
   it('reads the gpio section with its defaults and checks its lines and speeds against the rest', () => {
-    const head = 'machine: {id: f1, group: 2, support: rigid}\ntach: {channel: 6, trigger_v: 2.5, max_rpm: 3000}\nsensors:\n  - {id: A, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n';
-    const ok = loadConfig(writeTmp('gpio.yaml', head + 'gpio:\n  chip_label: pinctrl-bcm2711\n  tach_speed: {line: 23}\n'));
-    expect(ok.gpio).toEqual({ chip_label: 'pinctrl-bcm2711', tach_speed: { line: 23, active_low: false, pulses_per_rev: 1, average_revs: 4, tolerance_pct: 5 } });
+    const head =
+      'machine: {id: f1, group: 2, support: rigid}\ntach: {channel: 6, trigger_v: 2.5, max_rpm: 3000}\nsensors:\n  - {id: A, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n';
+    const ok = loadConfig(
+      writeTmp(
+        'gpio.yaml',
+        head + 'gpio:\n  chip_label: pinctrl-bcm2711\n  tach_speed: {line: 23}\n',
+      ),
+    );
+    expect(ok.gpio).toEqual({
+      chip_label: 'pinctrl-bcm2711',
+      tach_speed: {
+        line: 23,
+        active_low: false,
+        pulses_per_rev: 1,
+        average_revs: 4,
+        tolerance_pct: 5,
+      },
+    });
     // One line, one purpose: the tach input may not sit on the advisory relay's line.
-    const clash = writeTmp('clash.yaml', head + 'advisory: {relay: {line: 17}, lamp: {line: 27}}\ngpio: {tach_speed: {line: 17}}\n');
-    expect(() => loadConfig(clash)).toThrow(/gpio\.tach_speed\.line: line 17 is already used by advisory\.relay\.line/);
+    const clash = writeTmp(
+      'clash.yaml',
+      head + 'advisory: {relay: {line: 17}, lamp: {line: 27}}\ngpio: {tach_speed: {line: 17}}\n',
+    );
+    expect(() => loadConfig(clash)).toThrow(
+      /gpio\.tach_speed\.line: line 17 is already used by advisory\.relay\.line/,
+    );
     // An unset max_rpm comes from the tach section (3000 here), so min_rpm 3500 cannot work.
-    const speeds = writeTmp('speeds.yaml', head + 'gpio: {tach_speed: {line: 23, min_rpm: 3500}}\n');
-    expect(() => loadConfig(speeds)).toThrow(/gpio\.tach_speed\.min_rpm: min_rpm 3500 must be below max_rpm 3000 \(an unset one is taken from the tach section\)/);
-    expect(() => loadConfig(writeTmp('typo.yaml', head + 'gpio: {chip: x}\n'))).toThrow(/gpio: unknown key\(s\) "chip"/);
+    const speeds = writeTmp(
+      'speeds.yaml',
+      head + 'gpio: {tach_speed: {line: 23, min_rpm: 3500}}\n',
+    );
+    expect(() => loadConfig(speeds)).toThrow(
+      /gpio\.tach_speed\.min_rpm: min_rpm 3500 must be below max_rpm 3000 \(an unset one is taken from the tach section\)/,
+    );
+    expect(() => loadConfig(writeTmp('typo.yaml', head + 'gpio: {chip: x}\n'))).toThrow(
+      /gpio: unknown key\(s\) "chip"/,
+    );
   });
 
   it('rejects unknown keys by name', () => {
-    const f = writeTmp('typo.yaml', 'machine: {id: f1, group: 2, support: rigid, grup: 2}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n  - {id: A, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n');
+    const f = writeTmp(
+      'typo.yaml',
+      'machine: {id: f1, group: 2, support: rigid, grup: 2}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n  - {id: A, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n',
+    );
     expect(() => loadConfig(f)).toThrow(/machine: unknown key\(s\) "grup"/);
   });
 

@@ -25,10 +25,16 @@ afterEach(() => {
 });
 
 /** Writes the invented demo config with this acquisition section into a fresh folder; returns its path. */
-function configWith(acquisition: Record<string, unknown> | undefined): { dir: string; file: string } {
+function configWith(acquisition: Record<string, unknown> | undefined): {
+  dir: string;
+  file: string;
+} {
   const dir = mkdtempSync(join(tmpdir(), 'tw-source-'));
   dirs.push(dir);
-  const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<string, unknown>;
+  const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<
+    string,
+    unknown
+  >;
   const file = join(dir, 'agent.yaml');
   writeFileSync(file, JSON.stringify(acquisition ? { ...raw, acquisition } : raw));
   return { dir, file };
@@ -60,14 +66,21 @@ function fakePacer(): Pacer & { sleeps: number[] } {
 }
 
 describe('createSource (acquisition.driver)', () => {
-  it('wav: reads the recording named relative to the config file\'s folder, as fast as it can', async () => {
+  it("wav: reads the recording named relative to the config file's folder, as fast as it can", async () => {
     const { dir, file } = configWith({ driver: 'wav', file: 'rec.wav' });
-    const ch = Array.from({ length: 7 }, (_, c) => Float32Array.from({ length: 10_000 }, (_, i) => c + i / 10_000));
+    const ch = Array.from({ length: 7 }, (_, c) =>
+      Float32Array.from({ length: 10_000 }, (_, i) => c + i / 10_000),
+    );
     writeFloatWav(join(dir, 'rec.wav'), 25_600, ch);
     const { source, boardTimesTach } = createSource(loadConfig(file), file, { log });
     expect(source).toBeInstanceOf(WavSource);
     expect(boardTimesTach).toBe(false);
-    expect(await source.open()).toMatchObject({ sampleRate: 25_600, channelCount: 7, totalSamples: 10_000, description: join(dir, 'rec.wav') });
+    expect(await source.open()).toMatchObject({
+      sampleRate: 25_600,
+      channelCount: 7,
+      totalSamples: 10_000,
+      description: join(dir, 'rec.wav'),
+    });
     let n = 0;
     for await (const item of source.items()) {
       const b = item as SampleBlock;
@@ -80,13 +93,21 @@ describe('createSource (acquisition.driver)', () => {
 
   it('wav with realtime: true hands out blocks no faster than the sample rate', async () => {
     const { dir, file } = configWith({ driver: 'wav', file: 'rec.wav', realtime: true });
-    writeFloatWav(join(dir, 'rec.wav'), 25_600, Array.from({ length: 7 }, () => new Float32Array(25_600)));
+    writeFloatWav(
+      join(dir, 'rec.wav'),
+      25_600,
+      Array.from({ length: 7 }, () => new Float32Array(25_600)),
+    );
     const pacer = fakePacer();
     const { source } = createSource(loadConfig(file), file, { log, pacer });
     expect(source).toBeInstanceOf(PacedSource);
     await source.open();
     const due: number[] = [];
-    for await (const item of source.items()) due.push(pacer.now() - ((item as SampleBlock).startIndex + (item as SampleBlock).channels[0]!.length) / 25.6);
+    for await (const item of source.items())
+      due.push(
+        pacer.now() -
+          ((item as SampleBlock).startIndex + (item as SampleBlock).channels[0]!.length) / 25.6,
+      );
     // each block is handed out exactly when its last sample is due: 1 s of samples takes 1000 ms
     expect(due.every((d) => Math.abs(d) < 1e-9)).toBe(true);
     expect(pacer.sleeps.reduce((a, b) => a + b, 0)).toBeCloseTo(1000, 6);
@@ -95,7 +116,13 @@ describe('createSource (acquisition.driver)', () => {
 
   it('serial: the board on the configured device, with tach edges from the board when the config says so', async () => {
     const device = '/dev/serial/by-id/usb-Kessrow_Vib-DAQ_8ch_0001-if00';
-    const { file } = configWith({ driver: 'serial', device, sample_rate_hz: 25_600, channels: 8, board_tach_edges: true });
+    const { file } = configWith({
+      driver: 'serial',
+      device,
+      sample_rate_hz: 25_600,
+      channels: 8,
+      board_tach_edges: true,
+    });
     const { source, boardTimesTach } = createSource(loadConfig(file), file, { log });
     expect(source).toBeInstanceOf(SerialSource);
     expect(boardTimesTach).toBe(true);
@@ -103,8 +130,15 @@ describe('createSource (acquisition.driver)', () => {
     expect(source.health!()).toMatchObject({ device, connected: false, frames_ok: 0 });
   });
 
-  it('sim: the simulated fan from the scenario named relative to the config, with the config\'s channel map', async () => {
-    const { dir, file } = configWith({ driver: 'sim', scenario: 'fan.yaml', pace: 'fast', from_day: 5.625, block_ms: 50, board_tach_edges: true });
+  it("sim: the simulated fan from the scenario named relative to the config, with the config's channel map", async () => {
+    const { dir, file } = configWith({
+      driver: 'sim',
+      scenario: 'fan.yaml',
+      pace: 'fast',
+      from_day: 5.625,
+      block_ms: 50,
+      board_tach_edges: true,
+    });
     copyFileSync('config/example-scenario.yaml', join(dir, 'fan.yaml'));
     const { source, boardTimesTach } = createSource(loadConfig(file), file, { log });
     expect(source).toBeInstanceOf(SimSource);
@@ -125,24 +159,41 @@ describe('createSource (acquisition.driver)', () => {
       `${wav.file}: acquisition.file: recording ${join(wav.dir, 'recordings/day5.wav')} not found (a relative path is taken from the config file's folder, ${wav.dir})\n  -> fix acquisition.file, or put the recording there`,
     );
     const sim = configWith({ driver: 'sim', scenario: 'fan.yaml' });
-    expect(userError(() => createSource(loadConfig(sim.file), sim.file, { log }))).toMatch(/agent\.yaml: acquisition\.scenario: scenario file .*fan\.yaml not found .*\n  -> fix acquisition\.scenario, or put the scenario file there/);
+    expect(userError(() => createSource(loadConfig(sim.file), sim.file, { log }))).toMatch(
+      /agent\.yaml: acquisition\.scenario: scenario file .*fan\.yaml not found .*\n  -> fix acquisition\.scenario, or put the scenario file there/,
+    );
     const none = configWith(undefined);
-    expect(userError(() => createSource(loadConfig(none.file), none.file, { log }))).toMatch(/agent\.yaml: acquisition: the config says nowhere where the samples come from\n  -> add an acquisition section: driver wav \(a recording\), serial \(the board\) or sim \(the simulated fan\)/);
+    expect(userError(() => createSource(loadConfig(none.file), none.file, { log }))).toMatch(
+      /agent\.yaml: acquisition: the config says nowhere where the samples come from\n  -> add an acquisition section: driver wav \(a recording\), serial \(the board\) or sim \(the simulated fan\)/,
+    );
   });
 
-  it('passes on a scenario that does not fit the config with the scenario\'s own path-naming message', () => {
+  it("passes on a scenario that does not fit the config with the scenario's own path-naming message", () => {
     const { dir, file } = configWith({ driver: 'sim', scenario: 'fan.yaml' });
-    const scenario = readYamlFile('config/example-scenario.yaml', 'scenario', '') as { rotor: { bearings: { name: string }[] } };
+    const scenario = readYamlFile('config/example-scenario.yaml', 'scenario', '') as {
+      rotor: { bearings: { name: string }[] };
+    };
     scenario.rotor.bearings[1]!.name = 'OB';
     writeFileSync(join(dir, 'fan.yaml'), JSON.stringify(scenario));
-    expect(userError(() => createSource(loadConfig(file), file, { log }))).toMatch(/fan\.yaml: .*problem\(s\) between the scenario and the config:[\s\S]*"NDE"[\s\S]*-> make the scenario and the config describe the same fan and channels/);
+    expect(userError(() => createSource(loadConfig(file), file, { log }))).toMatch(
+      /fan\.yaml: .*problem\(s\) between the scenario and the config:[\s\S]*"NDE"[\s\S]*-> make the scenario and the config describe the same fan and channels/,
+    );
   });
 
   it('refuses bad sections at load with the path and what is expected, for each driver', () => {
     const cases: [Record<string, unknown>, RegExp][] = [
-      [{ driver: 'wav', file: 'rec.wav', pcm_full_scale_v: -1 }, /acquisition\.pcm_full_scale_v: .*(found -1)/],
-      [{ driver: 'serial', device: '/dev/ttyACM0', sample_rate_hz: 25_600, channels: 4 }, /sensors\[4\]\.channel: sensor NDE-H is on channel 4 but acquisition\.channels is 4/],
-      [{ driver: 'sim', scenario: 'fan.yaml', pace: 'slow' }, /acquisition\.pace: .*(found "slow")/],
+      [
+        { driver: 'wav', file: 'rec.wav', pcm_full_scale_v: -1 },
+        /acquisition\.pcm_full_scale_v: .*(found -1)/,
+      ],
+      [
+        { driver: 'serial', device: '/dev/ttyACM0', sample_rate_hz: 25_600, channels: 4 },
+        /sensors\[4\]\.channel: sensor NDE-H is on channel 4 but acquisition\.channels is 4/,
+      ],
+      [
+        { driver: 'sim', scenario: 'fan.yaml', pace: 'slow' },
+        /acquisition\.pace: .*(found "slow")/,
+      ],
     ];
     for (const [acq, re] of cases) {
       const { file } = configWith(acq);

@@ -14,9 +14,15 @@ const ports = ['--port', '0', '--mqtt-port', '0'];
  * Runs the demo as a real process; `onLine` sees each stdout line as it comes and may return
  * 'interrupt' to send SIGINT (what Ctrl-C sends).
  */
-function runDemo(args: string[], onLine: (line: string) => 'interrupt' | void, timeoutMs: number): Promise<{ code: number | null; stdout: string; stderr: string }> {
+function runDemo(
+  args: string[],
+  onLine: (line: string) => 'interrupt' | void,
+  timeoutMs: number,
+): Promise<{ code: number | null; stdout: string; stderr: string }> {
   return new Promise((resolve, reject) => {
-    const p = spawn(process.execPath, [CLI, 'demo', ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const p = spawn(process.execPath, [CLI, 'demo', ...args], {
+      stdio: ['ignore', 'pipe', 'pipe'],
+    });
     let stdout = '';
     let stderr = '';
     let partial = '';
@@ -81,9 +87,13 @@ describe('turnwise demo (npm start)', () => {
     expect(r.stdout).toMatch(/\[day 5 \d\d:\d\d\] warning\s+alarm_level_exceeded NDE-H/);
     expect(r.stdout).toMatch(/unbalance_found kind \w+/);
     expect(r.stdout).toMatch(/\[day 6 \d\d:\d\d\] alarm\s+advisory_raised/);
-    expect(r.stdout.indexOf('zone_changed machine zone D')).toBeLessThan(r.stdout.indexOf('advisory_raised'));
+    expect(r.stdout.indexOf('zone_changed machine zone D')).toBeLessThan(
+      r.stdout.indexOf('advisory_raised'),
+    );
     // The temporary state directory: announced, used while running, gone after Ctrl-C.
-    expect(r.stdout).toMatch(/state {7}\S+ {3}\(temporary: removed when the demo ends; --state-dir DIR keeps it\)/);
+    expect(r.stdout).toMatch(
+      /state {7}\S+ {3}\(temporary: removed when the demo ends; --state-dir DIR keeps it\)/,
+    );
     expect(existedWhileRunning).toBe(true);
     expect(contentsWhileRunning.length).toBeGreaterThan(0);
     expect(existsSync(stateDir!)).toBe(false);
@@ -91,14 +101,20 @@ describe('turnwise demo (npm start)', () => {
 
   it('removes its temporary state when --seconds ends it, and keeps a --state-dir the user gave', async () => {
     let temp: string | undefined;
-    const r = await runDemo(['--seconds', '3', ...ports], (line) => void (temp = stateLine.exec(line)?.[1] ?? temp), 30_000);
+    const r = await runDemo(
+      ['--seconds', '3', ...ports],
+      (line) => void (temp = stateLine.exec(line)?.[1] ?? temp),
+      30_000,
+    );
     expect(r.code).toBe(0);
     expect(temp).toBeDefined();
     expect(existsSync(temp!)).toBe(false);
 
     const mine = join(mkdtempSync(join(tmpdir(), 'tw-demo-state-')), 'state');
     try {
-      const k = runCli(['demo', '--seconds', '3', '--state-dir', mine, ...ports], { timeoutMs: 30_000 });
+      const k = runCli(['demo', '--seconds', '3', '--state-dir', mine, ...ports], {
+        timeoutMs: 30_000,
+      });
       expectNoStack(k.stderr);
       expect(k.code).toBe(0);
       expect(k.stdout).toContain(`state       ${mine}\n`);
@@ -115,7 +131,9 @@ describe('turnwise demo (npm start)', () => {
     await new Promise<void>((r) => holder.listen(0, '127.0.0.1', () => r()));
     const taken = (holder.address() as { port: number }).port;
     try {
-      const live = runCli(['demo', '--seconds', '2', '--port', String(taken), '--mqtt-port', '0'], { timeoutMs: 30_000 });
+      const live = runCli(['demo', '--seconds', '2', '--port', String(taken), '--mqtt-port', '0'], {
+        timeoutMs: 30_000,
+      });
       expectNoStack(live.stderr);
       expect(live.code).toBe(2);
       expect(live.stdout).toBe('');
@@ -123,11 +141,17 @@ describe('turnwise demo (npm start)', () => {
         `turnwise demo: --port ${taken}: port ${taken} on 127.0.0.1, for the live page, is already in use, probably by another turnwise demo\n` +
           `  -> start the demo on another port, e.g. \`npm start -- --port ${taken + 1}\` (or --port 0 for any free port), or stop the program using port ${taken}\n`,
       );
-      const mqtt = runCli(['demo', '--seconds', '2', '--port', '0', '--mqtt-port', String(taken)], { timeoutMs: 30_000 });
+      const mqtt = runCli(['demo', '--seconds', '2', '--port', '0', '--mqtt-port', String(taken)], {
+        timeoutMs: 30_000,
+      });
       expectNoStack(mqtt.stderr);
       expect(mqtt.code).toBe(2);
       expect(mqtt.stdout).toBe('');
-      expect(mqtt.stderr).toMatch(new RegExp(`^turnwise demo: --mqtt-port ${taken}: port ${taken} on 127\\.0\\.0\\.1, for the embedded MQTT broker, is already in use, .+\\n {2}-> start the demo on another port, e\\.g\\. \`npm start -- --mqtt-port ${taken + 1}\`.+\\n$`));
+      expect(mqtt.stderr).toMatch(
+        new RegExp(
+          `^turnwise demo: --mqtt-port ${taken}: port ${taken} on 127\\.0\\.0\\.1, for the embedded MQTT broker, is already in use, .+\\n {2}-> start the demo on another port, e\\.g\\. \`npm start -- --mqtt-port ${taken + 1}\`.+\\n$`,
+        ),
+      );
     } finally {
       await new Promise<void>((r) => holder.close(() => r()));
     }

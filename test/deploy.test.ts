@@ -1,6 +1,19 @@
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
-import { chmodSync, cpSync, existsSync, lstatSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, readlinkSync, statSync, symlinkSync, writeFileSync } from 'node:fs';
+import {
+  chmodSync,
+  cpSync,
+  existsSync,
+  lstatSync,
+  mkdirSync,
+  mkdtempSync,
+  readFileSync,
+  readdirSync,
+  readlinkSync,
+  statSync,
+  symlinkSync,
+  writeFileSync,
+} from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -26,11 +39,18 @@ function which(cmd: string): string | null {
 const SYSTEMD_ANALYZE = which('systemd-analyze');
 const SHELLCHECK = which('shellcheck');
 const SYSTEMCTL = which('systemctl');
-for (const [tool, pkg] of [[SYSTEMD_ANALYZE, 'systemd'], [SHELLCHECK, 'shellcheck']] as const) {
-  if (!tool) console.warn(`test/deploy.test.ts: ${pkg} is not installed, its checks are SKIPPED (apt-get install ${pkg})`);
+for (const [tool, pkg] of [
+  [SYSTEMD_ANALYZE, 'systemd'],
+  [SHELLCHECK, 'shellcheck'],
+] as const) {
+  if (!tool)
+    console.warn(
+      `test/deploy.test.ts: ${pkg} is not installed, its checks are SKIPPED (apt-get install ${pkg})`,
+    );
 }
 /** Test names carry the reason when a tool is missing, so a skip is never silent. */
-const needs = (tool: string | null, pkg: string, name: string) => (tool ? name : `${name} [SKIPPED: ${pkg} is not installed; apt-get install ${pkg}]`);
+const needs = (tool: string | null, pkg: string, name: string) =>
+  tool ? name : `${name} [SKIPPED: ${pkg} is not installed; apt-get install ${pkg}]`;
 
 function run(args: string[], env: NodeJS.ProcessEnv = {}) {
   const r = spawnSync('bash', [INSTALL, ...args], {
@@ -50,7 +70,8 @@ function expectInOrder(lines: string[], items: RegExp[]): void {
   let at = 0;
   for (const re of items) {
     const i = lines.findIndex((l, k) => k >= at && re.test(l));
-    if (i < 0) throw new Error(`expected a line matching ${re} after line ${at} in:\n${lines.join('\n')}`);
+    if (i < 0)
+      throw new Error(`expected a line matching ${re} after line ${at} in:\n${lines.join('\n')}`);
     at = i + 1;
   }
 }
@@ -64,24 +85,44 @@ describe('systemd unit deploy/turnwise.service', () => {
   }
   const one = (k: string) => settings.get(k)?.at(-1);
 
-  it(needs(SYSTEMD_ANALYZE, 'systemd', 'passes `systemd-analyze verify` without a single warning'), { skip: !SYSTEMD_ANALYZE }, () => {
-    const dir = tmp('tw-unit-');
-    // verify checks that ExecStart's binary exists: point it at this machine's node if needed.
-    const text = existsSync('/usr/bin/node') ? unit : unit.replaceAll('/usr/bin/node', process.execPath);
-    writeFileSync(join(dir, 'turnwise.service'), text);
-    const r = spawnSync(SYSTEMD_ANALYZE!, ['verify', join(dir, 'turnwise.service')], { encoding: 'utf8' });
-    const mine = (r.stderr + r.stdout).split('\n').filter((l) => l.includes('turnwise.service'));
-    expect(mine).toEqual([]);
-    expect(r.status).toBe(0);
-  });
+  it(
+    needs(SYSTEMD_ANALYZE, 'systemd', 'passes `systemd-analyze verify` without a single warning'),
+    { skip: !SYSTEMD_ANALYZE },
+    () => {
+      const dir = tmp('tw-unit-');
+      // verify checks that ExecStart's binary exists: point it at this machine's node if needed.
+      const text = existsSync('/usr/bin/node')
+        ? unit
+        : unit.replaceAll('/usr/bin/node', process.execPath);
+      writeFileSync(join(dir, 'turnwise.service'), text);
+      const r = spawnSync(SYSTEMD_ANALYZE!, ['verify', join(dir, 'turnwise.service')], {
+        encoding: 'utf8',
+      });
+      const mine = (r.stderr + r.stdout).split('\n').filter((l) => l.includes('turnwise.service'));
+      expect(mine).toEqual([]);
+      expect(r.status).toBe(0);
+    },
+  );
 
-  it(needs(SYSTEMD_ANALYZE, 'systemd', 'rates "OK" in `systemd-analyze security --offline` (exposure at most 2.5 of 10)'), { skip: !SYSTEMD_ANALYZE }, () => {
-    const r = spawnSync(SYSTEMD_ANALYZE!, ['security', '--offline=yes', '--threshold=25', UNIT_FILE], { encoding: 'utf8' });
-    const m = /Overall exposure level for turnwise\.service: ([\d.]+) (\w+)/.exec(r.stdout);
-    expect(m, r.stdout + r.stderr).not.toBeNull();
-    expect(Number(m![1])).toBeLessThanOrEqual(2.5); // seen: 2.1 OK with systemd 252
-    expect(r.status).toBe(0);
-  });
+  it(
+    needs(
+      SYSTEMD_ANALYZE,
+      'systemd',
+      'rates "OK" in `systemd-analyze security --offline` (exposure at most 2.5 of 10)',
+    ),
+    { skip: !SYSTEMD_ANALYZE },
+    () => {
+      const r = spawnSync(
+        SYSTEMD_ANALYZE!,
+        ['security', '--offline=yes', '--threshold=25', UNIT_FILE],
+        { encoding: 'utf8' },
+      );
+      const m = /Overall exposure level for turnwise\.service: ([\d.]+) (\w+)/.exec(r.stdout);
+      expect(m, r.stdout + r.stderr).not.toBeNull();
+      expect(Number(m![1])).toBeLessThanOrEqual(2.5); // seen: 2.1 OK with systemd 252
+      expect(r.status).toBe(0);
+    },
+  );
 
   it('runs the agent the way the rest of deploy/ expects', () => {
     expect(one('Type')).toBe('notify');
@@ -98,13 +139,22 @@ describe('systemd unit deploy/turnwise.service', () => {
     expect(one('MemoryMax')).toBe('256M');
     // The binary the unit starts is the one install.sh links and the build produces.
     const exec = one('ExecStart')!.split(' ');
-    expect(exec.slice(0, 2)).toEqual(['/usr/bin/node', '/opt/turnwise/current/dist/agent/cli/main.js']);
+    expect(exec.slice(0, 2)).toEqual([
+      '/usr/bin/node',
+      '/opt/turnwise/current/dist/agent/cli/main.js',
+    ]);
     expect(existsSync(join(REPO, 'dist/agent/cli/main.js'))).toBe(true);
     expect(readFileSync(INSTALL, 'utf8')).toContain('"$OPT/current/dist/agent/cli/main.js"');
     expect(exec.slice(2)).toEqual(['run', '--config', '/etc/turnwise/turnwise.yaml']);
     // After every stop, however it happened, the advisory outputs are dropped from outside, with the
     // same binary and config (a GPIO line keeps its level when the process that drove it dies).
-    expect(one('ExecStopPost')!.split(' ')).toEqual(['-/usr/bin/node', '/opt/turnwise/current/dist/agent/cli/main.js', 'outputs-off', '--config', '/etc/turnwise/turnwise.yaml']);
+    expect(one('ExecStopPost')!.split(' ')).toEqual([
+      '-/usr/bin/node',
+      '/opt/turnwise/current/dist/agent/cli/main.js',
+      'outputs-off',
+      '--config',
+      '/etc/turnwise/turnwise.yaml',
+    ]);
     // V8's heap limit sits below the cgroup's, so the heap is collected before the kernel kills.
     const heapMb = Number(/--max-old-space-size=(\d+)/.exec(unit)![1]);
     expect(heapMb).toBeLessThan(Number.parseInt(one('MemoryHigh')!, 10));
@@ -126,7 +176,8 @@ describe('udev rules deploy/udev/ (installed by install.sh)', () => {
         }),
       );
   type Rule = ReturnType<typeof parse>[number];
-  const has = (rule: Rule, key: string, op: string, value: string) => rule.some((p) => p.key === key && p.op === op && p.value === value);
+  const has = (rule: Rule, key: string, op: string, value: string) =>
+    rule.some((p) => p.key === key && p.op === op && p.value === value);
 
   it('name the acquisition board /dev/turnwise-daq, keep ModemManager away, and carry the id install.sh replaces', () => {
     const daq = parse(DAQ_RULES).filter((r) => has(r, 'SYMLINK', '+=', 'turnwise-daq'));
@@ -134,7 +185,9 @@ describe('udev rules deploy/udev/ (installed by install.sh)', () => {
     expect(has(daq[0]!, 'ENV{ID_MM_DEVICE_IGNORE}', '=', '1')).toBe(true);
     expect(has(daq[0]!, 'SUBSYSTEM', '==', 'tty')).toBe(true);
     const installSh = readFileSync(INSTALL, 'utf8');
-    const [vid, pid] = /^PLACEHOLDER_USB_ID=([0-9a-f]{4}):([0-9a-f]{4})$/m.exec(installSh)!.slice(1);
+    const [vid, pid] = /^PLACEHOLDER_USB_ID=([0-9a-f]{4}):([0-9a-f]{4})$/m
+      .exec(installSh)!
+      .slice(1);
     expect(has(daq[0]!, 'ATTRS{idVendor}', '==', vid!)).toBe(true);
     expect(has(daq[0]!, 'ATTRS{idProduct}', '==', pid!)).toBe(true);
     // Sorts before ModemManager's 77-mm-* and 80-mm-candidate rules.
@@ -143,7 +196,13 @@ describe('udev rules deploy/udev/ (installed by install.sh)', () => {
 
   it('give the gpio group the sysfs GPIO interface', () => {
     const gpio = parse(GPIO_RULES);
-    expect(gpio.some((r) => has(r, 'SUBSYSTEM', '==', 'gpio') && r.some((p) => p.value.includes('chgrp -R gpio /sys/class/gpio')))).toBe(true);
+    expect(
+      gpio.some(
+        (r) =>
+          has(r, 'SUBSYSTEM', '==', 'gpio') &&
+          r.some((p) => p.value.includes('chgrp -R gpio /sys/class/gpio')),
+      ),
+    ).toBe(true);
   });
 });
 
@@ -158,11 +217,32 @@ describe('deploy/install.sh', () => {
     // Every command that could change this machine is replaced by a trap that records the call.
     const shims = tmp('tw-shims-');
     const log = join(shims, 'calls.log');
-    for (const cmd of ['apt-get', 'groupadd', 'useradd', 'userdel', 'usermod', 'systemctl', 'udevadm', 'chown', 'chmod', 'cp', 'install', 'ln', 'mv', 'rm', 'mkdir', 'touch', 'npm', 'flock']) {
+    for (const cmd of [
+      'apt-get',
+      'groupadd',
+      'useradd',
+      'userdel',
+      'usermod',
+      'systemctl',
+      'udevadm',
+      'chown',
+      'chmod',
+      'cp',
+      'install',
+      'ln',
+      'mv',
+      'rm',
+      'mkdir',
+      'touch',
+      'npm',
+      'flock',
+    ]) {
       writeFileSync(join(shims, cmd), `#!/bin/sh\necho "${cmd} $*" >> "${log}"\nexit 97\n`);
       chmodSync(join(shims, cmd), 0o755);
     }
-    const r = run(['--dry-run', '--daq-usb-id', '2E8A:000A'], { PATH: `${shims}:${process.env.PATH}` });
+    const r = run(['--dry-run', '--daq-usb-id', '2E8A:000A'], {
+      PATH: `${shims}:${process.env.PATH}`,
+    });
     expect(r.err.replace(/^install\.sh: WARNING: missing.*\n/m, '')).toBe('');
     expect(r.code).toBe(0);
     expect(existsSync(log) ? readFileSync(log, 'utf8') : '').toBe('');
@@ -170,13 +250,17 @@ describe('deploy/install.sh', () => {
     expect(lines[0]).toBe('dry run: nothing is changed');
     const rel = /^release (\d+\.\d+\.\d+-[0-9a-f]{10}) from /m.exec(r.out)![1]!;
     const q = rel.replace(/\./g, '\\.');
-    expect(r.out).toMatch(/^(\+ useradd --system --user-group --home-dir \/var\/lib\/turnwise --no-create-home --shell \/usr\/sbin\/nologin .* turnwise|user turnwise exists)$/m);
+    expect(r.out).toMatch(
+      /^(\+ useradd --system --user-group --home-dir \/var\/lib\/turnwise --no-create-home --shell \/usr\/sbin\/nologin .* turnwise|user turnwise exists)$/m,
+    );
     expectInOrder(lines, [
       new RegExp(`^\\+ mkdir -p /opt/turnwise/releases/\\.${q}\\.partial/dist$`),
       /^\+ cp -a \S+\/dist\/agent \/opt\/turnwise\/releases\/.*\.partial\/dist\/agent$/,
       /^\+ env -C \S+ npm ci --omit=dev --ignore-scripts --no-audit --no-fund$/,
       /^\+ env -C \S+ npm rebuild$/,
-      new RegExp(`^\\+ mv -T /opt/turnwise/releases/\\.${q}\\.partial /opt/turnwise/releases/${q}$`),
+      new RegExp(
+        `^\\+ mv -T /opt/turnwise/releases/\\.${q}\\.partial /opt/turnwise/releases/${q}$`,
+      ),
       new RegExp(`^\\+ ln -sfn releases/${q} /opt/turnwise/\\.current\\.new$`),
       /^\+ mv -T \/opt\/turnwise\/\.current\.new \/opt\/turnwise\/current$/,
       /^\+ install -D -m 0644 \S+\/deploy\/turnwise\.service \/etc\/systemd\/system\/turnwise\.service$/,
@@ -197,7 +281,9 @@ describe('deploy/install.sh', () => {
     chmodSync(join(old, 'node'), 0o755);
     const tooOld = run(['--dry-run'], { TURNWISE_NODE: join(old, 'node') });
     expect(tooOld.code).toBe(1);
-    expect(tooOld.err).toMatch(/Node\.js 18\.19\.0 at .* is too old: turnwise needs 20\.19 or newer\n  -> upgrade Node\.js/);
+    expect(tooOld.err).toMatch(
+      /Node\.js 18\.19\.0 at .* is too old: turnwise needs 20\.19 or newer\n  -> upgrade Node\.js/,
+    );
 
     const badId = run(['--dry-run', '--daq-usb-id', '2e8a-000a']);
     expect(badId.code).toBe(2);
@@ -209,7 +295,9 @@ describe('deploy/install.sh', () => {
 
     const notBuilt = run(['--dry-run', '--from', tmp('tw-empty-')]);
     expect(notBuilt.code).toBe(1);
-    expect(notBuilt.err).toMatch(/package\.json is missing: not a built turnwise release tree\n  -> run `npm ci`/);
+    expect(notBuilt.err).toMatch(
+      /package\.json is missing: not a built turnwise release tree\n  -> run `npm ci`/,
+    );
   });
 
   describe('for real into a staging root (--root): install, upgrade, rollback, uninstall', () => {
@@ -219,10 +307,19 @@ describe('deploy/install.sh', () => {
       cpSync(DEPLOY, join(dir, 'deploy'), { recursive: true });
       mkdirSync(join(dir, 'config'));
       cpSync(join(REPO, 'config/example.yaml'), join(dir, 'config/example.yaml'));
-      writeFileSync(join(dir, 'package.json'), JSON.stringify({ name: 'turnwise', version, type: 'module', private: true }));
+      writeFileSync(
+        join(dir, 'package.json'),
+        JSON.stringify({ name: 'turnwise', version, type: 'module', private: true }),
+      );
       writeFileSync(
         join(dir, 'package-lock.json'),
-        JSON.stringify({ name: 'turnwise', version, lockfileVersion: 3, requires: true, packages: { '': { name: 'turnwise', version } } }),
+        JSON.stringify({
+          name: 'turnwise',
+          version,
+          lockfileVersion: 3,
+          requires: true,
+          packages: { '': { name: 'turnwise', version } },
+        }),
       );
       mkdirSync(join(dir, 'dist/agent/cli'), { recursive: true });
       writeFileSync(
@@ -251,39 +348,73 @@ if (cmd === 'check-config') {
     let tokenMade = '';
 
     it('installs a release: files, links, unit, rules, no start without a config', () => {
-      const r = run(['--root', root, '--from', relA, '--daq-usb-id', '2e8a:000a'], { TURNWISE_NODE: join(otherNodeDir, 'node') });
+      const r = run(['--root', root, '--from', relA, '--daq-usb-id', '2e8a:000a'], {
+        TURNWISE_NODE: join(otherNodeDir, 'node'),
+      });
       // stderr: at most the missing-packages warning and what `systemctl --root enable` says.
       const unexpected = r.err
         .split('\n')
-        .filter((l) => l && !/^install\.sh: WARNING: missing Debian packages|^Created symlink .*multi-user\.target\.wants\/turnwise\.service|non-existent unit multi-user\.target/.test(l));
+        .filter(
+          (l) =>
+            l &&
+            !/^install\.sh: WARNING: missing Debian packages|^Created symlink .*multi-user\.target\.wants\/turnwise\.service|non-existent unit multi-user\.target/.test(
+              l,
+            ),
+        );
       expect(unexpected).toEqual([]);
       expect(r.code).toBe(0);
       expect(current()).toMatch(/^releases\/9\.9\.1-[0-9a-f]{10}$/);
       expect(existsSync(join(opt, current(), '.turnwise-release-complete'))).toBe(true);
       expect(existsSync(join(opt, current(), 'node_modules'))).toBe(false); // nothing to install: no dependencies
-      expect(readFileSync(join(root, 'etc/systemd/system/turnwise.service'), 'utf8')).toBe(readFileSync(UNIT_FILE, 'utf8'));
-      const dropIn = readFileSync(join(root, 'etc/systemd/system/turnwise.service.d/10-node.conf'), 'utf8');
-      expect(dropIn).toContain(`[Service]\nExecStart=\nExecStart=${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js run --config /etc/turnwise/turnwise.yaml\n`);
-      expect(dropIn).toContain(`ExecStopPost=\nExecStopPost=-${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js outputs-off --config /etc/turnwise/turnwise.yaml\n`);
+      expect(readFileSync(join(root, 'etc/systemd/system/turnwise.service'), 'utf8')).toBe(
+        readFileSync(UNIT_FILE, 'utf8'),
+      );
+      const dropIn = readFileSync(
+        join(root, 'etc/systemd/system/turnwise.service.d/10-node.conf'),
+        'utf8',
+      );
+      expect(dropIn).toContain(
+        `[Service]\nExecStart=\nExecStart=${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js run --config /etc/turnwise/turnwise.yaml\n`,
+      );
+      expect(dropIn).toContain(
+        `ExecStopPost=\nExecStopPost=-${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js outputs-off --config /etc/turnwise/turnwise.yaml\n`,
+      );
       const rules = readFileSync(join(root, 'etc/udev/rules.d/70-turnwise-daq.rules'), 'utf8');
-      expect(rules).toContain('ATTRS{idVendor}=="2e8a", ATTRS{idProduct}=="000a", ENV{ID_MM_DEVICE_IGNORE}="1"');
-      expect(readFileSync(join(root, 'etc/udev/rules.d/99-turnwise-gpio.rules'), 'utf8')).toBe(readFileSync(GPIO_RULES, 'utf8'));
-      expect(readFileSync(join(root, 'etc/systemd/journald.conf.d/60-turnwise.conf'), 'utf8')).toContain('SystemMaxUse=200M');
+      expect(rules).toContain(
+        'ATTRS{idVendor}=="2e8a", ATTRS{idProduct}=="000a", ENV{ID_MM_DEVICE_IGNORE}="1"',
+      );
+      expect(readFileSync(join(root, 'etc/udev/rules.d/99-turnwise-gpio.rules'), 'utf8')).toBe(
+        readFileSync(GPIO_RULES, 'utf8'),
+      );
+      expect(
+        readFileSync(join(root, 'etc/systemd/journald.conf.d/60-turnwise.conf'), 'utf8'),
+      ).toContain('SystemMaxUse=200M');
       expect(existsSync(join(root, 'etc/turnwise/turnwise.yaml.example'))).toBe(true);
       // The live page's operator token: random, 43 base64url characters (256 bits), mode 600.
       const token = join(root, 'etc/turnwise/live-operator-token');
       expect(readFileSync(token, 'utf8')).toMatch(/^[A-Za-z0-9_-]{43}\n$/);
       expect(statSync(token).mode & 0o777).toBe(0o600);
-      expect(r.out).toMatch(/^\+ \(not run under --root\) chown turnwise:turnwise .*live-operator-token$/m);
+      expect(r.out).toMatch(
+        /^\+ \(not run under --root\) chown turnwise:turnwise .*live-operator-token$/m,
+      );
       tokenMade = readFileSync(token, 'utf8');
-      expect(readlinkSync(join(root, 'usr/local/bin/turnwise'))).toBe('/opt/turnwise/current/dist/agent/cli/main.js');
-      if (SYSTEMCTL) expect(lstatSync(join(root, 'etc/systemd/system/multi-user.target.wants/turnwise.service')).isSymbolicLink()).toBe(true);
+      expect(readlinkSync(join(root, 'usr/local/bin/turnwise'))).toBe(
+        '/opt/turnwise/current/dist/agent/cli/main.js',
+      );
+      if (SYSTEMCTL)
+        expect(
+          lstatSync(
+            join(root, 'etc/systemd/system/multi-user.target.wants/turnwise.service'),
+          ).isSymbolicLink(),
+        ).toBe(true);
       expect(r.out).toContain('Installed, enabled, not started: there is no config yet.');
       expect(r.out).toMatch(/^\+ \(not run under --root\) useradd --system/m);
     });
 
     it('changes nothing when run again with the same release (idempotent)', () => {
-      const r = run(['--root', root, '--from', relA], { TURNWISE_NODE: join(otherNodeDir, 'node') });
+      const r = run(['--root', root, '--from', relA], {
+        TURNWISE_NODE: join(otherNodeDir, 'node'),
+      });
       expect(r.code).toBe(0);
       expect(readFileSync(join(root, 'etc/turnwise/live-operator-token'), 'utf8')).toBe(tokenMade); // never replaced
       expect(r.out).toMatch(/^release 9\.9\.1-[0-9a-f]{10} is already installed$/m);
@@ -291,15 +422,21 @@ if (cmd === 'check-config') {
       expect(r.out).toContain('unchanged: /etc/systemd/system/turnwise.service');
       expect(r.out).toContain('unchanged: /etc/udev/rules.d/70-turnwise-daq.rules'); // USB id kept from the installed rules
       // Only the offline enable and the skipped system calls are printed as actions.
-      const actions = r.out.split('\n').filter((l) => l.startsWith('+ ') && !l.startsWith('+ (not run under --root)'));
-      expect(actions.map((l) => l.replace(root, 'ROOT'))).toEqual(SYSTEMCTL ? ['+ systemctl --root=ROOT enable turnwise.service'] : []);
+      const actions = r.out
+        .split('\n')
+        .filter((l) => l.startsWith('+ ') && !l.startsWith('+ (not run under --root)'));
+      expect(actions.map((l) => l.replace(root, 'ROOT'))).toEqual(
+        SYSTEMCTL ? ['+ systemctl --root=ROOT enable turnwise.service'] : [],
+      );
     });
 
     it('upgrades only when the new release accepts the config, keeping the old one as previous', () => {
       writeFileSync(join(root, 'etc/turnwise/turnwise.yaml'), 'machine: {id: REJECT}\n');
       const refused = run(['--root', root, '--from', relB]);
       expect(refused.code).toBe(1);
-      expect(refused.err).toMatch(/rejected by 9\.9\.2\ninstall\.sh: release 9\.9\.2-\w+ rejects \/etc\/turnwise\/turnwise\.yaml \(see the lines above\); the running release was left in place/);
+      expect(refused.err).toMatch(
+        /rejected by 9\.9\.2\ninstall\.sh: release 9\.9\.2-\w+ rejects \/etc\/turnwise\/turnwise\.yaml \(see the lines above\); the running release was left in place/,
+      );
       expect(current()).toMatch(/^releases\/9\.9\.1-/);
 
       writeFileSync(join(root, 'etc/turnwise/turnwise.yaml'), 'machine: {id: kessrow-id3a}\n');
@@ -308,7 +445,9 @@ if (cmd === 'check-config') {
       expect(r.out).toContain(': OK (9.9.2)');
       expect(current()).toMatch(/^releases\/9\.9\.2-/);
       expect(previous()).toMatch(/^releases\/9\.9\.1-/);
-      expect(existsSync(join(root, 'etc/systemd/system/turnwise.service.d/10-node.conf'))).toBe(false); // node is /usr/bin/node again
+      expect(existsSync(join(root, 'etc/systemd/system/turnwise.service.d/10-node.conf'))).toBe(
+        false,
+      ); // node is /usr/bin/node again
       expect(r.out).toMatch(/^\+ \(not run under --root\) systemctl restart turnwise\.service$/m);
       const list = run(['--root', root, '--list']);
       expect(list.out).toMatch(/^9\.9\.2-\w+ \(current\)\n9\.9\.1-\w+ \(previous\)\n$/);
@@ -326,12 +465,15 @@ if (cmd === 'check-config') {
       expect(current()).toBe(`releases/${b}`);
       const missing = run(['--root', root, '--rollback', '0.0.0-nothing']);
       expect(missing.code).toBe(1);
-      expect(missing.err).toContain("release '0.0.0-nothing' is not installed (or incomplete)\n  -> deploy/install.sh --list");
+      expect(missing.err).toContain(
+        "release '0.0.0-nothing' is not installed (or incomplete)\n  -> deploy/install.sh --list",
+      );
     });
 
     it('keeps --keep releases besides current and previous', () => {
       // Before: 9.9.2 current, 9.9.1 previous.
-      for (const v of ['9.9.3', '9.9.4']) expect(run(['--root', root, '--from', fakeRelease(v), '--keep', '1']).code).toBe(0);
+      for (const v of ['9.9.3', '9.9.4'])
+        expect(run(['--root', root, '--from', fakeRelease(v), '--keep', '1']).code).toBe(0);
       const names = readdirSync(join(opt, 'releases')).sort();
       // current 9.9.4, previous 9.9.3, and the newest other one, 9.9.2; 9.9.1 pruned
       expect(names.map((n) => n.split('-')[0])).toEqual(['9.9.2', '9.9.3', '9.9.4']);
@@ -341,10 +483,20 @@ if (cmd === 'check-config') {
       mkdirSync(join(root, 'var/lib/turnwise'), { recursive: true });
       const r = run(['--root', root, '--uninstall']);
       expect(r.code).toBe(0);
-      for (const p of ['opt/turnwise', 'etc/systemd/system/turnwise.service', 'etc/udev/rules.d/70-turnwise-daq.rules', 'etc/udev/rules.d/99-turnwise-gpio.rules', 'etc/systemd/journald.conf.d/60-turnwise.conf', 'usr/local/bin/turnwise']) {
+      for (const p of [
+        'opt/turnwise',
+        'etc/systemd/system/turnwise.service',
+        'etc/udev/rules.d/70-turnwise-daq.rules',
+        'etc/udev/rules.d/99-turnwise-gpio.rules',
+        'etc/systemd/journald.conf.d/60-turnwise.conf',
+        'usr/local/bin/turnwise',
+      ]) {
         expect(existsSync(join(root, p)), p).toBe(false);
       }
-      if (SYSTEMCTL) expect(existsSync(join(root, 'etc/systemd/system/multi-user.target.wants/turnwise.service'))).toBe(false);
+      if (SYSTEMCTL)
+        expect(
+          existsSync(join(root, 'etc/systemd/system/multi-user.target.wants/turnwise.service')),
+        ).toBe(false);
       expect(existsSync(join(root, 'etc/turnwise/turnwise.yaml'))).toBe(true);
       expect(existsSync(join(root, 'var/lib/turnwise'))).toBe(true);
       const again = run(['--root', root, '--uninstall']);
@@ -367,17 +519,30 @@ if (cmd === 'check-config') {
     expect(existsSync(join(rel, 'node_modules/vitest'))).toBe(false);
     expect(existsSync(join(rel, 'dist/test'))).toBe(false);
     // The installed CLI works from the release alone.
-    const c = spawnSync(process.execPath, [join(rel, 'dist/agent/cli/main.js'), 'check-config', join(root, 'etc/turnwise/turnwise.yaml.example')], { encoding: 'utf8' });
+    const c = spawnSync(
+      process.execPath,
+      [
+        join(rel, 'dist/agent/cli/main.js'),
+        'check-config',
+        join(root, 'etc/turnwise/turnwise.yaml.example'),
+      ],
+      { encoding: 'utf8' },
+    );
     expect(c.stderr).toBe('');
     expect(c.stdout).toMatch(/turnwise\.yaml\.example: OK\n {2}machine kessrow-id3a/);
   }, 300_000);
 
   const SYSTEM = process.env.TURNWISE_SYSTEM_TESTS === '1';
   it(
-    SYSTEM ? 'works under systemd as PID 1 (test/system/under-systemd.sh)' : 'works under systemd as PID 1 (test/system/under-systemd.sh) [SKIPPED: set TURNWISE_SYSTEM_TESTS=1; needs root, overlayfs and systemd-nspawn]',
+    SYSTEM
+      ? 'works under systemd as PID 1 (test/system/under-systemd.sh)'
+      : 'works under systemd as PID 1 (test/system/under-systemd.sh) [SKIPPED: set TURNWISE_SYSTEM_TESTS=1; needs root, overlayfs and systemd-nspawn]',
     { skip: !SYSTEM, timeout: 900_000 },
     () => {
-      const r = spawnSync('bash', [join(REPO, 'test/system/under-systemd.sh')], { encoding: 'utf8', timeout: 900_000 });
+      const r = spawnSync('bash', [join(REPO, 'test/system/under-systemd.sh')], {
+        encoding: 'utf8',
+        timeout: 900_000,
+      });
       expect(r.stdout).toContain('all checks passed');
       expect(r.status, r.stdout + r.stderr).toBe(0);
     },

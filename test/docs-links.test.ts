@@ -15,18 +15,30 @@ const README_MAX_LINES = 260;
 
 describe('README and docs/', () => {
   it(`README.md is at most ${README_MAX_LINES} lines`, () => {
-    const lines = readFileSync(join(root, 'README.md'), 'utf8').replace(/\n$/, '').split('\n').length;
+    const lines = readFileSync(join(root, 'README.md'), 'utf8')
+      .replace(/\n$/, '')
+      .split('\n').length;
     expect(lines).toBeLessThanOrEqual(README_MAX_LINES);
   });
 
   it('every relative link and anchor in README.md, DEVELOPERS.md and docs/*.md resolves', () => {
-    const problems = checkLinks([join(root, 'README.md'), join(root, 'DEVELOPERS.md'), join(root, 'drivers/serial/PROTOCOL.md'), ...docs], root);
+    const problems = checkLinks(
+      [
+        join(root, 'README.md'),
+        join(root, 'DEVELOPERS.md'),
+        join(root, 'drivers/serial/PROTOCOL.md'),
+        ...docs,
+      ],
+      root,
+    );
     expect(problems.map((p) => `${p.file}:${p.line}: (${p.target}) ${p.problem}`)).toEqual([]);
   });
 
   it('README links every page under docs/ from its map', () => {
     const readme = readFileSync(join(root, 'README.md'), 'utf8');
-    const missing = docs.map((f) => `docs/${f.split('/').pop()}`).filter((p) => !readme.includes(`](${p})`));
+    const missing = docs
+      .map((f) => `docs/${f.split('/').pop()}`)
+      .filter((p) => !readme.includes(`](${p})`));
     expect(missing).toEqual([]);
   });
 
@@ -44,26 +56,44 @@ describe('README and docs/', () => {
   it('the configuration reference lists every leaf key of the schema with a default, a type and a basis', () => {
     const page = readFileSync(join(root, CONFIG_DOC_PATH), 'utf8');
     // Keys checked by hand against agent/config/*.ts: one per section, and the defaults' sources.
-    expect(page).toMatch(/\| `watcher\.on_delay_s` \| number [^|]*\| `2` \| s \| API 670 \(from memory\)/);
-    expect(page).toMatch(/\| `advisory\.min_channels` \| integer [^|]*\| `2` \| {2}\| API 670 \(from memory\)/);
-    expect(page).toMatch(/\| `watcher\.unbalance\.hv_ratio_max` \| number [^|]*\| `3` \| {2}\| common practice/);
-    expect(page).toMatch(/\| `mqtt\.outbox_max_mb` \| number [^|]*\| `8` \| MiB \| project's choice/);
+    expect(page).toMatch(
+      /\| `watcher\.on_delay_s` \| number [^|]*\| `2` \| s \| API 670 \(from memory\)/,
+    );
+    expect(page).toMatch(
+      /\| `advisory\.min_channels` \| integer [^|]*\| `2` \| {2}\| API 670 \(from memory\)/,
+    );
+    expect(page).toMatch(
+      /\| `watcher\.unbalance\.hv_ratio_max` \| number [^|]*\| `3` \| {2}\| common practice/,
+    );
+    expect(page).toMatch(
+      /\| `mqtt\.outbox_max_mb` \| number [^|]*\| `8` \| MiB \| project's choice/,
+    );
     expect(page).toMatch(/\| `acquisition\.baud` \| integer [^|]*\| `921600` \| bit\/s \|/);
     expect(page).toMatch(/\| `live\.capture\.revolutions` \| integer [^|]*\| `100` \|/);
-    expect(page).toMatch(/\| `sensors\[\]\.sensitivity_mv_per_g` \| number [^|]*\| \(required\) \| mV\/g \|/);
+    expect(page).toMatch(
+      /\| `sensors\[\]\.sensitivity_mv_per_g` \| number [^|]*\| \(required\) \| mV\/g \|/,
+    );
     // Every row has a non-empty meaning.
     const rows = page.split('\n').filter((l) => l.startsWith('| `'));
     expect(rows.length).toBeGreaterThan(150);
-    const empty = rows.filter((l) => /\|\s*\|$/.test(l) && !/\| (object|list of object[^|]*) \|/.test(l));
+    const empty = rows.filter(
+      (l) => /\|\s*\|$/.test(l) && !/\| (object|list of object[^|]*) \|/.test(l),
+    );
     expect(empty).toEqual([]);
   });
 });
 
 describe('the link checker itself', () => {
   it('slugs headings as GitHub does', () => {
-    expect(slug('As the serial board: turnwise sim-board')).toBe('as-the-serial-board-turnwise-sim-board');
+    expect(slug('As the serial board: turnwise sim-board')).toBe(
+      'as-the-serial-board-turnwise-sim-board',
+    );
     expect(slug('Durable outbox (<state_dir>/outbox/)')).toBe('durable-outbox-state_diroutbox');
-    expect([...anchorsOf('# A\n## Tests\n```\n# not a heading\n```\n## Tests\n')]).toEqual(['a', 'tests', 'tests-1']);
+    expect([...anchorsOf('# A\n## Tests\n```\n# not a heading\n```\n## Tests\n')]).toEqual([
+      'a',
+      'tests',
+      'tests-1',
+    ]);
   });
 
   it('finds a missing file, a missing anchor, and ignores links in code and URLs', () => {

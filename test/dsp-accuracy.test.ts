@@ -30,7 +30,14 @@ describe('measurement accuracy on a drifting, noisy record', () => {
     noiseMmS2: noise,
   };
   const nde = { orders: [{ order: 1, velPk: 3.0, phaseDeg: 310 }], dcV: -0.01, noiseMmS2: noise };
-  const signals = synthesize({ sampleRate: fs, seconds, rpm, channels: [de, nde], tachChannel: 2, seed: 7 });
+  const signals = synthesize({
+    sampleRate: fs,
+    seconds,
+    rpm,
+    channels: [de, nde],
+    tachChannel: 2,
+    seed: 7,
+  });
   const cfg = testConfig(
     [
       ['DE-V', 0, 'DE', 'vertical'],
@@ -46,7 +53,8 @@ describe('measurement accuracy on a drifting, noisy record', () => {
   // In-band mean square of white acceleration noise integrated to velocity:
   // PSD_a = 2 sigma^2 / fs (one-sided), PSD_v = PSD_a / (2 pi f)^2, integrated 10..1000 Hz.
   const noiseVelMs = ((2 * noise * noise) / fs / (4 * Math.PI * Math.PI)) * (1 / 10 - 1 / 1000);
-  const expectOverall = (pks: number[]) => Math.sqrt(pks.reduce((s, p) => s + (p * p) / 2, 0) + noiseVelMs);
+  const expectOverall = (pks: number[]) =>
+    Math.sqrt(pks.reduce((s, p) => s + (p * p) / 2, 0) + noiseVelMs);
 
   it('measures the speed and the ISO band', () => {
     expect(w.speed_rpm!).toBeGreaterThan(rpm0 * 0.995);
@@ -86,7 +94,8 @@ describe('measurement accuracy on a drifting, noisy record', () => {
     const p = chDE!.nonsync_peaks[0]!;
     expect(Math.abs(p.freq_hz - 37.3)).toBeLessThan(0.3);
     expect(Math.abs(p.amp_rms_mm_s / (1.0 / Math.SQRT2) - 1)).toBeLessThan(0.05);
-    for (const q of chDE!.nonsync_peaks) expect(Math.abs(q.order - Math.round(q.order))).toBeGreaterThan(0.02);
+    for (const q of chDE!.nonsync_peaks)
+      expect(Math.abs(q.order - Math.round(q.order))).toBeGreaterThan(0.02);
   });
 
   it('a plain FFT peak over the whole record misses the limits under the drift', () => {
@@ -113,7 +122,7 @@ describe('measurement accuracy on a drifting, noisy record', () => {
     let bestK = 0;
     for (let b = Math.floor(23 / df); b <= Math.ceil(26.5 / df); b++) {
       const m = Math.hypot(out[2 * b]!, out[2 * b + 1]!);
-      if (m > best) (best = m), (bestK = b);
+      if (m > best) ((best = m), (bestK = b));
     }
     const accelPk = (2 * best) / sw;
     const velPk = accelPk / (2 * Math.PI * bestK * df);
@@ -133,9 +142,21 @@ describe('1x r.m.s. against the velocity r.m.s. computed from the samples', () =
   const fs = 25600;
   const rpm = 1485;
   const velPk = 4.0;
-  const sig = synthesize({ sampleRate: fs, seconds: 10, rpm: () => rpm, channels: [{ orders: [{ order: 1, velPk, phaseDeg: 250 }], dcV: 0.02 }], tachChannel: 1 });
+  const sig = synthesize({
+    sampleRate: fs,
+    seconds: 10,
+    rpm: () => rpm,
+    channels: [{ orders: [{ order: 1, velPk, phaseDeg: 250 }], dcV: 0.02 }],
+    tachChannel: 1,
+  });
   const cfg = testConfig([['DE-V', 0, 'DE', 'vertical']], { ratedRpm: rpm });
-  const an = new Analyzer({ config: cfg, sampleRate: fs, channelCount: 2, maxBlock: 4096, totalSamples: sig[0]!.length });
+  const an = new Analyzer({
+    config: cfg,
+    sampleRate: fs,
+    channelCount: 2,
+    maxBlock: 4096,
+    totalSamples: sig[0]!.length,
+  });
   for (const b of asBlocks(sig, 4096)) an.push(b);
   const ch = an.takeWindow().channels[0]!;
 

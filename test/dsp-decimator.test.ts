@@ -1,5 +1,11 @@
 import { describe, expect, it } from 'vitest';
-import { Decimator, DecimatorPlan, designHalfBand, equirippleHalfBandTaps, type SampleSink } from '../agent/dsp/decimate.js';
+import {
+  Decimator,
+  DecimatorPlan,
+  designHalfBand,
+  equirippleHalfBandTaps,
+  type SampleSink,
+} from '../agent/dsp/decimate.js';
 import { Analyzer } from '../agent/dsp/analyzer.js';
 import { bandRms, SpectrumAccumulator, velocityLinePower } from '../agent/dsp/spectrum.js';
 import { asBlocks, gaussian, synthesize } from './support/synth.js';
@@ -24,7 +30,8 @@ function dtft(h: Float64Array, f: number, fs: number): { re: number; im: number 
   }
   return { re, im };
 }
-const mag = (h: Float64Array, f: number, fs: number) => Math.hypot(dtft(h, f, fs).re, dtft(h, f, fs).im);
+const mag = (h: Float64Array, f: number, fs: number) =>
+  Math.hypot(dtft(h, f, fs).re, dtft(h, f, fs).im);
 
 /** Collects everything a decimator outputs. */
 class Collect implements SampleSink {
@@ -37,7 +44,11 @@ class Collect implements SampleSink {
   }
 }
 
-function decimateAll(plan: DecimatorPlan, x: Float32Array | Float64Array, blocks: number[] = [x.length]): Float64Array {
+function decimateAll(
+  plan: DecimatorPlan,
+  x: Float32Array | Float64Array,
+  blocks: number[] = [x.length],
+): Float64Array {
   const d = new Decimator(plan);
   const sink = new Collect();
   let i = 0;
@@ -109,13 +120,17 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
         const fp = (s.passbandEdgeHz * i) / pts;
         // Linear phase: H(f) = A(f) e^{-2 pi i f c / r}; A is the real amplitude.
         const hp = dtft(s.taps, fp, r);
-        const ap = hp.re * Math.cos((2 * Math.PI * fp * c) / r) - hp.im * Math.sin((2 * Math.PI * fp * c) / r);
+        const ap =
+          hp.re * Math.cos((2 * Math.PI * fp * c) / r) -
+          hp.im * Math.sin((2 * Math.PI * fp * c) / r);
         ripple = Math.max(ripple, Math.abs(ap - 1));
         const fs = s.stopbandEdgeHz + ((r / 2 - s.stopbandEdgeHz) * i) / pts;
         stop = Math.max(stop, mag(s.taps, fs, r));
         // Half-band symmetry A(f) + A(r/2 - f) = 1 (same source).
         const hs = dtft(s.taps, r / 2 - fp, r);
-        const as = hs.re * Math.cos((2 * Math.PI * (r / 2 - fp) * c) / r) - hs.im * Math.sin((2 * Math.PI * (r / 2 - fp) * c) / r);
+        const as =
+          hs.re * Math.cos((2 * Math.PI * (r / 2 - fp) * c) / r) -
+          hs.im * Math.sin((2 * Math.PI * (r / 2 - fp) * c) / r);
         expect(Math.abs(ap + as - 1)).toBeLessThan(1e-12);
       }
       expect(ripple).toBeLessThanOrEqual(1e-6);
@@ -132,9 +147,17 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
     const e = Array.from({ length: pts + 1 }, (_, i) => {
       const f = (edge * i) / pts;
       const H = dtft(h, f, rate);
-      return H.re * Math.cos((2 * Math.PI * f * c) / rate) - H.im * Math.sin((2 * Math.PI * f * c) / rate) - 1;
+      return (
+        H.re * Math.cos((2 * Math.PI * f * c) / rate) -
+        H.im * Math.sin((2 * Math.PI * f * c) / rate) -
+        1
+      );
     });
-    return e.filter((v, i) => (i === 0 || Math.abs(v) >= Math.abs(e[i - 1]!)) && (i === pts || Math.abs(v) >= Math.abs(e[i + 1]!)));
+    return e.filter(
+      (v, i) =>
+        (i === 0 || Math.abs(v) >= Math.abs(e[i - 1]!)) &&
+        (i === pts || Math.abs(v) >= Math.abs(e[i + 1]!)),
+    );
   };
   /** Count of sign alternations among the extrema whose size is within 1 % of the largest. */
   const alternations = (ext: number[]): number => {
@@ -147,7 +170,9 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
     for (const s of plan.stages) {
       const k = (s.taps.length + 1) / 4;
       // An error that reaches its maximum with alternating signs at K+1 frequencies is minimax.
-      expect(alternations(passbandExtrema(s.taps, s.inputRateHz, s.passbandEdgeHz))).toBeGreaterThanOrEqual(k + 1);
+      expect(
+        alternations(passbandExtrema(s.taps, s.inputRateHz, s.passbandEdgeHz)),
+      ).toBeGreaterThanOrEqual(k + 1);
       // The same for K-1 pairs: the best any shorter half-band can do, and it is not good enough.
       const shorter = equirippleHalfBandTaps(k - 1, s.passbandEdgeHz / s.inputRateHz)!.taps;
       const ext = passbandExtrema(shorter, s.inputRateHz, s.passbandEdgeHz);
@@ -157,7 +182,9 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
   });
 
   it('refuses a passband that leaves no transition band', () => {
-    expect(() => designHalfBand(3200, 1000)).toThrow(/passband edge must be below a quarter of the input rate/);
+    expect(() => designHalfBand(3200, 1000)).toThrow(
+      /passband edge must be below a quarter of the input rate/,
+    );
   });
 });
 
@@ -173,7 +200,9 @@ describe('one stage: its output is the designed response, sample for sample', ()
     it(`a ${f} Hz tone comes out as Re(H(f) e^(i 2 pi f t)) with H the DTFT of the taps`, () => {
       const phi = 0.7;
       // Whole-Hz frequencies: the phase is reduced modulo one cycle exactly before the cosine.
-      const x = Float64Array.from({ length: n }, (_, i) => Math.cos((2 * Math.PI * ((f * i) % 6400)) / 6400 + phi));
+      const x = Float64Array.from({ length: n }, (_, i) =>
+        Math.cos((2 * Math.PI * ((f * i) % 6400)) / 6400 + phi),
+      );
       const y = decimateAll(plan, x, [1000, 17, 333]);
       expect(y.length).toBe(Math.floor((n - L) / 2) + 1);
       // Output m is the FIR output at input index 2m + L - 1: y = Re(H e^{i (w (2m + L - 1) + phi)}).
@@ -198,7 +227,11 @@ describe('the whole cascade at 25.6 kHz', () => {
   const fs = 25600;
   const plan = new DecimatorPlan(fs, 1000, 2560);
   const seconds = 4;
-  const tone = (f: number, amp = 1) => Float64Array.from({ length: fs * seconds }, (_, i) => amp * Math.sin((2 * Math.PI * f * i) / fs + 0.3));
+  const tone = (f: number, amp = 1) =>
+    Float64Array.from(
+      { length: fs * seconds },
+      (_, i) => amp * Math.sin((2 * Math.PI * f * i) / fs + 0.3),
+    );
 
   it('passes the band with the gain the stage designs predict, within 3e-6 of 1', () => {
     for (const f of [2, 10, 24.75, 100, 500, 997.3, 1000]) {
@@ -240,10 +273,14 @@ describe('the whole cascade at 25.6 kHz', () => {
 
   it('produces as many outputs as it says, whatever the block sizes, and carries its state across blocks', () => {
     let seed = 11;
-    const x = Float32Array.from({ length: 50000 }, () => ((seed = (seed * 16807) % 2147483647) / 2147483647) - 0.5);
+    const x = Float32Array.from(
+      { length: 50000 },
+      () => (seed = (seed * 16807) % 2147483647) / 2147483647 - 0.5,
+    );
     const whole = decimateAll(plan, x);
     expect(whole.length).toBe(plan.outputsFor(x.length));
-    for (const blocks of [[1], [7, 4096, 3], [333, 1, 5000, 2], [65536]]) expect(decimateAll(plan, x, blocks)).toEqual(whole);
+    for (const blocks of [[1], [7, 4096, 3], [333, 1, 5000, 2], [65536]])
+      expect(decimateAll(plan, x, blocks)).toEqual(whole);
   });
 
   it('after reset, starts again from the new samples only', () => {
@@ -343,9 +380,16 @@ describe('the analyzer with decimation', () => {
     const an = new Analyzer({ config: cfg, sampleRate: fs, channelCount: 2 });
     expect(an.spectrumRate).toBe(3200);
     expect(an.spectrumRate / an.spectrumSize).toBe(0.78125);
-    const short = new Analyzer({ config: cfg, sampleRate: fs, channelCount: 2, totalSamples: 2 * fs });
+    const short = new Analyzer({
+      config: cfg,
+      sampleRate: fs,
+      channelCount: 2,
+      totalSamples: 2 * fs,
+    });
     expect(short.spectrumRate / short.spectrumSize).toBe(1.5625);
-    expect(new DecimatorPlan(fs, 1000, 2560).outputsFor(2 * fs) / short.spectrumSize).toBeGreaterThanOrEqual(2);
+    expect(
+      new DecimatorPlan(fs, 1000, 2560).outputsFor(2 * fs) / short.spectrumSize,
+    ).toBeGreaterThanOrEqual(2);
   });
 
   it('restarts the filters after a gap and still measures the overall within 2 %', () => {
@@ -356,7 +400,20 @@ describe('the analyzer with decimation', () => {
     const plan = new DecimatorPlan(fs, 1000, 2560);
     const after = plan.startupSamples + 1 + 8 * (2 * 4096 - 10 - 1);
     const total = cut + lost + after;
-    const sig = synthesize({ sampleRate: fs, seconds: total / fs, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 6, phaseDeg: 40 }], tones: [{ freqHz: 3200, accelPk: 5 * G }], noiseMmS2: 300 }], tachChannel: 1, seed: 3 });
+    const sig = synthesize({
+      sampleRate: fs,
+      seconds: total / fs,
+      rpm: () => 1485,
+      channels: [
+        {
+          orders: [{ order: 1, velPk: 6, phaseDeg: 40 }],
+          tones: [{ freqHz: 3200, accelPk: 5 * G }],
+          noiseMmS2: 300,
+        },
+      ],
+      tachChannel: 1,
+      seed: 3,
+    });
     const an = new Analyzer({ config: cfg, sampleRate: fs, channelCount: 2, maxBlock: 4096 });
     for (const b of asBlocks(sig, 4096)) {
       const start = b.startIndex;
@@ -366,10 +423,20 @@ describe('the analyzer with decimation', () => {
         continue;
       }
       // Split the block around the lost stretch, announcing the gap as a source would.
-      if (start < cut) an.push({ kind: 'samples', startIndex: start, channels: b.channels.map((c) => c.subarray(0, cut - start)) });
+      if (start < cut)
+        an.push({
+          kind: 'samples',
+          startIndex: start,
+          channels: b.channels.map((c) => c.subarray(0, cut - start)),
+        });
       if (end > cut + lost) {
-        if (start <= cut + lost) an.push({ kind: 'gap', fromIndex: cut, toIndex: cut + lost, reason: 'test' });
-        an.push({ kind: 'samples', startIndex: cut + lost, channels: b.channels.map((c) => c.subarray(cut + lost - start)) });
+        if (start <= cut + lost)
+          an.push({ kind: 'gap', fromIndex: cut, toIndex: cut + lost, reason: 'test' });
+        an.push({
+          kind: 'samples',
+          startIndex: cut + lost,
+          channels: b.channels.map((c) => c.subarray(cut + lost - start)),
+        });
       }
     }
     const w = an.takeWindow();

@@ -1,6 +1,11 @@
 import { describe, expect, it } from 'vitest';
 import FFT from 'fft.js';
-import { AccelerationStage, mmPerS2PerVolt, RawStats, STANDARD_GRAVITY_M_S2 } from '../agent/dsp/acceleration.js';
+import {
+  AccelerationStage,
+  mmPerS2PerVolt,
+  RawStats,
+  STANDARD_GRAVITY_M_S2,
+} from '../agent/dsp/acceleration.js';
 import { isoBand, planSpectrumSize } from '../agent/dsp/analyzer.js';
 import { bandRms, SpectrumAccumulator, velocityLinePower } from '../agent/dsp/spectrum.js';
 import { orderComponent, SampleRing, SyncAverager, wrapDeg } from '../agent/dsp/sync-average.js';
@@ -10,7 +15,10 @@ describe('fft.js against a direct DFT (reference: the DFT definition X_k = sum x
   it('agrees to 1e-9 on a random real signal', () => {
     const N = 256;
     let seed = 3;
-    const x = Float64Array.from({ length: N }, () => ((seed = (seed * 16807) % 2147483647) / 2147483647) - 0.5);
+    const x = Float64Array.from(
+      { length: N },
+      () => (seed = (seed * 16807) % 2147483647) / 2147483647 - 0.5,
+    );
     const f = new FFT(N);
     const out = f.createComplexArray();
     f.realTransform(out, x);
@@ -37,7 +45,10 @@ describe('acceleration stage', () => {
 
   it('removes DC without touching the AC part', () => {
     const st = new AccelerationStage(100, 1000);
-    const x = Float32Array.from({ length: 1000 }, (_, i) => 10 + 0.1 * Math.sin((2 * Math.PI * 5 * i) / 1000));
+    const x = Float32Array.from(
+      { length: 1000 },
+      (_, i) => 10 + 0.1 * Math.sin((2 * Math.PI * 5 * i) / 1000),
+    );
     const out = new Float32Array(1000);
     st.process(x, out);
     expect(st.dcV).toBeCloseTo(10, 5);
@@ -52,9 +63,20 @@ describe('acceleration stage', () => {
     const { asBlocks, synthesize } = await import('./support/synth.js');
     const { testConfig } = await import('./support/config.js');
     const fs = 25600;
-    const sig = synthesize({ sampleRate: fs, seconds: 8, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 6, phaseDeg: 40 }], dcV: 10 }], tachChannel: 1 });
+    const sig = synthesize({
+      sampleRate: fs,
+      seconds: 8,
+      rpm: () => 1485,
+      channels: [{ orders: [{ order: 1, velPk: 6, phaseDeg: 40 }], dcV: 10 }],
+      tachChannel: 1,
+    });
     for (const block of [256, 4096]) {
-      const an = new Analyzer({ config: testConfig([['DE-V', 0, 'DE', 'vertical']]), sampleRate: fs, channelCount: 2, maxBlock: 4096 });
+      const an = new Analyzer({
+        config: testConfig([['DE-V', 0, 'DE', 'vertical']]),
+        sampleRate: fs,
+        channelCount: 2,
+        maxBlock: 4096,
+      });
       for (const b of asBlocks(sig, block)) an.push(b);
       const o = an.takeWindow().channels[0]!.orders['1']!;
       // Before the DC estimate moved to fixed 1 s spans, 256-sample blocks read 0.4-0.5 % low.
@@ -80,11 +102,16 @@ describe('acceleration stage', () => {
 });
 
 describe('tach', () => {
-  function pulseTrain(fs: number, periods: number[], highV = 5, rise = 4): { x: Float32Array; marks: number[] } {
+  function pulseTrain(
+    fs: number,
+    periods: number[],
+    highV = 5,
+    rise = 4,
+  ): { x: Float32Array; marks: number[] } {
     // Linear rising ramps whose 50 % points (the marks) sit at known fractional sample times.
     const marks: number[] = [];
     let t = 100.37;
-    for (const p of periods) marks.push(t), (t += p);
+    for (const p of periods) (marks.push(t), (t += p));
     const x = new Float32Array(Math.ceil(t) + 200);
     for (const m of marks) {
       for (let i = Math.floor(m - rise); i < m + 60; i++) {
@@ -131,7 +158,10 @@ describe('tach', () => {
 
   const track = (edges: number[], ppr = 1) => {
     const revs: Array<[number, number]> = [];
-    const t = new RevolutionTracker({ pulsesPerRev: ppr, sampleRate: 1000, minRpm: 30, maxRpm: 6000 }, (a, b) => revs.push([a, b]));
+    const t = new RevolutionTracker(
+      { pulsesPerRev: ppr, sampleRate: 1000, minRpm: 30, maxRpm: 6000 },
+      (a, b) => revs.push([a, b]),
+    );
     for (const e of edges) t.edge(e);
     return { revs, t };
   };
@@ -185,7 +215,8 @@ describe('synchronous averaging', () => {
     const x = new Float32Array(n);
     for (let i = 0; i < n; i++) {
       const th = (2 * Math.PI * i) / period;
-      x[i] = 2 * Math.cos(th - (30 * Math.PI) / 180) + 0.5 * Math.cos(3 * th - (250 * Math.PI) / 180);
+      x[i] =
+        2 * Math.cos(th - (30 * Math.PI) / 180) + 0.5 * Math.cos(3 * th - (250 * Math.PI) / 180);
     }
     ring.write(x, 0);
     const avg = new SyncAverager(256);
@@ -213,7 +244,10 @@ describe('spectrum and integration to velocity', () => {
     const f = 80; // exactly on a line: 80 / 1.25
     const accelPk = 1000; // mm/s^2
     const sp = new SpectrumAccumulator(N);
-    const x = Float32Array.from({ length: N * 4 }, (_, i) => accelPk * Math.sin((2 * Math.PI * f * i) / fs));
+    const x = Float32Array.from(
+      { length: N * 4 },
+      (_, i) => accelPk * Math.sin((2 * Math.PI * f * i) / fs),
+    );
     sp.push(x);
     expect(sp.segments).toBe(4);
     const lines = velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, fs);
@@ -226,8 +260,18 @@ describe('spectrum and integration to velocity', () => {
     const N = 2048;
     const f = 123.4567;
     const sp = new SpectrumAccumulator(N);
-    sp.push(Float32Array.from({ length: N * 8 }, (_, i) => 500 * Math.cos((2 * Math.PI * f * i) / fs + 1)));
-    const rms = bandRms(velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, fs), fs / N, 10, 1000);
+    sp.push(
+      Float32Array.from(
+        { length: N * 8 },
+        (_, i) => 500 * Math.cos((2 * Math.PI * f * i) / fs + 1),
+      ),
+    );
+    const rms = bandRms(
+      velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, fs),
+      fs / N,
+      10,
+      1000,
+    );
     expect(Math.abs(rms / (500 / (2 * Math.PI * f) / Math.SQRT2) - 1)).toBeLessThan(0.005);
   });
 
@@ -235,8 +279,20 @@ describe('spectrum and integration to velocity', () => {
     const fs = 25600;
     const N = 32768;
     const sp = new SpectrumAccumulator(N);
-    sp.push(Float32Array.from({ length: N * 2 }, (_, i) => 1000 * Math.sin((2 * Math.PI * 5 * i) / fs) + 1000 * Math.sin((2 * Math.PI * 3200 * i) / fs)));
-    const rms = bandRms(velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, fs), fs / N, 10, 1000);
+    sp.push(
+      Float32Array.from(
+        { length: N * 2 },
+        (_, i) =>
+          1000 * Math.sin((2 * Math.PI * 5 * i) / fs) +
+          1000 * Math.sin((2 * Math.PI * 3200 * i) / fs),
+      ),
+    );
+    const rms = bandRms(
+      velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, fs),
+      fs / N,
+      10,
+      1000,
+    );
     expect(rms).toBeLessThan(1e-3 * (1000 / (2 * Math.PI * 5)));
   });
 
@@ -265,10 +321,23 @@ describe('live vectors', () => {
       sampleRate: fs,
       seconds: 12,
       rpm: () => 1485,
-      channels: [{ orders: [{ order: 1, velPk: 6, phaseDeg: 40, untilS: 6 }, { order: 1, velPk: 6, phaseDeg: 100, fromS: 6 }] }],
+      channels: [
+        {
+          orders: [
+            { order: 1, velPk: 6, phaseDeg: 40, untilS: 6 },
+            { order: 1, velPk: 6, phaseDeg: 100, fromS: 6 },
+          ],
+        },
+      ],
       tachChannel: 1,
     });
-    const an = new Analyzer({ config: testConfig([['DE-V', 0, 'DE', 'vertical']]), sampleRate: fs, channelCount: 2, maxBlock: 1024, liveRevolutions: 16 });
+    const an = new Analyzer({
+      config: testConfig([['DE-V', 0, 'DE', 'vertical']]),
+      sampleRate: fs,
+      channelCount: 2,
+      maxBlock: 1024,
+      liveRevolutions: 16,
+    });
     const phases: Array<[number, number]> = [];
     for (const b of asBlocks(sig, 1024)) {
       an.push(b);

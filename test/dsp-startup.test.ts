@@ -88,7 +88,11 @@ class PlantSignal implements BoardSignal {
 }
 
 /** Plain synchronous averaging of the float32 samples over the revolutions ending before `upTo`. */
-function reference(c: number, fromIndex: number, upTo: number): { vel: number; acc: number; phase: number; revs: number } {
+function reference(
+  c: number,
+  fromIndex: number,
+  upTo: number,
+): { vel: number; acc: number; phase: number; revs: number } {
   const M = 256;
   const sum = new Float64Array(M);
   let revs = 0;
@@ -132,13 +136,21 @@ beforeEach(() => {
 afterEach(() => rig.dispose());
 
 /** Plays 2.6 s of the plant (as fast as the pty takes it) and returns the live frames and windows. */
-async function run(boardTimesTach: boolean): Promise<{ lives: LiveFrame[]; windows: WindowResult[] }> {
+async function run(
+  boardTimesTach: boolean,
+): Promise<{ lives: LiveFrame[]; windows: WindowResult[] }> {
   const lives: LiveFrame[] = [];
   const windows: WindowResult[] = [];
   const { writer } = await rig.start(
     { sampleRateHz: FS, channels: 3 },
     {
-      config: testConfig([['DE-V', 0, 'DE', 'vertical'], ['DE-H', 1, 'DE', 'horizontal']], { tachChannel: 2, dsp: { resample_points: 256 } }),
+      config: testConfig(
+        [
+          ['DE-V', 0, 'DE', 'vertical'],
+          ['DE-H', 1, 'DE', 'horizontal'],
+        ],
+        { tachChannel: 2, dsp: { resample_points: 256 } },
+      ),
       windowSeconds: 2,
       liveSeconds: 0.5,
       boardTimesTach,
@@ -146,7 +158,13 @@ async function run(boardTimesTach: boolean): Promise<{ lives: LiveFrame[]; windo
       liveConsumers: [{ onLive: (f) => void lives.push(structuredClone(f)) }],
     },
   );
-  const b = new BoardEmulator(new PlantSignal(), { sampleRateHz: FS, samplesPerFrame: SPF, format: 'float32', scaleVPerCount: [1, 1, 1], tachTimed: boardTimesTach });
+  const b = new BoardEmulator(new PlantSignal(), {
+    sampleRateHz: FS,
+    samplesPerFrame: SPF,
+    format: 'float32',
+    scaleVPerCount: [1, 1, 1],
+    tachTimed: boardTimesTach,
+  });
   const frames = Math.ceil((2.6 * FS) / SPF);
   for (let i = 0; i < frames; i++) await writer.write(b.nextFrame());
   await rig.finish(frames);
@@ -167,11 +185,20 @@ describe('no start-up bias (real pty, both tach modes)', () => {
           const ref = reference(c, 0, f.sample_index);
           expect(ref.revs).toBeGreaterThanOrEqual(s === 0.5 ? 10 : 47);
           // The reference itself is on the truth (the generator's 1x acceleration, fixed in the shaft's angle) within 0.12 % and 0.1 degree.
-          expect(Math.abs(ref.acc / (TRUTH[c]!.vel * 2 * Math.PI * F0) - 1), `reference amplitude at ${s} s, channel ${c}`).toBeLessThan(0.0015);
+          expect(
+            Math.abs(ref.acc / (TRUTH[c]!.vel * 2 * Math.PI * F0) - 1),
+            `reference amplitude at ${s} s, channel ${c}`,
+          ).toBeLessThan(0.0015);
           expect(Math.abs(phaseDiff(ref.phase, TRUTH[c]!.phase))).toBeLessThan(0.1);
           // Before the fix: about -2 % and -1.3 degrees at 0.5 s, -0.4 % at 2 s.
-          expect(Math.abs(got.amp_pk_mm_s / ref.vel - 1), `amplitude at ${s} s, channel ${c}`).toBeLessThan(0.0015);
-          expect(Math.abs(phaseDiff(got.phase_deg, ref.phase)), `phase at ${s} s, channel ${c}`).toBeLessThan(0.1);
+          expect(
+            Math.abs(got.amp_pk_mm_s / ref.vel - 1),
+            `amplitude at ${s} s, channel ${c}`,
+          ).toBeLessThan(0.0015);
+          expect(
+            Math.abs(phaseDiff(got.phase_deg, ref.phase)),
+            `phase at ${s} s, channel ${c}`,
+          ).toBeLessThan(0.1);
         }
       }
       const w = windows[0]!;
@@ -179,8 +206,14 @@ describe('no start-up bias (real pty, both tach modes)', () => {
       for (let c = 0; c < 2; c++) {
         const got = w.channels[c]!.orders['1']!;
         const ref = reference(c, w.start_index, w.end_index);
-        expect(Math.abs(got.amp_pk_mm_s / ref.vel - 1), `first window amplitude, channel ${c}`).toBeLessThan(0.0015);
-        expect(Math.abs(phaseDiff(got.phase_deg, ref.phase)), `first window phase, channel ${c}`).toBeLessThan(0.1);
+        expect(
+          Math.abs(got.amp_pk_mm_s / ref.vel - 1),
+          `first window amplitude, channel ${c}`,
+        ).toBeLessThan(0.0015);
+        expect(
+          Math.abs(phaseDiff(got.phase_deg, ref.phase)),
+          `first window phase, channel ${c}`,
+        ).toBeLessThan(0.1);
       }
     });
   }

@@ -24,10 +24,16 @@ describe('RawRing', () => {
   it('gives back exactly the samples written, across wrap-around and odd block sizes', () => {
     const ring = new RawRing(2, 1000);
     const n = 5000;
-    const src = [Float32Array.from({ length: n }, (_, i) => i), Float32Array.from({ length: n }, (_, i) => -i)];
+    const src = [
+      Float32Array.from({ length: n }, (_, i) => i),
+      Float32Array.from({ length: n }, (_, i) => -i),
+    ];
     let i = 0;
     for (const b of [7, 333, 1000, 1, 999, 1500, 1160]) {
-      ring.write(src.map((c) => c.subarray(i, i + b)), i);
+      ring.write(
+        src.map((c) => c.subarray(i, i + b)),
+        i,
+      );
       i += b;
     }
     expect(i).toBe(n);
@@ -38,7 +44,9 @@ describe('RawRing', () => {
     expect(Array.from(out[0]!.subarray(0, 3))).toEqual([n - 700, n - 699, n - 698]);
     expect(out[0]![599]).toBe(n - 101);
     expect(out[1]![599]).toBe(-(n - 101));
-    expect(() => ring.copy(n - 1001, n, [new Float32Array(1001), new Float32Array(1001)])).toThrow(/not held/);
+    expect(() => ring.copy(n - 1001, n, [new Float32Array(1001), new Float32Array(1001)])).toThrow(
+      /not held/,
+    );
   });
 
   it('a block that does not follow the last one (a gap) starts a new run: nothing older is handed out', () => {
@@ -62,7 +70,13 @@ function fanSignal(seconds: number): Float32Array[] {
     ],
     noiseMmS2: 50,
   });
-  return synthesize({ sampleRate: fs, seconds, rpm: () => 1485, channels: [ch(2, 9, 40), ch(1.8, 8, 130)], tachChannel: 2 });
+  return synthesize({
+    sampleRate: fs,
+    seconds,
+    rpm: () => 1485,
+    channels: [ch(2, 9, 40), ch(1.8, 8, 130)],
+    tachChannel: 2,
+  });
 }
 
 function fanConfig(stateDir: string, capture: Record<string, unknown> = {}) {
@@ -102,7 +116,9 @@ describe('event captures in the agent', () => {
     const id = alarm!.capture_id as string;
     expect(id).toMatch(/^\d{8}T\d{6}Z-\d+$/);
     // Events below alarm severity carry no capture.
-    expect(events.filter((e) => e.severity !== 'alarm').every((e) => e.capture_id === undefined)).toBe(true);
+    expect(
+      events.filter((e) => e.severity !== 'alarm').every((e) => e.capture_id === undefined),
+    ).toBe(true);
     const capDir = join(dir, 'state', 'captures');
     const rec = JSON.parse(readFileSync(join(capDir, `${id}.json`), 'utf8'));
     expect(rec.reason).toBe('zone_changed');
@@ -118,7 +134,13 @@ describe('event captures in the agent', () => {
     expect(info.totalSamples).toBe(7 * fs);
     await wav.close();
     // Read back by the product as any recording, with the config written beside it.
-    const r = runCli(['analyze', join(capDir, rec.wav), '--config', join(capDir, rec.config), '--json']);
+    const r = runCli([
+      'analyze',
+      join(capDir, rec.wav),
+      '--config',
+      join(capDir, rec.config),
+      '--json',
+    ]);
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const a = JSON.parse(r.stdout);
@@ -145,7 +167,11 @@ describe('event captures in the agent', () => {
     agent = new Agent({
       config: cfg,
       // zone B throughout: no alarm, only the commanded captures
-      source: new ArraySource(fanSignal(16).map((c) => c.subarray(0, 16 * fs)), fs, 2048),
+      source: new ArraySource(
+        fanSignal(16).map((c) => c.subarray(0, 16 * fs)),
+        fs,
+        2048,
+      ),
       boardTimesTach: false,
       clock: new ManualClock(t0),
       logger: new MemoryLogger(),
@@ -153,7 +179,8 @@ describe('event captures in the agent', () => {
       windowConsumers: [
         {
           onWindow: async () => {
-            if (++n % 2 === 0 && ids.length < 3) ids.push((await agent.handlers.takeCapture!({}))['capture_id'] as string);
+            if (++n % 2 === 0 && ids.length < 3)
+              ids.push((await agent.handlers.takeCapture!({}))['capture_id'] as string);
           },
         },
       ],
@@ -163,12 +190,21 @@ describe('event captures in the agent', () => {
     expect(ids).toHaveLength(3);
     const capDir = join(dir, 'state', 'captures');
     const files = readdirSync(capDir).sort();
-    expect(files).toEqual([ids[1], ids[2]].flatMap((id) => [`${id}.json`, `${id}.wav`, `${id}.yaml`]).sort());
+    expect(files).toEqual(
+      [ids[1], ids[2]].flatMap((id) => [`${id}.json`, `${id}.wav`, `${id}.yaml`]).sort(),
+    );
     expect(agent.health()['captures_removed']).toBe(1);
     expect(agent.health()['captures_written']).toBe(3);
     // A capture cut short (its JSON record never written) goes at the next start.
     rmSync(join(capDir, `${ids[2]}.json`));
-    const again = new Agent({ config: cfg, source: new ArraySource(fanSignal(3), fs, 2048), boardTimesTach: false, clock: new ManualClock(t0), logger: new MemoryLogger(), startMs: t0 });
+    const again = new Agent({
+      config: cfg,
+      source: new ArraySource(fanSignal(3), fs, 2048),
+      boardTimesTach: false,
+      clock: new ManualClock(t0),
+      logger: new MemoryLogger(),
+      startMs: t0,
+    });
     await again.run();
     expect(existsSync(join(capDir, `${ids[2]}.wav`))).toBe(false);
     expect(existsSync(join(capDir, `${ids[1]}.wav`))).toBe(true);
@@ -185,12 +221,18 @@ describe('event captures in the agent', () => {
     const t0 = Date.UTC(2026, 11, 3, 8, 0, 0);
     agent = new Agent({
       config: cfg,
-      source: new ArraySource(fanSignal(16).map((c) => c.subarray(0, 16 * fs)), fs, 2048),
+      source: new ArraySource(
+        fanSignal(16).map((c) => c.subarray(0, 16 * fs)),
+        fs,
+        2048,
+      ),
       boardTimesTach: false,
       clock: new ManualClock(t0),
       logger: new MemoryLogger(),
       startMs: t0,
-      windowConsumers: [{ onWindow: async () => void (++n % 2 === 0 && (await agent.handlers.takeCapture!({})))  }],
+      windowConsumers: [
+        { onWindow: async () => void (++n % 2 === 0 && (await agent.handlers.takeCapture!({}))) },
+      ],
     });
     await agent.run();
     const wavs = readdirSync(join(dir, 'state', 'captures')).filter((f) => f.endsWith('.wav'));
@@ -202,35 +244,48 @@ describe('event captures in the agent', () => {
 
 describe('event captures on a full disk', () => {
   const mnt = tryMountTmpfs();
-  it.skipIf(mnt === null)('a capture that cannot be written is logged once per burst and monitoring goes on', async () => {
-    const stateDir = join(mnt!, 'state');
-    const cfg = fanConfig(stateDir, { pre_s: 1, post_s: 1 });
-    const log = new MemoryLogger();
-    let agent!: Agent;
-    let n = 0;
-    const t0 = Date.UTC(2026, 11, 3, 9, 0, 0);
-    const ballast = fillUp(mnt!);
-    try {
-      agent = new Agent({
-        config: cfg,
-        source: new ArraySource(fanSignal(16).map((c) => c.subarray(0, 16 * fs)), fs, 2048),
-        boardTimesTach: false,
-        clock: new ManualClock(t0),
-        logger: log,
-        startMs: t0,
-        windowConsumers: [{ onWindow: async () => void (++n % 2 === 0 && (await agent.handlers.takeCapture!({}))) }],
-      });
-      const sum = await agent.run();
-      expect(sum.windows).toBe(8);
-      expect(agent.health()['captures_failed']).toBe(4);
-      expect(agent.health()['captures_written']).toBe(0);
-      const lines = log.lines.filter((l) => l.level === 'warn' && /capture .* could not be written/.test(l.msg));
-      expect(lines).toHaveLength(1);
-      expect(lines[0]!.msg).toMatch(/ENOSPC|EDQUOT/);
-      expect(lines[0]!.msg).toContain('monitoring goes on');
-    } finally {
-      rmSync(ballast.ballast, { force: true });
-      unmountTmpfs(mnt!);
-    }
-  });
+  it.skipIf(mnt === null)(
+    'a capture that cannot be written is logged once per burst and monitoring goes on',
+    async () => {
+      const stateDir = join(mnt!, 'state');
+      const cfg = fanConfig(stateDir, { pre_s: 1, post_s: 1 });
+      const log = new MemoryLogger();
+      let agent!: Agent;
+      let n = 0;
+      const t0 = Date.UTC(2026, 11, 3, 9, 0, 0);
+      const ballast = fillUp(mnt!);
+      try {
+        agent = new Agent({
+          config: cfg,
+          source: new ArraySource(
+            fanSignal(16).map((c) => c.subarray(0, 16 * fs)),
+            fs,
+            2048,
+          ),
+          boardTimesTach: false,
+          clock: new ManualClock(t0),
+          logger: log,
+          startMs: t0,
+          windowConsumers: [
+            {
+              onWindow: async () => void (++n % 2 === 0 && (await agent.handlers.takeCapture!({}))),
+            },
+          ],
+        });
+        const sum = await agent.run();
+        expect(sum.windows).toBe(8);
+        expect(agent.health()['captures_failed']).toBe(4);
+        expect(agent.health()['captures_written']).toBe(0);
+        const lines = log.lines.filter(
+          (l) => l.level === 'warn' && /capture .* could not be written/.test(l.msg),
+        );
+        expect(lines).toHaveLength(1);
+        expect(lines[0]!.msg).toMatch(/ENOSPC|EDQUOT/);
+        expect(lines[0]!.msg).toContain('monitoring goes on');
+      } finally {
+        rmSync(ballast.ballast, { force: true });
+        unmountTmpfs(mnt!);
+      }
+    },
+  );
 });

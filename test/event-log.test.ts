@@ -15,8 +15,23 @@ import { testResources } from './support/harness.js';
 const res = testResources('tw-evlog-');
 const ASSET = 'kessrow-id3a'; // invented demo fan
 
-function ev(i: number, tsMs: number, type = 'zone_changed', severity: AgentEvent['severity'] = 'warning', extra: Record<string, unknown> = {}): AgentEvent {
-  return { id: `ev-${i}`, ts: new Date(tsMs).toISOString(), asset: ASSET, type, severity, zone: 'C', channel: 'DE-V', ...extra };
+function ev(
+  i: number,
+  tsMs: number,
+  type = 'zone_changed',
+  severity: AgentEvent['severity'] = 'warning',
+  extra: Record<string, unknown> = {},
+): AgentEvent {
+  return {
+    id: `ev-${i}`,
+    ts: new Date(tsMs).toISOString(),
+    asset: ASSET,
+    type,
+    severity,
+    zone: 'C',
+    channel: 'DE-V',
+    ...extra,
+  };
 }
 
 function configFile(stateDir: string, extra = ''): string {
@@ -46,10 +61,21 @@ describe('event log under state_dir', () => {
     b.append(ev(3, t0 + 120_000, 'zone_changed', 'info'));
     b.close();
     expect(readEventLog(dir).events.map((e) => e.id)).toEqual(['ev-1', 'ev-2', 'ev-3']);
-    expect(readEventLog(dir, { sinceMs: t0 + 30_000 }).events.map((e) => e.id)).toEqual(['ev-2', 'ev-3']);
-    expect(readEventLog(dir, { untilMs: t0 + 60_000 }).events.map((e) => e.id)).toEqual(['ev-1', 'ev-2']);
-    expect(readEventLog(dir, { types: ['advisory_raised'] }).events.map((e) => e.id)).toEqual(['ev-2']);
-    expect(readEventLog(dir, { minSeverity: 'warning' }).events.map((e) => e.id)).toEqual(['ev-1', 'ev-2']);
+    expect(readEventLog(dir, { sinceMs: t0 + 30_000 }).events.map((e) => e.id)).toEqual([
+      'ev-2',
+      'ev-3',
+    ]);
+    expect(readEventLog(dir, { untilMs: t0 + 60_000 }).events.map((e) => e.id)).toEqual([
+      'ev-1',
+      'ev-2',
+    ]);
+    expect(readEventLog(dir, { types: ['advisory_raised'] }).events.map((e) => e.id)).toEqual([
+      'ev-2',
+    ]);
+    expect(readEventLog(dir, { minSeverity: 'warning' }).events.map((e) => e.id)).toEqual([
+      'ev-1',
+      'ev-2',
+    ]);
   });
 
   it('stays within max bytes by dropping the oldest half, and keeps the newest events', () => {
@@ -105,7 +131,11 @@ describe('turnwise events (compiled CLI, real process)', () => {
     const now = Date.now();
     const l = new EventLog({ stateDir: state, maxBytes: 1024 * 1024, log: new CaptureLog() });
     l.append(ev(1, now - 3 * 3600_000, 'zone_changed', 'warning'));
-    l.append(ev(2, now - 30 * 60_000, 'advisory_raised', 'alarm', { message: 'zone D at bearing DE: stop advisory raised' }));
+    l.append(
+      ev(2, now - 30 * 60_000, 'advisory_raised', 'alarm', {
+        message: 'zone D at bearing DE: stop advisory raised',
+      }),
+    );
     l.append(ev(3, now - 60_000, 'baseline_learned', 'info'));
     l.close();
     const cfg = configFile(state);
@@ -113,16 +143,30 @@ describe('turnwise events (compiled CLI, real process)', () => {
     const table = runCli(['events', '--config', cfg, '--since', '1h']);
     expect(table.code).toBe(0);
     expect(table.stdout).toMatch(/time \(UTC\)\s+severity\s+type\s+what/);
-    expect(table.stdout).toMatch(/alarm\s+advisory_raised\s+zone D at bearing DE: stop advisory raised/);
+    expect(table.stdout).toMatch(
+      /alarm\s+advisory_raised\s+zone D at bearing DE: stop advisory raised/,
+    );
     expect(table.stdout).not.toMatch(/zone_changed/);
     expect(table.stdout).toMatch(/2 event\(s\)/);
 
-    const j = runCli(['events', '--config', cfg, '--since', new Date(now - 4 * 3600_000).toISOString(), '--severity', 'warning', '--json']);
+    const j = runCli([
+      'events',
+      '--config',
+      cfg,
+      '--since',
+      new Date(now - 4 * 3600_000).toISOString(),
+      '--severity',
+      'warning',
+      '--json',
+    ]);
     expect(j.code).toBe(0);
     const out = JSON.parse(j.stdout) as { count: number; events: AgentEvent[] };
     expect(out.events.map((e) => e.id)).toEqual(['ev-1', 'ev-2']);
 
-    const typed = JSON.parse(runCli(['events', '--config', cfg, '--type', 'baseline_learned,zone_changed', '--json']).stdout) as { events: AgentEvent[] };
+    const typed = JSON.parse(
+      runCli(['events', '--config', cfg, '--type', 'baseline_learned,zone_changed', '--json'])
+        .stdout,
+    ) as { events: AgentEvent[] };
     expect(typed.events.map((e) => e.id)).toEqual(['ev-1', 'ev-3']);
   });
 

@@ -30,29 +30,73 @@ describe('fleet: several agents on one broker', () => {
     const runs = assets.map((asset, i) => {
       // Each fan in its own state: the second is in zone D from the start.
       const pk = i === 1 ? 9 : 1.5;
-      const sig = synthesize({ sampleRate: fs, seconds: 40, rpm: () => 1485 - 3 * i, channels: [{ orders: [{ order: 1, velPk: pk, phaseDeg: 30 }] }, { orders: [{ order: 1, velPk: pk * 0.9, phaseDeg: 120 }] }], tachChannel: 2, seed: i + 1 });
+      const sig = synthesize({
+        sampleRate: fs,
+        seconds: 40,
+        rpm: () => 1485 - 3 * i,
+        channels: [
+          { orders: [{ order: 1, velPk: pk, phaseDeg: 30 }] },
+          { orders: [{ order: 1, velPk: pk * 0.9, phaseDeg: 120 }] },
+        ],
+        tachChannel: 2,
+        seed: i + 1,
+      });
       const cfg = validateConfig({
         machine: { id: asset, group: 2, support: 'rigid', rated_rpm: 1485 },
         tach: { channel: 2, trigger_v: 2.5 },
         sensors: [
-          { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
-          { id: 'DE-H', channel: 1, bearing: 'DE', direction: 'horizontal', sensitivity_mv_per_g: 100 },
+          {
+            id: 'DE-V',
+            channel: 0,
+            bearing: 'DE',
+            direction: 'vertical',
+            sensitivity_mv_per_g: 100,
+          },
+          {
+            id: 'DE-H',
+            channel: 1,
+            bearing: 'DE',
+            direction: 'horizontal',
+            sensitivity_mv_per_g: 100,
+          },
         ],
         state_dir: mkdtempSync(join(tmpdir(), `tw-fleet-${asset}-`)),
         mqtt: { url: broker.url, topic_prefix: site },
         watcher: { window_s: 5, on_delay_s: 5 },
       });
-      return new Agent({ config: cfg, source: new ArraySource(sig, fs, 2048, [], 10), boardTimesTach: false, clock: new ManualClock(t0), logger: new MemoryLogger(), startMs: t0 }).run(10_000);
+      return new Agent({
+        config: cfg,
+        source: new ArraySource(sig, fs, 2048, [], 10),
+        boardTimesTach: false,
+        clock: new ManualClock(t0),
+        logger: new MemoryLogger(),
+        startMs: t0,
+      }).run(10_000);
     });
     const sums = await Promise.all(runs);
     for (const s of sums) expect(s.drained).toBe(true);
-    await sub.waitFor((m) => assets.every((a) => m.some((x) => x.topic === `${site}/${a}/status` && (x.json as { reason?: string }).reason === 'stopped')), 10_000, 'a "stopped" status from every agent');
+    await sub.waitFor(
+      (m) =>
+        assets.every((a) =>
+          m.some(
+            (x) =>
+              x.topic === `${site}/${a}/status` &&
+              (x.json as { reason?: string }).reason === 'stopped',
+          ),
+        ),
+      10_000,
+      'a "stopped" status from every agent',
+    );
     for (const a of assets) {
-      const status = sub.on(`${site}/${a}/status`).map((m) => m.json as { online: boolean; reason: string; asset: string });
+      const status = sub
+        .on(`${site}/${a}/status`)
+        .map((m) => m.json as { online: boolean; reason: string; asset: string });
       expect(status.map((s) => s.reason)).toEqual(['connected', 'stopped']);
       expect(status.map((s) => s.online)).toEqual([true, false]);
       expect(status.every((s) => s.asset === a)).toBe(true);
-      const events = sub.messages.filter((m) => m.topic.startsWith(`${site}/${a}/event/`)).map((m) => m.json as { asset: string; type: string; zone?: string });
+      const events = sub.messages
+        .filter((m) => m.topic.startsWith(`${site}/${a}/event/`))
+        .map((m) => m.json as { asset: string; type: string; zone?: string });
       expect(events.every((e) => e.asset === a)).toBe(true);
       const zoneD = events.some((e) => e.type === 'zone_changed' && e.zone === 'D');
       expect(zoneD).toBe(a === 'id-fan-3b');

@@ -5,7 +5,12 @@ import { afterEach, describe, expect, it } from 'vitest';
 import { UserError } from '../agent/errors.js';
 import { FakeGpioLines } from '../drivers/gpio/fake-lines.js';
 import { OnoffLines, explainGpioError, type GpioClass } from '../drivers/gpio/onoff-lines.js';
-import { globalLineNumber, pickGpioChip, readGpioChips, type GpioChip } from '../drivers/gpio/sysfs-chips.js';
+import {
+  globalLineNumber,
+  pickGpioChip,
+  readGpioChips,
+  type GpioChip,
+} from '../drivers/gpio/sysfs-chips.js';
 import { GpioTachSpeed, PulseSpeed } from '../drivers/gpio/tach-speed.js';
 import { MemoryLogger } from '../agent/log.js';
 import { openBoardGpio, usesGpio } from '../agent/cli/board-gpio.js';
@@ -19,7 +24,9 @@ afterEach(() => {
 });
 
 /** A fake /sys/class/gpio made of real files: gpiochip<N>/{base,label,ngpio}. */
-function sysfs(chips: { name: string; base?: number | string; label?: string; ngpio?: number | string }[]): string {
+function sysfs(
+  chips: { name: string; base?: number | string; label?: string; ngpio?: number | string }[],
+): string {
   const root = mkdtempSync(join(tmpdir(), 'tw-sysfs-'));
   trees.push(root);
   writeFileSync(join(root, 'export'), '');
@@ -72,7 +79,9 @@ describe('sysfs GPIO chip and dynamic base', () => {
 
   it('uses base 0 on an older kernel with one chip', () => {
     const root = sysfs([{ name: 'gpiochip0', base: 0, label: 'pinctrl-bcm2835', ngpio: 54 }]);
-    expect(globalLineNumber(pickGpioChip(readGpioChips(root), undefined, root), 17, 'relay')).toBe(17);
+    expect(globalLineNumber(pickGpioChip(readGpioChips(root), undefined, root), 17, 'relay')).toBe(
+      17,
+    );
   });
 
   it('picks by configured label, and lists the chips when the label is wrong', () => {
@@ -83,36 +92,66 @@ describe('sysfs GPIO chip and dynamic base', () => {
     const chips = readGpioChips(root);
     expect(pickGpioChip(chips, 'expander', root).base).toBe(32);
     const e = thrown(() => pickGpioChip(chips, 'pinctrl-rp1', root));
-    expect(e.message).toMatch(/no GPIO chip labelled "pinctrl-rp1"; chips present: gpiochip0 "board-io" \(base 0, 32 lines\); gpiochip32 "expander"/);
+    expect(e.message).toMatch(
+      /no GPIO chip labelled "pinctrl-rp1"; chips present: gpiochip0 "board-io" \(base 0, 32 lines\); gpiochip32 "expander"/,
+    );
     // The hints name the config key that chooses the chip.
     expect(e.where).toBe('gpio.chip_label "pinctrl-rp1"');
     expect(e.hint).toBe('set gpio.chip_label in the config to one of the labels listed');
-    expect(thrown(() => pickGpioChip(chips, undefined, root)).hint).toMatch(/^set gpio\.chip_label in the config to the label of the chip your relay, lamp, button and GPIO tach input are wired to/);
+    expect(thrown(() => pickGpioChip(chips, undefined, root)).hint).toMatch(
+      /^set gpio\.chip_label in the config to the label of the chip your relay, lamp, button and GPIO tach input are wired to/,
+    );
   });
 
   it('refuses a line the chip does not have, saying which lines exist', () => {
     const chip: GpioChip = { name: 'gpiochip512', base: 512, label: 'pinctrl-bcm2711', ngpio: 58 };
     const e = thrown(() => globalLineNumber(chip, 58, 'GPIO "lamp"'));
-    expect(e.message).toBe('GPIO "lamp": line 58 does not exist on gpiochip512 "pinctrl-bcm2711" (lines 0-57)');
+    expect(e.message).toBe(
+      'GPIO "lamp": line 58 does not exist on gpiochip512 "pinctrl-bcm2711" (lines 0-57)',
+    );
     expect(e.hint).toMatch(/BCM GPIO number\), not the header pin number/);
   });
 
   it('says when there is no sysfs GPIO at all, and skips malformed chip entries', () => {
     expect(readGpioChips('/nonexistent/sys/class/gpio')).toEqual([]);
-    expect(thrown(() => pickGpioChip([], undefined, '/nonexistent')).message).toMatch(/no GPIO chips found/);
-    const root = sysfs([{ name: 'gpiochip0', base: 'x', label: 'a', ngpio: 8 }, { name: 'gpiochip8', label: 'b' }, { name: 'gpiochip9', base: 9, label: 'ok', ngpio: 4 }]);
+    expect(thrown(() => pickGpioChip([], undefined, '/nonexistent')).message).toMatch(
+      /no GPIO chips found/,
+    );
+    const root = sysfs([
+      { name: 'gpiochip0', base: 'x', label: 'a', ngpio: 8 },
+      { name: 'gpiochip8', label: 'b' },
+      { name: 'gpiochip9', base: 9, label: 'ok', ngpio: 4 },
+    ]);
     expect(readGpioChips(root).map((c) => c.label)).toEqual(['ok']);
   });
 });
 
 /** Stands in for onoff's Gpio class: records how the adapter configures and drives the line. */
 function stubGpio(fail?: NodeJS.ErrnoException) {
-  const made: { n: number; direction: string; edge: string | undefined; options: unknown; writes: number[]; watchers: ((err: Error | null, v: 0 | 1) => void)[]; level: 0 | 1; unexported: boolean }[] = [];
+  const made: {
+    n: number;
+    direction: string;
+    edge: string | undefined;
+    options: unknown;
+    writes: number[];
+    watchers: ((err: Error | null, v: 0 | 1) => void)[];
+    level: 0 | 1;
+    unexported: boolean;
+  }[] = [];
   const Cls = class {
     private readonly rec: (typeof made)[number];
     constructor(n: number, direction: string, edge?: string, options?: unknown) {
       if (fail) throw fail;
-      this.rec = { n, direction, edge, options, writes: [], watchers: [], level: direction === 'high' ? 1 : 0, unexported: false };
+      this.rec = {
+        n,
+        direction,
+        edge,
+        options,
+        writes: [],
+        watchers: [],
+        level: direction === 'high' ? 1 : 0,
+        unexported: false,
+      };
       made.push(this.rec);
     }
     read(): Promise<0 | 1> {
@@ -162,8 +201,17 @@ describe('onoff adapter (against a stand-in for onoff)', () => {
   it('turns an active-low button into logical presses and maps the edge', async () => {
     const { Gpio, made } = stubGpio();
     const lines = new OnoffLines(Gpio, PI4, new MemoryLogger(), () => 5000);
-    const button = await lines.input('ack', 22, { activeLow: true, debounceMs: 30, edge: 'rising' });
-    expect(made[0]).toMatchObject({ n: 534, direction: 'in', edge: 'falling', options: { debounceTimeout: 30 } });
+    const button = await lines.input('ack', 22, {
+      activeLow: true,
+      debounceMs: 30,
+      edge: 'rising',
+    });
+    expect(made[0]).toMatchObject({
+      n: 534,
+      direction: 'in',
+      edge: 'falling',
+      options: { debounceTimeout: 30 },
+    });
     const seen: [boolean, number][] = [];
     const stop = button.watch((v, t) => seen.push([v, t]));
     made[0]!.watchers[0]!(null, 0); // pin pulled low: pressed
@@ -173,23 +221,38 @@ describe('onoff adapter (against a stand-in for onoff)', () => {
   });
 
   it('explains EACCES: gpio group or udev rule', async () => {
-    const err = Object.assign(new Error("EACCES: permission denied, open '/sys/class/gpio/export'"), { code: 'EACCES' });
+    const err = Object.assign(
+      new Error("EACCES: permission denied, open '/sys/class/gpio/export'"),
+      { code: 'EACCES' },
+    );
     const lines = new OnoffLines(stubGpio(err).Gpio, PI4, new MemoryLogger());
     const e = await lines.output('relay', 17).then(
       () => null,
       (x: unknown) => x,
     );
     expect(e).toBeInstanceOf(UserError);
-    expect((e as UserError).message).toMatch(/^GPIO "relay" \(line 17 on gpiochip512 "pinctrl-bcm2711", sysfs number 529\): permission denied/);
-    expect((e as UserError).hint).toMatch(/add the service user to the gpio group .* or install the udev rule deploy\/udev\/99-turnwise-gpio.rules/);
-    expect(explainGpioError(Object.assign(new Error('x'), { code: 'EINVAL' }), 'lamp', 4, 516, PI4).message).toMatch(/refused GPIO number 516/);
-    expect(explainGpioError(Object.assign(new Error('x'), { code: 'EBUSY' }), 'lamp', 4, 516, PI4).message).toMatch(/already in use/);
+    expect((e as UserError).message).toMatch(
+      /^GPIO "relay" \(line 17 on gpiochip512 "pinctrl-bcm2711", sysfs number 529\): permission denied/,
+    );
+    expect((e as UserError).hint).toMatch(
+      /add the service user to the gpio group .* or install the udev rule deploy\/udev\/99-turnwise-gpio.rules/,
+    );
+    expect(
+      explainGpioError(Object.assign(new Error('x'), { code: 'EINVAL' }), 'lamp', 4, 516, PI4)
+        .message,
+    ).toMatch(/refused GPIO number 516/);
+    expect(
+      explainGpioError(Object.assign(new Error('x'), { code: 'EBUSY' }), 'lamp', 4, 516, PI4)
+        .message,
+    ).toMatch(/already in use/);
   });
 
   it('checks the line against the chip before touching onoff', async () => {
     const { Gpio, made } = stubGpio();
     const lines = new OnoffLines(Gpio, PI4, new MemoryLogger());
-    await expect(lines.output('relay', 99)).rejects.toThrow(/line 99 does not exist on gpiochip512/);
+    await expect(lines.output('relay', 99)).rejects.toThrow(
+      /line 99 does not exist on gpiochip512/,
+    );
     expect(made).toHaveLength(0);
   });
 });
@@ -234,7 +297,10 @@ describe('tach speed from GPIO pulses (speed only)', () => {
 
   it('measures steady speed from pulse intervals', async () => {
     const gpio = new FakeGpioLines();
-    const tach = new GpioTachSpeed(await gpio.input('tach', 5, { edge: 'rising' }), new PulseSpeed(opts));
+    const tach = new GpioTachSpeed(
+      await gpio.input('tach', 5, { edge: 'rising' }),
+      new PulseSpeed(opts),
+    );
     const period = 60_000 / 1480; // 1480 r/min
     for (let k = 0; k <= 10; k++) gpio.pulse('tach', 1000 + k * period);
     expect(tach.rpm(1000 + 10 * period + 1)).toBeCloseTo(1480, 9);
@@ -282,7 +348,9 @@ function cfgWith(extra: Record<string, unknown>) {
   return validateConfig({
     machine: { id: 'kessrow-id3a', group: 2, support: 'rigid' },
     tach: { channel: 2, trigger_v: 2.5 },
-    sensors: [{ id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 }],
+    sensors: [
+      { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+    ],
     ...extra,
   });
 }
@@ -297,43 +365,76 @@ describe('GPIO lines for `turnwise run` (gpio.chip_label)', () => {
   it('opens no GPIO when neither the advisory nor the GPIO tach input is configured', async () => {
     const cfg = cfgWith({ gpio: { chip_label: 'expander' } });
     expect(usesGpio(cfg)).toBe(false);
-    expect(await openBoardGpio(cfg, new MemoryLogger(), '/nonexistent/sys/class/gpio')).toBeUndefined();
+    expect(
+      await openBoardGpio(cfg, new MemoryLogger(), '/nonexistent/sys/class/gpio'),
+    ).toBeUndefined();
   });
 
   it('with several chips and no header chip, tells the user to set gpio.chip_label', async () => {
     const root = twoChips();
-    const err = await openBoardGpio(cfgWith({ gpio: { tach_speed: { line: 5 } } }), new MemoryLogger(), root).catch((e: unknown) => e);
+    const err = await openBoardGpio(
+      cfgWith({ gpio: { tach_speed: { line: 5 } } }),
+      new MemoryLogger(),
+      root,
+    ).catch((e: unknown) => e);
     expect(err).toBeInstanceOf(UserError);
-    expect((err as UserError).message).toMatch(/several GPIO chips and none is known to carry the pin header: gpiochip0 "board-io" .*gpiochip32 "expander"/);
+    expect((err as UserError).message).toMatch(
+      /several GPIO chips and none is known to carry the pin header: gpiochip0 "board-io" .*gpiochip32 "expander"/,
+    );
     expect((err as UserError).hint).toMatch(/set gpio\.chip_label in the config/);
   });
 
   it('passes gpio.chip_label through to the chip choice', async () => {
     const root = twoChips();
     const log = new MemoryLogger();
-    const lines = (await openBoardGpio(cfgWith({ advisory: { relay: { line: 3 } }, gpio: { chip_label: 'expander' } }), log, root)) as OnoffLines;
+    const lines = (await openBoardGpio(
+      cfgWith({ advisory: { relay: { line: 3 } }, gpio: { chip_label: 'expander' } }),
+      log,
+      root,
+    )) as OnoffLines;
     expect(lines.chip).toMatchObject({ name: 'gpiochip32', base: 32, label: 'expander' });
-    expect(log.lines.some((l) => l.msg === 'GPIO: using gpiochip32 "expander", base 32')).toBe(true);
-    const wrong = await openBoardGpio(cfgWith({ advisory: { relay: { line: 3 } }, gpio: { chip_label: 'pinctrl-rp1' } }), log, root).catch((e: unknown) => e);
+    expect(log.lines.some((l) => l.msg === 'GPIO: using gpiochip32 "expander", base 32')).toBe(
+      true,
+    );
+    const wrong = await openBoardGpio(
+      cfgWith({ advisory: { relay: { line: 3 } }, gpio: { chip_label: 'pinctrl-rp1' } }),
+      log,
+      root,
+    ).catch((e: unknown) => e);
     expect((wrong as UserError).where).toBe('gpio.chip_label "pinctrl-rp1"');
   });
 });
 
 /** A window's speed part as the DSP reports it. */
-const speeds = (mean: number | null, min = mean, max = mean) => ({ speed_rpm: mean, speed_min_rpm: min, speed_max_rpm: max });
+const speeds = (mean: number | null, min = mean, max = mean) => ({
+  speed_rpm: mean,
+  speed_min_rpm: min,
+  speed_max_rpm: max,
+});
 
 describe('GPIO speed as a cross-check of the tach channel (never phase)', () => {
   it('judges agreement against the window speed range widened by the tolerance', () => {
     expect(judgeGpioSpeed(speeds(1485), 1500, 5).state).toBe('agree'); // +1 %
     // 1485 * 1.05 = 1559.25: just inside, just outside.
     expect(judgeGpioSpeed(speeds(1485), 1559, 5).state).toBe('agree');
-    expect(judgeGpioSpeed(speeds(1485), 1560, 5)).toMatchObject({ state: 'mismatch', detail: expect.stringMatching(/1560\.0 r\/min, the tach channel 1485\.0 r\/min .*\+5\.1 %/) });
+    expect(judgeGpioSpeed(speeds(1485), 1560, 5)).toMatchObject({
+      state: 'mismatch',
+      detail: expect.stringMatching(/1560\.0 r\/min, the tach channel 1485\.0 r\/min .*\+5\.1 %/),
+    });
     // A fan running up within the window: 1400 to 1485, mean 1440. 1380 is 4.2 % below the mean
     // and inside 1400 * 0.95 = 1330; 1320 is not.
     expect(judgeGpioSpeed(speeds(1440, 1400, 1485), 1380, 5).state).toBe('agree');
     expect(judgeGpioSpeed(speeds(1440, 1400, 1485), 1320, 5).state).toBe('mismatch');
-    expect(judgeGpioSpeed(speeds(null), 742, 5)).toMatchObject({ state: 'tach_lost', detail: expect.stringMatching(/tach channel gave no speed .* turns at 742\.0 r\/min: check the tach pickup, its cable and tach\.trigger_v/) });
-    expect(judgeGpioSpeed(speeds(1485), null, 5)).toMatchObject({ state: 'gpio_silent', detail: expect.stringMatching(/gpio\.tach_speed\.line/) });
+    expect(judgeGpioSpeed(speeds(null), 742, 5)).toMatchObject({
+      state: 'tach_lost',
+      detail: expect.stringMatching(
+        /tach channel gave no speed .* turns at 742\.0 r\/min: check the tach pickup, its cable and tach\.trigger_v/,
+      ),
+    });
+    expect(judgeGpioSpeed(speeds(1485), null, 5)).toMatchObject({
+      state: 'gpio_silent',
+      detail: expect.stringMatching(/gpio\.tach_speed\.line/),
+    });
     expect(judgeGpioSpeed(speeds(null), null, 5)).toEqual({ state: 'stopped', detail: null });
   });
 
@@ -342,7 +443,13 @@ describe('GPIO speed as a cross-check of the tach channel (never phase)', () => 
     const gpio = new FakeGpioLines({ nowMs: () => now });
     const log = new MemoryLogger();
     const cfg = cfgWith({ gpio: { tach_speed: { line: 23, tolerance_pct: 3 } } });
-    const check = await GpioSpeedCheck.open({ config: cfg.gpio!.tach_speed!, tach: cfg.tach, gpio, log, nowMs: () => now });
+    const check = await GpioSpeedCheck.open({
+      config: cfg.gpio!.tach_speed!,
+      tach: cfg.tach,
+      gpio,
+      log,
+      nowMs: () => now,
+    });
     const period = 60_000 / 1485;
     let k = 0;
     const window = (tachRpm: number | null, seconds = 2) => {
@@ -351,11 +458,18 @@ describe('GPIO speed as a cross-check of the tach channel (never phase)', () => 
       now = until;
       return check.onWindow({ ...speeds(tachRpm), end_index: now } as unknown as WindowResult);
     };
-    expect(check.health()).toMatchObject({ gpio_speed_check: null, gpio_speed_disagreements_total: 0 });
+    expect(check.health()).toMatchObject({
+      gpio_speed_check: null,
+      gpio_speed_disagreements_total: 0,
+    });
     expect(window(1485).state).toBe('agree');
     expect(check.rpm()).toBeCloseTo(1485, 6);
     // The tach channel loses its pulse for three windows while the GPIO input sees the fan turn.
-    expect([window(null), window(null), window(null)].map((v) => v.state)).toEqual(['tach_lost', 'tach_lost', 'tach_lost']);
+    expect([window(null), window(null), window(null)].map((v) => v.state)).toEqual([
+      'tach_lost',
+      'tach_lost',
+      'tach_lost',
+    ]);
     expect(window(1485).state).toBe('agree');
     const lines = log.lines.filter((l) => l.fields['problem'] === 'gpio_speed_check');
     expect(lines.map((l) => [l.level, l.fields['occurrences'] ?? null])).toEqual([
@@ -363,14 +477,21 @@ describe('GPIO speed as a cross-check of the tach channel (never phase)', () => 
       ['info', 3],
     ]);
     expect(lines[0]!.fields).toMatchObject({ gpio_speed_rpm: 1485, tach_speed_rpm: null });
-    expect(check.health()).toMatchObject({ gpio_speed_rpm: 1485, gpio_speed_check: 'agree', gpio_speed_disagreements_total: 3, gpio_tach_double_triggers_total: 0, gpio_tach_dropouts_total: 0 });
+    expect(check.health()).toMatchObject({
+      gpio_speed_rpm: 1485,
+      gpio_speed_check: 'agree',
+      gpio_speed_disagreements_total: 3,
+      gpio_tach_double_triggers_total: 0,
+      gpio_tach_dropouts_total: 0,
+    });
     expect(check.health()['gpio_tach_edges_total']).toBe(k);
     // The pickup goes quiet: after 2 s (1 / tach.min_rpm of 30 r/min) the GPIO speed is unknown.
     now += 2500;
     expect(check.health()['gpio_speed_rpm']).toBeNull();
-    expect(check.onWindow({ ...speeds(1485), end_index: now } as unknown as WindowResult).state).toBe('gpio_silent');
+    expect(
+      check.onWindow({ ...speeds(1485), end_index: now } as unknown as WindowResult).state,
+    ).toBe('gpio_silent');
     await check.close();
     expect(gpio.isClosed('gpio tach')).toBe(true);
   });
 });
-

@@ -7,9 +7,21 @@ import { RunCapture, type CaptureSettings } from '../agent/balance/workbench/cap
  * revolutions at steady speed, restarting on speed changes. Frames are built here with known vectors.
  */
 
-const SETTINGS: CaptureSettings = { revolutions: 100, settleRevolutions: 50, speedTolerancePct: 1, maxRestarts: 2, maxAgeS: 2, scatterWarnPct: 10, scatterFloorMmS: 0.05 };
+const SETTINGS: CaptureSettings = {
+  revolutions: 100,
+  settleRevolutions: 50,
+  speedTolerancePct: 1,
+  maxRestarts: 2,
+  maxAgeS: 2,
+  scatterWarnPct: 10,
+  scatterFloorMmS: 0.05,
+};
 
-function frame(speed: number | null, vectors: Record<string, [number, number]>, ageS = 0.02): LiveFrame {
+function frame(
+  speed: number | null,
+  vectors: Record<string, [number, number]>,
+  ageS = 0.02,
+): LiveFrame {
   return {
     sample_index: 0,
     speed_rpm: speed,
@@ -17,13 +29,27 @@ function frame(speed: number | null, vectors: Record<string, [number, number]>, 
     age_s: ageS,
     channels: Object.entries(vectors).map(([id, [amp, phase]]) => ({
       id,
-      orders: { '1': { order: 1, freq_hz: (speed ?? 0) / 60, amp_pk_mm_s: amp, amp_rms_mm_s: amp / Math.SQRT2, phase_deg: phase } },
+      orders: {
+        '1': {
+          order: 1,
+          freq_hz: (speed ?? 0) / 60,
+          amp_pk_mm_s: amp,
+          amp_rms_mm_s: amp / Math.SQRT2,
+          phase_deg: phase,
+        },
+      },
     })),
   };
 }
 
 /** Feeds frames every `stepMs` until the capture finishes or `max` frames were fed. */
-function feed(cap: RunCapture, make: (i: number) => LiveFrame, stepMs = 500, max = 500, t0 = 1_000_000): number {
+function feed(
+  cap: RunCapture,
+  make: (i: number) => LiveFrame,
+  stepMs = 500,
+  max = 500,
+  t0 = 1_000_000,
+): number {
   let i = 0;
   for (; i < max && !cap.finished; i++) cap.push(make(i), t0 + i * stepMs);
   return i;
@@ -63,7 +89,11 @@ describe('capturing a balancing run from the live vectors', () => {
 
   it('counts revolutions on the sample clock: a wall-clock step forward in the frame times does not end the averaging early', () => {
     const fs = 25_600;
-    const at = (i: number) => ({ ...frame(1500, { A: [5, 40] }), sample_index: (i + 1) * fs * 0.5, sample_rate_hz: fs });
+    const at = (i: number) => ({
+      ...frame(1500, { A: [5, 40] }),
+      sample_index: (i + 1) * fs * 0.5,
+      sample_rate_hz: fs,
+    });
     const cap = new RunCapture(['A'], SETTINGS);
     // Frame times 0.5 s apart on the sample clock; at frame 6 the wall clock stepped 60 s forward
     // (the runtime re-anchored): 1500 revolutions by the wall clock, 12.5 by the samples.
@@ -106,7 +136,12 @@ describe('capturing a balancing run from the live vectors', () => {
 
   it('pauses while the tach delivers no revolutions and starts settling again after', () => {
     const cap = new RunCapture(['A'], SETTINGS);
-    feed(cap, (i) => (i >= 5 ? frame(1500, { A: [3, 10] }, 7.5) : frame(1500, { A: [3, 10] })), 500, 8);
+    feed(
+      cap,
+      (i) => (i >= 5 ? frame(1500, { A: [3, 10] }, 7.5) : frame(1500, { A: [3, 10] })),
+      500,
+      8,
+    );
     const p = cap.progress();
     expect(p.waiting).toMatch(/no trusted revolution for 7\.5 s: tach lost or fan stopped/);
     expect(p.settled_revolutions).toBe(0);
@@ -118,7 +153,9 @@ describe('capturing a balancing run from the live vectors', () => {
     // 60 r/min: a revolution a second, so a last revolution 2.5 s ago is still live; 3.5 s is not.
     const cap = new RunCapture(['A'], { ...SETTINGS, revolutions: 10, settleRevolutions: 0 });
     expect(cap.push(frame(60, { A: [3, 10] }, 2.5), 0).waiting).toBeNull();
-    expect(cap.push(frame(60, { A: [3, 10] }, 3.5), 4000).waiting).toMatch(/no trusted revolution for 3\.5 s/);
+    expect(cap.push(frame(60, { A: [3, 10] }, 3.5), 4000).waiting).toMatch(
+      /no trusted revolution for 3\.5 s/,
+    );
   });
 
   it('fails naming the sensor when a 1x vector is missing', () => {

@@ -23,11 +23,23 @@ const OPERATOR = 'operator-0123456789abcdef-op';
 /** What the test reads of the page's document (the project compiles without the DOM library). */
 type Doc = { document: { querySelector(sel: string): { textContent: string | null } | null } };
 const SPEED_UP = 8;
-const CHROMIUM_ARGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
+const CHROMIUM_ARGS = [
+  '--headless',
+  '--no-sandbox',
+  '--disable-gpu',
+  '--disable-quic',
+  '--no-first-run',
+  '--disable-background-networking',
+  '--disable-component-update',
+  '--disable-sync',
+];
 
 function fastPacer(k: number): Pacer {
   const t0 = performance.now();
-  return { now: () => t0 + (performance.now() - t0) * k, sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)) };
+  return {
+    now: () => t0 + (performance.now() - t0) * k,
+    sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)),
+  };
 }
 
 describe('four-run balancing on the live page with the tach lost', () => {
@@ -43,16 +55,45 @@ describe('four-run balancing on the live page with the tach lost', () => {
 
   beforeAll(async () => {
     dir = mkdtempSync(join(tmpdir(), 'tw-live-fourrun-'));
-    const cfg = validateConfig({ ...loadConfig('config/example.yaml'), state_dir: dir, live: { port: 0, tokens: [{ name: 'balancing-crew', role: 'operator', env: 'TW_PAGE_OPERATOR' }], update_hz: 4 } });
+    const cfg = validateConfig({
+      ...loadConfig('config/example.yaml'),
+      state_dir: dir,
+      live: {
+        port: 0,
+        tokens: [{ name: 'balancing-crew', role: 'operator', env: 'TW_PAGE_OPERATOR' }],
+        update_hz: 4,
+      },
+    });
     const scenario = loadScenario('config/example-scenario.yaml');
     const lostAt = parseAt('day 5 14:40')!;
     const k = scenario.timeline.findIndex((e) => e.at > lostAt);
-    scenario.timeline.splice(k < 0 ? scenario.timeline.length : k, 0, { at: lostAt, tach_fault: { kind: 'lost', missing_fraction: 1 } } as (typeof scenario.timeline)[number]);
-    src = new SimSource(resolveScenario(scenario, cfg), { startS: 5.625 * 86400, blockSamples: 2560, pace: 'realtime', pacer: fastPacer(SPEED_UP) });
+    scenario.timeline.splice(k < 0 ? scenario.timeline.length : k, 0, {
+      at: lostAt,
+      tach_fault: { kind: 'lost', missing_fraction: 1 },
+    } as (typeof scenario.timeline)[number]);
+    src = new SimSource(resolveScenario(scenario, cfg), {
+      startS: 5.625 * 86400,
+      blockSamples: 2560,
+      pace: 'realtime',
+      pacer: fastPacer(SPEED_UP),
+    });
     const logger = new MemoryLogger();
-    server = LiveServer.fromConfig(cfg, { logger, clock: systemClock, emit: () => undefined, onCoefficientsSaved: () => undefined }, { TW_PAGE_OPERATOR: OPERATOR });
+    server = LiveServer.fromConfig(
+      cfg,
+      { logger, clock: systemClock, emit: () => undefined, onCoefficientsSaved: () => undefined },
+      { TW_PAGE_OPERATOR: OPERATOR },
+    );
     url = (await server.start()).url;
-    rt = new AgentRuntime({ config: cfg, source: src, clock: systemClock, logger, windowSeconds: 4, liveSeconds: 0.5, windowConsumers: [server], liveConsumers: [server] });
+    rt = new AgentRuntime({
+      config: cfg,
+      source: src,
+      clock: systemClock,
+      logger,
+      windowSeconds: 4,
+      liveSeconds: 0.5,
+      windowConsumers: [server],
+      liveConsumers: [server],
+    });
     running = rt.run();
     browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: CHROMIUM_ARGS });
     page = await browser.newPage({ viewport: { width: 412, height: 915 }, deviceScaleFactor: 1 });
@@ -77,8 +118,15 @@ describe('four-run balancing on the live page with the tach lost', () => {
   async function read(field: string): Promise<number> {
     const before = await page.textContent('#fourrun-read');
     await page.click(`#fourrun button[data-reads="${field}"]`);
-    await page.waitForFunction((b) => ((globalThis as unknown as Doc).document.querySelector('#fourrun-read')?.textContent ?? '') !== b, before);
-    expect(await page.textContent('#fourrun-read')).toMatch(/spectral peak at 24\.\d+ Hz \(no tach\)|below the peak threshold/);
+    await page.waitForFunction(
+      (b) =>
+        ((globalThis as unknown as Doc).document.querySelector('#fourrun-read')?.textContent ??
+          '') !== b,
+      before,
+    );
+    expect(await page.textContent('#fourrun-read')).toMatch(
+      /spectral peak at 24\.\d+ Hz \(no tach\)|below the peak threshold/,
+    );
     return Number(await page.inputValue(`#fourrun [name="${field}"]`));
   }
 
@@ -96,7 +144,14 @@ describe('four-run balancing on the live page with the tach lost', () => {
     const asFound = await read('fr_a0');
     expect(asFound).toBeGreaterThan(1);
     for (const [i, angle] of [0, 120, 240].entries()) {
-      src.addWeight({ id: 'T', plane: 'back_plate', mass_g: 100, radius_mm: 760, angle_deg: angle, convention: 'against_rotation' });
+      src.addWeight({
+        id: 'T',
+        plane: 'back_plate',
+        mass_g: 100,
+        radius_mm: 760,
+        angle_deg: angle,
+        convention: 'against_rotation',
+      });
       await freshWindows();
       await read(`fr_a${i + 1}`);
       src.removeWeight('T');
@@ -110,18 +165,30 @@ describe('four-run balancing on the live page with the tach lost', () => {
     expect(text).toMatch(/with the trial weight removed/);
     expect(text).toMatch(/Watch the vibration during every trial and check run/);
     expect(text).toMatch(/confined-space entry/);
-    src.addWeight({ id: 'C', plane: 'back_plate', mass_g: mass, radius_mm: 760, angle_deg: angle, convention: 'against_rotation' });
+    src.addWeight({
+      id: 'C',
+      plane: 'back_plate',
+      mass_g: mass,
+      radius_mm: 760,
+      angle_deg: angle,
+      convention: 'against_rotation',
+    });
     await freshWindows();
     const after = await read('fr_a0');
-    console.log(`four-run on the page: as found ${asFound} mm/s pk; correction ${mass.toFixed(1)} g at ${angle.toFixed(1)} deg; check ${after} mm/s pk = ${((after / asFound) * 100).toFixed(1)} % of as found`);
+    console.log(
+      `four-run on the page: as found ${asFound} mm/s pk; correction ${mass.toFixed(1)} g at ${angle.toFixed(1)} deg; check ${after} mm/s pk = ${((after / asFound) * 100).toFixed(1)} % of as found`,
+    );
     expect(after / asFound).toBeLessThan(0.15);
     expect(pageErrors).toEqual([]);
   }, 120_000);
 
   it('refuses readings that do not move, on the page', async () => {
-    for (const f of ['fr_a0', 'fr_a1', 'fr_a2', 'fr_a3']) await page.fill(`#fourrun [name=${f}]`, '5.0');
+    for (const f of ['fr_a0', 'fr_a1', 'fr_a2', 'fr_a3'])
+      await page.fill(`#fourrun [name=${f}]`, '5.0');
     await page.click('#fourrun button[type=submit]');
     await page.waitForSelector('#fourrun-result [data-ok=false]');
-    expect(await page.textContent('#fourrun-result')).toMatch(/No correction given.*within twice the reading scatter/s);
+    expect(await page.textContent('#fourrun-result')).toMatch(
+      /No correction given.*within twice the reading scatter/s,
+    );
   });
 });

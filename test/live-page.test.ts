@@ -29,12 +29,24 @@ const OPERATOR = 'operator-0123456789abcdef-op';
 const SPEED_UP = 8;
 /** What the tests read of a DOM element (the project compiles without the DOM library). */
 type El = { dataset: Record<string, string | undefined> };
-const CHROMIUM_ARGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
+const CHROMIUM_ARGS = [
+  '--headless',
+  '--no-sandbox',
+  '--disable-gpu',
+  '--disable-quic',
+  '--no-first-run',
+  '--disable-background-networking',
+  '--disable-component-update',
+  '--disable-sync',
+];
 
 /** Paces the simulated board K times faster than real time. */
 function fastPacer(k: number): Pacer {
   const t0 = performance.now();
-  return { now: () => t0 + (performance.now() - t0) * k, sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)) };
+  return {
+    now: () => t0 + (performance.now() - t0) * k,
+    sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)),
+  };
 }
 
 describe('live page in a real browser', () => {
@@ -69,10 +81,24 @@ describe('live page in a real browser', () => {
       },
     });
     const plan = resolveScenario(loadScenario('config/example-scenario.yaml'), cfg);
-    src = new SimSource(plan, { startS: 5.625 * 86400, blockSamples: 2560, pace: 'realtime', pacer: fastPacer(SPEED_UP) });
+    src = new SimSource(plan, {
+      startS: 5.625 * 86400,
+      blockSamples: 2560,
+      pace: 'realtime',
+      pacer: fastPacer(SPEED_UP),
+    });
     const logger = new MemoryLogger();
     const watcher = openWatcher(cfg);
-    server = LiveServer.fromConfig(cfg, { logger, clock: systemClock, emit: (e) => void events.push(e), onCoefficientsSaved: () => void (reloads++, watcher.reloadCoefficients()) }, { TW_PAGE_VIEWER: VIEWER, TW_PAGE_OPERATOR: OPERATOR });
+    server = LiveServer.fromConfig(
+      cfg,
+      {
+        logger,
+        clock: systemClock,
+        emit: (e) => void events.push(e),
+        onCoefficientsSaved: () => void (reloads++, watcher.reloadCoefficients()),
+      },
+      { TW_PAGE_VIEWER: VIEWER, TW_PAGE_OPERATOR: OPERATOR },
+    );
     url = (await server.start()).url;
     rt = new AgentRuntime({
       config: cfg,
@@ -108,7 +134,9 @@ describe('live page in a real browser', () => {
     expect(await page.textContent('#login-msg')).toMatch(/not accepted/);
     await page.fill('#token', OPERATOR);
     await page.click('#login-form button');
-    await page.waitForSelector('#view-live:not([hidden]) .card[data-at-ms]:not([data-at-ms=""])', { timeout: 30_000 });
+    await page.waitForSelector('#view-live:not([hidden]) .card[data-at-ms]:not([data-at-ms=""])', {
+      timeout: 30_000,
+    });
     expect(await page.evaluate('sessionStorage.getItem("turnwise.token")')).toBe(OPERATOR);
     pageErrors.length = 0; // the refused token above is logged by the browser as a failed request
     expect(await page.locator('.card').count()).toBe(6);
@@ -117,14 +145,22 @@ describe('live page in a real browser', () => {
     const seen = new Set<string>();
     const t0 = Date.now();
     while (Date.now() - t0 < 3000) {
-      seen.add(await page.locator('.card[data-sensor="DE-V"]').evaluate((el) => `${(el as unknown as El).dataset.atMs}/${(el as unknown as El).dataset.phase}`));
+      seen.add(
+        await page
+          .locator('.card[data-sensor="DE-V"]')
+          .evaluate(
+            (el) => `${(el as unknown as El).dataset.atMs}/${(el as unknown as El).dataset.phase}`,
+          ),
+      );
       await page.waitForTimeout(150);
     }
     expect(seen.size).toBeGreaterThanOrEqual(3);
     // The page shows what the measurement core measures: DE-V near the model's 1x (docs/simulator.md: 2.56 mm/s
     // r.m.s. = 3.62 mm/s pk at 104 deg at day 5 15:00).
     const amp = Number(await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-amp'));
-    const phase = Number(await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-phase'));
+    const phase = Number(
+      await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-phase'),
+    );
     expect(amp).toBeGreaterThan(3.4);
     expect(amp).toBeLessThan(3.85);
     expect(Math.abs(phase - 104)).toBeLessThan(3);
@@ -159,17 +195,29 @@ describe('live page in a real browser', () => {
     /** Fits on the simulated fan what the page says was changed for this run. */
     const applyPlacement = async (run: number) => {
       await page.waitForSelector(`#placement[data-run="${run}"]`);
-      const items = await page.$$eval('#placement li', (lis) => lis.map((li) => ({ ...(li as unknown as El).dataset })));
+      const items = await page.$$eval('#placement li', (lis) =>
+        lis.map((li) => ({ ...(li as unknown as El).dataset })),
+      );
       expect(items.length).toBeGreaterThan(0);
       for (const it of items) {
         if (it.action === 'remove') expect(src.removeWeight(it.id!)).toBe(true);
-        else src.addWeight({ id: it.id!, plane: it.plane!, mass_g: Number(it.massG), radius_mm: Number(it.radiusMm), angle_deg: Number(it.angleDeg), convention: 'with_rotation' });
+        else
+          src.addWeight({
+            id: it.id!,
+            plane: it.plane!,
+            mass_g: Number(it.massG),
+            radius_mm: Number(it.radiusMm),
+            angle_deg: Number(it.angleDeg),
+            convention: 'with_rotation',
+          });
       }
       return items;
     };
     const capture = async (run: number) => {
       await page.click('#capture-start');
-      await page.waitForSelector(`#runs tr[data-run="${run}"][data-captured="yes"]`, { timeout: 60_000 });
+      await page.waitForSelector(`#runs tr[data-run="${run}"][data-captured="yes"]`, {
+        timeout: 60_000,
+      });
     };
     const declare = async () => {
       expect(await page.isDisabled('#declare-run')).toBe(true); // not before the cautions are acknowledged
@@ -182,29 +230,47 @@ describe('live page in a real browser', () => {
     // Trial 1: the suggested trial weight (10 % of the rotor weight on one bearing, common practice).
     await page.waitForSelector('#trial-form');
     expect(await page.textContent('#trial-suggestion')).toMatch(/Suggested: 23 g at 760 mm/);
-    expect(await page.textContent('#cautions')).toMatch(/23\.0 g at 760 mm pulls F = m r ω² = 4\d\d N at 148\d r\/min \(10 % of the rotor weight on one bearing\)/);
-    if (process.env.TURNWISE_SCREENSHOT_DIR) await page.screenshot({ path: join(shots, 'trial-form.png'), fullPage: true });
+    expect(await page.textContent('#cautions')).toMatch(
+      /23\.0 g at 760 mm pulls F = m r ω² = 4\d\d N at 148\d r\/min \(10 % of the rotor weight on one bearing\)/,
+    );
+    if (process.env.TURNWISE_SCREENSHOT_DIR)
+      await page.screenshot({ path: join(shots, 'trial-form.png'), fullPage: true });
     await declare();
-    expect((await applyPlacement(1)).map((i) => `${i.action} ${i.id} ${i.plane}`)).toEqual(['fit T1 back_plate']);
+    expect((await applyPlacement(1)).map((i) => `${i.action} ${i.id} ${i.plane}`)).toEqual([
+      'fit T1 back_plate',
+    ]);
     await capture(1);
-    expect(await page.getAttribute('.trial-check[data-run="1"][data-where="runs"]', 'data-enough')).toBe('yes');
+    expect(
+      await page.getAttribute('.trial-check[data-run="1"][data-where="runs"]', 'data-enough'),
+    ).toBe('yes');
     // Trial 2: in the front shroud, trial 1 taken off (the form's default).
     await page.waitForSelector('#trial-form');
     await declare();
-    expect((await applyPlacement(2)).map((i) => `${i.action} ${i.id} ${i.plane}`)).toEqual(['remove T1 back_plate', 'fit T2 front_shroud']);
+    expect((await applyPlacement(2)).map((i) => `${i.action} ${i.id} ${i.plane}`)).toEqual([
+      'remove T1 back_plate',
+      'fit T2 front_shroud',
+    ]);
     await capture(2);
     await page.click('#solve');
     await page.waitForSelector('#solution[data-ok="yes"]');
     // The scenario's unbalance, turned 180 deg and mirrored into the with-rotation convention
     // (test/sim-balance.test.ts works out the against-rotation truth the same way).
-    const corr = await page.$$eval('#corrections tr[data-plane]', (rows) => rows.map((r) => ({ ...(r as unknown as El).dataset })));
+    const corr = await page.$$eval('#corrections tr[data-plane]', (rows) =>
+      rows.map((r) => ({ ...(r as unknown as El).dataset })),
+    );
     const truth = (parts: [number, number][]) => {
       const re = parts.reduce((s, [m, a]) => s + m * Math.cos((a * Math.PI) / 180), 0);
       const im = parts.reduce((s, [m, a]) => s + m * Math.sin((a * Math.PI) / 180), 0);
       const against = ((Math.atan2(im, re) * 180) / Math.PI + 180 + 360) % 360;
       return { mass_g: Math.hypot(re, im), with_deg: (360 - against) % 360 };
     };
-    const expected: Record<string, { mass_g: number; with_deg: number }> = { back_plate: truth([[55, 200]]), front_shroud: truth([[9, 310], [26.25, 130]]) };
+    const expected: Record<string, { mass_g: number; with_deg: number }> = {
+      back_plate: truth([[55, 200]]),
+      front_shroud: truth([
+        [9, 310],
+        [26.25, 130],
+      ]),
+    };
     for (const c of corr) {
       const t = expected[c.plane!]!;
       expect(Math.abs(Number(c.massG) - t.mass_g)).toBeLessThan(0.1 * t.mass_g);
@@ -214,21 +280,29 @@ describe('live page in a real browser', () => {
     // Fit the corrections with the trial weights off.
     await page.waitForSelector('#correction-form');
     expect(await page.textContent('#correction-form .conv-banner')).toMatch(/WITH rotation/);
-    await page.waitForFunction('document.querySelector("#cautions").textContent.includes("weight in front_shroud")');
+    await page.waitForFunction(
+      'document.querySelector("#cautions").textContent.includes("weight in front_shroud")',
+    );
     // F = m r omega^2 of the proposed weights, shown before the change (about 1000 N for 55 g here).
-    expect(await page.textContent('#cautions')).toMatch(/weight in back_plate: 5\d\.\d g at 760 mm pulls F = m r ω² = \d{3,4} N/);
+    expect(await page.textContent('#cautions')).toMatch(
+      /weight in back_plate: 5\d\.\d g at 760 mm pulls F = m r ω² = \d{3,4} N/,
+    );
     await declare();
     const placed = await applyPlacement(3);
     expect(placed.map((i) => `${i.action} ${i.id}`)).toEqual(['remove T2', 'fit C1', 'fit C2']);
     corrections = placed.filter((i) => i.action === 'fit');
     await capture(3);
     await page.waitForSelector('.residual[data-run="3"][data-where="latest"]');
-    const pcts = await page.$$eval('.residual[data-run="3"][data-where="runs"] tr[data-pct]', (rows) => rows.map((r) => Number((r as unknown as El).dataset.pct)));
+    const pcts = await page.$$eval(
+      '.residual[data-run="3"][data-where="runs"] tr[data-pct]',
+      (rows) => rows.map((r) => Number((r as unknown as El).dataset.pct)),
+    );
     expect(pcts).toHaveLength(4);
     for (const p of pcts) expect(p).toBeLessThan(10);
     await page.evaluate('window.scrollTo(0, 0)');
     await page.screenshot({ path: join(shots, 'workbench.png') });
-    if (process.env.TURNWISE_SCREENSHOT_DIR) await page.screenshot({ path: join(shots, 'workbench-full.png'), fullPage: true });
+    if (process.env.TURNWISE_SCREENSHOT_DIR)
+      await page.screenshot({ path: join(shots, 'workbench-full.png'), fullPage: true });
 
     await page.click('#finish');
     await page.waitForSelector('#view-job .msg-ok a[href^="#report/"]');
@@ -241,8 +315,11 @@ describe('live page in a real browser', () => {
     await page.click('#view-job .msg-ok a[href^="#report/"]');
     await page.waitForSelector('#report');
     const report = (await page.textContent('#report'))!;
-    expect(report).toMatch(/Conventions: weight angles in degrees from the reference mark, measured WITH rotation/);
-    for (const label of ['as found', 'trial 1', 'trial 2', 'check']) expect(report).toContain(label);
+    expect(report).toMatch(
+      /Conventions: weight angles in degrees from the reference mark, measured WITH rotation/,
+    );
+    for (const label of ['as found', 'trial 1', 'trial 2', 'check'])
+      expect(report).toContain(label);
     expect(report).toContain('T. Technician (invented)');
     const pdf = await page.pdf({ path: join(shots, 'report.pdf'), format: 'A4' });
     expect(pdf.length).toBeGreaterThan(20_000);
@@ -266,19 +343,30 @@ describe('live page in a real browser', () => {
     // The weight C1 flies off the simulated fan.
     expect(src.removeWeight('C1')).toBe(true);
     await page.waitForFunction(
-      (m) => Number((globalThis as unknown as { document: { querySelector(q: string): El | null } }).document.querySelector('#forecast tr[data-plane="back_plate"]')?.dataset.massG) > m,
+      (m) =>
+        Number(
+          (
+            globalThis as unknown as { document: { querySelector(q: string): El | null } }
+          ).document.querySelector('#forecast tr[data-plane="back_plate"]')?.dataset.massG,
+        ) > m,
       0.5 * Number(c1.massG),
       { timeout: 30_000 },
     );
     await new Promise((r) => setTimeout(r, 2000)); // a few more windows on the new state
-    const rows = await page.$$eval('#forecast tr[data-plane]', (trs) => trs.map((r) => ({ ...(r as unknown as El).dataset })));
+    const rows = await page.$$eval('#forecast tr[data-plane]', (trs) =>
+      trs.map((r) => ({ ...(r as unknown as El).dataset })),
+    );
     const back = rows.find((r) => r.plane === 'back_plate')!;
     const front = rows.find((r) => r.plane === 'front_shroud')!;
-    console.log(`thrown C1 ${Number(c1.massG).toFixed(1)} g at ${Number(c1.angleDeg).toFixed(0)} deg; forecast back_plate ${Number(back.massG).toFixed(1)} g at ${Number(back.angleDeg).toFixed(0)} deg, front_shroud ${Number(front.massG).toFixed(1)} g`);
+    console.log(
+      `thrown C1 ${Number(c1.massG).toFixed(1)} g at ${Number(c1.angleDeg).toFixed(0)} deg; forecast back_plate ${Number(back.massG).toFixed(1)} g at ${Number(back.angleDeg).toFixed(0)} deg, front_shroud ${Number(front.massG).toFixed(1)} g`,
+    );
     // The replacement: C1's mass and angle (same convention, same radius), the other plane about untouched.
     expect(back.radiusMm).toBe('760');
     expect(Math.abs(Number(back.massG) / Number(c1.massG) - 1)).toBeLessThan(0.15);
-    expect(Math.abs(((Number(back.angleDeg) - Number(c1.angleDeg) + 540) % 360) - 180)).toBeLessThan(10);
+    expect(
+      Math.abs(((Number(back.angleDeg) - Number(c1.angleDeg) + 540) % 360) - 180),
+    ).toBeLessThan(10);
     expect(Number(front.massG)).toBeLessThan(0.25 * Number(c1.massG));
     expect(pageErrors).toEqual([]);
   }, 60_000);
@@ -290,10 +378,14 @@ describe('live page in a real browser', () => {
       await viewer.fill('#token', VIEWER);
       await viewer.click('#login-form button');
       await viewer.waitForSelector('#role');
-      await viewer.waitForFunction('document.querySelector("#role").textContent.includes("viewer: read only")');
+      await viewer.waitForFunction(
+        'document.querySelector("#role").textContent.includes("viewer: read only")',
+      );
       await viewer.click('nav a[data-nav=job]');
       await viewer.waitForSelector('#view-job .msg-warn');
-      expect(await viewer.textContent('#view-job')).toMatch(/No balancing job is open.*viewer token: an operator token is needed/is);
+      expect(await viewer.textContent('#view-job')).toMatch(
+        /No balancing job is open.*viewer token: an operator token is needed/is,
+      );
       expect(await viewer.locator('#view-job button.primary').count()).toBe(0);
       await viewer.click('nav a[data-nav=records]');
       await viewer.waitForSelector('#records tr[data-job]');

@@ -42,14 +42,24 @@ const ENV = { TW_VIEWER: VIEWER, TW_OPERATOR: OPERATOR };
 function config(stateDir: string, live: Record<string, unknown> = {}): Config {
   return validateConfig(
     {
-      machine: { id: 'test-fan', name: 'Test fan (invented)', group: 2, support: 'rigid', rated_rpm: 1500 },
+      machine: {
+        id: 'test-fan',
+        name: 'Test fan (invented)',
+        group: 2,
+        support: 'rigid',
+        rated_rpm: 1500,
+      },
       tach: { channel: 2, trigger_v: 2.5 },
       sensors: [
         { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
         { id: 'DE-A', channel: 1, bearing: 'DE', direction: 'axial', sensitivity_mv_per_g: 100 },
       ],
       state_dir: stateDir,
-      balance: { rotor_mass_kg: 400, grade_mm_s: 6.3, planes: { P1: { radius_mm: 500, max_mass_g: 150 } } },
+      balance: {
+        rotor_mass_kg: 400,
+        grade_mm_s: 6.3,
+        planes: { P1: { radius_mm: 500, max_mass_g: 150 } },
+      },
       live: {
         bind: '127.0.0.1',
         port: 0,
@@ -73,7 +83,9 @@ function config(stateDir: string, live: Record<string, unknown> = {}): Config {
  * W = -V0 / H (influence-coefficient method, textbook): 4 / 0.05 = 80 g at 100 - 30 + 180 = 250 deg.
  */
 const D2R = Math.PI / 180;
-function rotor1x(weights: ReadonlyArray<{ mass_g: number; angle_deg: number; radius_mm: number }>): [number, number] {
+function rotor1x(
+  weights: ReadonlyArray<{ mass_g: number; angle_deg: number; radius_mm: number }>,
+): [number, number] {
   let re = 4 * Math.cos(100 * D2R);
   let im = 4 * Math.sin(100 * D2R);
   for (const w of weights) {
@@ -92,8 +104,30 @@ function frame(v: [number, number]): LiveFrame {
     revolutions_weight: 32,
     age_s: 0.02,
     channels: [
-      { id: 'DE-V', orders: { '1': { order: 1, freq_hz: 25, amp_pk_mm_s: v[0], amp_rms_mm_s: v[0] / Math.SQRT2, phase_deg: v[1] } } },
-      { id: 'DE-A', orders: { '1': { order: 1, freq_hz: 25, amp_pk_mm_s: 0.3, amp_rms_mm_s: 0.3 / Math.SQRT2, phase_deg: 45 } } },
+      {
+        id: 'DE-V',
+        orders: {
+          '1': {
+            order: 1,
+            freq_hz: 25,
+            amp_pk_mm_s: v[0],
+            amp_rms_mm_s: v[0] / Math.SQRT2,
+            phase_deg: v[1],
+          },
+        },
+      },
+      {
+        id: 'DE-A',
+        orders: {
+          '1': {
+            order: 1,
+            freq_hz: 25,
+            amp_pk_mm_s: 0.3,
+            amp_rms_mm_s: 0.3 / Math.SQRT2,
+            phase_deg: 45,
+          },
+        },
+      },
     ],
   };
 }
@@ -109,14 +143,30 @@ describe('live page server', () => {
   const clock = new ManualClock(Date.UTC(2026, 2, 1, 10, 0, 0));
   let onRotor: Array<{ mass_g: number; angle_deg: number; radius_mm: number }> = [];
 
-  const call = async (method: string, path: string, token: string | null, body?: unknown, headers: Record<string, string> = {}) => {
+  const call = async (
+    method: string,
+    path: string,
+    token: string | null,
+    body?: unknown,
+    headers: Record<string, string> = {},
+  ) => {
     const res = await fetch(base + path, {
       method,
-      headers: { ...(token ? { Authorization: `Bearer ${token}` } : {}), ...(body !== undefined ? { 'Content-Type': 'application/json' } : {}), ...headers },
-      ...(body !== undefined ? { body: typeof body === 'string' ? body : JSON.stringify(body) } : {}),
+      headers: {
+        ...(token ? { Authorization: `Bearer ${token}` } : {}),
+        ...(body !== undefined ? { 'Content-Type': 'application/json' } : {}),
+        ...headers,
+      },
+      ...(body !== undefined
+        ? { body: typeof body === 'string' ? body : JSON.stringify(body) }
+        : {}),
     });
     const text = await res.text();
-    return { status: res.status, headers: res.headers, body: text ? (JSON.parse(text) as any) : null };
+    return {
+      status: res.status,
+      headers: res.headers,
+      body: text ? (JSON.parse(text) as any) : null,
+    };
   };
   /** Feeds live frames from the rotor with the weights on it until the running capture ends. */
   const runCapture = async (jobId: string) => {
@@ -140,7 +190,16 @@ describe('live page server', () => {
     logger = new MemoryLogger();
     events = [];
     const cfg = config(dir);
-    server = LiveServer.fromConfig(cfg, { logger, clock, emit: (e) => void events.push(e), onCoefficientsSaved: () => void reloads++ }, ENV);
+    server = LiveServer.fromConfig(
+      cfg,
+      {
+        logger,
+        clock,
+        emit: (e) => void events.push(e),
+        onCoefficientsSaved: () => void reloads++,
+      },
+      ENV,
+    );
     const { port } = await server.start();
     base = `http://127.0.0.1:${port}`;
   });
@@ -170,62 +229,122 @@ describe('live page server', () => {
     expect((await call('GET', '/api/live', VIEWER.slice(0, -1))).status).toBe(401);
     const s = await call('GET', '/api/session', VIEWER);
     expect(s.status).toBe(200);
-    expect(s.body).toMatchObject({ role: 'viewer', token_name: 'control-room', may_act: false, asset: 'test-fan', units: 'mm/s' });
-    expect((await call('GET', '/api/session', OPERATOR)).body).toMatchObject({ role: 'operator', token_name: 'crew', may_act: true });
+    expect(s.body).toMatchObject({
+      role: 'viewer',
+      token_name: 'control-room',
+      may_act: false,
+      asset: 'test-fan',
+      units: 'mm/s',
+    });
+    expect((await call('GET', '/api/session', OPERATOR)).body).toMatchObject({
+      role: 'operator',
+      token_name: 'crew',
+      may_act: true,
+    });
   });
 
   it('lets a viewer look but not act, and logs the refusal without any token', async () => {
-    const r = await call('POST', '/api/jobs', VIEWER, { kind: 'single_plane', by: 'A. Ruiz (invented)' });
+    const r = await call('POST', '/api/jobs', VIEWER, {
+      kind: 'single_plane',
+      by: 'A. Ruiz (invented)',
+    });
     expect(r.status).toBe(403);
     expect(r.body.error.message).toMatch(/"control-room" is a viewer token/);
     expect(r.body.error.hint).toMatch(/operator token/);
-    expect(logger.lines.some((l) => l.msg.includes('refused to a viewer token') && l.fields.token === 'control-room')).toBe(true);
+    expect(
+      logger.lines.some(
+        (l) => l.msg.includes('refused to a viewer token') && l.fields.token === 'control-room',
+      ),
+    ).toBe(true);
     expect(logger.lines.some((l) => l.msg.includes('missing or wrong token'))).toBe(true);
   });
 
   it('refuses bad requests with the field, what was found and what to do', async () => {
-    const bad = await call('POST', '/api/jobs', OPERATOR, { kind: 'three_plane', by: '', planes: [{ name: 'P1', radius_mm: -5 }], colour: 'red' });
+    const bad = await call('POST', '/api/jobs', OPERATOR, {
+      kind: 'three_plane',
+      by: '',
+      planes: [{ name: 'P1', radius_mm: -5 }],
+      colour: 'red',
+    });
     expect(bad.status).toBe(400);
     expect(bad.body.error.code).toBe('invalid_request');
     const problems: string[] = bad.body.error.problems;
     expect(problems.some((p) => p.startsWith('kind:') && p.includes('"three_plane"'))).toBe(true);
     expect(problems.some((p) => p.startsWith('by: must not be empty'))).toBe(true);
-    expect(problems.some((p) => p.startsWith('planes[0].radius_mm: must be above 0 (found -5)'))).toBe(true);
+    expect(
+      problems.some((p) => p.startsWith('planes[0].radius_mm: must be above 0 (found -5)')),
+    ).toBe(true);
     expect(problems.some((p) => p.includes('unknown key(s) "colour"'))).toBe(true);
     expect(bad.body.error.hint).toMatch(/fix the fields named/);
 
-    const wrongSensor = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)', sensors: ['DE-X'] });
+    const wrongSensor = await call('POST', '/api/jobs', OPERATOR, {
+      kind: 'single_plane',
+      by: 'A. Ruiz (invented)',
+      sensors: ['DE-X'],
+    });
     expect(wrongSensor.status).toBe(400);
-    expect(wrongSensor.body.error.problems[0]).toMatch(/sensors\[0\]: "DE-X" is not a sensor of this machine \(DE-V, DE-A\)/);
-    const twoPlanes = await call('POST', '/api/jobs', OPERATOR, { kind: 'two_plane', by: 'A. Ruiz (invented)' });
+    expect(wrongSensor.body.error.problems[0]).toMatch(
+      /sensors\[0\]: "DE-X" is not a sensor of this machine \(DE-V, DE-A\)/,
+    );
+    const twoPlanes = await call('POST', '/api/jobs', OPERATOR, {
+      kind: 'two_plane',
+      by: 'A. Ruiz (invented)',
+    });
     expect(twoPlanes.status).toBe(400);
-    expect(twoPlanes.body.error.message).toMatch(/two-plane job needs 2 plane\(s\), 1 given \(from the config's balance.planes\)/);
+    expect(twoPlanes.body.error.message).toMatch(
+      /two-plane job needs 2 plane\(s\), 1 given \(from the config's balance.planes\)/,
+    );
 
     const notJson = await call('POST', '/api/jobs', OPERATOR, '{"kind": ', {});
     expect(notJson.status).toBe(400);
     expect(notJson.body.error.code).toBe('invalid_json');
-    const text = await fetch(base + '/api/jobs', { method: 'POST', headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'text/plain' }, body: 'kind=x' });
+    const text = await fetch(base + '/api/jobs', {
+      method: 'POST',
+      headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'text/plain' },
+      body: 'kind=x',
+    });
     expect(text.status).toBe(415);
-    const huge = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)', notes: 'x'.repeat(70 * 1024) });
+    const huge = await call('POST', '/api/jobs', OPERATOR, {
+      kind: 'single_plane',
+      by: 'A. Ruiz (invented)',
+      notes: 'x'.repeat(70 * 1024),
+    });
     expect(huge.status).toBe(413);
     expect((await call('GET', '/api/nothing', VIEWER)).status).toBe(404);
     expect((await call('GET', '/api/tools/split', VIEWER)).status).toBe(405);
-    const split = await call('POST', '/api/tools/split', VIEWER, { mass_g: 62.4, angle_deg: 250, radius_mm: 355.6, positions: { count: 9, first_deg: 0, radius_mm: 406.4 } });
+    const split = await call('POST', '/api/tools/split', VIEWER, {
+      mass_g: 62.4,
+      angle_deg: 250,
+      radius_mm: 355.6,
+      positions: { count: 9, first_deg: 0, radius_mm: 406.4 },
+    });
     // Issue 6's split contract, by the law of sines by hand: 42.47 g at position 6, 14.75 g at position 7.
     expect(split.status).toBe(200);
     expect(split.body.weights.map((w: { position: number }) => w.position)).toEqual([6, 7]);
     expect(split.body.weights[0].mass_g).toBeCloseTo(42.47, 2);
     expect(split.body.weights[1].mass_g).toBeCloseTo(14.75, 2);
-    const badSplit = await call('POST', '/api/tools/split', VIEWER, { mass_g: 10, angle_deg: 0, positions: { count: 2 } });
+    const badSplit = await call('POST', '/api/tools/split', VIEWER, {
+      mass_g: 10,
+      angle_deg: 0,
+      positions: { count: 2 },
+    });
     expect(badSplit.status).toBe(400);
     expect(badSplit.body.error.message).toMatch(/positions\.count: needs at least 3 positions/);
     // ISO 21940-11 (from memory): 500 kg, 1480 r/min, G6.3 -> about 20 300 g mm.
-    const grade = await call('POST', '/api/tools/grade', VIEWER, { rotor_mass_kg: 500, speed_rpm: 1480, grade: 'G6.3' });
+    const grade = await call('POST', '/api/tools/grade', VIEWER, {
+      rotor_mass_kg: 500,
+      speed_rpm: 1480,
+      grade: 'G6.3',
+    });
     expect(grade.body.permissible_g_mm).toBeGreaterThan(20250);
     expect(grade.body.permissible_g_mm).toBeLessThan(20350);
     // F = m r omega^2 (textbook; own computation): 50 g at 600 mm at 1480 r/min pulls about 720 N; the trial rule
     // (common practice: trial force about 10 % of the rotor weight on the nearest bearing) inverts it.
-    const trial = await call('POST', '/api/tools/trial-weight', VIEWER, { bearing_load_kg: 720 / 9.80665 / 0.1, radius_mm: 600, speed_rpm: 1480 });
+    const trial = await call('POST', '/api/tools/trial-weight', VIEWER, {
+      bearing_load_kg: 720 / 9.80665 / 0.1,
+      radius_mm: 600,
+      speed_rpm: 1480,
+    });
     expect(trial.body.mass_g).toBeGreaterThan(49.5);
     expect(trial.body.mass_g).toBeLessThan(50.5);
   });
@@ -234,7 +353,9 @@ describe('live page server', () => {
     const url = base.replace('http', 'ws') + '/ws';
     const refused = new WebSocket(url);
     const code = await new Promise<number>((resolve) => {
-      refused.on('open', () => refused.send(JSON.stringify({ type: 'hello', token: 'wrong-token-wrong-token' })));
+      refused.on('open', () =>
+        refused.send(JSON.stringify({ type: 'hello', token: 'wrong-token-wrong-token' })),
+      );
       refused.on('close', (c) => resolve(c));
     });
     expect(code).toBe(4401);
@@ -253,26 +374,54 @@ describe('live page server', () => {
     expect(got[0].session.role).toBe('viewer');
     t += 500;
     server.onLive(frame([4, 100]), t);
-    const live = await new Promise<any>((resolve) => ws.once('message', (d) => resolve(JSON.parse(String(d)))));
+    const live = await new Promise<any>((resolve) =>
+      ws.once('message', (d) => resolve(JSON.parse(String(d)))),
+    );
     expect(live.type).toBe('live');
-    expect(live.live.channels[0]).toMatchObject({ id: 'DE-V', one_x: { amp_pk_mm_s: 4, phase_deg: 100 } });
+    expect(live.live.channels[0]).toMatchObject({
+      id: 'DE-V',
+      one_x: { amp_pk_mm_s: 4, phase_deg: 100 },
+    });
     ws.close();
 
     const header = new WebSocket(url, { headers: { Authorization: `Bearer ${OPERATOR}` } });
-    const first = await new Promise<any>((resolve) => header.once('message', (d) => resolve(JSON.parse(String(d)))));
+    const first = await new Promise<any>((resolve) =>
+      header.once('message', (d) => resolve(JSON.parse(String(d)))),
+    );
     expect(first.session.role).toBe('operator');
     header.close();
   });
 
   it('runs a single-plane job through the API to the correction W = -V0/H, checked, recorded and evented', async () => {
-    const created = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)', sensors: ['DE-V'] });
+    const created = await call('POST', '/api/jobs', OPERATOR, {
+      kind: 'single_plane',
+      by: 'A. Ruiz (invented)',
+      sensors: ['DE-V'],
+    });
     expect(created.status).toBe(200);
     const job = created.body.view.job;
     const id = job.job_id as string;
-    expect(job.setup).toMatchObject({ kind: 'single_plane', angle_convention: 'against_rotation', planes: [{ name: 'P1', radius_mm: 500, max_mass_g: 150 }], rotor_mass_kg: 400, grade_mm_s: 6.3 });
+    expect(job.setup).toMatchObject({
+      kind: 'single_plane',
+      angle_convention: 'against_rotation',
+      planes: [{ name: 'P1', radius_mm: 500, max_mass_g: 150 }],
+      rotor_mass_kg: 400,
+      grade_mm_s: 6.3,
+    });
     expect(created.body.view.convention).toMatch(/AGAINST rotation/);
-    expect((await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'B. Olsen (invented)' })).status).toBe(409);
-    const early = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'trial', add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], acknowledge_cautions: true });
+    expect(
+      (
+        await call('POST', '/api/jobs', OPERATOR, {
+          kind: 'single_plane',
+          by: 'B. Olsen (invented)',
+        })
+      ).status,
+    ).toBe(409);
+    const early = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
+      purpose: 'trial',
+      add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }],
+      acknowledge_cautions: true,
+    });
     expect(early.status).toBe(409);
     expect(early.body.error.message).toMatch(/run 0 \(as found\) is declared but not measured yet/);
 
@@ -283,23 +432,45 @@ describe('live page server', () => {
     expect(view.job.runs[0].capture.readings['DE-V'].phase_deg).toBeCloseTo(100, 9);
     expect(view.step).toBe('trial');
     // Trial suggestion (common practice): 0.1 x 200 kg x g / (0.5 m x (157.08 rad/s)^2) = 15.9 g.
-    expect(view.trial_suggestion[0].mass_g).toBeCloseTo((0.1 * 200 * 9.80665) / (0.5 * (1500 * Math.PI / 30) ** 2) * 1000, 6);
+    expect(view.trial_suggestion[0].mass_g).toBeCloseTo(
+      ((0.1 * 200 * 9.80665) / (0.5 * ((1500 * Math.PI) / 30) ** 2)) * 1000,
+      6,
+    );
 
-    const noAck = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'trial', add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }] });
+    const noAck = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
+      purpose: 'trial',
+      add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }],
+    });
     expect(noAck.status).toBe(400);
     expect(noAck.body.error.message).toMatch(/safety cautions were not acknowledged/);
-    const tooHeavy = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'trial', add: [{ plane: 'P1', mass_g: 200, angle_deg: 0 }], acknowledge_cautions: true });
+    const tooHeavy = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
+      purpose: 'trial',
+      add: [{ plane: 'P1', mass_g: 200, angle_deg: 0 }],
+      acknowledge_cautions: true,
+    });
     expect(tooHeavy.status).toBe(400);
-    expect(tooHeavy.body.error.problems[0]).toMatch(/add\[0\]\.mass_g: 200\.0 g is more than the 150\.0 g plane P1 takes; split it/);
-    const wrongPlane = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'trial', add: [{ plane: 'P9', mass_g: 50, angle_deg: 0 }], acknowledge_cautions: true });
+    expect(tooHeavy.body.error.problems[0]).toMatch(
+      /add\[0\]\.mass_g: 200\.0 g is more than the 150\.0 g plane P1 takes; split it/,
+    );
+    const wrongPlane = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
+      purpose: 'trial',
+      add: [{ plane: 'P9', mass_g: 50, angle_deg: 0 }],
+      acknowledge_cautions: true,
+    });
     expect(wrongPlane.body.error.problems[0]).toMatch(/"P9" is not a plane of this job \(P1\)/);
 
-    const declared = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'trial', add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }], acknowledge_cautions: true });
+    const declared = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
+      purpose: 'trial',
+      add: [{ plane: 'P1', mass_g: 50, angle_deg: 0 }],
+      acknowledge_cautions: true,
+    });
     expect(declared.status).toBe(200);
     const run1 = declared.body.view.job.runs[1];
-    expect(run1.weights).toEqual([{ id: 'T1', role: 'trial', plane: 'P1', mass_g: 50, angle_deg: 0, radius_mm: 500 }]);
+    expect(run1.weights).toEqual([
+      { id: 'T1', role: 'trial', plane: 'P1', mass_g: 50, angle_deg: 0, radius_mm: 500 },
+    ]);
     // F = m r omega^2 = 0.05 kg x 0.5 m x (157.08 rad/s)^2 = 616.9 N.
-    expect(run1.changes[0].force_n).toBeCloseTo(0.05 * 0.5 * (1500 * Math.PI / 30) ** 2, 6);
+    expect(run1.changes[0].force_n).toBeCloseTo(0.05 * 0.5 * ((1500 * Math.PI) / 30) ** 2, 6);
     onRotor = [{ mass_g: 50, angle_deg: 0, radius_mm: 500 }];
     await call('POST', `/api/jobs/${id}/capture`, OPERATOR, {});
     view = await runCapture(id);
@@ -318,13 +489,25 @@ describe('live page server', () => {
     const dy = 80 * Math.sin(250 * D2R);
     expect(r.corrections_trials_left_in[0].mass_g).toBeCloseTo(Math.hypot(dx, dy), 6);
     const proposals = solved.body.view.proposals;
-    expect(proposals.map((p: { title: string }) => p.title)).toEqual(['take the trial weights off and fit the corrections', 'leave the trial weights on and add these']);
+    expect(proposals.map((p: { title: string }) => p.title)).toEqual([
+      'take the trial weights off and fit the corrections',
+      'leave the trial weights on and add these',
+    ]);
 
     // Fit a little less than asked (what the technician had): 76 g, at 600 mm instead of 500 (x 500/600 = 63.3 g).
-    const check = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, { purpose: 'check', remove: 'all_trials', add: [{ plane: 'P1', mass_g: 76 * 500 / 600, angle_deg: 250, radius_mm: 600 }], acknowledge_cautions: true });
+    const check = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
+      purpose: 'check',
+      remove: 'all_trials',
+      add: [{ plane: 'P1', mass_g: (76 * 500) / 600, angle_deg: 250, radius_mm: 600 }],
+      acknowledge_cautions: true,
+    });
     expect(check.status).toBe(200);
-    expect(check.body.view.job.runs[2].changes.map((c: { action: string; weight: { id: string } }) => `${c.action} ${c.weight.id}`)).toEqual(['remove T1', 'fit C1']);
-    onRotor = [{ mass_g: 76 * 500 / 600, angle_deg: 250, radius_mm: 600 }];
+    expect(
+      check.body.view.job.runs[2].changes.map(
+        (c: { action: string; weight: { id: string } }) => `${c.action} ${c.weight.id}`,
+      ),
+    ).toEqual(['remove T1', 'fit C1']);
+    onRotor = [{ mass_g: (76 * 500) / 600, angle_deg: 250, radius_mm: 600 }];
     await call('POST', `/api/jobs/${id}/capture`, OPERATOR, {});
     view = await runCapture(id);
     const res = view.job.runs[2].residual;
@@ -332,13 +515,16 @@ describe('live page server', () => {
     expect(res.sensors[0].pct_of_as_found).toBeCloseTo(5, 6);
     expect(res.unbalance_g_mm.P1).toBeCloseTo(2000, 3);
     // ISO 21940-11 (from memory): U_per = 1000 G m / omega = 1000 x 6.3 x 400 / 157.08 = 16 043 g mm.
-    expect(res.permissible_g_mm).toBeCloseTo((1000 * 6.3 * 400) / (1500 * Math.PI / 30), 3);
+    expect(res.permissible_g_mm).toBeCloseTo((1000 * 6.3 * 400) / ((1500 * Math.PI) / 30), 3);
     expect(res.within_grade).toBe(true);
     expect(res.trim[0].mass_g).toBeCloseTo(4, 6);
     expect(res.trim[0].angle_deg).toBeCloseTo(250, 6);
     expect(view.step).toBe('check');
 
-    const finished = await call('POST', `/api/jobs/${id}/finish`, OPERATOR, { note: 'within G6.3', by: 'A. Ruiz (invented)' });
+    const finished = await call('POST', `/api/jobs/${id}/finish`, OPERATOR, {
+      note: 'within G6.3',
+      by: 'A. Ruiz (invented)',
+    });
     expect(finished.status).toBe(200);
     expect(finished.body.view.job.status).toBe('finished');
     expect(finished.body.view.job.coefficients).toEqual({ saved: true, reason: null });
@@ -353,18 +539,43 @@ describe('live page server', () => {
     const exported = await call('GET', `/api/jobs/${id}/export`, VIEWER);
     expect(exported.headers.get('content-disposition')).toBe(`attachment; filename="${id}.json"`);
     expect(exported.body.workbench.log.map((e: { action: string }) => e.action)).toEqual([
-      'job_started', 'capture_started', 'run_captured', 'weights_changed', 'capture_started', 'run_captured', 'job_solved', 'weights_changed', 'capture_started', 'run_captured', 'job_finished',
+      'job_started',
+      'capture_started',
+      'run_captured',
+      'weights_changed',
+      'capture_started',
+      'run_captured',
+      'job_solved',
+      'weights_changed',
+      'capture_started',
+      'run_captured',
+      'job_finished',
     ]);
-    expect((await call('POST', `/api/jobs/${id}/abandon`, OPERATOR, { reason: 'x' })).status).toBe(409);
+    expect((await call('POST', `/api/jobs/${id}/abandon`, OPERATOR, { reason: 'x' })).status).toBe(
+      409,
+    );
 
     // Every action is evented in the common envelope, with unique ids, after the record was saved.
     const ours = events.filter((e) => e.job_id === id);
     expect(ours.map((e) => e.type)).toEqual([
-      'balancing_job_started', 'balancing_capture_started', 'balancing_run_captured', 'balancing_weights_changed', 'balancing_capture_started', 'balancing_run_captured',
-      'balancing_job_solved', 'balancing_weights_changed', 'balancing_capture_started', 'balancing_run_captured', 'balancing_job_finished',
+      'balancing_job_started',
+      'balancing_capture_started',
+      'balancing_run_captured',
+      'balancing_weights_changed',
+      'balancing_capture_started',
+      'balancing_run_captured',
+      'balancing_job_solved',
+      'balancing_weights_changed',
+      'balancing_capture_started',
+      'balancing_run_captured',
+      'balancing_job_finished',
     ]);
     for (const e of ours) {
-      expect(e).toMatchObject({ asset: 'test-fan', severity: 'info', by: { token: 'crew', role: 'operator' } });
+      expect(e).toMatchObject({
+        asset: 'test-fan',
+        severity: 'info',
+        by: { token: 'crew', role: 'operator' },
+      });
       expect(Date.parse(e.ts)).toBe(clock.now());
     }
     expect(new Set(ours.map((e) => e.id)).size).toBe(ours.length);
@@ -372,20 +583,50 @@ describe('live page server', () => {
     const logText = JSON.stringify(logger.lines);
     expect(logText).not.toContain(VIEWER);
     expect(logText).not.toContain(OPERATOR);
-    expect(logger.lines.some((l) => l.msg.includes('balancing: finished') && l.fields.by === 'A. Ruiz (invented)' && l.fields.token === 'crew')).toBe(true);
+    expect(
+      logger.lines.some(
+        (l) =>
+          l.msg.includes('balancing: finished') &&
+          l.fields.by === 'A. Ruiz (invented)' &&
+          l.fields.token === 'crew',
+      ),
+    ).toBe(true);
     const list = await call('GET', '/api/jobs', VIEWER);
-    expect(list.body.jobs[0]).toMatchObject({ job_id: id, status: 'finished', kind: 'single_plane', created_by: 'A. Ruiz (invented)' });
+    expect(list.body.jobs[0]).toMatchObject({
+      job_id: id,
+      status: 'finished',
+      kind: 'single_plane',
+      created_by: 'A. Ruiz (invented)',
+    });
   });
 
   it('reopens a job left open when the agent starts again, and answers the plant command', async () => {
-    const created = await call('POST', '/api/jobs', OPERATOR, { kind: 'single_plane', by: 'A. Ruiz (invented)' });
+    const created = await call('POST', '/api/jobs', OPERATOR, {
+      kind: 'single_plane',
+      by: 'A. Ruiz (invented)',
+    });
     const id = created.body.view.job.job_id;
-    const second = LiveServer.fromConfig(config(dir), { logger: new MemoryLogger(), clock, emit: () => undefined }, ENV);
+    const second = LiveServer.fromConfig(
+      config(dir),
+      { logger: new MemoryLogger(), clock, emit: () => undefined },
+      ENV,
+    );
     await second.workbench.restore();
     expect(second.workbench.activeJob?.job_id).toBe(id);
-    expect(await second.workbench.sessionCommand({ action: 'status' })).toMatchObject({ job_id: id, status: 'open', step: 'capture' });
-    await expect(second.workbench.sessionCommand({ action: 'start', params: { kind: 'single_plane', by: 'x' } })).rejects.toThrow(/still open/);
-    expect(await second.workbench.sessionCommand({ action: 'abort', params: { reason: 'shift ended' } })).toMatchObject({ job_id: id, status: 'abandoned' });
+    expect(await second.workbench.sessionCommand({ action: 'status' })).toMatchObject({
+      job_id: id,
+      status: 'open',
+      step: 'capture',
+    });
+    await expect(
+      second.workbench.sessionCommand({
+        action: 'start',
+        params: { kind: 'single_plane', by: 'x' },
+      }),
+    ).rejects.toThrow(/still open/);
+    expect(
+      await second.workbench.sessionCommand({ action: 'abort', params: { reason: 'shift ended' } }),
+    ).toMatchObject({ job_id: id, status: 'abandoned' });
     await server.workbench.restore(); // the first server's copy is now out of date on disk
   });
 });
@@ -408,39 +649,87 @@ describe('live access tokens and config', () => {
     const dir = mkdtempSync(join(tmpdir(), 'tw-live-tok-'));
     try {
       const cfg = (tokens: unknown[]) => liveSchema.parse({ tokens });
-      expect(userText(() => resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', env: 'T1' }]), { T1: 'short' }))).toMatch(/live\.tokens\[0\].*5 characters; at least 16.*make-token/s);
-      expect(() => resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', env: 'T1' }, { name: 'b', role: 'operator', env: 'T2' }]), { T1: 'x'.repeat(16), T2: 'x'.repeat(16) })).toThrow(/"b" has the same token as "a"/);
-      expect(() => resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', env: 'T1' }]), {})).toThrow(/T1 is not set/);
+      expect(
+        userText(() =>
+          resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', env: 'T1' }]), { T1: 'short' }),
+        ),
+      ).toMatch(/live\.tokens\[0\].*5 characters; at least 16.*make-token/s);
+      expect(() =>
+        resolveLiveTokens(
+          cfg([
+            { name: 'a', role: 'viewer', env: 'T1' },
+            { name: 'b', role: 'operator', env: 'T2' },
+          ]),
+          { T1: 'x'.repeat(16), T2: 'x'.repeat(16) },
+        ),
+      ).toThrow(/"b" has the same token as "a"/);
+      expect(() => resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', env: 'T1' }]), {})).toThrow(
+        /T1 is not set/,
+      );
       const f = join(dir, 'tok');
       writeFileSync(f, 'y'.repeat(32) + '\n', { mode: 0o644 });
-      expect(userText(() => resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', file: f }]), {}))).toMatch(/open to group or others.*chmod 600/s);
+      expect(
+        userText(() => resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', file: f }]), {})),
+      ).toMatch(/open to group or others.*chmod 600/s);
       chmodSync(f, 0o600);
-      expect(resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', file: f }]), {})[0]!.secret.reveal().toString()).toBe('y'.repeat(32));
+      expect(
+        resolveLiveTokens(cfg([{ name: 'a', role: 'viewer', file: f }]), {})[0]!
+          .secret.reveal()
+          .toString(),
+      ).toBe('y'.repeat(32));
     } finally {
       rmSync(dir, { recursive: true, force: true });
     }
-    expect(liveSchema.safeParse({ tokens: [{ name: 'a', role: 'viewer', env: 'A', file: 'f' }] }).success).toBe(false);
+    expect(
+      liveSchema.safeParse({ tokens: [{ name: 'a', role: 'viewer', env: 'A', file: 'f' }] })
+        .success,
+    ).toBe(false);
     expect(liveSchema.safeParse({ tokens: [] }).success).toBe(false);
-    expect(liveSchema.safeParse({ tokens: [{ name: 'a', role: 'admin', env: 'A' }] }).success).toBe(false);
-    const dup = liveSchema.safeParse({ tokens: [{ name: 'a', role: 'viewer', env: 'A' }, { name: 'a', role: 'operator', env: 'B' }] });
+    expect(liveSchema.safeParse({ tokens: [{ name: 'a', role: 'admin', env: 'A' }] }).success).toBe(
+      false,
+    );
+    const dup = liveSchema.safeParse({
+      tokens: [
+        { name: 'a', role: 'viewer', env: 'A' },
+        { name: 'a', role: 'operator', env: 'B' },
+      ],
+    });
     expect(dup.success).toBe(false);
     expect(dup.error!.issues[0]!.message).toMatch(/name "a" is already used by tokens\[0\]/);
   });
 
   it('says which port is taken', async () => {
     const dir = mkdtempSync(join(tmpdir(), 'tw-live-port-'));
-    const a = LiveServer.fromConfig(config(dir), { logger: new MemoryLogger(), clock: new ManualClock(), emit: () => undefined }, ENV);
+    const a = LiveServer.fromConfig(
+      config(dir),
+      { logger: new MemoryLogger(), clock: new ManualClock(), emit: () => undefined },
+      ENV,
+    );
     const { port } = await a.start();
-    const b = LiveServer.fromConfig(config(dir, { port }), { logger: new MemoryLogger(), clock: new ManualClock(), emit: () => undefined }, ENV);
-    await expect(b.start()).rejects.toThrow(new RegExp(`port ${port} is already in use on 127.0.0.1`));
+    const b = LiveServer.fromConfig(
+      config(dir, { port }),
+      { logger: new MemoryLogger(), clock: new ManualClock(), emit: () => undefined },
+      ENV,
+    );
+    await expect(b.start()).rejects.toThrow(
+      new RegExp(`port ${port} is already in use on 127.0.0.1`),
+    );
     await a.stop();
     rmSync(dir, { recursive: true, force: true });
   });
 });
 
-describe('the page\'s own JavaScript', () => {
+describe("the page's own JavaScript", () => {
   it('type-checks against the DOM library (agent/live/page/tsconfig.json)', () => {
-    const r = spawnSync(process.execPath, [join('node_modules', 'typescript', 'bin', 'tsc'), '-p', join('agent', 'live', 'page', 'tsconfig.json')], { encoding: 'utf8', timeout: 120_000 });
+    const r = spawnSync(
+      process.execPath,
+      [
+        join('node_modules', 'typescript', 'bin', 'tsc'),
+        '-p',
+        join('agent', 'live', 'page', 'tsconfig.json'),
+      ],
+      { encoding: 'utf8', timeout: 120_000 },
+    );
     expect(r.stdout + r.stderr).toBe('');
     expect(r.status).toBe(0);
   });
@@ -485,7 +774,9 @@ describe('turnwise live (command line)', () => {
       chmodSync(tok, 0o640);
       const open = runCli(['live', 'check', '--config', cfg]);
       expect(open.code).toBe(2);
-      expect(open.stderr).toMatch(/live\.tokens\[0\]\.file: secret file .* is open to group or others/);
+      expect(open.stderr).toMatch(
+        /live\.tokens\[0\]\.file: secret file .* is open to group or others/,
+      );
       expect(open.stderr).toMatch(/chmod 600/);
       expectNoStack(open.stderr);
     } finally {

@@ -35,7 +35,11 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
   let reloads = 0;
 
   const post = async (path: string, body: unknown) => {
-    const res = await fetch(base + path, { method: 'POST', headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'application/json' }, body: JSON.stringify(body) });
+    const res = await fetch(base + path, {
+      method: 'POST',
+      headers: { Authorization: `Bearer ${OPERATOR}`, 'Content-Type': 'application/json' },
+      body: JSON.stringify(body),
+    });
     return { status: res.status, body: (await res.json()) as any };
   };
   const frame = (): LiveFrame => {
@@ -45,13 +49,25 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
       speed_rpm: 1500,
       revolutions_weight: 32,
       age_s: 0.02,
-      channels: Object.entries(r).map(([id, v]) => ({ id, orders: { '1': { order: 1, freq_hz: 25, amp_pk_mm_s: v.amp, amp_rms_mm_s: v.amp / Math.SQRT2, phase_deg: v.phase_deg } } })),
+      channels: Object.entries(r).map(([id, v]) => ({
+        id,
+        orders: {
+          '1': {
+            order: 1,
+            freq_hz: 25,
+            amp_pk_mm_s: v.amp,
+            amp_rms_mm_s: v.amp / Math.SQRT2,
+            phase_deg: v.phase_deg,
+          },
+        },
+      })),
     };
   };
   /** Captures the declared run: frames from the rotor as it now is, until the run is recorded. */
   const capture = async (id: string) => {
     expect((await post(`/api/jobs/${id}/capture`, {})).status).toBe(200);
-    for (let i = 0; i < 200 && server.workbench.view()?.capture; i++) server.onLive(frame(), (t += 500));
+    for (let i = 0; i < 200 && server.workbench.view()?.capture; i++)
+      server.onLive(frame(), (t += 500));
     for (let i = 0; i < 200; i++) {
       const v = server.workbench.view()!;
       if (v.job.runs.at(-1)!.capture) return v;
@@ -60,10 +76,23 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     throw new Error('capture not recorded');
   };
   /** Fits what a declared run lists on the rig (with-rotation angles). */
-  const fit = (changes: Array<{ action: string; weight: { id: string; plane: string; mass_g: number; angle_deg: number } }>) => {
+  const fit = (
+    changes: Array<{
+      action: string;
+      weight: { id: string; plane: string; mass_g: number; angle_deg: number };
+    }>,
+  ) => {
     for (const c of changes) {
-      if (c.action === 'remove') rotor = rotor.filter((m) => (m as RigMass & { id?: string }).id !== c.weight.id);
-      else rotor.push({ id: c.weight.id, plane: PLANES.indexOf(c.weight.plane), mass_g: c.weight.mass_g, angle_deg: c.weight.angle_deg, convention: 'with_rotation' } as RigMass);
+      if (c.action === 'remove')
+        rotor = rotor.filter((m) => (m as RigMass & { id?: string }).id !== c.weight.id);
+      else
+        rotor.push({
+          id: c.weight.id,
+          plane: PLANES.indexOf(c.weight.plane),
+          mass_g: c.weight.mass_g,
+          angle_deg: c.weight.angle_deg,
+          convention: 'with_rotation',
+        } as RigMass);
     }
   };
 
@@ -74,13 +103,36 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
       tach: { channel: 2, trigger_v: 2.5 },
       sensors: [
         { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
-        { id: 'NDE-V', channel: 1, bearing: 'NDE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+        {
+          id: 'NDE-V',
+          channel: 1,
+          bearing: 'NDE',
+          direction: 'vertical',
+          sensitivity_mv_per_g: 100,
+        },
       ],
       state_dir: dir,
-      balance: { angle_convention: 'with_rotation', rotor_mass_kg: 300, planes: { P1: { radius_mm: 400 }, P2: { radius_mm: 400 } } },
-      live: { port: 0, tokens: [{ name: 'crew', role: 'operator', env: 'TW_OP' }], capture: { revolutions: 60, settle_revolutions: 20 } },
+      balance: {
+        angle_convention: 'with_rotation',
+        rotor_mass_kg: 300,
+        planes: { P1: { radius_mm: 400 }, P2: { radius_mm: 400 } },
+      },
+      live: {
+        port: 0,
+        tokens: [{ name: 'crew', role: 'operator', env: 'TW_OP' }],
+        capture: { revolutions: 60, settle_revolutions: 20 },
+      },
     });
-    server = LiveServer.fromConfig(cfg, { logger: new MemoryLogger(), clock: new ManualClock(), emit: () => undefined, onCoefficientsSaved: () => void reloads++ }, { TW_OP: OPERATOR });
+    server = LiveServer.fromConfig(
+      cfg,
+      {
+        logger: new MemoryLogger(),
+        clock: new ManualClock(),
+        emit: () => undefined,
+        onCoefficientsSaved: () => void reloads++,
+      },
+      { TW_OP: OPERATOR },
+    );
     base = `http://127.0.0.1:${(await server.start()).port}`;
   });
 
@@ -97,13 +149,29 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     expect(created.body.view.job.setup.planes.map((p: { name: string }) => p.name)).toEqual(PLANES);
     await capture(id);
     // Trial 1, a static pair: 30 g in both planes at 0 deg.
-    let r = await post(`/api/jobs/${id}/runs`, { purpose: 'trial', add: PLANES.map((plane) => ({ plane, mass_g: 30, angle_deg: 0 })), acknowledge_cautions: true });
+    let r = await post(`/api/jobs/${id}/runs`, {
+      purpose: 'trial',
+      add: PLANES.map((plane) => ({ plane, mass_g: 30, angle_deg: 0 })),
+      acknowledge_cautions: true,
+    });
     expect(r.status).toBe(200);
     fit(r.body.view.job.runs[1].changes);
     await capture(id);
     // Trial 2, a couple pair: 30 g at 90 deg in P1 and 270 deg in P2, the static pair taken off.
-    r = await post(`/api/jobs/${id}/runs`, { purpose: 'trial', remove: 'all_trials', add: [{ plane: 'P1', mass_g: 30, angle_deg: 90 }, { plane: 'P2', mass_g: 30, angle_deg: 270 }], acknowledge_cautions: true });
-    expect(r.body.view.job.runs[2].changes.map((c: { action: string; weight: { id: string } }) => `${c.action} ${c.weight.id}`)).toEqual(['remove T1', 'remove T2', 'fit T3', 'fit T4']);
+    r = await post(`/api/jobs/${id}/runs`, {
+      purpose: 'trial',
+      remove: 'all_trials',
+      add: [
+        { plane: 'P1', mass_g: 30, angle_deg: 90 },
+        { plane: 'P2', mass_g: 30, angle_deg: 270 },
+      ],
+      acknowledge_cautions: true,
+    });
+    expect(
+      r.body.view.job.runs[2].changes.map(
+        (c: { action: string; weight: { id: string } }) => `${c.action} ${c.weight.id}`,
+      ),
+    ).toEqual(['remove T1', 'remove T2', 'fit T3', 'fit T4']);
     fit(r.body.view.job.runs[2].changes);
     const v = await capture(id);
     expect(v.job.runs[2].trial_check!.some((c) => c.moved_enough)).toBe(true);
@@ -122,10 +190,16 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     const sy = (40 * Math.sin(110 * D2R) + 25 * Math.sin(340 * D2R)) / 2;
     expect(res.static_couple.static_pair.mass_g_each).toBeCloseTo(Math.hypot(sx, sy), 6);
     // Fit it with the trial weights off; the check run is then balanced.
-    const check = await post(`/api/jobs/${id}/runs`, { purpose: 'check', remove: solved.body.view.proposals[0].remove, add: solved.body.view.proposals[0].add, acknowledge_cautions: true });
+    const check = await post(`/api/jobs/${id}/runs`, {
+      purpose: 'check',
+      remove: solved.body.view.proposals[0].remove,
+      add: solved.body.view.proposals[0].add,
+      acknowledge_cautions: true,
+    });
     fit(check.body.view.job.runs[3].changes);
     const done = await capture(id);
-    for (const s of done.job.runs[3].residual!.sensors) expect(s.pct_of_as_found).toBeLessThan(1e-6);
+    for (const s of done.job.runs[3].residual!.sensors)
+      expect(s.pct_of_as_found).toBeLessThan(1e-6);
     expect((await post(`/api/jobs/${id}/finish`, {})).body.view.job.coefficients.saved).toBe(true);
     expect(reloads).toBe(1);
   });
@@ -137,7 +211,15 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     expect(created.status).toBe(200);
     const id = created.body.view.job.job_id;
     expect(created.body.view.job.setup.coefficients_from.speed_rpm).toBeCloseTo(1500, 6);
-    expect((await post(`/api/jobs/${id}/runs`, { purpose: 'trial', add: [{ plane: 'P1', mass_g: 5, angle_deg: 0 }], acknowledge_cautions: true })).status).toBe(409);
+    expect(
+      (
+        await post(`/api/jobs/${id}/runs`, {
+          purpose: 'trial',
+          add: [{ plane: 'P1', mass_g: 5, angle_deg: 0 }],
+          acknowledge_cautions: true,
+        })
+      ).status,
+    ).toBe(409);
     await capture(id);
     const solved = await post(`/api/jobs/${id}/solve`, {});
     const res = solved.body.view.job.solution.result;
@@ -147,6 +229,9 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     expect(res.corrections[1].mass_g).toBeCloseTo(12, 6);
     expect(angleDiff(res.corrections[1].angle_deg, 30)).toBeCloseTo(0, 5);
     const fin = await post(`/api/jobs/${id}/finish`, {});
-    expect(fin.body.view.job.coefficients).toEqual({ saved: false, reason: 'the job used given coefficients and measured none of its own' });
+    expect(fin.body.view.job.coefficients).toEqual({
+      saved: false,
+      reason: 'the job used given coefficients and measured none of its own',
+    });
   });
 });

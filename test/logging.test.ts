@@ -5,19 +5,32 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { validateConfig } from '../agent/config/load.js';
-import { pinoOptionsFromConfig, REDACTED, syslogPrefix, urlWithoutPassword } from '../agent/logging/pino-logger.js';
+import {
+  pinoOptionsFromConfig,
+  REDACTED,
+  syslogPrefix,
+  urlWithoutPassword,
+} from '../agent/logging/pino-logger.js';
 
 /** A valid config without a logging section (raw, before defaults). */
 const minimalConfig = () => ({
   machine: { id: 'kessrow-id3a', group: 2, support: 'rigid' },
   tach: { channel: 1, trigger_v: 2.5 },
-  sensors: [{ id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 }],
+  sensors: [
+    { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100 },
+  ],
 });
 
 // The child is the compiled test/support/log-child.ts (npm test builds dist/ first).
 const CHILD = fileURLToPath(new URL('../dist/test/support/log-child.js', import.meta.url));
 
-function runChild(mode: 'on' | 'off' | 'auto', extra = 0, env: NodeJS.ProcessEnv = {}, stdoutFd?: number, kill = false) {
+function runChild(
+  mode: 'on' | 'off' | 'auto',
+  extra = 0,
+  env: NodeJS.ProcessEnv = {},
+  stdoutFd?: number,
+  kill = false,
+) {
   const r = spawnSync(process.execPath, [CHILD, mode, String(extra), kill ? 'kill' : 'exit'], {
     env: { PATH: process.env.PATH, ...env },
     encoding: 'utf8',
@@ -91,7 +104,8 @@ describe('production logger (pino, synchronous stdout)', () => {
 
   it('never writes secrets: fields named like secrets are redacted, URL passwords removed', () => {
     const out = runChild('on');
-    for (const secret of ['hunter2', 'tok-123', 'pw-nested', 'PEM-SECRET', 'pw-in-url']) expect(out).not.toContain(secret);
+    for (const secret of ['hunter2', 'tok-123', 'pw-nested', 'PEM-SECRET', 'pw-in-url'])
+      expect(out).not.toContain(secret);
     const line = parse(out)[4]!.obj as Record<string, any>;
     expect(line.password).toBe(REDACTED);
     expect(line.token).toBe(REDACTED);
@@ -112,7 +126,14 @@ describe('production logger (pino, synchronous stdout)', () => {
 
 describe('log helpers', () => {
   it('maps pino levels to syslog priorities, fatal to <2> (crit)', () => {
-    expect([10, 20, 30, 40, 50, 60].map(syslogPrefix)).toEqual(['<7>', '<7>', '<6>', '<4>', '<3>', '<2>']);
+    expect([10, 20, 30, 40, 50, 60].map(syslogPrefix)).toEqual([
+      '<7>',
+      '<7>',
+      '<6>',
+      '<4>',
+      '<3>',
+      '<2>',
+    ]);
   });
 
   it('removes only the password part of a URL', () => {
@@ -128,11 +149,16 @@ describe('logging: config section', () => {
     const cfg = validateConfig(minimalConfig());
     expect(cfg.logging).toEqual({ level: 'info', syslog_prefix: 'auto' });
     expect(pinoOptionsFromConfig(cfg.logging)).toEqual({ level: 'info', syslogPrefix: 'auto' });
-    const on = validateConfig({ ...minimalConfig(), logging: { level: 'debug', syslog_prefix: 'on' } });
+    const on = validateConfig({
+      ...minimalConfig(),
+      logging: { level: 'debug', syslog_prefix: 'on' },
+    });
     expect(pinoOptionsFromConfig(on.logging)).toEqual({ level: 'debug', syslogPrefix: true });
   });
 
   it('names a wrong level and where it is', () => {
-    expect(() => validateConfig({ ...minimalConfig(), logging: { level: 'verbose' } }, 'board.yaml')).toThrow(/board\.yaml: logging\.level: .*found "verbose"/);
+    expect(() =>
+      validateConfig({ ...minimalConfig(), logging: { level: 'verbose' } }, 'board.yaml'),
+    ).toThrow(/board\.yaml: logging\.level: .*found "verbose"/);
   });
 });

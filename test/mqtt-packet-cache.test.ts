@@ -3,7 +3,13 @@ import { dirname, sep } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { mqttSchema } from '../agent/config/mqtt.js';
 import { openPlantLink } from '../agent/mqtt/plant-link.js';
-import { CACHED_LENGTHS, mqttPacketWriter, settleMqttPacketCaches, writePublishOfLength, type PacketWriter } from '../agent/mqtt/packet-cache.js';
+import {
+  CACHED_LENGTHS,
+  mqttPacketWriter,
+  settleMqttPacketCaches,
+  writePublishOfLength,
+  type PacketWriter,
+} from '../agent/mqtt/packet-cache.js';
 import type { ConnectFn } from '../agent/mqtt/publisher.js';
 import { CaptureLog } from './support/capture-log.js';
 import { testResources } from './support/harness.js';
@@ -65,7 +71,10 @@ function longRun(write: PacketWriter, lengths: readonly number[]): Set<ArrayBuff
 /** 400 distinct lengths in the range of the demo fan's live and event messages (360-1342 bytes in the soak). */
 const soakLengths = Array.from({ length: 400 }, (_, i) => 1000 + ((i * 7) % 400));
 /** And 2000 more spread over every cached length. */
-const allLengths = [...soakLengths, ...Array.from({ length: 2000 }, (_, i) => 3 + ((i * 8191) % (CACHED_LENGTHS - 3)))];
+const allLengths = [
+  ...soakLengths,
+  ...Array.from({ length: 2000 }, (_, i) => 3 + ((i * 8191) % (CACHED_LENGTHS - 3))),
+];
 const POOL_BLOCK = Buffer.poolSize;
 
 describe('mqtt-packet caches', () => {

@@ -41,7 +41,10 @@ describe('without native addons', () => {
       writeFileSync(join(root, 'gpiochip512', 'label'), 'pinctrl-bcm2711\n');
       writeFileSync(join(root, 'gpiochip512', 'ngpio'), '58\n');
       const { OnoffLines } = await import('../drivers/gpio/onoff-lines.js');
-      const err = await OnoffLines.open({ sysfsRoot: root, log: { debug() {}, info() {}, warn() {}, error() {} } }).catch((e: unknown) => e);
+      const err = await OnoffLines.open({
+        sysfsRoot: root,
+        log: { debug() {}, info() {}, warn() {}, error() {} },
+      }).catch((e: unknown) => e);
       expect(err).toBeInstanceOf(UserError);
       expect((err as UserError).message).toMatch(/the onoff module could not be loaded/);
       expect((err as UserError).hint).toMatch(/npm rebuild epoll/);
@@ -52,7 +55,18 @@ describe('without native addons', () => {
 
   it('turns a missing serialport into a UserError, and port listing still answers', async () => {
     const { SerialSource } = await import('../drivers/serial/serial-source.js');
-    const src = new SerialSource({ device: '/dev/null', baud: 9600, sampleRateHz: 1000, channels: 1, reconnectMinMs: 100, reconnectMaxMs: 200, stallTimeoutMs: 1000, queueFrames: 4, maxFrameBytes: 4096, log: { debug() {}, info() {}, warn() {}, error() {} } });
+    const src = new SerialSource({
+      device: '/dev/null',
+      baud: 9600,
+      sampleRateHz: 1000,
+      channels: 1,
+      reconnectMinMs: 100,
+      reconnectMaxMs: 200,
+      stallTimeoutMs: 1000,
+      queueFrames: 4,
+      maxFrameBytes: 4096,
+      log: { debug() {}, info() {}, warn() {}, error() {} },
+    });
     const err = await src.open().catch((e: unknown) => e);
     expect(err).toBeInstanceOf(UserError);
     expect((err as UserError).hint).toMatch(/npm rebuild @serialport\/bindings-cpp/);

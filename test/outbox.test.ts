@@ -20,11 +20,20 @@ afterEach(() => {
 });
 
 function ev(i: number, severity: AgentEvent['severity'] = 'info'): AgentEvent {
-  return { id: `id-${i}`, ts: '2025-01-01T00:00:00.000Z', asset: 'kessrow-id3a', type: 'test_step', severity, step: i };
+  return {
+    id: `id-${i}`,
+    ts: '2025-01-01T00:00:00.000Z',
+    asset: 'kessrow-id3a',
+    type: 'test_step',
+    severity,
+    step: i,
+  };
 }
 
 function recFiles(dir: string): string[] {
-  return readdirSync(dir).filter((n) => n.endsWith('.rec')).sort();
+  return readdirSync(dir)
+    .filter((n) => n.endsWith('.rec'))
+    .sort();
 }
 
 /** Waits for queued notices (they are delivered on a microtask). */
@@ -38,12 +47,22 @@ describe('outbox record format', () => {
     const flipped = Buffer.from(buf);
     flipped[flipped.length - 5] ^= 0x01;
     expect(decodeRecord(flipped)).toEqual({ problem: expect.stringMatching(/checksum mismatch/) });
-    expect(decodeRecord(buf.subarray(0, buf.length - 10))).toEqual({ problem: expect.stringMatching(/cut short/) });
+    expect(decodeRecord(buf.subarray(0, buf.length - 10))).toEqual({
+      problem: expect.stringMatching(/cut short/),
+    });
     expect(decodeRecord(Buffer.alloc(0))).toEqual({ problem: expect.stringMatching(/empty file/) });
-    expect(decodeRecord(Buffer.from('hello world\n'))).toEqual({ problem: expect.stringMatching(/unknown record header/) });
-    expect(decodeRecord(Buffer.concat([buf, Buffer.from('xx')]))).toEqual({ problem: expect.stringMatching(/trailing/) });
-    expect(decodeRecord(encodeRecord('{"id": 3}'))).toEqual({ problem: expect.stringMatching(/lacks a string id/) });
-    expect(decodeRecord(encodeRecord('{not json'))).toEqual({ problem: expect.stringMatching(/not valid JSON/) });
+    expect(decodeRecord(Buffer.from('hello world\n'))).toEqual({
+      problem: expect.stringMatching(/unknown record header/),
+    });
+    expect(decodeRecord(Buffer.concat([buf, Buffer.from('xx')]))).toEqual({
+      problem: expect.stringMatching(/trailing/),
+    });
+    expect(decodeRecord(encodeRecord('{"id": 3}'))).toEqual({
+      problem: expect.stringMatching(/lacks a string id/),
+    });
+    expect(decodeRecord(encodeRecord('{not json'))).toEqual({
+      problem: expect.stringMatching(/not valid JSON/),
+    });
   });
 });
 
@@ -71,7 +90,11 @@ describe('durable outbox on real files', () => {
     expect([...ob.sendable()]).toHaveLength(0); // not on disk yet: not publishable
     expect(await p).toBe('durable');
     const name = recordName(1);
-    expect(calls).toEqual([`write+fsync ${name}.tmp`, `rename ${name}.tmp -> ${name}`, 'fsync dir outbox']);
+    expect(calls).toEqual([
+      `write+fsync ${name}.tmp`,
+      `rename ${name}.tmp -> ${name}`,
+      'fsync dir outbox',
+    ]);
     expect([...ob.sendable()].map((e) => e.id)).toEqual(['id-1']);
     expect(decodeRecord(readFileSync(join(dir, name)))).toMatchObject({ id: 'id-1' });
     await ob.close();
@@ -116,7 +139,11 @@ describe('durable outbox on real files', () => {
     expect(await ob.add(ev(9, 'info'))).toBe('dropped');
     expect(await ob.add(ev(10, 'alarm'))).toBe('durable');
     expect(ob.size).toBe(5);
-    expect(ob.health()).toMatchObject({ full: true, dropped_info_total: 4, dropped_warning_total: 2 });
+    expect(ob.health()).toMatchObject({
+      full: true,
+      dropped_info_total: 4,
+      dropped_warning_total: 2,
+    });
     await ob.settled();
     expect(recFiles(dir)).toHaveLength(5);
     await tickOnce();
@@ -124,13 +151,17 @@ describe('durable outbox on real files', () => {
     // Acknowledging down to 90 % of the limit ends the burst, with the counts.
     for (const e of [...ob.sendable()].slice(0, 2)) ob.ack(e.seq);
     await tickOnce();
-    expect(notices.find((n) => n.kind === 'overflow_ended')).toMatchObject({ dropped_info: 4, dropped_warning: 2 });
+    expect(notices.find((n) => n.kind === 'overflow_ended')).toMatchObject({
+      dropped_info: 4,
+      dropped_warning: 2,
+    });
     await ob.close();
   });
 
   it('quarantines damaged and torn files, finishes a complete unrenamed save, and never throws', async () => {
     const dir = tmp();
-    const good = (i: number, sev: AgentEvent['severity'] = 'warning') => encodeRecord(JSON.stringify(ev(i, sev)));
+    const good = (i: number, sev: AgentEvent['severity'] = 'warning') =>
+      encodeRecord(JSON.stringify(ev(i, sev)));
     writeFileSync(join(dir, recordName(1)), good(1));
     const damaged = Buffer.from(good(2));
     damaged[damaged.length - 4] ^= 0x20;
@@ -147,10 +178,21 @@ describe('durable outbox on real files', () => {
     expect(readdirSync(dir).filter((n) => n.endsWith('.tmp'))).toEqual([]);
     const q = readdirSync(join(dir, 'quarantine')).sort();
     expect(q).toHaveLength(4);
-    expect(q.map((n) => n.slice(0, 20))).toEqual([recordName(2), recordName(3), recordName(5) + '.tm', recordName(6)].map((n) => n.slice(0, 20)));
+    expect(q.map((n) => n.slice(0, 20))).toEqual(
+      [recordName(2), recordName(3), recordName(5) + '.tm', recordName(6)].map((n) =>
+        n.slice(0, 20),
+      ),
+    );
     await tickOnce();
-    const problems = notices.filter((n) => n.kind === 'quarantined').map((n) => (n as { problem: string }).problem);
-    expect(problems).toEqual([expect.stringMatching(/checksum/), expect.stringMatching(/cut short/), expect.stringMatching(/^unfinished save: empty file/), expect.stringMatching(/header/)]);
+    const problems = notices
+      .filter((n) => n.kind === 'quarantined')
+      .map((n) => (n as { problem: string }).problem);
+    expect(problems).toEqual([
+      expect.stringMatching(/checksum/),
+      expect.stringMatching(/cut short/),
+      expect.stringMatching(/^unfinished save: empty file/),
+      expect.stringMatching(/header/),
+    ]);
     expect(ob.health().quarantined_total).toBe(4);
     expect(await ob.add(ev(8))).toBe('durable');
     expect([...ob.sendable()].at(-1)!.seq).toBe(8);
@@ -165,23 +207,42 @@ describe('durable outbox on real files', () => {
       ...nodeOutboxFs,
       writeNewSynced: async (f, d) => {
         writes++;
-        if (full) throw Object.assign(new Error('ENOSPC: no space left on device, write'), { code: 'ENOSPC' });
+        if (full)
+          throw Object.assign(new Error('ENOSPC: no space left on device, write'), {
+            code: 'ENOSPC',
+          });
         await nodeOutboxFs.writeNewSynced(f, d);
       },
     };
     const notices: OutboxNotice[] = [];
-    const ob = await Outbox.open({ dir, fs, retryMinMs: 20, retryMaxMs: 40, onNotice: (n) => notices.push(n) });
+    const ob = await Outbox.open({
+      dir,
+      fs,
+      retryMinMs: 20,
+      retryMaxMs: 40,
+      onNotice: (n) => notices.push(n),
+    });
     expect(await ob.add(ev(0, 'warning'))).toBe('durable');
     full = true;
     const outcomes = [];
     for (let i = 1; i <= 6; i++) outcomes.push(await ob.add(ev(i, i === 3 ? 'alarm' : 'info')));
     expect(outcomes).toEqual(Array(6).fill('memory'));
     // Still publishable, in order, while the disk refuses them.
-    expect([...ob.sendable()].map((e) => e.id)).toEqual(['id-0', 'id-1', 'id-2', 'id-3', 'id-4', 'id-5', 'id-6']);
+    expect([...ob.sendable()].map((e) => e.id)).toEqual([
+      'id-0',
+      'id-1',
+      'id-2',
+      'id-3',
+      'id-4',
+      'id-5',
+      'id-6',
+    ]);
     expect(ob.health()).toMatchObject({ store_ok: false, memory_only: 6 });
     await new Promise((r) => setTimeout(r, 150)); // a few retries fail
     await tickOnce();
-    expect(notices.filter((n) => n.kind === 'store_failed')).toEqual([{ kind: 'store_failed', code: 'ENOSPC', message: expect.stringMatching(/no space/) }]);
+    expect(notices.filter((n) => n.kind === 'store_failed')).toEqual([
+      { kind: 'store_failed', code: 'ENOSPC', message: expect.stringMatching(/no space/) },
+    ]);
     const retriesWhileFull = writes;
     expect(retriesWhileFull).toBeGreaterThan(2);
     ob.ack(2); // id-1 delivered from memory while the disk was full: it need never be saved
@@ -190,9 +251,15 @@ describe('durable outbox on real files', () => {
     while (!ob.health().store_ok && Date.now() < until) await new Promise((r) => setTimeout(r, 10));
     await ob.settled();
     await tickOnce();
-    expect(notices.filter((n) => n.kind === 'store_recovered')).toEqual([expect.objectContaining({ saved_late: 5 })]);
+    expect(notices.filter((n) => n.kind === 'store_recovered')).toEqual([
+      expect.objectContaining({ saved_late: 5 }),
+    ]);
     expect(recFiles(dir)).toEqual([0, 2, 3, 4, 5, 6].map((i) => recordName(i + 1)));
-    expect(ob.health()).toMatchObject({ store_ok: true, memory_only: 0, store_failures_total: expect.any(Number) });
+    expect(ob.health()).toMatchObject({
+      store_ok: true,
+      memory_only: 0,
+      store_failures_total: expect.any(Number),
+    });
     await ob.close();
   });
 
@@ -201,29 +268,42 @@ describe('durable outbox on real files', () => {
     writeFileSync(join(d, 'state'), 'a file where the directory should be');
     const err = await Outbox.open({ dir: join(d, 'state', 'outbox') }).catch((e: unknown) => e);
     expect(err).toBeInstanceOf(UserError);
-    expect((err as UserError).format()).toMatch(/cannot use the outbox directory \(ENOTDIR\)[\s\S]*state_dir/);
+    expect((err as UserError).format()).toMatch(
+      /cannot use the outbox directory \(ENOTDIR\)[\s\S]*state_dir/,
+    );
   });
 });
 
 describe('durable outbox on a real full tmpfs', () => {
   it('reports ENOSPC once, keeps accepting events, and recovers by itself when space is freed (needs root to mount)', async (ctx) => {
     const mnt = tryMountTmpfs();
-    if (!mnt) return ctx.skip('cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the injected-ENOSPC test covers the same path');
+    if (!mnt)
+      return ctx.skip(
+        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the injected-ENOSPC test covers the same path',
+      );
     try {
       const dir = join(mnt, 'outbox');
       const notices: OutboxNotice[] = [];
-      const ob = await Outbox.open({ dir, retryMinMs: 20, retryMaxMs: 50, onNotice: (n) => notices.push(n) });
+      const ob = await Outbox.open({
+        dir,
+        retryMinMs: 20,
+        retryMaxMs: 50,
+        onNotice: (n) => notices.push(n),
+      });
       const { code, ballast } = fillUp(mnt);
       expect(code).toBe('ENOSPC');
       const outcomes = [];
       for (let i = 0; i < 5; i++) outcomes.push(await ob.add(ev(i, 'alarm')));
       expect(outcomes).toEqual(Array(5).fill('memory'));
       await tickOnce();
-      expect(notices.filter((n) => n.kind === 'store_failed')).toEqual([expect.objectContaining({ code: 'ENOSPC' })]);
+      expect(notices.filter((n) => n.kind === 'store_failed')).toEqual([
+        expect.objectContaining({ code: 'ENOSPC' }),
+      ]);
       expect(readdirSync(dir).filter((n) => n.includes('.rec'))).toEqual([]); // nothing half-written left behind
       rmSync(ballast);
       const until = Date.now() + 3000;
-      while (!ob.health().store_ok && Date.now() < until) await new Promise((r) => setTimeout(r, 10));
+      while (!ob.health().store_ok && Date.now() < until)
+        await new Promise((r) => setTimeout(r, 10));
       await ob.settled();
       expect(recFiles(dir)).toHaveLength(5);
       await tickOnce();

@@ -42,16 +42,28 @@ while True:
 print(json.dumps({'code': p.wait(), 'tty': out.decode('latin-1')}))
 `;
 
-function underPty(tty: 'stdout' | 'stderr', args: string[]): { code: number; tty: string; other: string } {
+function underPty(
+  tty: 'stdout' | 'stderr',
+  args: string[],
+): { code: number; tty: string; other: string } {
   const other = join(dir, `other-${tty}.txt`);
-  const r = spawnSync(PYTHON, ['-c', PTY_RUNNER, tty, other, process.execPath, CLI, ...args], { encoding: 'utf8', timeout: 60_000 });
+  const r = spawnSync(PYTHON, ['-c', PTY_RUNNER, tty, other, process.execPath, CLI, ...args], {
+    encoding: 'utf8',
+    timeout: 60_000,
+  });
   if (r.status !== 0) throw new Error(`pty runner failed (${r.status}): ${r.stderr}`);
   const j = JSON.parse(r.stdout) as { code: number; tty: string };
   return { ...j, other: readFileSync(other, 'latin1') };
 }
 
 beforeAll(() => {
-  const sig = synthesize({ sampleRate: fs, seconds: 12, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 }], tachChannel: 1 });
+  const sig = synthesize({
+    sampleRate: fs,
+    seconds: 12,
+    rpm: () => 1485,
+    channels: [{ orders: [{ order: 1, velPk: 6.0, phaseDeg: 40 }], noiseMmS2: 100 }],
+    tachChannel: 1,
+  });
   writeFloatWav(rec, fs, sig);
   writeFileSync(
     cfg,
@@ -76,7 +88,12 @@ describe('progress on stderr (agent/cli/progress.ts)', () => {
     // done(): back to the start of the line and erase it, so the terminal is left clean.
     expect(r.tty.endsWith('\r\x1b[K')).toBe(true);
     // Nothing but progress on the terminal: every piece is "\r<label>... \x1b[K" or the final erase.
-    expect(r.tty.split('\r').filter(Boolean).every((p) => /^(analyze: .*)?\x1b\[K$/.test(p))).toBe(true);
+    expect(
+      r.tty
+        .split('\r')
+        .filter(Boolean)
+        .every((p) => /^(analyze: .*)?\x1b\[K$/.test(p)),
+    ).toBe(true);
     // The results went to stdout (a file here), untouched by the progress.
     expect(r.other).toMatch(/speed 1485\.0 r\/min/);
     expect(r.other).not.toMatch(/\x1b|analyze:/);

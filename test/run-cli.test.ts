@@ -17,14 +17,27 @@ describe('turnwise run on a recording', () => {
     broker = await plainBroker();
     // Zone D at both radial sensors of the DE bearing for the whole record (ISO 20816-3 group 2
     // rigid, C/D 4.5 mm/s r.m.s.).
-    const sig = synthesize({ sampleRate: fs, seconds: 20, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 9, phaseDeg: 30 }] }, { orders: [{ order: 1, velPk: 8, phaseDeg: 120 }] }], tachChannel: 2 });
+    const sig = synthesize({
+      sampleRate: fs,
+      seconds: 20,
+      rpm: () => 1485,
+      channels: [
+        { orders: [{ order: 1, velPk: 9, phaseDeg: 30 }] },
+        { orders: [{ order: 1, velPk: 8, phaseDeg: 120 }] },
+      ],
+      tachChannel: 2,
+    });
     writeFloatWav(join(dir, 'rec.wav'), fs, sig);
   });
   afterAll(async () => {
     await broker?.dispose();
   });
 
-  const config = (url: string, prefix: string, stateDir: string) => `machine: {id: kessrow-id3a, group: 2, support: rigid, rated_rpm: 1485}
+  const config = (
+    url: string,
+    prefix: string,
+    stateDir: string,
+  ) => `machine: {id: kessrow-id3a, group: 2, support: rigid, rated_rpm: 1485}
 tach: {channel: 2, trigger_v: 2.5}
 sensors:
   - {id: DE-V, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}
@@ -42,7 +55,10 @@ logging: {level: warn}
     // First run: nothing listens on this port (the broker is "down").
     const deadPort = await freePort();
     writeFileSync(cfgFile, config(`mqtt://127.0.0.1:${deadPort}`, prefix, state));
-    const r1 = runCli(['run', '--config', cfgFile, '--drain-timeout-s', '1', '--last-good', join(dir, 'lg1.yaml')], { env: { STATE_DIRECTORY: '' } });
+    const r1 = runCli(
+      ['run', '--config', cfgFile, '--drain-timeout-s', '1', '--last-good', join(dir, 'lg1.yaml')],
+      { env: { STATE_DIRECTORY: '' } },
+    );
     expectNoStack(r1.stderr);
     expect(r1.code).toBe(0);
     const kept = readdirSync(join(state, 'outbox')).filter((f) => f.endsWith('.rec'));
@@ -50,11 +66,25 @@ logging: {level: warn}
     // Second run: the broker is up; the kept events go out first, in order, with their ids.
     const sub = await TestSubscriber.open(broker.url, [`${prefix}/#`]);
     writeFileSync(cfgFile, config(broker.url, prefix, state));
-    const r2 = runCli(['run', '--config', cfgFile, '--drain-timeout-s', '10', '--last-good', join(dir, 'lg1.yaml')]);
+    const r2 = runCli([
+      'run',
+      '--config',
+      cfgFile,
+      '--drain-timeout-s',
+      '10',
+      '--last-good',
+      join(dir, 'lg1.yaml'),
+    ]);
     expect(r2.code).toBe(0);
     // The watcher remembers what it reported, so the second run adds nothing new about the same state.
-    await sub.waitFor((m) => m.filter((x) => x.topic.includes('/event/')).length >= kept.length, 10_000, 'the events kept on disk');
-    const events = sub.messages.filter((m) => m.topic.includes('/event/')).map((m) => m.json as { id: string; type: string; zone?: string });
+    await sub.waitFor(
+      (m) => m.filter((x) => x.topic.includes('/event/')).length >= kept.length,
+      10_000,
+      'the events kept on disk',
+    );
+    const events = sub.messages
+      .filter((m) => m.topic.includes('/event/'))
+      .map((m) => m.json as { id: string; type: string; zone?: string });
     expect(events.some((e) => e.type === 'zone_changed' && e.zone === 'D')).toBe(true);
     expect(new Set(events.map((e) => e.id)).size).toBe(events.length);
     expect(readdirSync(join(state, 'outbox')).filter((f) => f.endsWith('.rec'))).toEqual([]);
@@ -100,12 +130,28 @@ logging: {level: warn}
     const r = runCli(['run', '--config', cfgFile, '--last-good', lastGood]);
     expectNoStack(r.stderr);
     expect(r.code).toBe(0);
-    expect(r.stdout).toMatch(/config rejected, monitoring continues on the last good config: .*no-such-recording\.wav/);
-    await sub.waitFor((m) => m.some((x) => x.topic.endsWith('/event/config_rejected')), 10_000, 'config_rejected');
-    const rejected = sub.messages.find((x) => x.topic.endsWith('/event/config_rejected'))!.json as { severity: string; error: string };
-    expect(rejected).toMatchObject({ severity: 'alarm', error: expect.stringMatching(/no-such-recording\.wav/) });
+    expect(r.stdout).toMatch(
+      /config rejected, monitoring continues on the last good config: .*no-such-recording\.wav/,
+    );
+    await sub.waitFor(
+      (m) => m.some((x) => x.topic.endsWith('/event/config_rejected')),
+      10_000,
+      'config_rejected',
+    );
+    const rejected = sub.messages.find((x) => x.topic.endsWith('/event/config_rejected'))!.json as {
+      severity: string;
+      error: string;
+    };
+    expect(rejected).toMatchObject({
+      severity: 'alarm',
+      error: expect.stringMatching(/no-such-recording\.wav/),
+    });
     // It measured on the last good config (the recording it names), and the failing config was not kept.
-    await sub.waitFor((m) => m.some((x) => x.topic.endsWith('/event/zone_changed')), 10_000, 'zone events from the fallback run');
+    await sub.waitFor(
+      (m) => m.some((x) => x.topic.endsWith('/event/zone_changed')),
+      10_000,
+      'zone events from the fallback run',
+    );
     expect(readFileSync(lastGood, 'utf8')).toBe(good);
     await sub.close();
     // Without a different last good copy the start-up error is the answer, as a clear message.

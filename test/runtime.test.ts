@@ -12,7 +12,13 @@ import { synthesize } from './support/synth.js';
 describe('agent runtime loop', () => {
   it('closes windows and live frames on the sample clock and never averages across a gap', async () => {
     const fs = 25600;
-    const sig = synthesize({ sampleRate: fs, seconds: 21, rpm: () => 1485, channels: [{ orders: [{ order: 1, velPk: 5, phaseDeg: 123 }] }], tachChannel: 1 });
+    const sig = synthesize({
+      sampleRate: fs,
+      seconds: 21,
+      rpm: () => 1485,
+      channels: [{ orders: [{ order: 1, velPk: 5, phaseDeg: 123 }] }],
+      tachChannel: 1,
+    });
     const windows: Array<[WindowResult, number]> = [];
     const lives: Array<[LiveFrame, number]> = [];
     const clock = new ManualClock(Date.UTC(2026, 11, 2, 6, 0, 0));
@@ -54,7 +60,15 @@ describe('agent runtime loop', () => {
       sampleRate: fs,
       seconds: 12,
       rpm: () => rpm,
-      channels: [{ orders: [{ order: 1, velPk: 5, phaseDeg: 123 }, { order: 2, velPk: 1, phaseDeg: 30 }], noiseMmS2: 200 }],
+      channels: [
+        {
+          orders: [
+            { order: 1, velPk: 5, phaseDeg: 123 },
+            { order: 2, velPk: 1, phaseDeg: 30 },
+          ],
+          noiseMmS2: 200,
+        },
+      ],
       tachChannel: 1,
       seed: 11,
     });
@@ -82,7 +96,12 @@ describe('agent runtime loop', () => {
         });
         const sum = await rt.run();
         const averaged = spy.mock.calls.map(([, start, end]) => [start, end] as const);
-        return { sum, windows, averaged, revolutions: windows.reduce((s, w) => s + w.revolutions, 0) };
+        return {
+          sum,
+          windows,
+          averaged,
+          revolutions: windows.reduce((s, w) => s + w.revolutions, 0),
+        };
       } finally {
         spy.mockRestore();
       }
@@ -99,13 +118,22 @@ describe('agent runtime loop', () => {
       // The scenario is what it says: every gap shorter than a revolution, no tach pulse cut by a gap edge.
       for (const g of gaps) {
         expect(g[1] - g[0]).toBeLessThan(P);
-        const near = Math.min(...[Math.floor(g[0] / P), Math.ceil(g[0] / P), Math.floor(g[1] / P), Math.ceil(g[1] / P)].flatMap((n) => [Math.abs(n * P - g[0]), Math.abs(n * P - g[1])]));
+        const near = Math.min(
+          ...[
+            Math.floor(g[0] / P),
+            Math.ceil(g[0] / P),
+            Math.floor(g[1] / P),
+            Math.ceil(g[1] / P),
+          ].flatMap((n) => [Math.abs(n * P - g[0]), Math.abs(n * P - g[1])]),
+        );
         expect(near).toBeGreaterThan(6); // the 4-sample rise sits wholly on one side
       }
       const clean = await run([]);
       const lossy = await run(gaps);
       expect(lossy.sum.gaps).toBe(gaps.length);
-      expect(lossy.windows.reduce((s, w) => s + w.gap_samples, 0)).toBe(gaps.reduce((s, [a, b]) => s + b - a, 0));
+      expect(lossy.windows.reduce((s, w) => s + w.gap_samples, 0)).toBe(
+        gaps.reduce((s, [a, b]) => s + b - a, 0),
+      );
       // The spy saw every averaged revolution (one sensor: one call per revolution).
       expect(lossy.averaged.length).toBe(lossy.revolutions);
       expect(clean.averaged.length).toBe(clean.revolutions);
@@ -115,7 +143,11 @@ describe('agent runtime loop', () => {
       // None averaged across a gap: no averaged revolution reads a sample inside one (linear
       // interpolation reads samples floor(start) .. ceil(end)).
       for (const [start, end] of lossy.averaged) {
-        for (const [a, b] of gaps) expect(Math.ceil(end) < a || Math.floor(start) >= b, `revolution ${start.toFixed(1)}-${end.toFixed(1)} vs gap ${a}-${b}`).toBe(true);
+        for (const [a, b] of gaps)
+          expect(
+            Math.ceil(end) < a || Math.floor(start) >= b,
+            `revolution ${start.toFixed(1)}-${end.toFixed(1)} vs gap ${a}-${b}`,
+          ).toBe(true);
       }
       // Every averaged revolution runs from one tach mark to the next (within 0.05 sample).
       for (const [start, end] of lossy.averaged) {
@@ -154,8 +186,28 @@ describe('agent runtime loop', () => {
 describe('stopping', () => {
   it('ends promptly even when the live source delivers nothing (serial board unplugged)', async () => {
     // A device path that does not exist: the serial source keeps trying to open it and yields nothing.
-    const source = new SerialSource({ device: '/dev/turnwise-test-absent', baud: 115_200, sampleRateHz: 25_600, channels: 2, reconnectMinMs: 100, reconnectMaxMs: 200, stallTimeoutMs: 5000, queueFrames: 4, maxFrameBytes: 4096, log: new MemoryLogger() });
-    const rt = new AgentRuntime({ config: testConfig([['DE-V', 0, 'DE', 'vertical']]), source, clock: new ManualClock(), logger: new MemoryLogger(), windowSeconds: 2, liveSeconds: 0.5, windowConsumers: [], liveConsumers: [] });
+    const source = new SerialSource({
+      device: '/dev/turnwise-test-absent',
+      baud: 115_200,
+      sampleRateHz: 25_600,
+      channels: 2,
+      reconnectMinMs: 100,
+      reconnectMaxMs: 200,
+      stallTimeoutMs: 5000,
+      queueFrames: 4,
+      maxFrameBytes: 4096,
+      log: new MemoryLogger(),
+    });
+    const rt = new AgentRuntime({
+      config: testConfig([['DE-V', 0, 'DE', 'vertical']]),
+      source,
+      clock: new ManualClock(),
+      logger: new MemoryLogger(),
+      windowSeconds: 2,
+      liveSeconds: 0.5,
+      windowConsumers: [],
+      liveConsumers: [],
+    });
     const running = rt.run();
     await new Promise((r) => setTimeout(r, 500));
     const t0 = Date.now();

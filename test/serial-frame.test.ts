@@ -25,11 +25,23 @@ const RATE = 25_600;
 const SPC = 16;
 
 /** A deterministic frame: counts follow a formula the tests can recompute. */
-function content(seq: number, first: number, opts: { channels?: number; format?: SampleFormat; edges?: number[] | undefined; rate?: number; spc?: number } = {}): FrameContent {
+function content(
+  seq: number,
+  first: number,
+  opts: {
+    channels?: number;
+    format?: SampleFormat;
+    edges?: number[] | undefined;
+    rate?: number;
+    spc?: number;
+  } = {},
+): FrameContent {
   const channels = opts.channels ?? 3;
   const spc = opts.spc ?? SPC;
   const format = opts.format ?? 'int24';
-  const samples = Array.from({ length: channels }, (_, c) => Array.from({ length: spc }, (_, i) => countAt(c, first + i)));
+  const samples = Array.from({ length: channels }, (_, c) =>
+    Array.from({ length: spc }, (_, i) => countAt(c, first + i)),
+  );
   return {
     sequence: seq,
     firstSample: first,
@@ -121,11 +133,21 @@ describe('frame encoding', () => {
     const f = encodeFrame(EXAMPLE_FRAME);
     expect(Buffer.from(f).toString('hex')).toBe(docBytes.toString('hex'));
     // The CRC in the example is right by the independent routine.
-    expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)));
+    expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(
+      crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)),
+    );
   });
 
   it('puts each field at the offset PROTOCOL.md gives', () => {
-    const f = Buffer.from(encodeFrame(content(0xfffffffe, 2 ** 40 + 5, { channels: 2, format: 'int16', edges: [2 ** 40 + 5 + 3.75] })));
+    const f = Buffer.from(
+      encodeFrame(
+        content(0xfffffffe, 2 ** 40 + 5, {
+          channels: 2,
+          format: 'int16',
+          edges: [2 ** 40 + 5 + 3.75],
+        }),
+      ),
+    );
     expect([...f.subarray(0, 4)]).toEqual([0xa5, 0x5a, 0x54, 0x57]);
     expect(f[4]).toBe(1); // version
     expect(f[5]).toBe(40); // header_len
@@ -158,29 +180,52 @@ describe('frame decoding', () => {
       expect(dec.counters.frames_ok).toBe(3);
       const f = sink.frames[1]!;
       expect(f.startIndex).toBe(500 + SPC);
-      for (let c = 0; c < 3; c++) for (let i = 0; i < SPC; i++) expect(f.channels[c]![i]).toBe(voltsAt(c, 500 + SPC + i));
+      for (let c = 0; c < 3; c++)
+        for (let i = 0; i < SPC; i++) expect(f.channels[c]![i]).toBe(voltsAt(c, 500 + SPC + i));
     });
   }
 
   it('sign-extends int24 and int16 at the ends of their ranges', () => {
     const counts24 = [8388607, -8388608, -1, 0, 1];
     const counts16 = [32767, -32768, -1, 0, 1];
-    for (const [format, counts] of [['int24', counts24], ['int16', counts16]] as const) {
-      const { sink } = decodeAll(encodeFrame({ sequence: 0, firstSample: 0, sampleRateHz: RATE, format, scaleVPerCount: [1], samples: [counts] }));
+    for (const [format, counts] of [
+      ['int24', counts24],
+      ['int16', counts16],
+    ] as const) {
+      const { sink } = decodeAll(
+        encodeFrame({
+          sequence: 0,
+          firstSample: 0,
+          sampleRateHz: RATE,
+          format,
+          scaleVPerCount: [1],
+          samples: [counts],
+        }),
+      );
       expect(sink.frames[0]!.channels[0]).toEqual(counts);
     }
   });
 
   it('returns tach edges with their fractional part; none-but-timed and not-timed stay distinct', () => {
     const edges = [1000 + 0.25, 1000 + 7 + 2 ** -20, 1000 + 15.999969482421875];
-    const { sink } = decodeAll(concat([encodeFrame(content(0, 1000, { edges })), encodeFrame(content(1, 1016, { edges: [] })), encodeFrame(content(2, 1032, { edges: undefined }))]));
+    const { sink } = decodeAll(
+      concat([
+        encodeFrame(content(0, 1000, { edges })),
+        encodeFrame(content(1, 1016, { edges: [] })),
+        encodeFrame(content(2, 1032, { edges: undefined })),
+      ]),
+    );
     expect(sink.frames[0]!.tachEdges).toEqual(edges);
     expect(sink.frames[1]!.tachEdges).toEqual([]);
     expect(sink.frames[2]!.tachEdges).toBeUndefined();
   });
 
   it('gives the same result wherever the byte stream is split into chunks', () => {
-    const bytes = concat([encodeFrame(content(0, 0, { edges: [5.5] })), encodeFrame(content(1, SPC, { edges: [SPC + 2.25] })), encodeFrame(content(2, 2 * SPC, { edges: undefined }))]);
+    const bytes = concat([
+      encodeFrame(content(0, 0, { edges: [5.5] })),
+      encodeFrame(content(1, SPC, { edges: [SPC + 2.25] })),
+      encodeFrame(content(2, 2 * SPC, { edges: undefined })),
+    ]);
     const whole = decodeAll(bytes).sink.items;
     expect(whole).toHaveLength(3);
     for (let k = 0; k <= bytes.length; k++) {
@@ -219,7 +264,9 @@ describe('frame decoding', () => {
     expect(sink.frames.map((f) => f.sequence)).toEqual([0, 2, 3]);
     expect(sink.gaps).toHaveLength(1);
     expect(sink.gaps[0]).toMatchObject({ fromIndex: 2000 + SPC, toIndex: 2000 + 2 * SPC });
-    expect(sink.gaps[0]!.reason).toMatch(/sequence jump 0 -> 2 \(1 frame\(s\) missing\).*1 CRC error/);
+    expect(sink.gaps[0]!.reason).toMatch(
+      /sequence jump 0 -> 2 \(1 frame\(s\) missing\).*1 CRC error/,
+    );
     expect(dec.counters.crc_errors).toBe(1);
     expect(dec.counters.samples_lost).toBe(SPC);
     expect(dec.counters.bytes_skipped).toBe(damaged.length);
@@ -253,8 +300,20 @@ describe('frame decoding', () => {
     bad[bad.length - 10] ^= 0x01; // one bit in a sample
     const { sink, dec } = decodeAll(concat([frames[0]!, frames[1]!, bad, frames[3]!, frames[4]!]));
     expect(dec.counters.crc_errors).toBe(1);
-    expect(sink.gaps).toEqual([expect.objectContaining({ kind: 'gap', fromIndex: 10_000 + 2 * SPC, toIndex: 10_000 + 3 * SPC })]);
-    expect(sink.items.map((i) => (i.kind === 'gap' ? 'gap' : i.frame.sequence))).toEqual([0, 1, 'gap', 3, 4]);
+    expect(sink.gaps).toEqual([
+      expect.objectContaining({
+        kind: 'gap',
+        fromIndex: 10_000 + 2 * SPC,
+        toIndex: 10_000 + 3 * SPC,
+      }),
+    ]);
+    expect(sink.items.map((i) => (i.kind === 'gap' ? 'gap' : i.frame.sequence))).toEqual([
+      0,
+      1,
+      'gap',
+      3,
+      4,
+    ]);
   });
 
   it('counts a length field that contradicts the header as a bad length', () => {
@@ -264,7 +323,13 @@ describe('frame decoding', () => {
     const { sink, dec } = decodeAll(concat([frames[0]!, bad, frames[2]!]));
     expect(dec.counters.bad_lengths).toBe(1);
     expect(dec.counters.crc_errors).toBe(0);
-    expect(sink.gaps).toEqual([expect.objectContaining({ fromIndex: SPC, toIndex: 2 * SPC, reason: expect.stringMatching(/1 bad length/) })]);
+    expect(sink.gaps).toEqual([
+      expect.objectContaining({
+        fromIndex: SPC,
+        toIndex: 2 * SPC,
+        reason: expect.stringMatching(/1 bad length/),
+      }),
+    ]);
   });
 
   it('counts samples per channel above the limit as a bad length', () => {
@@ -279,7 +344,9 @@ describe('frame decoding', () => {
     f[4] = 3;
     const { sink, dec } = decodeAll(f);
     expect(dec.counters.bad_headers).toBe(1);
-    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/protocol version 3 \(this agent reads versions 1 and 2\)/);
+    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(
+      /protocol version 3 \(this agent reads versions 1 and 2\)/,
+    );
   });
 
   it('counts a version 2 frame with a version 1 header length as a bad header, naming both', () => {
@@ -287,7 +354,9 @@ describe('frame decoding', () => {
     f[4] = 2;
     const { sink, dec } = decodeAll(f);
     expect(dec.counters.bad_headers).toBe(1);
-    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(/header length 40 below 48 \(version 2\)/);
+    expect(sink.problems.find((p) => p.kind === 'bad_header')?.detail).toMatch(
+      /header length 40 below 48 \(version 2\)/,
+    );
   });
 
   it('rejects intact frames that do not match the configured channel count or sample rate', () => {
@@ -295,11 +364,21 @@ describe('frame decoding', () => {
     const wrongChannels = encodeFrame(content(2, 2 * SPC, { channels: 4 }));
     const wrongRate = encodeFrame(content(3, 3 * SPC, { rate: 51_200 }));
     const after = encodeFrame(content(4, 4 * SPC));
-    const { sink, dec } = decodeAll(concat([...good, wrongChannels, wrongRate, after]), { expect: { channelCount: 3, sampleRateHz: RATE } });
+    const { sink, dec } = decodeAll(concat([...good, wrongChannels, wrongRate, after]), {
+      expect: { channelCount: 3, sampleRateHz: RATE },
+    });
     expect(dec.counters.rejected_frames).toBe(2);
     expect(sink.frames.map((f) => f.sequence)).toEqual([0, 1, 4]);
-    expect(sink.gaps).toEqual([expect.objectContaining({ fromIndex: 2 * SPC, toIndex: 4 * SPC, reason: expect.stringMatching(/2 rejected frame/) })]);
-    expect(sink.problems.map((p) => p.detail).join('\n')).toMatch(/4 channel\(s\), the configuration says 3 \(acquisition.channels\)/);
+    expect(sink.gaps).toEqual([
+      expect.objectContaining({
+        fromIndex: 2 * SPC,
+        toIndex: 4 * SPC,
+        reason: expect.stringMatching(/2 rejected frame/),
+      }),
+    ]);
+    expect(sink.problems.map((p) => p.detail).join('\n')).toMatch(
+      /4 channel\(s\), the configuration says 3 \(acquisition.channels\)/,
+    );
   });
 
   it('rejects non-finite float32 samples', () => {
@@ -313,7 +392,14 @@ describe('frame decoding', () => {
   it('reports a dropped frame as a gap with exact bounds', () => {
     const frames = stream(6, 40);
     const { sink, dec } = decodeAll(concat([frames[0]!, frames[1]!, frames[4]!, frames[5]!]));
-    expect(sink.gaps).toEqual([{ kind: 'gap', fromIndex: 40 + 2 * SPC, toIndex: 40 + 4 * SPC, reason: 'sequence jump 1 -> 4 (2 frame(s) missing)' }]);
+    expect(sink.gaps).toEqual([
+      {
+        kind: 'gap',
+        fromIndex: 40 + 2 * SPC,
+        toIndex: 40 + 4 * SPC,
+        reason: 'sequence jump 1 -> 4 (2 frame(s) missing)',
+      },
+    ]);
     expect(dec.counters.samples_lost).toBe(2 * SPC);
   });
 
@@ -326,14 +412,24 @@ describe('frame decoding', () => {
   });
 
   it('loses no samples when only the sequence jumps, but counts it', () => {
-    const { sink, dec } = decodeAll(concat([encodeFrame(content(5, 0)), encodeFrame(content(9, SPC))]));
+    const { sink, dec } = decodeAll(
+      concat([encodeFrame(content(5, 0)), encodeFrame(content(9, SPC))]),
+    );
     expect(sink.gaps).toEqual([]);
     expect(dec.counters.sequence_anomalies).toBe(1);
   });
 
   it('reports a board-side clock jump with a continuous sequence as a gap', () => {
-    const { sink } = decodeAll(concat([encodeFrame(content(0, 0)), encodeFrame(content(1, SPC + 5))]));
-    expect(sink.gaps).toEqual([expect.objectContaining({ fromIndex: SPC, toIndex: SPC + 5, reason: expect.stringMatching(/board-side overrun/) })]);
+    const { sink } = decodeAll(
+      concat([encodeFrame(content(0, 0)), encodeFrame(content(1, SPC + 5))]),
+    );
+    expect(sink.gaps).toEqual([
+      expect.objectContaining({
+        fromIndex: SPC,
+        toIndex: SPC + 5,
+        reason: expect.stringMatching(/board-side overrun/),
+      }),
+    ]);
   });
 
   it('keeps the output clock increasing across a board restart, estimating the loss from the wall clock', () => {
@@ -349,7 +445,9 @@ describe('frame decoding', () => {
     const gap = sink.gaps[0]!;
     expect(gap.fromIndex).toBe(80_000 + 2 * SPC);
     expect(gap.toIndex - gap.fromIndex).toBe(2 * RATE - SPC);
-    expect(gap.reason).toMatch(/^board sample clock restarted .*; since the last good frame: test: device disconnected$/);
+    expect(gap.reason).toMatch(
+      /^board sample clock restarted .*; since the last good frame: test: device disconnected$/,
+    );
     const after = sink.frames.slice(2);
     expect(after[0]!.startIndex).toBe(gap.toIndex);
     expect(after[1]!.startIndex).toBe(gap.toIndex + SPC);
@@ -361,7 +459,12 @@ describe('frame decoding', () => {
     const v1 = Buffer.from(encodeFrame(content(0, 0, { channels: 2, edges: [3.5] })));
     // Lay out a v1.x frame: 4 extra header bytes, 4 extra bytes per channel entry.
     const header = Buffer.concat([v1.subarray(0, 40), Buffer.from([1, 2, 3, 4])]);
-    const entries = Buffer.concat([v1.subarray(40, 48), Buffer.from([9, 9, 9, 9]), v1.subarray(48, 56), Buffer.from([8, 8, 8, 8])]);
+    const entries = Buffer.concat([
+      v1.subarray(40, 48),
+      Buffer.from([9, 9, 9, 9]),
+      v1.subarray(48, 56),
+      Buffer.from([8, 8, 8, 8]),
+    ]);
     const rest = v1.subarray(56, v1.length - 4);
     const body = Buffer.concat([header, entries, rest]);
     body[5] = 44;
@@ -386,7 +489,13 @@ describe('frame decoding', () => {
     expect(dec.bufferedBytes).toBe(0);
     expect(dec.counters.bytes_skipped).toBe(50);
     dec.push(frames[3]!);
-    expect(sink.gaps).toEqual([expect.objectContaining({ fromIndex: SPC, toIndex: 3 * SPC, reason: expect.stringMatching(/^sequence jump 0 -> 3 .*\/dev\/x: device disconnected/) })]);
+    expect(sink.gaps).toEqual([
+      expect.objectContaining({
+        fromIndex: SPC,
+        toIndex: 3 * SPC,
+        reason: expect.stringMatching(/^sequence jump 0 -> 3 .*\/dev\/x: device disconnected/),
+      }),
+    ]);
   });
 
   it('handles chunks far larger than its buffer', () => {
@@ -402,14 +511,22 @@ describe('frame decoding', () => {
 
 describe('protocol version 2: the board declares its timing', () => {
   const timing = { sampleDelayTicks: 38.5, tachDelayTicks: 2.25, skewTicks: [0, 0.25, 0.5] };
-  const v2 = (seq: number, first: number, t: FrameContent['timing'] = timing, edges: number[] = [first + 5.5]) => encodeFrame({ ...content(seq, first, { edges }), timing: t });
+  const v2 = (
+    seq: number,
+    first: number,
+    t: FrameContent['timing'] = timing,
+    edges: number[] = [first + 5.5],
+  ) => encodeFrame({ ...content(seq, first, { edges }), timing: t });
 
   it('matches the version 2 example frame printed in PROTOCOL.md byte for byte, fields at the offsets given there', () => {
     const doc = readFileSync(new URL('../drivers/serial/PROTOCOL.md', import.meta.url), 'utf8');
     const block = /<!-- example-frame-v2 -->\s*```\n([\s\S]*?)```/.exec(doc);
     expect(block).not.toBeNull();
     const docBytes = Buffer.from(block![1]!.replace(/\s+/g, ''), 'hex');
-    const f = encodeFrame({ ...EXAMPLE_FRAME, timing: { sampleDelayTicks: 38.5, tachDelayTicks: 2, skewTicks: [0, 0.5] } });
+    const f = encodeFrame({
+      ...EXAMPLE_FRAME,
+      timing: { sampleDelayTicks: 38.5, tachDelayTicks: 2, skewTicks: [0, 0.5] },
+    });
     expect(Buffer.from(f).toString('hex')).toBe(docBytes.toString('hex'));
     // Read back field by field at the documented offsets (Node's Buffer readers, not the decoder).
     expect(docBytes[4]).toBe(2);
@@ -420,7 +537,9 @@ describe('protocol version 2: the board declares its timing', () => {
     expect(docBytes.readFloatLE(48 + 8)).toBe(0); // channel 0 skew
     expect(docBytes.readFloatLE(48 + 12 + 8)).toBe(0.5); // channel 1 skew
     expect(docBytes.length).toBe(48 + 2 * 12 + 8 + 3 * 2 * 3 + 4);
-    expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)));
+    expect(docBytes.readUInt32LE(docBytes.length - 4)).toBe(
+      crc32Bitwise(docBytes.subarray(0, docBytes.length - 4)),
+    );
   });
 
   it('gives each channel its delay (ADC delay less skew) and the tach edges as true instants (tach delay removed)', () => {
@@ -431,7 +550,13 @@ describe('protocol version 2: the board declares its timing', () => {
     expect(frames[0]!.tachEdges).toEqual([1000 + 5.5 - 2.25]);
     // Samples decode exactly as in version 1.
     expect(frames[1]!.channels[2]![3]).toBe(voltsAt(2, 1000 + SPC + 3));
-    expect(dec.timing).toMatchObject({ protocolVersion: 2, declared: true, sampleDelayTicks: 38.5, tachDelayTicks: 2.25, maxSkewTicks: 0.5 });
+    expect(dec.timing).toMatchObject({
+      protocolVersion: 2,
+      declared: true,
+      sampleDelayTicks: 38.5,
+      tachDelayTicks: 2.25,
+      maxSkewTicks: 0.5,
+    });
     expect(dec.counters.timing_faults).toBe(0);
   });
 
@@ -443,16 +568,42 @@ describe('protocol version 2: the board declares its timing', () => {
   });
 
   const impossible: [string, FrameContent['timing'], RegExp][] = [
-    ['a negative ADC delay', { ...timing, sampleDelayTicks: -3 }, /sample_delay_ticks -3 outside 0\.\.1024/],
-    ['an ADC delay that is not a number', { ...timing, sampleDelayTicks: NaN }, /sample_delay_ticks NaN/],
-    ['an ADC delay of 5000 ticks', { ...timing, sampleDelayTicks: 5000 }, /sample_delay_ticks 5000 outside/],
-    ['a negative tach delay', { ...timing, tachDelayTicks: -0.5 }, /tach_delay_ticks -0\.5 outside/],
-    ['a skew of a whole sample period', { ...timing, skewTicks: [0, 1, 0.5] }, /channel 1 skew_ticks 1 outside 0 to below 1/],
-    ['a negative skew', { ...timing, skewTicks: [0, 0.25, -0.125] }, /channel 2 skew_ticks -0\.125/],
+    [
+      'a negative ADC delay',
+      { ...timing, sampleDelayTicks: -3 },
+      /sample_delay_ticks -3 outside 0\.\.1024/,
+    ],
+    [
+      'an ADC delay that is not a number',
+      { ...timing, sampleDelayTicks: NaN },
+      /sample_delay_ticks NaN/,
+    ],
+    [
+      'an ADC delay of 5000 ticks',
+      { ...timing, sampleDelayTicks: 5000 },
+      /sample_delay_ticks 5000 outside/,
+    ],
+    [
+      'a negative tach delay',
+      { ...timing, tachDelayTicks: -0.5 },
+      /tach_delay_ticks -0\.5 outside/,
+    ],
+    [
+      'a skew of a whole sample period',
+      { ...timing, skewTicks: [0, 1, 0.5] },
+      /channel 1 skew_ticks 1 outside 0 to below 1/,
+    ],
+    [
+      'a negative skew',
+      { ...timing, skewTicks: [0, 0.25, -0.125] },
+      /channel 2 skew_ticks -0\.125/,
+    ],
   ];
   for (const [what, bad, msg] of impossible) {
     it(`${what}: counted, one clear message, samples kept with the last good declaration`, () => {
-      const { sink, dec } = decodeAll(concat([v2(0, 1000), v2(1, 1000 + SPC, bad), v2(2, 1000 + 2 * SPC, bad)]));
+      const { sink, dec } = decodeAll(
+        concat([v2(0, 1000), v2(1, 1000 + SPC, bad), v2(2, 1000 + 2 * SPC, bad)]),
+      );
       const frames = sink.items.filter((i) => i.kind === 'frame').map((i) => i.frame);
       expect(frames).toHaveLength(3); // monitoring goes on
       expect(dec.counters.timing_faults).toBe(2);
@@ -460,7 +611,9 @@ describe('protocol version 2: the board declares its timing', () => {
       const p = sink.problems.filter((x) => x.kind === 'timing');
       expect(p).toHaveLength(2); // one per frame here; SerialSource logs them once per burst
       expect(p[0]!.detail).toMatch(msg);
-      expect(p[0]!.detail).toMatch(/frame 1: impossible timing declaration .* used with the last good declaration \(sample delay 38\.5 ticks, tach delay 2\.25 ticks\).*PROTOCOL\.md 2\.6/);
+      expect(p[0]!.detail).toMatch(
+        /frame 1: impossible timing declaration .* used with the last good declaration \(sample delay 38\.5 ticks, tach delay 2\.25 ticks\).*PROTOCOL\.md 2\.6/,
+      );
     });
   }
 
@@ -468,15 +621,23 @@ describe('protocol version 2: the board declares its timing', () => {
     const { sink, dec } = decodeAll(v2(0, 1000, { ...timing, sampleDelayTicks: -1 }));
     expect(sink.items.filter((i) => i.kind === 'frame')).toHaveLength(1);
     expect(dec.counters.timing_faults).toBe(1);
-    expect(sink.problems.find((x) => x.kind === 'timing')!.detail).toMatch(/none yet: no delay compensation/);
+    expect(sink.problems.find((x) => x.kind === 'timing')!.detail).toMatch(
+      /none yet: no delay compensation/,
+    );
   });
 
   it('rejects a declared sample rate beyond the tolerance, naming it and the key; accepts one within', () => {
-    const within = decodeAll(encodeFrame(content(0, 0, { rate: RATE * (1 + 80e-6) })), { expect: { sampleRateHz: RATE, sampleRateTolerancePpm: 100 } });
+    const within = decodeAll(encodeFrame(content(0, 0, { rate: RATE * (1 + 80e-6) })), {
+      expect: { sampleRateHz: RATE, sampleRateTolerancePpm: 100 },
+    });
     expect(within.dec.counters.frames_ok).toBe(1);
-    const beyond = decodeAll(encodeFrame(content(0, 0, { rate: RATE * (1 + 150e-6) })), { expect: { sampleRateHz: RATE, sampleRateTolerancePpm: 100 } });
+    const beyond = decodeAll(encodeFrame(content(0, 0, { rate: RATE * (1 + 150e-6) })), {
+      expect: { sampleRateHz: RATE, sampleRateTolerancePpm: 100 },
+    });
     expect(beyond.dec.counters.frames_ok).toBe(0);
     expect(beyond.dec.counters.rejected_frames).toBe(1);
-    expect(beyond.sink.problems.find((p) => p.kind === 'rejected')!.detail).toMatch(/\+150 ppm from the configured 25600 Hz, beyond the tolerance of 100 ppm: .*acquisition\.sample_rate_tolerance_ppm/);
+    expect(beyond.sink.problems.find((p) => p.kind === 'rejected')!.detail).toMatch(
+      /\+150 ppm from the configured 25600 Hz, beyond the tolerance of 100 ppm: .*acquisition\.sample_rate_tolerance_ppm/,
+    );
   });
 });

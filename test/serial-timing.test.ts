@@ -10,7 +10,11 @@ import { ManualClock } from '../agent/clock.js';
 import type { MemoryLogger } from '../agent/log.js';
 import type { AgentRuntime } from '../agent/runtime/runtime.js';
 import { SampleTimeline, type TimeStepKind } from '../agent/runtime/sample-time.js';
-import { BoardEmulator, SineTachSignal, type DeviceWriter } from '../drivers/serial/board-emulator.js';
+import {
+  BoardEmulator,
+  SineTachSignal,
+  type DeviceWriter,
+} from '../drivers/serial/board-emulator.js';
 import type { SerialSource } from '../drivers/serial/serial-source.js';
 import { testConfig } from './support/config.js';
 import { PtyRuntimeRig } from './support/pty-runtime.js';
@@ -29,8 +33,24 @@ afterEach(() => rig.dispose());
 
 function board(firstSample: number, firstSequence: number): BoardEmulator {
   // 1481 r/min, 0.2 V at 40 degrees and 0.1 V at 250 degrees, 10 V IEPE bias on the first channel.
-  const sig = new SineTachSignal(RATE, 1481, [{ amp_v: 0.2, lag_deg: 40, dc_v: 10 }, { amp_v: 0.1, lag_deg: 250 }], firstSample + 37.25);
-  return new BoardEmulator(sig, { sampleRateHz: RATE, samplesPerFrame: SPF, format: 'int24', scaleVPerCount: [2 ** -19, 2 ** -19], tachTimed: true, firstSample, firstSequence });
+  const sig = new SineTachSignal(
+    RATE,
+    1481,
+    [
+      { amp_v: 0.2, lag_deg: 40, dc_v: 10 },
+      { amp_v: 0.1, lag_deg: 250 },
+    ],
+    firstSample + 37.25,
+  );
+  return new BoardEmulator(sig, {
+    sampleRateHz: RATE,
+    samplesPerFrame: SPF,
+    format: 'int24',
+    scaleVPerCount: [2 ** -19, 2 ** -19],
+    tachTimed: true,
+    firstSample,
+    firstSequence,
+  });
 }
 
 interface Stamp {
@@ -44,19 +64,29 @@ interface Stamp {
  * Runs the runtime on the pty while `play` writes frames; returns every message's stamp and the
  * runtime (for its time counters), after `play` has finished and the runtime has stopped.
  */
-async function runWithBoard(play: (w: DeviceWriter) => Promise<void>, wall: () => number = Date.now): Promise<{ stamps: Stamp[]; rt: AgentRuntime; log: MemoryLogger; src: SerialSource }> {
+async function runWithBoard(
+  play: (w: DeviceWriter) => Promise<void>,
+  wall: () => number = Date.now,
+): Promise<{ stamps: Stamp[]; rt: AgentRuntime; log: MemoryLogger; src: SerialSource }> {
   const stamps: Stamp[] = [];
   const { source, writer, runtime } = await rig.start(
     { sampleRateHz: RATE, channels: 2, burstQuietMs: 300, nowMs: wall },
     {
-      config: testConfig([['DE-V', 0, 'DE', 'vertical'], ['DE-H', 1, 'DE', 'horizontal']]),
+      config: testConfig([
+        ['DE-V', 0, 'DE', 'vertical'],
+        ['DE-H', 1, 'DE', 'horizontal'],
+      ]),
       // The runtime's own clock is far from the truth: live times must not come from it.
       clock: new ManualClock(Date.UTC(2020, 0, 1)),
       windowSeconds: 1,
       liveSeconds: 0.5,
       boardTimesTach: true,
-      windowConsumers: [{ onWindow: (_w, at) => void stamps.push({ kind: 'window', atMs: at, wallMs: wall() }) }],
-      liveConsumers: [{ onLive: (_f, at) => void stamps.push({ kind: 'live', atMs: at, wallMs: wall() }) }],
+      windowConsumers: [
+        { onWindow: (_w, at) => void stamps.push({ kind: 'window', atMs: at, wallMs: wall() }) },
+      ],
+      liveConsumers: [
+        { onLive: (_f, at) => void stamps.push({ kind: 'live', atMs: at, wallMs: wall() }) },
+      ],
     },
   );
   await play(writer);
@@ -83,12 +113,18 @@ describe('times from a serial board through a real pty', () => {
   it('a board whose clock has run for 3 hours before the agent starts: live and window times are the wall clock, not 3 h ahead', async () => {
     const threeHours = 3 * 3600 * RATE;
     const b = board(threeHours, 3 * 3600 * 100);
-    const { stamps, rt } = await runWithBoard((w) => realtime(b, w, Math.round(2.5 / (FRAME_MS / 1000))));
+    const { stamps, rt } = await runWithBoard((w) =>
+      realtime(b, w, Math.round(2.5 / (FRAME_MS / 1000))),
+    );
     expect(stamps.filter((s) => s.kind === 'live').length).toBeGreaterThanOrEqual(4);
     expect(stamps.filter((s) => s.kind === 'window').length).toBeGreaterThanOrEqual(2);
     // Before the fix every stamp was 3 h (10 800 000 ms) in the future.
     expect(worstError(stamps)).toBeLessThan(STAMP_TOLERANCE_MS);
-    expect(rt.timeHealth()).toMatchObject({ time_anchors: 1, wall_clock_steps_back: 0, wall_clock_steps_forward: 0 });
+    expect(rt.timeHealth()).toMatchObject({
+      time_anchors: 1,
+      wall_clock_steps_back: 0,
+      wall_clock_steps_forward: 0,
+    });
   });
 
   it('a board restart mid-run (after 1 s of silence) anchors again: times stay on the wall clock', async () => {
@@ -105,7 +141,10 @@ describe('times from a serial board through a real pty', () => {
     expect(restartedAt).toBeGreaterThan(0);
     expect(stamps.slice(restartedAt).length).toBeGreaterThanOrEqual(2);
     expect(worstError(stamps)).toBeLessThan(STAMP_TOLERANCE_MS);
-    expect(log.lines.filter((l) => l.msg.includes('sample clock restarted; times anchored again')).length).toBe(1);
+    expect(
+      log.lines.filter((l) => l.msg.includes('sample clock restarted; times anchored again'))
+        .length,
+    ).toBe(1);
   });
 
   it('the wall clock stepped back 30 s (NTP): one clear message, counted, times follow the wall clock, sampling goes on', async () => {
@@ -119,21 +158,34 @@ describe('times from a serial board through a real pty', () => {
       stepWall = wall();
       await realtime(b, w, 160);
     }, wall);
-    expect(rt.timeHealth()).toMatchObject({ time_anchors: 2, wall_clock_steps_back: 1, wall_clock_steps_forward: 0 });
+    expect(rt.timeHealth()).toMatchObject({
+      time_anchors: 2,
+      wall_clock_steps_back: 1,
+      wall_clock_steps_forward: 0,
+    });
     const warn = log.lines.filter((l) => l.msg.includes('stepped back'));
     expect(warn.length).toBe(1);
     expect(warn[0]!.level).toBe('warn');
-    const stepS = Number(/wall clock is (\d+\.\d{3}) s behind the board's sample clock/.exec(warn[0]!.msg)?.[1]);
+    const stepS = Number(
+      /wall clock is (\d+\.\d{3}) s behind the board's sample clock/.exec(warn[0]!.msg)?.[1],
+    );
     expect(Math.abs(stepS - 30)).toBeLessThan(STAMP_TOLERANCE_MS / 1000); // the 30 s step, less this block's own latency
     // Monitoring went on after the step: live messages kept coming (1.6 s of frames, one each 0.5 s).
-    expect(stamps.filter((s) => s.kind === 'live' && s.wallMs >= stepWall).length).toBeGreaterThanOrEqual(2);
+    expect(
+      stamps.filter((s) => s.kind === 'live' && s.wallMs >= stepWall).length,
+    ).toBeGreaterThanOrEqual(2);
     expect(worstError(stamps)).toBeLessThan(STAMP_TOLERANCE_MS);
   });
 });
 
 describe('SampleTimeline (pure)', () => {
   const fs = 1000;
-  function feed(t: SampleTimeline, fromIndex: number, blocks: number, arrived: (endIndex: number) => number): void {
+  function feed(
+    t: SampleTimeline,
+    fromIndex: number,
+    blocks: number,
+    arrived: (endIndex: number) => number,
+  ): void {
     for (let k = 0; k < blocks; k++) {
       const end = fromIndex + (k + 1) * 100;
       t.observe(end, arrived(end));
@@ -161,7 +213,11 @@ describe('SampleTimeline (pure)', () => {
     feed(t, 2600, 12, (e) => wall0 + e + 5000);
     expect(steps).toEqual(['wall_clock_forward']);
     expect(t.timeOf(3800) - (wall0 + 3800 + 5000)).toBeLessThan(5);
-    expect(t.health()).toMatchObject({ time_anchors: 2, wall_clock_steps_forward: 1, wall_clock_steps_back: 0 });
+    expect(t.health()).toMatchObject({
+      time_anchors: 2,
+      wall_clock_steps_forward: 1,
+      wall_clock_steps_back: 0,
+    });
   });
 
   it('slews out a board crystal 100 ppm slow against the wall clock, within 20 ms over an hour', () => {
@@ -224,20 +280,50 @@ describe('a board declaring its ADC delay, tach delay and channel skew (protocol
     const { source: src, writer } = await rig.start(
       { sampleRateHz: RATE, channels: 4, boardTachEdges: boardTimesTach },
       {
-        config: testConfig([['A', 0, 'DE', 'vertical'], ['B', 1, 'DE', 'horizontal'], ['C', 2, 'NDE', 'vertical']], { tachChannel: 3 }),
+        config: testConfig(
+          [
+            ['A', 0, 'DE', 'vertical'],
+            ['B', 1, 'DE', 'horizontal'],
+            ['C', 2, 'NDE', 'vertical'],
+          ],
+          { tachChannel: 3 },
+        ),
         windowSeconds: 1,
         liveSeconds: 0.5,
         boardTimesTach,
-        windowConsumers: [{ onWindow: (w) => void windows.push(w.channels.map((c) => c.orders['1']!.phase_deg)) }],
+        windowConsumers: [
+          { onWindow: (w) => void windows.push(w.channels.map((c) => c.orders['1']!.phase_deg)) },
+        ],
         liveConsumers: [],
       },
     );
-    const b = new BoardEmulator(new DelayedBoard(), { sampleRateHz: RATE, samplesPerFrame: SPF, format: 'float32', scaleVPerCount: [1, 1, 1, 1], tachTimed: boardTimesTach, ...(declare ? { timing: { sampleDelayTicks: D, tachDelayTicks: boardTimesTach ? T : 0, skewTicks: SKEW } } : {}) });
+    const b = new BoardEmulator(new DelayedBoard(), {
+      sampleRateHz: RATE,
+      samplesPerFrame: SPF,
+      format: 'float32',
+      scaleVPerCount: [1, 1, 1, 1],
+      tachTimed: boardTimesTach,
+      ...(declare
+        ? {
+            timing: {
+              sampleDelayTicks: D,
+              tachDelayTicks: boardTimesTach ? T : 0,
+              skewTicks: SKEW,
+            },
+          }
+        : {}),
+    });
     const frames = Math.ceil((1.1 * RATE) / SPF);
     for (let i = 0; i < frames; i++) await writer.write(b.nextFrame());
     await rig.finish(frames);
     expect(windows.length).toBe(1);
-    if (declare) expect(src.health()).toMatchObject({ protocol_version: 2, sample_delay_ticks: D, max_skew_ticks: 0.75, timing_faults: 0 });
+    if (declare)
+      expect(src.health()).toMatchObject({
+        protocol_version: 2,
+        sample_delay_ticks: D,
+        max_skew_ticks: 0.75,
+        timing_faults: 0,
+      });
     return windows[0]!;
   }
 
@@ -246,7 +332,8 @@ describe('a board declaring its ADC delay, tach delay and channel skew (protocol
     const mode = boardTimesTach ? 'tach timed by the board' : 'tach found on channel 3';
     it(`${mode}: declared, the phases are the true ones within 0.05 degree`, async () => {
       const got = await phases(true, boardTimesTach);
-      for (let c = 0; c < 3; c++) expect(Math.abs(diff(got[c]!, LAG[c]! + 90)), `channel ${c}`).toBeLessThan(0.05);
+      for (let c = 0; c < 3; c++)
+        expect(Math.abs(diff(got[c]!, LAG[c]! + 90)), `channel ${c}`).toBeLessThan(0.05);
     });
     it(`${mode}: the same samples as version 1 frames (no declaration) read late by the delay, as predicted`, async () => {
       const got = await phases(false, boardTimesTach);
@@ -255,7 +342,10 @@ describe('a board declaring its ADC delay, tach delay and channel skew (protocol
         // board-timed edges reported T late move the reference the same way; a tach found on channel 3 carries that channel's delay.
         const readLate = D - SKEW[c]! - (boardTimesTach ? T : D - SKEW[3]!);
         const predicted = (readLate * 360) / SPR;
-        expect(Math.abs(diff(got[c]!, LAG[c]! + 90 + predicted)), `channel ${c}: predicted error ${predicted.toFixed(2)} degrees`).toBeLessThan(0.05);
+        expect(
+          Math.abs(diff(got[c]!, LAG[c]! + 90 + predicted)),
+          `channel ${c}: predicted error ${predicted.toFixed(2)} degrees`,
+        ).toBeLessThan(0.05);
       }
     });
   }

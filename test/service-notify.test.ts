@@ -6,7 +6,11 @@ import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { MemoryLogger } from '../agent/log.js';
 import { MemoryNotifier, NoopNotifier, notifyMessage } from '../agent/service/notifier.js';
-import { createServiceNotifier, SystemdNotifier, watchdogPingMsFromEnv } from '../agent/service/systemd-notifier.js';
+import {
+  createServiceNotifier,
+  SystemdNotifier,
+  watchdogPingMsFromEnv,
+} from '../agent/service/systemd-notifier.js';
 import { WatchdogKeeper } from '../agent/service/watchdog.js';
 import { FakeTimers } from './support/fake-timers.js';
 
@@ -58,7 +62,10 @@ class Receiver {
   async waitFor(n: number, ms = 10_000): Promise<Datagram[]> {
     const deadline = Date.now() + ms;
     while (this.got.length < n) {
-      if (Date.now() > deadline) throw new Error(`expected ${n} datagrams, got ${this.got.length}: ${JSON.stringify(this.got)}`);
+      if (Date.now() > deadline)
+        throw new Error(
+          `expected ${n} datagrams, got ${this.got.length}: ${JSON.stringify(this.got)}`,
+        );
       await new Promise<void>((res) => {
         this.waiters.push(res);
         setTimeout(res, 100);
@@ -84,7 +91,11 @@ function tmpSocket(): string {
 }
 
 function notifier(env: NodeJS.ProcessEnv, logger = new MemoryLogger()): SystemdNotifier {
-  const n = createServiceNotifier({ logger, env: { PATH: process.env.PATH, ...env }, python: PYTHON });
+  const n = createServiceNotifier({
+    logger,
+    env: { PATH: process.env.PATH, ...env },
+    python: PYTHON,
+  });
   expect(n).toBeInstanceOf(SystemdNotifier);
   notifiers.push(n as SystemdNotifier);
   return n as SystemdNotifier;
@@ -94,7 +105,11 @@ describe('sd_notify over a real unix datagram socket', () => {
   it('delivers READY, STATUS, WATCHDOG and STOPPING as systemd expects them, all from one long-lived sender', async () => {
     const path = tmpSocket();
     const rx = await Receiver.start(path);
-    const n = notifier({ NOTIFY_SOCKET: path, WATCHDOG_USEC: '30000000', WATCHDOG_PID: String(process.pid) });
+    const n = notifier({
+      NOTIFY_SOCKET: path,
+      WATCHDOG_USEC: '30000000',
+      WATCHDOG_PID: String(process.pid),
+    });
     expect(n.active).toBe(true);
     expect(n.watchdogPingMs).toBe(15_000); // half of WatchdogSec=30s, sd_watchdog_enabled(3)
     n.ready('watching kessrow-id3a (invented demo fan)');
@@ -151,12 +166,18 @@ describe('sd_notify over a real unix datagram socket', () => {
 
   it('says loudly, without throwing, when python3 cannot be started', async () => {
     const log = new MemoryLogger();
-    const n = createServiceNotifier({ logger: log, env: { NOTIFY_SOCKET: tmpSocket() }, python: '/nonexistent/python3' }) as SystemdNotifier;
+    const n = createServiceNotifier({
+      logger: log,
+      env: { NOTIFY_SOCKET: tmpSocket() },
+      python: '/nonexistent/python3',
+    }) as SystemdNotifier;
     notifiers.push(n);
     n.ready();
     await new Promise((r) => setTimeout(r, 300));
     const err = log.lines.find((l) => l.level === 'error');
-    expect(err?.fields.reason).toMatch(/cannot start \/nonexistent\/python3: spawn \/nonexistent\/python3 ENOENT/);
+    expect(err?.fields.reason).toMatch(
+      /cannot start \/nonexistent\/python3: spawn \/nonexistent\/python3 ENOENT/,
+    );
     await n.close();
   });
 
@@ -165,16 +186,22 @@ describe('sd_notify over a real unix datagram socket', () => {
     const n = notifier({ NOTIFY_SOCKET: tmpSocket() }, log);
     n.ready();
     const deadline = Date.now() + 10_000;
-    while (!log.lines.some((l) => l.level === 'warn') && Date.now() < deadline) await new Promise((r) => setTimeout(r, 50));
+    while (!log.lines.some((l) => l.level === 'warn') && Date.now() < deadline)
+      await new Promise((r) => setTimeout(r, 50));
     const warn = log.lines.find((l) => l.level === 'warn');
-    expect(warn?.msg).toMatch(/^the sd_notify relay could not send a message to systemd \(further "sd-notify-send" problems are counted/);
+    expect(warn?.msg).toMatch(
+      /^the sd_notify relay could not send a message to systemd \(further "sd-notify-send" problems are counted/,
+    );
     expect(warn?.fields.relay_said).toMatch(/No such file or directory/);
   });
 });
 
 describe('service notifier off systemd and from the environment', () => {
   it('is a no-op without NOTIFY_SOCKET (a laptop)', () => {
-    const n = createServiceNotifier({ logger: new MemoryLogger(), env: { WATCHDOG_USEC: '30000000' } });
+    const n = createServiceNotifier({
+      logger: new MemoryLogger(),
+      env: { WATCHDOG_USEC: '30000000' },
+    });
     expect(n).toBeInstanceOf(NoopNotifier);
     expect(n.active).toBe(false);
     expect(n.watchdogPingMs).toBeNull();
@@ -184,12 +211,16 @@ describe('service notifier off systemd and from the environment', () => {
     const log = new MemoryLogger();
     const n = createServiceNotifier({ logger: log, env: { NOTIFY_SOCKET: 'vsock:2:1234' } });
     expect(n.active).toBe(false);
-    expect(log.lines[0]!.msg).toMatch(/NOTIFY_SOCKET is neither a path nor an abstract socket name/);
+    expect(log.lines[0]!.msg).toMatch(
+      /NOTIFY_SOCKET is neither a path nor an abstract socket name/,
+    );
   });
 
   it('reads the watchdog period as sd_watchdog_enabled(3) does', () => {
     expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000' }, 42)).toBe(15_000);
-    expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000', WATCHDOG_PID: '42' }, 42)).toBe(15_000);
+    expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000', WATCHDOG_PID: '42' }, 42)).toBe(
+      15_000,
+    );
     expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000', WATCHDOG_PID: '41' }, 42)).toBeNull(); // meant for another process
     expect(watchdogPingMsFromEnv({}, 42)).toBeNull();
     expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: 'soon' }, 42)).toBeNull();
@@ -217,12 +248,21 @@ describe('WatchdogKeeper', () => {
     timers.advance(60_000);
     expect(n.messages).toHaveLength(5);
     expect(log.lines).toEqual([
-      { level: 'error', msg: expect.stringMatching(/^withholding the systemd watchdog ping: no sample block for 20 s/), fields: { reason: 'no sample block for 20 s' } },
+      {
+        level: 'error',
+        msg: expect.stringMatching(
+          /^withholding the systemd watchdog ping: no sample block for 20 s/,
+        ),
+        fields: { reason: 'no sample block for 20 s' },
+      },
     ]);
     problem = null;
     timers.advance(15_000);
     expect(n.messages).toHaveLength(6);
-    expect(log.lines[1]).toMatchObject({ level: 'info', fields: { was: 'no sample block for 20 s' } });
+    expect(log.lines[1]).toMatchObject({
+      level: 'info',
+      fields: { was: 'no sample block for 20 s' },
+    });
     keeper.stop();
     timers.advance(60_000);
     expect(n.messages).toHaveLength(6);

@@ -25,23 +25,44 @@ describe('balancing the simulated fan', () => {
     /** One run: skip 1 s for the change to settle, then measure 8 s. */
     const measure = async (): Promise<Record<string, Reading>> => {
       for (let i = 0; i < 10; i++) await items.next();
-      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 2560 });
+      const an = new Analyzer({
+        config: cfg,
+        sampleRate: info.sampleRate,
+        channelCount: info.channelCount,
+        maxBlock: 2560,
+      });
       for (let i = 0; i < 80; i++) an.push((await items.next()).value!);
       const w = an.takeWindow();
-      return Object.fromEntries(radial.map((id) => {
-        const v = w.channels.find((c) => c.id === id)!.orders['1']!;
-        return [id, { amp: v.amp_pk_mm_s, phase_deg: v.phase_deg }];
-      }));
+      return Object.fromEntries(
+        radial.map((id) => {
+          const v = w.channels.find((c) => c.id === id)!.orders['1']!;
+          return [id, { amp: v.amp_pk_mm_s, phase_deg: v.phase_deg }];
+        }),
+      );
     };
-    const trial = { mass_g: 100, radius_mm: 760, angle_deg: 0, convention: 'against_rotation' as const };
+    const trial = {
+      mass_g: 100,
+      radius_mm: 760,
+      angle_deg: 0,
+      convention: 'against_rotation' as const,
+    };
 
     const runs: JobRun[] = [{ label: 'as found', weights: [], readings: await measure() }];
     for (const plane of ['back_plate', 'front_shroud']) {
       src.addWeight({ id: `T-${plane}`, plane, ...trial });
-      runs.push({ label: `trial ${plane}`, weights: [{ plane, mass_g: trial.mass_g, angle_deg: trial.angle_deg }], readings: await measure() });
+      runs.push({
+        label: `trial ${plane}`,
+        weights: [{ plane, mass_g: trial.mass_g, angle_deg: trial.angle_deg }],
+        readings: await measure(),
+      });
       src.removeWeight(`T-${plane}`);
     }
-    const result = solveBalanceJob({ angle_convention: 'against_rotation', planes: ['back_plate', 'front_shroud'], runs, amp_unit: 'mm/s pk' });
+    const result = solveBalanceJob({
+      angle_convention: 'against_rotation',
+      planes: ['back_plate', 'front_shroud'],
+      runs,
+      amp_unit: 'mm/s pk',
+    });
     expect(result.problems).toEqual([]);
     expect(result.corrections).toHaveLength(2);
     // what the scenario put there by day 5 15:00 (against rotation, at 760 mm): back plate 55 g at 200 deg;
@@ -50,16 +71,32 @@ describe('balancing the simulated fan', () => {
     const truth = (parts: [number, number][]) => {
       const re = parts.reduce((s, [m, a]) => s + m * Math.cos((a * Math.PI) / 180), 0);
       const im = parts.reduce((s, [m, a]) => s + m * Math.sin((a * Math.PI) / 180), 0);
-      return { mass_g: Math.hypot(re, im), angle_deg: ((Math.atan2(im, re) * 180) / Math.PI + 180 + 360) % 360 };
+      return {
+        mass_g: Math.hypot(re, im),
+        angle_deg: ((Math.atan2(im, re) * 180) / Math.PI + 180 + 360) % 360,
+      };
     };
-    const expected = { back_plate: truth([[55, 200]]), front_shroud: truth([[9, 310], [26.25, 130]]) };
+    const expected = {
+      back_plate: truth([[55, 200]]),
+      front_shroud: truth([
+        [9, 310],
+        [26.25, 130],
+      ]),
+    };
     for (const c of result.corrections) {
       const t = expected[c.plane as keyof typeof expected];
       expect(Math.abs(c.mass_g - t.mass_g)).toBeLessThan(0.5);
       expect(Math.abs(angleDiff(c.angle_deg, t.angle_deg))).toBeLessThan(1);
     }
     for (const c of result.corrections) {
-      src.addWeight({ id: `C-${c.plane}`, plane: c.plane, mass_g: c.mass_g, radius_mm: 760, angle_deg: c.angle_deg, convention: 'against_rotation' });
+      src.addWeight({
+        id: `C-${c.plane}`,
+        plane: c.plane,
+        mass_g: c.mass_g,
+        radius_mm: 760,
+        angle_deg: c.angle_deg,
+        convention: 'against_rotation',
+      });
     }
     const check = await measure();
     for (const id of radial) {

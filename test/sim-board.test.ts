@@ -46,13 +46,29 @@ afterEach(() => {
 
 /** The invented demo config with an acquisition section. */
 function demoConfig(acquisition: Record<string, unknown>): Config {
-  const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<string, unknown>;
+  const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<
+    string,
+    unknown
+  >;
   return validateConfig({ ...raw, acquisition }, 'demo config');
 }
 
 /** Reads an opened source into the measurement core until `seconds` of samples have arrived, then closes it. */
-async function measure(source: SampleSource, info: SourceInfo, cfg: Config, boardTimesTach: boolean, seconds: number): Promise<{ w: WindowResult; gaps: number }> {
-  const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 4096, boardTimesTach, sourceName: info.description });
+async function measure(
+  source: SampleSource,
+  info: SourceInfo,
+  cfg: Config,
+  boardTimesTach: boolean,
+  seconds: number,
+): Promise<{ w: WindowResult; gaps: number }> {
+  const an = new Analyzer({
+    config: cfg,
+    sampleRate: info.sampleRate,
+    channelCount: info.channelCount,
+    maxBlock: 4096,
+    boardTimesTach,
+    sourceName: info.description,
+  });
   let samples = 0;
   let gaps = 0;
   for await (const item of source.items()) {
@@ -65,7 +81,10 @@ async function measure(source: SampleSource, info: SourceInfo, cfg: Config, boar
 }
 
 /** 1x at every sensor equals the model's within 1 % in amplitude and 1 degree in phase; returns the worst errors. */
-function expectModel1x(w: WindowResult, model: readonly { id: string; amp_pk_mm_s: number; phase_deg: number }[]): { amp_pct: number; phase_deg: number } {
+function expectModel1x(
+  w: WindowResult,
+  model: readonly { id: string; amp_pk_mm_s: number; phase_deg: number }[],
+): { amp_pct: number; phase_deg: number } {
   let worstAmp = 0;
   let worstPhase = 0;
   expect(model).toHaveLength(6);
@@ -73,7 +92,10 @@ function expectModel1x(w: WindowResult, model: readonly { id: string; amp_pk_mm_
     const got = w.channels.find((c) => c.id === m.id)!.orders['1']!;
     const amp = Math.abs(got.amp_pk_mm_s / m.amp_pk_mm_s - 1);
     const ph = Math.abs(angleDiff(got.phase_deg, m.phase_deg));
-    expect(amp, `${m.id} 1x amplitude ${got.amp_pk_mm_s} vs model ${m.amp_pk_mm_s} mm/s pk`).toBeLessThan(0.01);
+    expect(
+      amp,
+      `${m.id} 1x amplitude ${got.amp_pk_mm_s} vs model ${m.amp_pk_mm_s} mm/s pk`,
+    ).toBeLessThan(0.01);
     expect(ph, `${m.id} 1x phase ${got.phase_deg} vs model ${m.phase_deg} deg`).toBeLessThan(1);
     worstAmp = Math.max(worstAmp, amp);
     worstPhase = Math.max(worstPhase, ph);
@@ -82,27 +104,37 @@ function expectModel1x(w: WindowResult, model: readonly { id: string; amp_pk_mm_
 }
 
 /** The invented fan at day 5 15:00 playing a board of `channels` int24 inputs in 256-sample frames. */
-function dayFiveBoard(cfg: Config, channels: number, tachTimed: boolean): { sim: FanSimulator; board: BoardEmulator } {
-  const sim = new FanSimulator(resolveScenario(loadScenario('config/example-scenario.yaml'), cfg), { startS: DAY5_1500 * 86400 });
-  const board = new BoardEmulator(new SimBoardSignal(sim, { channelCount: channels, maxBlock: 256 }), {
-    sampleRateHz: sim.sampleRate,
-    samplesPerFrame: 256,
-    format: 'int24',
-    scaleVPerCount: boardScales(sim.plan, channels, 'int24'),
-    tachTimed,
+function dayFiveBoard(
+  cfg: Config,
+  channels: number,
+  tachTimed: boolean,
+): { sim: FanSimulator; board: BoardEmulator } {
+  const sim = new FanSimulator(resolveScenario(loadScenario('config/example-scenario.yaml'), cfg), {
+    startS: DAY5_1500 * 86400,
   });
+  const board = new BoardEmulator(
+    new SimBoardSignal(sim, { channelCount: channels, maxBlock: 256 }),
+    {
+      sampleRateHz: sim.sampleRate,
+      samplesPerFrame: 256,
+      format: 'int24',
+      scaleVPerCount: boardScales(sim.plan, channels, 'int24'),
+      tachTimed,
+    },
+  );
   return { sim, board };
 }
 
 /** Waits until the agent's source has opened the device (so the board can start without losing a frame). */
 async function untilConnected(source: SampleSource, device: string): Promise<void> {
-  for (const t0 = Date.now(); !source.health!().connected; ) {
-    if (Date.now() - t0 > 5000) throw new Error(`the agent did not open ${device}: ${JSON.stringify(source.health!())}`);
+  for (const t0 = Date.now(); !source.health!().connected;) {
+    if (Date.now() - t0 > 5000)
+      throw new Error(`the agent did not open ${device}: ${JSON.stringify(source.health!())}`);
     await new Promise((r) => setTimeout(r, 20));
   }
 }
 
-describe('SimBoardSignal: the simulated fan as the board\'s inputs', () => {
+describe("SimBoardSignal: the simulated fan as the board's inputs", () => {
   const p = testPlan(testScenario({ signal: { noise_rms_g: 0.002 } }));
   const N = 4096;
   /** The simulator rendered straight through: the truth the board must hand out. */
@@ -113,9 +145,10 @@ describe('SimBoardSignal: the simulated fan as the board\'s inputs', () => {
     return { ch, edges: Array.from(sim.edges.subarray(0, n)).filter((t) => t >= 0 && t < N) };
   }
   const ref = reference();
-  const out = (channels: number, n: number) => Array.from({ length: channels }, () => new Float64Array(n));
+  const out = (channels: number, n: number) =>
+    Array.from({ length: channels }, () => new Float64Array(n));
 
-  it('hands out the simulator\'s samples unchanged, and each tach edge in the very call whose samples span it', () => {
+  it("hands out the simulator's samples unchanged, and each tach edge in the very call whose samples span it", () => {
     expect(ref.edges.length).toBeGreaterThan(3);
     // one sample per call: every edge falls between two calls, the case that needs the sample kept back
     for (const size of [1, 256, 1000]) {
@@ -130,14 +163,19 @@ describe('SimBoardSignal: the simulated fan as the board\'s inputs', () => {
           expect(e[i]).toBeLessThan(first + size);
           edges.push(e[i]!);
         }
-        for (let c = 0; c < p.channelCount; c++) for (let i = 0; i < size; i++) if (buf[c]![i] !== ref.ch[c]![first + i]) expect.fail(`size ${size}, channel ${c}, sample ${first + i}: ${buf[c]![i]} != ${ref.ch[c]![first + i]}`);
+        for (let c = 0; c < p.channelCount; c++)
+          for (let i = 0; i < size; i++)
+            if (buf[c]![i] !== ref.ch[c]![first + i])
+              expect.fail(
+                `size ${size}, channel ${c}, sample ${first + i}: ${buf[c]![i]} != ${ref.ch[c]![first + i]}`,
+              );
       }
       const covered = N - (N % size);
       expect(edges, `frames of ${size}`).toEqual(ref.edges.filter((t) => t < covered));
     }
   });
 
-  it('lets the fan turn on through samples the board skips, and goes on when the board\'s clock restarts at 0', () => {
+  it("lets the fan turn on through samples the board skips, and goes on when the board's clock restarts at 0", () => {
     const sig = new SimBoardSignal(new FanSimulator(p), { maxBlock: 256 });
     const buf = out(p.channelCount, 1024);
     const e = new Float64Array(64);
@@ -150,10 +188,12 @@ describe('SimBoardSignal: the simulated fan as the board\'s inputs', () => {
     // the board restarts: its sample 0 is the simulator's 3072, edges on the board's new clock
     k = sig.fill(0, 1024, buf, e);
     expect(buf[0]![0]).toBe(ref.ch[0]![3072]);
-    expect(Array.from(e.subarray(0, k))).toEqual(ref.edges.filter((t) => t >= 3072).map((t) => t - 3072));
+    expect(Array.from(e.subarray(0, k))).toEqual(
+      ref.edges.filter((t) => t >= 3072).map((t) => t - 3072),
+    );
   });
 
-  it('reads 0 V on inputs the channel map does not use, and leaves out channels beyond the board\'s count', () => {
+  it("reads 0 V on inputs the channel map does not use, and leaves out channels beyond the board's count", () => {
     const wide = new SimBoardSignal(new FanSimulator(p), { channelCount: 8 });
     const b8 = out(8, 512).map((c) => c.fill(7));
     wide.fill(0, 512, b8, new Float64Array(16));
@@ -173,13 +213,17 @@ describe('SimBoardSignal: the simulated fan as the board\'s inputs', () => {
     expect(scales[7]).toBeCloseTo(10 / 2 ** 23, 15);
     expect(boardScales(p, 7, 'float32')).toEqual([1, 1, 1, 1, 1, 1, 1]);
     const maxAbs = (c: Float32Array) => c.reduce((m, v) => Math.max(m, Math.abs(v)), 0);
-    for (let c = 0; c < p.channelCount; c++) expect(maxAbs(ref.ch[c]!) / scales[c]!).toBeLessThan(2 ** 23);
+    for (let c = 0; c < p.channelCount; c++)
+      expect(maxAbs(ref.ch[c]!) / scales[c]!).toBeLessThan(2 ** 23);
   });
 });
 
 describe('SocatLink: bytes into a pseudo-terminal made by socat', () => {
   it('never blocks its writer: with nobody reading, whole frames are dropped and counted', async () => {
-    const link = await SocatLink.start({ kind: 'pty', link: join(tempDir(), 'board') }, { maxBacklogBytes: 16 * 1024 });
+    const link = await SocatLink.start(
+      { kind: 'pty', link: join(tempDir(), 'board') },
+      { maxBacklogBytes: 16 * 1024 },
+    );
     try {
       const frame = new Uint8Array(4096);
       let refused = 0;
@@ -197,7 +241,9 @@ describe('SocatLink: bytes into a pseudo-terminal made by socat', () => {
     const link = await SocatLink.start({ kind: 'pty', link: path });
     process.kill(link.pid!, 'SIGTERM');
     await link.exited;
-    expect(() => link.write(new Uint8Array(8))).toThrow(/board: socat stopped unexpectedly \(exit code \d+; its last message: ".*"\)/);
+    expect(() => link.write(new Uint8Array(8))).toThrow(
+      /board: socat stopped unexpectedly \(exit code \d+; its last message: ".*"\)/,
+    );
     expect(existsSync(path)).toBe(false);
   });
 });
@@ -209,10 +255,20 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
     const dir = tempDir();
     const device = join(dir, 'board');
     // a 6-channel board: the tach reaches the agent only as edge times in the frames
-    const cfg = demoConfig({ driver: 'serial', device, sample_rate_hz: 25600, channels: 6, board_tach_edges: true, reconnect_min_ms: 100 });
+    const cfg = demoConfig({
+      driver: 'serial',
+      device,
+      sample_rate_hz: 25600,
+      channels: 6,
+      board_tach_edges: true,
+      reconnect_min_ms: 100,
+    });
     const { sim, board } = dayFiveBoard(cfg, 6, true);
     // a second of frames may wait for socat (as turnwise sim-board allows), so a stall of this process loses nothing
-    const link = await SocatLink.start({ kind: 'pty', link: device }, { maxBacklogBytes: 100 * frameLength(6, 256, 'int24', 0) });
+    const link = await SocatLink.start(
+      { kind: 'pty', link: device },
+      { maxBacklogBytes: 100 * frameLength(6, 256, 'int24', 0) },
+    );
     let stop = false;
     try {
       const log = new MemoryLogger();
@@ -221,7 +277,12 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       const info = await source.open();
       // the board starts once the agent listens, so no frame is dropped at the start
       await untilConnected(source, device);
-      const playing = playRealtime(board, { write: async (b) => void link.write(b) }, (256 / 25600) * 1000, () => stop);
+      const playing = playRealtime(
+        board,
+        { write: async (b) => void link.write(b) },
+        (256 / 25600) * 1000,
+        () => stop,
+      );
       const { w, gaps } = await measure(source, info, cfg, boardTimesTach, MEASURE_S);
       stop = true;
       await playing;
@@ -230,7 +291,9 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       expect(w.revolutions).toBeGreaterThan(140);
       expect(w.speed_rpm).toBeCloseTo(1485, -1);
       const worst = expectModel1x(w, sim.modelOrder(1));
-      console.log(`in process, board-timed tach: ${w.revolutions} revolutions, ${gaps} gap(s), ${link.framesSent} frames sent, ${link.framesDropped} dropped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
+      console.log(
+        `in process, board-timed tach: ${w.revolutions} revolutions, ${gaps} gap(s), ${link.framesSent} frames sent, ${link.framesDropped} dropped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+      );
     } finally {
       stop = true;
       await link.stop();
@@ -242,18 +305,32 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
     const dir = tempDir();
     const device = join(dir, 'board');
     // 7 channels with the tach digitised on channel 6: the tach detector also has to pick up again after each gap
-    const cfg = demoConfig({ driver: 'serial', device, sample_rate_hz: 25600, channels: 7, reconnect_min_ms: 100 });
+    const cfg = demoConfig({
+      driver: 'serial',
+      device,
+      sample_rate_hz: 25600,
+      channels: 7,
+      reconnect_min_ms: 100,
+    });
     const { sim, board } = dayFiveBoard(cfg, 7, false);
     // 600 frames (6 s): 200 garbage bytes after every 7th frame (85 bursts), one bit flipped in every 37th
     // (16 frames); the last frame is intact, so the last damaged one shows as a gap too
     const FRAMES = 600;
     const corrupted: CorruptedFrame[] = [];
-    const faults = new FrameFaults({ garbageEvery: 7, garbageBytes: 200, corruptEvery: 37, seed: 11 }, (f) => corrupted.push(f));
-    const link = await SocatLink.start({ kind: 'pty', link: device }, { maxBacklogBytes: 100 * frameLength(7, 256, 'int24', 0) });
+    const faults = new FrameFaults(
+      { garbageEvery: 7, garbageBytes: 200, corruptEvery: 37, seed: 11 },
+      (f) => corrupted.push(f),
+    );
+    const link = await SocatLink.start(
+      { kind: 'pty', link: device },
+      { maxBacklogBytes: 100 * frameLength(7, 256, 'int24', 0) },
+    );
     let corruptedBytes = 0;
     let written = 0;
     try {
-      const { source, boardTimesTach } = createSource(cfg, join(dir, 'agent.yaml'), { log: new MemoryLogger() });
+      const { source, boardTimesTach } = createSource(cfg, join(dir, 'agent.yaml'), {
+        log: new MemoryLogger(),
+      });
       expect(boardTimesTach).toBe(false);
       const info = await source.open();
       await untilConnected(source, device);
@@ -274,7 +351,14 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
         () => frames >= FRAMES,
       );
       // the agent side: the measurement core, and every block and gap as the source hands them out
-      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 4096, boardTimesTach, sourceName: info.description });
+      const an = new Analyzer({
+        config: cfg,
+        sampleRate: info.sampleRate,
+        channelCount: info.channelCount,
+        maxBlock: 4096,
+        boardTimesTach,
+        sourceName: info.description,
+      });
       const gaps: GapMarker[] = [];
       let next = 0;
       for await (const item of source.items()) {
@@ -295,18 +379,38 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       const w = an.takeWindow();
 
       expect(link.framesDropped).toBe(0);
-      expect(faults).toMatchObject({ frames: FRAMES, garbageBursts: 85, garbageBytes: 85 * 200, corruptedFrames: 16 });
+      expect(faults).toMatchObject({
+        frames: FRAMES,
+        garbageBursts: 85,
+        garbageBytes: 85 * 200,
+        corruptedFrames: 16,
+      });
       // each damaged frame, and only those, is a gap with the frame's exact sample-clock bounds (PROTOCOL.md)
-      expect(gaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(corrupted.map((f) => [f.first_sample, f.first_sample + f.samples]));
-      expect(corrupted.map((f) => f.sequence)).toEqual(Array.from({ length: 16 }, (_, k) => 37 * (k + 1) - 1));
+      expect(gaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(
+        corrupted.map((f) => [f.first_sample, f.first_sample + f.samples]),
+      );
+      expect(corrupted.map((f) => f.sequence)).toEqual(
+        Array.from({ length: 16 }, (_, k) => 37 * (k + 1) - 1),
+      );
       for (const g of gaps) expect(g.reason).toMatch(/1 CRC error/);
       // garbage costs no samples: all of it and the damaged frames are skipped, nothing else
-      expect(h).toMatchObject({ bytes_received: written, frames_ok: FRAMES - 16, crc_errors: 16, bad_lengths: 0, bad_headers: 0, gaps: 16, samples_lost: 16 * 256, bytes_skipped: 85 * 200 + corruptedBytes });
+      expect(h).toMatchObject({
+        bytes_received: written,
+        frames_ok: FRAMES - 16,
+        crc_errors: 16,
+        bad_lengths: 0,
+        bad_headers: 0,
+        gaps: 16,
+        samples_lost: 16 * 256,
+        bytes_skipped: 85 * 200 + corruptedBytes,
+      });
       expect(w.gap_samples).toBe(16 * 256);
       // each gap costs the revolution it falls in and the tach's pick-up after it; the rest is averaged
       expect(w.revolutions).toBeGreaterThan(100);
       const worst = expectModel1x(w, sim.modelOrder(1));
-      console.log(`in process, garbage and bad CRCs: ${w.revolutions} revolutions (${w.revolutions_rejected} rejected), ${gaps.length} gap(s), ${h['crc_errors']} CRC error(s), ${h['resyncs']} resync(s), ${h['bytes_skipped']} bytes skipped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
+      console.log(
+        `in process, garbage and bad CRCs: ${w.revolutions} revolutions (${w.revolutions_rejected} rejected), ${gaps.length} gap(s), ${h['crc_errors']} CRC error(s), ${h['resyncs']} resync(s), ${h['bytes_skipped']} bytes skipped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+      );
     } finally {
       await link.stop();
     }
@@ -317,10 +421,41 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
     const dir = tempDir();
     const device = join(dir, 'sim-board');
     const agentConfig = join(dir, 'agent.yaml');
-    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<string, unknown>;
-    writeFileSync(agentConfig, JSON.stringify({ ...raw, acquisition: { driver: 'serial', device, sample_rate_hz: 25600, channels: 8, reconnect_min_ms: 100 } }));
+    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<
+      string,
+      unknown
+    >;
+    writeFileSync(
+      agentConfig,
+      JSON.stringify({
+        ...raw,
+        acquisition: {
+          driver: 'serial',
+          device,
+          sample_rate_hz: 25600,
+          channels: 8,
+          reconnect_min_ms: 100,
+        },
+      }),
+    );
     // the board has 8 inputs (as in the serial section's example); the channel map uses 0-6
-    const child = spawn(process.execPath, [CLI, 'sim-board', '--scenario', scenarioFile, '--config', agentConfig, '--link', device, '--from-day', String(DAY5_1500), '--json'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(
+      process.execPath,
+      [
+        CLI,
+        'sim-board',
+        '--scenario',
+        scenarioFile,
+        '--config',
+        agentConfig,
+        '--link',
+        device,
+        '--from-day',
+        String(DAY5_1500),
+        '--json',
+      ],
+      { stdio: ['ignore', 'pipe', 'pipe'] },
+    );
     let stdout = '';
     let stderr = '';
     child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
@@ -329,24 +464,43 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
     try {
       const t0 = Date.now();
       while (!/point the agent at it/.test(stderr)) {
-        if (child.exitCode !== null || Date.now() - t0 > 10_000) throw new Error(`sim-board did not start: ${stderr}`);
+        if (child.exitCode !== null || Date.now() - t0 > 10_000)
+          throw new Error(`sim-board did not start: ${stderr}`);
         await new Promise((r) => setTimeout(r, 20));
       }
-      expect(stderr).toContain(`acquisition: {driver: serial, device: ${device}, sample_rate_hz: 25600, channels: 8}`);
+      expect(stderr).toContain(
+        `acquisition: {driver: serial, device: ${device}, sample_rate_hz: 25600, channels: 8}`,
+      );
       const cfg = validateConfig(readYamlFile(agentConfig, 'config', agentConfig), agentConfig);
-      const { source, boardTimesTach } = createSource(cfg, agentConfig, { log: new MemoryLogger() });
+      const { source, boardTimesTach } = createSource(cfg, agentConfig, {
+        log: new MemoryLogger(),
+      });
       expect(boardTimesTach).toBe(false);
-      const { w, gaps } = await measure(source, await source.open(), cfg, boardTimesTach, MEASURE_S);
+      const { w, gaps } = await measure(
+        source,
+        await source.open(),
+        cfg,
+        boardTimesTach,
+        MEASURE_S,
+      );
       child.kill('SIGINT');
       expect(await exited).toBe(0);
-      const summary = JSON.parse(stdout) as { stopped_by: string; socat_exit: number | string; frames_sent: number; channels: number; model_1x_end: OrderVectorModel[] };
+      const summary = JSON.parse(stdout) as {
+        stopped_by: string;
+        socat_exit: number | string;
+        frames_sent: number;
+        channels: number;
+        model_1x_end: OrderVectorModel[];
+      };
       expect(summary).toMatchObject({ stopped_by: 'signal', channels: 8 });
       // the agent measured MEASURE_S seconds from this board, so the board sent at least that many frames
       // (exactly that many when SIGINT lands right after the last one the agent needed)
       expect(summary.frames_sent).toBeGreaterThanOrEqual((MEASURE_S * 25600) / 256);
       expect(w.revolutions).toBeGreaterThan(140);
       const worst = expectModel1x(w, summary.model_1x_end);
-      console.log(`sim-board process, tach on channel 6: ${w.revolutions} revolutions, ${gaps} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
+      console.log(
+        `sim-board process, tach on channel 6: ${w.revolutions} revolutions, ${gaps} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+      );
     } finally {
       if (child.exitCode === null) {
         child.kill('SIGKILL');
@@ -361,14 +515,60 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
 });
 
 describe('turnwise sim-board with faults injected', () => {
-  it('garbage, bad CRCs and a link that vanishes and comes back: the agent reports every loss as a gap with exact bounds, reconnects, and finds the model\'s 1x', async () => {
+  it("garbage, bad CRCs and a link that vanishes and comes back: the agent reports every loss as a gap with exact bounds, reconnects, and finds the model's 1x", async () => {
     const dir = tempDir();
     const device = join(dir, 'sim-board');
     const agentConfig = join(dir, 'agent.yaml');
-    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<string, unknown>;
-    writeFileSync(agentConfig, JSON.stringify({ ...raw, acquisition: { driver: 'serial', device, sample_rate_hz: 25600, channels: 7, reconnect_min_ms: 100, reconnect_max_ms: 200 } }));
-    const args = ['--garbage-every', '5', '--garbage-bytes', '100', '--corrupt-every', '50', '--link-drop-at', '2', '--link-down-s', '1', '--seconds', '12'];
-    const child = spawn(process.execPath, [CLI, 'sim-board', '--scenario', 'config/example-scenario.yaml', '--config', agentConfig, '--link', device, '--from-day', String(DAY5_1500), ...args, '--json'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<
+      string,
+      unknown
+    >;
+    writeFileSync(
+      agentConfig,
+      JSON.stringify({
+        ...raw,
+        acquisition: {
+          driver: 'serial',
+          device,
+          sample_rate_hz: 25600,
+          channels: 7,
+          reconnect_min_ms: 100,
+          reconnect_max_ms: 200,
+        },
+      }),
+    );
+    const args = [
+      '--garbage-every',
+      '5',
+      '--garbage-bytes',
+      '100',
+      '--corrupt-every',
+      '50',
+      '--link-drop-at',
+      '2',
+      '--link-down-s',
+      '1',
+      '--seconds',
+      '12',
+    ];
+    const child = spawn(
+      process.execPath,
+      [
+        CLI,
+        'sim-board',
+        '--scenario',
+        'config/example-scenario.yaml',
+        '--config',
+        agentConfig,
+        '--link',
+        device,
+        '--from-day',
+        String(DAY5_1500),
+        ...args,
+        '--json',
+      ],
+      { stdio: ['ignore', 'pipe', 'pipe'] },
+    );
     let stdout = '';
     let stderr = '';
     child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
@@ -378,7 +578,14 @@ describe('turnwise sim-board with faults injected', () => {
     const { source, boardTimesTach } = createSource(cfg, agentConfig, { log: new MemoryLogger() });
     try {
       const info = await source.open(); // waits for the link to appear, as the agent does
-      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 4096, boardTimesTach, sourceName: info.description });
+      const an = new Analyzer({
+        config: cfg,
+        sampleRate: info.sampleRate,
+        channelCount: info.channelCount,
+        maxBlock: 4096,
+        boardTimesTach,
+        sourceName: info.description,
+      });
       const gaps: GapMarker[] = [];
       let next: number | null = null;
       let first: number | null = null;
@@ -400,7 +607,7 @@ describe('turnwise sim-board with faults injected', () => {
       })();
       expect(await exited).toBe(0);
       // what was written before sim-board ended has been read once the agent goes quiet
-      for (let last = -1; samples !== last; ) {
+      for (let last = -1; samples !== last;) {
         last = samples;
         await new Promise((r) => setTimeout(r, 300));
       }
@@ -408,16 +615,31 @@ describe('turnwise sim-board with faults injected', () => {
       await source.close();
       await reading;
       const w = an.takeWindow();
-      const summary = JSON.parse(stdout) as Record<string, number> & { model_1x_end: OrderVectorModel[] };
-      expect(stderr).toMatch(/faults injected: 100 garbage bytes after every 5 frames; one bit flipped \(bad CRC\) in one frame in 50; the link removed at 2 s of signal and made again 1 s later/);
-      expect(stderr).toMatch(/link dropped at 2\.00 s of signal: .*sim-board removed, made again in 1 s\n[^]*link back at 3\.00 s of signal/);
+      const summary = JSON.parse(stdout) as Record<string, number> & {
+        model_1x_end: OrderVectorModel[];
+      };
+      expect(stderr).toMatch(
+        /faults injected: 100 garbage bytes after every 5 frames; one bit flipped \(bad CRC\) in one frame in 50; the link removed at 2 s of signal and made again 1 s later/,
+      );
+      expect(stderr).toMatch(
+        /link dropped at 2\.00 s of signal: .*sim-board removed, made again in 1 s\n[^]*link back at 3\.00 s of signal/,
+      );
       // 12 s of frames: those from 2 s to 3 s of signal never sent (the link was gone); the rest handed to
       // socat, or dropped whole when the agent was more than a second late to read (rare, on a loaded machine)
-      expect(summary, stdout).toMatchObject({ stopped_by: 'seconds', link_drops: 1, frames_unsent_link_down: 100, garbage_bursts: 220, garbage_bytes: 22_000, frames_corrupted: 22 });
+      expect(summary, stdout).toMatchObject({
+        stopped_by: 'seconds',
+        link_drops: 1,
+        frames_unsent_link_down: 100,
+        garbage_bursts: 220,
+        garbage_bytes: 22_000,
+        frames_corrupted: 22,
+      });
       expect(summary.frames_sent + summary.frames_dropped).toBe(1100);
       // The frames damaged: every 50th handed to the link, i.e. sequence 49, 99, 149, 199 before the drop and
       // (the count going on after the 100 unsent frames) 349, 399, ... 1199 after it.
-      const damaged = Array.from({ length: 1200 }, (_, seq) => seq).filter((seq) => (seq < 200 ? seq + 1 : seq >= 300 ? seq + 1 - 100 : 1) % 50 === 0);
+      const damaged = Array.from({ length: 1200 }, (_, seq) => seq).filter(
+        (seq) => (seq < 200 ? seq + 1 : seq >= 300 ? seq + 1 - 100 : 1) % 50 === 0,
+      );
       expect(damaged).toHaveLength(22);
       // one gap for the link drop: from the last frame before it to the first read after the agent reopened
       const down = gaps.filter((g) => /device disconnected/.test(g.reason));
@@ -427,25 +649,44 @@ describe('turnwise sim-board with faults injected', () => {
       expect(down[0]!.fromIndex % 256).toBe(0);
       expect(down[0]!.toIndex % 256).toBe(0);
       // frames the board dropped whole (none, unless the agent fell a second behind) are gaps of their own
-      const crcGap = /^sequence jump \d+ -> \d+ \(1 frame\(s\) missing\); since the last good frame: 1 CRC error\(s\), 5576 byte\(s\) skipped$/;
+      const crcGap =
+        /^sequence jump \d+ -> \d+ \(1 frame\(s\) missing\); since the last good frame: 1 CRC error\(s\), 5576 byte\(s\) skipped$/;
       const crcGaps = gaps.filter((g) => g !== down[0] && crcGap.test(g.reason));
       const boardDrops = gaps.filter((g) => g !== down[0] && !crcGap.test(g.reason));
-      for (const g of boardDrops) expect(g.reason).toMatch(/^sequence jump \d+ -> \d+ \(\d+ frame\(s\) missing\)/);
-      expect(boardDrops.reduce((n, g) => n + (g.toIndex - g.fromIndex) / 256, 0)).toBeLessThanOrEqual(summary.frames_dropped);
+      for (const g of boardDrops)
+        expect(g.reason).toMatch(/^sequence jump \d+ -> \d+ \(\d+ frame\(s\) missing\)/);
+      expect(
+        boardDrops.reduce((n, g) => n + (g.toIndex - g.fromIndex) / 256, 0),
+      ).toBeLessThanOrEqual(summary.frames_dropped);
       // every CRC gap is one damaged frame, exactly its samples; every damaged frame is one, unless it fell
       // in another gap, before the first frame the agent read (it opens the link a moment after it appears)
       // or is the very last frame (1199: no good frame follows to show its gap)
-      const inOther = (seq: number) => [...down, ...boardDrops].some((g) => seq * 256 >= g.fromIndex && seq * 256 < g.toIndex);
+      const inOther = (seq: number) =>
+        [...down, ...boardDrops].some((g) => seq * 256 >= g.fromIndex && seq * 256 < g.toIndex);
       expect(first!).toBeLessThan(20 * 256);
-      expect(crcGaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(damaged.filter((seq) => seq * 256 > first! && seq * 256 < next! && !inOther(seq)).map((seq) => [seq * 256, (seq + 1) * 256]));
+      expect(crcGaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(
+        damaged
+          .filter((seq) => seq * 256 > first! && seq * 256 < next! && !inOther(seq))
+          .map((seq) => [seq * 256, (seq + 1) * 256]),
+      );
       expect(crcGaps.length).toBeGreaterThanOrEqual(18);
       // CRC failures counted: those gaps, the last frame, and any damaged frame read just before another gap
       // (e.g. frame 199 just before the link drop, its gap then merged into the drop's)
       expect(h['crc_errors']).toBeGreaterThanOrEqual(crcGaps.length + 1);
-      expect(h['crc_errors']).toBeLessThanOrEqual(crcGaps.length + 1 + down.length + boardDrops.length);
-      expect(h).toMatchObject({ reconnects: 1, bad_lengths: 0, bad_headers: 0, rejected_frames: 0, gaps: gaps.length });
+      expect(h['crc_errors']).toBeLessThanOrEqual(
+        crcGaps.length + 1 + down.length + boardDrops.length,
+      );
+      expect(h).toMatchObject({
+        reconnects: 1,
+        bad_lengths: 0,
+        bad_headers: 0,
+        rejected_frames: 0,
+        gaps: gaps.length,
+      });
       const worst = expectModel1x(w, summary.model_1x_end);
-      console.log(`sim-board process with faults: ${w.revolutions} revolutions, ${gaps.length} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`);
+      console.log(
+        `sim-board process with faults: ${w.revolutions} revolutions, ${gaps.length} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+      );
     } finally {
       await source.close();
       if (child.exitCode === null) {
@@ -460,11 +701,29 @@ describe('turnwise sim-board with faults injected', () => {
 describe('turnwise sim-board killed outright', () => {
   it('takes socat with it even while socat is blocked on a full pseudo-terminal nobody reads', async () => {
     const device = join(tempDir(), 'board');
-    const child = spawn(process.execPath, [CLI, 'sim-board', '--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--link', device, '--from-day', '1'], { stdio: 'ignore' });
+    const child = spawn(
+      process.execPath,
+      [
+        CLI,
+        'sim-board',
+        '--scenario',
+        'config/example-scenario.yaml',
+        '--config',
+        'config/example.yaml',
+        '--link',
+        device,
+        '--from-day',
+        '1',
+      ],
+      { stdio: 'ignore' },
+    );
     const exited = new Promise((res) => child.once('exit', res));
-    const socatFor = () => execFileSync('ps', ['-eo', 'args'], { encoding: 'utf8' }).split('\n').filter((l) => l.includes(`link=${device}`));
+    const socatFor = () =>
+      execFileSync('ps', ['-eo', 'args'], { encoding: 'utf8' })
+        .split('\n')
+        .filter((l) => l.includes(`link=${device}`));
     try {
-      for (const t0 = Date.now(); !existsSync(device); ) {
+      for (const t0 = Date.now(); !existsSync(device);) {
         if (Date.now() - t0 > 10_000) throw new Error('sim-board did not make its link');
         await new Promise((r) => setTimeout(r, 20));
       }
@@ -475,8 +734,11 @@ describe('turnwise sim-board killed outright', () => {
       child.kill('SIGKILL');
       await exited;
     }
-    for (const t0 = Date.now(); socatFor().length > 0 || existsSync(device); ) {
-      if (Date.now() - t0 > 5000) throw new Error(`socat outlived sim-board: ${socatFor().join('; ')}; link ${existsSync(device) ? 'still there' : 'gone'}`);
+    for (const t0 = Date.now(); socatFor().length > 0 || existsSync(device);) {
+      if (Date.now() - t0 > 5000)
+        throw new Error(
+          `socat outlived sim-board: ${socatFor().join('; ')}; link ${existsSync(device) ? 'still there' : 'gone'}`,
+        );
       await new Promise((r) => setTimeout(r, 50));
     }
   }, 20_000);
@@ -486,11 +748,45 @@ describe('turnwise sim-board --device: into an existing serial line', () => {
   it('writes intact int16 frames with board-timed tach edges into one end of a pty pair; the agent reads them at the other', async () => {
     const pty = new PtyPair();
     await pty.start();
-    const child = spawn(process.execPath, [CLI, 'sim-board', '--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--device', pty.boardPath, '--baud', '115200', '--from-day', '1', '--format', 'int16', '--tach-edges', '--seconds', '2', '--json'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(
+      process.execPath,
+      [
+        CLI,
+        'sim-board',
+        '--scenario',
+        'config/example-scenario.yaml',
+        '--config',
+        'config/example.yaml',
+        '--device',
+        pty.boardPath,
+        '--baud',
+        '115200',
+        '--from-day',
+        '1',
+        '--format',
+        'int16',
+        '--tach-edges',
+        '--seconds',
+        '2',
+        '--json',
+      ],
+      { stdio: ['ignore', 'pipe', 'pipe'] },
+    );
     let stdout = '';
     child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
     const exited = new Promise<number | null>((res) => child.once('exit', (code) => res(code)));
-    const source = new SerialSource({ device: pty.agentPath, baud: 115_200, sampleRateHz: 25_600, channels: 7, reconnectMinMs: 100, reconnectMaxMs: 400, stallTimeoutMs: 60_000, queueFrames: 1024, maxFrameBytes: 65_536, log: new MemoryLogger() });
+    const source = new SerialSource({
+      device: pty.agentPath,
+      baud: 115_200,
+      sampleRateHz: 25_600,
+      channels: 7,
+      reconnectMinMs: 100,
+      reconnectMaxMs: 400,
+      stallTimeoutMs: 60_000,
+      queueFrames: 1024,
+      maxFrameBytes: 65_536,
+      log: new MemoryLogger(),
+    });
     try {
       await source.open();
       let blocks = 0;
@@ -503,10 +799,22 @@ describe('turnwise sim-board --device: into an existing serial line', () => {
       }
       expect(await exited).toBe(0);
       const h = source.health();
-      expect(h).toMatchObject({ crc_errors: 0, bad_lengths: 0, bad_headers: 0, rejected_frames: 0 });
+      expect(h).toMatchObject({
+        crc_errors: 0,
+        bad_lengths: 0,
+        bad_headers: 0,
+        rejected_frames: 0,
+      });
       // 150 frames of 10 ms at about 24.75 rev/s hold 37 edges, give or take one
       expect(Math.abs(edges - 150 * 0.01 * (1485 / 60))).toBeLessThan(2);
-      expect(JSON.parse(stdout)).toMatchObject({ target: 'device', path: pty.boardPath, format: 'int16', tach_edges_in_frames: true, stopped_by: 'seconds', frames_dropped: 0 });
+      expect(JSON.parse(stdout)).toMatchObject({
+        target: 'device',
+        path: pty.boardPath,
+        format: 'int16',
+        tach_edges_in_frames: true,
+        stopped_by: 'seconds',
+        frames_dropped: 0,
+      });
     } finally {
       await source.close();
       if (child.exitCode === null) child.kill('SIGKILL');
@@ -516,33 +824,82 @@ describe('turnwise sim-board --device: into an existing serial line', () => {
 });
 
 describe('turnwise sim-board: bad input', () => {
-  const base = ['sim-board', '--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--seconds', '0.2'];
+  const base = [
+    'sim-board',
+    '--scenario',
+    'config/example-scenario.yaml',
+    '--config',
+    'config/example.yaml',
+    '--seconds',
+    '0.2',
+  ];
 
   it('says to install socat when it is missing', () => {
     const r = runCli([...base, '--link', join(tempDir(), 'b')], { env: { PATH: tempDir() } });
     expect(r.code).toBe(2);
-    expect(r.stderr).toMatch(/socat is not installed .*\n\s+-> install socat \(Debian\/Ubuntu: apt-get install socat\)/);
+    expect(r.stderr).toMatch(
+      /socat is not installed .*\n\s+-> install socat \(Debian\/Ubuntu: apt-get install socat\)/,
+    );
     expectNoStack(r.stderr);
   });
 
-  it('refuses a board without room for the channel map, a board the agent\'s config contradicts, a link path in use and a bad option', () => {
+  it("refuses a board without room for the channel map, a board the agent's config contradicts, a link path in use and a bad option", () => {
     const dir = tempDir();
     const cfgFile = join(dir, 'agent.yaml');
-    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<string, unknown>;
-    writeFileSync(cfgFile, JSON.stringify({ ...raw, acquisition: { driver: 'serial', device: '/dev/null', sample_rate_hz: 51200, channels: 8 } }));
+    const raw = readYamlFile('config/example.yaml', 'config', 'config/example.yaml') as Record<
+      string,
+      unknown
+    >;
+    writeFileSync(
+      cfgFile,
+      JSON.stringify({
+        ...raw,
+        acquisition: { driver: 'serial', device: '/dev/null', sample_rate_hz: 51200, channels: 8 },
+      }),
+    );
     const taken = join(dir, 'taken');
     writeFileSync(taken, 'not a link');
-    const withCfg = ['sim-board', '--scenario', 'config/example-scenario.yaml', '--config', cfgFile];
+    const withCfg = [
+      'sim-board',
+      '--scenario',
+      'config/example-scenario.yaml',
+      '--config',
+      cfgFile,
+    ];
     const cases: [string[], RegExp | string][] = [
-      [[...base, '--channels', '6'], /turnwise sim-board --channels: the board would send 6 channel\(s\), but the config uses channel 6 \(sensors and tach\)\n\s+-> send at least 7 channels, or let the board time the tach \(--tach-edges\)/],
-      [[...withCfg, '--channels', '7'], `turnwise sim-board --channels: is 7 but ${cfgFile} tells the agent to expect 8 (acquisition.channels); the agent would reject every frame`],
-      [withCfg, `${cfgFile}: acquisition.sample_rate_hz: is 51200 Hz but the scenario samples at 25600 Hz`],
-      [[...base, '--link', taken], /taken: already exists and is not a link to a pseudo-terminal\n\s+-> choose another --link path/],
-      [[...base, '--link', join(dir, 'b'), '--format', 'int12'], /--format: expected one of int24, int16, float32, got "int12"/],
+      [
+        [...base, '--channels', '6'],
+        /turnwise sim-board --channels: the board would send 6 channel\(s\), but the config uses channel 6 \(sensors and tach\)\n\s+-> send at least 7 channels, or let the board time the tach \(--tach-edges\)/,
+      ],
+      [
+        [...withCfg, '--channels', '7'],
+        `turnwise sim-board --channels: is 7 but ${cfgFile} tells the agent to expect 8 (acquisition.channels); the agent would reject every frame`,
+      ],
+      [
+        withCfg,
+        `${cfgFile}: acquisition.sample_rate_hz: is 51200 Hz but the scenario samples at 25600 Hz`,
+      ],
+      [
+        [...base, '--link', taken],
+        /taken: already exists and is not a link to a pseudo-terminal\n\s+-> choose another --link path/,
+      ],
+      [
+        [...base, '--link', join(dir, 'b'), '--format', 'int12'],
+        /--format: expected one of int24, int16, float32, got "int12"/,
+      ],
       [[...base, '--link', join(dir, 'b'), '--baud', '9600'], /--baud applies to --device only/],
-      [[...base, '--link', join(dir, 'b,c')], /b,c: socat cannot take a path with "," or "!" in it\n\s+-> choose a path without them/],
-      [[...base, '--device', '/dev/null', '--link-drop-at', '1'], /--link-drop-at needs the pseudo-terminal \(--link\): a serial device given with --device cannot be removed and made again/],
-      [[...base, '--link', join(dir, 'b'), '--garbage-every', '0'], /turnwise sim-board --garbage-every: expected a whole number of frames from 1 to 1000000, got "0"/],
+      [
+        [...base, '--link', join(dir, 'b,c')],
+        /b,c: socat cannot take a path with "," or "!" in it\n\s+-> choose a path without them/,
+      ],
+      [
+        [...base, '--device', '/dev/null', '--link-drop-at', '1'],
+        /--link-drop-at needs the pseudo-terminal \(--link\): a serial device given with --device cannot be removed and made again/,
+      ],
+      [
+        [...base, '--link', join(dir, 'b'), '--garbage-every', '0'],
+        /turnwise sim-board --garbage-every: expected a whole number of frames from 1 to 1000000, got "0"/,
+      ],
     ];
     for (const [args, want] of cases) {
       const r = runCli(args);

@@ -16,9 +16,22 @@ describe('measurement core on the simulated fan', () => {
 
   for (const boardTimesTach of [false, true]) {
     it(`finds the model's 1x at every sensor, tach ${boardTimesTach ? 'timed by the board' : 'found on its channel'} (day 5 15:00 of the invented Kessrow fan)`, async () => {
-      const src = new SimSource(plan, { startS: 5.625 * 86400, blockSamples: 2560, pace: 'fast', totalSamples: 10 * 25600, boardTachEdges: boardTimesTach });
+      const src = new SimSource(plan, {
+        startS: 5.625 * 86400,
+        blockSamples: 2560,
+        pace: 'fast',
+        totalSamples: 10 * 25600,
+        boardTachEdges: boardTimesTach,
+      });
       const info = await src.open();
-      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 2560, totalSamples: info.totalSamples, boardTimesTach });
+      const an = new Analyzer({
+        config: cfg,
+        sampleRate: info.sampleRate,
+        channelCount: info.channelCount,
+        maxBlock: 2560,
+        totalSamples: info.totalSamples,
+        boardTimesTach,
+      });
       for await (const item of src.items()) an.push(item);
       const w = an.takeWindow();
       expect(w.revolutions).toBeGreaterThan(240);

@@ -9,7 +9,14 @@ import { FanSimulator, type SimulatorOptions } from '../drivers/sim/simulator.js
 
 export const FS = 25600;
 
-export function testConfig(over: { rotor?: 'centre_hung' | 'overhung'; bias?: boolean; fullScale?: number; mounting?: number } = {}): Config {
+export function testConfig(
+  over: {
+    rotor?: 'centre_hung' | 'overhung';
+    bias?: boolean;
+    fullScale?: number;
+    mounting?: number;
+  } = {},
+): Config {
   const sensor = (id: string, channel: number, bearing: string, direction: string) => ({
     id,
     channel,
@@ -21,7 +28,14 @@ export function testConfig(over: { rotor?: 'centre_hung' | 'overhung'; bias?: bo
     ...(over.mounting !== undefined && id === 'NDE-V' ? { mounting_angle_deg: over.mounting } : {}),
   });
   return validateConfig({
-    machine: { id: 'test-fan', group: 2, support: 'rigid', rated_rpm: 1500, blades: 10, rotor: over.rotor ?? 'centre_hung' },
+    machine: {
+      id: 'test-fan',
+      group: 2,
+      support: 'rigid',
+      rated_rpm: 1500,
+      blades: 10,
+      rotor: over.rotor ?? 'centre_hung',
+    },
     tach: { channel: 6, trigger_v: 2.5 },
     sensors: [
       sensor('DE-V', 0, 'DE', 'vertical'),
@@ -65,12 +79,24 @@ export function testScenario(over: Record<string, unknown> = {}): Record<string,
   };
 }
 
-export function plan(scenario: Record<string, unknown> = testScenario(), cfg: Config = testConfig()): SimPlan {
-  return resolveScenario(validateScenario(scenario, 'test-scenario'), cfg, 'test-scenario', 'test-config');
+export function plan(
+  scenario: Record<string, unknown> = testScenario(),
+  cfg: Config = testConfig(),
+): SimPlan {
+  return resolveScenario(
+    validateScenario(scenario, 'test-scenario'),
+    cfg,
+    'test-scenario',
+    'test-config',
+  );
 }
 
 /** Renders `count` samples of every channel. */
-export function render(p: SimPlan, count: number, opts: SimulatorOptions = {}): { sim: FanSimulator; ch: Float32Array[]; edges: Float64Array } {
+export function render(
+  p: SimPlan,
+  count: number,
+  opts: SimulatorOptions = {},
+): { sim: FanSimulator; ch: Float32Array[]; edges: Float64Array } {
   const sim = new FanSimulator(p, opts);
   const ch = Array.from({ length: p.channelCount }, () => new Float32Array(count));
   const n = sim.render(ch, count);
@@ -82,7 +108,13 @@ export function render(p: SimPlan, count: number, opts: SimulatorOptions = {}): 
  * returns the one-sided complex amplitude X such that x[n] ~ Re{X e^{i 2 pi f (n - t0)}}, i.e.
  * amplitude |X| and phase lag -arg X. Sums over samples [from, from + count).
  */
-export function dft(x: ArrayLike<number>, from: number, count: number, f: number, t0 = 0): { re: number; im: number; amp: number; lagDeg: number } {
+export function dft(
+  x: ArrayLike<number>,
+  from: number,
+  count: number,
+  f: number,
+  t0 = 0,
+): { re: number; im: number; amp: number; lagDeg: number } {
   let re = 0;
   let im = 0;
   for (let n = from; n < from + count; n++) {
@@ -100,7 +132,8 @@ export function dft(x: ArrayLike<number>, from: number, count: number, f: number
 export function risingEdges(x: ArrayLike<number>, level: number): number[] {
   const out: number[] = [];
   for (let n = 1; n < x.length; n++) {
-    if (x[n - 1]! < level && x[n]! >= level) out.push(n - 1 + (level - x[n - 1]!) / (x[n]! - x[n - 1]!));
+    if (x[n - 1]! < level && x[n]! >= level)
+      out.push(n - 1 + (level - x[n - 1]!) / (x[n]! - x[n - 1]!));
   }
   return out;
 }

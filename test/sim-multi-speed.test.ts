@@ -20,7 +20,10 @@ describe('multi-speed balancing of the simulated fan', () => {
     const t0 = parseAt('day 5 15:00')!;
     const changeAt = (k: number) => t0 + 10 + 240 * k; // s: a speed step every 4 minutes, 10 s ramps
     // the job's three speeds, then the same three again for the check runs with the correction in
-    const events = [...speeds, ...speeds].map((rpm, k) => ({ at: changeAt(k), speed: { rpm, ramp_s: 10 } }) as (typeof scenario.timeline)[number]);
+    const events = [...speeds, ...speeds].map(
+      (rpm, k) =>
+        ({ at: changeAt(k), speed: { rpm, ramp_s: 10 } }) as (typeof scenario.timeline)[number],
+    );
     const at = scenario.timeline.findIndex((e) => e.at > t0);
     scenario.timeline.splice(at < 0 ? scenario.timeline.length : at, 0, ...events);
     const plan = resolveScenario(scenario, cfg);
@@ -34,16 +37,28 @@ describe('multi-speed balancing of the simulated fan', () => {
     /** One run: skip 1 s to settle, measure 8 s. */
     const measure = async (): Promise<{ readings: Record<string, Reading>; rpm: number }> => {
       for (let i = 0; i < 10; i++) await items.next();
-      const an = new Analyzer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock: 2560 });
+      const an = new Analyzer({
+        config: cfg,
+        sampleRate: info.sampleRate,
+        channelCount: info.channelCount,
+        maxBlock: 2560,
+      });
       for (let i = 0; i < 80; i++) an.push((await items.next()).value!);
       const w = an.takeWindow();
-      const readings = Object.fromEntries(radial.map((id) => {
-        const v = w.channels.find((c) => c.id === id)!.orders['1']!;
-        return [id, { amp: v.amp_pk_mm_s, phase_deg: v.phase_deg }];
-      }));
+      const readings = Object.fromEntries(
+        radial.map((id) => {
+          const v = w.channels.find((c) => c.id === id)!.orders['1']!;
+          return [id, { amp: v.amp_pk_mm_s, phase_deg: v.phase_deg }];
+        }),
+      );
       return { readings, rpm: w.speed_rpm! };
     };
-    const trial = { mass_g: 100, radius_mm: 760, angle_deg: 0, convention: 'against_rotation' as const };
+    const trial = {
+      mass_g: 100,
+      radius_mm: 760,
+      angle_deg: 0,
+      convention: 'against_rotation' as const,
+    };
     const groups: SpeedGroup[] = [];
     for (const [k, rpm] of speeds.entries()) {
       await until(changeAt(k) + 15);
@@ -52,12 +67,22 @@ describe('multi-speed balancing of the simulated fan', () => {
       const runs: JobRun[] = [{ label: 'as found', weights: [], readings: asFound.readings }];
       for (const plane of ['back_plate', 'front_shroud']) {
         src.addWeight({ id: `T-${plane}`, plane, ...trial });
-        runs.push({ label: `trial ${plane}`, weights: [{ plane, mass_g: trial.mass_g, angle_deg: 0 }], readings: (await measure()).readings });
+        runs.push({
+          label: `trial ${plane}`,
+          weights: [{ plane, mass_g: trial.mass_g, angle_deg: 0 }],
+          readings: (await measure()).readings,
+        });
         src.removeWeight(`T-${plane}`);
       }
       groups.push({ speed_rpm: rpm, runs });
     }
-    const r = solveMultiSpeed({ angle_convention: 'against_rotation', planes: ['back_plate', 'front_shroud'], amp_unit: 'mm/s pk', radius_mm: { back_plate: 760, front_shroud: 760 }, speeds: groups });
+    const r = solveMultiSpeed({
+      angle_convention: 'against_rotation',
+      planes: ['back_plate', 'front_shroud'],
+      amp_unit: 'mm/s pk',
+      radius_mm: { back_plate: 760, front_shroud: 760 },
+      speeds: groups,
+    });
     expect(r.problems).toEqual([]);
     for (const s of r.speeds) expect(s.residual_share!).toBeLessThan(0.05);
     // what the scenario put there by day 5 15:00 (against rotation, 760 mm), turned 180 deg: back plate
@@ -67,14 +92,26 @@ describe('multi-speed balancing of the simulated fan', () => {
     expect(Math.abs(((r.corrections[0]!.angle_deg - 20 + 540) % 360) - 180)).toBeLessThan(1);
     expect(Math.abs(r.corrections[1]!.mass_g - 17.25)).toBeLessThan(0.5);
     expect(Math.abs(((r.corrections[1]!.angle_deg - 310 + 540) % 360) - 180)).toBeLessThan(2);
-    for (const c of r.corrections) src.addWeight({ id: `C-${c.plane}`, plane: c.plane, mass_g: c.mass_g, radius_mm: 760, angle_deg: c.angle_deg, convention: 'against_rotation' });
+    for (const c of r.corrections)
+      src.addWeight({
+        id: `C-${c.plane}`,
+        plane: c.plane,
+        mass_g: c.mass_g,
+        radius_mm: 760,
+        angle_deg: c.angle_deg,
+        convention: 'against_rotation',
+      });
     // check runs at every speed with the one correction in
     const shares: number[] = [];
     for (const [k, rpm] of speeds.entries()) {
       await until(changeAt(speeds.length + k) + 15);
       const check = await measure();
       expect(Math.abs(check.rpm - rpm)).toBeLessThan(10);
-      shares.push(Math.max(...radial.map((id) => check.readings[id]!.amp / groups[k]!.runs[0]!.readings[id]!.amp)));
+      shares.push(
+        Math.max(
+          ...radial.map((id) => check.readings[id]!.amp / groups[k]!.runs[0]!.readings[id]!.amp),
+        ),
+      );
     }
     console.log(
       `multi-speed on the simulator: corrections ${r.corrections.map((c) => `${c.plane} ${c.mass_g.toFixed(1)} g at ${c.angle_deg.toFixed(1)} deg`).join(', ')}; ` +

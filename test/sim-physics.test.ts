@@ -60,7 +60,8 @@ describe('physics of the simulated rotor', () => {
     expect(magnitude(res)).toBeCloseTo(1 / (2 * 0.05 * 30e6), 15);
     expect(lagDeg(res)).toBeCloseTo(90, 9);
     // below the first critical speed the high spot lags the heavy spot by less than 90 deg (textbook rotor dynamics, from memory)
-    for (const hz of [5, 20, 35, 39]) expect(lagDeg(receptance(s, 2 * Math.PI * hz))).toBeLessThan(90);
+    for (const hz of [5, 20, 35, 39])
+      expect(lagDeg(receptance(s, 2 * Math.PI * hz))).toBeLessThan(90);
     expect(lagDeg(receptance(s, 2 * Math.PI * 60))).toBeGreaterThan(90);
   });
 
@@ -89,7 +90,11 @@ describe('physics of the simulated rotor', () => {
 
   it('keeps influence coefficients constant at constant speed, and a weight moved by D deg against rotation moves the phase lag by +D', () => {
     const base = [u(40, 30), ZERO];
-    const trial = (angle: number) => sub(unbalanceVelocity(g, NDE_H, [add(base[0]!, u(25, angle)), ZERO], omega), unbalanceVelocity(g, NDE_H, base, omega));
+    const trial = (angle: number) =>
+      sub(
+        unbalanceVelocity(g, NDE_H, [add(base[0]!, u(25, angle)), ZERO], omega),
+        unbalanceVelocity(g, NDE_H, base, omega),
+      );
     const h0 = div(trial(0), u(25, 0));
     const h1 = div(trial(137), u(25, 137));
     expect(magnitude(sub(h0, h1))).toBeLessThan(1e-12 * magnitude(h0));
@@ -109,7 +114,7 @@ describe('physics of the simulated rotor', () => {
     const after = unbalanceVelocity(g, DE_V, [add(as[0]!, w), ZERO], omega);
     expect(magnitude(after)).toBeLessThan(1e-9 * magnitude(v0));
     // the correction is the unbalance itself, turned 180 deg: 40 g at 210 deg
-    expect(magnitude(w) / (0.76e-3)).toBeCloseTo(40, 6);
+    expect(magnitude(w) / 0.76e-3).toBeCloseTo(40, 6);
     expect(angleDiff(lagDeg(w), 210)).toBeCloseTo(0, 6);
   });
 
@@ -127,18 +132,49 @@ describe('physics of the simulated rotor', () => {
 
   it('reads static unbalance in phase at both bearings and couple unbalance 180 deg apart (common practice)', () => {
     // symmetric rotor so both bearings have the same supports: planes at 1000 and 1400, centre of mass at 1200
-    const sym = plan(testScenario({ rotor: { ...(testScenario().rotor as object), planes: [{ name: 'P1', position_mm: 1000 }, { name: 'P2', position_mm: 1400 }], centre_of_mass_mm: 1200 } }));
+    const sym = plan(
+      testScenario({
+        rotor: {
+          ...(testScenario().rotor as object),
+          planes: [
+            { name: 'P1', position_mm: 1000 },
+            { name: 'P2', position_mm: 1400 },
+          ],
+          centre_of_mass_mm: 1200,
+        },
+      }),
+    );
     const gs = sym.geometry;
     const stat = [u(30, 70), u(30, 70)];
     const couple = [u(30, 70), u(30, 250)];
-    for (const [a, b] of [[DE_V, NDE_V], [DE_H, NDE_H]] as const) {
-      expect(Math.abs(angleDiff(lagDeg(unbalanceVelocity(gs, a, stat, omega)), lagDeg(unbalanceVelocity(gs, b, stat, omega))))).toBeLessThan(1);
-      expect(Math.abs(angleDiff(lagDeg(unbalanceVelocity(gs, a, couple, omega)), lagDeg(unbalanceVelocity(gs, b, couple, omega))))).toBeGreaterThan(179);
+    for (const [a, b] of [
+      [DE_V, NDE_V],
+      [DE_H, NDE_H],
+    ] as const) {
+      expect(
+        Math.abs(
+          angleDiff(
+            lagDeg(unbalanceVelocity(gs, a, stat, omega)),
+            lagDeg(unbalanceVelocity(gs, b, stat, omega)),
+          ),
+        ),
+      ).toBeLessThan(1);
+      expect(
+        Math.abs(
+          angleDiff(
+            lagDeg(unbalanceVelocity(gs, a, couple, omega)),
+            lagDeg(unbalanceVelocity(gs, b, couple, omega)),
+          ),
+        ),
+      ).toBeGreaterThan(179);
     }
   });
 
   it('reads horizontal and vertical about 90 deg apart, H/V ratio below 3 (common practice)', () => {
-    for (const [v, h] of [[DE_V, DE_H], [NDE_V, NDE_H]] as const) {
+    for (const [v, h] of [
+      [DE_V, DE_H],
+      [NDE_V, NDE_H],
+    ] as const) {
       const uu = [u(40, 30), u(10, 300)];
       const vv = unbalanceVelocity(g, v, uu, omega);
       const hh = unbalanceVelocity(g, h, uu, omega);
@@ -162,7 +198,10 @@ describe('physics of the simulated rotor', () => {
       testScenario({
         rotor: {
           ...(testScenario().rotor as object),
-          bearings: [{ name: 'DE', position_mm: 0 }, { name: 'NDE', position_mm: 900 }],
+          bearings: [
+            { name: 'DE', position_mm: 0 },
+            { name: 'NDE', position_mm: 900 },
+          ],
           planes: [{ name: 'P1', position_mm: 1500 }],
           unbalance: [],
           support: {
@@ -182,11 +221,21 @@ describe('physics of the simulated rotor', () => {
     const a1 = unbalanceVelocity(over, A1, uu, omega);
     // in phase up to the difference of the two housings' own lags (their supports carry different loads)
     expect(Math.abs(angleDiff(lagDeg(a0), lagDeg(a1)))).toBeLessThan(20);
-    const radialNear = unbalanceVelocity(over, { bearing: 1, direction: 'vertical', mounting_angle_deg: 0 }, uu, omega);
+    const radialNear = unbalanceVelocity(
+      over,
+      { bearing: 1, direction: 'vertical', mounting_angle_deg: 0 },
+      uu,
+      omega,
+    );
     expect(magnitude(a0) / magnitude(radialNear)).toBeGreaterThan(0.3);
     // centre-hung: axial is a few per cent of radial
     const ch = [u(40, 30), ZERO];
-    const axialCh = unbalanceVelocity(g, { bearing: 0, direction: 'axial', mounting_angle_deg: 0 }, ch, omega);
+    const axialCh = unbalanceVelocity(
+      g,
+      { bearing: 0, direction: 'axial', mounting_angle_deg: 0 },
+      ch,
+      omega,
+    );
     expect(magnitude(axialCh) / magnitude(unbalanceVelocity(g, DE_V, ch, omega))).toBeLessThan(0.1);
   });
 

@@ -29,7 +29,12 @@ const rotor = testScenario().rotor as Record<string, unknown>;
 
 describe('the demo scenario (invented Kessrow Board Mill fan ID-3A)', () => {
   const cfg = loadConfig('config/example.yaml');
-  const p = resolveScenario(loadScenario('config/example-scenario.yaml'), cfg, 'config/example-scenario.yaml', 'config/example.yaml');
+  const p = resolveScenario(
+    loadScenario('config/example-scenario.yaml'),
+    cfg,
+    'config/example-scenario.yaml',
+    'config/example.yaml',
+  );
 
   it('matches the example config: 7 channels, tach on 6, 25.6 kHz, 850 kg rotor at 1485 r/min', () => {
     expect(p.channelCount).toBe(7);
@@ -40,8 +45,9 @@ describe('the demo scenario (invented Kessrow Board Mill fan ID-3A)', () => {
     expect(loadScenario('config/example-scenario.yaml').rotor.mass_kg).toBe(850);
   });
 
-  it('tells the week\'s story: balanced at commissioning, build-up moves the 1x from day 3, the thrown weight on day 5 raises it more than 2.5 times', () => {
-    const oneX = (day: number) => new FanSimulator(p, { startS: day * 86400 }).modelOrder(1).find((v) => v.id === 'NDE-H')!;
+  it("tells the week's story: balanced at commissioning, build-up moves the 1x from day 3, the thrown weight on day 5 raises it more than 2.5 times", () => {
+    const oneX = (day: number) =>
+      new FanSimulator(p, { startS: day * 86400 }).modelOrder(1).find((v) => v.id === 'NDE-H')!;
     const d1 = oneX(1);
     const d3 = oneX(3);
     const d5 = oneX(5.5);
@@ -55,7 +61,10 @@ describe('the demo scenario (invented Kessrow Board Mill fan ID-3A)', () => {
 
   it('reports the events of the timeline as they take effect', () => {
     const seen: string[] = [];
-    const sim = new FanSimulator(p, { startS: 5 * 86400 + 14 * 3600 + 19 * 60 + 58, onEvent: (e) => seen.push(e.text) });
+    const sim = new FanSimulator(p, {
+      startS: 5 * 86400 + 14 * 3600 + 19 * 60 + 58,
+      onEvent: (e) => seen.push(e.text),
+    });
     const ch = Array.from({ length: 7 }, () => new Float32Array(25600 * 3));
     sim.render(ch, ch[0]!.length);
     expect(seen).toEqual(['day 5 14:20:00 weight W1 thrown']);
@@ -68,12 +77,16 @@ describe('timeline state', () => {
       testScenario({
         rotor: { ...rotor, unbalance: [] },
         timeline: [
-          { at: 'day 1', build_up: { plane: 'P2', mass_g_per_day: 12, radius_mm: 500, angle_deg: 90 } },
+          {
+            at: 'day 1',
+            build_up: { plane: 'P2', mass_g_per_day: 12, radius_mm: 500, angle_deg: 90 },
+          },
           { at: 'day 3', build_up_shed: { plane: 'P2', fraction: 0.25 } },
         ],
       }),
     );
-    const u = (day: number) => new FanSimulator(p, { startS: day * 86400 }).state.unbalance(day * 86400)[1]!;
+    const u = (day: number) =>
+      new FanSimulator(p, { startS: day * 86400 }).state.unbalance(day * 86400)[1]!;
     expect(magnitude(u(0.5))).toBe(0);
     expect(magnitude(u(2))).toBeCloseTo(12e-3 * 0.5, 12);
     expect(lagDeg(u(2))).toBeCloseTo(90, 9);
@@ -84,21 +97,40 @@ describe('timeline state', () => {
   it('takes a thrown weight off the rotor and fits an added one', () => {
     const p = plan(
       testScenario({
-        rotor: { ...rotor, unbalance: [], weights: [{ id: 'W1', plane: 'P1', mass_g: 30, radius_mm: 700, angle_deg: 45 }] },
+        rotor: {
+          ...rotor,
+          unbalance: [],
+          weights: [{ id: 'W1', plane: 'P1', mass_g: 30, radius_mm: 700, angle_deg: 45 }],
+        },
         timeline: [
           { at: 'day 2', weight_thrown: { id: 'W1' } },
-          { at: 'day 3', weight_added: { id: 'W2', plane: 'P1', mass_g: 10, radius_mm: 700, angle_deg: 0 } },
+          {
+            at: 'day 3',
+            weight_added: { id: 'W2', plane: 'P1', mass_g: 10, radius_mm: 700, angle_deg: 0 },
+          },
         ],
       }),
     );
-    const u = (day: number) => new FanSimulator(p, { startS: day * 86400 }).state.unbalance(day * 86400)[0]!;
+    const u = (day: number) =>
+      new FanSimulator(p, { startS: day * 86400 }).state.unbalance(day * 86400)[0]!;
     expect(magnitude(u(1))).toBeCloseTo(0.021, 12);
     expect(magnitude(u(2.5))).toBe(0);
     expect(magnitude(u(4))).toBeCloseTo(0.007, 12);
   });
 
   it('starts a run from a later day in the state the timeline reaches by then, at scaled scenario time', () => {
-    const p = plan(testScenario({ speed: { rpm: 0 }, timeline: [{ at: 'day 0 01:00', start: { rpm: 1500, ramp_s: 10 } }, { at: 'day 2', weight_added: { id: 'T', plane: 'P1', mass_g: 10, radius_mm: 760, angle_deg: 0 } }] }));
+    const p = plan(
+      testScenario({
+        speed: { rpm: 0 },
+        timeline: [
+          { at: 'day 0 01:00', start: { rpm: 1500, ramp_s: 10 } },
+          {
+            at: 'day 2',
+            weight_added: { id: 'T', plane: 'P1', mass_g: 10, radius_mm: 760, angle_deg: 0 },
+          },
+        ],
+      }),
+    );
     const sim = new FanSimulator(p, { startS: 86400 * 1.9, timeScale: 3600 });
     expect(sim.speedRpm).toBeCloseTo(1500, 9);
     const before = sim.state.unbalance(sim.scenarioTimeS)[0]!;
@@ -114,7 +146,8 @@ describe('timeline state', () => {
     expect(parseAt('day 0')).toBe(0);
     expect(parseAt('Day 2 01:02:03.5')).toBe(2 * 86400 + 3723.5);
     expect(parseAt(90)).toBe(90);
-    for (const bad of ['day 5 25:00', 'dya 5', '5d', -1, 'day 1 10:61']) expect(parseAt(bad)).toBeUndefined();
+    for (const bad of ['day 5 25:00', 'dya 5', '5d', -1, 'day 1 10:61'])
+      expect(parseAt(bad)).toBeUndefined();
     expect(formatAt(5 * 86400 + 14 * 3600 + 20 * 60 + 7)).toBe('day 5 14:20:07');
   });
 });
@@ -151,7 +184,12 @@ describe('scenario errors name the file, the path and what to do', () => {
       plan(
         testScenario({
           tach: { rise_us: 20 },
-          timeline: [{ at: 'day 2', stop: {} }, { at: 'day 1', start: { rpm: 1500 } }, { at: 'day 3', start: { rpm: 1500 }, stop: {} }, { at: 'day 4' }],
+          timeline: [
+            { at: 'day 2', stop: {} },
+            { at: 'day 1', start: { rpm: 1500 } },
+            { at: 'day 3', start: { rpm: 1500 }, stop: {} },
+            { at: 'day 4' },
+          ],
         }),
       ),
     );
@@ -167,7 +205,10 @@ describe('scenario errors name the file, the path and what to do', () => {
         testScenario({
           timeline: [
             { at: 0, weight_thrown: { id: 'W9' } },
-            { at: 1, build_up: { plane: 'front', mass_g_per_day: 1, radius_mm: 700, angle_deg: 0 } },
+            {
+              at: 1,
+              build_up: { plane: 'front', mass_g_per_day: 1, radius_mm: 700, angle_deg: 0 },
+            },
             { at: 2, sensor_fault: { sensor: 'DE-X', kind: 'open' } },
             { at: 3, fault: { kind: 'looseness', id: 'l', bearing: 'MOTOR', amp_pk_mm_s: 2 } },
             { at: 4, fault_cleared: { id: 'nope' } },
@@ -176,24 +217,50 @@ describe('scenario errors name the file, the path and what to do', () => {
         }),
       ),
     );
-    expect(msg).toContain('test-scenario: timeline[0].weight_thrown.id: no weight "W9" on the rotor at that time (fitted: none)');
+    expect(msg).toContain(
+      'test-scenario: timeline[0].weight_thrown.id: no weight "W9" on the rotor at that time (fitted: none)',
+    );
     expect(msg).toContain('timeline[1].build_up.plane: no plane "front" in rotor.planes (P1, P2)');
     expect(msg).toContain('timeline[2].sensor_fault.sensor: no sensor "DE-X" in test-config');
-    expect(msg).toContain('timeline[3].fault.bearing: no bearing "MOTOR" in rotor.bearings (DE, NDE)');
+    expect(msg).toContain(
+      'timeline[3].fault.bearing: no bearing "MOTOR" in rotor.bearings (DE, NDE)',
+    );
     expect(msg).toContain('timeline[4].fault_cleared.id: no fault "nope" is active');
     expect(msg).toContain('timeline[5].sensor_fault.limit_v: needed for kind clipping');
   });
 
   it('refuses a scenario that does not fit the config', () => {
-    const msg = messageOf(() => plan(testScenario({ tach: { high_v: 2 } }), testConfig({ rotor: 'overhung' })));
-    expect(msg).toContain('test-scenario: rotor.planes: the planes are between the bearings (centre-hung) but test-config machine.rotor is overhung');
-    expect(msg).toContain('test-scenario: tach: the pulse (0 to 2 V) never crosses test-config tach.trigger_v (2.5 V)');
-    const renamed = messageOf(() => plan(testScenario({ rotor: { ...rotor, bearings: [{ name: 'A', position_mm: 0 }, { name: 'B', position_mm: 2400 }] } })));
-    expect(renamed).toContain('test-config: sensors[0].bearing: bearing "DE" is not in test-scenario rotor.bearings (A, B)');
+    const msg = messageOf(() =>
+      plan(testScenario({ tach: { high_v: 2 } }), testConfig({ rotor: 'overhung' })),
+    );
+    expect(msg).toContain(
+      'test-scenario: rotor.planes: the planes are between the bearings (centre-hung) but test-config machine.rotor is overhung',
+    );
+    expect(msg).toContain(
+      'test-scenario: tach: the pulse (0 to 2 V) never crosses test-config tach.trigger_v (2.5 V)',
+    );
+    const renamed = messageOf(() =>
+      plan(
+        testScenario({
+          rotor: {
+            ...rotor,
+            bearings: [
+              { name: 'A', position_mm: 0 },
+              { name: 'B', position_mm: 2400 },
+            ],
+          },
+        }),
+      ),
+    );
+    expect(renamed).toContain(
+      'test-config: sensors[0].bearing: bearing "DE" is not in test-scenario rotor.bearings (A, B)',
+    );
   });
 
   it('reports YAML syntax errors with a line, and a missing file', () => {
-    expect(() => loadScenario(writeTmp('scenario: x\nrotor: [unclosed\n'))).toThrow(/not valid YAML at line \d+/);
+    expect(() => loadScenario(writeTmp('scenario: x\nrotor: [unclosed\n'))).toThrow(
+      /not valid YAML at line \d+/,
+    );
     expect(() => loadScenario('/nonexistent/s.yaml')).toThrow(/scenario file not found/);
   });
 });

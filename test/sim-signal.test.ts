@@ -1,6 +1,16 @@
 import { describe, expect, it } from 'vitest';
 import { rpmToRadS, STANDARD_GRAVITY_M_S2 } from '../drivers/sim/physics.js';
-import { angleDiff, dft, FS, mean, plan, render, risingEdges, testConfig, testScenario } from './sim-fixtures.js';
+import {
+  angleDiff,
+  dft,
+  FS,
+  mean,
+  plan,
+  render,
+  risingEdges,
+  testConfig,
+  testScenario,
+} from './sim-fixtures.js';
 
 /**
  * The synthesized channels checked with a plain DFT written in the test (sim-fixtures.ts), not with
@@ -14,10 +24,16 @@ const V_PER_G = 0.1;
 
 /** Expected acceleration (volts) of a velocity vector: a = omega v, leading velocity by 90 deg (textbook). */
 function expectedAccel(ampPkMmS: number, lagDegV: number, omega = rpmToRadS(1500), order = 1) {
-  return { amp: (ampPkMmS * 1e-3 * omega * order * V_PER_G) / STANDARD_GRAVITY_M_S2, lag: lagDegV - 90 };
+  return {
+    amp: (ampPkMmS * 1e-3 * omega * order * V_PER_G) / STANDARD_GRAVITY_M_S2,
+    lag: lagDegV - 90,
+  };
 }
 
-const rotorWith = (extra: Record<string, unknown>) => ({ ...(testScenario().rotor as object), ...extra });
+const rotorWith = (extra: Record<string, unknown>) => ({
+  ...(testScenario().rotor as object),
+  ...extra,
+});
 const faultScenario = (fault: Record<string, unknown>, rotor: Record<string, unknown> = {}) =>
   testScenario({ rotor: rotorWith(rotor), timeline: [{ at: 0, fault }] });
 
@@ -40,7 +56,12 @@ describe('synthesized signals', () => {
   it('scales volts by the sensitivity per g with g = 9.80665 m/s^2 (standard gravity, 3rd CGPM 1901)', () => {
     // a 160 Hz velocity tone of 10 / (2 pi 160) m/s peak is 10 m/s^2 peak: 10 / 9.80665 g, x 0.1 V/g
     const mmS = 10_000 / (2 * Math.PI * 160);
-    const p = plan(testScenario({ rotor: rotorWith({ unbalance: [] }), timeline: [{ at: 0, fault: { kind: 'tone', id: 't', freq_hz: 160, amp_pk_mm_s: mmS } }] }));
+    const p = plan(
+      testScenario({
+        rotor: rotorWith({ unbalance: [] }),
+        timeline: [{ at: 0, fault: { kind: 'tone', id: 't', freq_hz: 160, amp_pk_mm_s: mmS } }],
+      }),
+    );
     const { ch } = render(p, 2 * FS);
     const got = dft(ch[0]!, FS, FS, 160 / FS);
     expect(got.amp).toBeCloseTo((10 / 9.80665) * 0.1, 6);
@@ -62,7 +83,8 @@ describe('synthesized signals', () => {
     const { sim, ch } = render(p, 60 * 1035);
     const period = (60 / 1485) * FS;
     const e = risingEdges(ch[p.tach.channel]!, 2.5);
-    for (let k = 1; k < e.length; k++) expect(Math.abs(e[k]! - e[k - 1]! - period)).toBeLessThan(2e-3);
+    for (let k = 1; k < e.length; k++)
+      expect(Math.abs(e[k]! - e[k - 1]! - period)).toBeLessThan(2e-3);
     // DFT over whole revolutions measured from one edge, at the exact 1x frequency
     const m = sim.modelOrder(1).find((x) => x.id === 'NDE-H')!;
     const exp = expectedAccel(m.amp_pk_mm_s, m.phase_deg, rpmToRadS(1485));
@@ -98,7 +120,9 @@ describe('synthesized signals', () => {
   });
 
   it('makes white noise of the stated r.m.s.', () => {
-    const p = plan(testScenario({ rotor: rotorWith({ unbalance: [] }), signal: { noise_rms_g: 0.01 } }));
+    const p = plan(
+      testScenario({ rotor: rotorWith({ unbalance: [] }), signal: { noise_rms_g: 0.01 } }),
+    );
     const { ch } = render(p, FS);
     const x = ch[0]!;
     let sq = 0;
@@ -114,7 +138,9 @@ describe('speed profiles', () => {
   };
 
   it('starts up along a linear ramp to the set speed', () => {
-    const p = plan(testScenario({ speed: { rpm: 0 }, timeline: [{ at: 0.5, start: { rpm: 1500, ramp_s: 4 } }] }));
+    const p = plan(
+      testScenario({ speed: { rpm: 0 }, timeline: [{ at: 0.5, start: { rpm: 1500, ramp_s: 4 } }] }),
+    );
     const { ch } = render(p, 6 * FS);
     const s = speeds(ch[p.tach.channel]!);
     // during the ramp speed = 1500 * (t - 0.5) / 4; an interval's mean speed belongs to its middle,
@@ -130,14 +156,19 @@ describe('speed profiles', () => {
     const p = plan(testScenario({ timeline: [{ at: 0.2, stop: { coast_s: 20 } }] }));
     const { ch } = render(p, 22 * FS);
     const s = speeds(ch[p.tach.channel]!);
-    const at = (t: number) => s.reduce((best, x) => (Math.abs(x.at_s - t) < Math.abs(best.at_s - t) ? x : best)).rpm;
+    const at = (t: number) =>
+      s.reduce((best, x) => (Math.abs(x.at_s - t) < Math.abs(best.at_s - t) ? x : best)).rpm;
     const drop1 = at(2.2) - at(4.2);
     const drop2 = at(12.2) - at(14.2);
     expect(drop1).toBeGreaterThan(drop2);
     expect(at(2.2)).toBeLessThan(1500);
     const lastEdge = s[s.length - 1]!.at_s;
     expect(lastEdge).toBeLessThan(20.2);
-    expect(ch[p.tach.channel]!.subarray(Math.round(20.5 * FS)).every((v) => v === ch[p.tach.channel]![Math.round(20.5 * FS)])).toBe(true);
+    expect(
+      ch[p.tach.channel]!.subarray(Math.round(20.5 * FS)).every(
+        (v) => v === ch[p.tach.channel]![Math.round(20.5 * FS)],
+      ),
+    ).toBe(true);
   });
 
   it('wanders slowly within the stated drift while steady', () => {
@@ -155,7 +186,12 @@ describe('fault signatures (common practice)', () => {
   const noUnbalance = { unbalance: [] };
 
   it('misalignment: 2x above 1x radially, axial 180 deg apart across the coupling', () => {
-    const p = plan(faultScenario({ kind: 'misalignment', id: 'm', coupling_bearing: 'DE', amp_pk_mm_s: 4 }, noUnbalance));
+    const p = plan(
+      faultScenario(
+        { kind: 'misalignment', id: 'm', coupling_bearing: 'DE', amp_pk_mm_s: 4 },
+        noUnbalance,
+      ),
+    );
     const { ch } = render(p, 16 * REV);
     const x1 = dft(ch[1]!, 0, 16 * REV, f1);
     const x2 = dft(ch[1]!, 0, 16 * REV, 2 * f1);
@@ -166,10 +202,17 @@ describe('fault signatures (common practice)', () => {
   });
 
   it('looseness: many harmonics and a 1x phase that wanders from block to block', () => {
-    const p = plan(faultScenario({ kind: 'looseness', id: 'l', bearing: 'NDE', amp_pk_mm_s: 3, jitter_deg: 20 }, noUnbalance));
+    const p = plan(
+      faultScenario(
+        { kind: 'looseness', id: 'l', bearing: 'NDE', amp_pk_mm_s: 3, jitter_deg: 20 },
+        noUnbalance,
+      ),
+    );
     const { ch } = render(p, 64 * REV);
     const x = ch[3]!;
-    const strong = [1, 2, 3, 4, 5, 6].filter((n) => dft(x, 0, 16 * REV, n * f1).amp > 0.25 * dft(x, 0, 16 * REV, f1).amp);
+    const strong = [1, 2, 3, 4, 5, 6].filter(
+      (n) => dft(x, 0, 16 * REV, n * f1).amp > 0.25 * dft(x, 0, 16 * REV, f1).amp,
+    );
     expect(strong.length).toBeGreaterThanOrEqual(5);
     const phases = [0, 1, 2, 3].map((b) => dft(x, b * 16 * REV, 16 * REV, f1).lagDeg);
     const spread = Math.max(...phases.map((a) => Math.abs(angleDiff(a, phases[0]!))));
@@ -186,7 +229,9 @@ describe('fault signatures (common practice)', () => {
   });
 
   it('eccentricity: straight-line 1x, H and V in phase or 180 apart with a large amplitude ratio', () => {
-    const p = plan(faultScenario({ kind: 'eccentricity', id: 'e', bearing: 'DE', amp_pk_mm_s: 3 }, noUnbalance));
+    const p = plan(
+      faultScenario({ kind: 'eccentricity', id: 'e', bearing: 'DE', amp_pk_mm_s: 3 }, noUnbalance),
+    );
     const { ch } = render(p, 16 * REV);
     const v = dft(ch[0]!, 0, 16 * REV, f1);
     const h = dft(ch[1]!, 0, 16 * REV, f1);
@@ -197,7 +242,13 @@ describe('fault signatures (common practice)', () => {
 
   it('resonance near running speed: support at 1x gives about 90 deg more lag and a large rise in amplitude (SDOF, textbook)', () => {
     const base = plan();
-    const reson = plan(testScenario({ timeline: [{ at: 0, support_change: { bearing: 'DE', direction: 'vertical', natural_hz: 25 } }] }));
+    const reson = plan(
+      testScenario({
+        timeline: [
+          { at: 0, support_change: { bearing: 'DE', direction: 'vertical', natural_hz: 25 } },
+        ],
+      }),
+    );
     const a = dft(render(base, 16 * REV).ch[0]!, 4 * REV, 12 * REV, f1);
     const b = dft(render(reson, 16 * REV).ch[0]!, 4 * REV, 12 * REV, f1);
     const k = (hz: number) => {
@@ -213,7 +264,20 @@ describe('fault signatures (common practice)', () => {
   });
 
   it('bearing defect: a non-synchronous tone at the defect order and a ringing carrier', () => {
-    const p = plan(faultScenario({ kind: 'bearing_defect', id: 'bd', bearing: 'NDE', order: 3.58, amp_pk_mm_s: 1, ring_hz: 3000, ring_pk_g: 0.5 }, noUnbalance));
+    const p = plan(
+      faultScenario(
+        {
+          kind: 'bearing_defect',
+          id: 'bd',
+          bearing: 'NDE',
+          order: 3.58,
+          amp_pk_mm_s: 1,
+          ring_hz: 3000,
+          ring_pk_g: 0.5,
+        },
+        noUnbalance,
+      ),
+    );
     const { ch } = render(p, FS);
     const fd = (3.58 * 25) / FS;
     const tone = dft(ch[3]!, 0, FS, fd);
@@ -226,14 +290,20 @@ describe('fault signatures (common practice)', () => {
   });
 
   it('grows a fault over its ramp_days', () => {
-    const p = plan(testScenario({ rotor: rotorWith(noUnbalance), timeline: [{ at: 0, fault: { kind: 'bent_shaft', id: 'b', amp_pk_mm_s: 3, ramp_days: 2 } }] }));
+    const p = plan(
+      testScenario({
+        rotor: rotorWith(noUnbalance),
+        timeline: [{ at: 0, fault: { kind: 'bent_shaft', id: 'b', amp_pk_mm_s: 3, ramp_days: 2 } }],
+      }),
+    );
     const { ch } = render(p, 16 * REV, { startS: 86400 });
     expect(dft(ch[2]!, 0, 16 * REV, f1).amp).toBeCloseTo(expectedAccel(1.5, 0).amp, 5);
   });
 });
 
 describe('sensor faults', () => {
-  const at = (sensor_fault: Record<string, unknown>) => plan(testScenario({ timeline: [{ at: 0, sensor_fault }] }), testConfig({ bias: true }));
+  const at = (sensor_fault: Record<string, unknown>) =>
+    plan(testScenario({ timeline: [{ at: 0, sensor_fault }] }), testConfig({ bias: true }));
 
   it('open cable reads just below the supply, a short near 0 V', () => {
     expect(mean(render(at({ sensor: 'DE-V', kind: 'open' }), 4096).ch[0]!)).toBeCloseTo(23.7, 2);
@@ -243,7 +313,8 @@ describe('sensor faults', () => {
   it('flat line is exactly constant, clipping holds the swing at the limit', () => {
     const flat = render(at({ sensor: 'NDE-H', kind: 'flat' }), 4096).ch[4]!;
     expect(flat.every((v) => v === flat[0])).toBe(true);
-    const clip = render(at({ sensor: 'NDE-H', kind: 'clipping', gain: 20, limit_v: 0.05 }), 8192).ch[4]!;
+    const clip = render(at({ sensor: 'NDE-H', kind: 'clipping', gain: 20, limit_v: 0.05 }), 8192)
+      .ch[4]!;
     expect(Math.max(...clip)).toBeCloseTo(10.05, 5);
     expect(Math.min(...clip)).toBeCloseTo(9.95, 5);
   });
@@ -253,7 +324,11 @@ describe('sensor faults', () => {
     const r = render(lost, 20 * REV);
     expect(risingEdges(r.ch[6]!, 2.5)).toHaveLength(0);
     expect(r.edges).toHaveLength(0);
-    const inter = plan(testScenario({ timeline: [{ at: 0, tach_fault: { kind: 'intermittent', missing_fraction: 0.3 } }] }));
+    const inter = plan(
+      testScenario({
+        timeline: [{ at: 0, tach_fault: { kind: 'intermittent', missing_fraction: 0.3 } }],
+      }),
+    );
     const e = risingEdges(render(inter, 1000 * REV).ch[6]!, 2.5);
     expect(e.length).toBeGreaterThan(620);
     expect(e.length).toBeLessThan(780);

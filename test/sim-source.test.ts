@@ -17,14 +17,21 @@ async function take(src: SimSource, blocks: number): Promise<SampleBlock[]> {
   for await (const item of src.items()) {
     if (item.kind !== 'samples') throw new Error('unexpected gap');
     // the source reuses its arrays: keep copies
-    out.push({ ...item, channels: item.channels.map((c) => Float32Array.from(c)), ...(item.tachEdges ? { tachEdges: Float64Array.from(item.tachEdges) } : {}) });
+    out.push({
+      ...item,
+      channels: item.channels.map((c) => Float32Array.from(c)),
+      ...(item.tachEdges ? { tachEdges: Float64Array.from(item.tachEdges) } : {}),
+    });
     if (out.length === blocks) break;
   }
   return out;
 }
 
 /** 1x of one channel over whole revolutions of consecutive blocks, as a complex amplitude (volts). */
-function oneX(blocks: SampleBlock[], channel: number): { re: number; im: number; amp: number; lagDeg: number } {
+function oneX(
+  blocks: SampleBlock[],
+  channel: number,
+): { re: number; im: number; amp: number; lagDeg: number } {
   const n = blocks.reduce((s, b) => s + b.channels[0]!.length, 0);
   const x = new Float64Array(n);
   let o = 0;
@@ -36,7 +43,7 @@ function oneX(blocks: SampleBlock[], channel: number): { re: number; im: number;
 }
 
 describe('SimSource (driver: sim)', () => {
-  it('yields blocks of the board\'s channel map with continuous sample indices, and the board tach edges when asked', async () => {
+  it("yields blocks of the board's channel map with continuous sample indices, and the board tach edges when asked", async () => {
     const src = new SimSource(plan(), { blockSamples: 2560, pace: 'fast', boardTachEdges: true });
     const info = await src.open();
     expect(info).toMatchObject({ sampleRate: 25600, channelCount: 7 });
@@ -90,19 +97,29 @@ describe('SimSource (driver: sim)', () => {
 
   it('moves the 1x when a weight is fitted as influence coefficients say, and a one-plane balancing job on it converges (influence-coefficient method, textbook)', async () => {
     // one plane, read at NDE-V: as found, trial run, correction W = -V0 / H, check run
-    const src = new SimSource(plan(testScenario({ signal: { noise_rms_g: 0.003 } })), { blockSamples: 8 * REV, pace: 'fast' });
+    const src = new SimSource(plan(testScenario({ signal: { noise_rms_g: 0.003 } })), {
+      blockSamples: 8 * REV,
+      pace: 'fast',
+    });
     await src.open();
     const it = src.items()[Symbol.asyncIterator]();
     const run = async () => {
       await it.next(); // settle one block after a change
       const blocks: SampleBlock[] = [];
-      for (let i = 0; i < 4; i++) blocks.push(((await it.next()).value as SourceItem & SampleBlock));
+      for (let i = 0; i < 4; i++) blocks.push((await it.next()).value as SourceItem & SampleBlock);
       return oneX(blocks, 3);
     };
     const v0 = await run();
     const model0 = src.modelOrder(1).find((m) => m.id === 'NDE-V')!;
     expect(Math.abs(angleDiff(v0.lagDeg, model0.phase_deg - 90))).toBeLessThan(0.5);
-    src.addWeight({ id: 'T', plane: 'P1', mass_g: 20, radius_mm: 760, angle_deg: 0, convention: 'against_rotation' });
+    src.addWeight({
+      id: 'T',
+      plane: 'P1',
+      mass_g: 20,
+      radius_mm: 760,
+      angle_deg: 0,
+      convention: 'against_rotation',
+    });
     const v1 = await run();
     // H = (V1 - V0) / T, T = 20 g at 0 deg
     const h = { re: (v1.re - v0.re) / 20, im: (v1.im - v0.im) / 20 };
@@ -112,7 +129,14 @@ describe('SimSource (driver: sim)', () => {
     const grams = Math.hypot(w.re, w.im);
     const angle = ((-Math.atan2(w.im, w.re) * 180) / Math.PI + 360) % 360; // lag = against rotation
     src.removeWeight('T');
-    src.addWeight({ id: 'C', plane: 'P1', mass_g: grams, radius_mm: 760, angle_deg: angle, convention: 'against_rotation' });
+    src.addWeight({
+      id: 'C',
+      plane: 'P1',
+      mass_g: grams,
+      radius_mm: 760,
+      angle_deg: angle,
+      convention: 'against_rotation',
+    });
     const v2 = await run();
     // the unbalance was 40 g at 30 deg in P1: the correction is 40 g at 210 deg
     expect(grams).toBeCloseTo(40, 0);
@@ -123,7 +147,13 @@ describe('SimSource (driver: sim)', () => {
   });
 
   it('is built from the config section, with the scenario path relative to the config file', async () => {
-    const section = simDriverSchema.parse({ driver: 'sim', scenario: 'example-scenario.yaml', pace: 'fast', from_day: 5.9, block_ms: 50 });
+    const section = simDriverSchema.parse({
+      driver: 'sim',
+      scenario: 'example-scenario.yaml',
+      pace: 'fast',
+      from_day: 5.9,
+      block_ms: 50,
+    });
     expect(section).toMatchObject({ time_scale: 1, board_tach_edges: false });
     const src = createSimSource(loadConfig('config/example.yaml'), section, 'config/example.yaml');
     const info = await src.open();
@@ -131,7 +161,9 @@ describe('SimSource (driver: sim)', () => {
     const [b] = await take(src, 1);
     expect(b!.channels[0]).toHaveLength(1280);
     expect(src.speedRpm).toBeGreaterThan(1470);
-    expect(() => simDriverSchema.parse({ driver: 'sim', scenario: 'x.yaml', time_scale: 0 })).toThrow();
+    expect(() =>
+      simDriverSchema.parse({ driver: 'sim', scenario: 'x.yaml', time_scale: 0 }),
+    ).toThrow();
   });
 });
 
@@ -140,10 +172,12 @@ describe('turnwise simulate', () => {
 
   async function runCli(args: string[]): Promise<{ code: number; out: string }> {
     let out = '';
-    const spy = vi.spyOn(process.stdout, 'write').mockImplementation((chunk: string | Uint8Array) => {
-      out += String(chunk);
-      return true;
-    });
+    const spy = vi
+      .spyOn(process.stdout, 'write')
+      .mockImplementation((chunk: string | Uint8Array) => {
+        out += String(chunk);
+        return true;
+      });
     try {
       const code = await simulateCommand.run(args);
       return { code, out };
@@ -154,10 +188,29 @@ describe('turnwise simulate', () => {
 
   it('records the demo scenario to a WAV file and prints a JSON summary with units in the names', async () => {
     const f = join(dir, 'rec.wav');
-    const { code, out } = await runCli(['--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--out', f, '--seconds', '2', '--from-day', '5.5', '--json']);
+    const { code, out } = await runCli([
+      '--scenario',
+      'config/example-scenario.yaml',
+      '--config',
+      'config/example.yaml',
+      '--out',
+      f,
+      '--seconds',
+      '2',
+      '--from-day',
+      '5.5',
+      '--json',
+    ]);
     expect(code).toBe(0);
     const s = JSON.parse(out);
-    expect(s).toMatchObject({ file: f, sample_rate_hz: 25600, channels: 7, frames: 51200, duration_s: 2, start_at: 'day 5 12:00:00' });
+    expect(s).toMatchObject({
+      file: f,
+      sample_rate_hz: 25600,
+      channels: 7,
+      frames: 51200,
+      duration_s: 2,
+      start_at: 'day 5 12:00:00',
+    });
     expect(s.model_1x_end).toHaveLength(6);
     expect(s.model_1x_end[0]).toHaveProperty('amp_pk_mm_s');
     expect(s.model_1x_end[0]).toHaveProperty('phase_deg');
@@ -168,16 +221,69 @@ describe('turnwise simulate', () => {
   });
 
   it('prints a readable table, and names wrong arguments', async () => {
-    const { out } = await runCli(['--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--out', join(dir, 'h.wav'), '--seconds', '0.5']);
+    const { out } = await runCli([
+      '--scenario',
+      'config/example-scenario.yaml',
+      '--config',
+      'config/example.yaml',
+      '--out',
+      join(dir, 'h.wav'),
+      '--seconds',
+      '0.5',
+    ]);
     expect(out).toMatch(/wrote .*h\.wav: 0\.5 s, 7 channels x 25600 Hz/);
     expect(out).toMatch(/0 +DE-V +DE vertical +\d+\.\d\d +\d+\n/);
     expect(out).toContain('1x mm/s rms');
-    await expect(runCli(['--scenario', 'x.yaml', '--config', 'config/example.yaml', '--out', 'o.wav'])).rejects.toThrow(/--seconds is required/);
-    await expect(runCli(['--scenario', 'x.yaml', '--config', 'config/example.yaml', '--out', 'o.wav', '--seconds', 'ten'])).rejects.toThrow(UserError);
-    await expect(runCli(['--scenario', join(dir, 'missing.yaml'), '--config', 'config/example.yaml', '--out', 'o.wav', '--seconds', '1'])).rejects.toThrow(/scenario file not found/);
-    const huge = runCli(['--scenario', 'config/example-scenario.yaml', '--config', 'config/example.yaml', '--out', join(dir, 'x.wav'), '--seconds', '100000']);
+    await expect(
+      runCli(['--scenario', 'x.yaml', '--config', 'config/example.yaml', '--out', 'o.wav']),
+    ).rejects.toThrow(/--seconds is required/);
+    await expect(
+      runCli([
+        '--scenario',
+        'x.yaml',
+        '--config',
+        'config/example.yaml',
+        '--out',
+        'o.wav',
+        '--seconds',
+        'ten',
+      ]),
+    ).rejects.toThrow(UserError);
+    await expect(
+      runCli([
+        '--scenario',
+        join(dir, 'missing.yaml'),
+        '--config',
+        'config/example.yaml',
+        '--out',
+        'o.wav',
+        '--seconds',
+        '1',
+      ]),
+    ).rejects.toThrow(/scenario file not found/);
+    const huge = runCli([
+      '--scenario',
+      'config/example-scenario.yaml',
+      '--config',
+      'config/example.yaml',
+      '--out',
+      join(dir, 'x.wav'),
+      '--seconds',
+      '100000',
+    ]);
     await expect(huge).rejects.toThrow(/4 GiB limit/);
     writeFileSync(join(dir, 'bad.yaml'), 'scenario: x\n');
-    await expect(runCli(['--scenario', join(dir, 'bad.yaml'), '--config', 'config/example.yaml', '--out', 'o.wav', '--seconds', '1'])).rejects.toThrow(/sample_rate_hz/);
+    await expect(
+      runCli([
+        '--scenario',
+        join(dir, 'bad.yaml'),
+        '--config',
+        'config/example.yaml',
+        '--out',
+        'o.wav',
+        '--seconds',
+        '1',
+      ]),
+    ).rejects.toThrow(/sample_rate_hz/);
   });
 });

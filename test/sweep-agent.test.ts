@@ -70,19 +70,17 @@ describe('sweeps recorded by the agent', () => {
       10_000,
       'resonance_moved',
     );
-    const recorded = sub
-      .on(`${base}/sweep_recorded`)
-      .map(
-        (m) =>
-          m.json as Record<string, unknown> & {
-            resonances: {
-              sensor: string;
-              rpm: number;
-              amplification_factor: number;
-              phase_shift_deg: number;
-            }[];
-          },
-      );
+    const recorded = sub.on(`${base}/sweep_recorded`).map(
+      (m) =>
+        m.json as Record<string, unknown> & {
+          resonances: {
+            sensor: string;
+            rpm: number;
+            amplification_factor: number;
+            phase_shift_deg: number;
+          }[];
+        },
+    );
     for (const m of sub.messages.filter((x) => x.topic.startsWith(`${base}/`)))
       assertMatches('event.v1', m.json);
     expect(recorded.map((e) => e.direction)).toEqual(['up', 'down', 'up']);

@@ -4,7 +4,13 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { expectNoStack, runCli } from './support/cli.js';
 import { writeFloatWav } from './support/wav.js';
-import { rampProfile, recordSweep, steadyVelocity, trueResonance, type Mode } from './support/sweep-rig.js';
+import {
+  rampProfile,
+  recordSweep,
+  steadyVelocity,
+  trueResonance,
+  type Mode,
+} from './support/sweep-rig.js';
 
 /**
  * `turnwise sweep` on run-ups and coast-downs from the test rig's own physics (test/support/
@@ -37,7 +43,13 @@ state_dir: ${join(dir, 'state')}
 );
 
 function write(name: string, from: number, to: number, rampS: number, holdS = 2): string {
-  const rec = recordSweep({ sampleRate: fs, seconds: rampS + 2 * holdS, speed: rampProfile(from, to, rampS, holdS), modes: [H, V], seed: from + to });
+  const rec = recordSweep({
+    sampleRate: fs,
+    seconds: rampS + 2 * holdS,
+    speed: rampProfile(from, to, rampS, holdS),
+    modes: [H, V],
+    seed: from + to,
+  });
   const f = join(dir, name);
   writeFloatWav(f, fs, rec.channels);
   return f;
@@ -59,7 +71,11 @@ interface Out {
     from_rpm: number;
     to_rpm: number;
     duration_s: number;
-    channels: { id: string; points: { rpm: number; amp_pk_mm_s: number; phase_deg: number }[]; resonances: Res[] }[];
+    channels: {
+      id: string;
+      points: { rpm: number; amp_pk_mm_s: number; phase_deg: number }[];
+      resonances: Res[];
+    }[];
     warnings: string[];
   }[];
 }
@@ -74,12 +90,22 @@ function sweep(file: string): Out {
 const truth = trueResonance(H, 300, RATED);
 
 /** The mean 1x vector of the 5 points nearest a speed (amplitude, circular mean of phase, mean speed). */
-function near(points: readonly { rpm: number; amp_pk_mm_s: number; phase_deg: number }[], rpm: number): { rpm: number; amp: number; phaseDeg: number } {
-  const five = [...points].sort((a, b) => Math.abs(a.rpm - rpm) - Math.abs(b.rpm - rpm)).slice(0, 5);
-  const mean = (f: (p: (typeof five)[number]) => number) => five.reduce((s, p) => s + f(p), 0) / five.length;
+function near(
+  points: readonly { rpm: number; amp_pk_mm_s: number; phase_deg: number }[],
+  rpm: number,
+): { rpm: number; amp: number; phaseDeg: number } {
+  const five = [...points]
+    .sort((a, b) => Math.abs(a.rpm - rpm) - Math.abs(b.rpm - rpm))
+    .slice(0, 5);
+  const mean = (f: (p: (typeof five)[number]) => number) =>
+    five.reduce((s, p) => s + f(p), 0) / five.length;
   const re = mean((p) => Math.cos((p.phase_deg * Math.PI) / 180));
   const im = mean((p) => Math.sin((p.phase_deg * Math.PI) / 180));
-  return { rpm: mean((p) => p.rpm), amp: mean((p) => p.amp_pk_mm_s), phaseDeg: (((Math.atan2(im, re) * 180) / Math.PI) + 360) % 360 };
+  return {
+    rpm: mean((p) => p.rpm),
+    amp: mean((p) => p.amp_pk_mm_s),
+    phaseDeg: ((Math.atan2(im, re) * 180) / Math.PI + 360) % 360,
+  };
 }
 
 describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, own computation)', () => {
@@ -127,7 +153,10 @@ describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, ow
       // Separation margin from rated speed: 100 x (1485 - N) / 1485; required by API 684 for AF 8 below
       // the operating speed: min(16, 17 x (1 - 1 / (AF - 1.5))) = about 14 % (from memory).
       expect(r.separation_margin_pct).toBeCloseTo((100 * (RATED - r.rpm)) / RATED, 0);
-      expect(r.required_margin_pct).toBeCloseTo(Math.min(16, 17 * (1 - 1 / (r.amplification_factor - 1.5))), 0);
+      expect(r.required_margin_pct).toBeCloseTo(
+        Math.min(16, 17 * (1 - 1 / (r.amplification_factor - 1.5))),
+        0,
+      );
       expect(r.margin_ok).toBe(true);
     });
 
@@ -137,7 +166,9 @@ describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, ow
       // Rises about as speed cubed (force ~ w^2, velocity ~ w x): 800 to 1450 r/min, steady-state ratio
       // of the stiff mode (own computation, about x 6), within 10 % (the 1x noise at 800 r/min is about 6 % a point).
       const ratio = near(v.points, 1450).amp / near(v.points, 800).amp;
-      const want = steadyVelocity(V, near(v.points, 1450).rpm).ampPk / steadyVelocity(V, near(v.points, 800).rpm).ampPk;
+      const want =
+        steadyVelocity(V, near(v.points, 1450).rpm).ampPk /
+        steadyVelocity(V, near(v.points, 800).rpm).ampPk;
       expect(Math.abs(ratio / want - 1)).toBeLessThan(0.1);
     });
 

@@ -27,13 +27,19 @@ describe('turnwise check-config refuses thresholds outside sense, with the path 
     const r = check('watcher:\n  unbalance:\n    significance: { basis: custom, overall_mm_s: 6 }');
     expect(r.code).toBe(2);
     expectNoStack(r.stderr);
-    expect(r.stderr).toMatch(/watcher\.unbalance\.significance\.overall_mm_s: 6 mm\/s is above the C\/D boundary \(4\.5 mm\/s, ISO 20816-3 group 2, rigid support\)/);
+    expect(r.stderr).toMatch(
+      /watcher\.unbalance\.significance\.overall_mm_s: 6 mm\/s is above the C\/D boundary \(4\.5 mm\/s, ISO 20816-3 group 2, rigid support\)/,
+    );
     expect(r.stderr).toMatch(/at most 4\.5 mm\/s/);
-    expect(check('watcher:\n  unbalance:\n    significance: { basis: custom, overall_mm_s: 2 }').code).toBe(0);
+    expect(
+      check('watcher:\n  unbalance:\n    significance: { basis: custom, overall_mm_s: 2 }').code,
+    ).toBe(0);
   });
 
   it('watcher.baseline.channels and advisory.sensors naming sensors that do not exist (refused by run at start, now by check-config too)', () => {
-    const b = check('watcher:\n  baseline:\n    channels:\n      XX-V: { one_x_rms_mm_s: 1, one_x_phase_deg: 10 }');
+    const b = check(
+      'watcher:\n  baseline:\n    channels:\n      XX-V: { one_x_rms_mm_s: 1, one_x_phase_deg: 10 }',
+    );
     expect(b.code).toBe(2);
     expect(b.stderr).toMatch(/watcher\.baseline\.channels\.XX-V: no sensor with id "XX-V"/);
     const a = check('advisory:\n  relay: { line: 5 }\n  sensors: [DE-V, XX-H]');

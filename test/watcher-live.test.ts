@@ -1,4 +1,13 @@
-import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import {
+  appendFileSync,
+  existsSync,
+  mkdirSync,
+  mkdtempSync,
+  readdirSync,
+  readFileSync,
+  rmSync,
+  writeFileSync,
+} from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -9,7 +18,13 @@ import { MemoryLogger, silentLogger, type Logger } from '../agent/log.js';
 import { FileHistoryStore, History, type HistoryPoint } from '../agent/watcher/history.js';
 import { openWatcher, type Watcher } from '../agent/watcher/watcher.js';
 import { FakeClock } from './support/fake-clock.js';
-import { demoConfig, fanCase, synthWindow, type FanCase, type WindowSpec } from './support/fan-windows.js';
+import {
+  demoConfig,
+  fanCase,
+  synthWindow,
+  type FanCase,
+  type WindowSpec,
+} from './support/fan-windows.js';
 import { fillUp, tryMountTmpfs, unmountTmpfs } from './support/tmpfs.js';
 
 const T0 = Date.parse('2031-03-02T08:00:00Z');
@@ -47,12 +62,25 @@ class Feeder {
 }
 
 /** These tests feed 10 s windows with a 20 s on-delay (a state is reported on its second window). */
-function start(dir: string, watcher: Record<string, unknown> = {}, ms = T0, log: Logger = silentLogger): Feeder {
+function start(
+  dir: string,
+  watcher: Record<string, unknown> = {},
+  ms = T0,
+  log: Logger = silentLogger,
+): Feeder {
   const clock = new FakeClock(ms);
-  return new Feeder(openWatcher(demoConfig({ state_dir: dir, watcher: { window_s: 10, on_delay_s: 20, ...watcher } }), clock, log), clock);
+  return new Feeder(
+    openWatcher(
+      demoConfig({ state_dir: dir, watcher: { window_s: 10, on_delay_s: 20, ...watcher } }),
+      clock,
+      log,
+    ),
+    clock,
+  );
 }
 
-const types = (es: readonly AgentEvent[]): string[] => es.map((e) => `${e.type}:${(e['sensor'] as string | undefined) ?? 'machine'}`);
+const types = (es: readonly AgentEvent[]): string[] =>
+  es.map((e) => `${e.type}:${(e['sensor'] as string | undefined) ?? 'machine'}`);
 
 describe('watcher events over time', () => {
   it('a quiet fan that goes out of balance: zone, alarm and unbalance events with stable, unique ids', () => {
@@ -61,9 +89,23 @@ describe('watcher events over time', () => {
     // On-delay 20 s with 10 s windows: a state is reported on its second window.
     expect(f.case('quiet')).toEqual([]);
     const first = f.case('quiet');
-    expect(types(first).sort()).toEqual(['zone_changed:DE-A', 'zone_changed:DE-H', 'zone_changed:DE-V', 'zone_changed:NDE-A', 'zone_changed:NDE-H', 'zone_changed:NDE-V', 'zone_changed:machine']);
+    expect(types(first).sort()).toEqual([
+      'zone_changed:DE-A',
+      'zone_changed:DE-H',
+      'zone_changed:DE-V',
+      'zone_changed:NDE-A',
+      'zone_changed:NDE-H',
+      'zone_changed:NDE-V',
+      'zone_changed:machine',
+    ]);
     const machineA = first.find((e) => e['scope'] === 'machine')!;
-    expect(machineA).toMatchObject({ zone: 'A', from_zone: null, severity: 'info', asset: 'kessrow-id3a', ts: '2031-03-02T08:00:20.000Z' });
+    expect(machineA).toMatchObject({
+      zone: 'A',
+      from_zone: null,
+      severity: 'info',
+      asset: 'kessrow-id3a',
+      ts: '2031-03-02T08:00:20.000Z',
+    });
     expect(machineA.id).toBe('kessrow-id3a/zone_changed/machine/r1/51200');
     expect(f.case('quiet', 3)).toEqual([]);
 
@@ -75,7 +117,9 @@ describe('watcher events over time', () => {
     expect(found).toMatchObject({ kind: 'static', severity: 'warning' });
     expect((found['evidence'] as string[]).join('\n')).toMatch(/in phase \(static pattern\)/);
     // No baseline: the alarm sits at B/C (2.8 mm/s, ISO 20816-3 group 2 rigid); DE-V at 4.2 mm/s is over it.
-    expect(bad.filter((e) => e.type === 'alarm_level_exceeded').map((e) => e['sensor'])).toContain('DE-V');
+    expect(bad.filter((e) => e.type === 'alarm_level_exceeded').map((e) => e['sensor'])).toContain(
+      'DE-V',
+    );
     expect(f.case('static', 3)).toEqual([]); // steady: nothing more to say
 
     const ids = f.events.map((e) => e.id);
@@ -95,22 +139,40 @@ describe('watcher events over time', () => {
     const zonesOf = (watcher: Record<string, unknown>): unknown[] => {
       const f = start(tmp(), watcher);
       for (const a of amps) f.case('static', 1, { amp: a });
-      return f.events.filter((e) => e.type === 'zone_changed' && e['sensor'] === 'DE-V').map((e) => e['zone']);
+      return f.events
+        .filter((e) => e.type === 'zone_changed' && e['sensor'] === 'DE-V')
+        .map((e) => e['zone']);
     };
     // Once over B/C it stays C until 5 % below (2.66 mm/s): one rise, no flapping.
     expect(zonesOf({})).toEqual(['B', 'C']);
     // Without hysteresis and on-delay the same readings flap at every window.
-    expect(zonesOf({ hysteresis_share: 0, on_delay_s: 0 })).toEqual(['B', 'C', 'B', 'C', 'B', 'C', 'B', 'C', 'B']);
+    expect(zonesOf({ hysteresis_share: 0, on_delay_s: 0 })).toEqual([
+      'B',
+      'C',
+      'B',
+      'C',
+      'B',
+      'C',
+      'B',
+      'C',
+      'B',
+    ]);
   });
 
   it('a sensor fault during unbalance: reported itself, and the verdict does not move', () => {
     const f = start(tmp());
     f.case('static', 4);
     const spec = fanCase('static');
-    const broken: WindowSpec = { ...spec, oneX: { ...spec.oneX, 'NDE-V': { amp: 6, phase: 220 } }, stats: { 'NDE-V': { dc_v: 0.3 } } };
+    const broken: WindowSpec = {
+      ...spec,
+      oneX: { ...spec.oneX, 'NDE-V': { amp: 6, phase: 220 } },
+      stats: { 'NDE-V': { dc_v: 0.3 } },
+    };
     const during = f.feed(broken, 4);
     expect(types(during)).toEqual(['sensor_not_ok:NDE-V']);
-    expect((during[0]!['problems'] as string[])[0]).toMatch(/bias 0\.30 V outside its 8-12 V window/);
+    expect((during[0]!['problems'] as string[])[0]).toMatch(
+      /bias 0\.30 V outside its 8-12 V window/,
+    );
     expect(f.w.status().latest!.unbalance.kind).toBe('static');
     const after = f.case('static', 2);
     expect(types(after)).toEqual(['sensor_ok:NDE-V']);
@@ -135,7 +197,9 @@ describe('watcher events over time', () => {
     expect(high.find((e) => e.type === 'speed_out_of_range')!['speed_rpm']).toBe(1700);
     expect(types(f.case('static', 2))).toContain('speed_in_range:machine');
     // 1700 r/min is no multiple of rated: no word about tach.pulses_per_rev.
-    expect(String(high.find((e) => e.type === 'speed_out_of_range')!['why'])).not.toMatch(/pulses_per_rev/);
+    expect(String(high.find((e) => e.type === 'speed_out_of_range')!['why'])).not.toMatch(
+      /pulses_per_rev/,
+    );
   });
 
   it('speed steady at twice rated: the speed event says tach.pulses_per_rev is probably wrong', () => {
@@ -143,16 +207,25 @@ describe('watcher events over time', () => {
     f.case('static', 2);
     const twice = f.feed(fanCase('static', { speed_rpm: 2 * 1485 }), 2);
     const e = twice.find((x) => x.type === 'speed_out_of_range')!;
-    expect(String(e['why'])).toMatch(/above .* % of rated\); 2970 r\/min is about 2 x machine\.rated_rpm \(1485\): tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 2/);
+    expect(String(e['why'])).toMatch(
+      /above .* % of rated\); 2970 r\/min is about 2 x machine\.rated_rpm \(1485\): tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 2/,
+    );
   });
 
   it('unbalance kind change and clearing after a balance job', () => {
     const f = start(tmp());
     f.case('static', 3);
     const kinds = f.case('couple', 3);
-    expect(kinds.find((e) => e.type === 'unbalance_kind_changed')).toMatchObject({ kind: 'couple', from_kind: 'static' });
+    expect(kinds.find((e) => e.type === 'unbalance_kind_changed')).toMatchObject({
+      kind: 'couple',
+      from_kind: 'static',
+    });
     const cleared = f.case('quiet', 3);
-    expect(cleared.find((e) => e.type === 'unbalance_cleared')).toMatchObject({ kind: 'none', from_kind: 'couple', severity: 'info' });
+    expect(cleared.find((e) => e.type === 'unbalance_cleared')).toMatchObject({
+      kind: 'none',
+      from_kind: 'couple',
+      severity: 'info',
+    });
   });
 });
 
@@ -215,7 +288,11 @@ describe('baseline, vector change and restarts on real files', () => {
 });
 
 /** Log lines about one save problem (the burst logger puts its key in `problem`). */
-function problemLines(log: MemoryLogger, key: string, level: 'warn' | 'info'): MemoryLogger['lines'] {
+function problemLines(
+  log: MemoryLogger,
+  key: string,
+  level: 'warn' | 'info',
+): MemoryLogger['lines'] {
   return log.lines.filter((l) => l.level === level && l.fields['problem'] === key);
 }
 
@@ -244,9 +321,16 @@ describe('disk trouble', () => {
     f.case('static');
     expect(f.w.status().warnings).toEqual([]);
     // The states were confirmed on the second static window (20 s on-delay): 5 failed saves, then the 6th worked.
-    expect(problemLines(log, 'confirmed states not saved', 'info')).toEqual([expect.objectContaining({ msg: 'confirmed states saved again', fields: expect.objectContaining({ occurrences: 5 }) })]);
+    expect(problemLines(log, 'confirmed states not saved', 'info')).toEqual([
+      expect.objectContaining({
+        msg: 'confirmed states saved again',
+        fields: expect.objectContaining({ occurrences: 5 }),
+      }),
+    ]);
     // One point per 10 s window after the first: 6 failed appends; the points kept in memory are saved late.
-    expect(problemLines(log, 'history not saved', 'info')).toEqual([expect.objectContaining({ fields: expect.objectContaining({ occurrences: 6 }) })]);
+    expect(problemLines(log, 'history not saved', 'info')).toEqual([
+      expect.objectContaining({ fields: expect.objectContaining({ occurrences: 6 }) }),
+    ]);
     expect(new FileHistoryStore(dir).load().points).toHaveLength(2 + 6 + 1 - 1);
     expect(log.lines.filter((l) => l.level === 'warn')).toHaveLength(2);
     // What was saved after the recovery is complete: a restart repeats nothing.
@@ -256,7 +340,10 @@ describe('disk trouble', () => {
 
   it('starts on a full state directory (a real 64 KiB tmpfs), keeps producing events, and saves once space is freed (needs root to mount)', (ctx) => {
     const mnt = tryMountTmpfs();
-    if (!mnt) return ctx.skip('cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the EISDIR test above covers the same path');
+    if (!mnt)
+      return ctx.skip(
+        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the EISDIR test above covers the same path',
+      );
     try {
       const dir = join(mnt, 'state');
       mkdirSync(join(dir, 'watcher'), { recursive: true });
@@ -264,7 +351,9 @@ describe('disk trouble', () => {
       expect(code).toBe('ENOSPC');
       const log = new MemoryLogger();
       const f = start(dir, { history: { interval_s: 10 } }, T0, log); // used to throw ENOSPC here
-      expect(f.w.status().warnings).toEqual([expect.stringMatching(/^confirmed states not saved: ENOSPC/)]);
+      expect(f.w.status().warnings).toEqual([
+        expect.stringMatching(/^confirmed states not saved: ENOSPC/),
+      ]);
       f.case('quiet', 2);
       f.case('static', 4);
       expect(types(f.events)).toContain('zone_changed:machine');
@@ -283,7 +372,10 @@ describe('disk trouble', () => {
       expect(f.w.status().warnings).toEqual([]);
       const state = JSON.parse(readFileSync(join(dir, 'watcher', 'state.json'), 'utf8'));
       expect(state).toMatchObject({ run, machine_zone: 'C', unbalance: 'static' });
-      expect(new FileHistoryStore(dir).load()).toMatchObject({ points: { length: 2 + 4 + 1 - 1 }, warnings: [] });
+      expect(new FileHistoryStore(dir).load()).toMatchObject({
+        points: { length: 2 + 4 + 1 - 1 },
+        warnings: [],
+      });
       const g = start(dir, { history: { interval_s: 10 } }, f.clock.now() + 10_000);
       expect(g.case('static', 3)).toEqual([]);
       expect(g.case('quiet', 3).every((e) => e.id.includes(`/r${run + 1}/`))).toBe(true);
@@ -308,12 +400,19 @@ describe('disk trouble', () => {
     expect(readFileSync(movedTo, 'utf8')).toBe(torn);
     const said = log.lines.filter((l) => l.level === 'warn');
     expect(said).toHaveLength(1);
-    expect(said[0]!.msg).toMatch(/state\.json is damaged \(not valid JSON .*\); moved to .*quarantine\/state\.json\.\S+ for inspection; the watcher starts afresh/);
+    expect(said[0]!.msg).toMatch(
+      /state\.json is damaged \(not valid JSON .*\); moved to .*quarantine\/state\.json\.\S+ for inspection; the watcher starts afresh/,
+    );
     expect(g.w.status().warnings).toEqual([said[0]!.msg]);
 
     const first = g.case('static', 2);
     const q = first.filter((e) => e.type === 'state_files_quarantined');
-    expect(q).toEqual([expect.objectContaining({ severity: 'warning', files: [{ file, moved_to: movedTo, problem: expect.stringMatching(/^not valid JSON/) }] })]);
+    expect(q).toEqual([
+      expect.objectContaining({
+        severity: 'warning',
+        files: [{ file, moved_to: movedTo, problem: expect.stringMatching(/^not valid JSON/) }],
+      }),
+    ]);
     // The states are reported again, under a start counter from the clock (the stored one was lost).
     expect(types(first)).toContain('unbalance_found:machine');
     const run = Math.floor(t1 / 1000);
@@ -330,13 +429,22 @@ describe('disk trouble', () => {
     f.case('static', 4);
     f.w.stopLearning();
     const file = join(dir, 'watcher', 'baseline.json');
-    writeFileSync(file, JSON.stringify({ version: 1, asset: 'kessrow-id3a', channels: 'overwritten' }));
+    writeFileSync(
+      file,
+      JSON.stringify({ version: 1, asset: 'kessrow-id3a', channels: 'overwritten' }),
+    );
     const log = new MemoryLogger();
     const g = start(dir, {}, f.clock.now() + 60_000, log); // used to stop with a UserError (exit 2)
     expect(g.w.baseline).toBeNull();
     expect(existsSync(file)).toBe(false);
-    expect(readdirSync(join(dir, 'watcher', 'quarantine'))).toEqual([expect.stringMatching(/^baseline\.json\.\d{4}-\d\d-\d\dT\d\d-\d\d-\d\d-\d{3}Z$/)]);
-    expect(g.w.status().warnings).toEqual([expect.stringMatching(/baseline\.json is damaged \(unexpected contents[\s\S]*moved to [\s\S]*learn it again/)]);
+    expect(readdirSync(join(dir, 'watcher', 'quarantine'))).toEqual([
+      expect.stringMatching(/^baseline\.json\.\d{4}-\d\d-\d\dT\d\d-\d\d-\d\d-\d{3}Z$/),
+    ]);
+    expect(g.w.status().warnings).toEqual([
+      expect.stringMatching(
+        /baseline\.json is damaged \(unexpected contents[\s\S]*moved to [\s\S]*learn it again/,
+      ),
+    ]);
     const events = g.case('quiet', 3);
     expect(events.filter((e) => e.type === 'state_files_quarantined')).toHaveLength(1);
     expect(types(events)).toContain('zone_changed:machine');
@@ -353,31 +461,49 @@ describe('disk trouble', () => {
     const log = new MemoryLogger();
     const g = start(dir, { history: { interval_s: 10 } }, f.clock.now() + 10_000, log);
     g.case('quiet', 5);
-    expect(log.lines.filter((l) => l.level === 'warn').map((l) => l.msg)).toEqual([expect.stringMatching(/line 3 is not valid JSON \(torn write after a power cut\?\), skipped/)]);
-    expect(new FileHistoryStore(dir).load()).toMatchObject({ points: { length: 2 + 4 }, warnings: [] }); // repaired
+    expect(log.lines.filter((l) => l.level === 'warn').map((l) => l.msg)).toEqual([
+      expect.stringMatching(/line 3 is not valid JSON \(torn write after a power cut\?\), skipped/),
+    ]);
+    expect(new FileHistoryStore(dir).load()).toMatchObject({
+      points: { length: 2 + 4 },
+      warnings: [],
+    }); // repaired
 
     rmSync(file);
     mkdirSync(file); // read fails with EISDIR
     const h = start(dir, { history: { interval_s: 10 } }, g.clock.now() + 10_000);
-    expect(h.w.status().warnings).toEqual([expect.stringMatching(/history\.jsonl is damaged \(cannot be read \(EISDIR\)\); moved to .* the history starts afresh/)]);
+    expect(h.w.status().warnings).toEqual([
+      expect.stringMatching(
+        /history\.jsonl is damaged \(cannot be read \(EISDIR\)\); moved to .* the history starts afresh/,
+      ),
+    ]);
     h.case('quiet', 3);
     expect(new FileHistoryStore(dir).load().points).toHaveLength(2);
   });
 
-  it('refuses a state directory that holds another fan\'s baseline', () => {
+  it("refuses a state directory that holds another fan's baseline", () => {
     const dir = tmp();
     const f = start(dir);
     f.w.startLearning();
     f.case('static', 4);
     f.w.stopLearning();
     const other = demoConfig({ state_dir: dir, machine: { id: 'other-fan' } });
-    expect(() => openWatcher(other, new FakeClock(T0))).toThrow(/state_dir: the stored baseline belongs to asset "kessrow-id3a", this config is for "other-fan"/);
+    expect(() => openWatcher(other, new FakeClock(T0))).toThrow(
+      /state_dir: the stored baseline belongs to asset "kessrow-id3a", this config is for "other-fan"/,
+    );
   });
 });
 
 describe('history bounds and trend', () => {
   function point(ms: number, overall: number): HistoryPoint {
-    return { ts: new Date(ms).toISOString(), windows: 6, speed_rpm: 1485, channels: { 'DE-V': { overall_rms_mm_s: overall, one_x_rms_mm_s: overall * 0.9, one_x_phase_deg: 40 } } };
+    return {
+      ts: new Date(ms).toISOString(),
+      windows: 6,
+      speed_rpm: 1485,
+      channels: {
+        'DE-V': { overall_rms_mm_s: overall, one_x_rms_mm_s: overall * 0.9, one_x_phase_deg: 40 },
+      },
+    };
   }
 
   it('stays within max_points by merging old points, keeping the oldest time covered, and survives a reload', () => {
@@ -385,7 +511,9 @@ describe('history bounds and trend', () => {
     const h = new History(new FileHistoryStore(dir), 100);
     for (let i = 0; i < 250; i++) h.add(point(T0 + i * 60_000, 1 + i / 1000));
     expect(h.points.length).toBeLessThanOrEqual(100);
-    const lines = readFileSync(join(dir, 'watcher', 'history.jsonl'), 'utf8').trim().split('\n');
+    const lines = readFileSync(join(dir, 'watcher', 'history.jsonl'), 'utf8')
+      .trim()
+      .split('\n');
     expect(lines.length).toBe(h.points.length);
     // The newest 50 points are kept as they were; the oldest surviving point averages the first minutes.
     expect(h.points[h.points.length - 1]!.ts).toBe(new Date(T0 + 249 * 60_000).toISOString());
@@ -403,7 +531,9 @@ describe('history bounds and trend', () => {
     appendFileSync(join(dir, 'watcher', 'history.jsonl'), '{"ts":"2031-03-02T08:02:00.000Z","wind');
     const again = new History(new FileHistoryStore(dir), 100);
     expect(again.points.length).toBe(2);
-    expect(again.warnings[0]).toMatch(/line 3 is not valid JSON \(torn write after a power cut\?\), skipped/);
+    expect(again.warnings[0]).toMatch(
+      /line 3 is not valid JSON \(torn write after a power cut\?\), skipped/,
+    );
     again.add(point(T0 + 120_000, 1.2));
     expect(new History(new FileHistoryStore(dir), 100).points.length).toBe(3);
   });

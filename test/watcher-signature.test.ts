@@ -3,7 +3,13 @@ import { assessWindow } from '../agent/watcher/assess.js';
 import { resolveWatcherSettings } from '../agent/watcher/settings.js';
 import { pulsesPerRevHint } from '../agent/watcher/zones.js';
 import type { WindowResult } from '../agent/dsp/types.js';
-import { demoConfig, fanCase, synthWindow, type FanCase, type WindowSpec } from './support/fan-windows.js';
+import {
+  demoConfig,
+  fanCase,
+  synthWindow,
+  type FanCase,
+  type WindowSpec,
+} from './support/fan-windows.js';
 
 /**
  * Unbalance signature. The patterns and thresholds are the trade's rules (common practice):
@@ -19,13 +25,24 @@ const cfg = demoConfig();
 function series(c: FanCase, n: number): WindowResult[] {
   const out: WindowResult[] = [];
   for (let i = 0; i < n; i++) {
-    out.push(synthWindow(fanCase(c, { phase: 40 + (i % 2 ? 3 : -3), amp: 4 * (1 + 0.02 * (i % 3)), start_index: i * 51200 })));
+    out.push(
+      synthWindow(
+        fanCase(c, {
+          phase: 40 + (i % 2 ? 3 : -3),
+          amp: 4 * (1 + 0.02 * (i % 3)),
+          start_index: i * 51200,
+        }),
+      ),
+    );
   }
   return out;
 }
 
 function judge(windows: readonly WindowResult[], config = cfg) {
-  return assessWindow(config, windows[windows.length - 1]!, { recent: windows.slice(0, -1), baseline: null }).unbalance;
+  return assessWindow(config, windows[windows.length - 1]!, {
+    recent: windows.slice(0, -1),
+    baseline: null,
+  }).unbalance;
 }
 
 describe('unbalance signature: the four kinds (common practice)', () => {
@@ -35,9 +52,15 @@ describe('unbalance signature: the four kinds (common practice)', () => {
     expect(u.confidence).toBe('high');
     expect(u.points_to).toEqual([]);
     expect(u.evidence.join('\n')).toMatch(/vertical: DE and NDE 1x are 12 deg apart, in phase/);
-    expect(u.evidence.join('\n')).toMatch(/DE: horizontal and vertical 1x are 90 deg apart with H\/V ratio 1\.3: elliptical/);
+    expect(u.evidence.join('\n')).toMatch(
+      /DE: horizontal and vertical 1x are 90 deg apart with H\/V ratio 1\.3: elliptical/,
+    );
     expect(u.evidence.join('\n')).toMatch(/1x phase steady/);
-    expect(u.measures.bearing_pair!.directions.map((d) => d.relation)).toEqual(['in_phase', 'in_phase', 'between']);
+    expect(u.measures.bearing_pair!.directions.map((d) => d.relation)).toEqual([
+      'in_phase',
+      'in_phase',
+      'between',
+    ]);
   });
 
   it('couple: bearings about 180 apart -> couple', () => {
@@ -72,8 +95,12 @@ describe('1x that is not unbalance (common practice)', () => {
     expect(u.kind).toBe('none');
     expect(u.points_to.map((p) => p.cause)).toEqual(['misalignment', 'bent_shaft']);
     expect(u.points_to[0]!.why).toMatch(/2x is 90 % of 1x/);
-    expect(u.points_to[0]!.why).toMatch(/axial 1x is high .* 178 deg apart end to end, with high 2x/);
-    expect(u.limits.join('\n')).toMatch(/no sensor on the driver side of the coupling \(watcher\.unbalance\.coupling\): misalignment cannot be told from a bent shaft with these sensors/);
+    expect(u.points_to[0]!.why).toMatch(
+      /axial 1x is high .* 178 deg apart end to end, with high 2x/,
+    );
+    expect(u.limits.join('\n')).toMatch(
+      /no sensor on the driver side of the coupling \(watcher\.unbalance\.coupling\): misalignment cannot be told from a bent shaft with these sensors/,
+    );
   });
 
   it('axial 180 apart without high 2x on one shaft -> bent shaft', () => {
@@ -88,14 +115,23 @@ describe('1x that is not unbalance (common practice)', () => {
   it('directional 1x: H and V in phase with a large ratio -> none, points to eccentricity, looseness, resonance, weak support', () => {
     const u = judge(series('directional', 6));
     expect(u.kind).toBe('none');
-    expect(u.points_to.map((p) => p.cause).sort()).toEqual(['eccentricity', 'looseness', 'resonance', 'weak_support']);
-    expect(u.points_to[0]!.why).toMatch(/DE: horizontal and vertical 1x are 5 deg apart with H\/V ratio 4\.6 \(straight-line/);
+    expect(u.points_to.map((p) => p.cause).sort()).toEqual([
+      'eccentricity',
+      'looseness',
+      'resonance',
+      'weak_support',
+    ]);
+    expect(u.points_to[0]!.why).toMatch(
+      /DE: horizontal and vertical 1x are 5 deg apart with H\/V ratio 4\.6 \(straight-line/,
+    );
     expect(u.measures.bearings['NDE']!.hv_phase_diff_deg).toBeCloseTo(175, 6);
   });
 
   it('unsteady 1x phase at steady speed -> none, unstable phase (not a fixed heavy spot)', () => {
     const phases = [40, 110, 20, 95, 170, 60];
-    const windows = phases.map((p, i) => synthWindow(fanCase('static', { phase: p, start_index: i * 51200 })));
+    const windows = phases.map((p, i) =>
+      synthWindow(fanCase('static', { phase: p, start_index: i * 51200 })),
+    );
     const u = judge(windows);
     expect(u.kind).toBe('none');
     expect(u.points_to.map((p) => p.cause)).toEqual(['unstable_phase']);
@@ -104,9 +140,13 @@ describe('1x that is not unbalance (common practice)', () => {
   });
 
   it('a single phase step (a lost weight) or a slow drift (build-up) is not unstable phase', () => {
-    const step = [40, 40, 40, 120, 120, 120].map((p, i) => synthWindow(fanCase('static', { phase: p, start_index: i * 51200 })));
+    const step = [40, 40, 40, 120, 120, 120].map((p, i) =>
+      synthWindow(fanCase('static', { phase: p, start_index: i * 51200 })),
+    );
     expect(judge(step).kind).toBe('static');
-    const drift = [40, 52, 64, 76, 88, 100].map((p, i) => synthWindow(fanCase('static', { phase: p, start_index: i * 51200 })));
+    const drift = [40, 52, 64, 76, 88, 100].map((p, i) =>
+      synthWindow(fanCase('static', { phase: p, start_index: i * 51200 })),
+    );
     expect(judge(drift).kind).toBe('static');
   });
 
@@ -118,7 +158,16 @@ describe('1x that is not unbalance (common practice)', () => {
       { speed: 1488, amp: 3, phase: 135 },
       { speed: 1494, amp: 2, phase: 180 },
     ];
-    const windows = steps.map((s, i) => synthWindow(fanCase('static', { amp: s.amp, phase: s.phase, speed_rpm: s.speed, start_index: i * 51200 })));
+    const windows = steps.map((s, i) =>
+      synthWindow(
+        fanCase('static', {
+          amp: s.amp,
+          phase: s.phase,
+          speed_rpm: s.speed,
+          start_index: i * 51200,
+        }),
+      ),
+    );
     const u = judge(windows);
     expect(u.kind).toBe('none');
     expect(u.points_to.map((p) => p.cause)).toEqual(['resonance']);
@@ -126,8 +175,12 @@ describe('1x that is not unbalance (common practice)', () => {
 
   it('1x not dominant: a large non-synchronous content -> none, not mainly unbalance', () => {
     const spec = fanCase('static');
-    const broadband = Object.fromEntries(Object.entries(spec.oneX).map(([id, v]) => [id, 2 * v.amp]));
-    const windows = [0, 1, 2].map((i) => synthWindow({ ...spec, broadband, start_index: i * 51200 }));
+    const broadband = Object.fromEntries(
+      Object.entries(spec.oneX).map(([id, v]) => [id, 2 * v.amp]),
+    );
+    const windows = [0, 1, 2].map((i) =>
+      synthWindow({ ...spec, broadband, start_index: i * 51200 }),
+    );
     const u = judge(windows);
     expect(u.kind).toBe('none');
     expect(u.measures.one_x_share!).toBeLessThan(0.7);
@@ -140,7 +193,9 @@ describe('1x that is not unbalance (common practice)', () => {
     const a = assessWindow(cfg, windows[5]!, { recent: windows.slice(0, 5) });
     expect(a.unbalance.kind).toBe('none');
     expect(a.unbalance.points_to).toEqual([]);
-    expect(a.unbalance.evidence[0]).toMatch(/largest radial 1x is 0\.35 mm\/s r\.m\.s\. at DE-V, below the 0\.70 mm\/s needed/);
+    expect(a.unbalance.evidence[0]).toMatch(
+      /largest radial 1x is 0\.35 mm\/s r\.m\.s\. at DE-V, below the 0\.70 mm\/s needed/,
+    );
     expect(a.zone.machine).toBe('A');
   });
 });
@@ -154,11 +209,18 @@ describe('faulty and missing sensors', () => {
       oneX: { ...spec.oneX, 'NDE-V': { amp: 6, phase: 220 } },
       stats: { 'NDE-V': { dc_v: 0.3 } },
     };
-    const windows = [0, 1, 2, 3, 4, 5].map((i) => synthWindow({ ...broken, start_index: i * 51200 }));
+    const windows = [0, 1, 2, 3, 4, 5].map((i) =>
+      synthWindow({ ...broken, start_index: i * 51200 }),
+    );
     const a = assessWindow(cfg, windows[5]!, { recent: windows.slice(0, 5), baseline: null });
     expect(a.unbalance.kind).toBe('static');
-    expect(a.unbalance.limits.join('\n')).toMatch(/NDE-V left out: bias 0\.30 V outside its 8-12 V window \(short circuit or no sensor power\)/);
-    expect(a.unbalance.measures.bearing_pair!.directions.map((d) => d.direction)).toEqual(['horizontal', 'axial']);
+    expect(a.unbalance.limits.join('\n')).toMatch(
+      /NDE-V left out: bias 0\.30 V outside its 8-12 V window \(short circuit or no sensor power\)/,
+    );
+    expect(a.unbalance.measures.bearing_pair!.directions.map((d) => d.direction)).toEqual([
+      'horizontal',
+      'axial',
+    ]);
     expect(a.unbalance.confidence).toBe('medium');
     expect(a.zone.channels['NDE-V']!.status).toBe('not_ok');
     expect(a.zone.channels['NDE-V']!.zone).toBeNull();
@@ -168,14 +230,24 @@ describe('faulty and missing sensors', () => {
 
   it('clipping and a flat line are sensor faults; a stopped fan is not a flat line', () => {
     const spec = fanCase('static');
-    const w = synthWindow({ ...spec, stats: { 'DE-H': { clipped_samples: 900 }, 'NDE-H': { ac_rms_v: 0.00005 } } });
+    const w = synthWindow({
+      ...spec,
+      stats: { 'DE-H': { clipped_samples: 900 }, 'NDE-H': { ac_rms_v: 0.00005 } },
+    });
     const a = assessWindow(cfg, w);
     const byId = Object.fromEntries(a.sensors.map((s) => [s.id, s]));
     expect(byId['DE-H']!.problems[0]).toMatch(/clipped: 900 of 51200 samples/);
-    expect(byId['NDE-H']!.problems[0]).toMatch(/flat line: 0\.050 mV r\.m\.s\. while the fan turns/);
+    expect(byId['NDE-H']!.problems[0]).toMatch(
+      /flat line: 0\.050 mV r\.m\.s\. while the fan turns/,
+    );
     expect(byId['DE-V']!.ok).toBe(true);
 
-    const stopped = synthWindow({ oneX: { 'DE-V': { amp: 0.01, phase: 0 }, 'NDE-V': { amp: 0.01, phase: 0 } }, tachEdges: 0, broadband: { 'DE-V': 0.02, 'NDE-V': 0.02 }, stats: { 'DE-V': { ac_rms_v: 0.00005 } } });
+    const stopped = synthWindow({
+      oneX: { 'DE-V': { amp: 0.01, phase: 0 }, 'NDE-V': { amp: 0.01, phase: 0 } },
+      tachEdges: 0,
+      broadband: { 'DE-V': 0.02, 'NDE-V': 0.02 },
+      stats: { 'DE-V': { ac_rms_v: 0.00005 } },
+    });
     const s = assessWindow(cfg, stopped);
     expect(s.tach.state).toBe('stopped');
     expect(s.sensors.find((x) => x.id === 'DE-V')!.ok).toBe(true);
@@ -199,7 +271,9 @@ describe('faulty and missing sensors', () => {
     const u = judge(windows, noH);
     expect(u.kind).toBe('couple');
     expect(u.confidence).toBe('medium');
-    expect(u.limits.join('\n')).toMatch(/DE: no healthy horizontal sensor, the H\/V rule was not checked there/);
+    expect(u.limits.join('\n')).toMatch(
+      /DE: no healthy horizontal sensor, the H\/V rule was not checked there/,
+    );
   });
 
   it('one bearing only: no static/couple claim; the general case with low confidence', () => {
@@ -209,7 +283,9 @@ describe('faulty and missing sensors', () => {
     const u = judge(windows, deOnly);
     expect(u.kind).toBe('dynamic');
     expect(u.confidence).toBe('low');
-    expect(u.limits.join('\n')).toMatch(/only one bearing has radial sensors: static, couple and dynamic unbalance cannot be told apart/);
+    expect(u.limits.join('\n')).toMatch(
+      /only one bearing has radial sensors: static, couple and dynamic unbalance cannot be told apart/,
+    );
   });
 
   it('a single vertical sensor and one window: low confidence, every gap named, no crash', () => {
@@ -222,19 +298,56 @@ describe('faulty and missing sensors', () => {
   });
 
   it('a sensor mounted on the opposite side (mounting angle 180) is corrected before comparing', () => {
-    const flipped = demoConfig({ sensors: (s) => (s['id'] === 'NDE-V' ? { ...s, mounting_angle_deg: 180 } : s) });
+    const flipped = demoConfig({
+      sensors: (s) => (s['id'] === 'NDE-V' ? { ...s, mounting_angle_deg: 180 } : s),
+    });
     const spec = fanCase('static');
     const sensors = [
-      { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical' as const, mounting_angle_deg: 0 },
-      { id: 'DE-H', channel: 1, bearing: 'DE', direction: 'horizontal' as const, mounting_angle_deg: 0 },
+      {
+        id: 'DE-V',
+        channel: 0,
+        bearing: 'DE',
+        direction: 'vertical' as const,
+        mounting_angle_deg: 0,
+      },
+      {
+        id: 'DE-H',
+        channel: 1,
+        bearing: 'DE',
+        direction: 'horizontal' as const,
+        mounting_angle_deg: 0,
+      },
       { id: 'DE-A', channel: 2, bearing: 'DE', direction: 'axial' as const, mounting_angle_deg: 0 },
-      { id: 'NDE-V', channel: 3, bearing: 'NDE', direction: 'vertical' as const, mounting_angle_deg: 180 },
-      { id: 'NDE-H', channel: 4, bearing: 'NDE', direction: 'horizontal' as const, mounting_angle_deg: 0 },
-      { id: 'NDE-A', channel: 5, bearing: 'NDE', direction: 'axial' as const, mounting_angle_deg: 0 },
+      {
+        id: 'NDE-V',
+        channel: 3,
+        bearing: 'NDE',
+        direction: 'vertical' as const,
+        mounting_angle_deg: 180,
+      },
+      {
+        id: 'NDE-H',
+        channel: 4,
+        bearing: 'NDE',
+        direction: 'horizontal' as const,
+        mounting_angle_deg: 0,
+      },
+      {
+        id: 'NDE-A',
+        channel: 5,
+        bearing: 'NDE',
+        direction: 'axial' as const,
+        mounting_angle_deg: 0,
+      },
     ];
     // The flipped sensor reads 180 deg more than a sensor in the reference position would.
-    const oneX = { ...spec.oneX, 'NDE-V': { amp: spec.oneX['NDE-V']!.amp, phase: spec.oneX['NDE-V']!.phase + 180 } };
-    const windows = [0, 1, 2, 3].map((i) => synthWindow({ ...spec, oneX, sensors, start_index: i * 51200 }));
+    const oneX = {
+      ...spec.oneX,
+      'NDE-V': { amp: spec.oneX['NDE-V']!.amp, phase: spec.oneX['NDE-V']!.phase + 180 },
+    };
+    const windows = [0, 1, 2, 3].map((i) =>
+      synthWindow({ ...spec, oneX, sensors, start_index: i * 51200 }),
+    );
     const u = judge(windows, flipped);
     expect(u.kind).toBe('static');
   });
@@ -250,7 +363,11 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
   const rated = 1485; // machine.rated_rpm of config/example.yaml (invented demo fan)
   const withPpr = (ppr: number) => demoConfig({ tach: { pulses_per_rev: ppr } });
   const hint = (ppr: number, speed: number, spread = 0.001) => {
-    const w = { ...synthWindow(fanCase('static', { speed_rpm: speed })), speed_min_rpm: speed * (1 - spread), speed_max_rpm: speed * (1 + spread) };
+    const w = {
+      ...synthWindow(fanCase('static', { speed_rpm: speed })),
+      speed_min_rpm: speed * (1 - spread),
+      speed_max_rpm: speed * (1 + spread),
+    };
     return pulsesPerRevHint(resolveWatcherSettings(withPpr(ppr)), w);
   };
 
@@ -264,7 +381,9 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
     expect(hint(1, rated * 2)).toMatchObject({ configured: 1, fits: 2, speed_ratio: 2 });
     expect(hint(1, rated * 3)!.fits).toBe(3);
     expect(hint(2, rated * 4)!.fits).toBe(8);
-    expect(hint(2, rated / 2)!.why).toMatch(/743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/);
+    expect(hint(2, rated / 2)!.why).toMatch(
+      /743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/,
+    );
   });
 
   it('says nothing at rated speed, beyond 3 %, for k above 4, when no whole value fits, while the speed moves, or without rated_rpm', () => {
@@ -279,7 +398,12 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
     expect(hint(2, rated / 2, 0.01)).toBeNull(); // 2 % spread: starting or coasting through rated / 2
     expect(hint(2, rated / 2, 0.007)!.fits).toBe(1); // 1.4 %: steady enough
     const noRated = demoConfig({ machine: { rated_rpm: undefined }, tach: { pulses_per_rev: 2 } });
-    expect(pulsesPerRevHint(resolveWatcherSettings(noRated), synthWindow(fanCase('static', { speed_rpm: rated / 2 })))).toBeNull();
+    expect(
+      pulsesPerRevHint(
+        resolveWatcherSettings(noRated),
+        synthWindow(fanCase('static', { speed_rpm: rated / 2 })),
+      ),
+    ).toBeNull();
   });
 
   it('the unbalance verdict claims no high confidence then, and says why', () => {
@@ -290,12 +414,24 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
     expect(right.confidence).toBe('high'); // control: without the hint the same window is a confident "none"
     const wrong = assessWindow(withPpr(2), quietHalf, { baseline: null });
     expect(wrong.unbalance.confidence).toBe('low');
-    expect(wrong.unbalance.limits[0]).toMatch(/^confidence held low: .*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/);
+    expect(wrong.unbalance.limits[0]).toMatch(
+      /^confidence held low: .*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/,
+    );
     expect(wrong.speed.pulses_per_rev_hint!.fits).toBe(1);
     // A clear static pattern too: never high while the hint stands.
-    const steady = [0, 1, 2, 3, 4, 5].map((i) => synthWindow(fanCase('static', { speed_rpm: rated * 2, phase: 40 + (i % 2 ? 3 : -3), start_index: i * 51200 })));
+    const steady = [0, 1, 2, 3, 4, 5].map((i) =>
+      synthWindow(
+        fanCase('static', {
+          speed_rpm: rated * 2,
+          phase: 40 + (i % 2 ? 3 : -3),
+          start_index: i * 51200,
+        }),
+      ),
+    );
     const u = judge(steady, withPpr(1));
     expect(u.confidence).toBe('low');
-    expect(u.limits.join('\n')).toMatch(/about 2 x machine\.rated_rpm.*set tach\.pulses_per_rev: 2/);
+    expect(u.limits.join('\n')).toMatch(
+      /about 2 x machine\.rated_rpm.*set tach\.pulses_per_rev: 2/,
+    );
   });
 });

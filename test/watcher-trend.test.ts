@@ -31,7 +31,10 @@ function noise(seed: number): () => number {
 describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
   it('recovers slope and intercept of an exact line', () => {
     const t = [0, 1, 2, 3, 4, 5, 6, 7];
-    const fit = theilSen(t, t.map((x) => 3 - 0.5 * x))!;
+    const fit = theilSen(
+      t,
+      t.map((x) => 3 - 0.5 * x),
+    )!;
     expect(fit.slope).toBe(-0.5);
     expect(fit.intercept).toBe(3);
     expect(fit.r2).toBe(1);
@@ -60,13 +63,20 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
     const [early, late] = tr.crossing_range!.map((s) => Date.parse(s));
     expect(early!).toBeLessThanOrEqual(Date.parse(tr.crossing_at!));
     expect(late!).toBeGreaterThanOrEqual(Date.parse(tr.crossing_at!));
-    expect(tr.why).toMatch(/rising 0\.4[78]\d mm\/s per day .* reaches zone B\/C \(2\.80 mm\/s\) about 2031-03-05T01:/);
+    expect(tr.why).toMatch(
+      /rising 0\.4[78]\d mm\/s per day .* reaches zone B\/C \(2\.80 mm\/s\) about 2031-03-05T01:/,
+    );
   });
 
   it('says "no trend" for scatter about a constant level', () => {
     const rnd = noise(11);
     const tMs = Array.from({ length: 60 }, (_, i) => T0 + i * H);
-    const tr = seriesTrend(tMs, tMs.map(() => 2 + 0.3 * rnd()), LIMITS, CFG);
+    const tr = seriesTrend(
+      tMs,
+      tMs.map(() => 2 + 0.3 * rnd()),
+      LIMITS,
+      CFG,
+    );
     expect(tr.state).toBe('no_trend');
     expect(tr.crossing_at).toBeNull();
     expect(tr.why).toMatch(/includes zero/);
@@ -75,7 +85,12 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
   it('says "no trend" when a real but small slope explains too little of the scatter', () => {
     const rnd = noise(5);
     const tMs = Array.from({ length: 400 }, (_, i) => T0 + i * H);
-    const tr = seriesTrend(tMs, tMs.map((_, i) => 2 + 0.0005 * i + 0.3 * rnd()), LIMITS, CFG);
+    const tr = seriesTrend(
+      tMs,
+      tMs.map((_, i) => 2 + 0.0005 * i + 0.3 * rnd()),
+      LIMITS,
+      CFG,
+    );
     expect(tr.state).toBe('no_trend');
     expect(tr.slope_range_mm_s_per_day![0]).toBeGreaterThan(0); // the slope itself is clear...
     expect(tr.why).toMatch(/the line explains only \d+ % of the variation/); // ...but the fit is poor
@@ -91,10 +106,26 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
   it('leaves out history from before the baseline was learned (an earlier balance state)', () => {
     const cfg = demoConfig();
     const s = resolveWatcherSettings(cfg);
-    const pt = (h: number, v: number): HistoryPoint => ({ ts: new Date(T0 + h * H).toISOString(), windows: 6, speed_rpm: 1485, channels: { 'DE-V': { overall_rms_mm_s: v, one_x_rms_mm_s: v, one_x_phase_deg: 40 } } });
+    const pt = (h: number, v: number): HistoryPoint => ({
+      ts: new Date(T0 + h * H).toISOString(),
+      windows: 6,
+      speed_rpm: 1485,
+      channels: { 'DE-V': { overall_rms_mm_s: v, one_x_rms_mm_s: v, one_x_phase_deg: 40 } },
+    });
     // 24 h at 3.5 mm/s, a balancing job and a new baseline, then 24 h rising 0.02 mm/s per hour from 1.0 mm/s.
-    const pts = [...Array.from({ length: 24 }, (_, h) => pt(h, 3.5)), ...Array.from({ length: 24 }, (_, h) => pt(30 + h, 1.0 + 0.02 * h))];
-    const base = { version: 1 as const, asset: s.asset, source: 'learned' as const, learned_at: new Date(T0 + 29 * H).toISOString(), windows: 6, speed_rpm: 1485, channels: {} };
+    const pts = [
+      ...Array.from({ length: 24 }, (_, h) => pt(h, 3.5)),
+      ...Array.from({ length: 24 }, (_, h) => pt(30 + h, 1.0 + 0.02 * h)),
+    ];
+    const base = {
+      version: 1 as const,
+      asset: s.asset,
+      source: 'learned' as const,
+      learned_at: new Date(T0 + 29 * H).toISOString(),
+      windows: 6,
+      speed_rpm: 1485,
+      channels: {},
+    };
     expect(trendReport(s, pts, null).channels['DE-V']!.overall.state).not.toBe('rising'); // the step of the job hides the rise
     const after = trendReport(s, pts, base).channels['DE-V']!.overall;
     expect(after.points).toBe(24);
@@ -113,7 +144,9 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
     const w = openWatcher(cfg, clock);
     for (let i = 0; i < 90; i++) {
       clock.advance(10);
-      w.process(synthWindow({ ...fanCase('static', { amp: 1.0 + 0.01 * i }), start_index: i * 51200 }));
+      w.process(
+        synthWindow({ ...fanCase('static', { amp: 1.0 + 0.01 * i }), start_index: i * 51200 }),
+      );
     }
     const t = w.status().trend!;
     // Windows at 10 s ... 900 s: the first point closes at 70 s (first window + 60 s), then one every 60 s up to 850 s.
@@ -123,7 +156,9 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
     expect(de.next_limit!.name).toBe('zone B/C'); // DE-V is already in zone B
     expect(Date.parse(de.crossing_at!)).toBeGreaterThan(clock.now());
     // The soonest crossing over all sensors is reported for the machine.
-    const all = Object.entries(t.channels).flatMap(([id, c]) => [c.overall, c.one_x].flatMap((x) => (x.crossing_at ? [{ id, at: x.crossing_at }] : [])));
+    const all = Object.entries(t.channels).flatMap(([id, c]) =>
+      [c.overall, c.one_x].flatMap((x) => (x.crossing_at ? [{ id, at: x.crossing_at }] : [])),
+    );
     const first = all.reduce((a, b) => (b.at < a.at ? b : a));
     expect(t.soonest!.crossing_at).toBe(first.at);
     expect(t.soonest!.sensor).toBe(first.id);

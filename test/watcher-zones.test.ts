@@ -42,9 +42,21 @@ describe('ISO 20816-3 zone boundaries (ISO 20816-3 zone boundary table for group
 
   it('the config picks the boundaries from machine.group and machine.support', () => {
     const w = synthWindow(fanCase('static', { amp: 3 })); // DE-V overall 3.18 mm/s
-    expect(assessWindow(demoConfig({ machine: { group: 2, support: 'rigid' } }), w).zone.channels['DE-V']!.zone).toBe('C'); // 2.8 < 3.18 <= 4.5
-    expect(assessWindow(demoConfig({ machine: { group: 1, support: 'rigid' } }), w).zone.channels['DE-V']!.zone).toBe('B'); // 2.3 < 3.18 <= 4.5
-    expect(assessWindow(demoConfig({ machine: { group: 1, support: 'flexible' } }), w).zone.channels['DE-V']!.zone).toBe('A'); // <= 3.5
+    expect(
+      assessWindow(demoConfig({ machine: { group: 2, support: 'rigid' } }), w).zone.channels[
+        'DE-V'
+      ]!.zone,
+    ).toBe('C'); // 2.8 < 3.18 <= 4.5
+    expect(
+      assessWindow(demoConfig({ machine: { group: 1, support: 'rigid' } }), w).zone.channels[
+        'DE-V'
+      ]!.zone,
+    ).toBe('B'); // 2.3 < 3.18 <= 4.5
+    expect(
+      assessWindow(demoConfig({ machine: { group: 1, support: 'flexible' } }), w).zone.channels[
+        'DE-V'
+      ]!.zone,
+    ).toBe('A'); // <= 3.5
   });
 });
 
@@ -74,13 +86,21 @@ describe('ISO 14694 fan limits (from memory: check against the current edition)'
   });
 
   it('custom limits must rise A/B < B/C < C/D', () => {
-    expect(() => demoConfig({ watcher: { limits: { source: 'custom', ab_mm_s: 3, bc_mm_s: 2, cd_mm_s: 5 } } })).toThrow(/watcher\.limits\.ab_mm_s: ab_mm_s < bc_mm_s < cd_mm_s is required/);
-    const cfg = demoConfig({ watcher: { limits: { source: 'custom', ab_mm_s: 1, bc_mm_s: 2, cd_mm_s: 3 } } });
-    expect(assessWindow(cfg, synthWindow(fanCase('static', { amp: 2.5 }))).zone.channels['DE-V']!.zone).toBe('C');
+    expect(() =>
+      demoConfig({ watcher: { limits: { source: 'custom', ab_mm_s: 3, bc_mm_s: 2, cd_mm_s: 5 } } }),
+    ).toThrow(/watcher\.limits\.ab_mm_s: ab_mm_s < bc_mm_s < cd_mm_s is required/);
+    const cfg = demoConfig({
+      watcher: { limits: { source: 'custom', ab_mm_s: 1, bc_mm_s: 2, cd_mm_s: 3 } },
+    });
+    expect(
+      assessWindow(cfg, synthWindow(fanCase('static', { amp: 2.5 }))).zone.channels['DE-V']!.zone,
+    ).toBe('C');
   });
 
   it('ISO 14694 without a category is refused by name', () => {
-    expect(() => demoConfig({ watcher: { limits: { source: 'iso14694' } } })).toThrow(/watcher\.limits\.category/);
+    expect(() => demoConfig({ watcher: { limits: { source: 'iso14694' } } })).toThrow(
+      /watcher\.limits\.category/,
+    );
   });
 });
 
@@ -95,7 +115,11 @@ describe('baseline-relative alarm (ISO 20816-3: baseline + 0.25 x B/C, normally 
 
   it('is applied per sensor once a baseline with overall values exists', () => {
     const cfg = demoConfig({
-      watcher: { baseline: { channels: { 'DE-V': { one_x_rms_mm_s: 1.0, one_x_phase_deg: 40, overall_rms_mm_s: 1.1 } } } },
+      watcher: {
+        baseline: {
+          channels: { 'DE-V': { one_x_rms_mm_s: 1.0, one_x_phase_deg: 40, overall_rms_mm_s: 1.1 } },
+        },
+      },
     });
     const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 1.8 }))); // DE-V overall 1.9 mm/s
     expect(a.zone.channels['DE-V']!.alarm_mm_s).toBeCloseTo(1.8, 12); // 1.1 + 0.25 x 2.8
@@ -105,9 +129,13 @@ describe('baseline-relative alarm (ISO 20816-3: baseline + 0.25 x B/C, normally 
   });
 
   it('names a baseline sensor that does not exist', () => {
-    const cfg = demoConfig({ watcher: { baseline: { channels: { 'DE-X': { one_x_rms_mm_s: 1, one_x_phase_deg: 0 } } } } });
+    const cfg = demoConfig({
+      watcher: { baseline: { channels: { 'DE-X': { one_x_rms_mm_s: 1, one_x_phase_deg: 0 } } } },
+    });
     expect(() => assessWindow(cfg, synthWindow(fanCase('static')))).toThrow(UserError);
-    expect(() => assessWindow(cfg, synthWindow(fanCase('static')))).toThrow(/watcher\.baseline\.channels\.DE-X: no sensor with id "DE-X"/);
+    expect(() => assessWindow(cfg, synthWindow(fanCase('static')))).toThrow(
+      /watcher\.baseline\.channels\.DE-X: no sensor with id "DE-X"/,
+    );
   });
 });
 
@@ -155,14 +183,18 @@ describe('start-up and coast-down', () => {
     const a = assessWindow(demoConfig(), w);
     expect(a.speed.state).toBe('low');
     expect(a.zone.inhibited).toBe(true);
-    expect(a.zone.notes[0]).toMatch(/zones and alarms held: 900 r\/min is below 1188 r\/min \(80 % of rated\)/);
+    expect(a.zone.notes[0]).toMatch(
+      /zones and alarms held: 900 r\/min is below 1188 r\/min \(80 % of rated\)/,
+    );
   });
 
   it('or the limits are raised by the start-up multiplier ("raise"; machinery-protection practice x2 or x3, from memory)', () => {
     const cfg = demoConfig({ watcher: { below_min_speed: 'raise', startup_multiplier: 2 } });
     const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 5, speed_rpm: 900 }))); // DE-V 5.3 mm/s
     expect(a.zone.inhibited).toBe(false);
-    expect([a.zone.limits.ab_mm_s, a.zone.limits.bc_mm_s, a.zone.limits.cd_mm_s]).toEqual([2.8, 5.6, 9.0]);
+    expect([a.zone.limits.ab_mm_s, a.zone.limits.bc_mm_s, a.zone.limits.cd_mm_s]).toEqual([
+      2.8, 5.6, 9.0,
+    ]);
     expect(a.zone.channels['DE-V']!.zone).toBe('B');
     expect(a.zone.channels['DE-V']!.alarm_mm_s).toBe(5.6);
   });
@@ -172,14 +204,24 @@ describe('watcher config section', () => {
   it('is optional: the example config gets every default', () => {
     const w = demoConfig().watcher;
     expect(w.limits).toEqual({ source: 'iso20816' });
-    expect([w.on_delay_s, w.hysteresis_share, w.min_speed_share, w.below_min_speed, w.window_s]).toEqual([2, 0.05, 0.8, 'inhibit', 2]);
+    expect([
+      w.on_delay_s,
+      w.hysteresis_share,
+      w.min_speed_share,
+      w.below_min_speed,
+      w.window_s,
+    ]).toEqual([2, 0.05, 0.8, 'inhibit', 2]);
     expect(w.unbalance.phase_tolerance_deg).toBe(30);
     expect(w.history).toEqual({ interval_s: 60, max_points: 4000 });
   });
 
   it('rejects a misspelt key and a bearing without radial sensors, by name', () => {
-    expect(() => demoConfig({ watcher: { on_delay: 5 } })).toThrow(/watcher: unknown key\(s\) "on_delay"/);
+    expect(() => demoConfig({ watcher: { on_delay: 5 } })).toThrow(
+      /watcher: unknown key\(s\) "on_delay"/,
+    );
     const cfg = demoConfig({ watcher: { unbalance: { bearings: ['DE', 'MOTOR'] } } });
-    expect(() => assessWindow(cfg, synthWindow(fanCase('static')))).toThrow(/watcher\.unbalance\.bearings\[1\]: bearing "MOTOR" has no vertical or horizontal sensor/);
+    expect(() => assessWindow(cfg, synthWindow(fanCase('static')))).toThrow(
+      /watcher\.unbalance\.bearings\[1\]: bearing "MOTOR" has no vertical or horizontal sensor/,
+    );
   });
 });

@@ -18,7 +18,14 @@ function py(script: string): void {
   execFileSync('python3', ['-c', script], { cwd: dir, stdio: ['ignore', 'pipe', 'pipe'] });
 }
 
-async function readAll(file: string, opts = {}): Promise<{ info: { sampleRate: number; channelCount: number }; data: number[][]; blocks: number }> {
+async function readAll(
+  file: string,
+  opts = {},
+): Promise<{
+  info: { sampleRate: number; channelCount: number };
+  data: number[][];
+  blocks: number;
+}> {
   const src = new WavSource(file, opts);
   const info = await src.open();
   const data: number[][] = Array.from({ length: info.channelCount }, () => []);
@@ -59,7 +66,8 @@ describe('WAV reader', () => {
       expect(info).toMatchObject({ sampleRate: 25600, channelCount: 3 });
       expect(blocks).toBe(4);
       for (const i of [0, 1, 299, 300, 777, 999]) {
-        for (let c = 0; c < 3; c++) expect(data[c]![i]).toBeCloseTo((expectedInt(i, c) / 32768) * 10, 5);
+        for (let c = 0; c < 3; c++)
+          expect(data[c]![i]).toBeCloseTo((expectedInt(i, c) / 32768) * 10, 5);
       }
     });
   }
@@ -88,7 +96,9 @@ open('${f}', 'wb').write(b'RIFF' + struct.pack('<I', len(body)) + body)
     const cut = join(dir, 'cut.wav');
     writeFileSync(cut, whole.subarray(0, whole.length - 600));
     const src = new WavSource(cut);
-    await expect(src.open()).rejects.toThrow(/cut\.wav: truncated: the data chunk declares 6000 bytes but only 5400 are in the file/);
+    await expect(src.open()).rejects.toThrow(
+      /cut\.wav: truncated: the data chunk declares 6000 bytes but only 5400 are in the file/,
+    );
   });
 
   it('refuses unsupported formats and non-WAV files with a clear message', async () => {
@@ -97,7 +107,9 @@ open('${f}', 'wb').write(b'RIFF' + struct.pack('<I', len(body)) + body)
 import wave
 f = wave.open('${f8}', 'wb'); f.setnchannels(1); f.setsampwidth(1); f.setframerate(8000); f.writeframes(bytes(100)); f.close()
 `);
-    await expect(new WavSource(f8).open()).rejects.toThrow(/unsupported sample format: PCM, 8 bits/);
+    await expect(new WavSource(f8).open()).rejects.toThrow(
+      /unsupported sample format: PCM, 8 bits/,
+    );
     const txt = join(dir, 'notes.wav');
     writeFileSync(txt, 'these are not samples, just a text file');
     await expect(new WavSource(txt).open()).rejects.toThrow(/notes\.wav: not a RIFF\/WAVE file/);

@@ -23,14 +23,25 @@ function chunks(buf: Buffer): { id: string; size: number; at: number }[] {
 }
 
 /** Test signal: channel c, frame i. Distinct per channel and frame, exact in float32 where it matters. */
-const value = (c: number, i: number) => Math.fround((c + 1) * 0.5 + Math.sin(0.001 * i * (c + 1)) * 3 - (i % 7) * 1e-3);
+const value = (c: number, i: number) =>
+  Math.fround((c + 1) * 0.5 + Math.sin(0.001 * i * (c + 1)) * 3 - (i % 7) * 1e-3);
 
-async function writeFile(path: string, channels: number, frames: number, block: number): Promise<number> {
-  const w = await WavWriter.create(path, { sampleRate: 25600, channelCount: channels, comment: 'test: 0=DE-V 1=DE-H' });
+async function writeFile(
+  path: string,
+  channels: number,
+  frames: number,
+  block: number,
+): Promise<number> {
+  const w = await WavWriter.create(path, {
+    sampleRate: 25600,
+    channelCount: channels,
+    comment: 'test: 0=DE-V 1=DE-H',
+  });
   const bufs = Array.from({ length: channels }, () => new Float32Array(block));
   for (let start = 0; start < frames; start += block) {
     const n = Math.min(block, frames - start);
-    for (let c = 0; c < channels; c++) for (let i = 0; i < n; i++) bufs[c]![i] = value(c, start + i);
+    for (let c = 0; c < channels; c++)
+      for (let i = 0; i < n; i++) bufs[c]![i] = value(c, start + i);
     await w.write(bufs, n);
   }
   return w.close();
@@ -56,10 +67,18 @@ describe('WAV writer (RIFF/WAVE IEEE float32)', () => {
     expect(buf.readUInt16LE(fmt.at + 12)).toBe(28);
     expect(buf.readUInt16LE(fmt.at + 14)).toBe(32);
     expect(buf.readUInt32LE(cs[1]!.at)).toBe(frames);
-    expect(buf.toString('latin1', cs[2]!.at, cs[2]!.at + cs[2]!.size)).toContain('test: 0=DE-V 1=DE-H');
+    expect(buf.toString('latin1', cs[2]!.at, cs[2]!.at + cs[2]!.size)).toContain(
+      'test: 0=DE-V 1=DE-H',
+    );
     const data = cs[3]!;
     expect(data.size).toBe(frames * 7 * 4);
-    for (const [c, i] of [[0, 0], [6, 0], [3, 4095], [3, 4096], [6, 9999]] as const) {
+    for (const [c, i] of [
+      [0, 0],
+      [6, 0],
+      [3, 4095],
+      [3, 4096],
+      [6, 9999],
+    ] as const) {
       expect(buf.readFloatLE(data.at + (i * 7 + c) * 4)).toBe(value(c, i));
     }
   });
@@ -74,7 +93,16 @@ describe('WAV writer (RIFF/WAVE IEEE float32)', () => {
       'fs, d = wavfile.read(sys.argv[1])',
       'print(json.dumps({"fs": fs, "shape": list(d.shape), "dtype": str(d.dtype), "sum": [float(np.sum(d[:, c].astype(np.float64))) for c in range(d.shape[1])], "first": [float(x) for x in d[0]], "last": [float(x) for x in d[-1]]}))',
     ].join('\n');
-    const out = JSON.parse(execFileSync(process.env.TURNWISE_PYTHON ?? 'python3', ['-c', py, f], { encoding: 'utf8' })) as { fs: number; shape: number[]; dtype: string; sum: number[]; first: number[]; last: number[] };
+    const out = JSON.parse(
+      execFileSync(process.env.TURNWISE_PYTHON ?? 'python3', ['-c', py, f], { encoding: 'utf8' }),
+    ) as {
+      fs: number;
+      shape: number[];
+      dtype: string;
+      sum: number[];
+      first: number[];
+      last: number[];
+    };
     expect(out.fs).toBe(25600);
     expect(out.shape).toEqual([frames, 7]);
     expect(out.dtype).toBe('float32');
@@ -97,7 +125,9 @@ describe('WAV writer (RIFF/WAVE IEEE float32)', () => {
 
   it('refuses to pass the 4 GiB RIFF limit and to create a file in a missing folder', async () => {
     expect(maxWavFrames(7)).toBe(Math.floor((0xffffffff - 512) / 28));
-    await expect(WavWriter.create(join(dir, 'no/such/dir/x.wav'), { sampleRate: 1000, channelCount: 1 })).rejects.toThrow(UserError);
+    await expect(
+      WavWriter.create(join(dir, 'no/such/dir/x.wav'), { sampleRate: 1000, channelCount: 1 }),
+    ).rejects.toThrow(UserError);
     const f = join(dir, 'big.wav');
     const w = await WavWriter.create(f, { sampleRate: 1000, channelCount: 1000 });
     const n = Math.floor(0xffffffff / (4 * 1000)) + 1;

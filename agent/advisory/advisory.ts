@@ -34,7 +34,11 @@ export type AdvisoryState = LatchRecord['state'];
 export interface AdvisorySettings {
   readonly relay?: { readonly line: number; readonly activeLow: boolean };
   readonly lamp?: { readonly line: number; readonly activeLow: boolean };
-  readonly button?: { readonly line: number; readonly activeLow: boolean; readonly debounceMs: number };
+  readonly button?: {
+    readonly line: number;
+    readonly activeLow: boolean;
+    readonly debounceMs: number;
+  };
   readonly vote: VoteSettings;
   readonly holdMs: number;
   /** Drop the outputs when no input arrives for this long (wall clock), ms; 0 = never. */
@@ -42,16 +46,32 @@ export interface AdvisorySettings {
 }
 
 /** Checks the `advisory` section against the sensors and turns it into settings. Throws UserError. */
-export function advisorySettings(cfg: AdvisoryConfig, sensors: readonly SensorConfig[]): AdvisorySettings {
+export function advisorySettings(
+  cfg: AdvisoryConfig,
+  sensors: readonly SensorConfig[],
+): AdvisorySettings {
   const known = new Set(sensors.map((s) => s.id));
   cfg.sensors?.forEach((id, i) => {
-    if (!known.has(id)) throw new UserError(`advisory.sensors[${i}]`, `no sensor has id "${id}"`, `use ids from sensors[]: ${[...known].join(', ')}`);
+    if (!known.has(id))
+      throw new UserError(
+        `advisory.sensors[${i}]`,
+        `no sensor has id "${id}"`,
+        `use ids from sensors[]: ${[...known].join(', ')}`,
+      );
   });
   return {
     relay: cfg.relay && { line: cfg.relay.line, activeLow: cfg.relay.active_low },
     lamp: cfg.lamp && { line: cfg.lamp.line, activeLow: cfg.lamp.active_low },
-    button: cfg.ack_button && { line: cfg.ack_button.line, activeLow: cfg.ack_button.active_low, debounceMs: cfg.ack_button.debounce_ms },
-    vote: { zone: cfg.zone, minChannels: cfg.min_channels, voters: cfg.sensors ? new Set(cfg.sensors) : null },
+    button: cfg.ack_button && {
+      line: cfg.ack_button.line,
+      activeLow: cfg.ack_button.active_low,
+      debounceMs: cfg.ack_button.debounce_ms,
+    },
+    vote: {
+      zone: cfg.zone,
+      minChannels: cfg.min_channels,
+      voters: cfg.sensors ? new Set(cfg.sensors) : null,
+    },
     holdMs: cfg.hold_s * 1000,
     stallMs: cfg.stall_s * 1000,
   };
@@ -85,7 +105,15 @@ export interface AckOutcome {
   readonly changed: boolean;
 }
 
-type AdvisoryEventType = 'advisory_started' | 'advisory_raised' | 'advisory_acknowledged' | 'advisory_cleared' | 'advisory_coverage' | 'advisory_output_fault' | 'advisory_stalled' | 'advisory_resumed';
+type AdvisoryEventType =
+  | 'advisory_started'
+  | 'advisory_raised'
+  | 'advisory_acknowledged'
+  | 'advisory_cleared'
+  | 'advisory_coverage'
+  | 'advisory_output_fault'
+  | 'advisory_stalled'
+  | 'advisory_resumed';
 
 export class SafeStopAdvisory {
   private readonly s: AdvisorySettings;
@@ -141,9 +169,14 @@ export class SafeStopAdvisory {
     const a = new SafeStopAdvisory(opts);
     const { gpio, settings: s } = opts;
     // The same names and lines that `turnwise outputs-off` drops after the agent died (release.ts).
-    for (const o of advisoryOutputs(s)) a[o.role] = await gpio.output(o.name, o.line, { activeLow: o.activeLow, initial: false });
+    for (const o of advisoryOutputs(s))
+      a[o.role] = await gpio.output(o.name, o.line, { activeLow: o.activeLow, initial: false });
     if (s.button) {
-      a.button = await gpio.input('advisory acknowledge button', s.button.line, { activeLow: s.button.activeLow, debounceMs: s.button.debounceMs, edge: 'both' });
+      a.button = await gpio.input('advisory acknowledge button', s.button.line, {
+        activeLow: s.button.activeLow,
+        debounceMs: s.button.debounceMs,
+        edge: 'both',
+      });
       a.unwatch = a.button.watch((pressed) => {
         if (pressed) a.acknowledge('local button');
       });
@@ -162,7 +195,11 @@ export class SafeStopAdvisory {
     }
     a.lastInputWall = a.now();
     a.applyOutputs();
-    a.event('advisory_started', a.st === 'normal' ? (note ? 'warning' : 'info') : 'alarm', `safe-stop advisory started, outputs ${a.energised() ? 'energised' : 'dropped'}${note}`);
+    a.event(
+      'advisory_started',
+      a.st === 'normal' ? (note ? 'warning' : 'info') : 'alarm',
+      `safe-stop advisory started, outputs ${a.energised() ? 'energised' : 'dropped'}${note}`,
+    );
     const tickMs = opts.tickMs ?? 1000;
     if (tickMs > 0) {
       a.timer = setInterval(() => a.tick(), tickMs);
@@ -186,11 +223,16 @@ export class SafeStopAdvisory {
     if (v.met) {
       this.goneSinceMs = null;
       this.metSinceMs ??= t;
-      if ((this.st === 'normal' || this.st === 'latched') && t - this.metSinceMs >= this.s.holdMs) this.raise(v);
+      if ((this.st === 'normal' || this.st === 'latched') && t - this.metSinceMs >= this.s.holdMs)
+        this.raise(v);
     } else {
       this.metSinceMs = null;
       this.goneSinceMs ??= t;
-      if ((this.st === 'raised' || this.st === 'acknowledged') && t - this.goneSinceMs >= this.s.holdMs) this.conditionGone();
+      if (
+        (this.st === 'raised' || this.st === 'acknowledged') &&
+        t - this.goneSinceMs >= this.s.holdMs
+      )
+        this.conditionGone();
     }
     this.applyOutputs();
   }
@@ -216,7 +258,11 @@ export class SafeStopAdvisory {
     if (this.s.stallMs > 0 && !this.stalled && this.now() - this.lastInputWall > this.s.stallMs) {
       this.stalled = true;
       this.applyOutputs();
-      this.event('advisory_stalled', 'warning', `no measurement reached the advisory for ${this.s.stallMs / 1000} s; outputs dropped until measurements resume (check the acquisition source)`);
+      this.event(
+        'advisory_stalled',
+        'warning',
+        `no measurement reached the advisory for ${this.s.stallMs / 1000} s; outputs dropped until measurements resume (check the acquisition source)`,
+      );
     } else if (this.outputFault) {
       this.applyOutputs();
     }
@@ -264,19 +310,32 @@ export class SafeStopAdvisory {
     this.setState('raised');
     this.counts.raised++;
     const zone = this.s.vote.zone;
-    this.event('advisory_raised', 'alarm', `SAFE-STOP ADVISORY: ${v.channels.length} OK channel(s) at bearing ${v.bearing} (${v.channels.join(', ')}) in zone ${zone}${zone === 'C' ? ' or D' : ''} for at least ${this.s.holdMs / 1000} s; stop the fan safely following the plant's procedure`, {
-      bearing: v.bearing ?? undefined,
-      channels: [...v.channels],
-    });
+    this.event(
+      'advisory_raised',
+      'alarm',
+      `SAFE-STOP ADVISORY: ${v.channels.length} OK channel(s) at bearing ${v.bearing} (${v.channels.join(', ')}) in zone ${zone}${zone === 'C' ? ' or D' : ''} for at least ${this.s.holdMs / 1000} s; stop the fan safely following the plant's procedure`,
+      {
+        bearing: v.bearing ?? undefined,
+        channels: [...v.channels],
+      },
+    );
   }
 
   private conditionGone(): void {
     if (this.st === 'raised') {
       this.setState('latched');
-      this.event('advisory_cleared', 'warning', `the advisory condition at bearing ${this.bearing} has cleared; the advisory stays latched until acknowledged`);
+      this.event(
+        'advisory_cleared',
+        'warning',
+        `the advisory condition at bearing ${this.bearing} has cleared; the advisory stays latched until acknowledged`,
+      );
     } else {
       this.setState('normal');
-      this.event('advisory_cleared', 'info', `the advisory condition at bearing ${this.bearing} has cleared after acknowledgement; outputs energised again`);
+      this.event(
+        'advisory_cleared',
+        'info',
+        `the advisory condition at bearing ${this.bearing} has cleared after acknowledgement; outputs energised again`,
+      );
     }
   }
 
@@ -287,16 +346,32 @@ export class SafeStopAdvisory {
     this.without = now;
     if (prev === null && now.length === 0) return;
     if (now.length > 0) {
-      this.event('advisory_coverage', 'warning', `too few OK channels to vote (need ${this.s.vote.minChannels}) at bearing(s) ${now.join(', ')}: the advisory cannot be raised for them until their sensors are OK`, { bearings_without_vote: [...now] });
+      this.event(
+        'advisory_coverage',
+        'warning',
+        `too few OK channels to vote (need ${this.s.vote.minChannels}) at bearing(s) ${now.join(', ')}: the advisory cannot be raised for them until their sensors are OK`,
+        { bearings_without_vote: [...now] },
+      );
     } else {
-      this.event('advisory_coverage', 'info', 'every bearing has enough OK channels to vote again', { bearings_without_vote: [] });
+      this.event(
+        'advisory_coverage',
+        'info',
+        'every bearing has enough OK channels to vote again',
+        { bearings_without_vote: [] },
+      );
     }
   }
 
   private setState(next: AdvisoryState): void {
     this.st = next;
     this.since = new Date(this.measuredNow()).toISOString();
-    const rec: LatchRecord = { version: 1, state: next, since_ts: this.since, bearing: this.bearing, channels: [...this.channels] };
+    const rec: LatchRecord = {
+      version: 1,
+      state: next,
+      since_ts: this.since,
+      bearing: this.bearing,
+      channels: [...this.channels],
+    };
     this.saving = this.saving.then(() =>
       this.store.save(rec).then(
         () => {
@@ -304,7 +379,11 @@ export class SafeStopAdvisory {
           this.saveFailed = false;
         },
         (e: unknown) => {
-          if (!this.saveFailed) this.log.warn({ code: (e as NodeJS.ErrnoException).code }, `cannot save the advisory state (${(e as Error).message}); a latched advisory would not survive a restart until this is fixed`);
+          if (!this.saveFailed)
+            this.log.warn(
+              { code: (e as NodeJS.ErrnoException).code },
+              `cannot save the advisory state (${(e as Error).message}); a latched advisory would not survive a restart until this is fixed`,
+            );
           this.saveFailed = true;
         },
       ),
@@ -325,14 +404,23 @@ export class SafeStopAdvisory {
       } catch (e) {
         if (!this.outputFault) {
           this.counts.output_faults++;
-          this.event('advisory_output_fault', 'alarm', `cannot drive the advisory relay/lamp (${(e as Error).message}); the outputs may not show the advisory state: check the board and its wiring`);
+          this.event(
+            'advisory_output_fault',
+            'alarm',
+            `cannot drive the advisory relay/lamp (${(e as Error).message}); the outputs may not show the advisory state: check the board and its wiring`,
+          );
         }
         this.outputFault = true;
       }
     });
   }
 
-  private event(type: AdvisoryEventType, severity: AgentEvent['severity'], message: string, extra: Record<string, unknown> = {}): void {
+  private event(
+    type: AdvisoryEventType,
+    severity: AgentEvent['severity'],
+    message: string,
+    extra: Record<string, unknown> = {},
+  ): void {
     this.emitEvent({
       id: this.newId(),
       ts: new Date(this.measuredNow()).toISOString(),

@@ -34,8 +34,18 @@ export class LatchFile implements LatchStore {
     }
     try {
       const r = JSON.parse(text) as Partial<LatchRecord>;
-      if (r.version === 1 && typeof r.state === 'string' && ['normal', 'raised', 'acknowledged', 'latched'].includes(r.state)) {
-        return { version: 1, state: r.state, since_ts: String(r.since_ts ?? ''), bearing: r.bearing ?? null, channels: Array.isArray(r.channels) ? r.channels.map(String) : [] };
+      if (
+        r.version === 1 &&
+        typeof r.state === 'string' &&
+        ['normal', 'raised', 'acknowledged', 'latched'].includes(r.state)
+      ) {
+        return {
+          version: 1,
+          state: r.state,
+          since_ts: String(r.since_ts ?? ''),
+          bearing: r.bearing ?? null,
+          channels: Array.isArray(r.channels) ? r.channels.map(String) : [],
+        };
       }
       return { problem: `${this.file} does not hold an advisory state` };
     } catch {

@@ -41,7 +41,13 @@ export function countVotes(input: AdvisoryInput, s: VoteSettings): Vote {
   const without: string[] = [];
   for (const [bearing, b] of perBearing) {
     if (b.ok < s.minChannels) without.push(bearing);
-    if (b.votes.length >= s.minChannels && (!best || b.votes.length > best[1].length)) best = [bearing, b.votes];
+    if (b.votes.length >= s.minChannels && (!best || b.votes.length > best[1].length))
+      best = [bearing, b.votes];
   }
-  return { met: best !== null, bearing: best?.[0] ?? null, channels: best?.[1] ?? [], bearingsWithoutVote: without.sort() };
+  return {
+    met: best !== null,
+    bearing: best?.[0] ?? null,
+    channels: best?.[1] ?? [],
+    bearingsWithoutVote: without.sort(),
+  };
 }

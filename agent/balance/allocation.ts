@@ -33,7 +33,11 @@ export interface RotorGeometry {
 }
 
 export interface Allocation {
-  readonly method: 'iso21940_11_bearing_planes' | 'iso21940_11_with_conservative_transfer' | 'single_plane' | 'equal_split_fallback';
+  readonly method:
+    | 'iso21940_11_bearing_planes'
+    | 'iso21940_11_with_conservative_transfer'
+    | 'single_plane'
+    | 'equal_split_fallback';
   /** The rule in words, with its label (from memory / own derivation / fallback). */
   readonly basis: string;
   readonly permissible_g_mm: number;
@@ -48,7 +52,12 @@ const SHARE_MAX = 0.7;
 /** Correction planes at least this share of the bearing span apart count as "not close together" (this project's reading of the standard). */
 const PLANE_SPACING_MIN = 1 / 3;
 
-function equal(uPer: number, planes: readonly string[], basis: string, warnings: Issue[]): Allocation {
+function equal(
+  uPer: number,
+  planes: readonly string[],
+  basis: string,
+  warnings: Issue[],
+): Allocation {
   return {
     method: 'equal_split_fallback',
     basis,
@@ -59,12 +68,35 @@ function equal(uPer: number, planes: readonly string[], basis: string, warnings:
   };
 }
 
-export function allocatePermissible(uPer: number, planes: readonly string[], geometry?: RotorGeometry): Allocation {
+export function allocatePermissible(
+  uPer: number,
+  planes: readonly string[],
+  geometry?: RotorGeometry,
+): Allocation {
   if (planes.length === 1) {
-    return { method: 'single_plane', basis: 'one correction plane: it takes the whole U_per (ISO 21940-11, from memory)', permissible_g_mm: uPer, bearing_planes_g_mm: null, by_plane_g_mm: { [planes[0]!]: uPer }, warnings: [] };
+    return {
+      method: 'single_plane',
+      basis: 'one correction plane: it takes the whole U_per (ISO 21940-11, from memory)',
+      permissible_g_mm: uPer,
+      bearing_planes_g_mm: null,
+      by_plane_g_mm: { [planes[0]!]: uPer },
+      warnings: [],
+    };
   }
-  if (!geometry) return equal(uPer, planes, `no rotor geometry given: U_per shared equally between the ${planes.length} planes (fallback; fits a symmetric rotor only)`, []);
-  if (planes.length !== 2) return equal(uPer, planes, `${planes.length} correction planes: the two-plane allocation does not apply, U_per shared equally (fallback)`, []);
+  if (!geometry)
+    return equal(
+      uPer,
+      planes,
+      `no rotor geometry given: U_per shared equally between the ${planes.length} planes (fallback; fits a symmetric rotor only)`,
+      [],
+    );
+  if (planes.length !== 2)
+    return equal(
+      uPer,
+      planes,
+      `${planes.length} correction planes: the two-plane allocation does not apply, U_per shared equally (fallback)`,
+      [],
+    );
   const warnings: Issue[] = [];
   const zA = geometry.bearing_a_mm;
   const zB = geometry.bearing_b_mm;
@@ -74,7 +106,11 @@ export function allocatePermissible(uPer: number, planes: readonly string[], geo
   const com = geometry.centre_of_mass_mm;
   const fallbackWords = 'U_per shared equally between the planes instead (fallback)';
   if (!(L > 0)) {
-    warnings.push({ code: 'bearings_coincide', message: `bearing A and bearing B are both at ${zA} mm: there is no span to allocate over`, hint: 'give the axial positions of the two bearings from one datum along the shaft' });
+    warnings.push({
+      code: 'bearings_coincide',
+      message: `bearing A and bearing B are both at ${zA} mm: there is no span to allocate over`,
+      hint: 'give the axial positions of the two bearings from one datum along the shaft',
+    });
     return equal(uPer, planes, `geometry unusable: ${fallbackWords}`, warnings);
   }
   if (geometry.rotor === 'centre_hung' && (com < lo || com > hi)) {
@@ -88,7 +124,8 @@ export function allocatePermissible(uPer: number, planes: readonly string[], geo
   if (geometry.rotor === 'overhung') {
     warnings.push({
       code: 'overhung_rules',
-      message: 'ISO 21940-11 allocates the tolerance of an overhung rotor by rules of its own, not reproduced here',
+      message:
+        'ISO 21940-11 allocates the tolerance of an overhung rotor by rules of its own, not reproduced here',
       hint: 'take the plane tolerances from the standard (or the fan maker); the equal split shown is only a placeholder',
     });
     return equal(uPer, planes, `overhung rotor: ${fallbackWords}`, warnings);

@@ -23,5 +23,10 @@ export interface StoredCoefficients {
    */
   readonly radius_mm?: Readonly<Record<string, number>>;
   /** coefficients[sensorId][plane] */
-  readonly coefficients: Readonly<Record<string, Readonly<Record<string, { readonly amp_mm_s_pk_per_g: number; readonly phase_deg: number }>>>>;
+  readonly coefficients: Readonly<
+    Record<
+      string,
+      Readonly<Record<string, { readonly amp_mm_s_pk_per_g: number; readonly phase_deg: number }>>
+    >
+  >;
 }

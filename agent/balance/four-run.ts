@@ -28,7 +28,12 @@
  * A second, distinct minimum that fits about as well is reported as an ambiguity, never guessed.
  */
 import { argDeg, fromPolar, wrapDeg } from './complex.js';
-import { type AngleConvention, conventionText, fromInternalDeg, toInternalDeg } from './conventions.js';
+import {
+  type AngleConvention,
+  conventionText,
+  fromInternalDeg,
+  toInternalDeg,
+} from './conventions.js';
 import type { Issue } from './job.js';
 import { centrifugalForceN } from './weights.js';
 
@@ -98,15 +103,37 @@ export interface FourRunResult {
   readonly as_found: number;
   readonly trial_mass_g: number;
   /** Weight to fit with the trial weight removed, relative to as found. */
-  readonly correction: { readonly mass_g: number; readonly angle_deg: number; readonly unbalance_g_mm?: number; readonly force_n?: number } | null;
+  readonly correction: {
+    readonly mass_g: number;
+    readonly angle_deg: number;
+    readonly unbalance_g_mm?: number;
+    readonly force_n?: number;
+  } | null;
   /** One standard deviation of the correction at the reading scatter used (assumed or, if larger, seen in the fit). */
-  readonly correction_uncertainty: { readonly mass_g: number; readonly angle_deg: number; readonly scatter_amp: number } | null;
+  readonly correction_uncertainty: {
+    readonly mass_g: number;
+    readonly angle_deg: number;
+    readonly scatter_amp: number;
+  } | null;
   /** The 1x vector the trial weight alone adds: |P|, per gram, and as a share of the as-found amplitude. */
-  readonly trial_effect: { readonly amp: number; readonly amp_per_g: number; readonly pct_of_as_found: number } | null;
+  readonly trial_effect: {
+    readonly amp: number;
+    readonly amp_per_g: number;
+    readonly pct_of_as_found: number;
+  } | null;
   /** Where the circles meet (least squares), in the plot's amplitude units; its angle is the correction angle. */
-  readonly intersection: { readonly x: number; readonly y: number; readonly radius: number; readonly angle_deg: number } | null;
+  readonly intersection: {
+    readonly x: number;
+    readonly y: number;
+    readonly radius: number;
+    readonly angle_deg: number;
+  } | null;
   /** How far the circles miss one common point: r.m.s. of (fitted - measured) over the trial runs. */
-  readonly fit_residual: { readonly rms_amp: number; readonly pct_of_as_found: number; readonly trials: readonly FourRunTrialFit[] } | null;
+  readonly fit_residual: {
+    readonly rms_amp: number;
+    readonly pct_of_as_found: number;
+    readonly trials: readonly FourRunTrialFit[];
+  } | null;
   readonly warnings: readonly Issue[];
   readonly problems: readonly Issue[];
 }
@@ -194,7 +221,10 @@ function linearStart(c: readonly Pt[], a: readonly number[], a0: number): Pt | n
       for (let j = 0; j < 3; j++) m[i * 3 + j]! += row[i]! * row[j]!;
     }
   }
-  const det3 = (q: number[]) => q[0]! * (q[4]! * q[8]! - q[5]! * q[7]!) - q[1]! * (q[3]! * q[8]! - q[5]! * q[6]!) + q[2]! * (q[3]! * q[7]! - q[4]! * q[6]!);
+  const det3 = (q: number[]) =>
+    q[0]! * (q[4]! * q[8]! - q[5]! * q[7]!) -
+    q[1]! * (q[3]! * q[8]! - q[5]! * q[6]!) +
+    q[2]! * (q[3]! * q[7]! - q[4]! * q[6]!);
   const d = det3(m);
   if (!(Math.abs(d) > 1e-12 * (a0 ** 4 + 1e-300))) return null;
   const col = (j: number) => m.map((v, i) => (i % 3 === j ? b[Math.floor(i / 3)]! : v));
@@ -205,7 +235,10 @@ function fmt(x: number, digits = 1): string {
   return x.toFixed(digits);
 }
 
-export function solveFourRun(input: FourRunInput, options: Partial<FourRunOptions> = {}): FourRunResult {
+export function solveFourRun(
+  input: FourRunInput,
+  options: Partial<FourRunOptions> = {},
+): FourRunResult {
   const opt = { ...DEFAULT_FOUR_RUN_OPTIONS, ...options };
   const conv = input.angle_convention;
   const a0 = input.as_found;
@@ -232,10 +265,23 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
     as_found: a0,
     trial_mass_g: m,
   };
-  const refused = (): FourRunResult => ({ ...base, ok: false, correction: null, correction_uncertainty: null, trial_effect: null, intersection: null, fit_residual: null, warnings, problems });
+  const refused = (): FourRunResult => ({
+    ...base,
+    ok: false,
+    correction: null,
+    correction_uncertainty: null,
+    trial_effect: null,
+    intersection: null,
+    fit_residual: null,
+    warnings,
+    problems,
+  });
 
   // Amplitudes that do not move: every trial reading equals the as-found one within the scatter.
-  const spread = Math.max(...amps.map((x) => Math.abs(x - a0)), Math.max(...amps) - Math.min(...amps));
+  const spread = Math.max(
+    ...amps.map((x) => Math.abs(x - a0)),
+    Math.max(...amps) - Math.min(...amps),
+  );
   if (spread <= 2 * sigma) {
     problems.push({
       code: 'trial_no_effect',
@@ -250,12 +296,18 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
   const starts: Pt[] = [];
   const lin = linearStart(c, amps, a0);
   if (lin && Number.isFinite(lin.x) && Number.isFinite(lin.y)) starts.push(lin);
-  for (const r of [0.2, 0.5, 1, 1.5, 2.5]) for (let deg = 0; deg < 360; deg += 30) starts.push({ x: r * scale * Math.cos((deg * Math.PI) / 180), y: r * scale * Math.sin((deg * Math.PI) / 180) });
+  for (const r of [0.2, 0.5, 1, 1.5, 2.5])
+    for (let deg = 0; deg < 360; deg += 30)
+      starts.push({
+        x: r * scale * Math.cos((deg * Math.PI) / 180),
+        y: r * scale * Math.sin((deg * Math.PI) / 180),
+      });
   const minima: { p: Pt; f: number }[] = [];
   for (const s of starts) {
     const p = refine(c, amps, s, scale);
     const f = cost(c, amps, p);
-    if (!minima.some((q) => Math.hypot(q.p.x - p.x, q.p.y - p.y) < 1e-4 * scale)) minima.push({ p, f });
+    if (!minima.some((q) => Math.hypot(q.p.x - p.x, q.p.y - p.y) < 1e-4 * scale))
+      minima.push({ p, f });
   }
   minima.sort((x, y) => x.f - y.f);
   const best = minima[0]!;
@@ -265,7 +317,13 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
   const radius = Math.hypot(P.x, P.y);
 
   // A second distinct minimum that fits about as well: the readings allow two answers.
-  const rival = minima.slice(1).find((q) => Math.hypot(q.p.x - P.x, q.p.y - P.y) > 0.1 * a0 && Math.sqrt(q.f / n) <= rmsMisfit + 0.5 * sigma);
+  const rival = minima
+    .slice(1)
+    .find(
+      (q) =>
+        Math.hypot(q.p.x - P.x, q.p.y - P.y) > 0.1 * a0 &&
+        Math.sqrt(q.f / n) <= rmsMisfit + 0.5 * sigma,
+    );
   if (rival) {
     const ang = (p: Pt) => fromInternalDeg(argDeg({ re: p.x, im: p.y }), conv);
     problems.push({
@@ -317,7 +375,11 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
   }
 
   const effectPct = (radius / a0) * 100;
-  const fits: FourRunTrialFit[] = input.trials.map((t, k) => ({ angle_deg: wrapDeg(t.angle_deg), measured_amp: t.amp, fitted_amp: Math.hypot(c[k]!.x - P.x, c[k]!.y - P.y) }));
+  const fits: FourRunTrialFit[] = input.trials.map((t, k) => ({
+    angle_deg: wrapDeg(t.angle_deg),
+    measured_amp: t.amp,
+    fitted_amp: Math.hypot(c[k]!.x - P.x, c[k]!.y - P.y),
+  }));
   const misfitPct = (rmsMisfit / a0) * 100;
 
   if (radius <= 3 * sigma || !Number.isFinite(angleSd) || angleSd > opt.angleLimitDeg) {
@@ -361,7 +423,9 @@ export function solveFourRun(input: FourRunInput, options: Partial<FourRunOption
       mass_g: mass,
       angle_deg: angle,
       ...(r !== undefined ? { unbalance_g_mm: mass * r } : {}),
-      ...(r !== undefined && input.speed_rpm !== undefined ? { force_n: centrifugalForceN(mass, r, input.speed_rpm) } : {}),
+      ...(r !== undefined && input.speed_rpm !== undefined
+        ? { force_n: centrifugalForceN(mass, r, input.speed_rpm) }
+        : {}),
     },
     correction_uncertainty: { mass_g: massSd, angle_deg: angleSd, scatter_amp: sEff },
     trial_effect: { amp: radius, amp_per_g: radius / m, pct_of_as_found: effectPct },

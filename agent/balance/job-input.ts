@@ -9,12 +9,19 @@ import { UserError } from '../errors.js';
 import type { StoredCoefficients } from './coefficients.js';
 import type { BalanceJob } from './job.js';
 
-const name = z.string().regex(/^[A-Za-z0-9][A-Za-z0-9_.-]{0,31}$/, 'letters, digits, "_", "." or "-", at most 32 characters');
+const name = z
+  .string()
+  .regex(
+    /^[A-Za-z0-9][A-Za-z0-9_.-]{0,31}$/,
+    'letters, digits, "_", "." or "-", at most 32 characters',
+  );
 const finite = z.number().refine(Number.isFinite, 'must be a finite number');
 const positive = finite.refine((x) => x > 0, 'must be above 0');
 const convention = z.enum(['against_rotation', 'with_rotation']);
 
-const readingSchema = z.object({ amp: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
+const readingSchema = z
+  .object({ amp: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite })
+  .strict();
 const weightSchema = z.object({ plane: name, mass_g: positive, angle_deg: finite }).strict();
 const runSchema = z
   .object({
@@ -24,7 +31,9 @@ const runSchema = z
     readings: z.record(name, readingSchema),
   })
   .strict();
-const coefficientSchema = z.object({ amp_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
+const coefficientSchema = z
+  .object({ amp_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite })
+  .strict();
 export const rotorGeometrySchema = z
   .object({
     rotor: z.enum(['centre_hung', 'overhung']),
@@ -34,11 +43,19 @@ export const rotorGeometrySchema = z
     planes_mm: z.record(name, finite),
   })
   .strict()
-  .describe('Axial positions along the shaft from one datum, mm: the two bearings, the centre of mass and every correction plane.');
+  .describe(
+    'Axial positions along the shaft from one datum, mm: the two bearings, the centre of mass and every correction plane.',
+  );
 
 export const balanceJobSchema = z
   .object({
-    job_id: z.string().regex(/^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$/, 'letters, digits, "_", "." or "-", at most 64 characters').optional(),
+    job_id: z
+      .string()
+      .regex(
+        /^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$/,
+        'letters, digits, "_", "." or "-", at most 64 characters',
+      )
+      .optional(),
     asset: z.string().max(64).optional(),
     angle_convention: convention.default('against_rotation'),
     planes: z.array(name).min(1, 'needs at least one plane').max(8, 'at most 8 planes'),
@@ -56,46 +73,102 @@ export const balanceJobSchema = z
   .strict()
   .superRefine((job, ctx) => {
     if (job.geometry) {
-      for (const p of job.planes) if (job.geometry.planes_mm[p] === undefined) ctx.addIssue({ code: 'custom', path: ['geometry', 'planes_mm'], message: `no axial position for plane "${p}"` });
-      for (const p of Object.keys(job.geometry.planes_mm)) if (!job.planes.includes(p)) ctx.addIssue({ code: 'custom', path: ['geometry', 'planes_mm', p], message: `"${p}" is not one of the planes` });
+      for (const p of job.planes)
+        if (job.geometry.planes_mm[p] === undefined)
+          ctx.addIssue({
+            code: 'custom',
+            path: ['geometry', 'planes_mm'],
+            message: `no axial position for plane "${p}"`,
+          });
+      for (const p of Object.keys(job.geometry.planes_mm))
+        if (!job.planes.includes(p))
+          ctx.addIssue({
+            code: 'custom',
+            path: ['geometry', 'planes_mm', p],
+            message: `"${p}" is not one of the planes`,
+          });
     }
     const planes = new Set<string>();
     job.planes.forEach((p, i) => {
-      if (planes.has(p)) ctx.addIssue({ code: 'custom', path: ['planes', i], message: `plane "${p}" is listed twice` });
+      if (planes.has(p))
+        ctx.addIssue({
+          code: 'custom',
+          path: ['planes', i],
+          message: `plane "${p}" is listed twice`,
+        });
       planes.add(p);
     });
     const planeList = job.planes.map((p) => `"${p}"`).join(', ');
     const sensors = Object.keys(job.runs[0]?.readings ?? {});
-    if (job.runs[0] && sensors.length === 0) ctx.addIssue({ code: 'custom', path: ['runs', 0, 'readings'], message: 'the as-found run has no readings' });
+    if (job.runs[0] && sensors.length === 0)
+      ctx.addIssue({
+        code: 'custom',
+        path: ['runs', 0, 'readings'],
+        message: 'the as-found run has no readings',
+      });
     if (job.runs[0] && job.runs[0].weights.length > 0) {
-      ctx.addIssue({ code: 'custom', path: ['runs', 0, 'weights'], message: 'the first run is the rotor as found, so it lists no weights (later runs list weights relative to it)' });
+      ctx.addIssue({
+        code: 'custom',
+        path: ['runs', 0, 'weights'],
+        message:
+          'the first run is the rotor as found, so it lists no weights (later runs list weights relative to it)',
+      });
     }
     job.runs.forEach((run, j) => {
       run.weights.forEach((w, i) => {
-        if (!planes.has(w.plane)) ctx.addIssue({ code: 'custom', path: ['runs', j, 'weights', i, 'plane'], message: `"${w.plane}" is not one of the planes (${planeList})` });
+        if (!planes.has(w.plane))
+          ctx.addIssue({
+            code: 'custom',
+            path: ['runs', j, 'weights', i, 'plane'],
+            message: `"${w.plane}" is not one of the planes (${planeList})`,
+          });
       });
       if (j === 0) return;
       for (const s of sensors) {
-        if (!(s in run.readings)) ctx.addIssue({ code: 'custom', path: ['runs', j, 'readings'], message: `sensor "${s}" is read in the as-found run but missing here; every run needs the same sensors` });
+        if (!(s in run.readings))
+          ctx.addIssue({
+            code: 'custom',
+            path: ['runs', j, 'readings'],
+            message: `sensor "${s}" is read in the as-found run but missing here; every run needs the same sensors`,
+          });
       }
       for (const s of Object.keys(run.readings)) {
-        if (!sensors.includes(s)) ctx.addIssue({ code: 'custom', path: ['runs', j, 'readings', s], message: `sensor "${s}" is not read in the as-found run; every run needs the same sensors` });
+        if (!sensors.includes(s))
+          ctx.addIssue({
+            code: 'custom',
+            path: ['runs', j, 'readings', s],
+            message: `sensor "${s}" is not read in the as-found run; every run needs the same sensors`,
+          });
       }
     });
     for (const key of ['radius_mm', 'max_mass_g'] as const) {
       for (const p of Object.keys(job[key] ?? {})) {
-        if (!planes.has(p)) ctx.addIssue({ code: 'custom', path: [key, p], message: `"${p}" is not one of the planes (${planeList})` });
+        if (!planes.has(p))
+          ctx.addIssue({
+            code: 'custom',
+            path: [key, p],
+            message: `"${p}" is not one of the planes (${planeList})`,
+          });
       }
     }
     if (job.influence_coefficients) {
       for (const s of sensors) {
         const row = job.influence_coefficients[s];
         if (!row) {
-          ctx.addIssue({ code: 'custom', path: ['influence_coefficients'], message: `no coefficients for sensor "${s}"` });
+          ctx.addIssue({
+            code: 'custom',
+            path: ['influence_coefficients'],
+            message: `no coefficients for sensor "${s}"`,
+          });
           continue;
         }
         for (const p of job.planes) {
-          if (!row[p]) ctx.addIssue({ code: 'custom', path: ['influence_coefficients', s], message: `no coefficient for plane "${p}"` });
+          if (!row[p])
+            ctx.addIssue({
+              code: 'custom',
+              path: ['influence_coefficients', s],
+              message: `no coefficient for plane "${p}"`,
+            });
         }
       }
     }
@@ -127,12 +200,27 @@ export const multiSpeedSchema = z
   .strict()
   .superRefine((job, ctx) => {
     // Every speed group must be a valid one-speed job with the same sensors.
-    const sensors = Object.keys(job.speeds[0]?.runs[0]?.readings ?? {}).sort().join(',');
+    const sensors = Object.keys(job.speeds[0]?.runs[0]?.readings ?? {})
+      .sort()
+      .join(',');
     job.speeds.forEach((g, i) => {
-      const res = balanceJobSchema.safeParse({ angle_convention: job.angle_convention, planes: job.planes, runs: g.runs });
-      if (!res.success) for (const iss of res.error.issues) ctx.addIssue({ code: 'custom', path: ['speeds', i, ...iss.path], message: iss.message });
-      const here = Object.keys(g.runs[0]?.readings ?? {}).sort().join(',');
-      if (i > 0 && here !== sensors) ctx.addIssue({ code: 'custom', path: ['speeds', i, 'runs', 0, 'readings'], message: `sensors ${here || 'none'} differ from speeds[0]'s ${sensors}; every speed needs the same sensors` });
+      const res = balanceJobSchema.safeParse({
+        angle_convention: job.angle_convention,
+        planes: job.planes,
+        runs: g.runs,
+      });
+      if (!res.success)
+        for (const iss of res.error.issues)
+          ctx.addIssue({ code: 'custom', path: ['speeds', i, ...iss.path], message: iss.message });
+      const here = Object.keys(g.runs[0]?.readings ?? {})
+        .sort()
+        .join(',');
+      if (i > 0 && here !== sensors)
+        ctx.addIssue({
+          code: 'custom',
+          path: ['speeds', i, 'runs', 0, 'readings'],
+          message: `sensors ${here || 'none'} differ from speeds[0]'s ${sensors}; every speed needs the same sensors`,
+        });
     });
   });
 
@@ -146,7 +234,11 @@ export const splitRequestSchema = z
     radius_mm: positive.optional(),
     positions: z
       .object({
-        count: z.number().int('must be a whole number').min(3, 'needs at least 3 positions').max(360),
+        count: z
+          .number()
+          .int('must be a whole number')
+          .min(3, 'needs at least 3 positions')
+          .max(360),
         first_deg: finite.default(0),
         radius_mm: positive.optional(),
       })
@@ -155,7 +247,12 @@ export const splitRequestSchema = z
   .strict()
   .superRefine((r, ctx) => {
     if ((r.radius_mm === undefined) !== (r.positions.radius_mm === undefined)) {
-      ctx.addIssue({ code: 'custom', path: [r.radius_mm === undefined ? 'radius_mm' : 'positions'], message: 'give both radius_mm and positions.radius_mm (to move the weight to the positions\' radius), or neither' });
+      ctx.addIssue({
+        code: 'custom',
+        path: [r.radius_mm === undefined ? 'radius_mm' : 'positions'],
+        message:
+          "give both radius_mm and positions.radius_mm (to move the weight to the positions' radius), or neither",
+      });
     }
   });
 
@@ -178,7 +275,12 @@ export const splitHolesRequestSchema = z
   .strict()
   .superRefine((r, ctx) => {
     if ((r.radius_mm === undefined) !== (r.holes.radius_mm === undefined)) {
-      ctx.addIssue({ code: 'custom', path: [r.radius_mm === undefined ? 'radius_mm' : 'holes'], message: "give both radius_mm and holes.radius_mm (to move the weight to the holes' radius), or neither" });
+      ctx.addIssue({
+        code: 'custom',
+        path: [r.radius_mm === undefined ? 'radius_mm' : 'holes'],
+        message:
+          "give both radius_mm and holes.radius_mm (to move the weight to the holes' radius), or neither",
+      });
     }
   });
 
@@ -188,13 +290,27 @@ export const combineRequestSchema = z
   .object({
     angle_convention: convention.default('against_rotation'),
     to_radius_mm: positive.optional(),
-    weights: z.array(z.object({ mass_g: positive, angle_deg: finite, radius_mm: positive.optional() }).strict()).min(1, 'needs at least one weight'),
+    weights: z
+      .array(
+        z.object({ mass_g: positive, angle_deg: finite, radius_mm: positive.optional() }).strict(),
+      )
+      .min(1, 'needs at least one weight'),
   })
   .strict()
   .superRefine((r, ctx) => {
     const withR = r.weights.filter((w) => w.radius_mm !== undefined).length;
-    if (withR !== 0 && withR !== r.weights.length) ctx.addIssue({ code: 'custom', path: ['weights'], message: 'give radius_mm for every weight or for none' });
-    if (withR !== 0 && r.to_radius_mm === undefined) ctx.addIssue({ code: 'custom', path: ['to_radius_mm'], message: 'needed when the weights carry radii' });
+    if (withR !== 0 && withR !== r.weights.length)
+      ctx.addIssue({
+        code: 'custom',
+        path: ['weights'],
+        message: 'give radius_mm for every weight or for none',
+      });
+    if (withR !== 0 && r.to_radius_mm === undefined)
+      ctx.addIssue({
+        code: 'custom',
+        path: ['to_radius_mm'],
+        message: 'needed when the weights carry radii',
+      });
   });
 
 export type CombineRequest = z.infer<typeof combineRequestSchema>;
@@ -210,8 +326,15 @@ export const fourRunSchema = z
     speed_rpm: positive.optional(),
     amp_scatter_pct: positive.max(50).optional(),
     trials: z
-      .array(z.object({ angle_deg: finite, amp: finite.refine((x) => x >= 0, 'must be 0 or more') }).strict())
-      .min(3, 'needs the trial weight at three positions (with two, two mirror-image answers fit and the method cannot choose)')
+      .array(
+        z
+          .object({ angle_deg: finite, amp: finite.refine((x) => x >= 0, 'must be 0 or more') })
+          .strict(),
+      )
+      .min(
+        3,
+        'needs the trial weight at three positions (with two, two mirror-image answers fit and the method cannot choose)',
+      )
       .max(12, 'at most 12 trial positions'),
     notes: z.string().max(2000).optional(),
   })
@@ -220,7 +343,9 @@ export const fourRunSchema = z
     const angles = r.trials.map((t) => ((t.angle_deg % 360) + 360) % 360);
     // Positions closer than 10 degrees are one position read twice: they add no geometry.
     const distinct: number[] = [];
-    for (const a of angles) if (!distinct.some((b) => Math.min(Math.abs(a - b), 360 - Math.abs(a - b)) < 10)) distinct.push(a);
+    for (const a of angles)
+      if (!distinct.some((b) => Math.min(Math.abs(a - b), 360 - Math.abs(a - b)) < 10))
+        distinct.push(a);
     if (r.trials.length >= 3 && distinct.length < 3) {
       ctx.addIssue({
         code: 'custom',
@@ -232,7 +357,12 @@ export const fourRunSchema = z
 
 export type FourRunRequest = z.infer<typeof fourRunSchema>;
 
-const coefficientEntry = z.object({ amp_mm_s_pk_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite }).strict();
+const coefficientEntry = z
+  .object({
+    amp_mm_s_pk_per_g: finite.refine((x) => x >= 0, 'must be 0 or more'),
+    phase_deg: finite,
+  })
+  .strict();
 export const storedCoefficientsSchema = z
   .object({
     version: z.literal(1),
@@ -254,19 +384,30 @@ export function readJsonFile(file: string, what: string): unknown {
     text = readFileSync(file, 'utf8');
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    throw new UserError(file, code === 'ENOENT' ? `${what} file not found` : `cannot read ${what} file (${code ?? String(e)})`, `give the path of a ${what} JSON file`);
+    throw new UserError(
+      file,
+      code === 'ENOENT'
+        ? `${what} file not found`
+        : `cannot read ${what} file (${code ?? String(e)})`,
+      `give the path of a ${what} JSON file`,
+    );
   }
   try {
     return JSON.parse(text);
   } catch (e) {
-    throw new UserError(file, `not valid JSON: ${(e as Error).message}`, 'fix the JSON syntax (quotes, commas, brackets)');
+    throw new UserError(
+      file,
+      `not valid JSON: ${(e as Error).message}`,
+      'fix the JSON syntax (quotes, commas, brackets)',
+    );
   }
 }
 
 function describeFound(value: unknown): string {
   if (value === undefined) return 'nothing';
   if (typeof value === 'string') return JSON.stringify(value);
-  if (value !== null && typeof value === 'object') return Array.isArray(value) ? 'a list' : 'an object';
+  if (value !== null && typeof value === 'object')
+    return Array.isArray(value) ? 'a list' : 'an object';
   return String(value);
 }
 
@@ -274,47 +415,101 @@ function describeFound(value: unknown): string {
 function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown): string[] {
   return issues.map((iss) => {
     const where = formatPath(iss.path);
-    if (iss.code === 'unrecognized_keys') return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against \`turnwise help balance\``;
+    if (iss.code === 'unrecognized_keys')
+      return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against \`turnwise help balance\``;
     const found = valueAt(raw, iss.path);
     // Cross-field messages already quote what they found; a refused number is worth repeating.
-    if (iss.code === 'custom' && typeof found !== 'number') return `${file}: ${where}: ${iss.message}`;
+    if (iss.code === 'custom' && typeof found !== 'number')
+      return `${file}: ${where}: ${iss.message}`;
     return `${file}: ${where}: ${iss.message} (found ${describeFound(found)})`;
   });
 }
 
-function validate<T>(schema: z.ZodType<T>, raw: unknown, file: string, what: string, hint: string): T {
+function validate<T>(
+  schema: z.ZodType<T>,
+  raw: unknown,
+  file: string,
+  what: string,
+  hint: string,
+): T {
   const res = schema.safeParse(raw);
   if (!res.success) {
     const lines = formatIssues(file, res.error.issues, raw);
-    throw new UserError(file, `${lines.length} problem(s) in the ${what}:\n  ${lines.join('\n  ')}`, hint);
+    throw new UserError(
+      file,
+      `${lines.length} problem(s) in the ${what}:\n  ${lines.join('\n  ')}`,
+      hint,
+    );
   }
   return res.data;
 }
 
 export function parseBalanceJob(raw: unknown, file = 'job'): BalanceJob {
-  return validate(balanceJobSchema, raw, file, 'balancing job', 'fix the job file; `turnwise help balance` shows the format') as BalanceJob;
+  return validate(
+    balanceJobSchema,
+    raw,
+    file,
+    'balancing job',
+    'fix the job file; `turnwise help balance` shows the format',
+  ) as BalanceJob;
 }
 
 export function parseSplitRequest(raw: unknown, file = 'split'): SplitRequest {
-  return validate(splitRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
+  return validate(
+    splitRequestSchema,
+    raw,
+    file,
+    'split request',
+    'fix the file; `turnwise help balance` shows the format',
+  );
 }
 
 export function parseSplitHolesRequest(raw: unknown, file = 'split'): SplitHolesRequest {
-  return validate(splitHolesRequestSchema, raw, file, 'split request', 'fix the file; `turnwise help balance` shows the format');
+  return validate(
+    splitHolesRequestSchema,
+    raw,
+    file,
+    'split request',
+    'fix the file; `turnwise help balance` shows the format',
+  );
 }
 
 export function parseMultiSpeed(raw: unknown, file = 'multi-speed'): MultiSpeedRequest {
-  return validate(multiSpeedSchema, raw, file, 'multi-speed job', 'fix the file; `turnwise help balance` shows the format of `balance multi-speed`');
+  return validate(
+    multiSpeedSchema,
+    raw,
+    file,
+    'multi-speed job',
+    'fix the file; `turnwise help balance` shows the format of `balance multi-speed`',
+  );
 }
 
 export function parseCombineRequest(raw: unknown, file = 'combine'): CombineRequest {
-  return validate(combineRequestSchema, raw, file, 'combine request', 'fix the file; `turnwise help balance` shows the format');
+  return validate(
+    combineRequestSchema,
+    raw,
+    file,
+    'combine request',
+    'fix the file; `turnwise help balance` shows the format',
+  );
 }
 
 export function parseFourRun(raw: unknown, file = 'four-run'): FourRunRequest {
-  return validate(fourRunSchema, raw, file, 'four-run request', 'fix the file; `turnwise help balance` shows the format of `balance four-run`');
+  return validate(
+    fourRunSchema,
+    raw,
+    file,
+    'four-run request',
+    'fix the file; `turnwise help balance` shows the format of `balance four-run`',
+  );
 }
 
 export function parseStoredCoefficients(raw: unknown, file = 'coefficients'): StoredCoefficients {
-  return validate(storedCoefficientsSchema, raw, file, 'stored influence coefficients', 'give a coefficients file written by `turnwise balance solve --save`') as StoredCoefficients;
+  return validate(
+    storedCoefficientsSchema,
+    raw,
+    file,
+    'stored influence coefficients',
+    'give a coefficients file written by `turnwise balance solve --save`',
+  ) as StoredCoefficients;
 }

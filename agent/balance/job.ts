@@ -51,7 +51,9 @@ export interface BalanceJob {
   /** ISO 21940-11 balance quality grade G, mm/s. */
   readonly grade_mm_s?: number;
   /** Known influence coefficients [sensor][plane] for a trim run without trial runs. */
-  readonly influence_coefficients?: Readonly<Record<string, Readonly<Record<string, CoefficientValue>>>>;
+  readonly influence_coefficients?: Readonly<
+    Record<string, Readonly<Record<string, CoefficientValue>>>
+  >;
   /** Speed the given influence_coefficients were measured at, r/min (checked against the runs). */
   readonly coefficients_speed_rpm?: number;
   /** Bearing, centre-of-mass and plane positions for the ISO 21940-11 allocation to the planes. */
@@ -112,7 +114,11 @@ export interface StaticCouple {
   /** The same weight in both planes at the same angle. */
   readonly static_pair: { readonly mass_g_each: number; readonly angle_deg: number };
   /** Equal weights 180 degrees apart: at angle_deg in the first plane, angle_deg + 180 in the second. */
-  readonly couple_pair: { readonly mass_g_each: number; readonly angle_deg_first_plane: number; readonly angle_deg_second_plane: number };
+  readonly couple_pair: {
+    readonly mass_g_each: number;
+    readonly angle_deg_first_plane: number;
+    readonly angle_deg_second_plane: number;
+  };
 }
 
 export interface UnbalanceReport {

@@ -130,7 +130,9 @@ export function singularValues(a: CMatrix): Float64Array {
       }
     }
   }
-  const eig = Array.from({ length: n2 }, (_, i) => Math.max(0, g[i * n2 + i]!)).sort((x, y) => y - x);
+  const eig = Array.from({ length: n2 }, (_, i) => Math.max(0, g[i * n2 + i]!)).sort(
+    (x, y) => y - x,
+  );
   // Each singular value of A appears twice in the embedding: keep every other one.
   const out = new Float64Array(a.cols);
   for (let i = 0; i < a.cols; i++) out[i] = Math.sqrt((eig[2 * i]! + eig[2 * i + 1]!) / 2);

@@ -48,7 +48,12 @@ export interface MultiSpeedOptions {
   readonly conditionWarn: number;
 }
 
-export const DEFAULT_MULTI_SPEED_OPTIONS: MultiSpeedOptions = { speedDistinctPct: 2, maxResidualShare: 0.5, conditionLimit: 1e6, conditionWarn: 10 };
+export const DEFAULT_MULTI_SPEED_OPTIONS: MultiSpeedOptions = {
+  speedDistinctPct: 2,
+  maxResidualShare: 0.5,
+  conditionLimit: 1e6,
+  conditionWarn: 10,
+};
 
 export interface SpeedOutcome {
   readonly speed_rpm: number;
@@ -82,7 +87,12 @@ export interface MultiSpeedResult {
 }
 
 /** Problems of one speed's solve that leave its influence coefficients unknown. */
-const COEFFICIENT_PROBLEMS = new Set(['plane_without_trial', 'trial_runs_not_independent', 'trial_no_effect', 'no_trial_runs']);
+const COEFFICIENT_PROBLEMS = new Set([
+  'plane_without_trial',
+  'trial_runs_not_independent',
+  'trial_no_effect',
+  'no_trial_runs',
+]);
 
 function fmt(x: number, d = 0): string {
   return x.toFixed(d);
@@ -92,7 +102,10 @@ function vec(sensor: string, z: Complex): SensorVector {
   return { sensor, amp: abs(z), phase_deg: argDeg(z) };
 }
 
-export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedOptions> = {}): MultiSpeedResult {
+export function solveMultiSpeed(
+  job: MultiSpeedJob,
+  options: Partial<MultiSpeedOptions> = {},
+): MultiSpeedResult {
   const opt = { ...DEFAULT_MULTI_SPEED_OPTIONS, ...options };
   const maxShare = job.max_residual_share ?? opt.maxResidualShare;
   const conv = job.angle_convention;
@@ -101,7 +114,8 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
   const sensors = Object.keys(job.speeds[0]?.runs[0]?.readings ?? {});
   const warnings: Issue[] = [];
   const problems: Issue[] = [];
-  const name = (i: number) => `speeds[${i}] (${fmt(job.speeds[i]!.speed_rpm)} r/min${job.speeds[i]!.label ? `, "${job.speeds[i]!.label}"` : ''})`;
+  const name = (i: number) =>
+    `speeds[${i}] (${fmt(job.speeds[i]!.speed_rpm)} r/min${job.speeds[i]!.label ? `, "${job.speeds[i]!.label}"` : ''})`;
 
   // Distinct speeds.
   const order = job.speeds.map((g, i) => ({ i, v: g.speed_rpm })).sort((a, b) => a.v - b.v);
@@ -120,18 +134,26 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
   // Per-speed solves.
   const solved: BalanceResult[] = job.speeds.map((g) => {
     const runs = g.runs.map((r) => ({ ...r, speed_rpm: r.speed_rpm ?? g.speed_rpm }));
-    const one: BalanceJob = { angle_convention: conv, planes, runs, ...(job.amp_unit ? { amp_unit: job.amp_unit } : {}), ...(job.radius_mm ? { radius_mm: job.radius_mm } : {}) };
+    const one: BalanceJob = {
+      angle_convention: conv,
+      planes,
+      runs,
+      ...(job.amp_unit ? { amp_unit: job.amp_unit } : {}),
+      ...(job.radius_mm ? { radius_mm: job.radius_mm } : {}),
+    };
     return solveBalanceJob(one);
   });
   solved.forEach((r, i) => {
-    for (const p of r.problems.filter((q) => COEFFICIENT_PROBLEMS.has(q.code))) problems.push({ code: p.code, message: `${name(i)}: ${p.message}`, hint: p.hint });
+    for (const p of r.problems.filter((q) => COEFFICIENT_PROBLEMS.has(q.code)))
+      problems.push({ code: p.code, message: `${name(i)}: ${p.message}`, hint: p.hint });
   });
 
   const outcomes = (residuals: (SensorVector[] | null)[]): SpeedOutcome[] =>
     job.speeds.map((g, i) => {
       const r = solved[i]!;
       const res = residuals[i] ?? null;
-      const rms = (vs: readonly SensorVector[]) => Math.sqrt(vs.reduce((s, v) => s + v.amp * v.amp, 0) / Math.max(vs.length, 1));
+      const rms = (vs: readonly SensorVector[]) =>
+        Math.sqrt(vs.reduce((s, v) => s + v.amp * v.amp, 0) / Math.max(vs.length, 1));
       return {
         speed_rpm: g.speed_rpm,
         weight: g.weight ?? 1,
@@ -143,22 +165,45 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
         warnings: r.warnings,
       };
     });
-  const base = { method: 'multi_speed_least_squares' as const, angle_convention: conv, convention: conventionText(conv), amp_unit: job.amp_unit ?? null, planes, sensors, max_residual_share: maxShare };
-  if (problems.length) return { ...base, ok: false, corrections: [], speeds: outcomes(job.speeds.map(() => null)), condition_number: null, warnings, problems };
+  const base = {
+    method: 'multi_speed_least_squares' as const,
+    angle_convention: conv,
+    convention: conventionText(conv),
+    amp_unit: job.amp_unit ?? null,
+    planes,
+    sensors,
+    max_residual_share: maxShare,
+  };
+  if (problems.length)
+    return {
+      ...base,
+      ok: false,
+      corrections: [],
+      speeds: outcomes(job.speeds.map(() => null)),
+      condition_number: null,
+      warnings,
+      problems,
+    };
 
   // Stacked system.
   const S = sensors.length;
   const N = job.speeds.length;
   const A = cmatrix(N * S, P);
   const b = cmatrix(N * S, 1);
-  const H: Complex[][][] = solved.map((r) => sensors.map((s) => planes.map((p) => {
-    const c = r.influence_coefficients.find((x) => x.sensor === s && x.plane === p)!;
-    return fromPolar(c.amp_per_g, c.phase_deg);
-  })));
-  const V0: Complex[][] = solved.map((r) => sensors.map((s) => {
-    const v = r.as_found.find((x) => x.sensor === s)!;
-    return fromPolar(v.amp, v.phase_deg);
-  }));
+  const H: Complex[][][] = solved.map((r) =>
+    sensors.map((s) =>
+      planes.map((p) => {
+        const c = r.influence_coefficients.find((x) => x.sensor === s && x.plane === p)!;
+        return fromPolar(c.amp_per_g, c.phase_deg);
+      }),
+    ),
+  );
+  const V0: Complex[][] = solved.map((r) =>
+    sensors.map((s) => {
+      const v = r.as_found.find((x) => x.sensor === s)!;
+      return fromPolar(v.amp, v.phase_deg);
+    }),
+  );
   job.speeds.forEach((g, i) => {
     const w = g.weight ?? 1;
     sensors.forEach((_, k) => {
@@ -177,10 +222,22 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
       message: `${N * S} readings over all speeds (${S} sensor(s) x ${N} speeds) do not tell the ${P} planes apart (condition number ${Number.isFinite(cond) ? cond.toExponential(1) : 'infinite'})`,
       hint: 'add sensors at the other bearing, or speeds where the response differs; or solve for fewer planes',
     });
-    return { ...base, ok: false, corrections: [], speeds: outcomes(job.speeds.map(() => null)), condition_number: cond, warnings, problems };
+    return {
+      ...base,
+      ok: false,
+      corrections: [],
+      speeds: outcomes(job.speeds.map(() => null)),
+      condition_number: cond,
+      warnings,
+      problems,
+    };
   }
   if (cond > opt.conditionWarn) {
-    warnings.push({ code: 'ill_conditioned', message: `the stacked influence matrix is badly conditioned (condition number ${fmt(cond, 1)}): reading errors are amplified in the corrections`, hint: 'sensors at both bearings or more distinct speeds help' });
+    warnings.push({
+      code: 'ill_conditioned',
+      message: `the stacked influence matrix is badly conditioned (condition number ${fmt(cond, 1)}): reading errors are amplified in the corrections`,
+      hint: 'sensors at both bearings or more distinct speeds help',
+    });
   }
   const Cm = leastSquares(A, b);
   const C = planes.map((_, p) => getEl(Cm, p, 0));
@@ -196,7 +253,9 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
     }),
   );
   const speedsOut = outcomes(residuals);
-  const bad = speedsOut.map((o, i) => ({ o, i })).filter((x) => (x.o.residual_share ?? 0) > maxShare);
+  const bad = speedsOut
+    .map((o, i) => ({ o, i }))
+    .filter((x) => (x.o.residual_share ?? 0) > maxShare);
   if (bad.length) {
     problems.push({
       code: 'no_common_solution',
@@ -204,12 +263,22 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
         `no one correction suits all the speeds: the best compromise leaves ` +
         bad.map((x) => `${name(x.i)} at ${fmt((x.o.residual_share ?? 0) * 100)} %`).join(', ') +
         ` of its as-found vibration (limit ${fmt(maxShare * 100)} %); ` +
-        speedsOut.map((o, i) => `${fmt(o.speed_rpm)} r/min: ${fmt((o.residual_share ?? 0) * 100)} %`).join(', '),
+        speedsOut
+          .map((o, i) => `${fmt(o.speed_rpm)} r/min: ${fmt((o.residual_share ?? 0) * 100)} %`)
+          .join(', '),
       hint:
         'the response changes shape across the range (a resonance between the speeds, or a rotor that bends): balance for the speed the fan runs at most (give it a larger "weight"), add a correction plane, ' +
-        'or look at the speeds\' own corrections below; raise max_residual_share only if that compromise is acceptable to the plant',
+        "or look at the speeds' own corrections below; raise max_residual_share only if that compromise is acceptable to the plant",
     });
-    return { ...base, ok: false, corrections: [], speeds: speedsOut, condition_number: cond, warnings, problems };
+    return {
+      ...base,
+      ok: false,
+      corrections: [],
+      speeds: speedsOut,
+      condition_number: cond,
+      warnings,
+      problems,
+    };
   }
   const top = Math.max(...job.speeds.map((g) => g.speed_rpm));
   const corrections: PlaneWeight[] = planes.map((plane, p) => {
@@ -220,12 +289,26 @@ export function solveMultiSpeed(job: MultiSpeedJob, options: Partial<MultiSpeedO
       plane,
       mass_g: mass,
       angle_deg: fromInternalDeg(argDeg(C[p]!), conv),
-      ...(r !== undefined ? { unbalance_g_mm: mass * r, force_n: centrifugalForceN(mass, r, top) } : {}),
+      ...(r !== undefined
+        ? { unbalance_g_mm: mass * r, force_n: centrifugalForceN(mass, r, top) }
+        : {}),
       ...(max !== undefined ? { over_max: mass > max } : {}),
     };
   });
   for (const w of corrections.filter((c) => c.over_max)) {
-    warnings.push({ code: 'over_max_mass', message: `the correction for ${w.plane} is ${fmt(w.mass_g, 1)} g, more than the ${fmt(job.max_mass_g![w.plane]!, 1)} g this plane takes`, hint: 'spread it over several positions or fit it at a larger radius (`turnwise balance split`)' });
+    warnings.push({
+      code: 'over_max_mass',
+      message: `the correction for ${w.plane} is ${fmt(w.mass_g, 1)} g, more than the ${fmt(job.max_mass_g![w.plane]!, 1)} g this plane takes`,
+      hint: 'spread it over several positions or fit it at a larger radius (`turnwise balance split`)',
+    });
   }
-  return { ...base, ok: true, corrections, speeds: speedsOut, condition_number: cond, warnings, problems };
+  return {
+    ...base,
+    ok: true,
+    corrections,
+    speeds: speedsOut,
+    condition_number: cond,
+    warnings,
+    problems,
+  };
 }

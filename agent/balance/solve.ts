@@ -15,8 +15,24 @@
  *    Fewer sensors than planes, or a singular matrix, gives problems and no numbers.
  */
 import { allocatePermissible } from './allocation.js';
-import { abs, add, argDeg, type Complex, deltaDeg, fromPolar, neg, scale, sub, ZERO } from './complex.js';
-import { type AngleConvention, conventionText, fromInternalDeg, toInternalDeg } from './conventions.js';
+import {
+  abs,
+  add,
+  argDeg,
+  type Complex,
+  deltaDeg,
+  fromPolar,
+  neg,
+  scale,
+  sub,
+  ZERO,
+} from './complex.js';
+import {
+  type AngleConvention,
+  conventionText,
+  fromInternalDeg,
+  toInternalDeg,
+} from './conventions.js';
 import type {
   BalanceJob,
   Reading,
@@ -29,7 +45,15 @@ import type {
   TrialCheck,
   UnbalanceReport,
 } from './job.js';
-import { cmatrix, type CMatrix, cmul, columnScaledConditionNumber, getEl, leastSquares, setEl } from './linalg.js';
+import {
+  cmatrix,
+  type CMatrix,
+  cmul,
+  columnScaledConditionNumber,
+  getEl,
+  leastSquares,
+  setEl,
+} from './linalg.js';
 import { centrifugalForceN, permissibleUnbalanceGmm } from './weights.js';
 
 export interface SolveOptions {
@@ -104,7 +128,11 @@ export interface TrialMove {
  * How far a trial run moved one sensor's 1x vector from as found, and whether that is enough by the
  * rule of thumb (common practice): at least 30 % in amplitude or 30 degrees in phase.
  */
-export function trialMove(asFound: Reading, withTrial: Reading, options: Partial<SolveOptions> = {}): TrialMove {
+export function trialMove(
+  asFound: Reading,
+  withTrial: Reading,
+  options: Partial<SolveOptions> = {},
+): TrialMove {
   const opt = { ...DEFAULT_SOLVE_OPTIONS, ...options };
   const v0 = fromPolar(asFound.amp, asFound.phase_deg);
   const v1 = fromPolar(withTrial.amp, withTrial.phase_deg);
@@ -123,7 +151,10 @@ function vectorOut(sensor: string, v: Complex): SensorVector {
   return { sensor, amp: abs(v), phase_deg: argDeg(v) };
 }
 
-export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> = {}): BalanceResult {
+export function solveBalanceJob(
+  job: BalanceJob,
+  options: Partial<SolveOptions> = {},
+): BalanceResult {
   const opt = { ...DEFAULT_SOLVE_OPTIONS, ...options };
   const conv: AngleConvention = job.angle_convention;
   const planes = job.planes;
@@ -142,7 +173,10 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     const ref = speeds[0] ?? known[0]!;
     const off = speeds
       .map((sp, j) => ({ sp, j }))
-      .filter((x): x is { sp: number; j: number } => x.sp !== undefined && (Math.abs(x.sp - ref) / ref) * 100 > opt.speedTolerancePct);
+      .filter(
+        (x): x is { sp: number; j: number } =>
+          x.sp !== undefined && (Math.abs(x.sp - ref) / ref) * 100 > opt.speedTolerancePct,
+      );
     if (off.length) {
       warnings.push({
         code: 'speed_mismatch',
@@ -166,9 +200,12 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     const sums = planeSums(job, j);
     const carries = sums.some((z) => abs(z) > 0);
     const label = job.runs[j]!.label;
-    const checks = sensors.map(
-      (s): TrialCheck => ({ run: j, ...(label !== undefined ? { label } : {}), sensor: s, ...trialMove(job.runs[0]!.readings[s]!, job.runs[j]!.readings[s]!, opt) }),
-    );
+    const checks = sensors.map((s): TrialCheck => ({
+      run: j,
+      ...(label !== undefined ? { label } : {}),
+      sensor: s,
+      ...trialMove(job.runs[0]!.readings[s]!, job.runs[j]!.readings[s]!, opt),
+    }));
     const largest = checks.reduce((a, b) => (b.vector_change_pct > a.vector_change_pct ? b : a));
     if (!carries) {
       if (largest.vector_change_pct > 2 * opt.trialNothingPct) {
@@ -241,7 +278,9 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
           if (pct > best) [best, at] = [pct, sensors[k]!];
         }
         if (best < opt.trialNothingPct) {
-          const runs = weighted.filter((_j, r) => abs(getEl(T, r, p)) > 0).map((j) => runName(job, j));
+          const runs = weighted
+            .filter((_j, r) => abs(getEl(T, r, p)) > 0)
+            .map((j) => runName(job, j));
           problems.push({
             code: 'trial_no_effect',
             message: `the trial weight in ${planes[p]} (${list(runs)}) changed the 1x vectors by less than ${opt.trialNothingPct} % (largest ${fmt(best)} % at ${at}): it had no measurable effect`,
@@ -272,14 +311,19 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     if (job.influence_coefficients) {
       warnings.push({
         code: 'coefficients_ignored',
-        message: 'the job has its own runs with weights, so the given influence_coefficients were not used',
+        message:
+          'the job has its own runs with weights, so the given influence_coefficients were not used',
         hint: 'remove the trial runs to do a trim run from the given coefficients',
       });
     }
   } else if (job.influence_coefficients) {
     method = 'given_coefficients';
     const cs = job.coefficients_speed_rpm;
-    if (cs !== undefined && speedRpm !== null && (Math.abs(speedRpm - cs) / cs) * 100 > opt.speedTolerancePct) {
+    if (
+      cs !== undefined &&
+      speedRpm !== null &&
+      (Math.abs(speedRpm - cs) / cs) * 100 > opt.speedTolerancePct
+    ) {
       warnings.push({
         code: 'speed_mismatch',
         message: `the given influence coefficients were measured at ${fmt(cs, 0)} r/min but this run is at ${fmt(speedRpm, 0)} r/min (more than ${opt.speedTolerancePct} % apart)`,
@@ -306,7 +350,12 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     for (let k = 0; k < S; k++) {
       for (let p = 0; p < P; p++) {
         const h = getEl(H, k, p);
-        coefficients.push({ sensor: sensors[k]!, plane: planes[p]!, amp_per_g: abs(h), phase_deg: argDeg(h) });
+        coefficients.push({
+          sensor: sensors[k]!,
+          plane: planes[p]!,
+          amp_per_g: abs(h),
+          phase_deg: argDeg(h),
+        });
       }
     }
   }
@@ -352,7 +401,16 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     warnings,
   };
   if (problems.length || !H) {
-    return { ...base, ok: false, corrections: [], corrections_trials_left_in: [], static_couple: null, predicted_residuals: [], unbalance: null, problems };
+    return {
+      ...base,
+      ok: false,
+      corrections: [],
+      corrections_trials_left_in: [],
+      static_couple: null,
+      predicted_residuals: [],
+      unbalance: null,
+      problems,
+    };
   }
 
   const V0 = cmatrix(S, 1);
@@ -378,7 +436,9 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
       mass_g: mass,
       angle_deg: fromInternalDeg(argDeg(z), conv),
       ...(r !== undefined ? { unbalance_g_mm: mass * r } : {}),
-      ...(r !== undefined && speedRpm !== null ? { force_n: centrifugalForceN(mass, r, speedRpm) } : {}),
+      ...(r !== undefined && speedRpm !== null
+        ? { force_n: centrifugalForceN(mass, r, speedRpm) }
+        : {}),
       ...(max !== undefined ? { over_max: mass > max } : {}),
     };
   };
@@ -401,7 +461,11 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
     const cpAngle = fromInternalDeg(argDeg(cp), conv);
     staticCouple = {
       static_pair: { mass_g_each: abs(st), angle_deg: fromInternalDeg(argDeg(st), conv) },
-      couple_pair: { mass_g_each: abs(cp), angle_deg_first_plane: cpAngle, angle_deg_second_plane: (cpAngle + 180) % 360 },
+      couple_pair: {
+        mass_g_each: abs(cp),
+        angle_deg_first_plane: cpAngle,
+        angle_deg_second_plane: (cpAngle + 180) % 360,
+      },
     };
   }
 
@@ -410,7 +474,10 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
   if (radii && planes.every((p) => radii[p] !== undefined)) {
     const asFoundU = Object.fromEntries(planes.map((p, i) => [p, abs(C[i]!) * radii[p]!]));
     const lastU = Object.fromEntries(planes.map((p, i) => [p, abs(D[i]!) * radii[p]!]));
-    const per = job.rotor_mass_kg !== undefined && job.grade_mm_s !== undefined && speedRpm !== null ? permissibleUnbalanceGmm(job.grade_mm_s, job.rotor_mass_kg, speedRpm) : null;
+    const per =
+      job.rotor_mass_kg !== undefined && job.grade_mm_s !== undefined && speedRpm !== null
+        ? permissibleUnbalanceGmm(job.grade_mm_s, job.rotor_mass_kg, speedRpm)
+        : null;
     const allocation = per === null ? null : allocatePermissible(per, planes, job.geometry);
     if (allocation) warnings.push(...allocation.warnings.filter((w) => w.code !== 'share_bounded'));
     unbalance = {
@@ -420,7 +487,8 @@ export function solveBalanceJob(job: BalanceJob, options: Partial<SolveOptions> 
       permissible_per_plane_g_mm: per === null ? null : per / P,
       permissible_by_plane_g_mm: allocation ? allocation.by_plane_g_mm : null,
       allocation,
-      last_run_within_grade: allocation === null ? null : planes.every((p) => lastU[p]! <= allocation.by_plane_g_mm[p]!),
+      last_run_within_grade:
+        allocation === null ? null : planes.every((p) => lastU[p]! <= allocation.by_plane_g_mm[p]!),
     };
   }
 

@@ -43,13 +43,20 @@ const JOB_ID = /^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$/;
 
 export function checkJobId(jobId: string): void {
   if (!JOB_ID.test(jobId)) {
-    throw new UserError(`job id "${jobId}"`, 'not a valid job id', 'use letters, digits, "_", "." or "-" (at most 64 characters, no "/")');
+    throw new UserError(
+      `job id "${jobId}"`,
+      'not a valid job id',
+      'use letters, digits, "_", "." or "-" (at most 64 characters, no "/")',
+    );
   }
 }
 
 /** A job id from the asset and the time, e.g. kessrow-id3a-20260301T101500Z-3f2a. */
 export function newJobId(asset: string | null, now: Date): string {
-  const stamp = now.toISOString().replace(/[-:]/g, '').replace(/\.\d+Z$/, 'Z');
+  const stamp = now
+    .toISOString()
+    .replace(/[-:]/g, '')
+    .replace(/\.\d+Z$/, 'Z');
   const prefix = asset && JOB_ID.test(asset) ? `${asset.slice(0, 40)}-` : 'job-';
   return `${prefix}${stamp}-${randomBytes(2).toString('hex')}`;
 }
@@ -90,7 +97,11 @@ async function readJson(file: string): Promise<unknown | null> {
   try {
     return JSON.parse(text);
   } catch (e) {
-    throw new UserError(file, `stored file is not valid JSON (${(e as Error).message})`, 'restore it from a backup or delete it; the other jobs are unaffected');
+    throw new UserError(
+      file,
+      `stored file is not valid JSON (${(e as Error).message})`,
+      'restore it from a backup or delete it; the other jobs are unaffected',
+    );
   }
 }
 
@@ -107,7 +118,10 @@ export class FileBalanceStore implements BalanceStore {
   async saveJob(record: BalanceJobRecord): Promise<void> {
     checkJobId(record.job_id);
     await mkdir(this.jobsDir, { recursive: true });
-    await writeFileAtomic(join(this.jobsDir, `${record.job_id}.json`), JSON.stringify(record, null, 2) + '\n');
+    await writeFileAtomic(
+      join(this.jobsDir, `${record.job_id}.json`),
+      JSON.stringify(record, null, 2) + '\n',
+    );
   }
 
   async loadJob(jobId: string): Promise<BalanceJobRecord | null> {
@@ -166,6 +180,8 @@ export class MemoryBalanceStore implements BalanceStore {
   }
 
   async loadCoefficients(): Promise<StoredCoefficients | null> {
-    return this.coefficients === null ? null : (JSON.parse(this.coefficients) as StoredCoefficients);
+    return this.coefficients === null
+      ? null
+      : (JSON.parse(this.coefficients) as StoredCoefficients);
   }
 }

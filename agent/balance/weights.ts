@@ -28,10 +28,15 @@ export function rpmToRadPerS(speedRpm: number): number {
  * Several weights in one plane as one equivalent weight at `toRadiusMm` (the vector sum of their
  * unbalances m*r). Without radii every weight is taken at the same radius and the result is too.
  */
-export function combineWeights(weights: readonly PlacedWeight[], toRadiusMm?: number): { mass_g: number; angle_deg: number } {
+export function combineWeights(
+  weights: readonly PlacedWeight[],
+  toRadiusMm?: number,
+): { mass_g: number; angle_deg: number } {
   const withRadius = weights.filter((w) => w.radius_mm !== undefined).length;
   if (withRadius !== 0 && (withRadius !== weights.length || toRadiusMm === undefined)) {
-    throw new Error('combineWeights: give a radius for every weight and a target radius, or for none');
+    throw new Error(
+      'combineWeights: give a radius for every weight and a target radius, or for none',
+    );
   }
   let sum = ZERO;
   for (const w of weights) sum = add(sum, fromPolar(w.mass_g * (w.radius_mm ?? 1), w.angle_deg));
@@ -65,7 +70,11 @@ export interface SplitPart {
  * so the two parts add up, as vectors, to W. A weight within 1e-9 degrees of a position goes there
  * whole. Parts are listed by position number.
  */
-export function splitOntoPositions(massG: number, angleDeg: number, positions: FixedPositions): SplitPart[] {
+export function splitOntoPositions(
+  massG: number,
+  angleDeg: number,
+  positions: FixedPositions,
+): SplitPart[] {
   if (!Number.isInteger(positions.count) || positions.count < 3) {
     throw new Error('splitOntoPositions: need at least 3 equally spaced positions');
   }
@@ -97,7 +106,11 @@ export interface HoleSplit {
   readonly total_mass_g: number;
   /** Angle between the two holes used, degrees (0 when the weight goes to one hole whole). */
   readonly gap_deg: number;
-  readonly warnings: readonly { readonly code: string; readonly message: string; readonly hint: string }[];
+  readonly warnings: readonly {
+    readonly code: string;
+    readonly message: string;
+    readonly hint: string;
+  }[];
 }
 
 /** Why a split between holes cannot be given. */
@@ -126,32 +139,51 @@ const SPLIT_TOTAL_WARN = 1.5;
  * than 180 degrees (one part would be negative, i.e. mass to take off), or coincident holes. A weight
  * within 1e-9 degrees of a hole goes there whole.
  */
-export function splitBetweenHoles(massG: number, angleDeg: number, holesDeg: readonly number[]): HoleSplit {
-  if (holesDeg.length < 2) throw new SplitRefused('too_few_holes', `${holesDeg.length} hole(s) given; a split needs two`, 'give the angles of at least two holes');
+export function splitBetweenHoles(
+  massG: number,
+  angleDeg: number,
+  holesDeg: readonly number[],
+): HoleSplit {
+  if (holesDeg.length < 2)
+    throw new SplitRefused(
+      'too_few_holes',
+      `${holesDeg.length} hole(s) given; a split needs two`,
+      'give the angles of at least two holes',
+    );
   const t = wrapDeg(angleDeg);
   const holes = holesDeg.map((h, i) => ({ i, a: wrapDeg(h) }));
   const on = holes.find((h) => Math.abs(deltaDeg(h.a, t)) < 1e-9);
-  if (on) return { weights: [{ position: on.i, angle_deg: on.a, mass_g: massG }], total_mass_g: massG, gap_deg: 0, warnings: [] };
+  if (on)
+    return {
+      weights: [{ position: on.i, angle_deg: on.a, mass_g: massG }],
+      total_mass_g: massG,
+      gap_deg: 0,
+      warnings: [],
+    };
   // Nearest hole before t (counting backwards) and after t (counting forwards).
   const before = holes.reduce((best, h) => (wrapDeg(t - h.a) < wrapDeg(t - best.a) ? h : best));
   const after = holes.reduce((best, h) => (wrapDeg(h.a - t) < wrapDeg(h.a - best.a) ? h : best));
   const gap = wrapDeg(after.a - before.a);
   const list = holesDeg.map((h) => `${wrapDeg(h).toFixed(1)}`).join(', ');
   if (before.i === after.i || gap < 1e-6) {
-    throw new SplitRefused('holes_coincide', `the holes (${list} deg) are all at one angle: no split can move the weight off it`, 'give two holes either side of the weight\'s angle');
+    throw new SplitRefused(
+      'holes_coincide',
+      `the holes (${list} deg) are all at one angle: no split can move the weight off it`,
+      "give two holes either side of the weight's angle",
+    );
   }
   if (Math.abs(gap - 180) < 1e-6) {
     throw new SplitRefused(
       'holes_opposite',
       `the holes either side of ${t.toFixed(1)} deg (${before.a.toFixed(1)} and ${after.a.toFixed(1)} deg) are 180 deg apart: weights in them only act along the line through them, never at ${t.toFixed(1)} deg`,
-      'use a hole between them, or two holes less than 180 deg apart with the weight\'s angle between them',
+      "use a hole between them, or two holes less than 180 deg apart with the weight's angle between them",
     );
   }
   if (gap > 180) {
     throw new SplitRefused(
       'not_between',
       `${t.toFixed(1)} deg does not lie between two of the holes (${list} deg) less than 180 deg apart: the nearest either side are ${gap.toFixed(1)} deg apart, so one part would be negative (mass to take off)`,
-      'give holes on both sides of the weight\'s angle, less than 180 deg apart, or fit the weight at its own angle',
+      "give holes on both sides of the weight's angle, less than 180 deg apart, or fit the weight at its own angle",
     );
   }
   const rad = Math.PI / 180;
@@ -168,11 +200,16 @@ export function splitBetweenHoles(massG: number, angleDeg: number, holesDeg: rea
           {
             code: 'split_heavy',
             message: `the two parts add up to ${total.toFixed(1)} g, ${(total / massG).toFixed(2)} times the ${massG.toFixed(1)} g weight, because the holes are ${gap.toFixed(0)} deg apart`,
-            hint: 'holes closer to the weight\'s angle need less mass; check the plane takes the larger part',
+            hint: "holes closer to the weight's angle need less mass; check the plane takes the larger part",
           },
         ]
       : [];
-  return { weights: parts.sort((x, y) => x.position - y.position), total_mass_g: total, gap_deg: gap, warnings };
+  return {
+    weights: parts.sort((x, y) => x.position - y.position),
+    total_mass_g: total,
+    gap_deg: gap,
+    warnings,
+  };
 }
 
 /** Centrifugal force a mass sees, N: F = m r omega^2. */
@@ -187,7 +224,12 @@ export function centrifugalForceN(massG: number, radiusMm: number, speedRpm: num
  *   m_t = fraction * M_b * g / (r * omega^2).
  * Returns grams.
  */
-export function suggestTrialMassG(bearingLoadKg: number, radiusMm: number, speedRpm: number, fraction = 0.1): number {
+export function suggestTrialMassG(
+  bearingLoadKg: number,
+  radiusMm: number,
+  speedRpm: number,
+  fraction = 0.1,
+): number {
   const w = rpmToRadPerS(speedRpm);
   return ((fraction * bearingLoadKg * STANDARD_GRAVITY) / ((radiusMm / 1000) * w * w)) * 1000;
 }
@@ -198,7 +240,11 @@ export function suggestTrialMassG(bearingLoadKg: number, radiusMm: number, speed
  * (from memory; check against the current edition). For the whole rotor; how it is shared between
  * correction planes depends on the rotor (the standard allocates it by plane and bearing distances).
  */
-export function permissibleUnbalanceGmm(gradeMmS: number, rotorMassKg: number, speedRpm: number): number {
+export function permissibleUnbalanceGmm(
+  gradeMmS: number,
+  rotorMassKg: number,
+  speedRpm: number,
+): number {
   return (1000 * gradeMmS * rotorMassKg) / rpmToRadPerS(speedRpm);
 }
 

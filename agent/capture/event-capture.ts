@@ -126,7 +126,8 @@ export class EventCapturer {
   onItem(item: SourceItem): void {
     if (item.kind !== 'samples') return;
     this.ring.write(item.channels, item.startIndex);
-    while (this.pending.length > 0 && this.pending[0]!.to <= this.ring.end) this.complete(this.pending.shift()!);
+    while (this.pending.length > 0 && this.pending[0]!.to <= this.ring.end)
+      this.complete(this.pending.shift()!);
   }
 
   /** Starts a capture around the newest sample; returns its id, or null when captures are off. */
@@ -134,14 +135,26 @@ export class EventCapturer {
     if (!this.o.config.capture.enabled) return null;
     const at = this.ring.end;
     const ms = this.o.timeOf(at);
-    const id = `${new Date(ms).toISOString().replace(/[-:]/g, '').replace(/\.\d+Z$/, 'Z')}-${++this.seq}`;
-    this.pending.push({ id, reason, eventId, trigger: at, from: at - this.pre, to: at + this.post, ts: new Date(ms).toISOString() });
+    const id = `${new Date(ms)
+      .toISOString()
+      .replace(/[-:]/g, '')
+      .replace(/\.\d+Z$/, 'Z')}-${++this.seq}`;
+    this.pending.push({
+      id,
+      reason,
+      eventId,
+      trigger: at,
+      from: at - this.pre,
+      to: at + this.post,
+      ts: new Date(ms).toISOString(),
+    });
     return id;
   }
 
   /** At stop: writes what the pending captures have so far, and waits for every write. */
   async close(): Promise<void> {
-    for (const p of this.pending.splice(0)) this.complete({ ...p, to: Math.min(p.to, this.ring.end) });
+    for (const p of this.pending.splice(0))
+      this.complete({ ...p, to: Math.min(p.to, this.ring.end) });
     await this.queue;
     this.burst.flush();
   }
@@ -162,7 +175,12 @@ export class EventCapturer {
     this.queue = this.queue.then(() => this.write(p, from, to, samples));
   }
 
-  private async write(p: Pending, from: number, to: number, samples: Float32Array[]): Promise<void> {
+  private async write(
+    p: Pending,
+    from: number,
+    to: number,
+    samples: Float32Array[],
+  ): Promise<void> {
     const fs = this.o.sampleRate;
     const cfg = this.o.config;
     const wavName = `${p.id}.wav`;
@@ -173,15 +191,26 @@ export class EventCapturer {
       this.makeRoom(bytes);
       const map = Array.from({ length: this.o.channelCount }, (_, ch) => {
         const s = cfg.sensors.find((x) => x.channel === ch);
-        return s ? `ch${ch} ${s.id} (${s.bearing} ${s.direction}, ${s.sensitivity_mv_per_g} mV/g)` : ch === cfg.tach.channel ? `ch${ch} tach` : `ch${ch} unused`;
+        return s
+          ? `ch${ch} ${s.id} (${s.bearing} ${s.direction}, ${s.sensitivity_mv_per_g} mV/g)`
+          : ch === cfg.tach.channel
+            ? `ch${ch} tach`
+            : `ch${ch} unused`;
       });
-      const wav = await WavWriter.create(join(this.dir, wavName), { sampleRate: fs, channelCount: this.o.channelCount, comment: `turnwise capture ${p.id} (${p.reason}) of ${cfg.machine.id}; ${map.join('; ')}` });
+      const wav = await WavWriter.create(join(this.dir, wavName), {
+        sampleRate: fs,
+        channelCount: this.o.channelCount,
+        comment: `turnwise capture ${p.id} (${p.reason}) of ${cfg.machine.id}; ${map.join('; ')}`,
+      });
       let size: number;
       try {
         const chunk = 8192;
         for (let i = 0; i < samples[0]!.length; i += chunk) {
           const m = Math.min(chunk, samples[0]!.length - i);
-          await wav.write(samples.map((s) => s.subarray(i, i + m)), m);
+          await wav.write(
+            samples.map((s) => s.subarray(i, i + m)),
+            m,
+          );
         }
         size = await wav.close();
       } catch (e) {
@@ -210,9 +239,15 @@ export class EventCapturer {
       this.burst.resolved('capture not written', 'captures are written again');
     } catch (e) {
       this.failed++;
-      for (const f of [wavName, yamlName, `${p.id}.json`]) rmSync(join(this.dir, f), { force: true });
+      for (const f of [wavName, yamlName, `${p.id}.json`])
+        rmSync(join(this.dir, f), { force: true });
       const code = (e as NodeJS.ErrnoException).code ?? (e as Error).message;
-      this.burst.report('capture not written', `capture ${p.id} could not be written to ${this.dir} (${code}); monitoring goes on`, { capture_id: p.id, error_code: code }, code);
+      this.burst.report(
+        'capture not written',
+        `capture ${p.id} could not be written to ${this.dir} (${code}); monitoring goes on`,
+        { capture_id: p.id, error_code: code },
+        code,
+      );
     }
   }
 
@@ -224,7 +259,8 @@ export class EventCapturer {
     let total = all.reduce((s, r) => s + r.bytes, 0);
     while (all.length > 0 && (all.length >= c.max_count || total + bytes > maxBytes)) {
       const old = all.shift()!;
-      for (const f of [`${old.id}.json`, old.wav, old.config]) rmSync(join(this.dir, f), { force: true });
+      for (const f of [`${old.id}.json`, old.wav, old.config])
+        rmSync(join(this.dir, f), { force: true });
       total -= old.bytes;
       this.removed++;
     }
@@ -254,7 +290,11 @@ export class EventCapturer {
 }
 
 /** The config that analyses a capture: the measuring sections of the agent's own, reading the WAV beside it. */
-export function captureConfigYaml(cfg: Config, wavName: string, p: { id: string; reason: string; ts: string }): string {
+export function captureConfigYaml(
+  cfg: Config,
+  wavName: string,
+  p: { id: string; reason: string; ts: string },
+): string {
   const keep = {
     machine: cfg.machine,
     units: cfg.units,
@@ -267,5 +307,8 @@ export function captureConfigYaml(cfg: Config, wavName: string, p: { id: string;
     watcher: cfg.watcher,
     sweep: cfg.sweep,
   };
-  return `# turnwise capture ${p.id}: ${p.reason} at ${p.ts}. Analyse with\n#   turnwise analyze ${wavName} --config ${p.id}.yaml\n` + stringify(keep);
+  return (
+    `# turnwise capture ${p.id}: ${p.reason} at ${p.ts}. Analyse with\n#   turnwise analyze ${wavName} --config ${p.id}.yaml\n` +
+    stringify(keep)
+  );
 }

@@ -53,7 +53,8 @@ export class RawRing {
 
   /** Copies samples [from, to) of every channel into `dest` (each at least to - from long); the caller checks `start`. */
   copy(from: number, to: number, dest: readonly Float32Array[]): void {
-    if (from < this.start || to > this.end || to < from) throw new RangeError(`samples ${from}-${to} not held (${this.start}-${this.end})`);
+    if (from < this.start || to > this.end || to < from)
+      throw new RangeError(`samples ${from}-${to} not held (${this.start}-${this.end})`);
     const cap = this.capacity;
     for (let c = 0; c < this.channels; c++) {
       const src = this.data[c]!;

@@ -16,9 +16,21 @@ export function parseCommandArgs<T extends NonNullable<ParseArgsConfig['options'
 }
 
 /** A numeric option: undefined when absent, else a finite number that passes `check`, or a UserError naming the option. */
-export function numberOption(command: string, usage: string, name: string, raw: string | undefined, check: (v: number) => boolean, what: string): number | undefined {
+export function numberOption(
+  command: string,
+  usage: string,
+  name: string,
+  raw: string | undefined,
+  check: (v: number) => boolean,
+  what: string,
+): number | undefined {
   if (raw === undefined) return undefined;
   const v = Number(raw);
-  if (raw.trim() === '' || !Number.isFinite(v) || !check(v)) throw new UserError(`turnwise ${command} --${name}`, `expected ${what}, got "${raw}"`, `usage: ${usage}`);
+  if (raw.trim() === '' || !Number.isFinite(v) || !check(v))
+    throw new UserError(
+      `turnwise ${command} --${name}`,
+      `expected ${what}, got "${raw}"`,
+      `usage: ${usage}`,
+    );
   return v;
 }

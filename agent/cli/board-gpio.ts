@@ -11,8 +11,16 @@ export function usesGpio(cfg: Config): boolean {
  * The board's GPIO lines for `turnwise run`: opened (sysfs through onoff) only when the config uses
  * GPIO, on the chip named by `gpio.chip_label` when set. Throws UserError naming what to fix.
  */
-export async function openBoardGpio(cfg: Config, log: Logger, sysfsRoot?: string): Promise<GpioLines | undefined> {
+export async function openBoardGpio(
+  cfg: Config,
+  log: Logger,
+  sysfsRoot?: string,
+): Promise<GpioLines | undefined> {
   if (!usesGpio(cfg)) return undefined;
   const { OnoffLines } = await import('../../drivers/gpio/onoff-lines.js');
-  return OnoffLines.open({ log, chipLabel: cfg.gpio?.chip_label, ...(sysfsRoot !== undefined ? { sysfsRoot } : {}) });
+  return OnoffLines.open({
+    log,
+    chipLabel: cfg.gpio?.chip_label,
+    ...(sysfsRoot !== undefined ? { sysfsRoot } : {}),
+  });
 }

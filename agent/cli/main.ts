@@ -10,7 +10,7 @@ function help(): string {
   return (
     'turnwise: vibration watch and balancing for one critical fan\n\nCommands:\n' +
     commands.map((c) => `  ${c.name.padEnd(w)}  ${c.summary}`).join('\n') +
-    '\n\n`turnwise help COMMAND` shows a command\'s usage.\n'
+    "\n\n`turnwise help COMMAND` shows a command's usage.\n"
   );
 }
 
@@ -19,7 +19,9 @@ export async function main(argv: string[]): Promise<number> {
   if (!name || name === 'help' || name === '--help' || name === '-h') {
     const target = rest[0] ? commands.find((c) => c.name === rest[0]) : undefined;
     if (rest[0] && !target) {
-      process.stderr.write(`turnwise help: unknown command "${rest[0]}"\n  -> run \`turnwise help\` for the list of commands\n`);
+      process.stderr.write(
+        `turnwise help: unknown command "${rest[0]}"\n  -> run \`turnwise help\` for the list of commands\n`,
+      );
       return 2;
     }
     process.stdout.write(target ? `usage: ${(await target.load()).usage}\n` : help());
@@ -27,7 +29,9 @@ export async function main(argv: string[]): Promise<number> {
   }
   const cmd = commands.find((c) => c.name === name);
   if (!cmd) {
-    process.stderr.write(`turnwise: unknown command "${name}"\n  -> run \`turnwise help\` for the list of commands\n`);
+    process.stderr.write(
+      `turnwise: unknown command "${name}"\n  -> run \`turnwise help\` for the list of commands\n`,
+    );
     return 2;
   }
   try {
@@ -51,7 +55,9 @@ if (tooOld) {
       process.exitCode = code;
     },
     (e: unknown) => {
-      process.stderr.write(`turnwise: internal error, please report it with the command you ran:\n${(e as Error)?.stack ?? String(e)}\n`);
+      process.stderr.write(
+        `turnwise: internal error, please report it with the command you ran:\n${(e as Error)?.stack ?? String(e)}\n`,
+      );
       process.exitCode = 70;
     },
   );

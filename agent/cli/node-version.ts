@@ -6,7 +6,10 @@
 export const MIN_NODE = '20.19.0';
 
 function parts(v: string): number[] {
-  return v.replace(/^v/, '').split('.').map((p) => Number.parseInt(p, 10) || 0);
+  return v
+    .replace(/^v/, '')
+    .split('.')
+    .map((p) => Number.parseInt(p, 10) || 0);
 }
 
 /** A one-message explanation when `version` (e.g. process.versions.node) is older than MIN_NODE, else null. */

@@ -13,7 +13,12 @@ export class Progress {
     if (now - this.last < 250) return;
     this.last = now;
     // without a known total (endless work) only the detail is shown
-    const pct = total > 0 ? `${Math.min(100, (100 * done) / total).toFixed(0).padStart(3)} % ` : '';
+    const pct =
+      total > 0
+        ? `${Math.min(100, (100 * done) / total)
+            .toFixed(0)
+            .padStart(3)} % `
+        : '';
     process.stderr.write(`\r${this.label}: ${pct}${detail}\x1b[K`);
     this.shown = true;
   }

@@ -36,7 +36,12 @@ export function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
  * One line per problem: where, what was expected, what was found. `keysReference` names the document
  * to check spelling against when a key is unknown.
  */
-export function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: unknown, keysReference = 'docs/configuration.md (or config/turnwise.schema.json)'): string[] {
+export function formatIssues(
+  file: string,
+  issues: readonly z.core.$ZodIssue[],
+  raw: unknown,
+  keysReference = 'docs/configuration.md (or config/turnwise.schema.json)',
+): string[] {
   return issues.map((iss) => {
     const where = formatPath(iss.path);
     if (iss.code === 'unrecognized_keys') {
@@ -52,7 +57,11 @@ export function validateConfig(raw: unknown, file = 'config'): Config {
   const res = configSchema.safeParse(raw);
   if (!res.success) {
     const lines = formatIssues(file, res.error.issues, raw);
-    throw new UserError(file, `${lines.length} problem(s) in the configuration:\n  ${lines.join('\n  ')}`, 'fix the file and run `turnwise check-config FILE` again');
+    throw new UserError(
+      file,
+      `${lines.length} problem(s) in the configuration:\n  ${lines.join('\n  ')}`,
+      'fix the file and run `turnwise check-config FILE` again',
+    );
   }
   return res.data;
 }
@@ -67,14 +76,24 @@ export function readYamlFile(file: string, kind: string, example: string): unkno
     text = readFileSync(file, 'utf8');
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    throw new UserError(file, code === 'ENOENT' ? `${kind} file not found` : `cannot read ${kind} file (${code ?? String(e)})`, `give the path of a YAML ${kind}, e.g. ${example}`);
+    throw new UserError(
+      file,
+      code === 'ENOENT'
+        ? `${kind} file not found`
+        : `cannot read ${kind} file (${code ?? String(e)})`,
+      `give the path of a YAML ${kind}, e.g. ${example}`,
+    );
   }
   const doc = parseDocument(text, { prettyErrors: true });
   if (doc.errors.length > 0) {
     const first = doc.errors[0]!;
     const pos = first.linePos?.[0];
     const at = pos ? `line ${pos.line}, column ${pos.col}` : 'unknown position';
-    throw new UserError(file, `not valid YAML at ${at}: ${first.message.split('\n')[0]}`, 'fix the YAML syntax (indentation, colons, quotes)');
+    throw new UserError(
+      file,
+      `not valid YAML at ${at}: ${first.message.split('\n')[0]}`,
+      'fix the YAML syntax (indentation, colons, quotes)',
+    );
   }
   return doc.toJS();
 }

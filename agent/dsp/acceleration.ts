@@ -103,12 +103,7 @@ export class AccelerationStage {
    * @param dcSpanS the DC estimate changes only once per this many seconds of samples, whatever the
    *   block size: a mean over a block shorter than a revolution would follow the 1x signal itself
    */
-  constructor(
-    sensitivityMvPerG: number,
-    sampleRate: number,
-    dcTimeConstantS = 4,
-    dcSpanS = 1,
-  ) {
+  constructor(sensitivityMvPerG: number, sampleRate: number, dcTimeConstantS = 4, dcSpanS = 1) {
     this.scale = mmPerS2PerVolt(sensitivityMvPerG);
     this.spanSamples = Math.max(1, Math.round(sampleRate * dcSpanS));
     this.alpha = Math.min(1, dcSpanS / dcTimeConstantS);

@@ -4,7 +4,13 @@ import type { SourceItem } from '../../drivers/source.js';
 import { AccelerationStage, RawStats } from './acceleration.js';
 import { SignalFactsStage } from './signal-facts.js';
 import { Decimator, DecimatorPlan } from './decimate.js';
-import { bandRms, nonSynchronousPeaks, SpectrumAccumulator, SpectrumPlan, velocityLinePower } from './spectrum.js';
+import {
+  bandRms,
+  nonSynchronousPeaks,
+  SpectrumAccumulator,
+  SpectrumPlan,
+  velocityLinePower,
+} from './spectrum.js';
 import { SampleRing, SyncAverager, velocityOrderComponent } from './sync-average.js';
 import { RevolutionTracker, rpmFromPeriod, TachDetector } from './tach.js';
 import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './types.js';
@@ -65,7 +71,11 @@ export interface RevolutionTap {
 }
 
 /** Picks the spectrum size: the line spacing asked for, reduced so that short records still give 2 segments. */
-export function planSpectrumSize(sampleRate: number, resolutionHz: number, totalSamples?: number): number {
+export function planSpectrumSize(
+  sampleRate: number,
+  resolutionHz: number,
+  totalSamples?: number,
+): number {
   let n = 16;
   while (sampleRate / n > resolutionHz) n *= 2;
   if (totalSamples !== undefined) {
@@ -141,23 +151,37 @@ export class Analyzer {
     const lastCh = channelCount - 1;
     cfg.sensors.forEach((s, i) => {
       if (s.channel > lastCh) {
-        throw new UserError(`sensors[${i}].channel`, `sensor ${s.id} is on channel ${s.channel} but ${src} has ${channelCount} channel(s), numbered 0-${lastCh}`, 'fix the channel number in the config, or use the recording made with this channel map');
+        throw new UserError(
+          `sensors[${i}].channel`,
+          `sensor ${s.id} is on channel ${s.channel} but ${src} has ${channelCount} channel(s), numbered 0-${lastCh}`,
+          'fix the channel number in the config, or use the recording made with this channel map',
+        );
       }
     });
     if (!this.boardTimesTach && cfg.tach.channel > lastCh) {
-      throw new UserError('tach.channel', `the tach is on channel ${cfg.tach.channel} but ${src} has ${channelCount} channel(s), numbered 0-${lastCh}`, 'set tach.channel to the channel that carries the once-per-turn pulse');
+      throw new UserError(
+        'tach.channel',
+        `the tach is on channel ${cfg.tach.channel} but ${src} has ${channelCount} channel(s), numbered 0-${lastCh}`,
+        'set tach.channel to the channel that carries the once-per-turn pulse',
+      );
     }
     const bandHigh = cfg.dsp.band_hz?.high ?? 1000;
     if (sampleRate < MIN_SAMPLES_PER_HZ * bandHigh) {
-      throw new UserError(src, `sample rate ${sampleRate} Hz is too low for the band up to ${bandHigh} Hz: it needs at least ${MIN_SAMPLES_PER_HZ * bandHigh} Hz (2.56 x the upper band edge)`, 'record at a higher sample rate (25.6 kHz is usual)');
+      throw new UserError(
+        src,
+        `sample rate ${sampleRate} Hz is too low for the band up to ${bandHigh} Hz: it needs at least ${MIN_SAMPLES_PER_HZ * bandHigh} Hz (2.56 x the upper band edge)`,
+        'record at a higher sample rate (25.6 kHz is usual)',
+      );
     }
 
     // The spectrum only needs the band: decimate while the rate stays >= 2.56 x the band edge.
     const decimation = new DecimatorPlan(sampleRate, bandHigh, MIN_SAMPLES_PER_HZ * bandHigh);
     this.spectrumRate = decimation.outputRateHz;
     const rated = cfg.machine.rated_rpm;
-    const resolution = cfg.dsp.spectrum_resolution_hz ?? (rated !== undefined && rated < 600 ? 0.25 : 1);
-    const spectrumTotal = opts.totalSamples === undefined ? undefined : decimation.outputsFor(opts.totalSamples);
+    const resolution =
+      cfg.dsp.spectrum_resolution_hz ?? (rated !== undefined && rated < 600 ? 0.25 : 1);
+    const spectrumTotal =
+      opts.totalSamples === undefined ? undefined : decimation.outputsFor(opts.totalSamples);
     this.spectrumSize = planSpectrumSize(this.spectrumRate, resolution, spectrumTotal);
 
     const orders = new Set(cfg.dsp.orders);
@@ -165,7 +189,11 @@ export class Analyzer {
     this.orders = [...orders].sort((a, b) => a - b);
     const maxOrder = this.orders[this.orders.length - 1]!;
     if (2 * maxOrder >= cfg.dsp.resample_points) {
-      throw new UserError('dsp.resample_points', `${cfg.dsp.resample_points} points per revolution cannot resolve order ${maxOrder}`, `raise dsp.resample_points above ${2 * maxOrder}`);
+      throw new UserError(
+        'dsp.resample_points',
+        `${cfg.dsp.resample_points} points per revolution cannot resolve order ${maxOrder}`,
+        `raise dsp.resample_points above ${2 * maxOrder}`,
+      );
     }
 
     const maxRevSamples = Math.ceil((60 * sampleRate) / cfg.tach.min_rpm) + 2;
@@ -174,7 +202,8 @@ export class Analyzer {
     const plan = new SpectrumPlan(this.spectrumSize);
     const health = cfg.watcher.sensor_health;
     // The shape stage keeps 10 ms spans of the window: sized for the recording, or 1.5 live windows.
-    const maxWindowSamples = opts.totalSamples ?? Math.ceil(1.5 * cfg.watcher.window_s * sampleRate);
+    const maxWindowSamples =
+      opts.totalSamples ?? Math.ceil(1.5 * cfg.watcher.window_s * sampleRate);
     this.chans = cfg.sensors.map((s) => ({
       id: s.id,
       channel: s.channel,
@@ -183,7 +212,12 @@ export class Analyzer {
       mountingAngleDeg: s.mounting_angle_deg,
       accel: new AccelerationStage(s.sensitivity_mv_per_g, sampleRate),
       stats: new RawStats(s.full_scale_v ?? Infinity),
-      shape: new SignalFactsStage({ sampleRate, maxWindowSamples, spikeRatio: health.spike_ratio, oneSidedRatio: health.spike_one_sided_ratio }),
+      shape: new SignalFactsStage({
+        sampleRate,
+        maxWindowSamples,
+        spikeRatio: health.spike_ratio,
+        oneSidedRatio: health.spike_one_sided_ratio,
+      }),
       ring: new SampleRing(ringSize),
       avg: new SyncAverager(cfg.dsp.resample_points, opts.liveRevolutions),
       decimator: new Decimator(decimation),
@@ -201,7 +235,10 @@ export class Analyzer {
       hysteresisV: cfg.tach.hysteresis_v ?? Math.max(0.05, 0.1 * Math.abs(cfg.tach.trigger_v)),
       maxBlock,
     });
-    this.tracker = new RevolutionTracker({ pulsesPerRev: ppr, sampleRate, minRpm: cfg.tach.min_rpm, maxRpm: cfg.tach.max_rpm }, (a, b) => this.onRevolution(a, b));
+    this.tracker = new RevolutionTracker(
+      { pulsesPerRev: ppr, sampleRate, minRpm: cfg.tach.min_rpm, maxRpm: cfg.tach.max_rpm },
+      (a, b) => this.onRevolution(a, b),
+    );
   }
 
   /**
@@ -211,7 +248,9 @@ export class Analyzer {
    * tach channel carry that channel's delay).
    */
   private shiftOf(c: ChannelState): number {
-    return this.delays[c.channel]! - (this.boardTimesTach ? 0 : this.delays[this.tachChannel] ?? 0);
+    return (
+      this.delays[c.channel]! - (this.boardTimesTach ? 0 : (this.delays[this.tachChannel] ?? 0))
+    );
   }
 
   private onRevolution(start: number, end: number): void {
@@ -293,7 +332,8 @@ export class Analyzer {
     if (this.nextIndex !== undefined && start !== this.nextIndex) this.onGap(this.nextIndex, start);
     if (this.windowStart === undefined) this.windowStart = start;
     const n = item.channels[0]?.length ?? 0;
-    if (n > this.scratch.length) throw new Error(`block of ${n} samples exceeds maxBlock ${this.scratch.length}`);
+    if (n > this.scratch.length)
+      throw new Error(`block of ${n} samples exceeds maxBlock ${this.scratch.length}`);
     const scratch = this.scratch;
     const sync = this.syncScratch;
     for (const c of this.chans) {
@@ -308,7 +348,8 @@ export class Analyzer {
     // Board-timed edges are used only when the config says the board times the tach
     // (board_tach_edges); otherwise the tach is found on its channel.
     if (this.boardTimesTach) {
-      if (item.tachEdges) for (let i = 0; i < item.tachEdges.length; i++) this.onRawEdge(item.tachEdges[i]!);
+      if (item.tachEdges)
+        for (let i = 0; i < item.tachEdges.length; i++) this.onRawEdge(item.tachEdges[i]!);
     } else {
       const count = this.detector.process(item.channels[this.tachChannel]!, start);
       const edges = this.detector.edges;
@@ -345,19 +386,35 @@ export class Analyzer {
       }
       return `the tach on channel ${t.channel} never fell ${(t.trigger_v - (t.hysteresis_v ?? Math.max(0.05, 0.1 * Math.abs(t.trigger_v)))).toFixed(2)} V below the trigger after rising (signal between ${d.min.toFixed(3)} and ${d.max.toFixed(3)} V): check tach.trigger_v and tach.hysteresis_v`;
     }
-    if (this.rawEdges < 3) return `only ${this.rawEdges} tach pulse(s) found: the record is too short, or the speed is below tach.min_rpm (${t.min_rpm} r/min)`;
-    const apparent = ((60 * this.sampleRate * (this.rawEdges - 1)) / (this.lastRawEdge - this.firstRawEdge)) / t.pulses_per_rev;
-    if (apparent > t.max_rpm) return `tach pulses imply about ${apparent.toFixed(0)} r/min, above tach.max_rpm (${t.max_rpm}): check tach.pulses_per_rev, or a noisy tach signal (raise tach.hysteresis_v)`;
-    if (apparent < t.min_rpm) return `tach pulses imply about ${apparent.toFixed(1)} r/min, below tach.min_rpm (${t.min_rpm})`;
+    if (this.rawEdges < 3)
+      return `only ${this.rawEdges} tach pulse(s) found: the record is too short, or the speed is below tach.min_rpm (${t.min_rpm} r/min)`;
+    const apparent =
+      (60 * this.sampleRate * (this.rawEdges - 1)) /
+      (this.lastRawEdge - this.firstRawEdge) /
+      t.pulses_per_rev;
+    if (apparent > t.max_rpm)
+      return `tach pulses imply about ${apparent.toFixed(0)} r/min, above tach.max_rpm (${t.max_rpm}): check tach.pulses_per_rev, or a noisy tach signal (raise tach.hysteresis_v)`;
+    if (apparent < t.min_rpm)
+      return `tach pulses imply about ${apparent.toFixed(1)} r/min, below tach.min_rpm (${t.min_rpm})`;
     return `${this.rawEdges} tach pulses found but their spacing is too irregular to trust any revolution (about ${apparent.toFixed(0)} r/min on average): check the pickup and tach.pulses_per_rev`;
   }
 
   /** Order vectors in velocity from an averaged revolution of acceleration. */
-  private velocityOrders(sum: Float64Array, weight: number, fRev: number): Record<string, OrderVector> {
+  private velocityOrders(
+    sum: Float64Array,
+    weight: number,
+    fRev: number,
+  ): Record<string, OrderVector> {
     const orders: Record<string, OrderVector> = {};
     for (const k of this.orders) {
       const v = velocityOrderComponent(sum, weight, k, fRev);
-      orders[String(k)] = { order: k, freq_hz: k * fRev, amp_pk_mm_s: v.amp, amp_rms_mm_s: v.amp / Math.SQRT2, phase_deg: v.phaseDeg };
+      orders[String(k)] = {
+        order: k,
+        freq_hz: k * fRev,
+        amp_pk_mm_s: v.amp,
+        amp_rms_mm_s: v.amp / Math.SQRT2,
+        phase_deg: v.phaseDeg,
+      };
     }
     return orders;
   }
@@ -374,7 +431,10 @@ export class Analyzer {
       speed_rpm: fRev !== null ? fRev * 60 : null,
       revolutions_weight: weight,
       age_s: Number.isNaN(this.lastRevEnd) ? Infinity : (now - this.lastRevEnd) / this.sampleRate,
-      channels: this.chans.map((c) => ({ id: c.id, orders: fRev !== null ? this.velocityOrders(c.avg.live, weight, fRev) : {} })),
+      channels: this.chans.map((c) => ({
+        id: c.id,
+        orders: fRev !== null ? this.velocityOrders(c.avg.live, weight, fRev) : {},
+      })),
     };
   }
 
@@ -397,10 +457,25 @@ export class Analyzer {
       let overall: number | null = null;
       let peaks: ChannelResult['nonsync_peaks'] = [];
       if (sp.segments > 0) {
-        const lines = velocityLinePower(sp.powerSum, sp.segments, N, sp.windowPower, this.spectrumRate);
+        const lines = velocityLinePower(
+          sp.powerSum,
+          sp.segments,
+          N,
+          sp.windowPower,
+          this.spectrumRate,
+        );
         overall = bandRms(lines, df, band.low, band.high);
         const tol = (h: number) => 3 * df + (fRev ?? 0) * h * (speedSpread / 2 + 0.005);
-        peaks = nonSynchronousPeaks(lines, df, band.low, band.high, fRev, tol, Math.max(0.02 * overall, 1e-4), 5).map((p) => ({
+        peaks = nonSynchronousPeaks(
+          lines,
+          df,
+          band.low,
+          band.high,
+          fRev,
+          tol,
+          Math.max(0.02 * overall, 1e-4),
+          5,
+        ).map((p) => ({
           freq_hz: p.freqHz,
           order: fRev ? p.freqHz / fRev : NaN,
           amp_rms_mm_s: p.rms,
@@ -430,13 +505,23 @@ export class Analyzer {
     });
 
     const segments = this.chans[0]?.spectrum.segments ?? 0;
-    if (segments === 0) warnings.push(`no spectrum segment of ${(N / this.spectrumRate).toFixed(2)} s completed in this window: no overall level`);
-    if (revs > 0 && revs < 10) warnings.push(`only ${revs} revolution(s) averaged: order vectors are uncertain`);
-    if (speedSpread > 0.05) warnings.push(`speed varied by ${(speedSpread * 100).toFixed(1)} % over the window: vectors are averaged over that range`);
+    if (segments === 0)
+      warnings.push(
+        `no spectrum segment of ${(N / this.spectrumRate).toFixed(2)} s completed in this window: no overall level`,
+      );
+    if (revs > 0 && revs < 10)
+      warnings.push(`only ${revs} revolution(s) averaged: order vectors are uncertain`);
+    if (speedSpread > 0.05)
+      warnings.push(
+        `speed varied by ${(speedSpread * 100).toFixed(1)} % over the window: vectors are averaged over that range`,
+      );
     if (speed !== null && speed < 600 && !this.cfg.dsp.band_hz && df > 0.3) {
-      warnings.push(`below 600 r/min with ${df.toFixed(2)} Hz lines: set machine.rated_rpm or dsp.spectrum_resolution_hz (0.25 Hz) for an accurate 2-1000 Hz overall`);
+      warnings.push(
+        `below 600 r/min with ${df.toFixed(2)} Hz lines: set machine.rated_rpm or dsp.spectrum_resolution_hz (0.25 Hz) for an accurate 2-1000 Hz overall`,
+      );
     }
-    if (this.gapSamples > 0) warnings.push(`${this.gapSamples} samples lost to gaps in this window`);
+    if (this.gapSamples > 0)
+      warnings.push(`${this.gapSamples} samples lost to gaps in this window`);
 
     const result: WindowResult = {
       start_index: this.windowStart ?? this.nextIndex ?? 0,

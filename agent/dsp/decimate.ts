@@ -113,7 +113,10 @@ class PassbandGrid {
  * frequencies), or null if the exchange cannot find K+1 alternating extrema (a length so far beyond
  * the need that the error is below double precision).
  */
-export function equirippleHalfBandTaps(halfLength: number, edge: number): { taps: Float64Array; delta: number } | null {
+export function equirippleHalfBandTaps(
+  halfLength: number,
+  edge: number,
+): { taps: Float64Array; delta: number } | null {
   const K = halfLength;
   const thetaP = 4 * Math.PI * edge; // theta = 2 omega, omega_p = 2 pi edge
   const xp = Math.cos(thetaP);
@@ -182,7 +185,12 @@ export function equirippleHalfBandTaps(halfLength: number, edge: number): { taps
     for (let i = 0; i < M; i++) {
       const e = ge[i]!;
       const s = e >= 0 ? 1 : -1;
-      if (!((i === 0 || e * s > ge[i - 1]! * s) && (i === M - 1 || e * s >= ge[i + 1]! * s) && Math.abs(e) >= level)) continue;
+      if (!(
+        (i === 0 || e * s > ge[i - 1]! * s) &&
+        (i === M - 1 || e * s >= ge[i + 1]! * s) &&
+        Math.abs(e) >= level
+      ))
+        continue;
       const last = alt[alt.length - 1];
       if (last !== undefined && ge[last]! >= 0 === e >= 0) {
         if (Math.abs(e) > Math.abs(ge[last]!)) alt[alt.length - 1] = i;
@@ -239,10 +247,16 @@ export function equirippleHalfBandTaps(halfLength: number, edge: number): { taps
  * so far beyond the need that its error is below double precision makes the exchange fail; the
  * search then starts again from the shortest.
  */
-export function designHalfBand(inputRateHz: number, passbandEdgeHz: number, attenuationDb = DEFAULT_ATTENUATION_DB): HalfBandStageDesign {
+export function designHalfBand(
+  inputRateHz: number,
+  passbandEdgeHz: number,
+  attenuationDb = DEFAULT_ATTENUATION_DB,
+): HalfBandStageDesign {
   const stopbandEdgeHz = inputRateHz / 2 - passbandEdgeHz;
   if (!(passbandEdgeHz > 0) || !(stopbandEdgeHz > passbandEdgeHz)) {
-    throw new Error(`half-band stage at ${inputRateHz} Hz cannot pass up to ${passbandEdgeHz} Hz: the passband edge must be below a quarter of the input rate`);
+    throw new Error(
+      `half-band stage at ${inputRateHz} Hz cannot pass up to ${passbandEdgeHz} Hz: the passband edge must be below a quarter of the input rate`,
+    );
   }
   const delta = 10 ** (-attenuationDb / 20);
   const edge = passbandEdgeHz / inputRateHz;
@@ -253,7 +267,17 @@ export function designHalfBand(inputRateHz: number, passbandEdgeHz: number, atte
     if (!r) return null;
     // The error reaches the levelled delta, so a delta above the spec needs no further check.
     const ripple = r.delta > delta ? r.delta : check.deviation(r.taps);
-    return { design: { inputRateHz, passbandEdgeHz, stopbandEdgeHz, taps: r.taps, ripple, attenuationDb: -20 * Math.log10(ripple) }, ok: ripple <= delta };
+    return {
+      design: {
+        inputRateHz,
+        passbandEdgeHz,
+        stopbandEdgeHz,
+        taps: r.taps,
+        ripple,
+        attenuationDb: -20 * Math.log10(ripple),
+      },
+      ok: ripple <= delta,
+    };
   };
   const dw = (2 * Math.PI * (stopbandEdgeHz - passbandEdgeHz)) / inputRateHz;
   const estimateTaps = Math.max(0, attenuationDb - 8) / (2.285 * dw) + 1;
@@ -269,7 +293,9 @@ export function designHalfBand(inputRateHz: number, passbandEdgeHz: number, atte
   }
   if (!a) k = 0;
   while (++k <= MAX_HALF_LENGTH) if ((a = attempt(k))?.ok) return a.design;
-  throw new Error(`no half-band filter of up to ${4 * MAX_HALF_LENGTH - 1} taps reaches ${attenuationDb} dB at ${inputRateHz} Hz with a ${passbandEdgeHz} Hz passband`);
+  throw new Error(
+    `no half-band filter of up to ${4 * MAX_HALF_LENGTH - 1} taps reaches ${attenuationDb} dB at ${inputRateHz} Hz with a ${passbandEdgeHz} Hz passband`,
+  );
 }
 
 /**
@@ -299,7 +325,10 @@ export class DecimatorPlan {
     minOutputRateHz: number,
     attenuationDb = DEFAULT_ATTENUATION_DB,
   ) {
-    if (!(minOutputRateHz > 2 * bandHighHz)) throw new Error(`decimator output rate ${minOutputRateHz} Hz leaves no transition band above ${bandHighHz} Hz`);
+    if (!(minOutputRateHz > 2 * bandHighHz))
+      throw new Error(
+        `decimator output rate ${minOutputRateHz} Hz leaves no transition band above ${bandHighHz} Hz`,
+      );
     const stages: HalfBandStageDesign[] = [];
     let rate = inputRateHz;
     while (rate / 2 >= minOutputRateHz) {
@@ -316,7 +345,9 @@ export class DecimatorPlan {
 
   /** Outputs a fresh (or reset) decimator yields from `inputSamples` contiguous samples. */
   outputsFor(inputSamples: number): number {
-    return inputSamples > this.startupSamples ? Math.floor((inputSamples - 1 - this.startupSamples) / this.factor) + 1 : 0;
+    return inputSamples > this.startupSamples
+      ? Math.floor((inputSamples - 1 - this.startupSamples) / this.factor) + 1
+      : 0;
   }
 }
 
@@ -397,7 +428,8 @@ class HalfBandState {
     }
     for (; s <= end; s += 2) {
       let acc = 0.5 * buf[s + centre]!;
-      for (let j = 0, p = s, q = s + last; j < k; j++, p += 2, q -= 2) acc += g[j]! * (buf[p]! + buf[q]!);
+      for (let j = 0, p = s, q = s + last; j < k; j++, p += 2, q -= 2)
+        acc += g[j]! * (buf[p]! + buf[q]!);
       out[o++] = acc;
     }
     buf.copyWithin(0, s, this.have);

@@ -181,7 +181,11 @@ export class SignalFactsStage {
   /** Counts this block's samples at and just below the window's extremes (a second, short pass). */
   private extremes(x: Float32Array): void {
     const range = this.mx - this.mn;
-    const tol = Math.max(PILE_TOL_SHARE * range, Number.isFinite(this.minStep) ? 1.5 * this.minStep : 0, 1e-12);
+    const tol = Math.max(
+      PILE_TOL_SHARE * range,
+      Number.isFinite(this.minStep) ? 1.5 * this.minStep : 0,
+      1e-12,
+    );
     // A new extreme more than tol beyond the old one starts the count afresh.
     if (this.mx > this.hi + tol) {
       this.hiTop = 0;
@@ -275,13 +279,20 @@ export class SignalFactsStage {
     for (let i = 0; i < spans; i++) {
       const sn = this.spN[i]!;
       if (sn === 0) continue;
-      sc[used++] = Math.sqrt(Math.max(0, (this.spSq[i]! - 2 * m * this.spSum[i]! + sn * m * m) / sn));
+      sc[used++] = Math.sqrt(
+        Math.max(0, (this.spSq[i]! - 2 * m * this.spSum[i]! + sn * m * m) / sn),
+      );
     }
     const level = used ? medianInPlace(sc, used) : rms;
     let impulses = 0;
     let oneSided = 0;
     const limit = this.o.spikeRatio * level;
-    const over = (i: number): boolean => i >= 0 && i < spans && this.spN[i]! > 0 && limit > 0 && Math.max(this.spMax[i]! - mean, mean - this.spMin[i]!) >= limit;
+    const over = (i: number): boolean =>
+      i >= 0 &&
+      i < spans &&
+      this.spN[i]! > 0 &&
+      limit > 0 &&
+      Math.max(this.spMax[i]! - mean, mean - this.spMin[i]!) >= limit;
     for (let i = 0; i < spans; i++) {
       // An impulse is short: its span stands out and both neighbours do not (a level step is not an impulse).
       if (!over(i) || over(i - 1) || over(i + 1)) continue;

@@ -25,7 +25,8 @@ export class SpectrumPlan {
   readonly out: Float64Array;
 
   constructor(readonly size: number) {
-    if (size < 16 || (size & (size - 1)) !== 0) throw new Error(`spectrum size must be a power of two >= 16, got ${size}`);
+    if (size < 16 || (size & (size - 1)) !== 0)
+      throw new Error(`spectrum size must be a power of two >= 16, got ${size}`);
     this.window = new Float64Array(size);
     let s2 = 0;
     for (let n = 0; n < size; n++) {
@@ -106,7 +107,13 @@ export class SpectrumAccumulator implements SampleSink {
  * Mean-square velocity per spectral line, (mm/s)^2, from summed acceleration power in (mm/s^2)^2.
  * Line k holds the mean square that falls in [f_k - df/2, f_k + df/2]; DC is 0.
  */
-export function velocityLinePower(powerSum: Float64Array, segments: number, size: number, windowPower: number, sampleRate: number): Float64Array {
+export function velocityLinePower(
+  powerSum: Float64Array,
+  segments: number,
+  size: number,
+  windowPower: number,
+  sampleRate: number,
+): Float64Array {
   const out = new Float64Array(powerSum.length);
   if (segments === 0) return out;
   const df = sampleRate / size;
@@ -153,7 +160,13 @@ export function nonSynchronousPeaks(
   const found: Peak[] = [];
   for (let k = k0; k <= k1; k++) {
     const p = linePower[k]!;
-    if (!(p > linePower[k - 1]! && p >= linePower[k + 1]! && p > linePower[k - 2]! && p >= linePower[k + 2]!)) continue;
+    if (!(
+      p > linePower[k - 1]! &&
+      p >= linePower[k + 1]! &&
+      p > linePower[k - 2]! &&
+      p >= linePower[k + 2]!
+    ))
+      continue;
     let s = 0;
     let sf = 0;
     for (let j = k - 2; j <= k + 2; j++) {

@@ -63,7 +63,8 @@ export class SpeedPointRecorder implements RevolutionTap {
   }
 
   revolution(rings: readonly SampleRing[], start: number, end: number, shifts: Float64Array): void {
-    for (let c = 0; c < this.avgs.length; c++) this.avgs[c]!.addRevolution(rings[c]!, start + shifts[c]!, end + shifts[c]!);
+    for (let c = 0; c < this.avgs.length; c++)
+      this.avgs[c]!.addRevolution(rings[c]!, start + shifts[c]!, end + shifts[c]!);
     this.revs++;
     this.periodSum += end - start;
     if (this.revs >= this.opts.revolutionsPerPoint) this.closePoint(end);
@@ -162,7 +163,11 @@ export class SpeedPointRecorder implements RevolutionTap {
   private grow(cap: number): void {
     const n = this.opts.channels;
     const order = Array.from({ length: this.count }, (_, i) => (this.head + i) % this.cap);
-    const remap = <T extends Float64Array | Uint8Array>(old: T, make: (len: number) => T, width: number): T => {
+    const remap = <T extends Float64Array | Uint8Array>(
+      old: T,
+      make: (len: number) => T,
+      width: number,
+    ): T => {
       const next = make(cap * width);
       order.forEach((k, i) => next.set(old.subarray(k * width, k * width + width), i * width));
       return next;

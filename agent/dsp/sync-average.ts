@@ -101,7 +101,11 @@ export class SyncAverager {
  * Order k of an averaged revolution (sum of `revolutions` resampled revolutions):
  * x(theta) = amp * cos(k*theta - phase), phase returned as a lag in 0-360 degrees.
  */
-export function orderComponent(sum: Float64Array, revolutions: number, order: number): OrderComponent {
+export function orderComponent(
+  sum: Float64Array,
+  revolutions: number,
+  order: number,
+): OrderComponent {
   const M = sum.length;
   let re = 0;
   let im = 0;
@@ -122,7 +126,12 @@ export function orderComponent(sum: Float64Array, revolutions: number, order: nu
  * angular frequency, and a lag 90 degrees larger (velocity lags acceleration by a quarter of the
  * order's cycle; textbook relation).
  */
-export function velocityOrderComponent(sum: Float64Array, revolutions: number, order: number, fRevHz: number): OrderComponent {
+export function velocityOrderComponent(
+  sum: Float64Array,
+  revolutions: number,
+  order: number,
+  fRevHz: number,
+): OrderComponent {
   const a = orderComponent(sum, revolutions, order);
   return { amp: a.amp / (2 * Math.PI * order * fRevHz), phaseDeg: wrapDeg(a.phaseDeg + 90) };
 }

@@ -111,5 +111,8 @@ export interface LiveFrame {
   readonly revolutions_weight: number;
   /** Seconds since the last trusted revolution (large when the tach is lost). */
   readonly age_s: number;
-  readonly channels: ReadonlyArray<{ readonly id: string; readonly orders: Readonly<Record<string, OrderVector>> }>;
+  readonly channels: ReadonlyArray<{
+    readonly id: string;
+    readonly orders: Readonly<Record<string, OrderVector>>;
+  }>;
 }

@@ -1,4 +1,13 @@
-import { closeSync, fsyncSync, mkdirSync, openSync, readFileSync, renameSync, statSync, writeSync } from 'node:fs';
+import {
+  closeSync,
+  fsyncSync,
+  mkdirSync,
+  openSync,
+  readFileSync,
+  renameSync,
+  statSync,
+  writeSync,
+} from 'node:fs';
 import { join } from 'node:path';
 import type { AgentEvent } from '../events.js';
 import type { Logger } from '../log.js';
@@ -55,7 +64,11 @@ export class EventLog {
   }
 
   health(): Record<string, number | boolean> {
-    return { event_log_written_total: this.counts.written, event_log_failed_total: this.counts.failed, event_log_ok: !this.failing };
+    return {
+      event_log_written_total: this.counts.written,
+      event_log_failed_total: this.counts.failed,
+      event_log_ok: !this.failing,
+    };
   }
 
   /** Writes what is queued now (called by the timer and by close()). */
@@ -91,7 +104,10 @@ export class EventLog {
       this.size = null;
       if (!this.failing) {
         const code = (err as NodeJS.ErrnoException).code ?? String(err);
-        this.log.warn({ dir: this.dir, error_code: code }, `cannot write the event log in ${this.dir} (${code}); events still go to MQTT and the log, but \`turnwise events\` will miss them until this is fixed: check state_dir (space, permissions)`);
+        this.log.warn(
+          { dir: this.dir, error_code: code },
+          `cannot write the event log in ${this.dir} (${code}); events still go to MQTT and the log, but \`turnwise events\` will miss them until this is fixed: check state_dir (space, permissions)`,
+        );
       }
       this.failing = true;
     }
@@ -119,7 +135,15 @@ export interface ReadResult {
 }
 
 /** Every event in the log, oldest first, with the filters applied. A missing log is an empty one. */
-export function readEventLog(stateDir: string, f: { sinceMs?: number; untilMs?: number; types?: readonly string[]; minSeverity?: 'info' | 'warning' | 'alarm' } = {}): ReadResult {
+export function readEventLog(
+  stateDir: string,
+  f: {
+    sinceMs?: number;
+    untilMs?: number;
+    types?: readonly string[];
+    minSeverity?: 'info' | 'warning' | 'alarm';
+  } = {},
+): ReadResult {
   const dir = join(stateDir, EVENT_LOG_DIR);
   const rank = { info: 0, warning: 1, alarm: 2 } as const;
   const events: AgentEvent[] = [];

@@ -32,16 +32,23 @@ function digest(b: Buffer | string): Buffer {
 }
 
 export class TokenCheck {
-  private readonly entries: ReadonlyArray<{ readonly principal: Principal; readonly digest: Buffer }>;
+  private readonly entries: ReadonlyArray<{
+    readonly principal: Principal;
+    readonly digest: Buffer;
+  }>;
 
   constructor(tokens: readonly LiveToken[]) {
     if (tokens.length === 0) throw new Error('TokenCheck needs at least one token');
-    this.entries = tokens.map((t) => ({ principal: { name: t.name, role: t.role }, digest: digest(t.secret.reveal()) }));
+    this.entries = tokens.map((t) => ({
+      principal: { name: t.name, role: t.role },
+      digest: digest(t.secret.reveal()),
+    }));
   }
 
   /** The principal a token belongs to, or null. */
   identify(token: unknown): Principal | null {
-    if (typeof token !== 'string' || token.length === 0 || token.length > MAX_TOKEN_CHARS) return null;
+    if (typeof token !== 'string' || token.length === 0 || token.length > MAX_TOKEN_CHARS)
+      return null;
     const d = digest(token);
     let found: Principal | null = null;
     for (const e of this.entries) {
@@ -66,7 +73,10 @@ export function mayAct(p: Principal): boolean {
  * Reads every configured token (file or environment variable), refusing short tokens and the same
  * token under two names (its role would be ambiguous). UserError names the config path.
  */
-export function resolveLiveTokens(cfg: LiveConfig, env: NodeJS.ProcessEnv = process.env): LiveToken[] {
+export function resolveLiveTokens(
+  cfg: LiveConfig,
+  env: NodeJS.ProcessEnv = process.env,
+): LiveToken[] {
   const out: LiveToken[] = [];
   const seen = new Map<string, string>();
   cfg.tokens.forEach((t, i) => {
@@ -74,11 +84,20 @@ export function resolveLiveTokens(cfg: LiveConfig, env: NodeJS.ProcessEnv = proc
     const secret = resolveSecret(t, where, env);
     const value = secret.reveal().toString('utf8');
     if (value.length < MIN_TOKEN_CHARS) {
-      throw new UserError(where, `the token of "${t.name}" has ${value.length} characters; at least ${MIN_TOKEN_CHARS} are needed`, 'make a random one with `turnwise live make-token FILE`');
+      throw new UserError(
+        where,
+        `the token of "${t.name}" has ${value.length} characters; at least ${MIN_TOKEN_CHARS} are needed`,
+        'make a random one with `turnwise live make-token FILE`',
+      );
     }
     const key = digest(value).toString('hex');
     const other = seen.get(key);
-    if (other !== undefined) throw new UserError(where, `"${t.name}" has the same token as "${other}"`, 'give every name its own token, so the role of each is clear');
+    if (other !== undefined)
+      throw new UserError(
+        where,
+        `"${t.name}" has the same token as "${other}"`,
+        'give every name its own token, so the role of each is clear',
+      );
     seen.set(key, t.name);
     out.push({ name: t.name, role: t.role, secret });
   });

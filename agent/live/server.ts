@@ -9,7 +9,12 @@
  * viewer or operator token; changing a balancing job needs an operator token. Tokens are never
  * logged. The static page files need no token: they hold no plant data.
  */
-import { createServer as createHttpServer, type IncomingMessage, type Server, type ServerResponse } from 'node:http';
+import {
+  createServer as createHttpServer,
+  type IncomingMessage,
+  type Server,
+  type ServerResponse,
+} from 'node:http';
 import { createServer as createHttpsServer } from 'node:https';
 import { createReadStream, readFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
@@ -23,7 +28,15 @@ import { FileBalanceStore, type BalanceStore } from '../balance/store.js';
 import { BalancingWorkbench } from '../balance/workbench/actions.js';
 import { captureSettingsFrom, type CaptureSettings } from '../balance/workbench/capture.js';
 import { ApiError } from '../balance/workbench/requests.js';
-import { combineTool, fourRunTool, gradeTool, moveRadiusTool, oneXAmplitudeTool, splitTool, trialWeightTool } from '../balance/workbench/tools.js';
+import {
+  combineTool,
+  fourRunTool,
+  gradeTool,
+  moveRadiusTool,
+  oneXAmplitudeTool,
+  splitTool,
+  trialWeightTool,
+} from '../balance/workbench/tools.js';
 import type { JobView } from '../balance/workbench/view.js';
 import type { Clock } from '../clock.js';
 import type { LiveConfig } from '../config/live.js';
@@ -36,7 +49,14 @@ import { BurstLog } from '../burst-log.js';
 import { readSecretFile } from '../mqtt/secrets.js';
 import type { LiveConsumer, WindowConsumer } from '../runtime/runtime.js';
 import type { WatchStatus } from '../watcher/index.js';
-import { bearerToken, mayAct, resolveLiveTokens, TokenCheck, type LiveToken, type Principal } from './auth.js';
+import {
+  bearerToken,
+  mayAct,
+  resolveLiveTokens,
+  TokenCheck,
+  type LiveToken,
+  type Principal,
+} from './auth.js';
 import { loadStaticFiles, type StaticFile } from './static.js';
 import { LiveView, sessionView, type PageMessage, type SessionView } from './view.js';
 
@@ -76,7 +96,8 @@ const SECURITY_HEADERS: Record<string, string> = {
   'X-Content-Type-Options': 'nosniff',
   'Referrer-Policy': 'no-referrer',
   'X-Frame-Options': 'DENY',
-  'Content-Security-Policy': "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; connect-src 'self'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'",
+  'Content-Security-Policy':
+    "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; connect-src 'self'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'",
 };
 
 interface Client {
@@ -85,7 +106,12 @@ interface Client {
   alive: boolean;
 }
 
-type Handler = (ctx: { req: IncomingMessage; principal: Principal; params: string[]; body: unknown }) => Promise<unknown> | unknown;
+type Handler = (ctx: {
+  req: IncomingMessage;
+  principal: Principal;
+  params: string[];
+  body: unknown;
+}) => Promise<unknown> | unknown;
 
 /** A file sent as it is (capture downloads), streamed from disk. */
 class FileReply {
@@ -96,7 +122,11 @@ class FileReply {
   ) {}
 }
 
-const CAPTURE_FILES: Record<string, string> = { wav: 'audio/wav', yaml: 'application/yaml; charset=utf-8', json: 'application/json; charset=utf-8' };
+const CAPTURE_FILES: Record<string, string> = {
+  wav: 'audio/wav',
+  yaml: 'application/yaml; charset=utf-8',
+  json: 'application/json; charset=utf-8',
+};
 
 /** What the sweep list shows of each stored sweep (the points come with /api/sweeps/ID). */
 export function sweepSummary(s: StoredSweep) {
@@ -110,7 +140,14 @@ export function sweepSummary(s: StoredSweep) {
     duration_s: s.duration_s,
     reference: s.reference,
     compared_with: s.compared_with,
-    resonances: s.channels.flatMap((c) => c.resonances.map((r) => ({ sensor: c.id, rpm: r.rpm, amplification_factor: r.amplification_factor, margin_ok: r.margin_ok }))),
+    resonances: s.channels.flatMap((c) =>
+      c.resonances.map((r) => ({
+        sensor: c.id,
+        rpm: r.rpm,
+        amplification_factor: r.amplification_factor,
+        margin_ok: r.margin_ok,
+      })),
+    ),
   };
 }
 
@@ -165,9 +202,23 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
   }
 
   /** Reads the tokens named in `config.live` and builds the server. UserError when the section is missing or a token is unusable. */
-  static fromConfig(config: Config, deps: Omit<LiveServerOptions, 'config' | 'live' | 'tokens'>, env: NodeJS.ProcessEnv = process.env): LiveServer {
-    if (!config.live) throw new UserError('live', 'the config has no live section', 'add live: with bind, port and tokens (docs/live-page.md, "Opening it")');
-    return new LiveServer({ ...deps, config, live: config.live, tokens: resolveLiveTokens(config.live, env) });
+  static fromConfig(
+    config: Config,
+    deps: Omit<LiveServerOptions, 'config' | 'live' | 'tokens'>,
+    env: NodeJS.ProcessEnv = process.env,
+  ): LiveServer {
+    if (!config.live)
+      throw new UserError(
+        'live',
+        'the config has no live section',
+        'add live: with bind, port and tokens (docs/live-page.md, "Opening it")',
+      );
+    return new LiveServer({
+      ...deps,
+      config,
+      live: config.live,
+      tokens: resolveLiveTokens(config.live, env),
+    });
   }
 
   /** Loads the page files, reopens a job left open, and listens. Resolves with the page's URL. */
@@ -184,7 +235,11 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       try {
         cert = readFileSync(live.tls.cert_file);
       } catch (e) {
-        throw new UserError('live.tls.cert_file', `cannot read ${live.tls.cert_file} (${(e as NodeJS.ErrnoException).code})`, 'give the PEM certificate of the page');
+        throw new UserError(
+          'live.tls.cert_file',
+          `cannot read ${live.tls.cert_file} (${(e as NodeJS.ErrnoException).code})`,
+          'give the PEM certificate of the page',
+        );
       }
       server = createHttpsServer({ key, cert }, handler) as unknown as Server;
     } else {
@@ -214,7 +269,13 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
               : e.code === 'EADDRNOTAVAIL'
                 ? `${live.bind} is not an address of this board`
                 : `cannot listen on ${live.bind}:${live.port} (${e.code ?? e.message})`;
-        reject(new UserError('live', why, 'change live.bind or live.port (ports below 1024 need privileges), or stop the program using it'));
+        reject(
+          new UserError(
+            'live',
+            why,
+            'change live.bind or live.port (ports below 1024 need privileges), or stop the program using it',
+          ),
+        );
       };
       server.once('error', onError);
       server.listen(live.port, live.bind, () => {
@@ -230,9 +291,20 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     const port = (server.address() as AddressInfo).port;
     const host = live.bind.includes(':') ? `[${live.bind}]` : live.bind;
     const url = `${live.tls ? 'https' : 'http'}://${host}:${port}/`;
-    logger.info({ url, tls: !!live.tls, tokens: this.opts.tokens.map((t) => `${t.name} (${t.role})`) }, 'live page listening');
-    if (!live.tls && live.bind !== '127.0.0.1' && live.bind !== '::1' && live.bind !== 'localhost') {
-      logger.warn({ bind: live.bind }, 'the live page is served without TLS beyond this board: tokens cross the network in clear; set live.tls or use a trusted network segment');
+    logger.info(
+      { url, tls: !!live.tls, tokens: this.opts.tokens.map((t) => `${t.name} (${t.role})`) },
+      'live page listening',
+    );
+    if (
+      !live.tls &&
+      live.bind !== '127.0.0.1' &&
+      live.bind !== '::1' &&
+      live.bind !== 'localhost'
+    ) {
+      logger.warn(
+        { bind: live.bind },
+        'the live page is served without TLS beyond this board: tokens cross the network in clear; set live.tls or use a trusted network segment',
+      );
     }
     return { url, port };
   }
@@ -334,7 +406,11 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   private refuseWs(ws: WebSocket, remote: string): void {
     this.refused(remote, 'websocket');
-    const refusal: PageMessage = { type: 'error', code: 'unauthorised', message: 'missing or wrong token' };
+    const refusal: PageMessage = {
+      type: 'error',
+      code: 'unauthorised',
+      message: 'missing or wrong token',
+    };
     ws.send(JSON.stringify(refusal));
     ws.close(4401, 'unauthorised');
   }
@@ -360,7 +436,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     if (this.clients.size === 0) return;
     const text = JSON.stringify(msg);
     for (const c of this.clients) {
-      if (c.ws.readyState === c.ws.OPEN && c.ws.bufferedAmount <= MAX_BUFFERED_BYTES) c.ws.send(text);
+      if (c.ws.readyState === c.ws.OPEN && c.ws.bufferedAmount <= MAX_BUFFERED_BYTES)
+        c.ws.send(text);
     }
   }
 
@@ -391,7 +468,13 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     const wb = this.workbench;
     const by = (p: Principal) => ({ token: p.name, role: p.role });
     const jobView = (v: JobView | null) => ({ view: v });
-    const r = (method: Route['method'], path: string, act: boolean, handler: Handler, download?: Route['download']): Route => ({
+    const r = (
+      method: Route['method'],
+      path: string,
+      act: boolean,
+      handler: Handler,
+      download?: Route['download'],
+    ): Route => ({
       method,
       pattern: new RegExp(
         `^${path
@@ -409,28 +492,63 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       r('GET', '/api/session', false, ({ principal }) => this.session(principal)),
       r('GET', '/api/live', false, () => this.view.snapshot()),
       r('GET', '/api/trend', false, () => ({ points: this.view.trend() })),
-      r('GET', '/api/jobs', false, async () => ({ jobs: await wb.listJobs(), open: wb.activeJob?.job_id ?? null })),
+      r('GET', '/api/jobs', false, async () => ({
+        jobs: await wb.listJobs(),
+        open: wb.activeJob?.job_id ?? null,
+      })),
       r('GET', '/api/jobs/open', false, () => jobView(wb.view())),
-      r('GET', '/api/jobs/:id', false, async ({ params }) => jobView(wb.view(await wb.getJob(params[0]!)))),
-      r('GET', '/api/jobs/:id/export', false, async ({ params }) => wb.exportJob(params[0]!), (p) => `attachment; filename="${p[0]}.json"`),
-      r('POST', '/api/jobs', true, async ({ principal, body }) => jobView(await wb.createJob(body, by(principal)))),
-      r('POST', '/api/jobs/:id/runs', true, async ({ principal, body, params }) => jobView(await wb.declareRun(params[0]!, body, by(principal)))),
-      r('POST', '/api/jobs/:id/runs/:n/discard', true, async ({ principal, body, params }) => jobView(await wb.discardRun(params[0]!, Number(params[1]), body, by(principal)))),
-      r('POST', '/api/jobs/:id/capture', true, async ({ principal, body, params }) => jobView(await wb.startCapture(params[0]!, body, by(principal)))),
-      r('POST', '/api/jobs/:id/capture/cancel', true, async ({ principal, body, params }) => jobView(await wb.cancelCapture(params[0]!, body, by(principal)))),
-      r('POST', '/api/jobs/:id/solve', true, async ({ principal, body, params }) => jobView(await wb.solve(params[0]!, body, by(principal)))),
-      r('POST', '/api/jobs/:id/finish', true, async ({ principal, body, params }) => jobView(await wb.finish(params[0]!, body, by(principal)))),
-      r('POST', '/api/jobs/:id/abandon', true, async ({ principal, body, params }) => jobView(await wb.abandon(params[0]!, body, by(principal)))),
+      r('GET', '/api/jobs/:id', false, async ({ params }) =>
+        jobView(wb.view(await wb.getJob(params[0]!))),
+      ),
+      r(
+        'GET',
+        '/api/jobs/:id/export',
+        false,
+        async ({ params }) => wb.exportJob(params[0]!),
+        (p) => `attachment; filename="${p[0]}.json"`,
+      ),
+      r('POST', '/api/jobs', true, async ({ principal, body }) =>
+        jobView(await wb.createJob(body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/runs', true, async ({ principal, body, params }) =>
+        jobView(await wb.declareRun(params[0]!, body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/runs/:n/discard', true, async ({ principal, body, params }) =>
+        jobView(await wb.discardRun(params[0]!, Number(params[1]), body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/capture', true, async ({ principal, body, params }) =>
+        jobView(await wb.startCapture(params[0]!, body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/capture/cancel', true, async ({ principal, body, params }) =>
+        jobView(await wb.cancelCapture(params[0]!, body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/solve', true, async ({ principal, body, params }) =>
+        jobView(await wb.solve(params[0]!, body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/finish', true, async ({ principal, body, params }) =>
+        jobView(await wb.finish(params[0]!, body, by(principal))),
+      ),
+      r('POST', '/api/jobs/:id/abandon', true, async ({ principal, body, params }) =>
+        jobView(await wb.abandon(params[0]!, body, by(principal))),
+      ),
       r('POST', '/api/tools/trial-weight', false, ({ body }) => trialWeightTool(body)),
       r('POST', '/api/tools/split', false, ({ body }) => splitTool(body)),
       r('POST', '/api/tools/combine', false, ({ body }) => combineTool(body)),
       r('POST', '/api/tools/move-radius', false, ({ body }) => moveRadiusTool(body)),
       r('POST', '/api/tools/grade', false, ({ body }) => gradeTool(body)),
       r('POST', '/api/tools/four-run', false, ({ body }) => fourRunTool(body)),
-      r('POST', '/api/tools/one-x-amplitude', false, ({ body }) => oneXAmplitudeTool(body, this.view.latestWindow)),
-      r('GET', '/api/captures', false, () => ({ captures: listCaptures(this.captureDir).reverse() })),
-      r('GET', '/api/captures/:cid/:ext', false, ({ params }) => this.captureFile(params[0]!, params[1]!)),
-      r('GET', '/api/sweeps', false, () => ({ sweeps: this.sweepStore().map(sweepSummary).reverse() })),
+      r('POST', '/api/tools/one-x-amplitude', false, ({ body }) =>
+        oneXAmplitudeTool(body, this.view.latestWindow),
+      ),
+      r('GET', '/api/captures', false, () => ({
+        captures: listCaptures(this.captureDir).reverse(),
+      })),
+      r('GET', '/api/captures/:cid/:ext', false, ({ params }) =>
+        this.captureFile(params[0]!, params[1]!),
+      ),
+      r('GET', '/api/sweeps', false, () => ({
+        sweeps: this.sweepStore().map(sweepSummary).reverse(),
+      })),
       r('GET', '/api/sweeps/live', false, () => ({ sweep: this.opts.sweepLive?.() ?? null })),
       r('GET', '/api/sweeps/:sid', false, ({ params }) => this.sweep(params[0]!)),
     ];
@@ -442,15 +560,31 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   private captureFile(id: string, ext: string): FileReply {
     const type = CAPTURE_FILES[ext];
-    if (!isCaptureId(id) || !type) throw new ApiError(404, 'not_found', `no capture file ${id}.${ext}`, 'GET /api/captures lists the captures; each has a .wav, .yaml and .json');
+    if (!isCaptureId(id) || !type)
+      throw new ApiError(
+        404,
+        'not_found',
+        `no capture file ${id}.${ext}`,
+        'GET /api/captures lists the captures; each has a .wav, .yaml and .json',
+      );
     // Only captures whose record is written (complete) are served; the name is rebuilt from a checked id.
-    if (!listCaptures(this.captureDir).some((c) => c.id === id)) throw new ApiError(404, 'not_found', `no capture ${id} (removed to keep within capture.max_count / max_mb, or not yet complete)`, 'GET /api/captures lists the captures there are');
+    if (!listCaptures(this.captureDir).some((c) => c.id === id))
+      throw new ApiError(
+        404,
+        'not_found',
+        `no capture ${id} (removed to keep within capture.max_count / max_mb, or not yet complete)`,
+        'GET /api/captures lists the captures there are',
+      );
     return new FileReply(join(this.captureDir, `${id}.${ext}`), type, `${id}.${ext}`);
   }
 
   private sweepStore(): StoredSweep[] {
     const c = this.opts.config.sweep;
-    const store = new SweepStore(this.opts.config.state_dir, { maxCount: c.max_count, maxBytes: c.max_mb * 2 ** 20, referenceId: c.reference_id });
+    const store = new SweepStore(this.opts.config.state_dir, {
+      maxCount: c.max_count,
+      maxBytes: c.max_mb * 2 ** 20,
+      referenceId: c.reference_id,
+    });
     return store
       .list()
       .map((e) => store.read(e.id))
@@ -459,8 +593,19 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   private sweep(id: string): StoredSweep {
     const c = this.opts.config.sweep;
-    const s = isSweepId(id) ? new SweepStore(this.opts.config.state_dir, { maxCount: c.max_count, maxBytes: c.max_mb * 2 ** 20 }).read(id) : null;
-    if (!s) throw new ApiError(404, 'not_found', `no sweep ${id}`, 'GET /api/sweeps lists the recorded sweeps');
+    const s = isSweepId(id)
+      ? new SweepStore(this.opts.config.state_dir, {
+          maxCount: c.max_count,
+          maxBytes: c.max_mb * 2 ** 20,
+        }).read(id)
+      : null;
+    if (!s)
+      throw new ApiError(
+        404,
+        'not_found',
+        `no sweep ${id}`,
+        'GET /api/sweeps lists the recorded sweeps',
+      );
     return s;
   }
 
@@ -470,7 +615,11 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     try {
       path = new URL(req.url ?? '/', 'http://x').pathname;
     } catch {
-      return this.reply(res, 400, new ApiError(400, 'invalid_request', 'unreadable URL', 'check the address').body());
+      return this.reply(
+        res,
+        400,
+        new ApiError(400, 'invalid_request', 'unreadable URL', 'check the address').body(),
+      );
     }
     try {
       if (!path.startsWith('/api/')) return this.serveStatic(req, res, path);
@@ -478,51 +627,114 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       if (!route) {
         const other = this.routes.some((rt) => rt.pattern.test(path));
         throw other
-          ? new ApiError(405, 'method_not_allowed', `${req.method} is not allowed on ${path}`, 'see docs/live-page.md, "HTTP API", for the API')
-          : new ApiError(404, 'not_found', `no API endpoint ${path}`, 'see docs/live-page.md, "HTTP API", for the API');
+          ? new ApiError(
+              405,
+              'method_not_allowed',
+              `${req.method} is not allowed on ${path}`,
+              'see docs/live-page.md, "HTTP API", for the API',
+            )
+          : new ApiError(
+              404,
+              'not_found',
+              `no API endpoint ${path}`,
+              'see docs/live-page.md, "HTTP API", for the API',
+            );
       }
       const principal = this.check.identify(bearerToken(req.headers.authorization));
       if (!principal) {
         this.refused(remote, path);
         res.setHeader('WWW-Authenticate', 'Bearer realm="turnwise"');
-        throw new ApiError(401, 'unauthorised', 'missing or wrong token', 'send the viewer or operator token as "Authorization: Bearer TOKEN" (the page asks for it)');
+        throw new ApiError(
+          401,
+          'unauthorised',
+          'missing or wrong token',
+          'send the viewer or operator token as "Authorization: Bearer TOKEN" (the page asks for it)',
+        );
       }
       if (route.act && !mayAct(principal)) {
-        this.opts.logger.warn({ path, token: principal.name, role: principal.role, remote }, 'live page: action refused to a viewer token');
-        throw new ApiError(403, 'forbidden', `the token of "${principal.name}" is a viewer token; ${path} changes a balancing job`, 'use an operator token to run balancing jobs');
+        this.opts.logger.warn(
+          { path, token: principal.name, role: principal.role, remote },
+          'live page: action refused to a viewer token',
+        );
+        throw new ApiError(
+          403,
+          'forbidden',
+          `the token of "${principal.name}" is a viewer token; ${path} changes a balancing job`,
+          'use an operator token to run balancing jobs',
+        );
       }
       const body = req.method === 'POST' ? await this.readBody(req) : undefined;
       const params = route.pattern.exec(path)!.slice(1);
       const result = await route.handler({ req, principal, params, body });
-      if (route.act) this.opts.logger.debug({ path, token: principal.name, role: principal.role, remote }, 'live page: action done');
+      if (route.act)
+        this.opts.logger.debug(
+          { path, token: principal.name, role: principal.role, remote },
+          'live page: action done',
+        );
       if (result instanceof FileReply) return this.sendFile(res, result);
       return this.reply(res, 200, result, route.download?.(params));
     } catch (e) {
       if (e instanceof ApiError) {
-        if (e.status >= 500) this.opts.logger.error({ path, error: e.message }, 'live page: request failed');
-        else if (req.method === 'POST' && e.status !== 401 && e.status !== 403) this.opts.logger.info({ path, code: e.code, error: e.message, remote }, 'live page: request refused');
+        if (e.status >= 500)
+          this.opts.logger.error({ path, error: e.message }, 'live page: request failed');
+        else if (req.method === 'POST' && e.status !== 401 && e.status !== 403)
+          this.opts.logger.info(
+            { path, code: e.code, error: e.message, remote },
+            'live page: request refused',
+          );
         return this.reply(res, e.status, e.body());
       }
-      this.opts.logger.error({ path, error: (e as Error)?.stack ?? String(e) }, 'live page: internal error');
-      return this.reply(res, 500, new ApiError(500, 'internal', 'internal error; the agent log has the details', 'try again; if it repeats, report it with the agent log').body());
+      this.opts.logger.error(
+        { path, error: (e as Error)?.stack ?? String(e) },
+        'live page: internal error',
+      );
+      return this.reply(
+        res,
+        500,
+        new ApiError(
+          500,
+          'internal',
+          'internal error; the agent log has the details',
+          'try again; if it repeats, report it with the agent log',
+        ).body(),
+      );
     }
   }
 
   private refused(remote: string, what: string): void {
-    this.burst.report(`live-auth-${remote}`, 'live page: request with a missing or wrong token refused', { remote, what });
+    this.burst.report(
+      `live-auth-${remote}`,
+      'live page: request with a missing or wrong token refused',
+      { remote, what },
+    );
   }
 
   private readBody(req: IncomingMessage): Promise<unknown> {
     const type = (req.headers['content-type'] ?? '').split(';')[0]!.trim().toLowerCase();
     const length = Number(req.headers['content-length'] ?? 0);
-    if (length > MAX_BODY_BYTES) return Promise.reject(new ApiError(413, 'too_large', `the body is ${length} bytes; at most ${MAX_BODY_BYTES} are accepted`, 'send a smaller request'));
+    if (length > MAX_BODY_BYTES)
+      return Promise.reject(
+        new ApiError(
+          413,
+          'too_large',
+          `the body is ${length} bytes; at most ${MAX_BODY_BYTES} are accepted`,
+          'send a smaller request',
+        ),
+      );
     return new Promise((resolve, reject) => {
       const chunks: Buffer[] = [];
       let size = 0;
       req.on('data', (c: Buffer) => {
         size += c.length;
         if (size > MAX_BODY_BYTES) {
-          reject(new ApiError(413, 'too_large', `the body is over ${MAX_BODY_BYTES} bytes`, 'send a smaller request'));
+          reject(
+            new ApiError(
+              413,
+              'too_large',
+              `the body is over ${MAX_BODY_BYTES} bytes`,
+              'send a smaller request',
+            ),
+          );
           req.destroy();
           return;
         }
@@ -531,11 +743,26 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
       req.on('error', reject);
       req.on('end', () => {
         if (size === 0) return resolve({});
-        if (type !== 'application/json') return reject(new ApiError(415, 'unsupported_media_type', `the body is "${type || 'of no stated type'}"`, 'send JSON with Content-Type: application/json'));
+        if (type !== 'application/json')
+          return reject(
+            new ApiError(
+              415,
+              'unsupported_media_type',
+              `the body is "${type || 'of no stated type'}"`,
+              'send JSON with Content-Type: application/json',
+            ),
+          );
         try {
           resolve(JSON.parse(Buffer.concat(chunks).toString('utf8')));
         } catch (e) {
-          reject(new ApiError(400, 'invalid_json', `the body is not valid JSON (${(e as Error).message})`, 'send a JSON object'));
+          reject(
+            new ApiError(
+              400,
+              'invalid_json',
+              `the body is not valid JSON (${(e as Error).message})`,
+              'send a JSON object',
+            ),
+          );
         }
       });
     });
@@ -543,8 +770,23 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
 
   private serveStatic(req: IncomingMessage, res: ServerResponse, path: string): void {
     const file = this.files?.get(path);
-    if (req.method !== 'GET' && req.method !== 'HEAD') return this.reply(res, 405, new ApiError(405, 'method_not_allowed', `${req.method} is not allowed on ${path}`, 'use GET').body());
-    if (!file) return this.reply(res, 404, new ApiError(404, 'not_found', `no page file ${path}`, 'open / for the live page').body());
+    if (req.method !== 'GET' && req.method !== 'HEAD')
+      return this.reply(
+        res,
+        405,
+        new ApiError(
+          405,
+          'method_not_allowed',
+          `${req.method} is not allowed on ${path}`,
+          'use GET',
+        ).body(),
+      );
+    if (!file)
+      return this.reply(
+        res,
+        404,
+        new ApiError(404, 'not_found', `no page file ${path}`, 'open / for the live page').body(),
+      );
     for (const [k, v] of Object.entries(SECURITY_HEADERS)) res.setHeader(k, v);
     res.setHeader('Cache-Control', 'no-cache');
     res.setHeader('ETag', file.etag);
@@ -561,10 +803,24 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     try {
       size = statSync(f.path).size;
     } catch {
-      return this.reply(res, 404, new ApiError(404, 'not_found', `${f.filename} is gone (removed to keep within the capture bounds)`, 'GET /api/captures lists the captures there are').body());
+      return this.reply(
+        res,
+        404,
+        new ApiError(
+          404,
+          'not_found',
+          `${f.filename} is gone (removed to keep within the capture bounds)`,
+          'GET /api/captures lists the captures there are',
+        ).body(),
+      );
     }
     for (const [k, v] of Object.entries(SECURITY_HEADERS)) res.setHeader(k, v);
-    res.writeHead(200, { 'Content-Type': f.type, 'Content-Length': size, 'Cache-Control': 'no-store', 'Content-Disposition': `attachment; filename="${f.filename}"` });
+    res.writeHead(200, {
+      'Content-Type': f.type,
+      'Content-Length': size,
+      'Cache-Control': 'no-store',
+      'Content-Disposition': `attachment; filename="${f.filename}"`,
+    });
     const stream = createReadStream(f.path);
     stream.on('error', () => res.destroy());
     stream.pipe(res);

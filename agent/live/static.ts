@@ -24,15 +24,29 @@ const TYPES: Record<string, string> = {
 };
 
 /** Our own page files, by URL path. */
-export const PAGE_FILES = ['index.html', 'style.css', 'app.js', 'format.js', 'polar.js', 'trend.js', 'workbench.js', 'report.js', 'sweeps.js'] as const;
+export const PAGE_FILES = [
+  'index.html',
+  'style.css',
+  'app.js',
+  'format.js',
+  'polar.js',
+  'trend.js',
+  'workbench.js',
+  'report.js',
+  'sweeps.js',
+] as const;
 
 /** The package root: the nearest directory above this module holding package.json (works from agent/ and dist/agent/). */
 function packageRoot(): string {
   let dir = dirname(fileURLToPath(import.meta.url));
   for (;;) {
-    if (existsSync(join(dir, 'package.json')) && existsSync(join(dir, 'agent', 'live', 'page'))) return dir;
+    if (existsSync(join(dir, 'package.json')) && existsSync(join(dir, 'agent', 'live', 'page')))
+      return dir;
     const up = dirname(dir);
-    if (up === dir) throw new Error('cannot find the turnwise package root (package.json next to agent/live/page)');
+    if (up === dir)
+      throw new Error(
+        'cannot find the turnwise package root (package.json next to agent/live/page)',
+      );
     dir = up;
   }
 }
@@ -45,12 +59,20 @@ function load(file: string): Buffer {
   try {
     return readFileSync(file);
   } catch (e) {
-    throw new UserError(file, `a file of the live page cannot be read (${(e as NodeJS.ErrnoException).code ?? String(e)})`, 'reinstall turnwise (npm ci): the page is part of the package');
+    throw new UserError(
+      file,
+      `a file of the live page cannot be read (${(e as NodeJS.ErrnoException).code ?? String(e)})`,
+      'reinstall turnwise (npm ci): the page is part of the package',
+    );
   }
 }
 
 function entry(body: Buffer, ext: string): StaticFile {
-  return { body, type: TYPES[ext]!, etag: `"${createHash('sha256').update(body).digest('base64url').slice(0, 22)}"` };
+  return {
+    body,
+    type: TYPES[ext]!,
+    etag: `"${createHash('sha256').update(body).digest('base64url').slice(0, 22)}"`,
+  };
 }
 
 /** Every file the page needs, keyed by URL path ("/", "/app.js", "/vendor/uPlot.iife.min.js" ...). */
@@ -66,7 +88,11 @@ export function loadStaticFiles(pageDir: string = defaultPageDir()): Map<string,
   try {
     uplotJs = require.resolve('uplot/dist/uPlot.iife.min.js');
   } catch {
-    throw new UserError('uplot', 'the uPlot package (trend plots of the live page) is not installed', 'run npm ci in the turnwise directory');
+    throw new UserError(
+      'uplot',
+      'the uPlot package (trend plots of the live page) is not installed',
+      'run npm ci in the turnwise directory',
+    );
   }
   files.set('/vendor/uPlot.iife.min.js', entry(load(uplotJs), '.js'));
   files.set('/vendor/uPlot.min.css', entry(load(join(dirname(uplotJs), 'uPlot.min.css')), '.css'));

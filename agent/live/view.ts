@@ -44,7 +44,12 @@ export interface LiveSnapshot {
   /** Seconds since the last trusted revolution. */
   readonly age_s: number | null;
   readonly machine_zone: Zone | 'unknown' | null;
-  readonly zone_limits: { readonly ab_mm_s: number; readonly bc_mm_s: number; readonly cd_mm_s: number; readonly basis: string } | null;
+  readonly zone_limits: {
+    readonly ab_mm_s: number;
+    readonly bc_mm_s: number;
+    readonly cd_mm_s: number;
+    readonly basis: string;
+  } | null;
   readonly tach: { readonly state: string; readonly why: string } | null;
   readonly channels: readonly ChannelView[];
   /**
@@ -60,7 +65,12 @@ export interface TrendPoint {
   readonly t_ms: number;
   readonly speed_rpm: number | null;
   /** Per sensor: 1x peak amplitude and overall r.m.s. of the window, mm/s. */
-  readonly channels: Readonly<Record<string, { readonly one_x_pk_mm_s: number | null; readonly overall_rms_mm_s: number | null }>>;
+  readonly channels: Readonly<
+    Record<
+      string,
+      { readonly one_x_pk_mm_s: number | null; readonly overall_rms_mm_s: number | null }
+    >
+  >;
 }
 
 interface ChannelState {
@@ -93,7 +103,17 @@ export class LiveView {
     private readonly trailPoints: number,
     private readonly trendMax: number,
   ) {
-    this.channels = cfg.sensors.map((s) => ({ id: s.id, bearing: s.bearing, direction: s.direction, oneX: null, trail: [], overall: null, zone: null, ok: null, problems: [] }));
+    this.channels = cfg.sensors.map((s) => ({
+      id: s.id,
+      bearing: s.bearing,
+      direction: s.direction,
+      oneX: null,
+      trail: [],
+      overall: null,
+      zone: null,
+      ok: null,
+      problems: [],
+    }));
   }
 
   onLive(f: LiveFrame, atMs: number): void {
@@ -117,15 +137,22 @@ export class LiveView {
 
   onWindow(w: WindowResult, atMs: number): TrendPoint {
     this.latestWindow = { window: w, at_ms: atMs };
-    const channels: Record<string, { one_x_pk_mm_s: number | null; overall_rms_mm_s: number | null }> = {};
+    const channels: Record<
+      string,
+      { one_x_pk_mm_s: number | null; overall_rms_mm_s: number | null }
+    > = {};
     for (const c of this.channels) {
       const r = w.channels.find((x) => x.id === c.id);
       c.overall = r?.overall_rms_mm_s ?? null;
-      channels[c.id] = { one_x_pk_mm_s: r?.orders['1']?.amp_pk_mm_s ?? null, overall_rms_mm_s: c.overall };
+      channels[c.id] = {
+        one_x_pk_mm_s: r?.orders['1']?.amp_pk_mm_s ?? null,
+        overall_rms_mm_s: c.overall,
+      };
     }
     const point: TrendPoint = { t_ms: atMs, speed_rpm: w.speed_rpm, channels };
     this.trendPoints.push(point);
-    if (this.trendPoints.length > this.trendMax) this.trendPoints.splice(0, this.trendPoints.length - this.trendMax);
+    if (this.trendPoints.length > this.trendMax)
+      this.trendPoints.splice(0, this.trendPoints.length - this.trendMax);
     this.version++;
     return point;
   }
@@ -134,7 +161,12 @@ export class LiveView {
     const a = status.latest;
     if (!a) return;
     this.machineZone = a.zone.machine;
-    this.limits = { ab_mm_s: a.zone.limits.ab_mm_s, bc_mm_s: a.zone.limits.bc_mm_s, cd_mm_s: a.zone.limits.cd_mm_s, basis: a.zone.limits.basis };
+    this.limits = {
+      ab_mm_s: a.zone.limits.ab_mm_s,
+      bc_mm_s: a.zone.limits.bc_mm_s,
+      cd_mm_s: a.zone.limits.cd_mm_s,
+      basis: a.zone.limits.basis,
+    };
     this.tach = { state: a.tach.state, why: a.tach.why };
     this.forecast = status.forecast;
     for (const c of this.channels) {
@@ -189,7 +221,11 @@ export interface SessionView {
   readonly machine_name: string;
   readonly units: Config['units'];
   readonly rated_rpm: number | null;
-  readonly sensors: ReadonlyArray<{ readonly id: string; readonly bearing: string; readonly direction: 'vertical' | 'horizontal' | 'axial' }>;
+  readonly sensors: ReadonlyArray<{
+    readonly id: string;
+    readonly bearing: string;
+    readonly direction: 'vertical' | 'horizontal' | 'axial';
+  }>;
   readonly balance_defaults: {
     readonly angle_convention: AngleConvention;
     readonly rotor_mass_kg: number | null;
@@ -210,7 +246,12 @@ export interface SessionView {
 }
 
 /** The session of one token on this machine. */
-export function sessionView(cfg: Config, live: LiveConfig, capture: CaptureSettings, p: Principal): SessionView {
+export function sessionView(
+  cfg: Config,
+  live: LiveConfig,
+  capture: CaptureSettings,
+  p: Principal,
+): SessionView {
   const b = cfg.balance;
   return {
     role: p.role,
@@ -235,8 +276,12 @@ export function sessionView(cfg: Config, live: LiveConfig, capture: CaptureSetti
     },
     capture: { revolutions: capture.revolutions, settle_revolutions: capture.settleRevolutions },
     update_hz: live.update_hz,
-    phase_convention: 'phase is the lag in degrees from the tach edge (reference mark) to the positive peak of the 1x velocity',
-    conventions: { against_rotation: conventionText('against_rotation'), with_rotation: conventionText('with_rotation') },
+    phase_convention:
+      'phase is the lag in degrees from the tach edge (reference mark) to the positive peak of the 1x velocity',
+    conventions: {
+      against_rotation: conventionText('against_rotation'),
+      with_rotation: conventionText('with_rotation'),
+    },
     cautions: balancingCautions(),
   };
 }

@@ -50,7 +50,11 @@ export const SECRET_FIELD_NAMES: readonly string[] = [
 ];
 
 /** pino `redact` paths built from SECRET_FIELD_NAMES. */
-export const REDACT_PATHS: readonly string[] = SECRET_FIELD_NAMES.flatMap((k) => [k, `*.${k}`, `*.*.${k}`]);
+export const REDACT_PATHS: readonly string[] = SECRET_FIELD_NAMES.flatMap((k) => [
+  k,
+  `*.${k}`,
+  `*.*.${k}`,
+]);
 
 /** The value that replaces a redacted field. */
 export const REDACTED = '[redacted]';
@@ -141,7 +145,10 @@ export class PinoLogger implements Logger {
 
 /** Logger options from the config's `logging:` section. */
 export function pinoOptionsFromConfig(c: LoggingConfig): PinoLoggerOptions {
-  return { level: c.level, syslogPrefix: c.syslog_prefix === 'auto' ? 'auto' : c.syslog_prefix === 'on' };
+  return {
+    level: c.level,
+    syslogPrefix: c.syslog_prefix === 'auto' ? 'auto' : c.syslog_prefix === 'on',
+  };
 }
 
 /**
@@ -152,7 +159,10 @@ export function pinoOptionsFromConfig(c: LoggingConfig): PinoLoggerOptions {
 export function createPinoLogger(opts: PinoLoggerOptions = {}): PinoLogger {
   const fd = opts.fd ?? 1;
   const env = opts.env ?? process.env;
-  const prefix = opts.syslogPrefix === undefined || opts.syslogPrefix === 'auto' ? isJournalStream(fd, env) : opts.syslogPrefix;
+  const prefix =
+    opts.syslogPrefix === undefined || opts.syslogPrefix === 'auto'
+      ? isJournalStream(fd, env)
+      : opts.syslogPrefix;
 
   const out = pino.destination({ dest: fd, sync: true });
   // A write error (stdout closed) must not throw out of a logging call and take the agent down:

@@ -6,7 +6,12 @@
  * cap (several seconds once a restart has lasted a few attempts) instead of all in the same
  * second, as a plain +/-20 % around one value would. Pure; `random` returns [0, 1).
  */
-export function reconnectDelayMs(failures: number, minMs: number, maxMs: number, random: () => number): number {
+export function reconnectDelayMs(
+  failures: number,
+  minMs: number,
+  maxMs: number,
+  random: () => number,
+): number {
   const cap = Math.min(maxMs, minMs * 2 ** Math.min(Math.max(failures, 0), 30));
   return cap / 2 + random() * (cap / 2);
 }

@@ -8,7 +8,12 @@ import type { MqttSettings } from './settings.js';
  * with jitter), no QoS 0 queue while offline, no resubscription, no 65536-entry number cache
  * (6.5 MB of heap for a few messages a second; packet-cache.ts), credentials and verified TLS.
  */
-export function clientOptions(s: MqttSettings, clientId: string, protocolVersion: 4 | 5, will: NonNullable<IClientOptions['will']>): IClientOptions {
+export function clientOptions(
+  s: MqttSettings,
+  clientId: string,
+  protocolVersion: 4 | 5,
+  will: NonNullable<IClientOptions['will']>,
+): IClientOptions {
   const tls = s.tls;
   return {
     clientId,

@@ -2,7 +2,15 @@ import { createHash, timingSafeEqual } from 'node:crypto';
 import { isUserError } from '../errors.js';
 import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
-import { COMMANDS, commandPayload, SCHEMA_IDS, type CommandName, type CommandPayload, type ReplyErrorCode, type ReplyPayload } from './payloads.js';
+import {
+  COMMANDS,
+  commandPayload,
+  SCHEMA_IDS,
+  type CommandName,
+  type CommandPayload,
+  type ReplyErrorCode,
+  type ReplyPayload,
+} from './payloads.js';
 import type { Secret } from './secrets.js';
 
 /**
@@ -79,50 +87,101 @@ export class CommandRouter {
     try {
       reply = await this.route(raw);
     } catch (e) {
-      reply = this.fail(null, null, 'failed', `internal error while handling the command: ${(e as Error)?.message ?? String(e)}`);
+      reply = this.fail(
+        null,
+        null,
+        'failed',
+        `internal error while handling the command: ${(e as Error)?.message ?? String(e)}`,
+      );
     }
     if (!reply.ok) {
       this.counts.refused++;
-      this.burst.report('command-refused', `command refused (${reply.error.code}): ${reply.error.message}; the heartbeat counts every refusal`, { cmd: reply.cmd, id: reply.id }, reply.error.code);
+      this.burst.report(
+        'command-refused',
+        `command refused (${reply.error.code}): ${reply.error.message}; the heartbeat counts every refusal`,
+        { cmd: reply.cmd, id: reply.id },
+        reply.error.code,
+      );
     }
     return reply;
   }
 
   private async route(raw: Buffer): Promise<ReplyPayload> {
-    if (raw.length > MAX_COMMAND_BYTES) return this.fail(null, null, 'too_large', `command is ${raw.length} bytes; at most ${MAX_COMMAND_BYTES} are accepted`);
+    if (raw.length > MAX_COMMAND_BYTES)
+      return this.fail(
+        null,
+        null,
+        'too_large',
+        `command is ${raw.length} bytes; at most ${MAX_COMMAND_BYTES} are accepted`,
+      );
     let msg: unknown;
     try {
       msg = JSON.parse(raw.toString('utf8'));
     } catch (e) {
-      return this.fail(null, null, 'malformed', `not valid JSON (${(e as Error).message}); send an object like {"id": "...", "token": "...", "cmd": "advisory.ack", "args": {"by": "..."}}`);
+      return this.fail(
+        null,
+        null,
+        'malformed',
+        `not valid JSON (${(e as Error).message}); send an object like {"id": "...", "token": "...", "cmd": "advisory.ack", "args": {"by": "..."}}`,
+      );
     }
-    if (!msg || typeof msg !== 'object' || Array.isArray(msg)) return this.fail(null, null, 'malformed', 'a command must be a JSON object');
+    if (!msg || typeof msg !== 'object' || Array.isArray(msg))
+      return this.fail(null, null, 'malformed', 'a command must be a JSON object');
     const m = msg as Record<string, unknown>;
     const id = typeof m.id === 'string' && m.id.length > 0 && m.id.length <= 128 ? m.id : null;
     const cmdName = typeof m.cmd === 'string' ? m.cmd.slice(0, 64) : null;
-    if (!this.authorised(m.token)) return this.fail(id, cmdName, 'unauthorised', 'missing or wrong command token');
-    if (id === null) return this.fail(null, cmdName, 'malformed', 'field "id" must be a string of 1-128 characters (the correlation id)');
+    if (!this.authorised(m.token))
+      return this.fail(id, cmdName, 'unauthorised', 'missing or wrong command token');
+    if (id === null)
+      return this.fail(
+        null,
+        cmdName,
+        'malformed',
+        'field "id" must be a string of 1-128 characters (the correlation id)',
+      );
     const seen = this.recent.get(id);
     if (seen) return seen;
     if (!cmdName || !(COMMANDS as readonly string[]).includes(cmdName)) {
-      return this.fail(id, cmdName, 'unknown_command', `unknown command ${JSON.stringify(cmdName)}; known: ${COMMANDS.join(', ')}`);
+      return this.fail(
+        id,
+        cmdName,
+        'unknown_command',
+        `unknown command ${JSON.stringify(cmdName)}; known: ${COMMANDS.join(', ')}`,
+      );
     }
     const parsed = commandPayload.safeParse(m);
     if (!parsed.success) {
-      const where = parsed.error.issues.map((i) => `${i.path.join('.') || '(top level)'}: ${i.message}`).join('; ');
+      const where = parsed.error.issues
+        .map((i) => `${i.path.join('.') || '(top level)'}: ${i.message}`)
+        .join('; ');
       return this.fail(id, cmdName, 'invalid_args', `${cmdName}: ${where}`);
     }
     const cmd = parsed.data;
     const handler = this.handlers[HANDLER_OF[cmd.cmd]] as Handler<CommandName> | undefined;
     let reply: ReplyPayload;
     if (!handler) {
-      reply = this.fail(id, cmd.cmd, 'unavailable', `${cmd.cmd} is not available in this agent (that part is not running)`);
+      reply = this.fail(
+        id,
+        cmd.cmd,
+        'unavailable',
+        `${cmd.cmd} is not available in this agent (that part is not running)`,
+      );
     } else {
       try {
         const result = await handler(cmd.args as never);
-        reply = { schema: SCHEMA_IDS.reply, asset: this.asset, ts: new Date(this.now()).toISOString(), id, cmd: cmd.cmd, ok: true, result };
+        reply = {
+          schema: SCHEMA_IDS.reply,
+          asset: this.asset,
+          ts: new Date(this.now()).toISOString(),
+          id,
+          cmd: cmd.cmd,
+          ok: true,
+          result,
+        };
       } catch (e) {
-        reply = isUserError(e) ? this.fail(id, cmd.cmd, 'rejected', e.format()) : this.fail(id, cmd.cmd, 'failed', (e as Error)?.message ?? String(e));
+        reply = isUserError(e)
+          ? this.fail(id, cmd.cmd, 'rejected', e.format())
+          : this.fail(id, cmd.cmd, 'failed', (e as Error)?.message ?? String(e));
       }
     }
     this.remember(id, reply);
@@ -137,10 +196,24 @@ export class CommandRouter {
 
   private remember(id: string, reply: ReplyPayload): void {
     this.recent.set(id, reply);
-    if (this.recent.size > REMEMBERED_REPLIES) this.recent.delete(this.recent.keys().next().value as string);
+    if (this.recent.size > REMEMBERED_REPLIES)
+      this.recent.delete(this.recent.keys().next().value as string);
   }
 
-  private fail(id: string | null, cmd: string | null, code: ReplyErrorCode, message: string): ReplyPayload {
-    return { schema: SCHEMA_IDS.reply, asset: this.asset, ts: new Date(this.now()).toISOString(), id, cmd, ok: false, error: { code, message } };
+  private fail(
+    id: string | null,
+    cmd: string | null,
+    code: ReplyErrorCode,
+    message: string,
+  ): ReplyPayload {
+    return {
+      schema: SCHEMA_IDS.reply,
+      asset: this.asset,
+      ts: new Date(this.now()).toISOString(),
+      id,
+      cmd,
+      ok: false,
+      error: { code, message },
+    };
   }
 }

@@ -41,7 +41,10 @@ export interface BrokerLimits {
 
 export function brokerLimits(connack: IConnackPacket | undefined): BrokerLimits {
   const p = connack?.properties;
-  return { receiveMaximum: p?.receiveMaximum ?? null, maximumPacketSize: p?.maximumPacketSize ?? null };
+  return {
+    receiveMaximum: p?.receiveMaximum ?? null,
+    maximumPacketSize: p?.maximumPacketSize ?? null,
+  };
 }
 
 /**
@@ -49,8 +52,18 @@ export function brokerLimits(connack: IConnackPacket | undefined): BrokerLimits 
  * bytes of remaining length), topic (2 + UTF-8 bytes), packet id (QoS > 0), the MQTT 5 properties
  * (`propertyBytes`, plus their own length field) and the payload. MQTT 5.0 section 3.3.
  */
-export function publishPacketBytes(topic: string, payloadBytes: number, qos: number, version: 4 | 5, propertyBytes = 0): number {
-  const variable = 2 + Buffer.byteLength(topic) + (qos > 0 ? 2 : 0) + (version === 5 ? varintBytes(propertyBytes) + propertyBytes : 0);
+export function publishPacketBytes(
+  topic: string,
+  payloadBytes: number,
+  qos: number,
+  version: 4 | 5,
+  propertyBytes = 0,
+): number {
+  const variable =
+    2 +
+    Buffer.byteLength(topic) +
+    (qos > 0 ? 2 : 0) +
+    (version === 5 ? varintBytes(propertyBytes) + propertyBytes : 0);
   const remaining = variable + payloadBytes;
   return 1 + varintBytes(remaining) + remaining;
 }
@@ -64,10 +77,22 @@ function varintBytes(n: number): number {
  * connect timeout, or when the agent counts it connected but mqtt.js no longer does and no close
  * came (the "disconnecting" state mqtt.js can be left in after some socket errors). Returns why, or null.
  */
-export function stuckReason(c: MqttClient, s: { connected: boolean; attemptAtMs: number; connectTimeoutMs: number; keepaliveS: number; lostSinceMs: number | null }, nowMs: number): string | null {
+export function stuckReason(
+  c: MqttClient,
+  s: {
+    connected: boolean;
+    attemptAtMs: number;
+    connectTimeoutMs: number;
+    keepaliveS: number;
+    lostSinceMs: number | null;
+  },
+  nowMs: number,
+): string | null {
   if (!s.connected) {
     const limit = s.connectTimeoutMs + 5000;
-    return nowMs - s.attemptAtMs > limit ? `a connection attempt neither connected nor failed within ${(limit / 1000).toFixed(0)} s` : null;
+    return nowMs - s.attemptAtMs > limit
+      ? `a connection attempt neither connected nor failed within ${(limit / 1000).toFixed(0)} s`
+      : null;
   }
   if (s.lostSinceMs !== null && nowMs - s.lostSinceMs > Math.max(5000, s.keepaliveS * 1500)) {
     return `the client stopped being connected ${((nowMs - s.lostSinceMs) / 1000).toFixed(0)} s ago${c.disconnecting ? ' and is stuck disconnecting' : ''} without closing`;

@@ -9,7 +9,14 @@ export interface ChannelVerdict {
 }
 type Verdicts = (sensorId: string) => ChannelVerdict | undefined;
 
-function channelEntry(id: string, bearing: string, direction: SensorConfig['direction'], overall: number | null, x1: OrderVector | undefined, verdict: Verdicts | undefined): LivePayload['channels'][number] {
+function channelEntry(
+  id: string,
+  bearing: string,
+  direction: SensorConfig['direction'],
+  overall: number | null,
+  x1: OrderVector | undefined,
+  verdict: Verdicts | undefined,
+): LivePayload['channels'][number] {
   const v = verdict?.(id);
   return {
     id,
@@ -24,13 +31,20 @@ function channelEntry(id: string, bearing: string, direction: SensorConfig['dire
 }
 
 /** The live message (overall level and 1x vector per channel) from one analysis window. */
-export function livePayloadFromWindow(w: WindowResult, asset: string, ts: string, verdict?: Verdicts): LivePayload {
+export function livePayloadFromWindow(
+  w: WindowResult,
+  asset: string,
+  ts: string,
+  verdict?: Verdicts,
+): LivePayload {
   return {
     schema: SCHEMA_IDS.live,
     asset,
     ts,
     speed_rpm: w.speed_rpm,
-    channels: w.channels.map((ch) => channelEntry(ch.id, ch.bearing, ch.direction, ch.overall_rms_mm_s, ch.orders['1'], verdict)),
+    channels: w.channels.map((ch) =>
+      channelEntry(ch.id, ch.bearing, ch.direction, ch.overall_rms_mm_s, ch.orders['1'], verdict),
+    ),
   };
 }
 
@@ -38,7 +52,14 @@ export function livePayloadFromWindow(w: WindowResult, asset: string, ts: string
  * The live message from the per-revolution live vectors, with each channel's overall level taken
  * from the last completed window (null before the first one).
  */
-export function livePayloadFromFrame(f: LiveFrame, sensors: readonly SensorConfig[], lastWindow: WindowResult | null, asset: string, ts: string, verdict?: Verdicts): LivePayload {
+export function livePayloadFromFrame(
+  f: LiveFrame,
+  sensors: readonly SensorConfig[],
+  lastWindow: WindowResult | null,
+  asset: string,
+  ts: string,
+  verdict?: Verdicts,
+): LivePayload {
   return {
     schema: SCHEMA_IDS.live,
     asset,

@@ -30,7 +30,10 @@ interface PacketSink {
 
 /** mqtt-packet's writeToStream, the part used here. */
 export interface PacketWriter {
-  (packet: { cmd: 'publish'; topic: string; payload: Buffer; qos: 0; dup: false; retain: false }, stream: PacketSink): boolean;
+  (
+    packet: { cmd: 'publish'; topic: string; payload: Buffer; qos: 0; dup: false; retain: false },
+    stream: PacketSink,
+  ): boolean;
   cacheNumbers: boolean;
 }
 
@@ -46,8 +49,23 @@ export function mqttPacketWriter(): PacketWriter {
 }
 
 /** Writes a QoS 0 publish with remaining length `len` (3 or more) to `sink`. */
-export function writePublishOfLength(write: PacketWriter, len: number, sink: PacketSink, payload = Buffer.alloc(len - MIN_PUBLISH)): boolean {
-  return write({ cmd: 'publish', topic: 'x', payload: payload.subarray(0, len - MIN_PUBLISH), qos: 0, dup: false, retain: false }, sink);
+export function writePublishOfLength(
+  write: PacketWriter,
+  len: number,
+  sink: PacketSink,
+  payload = Buffer.alloc(len - MIN_PUBLISH),
+): boolean {
+  return write(
+    {
+      cmd: 'publish',
+      topic: 'x',
+      payload: payload.subarray(0, len - MIN_PUBLISH),
+      qos: 0,
+      dup: false,
+      retain: false,
+    },
+    sink,
+  );
 }
 
 /** Turns the number cache off and fills the remaining-length cache for every publish length (see above); returns the lengths written. */
@@ -62,6 +80,7 @@ export function settleMqttPacketCaches(write: PacketWriter = mqttPacketWriter())
     },
   };
   let n = 0;
-  for (let len = MIN_PUBLISH; len < CACHED_LENGTHS; len++, n++) writePublishOfLength(write, len, sink, payload);
+  for (let len = MIN_PUBLISH; len < CACHED_LENGTHS; len++, n++)
+    writePublishOfLength(write, len, sink, payload);
   return n;
 }

@@ -76,9 +76,34 @@ export async function openPlantLink(o: PlantLinkOptions): Promise<PlantLink> {
     else o.log.warn({ notice: n.kind }, String(ev.message));
     void publisher.queueEvent(ev);
   };
-  const outbox = await Outbox.open({ dir: ob.dir, maxEvents: ob.maxEvents, maxBytes: ob.maxBytes, fs: o.fs, now, onNotice });
-  const router = settings.commandToken ? new CommandRouter({ asset: o.asset, token: settings.commandToken, handlers: o.handlers ?? {}, log: o.log, now }) : undefined;
-  const pub = new MqttPublisher({ settings, asset: o.asset, outbox, log: o.log, commands: router, health: o.health, connect: o.connect, now, agentVersion: o.agentVersion });
+  const outbox = await Outbox.open({
+    dir: ob.dir,
+    maxEvents: ob.maxEvents,
+    maxBytes: ob.maxBytes,
+    fs: o.fs,
+    now,
+    onNotice,
+  });
+  const router = settings.commandToken
+    ? new CommandRouter({
+        asset: o.asset,
+        token: settings.commandToken,
+        handlers: o.handlers ?? {},
+        log: o.log,
+        now,
+      })
+    : undefined;
+  const pub = new MqttPublisher({
+    settings,
+    asset: o.asset,
+    outbox,
+    log: o.log,
+    commands: router,
+    health: o.health,
+    connect: o.connect,
+    now,
+    agentVersion: o.agentVersion,
+  });
   publisher = pub;
   early.splice(0).forEach(onNotice);
   const sp = o.mqtt.sparkplug;
@@ -87,10 +112,27 @@ export async function openPlantLink(o: PlantLinkOptions): Promise<PlantLink> {
   let spOutbox: Outbox | null = null;
   if (sp) {
     // Its own outbox: an event leaves it when written to the Sparkplug session (QoS 0), independently of the JSON topic's PUBACKs.
-    spOutbox = await Outbox.open({ dir: join(o.stateDir, 'sparkplug-outbox'), maxEvents: ob.maxEvents, maxBytes: ob.maxBytes, fs: o.fs, now, onNotice: (n) => o.log.warn({ notice: n.kind }, `Sparkplug outbox: ${String(eventFromNotice(n, o.asset, new Date(now()).toISOString(), randomUUID()).message)}`) });
+    spOutbox = await Outbox.open({
+      dir: join(o.stateDir, 'sparkplug-outbox'),
+      maxEvents: ob.maxEvents,
+      maxBytes: ob.maxBytes,
+      fs: o.fs,
+      now,
+      onNotice: (n) =>
+        o.log.warn(
+          { notice: n.kind },
+          `Sparkplug outbox: ${String(eventFromNotice(n, o.asset, new Date(now()).toISOString(), randomUUID()).message)}`,
+        ),
+    });
     node = new SparkplugNode({
       mqtt: settings,
-      ids: { groupId: sp.group_id, edgeNodeId: sp.edge_node_id, deviceId: sp.device_id ?? o.asset, primaryHostId: sp.primary_host_id, clientId: sp.client_id ?? `${settings.clientId}-spb` },
+      ids: {
+        groupId: sp.group_id,
+        edgeNodeId: sp.edge_node_id,
+        deviceId: sp.device_id ?? o.asset,
+        primaryHostId: sp.primary_host_id,
+        clientId: sp.client_id ?? `${settings.clientId}-spb`,
+      },
       metrics: deviceMetrics(o.sensors ?? []),
       outbox: spOutbox,
       bdSeq: new FileBdSeqStore(join(o.stateDir, 'sparkplug-bdseq.json'), o.log),

@@ -1,11 +1,31 @@
-import { connect as mqttConnect, type IClientOptions, type IConnackPacket, type IPublishPacket, type MqttClient } from 'mqtt';
+import {
+  connect as mqttConnect,
+  type IClientOptions,
+  type IConnackPacket,
+  type IPublishPacket,
+  type MqttClient,
+} from 'mqtt';
 import { reconnectDelayMs } from './backoff.js';
-import { brokerLimits, forceEnd, ProtocolChoice, publishPacketBytes, stuckReason, type BrokerLimits } from './link-habits.js';
+import {
+  brokerLimits,
+  forceEnd,
+  ProtocolChoice,
+  publishPacketBytes,
+  stuckReason,
+  type BrokerLimits,
+} from './link-habits.js';
 import type { AgentEvent } from '../events.js';
 import type { AddOutcome, Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
-import { SCHEMA_IDS, type HeartbeatPayload, type LinkHealth, type LivePayload, type ReplyPayload, type StatusPayload } from './payloads.js';
+import {
+  SCHEMA_IDS,
+  type HeartbeatPayload,
+  type LinkHealth,
+  type LivePayload,
+  type ReplyPayload,
+  type StatusPayload,
+} from './payloads.js';
 import { settleMqttPacketCaches } from './packet-cache.js';
 import { clientOptions } from './client-options.js';
 import type { MqttSettings } from './settings.js';
@@ -67,20 +87,53 @@ export function describeConnectError(err: unknown): { kind: string; reason: stri
   const code = e.code;
   if (code === 'PUBLISH_TIMEOUT') return { kind: 'publish-timeout', reason: e.message };
   if (code === 'STUCK') return { kind: 'stuck', reason: `${e.message}; the client was replaced` };
-  if (code === 4 || code === 134) return { kind: 'bad-credentials', reason: 'the broker refused the user name or password; check mqtt.username and mqtt.password' };
+  if (code === 4 || code === 134)
+    return {
+      kind: 'bad-credentials',
+      reason: 'the broker refused the user name or password; check mqtt.username and mqtt.password',
+    };
   if (code === 5 || code === 135) {
     // mosquitto answers a wrong password with "not authorised" too.
-    return { kind: 'not-authorised', reason: "the broker refused the login (not authorised): wrong user name or password, or this client is not allowed; check mqtt.username, mqtt.password and the broker's users" };
+    return {
+      kind: 'not-authorised',
+      reason:
+        "the broker refused the login (not authorised): wrong user name or password, or this client is not allowed; check mqtt.username, mqtt.password and the broker's users",
+    };
   }
-  if (code === 2 || code === 133) return { kind: 'client-id', reason: 'the broker rejected the client id; set mqtt.client_id' };
-  if (typeof code === 'number') return { kind: `refused-${code}`, reason: `the broker refused the connection (code ${code}: ${e.message})` };
-  if (code === 'ECONNREFUSED') return { kind: code, reason: 'nothing accepts connections there (connection refused); is the broker running and the port right?' };
-  if (code === 'ENOTFOUND' || code === 'EAI_AGAIN') return { kind: code, reason: `cannot resolve the host name (${code}); check the name and the board's DNS` };
-  if (code === 'EHOSTUNREACH' || code === 'ENETUNREACH' || code === 'ETIMEDOUT') return { kind: code, reason: `the broker cannot be reached (${code}); check the network` };
-  if (typeof code === 'string' && (code.startsWith('ERR_TLS') || code.startsWith('ERR_SSL') || code.includes('CERT') || code.includes('SIGNATURE'))) {
-    return { kind: `tls-${code}`, reason: `TLS failed (${code}: ${e.message}); check mqtt.tls.ca_file, the name in the broker certificate (mqtt.tls.servername) and the client certificate` };
+  if (code === 2 || code === 133)
+    return { kind: 'client-id', reason: 'the broker rejected the client id; set mqtt.client_id' };
+  if (typeof code === 'number')
+    return {
+      kind: `refused-${code}`,
+      reason: `the broker refused the connection (code ${code}: ${e.message})`,
+    };
+  if (code === 'ECONNREFUSED')
+    return {
+      kind: code,
+      reason:
+        'nothing accepts connections there (connection refused); is the broker running and the port right?',
+    };
+  if (code === 'ENOTFOUND' || code === 'EAI_AGAIN')
+    return {
+      kind: code,
+      reason: `cannot resolve the host name (${code}); check the name and the board's DNS`,
+    };
+  if (code === 'EHOSTUNREACH' || code === 'ENETUNREACH' || code === 'ETIMEDOUT')
+    return { kind: code, reason: `the broker cannot be reached (${code}); check the network` };
+  if (
+    typeof code === 'string' &&
+    (code.startsWith('ERR_TLS') ||
+      code.startsWith('ERR_SSL') ||
+      code.includes('CERT') ||
+      code.includes('SIGNATURE'))
+  ) {
+    return {
+      kind: `tls-${code}`,
+      reason: `TLS failed (${code}: ${e.message}); check mqtt.tls.ca_file, the name in the broker certificate (mqtt.tls.servername) and the client certificate`,
+    };
   }
-  if (/connack timeout/i.test(e.message)) return { kind: 'timeout', reason: 'no answer from the broker within mqtt.connect_timeout_s' };
+  if (/connack timeout/i.test(e.message))
+    return { kind: 'timeout', reason: 'no answer from the broker within mqtt.connect_timeout_s' };
   return { kind: String(code ?? e.message), reason: e.message };
 }
 
@@ -111,7 +164,16 @@ export class MqttPublisher {
   private lastLiveAt = -Infinity;
   private started = false;
   private stopping = false;
-  private readonly counts = { connects: 0, connect_failures: 0, events_published: 0, publish_timeouts: 0, live_sent: 0, live_skipped: 0, refused_too_large: 0, stuck_replaced: 0 };
+  private readonly counts = {
+    connects: 0,
+    connect_failures: 0,
+    events_published: 0,
+    publish_timeouts: 0,
+    live_sent: 0,
+    live_skipped: 0,
+    refused_too_large: 0,
+    stuck_replaced: 0,
+  };
   private readonly protocol: ProtocolChoice;
   private protoVersion: 4 | 5 = 5;
   private limits: BrokerLimits = { receiveMaximum: null, maximumPacketSize: null };
@@ -177,7 +239,10 @@ export class MqttPublisher {
       return false;
     }
     // MQTT 5: a live value older than two intervals is of no use to anyone; the broker may drop it.
-    const properties = this.protoVersion === 5 ? { messageExpiryInterval: Math.max(1, Math.ceil((2 * this.s.liveIntervalMs) / 1000)) } : undefined;
+    const properties =
+      this.protoVersion === 5
+        ? { messageExpiryInterval: Math.max(1, Math.ceil((2 * this.s.liveIntervalMs) / 1000)) }
+        : undefined;
     c.publish(this.s.topics.live, body, { qos: 0, properties }, () => {});
     this.counts.live_sent++;
     return true;
@@ -202,7 +267,15 @@ export class MqttPublisher {
   }
 
   /** What the broker said it takes (MQTT 5 CONNACK), the protocol level of this connection, and the window in force. */
-  linkInfo(): { protocol_version: 4 | 5; receive_maximum: number | null; maximum_packet_size: number | null; inflight_window: number; inflight_max_seen: number; refused_too_large_total: number; stuck_replaced_total: number } {
+  linkInfo(): {
+    protocol_version: 4 | 5;
+    receive_maximum: number | null;
+    maximum_packet_size: number | null;
+    inflight_window: number;
+    inflight_max_seen: number;
+    refused_too_large_total: number;
+    stuck_replaced_total: number;
+  } {
     return {
       protocol_version: this.protoVersion,
       receive_maximum: this.limits.receiveMaximum,
@@ -225,7 +298,12 @@ export class MqttPublisher {
     const size = publishPacketBytes(topic, payloadBytes, qos, this.protoVersion, 16);
     if (size <= max) return false;
     this.counts.refused_too_large++;
-    this.burst.report('too-large', `a ${what} message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (the broker would drop the connection). Raise the broker's max_packet_size or send less`, { topic, bytes: size, max_bytes: max }, what);
+    this.burst.report(
+      'too-large',
+      `a ${what} message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (the broker would drop the connection). Raise the broker's max_packet_size or send less`,
+      { topic, bytes: size, max_bytes: max },
+      what,
+    );
     return true;
   }
 
@@ -234,7 +312,17 @@ export class MqttPublisher {
     if (!c || this.stopping) return;
     if (this.connected && !c.connected) this.lostSince ??= this.now();
     else this.lostSince = null;
-    const why = stuckReason(c, { connected: this.connected, attemptAtMs: this.attemptAt, connectTimeoutMs: this.s.connectTimeoutMs, keepaliveS: this.s.keepaliveS, lostSinceMs: this.lostSince }, this.now());
+    const why = stuckReason(
+      c,
+      {
+        connected: this.connected,
+        attemptAtMs: this.attemptAt,
+        connectTimeoutMs: this.s.connectTimeoutMs,
+        keepaliveS: this.s.keepaliveS,
+        lostSinceMs: this.lostSince,
+      },
+      this.now(),
+    );
     if (!why) return;
     this.counts.stuck_replaced++;
     this.lastError = Object.assign(new Error(why), { code: 'STUCK' });
@@ -264,16 +352,34 @@ export class MqttPublisher {
     if (!c) return;
     const wasConnected = this.connected;
     if (wasConnected) {
-      await withTimeout(new Promise<void>((r) => c.publish(this.s.topics.status, JSON.stringify(this.status(false, 'stopped')), { qos: 1, retain: true }, () => r())), STOP_WAIT_MS);
+      await withTimeout(
+        new Promise<void>((r) =>
+          c.publish(
+            this.s.topics.status,
+            JSON.stringify(this.status(false, 'stopped')),
+            { qos: 1, retain: true },
+            () => r(),
+          ),
+        ),
+        STOP_WAIT_MS,
+      );
     }
     this.dropClient(c);
     // A clean DISCONNECT (so the broker does not publish the last-will) only makes sense when connected.
-    if (wasConnected) await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
+    if (wasConnected)
+      await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
     c.end(true);
   }
 
   private status(online: boolean, reason: StatusPayload['reason']): StatusPayload {
-    return { schema: SCHEMA_IDS.status, asset: this.asset, online, reason, session_started_ts: this.sessionStartedTs, agent_version: this.version };
+    return {
+      schema: SCHEMA_IDS.status,
+      asset: this.asset,
+      online,
+      reason,
+      session_started_ts: this.sessionStartedTs,
+      agent_version: this.version,
+    };
   }
 
   private connectNow(): void {
@@ -285,7 +391,12 @@ export class MqttPublisher {
     this.attemptAt = this.now();
     this.gotConnack = false;
     this.lostSince = null;
-    const opts = clientOptions(this.s, this.s.clientId, this.protoVersion, { topic: this.s.topics.status, payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))), qos: 1, retain: true });
+    const opts = clientOptions(this.s, this.s.clientId, this.protoVersion, {
+      topic: this.s.topics.status,
+      payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))),
+      qos: 1,
+      retain: true,
+    });
     let c: MqttClient;
     try {
       c = this.connectFn(this.s.url, opts);
@@ -308,23 +419,44 @@ export class MqttPublisher {
     this.gotConnack = true;
     const before = this.limits;
     this.limits = brokerLimits(connack);
-    if (this.limits.receiveMaximum !== before.receiveMaximum || this.limits.maximumPacketSize !== before.maximumPacketSize) {
+    if (
+      this.limits.receiveMaximum !== before.receiveMaximum ||
+      this.limits.maximumPacketSize !== before.maximumPacketSize
+    ) {
       this.log.info(
-        { protocol_version: this.protoVersion, receive_maximum: this.limits.receiveMaximum, maximum_packet_size: this.limits.maximumPacketSize },
+        {
+          protocol_version: this.protoVersion,
+          receive_maximum: this.limits.receiveMaximum,
+          maximum_packet_size: this.limits.maximumPacketSize,
+        },
         `broker limits (MQTT ${this.protoVersion === 5 ? '5' : '3.1.1'}): receive maximum ${this.limits.receiveMaximum ?? 'not given'}, maximum packet size ${this.limits.maximumPacketSize ?? 'not given'}; events in flight at most ${this.window()}`,
       );
     }
     this.connected = true;
     this.connectedAt = this.now();
     this.counts.connects++;
-    if (!this.burst.resolved('connect', `connected to ${this.s.url} after ${this.failures} failed attempt(s)`, { client_id: this.s.clientId })) {
+    if (
+      !this.burst.resolved(
+        'connect',
+        `connected to ${this.s.url} after ${this.failures} failed attempt(s)`,
+        { client_id: this.s.clientId },
+      )
+    ) {
       this.log.info({ client_id: this.s.clientId }, `connected to ${this.s.url}`);
     }
-    c.publish(this.s.topics.status, JSON.stringify(this.status(true, 'connected')), { qos: 1, retain: true }, () => {});
+    c.publish(
+      this.s.topics.status,
+      JSON.stringify(this.status(true, 'connected')),
+      { qos: 1, retain: true },
+      () => {},
+    );
     if (this.commands) {
       c.subscribe(this.s.topics.cmd, { qos: 1 }, (err, granted) => {
         if (err || granted?.some((g) => g.qos === 128)) {
-          this.burst.report('subscribe', `the broker refused the subscription to ${this.s.topics.cmd}; commands will not arrive (check the broker ACL)`);
+          this.burst.report(
+            'subscribe',
+            `the broker refused the subscription to ${this.s.topics.cmd}; commands will not arrive (check the broker ACL)`,
+          );
         }
       });
     }
@@ -338,9 +470,18 @@ export class MqttPublisher {
     this.dropClient(c);
     forceEnd(c);
     if (this.stopping) return;
-    if (!wasConnected && this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)) {
-      this.log.info({ url: this.s.url }, `the broker at ${this.s.url} does not take MQTT 5 (${describeConnectError(this.lastError).reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`);
-      this.reconnectTimer = setTimeout(() => this.connectNow(), Math.min(this.s.reconnectMinMs, 500));
+    if (
+      !wasConnected &&
+      this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)
+    ) {
+      this.log.info(
+        { url: this.s.url },
+        `the broker at ${this.s.url} does not take MQTT 5 (${describeConnectError(this.lastError).reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`,
+      );
+      this.reconnectTimer = setTimeout(
+        () => this.connectNow(),
+        Math.min(this.s.reconnectMinMs, 500),
+      );
       return;
     }
     if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
@@ -359,10 +500,17 @@ export class MqttPublisher {
   private scheduleReconnect(wasConnected: boolean): void {
     const { kind, reason } = describeConnectError(this.lastError);
     if (!wasConnected) this.counts.connect_failures++;
-    const delay = reconnectDelayMs(this.failures, this.s.reconnectMinMs, this.s.reconnectMaxMs, this.random);
+    const delay = reconnectDelayMs(
+      this.failures,
+      this.s.reconnectMinMs,
+      this.s.reconnectMaxMs,
+      this.random,
+    );
     this.failures++;
     const backoff = `with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s); events wait in the outbox`;
-    const message = wasConnected ? `lost the connection to ${this.s.url}: ${reason}; reconnecting ${backoff}` : `cannot connect to ${this.s.url}: ${reason}; retrying ${backoff}`;
+    const message = wasConnected
+      ? `lost the connection to ${this.s.url}: ${reason}; reconnecting ${backoff}`
+      : `cannot connect to ${this.s.url}: ${reason}; retrying ${backoff}`;
     this.burst.report('connect', message, { client_id: this.s.clientId }, kind);
     this.reconnectTimer = setTimeout(() => this.connectNow(), delay);
   }
@@ -401,7 +549,13 @@ export class MqttPublisher {
    * block every later event) and a small event says which one, how big and the limit; the event
    * itself stays in the event log under state_dir (turnwise events). An alarm's refusal is an alarm.
    */
-  private refuseEvent(ev: { seq: number; id: string; type: string; severity: 'info' | 'warning' | 'alarm'; json: string }): void {
+  private refuseEvent(ev: {
+    seq: number;
+    id: string;
+    type: string;
+    severity: 'info' | 'warning' | 'alarm';
+    json: string;
+  }): void {
     this.outbox.ack(ev.seq);
     const bytes = Buffer.byteLength(ev.json);
     const max = this.limits.maximumPacketSize;
@@ -422,7 +576,12 @@ export class MqttPublisher {
   private onPublishTimeout(c: MqttClient): void {
     if (c !== this.client) return;
     this.counts.publish_timeouts++;
-    this.lastError = Object.assign(new Error(`an event was not acknowledged within ${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`), { code: 'PUBLISH_TIMEOUT' });
+    this.lastError = Object.assign(
+      new Error(
+        `an event was not acknowledged within ${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`,
+      ),
+      { code: 'PUBLISH_TIMEOUT' },
+    );
     this.onClose(c);
   }
 
@@ -430,7 +589,8 @@ export class MqttPublisher {
     if (c !== this.client || topic !== this.s.topics.cmd || !this.commands) return;
     // MQTT 5 request/response: the reply goes to the sender's response topic with its correlation data.
     const rt = packet?.properties?.responseTopic;
-    const responseTopic = typeof rt === 'string' && rt.length > 0 && rt.length <= 512 && !/[+#]/.test(rt) ? rt : null;
+    const responseTopic =
+      typeof rt === 'string' && rt.length > 0 && rt.length <= 512 && !/[+#]/.test(rt) ? rt : null;
     const correlationData = packet?.properties?.correlationData;
     void this.commands.handle(payload).then((reply) => {
       // Replies are not durable: a sender that loses the connection asks again (same id, same reply).
@@ -438,7 +598,8 @@ export class MqttPublisher {
       const to = responseTopic ?? this.s.topics.cmdReply;
       const body = JSON.stringify(reply);
       if (this.tooLarge(to, Buffer.byteLength(body), 1, 'command reply')) return;
-      const properties = this.protoVersion === 5 && correlationData ? { correlationData } : undefined;
+      const properties =
+        this.protoVersion === 5 && correlationData ? { correlationData } : undefined;
       c.publish(to, body, { qos: 1, properties }, () => {});
     });
   }
@@ -461,7 +622,10 @@ export class MqttPublisher {
     const body = JSON.stringify(hb);
     if (this.tooLarge(this.s.topics.heartbeat, Buffer.byteLength(body), 0, 'heartbeat')) return;
     // A heartbeat three periods old says nothing about now.
-    const properties = this.protoVersion === 5 ? { messageExpiryInterval: Math.max(1, Math.ceil((3 * this.s.heartbeatMs) / 1000)) } : undefined;
+    const properties =
+      this.protoVersion === 5
+        ? { messageExpiryInterval: Math.max(1, Math.ceil((3 * this.s.heartbeatMs) / 1000)) }
+        : undefined;
     c.publish(this.s.topics.heartbeat, body, { qos: 0, properties }, () => {});
   }
 }

@@ -41,9 +41,18 @@ export function readSecretFile(file: string, where: string): Buffer {
     st = statSync(file);
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    throw new UserError(where, `cannot read secret file ${file} (${code === 'ENOENT' ? 'not found' : code})`, 'check the path; relative paths are taken from the directory the agent starts in');
+    throw new UserError(
+      where,
+      `cannot read secret file ${file} (${code === 'ENOENT' ? 'not found' : code})`,
+      'check the path; relative paths are taken from the directory the agent starts in',
+    );
   }
-  if (!st.isFile()) throw new UserError(where, `${file} is not a regular file`, 'point it at the file that holds the secret');
+  if (!st.isFile())
+    throw new UserError(
+      where,
+      `${file} is not a regular file`,
+      'point it at the file that holds the secret',
+    );
   const mode = st.mode & 0o777;
   if (mode & 0o077) {
     throw new UserError(
@@ -55,23 +64,48 @@ export function readSecretFile(file: string, where: string): Buffer {
   try {
     return readFileSync(file);
   } catch (e) {
-    throw new UserError(where, `cannot read secret file ${file} (${(e as NodeJS.ErrnoException).code})`, 'make it readable by the user the agent runs as');
+    throw new UserError(
+      where,
+      `cannot read secret file ${file} (${(e as NodeJS.ErrnoException).code})`,
+      'make it readable by the user the agent runs as',
+    );
   }
 }
 
 /** Resolves a `{file}` or `{env}` reference to a one-line secret (trailing newline removed). */
-export function resolveSecret(ref: SecretRef, where: string, env: NodeJS.ProcessEnv = process.env): Secret {
+export function resolveSecret(
+  ref: SecretRef,
+  where: string,
+  env: NodeJS.ProcessEnv = process.env,
+): Secret {
   let text: string;
   if (ref.file) {
-    text = readSecretFile(ref.file, `${where}.file`).toString('utf8').replace(/\r?\n$/, '');
+    text = readSecretFile(ref.file, `${where}.file`)
+      .toString('utf8')
+      .replace(/\r?\n$/, '');
   } else if (ref.env) {
     const v = env[ref.env];
-    if (v === undefined || v === '') throw new UserError(`${where}.env`, `environment variable ${ref.env} is not set or empty`, `set ${ref.env} in the service environment (e.g. an EnvironmentFile= readable by root only)`);
+    if (v === undefined || v === '')
+      throw new UserError(
+        `${where}.env`,
+        `environment variable ${ref.env} is not set or empty`,
+        `set ${ref.env} in the service environment (e.g. an EnvironmentFile= readable by root only)`,
+      );
     text = v;
   } else {
-    throw new UserError(where, 'names neither a file nor an environment variable', 'give file: PATH or env: NAME');
+    throw new UserError(
+      where,
+      'names neither a file nor an environment variable',
+      'give file: PATH or env: NAME',
+    );
   }
-  if (text.length === 0) throw new UserError(where, 'the secret is empty', 'put the secret on the first line of the file');
-  if (text.includes('\n')) throw new UserError(where, 'the secret spans several lines', 'put the secret on a single line');
+  if (text.length === 0)
+    throw new UserError(
+      where,
+      'the secret is empty',
+      'put the secret on the first line of the file',
+    );
+  if (text.includes('\n'))
+    throw new UserError(where, 'the secret spans several lines', 'put the secret on a single line');
   return new Secret(text);
 }

@@ -41,7 +41,11 @@ function readPublicFile(file: string, where: string): Buffer {
   try {
     return readFileSync(file);
   } catch (e) {
-    throw new UserError(where, `cannot read ${file} (${(e as NodeJS.ErrnoException).code})`, 'check the path; relative paths are taken from the directory the agent starts in');
+    throw new UserError(
+      where,
+      `cannot read ${file} (${(e as NodeJS.ErrnoException).code})`,
+      'check the path; relative paths are taken from the directory the agent starts in',
+    );
   }
 }
 
@@ -50,12 +54,20 @@ function readPublicFile(file: string, where: string): Buffer {
  * reads secrets from their file (refusing one open to group/others) or environment variable.
  * Throws UserError naming the key and the file.
  */
-export function resolveMqttSettings(cfg: MqttConfig, asset: string, env: NodeJS.ProcessEnv = process.env): MqttSettings {
+export function resolveMqttSettings(
+  cfg: MqttConfig,
+  asset: string,
+  env: NodeJS.ProcessEnv = process.env,
+): MqttSettings {
   const tls = cfg.tls
     ? {
         ca: cfg.tls.ca_file ? readPublicFile(cfg.tls.ca_file, 'mqtt.tls.ca_file') : undefined,
-        cert: cfg.tls.cert_file ? readPublicFile(cfg.tls.cert_file, 'mqtt.tls.cert_file') : undefined,
-        key: cfg.tls.key_file ? new Secret(readSecretFile(cfg.tls.key_file, 'mqtt.tls.key_file')) : undefined,
+        cert: cfg.tls.cert_file
+          ? readPublicFile(cfg.tls.cert_file, 'mqtt.tls.cert_file')
+          : undefined,
+        key: cfg.tls.key_file
+          ? new Secret(readSecretFile(cfg.tls.key_file, 'mqtt.tls.key_file'))
+          : undefined,
         servername: cfg.tls.servername,
       }
     : undefined;
@@ -74,10 +86,16 @@ export function resolveMqttSettings(cfg: MqttConfig, asset: string, env: NodeJS.
     reconnectMaxMs: cfg.reconnect_max_s * 1000,
     heartbeatMs: cfg.heartbeat_s * 1000,
     liveIntervalMs: cfg.live_interval_s * 1000,
-    commandToken: cfg.commands ? resolveSecret(cfg.commands.token, 'mqtt.commands.token', env) : undefined,
+    commandToken: cfg.commands
+      ? resolveSecret(cfg.commands.token, 'mqtt.commands.token', env)
+      : undefined,
   };
 }
 
 export function outboxSettings(cfg: MqttConfig, stateDir: string): OutboxSettings {
-  return { dir: join(stateDir, 'outbox'), maxEvents: cfg.outbox_max_events, maxBytes: Math.round(cfg.outbox_max_mb * 1024 * 1024) };
+  return {
+    dir: join(stateDir, 'outbox'),
+    maxEvents: cfg.outbox_max_events,
+    maxBytes: Math.round(cfg.outbox_max_mb * 1024 * 1024),
+  };
 }

@@ -2,7 +2,12 @@ import type { AgentEvent } from '../events.js';
 import type { OutboxNotice } from './outbox.js';
 
 /** Turns an outbox notice into an event for the plant (and the log line that goes with it). */
-export function eventFromNotice(n: OutboxNotice, asset: string, ts: string, id: string): AgentEvent {
+export function eventFromNotice(
+  n: OutboxNotice,
+  asset: string,
+  ts: string,
+  id: string,
+): AgentEvent {
   const base = { id, ts, asset };
   switch (n.kind) {
     case 'quarantined':

@@ -40,11 +40,31 @@ export interface OutboxOptions {
 }
 
 export type OutboxNotice =
-  | { readonly kind: 'quarantined'; readonly file: string; readonly moved_to: string | null; readonly problem: string }
+  | {
+      readonly kind: 'quarantined';
+      readonly file: string;
+      readonly moved_to: string | null;
+      readonly problem: string;
+    }
   | { readonly kind: 'store_failed'; readonly code: string; readonly message: string }
-  | { readonly kind: 'store_recovered'; readonly failed_for_ms: number; readonly saved_late: number }
-  | { readonly kind: 'overflow_started'; readonly max_events: number; readonly max_bytes: number; readonly first_dropped_type: string; readonly first_dropped_severity: Severity }
-  | { readonly kind: 'overflow_ended'; readonly dropped_info: number; readonly dropped_warning: number; readonly lasted_ms: number };
+  | {
+      readonly kind: 'store_recovered';
+      readonly failed_for_ms: number;
+      readonly saved_late: number;
+    }
+  | {
+      readonly kind: 'overflow_started';
+      readonly max_events: number;
+      readonly max_bytes: number;
+      readonly first_dropped_type: string;
+      readonly first_dropped_severity: Severity;
+    }
+  | {
+      readonly kind: 'overflow_ended';
+      readonly dropped_info: number;
+      readonly dropped_warning: number;
+      readonly lasted_ms: number;
+    };
 
 /** What the publisher sees of one stored event. */
 export interface PendingEvent {
@@ -152,7 +172,11 @@ export class Outbox {
     } catch (e) {
       const code = errCode(e);
       if (code === 'EACCES' || code === 'EPERM' || code === 'ENOTDIR' || code === 'EEXIST') {
-        throw new UserError(this.dir, `cannot use the outbox directory (${code})`, 'make state_dir a directory the agent user can write (e.g. chown it to the service user)');
+        throw new UserError(
+          this.dir,
+          `cannot use the outbox directory (${code})`,
+          'make state_dir a directory the agent user can write (e.g. chown it to the service user)',
+        );
       }
       this.enterFailing(e);
       return;
@@ -216,7 +240,15 @@ export class Outbox {
       await this.quarantine(name, problemPrefix + rec.problem);
       return false;
     }
-    this.entries.set(seq, { seq, id: rec.id, type: rec.type, severity: rec.severity, json: rec.json, state: 'durable', gone: false });
+    this.entries.set(seq, {
+      seq,
+      id: rec.id,
+      type: rec.type,
+      severity: rec.severity,
+      json: rec.json,
+      state: 'durable',
+      gone: false,
+    });
     this.bytes += Buffer.byteLength(rec.json);
     return true;
   }
@@ -241,14 +273,32 @@ export class Outbox {
    */
   add(event: AgentEvent): Promise<AddOutcome> {
     if (this.closed) throw new Error('outbox is closed');
-    if (typeof event.id !== 'string' || !event.id || typeof event.type !== 'string' || !(event.severity in RANK)) {
-      throw new Error(`outbox.add: event needs a string id, a type and a severity (got id=${String(event.id)}, type=${String(event.type)})`);
+    if (
+      typeof event.id !== 'string' ||
+      !event.id ||
+      typeof event.type !== 'string' ||
+      !(event.severity in RANK)
+    ) {
+      throw new Error(
+        `outbox.add: event needs a string id, a type and a severity (got id=${String(event.id)}, type=${String(event.type)})`,
+      );
     }
     const json = JSON.stringify(event);
     const size = Buffer.byteLength(json);
-    if (size > MAX_EVENT_BYTES) throw new Error(`outbox.add: event ${event.type} is ${size} bytes, more than ${MAX_EVENT_BYTES}`);
+    if (size > MAX_EVENT_BYTES)
+      throw new Error(
+        `outbox.add: event ${event.type} is ${size} bytes, more than ${MAX_EVENT_BYTES}`,
+      );
     const seq = this.nextSeq++;
-    const entry: Entry = { seq, id: event.id, type: event.type, severity: event.severity, json, state: 'saving', gone: false };
+    const entry: Entry = {
+      seq,
+      id: event.id,
+      type: event.type,
+      severity: event.severity,
+      json,
+      state: 'saving',
+      gone: false,
+    };
     this.entries.set(seq, entry);
     this.bytes += size;
     this.enforceLimits(entry);
@@ -296,7 +346,11 @@ export class Outbox {
     if (this.failingSince === null) {
       this.failingSince = this.now();
       this.retryMs = this.retryMinMs;
-      this.notify({ kind: 'store_failed', code: errCode(e), message: (e as Error)?.message ?? String(e) });
+      this.notify({
+        kind: 'store_failed',
+        code: errCode(e),
+        message: (e as Error)?.message ?? String(e),
+      });
     } else {
       this.retryMs = Math.min(this.retryMs * 2, this.retryMaxMs);
     }
@@ -364,7 +418,13 @@ export class Outbox {
     if (this.overflowSince === null) {
       this.overflowSince = this.now();
       this.droppedInBurst = { info: 0, warning: 0 };
-      this.notify({ kind: 'overflow_started', max_events: this.maxEvents, max_bytes: this.maxBytes, first_dropped_type: entry.type, first_dropped_severity: entry.severity });
+      this.notify({
+        kind: 'overflow_started',
+        max_events: this.maxEvents,
+        max_bytes: this.maxBytes,
+        first_dropped_type: entry.type,
+        first_dropped_severity: entry.severity,
+      });
     }
     if (entry.severity === 'info') this.droppedInBurst.info++;
     else this.droppedInBurst.warning++;
@@ -376,10 +436,19 @@ export class Outbox {
     entry.gone = true;
     this.entries.delete(entry.seq);
     this.bytes -= Buffer.byteLength(entry.json);
-    if (this.overflowSince !== null && this.entries.size <= this.maxEvents * 0.9 && this.bytes <= this.maxBytes * 0.9) {
+    if (
+      this.overflowSince !== null &&
+      this.entries.size <= this.maxEvents * 0.9 &&
+      this.bytes <= this.maxBytes * 0.9
+    ) {
       const lasted = this.now() - this.overflowSince;
       this.overflowSince = null;
-      this.notify({ kind: 'overflow_ended', dropped_info: this.droppedInBurst.info, dropped_warning: this.droppedInBurst.warning, lasted_ms: lasted });
+      this.notify({
+        kind: 'overflow_ended',
+        dropped_info: this.droppedInBurst.info,
+        dropped_warning: this.droppedInBurst.warning,
+        lasted_ms: lasted,
+      });
     }
   }
 

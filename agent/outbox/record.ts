@@ -31,18 +31,31 @@ export function encodeRecord(json: string): Buffer {
 
 /** Returns the record, or a sentence saying what is wrong with it. Never throws. */
 export function decodeRecord(buf: Buffer): DecodedRecord | { readonly problem: string } {
-  if (buf.length === 0) return { problem: 'empty file (a save was interrupted before any byte was written)' };
+  if (buf.length === 0)
+    return { problem: 'empty file (a save was interrupted before any byte was written)' };
   const nl = buf.indexOf(0x0a);
-  if (nl < 0 || nl > 64) return { problem: 'no record header (not an outbox record, or the start of the file is damaged)' };
+  if (nl < 0 || nl > 64)
+    return {
+      problem: 'no record header (not an outbox record, or the start of the file is damaged)',
+    };
   const parts = buf.subarray(0, nl).toString('ascii').split(' ');
-  if (parts.length !== 3 || parts[0] !== MAGIC) return { problem: `unknown record header "${buf.subarray(0, nl).toString('ascii').slice(0, 40)}"` };
+  if (parts.length !== 3 || parts[0] !== MAGIC)
+    return {
+      problem: `unknown record header "${buf.subarray(0, nl).toString('ascii').slice(0, 40)}"`,
+    };
   const crc = Number.parseInt(parts[1]!, 16);
   const len = Number(parts[2]);
-  if (!/^[0-9a-f]{8}$/.test(parts[1]!) || !Number.isSafeInteger(len) || len < 0) return { problem: 'record header is damaged' };
+  if (!/^[0-9a-f]{8}$/.test(parts[1]!) || !Number.isSafeInteger(len) || len < 0)
+    return { problem: 'record header is damaged' };
   const body = buf.subarray(nl + 1, nl + 1 + len);
-  if (body.length < len) return { problem: `record is cut short: ${body.length} of ${len} bytes (a save was interrupted)` };
-  if (buf.length !== nl + 1 + len + 1 || buf[nl + 1 + len] !== 0x0a) return { problem: `record has ${buf.length - (nl + 2 + len)} unexpected trailing byte(s)` };
-  if (crc32(body) !== crc) return { problem: 'checksum mismatch (the event bytes were damaged on disk)' };
+  if (body.length < len)
+    return {
+      problem: `record is cut short: ${body.length} of ${len} bytes (a save was interrupted)`,
+    };
+  if (buf.length !== nl + 1 + len + 1 || buf[nl + 1 + len] !== 0x0a)
+    return { problem: `record has ${buf.length - (nl + 2 + len)} unexpected trailing byte(s)` };
+  if (crc32(body) !== crc)
+    return { problem: 'checksum mismatch (the event bytes were damaged on disk)' };
   const json = body.toString('utf8');
   let ev: unknown;
   try {
@@ -51,7 +64,14 @@ export function decodeRecord(buf: Buffer): DecodedRecord | { readonly problem: s
     return { problem: 'checksum matches but the event is not valid JSON' };
   }
   const e = ev as Partial<Record<'id' | 'type' | 'severity', unknown>> | null;
-  if (!e || typeof e !== 'object' || typeof e.id !== 'string' || typeof e.type !== 'string' || typeof e.severity !== 'string' || !SEVERITIES.has(e.severity)) {
+  if (
+    !e ||
+    typeof e !== 'object' ||
+    typeof e.id !== 'string' ||
+    typeof e.type !== 'string' ||
+    typeof e.severity !== 'string' ||
+    !SEVERITIES.has(e.severity)
+  ) {
     return { problem: 'event lacks a string id, type or a known severity' };
   }
   return { id: e.id, type: e.type, severity: e.severity as Severity, json };

@@ -23,6 +23,10 @@ export function round(x: number | null | undefined, decimals: number): number | 
 /** Renders rows as a left-aligned text table with a header rule. */
 export function table(header: readonly string[], rows: readonly (readonly string[])[]): string {
   const w = header.map((h, i) => Math.max(h.length, ...rows.map((r) => (r[i] ?? '').length)));
-  const line = (r: readonly string[]) => r.map((c, i) => (i === 0 ? c.padEnd(w[i]!) : c.padStart(w[i]!))).join('  ').trimEnd();
+  const line = (r: readonly string[]) =>
+    r
+      .map((c, i) => (i === 0 ? c.padEnd(w[i]!) : c.padStart(w[i]!)))
+      .join('  ')
+      .trimEnd();
   return [line(header), w.map((n) => '-'.repeat(n)).join('  '), ...rows.map(line)].join('\n');
 }

@@ -20,7 +20,12 @@ import { EventCapturer } from '../capture/event-capture.js';
 import { SweepRecorder } from '../sweep/recorder.js';
 import type { StoredSweep } from '../sweep/store.js';
 import { GpioSpeedCheck } from './gpio-speed-check.js';
-import { AgentRuntime, type LiveConsumer, type RunSummary, type WindowConsumer } from './runtime.js';
+import {
+  AgentRuntime,
+  type LiveConsumer,
+  type RunSummary,
+  type WindowConsumer,
+} from './runtime.js';
 
 /**
  * `turnwise run` wired: source -> DSP -> watcher -> outputs (durable outbox and MQTT, local
@@ -83,7 +88,13 @@ export class Agent {
     // logs such trouble itself (once per burst) and lists it in status.warnings.
     this.watcher = openWatcher(o.config, this.dataClock, o.logger);
     const el = o.config.event_log;
-    this.eventLog = el.enabled ? new EventLog({ stateDir: o.config.state_dir, maxBytes: Math.round(el.max_mb * 1024 * 1024), log: o.logger }) : null;
+    this.eventLog = el.enabled
+      ? new EventLog({
+          stateDir: o.config.state_dir,
+          maxBytes: Math.round(el.max_mb * 1024 * 1024),
+          log: o.logger,
+        })
+      : null;
   }
 
   get status(): WatchStatus | null {
@@ -102,7 +113,8 @@ export class Agent {
 
   private emit(event: AgentEvent): void {
     // Every alarm keeps the raw signal around it; the event names the capture.
-    const captureId = event.severity === 'alarm' ? (this.capturer?.trigger(event.type, event.id) ?? null) : null;
+    const captureId =
+      event.severity === 'alarm' ? (this.capturer?.trigger(event.type, event.id) ?? null) : null;
     const e: AgentEvent = captureId ? { ...event, capture_id: captureId } : event;
     this.events++;
     this.eventLog?.append(e);
@@ -115,7 +127,10 @@ export class Agent {
     const latest = this.lastStatus?.latest;
     if (!latest) return undefined;
     const z = latest.zone.inhibited ? null : (latest.zone.channels[id]?.zone ?? null);
-    return { zone: z === 'A' || z === 'B' || z === 'C' || z === 'D' ? z : null, ok: latest.sensors.find((s) => s.id === id)?.ok ?? null };
+    return {
+      zone: z === 'A' || z === 'B' || z === 'C' || z === 'D' ? z : null,
+      ok: latest.sensors.find((s) => s.id === id)?.ok ?? null,
+    };
   };
 
   private onWindow(w: WindowResult, atMs: number): void {
@@ -141,14 +156,31 @@ export class Agent {
     }
     if (this.link?.sparkplug) {
       const a = this.advisory?.health();
-      const adv = a ? { state: typeof a.advisory_state === 'string' ? a.advisory_state : null, energised: typeof a.advisory_outputs_energised === 'boolean' ? a.advisory_outputs_energised : null } : null;
+      const adv = a
+        ? {
+            state: typeof a.advisory_state === 'string' ? a.advisory_state : null,
+            energised:
+              typeof a.advisory_outputs_energised === 'boolean'
+                ? a.advisory_outputs_energised
+                : null,
+          }
+        : null;
       this.link.updateSparkplug(metricValues(cfg.sensors, w, status, adv));
     }
   }
 
   private onLive(f: LiveFrame, atMs: number): void {
     const cfg = this.o.config;
-    this.link?.publishLive(() => livePayloadFromFrame(f, cfg.sensors, this.lastWindow, cfg.machine.id, new Date(atMs).toISOString(), this.verdict));
+    this.link?.publishLive(() =>
+      livePayloadFromFrame(
+        f,
+        cfg.sensors,
+        this.lastWindow,
+        cfg.machine.id,
+        new Date(atMs).toISOString(),
+        this.verdict,
+      ),
+    );
   }
 
   /**
@@ -171,8 +203,20 @@ export class Agent {
       ...(this.runtime?.timeHealth() ?? {}),
       ...(this.gpioSpeed?.health() ?? {}),
       ...(this.advisory?.health() ?? {}),
-      ...(this.sweeps ? { sweeps_recorded: this.sweeps.recorded, sweeps_failed: this.sweeps.failed, sweeps_removed: this.sweeps.removed } : {}),
-      ...(this.capturer ? { captures_written: this.capturer.written, captures_failed: this.capturer.failed, captures_removed: this.capturer.removed } : {}),
+      ...(this.sweeps
+        ? {
+            sweeps_recorded: this.sweeps.recorded,
+            sweeps_failed: this.sweeps.failed,
+            sweeps_removed: this.sweeps.removed,
+          }
+        : {}),
+      ...(this.capturer
+        ? {
+            captures_written: this.capturer.written,
+            captures_failed: this.capturer.failed,
+            captures_removed: this.capturer.removed,
+          }
+        : {}),
       ...(this.eventLog?.health() ?? {}),
       ...this.linkHealth(),
     };
@@ -182,7 +226,11 @@ export class Agent {
   private linkHealth(): Record<string, number | boolean | null> {
     if (!this.link) return {};
     const i = this.link.publisher.linkInfo();
-    const out: Record<string, number | boolean | null> = { mqtt_protocol_version: i.protocol_version, mqtt_refused_too_large_total: i.refused_too_large_total, mqtt_stuck_replaced_total: i.stuck_replaced_total };
+    const out: Record<string, number | boolean | null> = {
+      mqtt_protocol_version: i.protocol_version,
+      mqtt_refused_too_large_total: i.refused_too_large_total,
+      mqtt_stuck_replaced_total: i.stuck_replaced_total,
+    };
     const sp = this.link.sparkplug?.health();
     if (sp) {
       Object.assign(out, {
@@ -214,7 +262,16 @@ export class Agent {
     h.takeSnapshot = () => ({ window: this.lastWindow, status: this.lastStatus });
     h.takeCapture = () => {
       const id = this.capturer?.trigger('command') ?? null;
-      if (!id) throw new UserError('capture.take', cfg.capture.enabled ? 'sampling has not started yet' : 'captures are off (capture.enabled: false)', cfg.capture.enabled ? 'send it again in a few seconds' : 'set capture.enabled: true in the config');
+      if (!id)
+        throw new UserError(
+          'capture.take',
+          cfg.capture.enabled
+            ? 'sampling has not started yet'
+            : 'captures are off (capture.enabled: false)',
+          cfg.capture.enabled
+            ? 'send it again in a few seconds'
+            : 'set capture.enabled: true in the config',
+        );
       return { capture_id: id, ready_after_s: cfg.capture.post_s };
     };
     if (cfg.mqtt) {
@@ -235,9 +292,16 @@ export class Agent {
     try {
       // Opened before the advisory energises its outputs, so a refused input line leaves them untouched.
       if (cfg.gpio?.tach_speed) {
-        if (!this.o.gpio) throw new Error('gpio.tach_speed configured but no GPIO lines were given');
+        if (!this.o.gpio)
+          throw new Error('gpio.tach_speed configured but no GPIO lines were given');
         // Speed cross-check only: GPIO edges are timed by the wall clock, far too coarsely for phase.
-        this.gpioSpeed = await GpioSpeedCheck.open({ config: cfg.gpio.tach_speed, tach: cfg.tach, gpio: this.o.gpio, log, nowMs: () => this.o.clock.now() });
+        this.gpioSpeed = await GpioSpeedCheck.open({
+          config: cfg.gpio.tach_speed,
+          tach: cfg.tach,
+          gpio: this.o.gpio,
+          log,
+          nowMs: () => this.o.clock.now(),
+        });
       }
       if (cfg.advisory) {
         if (!this.o.gpio) throw new Error('advisory configured but no GPIO lines were given');
@@ -266,17 +330,36 @@ export class Agent {
         liveSeconds: 0.5,
         boardTimesTach: this.o.boardTimesTach,
         rawTap: (info, timeOf, maxBlock) => {
-          this.capturer = new EventCapturer({ config: cfg, sampleRate: info.sampleRate, channelCount: info.channelCount, maxBlock, log, timeOf, nowMs: () => this.o.clock.now() });
+          this.capturer = new EventCapturer({
+            config: cfg,
+            sampleRate: info.sampleRate,
+            channelCount: info.channelCount,
+            maxBlock,
+            log,
+            timeOf,
+            nowMs: () => this.o.clock.now(),
+          });
           return this.capturer;
         },
         revolutionTap: (info, timeOf) => {
-          this.sweeps = new SweepRecorder({ config: cfg, sampleRate: info.sampleRate, log, timeOf, nowMs: () => this.o.clock.now(), emit: (e) => this.emit(e), onStored: this.o.onSweep });
+          this.sweeps = new SweepRecorder({
+            config: cfg,
+            sampleRate: info.sampleRate,
+            log,
+            timeOf,
+            nowMs: () => this.o.clock.now(),
+            emit: (e) => this.emit(e),
+            onStored: this.o.onSweep,
+          });
           this.watcher.setSweepEvidence(this.sweeps.evidence());
           return this.sweeps.points;
         },
         startMs: this.o.startMs,
         timeScale: this.o.timeScale,
-        windowConsumers: [{ onWindow: (win, at) => this.onWindow(win, at) }, ...(this.o.windowConsumers ?? [])],
+        windowConsumers: [
+          { onWindow: (win, at) => this.onWindow(win, at) },
+          ...(this.o.windowConsumers ?? []),
+        ],
         liveConsumers: [{ onLive: (f, at) => this.onLive(f, at) }, ...(this.o.liveConsumers ?? [])],
       });
       this.o.onStarted?.();
@@ -298,7 +381,11 @@ export class Agent {
     let lost = 0;
     if (this.link) {
       drained = await this.link.drain(drainMs);
-      if (!drained) log.warn({ pending: this.link.outbox.size }, 'events not yet delivered stay on disk and go out at the next start');
+      if (!drained)
+        log.warn(
+          { pending: this.link.outbox.size },
+          'events not yet delivered stay on disk and go out at the next start',
+        );
       lost = await this.link.close();
     }
     return { ...summary, events: this.events, drained, lostInMemory: lost };

@@ -49,7 +49,11 @@ export function loadGuardedConfig(file: string, lastGood: string): GuardedConfig
  * The last-good copy to run on after `file` failed with `error`, or null when there is none, it
  * does not load, or it is the same text as `file` (falling back would fail the same way).
  */
-export function fallbackConfig(file: string, lastGood: string, error: UserError): GuardedConfig | null {
+export function fallbackConfig(
+  file: string,
+  lastGood: string,
+  error: UserError,
+): GuardedConfig | null {
   let text: string;
   try {
     text = readFileSync(lastGood, 'utf8');

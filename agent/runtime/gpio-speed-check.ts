@@ -36,7 +36,11 @@ const f1 = (x: number) => x.toFixed(1);
  * `tolerancePct` outside the range of revolution speeds in the window (min to max), so a fan
  * changing speed within the window does not count as a disagreement.
  */
-export function judgeGpioSpeed(w: Pick<WindowResult, 'speed_rpm' | 'speed_min_rpm' | 'speed_max_rpm'>, gpioRpm: number | null, tolerancePct: number): SpeedVerdict {
+export function judgeGpioSpeed(
+  w: Pick<WindowResult, 'speed_rpm' | 'speed_min_rpm' | 'speed_max_rpm'>,
+  gpioRpm: number | null,
+  tolerancePct: number,
+): SpeedVerdict {
   const tach = w.speed_rpm;
   if (tach === null && gpioRpm === null) return { state: 'stopped', detail: null };
   if (tach === null) {
@@ -55,7 +59,10 @@ export function judgeGpioSpeed(w: Pick<WindowResult, 'speed_rpm' | 'speed_min_rp
   const hi = (w.speed_max_rpm ?? tach) * (1 + tolerancePct / 100);
   if (gpioRpm >= lo && gpioRpm <= hi) return { state: 'agree', detail: null };
   const pct = ((gpioRpm - tach) / tach) * 100;
-  const range = w.speed_min_rpm !== null && w.speed_max_rpm !== null ? ` (${f1(w.speed_min_rpm)} to ${f1(w.speed_max_rpm)} r/min in the window)` : '';
+  const range =
+    w.speed_min_rpm !== null && w.speed_max_rpm !== null
+      ? ` (${f1(w.speed_min_rpm)} to ${f1(w.speed_max_rpm)} r/min in the window)`
+      : '';
   return {
     state: 'mismatch',
     detail:
@@ -92,8 +99,16 @@ export class GpioSpeedCheck {
   /** Opens the input line through GpioLines and starts timing its rising edges. */
   static async open(o: GpioSpeedCheckOptions): Promise<GpioSpeedCheck> {
     const c = o.config;
-    const speed = new PulseSpeed({ pulsesPerRev: c.pulses_per_rev, minRpm: c.min_rpm ?? o.tach.min_rpm, maxRpm: c.max_rpm ?? o.tach.max_rpm, averageRevs: c.average_revs });
-    const line = await o.gpio.input('gpio tach', c.line, { activeLow: c.active_low, edge: 'rising' });
+    const speed = new PulseSpeed({
+      pulsesPerRev: c.pulses_per_rev,
+      minRpm: c.min_rpm ?? o.tach.min_rpm,
+      maxRpm: c.max_rpm ?? o.tach.max_rpm,
+      averageRevs: c.average_revs,
+    });
+    const line = await o.gpio.input('gpio tach', c.line, {
+      activeLow: c.active_low,
+      edge: 'rising',
+    });
     return new GpioSpeedCheck(new GpioTachSpeed(line, speed), o);
   }
 
@@ -107,12 +122,20 @@ export class GpioSpeedCheck {
     const gpioRpm = this.rpm();
     const v = judgeGpioSpeed(w, gpioRpm, this.o.config.tolerance_pct);
     this.state = v.state;
-    const fields = { gpio_speed_rpm: gpioRpm === null ? null : r1(gpioRpm), tach_speed_rpm: w.speed_rpm === null ? null : r1(w.speed_rpm), window_end: w.end_index };
+    const fields = {
+      gpio_speed_rpm: gpioRpm === null ? null : r1(gpioRpm),
+      tach_speed_rpm: w.speed_rpm === null ? null : r1(w.speed_rpm),
+      window_end: w.end_index,
+    };
     if (v.detail) {
       this.disagreements++;
       this.burst.report(PROBLEM, v.detail, fields, v.state);
     } else {
-      this.burst.resolved(PROBLEM, `GPIO tach input and tach channel agree again (${v.state})`, fields);
+      this.burst.resolved(
+        PROBLEM,
+        `GPIO tach input and tach channel agree again (${v.state})`,
+        fields,
+      );
     }
     this.burst.flush();
     return v;

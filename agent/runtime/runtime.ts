@@ -51,7 +51,11 @@ export interface RuntimeOptions {
   /** True when blocks carry board-timed tach edges. */
   readonly boardTimesTach?: boolean;
   /** Built once the source is open (it needs the sample rate and channel count). */
-  readonly rawTap?: (info: SourceInfo, timeOf: (index: number) => number, maxBlock: number) => RawTap;
+  readonly rawTap?: (
+    info: SourceInfo,
+    timeOf: (index: number) => number,
+    maxBlock: number,
+  ) => RawTap;
   /** Built once the source is open: sees every trusted revolution (the sweep recorder's speed points). */
   readonly revolutionTap?: (info: SourceInfo, timeOf: (index: number) => number) => RevolutionTap;
   /** A live block later or earlier than its stamped time by more than this is a wall-clock step, ms. */
@@ -100,8 +104,13 @@ export class AgentRuntime {
     const timeline = new SampleTimeline({
       sampleRate: fs,
       timeScale: this.opts.timeScale,
-      stepToleranceMs: this.opts.clockStepToleranceMs ?? (config.acquisition?.driver === 'serial' ? config.acquisition.clock_step_tolerance_ms : undefined),
-      onStep: (kind, detail, stepMs) => stepLog.report(kind, `${info.description}: ${detail}`, { step_ms: Math.round(stepMs) }),
+      stepToleranceMs:
+        this.opts.clockStepToleranceMs ??
+        (config.acquisition?.driver === 'serial'
+          ? config.acquisition.clock_step_tolerance_ms
+          : undefined),
+      onStep: (kind, detail, stepMs) =>
+        stepLog.report(kind, `${info.description}: ${detail}`, { step_ms: Math.round(stepMs) }),
     });
     this.timeline = timeline;
     const timeOf = (index: number) => timeline.timeOf(index);
@@ -116,7 +125,10 @@ export class AgentRuntime {
       revolutionTap: this.opts.revolutionTap?.(info, timeOf),
     });
     this.analyzer = an;
-    logger.info({ source: info.description, sample_rate_hz: fs, channels: info.channelCount }, 'acquisition started');
+    logger.info(
+      { source: info.description, sample_rate_hz: fs, channels: info.channelCount },
+      'acquisition started',
+    );
     const windowSamples = Math.round(this.opts.windowSeconds * fs);
     const liveSamples = Math.max(1, Math.round(this.opts.liveSeconds * fs));
     let windowEnd = windowSamples;
@@ -150,7 +162,12 @@ export class AgentRuntime {
           }
           const from = item.startIndex + off;
           const edges = item.tachEdges?.filter((t) => t >= from && t < from + len);
-          an.push({ kind: 'samples', startIndex: from, channels: item.channels.map((c) => c.subarray(off, off + len)), ...(edges ? { tachEdges: edges } : {}) });
+          an.push({
+            kind: 'samples',
+            startIndex: from,
+            channels: item.channels.map((c) => c.subarray(off, off + len)),
+            ...(edges ? { tachEdges: edges } : {}),
+          });
         }
         this.samples += n;
         const end = item.startIndex + n;

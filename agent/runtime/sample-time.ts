@@ -118,7 +118,12 @@ export class SampleTimeline {
     if (!this.anchored || this.reanchorPending) {
       const restart = this.anchored;
       this.anchor(endIndex, arrivedMs);
-      if (restart) this.opts.onStep?.('board_restart', 'the board\'s sample clock restarted; times anchored again to the wall clock at its first frame', 0);
+      if (restart)
+        this.opts.onStep?.(
+          'board_restart',
+          "the board's sample clock restarted; times anchored again to the wall clock at its first frame",
+          0,
+        );
       this.lastLatency = 0;
       return;
     }
@@ -127,7 +132,11 @@ export class SampleTimeline {
     if (lat < -this.tolMs) {
       this.stepsBack++;
       this.anchor(endIndex, arrivedMs);
-      this.opts.onStep?.('wall_clock_back', `the wall clock is ${(-lat / 1000).toFixed(3)} s behind the board's sample clock (stepped back: NTP or a manual setting?); times anchored again, sampling goes on`, lat);
+      this.opts.onStep?.(
+        'wall_clock_back',
+        `the wall clock is ${(-lat / 1000).toFixed(3)} s behind the board's sample clock (stepped back: NTP or a manual setting?); times anchored again, sampling goes on`,
+        lat,
+      );
       this.lastLatency = 0;
       return;
     }
@@ -141,7 +150,11 @@ export class SampleTimeline {
         const at = this.anchorMs;
         const idx = this.anchorIndex;
         this.anchor(idx, at);
-        this.opts.onStep?.('wall_clock_forward', `the wall clock is ${(step / 1000).toFixed(3)} s ahead of the board's sample clock for a whole second of samples (stepped forward: NTP or a manual setting?); times anchored again, sampling goes on`, step);
+        this.opts.onStep?.(
+          'wall_clock_forward',
+          `the wall clock is ${(step / 1000).toFixed(3)} s ahead of the board's sample clock for a whole second of samples (stepped forward: NTP or a manual setting?); times anchored again, sampling goes on`,
+          step,
+        );
         this.lastLatency = lat - step;
       }
       return;

@@ -65,6 +65,7 @@ export class MemoryNotifier implements ServiceNotifier {
 export function notifyMessage(state: string | null, status?: string): string {
   const parts: string[] = [];
   if (state) parts.push(state);
-  if (status !== undefined) parts.push(`STATUS=${status.replace(/[\u0000-\u001f\u007f]+/g, ' ').slice(0, 200)}`);
+  if (status !== undefined)
+    parts.push(`STATUS=${status.replace(/[\u0000-\u001f\u007f]+/g, ' ').slice(0, 200)}`);
   return parts.join('\n');
 }

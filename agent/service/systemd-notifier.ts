@@ -108,7 +108,11 @@ export class SystemdNotifier implements ServiceNotifier {
     const env = opts.env ?? process.env;
     this.logger = opts.logger;
     this.timers = opts.timers ?? systemTimers;
-    this.problems = new BurstLog(this.logger, { nowMs: () => this.timers.now(), quietMs: 5 * 60_000, summaryEveryMs: 10 * 60_000 });
+    this.problems = new BurstLog(this.logger, {
+      nowMs: () => this.timers.now(),
+      quietMs: 5 * 60_000,
+      summaryEveryMs: 10 * 60_000,
+    });
     this.python = opts.python ?? 'python3';
     this.path = env.PATH ?? '/usr/local/bin:/usr/bin:/bin';
     this.watchdogPingMs = watchdogPingMsFromEnv(env, opts.pid ?? process.pid);
@@ -167,10 +171,25 @@ export class SystemdNotifier implements ServiceNotifier {
   private startRelay(): void {
     this.cancelRestart = null;
     this.startedAt = this.timers.now();
-    const child = spawn(this.python, ['-I', '-S', '-c', 'import os; exec(os.environ["TURNWISE_RELAY_PY"])', 'turnwise-sd-notify-relay'], {
-      stdio: ['pipe', 'ignore', 'pipe'],
-      env: { NOTIFY_SOCKET: this.socketName, TURNWISE_RELAY_PY: RELAY_PY, PATH: this.path, LC_ALL: 'C.UTF-8' },
-    });
+    const child = spawn(
+      this.python,
+      [
+        '-I',
+        '-S',
+        '-c',
+        'import os; exec(os.environ["TURNWISE_RELAY_PY"])',
+        'turnwise-sd-notify-relay',
+      ],
+      {
+        stdio: ['pipe', 'ignore', 'pipe'],
+        env: {
+          NOTIFY_SOCKET: this.socketName,
+          TURNWISE_RELAY_PY: RELAY_PY,
+          PATH: this.path,
+          LC_ALL: 'C.UTF-8',
+        },
+      },
+    );
     this.child = child;
     child.stdin!.on('error', () => {}); // EPIPE when the relay died; the 'exit' handler restarts it
     child.stderr!.setEncoding('utf8');
@@ -179,7 +198,12 @@ export class SystemdNotifier implements ServiceNotifier {
       const lines = (partial + chunk).split('\n');
       partial = lines.pop()!;
       for (const l of lines) {
-        if (l.trim()) this.problems.report('sd-notify-send', 'the sd_notify relay could not send a message to systemd', { relay_said: l.trim() });
+        if (l.trim())
+          this.problems.report(
+            'sd-notify-send',
+            'the sd_notify relay could not send a message to systemd',
+            { relay_said: l.trim() },
+          );
       }
     });
     child.on('error', (err) => {
@@ -200,7 +224,8 @@ export class SystemdNotifier implements ServiceNotifier {
     this.failures++;
     const delayMs = Math.min(60_000, 1000 * 2 ** (this.failures - 1));
     const fields = { reason: why, python: this.python, retry_in_s: delayMs / 1000 };
-    const msg = 'the sd_notify relay stopped: systemd hears nothing from the agent until it is back, and restarts the service when its watchdog runs out. Check that python3 is installed (deploy/install.sh installs it)';
+    const msg =
+      'the sd_notify relay stopped: systemd hears nothing from the agent until it is back, and restarts the service when its watchdog runs out. Check that python3 is installed (deploy/install.sh installs it)';
     if (this.failures === 1) this.logger.error(fields, msg);
     else this.problems.report('sd-notify-relay', msg, fields);
     this.cancelRestart = this.timers.after(delayMs, () => this.startRelay());

@@ -54,13 +54,17 @@ export class WatchdogKeeper {
       reason = `health check failed: ${(e as Error)?.message ?? String(e)}`;
     }
     if (reason === null) {
-      if (this.withheld !== null) this.logger.info({ was: this.withheld }, 'agent healthy again: watchdog pings resumed');
+      if (this.withheld !== null)
+        this.logger.info({ was: this.withheld }, 'agent healthy again: watchdog pings resumed');
       this.withheld = null;
       this.notifier.watchdog();
       return;
     }
     if (this.withheld === null) {
-      this.logger.error({ reason }, `withholding the systemd watchdog ping: ${reason}. systemd restarts the service if this lasts WatchdogSec`);
+      this.logger.error(
+        { reason },
+        `withholding the systemd watchdog ping: ${reason}. systemd restarts the service if this lasts WatchdogSec`,
+      );
     }
     this.withheld = reason;
   }

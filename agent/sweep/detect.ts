@@ -36,7 +36,8 @@ export function findSweeps(rpm: ArrayLike<number>, opts: FindSweepOptions): Swee
     if (dir === 0) return;
     const s = trimStart(rpm, anchor, endIdx, opts.steadyRpm);
     const e = trimEnd(rpm, s, endIdx, opts.steadyRpm);
-    if (e > s && Math.abs(rpm[e]! - rpm[s]!) >= opts.minChangeRpm) out.push({ direction: dir > 0 ? 'up' : 'down', start: s, end: e });
+    if (e > s && Math.abs(rpm[e]! - rpm[s]!) >= opts.minChangeRpm)
+      out.push({ direction: dir > 0 ? 'up' : 'down', start: s, end: e });
   };
   for (let i = 1; i < n; i++) {
     const v = rpm[i]!;

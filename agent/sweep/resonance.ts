@@ -66,7 +66,13 @@ function median3(x: ArrayLike<number>): Float64Array {
 }
 
 /** Speed where the curve crosses `level` between points i and j (linear interpolation). */
-function cross(rpm: ArrayLike<number>, a: ArrayLike<number>, i: number, j: number, level: number): number {
+function cross(
+  rpm: ArrayLike<number>,
+  a: ArrayLike<number>,
+  i: number,
+  j: number,
+  level: number,
+): number {
   const ai = a[i]!;
   const aj = a[j]!;
   const f = aj === ai ? 0 : (level - ai) / (aj - ai);
@@ -84,7 +90,12 @@ export function requiredMarginPct(af: number, above: boolean): number {
  * Resonances of one channel. `rpm` must be sorted ascending (reverse a coast-down first); `amp` is
  * zero-to-peak velocity, `phaseDeg` the lag at each point.
  */
-export function findResonances(rpm: ArrayLike<number>, amp: ArrayLike<number>, phaseDeg: ArrayLike<number>, opts: ResonanceOptions): Resonance[] {
+export function findResonances(
+  rpm: ArrayLike<number>,
+  amp: ArrayLike<number>,
+  phaseDeg: ArrayLike<number>,
+  opts: ResonanceOptions,
+): Resonance[] {
   const n = rpm.length;
   const out: Resonance[] = [];
   if (n < 5) return out;

@@ -17,7 +17,11 @@ export interface SweepChannel {
   readonly direction: 'vertical' | 'horizontal' | 'axial';
   readonly mounting_angle_deg: number;
   /** In the order measured (descending speed for a coast-down). */
-  readonly points: readonly { readonly rpm: number; readonly amp_pk_mm_s: number; readonly phase_deg: number }[];
+  readonly points: readonly {
+    readonly rpm: number;
+    readonly amp_pk_mm_s: number;
+    readonly phase_deg: number;
+  }[];
   readonly resonances: readonly Resonance[];
 }
 
@@ -38,13 +42,22 @@ export interface Sweep {
   readonly warnings: readonly string[];
 }
 
-export function sweepsFromPoints(points: readonly SpeedPoint[], cfg: Config, sampleRate: number, firstIndex = 0): Sweep[] {
+export function sweepsFromPoints(
+  points: readonly SpeedPoint[],
+  cfg: Config,
+  sampleRate: number,
+  firstIndex = 0,
+): Sweep[] {
   const s = cfg.sweep;
   const rpm = Float64Array.from(points, (p) => p.rpm);
   let ref = cfg.machine.rated_rpm;
   if (ref === undefined) ref = rpm.reduce((m, v) => Math.max(m, v), 0);
   if (!(ref > 0)) return [];
-  const spans = findSweeps(rpm, { minChangeRpm: s.min_change_share * ref, reversalRpm: s.reversal_share * ref, steadyRpm: s.steady_share * ref });
+  const spans = findSweeps(rpm, {
+    minChangeRpm: s.min_change_share * ref,
+    reversalRpm: s.reversal_share * ref,
+    steadyRpm: s.steady_share * ref,
+  });
   return spans.map((span) => {
     const pts = points.slice(span.start, span.end + 1);
     const first = pts[0]!;
@@ -70,7 +83,8 @@ export function sweepsFromPoints(points: readonly SpeedPoint[], cfg: Config, sam
       );
     }
     const gaps = pts.slice(1).filter((p) => p.after_gap).length;
-    if (gaps > 0) warnings.push(`${gaps} gap(s) in the samples during this sweep: the curve has holes there`);
+    if (gaps > 0)
+      warnings.push(`${gaps} gap(s) in the samples during this sweep: the curve has holes there`);
     const ascending = span.direction === 'up' ? pts : [...pts].reverse();
     const channels: SweepChannel[] = cfg.sensors.map((sensor, c) => {
       const res = findResonances(
@@ -84,7 +98,11 @@ export function sweepsFromPoints(points: readonly SpeedPoint[], cfg: Config, sam
         bearing: sensor.bearing,
         direction: sensor.direction,
         mounting_angle_deg: sensor.mounting_angle_deg,
-        points: pts.map((p) => ({ rpm: p.rpm, amp_pk_mm_s: p.amp_pk_mm_s[c]!, phase_deg: p.phase_deg[c]! })),
+        points: pts.map((p) => ({
+          rpm: p.rpm,
+          amp_pk_mm_s: p.amp_pk_mm_s[c]!,
+          phase_deg: p.phase_deg[c]!,
+        })),
         resonances: res,
       };
     });
@@ -118,7 +136,11 @@ export function sweepRecordJson(s: Sweep): SweepRecordJson {
       bearing: c.bearing,
       direction: c.direction,
       mounting_angle_deg: c.mounting_angle_deg,
-      points: c.points.map((p) => ({ rpm: round(p.rpm, 1), amp_pk_mm_s: round(p.amp_pk_mm_s, 3), phase_deg: round(p.phase_deg, 1) })),
+      points: c.points.map((p) => ({
+        rpm: round(p.rpm, 1),
+        amp_pk_mm_s: round(p.amp_pk_mm_s, 3),
+        phase_deg: round(p.phase_deg, 1),
+      })),
       resonances: c.resonances.map((r) => ({
         rpm: round(r.rpm, 1),
         amp_pk_mm_s: round(r.amp_pk_mm_s, 3),
@@ -134,7 +156,6 @@ export function sweepRecordJson(s: Sweep): SweepRecordJson {
     warnings: s.warnings,
   };
 }
-
 
 export type SweepRecordJson = {
   direction: 'up' | 'down';

@@ -26,7 +26,12 @@ export interface WindowAssessment {
   readonly vector_change_limit_mm_s: number;
 }
 
-export function vectorChanges(s: WatcherSettings, window: WindowResult, health: HealthReport, baseline: Baseline | null): Record<string, ChannelVectorChange> | null {
+export function vectorChanges(
+  s: WatcherSettings,
+  window: WindowResult,
+  health: HealthReport,
+  baseline: Baseline | null,
+): Record<string, ChannelVectorChange> | null {
   if (!baseline) return null;
   const ok = new Set(health.channels.filter((c) => c.phase_ok).map((c) => c.id));
   const out: Record<string, ChannelVectorChange> = {};
@@ -41,13 +46,25 @@ export function vectorChanges(s: WatcherSettings, window: WindowResult, health: 
 }
 
 /** The same as assessWindow, with settings resolved and health known (the live watcher's path). */
-export function assessWith(s: WatcherSettings, window: WindowResult, health: HealthReport, baseline: Baseline | null, recent: readonly RecentWindow[], sweep: SweepEvidence | null = null): WindowAssessment {
+export function assessWith(
+  s: WatcherSettings,
+  window: WindowResult,
+  health: HealthReport,
+  baseline: Baseline | null,
+  recent: readonly RecentWindow[],
+  sweep: SweepEvidence | null = null,
+): WindowAssessment {
   const speed = speedReport(s, window);
   const zone = evaluateZones(s, window, health, baseline, speed);
   const vectorChange = vectorChanges(s, window, health, baseline);
   return {
     zone,
-    unbalance: diagnoseUnbalance(s, window, health, recent, RULES, { zone, vectorChange, baseline, sweep }),
+    unbalance: diagnoseUnbalance(s, window, health, recent, RULES, {
+      zone,
+      vectorChange,
+      baseline,
+      sweep,
+    }),
     sensors: health.channels,
     tach: health.tach,
     speed,
@@ -63,7 +80,11 @@ export function assessWith(s: WatcherSettings, window: WindowResult, health: Hea
  * windows of the same run, oldest first, for the 1x phase-stability rule.
  * Throws UserError when the watcher section names sensors or bearings that do not exist.
  */
-export function assessWindow(cfg: Config, window: WindowResult, opts: { baseline?: Baseline | null; recent?: readonly WindowResult[] } = {}): WindowAssessment {
+export function assessWindow(
+  cfg: Config,
+  window: WindowResult,
+  opts: { baseline?: Baseline | null; recent?: readonly WindowResult[] } = {},
+): WindowAssessment {
   const s = resolveWatcherSettings(cfg);
   const recent = (opts.recent ?? []).map((w) => ({ window: w, health: assessHealth(w, s) }));
   const baseline = opts.baseline === undefined ? baselineFromConfig(s) : opts.baseline;

@@ -1,6 +1,16 @@
 import type { WindowResult } from '../dsp/types.js';
 import { UserError } from '../errors.js';
-import { abs, add, angleDeg, circularSpread, diffDeg, fromPolar, sub, ZERO, type Complex } from './complex.js';
+import {
+  abs,
+  add,
+  angleDeg,
+  circularSpread,
+  diffDeg,
+  fromPolar,
+  sub,
+  ZERO,
+  type Complex,
+} from './complex.js';
 import type { HealthReport } from './health.js';
 import type { WatcherSettings } from './settings.js';
 
@@ -32,9 +42,21 @@ export function baselineFromConfig(s: WatcherSettings): Baseline | null {
   if (!b) return null;
   const channels: Record<string, BaselineChannel> = {};
   for (const [id, c] of Object.entries(b.channels)) {
-    channels[id] = { one_x_rms_mm_s: c.one_x_rms_mm_s, one_x_phase_deg: c.one_x_phase_deg, overall_rms_mm_s: c.overall_rms_mm_s ?? null };
+    channels[id] = {
+      one_x_rms_mm_s: c.one_x_rms_mm_s,
+      one_x_phase_deg: c.one_x_phase_deg,
+      overall_rms_mm_s: c.overall_rms_mm_s ?? null,
+    };
   }
-  return { version: 1, asset: s.asset, source: 'config', learned_at: null, windows: 0, speed_rpm: b.speed_rpm ?? null, channels };
+  return {
+    version: 1,
+    asset: s.asset,
+    source: 'config',
+    learned_at: null,
+    windows: 0,
+    speed_rpm: b.speed_rpm ?? null,
+    channels,
+  };
 }
 
 export interface VectorChange {
@@ -47,9 +69,20 @@ export interface VectorChange {
 }
 
 /** Change of a 1x vector from its baseline; catches a phase swing at constant amplitude. */
-export function vectorChange(base: BaselineChannel, ampRmsMmS: number, phaseDeg: number): VectorChange {
-  const d = sub(fromPolar(ampRmsMmS, phaseDeg), fromPolar(base.one_x_rms_mm_s, base.one_x_phase_deg));
-  return { delta_mm_s: abs(d), amp_change_mm_s: ampRmsMmS - base.one_x_rms_mm_s, phase_change_deg: diffDeg(phaseDeg, base.one_x_phase_deg) };
+export function vectorChange(
+  base: BaselineChannel,
+  ampRmsMmS: number,
+  phaseDeg: number,
+): VectorChange {
+  const d = sub(
+    fromPolar(ampRmsMmS, phaseDeg),
+    fromPolar(base.one_x_rms_mm_s, base.one_x_phase_deg),
+  );
+  return {
+    delta_mm_s: abs(d),
+    amp_change_mm_s: ampRmsMmS - base.one_x_rms_mm_s,
+    phase_change_deg: diffDeg(phaseDeg, base.one_x_phase_deg),
+  };
 }
 
 interface Acc {
@@ -101,30 +134,60 @@ export class BaselineLearner {
     const where = 'baseline learning';
     const minWindows = 3;
     if (this.windows < minWindows) {
-      throw new UserError(where, `only ${this.windows} window(s) with a healthy 1x vector were seen`, `keep the fan at steady speed and load for at least ${minWindows} windows, then stop learning`);
+      throw new UserError(
+        where,
+        `only ${this.windows} window(s) with a healthy 1x vector were seen`,
+        `keep the fan at steady speed and load for at least ${minWindows} windows, then stop learning`,
+      );
     }
     const meanSpeed = this.speeds.reduce((a, b) => a + b, 0) / Math.max(1, this.speeds.length);
-    const span = this.speeds.length ? (Math.max(...this.speeds) - Math.min(...this.speeds)) / meanSpeed : 0;
+    const span = this.speeds.length
+      ? (Math.max(...this.speeds) - Math.min(...this.speeds)) / meanSpeed
+      : 0;
     if (span > 0.05) {
-      throw new UserError(where, `speed changed ${(span * 100).toFixed(1)} % while learning`, 'learn the baseline at steady speed and load');
+      throw new UserError(
+        where,
+        `speed changed ${(span * 100).toFixed(1)} % while learning`,
+        'learn the baseline at steady speed and load',
+      );
     }
     const channels: Record<string, BaselineChannel> = {};
     const leftOut: string[] = [];
     const tol = this.s.w.unbalance.phase_stability_deg;
     for (const [id, a] of this.acc) {
       const spread = circularSpread(a.phases)!.maxDevDeg;
-      if (a.phases.length < minWindows) leftOut.push(`${id}: only ${a.phases.length} window(s) with a healthy 1x vector`);
-      else if (spread > tol) leftOut.push(`${id}: 1x phase wandered ${Math.round(spread)} deg (more than ${tol}) while learning`);
+      if (a.phases.length < minWindows)
+        leftOut.push(`${id}: only ${a.phases.length} window(s) with a healthy 1x vector`);
+      else if (spread > tol)
+        leftOut.push(
+          `${id}: 1x phase wandered ${Math.round(spread)} deg (more than ${tol}) while learning`,
+        );
       else {
         const mean = { re: a.sum.re / a.phases.length, im: a.sum.im / a.phases.length };
-        channels[id] = { one_x_rms_mm_s: abs(mean), one_x_phase_deg: angleDeg(mean), overall_rms_mm_s: a.overallN ? a.overallSum / a.overallN : null };
+        channels[id] = {
+          one_x_rms_mm_s: abs(mean),
+          one_x_phase_deg: angleDeg(mean),
+          overall_rms_mm_s: a.overallN ? a.overallSum / a.overallN : null,
+        };
       }
     }
     if (Object.keys(channels).length === 0) {
-      throw new UserError(where, `no sensor gave a steady 1x vector (${leftOut.join('; ')})`, 'check the sensors and the tach, then learn again at steady speed and load');
+      throw new UserError(
+        where,
+        `no sensor gave a steady 1x vector (${leftOut.join('; ')})`,
+        'check the sensors and the tach, then learn again at steady speed and load',
+      );
     }
     return {
-      baseline: { version: 1, asset: this.s.asset, source: 'learned', learned_at: learnedAtIso, windows: this.windows, speed_rpm: this.speeds.length ? meanSpeed : null, channels },
+      baseline: {
+        version: 1,
+        asset: this.s.asset,
+        source: 'learned',
+        learned_at: learnedAtIso,
+        windows: this.windows,
+        speed_rpm: this.speeds.length ? meanSpeed : null,
+        channels,
+      },
       left_out: leftOut,
     };
   }

@@ -5,7 +5,18 @@
  */
 import { argDeg, deltaDeg, wrapDeg } from '../balance/complex.js';
 
-export { abs, add, conj, div, fromPolar, mul, scale, sub, ZERO, type Complex } from '../balance/complex.js';
+export {
+  abs,
+  add,
+  conj,
+  div,
+  fromPolar,
+  mul,
+  scale,
+  sub,
+  ZERO,
+  type Complex,
+} from '../balance/complex.js';
 
 const RAD = Math.PI / 180;
 
@@ -27,7 +38,9 @@ export function sepDeg(a: number, b: number): number {
  * Circular mean of angles (degrees) and the largest separation of any angle from it.
  * Returns null for an empty list.
  */
-export function circularSpread(anglesDeg: readonly number[]): { meanDeg: number; maxDevDeg: number } | null {
+export function circularSpread(
+  anglesDeg: readonly number[],
+): { meanDeg: number; maxDevDeg: number } | null {
   if (anglesDeg.length === 0) return null;
   let re = 0;
   let im = 0;

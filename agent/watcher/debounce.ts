@@ -37,7 +37,11 @@ export class OnDelay<T> {
       this.pending = seen;
       this.pendingSinceS = startS;
     }
-    if (endS - this.pendingSinceS < (typeof this.delayS === 'function' ? this.delayS(seen) : this.delayS)) return null;
+    if (
+      endS - this.pendingSinceS <
+      (typeof this.delayS === 'function' ? this.delayS(seen) : this.delayS)
+    )
+      return null;
     const from = this.confirmed;
     this.confirmed = seen;
     this.pending = undefined;

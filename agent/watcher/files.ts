@@ -1,4 +1,15 @@
-import { closeSync, fstatSync, fsyncSync, ftruncateSync, mkdirSync, openSync, readFileSync, renameSync, rmSync, writeSync } from 'node:fs';
+import {
+  closeSync,
+  fstatSync,
+  fsyncSync,
+  ftruncateSync,
+  mkdirSync,
+  openSync,
+  readFileSync,
+  renameSync,
+  rmSync,
+  writeSync,
+} from 'node:fs';
 import { dirname } from 'node:path';
 import { UserError } from '../errors.js';
 import { quarantinePath } from '../quarantine.js';
@@ -101,8 +112,17 @@ export function readTextOrNull(file: string): string | null {
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
     if (code === 'ENOENT') return null;
-    if (code === 'EACCES' || code === 'EPERM') throw new UserError(file, `cannot read (${code})`, 'check the permissions of the state directory (state_dir)');
-    throw new DamagedFileError(file, `cannot be read (${code ?? String(e)})`, 'restore the file from a backup or delete it (its contents will be lost)');
+    if (code === 'EACCES' || code === 'EPERM')
+      throw new UserError(
+        file,
+        `cannot read (${code})`,
+        'check the permissions of the state directory (state_dir)',
+      );
+    throw new DamagedFileError(
+      file,
+      `cannot be read (${code ?? String(e)})`,
+      'restore the file from a backup or delete it (its contents will be lost)',
+    );
   }
 }
 
@@ -111,7 +131,11 @@ export function parseJsonFile(file: string, text: string): unknown {
   try {
     return JSON.parse(text);
   } catch (e) {
-    throw new DamagedFileError(file, `not valid JSON (${(e as Error).message})`, 'restore the file from a backup or delete it (its contents will be lost)');
+    throw new DamagedFileError(
+      file,
+      `not valid JSON (${(e as Error).message})`,
+      'restore the file from a backup or delete it (its contents will be lost)',
+    );
   }
 }
 
@@ -143,6 +167,10 @@ export function removeFile(file: string): boolean {
     return true;
   } catch (e) {
     if ((e as NodeJS.ErrnoException).code === 'ENOENT') return false;
-    throw new UserError(file, `cannot delete (${(e as NodeJS.ErrnoException).code ?? String(e)})`, 'check the permissions of the state directory (state_dir)');
+    throw new UserError(
+      file,
+      `cannot delete (${(e as NodeJS.ErrnoException).code ?? String(e)})`,
+      'check the permissions of the state directory (state_dir)',
+    );
   }
 }

@@ -3,7 +3,12 @@ import type { WindowResult } from '../dsp/types.js';
 import type { Baseline } from './baseline.js';
 import { fromInternalDeg } from '../balance/conventions.js';
 import { DEFAULT_SOLVE_OPTIONS } from '../balance/solve.js';
-import { cmatrixFrom, columnScaledConditionNumber, getEl, leastSquares } from '../balance/linalg.js';
+import {
+  cmatrixFrom,
+  columnScaledConditionNumber,
+  getEl,
+  leastSquares,
+} from '../balance/linalg.js';
 import { abs, add, angleDeg, fromPolar, mul, sub, ZERO, type Complex } from './complex.js';
 import type { HealthReport } from './health.js';
 
@@ -36,7 +41,12 @@ export interface BalanceForecast {
   /** Target of the correction: the baseline 1x vectors, or zero when no baseline exists. */
   readonly target: 'baseline' | 'zero' | null;
   /** Per plane: mass and angle, at the radius the job's weights sat at (null when the job did not say). */
-  readonly weights: readonly { readonly plane: string; readonly mass_g: number; readonly angle_deg: number; readonly radius_mm: number | null }[];
+  readonly weights: readonly {
+    readonly plane: string;
+    readonly mass_g: number;
+    readonly angle_deg: number;
+    readonly radius_mm: number | null;
+  }[];
   readonly sensors_used: readonly string[];
   /** Predicted remaining 1x difference from the target after the correction, r.m.s. over the sensors used, mm/s peak. */
   readonly residual_pk_mm_s: number | null;
@@ -46,7 +56,10 @@ export interface BalanceForecast {
 }
 
 /** A forecast that cannot be given, and why. */
-export const unavailable = (why: string, coeffs: StoredCoefficients | null = null): BalanceForecast => ({
+export const unavailable = (
+  why: string,
+  coeffs: StoredCoefficients | null = null,
+): BalanceForecast => ({
   available: false,
   why,
   job_id: coeffs?.job_id ?? null,
@@ -67,8 +80,15 @@ export function forecastBalance(
   window: WindowResult,
   health: HealthReport,
 ): BalanceForecast {
-  if (!coeffs) return unavailable('no influence coefficients stored for this fan (a balancing job saves them)');
-  if (coeffs.asset !== asset) return unavailable(`the stored coefficients belong to asset "${coeffs.asset}", not "${asset}"`, coeffs);
+  if (!coeffs)
+    return unavailable(
+      'no influence coefficients stored for this fan (a balancing job saves them)',
+    );
+  if (coeffs.asset !== asset)
+    return unavailable(
+      `the stored coefficients belong to asset "${coeffs.asset}", not "${asset}"`,
+      coeffs,
+    );
   const ok = new Set(health.channels.filter((c) => c.phase_ok).map((c) => c.id));
   const rows: Complex[][] = [];
   const rhs: Complex[] = [];
@@ -97,18 +117,38 @@ export function forecastBalance(
     used.push(c.id);
   }
   if (used.length < coeffs.planes.length) {
-    return { ...unavailable(`${used.length} healthy sensor(s) with coefficients for ${coeffs.planes.length} plane(s): at least as many sensors as planes are needed`, coeffs), notes };
+    return {
+      ...unavailable(
+        `${used.length} healthy sensor(s) with coefficients for ${coeffs.planes.length} plane(s): at least as many sensors as planes are needed`,
+        coeffs,
+      ),
+      notes,
+    };
   }
   const h = cmatrixFrom(rows);
   const condition = columnScaledConditionNumber(h);
-  if (condition >= DEFAULT_SOLVE_OPTIONS.conditionLimit) return { ...unavailable('the stored coefficients cannot separate the planes with the sensors available (singular system)', coeffs), notes };
+  if (condition >= DEFAULT_SOLVE_OPTIONS.conditionLimit)
+    return {
+      ...unavailable(
+        'the stored coefficients cannot separate the planes with the sensors available (singular system)',
+        coeffs,
+      ),
+      notes,
+    };
   if (condition > DEFAULT_SOLVE_OPTIONS.conditionWarn) {
-    notes.push(`the planes are hard to separate with these sensors (condition number ${condition.toFixed(0)}): treat the split between planes with care`);
+    notes.push(
+      `the planes are hard to separate with these sensors (condition number ${condition.toFixed(0)}): treat the split between planes with care`,
+    );
   }
   const solved = leastSquares(h, cmatrixFrom(rhs.map((r) => [r])));
   const x = coeffs.planes.map((_, j) => getEl(solved, j, 0));
-  if (window.speed_rpm !== null && Math.abs(window.speed_rpm - coeffs.speed_rpm) / coeffs.speed_rpm > 0.05) {
-    notes.push(`coefficients were measured at ${coeffs.speed_rpm.toFixed(0)} r/min, the fan runs at ${window.speed_rpm.toFixed(0)} r/min: the forecast is less reliable`);
+  if (
+    window.speed_rpm !== null &&
+    Math.abs(window.speed_rpm - coeffs.speed_rpm) / coeffs.speed_rpm > 0.05
+  ) {
+    notes.push(
+      `coefficients were measured at ${coeffs.speed_rpm.toFixed(0)} r/min, the fan runs at ${window.speed_rpm.toFixed(0)} r/min: the forecast is less reliable`,
+    );
   }
   let ss = 0;
   rows.forEach((row, i) => {
@@ -122,7 +162,12 @@ export function forecastBalance(
     job_id: coeffs.job_id,
     angle_convention: coeffs.angle_convention,
     target: baseline ? 'baseline' : 'zero',
-    weights: coeffs.planes.map((plane, j) => ({ plane, mass_g: abs(x[j]!), angle_deg: fromInternalDeg(angleDeg(x[j]!), coeffs.angle_convention), radius_mm: coeffs.radius_mm?.[plane] ?? null })),
+    weights: coeffs.planes.map((plane, j) => ({
+      plane,
+      mass_g: abs(x[j]!),
+      angle_deg: fromInternalDeg(angleDeg(x[j]!), coeffs.angle_convention),
+      radius_mm: coeffs.radius_mm?.[plane] ?? null,
+    })),
     sensors_used: used,
     residual_pk_mm_s: Math.sqrt(ss / used.length),
     condition,

@@ -58,7 +58,15 @@ function levelStep(sig: SignalFacts, ratio: number): boolean {
  * configured, or the sensor saturating below the input range), sudden level steps. What can be read
  * either way goes to `doubt`: the channel stays in, but cannot raise the machine to zone D alone.
  */
-function shapeFaults(sensor: SensorConfig, c: ChannelResult, window: WindowResult, s: WatcherSettings, byId: ReadonlyMap<string, ChannelResult>, p: Fault[], doubt: string[]): void {
+function shapeFaults(
+  sensor: SensorConfig,
+  c: ChannelResult,
+  window: WindowResult,
+  s: WatcherSettings,
+  byId: ReadonlyMap<string, ChannelResult>,
+  p: Fault[],
+  doubt: string[],
+): void {
   const h = s.w.sensor_health;
   const sig = c.stats.signal;
   if (!sig) return;
@@ -69,20 +77,44 @@ function shapeFaults(sensor: SensorConfig, c: ChannelResult, window: WindowResul
   const need = Math.max(2, h.spikes_per_s * seconds);
   if (sig.impulses_one_sided >= need) {
     const words = `${sig.impulses_one_sided} separate one-sided impulses in ${f(seconds, 1)} s (${f(sig.impulses_one_sided / seconds, 1)} per second), up to ${f(sig.peak_over_level, 0)} times the signal's typical level, without the ringing of a mechanical impact`;
-    if (sig.impulses_one_sided >= 0.5 * sig.impulses) p.push({ code: 'spikes', words: `impulsive spikes: ${words} (a loose connector or a damaged cable)` });
-    else doubt.push(`${words}, among ${sig.impulses} impulses that mostly ring: a loose connector or real impacts`);
+    if (sig.impulses_one_sided >= 0.5 * sig.impulses)
+      p.push({
+        code: 'spikes',
+        words: `impulsive spikes: ${words} (a loose connector or a damaged cable)`,
+      });
+    else
+      doubt.push(
+        `${words}, among ${sig.impulses} impulses that mostly ring: a loose connector or real impacts`,
+      );
   }
 
   // Samples piling up at one extreme value.
-  if (!p.some((x) => x.code === 'clipped') && sig.steps_spanned !== null && sig.steps_spanned >= h.steps_spanned_min) {
-    for (const [pile, side] of [[sig.pile_high, 'top'], [sig.pile_low, 'bottom']] as const) {
-      if (pile.samples / n < h.pile_share_min || pile.samples < h.pile_ratio_min * Math.max(pile.below, 1)) continue;
+  if (
+    !p.some((x) => x.code === 'clipped') &&
+    sig.steps_spanned !== null &&
+    sig.steps_spanned >= h.steps_spanned_min
+  ) {
+    for (const [pile, side] of [
+      [sig.pile_high, 'top'],
+      [sig.pile_low, 'bottom'],
+    ] as const) {
+      if (
+        pile.samples / n < h.pile_share_min ||
+        pile.samples < h.pile_ratio_min * Math.max(pile.below, 1)
+      )
+        continue;
       const share = `${pile.samples} samples (${f((100 * pile.samples) / n, 2)} %)`;
       const fs = sensor.full_scale_v;
       if (fs !== undefined && Math.abs(pile.v) < h.saturation_share * fs) {
-        p.push({ code: 'saturation', words: `saturated: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, with only ${pile.below} just below, well inside the ${fs} V input range: the sensor or its amplifier saturates, the true vibration is larger than measured` });
+        p.push({
+          code: 'saturation',
+          words: `saturated: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, with only ${pile.below} just below, well inside the ${fs} V input range: the sensor or its amplifier saturates, the true vibration is larger than measured`,
+        });
       } else if (fs === undefined) {
-        p.push({ code: 'pile_up', words: `cut off: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, with only ${pile.below} just below: the signal is clipped at a limit that is not configured (the input range or the sensor's own output limit; set full_scale_v of this sensor to the input range)` });
+        p.push({
+          code: 'pile_up',
+          words: `cut off: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, with only ${pile.below} just below: the signal is clipped at a limit that is not configured (the input range or the sensor's own output limit; set full_scale_v of this sensor to the input range)`,
+        });
       }
       break;
     }
@@ -91,16 +123,26 @@ function shapeFaults(sensor: SensorConfig, c: ChannelResult, window: WindowResul
   // Sudden level steps (spikes found above explain an uneven level already): the sensor's own when
   // the other sensors at its bearing stay steady.
   if (!p.some((x) => x.code === 'spikes') && levelStep(sig, h.level_step_ratio)) {
-    const others = s.sensors.filter((x) => x.bearing === sensor.bearing && x.id !== sensor.id).flatMap((x) => {
-      const o = byId.get(x.id)?.stats.signal;
-      return o ? [{ id: x.id, stepped: levelStep(o, Math.sqrt(h.level_step_ratio)) }] : [];
-    });
-    const ratio = Math.max(sig.group_rms_max_v / sig.group_rms_median_v, sig.group_rms_min_v > 0 ? sig.group_rms_median_v / sig.group_rms_min_v : Infinity);
+    const others = s.sensors
+      .filter((x) => x.bearing === sensor.bearing && x.id !== sensor.id)
+      .flatMap((x) => {
+        const o = byId.get(x.id)?.stats.signal;
+        return o ? [{ id: x.id, stepped: levelStep(o, Math.sqrt(h.level_step_ratio)) }] : [];
+      });
+    const ratio = Math.max(
+      sig.group_rms_max_v / sig.group_rms_median_v,
+      sig.group_rms_min_v > 0 ? sig.group_rms_median_v / sig.group_rms_min_v : Infinity,
+    );
     const what = `the ${f(sig.group_s * 1000, 0)} ms r.m.s. stepped ${Number.isFinite(ratio) ? `${f(ratio, 0)}-fold` : 'to nothing'} (between ${f(sig.group_rms_min_v * 1000, 1)} and ${f(sig.group_rms_max_v * 1000, 1)} mV, typically ${f(sig.group_rms_median_v * 1000, 1)} mV) with a sudden jump`;
     if (others.length && others.every((o) => !o.stepped)) {
-      p.push({ code: 'level_step', words: `sudden level step: ${what}, while ${others.map((o) => o.id).join(', ')} at ${sensor.bearing} stayed steady (an intermittent connection or a failing sensor)` });
+      p.push({
+        code: 'level_step',
+        words: `sudden level step: ${what}, while ${others.map((o) => o.id).join(', ')} at ${sensor.bearing} stayed steady (an intermittent connection or a failing sensor)`,
+      });
     } else if (!others.length) {
-      doubt.push(`${what}, and no other sensor at ${sensor.bearing} can confirm it: a sensor fault or a real event (impact, rub)`);
+      doubt.push(
+        `${what}, and no other sensor at ${sensor.bearing} can confirm it: a sensor fault or a real event (impact, rub)`,
+      );
     }
   }
 }
@@ -119,12 +161,21 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
     else if (c.stats.samples === 0) p.push({ code: 'no_data', words: 'no samples in the window' });
     else {
       if (sensor.bias_v && (c.stats.dc_v < sensor.bias_v.min || c.stats.dc_v > sensor.bias_v.max)) {
-        const hint = c.stats.dc_v < sensor.bias_v.min ? 'short circuit or no sensor power' : 'open cable or sensor';
-        p.push({ code: 'bias', words: `bias ${f(c.stats.dc_v)} V outside its ${sensor.bias_v.min}-${sensor.bias_v.max} V window (${hint})` });
+        const hint =
+          c.stats.dc_v < sensor.bias_v.min
+            ? 'short circuit or no sensor power'
+            : 'open cable or sensor';
+        p.push({
+          code: 'bias',
+          words: `bias ${f(c.stats.dc_v)} V outside its ${sensor.bias_v.min}-${sensor.bias_v.max} V window (${hint})`,
+        });
       }
       const clipShare = c.stats.clipped_samples / c.stats.samples;
       if (c.stats.clipped_samples > 0 && clipShare > h.clipped_share_max) {
-        p.push({ code: 'clipped', words: `clipped: ${c.stats.clipped_samples} of ${c.stats.samples} samples at full scale (input range too small or sensor overloaded)` });
+        p.push({
+          code: 'clipped',
+          words: `clipped: ${c.stats.clipped_samples} of ${c.stats.samples} samples at full scale (input range too small or sensor overloaded)`,
+        });
       }
       shapeFaults(sensor, c, window, s, byId, p, doubts.get(sensor.id)!);
     }
@@ -135,15 +186,25 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
     window.speed_rpm !== null ||
     s.sensors.some((sensor) => {
       const c = byId.get(sensor.id);
-      return faults.get(sensor.id)!.length === 0 && c?.overall_rms_mm_s != null && c.overall_rms_mm_s >= h.running_overall_mm_s;
+      return (
+        faults.get(sensor.id)!.length === 0 &&
+        c?.overall_rms_mm_s != null &&
+        c.overall_rms_mm_s >= h.running_overall_mm_s
+      );
     });
 
   if (running) {
     for (const sensor of s.sensors) {
       const c = byId.get(sensor.id);
       if (c && c.stats.samples > 0 && c.stats.ac_rms_v < h.flat_ac_rms_v) {
-        faults.get(sensor.id)!.push({ code: 'flat', words: `flat line: ${f(c.stats.ac_rms_v * 1000, 3)} mV r.m.s. while the fan turns (dead sensor or broken cable)` });
-      } else if (c?.stats.signal?.steps_spanned != null && c.stats.signal.steps_spanned < h.steps_spanned_min) {
+        faults.get(sensor.id)!.push({
+          code: 'flat',
+          words: `flat line: ${f(c.stats.ac_rms_v * 1000, 3)} mV r.m.s. while the fan turns (dead sensor or broken cable)`,
+        });
+      } else if (
+        c?.stats.signal?.steps_spanned != null &&
+        c.stats.signal.steps_spanned < h.steps_spanned_min
+      ) {
         const sig = c.stats.signal;
         faults.get(sensor.id)!.push({
           code: 'quantisation_only',
@@ -157,14 +218,21 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
   const pulses = window.tach.edges + window.tach.missing_pulses;
   if (window.tach.edges < 2 || window.revolutions === 0) {
     tach = running
-      ? { state: 'lost', why: `no usable revolutions (${window.tach.edges} tach edges) while the fan vibrates: check the once-per-turn pickup and its mark` }
+      ? {
+          state: 'lost',
+          why: `no usable revolutions (${window.tach.edges} tach edges) while the fan vibrates: check the once-per-turn pickup and its mark`,
+        }
       : { state: 'stopped', why: 'no tach pulses and no vibration: the fan appears to be stopped' };
   } else if (pulses > 0 && window.tach.missing_pulses / pulses > h.missing_pulse_share_max) {
     tach = {
       state: 'lost',
       why: `${window.tach.missing_pulses} of ${pulses} tach pulses missing: the reference is unreliable for phase (check the pickup gap and the mark)`,
     };
-  } else tach = { state: 'ok', why: `${window.tach.edges} tach edges, ${window.revolutions} revolutions averaged` };
+  } else
+    tach = {
+      state: 'ok',
+      why: `${window.tach.edges} tach edges, ${window.revolutions} revolutions averaged`,
+    };
 
   const channels = s.sensors.map((sensor): ChannelHealth => {
     const found = faults.get(sensor.id)!;
@@ -174,10 +242,19 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
     const c = byId.get(sensor.id);
     const phaseNotes: string[] = [];
     if (ok) {
-      if (tach.state !== 'ok') phaseNotes.push(tach.state === 'lost' ? 'tach lost: no phase reference' : 'fan stopped');
+      if (tach.state !== 'ok')
+        phaseNotes.push(tach.state === 'lost' ? 'tach lost: no phase reference' : 'fan stopped');
       else if (!c?.orders['1']) phaseNotes.push('no 1x vector in this window');
     }
-    return { id: sensor.id, ok, phase_ok: ok && phaseNotes.length === 0, problems, faults: found, phase_notes: phaseNotes, doubts: doubt };
+    return {
+      id: sensor.id,
+      ok,
+      phase_ok: ok && phaseNotes.length === 0,
+      problems,
+      faults: found,
+      phase_notes: phaseNotes,
+      doubts: doubt,
+    };
   });
 
   return { channels, tach, running };

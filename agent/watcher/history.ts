@@ -45,7 +45,11 @@ const pointSchema = z.object({
   speed_rpm: z.number().nullable(),
   channels: z.record(
     z.string(),
-    z.object({ overall_rms_mm_s: z.number().nullable(), one_x_rms_mm_s: z.number().nullable(), one_x_phase_deg: z.number().nullable() }),
+    z.object({
+      overall_rms_mm_s: z.number().nullable(),
+      one_x_rms_mm_s: z.number().nullable(),
+      one_x_phase_deg: z.number().nullable(),
+    }),
   ),
 });
 
@@ -68,12 +72,17 @@ export class FileHistoryStore implements HistoryStore {
       try {
         parsed = JSON.parse(line);
       } catch {
-        warnings.push(`${this.file}: line ${i + 1} is not valid JSON (torn write after a power cut?), skipped`);
+        warnings.push(
+          `${this.file}: line ${i + 1} is not valid JSON (torn write after a power cut?), skipped`,
+        );
         return;
       }
       const r = pointSchema.safeParse(parsed);
       if (r.success) points.push(r.data);
-      else warnings.push(`${this.file}: line ${i + 1} is not a history point (${r.error.issues[0]?.message ?? 'invalid'}), skipped`);
+      else
+        warnings.push(
+          `${this.file}: line ${i + 1} is not a history point (${r.error.issues[0]?.message ?? 'invalid'}), skipped`,
+        );
     });
     // A torn last line would swallow the next append: the file must be rewritten from what was readable.
     return { points, warnings, rewrite: !text.endsWith('\n') || warnings.length > 0 };
@@ -139,7 +148,8 @@ export function decimate(points: readonly HistoryPoint[], max: number): HistoryP
   while (out.length > max) {
     const older = out.slice(0, out.length - keep);
     const merged: HistoryPoint[] = [];
-    for (let i = 0; i < older.length; i += 2) merged.push(i + 1 < older.length ? mergePoints([older[i]!, older[i + 1]!]) : older[i]!);
+    for (let i = 0; i < older.length; i += 2)
+      merged.push(i + 1 < older.length ? mergePoints([older[i]!, older[i + 1]!]) : older[i]!);
     out = [...merged, ...out.slice(out.length - keep)];
   }
   return out;
@@ -248,7 +258,12 @@ export class HistoryAggregator {
         one_x_phase_deg: a.vecN && abs(a.vec) > 0 ? angleDeg(a.vec) : null,
       };
     }
-    const p: HistoryPoint = { ts: new Date(nowMs).toISOString(), windows: this.windows, speed_rpm: this.speedN ? this.speedSum / this.speedN : null, channels };
+    const p: HistoryPoint = {
+      ts: new Date(nowMs).toISOString(),
+      windows: this.windows,
+      speed_rpm: this.speedN ? this.speedSum / this.speedN : null,
+      channels,
+    };
     this.startMs = nowMs; // the next interval starts where this one ended
     this.windows = 0;
     this.speedSum = 0;

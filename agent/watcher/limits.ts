@@ -27,9 +27,17 @@ export interface Limits extends Boundaries {
  * ISO 20816-3 (replaced ISO 10816-3), zone boundaries A/B, B/C, C/D in mm/s r.m.s. for bearing-housing
  * velocity, 10-1000 Hz (2-1000 Hz below 600 r/min). Group 1: over 300 kW; group 2: 15-300 kW.
  */
-export const ISO_20816_3: Readonly<Record<1 | 2, Readonly<Record<'rigid' | 'flexible', Boundaries>>>> = {
-  1: { rigid: { ab_mm_s: 2.3, bc_mm_s: 4.5, cd_mm_s: 7.1 }, flexible: { ab_mm_s: 3.5, bc_mm_s: 7.1, cd_mm_s: 11.0 } },
-  2: { rigid: { ab_mm_s: 1.4, bc_mm_s: 2.8, cd_mm_s: 4.5 }, flexible: { ab_mm_s: 2.3, bc_mm_s: 4.5, cd_mm_s: 7.1 } },
+export const ISO_20816_3: Readonly<
+  Record<1 | 2, Readonly<Record<'rigid' | 'flexible', Boundaries>>>
+> = {
+  1: {
+    rigid: { ab_mm_s: 2.3, bc_mm_s: 4.5, cd_mm_s: 7.1 },
+    flexible: { ab_mm_s: 3.5, bc_mm_s: 7.1, cd_mm_s: 11.0 },
+  },
+  2: {
+    rigid: { ab_mm_s: 1.4, bc_mm_s: 2.8, cd_mm_s: 4.5 },
+    flexible: { ab_mm_s: 2.3, bc_mm_s: 4.5, cd_mm_s: 7.1 },
+  },
 };
 
 export interface Iso14694Limits {
@@ -39,13 +47,25 @@ export interface Iso14694Limits {
 }
 
 /** ISO 14694 in-situ broadband limits for fans, mm/s r.m.s. Values from memory: check the current edition. */
-export const ISO_14694: Readonly<Record<'BV-3' | 'BV-4', Readonly<Record<'rigid' | 'flexible', Iso14694Limits>>>> = {
-  'BV-3': { rigid: { startup_mm_s: 4.5, alarm_mm_s: 7.1, shutdown_mm_s: 9.0 }, flexible: { startup_mm_s: 6.3, alarm_mm_s: 11.8, shutdown_mm_s: 12.5 } },
-  'BV-4': { rigid: { startup_mm_s: 2.8, alarm_mm_s: 4.5, shutdown_mm_s: 7.1 }, flexible: { startup_mm_s: 4.5, alarm_mm_s: 7.1, shutdown_mm_s: 11.2 } },
+export const ISO_14694: Readonly<
+  Record<'BV-3' | 'BV-4', Readonly<Record<'rigid' | 'flexible', Iso14694Limits>>>
+> = {
+  'BV-3': {
+    rigid: { startup_mm_s: 4.5, alarm_mm_s: 7.1, shutdown_mm_s: 9.0 },
+    flexible: { startup_mm_s: 6.3, alarm_mm_s: 11.8, shutdown_mm_s: 12.5 },
+  },
+  'BV-4': {
+    rigid: { startup_mm_s: 2.8, alarm_mm_s: 4.5, shutdown_mm_s: 7.1 },
+    flexible: { startup_mm_s: 4.5, alarm_mm_s: 7.1, shutdown_mm_s: 11.2 },
+  },
 };
 
 export function iso20816Limits(group: 1 | 2, support: 'rigid' | 'flexible'): Limits {
-  return { ...ISO_20816_3[group][support], source: 'iso20816', basis: `ISO 20816-3 group ${group}, ${support} support` };
+  return {
+    ...ISO_20816_3[group][support],
+    source: 'iso20816',
+    basis: `ISO 20816-3 group ${group}, ${support} support`,
+  };
 }
 
 /** Maps the fan-standard levels onto zones: A up to start-up, B up to alarm, C up to shut-down, D above. */
@@ -61,7 +81,13 @@ export function iso14694Limits(category: 'BV-3' | 'BV-4', mounting: 'rigid' | 'f
 }
 
 export function customLimits(b: Boundaries): Limits {
-  return { ab_mm_s: b.ab_mm_s, bc_mm_s: b.bc_mm_s, cd_mm_s: b.cd_mm_s, source: 'custom', basis: 'limits set in the config (watcher.limits)' };
+  return {
+    ab_mm_s: b.ab_mm_s,
+    bc_mm_s: b.bc_mm_s,
+    cd_mm_s: b.cd_mm_s,
+    source: 'custom',
+    basis: 'limits set in the config (watcher.limits)',
+  };
 }
 
 export function scaleBoundaries(b: Boundaries, k: number): Boundaries {
@@ -84,7 +110,12 @@ export function classifyZone(valueMmS: number, b: Boundaries): Zone {
  * Zone with hysteresis: the zone rises as soon as a boundary is passed, but drops only once the value
  * is `share` below the boundary it came over. `previous` is the last zone this returned (null at start).
  */
-export function zoneWithHysteresis(valueMmS: number, previous: Zone | null, b: Boundaries, share: number): Zone {
+export function zoneWithHysteresis(
+  valueMmS: number,
+  previous: Zone | null,
+  b: Boundaries,
+  share: number,
+): Zone {
   const raw = classifyZone(valueMmS, b);
   if (previous === null || zoneIndex(raw) >= zoneIndex(previous)) return raw;
   const lowered = classifyZone(valueMmS, scaleBoundaries(b, 1 - share));

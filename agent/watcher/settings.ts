@@ -51,8 +51,10 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
   }
 
   const radialBearings: string[] = [];
-  for (const s of cfg.sensors) if (isRadial(s) && !radialBearings.includes(s.bearing)) radialBearings.push(s.bearing);
-  let bearings: readonly [string, string] | null = radialBearings.length >= 2 ? [radialBearings[0]!, radialBearings[1]!] : null;
+  for (const s of cfg.sensors)
+    if (isRadial(s) && !radialBearings.includes(s.bearing)) radialBearings.push(s.bearing);
+  let bearings: readonly [string, string] | null =
+    radialBearings.length >= 2 ? [radialBearings[0]!, radialBearings[1]!] : null;
   if (w.unbalance.bearings) {
     w.unbalance.bearings.forEach((b, i) => {
       if (!radialBearings.includes(b)) {
@@ -64,7 +66,11 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
       }
     });
     if (w.unbalance.bearings[0] === w.unbalance.bearings[1]) {
-      throw new UserError('watcher.unbalance.bearings', 'names the same bearing twice', 'name the two rotor bearings, e.g. [DE, NDE]');
+      throw new UserError(
+        'watcher.unbalance.bearings',
+        'names the same bearing twice',
+        'name the two rotor bearings, e.g. [DE, NDE]',
+      );
     }
     bearings = w.unbalance.bearings;
   }
@@ -72,25 +78,45 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
   // Levels that only make sense below the C/D boundary of the limits in force.
   const cd = limits.cd_mm_s;
   const levels: [string, number | undefined][] = [
-    ['watcher.unbalance.significance.overall_mm_s', w.unbalance.significance.basis === 'custom' ? w.unbalance.significance.overall_mm_s : undefined],
+    [
+      'watcher.unbalance.significance.overall_mm_s',
+      w.unbalance.significance.basis === 'custom'
+        ? w.unbalance.significance.overall_mm_s
+        : undefined,
+    ],
     ['watcher.unbalance.min_one_x_rms_mm_s', w.unbalance.min_one_x_rms_mm_s],
     ['watcher.vector_change_mm_s', w.vector_change_mm_s],
   ];
   for (const [path, v] of levels) {
     if (v !== undefined && v > cd) {
-      throw new UserError(path, `${v} mm/s is above the C/D boundary (${cd} mm/s, ${limits.basis}): nothing below zone D would ever reach it`, `give a value above 0 and at most ${cd} mm/s`);
+      throw new UserError(
+        path,
+        `${v} mm/s is above the C/D boundary (${cd} mm/s, ${limits.basis}): nothing below zone D would ever reach it`,
+        `give a value above 0 and at most ${cd} mm/s`,
+      );
     }
   }
 
   const coupling = w.unbalance.coupling ?? null;
   if (coupling) {
-    const axialBearings = [...new Set(cfg.sensors.filter((x) => x.direction === 'axial').map((x) => x.bearing))];
+    const axialBearings = [
+      ...new Set(cfg.sensors.filter((x) => x.direction === 'axial').map((x) => x.bearing)),
+    ];
     for (const side of ['driver', 'driven'] as const) {
       if (!axialBearings.includes(coupling[side])) {
-        throw new UserError(`watcher.unbalance.coupling.${side}`, `bearing "${coupling[side]}" has no axial sensor`, `name bearings that carry an axial sensor: ${axialBearings.join(', ') || '(none)'}`);
+        throw new UserError(
+          `watcher.unbalance.coupling.${side}`,
+          `bearing "${coupling[side]}" has no axial sensor`,
+          `name bearings that carry an axial sensor: ${axialBearings.join(', ') || '(none)'}`,
+        );
       }
     }
-    if (coupling.driver === coupling.driven) throw new UserError('watcher.unbalance.coupling', 'names the same bearing on both sides', 'name the driver-side and the driven-side bearing of the coupling');
+    if (coupling.driver === coupling.driven)
+      throw new UserError(
+        'watcher.unbalance.coupling',
+        'names the same bearing on both sides',
+        'name the driver-side and the driven-side bearing of the coupling',
+      );
   }
 
   return {

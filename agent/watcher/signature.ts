@@ -50,11 +50,20 @@ export interface UnbalanceAssessment {
   readonly rules: readonly RuleResult[];
 }
 
-function contextFor(s: WatcherSettings, window: WindowResult, health: HealthReport, recent: readonly RecentWindow[], facts: RuleFacts, measures: UnbalanceMeasures, inputs: SignificanceInputs | null): RuleContext {
+function contextFor(
+  s: WatcherSettings,
+  window: WindowResult,
+  health: HealthReport,
+  recent: readonly RecentWindow[],
+  facts: RuleFacts,
+  measures: UnbalanceMeasures,
+  inputs: SignificanceInputs | null,
+): RuleContext {
   const readings = readingsOf(window, health);
   const radial = readings.filter(isRadial);
   const maxRadial = radial.length ? radial.reduce((a, r) => (r.amp > a.amp ? r : a)) : null;
-  const pick = (bearing: string, direction: string) => readings.find((r) => r.bearing === bearing && r.direction === direction);
+  const pick = (bearing: string, direction: string) =>
+    readings.find((r) => r.bearing === bearing && r.direction === direction);
   return {
     s,
     window,
@@ -75,7 +84,11 @@ function contextFor(s: WatcherSettings, window: WindowResult, health: HealthRepo
       const r2 = pick(s.bearings[1], direction);
       if (!r1 || !r2) return null;
       const d = sepDeg(r1.phase, r2.phase);
-      return { direction, phase_diff_deg: d, relation: relationOf(d, s.w.unbalance.phase_tolerance_deg) };
+      return {
+        direction,
+        phase_diff_deg: d,
+        relation: relationOf(d, s.w.unbalance.phase_tolerance_deg),
+      };
     },
   };
 }
@@ -111,24 +124,35 @@ export function diagnoseUnbalance(
   const limits = results.flatMap((r) => r.limits);
   const missing = results.reduce((a, r) => a + r.missing, 0);
   const pointsTo = new Map<OneXCause, string[]>();
-  for (const r of results) for (const p of r.points_to) pointsTo.set(p.cause, [...(pointsTo.get(p.cause) ?? []), p.why]);
+  for (const r of results)
+    for (const p of r.points_to) pointsTo.set(p.cause, [...(pointsTo.get(p.cause) ?? []), p.why]);
 
   let pattern: UnbalanceKind;
   if (facts.stop || facts.not_one_x || pointsTo.size > 0) pattern = 'none';
   else if (s.rotor === 'overhung' || facts.overhung_pattern) pattern = 'overhung';
   else if (facts.pair_kind) pattern = facts.pair_kind;
   else {
-    limits.push('reported as dynamic unbalance, the general case (two correction planes), because the bearings could not be compared');
+    limits.push(
+      'reported as dynamic unbalance, the general case (two correction planes), because the bearings could not be compared',
+    );
     pattern = 'dynamic';
   }
   // Below the significance level the pattern is kept as information only.
   const kind: UnbalanceKind = facts.not_significant ? 'none' : pattern;
-  const confidence: Confidence = facts.confidence_low || ctx.radial.length <= 1 || missing >= 3 ? 'low' : missing >= 1 ? 'medium' : 'high';
+  const confidence: Confidence =
+    facts.confidence_low || ctx.radial.length <= 1 || missing >= 3
+      ? 'low'
+      : missing >= 1
+        ? 'medium'
+        : 'high';
   return {
     kind,
     confidence,
     evidence,
-    points_to: kind === 'none' ? [...pointsTo].map(([cause, whys]) => ({ cause, why: whys.join('; ') })) : [],
+    points_to:
+      kind === 'none'
+        ? [...pointsTo].map(([cause, whys]) => ({ cause, why: whys.join('; ') }))
+        : [],
     limits,
     measures,
     residual_pattern: facts.not_significant ? pattern : null,

@@ -21,7 +21,10 @@ export interface StateRow<T extends Scalar> {
   /** Seconds of measured data a new value must hold before it is confirmed. */
   readonly delay_s: (w: WatcherConfig, to: T) => number;
   /** The event a confirmed change from `from` (undefined: nothing confirmed yet) to `to` raises; null: none. */
-  readonly event: (from: T | undefined, to: T) => { readonly type: WatcherEventType; readonly severity: Severity } | null;
+  readonly event: (
+    from: T | undefined,
+    to: T,
+  ) => { readonly type: WatcherEventType; readonly severity: Severity } | null;
   readonly doc: string;
 }
 
@@ -29,10 +32,17 @@ const row = <T extends Scalar>(r: StateRow<T>): StateRow<T> => r;
 const onDelay = (w: WatcherConfig): number => w.on_delay_s;
 const zone = z.enum(['A', 'B', 'C', 'D']);
 type ZoneValue = z.infer<typeof zone>;
-const zoneSeverity = (zn: ZoneValue): Severity => (zn === 'D' ? 'alarm' : zn === 'C' ? 'warning' : 'info');
+const zoneSeverity = (zn: ZoneValue): Severity =>
+  zn === 'D' ? 'alarm' : zn === 'C' ? 'warning' : 'info';
 /** A boolean condition: raised when it becomes true, cleared when it falls back from true. */
-const condition = (raised: WatcherEventType, cleared: WatcherEventType, severity: Severity) => (from: boolean | undefined, to: boolean) =>
-  to ? { type: raised, severity } : from === true ? { type: cleared, severity: 'info' as const } : null;
+const condition =
+  (raised: WatcherEventType, cleared: WatcherEventType, severity: Severity) =>
+  (from: boolean | undefined, to: boolean) =>
+    to
+      ? { type: raised, severity }
+      : from === true
+        ? { type: cleared, severity: 'info' as const }
+        : null;
 
 export const STATE_ROWS = {
   machine_zone: row({
@@ -74,7 +84,12 @@ export const STATE_ROWS = {
     subjects: 'sensor',
     value: z.boolean(),
     delay_s: (w, to) => (to ? w.sensor_health.ok_after_s : w.on_delay_s),
-    event: (from, to) => (!to ? { type: 'sensor_not_ok', severity: 'warning' } : from === false ? { type: 'sensor_ok', severity: 'info' } : null),
+    event: (from, to) =>
+      !to
+        ? { type: 'sensor_not_ok', severity: 'warning' }
+        : from === false
+          ? { type: 'sensor_ok', severity: 'info' }
+          : null,
     doc: 'Sensor healthy; a fault must be gone for watcher.sensor_health.ok_after_s before it is OK again.',
   }),
   sensor_doubt: row({
@@ -88,14 +103,24 @@ export const STATE_ROWS = {
     subjects: 'machine',
     value: z.enum(['ok', 'lost', 'stopped']),
     delay_s: onDelay,
-    event: (from, to) => (to === 'lost' ? { type: 'tach_lost', severity: 'warning' } : to === 'ok' && from === 'lost' ? { type: 'tach_back', severity: 'info' } : null),
+    event: (from, to) =>
+      to === 'lost'
+        ? { type: 'tach_lost', severity: 'warning' }
+        : to === 'ok' && from === 'lost'
+          ? { type: 'tach_back', severity: 'info' }
+          : null,
     doc: 'Once-per-turn reference.',
   }),
   speed: row({
     subjects: 'machine',
     value: z.enum(['in_range', 'low', 'high']),
     delay_s: onDelay,
-    event: (from, to) => (to !== 'in_range' ? { type: 'speed_out_of_range', severity: 'info' } : from !== undefined ? { type: 'speed_in_range', severity: 'info' } : null),
+    event: (from, to) =>
+      to !== 'in_range'
+        ? { type: 'speed_out_of_range', severity: 'info' }
+        : from !== undefined
+          ? { type: 'speed_in_range', severity: 'info' }
+          : null,
     doc: 'Speed against machine.rated_rpm.',
   }),
   vector_changed: row({
@@ -108,8 +133,11 @@ export const STATE_ROWS = {
 } as const;
 
 export type StateKey = keyof typeof STATE_ROWS;
-export type ValueOf<K extends StateKey> = (typeof STATE_ROWS)[K] extends StateRow<infer T> ? T : never;
-type Stored<K extends StateKey> = (typeof STATE_ROWS)[K]['subjects'] extends 'machine' ? ValueOf<K> | null : Readonly<Record<string, ValueOf<K>>>;
+export type ValueOf<K extends StateKey> =
+  (typeof STATE_ROWS)[K] extends StateRow<infer T> ? T : never;
+type Stored<K extends StateKey> = (typeof STATE_ROWS)[K]['subjects'] extends 'machine'
+  ? ValueOf<K> | null
+  : Readonly<Record<string, ValueOf<K>>>;
 
 /** The confirmed states, keyed as in STATE_ROWS. */
 export type ConfirmedStates = { readonly [K in StateKey]: Stored<K> };
@@ -117,7 +145,10 @@ export type ConfirmedStates = { readonly [K in StateKey]: Stored<K> };
 export const STATE_VERSION = 2;
 
 /** What the watcher has confirmed and reported, so a restart neither repeats nor loses events (state.json). */
-export type WatcherSnapshot = { readonly version: typeof STATE_VERSION; readonly run: number } & ConfirmedStates;
+export type WatcherSnapshot = {
+  readonly version: typeof STATE_VERSION;
+  readonly run: number;
+} & ConfirmedStates;
 
 const KEYS = Object.keys(STATE_ROWS) as StateKey[];
 
@@ -143,12 +174,16 @@ const snapshotSchemaV1 = z.object({
 });
 
 /** Reads state.json of any known version; v1 is migrated (the states it lacks start empty). */
-export const snapshotFileSchema = z.union([snapshotSchemaV2, snapshotSchemaV1]).transform((s): WatcherSnapshot => {
-  if (s.version === STATE_VERSION) return s as unknown as WatcherSnapshot;
-  const out: Record<string, unknown> = { version: STATE_VERSION, run: s.run };
-  for (const k of KEYS) out[k] = (s as Record<string, unknown>)[k] ?? (STATE_ROWS[k].subjects === 'machine' ? null : {});
-  return out as WatcherSnapshot;
-});
+export const snapshotFileSchema = z
+  .union([snapshotSchemaV2, snapshotSchemaV1])
+  .transform((s): WatcherSnapshot => {
+    if (s.version === STATE_VERSION) return s as unknown as WatcherSnapshot;
+    const out: Record<string, unknown> = { version: STATE_VERSION, run: s.run };
+    for (const k of KEYS)
+      out[k] =
+        (s as Record<string, unknown>)[k] ?? (STATE_ROWS[k].subjects === 'machine' ? null : {});
+    return out as WatcherSnapshot;
+  });
 
 export interface StateChange<T> {
   readonly from: T | undefined;
@@ -172,7 +207,10 @@ export class StateTable {
       const stored = prev?.[k] as unknown;
       const subjects = r.subjects === 'machine' ? ['machine'] : sensorIds;
       for (const id of subjects) {
-        const initial = r.subjects === 'machine' ? ((stored as Scalar | null | undefined) ?? undefined) : (stored as Record<string, Scalar> | undefined)?.[id];
+        const initial =
+          r.subjects === 'machine'
+            ? ((stored as Scalar | null | undefined) ?? undefined)
+            : (stored as Record<string, Scalar> | undefined)?.[id];
         m.set(id, new OnDelay<Scalar>((to) => r.delay_s(w, to), initial));
       }
       this.delays.set(k, m);
@@ -180,12 +218,25 @@ export class StateTable {
   }
 
   /** Feeds one window's value; returns the confirmed change (with its event), or null. */
-  update<K extends StateKey>(key: K, subject: string, seen: ValueOf<K>, t0: number, t1: number): StateChange<ValueOf<K>> | null {
+  update<K extends StateKey>(
+    key: K,
+    subject: string,
+    seen: ValueOf<K>,
+    t0: number,
+    t1: number,
+  ): StateChange<ValueOf<K>> | null {
     const d = this.delays.get(key)!.get(subject);
     if (!d) return null;
     const c = d.update(seen, t0, t1);
     if (!c) return null;
-    return { from: c.from as ValueOf<K> | undefined, to: c.to as ValueOf<K>, event: (STATE_ROWS[key] as unknown as StateRow<ValueOf<K>>).event(c.from as ValueOf<K> | undefined, c.to as ValueOf<K>) };
+    return {
+      from: c.from as ValueOf<K> | undefined,
+      to: c.to as ValueOf<K>,
+      event: (STATE_ROWS[key] as unknown as StateRow<ValueOf<K>>).event(
+        c.from as ValueOf<K> | undefined,
+        c.to as ValueOf<K>,
+      ),
+    };
   }
 
   value<K extends StateKey>(key: K, subject: string): ValueOf<K> | undefined {

@@ -4,7 +4,14 @@ import type { StoredCoefficients } from '../balance/coefficients.js';
 import { storedCoefficientsSchema } from '../balance/job-input.js';
 import { formatIssues } from '../config/load.js';
 import type { Baseline } from './baseline.js';
-import { DamagedFileError, moveAside, parseJsonFile, readTextOrNull, removeFile, writeFileAtomic } from './files.js';
+import {
+  DamagedFileError,
+  moveAside,
+  parseJsonFile,
+  readTextOrNull,
+  removeFile,
+  writeFileAtomic,
+} from './files.js';
 import { snapshotFileSchema, type WatcherSnapshot } from './state-table.js';
 
 /**
@@ -48,7 +55,12 @@ export interface CoefficientsSource {
 function validate<T>(schema: z.ZodType<T, unknown>, file: string, text: string, fix: string): T {
   const raw = parseJsonFile(file, text);
   const res = schema.safeParse(raw);
-  if (!res.success) throw new DamagedFileError(file, `unexpected contents:\n  ${formatIssues(file, res.error.issues, raw).join('\n  ')}`, fix);
+  if (!res.success)
+    throw new DamagedFileError(
+      file,
+      `unexpected contents:\n  ${formatIssues(file, res.error.issues, raw).join('\n  ')}`,
+      fix,
+    );
   return res.data;
 }
 
@@ -60,7 +72,14 @@ const baselineFileSchema = z.object({
   learned_at: z.string().nullable(),
   windows: z.number().int().min(0),
   speed_rpm: z.number().nullable(),
-  channels: z.record(z.string(), z.object({ one_x_rms_mm_s: z.number().min(0), one_x_phase_deg: z.number(), overall_rms_mm_s: z.number().nullable() })),
+  channels: z.record(
+    z.string(),
+    z.object({
+      one_x_rms_mm_s: z.number().min(0),
+      one_x_phase_deg: z.number(),
+      overall_rms_mm_s: z.number().nullable(),
+    }),
+  ),
 });
 export function watcherDir(stateDir: string): string {
   return join(stateDir, 'watcher');
@@ -73,7 +92,14 @@ export class FileBaselineStore implements BaselineStore {
   }
   load(): Baseline | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(baselineFileSchema, this.file, text, 'learn the baseline again (`turnwise condition clear-baseline` removes this file; `turnwise run` moves it to quarantine/)');
+    return text === null
+      ? null
+      : validate(
+          baselineFileSchema,
+          this.file,
+          text,
+          'learn the baseline again (`turnwise condition clear-baseline` removes this file; `turnwise run` moves it to quarantine/)',
+        );
   }
   quarantine(nowMs: number): string | null {
     return moveAside(this.file, nowMs);
@@ -93,7 +119,14 @@ export class FileWatcherStateStore implements WatcherStateStore {
   }
   load(): WatcherSnapshot | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(snapshotFileSchema as unknown as z.ZodType<WatcherSnapshot>, this.file, text, '`turnwise run` moves it to quarantine/ and starts afresh (the current zones and states are reported again); or delete it');
+    return text === null
+      ? null
+      : validate(
+          snapshotFileSchema as unknown as z.ZodType<WatcherSnapshot>,
+          this.file,
+          text,
+          '`turnwise run` moves it to quarantine/ and starts afresh (the current zones and states are reported again); or delete it',
+        );
   }
   quarantine(nowMs: number): string | null {
     return moveAside(this.file, nowMs);
@@ -110,6 +143,13 @@ export class FileCoefficientsSource implements CoefficientsSource {
   }
   load(): StoredCoefficients | null {
     const text = readTextOrNull(this.file);
-    return text === null ? null : validate(storedCoefficientsSchema as z.ZodType<StoredCoefficients>, this.file, text, 'save the balancing job again, or delete the file');
+    return text === null
+      ? null
+      : validate(
+          storedCoefficientsSchema as z.ZodType<StoredCoefficients>,
+          this.file,
+          text,
+          'save the balancing job again, or delete the file',
+        );
   }
 }

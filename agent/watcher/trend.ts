@@ -139,7 +139,12 @@ const perDay = (x: number): string => `${(x * DAY_S).toFixed(3)} mm/s per day`;
  * Trend of one series over the newest `span_s`. `tMs` oldest first; null values are skipped. `limits`
  * are the levels whose crossing is forecast (zone boundaries, alarm).
  */
-export function seriesTrend(tMs: readonly number[], values: readonly (number | null)[], limits: readonly NamedLimit[], cfg: TrendSettings): SeriesTrend {
+export function seriesTrend(
+  tMs: readonly number[],
+  values: readonly (number | null)[],
+  limits: readonly NamedLimit[],
+  cfg: TrendSettings,
+): SeriesTrend {
   let tLast = -Infinity;
   for (let i = 0; i < tMs.length; i++) if (values[i] != null && tMs[i]! > tLast) tLast = tMs[i]!;
   const t: number[] = [];
@@ -154,9 +159,22 @@ export function seriesTrend(tMs: readonly number[], values: readonly (number | n
   const n = t.length;
   const t0 = n ? t[0]! : 0;
   const spanS = n ? (t[n - 1]! - t0) / 1000 : 0;
-  const empty = { points: n, slope_mm_s_per_day: null, slope_range_mm_s_per_day: null, r2: null, fitted_now_mm_s: null, next_limit: null, crossing_at: null, crossing_range: null };
+  const empty = {
+    points: n,
+    slope_mm_s_per_day: null,
+    slope_range_mm_s_per_day: null,
+    r2: null,
+    fitted_now_mm_s: null,
+    next_limit: null,
+    crossing_at: null,
+    crossing_range: null,
+  };
   if (n < cfg.min_points || spanS < cfg.min_span_s) {
-    return { state: 'too_little_data', why: `${n} point(s) over ${(spanS / 3600).toFixed(1)} h; a trend needs at least ${cfg.min_points} points over ${(cfg.min_span_s / 3600).toFixed(1)} h`, ...empty };
+    return {
+      state: 'too_little_data',
+      why: `${n} point(s) over ${(spanS / 3600).toFixed(1)} h; a trend needs at least ${cfg.min_points} points over ${(cfg.min_span_s / 3600).toFixed(1)} h`,
+      ...empty,
+    };
   }
   // At most max_points equal-count bins (means of time and value) keep the pairwise fit cheap.
   const g = Math.min(n, cfg.max_points);
@@ -185,16 +203,40 @@ export function seriesTrend(tMs: readonly number[], values: readonly (number | n
   const none = { next_limit: null, crossing_at: null, crossing_range: null };
   const range = `${perDay(fit.slopeLow)} to ${perDay(fit.slopeHigh)}`;
   if (fit.slopeLow <= 0 && fit.slopeHigh >= 0) {
-    return { state: 'no_trend', why: `no trend: the 95 % range of the slope (${range}) includes zero`, ...base, ...none };
+    return {
+      state: 'no_trend',
+      why: `no trend: the 95 % range of the slope (${range}) includes zero`,
+      ...base,
+      ...none,
+    };
   }
   if (fit.r2 < cfg.min_r2) {
-    return { state: 'no_trend', why: `no trend: the line explains only ${Math.round(Math.max(0, fit.r2) * 100)} % of the variation (at least ${Math.round(cfg.min_r2 * 100)} % needed)`, ...base, ...none };
+    return {
+      state: 'no_trend',
+      why: `no trend: the line explains only ${Math.round(Math.max(0, fit.r2) * 100)} % of the variation (at least ${Math.round(cfg.min_r2 * 100)} % needed)`,
+      ...base,
+      ...none,
+    };
   }
-  if (fit.slope < 0) return { state: 'falling', why: `falling ${perDay(-fit.slope)} (95 % range ${range})`, ...base, ...none };
+  if (fit.slope < 0)
+    return {
+      state: 'falling',
+      why: `falling ${perDay(-fit.slope)} (95 % range ${range})`,
+      ...base,
+      ...none,
+    };
 
-  const next = [...limits].sort((a, b) => a.value_mm_s - b.value_mm_s).find((l) => l.value_mm_s > fittedNow) ?? null;
+  const next =
+    [...limits].sort((a, b) => a.value_mm_s - b.value_mm_s).find((l) => l.value_mm_s > fittedNow) ??
+    null;
   const tEndMs = t[n - 1]!;
-  if (!next) return { state: 'rising', why: `rising ${perDay(fit.slope)} (95 % range ${range}), already above every limit`, ...base, ...none };
+  if (!next)
+    return {
+      state: 'rising',
+      why: `rising ${perDay(fit.slope)} (95 % range ${range}), already above every limit`,
+      ...base,
+      ...none,
+    };
   const gap = next.value_mm_s - fittedNow;
   const at = tEndMs + (gap / fit.slope) * 1000;
   return {
@@ -203,14 +245,24 @@ export function seriesTrend(tMs: readonly number[], values: readonly (number | n
     ...base,
     next_limit: next,
     crossing_at: iso(at),
-    crossing_range: [iso(tEndMs + (gap / fit.slopeHigh) * 1000), iso(tEndMs + (gap / fit.slopeLow) * 1000)],
+    crossing_range: [
+      iso(tEndMs + (gap / fit.slopeHigh) * 1000),
+      iso(tEndMs + (gap / fit.slopeLow) * 1000),
+    ],
   };
 }
 
 export interface TrendReport {
-  readonly channels: Readonly<Record<string, { readonly overall: SeriesTrend; readonly one_x: SeriesTrend }>>;
+  readonly channels: Readonly<
+    Record<string, { readonly overall: SeriesTrend; readonly one_x: SeriesTrend }>
+  >;
   /** The soonest forecast crossing over all sensors, or null. */
-  readonly soonest: { readonly sensor: string; readonly series: 'overall' | 'one_x'; readonly limit: NamedLimit; readonly crossing_at: string } | null;
+  readonly soonest: {
+    readonly sensor: string;
+    readonly series: 'overall' | 'one_x';
+    readonly limit: NamedLimit;
+    readonly crossing_at: string;
+  } | null;
 }
 
 /**
@@ -218,7 +270,11 @@ export interface TrendReport {
  * a baseline exists, of the alarm level. (1x reaching a limit means the overall is at least there too.)
  * History from before a learned baseline (an earlier balance state) is left out.
  */
-export function trendReport(s: WatcherSettings, allPoints: readonly HistoryPoint[], baseline: Baseline | null): TrendReport {
+export function trendReport(
+  s: WatcherSettings,
+  allPoints: readonly HistoryPoint[],
+  baseline: Baseline | null,
+): TrendReport {
   const since = baseline?.learned_at ? Date.parse(baseline.learned_at) : -Infinity;
   const allMs = allPoints.map((p) => Date.parse(p.ts));
   const keep = allPoints.flatMap((_, i) => (allMs[i]! >= since ? [i] : []));
@@ -232,16 +288,29 @@ export function trendReport(s: WatcherSettings, allPoints: readonly HistoryPoint
       { name: 'zone B/C', value_mm_s: s.limits.bc_mm_s },
       { name: 'zone C/D', value_mm_s: s.limits.cd_mm_s },
     ];
-    const baseOverall = s.w.baseline_alarm ? (baseline?.channels[sensor.id]?.overall_rms_mm_s ?? null) : null;
-    if (baseOverall !== null) limits.push({ name: 'alarm', value_mm_s: baselineAlarmMmS(baseOverall, s.limits.bc_mm_s) });
+    const baseOverall = s.w.baseline_alarm
+      ? (baseline?.channels[sensor.id]?.overall_rms_mm_s ?? null)
+      : null;
+    if (baseOverall !== null)
+      limits.push({ name: 'alarm', value_mm_s: baselineAlarmMmS(baseOverall, s.limits.bc_mm_s) });
     const series = (key: 'overall_rms_mm_s' | 'one_x_rms_mm_s'): SeriesTrend =>
-      seriesTrend(tMs, points.map((p) => p.channels[sensor.id]?.[key] ?? null), limits, s.w.trend);
+      seriesTrend(
+        tMs,
+        points.map((p) => p.channels[sensor.id]?.[key] ?? null),
+        limits,
+        s.w.trend,
+      );
     const t = { overall: series('overall_rms_mm_s'), one_x: series('one_x_rms_mm_s') };
     channels[sensor.id] = t;
     for (const key of ['overall', 'one_x'] as const) {
       const st = t[key];
       if (st.crossing_at && st.next_limit && (!soonest || st.crossing_at < soonest.crossing_at)) {
-        soonest = { sensor: sensor.id, series: key, limit: st.next_limit, crossing_at: st.crossing_at };
+        soonest = {
+          sensor: sensor.id,
+          series: key,
+          limit: st.next_limit,
+          crossing_at: st.crossing_at,
+        };
       }
     }
   }

@@ -17,7 +17,15 @@ import { zoneIndex, worseZone, zoneWithHysteresis, type Zone } from './limits.js
 import { resolveWatcherSettings, type WatcherSettings } from './settings.js';
 import type { RecentWindow } from './signature.js';
 import type { SweepEvidence } from './rules/types.js';
-import { StateTable, STATE_VERSION, type ConfirmedStates, type StateChange, type StateKey, type ValueOf, type WatcherSnapshot } from './state-table.js';
+import {
+  StateTable,
+  STATE_VERSION,
+  type ConfirmedStates,
+  type StateChange,
+  type StateKey,
+  type ValueOf,
+  type WatcherSnapshot,
+} from './state-table.js';
 import {
   FileBaselineStore,
   FileCoefficientsSource,
@@ -75,7 +83,12 @@ function errorText(e: unknown): string {
 }
 
 /** Boolean state with hysteresis: once true, it stays true until the value falls `share` below the limit. */
-function overWithHysteresis(prev: boolean | undefined, value: number, limit: number, share: number): boolean {
+function overWithHysteresis(
+  prev: boolean | undefined,
+  value: number,
+  limit: number,
+  share: number,
+): boolean {
   return prev ? value > limit * (1 - share) : value >= limit;
 }
 
@@ -116,28 +129,53 @@ export class Watcher {
   ) {
     const s = (this.settings = resolveWatcherSettings(cfg));
     // Only resolved() ends a burst: every window (state) or history point retries the save.
-    this.burst = new BurstLog(deps.log, { nowMs: () => deps.clock.now(), quietMs: Infinity, summaryEveryMs: 3600_000 });
-    const prev = this.loadOrQuarantine(deps.stateStore, null, 'the watcher starts afresh: the current zones and states are reported again');
+    this.burst = new BurstLog(deps.log, {
+      nowMs: () => deps.clock.now(),
+      quietMs: Infinity,
+      summaryEveryMs: 3600_000,
+    });
+    const prev = this.loadOrQuarantine(
+      deps.stateStore,
+      null,
+      'the watcher starts afresh: the current zones and states are reported again',
+    );
     this.run = (prev?.run ?? 0) + 1;
     // Without the stored start counter, the next one is unknown: count on from the clock's seconds, so
     // event ids do not repeat those of earlier starts.
     if (this.quarantined.length) this.run = this.runFromClock();
-    this.states = new StateTable(s.w, s.sensors.map((x) => x.id), prev);
+    this.states = new StateTable(
+      s.w,
+      s.sensors.map((x) => x.id),
+      prev,
+    );
     for (const sensor of s.sensors) {
       const z = prev?.zones[sensor.id];
       if (z) this.zoneHyst.set(sensor.id, z);
     }
 
     const fromConfig = baselineFromConfig(s);
-    const stored = this.loadOrQuarantine(deps.baselineStore, null, 'no learned baseline: learn it again at steady running (baseline-relative alarm and vector change are off until then)');
+    const stored = this.loadOrQuarantine(
+      deps.baselineStore,
+      null,
+      'no learned baseline: learn it again at steady running (baseline-relative alarm and vector change are off until then)',
+    );
     if (stored && stored.asset !== s.asset) {
-      throw new UserError('state_dir', `the stored baseline belongs to asset "${stored.asset}", this config is for "${s.asset}"`, 'point state_dir at this fan\'s own state directory');
+      throw new UserError(
+        'state_dir',
+        `the stored baseline belongs to asset "${stored.asset}", this config is for "${s.asset}"`,
+        "point state_dir at this fan's own state directory",
+      );
     }
-    if (fromConfig && stored) this.note('a learned baseline is stored but watcher.baseline in the config takes precedence');
+    if (fromConfig && stored)
+      this.note('a learned baseline is stored but watcher.baseline in the config takes precedence');
     this.baselineValue = fromConfig ?? stored;
 
     const noHistory = { points: [], warnings: [], rewrite: false };
-    this.history = new History(deps.historyStore, s.w.history.max_points, this.loadOrQuarantine(deps.historyStore, noHistory, 'the history starts afresh'));
+    this.history = new History(
+      deps.historyStore,
+      s.w.history.max_points,
+      this.loadOrQuarantine(deps.historyStore, noHistory, 'the history starts afresh'),
+    );
     for (const w of this.history.warnings) this.note(w);
     this.guarded(HISTORY_NOT_SAVED, () => this.history.flush(), 'history saved again');
     this.aggregator = new HistoryAggregator(s.w.history.interval_s);
@@ -158,14 +196,20 @@ export class Watcher {
    * Loads one stored file. A damaged one does not stop the watcher: it is moved aside, said loudly
    * (log, status, an event with the first window), and the watcher goes on with `fresh`.
    */
-  private loadOrQuarantine<T, F>(store: Quarantinable & { load(): T }, fresh: F, consequence: string): T | F {
+  private loadOrQuarantine<T, F>(
+    store: Quarantinable & { load(): T },
+    fresh: F,
+    consequence: string,
+  ): T | F {
     try {
       return store.load();
     } catch (e) {
       if (!(e instanceof DamagedFileError)) throw e;
       const movedTo = store.quarantine(this.deps.clock.now());
       this.quarantined.push({ file: e.file, moved_to: movedTo, problem: e.problem });
-      this.note(`${e.file} is damaged (${e.problem}); ${movedTo ? `moved to ${movedTo} for inspection` : 'it could not be moved aside'}; ${consequence}`);
+      this.note(
+        `${e.file} is damaged (${e.problem}); ${movedTo ? `moved to ${movedTo} for inspection` : 'it could not be moved aside'}; ${consequence}`,
+      );
       return fresh;
     }
   }
@@ -199,14 +243,23 @@ export class Watcher {
   /** Starts learning a baseline from the coming windows (healthy sensors, steady speed). */
   startLearning(): void {
     if (this.settings.w.baseline) {
-      throw new UserError('watcher.baseline', 'the baseline is set in the config', 'remove watcher.baseline from the config to learn one from the running fan');
+      throw new UserError(
+        'watcher.baseline',
+        'the baseline is set in the config',
+        'remove watcher.baseline from the config to learn one from the running fan',
+      );
     }
     this.learner = new BaselineLearner(this.settings);
   }
 
   /** Ends learning, stores the baseline and starts comparing against it. */
   stopLearning(): { baseline: Baseline; left_out: string[] } {
-    if (!this.learner) throw new UserError('baseline learning', 'learning was not started', 'start learning first, let the fan run steadily for a few windows, then stop');
+    if (!this.learner)
+      throw new UserError(
+        'baseline learning',
+        'learning was not started',
+        'start learning first, let the fan run steadily for a few windows, then stop',
+      );
     const res = this.learner.finish(new Date(this.deps.clock.now()).toISOString());
     this.deps.baselineStore.save(res.baseline); // when this throws, learning goes on and stopping can be tried again
     this.learner = null;
@@ -235,7 +288,12 @@ export class Watcher {
   process(window: WindowResult): WatchUpdate {
     const s = this.settings;
     const nowMs = this.deps.clock.now();
-    const origin: EventOrigin = { asset: s.asset, run: this.run, window, ts: new Date(nowMs).toISOString() };
+    const origin: EventOrigin = {
+      asset: s.asset,
+      run: this.run,
+      window,
+      ts: new Date(nowMs).toISOString(),
+    };
     const health = assessHealth(window, s);
     const a = assessWith(s, window, health, this.baselineValue, this.recent, this.sweepEvidence);
     this.recent.push({ window, health });
@@ -246,13 +304,29 @@ export class Watcher {
     const t0 = window.start_index / window.sample_rate_hz;
     const t1 = window.end_index / window.sample_rate_hz;
     const events: AgentEvent[] = [];
-    const emit = (...args: Parameters<typeof watcherEvent> extends [EventOrigin, ...infer R] ? R : never): void => {
+    const emit = (
+      ...args: Parameters<typeof watcherEvent> extends [EventOrigin, ...infer R] ? R : never
+    ): void => {
       events.push(watcherEvent(origin, ...args));
     };
     /** Feeds one state of the table; a confirmed change raises the row's event with `fields`. */
-    const track = <K extends StateKey>(key: K, subject: string, seen: ValueOf<K>, fields: (c: StateChange<ValueOf<K>>) => object): StateChange<ValueOf<K>> | null => {
+    const track = <K extends StateKey>(
+      key: K,
+      subject: string,
+      seen: ValueOf<K>,
+      fields: (c: StateChange<ValueOf<K>>) => object,
+    ): StateChange<ValueOf<K>> | null => {
       const c = this.states.update(key, subject, seen, t0, t1);
-      if (c?.event) events.push(watcherEvent(origin, c.event.type as WatcherEventType, subject, c.event.severity, fields(c) as never));
+      if (c?.event)
+        events.push(
+          watcherEvent(
+            origin,
+            c.event.type as WatcherEventType,
+            subject,
+            c.event.severity,
+            fields(c) as never,
+          ),
+        );
       return c;
     };
 
@@ -267,8 +341,12 @@ export class Watcher {
 
     // Sensors and tach.
     for (const h of health.channels) {
-      track('sensor_ok', h.id, h.ok, (c) => (c.to ? {} : { problems: h.problems, faults: h.faults }));
-      track('sensor_doubt', h.id, h.ok && h.doubts.length > 0, (c) => (c.to ? { doubts: h.doubts } : {}));
+      track('sensor_ok', h.id, h.ok, (c) =>
+        c.to ? {} : { problems: h.problems, faults: h.faults },
+      );
+      track('sensor_doubt', h.id, h.ok && h.doubts.length > 0, (c) =>
+        c.to ? { doubts: h.doubts } : {},
+      );
     }
     track('tach', 'machine', health.tach.state, () => ({ why: health.tach.why }));
 
@@ -276,7 +354,13 @@ export class Watcher {
     if (a.speed.state !== null) {
       track('speed', 'machine', a.speed.state, (c) =>
         c.to !== 'in_range'
-          ? { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm, why: a.speed.pulses_per_rev_hint ? `${a.speed.why}; ${a.speed.pulses_per_rev_hint.why}` : a.speed.why }
+          ? {
+              speed_rpm: a.speed.speed_rpm,
+              range_rpm: a.speed.range_rpm,
+              why: a.speed.pulses_per_rev_hint
+                ? `${a.speed.why}; ${a.speed.pulses_per_rev_hint.why}`
+                : a.speed.why,
+            }
           : { speed_rpm: a.speed.speed_rpm, range_rpm: a.speed.range_rpm },
       );
     }
@@ -290,43 +374,95 @@ export class Watcher {
       for (const h of health.channels) {
         const cz = a.zone.channels[h.id]!;
         if (cz.zone === null) continue;
-        const z = zoneWithHysteresis(cz.overall_rms_mm_s!, this.zoneHyst.get(h.id) ?? null, a.zone.limits, s.w.hysteresis_share);
+        const z = zoneWithHysteresis(
+          cz.overall_rms_mm_s!,
+          this.zoneHyst.get(h.id) ?? null,
+          a.zone.limits,
+          s.w.hysteresis_share,
+        );
         this.zoneHyst.set(h.id, z);
         machine = machine ? worseZone(machine, z) : z;
         const sure: Zone = h.doubts.length && z === 'D' ? 'C' : z;
         if (sure !== z) doubtfulD.push(h.id);
         machineSure = machineSure ? worseZone(machineSure, sure) : sure;
-        track('zones', h.id, z, (c) => ({ scope: 'sensor', zone: c.to, from_zone: c.from ?? null, overall_rms_mm_s: cz.overall_rms_mm_s!, limits: a.zone.limits }));
-        const over = overWithHysteresis(this.states.value('over_alarm', h.id), cz.overall_rms_mm_s!, cz.alarm_mm_s, s.w.hysteresis_share);
+        track('zones', h.id, z, (c) => ({
+          scope: 'sensor',
+          zone: c.to,
+          from_zone: c.from ?? null,
+          overall_rms_mm_s: cz.overall_rms_mm_s!,
+          limits: a.zone.limits,
+        }));
+        const over = overWithHysteresis(
+          this.states.value('over_alarm', h.id),
+          cz.overall_rms_mm_s!,
+          cz.alarm_mm_s,
+          s.w.hysteresis_share,
+        );
         track('over_alarm', h.id, over, (c) =>
-          c.to ? { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s, baseline: this.baselineValue !== null } : { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s },
+          c.to
+            ? {
+                overall_rms_mm_s: cz.overall_rms_mm_s,
+                alarm_mm_s: cz.alarm_mm_s,
+                baseline: this.baselineValue !== null,
+              }
+            : { overall_rms_mm_s: cz.overall_rms_mm_s, alarm_mm_s: cz.alarm_mm_s },
         );
       }
       // Two doubtful sensors that agree on D are not one channel alone.
       if (machineSure && doubtfulD.length >= 2) machineSure = worseZone(machineSure, 'D');
       if (machine && machineSure) {
         const held = zoneIndex(machineSure) < zoneIndex(machine);
-        track('machine_zone', 'machine', machineSure, (c) => ({ scope: 'machine', zone: c.to, from_zone: c.from ?? null, limits: a.zone.limits, ...(held ? { held_below_d_by: doubtfulD } : {}) }));
+        track('machine_zone', 'machine', machineSure, (c) => ({
+          scope: 'machine',
+          zone: c.to,
+          from_zone: c.from ?? null,
+          limits: a.zone.limits,
+          ...(held ? { held_below_d_by: doubtfulD } : {}),
+        }));
       }
 
       // Unbalance and vector change need the phase reference.
       if (health.tach.state === 'ok') {
         const u = a.unbalance;
-        const fields = { kind: u.kind, confidence: u.confidence, evidence: u.evidence, limits: u.limits };
+        const fields = {
+          kind: u.kind,
+          confidence: u.confidence,
+          evidence: u.evidence,
+          limits: u.limits,
+        };
         track('unbalance', 'machine', u.kind, (c) =>
-          c.event?.type === 'unbalance_cleared' ? { ...fields, from_kind: c.from, points_to: u.points_to } : c.event?.type === 'unbalance_kind_changed' ? { ...fields, from_kind: c.from } : fields,
+          c.event?.type === 'unbalance_cleared'
+            ? { ...fields, from_kind: c.from, points_to: u.points_to }
+            : c.event?.type === 'unbalance_kind_changed'
+              ? { ...fields, from_kind: c.from }
+              : fields,
         );
 
         for (const [id, vc] of Object.entries(a.vector_change ?? {})) {
-          const changed = overWithHysteresis(this.states.value('vector_changed', id), vc.delta_mm_s, a.vector_change_limit_mm_s, s.w.hysteresis_share);
-          track('vector_changed', id, changed, () => ({ delta_mm_s: vc.delta_mm_s, amp_change_mm_s: vc.amp_change_mm_s, phase_change_deg: vc.phase_change_deg, limit_mm_s: a.vector_change_limit_mm_s }));
+          const changed = overWithHysteresis(
+            this.states.value('vector_changed', id),
+            vc.delta_mm_s,
+            a.vector_change_limit_mm_s,
+            s.w.hysteresis_share,
+          );
+          track('vector_changed', id, changed, () => ({
+            delta_mm_s: vc.delta_mm_s,
+            amp_change_mm_s: vc.amp_change_mm_s,
+            phase_change_deg: vc.phase_change_deg,
+            limit_mm_s: a.vector_change_limit_mm_s,
+          }));
         }
-        if (this.learner && (a.speed.state === 'in_range' || a.speed.state === null)) this.learner.add(window, health);
+        if (this.learner && (a.speed.state === 'in_range' || a.speed.state === null))
+          this.learner.add(window, health);
       }
 
       const point = this.aggregator.add(window, health, nowMs);
       if (point) {
-        this.guarded(HISTORY_NOT_SAVED, () => this.history.add(point), 'history saved again (points kept in memory meanwhile written)');
+        this.guarded(
+          HISTORY_NOT_SAVED,
+          () => this.history.add(point),
+          'history saved again (points kept in memory meanwhile written)',
+        );
         this.trendCache = this.computeTrend();
       }
     }
@@ -397,7 +533,9 @@ export class Watcher {
     const { version: _v, run: _r, ...confirmed } = snap;
     return {
       ts: new Date(this.deps.clock.now()).toISOString(),
-      window: this.lastWindow ? { start_index: this.lastWindow.start_index, end_index: this.lastWindow.end_index } : null,
+      window: this.lastWindow
+        ? { start_index: this.lastWindow.start_index, end_index: this.lastWindow.end_index }
+        : null,
       latest: this.latest,
       confirmed,
       baseline: this.baselineValue,
@@ -410,7 +548,11 @@ export class Watcher {
 }
 
 /** A watcher over the real files under `cfg.state_dir`. */
-export function openWatcher(cfg: Config, clock: Clock = systemClock, log: Logger = silentLogger): Watcher {
+export function openWatcher(
+  cfg: Config,
+  clock: Clock = systemClock,
+  log: Logger = silentLogger,
+): Watcher {
   return new Watcher(cfg, {
     clock,
     log,

@@ -9,7 +9,13 @@ import { parseJsonFile, readTextOrNull } from './files.js';
  * of them, or an object holding them under "windows" or "window" (e.g. the output of an analysis).
  */
 
-const orderSchema = z.object({ order: z.number(), freq_hz: z.number(), amp_pk_mm_s: z.number().min(0), amp_rms_mm_s: z.number().min(0), phase_deg: z.number() });
+const orderSchema = z.object({
+  order: z.number(),
+  freq_hz: z.number(),
+  amp_pk_mm_s: z.number().min(0),
+  amp_rms_mm_s: z.number().min(0),
+  phase_deg: z.number(),
+});
 /** agent/dsp/signal-facts.ts (absent in windows written before it existed). */
 const pileSchema = z.object({ v: z.number(), samples: z.number().int(), below: z.number().int() });
 const signalSchema = z.object({
@@ -40,7 +46,9 @@ const channelSchema = z.object({
   overall_rms_mm_s: z.number().nullable(),
   orders: z.record(z.string(), orderSchema),
   one_x_share: z.number().nullable(),
-  nonsync_peaks: z.array(z.object({ freq_hz: z.number(), order: z.number(), amp_rms_mm_s: z.number() })),
+  nonsync_peaks: z.array(
+    z.object({ freq_hz: z.number(), order: z.number(), amp_rms_mm_s: z.number() }),
+  ),
   stats: z.object({
     dc_v: z.number(),
     ac_rms_v: z.number(),
@@ -64,20 +72,41 @@ export const windowResultSchema: z.ZodType<WindowResult> = z.object({
   spectrum_segments: z.number().int(),
   spectrum_resolution_hz: z.number(),
   gap_samples: z.number().int(),
-  tach: z.object({ edges: z.number().int(), missing_pulses: z.number().int(), double_triggers: z.number().int(), min_v: z.number().nullable(), max_v: z.number().nullable() }),
+  tach: z.object({
+    edges: z.number().int(),
+    missing_pulses: z.number().int(),
+    double_triggers: z.number().int(),
+    min_v: z.number().nullable(),
+    max_v: z.number().nullable(),
+  }),
   channels: z.array(channelSchema),
   warnings: z.array(z.string()),
 });
 
 export function readWindowsFile(file: string): WindowResult[] {
   const text = readTextOrNull(file);
-  if (text === null) throw new UserError(file, 'file not found', 'give a JSON file of DSP windows (one window, a list, or an object with "windows")');
+  if (text === null)
+    throw new UserError(
+      file,
+      'file not found',
+      'give a JSON file of DSP windows (one window, a list, or an object with "windows")',
+    );
   const raw = parseJsonFile(file, text);
   const obj = raw as Record<string, unknown> | null;
-  const list: unknown = Array.isArray(raw) ? raw : obj && typeof obj === 'object' && 'windows' in obj ? obj['windows'] : obj && typeof obj === 'object' && 'window' in obj ? [obj['window']] : [raw];
+  const list: unknown = Array.isArray(raw)
+    ? raw
+    : obj && typeof obj === 'object' && 'windows' in obj
+      ? obj['windows']
+      : obj && typeof obj === 'object' && 'window' in obj
+        ? [obj['window']]
+        : [raw];
   const res = z.array(windowResultSchema).min(1).safeParse(list);
   if (!res.success) {
-    throw new UserError(file, `not DSP windows:\n  ${formatIssues(file, res.error.issues, list).slice(0, 8).join('\n  ')}`, 'give the JSON the DSP wrote for the recording (WindowResult fields)');
+    throw new UserError(
+      file,
+      `not DSP windows:\n  ${formatIssues(file, res.error.issues, list).slice(0, 8).join('\n  ')}`,
+      'give the JSON the DSP wrote for the recording (WindowResult fields)',
+    );
   }
   return res.data;
 }

@@ -1,7 +1,14 @@
 import type { WindowResult } from '../dsp/types.js';
 import type { Baseline } from './baseline.js';
 import type { HealthReport } from './health.js';
-import { baselineAlarmMmS, classifyZone, scaleBoundaries, worseZone, type Boundaries, type Zone } from './limits.js';
+import {
+  baselineAlarmMmS,
+  classifyZone,
+  scaleBoundaries,
+  worseZone,
+  type Boundaries,
+  type Zone,
+} from './limits.js';
 import type { WatcherSettings } from './settings.js';
 import type { SpeedState } from './stores.js';
 
@@ -38,7 +45,10 @@ const PPR_STEADY_SPREAD = 0.015;
  * Reported only when a whole pulses_per_rev would fit. A fan that really runs at 1/k of rated (a
  * variable-speed drive) gets the same hint; the words say so.
  */
-export function pulsesPerRevHint(s: WatcherSettings, window: WindowResult): PulsesPerRevHint | null {
+export function pulsesPerRevHint(
+  s: WatcherSettings,
+  window: WindowResult,
+): PulsesPerRevHint | null {
   const rated = s.ratedRpm;
   const v = window.speed_rpm;
   if (rated === null || v === null || !(v > 0)) return null;
@@ -50,11 +60,21 @@ export function pulsesPerRevHint(s: WatcherSettings, window: WindowResult): Puls
   for (let k = 2; k <= PPR_MAX_FACTOR; k++) {
     if (Math.abs(v / (rated * k) - 1) <= PPR_RATIO_TOLERANCE) {
       const fits = ppr * k;
-      return { speed_ratio: k, configured: ppr, fits, why: `${at} is about ${k} x machine.rated_rpm (${rated}): tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulses per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders` };
+      return {
+        speed_ratio: k,
+        configured: ppr,
+        fits,
+        why: `${at} is about ${k} x machine.rated_rpm (${rated}): tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulses per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders`,
+      };
     }
     if (ppr % k === 0 && Math.abs((v * k) / rated - 1) <= PPR_RATIO_TOLERANCE) {
       const fits = ppr / k;
-      return { speed_ratio: 1 / k, configured: ppr, fits, why: `${at} is about 1/${k} of machine.rated_rpm (${rated}): unless the fan really runs at 1/${k} of its rated speed, tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulse(s) per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders` };
+      return {
+        speed_ratio: 1 / k,
+        configured: ppr,
+        fits,
+        why: `${at} is about 1/${k} of machine.rated_rpm (${rated}): unless the fan really runs at 1/${k} of its rated speed, tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulse(s) per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders`,
+      };
     }
   }
   return null;
@@ -63,14 +83,48 @@ export function pulsesPerRevHint(s: WatcherSettings, window: WindowResult): Puls
 export function speedReport(s: WatcherSettings, window: WindowResult): SpeedReport {
   const rated = s.ratedRpm;
   const v = window.speed_rpm;
-  if (rated === null) return { state: null, speed_rpm: v, range_rpm: null, why: 'machine.rated_rpm not set: speed range not checked', pulses_per_rev_hint: null };
+  if (rated === null)
+    return {
+      state: null,
+      speed_rpm: v,
+      range_rpm: null,
+      why: 'machine.rated_rpm not set: speed range not checked',
+      pulses_per_rev_hint: null,
+    };
   const range = { min: s.w.min_speed_share * rated, max: s.w.max_speed_share * rated };
-  if (v === null) return { state: null, speed_rpm: null, range_rpm: range, why: 'no speed in this window', pulses_per_rev_hint: null };
+  if (v === null)
+    return {
+      state: null,
+      speed_rpm: null,
+      range_rpm: range,
+      why: 'no speed in this window',
+      pulses_per_rev_hint: null,
+    };
   const at = `${v.toFixed(0)} r/min`;
   const hint = pulsesPerRevHint(s, window);
-  if (v < range.min) return { state: 'low', speed_rpm: v, range_rpm: range, why: `${at} is below ${range.min.toFixed(0)} r/min (${Math.round(s.w.min_speed_share * 100)} % of rated): starting or coasting down`, pulses_per_rev_hint: hint };
-  if (v > range.max) return { state: 'high', speed_rpm: v, range_rpm: range, why: `${at} is above ${range.max.toFixed(0)} r/min (${Math.round(s.w.max_speed_share * 100)} % of rated)`, pulses_per_rev_hint: hint };
-  return { state: 'in_range', speed_rpm: v, range_rpm: range, why: `${at}, within ${range.min.toFixed(0)}-${range.max.toFixed(0)} r/min`, pulses_per_rev_hint: hint };
+  if (v < range.min)
+    return {
+      state: 'low',
+      speed_rpm: v,
+      range_rpm: range,
+      why: `${at} is below ${range.min.toFixed(0)} r/min (${Math.round(s.w.min_speed_share * 100)} % of rated): starting or coasting down`,
+      pulses_per_rev_hint: hint,
+    };
+  if (v > range.max)
+    return {
+      state: 'high',
+      speed_rpm: v,
+      range_rpm: range,
+      why: `${at} is above ${range.max.toFixed(0)} r/min (${Math.round(s.w.max_speed_share * 100)} % of rated)`,
+      pulses_per_rev_hint: hint,
+    };
+  return {
+    state: 'in_range',
+    speed_rpm: v,
+    range_rpm: range,
+    why: `${at}, within ${range.min.toFixed(0)}-${range.max.toFixed(0)} r/min`,
+    pulses_per_rev_hint: hint,
+  };
 }
 
 export interface ChannelZone {
@@ -96,7 +150,13 @@ export interface ZoneReport {
 }
 
 /** Zones of one window with no memory (no hysteresis, no on-delay). */
-export function evaluateZones(s: WatcherSettings, window: WindowResult, health: HealthReport, baseline: Baseline | null, speed: SpeedReport): ZoneReport {
+export function evaluateZones(
+  s: WatcherSettings,
+  window: WindowResult,
+  health: HealthReport,
+  baseline: Baseline | null,
+  speed: SpeedReport,
+): ZoneReport {
   const notes: string[] = [];
   const startup = speed.state === 'low';
   const multiplier = startup && s.w.below_min_speed === 'raise' ? s.w.startup_multiplier : 1;
@@ -109,7 +169,9 @@ export function evaluateZones(s: WatcherSettings, window: WindowResult, health: 
   let machine: Zone | null = null;
   for (const h of health.channels) {
     const overall = byId.get(h.id)?.overall_rms_mm_s ?? null;
-    const baseOverall = s.w.baseline_alarm ? (baseline?.channels[h.id]?.overall_rms_mm_s ?? null) : null;
+    const baseOverall = s.w.baseline_alarm
+      ? (baseline?.channels[h.id]?.overall_rms_mm_s ?? null)
+      : null;
     const alarm = baselineAlarmMmS(baseOverall, s.limits.bc_mm_s) * multiplier;
     const zone = h.ok && overall !== null ? classifyZone(overall, b) : null;
     if (h.ok && overall === null) notes.push(`${h.id}: no overall r.m.s. in this window`);
@@ -123,5 +185,11 @@ export function evaluateZones(s: WatcherSettings, window: WindowResult, health: 
       over_alarm: zone !== null && overall! > alarm,
     };
   }
-  return { machine: machine ?? 'unknown', channels, limits: { ...b, basis: s.limits.basis, multiplier }, inhibited, notes };
+  return {
+    machine: machine ?? 'unknown',
+    channels,
+    limits: { ...b, basis: s.limits.basis, multiplier },
+    inhibited,
+    notes,
+  };
 }

@@ -44,16 +44,28 @@ export class FakeGpioLines implements GpioLines {
     this.nowMs = opts.nowMs ?? Date.now;
   }
 
-  private add(name: string, line: number, kind: 'output' | 'input', initial: boolean, edge: 'rising' | 'falling' | 'both'): FakeLine {
+  private add(
+    name: string,
+    line: number,
+    kind: 'output' | 'input',
+    initial: boolean,
+    edge: 'rising' | 'falling' | 'both',
+  ): FakeLine {
     const byName = this.lines.get(name);
     if (byName && !byName.closed) throw new Error(`GPIO name "${name}" is already in use`);
-    for (const l of this.lines.values()) if (l.line === line && !l.closed) throw new Error(`GPIO line ${line} is already used by "${l.name}"`);
+    for (const l of this.lines.values())
+      if (l.line === line && !l.closed)
+        throw new Error(`GPIO line ${line} is already used by "${l.name}"`);
     const l = new FakeLine(name, line, kind, initial, edge);
     this.lines.set(name, l);
     return l;
   }
 
-  async output(name: string, line: number, opts: { activeLow?: boolean; initial?: boolean } = {}): Promise<DigitalOutput> {
+  async output(
+    name: string,
+    line: number,
+    opts: { activeLow?: boolean; initial?: boolean } = {},
+  ): Promise<DigitalOutput> {
     const l = this.add(name, line, 'output', opts.initial ?? false, 'both');
     l.history.push({ on: l.value, atMs: this.nowMs() });
     return {
@@ -73,7 +85,11 @@ export class FakeGpioLines implements GpioLines {
     };
   }
 
-  async input(name: string, line: number, opts: { activeLow?: boolean; debounceMs?: number; edge?: 'rising' | 'falling' | 'both' } = {}): Promise<DigitalInput> {
+  async input(
+    name: string,
+    line: number,
+    opts: { activeLow?: boolean; debounceMs?: number; edge?: 'rising' | 'falling' | 'both' } = {},
+  ): Promise<DigitalInput> {
     const l = this.add(name, line, 'input', false, opts.edge ?? 'both');
     return {
       read: async () => {
@@ -94,7 +110,10 @@ export class FakeGpioLines implements GpioLines {
 
   private get(name: string, kind: 'output' | 'input'): FakeLine {
     const l = this.lines.get(name);
-    if (!l || l.kind !== kind) throw new Error(`no ${kind} named "${name}" (have: ${[...this.lines.keys()].join(', ') || 'none'})`);
+    if (!l || l.kind !== kind)
+      throw new Error(
+        `no ${kind} named "${name}" (have: ${[...this.lines.keys()].join(', ') || 'none'})`,
+      );
     return l;
   }
 
@@ -104,7 +123,8 @@ export class FakeGpioLines implements GpioLines {
     if (l.value === value) return;
     l.value = value;
     if (l.closed) return;
-    if (l.edge === 'both' || (l.edge === 'rising') === value) for (const fn of [...l.listeners]) fn(value, atMs);
+    if (l.edge === 'both' || (l.edge === 'rising') === value)
+      for (const fn of [...l.listeners]) fn(value, atMs);
   }
 
   /** Presses a button (input goes active) ... */

@@ -9,14 +9,31 @@
  * configured and driven by its physical level, so "high"/"low" at export, edges and values mean
  * the same thing on every kernel.
  */
-import type { BinaryValue, Direction, Edge, Gpio as OnoffGpio, Options as OnoffOptions } from 'onoff';
+import type {
+  BinaryValue,
+  Direction,
+  Edge,
+  Gpio as OnoffGpio,
+  Options as OnoffOptions,
+} from 'onoff';
 import { UserError } from '../../agent/errors.js';
 import type { Logger } from '../../agent/log.js';
-import { globalLineNumber, pickGpioChip, readGpioChips, SYSFS_GPIO_ROOT, type GpioChip } from './sysfs-chips.js';
+import {
+  globalLineNumber,
+  pickGpioChip,
+  readGpioChips,
+  SYSFS_GPIO_ROOT,
+  type GpioChip,
+} from './sysfs-chips.js';
 import type { DigitalInput, DigitalOutput, EdgeListener, GpioLines } from './types.js';
 
 /** The part of onoff's Gpio class this adapter uses (tests pass a stand-in). */
-export type GpioClass = new (gpio: number, direction: Direction, edge?: Edge, options?: OnoffOptions) => Pick<OnoffGpio, 'read' | 'write' | 'watch' | 'unwatch' | 'unexport'>;
+export type GpioClass = new (
+  gpio: number,
+  direction: Direction,
+  edge?: Edge,
+  options?: OnoffOptions,
+) => Pick<OnoffGpio, 'read' | 'write' | 'watch' | 'unwatch' | 'unexport'>;
 
 export interface OnoffLinesOptions {
   /** Label of the GPIO chip the line offsets refer to (e.g. "pinctrl-bcm2711"); see pickGpioChip. */
@@ -27,25 +44,52 @@ export interface OnoffLinesOptions {
 }
 
 /** Turns an export/configure failure into a message that says what to do. */
-export function explainGpioError(err: unknown, name: string, offset: number, global: number, chip: GpioChip): UserError {
+export function explainGpioError(
+  err: unknown,
+  name: string,
+  offset: number,
+  global: number,
+  chip: GpioChip,
+): UserError {
   const e = err as NodeJS.ErrnoException;
   const where = `GPIO "${name}" (line ${offset} on ${chip.name} "${chip.label}", sysfs number ${global})`;
   switch (e?.code) {
     case 'EACCES':
     case 'EPERM':
-      return new UserError(where, `permission denied on the sysfs GPIO files (${e.message})`, 'add the service user to the gpio group (sudo usermod -aG gpio USER, then restart the service) or install the udev rule deploy/udev/99-turnwise-gpio.rules');
+      return new UserError(
+        where,
+        `permission denied on the sysfs GPIO files (${e.message})`,
+        'add the service user to the gpio group (sudo usermod -aG gpio USER, then restart the service) or install the udev rule deploy/udev/99-turnwise-gpio.rules',
+      );
     case 'EINVAL':
-      return new UserError(where, `the kernel refused GPIO number ${global} (${e.message})`, 'check the chip label and the line offset; numbers are chip base + offset and the base changes between kernels');
+      return new UserError(
+        where,
+        `the kernel refused GPIO number ${global} (${e.message})`,
+        'check the chip label and the line offset; numbers are chip base + offset and the base changes between kernels',
+      );
     case 'EBUSY':
-      return new UserError(where, `the line is already in use by a kernel driver or another program (${e.message})`, 'free the line (see `cat /sys/kernel/debug/gpio` as root) or wire to another line');
+      return new UserError(
+        where,
+        `the line is already in use by a kernel driver or another program (${e.message})`,
+        'free the line (see `cat /sys/kernel/debug/gpio` as root) or wire to another line',
+      );
     case 'ENOENT':
-      return new UserError(where, `the sysfs GPIO files are missing (${e.message})`, 'this kernel may not have CONFIG_GPIO_SYSFS; use a character-device GPIO implementation');
+      return new UserError(
+        where,
+        `the sysfs GPIO files are missing (${e.message})`,
+        'this kernel may not have CONFIG_GPIO_SYSFS; use a character-device GPIO implementation',
+      );
     default:
-      return new UserError(where, `cannot set up the line: ${e?.message ?? String(err)}`, 'check the wiring configuration and the kernel log (dmesg)');
+      return new UserError(
+        where,
+        `cannot set up the line: ${e?.message ?? String(err)}`,
+        'check the wiring configuration and the kernel log (dmesg)',
+      );
   }
 }
 
-const physicalEdge = (edge: 'rising' | 'falling' | 'both', activeLow: boolean): Edge => (!activeLow || edge === 'both' ? edge : edge === 'rising' ? 'falling' : 'rising');
+const physicalEdge = (edge: 'rising' | 'falling' | 'both', activeLow: boolean): Edge =>
+  !activeLow || edge === 'both' ? edge : edge === 'rising' ? 'falling' : 'rising';
 
 export class OnoffLines implements GpioLines {
   private readonly nowMs: () => number;
@@ -67,13 +111,26 @@ export class OnoffLines implements GpioLines {
     try {
       mod = await import('onoff');
     } catch (e) {
-      throw new UserError('GPIO', `the onoff module could not be loaded (${(e as Error).message})`, 'on the board install build tools (build-essential, python3) and run `npm rebuild epoll`; on a machine without GPIO use the fake lines');
+      throw new UserError(
+        'GPIO',
+        `the onoff module could not be loaded (${(e as Error).message})`,
+        'on the board install build tools (build-essential, python3) and run `npm rebuild epoll`; on a machine without GPIO use the fake lines',
+      );
     }
-    opts.log.info({ chip: chip.name, label: chip.label, base: chip.base }, `GPIO: using ${chip.name} "${chip.label}", base ${chip.base}`);
+    opts.log.info(
+      { chip: chip.name, label: chip.label, base: chip.base },
+      `GPIO: using ${chip.name} "${chip.label}", base ${chip.base}`,
+    );
     return new OnoffLines(mod.Gpio, chip, opts.log, opts.nowMs);
   }
 
-  private make(name: string, offset: number, direction: Direction, edge?: Edge, options?: OnoffOptions) {
+  private make(
+    name: string,
+    offset: number,
+    direction: Direction,
+    edge?: Edge,
+    options?: OnoffOptions,
+  ) {
     const global = globalLineNumber(this.chip, offset, `GPIO "${name}"`);
     try {
       return new this.Gpio(global, direction, edge, options);
@@ -82,7 +139,11 @@ export class OnoffLines implements GpioLines {
     }
   }
 
-  async output(name: string, line: number, opts: { activeLow?: boolean; initial?: boolean } = {}): Promise<DigitalOutput> {
+  async output(
+    name: string,
+    line: number,
+    opts: { activeLow?: boolean; initial?: boolean } = {},
+  ): Promise<DigitalOutput> {
     const activeLow = opts.activeLow ?? false;
     const level = (on: boolean): BinaryValue => (on !== activeLow ? 1 : 0);
     // Export straight into the wanted level ("high"/"low" set direction and value together).
@@ -96,9 +157,19 @@ export class OnoffLines implements GpioLines {
     };
   }
 
-  async input(name: string, line: number, opts: { activeLow?: boolean; debounceMs?: number; edge?: 'rising' | 'falling' | 'both' } = {}): Promise<DigitalInput> {
+  async input(
+    name: string,
+    line: number,
+    opts: { activeLow?: boolean; debounceMs?: number; edge?: 'rising' | 'falling' | 'both' } = {},
+  ): Promise<DigitalInput> {
     const activeLow = opts.activeLow ?? false;
-    const g = this.make(name, line, 'in', physicalEdge(opts.edge ?? 'both', activeLow), opts.debounceMs ? { debounceTimeout: opts.debounceMs } : undefined);
+    const g = this.make(
+      name,
+      line,
+      'in',
+      physicalEdge(opts.edge ?? 'both', activeLow),
+      opts.debounceMs ? { debounceTimeout: opts.debounceMs } : undefined,
+    );
     return {
       read: async () => ((await g.read()) === 1) !== activeLow,
       watch: (listener: EdgeListener) => {

@@ -25,7 +25,11 @@ export interface GpioChip {
 /** The config key that chooses the chip (agent/config/gpio.ts); errors name it. */
 export const CHIP_LABEL_KEY = 'gpio.chip_label';
 
-export const HEADER_CHIP_LABELS: readonly string[] = ['pinctrl-rp1', 'pinctrl-bcm2711', 'pinctrl-bcm2835'];
+export const HEADER_CHIP_LABELS: readonly string[] = [
+  'pinctrl-rp1',
+  'pinctrl-bcm2711',
+  'pinctrl-bcm2835',
+];
 
 /** Reads every gpiochip under `root`. Missing root: empty list. Unreadable entries are skipped. */
 export function readGpioChips(root = SYSFS_GPIO_ROOT): GpioChip[] {
@@ -58,17 +62,29 @@ function describe(chips: readonly GpioChip[]): string {
  * Picks the chip the configured line offsets refer to: the one with `label` when given; else the
  * only chip; else a known Raspberry Pi header chip. Throws UserError listing what exists otherwise.
  */
-export function pickGpioChip(chips: readonly GpioChip[], label?: string, root = SYSFS_GPIO_ROOT): GpioChip {
+export function pickGpioChip(
+  chips: readonly GpioChip[],
+  label?: string,
+  root = SYSFS_GPIO_ROOT,
+): GpioChip {
   if (chips.length === 0) {
-    throw new UserError(root, 'no GPIO chips found (the sysfs GPIO interface is missing or not enabled in this kernel)', 'run on the board, or check that CONFIG_GPIO_SYSFS is enabled; on a laptop use the fake GPIO lines');
+    throw new UserError(
+      root,
+      'no GPIO chips found (the sysfs GPIO interface is missing or not enabled in this kernel)',
+      'run on the board, or check that CONFIG_GPIO_SYSFS is enabled; on a laptop use the fake GPIO lines',
+    );
   }
   if (label !== undefined) {
     const hit = chips.filter((c) => c.label === label);
     if (hit.length === 1) return hit[0]!;
     throw new UserError(
       `${CHIP_LABEL_KEY} "${label}"`,
-      hit.length === 0 ? `no GPIO chip labelled "${label}"; chips present: ${describe(chips)}` : `${hit.length} GPIO chips are labelled "${label}": ${describe(hit)}`,
-      hit.length === 0 ? `set ${CHIP_LABEL_KEY} in the config to one of the labels listed` : `${CHIP_LABEL_KEY} cannot tell chips with the same label apart; wire the lines to a chip whose label is unique`,
+      hit.length === 0
+        ? `no GPIO chip labelled "${label}"; chips present: ${describe(chips)}`
+        : `${hit.length} GPIO chips are labelled "${label}": ${describe(hit)}`,
+      hit.length === 0
+        ? `set ${CHIP_LABEL_KEY} in the config to one of the labels listed`
+        : `${CHIP_LABEL_KEY} cannot tell chips with the same label apart; wire the lines to a chip whose label is unique`,
     );
   }
   if (chips.length === 1) return chips[0]!;
@@ -86,7 +102,11 @@ export function pickGpioChip(chips: readonly GpioChip[], label?: string, root = 
 /** Global sysfs number of line `offset` on `chip`; throws UserError when the chip has no such line. */
 export function globalLineNumber(chip: GpioChip, offset: number, what: string): number {
   if (!Number.isInteger(offset) || offset < 0 || offset >= chip.ngpio) {
-    throw new UserError(what, `line ${offset} does not exist on ${chip.name} "${chip.label}" (lines 0-${chip.ngpio - 1})`, 'give the line offset on the chip (for a Raspberry Pi: the BCM GPIO number), not the header pin number');
+    throw new UserError(
+      what,
+      `line ${offset} does not exist on ${chip.name} "${chip.label}" (lines 0-${chip.ngpio - 1})`,
+      'give the line offset on the chip (for a Raspberry Pi: the BCM GPIO number), not the header pin number',
+    );
   }
   return chip.base + offset;
 }

@@ -41,9 +41,12 @@ export class PulseSpeed {
   private lastMs: number | null = null;
 
   constructor(opts: PulseSpeedOptions) {
-    if (!(opts.minRpm > 0 && opts.maxRpm > opts.minRpm)) throw new RangeError('need 0 < minRpm < maxRpm');
+    if (!(opts.minRpm > 0 && opts.maxRpm > opts.minRpm))
+      throw new RangeError('need 0 < minRpm < maxRpm');
     this.pulsesPerRev = opts.pulsesPerRev;
-    this.intervals = new Float64Array(Math.max(1, Math.round((opts.averageRevs ?? 4) * opts.pulsesPerRev)));
+    this.intervals = new Float64Array(
+      Math.max(1, Math.round((opts.averageRevs ?? 4) * opts.pulsesPerRev)),
+    );
     this.minIntervalMs = 60_000 / (opts.maxRpm * opts.pulsesPerRev);
     this.maxIntervalMs = 60_000 / (opts.minRpm * opts.pulsesPerRev);
   }
@@ -73,7 +76,8 @@ export class PulseSpeed {
 
   /** Speed in r/min averaged over the last intervals, or null when unknown (no pulses, stopped, lost). */
   rpm(nowMs: number): number | null {
-    if (this.count === 0 || this.lastMs === null || nowMs - this.lastMs > this.maxIntervalMs) return null;
+    if (this.count === 0 || this.lastMs === null || nowMs - this.lastMs > this.maxIntervalMs)
+      return null;
     let sum = 0;
     for (let i = 0; i < this.count; i++) sum += this.intervals[i]!;
     return (60_000 * this.count) / (this.pulsesPerRev * sum);

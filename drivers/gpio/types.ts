@@ -24,6 +24,14 @@ export interface DigitalInput {
 }
 
 export interface GpioLines {
-  output(name: string, line: number, opts?: { activeLow?: boolean; initial?: boolean }): Promise<DigitalOutput>;
-  input(name: string, line: number, opts?: { activeLow?: boolean; debounceMs?: number; edge?: 'rising' | 'falling' | 'both' }): Promise<DigitalInput>;
+  output(
+    name: string,
+    line: number,
+    opts?: { activeLow?: boolean; initial?: boolean },
+  ): Promise<DigitalOutput>;
+  input(
+    name: string,
+    line: number,
+    opts?: { activeLow?: boolean; debounceMs?: number; edge?: 'rising' | 'falling' | 'both' },
+  ): Promise<DigitalInput>;
 }

@@ -16,7 +16,13 @@ class Slot {
   private delays = new Float64Array(0);
 
   /** Copies the frame's samples and edges into this slot's arrays (grown only when a frame is larger). */
-  fill(startIndex: number, channels: readonly Float32Array[], tachEdges: Float64Array | undefined, arrivedMs?: number, channelDelays?: Float64Array): SampleBlock {
+  fill(
+    startIndex: number,
+    channels: readonly Float32Array[],
+    tachEdges: Float64Array | undefined,
+    arrivedMs?: number,
+    channelDelays?: Float64Array,
+  ): SampleBlock {
     const n = channels[0]!.length;
     if (n > this.capacity || channels.length !== this.bufs.length) {
       this.capacity = Math.max(n, this.capacity);
@@ -30,13 +36,15 @@ class Slot {
     for (let c = 0; c < channels.length; c++) this.views[c]!.set(channels[c]!);
     let edges: Float64Array | undefined;
     if (tachEdges) {
-      if (tachEdges.length > this.edges.length) this.edges = new Float64Array(Math.max(tachEdges.length, 2 * this.edges.length));
+      if (tachEdges.length > this.edges.length)
+        this.edges = new Float64Array(Math.max(tachEdges.length, 2 * this.edges.length));
       this.edges.set(tachEdges);
       edges = this.edges.subarray(0, tachEdges.length);
     }
     let delays: Float64Array | undefined;
     if (channelDelays) {
-      if (this.delays.length !== channelDelays.length) this.delays = new Float64Array(channelDelays.length);
+      if (this.delays.length !== channelDelays.length)
+        this.delays = new Float64Array(channelDelays.length);
       this.delays.set(channelDelays);
       delays = this.delays;
     }
@@ -76,7 +84,13 @@ export class BlockQueue {
   }
 
   /** Queues a copy of a decoded frame, or drops it when the consumer is too far behind. */
-  pushBlock(startIndex: number, channels: readonly Float32Array[], tachEdges: Float64Array | undefined, arrivedMs?: number, channelDelays?: Float64Array): boolean {
+  pushBlock(
+    startIndex: number,
+    channels: readonly Float32Array[],
+    tachEdges: Float64Array | undefined,
+    arrivedMs?: number,
+    channelDelays?: Float64Array,
+  ): boolean {
     const slot = this.free.pop();
     if (!slot) {
       this.overruns++;
@@ -84,7 +98,10 @@ export class BlockQueue {
       return false;
     }
     this.fillGapTo(startIndex);
-    this.entries.push({ item: slot.fill(startIndex, channels, tachEdges, arrivedMs, channelDelays), slot });
+    this.entries.push({
+      item: slot.fill(startIndex, channels, tachEdges, arrivedMs, channelDelays),
+      slot,
+    });
     this.queuedEnd = startIndex + channels[0]!.length;
     this.notify();
     return true;
@@ -110,7 +127,12 @@ export class BlockQueue {
       this.overrunGaps++;
       this.overrunSamples += index - from;
       this.entries.push({
-        item: { kind: 'gap', fromIndex: from, toIndex: index, reason: `the consumer fell behind: ${this.dropped} frame(s) dropped because all ${this.slots} queue slots were full` },
+        item: {
+          kind: 'gap',
+          fromIndex: from,
+          toIndex: index,
+          reason: `the consumer fell behind: ${this.dropped} frame(s) dropped because all ${this.slots} queue slots were full`,
+        },
         slot: null,
       });
     }

@@ -54,7 +54,8 @@ export class SineTachSignal implements BoardSignal {
       const lag = (ch.lag_deg * Math.PI) / 180;
       const dc = ch.dc_v ?? 0;
       const o = out[c]!;
-      for (let i = 0; i < n; i++) o[i] = dc + ch.amp_v * Math.cos(w * (first + i - this.firstEdge) - lag);
+      for (let i = 0; i < n; i++)
+        o[i] = dc + ch.amp_v * Math.cos(w * (first + i - this.firstEdge) - lag);
     }
     let k = Math.ceil((first - this.firstEdge) / this.samplesPerRev);
     let count = 0;
@@ -97,11 +98,20 @@ export class BoardEmulator {
     private readonly signal: BoardSignal,
     private readonly opts: BoardEmulatorOptions,
   ) {
-    if (opts.scaleVPerCount.length !== signal.channelCount) throw new RangeError(`${opts.scaleVPerCount.length} scales for ${signal.channelCount} channels`);
+    if (opts.scaleVPerCount.length !== signal.channelCount)
+      throw new RangeError(
+        `${opts.scaleVPerCount.length} scales for ${signal.channelCount} channels`,
+      );
     this.index = opts.firstSample ?? 0;
     this.sequence = opts.firstSequence ?? 0;
-    this.volts = Array.from({ length: signal.channelCount }, () => new Float64Array(opts.samplesPerFrame));
-    this.raw = Array.from({ length: signal.channelCount }, () => new Float64Array(opts.samplesPerFrame));
+    this.volts = Array.from(
+      { length: signal.channelCount },
+      () => new Float64Array(opts.samplesPerFrame),
+    );
+    this.raw = Array.from(
+      { length: signal.channelCount },
+      () => new Float64Array(opts.samplesPerFrame),
+    );
   }
 
   /** Board sample index of the next frame's first sample. */
@@ -127,7 +137,8 @@ export class BoardEmulator {
         for (let i = 0; i < n; i++) r[i] = (v[i]! - offset) / scale;
       } else {
         const { min, max } = COUNT_RANGE[this.opts.format];
-        for (let i = 0; i < n; i++) r[i] = Math.min(max, Math.max(min, Math.round((v[i]! - offset) / scale)));
+        for (let i = 0; i < n; i++)
+          r[i] = Math.min(max, Math.max(min, Math.round((v[i]! - offset) / scale)));
       }
     }
     const bytes = encodeFrame({
@@ -184,7 +195,12 @@ export class DeviceWriter {
  * Sends frames in real time (one frame each samplesPerFrame / sampleRate seconds, on a schedule
  * that does not drift) until `until()` says stop or a write fails. Returns frames sent.
  */
-export async function playRealtime(board: BoardEmulator, out: Pick<DeviceWriter, 'write'>, framePeriodMs: number, until: () => boolean): Promise<number> {
+export async function playRealtime(
+  board: BoardEmulator,
+  out: Pick<DeviceWriter, 'write'>,
+  framePeriodMs: number,
+  until: () => boolean,
+): Promise<number> {
   const start = performance.now();
   let sent = 0;
   while (!until()) {

@@ -36,11 +36,26 @@ export const CRC_LEN = 4;
 export const FLAG_TACH_TIMED = 0x01;
 
 export type SampleFormat = 'int16' | 'int24' | 'float32';
-export const SAMPLE_FORMAT_CODE: Readonly<Record<SampleFormat, number>> = { int16: 1, int24: 2, float32: 3 };
-const FORMAT_BY_CODE: readonly (SampleFormat | undefined)[] = [undefined, 'int16', 'int24', 'float32'];
-export const BYTES_PER_SAMPLE: Readonly<Record<SampleFormat, number>> = { int16: 2, int24: 3, float32: 4 };
+export const SAMPLE_FORMAT_CODE: Readonly<Record<SampleFormat, number>> = {
+  int16: 1,
+  int24: 2,
+  float32: 3,
+};
+const FORMAT_BY_CODE: readonly (SampleFormat | undefined)[] = [
+  undefined,
+  'int16',
+  'int24',
+  'float32',
+];
+export const BYTES_PER_SAMPLE: Readonly<Record<SampleFormat, number>> = {
+  int16: 2,
+  int24: 3,
+  float32: 4,
+};
 /** Largest and smallest raw count of each integer format (two's complement). */
-export const COUNT_RANGE: Readonly<Record<'int16' | 'int24', { readonly min: number; readonly max: number }>> = {
+export const COUNT_RANGE: Readonly<
+  Record<'int16' | 'int24', { readonly min: number; readonly max: number }>
+> = {
   int16: { min: -32768, max: 32767 },
   int24: { min: -8388608, max: 8388607 },
 };
@@ -59,9 +74,22 @@ export function crc32(bytes: Uint8Array): number {
 }
 
 /** Total bytes of a frame with these contents (version 1 unless `version` says 2). */
-export function frameLength(channelCount: number, samplesPerChannel: number, format: SampleFormat, tachEdgeCount: number, version: 1 | 2 = 1): number {
-  const [h, e] = version === 2 ? [HEADER_LEN_V2, CHANNEL_ENTRY_LEN_V2] : [HEADER_LEN_V1, CHANNEL_ENTRY_LEN_V1];
-  return h + channelCount * e + tachEdgeCount * TACH_EDGE_LEN + samplesPerChannel * channelCount * BYTES_PER_SAMPLE[format] + CRC_LEN;
+export function frameLength(
+  channelCount: number,
+  samplesPerChannel: number,
+  format: SampleFormat,
+  tachEdgeCount: number,
+  version: 1 | 2 = 1,
+): number {
+  const [h, e] =
+    version === 2 ? [HEADER_LEN_V2, CHANNEL_ENTRY_LEN_V2] : [HEADER_LEN_V1, CHANNEL_ENTRY_LEN_V1];
+  return (
+    h +
+    channelCount * e +
+    tachEdgeCount * TACH_EDGE_LEN +
+    samplesPerChannel * channelCount * BYTES_PER_SAMPLE[format] +
+    CRC_LEN
+  );
 }
 
 /** A version 2 board's timing declaration (PROTOCOL.md 2.6). */
@@ -75,14 +103,21 @@ export interface BoardTiming {
 }
 
 /** Why a timing declaration is impossible, or null when it is fine. */
-export function timingFault(t: { sampleDelayTicks: number; tachDelayTicks: number; skewTicks: ArrayLike<number> }): string | null {
+export function timingFault(t: {
+  sampleDelayTicks: number;
+  tachDelayTicks: number;
+  skewTicks: ArrayLike<number>;
+}): string | null {
   const d = t.sampleDelayTicks;
-  if (!Number.isFinite(d) || d < 0 || d > MAX_DELAY_TICKS) return `sample_delay_ticks ${d} outside 0..${MAX_DELAY_TICKS}`;
+  if (!Number.isFinite(d) || d < 0 || d > MAX_DELAY_TICKS)
+    return `sample_delay_ticks ${d} outside 0..${MAX_DELAY_TICKS}`;
   const td = t.tachDelayTicks;
-  if (!Number.isFinite(td) || td < 0 || td > MAX_DELAY_TICKS) return `tach_delay_ticks ${td} outside 0..${MAX_DELAY_TICKS}`;
+  if (!Number.isFinite(td) || td < 0 || td > MAX_DELAY_TICKS)
+    return `tach_delay_ticks ${td} outside 0..${MAX_DELAY_TICKS}`;
   for (let c = 0; c < t.skewTicks.length; c++) {
     const s = t.skewTicks[c]!;
-    if (!Number.isFinite(s) || s < 0 || s >= 1) return `channel ${c} skew_ticks ${s} outside 0 to below 1 (a channel is converted within its sample period)`;
+    if (!Number.isFinite(s) || s < 0 || s >= 1)
+      return `channel ${c} skew_ticks ${s} outside 0 to below 1 (a channel is converted within its sample period)`;
   }
   return null;
 }
@@ -115,20 +150,27 @@ export interface FrameContent {
 /** Encodes one version 1 frame, or version 2 when `timing` is given. Pure; throws RangeError on content that cannot be encoded. */
 export function encodeFrame(c: FrameContent): Uint8Array {
   const channelCount = c.samples.length;
-  if (channelCount < 1 || channelCount > 255) throw new RangeError(`channel count ${channelCount} outside 1..255`);
-  if (c.scaleVPerCount.length !== channelCount) throw new RangeError(`${c.scaleVPerCount.length} scale(s) for ${channelCount} channel(s)`);
-  if (c.offsetV && c.offsetV.length !== channelCount) throw new RangeError(`${c.offsetV.length} offset(s) for ${channelCount} channel(s)`);
+  if (channelCount < 1 || channelCount > 255)
+    throw new RangeError(`channel count ${channelCount} outside 1..255`);
+  if (c.scaleVPerCount.length !== channelCount)
+    throw new RangeError(`${c.scaleVPerCount.length} scale(s) for ${channelCount} channel(s)`);
+  if (c.offsetV && c.offsetV.length !== channelCount)
+    throw new RangeError(`${c.offsetV.length} offset(s) for ${channelCount} channel(s)`);
   const spc = c.samples[0]!.length;
   if (spc < 1 || spc > 65535) throw new RangeError(`samples per channel ${spc} outside 1..65535`);
-  for (const ch of c.samples) if (ch.length !== spc) throw new RangeError('channels of different lengths');
-  if (!Number.isInteger(c.firstSample) || c.firstSample < 0 || c.firstSample > MAX_SAMPLE_INDEX) throw new RangeError(`first sample ${c.firstSample} is not an index`);
-  if (!Number.isInteger(c.sequence) || c.sequence < 0 || c.sequence >= TWO_POW_32) throw new RangeError(`sequence ${c.sequence} outside 0..2^32-1`);
+  for (const ch of c.samples)
+    if (ch.length !== spc) throw new RangeError('channels of different lengths');
+  if (!Number.isInteger(c.firstSample) || c.firstSample < 0 || c.firstSample > MAX_SAMPLE_INDEX)
+    throw new RangeError(`first sample ${c.firstSample} is not an index`);
+  if (!Number.isInteger(c.sequence) || c.sequence < 0 || c.sequence >= TWO_POW_32)
+    throw new RangeError(`sequence ${c.sequence} outside 0..2^32-1`);
   const edges = c.tachEdges;
   const edgeCount = edges ? edges.length : 0;
   if (edgeCount > 65535) throw new RangeError(`${edgeCount} tach edges in one frame`);
 
   const timing = c.timing;
-  if (timing && timing.skewTicks.length !== channelCount) throw new RangeError(`${timing.skewTicks.length} skew(s) for ${channelCount} channel(s)`);
+  if (timing && timing.skewTicks.length !== channelCount)
+    throw new RangeError(`${timing.skewTicks.length} skew(s) for ${channelCount} channel(s)`);
   const headerLen = timing ? HEADER_LEN_V2 : HEADER_LEN_V1;
   const entryLen = timing ? CHANNEL_ENTRY_LEN_V2 : CHANNEL_ENTRY_LEN_V1;
   const total = frameLength(channelCount, spc, c.format, edgeCount, timing ? 2 : 1);
@@ -170,7 +212,10 @@ export function encodeFrame(c: FrameContent): Uint8Array {
       frac = 0;
     }
     const rel = whole - c.firstSample;
-    if (!(rel >= 0 && rel < spc)) throw new RangeError(`tach edge ${e} outside the frame's samples [${c.firstSample}, ${c.firstSample + spc})`);
+    if (!(rel >= 0 && rel < spc))
+      throw new RangeError(
+        `tach edge ${e} outside the frame's samples [${c.firstSample}, ${c.firstSample + spc})`,
+      );
     dv.setUint32(o, rel, true);
     dv.setUint32(o + 4, frac, true);
     o += TACH_EDGE_LEN;
@@ -182,7 +227,8 @@ export function encodeFrame(c: FrameContent): Uint8Array {
       if (c.format === 'float32') dv.setFloat32(o, v, true);
       else {
         const r = COUNT_RANGE[c.format];
-        if (!Number.isInteger(v) || v < r.min || v > r.max) throw new RangeError(`count ${v} outside ${c.format} range`);
+        if (!Number.isInteger(v) || v < r.min || v > r.max)
+          throw new RangeError(`count ${v} outside ${c.format} range`);
         if (c.format === 'int16') dv.setInt16(o, v, true);
         else {
           out[o] = v & 0xff;
@@ -215,7 +261,16 @@ export class DecodedFrame {
   channelDelays: Float64Array | undefined = undefined;
 }
 
-export type DecodeProblem = 'crc' | 'bad_length' | 'bad_header' | 'rejected' | 'resync' | 'gap' | 'sequence' | 'clock_restart' | 'timing';
+export type DecodeProblem =
+  | 'crc'
+  | 'bad_length'
+  | 'bad_header'
+  | 'rejected'
+  | 'resync'
+  | 'gap'
+  | 'sequence'
+  | 'clock_restart'
+  | 'timing';
 
 export interface FrameSink {
   /** A good frame, in order. `f` and its arrays are reused after the call returns. */
@@ -234,7 +289,12 @@ export interface DecoderLimits {
   readonly maxTachEdges: number;
 }
 
-export const DEFAULT_LIMITS: DecoderLimits = { maxFrameBytes: 262_144, maxChannels: 64, maxSamplesPerChannel: 8192, maxTachEdges: 256 };
+export const DEFAULT_LIMITS: DecoderLimits = {
+  maxFrameBytes: 262_144,
+  maxChannels: 64,
+  maxSamplesPerChannel: 8192,
+  maxTachEdges: 256,
+};
 
 /** Default tolerance on the declared sample rate against the configured one, ppm (acquisition.sample_rate_tolerance_ppm). */
 export const DEFAULT_RATE_TOLERANCE_PPM = 100;
@@ -242,7 +302,11 @@ export const DEFAULT_RATE_TOLERANCE_PPM = 100;
 export interface DecoderOptions {
   readonly limits?: Partial<DecoderLimits>;
   /** Frames that do not match are rejected (counted, and their samples reported as lost). */
-  readonly expect?: { readonly channelCount?: number; readonly sampleRateHz?: number; readonly sampleRateTolerancePpm?: number };
+  readonly expect?: {
+    readonly channelCount?: number;
+    readonly sampleRateHz?: number;
+    readonly sampleRateTolerancePpm?: number;
+  };
   /** Wall clock, ms; used only to estimate what was lost when the board's sample clock restarts. */
   readonly nowMs?: () => number;
 }
@@ -273,7 +337,21 @@ export interface DecoderCounters {
 }
 
 function zeroCounters(): DecoderCounters {
-  return { bytes_received: 0, frames_ok: 0, crc_errors: 0, bad_lengths: 0, bad_headers: 0, rejected_frames: 0, resyncs: 0, bytes_skipped: 0, gaps: 0, samples_lost: 0, sequence_anomalies: 0, clock_restarts: 0, timing_faults: 0 };
+  return {
+    bytes_received: 0,
+    frames_ok: 0,
+    crc_errors: 0,
+    bad_lengths: 0,
+    bad_headers: 0,
+    rejected_frames: 0,
+    resyncs: 0,
+    bytes_skipped: 0,
+    gaps: 0,
+    samples_lost: 0,
+    sequence_anomalies: 0,
+    clock_restarts: 0,
+    timing_faults: 0,
+  };
 }
 
 /** The timing in use, for the health report. */
@@ -307,7 +385,13 @@ export class FrameDecoder {
   private readonly rateTolerance: number;
   private readonly nowMs: () => number;
   /** The timing in use (the last valid declaration; zeros until one arrives). */
-  readonly timing: TimingState = { protocolVersion: 0, declared: false, sampleDelayTicks: 0, tachDelayTicks: 0, maxSkewTicks: 0 };
+  readonly timing: TimingState = {
+    protocolVersion: 0,
+    declared: false,
+    sampleDelayTicks: 0,
+    tachDelayTicks: 0,
+    maxSkewTicks: 0,
+  };
   private readonly skews: Float64Array;
   private readonly goodSkews: Float64Array;
   private readonly delays: Float64Array;
@@ -335,7 +419,14 @@ export class FrameDecoder {
   private lastRate = 0;
   private lastGoodMs = 0;
   private clockOffset = 0;
-  private readonly since: SinceLastGood = { crc: 0, badLength: 0, badHeader: 0, rejected: 0, skipped: 0, linkDown: null };
+  private readonly since: SinceLastGood = {
+    crc: 0,
+    badLength: 0,
+    badHeader: 0,
+    rejected: 0,
+    skipped: 0,
+    linkDown: null,
+  };
 
   constructor(
     private readonly sink: FrameSink,
@@ -343,7 +434,8 @@ export class FrameDecoder {
   ) {
     this.limits = { ...DEFAULT_LIMITS, ...opts.limits };
     const l = this.limits;
-    if (l.maxFrameBytes < HEADER_LEN_V1 + CHANNEL_ENTRY_LEN_V1 + CRC_LEN + 2) throw new RangeError(`maxFrameBytes ${l.maxFrameBytes} is too small`);
+    if (l.maxFrameBytes < HEADER_LEN_V1 + CHANNEL_ENTRY_LEN_V1 + CRC_LEN + 2)
+      throw new RangeError(`maxFrameBytes ${l.maxFrameBytes} is too small`);
     this.expectChannels = opts.expect?.channelCount;
     this.expectRate = opts.expect?.sampleRateHz;
     this.rateTolerance = (opts.expect?.sampleRateTolerancePpm ?? DEFAULT_RATE_TOLERANCE_PPM) * 1e-6;
@@ -412,7 +504,12 @@ export class FrameDecoder {
     for (;;) {
       const avail = end - pos;
       if (avail < FRAME_SYNC.length) return pos;
-      if (buf[pos] !== 0xa5 || buf[pos + 1] !== 0x5a || buf[pos + 2] !== 0x54 || buf[pos + 3] !== 0x57) {
+      if (
+        buf[pos] !== 0xa5 ||
+        buf[pos + 1] !== 0x5a ||
+        buf[pos + 2] !== 0x54 ||
+        buf[pos + 3] !== 0x57
+      ) {
         // Out of step: search the filled part only (the rest of the buffer holds stale bytes).
         const at = buf.subarray(0, end).indexOf(SYNC_BUF, pos);
         if (at < 0) {
@@ -440,12 +537,17 @@ export class FrameDecoder {
 
       let headerFault: string | null = null;
       const minHeader = version === PROTOCOL_VERSION_TIMED ? HEADER_LEN_V2 : HEADER_LEN_V1;
-      const minEntry = version === PROTOCOL_VERSION_TIMED ? CHANNEL_ENTRY_LEN_V2 : CHANNEL_ENTRY_LEN_V1;
-      if (version !== PROTOCOL_VERSION && version !== PROTOCOL_VERSION_TIMED) headerFault = `protocol version ${version} (this agent reads versions ${PROTOCOL_VERSIONS.join(' and ')})`;
-      else if (headerLen < minHeader) headerFault = `header length ${headerLen} below ${minHeader} (version ${version})`;
-      else if (entryLen < minEntry) headerFault = `channel entry length ${entryLen} below ${minEntry} (version ${version})`;
+      const minEntry =
+        version === PROTOCOL_VERSION_TIMED ? CHANNEL_ENTRY_LEN_V2 : CHANNEL_ENTRY_LEN_V1;
+      if (version !== PROTOCOL_VERSION && version !== PROTOCOL_VERSION_TIMED)
+        headerFault = `protocol version ${version} (this agent reads versions ${PROTOCOL_VERSIONS.join(' and ')})`;
+      else if (headerLen < minHeader)
+        headerFault = `header length ${headerLen} below ${minHeader} (version ${version})`;
+      else if (entryLen < minEntry)
+        headerFault = `channel entry length ${entryLen} below ${minEntry} (version ${version})`;
       else if (!format) headerFault = `unknown sample format code ${buf[pos + 7]}`;
-      else if (channelCount < 1 || channelCount > l.maxChannels) headerFault = `channel count ${channelCount} outside 1..${l.maxChannels}`;
+      else if (channelCount < 1 || channelCount > l.maxChannels)
+        headerFault = `channel count ${channelCount} outside 1..${l.maxChannels}`;
       if (headerFault) {
         this.counters.bad_headers++;
         this.since.badHeader++;
@@ -454,12 +556,21 @@ export class FrameDecoder {
         pos += 1;
         continue;
       }
-      const expectedTotal = headerLen + channelCount * entryLen + edgeCount * TACH_EDGE_LEN + spc * channelCount * BYTES_PER_SAMPLE[format!] + CRC_LEN;
+      const expectedTotal =
+        headerLen +
+        channelCount * entryLen +
+        edgeCount * TACH_EDGE_LEN +
+        spc * channelCount * BYTES_PER_SAMPLE[format!] +
+        CRC_LEN;
       let lengthFault: string | null = null;
-      if (spc < 1 || spc > l.maxSamplesPerChannel) lengthFault = `samples per channel ${spc} outside 1..${l.maxSamplesPerChannel}`;
-      else if (edgeCount > l.maxTachEdges) lengthFault = `${edgeCount} tach edges, above the limit ${l.maxTachEdges}`;
-      else if (total !== expectedTotal) lengthFault = `frame length ${total} but its header describes ${expectedTotal} bytes`;
-      else if (total > l.maxFrameBytes) lengthFault = `frame length ${total} above the limit ${l.maxFrameBytes}`;
+      if (spc < 1 || spc > l.maxSamplesPerChannel)
+        lengthFault = `samples per channel ${spc} outside 1..${l.maxSamplesPerChannel}`;
+      else if (edgeCount > l.maxTachEdges)
+        lengthFault = `${edgeCount} tach edges, above the limit ${l.maxTachEdges}`;
+      else if (total !== expectedTotal)
+        lengthFault = `frame length ${total} but its header describes ${expectedTotal} bytes`;
+      else if (total > l.maxFrameBytes)
+        lengthFault = `frame length ${total} above the limit ${l.maxFrameBytes}`;
       if (lengthFault) {
         this.counters.bad_lengths++;
         this.since.badLength++;
@@ -476,13 +587,26 @@ export class FrameDecoder {
       if (wanted !== got) {
         this.counters.crc_errors++;
         this.since.crc++;
-        this.sink.problem('crc', `CRC mismatch in frame ${dv.getUint32(pos + 12, true)}: stored 0x${wanted.toString(16).padStart(8, '0')}, computed 0x${got.toString(16).padStart(8, '0')}`);
+        this.sink.problem(
+          'crc',
+          `CRC mismatch in frame ${dv.getUint32(pos + 12, true)}: stored 0x${wanted.toString(16).padStart(8, '0')}, computed 0x${got.toString(16).padStart(8, '0')}`,
+        );
         this.skip(1);
         pos += 1;
         continue;
       }
 
-      const accepted = this.accept(pos, version, headerLen, entryLen, format!, channelCount, spc, flags, edgeCount);
+      const accepted = this.accept(
+        pos,
+        version,
+        headerLen,
+        entryLen,
+        format!,
+        channelCount,
+        spc,
+        flags,
+        edgeCount,
+      );
       this.skipping = false;
       if (!accepted) {
         // Intact but unusable: its bytes count as skipped; the gap shows at the next good frame.
@@ -494,7 +618,17 @@ export class FrameDecoder {
   }
 
   /** Decodes an intact frame at `pos` and hands it on. Returns false when the frame is rejected. */
-  private accept(pos: number, version: number, headerLen: number, entryLen: number, format: SampleFormat, channelCount: number, spc: number, flags: number, edgeCount: number): boolean {
+  private accept(
+    pos: number,
+    version: number,
+    headerLen: number,
+    entryLen: number,
+    format: SampleFormat,
+    channelCount: number,
+    spc: number,
+    flags: number,
+    edgeCount: number,
+  ): boolean {
     const buf = this.buf;
     const dv = this.dv;
     const sequence = dv.getUint32(pos + 12, true);
@@ -514,12 +648,20 @@ export class FrameDecoder {
       this.sink.problem(kind, `frame ${sequence} rejected: ${why}`);
       return false;
     };
-    if (boardFirst > MAX_SAMPLE_INDEX) return reject('bad_header', `first sample index ${boardFirst} above 2^53`);
-    if (!(rate > 0) || !Number.isFinite(rate)) return reject('bad_header', `sample rate ${rate} Hz`);
+    if (boardFirst > MAX_SAMPLE_INDEX)
+      return reject('bad_header', `first sample index ${boardFirst} above 2^53`);
+    if (!(rate > 0) || !Number.isFinite(rate))
+      return reject('bad_header', `sample rate ${rate} Hz`);
     if (this.expectChannels !== undefined && channelCount !== this.expectChannels) {
-      return reject('rejected', `${channelCount} channel(s), the configuration says ${this.expectChannels} (acquisition.channels)`);
+      return reject(
+        'rejected',
+        `${channelCount} channel(s), the configuration says ${this.expectChannels} (acquisition.channels)`,
+      );
     }
-    if (this.expectRate !== undefined && Math.abs(rate - this.expectRate) > this.rateTolerance * this.expectRate) {
+    if (
+      this.expectRate !== undefined &&
+      Math.abs(rate - this.expectRate) > this.rateTolerance * this.expectRate
+    ) {
       const ppm = ((rate - this.expectRate) / this.expectRate) * 1e6;
       return reject(
         'rejected',
@@ -534,7 +676,11 @@ export class FrameDecoder {
     for (let ch = 0; ch < channelCount; ch++) {
       const scale = dv.getFloat32(o, true);
       const offset = dv.getFloat32(o + 4, true);
-      if (!Number.isFinite(scale) || !Number.isFinite(offset)) return reject('bad_header', `channel ${ch} scale ${scale} V/count or offset ${offset} V is not finite`);
+      if (!Number.isFinite(scale) || !Number.isFinite(offset))
+        return reject(
+          'bad_header',
+          `channel ${ch} scale ${scale} V/count or offset ${offset} V is not finite`,
+        );
       this.scales[ch] = scale;
       this.offsets[ch] = offset;
       if (timed) this.skews[ch] = dv.getFloat32(o + 8, true);
@@ -544,10 +690,17 @@ export class FrameDecoder {
     // samples are placed with the last good declaration (zeros if none came yet).
     const tm = this.timing;
     if (timed) {
-      const fault = timingFault({ sampleDelayTicks: sampleDelay, tachDelayTicks: tachDelay, skewTicks: this.skews.subarray(0, channelCount) });
+      const fault = timingFault({
+        sampleDelayTicks: sampleDelay,
+        tachDelayTicks: tachDelay,
+        skewTicks: this.skews.subarray(0, channelCount),
+      });
       if (fault) {
         this.counters.timing_faults++;
-        this.sink.problem('timing', `frame ${sequence}: impossible timing declaration (${fault}); its samples are used with the last good declaration (${tm.declared ? `sample delay ${tm.sampleDelayTicks} ticks, tach delay ${tm.tachDelayTicks} ticks` : 'none yet: no delay compensation'}): fix the board's firmware (PROTOCOL.md 2.6)`);
+        this.sink.problem(
+          'timing',
+          `frame ${sequence}: impossible timing declaration (${fault}); its samples are used with the last good declaration (${tm.declared ? `sample delay ${tm.sampleDelayTicks} ticks, tach delay ${tm.tachDelayTicks} ticks` : 'none yet: no delay compensation'}): fix the board's firmware (PROTOCOL.md 2.6)`,
+        );
       } else {
         tm.declared = true;
         tm.sampleDelayTicks = sampleDelay;
@@ -565,14 +718,18 @@ export class FrameDecoder {
     // Tach edges are decoded relative to the board clock here; shifted to the output clock below.
     for (let i = 0; i < edgeCount; i++) {
       const rel = dv.getUint32(o, true);
-      if (rel >= spc) return reject('bad_header', `tach edge at sample ${rel} of a ${spc}-sample frame`);
+      if (rel >= spc)
+        return reject('bad_header', `tach edge at sample ${rel} of a ${spc}-sample frame`);
       this.edgeBuf[i] = boardFirst + rel + dv.getUint32(o + 4, true) / TWO_POW_32 - tachShift;
       o += TACH_EDGE_LEN;
     }
 
     if (spc > this.chanCap || channelCount > this.chanBufs.length) {
       this.chanCap = Math.max(spc, this.chanCap);
-      this.chanBufs = Array.from({ length: Math.max(channelCount, this.chanBufs.length) }, () => new Float32Array(this.chanCap));
+      this.chanBufs = Array.from(
+        { length: Math.max(channelCount, this.chanBufs.length) },
+        () => new Float32Array(this.chanCap),
+      );
       this.viewSpc = -1;
     }
     if (spc !== this.viewSpc || this.views.length !== channelCount) {
@@ -600,7 +757,8 @@ export class FrameDecoder {
       for (let i = 0; i < spc; i++) {
         for (let ch = 0; ch < channelCount; ch++) {
           const v = dv.getFloat32(o, true);
-          if (!Number.isFinite(v)) return reject('bad_header', `sample ${i} of channel ${ch} is ${v}`);
+          if (!Number.isFinite(v))
+            return reject('bad_header', `sample ${i} of channel ${ch} is ${v}`);
           views[ch]![i] = v * this.scales[ch]! + this.offsets[ch]!;
           o += bps;
         }
@@ -624,8 +782,10 @@ export class FrameDecoder {
       }
     } else out.tachEdges = undefined;
     if (timed && tm.declared) {
-      if (!this.delayView || this.delayView.length !== channelCount) this.delayView = this.delays.subarray(0, channelCount);
-      for (let ch = 0; ch < channelCount; ch++) this.delayView[ch] = tm.sampleDelayTicks - this.goodSkews[ch]!;
+      if (!this.delayView || this.delayView.length !== channelCount)
+        this.delayView = this.delays.subarray(0, channelCount);
+      for (let ch = 0; ch < channelCount; ch++)
+        this.delayView[ch] = tm.sampleDelayTicks - this.goodSkews[ch]!;
       out.channelDelays = this.delayView;
     } else out.channelDelays = undefined;
 
@@ -649,7 +809,10 @@ export class FrameDecoder {
     if (boardFirst === expected) {
       if (sequence !== this.nextSequence) {
         this.counters.sequence_anomalies++;
-        this.sink.problem('sequence', `sequence jumped ${prevSeq} -> ${sequence} but the sample clock is continuous (no samples lost)`);
+        this.sink.problem(
+          'sequence',
+          `sequence jumped ${prevSeq} -> ${sequence} but the sample clock is continuous (no samples lost)`,
+        );
       }
       return;
     }
@@ -661,7 +824,10 @@ export class FrameDecoder {
       from = expected + this.clockOffset;
       to = boardFirst + this.clockOffset;
       const missingFrames = (sequence - this.nextSequence) >>> 0;
-      what = missingFrames > 0 ? `sequence jump ${prevSeq} -> ${sequence} (${missingFrames} frame(s) missing)` : `board sample clock jumped ahead by ${boardFirst - expected} samples with the sequence continuous (board-side overrun)`;
+      what =
+        missingFrames > 0
+          ? `sequence jump ${prevSeq} -> ${sequence} (${missingFrames} frame(s) missing)`
+          : `board sample clock jumped ahead by ${boardFirst - expected} samples with the sequence continuous (board-side overrun)`;
     } else {
       // The board's clock went backwards: it restarted. How much was lost is only known from the
       // wall clock: the time since the last good frame, less this frame's own duration.
@@ -679,7 +845,11 @@ export class FrameDecoder {
     this.counters.gaps++;
     this.counters.samples_lost += to - from;
     this.sink.problem('gap', `${to - from} samples lost (${from} .. ${to}): ${reason}`);
-    this.sink.gap(restart ? { kind: 'gap', fromIndex: from, toIndex: to, reason, clockRestart: true } : { kind: 'gap', fromIndex: from, toIndex: to, reason });
+    this.sink.gap(
+      restart
+        ? { kind: 'gap', fromIndex: from, toIndex: to, reason, clockRestart: true }
+        : { kind: 'gap', fromIndex: from, toIndex: to, reason },
+    );
   }
 
   private describeCause(what: string): string {

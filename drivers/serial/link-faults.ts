@@ -48,8 +48,13 @@ export class FrameFaults {
     /** Called for every frame sent damaged. */
     private readonly onCorrupt?: (f: CorruptedFrame) => void,
   ) {
-    for (const [k, v] of Object.entries({ garbageEvery: opts.garbageEvery, corruptEvery: opts.corruptEvery, garbageBytes: opts.garbageBytes })) {
-      if (v !== undefined && !(Number.isInteger(v) && v >= 0)) throw new RangeError(`${k} must be a whole number >= 0, got ${v}`);
+    for (const [k, v] of Object.entries({
+      garbageEvery: opts.garbageEvery,
+      corruptEvery: opts.corruptEvery,
+      garbageBytes: opts.garbageBytes,
+    })) {
+      if (v !== undefined && !(Number.isInteger(v) && v >= 0))
+        throw new RangeError(`${k} must be a whole number >= 0, got ${v}`);
     }
     this.every = { garbage: opts.garbageEvery ?? 0, corrupt: opts.corruptEvery ?? 0 };
     this.burst = opts.garbageBytes ?? DEFAULT_GARBAGE_BYTES;
@@ -69,7 +74,10 @@ export class FrameFaults {
   apply(frame: Uint8Array): Uint8Array {
     this.frames++;
     const corrupt = this.every.corrupt > 0 && this.frames % this.every.corrupt === 0;
-    const garbage = this.every.garbage > 0 && this.burst > 0 && this.frames % this.every.garbage === 0 ? this.burst : 0;
+    const garbage =
+      this.every.garbage > 0 && this.burst > 0 && this.frames % this.every.garbage === 0
+        ? this.burst
+        : 0;
     if (!corrupt && garbage === 0) return frame;
     const out = new Uint8Array(frame.length + garbage);
     out.set(frame);
@@ -93,7 +101,11 @@ export class FrameFaults {
     const samplesTo = length - CRC_LEN;
     f[(samplesFrom + samplesTo) >> 1] ^= 0x10;
     this.corruptedFrames++;
-    this.onCorrupt?.({ sequence: dv.getUint32(12, true), first_sample: dv.getUint32(20, true) * 2 ** 32 + dv.getUint32(16, true), samples: dv.getUint16(32, true) });
+    this.onCorrupt?.({
+      sequence: dv.getUint32(12, true),
+      first_sample: dv.getUint32(20, true) * 2 ** 32 + dv.getUint32(16, true),
+      samples: dv.getUint16(32, true),
+    });
   }
 
   /** xorshift32; the sync word's first byte is replaced so no false frame start can appear. */

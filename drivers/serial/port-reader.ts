@@ -52,7 +52,8 @@ export class PortReader {
   ) {
     this.buf = Buffer.allocUnsafe(opts.bufferBytes ?? 65_536);
     this.mode = opts.mode ?? (port.poller && typeof port.fd === 'number' ? 'poll' : 'binding');
-    if (this.mode === 'poll' && !port.poller) throw new Error('PortReader: this port has no poller to read it by polling');
+    if (this.mode === 'poll' && !port.poller)
+      throw new Error('PortReader: this port has no poller to read it by polling');
   }
 
   start(): void {

@@ -110,5 +110,9 @@ export function describeOpenFailure(device: string, err: Error): OpenFailure {
       hint: 'ModemManager probes new ttyACM devices for several seconds: install deploy/udev/70-turnwise-daq.rules (sets ID_MM_DEVICE_IGNORE) or stop ModemManager',
     };
   }
-  return { kind: 'other', detail: `cannot open ${device}: ${msg}`, hint: 'check the device path and the board' };
+  return {
+    kind: 'other',
+    detail: `cannot open ${device}: ${msg}`,
+    hint: 'check the device path and the board',
+  };
 }

@@ -159,7 +159,10 @@ export class SerialSource implements SampleSource {
     this.log = opts.log;
     // A burst must outlast the longest wait between reopen attempts, or an unplugged board would
     // start a new burst (and a new log line) at every attempt.
-    this.burst = new BurstLog(opts.log, { nowMs: this.nowMs, quietMs: Math.max(opts.burstQuietMs ?? 10_000, 2 * opts.reconnectMaxMs) });
+    this.burst = new BurstLog(opts.log, {
+      nowMs: this.nowMs,
+      quietMs: Math.max(opts.burstQuietMs ?? 10_000, 2 * opts.reconnectMaxMs),
+    });
     this.queue = new BlockQueue(opts.queueFrames);
     const sink: FrameSink = {
       frame: (f) => this.onFrame(f),
@@ -167,8 +170,17 @@ export class SerialSource implements SampleSource {
       problem: (kind, detail) => this.onProblem(kind, detail),
     };
     this.decoder = new FrameDecoder(sink, {
-      limits: { maxFrameBytes: opts.maxFrameBytes, ...(opts.maxSamplesPerChannel !== undefined ? { maxSamplesPerChannel: opts.maxSamplesPerChannel } : {}) },
-      expect: { channelCount: opts.channels, sampleRateHz: opts.sampleRateHz, sampleRateTolerancePpm: opts.sampleRateTolerancePpm },
+      limits: {
+        maxFrameBytes: opts.maxFrameBytes,
+        ...(opts.maxSamplesPerChannel !== undefined
+          ? { maxSamplesPerChannel: opts.maxSamplesPerChannel }
+          : {}),
+      },
+      expect: {
+        channelCount: opts.channels,
+        sampleRateHz: opts.sampleRateHz,
+        sampleRateTolerancePpm: opts.sampleRateTolerancePpm,
+      },
       nowMs: this.nowMs,
     });
   }
@@ -243,7 +255,9 @@ export class SerialSource implements SampleSource {
     if (this.tickTimer) clearInterval(this.tickTimer);
     this.reopenTimer = this.tickTimer = null;
     const port = this.port;
-    this.closed = (port ? this.closePort(port, null) : (this.portClosing ?? Promise.resolve())).then(() => {
+    this.closed = (
+      port ? this.closePort(port, null) : (this.portClosing ?? Promise.resolve())
+    ).then(() => {
       this.port = null;
       this.connected = false;
       this.burst.flush(true);
@@ -265,7 +279,16 @@ export class SerialSource implements SampleSource {
   private onGap(g: GapMarker): void {
     // Every gap, also those inside a burst that the warning summarises: bounds in the heartbeat and a debug line.
     this.lastGap = g;
-    this.log.debug({ device: this.opts.device, from_index: g.fromIndex, to_index: g.toIndex, samples: g.toIndex - g.fromIndex, clock_restart: g.clockRestart === true }, `${this.opts.device}: gap ${g.fromIndex} .. ${g.toIndex}: ${g.reason}`);
+    this.log.debug(
+      {
+        device: this.opts.device,
+        from_index: g.fromIndex,
+        to_index: g.toIndex,
+        samples: g.toIndex - g.fromIndex,
+        clock_restart: g.clockRestart === true,
+      },
+      `${this.opts.device}: gap ${g.fromIndex} .. ${g.toIndex}: ${g.reason}`,
+    );
     this.queue.pushGap(g);
   }
 
@@ -294,7 +317,17 @@ export class SerialSource implements SampleSource {
     let opening: Promise<OpenPort>;
     try {
       // UART settings: 8 data bits, no parity, 1 stop bit, no flow control; DTR and RTS dropped on close (hupcl).
-      opening = this.mod!.SerialPort.binding.open({ path: this.opts.device, baudRate: this.opts.baud, dataBits: 8, parity: 'none', stopBits: 1, rtscts: false, xon: false, xoff: false, hupcl: true });
+      opening = this.mod!.SerialPort.binding.open({
+        path: this.opts.device,
+        baudRate: this.opts.baud,
+        dataBits: 8,
+        parity: 'none',
+        stopBits: 1,
+        rtscts: false,
+        xon: false,
+        xoff: false,
+        hupcl: true,
+      });
     } catch (e) {
       this.openFailed(e as Error);
       return;
@@ -325,7 +358,15 @@ export class SerialSource implements SampleSource {
     reader.start();
     // Says what became of DTR and RTS in the same line (once the ioctl has answered).
     void this.assertModemLines(port).then((lines) => {
-      this.log.info({ device: this.opts.device, reconnects: this.reconnects, read_mode: reader.mode, modem_lines: lines }, `${this.opts.device}: ${what}, 8N1 at ${this.opts.baud} bit/s, DTR and RTS ${lines}`);
+      this.log.info(
+        {
+          device: this.opts.device,
+          reconnects: this.reconnects,
+          read_mode: reader.mode,
+          modem_lines: lines,
+        },
+        `${this.opts.device}: ${what}, 8N1 at ${this.opts.baud} bit/s, DTR and RTS ${lines}`,
+      );
     });
   }
 
@@ -356,7 +397,9 @@ export class SerialSource implements SampleSource {
     const closing = (port.isOpen ? port.close() : Promise.resolve())
       .catch((e: Error) => {
         this.recordError(`${this.opts.device}: ${e.message}`);
-        this.burst.report('port_error', `${this.opts.device}: port error on close: ${e.message}`, { device: this.opts.device });
+        this.burst.report('port_error', `${this.opts.device}: port error on close: ${e.message}`, {
+          device: this.opts.device,
+        });
       })
       .then(() => {
         if (this.portClosing === closing) this.portClosing = null;
@@ -368,12 +411,16 @@ export class SerialSource implements SampleSource {
 
   private onClosed(failure: Error | null): void {
     this.connected = false;
-    const why = failure ? `device disconnected (${failure.message})` : (this.closeReason ?? 'port closed');
+    const why = failure
+      ? `device disconnected (${failure.message})`
+      : (this.closeReason ?? 'port closed');
     this.closeReason = null;
     this.decoder.linkDown(`${this.opts.device}: ${why}`);
     if (this.closing) return;
     this.recordError(`${this.opts.device}: ${why}`);
-    this.burst.report('disconnect', `${this.opts.device}: ${why}; reopening with backoff`, { device: this.opts.device });
+    this.burst.report('disconnect', `${this.opts.device}: ${why}; reopening with backoff`, {
+      device: this.opts.device,
+    });
     // Reopen only now that the close has completed: reopening a port still closing can fail with "Cannot lock port".
     this.scheduleReopen();
   }
@@ -385,7 +432,11 @@ export class SerialSource implements SampleSource {
     if (f.kind === 'not_found') {
       void listStablePorts().then((ports) => {
         const present = ports.length ? ports.map((p) => p.path).join(', ') : 'none';
-        this.burst.report('open_failed', `${f.detail}; ${f.hint}; stable serial links present now: ${present}`, { device: this.opts.device });
+        this.burst.report(
+          'open_failed',
+          `${f.detail}; ${f.hint}; stable serial links present now: ${present}`,
+          { device: this.opts.device },
+        );
       });
     } else this.burst.report('open_failed', `${f.detail}; ${f.hint}`, { device: this.opts.device });
     this.scheduleReopen();
@@ -393,7 +444,11 @@ export class SerialSource implements SampleSource {
 
   private scheduleReopen(): void {
     if (this.closing || this.reopenTimer) return;
-    const delay = reconnectDelayMs(this.attempt++, this.opts.reconnectMinMs, this.opts.reconnectMaxMs);
+    const delay = reconnectDelayMs(
+      this.attempt++,
+      this.opts.reconnectMinMs,
+      this.opts.reconnectMaxMs,
+    );
     this.reopenTimer = setTimeout(() => this.tryOpen(), delay);
   }
 
@@ -403,7 +458,9 @@ export class SerialSource implements SampleSource {
       this.stalls++;
       const silent = `no good frame for ${((now - this.lastFrameMs) / 1000).toFixed(1)} s`;
       this.recordError(`${this.opts.device}: ${silent}`);
-      this.burst.report('stall', `${this.opts.device}: ${silent}; closing and reopening the port`, { device: this.opts.device });
+      this.burst.report('stall', `${this.opts.device}: ${silent}; closing and reopening the port`, {
+        device: this.opts.device,
+      });
       // The close handler reopens with backoff.
       this.closeReason = `closed after ${silent}`;
       void this.closePort(this.port, null);

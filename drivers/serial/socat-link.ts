@@ -14,7 +14,15 @@
  * read while the pseudo-terminal is full, hence setpriv).
  */
 import { spawn, type ChildProcess } from 'node:child_process';
-import { accessSync, constants, existsSync, lstatSync, readlinkSync, statSync, unlinkSync } from 'node:fs';
+import {
+  accessSync,
+  constants,
+  existsSync,
+  lstatSync,
+  readlinkSync,
+  statSync,
+  unlinkSync,
+} from 'node:fs';
 import { delimiter, dirname, join, resolve } from 'node:path';
 import { UserError } from '../../agent/errors.js';
 
@@ -62,13 +70,27 @@ function prepareLinkPath(link: string): void {
   try {
     st = lstatSync(link);
   } catch {
-    if (!existsSync(dirname(link))) throw new UserError(link, `folder ${dirname(link)} does not exist`, 'create it, or choose another --link path');
+    if (!existsSync(dirname(link)))
+      throw new UserError(
+        link,
+        `folder ${dirname(link)} does not exist`,
+        'create it, or choose another --link path',
+      );
     return;
   }
-  if (!st.isSymbolicLink()) throw new UserError(link, 'already exists and is not a link to a pseudo-terminal', 'choose another --link path; the file there is left alone');
+  if (!st.isSymbolicLink())
+    throw new UserError(
+      link,
+      'already exists and is not a link to a pseudo-terminal',
+      'choose another --link path; the file there is left alone',
+    );
   const target = resolve(dirname(link), readlinkSync(link));
   if (existsSync(target)) {
-    throw new UserError(link, `already links to ${target}, a device that exists (another simulated board still running?)`, 'stop the other one, or choose another --link path');
+    throw new UserError(
+      link,
+      `already links to ${target}, a device that exists (another simulated board still running?)`,
+      'stop the other one, or choose another --link path',
+    );
   }
   unlinkSync(link);
 }
@@ -104,18 +126,39 @@ export class SocatLink {
   /** Starts socat and waits until the link (or the device) is ready. Rejects with a UserError naming the problem. */
   static async start(target: SocatTarget, opts: SocatLinkOptions = {}): Promise<SocatLink> {
     const socat = onPath('socat');
-    if (!socat) throw new UserError('socat', 'socat is not installed (it makes the serial link)', INSTALL_HINT);
+    if (!socat)
+      throw new UserError(
+        'socat',
+        'socat is not installed (it makes the serial link)',
+        INSTALL_HINT,
+      );
     const path = target.kind === 'pty' ? target.link : target.path;
     // socat would read these as the end of the path (",": options follow; "!!": a second address)
-    if (/[,!]/.test(path)) throw new UserError(path, 'socat cannot take a path with "," or "!" in it', 'choose a path without them');
+    if (/[,!]/.test(path))
+      throw new UserError(
+        path,
+        'socat cannot take a path with "," or "!" in it',
+        'choose a path without them',
+      );
     if (target.kind === 'pty') prepareLinkPath(target.link);
-    else if (!existsSync(target.path)) throw new UserError(target.path, 'no such device', 'give the serial device to write to (e.g. /dev/ttyUSB0), or leave --device out to make a pseudo-terminal');
-    const out = target.kind === 'pty' ? `pty,rawer,link=${target.link}` : `${target.path},rawer,b${target.baud}`;
+    else if (!existsSync(target.path))
+      throw new UserError(
+        target.path,
+        'no such device',
+        'give the serial device to write to (e.g. /dev/ttyUSB0), or leave --device out to make a pseudo-terminal',
+      );
+    const out =
+      target.kind === 'pty'
+        ? `pty,rawer,link=${target.link}`
+        : `${target.path},rawer,b${target.baud}`;
     const args = ['-d', '-d', '-u', 'STDIN', out];
     const setpriv = onPath('setpriv');
     // Its own process group: Ctrl-C in the terminal reaches this process only, which then stops socat.
     const proc = setpriv
-      ? spawn(setpriv, ['--pdeathsig', 'TERM', '--', socat, ...args], { stdio: ['pipe', 'ignore', 'pipe'], detached: true })
+      ? spawn(setpriv, ['--pdeathsig', 'TERM', '--', socat, ...args], {
+          stdio: ['pipe', 'ignore', 'pipe'],
+          detached: true,
+        })
       : spawn(socat, args, { stdio: ['pipe', 'ignore', 'pipe'], detached: true });
     const spawned = await new Promise<Error | null>((res) => {
       proc.once('spawn', () => res(null));
@@ -140,10 +183,21 @@ export class SocatLink {
     const where = this.target.kind === 'pty' ? this.target.link : this.target.path;
     for (;;) {
       if (this.exit) {
-        throw new UserError(where, `socat stopped at once (exit ${this.exit.code ?? this.exit.signal}; its last message: "${this.lastMessage()}")`, this.target.kind === 'device' ? 'check the device path, its permissions (dialout group) and the baud rate' : 'check that the link folder is writable');
+        throw new UserError(
+          where,
+          `socat stopped at once (exit ${this.exit.code ?? this.exit.signal}; its last message: "${this.lastMessage()}")`,
+          this.target.kind === 'device'
+            ? 'check the device path, its permissions (dialout group) and the baud rate'
+            : 'check that the link folder is writable',
+        );
       }
       if (this.isReady()) return;
-      if (Date.now() - t0 > timeoutMs) throw new UserError(where, `socat did not get ready within ${timeoutMs} ms: ${this.lastMessage()}`, 'try again; if it persists, run socat by hand to see why');
+      if (Date.now() - t0 > timeoutMs)
+        throw new UserError(
+          where,
+          `socat did not get ready within ${timeoutMs} ms: ${this.lastMessage()}`,
+          'try again; if it persists, run socat by hand to see why',
+        );
       await new Promise((r) => setTimeout(r, 20));
     }
   }
@@ -174,8 +228,15 @@ export class SocatLink {
    */
   write(frame: Uint8Array): boolean {
     if (this.exit) {
-      const how = this.exit.code !== null ? `exit code ${this.exit.code}` : `signal ${this.exit.signal}`;
-      throw new UserError(this.target.kind === 'pty' ? this.target.link : this.target.path, `socat stopped unexpectedly (${how}; its last message: "${this.lastMessage()}")`, this.target.kind === 'device' ? 'check that the device is still there, then start again' : 'start again; did something else stop socat?');
+      const how =
+        this.exit.code !== null ? `exit code ${this.exit.code}` : `signal ${this.exit.signal}`;
+      throw new UserError(
+        this.target.kind === 'pty' ? this.target.link : this.target.path,
+        `socat stopped unexpectedly (${how}; its last message: "${this.lastMessage()}")`,
+        this.target.kind === 'device'
+          ? 'check that the device is still there, then start again'
+          : 'start again; did something else stop socat?',
+      );
     }
     const stdin = this.proc.stdin!;
     if (stdin.writableLength > this.maxBacklog) {

@@ -38,7 +38,8 @@ export class SimBoardSignal implements BoardSignal {
   ) {
     this.simChannels = sim.channelCount;
     this.channelCount = opts.channelCount ?? sim.channelCount;
-    if (!Number.isInteger(this.channelCount) || this.channelCount < 1) throw new RangeError(`board channel count ${this.channelCount} is not a positive integer`);
+    if (!Number.isInteger(this.channelCount) || this.channelCount < 1)
+      throw new RangeError(`board channel count ${this.channelCount} is not a positive integer`);
     this.copied = Math.min(this.simChannels, this.channelCount);
     this.chunk = opts.maxBlock ?? 4096;
     this.scratch = Array.from({ length: this.simChannels }, () => new Float32Array(this.chunk + 1));
@@ -58,14 +59,14 @@ export class SimBoardSignal implements BoardSignal {
       this.shift += this.nextBoard - first;
       this.nextBoard = first;
     }
-    for (let skip = first - this.nextBoard; skip > 0; ) {
+    for (let skip = first - this.nextBoard; skip > 0;) {
       const k = Math.min(skip, this.chunk);
       this.advance(k, null, 0, null, 0);
       skip -= k;
     }
     for (let c = this.copied; c < this.channelCount; c++) out[c]!.fill(0, 0, n);
     let edgeCount = 0;
-    for (let done = 0; done < n; ) {
+    for (let done = 0; done < n;) {
       const k = Math.min(n - done, this.chunk);
       edgeCount = this.advance(k, out, done, edges, edgeCount);
       done += k;
@@ -77,7 +78,13 @@ export class SimBoardSignal implements BoardSignal {
    * Hands out the next k board samples (into `out` from `outOffset` when given) and their tach edges
    * (board sample indices, into `edges` from `edgeCount` as room allows); returns the new edge count.
    */
-  private advance(k: number, out: readonly Float64Array[] | null, outOffset: number, edges: Float64Array | null, edgeCount: number): number {
+  private advance(
+    k: number,
+    out: readonly Float64Array[] | null,
+    outOffset: number,
+    edges: Float64Array | null,
+    edgeCount: number,
+  ): number {
     const s = this.scratch;
     const found = this.sim.render(s, k, 1);
     if (out) {
@@ -89,7 +96,8 @@ export class SimBoardSignal implements BoardSignal {
     }
     if (edges) {
       const simEdges = this.sim.edges;
-      for (let e = 0; e < found && edgeCount < edges.length; e++) edges[edgeCount++] = simEdges[e]! - this.shift;
+      for (let e = 0; e < found && edgeCount < edges.length; e++)
+        edges[edgeCount++] = simEdges[e]! - this.shift;
     }
     for (let c = 0; c < this.simChannels; c++) s[c]![0] = s[c]![k]!;
     this.nextBoard += k;
@@ -105,7 +113,12 @@ export class SimBoardSignal implements BoardSignal {
  */
 export function boardScales(plan: SimPlan, channelCount: number, format: SampleFormat): number[] {
   const range = new Array<number>(channelCount).fill(10);
-  for (const s of plan.sensors) if (s.channel < channelCount) range[s.channel] = s.full_scale_v ?? plan.supplyV;
-  if (plan.tach.channel < channelCount) range[plan.tach.channel] = 1.25 * Math.max(Math.abs(plan.tach.high_v), Math.abs(plan.tach.low_v));
-  return format === 'float32' ? range.map(() => 1) : range.map((r) => r / (COUNT_RANGE[format].max + 1));
+  for (const s of plan.sensors)
+    if (s.channel < channelCount) range[s.channel] = s.full_scale_v ?? plan.supplyV;
+  if (plan.tach.channel < channelCount)
+    range[plan.tach.channel] =
+      1.25 * Math.max(Math.abs(plan.tach.high_v), Math.abs(plan.tach.low_v));
+  return format === 'float32'
+    ? range.map(() => 1)
+    : range.map((r) => r / (COUNT_RANGE[format].max + 1));
 }

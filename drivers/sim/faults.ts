@@ -52,7 +52,12 @@ function bearingIndex(g: RotorGeometry, name: string): number {
  * Synchronous (whole- and half-order) terms of a fault at one sensor. `phases` carries the fault's
  * random phases in degrees (looseness: one per term, moved by the synthesizer each block).
  */
-export function syncTerms(f: FaultSpec, phases: Float64Array, ctx: SyncContext, emit: EmitSync): void {
+export function syncTerms(
+  f: FaultSpec,
+  phases: Float64Array,
+  ctx: SyncContext,
+  emit: EmitSync,
+): void {
   const { geometry: g, place } = ctx;
   const psi = psiOf(g, place);
   const axial = place.direction === 'axial';
@@ -76,9 +81,14 @@ export function syncTerms(f: FaultSpec, phases: Float64Array, ctx: SyncContext, 
       if (place.bearing !== bearingIndex(g, f.bearing)) return;
       const w = place.direction === f.direction ? 1 : axial ? 0.2 : 0.5;
       const a = f.amp_pk_mm_s * 1e-3 * ctx.speedRatio ** 2 * ctx.factor * w;
-      for (let n = 1; n <= f.harmonics; n++) emit(2 * n, phasor(a / Math.sqrt(n), phases[n]! + psi));
+      for (let n = 1; n <= f.harmonics; n++)
+        emit(2 * n, phasor(a / Math.sqrt(n), phases[n]! + psi));
       if (f.half_orders) {
-        for (let n = 0; n < f.harmonics; n++) emit(2 * n + 1, phasor((0.5 * a) / Math.sqrt(n + 0.5), phases[f.harmonics + 1 + n]! + psi));
+        for (let n = 0; n < f.harmonics; n++)
+          emit(
+            2 * n + 1,
+            phasor((0.5 * a) / Math.sqrt(n + 0.5), phases[f.harmonics + 1 + n]! + psi),
+          );
       }
       return;
     }
@@ -114,16 +124,27 @@ export interface ToneDef {
   readonly key: string;
   readonly order: number;
   readonly hz: number;
-  amplitude(place: SensorPlace, sensorIndex: number, omegaRadS: number, speedRatio: number, factor: number): Phasor;
+  amplitude(
+    place: SensorPlace,
+    sensorIndex: number,
+    omegaRadS: number,
+    speedRatio: number,
+    factor: number,
+  ): Phasor;
 }
-
 
 /** Per-sensor lag drawn from a fault's random numbers, degrees. */
 function sensorLag(draws: Float64Array, slot: number, sensorIndex: number): number {
   return 360 * ((draws[slot % draws.length]! + 0.6180339887 * sensorIndex) % 1);
 }
 
-function velocityTone(key: string, order: number, hz: number, amp: (place: SensorPlace, sensorIndex: number, speedRatio: number) => number, lag: (sensorIndex: number) => number): ToneDef {
+function velocityTone(
+  key: string,
+  order: number,
+  hz: number,
+  amp: (place: SensorPlace, sensorIndex: number, speedRatio: number) => number,
+  lag: (sensorIndex: number) => number,
+): ToneDef {
   return {
     key,
     order,
@@ -148,7 +169,10 @@ export function toneDefs(f: FaultSpec, g: RotorGeometry, draws: Float64Array): T
           `${f.id}:${h}`,
           f.order * h,
           0,
-          (place, _s, ratio) => (place.bearing !== b ? 0 : (place.direction === 'axial' ? 0.3 : 1) * ((f.amp_pk_mm_s * 1e-3) / h) * ratio ** 2),
+          (place, _s, ratio) =>
+            place.bearing !== b
+              ? 0
+              : (place.direction === 'axial' ? 0.3 : 1) * ((f.amp_pk_mm_s * 1e-3) / h) * ratio ** 2,
           (s) => sensorLag(draws, h, s),
         ),
       );
@@ -161,7 +185,8 @@ export function toneDefs(f: FaultSpec, g: RotorGeometry, draws: Float64Array): T
       hz: f.ring_hz,
       amplitude(place, s, _omega, ratio, factor) {
         if (place.bearing !== b) return { re: 0, im: 0 };
-        const a = f.ring_pk_g * G * part * (place.direction === 'axial' ? 0.3 : 1) * ratio ** 2 * factor;
+        const a =
+          f.ring_pk_g * G * part * (place.direction === 'axial' ? 0.3 : 1) * ratio ** 2 * factor;
         return phasor(a, sensorLag(draws, 20, s));
       },
     });
@@ -175,7 +200,10 @@ export function toneDefs(f: FaultSpec, g: RotorGeometry, draws: Float64Array): T
         `${f.id}:tone`,
         0,
         f.freq_hz,
-        (place) => (b >= 0 && place.bearing !== b ? 0 : (place.direction === 'axial' ? 0.5 : 1) * f.amp_pk_mm_s * 1e-3),
+        (place) =>
+          b >= 0 && place.bearing !== b
+            ? 0
+            : (place.direction === 'axial' ? 0.5 : 1) * f.amp_pk_mm_s * 1e-3,
         (s) => sensorLag(draws, 1, s),
       ),
     ];

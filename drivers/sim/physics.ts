@@ -52,7 +52,17 @@
  *   Adding a weight beta degrees further against rotation adds beta to every sensor's phase lag.
  */
 
-import { abs, add, div, mul, scale, sub, wrapDeg, ZERO, type Complex } from '../../agent/balance/complex.js';
+import {
+  abs,
+  add,
+  div,
+  mul,
+  scale,
+  sub,
+  wrapDeg,
+  ZERO,
+  type Complex,
+} from '../../agent/balance/complex.js';
 import type { AngleConvention } from '../../agent/balance/conventions.js';
 
 /** Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901): one constant for the whole project. */
@@ -105,13 +115,22 @@ export function centrifugalForceN(massKg: number, radiusM: number, omegaRadS: nu
 }
 
 /** Unbalance of a mass at a radius and angle, as a phasor in kg m (see the angle convention above). */
-export function unbalancePhasor(massG: number, radiusMm: number, angleDeg: number, convention: AngleConvention): Phasor {
+export function unbalancePhasor(
+  massG: number,
+  radiusMm: number,
+  angleDeg: number,
+  convention: AngleConvention,
+): Phasor {
   const u = massG * 1e-3 * radiusMm * 1e-3;
   return convention === 'against_rotation' ? phasor(u, angleDeg) : phasor(u, -angleDeg);
 }
 
 /** Shares of a plane's force carried by bearings A and B (lever rule, statics of a beam on two supports). */
-export function leverShares(bearingAMm: number, bearingBMm: number, planeMm: number): [number, number] {
+export function leverShares(
+  bearingAMm: number,
+  bearingBMm: number,
+  planeMm: number,
+): [number, number] {
   const span = bearingBMm - bearingAMm;
   return [(bearingBMm - planeMm) / span, (planeMm - bearingAMm) / span];
 }
@@ -126,7 +145,10 @@ export interface SupportDynamics {
 /** Single-degree-of-freedom receptance (displacement per force, m/N) at angular frequency omega. */
 export function receptance(s: SupportDynamics, omegaRadS: number): Phasor {
   const r = omegaRadS / (2 * Math.PI * s.natural_hz);
-  return div({ re: 1 / s.stiffness_n_per_m, im: 0 }, { re: 1 - r * r, im: 2 * s.damping_ratio * r });
+  return div(
+    { re: 1 / s.stiffness_n_per_m, im: 0 },
+    { re: 1 - r * r, im: 2 * s.damping_ratio * r },
+  );
 }
 
 /** Natural frequency of a support carrying `massKg`, Hz: f_n = sqrt(k/m) / 2 pi. */
@@ -171,7 +193,12 @@ export interface SensorPlace {
  * Influence coefficient: 1x velocity phasor (m/s) at a sensor per unit unbalance phasor (1 kg m at
  * angle 0) in plane `plane`, at shaft speed omega.
  */
-export function influenceCoefficient(g: RotorGeometry, at: SensorPlace, plane: number, omegaRadS: number): Phasor {
+export function influenceCoefficient(
+  g: RotorGeometry,
+  at: SensorPlace,
+  plane: number,
+  omegaRadS: number,
+): Phasor {
   const zp = g.planes[plane]!.position_mm;
   const b = g.bearings[at.bearing]!;
   let share: number;
@@ -188,7 +215,12 @@ export function influenceCoefficient(g: RotorGeometry, at: SensorPlace, plane: n
 }
 
 /** 1x velocity phasor (m/s) at a sensor from the unbalance phasors (kg m) of every plane, in plane order. */
-export function unbalanceVelocity(g: RotorGeometry, at: SensorPlace, unbalance: readonly Phasor[], omegaRadS: number): Phasor {
+export function unbalanceVelocity(
+  g: RotorGeometry,
+  at: SensorPlace,
+  unbalance: readonly Phasor[],
+  omegaRadS: number,
+): Phasor {
   let re = 0;
   let im = 0;
   for (let p = 0; p < g.planes.length; p++) {

@@ -1,4 +1,11 @@
-import { bladePassTone, MAX_ORDER, phaseCount, syncTerms, toneDefs, type ToneDef } from './faults.js';
+import {
+  bladePassTone,
+  MAX_ORDER,
+  phaseCount,
+  syncTerms,
+  toneDefs,
+  type ToneDef,
+} from './faults.js';
 import {
   lagDeg,
   magnitude,
@@ -159,7 +166,8 @@ export class FanSimulator {
     const geometry = this.currentGeometry(tc);
     const u = this.state.unbalance(tc);
     return this.plan.sensors.map((s, i) => {
-      let v: Phasor = order === 1 ? unbalanceVelocity(geometry, s.place, u, omega) : { re: 0, im: 0 };
+      let v: Phasor =
+        order === 1 ? unbalanceVelocity(geometry, s.place, u, omega) : { re: 0, im: 0 };
       this.forEachSyncTerm(geometry, i, omega, tc, (h, p) => {
         if (h === 2 * order) v = { re: v.re + p.re, im: v.im + p.im };
       });
@@ -173,9 +181,13 @@ export class FanSimulator {
    * `edges` (valid until the next call).
    */
   render(out: readonly Float32Array[], count: number, offset = 0): number {
-    if (out.length < this.channelCount) throw new Error(`render needs ${this.channelCount} channel arrays, got ${out.length}`);
+    if (out.length < this.channelCount)
+      throw new Error(`render needs ${this.channelCount} channel arrays, got ${out.length}`);
     for (let c = 0; c < this.channelCount; c++) {
-      if (out[c]!.length < offset + count) throw new Error(`render: channel array ${c} holds ${out[c]!.length} samples, needs ${offset + count}`);
+      if (out[c]!.length < offset + count)
+        throw new Error(
+          `render: channel array ${c} holds ${out[c]!.length} samples, needs ${offset + count}`,
+        );
     }
     this.edgeCount = 0;
     let done = 0;
@@ -221,16 +233,31 @@ export class FanSimulator {
     const b = (i: 0 | 1) => ({
       name: g.bearings[i].name,
       position_mm: g.bearings[i].position_mm,
-      support: { vertical: s.support(i, 'vertical', tc), horizontal: s.support(i, 'horizontal', tc), axial: s.support(i, 'axial', tc) },
+      support: {
+        vertical: s.support(i, 'vertical', tc),
+        horizontal: s.support(i, 'horizontal', tc),
+        axial: s.support(i, 'axial', tc),
+      },
     });
     return { ...g, bearings: [b(0), b(1)] };
   }
 
-  private forEachSyncTerm(geometry: RotorGeometry, sensorIndex: number, omega: number, tc: number, emit: (halfOrder: number, v: Phasor) => void): void {
+  private forEachSyncTerm(
+    geometry: RotorGeometry,
+    sensorIndex: number,
+    omega: number,
+    tc: number,
+    emit: (halfOrder: number, v: Phasor) => void,
+  ): void {
     const speedRatio = omega / this.plan.ratedOmega;
     const place = this.plan.sensors[sensorIndex]!.place;
     for (const f of this.state.faults.values()) {
-      syncTerms(f.spec, f.phases, { geometry, place, sensorIndex, speedRatio, factor: this.state.faultFactor(f, tc) }, emit);
+      syncTerms(
+        f.spec,
+        f.phases,
+        { geometry, place, sensorIndex, speedRatio, factor: this.state.faultFactor(f, tc) },
+        emit,
+      );
     }
   }
 
@@ -240,8 +267,12 @@ export class FanSimulator {
     this.toneGeneration = this.state.faultGeneration;
     const old = new Map(this.tones.map((t) => [t.def.key, t]));
     const runs: { def: ToneDef; fault?: ActiveFault }[] = [];
-    if (this.plan.blades > 0 && this.plan.bladePassPkMmS > 0) runs.push({ def: bladePassTone(this.plan.blades, this.plan.bladePassPkMmS, this.bladeDraws) });
-    for (const f of this.state.faults.values()) for (const def of toneDefs(f.spec, this.plan.geometry, f.draws)) runs.push({ def, fault: f });
+    if (this.plan.blades > 0 && this.plan.bladePassPkMmS > 0)
+      runs.push({
+        def: bladePassTone(this.plan.blades, this.plan.bladePassPkMmS, this.bladeDraws),
+      });
+    for (const f of this.state.faults.values())
+      for (const def of toneDefs(f.spec, this.plan.geometry, f.draws)) runs.push({ def, fault: f });
     const latest = this.toneCoefNext;
     const oldIndex = new Map(this.tones.map((t, i) => [t.def.key, i]));
     this.tones = runs.map((r) => ({ ...r, phase: old.get(r.def.key)?.phase ?? 0 }));
@@ -251,7 +282,8 @@ export class FanSimulator {
     // a tone that stays keeps its latest amplitudes; a new one fades in from zero over one sub-block
     this.tones.forEach((t, i) => {
       const j = oldIndex.get(t.def.key);
-      if (j !== undefined) this.toneCoefNext.set(latest.subarray(j * S * 2, (j + 1) * S * 2), i * S * 2);
+      if (j !== undefined)
+        this.toneCoefNext.set(latest.subarray(j * S * 2, (j + 1) * S * 2), i * S * 2);
     });
   }
 
@@ -343,7 +375,11 @@ export class FanSimulator {
     for (let s = 0; s < S; s++) {
       for (let h = 1; h < K; h++) {
         const o = (s * K + h) * 2;
-        const on = this.coefPrev[o] !== 0 || this.coefPrev[o + 1] !== 0 || this.coefNext[o] !== 0 || this.coefNext[o + 1] !== 0;
+        const on =
+          this.coefPrev[o] !== 0 ||
+          this.coefPrev[o + 1] !== 0 ||
+          this.coefNext[o] !== 0 ||
+          this.coefNext[o + 1] !== 0;
         this.activeOrders[s * K + h] = on ? 1 : 0;
         if (on && h > maxH) maxH = h;
       }
@@ -426,7 +462,8 @@ export class FanSimulator {
         const base = t * SUB_BLOCK * 2;
         for (let i = 0; i < SUB_BLOCK; i++) {
           const f = i + 1;
-          acc[i] += (re0 + dre * f) * toneCos[base + i]! - (im0 + dim * f) * toneCos[base + SUB_BLOCK + i]!;
+          acc[i] +=
+            (re0 + dre * f) * toneCos[base + i]! - (im0 + dim * f) * toneCos[base + SUB_BLOCK + i]!;
         }
       }
       // bias, noise, sensor fault, board range
@@ -452,7 +489,8 @@ export class FanSimulator {
           x ^= x << 13;
           x ^= x >>> 17;
           x ^= x << 5;
-          const v = bias + Math.min(lim, Math.max(-lim, gain * (acc[i]! + noiseV * noise[x & mask]!)));
+          const v =
+            bias + Math.min(lim, Math.max(-lim, gain * (acc[i]! + noiseV * noise[x & mask]!)));
           out[i] = Math.min(hi, Math.max(lo, v));
         }
       } else if (fault.kind === 'flat') {
@@ -473,7 +511,8 @@ export class FanSimulator {
   }
 
   private toneScratch(tones: number): Float64Array {
-    if (this.toneBuf.length < tones * SUB_BLOCK * 2) this.toneBuf = new Float64Array(tones * SUB_BLOCK * 2);
+    if (this.toneBuf.length < tones * SUB_BLOCK * 2)
+      this.toneBuf = new Float64Array(tones * SUB_BLOCK * 2);
     return this.toneBuf;
   }
 
@@ -497,7 +536,8 @@ export class FanSimulator {
       if (psi >= halfPitch) psi -= pitch;
       // a pulse is kept or dropped as a whole: decide half a pitch before each mark
       if (psi < this.lastPsi) {
-        this.pulsePresent = !fault || (fault.kind === 'intermittent' && this.rng.uniform() >= fault.missing_fraction);
+        this.pulsePresent =
+          !fault || (fault.kind === 'intermittent' && this.rng.uniform() >= fault.missing_fraction);
       }
       this.lastPsi = psi;
       let level = 0;
@@ -511,7 +551,8 @@ export class FanSimulator {
         const d = this.dphiArr[i]!;
         if (d > 0 && psi >= 0 && psi < d && n0 + i > 0) {
           const frac = 1 - psi / d;
-          if (this.subEdgeCount < this.subEdges.length) this.subEdges[this.subEdgeCount++] = n0 + i - 1 + frac;
+          if (this.subEdgeCount < this.subEdges.length)
+            this.subEdges[this.subEdgeCount++] = n0 + i - 1 + frac;
         }
       }
       x ^= x << 13;

@@ -42,11 +42,20 @@ export class SimSource implements SampleSource {
   private opened = false;
 
   constructor(plan: SimPlan, opts: SimSourceOptions) {
-    if (!Number.isInteger(opts.blockSamples) || opts.blockSamples < 1) throw new Error(`blockSamples must be a positive integer, got ${opts.blockSamples}`);
+    if (!Number.isInteger(opts.blockSamples) || opts.blockSamples < 1)
+      throw new Error(`blockSamples must be a positive integer, got ${opts.blockSamples}`);
     this.opts = opts;
     this.pacer = opts.pacer ?? systemPacer;
-    this.sim = new FanSimulator(plan, { startS: opts.startS, timeScale: opts.timeScale, seed: opts.seed, onEvent: opts.onEvent });
-    this.channels = Array.from({ length: plan.channelCount }, () => new Float32Array(opts.blockSamples));
+    this.sim = new FanSimulator(plan, {
+      startS: opts.startS,
+      timeScale: opts.timeScale,
+      seed: opts.seed,
+      onEvent: opts.onEvent,
+    });
+    this.channels = Array.from(
+      { length: plan.channelCount },
+      () => new Float32Array(opts.blockSamples),
+    );
   }
 
   async open(): Promise<SourceInfo> {
@@ -56,7 +65,9 @@ export class SimSource implements SampleSource {
       channelCount: this.sim.channelCount,
       description: this.opts.description ?? `simulated fan: ${this.sim.plan.name}`,
     };
-    return this.opts.totalSamples === undefined ? info : { ...info, totalSamples: this.opts.totalSamples };
+    return this.opts.totalSamples === undefined
+      ? info
+      : { ...info, totalSamples: this.opts.totalSamples };
   }
 
   async *items(): AsyncIterable<SourceItem> {
@@ -66,7 +77,10 @@ export class SimSource implements SampleSource {
     const first = this.sim.sampleIndex;
     while (!this.closed) {
       const startIndex = this.sim.sampleIndex;
-      const left = this.opts.totalSamples === undefined ? Infinity : first + this.opts.totalSamples - startIndex;
+      const left =
+        this.opts.totalSamples === undefined
+          ? Infinity
+          : first + this.opts.totalSamples - startIndex;
       if (left <= 0) return;
       const n = Math.min(this.opts.blockSamples, left);
       this.sim.render(this.channels, n);
@@ -76,7 +90,8 @@ export class SimSource implements SampleSource {
         await new Promise<void>((resolve) => setImmediate(resolve));
       }
       if (this.closed) return;
-      const channels = n === this.opts.blockSamples ? this.channels : this.channels.map((c) => c.subarray(0, n));
+      const channels =
+        n === this.opts.blockSamples ? this.channels : this.channels.map((c) => c.subarray(0, n));
       yield this.opts.boardTachEdges
         ? { kind: 'samples', startIndex, channels, tachEdges: this.sim.edges }
         : { kind: 'samples', startIndex, channels };
@@ -119,7 +134,12 @@ export class SimSource implements SampleSource {
 }
 
 /** Builds the `driver: sim` source from the config's acquisition section; the scenario path is relative to the config file. */
-export function createSimSource(cfg: Config, section: SimDriverConfig, configFile: string, extra: { pacer?: Pacer; onEvent?: (e: AppliedEvent) => void } = {}): SimSource {
+export function createSimSource(
+  cfg: Config,
+  section: SimDriverConfig,
+  configFile: string,
+  extra: { pacer?: Pacer; onEvent?: (e: AppliedEvent) => void } = {},
+): SimSource {
   const file = scenarioPathFromConfig(configFile, section.scenario);
   const plan = resolveScenario(loadScenario(file), cfg, file, configFile);
   return new SimSource(plan, {

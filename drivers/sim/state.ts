@@ -1,5 +1,15 @@
 import { phaseCount } from './faults.js';
-import { add, rpmToRadS, scale, unbalancePhasor, ZERO, type AngleConvention, type Direction, type Phasor, type SupportDynamics } from './physics.js';
+import {
+  add,
+  rpmToRadS,
+  scale,
+  unbalancePhasor,
+  ZERO,
+  type AngleConvention,
+  type Direction,
+  type Phasor,
+  type SupportDynamics,
+} from './physics.js';
 import { formatAt, type FaultSpec, type ScenarioEvent, type SimPlan } from './scenario.js';
 
 /**
@@ -111,7 +121,15 @@ export class FanState {
   private replaying = false;
   private lastTc: number;
 
-  constructor(plan: SimPlan, opts: { startS: number; timeScale: number; draw: () => number; onEvent?: (e: AppliedEvent) => void }) {
+  constructor(
+    plan: SimPlan,
+    opts: {
+      startS: number;
+      timeScale: number;
+      draw: () => number;
+      onEvent?: (e: AppliedEvent) => void;
+    },
+  ) {
     this.plan = plan;
     this.startS = opts.startS;
     this.timeScale = opts.timeScale;
@@ -124,10 +142,15 @@ export class FanState {
     this.buildUpFixed = planes.map(() => ZERO);
     for (const m of plan.unbalance) {
       const i = planes.indexOf(m.plane);
-      this.residual[i] = add(this.residual[i]!, unbalancePhasor(m.mass_g, m.radius_mm, m.angle_deg, plan.angleConvention));
+      this.residual[i] = add(
+        this.residual[i]!,
+        unbalancePhasor(m.mass_g, m.radius_mm, m.angle_deg, plan.angleConvention),
+      );
     }
     for (const w of plan.weights) this.fitWeight({ ...w, convention: plan.angleConvention });
-    this.supports = plan.geometry.bearings.map((b) => (['vertical', 'horizontal', 'axial'] as const).map((d) => ({ base: b.support[d] })));
+    this.supports = plan.geometry.bearings.map((b) =>
+      (['vertical', 'horizontal', 'axial'] as const).map((d) => ({ base: b.support[d] })),
+    );
     this.lastTc = opts.startS;
     // replay the history before the start, quietly
     this.replaying = true;
@@ -160,19 +183,30 @@ export class FanState {
   omega(ts: number): number {
     const base = segmentSpeed(this.segment, ts);
     if (this.plan.driftFraction === 0) return base;
-    return base * (1 + this.plan.driftFraction * Math.sin((2 * Math.PI * (this.startS + ts)) / this.plan.driftPeriodS));
+    return (
+      base *
+      (1 +
+        this.plan.driftFraction *
+          Math.sin((2 * Math.PI * (this.startS + ts)) / this.plan.driftPeriodS))
+    );
   }
 
   /** Unbalance of every plane at scenario time tc, kg m phasors. */
   unbalance(tc: number): Phasor[] {
     const u = this.residual.map((r, i) => add(r, this.buildUpFixed[i]!));
-    for (const b of this.buildUps) u[b.plane] = add(u[b.plane]!, scale(b.rate, Math.max(0, Math.min(tc, b.until) - b.from)));
+    for (const b of this.buildUps)
+      u[b.plane] = add(u[b.plane]!, scale(b.rate, Math.max(0, Math.min(tc, b.until) - b.from)));
     for (const { u: wu, plane } of this.weightsOn.values()) u[plane] = add(u[plane]!, wu);
     return u;
   }
 
-  private supportSlot(bearing: number, direction: Direction): { base: SupportDynamics; ramp?: SupportRamp } {
-    return this.supports[bearing]![direction === 'vertical' ? 0 : direction === 'horizontal' ? 1 : 2]!;
+  private supportSlot(
+    bearing: number,
+    direction: Direction,
+  ): { base: SupportDynamics; ramp?: SupportRamp } {
+    return this.supports[bearing]![
+      direction === 'vertical' ? 0 : direction === 'horizontal' ? 1 : 2
+    ]!;
   }
 
   support(bearing: number, direction: Direction, tc: number): SupportDynamics {
@@ -205,7 +239,10 @@ export class FanState {
   addWeight(w: WeightOnRotor): void {
     if (this.weightsOn.has(w.id)) throw new Error(`weight "${w.id}" is already on the rotor`);
     this.fitWeight(w);
-    this.log({ at_s: this.lastTc, text: `${formatAt(this.lastTc)} weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg ${w.convention.replace('_', ' ')}, plane ${w.plane}` });
+    this.log({
+      at_s: this.lastTc,
+      text: `${formatAt(this.lastTc)} weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg ${w.convention.replace('_', ' ')}, plane ${w.plane}`,
+    });
   }
 
   /** Takes a weight off now. Returns false when no such weight is on the rotor. */
@@ -218,7 +255,11 @@ export class FanState {
   private fitWeight(w: WeightOnRotor): void {
     const plane = this.plan.geometry.planes.findIndex((p) => p.name === w.plane);
     if (plane < 0) throw new Error(`no plane "${w.plane}" on the rotor`);
-    this.weightsOn.set(w.id, { w, u: unbalancePhasor(w.mass_g, w.radius_mm, w.angle_deg, w.convention), plane });
+    this.weightsOn.set(w.id, {
+      w,
+      u: unbalancePhasor(w.mass_g, w.radius_mm, w.angle_deg, w.convention),
+      plane,
+    });
   }
 
   private planeIndex(name: string): number {
@@ -233,19 +274,44 @@ export class FanState {
     const tc = e.at;
     const ts = this.signalTime(tc);
     const when = formatAt(tc);
-    const say = (text: string) => this.log({ at_s: tc, text: `${when} ${text}${e.note ? ` (${e.note})` : ''}` });
+    const say = (text: string) =>
+      this.log({ at_s: tc, text: `${when} ${text}${e.note ? ` (${e.note})` : ''}` });
     if (e.start || e.speed) {
       const s = (e.start ?? e.speed)!;
-      this.segment = { t0: ts, kind: 'ramp', from: segmentSpeed(this.segment, ts), to: rpmToRadS(s.rpm), dur: s.ramp_s };
+      this.segment = {
+        t0: ts,
+        kind: 'ramp',
+        from: segmentSpeed(this.segment, ts),
+        to: rpmToRadS(s.rpm),
+        dur: s.ramp_s,
+      };
       say(`${e.start ? 'start-up' : 'speed change'} to ${s.rpm} r/min over ${s.ramp_s} s`);
     } else if (e.stop) {
-      this.segment = { t0: ts, kind: 'coast', from: segmentSpeed(this.segment, ts), to: 0, dur: e.stop.coast_s };
+      this.segment = {
+        t0: ts,
+        kind: 'coast',
+        from: segmentSpeed(this.segment, ts),
+        to: 0,
+        dur: e.stop.coast_s,
+      };
       say(`stop: coast-down over ${e.stop.coast_s} s`);
     } else if (e.build_up) {
       const b = e.build_up;
-      const rate = unbalancePhasor(b.mass_g_per_day / 86400, b.radius_mm, b.angle_deg, this.plan.angleConvention);
-      this.buildUps.push({ plane: this.planeIndex(b.plane), rate, from: tc, until: b.days === undefined ? Infinity : tc + b.days * 86400 });
-      say(`build-up starts on plane ${b.plane}: ${b.mass_g_per_day} g/day at ${b.radius_mm} mm, ${b.angle_deg} deg`);
+      const rate = unbalancePhasor(
+        b.mass_g_per_day / 86400,
+        b.radius_mm,
+        b.angle_deg,
+        this.plan.angleConvention,
+      );
+      this.buildUps.push({
+        plane: this.planeIndex(b.plane),
+        rate,
+        from: tc,
+        until: b.days === undefined ? Infinity : tc + b.days * 86400,
+      });
+      say(
+        `build-up starts on plane ${b.plane}: ${b.mass_g_per_day} g/day at ${b.radius_mm} mm, ${b.angle_deg} deg`,
+      );
     } else if (e.build_up_shed) {
       const p = this.planeIndex(e.build_up_shed.plane);
       const keep = 1 - e.build_up_shed.fraction;
@@ -256,11 +322,15 @@ export class FanState {
         b.from = Math.min(tc, b.until);
       }
       this.buildUpFixed[p] = fixed;
-      say(`${Math.round(e.build_up_shed.fraction * 100)} % of the build-up on plane ${e.build_up_shed.plane} flakes off`);
+      say(
+        `${Math.round(e.build_up_shed.fraction * 100)} % of the build-up on plane ${e.build_up_shed.plane} flakes off`,
+      );
     } else if (e.weight_added) {
       this.fitWeight({ ...e.weight_added, convention: this.plan.angleConvention });
       const w = e.weight_added;
-      say(`weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg, plane ${w.plane}`);
+      say(
+        `weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg, plane ${w.plane}`,
+      );
     } else if (e.weight_thrown || e.weight_removed) {
       const id = (e.weight_thrown ?? e.weight_removed)!.id;
       this.weightsOn.delete(id);
@@ -272,7 +342,9 @@ export class FanState {
       for (let i = 0; i < phases.length; i++) phases[i] = 360 * this.draw();
       this.faults.set(e.fault.id, { spec: e.fault, startTc: tc, draws, phases });
       this.faultGeneration++;
-      say(`fault ${e.fault.id} (${e.fault.kind.replace('_', ' ')}) appears${e.fault.ramp_days > 0 ? ` and grows over ${e.fault.ramp_days} days` : ''}`);
+      say(
+        `fault ${e.fault.id} (${e.fault.kind.replace('_', ' ')}) appears${e.fault.ramp_days > 0 ? ` and grows over ${e.fault.ramp_days} days` : ''}`,
+      );
     } else if (e.fault_cleared) {
       this.faults.delete(e.fault_cleared.id);
       this.faultGeneration++;
@@ -282,7 +354,8 @@ export class FanState {
       const b = this.bearingIndex(c.bearing);
       const slot = this.supportSlot(b, c.direction);
       const from = this.support(b, c.direction, tc);
-      const k = c.stiffness_mn_per_m !== undefined ? c.stiffness_mn_per_m * 1e6 : from.stiffness_n_per_m;
+      const k =
+        c.stiffness_mn_per_m !== undefined ? c.stiffness_mn_per_m * 1e6 : from.stiffness_n_per_m;
       const to: SupportDynamics = {
         stiffness_n_per_m: k,
         // a stiffness change alone keeps the mass on the support: f_n = sqrt(k/m) / 2 pi moves with sqrt(k)
@@ -291,17 +364,29 @@ export class FanState {
       };
       slot.base = to;
       slot.ramp = { from, to, startTc: tc, durS: c.ramp_days * 86400 };
-      say(`support of ${c.bearing} ${c.direction} changes: natural frequency ${to.natural_hz.toFixed(1)} Hz, stiffness ${(to.stiffness_n_per_m / 1e6).toFixed(1)} MN/m`);
+      say(
+        `support of ${c.bearing} ${c.direction} changes: natural frequency ${to.natural_hz.toFixed(1)} Hz, stiffness ${(to.stiffness_n_per_m / 1e6).toFixed(1)} MN/m`,
+      );
     } else if (e.sensor_fault) {
       const f = e.sensor_fault;
-      this.sensorFaults.set(this.sensorIndex(f.sensor), { kind: f.kind, gain: f.gain, limit_v: f.limit_v });
-      say(`sensor ${f.sensor}: ${f.kind === 'open' ? 'open cable' : f.kind === 'short' ? 'short circuit' : f.kind === 'flat' ? 'flat line' : 'clipping'}`);
+      this.sensorFaults.set(this.sensorIndex(f.sensor), {
+        kind: f.kind,
+        gain: f.gain,
+        limit_v: f.limit_v,
+      });
+      say(
+        `sensor ${f.sensor}: ${f.kind === 'open' ? 'open cable' : f.kind === 'short' ? 'short circuit' : f.kind === 'flat' ? 'flat line' : 'clipping'}`,
+      );
     } else if (e.sensor_repaired) {
       this.sensorFaults.delete(this.sensorIndex(e.sensor_repaired.sensor));
       say(`sensor ${e.sensor_repaired.sensor} repaired`);
     } else if (e.tach_fault) {
       this.tachFault = { kind: e.tach_fault.kind, missing_fraction: e.tach_fault.missing_fraction };
-      say(e.tach_fault.kind === 'lost' ? 'tach signal lost' : `tach misses ${Math.round(e.tach_fault.missing_fraction * 100)} % of pulses`);
+      say(
+        e.tach_fault.kind === 'lost'
+          ? 'tach signal lost'
+          : `tach misses ${Math.round(e.tach_fault.missing_fraction * 100)} % of pulses`,
+      );
     } else if (e.tach_repaired) {
       this.tachFault = undefined;
       say('tach repaired');

@@ -36,7 +36,10 @@ function infoSubchunk(id: string, text: string): Buffer {
 }
 
 /** Header bytes up to and including the `data` chunk id and size; `frames` may be 0 (patched later). */
-export function wavHeader(opts: WavWriterOptions, frames: number): { header: Buffer; factOffset: number; dataSizeOffset: number } {
+export function wavHeader(
+  opts: WavWriterOptions,
+  frames: number,
+): { header: Buffer; factOffset: number; dataSizeOffset: number } {
   const blockAlign = 4 * opts.channelCount;
   const info = Buffer.concat([
     Buffer.from('INFO', 'latin1'),
@@ -103,7 +106,12 @@ export class WavWriter {
   private frames = 0;
   private closed = false;
 
-  private constructor(fh: FileHandle, path: string, opts: WavWriterOptions, head: ReturnType<typeof wavHeader>) {
+  private constructor(
+    fh: FileHandle,
+    path: string,
+    opts: WavWriterOptions,
+    head: ReturnType<typeof wavHeader>,
+  ) {
     this.fh = fh;
     this.path = path;
     this.opts = opts;
@@ -117,15 +125,21 @@ export class WavWriter {
 
   /** Creates (or truncates) the file and writes the header. */
   static async create(path: string, opts: WavWriterOptions): Promise<WavWriter> {
-    if (!Number.isInteger(opts.sampleRate) || opts.sampleRate < 1) throw new Error(`sample rate must be a positive integer, got ${opts.sampleRate}`);
+    if (!Number.isInteger(opts.sampleRate) || opts.sampleRate < 1)
+      throw new Error(`sample rate must be a positive integer, got ${opts.sampleRate}`);
     // the block align (4 bytes x channels) is a 16-bit field
-    if (!Number.isInteger(opts.channelCount) || opts.channelCount < 1 || opts.channelCount > 16383) throw new Error(`channel count out of range: ${opts.channelCount}`);
+    if (!Number.isInteger(opts.channelCount) || opts.channelCount < 1 || opts.channelCount > 16383)
+      throw new Error(`channel count out of range: ${opts.channelCount}`);
     let fh: FileHandle;
     try {
       fh = await open(path, 'w');
     } catch (e) {
       const code = (e as NodeJS.ErrnoException).code;
-      throw new UserError(path, `cannot create the recording (${code ?? String(e)})`, code === 'ENOENT' ? 'create the folder first' : 'choose a writable path');
+      throw new UserError(
+        path,
+        `cannot create the recording (${code ?? String(e)})`,
+        code === 'ENOENT' ? 'create the folder first' : 'choose a writable path',
+      );
     }
     const head = wavHeader(opts, 0);
     try {
@@ -149,7 +163,11 @@ export class WavWriter {
     if (channels.length !== ch) throw new Error(`expected ${ch} channels, got ${channels.length}`);
     if (count === 0) return;
     if (this.frames + count > this.maxFrames) {
-      throw new UserError(this.path, `the recording would pass the 4 GiB limit of a WAV file (${this.maxFrames} frames at ${ch} channels)`, 'record fewer seconds per file');
+      throw new UserError(
+        this.path,
+        `the recording would pass the 4 GiB limit of a WAV file (${this.maxFrames} frames at ${ch} channels)`,
+        'record fewer seconds per file',
+      );
     }
     const bytes = count * ch * 4;
     if (this.buf.length < bytes) {

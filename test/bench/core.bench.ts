@@ -17,13 +17,39 @@ const fs = 25600;
 const TIMED_RUNS = 7;
 const log = (s: string) => process.stderr.write(s + '\n');
 
-function coreRealtimeFactor(): { rtf: number; cpuS: number; audioS: number; peakRssMb: number; heapMb: number } {
+function coreRealtimeFactor(): {
+  rtf: number;
+  cpuS: number;
+  audioS: number;
+  peakRssMb: number;
+  heapMb: number;
+} {
   const seconds = 30;
-  const sensors = Array.from({ length: 7 }, (_, i) => ({ orders: [{ order: 1, velPk: 3 + i, phaseDeg: 30 * i }, { order: 2, velPk: 0.5, phaseDeg: 10 }], noiseMmS2: 200 }));
+  const sensors = Array.from({ length: 7 }, (_, i) => ({
+    orders: [
+      { order: 1, velPk: 3 + i, phaseDeg: 30 * i },
+      { order: 2, velPk: 0.5, phaseDeg: 10 },
+    ],
+    noiseMmS2: 200,
+  }));
   log(`bench: synthesizing ${seconds} s x 8 channels at ${fs} Hz ...`);
-  const sig = synthesize({ sampleRate: fs, seconds, rpm: (t) => 1485 * (1 + 0.005 * Math.sin(t / 5)), channels: sensors, tachChannel: 7 });
+  const sig = synthesize({
+    sampleRate: fs,
+    seconds,
+    rpm: (t) => 1485 * (1 + 0.005 * Math.sin(t / 5)),
+    channels: sensors,
+    tachChannel: 7,
+  });
   const cfg = testConfig(
-    sensors.map((_, i) => [`S${i}`, i, i < 3 ? 'DE' : 'NDE', (['vertical', 'horizontal', 'axial'] as const)[i % 3]] as const),
+    sensors.map(
+      (_, i) =>
+        [
+          `S${i}`,
+          i,
+          i < 3 ? 'DE' : 'NDE',
+          (['vertical', 'horizontal', 'axial'] as const)[i % 3],
+        ] as const,
+    ),
     { tachChannel: 7, blades: 10, ratedRpm: 1485 },
   );
   const blocks = [...asBlocks(sig, 4096)];
@@ -45,9 +71,19 @@ function coreRealtimeFactor(): { rtf: number; cpuS: number; audioS: number; peak
     if (rep > 0) best = Math.min(best, (c.user + c.system) / 1e6);
     peakRss = Math.max(peakRss, process.memoryUsage().rss);
   }
-  return { rtf: seconds / best, cpuS: best, audioS: seconds, peakRssMb: peakRss / 2 ** 20, heapMb: process.memoryUsage().heapUsed / 2 ** 20 };
+  return {
+    rtf: seconds / best,
+    cpuS: best,
+    audioS: seconds,
+    peakRssMb: peakRss / 2 ** 20,
+    heapMb: process.memoryUsage().heapUsed / 2 ** 20,
+  };
 }
 
 const r = coreRealtimeFactor();
-console.log(`core, 8 ch x 25.6 kHz: ${r.rtf.toFixed(0)}x real time on one core (${r.cpuS.toFixed(3)} s CPU for ${r.audioS} s of signal, best of ${TIMED_RUNS} after a warm-up run)`);
-console.log(`peak RSS ${r.peakRssMb.toFixed(0)} MB (includes the ${((8 * 4 * fs * r.audioS) / 2 ** 20).toFixed(0)} MB test signal held in memory); heap in use ${r.heapMb.toFixed(0)} MB`);
+console.log(
+  `core, 8 ch x 25.6 kHz: ${r.rtf.toFixed(0)}x real time on one core (${r.cpuS.toFixed(3)} s CPU for ${r.audioS} s of signal, best of ${TIMED_RUNS} after a warm-up run)`,
+);
+console.log(
+  `peak RSS ${r.peakRssMb.toFixed(0)} MB (includes the ${((8 * 4 * fs * r.audioS) / 2 ** 20).toFixed(0)} MB test signal held in memory); heap in use ${r.heapMb.toFixed(0)} MB`,
+);

@@ -11,7 +11,17 @@ import { Outbox } from '../../agent/outbox/outbox.js';
 const N = 300;
 const root = mkdtempSync(join(process.argv[2] ?? tmpdir(), 'tw-bench-'));
 const ob = await Outbox.open({ dir: join(root, 'outbox'), maxEvents: 10 * N });
-const event = (i: number) => ({ id: `bench-${i}`, ts: new Date().toISOString(), asset: 'kessrow-id3a', type: 'zone_change', severity: 'warning' as const, channel: 'DE-V', zone: 'C', overall_rms_mm_s: 4.71, text: 'x'.repeat(300) });
+const event = (i: number) => ({
+  id: `bench-${i}`,
+  ts: new Date().toISOString(),
+  asset: 'kessrow-id3a',
+  type: 'zone_change',
+  severity: 'warning' as const,
+  channel: 'DE-V',
+  zone: 'C',
+  overall_rms_mm_s: 4.71,
+  text: 'x'.repeat(300),
+});
 
 const lat: number[] = [];
 let t0 = process.hrtime.bigint();

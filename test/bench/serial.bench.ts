@@ -13,7 +13,12 @@
 import { fork } from 'node:child_process';
 import { parseArgs } from 'node:util';
 import { fileURLToPath } from 'node:url';
-import { BoardEmulator, DeviceWriter, SineTachSignal, playRealtime } from '../../drivers/serial/board-emulator.js';
+import {
+  BoardEmulator,
+  DeviceWriter,
+  SineTachSignal,
+  playRealtime,
+} from '../../drivers/serial/board-emulator.js';
 import { FrameDecoder } from '../../drivers/serial/frame.js';
 import { silentLogger } from '../../agent/log.js';
 import { PortReader } from '../../drivers/serial/port-reader.js';
@@ -27,8 +32,18 @@ const SPF = 256; // 10 ms frames
 const SCALE = Array.from({ length: CHANNELS }, () => 2 ** -21);
 
 function makeBoard(): BoardEmulator {
-  const chans = Array.from({ length: CHANNELS }, (_, c) => ({ amp_v: 0.5 + 0.1 * c, lag_deg: 40 * c, dc_v: c === 6 ? 2 : 0 }));
-  return new BoardEmulator(new SineTachSignal(RATE, 1485, chans, 3.5), { sampleRateHz: RATE, samplesPerFrame: SPF, format: 'int24', scaleVPerCount: SCALE, tachTimed: true });
+  const chans = Array.from({ length: CHANNELS }, (_, c) => ({
+    amp_v: 0.5 + 0.1 * c,
+    lag_deg: 40 * c,
+    dc_v: c === 6 ? 2 : 0,
+  }));
+  return new BoardEmulator(new SineTachSignal(RATE, 1485, chans, 3.5), {
+    sampleRateHz: RATE,
+    samplesPerFrame: SPF,
+    format: 'int24',
+    scaleVPerCount: SCALE,
+    tachTimed: true,
+  });
 }
 
 /** Child process: plays the board into the pty in real time until told to stop. */
@@ -61,16 +76,21 @@ function decoderCeiling(): { mb_per_s: number; realtime_factor: number } {
   const chunk = 4096;
   const rounds = 20;
   const t0 = process.hrtime.bigint();
-  for (let r = 0; r < rounds; r++) for (let o = 0; o < bytes.length; o += chunk) dec.push(bytes.subarray(o, o + chunk));
+  for (let r = 0; r < rounds; r++)
+    for (let o = 0; o < bytes.length; o += chunk) dec.push(bytes.subarray(o, o + chunk));
   const s = Number(process.hrtime.bigint() - t0) / 1e9;
-  if (dec.counters.frames_ok !== 500 * rounds || !Number.isFinite(sum)) throw new Error('decoder bench decoded wrong');
+  if (dec.counters.frames_ok !== 500 * rounds || !Number.isFinite(sum))
+    throw new Error('decoder bench decoded wrong');
   const mbPerS = (bytes.length * rounds) / s / 1e6;
   const realtimeBytesPerS = (bytes.length / (500 * SPF)) * RATE;
   return { mb_per_s: mbPerS, realtime_factor: (mbPerS * 1e6) / realtimeBytesPerS };
 }
 
 /** CPU share of a timer that wakes this process `perS` times a second and does nothing else. */
-async function wakeFloor(perS: number, seconds: number): Promise<{ wakeups_per_s: number; cpu_percent_of_one_core: number }> {
+async function wakeFloor(
+  perS: number,
+  seconds: number,
+): Promise<{ wakeups_per_s: number; cpu_percent_of_one_core: number }> {
   let n = 0;
   let stop = false;
   const cpu0 = process.cpuUsage();
@@ -86,7 +106,10 @@ async function wakeFloor(perS: number, seconds: number): Promise<{ wakeups_per_s
   const cpu = process.cpuUsage(cpu0);
   const wallS = (performance.now() - t0) / 1000;
   stop = true;
-  return { wakeups_per_s: n / wallS, cpu_percent_of_one_core: (100 * (cpu.user + cpu.system)) / 1e6 / wallS };
+  return {
+    wakeups_per_s: n / wallS,
+    cpu_percent_of_one_core: (100 * (cpu.user + cpu.system)) / 1e6 / wallS,
+  };
 }
 
 interface Measured {
@@ -187,10 +210,16 @@ async function measureOn(pty: PtyPair, kind: Kind, seconds: number): Promise<Mea
     stream = port;
   }
 
-  const child = fork(fileURLToPath(import.meta.url), ['--board', pty.boardPath], { stdio: ['ignore', 'inherit', 'inherit', 'ipc'] });
-  const sentP = new Promise<{ sent: number; bytes: number }>((res) => child.on('message', (m: { sent: number; bytes: number }) => res(m)));
+  const child = fork(fileURLToPath(import.meta.url), ['--board', pty.boardPath], {
+    stdio: ['ignore', 'inherit', 'inherit', 'ipc'],
+  });
+  const sentP = new Promise<{ sent: number; bytes: number }>((res) =>
+    child.on('message', (m: { sent: number; bytes: number }) => res(m)),
+  );
   await new Promise((r) => setTimeout(r, 1000));
-  process.stderr.write(`serial bench (${kind}): measuring ${seconds} s of 8 ch x 25.6 kHz x int24 through ${pty.agentPath}...\n`);
+  process.stderr.write(
+    `serial bench (${kind}): measuring ${seconds} s of 8 ch x 25.6 kHz x int24 through ${pty.agentPath}...\n`,
+  );
   const samples0 = samples;
   const bytes0 = bytes;
   const reads0 = reads;
@@ -200,7 +229,8 @@ async function measureOn(pty: PtyPair, kind: Kind, seconds: number): Promise<Mea
   await new Promise((r) => setTimeout(r, seconds * 1000));
   const cpu = process.cpuUsage(cpu0);
   const wallS = (performance.now() - t0) / 1000;
-  const samplesPerS = kind === 'source' ? (samples - samples0) / wallS : (bytes - bytes0) / (CHANNELS * 3) / wallS;
+  const samplesPerS =
+    kind === 'source' ? (samples - samples0) / wallS : (bytes - bytes0) / (CHANNELS * 3) / wallS;
   const readsPerS = (reads - reads0) / wallS;
   const heap1 = process.memoryUsage().heapUsed;
 
@@ -239,7 +269,9 @@ async function measureOn(pty: PtyPair, kind: Kind, seconds: number): Promise<Mea
 const cpuPercent = (m: Measured) => (100 * (m.cpu_user_s + m.cpu_system_s)) / m.wall_s;
 
 async function main(): Promise<void> {
-  const { values } = parseArgs({ options: { seconds: { type: 'string', default: '20' }, json: { type: 'boolean' } } });
+  const { values } = parseArgs({
+    options: { seconds: { type: 'string', default: '20' }, json: { type: 'boolean' } },
+  });
   const seconds = Number(values.seconds);
   if (!(seconds > 0)) throw new Error('--seconds must be a positive number');
 
@@ -248,11 +280,23 @@ async function main(): Promise<void> {
   const src = await measure('source', seconds);
   const readerM = await measure('reader', seconds);
   const streamM = await measure('stream', seconds);
-  process.stderr.write(`serial bench: a timer waking ${readerM.reads_per_s.toFixed(0)} times a second for ${seconds} s...\n`);
+  process.stderr.write(
+    `serial bench: a timer waking ${readerM.reads_per_s.toFixed(0)} times a second for ${seconds} s...\n`,
+  );
   const floor = await wakeFloor(readerM.reads_per_s, seconds);
-  const keepsUp = src.received === src.frames_sent && src.gaps === 0 && src.overruns === 0 && readerM.received === readerM.bytes_sent;
+  const keepsUp =
+    src.received === src.frames_sent &&
+    src.gaps === 0 &&
+    src.overruns === 0 &&
+    readerM.received === readerM.bytes_sent;
   const result = {
-    stream: { channels: CHANNELS, sample_rate_hz: RATE, format: 'int24', samples_per_frame: SPF, payload_bytes_per_s: RATE * CHANNELS * 3 },
+    stream: {
+      channels: CHANNELS,
+      sample_rate_hz: RATE,
+      format: 'int24',
+      samples_per_frame: SPF,
+      payload_bytes_per_s: RATE * CHANNELS * 3,
+    },
     keeps_up: keepsUp,
     source: { ...src, cpu_percent_of_one_core: cpuPercent(src) },
     port_reader_only: { ...readerM, cpu_percent_of_one_core: cpuPercent(readerM) },
@@ -265,19 +309,37 @@ async function main(): Promise<void> {
   if (values.json) process.stdout.write(JSON.stringify(result, null, 2) + '\n');
   else {
     const rows: [string, string][] = [
-      ['stream', `${CHANNELS} ch x ${RATE} Hz x int24, ${SPF} samples/frame (${((RATE * CHANNELS * 3) / 1e3).toFixed(1)} kB/s of samples)`],
+      [
+        'stream',
+        `${CHANNELS} ch x ${RATE} Hz x int24, ${SPF} samples/frame (${((RATE * CHANNELS * 3) / 1e3).toFixed(1)} kB/s of samples)`,
+      ],
       ['measured', `${src.wall_s.toFixed(1)} s wall per run`],
       ['keeps up', keepsUp ? 'yes' : 'NO'],
       ['frames sent / received', `${src.frames_sent} / ${src.received}`],
       ['bytes sent / received (PortReader)', `${readerM.bytes_sent} / ${readerM.received}`],
       ['samples received', `${src.samples_per_s.toFixed(0)} /s per channel during the measurement`],
       ['gaps, crc errors, overruns', `${src.gaps}, ${src.crc_errors}, ${src.overruns}`],
-      ['reader CPU (SerialSource)', `${cpuPercent(src).toFixed(2)} % of one core (user ${src.cpu_user_s.toFixed(2)} s, system ${src.cpu_system_s.toFixed(2)} s)`],
-      ['PortReader alone', `${cpuPercent(readerM).toFixed(2)} % of one core (no decoding; ${readerM.reads_per_s.toFixed(0)} reads/s)`],
-      ['serialport stream alone', `${cpuPercent(streamM).toFixed(2)} % of one core (no decoding; ${streamM.reads_per_s.toFixed(0)} reads/s; the agent's former path)`],
-      ['timer waking as often, alone', `${floor.cpu_percent_of_one_core.toFixed(2)} % of one core (${floor.wakeups_per_s.toFixed(0)} wake-ups/s, nothing read)`],
+      [
+        'reader CPU (SerialSource)',
+        `${cpuPercent(src).toFixed(2)} % of one core (user ${src.cpu_user_s.toFixed(2)} s, system ${src.cpu_system_s.toFixed(2)} s)`,
+      ],
+      [
+        'PortReader alone',
+        `${cpuPercent(readerM).toFixed(2)} % of one core (no decoding; ${readerM.reads_per_s.toFixed(0)} reads/s)`,
+      ],
+      [
+        'serialport stream alone',
+        `${cpuPercent(streamM).toFixed(2)} % of one core (no decoding; ${streamM.reads_per_s.toFixed(0)} reads/s; the agent's former path)`,
+      ],
+      [
+        'timer waking as often, alone',
+        `${floor.cpu_percent_of_one_core.toFixed(2)} % of one core (${floor.wakeups_per_s.toFixed(0)} wake-ups/s, nothing read)`,
+      ],
       ['heap growth (SerialSource)', `${src.heap_growth_mb.toFixed(2)} MB`],
-      ['decoder alone', `${ceiling.mb_per_s.toFixed(0)} MB/s = ${ceiling.realtime_factor.toFixed(0)} x real time`],
+      [
+        'decoder alone',
+        `${ceiling.mb_per_s.toFixed(0)} MB/s = ${ceiling.realtime_factor.toFixed(0)} x real time`,
+      ],
     ];
     const w = Math.max(...rows.map((r) => r[0].length));
     process.stdout.write(rows.map(([k, v]) => `${k.padEnd(w)}  ${v}`).join('\n') + '\n');

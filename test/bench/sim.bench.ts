@@ -25,17 +25,61 @@ const base = loadScenario('config/example-scenario.yaml');
 function withAllFaults(s: Scenario): Scenario {
   const at = 6 * 86400;
   const faults = [
-    { kind: 'misalignment', id: 'm', coupling_bearing: 'DE', amp_pk_mm_s: 2, axial_ratio: 1, angle_deg: 0, ramp_days: 0 },
-    { kind: 'looseness', id: 'l', bearing: 'NDE', amp_pk_mm_s: 1, direction: 'vertical', harmonics: 8, half_orders: true, jitter_deg: 30, ramp_days: 0 },
+    {
+      kind: 'misalignment',
+      id: 'm',
+      coupling_bearing: 'DE',
+      amp_pk_mm_s: 2,
+      axial_ratio: 1,
+      angle_deg: 0,
+      ramp_days: 0,
+    },
+    {
+      kind: 'looseness',
+      id: 'l',
+      bearing: 'NDE',
+      amp_pk_mm_s: 1,
+      direction: 'vertical',
+      harmonics: 8,
+      half_orders: true,
+      jitter_deg: 30,
+      ramp_days: 0,
+    },
     { kind: 'bent_shaft', id: 'b', amp_pk_mm_s: 1, radial_ratio: 0.5, angle_deg: 0, ramp_days: 0 },
     { kind: 'eccentricity', id: 'e', bearing: 'DE', amp_pk_mm_s: 1, angle_deg: 0, ramp_days: 0 },
-    { kind: 'bearing_defect', id: 'bd', bearing: 'NDE', order: 3.58, amp_pk_mm_s: 0.5, harmonics: 3, ring_hz: 3000, ring_pk_g: 0.2, ramp_days: 0 },
+    {
+      kind: 'bearing_defect',
+      id: 'bd',
+      bearing: 'NDE',
+      order: 3.58,
+      amp_pk_mm_s: 0.5,
+      harmonics: 3,
+      ring_hz: 3000,
+      ring_pk_g: 0.2,
+      ramp_days: 0,
+    },
     { kind: 'tone', id: 't', freq_hz: 49.7, amp_pk_mm_s: 0.3, ramp_days: 0 },
   ] as const;
-  return { ...s, timeline: [...s.timeline.filter((e) => e.at < at), ...faults.map((fault) => ({ at, fault }))] as Scenario['timeline'] };
+  return {
+    ...s,
+    timeline: [
+      ...s.timeline.filter((e) => e.at < at),
+      ...faults.map((fault) => ({ at, fault })),
+    ] as Scenario['timeline'],
+  };
 }
 
-function timeRender(scenario: Scenario, startDay: number): { seconds: number; cpu_s: number; x_realtime: number; x_realtime_cpu: number; ns_per_sample_channel: number; heap_growth_kb: number } {
+function timeRender(
+  scenario: Scenario,
+  startDay: number,
+): {
+  seconds: number;
+  cpu_s: number;
+  x_realtime: number;
+  x_realtime_cpu: number;
+  ns_per_sample_channel: number;
+  heap_growth_kb: number;
+} {
   const plan = resolveScenario(scenario, cfg);
   const sim = new FanSimulator(plan, { startS: startDay * 86400 });
   const out = Array.from({ length: plan.channelCount }, () => new Float32Array(BLOCK));
@@ -75,8 +119,11 @@ async function timeWav(): Promise<{ seconds: number; x_realtime: number; mb_per_
     let best = { secs: Infinity, bytes: 0 };
     for (let rep = 0; rep < REPEATS; rep++) {
       const t0 = performance.now();
-      const w = await WavWriter.create(join(dir, 'bench.wav'), { sampleRate: plan.sampleRate, channelCount: plan.channelCount });
-      for (let done = 0; done < total; ) {
+      const w = await WavWriter.create(join(dir, 'bench.wav'), {
+        sampleRate: plan.sampleRate,
+        channelCount: plan.channelCount,
+      });
+      for (let done = 0; done < total;) {
         const n = Math.min(8192, total - done);
         sim.render(out, n);
         await w.write(out, n);
@@ -86,7 +133,11 @@ async function timeWav(): Promise<{ seconds: number; x_realtime: number; mb_per_
       const secs = (performance.now() - t0) / 1000;
       if (secs < best.secs) best = { secs, bytes };
     }
-    return { seconds: best.secs, x_realtime: SECONDS / best.secs, mb_per_s: best.bytes / 1e6 / best.secs };
+    return {
+      seconds: best.secs,
+      x_realtime: SECONDS / best.secs,
+      mb_per_s: best.bytes / 1e6 / best.secs,
+    };
   } finally {
     rmSync(dir, { recursive: true, force: true });
   }
@@ -114,9 +165,17 @@ if (process.argv.includes('--json')) {
     `  ${name.padEnd(30)} wall ${r.seconds.toFixed(3).padStart(6)} s (${r.x_realtime.toFixed(0).padStart(4)}x real time)  ${extra}`;
   process.stdout.write(
     `fan simulator, ${SECONDS} s of 7 channels at 25.6 kHz, best of ${REPEATS} runs (node ${process.version}, ${process.arch}, load average ${loadavg()[0]!.toFixed(1)})\n` +
-      row('render, demo scenario', demo, `cpu ${demo.cpu_s.toFixed(3)} s (${demo.x_realtime_cpu.toFixed(0)}x), ${demo.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${demo.heap_growth_kb.toFixed(0)} kB`) +
+      row(
+        'render, demo scenario',
+        demo,
+        `cpu ${demo.cpu_s.toFixed(3)} s (${demo.x_realtime_cpu.toFixed(0)}x), ${demo.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${demo.heap_growth_kb.toFixed(0)} kB`,
+      ) +
       '\n' +
-      row('render, every fault kind on', faults, `cpu ${faults.cpu_s.toFixed(3)} s (${faults.x_realtime_cpu.toFixed(0)}x), ${faults.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${faults.heap_growth_kb.toFixed(0)} kB`) +
+      row(
+        'render, every fault kind on',
+        faults,
+        `cpu ${faults.cpu_s.toFixed(3)} s (${faults.x_realtime_cpu.toFixed(0)}x), ${faults.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${faults.heap_growth_kb.toFixed(0)} kB`,
+      ) +
       '\n' +
       row('render + write WAV (fsync)', wav, `${wav.mb_per_s.toFixed(0)} MB/s`) +
       '\n',

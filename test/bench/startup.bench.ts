@@ -51,13 +51,20 @@ const extraCa = process.env.NODE_EXTRA_CA_CERTS;
 const childEnv = { ...process.env };
 delete childEnv.NODE_EXTRA_CA_CERTS;
 
-function once(cmd: string, args: string[], env: NodeJS.ProcessEnv = childEnv): { wallS: number; cpuS: number | null; out: string } {
+function once(
+  cmd: string,
+  args: string[],
+  env: NodeJS.ProcessEnv = childEnv,
+): { wallS: number; cpuS: number | null; out: string } {
   const c0 = childCpuS();
   const t0 = performance.now();
   const r = spawnSync(cmd, args, { encoding: 'utf8', maxBuffer: 64 * 2 ** 20, env });
   const wallS = (performance.now() - t0) / 1000;
   const c1 = childCpuS();
-  if (r.status !== 0) throw new Error(`${cmd} ${args.join(' ')} failed (exit ${r.status}): ${(r.stderr ?? '') + (r.error ? String(r.error) : '')}`);
+  if (r.status !== 0)
+    throw new Error(
+      `${cmd} ${args.join(' ')} failed (exit ${r.status}): ${(r.stderr ?? '') + (r.error ? String(r.error) : '')}`,
+    );
   return { wallS, cpuS: c0 === null || c1 === null ? null : c1 - c0, out: r.stdout };
 }
 
@@ -68,7 +75,12 @@ const median = (xs: number[]): number => {
 };
 
 /** Median wall time of `runs` runs after one untimed run (file cache warm), and mean CPU time per run. */
-function timed(cmd: string, args: string[], runs: number, env: NodeJS.ProcessEnv = childEnv): { medianS: number; minS: number; cpuS: number | null; out: string } {
+function timed(
+  cmd: string,
+  args: string[],
+  runs: number,
+  env: NodeJS.ProcessEnv = childEnv,
+): { medianS: number; minS: number; cpuS: number | null; out: string } {
   const first = once(cmd, args, env);
   const r = Array.from({ length: runs }, () => once(cmd, args, env));
   const t = r.map((x) => x.wallS);
@@ -79,7 +91,10 @@ function timed(cmd: string, args: string[], runs: number, env: NodeJS.ProcessEnv
 const ms = (s: number) => `${(s * 1000).toFixed(0)} ms`;
 const fig = (t: { medianS: number; minS: number; cpuS: number | null }, runs: number) =>
   `${ms(t.medianS)} wall, median of ${runs} (min ${ms(t.minS)}); CPU ${t.cpuS === null ? 'n/a' : ms(t.cpuS)} per run`;
-const load = () => loadavg().map((x) => x.toFixed(2)).join(' ');
+const load = () =>
+  loadavg()
+    .map((x) => x.toFixed(2))
+    .join(' ');
 
 const loadBefore = load();
 log(`bench: start-up, ${cpus().length} cores, load average ${loadBefore}`);
@@ -88,28 +103,47 @@ const bare = timed(process.execPath, ['-e', '0'], N);
 const help = timed(process.execPath, [cli, '--help'], N);
 if (!/check-config/.test(help.out)) throw new Error('turnwise --help did not list the commands');
 const check = timed(process.execPath, [cli, 'check-config', exampleConfig], N);
-if (!/: OK\n/.test(check.out)) throw new Error(`turnwise check-config did not pass config/example.yaml:\n${check.out}`);
+if (!/: OK\n/.test(check.out))
+  throw new Error(`turnwise check-config did not pass config/example.yaml:\n${check.out}`);
 
 console.log(`node -e 0 (Node's own start-up, for reference): ${fig(bare, N)}`);
 if (extraCa) {
   const withCa = timed(process.execPath, ['-e', '0'], N, process.env);
-  console.log(`  (NODE_EXTRA_CA_CERTS is set here; the figures are without it: with it, node -e 0 takes ${fig(withCa, N)})`);
+  console.log(
+    `  (NODE_EXTRA_CA_CERTS is set here; the figures are without it: with it, node -e 0 takes ${fig(withCa, N)})`,
+  );
 }
-console.log(`turnwise --help:                                ${fig(help, N)}   target < 100 ms wall`);
-console.log(`turnwise check-config config/example.yaml:      ${fig(check, N)}   target < 200 ms wall`);
+console.log(
+  `turnwise --help:                                ${fig(help, N)}   target < 100 ms wall`,
+);
+console.log(
+  `turnwise check-config config/example.yaml:      ${fig(check, N)}   target < 200 ms wall`,
+);
 
 const dir = mkdtempSync(join(tmpdir(), 'tw-bench-'));
 try {
   const fs = 25600;
   const rec = join(dir, 'rec60.wav');
   log('bench: writing a 60 s, 7-channel (6 sensors + tach) 25.6 kHz recording ...');
-  const sensors = Array.from({ length: 6 }, (_, i) => ({ orders: [{ order: 1, velPk: 4 + i, phaseDeg: 40 * i }], noiseMmS2: 200 }));
-  writeFloatWav(rec, fs, synthesize({ sampleRate: fs, seconds: 60, rpm: () => 1485, channels: sensors, tachChannel: 6 }));
+  const sensors = Array.from({ length: 6 }, (_, i) => ({
+    orders: [{ order: 1, velPk: 4 + i, phaseDeg: 40 * i }],
+    noiseMmS2: 200,
+  }));
+  writeFloatWav(
+    rec,
+    fs,
+    synthesize({ sampleRate: fs, seconds: 60, rpm: () => 1485, channels: sensors, tachChannel: 6 }),
+  );
   const cfgFile = join(dir, 'cfg.yaml');
   writeFileSync(
     cfgFile,
     `machine: {id: bench, group: 2, support: rigid, rated_rpm: 1485}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n` +
-      sensors.map((_, i) => `  - {id: S${i}, channel: ${i}, bearing: ${i < 3 ? 'DE' : 'NDE'}, direction: vertical, sensitivity_mv_per_g: 100}`).join('\n') +
+      sensors
+        .map(
+          (_, i) =>
+            `  - {id: S${i}, channel: ${i}, bearing: ${i < 3 ? 'DE' : 'NDE'}, direction: vertical, sensitivity_mv_per_g: 100}`,
+        )
+        .join('\n') +
       '\n',
   );
   const R = 5;
@@ -118,17 +152,24 @@ try {
   try {
     py = timed(python, [peer, rec, '6', '100'], R);
   } catch (e) {
-    log(`bench: numpy/scipy peer not run (${python} with numpy and scipy is needed): ${(e as Error).message.split('\n').slice(-2).join(' ')}`);
+    log(
+      `bench: numpy/scipy peer not run (${python} with numpy and scipy is needed): ${(e as Error).message.split('\n').slice(-2).join(' ')}`,
+    );
   }
   console.log(`turnwise analyze, 60 s x 7 ch at 25.6 kHz:      ${fig(tw, R)}`);
   if (py) {
     const a = JSON.parse(tw.out).channels[0].orders['1'];
     const b = JSON.parse(py.out).channels[0].orders['1'];
     console.log(`numpy/scipy peer (test/bench/peer_analyze.py):  ${fig(py, R)}`);
-    const cpuRatio = tw.cpuS !== null && py.cpuS !== null ? `, CPU ${(tw.cpuS / py.cpuS).toFixed(2)} x` : '';
-    console.log(`turnwise / peer: wall ${(tw.medianS / py.medianS).toFixed(2)} x (target <= 0.5 x)${cpuRatio}; 1x on S0: turnwise ${a.amp_pk_mm_s} mm/s @ ${a.phase_deg} deg, peer ${b.amp_pk_mm_s.toFixed(3)} mm/s @ ${b.phase_deg.toFixed(1)} deg`);
+    const cpuRatio =
+      tw.cpuS !== null && py.cpuS !== null ? `, CPU ${(tw.cpuS / py.cpuS).toFixed(2)} x` : '';
+    console.log(
+      `turnwise / peer: wall ${(tw.medianS / py.medianS).toFixed(2)} x (target <= 0.5 x)${cpuRatio}; 1x on S0: turnwise ${a.amp_pk_mm_s} mm/s @ ${a.phase_deg} deg, peer ${b.amp_pk_mm_s.toFixed(3)} mm/s @ ${b.phase_deg.toFixed(1)} deg`,
+    );
   }
 } finally {
   rmSync(dir, { recursive: true, force: true });
 }
-console.log(`load average before ${loadBefore}, after ${load()} (${cpus().length} cores): figures are wall times and grow with the load`);
+console.log(
+  `load average before ${loadBefore}, after ${load()} (${cpus().length} cores): figures are wall times and grow with the load`,
+);

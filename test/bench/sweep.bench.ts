@@ -17,10 +17,24 @@ const TIMED_RUNS = 5;
 const log = (s: string) => process.stderr.write(s + '\n');
 
 log(`sweep bench: integrating a ${seconds} s coast-down, 6 sensors + tach at ${fs} Hz ...`);
-const modes: Mode[] = Array.from({ length: 6 }, (_, i) => ({ fnHz: 12 + 2 * i, zeta: 0.05 + 0.01 * i, eccentricityMm: 0.03, heavyDeg: 40 * i, noiseMmS2: 100 }));
+const modes: Mode[] = Array.from({ length: 6 }, (_, i) => ({
+  fnHz: 12 + 2 * i,
+  zeta: 0.05 + 0.01 * i,
+  eccentricityMm: 0.03,
+  heavyDeg: 40 * i,
+  noiseMmS2: 100,
+}));
 const rec = recordSweep({ sampleRate: fs, seconds, speed: rampProfile(1485, 300, 60, 2), modes });
 const cfg = testConfig(
-  modes.map((_, i) => [`S${i}`, i, i < 3 ? 'DE' : 'NDE', (['vertical', 'horizontal', 'axial'] as const)[i % 3]] as const),
+  modes.map(
+    (_, i) =>
+      [
+        `S${i}`,
+        i,
+        i < 3 ? 'DE' : 'NDE',
+        (['vertical', 'horizontal', 'axial'] as const)[i % 3],
+      ] as const,
+  ),
   { tachChannel: 6, ratedRpm: 1485, machine: { support: 'flexible' } },
 );
 const block = 4096;
@@ -35,8 +49,21 @@ function run(withSweep: boolean): { cpuS: number; points: number; recorder?: Spe
   let points = 0;
   let recorder: SpeedPointRecorder | undefined;
   for (let rep = 0; rep <= TIMED_RUNS; rep++) {
-    const rc = withSweep ? new SpeedPointRecorder({ channels: 6, sampleRate: fs, resamplePoints: cfg.dsp.resample_points, revolutionsPerPoint: cfg.sweep.revolutions_per_point }) : undefined;
-    const an = new Analyzer({ config: cfg, sampleRate: fs, channelCount: 7, maxBlock: block, revolutionTap: rc });
+    const rc = withSweep
+      ? new SpeedPointRecorder({
+          channels: 6,
+          sampleRate: fs,
+          resamplePoints: cfg.dsp.resample_points,
+          revolutionsPerPoint: cfg.sweep.revolutions_per_point,
+        })
+      : undefined;
+    const an = new Analyzer({
+      config: cfg,
+      sampleRate: fs,
+      channelCount: 7,
+      maxBlock: block,
+      revolutionTap: rc,
+    });
     const c0 = process.cpuUsage();
     for (const b of blocks) an.push(b);
     an.takeWindow();
@@ -57,8 +84,12 @@ for (let i = 0; i < 20; i++) found = sweepsFromPoints(pts, cfg, fs).length;
 const tc = process.cpuUsage(t0);
 const findS = (tc.user + tc.system) / 1e6 / 20;
 const bytesPerPoint = 8 * 2 + 1 + 2 * 8 * 6;
-console.log(`sweep analysis, 6 ch x 25.6 kHz coast-down: ${(seconds / swept.cpuS).toFixed(0)}x real time on one core (${swept.cpuS.toFixed(3)} s CPU for ${seconds} s); core alone ${(seconds / core.cpuS).toFixed(0)}x (${core.cpuS.toFixed(3)} s); best of ${TIMED_RUNS}`);
-console.log(`speed points: ${swept.points} (${cfg.sweep.revolutions_per_point} revolutions each), ${bytesPerPoint} bytes each = ${((swept.points * bytesPerPoint) / 1024).toFixed(1)} KiB; finding ${found} sweep(s) and their resonances: ${(findS * 1000).toFixed(2)} ms`);
+console.log(
+  `sweep analysis, 6 ch x 25.6 kHz coast-down: ${(seconds / swept.cpuS).toFixed(0)}x real time on one core (${swept.cpuS.toFixed(3)} s CPU for ${seconds} s); core alone ${(seconds / core.cpuS).toFixed(0)}x (${core.cpuS.toFixed(3)} s); best of ${TIMED_RUNS}`,
+);
+console.log(
+  `speed points: ${swept.points} (${cfg.sweep.revolutions_per_point} revolutions each), ${bytesPerPoint} bytes each = ${((swept.points * bytesPerPoint) / 1024).toFixed(1)} KiB; finding ${found} sweep(s) and their resonances: ${(findS * 1000).toFixed(2)} ms`,
+);
 
 // The event captures' raw ring (agent/capture/raw-ring.ts) at the board's size: 8 channels at
 // 25.6 kHz, capture.pre_s + post_s = 10 s (the defaults) plus one 64 Ki-sample block.

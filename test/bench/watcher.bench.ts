@@ -19,13 +19,20 @@ function measure(label: string, reps: number, fn: (i: number) => void): void {
   const t0 = process.hrtime.bigint();
   for (let i = 0; i < reps; i++) fn(i);
   const us = Number(process.hrtime.bigint() - t0) / 1000 / reps;
-  process.stdout.write(`${label.padEnd(58)} ${us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us.toFixed(1)} us`} per call (${reps} calls)\n`);
+  process.stdout.write(
+    `${label.padEnd(58)} ${us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us.toFixed(1)} us`} per call (${reps} calls)\n`,
+  );
 }
 
 const dir = mkdtempSync(join(tmpdir(), 'tw-bench-'));
 try {
   const cfg = demoConfig({ state_dir: dir, watcher: { history: { interval_s: 60 } } });
-  const windows = Array.from({ length: 600 }, (_, i) => synthWindow({ ...fanCase(i % 200 < 100 ? 'static' : 'dynamic', { phase: 40 + (i % 5) }), start_index: i * 51200 }));
+  const windows = Array.from({ length: 600 }, (_, i) =>
+    synthWindow({
+      ...fanCase(i % 200 < 100 ? 'static' : 'dynamic', { phase: 40 + (i % 5) }),
+      start_index: i * 51200,
+    }),
+  );
   measure('assessWindow (6 sensors, 5 recent windows)', 2000, (i) => {
     assessWindow(cfg, windows[i % 600]!, { recent: windows.slice(0, 5), baseline: null });
   });
@@ -42,7 +49,16 @@ try {
     ts: new Date(t0 + i * 60_000).toISOString(),
     windows: 6,
     speed_rpm: 1485,
-    channels: Object.fromEntries(s.sensors.map((x) => [x.id, { overall_rms_mm_s: 2 + i * 1e-4 + 0.05 * Math.sin(i), one_x_rms_mm_s: 1.8 + i * 1e-4, one_x_phase_deg: 40 }])),
+    channels: Object.fromEntries(
+      s.sensors.map((x) => [
+        x.id,
+        {
+          overall_rms_mm_s: 2 + i * 1e-4 + 0.05 * Math.sin(i),
+          one_x_rms_mm_s: 1.8 + i * 1e-4,
+          one_x_phase_deg: 40,
+        },
+      ]),
+    ),
   }));
   const tMs = pts.map((p) => Date.parse(p.ts));
   const ys = pts.map((p) => p.channels['DE-V']!.overall_rms_mm_s);

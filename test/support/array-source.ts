@@ -11,11 +11,16 @@ export class ArraySource implements SampleSource {
     private readonly paceMs = 0,
   ) {}
   async open(): Promise<SourceInfo> {
-    return { sampleRate: this.sampleRate, channelCount: this.channels.length, description: 'memory', totalSamples: this.channels[0]!.length };
+    return {
+      sampleRate: this.sampleRate,
+      channelCount: this.channels.length,
+      description: 'memory',
+      totalSamples: this.channels[0]!.length,
+    };
   }
   async *items(): AsyncIterable<SourceItem> {
     const n = this.channels[0]!.length;
-    for (let i = 0; i < n; ) {
+    for (let i = 0; i < n;) {
       const gap = this.gaps.find(([a]) => a === i);
       if (gap) {
         yield { kind: 'gap', fromIndex: gap[0], toIndex: gap[1], reason: 'test gap' };
@@ -24,7 +29,11 @@ export class ArraySource implements SampleSource {
       }
       const nextGap = Math.min(...this.gaps.map(([a]) => a).filter((a) => a > i), n);
       const e = Math.min(nextGap, i + this.block);
-      yield { kind: 'samples', startIndex: i, channels: this.channels.map((c) => c.subarray(i, e)) };
+      yield {
+        kind: 'samples',
+        startIndex: i,
+        channels: this.channels.map((c) => c.subarray(i, e)),
+      };
       i = e;
       if (this.paceMs > 0) await new Promise((r) => setTimeout(r, this.paceMs));
     }

@@ -21,16 +21,68 @@ function openssl(dir: string, args: string[]): void {
 const EC = ['-newkey', 'ec', '-pkeyopt', 'ec_paramgen_curve:prime256v1', '-nodes'];
 
 export function makeTestCerts(dir: string): TestCerts {
-  openssl(dir, ['req', '-x509', ...EC, '-keyout', 'ca.key', '-out', 'ca.crt', '-days', '2', '-subj', '/CN=turnwise test CA']);
-  openssl(dir, ['req', '-x509', ...EC, '-keyout', 'other-ca.key', '-out', 'other-ca.crt', '-days', '2', '-subj', '/CN=unrelated test CA']);
-  writeFileSync(join(dir, 'server.ext'), 'subjectAltName=IP:127.0.0.1,DNS:localhost\nextendedKeyUsage=serverAuth\n');
+  openssl(dir, [
+    'req',
+    '-x509',
+    ...EC,
+    '-keyout',
+    'ca.key',
+    '-out',
+    'ca.crt',
+    '-days',
+    '2',
+    '-subj',
+    '/CN=turnwise test CA',
+  ]);
+  openssl(dir, [
+    'req',
+    '-x509',
+    ...EC,
+    '-keyout',
+    'other-ca.key',
+    '-out',
+    'other-ca.crt',
+    '-days',
+    '2',
+    '-subj',
+    '/CN=unrelated test CA',
+  ]);
+  writeFileSync(
+    join(dir, 'server.ext'),
+    'subjectAltName=IP:127.0.0.1,DNS:localhost\nextendedKeyUsage=serverAuth\n',
+  );
   writeFileSync(join(dir, 'client.ext'), 'extendedKeyUsage=clientAuth\n');
   for (const [name, cn] of [
     ['server', '127.0.0.1'],
     ['client', 'turnwise-test-client'],
   ] as const) {
-    openssl(dir, ['req', ...EC, '-keyout', `${name}.key`, '-out', `${name}.csr`, '-subj', `/CN=${cn}`]);
-    openssl(dir, ['x509', '-req', '-in', `${name}.csr`, '-CA', 'ca.crt', '-CAkey', 'ca.key', '-CAcreateserial', '-out', `${name}.crt`, '-days', '2', '-extfile', `${name}.ext`]);
+    openssl(dir, [
+      'req',
+      ...EC,
+      '-keyout',
+      `${name}.key`,
+      '-out',
+      `${name}.csr`,
+      '-subj',
+      `/CN=${cn}`,
+    ]);
+    openssl(dir, [
+      'x509',
+      '-req',
+      '-in',
+      `${name}.csr`,
+      '-CA',
+      'ca.crt',
+      '-CAkey',
+      'ca.key',
+      '-CAcreateserial',
+      '-out',
+      `${name}.crt`,
+      '-days',
+      '2',
+      '-extfile',
+      `${name}.ext`,
+    ]);
   }
   chmodSync(join(dir, 'client.key'), 0o600);
   chmodSync(join(dir, 'server.key'), 0o600);

@@ -10,7 +10,10 @@ export interface CliResult {
 }
 
 /** Runs the compiled CLI (npm test builds dist/ first) as a real process. */
-export function runCli(args: string[], opts: { cwd?: string; env?: NodeJS.ProcessEnv; input?: string; timeoutMs?: number } = {}): CliResult {
+export function runCli(
+  args: string[],
+  opts: { cwd?: string; env?: NodeJS.ProcessEnv; input?: string; timeoutMs?: number } = {},
+): CliResult {
   const r = spawnSync(process.execPath, [CLI, ...args], {
     cwd: opts.cwd,
     env: { ...process.env, ...opts.env },
@@ -23,5 +26,6 @@ export function runCli(args: string[], opts: { cwd?: string; env?: NodeJS.Proces
 
 /** A user mistake must read as one clear message, never as a stack trace. */
 export function expectNoStack(stderr: string): void {
-  if (/\n\s+at .+:\d+:\d+/.test(stderr) || /internal error/.test(stderr)) throw new Error(`stderr shows a stack trace:\n${stderr}`);
+  if (/\n\s+at .+:\d+:\d+/.test(stderr) || /internal error/.test(stderr))
+    throw new Error(`stderr shows a stack trace:\n${stderr}`);
 }

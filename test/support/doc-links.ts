@@ -77,9 +77,15 @@ export function checkLinks(files: readonly string[], root: string): LinkProblem[
         }
         if (fragment !== undefined) {
           if (statSync(dest).isDirectory() || !dest.endsWith('.md')) {
-            problems.push({ ...where, problem: `#${fragment} points into ${relative(root, dest)}, which is not a Markdown file` });
+            problems.push({
+              ...where,
+              problem: `#${fragment} points into ${relative(root, dest)}, which is not a Markdown file`,
+            });
           } else if (!anchorsOf(readFileSync(dest, 'utf8')).has(fragment)) {
-            problems.push({ ...where, problem: `${relative(root, dest)} has no heading whose anchor is #${fragment}` });
+            problems.push({
+              ...where,
+              problem: `${relative(root, dest)} has no heading whose anchor is #${fragment}`,
+            });
           }
         }
       }

@@ -8,7 +8,12 @@ import { readFileSync } from 'node:fs';
 import { parse } from 'yaml';
 import { validateConfig } from '../../agent/config/load.js';
 import type { Config } from '../../agent/config/schema.js';
-import type { ChannelResult, ChannelStats, OrderVector, WindowResult } from '../../agent/dsp/types.js';
+import type {
+  ChannelResult,
+  ChannelStats,
+  OrderVector,
+  WindowResult,
+} from '../../agent/dsp/types.js';
 
 export type Direction = 'vertical' | 'horizontal' | 'axial';
 export interface SensorSpec {
@@ -57,7 +62,7 @@ const G = 9.80665;
 /** Raw-signal r.m.s. volts of a 100 mV/g accelerometer for velocity components (mm/s r.m.s.) at frequencies (Hz). */
 function acRmsV(parts: readonly { v: number; f: number }[]): number {
   let s = 0;
-  for (const p of parts) s += ((p.v / 1000) * 2 * Math.PI * p.f / G * 0.1) ** 2;
+  for (const p of parts) s += ((((p.v / 1000) * 2 * Math.PI * p.f) / G) * 0.1) ** 2;
   return Math.sqrt(s);
 }
 
@@ -72,18 +77,38 @@ export function synthWindow(spec: WindowSpec): WindowResult {
   for (const s of spec.sensors ?? DEMO_SENSORS) {
     const v1 = spec.oneX[s.id];
     if (!v1) continue;
-    const higher = spec.orders?.[s.id] ?? { 2: { amp: 0.1 * v1.amp, phase: 2 * v1.phase + 20 }, 3: { amp: 0.05 * v1.amp, phase: 3 * v1.phase + 50 } };
+    const higher = spec.orders?.[s.id] ?? {
+      2: { amp: 0.1 * v1.amp, phase: 2 * v1.phase + 20 },
+      3: { amp: 0.05 * v1.amp, phase: 3 * v1.phase + 50 },
+    };
     const orders: Record<string, OrderVector> = {};
-    const all: [number, Vec][] = [[1, v1], ...Object.entries(higher).map(([k, v]) => [Number(k), v] as [number, Vec])];
+    const all: [number, Vec][] = [
+      [1, v1],
+      ...Object.entries(higher).map(([k, v]) => [Number(k), v] as [number, Vec]),
+    ];
     let sumSq = 0;
     for (const [k, v] of all) {
-      orders[String(k)] = { order: k, freq_hz: k * f1, amp_rms_mm_s: v.amp, amp_pk_mm_s: v.amp * Math.SQRT2, phase_deg: ((v.phase % 360) + 360) % 360 };
+      orders[String(k)] = {
+        order: k,
+        freq_hz: k * f1,
+        amp_rms_mm_s: v.amp,
+        amp_pk_mm_s: v.amp * Math.SQRT2,
+        phase_deg: ((v.phase % 360) + 360) % 360,
+      };
       sumSq += v.amp ** 2;
     }
     const bb = spec.broadband?.[s.id] ?? 0.3 * v1.amp;
     const overall = Math.sqrt(sumSq + bb ** 2);
     const ac = acRmsV([...all.map(([k, v]) => ({ v: v.amp, f: k * f1 })), { v: bb, f: 120 }]);
-    const stats: ChannelStats = { dc_v: 10.1, ac_rms_v: ac, min_v: 10.1 - 4 * ac, max_v: 10.1 + 4 * ac, clipped_samples: 0, samples, ...spec.stats?.[s.id] };
+    const stats: ChannelStats = {
+      dc_v: 10.1,
+      ac_rms_v: ac,
+      min_v: 10.1 - 4 * ac,
+      max_v: 10.1 + 4 * ac,
+      clipped_samples: 0,
+      samples,
+      ...spec.stats?.[s.id],
+    };
     channels.push({
       id: s.id,
       channel: s.channel,
@@ -110,13 +135,20 @@ export function synthWindow(spec: WindowSpec): WindowResult {
     spectrum_segments: Math.max(1, Math.floor(seconds) - 1),
     spectrum_resolution_hz: 1,
     gap_samples: 0,
-    tach: { edges: spec.tachEdges ?? revs + 1, missing_pulses: spec.missingPulses ?? 0, double_triggers: 0, min_v: 0.1, max_v: 4.9 },
+    tach: {
+      edges: spec.tachEdges ?? revs + 1,
+      missing_pulses: spec.missingPulses ?? 0,
+      double_triggers: 0,
+      min_v: 0.1,
+      max_v: 4.9,
+    },
     channels,
     warnings: [],
   };
 }
 
-export type FanCase = 'static' | 'couple' | 'dynamic' | 'overhung' | 'misalignment' | 'directional' | 'quiet';
+export type FanCase =
+  'static' | 'couple' | 'dynamic' | 'overhung' | 'misalignment' | 'directional' | 'quiet';
 
 /**
  * 1x vectors (and 2x where the case needs it) for a fan in a given state, by the trade's rules
@@ -125,7 +157,10 @@ export type FanCase = 'static' | 'couple' | 'dynamic' | 'overhung' | 'misalignme
  * phase at both bearings; misalignment gives high 2x and axial 1x 180 apart; directional 1x has H and V
  * in phase with a large ratio.
  */
-export function fanCase(c: FanCase, opts: { amp?: number; phase?: number; start_index?: number; speed_rpm?: number } = {}): WindowSpec {
+export function fanCase(
+  c: FanCase,
+  opts: { amp?: number; phase?: number; start_index?: number; speed_rpm?: number } = {},
+): WindowSpec {
   const a = opts.amp ?? 4;
   const p = opts.phase ?? 40;
   const radial = (deV: Vec, ndeV: Vec, hv = 0.8): Record<string, Vec> => ({
@@ -134,24 +169,48 @@ export function fanCase(c: FanCase, opts: { amp?: number; phase?: number; start_
     'NDE-V': ndeV,
     'NDE-H': { amp: ndeV.amp * hv, phase: ndeV.phase + 90 },
   });
-  const lowAxial = { 'DE-A': { amp: 0.12 * a, phase: p + 130 }, 'NDE-A': { amp: 0.1 * a, phase: p + 250 } };
+  const lowAxial = {
+    'DE-A': { amp: 0.12 * a, phase: p + 130 },
+    'NDE-A': { amp: 0.1 * a, phase: p + 250 },
+  };
   const base = { start_index: opts.start_index, speed_rpm: opts.speed_rpm };
   switch (c) {
     case 'static':
-      return { ...base, oneX: { ...radial({ amp: a, phase: p }, { amp: 0.85 * a, phase: p + 12 }), ...lowAxial } };
+      return {
+        ...base,
+        oneX: { ...radial({ amp: a, phase: p }, { amp: 0.85 * a, phase: p + 12 }), ...lowAxial },
+      };
     case 'couple':
-      return { ...base, oneX: { ...radial({ amp: a, phase: p }, { amp: 0.9 * a, phase: p + 175 }), ...lowAxial } };
+      return {
+        ...base,
+        oneX: { ...radial({ amp: a, phase: p }, { amp: 0.9 * a, phase: p + 175 }), ...lowAxial },
+      };
     case 'dynamic':
-      return { ...base, oneX: { ...radial({ amp: a, phase: p }, { amp: 0.7 * a, phase: p + 95 }), ...lowAxial } };
+      return {
+        ...base,
+        oneX: { ...radial({ amp: a, phase: p }, { amp: 0.7 * a, phase: p + 95 }), ...lowAxial },
+      };
     case 'overhung':
       return {
         ...base,
-        oneX: { ...radial({ amp: a, phase: p }, { amp: 0.6 * a, phase: p + 10 }), 'DE-A': { amp: 0.7 * a, phase: p + 20 }, 'NDE-A': { amp: 0.6 * a, phase: p + 28 } },
+        oneX: {
+          ...radial({ amp: a, phase: p }, { amp: 0.6 * a, phase: p + 10 }),
+          'DE-A': { amp: 0.7 * a, phase: p + 20 },
+          'NDE-A': { amp: 0.6 * a, phase: p + 28 },
+        },
       };
     case 'misalignment': {
-      const oneX = { ...radial({ amp: a, phase: p }, { amp: 0.8 * a, phase: p + 20 }), 'DE-A': { amp: 0.8 * a, phase: p + 10 }, 'NDE-A': { amp: 0.7 * a, phase: p + 188 } };
+      const oneX = {
+        ...radial({ amp: a, phase: p }, { amp: 0.8 * a, phase: p + 20 }),
+        'DE-A': { amp: 0.8 * a, phase: p + 10 },
+        'NDE-A': { amp: 0.7 * a, phase: p + 188 },
+      };
       const orders: Record<string, Record<number, Vec>> = {};
-      for (const [id, v] of Object.entries(oneX)) orders[id] = { 2: { amp: 0.9 * v.amp, phase: 2 * v.phase }, 3: { amp: 0.1 * v.amp, phase: 3 * v.phase } };
+      for (const [id, v] of Object.entries(oneX))
+        orders[id] = {
+          2: { amp: 0.9 * v.amp, phase: 2 * v.phase },
+          3: { amp: 0.1 * v.amp, phase: 3 * v.phase },
+        };
       return { ...base, oneX, orders };
     }
     case 'directional':
@@ -176,17 +235,37 @@ export function fanCase(c: FanCase, opts: { amp?: number; phase?: number; start_
           'NDE-H': { amp: 0.25, phase: p + 110 },
           'NDE-A': { amp: 0.08, phase: p + 200 },
         },
-        broadband: { 'DE-V': 0.3, 'DE-H': 0.3, 'DE-A': 0.25, 'NDE-V': 0.3, 'NDE-H': 0.3, 'NDE-A': 0.25 },
+        broadband: {
+          'DE-V': 0.3,
+          'DE-H': 0.3,
+          'DE-A': 0.25,
+          'NDE-V': 0.3,
+          'NDE-H': 0.3,
+          'NDE-A': 0.25,
+        },
       };
   }
 }
 
 /** The demo config (config/example.yaml, invented scenario) with healthy IEPE bias windows and overrides. */
-export function demoConfig(overrides: { machine?: Record<string, unknown>; tach?: Record<string, unknown>; watcher?: Record<string, unknown>; state_dir?: string; sensors?: (s: Record<string, unknown>) => Record<string, unknown> | null } = {}): Config {
-  const raw = parse(readFileSync('config/example.yaml', 'utf8')) as Record<string, unknown> & { sensors: Record<string, unknown>[]; machine: Record<string, unknown>; tach: Record<string, unknown> };
+export function demoConfig(
+  overrides: {
+    machine?: Record<string, unknown>;
+    tach?: Record<string, unknown>;
+    watcher?: Record<string, unknown>;
+    state_dir?: string;
+    sensors?: (s: Record<string, unknown>) => Record<string, unknown> | null;
+  } = {},
+): Config {
+  const raw = parse(readFileSync('config/example.yaml', 'utf8')) as Record<string, unknown> & {
+    sensors: Record<string, unknown>[];
+    machine: Record<string, unknown>;
+    tach: Record<string, unknown>;
+  };
   // Healthy IEPE bias 8-12 V DC (common practice).
   let sensors = raw.sensors.map((s) => ({ ...s, bias_v: { min: 8, max: 12 }, full_scale_v: 20 }));
-  if (overrides.sensors) sensors = sensors.flatMap((s) => overrides.sensors!(s) ?? []) as typeof sensors;
+  if (overrides.sensors)
+    sensors = sensors.flatMap((s) => overrides.sensors!(s) ?? []) as typeof sensors;
   return validateConfig(
     {
       ...raw,

@@ -44,7 +44,9 @@ export interface Plant {
 export function oneXAccelG(p: Plant, velPkMmS: number, phaseDeg: number, t: number): number {
   const w = (2 * Math.PI * p.rpm) / 60;
   // v = V cos(w t - phi) -> a = -V w sin(w t - phi); mm/s^2 -> g
-  return (-velPkMmS * w * Math.sin(w * t - (phaseDeg * Math.PI) / 180)) / (STANDARD_GRAVITY_M_S2 * 1000);
+  return (
+    (-velPkMmS * w * Math.sin(w * t - (phaseDeg * Math.PI) / 180)) / (STANDARD_GRAVITY_M_S2 * 1000)
+  );
 }
 
 /** A once-per-turn pulse, 0 or 5 V, rising at shaft angle 0. */
@@ -77,7 +79,8 @@ export function bearingDefectG(p: Plant, d: BearingDefect): Float64Array {
   const ringSamples = Math.ceil((8 / decay) * p.sampleRate);
   const fr = p.rpm / 60;
   for (let t = 0; t < p.seconds; t += (1 + d.slip * (2 * u() - 1)) / d.bpfoHz) {
-    const a = d.impactG * (1 + d.modulation * Math.cos(2 * Math.PI * fr * t)) / (1 + d.modulation);
+    const a =
+      (d.impactG * (1 + d.modulation * Math.cos(2 * Math.PI * fr * t))) / (1 + d.modulation);
     const i0 = Math.ceil(t * p.sampleRate);
     for (let i = i0; i < Math.min(n, i0 + ringSamples); i++) {
       const dt = i / p.sampleRate - t;
@@ -106,7 +109,10 @@ export function connectorV(p: Plant, c: ConnectorFault): { v: Float64Array; open
   const edge = Math.max(1, Math.round(50e-6 * p.sampleRate));
   for (let t = -Math.log(1 - u()) / c.perS; t < p.seconds; t += -Math.log(1 - u()) / c.perS) {
     const jump = (c.jumpV[0] + (c.jumpV[1] - c.jumpV[0]) * u()) * (u() < 0.5 ? -1 : 1);
-    const len = Math.max(1, Math.round((c.openS[0] + (c.openS[1] - c.openS[0]) * u()) * p.sampleRate));
+    const len = Math.max(
+      1,
+      Math.round((c.openS[0] + (c.openS[1] - c.openS[0]) * u()) * p.sampleRate),
+    );
     const i0 = Math.floor(t * p.sampleRate);
     for (let k = 0; k < len + edge && i0 + k < n; k++) {
       const rampUp = Math.min(1, (k + 1) / edge);
@@ -122,6 +128,7 @@ export function connectorV(p: Plant, c: ConnectorFault): { v: Float64Array; open
 export function convert(volts: ArrayLike<number>, railV: number, bits: number): Float32Array {
   const step = (2 * railV) / 2 ** bits;
   const out = new Float32Array(volts.length);
-  for (let i = 0; i < volts.length; i++) out[i] = Math.round(Math.max(-railV, Math.min(railV, volts[i]!)) / step) * step;
+  for (let i = 0; i < volts.length; i++)
+    out[i] = Math.round(Math.max(-railV, Math.min(railV, volts[i]!)) / step) * step;
   return out;
 }

@@ -32,7 +32,15 @@ const log: Logger = {
   error: (f, m) => say({ log: 'error', msg: m }),
 };
 
-const mqtt = mqttSchema.parse({ url: args.url, topic_prefix: args.prefix, reconnect_min_s: 0.1, reconnect_max_s: 0.5, publish_timeout_s: 60, heartbeat_s: 3600, inflight_window: 4 });
+const mqtt = mqttSchema.parse({
+  url: args.url,
+  topic_prefix: args.prefix,
+  reconnect_min_s: 0.1,
+  reconnect_max_s: 0.5,
+  publish_timeout_s: 60,
+  heartbeat_s: 3600,
+  inflight_window: 4,
+});
 const link = await openPlantLink({ mqtt, asset: args.asset, stateDir: args.stateDir, log });
 const wasConnected = setInterval(() => {
   if (link.publisher.isConnected()) {
@@ -46,7 +54,15 @@ let n = 0;
 async function addOne(): Promise<void> {
   const i = n++;
   const id = `${args.idPrefix ?? 'ev'}-${String(i).padStart(5, '0')}`;
-  const outcome = await link.queueEvent({ id, ts: new Date().toISOString(), asset: args.asset, type: 'test_step', severity: severities[i % 3]!, step: i, padding: 'x'.repeat(200) });
+  const outcome = await link.queueEvent({
+    id,
+    ts: new Date().toISOString(),
+    asset: args.asset,
+    type: 'test_step',
+    severity: severities[i % 3]!,
+    step: i,
+    padding: 'x'.repeat(200),
+  });
   if (outcome === 'durable') say({ durable: id });
   else say({ not_durable: id, outcome });
 }

@@ -24,7 +24,9 @@ export interface MosquittoOptions {
   readonly extraConfig?: readonly string[];
 }
 
-export const MOSQUITTO_BIN = process.env.TURNWISE_MOSQUITTO ?? (existsSync('/usr/sbin/mosquitto') ? '/usr/sbin/mosquitto' : 'mosquitto');
+export const MOSQUITTO_BIN =
+  process.env.TURNWISE_MOSQUITTO ??
+  (existsSync('/usr/sbin/mosquitto') ? '/usr/sbin/mosquitto' : 'mosquitto');
 
 export function freePort(): Promise<number> {
   return new Promise((resolve, reject) => {
@@ -32,7 +34,9 @@ export function freePort(): Promise<number> {
     srv.once('error', reject);
     srv.listen(0, '127.0.0.1', () => {
       const addr = srv.address();
-      srv.close(() => (addr && typeof addr === 'object' ? resolve(addr.port) : reject(new Error('no port'))));
+      srv.close(() =>
+        addr && typeof addr === 'object' ? resolve(addr.port) : reject(new Error('no port')),
+      );
     });
   });
 }
@@ -95,7 +99,11 @@ export class Mosquitto {
     const file = join(this.dir, 'passwd');
     rmSync(file, { force: true });
     for (const [user, pass] of Object.entries(users)) {
-      execFileSync('mosquitto_passwd', [...(existsSync(file) ? [] : ['-c']), '-b', file, user, pass], { stdio: 'ignore' });
+      execFileSync(
+        'mosquitto_passwd',
+        [...(existsSync(file) ? [] : ['-c']), '-b', file, user, pass],
+        { stdio: 'ignore' },
+      );
     }
   }
 
@@ -131,7 +139,9 @@ export class Mosquitto {
   }
 
   private async launch(): Promise<void> {
-    const p = spawn(MOSQUITTO_BIN, ['-c', join(this.dir, 'mosquitto.conf')], { stdio: ['ignore', 'ignore', 'pipe'] });
+    const p = spawn(MOSQUITTO_BIN, ['-c', join(this.dir, 'mosquitto.conf')], {
+      stdio: ['ignore', 'ignore', 'pipe'],
+    });
     this.proc = p;
     p.stderr!.on('data', (d: Buffer) => {
       this.log += d.toString();

@@ -21,5 +21,8 @@ export function schemaFile(name: string): z.ZodType {
 /** Throws with the schema's complaints when `value` does not match `<name>.schema.json`. */
 export function assertMatches(name: string, value: unknown): void {
   const r = schemaFile(name).safeParse(value);
-  if (!r.success) throw new Error(`payload does not match ${name}.schema.json: ${r.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}\n${JSON.stringify(value)}`);
+  if (!r.success)
+    throw new Error(
+      `payload does not match ${name}.schema.json: ${r.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}\n${JSON.stringify(value)}`,
+    );
 }

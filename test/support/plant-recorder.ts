@@ -101,7 +101,13 @@ export interface SensorSpec {
   /** Share of the bearing's impact-train acceleration this sensor reads. */
   readonly impact_share?: number;
   /** Intermittent connector: pulses e^(-t/decay) cos(2 pi ring_hz t) of `min_v`..`max_v` volts (random sign) at random times. */
-  readonly connector?: { readonly rate_per_s: number; readonly min_v: number; readonly max_v: number; readonly decay_ms: number; readonly ring_hz: number };
+  readonly connector?: {
+    readonly rate_per_s: number;
+    readonly min_v: number;
+    readonly max_v: number;
+    readonly decay_ms: number;
+    readonly ring_hz: number;
+  };
 }
 
 export interface PlantSpec {
@@ -120,16 +126,25 @@ export interface PlantSpec {
   /** Defect on one bearing. */
   readonly impacts?: ImpactTrain & { readonly bearing: string };
   readonly vertical_axis_deg: number;
-  readonly tach: { readonly channel: number; readonly high_v: number; readonly pulse_deg: number; readonly rise_us: number };
+  readonly tach: {
+    readonly channel: number;
+    readonly high_v: number;
+    readonly pulse_deg: number;
+    readonly rise_us: number;
+  };
   readonly board: { readonly range_v: number; readonly bits: number };
   readonly sensors: readonly SensorSpec[];
-  readonly machine: { readonly group: 1 | 2; readonly support: 'rigid' | 'flexible'; readonly rated_rpm: number };
+  readonly machine: {
+    readonly group: 1 | 2;
+    readonly support: 'rigid' | 'flexible';
+    readonly rated_rpm: number;
+  };
   readonly seed: number;
 }
 
 /** Deterministic uniform generator (xorshift32), independent of the other test generators. */
 export function uniform(seed: number): () => number {
-  let s = (seed >>> 0) || 0x9e3779b9;
+  let s = seed >>> 0 || 0x9e3779b9;
   return () => {
     s ^= s << 13;
     s >>>= 0;
@@ -173,7 +188,10 @@ const cdiv = (a: Cx, b: Cx): Cx => {
   return [(a[0] * b[0] + a[1] * b[1]) / d, (a[1] * b[0] - a[0] * b[1]) / d];
 };
 /** Phasor of A cos(theta - lag): A e^(-i lag). */
-export const phasor = (amp: number, lagDeg: number): Cx => [amp * Math.cos(lagDeg * RAD), -amp * Math.sin(lagDeg * RAD)];
+export const phasor = (amp: number, lagDeg: number): Cx => [
+  amp * Math.cos(lagDeg * RAD),
+  -amp * Math.sin(lagDeg * RAD),
+];
 export const ampOf = (p: Cx): number => Math.hypot(p[0], p[1]);
 /** Lag in degrees, 0-360, of a phasor A e^(-i lag). */
 export const lagOf = (p: Cx): number => (((-Math.atan2(p[1], p[0]) / RAD) % 360) + 360) % 360;
@@ -284,9 +302,13 @@ export function oneXVelocity(spec: PlantSpec, s: SensorSpec, w: number): Cx {
   const sup = s.direction === 'vertical' ? b.vertical : b.horizontal;
   let f: Cx = [0, 0];
   for (const u of spec.unbalance) {
-    const F = u.grams * 1e-3 * u.radius_mm * 1e-3 * w * w * bearingShare(spec, s.bearing, u.plane_mm);
+    const F =
+      u.grams * 1e-3 * u.radius_mm * 1e-3 * w * w * bearingShare(spec, s.bearing, u.plane_mm);
     // the housing's motion along the reference axis of this direction (a sensor turned by 180 deg reads its negative)
-    const p = phasor(F, u.angle_deg + spec.vertical_axis_deg + (s.direction === 'horizontal' ? 90 : 0));
+    const p = phasor(
+      F,
+      u.angle_deg + spec.vertical_axis_deg + (s.direction === 'horizontal' ? 90 : 0),
+    );
     f = [f[0] + p[0], f[1] + p[1]];
   }
   const x = cmul(f, receptance(sup, w));
@@ -297,13 +319,23 @@ export function oneXVelocity(spec: PlantSpec, s: SensorSpec, w: number): Cx {
 const tracks = new WeakMap<PlantSpec, ReturnType<typeof computeTrack>>();
 
 /** Shaft-angle track: theta per sample (rad), speed per sample (rad/s) and the mark passage times (s). Cached per spec. */
-export function shaftTrack(spec: PlantSpec): { theta: Float64Array; omega: Float64Array; marks: number[]; theta0: number } {
+export function shaftTrack(spec: PlantSpec): {
+  theta: Float64Array;
+  omega: Float64Array;
+  marks: number[];
+  theta0: number;
+} {
   let t = tracks.get(spec);
   if (!t) tracks.set(spec, (t = computeTrack(spec)));
   return t;
 }
 
-function computeTrack(spec: PlantSpec): { theta: Float64Array; omega: Float64Array; marks: number[]; theta0: number } {
+function computeTrack(spec: PlantSpec): {
+  theta: Float64Array;
+  omega: Float64Array;
+  marks: number[];
+  theta0: number;
+} {
   const fs = spec.sample_rate_hz;
   const n = Math.round(spec.seconds * fs);
   const prof = new SpeedProfile(spec);
@@ -328,7 +360,7 @@ function computeTrack(spec: PlantSpec): { theta: Float64Array; omega: Float64Arr
     if (k > Math.floor(th / (2 * Math.PI))) {
       // mark passage inside this step: linear in angle across one sample is accurate to ~1e-9 s
       const target = 2 * Math.PI * k;
-      marks.push(t + ((target - th) / (next - th)) / fs);
+      marks.push(t + (target - th) / (next - th) / fs);
     }
     th = next;
   }
@@ -353,7 +385,15 @@ export function record(spec: PlantSpec): Float32Array[] {
     const psi = spec.vertical_axis_deg + (dir === 'horizontal' ? 90 : 0);
     let F = 0;
     for (const u of spec.unbalance) {
-      F += u.grams * 1e-3 * u.radius_mm * 1e-3 * w * w * bearingShare(spec, bearing, u.plane_mm) * Math.cos(th - (u.angle_deg + psi) * RAD);
+      F +=
+        u.grams *
+        1e-3 *
+        u.radius_mm *
+        1e-3 *
+        w *
+        w *
+        bearingShare(spec, bearing, u.plane_mm) *
+        Math.cos(th - (u.angle_deg + psi) * RAD);
     }
     return F;
   };
@@ -366,7 +406,10 @@ export function record(spec: PlantSpec): Float32Array[] {
       const psi = spec.vertical_axis_deg + (d === 'horizontal' ? 90 : 0);
       let f: Cx = [0, 0];
       for (const u of spec.unbalance) {
-        const p = phasor(u.grams * 1e-3 * u.radius_mm * 1e-3 * w0 * w0 * bearingShare(spec, b.name, u.plane_mm), u.angle_deg + psi);
+        const p = phasor(
+          u.grams * 1e-3 * u.radius_mm * 1e-3 * w0 * w0 * bearingShare(spec, b.name, u.plane_mm),
+          u.angle_deg + psi,
+        );
         f = [f[0] + p[0], f[1] + p[1]];
       }
       const X = cmul(f, receptance(sup, w0));
@@ -412,7 +455,7 @@ export function record(spec: PlantSpec): Float32Array[] {
     const P = (dv * Math.PI) / (2 * tau);
     const g = normal(spec.seed ^ 0x1234);
     const starts: number[] = [];
-    for (let t = 0.01; t < spec.seconds; ) {
+    for (let t = 0.01; t < spec.seconds;) {
       starts.push(t);
       const f = (im.order * prof.omega(t)) / (2 * Math.PI);
       t += (1 / f) * (1 + im.slip_share * g());
@@ -480,7 +523,8 @@ export function record(spec: PlantSpec): Float32Array[] {
     const nb = s.neighbour;
     const fNb = ((spec.neighbour_ratio ?? 1) * spec.speed.rpm) / 60;
     const mains = s.mains;
-    const impact = spec.impacts && spec.impacts.bearing === s.bearing && ringing ? (s.impact_share ?? 0) : 0;
+    const impact =
+      spec.impacts && spec.impacts.bearing === s.bearing && ringing ? (s.impact_share ?? 0) : 0;
     for (let i = 0; i < n; i++) {
       const t = i / fs;
       let a = sign * acc[i]!;
@@ -492,14 +536,21 @@ export function record(spec: PlantSpec): Float32Array[] {
       if (impact) a += impact * ringing![i]!;
       a += s.noise_g * G_M_S2 * g();
       let v = a * vPerMS2 + s.dc_v;
-      if (mains) v += mains.v50_pk * Math.sin(2 * Math.PI * mains.freq_hz * t) + mains.v100_pk * Math.sin(4 * Math.PI * mains.freq_hz * t + 0.7);
+      if (mains)
+        v +=
+          mains.v50_pk * Math.sin(2 * Math.PI * mains.freq_hz * t) +
+          mains.v100_pk * Math.sin(4 * Math.PI * mains.freq_hz * t + 0.7);
       dst[i] = v;
     }
     if (s.connector) {
       const c = s.connector;
       const u = uniform(spec.seed * 7 + si + 101);
       const decay = c.decay_ms / 1000;
-      for (let t = -Math.log(u()) / c.rate_per_s; t < spec.seconds; t += -Math.log(u()) / c.rate_per_s) {
+      for (
+        let t = -Math.log(u()) / c.rate_per_s;
+        t < spec.seconds;
+        t += -Math.log(u()) / c.rate_per_s
+      ) {
         const amp = (c.min_v + (c.max_v - c.min_v) * u()) * (u() < 0.5 ? -1 : 1);
         const i0 = Math.ceil(t * fs);
         for (let i = i0; i < n && i < i0 + Math.ceil(8 * decay * fs); i++) {
@@ -528,7 +579,11 @@ export function record(spec: PlantSpec): Float32Array[] {
  * Writes float-32 RIFF/WAVE in the WAVE_FORMAT_EXTENSIBLE layout (40-byte fmt chunk, KSDATAFORMAT_
  * SUBTYPE_IEEE_FLOAT), as multichannel recorders commonly write it.
  */
-export function writeExtensibleWav(file: string, sampleRate: number, channels: readonly Float32Array[]): void {
+export function writeExtensibleWav(
+  file: string,
+  sampleRate: number,
+  channels: readonly Float32Array[],
+): void {
   const nch = channels.length;
   const n = channels[0]!.length;
   const data = n * nch * 4;
@@ -568,7 +623,8 @@ export function writeExtensibleWav(file: string, sampleRate: number, channels: r
     const buf = Buffer.alloc(rows * nch * 4);
     for (let i = 0; i < n; i += rows) {
       const m = Math.min(rows, n - i);
-      for (let j = 0; j < m; j++) for (let c = 0; c < nch; c++) buf.writeFloatLE(channels[c]![i + j]!, (j * nch + c) * 4);
+      for (let j = 0; j < m; j++)
+        for (let c = 0; c < nch; c++) buf.writeFloatLE(channels[c]![i + j]!, (j * nch + c) * 4);
       writeSync(fd, buf, 0, m * nch * 4);
     }
   } finally {
@@ -586,7 +642,9 @@ export function configYaml(spec: PlantSpec, stateDir: string): string {
     ...spec.sensors.map(
       (s) =>
         `  - {id: ${s.id}, channel: ${s.channel}, bearing: ${s.bearing}, direction: ${s.direction}, sensitivity_mv_per_g: ${s.sensitivity_mv_per_g}` +
-        (s.config_mounting_angle_deg !== undefined ? `, mounting_angle_deg: ${s.config_mounting_angle_deg}` : '') +
+        (s.config_mounting_angle_deg !== undefined
+          ? `, mounting_angle_deg: ${s.config_mounting_angle_deg}`
+          : '') +
         '}',
     ),
   ];
@@ -594,7 +652,11 @@ export function configYaml(spec: PlantSpec, stateDir: string): string {
 }
 
 /** Records `spec` to `<dir>/<name>.wav` and writes `<dir>/<name>.yaml`; returns both paths. */
-export function writeRecording(spec: PlantSpec, dir: string, stateDir: string): { wav: string; yaml: string } {
+export function writeRecording(
+  spec: PlantSpec,
+  dir: string,
+  stateDir: string,
+): { wav: string; yaml: string } {
   const wav = `${dir}/${spec.name}.wav`;
   const yaml = `${dir}/${spec.name}.yaml`;
   writeExtensibleWav(wav, spec.sample_rate_hz, record(spec));
@@ -626,7 +688,12 @@ export function mainsRmsMmS(s: SensorSpec): number {
  * force line 2 f |pulse spectrum| through the resonance's acceleration response w^2 / |wn^2 - w^2 +
  * 2 i zeta wn w|, divided by w; only lines inside the band.
  */
-export function impactBandPower(spec: PlantSpec, share: number, lowHz: number, highHz: number): number {
+export function impactBandPower(
+  spec: PlantSpec,
+  share: number,
+  lowHz: number,
+  highHz: number,
+): number {
   const im = spec.impacts;
   if (!im || share === 0) return 0;
   const tau = im.pulse_ms / 1000;
@@ -663,7 +730,11 @@ export function markTimes(spec: PlantSpec): number[] {
  * `domain: 'acceleration'` averages i w v instead (what an order-tracked average of the raw
  * acceleration gives) and turns it into velocity at the mean speed; at steady speed both agree.
  */
-export function expectedOneX(spec: PlantSpec, s: SensorSpec, opts: { firstRev?: number; domain?: 'velocity' | 'acceleration' } = {}): Cx {
+export function expectedOneX(
+  spec: PlantSpec,
+  s: SensorSpec,
+  opts: { firstRev?: number; domain?: 'velocity' | 'acceleration' } = {},
+): Cx {
   const firstRev = opts.firstRev ?? 2;
   const accelDomain = opts.domain === 'acceleration';
   const marks = markTimes(spec);
@@ -733,7 +804,8 @@ export function expectedOverall(spec: PlantSpec, s: SensorSpec, lowHz = 10, high
     const sign = s.opposite_side ? -1 : 1;
     // Re{P e^{i theta}}
     let v = sign * (p[0] * Math.cos(theta[i]!) - p[1] * Math.sin(theta[i]!));
-    if (s.neighbour) v += s.neighbour.vel_pk_mm_s * Math.cos(2 * Math.PI * fNb * t - s.neighbour.phase_deg * RAD);
+    if (s.neighbour)
+      v += s.neighbour.vel_pk_mm_s * Math.cos(2 * Math.PI * fNb * t - s.neighbour.phase_deg * RAD);
     sum += v * v;
     n++;
   }

@@ -25,13 +25,20 @@ export class PtyPair {
   async start(timeoutMs = 5000): Promise<void> {
     if (this.proc) throw new Error('socat already running');
     this.stderr = '';
-    const p = spawn('socat', [`pty,rawer,link=${this.boardPath}`, `pty,rawer,link=${this.agentPath}`], { stdio: ['ignore', 'ignore', 'pipe'] });
+    const p = spawn(
+      'socat',
+      [`pty,rawer,link=${this.boardPath}`, `pty,rawer,link=${this.agentPath}`],
+      { stdio: ['ignore', 'ignore', 'pipe'] },
+    );
     p.stderr!.on('data', (d: Buffer) => (this.stderr += d.toString()));
     this.proc = p;
     const t0 = Date.now();
     while (!(existsSync(this.boardPath) && existsSync(this.agentPath))) {
       if (p.exitCode !== null) throw new Error(`socat exited with ${p.exitCode}: ${this.stderr}`);
-      if (Date.now() - t0 > timeoutMs) throw new Error(`socat did not create ${this.boardPath} and ${this.agentPath} within ${timeoutMs} ms: ${this.stderr}`);
+      if (Date.now() - t0 > timeoutMs)
+        throw new Error(
+          `socat did not create ${this.boardPath} and ${this.agentPath} within ${timeoutMs} ms: ${this.stderr}`,
+        );
       await new Promise((r) => setTimeout(r, 20));
     }
   }

@@ -10,8 +10,10 @@ import { DeviceWriter } from '../../drivers/serial/board-emulator.js';
 import { SerialSource, type SerialSourceOptions } from '../../drivers/serial/serial-source.js';
 import { PtyPair } from './pty-pair.js';
 
-export type RigSourceOptions = Pick<SerialSourceOptions, 'sampleRateHz' | 'channels'> & Partial<SerialSourceOptions>;
-export type RigRuntimeOptions = Omit<RuntimeOptions, 'source' | 'clock' | 'logger'> & Partial<Pick<RuntimeOptions, 'clock'>>;
+export type RigSourceOptions = Pick<SerialSourceOptions, 'sampleRateHz' | 'channels'> &
+  Partial<SerialSourceOptions>;
+export type RigRuntimeOptions = Omit<RuntimeOptions, 'source' | 'clock' | 'logger'> &
+  Partial<Pick<RuntimeOptions, 'clock'>>;
 
 export class PtyRuntimeRig {
   readonly pty = new PtyPair();
@@ -22,7 +24,10 @@ export class PtyRuntimeRig {
   private running: Promise<unknown> | null = null;
 
   /** Starts socat, the source and the runtime; resolves once the port is open and the board's end can be written. */
-  async start(src: RigSourceOptions, rt: RigRuntimeOptions): Promise<{ source: SerialSource; writer: DeviceWriter; runtime: AgentRuntime }> {
+  async start(
+    src: RigSourceOptions,
+    rt: RigRuntimeOptions,
+  ): Promise<{ source: SerialSource; writer: DeviceWriter; runtime: AgentRuntime }> {
     await this.pty.start();
     const source = new SerialSource({
       device: this.pty.agentPath,
@@ -42,7 +47,8 @@ export class PtyRuntimeRig {
     this.running = runtime.run();
     const t0 = Date.now();
     while (!source.health().connected) {
-      if (Date.now() - t0 > 10_000) throw new Error(`the serial source did not open ${this.pty.agentPath}`);
+      if (Date.now() - t0 > 10_000)
+        throw new Error(`the serial source did not open ${this.pty.agentPath}`);
       await new Promise((r) => setTimeout(r, 20));
     }
     this.writer = await DeviceWriter.open(this.pty.boardPath);
@@ -52,7 +58,9 @@ export class PtyRuntimeRig {
   /** Waits until the source has accepted `frames` frames (at most `timeoutMs`), lets the loop catch up, and stops the runtime. */
   async finish(frames: number | null, timeoutMs = 10_000): Promise<void> {
     const t0 = Date.now();
-    if (frames !== null) while (this.source!.health().frames_ok < frames && Date.now() - t0 < timeoutMs) await new Promise((r) => setTimeout(r, 20));
+    if (frames !== null)
+      while (this.source!.health().frames_ok < frames && Date.now() - t0 < timeoutMs)
+        await new Promise((r) => setTimeout(r, 20));
     await new Promise((r) => setTimeout(r, frames === null ? 200 : 100));
     this.runtime!.stop();
     await this.running;

@@ -11,7 +11,12 @@
  */
 import { mkdirSync } from 'node:fs';
 import { pathToFileURL } from 'node:url';
-import { writeRecording, type BearingSpec, type PlantSpec, type SensorSpec } from './plant-recorder.js';
+import {
+  writeRecording,
+  type BearingSpec,
+  type PlantSpec,
+  type SensorSpec,
+} from './plant-recorder.js';
 
 const DE: BearingSpec = {
   name: 'DE',
@@ -30,16 +35,53 @@ const NDE: BearingSpec = {
 
 function sensors(over: Partial<Record<string, Partial<SensorSpec>>> = {}): SensorSpec[] {
   const base: SensorSpec[] = [
-    { id: 'DE-V', channel: 0, bearing: 'DE', direction: 'vertical', sensitivity_mv_per_g: 100, noise_g: 0.01, dc_v: 0.0021 },
-    { id: 'DE-H', channel: 1, bearing: 'DE', direction: 'horizontal', sensitivity_mv_per_g: 100, noise_g: 0.01, dc_v: -0.0013 },
-    { id: 'NDE-V', channel: 2, bearing: 'NDE', direction: 'vertical', sensitivity_mv_per_g: 100, noise_g: 0.01, dc_v: 0.0008 },
-    { id: 'NDE-H', channel: 3, bearing: 'NDE', direction: 'horizontal', sensitivity_mv_per_g: 100, noise_g: 0.01, dc_v: -0.0017 },
+    {
+      id: 'DE-V',
+      channel: 0,
+      bearing: 'DE',
+      direction: 'vertical',
+      sensitivity_mv_per_g: 100,
+      noise_g: 0.01,
+      dc_v: 0.0021,
+    },
+    {
+      id: 'DE-H',
+      channel: 1,
+      bearing: 'DE',
+      direction: 'horizontal',
+      sensitivity_mv_per_g: 100,
+      noise_g: 0.01,
+      dc_v: -0.0013,
+    },
+    {
+      id: 'NDE-V',
+      channel: 2,
+      bearing: 'NDE',
+      direction: 'vertical',
+      sensitivity_mv_per_g: 100,
+      noise_g: 0.01,
+      dc_v: 0.0008,
+    },
+    {
+      id: 'NDE-H',
+      channel: 3,
+      bearing: 'NDE',
+      direction: 'horizontal',
+      sensitivity_mv_per_g: 100,
+      noise_g: 0.01,
+      dc_v: -0.0017,
+    },
   ];
   return base.map((s) => ({ ...s, ...(over[s.id] ?? {}) }) as SensorSpec);
 }
 
 /** A static unbalance of `gramMm` g mm at the impeller plane (900 mm), 70 deg from the mark against rotation. */
-function fan(name: string, gramMm: number, extra: Partial<PlantSpec> = {}, planeMm = 900): PlantSpec {
+function fan(
+  name: string,
+  gramMm: number,
+  extra: Partial<PlantSpec> = {},
+  planeMm = 900,
+): PlantSpec {
   return {
     name,
     sample_rate_hz: 25600,
@@ -75,7 +117,11 @@ export const CORPUS: Record<string, PlantSpec> = {
       seed: 13,
       machine: { group: 1, support: 'rigid', rated_rpm: 1485 },
       bearings: [{ ...DE, horizontal: { fn_hz: 50, zeta: 0.07, mass_kg: 180 } }, NDE],
-      sensors: sensors({ 'DE-H': { connector: { rate_per_s: 40, min_v: 3, max_v: 9, decay_ms: 0.05, ring_hz: 3000 } } }),
+      sensors: sensors({
+        'DE-H': {
+          connector: { rate_per_s: 40, min_v: 3, max_v: 9, decay_ms: 0.05, ring_hz: 3000 },
+        },
+      }),
     },
     600,
   ),
@@ -89,29 +135,59 @@ export const CORPUS: Record<string, PlantSpec> = {
       'NDE-H': { neighbour: { vel_pk_mm_s: 0.7, phase_deg: 290 } },
     }),
   }),
-  'vsd-ramp': fan('vsd-ramp', 30000, { seed: 15, speed: { rpm: 1350, ramp: { from_s: 3, to_s: 9, to_rpm: 1485 } } }),
-  'tach-jitter': fan('tach-jitter', 27000, { seed: 16, speed: { rpm: 1485, jitter_per_rev: 0.002 } }),
-  'opposite-side-configured': fan('opposite-side-configured', 27000, { seed: 17, sensors: sensors({ 'NDE-H': { opposite_side: true, config_mounting_angle_deg: 180 } }) }),
-  'opposite-side-unconfigured': fan('opposite-side-unconfigured', 27000, { seed: 17, sensors: sensors({ 'NDE-H': { opposite_side: true } }) }),
+  'vsd-ramp': fan('vsd-ramp', 30000, {
+    seed: 15,
+    speed: { rpm: 1350, ramp: { from_s: 3, to_s: 9, to_rpm: 1485 } },
+  }),
+  'tach-jitter': fan('tach-jitter', 27000, {
+    seed: 16,
+    speed: { rpm: 1485, jitter_per_rev: 0.002 },
+  }),
+  'opposite-side-configured': fan('opposite-side-configured', 27000, {
+    seed: 17,
+    sensors: sensors({ 'NDE-H': { opposite_side: true, config_mounting_angle_deg: 180 } }),
+  }),
+  'opposite-side-unconfigured': fan('opposite-side-unconfigured', 27000, {
+    seed: 17,
+    sensors: sensors({ 'NDE-H': { opposite_side: true } }),
+  }),
   'mains-hum': fan('mains-hum', 27000, {
     seed: 18,
     sensors: sensors(
-      Object.fromEntries(['DE-V', 'DE-H', 'NDE-V', 'NDE-H'].map((id, i) => [id, { mains: { v50_pk: 0.003 - 0.0004 * i, v100_pk: 0.0012, freq_hz: 50 } }])),
+      Object.fromEntries(
+        ['DE-V', 'DE-H', 'NDE-V', 'NDE-H'].map((id, i) => [
+          id,
+          { mains: { v50_pk: 0.003 - 0.0004 * i, v100_pk: 0.0012, freq_hz: 50 } },
+        ]),
+      ),
     ),
   }),
   'bearing-defect': fan('bearing-defect', 27000, {
     seed: 19,
     // Invented bearing: 8 balls of 28.6 mm on a 125 mm pitch circle, contact angle 0: outer-race
     // pass order = 8/2 x (1 - 28.6/125) = 3.08 (own computation, textbook formula).
-    impacts: { bearing: 'NDE', order: 3.085, slip_share: 0.01, resonance_hz: 3200, zeta: 0.04, ring_peak_g: 4, pulse_ms: 0.2 },
+    impacts: {
+      bearing: 'NDE',
+      order: 3.085,
+      slip_share: 0.01,
+      resonance_hz: 3200,
+      zeta: 0.04,
+      ring_peak_g: 4,
+      pulse_ms: 0.2,
+    },
     sensors: sensors({ 'NDE-V': { impact_share: 1 }, 'NDE-H': { impact_share: 0.45 } }),
   }),
 };
 
 /** Writes every recording of the corpus (WAV + YAML) into `dir`. */
-export function writeCorpus(dir: string, stateDir: string): Record<string, { wav: string; yaml: string }> {
+export function writeCorpus(
+  dir: string,
+  stateDir: string,
+): Record<string, { wav: string; yaml: string }> {
   mkdirSync(dir, { recursive: true });
-  return Object.fromEntries(Object.entries(CORPUS).map(([k, spec]) => [k, writeRecording(spec, dir, stateDir)]));
+  return Object.fromEntries(
+    Object.entries(CORPUS).map(([k, spec]) => [k, writeRecording(spec, dir, stateDir)]),
+  );
 }
 
 if (process.argv[1] && import.meta.url === pathToFileURL(process.argv[1]).href) {

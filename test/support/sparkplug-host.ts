@@ -157,15 +157,32 @@ export class PythonSparkplug {
     return new PythonSparkplug(dir);
   }
 
-  decode(msgs: ReadonlyArray<{ topic: string; qos: number; retain: boolean; payload: Buffer }>): HostMessage[] {
-    const input = JSON.stringify(msgs.map((m) => ({ topic: m.topic, qos: m.qos, retain: m.retain, hex: m.payload.toString('hex') })));
-    const out = execFileSync(PYTHON, [join(this.dir, 'host.py'), this.dir, 'decode'], { input, maxBuffer: 64 * 1024 * 1024 });
+  decode(
+    msgs: ReadonlyArray<{ topic: string; qos: number; retain: boolean; payload: Buffer }>,
+  ): HostMessage[] {
+    const input = JSON.stringify(
+      msgs.map((m) => ({
+        topic: m.topic,
+        qos: m.qos,
+        retain: m.retain,
+        hex: m.payload.toString('hex'),
+      })),
+    );
+    const out = execFileSync(PYTHON, [join(this.dir, 'host.py'), this.dir, 'decode'], {
+      input,
+      maxBuffer: 64 * 1024 * 1024,
+    });
     return JSON.parse(out.toString('utf8')) as HostMessage[];
   }
 
   /** A host's NCMD/DCMD payload, encoded by python3-protobuf. */
-  encode(p: { timestamp: number; metrics: Array<Record<string, string | number | boolean>> }): Buffer {
-    const out = execFileSync(PYTHON, [join(this.dir, 'host.py'), this.dir, 'encode'], { input: JSON.stringify(p) });
+  encode(p: {
+    timestamp: number;
+    metrics: Array<Record<string, string | number | boolean>>;
+  }): Buffer {
+    const out = execFileSync(PYTHON, [join(this.dir, 'host.py'), this.dir, 'encode'], {
+      input: JSON.stringify(p),
+    });
     return Buffer.from(out.toString('utf8'), 'hex');
   }
 
@@ -186,15 +203,31 @@ export interface Recorded {
 export class HostRecorder {
   readonly messages: Recorded[] = [];
   private constructor(readonly client: MqttClient) {
-    client.on('message', (topic, payload, packet) => this.messages.push({ topic, qos: packet.qos, retain: packet.retain, payload: Buffer.from(payload), at: Date.now() }));
+    client.on('message', (topic, payload, packet) =>
+      this.messages.push({
+        topic,
+        qos: packet.qos,
+        retain: packet.retain,
+        payload: Buffer.from(payload),
+        at: Date.now(),
+      }),
+    );
   }
 
   static async open(url: string, filters: string[]): Promise<HostRecorder> {
-    const client = connect(url, { clientId: `tw-sphost-${Math.random().toString(16).slice(2)}`, clean: true, reconnectPeriod: 200, connectTimeout: 5000 });
+    const client = connect(url, {
+      clientId: `tw-sphost-${Math.random().toString(16).slice(2)}`,
+      clean: true,
+      reconnectPeriod: 200,
+      connectTimeout: 5000,
+    });
     client.on('error', () => {});
     const r = new HostRecorder(client);
     await new Promise<void>((resolve, reject) => {
-      const t = setTimeout(() => reject(new Error(`host recorder could not connect to ${url}`)), 10_000);
+      const t = setTimeout(
+        () => reject(new Error(`host recorder could not connect to ${url}`)),
+        10_000,
+      );
       client.once('connect', () => {
         clearTimeout(t);
         client.subscribe(filters, { qos: 1 }, (err) => (err ? reject(err) : resolve()));
@@ -208,7 +241,9 @@ export class HostRecorder {
   }
 
   publish(topic: string, payload: string | Buffer, retain = false): Promise<void> {
-    return new Promise((resolve, reject) => this.client.publish(topic, payload, { qos: 1, retain }, (e) => (e ? reject(e) : resolve())));
+    return new Promise((resolve, reject) =>
+      this.client.publish(topic, payload, { qos: 1, retain }, (e) => (e ? reject(e) : resolve())),
+    );
   }
 
   close(): Promise<void> {

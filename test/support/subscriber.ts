@@ -26,7 +26,11 @@ export class TestSubscriber {
     });
   }
 
-  static async open(url: string, filters: string[], opts: { sessionId?: string; extra?: IClientOptions } = {}): Promise<TestSubscriber> {
+  static async open(
+    url: string,
+    filters: string[],
+    opts: { sessionId?: string; extra?: IClientOptions } = {},
+  ): Promise<TestSubscriber> {
     const client = connect(url, {
       clientId: opts.sessionId ?? `tw-test-sub-${Math.random().toString(16).slice(2)}`,
       clean: !opts.sessionId,
@@ -37,7 +41,10 @@ export class TestSubscriber {
     client.on('error', () => {});
     const sub = new TestSubscriber(client);
     await new Promise<void>((resolve, reject) => {
-      const t = setTimeout(() => reject(new Error(`test subscriber could not connect to ${url}`)), 10_000);
+      const t = setTimeout(
+        () => reject(new Error(`test subscriber could not connect to ${url}`)),
+        10_000,
+      );
       client.once('connect', () => {
         clearTimeout(t);
         client.subscribe(filters, { qos: 1 }, (err) => (err ? reject(err) : resolve()));
@@ -51,16 +58,28 @@ export class TestSubscriber {
   }
 
   /** Waits until `pred` holds over the messages so far. */
-  async waitFor(pred: (msgs: Received[]) => boolean, timeoutMs = 15_000, what = 'expected messages'): Promise<void> {
+  async waitFor(
+    pred: (msgs: Received[]) => boolean,
+    timeoutMs = 15_000,
+    what = 'expected messages',
+  ): Promise<void> {
     const until = Date.now() + timeoutMs;
     while (!pred(this.messages)) {
-      if (Date.now() > until) throw new Error(`timed out after ${timeoutMs} ms waiting for ${what}; got ${this.messages.length} message(s): ${this.messages.map((m) => m.topic).slice(-10).join(', ')}`);
+      if (Date.now() > until)
+        throw new Error(
+          `timed out after ${timeoutMs} ms waiting for ${what}; got ${this.messages.length} message(s): ${this.messages
+            .map((m) => m.topic)
+            .slice(-10)
+            .join(', ')}`,
+        );
       await new Promise((r) => setTimeout(r, 25));
     }
   }
 
   publish(topic: string, payload: string | Buffer): Promise<void> {
-    return new Promise((resolve, reject) => this.client.publish(topic, payload, { qos: 1 }, (e) => (e ? reject(e) : resolve())));
+    return new Promise((resolve, reject) =>
+      this.client.publish(topic, payload, { qos: 1 }, (e) => (e ? reject(e) : resolve())),
+    );
   }
 
   close(): Promise<void> {

@@ -59,7 +59,12 @@ function gaussian(seed: number): () => number {
 }
 
 /** A speed profile: steady `holdS` at `fromRpm`, a linear ramp over `rampS` to `toRpm`, steady `holdS`. */
-export function rampProfile(fromRpm: number, toRpm: number, rampS: number, holdS: number): SpeedProfile {
+export function rampProfile(
+  fromRpm: number,
+  toRpm: number,
+  rampS: number,
+  holdS: number,
+): SpeedProfile {
   return (t) => {
     if (t <= holdS) return fromRpm;
     if (t >= holdS + rampS) return toRpm;
@@ -67,7 +72,13 @@ export function rampProfile(fromRpm: number, toRpm: number, rampS: number, holdS
   };
 }
 
-export function recordSweep(opts: { sampleRate: number; seconds: number; speed: SpeedProfile; modes: readonly Mode[]; seed?: number }): SweepRecording {
+export function recordSweep(opts: {
+  sampleRate: number;
+  seconds: number;
+  speed: SpeedProfile;
+  modes: readonly Mode[];
+  seed?: number;
+}): SweepRecording {
   const { sampleRate: fs, seconds, speed, modes } = opts;
   const n = Math.round(fs * seconds);
   const dt = 1 / fs;
@@ -76,7 +87,8 @@ export function recordSweep(opts: { sampleRate: number; seconds: number; speed: 
   const noise = gaussian(opts.seed ?? 12345);
   // Shaft angle (turns) at each sample, by the trapezoid rule on the speed.
   const turns = new Float64Array(n);
-  for (let i = 1; i < n; i++) turns[i] = turns[i - 1]! + ((speed((i - 1) * dt) + speed(i * dt)) / 120) * dt;
+  for (let i = 1; i < n; i++)
+    turns[i] = turns[i - 1]! + ((speed((i - 1) * dt) + speed(i * dt)) / 120) * dt;
   // Tach: 0-5 V, rising edge a ramp from 0 to 5 V over two samples centred on each whole turn, high for 20 % of a turn.
   for (let i = 0; i < n; i++) {
     const frac = turns[i]! - Math.floor(turns[i]!);
@@ -94,7 +106,8 @@ export function recordSweep(opts: { sampleRate: number; seconds: number; speed: 
       const w = (2 * Math.PI * speed(t)) / 60;
       return m.eccentricityMm * w * w * Math.cos(th - heavy);
     };
-    const accel = (t: number, th: number, x: number, v: number) => force(t, th) - 2 * m.zeta * wn * v - wn * wn * x;
+    const accel = (t: number, th: number, x: number, v: number) =>
+      force(t, th) - 2 * m.zeta * wn * v - wn * wn * x;
     // Start from the steady state at the first speed, so no start-up transient rings.
     const w0 = (2 * Math.PI * speed(0)) / 60;
     const r0 = w0 / wn;
@@ -139,7 +152,11 @@ export function steadyVelocity(m: Mode, rpm: number): { ampPk: number; phaseDeg:
  * Peak speed and half-power amplification factor of the steady-state velocity curve, found on a
  * fine grid (own computation): the reference the measured resonance is checked against.
  */
-export function trueResonance(m: Mode, fromRpm: number, toRpm: number): { rpm: number; af: number; ampPk: number } {
+export function trueResonance(
+  m: Mode,
+  fromRpm: number,
+  toRpm: number,
+): { rpm: number; af: number; ampPk: number } {
   const steps = 200000;
   let best = 0;
   let bestRpm = fromRpm;

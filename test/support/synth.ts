@@ -78,7 +78,8 @@ export function synthesize(spec: SynthSpec): Float32Array[] {
   const out = Array.from({ length: nch }, () => new Float32Array(n));
   const tach = out[spec.tachChannel]!;
   const sensorSlots: number[] = [];
-  for (let c = 0, s = 0; c < nch && s < spec.channels.length; c++) if (c !== spec.tachChannel) sensorSlots.push(c), s++;
+  for (let c = 0, s = 0; c < nch && s < spec.channels.length; c++)
+    if (c !== spec.tachChannel) (sensorSlots.push(c), s++);
   const rnd = gaussian(spec.seed ?? 1);
   const high = spec.tachHighV ?? 5;
   const rise = spec.tachRiseSamples ?? 4;
@@ -91,7 +92,7 @@ export function synthesize(spec: SynthSpec): Float32Array[] {
   let wPrev = (2 * Math.PI * spec.rpm(0)) / 60;
   for (let i = 0; i < n; i++) {
     const w = (2 * Math.PI * spec.rpm(i / fs)) / 60;
-    if (i > 0) th += ((wPrev + w) / 2) / fs;
+    if (i > 0) th += (wPrev + w) / 2 / fs;
     theta[i] = th;
     omega[i] = w;
     wPrev = w;
@@ -112,9 +113,14 @@ export function synthesize(spec: SynthSpec): Float32Array[] {
       const t = i / fs;
       let a = 0;
       for (const o of ch.orders ?? []) {
-        if ((o.fromS !== undefined && t < o.fromS) || (o.untilS !== undefined && t >= o.untilS)) continue;
+        if ((o.fromS !== undefined && t < o.fromS) || (o.untilS !== undefined && t >= o.untilS))
+          continue;
         // v = V cos(k theta - phi)  ->  dv/dt = -V k omega sin(k theta - phi)
-        a -= o.velPk * o.order * omega[i]! * Math.sin(o.order * theta[i]! - (o.phaseDeg * Math.PI) / 180);
+        a -=
+          o.velPk *
+          o.order *
+          omega[i]! *
+          Math.sin(o.order * theta[i]! - (o.phaseDeg * Math.PI) / 180);
       }
       for (const tn of ch.tones ?? []) {
         const w = 2 * Math.PI * tn.freqHz;
@@ -129,7 +135,10 @@ export function synthesize(spec: SynthSpec): Float32Array[] {
 }
 
 /** Splits channel arrays into source items of `block` samples, as a recording driver would yield them. */
-export function* asBlocks(channels: Float32Array[], block = 4096): Generator<{ kind: 'samples'; startIndex: number; channels: Float32Array[] }> {
+export function* asBlocks(
+  channels: Float32Array[],
+  block = 4096,
+): Generator<{ kind: 'samples'; startIndex: number; channels: Float32Array[] }> {
   const n = channels[0]!.length;
   for (let i = 0; i < n; i += block) {
     const e = Math.min(n, i + block);

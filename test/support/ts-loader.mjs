@@ -10,10 +10,15 @@ const cacheDir = fileURLToPath(new URL('../../node_modules/.cache/tw-ts-loader/'
 let ts = null;
 
 export async function resolve(specifier, context, next) {
-  if (specifier.startsWith('.') && specifier.endsWith('.js') && context.parentURL?.endsWith('.ts')) {
+  if (
+    specifier.startsWith('.') &&
+    specifier.endsWith('.js') &&
+    context.parentURL?.endsWith('.ts')
+  ) {
     const js = new URL(specifier, context.parentURL);
     const tsUrl = new URL(js.href.slice(0, -3) + '.ts');
-    if (!existsSync(fileURLToPath(js)) && existsSync(fileURLToPath(tsUrl))) return { url: tsUrl.href, shortCircuit: true };
+    if (!existsSync(fileURLToPath(js)) && existsSync(fileURLToPath(tsUrl)))
+      return { url: tsUrl.href, shortCircuit: true };
   }
   return next(specifier, context);
 }
@@ -24,11 +29,16 @@ export async function load(url, context, next) {
   const st = statSync(file);
   const key = createHash('sha1').update(`${file}\0${st.size}\0${st.mtimeMs}`).digest('hex');
   const cached = `${cacheDir}${key}.mjs`;
-  if (existsSync(cached)) return { format: 'module', source: readFileSync(cached, 'utf8'), shortCircuit: true };
+  if (existsSync(cached))
+    return { format: 'module', source: readFileSync(cached, 'utf8'), shortCircuit: true };
   ts ??= (await import('typescript')).default;
   const out = ts.transpileModule(readFileSync(file, 'utf8'), {
     fileName: file,
-    compilerOptions: { module: ts.ModuleKind.ESNext, target: ts.ScriptTarget.ES2022, inlineSourceMap: true },
+    compilerOptions: {
+      module: ts.ModuleKind.ESNext,
+      target: ts.ScriptTarget.ES2022,
+      inlineSourceMap: true,
+    },
   });
   mkdirSync(cacheDir, { recursive: true });
   const tmp = `${cached}.${process.pid}.tmp`;

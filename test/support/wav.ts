@@ -1,7 +1,11 @@
 import { closeSync, openSync, writeSync } from 'node:fs';
 
 /** Minimal float32 WAV writer for tests (channels interleaved, volts). */
-export function writeFloatWav(file: string, sampleRate: number, channels: readonly Float32Array[]): void {
+export function writeFloatWav(
+  file: string,
+  sampleRate: number,
+  channels: readonly Float32Array[],
+): void {
   const nch = channels.length;
   const n = channels[0]!.length;
   const dataBytes = n * nch * 4;
@@ -26,7 +30,8 @@ export function writeFloatWav(file: string, sampleRate: number, channels: readon
     const buf = Buffer.alloc(chunk * nch * 4);
     for (let i = 0; i < n; i += chunk) {
       const m = Math.min(chunk, n - i);
-      for (let j = 0; j < m; j++) for (let c = 0; c < nch; c++) buf.writeFloatLE(channels[c]![i + j]!, (j * nch + c) * 4);
+      for (let j = 0; j < m; j++)
+        for (let c = 0; c < nch; c++) buf.writeFloatLE(channels[c]![i + j]!, (j * nch + c) * 4);
       writeSync(fd, buf, 0, m * nch * 4);
     }
   } finally {

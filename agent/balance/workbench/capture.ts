@@ -176,7 +176,12 @@ export class RunCapture {
     // Elapsed time from the sample clock when the frame says its rate: the wall-clock time on live
     // frames is re-anchored after a board restart or a wall-clock step, and must not count revolutions.
     const fs = frame.sample_rate_hz;
-    const elapsedS = fs !== undefined && fs > 0 && prevIndex !== null ? (frame.sample_index - prevIndex) / fs : prev === null ? 0 : (atMs - prev) / 1000;
+    const elapsedS =
+      fs !== undefined && fs > 0 && prevIndex !== null
+        ? (frame.sample_index - prevIndex) / fs
+        : prev === null
+          ? 0
+          : (atMs - prev) / 1000;
     if (!(elapsedS > 0)) return this.progress();
     const revs = (elapsedS / 60) * speed;
     const ref = this.refSpeed;

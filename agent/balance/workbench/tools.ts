@@ -11,7 +11,12 @@ import { isUserError } from '../../errors.js';
 import { oneXAmplitude } from '../amplitude.js';
 import { solveFourRun } from '../four-run.js';
 import { conventionText } from '../conventions.js';
-import { parseCombineRequest, parseFourRun, parseSplitHolesRequest, parseSplitRequest } from '../job-input.js';
+import {
+  parseCombineRequest,
+  parseFourRun,
+  parseSplitHolesRequest,
+  parseSplitRequest,
+} from '../job-input.js';
 import { balancingCautions } from '../report.js';
 import {
   centrifugalForceN,
@@ -116,12 +121,22 @@ export function gradeTool(body: unknown) {
 /** A weight split between two holes at any angles, or the two nearest either side from a list. */
 function splitHolesTool(body: unknown) {
   const q = parseWithBalance(() => parseSplitHolesRequest(body, 'split request'));
-  const moved = q.radius_mm !== undefined && q.holes.radius_mm !== undefined ? moveToRadius(q.mass_g, q.radius_mm, q.holes.radius_mm) : q.mass_g;
+  const moved =
+    q.radius_mm !== undefined && q.holes.radius_mm !== undefined
+      ? moveToRadius(q.mass_g, q.radius_mm, q.holes.radius_mm)
+      : q.mass_g;
   try {
     const split = splitBetweenHoles(moved, q.angle_deg, q.holes.angles_deg);
-    return { angle_convention: q.angle_convention, convention: conventionText(q.angle_convention), moved_mass_g: moved, ...split, cautions: balancingCautions() };
+    return {
+      angle_convention: q.angle_convention,
+      convention: conventionText(q.angle_convention),
+      moved_mass_g: moved,
+      ...split,
+      cautions: balancingCautions(),
+    };
   } catch (e) {
-    if (e instanceof SplitRefused) throw new ApiError(400, e.code, `holes.angles_deg: ${e.message}`, e.hint);
+    if (e instanceof SplitRefused)
+      throw new ApiError(400, e.code, `holes.angles_deg: ${e.message}`, e.hint);
     throw e;
   }
 }
@@ -135,7 +150,11 @@ export function fourRunTool(body: unknown) {
 const oneXRequestSchema = z
   .object({
     sensor: z.string().min(1).max(32),
-    speed_rpm: z.number().positive('must be above 0').max(60000).describe('Running speed the technician states (handheld tachometer, drive display)'),
+    speed_rpm: z
+      .number()
+      .positive('must be above 0')
+      .max(60000)
+      .describe('Running speed the technician states (handheld tachometer, drive display)'),
   })
   .strict();
 
@@ -143,9 +162,23 @@ const oneXRequestSchema = z
  * The 1x amplitude of one sensor in the latest analysis window, for the four-run method: the
  * synchronous 1x while the tach works, the spectral peak near the stated speed when it does not.
  */
-export function oneXAmplitudeTool(body: unknown, window: { readonly window: WindowResult; readonly at_ms: number } | null) {
+export function oneXAmplitudeTool(
+  body: unknown,
+  window: { readonly window: WindowResult; readonly at_ms: number } | null,
+) {
   const q = parseBody(oneXRequestSchema, body, '1x amplitude request');
-  if (!window) throw new ApiError(409, 'no_window', 'no analysis window has been measured yet', 'wait a few seconds with the fan at steady speed, then read again');
+  if (!window)
+    throw new ApiError(
+      409,
+      'no_window',
+      'no analysis window has been measured yet',
+      'wait a few seconds with the fan at steady speed, then read again',
+    );
   const a = parseWithBalance(() => oneXAmplitude(window.window, q.sensor, q.speed_rpm));
-  return { ...a, window_end_ms: window.at_ms, window_s: (window.window.end_index - window.window.start_index) / window.window.sample_rate_hz, tach_revolutions: window.window.revolutions };
+  return {
+    ...a,
+    window_end_ms: window.at_ms,
+    window_s: (window.window.end_index - window.window.start_index) / window.window.sample_rate_hz,
+    tach_revolutions: window.window.revolutions,
+  };
 }

@@ -68,11 +68,21 @@ export interface ViewContext {
  * amplitude and phase change sharply with small speed changes, so the trial run's change is not the
  * weight's alone). Returns the warning when `speedRpm` is inside a half-power band of the sweep.
  */
-export function resonanceWarning(speedRpm: number | null, sweep: SweepEvidence | null | undefined): string | null {
+export function resonanceWarning(
+  speedRpm: number | null,
+  sweep: SweepEvidence | null | undefined,
+): string | null {
   if (speedRpm === null || !sweep) return null;
-  const near = sweep.resonances.filter((r) => speedRpm >= r.half_power_rpm[0] && speedRpm <= r.half_power_rpm[1]);
+  const near = sweep.resonances.filter(
+    (r) => speedRpm >= r.half_power_rpm[0] && speedRpm <= r.half_power_rpm[1],
+  );
   if (near.length === 0) return null;
-  const where = near.map((r) => `${Math.round(r.rpm)} r/min on ${r.sensor} (half-power band ${Math.round(r.half_power_rpm[0])}-${Math.round(r.half_power_rpm[1])})`).join('; ');
+  const where = near
+    .map(
+      (r) =>
+        `${Math.round(r.rpm)} r/min on ${r.sensor} (half-power band ${Math.round(r.half_power_rpm[0])}-${Math.round(r.half_power_rpm[1])})`,
+    )
+    .join('; ');
   return (
     `The balancing speed ${Math.round(speedRpm)} r/min is inside the band of a resonance found on the last ${sweep.direction === 'up' ? 'run-up' : 'coast-down'} (sweep ${sweep.sweep_id}): ${where}. ` +
     'Influence coefficients measured here are unreliable: the 1x swings with small speed changes. Balance at a speed away from the resonance if the process allows, and have the support checked.'

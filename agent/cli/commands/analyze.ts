@@ -11,7 +11,11 @@ import { Progress } from '../progress.js';
 const usage = 'turnwise analyze REC.wav --config CFG.yaml [--json] [--pcm-full-scale-v VOLTS]';
 
 /** Runs the measurement core over a whole recording: one window. */
-export async function analyzeRecording(file: string, cfg: Config, opts: { pcmFullScaleV?: number; progress?: Progress } = {}): Promise<WindowResult> {
+export async function analyzeRecording(
+  file: string,
+  cfg: Config,
+  opts: { pcmFullScaleV?: number; progress?: Progress } = {},
+): Promise<WindowResult> {
   return (await measureRecording(file, cfg, opts)).analyzer.takeWindow();
 }
 
@@ -22,7 +26,11 @@ export function analysisWarnings(w: WindowResult, a: WindowAssessment): string[]
 }
 
 /** The JSON document `turnwise analyze --json` prints. Units are in the field names. */
-export function analysisJson(file: string, w: WindowResult, a: WindowAssessment): Record<string, unknown> {
+export function analysisJson(
+  file: string,
+  w: WindowResult,
+  a: WindowAssessment,
+): Record<string, unknown> {
   const z = a.zone;
   return {
     file,
@@ -36,7 +44,8 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
     band_hz: w.band_hz,
     spectrum_resolution_hz: round(w.spectrum_resolution_hz, 4),
     spectrum_segments: w.spectrum_segments,
-    phase_convention: 'lag in degrees (0-360 of the order\'s own cycle) from the tach rising edge to the positive peak of the velocity component',
+    phase_convention:
+      "lag in degrees (0-360 of the order's own cycle) from the tach rising edge to the positive peak of the velocity component",
     tach: w.tach,
     zone: {
       machine: z.machine,
@@ -45,7 +54,14 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
       inhibited: z.inhibited,
       notes: z.notes,
     },
-    unbalance: { kind: a.unbalance.kind, confidence: a.unbalance.confidence, evidence: a.unbalance.evidence, points_to: a.unbalance.points_to, limits: a.unbalance.limits, residual_pattern: a.unbalance.residual_pattern },
+    unbalance: {
+      kind: a.unbalance.kind,
+      confidence: a.unbalance.confidence,
+      evidence: a.unbalance.evidence,
+      points_to: a.unbalance.points_to,
+      limits: a.unbalance.limits,
+      residual_pattern: a.unbalance.residual_pattern,
+    },
     channels: w.channels.map((c) => ({
       id: c.id,
       channel: c.channel,
@@ -60,10 +76,28 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
       sensor_doubts: a.sensors.find((h) => h.id === c.id)?.doubts ?? [],
       one_x_share: round(c.one_x_share, 3),
       orders: Object.fromEntries(
-        Object.entries(c.orders).map(([k, o]) => [k, { freq_hz: round(o.freq_hz, 3), amp_pk_mm_s: round(o.amp_pk_mm_s, 3), amp_rms_mm_s: round(o.amp_rms_mm_s, 3), phase_deg: round(o.phase_deg, 1) }]),
+        Object.entries(c.orders).map(([k, o]) => [
+          k,
+          {
+            freq_hz: round(o.freq_hz, 3),
+            amp_pk_mm_s: round(o.amp_pk_mm_s, 3),
+            amp_rms_mm_s: round(o.amp_rms_mm_s, 3),
+            phase_deg: round(o.phase_deg, 1),
+          },
+        ]),
       ),
-      nonsync_peaks: c.nonsync_peaks.map((p) => ({ freq_hz: round(p.freq_hz, 2), order: round(p.order, 3), amp_rms_mm_s: round(p.amp_rms_mm_s, 3) })),
-      stats: { dc_v: round(c.stats.dc_v, 4), ac_rms_v: round(c.stats.ac_rms_v, 5), min_v: round(c.stats.min_v, 4), max_v: round(c.stats.max_v, 4), clipped_samples: c.stats.clipped_samples },
+      nonsync_peaks: c.nonsync_peaks.map((p) => ({
+        freq_hz: round(p.freq_hz, 2),
+        order: round(p.order, 3),
+        amp_rms_mm_s: round(p.amp_rms_mm_s, 3),
+      })),
+      stats: {
+        dc_v: round(c.stats.dc_v, 4),
+        ac_rms_v: round(c.stats.ac_rms_v, 5),
+        min_v: round(c.stats.min_v, 4),
+        max_v: round(c.stats.max_v, 4),
+        clipped_samples: c.stats.clipped_samples,
+      },
     })),
     warnings: analysisWarnings(w, a),
     /** The DSP window itself, unrounded, for `turnwise condition learn-baseline --from`. */
@@ -71,14 +105,26 @@ export function analysisJson(file: string, w: WindowResult, a: WindowAssessment)
   };
 }
 
-export function analysisTable(file: string, w: WindowResult, cfg: Config, a: WindowAssessment): string {
+export function analysisTable(
+  file: string,
+  w: WindowResult,
+  cfg: Config,
+  a: WindowAssessment,
+): string {
   const u = cfg.units;
   const orders = Object.keys(w.channels[0]?.orders ?? {});
-  const header = ['sensor', `overall ${u} rms`, 'zone', ...orders.flatMap((k) => [`${k}x ${u} pk`, `${k}x phase deg`])];
+  const header = [
+    'sensor',
+    `overall ${u} rms`,
+    'zone',
+    ...orders.flatMap((k) => [`${k}x ${u} pk`, `${k}x phase deg`]),
+  ];
   const rows = w.channels.map((c) => [
     `${c.id} (${c.bearing} ${c.direction[0]!.toUpperCase()})`,
     fmtVel(c.overall_rms_mm_s, u),
-    a.sensors.find((h) => h.id === c.id)?.ok === false ? 'not OK' : (a.zone.channels[c.id]?.zone ?? '-'),
+    a.sensors.find((h) => h.id === c.id)?.ok === false
+      ? 'not OK'
+      : (a.zone.channels[c.id]?.zone ?? '-'),
     ...orders.flatMap((k) => {
       const o = c.orders[k];
       return [fmtVel(o?.amp_pk_mm_s, u), o ? o.phase_deg.toFixed(1) : '-'];
@@ -91,18 +137,40 @@ export function analysisTable(file: string, w: WindowResult, cfg: Config, a: Win
     `\noverall band ${w.band_hz.low}-${w.band_hz.high} Hz; phase = lag from the tach edge to the positive velocity peak\n\n`;
   const peaks = w.channels
     .filter((c) => c.nonsync_peaks.length > 0)
-    .map((c) => `  ${c.id}: ` + c.nonsync_peaks.slice(0, 3).map((p) => `${p.freq_hz.toFixed(1)} Hz (${p.order.toFixed(2)}x) ${fmtVel(p.amp_rms_mm_s, u)} ${u} rms`).join(', '));
+    .map(
+      (c) =>
+        `  ${c.id}: ` +
+        c.nonsync_peaks
+          .slice(0, 3)
+          .map(
+            (p) =>
+              `${p.freq_hz.toFixed(1)} Hz (${p.order.toFixed(2)}x) ${fmtVel(p.amp_rms_mm_s, u)} ${u} rms`,
+          )
+          .join(', '),
+    );
   const z = a.zone;
   const verdict =
     `\n\nzone ${z.machine} (${z.limits.basis}: A/B ${fmtVel(z.limits.ab_mm_s, u)}, B/C ${fmtVel(z.limits.bc_mm_s, u)}, C/D ${fmtVel(z.limits.cd_mm_s, u)} ${u} rms)` +
     (z.notes.length ? `\n${z.notes.map((n) => `  - ${n}`).join('\n')}` : '') +
     `\nunbalance: ${a.unbalance.kind} (confidence ${a.unbalance.confidence})\n` +
     a.unbalance.evidence.map((e) => `  - ${e}`).join('\n') +
-    (a.unbalance.points_to.length ? `\npoints to:\n${a.unbalance.points_to.map((p) => `  - ${p.cause}: ${p.why}`).join('\n')}` : '') +
-    (a.unbalance.limits.length ? `\nnot judged:\n${a.unbalance.limits.map((l) => `  - ${l}`).join('\n')}` : '') +
-    (a.sensors.some((h) => !h.ok) ? `\nsensors not OK:\n${a.sensors.filter((h) => !h.ok).map((h) => `  - ${h.id}: ${h.problems.join('; ')}`).join('\n')}` : '');
+    (a.unbalance.points_to.length
+      ? `\npoints to:\n${a.unbalance.points_to.map((p) => `  - ${p.cause}: ${p.why}`).join('\n')}`
+      : '') +
+    (a.unbalance.limits.length
+      ? `\nnot judged:\n${a.unbalance.limits.map((l) => `  - ${l}`).join('\n')}`
+      : '') +
+    (a.sensors.some((h) => !h.ok)
+      ? `\nsensors not OK:\n${a.sensors
+          .filter((h) => !h.ok)
+          .map((h) => `  - ${h.id}: ${h.problems.join('; ')}`)
+          .join('\n')}`
+      : '');
   const warnings = analysisWarnings(w, a);
-  const tail = verdict + (peaks.length ? `\n\nlargest non-synchronous peaks:\n${peaks.join('\n')}` : '') + (warnings.length ? `\n\nwarnings:\n${warnings.map((x) => `  - ${x}`).join('\n')}` : '');
+  const tail =
+    verdict +
+    (peaks.length ? `\n\nlargest non-synchronous peaks:\n${peaks.join('\n')}` : '') +
+    (warnings.length ? `\n\nwarnings:\n${warnings.map((x) => `  - ${x}`).join('\n')}` : '');
   return head + table(header, rows) + tail + '\n';
 }
 
@@ -112,10 +180,19 @@ export const analyzeCommand: Command = {
   async run(argv) {
     const { file, config, json, pcmFullScaleV } = recordingArgs('analyze', usage, argv);
     const cfg = loadConfig(config);
-    const w = await analyzeRecording(file, cfg, { pcmFullScaleV, progress: new Progress('analyze') });
+    const w = await analyzeRecording(file, cfg, {
+      pcmFullScaleV,
+      progress: new Progress('analyze'),
+    });
     // The stored baseline (learned at commissioning) when there is one, for the baseline-relative alarm.
-    const a = assessWindow(cfg, w, { baseline: new FileBaselineStore(cfg.state_dir).load() ?? undefined });
-    process.stdout.write(json ? JSON.stringify(analysisJson(file, w, a), null, 2) + '\n' : analysisTable(file, w, cfg, a));
+    const a = assessWindow(cfg, w, {
+      baseline: new FileBaselineStore(cfg.state_dir).load() ?? undefined,
+    });
+    process.stdout.write(
+      json
+        ? JSON.stringify(analysisJson(file, w, a), null, 2) + '\n'
+        : analysisTable(file, w, cfg, a),
+    );
     return 0;
   },
 };

@@ -4,14 +4,37 @@ import type { Config } from '../../config/schema.js';
 import { UserError } from '../../errors.js';
 import { conventionText } from '../../balance/conventions.js';
 import type { BalanceJob, Issue } from '../../balance/job.js';
-import { parseBalanceJob, parseCombineRequest, parseFourRun, parseMultiSpeed, parseSplitHolesRequest, parseSplitRequest, parseStoredCoefficients, readJsonFile } from '../../balance/job-input.js';
+import {
+  parseBalanceJob,
+  parseCombineRequest,
+  parseFourRun,
+  parseMultiSpeed,
+  parseSplitHolesRequest,
+  parseSplitRequest,
+  parseStoredCoefficients,
+  readJsonFile,
+} from '../../balance/job-input.js';
 import { solveFourRun } from '../../balance/four-run.js';
 import { solveMultiSpeed } from '../../balance/multi-speed.js';
 import { allocatePermissible, type RotorGeometry } from '../../balance/allocation.js';
 import { coefficientsForJob, exportCoefficients } from '../../balance/record.js';
-import { balancingCautions, cautionBlock, conventionLine, fixed, formatFourRunReport, formatMultiSpeedReport, formatSolveReport, formatSplitReport } from '../../balance/report.js';
+import {
+  balancingCautions,
+  cautionBlock,
+  conventionLine,
+  fixed,
+  formatFourRunReport,
+  formatMultiSpeedReport,
+  formatSolveReport,
+  formatSplitReport,
+} from '../../balance/report.js';
 import { solveBalanceJob } from '../../balance/solve.js';
-import { checkJobId, FileBalanceStore, newJobId, type BalanceJobRecord } from '../../balance/store.js';
+import {
+  checkJobId,
+  FileBalanceStore,
+  newJobId,
+  type BalanceJobRecord,
+} from '../../balance/store.js';
 import {
   centrifugalForceN,
   combineWeights,
@@ -104,22 +127,44 @@ the tach edge to the 1x peak. Every output states the convention.`;
 const EXIT_UNSOLVABLE = 3;
 
 /** node:util parseArgs for one sub-command; mistakes become a UserError pointing at the help. */
-function args<T extends NonNullable<ParseArgsConfig['options']>>(sub: string, argv: string[], options: T) {
+function args<T extends NonNullable<ParseArgsConfig['options']>>(
+  sub: string,
+  argv: string[],
+  options: T,
+) {
   try {
     return parseArgs({ args: argv, options, allowPositionals: true, strict: true });
   } catch (e) {
-    throw new UserError(sub, (e as Error).message, '`turnwise help balance` shows the options of every sub-command');
+    throw new UserError(
+      sub,
+      (e as Error).message,
+      '`turnwise help balance` shows the options of every sub-command',
+    );
   }
 }
 
-function num(sub: string, flag: string, v: string | undefined, opts: { required?: boolean; positive?: boolean; integer?: boolean } = {}): number | undefined {
+function num(
+  sub: string,
+  flag: string,
+  v: string | undefined,
+  opts: { required?: boolean; positive?: boolean; integer?: boolean } = {},
+): number | undefined {
   if (v === undefined) {
-    if (opts.required) throw new UserError(sub, `--${flag} is required`, '`turnwise help balance` shows every option');
+    if (opts.required)
+      throw new UserError(
+        sub,
+        `--${flag} is required`,
+        '`turnwise help balance` shows every option',
+      );
     return undefined;
   }
   const x = Number(v);
   if (!Number.isFinite(x) || (opts.positive && x <= 0) || (opts.integer && !Number.isInteger(x))) {
-    throw new UserError(sub, `--${flag} must be a ${opts.integer ? 'whole ' : ''}number${opts.positive ? ' above 0' : ''} (found "${v}")`, `give --${flag} as a plain number, e.g. --${flag} 600`);
+    throw new UserError(
+      sub,
+      `--${flag} must be a ${opts.integer ? 'whole ' : ''}number${opts.positive ? ' above 0' : ''} (found "${v}")`,
+      `give --${flag} as a plain number, e.g. --${flag} 600`,
+    );
   }
   return x;
 }
@@ -148,14 +193,27 @@ function out(text: string): void {
 }
 
 function singleFile(sub: string, positionals: string[], what: string): string {
-  if (positionals.length !== 1) throw new UserError(sub, `expects exactly one ${what} file`, `usage: turnwise balance ${sub} FILE.json [--json]`);
+  if (positionals.length !== 1)
+    throw new UserError(
+      sub,
+      `expects exactly one ${what} file`,
+      `usage: turnwise balance ${sub} FILE.json [--json]`,
+    );
   return positionals[0]!;
 }
 
-function stateDirOf(sub: string, values: { 'state-dir'?: string; config?: string }, cfg: Config | null): string {
+function stateDirOf(
+  sub: string,
+  values: { 'state-dir'?: string; config?: string },
+  cfg: Config | null,
+): string {
   if (values['state-dir']) return values['state-dir'];
   if (cfg) return cfg.state_dir;
-  throw new UserError(sub, 'needs to know the state directory', 'give --state-dir DIR or --config FILE (its state_dir is used)');
+  throw new UserError(
+    sub,
+    'needs to know the state directory',
+    'give --state-dir DIR or --config FILE (its state_dir is used)',
+  );
 }
 
 /** Fills what the job leaves out from the config's `balance:` section. The job's own values win. */
@@ -166,10 +224,15 @@ function withConfigDefaults(raw: unknown, cfg: Config | null): unknown {
   job.angle_convention ??= b.angle_convention;
   if (b.rotor_mass_kg !== undefined) job.rotor_mass_kg ??= b.rotor_mass_kg;
   if (b.grade_mm_s !== undefined) job.grade_mm_s ??= b.grade_mm_s;
-  const planes = Array.isArray(job.planes) ? (job.planes as unknown[]).filter((p): p is string => typeof p === 'string') : [];
+  const planes = Array.isArray(job.planes)
+    ? (job.planes as unknown[]).filter((p): p is string => typeof p === 'string')
+    : [];
   for (const key of ['radius_mm', 'max_mass_g'] as const) {
-    const fromCfg = Object.fromEntries(planes.flatMap((p) => (b.planes?.[p]?.[key] !== undefined ? [[p, b.planes[p]![key]]] : [])));
-    if (Object.keys(fromCfg).length) job[key] = { ...fromCfg, ...((job[key] as object | undefined) ?? {}) };
+    const fromCfg = Object.fromEntries(
+      planes.flatMap((p) => (b.planes?.[p]?.[key] !== undefined ? [[p, b.planes[p]![key]]] : [])),
+    );
+    if (Object.keys(fromCfg).length)
+      job[key] = { ...fromCfg, ...((job[key] as object | undefined) ?? {}) };
   }
   return job;
 }
@@ -187,15 +250,30 @@ async function solve(argv: string[]): Promise<number> {
   });
   const file = singleFile('solve', positionals, 'job');
   const cfg = values.config ? loadConfig(values.config) : null;
-  let job: BalanceJob = parseBalanceJob(withConfigDefaults(readJsonFile(file, 'balancing job'), cfg), file);
+  let job: BalanceJob = parseBalanceJob(
+    withConfigDefaults(readJsonFile(file, 'balancing job'), cfg),
+    file,
+  );
   const notes: Issue[] = [];
   if (values.coefficients) {
-    const stored = parseStoredCoefficients(readJsonFile(values.coefficients, 'influence coefficients'), values.coefficients);
+    const stored = parseStoredCoefficients(
+      readJsonFile(values.coefficients, 'influence coefficients'),
+      values.coefficients,
+    );
     if (job.amp_unit === undefined) {
       job = { ...job, amp_unit: 'mm/s pk' };
-      notes.push({ code: 'unit_assumed', message: 'the job gives no amp_unit: its readings are taken as mm/s pk, the unit of the stored coefficients', hint: 'set "amp_unit" in the job to say what the readings are' });
+      notes.push({
+        code: 'unit_assumed',
+        message:
+          'the job gives no amp_unit: its readings are taken as mm/s pk, the unit of the stored coefficients',
+        hint: 'set "amp_unit" in the job to say what the readings are',
+      });
     }
-    job = { ...job, influence_coefficients: coefficientsForJob(stored, job, values.coefficients), coefficients_speed_rpm: stored.speed_rpm };
+    job = {
+      ...job,
+      influence_coefficients: coefficientsForJob(stored, job, values.coefficients),
+      coefficients_speed_rpm: stored.speed_rpm,
+    };
   }
   const solved = solveBalanceJob(job);
   const result = notes.length ? { ...solved, warnings: [...solved.warnings, ...notes] } : solved;
@@ -234,12 +312,19 @@ async function solve(argv: string[]): Promise<number> {
     out(formatSolveReport(result));
     if (saved) {
       out(`Saved job ${String(saved.job_id)} to ${String(saved.job_file)}\n`);
-      out(saved.coefficients_file ? `Influence coefficients stored in ${String(saved.coefficients_file)}\n` : `Influence coefficients not stored: ${String(saved.coefficients_not_saved)}\n`);
+      out(
+        saved.coefficients_file
+          ? `Influence coefficients stored in ${String(saved.coefficients_file)}\n`
+          : `Influence coefficients not stored: ${String(saved.coefficients_not_saved)}\n`,
+      );
     }
     out('\n' + cautionBlock());
   }
   if (!result.ok) {
-    if (!values.json) process.stderr.write(`turnwise balance solve: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    if (!values.json)
+      process.stderr.write(
+        `turnwise balance solve: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+      );
     return EXIT_UNSOLVABLE;
   }
   return 0;
@@ -253,7 +338,10 @@ async function fourRun(argv: string[]): Promise<number> {
   if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else out(formatFourRunReport(result) + '\n' + cautionBlock());
   if (!result.ok) {
-    if (!values.json) process.stderr.write(`turnwise balance four-run: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    if (!values.json)
+      process.stderr.write(
+        `turnwise balance four-run: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+      );
     return EXIT_UNSOLVABLE;
   }
   return 0;
@@ -267,7 +355,10 @@ async function multiSpeed(argv: string[]): Promise<number> {
   if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else out(formatMultiSpeedReport(result) + '\n' + cautionBlock());
   if (!result.ok) {
-    if (!values.json) process.stderr.write(`turnwise balance multi-speed: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`);
+    if (!values.json)
+      process.stderr.write(
+        `turnwise balance multi-speed: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+      );
     return EXIT_UNSOLVABLE;
   }
   return 0;
@@ -275,12 +366,16 @@ async function multiSpeed(argv: string[]): Promise<number> {
 
 async function splitHoles(raw: unknown, file: string, json: boolean): Promise<number> {
   const req = parseSplitHolesRequest(raw, file);
-  const moved = req.radius_mm !== undefined && req.holes.radius_mm !== undefined ? moveToRadius(req.mass_g, req.radius_mm, req.holes.radius_mm) : req.mass_g;
+  const moved =
+    req.radius_mm !== undefined && req.holes.radius_mm !== undefined
+      ? moveToRadius(req.mass_g, req.radius_mm, req.holes.radius_mm)
+      : req.mass_g;
   let split;
   try {
     split = splitBetweenHoles(moved, req.angle_deg, req.holes.angles_deg);
   } catch (e) {
-    if (e instanceof SplitRefused) throw new UserError(`${file}: holes.angles_deg`, e.message, e.hint);
+    if (e instanceof SplitRefused)
+      throw new UserError(`${file}: holes.angles_deg`, e.message, e.hint);
     throw e;
   }
   const summary = {
@@ -299,7 +394,10 @@ async function splitHoles(raw: unknown, file: string, json: boolean): Promise<nu
   if (json) out(jsonText({ ...summary, cautions: balancingCautions() }));
   else {
     out(
-      formatSplitReport(summary, 'Holes are numbered 0, 1, ... in the order holes.angles_deg lists them.') +
+      formatSplitReport(
+        summary,
+        'Holes are numbered 0, 1, ... in the order holes.angles_deg lists them.',
+      ) +
         `  parts add up to ${fixed(split.total_mass_g, 2)} g` +
         (split.gap_deg > 0 ? ` (holes ${fixed(split.gap_deg, 1)} deg apart)` : '') +
         '\n' +
@@ -315,9 +413,13 @@ async function split(argv: string[]): Promise<number> {
   const { values, positionals } = args('split', argv, { json: { type: 'boolean' } });
   const file = singleFile('split', positionals, 'split request');
   const raw = readJsonFile(file, 'split request');
-  if (raw !== null && typeof raw === 'object' && 'holes' in raw) return splitHoles(raw, file, values.json === true);
+  if (raw !== null && typeof raw === 'object' && 'holes' in raw)
+    return splitHoles(raw, file, values.json === true);
   const req = parseSplitRequest(raw, file);
-  const moved = req.radius_mm !== undefined && req.positions.radius_mm !== undefined ? moveToRadius(req.mass_g, req.radius_mm, req.positions.radius_mm) : req.mass_g;
+  const moved =
+    req.radius_mm !== undefined && req.positions.radius_mm !== undefined
+      ? moveToRadius(req.mass_g, req.radius_mm, req.positions.radius_mm)
+      : req.mass_g;
   const weights = splitOntoPositions(moved, req.angle_deg, req.positions);
   const summary = {
     angle_convention: req.angle_convention,
@@ -339,7 +441,12 @@ async function combine(argv: string[]): Promise<number> {
   const file = singleFile('combine', positionals, 'combine request');
   const req = parseCombineRequest(readJsonFile(file, 'combine request'), file);
   const w = combineWeights(req.weights, req.to_radius_mm);
-  const result = { angle_convention: req.angle_convention, convention: conventionText(req.angle_convention), ...w, ...(req.to_radius_mm !== undefined ? { radius_mm: req.to_radius_mm } : {}) };
+  const result = {
+    angle_convention: req.angle_convention,
+    convention: conventionText(req.angle_convention),
+    ...w,
+    ...(req.to_radius_mm !== undefined ? { radius_mm: req.to_radius_mm } : {}),
+  };
   if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else {
     out(
@@ -364,19 +471,37 @@ async function trialWeight(argv: string[]): Promise<number> {
     config: { type: 'string' },
     json: { type: 'boolean' },
   });
-  if (positionals.length) throw new UserError(sub, `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
+  if (positionals.length)
+    throw new UserError(
+      sub,
+      `unexpected argument "${positionals[0]}"`,
+      'give everything as --flags; see `turnwise help balance`',
+    );
   const cfg = values.config ? loadConfig(values.config) : null;
   const bearingKgFlag = num(sub, 'bearing-kg', values['bearing-kg'], { positive: true });
-  const rotorKg = num(sub, 'rotor-kg', values['rotor-kg'], { positive: true }) ?? cfg?.balance?.rotor_mass_kg;
-  const bearings = num(sub, 'bearings', values.bearings, { positive: true, integer: true }) ?? cfg?.balance?.bearings ?? 2;
+  const rotorKg =
+    num(sub, 'rotor-kg', values['rotor-kg'], { positive: true }) ?? cfg?.balance?.rotor_mass_kg;
+  const bearings =
+    num(sub, 'bearings', values.bearings, { positive: true, integer: true }) ??
+    cfg?.balance?.bearings ??
+    2;
   if (bearingKgFlag === undefined && rotorKg === undefined) {
-    throw new UserError(sub, 'needs the rotor mass', 'give --rotor-kg KG (and --bearings N, default 2), or --bearing-kg KG for the load on the nearest bearing');
+    throw new UserError(
+      sub,
+      'needs the rotor mass',
+      'give --rotor-kg KG (and --bearings N, default 2), or --bearing-kg KG for the load on the nearest bearing',
+    );
   }
   const bearingKg = bearingKgFlag ?? rotorKg! / bearings;
   const radiusMm = num(sub, 'radius-mm', values['radius-mm'], { required: true, positive: true })!;
   const speedRpm = num(sub, 'speed-rpm', values['speed-rpm'], { required: true, positive: true })!;
   const fraction = num(sub, 'fraction', values.fraction, { positive: true }) ?? 0.1;
-  if (fraction > 0.5) throw new UserError(sub, `--fraction ${fraction} would load the bearing with more than half its static load`, 'use 0.1 (the usual rule) or less');
+  if (fraction > 0.5)
+    throw new UserError(
+      sub,
+      `--fraction ${fraction} would load the bearing with more than half its static load`,
+      'use 0.1 (the usual rule) or less',
+    );
   const mass = suggestTrialMassG(bearingKg, radiusMm, speedRpm, fraction);
   const force = centrifugalForceN(mass, radiusMm, speedRpm);
   const result = {
@@ -416,35 +541,81 @@ async function checkGrade(argv: string[]): Promise<number> {
     rotor: { type: 'string' },
     json: { type: 'boolean' },
   });
-  if (positionals.length) throw new UserError(sub, `unexpected argument "${positionals[0]}"`, 'give everything as --flags; see `turnwise help balance`');
+  if (positionals.length)
+    throw new UserError(
+      sub,
+      `unexpected argument "${positionals[0]}"`,
+      'give everything as --flags; see `turnwise help balance`',
+    );
   const rotorKg = num(sub, 'rotor-kg', values['rotor-kg'], { required: true, positive: true })!;
   const speedRpm = num(sub, 'speed-rpm', values['speed-rpm'], { required: true, positive: true })!;
-  if (values.grade === undefined) throw new UserError(sub, '--grade is required', 'give the balance quality grade, e.g. --grade G6.3 (fans usually G6.3)');
+  if (values.grade === undefined)
+    throw new UserError(
+      sub,
+      '--grade is required',
+      'give the balance quality grade, e.g. --grade G6.3 (fans usually G6.3)',
+    );
   const grade = parseGrade(values.grade);
-  if (!(grade > 0)) throw new UserError(sub, `--grade "${values.grade}" is not a balance quality grade`, 'write it as G6.3 or 6.3 (mm/s)');
+  if (!(grade > 0))
+    throw new UserError(
+      sub,
+      `--grade "${values.grade}" is not a balance quality grade`,
+      'write it as G6.3 or 6.3 (mm/s)',
+    );
   const residual = num(sub, 'residual-g-mm', values['residual-g-mm']);
-  if (residual !== undefined && residual < 0) throw new UserError(sub, '--residual-g-mm must be 0 or more', 'give the residual unbalance magnitude in g mm');
+  if (residual !== undefined && residual < 0)
+    throw new UserError(
+      sub,
+      '--residual-g-mm must be 0 or more',
+      'give the residual unbalance magnitude in g mm',
+    );
   const geometryFlags = ['bearings-mm', 'com-mm', 'planes-mm'] as const;
   const given = geometryFlags.filter((f) => values[f] !== undefined);
   let geometry: RotorGeometry | undefined;
   if (given.length) {
     if (given.length !== geometryFlags.length) {
-      throw new UserError(sub, `the rotor geometry needs all of --bearings-mm, --com-mm and --planes-mm (missing ${geometryFlags.filter((f) => values[f] === undefined).map((f) => `--${f}`).join(', ')})`, 'axial positions from one datum, mm, e.g. --bearings-mm 0,1400 --com-mm 650 --planes-mm 450,950');
+      throw new UserError(
+        sub,
+        `the rotor geometry needs all of --bearings-mm, --com-mm and --planes-mm (missing ${geometryFlags
+          .filter((f) => values[f] === undefined)
+          .map((f) => `--${f}`)
+          .join(', ')})`,
+        'axial positions from one datum, mm, e.g. --bearings-mm 0,1400 --com-mm 650 --planes-mm 450,950',
+      );
     }
     const pair = (flag: string, v: string): [number, number] => {
       const xs = v.split(',').map((x) => Number(x.trim()));
-      if (xs.length !== 2 || !xs.every(Number.isFinite)) throw new UserError(sub, `--${flag} must be two positions in mm separated by a comma (found "${v}")`, `e.g. --${flag} 0,1400`);
+      if (xs.length !== 2 || !xs.every(Number.isFinite))
+        throw new UserError(
+          sub,
+          `--${flag} must be two positions in mm separated by a comma (found "${v}")`,
+          `e.g. --${flag} 0,1400`,
+        );
       return [xs[0]!, xs[1]!];
     };
     const [ba, bb] = pair('bearings-mm', values['bearings-mm']!);
     const [p1, p2] = pair('planes-mm', values['planes-mm']!);
     const rotor = values.rotor ?? 'centre-hung';
-    if (rotor !== 'centre-hung' && rotor !== 'overhung') throw new UserError(sub, `--rotor must be centre-hung or overhung (found "${rotor}")`, 'centre-hung: impeller between the bearings; overhung: impeller outboard of both');
-    geometry = { rotor: rotor === 'overhung' ? 'overhung' : 'centre_hung', bearing_a_mm: ba, bearing_b_mm: bb, centre_of_mass_mm: num(sub, 'com-mm', values['com-mm'], { required: true })!, planes_mm: { I: p1, II: p2 } };
+    if (rotor !== 'centre-hung' && rotor !== 'overhung')
+      throw new UserError(
+        sub,
+        `--rotor must be centre-hung or overhung (found "${rotor}")`,
+        'centre-hung: impeller between the bearings; overhung: impeller outboard of both',
+      );
+    geometry = {
+      rotor: rotor === 'overhung' ? 'overhung' : 'centre_hung',
+      bearing_a_mm: ba,
+      bearing_b_mm: bb,
+      centre_of_mass_mm: num(sub, 'com-mm', values['com-mm'], { required: true })!,
+      planes_mm: { I: p1, II: p2 },
+    };
   }
-  const planes = geometry ? 2 : (num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1);
+  const planes = geometry
+    ? 2
+    : (num(sub, 'planes', values.planes, { positive: true, integer: true }) ?? 1);
   const uper = permissibleUnbalanceGmm(grade, rotorKg, speedRpm);
-  const planeNames = planes === 2 ? ['I', 'II'] : Array.from({ length: planes }, (_, i) => `P${i + 1}`);
+  const planeNames =
+    planes === 2 ? ['I', 'II'] : Array.from({ length: planes }, (_, i) => `P${i + 1}`);
   const allocation = allocatePermissible(uper, planeNames, geometry);
   const result = {
     grade_mm_s: grade,
@@ -465,11 +636,15 @@ async function checkGrade(argv: string[]): Promise<number> {
         '.\n' +
         (planes > 1
           ? `  per plane: ${planeNames.map((p) => `${p} ${fixed(allocation.by_plane_g_mm[p]!, 0)} g mm`).join(', ')}` +
-            (allocation.bearing_planes_g_mm ? ` (bearing planes A ${fixed(allocation.bearing_planes_g_mm.A, 0)}, B ${fixed(allocation.bearing_planes_g_mm.B, 0)} g mm)` : '') +
+            (allocation.bearing_planes_g_mm
+              ? ` (bearing planes A ${fixed(allocation.bearing_planes_g_mm.A, 0)}, B ${fixed(allocation.bearing_planes_g_mm.B, 0)} g mm)`
+              : '') +
             `\n  allocation: ${allocation.basis}\n` +
             allocation.warnings.map((w) => `  Warning: ${w.message}\n    -> ${w.hint}\n`).join('')
           : '') +
-        (residual !== undefined ? `Residual ${fixed(residual, 0)} g mm: ${residual <= uper ? 'WITHIN' : 'NOT within'} G${grade}.\n` : '') +
+        (residual !== undefined
+          ? `Residual ${fixed(residual, 0)} g mm: ${residual <= uper ? 'WITHIN' : 'NOT within'} G${grade}.\n`
+          : '') +
         `  ${result.rule}\n`,
     );
   }
@@ -477,8 +652,17 @@ async function checkGrade(argv: string[]): Promise<number> {
 }
 
 async function jobs(argv: string[]): Promise<number> {
-  const { values, positionals } = args('jobs', argv, { 'state-dir': { type: 'string' }, config: { type: 'string' }, json: { type: 'boolean' } });
-  if (positionals.length) throw new UserError('jobs', `unexpected argument "${positionals[0]}"`, 'usage: turnwise balance jobs [--state-dir DIR | --config FILE] [--json]');
+  const { values, positionals } = args('jobs', argv, {
+    'state-dir': { type: 'string' },
+    config: { type: 'string' },
+    json: { type: 'boolean' },
+  });
+  if (positionals.length)
+    throw new UserError(
+      'jobs',
+      `unexpected argument "${positionals[0]}"`,
+      'usage: turnwise balance jobs [--state-dir DIR | --config FILE] [--json]',
+    );
   const cfg = values.config ? loadConfig(values.config) : null;
   const store = new FileBalanceStore(stateDirOf('jobs', values, cfg));
   const ids = await store.listJobs();
@@ -488,12 +672,25 @@ async function jobs(argv: string[]): Promise<number> {
 }
 
 async function exportJob(argv: string[]): Promise<number> {
-  const { values, positionals } = args('export', argv, { 'state-dir': { type: 'string' }, config: { type: 'string' } });
-  if (positionals.length !== 1) throw new UserError('export', 'expects exactly one job id', 'usage: turnwise balance export JOB_ID [--state-dir DIR | --config FILE]; `turnwise balance jobs` lists them');
+  const { values, positionals } = args('export', argv, {
+    'state-dir': { type: 'string' },
+    config: { type: 'string' },
+  });
+  if (positionals.length !== 1)
+    throw new UserError(
+      'export',
+      'expects exactly one job id',
+      'usage: turnwise balance export JOB_ID [--state-dir DIR | --config FILE]; `turnwise balance jobs` lists them',
+    );
   const cfg = values.config ? loadConfig(values.config) : null;
   const store = new FileBalanceStore(stateDirOf('export', values, cfg));
   const rec = await store.loadJob(positionals[0]!);
-  if (!rec) throw new UserError('export', `no job "${positionals[0]}" in ${store.jobsDir}`, '`turnwise balance jobs` lists the recorded jobs');
+  if (!rec)
+    throw new UserError(
+      'export',
+      `no job "${positionals[0]}" in ${store.jobsDir}`,
+      '`turnwise balance jobs` lists the recorded jobs',
+    );
   out(JSON.stringify(rec, null, 2) + '\n');
   return 0;
 }
@@ -517,7 +714,11 @@ export const balanceCommand: Command = {
     const [sub, ...rest] = argv;
     const fn = sub ? subcommands[sub] : undefined;
     if (!fn) {
-      throw new UserError(sub ? `"${sub}"` : 'arguments', sub ? 'is not a balance sub-command' : 'a sub-command is needed', `one of: ${Object.keys(subcommands).join(', ')}; \`turnwise help balance\` shows them`);
+      throw new UserError(
+        sub ? `"${sub}"` : 'arguments',
+        sub ? 'is not a balance sub-command' : 'a sub-command is needed',
+        `one of: ${Object.keys(subcommands).join(', ')}; \`turnwise help balance\` shows them`,
+      );
     }
     return fn(rest);
   },

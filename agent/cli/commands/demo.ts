@@ -15,11 +15,25 @@ import { assemble } from '../../runtime/assemble.js';
 import { UserError } from '../../errors.js';
 import { numberOption, parseCommandArgs } from '../args.js';
 
-const num = (name: string, raw: string | undefined, def: number, min: number, max: number): number =>
-  numberOption('demo', usage, name, raw, (v) => v >= min && v <= max, `a number from ${min} to ${max}`) ?? def;
+const num = (
+  name: string,
+  raw: string | undefined,
+  def: number,
+  min: number,
+  max: number,
+): number =>
+  numberOption(
+    'demo',
+    usage,
+    name,
+    raw,
+    (v) => v >= min && v <= max,
+    `a number from ${min} to ${max}`,
+  ) ?? def;
 import type { Command } from '../command.js';
 
-const usage = 'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S] [--state-dir DIR]';
+const usage =
+  'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S] [--state-dir DIR]';
 
 const CONFIG_DIR = fileURLToPath(new URL('../../../../config/', import.meta.url));
 
@@ -46,7 +60,13 @@ function portInUse(option: '--port' | '--mqtt-port', port: number, what: string)
  * Listens on `port`; when the user gave no port and the default is taken, on any free port
  * (reported in the banner); a port the user asked for that is taken ends the demo with one message.
  */
-async function listenDemoPort(server: Server, port: number, userGave: boolean, option: '--port' | '--mqtt-port', what: string): Promise<{ port: number; fellBackFrom?: number }> {
+async function listenDemoPort(
+  server: Server,
+  port: number,
+  userGave: boolean,
+  option: '--port' | '--mqtt-port',
+  what: string,
+): Promise<{ port: number; fellBackFrom?: number }> {
   try {
     return { port: await listenOn(server, port) };
   } catch (e) {
@@ -83,7 +103,11 @@ function scenarioTime(ts: string, startMs: number): string {
 
 function describeEvent(e: AgentEvent): string {
   const who = (e['sensor'] as string | undefined) ?? (e['scope'] === 'machine' ? 'machine' : '');
-  const extra = e['zone'] ? `zone ${String(e['zone'])}` : e['kind'] ? `kind ${String(e['kind'])}` : '';
+  const extra = e['zone']
+    ? `zone ${String(e['zone'])}`
+    : e['kind']
+      ? `kind ${String(e['kind'])}`
+      : '';
   return [e.type, who, extra].filter(Boolean).join(' ');
 }
 
@@ -102,7 +126,8 @@ export const demoCommand: Command = {
     });
     const speed = num('speed', values.speed, 3600, 1, 1e6);
     const fromDay = num('from-day', values['from-day'], 0, 0, 7);
-    const seconds = values.seconds === undefined ? Infinity : num('seconds', values.seconds, 0, 1, 1e9);
+    const seconds =
+      values.seconds === undefined ? Infinity : num('seconds', values.seconds, 0, 1, 1e9);
     const livePort = num('port', values.port, 8480, 0, 65535);
     // A port in use is said at once, naming the option to change, before the broker starts.
     await checkPortFree(livePort, '--port', 'the live page');
@@ -116,7 +141,13 @@ export const demoCommand: Command = {
       const { Aedes } = await import('aedes');
       const aedes = await Aedes.createBroker();
       const server = createServer(aedes.handle);
-      const bound = await listenDemoPort(server, num('mqtt-port', values['mqtt-port'], 1883, 0, 65535), values['mqtt-port'] !== undefined, '--mqtt-port', 'the embedded MQTT broker').catch(async (e: unknown) => {
+      const bound = await listenDemoPort(
+        server,
+        num('mqtt-port', values['mqtt-port'], 1883, 0, 65535),
+        values['mqtt-port'] !== undefined,
+        '--mqtt-port',
+        'the embedded MQTT broker',
+      ).catch(async (e: unknown) => {
         await new Promise<void>((r) => aedes.close(() => r()));
         throw e;
       });
@@ -132,7 +163,10 @@ export const demoCommand: Command = {
     // State (outbox, advisory latch, history) goes to the user's directory, which is kept, or to a
     // temporary one removed when the demo ends, however it ends (Ctrl-C, --seconds, an error).
     const givenState = values['state-dir'];
-    const stateDir = givenState !== undefined ? resolve(givenState) : mkdtempSync(join(tmpdir(), 'turnwise-demo-'));
+    const stateDir =
+      givenState !== undefined
+        ? resolve(givenState)
+        : mkdtempSync(join(tmpdir(), 'turnwise-demo-'));
     if (givenState !== undefined) mkdirSync(stateDir, { recursive: true });
     try {
       const token = randomBytes(18).toString('base64url');
@@ -142,12 +176,22 @@ export const demoCommand: Command = {
       const cfg = validateConfig(
         {
           ...raw,
-          acquisition: { driver: 'sim', scenario: 'example-scenario.yaml', pace: 'realtime', time_scale: speed, from_day: fromDay },
+          acquisition: {
+            driver: 'sim',
+            scenario: 'example-scenario.yaml',
+            pace: 'realtime',
+            time_scale: speed,
+            from_day: fromDay,
+          },
           mqtt: { url: brokerUrl, topic_prefix: prefix },
           // A laptop has no GPIO lines: the advisory drives lines in memory, shown in events.
           // The demo raises it from zone C (the default is zone D) so the invented week shows one.
           advisory: { relay: { line: 17 }, lamp: { line: 27 }, zone: 'C', hold_s: 1 },
-          live: { bind: '127.0.0.1', port: livePort, tokens: [{ name: 'demo-operator', role: 'operator', env: 'TURNWISE_DEMO_TOKEN' }] },
+          live: {
+            bind: '127.0.0.1',
+            port: livePort,
+            tokens: [{ name: 'demo-operator', role: 'operator', env: 'TURNWISE_DEMO_TOKEN' }],
+          },
           state_dir: stateDir,
         },
         'demo config (config/example.yaml with demo settings)',
@@ -160,10 +204,16 @@ export const demoCommand: Command = {
         env: { ...process.env, TURNWISE_DEMO_TOKEN: token },
         // A laptop has no GPIO lines: the advisory drives lines in memory.
         openGpio: () => new FakeGpioLines(),
-        openSource: (c) => ({ source: createSource(c, configFile, { log }).source, boardTimesTach: false }),
+        openSource: (c) => ({
+          source: createSource(c, configFile, { log }).source,
+          boardTimesTach: false,
+        }),
         startMs,
         timeScale: speed,
-        onEvent: (e) => process.stdout.write(`  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`),
+        onEvent: (e) =>
+          process.stdout.write(
+            `  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`,
+          ),
       });
       const url = await startLive();
       const [host, port] = brokerUrl.replace('mqtt://', '').split(':');
@@ -197,10 +247,11 @@ export const demoCommand: Command = {
         try {
           rmSync(stateDir, { recursive: true, force: true });
         } catch (e) {
-          process.stderr.write(`turnwise demo: could not remove the temporary state directory ${stateDir}: ${(e as Error).message}\n`);
+          process.stderr.write(
+            `turnwise demo: could not remove the temporary state directory ${stateDir}: ${(e as Error).message}\n`,
+          );
         }
       }
     }
   },
 };
-

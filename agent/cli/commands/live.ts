@@ -20,16 +20,32 @@ const usage = `turnwise live SUB-COMMAND ...   (the technician's live page and b
 The page itself is served by the running agent when the config has a live section.`;
 
 function makeToken(argv: string[]): number {
-  const { values, positionals } = parseCommandArgs('live make-token', usage, argv, { force: { type: 'boolean' } });
-  if (positionals.length !== 1) throw new UserError('turnwise live make-token', 'expects exactly one FILE', 'usage: turnwise live make-token FILE [--force]');
+  const { values, positionals } = parseCommandArgs('live make-token', usage, argv, {
+    force: { type: 'boolean' },
+  });
+  if (positionals.length !== 1)
+    throw new UserError(
+      'turnwise live make-token',
+      'expects exactly one FILE',
+      'usage: turnwise live make-token FILE [--force]',
+    );
   const file = positionals[0]!;
   let fd: number;
   try {
     fd = openSync(file, values.force ? 'w' : 'wx', 0o600);
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'EEXIST') throw new UserError(file, 'already exists', 'give another file, or --force to replace the token (its holder then needs the new one)');
-    throw new UserError(file, `cannot write the token file (${code ?? String(e)})`, 'check the directory exists and you may write to it');
+    if (code === 'EEXIST')
+      throw new UserError(
+        file,
+        'already exists',
+        'give another file, or --force to replace the token (its holder then needs the new one)',
+      );
+    throw new UserError(
+      file,
+      `cannot write the token file (${code ?? String(e)})`,
+      'check the directory exists and you may write to it',
+    );
   }
   try {
     writeSync(fd, `${randomBytes(32).toString('base64url')}\n`);
@@ -42,17 +58,30 @@ function makeToken(argv: string[]): number {
     `Wrote a new token to ${file} (mode 600).\n` +
       'Use it in the config, with the role of its holder (viewer or operator):\n\n' +
       `live:\n  tokens:\n    - { name: HOLDER, role: operator, file: ${file} }\n\n` +
-      'The agent must run as the file\'s owner. Give the token to its holder from the file; it is never logged.\n',
+      "The agent must run as the file's owner. Give the token to its holder from the file; it is never logged.\n",
   );
   return 0;
 }
 
 function check(argv: string[]): number {
-  const { values, positionals } = parseCommandArgs('live check', usage, argv, { config: { type: 'string' }, json: { type: 'boolean' } });
-  if (positionals.length || !values.config) throw new UserError('turnwise live check', 'needs --config FILE', 'usage: turnwise live check --config FILE [--json]');
+  const { values, positionals } = parseCommandArgs('live check', usage, argv, {
+    config: { type: 'string' },
+    json: { type: 'boolean' },
+  });
+  if (positionals.length || !values.config)
+    throw new UserError(
+      'turnwise live check',
+      'needs --config FILE',
+      'usage: turnwise live check --config FILE [--json]',
+    );
   const cfg = loadConfig(values.config);
   const live = cfg.live;
-  if (!live) throw new UserError(values.config, 'has no live section, so the agent serves no page', 'add live: with bind, port and tokens (docs/live-page.md, "Opening it")');
+  if (!live)
+    throw new UserError(
+      values.config,
+      'has no live section, so the agent serves no page',
+      'add live: with bind, port and tokens (docs/live-page.md, "Opening it")',
+    );
   const tokens = resolveLiveTokens(live);
   const scheme = live.tls ? 'https' : 'http';
   const host = live.bind.includes(':') ? `[${live.bind}]` : live.bind;
@@ -81,6 +110,10 @@ export const liveCommand: Command = {
     const [sub, ...rest] = argv;
     if (sub === 'make-token') return makeToken(rest);
     if (sub === 'check') return check(rest);
-    throw new UserError('turnwise live', sub ? `unknown sub-command "${sub}"` : 'needs a sub-command', 'use make-token or check; `turnwise help live` shows both');
+    throw new UserError(
+      'turnwise live',
+      sub ? `unknown sub-command "${sub}"` : 'needs a sub-command',
+      'use make-token or check; `turnwise help live` shows both',
+    );
   },
 };

@@ -30,17 +30,30 @@ export const outputsOffCommand: Command = {
       config: { type: 'string', short: 'c' },
       'last-good': { type: 'string' },
     });
-    if (!values.config || positionals.length > 0) throw new UserError('turnwise outputs-off', values.config ? `unexpected argument "${positionals[0]}"` : 'missing --config', `usage: ${usage}`);
+    if (!values.config || positionals.length > 0)
+      throw new UserError(
+        'turnwise outputs-off',
+        values.config ? `unexpected argument "${positionals[0]}"` : 'missing --config',
+        `usage: ${usage}`,
+      );
     // The lines of the config the agent ran on: the given one, or the last good copy it fell back to.
-    const { config, from } = loadGuardedConfig(values.config, values['last-good'] ?? defaultLastGoodPath());
+    const { config, from } = loadGuardedConfig(
+      values.config,
+      values['last-good'] ?? defaultLastGoodPath(),
+    );
     if (!config.advisory) {
       process.stdout.write(`no advisory outputs in ${from}: nothing to drop\n`);
       return 0;
     }
     // The same chip as `turnwise run` (gpio.chip_label).
     const gpio = (await openBoardGpio(config, stderrLogger))!;
-    const dropped = await releaseAdvisoryOutputs(gpio, advisorySettings(config.advisory, config.sensors));
-    process.stdout.write(`dropped (de-energised): ${dropped.join(', ') || 'none configured'} (config ${from})\n`);
+    const dropped = await releaseAdvisoryOutputs(
+      gpio,
+      advisorySettings(config.advisory, config.sensors),
+    );
+    process.stdout.write(
+      `dropped (de-energised): ${dropped.join(', ') || 'none configured'} (config ${from})\n`,
+    );
     return 0;
   },
 };

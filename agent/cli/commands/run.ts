@@ -3,7 +3,13 @@ import { createSource } from '../../../drivers/create-source.js';
 import { systemClock } from '../../clock.js';
 import { isUserError, UserError } from '../../errors.js';
 import { createPinoLogger, pinoOptionsFromConfig } from '../../logging/pino-logger.js';
-import { defaultLastGoodPath, fallbackConfig, keepLastGood, loadGuardedConfig, type GuardedConfig } from '../../runtime/config-guard.js';
+import {
+  defaultLastGoodPath,
+  fallbackConfig,
+  keepLastGood,
+  loadGuardedConfig,
+  type GuardedConfig,
+} from '../../runtime/config-guard.js';
 import { assemble, type Assembly } from '../../runtime/assemble.js';
 import { startChecks } from '../../runtime/start-checks.js';
 import { createServiceNotifier } from '../../service/systemd-notifier.js';
@@ -39,9 +45,19 @@ export const runCommand: Command = {
       'drain-timeout-s': { type: 'string' },
       'last-good': { type: 'string' },
     });
-    if (!values.config || positionals.length > 0) throw new UserError('turnwise run', values.config ? `unexpected argument "${positionals[0]}"` : 'missing --config', `usage: ${usage}`);
+    if (!values.config || positionals.length > 0)
+      throw new UserError(
+        'turnwise run',
+        values.config ? `unexpected argument "${positionals[0]}"` : 'missing --config',
+        `usage: ${usage}`,
+      );
     const drainS = values['drain-timeout-s'] === undefined ? 5 : Number(values['drain-timeout-s']);
-    if (!(drainS >= 0)) throw new UserError('--drain-timeout-s', `expects seconds (0 or more), got "${values['drain-timeout-s']}"`, 'e.g. --drain-timeout-s 5');
+    if (!(drainS >= 0))
+      throw new UserError(
+        '--drain-timeout-s',
+        `expects seconds (0 or more), got "${values['drain-timeout-s']}"`,
+        'e.g. --drain-timeout-s 5',
+      );
     const file = values.config;
     const lastGood = values['last-good'] ?? defaultLastGoodPath();
     const guarded = loadGuardedConfig(file, lastGood);
@@ -62,18 +78,30 @@ export const runCommand: Command = {
       if (!isUserError(e) || progress.measured || guarded.rejected || stopRequested) throw e;
       const fallback = fallbackConfig(file, lastGood, e);
       if (!fallback) throw e;
-      return await runAgent({ file, guarded: fallback, lastGood, drainS }, stopSwitch, { measured: false });
+      return await runAgent({ file, guarded: fallback, lastGood, drainS }, stopSwitch, {
+        measured: false,
+      });
     }
   },
 };
 
-async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measured: boolean }): Promise<number> {
+async function runAgent(
+  plan: RunPlan,
+  stopSwitch: StopSwitch,
+  progress: { measured: boolean },
+): Promise<number> {
   const { file, guarded, drainS } = plan;
   const cfg = guarded.config;
   startChecks(cfg); // the same as `turnwise check-config`
-  const log = createPinoLogger({ ...pinoOptionsFromConfig(cfg.logging), base: { asset: cfg.machine.id } });
+  const log = createPinoLogger({
+    ...pinoOptionsFromConfig(cfg.logging),
+    base: { asset: cfg.machine.id },
+  });
   if (guarded.rejected) {
-    log.error({ config: file, running_on: guarded.from }, `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`);
+    log.error(
+      { config: file, running_on: guarded.from },
+      `config rejected, monitoring continues on the last good config: ${guarded.rejected.message}`,
+    );
   }
   const notifier = createServiceNotifier({ logger: log });
   let keeper: WatchdogKeeper | null = null;
@@ -83,7 +111,12 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
     const firstWindow = () => {
       progress.measured = true;
       if (guarded.from !== file) return;
-      keepLastGood(file, plan.lastGood, (e) => log.warn({ last_good: plan.lastGood }, `cannot keep a copy of the config as the last good one (${e.message}); a broken config later would find no fallback`));
+      keepLastGood(file, plan.lastGood, (e) =>
+        log.warn(
+          { last_good: plan.lastGood },
+          `cannot keep a copy of the config as the last good one (${e.message}); a broken config later would find no fallback`,
+        ),
+      );
     };
     assembly = await assemble({
       config: cfg,
@@ -112,7 +145,11 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
         error: guarded.rejected.message,
       });
     }
-    keeper = new WatchdogKeeper(notifier, systemTimers, log, () => ((Date.now() - lastWindowAt) / 1000 > STALE_WINDOW_S ? `no measurement window for over ${STALE_WINDOW_S} s` : null));
+    keeper = new WatchdogKeeper(notifier, systemTimers, log, () =>
+      (Date.now() - lastWindowAt) / 1000 > STALE_WINDOW_S
+        ? `no measurement window for over ${STALE_WINDOW_S} s`
+        : null,
+    );
     keeper.start();
     stopSwitch.current = (sig: string) => {
       log.info({ signal: sig }, 'stopping');
@@ -125,7 +162,10 @@ async function runAgent(plan: RunPlan, stopSwitch: StopSwitch, progress: { measu
       process.stderr.write(`turnwise run: live page at ${url}\n`);
     }
     const sum = await agent.run(drainS * 1000);
-    log.info({ windows: sum.windows, events: sum.events, drained: sum.drained, gaps: sum.gaps }, 'run ended');
+    log.info(
+      { windows: sum.windows, events: sum.events, drained: sum.drained, gaps: sum.gaps },
+      'run ended',
+    );
     return sum.lostInMemory > 0 ? 1 : 0;
   } finally {
     stopSwitch.current = null;

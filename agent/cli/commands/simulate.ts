@@ -5,7 +5,12 @@ import { numberOption, parseCommandArgs } from '../args.js';
 import type { Command } from '../command.js';
 import { Progress } from '../progress.js';
 import { parseSimTiming, simTimingArgs } from '../sim-options.js';
-import { channelMap, formatAt, loadScenario, resolveScenario } from '../../../drivers/sim/scenario.js';
+import {
+  channelMap,
+  formatAt,
+  loadScenario,
+  resolveScenario,
+} from '../../../drivers/sim/scenario.js';
 import { FanSimulator } from '../../../drivers/sim/simulator.js';
 import type { AppliedEvent } from '../../../drivers/sim/state.js';
 import { maxWavFrames, WavWriter } from '../../../drivers/wav/writer.js';
@@ -28,18 +33,40 @@ export const simulateCommand: Command = {
       ...simTimingArgs,
       json: { type: 'boolean' },
     });
-    if (positionals.length > 0) throw new UserError('turnwise simulate', `unexpected argument "${positionals[0]}"`, `usage: ${usage}`);
+    if (positionals.length > 0)
+      throw new UserError(
+        'turnwise simulate',
+        `unexpected argument "${positionals[0]}"`,
+        `usage: ${usage}`,
+      );
     for (const k of ['scenario', 'config', 'out', 'seconds'] as const) {
-      if (!values[k]) throw new UserError('turnwise simulate', `--${k} is required`, `usage: ${usage}`);
+      if (!values[k])
+        throw new UserError('turnwise simulate', `--${k} is required`, `usage: ${usage}`);
     }
-    const seconds = numberOption('simulate', usage, 'seconds', values.seconds, (v) => v > 0, 'a duration in seconds above 0')!;
+    const seconds = numberOption(
+      'simulate',
+      usage,
+      'seconds',
+      values.seconds,
+      (v) => v > 0,
+      'a duration in seconds above 0',
+    )!;
     const { fromDay, timeScale, seed } = parseSimTiming('simulate', usage, values);
 
     const cfg = loadConfig(values.config!);
-    const plan = resolveScenario(loadScenario(values.scenario!), cfg, values.scenario!, values.config!);
+    const plan = resolveScenario(
+      loadScenario(values.scenario!),
+      cfg,
+      values.scenario!,
+      values.config!,
+    );
     const frames = Math.round(seconds * plan.sampleRate);
     if (frames > maxWavFrames(plan.channelCount)) {
-      throw new UserError('turnwise simulate --seconds', `${seconds} s of ${plan.channelCount} channels at ${plan.sampleRate} Hz would pass the 4 GiB limit of a WAV file`, `record at most ${Math.floor(maxWavFrames(plan.channelCount) / plan.sampleRate)} s per file`);
+      throw new UserError(
+        'turnwise simulate --seconds',
+        `${seconds} s of ${plan.channelCount} channels at ${plan.sampleRate} Hz would pass the 4 GiB limit of a WAV file`,
+        `record at most ${Math.floor(maxWavFrames(plan.channelCount) / plan.sampleRate)} s per file`,
+      );
     }
 
     const events: AppliedEvent[] = [];
@@ -95,7 +122,12 @@ export const simulateCommand: Command = {
         speed_end_rpm: round(sim.speedRpm, 2),
         channel_map: channels.map((c) => ({ channel: c.channel, id: c.id, what: c.what })),
         events: events.map((e) => ({ at_s: e.at_s, text: e.text })),
-        model_1x_end: model.map((m) => ({ id: m.id, amp_pk_mm_s: round(m.amp_pk_mm_s, 4), amp_rms_mm_s: round(m.amp_pk_mm_s / Math.SQRT2, 4), phase_deg: round(m.phase_deg, 2) })),
+        model_1x_end: model.map((m) => ({
+          id: m.id,
+          amp_pk_mm_s: round(m.amp_pk_mm_s, 4),
+          amp_rms_mm_s: round(m.amp_pk_mm_s / Math.SQRT2, 4),
+          phase_deg: round(m.phase_deg, 2),
+        })),
         elapsed_s: round(elapsed, 3),
         realtime_factor: round(done / plan.sampleRate / elapsed, 1),
       };
@@ -119,7 +151,12 @@ type Summary = {
   speed_start_rpm: number | null;
   speed_end_rpm: number | null;
   channel_map: { channel: number; id: string; what: string }[];
-  model_1x_end: { id: string; amp_pk_mm_s: number | null; amp_rms_mm_s: number | null; phase_deg: number | null }[];
+  model_1x_end: {
+    id: string;
+    amp_pk_mm_s: number | null;
+    amp_rms_mm_s: number | null;
+    phase_deg: number | null;
+  }[];
   events: { text: string }[];
   elapsed_s: number | null;
   realtime_factor: number | null;
@@ -128,7 +165,13 @@ type Summary = {
 function humanSummary(s: Summary, units: DisplayUnits): string {
   const rows = s.channel_map.map((c) => {
     const m = s.model_1x_end.find((x) => x.id === c.id);
-    return [String(c.channel), c.id, c.what, m ? fmtVel(m.amp_rms_mm_s, units) : '-', m?.phase_deg != null ? m.phase_deg.toFixed(0) : '-'];
+    return [
+      String(c.channel),
+      c.id,
+      c.what,
+      m ? fmtVel(m.amp_rms_mm_s, units) : '-',
+      m?.phase_deg != null ? m.phase_deg.toFixed(0) : '-',
+    ];
   });
   return (
     `wrote ${s.file}: ${s.duration_s.toFixed(1)} s, ${s.channels} channels x ${s.sample_rate_hz} Hz, float32 volts, ${(s.bytes / 1e6).toFixed(1)} MB\n` +

@@ -42,9 +42,13 @@ function showLogin(message = '') {
   sessionStorage.removeItem(TOKEN_KEY);
   socket?.close();
   socket = null;
-  for (const id of ['view-live', 'view-job', 'view-records', 'view-report', 'view-sweeps']) $(id).hidden = true;
+  for (const id of ['view-live', 'view-job', 'view-records', 'view-report', 'view-sweeps'])
+    $(id).hidden = true;
   $('login').hidden = false;
-  fill($('login-msg'), message ? h('div', { class: 'msg msg-error', role: 'alert' }, message) : null);
+  fill(
+    $('login-msg'),
+    message ? h('div', { class: 'msg msg-error', role: 'alert' }, message) : null,
+  );
   /** @type {HTMLInputElement} */ ($('token')).focus();
 }
 
@@ -55,7 +59,11 @@ async function start(token) {
   try {
     me = await api.get('/api/session');
   } catch (e) {
-    showLogin(/** @type {any} */ (e).status === 401 ? 'That token was not accepted. Check it and try again.' : `Cannot reach the agent: ${/** @type {any} */ (e).message}`);
+    showLogin(
+      /** @type {any} */ (e).status === 401
+        ? 'That token was not accepted. Check it and try again.'
+        : `Cannot reach the agent: ${/** @type {any} */ (e).message}`,
+    );
     return;
   }
   session = me;
@@ -63,9 +71,14 @@ async function start(token) {
   units.velocity = me.units;
   $('login').hidden = true;
   $('machine').textContent = me.machine_name;
-  $('role').textContent = `${me.token_name} (${me.role === 'operator' ? 'operator' : 'viewer: read only'})`;
+  $('role').textContent =
+    `${me.token_name} (${me.role === 'operator' ? 'operator' : 'viewer: read only'})`;
   buildCards(me);
-  if (!trend) trend = new Trend($('trend'), me.sensors.map((s) => s.id));
+  if (!trend)
+    trend = new Trend(
+      $('trend'),
+      me.sensors.map((s) => s.id),
+    );
   workbench ??= new Workbench($('view-job'), me, () => lastLive);
   sweeps ??= new SweepsView($('view-sweeps'), me.sensors);
   connect();
@@ -78,7 +91,9 @@ function buildCards(me) {
   root.replaceChildren();
   cards.clear();
   for (const s of me.sensors) {
-    const canvas = /** @type {HTMLCanvasElement} */ (h('canvas', { width: 200, height: 200, 'aria-label': `1x vector of ${s.id}` }));
+    const canvas = /** @type {HTMLCanvasElement} */ (
+      h('canvas', { width: 200, height: 200, 'aria-label': `1x vector of ${s.id}` })
+    );
     const amp = h('span', { class: 'big' }, '-');
     const phase = h('span', { class: 'big' }, '-');
     const overall = h('span', { class: 'big' }, '-');
@@ -88,7 +103,17 @@ function buildCards(me) {
     const card = h(
       'article',
       { class: 'card', dataset: { sensor: s.id } },
-      h('div', { class: 'card-head' }, h('div', null, h('div', { class: 'card-name' }, s.id), h('div', { class: 'card-where' }, `${s.bearing} bearing, ${s.direction}`)), ok),
+      h(
+        'div',
+        { class: 'card-head' },
+        h(
+          'div',
+          null,
+          h('div', { class: 'card-name' }, s.id),
+          h('div', { class: 'card-where' }, `${s.bearing} bearing, ${s.direction}`),
+        ),
+        ok,
+      ),
       h(
         'div',
         { class: 'card-body' },
@@ -96,9 +121,25 @@ function buildCards(me) {
         h(
           'div',
           { class: 'figs' },
-          h('div', { class: 'row' }, h('span', { class: 'lbl' }, '1x amplitude'), amp, ' ', h('span', { class: 'unit' }, `${units.velocity} pk`)),
+          h(
+            'div',
+            { class: 'row' },
+            h('span', { class: 'lbl' }, '1x amplitude'),
+            amp,
+            ' ',
+            h('span', { class: 'unit' }, `${units.velocity} pk`),
+          ),
           h('div', { class: 'row' }, h('span', { class: 'lbl' }, '1x phase (lag)'), phase),
-          h('div', { class: 'row' }, h('span', { class: 'lbl' }, 'overall'), overall, ' ', h('span', { class: 'unit' }, `${units.velocity} r.m.s.`), ' ', zone),
+          h(
+            'div',
+            { class: 'row' },
+            h('span', { class: 'lbl' }, 'overall'),
+            overall,
+            ' ',
+            h('span', { class: 'unit' }, `${units.velocity} r.m.s.`),
+            ' ',
+            zone,
+          ),
         ),
       ),
       problems,
@@ -161,18 +202,61 @@ function renderForecast(f) {
     h('h2', null, 'Correction forecast'),
     f.available
       ? [
-          h('div', { class: 'conv-banner' }, `Weight angles in degrees from the reference mark, measured ${conv} (as in job ${f.job_id}).`),
+          h(
+            'div',
+            { class: 'conv-banner' },
+            `Weight angles in degrees from the reference mark, measured ${conv} (as in job ${f.job_id}).`,
+          ),
           h(
             'table',
             { class: 'forecast-weights' },
-            h('thead', null, h('tr', null, h('th', null, 'plane'), h('th', null, 'mass, g'), h('th', null, 'angle, deg'), h('th', null, 'radius, mm'))),
-            h('tbody', null, ...f.weights.map((/** @type {any} */ w) => h('tr', { dataset: { plane: w.plane, massG: String(w.mass_g), angleDeg: String(w.angle_deg), radiusMm: String(w.radius_mm ?? '') } }, h('td', null, w.plane), h('td', { class: 'big' }, num(w.mass_g, 1)), h('td', { class: 'big' }, deg(w.angle_deg)), h('td', null, w.radius_mm === null ? 'as in the job' : num(w.radius_mm, 0))))),
+            h(
+              'thead',
+              null,
+              h(
+                'tr',
+                null,
+                h('th', null, 'plane'),
+                h('th', null, 'mass, g'),
+                h('th', null, 'angle, deg'),
+                h('th', null, 'radius, mm'),
+              ),
+            ),
+            h(
+              'tbody',
+              null,
+              ...f.weights.map((/** @type {any} */ w) =>
+                h(
+                  'tr',
+                  {
+                    dataset: {
+                      plane: w.plane,
+                      massG: String(w.mass_g),
+                      angleDeg: String(w.angle_deg),
+                      radiusMm: String(w.radius_mm ?? ''),
+                    },
+                  },
+                  h('td', null, w.plane),
+                  h('td', { class: 'big' }, num(w.mass_g, 1)),
+                  h('td', { class: 'big' }, deg(w.angle_deg)),
+                  h('td', null, w.radius_mm === null ? 'as in the job' : num(w.radius_mm, 0)),
+                ),
+              ),
+            ),
           ),
-          h('p', { class: 'note' }, `${f.why}. Predicted 1x left after it: ${vel(f.residual_pk_mm_s)} ${units.velocity} pk (r.m.s. over ${f.sensors_used.length} sensors).`),
+          h(
+            'p',
+            { class: 'note' },
+            `${f.why}. Predicted 1x left after it: ${vel(f.residual_pk_mm_s)} ${units.velocity} pk (r.m.s. over ${f.sensors_used.length} sensors).`,
+          ),
           ...f.notes.map((/** @type {string} */ n) => h('p', { class: 'msg msg-warn' }, n)),
         ]
       : h('p', { class: 'note' }, `No forecast: ${f.why}.`),
-    h('ul', { class: 'cautions' }, ...f.cautions.map((/** @type {string} */ c) => h('li', null, c))),
+    h(
+      'ul',
+      { class: 'cautions' },
+      ...f.cautions.map((/** @type {string} */ c) => h('li', null, c)),
+    ),
   );
 }
 
@@ -180,9 +264,12 @@ function checkStale() {
   const box = $('stale');
   const quiet = lastLiveAt ? (Date.now() - lastLiveAt) / 1000 : null;
   let text = '';
-  if (!socket || socket.readyState !== WebSocket.OPEN) text = 'NOT CONNECTED to the agent: the figures below are old.';
-  else if (quiet !== null && quiet > 3) text = `NO LIVE DATA for ${Math.round(quiet)} s: the figures below are old.`;
-  else if (lastLive && lastLive.age_s !== null && lastLive.age_s > 3) text = `No trusted revolution for ${Math.round(lastLive.age_s)} s: fan stopped or tach lost. 1x figures are old.`;
+  if (!socket || socket.readyState !== WebSocket.OPEN)
+    text = 'NOT CONNECTED to the agent: the figures below are old.';
+  else if (quiet !== null && quiet > 3)
+    text = `NO LIVE DATA for ${Math.round(quiet)} s: the figures below are old.`;
+  else if (lastLive && lastLive.age_s !== null && lastLive.age_s > 3)
+    text = `No trusted revolution for ${Math.round(lastLive.age_s)} s: fan stopped or tach lost. 1x figures are old.`;
   else if (lastLive && lastLive.at_ms === null) text = 'Waiting for the first measurement.';
   box.hidden = !text;
   box.textContent = text;
@@ -193,7 +280,9 @@ function checkStale() {
 }
 
 function connect() {
-  const ws = new WebSocket(`${location.protocol === 'https:' ? 'wss' : 'ws'}://${location.host}/ws`);
+  const ws = new WebSocket(
+    `${location.protocol === 'https:' ? 'wss' : 'ws'}://${location.host}/ws`,
+  );
   socket = ws;
   ws.onopen = () => ws.send(JSON.stringify({ type: 'hello', token: api.token }));
   ws.onmessage = (ev) => {
@@ -228,19 +317,34 @@ function connect() {
 function jobNote(view) {
   const el = $('job-note');
   el.hidden = !view || view.job.status !== 'open';
-  if (view) el.textContent = `Balancing job ${view.job.job_id} is open. Conventions: ${view.convention}.`;
+  if (view)
+    el.textContent = `Balancing job ${view.job.job_id} is open. Conventions: ${view.convention}.`;
 }
 
 function route() {
   if (!session) return;
   const hash = location.hash.replace(/^#/, '') || 'live';
   const [page, arg] = hash.split('/');
-  const views = { live: 'view-live', job: 'view-job', records: 'view-records', report: 'view-report', sweeps: 'view-sweeps' };
+  const views = {
+    live: 'view-live',
+    job: 'view-job',
+    records: 'view-records',
+    report: 'view-report',
+    sweeps: 'view-sweeps',
+  };
   const current = /** @type {keyof typeof views} */ (page && page in views ? page : 'live');
   for (const [k, id] of Object.entries(views)) $(id).hidden = k !== current;
-  document.querySelectorAll('nav a').forEach((a) => a.classList.toggle('active', /** @type {HTMLElement} */ (a).dataset.nav === (current === 'report' ? 'records' : current)));
+  document
+    .querySelectorAll('nav a')
+    .forEach((a) =>
+      a.classList.toggle(
+        'active',
+        /** @type {HTMLElement} */ (a).dataset.nav === (current === 'report' ? 'records' : current),
+      ),
+    );
   if (current === 'records') void showRecords($('view-records'));
-  if (current === 'report' && arg) void showReport($('view-report'), decodeURIComponent(arg), session);
+  if (current === 'report' && arg)
+    void showReport($('view-report'), decodeURIComponent(arg), session);
   if (current === 'job') workbench?.show();
   if (current === 'sweeps') void sweeps?.load();
   if (current === 'live') lastLive && renderLive(lastLive);

@@ -20,7 +20,8 @@ export function h(tag, attrs, ...children) {
     if (k.startsWith('on') && typeof v === 'function') el.addEventListener(k.slice(2), v);
     else if (k === 'class') el.className = String(v);
     else if (k === 'dataset') Object.assign(el.dataset, v);
-    else if (k === 'value' || k === 'checked' || k === 'disabled' || k === 'hidden') /** @type {any} */ (el)[k] = v;
+    else if (k === 'value' || k === 'checked' || k === 'disabled' || k === 'hidden')
+      /** @type {any} */ (el)[k] = v;
     else el.setAttribute(k, v === true ? '' : String(v));
   }
   const add = (/** @type {any} */ c) => {
@@ -60,7 +61,9 @@ export function vel(mmS) {
 
 /** @param {number | null | undefined} d */
 export function deg(d) {
-  return d === null || d === undefined || !Number.isFinite(d) ? '-' : `${Math.round(d) % 360}\u00b0`;
+  return d === null || d === undefined || !Number.isFinite(d)
+    ? '-'
+    : `${Math.round(d) % 360}\u00b0`;
 }
 
 /** @param {string | null | undefined} iso */
@@ -95,7 +98,14 @@ export const api = {
   onUnauthorised: () => {},
   /** @param {string} path @param {RequestInit} [init] */
   async call(path, init = {}) {
-    const res = await fetch(path, { ...init, headers: { ...(init.headers ?? {}), Authorization: `Bearer ${this.token}`, ...(init.body ? { 'Content-Type': 'application/json' } : {}) } });
+    const res = await fetch(path, {
+      ...init,
+      headers: {
+        ...(init.headers ?? {}),
+        Authorization: `Bearer ${this.token}`,
+        ...(init.body ? { 'Content-Type': 'application/json' } : {}),
+      },
+    });
     const text = await res.text();
     /** @type {any} */
     let body = null;
@@ -107,7 +117,13 @@ export const api = {
     if (res.status === 401) this.onUnauthorised();
     if (!res.ok) {
       const e = body?.error ?? {};
-      throw new ApiFailure(res.status, e.code ?? 'http', e.message ?? `request failed (${res.status})`, e.hint ?? '', e.problems ?? []);
+      throw new ApiFailure(
+        res.status,
+        e.code ?? 'http',
+        e.message ?? `request failed (${res.status})`,
+        e.hint ?? '',
+        e.problems ?? [],
+      );
     }
     return body;
   },
@@ -128,7 +144,13 @@ export function errorBox(e) {
     'div',
     { class: 'msg msg-error', role: 'alert' },
     h('strong', null, f ? f.message : String(/** @type {any} */ (e)?.message ?? e)),
-    f && f.problems.length > 1 ? h('ul', null, f.problems.map((p) => h('li', null, p))) : null,
+    f && f.problems.length > 1
+      ? h(
+          'ul',
+          null,
+          f.problems.map((p) => h('li', null, p)),
+        )
+      : null,
     f && f.hint ? h('div', null, '\u2192 ', f.hint) : null,
   );
 }

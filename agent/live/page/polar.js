@@ -49,7 +49,8 @@ export class PolarPlot {
 
     const all = [...trail, ...(current ? [current] : [])];
     const max = all.reduce((m, v) => Math.max(m, v.amp), 0);
-    if (max > this.scale || max < 0.4 * this.scale || this.scale === 0) this.scale = niceCeil(max * 1.1 || 1);
+    if (max > this.scale || max < 0.4 * this.scale || this.scale === 0)
+      this.scale = niceCeil(max * 1.1 || 1);
     const S = this.scale;
     const at = (/** @type {PolarVector} */ v) => {
       const r = (Math.min(v.amp, S) / S) * R;

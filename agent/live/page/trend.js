@@ -6,7 +6,16 @@
 import { h, units } from './format.js';
 
 /** Distinct, dark colours that read on white in sunlight. */
-export const SENSOR_COLOURS = ['#003a8c', '#b3001b', '#0b6e2f', '#7a3e00', '#6a1b9a', '#00695c', '#000000', '#c25e00'];
+export const SENSOR_COLOURS = [
+  '#003a8c',
+  '#b3001b',
+  '#0b6e2f',
+  '#7a3e00',
+  '#6a1b9a',
+  '#00695c',
+  '#000000',
+  '#c25e00',
+];
 
 /** @typedef {import('../view.js').TrendPoint} TrendPoint */
 
@@ -24,7 +33,8 @@ export class Trend {
       root.append(h('p', { class: 'msg msg-error' }, 'The trend plot library did not load.'));
       return;
     }
-    const conv = (/** @type {number | null} */ x) => (x === null ? null : units.velocity === 'in/s' ? x / 25.4 : x);
+    const conv = (/** @type {number | null} */ x) =>
+      x === null ? null : units.velocity === 'in/s' ? x / 25.4 : x;
     /** @type {Array<[string, string, (c: TrendPoint['channels'][string] | undefined) => number | null]>} */
     const kinds = [
       ['1x amplitude', `${units.velocity} pk`, (c) => conv(c?.one_x_pk_mm_s ?? null)],
@@ -40,10 +50,23 @@ export class Trend {
         scales: { x: { time: true } },
         axes: [
           { stroke: '#000', grid: { stroke: '#c8c8c8' }, font: 'bold 13px system-ui, sans-serif' },
-          { stroke: '#000', grid: { stroke: '#c8c8c8' }, font: 'bold 13px system-ui, sans-serif', size: 56 },
+          {
+            stroke: '#000',
+            grid: { stroke: '#c8c8c8' },
+            font: 'bold 13px system-ui, sans-serif',
+            size: 56,
+          },
         ],
         legend: { live: false },
-        series: [{}, ...sensors.map((id, i) => ({ label: id, stroke: SENSOR_COLOURS[i % SENSOR_COLOURS.length], width: 2.5, spanGaps: false }))],
+        series: [
+          {},
+          ...sensors.map((id, i) => ({
+            label: id,
+            stroke: SENSOR_COLOURS[i % SENSOR_COLOURS.length],
+            width: 2.5,
+            spanGaps: false,
+          })),
+        ],
       };
       this.plots.push(new U(opts, this.data(k), box));
     });

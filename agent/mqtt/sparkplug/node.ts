@@ -1,7 +1,27 @@
-import { closeSync, fsyncSync, mkdirSync, openSync, readFileSync, renameSync, writeSync } from 'node:fs';
+import {
+  closeSync,
+  fsyncSync,
+  mkdirSync,
+  openSync,
+  readFileSync,
+  renameSync,
+  writeSync,
+} from 'node:fs';
 import { dirname } from 'node:path';
-import { connect as mqttConnect, type IClientOptions, type IConnackPacket, type MqttClient } from 'mqtt';
-import { brokerLimits, forceEnd, ProtocolChoice, publishPacketBytes, stuckReason, type BrokerLimits } from '../link-habits.js';
+import {
+  connect as mqttConnect,
+  type IClientOptions,
+  type IConnackPacket,
+  type MqttClient,
+} from 'mqtt';
+import {
+  brokerLimits,
+  forceEnd,
+  ProtocolChoice,
+  publishPacketBytes,
+  stuckReason,
+  type BrokerLimits,
+} from '../link-habits.js';
 import type { AgentEvent } from '../../events.js';
 import type { AddOutcome, Outbox } from '../../outbox/outbox.js';
 import type { Logger } from '../../log.js';
@@ -11,7 +31,14 @@ import { settleMqttPacketCaches } from '../packet-cache.js';
 import { describeConnectError, type ConnectFn } from '../publisher.js';
 import { clientOptions } from '../client-options.js';
 import type { MqttSettings } from '../settings.js';
-import { EVENT_METRIC, propertiesOf, sameValue, valueFields, type MetricDef, type MetricValue } from './metrics.js';
+import {
+  EVENT_METRIC,
+  propertiesOf,
+  sameValue,
+  valueFields,
+  type MetricDef,
+  type MetricValue,
+} from './metrics.js';
 import { DataType, SparkplugCodec, type MetricMsg, type PayloadMsg } from './proto.js';
 
 /**
@@ -69,10 +96,18 @@ export class FileBdSeqStore implements BdSeqStore {
     try {
       const v = (JSON.parse(readFileSync(file, 'utf8')) as { next_bdseq?: unknown }).next_bdseq;
       if (typeof v === 'number' && Number.isInteger(v) && v >= 0 && v <= 255) this.value = v;
-      else log.warn({ file }, `${file}: next_bdseq is not a whole number 0-255; starting the Sparkplug bdSeq at 0`);
+      else
+        log.warn(
+          { file },
+          `${file}: next_bdseq is not a whole number 0-255; starting the Sparkplug bdSeq at 0`,
+        );
     } catch (e) {
       const code = (e as NodeJS.ErrnoException).code;
-      if (code !== 'ENOENT') log.warn({ file, error: String(e) }, `cannot read ${file} (${code ?? 'bad JSON'}); starting the Sparkplug bdSeq at 0`);
+      if (code !== 'ENOENT')
+        log.warn(
+          { file, error: String(e) },
+          `cannot read ${file} (${code ?? 'bad JSON'}); starting the Sparkplug bdSeq at 0`,
+        );
     }
   }
 
@@ -92,7 +127,11 @@ export class FileBdSeqStore implements BdSeqStore {
       renameSync(tmp, this.file);
       this.warned = false;
     } catch (e) {
-      if (!this.warned) this.log.warn({ file: this.file, error: String(e) }, `cannot save the Sparkplug bdSeq to ${this.file}; it goes on in memory (after a restart a host may see a bdSeq again): check state_dir`);
+      if (!this.warned)
+        this.log.warn(
+          { file: this.file, error: String(e) },
+          `cannot save the Sparkplug bdSeq to ${this.file}; it goes on in memory (after a restart a host may see a bdSeq again): check state_dir`,
+        );
       this.warned = true;
     }
     return v;
@@ -202,7 +241,16 @@ export class SparkplugNode {
   private readonly reported = new Map<string, MetricValue>();
   /** Ids of events queued while born in this session: sent as live; every other event is historical. */
   private readonly liveIds = new Set<string>();
-  private readonly counts = { connects: 0, births: 0, rebirths: 0, messages: 0, events: 0, refused: 0, too_large: 0, stuck: 0 };
+  private readonly counts = {
+    connects: 0,
+    births: 0,
+    rebirths: 0,
+    messages: 0,
+    events: 0,
+    refused: 0,
+    too_large: 0,
+    stuck: 0,
+  };
   private readonly protocol: ProtocolChoice;
   private protoVersion: 4 | 5 = 5;
   private limits: BrokerLimits = { receiveMaximum: null, maximumPacketSize: null };
@@ -309,11 +357,21 @@ export class SparkplugNode {
     if (this.connected) {
       if (this.born) this.send(this.topics.ddeath, { timestamp: this.now(), metrics: [] });
       this.born = false;
-      await withTimeout(new Promise<void>((resolve) => c.publish(this.topics.ndeath, this.deathPayload(), { qos: 1, retain: false }, () => resolve())), STOP_WAIT_MS);
+      await withTimeout(
+        new Promise<void>((resolve) =>
+          c.publish(this.topics.ndeath, this.deathPayload(), { qos: 1, retain: false }, () =>
+            resolve(),
+          ),
+        ),
+        STOP_WAIT_MS,
+      );
     }
     this.client = null;
     this.connected = false;
-    await withTimeout(new Promise<void>((resolve) => c.end(false, {}, () => resolve())), STOP_WAIT_MS);
+    await withTimeout(
+      new Promise<void>((resolve) => c.end(false, {}, () => resolve())),
+      STOP_WAIT_MS,
+    );
     c.end(true);
   }
 
@@ -321,7 +379,12 @@ export class SparkplugNode {
 
   private deathPayload(): Buffer {
     // No seq in an NDEATH (tck-id-payloads-ndeath-seq); only the bdSeq metric (tck-id-topics-ndeath-payload).
-    return this.codec.encode({ timestamp: this.now(), metrics: [{ name: 'bdSeq', timestamp: this.now(), datatype: DataType.Int64, long_value: this.bdSeq }] });
+    return this.codec.encode({
+      timestamp: this.now(),
+      metrics: [
+        { name: 'bdSeq', timestamp: this.now(), datatype: DataType.Int64, long_value: this.bdSeq },
+      ],
+    });
   }
 
   private connectNow(): void {
@@ -333,7 +396,12 @@ export class SparkplugNode {
     this.attemptAt = this.now();
     this.gotConnack = false;
     this.lostSince = null;
-    const opts = clientOptions(this.s, this.ids.clientId, this.protoVersion, { topic: this.topics.ndeath, payload: this.deathPayload(), qos: 1, retain: false });
+    const opts = clientOptions(this.s, this.ids.clientId, this.protoVersion, {
+      topic: this.topics.ndeath,
+      payload: this.deathPayload(),
+      qos: 1,
+      retain: false,
+    });
     let c: MqttClient;
     try {
       c = this.connectFn(this.s.url, opts);
@@ -361,14 +429,30 @@ export class SparkplugNode {
     this.born = false;
     this.hostOnline = null;
     this.hostTs = -Infinity;
-    if (!this.burst.resolved('connect', `Sparkplug session connected to ${this.s.url} after ${this.failures} failed attempt(s) (bdSeq ${this.bdSeq})`, { client_id: this.ids.clientId })) {
-      this.log.info({ client_id: this.ids.clientId, bdseq: this.bdSeq }, `Sparkplug session connected to ${this.s.url} (bdSeq ${this.bdSeq})`);
+    if (
+      !this.burst.resolved(
+        'connect',
+        `Sparkplug session connected to ${this.s.url} after ${this.failures} failed attempt(s) (bdSeq ${this.bdSeq})`,
+        { client_id: this.ids.clientId },
+      )
+    ) {
+      this.log.info(
+        { client_id: this.ids.clientId, bdseq: this.bdSeq },
+        `Sparkplug session connected to ${this.s.url} (bdSeq ${this.bdSeq})`,
+      );
     }
-    const filters = [this.topics.ncmd, this.topics.dcmd, ...(this.topics.state ? [this.topics.state] : [])];
+    const filters = [
+      this.topics.ncmd,
+      this.topics.dcmd,
+      ...(this.topics.state ? [this.topics.state] : []),
+    ];
     c.subscribe(filters, { qos: 1 }, (err, granted) => {
       if (c !== this.client) return;
       if (err || granted?.some((g) => g.qos === 128)) {
-        this.burst.report('subscribe', `the broker refused a Sparkplug subscription (${filters.join(', ')}); rebirth requests${this.topics.state ? ' and the primary host STATE' : ''} will not arrive (check the broker ACL)`);
+        this.burst.report(
+          'subscribe',
+          `the broker refused a Sparkplug subscription (${filters.join(', ')}); rebirth requests${this.topics.state ? ' and the primary host STATE' : ''} will not arrive (check the broker ACL)`,
+        );
       }
       if (!this.topics.state) this.birth(false);
       else if (this.hostOnline !== true) this.waitForHost(c);
@@ -401,9 +485,18 @@ export class SparkplugNode {
     if (this.hostTimer) clearTimeout(this.hostTimer);
     forceEnd(c);
     if (this.stopping) return;
-    if (!wasConnected && this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)) {
-      this.log.info({ url: this.s.url }, `the broker at ${this.s.url} does not take MQTT 5; the Sparkplug session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`);
-      this.reconnectTimer = setTimeout(() => this.connectNow(), Math.min(this.s.reconnectMinMs, 500));
+    if (
+      !wasConnected &&
+      this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)
+    ) {
+      this.log.info(
+        { url: this.s.url },
+        `the broker at ${this.s.url} does not take MQTT 5; the Sparkplug session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`,
+      );
+      this.reconnectTimer = setTimeout(
+        () => this.connectNow(),
+        Math.min(this.s.reconnectMinMs, 500),
+      );
       return;
     }
     if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
@@ -412,10 +505,22 @@ export class SparkplugNode {
 
   private scheduleReconnect(wasConnected: boolean): void {
     const { kind, reason } = describeConnectError(this.lastError);
-    const delay = reconnectDelayMs(this.failures, this.s.reconnectMinMs, this.s.reconnectMaxMs, this.random);
+    const delay = reconnectDelayMs(
+      this.failures,
+      this.s.reconnectMinMs,
+      this.s.reconnectMaxMs,
+      this.random,
+    );
     this.failures++;
-    const what = wasConnected ? `lost the Sparkplug session to ${this.s.url}: ${reason}` : `cannot open the Sparkplug session to ${this.s.url}: ${reason}`;
-    this.burst.report('connect', `${what}; retrying with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s), each CONNECT with the next bdSeq`, { client_id: this.ids.clientId }, kind);
+    const what = wasConnected
+      ? `lost the Sparkplug session to ${this.s.url}: ${reason}`
+      : `cannot open the Sparkplug session to ${this.s.url}: ${reason}`;
+    this.burst.report(
+      'connect',
+      `${what}; retrying with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s), each CONNECT with the next bdSeq`,
+      { client_id: this.ids.clientId },
+      kind,
+    );
     this.reconnectTimer = setTimeout(() => this.connectNow(), delay);
   }
 
@@ -433,20 +538,35 @@ export class SparkplugNode {
         { name: 'bdSeq', timestamp: t, datatype: DataType.Int64, long_value: this.bdSeq },
         // No alias for the rebirth metric (tck-id-operational-behavior-data-commands-rebirth-name-aliases).
         { name: REBIRTH, timestamp: t, datatype: DataType.Boolean, boolean_value: false },
-        { name: 'Properties/Software', timestamp: t, datatype: DataType.String, string_value: `turnwise ${this.version}` },
+        {
+          name: 'Properties/Software',
+          timestamp: t,
+          datatype: DataType.String,
+          string_value: `turnwise ${this.version}`,
+        },
       ],
     });
     this.reported.clear();
     const metrics: MetricMsg[] = this.defs.map((d) => {
       const v = d.name === EVENT_METRIC ? null : (this.values.get(d.name) ?? null);
       if (d.name !== EVENT_METRIC) this.reported.set(d.name, v);
-      return { name: d.name, alias: d.alias, timestamp: t, datatype: d.datatype, properties: propertiesOf(d), ...valueFields(d.datatype, v) };
+      return {
+        name: d.name,
+        alias: d.alias,
+        timestamp: t,
+        datatype: d.datatype,
+        properties: propertiesOf(d),
+        ...valueFields(d.datatype, v),
+      };
     });
     this.send(this.topics.dbirth, { timestamp: t, metrics });
     this.born = true;
     this.counts.births++;
     if (rebirth) this.counts.rebirths++;
-    this.burst.resolved('primary-host', `Sparkplug: primary host "${this.ids.primaryHostId}" is online; births published (bdSeq ${this.bdSeq})`);
+    this.burst.resolved(
+      'primary-host',
+      `Sparkplug: primary host "${this.ids.primaryHostId}" is online; births published (bdSeq ${this.bdSeq})`,
+    );
     this.pump();
   }
 
@@ -455,7 +575,17 @@ export class SparkplugNode {
     if (!c || this.stopping) return;
     if (this.connected && !c.connected) this.lostSince ??= this.now();
     else this.lostSince = null;
-    const why = stuckReason(c, { connected: this.connected, attemptAtMs: this.attemptAt, connectTimeoutMs: this.s.connectTimeoutMs, keepaliveS: this.s.keepaliveS, lostSinceMs: this.lostSince }, this.now());
+    const why = stuckReason(
+      c,
+      {
+        connected: this.connected,
+        attemptAtMs: this.attemptAt,
+        connectTimeoutMs: this.s.connectTimeoutMs,
+        keepaliveS: this.s.keepaliveS,
+        lostSinceMs: this.lostSince,
+      },
+      this.now(),
+    );
     if (!why) return;
     this.counts.stuck++;
     this.lastError = Object.assign(new Error(why), { code: 'STUCK' });
@@ -477,7 +607,12 @@ export class SparkplugNode {
       const size = publishPacketBytes(topic, bytes.length, 0, this.protoVersion);
       if (size > max) {
         this.counts.too_large++;
-        this.burst.report('too-large', `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (raise the broker's max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`, { topic, bytes: size, max_bytes: max }, topic.split('/')[2]);
+        this.burst.report(
+          'too-large',
+          `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (raise the broker's max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`,
+          { topic, bytes: size, max_bytes: max },
+          topic.split('/')[2],
+        );
         return false;
       }
     }
@@ -508,22 +643,34 @@ export class SparkplugNode {
     }
     const historical = !this.liveIds.has(e.id);
     this.sending = true;
-    const metric: MetricMsg = { alias: this.eventAlias, timestamp: ts, string_value: e.json, ...(historical ? { is_historical: true } : {}) };
-    const sent = this.send(this.topics.ddata, { timestamp: this.now(), metrics: [metric] }, (err) => {
-      if (c !== this.client) return;
-      this.sending = false;
-      if (err) return; // connection going down: the event stays in the outbox
-      this.outbox.ack(e.seq);
-      this.liveIds.delete(e.id);
-      this.counts.events++;
-      this.pump();
-    });
+    const metric: MetricMsg = {
+      alias: this.eventAlias,
+      timestamp: ts,
+      string_value: e.json,
+      ...(historical ? { is_historical: true } : {}),
+    };
+    const sent = this.send(
+      this.topics.ddata,
+      { timestamp: this.now(), metrics: [metric] },
+      (err) => {
+        if (c !== this.client) return;
+        this.sending = false;
+        if (err) return; // connection going down: the event stays in the outbox
+        this.outbox.ack(e.seq);
+        this.liveIds.delete(e.id);
+        this.counts.events++;
+        this.pump();
+      },
+    );
     if (!sent) {
       // Too large for the broker: it would block every later event. It stays in the event log under state_dir (turnwise events).
       this.sending = false;
       this.outbox.ack(e.seq);
       this.liveIds.delete(e.id);
-      this.log.warn({ event_id: e.id, type: e.type }, `Sparkplug: event ${e.id} (${e.type}) is too large for the broker and was not sent as a metric; it is kept in the agent's event log (turnwise events)`);
+      this.log.warn(
+        { event_id: e.id, type: e.type },
+        `Sparkplug: event ${e.id} (${e.type}) is too large for the broker and was not sent as a metric; it is kept in the agent's event log (turnwise events)`,
+      );
       setTimeout(() => this.pump(), 0).unref();
     }
   }
@@ -535,10 +682,14 @@ export class SparkplugNode {
     try {
       if (topic === this.topics.state) this.onState(c, payload);
       else if (topic === this.topics.ncmd) this.onCommand(payload, 'NCMD');
-      else if (topic.startsWith(this.topics.dcmd.slice(0, -1))) this.onCommand(payload, 'DCMD', topic.slice(this.topics.dcmd.length - 1));
+      else if (topic.startsWith(this.topics.dcmd.slice(0, -1)))
+        this.onCommand(payload, 'DCMD', topic.slice(this.topics.dcmd.length - 1));
     } catch (e) {
       // nothing a sender writes may take the agent down
-      this.refuse(`could not handle a message on ${topic}: ${(e as Error)?.message ?? String(e)}`, 'internal');
+      this.refuse(
+        `could not handle a message on ${topic}: ${(e as Error)?.message ?? String(e)}`,
+        'internal',
+      );
     }
   }
 
@@ -560,7 +711,12 @@ export class SparkplugNode {
       // fall through: not JSON
     }
     if (online === null) {
-      this.burst.report('state-payload', `Sparkplug: STATE message on ${this.topics.state} is not {"online": true|false, "timestamp": <ms>} (got ${JSON.stringify(text.slice(0, 80))}); ignored. Check that the primary host speaks Sparkplug 3.0`, {}, 'bad');
+      this.burst.report(
+        'state-payload',
+        `Sparkplug: STATE message on ${this.topics.state} is not {"online": true|false, "timestamp": <ms>} (got ${JSON.stringify(text.slice(0, 80))}); ignored. Check that the primary host speaks Sparkplug 3.0`,
+        {},
+        'bad',
+      );
       return;
     }
     // An older STATE (lower timestamp) than one already seen is stale: a retained copy racing a new one.
@@ -582,7 +738,9 @@ export class SparkplugNode {
       );
       this.born = false;
       // Ends the session as the specification asks (tck-id-operational-behavior-edge-node-termination-host-offline); onClose reconnects with backoff and waits for an online STATE.
-      c.publish(this.topics.ndeath, this.deathPayload(), { qos: 1, retain: false }, () => c.end(false));
+      c.publish(this.topics.ndeath, this.deathPayload(), { qos: 1, retain: false }, () =>
+        c.end(false),
+      );
     } else {
       this.waitForHost(c);
     }
@@ -593,7 +751,10 @@ export class SparkplugNode {
     try {
       p = this.codec.decode(payload);
     } catch (e) {
-      this.refuse(`${verb} is not a Sparkplug B payload (${(e as Error).message}); ignored`, `${verb}-malformed`);
+      this.refuse(
+        `${verb} is not a Sparkplug B payload (${(e as Error).message}); ignored`,
+        `${verb}-malformed`,
+      );
       return;
     }
     const metrics = p.metrics ?? [];
@@ -602,18 +763,28 @@ export class SparkplugNode {
       return;
     }
     for (const m of metrics) {
-      const name = m.name ?? (m.alias !== undefined ? this.byAlias.get(Number(m.alias))?.name : undefined);
+      const name =
+        m.name ?? (m.alias !== undefined ? this.byAlias.get(Number(m.alias))?.name : undefined);
       if (verb === 'NCMD' && name === REBIRTH) {
         if (m.boolean_value !== true) {
-          this.refuse(`${verb} '${REBIRTH}' needs the boolean value true (tck-id-operational-behavior-data-commands-ncmd-rebirth-value); ignored`, 'rebirth-value');
+          this.refuse(
+            `${verb} '${REBIRTH}' needs the boolean value true (tck-id-operational-behavior-data-commands-ncmd-rebirth-value); ignored`,
+            'rebirth-value',
+          );
           continue;
         }
         if (!this.connected) continue;
         if (this.topics.state && this.hostOnline !== true) {
-          this.refuse(`rebirth requested while primary host "${this.ids.primaryHostId}" is not online; the births follow once its STATE says online`, 'rebirth-waiting');
+          this.refuse(
+            `rebirth requested while primary host "${this.ids.primaryHostId}" is not online; the births follow once its STATE says online`,
+            'rebirth-waiting',
+          );
           continue;
         }
-        this.log.info({ bdseq: this.bdSeq }, 'Sparkplug: rebirth requested (NCMD); publishing NBIRTH and DBIRTH again with the same bdSeq');
+        this.log.info(
+          { bdseq: this.bdSeq },
+          'Sparkplug: rebirth requested (NCMD); publishing NBIRTH and DBIRTH again with the same bdSeq',
+        );
         this.birth(true);
         continue;
       }

@@ -184,7 +184,9 @@ export class SparkplugCodec {
 
   constructor() {
     // keepCase: field names stay as the specification writes them (is_historical, string_value ...).
-    this.type = protobuf.parse(SPARKPLUG_B_PROTO, { keepCase: true }).root.lookupType('turnwise.sparkplug_b.Payload');
+    this.type = protobuf
+      .parse(SPARKPLUG_B_PROTO, { keepCase: true })
+      .root.lookupType('turnwise.sparkplug_b.Payload');
   }
 
   encode(p: PayloadMsg): Buffer {
@@ -197,6 +199,12 @@ export class SparkplugCodec {
   decode(bytes: Uint8Array): PayloadMsg {
     const msg = this.type.decode(bytes);
     // longs as numbers (aliases, timestamps and seq fit well inside 2^53); oneofs keep only the set field.
-    return this.type.toObject(msg, { longs: Number, bytes: Buffer, defaults: false, arrays: true, oneofs: false }) as PayloadMsg;
+    return this.type.toObject(msg, {
+      longs: Number,
+      bytes: Buffer,
+      defaults: false,
+      arrays: true,
+      oneofs: false,
+    }) as PayloadMsg;
   }
 }

@@ -1,4 +1,13 @@
-import { deg, Finding, pct, relationOf, sepDeg, type PhasePair, type RuleContext, type WatcherRule } from './types.js';
+import {
+  deg,
+  Finding,
+  pct,
+  relationOf,
+  sepDeg,
+  type PhasePair,
+  type RuleContext,
+  type WatcherRule,
+} from './types.js';
 
 /** Axial 1x relation between the bearings either side of the coupling (watcher.unbalance.coupling); null without readings at both. */
 function couplingRelation({ s, pick }: RuleContext): PhasePair | null {
@@ -7,7 +16,11 @@ function couplingRelation({ s, pick }: RuleContext): PhasePair | null {
   const b = pick(s.coupling.driven, 'axial');
   if (!a || !b) return null;
   const d = sepDeg(a.phase, b.phase);
-  return { direction: 'axial', phase_diff_deg: d, relation: relationOf(d, s.w.unbalance.phase_tolerance_deg) };
+  return {
+    direction: 'axial',
+    phase_diff_deg: d,
+    relation: relationOf(d, s.w.unbalance.phase_tolerance_deg),
+  };
 }
 
 /**
@@ -19,14 +32,17 @@ function couplingRelation({ s, pick }: RuleContext): PhasePair | null {
  */
 export const axial: WatcherRule = {
   name: 'axial',
-  summary: 'axial 1x at or above axial_ratio_high of the radial 1x: in phase end to end -> overhung pattern, opposed -> bent shaft (or misalignment with high 2x) (common practice)',
+  summary:
+    'axial 1x at or above axial_ratio_high of the radial 1x: in phase end to end -> overhung pattern, opposed -> bent shaft (or misalignment with high 2x) (common practice)',
   run(ctx) {
     const { s, readings, bearingNames, pairRelation, measures, facts } = ctx;
     const u = s.w.unbalance;
     const f = new Finding();
     const ax = readings.filter((r) => r.direction === 'axial');
     if (ax.length === 0) {
-      f.limits.push('no healthy axial sensor: the axial rules (overhung, misalignment, bent shaft) were not checked');
+      f.limits.push(
+        'no healthy axial sensor: the axial rules (overhung, misalignment, bent shaft) were not checked',
+      );
       f.missing += 1;
       return f.done();
     }
@@ -36,10 +52,17 @@ export const axial: WatcherRule = {
     });
     const high = ratios.filter((r) => r.x >= u.axial_ratio_high);
     const rel = pairRelation('axial');
-    if (rel) measures.bearing_pair = { bearings: s.bearings!, directions: [...(measures.bearing_pair?.directions ?? []), rel] };
+    if (rel)
+      measures.bearing_pair = {
+        bearings: s.bearings!,
+        directions: [...(measures.bearing_pair?.directions ?? []), rel],
+      };
     if (high.length === 0) {
       const top = ratios.length ? Math.max(...ratios.map((r) => r.x)) : null;
-      if (top !== null) f.evidence.push(`axial 1x is at most ${pct(top)} of the radial 1x: little axial vibration${s.rotor === 'overhung' ? ' (unusual for an overhung rotor)' : ', as on a centre-hung rotor'}`);
+      if (top !== null)
+        f.evidence.push(
+          `axial 1x is at most ${pct(top)} of the radial 1x: little axial vibration${s.rotor === 'overhung' ? ' (unusual for an overhung rotor)' : ', as on a centre-hung rotor'}`,
+        );
       return f.done();
     }
     const list = high.map((r) => `${r.b} ${pct(r.x)}`).join(', ');
@@ -62,11 +85,21 @@ export const axial: WatcherRule = {
           );
           f.missing += 1;
         } else if (across.relation === 'opposed') {
-          f.point(['misalignment'], `${why}, with high 2x, and ${deg(across.phase_diff_deg)} apart across the coupling (${s.coupling!.driver}-${s.coupling!.driven})`);
-          f.evidence.push(`${why}, with high 2x and axial 1x ${deg(across.phase_diff_deg)} apart across the coupling: points to misalignment`);
+          f.point(
+            ['misalignment'],
+            `${why}, with high 2x, and ${deg(across.phase_diff_deg)} apart across the coupling (${s.coupling!.driver}-${s.coupling!.driven})`,
+          );
+          f.evidence.push(
+            `${why}, with high 2x and axial 1x ${deg(across.phase_diff_deg)} apart across the coupling: points to misalignment`,
+          );
         } else {
-          f.point(['bent_shaft'], `${why}; across the coupling the axial 1x are ${deg(across.phase_diff_deg)} apart, not opposed`);
-          f.evidence.push(`${why}, and across the coupling only ${deg(across.phase_diff_deg)} apart: points to a bent shaft (the high 2x is not read as misalignment)`);
+          f.point(
+            ['bent_shaft'],
+            `${why}; across the coupling the axial 1x are ${deg(across.phase_diff_deg)} apart, not opposed`,
+          );
+          f.evidence.push(
+            `${why}, and across the coupling only ${deg(across.phase_diff_deg)} apart: points to a bent shaft (the high 2x is not read as misalignment)`,
+          );
         }
       }
     } else if (rel?.relation === 'in_phase') {
@@ -77,12 +110,20 @@ export const axial: WatcherRule = {
       );
     } else if (s.rotor === 'overhung') {
       f.evidence.push(`axial 1x is high (${list} of radial), as expected on an overhung rotor`);
-      if (!rel) f.limits.push('only one healthy axial sensor: the axial phase relation was not checked');
+      if (!rel)
+        f.limits.push('only one healthy axial sensor: the axial phase relation was not checked');
     } else {
       const why = `axial 1x is high (${list} of radial) on a centre-hung rotor`;
       f.point(['misalignment', 'bent_shaft'], why);
-      f.evidence.push(rel ? `${why}, axial readings ${deg(rel.phase_diff_deg)} apart: points to misalignment or a bent shaft` : `${why}: points to misalignment or a bent shaft`);
-      if (!rel) f.limits.push('only one healthy axial sensor: misalignment and bent shaft cannot be told apart');
+      f.evidence.push(
+        rel
+          ? `${why}, axial readings ${deg(rel.phase_diff_deg)} apart: points to misalignment or a bent shaft`
+          : `${why}: points to misalignment or a bent shaft`,
+      );
+      if (!rel)
+        f.limits.push(
+          'only one healthy axial sensor: misalignment and bent shaft cannot be told apart',
+        );
     }
     return f.done();
   },

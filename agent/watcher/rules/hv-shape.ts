@@ -7,7 +7,8 @@ import { deg, Finding, relationOf, sepDeg, type WatcherRule } from './types.js';
  */
 export const hvShape: WatcherRule = {
   name: 'hv-shape',
-  summary: 'H and V 1x at one bearing about 90 deg apart (+/- phase_tolerance_deg) with H/V ratio up to hv_ratio_max (common practice)',
+  summary:
+    'H and V 1x at one bearing about 90 deg apart (+/- phase_tolerance_deg) with H/V ratio up to hv_ratio_max (common practice)',
   run({ s, readings, bearingNames, pick, measures }) {
     const u = s.w.unbalance;
     const tol = u.phase_tolerance_deg;
@@ -19,12 +20,18 @@ export const hvShape: WatcherRule = {
       const hz = pick(b, 'horizontal');
       const a = pick(b, 'axial');
       const radialMax = Math.max(v?.amp ?? 0, hz?.amp ?? 0);
-      const entry = { hv_amp_ratio: null as number | null, hv_phase_diff_deg: null as number | null, axial_over_radial: a && radialMax > 0 ? a.amp / radialMax : null };
+      const entry = {
+        hv_amp_ratio: null as number | null,
+        hv_phase_diff_deg: null as number | null,
+        axial_over_radial: a && radialMax > 0 ? a.amp / radialMax : null,
+      };
       measures.bearings[b] = entry;
       if (!v && !hz) continue;
       wanted += 1;
       if (!v || !hz) {
-        f.limits.push(`${b}: ${v ? 'no healthy horizontal' : 'no healthy vertical'} sensor, the H/V rule was not checked there`);
+        f.limits.push(
+          `${b}: ${v ? 'no healthy horizontal' : 'no healthy vertical'} sensor, the H/V rule was not checked there`,
+        );
         continue;
       }
       checked += 1;
@@ -36,14 +43,21 @@ export const hvShape: WatcherRule = {
       if (rel !== 'between') {
         const why = `${b}: horizontal and vertical 1x are ${deg(d)} apart with H/V ratio ${ratio.toFixed(1)} (straight-line, directional motion)`;
         f.point(['eccentricity', 'looseness', 'resonance', 'weak_support'], why);
-        f.evidence.push(`${why}: unbalance gives elliptical motion with about 90 deg between H and V`);
+        f.evidence.push(
+          `${why}: unbalance gives elliptical motion with about 90 deg between H and V`,
+        );
       } else if (ratio > u.hv_ratio_max) {
         const why = `${b}: H/V 1x ratio ${ratio.toFixed(1)} is above about ${u.hv_ratio_max} (the support is much stiffer one way)`;
         f.point(['resonance', 'weak_support'], why);
         f.evidence.push(`${why}: points to resonance or weak support rather than unbalance`);
       } else if (Math.abs(d - 90) <= tol) {
-        f.evidence.push(`${b}: horizontal and vertical 1x are ${deg(d)} apart with H/V ratio ${ratio.toFixed(1)}: elliptical motion, as with unbalance`);
-      } else f.evidence.push(`${b}: horizontal and vertical 1x are ${deg(d)} apart (H/V ratio ${ratio.toFixed(1)}): the motion is neither clearly elliptical nor straight-line`);
+        f.evidence.push(
+          `${b}: horizontal and vertical 1x are ${deg(d)} apart with H/V ratio ${ratio.toFixed(1)}: elliptical motion, as with unbalance`,
+        );
+      } else
+        f.evidence.push(
+          `${b}: horizontal and vertical 1x are ${deg(d)} apart (H/V ratio ${ratio.toFixed(1)}): the motion is neither clearly elliptical nor straight-line`,
+        );
     }
     if (checked === 0) f.missing += 2;
     else if (checked < wanted) f.missing += 1;

@@ -16,6 +16,17 @@ import type { WatcherRule } from './types.js';
  * To add one: a file here exporting a WatcherRule, a line in this list, its thresholds as keys of
  * watcher.unbalance in agent/config/watcher.ts (DEVELOPERS.md, "How to add a watcher rule").
  */
-export const RULES: readonly WatcherRule[] = [sensorFaults, oneXSize, oneXShare, harmonics, hvShape, bearingPhase, axial, phaseStabilityRule, sweepResonance, significance];
+export const RULES: readonly WatcherRule[] = [
+  sensorFaults,
+  oneXSize,
+  oneXShare,
+  harmonics,
+  hvShape,
+  bearingPhase,
+  axial,
+  phaseStabilityRule,
+  sweepResonance,
+  significance,
+];
 
 export * from './types.js';

@@ -1,5 +1,15 @@
 import { circularSpread } from '../complex.js';
-import { deg, Finding, median, pct1, readingsOf, sepDeg, type Reading, type RecentWindow, type WatcherRule } from './types.js';
+import {
+  deg,
+  Finding,
+  median,
+  pct1,
+  readingsOf,
+  sepDeg,
+  type Reading,
+  type RecentWindow,
+  type WatcherRule,
+} from './types.js';
 import type { WatcherSettings } from '../settings.js';
 
 interface Stability {
@@ -16,16 +26,29 @@ interface Stability {
  * (a weight lost) or a slow drift (build-up) is a fixed heavy spot that moved, not an unstable one.
  * Resonance: amplitude and phase swing together while the speed changes only a little.
  */
-function phaseStability(s: WatcherSettings, windows: readonly RecentWindow[], main: readonly Reading[]): Stability {
+function phaseStability(
+  s: WatcherSettings,
+  windows: readonly RecentWindow[],
+  main: readonly Reading[],
+): Stability {
   const u = s.w.unbalance;
   const use = windows.slice(-u.stability_windows);
-  type Ch = { id: string; spread: number; step: number; ampRatio: number; speedSpan: number; n: number };
+  type Ch = {
+    id: string;
+    spread: number;
+    step: number;
+    ampRatio: number;
+    speedSpan: number;
+    n: number;
+  };
   const chans: Ch[] = [];
   let most = 0;
   for (const m of main) {
     const pts = use.flatMap((w) => {
       const r = readingsOf(w.window, w.health).find((x) => x.id === m.id);
-      return r && w.window.speed_rpm !== null ? [{ phase: r.phase, amp: r.amp, speed: w.window.speed_rpm }] : [];
+      return r && w.window.speed_rpm !== null
+        ? [{ phase: r.phase, amp: r.amp, speed: w.window.speed_rpm }]
+        : [];
     });
     most = Math.max(most, pts.length);
     if (pts.length < 3) continue;
@@ -42,12 +65,22 @@ function phaseStability(s: WatcherSettings, windows: readonly RecentWindow[], ma
     });
   }
   if (chans.length === 0) {
-    return { kind: 'not_judged', words: `1x phase stability not judged: ${most} window(s) with a 1x vector, at least 3 are needed`, spreadDeg: null, stepDeg: null, windows: most };
+    return {
+      kind: 'not_judged',
+      words: `1x phase stability not judged: ${most} window(s) with a 1x vector, at least 3 are needed`,
+      spreadDeg: null,
+      stepDeg: null,
+      windows: most,
+    };
   }
   const worst = chans.reduce((a, b) => (b.step > a.step ? b : a));
   const base = { spreadDeg: worst.spread, stepDeg: worst.step, windows: worst.n };
   if (worst.speedSpan > 0.05) {
-    return { kind: 'not_judged', words: `1x phase stability not judged: speed changed ${pct1(worst.speedSpan)} over the last ${worst.n} windows`, ...base };
+    return {
+      kind: 'not_judged',
+      words: `1x phase stability not judged: speed changed ${pct1(worst.speedSpan)} over the last ${worst.n} windows`,
+      ...base,
+    };
   }
   const res = chans.find((c) => c.speedSpan >= 0.01 && c.ampRatio >= 1.5 && c.spread >= 45);
   if (res) {
@@ -66,7 +99,11 @@ function phaseStability(s: WatcherSettings, windows: readonly RecentWindow[], ma
       ...base,
     };
   }
-  return { kind: 'steady', words: `1x phase steady: a median ${deg(worst.step)} from one window to the next over the last ${worst.n} windows (${worst.id})`, ...base };
+  return {
+    kind: 'steady',
+    words: `1x phase steady: a median ${deg(worst.step)} from one window to the next over the last ${worst.n} windows (${worst.id})`,
+    ...base,
+  };
 }
 
 /**
@@ -76,7 +113,8 @@ function phaseStability(s: WatcherSettings, windows: readonly RecentWindow[], ma
  */
 export const phaseStabilityRule: WatcherRule = {
   name: 'phase-stability',
-  summary: '1x phase over the last stability_windows windows: median window-to-window jump above phase_stability_deg is unstable; 1.5-fold amplitude with 45 deg phase swing at 1-5 % speed change is resonance (common practice)',
+  summary:
+    '1x phase over the last stability_windows windows: median window-to-window jump above phase_stability_deg is unstable; 1.5-fold amplitude with 45 deg phase swing at 1-5 % speed change is resonance (common practice)',
   run({ s, window, health, recent, main, measures }) {
     const f = new Finding();
     const stab = phaseStability(s, [...recent, { window, health }], main);
@@ -89,7 +127,9 @@ export const phaseStabilityRule: WatcherRule = {
     } else if (stab.kind === 'steady') f.evidence.push(stab.words);
     else {
       f.point([stab.kind], stab.words);
-      f.evidence.push(`${stab.words}: points to ${stab.kind === 'resonance' ? 'resonance' : 'something other than a fixed heavy spot'}`);
+      f.evidence.push(
+        `${stab.words}: points to ${stab.kind === 'resonance' ? 'resonance' : 'something other than a fixed heavy spot'}`,
+      );
     }
     return f.done();
   },

@@ -9,7 +9,8 @@ import { Finding, type WatcherRule } from './types.js';
  */
 export const sensorFaults: WatcherRule = {
   name: 'sensor-faults',
-  summary: 'channels not OK (bias, clipping, spikes, flat line, quantisation only, level step) and a lost tach are left out of every rule',
+  summary:
+    'channels not OK (bias, clipping, spikes, flat line, quantisation only, level step) and a lost tach are left out of every rule',
   run({ s, window, health }) {
     const f = new Finding();
     const hint = pulsesPerRevHint(s, window);
@@ -17,10 +18,15 @@ export const sensorFaults: WatcherRule = {
       f.limits.push(`confidence held low: ${hint.why}`);
       f.facts.confidence_low = true;
     }
-    for (const h of health.channels) if (!h.ok) f.limits.push(`${h.id} left out: ${h.problems.join('; ')}`);
-    for (const h of health.channels) if (h.ok && h.doubts.length) f.limits.push(`${h.id} used with doubt: ${h.doubts.join('; ')}`);
+    for (const h of health.channels)
+      if (!h.ok) f.limits.push(`${h.id} left out: ${h.problems.join('; ')}`);
+    for (const h of health.channels)
+      if (h.ok && h.doubts.length) f.limits.push(`${h.id} used with doubt: ${h.doubts.join('; ')}`);
     if (health.tach.state !== 'ok') f.limits.push(`no phase rules: ${health.tach.why}`);
-    else for (const h of health.channels) if (h.ok && !h.phase_ok) f.limits.push(`${h.id} not used for phase rules: ${h.phase_notes.join('; ')}`);
+    else
+      for (const h of health.channels)
+        if (h.ok && !h.phase_ok)
+          f.limits.push(`${h.id} not used for phase rules: ${h.phase_notes.join('; ')}`);
     return f.done();
   },
 };

@@ -16,7 +16,8 @@ import { Finding, mm, type WatcherRule } from './types.js';
  */
 export const significance: WatcherRule = {
   name: 'significance',
-  summary: 'no unbalance finding while every OK sensor is below the significance level (default the A/B boundary, ISO 20816-3) and no 1x vector changed significantly from the baseline',
+  summary:
+    'no unbalance finding while every OK sensor is below the significance level (default the A/B boundary, ISO 20816-3) and no 1x vector changed significantly from the baseline',
   run({ s, health, window, inputs }) {
     const f = new Finding();
     if (!inputs) return f.done();
@@ -31,13 +32,20 @@ export const significance: WatcherRule = {
       if (!h.ok || v == null) continue;
       judged++;
       const base = inputs.baseline?.channels[h.id]?.overall_rms_mm_s ?? null;
-      const level = sig.basis === 'custom' ? sig.overall_mm_s : sig.basis === 'baseline_change' && base !== null ? base + 0.25 * bc : ab;
+      const level =
+        sig.basis === 'custom'
+          ? sig.overall_mm_s
+          : sig.basis === 'baseline_change' && base !== null
+            ? base + 0.25 * bc
+            : ab;
       if (!largest || v / level > largest.v / largest.level) largest = { id: h.id, v, level };
       if (v > level) over.push(`${h.id} ${mm(v)} above ${mm(level)}`);
     }
     const changed = Object.entries(inputs.vectorChange ?? {}).filter(([, c]) => c.significant);
     if (judged === 0) {
-      f.limits.push('no OK sensor with an overall level: the significance of the 1x was not judged');
+      f.limits.push(
+        'no OK sensor with an overall level: the significance of the 1x was not judged',
+      );
       return f.done();
     }
     const basis =
@@ -49,7 +57,10 @@ export const significance: WatcherRule = {
     if (over.length || changed.length) {
       const why = [
         ...(over.length ? [`overall ${over.join(', ')}`] : []),
-        ...changed.map(([id, c]) => `${id} 1x changed ${mm(c.delta_mm_s)} from baseline (reported from ${mm(s.vectorChangeMmS)})`),
+        ...changed.map(
+          ([id, c]) =>
+            `${id} 1x changed ${mm(c.delta_mm_s)} from baseline (reported from ${mm(s.vectorChangeMmS)})`,
+        ),
       ].join('; ');
       f.evidence.push(`significant: ${why} (level: ${basis})`);
       return f.done();

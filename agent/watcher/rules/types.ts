@@ -14,7 +14,14 @@ import type { WatcherSettings } from '../settings.js';
  */
 
 export type UnbalanceKind = 'static' | 'couple' | 'dynamic' | 'overhung' | 'none';
-export type OneXCause = 'misalignment' | 'bent_shaft' | 'eccentricity' | 'looseness' | 'resonance' | 'unstable_phase' | 'weak_support';
+export type OneXCause =
+  | 'misalignment'
+  | 'bent_shaft'
+  | 'eccentricity'
+  | 'looseness'
+  | 'resonance'
+  | 'unstable_phase'
+  | 'weak_support';
 export type Relation = 'in_phase' | 'opposed' | 'between';
 
 export interface PhasePair {
@@ -57,7 +64,10 @@ export interface UnbalanceMeasures {
   two_x_over_one_x: number | null;
   bearings: Record<string, BearingMeasures>;
   /** Bearing-to-bearing comparisons per direction for the rotor's two bearings. */
-  bearing_pair: { readonly bearings: readonly [string, string]; readonly directions: readonly PhasePair[] } | null;
+  bearing_pair: {
+    readonly bearings: readonly [string, string];
+    readonly directions: readonly PhasePair[];
+  } | null;
   /** Largest 1x phase deviation from its mean over the recent windows, degrees; null when not judged. */
   phase_spread_deg: number | null;
   /** Median 1x phase jump from one window to the next (worst sensor), degrees; null when not judged. */
@@ -87,13 +97,19 @@ export interface RuleFacts {
 export interface SweepEvidence {
   readonly sweep_id: string;
   readonly direction: 'up' | 'down';
-  readonly resonances: readonly { readonly sensor: string; readonly rpm: number; readonly half_power_rpm: readonly [number, number] }[];
+  readonly resonances: readonly {
+    readonly sensor: string;
+    readonly rpm: number;
+    readonly half_power_rpm: readonly [number, number];
+  }[];
 }
 
 /** What the significance rule compares against: this window's zones and the change from the baseline. */
 export interface SignificanceInputs {
   readonly zone: ZoneReport;
-  readonly vectorChange: Readonly<Record<string, { readonly delta_mm_s: number; readonly significant: boolean }>> | null;
+  readonly vectorChange: Readonly<
+    Record<string, { readonly delta_mm_s: number; readonly significant: boolean }>
+  > | null;
   readonly baseline: Baseline | null;
   /** The last recorded sweep's resonances; absent or null when no sweep is known. */
   readonly sweep?: SweepEvidence | null;
@@ -157,7 +173,13 @@ export class Finding {
     for (const cause of causes) this.points_to.push({ cause, why });
   }
   done(): Omit<RuleResult, 'rule'> {
-    return { evidence: this.evidence, limits: this.limits, points_to: this.points_to, missing: this.missing, facts: this.facts };
+    return {
+      evidence: this.evidence,
+      limits: this.limits,
+      points_to: this.points_to,
+      missing: this.missing,
+      facts: this.facts,
+    };
   }
 }
 
@@ -186,7 +208,15 @@ export function readingsOf(window: WindowResult, health: HealthReport): Reading[
   for (const c of window.channels) {
     const v = c.orders['1'];
     if (!ok.has(c.id) || !v) continue;
-    out.push({ id: c.id, bearing: c.bearing, direction: c.direction, amp: v.amp_rms_mm_s, phase: normDeg(v.phase_deg - c.mounting_angle_deg), share: c.one_x_share, c });
+    out.push({
+      id: c.id,
+      bearing: c.bearing,
+      direction: c.direction,
+      amp: v.amp_rms_mm_s,
+      phase: normDeg(v.phase_deg - c.mounting_angle_deg),
+      share: c.one_x_share,
+      c,
+    });
   }
   return out;
 }
