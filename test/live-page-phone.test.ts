@@ -1,7 +1,8 @@
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { chromium, type Browser, type Page } from 'playwright-core';
+import type { Browser, Page } from 'playwright-core';
+import { fastPacer, launchChromium } from './support/browser.js';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { systemClock } from '../agent/clock.js';
 import { loadConfig, validateConfig } from '../agent/config/load.js';
@@ -27,25 +28,6 @@ const OPERATOR = 'operator-phone-0123456789abcdef';
 const SPEED_UP = 8;
 const PHONE = { width: 390, height: 844 };
 const TURNED = { width: 844, height: 390 };
-const CHROMIUM_ARGS = [
-  '--headless',
-  '--no-sandbox',
-  '--disable-gpu',
-  '--disable-quic',
-  '--no-first-run',
-  '--disable-background-networking',
-  '--disable-component-update',
-  '--disable-sync',
-];
-
-function fastPacer(k: number): Pacer {
-  const t0 = performance.now();
-  return {
-    now: () => t0 + (performance.now() - t0) * k,
-    sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)),
-  };
-}
-
 interface Fit {
   readonly innerWidth: number;
   readonly scrollWidth: number;
@@ -138,7 +120,7 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
       liveConsumers: [server],
     });
     running = rt.run();
-    browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: CHROMIUM_ARGS });
+    browser = await launchChromium();
     page = await browser.newPage({ viewport: PHONE, deviceScaleFactor: 1 });
     page.on('pageerror', (e) => pageErrors.push(String(e)));
     page.on('console', (m) => m.type() === 'error' && pageErrors.push(m.text()));

@@ -1,7 +1,8 @@
 import { mkdtempSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { chromium, type Browser, type Page } from 'playwright-core';
+import type { Browser, Page } from 'playwright-core';
+import { fastPacer, launchChromium } from './support/browser.js';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { systemClock } from '../agent/clock.js';
 import { loadConfig, validateConfig } from '../agent/config/load.js';
@@ -29,26 +30,6 @@ const OPERATOR = 'operator-0123456789abcdef-op';
 const SPEED_UP = 8;
 /** What the tests read of a DOM element (the project compiles without the DOM library). */
 type El = { dataset: Record<string, string | undefined> };
-const CHROMIUM_ARGS = [
-  '--headless',
-  '--no-sandbox',
-  '--disable-gpu',
-  '--disable-quic',
-  '--no-first-run',
-  '--disable-background-networking',
-  '--disable-component-update',
-  '--disable-sync',
-];
-
-/** Paces the simulated board K times faster than real time. */
-function fastPacer(k: number): Pacer {
-  const t0 = performance.now();
-  return {
-    now: () => t0 + (performance.now() - t0) * k,
-    sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)),
-  };
-}
-
 describe('live page in a real browser', () => {
   let dir: string;
   let shots: string;
@@ -111,7 +92,7 @@ describe('live page in a real browser', () => {
       liveConsumers: [server],
     });
     running = rt.run();
-    browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: CHROMIUM_ARGS });
+    browser = await launchChromium();
     page = await browser.newPage({ viewport: { width: 412, height: 915 }, deviceScaleFactor: 1 });
     page.on('pageerror', (e) => pageErrors.push(String(e)));
     page.on('console', (m) => m.type() === 'error' && pageErrors.push(m.text()));

@@ -1,7 +1,8 @@
 import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { chromium, type Browser } from 'playwright-core';
+import type { Browser } from 'playwright-core';
+import { fastPacer, launchChromium } from './support/browser.js';
 import { afterAll, describe, expect, it } from 'vitest';
 import { systemClock } from '../agent/clock.js';
 import { MemoryLogger } from '../agent/log.js';
@@ -17,25 +18,6 @@ import { agentConfig, FS, scenario, velocityPeakRpm } from './support/sweep-sim.
  * Set TURNWISE_SCREENSHOT_DIR to keep the screenshots.
  */
 const VIEWER = 'viewer-0123456789abcdef-sweeps';
-const CHROMIUM_ARGS = [
-  '--headless',
-  '--no-sandbox',
-  '--disable-gpu',
-  '--disable-quic',
-  '--no-first-run',
-  '--disable-background-networking',
-  '--disable-component-update',
-  '--disable-sync',
-];
-
-function fastPacer(k: number): Pacer {
-  const t0 = performance.now();
-  return {
-    now: () => t0 + (performance.now() - t0) * k,
-    sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms / k)),
-  };
-}
-
 describe('sweeps and captures on the live page', () => {
   let browser: Browser | undefined;
   afterAll(async () => {
@@ -83,7 +65,7 @@ describe('sweeps and captures on the live page', () => {
     const url = (await asm.startLive())!;
     const running = asm.agent.run(1000);
     try {
-      browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: CHROMIUM_ARGS });
+      browser = await launchChromium();
       const page = await browser.newPage({
         viewport: { width: 390, height: 844 },
         deviceScaleFactor: 2,
