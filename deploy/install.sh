@@ -110,8 +110,9 @@ CLI_LINK=/usr/local/bin/turnwise
 R_OPT="$ROOT$OPT"
 R_RELEASES="$R_OPT/releases"
 
-# What a release holds, relative to the source tree (dist/test and the TypeScript sources stay behind).
-RELEASE_PATHS=(package.json package-lock.json dist/agent dist/drivers deploy config README.md docs)
+# What a release holds, relative to the source tree (dist/test and the TypeScript sources stay
+# behind; the live page's own files are plain JavaScript, HTML and CSS served from agent/live/page).
+RELEASE_PATHS=(package.json package-lock.json dist/agent dist/drivers agent/live/page deploy config README.md docs)
 COMPLETE_MARK=.turnwise-release-complete
 CHANGED=0
 
@@ -199,7 +200,7 @@ check_node() {
 
 check_source() {
   local p
-  for p in package.json package-lock.json dist/agent/cli/main.js deploy/turnwise.service deploy/udev/70-turnwise-daq.rules deploy/udev/99-turnwise-gpio.rules; do
+  for p in package.json package-lock.json dist/agent/cli/main.js agent/live/page/index.html deploy/turnwise.service deploy/udev/70-turnwise-daq.rules deploy/udev/99-turnwise-gpio.rules; do
     [ -e "$SRC_DIR/$p" ] || die "$SRC_DIR/$p is missing: not a built turnwise release tree" \
       "run \`npm ci\` in the source tree (it compiles dist/), or give the right tree with --from DIR"
   done
@@ -259,7 +260,7 @@ stage_release() {
   fi
   [ -e "$dest" ] && act rm -rf "$dest"
   [ -e "$tmp" ] && act rm -rf "$tmp"
-  act mkdir -p "$tmp/dist"
+  act mkdir -p "$tmp/dist" "$tmp/agent/live"
   for p in "${RELEASE_PATHS[@]}"; do
     if [ -e "$SRC_DIR/$p" ]; then act cp -a "$SRC_DIR/$p" "$tmp/$p"; fi
   done

@@ -1,6 +1,6 @@
 import { describe, expect, it, afterAll } from 'vitest';
 import { spawnSync } from 'node:child_process';
-import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -21,6 +21,25 @@ const EXAMPLE = fileURLToPath(new URL('../config/example.yaml', import.meta.url)
 const dir = mkdtempSync(join(tmpdir(), 'tw-cli-start-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
 
+/**
+ * The CLI is a bundle (scripts/post-build.mjs): a chunk holds several modules, listed in
+ * chunks/modules.json. A loaded chunk counts as loading each module in it, as file URLs under the
+ * package root, so the checks below read the same as for the unbundled modules.
+ */
+const CHUNKS = fileURLToPath(new URL('../dist/agent/cli/chunks/', import.meta.url));
+const ROOT = fileURLToPath(new URL('..', import.meta.url));
+const manifest = JSON.parse(readFileSync(join(CHUNKS, 'modules.json'), 'utf8')) as Record<
+  string,
+  string[]
+>;
+function bundledModules(url: string): string[] | null {
+  const path = url.startsWith('file:') ? fileURLToPath(url) : url;
+  const cliDir = join(CHUNKS, '..');
+  if (!path.startsWith(cliDir)) return null;
+  const inBundle = manifest[path.slice(cliDir.length + 1)];
+  return inBundle ? inBundle.map((m) => `file://${join(ROOT, m)}`) : null;
+}
+
 /** Runs the compiled CLI and returns its output with the npm packages it imported. */
 function runLogged(
   args: string[],
@@ -31,7 +50,10 @@ function runLogged(
   stdout: string;
   stderr: string;
   packages: Set<string>;
+  /** Modules loaded, chunks expanded to the modules in them. */
   modules: string[];
+  /** Files Node resolved (chunks, not expanded). */
+  files: string[];
 } {
   const log = join(dir, `imports-${Math.random().toString(36).slice(2)}.txt`);
   writeFileSync(log, '');
@@ -44,13 +66,19 @@ function runLogged(
       timeout: 60_000,
     },
   );
-  const modules = readFileSync(log, 'utf8').split('\n').filter(Boolean);
+  const modules = readFileSync(log, 'utf8')
+    .split('\n')
+    .filter(Boolean)
+    .flatMap((u) => bundledModules(u) ?? [u]);
   const packages = new Set(
     modules
       .map((u) => /\/node_modules\/((?:@[^/]+\/)?[^/]+)\//.exec(u)?.[1])
       .filter((p): p is string => !!p),
   );
-  return { code: r.status, stdout: r.stdout, stderr: r.stderr, packages, modules };
+  const files = readFileSync(log, 'utf8')
+    .split('\n')
+    .filter((u) => u.startsWith('file:'));
+  return { code: r.status, stdout: r.stdout, stderr: r.stderr, packages, modules, files };
 }
 
 describe('turnwise start-up', () => {
@@ -93,6 +121,34 @@ describe('turnwise start-up', () => {
     for (const p of ['mqtt', 'aedes', 'serialport', 'onoff', 'ws', 'pino', 'fft.js'])
       expect(r.packages.has(p)).toBe(false);
     expect(r.modules.filter((m) => /\/agent\/(dsp|mqtt|live|outbox)\//.test(m))).toEqual([]);
+    // Bundled: zod's messages in English only (none of its other locales), and a handful of files
+    // for Node to read instead of the ~300 modules of the unbundled build.
+    expect(
+      r.modules
+        .filter((m) => /node_modules\/zod\/.*\/locales\//.test(m))
+        .map((m) => m.replace(/.*\//, '')),
+    ).toEqual(['en.js']);
+    expect(r.files.filter((f) => f.includes('/node_modules/'))).toEqual([]);
+    expect(new Set(r.files).size).toBeLessThan(20);
+  });
+
+  it('the CLI is a bundle: main.js and its chunks, each listed with its modules in chunks/modules.json', () => {
+    const chunkFiles = readdirSync(CHUNKS).filter((f) => f.endsWith('.js'));
+    expect(Object.keys(manifest).sort()).toEqual(
+      ['main.js', ...chunkFiles.map((f) => `chunks/${f}`)].sort(),
+    );
+    const main = readFileSync(CLI, 'utf8');
+    expect(main.startsWith('#!/usr/bin/env node\n')).toBe(true);
+    // The entry imports only its own chunks (statically or when a command runs) and node: builtins.
+    const specifiers = [...main.matchAll(/\b(?:from|import\()\s*["']([^"']+)["']/g)].map(
+      (m) => m[1]!,
+    );
+    expect(specifiers.length).toBeGreaterThan(commands.length);
+    expect(
+      specifiers.filter((x) => !/^\.\/chunks\/[\w.-]+\.js$/.test(x) && !x.startsWith('node:')),
+    ).toEqual([]);
+    const bundled = Object.values(manifest).flat();
+    for (const c of commands) expect(bundled).toContain(`dist/agent/cli/commands/${c.name}.js`);
   });
 
   it('every registered command loads, under the name it is registered with', async () => {

@@ -254,8 +254,11 @@ describe('deploy/install.sh', () => {
       /^(\+ useradd --system --user-group --home-dir \/var\/lib\/turnwise --no-create-home --shell \/usr\/sbin\/nologin .* turnwise|user turnwise exists)$/m,
     );
     expectInOrder(lines, [
-      new RegExp(`^\\+ mkdir -p /opt/turnwise/releases/\\.${q}\\.partial/dist$`),
+      new RegExp(
+        `^\\+ mkdir -p /opt/turnwise/releases/\\.${q}\\.partial/dist /opt/turnwise/releases/\\.${q}\\.partial/agent/live$`,
+      ),
       /^\+ cp -a \S+\/dist\/agent \/opt\/turnwise\/releases\/.*\.partial\/dist\/agent$/,
+      /^\+ cp -a \S+\/agent\/live\/page \/opt\/turnwise\/releases\/.*\.partial\/agent\/live\/page$/,
       /^\+ env -C \S+ npm ci --omit=dev --ignore-scripts --no-audit --no-fund$/,
       /^\+ env -C \S+ npm rebuild$/,
       new RegExp(
@@ -321,6 +324,7 @@ describe('deploy/install.sh', () => {
           packages: { '': { name: 'turnwise', version } },
         }),
       );
+      cpSync(join(REPO, 'agent/live/page'), join(dir, 'agent/live/page'), { recursive: true });
       mkdirSync(join(dir, 'dist/agent/cli'), { recursive: true });
       writeFileSync(
         join(dir, 'dist/agent/cli/main.js'),
@@ -530,6 +534,24 @@ if (cmd === 'check-config') {
     );
     expect(c.stderr).toBe('');
     expect(c.stdout).toMatch(/turnwise\.yaml\.example: OK\n {2}machine kessrow-id3a/);
+    // The live page is served from the release too (its files are not compiled into dist/): the
+    // demo builds the live server, which reads every page file at start or refuses to start.
+    const d = spawnSync(
+      process.execPath,
+      [
+        join(rel, 'dist/agent/cli/main.js'),
+        'demo',
+        '--seconds',
+        '2',
+        '--port',
+        '0',
+        '--mqtt-port',
+        '0',
+      ],
+      { encoding: 'utf8', cwd: root, timeout: 60_000 },
+    );
+    expect(d.status, d.stderr).toBe(0);
+    expect(d.stdout).toMatch(/live page\s+http:\/\/127\.0\.0\.1:\d+/);
   }, 300_000);
 
   const SYSTEM = process.env.TURNWISE_SYSTEM_TESTS === '1';

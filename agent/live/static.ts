@@ -4,12 +4,12 @@
  * the board with no internet). Read once when the server starts; only the names listed here are
  * served, so no request path ever reaches the file system.
  */
-import { existsSync, readFileSync } from 'node:fs';
+import { readFileSync } from 'node:fs';
 import { createHash } from 'node:crypto';
 import { createRequire } from 'node:module';
 import { dirname, join } from 'node:path';
-import { fileURLToPath } from 'node:url';
 import { UserError } from '../errors.js';
+import { packageRoot } from '../package-root.js';
 
 export interface StaticFile {
   readonly body: Buffer;
@@ -36,23 +36,8 @@ export const PAGE_FILES = [
   'sweeps.js',
 ] as const;
 
-/** The package root: the nearest directory above this module holding package.json (works from agent/ and dist/agent/). */
-function packageRoot(): string {
-  let dir = dirname(fileURLToPath(import.meta.url));
-  for (;;) {
-    if (existsSync(join(dir, 'package.json')) && existsSync(join(dir, 'agent', 'live', 'page')))
-      return dir;
-    const up = dirname(dir);
-    if (up === dir)
-      throw new Error(
-        'cannot find the turnwise package root (package.json next to agent/live/page)',
-      );
-    dir = up;
-  }
-}
-
 export function defaultPageDir(): string {
-  return join(packageRoot(), 'agent', 'live', 'page');
+  return join(packageRoot(import.meta.url), 'agent', 'live', 'page');
 }
 
 function load(file: string): Buffer {
@@ -62,7 +47,7 @@ function load(file: string): Buffer {
     throw new UserError(
       file,
       `a file of the live page cannot be read (${(e as NodeJS.ErrnoException).code ?? String(e)})`,
-      'reinstall turnwise (npm ci): the page is part of the package',
+      'reinstall turnwise (npm ci in a source tree, deploy/install.sh on a board): the page is part of the package',
     );
   }
 }

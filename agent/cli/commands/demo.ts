@@ -3,7 +3,7 @@ import { mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { createServer, type Server } from 'node:net';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { packageRoot } from '../../package-root.js';
 import { parse } from 'yaml';
 import { createSource } from '../../../drivers/create-source.js';
 import { FakeGpioLines } from '../../../drivers/gpio/fake-lines.js';
@@ -35,7 +35,7 @@ import type { Command } from '../command.js';
 const usage =
   'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S] [--state-dir DIR]';
 
-const CONFIG_DIR = fileURLToPath(new URL('../../../../config/', import.meta.url));
+const CONFIG_DIR = join(packageRoot(import.meta.url), 'config');
 
 function listenOn(server: Server, port: number): Promise<number> {
   return new Promise<number>((resolve, reject) => {
