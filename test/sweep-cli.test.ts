@@ -158,6 +158,10 @@ describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, ow
         0,
       );
       expect(r.margin_ok).toBe(true);
+      // 20 r/min per s: under 0.4 % of rated speed a point, and about 20 points across the
+      // half-power band, so neither "too fast" warning (not even at the slow end, where a point
+      // takes longest).
+      expect(s.warnings).toEqual([]);
     });
 
     it(`${name}: no resonance on the stiff direction, whose 1x only rises with speed`, () => {

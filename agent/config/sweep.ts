@@ -53,7 +53,16 @@ export const sweepSchema = z
       .max(10)
       .default(2)
       .describe(
-        'Speed change from one point to the next above which the sweep is too fast for the averaging (a warning names the rate), percent. Own choice: 2.',
+        'Speed change from one point to the next, as a percentage of the reference speed (machine.rated_rpm, else the highest speed measured), above which the sweep is too fast for the averaging (a warning names the rate). Own choice: 2.',
+      ),
+    min_points_in_band: z
+      .number()
+      .int()
+      .min(2)
+      .max(50)
+      .default(5)
+      .describe(
+        'A resonance with fewer points than this within its half-power band gets a warning that its peak and amplification factor are doubtful (the sweep passed it too fast). Own choice: 5.',
       ),
     record: z
       .boolean()
@@ -119,6 +128,7 @@ export const sweepSchema = z
     reversal_share: 0.02,
     steady_share: 0.005,
     max_point_change_pct: 2,
+    min_points_in_band: 5,
     record: true,
     settle_s: 5,
     max_points: 2048,

@@ -64,10 +64,14 @@ export function sweepsFromPoints(
     const last = pts[pts.length - 1]!;
     const duration = (last.end_index - first.end_index) / sampleRate;
     const warnings: string[] = [];
+    // Too fast, anywhere on the sweep: the speed moves more than max_point_change_pct of the
+    // reference speed within one point. Measured against the reference speed, not the speed of the
+    // moment: a steady coast-down takes longest over its slowest revolutions, yet moves no faster
+    // in r/min there; where a resonance needs finer points, the half-power check below says so.
     let worst = 0;
     let worstAt = 0;
     for (let i = 1; i < pts.length; i++) {
-      const change = Math.abs(pts[i]!.rpm - pts[i - 1]!.rpm) / pts[i - 1]!.rpm;
+      const change = Math.abs(pts[i]!.rpm - pts[i - 1]!.rpm) / ref;
       if (change > worst) {
         worst = change;
         worstAt = i;
@@ -78,7 +82,7 @@ export function sweepsFromPoints(
       const b = pts[worstAt]!;
       const rate = ((b.rpm - a.rpm) * sampleRate) / (b.end_index - a.end_index);
       warnings.push(
-        `the speed changed ${(worst * 100).toFixed(1)} % between two points near ${b.rpm.toFixed(0)} r/min (${rate.toFixed(0)} r/min per s): ` +
+        `the speed changed ${Math.abs(b.rpm - a.rpm).toFixed(0)} r/min (${(worst * 100).toFixed(1)} % of ${ref.toFixed(0)} r/min) between two points near ${b.rpm.toFixed(0)} r/min (${rate.toFixed(0)} r/min per s): ` +
           `too fast for ${s.revolutions_per_point} revolution(s) per point, so the curve is smeared there; lower sweep.revolutions_per_point, or sweep more slowly (limit sweep.max_point_change_pct = ${s.max_point_change_pct} %)`,
       );
     }
@@ -106,6 +110,7 @@ export function sweepsFromPoints(
         resonances: res,
       };
     });
+    warnings.push(...thinResonances(channels, s.min_points_in_band, s.revolutions_per_point));
     return {
       direction: span.direction,
       from_rpm: first.rpm,
@@ -120,6 +125,36 @@ export function sweepsFromPoints(
       warnings,
     };
   });
+}
+
+/**
+ * A resonance found on too few points: its peak and its half-power AF rest on the points inside
+ * the half-power band, and with fewer than `minPoints` there the peak is likely missed or flattened
+ * (the sweep passed it too fast for the revolutions averaged into each point). One warning per
+ * resonance speed, naming the channels that show it.
+ */
+function thinResonances(
+  channels: readonly SweepChannel[],
+  minPoints: number,
+  revsPerPoint: number,
+): string[] {
+  const thin: { rpm: number; lo: number; hi: number; inBand: number; ids: string[] }[] = [];
+  for (const c of channels)
+    for (const r of c.resonances) {
+      const [lo, hi] = r.half_power_rpm;
+      const inBand = c.points.filter((p) => p.rpm >= lo && p.rpm <= hi).length;
+      if (inBand >= minPoints) continue;
+      const same = thin.find((t) => Math.abs(t.rpm - r.rpm) <= Math.max(hi - lo, 1));
+      if (same) {
+        same.ids.push(c.id);
+        same.inBand = Math.min(same.inBand, inBand);
+      } else thin.push({ rpm: r.rpm, lo, hi, inBand, ids: [c.id] });
+    }
+  return thin.map(
+    (t) =>
+      `the resonance near ${t.rpm.toFixed(0)} r/min (${t.ids.join(', ')}) rests on ${t.inBand} point(s) within its half-power band ${t.lo.toFixed(0)}-${t.hi.toFixed(0)} r/min, fewer than ${minPoints}: ` +
+      `its peak speed, height and amplification factor are doubtful; sweep through it more slowly or lower sweep.revolutions_per_point (now ${revsPerPoint}) (limit sweep.min_points_in_band = ${minPoints})`,
+  );
 }
 
 /** One sweep as `turnwise sweep --json` prints it (also the body of each sweep the agent stores). */
