@@ -279,12 +279,12 @@ export class BrokerConnection {
   /**
    * Stops for good: no more attempts or liveness checks. When connected, `farewell` (the owner's
    * last messages) is awaited up to 2 s; then the client is dropped and a clean DISCONNECT (so the
-   * broker does not publish the will) is awaited up to 2 s, when connected or when
-   * `disconnectUnlessConnected`; last, the client is ended at once.
+   * broker does not publish the will) is awaited up to 2 s, when connected, or also when not with
+   * `alwaysDisconnect` (the Sparkplug node's habit); last, the client is ended at once.
    */
   async stop(
     farewell: (c: MqttClient) => Promise<void>,
-    disconnectUnlessConnected = false,
+    o: { readonly alwaysDisconnect?: boolean } = {},
   ): Promise<void> {
     if (this.stopped) return;
     this.stopped = true;
@@ -296,7 +296,7 @@ export class BrokerConnection {
     const wasConnected = this.isConnected;
     if (wasConnected) await withTimeout(farewell(c), STOP_WAIT_MS);
     this.drop(c);
-    if (wasConnected || disconnectUnlessConnected)
+    if (wasConnected || o.alwaysDisconnect)
       await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
     c.end(true);
   }
@@ -426,7 +426,7 @@ export class BrokerConnection {
 }
 
 /** Resolves when `p` does or after `ms`, whichever comes first. */
-export function withTimeout(p: Promise<void>, ms: number): Promise<void> {
+function withTimeout(p: Promise<void>, ms: number): Promise<void> {
   return new Promise((resolve) => {
     const t = setTimeout(resolve, ms);
     void p.then(() => {
