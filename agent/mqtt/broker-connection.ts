@@ -223,6 +223,7 @@ export class BrokerConnection {
     return this.brokerSaid;
   }
 
+  /** True once stop() was called: no attempt is made after that. */
   get stopping(): boolean {
     return this.stopped;
   }
@@ -232,6 +233,7 @@ export class BrokerConnection {
     return this.lastDelayMs;
   }
 
+  /** Running totals since construction. */
   get counts(): Readonly<ConnectionCounts> {
     return this.tally;
   }
