@@ -1,19 +1,6 @@
-import {
-  connect as mqttConnect,
-  type IClientOptions,
-  type IConnackPacket,
-  type IPublishPacket,
-  type MqttClient,
-} from 'mqtt';
-import { reconnectDelayMs } from './backoff.js';
-import {
-  brokerLimits,
-  forceEnd,
-  ProtocolChoice,
-  publishPacketBytes,
-  stuckReason,
-  type BrokerLimits,
-} from './link-habits.js';
+import { connect as mqttConnect, type IPublishPacket, type MqttClient } from 'mqtt';
+import { BrokerConnection, type ConnectFn } from './broker-connection.js';
+import type { BrokerLimits } from './link-habits.js';
 import type { AgentEvent } from '../events.js';
 import type { AddOutcome, Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
@@ -26,9 +13,9 @@ import {
   type ReplyPayload,
   type StatusPayload,
 } from './payloads.js';
-import { settleMqttPacketCaches } from './packet-cache.js';
-import { clientOptions } from './client-options.js';
 import type { MqttSettings } from './settings.js';
+
+export { describeConnectError, type ConnectFn } from './broker-connection.js';
 
 /**
  * Publishes to the plant broker with mqtt.js, on the project's own terms:
@@ -45,9 +32,10 @@ import type { MqttSettings } from './settings.js';
  *   and a command's response topic and correlation data are honoured;
  * - a liveness check replaces a client that is stuck neither connecting nor closing;
  * - nothing here is awaited by the sampling path: `queueEvent` and `publishLive` return at once.
+ * The connection itself (attempts, protocol level, broker limits, backoff, liveness, orderly stop)
+ * is a BrokerConnection (broker-connection.ts), shared in kind with the Sparkplug node; this class
+ * keeps the outbox draining, the in-flight window, heartbeat, live messages, commands and status.
  */
-
-export type ConnectFn = (url: string, opts: IClientOptions) => MqttClient;
 
 export interface CommandSink {
   handle(raw: Buffer): Promise<ReplyPayload>;
@@ -69,72 +57,12 @@ export interface PublisherOptions {
   readonly agentVersion?: string;
 }
 
-/** A connection that lasted this long resets the reconnect backoff. */
-const STABLE_MS = 10_000;
 /** QoS 0 live messages are skipped while this many bytes wait in the socket. */
 const LIVE_BACKLOG_BYTES = 64 * 1024;
-const STOP_WAIT_MS = 2000;
 
 interface InFlight {
   readonly client: MqttClient;
   readonly timer: NodeJS.Timeout;
-}
-
-/** Why a connection attempt failed or a connection ended, in words with what to do, and a kind for "once per burst". */
-export function describeConnectError(err: unknown): { kind: string; reason: string } {
-  const e = err as (Error & { code?: string | number }) | null;
-  if (!e) return { kind: 'closed', reason: 'the connection was closed' };
-  const code = e.code;
-  if (code === 'PUBLISH_TIMEOUT') return { kind: 'publish-timeout', reason: e.message };
-  if (code === 'STUCK') return { kind: 'stuck', reason: `${e.message}; the client was replaced` };
-  if (code === 4 || code === 134)
-    return {
-      kind: 'bad-credentials',
-      reason: 'the broker refused the user name or password; check mqtt.username and mqtt.password',
-    };
-  if (code === 5 || code === 135) {
-    // mosquitto answers a wrong password with "not authorised" too.
-    return {
-      kind: 'not-authorised',
-      reason:
-        "the broker refused the login (not authorised): wrong user name or password, or this client is not allowed; check mqtt.username, mqtt.password and the broker's users",
-    };
-  }
-  if (code === 2 || code === 133)
-    return { kind: 'client-id', reason: 'the broker rejected the client id; set mqtt.client_id' };
-  if (typeof code === 'number')
-    return {
-      kind: `refused-${code}`,
-      reason: `the broker refused the connection (code ${code}: ${e.message})`,
-    };
-  if (code === 'ECONNREFUSED')
-    return {
-      kind: code,
-      reason:
-        'nothing accepts connections there (connection refused); is the broker running and the port right?',
-    };
-  if (code === 'ENOTFOUND' || code === 'EAI_AGAIN')
-    return {
-      kind: code,
-      reason: `cannot resolve the host name (${code}); check the name and the board's DNS`,
-    };
-  if (code === 'EHOSTUNREACH' || code === 'ENETUNREACH' || code === 'ETIMEDOUT')
-    return { kind: code, reason: `the broker cannot be reached (${code}); check the network` };
-  if (
-    typeof code === 'string' &&
-    (code.startsWith('ERR_TLS') ||
-      code.startsWith('ERR_SSL') ||
-      code.includes('CERT') ||
-      code.includes('SIGNATURE'))
-  ) {
-    return {
-      kind: `tls-${code}`,
-      reason: `TLS failed (${code}: ${e.message}); check mqtt.tls.ca_file, the name in the broker certificate (mqtt.tls.servername) and the client certificate`,
-    };
-  }
-  if (/connack timeout/i.test(e.message))
-    return { kind: 'timeout', reason: 'no answer from the broker within mqtt.connect_timeout_s' };
-  return { kind: String(code ?? e.message), reason: e.message };
 }
 
 export class MqttPublisher {
@@ -144,43 +72,24 @@ export class MqttPublisher {
   private readonly log: Logger;
   private readonly commands?: CommandSink;
   private readonly extraHealth: () => Record<string, number | string | boolean | null>;
-  private readonly connectFn: ConnectFn;
   private readonly now: () => number;
-  private readonly random: () => number;
   private readonly version: string;
   private readonly burst: BurstLog;
+  private readonly conn: BrokerConnection;
 
-  private client: MqttClient | null = null;
-  private connected = false;
-  private connectedAt = 0;
   private sessionStartedTs = '';
-  private lastError: unknown = null;
-  private failures = 0;
   private readonly inflight = new Map<number, InFlight>();
-  private reconnectTimer: NodeJS.Timeout | null = null;
   private heartbeatTimer: NodeJS.Timeout | null = null;
   private unsubscribeOutbox: (() => void) | null = null;
   private startedAt = 0;
   private lastLiveAt = -Infinity;
   private started = false;
-  private stopping = false;
   private readonly counts = {
-    connects: 0,
-    connect_failures: 0,
     events_published: 0,
     publish_timeouts: 0,
     live_sent: 0,
     live_skipped: 0,
-    refused_too_large: 0,
-    stuck_replaced: 0,
   };
-  private readonly protocol: ProtocolChoice;
-  private protoVersion: 4 | 5 = 5;
-  private limits: BrokerLimits = { receiveMaximum: null, maximumPacketSize: null };
-  private attemptAt = 0;
-  private gotConnack = false;
-  private lostSince: number | null = null;
-  private livenessTimer: NodeJS.Timeout | null = null;
   private maxInflightSeen = 0;
 
   constructor(opts: PublisherOptions) {
@@ -190,12 +99,57 @@ export class MqttPublisher {
     this.log = opts.log;
     this.commands = opts.settings.commandToken ? opts.commands : undefined;
     this.extraHealth = opts.health ?? (() => ({}));
-    this.connectFn = opts.connect ?? mqttConnect;
     this.now = opts.now ?? Date.now;
-    this.random = opts.random ?? Math.random;
     this.version = opts.agentVersion ?? '0.0.0';
     this.burst = new BurstLog(opts.log, { nowMs: this.now, quietMs: Infinity });
-    this.protocol = new ProtocolChoice(this.now);
+    const s = this.s;
+    const backoff = () =>
+      `with backoff (${s.reconnectMinMs / 1000} s up to ${s.reconnectMaxMs / 1000} s); events wait in the outbox`;
+    this.conn = new BrokerConnection({
+      settings: s,
+      clientId: s.clientId,
+      log: opts.log,
+      connect: opts.connect ?? mqttConnect,
+      now: this.now,
+      random: opts.random ?? Math.random,
+      session: {
+        beginAttempt: () => {
+          this.sessionStartedTs = new Date(this.now()).toISOString();
+        },
+        will: () => ({
+          topic: s.topics.status,
+          payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))),
+          qos: 1,
+          retain: true,
+        }),
+        limitsKnown: (before) => this.onLimits(before),
+        connected: (c) => this.onConnect(c),
+        dropped: () => this.dropInflight(),
+        message: (c, topic, payload, packet) => this.onMessage(c, topic, payload, packet),
+      },
+      words: {
+        connected: () => ({ message: `connected to ${s.url}`, fields: { client_id: s.clientId } }),
+        reconnected: (failures) => `connected to ${s.url} after ${failures} failed attempt(s)`,
+        retrying: (wasConnected, reason) =>
+          wasConnected
+            ? `lost the connection to ${s.url}: ${reason}; reconnecting ${backoff()}`
+            : `cannot connect to ${s.url}: ${reason}; retrying ${backoff()}`,
+        fallback: (reason) =>
+          `the broker at ${s.url} does not take MQTT 5 (${reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`,
+      },
+    });
+  }
+
+  private get client(): MqttClient | null {
+    return this.conn.client;
+  }
+
+  private get connected(): boolean {
+    return this.conn.connected;
+  }
+
+  private get protoVersion(): 4 | 5 {
+    return this.conn.protocolVersion;
   }
 
   /** Starts connecting in the background. Returns at once; the broker may be down. */
@@ -203,14 +157,10 @@ export class MqttPublisher {
     if (this.started) throw new Error('publisher already started');
     this.started = true;
     this.startedAt = this.now();
-    // Before the first packet: mqtt-packet's process-wide caches must not grow over months (packet-cache.ts).
-    settleMqttPacketCaches();
     this.unsubscribeOutbox = this.outbox.onChange(() => this.pump());
     this.heartbeatTimer = setInterval(() => this.heartbeat(), this.s.heartbeatMs);
     this.heartbeatTimer.unref();
-    this.livenessTimer = setInterval(() => this.checkLiveness(), 1000);
-    this.livenessTimer.unref();
-    this.connectNow();
+    this.conn.start();
   }
 
   /** Adds the payload schema id and queues the event in the durable outbox. Never rejects. */
@@ -255,8 +205,8 @@ export class MqttPublisher {
   health(): LinkHealth & { connected: boolean } {
     return {
       connected: this.connected,
-      connects_total: this.counts.connects,
-      connect_failures_total: this.counts.connect_failures,
+      connects_total: this.conn.counts.connects,
+      connect_failures_total: this.conn.counts.connectFailures,
       events_published_total: this.counts.events_published,
       publish_timeouts_total: this.counts.publish_timeouts,
       live_sent_total: this.counts.live_sent,
@@ -278,55 +228,28 @@ export class MqttPublisher {
   } {
     return {
       protocol_version: this.protoVersion,
-      receive_maximum: this.limits.receiveMaximum,
-      maximum_packet_size: this.limits.maximumPacketSize,
+      receive_maximum: this.conn.limits.receiveMaximum,
+      maximum_packet_size: this.conn.limits.maximumPacketSize,
       inflight_window: this.window(),
       inflight_max_seen: this.maxInflightSeen,
-      refused_too_large_total: this.counts.refused_too_large,
-      stuck_replaced_total: this.counts.stuck_replaced,
+      refused_too_large_total: this.conn.counts.refusedTooLarge,
+      stuck_replaced_total: this.conn.counts.stuckReplaced,
     };
   }
 
   private window(): number {
-    return Math.max(1, Math.min(this.s.inflightWindow, this.limits.receiveMaximum ?? Infinity));
+    return Math.max(
+      1,
+      Math.min(this.s.inflightWindow, this.conn.limits.receiveMaximum ?? Infinity),
+    );
   }
 
   /** True (and said once per burst) when a message would pass the broker's Maximum Packet Size. */
   private tooLarge(topic: string, payloadBytes: number, qos: number, what: string): boolean {
-    const max = this.limits.maximumPacketSize;
-    if (max === null) return false;
-    const size = publishPacketBytes(topic, payloadBytes, qos, this.protoVersion, 16);
-    if (size <= max) return false;
-    this.counts.refused_too_large++;
-    this.burst.report(
-      'too-large',
-      `a ${what} message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (the broker would drop the connection). Raise the broker's max_packet_size or send less`,
-      { topic, bytes: size, max_bytes: max },
-      what,
-    );
-    return true;
-  }
-
-  private checkLiveness(): void {
-    const c = this.client;
-    if (!c || this.stopping) return;
-    if (this.connected && !c.connected) this.lostSince ??= this.now();
-    else this.lostSince = null;
-    const why = stuckReason(
-      c,
-      {
-        connected: this.connected,
-        attemptAtMs: this.attemptAt,
-        connectTimeoutMs: this.s.connectTimeoutMs,
-        keepaliveS: this.s.keepaliveS,
-        lostSinceMs: this.lostSince,
-      },
-      this.now(),
-    );
-    if (!why) return;
-    this.counts.stuck_replaced++;
-    this.lastError = Object.assign(new Error(why), { code: 'STUCK' });
-    this.onClose(c);
+    return this.conn.tooLarge(topic, payloadBytes, qos, 16, (size, max) => ({
+      message: `a ${what} message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (the broker would drop the connection). Raise the broker's max_packet_size or send less`,
+      kind: what,
+    }));
   }
 
   /** Waits until the outbox is empty (true) or `timeoutMs` has passed (false). */
@@ -341,18 +264,12 @@ export class MqttPublisher {
 
   /** Publishes the retained "stopped" status, disconnects cleanly and stops reconnecting. */
   async stop(): Promise<void> {
-    if (this.stopping) return;
-    this.stopping = true;
+    if (this.conn.stopping) return;
     if (this.heartbeatTimer) clearInterval(this.heartbeatTimer);
-    if (this.livenessTimer) clearInterval(this.livenessTimer);
-    if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
-    this.heartbeatTimer = this.reconnectTimer = null;
+    this.heartbeatTimer = null;
     this.unsubscribeOutbox?.();
-    const c = this.client;
-    if (!c) return;
-    const wasConnected = this.connected;
-    if (wasConnected) {
-      await withTimeout(
+    await this.conn.stop(
+      (c) =>
         new Promise<void>((r) =>
           c.publish(
             this.s.topics.status,
@@ -361,14 +278,7 @@ export class MqttPublisher {
             () => r(),
           ),
         ),
-        STOP_WAIT_MS,
-      );
-    }
-    this.dropClient(c);
-    // A clean DISCONNECT (so the broker does not publish the last-will) only makes sense when connected.
-    if (wasConnected)
-      await withTimeout(new Promise<void>((r) => c.end(false, {}, () => r())), STOP_WAIT_MS);
-    c.end(true);
+    );
   }
 
   private status(online: boolean, reason: StatusPayload['reason']): StatusPayload {
@@ -382,68 +292,25 @@ export class MqttPublisher {
     };
   }
 
-  private connectNow(): void {
-    this.reconnectTimer = null;
-    if (this.stopping) return;
-    this.lastError = null;
-    this.sessionStartedTs = new Date(this.now()).toISOString();
-    this.protoVersion = this.protocol.version;
-    this.attemptAt = this.now();
-    this.gotConnack = false;
-    this.lostSince = null;
-    const opts = clientOptions(this.s, this.s.clientId, this.protoVersion, {
-      topic: this.s.topics.status,
-      payload: Buffer.from(JSON.stringify(this.status(false, 'connection lost'))),
-      qos: 1,
-      retain: true,
-    });
-    let c: MqttClient;
-    try {
-      c = this.connectFn(this.s.url, opts);
-    } catch (e) {
-      this.lastError = e;
-      this.scheduleReconnect(false);
-      return;
-    }
-    this.client = c;
-    c.on('error', (e) => {
-      if (c === this.client) this.lastError = e;
-    });
-    c.on('connect', (connack) => this.onConnect(c, connack));
-    c.on('close', () => this.onClose(c));
-    c.on('message', (topic, payload, packet) => this.onMessage(c, topic, payload, packet));
-  }
-
-  private onConnect(c: MqttClient, connack?: IConnackPacket): void {
-    if (c !== this.client) return;
-    this.gotConnack = true;
-    const before = this.limits;
-    this.limits = brokerLimits(connack);
+  /** The CONNACK's limits, said when they differ from the last ones. */
+  private onLimits(before: BrokerLimits): void {
+    const limits = this.conn.limits;
     if (
-      this.limits.receiveMaximum !== before.receiveMaximum ||
-      this.limits.maximumPacketSize !== before.maximumPacketSize
+      limits.receiveMaximum !== before.receiveMaximum ||
+      limits.maximumPacketSize !== before.maximumPacketSize
     ) {
       this.log.info(
         {
           protocol_version: this.protoVersion,
-          receive_maximum: this.limits.receiveMaximum,
-          maximum_packet_size: this.limits.maximumPacketSize,
+          receive_maximum: limits.receiveMaximum,
+          maximum_packet_size: limits.maximumPacketSize,
         },
-        `broker limits (MQTT ${this.protoVersion === 5 ? '5' : '3.1.1'}): receive maximum ${this.limits.receiveMaximum ?? 'not given'}, maximum packet size ${this.limits.maximumPacketSize ?? 'not given'}; events in flight at most ${this.window()}`,
+        `broker limits (MQTT ${this.protoVersion === 5 ? '5' : '3.1.1'}): receive maximum ${limits.receiveMaximum ?? 'not given'}, maximum packet size ${limits.maximumPacketSize ?? 'not given'}; events in flight at most ${this.window()}`,
       );
     }
-    this.connected = true;
-    this.connectedAt = this.now();
-    this.counts.connects++;
-    if (
-      !this.burst.resolved(
-        'connect',
-        `connected to ${this.s.url} after ${this.failures} failed attempt(s)`,
-        { client_id: this.s.clientId },
-      )
-    ) {
-      this.log.info({ client_id: this.s.clientId }, `connected to ${this.s.url}`);
-    }
+  }
+
+  private onConnect(c: MqttClient): void {
     c.publish(
       this.s.topics.status,
       JSON.stringify(this.status(true, 'connected')),
@@ -464,55 +331,10 @@ export class MqttPublisher {
     this.pump();
   }
 
-  private onClose(c: MqttClient): void {
-    if (c !== this.client) return;
-    const wasConnected = this.connected;
-    this.dropClient(c);
-    forceEnd(c);
-    if (this.stopping) return;
-    if (
-      !wasConnected &&
-      this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)
-    ) {
-      this.log.info(
-        { url: this.s.url },
-        `the broker at ${this.s.url} does not take MQTT 5 (${describeConnectError(this.lastError).reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`,
-      );
-      this.reconnectTimer = setTimeout(
-        () => this.connectNow(),
-        Math.min(this.s.reconnectMinMs, 500),
-      );
-      return;
-    }
-    if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
-    this.scheduleReconnect(wasConnected);
-  }
-
-  /** Forgets a client: not connected, nothing in flight (unacknowledged events are resent from the outbox). */
-  private dropClient(c: MqttClient): void {
-    if (c !== this.client) return;
-    this.client = null;
-    this.connected = false;
+  /** The client is gone: nothing in flight (unacknowledged events are resent from the outbox). */
+  private dropInflight(): void {
     for (const f of this.inflight.values()) clearTimeout(f.timer);
     this.inflight.clear();
-  }
-
-  private scheduleReconnect(wasConnected: boolean): void {
-    const { kind, reason } = describeConnectError(this.lastError);
-    if (!wasConnected) this.counts.connect_failures++;
-    const delay = reconnectDelayMs(
-      this.failures,
-      this.s.reconnectMinMs,
-      this.s.reconnectMaxMs,
-      this.random,
-    );
-    this.failures++;
-    const backoff = `with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s); events wait in the outbox`;
-    const message = wasConnected
-      ? `lost the connection to ${this.s.url}: ${reason}; reconnecting ${backoff}`
-      : `cannot connect to ${this.s.url}: ${reason}; retrying ${backoff}`;
-    this.burst.report('connect', message, { client_id: this.s.clientId }, kind);
-    this.reconnectTimer = setTimeout(() => this.connectNow(), delay);
   }
 
   /** Feeds the client from the outbox, in order, keeping at most `inflightWindow` unacknowledged. */
@@ -558,7 +380,7 @@ export class MqttPublisher {
   }): void {
     this.outbox.ack(ev.seq);
     const bytes = Buffer.byteLength(ev.json);
-    const max = this.limits.maximumPacketSize;
+    const max = this.conn.limits.maximumPacketSize;
     void this.queueEvent({
       id: `mqtt-refused-${ev.id}`.slice(0, 128),
       ts: new Date(this.now()).toISOString(),
@@ -576,13 +398,15 @@ export class MqttPublisher {
   private onPublishTimeout(c: MqttClient): void {
     if (c !== this.client) return;
     this.counts.publish_timeouts++;
-    this.lastError = Object.assign(
-      new Error(
-        `an event was not acknowledged within ${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`,
+    this.conn.fail(
+      c,
+      Object.assign(
+        new Error(
+          `an event was not acknowledged within ${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`,
+        ),
+        { code: 'PUBLISH_TIMEOUT' },
       ),
-      { code: 'PUBLISH_TIMEOUT' },
     );
-    this.onClose(c);
   }
 
   private onMessage(c: MqttClient, topic: string, payload: Buffer, packet?: IPublishPacket): void {
@@ -614,7 +438,7 @@ export class MqttPublisher {
       asset: this.asset,
       ts: new Date(t).toISOString(),
       uptime_s: Math.round((t - this.startedAt) / 100) / 10,
-      connected_s: Math.round((t - this.connectedAt) / 100) / 10,
+      connected_s: Math.round((t - this.conn.connectedAt) / 100) / 10,
       outbox: this.outbox.health(),
       mqtt: link,
       agent: this.extraHealth(),
@@ -628,14 +452,4 @@ export class MqttPublisher {
         : undefined;
     c.publish(this.s.topics.heartbeat, body, { qos: 0, properties }, () => {});
   }
-}
-
-function withTimeout(p: Promise<void>, ms: number): Promise<void> {
-  return new Promise((resolve) => {
-    const t = setTimeout(resolve, ms);
-    void p.then(() => {
-      clearTimeout(t);
-      resolve();
-    });
-  });
 }

@@ -8,28 +8,12 @@ import {
   writeSync,
 } from 'node:fs';
 import { dirname } from 'node:path';
-import {
-  connect as mqttConnect,
-  type IClientOptions,
-  type IConnackPacket,
-  type MqttClient,
-} from 'mqtt';
-import {
-  brokerLimits,
-  forceEnd,
-  ProtocolChoice,
-  publishPacketBytes,
-  stuckReason,
-  type BrokerLimits,
-} from '../link-habits.js';
+import { connect as mqttConnect, type MqttClient } from 'mqtt';
+import { BrokerConnection, type ConnectFn } from '../broker-connection.js';
 import type { AgentEvent } from '../../events.js';
 import type { AddOutcome, Outbox } from '../../outbox/outbox.js';
 import type { Logger } from '../../log.js';
 import { BurstLog } from '../../burst-log.js';
-import { reconnectDelayMs } from '../backoff.js';
-import { settleMqttPacketCaches } from '../packet-cache.js';
-import { describeConnectError, type ConnectFn } from '../publisher.js';
-import { clientOptions } from '../client-options.js';
 import type { MqttSettings } from '../settings.js';
 import {
   EVENT_METRIC,
@@ -67,6 +51,10 @@ import { DataType, SparkplugCodec, type MetricMsg, type PayloadMsg } from './pro
  * Delivery of events: Sparkplug requires QoS 0 for DDATA, so an event counts as sent once mqtt.js
  * has written it to the socket; the JSON event topic (QoS 1, deleted on PUBACK) stays the
  * at-least-once path when both are on.
+ *
+ * The connection itself (attempts, protocol level, broker limits, backoff, liveness, orderly stop)
+ * is a BrokerConnection (../broker-connection.ts), as the JSON publisher's is; this class keeps the
+ * births, data, deaths, bdSeq, aliases, rebirth and the primary host's STATE.
  */
 
 export interface SparkplugIds {
@@ -181,8 +169,6 @@ export interface SparkplugHealth {
 
 export const NAMESPACE = 'spBv1.0';
 const REBIRTH = 'Node Control/Rebirth';
-const STABLE_MS = 10_000;
-const STOP_WAIT_MS = 2000;
 /** Event DDATA and value DDATA wait while this many bytes sit unsent in the socket. */
 const BACKLOG_BYTES = 64 * 1024;
 
@@ -213,26 +199,18 @@ export class SparkplugNode {
   private readonly store: BdSeqStore;
   private readonly log: Logger;
   private readonly burst: BurstLog;
-  private readonly connectFn: ConnectFn;
   private readonly now: () => number;
-  private readonly random: () => number;
   private readonly version: string;
   private readonly hostWaitReportMs: number;
+  private readonly conn: BrokerConnection;
 
-  private client: MqttClient | null = null;
-  private connected = false;
-  private connectedAt = 0;
   private born = false;
   private bdSeq = 0;
   private seq = 0;
-  private failures = 0;
-  private lastError: unknown = null;
   private hostOnline: boolean | null = null;
   private hostTs = -Infinity;
   private started = false;
-  private stopping = false;
   private sending = false;
-  private reconnectTimer: NodeJS.Timeout | null = null;
   private hostTimer: NodeJS.Timeout | null = null;
   private unsubscribeOutbox: (() => void) | null = null;
   /** Current values (kept while offline, so a birth always carries the latest). */
@@ -242,22 +220,12 @@ export class SparkplugNode {
   /** Ids of events queued while born in this session: sent as live; every other event is historical. */
   private readonly liveIds = new Set<string>();
   private readonly counts = {
-    connects: 0,
     births: 0,
     rebirths: 0,
     messages: 0,
     events: 0,
     refused: 0,
-    too_large: 0,
-    stuck: 0,
   };
-  private readonly protocol: ProtocolChoice;
-  private protoVersion: 4 | 5 = 5;
-  private limits: BrokerLimits = { receiveMaximum: null, maximumPacketSize: null };
-  private attemptAt = 0;
-  private gotConnack = false;
-  private lostSince: number | null = null;
-  private livenessTimer: NodeJS.Timeout | null = null;
 
   constructor(o: SparkplugNodeOptions) {
     this.s = o.mqtt;
@@ -270,24 +238,65 @@ export class SparkplugNode {
     this.outbox = o.outbox;
     this.store = o.bdSeq;
     this.log = o.log;
-    this.connectFn = o.connect ?? mqttConnect;
     this.now = o.now ?? Date.now;
-    this.random = o.random ?? Math.random;
     this.version = o.agentVersion ?? '0.0.0';
     this.hostWaitReportMs = o.hostWaitReportMs ?? 10_000;
     this.burst = new BurstLog(o.log, { nowMs: this.now, quietMs: Infinity });
     this.topics = sparkplugTopics(o.ids);
-    this.protocol = new ProtocolChoice(this.now);
+    const s = this.s;
+    this.conn = new BrokerConnection({
+      settings: s,
+      clientId: o.ids.clientId,
+      log: o.log,
+      connect: o.connect ?? mqttConnect,
+      now: this.now,
+      random: o.random ?? Math.random,
+      session: {
+        beginAttempt: () => {
+          this.bdSeq = this.store.next();
+        },
+        will: () => ({
+          topic: this.topics.ndeath,
+          payload: this.deathPayload(),
+          qos: 1,
+          retain: false,
+        }),
+        connected: (c) => this.onConnect(c),
+        dropped: () => this.onDropped(),
+        message: (c, topic, payload) => this.onMessage(c, topic, payload),
+      },
+      words: {
+        connected: () => ({
+          message: `Sparkplug session connected to ${s.url} (bdSeq ${this.bdSeq})`,
+          fields: { client_id: o.ids.clientId, bdseq: this.bdSeq },
+        }),
+        reconnected: (failures) =>
+          `Sparkplug session connected to ${s.url} after ${failures} failed attempt(s) (bdSeq ${this.bdSeq})`,
+        retrying: (wasConnected, reason) =>
+          `${
+            wasConnected
+              ? `lost the Sparkplug session to ${s.url}: ${reason}`
+              : `cannot open the Sparkplug session to ${s.url}: ${reason}`
+          }; retrying with backoff (${s.reconnectMinMs / 1000} s up to ${s.reconnectMaxMs / 1000} s), each CONNECT with the next bdSeq`,
+        fallback: () =>
+          `the broker at ${s.url} does not take MQTT 5; the Sparkplug session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`,
+      },
+    });
+  }
+
+  private get client(): MqttClient | null {
+    return this.conn.client;
+  }
+
+  private get connected(): boolean {
+    return this.conn.connected;
   }
 
   start(): void {
     if (this.started) throw new Error('Sparkplug node already started');
     this.started = true;
-    settleMqttPacketCaches();
     this.unsubscribeOutbox = this.outbox.onChange(() => this.pump());
-    this.livenessTimer = setInterval(() => this.checkLiveness(), 1000);
-    this.livenessTimer.unref();
-    this.connectNow();
+    this.conn.start();
   }
 
   /** New current values (from a window); publishes a DDATA with those that changed when the session is born. */
@@ -318,15 +327,15 @@ export class SparkplugNode {
       born: this.born,
       primary_host_online: this.ids.primaryHostId ? this.hostOnline : null,
       bdseq: this.bdSeq,
-      connects_total: this.counts.connects,
+      connects_total: this.conn.counts.connects,
       births_total: this.counts.births,
       rebirths_total: this.counts.rebirths,
       messages_total: this.counts.messages,
       events_sent_total: this.counts.events,
       commands_refused_total: this.counts.refused,
-      protocol_version: this.protoVersion,
-      refused_too_large_total: this.counts.too_large,
-      stuck_replaced_total: this.counts.stuck,
+      protocol_version: this.conn.protocolVersion,
+      refused_too_large_total: this.conn.counts.refusedTooLarge,
+      stuck_replaced_total: this.conn.counts.stuckReplaced,
     };
   }
 
@@ -346,33 +355,21 @@ export class SparkplugNode {
 
   /** DDEATH and NDEATH when born, then DISCONNECT (so the broker does not publish the will), and no more reconnects. */
   async stop(): Promise<void> {
-    if (this.stopping) return;
-    this.stopping = true;
-    if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
+    if (this.conn.stopping) return;
     if (this.hostTimer) clearTimeout(this.hostTimer);
-    if (this.livenessTimer) clearInterval(this.livenessTimer);
     this.unsubscribeOutbox?.();
-    const c = this.client;
-    if (!c) return;
-    if (this.connected) {
-      if (this.born) this.send(this.topics.ddeath, { timestamp: this.now(), metrics: [] });
-      this.born = false;
-      await withTimeout(
-        new Promise<void>((resolve) =>
+    await this.conn.stop(
+      (c) => {
+        if (this.born) this.send(this.topics.ddeath, { timestamp: this.now(), metrics: [] });
+        this.born = false;
+        return new Promise<void>((resolve) =>
           c.publish(this.topics.ndeath, this.deathPayload(), { qos: 1, retain: false }, () =>
             resolve(),
           ),
-        ),
-        STOP_WAIT_MS,
-      );
-    }
-    this.client = null;
-    this.connected = false;
-    await withTimeout(
-      new Promise<void>((resolve) => c.end(false, {}, () => resolve())),
-      STOP_WAIT_MS,
+        );
+      },
+      { alwaysDisconnect: true },
     );
-    c.end(true);
   }
 
   // --- session -------------------------------------------------------------------------------
@@ -387,60 +384,10 @@ export class SparkplugNode {
     });
   }
 
-  private connectNow(): void {
-    this.reconnectTimer = null;
-    if (this.stopping) return;
-    this.lastError = null;
-    this.bdSeq = this.store.next();
-    this.protoVersion = this.protocol.version;
-    this.attemptAt = this.now();
-    this.gotConnack = false;
-    this.lostSince = null;
-    const opts = clientOptions(this.s, this.ids.clientId, this.protoVersion, {
-      topic: this.topics.ndeath,
-      payload: this.deathPayload(),
-      qos: 1,
-      retain: false,
-    });
-    let c: MqttClient;
-    try {
-      c = this.connectFn(this.s.url, opts);
-    } catch (e) {
-      this.lastError = e;
-      this.scheduleReconnect(false);
-      return;
-    }
-    this.client = c;
-    c.on('error', (e) => {
-      if (c === this.client) this.lastError = e;
-    });
-    c.on('connect', (connack) => this.onConnect(c, connack));
-    c.on('close', () => this.onClose(c));
-    c.on('message', (topic, payload) => this.onMessage(c, topic, payload));
-  }
-
-  private onConnect(c: MqttClient, connack?: IConnackPacket): void {
-    if (c !== this.client) return;
-    this.gotConnack = true;
-    this.limits = brokerLimits(connack);
-    this.connected = true;
-    this.connectedAt = this.now();
-    this.counts.connects++;
+  private onConnect(c: MqttClient): void {
     this.born = false;
     this.hostOnline = null;
     this.hostTs = -Infinity;
-    if (
-      !this.burst.resolved(
-        'connect',
-        `Sparkplug session connected to ${this.s.url} after ${this.failures} failed attempt(s) (bdSeq ${this.bdSeq})`,
-        { client_id: this.ids.clientId },
-      )
-    ) {
-      this.log.info(
-        { client_id: this.ids.clientId, bdseq: this.bdSeq },
-        `Sparkplug session connected to ${this.s.url} (bdSeq ${this.bdSeq})`,
-      );
-    }
     const filters = [
       this.topics.ncmd,
       this.topics.dcmd,
@@ -474,54 +421,12 @@ export class SparkplugNode {
     this.hostTimer.unref();
   }
 
-  private onClose(c: MqttClient): void {
-    if (c !== this.client) return;
-    const wasConnected = this.connected;
-    this.client = null;
-    this.connected = false;
+  /** The client is gone: no session, nothing being sent, every waiting event historical from now on. */
+  private onDropped(): void {
     this.born = false;
     this.sending = false;
     this.liveIds.clear();
     if (this.hostTimer) clearTimeout(this.hostTimer);
-    forceEnd(c);
-    if (this.stopping) return;
-    if (
-      !wasConnected &&
-      this.protocol.attemptFailed(this.protoVersion, this.lastError, this.gotConnack)
-    ) {
-      this.log.info(
-        { url: this.s.url },
-        `the broker at ${this.s.url} does not take MQTT 5; the Sparkplug session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`,
-      );
-      this.reconnectTimer = setTimeout(
-        () => this.connectNow(),
-        Math.min(this.s.reconnectMinMs, 500),
-      );
-      return;
-    }
-    if (wasConnected && this.now() - this.connectedAt >= STABLE_MS) this.failures = 0;
-    this.scheduleReconnect(wasConnected);
-  }
-
-  private scheduleReconnect(wasConnected: boolean): void {
-    const { kind, reason } = describeConnectError(this.lastError);
-    const delay = reconnectDelayMs(
-      this.failures,
-      this.s.reconnectMinMs,
-      this.s.reconnectMaxMs,
-      this.random,
-    );
-    this.failures++;
-    const what = wasConnected
-      ? `lost the Sparkplug session to ${this.s.url}: ${reason}`
-      : `cannot open the Sparkplug session to ${this.s.url}: ${reason}`;
-    this.burst.report(
-      'connect',
-      `${what}; retrying with backoff (${this.s.reconnectMinMs / 1000} s up to ${this.s.reconnectMaxMs / 1000} s), each CONNECT with the next bdSeq`,
-      { client_id: this.ids.clientId },
-      kind,
-    );
-    this.reconnectTimer = setTimeout(() => this.connectNow(), delay);
   }
 
   /** NBIRTH then DBIRTH: every metric with its current value; seq starts again at 0. */
@@ -570,28 +475,6 @@ export class SparkplugNode {
     this.pump();
   }
 
-  private checkLiveness(): void {
-    const c = this.client;
-    if (!c || this.stopping) return;
-    if (this.connected && !c.connected) this.lostSince ??= this.now();
-    else this.lostSince = null;
-    const why = stuckReason(
-      c,
-      {
-        connected: this.connected,
-        attemptAtMs: this.attemptAt,
-        connectTimeoutMs: this.s.connectTimeoutMs,
-        keepaliveS: this.s.keepaliveS,
-        lostSinceMs: this.lostSince,
-      },
-      this.now(),
-    );
-    if (!why) return;
-    this.counts.stuck++;
-    this.lastError = Object.assign(new Error(why), { code: 'STUCK' });
-    this.onClose(c);
-  }
-
   /**
    * Publishes one Sparkplug message at QoS 0, retain false, with the next seq. A message over the
    * broker's maximum packet size is not sent (the broker would drop the session) and does not use
@@ -602,20 +485,11 @@ export class SparkplugNode {
     if (!c) return false;
     const seq = this.seq;
     const bytes = this.codec.encode({ ...p, seq });
-    const max = this.limits.maximumPacketSize;
-    if (max !== null) {
-      const size = publishPacketBytes(topic, bytes.length, 0, this.protoVersion);
-      if (size > max) {
-        this.counts.too_large++;
-        this.burst.report(
-          'too-large',
-          `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (raise the broker's max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`,
-          { topic, bytes: size, max_bytes: max },
-          topic.split('/')[2],
-        );
-        return false;
-      }
-    }
+    const refused = this.conn.tooLarge(topic, bytes.length, 0, 0, (size, max) => ({
+      message: `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (raise the broker's max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`,
+      kind: topic.split('/')[2],
+    }));
+    if (refused) return false;
     this.seq = (this.seq + 1) % 256;
     this.counts.messages++;
     c.publish(topic, bytes, { qos: 0, retain: false }, (err) => cb?.(err ?? undefined));
@@ -796,14 +670,4 @@ export class SparkplugNode {
       );
     }
   }
-}
-
-function withTimeout(p: Promise<void>, ms: number): Promise<void> {
-  return new Promise((resolve) => {
-    const t = setTimeout(resolve, ms);
-    void p.then(() => {
-      clearTimeout(t);
-      resolve();
-    });
-  });
 }
