@@ -137,7 +137,9 @@ export const dspSchema = z
       .min(32)
       .max(4096)
       .default(256)
-      .describe('Points per revolution in the angle domain.'),
+      .describe(
+        'Angle bins per revolution for synchronous averaging; each bin holds the mean of the signal over it.',
+      ),
     orders: z
       .array(z.number().int().min(1).max(100))
       .min(1)

@@ -257,11 +257,12 @@ export class Analyzer {
     let lastNeeded = -Infinity;
     for (const c of this.chans) {
       const s = this.shiftOf(c);
-      const from = Math.floor(start + s);
+      const { from, to } = c.avg.reach(start + s, end + s);
       if (from < 0 || from < c.ring.end - c.ring.data.length) return;
-      lastNeeded = Math.max(lastNeeded, Math.ceil(end + s));
+      lastNeeded = Math.max(lastNeeded, to);
     }
-    // With a declared delay the revolution's last samples may not have arrived yet: wait for them.
+    // With a declared delay, or an edge within half a bin of the block's end, the revolution's last
+    // samples may not have arrived yet: wait for them.
     if (lastNeeded >= (this.chans[0]?.ring.end ?? 0)) {
       if (this.pendingCount === this.pendingStart.length) return; // cannot happen with delays <= 1024 ticks; never grows
       const k = (this.pendingHead + this.pendingCount) % this.pendingStart.length;
@@ -282,7 +283,8 @@ export class Analyzer {
       let ready = true;
       for (const c of this.chans) {
         const s = this.shiftOf(c);
-        if (!c.ring.holds(Math.floor(start + s), Math.ceil(end + s))) ready = false;
+        const { from, to } = c.avg.reach(start + s, end + s);
+        if (!c.ring.holds(from, to)) ready = false;
       }
       if (!ready && !gap) return;
       this.pendingHead = (this.pendingHead + 1) % cap;
