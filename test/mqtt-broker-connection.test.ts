@@ -9,6 +9,7 @@ import {
   type ConnectionSession,
 } from '../agent/mqtt/broker-connection.js';
 import { resolveMqttSettings, type MqttSettings } from '../agent/mqtt/settings.js';
+import { aedesBroker } from './support/aedes.js';
 import { CaptureLog } from './support/capture-log.js';
 import { testResources, uniquePrefix, until } from './support/harness.js';
 import { freePort, Mosquitto, plainBroker } from './support/mosquitto.js';
@@ -223,15 +224,9 @@ describe('BrokerConnection: clients that never connect', () => {
 
 describe('BrokerConnection: protocol level', () => {
   it('falls back to 3.1.1 after a broker refuses MQTT 5 (aedes), says so once, and asks for 5 again an hour later', async () => {
-    const { Aedes } = await import('aedes');
-    const aedes = await Aedes.createBroker();
-    const server = createServer(aedes.handle);
-    await new Promise<void>((r) => server.listen(0, '127.0.0.1', () => r()));
-    res.defer(async () => {
-      await new Promise<void>((r) => aedes.close(() => r()));
-      await new Promise<void>((r) => server.close(() => r()));
-    });
-    const url = `mqtt://127.0.0.1:${(server.address() as AddressInfo).port}`;
+    const aedes = await aedesBroker();
+    res.defer(() => aedes.close());
+    const url = aedes.url;
     const log = new CaptureLog();
     let t = 1_700_000_000_000;
     const { conn, attempts } = open({

@@ -1,4 +1,3 @@
-import { createServer, type AddressInfo } from 'node:net';
 import { connect as mqttConnect, type MqttClient } from 'mqtt';
 import { describe, expect, it } from 'vitest';
 import { mqttSchema } from '../agent/config/mqtt.js';
@@ -6,6 +5,7 @@ import type { AgentEvent } from '../agent/events.js';
 import { reconnectDelayMs } from '../agent/mqtt/backoff.js';
 import { publishPacketBytes } from '../agent/mqtt/link-habits.js';
 import { openPlantLink, type PlantLink } from '../agent/mqtt/plant-link.js';
+import { aedesBroker } from './support/aedes.js';
 import { CaptureLog } from './support/capture-log.js';
 import { testResources, uniquePrefix, until } from './support/harness.js';
 import { Mosquitto } from './support/mosquitto.js';
@@ -197,15 +197,9 @@ describe('MQTT 5 and the broker limits (mosquitto with small limits)', () => {
   }, 30_000);
 
   it('falls back to MQTT 3.1.1 with a broker that does not speak 5 (aedes), and says so once', async () => {
-    const { Aedes } = await import('aedes');
-    const aedes = await Aedes.createBroker();
-    const server = createServer(aedes.handle);
-    await new Promise<void>((r) => server.listen(0, '127.0.0.1', () => r()));
-    res.defer(async () => {
-      await new Promise<void>((r) => aedes.close(() => r()));
-      await new Promise<void>((r) => server.close(() => r()));
-    });
-    const url = `mqtt://127.0.0.1:${(server.address() as AddressInfo).port}`;
+    const aedes = await aedesBroker();
+    res.defer(() => aedes.close());
+    const url = aedes.url;
     const prefix = uniquePrefix();
     const sub = await TestSubscriber.open(url, [`${prefix}/#`]);
     res.defer(() => sub.close());

@@ -28,7 +28,7 @@ import { fileURLToPath } from 'node:url';
 import { getHeapSpaceStatistics } from 'node:v8';
 import { connect } from 'mqtt';
 import { parse } from 'yaml';
-import { Aedes } from 'aedes';
+import { aedesBroker as broker } from '../support/aedes.js';
 import { createSource } from '../../drivers/create-source.js';
 import { systemClock } from '../../agent/clock.js';
 import { validateConfig } from '../../agent/config/load.js';
@@ -47,20 +47,6 @@ const strArg = (name: string) => {
   const i = process.argv.indexOf(`--${name}`);
   return i > 0 ? process.argv[i + 1] : undefined;
 };
-
-async function broker(port = 0): Promise<{ url: string; close(): Promise<void> }> {
-  const aedes = await Aedes.createBroker();
-  const server = createServer(aedes.handle);
-  await new Promise<void>((r) => server.listen(port, '127.0.0.1', () => r()));
-  const p = (server.address() as { port: number }).port;
-  return {
-    url: `mqtt://127.0.0.1:${p}`,
-    close: async () => {
-      await new Promise<void>((r) => aedes.close(() => r()));
-      await new Promise<void>((r) => server.close(() => r()));
-    },
-  };
-}
 
 function config(over: Record<string, unknown>) {
   const raw = parse(readFileSync(configFile, 'utf8')) as Record<string, unknown>;
