@@ -82,7 +82,10 @@ export class BurstLog {
     return true;
   }
 
-  /** The problem under `key` is over: logs `message` with the count and duration. False when no burst was open. */
+  /**
+   * The problem under `key` is over: logs `message` with the count and duration. False when no
+   * burst was open.
+   */
   resolved(key: string, message: string, fields: Record<string, unknown> = {}): boolean {
     const b = this.bursts.get(key);
     if (!b) return false;
@@ -98,7 +101,10 @@ export class BurstLog {
     return this.bursts.has(key);
   }
 
-  /** Writes progress and end-of-burst summaries that are due; `endAll` ends every burst now (shutdown). */
+  /**
+   * Writes progress and end-of-burst summaries that are due; `endAll` ends every burst now
+   * (shutdown).
+   */
   flush(endAll = false): void {
     const now = this.nowMs();
     for (const [key, b] of this.bursts) {
@@ -106,7 +112,9 @@ export class BurstLog {
       else if (b.unlogged > 0 && now - b.lastSummaryMs >= this.summaryEveryMs) {
         this.log.warn(
           { problem: key, occurrences: b.count, since_last_line: b.unlogged },
-          `"${key}" still happening: ${b.unlogged} more in the last ${((now - b.lastSummaryMs) / 1000).toFixed(0)} s (${b.count} in this burst); last: ${b.lastDetail}`,
+          `"${key}" still happening: ${b.unlogged} more in the ` +
+            `last ${((now - b.lastSummaryMs) / 1000).toFixed(0)} s ` +
+            `(${b.count} in this burst); last: ${b.lastDetail}`,
         );
         b.unlogged = 0;
         b.lastSummaryMs = now;
@@ -114,14 +122,17 @@ export class BurstLog {
     }
   }
 
-  /** Ends a burst that went quiet or gave way to another kind; a single occurrence needs no summary. */
+  /**
+   * Ends a burst that went quiet or gave way to another kind; a single occurrence needs no summary.
+   */
   private end(key: string, b: Burst): void {
     this.bursts.delete(key);
     if (b.count < 2) return;
     const lasted = this.lastedS(b, b.lastMs);
     this.log.info(
       { problem: key, occurrences: b.count, lasted_s: lasted },
-      `"${key}" burst over: ${b.count} occurrence(s) in ${lasted.toFixed(1)} s; last: ${b.lastDetail}`,
+      `"${key}" burst over: ${b.count} occurrence(s) ` +
+        `in ${lasted.toFixed(1)} s; last: ${b.lastDetail}`,
     );
   }
 

@@ -1,7 +1,7 @@
 /**
  * The logging interface every part takes through its constructor. In production it is pino writing
- * to stdout with a syslog priority prefix so `journalctl -p warning` works (see deploy/); in tests a
- * recording fake. Structured fields first, message second, as pino does.
+ * to stdout with a syslog priority prefix so `journalctl -p warning` works (see deploy/); in tests
+ * a recording fake. Structured fields first, message second, as pino does.
  */
 export interface Logger {
   debug(fields: Record<string, unknown>, msg: string): void;

@@ -5,8 +5,9 @@ export const QUARANTINE_DIR = 'quarantine';
 
 /**
  * Where a damaged state file is moved instead of being deleted or stopping the agent:
- * `<its directory>/quarantine/<its name>.<UTC time with ':' and '.' as '-'>`, so a later damaged copy
- * never overwrites an earlier one. Used by the outbox (records) and the watcher (state, baseline, history).
+ * `<its directory>/quarantine/<its name>.<UTC time with ':' and '.' as '-'>`, so a later damaged
+ * copy never overwrites an earlier one. Used by the outbox (records) and the watcher (state,
+ * baseline, history).
  */
 export function quarantinePath(file: string, nowMs: number): string {
   return join(

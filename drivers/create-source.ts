@@ -29,8 +29,8 @@ export interface CreateSourceDeps {
 /**
  * The one place that turns the config's `acquisition` section into a sample source: a recording
  * (`wav`), the acquisition board on a serial port (`serial`) or the simulated fan (`sim`). Paths in
- * the section are relative to the config file's folder. Nothing is opened here: `source.open()` does
- * that and names what is wrong (a missing recording, an absent board is retried).
+ * the section are relative to the config file's folder. Nothing is opened here: `source.open()`
+ * does that and names what is wrong (a missing recording, an absent board is retried).
  */
 export function createSource(
   cfg: Config,
@@ -42,7 +42,8 @@ export function createSource(
     throw new UserError(
       `${configFile}: acquisition`,
       'the config says nowhere where the samples come from',
-      'add an acquisition section: driver wav (a recording), serial (the board) or sim (the simulated fan); see config/example.yaml and docs/acquisition.md',
+      'add an acquisition section: driver wav (a recording), serial (the board) ' +
+        'or sim (the simulated fan); see config/example.yaml and docs/acquisition.md',
     );
   }
   switch (a.driver) {
@@ -66,14 +67,18 @@ export function createSource(
   }
 }
 
-/** The absolute path of a file the section names, relative to the config's folder; a UserError naming the key when it is not there. */
+/**
+ * The absolute path of a file the section names, relative to the config's folder; a UserError
+ * naming the key when it is not there.
+ */
 function existingFile(configFile: string, key: string, path: string, what: string): string {
   const folder = dirname(resolve(configFile));
   const abs = resolve(folder, path);
   if (!existsSync(abs)) {
     throw new UserError(
       `${configFile}: acquisition.${key}`,
-      `${what} ${abs} not found (a relative path is taken from the config file's folder, ${folder})`,
+      `${what} ${abs} not found (a relative path is ` +
+        `taken from the config file's folder, ${folder})`,
       `fix acquisition.${key}, or put the ${what} there`,
     );
   }

@@ -1,6 +1,7 @@
 /**
  * Wall-clock pacing for sources that can make samples faster than a board would (recordings, the
- * simulator): a block is handed out when a board sampling at the source's rate would have finished it.
+ * simulator): a block is handed out when a board sampling at the source's rate would have finished
+ * it.
  */
 
 /** Wall clock for pacing; injected so tests can run without waiting. */
@@ -15,7 +16,10 @@ export const systemPacer: Pacer = {
   sleep: (ms) => new Promise((resolve) => setTimeout(resolve, ms)),
 };
 
-/** Waits until `samples` samples after `t0Ms` (a `pacer.now()` reading) are due at `sampleRate` per second. */
+/**
+ * Waits until `samples` samples after `t0Ms` (a `pacer.now()` reading) are due at `sampleRate` per
+ * second.
+ */
 export async function waitForSamples(
   pacer: Pacer,
   t0Ms: number,

@@ -10,7 +10,10 @@ export interface SampleBlock {
   readonly kind: 'samples';
   /** Sample-clock index of the first sample in this block. */
   readonly startIndex: number;
-  /** Volts, one array per acquisition channel, equal lengths. Valid until the next item is requested. */
+  /**
+   * Volts, one array per acquisition channel, equal lengths. Valid until the next item is
+   * requested.
+   */
   readonly channels: readonly Float32Array[];
   /**
    * Rising tach edges timed by the acquisition board, as fractional sample-clock indices

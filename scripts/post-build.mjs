@@ -66,5 +66,6 @@ try {
 }
 chmodSync(entry, 0o755);
 console.error(
-  `post-build: bundled the CLI into ${relative(root, dirname(entry))}/main.js and chunks/ (${BUNDLED.size} packages inlined: ${[...BUNDLED].join(', ')})`,
+  `post-build: bundled the CLI into ${relative(root, dirname(entry))}/main.js ` +
+    `and chunks/ (${BUNDLED.size} packages inlined: ${[...BUNDLED].join(', ')})`,
 );

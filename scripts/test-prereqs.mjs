@@ -6,7 +6,8 @@
 // the command that installs it, instead of minutes of failing tests.
 //
 // TURNWISE_TEST_PREREQS=check   only check, never install (also as root)
-// TURNWISE_PYTHON=/path/python3 the python3 the tests run (default: python3 on PATH, else /usr/bin/python3)
+// TURNWISE_PYTHON=/path/python3 the python3 the tests run (default: python3 on PATH, else
+// /usr/bin/python3)
 //
 // Plain JavaScript with no dependencies, run before `npm run build`, so it works on any Node.
 import { spawnSync } from 'node:child_process';
@@ -54,7 +55,10 @@ const PY_MODULES = [
  */
 function pythonMissing(python, env) {
   const names = PY_MODULES.map((m) => m.module);
-  const script = `import importlib.util, json, sys\ndef has(n):\n    try:\n        return importlib.util.find_spec(n) is not None\n    except ImportError:\n        return False\nprint(json.dumps([n for n in sys.argv[1:] if not has(n)]))`;
+  const script =
+    `import importlib.util, json, sys\ndef has(n):\n    try:\n` +
+    `        return importlib.util.find_spec(n) is not None\n    except ImportError:\n` +
+    `        return False\nprint(json.dumps([n for n in sys.argv[1:] if not has(n)]))`;
   const r = spawnSync(python, ['-c', script, ...names], { encoding: 'utf8', env, timeout: 30_000 });
   if (r.status !== 0) return null;
   return JSON.parse(r.stdout);
@@ -75,7 +79,9 @@ export function testPython(env = process.env) {
   return candidates.at(-1) ?? 'python3';
 }
 
-/** Tools the tests start, with the Debian package that provides each and what the tests use it for. */
+/**
+ * Tools the tests start, with the Debian package that provides each and what the tests use it for.
+ */
 const TOOLS = [
   {
     name: 'mosquitto',
@@ -171,8 +177,10 @@ export function nodeProblem(version = process.versions.node) {
     if ((have[i] ?? 0) !== (need[i] ?? 0)) {
       if ((have[i] ?? 0) > (need[i] ?? 0)) return null;
       return (
-        `${ME}: Node.js ${version} is too old; turnwise and its test tools need Node.js ${pkg.engines.node.replace(/^>=/, '')} or newer (${process.execPath})\n` +
-        `  -> install Node.js 20 LTS (20.19 or later) or 22, e.g. \`nvm install 20\` or the NodeSource/Debian nodejs 20 package, then run \`npm ci && npm test\` again\n`
+        `${ME}: Node.js ${version} is too old; turnwise and its test tools need Node.js ` +
+        `${pkg.engines.node.replace(/^>=/, '')} or newer (${process.execPath})\n` +
+        `  -> install Node.js 20 LTS (20.19 or later) or 22, e.g. \`nvm install 20\` or ` +
+        `the NodeSource/Debian nodejs 20 package, then run \`npm ci && npm test\` again\n`
       );
     }
   }
@@ -199,15 +207,19 @@ export function missingMessage(missing, why) {
     .map((m) => / \(in (.+)\)$/.exec(m.name)?.[1])
     .find((p) => p && p !== '/usr/bin/python3');
   return (
-    `${ME}: cannot run the tests: ${missing.length === 1 ? 'this tool they use is' : `these ${missing.length} tools they use are`} missing (${why}):\n` +
+    `${ME}: cannot run the tests: ` +
+    `${missing.length === 1 ? 'this tool they use is' : `these ${missing.length} tools they use are`} ` +
+    `missing (${why}):\n` +
     missing.map((m) => `  ${m.name.padEnd(w)}  ${m.why}; Debian package ${m.pkg}`).join('\n') +
     `\n  -> install ${missing.length === 1 ? 'it' : 'them'}, then run \`npm test\` again:\n` +
     `       sudo apt-get update && sudo ${installCommand(missing)}\n` +
     (aptLike
       ? ''
-      : "     (these are the Debian/Ubuntu package names; use the same tools from your system's packages)\n") +
+      : '     (these are the Debian/Ubuntu package names; ' +
+        "use the same tools from your system's packages)\n") +
     (otherPython
-      ? `     (Debian's python3-* packages install into /usr/bin/python3; ${otherPython} needs them from its own pip, or unset TURNWISE_PYTHON)\n`
+      ? `     (Debian's python3-* packages install into /usr/bin/python3; ` +
+        `${otherPython} needs them from its own pip, or unset TURNWISE_PYTHON)\n`
       : '')
   );
 }
@@ -237,7 +249,9 @@ export function main() {
       return 2;
     }
     process.stderr.write(
-      `${ME}: installing the Debian packages the tests need: ${packagesOf(missing).join(' ')} (missing: ${missing.map((m) => m.name).join(', ')})\n`,
+      `${ME}: installing the Debian packages the tests ` +
+        `need: ${packagesOf(missing).join(' ')} (missing: ` +
+        `${missing.map((m) => m.name).join(', ')})\n`,
     );
     const ok =
       run('apt-get', ['update', '-q']) &&
@@ -254,7 +268,10 @@ export function main() {
     }
   }
   process.stderr.write(
-    `${ME}: prerequisites OK (Node.js ${process.versions.node}, ${TOOLS.map((t) => t.name).join(', ')}, ${testPython()} with ${PY_MODULES.map((m) => m.module).join(', ')}) in ${((Date.now() - t0) / 1000).toFixed(1)} s\n`,
+    `${ME}: prerequisites OK (Node.js ${process.versions.node}, ` +
+      `${TOOLS.map((t) => t.name).join(', ')}, ${testPython()} with ` +
+      `${PY_MODULES.map((m) => m.module).join(', ')}) in ` +
+      `${((Date.now() - t0) / 1000).toFixed(1)} s\n`,
   );
   return 0;
 }

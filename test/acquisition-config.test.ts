@@ -163,7 +163,8 @@ describe('acquisition config section', () => {
     expect(() => validateConfig({ ...sensorOut, acquisition: serial }, 'f.yaml')).toThrow(
       /f\.yaml: sensors\[1\]\.channel: sensor NDE-V is on channel 8 but acquisition\.channels is 8 \(the board sends channels 0-7\)/,
     );
-    // the simulator makes the channels the config names; a recording's count is checked when it is opened
+    // the simulator makes the channels the config names; a recording's count is checked when it is
+    // opened
     expect(
       validateConfig({ ...sensorOut, acquisition: { driver: 'sim', scenario: 's.yaml' } }).sensors,
     ).toHaveLength(2);
@@ -180,7 +181,9 @@ describe('acquisition config section', () => {
       const r = runCli(['probe-serial', '--config', file]);
       expect(r.code).toBe(2);
       expect(r.stderr).toContain(
-        `${file}: acquisition.driver: is "sim", not "serial": there is no board device in this config\n  -> give the board with --device PATH, or use a config with acquisition.driver: serial`,
+        `${file}: acquisition.driver: is "sim", not "serial": there is no ` +
+          `board device in this config\n  -> give the board with --device ` +
+          `PATH, or use a config with acquisition.driver: serial`,
       );
       expectNoStack(r.stderr);
     } finally {

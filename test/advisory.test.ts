@@ -92,7 +92,8 @@ describe('vote counting', () => {
       channels: ['DE-V', 'DE-H'],
     });
     expect(countVotes(win(0, { deV: 'D', deH: 'C' }), s).met).toBe(false);
-    expect(countVotes(win(0, { deV: 'D', ndeV: 'D' }), s).met).toBe(false); // two bearings, one vote each
+    // two bearings, one vote each
+    expect(countVotes(win(0, { deV: 'D', ndeV: 'D' }), s).met).toBe(false);
   });
   it('never counts a channel that is not OK, and says which bearings cannot vote', () => {
     const v = countVotes(win(0, { deV: 'D', deH: 'D', deHok: false }), s);
@@ -210,7 +211,8 @@ describe('safe-stop advisory (fake GPIO lines, real state file)', () => {
     const first = await startAdvisory({ holdMs: 0 }, store);
     first.adv.update(win(0, { deV: 'D', deH: 'D' }));
     await first.adv.close();
-    expect(first.gpio.level('advisory relay')).toBe(false); // stopping drops the outputs, like a dead agent
+    // stopping drops the outputs, like a dead agent
+    expect(first.gpio.level('advisory relay')).toBe(false);
 
     const second = await startAdvisory({ holdMs: 0 }, store);
     expect(second.adv.state).toBe('latched');
@@ -397,7 +399,8 @@ describe('turnwise outputs-off (the command systemd runs after the agent stopped
       const cfg = join(d, 'fan.yaml');
       writeFileSync(
         cfg,
-        `${readFileSync('config/example.yaml', 'utf8')}\nadvisory: {relay: {line: ${RELAY}}, lamp: {line: ${LAMP}}}\n`,
+        `${readFileSync('config/example.yaml', 'utf8')}\n` +
+          `advisory: {relay: {line: ${RELAY}}, lamp: {line: ${LAMP}}}\n`,
       );
       const r = runCli(['outputs-off', '--config', cfg, '--last-good', join(d, 'none.yaml')]);
       expectNoStack(r.stderr);

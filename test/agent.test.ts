@@ -276,7 +276,8 @@ describe('turnwise agent end to end', () => {
     });
     expect(hb.agent['gpio_speed_rpm'] as number).toBeCloseTo(rpm * 1.1, 0);
     expect(hb.agent['gpio_speed_disagreements_total'] as number).toBeGreaterThanOrEqual(2);
-    // Every field the agent publishes is declared in the committed schema (so subscribers see its type).
+    // Every field the agent publishes is declared in the committed schema (so subscribers see its
+    // type).
     const schema = JSON.parse(
       readFileSync(
         join(import.meta.dirname, '..', 'config', 'schemas', 'mqtt', 'heartbeat.v1.schema.json'),
@@ -304,8 +305,9 @@ describe('turnwise agent end to end', () => {
 });
 
 /**
- * The agent on a state directory in trouble: no MQTT, no advisory, only the watcher's own files. The
- * fan runs 40 s in zone D (9 mm/s peak 1x = 6.4 mm/s r.m.s. > C/D 4.5 mm/s, ISO 20816-3 group 2 rigid).
+ * The agent on a state directory in trouble: no MQTT, no advisory, only the watcher's own files.
+ * The fan runs 40 s in zone D (9 mm/s peak 1x = 6.4 mm/s r.m.s. > C/D 4.5 mm/s, ISO 20816-3 group
+ * 2 rigid).
  */
 describe('turnwise agent on a faulty state directory', () => {
   const fs = 5120;
@@ -354,7 +356,8 @@ describe('turnwise agent on a faulty state directory', () => {
     const mnt = tryMountTmpfs();
     if (!mnt)
       return ctx.skip(
-        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); test/watcher-live.test.ts covers the same path with EISDIR',
+        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); ' +
+          'test/watcher-live.test.ts covers the same path with EISDIR',
       );
     try {
       const stateDir = join(mnt, 'state');

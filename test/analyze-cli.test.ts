@@ -23,11 +23,14 @@ sensors:
 }
 
 const NDE_SENSORS =
-  '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n';
+  '  - {id: NDE-V, channel: 2, bearing: NDE, direction: vertical, ' +
+  'sensitivity_mv_per_g: 100}\n  - {id: NDE-H, channel: 3, bearing: ' +
+  'NDE, direction: horizontal, sensitivity_mv_per_g: 100}\n';
 
 /**
  * Static unbalance on a centre-hung rotor at 1485 r/min, once-per-turn tach on channel 4: both
- * bearings move in phase, H lags V by 90 degrees at each bearing (common practice). Returns the WAV's path.
+ * bearings move in phase, H lags V by 90 degrees at each bearing (common practice). Returns the
+ * WAV's path.
  */
 function writeStaticRecord(name: string): string {
   const sig = synthesize({
@@ -97,7 +100,8 @@ describe('turnwise analyze', () => {
   });
 
   it('tells static unbalance from the phase relation of the two bearings', () => {
-    const f = writeStaticRecord('static.wav'); // both bearings in phase, H 90 deg after V (common practice)
+    // both bearings in phase, H 90 deg after V (common practice)
+    const f = writeStaticRecord('static.wav');
     const c = join(dir, 'static.yaml');
     writeFileSync(c, cfgYaml({ tachChannel: 4 }) + NDE_SENSORS);
     const r = runCli(['analyze', f, '--config', c, '--json']);
@@ -110,7 +114,8 @@ describe('turnwise analyze', () => {
   });
 
   it('warns that tach.pulses_per_rev is probably wrong when the speed reads rated / 2, and claims no high confidence', () => {
-    // A once-per-turn pickup (synthesized: one pulse per turn, 1485 r/min) configured with pulses_per_rev: 2.
+    // A once-per-turn pickup (synthesized: one pulse per turn, 1485 r/min) configured with
+    // pulses_per_rev: 2.
     const f = writeStaticRecord('one-pulse.wav');
     const wrong = join(dir, 'ppr2.yaml');
     writeFileSync(wrong, cfgYaml({ tachChannel: 4, ppr: 2 }) + NDE_SENSORS);
@@ -118,7 +123,8 @@ describe('turnwise analyze', () => {
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
     expect(j.speed_rpm).toBeCloseTo(742.5, 0); // what the wrong setting makes of 1485 r/min
-    expect(j.channels[0].orders['1'].amp_pk_mm_s).toBeLessThan(0.1); // the "1x" is the half order: near 0
+    // the "1x" is the half order: near 0
+    expect(j.channels[0].orders['1'].amp_pk_mm_s).toBeLessThan(0.1);
     expect(j.warnings[0]).toMatch(
       /743 r\/min is about 1\/2 of machine\.rated_rpm \(1485\).*tach\.pulses_per_rev is probably wrong.*set tach\.pulses_per_rev: 1/,
     );
@@ -213,7 +219,8 @@ describe('turnwise analyze', () => {
     const f = join(dir, 'broken.yaml');
     writeFileSync(
       f,
-      'machine: {id: "bad id", group: 2, support: rigid}\ntach: {channel: 2, trigger_v: 2.5}\nsensors: []\n',
+      'machine: {id: "bad id", group: 2, support: rigid}\n' +
+        'tach: {channel: 2, trigger_v: 2.5}\nsensors: []\n',
     );
     const r = runCli(['check-config', f]);
     expect(r.code).toBe(2);

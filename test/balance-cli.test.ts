@@ -267,7 +267,8 @@ describe('turnwise balance split', () => {
     ]);
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
-    // Law of sines by hand: 54.6 g moved; 42.47 g at position 6 (240 deg), 14.75 g at position 7 (280 deg).
+    // Law of sines by hand: 54.6 g moved; 42.47 g at position 6 (240 deg), 14.75 g at position
+    // 7 (280 deg).
     expect(out.weights).toHaveLength(2);
     expect(out.weights[0]).toMatchObject({ position: 6, angle_deg: 240 });
     expect(out.weights[0].mass_g).toBeCloseTo(42.47, 2);
@@ -390,7 +391,9 @@ describe('--config: the balance section supplies what the job leaves out', () =>
         /^state_dir:.*$/m,
         `state_dir: ${state}`,
       ) +
-        '\nbalance:\n  angle_convention: with_rotation\n  rotor_mass_kg: 850\n  grade_mm_s: 6.3\n  planes:\n    P1: { radius_mm: 600, max_mass_g: 40, positions: { count: 10 } }\n',
+        '\nbalance:\n  angle_convention: with_rotation\n  rotor_mass_kg: 850\n' +
+        '  grade_mm_s: 6.3\n  planes:\n    P1: { radius_mm: 600, max_mass_g: ' +
+        '40, positions: { count: 10 } }\n',
     );
     const rig = twoBearingRig('cw');
     const U: RigMass[] = [{ plane: 0, mass_g: 55, angle_deg: 300, convention: 'with_rotation' }];

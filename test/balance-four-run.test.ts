@@ -20,8 +20,8 @@ function angleDiff(a: number, b: number): number {
  * round them; intersect each pair of trial circles analytically (two points a pair), take from each
  * pair the point of the triple that lies closest together, and read the meeting point as their
  * centroid (the "estimate where they should have met" of the hand method). Correction = trial mass
- * x A0 / |OP| at the angle of OP (McMillan, Rotating Machinery: Practical Solutions to Unbalance and
- * Misalignment, Fairmont Press 2004, ch. 6 "A Single Plane Balancing Technique", pp. 103-107,
+ * x A0 / |OP| at the angle of OP (McMillan, Rotating Machinery: Practical Solutions to Unbalance
+ * and Misalignment, Fairmont Press 2004, ch. 6 "A Single Plane Balancing Technique", pp. 103-107,
  * equation 6.2: correction weight = trial weight x O / T at the angle of the T vector).
  */
 function graphical(
@@ -40,7 +40,8 @@ function graphical(
       const p = pts[i]!;
       const q = pts[j]!;
       const d = Math.hypot(q.x - p.x, q.y - p.y);
-      // distance from p along pq to the chord; circles that miss each other give the nearest approach
+      // distance from p along pq to the chord; circles that miss each other give the nearest
+      // approach
       const a = (p.r * p.r - q.r * q.r + d * d) / (2 * d);
       const h2 = p.r * p.r - a * a;
       const h = h2 > 0 ? Math.sqrt(h2) : 0;
@@ -115,11 +116,13 @@ describe('four-run method (amplitude only)', () => {
     const ref = scipyFit(SHREVE.as_found, SHREVE.trial_mass_g, SHREVE.trials);
     expect(r.correction!.mass_g).toBeCloseTo(ref.mass_g, 4);
     expect(Math.abs(angleDiff(r.correction!.angle_deg, ref.angle_deg))).toBeLessThan(1e-3);
-    // The hand construction only estimates where the circles "should have met": within 2 g and 3 deg.
+    // The hand construction only estimates where the circles "should have met": within 2 g and
+    // 3 deg.
     const g = graphical(SHREVE.as_found, SHREVE.trial_mass_g, SHREVE.trials);
     expect(Math.abs(r.correction!.mass_g - g.mass_g)).toBeLessThan(2);
     expect(Math.abs(angleDiff(r.correction!.angle_deg, g.angle_deg))).toBeLessThan(3);
-    // own computation (scipy above): about 59.3 g at 41.7 deg; the circles miss one point by 0.26 r.m.s.
+    // own computation (scipy above): about 59.3 g at 41.7 deg; the circles miss one point by
+    // 0.26 r.m.s.
     expect(r.correction!.mass_g).toBeGreaterThan(58.5);
     expect(r.correction!.mass_g).toBeLessThan(60);
     expect(r.fit_residual!.rms_amp).toBeGreaterThan(0.1);
@@ -131,7 +134,9 @@ describe('four-run method (amplitude only)', () => {
     );
   });
 
-  /** One-plane rotor built from the geometry (test/balance-rig.ts), not from the solver's algebra. */
+  /**
+   * One-plane rotor built from the geometry (test/balance-rig.ts), not from the solver's algebra.
+   */
   const rig = (rotation: 'ccw' | 'cw', lagDeg: number): Rig => ({
     rotation,
     pickupDeg: 35,
@@ -266,9 +271,10 @@ describe('four-run bad input: a clear refusal, never a confident wrong weight', 
 
 describe('four-run under reading scatter (own computation, fixed-seed simulation)', () => {
   it('an accepted correction is never badly wrong, and its stated uncertainty covers the error', () => {
-    // 5 % gaussian scatter on every amplitude (the solver's default assumption); trial effect 10 % to 200 %
-    // of as found; 400 jobs each. Pass: no accepted weight more than 60 deg off (it would leave the fan
-    // worse), and the true angle within 3 stated sigmas in at least 90 % of accepted jobs.
+    // 5 % gaussian scatter on every amplitude (the solver's default assumption); trial effect 10 %
+    // to 200 % of as found; 400 jobs each. Pass: no accepted weight more than 60 deg off (it would
+    // leave the fan worse), and the true angle within 3 stated sigmas in at least 90 % of accepted
+    // jobs.
     let seed = 12345;
     const rnd = () => {
       seed = (seed * 1103515245 + 12345) % 2147483648;
@@ -303,7 +309,8 @@ describe('four-run under reading scatter (own computation, fixed-seed simulation
       }
       expect(worst, `trial effect ${effect * 100} %`).toBeLessThan(60);
       expect(covered / accepted, `trial effect ${effect * 100} %`).toBeGreaterThan(0.9);
-      if (effect >= 0.3) expect(accepted).toBeGreaterThan(350); // a usable trial weight is not refused
+      // a usable trial weight is not refused
+      if (effect >= 0.3) expect(accepted).toBeGreaterThan(350);
     }
   });
 });

@@ -46,7 +46,8 @@ const CAUTION_WORDS = [
 ];
 
 describe('turnwise balance four-run', () => {
-  // the input of the issue (also the example of D. Shreve, "Balancing Without Phase", Reliabilityweb.com)
+  // the input of the issue (also the example of D. Shreve, "Balancing Without Phase",
+  // Reliabilityweb.com)
   const four = {
     as_found: 10.0,
     trial_mass_g: 50,
@@ -63,7 +64,8 @@ describe('turnwise balance four-run', () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const out = JSON.parse(r.stdout);
-    // own computation (scipy.optimize.least_squares, test/balance-four-run.test.ts): 59.26 g at 41.66 deg
+    // own computation (scipy.optimize.least_squares, test/balance-four-run.test.ts): 59.26 g at
+    // 41.66 deg
     expect(out.correction.mass_g).toBeCloseTo(59.26, 1);
     expect(out.correction.angle_deg).toBeCloseTo(41.66, 1);
     expect(out.trial_effect.amp).toBeCloseTo(8.44, 2);
@@ -286,7 +288,10 @@ describe('turnwise balance check-grade with the rotor geometry', () => {
 });
 
 describe('turnwise balance multi-speed', () => {
-  /** Exact 1x vectors of a one-plane rotor whose response is H_i per speed: V = V0 + H_i * m e^(i theta) (own computation). */
+  /**
+   * Exact 1x vectors of a one-plane rotor whose response is H_i per speed: V = V0 + H_i * m e^(i
+   * theta) (own computation).
+   */
   const runAt = (rpm: number, hAmp: number, hDeg: number) => {
     const c = (a: number, d: number) => ({
       re: a * Math.cos((d * Math.PI) / 180),

@@ -27,8 +27,9 @@ function refusal(f: () => unknown): SplitRefused {
 
 describe('split between holes at any angles (law of sines)', () => {
   it('radius change and split of "Balancing Weights: Radius Changes & Splitting" (Reliabilityweb.com): 2.2 oz at 250 deg, 14 in -> 16 in, bolts at 240 and 280 deg', () => {
-    // published: 2.2 x 14 / 16 = 1.925 oz at the bolts' radius. The split itself is a hand computation
-    // here (own computation): W240 = 1.925 sin 30 / sin 40, W280 = 1.925 sin 10 / sin 40.
+    // published: 2.2 x 14 / 16 = 1.925 oz at the bolts' radius. The split itself is a hand
+    // computation here (own computation): W240 = 1.925 sin 30 / sin 40, W280 = 1.925 sin
+    // 10 / sin 40.
     const moved = moveToRadius(2.2, 14, 16);
     expect(moved).toBeCloseTo(1.925, 10);
     const s = splitBetweenHoles(moved, 250, [240, 280]);

@@ -16,9 +16,13 @@ function angleDiff(a: number, b: number): number {
   return ((((a - b) % 360) + 540) % 360) - 180;
 }
 
-/** A variable-speed fan built from geometry (test/balance-rig.ts): response per plane and sensor changes with speed (invented figures). */
+/**
+ * A variable-speed fan built from geometry (test/balance-rig.ts): response per plane and sensor
+ * changes with speed (invented figures).
+ */
 function rigAt(rpm: number, sensors: string[] = ['DE-V', 'NDE-V'], flipP2 = false): Rig {
-  const k = (rpm / 1485) ** 2; // below the first critical speed the response grows roughly with speed squared (common practice)
+  // below the first critical speed the response grows roughly with speed squared (common practice)
+  const k = (rpm / 1485) ** 2;
   const lag = (base: number) => base + 40 * (rpm / 1485); // lag grows with speed (invented)
   const all = [
     {
@@ -48,7 +52,10 @@ const mass = (plane: number, mass_g: number, angle_deg: number): RigMass => ({
   convention: 'against_rotation',
 });
 
-/** As found and one trial run per job plane at one speed; noise: a deterministic jiggle of the readings, fraction of amplitude. */
+/**
+ * As found and one trial run per job plane at one speed; noise: a deterministic jiggle of the
+ * readings, fraction of amplitude.
+ */
 function group(
   rpm: number,
   U: RigMass[],
@@ -79,7 +86,10 @@ function group(
   return { speed_rpm: rpm, runs, ...(opts.weight ? { weight: opts.weight } : {}) };
 }
 
-/** numpy.linalg.lstsq on the stacked system, with the coefficients computed in Python from the raw runs (reference library; independent of the TypeScript chain). */
+/**
+ * numpy.linalg.lstsq on the stacked system, with the coefficients computed in Python from the raw
+ * runs (reference library; independent of the TypeScript chain).
+ */
 function numpyReference(job: MultiSpeedJob): { mass_g: number; angle_deg: number }[] {
   const script = `
 import json, sys, numpy as np
@@ -185,7 +195,8 @@ describe('multi-speed least squares', () => {
     expect(r.problems[0]!.hint).toMatch(/resonance|add a correction plane/);
     // each speed alone can be balanced, and says so
     expect(r.speeds.every((s) => s.own_corrections.length === 1)).toBe(true);
-    // weighting the low speed heavily gives it nearly its own answer, which leaves the top speed WORSE
+    // weighting the low speed heavily gives it nearly its own answer, which leaves the top speed
+    // WORSE
     // than as found: still refused, even when any share up to the as-found level would be accepted
     const w = solveMultiSpeed({
       ...job,

@@ -60,7 +60,8 @@ describe('angle conventions: the correction lands opposite the heavy spot (simul
         };
         const r = solveBalanceJob(job);
         expect(r.ok).toBe(true);
-        // The heavy spot is 80 g at 70 deg in the job's own convention: the correction is 80 g at 250 deg.
+        // The heavy spot is 80 g at 70 deg in the job's own convention: the correction is 80 g at
+        // 250 deg.
         expect(r.corrections[0]!.mass_g).toBeCloseTo(80, 6);
         expect(angDist(r.corrections[0]!.angle_deg, 250)).toBeLessThan(1e-6);
         // Put where the result says, in the same convention, it cancels the vibration.
@@ -113,10 +114,11 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
 
   it('single plane, pp. 71-75: O = 3.5 mils at 60 deg, O+T = 5.0 mils at 120 deg, 5 oz trial', () => {
     // Published: T = 4.44409 mils, angle between O and T = 77 deg (law of sines, p. 75; 79 deg read
-    // graphically, p. 73); correction weight = trial weight x O / T (eq. 6.2, p. 107) = 3.94 oz, placed
-    // 77 deg from the trial weight, counterclockwise while the reading moved clockwise from 60 to 120
-    // (p. 73): trial - 77 deg in the book's numbering, which is this project's with_rotation (see
-    // Example 5-4 below), i.e. 283 deg with the trial at 0; counted against rotation, +77 deg.
+    // graphically, p. 73); correction weight = trial weight x O / T (eq. 6.2, p. 107) = 3.94 oz,
+    // placed 77 deg from the trial weight, counterclockwise while the reading moved clockwise from
+    // 60 to 120 (p. 73): trial - 77 deg in the book's numbering, which is this project's
+    // with_rotation (see Example 5-4 below), i.e. 283 deg with the trial at 0; counted against
+    // rotation, +77 deg.
     for (const conv of ['against_rotation', 'with_rotation'] as const) {
       const r = solveBalanceJob({
         angle_convention: conv,
@@ -140,12 +142,13 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
   });
 
   it('two planes, Example 5-4, pp. 89-96: published corrections 8 oz at 214 deg (near) and 5 oz at 282 deg (far)', () => {
-    // Published data: N0 = 7.1 mils at 60 deg, F0 = 5.4 mils at 215 deg (pp. 92-93); trial T1 = 8 oz at
-    // 270 deg in the near plane, T2 = 10 oz at 180 deg in the far plane (p. 96); trial effects as the book
-    // measured them (p. 92): N0>N1 6.3 at 198, F0>F1 2.1 at 7, F0>F2 7.1 at 121, N0>N2 3.3 at 281.
-    // The book solves graphically with rounded ratios (a = .3, b = .5, c = 1, d = .5), so its answer is
-    // good to a few per cent and a degree or two. Its weight angles run opposite to its phase angles
-    // (correction at T - c, p. 96): this project's with_rotation convention.
+    // Published data: N0 = 7.1 mils at 60 deg, F0 = 5.4 mils at 215 deg (pp. 92-93); trial
+    // T1 = 8 oz at 270 deg in the near plane, T2 = 10 oz at 180 deg in the far plane (p. 96); trial
+    // effects as the book measured them (p. 92): N0>N1 6.3 at 198, F0>F1 2.1 at 7, F0>F2 7.1 at
+    // 121, N0>N2 3.3 at 281. The book solves graphically with rounded ratios (a = .3, b = .5,
+    // c = 1, d = .5), so its answer is good to a few per cent and a degree or two. Its weight
+    // angles run opposite to its phase angles (correction at T - c, p. 96): this project's
+    // with_rotation convention.
     const N0 = P(7.1, 60);
     const F0 = P(5.4, 215);
     const runs = (t1: number, t2: number): JobRun[] => [
@@ -165,7 +168,8 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
       amp_unit: 'mil pp',
       runs: runs(270, 180),
     });
-    // The far-end reading with T2 rebuilt from F0 and F0>F2 is the book's F2 = 8.6 mils at 160 deg (p. 91).
+    // The far-end reading with T2 rebuilt from F0 and F0>F2 is the book's F2 = 8.6 mils at 160 deg
+    // (p. 91).
     expect(runs(270, 180)[2]!.readings.F!.amp).toBeCloseTo(8.6, 1);
     expect(angDist(runs(270, 180)[2]!.readings.F!.phase_deg, 160)).toBeLessThan(0.5);
     expect(w.ok).toBe(true);
@@ -186,12 +190,12 @@ describe('published examples: R. B. McMillan, Rotating Machinery: Practical Solu
 });
 
 describe('published example: Tiwari, Theory and Practice of Rotor Dynamics (NPTEL course, IIT Guwahati), module 13, Example 13.5', () => {
-  // Problem data as published: a symmetric rigid rotor; a 0.3 kg trial mass at end 1, 30 deg from the
-  // reference, changes the vibration by 50 um at 61 deg at end 1 and 42 um at 130 deg at end 2;
-  // unbalance vibration 30 um at 230 deg (end 1) and 70 um at 330 deg (end 2). By the stated symmetry
-  // the same trial at end 2 gives the mirrored changes. The published solution's figures were not
-  // legible in the copy we could read, so the expected values below are our own hand computation
-  // (alpha = dV / T; W = -alpha^-1 V0, worked separately with Python's cmath):
+  // Problem data as published: a symmetric rigid rotor; a 0.3 kg trial mass at end 1, 30 deg from
+  // the reference, changes the vibration by 50 um at 61 deg at end 1 and 42 um at 130 deg at end 2;
+  // unbalance vibration 30 um at 230 deg (end 1) and 70 um at 330 deg (end 2). By the stated
+  // symmetry the same trial at end 2 gives the mirrored changes. The published solution's figures
+  // were not legible in the copy we could read, so the expected values below are our own hand
+  // computation (alpha = dV / T; W = -alpha^-1 V0, worked separately with Python's cmath):
   //   alpha11 = alpha22 = 166.67 um/kg at 31 deg, alpha21 = alpha12 = 140 um/kg at 100 deg,
   //   W1 = 0.3325 kg at 28.9 deg, W2 = 0.1884 kg at 151.2 deg.
   const P = (amp: number, deg: number) => ({
@@ -603,7 +607,8 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     const U: RigMass[] = [{ plane: 0, mass_g: 80, angle_deg: 10, convention: conv }];
     const t1: JobWeight = { plane: 'P1', mass_g: 40, angle_deg: 0 };
     const first = run(r2, U, [t1], planes, conv);
-    // Run 2 claims a P2 trial weight, but the readings are those of run 1 (the weight fell off, say).
+    // Run 2 claims a P2 trial weight, but the readings are those of run 1 (the weight fell off,
+    // say).
     const r = solveBalanceJob({
       angle_convention: conv,
       planes,
@@ -643,7 +648,8 @@ describe('warnings and refusals: never a confident wrong answer', () => {
     ); // +30 deg across 0
     const m = trialMove({ amp: 5, phase_deg: 350 }, { amp: 5, phase_deg: 20 });
     expect(m.phase_change_deg).toBeCloseTo(30, 12);
-    expect(m.vector_change_pct).toBeCloseTo(200 * Math.sin((15 * Math.PI) / 180), 9); // chord of 30 deg
+    // chord of 30 deg
+    expect(m.vector_change_pct).toBeCloseTo(200 * Math.sin((15 * Math.PI) / 180), 9);
   });
 
   it('readings at different speeds: warning naming the run and speeds', () => {

@@ -21,7 +21,10 @@ function tmp(): string {
   return mkdtempSync(join(tmpdir(), 'tw-bal-'));
 }
 
-/** A solved two-plane job on the simulated fan (invented Kessrow ID-3A figures), readings in mm/s pk. */
+/**
+ * A solved two-plane job on the simulated fan (invented Kessrow ID-3A figures), readings in mm/s
+ * pk.
+ */
 function solvedJob(ampUnit = 'mm/s pk'): {
   job: BalanceJob;
   result: ReturnType<typeof solveBalanceJob>;
@@ -190,7 +193,8 @@ describe('coefficients for the watcher', () => {
       a.coefficients.coefficients['DE-V']!.P1!.amp_mm_s_pk_per_g * Math.SQRT2,
       12,
     );
-    expect(a.coefficients.coefficients['DE-V']!.P1!.amp_mm_s_pk_per_g).toBeCloseTo(0.06, 9); // the rig's DE-V gain for P1
+    // the rig's DE-V gain for P1
+    expect(a.coefficients.coefficients['DE-V']!.P1!.amp_mm_s_pk_per_g).toBeCloseTo(0.06, 9);
     const um = solvedJob('um pp');
     expect(exportCoefficients(um.job, um.result, meta)).toEqual({
       reason: expect.stringContaining('the watcher needs mm/s'),

@@ -141,8 +141,8 @@ describe('complex linear algebra', () => {
 
 describe('splitting a weight onto fixed positions (law of sines, checked by hand)', () => {
   it('the CLI contract example: 62.4 g at 250 deg, r 355.6 mm onto 9 positions at r 406.4 mm', () => {
-    // Hand computation: moved mass 62.4 x 355.6 / 406.4 = 54.6 g; positions 40 deg apart, so 250 deg lies
-    // between position 6 (240 deg, 10 deg away) and 7 (280 deg, 30 deg away):
+    // Hand computation: moved mass 62.4 x 355.6 / 406.4 = 54.6 g; positions 40 deg apart, so
+    // 250 deg lies between position 6 (240 deg, 10 deg away) and 7 (280 deg, 30 deg away):
     //   W6 = 54.6 sin 30 / sin 40 = 42.47 g,  W7 = 54.6 sin 10 / sin 40 = 14.75 g.
     const moved = moveToRadius(62.4, 355.6, 406.4);
     expect(moved).toBeCloseTo(54.6, 10);
@@ -161,7 +161,8 @@ describe('splitting a weight onto fixed positions (law of sines, checked by hand
   });
 
   it('wraps past the last position and honours first_deg', () => {
-    // 10 positions from 5 deg: 5, 41, ..., 329. 350 deg lies between 329 (position 9) and 365 = 5 (position 0).
+    // 10 positions from 5 deg: 5, 41, ..., 329. 350 deg lies between 329 (position 9) and
+    // 365 = 5 (position 0).
     const parts = splitOntoPositions(30, 350, { count: 10, first_deg: 5 });
     expect(parts.map((p) => p.position)).toEqual([0, 9]);
     expect(parts[1]!.mass_g).toBeCloseTo((30 * Math.sin(15 * D2R)) / Math.sin(36 * D2R), 10);
@@ -190,7 +191,8 @@ describe('combining weights (by hand)', () => {
   });
 
   it('weights at different radii combine by unbalance m*r', () => {
-    // 10 g at 100 mm, 0 deg + 10 g at 300 mm, 90 deg = (1000, 3000) g mm -> 3162.3 g mm at 71.57 deg -> 15.81 g at 200 mm.
+    // 10 g at 100 mm, 0 deg + 10 g at 300 mm, 90 deg = (1000, 3000) g mm -> 3162.3 g mm at
+    // 71.57 deg -> 15.81 g at 200 mm.
     const w = combineWeights(
       [
         { mass_g: 10, angle_deg: 0, radius_mm: 100 },

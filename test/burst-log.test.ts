@@ -18,7 +18,8 @@ describe('logging once per burst', () => {
       /^CRC mismatch in frame 0 \(further "crc" problems are counted/,
     );
     expect(log.lines[1]!.msg).toBe(
-      '"crc" still happening: 600 more in the last 60 s (601 in this burst); last: CRC mismatch in frame 600',
+      '"crc" still happening: 600 more in the last 60 s ' +
+        '(601 in this burst); last: CRC mismatch in frame 600',
     );
     now += 10_000;
     b.flush();

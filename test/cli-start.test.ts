@@ -108,7 +108,8 @@ describe('turnwise start-up', () => {
     const r = runLogged(['help', 'analyse']);
     expect(r.code).toBe(2);
     expect(r.stderr).toBe(
-      'turnwise help: unknown command "analyse"\n  -> run `turnwise help` for the list of commands\n',
+      'turnwise help: unknown command "analyse"\n' +
+        '  -> run `turnwise help` for the list of commands\n',
     );
   });
 

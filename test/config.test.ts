@@ -25,7 +25,9 @@ describe('config loading', () => {
   it('names the path, the expectation and what was found', () => {
     const f = writeTmp(
       'bad.yaml',
-      'machine: {id: f1, group: 3, support: rigid}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n  - {id: A, channel: 6, bearing: DE, direction: sideways, sensitivity_mv_per_g: 100}\n',
+      'machine: {id: f1, group: 3, support: rigid}\ntach: {channel: 6, trigger_v: 2.5}\n' +
+        'sensors:\n  - {id: A, channel: 6, bearing: DE, direction: sideways, ' +
+        'sensitivity_mv_per_g: 100}\n',
     );
     let err: unknown;
     try {
@@ -45,7 +47,10 @@ describe('config loading', () => {
   it('checks rules across keys once each key is valid', () => {
     const f = writeTmp(
       'cross.yaml',
-      'machine: {id: f1, group: 2, support: rigid}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n  - {id: A, channel: 6, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n  - {id: A, channel: 1, bearing: DE, direction: horizontal, sensitivity_mv_per_g: 100}\n',
+      'machine: {id: f1, group: 2, support: rigid}\ntach: {channel: 6, trigger_v: 2.5}\n' +
+        'sensors:\n  - {id: A, channel: 6, bearing: DE, direction: vertical, ' +
+        'sensitivity_mv_per_g: 100}\n  - {id: A, channel: 1, bearing: DE, direction: ' +
+        'horizontal, sensitivity_mv_per_g: 100}\n',
     );
     expect(() => loadConfig(f)).toThrow(/sensors\[0\]\.channel: channel 6 is the tach channel/);
     expect(() => loadConfig(f)).toThrow(
@@ -55,7 +60,10 @@ describe('config loading', () => {
 
   it('reads the gpio section with its defaults and checks its lines and speeds against the rest', () => {
     const head =
-      'machine: {id: f1, group: 2, support: rigid}\ntach: {channel: 6, trigger_v: 2.5, max_rpm: 3000}\nsensors:\n  - {id: A, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n';
+      'machine: {id: f1, group: 2, support: rigid}\n' +
+      'tach: {channel: 6, trigger_v: 2.5, max_rpm: 3000}\n' +
+      'sensors:\n  - {id: A, channel: 0, bearing: DE, ' +
+      'direction: vertical, sensitivity_mv_per_g: 100}\n';
     const ok = loadConfig(
       writeTmp(
         'gpio.yaml',
@@ -96,7 +104,10 @@ describe('config loading', () => {
   it('rejects unknown keys by name', () => {
     const f = writeTmp(
       'typo.yaml',
-      'machine: {id: f1, group: 2, support: rigid, grup: 2}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n  - {id: A, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100}\n',
+      'machine: {id: f1, group: 2, support: rigid, ' +
+        'grup: 2}\ntach: {channel: 6, trigger_v: 2.5}\n' +
+        'sensors:\n  - {id: A, channel: 0, bearing: DE, ' +
+        'direction: vertical, sensitivity_mv_per_g: 100}\n',
     );
     expect(() => loadConfig(f)).toThrow(/machine: unknown key\(s\) "grup"/);
   });

@@ -24,7 +24,10 @@ afterEach(() => {
   for (const d of dirs.splice(0)) rmSync(d, { recursive: true, force: true });
 });
 
-/** Writes the invented demo config with this acquisition section into a fresh folder; returns its path. */
+/**
+ * Writes the invented demo config with this acquisition section into a fresh folder; returns its
+ * path.
+ */
 function configWith(acquisition: Record<string, unknown> | undefined): {
   dir: string;
   file: string;
@@ -156,7 +159,9 @@ describe('createSource (acquisition.driver)', () => {
   it('names the key, the file it looked for and what to do when a file is missing or the section is absent', () => {
     const wav = configWith({ driver: 'wav', file: 'recordings/day5.wav' });
     expect(userError(() => createSource(loadConfig(wav.file), wav.file, { log }))).toBe(
-      `${wav.file}: acquisition.file: recording ${join(wav.dir, 'recordings/day5.wav')} not found (a relative path is taken from the config file's folder, ${wav.dir})\n  -> fix acquisition.file, or put the recording there`,
+      `${wav.file}: acquisition.file: recording ${join(wav.dir, 'recordings/day5.wav')} not ` +
+        `found (a relative path is taken from the config file's folder, ${wav.dir})\n` +
+        `  -> fix acquisition.file, or put the recording there`,
     );
     const sim = configWith({ driver: 'sim', scenario: 'fan.yaml' });
     expect(userError(() => createSource(loadConfig(sim.file), sim.file, { log }))).toMatch(

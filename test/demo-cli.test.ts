@@ -53,12 +53,16 @@ function runDemo(
 
 const stateLine = /^ {2}state {7}(\S+)/;
 
-/** `npm start` runs `turnwise demo`: the newcomer's first look must work on a laptop with no hardware. */
+/**
+ * `npm start` runs `turnwise demo`: the newcomer's first look must work on a laptop with no
+ * hardware.
+ */
 describe('turnwise demo (npm start)', () => {
   it('plays day 5 into day 6: zone D and alarms, then the safe-stop advisory; Ctrl-C removes its temporary state', async () => {
-    // Day 5 18:00 onwards at the default speed (one scenario day every 24 s, 2 s windows = 2 h steps):
-    // the weight thrown at 14:20 has put NDE-H in zone D; NDE-V joins it in zone C on day 6 08:00,
-    // which raises the demo's advisory (two channels of one bearing in C or worse) at about 16 s.
+    // Day 5 18:00 onwards at the default speed (one scenario day every 24 s, 2 s windows = 2 h
+    // steps): the weight thrown at 14:20 has put NDE-H in zone D; NDE-V joins it in zone C on day
+    // 6 08:00, which raises the demo's advisory (two channels of one bearing in C or worse) at
+    // about 16 s.
     let stateDir: string | undefined;
     let existedWhileRunning = false;
     let contentsWhileRunning: string[] = [];
@@ -138,8 +142,10 @@ describe('turnwise demo (npm start)', () => {
       expect(live.code).toBe(2);
       expect(live.stdout).toBe('');
       expect(live.stderr).toBe(
-        `turnwise demo: --port ${taken}: port ${taken} on 127.0.0.1, for the live page, is already in use, probably by another turnwise demo\n` +
-          `  -> start the demo on another port, e.g. \`npm start -- --port ${taken + 1}\` (or --port 0 for any free port), or stop the program using port ${taken}\n`,
+        `turnwise demo: --port ${taken}: port ${taken} on 127.0.0.1, for the ` +
+          `live page, is already in use, probably by another turnwise demo\n` +
+          `  -> start the demo on another port, e.g. \`npm start -- --port ${taken + 1}\` ` +
+          `(or --port 0 for any free port), or stop the program using port ${taken}\n`,
       );
       const mqtt = runCli(['demo', '--seconds', '2', '--port', '0', '--mqtt-port', String(taken)], {
         timeoutMs: 30_000,
@@ -149,7 +155,9 @@ describe('turnwise demo (npm start)', () => {
       expect(mqtt.stdout).toBe('');
       expect(mqtt.stderr).toMatch(
         new RegExp(
-          `^turnwise demo: --mqtt-port ${taken}: port ${taken} on 127\\.0\\.0\\.1, for the embedded MQTT broker, is already in use, .+\\n {2}-> start the demo on another port, e\\.g\\. \`npm start -- --mqtt-port ${taken + 1}\`.+\\n$`,
+          `^turnwise demo: --mqtt-port ${taken}: port ${taken} on 127\\.0\\.0\\.1, for ` +
+            `the embedded MQTT broker, is already in use, .+\\n {2}-> start the demo on ` +
+            `another port, e\\.g\\. \`npm start -- --mqtt-port ${taken + 1}\`.+\\n$`,
         ),
       );
     } finally {

@@ -45,7 +45,8 @@ for (const [tool, pkg] of [
 ] as const) {
   if (!tool)
     console.warn(
-      `test/deploy.test.ts: ${pkg} is not installed, its checks are SKIPPED (apt-get install ${pkg})`,
+      `test/deploy.test.ts: ${pkg} is not installed, ` +
+        `its checks are SKIPPED (apt-get install ${pkg})`,
     );
 }
 /** Test names carry the reason when a tool is missing, so a skip is never silent. */
@@ -146,8 +147,8 @@ describe('systemd unit deploy/turnwise.service', () => {
     expect(existsSync(join(REPO, 'dist/agent/cli/main.js'))).toBe(true);
     expect(readFileSync(INSTALL, 'utf8')).toContain('"$OPT/current/dist/agent/cli/main.js"');
     expect(exec.slice(2)).toEqual(['run', '--config', '/etc/turnwise/turnwise.yaml']);
-    // After every stop, however it happened, the advisory outputs are dropped from outside, with the
-    // same binary and config (a GPIO line keeps its level when the process that drove it dies).
+    // After every stop, however it happened, the advisory outputs are dropped from outside, with
+    // the same binary and config (a GPIO line keeps its level when the process that drove it dies).
     expect(one('ExecStopPost')!.split(' ')).toEqual([
       '-/usr/bin/node',
       '/opt/turnwise/current/dist/agent/cli/main.js',
@@ -255,7 +256,8 @@ describe('deploy/install.sh', () => {
     );
     expectInOrder(lines, [
       new RegExp(
-        `^\\+ mkdir -p /opt/turnwise/releases/\\.${q}\\.partial/dist /opt/turnwise/releases/\\.${q}\\.partial/agent/live$`,
+        `^\\+ mkdir -p /opt/turnwise/releases/\\.${q}\\.partial/dist ` +
+          `/opt/turnwise/releases/\\.${q}\\.partial/agent/live$`,
       ),
       /^\+ cp -a \S+\/dist\/agent \/opt\/turnwise\/releases\/.*\.partial\/dist\/agent$/,
       /^\+ cp -a \S+\/agent\/live\/page \/opt\/turnwise\/releases\/.*\.partial\/agent\/live\/page$/,
@@ -369,7 +371,8 @@ if (cmd === 'check-config') {
       expect(r.code).toBe(0);
       expect(current()).toMatch(/^releases\/9\.9\.1-[0-9a-f]{10}$/);
       expect(existsSync(join(opt, current(), '.turnwise-release-complete'))).toBe(true);
-      expect(existsSync(join(opt, current(), 'node_modules'))).toBe(false); // nothing to install: no dependencies
+      // nothing to install: no dependencies
+      expect(existsSync(join(opt, current(), 'node_modules'))).toBe(false);
       expect(readFileSync(join(root, 'etc/systemd/system/turnwise.service'), 'utf8')).toBe(
         readFileSync(UNIT_FILE, 'utf8'),
       );
@@ -378,10 +381,14 @@ if (cmd === 'check-config') {
         'utf8',
       );
       expect(dropIn).toContain(
-        `[Service]\nExecStart=\nExecStart=${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js run --config /etc/turnwise/turnwise.yaml\n`,
+        `[Service]\nExecStart=\nExecStart=${join(otherNodeDir, 'node')} ` +
+          `/opt/turnwise/current/dist/agent/cli/main.js run --config ` +
+          `/etc/turnwise/turnwise.yaml\n`,
       );
       expect(dropIn).toContain(
-        `ExecStopPost=\nExecStopPost=-${join(otherNodeDir, 'node')} /opt/turnwise/current/dist/agent/cli/main.js outputs-off --config /etc/turnwise/turnwise.yaml\n`,
+        `ExecStopPost=\nExecStopPost=-${join(otherNodeDir, 'node')} ` +
+          `/opt/turnwise/current/dist/agent/cli/main.js outputs-off ` +
+          `--config /etc/turnwise/turnwise.yaml\n`,
       );
       const rules = readFileSync(join(root, 'etc/udev/rules.d/70-turnwise-daq.rules'), 'utf8');
       expect(rules).toContain(
@@ -420,11 +427,13 @@ if (cmd === 'check-config') {
         TURNWISE_NODE: join(otherNodeDir, 'node'),
       });
       expect(r.code).toBe(0);
-      expect(readFileSync(join(root, 'etc/turnwise/live-operator-token'), 'utf8')).toBe(tokenMade); // never replaced
+      // never replaced
+      expect(readFileSync(join(root, 'etc/turnwise/live-operator-token'), 'utf8')).toBe(tokenMade);
       expect(r.out).toMatch(/^release 9\.9\.1-[0-9a-f]{10} is already installed$/m);
       expect(r.out).toContain('current release is already 9.9.1-');
       expect(r.out).toContain('unchanged: /etc/systemd/system/turnwise.service');
-      expect(r.out).toContain('unchanged: /etc/udev/rules.d/70-turnwise-daq.rules'); // USB id kept from the installed rules
+      // USB id kept from the installed rules
+      expect(r.out).toContain('unchanged: /etc/udev/rules.d/70-turnwise-daq.rules');
       // Only the offline enable and the skipped system calls are printed as actions.
       const actions = r.out
         .split('\n')
@@ -517,9 +526,11 @@ if (cmd === 'check-config') {
     const r = run(['--root', root, '--no-journald-limits']);
     expect(r.code, r.err).toBe(0);
     const rel = join(root, 'opt/turnwise', readlinkSync(join(root, 'opt/turnwise/current')));
-    expect(existsSync(join(rel, 'node_modules/epoll/build/Release/epoll.node'))).toBe(true); // built on this machine
+    // built on this machine
+    expect(existsSync(join(rel, 'node_modules/epoll/build/Release/epoll.node'))).toBe(true);
     expect(existsSync(join(rel, 'node_modules/serialport'))).toBe(true);
-    expect(existsSync(join(rel, 'node_modules/typescript'))).toBe(false); // dev dependencies left out
+    // dev dependencies left out
+    expect(existsSync(join(rel, 'node_modules/typescript'))).toBe(false);
     expect(existsSync(join(rel, 'node_modules/vitest'))).toBe(false);
     expect(existsSync(join(rel, 'dist/test'))).toBe(false);
     // The installed CLI works from the release alone.
@@ -558,7 +569,8 @@ if (cmd === 'check-config') {
   it(
     SYSTEM
       ? 'works under systemd as PID 1 (test/system/under-systemd.sh)'
-      : 'works under systemd as PID 1 (test/system/under-systemd.sh) [SKIPPED: set TURNWISE_SYSTEM_TESTS=1; needs root, overlayfs and systemd-nspawn]',
+      : 'works under systemd as PID 1 (test/system/under-systemd.sh) [SKIPPED: ' +
+          'set TURNWISE_SYSTEM_TESTS=1; needs root, overlayfs and systemd-nspawn]',
     { skip: !SYSTEM, timeout: 900_000 },
     () => {
       const r = spawnSync('bash', [join(REPO, 'test/system/under-systemd.sh')], {

@@ -61,7 +61,8 @@ describe('measurement accuracy on a drifting, noisy record', () => {
     expect(w.speed_rpm!).toBeLessThan(rpm0 * 1.005);
     expect(w.speed_max_rpm! / w.speed_min_rpm!).toBeGreaterThan(1.015); // the drift was seen
     expect(w.revolutions).toBeGreaterThan(980);
-    expect(w.band_hz).toEqual({ low: 10, high: 1000 }); // ISO 20816-3: 10-1000 Hz at or above 600 r/min
+    // ISO 20816-3: 10-1000 Hz at or above 600 r/min
+    expect(w.band_hz).toEqual({ low: 10, high: 1000 });
   });
 
   it('1x amplitude within 1 % and phase within 1 degree', () => {
@@ -134,9 +135,9 @@ describe('measurement accuracy on a drifting, noisy record', () => {
 });
 
 /**
- * The reported r.m.s. of a 1x sine, checked against the r.m.s. computed from the samples themselves:
- * the synthesized acceleration integrated to velocity (trapezoidal rule) over whole revolutions, its
- * mean removed. Textbook identity: a sine of peak V has r.m.s. V / sqrt(2).
+ * The reported r.m.s. of a 1x sine, checked against the r.m.s. computed from the samples
+ * themselves: the synthesized acceleration integrated to velocity (trapezoidal rule) over whole
+ * revolutions, its mean removed. Textbook identity: a sine of peak V has r.m.s. V / sqrt(2).
  */
 describe('1x r.m.s. against the velocity r.m.s. computed from the samples', () => {
   const fs = 25600;
@@ -162,7 +163,8 @@ describe('1x r.m.s. against the velocity r.m.s. computed from the samples', () =
 
   // Velocity r.m.s. straight from the samples, independent of the analyzer.
   const period = (60 * fs) / rpm; // samples per revolution
-  const n = Math.round(Math.floor(sig[0]!.length / period - 1) * period); // whole revolutions (to 0.5 sample)
+  // whole revolutions (to 0.5 sample)
+  const n = Math.round(Math.floor(sig[0]!.length / period - 1) * period);
   const k = mmPerS2PerVolt(100);
   const a = (i: number) => (sig[0]![i]! - 0.02) * k;
   const v = new Float64Array(n);

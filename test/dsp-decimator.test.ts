@@ -60,7 +60,9 @@ function decimateAll(
   return sink.values;
 }
 
-/** Least-squares amplitude of a tone of known frequency f in y (sample rate fs): fits a cos + b sin. */
+/**
+ * Least-squares amplitude of a tone of known frequency f in y (sample rate fs): fits a cos + b sin.
+ */
 function toneAmplitude(y: Float64Array, f: number, fs: number, from = 0): number {
   let cc = 0;
   let ss = 0;
@@ -103,7 +105,8 @@ describe('half-band stages for 25.6 kHz and the 10-1000 Hz band', () => {
         expect(h[c - m]).toBe(0);
       }
       for (let m = 1; m <= c; m += 2) expect(h[c + m]).toBe(h[c - m]);
-      // Gain 1 at DC and 0 at the input's Nyquist frequency (which folds onto DC), within the ripple.
+      // Gain 1 at DC and 0 at the input's Nyquist frequency (which folds onto DC), within the
+      // ripple.
       expect(Math.abs(h.reduce((a, b) => a + b, 0) - 1)).toBeLessThanOrEqual(1e-6);
       expect(mag(h, s.inputRateHz / 2, s.inputRateHz)).toBeLessThanOrEqual(1e-6);
     }
@@ -205,7 +208,8 @@ describe('one stage: its output is the designed response, sample for sample', ()
       );
       const y = decimateAll(plan, x, [1000, 17, 333]);
       expect(y.length).toBe(Math.floor((n - L) / 2) + 1);
-      // Output m is the FIR output at input index 2m + L - 1: y = Re(H e^{i (w (2m + L - 1) + phi)}).
+      // Output m is the FIR output at input index 2m + L - 1: y = Re(H
+      // e^{i (w (2m + L - 1) + phi)}).
       const H = dtft(h, f, 6400);
       let worst = 0;
       for (let m = 0; m < y.length; m++) {
@@ -265,7 +269,8 @@ describe('the whole cascade at 25.6 kHz', () => {
       // Through the cascade at most 1e-6 of it is left (120 dB), plus nothing else.
       const y = decimateAll(plan, x);
       const vel = spectrumBandRms(y, 3200);
-      // (design bounds: stopband gain <= 1e-6 in the stage that folds it, passband gain <= 1 + 1e-6 in the others)
+      // (design bounds: stopband gain <= 1e-6 in the stage that folds it, passband gain <= 1 + 1e-6
+      // in the others)
       expect(vel).toBeLessThan((1e-6 * (1 + 1e-6) ** 2 * amp) / (2 * Math.PI * fold) / Math.SQRT2);
       expect(vel).toBeLessThan(1e-5); // mm/s, against about 11 mm/s without the filter
     });
@@ -319,11 +324,12 @@ describe('band-limited white noise: the overall equals the analytic value', () =
   const k1 = Math.floor(1000 / df);
   const lineMs = (2 * sigma * sigma * df) / fs; // expected acceleration mean square per line
   // Spread of an average of S Hann periodograms: each line's power is chi-square with 2S degrees of
-  // freedom (relative variance 1/S); neighbouring lines are correlated through the window: for white
-  // noise the correlation of bins k and k+m is the DFT of w^2 at m over its value at 0, for Hann
-  // (3/8, -1/4, 1/16) N -> rho = -2/3 and 1/6, and the powers correlate as rho^2 (complex Gaussian
-  // bins). A smooth weighted sum therefore has about 1 + 2 (4/9 + 1/36) = 1.94 times the variance
-  // of independent lines. The tolerances below are 4 such standard deviations of the band power.
+  // freedom (relative variance 1/S); neighbouring lines are correlated through the window: for
+  // white noise the correlation of bins k and k+m is the DFT of w^2 at m over its value at 0, for
+  // Hann (3/8, -1/4, 1/16) N -> rho = -2/3 and 1/6, and the powers correlate as rho^2 (complex
+  // Gaussian bins). A smooth weighted sum therefore has about 1 + 2 (4/9 + 1/36) = 1.94 times the
+  // variance of independent lines. The tolerances below are 4 such standard deviations of the band
+  // power.
   const relSd = (weights: number[]) => {
     const s1 = weights.reduce((a, b) => a + b, 0);
     const s2 = weights.reduce((a, b) => a + b * b, 0);
@@ -337,7 +343,8 @@ describe('band-limited white noise: the overall equals the analytic value', () =
   });
 
   it('acceleration r.m.s. in the band: sigma sqrt(2 B / fs)', () => {
-    const want = lineMs * ks.length; // = 2 sigma^2 B / fs over the B = (k1 - k0 + 1) df the lines cover
+    // = 2 sigma^2 B / fs over the B = (k1 - k0 + 1) df the lines cover
+    const want = lineMs * ks.length;
     let got = 0;
     for (const k of ks) got += vel[k]! * (2 * Math.PI * k * df) ** 2;
     const tol = 4 * relSd(ks.map(() => 1));
@@ -446,7 +453,8 @@ describe('the analyzer with decimation', () => {
     expect(N).toBe(4096);
     expect(plan.outputsFor(after)).toBe(2 * N - 10);
     expect(w.spectrum_segments).toBe(Math.floor(plan.outputsFor(cut) / N) + 1);
-    // 6 mm/s pk at 1x, plus white noise: (2 sigma^2 / fs) / (4 pi^2) (1/10 - 1/1000) (textbook relations).
+    // 6 mm/s pk at 1x, plus white noise: (2 sigma^2 / fs) / (4 pi^2) (1/10 - 1/1000) (textbook
+    // relations).
     const noiseMs = ((2 * 300 * 300) / fs / (4 * Math.PI * Math.PI)) * (1 / 10 - 1 / 1000);
     const want = Math.sqrt(18 + noiseMs);
     expect(Math.abs(w.channels[0]!.overall_rms_mm_s! / want - 1)).toBeLessThan(0.02);

@@ -373,7 +373,8 @@ describe('live vectors', () => {
     const { asBlocks, synthesize } = await import('./support/synth.js');
     const { testConfig } = await import('./support/config.js');
     const fs = 25600;
-    // 1x moves from 6 mm/s at 40 deg to 6 mm/s at 100 deg (a phase swing at constant amplitude) at t = 6 s.
+    // 1x moves from 6 mm/s at 40 deg to 6 mm/s at 100 deg (a phase swing at constant amplitude) at
+    // t = 6 s.
     const sig = synthesize({
       sampleRate: fs,
       seconds: 12,

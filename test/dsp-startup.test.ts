@@ -57,14 +57,16 @@ function noise(i: number, c: number): number {
 function volts(c: number, i: number): number {
   const th = theta(i);
   if (c === 2) {
-    // 5 V pulse, 5 % of a turn wide, linear rise over 0.5 % of a turn, crossing 2.5 V at angle 2 pi k.
+    // 5 V pulse, 5 % of a turn wide, linear rise over 0.5 % of a turn, crossing 2.5 V at angle 2 pi
+    // k.
     const frac = th / (2 * Math.PI) - Math.floor(th / (2 * Math.PI) + 0.0025);
     const rise = 0.005;
     if (frac < -rise / 2 || frac > 0.05) return 0;
     return Math.min(5, 2.5 + (frac / rise) * 5);
   }
   const t = TRUTH[c]!;
-  // Acceleration amplitude of the 1x: velocity x 2 pi f at the nominal speed (the angle-domain amplitude is fixed).
+  // Acceleration amplitude of the 1x: velocity x 2 pi f at the nominal speed (the angle-domain
+  // amplitude is fixed).
   const a1 = (t.vel * 2 * Math.PI * F0) / K;
   const acc1 = a1 * Math.cos(th - ((t.phase - 90) * Math.PI) / 180);
   const acc2 = 0.3 * a1 * Math.cos(2 * th - 1.1);
@@ -135,7 +137,9 @@ beforeEach(() => {
 });
 afterEach(() => rig.dispose());
 
-/** Plays 2.6 s of the plant (as fast as the pty takes it) and returns the live frames and windows. */
+/**
+ * Plays 2.6 s of the plant (as fast as the pty takes it) and returns the live frames and windows.
+ */
 async function run(
   boardTimesTach: boolean,
 ): Promise<{ lives: LiveFrame[]; windows: WindowResult[] }> {
@@ -184,7 +188,8 @@ describe('no start-up bias (real pty, both tach modes)', () => {
           const got = f.channels[c]!.orders['1']!;
           const ref = reference(c, 0, f.sample_index);
           expect(ref.revs).toBeGreaterThanOrEqual(s === 0.5 ? 10 : 47);
-          // The reference itself is on the truth (the generator's 1x acceleration, fixed in the shaft's angle) within 0.12 % and 0.1 degree.
+          // The reference itself is on the truth (the generator's 1x acceleration, fixed in the
+          // shaft's angle) within 0.12 % and 0.1 degree.
           expect(
             Math.abs(ref.acc / (TRUTH[c]!.vel * 2 * Math.PI * F0) - 1),
             `reference amplitude at ${s} s, channel ${c}`,

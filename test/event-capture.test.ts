@@ -61,7 +61,10 @@ describe('RawRing', () => {
 const fs = 5120;
 const step = 20;
 
-/** A fan in zone B for 20 s whose unbalance then grows into zone D (ISO 20816-3 group 2 rigid: C/D 4.5 mm/s r.m.s.). */
+/**
+ * A fan in zone B for 20 s whose unbalance then grows into zone D (ISO 20816-3 group 2 rigid: C/D
+ * 4.5 mm/s r.m.s.).
+ */
 function fanSignal(seconds: number): Float32Array[] {
   const ch = (before: number, after: number, phase: number) => ({
     orders: [
@@ -144,7 +147,8 @@ describe('event captures in the agent', () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const a = JSON.parse(r.stdout);
-    // The live measurement of the same stretch: the agent's last window (zone D throughout after 20 s).
+    // The live measurement of the same stretch: the agent's last window (zone D throughout after
+    // 20 s).
     const last = windows[windows.length - 1]!;
     for (const c of ['DE-V', 'DE-H']) {
       const live = last.channels.find((x) => x.id === c)!.orders['1']!;

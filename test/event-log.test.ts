@@ -8,8 +8,8 @@ import { expectNoStack, runCli } from './support/cli.js';
 import { testResources } from './support/harness.js';
 
 /**
- * The agent's own event log under state_dir (real files, fsync), and `turnwise events` reading it as
- * a real process, the way a technician reads an alarm's history after the board rebooted.
+ * The agent's own event log under state_dir (real files, fsync), and `turnwise events` reading it
+ * as a real process, the way a technician reads an alarm's history after the board rebooted.
  */
 
 const res = testResources('tw-evlog-');

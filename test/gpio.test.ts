@@ -313,7 +313,8 @@ describe('tach speed from GPIO pulses (speed only)', () => {
     const period = 60_000 / 1480;
     const jitter = [0.9, -0.7, 1.0, -1.0, 0.3, -0.4, 0.8, -0.6, 0.2];
     jitter.forEach((j, k) => s.edge(k * period + j));
-    // 8 intervals span 8 periods plus (last - first) jitter = 0.2 - 0.9 = -0.7 ms over 324 ms: 0.22 %.
+    // 8 intervals span 8 periods plus (last - first) jitter = 0.2 - 0.9 = -0.7 ms over 324 ms:
+    // 0.22 %.
     const rpm = s.rpm(8 * period + 1)!;
     expect(Math.abs(rpm - 1480) / 1480).toBeLessThan(0.0025);
     expect(rpm).toBeCloseTo((60_000 * 8) / (8 * period + 0.2 - 0.9), 9);

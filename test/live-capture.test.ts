@@ -4,7 +4,8 @@ import { RunCapture, type CaptureSettings } from '../agent/balance/workbench/cap
 
 /**
  * Capturing a balancing run from live frames: settle, then average the live 1x vectors over N
- * revolutions at steady speed, restarting on speed changes. Frames are built here with known vectors.
+ * revolutions at steady speed, restarting on speed changes. Frames are built here with known
+ * vectors.
  */
 
 const SETTINGS: CaptureSettings = {
@@ -64,8 +65,8 @@ describe('capturing a balancing run from the live vectors', () => {
     const frames = feed(cap, (i) => {
       const settling = i * 12.5 <= 50;
       if (settling) before++;
-      // After settling, A alternates +-10 degrees around 40 degrees: the vector mean is at 40 degrees
-      // with amplitude 5 cos(10 deg); B is steady.
+      // After settling, A alternates +-10 degrees around 40 degrees: the vector mean is at
+      // 40 degrees with amplitude 5 cos(10 deg); B is steady.
       const a: [number, number] = settling ? [9, 200] : [5, 40 + (i % 2 ? 10 : -10)];
       return frame(1500, { A: a, B: [2, 300] });
     });
@@ -76,13 +77,15 @@ describe('capturing a balancing run from the live vectors', () => {
     expect(r.revolutions).toBeGreaterThanOrEqual(100);
     expect(r.revolutions).toBeLessThan(100 + 12.5 + 1e-9);
     expect(r.speed_rpm).toBeCloseTo(1500, 6);
-    // The mean of two unit vectors 20 degrees apart has length cos(10 deg) (plane geometry), equal weights.
+    // The mean of two unit vectors 20 degrees apart has length cos(10 deg) (plane geometry), equal
+    // weights.
     expect(r.readings.A!.phase_deg).toBeCloseTo(40, 6);
     expect(r.readings.A!.amp_pk_mm_s).toBeCloseTo(5 * Math.cos((10 * Math.PI) / 180), 2);
     expect(r.readings.B!.amp_pk_mm_s).toBeCloseTo(2, 9);
     expect(r.readings.B!.phase_deg).toBeCloseTo(300, 9);
     expect(r.readings.B!.scatter_pct).toBeCloseTo(0, 9);
-    // Scatter of A: every frame is 5 sin(10 deg) from the mean, i.e. tan(10 deg) = 17.6 % of it: flagged.
+    // Scatter of A: every frame is 5 sin(10 deg) from the mean, i.e. tan(10 deg) = 17.6 % of it:
+    // flagged.
     expect(r.readings.A!.scatter_pct).toBeCloseTo(100 * Math.tan((10 * Math.PI) / 180), 1);
     expect(r.notes.some((n) => n.includes('A was unsteady'))).toBe(true);
   });
@@ -101,7 +104,8 @@ describe('capturing a balancing run from the live vectors', () => {
     let i = 0;
     for (; i < 40 && !cap.finished; i++) cap.push(at(i), t(i));
     const r = cap.result!;
-    // Own computation: 50 settling + 100 averaged revolutions at 12.5 per frame need 12 frames after the first.
+    // Own computation: 50 settling + 100 averaged revolutions at 12.5 per frame need 12 frames
+    // after the first.
     expect(i).toBe(13);
     expect(r.revolutions).toBeGreaterThanOrEqual(100);
     expect(r.revolutions).toBeLessThan(100 + 12.5 + 1e-9);
@@ -118,7 +122,8 @@ describe('capturing a balancing run from the live vectors', () => {
 
   it('restarts the averaging when the speed moves beyond the tolerance, and says so', () => {
     const cap = new RunCapture(['A'], SETTINGS);
-    feed(cap, (i) => frame(i === 8 ? 1530 : 1500, { A: [3, 10] })); // one frame 2 % fast, in the middle of the averaging
+    // one frame 2 % fast, in the middle of the averaging
+    feed(cap, (i) => frame(i === 8 ? 1530 : 1500, { A: [3, 10] }));
     const r = cap.result!;
     expect(r.restarts).toBe(1);
     expect(r.notes[0]).toMatch(/speed changed from 1500 to 1530 r\/min \(2\.0 %\).*restarted/);

@@ -13,11 +13,12 @@ import { loadScenario, parseAt, resolveScenario } from '../drivers/sim/scenario.
 import { SimSource, type Pacer } from '../drivers/sim/source.js';
 
 /**
- * Balancing without phase on the live page, in a real browser (Debian chromium via playwright-core),
- * against the whole measuring loop on the simulated demo fan (invented Kessrow ID-3A, day 5 15:00,
- * after weight W1 was thrown) with the tach pickup LOST: SimSource -> AgentRuntime -> live server.
- * The test plays the technician: fits the trial weight at 0/120/240 deg on the simulated fan, presses
- * "Read" for each amplitude, works out the correction on the page, fits it, and checks the 1x.
+ * Balancing without phase on the live page, in a real browser (Debian chromium via
+ * playwright-core), against the whole measuring loop on the simulated demo fan (invented Kessrow
+ * ID-3A, day 5 15:00, after weight W1 was thrown) with the tach pickup LOST:
+ * SimSource -> AgentRuntime -> live server. The test plays the technician: fits the trial weight at
+ * 0/120/240 deg on the simulated fan, presses "Read" for each amplitude, works out the correction
+ * on the page, fits it, and checks the 1x.
  */
 
 const OPERATOR = 'operator-0123456789abcdef-op';
@@ -91,7 +92,10 @@ describe('four-run balancing on the live page with the tach lost', () => {
     rmSync(dir, { recursive: true, force: true });
   });
 
-  /** Waits until two analysis windows have closed after now (the first may straddle a weight change). */
+  /**
+   * Waits until two analysis windows have closed after now (the first may straddle a weight
+   * change).
+   */
   async function freshWindows(): Promise<void> {
     const start = src.scenarioTimeS;
     while (src.scenarioTimeS < start + 9) await new Promise((r) => setTimeout(r, 50));
@@ -158,7 +162,9 @@ describe('four-run balancing on the live page with the tach lost', () => {
     await freshWindows();
     const after = await read('fr_a0');
     console.log(
-      `four-run on the page: as found ${asFound} mm/s pk; correction ${mass.toFixed(1)} g at ${angle.toFixed(1)} deg; check ${after} mm/s pk = ${((after / asFound) * 100).toFixed(1)} % of as found`,
+      `four-run on the page: as found ${asFound} mm/s pk; correction ` +
+        `${mass.toFixed(1)} g at ${angle.toFixed(1)} deg; check ${after} mm/s ` +
+        `pk = ${((after / asFound) * 100).toFixed(1)} % of as found`,
     );
     expect(after / asFound).toBeLessThan(0.15);
     expect(pageErrors).toEqual([]);

@@ -15,10 +15,10 @@ import { SimSource, type Pacer } from '../drivers/sim/source.js';
 
 /**
  * The live page on a phone, in a real browser (Debian chromium through playwright-core): every
- * screen (token, vectors, balancing with an open job and its tools, job records, report) at 390 x 844
- * CSS px (a common phone width) and after turning the phone to 844 x 390, with no sideways
- * scrolling: document.documentElement.scrollWidth <= window.innerWidth, and the trend charts no wider
- * than the screen and as wide as it allows (they follow the page through a ResizeObserver).
+ * screen (token, vectors, balancing with an open job and its tools, job records, report) at 390 x
+ * 844 CSS px (a common phone width) and after turning the phone to 844 x 390, with no sideways
+ * scrolling: document.documentElement.scrollWidth <= window.innerWidth, and the trend charts no
+ * wider than the screen and as wide as it allows (they follow the page through a ResizeObserver).
  * The simulated demo fan (invented Kessrow ID-3A, day 5 15:00) runs 8 times faster than real time.
  *
  * Set TURNWISE_SCREENSHOT_DIR to keep the screenshots (docs/live-view-phone.png is one).
@@ -65,13 +65,15 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
     // With the screenshots kept (documentation runs), the measured widths are written out too.
     if (process.env.TURNWISE_SCREENSHOT_DIR) {
       process.stderr.write(
-        `phone: ${screen} at ${f.innerWidth} px: page ${f.scrollWidth} px, charts ${f.charts.join(', ') || 'none'} px\n`,
+        `phone: ${screen} at ${f.innerWidth} px: page ` +
+          `${f.scrollWidth} px, charts ${f.charts.join(', ') || 'none'} px\n`,
       );
     }
     // The message names the screen and what sticks out, so a failure says where to look.
     expect(
       f.scrollWidth,
-      `${screen} at ${f.innerWidth} px: page ${f.scrollWidth} px wide; past the edge: ${f.over.join(', ')}`,
+      `${screen} at ${f.innerWidth} px: page ${f.scrollWidth} px ` +
+        `wide; past the edge: ${f.over.join(', ')}`,
     ).toBeLessThanOrEqual(f.innerWidth);
     expect(f.over, `${screen} at ${f.innerWidth} px`).toEqual([]);
     return f;
@@ -150,7 +152,8 @@ describe('the live page on a phone (390 px wide, and turned)', () => {
     expect(upright.charts.length).toBeGreaterThanOrEqual(2);
     for (const w of upright.charts) {
       expect(w).toBeLessThanOrEqual(PHONE.width);
-      expect(w).toBeGreaterThan(PHONE.width * 0.8); // as wide as the screen allows, not a fixed width
+      // as wide as the screen allows, not a fixed width
+      expect(w).toBeGreaterThan(PHONE.width * 0.8);
     }
     await page.screenshot({ path: join(shots, 'live-view-phone.png') });
     await page.evaluate(`document.querySelector('#trend').previousElementSibling.scrollIntoView()`);

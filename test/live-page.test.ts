@@ -122,7 +122,8 @@ describe('live page in a real browser', () => {
     pageErrors.length = 0; // the refused token above is logged by the browser as a failed request
     expect(await page.locator('.card').count()).toBe(6);
 
-    // At least two updates of the vectors within 3 s (the page draws at most update_hz = 4 per second).
+    // At least two updates of the vectors within 3 s (the page draws at most update_hz = 4 per
+    // second).
     const seen = new Set<string>();
     const t0 = Date.now();
     while (Date.now() - t0 < 3000) {
@@ -136,8 +137,8 @@ describe('live page in a real browser', () => {
       await page.waitForTimeout(150);
     }
     expect(seen.size).toBeGreaterThanOrEqual(3);
-    // The page shows what the measurement core measures: DE-V near the model's 1x (docs/simulator.md: 2.56 mm/s
-    // r.m.s. = 3.62 mm/s pk at 104 deg at day 5 15:00).
+    // The page shows what the measurement core measures: DE-V near the model's 1x
+    // (docs/simulator.md: 2.56 mm/s r.m.s. = 3.62 mm/s pk at 104 deg at day 5 15:00).
     const amp = Number(await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-amp'));
     const phase = Number(
       await page.locator('.card[data-sensor="DE-V"]').getAttribute('data-phase'),
@@ -201,14 +202,16 @@ describe('live page in a real browser', () => {
       });
     };
     const declare = async () => {
-      expect(await page.isDisabled('#declare-run')).toBe(true); // not before the cautions are acknowledged
+      // not before the cautions are acknowledged
+      expect(await page.isDisabled('#declare-run')).toBe(true);
       expect(await page.textContent('#cautions')).toMatch(/Lock out and tag out/);
       await page.check('#ack');
       await page.click('#declare-run');
     };
 
     await capture(0);
-    // Trial 1: the suggested trial weight (10 % of the rotor weight on one bearing, common practice).
+    // Trial 1: the suggested trial weight (10 % of the rotor weight on one bearing, common
+    // practice).
     await page.waitForSelector('#trial-form');
     expect(await page.textContent('#trial-suggestion')).toMatch(/Suggested: 23 g at 760 mm/);
     expect(await page.textContent('#cautions')).toMatch(
@@ -264,7 +267,8 @@ describe('live page in a real browser', () => {
     await page.waitForFunction(
       'document.querySelector("#cautions").textContent.includes("weight in front_shroud")',
     );
-    // F = m r omega^2 of the proposed weights, shown before the change (about 1000 N for 55 g here).
+    // F = m r omega^2 of the proposed weights, shown before the change (about 1000 N for 55 g
+    // here).
     expect(await page.textContent('#cautions')).toMatch(
       /weight in back_plate: 5\d\.\d g at 760 mm pulls F = m r ω² = \d{3,4} N/,
     );
@@ -340,9 +344,13 @@ describe('live page in a real browser', () => {
     const back = rows.find((r) => r.plane === 'back_plate')!;
     const front = rows.find((r) => r.plane === 'front_shroud')!;
     console.log(
-      `thrown C1 ${Number(c1.massG).toFixed(1)} g at ${Number(c1.angleDeg).toFixed(0)} deg; forecast back_plate ${Number(back.massG).toFixed(1)} g at ${Number(back.angleDeg).toFixed(0)} deg, front_shroud ${Number(front.massG).toFixed(1)} g`,
+      `thrown C1 ${Number(c1.massG).toFixed(1)} g at ` +
+        `${Number(c1.angleDeg).toFixed(0)} deg; forecast back_plate ` +
+        `${Number(back.massG).toFixed(1)} g at ${Number(back.angleDeg).toFixed(0)} deg, ` +
+        `front_shroud ${Number(front.massG).toFixed(1)} g`,
     );
-    // The replacement: C1's mass and angle (same convention, same radius), the other plane about untouched.
+    // The replacement: C1's mass and angle (same convention, same radius), the other plane about
+    // untouched.
     expect(back.radiusMm).toBe('760');
     expect(Math.abs(Number(back.massG) / Number(c1.massG) - 1)).toBeLessThan(0.15);
     expect(

@@ -31,8 +31,8 @@ function userText(fn: () => unknown): string {
 
 /**
  * The live page's server on a real socket: access (tokens, roles, constant-time compare, nothing
- * secret in the logs), API validation with clear errors, the WebSocket, and a whole single-plane job
- * through the HTTP API driven by live frames built here from a known rotor.
+ * secret in the logs), API validation with clear errors, the WebSocket, and a whole single-plane
+ * job through the HTTP API driven by live frames built here from a known rotor.
  */
 
 const VIEWER = 'viewer-token-0123456789abcdef';
@@ -80,7 +80,8 @@ function config(stateDir: string, live: Record<string, unknown> = {}): Config {
  * A one-plane rotor at 1500 r/min (invented figures): as found 4 mm/s pk at 100 deg at DE-V; a gram
  * on the reference mark adds 0.05 mm/s pk at 30 deg (influence coefficient H). A weight theta
  * against rotation adds H m e^{i theta} (agent/balance/conventions.ts). One-plane correction
- * W = -V0 / H (influence-coefficient method, textbook): 4 / 0.05 = 80 g at 100 - 30 + 180 = 250 deg.
+ * W = -V0 / H (influence-coefficient method, textbook): 4 / 0.05 = 80 g at
+ * 100 - 30 + 180 = 250 deg.
  */
 const D2R = Math.PI / 180;
 function rotor1x(
@@ -318,7 +319,8 @@ describe('live page server', () => {
       radius_mm: 355.6,
       positions: { count: 9, first_deg: 0, radius_mm: 406.4 },
     });
-    // Issue 6's split contract, by the law of sines by hand: 42.47 g at position 6, 14.75 g at position 7.
+    // Issue 6's split contract, by the law of sines by hand: 42.47 g at position 6, 14.75 g at
+    // position 7.
     expect(split.status).toBe(200);
     expect(split.body.weights.map((w: { position: number }) => w.position)).toEqual([6, 7]);
     expect(split.body.weights[0].mass_g).toBeCloseTo(42.47, 2);
@@ -338,8 +340,9 @@ describe('live page server', () => {
     });
     expect(grade.body.permissible_g_mm).toBeGreaterThan(20250);
     expect(grade.body.permissible_g_mm).toBeLessThan(20350);
-    // F = m r omega^2 (textbook; own computation): 50 g at 600 mm at 1480 r/min pulls about 720 N; the trial rule
-    // (common practice: trial force about 10 % of the rotor weight on the nearest bearing) inverts it.
+    // F = m r omega^2 (textbook; own computation): 50 g at 600 mm at 1480 r/min pulls about 720 N;
+    // the trial rule (common practice: trial force about 10 % of the rotor weight on the nearest
+    // bearing) inverts it.
     const trial = await call('POST', '/api/tools/trial-weight', VIEWER, {
       bearing_load_kg: 720 / 9.80665 / 0.1,
       radius_mm: 600,
@@ -494,7 +497,8 @@ describe('live page server', () => {
       'leave the trial weights on and add these',
     ]);
 
-    // Fit a little less than asked (what the technician had): 76 g, at 600 mm instead of 500 (x 500/600 = 63.3 g).
+    // Fit a little less than asked (what the technician had): 76 g, at 600 mm instead of 500 (x
+    // 500/600 = 63.3 g).
     const check = await call('POST', `/api/jobs/${id}/runs`, OPERATOR, {
       purpose: 'check',
       remove: 'all_trials',
@@ -511,10 +515,12 @@ describe('live page server', () => {
     await call('POST', `/api/jobs/${id}/capture`, OPERATOR, {});
     view = await runCapture(id);
     const res = view.job.runs[2].residual;
-    // 4 g short of 80 g on the right angle leaves 4/80 = 5 % of the as-found vector, 4 g x 500 mm = 2000 g mm.
+    // 4 g short of 80 g on the right angle leaves 4/80 = 5 % of the as-found vector, 4 g x
+    // 500 mm = 2000 g mm.
     expect(res.sensors[0].pct_of_as_found).toBeCloseTo(5, 6);
     expect(res.unbalance_g_mm.P1).toBeCloseTo(2000, 3);
-    // ISO 21940-11 (from memory): U_per = 1000 G m / omega = 1000 x 6.3 x 400 / 157.08 = 16 043 g mm.
+    // ISO 21940-11 (from memory): U_per = 1000 G m / omega = 1000 x 6.3 x 400 / 157.08 = 16 043 g
+    // mm.
     expect(res.permissible_g_mm).toBeCloseTo((1000 * 6.3 * 400) / ((1500 * Math.PI) / 30), 3);
     expect(res.within_grade).toBe(true);
     expect(res.trim[0].mass_g).toBeCloseTo(4, 6);
@@ -758,7 +764,8 @@ describe('turnwise live (command line)', () => {
         [
           'machine: { id: test-fan, group: 2, support: rigid }',
           'tach: { channel: 1, trigger_v: 2.5 }',
-          'sensors: [{ id: DE-V, channel: 0, bearing: DE, direction: vertical, sensitivity_mv_per_g: 100 }]',
+          'sensors: [{ id: DE-V, channel: 0, bearing: DE, ' +
+            'direction: vertical, sensitivity_mv_per_g: 100 }]',
           'live:',
           '  bind: 0.0.0.0',
           '  tokens:',

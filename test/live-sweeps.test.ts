@@ -112,7 +112,8 @@ describe('sweeps and captures on the live page', () => {
         await new Promise((r) => setTimeout(r, 500));
       }
       expect(sweeps.map((s) => s.direction)).toEqual(['down', 'up']); // newest first
-      const want = velocityPeakRpm(15, 0.06); // the model's own curve (own computation), test/support/sweep-sim.ts
+      // the model's own curve (own computation), test/support/sweep-sim.ts
+      const want = velocityPeakRpm(15, 0.06);
       for (const s of sweeps)
         for (const r of s.resonances) expect(Math.abs(r.rpm - want) / want).toBeLessThan(0.03);
       const one = (await (await get(`/api/sweeps/${sweeps[0]!.id}`)).json()) as {
@@ -151,7 +152,8 @@ describe('sweeps and captures on the live page', () => {
         expect(r.status, bad).toBe(404);
       }
 
-      // The page: the recorded sweeps listed and overlaid, the captures downloadable; nothing wider than the phone.
+      // The page: the recorded sweeps listed and overlaid, the captures downloadable; nothing wider
+      // than the phone.
       await page.evaluate(() => void ((globalThis as any).location.hash = '#live'));
       await page.evaluate(() => void ((globalThis as any).location.hash = '#sweeps'));
       await page.waitForFunction(

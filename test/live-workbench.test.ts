@@ -179,7 +179,8 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     const res = solved.body.view.job.solution.result;
     expect(res.ok).toBe(true);
     // The correction is the rotor's own unbalance turned 180 deg, in the with-rotation convention:
-    // P1 40 g at 70 + 180 = 250 deg against = 110 deg with; P2 25 g at 20 deg against = 340 deg with.
+    // P1 40 g at 70 + 180 = 250 deg against = 110 deg with; P2 25 g at 20 deg against = 340 deg
+    // with.
     expect(res.corrections[0].mass_g).toBeCloseTo(40, 6);
     expect(angleDiff(res.corrections[0].angle_deg, 110)).toBeCloseTo(0, 5);
     expect(res.corrections[1].mass_g).toBeCloseTo(25, 6);
@@ -224,7 +225,8 @@ describe('static-couple and trim jobs on a geometric rotor', () => {
     const solved = await post(`/api/jobs/${id}/solve`, {});
     const res = solved.body.view.job.solution.result;
     expect(res.method).toBe('given_coefficients');
-    // Cancel the build-up: 12 g at 150 + 180 = 330 deg against = 30 deg with rotation in P2, nothing in P1.
+    // Cancel the build-up: 12 g at 150 + 180 = 330 deg against = 30 deg with rotation in P2,
+    // nothing in P1.
     expect(res.corrections[0].mass_g).toBeLessThan(1e-6);
     expect(res.corrections[1].mass_g).toBeCloseTo(12, 6);
     expect(angleDiff(res.corrections[1].angle_deg, 30)).toBeCloseTo(0, 5);

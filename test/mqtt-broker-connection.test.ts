@@ -120,7 +120,8 @@ describe('BrokerConnection: reconnect backoff', () => {
       expect(d!).toBeGreaterThanOrEqual(caps[n] / 2);
       expect(d!).toBeLessThanOrEqual(caps[n]);
     });
-    // The waits were really kept: each attempt came no sooner than its drawn wait after the one before.
+    // The waits were really kept: each attempt came no sooner than its drawn wait after the one
+    // before.
     for (let n = 1; n < 7; n++) {
       expect(attempts[n].at - attempts[n - 1].at).toBeGreaterThanOrEqual(expected[n - 1] - 2);
     }
@@ -188,7 +189,8 @@ describe('BrokerConnection: clients that never connect', () => {
         'warn',
       ),
     ).toHaveLength(1);
-    expect(conn.counts.stuckReplaced).toBe(0); // mqtt.js's own timeout ended it, not the liveness check
+    // mqtt.js's own timeout ended it, not the liveness check
+    expect(conn.counts.stuckReplaced).toBe(0);
   }, 30_000);
 
   it('the liveness check replaces a client that never even starts connecting, by the injected clock', async () => {
@@ -202,7 +204,8 @@ describe('BrokerConnection: clients that never connect', () => {
       log,
       session: recordingSession().session,
       now: () => t,
-      // The first client never starts connecting and never closes: what a stuck client looks like from outside.
+      // The first client never starts connecting and never closes: what a stuck client looks like
+      // from outside.
       connect: (url, opts) => mqttConnect(url, { ...opts, manualConnect: calls++ === 0 }),
     });
     conn.start();
@@ -281,7 +284,8 @@ describe('BrokerConnection: broker limits and stop', () => {
     expect(conn.protocolVersion).toBe(5);
     expect(conn.limits).toEqual({ receiveMaximum: 3, maximumPacketSize: 2048 });
     const say = (size: number, max: number) => ({ message: `test: ${size} > ${max}`, kind: 'k' });
-    // MQTT 5.0 section 3.3: 1 + 2 (remaining length) + topic 2+9 + packet id 2 + properties 1+0 + payload.
+    // MQTT 5.0 section 3.3: 1 + 2 (remaining length) + topic 2+9 + packet id 2 + properties
+    // 1+0 + payload.
     const overhead = 1 + 2 + (2 + 9 + 2 + 1);
     expect(conn.tooLarge('test/size', 2048 - overhead, 1, 0, say)).toBe(false);
     expect(conn.tooLarge('test/size', 2048 - overhead + 1, 1, 0, say)).toBe(true);

@@ -18,7 +18,8 @@ import { TestSubscriber } from './support/subscriber.js';
 
 /**
  * Commands over a real broker: every reply is checked against the committed cmd-reply schema; the
- * acknowledge command drives a real advisory (fake GPIO lines); nothing a sender writes stops the agent.
+ * acknowledge command drives a real advisory (fake GPIO lines); nothing a sender writes stops the
+ * agent.
  */
 const ASSET = 'kessrow-id3a'; // invented demo fan
 const TOKEN = 'id3a-command-token-for-tests-only';

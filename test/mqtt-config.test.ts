@@ -139,7 +139,8 @@ describe('turnwise mqtt outbox', () => {
     writeFileSync(join(ob, 'quarantine', `${recordName(2)}.2025-03-01T09-00-00-000Z`), 'junk');
     const cfgText = readFileSync('config/example.yaml', 'utf8').replace(
       'state_dir: ./state',
-      `state_dir: ${join(d, 'state')}\nmqtt: { url: "mqtt://127.0.0.1:1883", topic_prefix: kessrow/boiler3 }`,
+      `state_dir: ${join(d, 'state')}\nmqtt: { url: ` +
+        `"mqtt://127.0.0.1:1883", topic_prefix: kessrow/boiler3 }`,
     );
     writeFileSync(join(d, 'cfg.yaml'), cfgText);
     let out = '';

@@ -63,7 +63,8 @@ function startChild(args: Record<string, unknown>): Child {
         if (hit) return hit;
         if (proc.exitCode !== null || Date.now() > until)
           throw new Error(
-            `child: no ${what} (exit ${proc.exitCode}); stdout: ${JSON.stringify(lines.slice(-5))}; stderr: ${stderr.slice(-2000)}`,
+            `child: no ${what} (exit ${proc.exitCode}); stdout: ` +
+              `${JSON.stringify(lines.slice(-5))}; stderr: ${stderr.slice(-2000)}`,
           );
         await new Promise((r) => setTimeout(r, 20));
       }
@@ -146,8 +147,8 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
       proxy.holdReplies = true; // from now on no PUBACK reaches the agent
       a.proc.stdin!.write('go\n');
       await a.waitFor((l) => l.all_durable === true, 60_000, 'all events durable');
-      // The child keeps at most 4 unacknowledged events in flight (inflight_window: 4): those 4 reach
-      // the broker, the other 6 wait on disk.
+      // The child keeps at most 4 unacknowledged events in flight (inflight_window: 4): those
+      // 4 reach the broker, the other 6 wait on disk.
       await sub.waitFor(
         (m) => m.filter((x) => x.topic.includes('/event/')).length >= 4,
         10_000,
@@ -155,7 +156,8 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
       );
       await new Promise((r) => setTimeout(r, 300));
       expect(sub.messages.filter((x) => x.topic.includes('/event/'))).toHaveLength(4);
-      expect(recs(stateDir)).toHaveLength(10); // published or not, none acknowledged: all still on disk
+      // published or not, none acknowledged: all still on disk
+      expect(recs(stateDir)).toHaveLength(10);
       await killHard(a);
       await sub.waitFor(
         (m) =>
@@ -240,7 +242,9 @@ describe('agent killed with SIGKILL (child process, real files, real mosquitto)'
       for (const q of quarantined) expect(q).toMatch(/\.rec\.tmp\./);
       expect(recs(stateDir)).toEqual([]);
       console.info(
-        `random kill -9: ${ROUNDS} rounds, ${durable.size} events reported saved, ${sub.messages.length} messages received (duplicates allowed), ${quarantined.length} torn temp file(s) quarantined`,
+        `random kill -9: ${ROUNDS} rounds, ${durable.size} events reported ` +
+          `saved, ${sub.messages.length} messages received (duplicates ` +
+          `allowed), ${quarantined.length} torn temp file(s) quarantined`,
       );
     },
     SLOW,

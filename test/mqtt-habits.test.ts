@@ -90,7 +90,8 @@ describe('MQTT 5 and the broker limits (mosquitto with small limits)', () => {
     for (let i = 0; i < 10; i++) await l.queueEvent(event(i));
     await until(() => l.publisher.linkInfo().inflight_max_seen >= 2, 5000, 'two in flight');
     await new Promise((r) => setTimeout(r, 500));
-    expect(l.publisher.linkInfo().inflight_max_seen).toBe(2); // reached the broker's receive maximum, never more
+    // reached the broker's receive maximum, never more
+    expect(l.publisher.linkInfo().inflight_max_seen).toBe(2);
     expect(l.outbox.size).toBe(10);
   }, 30_000);
 
@@ -227,7 +228,8 @@ describe('liveness and reconnect spread', () => {
       asset: ASSET,
       stateDir: res.tmpDir(),
       log,
-      // The first client never starts connecting and never closes: what a client left stuck looks like from outside.
+      // The first client never starts connecting and never closes: what a client left stuck looks
+      // like from outside.
       connect: (url, opts) => mqttConnect(url, { ...opts, manualConnect: calls++ === 0 }),
     });
     await until(
@@ -249,7 +251,8 @@ describe('liveness and reconnect spread', () => {
     expect([0, 1, 2, 3, 4, 5].map((n) => Math.round(hi(n)))).toEqual([
       500, 1000, 2000, 4000, 8000, 8000,
     ]);
-    // MQTT 5.0 section 3.3: 1 byte type, remaining length 2 bytes here, topic 2+5, packet id 2, properties 1+0, payload 200.
+    // MQTT 5.0 section 3.3: 1 byte type, remaining length 2 bytes here, topic 2+5, packet id 2,
+    // properties 1+0, payload 200.
     expect(publishPacketBytes('a/b/c', 200, 1, 5, 0)).toBe(1 + 2 + (2 + 5 + 2 + 1 + 200));
     expect(publishPacketBytes('a/b/c', 100, 0, 4)).toBe(1 + 1 + (2 + 5 + 100));
   });
@@ -288,7 +291,8 @@ describe('liveness and reconnect spread', () => {
       10_000,
       'all 50 saw the broker go',
     );
-    await new Promise((r) => setTimeout(r, 3000)); // the broker is down for about 3 s, as a restart under load takes
+    // the broker is down for about 3 s, as a restart under load takes
+    await new Promise((r) => setTimeout(r, 3000));
     await m.restart();
     const up = Date.now();
     await until(() => links.every((l) => l.publisher.isConnected()), 30_000, 'all 50 reconnected');
@@ -301,7 +305,9 @@ describe('liveness and reconnect spread', () => {
       perSecond.set(Math.floor(t / 1000), (perSecond.get(Math.floor(t / 1000)) ?? 0) + 1);
     const busiest = Math.max(...perSecond.values());
     console.info(
-      `50 agents after a ${((up - down) / 1000).toFixed(1)} s broker outage: reconnects from +${rel[0]} ms to +${rel.at(-1)} ms after the restart (spread ${spread} ms); busiest wall-clock second held ${busiest} of 50`,
+      `50 agents after a ${((up - down) / 1000).toFixed(1)} s broker outage: ` +
+        `reconnects from +${rel[0]} ms to +${rel.at(-1)} ms after the restart ` +
+        `(spread ${spread} ms); busiest wall-clock second held ${busiest} of 50`,
     );
     expect(spread).toBeGreaterThan(1000);
     expect(busiest).toBeLessThan(N);

@@ -105,7 +105,9 @@ function testEvent(i: number, severity: AgentEvent['severity'] = 'warning'): Age
     step: i,
   };
 }
-/** Ids in order of first arrival, and a check that every repeat is byte-identical to its first copy. */
+/**
+ * Ids in order of first arrival, and a check that every repeat is byte-identical to its first copy.
+ */
 function firstArrivals(sub: TestSubscriber, topicPrefix: string): string[] {
   const first = new Map<string, Buffer>();
   for (const m of sub.messages) {
@@ -176,7 +178,8 @@ describe('MQTT publishing against a real mosquitto', () => {
       agent: { watcher_windows_total: 12 },
       mqtt: { connects_total: 1 },
     });
-    // The agent part types the fields it declares and still takes others (a compatible extension of v1).
+    // The agent part types the fields it declares and still takes others (a compatible extension of
+    // v1).
     const withAgent = (agent: Record<string, unknown>) => ({ ...(hb.json as object), agent });
     assertMatches(
       'heartbeat.v1',
@@ -401,7 +404,8 @@ describe('MQTT publishing against a real mosquitto', () => {
       10_000,
       'events published from memory',
     );
-    await new Promise((r) => setTimeout(r, 2500)); // the outbox retries (1 s, 2 s ...) and fails again
+    // the outbox retries (1 s, 2 s ...) and fails again
+    await new Promise((r) => setTimeout(r, 2500));
     full = false;
     await sub.waitFor(
       (m) => m.some((x) => x.topic === `${base}/event/outbox_store_recovered`),

@@ -22,7 +22,9 @@ import { testResources } from './support/harness.js';
 const res = testResources('tw-packet-cache-');
 const fromMqtt = createRequire(createRequire(import.meta.url).resolve('mqtt'));
 
-/** A new mqtt-packet instance with empty caches; the one mqtt.js uses stays in the require cache. */
+/**
+ * A new mqtt-packet instance with empty caches; the one mqtt.js uses stays in the require cache.
+ */
 function freshWriter(): PacketWriter {
   const dir = dirname(fromMqtt.resolve('mqtt-packet')) + sep;
   const ours = () => Object.keys(fromMqtt.cache).filter((k) => k.startsWith(dir));
@@ -38,7 +40,10 @@ function freshWriter(): PacketWriter {
 
 const payload = Buffer.alloc(CACHED_LENGTHS + 10); // un-pooled
 
-/** Writes a publish of remaining length `len` and returns the chunk holding the remaining length (the second one written). */
+/**
+ * Writes a publish of remaining length `len` and returns the chunk holding the remaining length
+ * (the second one written).
+ */
 function lengthField(write: PacketWriter, len: number): Buffer {
   const chunks: unknown[] = [];
   const sink = {
@@ -68,7 +73,10 @@ function longRun(write: PacketWriter, lengths: readonly number[]): Set<ArrayBuff
   return blocks;
 }
 
-/** 400 distinct lengths in the range of the demo fan's live and event messages (360-1342 bytes in the soak). */
+/**
+ * 400 distinct lengths in the range of the demo fan's live and event messages (360-1342 bytes in
+ * the soak).
+ */
 const soakLengths = Array.from({ length: 400 }, (_, i) => 1000 + ((i * 7) % 400));
 /** And 2000 more spread over every cached length. */
 const allLengths = [
@@ -79,7 +87,8 @@ const POOL_BLOCK = Buffer.poolSize;
 
 describe('mqtt-packet caches', () => {
   it('without the fill, every new length pins another pool block (the growth the soak showed)', () => {
-    // Control: if this fails after an mqtt-packet upgrade, the library no longer caches pool slices and the fill may go.
+    // Control: if this fails after an mqtt-packet upgrade, the library no longer caches pool slices
+    // and the fill may go.
     const blocks = longRun(freshWriter(), soakLengths);
     expect(blocks.size).toBeGreaterThan(300);
     expect(blocks.size * POOL_BLOCK).toBeGreaterThan(2.4 * 2 ** 20);
@@ -91,14 +100,16 @@ describe('mqtt-packet caches', () => {
     expect(write.cacheNumbers).toBe(false);
     const filled = new Set<ArrayBufferLike>();
     for (let len = 3; len < CACHED_LENGTHS; len++) filled.add(lengthField(write, len).buffer);
-    // 8-byte aligned 4-byte entries and one 2-byte topic length each: 16 bytes a length, 32 blocks of 8 KiB (+1 partly used before).
+    // 8-byte aligned 4-byte entries and one 2-byte topic length each: 16 bytes a length, 32 blocks
+    // of 8 KiB (+1 partly used before).
     expect(filled.size).toBeLessThanOrEqual(33);
     const blocks = longRun(write, allLengths);
     for (const b of blocks) expect(filled.has(b)).toBe(true);
   });
 
   it('keeps the remaining length encoded as the standard says', () => {
-    // OASIS MQTT 3.1.1, section 2.2.3, Table 2.4: 0-127 in one byte, 128 = 0x80 0x01, 16383 = 0xFF 0x7F.
+    // OASIS MQTT 3.1.1, section 2.2.3, Table 2.4: 0-127 in one byte, 128 = 0x80 0x01, 16383 = 0xFF
+    // 0x7F.
     const write = freshWriter();
     settleMqttPacketCaches(write);
     expect([...lengthField(write, 3)]).toEqual([0x03]);
@@ -129,7 +140,8 @@ describe('mqtt-packet caches', () => {
     expect(asked).not.toBeNull();
     expect(asked!.writeCache).toBe(false);
     expect(real.cacheNumbers).toBe(false);
-    // Filled at start: the long run finds every length and pins nothing (without the fill it pins hundreds of blocks).
+    // Filled at start: the long run finds every length and pins nothing (without the fill it pins
+    // hundreds of blocks).
     expect(longRun(real, allLengths).size).toBeLessThanOrEqual(33);
   });
 });

@@ -122,8 +122,8 @@ describe('TLS and credentials against a real mosquitto', () => {
     void l.queueEvent(event(2));
     await until(() => attempts.length >= 6, 15_000, 'six connection attempts');
     const gaps = attempts.slice(1).map((t, i) => t - attempts[i]!);
-    // Backoff caps 0.1, 0.2, 0.4, 0.8, 0.8 s, each wait between half the cap and the cap (agent/mqtt/backoff.ts):
-    // lower bounds only (a busy machine can only be slower).
+    // Backoff caps 0.1, 0.2, 0.4, 0.8, 0.8 s, each wait between half the cap and the cap
+    // (agent/mqtt/backoff.ts): lower bounds only (a busy machine can only be slower).
     expect(gaps[0]).toBeGreaterThanOrEqual(50);
     expect(gaps[2]).toBeGreaterThanOrEqual(200);
     expect(gaps[3]).toBeGreaterThanOrEqual(400);
@@ -236,7 +236,8 @@ describe('secrets', () => {
     expect(err).toBeInstanceOf(UserError);
     expect((err as UserError).format()).toMatch(
       new RegExp(
-        `mqtt\\.password\\.file: secret file ${f} is open to group or others \\(mode 0644\\)[\\s\\S]*chmod 600 ${f}`,
+        `mqtt\\.password\\.file: secret file ${f} is open to ` +
+          `group or others \\(mode 0644\\)[\\s\\S]*chmod 600 ${f}`,
       ),
     );
     expect((err as UserError).format()).not.toContain(PASSWORD);

@@ -131,7 +131,8 @@ describe('durable outbox on real files', () => {
     expect(await ob.add(ev(4, 'warning'))).toBe('durable'); // drops id-1 (oldest info)
     expect([...ob.sendable()].map((e) => e.id)).toEqual(['id-0', 'id-2', 'id-3', 'id-4']);
     expect(await ob.add(ev(5, 'info'))).toBe('durable'); // drops id-3 (oldest info)
-    expect(await ob.add(ev(6, 'alarm'))).toBe('durable'); // drops id-5 (the only info left, the newest)
+    // drops id-5 (the only info left, the newest)
+    expect(await ob.add(ev(6, 'alarm'))).toBe('durable');
     expect(await ob.add(ev(7, 'alarm'))).toBe('durable'); // drops id-2 (oldest warning)
     expect(await ob.add(ev(8, 'alarm'))).toBe('durable'); // drops id-4
     expect([...ob.sendable()].map((e) => e.id)).toEqual(['id-0', 'id-6', 'id-7', 'id-8']);
@@ -167,7 +168,8 @@ describe('durable outbox on real files', () => {
     damaged[damaged.length - 4] ^= 0x20;
     writeFileSync(join(dir, recordName(2)), damaged);
     writeFileSync(join(dir, recordName(3)), good(3).subarray(0, 30)); // cut short
-    writeFileSync(join(dir, recordName(4) + '.tmp'), good(4, 'alarm')); // complete, rename never happened
+    // complete, rename never happened
+    writeFileSync(join(dir, recordName(4) + '.tmp'), good(4, 'alarm'));
     writeFileSync(join(dir, recordName(5) + '.tmp'), Buffer.alloc(0)); // killed right after open()
     writeFileSync(join(dir, recordName(6)), 'garbage that is not a record');
     writeFileSync(join(dir, recordName(7)), good(7));
@@ -279,7 +281,8 @@ describe('durable outbox on a real full tmpfs', () => {
     const mnt = tryMountTmpfs();
     if (!mnt)
       return ctx.skip(
-        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the injected-ENOSPC test covers the same path',
+        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); ' +
+          'the injected-ENOSPC test covers the same path',
       );
     try {
       const dir = join(mnt, 'outbox');
@@ -299,7 +302,8 @@ describe('durable outbox on a real full tmpfs', () => {
       expect(notices.filter((n) => n.kind === 'store_failed')).toEqual([
         expect.objectContaining({ code: 'ENOSPC' }),
       ]);
-      expect(readdirSync(dir).filter((n) => n.includes('.rec'))).toEqual([]); // nothing half-written left behind
+      // nothing half-written left behind
+      expect(readdirSync(dir).filter((n) => n.includes('.rec'))).toEqual([]);
       rmSync(ballast);
       const until = Date.now() + 3000;
       while (!ob.health().store_ok && Date.now() < until)

@@ -83,11 +83,13 @@ describe('progress on stderr (agent/cli/progress.ts)', () => {
   it('shows progress when stderr is a terminal, and clears its line at the end', () => {
     const r = underPty('stderr', args());
     expect(r.code).toBe(0);
-    // At least the first update (never throttled), on one line rewritten with \r, erased to its end.
+    // At least the first update (never throttled), on one line rewritten with \r, erased to its
+    // end.
     expect(r.tty).toMatch(/^\ranalyze: +\d{1,3} % \d+\.\d of 12\.0 s\x1b\[K/);
     // done(): back to the start of the line and erase it, so the terminal is left clean.
     expect(r.tty.endsWith('\r\x1b[K')).toBe(true);
-    // Nothing but progress on the terminal: every piece is "\r<label>... \x1b[K" or the final erase.
+    // Nothing but progress on the terminal: every piece is "\r<label>... \x1b[K" or the final
+    // erase.
     expect(
       r.tty
         .split('\r')

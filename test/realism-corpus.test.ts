@@ -21,20 +21,22 @@ import { CORPUS } from './support/realism-cases.js';
  * real process on the compiled CLI (build first: `npm run build`).
  *
  * Every expected value states its basis:
- * - 1x amplitude and phase, overall r.m.s.: own computation from the recorder's parameters (unbalance
- *   force m r w^2 through each housing's 2nd-order receptance; neighbour leakage into the synchronous
- *   average as a closed-form Fourier coefficient per revolution; noise, mains and impact band powers
- *   in closed form). Never from running the product.
- * - zone: ISO 20816-3 boundaries (table below) applied to the expected overall of the sensors that are
- *   OK; a sensor that is not OK takes no part (machinery-protection practice, API 670 from memory).
+ * - 1x amplitude and phase, overall r.m.s.: own computation from the recorder's parameters
+ *   (unbalance force m r w^2 through each housing's 2nd-order receptance; neighbour leakage into
+ *   the synchronous average as a closed-form Fourier coefficient per revolution; noise, mains and
+ *   impact band powers in closed form). Never from running the product.
+ * - zone: ISO 20816-3 boundaries (table below) applied to the expected overall of the sensors that
+ *   are OK; a sensor that is not OK takes no part (machinery-protection practice, API 670 from
+ *   memory).
  * - verdict: the unbalance rules of the trade (common practice): 1x dominant, H and V about 90 deg
- *   apart, both bearings in phase -> static; neither in phase nor opposed -> dynamic; residual 1x in
- *   zone A is not a finding.
+ *   apart, both bearings in phase -> static; neither in phase nor opposed -> dynamic; residual 1x
+ *   in zone A is not a finding.
  */
 
 /**
  * ISO 20816-3, broadband velocity r.m.s. 10-1000 Hz on bearing housings, zone boundaries A/B, B/C,
- * C/D in mm/s (values confirmed in public summaries of the standard; the 2022 edition is believed to
+ * C/D in mm/s (values confirmed in public summaries of the standard; the 2022 edition is believed
+ * to
  * keep them: from memory).
  */
 const ISO_20816_3: Record<
@@ -83,7 +85,8 @@ interface AnalyzeJson {
 }
 
 const STATIC =
-  'common practice: 1x dominant, H and V about 90 deg apart with a ratio below 3, both bearings in phase in both directions -> static unbalance';
+  'common practice: 1x dominant, H and V about 90 deg apart with a ratio ' +
+  'below 3, both bearings in phase in both directions -> static unbalance';
 
 const CASES: readonly Case[] = [
   {
@@ -100,13 +103,15 @@ const CASES: readonly Case[] = [
       'case (a): zone A fan, overall about 0.65 mm/s, residual 1x with an in-phase bearing pattern',
     kind: 'none',
     kindBasis:
-      'residual unbalance in zone A is not a finding (ISO 20816-3: zone A is the condition of newly commissioned machines; common practice: no balancing is called for there)',
+      'residual unbalance in zone A is not a finding (ISO 20816-3: zone A is the condition ' +
+      'of newly commissioned machines; common practice: no balancing is called for there)',
     zone: 'A',
   },
   {
     recording: 'zone-a-residual-1mm',
     imperfection:
-      'case (a), a little less well balanced: 1x about 1.0 mm/s r.m.s., above the default 0.7 mm/s judging floor, still zone A',
+      'case (a), a little less well balanced: 1x about 1.0 mm/s ' +
+      'r.m.s., above the default 0.7 mm/s judging floor, still zone A',
     kind: 'none',
     kindBasis:
       'residual unbalance in zone A is not a finding (ISO 20816-3 zone A; common practice)',
@@ -115,7 +120,8 @@ const CASES: readonly Case[] = [
   {
     recording: 'loose-connector',
     imperfection:
-      'case (b): DE-H connector intermittent, 3-9 V ringing pulses about 40 a second clipped at the +/-5 V input range, no full_scale_v in the config',
+      'case (b): DE-H connector intermittent, 3-9 V ringing pulses about 40 a ' +
+      'second clipped at the +/-5 V input range, no full_scale_v in the config',
     kind: 'static',
     kindBasis: `${STATIC} (from the three healthy sensors: the vertical pair is in phase)`,
     // Group 1 rigid; from the OK sensors: DE-V 3.2 (B), NDE-V 1.9 (A), NDE-H 3.7 (B). DE-H's true
@@ -126,22 +132,27 @@ const CASES: readonly Case[] = [
   {
     recording: 'neighbour-beat',
     imperfection:
-      'a neighbouring fan at 1.003 x our speed reaches every sensor (0.7-1.2 mm/s pk), beating with our 1x (beat period 13.5 s, longer than the 12 s record)',
+      'a neighbouring fan at 1.003 x our speed reaches every sensor (0.7-1.2 mm/s ' +
+      'pk), beating with our 1x (beat period 13.5 s, longer than the 12 s record)',
     kind: 'static',
     kindBasis: STATIC,
     zone: 'C',
-    // The overall of a beat that does not complete in the record depends on how the window weighs its
-    // start and end: 3 % (own computation: the spectrum's Hann-windowed segments vs the plain mean square).
+    // The overall of a beat that does not complete in the record depends on how the window weighs
+    // its
+    // start and end: 3 % (own computation: the spectrum's Hann-windowed segments vs the plain mean
+    // square).
     tol: { overall: 0.03 },
   },
   {
     recording: 'vsd-ramp',
     imperfection:
-      'the variable-speed drive ramps 1350 -> 1485 r/min (10 %) between 3 s and 9 s of the 12 s record',
+      'the variable-speed drive ramps 1350 -> 1485 r/min ' +
+      '(10 %) between 3 s and 9 s of the 12 s record',
     kind: 'static',
     kindBasis: STATIC,
     zone: 'C',
-    // Velocity-domain average vs acceleration-domain average of the ramp differ by about 0.7 % (own computation).
+    // Velocity-domain average vs acceleration-domain average of the ramp differ by about 0.7 % (own
+    // computation).
     tol: { amp: 0.02, phaseDeg: 1.5 },
     extra: (j, spec) => {
       // Speed = mean revolution period over the record (own computation from the mark times).
@@ -153,7 +164,8 @@ const CASES: readonly Case[] = [
   {
     recording: 'tach-jitter',
     imperfection:
-      'shaft speed differs by 0.2 % r.m.s. from revolution to revolution (the tach pulses follow the integrated speed)',
+      'shaft speed differs by 0.2 % r.m.s. from revolution to ' +
+      'revolution (the tach pulses follow the integrated speed)',
     kind: 'static',
     kindBasis: STATIC,
     zone: 'C',
@@ -161,9 +173,12 @@ const CASES: readonly Case[] = [
   {
     recording: 'opposite-side-configured',
     imperfection:
-      'NDE-H mounted on the opposite side of the housing (axis turned 180 deg), mounting_angle_deg: 180 in the config',
+      'NDE-H mounted on the opposite side of the housing (axis ' +
+      'turned 180 deg), mounting_angle_deg: 180 in the config',
     kind: 'static',
-    kindBasis: `${STATIC}; the 180 deg is subtracted before the comparison (common practice: readings are compared only after each sensor's mounting angle is known)`,
+    kindBasis:
+      `${STATIC}; the 180 deg is subtracted before the comparison (common practice: ` +
+      `readings are compared only after each sensor's mounting angle is known)`,
     zone: 'C',
   },
   {
@@ -171,25 +186,32 @@ const CASES: readonly Case[] = [
     imperfection: 'NDE-H mounted on the opposite side, the config does not say so',
     kind: 'dynamic',
     kindBasis:
-      'common practice applied to what the sensors show: vertical pair in phase, horizontal pair opposed (the unknown 180 deg) -> neither static nor couple -> dynamic, and not a confident verdict',
+      'common practice applied to what the sensors show: vertical pair in ' +
+      'phase, horizontal pair opposed (the unknown 180 deg) -> neither ' +
+      'static nor couple -> dynamic, and not a confident verdict',
     zone: 'C',
     extra: (j) => expect(j.unbalance.confidence).not.toBe('high'),
   },
   {
     recording: 'mains-hum',
     imperfection:
-      '50 Hz (1.8-3 mV pk) and 100 Hz (1.2 mV pk) ground-loop pickup on every sensor cable; 50 Hz sits 0.5 Hz from 2x',
+      '50 Hz (1.8-3 mV pk) and 100 Hz (1.2 mV pk) ground-loop ' +
+      'pickup on every sensor cable; 50 Hz sits 0.5 Hz from 2x',
     kind: 'static',
     kindBasis: STATIC,
-    // The broadband overall counts the hum as vibration (ISO 20816-3 overall is everything in 10-1000 Hz): included in the expected overall.
+    // The broadband overall counts the hum as vibration (ISO 20816-3 overall is everything in
+    // 10-1000 Hz): included in the expected overall.
     zone: 'C',
   },
   {
     recording: 'bearing-defect',
     imperfection:
-      'outer-race defect on NDE: impacts at 3.085 x (1 % slip) ringing a 3.2 kHz housing resonance, about 3.3 g (0.33 V) peaks on NDE-V',
+      'outer-race defect on NDE: impacts at 3.085 x (1 % slip) ringing ' +
+      'a 3.2 kHz housing resonance, about 3.3 g (0.33 V) peaks on NDE-V',
     kind: 'static',
-    kindBasis: `${STATIC}; the impacts are a machine fault above the band, not a sensor fault (their peaks stay far below the input range)`,
+    kindBasis:
+      `${STATIC}; the impacts are a machine fault above the band, not ` +
+      `a sensor fault (their peaks stay far below the input range)`,
     zone: 'C',
   },
 ];
@@ -213,9 +235,9 @@ describe('realism corpus through turnwise analyze (own recorder physics, real CL
         const bounds = ISO_20816_3[spec.machine.group][spec.machine.support];
         const notOk = new Set(c.notOk ?? []);
 
-        // The expectation's own consistency: the stated machine zone is the worst zone of the expected
-        // overalls of the OK sensors, and no expected overall sits within 3 % of a boundary (so the
-        // zone checks below cannot pass or fail on rounding).
+        // The expectation's own consistency: the stated machine zone is the worst zone of the
+        // expected overalls of the OK sensors, and no expected overall sits within 3 % of a
+        // boundary (so the zone checks below cannot pass or fail on rounding).
         let computed: Zone | null = null;
         const expected = new Map<
           string,
@@ -261,7 +283,8 @@ describe('realism corpus through turnwise analyze (own recorder physics, real CL
           expect
             .soft(
               Math.abs(ch.overall_rms_mm_s - e.overall),
-              `${s.id} overall ${ch.overall_rms_mm_s} vs ${e.overall.toFixed(3)} mm/s (own computation)`,
+              `${s.id} overall ${ch.overall_rms_mm_s} vs ` +
+                `${e.overall.toFixed(3)} mm/s (own computation)`,
             )
             .toBeLessThanOrEqual(tOv * e.overall + 0.01);
           const one = ch.orders['1']!;

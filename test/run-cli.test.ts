@@ -76,7 +76,8 @@ logging: {level: warn}
       join(dir, 'lg1.yaml'),
     ]);
     expect(r2.code).toBe(0);
-    // The watcher remembers what it reported, so the second run adds nothing new about the same state.
+    // The watcher remembers what it reported, so the second run adds nothing new about the same
+    // state.
     await sub.waitFor(
       (m) => m.filter((x) => x.topic.includes('/event/')).length >= kept.length,
       10_000,
@@ -123,7 +124,8 @@ logging: {level: warn}
     writeFileSync(cfgFile, good);
     expect(runCli(['run', '--config', cfgFile, '--last-good', lastGood]).code).toBe(0);
     expect(readFileSync(lastGood, 'utf8')).toBe(good);
-    rmSync(state, { recursive: true }); // a fresh watcher, so the fallback run reports the zones again
+    // a fresh watcher, so the fallback run reports the zones again
+    rmSync(state, { recursive: true });
     // Valid YAML and schema, but the recording it names does not exist: the agent cannot measure.
     const sub = await TestSubscriber.open(broker.url, [`${prefix}/+/event/#`]);
     writeFileSync(cfgFile, good.replace('file: rec.wav', 'file: no-such-recording.wav'));
@@ -146,7 +148,8 @@ logging: {level: warn}
       severity: 'alarm',
       error: expect.stringMatching(/no-such-recording\.wav/),
     });
-    // It measured on the last good config (the recording it names), and the failing config was not kept.
+    // It measured on the last good config (the recording it names), and the failing config was not
+    // kept.
     await sub.waitFor(
       (m) => m.some((x) => x.topic.endsWith('/event/zone_changed')),
       10_000,

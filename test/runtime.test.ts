@@ -48,9 +48,10 @@ describe('agent runtime loop', () => {
   });
 
   describe('a gap shorter than a revolution (lost 256-sample serial frames) in a steady signal', () => {
-    // Truth: 1x 5 mm/s pk at 123 deg, 2x 1 mm/s pk at 30 deg, white noise, 1485 r/min exactly, so the
-    // tach marks (the 50 % point of the synthesized pulse, where trigger_v 2.5 V of 5 V cuts it) fall
-    // at n x P samples. A serial frame is 256 samples (drivers/serial/PROTOCOL.md: 128-512), a
+    // Truth: 1x 5 mm/s pk at 123 deg, 2x 1 mm/s pk at 30 deg, white noise, 1485 r/min exactly, so
+    // the tach marks (the 50 % point of the synthesized pulse, where trigger_v 2.5 V of 5 V cuts
+    // it) fall at n x P samples. A serial frame is 256 samples (drivers/serial/PROTOCOL.md:
+    // 128-512), a
     // revolution 1034.3: a lost frame removes a quarter of one revolution.
     const fs = 25600;
     const rpm = 1485;
@@ -108,14 +109,16 @@ describe('agent runtime loop', () => {
     }
 
     /**
-     * Revolutions lost to one gap: each revolution between two tach marks that overlaps the gap (one,
-     * plus one per mark inside it), and the first revolution after it, which the tracker uses to learn
-     * the pulse interval again (docs/measuring.md, "How it measures": two consistent intervals before it trusts any).
+     * Revolutions lost to one gap: each revolution between two tach marks that overlaps the gap
+     * (one, plus one per mark inside it), and the first revolution after it, which the tracker uses
+     * to learn the pulse interval again (docs/measuring.md, "How it measures": two consistent
+     * intervals before it trusts any).
      */
     const lostTo = (g: readonly [number, number]) => marksIn(g).length + 1 + 1;
 
     async function check(gaps: Array<[number, number]>) {
-      // The scenario is what it says: every gap shorter than a revolution, no tach pulse cut by a gap edge.
+      // The scenario is what it says: every gap shorter than a revolution, no tach pulse cut by a
+      // gap edge.
       for (const g of gaps) {
         expect(g[1] - g[0]).toBeLessThan(P);
         const near = Math.min(
@@ -137,7 +140,8 @@ describe('agent runtime loop', () => {
       // The spy saw every averaged revolution (one sensor: one call per revolution).
       expect(lossy.averaged.length).toBe(lossy.revolutions);
       expect(clean.averaged.length).toBe(clean.revolutions);
-      // Counted: exactly the revolutions touched by a gap, and one re-learning revolution after each, are dropped.
+      // Counted: exactly the revolutions touched by a gap, and one re-learning revolution after
+      // each, are dropped.
       const lost = gaps.reduce((s, g) => s + lostTo(g), 0);
       expect(clean.revolutions - lossy.revolutions).toBe(lost);
       // None averaged across a gap: no averaged revolution reads a sample inside one (linear
@@ -185,7 +189,8 @@ describe('agent runtime loop', () => {
 
 describe('stopping', () => {
   it('ends promptly even when the live source delivers nothing (serial board unplugged)', async () => {
-    // A device path that does not exist: the serial source keeps trying to open it and yields nothing.
+    // A device path that does not exist: the serial source keeps trying to open it and yields
+    // nothing.
     const source = new SerialSource({
       device: '/dev/turnwise-test-absent',
       baud: 115_200,
@@ -214,6 +219,7 @@ describe('stopping', () => {
     rt.stop();
     const sum = await running;
     expect(sum.windows).toBe(0);
-    expect(Date.now() - t0).toBeLessThan(5000); // a systemd stop would otherwise wait for TimeoutStopSec
+    // a systemd stop would otherwise wait for TimeoutStopSec
+    expect(Date.now() - t0).toBeLessThan(5000);
   });
 });

@@ -11,7 +11,10 @@ import {
 } from '../drivers/serial/frame.js';
 import { RecordingSink } from './support/frame-sink.js';
 
-/** Bit-by-bit CRC-32 written from the parameters in PROTOCOL.md (the C routine there), independent of zlib. */
+/**
+ * Bit-by-bit CRC-32 written from the parameters in PROTOCOL.md (the C routine there), independent
+ * of zlib.
+ */
 function crc32Bitwise(bytes: Uint8Array): number {
   let crc = 0xffffffff;
   for (const b of bytes) {
@@ -93,8 +96,8 @@ function decodeAll(bytes: Uint8Array, opts: ConstructorParameters<typeof FrameDe
 
 describe('CRC-32', () => {
   it('gives the published check value 0xCBF43926 for ASCII "123456789"', () => {
-    // Check value of CRC-32/ISO-HDLC in the "Catalogue of parametrised CRC algorithms" (G. Cook) and
-    // in R. Williams, "A Painless Guide to CRC Error Detection Algorithms" (1993), section 17.
+    // Check value of CRC-32/ISO-HDLC in the "Catalogue of parametrised CRC algorithms" (G. Cook)
+    // and in R. Williams, "A Painless Guide to CRC Error Detection Algorithms" (1993), section 17.
     const ascii = Buffer.from('123456789', 'ascii');
     expect(crc32(ascii)).toBe(0xcbf43926);
     expect(crc32Bitwise(ascii)).toBe(0xcbf43926);

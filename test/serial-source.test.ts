@@ -39,7 +39,10 @@ function countAt(c: number, i: number): number {
   return ((i * 7919 + c * 104729) % 4_000_001) - 2_000_000;
 }
 
-/** Volts the agent must deliver for board sample i of channel c (int24 count x scale + offset, in float32). */
+/**
+ * Volts the agent must deliver for board sample i of channel c (int24 count x scale + offset, in
+ * float32).
+ */
 function expectedVolts(c: number, i: number): number {
   return Math.fround(countAt(c, i) * Math.fround(SCALES[c]!) + Math.fround(OFFSETS[c]!));
 }
@@ -116,7 +119,8 @@ function expectExact(blocks: Received['blocks']): void {
       for (let i = 0; i < SPF; i++)
         if (ch[i] !== expectedVolts(c, b.startIndex + i))
           expect.fail(
-            `channel ${c} sample ${b.startIndex + i}: ${ch[i]} != ${expectedVolts(c, b.startIndex + i)}`,
+            `channel ${c} sample ${b.startIndex + i}: ` +
+              `${ch[i]} != ${expectedVolts(c, b.startIndex + i)}`,
           );
     }
     const edges: number[] = [];
@@ -213,7 +217,8 @@ describe('SerialSource through a real pseudo-terminal', () => {
       samples_lost: 0,
       reconnects: 0,
     });
-    // The agent tried to assert DTR and RTS: a pseudo-terminal has no modem lines and refuses the ioctl (Linux tty driver).
+    // The agent tried to assert DTR and RTS: a pseudo-terminal has no modem lines and refuses the
+    // ioctl (Linux tty driver).
     expect(h.modem_lines).toMatch(/^not supported by the device \(.*Inappropriate ioctl/);
     expect(
       log.lines.filter(
@@ -309,7 +314,8 @@ describe('SerialSource through a real pseudo-terminal', () => {
     expectExact(got.blocks);
     // Ten CRC errors in one burst: one line when it starts, not one per frame.
     expect(log.lines.filter((l) => /CRC mismatch/.test(l.msg)).length).toBe(1);
-    // Each gap of the burst stays visible: one debug line each with its bounds, the last in the health report.
+    // Each gap of the burst stays visible: one debug line each with its bounds, the last in the
+    // health report.
     const gapLines = log.lines.filter(
       (l) => l.level === 'debug' && /: gap \d+ \.\. \d+: /.test(l.msg),
     );
@@ -742,7 +748,8 @@ describe('turnwise probe-serial', () => {
         '--json',
       ]);
       await new Promise((r) => setTimeout(r, 300));
-      // int24 x 256, then int16 x 128 with a burst of three single-frame gaps, then version 2 float32 x 512.
+      // int24 x 256, then int16 x 128 with a burst of three single-frame gaps, then version
+      // 2 float32 x 512.
       const a = mk('int24', 256, 0, 0);
       for (let i = 0; i < 10; i++) await w.write(a.nextFrame());
       const b = mk('int16', 128, a.nextIndex, a.nextSequence);

@@ -22,7 +22,10 @@ import { PtyRuntimeRig } from './support/pty-runtime.js';
 const RATE = 25_600;
 const SPF = 256;
 const FRAME_MS = (SPF / RATE) * 1000;
-/** A message stamped with the time of its last sample is handed over within this of the wall clock (ms). */
+/**
+ * A message stamped with the time of its last sample is handed over within this of the wall clock
+ * (ms).
+ */
 const STAMP_TOLERANCE_MS = 250;
 
 let rig: PtyRuntimeRig;
@@ -169,8 +172,10 @@ describe('times from a serial board through a real pty', () => {
     const stepS = Number(
       /wall clock is (\d+\.\d{3}) s behind the board's sample clock/.exec(warn[0]!.msg)?.[1],
     );
-    expect(Math.abs(stepS - 30)).toBeLessThan(STAMP_TOLERANCE_MS / 1000); // the 30 s step, less this block's own latency
-    // Monitoring went on after the step: live messages kept coming (1.6 s of frames, one each 0.5 s).
+    // the 30 s step, less this block's own latency
+    expect(Math.abs(stepS - 30)).toBeLessThan(STAMP_TOLERANCE_MS / 1000);
+    // Monitoring went on after the step: live messages kept coming (1.6 s of frames, one each
+    // 0.5 s).
     expect(
       stamps.filter((s) => s.kind === 'live' && s.wallMs >= stepWall).length,
     ).toBeGreaterThanOrEqual(2);
@@ -338,8 +343,9 @@ describe('a board declaring its ADC delay, tach delay and channel skew (protocol
     it(`${mode}: the same samples as version 1 frames (no declaration) read late by the delay, as predicted`, async () => {
       const got = await phases(false, boardTimesTach);
       for (let c = 0; c < 3; c++) {
-        // Own computation: a value read d ticks late moves the peak d x 360 / samples-per-revolution degrees later;
-        // board-timed edges reported T late move the reference the same way; a tach found on channel 3 carries that channel's delay.
+        // Own computation: a value read d ticks late moves the peak d x
+        // 360 / samples-per-revolution degrees later; board-timed edges reported T late move the
+        // reference the same way; a tach found on channel 3 carries that channel's delay.
         const readLate = D - SKEW[c]! - (boardTimesTach ? T : D - SKEW[3]!);
         const predicted = (readLate * 360) / SPR;
         expect(

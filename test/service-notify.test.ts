@@ -221,7 +221,8 @@ describe('service notifier off systemd and from the environment', () => {
     expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000', WATCHDOG_PID: '42' }, 42)).toBe(
       15_000,
     );
-    expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000', WATCHDOG_PID: '41' }, 42)).toBeNull(); // meant for another process
+    // meant for another process
+    expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: '30000000', WATCHDOG_PID: '41' }, 42)).toBeNull();
     expect(watchdogPingMsFromEnv({}, 42)).toBeNull();
     expect(watchdogPingMsFromEnv({ WATCHDOG_USEC: 'soon' }, 42)).toBeNull();
   });

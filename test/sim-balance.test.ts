@@ -10,8 +10,8 @@ import { angleDiff } from './sim-fixtures.js';
 /**
  * A two-plane balancing job played on the simulated demo fan (invented Kessrow ID-3A, day 5 15:00,
  * after balance weight W1 was thrown), end to end through the parts built apart: simulator ->
- * measurement core -> influence-coefficient solver (W = -H^+ V0, least squares; textbook method) -> weights
- * fitted on the running simulated fan -> check run.
+ * measurement core -> influence-coefficient solver (W = -H^+ V0, least squares; textbook
+ * method) -> weights fitted on the running simulated fan -> check run.
  */
 describe('balancing the simulated fan', () => {
   it('brings the 1x down to a small fraction of the as-found value in one correction run', async () => {
@@ -65,9 +65,9 @@ describe('balancing the simulated fan', () => {
     });
     expect(result.problems).toEqual([]);
     expect(result.corrections).toHaveLength(2);
-    // what the scenario put there by day 5 15:00 (against rotation, at 760 mm): back plate 55 g at 200 deg;
-    // front shroud 9 g at 310 deg plus 2.625 days x 10 g/day of build-up at 130 deg. The corrections are
-    // those unbalances turned 180 deg.
+    // what the scenario put there by day 5 15:00 (against rotation, at 760 mm): back plate 55 g at
+    // 200 deg; front shroud 9 g at 310 deg plus 2.625 days x 10 g/day of build-up at 130 deg. The
+    // corrections are those unbalances turned 180 deg.
     const truth = (parts: [number, number][]) => {
       const re = parts.reduce((s, [m, a]) => s + m * Math.cos((a * Math.PI) / 180), 0);
       const im = parts.reduce((s, [m, a]) => s + m * Math.sin((a * Math.PI) / 180), 0);

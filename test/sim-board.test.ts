@@ -1,9 +1,9 @@
 /**
  * The simulated fan playing the serial acquisition board: SimBoardSignal against the simulator it
  * wraps, then the whole path through a real pseudo-terminal made by socat (Debian package socat):
- * FanSimulator -> frames -> socat pty -> SerialSource -> measurement core, in process and through the
- * `turnwise sim-board` command as a real process; clean, and with faults injected on the line (garbage
- * bytes, frames with a bad CRC, the link vanishing and coming back).
+ * FanSimulator -> frames -> socat pty -> SerialSource -> measurement core, in process and through
+ * the `turnwise sim-board` command as a real process; clean, and with faults injected on the line
+ * (garbage bytes, frames with a bad CRC, the link vanishing and coming back).
  */
 import { spawn, execFileSync } from 'node:child_process';
 import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
@@ -53,7 +53,10 @@ function demoConfig(acquisition: Record<string, unknown>): Config {
   return validateConfig({ ...raw, acquisition }, 'demo config');
 }
 
-/** Reads an opened source into the measurement core until `seconds` of samples have arrived, then closes it. */
+/**
+ * Reads an opened source into the measurement core until `seconds` of samples have arrived, then
+ * closes it.
+ */
 async function measure(
   source: SampleSource,
   info: SourceInfo,
@@ -80,7 +83,10 @@ async function measure(
   return { w: an.takeWindow(), gaps };
 }
 
-/** 1x at every sensor equals the model's within 1 % in amplitude and 1 degree in phase; returns the worst errors. */
+/**
+ * 1x at every sensor equals the model's within 1 % in amplitude and 1 degree in phase; returns the
+ * worst errors.
+ */
 function expectModel1x(
   w: WindowResult,
   model: readonly { id: string; amp_pk_mm_s: number; phase_deg: number }[],
@@ -103,7 +109,9 @@ function expectModel1x(
   return { amp_pct: worstAmp * 100, phase_deg: worstPhase };
 }
 
-/** The invented fan at day 5 15:00 playing a board of `channels` int24 inputs in 256-sample frames. */
+/**
+ * The invented fan at day 5 15:00 playing a board of `channels` int24 inputs in 256-sample frames.
+ */
 function dayFiveBoard(
   cfg: Config,
   channels: number,
@@ -125,7 +133,10 @@ function dayFiveBoard(
   return { sim, board };
 }
 
-/** Waits until the agent's source has opened the device (so the board can start without losing a frame). */
+/**
+ * Waits until the agent's source has opened the device (so the board can start without losing a
+ * frame).
+ */
 async function untilConnected(source: SampleSource, device: string): Promise<void> {
   for (const t0 = Date.now(); !source.health!().connected;) {
     if (Date.now() - t0 > 5000)
@@ -150,7 +161,8 @@ describe("SimBoardSignal: the simulated fan as the board's inputs", () => {
 
   it("hands out the simulator's samples unchanged, and each tach edge in the very call whose samples span it", () => {
     expect(ref.edges.length).toBeGreaterThan(3);
-    // one sample per call: every edge falls between two calls, the case that needs the sample kept back
+    // one sample per call: every edge falls between two calls, the case that needs the sample kept
+    // back
     for (const size of [1, 256, 1000]) {
       const sig = new SimBoardSignal(new FanSimulator(p), { maxBlock: 300 });
       const edges: number[] = [];
@@ -167,7 +179,8 @@ describe("SimBoardSignal: the simulated fan as the board's inputs", () => {
           for (let i = 0; i < size; i++)
             if (buf[c]![i] !== ref.ch[c]![first + i])
               expect.fail(
-                `size ${size}, channel ${c}, sample ${first + i}: ${buf[c]![i]} != ${ref.ch[c]![first + i]}`,
+                `size ${size}, channel ${c}, sample ${first + i}: ` +
+                  `${buf[c]![i]} != ${ref.ch[c]![first + i]}`,
               );
       }
       const covered = N - (N % size);
@@ -207,7 +220,8 @@ describe("SimBoardSignal: the simulated fan as the board's inputs", () => {
 
   it('gives each channel an input range that holds its signal: int24 counts quantise it to within half a count', () => {
     const scales = boardScales(p, 8, 'int24');
-    // sensors: the IEPE supply (24 V, scenario default) over 2^23 counts; tach 1.25 x 5 V; unused 10 V
+    // sensors: the IEPE supply (24 V, scenario default) over 2^23 counts; tach 1.25 x 5 V; unused
+    // 10 V
     expect(scales[0]).toBeCloseTo(24 / 2 ** 23, 15);
     expect(scales[6]).toBeCloseTo(6.25 / 2 ** 23, 15);
     expect(scales[7]).toBeCloseTo(10 / 2 ** 23, 15);
@@ -264,7 +278,8 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       reconnect_min_ms: 100,
     });
     const { sim, board } = dayFiveBoard(cfg, 6, true);
-    // a second of frames may wait for socat (as turnwise sim-board allows), so a stall of this process loses nothing
+    // a second of frames may wait for socat (as turnwise sim-board allows), so a stall of this
+    // process loses nothing
     const link = await SocatLink.start(
       { kind: 'pty', link: device },
       { maxBacklogBytes: 100 * frameLength(6, 256, 'int24', 0) },
@@ -292,7 +307,9 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       expect(w.speed_rpm).toBeCloseTo(1485, -1);
       const worst = expectModel1x(w, sim.modelOrder(1));
       console.log(
-        `in process, board-timed tach: ${w.revolutions} revolutions, ${gaps} gap(s), ${link.framesSent} frames sent, ${link.framesDropped} dropped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+        `in process, board-timed tach: ${w.revolutions} revolutions, ${gaps} gap(s), ` +
+          `${link.framesSent} frames sent, ${link.framesDropped} dropped; worst 1x ` +
+          `error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
       );
     } finally {
       stop = true;
@@ -304,7 +321,8 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
   it(`in process, with garbage bytes and damaged frames on the line: every lost frame is a gap with exact bounds, CRC failures are counted, and the model's 1x is still found`, async () => {
     const dir = tempDir();
     const device = join(dir, 'board');
-    // 7 channels with the tach digitised on channel 6: the tach detector also has to pick up again after each gap
+    // 7 channels with the tach digitised on channel 6: the tach detector also has to pick up again
+    // after each gap
     const cfg = demoConfig({
       driver: 'serial',
       device,
@@ -313,8 +331,8 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
       reconnect_min_ms: 100,
     });
     const { sim, board } = dayFiveBoard(cfg, 7, false);
-    // 600 frames (6 s): 200 garbage bytes after every 7th frame (85 bursts), one bit flipped in every 37th
-    // (16 frames); the last frame is intact, so the last damaged one shows as a gap too
+    // 600 frames (6 s): 200 garbage bytes after every 7th frame (85 bursts), one bit flipped in
+    // every 37th (16 frames); the last frame is intact, so the last damaged one shows as a gap too
     const FRAMES = 600;
     const corrupted: CorruptedFrame[] = [];
     const faults = new FrameFaults(
@@ -367,7 +385,8 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
           gaps.push(item);
           next = item.toIndex;
         } else {
-          // blocks and gaps tile the board's sample clock: nothing lost unreported, nothing reported twice
+          // blocks and gaps tile the board's sample clock: nothing lost unreported, nothing
+          // reported twice
           expect(item.startIndex).toBe(next);
           next = item.startIndex + item.channels[0]!.length;
         }
@@ -385,7 +404,8 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
         garbageBytes: 85 * 200,
         corruptedFrames: 16,
       });
-      // each damaged frame, and only those, is a gap with the frame's exact sample-clock bounds (PROTOCOL.md)
+      // each damaged frame, and only those, is a gap with the frame's exact sample-clock bounds
+      // (PROTOCOL.md)
       expect(gaps.map((g) => [g.fromIndex, g.toIndex])).toEqual(
         corrupted.map((f) => [f.first_sample, f.first_sample + f.samples]),
       );
@@ -405,11 +425,16 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
         bytes_skipped: 85 * 200 + corruptedBytes,
       });
       expect(w.gap_samples).toBe(16 * 256);
-      // each gap costs the revolution it falls in and the tach's pick-up after it; the rest is averaged
+      // each gap costs the revolution it falls in and the tach's pick-up after it; the rest is
+      // averaged
       expect(w.revolutions).toBeGreaterThan(100);
       const worst = expectModel1x(w, sim.modelOrder(1));
       console.log(
-        `in process, garbage and bad CRCs: ${w.revolutions} revolutions (${w.revolutions_rejected} rejected), ${gaps.length} gap(s), ${h['crc_errors']} CRC error(s), ${h['resyncs']} resync(s), ${h['bytes_skipped']} bytes skipped; worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+        `in process, garbage and bad CRCs: ${w.revolutions} revolutions ` +
+          `(${w.revolutions_rejected} rejected), ${gaps.length} gap(s), ` +
+          `${h['crc_errors']} CRC error(s), ${h['resyncs']} resync(s), ` +
+          `${h['bytes_skipped']} bytes skipped; worst 1x error ` +
+          `${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
       );
     } finally {
       await link.stop();
@@ -493,13 +518,15 @@ describe('the simulated fan as the serial board through a real pseudo-terminal (
         model_1x_end: OrderVectorModel[];
       };
       expect(summary).toMatchObject({ stopped_by: 'signal', channels: 8 });
-      // the agent measured MEASURE_S seconds from this board, so the board sent at least that many frames
-      // (exactly that many when SIGINT lands right after the last one the agent needed)
+      // the agent measured MEASURE_S seconds from this board, so the board sent at least that many
+      // frames (exactly that many when SIGINT lands right after the last one the agent needed)
       expect(summary.frames_sent).toBeGreaterThanOrEqual((MEASURE_S * 25600) / 256);
       expect(w.revolutions).toBeGreaterThan(140);
       const worst = expectModel1x(w, summary.model_1x_end);
       console.log(
-        `sim-board process, tach on channel 6: ${w.revolutions} revolutions, ${gaps} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+        `sim-board process, tach on channel 6: ` +
+          `${w.revolutions} revolutions, ${gaps} gap(s); worst 1x error ` +
+          `${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
       );
     } finally {
       if (child.exitCode === null) {
@@ -624,8 +651,9 @@ describe('turnwise sim-board with faults injected', () => {
       expect(stderr).toMatch(
         /link dropped at 2\.00 s of signal: .*sim-board removed, made again in 1 s\n[^]*link back at 3\.00 s of signal/,
       );
-      // 12 s of frames: those from 2 s to 3 s of signal never sent (the link was gone); the rest handed to
-      // socat, or dropped whole when the agent was more than a second late to read (rare, on a loaded machine)
+      // 12 s of frames: those from 2 s to 3 s of signal never sent (the link was gone); the rest
+      // handed to socat, or dropped whole when the agent was more than a second late to read (rare,
+      // on a loaded machine)
       expect(summary, stdout).toMatchObject({
         stopped_by: 'seconds',
         link_drops: 1,
@@ -635,20 +663,22 @@ describe('turnwise sim-board with faults injected', () => {
         frames_corrupted: 22,
       });
       expect(summary.frames_sent + summary.frames_dropped).toBe(1100);
-      // The frames damaged: every 50th handed to the link, i.e. sequence 49, 99, 149, 199 before the drop and
-      // (the count going on after the 100 unsent frames) 349, 399, ... 1199 after it.
+      // The frames damaged: every 50th handed to the link, i.e. sequence 49, 99, 149, 199 before
+      // the drop and (the count going on after the 100 unsent frames) 349, 399, ... 1199 after it.
       const damaged = Array.from({ length: 1200 }, (_, seq) => seq).filter(
         (seq) => (seq < 200 ? seq + 1 : seq >= 300 ? seq + 1 - 100 : 1) % 50 === 0,
       );
       expect(damaged).toHaveLength(22);
-      // one gap for the link drop: from the last frame before it to the first read after the agent reopened
+      // one gap for the link drop: from the last frame before it to the first read after the agent
+      // reopened
       const down = gaps.filter((g) => /device disconnected/.test(g.reason));
       expect(down).toHaveLength(1);
       expect(down[0]!.fromIndex).toBeLessThanOrEqual(200 * 256);
       expect(down[0]!.toIndex).toBeGreaterThanOrEqual(300 * 256);
       expect(down[0]!.fromIndex % 256).toBe(0);
       expect(down[0]!.toIndex % 256).toBe(0);
-      // frames the board dropped whole (none, unless the agent fell a second behind) are gaps of their own
+      // frames the board dropped whole (none, unless the agent fell a second behind) are gaps of
+      // their own
       const crcGap =
         /^sequence jump \d+ -> \d+ \(1 frame\(s\) missing\); since the last good frame: 1 CRC error\(s\), 5576 byte\(s\) skipped$/;
       const crcGaps = gaps.filter((g) => g !== down[0] && crcGap.test(g.reason));
@@ -658,9 +688,9 @@ describe('turnwise sim-board with faults injected', () => {
       expect(
         boardDrops.reduce((n, g) => n + (g.toIndex - g.fromIndex) / 256, 0),
       ).toBeLessThanOrEqual(summary.frames_dropped);
-      // every CRC gap is one damaged frame, exactly its samples; every damaged frame is one, unless it fell
-      // in another gap, before the first frame the agent read (it opens the link a moment after it appears)
-      // or is the very last frame (1199: no good frame follows to show its gap)
+      // every CRC gap is one damaged frame, exactly its samples; every damaged frame is one, unless
+      // it fell in another gap, before the first frame the agent read (it opens the link a moment
+      // after it appears) or is the very last frame (1199: no good frame follows to show its gap)
       const inOther = (seq: number) =>
         [...down, ...boardDrops].some((g) => seq * 256 >= g.fromIndex && seq * 256 < g.toIndex);
       expect(first!).toBeLessThan(20 * 256);
@@ -670,8 +700,8 @@ describe('turnwise sim-board with faults injected', () => {
           .map((seq) => [seq * 256, (seq + 1) * 256]),
       );
       expect(crcGaps.length).toBeGreaterThanOrEqual(18);
-      // CRC failures counted: those gaps, the last frame, and any damaged frame read just before another gap
-      // (e.g. frame 199 just before the link drop, its gap then merged into the drop's)
+      // CRC failures counted: those gaps, the last frame, and any damaged frame read just before
+      // another gap (e.g. frame 199 just before the link drop, its gap then merged into the drop's)
       expect(h['crc_errors']).toBeGreaterThanOrEqual(crcGaps.length + 1);
       expect(h['crc_errors']).toBeLessThanOrEqual(
         crcGaps.length + 1 + down.length + boardDrops.length,
@@ -685,7 +715,9 @@ describe('turnwise sim-board with faults injected', () => {
       });
       const worst = expectModel1x(w, summary.model_1x_end);
       console.log(
-        `sim-board process with faults: ${w.revolutions} revolutions, ${gaps.length} gap(s); worst 1x error ${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
+        `sim-board process with faults: ${w.revolutions} revolutions, ` +
+          `${gaps.length} gap(s); worst 1x error ` +
+          `${worst.amp_pct.toFixed(3)} %, ${worst.phase_deg.toFixed(3)} deg`,
       );
     } finally {
       await source.close();
@@ -737,7 +769,8 @@ describe('turnwise sim-board killed outright', () => {
     for (const t0 = Date.now(); socatFor().length > 0 || existsSync(device);) {
       if (Date.now() - t0 > 5000)
         throw new Error(
-          `socat outlived sim-board: ${socatFor().join('; ')}; link ${existsSync(device) ? 'still there' : 'gone'}`,
+          `socat outlived sim-board: ${socatFor().join('; ')}; ` +
+            `link ${existsSync(device) ? 'still there' : 'gone'}`,
         );
       await new Promise((r) => setTimeout(r, 50));
     }
@@ -873,7 +906,8 @@ describe('turnwise sim-board: bad input', () => {
       ],
       [
         [...withCfg, '--channels', '7'],
-        `turnwise sim-board --channels: is 7 but ${cfgFile} tells the agent to expect 8 (acquisition.channels); the agent would reject every frame`,
+        `turnwise sim-board --channels: is 7 but ${cfgFile} tells the agent to ` +
+          `expect 8 (acquisition.channels); the agent would reject every frame`,
       ],
       [
         withCfg,

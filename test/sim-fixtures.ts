@@ -104,9 +104,10 @@ export function render(
 }
 
 /**
- * Plain DFT at one frequency (cycles per sample), time measured from sample `t0` (may be fractional):
- * returns the one-sided complex amplitude X such that x[n] ~ Re{X e^{i 2 pi f (n - t0)}}, i.e.
- * amplitude |X| and phase lag -arg X. Sums over samples [from, from + count).
+ * Plain DFT at one frequency (cycles per sample), time measured from sample `t0` (may be
+ * fractional): returns the one-sided complex amplitude X such that x[n] ~
+ * Re{X e^{i 2 pi f (n - t0)}}, i.e. amplitude |X| and phase lag -arg X. Sums over samples [from,
+ * from + count).
  */
 export function dft(
   x: ArrayLike<number>,
@@ -128,7 +129,9 @@ export function dft(
   return { re, im, amp: Math.hypot(re, im), lagDeg: lag };
 }
 
-/** Rising crossings of `level`, interpolated linearly between samples (fractional sample indices). */
+/**
+ * Rising crossings of `level`, interpolated linearly between samples (fractional sample indices).
+ */
 export function risingEdges(x: ArrayLike<number>, level: number): number[] {
   const out: number[] = [];
   for (let n = 1; n < x.length; n++) {

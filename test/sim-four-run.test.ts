@@ -10,13 +10,15 @@ import { SimSource } from '../drivers/sim/source.js';
  * A full amplitude-only balancing job on the simulated demo fan (invented Kessrow ID-3A) with the
  * once-per-turn pickup disconnected: simulator -> measurement core (no tach: no synchronous 1x, the
  * 1x read from the spectrum at the speed the technician states) -> four-run solver -> the weight
- * fitted on the running simulated fan -> check run. Pass: final 1x below 15 % of as found (issue 13).
+ * fitted on the running simulated fan -> check run. Pass: final 1x below 15 % of as found (issue
+ * 13).
  */
 describe('amplitude-only balancing of the simulated fan with the tach disconnected', () => {
   it('as found, trial weight at 0/120/240 deg, correction: the 1x drops below 15 % of as found', async () => {
     const cfg = loadConfig('config/example.yaml');
     const scenario = loadScenario('config/example-scenario.yaml');
-    // The tach pickup is lost at day 5 14:40, after weight W1 was thrown (day 5 14:20) and before the job.
+    // The tach pickup is lost at day 5 14:40, after weight W1 was thrown (day 5 14:20) and before
+    // the job.
     const lostAt = parseAt('day 5 14:40')!;
     const k = scenario.timeline.findIndex((e) => e.at > lostAt);
     scenario.timeline.splice(k < 0 ? scenario.timeline.length : k, 0, {
@@ -28,7 +30,8 @@ describe('amplitude-only balancing of the simulated fan with the tach disconnect
     const info = await src.open();
     const items = src.items()[Symbol.asyncIterator]();
     const sensor = 'DE-H';
-    const statedRpm = cfg.machine.rated_rpm!; // what a technician reads off the nameplate or a handheld tachometer
+    // what a technician reads off the nameplate or a handheld tachometer
+    const statedRpm = cfg.machine.rated_rpm!;
 
     /** One run: skip 1 s to settle, measure 8 s through the Analyzer, read the 1x amplitude. */
     const measure = async () => {

@@ -7,10 +7,10 @@ import { loadScenario, parseAt, resolveScenario } from '../drivers/sim/scenario.
 import { SimSource } from '../drivers/sim/source.js';
 
 /**
- * A multi-speed job on the simulated demo fan (invented Kessrow ID-3A, day 5 after W1 was thrown) run
- * at 900, 1200 and 1485 r/min as on a variable-speed drive: simulator -> measurement core -> per-speed
- * influence coefficients -> one least-squares correction -> weights fitted on the running simulated
- * fan -> check runs at every speed.
+ * A multi-speed job on the simulated demo fan (invented Kessrow ID-3A, day 5 after W1 was thrown)
+ * run at 900, 1200 and 1485 r/min as on a variable-speed drive: simulator -> measurement
+ * core -> per-speed influence coefficients -> one least-squares correction -> weights fitted on the
+ * running simulated fan -> check runs at every speed.
  */
 describe('multi-speed balancing of the simulated fan', () => {
   it('one correction brings the 1x down at every speed', async () => {
@@ -18,7 +18,8 @@ describe('multi-speed balancing of the simulated fan', () => {
     const scenario = loadScenario('config/example-scenario.yaml');
     const speeds = [900, 1200, 1485];
     const t0 = parseAt('day 5 15:00')!;
-    const changeAt = (k: number) => t0 + 10 + 240 * k; // s: a speed step every 4 minutes, 10 s ramps
+    // s: a speed step every 4 minutes, 10 s ramps
+    const changeAt = (k: number) => t0 + 10 + 240 * k;
     // the job's three speeds, then the same three again for the check runs with the correction in
     const events = [...speeds, ...speeds].map(
       (rpm, k) =>
@@ -85,9 +86,9 @@ describe('multi-speed balancing of the simulated fan', () => {
     });
     expect(r.problems).toEqual([]);
     for (const s of r.speeds) expect(s.residual_share!).toBeLessThan(0.05);
-    // what the scenario put there by day 5 15:00 (against rotation, 760 mm), turned 180 deg: back plate
-    // 55 g at 200 -> 55 g at 20; front shroud 9 g at 310 plus 2.625 days x 10 g/day at 130 = 17.25 g at
-    // 130 -> 17.25 g at 310 (the scenario file; hand computation)
+    // what the scenario put there by day 5 15:00 (against rotation, 760 mm), turned 180 deg: back
+    // plate 55 g at 200 -> 55 g at 20; front shroud 9 g at 310 plus 2.625 days x 10 g/day at
+    // 130 = 17.25 g at 130 -> 17.25 g at 310 (the scenario file; hand computation)
     expect(r.corrections[0]!.mass_g).toBeCloseTo(55, 0);
     expect(Math.abs(((r.corrections[0]!.angle_deg - 20 + 540) % 360) - 180)).toBeLessThan(1);
     expect(Math.abs(r.corrections[1]!.mass_g - 17.25)).toBeLessThan(0.5);
@@ -114,9 +115,13 @@ describe('multi-speed balancing of the simulated fan', () => {
       );
     }
     console.log(
-      `multi-speed on the simulator: corrections ${r.corrections.map((c) => `${c.plane} ${c.mass_g.toFixed(1)} g at ${c.angle_deg.toFixed(1)} deg`).join(', ')}; ` +
-        `predicted left ${r.speeds.map((s) => `${s.speed_rpm}: ${(s.residual_share! * 100).toFixed(1)} %`).join(', ')}; ` +
-        `check runs, worst sensor: ${speeds.map((v, k) => `${v}: ${(shares[k]! * 100).toFixed(1)} %`).join(', ')} of as found`,
+      `multi-speed on the simulator: corrections ` +
+        `${r.corrections.map((c) => `${c.plane} ${c.mass_g.toFixed(1)} g at ${c.angle_deg.toFixed(1)} deg`).join(', ')}; ` +
+        `predicted left ` +
+        `${r.speeds.map((s) => `${s.speed_rpm}: ${(s.residual_share! * 100).toFixed(1)} %`).join(', ')}; ` +
+        `check runs, worst sensor: ` +
+        `${speeds.map((v, k) => `${v}: ${(shares[k]! * 100).toFixed(1)} %`).join(', ')} of ` +
+        `as found`,
     );
     for (const share of shares) expect(share).toBeLessThan(0.1);
     await src.close();

@@ -59,7 +59,8 @@ describe('physics of the simulated rotor', () => {
     const res = receptance(s, 2 * Math.PI * 40);
     expect(magnitude(res)).toBeCloseTo(1 / (2 * 0.05 * 30e6), 15);
     expect(lagDeg(res)).toBeCloseTo(90, 9);
-    // below the first critical speed the high spot lags the heavy spot by less than 90 deg (textbook rotor dynamics, from memory)
+    // below the first critical speed the high spot lags the heavy spot by less than 90 deg
+    // (textbook rotor dynamics, from memory)
     for (const hz of [5, 20, 35, 39])
       expect(lagDeg(receptance(s, 2 * Math.PI * hz))).toBeLessThan(90);
     expect(lagDeg(receptance(s, 2 * Math.PI * 60))).toBeGreaterThan(90);
@@ -74,7 +75,8 @@ describe('physics of the simulated rotor', () => {
     const X = F / sV.stiffness_n_per_m / Math.hypot(1 - r * r, 2 * sV.damping_ratio * r);
     const lagG = (Math.atan2(2 * sV.damping_ratio * r, 1 - r * r) * 180) / Math.PI;
     expect(magnitude(v)).toBeCloseTo(omega * X, 12);
-    // velocity lag = sensor angle (0) + weight angle (30) + receptance lag - 90 (velocity leads displacement by 90, textbook)
+    // velocity lag = sensor angle (0) + weight angle (30) + receptance lag - 90 (velocity leads
+    // displacement by 90, textbook)
     expect(angleDiff(lagDeg(v), 30 + lagG - 90)).toBeCloseTo(0, 9);
   });
 
@@ -131,7 +133,8 @@ describe('physics of the simulated rotor', () => {
   });
 
   it('reads static unbalance in phase at both bearings and couple unbalance 180 deg apart (common practice)', () => {
-    // symmetric rotor so both bearings have the same supports: planes at 1000 and 1400, centre of mass at 1200
+    // symmetric rotor so both bearings have the same supports: planes at 1000 and 1400, centre of
+    // mass at 1200
     const sym = plan(
       testScenario({
         rotor: {
@@ -219,7 +222,8 @@ describe('physics of the simulated rotor', () => {
     const uu = [u(40, 30)];
     const a0 = unbalanceVelocity(over, A0, uu, omega);
     const a1 = unbalanceVelocity(over, A1, uu, omega);
-    // in phase up to the difference of the two housings' own lags (their supports carry different loads)
+    // in phase up to the difference of the two housings' own lags (their supports carry different
+    // loads)
     expect(Math.abs(angleDiff(lagDeg(a0), lagDeg(a1)))).toBeLessThan(20);
     const radialNear = unbalanceVelocity(
       over,

@@ -162,7 +162,8 @@ describe('scenario errors name the file, the path and what to do', () => {
         '  mass_kg: -5',
         '  bearings: [{name: DE, position_mm: 0}, {name: NDE, position_mm: 2000}]',
         '  planes: [{name: P1, position_mm: 1000}]',
-        '  support: {vertical: {stiffness_mn_per_m: 30}, horizontal: {stiffness_mn_per_m: 20}, axial: {stiffness_mn_per_m: 50}}',
+        '  support: {vertical: {stiffness_mn_per_m: 30}, horizontal: ' +
+          '{stiffness_mn_per_m: 20}, axial: {stiffness_mn_per_m: 50}}',
         'timeline:',
         '  - {at: dya 5, weight_thrown: {id: W1}}',
         '  - {at: day 3, fault: {kind: wobble, id: x}}',
@@ -218,7 +219,8 @@ describe('scenario errors name the file, the path and what to do', () => {
       ),
     );
     expect(msg).toContain(
-      'test-scenario: timeline[0].weight_thrown.id: no weight "W9" on the rotor at that time (fitted: none)',
+      'test-scenario: timeline[0].weight_thrown.id: no ' +
+        'weight "W9" on the rotor at that time (fitted: none)',
     );
     expect(msg).toContain('timeline[1].build_up.plane: no plane "front" in rotor.planes (P1, P2)');
     expect(msg).toContain('timeline[2].sensor_fault.sensor: no sensor "DE-X" in test-config');
@@ -234,7 +236,8 @@ describe('scenario errors name the file, the path and what to do', () => {
       plan(testScenario({ tach: { high_v: 2 } }), testConfig({ rotor: 'overhung' })),
     );
     expect(msg).toContain(
-      'test-scenario: rotor.planes: the planes are between the bearings (centre-hung) but test-config machine.rotor is overhung',
+      'test-scenario: rotor.planes: the planes are between the ' +
+        'bearings (centre-hung) but test-config machine.rotor is overhung',
     );
     expect(msg).toContain(
       'test-scenario: tach: the pulse (0 to 2 V) never crosses test-config tach.trigger_v (2.5 V)',

@@ -14,15 +14,18 @@ import {
 
 /**
  * The synthesized channels checked with a plain DFT written in the test (sim-fixtures.ts), not with
- * the project's DSP. At 1500 r/min and 25 600 samples/s one revolution is exactly 1024 samples, so a
- * DFT over whole revolutions has no leakage.
+ * the project's DSP. At 1500 r/min and 25 600 samples/s one revolution is exactly 1024 samples, so
+ * a DFT over whole revolutions has no leakage.
  */
 
 const REV = 1024;
 const f1 = 1 / REV; // 1x in cycles per sample at 1500 r/min
 const V_PER_G = 0.1;
 
-/** Expected acceleration (volts) of a velocity vector: a = omega v, leading velocity by 90 deg (textbook). */
+/**
+ * Expected acceleration (volts) of a velocity vector: a = omega v, leading velocity by 90 deg
+ * (textbook).
+ */
 function expectedAccel(ampPkMmS: number, lagDegV: number, omega = rpmToRadS(1500), order = 1) {
   return {
     amp: (ampPkMmS * 1e-3 * omega * order * V_PER_G) / STANDARD_GRAVITY_M_S2,
@@ -54,7 +57,8 @@ describe('synthesized signals', () => {
   });
 
   it('scales volts by the sensitivity per g with g = 9.80665 m/s^2 (standard gravity, 3rd CGPM 1901)', () => {
-    // a 160 Hz velocity tone of 10 / (2 pi 160) m/s peak is 10 m/s^2 peak: 10 / 9.80665 g, x 0.1 V/g
+    // a 160 Hz velocity tone of 10 / (2 pi 160) m/s peak is 10 m/s^2 peak: 10 / 9.80665 g, x
+    // 0.1 V/g
     const mmS = 10_000 / (2 * Math.PI * 160);
     const p = plan(
       testScenario({

@@ -16,12 +16,12 @@ import { angleDiff, plan, testConfig, testScenario } from './sim-fixtures.js';
  *
  * Each expectation names the trade rule behind it: the rules for what says unbalance and what says
  * something else (common practice) and the ISO 20816-3 zones. The simulator's
- * fault models are signature models (drivers/sim/faults.ts); the point here is that a signal carrying
- * the pattern reaches the right verdict through the DSP, not only a hand-made DSP result.
+ * fault models are signature models (drivers/sim/faults.ts); the point here is that a signal
+ * carrying the pattern reaches the right verdict through the DSP, not only a hand-made DSP result.
  *
- * The fan: test/sim-fixtures.ts (850 kg centre-hung rotor, bearings DE at 0 and NDE at 2400 mm, planes
- * at 1000 and 1400 mm, softer horizontal supports, 1500 r/min, 25.6 kHz, six sensors V/H/A), with
- * 0.01 g r.m.s. broadband noise so that no quiet axial channel reads as a flat line.
+ * The fan: test/sim-fixtures.ts (850 kg centre-hung rotor, bearings DE at 0 and NDE at 2400 mm,
+ * planes at 1000 and 1400 mm, softer horizontal supports, 1500 r/min, 25.6 kHz, six sensors V/H/A),
+ * with 0.01 g r.m.s. broadband noise so that no quiet axial channel reads as a flat line.
  */
 
 const base = testScenario({ signal: { noise_rms_g: 0.01 } }) as Record<string, unknown> & {
@@ -70,9 +70,10 @@ interface Watched {
 }
 
 /**
- * Streams the scenario through SimSource and the Analyzer in 2 s windows on a fixed sample grid, and
- * assesses the last kept window with the earlier kept ones as recent history. `keep` drops windows
- * (e.g. those spanning a speed change), as the watcher's own history would hold only steady ones.
+ * Streams the scenario through SimSource and the Analyzer in 2 s windows on a fixed sample grid,
+ * and assesses the last kept window with the earlier kept ones as recent history. `keep` drops
+ * windows (e.g. those spanning a speed change), as the watcher's own history would hold only steady
+ * ones.
  */
 async function watch(
   scn: Record<string, unknown>,
@@ -113,7 +114,10 @@ const oneX = (w: WindowResult, id: string) => w.channels.find((c) => c.id === id
 const pair = (w: Watched, direction: string) =>
   w.a.unbalance.measures.bearing_pair!.directions.find((d) => d.direction === direction)!;
 
-/** Angle of a sum of plane forces, each scaled by a lever share: the bearing's force phasor (degrees, as lag). */
+/**
+ * Angle of a sum of plane forces, each scaled by a lever share: the bearing's force phasor
+ * (degrees, as lag).
+ */
 function forceLag(parts: { share: number; mass_g: number; angle_deg: number }[]): number {
   let re = 0;
   let im = 0;
@@ -138,8 +142,8 @@ describe('the four kinds of unbalance, from signals (common practice)', () => {
     expect(pair(w, 'vertical').relation).toBe('in_phase');
     expect(pair(w, 'horizontal').relation).toBe('in_phase');
     expect(pair(w, 'vertical').phase_diff_deg).toBeLessThan(1);
-    // same bearing, H vs V about 90 apart (+/-30) with a ratio below about 3 (common practice); the model's
-    // supports (35 and 25 MN/m, well below resonance) give about 92 deg and 1.7
+    // same bearing, H vs V about 90 apart (+/-30) with a ratio below about 3 (common practice); the
+    // model's supports (35 and 25 MN/m, well below resonance) give about 92 deg and 1.7
     for (const b of ['DE', 'NDE']) {
       expect(Math.abs(u.measures.bearings[b]!.hv_phase_diff_deg! - 90)).toBeLessThan(30);
       expect(u.measures.bearings[b]!.hv_amp_ratio!).toBeLessThan(3);
@@ -169,9 +173,9 @@ describe('the four kinds of unbalance, from signals (common practice)', () => {
   it('dynamic: unequal angles in the two planes -> bearings neither in phase nor opposed, by the lever rule: dynamic', async () => {
     const w = await watch(scenario({ unbalance: [mass('P1', 60, 30), mass('P2', 60, 190)] }));
     expect(w.a.unbalance.kind).toBe('dynamic');
-    // Expected separation from statics (lever rule, beam on two supports): DE carries 1400/2400 of P1's
-    // force and 1000/2400 of P2's, NDE the reverse; both bearings' supports are alike, so their 1x
-    // differ by the angle between the two bearing forces.
+    // Expected separation from statics (lever rule, beam on two supports): DE carries 1400/2400 of
+    // P1's force and 1000/2400 of P2's, NDE the reverse; both bearings' supports are alike, so
+    // their 1x differ by the angle between the two bearing forces.
     const de = forceLag([
       { share: 1400 / 2400, mass_g: 60, angle_deg: 30 },
       { share: 1000 / 2400, mass_g: 60, angle_deg: 190 },
@@ -191,8 +195,9 @@ describe('the four kinds of unbalance, from signals (common practice)', () => {
 
   it('overhung: impeller outboard of both bearings -> high axial 1x in phase at both bearings: overhung', async () => {
     const cfg = testConfig({ rotor: 'overhung' });
-    // 400 kg, bearings 1000 mm apart, impeller 400 mm outboard of NDE; supports stiff enough to stay
-    // above running speed (ISO 20816-3 "rigid": lowest natural frequency at least 25 % above it)
+    // 400 kg, bearings 1000 mm apart, impeller 400 mm outboard of NDE; supports stiff enough to
+    // stay above running speed (ISO 20816-3 "rigid": lowest natural frequency at least 25 % above
+    // it)
     const w = await watch(
       scenario({
         rotor: {
@@ -216,8 +221,8 @@ describe('the four kinds of unbalance, from signals (common practice)', () => {
     expect(evidence(w)).toMatch(
       /axial 1x is high \(DE \d+ % of radial\) with both axial readings in phase/,
     );
-    // the far bearing is pushed the other way (negative lever share): radial 1x about 180 apart, which the
-    // overhung verdict takes precedence over
+    // the far bearing is pushed the other way (negative lever share): radial 1x about 180 apart,
+    // which the overhung verdict takes precedence over
     expect(pair(w, 'vertical').relation).toBe('opposed');
   });
 });
@@ -232,7 +237,8 @@ describe('1x that is not unbalance, from signals (common practice)', () => {
     expect(w.a.unbalance.limits.join('\n')).toMatch(
       /misalignment cannot be told from a bent shaft with these sensors/,
     );
-    // high 2x (at or above half the 1x, the configured default) and high axial 180 apart -> misalignment
+    // high 2x (at or above half the 1x, the configured default) and high axial
+    // 180 apart -> misalignment
     expect(w.a.unbalance.measures.two_x_over_one_x!).toBeGreaterThan(0.5);
     expect(pair(w, 'axial').phase_diff_deg).toBeGreaterThan(150);
     expect(w.a.unbalance.points_to[0]!.why).toMatch(
@@ -261,10 +267,11 @@ describe('1x that is not unbalance, from signals (common practice)', () => {
     );
     const u = w.a.unbalance;
     expect(u.kind).toBe('none');
-    // straight-line (directional) motion: H/V near 0 or 180 -> eccentricity, looseness, resonance, weak support
+    // straight-line (directional) motion: H/V near 0 or 180 -> eccentricity, looseness, resonance,
+    // weak support
     expect(causes(w)).toEqual(['eccentricity', 'looseness', 'resonance', 'weak_support']);
-    // the model's line of action is 15 deg past the vertical: V/H = cos 15 / cos 75 = 3.7, in phase; the
-    // residual unbalance's elliptical motion pulls the measured pair a little towards it
+    // the model's line of action is 15 deg past the vertical: V/H = cos 15 / cos 75 = 3.7, in
+    // phase; the residual unbalance's elliptical motion pulls the measured pair a little towards it
     expect(u.measures.bearings['DE']!.hv_phase_diff_deg!).toBeLessThan(30);
     expect(u.measures.bearings['DE']!.hv_amp_ratio!).toBeGreaterThan(2.5);
     expect(u.measures.bearings['NDE']!.hv_phase_diff_deg!).toBeGreaterThan(60);
@@ -284,15 +291,16 @@ describe('1x that is not unbalance, from signals (common practice)', () => {
     );
     // the harmonic series carries much of the overall: 1x is under the 70 % share unbalance needs
     expect(u.measures.one_x_share!).toBeLessThan(0.7);
-    // The 2x rule (2x at or above half the 1x) also lists misalignment here: the looseness model's 2x is
-    // 1/sqrt(2) of its 1x, and that rule alone cannot tell the two apart; the half orders can.
-    // The NDE bearing, away from the loose joint, still moves elliptically.
+    // The 2x rule (2x at or above half the 1x) also lists misalignment here: the looseness model's
+    // 2x is 1/sqrt(2) of its 1x, and that rule alone cannot tell the two apart; the half orders
+    // can. The NDE bearing, away from the loose joint, still moves elliptically.
     expect(Math.abs(u.measures.bearings['NDE']!.hv_phase_diff_deg! - 90)).toBeLessThan(30);
   });
 
   it('support resonance near running speed: 1x swings in amplitude and about 90 deg of phase over a small speed change -> none, points to resonance', async () => {
-    // Both horizontal supports moved to 25.25 Hz (1515 r/min), 2 % damping; the speed is stepped from
-    // 1480 to 1540 r/min (4 %) every 4 s; the first window after each step (with the 0.5 s ramp) is dropped.
+    // Both horizontal supports moved to 25.25 Hz (1515 r/min), 2 % damping; the speed is stepped
+    // from 1480 to 1540 r/min (4 %) every 4 s; the first window after each step (with the 0.5 s
+    // ramp) is dropped.
     const speeds = [1480, 1495, 1505, 1515, 1525, 1540];
     const fn = 25.25;
     const zeta = 0.02;
@@ -320,8 +328,8 @@ describe('1x that is not unbalance, from signals (common practice)', () => {
     expect(evidence(w)).toMatch(
       /DE-H: 1x amplitude changed [\d.]+-fold and its phase swung up to \d+ deg from its mean while speed changed only 4\.0 %: points to resonance/,
     );
-    // The swing is the support's: single-degree-of-freedom lag from 1480 to 1540 r/min (textbook); the
-    // force's own phase does not move with speed.
+    // The swing is the support's: single-degree-of-freedom lag from 1480 to 1540 r/min (textbook);
+    // the force's own phase does not move with speed.
     const r = (rpm: number) => rpmToRadS(rpm) / (2 * Math.PI * fn);
     const expectedSwing = sdofLagDeg(r(1540), zeta) - sdofLagDeg(r(1480), zeta);
     const measuredSwing = angleDiff(
@@ -343,11 +351,12 @@ describe('1x that is not unbalance, from signals (common practice)', () => {
     const w = await watch(scenario({ timeline }));
     const u = w.a.unbalance;
     expect(u.kind).toBe('none');
-    // H/V amplitude ratio above about 3 (the support much stiffer one way) -> resonance or weak support
+    // H/V amplitude ratio above about 3 (the support much stiffer one way) -> resonance or weak
+    // support
     expect(causes(w)).toEqual(['resonance', 'weak_support']);
     for (const b of ['DE', 'NDE']) expect(u.measures.bearings[b]!.hv_amp_ratio!).toBeGreaterThan(3);
-    // Same mass on a fifth of the stiffness: the natural frequency falls by sqrt(5) (f_n = sqrt(k/m)/2pi),
-    // here from 38.6 Hz (25 MN/m, 425 kg) to 17.3 Hz, below running speed.
+    // Same mass on a fifth of the stiffness: the natural frequency falls by sqrt(5)
+    // (f_n = sqrt(k/m)/2pi), here from 38.6 Hz (25 MN/m, 425 kg) to 17.3 Hz, below running speed.
     const fnBefore = Math.sqrt(25e6 / 425) / (2 * Math.PI);
     const sim = new FanSimulator(plan(scenario({ timeline })));
     expect(sim.state.support(0, 'horizontal', 0).natural_hz).toBeCloseTo(
@@ -357,14 +366,15 @@ describe('1x that is not unbalance, from signals (common practice)', () => {
   });
 
   it('unstable 1x phase at steady speed: a neighbouring machine at 1518 r/min beating with the 1x at NDE -> none, points to unstable phase', async () => {
-    // A fixed 25.3 Hz tone (not tied to the shaft) at NDE, 3 mm/s pk: synchronous averaging over 2 s
-    // leaves part of it, turning 0.3 Hz x 2 s = 216 deg from one window to the next.
+    // A fixed 25.3 Hz tone (not tied to the shaft) at NDE, 3 mm/s pk: synchronous averaging over
+    // 2 s leaves part of it, turning 0.3 Hz x 2 s = 216 deg from one window to the next.
     const w = await watch(
       withFault({ kind: 'tone', bearing: 'NDE', freq_hz: 25.3, amp_pk_mm_s: 3 }),
     );
     const u = w.a.unbalance;
     expect(u.kind).toBe('none');
-    // unstable 1x phase at steady speed -> not a fixed heavy spot (median window-to-window jump above 30 deg)
+    // unstable 1x phase at steady speed -> not a fixed heavy spot (median window-to-window jump
+    // above 30 deg)
     expect(causes(w)).toContain('unstable_phase');
     expect(u.measures.phase_step_deg!).toBeGreaterThan(30);
     expect(evidence(w)).toMatch(

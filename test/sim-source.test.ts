@@ -27,7 +27,9 @@ async function take(src: SimSource, blocks: number): Promise<SampleBlock[]> {
   return out;
 }
 
-/** 1x of one channel over whole revolutions of consecutive blocks, as a complex amplitude (volts). */
+/**
+ * 1x of one channel over whole revolutions of consecutive blocks, as a complex amplitude (volts).
+ */
 function oneX(
   blocks: SampleBlock[],
   channel: number,
@@ -217,7 +219,8 @@ describe('turnwise simulate', () => {
     expect(s.speed_end_rpm).toBeGreaterThan(1480);
     const buf = readFileSync(f);
     expect(buf.length).toBe(s.bytes);
-    expect(buf.readUInt32LE(buf.length - 51200 * 28 - 4)).toBe(51200 * 28); // data chunk size just before the samples
+    // data chunk size just before the samples
+    expect(buf.readUInt32LE(buf.length - 51200 * 28 - 4)).toBe(51200 * 28);
   });
 
   it('prints a readable table, and names wrong arguments', async () => {

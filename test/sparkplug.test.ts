@@ -190,7 +190,8 @@ function sessionViolations(
     }
     if (m.qos !== 0)
       v.push(
-        `${at}: ${k} delivered at QoS ${m.qos}; births and data must be QoS 0 (tck-id-topics-${k.toLowerCase()}-mqtt)`,
+        `${at}: ${k} delivered at QoS ${m.qos}; births and data ` +
+          `must be QoS 0 (tck-id-topics-${k.toLowerCase()}-mqtt)`,
       );
     if (typeof p.timestamp !== 'number') v.push(`${at}: no payload timestamp`);
     if (typeof p.seq !== 'number' || p.seq < 0 || p.seq > 255)
@@ -205,10 +206,13 @@ function sessionViolations(
         v.push(`${at}: NBIRTH without a bdSeq metric (tck-id-topics-nbirth-bdseq-included)`);
       else {
         if (bdSeq !== null) {
-          const want = deathSeen ? (bdSeq + 1) % 256 : bdSeq; // a new CONNECT after a death, or a rebirth in the same connection
+          // a new CONNECT after a death, or a rebirth in the same connection
+          const want = deathSeen ? (bdSeq + 1) % 256 : bdSeq;
           if (b.long_value !== want)
             v.push(
-              `${at}: NBIRTH bdSeq ${b.long_value}, expected ${want} (${deathSeen ? 'one more after a new CONNECT' : 'the same on a rebirth'})`,
+              `${at}: NBIRTH bdSeq ${b.long_value}, expected ` +
+                `${want} ` +
+                `(${deathSeen ? 'one more after a new CONNECT' : 'the same on a rebirth'})`,
             );
         }
         bdSeq = b.long_value;
@@ -216,7 +220,8 @@ function sessionViolations(
       const rb = metric(m, 'Node Control/Rebirth');
       if (!rb || rb.datatype !== 11 || rb.boolean_value !== false || rb.alias !== undefined)
         v.push(
-          `${at}: 'Node Control/Rebirth' must be Boolean (11), false, without alias (tck-id-topics-nbirth-rebirth-metric)`,
+          `${at}: 'Node Control/Rebirth' must be Boolean (11), ` +
+            `false, without alias (tck-id-topics-nbirth-rebirth-metric)`,
         );
       inSession = true;
       deathSeen = false;
@@ -232,7 +237,8 @@ function sessionViolations(
     if (k === 'DBIRTH') {
       aliases = new Set();
       for (const x of p.metrics ?? []) {
-        // tck-id-payloads-alias-birth-requirement, -alias-uniqueness, -metric-datatype-req, -name-birth-data-requirement
+        // tck-id-payloads-alias-birth-requirement, -alias-uniqueness, -metric-datatype-req,
+        // -name-birth-data-requirement
         if (
           !x.name ||
           x.alias === undefined ||
@@ -258,7 +264,8 @@ function sessionViolations(
         if (x.timestamp === undefined) v.push(`${at}: DDATA metric without timestamp`);
         if (x.datatype !== undefined)
           v.push(
-            `${at}: DDATA metric carries a datatype (tck-id-payloads-metric-datatype-not-req: SHOULD NOT)`,
+            `${at}: DDATA metric carries a datatype ` +
+              `(tck-id-payloads-metric-datatype-not-req: SHOULD NOT)`,
           );
       }
     } else if (k === 'DDEATH') {
@@ -276,7 +283,8 @@ async function publishCmd(
 ): Promise<void> {
   const topic =
     verb === 'NCMD' ? `spBv1.0/${GROUP}/NCMD/${node}` : `spBv1.0/${GROUP}/DCMD/${node}/${ASSET}`;
-  // NCMD/DCMD at QoS 0 as the specification asks of hosts (tck-id-topics-ncmd-mqtt); the recorder publishes at 1, which an edge node must take as well.
+  // NCMD/DCMD at QoS 0 as the specification asks of hosts (tck-id-topics-ncmd-mqtt); the recorder
+  // publishes at 1, which an edge node must take as well.
   await rec.publish(topic, py.encode({ timestamp: Date.now(), metrics }));
 }
 
@@ -292,7 +300,8 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
     void node.queueEvent(event(1));
     await until(() => node.health().events_sent_total >= 1, 10_000, 'event sent');
 
-    // A host asks for a rebirth (tck-id-operational-behavior-data-commands-ncmd-rebirth-*); then unknown and malformed commands.
+    // A host asks for a rebirth (tck-id-operational-behavior-data-commands-ncmd-rebirth-*); then
+    // unknown and malformed commands.
     await publishCmd(rec, 'NCMD', [{ name: 'Node Control/Rebirth', boolean_value: true }]);
     await until(() => rec.count('NBIRTH') >= 2, 10_000, 'NBIRTH after the rebirth request');
     await publishCmd(rec, 'NCMD', [{ name: 'Node Control/Reboot', boolean_value: true }]);
@@ -306,7 +315,8 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
     const before = rec.count('DDATA');
     await until(() => rec.count('DDATA') > before, 5000, 'DDATA after the refused commands');
 
-    // The connection dies without DISCONNECT: the broker publishes the will (NDEATH); the node reconnects with bdSeq + 1.
+    // The connection dies without DISCONNECT: the broker publishes the will (NDEATH); the node
+    // reconnects with bdSeq + 1.
     (node as unknown as { client: { stream: { destroy(): void } } }).client.stream.destroy();
     await until(() => rec.count('NDEATH') >= 1, 15_000, 'NDEATH will');
     await until(() => rec.count('NBIRTH') >= 3, 15_000, 'NBIRTH after the reconnect');
@@ -322,18 +332,22 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
       'DDEATH and NDEATH at stop',
     );
 
-    const msgs = py.decode(rec.messages.filter((x) => !/\/(NCMD|DCMD)\//.test(x.topic))); // what the edge node published, not the host's own commands
+    // what the edge node published, not the host's own commands
+    const msgs = py.decode(rec.messages.filter((x) => !/\/(NCMD|DCMD)\//.test(x.topic)));
     expect(sessionViolations(msgs, GROUP, NODE, ASSET)).toEqual([]);
     const order = msgs.map(kind);
     expect(order.slice(0, 2)).toEqual(['NBIRTH', 'DBIRTH']);
     const births = msgs
       .filter((x) => kind(x) === 'NBIRTH')
       .map((x) => metric(x, 'bdSeq')!.long_value);
-    expect(births).toEqual([0, 0, 1]); // first CONNECT 0; rebirth keeps it (tck-id-operational-behavior-data-commands-rebirth-action-3); new CONNECT +1
+    // first CONNECT 0; rebirth keeps it
+    // (tck-id-operational-behavior-data-commands-rebirth-action-3); new CONNECT +1
+    expect(births).toEqual([0, 0, 1]);
     const deaths = msgs
       .filter((x) => kind(x) === 'NDEATH')
       .map((x) => x.payload!.metrics![0].long_value);
-    expect(deaths).toEqual([0, 1]); // the will of connection 0, the explicit NDEATH of connection 1 at stop
+    // the will of connection 0, the explicit NDEATH of connection 1 at stop
+    expect(deaths).toEqual([0, 1]);
     expect(order.at(-1)).toBe('NDEATH');
     expect(order.at(-2)).toBe('DDEATH');
     expect(msgs.filter((x) => kind(x) !== 'NDEATH').some((x) => x.payload!.seq === 255)).toBe(true);
@@ -354,7 +368,8 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
       unit('DE-V/1x Phase'),
     ]).toEqual(['rpm', 'mm/s', 'mm/s', 'deg']);
     expect(byName.get('DE-H/Sensor OK')!.datatype).toBe(11);
-    expect(byName.get('Unbalance/Verdict')!.string_value).toBe('static'); // current value carried into the birth after the reconnect
+    // current value carried into the birth after the reconnect
+    expect(byName.get('Unbalance/Verdict')!.string_value).toBe('static');
     expect(byName.get('Event')!.is_null).toBe(true);
 
     // Report by exception: the unchanged update sent nothing, the changed one only Speed.
@@ -368,7 +383,8 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
     expect(JSON.parse(evMsg.payload!.metrics![0].string_value!).id).toBe('spb-ev-1');
     expect(evMsg.payload!.metrics![0].is_historical).toBeUndefined();
     console.info(
-      `Sparkplug session: ${msgs.length} messages decoded by python3-protobuf, ${births.length} NBIRTH, ${deaths.length} NDEATH, no rule broken`,
+      `Sparkplug session: ${msgs.length} messages decoded by python3-protobuf, ` +
+        `${births.length} NBIRTH, ${deaths.length} NDEATH, no rule broken`,
     );
   }, 90_000);
 
@@ -411,7 +427,8 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
     const stateTopic = `spBv1.0/STATE/${HOST}`;
     const { node, log } = await startNode(m.url, { primaryHostId: HOST, hostWaitReportMs: 400 });
     await until(() => node.health().connected, 10_000, 'connected');
-    for (let i = 0; i < 5; i++) node.update(values(1480 + i)); // the agent goes on measuring meanwhile
+    // the agent goes on measuring meanwhile
+    for (let i = 0; i < 5; i++) node.update(values(1480 + i));
     await until(
       () => log.matching(/no online STATE from primary host "kessrow-scada"/).length >= 1,
       5000,
@@ -419,12 +436,14 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
     );
     await new Promise((r) => setTimeout(r, 600));
     expect(rec.count('NBIRTH')).toBe(0); // tck-id-message-flow-edge-node-birth-publish-subscribe
-    expect(log.matching(/no online STATE from primary host/)).toHaveLength(1); // once per burst, not every 400 ms
+    // once per burst, not every 400 ms
+    expect(log.matching(/no online STATE from primary host/)).toHaveLength(1);
 
     const t = Date.now();
     await rec.publish(stateTopic, JSON.stringify({ online: true, timestamp: t }), true);
     await until(() => rec.count('DBIRTH') >= 1, 10_000, 'births after the online STATE');
-    await rec.publish(stateTopic, JSON.stringify({ online: false, timestamp: t - 5000 }), false); // older than the last one: stale, ignored
+    // older than the last one: stale, ignored
+    await rec.publish(stateTopic, JSON.stringify({ online: false, timestamp: t - 5000 }), false);
     await new Promise((r) => setTimeout(r, 300));
     expect(node.isBorn()).toBe(true);
     expect(rec.count('NDEATH')).toBe(0);
@@ -442,13 +461,15 @@ describe('Sparkplug B edge node, as a host sees it (python3-protobuf decoder, re
 
     await rec.publish(stateTopic, JSON.stringify({ online: true, timestamp: t + 2000 }), true);
     await until(() => rec.count('DBIRTH') >= 2, 10_000, 'births when the host is back');
-    const msgs = py.decode(rec.messages.filter((x) => !x.topic.startsWith('spBv1.0/STATE/'))); // the node's messages, not the host's STATE
+    // the node's messages, not the host's STATE
+    const msgs = py.decode(rec.messages.filter((x) => !x.topic.startsWith('spBv1.0/STATE/')));
     expect(sessionViolations(msgs, GROUP, NODE, ASSET)).toEqual([]);
     expect(
       msgs.filter((x) => kind(x) === 'NBIRTH').map((x) => metric(x, 'bdSeq')!.long_value),
     ).toEqual([0, 1]);
     const dbirth = msgs.filter((x) => kind(x) === 'DBIRTH').at(-1)!;
-    expect(metric(dbirth, 'Speed')!.double_value).toBe(1484); // the latest value measured while quiet
+    // the latest value measured while quiet
+    expect(metric(dbirth, 'Speed')!.double_value).toBe(1484);
 
     // A STATE that is not Sparkplug 3.0 JSON is refused in the log, nothing else happens.
     await rec.publish(stateTopic, 'ONLINE', false);
@@ -477,7 +498,8 @@ describe('Sparkplug through the whole agent', () => {
       ],
       noiseMmS2: 50,
     });
-    // The signal the agent.test.ts fan uses: static unbalance growing from zone B to zone D at 1485 r/min.
+    // The signal the agent.test.ts fan uses: static unbalance growing from zone B to zone D at
+    // 1485 r/min.
     const sig = synthesize({
       sampleRate: fs,
       seconds: 50,
@@ -553,7 +575,8 @@ describe('Sparkplug through the whole agent', () => {
         else last.set(n, mt);
       }
     }
-    // Expected values: what the synthesized signal was built with (1485 r/min; 1x 9 mm/s pk at DE-V after the step) and the agent.test.ts verdicts for it.
+    // Expected values: what the synthesized signal was built with (1485 r/min; 1x 9 mm/s pk at DE-V
+    // after the step) and the agent.test.ts verdicts for it.
     expect(last.get('Speed')!.double_value!).toBeCloseTo(1485, 0);
     expect(last.get('DE-V/1x Amplitude')!.double_value!).toBeGreaterThan(9 * 0.95);
     expect(last.get('DE-V/1x Amplitude')!.double_value!).toBeLessThan(9 * 1.05);
@@ -563,9 +586,11 @@ describe('Sparkplug through the whole agent', () => {
     expect(last.get('Advisory/Outputs Energised')!.boolean_value).toBe(false);
     expect(events.map((e) => e.type)).toContain('zone_changed');
     expect(events.map((e) => e.type)).toContain('advisory_raised');
-    expect(json.messages.filter((x) => x.topic.includes('/event/'))).toEqual([]); // json_topics: false
+    // json_topics: false
+    expect(json.messages.filter((x) => x.topic.includes('/event/'))).toEqual([]);
     console.info(
-      `through the agent: ${msgs.length} Sparkplug messages, ${events.length} events (${events.filter((e) => e.historical).length} historical)`,
+      `through the agent: ${msgs.length} Sparkplug messages, ${events.length} events ` +
+        `(${events.filter((e) => e.historical).length} historical)`,
     );
   }, 90_000);
 });

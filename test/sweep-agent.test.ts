@@ -95,17 +95,20 @@ describe('sweeps recorded by the agent', () => {
       expect(sensors).toEqual(['DE-H', 'NDE-H']);
       for (const r of e.resonances) {
         found.push(
-          `${e.direction} ${r.sensor} ${r.rpm} r/min (want ${want.toFixed(1)}) AF ${r.amplification_factor} shift ${r.phase_shift_deg}`,
+          `${e.direction} ${r.sensor} ${r.rpm} r/min (want ${want.toFixed(1)}) ` +
+            `AF ${r.amplification_factor} shift ${r.phase_shift_deg}`,
         );
         expect(Math.abs(r.rpm - want) / want).toBeLessThan(0.03);
-        // AF about 1 / (2 zeta) = 8.3 for a lightly damped mode (textbook); the curve from 4-revolution points is coarser.
+        // AF about 1 / (2 zeta) = 8.3 for a lightly damped mode (textbook); the curve from
+        // 4-revolution points is coarser.
         expect(r.amplification_factor).toBeGreaterThan(5);
         expect(r.amplification_factor).toBeLessThan(12);
         expect(Math.abs(r.phase_shift_deg)).toBeGreaterThan(45);
       }
     });
     console.log(found.join('\n'));
-    // The first sweep of each direction became its reference; the second run-up was compared with the first.
+    // The first sweep of each direction became its reference; the second run-up was compared with
+    // the first.
     expect(recorded[0]!.reference).toBe(true);
     expect(recorded[1]!.reference).toBe(true);
     expect(recorded[2]!.reference).toBe(false);

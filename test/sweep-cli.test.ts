@@ -26,7 +26,10 @@ const RATED = 1485;
 
 /** Horizontal: a support resonance near 903 r/min (15.05 Hz), 6 % of critical damping. */
 const H: Mode = { fnHz: 15.05, zeta: 0.06, eccentricityMm: 0.026, heavyDeg: 30, noiseMmS2: 60 };
-/** Vertical: a stiff support, natural frequency 120 Hz, far above running speed: 1x only rises with speed. */
+/**
+ * Vertical: a stiff support, natural frequency 120 Hz, far above running speed: 1x only rises with
+ * speed.
+ */
 const V: Mode = { fnHz: 120, zeta: 0.05, eccentricityMm: 0.5, heavyDeg: 30, noiseMmS2: 60 };
 
 const cfg = join(dir, 'fan.yaml');
@@ -89,7 +92,10 @@ function sweep(file: string): Out {
 
 const truth = trueResonance(H, 300, RATED);
 
-/** The mean 1x vector of the 5 points nearest a speed (amplitude, circular mean of phase, mean speed). */
+/**
+ * The mean 1x vector of the 5 points nearest a speed (amplitude, circular mean of phase, mean
+ * speed).
+ */
 function near(
   points: readonly { rpm: number; amp_pk_mm_s: number; phase_deg: number }[],
   rpm: number,
@@ -144,13 +150,16 @@ describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, ow
       const r = h.resonances[0]!;
       expect(Math.abs(r.rpm / truth.rpm - 1)).toBeLessThan(0.02);
       expect(Math.abs(r.amplification_factor / truth.af - 1)).toBeLessThan(0.2);
-      // Peak height within 15 % of the steady-state peak (a sweep at 20 r/min per s lowers it a little).
+      // Peak height within 15 % of the steady-state peak (a sweep at 20 r/min per s lowers it a
+      // little).
       expect(Math.abs(r.amp_pk_mm_s / truth.ampPk - 1)).toBeLessThan(0.15);
-      // Through a SDOF resonance the phase lag grows with speed by about 90 degrees across the half-power band.
+      // Through a SDOF resonance the phase lag grows with speed by about 90 degrees across the
+      // half-power band.
       const shift = r.phase_shift_deg;
       expect(shift).toBeGreaterThan(60);
       expect(shift).toBeLessThan(120);
-      // Separation margin from rated speed: 100 x (1485 - N) / 1485; required by API 684 for AF 8 below
+      // Separation margin from rated speed: 100 x (1485 - N) / 1485; required by API 684 for AF
+      // 8 below
       // the operating speed: min(16, 17 x (1 - 1 / (AF - 1.5))) = about 14 % (from memory).
       expect(r.separation_margin_pct).toBeCloseTo((100 * (RATED - r.rpm)) / RATED, 0);
       expect(r.required_margin_pct).toBeCloseTo(
@@ -167,8 +176,9 @@ describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, ow
     it(`${name}: no resonance on the stiff direction, whose 1x only rises with speed`, () => {
       const v = get().sweeps[0]!.channels.find((c) => c.id === 'DE-V')!;
       expect(v.resonances).toEqual([]);
-      // Rises about as speed cubed (force ~ w^2, velocity ~ w x): 800 to 1450 r/min, steady-state ratio
-      // of the stiff mode (own computation, about x 6), within 10 % (the 1x noise at 800 r/min is about 6 % a point).
+      // Rises about as speed cubed (force ~ w^2, velocity ~ w x): 800 to 1450 r/min, steady-state
+      // ratio of the stiff mode (own computation, about x 6), within 10 % (the 1x noise at
+      // 800 r/min is about 6 % a point).
       const ratio = near(v.points, 1450).amp / near(v.points, 800).amp;
       const want =
         steadyVelocity(V, near(v.points, 1450).rpm).ampPk /
@@ -178,8 +188,9 @@ describe('turnwise sweep: resonance from a coast-down and a run-up (SDOF rig, ow
 
     it(`${name}: points away from the resonance match the steady-state 1x vector (2 % and 3 degrees)`, () => {
       const h = get().sweeps[0]!.channels.find((c) => c.id === 'DE-H')!;
-      // Mean of the 5 points nearest each speed: noise per point is about 1 % at 700 r/min (60 mm/s^2
-      // r.m.s. over 4 revolutions), the sweep's own transient well under that away from the resonance.
+      // Mean of the 5 points nearest each speed: noise per point is about 1 % at 700 r/min (60
+      // mm/s^2 r.m.s. over 4 revolutions), the sweep's own transient well under that away from the
+      // resonance.
       for (const target of [700, 1300, 1450]) {
         const p = near(h.points, target);
         const want = steadyVelocity(H, p.rpm);

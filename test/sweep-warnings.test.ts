@@ -47,7 +47,10 @@ function coastDown(mode: Mode, to: number, stepRpm: number, rpmPerS: number): Sp
   return pts;
 }
 
-/** A sharp support resonance near 903 r/min: 3 % of critical damping, half-power band about 54 r/min. */
+/**
+ * A sharp support resonance near 903 r/min: 3 % of critical damping, half-power band about
+ * 54 r/min.
+ */
 const SHARP: Mode = { fnHz: 15.05, zeta: 0.03, eccentricityMm: 0.026, heavyDeg: 30, noiseMmS2: 0 };
 
 describe('sweep warnings: too fast for the averaging', () => {
@@ -79,7 +82,8 @@ describe('sweep warnings: too fast for the averaging', () => {
     expect(s!.warnings).toHaveLength(1);
     expect(s!.warnings[0]).toMatch(
       new RegExp(
-        `^the resonance near 9\\d\\d r/min \\(DE-H\\) rests on ${inBand} point\\(s\\) within its half-power band \\d+-\\d+ r/min, fewer than 5: .*doubtful`,
+        `^the resonance near 9\\d\\d r/min \\(DE-H\\) rests on ${inBand} point\\(s\\) ` +
+          `within its half-power band \\d+-\\d+ r/min, fewer than 5: .*doubtful`,
       ),
     );
   });

@@ -41,7 +41,8 @@ function prereqs(
     opts.asNobody && isRoot
       ? [SETPRIV!, '--reuid=65534', '--regid=65534', '--clear-groups', ...node]
       : node;
-  // Only PATH and the switches: nothing of the caller's environment (TURNWISE_PYTHON, ...) leaks in.
+  // Only PATH and the switches: nothing of the caller's environment (TURNWISE_PYTHON, ...) leaks
+  // in.
   const r = spawnSync(cmd[0]!, cmd.slice(1), {
     encoding: 'utf8',
     env: { PATH: path, HOME: root, ...env },

@@ -48,7 +48,8 @@ describe('turnwise condition', () => {
     const learned = await run(['learn-baseline', '--config', cfgFile, wfile]);
     expect(learned.code).toBe(0);
     expect(learned.out).toMatch(/baseline learned from 4 window\(s\)/);
-    expect(learned.out).toMatch(/DE-V\s+2\.50\s+40\s+2\.63/); // 1x 2.5 mm/s r.m.s.; overall 2.5 x sqrt(1 + 0.1^2 + 0.05^2 + 0.3^2) = 2.63
+    // 1x 2.5 mm/s r.m.s.; overall 2.5 x sqrt(1 + 0.1^2 + 0.05^2 + 0.3^2) = 2.63
+    expect(learned.out).toMatch(/DE-V\s+2\.50\s+40\s+2\.63/);
     const file = join(dir, 'state', 'watcher', 'baseline.json');
     expect(JSON.parse(readFileSync(file, 'utf8')).learned_at).toBe('2031-03-02T08:00:00.000Z');
 

@@ -4,7 +4,10 @@ import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { expectNoStack, runCli } from './support/cli.js';
 
-/** Bad watcher thresholds and cross-section mistakes, through the compiled CLI (`turnwise check-config`). */
+/**
+ * Bad watcher thresholds and cross-section mistakes, through the compiled CLI (`turnwise
+ * check-config`).
+ */
 const dir = mkdtempSync(join(tmpdir(), 'tw-check-'));
 const example = readFileSync('config/example.yaml', 'utf8');
 
@@ -38,7 +41,8 @@ describe('turnwise check-config refuses thresholds outside sense, with the path 
 
   it('watcher.baseline.channels and advisory.sensors naming sensors that do not exist (refused by run at start, now by check-config too)', () => {
     const b = check(
-      'watcher:\n  baseline:\n    channels:\n      XX-V: { one_x_rms_mm_s: 1, one_x_phase_deg: 10 }',
+      'watcher:\n  baseline:\n    channels:\n' +
+        '      XX-V: { one_x_rms_mm_s: 1, one_x_phase_deg: 10 }',
     );
     expect(b.code).toBe(2);
     expect(b.stderr).toMatch(/watcher\.baseline\.channels\.XX-V: no sensor with id "XX-V"/);

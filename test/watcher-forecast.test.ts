@@ -24,8 +24,9 @@ import { demoConfig, synthWindow, type Vec } from './support/fan-windows.js';
 
 /**
  * Influence-coefficient method (common practice): V = V0 + H W; one
- * plane W = -V0 / H; two planes W = -H^-1 V0; with more sensors than planes, least squares. Here the
- * "V0" is the change from baseline, so the forecast weight brings the 1x vectors back to baseline.
+ * plane W = -V0 / H; two planes W = -H^-1 V0; with more sensors than planes, least squares. Here
+ * the "V0" is the change from baseline, so the forecast weight brings the 1x vectors back to
+ * baseline.
  */
 
 const cfg = demoConfig();
@@ -162,7 +163,8 @@ describe('balance forecast from stored coefficients', () => {
       /1 healthy sensor\(s\) with coefficients for 2 plane\(s\)/,
     );
     const far = forecastBalance('kessrow-id3a', coeffs(one.coefficients, ['P1'], 1200), null, w, h);
-    // two sensors that see both planes alike cannot tell the planes apart: no confident wrong answer
+    // two sensors that see both planes alike cannot tell the planes apart: no confident wrong
+    // answer
     const w2 = windowOf({ 'DE-V': fromPolar(2, 40), 'NDE-V': fromPolar(1, 70) });
     const same = {
       P1: { amp_mm_s_pk_per_g: 0.05, phase_deg: 30 },
@@ -194,7 +196,8 @@ describe('balance forecast from stored coefficients', () => {
     );
     const st = w.process(windowOf({ 'DE-V': fromPolar(3.0, 120) })).status;
     expect(st.forecast!.available).toBe(true);
-    expect(st.forecast!.weights[0]!.mass_g).toBeCloseTo(60, 6); // no baseline: back to zero, W = -V / H
+    // no baseline: back to zero, W = -V / H
+    expect(st.forecast!.weights[0]!.mass_g).toBeCloseTo(60, 6);
     writeFileSync(file, '{"version": 1, "asset": ');
     w.reloadCoefficients();
     const broken = w.process(windowOf({ 'DE-V': fromPolar(3.0, 120) })).status.forecast!;

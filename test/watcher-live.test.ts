@@ -61,7 +61,9 @@ class Feeder {
   }
 }
 
-/** These tests feed 10 s windows with a 20 s on-delay (a state is reported on its second window). */
+/**
+ * These tests feed 10 s windows with a 20 s on-delay (a state is reported on its second window).
+ */
 function start(
   dir: string,
   watcher: Record<string, unknown> = {},
@@ -116,7 +118,8 @@ describe('watcher events over time', () => {
     const found = bad.find((e) => e.type === 'unbalance_found')!;
     expect(found).toMatchObject({ kind: 'static', severity: 'warning' });
     expect((found['evidence'] as string[]).join('\n')).toMatch(/in phase \(static pattern\)/);
-    // No baseline: the alarm sits at B/C (2.8 mm/s, ISO 20816-3 group 2 rigid); DE-V at 4.2 mm/s is over it.
+    // No baseline: the alarm sits at B/C (2.8 mm/s, ISO 20816-3 group 2 rigid); DE-V at 4.2 mm/s is
+    // over it.
     expect(bad.filter((e) => e.type === 'alarm_level_exceeded').map((e) => e['sensor'])).toContain(
       'DE-V',
     );
@@ -241,15 +244,17 @@ describe('baseline, vector change and restarts on real files', () => {
     expect(baseline.channels['DE-V']!.one_x_phase_deg).toBeCloseTo(40, 9);
     expect(existsSync(join(dir, 'watcher', 'baseline.json'))).toBe(true);
 
-    // Same amplitude, phase moved 60 deg: |V - Vb| = 2 x 2 x sin(30 deg) = 2.0 mm/s (chord of a circle),
-    // above the default 0.25 x B/C = 0.7 mm/s (ISO 20816-3: a change of 25 % of B/C is significant).
+    // Same amplitude, phase moved 60 deg: |V - Vb| = 2 x 2 x sin(30 deg) = 2.0 mm/s (chord of a
+    // circle), above the default 0.25 x B/C = 0.7 mm/s (ISO 20816-3: a change of 25 % of B/C is
+    // significant).
     const swing = f.case('static', 2, { amp: 2, phase: 100 });
     const de = swing.find((e) => e.type === 'vector_change' && e['sensor'] === 'DE-V')!;
     expect(de['delta_mm_s'] as number).toBeCloseTo(2.0, 9);
     expect(de['amp_change_mm_s'] as number).toBeCloseTo(0, 9);
     expect(de['phase_change_deg'] as number).toBeCloseTo(60, 9);
     expect(de['limit_mm_s']).toBeCloseTo(0.7, 12);
-    expect(swing.some((e) => e.type === 'zone_changed' && e['from_zone'] !== null)).toBe(false); // amplitude, and so zone, unchanged
+    // amplitude, and so zone, unchanged
+    expect(swing.some((e) => e.type === 'zone_changed' && e['from_zone'] !== null)).toBe(false);
   });
 
   it('refuses to learn from a fan whose 1x phase wanders, and says why', () => {
@@ -302,7 +307,8 @@ describe('disk trouble', () => {
     const log = new MemoryLogger();
     const f = start(dir, { history: { interval_s: 10 } }, T0, log);
     f.case('quiet', 2);
-    // A directory where each file should be: every save fails (EISDIR), as on a broken disk; no root needed.
+    // A directory where each file should be: every save fails (EISDIR), as on a broken disk; no
+    // root needed.
     const w = join(dir, 'watcher');
     for (const name of ['state.json', 'history.jsonl']) {
       rmSync(join(w, name));
@@ -320,14 +326,16 @@ describe('disk trouble', () => {
     for (const name of ['state.json', 'history.jsonl']) rmSync(join(w, name), { recursive: true });
     f.case('static');
     expect(f.w.status().warnings).toEqual([]);
-    // The states were confirmed on the second static window (20 s on-delay): 5 failed saves, then the 6th worked.
+    // The states were confirmed on the second static window (20 s on-delay): 5 failed saves, then
+    // the 6th worked.
     expect(problemLines(log, 'confirmed states not saved', 'info')).toEqual([
       expect.objectContaining({
         msg: 'confirmed states saved again',
         fields: expect.objectContaining({ occurrences: 5 }),
       }),
     ]);
-    // One point per 10 s window after the first: 6 failed appends; the points kept in memory are saved late.
+    // One point per 10 s window after the first: 6 failed appends; the points kept in memory are
+    // saved late.
     expect(problemLines(log, 'history not saved', 'info')).toEqual([
       expect.objectContaining({ fields: expect.objectContaining({ occurrences: 6 }) }),
     ]);
@@ -342,7 +350,8 @@ describe('disk trouble', () => {
     const mnt = tryMountTmpfs();
     if (!mnt)
       return ctx.skip(
-        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); the EISDIR test above covers the same path',
+        'cannot mount a tmpfs here (not root or no CAP_SYS_ADMIN); ' +
+          'the EISDIR test above covers the same path',
       );
     try {
       const dir = join(mnt, 'state');
@@ -358,13 +367,14 @@ describe('disk trouble', () => {
       f.case('static', 4);
       expect(types(f.events)).toContain('zone_changed:machine');
       expect(types(f.events)).toContain('unbalance_found:machine');
-      // The start counter could not be saved: this run counts from the clock's seconds, so a restart
-      // that reads the old counter again cannot repeat these event ids.
+      // The start counter could not be saved: this run counts from the clock's seconds, so a
+      // restart that reads the old counter again cannot repeat these event ids.
       const run = Math.floor(T0 / 1000);
       expect(f.events.every((e) => e.id.includes(`/r${run}/`))).toBe(true);
       expect(problemLines(log, 'confirmed states not saved', 'warn')).toHaveLength(1);
       expect(problemLines(log, 'history not saved', 'warn')).toHaveLength(1);
-      expect(readdirSync(join(dir, 'watcher')).filter((n) => n.includes('.tmp-'))).toEqual([]); // nothing half-written left
+      // nothing half-written left
+      expect(readdirSync(join(dir, 'watcher')).filter((n) => n.includes('.tmp-'))).toEqual([]);
       expect(existsSync(join(dir, 'watcher', 'state.json'))).toBe(false);
 
       rmSync(ballast);
@@ -413,13 +423,15 @@ describe('disk trouble', () => {
         files: [{ file, moved_to: movedTo, problem: expect.stringMatching(/^not valid JSON/) }],
       }),
     ]);
-    // The states are reported again, under a start counter from the clock (the stored one was lost).
+    // The states are reported again, under a start counter from the clock (the stored one was
+    // lost).
     expect(types(first)).toContain('unbalance_found:machine');
     const run = Math.floor(t1 / 1000);
     expect(first.every((e) => e.id.includes(`/r${run}/`))).toBe(true);
     expect(JSON.parse(readFileSync(file, 'utf8'))).toMatchObject({ run, unbalance: 'static' });
     g.case('static', 3);
-    expect(log.lines.filter((l) => l.level === 'warn')).toHaveLength(1); // said once, not per window
+    // said once, not per window
+    expect(log.lines.filter((l) => l.level === 'warn')).toHaveLength(1);
   });
 
   it('moves a damaged baseline aside and watches on without it', () => {
@@ -515,10 +527,12 @@ describe('history bounds and trend', () => {
       .trim()
       .split('\n');
     expect(lines.length).toBe(h.points.length);
-    // The newest 50 points are kept as they were; the oldest surviving point averages the first minutes.
+    // The newest 50 points are kept as they were; the oldest surviving point averages the first
+    // minutes.
     expect(h.points[h.points.length - 1]!.ts).toBe(new Date(T0 + 249 * 60_000).toISOString());
     expect(Date.parse(h.points[0]!.ts) - T0).toBeLessThan(30 * 60_000);
-    expect(h.points.reduce((a, p) => a + p.windows, 0)).toBe(250 * 6); // no window lost, only merged
+    // no window lost, only merged
+    expect(h.points.reduce((a, p) => a + p.windows, 0)).toBe(250 * 6);
     const again = new History(new FileHistoryStore(dir), 100);
     expect(again.points).toEqual(h.points);
   });

@@ -63,7 +63,8 @@ describe('watcher rules as declarations', () => {
       'significance',
     ]);
     const byName = Object.fromEntries(a.unbalance.rules.map((r) => [r.rule, r]));
-    // The misalignment case (test/support/fan-windows.ts): 2x at 90 % of 1x, axial 1x 178 deg apart.
+    // The misalignment case (test/support/fan-windows.ts): 2x at 90 % of 1x, axial 1x 178 deg
+    // apart.
     expect(byName['harmonics']!.facts.two_x_high).toBe(true);
     expect(byName['harmonics']!.points_to.map((p) => p.cause)).toEqual(['misalignment']);
     expect(byName['axial']!.evidence.join('\n')).toMatch(/178 deg apart end to end/);
@@ -198,7 +199,8 @@ describe('state table and event payloads', () => {
 
 describe('significance before a finding (watcher.unbalance.significance)', () => {
   // Group 2 rigid (config/example.yaml): A/B 1.4, B/C 2.8 mm/s r.m.s. (ISO 20816-3).
-  // A static pattern of 1x 0.75 mm/s on DE-V: the synthesizer's overall sqrt(1 + 0.1^2 + 0.05^2 + 0.3^2) x 0.75 = 0.79 mm/s, zone A.
+  // A static pattern of 1x 0.75 mm/s on DE-V: the synthesizer's overall
+  // sqrt(1 + 0.1^2 + 0.05^2 + 0.3^2) x 0.75 = 0.79 mm/s, zone A.
   const small = { ...fanCase('static', { amp: 0.75 }) };
 
   it('zone A, no baseline: kind none, the residual static pattern given as information', () => {

@@ -85,7 +85,9 @@ type Extra = Partial<
   >
 >;
 
-/** Volts of the six sensors and the tach for `seconds`, the healthy fan plus the extras per sensor. */
+/**
+ * Volts of the six sensors and the tach for `seconds`, the healthy fan plus the extras per sensor.
+ */
 function record(
   seconds: number,
   extra: Extra = {},
@@ -143,8 +145,8 @@ function windows(cfg: Config, channels: Float32Array[]): WindowResult[] {
 
 const ch = (w: WindowResult, id: string) => w.channels.find((c) => c.id === id)!;
 
-// BPFO of an outer-race defect, n = 9 rollers, d/D = 0.25, contact angle 0 (typical proportions, from memory):
-// (9 / 2) x 24.75 Hz x (1 - 0.25) = 83.5 Hz (textbook bearing kinematics).
+// BPFO of an outer-race defect, n = 9 rollers, d/D = 0.25, contact angle 0 (typical proportions,
+// from memory): (9 / 2) x 24.75 Hz x (1 - 0.25) = 83.5 Hz (textbook bearing kinematics).
 const BPFO_HZ = (9 / 2) * (1485 / 60) * (1 - 0.25);
 const bearing =
   (impactG: number, bpfoHz = BPFO_HZ, seed = 7) =>
@@ -158,7 +160,8 @@ const bearing =
       slip: 0.015,
       seed,
     });
-// The connector of the task: openings about 40 a second, jumps of 6-9 V into the +/- 5 V rail, 0.1-0.6 ms open.
+// The connector of the task: openings about 40 a second, jumps of 6-9 V into the +/- 5 V rail,
+// 0.1-0.6 ms open.
 const connector =
   (seed = 3, perS = 40) =>
   (p: Plant) =>
@@ -180,7 +183,8 @@ describe('a healthy fan is not flagged', () => {
   });
 
   it('a noiseless quantised sine is not "cut off": its peaks hold about 1.4 times the samples of the band below (own computation), not many times', () => {
-    // Band at the top within tol of the peak, next band 3 tol to tol: for A cos, (sqrt 2 tol)/(sqrt 6 tol - sqrt 2 tol) = 1.37.
+    // Band at the top within tol of the peak, next band 3 tol to tol: for A cos, (sqrt 2 tol)/(sqrt
+    // 6 tol - sqrt 2 tol) = 1.37.
     for (const bits of [12, 16, 24]) {
       const stage = new SignalFactsStage({
         sampleRate: FS,
@@ -217,7 +221,8 @@ describe('impulsive spikes: a bad connector is flagged, a bearing defect is not'
     );
     const w = ws[1]!;
     const sig = ch(w, 'DE-V').stats.signal!;
-    // What kurtosis or crest-factor thresholds would call impulsive (Gaussian noise: kurtosis 3, crest about 4.5 over 51 200 samples; a sine 1.5 and 1.41, textbook).
+    // What kurtosis or crest-factor thresholds would call impulsive (Gaussian noise: kurtosis 3,
+    // crest about 4.5 over 51 200 samples; a sine 1.5 and 1.41, textbook).
     expect(sig.kurtosis).toBeGreaterThan(5);
     expect(sig.crest_factor).toBeGreaterThan(5);
     expect(sig.impulses_one_sided).toBeLessThan(2);
@@ -246,12 +251,13 @@ describe('impulsive spikes: a bad connector is flagged, a bearing defect is not'
     const clean = windows(cfg, record(4))[1]!;
     const w = windows(cfg, record(4, { 'DE-V': { v: connector() } }))[1]!;
     const sig = ch(w, 'DE-V').stats.signal!;
-    // Expected from the generator: about 40 x 2 s = 80 openings in the window (Poisson), each one-sided; an
-    // impulse is counted when neither neighbouring 10 ms span holds one, chance exp(-2 x 40/s x 0.01 s) = 0.45
-    // (own computation): about 36 counted.
+    // Expected from the generator: about 40 x 2 s = 80 openings in the window (Poisson), each
+    // one-sided; an impulse is counted when neither neighbouring 10 ms span holds one, chance
+    // exp(-2 x 40/s x 0.01 s) = 0.45 (own computation): about 36 counted.
     expect(sig.impulses_one_sided).toBeGreaterThan(20);
     expect(sig.impulses_one_sided).toBeLessThan(60);
-    expect(ch(w, 'DE-V').stats.clipped_samples).toBe(0); // no limit configured: the old rule could not see it
+    // no limit configured: the old rule could not see it
+    expect(ch(w, 'DE-V').stats.clipped_samples).toBe(0);
     // The spikes inflate the overall: more than 1.5 times the same sensor's clean overall.
     expect(ch(w, 'DE-V').overall_rms_mm_s!).toBeGreaterThan(
       1.5 * ch(clean, 'DE-V').overall_rms_mm_s!,
@@ -296,13 +302,15 @@ describe('impulsive spikes: a bad connector is flagged, a bearing defect is not'
         .map((e) => e.type),
     );
     expect(byWindow.slice(0, 3)).toEqual([['sensor_not_ok'], [], []]);
-    // Clean from window 3 (6-8 s): OK once 10 s of clean data have passed, at the end of window 7 (14-16 s).
+    // Clean from window 3 (6-8 s): OK once 10 s of clean data have passed, at the end of window
+    // 7 (14-16 s).
     expect(byWindow.slice(3)).toEqual([[], [], [], [], ['sensor_ok'], [], []]);
   });
 });
 
 describe('cut off, saturated, quantisation only, level steps', () => {
-  // A large blade-pass tone (10 x 24.75 Hz) of 40 g peak: 4 V at 100 mV/g, beyond what the sensor below can give.
+  // A large blade-pass tone (10 x 24.75 Hz) of 40 g peak: 4 V at 100 mV/g, beyond what the sensor
+  // below can give.
   const bladePass = (peakG: number) => (p: Plant) => {
     const n = Math.round(p.seconds * p.sampleRate);
     const g = new Float64Array(n);
@@ -330,7 +338,8 @@ describe('cut off, saturated, quantisation only, level steps', () => {
         .sensors.find((x) => x.id === 'NDE-H')!
         .faults.map((f) => f.code),
     ).toEqual(['clipped']);
-    // The sensor's amplifier limits at +/- 2.5 V (converter rail at 2.5 V stands in for it; the configured range is 5 V).
+    // The sensor's amplifier limits at +/- 2.5 V (converter rail at 2.5 V stands in for it; the
+    // configured range is 5 V).
     const sat = windows(cfg, record(4, { 'NDE-H': { g: bladePass(40) } }, { railV: 2.5 }))[1]!;
     const h = assessWindow(cfg, sat).sensors.find((x) => x.id === 'NDE-H')!;
     expect(h.faults.map((f) => f.code)).toEqual(['saturation']);
@@ -338,13 +347,14 @@ describe('cut off, saturated, quantisation only, level steps', () => {
   });
 
   it('a signal that is only quantisation noise while the fan turns (a 12-bit board, the input of NDE-A dead): not OK', () => {
-    // A rougher fan (vibration x 3) so that the live sensors span many 2.44 mV steps of the 12-bit +/- 5 V converter; DE-A left out (its
-    // 1.5 mm/s axial 1x is 2.4 mV peak, itself below two steps).
+    // A rougher fan (vibration x 3) so that the live sensors span many 2.44 mV steps of the 12-bit
+    // +/- 5 V converter; DE-A left out (its 1.5 mm/s axial 1x is 2.4 mV peak, itself below two
+    // steps).
     const cfg = config({ sensors: (s) => (s['id'] === 'DE-A' ? null : s) });
     const step = (2 * RAIL_V) / 2 ** 12;
     const u = normal(9);
-    // The dead input toggles about its value (rounding of 0.35 step r.m.s. of pick-up: 2-4 steps in all), about 1 mV r.m.s., far above
-    // the flat-line 0.2 mV.
+    // The dead input toggles about its value (rounding of 0.35 step r.m.s. of pick-up: 2-4 steps in
+    // all), about 1 mV r.m.s., far above the flat-line 0.2 mV.
     const dead = (p: Plant) =>
       Float64Array.from({ length: Math.round(p.seconds * FS) }, () => 0.35 * step * u());
     const extra: Extra = { 'NDE-A': { only: () => false, v: dead } };

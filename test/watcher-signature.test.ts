@@ -16,12 +16,16 @@ import {
  * 1x dominates; H and V about 90 deg apart (+/-30) with H/V ratio
  * below about 3; bearing-to-bearing near 0 = static, near 180 = couple, in between = dynamic; high
  * in-phase axial on an overhung rotor; high 2x with axial 180 apart = misalignment; straight-line
- * motion = eccentricity, looseness, resonance or weak support; unstable phase = no fixed heavy spot.
+ * motion = eccentricity, looseness, resonance or weak support; unstable phase = no fixed heavy
+ * spot.
  */
 
 const cfg = demoConfig();
 
-/** Windows of one state with a little phase and amplitude jitter, as a steady fan gives (oldest first). */
+/**
+ * Windows of one state with a little phase and amplitude jitter, as a steady fan gives (oldest
+ * first).
+ */
 function series(c: FanCase, n: number): WindowResult[] {
   const out: WindowResult[] = [];
   for (let i = 0; i < n; i++) {
@@ -184,7 +188,8 @@ describe('1x that is not unbalance (common practice)', () => {
     const u = judge(windows);
     expect(u.kind).toBe('none');
     expect(u.measures.one_x_share!).toBeLessThan(0.7);
-    // 1x / overall = 1 / sqrt(1 + 0.1^2 + 0.05^2 + 2^2) = 0.447 (2x, 3x and broadband from the synthesizer).
+    // 1x / overall = 1 / sqrt(1 + 0.1^2 + 0.05^2 + 2^2) = 0.447 (2x, 3x and broadband from the
+    // synthesizer).
     expect(u.evidence.join('\n')).toMatch(/1x is only 45 % of the overall/);
   });
 
@@ -202,7 +207,8 @@ describe('1x that is not unbalance (common practice)', () => {
 
 describe('faulty and missing sensors', () => {
   it('a sensor fault during static unbalance gives no false verdict from the broken channel', () => {
-    // NDE-V shorted (bias 0.3 V) and reading a spurious 1x opposed to DE-V: used, it would say "couple".
+    // NDE-V shorted (bias 0.3 V) and reading a spurious 1x opposed to DE-V: used, it would say
+    // "couple".
     const spec = fanCase('static');
     const broken: WindowSpec = {
       ...spec,
@@ -224,7 +230,8 @@ describe('faulty and missing sensors', () => {
     expect(a.unbalance.confidence).toBe('medium');
     expect(a.zone.channels['NDE-V']!.status).toBe('not_ok');
     expect(a.zone.channels['NDE-V']!.zone).toBeNull();
-    // Machine zone from the healthy channels only: DE-V at 4.2 mm/s overall is zone C (ISO 20816-3 group 2 rigid, B/C 2.8, C/D 4.5).
+    // Machine zone from the healthy channels only: DE-V at 4.2 mm/s overall is zone C (ISO 20816-3
+    // group 2 rigid, B/C 2.8, C/D 4.5).
     expect(a.zone.machine).toBe('C');
   });
 
@@ -393,9 +400,11 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
     expect(hint(2, (rated / 2) * 0.96)).toBeNull();
     expect(hint(1, rated * 5)).toBeNull();
     expect(hint(5, rated / 5)).toBeNull();
-    expect(hint(1, rated / 2)).toBeNull(); // no half pulse per turn: the fan really runs at half speed
+    // no half pulse per turn: the fan really runs at half speed
+    expect(hint(1, rated / 2)).toBeNull();
     expect(hint(3, rated / 2)).toBeNull();
-    expect(hint(2, rated / 2, 0.01)).toBeNull(); // 2 % spread: starting or coasting through rated / 2
+    // 2 % spread: starting or coasting through rated / 2
+    expect(hint(2, rated / 2, 0.01)).toBeNull();
     expect(hint(2, rated / 2, 0.007)!.fits).toBe(1); // 1.4 %: steady enough
     const noRated = demoConfig({ machine: { rated_rpm: undefined }, tach: { pulses_per_rev: 2 } });
     expect(
@@ -411,7 +420,8 @@ describe('a speed that betrays a wrong tach.pulses_per_rev', () => {
     const quietHalf = synthWindow(fanCase('quiet', { speed_rpm: rated / 2 }));
     const right = assessWindow(withPpr(1), quietHalf, { baseline: null }).unbalance;
     expect(right.kind).toBe('none');
-    expect(right.confidence).toBe('high'); // control: without the hint the same window is a confident "none"
+    // control: without the hint the same window is a confident "none"
+    expect(right.confidence).toBe('high');
     const wrong = assessWindow(withPpr(2), quietHalf, { baseline: null });
     expect(wrong.unbalance.confidence).toBe('low');
     expect(wrong.unbalance.limits[0]).toMatch(

@@ -55,7 +55,8 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
     const tr = seriesTrend(tMs, y, LIMITS, CFG);
     expect(tr.state).toBe('rising');
     expect(tr.slope_mm_s_per_day!).toBeCloseTo(0.48, 2);
-    // By hand: at the last point (47 h) the line is at 1.5 + 0.02 x 47 = 2.44 mm/s; (2.8 - 2.44) / 0.02 = 18 h later.
+    // By hand: at the last point (47 h) the line is at 1.5 + 0.02 x 47 = 2.44 mm/s;
+    // (2.8 - 2.44) / 0.02 = 18 h later.
     expect(tr.fitted_now_mm_s!).toBeCloseTo(2.44, 2);
     expect(tr.next_limit).toEqual({ name: 'zone B/C', value_mm_s: 2.8 });
     const expected = T0 + (47 + 18) * H;
@@ -93,7 +94,8 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
     );
     expect(tr.state).toBe('no_trend');
     expect(tr.slope_range_mm_s_per_day![0]).toBeGreaterThan(0); // the slope itself is clear...
-    expect(tr.why).toMatch(/the line explains only \d+ % of the variation/); // ...but the fit is poor
+    // ...but the fit is poor
+    expect(tr.why).toMatch(/the line explains only \d+ % of the variation/);
   });
 
   it('needs enough points over enough time before saying anything', () => {
@@ -112,7 +114,8 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
       speed_rpm: 1485,
       channels: { 'DE-V': { overall_rms_mm_s: v, one_x_rms_mm_s: v, one_x_phase_deg: 40 } },
     });
-    // 24 h at 3.5 mm/s, a balancing job and a new baseline, then 24 h rising 0.02 mm/s per hour from 1.0 mm/s.
+    // 24 h at 3.5 mm/s, a balancing job and a new baseline, then 24 h rising 0.02 mm/s per hour
+    // from 1.0 mm/s.
     const pts = [
       ...Array.from({ length: 24 }, (_, h) => pt(h, 3.5)),
       ...Array.from({ length: 24 }, (_, h) => pt(30 + h, 1.0 + 0.02 * h)),
@@ -126,11 +129,13 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
       speed_rpm: 1485,
       channels: {},
     };
-    expect(trendReport(s, pts, null).channels['DE-V']!.overall.state).not.toBe('rising'); // the step of the job hides the rise
+    // the step of the job hides the rise
+    expect(trendReport(s, pts, null).channels['DE-V']!.overall.state).not.toBe('rising');
     const after = trendReport(s, pts, base).channels['DE-V']!.overall;
     expect(after.points).toBe(24);
     expect(after.state).toBe('rising');
-    // Last point 1.0 + 0.02 x 23 = 1.46 mm/s, past A/B 1.4; B/C 2.8 is (2.8 - 1.46) / 0.02 = 67 h later (ISO 20816-3 group 2 rigid).
+    // Last point 1.0 + 0.02 x 23 = 1.46 mm/s, past A/B 1.4; B/C 2.8 is (2.8 - 1.46) / 0.02 = 67 h
+    // later (ISO 20816-3 group 2 rigid).
     expect(after.next_limit!.name).toBe('zone B/C');
     expect(Date.parse(after.crossing_at!)).toBeCloseTo(T0 + (53 + 67) * H, -4);
   });
@@ -149,7 +154,8 @@ describe('robust trend (Theil-Sen) and the next boundary crossing', () => {
       );
     }
     const t = w.status().trend!;
-    // Windows at 10 s ... 900 s: the first point closes at 70 s (first window + 60 s), then one every 60 s up to 850 s.
+    // Windows at 10 s ... 900 s: the first point closes at 70 s (first window + 60 s), then one
+    // every 60 s up to 850 s.
     expect(t.channels['DE-V']!.overall.points).toBe(14);
     const de = t.channels['DE-V']!.overall;
     expect(de.state).toBe('rising');

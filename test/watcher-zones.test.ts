@@ -61,7 +61,8 @@ describe('ISO 20816-3 zone boundaries (ISO 20816-3 zone boundary table for group
 });
 
 describe('ISO 14694 fan limits (from memory: check against the current edition)', () => {
-  // [category, mounting, start-up, alarm, shut-down] in mm/s r.m.s., ISO 14694 in-situ limits from memory.
+  // [category, mounting, start-up, alarm, shut-down] in mm/s r.m.s., ISO 14694 in-situ limits from
+  // memory.
   const table: ['BV-3' | 'BV-4', 'rigid' | 'flexible', number, number, number][] = [
     ['BV-3', 'rigid', 4.5, 7.1, 9.0],
     ['BV-3', 'flexible', 6.3, 11.8, 12.5],
@@ -80,7 +81,8 @@ describe('ISO 14694 fan limits (from memory: check against the current edition)'
 
   it('is selected by watcher.limits with the fan category; mounting defaults to machine.support', () => {
     const cfg = demoConfig({ watcher: { limits: { source: 'iso14694', category: 'BV-3' } } });
-    const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 5 }))); // DE-V overall 5.3 mm/s
+    // DE-V overall 5.3 mm/s
+    const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 5 })));
     expect(a.zone.limits.basis).toMatch(/ISO 14694 BV-3, rigid mounting/);
     expect(a.zone.channels['DE-V']!.zone).toBe('B'); // 4.5 < 5.3 <= 7.1
   });
@@ -121,7 +123,8 @@ describe('baseline-relative alarm (ISO 20816-3: baseline + 0.25 x B/C, normally 
         },
       },
     });
-    const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 1.8 }))); // DE-V overall 1.9 mm/s
+    // DE-V overall 1.9 mm/s
+    const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 1.8 })));
     expect(a.zone.channels['DE-V']!.alarm_mm_s).toBeCloseTo(1.8, 12); // 1.1 + 0.25 x 2.8
     expect(a.zone.channels['DE-V']!.over_alarm).toBe(true);
     expect(a.zone.channels['DE-V']!.zone).toBe('B'); // over the alarm while still in zone B
@@ -190,7 +193,8 @@ describe('start-up and coast-down', () => {
 
   it('or the limits are raised by the start-up multiplier ("raise"; machinery-protection practice x2 or x3, from memory)', () => {
     const cfg = demoConfig({ watcher: { below_min_speed: 'raise', startup_multiplier: 2 } });
-    const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 5, speed_rpm: 900 }))); // DE-V 5.3 mm/s
+    // DE-V 5.3 mm/s
+    const a = assessWindow(cfg, synthWindow(fanCase('static', { amp: 5, speed_rpm: 900 })));
     expect(a.zone.inhibited).toBe(false);
     expect([a.zone.limits.ab_mm_s, a.zone.limits.bc_mm_s, a.zone.limits.cd_mm_s]).toEqual([
       2.8, 5.6, 9.0,

@@ -42,7 +42,8 @@ async function readAll(
   return { info, data, blocks };
 }
 
-// 3 channels, 1000 frames: channel c, frame i holds integer ((i * 37 + c * 1000) % 2^15) - 2^14, scaled per width.
+// 3 channels, 1000 frames: channel c, frame i holds integer ((i * 37 + c * 1000) % 2^15) - 2^14,
+// scaled per width.
 const PY_PCM = (bits: number, name: string) => `
 import wave, struct
 n, nch, w = 1000, 3, ${bits / 8}

@@ -22,7 +22,10 @@ function chunks(buf: Buffer): { id: string; size: number; at: number }[] {
   return out;
 }
 
-/** Test signal: channel c, frame i. Distinct per channel and frame, exact in float32 where it matters. */
+/**
+ * Test signal: channel c, frame i. Distinct per channel and frame, exact in float32 where it
+ * matters.
+ */
 const value = (c: number, i: number) =>
   Math.fround((c + 1) * 0.5 + Math.sin(0.001 * i * (c + 1)) * 3 - (i % 7) * 1e-3);
 
@@ -91,7 +94,9 @@ describe('WAV writer (RIFF/WAVE IEEE float32)', () => {
       'import sys, json, numpy as np',
       'from scipy.io import wavfile',
       'fs, d = wavfile.read(sys.argv[1])',
-      'print(json.dumps({"fs": fs, "shape": list(d.shape), "dtype": str(d.dtype), "sum": [float(np.sum(d[:, c].astype(np.float64))) for c in range(d.shape[1])], "first": [float(x) for x in d[0]], "last": [float(x) for x in d[-1]]}))',
+      'print(json.dumps({"fs": fs, "shape": list(d.shape), "dtype": str(d.dtype), ' +
+        '"sum": [float(np.sum(d[:, c].astype(np.float64))) for c in range(d.shape[1])], ' +
+        '"first": [float(x) for x in d[0]], "last": [float(x) for x in d[-1]]}))',
     ].join('\n');
     const out = JSON.parse(
       execFileSync(process.env.TURNWISE_PYTHON ?? 'python3', ['-c', py, f], { encoding: 'utf8' }),

@@ -20,8 +20,9 @@ import { advisoryOutputs } from './release.js';
  * drops them here; after the agent is killed or crashes, systemd drops them from outside
  * (release.ts, `turnwise outputs-off`, ExecStopPost), since a GPIO line keeps its level when the
  * process that drove it dies. Raised when `minChannels` OK channels of one bearing sit at or above
- * the configured zone for `holdMs` (channels that are not OK never vote); latched until acknowledged
- * by the local button or an authorised command; the latch survives a restart. Every change is an event.
+ * the configured zone for `holdMs` (channels that are not OK never vote); latched until
+ * acknowledged by the local button or an authorised command; the latch survives a restart. Every
+ * change is an event.
  *
  *   normal --vote held--> raised --ack--> acknowledged --vote gone, held--> normal
  *                           |                                  ^
@@ -45,7 +46,9 @@ export interface AdvisorySettings {
   readonly stallMs: number;
 }
 
-/** Checks the `advisory` section against the sensors and turns it into settings. Throws UserError. */
+/**
+ * Checks the `advisory` section against the sensors and turns it into settings. Throws UserError.
+ */
 export function advisorySettings(
   cfg: AdvisoryConfig,
   sensors: readonly SensorConfig[],
@@ -163,7 +166,8 @@ export class SafeStopAdvisory {
 
   /**
    * Opens the lines (outputs start de-energised), restores a latched state saved before a restart,
-   * then energises the outputs if no advisory is latched. Rejects only if a GPIO line cannot be opened.
+   * then energises the outputs if no advisory is latched. Rejects only if a GPIO line cannot be
+   * opened.
    */
   static async start(opts: AdvisoryOptions): Promise<SafeStopAdvisory> {
     const a = new SafeStopAdvisory(opts);
@@ -191,7 +195,10 @@ export class SafeStopAdvisory {
       a.since = saved.since_ts || a.since;
       a.bearing = saved.bearing;
       a.channels = saved.channels;
-      note = `; an advisory (${saved.state}${saved.bearing ? ` at bearing ${saved.bearing}` : ''}) was active before the restart and stays latched until acknowledged`;
+      note =
+        `; an advisory ` +
+        `(${saved.state}${saved.bearing ? ` at bearing ${saved.bearing}` : ''}) ` +
+        `was active before the restart and stays latched until acknowledged`;
     }
     a.lastInputWall = a.now();
     a.applyOutputs();
@@ -248,7 +255,8 @@ export class SafeStopAdvisory {
     const msg =
       this.st === 'normal'
         ? `advisory acknowledged by ${by}; the condition had cleared, outputs energised again`
-        : `advisory acknowledged by ${by}; the condition is still present, outputs stay dropped until it clears`;
+        : `advisory acknowledged by ${by}; the condition is ` +
+          `still present, outputs stay dropped until it clears`;
     this.event('advisory_acknowledged', 'info', msg, { acknowledged_by: by });
     return { state: this.st, outputs_energised: this.energised(), changed: true };
   }
@@ -261,7 +269,8 @@ export class SafeStopAdvisory {
       this.event(
         'advisory_stalled',
         'warning',
-        `no measurement reached the advisory for ${this.s.stallMs / 1000} s; outputs dropped until measurements resume (check the acquisition source)`,
+        `no measurement reached the advisory for ${this.s.stallMs / 1000} s; ` +
+          `outputs dropped until measurements resume (check the acquisition source)`,
       );
     } else if (this.outputFault) {
       this.applyOutputs();
@@ -294,7 +303,10 @@ export class SafeStopAdvisory {
     await this.saving;
   }
 
-  /** Stops: de-energises the outputs and lets go of the lines (left driven, see DigitalOutput.close). */
+  /**
+   * Stops: de-energises the outputs and lets go of the lines (left driven, see
+   * DigitalOutput.close).
+   */
   async close(): Promise<void> {
     if (this.timer) clearInterval(this.timer);
     this.unwatch?.();
@@ -313,7 +325,10 @@ export class SafeStopAdvisory {
     this.event(
       'advisory_raised',
       'alarm',
-      `SAFE-STOP ADVISORY: ${v.channels.length} OK channel(s) at bearing ${v.bearing} (${v.channels.join(', ')}) in zone ${zone}${zone === 'C' ? ' or D' : ''} for at least ${this.s.holdMs / 1000} s; stop the fan safely following the plant's procedure`,
+      `SAFE-STOP ADVISORY: ${v.channels.length} OK channel(s) at bearing ` +
+        `${v.bearing} (${v.channels.join(', ')}) in zone ` +
+        `${zone}${zone === 'C' ? ' or D' : ''} for at least ${this.s.holdMs / 1000} s; ` +
+        `stop the fan safely following the plant's procedure`,
       {
         bearing: v.bearing ?? undefined,
         channels: [...v.channels],
@@ -327,14 +342,16 @@ export class SafeStopAdvisory {
       this.event(
         'advisory_cleared',
         'warning',
-        `the advisory condition at bearing ${this.bearing} has cleared; the advisory stays latched until acknowledged`,
+        `the advisory condition at bearing ${this.bearing} has ` +
+          `cleared; the advisory stays latched until acknowledged`,
       );
     } else {
       this.setState('normal');
       this.event(
         'advisory_cleared',
         'info',
-        `the advisory condition at bearing ${this.bearing} has cleared after acknowledgement; outputs energised again`,
+        `the advisory condition at bearing ${this.bearing} has ` +
+          `cleared after acknowledgement; outputs energised again`,
       );
     }
   }
@@ -349,7 +366,9 @@ export class SafeStopAdvisory {
       this.event(
         'advisory_coverage',
         'warning',
-        `too few OK channels to vote (need ${this.s.vote.minChannels}) at bearing(s) ${now.join(', ')}: the advisory cannot be raised for them until their sensors are OK`,
+        `too few OK channels to vote (need ${this.s.vote.minChannels}) ` +
+          `at bearing(s) ${now.join(', ')}: the advisory cannot be ` +
+          `raised for them until their sensors are OK`,
         { bearings_without_vote: [...now] },
       );
     } else {
@@ -382,7 +401,8 @@ export class SafeStopAdvisory {
           if (!this.saveFailed)
             this.log.warn(
               { code: (e as NodeJS.ErrnoException).code },
-              `cannot save the advisory state (${(e as Error).message}); a latched advisory would not survive a restart until this is fixed`,
+              `cannot save the advisory state (${(e as Error).message}); a ` +
+                `latched advisory would not survive a restart until this is fixed`,
             );
           this.saveFailed = true;
         },
@@ -407,7 +427,8 @@ export class SafeStopAdvisory {
           this.event(
             'advisory_output_fault',
             'alarm',
-            `cannot drive the advisory relay/lamp (${(e as Error).message}); the outputs may not show the advisory state: check the board and its wiring`,
+            `cannot drive the advisory relay/lamp (${(e as Error).message}); the ` +
+              `outputs may not show the advisory state: check the board and its wiring`,
           );
         }
         this.outputFault = true;

@@ -10,7 +10,10 @@ export interface AdvisoryChannelInput {
   readonly bearing: string;
   /** ISO 20816-3 zone of the channel's overall velocity in this window; null when not judged. */
   readonly zone: 'A' | 'B' | 'C' | 'D' | null;
-  /** False when the sensor or its cable is judged faulty (bias out of window, clipping, flat line ...): it cannot vote. */
+  /**
+   * False when the sensor or its cable is judged faulty (bias out of window, clipping, flat
+   * line ...): it cannot vote.
+   */
   readonly ok: boolean;
 }
 

@@ -3,8 +3,9 @@ import { mkdir, open, readFile, rename } from 'node:fs/promises';
 import { dirname } from 'node:path';
 
 /**
- * Where the advisory keeps its latched state, so that an advisory raised before a crash or a restart
- * is still latched afterwards (it is cleared only by an acknowledgement, never by a reboot).
+ * Where the advisory keeps its latched state, so that an advisory raised before a crash or a
+ * restart is still latched afterwards (it is cleared only by an acknowledgement, never by a
+ * reboot).
  */
 export interface LatchRecord {
   readonly version: 1;

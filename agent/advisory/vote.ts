@@ -16,7 +16,10 @@ export interface Vote {
   readonly bearing: string | null;
   /** Sensor ids that voted at that bearing. */
   readonly channels: readonly string[];
-  /** Bearings whose OK voting channels are fewer than minChannels: the advisory cannot be raised for them. */
+  /**
+   * Bearings whose OK voting channels are fewer than minChannels: the advisory cannot be raised for
+   * them.
+   */
   readonly bearingsWithoutVote: readonly string[];
 }
 
@@ -24,7 +27,8 @@ const RANK = { A: 0, B: 1, C: 2, D: 3 } as const;
 
 /**
  * Counts votes per bearing. A channel that is not OK never votes, whatever its zone (common
- * practice in machinery protection: a failed sensor or cable cannot cause a trip — API 670, from memory).
+ * practice in machinery protection: a failed sensor or cable cannot cause a trip — API 670, from
+ * memory).
  */
 export function countVotes(input: AdvisoryInput, s: VoteSettings): Vote {
   const perBearing = new Map<string, { ok: number; votes: string[] }>();

@@ -16,8 +16,8 @@
  * worst case (residuals in both planes in phase) loads neither bearing beyond its share:
  *     u = min( U_per,A / (|a_I| + |a_II|),  U_per,B / (|b_I| + |b_II|) ),
  * with a_p = (z_B - z_p) / L and b_p = (z_p - z_A) / L the lever-rule shares of a force in plane p.
- * For an overhung rotor even step 1 is not the standard's rule, so the equal split is kept, flagged.
- * Without geometry the equal split U_per / planes is the stated fallback.
+ * For an overhung rotor even step 1 is not the standard's rule, so the equal split is kept,
+ * flagged. Without geometry the equal split U_per / planes is the stated fallback.
  */
 import type { Issue } from './job.js';
 
@@ -49,7 +49,10 @@ export interface Allocation {
 
 const SHARE_MIN = 0.3;
 const SHARE_MAX = 0.7;
-/** Correction planes at least this share of the bearing span apart count as "not close together" (this project's reading of the standard). */
+/**
+ * Correction planes at least this share of the bearing span apart count as "not close together"
+ * (this project's reading of the standard).
+ */
 const PLANE_SPACING_MIN = 1 / 3;
 
 function equal(
@@ -87,14 +90,16 @@ export function allocatePermissible(
     return equal(
       uPer,
       planes,
-      `no rotor geometry given: U_per shared equally between the ${planes.length} planes (fallback; fits a symmetric rotor only)`,
+      `no rotor geometry given: U_per shared equally between the ` +
+        `${planes.length} planes (fallback; fits a symmetric rotor only)`,
       [],
     );
   if (planes.length !== 2)
     return equal(
       uPer,
       planes,
-      `${planes.length} correction planes: the two-plane allocation does not apply, U_per shared equally (fallback)`,
+      `${planes.length} correction planes: the two-plane ` +
+        `allocation does not apply, U_per shared equally (fallback)`,
       [],
     );
   const warnings: Issue[] = [];
@@ -116,8 +121,14 @@ export function allocatePermissible(
   if (geometry.rotor === 'centre_hung' && (com < lo || com > hi)) {
     warnings.push({
       code: 'com_outside_bearings',
-      message: `the centre of mass at ${com} mm lies outside the bearings (A at ${zA} mm, B at ${zB} mm) of a centre-hung rotor`,
-      hint: 'check the positions are measured from one datum along the shaft; if the impeller is outboard of both bearings, say the rotor is overhung (job: "rotor": "overhung"; check-grade: --rotor overhung). Until then the allocation is not trusted and the equal split is shown',
+      message:
+        `the centre of mass at ${com} mm lies outside the bearings ` +
+        `(A at ${zA} mm, B at ${zB} mm) of a centre-hung rotor`,
+      hint:
+        'check the positions are measured from one datum along the shaft; if ' +
+        'the impeller is outboard of both bearings, say the rotor is overhung ' +
+        '(job: "rotor": "overhung"; check-grade: --rotor overhung). Until ' +
+        'then the allocation is not trusted and the equal split is shown',
     });
     return equal(uPer, planes, `geometry inconsistent: ${fallbackWords}`, warnings);
   }
@@ -125,8 +136,11 @@ export function allocatePermissible(
     warnings.push({
       code: 'overhung_rules',
       message:
-        'ISO 21940-11 allocates the tolerance of an overhung rotor by rules of its own, not reproduced here',
-      hint: 'take the plane tolerances from the standard (or the fan maker); the equal split shown is only a placeholder',
+        'ISO 21940-11 allocates the tolerance of an overhung ' +
+        'rotor by rules of its own, not reproduced here',
+      hint:
+        'take the plane tolerances from the standard (or the ' +
+        'fan maker); the equal split shown is only a placeholder',
     });
     return equal(uPer, planes, `overhung rotor: ${fallbackWords}`, warnings);
   }
@@ -137,7 +151,10 @@ export function allocatePermissible(
   if (shareA !== sA) {
     warnings.push({
       code: 'share_bounded',
-      message: `the centre of mass gives bearing A ${(sA * 100).toFixed(0)} % of U_per; the standard keeps each share between ${SHARE_MIN * 100} and ${SHARE_MAX * 100} % (from memory), so ${(shareA * 100).toFixed(0)} % is used`,
+      message:
+        `the centre of mass gives bearing A ${(sA * 100).toFixed(0)} % of U_per; the ` +
+        `standard keeps each share between ${SHARE_MIN * 100} and ` +
+        `${SHARE_MAX * 100} % (from memory), so ${(shareA * 100).toFixed(0)} % is used`,
       hint: 'nothing to do; stated so the figures can be checked',
     });
   }
@@ -154,7 +171,11 @@ export function allocatePermissible(
   if (inside && spaced) {
     return {
       method: 'iso21940_11_bearing_planes',
-      basis: `ISO 21940-11, from memory: U_per,A = U_per x L_B / L, U_per,B = U_per x L_A / L (each 0.3-0.7 of U_per), taken as the tolerances of the correction planes nearer each bearing (${nearA} and ${nearB}), which lie between the bearings at least L/3 apart`,
+      basis:
+        `ISO 21940-11, from memory: U_per,A = U_per x L_B / L, U_per,B = U_per ` +
+        `x L_A / L (each 0.3-0.7 of U_per), taken as the tolerances of the ` +
+        `correction planes nearer each bearing (${nearA} and ${nearB}), which ` +
+        `lie between the bearings at least L/3 apart`,
       permissible_g_mm: uPer,
       bearing_planes_g_mm: { A: UA, B: UB },
       by_plane_g_mm: { [nearA]: UA, [nearB]: UB },
@@ -166,12 +187,21 @@ export function allocatePermissible(
   const u = Math.min(UA / (a(z1) + a(z2)), UB / (b(z1) + b(z2)));
   warnings.push({
     code: 'conservative_transfer',
-    message: `the correction planes ${inside ? 'are closer together than a third of the bearing span' : 'are not both between the bearings'}: the standard's own transfer for this case is not reproduced here, so a conservative one is used (own derivation)`,
-    hint: 'the per-plane tolerances shown are on the safe side; check against ISO 21940-11 for the exact figures',
+    message:
+      `the correction planes ` +
+      `${inside ? 'are closer together than a third of the bearing span' : 'are not both between the bearings'}: ` +
+      `the standard's own transfer for this case is not reproduced ` +
+      `here, so a conservative one is used (own derivation)`,
+    hint:
+      'the per-plane tolerances shown are on the safe side; ' +
+      'check against ISO 21940-11 for the exact figures',
   });
   return {
     method: 'iso21940_11_with_conservative_transfer',
-    basis: `ISO 21940-11 bearing-plane allocation (from memory), then a conservative statics transfer to the correction planes (own derivation: both planes' residuals assumed in phase, neither bearing over its share)`,
+    basis:
+      `ISO 21940-11 bearing-plane allocation (from memory), then a ` +
+      `conservative statics transfer to the correction planes (own derivation: ` +
+      `both planes' residuals assumed in phase, neither bearing over its share)`,
     permissible_g_mm: uPer,
     bearing_planes_g_mm: { A: UA, B: UB },
     by_plane_g_mm: { [p1]: u, [p2]: u },

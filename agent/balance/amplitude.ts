@@ -18,7 +18,9 @@ export interface OneXAmplitude {
   readonly amp_pk_mm_s: number;
   readonly amp_rms_mm_s: number;
   readonly freq_hz: number;
-  /** tach: the synchronous 1x vector's amplitude; spectrum: the spectral peak near the stated speed. */
+  /**
+   * tach: the synchronous 1x vector's amplitude; spectrum: the spectral peak near the stated speed.
+   */
   readonly source: 'tach' | 'spectrum';
   /**
    * True when no peak stood out near the stated speed although others did: the 1x is below the
@@ -27,7 +29,10 @@ export interface OneXAmplitude {
   readonly upper_bound: boolean;
 }
 
-/** Peaks below this share of the overall r.m.s. are not listed by the measuring path (agent/dsp/analyzer.ts). */
+/**
+ * Peaks below this share of the overall r.m.s. are not listed by the measuring path
+ * (agent/dsp/analyzer.ts).
+ */
 export const PEAK_THRESHOLD_SHARE = 0.02;
 
 export function oneXAmplitude(
@@ -72,11 +77,13 @@ export function oneXAmplitude(
   if (!near.length) {
     throw new UserError(
       `sensor ${sensor}`,
-      `no spectral peak within ${tolerancePct} % of ${statedRpm.toFixed(0)} r/min (${f0.toFixed(2)} Hz) in this window` +
+      `no spectral peak within ${tolerancePct} % of ` +
+        `${statedRpm.toFixed(0)} r/min (${f0.toFixed(2)} Hz) in this window` +
         (ch.nonsync_peaks.length
           ? ` (peaks at ${ch.nonsync_peaks.map((p) => `${p.freq_hz.toFixed(2)} Hz`).join(', ')})`
           : ''),
-      'check the running speed you gave (handheld tachometer or the drive display), that the fan is at steady speed, and that the sensor is healthy',
+      'check the running speed you gave (handheld tachometer or the drive ' +
+        'display), that the fan is at steady speed, and that the sensor is healthy',
     );
   }
   const best = near.reduce((a, b) => (b.amp_rms_mm_s > a.amp_rms_mm_s ? b : a));

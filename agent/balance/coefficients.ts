@@ -1,6 +1,6 @@
 /**
- * Influence coefficients kept from a balancing job, the hand-off from the balancing workbench to the
- * watcher's balance forecast. Stored as JSON under `<state_dir>/balance/coefficients.json`.
+ * Influence coefficients kept from a balancing job, the hand-off from the balancing workbench to
+ * the watcher's balance forecast. Stored as JSON under `<state_dir>/balance/coefficients.json`.
  *
  * A coefficient says how the 1x velocity vector at a sensor moves per gram at a plane:
  * H = (V_trial - V_as_found) / T, as amplitude (mm/s peak per gram) and phase lag (degrees).

@@ -3,7 +3,8 @@
  *
  * READINGS. A reading is the 1x vector of one sensor: amplitude (in the job's one unit) and phase,
  * always a LAG in degrees: the rotation from the tach edge (reference mark passing the pickup) to
- * the positive peak of the 1x signal. Internally a reading is the complex number amp * e^(+i*phase).
+ * the positive peak of the 1x signal. Internally a reading is the complex number
+ * amp * e^(+i*phase).
  *
  * WEIGHTS. A weight is a mass (g) at an angle (deg) on the rotor, measured from the reference mark
  * either AGAINST rotation (`against_rotation`, the default) or WITH rotation (`with_rotation`).
@@ -49,5 +50,8 @@ export function fromInternalDeg(angleDeg: number, convention: AngleConvention): 
 /** One line stating the convention, printed with every table and carried in every JSON result. */
 export function conventionText(convention: AngleConvention): string {
   const dir = convention === 'against_rotation' ? 'AGAINST' : 'WITH';
-  return `weight angles in degrees from the reference mark, measured ${dir} rotation; phase is the lag in degrees from the tach edge to the 1x peak`;
+  return (
+    `weight angles in degrees from the reference mark, measured ${dir} rotation; ` +
+    `phase is the lag in degrees from the tach edge to the 1x peak`
+  );
 }

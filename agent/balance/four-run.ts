@@ -5,14 +5,14 @@
  *
  * GEOMETRY. Let V0 be the as-found 1x vector (amplitude A0, phase unknown) and H the 1x vector a
  * 1 g weight on the reference mark adds. With the trial mass m at internal angle theta_k (see
- * conventions.ts) the reading is A_k = |V0 + H m e^(i theta_k)|. Write V0 / H = (A0 / |H|) e^(i alpha)
- * and t = |H| m (the trial effect, in amplitude units). Then, because |z| = |conj z|,
+ * conventions.ts) the reading is A_k = |V0 + H m e^(i theta_k)|. Write V0 / H = (A0 / |H|) e^(i
+ * alpha) and t = |H| m (the trial effect, in amplitude units). Then, because |z| = |conj z|,
  *
  *   A_k = | A0 e^(i theta_k) - P |   with   P = -t e^(i alpha)
  *
- * which is the classic construction: draw the as-found circle of radius A0, mark the trial positions
- * c_k = A0 e^(i theta_k) on it, draw a circle of radius A_k round each; they meet at P. The correction
- * that cancels V0 is W = -V0 / H = m (A0 / t) e^(i (alpha + 180)), i.e.
+ * which is the classic construction: draw the as-found circle of radius A0, mark the trial
+ * positions c_k = A0 e^(i theta_k) on it, draw a circle of radius A_k round each; they meet at P.
+ * The correction that cancels V0 is W = -V0 / H = m (A0 / t) e^(i (alpha + 180)), i.e.
  *
  *   mass = m * A0 / |P|,   angle = arg P (the angle of the point where the circles meet).
  *
@@ -60,7 +60,9 @@ export interface FourRunInput {
 }
 
 export interface FourRunOptions {
-  /** Default scatter of a repeated 1x amplitude reading, % of as found (this project's choice: 5). */
+  /**
+   * Default scatter of a repeated 1x amplitude reading, % of as found (this project's choice: 5).
+   */
   readonly ampScatterPct: number;
   /** Trial effect below this share of as found gets a warning (common practice: 30 %). */
   readonly trialMinPct: number;
@@ -75,8 +77,8 @@ export interface FourRunOptions {
 /**
  * Defaults: 5 % is about the scatter of repeated 1x readings on a fan in service (as in solve.ts);
  * 30 % is the usual trial-effect rule (common practice); the others are this project's choices: a
- * weight whose angle is uncertain by more than 30 degrees (1 sigma) can miss by 60 and leave the fan
- * worse, so it is not given; 10 % of as found is twice the reading scatter.
+ * weight whose angle is uncertain by more than 30 degrees (1 sigma) can miss by 60 and leave the
+ * fan worse, so it is not given; 10 % of as found is twice the reading scatter.
  */
 export const DEFAULT_FOUR_RUN_OPTIONS: FourRunOptions = {
   ampScatterPct: 5,
@@ -109,26 +111,37 @@ export interface FourRunResult {
     readonly unbalance_g_mm?: number;
     readonly force_n?: number;
   } | null;
-  /** One standard deviation of the correction at the reading scatter used (assumed or, if larger, seen in the fit). */
+  /**
+   * One standard deviation of the correction at the reading scatter used (assumed or, if larger,
+   * seen in the fit).
+   */
   readonly correction_uncertainty: {
     readonly mass_g: number;
     readonly angle_deg: number;
     readonly scatter_amp: number;
   } | null;
-  /** The 1x vector the trial weight alone adds: |P|, per gram, and as a share of the as-found amplitude. */
+  /**
+   * The 1x vector the trial weight alone adds: |P|, per gram, and as a share of the as-found
+   * amplitude.
+   */
   readonly trial_effect: {
     readonly amp: number;
     readonly amp_per_g: number;
     readonly pct_of_as_found: number;
   } | null;
-  /** Where the circles meet (least squares), in the plot's amplitude units; its angle is the correction angle. */
+  /**
+   * Where the circles meet (least squares), in the plot's amplitude units; its angle is the
+   * correction angle.
+   */
   readonly intersection: {
     readonly x: number;
     readonly y: number;
     readonly radius: number;
     readonly angle_deg: number;
   } | null;
-  /** How far the circles miss one common point: r.m.s. of (fitted - measured) over the trial runs. */
+  /**
+   * How far the circles miss one common point: r.m.s. of (fitted - measured) over the trial runs.
+   */
   readonly fit_residual: {
     readonly rms_amp: number;
     readonly pct_of_as_found: number;
@@ -285,8 +298,15 @@ export function solveFourRun(
   if (spread <= 2 * sigma) {
     problems.push({
       code: 'trial_no_effect',
-      message: `the trial amplitudes (${amps.map((x) => fmt(x, 2)).join(', ')} ${unit}) and the as-found ${fmt(a0, 2)} differ by at most ${fmt(spread, 2)}, within twice the reading scatter (${fmt(scatterPct, 0)} % of as found = ${fmt(sigma, 2)}): they do not fix where the weight goes`,
-      hint: 'fit a larger trial weight (`turnwise balance trial-weight` gives the usual size) and repeat the three trial runs; check the weight really was on the rotor and the fan ran at the same speed',
+      message:
+        `the trial amplitudes (${amps.map((x) => fmt(x, 2)).join(', ')} ${unit}) ` +
+        `and the as-found ${fmt(a0, 2)} differ by at most ${fmt(spread, 2)}, within ` +
+        `twice the reading scatter (${fmt(scatterPct, 0)} % of as ` +
+        `found = ${fmt(sigma, 2)}): they do not fix where the weight goes`,
+      hint:
+        'fit a larger trial weight (`turnwise balance trial-weight` gives ' +
+        'the usual size) and repeat the three trial runs; check the ' +
+        'weight really was on the rotor and the fan ran at the same speed',
     });
     return refused();
   }
@@ -328,8 +348,13 @@ export function solveFourRun(
     const ang = (p: Pt) => fromInternalDeg(argDeg({ re: p.x, im: p.y }), conv);
     problems.push({
       code: 'ambiguous',
-      message: `two points fit the circles about equally well (correction angles ${fmt(ang(P))} and ${fmt(ang(rival.p))} deg): the trial positions do not tell them apart`,
-      hint: 'put the trial weight at positions spread round the rotor (0, 120, 240 deg) and repeat; a fourth trial position settles it',
+      message:
+        `two points fit the circles about equally well (correction ` +
+        `angles ${fmt(ang(P))} and ${fmt(ang(rival.p))} deg): the ` +
+        `trial positions do not tell them apart`,
+      hint:
+        'put the trial weight at positions spread round the rotor (0, ' +
+        '120, 240 deg) and repeat; a fourth trial position settles it',
     });
   }
 
@@ -361,8 +386,8 @@ export function solveFourRun(
     const hx = -P.y / (radius * radius);
     const hy = P.x / (radius * radius);
     const varA = hx * hx * cxx + 2 * hx * hy * cxy + hy * hy * cyy;
-    // The as-found reading scatters too: it moves every trial point radially. Its effect is found by
-    // solving again with the as-found amplitude one scatter higher (a numerical derivative).
+    // The as-found reading scatters too: it moves every trial point radially. Its effect is found
+    // by solving again with the as-found amplitude one scatter higher (a numerical derivative).
     const a1 = a0 + sigma;
     const c1 = c.map((ck) => ({ x: (ck.x * a1) / a0, y: (ck.y * a1) / a0 }));
     const P1 = refine(c1, amps, P, scale);
@@ -386,29 +411,46 @@ export function solveFourRun(
     problems.push({
       code: 'not_determined',
       message:
-        `the readings do not fix the correction: the trial effect is ${fmt(radius, 2)} ${unit} (${fmt(effectPct, 0)} % of as found) and the correction angle is uncertain by ` +
-        `${Number.isFinite(angleSd) ? `${fmt(angleSd, 0)} deg` : 'an unbounded amount'} (1 sigma at a reading scatter of ${fmt(sEff, 2)} ${unit}; limit ${opt.angleLimitDeg} deg)`,
-      hint: 'fit a larger trial weight and repeat the trial runs at the same speed and load; spread the positions round the rotor (0, 120, 240 deg)',
+        `the readings do not fix the correction: the trial effect ` +
+        `is ${fmt(radius, 2)} ${unit} (${fmt(effectPct, 0)} % of ` +
+        `as found) and the correction angle is uncertain by ` +
+        `${Number.isFinite(angleSd) ? `${fmt(angleSd, 0)} deg` : 'an unbounded amount'} (1 ` +
+        `sigma at a reading scatter of ${fmt(sEff, 2)} ${unit}; limit ` +
+        `${opt.angleLimitDeg} deg)`,
+      hint:
+        'fit a larger trial weight and repeat the trial runs at the same speed ' +
+        'and load; spread the positions round the rotor (0, 120, 240 deg)',
     });
   } else if (angleSd > opt.angleWarnDeg) {
     warnings.push({
       code: 'angle_uncertain',
-      message: `the correction angle is uncertain by about ${fmt(angleSd, 0)} deg (1 sigma) at a reading scatter of ${fmt(sEff, 2)} ${unit}`,
+      message:
+        `the correction angle is uncertain by about ${fmt(angleSd, 0)} deg ` +
+        `(1 sigma) at a reading scatter of ${fmt(sEff, 2)} ${unit}`,
       hint: 'fit it, then do a check run; a larger trial weight gives a firmer answer',
     });
   }
   if (misfitPct > opt.misfitWarnPct) {
     warnings.push({
       code: 'circles_disagree',
-      message: `the circles miss one common point by ${fmt(rmsMisfit, 2)} ${unit} r.m.s. (${fmt(misfitPct, 0)} % of as found): the readings disagree with one trial effect`,
-      hint: 'repeat the as-found run and any doubtful trial run at the same speed and load; check the trial radius and positions, that the sensor did not move, and that the 1x really is unbalance (steady, not resonance or looseness)',
+      message:
+        `the circles miss one common point by ${fmt(rmsMisfit, 2)} ${unit} r.m.s. ` +
+        `(${fmt(misfitPct, 0)} % of as found): the readings disagree with one trial effect`,
+      hint:
+        'repeat the as-found run and any doubtful trial run at the same speed and ' +
+        'load; check the trial radius and positions, that the sensor did not move, ' +
+        'and that the 1x really is unbalance (steady, not resonance or looseness)',
     });
   }
   if (effectPct < opt.trialMinPct) {
     warnings.push({
       code: 'trial_small_effect',
-      message: `the trial weight changed the vibration by ${fmt(effectPct, 0)} % of the as-found amplitude (less than the usual ${opt.trialMinPct} %)`,
-      hint: 'the correction is sensitive to reading scatter: a larger trial weight gives a more reliable result (common practice)',
+      message:
+        `the trial weight changed the vibration by ${fmt(effectPct, 0)} % of ` +
+        `the as-found amplitude (less than the usual ${opt.trialMinPct} %)`,
+      hint:
+        'the correction is sensitive to reading scatter: a larger ' +
+        'trial weight gives a more reliable result (common practice)',
     });
   }
   if (problems.length) return refused();

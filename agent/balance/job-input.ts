@@ -44,7 +44,8 @@ export const rotorGeometrySchema = z
   })
   .strict()
   .describe(
-    'Axial positions along the shaft from one datum, mm: the two bearings, the centre of mass and every correction plane.',
+    'Axial positions along the shaft from one datum, mm: the two ' +
+      'bearings, the centre of mass and every correction plane.',
   );
 
 export const balanceJobSchema = z
@@ -111,7 +112,8 @@ export const balanceJobSchema = z
         code: 'custom',
         path: ['runs', 0, 'weights'],
         message:
-          'the first run is the rotor as found, so it lists no weights (later runs list weights relative to it)',
+          'the first run is the rotor as found, so it lists ' +
+          'no weights (later runs list weights relative to it)',
       });
     }
     job.runs.forEach((run, j) => {
@@ -129,7 +131,9 @@ export const balanceJobSchema = z
           ctx.addIssue({
             code: 'custom',
             path: ['runs', j, 'readings'],
-            message: `sensor "${s}" is read in the as-found run but missing here; every run needs the same sensors`,
+            message:
+              `sensor "${s}" is read in the as-found run but ` +
+              `missing here; every run needs the same sensors`,
           });
       }
       for (const s of Object.keys(run.readings)) {
@@ -137,7 +141,9 @@ export const balanceJobSchema = z
           ctx.addIssue({
             code: 'custom',
             path: ['runs', j, 'readings', s],
-            message: `sensor "${s}" is not read in the as-found run; every run needs the same sensors`,
+            message:
+              `sensor "${s}" is not read in the as-found ` +
+              `run; every run needs the same sensors`,
           });
       }
     });
@@ -219,7 +225,9 @@ export const multiSpeedSchema = z
         ctx.addIssue({
           code: 'custom',
           path: ['speeds', i, 'runs', 0, 'readings'],
-          message: `sensors ${here || 'none'} differ from speeds[0]'s ${sensors}; every speed needs the same sensors`,
+          message:
+            `sensors ${here || 'none'} differ from speeds[0]'s ` +
+            `${sensors}; every speed needs the same sensors`,
         });
     });
   });
@@ -251,14 +259,18 @@ export const splitRequestSchema = z
         code: 'custom',
         path: [r.radius_mm === undefined ? 'radius_mm' : 'positions'],
         message:
-          "give both radius_mm and positions.radius_mm (to move the weight to the positions' radius), or neither",
+          'give both radius_mm and positions.radius_mm (to move ' +
+          "the weight to the positions' radius), or neither",
       });
     }
   });
 
 export type SplitRequest = z.infer<typeof splitRequestSchema>;
 
-/** A split between holes at given angles (any spacing): two holes, or a list to pick the nearest two from. */
+/**
+ * A split between holes at given angles (any spacing): two holes, or a list to pick the nearest two
+ * from.
+ */
 export const splitHolesRequestSchema = z
   .object({
     angle_convention: convention.default('against_rotation'),
@@ -279,7 +291,8 @@ export const splitHolesRequestSchema = z
         code: 'custom',
         path: [r.radius_mm === undefined ? 'radius_mm' : 'holes'],
         message:
-          "give both radius_mm and holes.radius_mm (to move the weight to the holes' radius), or neither",
+          'give both radius_mm and holes.radius_mm (to move ' +
+          "the weight to the holes' radius), or neither",
       });
     }
   });
@@ -333,7 +346,8 @@ export const fourRunSchema = z
       )
       .min(
         3,
-        'needs the trial weight at three positions (with two, two mirror-image answers fit and the method cannot choose)',
+        'needs the trial weight at three positions (with two, two ' +
+          'mirror-image answers fit and the method cannot choose)',
       )
       .max(12, 'at most 12 trial positions'),
     notes: z.string().max(2000).optional(),
@@ -350,7 +364,10 @@ export const fourRunSchema = z
       ctx.addIssue({
         code: 'custom',
         path: ['trials'],
-        message: `the trial positions (${angles.map((a) => a.toFixed(0)).join(', ')} deg) give only ${distinct.length} distinct position(s) at least 10 deg apart; the method needs three, best spread round the rotor (0, 120, 240 deg)`,
+        message:
+          `the trial positions (${angles.map((a) => a.toFixed(0)).join(', ')} deg) ` +
+          `give only ${distinct.length} distinct position(s) at least 10 deg apart; ` +
+          `the method needs three, best spread round the rotor (0, 120, 240 deg)`,
       });
     }
   });
@@ -416,7 +433,10 @@ function formatIssues(file: string, issues: readonly z.core.$ZodIssue[], raw: un
   return issues.map((iss) => {
     const where = formatPath(iss.path);
     if (iss.code === 'unrecognized_keys')
-      return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against \`turnwise help balance\``;
+      return (
+        `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; ` +
+        `check the spelling against \`turnwise help balance\``
+      );
     const found = valueAt(raw, iss.path);
     // Cross-field messages already quote what they found; a refused number is worth repeating.
     if (iss.code === 'custom' && typeof found !== 'number')

@@ -113,7 +113,10 @@ export interface TrialCheck {
 export interface StaticCouple {
   /** The same weight in both planes at the same angle. */
   readonly static_pair: { readonly mass_g_each: number; readonly angle_deg: number };
-  /** Equal weights 180 degrees apart: at angle_deg in the first plane, angle_deg + 180 in the second. */
+  /**
+   * Equal weights 180 degrees apart: at angle_deg in the first plane, angle_deg + 180 in the
+   * second.
+   */
   readonly couple_pair: {
     readonly mass_g_each: number;
     readonly angle_deg_first_plane: number;
@@ -126,11 +129,17 @@ export interface UnbalanceReport {
   readonly as_found_g_mm: Readonly<Record<string, number>>;
   /** Same for the state of the last run (the residual when the last run is a check run), g mm. */
   readonly last_run_g_mm: Readonly<Record<string, number>>;
-  /** ISO 21940-11 permissible residual unbalance of the whole rotor, g mm (when mass, grade, speed known). */
+  /**
+   * ISO 21940-11 permissible residual unbalance of the whole rotor, g mm (when mass, grade, speed
+   * known).
+   */
   readonly permissible_g_mm: number | null;
   /** permissible_g_mm shared equally between the planes (the fallback; kept for comparison). */
   readonly permissible_per_plane_g_mm: number | null;
-  /** permissible_g_mm allocated to each plane (ISO 21940-11 from the geometry, else the equal split). */
+  /**
+   * permissible_g_mm allocated to each plane (ISO 21940-11 from the geometry, else the equal
+   * split).
+   */
   readonly permissible_by_plane_g_mm: Readonly<Record<string, number>> | null;
   /** How the allocation was made, and its warnings. */
   readonly allocation: Allocation | null;

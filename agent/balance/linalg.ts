@@ -152,8 +152,8 @@ export function conditionNumber(a: CMatrix): number {
 }
 
 /**
- * Condition number after scaling every column to unit length. Scaling a column only changes the unit
- * of one unknown (grams in one plane), so this is the measure of how well the columns are told
+ * Condition number after scaling every column to unit length. Scaling a column only changes the
+ * unit of one unknown (grams in one plane), so this is the measure of how well the columns are told
  * apart; a plane that is merely less sensitive than another does not count as ill-conditioning.
  * Infinity when a column is zero.
  */

@@ -22,7 +22,10 @@ import { centrifugalForceN } from './weights.js';
 
 export interface SpeedGroup {
   readonly speed_rpm: number;
-  /** Weight of this speed in the least squares (default 1): larger for the speeds the fan runs at most. */
+  /**
+   * Weight of this speed in the least squares (default 1): larger for the speeds the fan runs at
+   * most.
+   */
   readonly weight?: number;
   readonly label?: string;
   /** runs[0] as found at this speed, then runs with weights, as in a `balance solve` job. */
@@ -36,12 +39,18 @@ export interface MultiSpeedJob {
   readonly radius_mm?: Readonly<Record<string, number>>;
   readonly max_mass_g?: Readonly<Record<string, number>>;
   readonly speeds: readonly SpeedGroup[];
-  /** A compromise leaving any speed above this share of its as-found vibration is refused (default 0.5). */
+  /**
+   * A compromise leaving any speed above this share of its as-found vibration is refused (default
+   * 0.5).
+   */
   readonly max_residual_share?: number;
 }
 
 export interface MultiSpeedOptions {
-  /** Speeds closer than this, % of the lower one, are one speed measured twice (this project's choice: 2, as solve.ts). */
+  /**
+   * Speeds closer than this, % of the lower one, are one speed measured twice (this project's
+   * choice: 2, as solve.ts).
+   */
   readonly speedDistinctPct: number;
   readonly maxResidualShare: number;
   readonly conditionLimit: number;
@@ -62,7 +71,9 @@ export interface SpeedOutcome {
   readonly as_found: readonly SensorVector[];
   /** 1x vectors expected at this speed with the common correction (empty when none is given). */
   readonly predicted_residuals: readonly SensorVector[];
-  /** r.m.s. over the sensors of predicted / as found (null when no compromise could be computed). */
+  /**
+   * r.m.s. over the sensors of predicted / as found (null when no compromise could be computed).
+   */
   readonly residual_share: number | null;
   /** This speed's own correction when it can be solved alone (for comparison), else empty. */
   readonly own_corrections: readonly PlaneWeight[];
@@ -77,7 +88,10 @@ export interface MultiSpeedResult {
   readonly amp_unit: string | null;
   readonly planes: readonly string[];
   readonly sensors: readonly string[];
-  /** The one correction for all speeds (relative to as found, trial weights removed); force at the highest speed. */
+  /**
+   * The one correction for all speeds (relative to as found, trial weights removed); force at the
+   * highest speed.
+   */
   readonly corrections: readonly PlaneWeight[];
   readonly speeds: readonly SpeedOutcome[];
   readonly condition_number: number | null;
@@ -115,7 +129,8 @@ export function solveMultiSpeed(
   const warnings: Issue[] = [];
   const problems: Issue[] = [];
   const name = (i: number) =>
-    `speeds[${i}] (${fmt(job.speeds[i]!.speed_rpm)} r/min${job.speeds[i]!.label ? `, "${job.speeds[i]!.label}"` : ''})`;
+    `speeds[${i}] (${fmt(job.speeds[i]!.speed_rpm)} ` +
+    `r/min${job.speeds[i]!.label ? `, "${job.speeds[i]!.label}"` : ''})`;
 
   // Distinct speeds.
   const order = job.speeds.map((g, i) => ({ i, v: g.speed_rpm })).sort((a, b) => a.v - b.v);
@@ -125,8 +140,13 @@ export function solveMultiSpeed(
     if (((hi.v - lo.v) / lo.v) * 100 < opt.speedDistinctPct) {
       problems.push({
         code: 'speeds_not_distinct',
-        message: `${name(lo.i)} and ${name(hi.i)} are less than ${opt.speedDistinctPct} % apart: they are one speed measured twice, which adds nothing across the range and doubles its say in the least squares`,
-        hint: 'put their runs into one speed group (more runs at one speed are fine), or measure at a speed clearly apart from it',
+        message:
+          `${name(lo.i)} and ${name(hi.i)} are less than ${opt.speedDistinctPct} % ` +
+          `apart: they are one speed measured twice, which adds nothing across the ` +
+          `range and doubles its say in the least squares`,
+        hint:
+          'put their runs into one speed group (more runs at one speed ' +
+          'are fine), or measure at a speed clearly apart from it',
       });
     }
   }
@@ -219,8 +239,13 @@ export function solveMultiSpeed(
   if (!(cond < opt.conditionLimit)) {
     problems.push({
       code: 'singular',
-      message: `${N * S} readings over all speeds (${S} sensor(s) x ${N} speeds) do not tell the ${P} planes apart (condition number ${Number.isFinite(cond) ? cond.toExponential(1) : 'infinite'})`,
-      hint: 'add sensors at the other bearing, or speeds where the response differs; or solve for fewer planes',
+      message:
+        `${N * S} readings over all speeds (${S} sensor(s) x ${N} speeds) ` +
+        `do not tell the ${P} planes apart (condition number ` +
+        `${Number.isFinite(cond) ? cond.toExponential(1) : 'infinite'})`,
+      hint:
+        'add sensors at the other bearing, or speeds where ' +
+        'the response differs; or solve for fewer planes',
     });
     return {
       ...base,
@@ -235,7 +260,9 @@ export function solveMultiSpeed(
   if (cond > opt.conditionWarn) {
     warnings.push({
       code: 'ill_conditioned',
-      message: `the stacked influence matrix is badly conditioned (condition number ${fmt(cond, 1)}): reading errors are amplified in the corrections`,
+      message:
+        `the stacked influence matrix is badly conditioned (condition number ` +
+        `${fmt(cond, 1)}): reading errors are amplified in the corrections`,
       hint: 'sensors at both bearings or more distinct speeds help',
     });
   }
@@ -267,8 +294,11 @@ export function solveMultiSpeed(
           .map((o, i) => `${fmt(o.speed_rpm)} r/min: ${fmt((o.residual_share ?? 0) * 100)} %`)
           .join(', '),
       hint:
-        'the response changes shape across the range (a resonance between the speeds, or a rotor that bends): balance for the speed the fan runs at most (give it a larger "weight"), add a correction plane, ' +
-        "or look at the speeds' own corrections below; raise max_residual_share only if that compromise is acceptable to the plant",
+        'the response changes shape across the range (a resonance between ' +
+        'the speeds, or a rotor that bends): balance for the speed the fan ' +
+        'runs at most (give it a larger "weight"), add a correction plane, ' +
+        "or look at the speeds' own corrections below; raise " +
+        'max_residual_share only if that compromise is acceptable to the plant',
     });
     return {
       ...base,
@@ -298,8 +328,12 @@ export function solveMultiSpeed(
   for (const w of corrections.filter((c) => c.over_max)) {
     warnings.push({
       code: 'over_max_mass',
-      message: `the correction for ${w.plane} is ${fmt(w.mass_g, 1)} g, more than the ${fmt(job.max_mass_g![w.plane]!, 1)} g this plane takes`,
-      hint: 'spread it over several positions or fit it at a larger radius (`turnwise balance split`)',
+      message:
+        `the correction for ${w.plane} is ${fmt(w.mass_g, 1)} g, more ` +
+        `than the ${fmt(job.max_mass_g![w.plane]!, 1)} g this plane takes`,
+      hint:
+        'spread it over several positions or fit it ' +
+        'at a larger radius (`turnwise balance split`)',
     });
   }
   return {

@@ -34,12 +34,15 @@ export function exportCoefficients(
   const unit = velocityUnit(job.amp_unit);
   if (!unit)
     return {
-      reason: `readings are in "${job.amp_unit ?? 'an unstated unit'}"; the watcher needs mm/s (set amp_unit to "mm/s pk" or "mm/s rms")`,
+      reason:
+        `readings are in "${job.amp_unit ?? 'an unstated unit'}"; the ` +
+        `watcher needs mm/s (set amp_unit to "mm/s pk" or "mm/s rms")`,
     };
   if (result.speed_rpm === null)
     return {
       reason:
-        'no run carries speed_rpm, and coefficients are only valid at the speed they were measured at',
+        'no run carries speed_rpm, and coefficients are ' +
+        'only valid at the speed they were measured at',
     };
   if (!meta.asset)
     return { reason: 'the asset is unknown (give --config or --asset, or "asset" in the job)' };
@@ -83,7 +86,8 @@ export function coefficientsForJob(
   if (!unit) {
     throw new UserError(
       source,
-      `the stored coefficients are in mm/s peak per gram but the job's readings are in "${job.amp_unit}"`,
+      `the stored coefficients are in mm/s peak per gram ` +
+        `but the job's readings are in "${job.amp_unit}"`,
       'record the trim run in mm/s (amp_unit "mm/s pk" or "mm/s rms"), or do trial runs instead',
     );
   }
@@ -94,7 +98,8 @@ export function coefficientsForJob(
     if (!row)
       throw new UserError(
         source,
-        `no stored coefficients for sensor "${sensor}" (stored: ${Object.keys(stored.coefficients).join(', ')})`,
+        `no stored coefficients for sensor "${sensor}" (stored: ` +
+          `${Object.keys(stored.coefficients).join(', ')})`,
         'read the trim run on the sensors of the job the coefficients came from',
       );
     for (const plane of job.planes) {
@@ -102,7 +107,8 @@ export function coefficientsForJob(
       if (!c)
         throw new UserError(
           source,
-          `no stored coefficient for plane "${plane}" at sensor "${sensor}" (stored planes: ${stored.planes.join(', ')})`,
+          `no stored coefficient for plane "${plane}" at sensor ` +
+            `"${sensor}" (stored planes: ${stored.planes.join(', ')})`,
           'use the plane names of the job the coefficients came from',
         );
       (out[sensor] ??= {})[plane] = { amp_per_g: c.amp_mm_s_pk_per_g * k, phase_deg: c.phase_deg };

@@ -8,7 +8,9 @@ import type { MultiSpeedResult } from './multi-speed.js';
 import type { BalanceResult, Issue, PlaneWeight } from './job.js';
 import { centrifugalForceN, type SplitPart } from './weights.js';
 
-/** Columns padded to their widest cell; numbers right-aligned (cells starting with a digit or -). */
+/**
+ * Columns padded to their widest cell; numbers right-aligned (cells starting with a digit or -).
+ */
 export function table(
   header: readonly string[],
   rows: readonly (readonly string[])[],
@@ -40,13 +42,24 @@ export function balancingCautions(): string[] {
   const example = centrifugalForceN(50, 600, 1480);
   return [
     'Lock out and tag out the fan before anyone touches the rotor, and prove it cannot turn.',
-    `Every weight pulls outward with F = m r omega^2 at speed (50 g at 600 mm at 1480 r/min: about ${fixed(example, 0)} N). Weld or bolt weights only as the fan maker allows; check trial weights are secure before every start.`,
-    'Nobody stands in line with the impeller (in its plane of rotation) at start-up or during the runs.',
-    "Watch the vibration during every trial and check run, and stop the fan at once if it climbs into zone D or to the plant's trip level: a trial weight in the wrong place can double the vibration.",
-    'A draft fan can turn from the draft of other fans on the same duct or stack: block the rotor against turning and close and isolate the dampers before anyone reaches in.',
-    "Reaching the impeller may be confined-space entry, with hot gas, dust or too little oxygen in the casing: it needs the plant's permit (gas test, standby, rescue plan) before anyone goes in.",
-    'Fitting sensors or the reference mark is work on the machine: do it under the same lock-out as fitting weights.',
-    "These figures support, and do not replace, a competent balancing technician: follow the fan maker's instructions, the plant's procedures, local codes and licensed practice.",
+    `Every weight pulls outward with F = m r omega^2 at speed (50 g at 600 mm ` +
+      `at 1480 r/min: about ${fixed(example, 0)} N). Weld or bolt weights only as ` +
+      `the fan maker allows; check trial weights are secure before every start.`,
+    'Nobody stands in line with the impeller (in its ' +
+      'plane of rotation) at start-up or during the runs.',
+    'Watch the vibration during every trial and check run, and stop ' +
+      "the fan at once if it climbs into zone D or to the plant's trip " +
+      'level: a trial weight in the wrong place can double the vibration.',
+    'A draft fan can turn from the draft of other fans on the same duct or stack: block ' +
+      'the rotor against turning and close and isolate the dampers before anyone reaches in.',
+    'Reaching the impeller may be confined-space entry, with hot gas, ' +
+      "dust or too little oxygen in the casing: it needs the plant's " +
+      'permit (gas test, standby, rescue plan) before anyone goes in.',
+    'Fitting sensors or the reference mark is work on the ' +
+      'machine: do it under the same lock-out as fitting weights.',
+    'These figures support, and do not replace, a competent ' +
+      "balancing technician: follow the fan maker's instructions, " +
+      "the plant's procedures, local codes and licensed practice.",
   ];
 }
 
@@ -86,7 +99,8 @@ export function formatSolveReport(r: BalanceResult): string {
   const unit = r.amp_unit ?? 'job unit';
   const out: string[] = [];
   out.push(
-    `Balancing job: ${r.planes.length} plane(s) (${r.planes.join(', ')}), ${r.sensors.length} sensor(s) (${r.sensors.join(', ')})` +
+    `Balancing job: ${r.planes.length} plane(s) (${r.planes.join(', ')}), ` +
+      `${r.sensors.length} sensor(s) (${r.sensors.join(', ')})` +
       (r.speed_rpm !== null ? `, ${fixed(r.speed_rpm, 0)} r/min` : '') +
       (r.method === 'given_coefficients' ? ', trim run from given influence coefficients' : ''),
   );
@@ -103,8 +117,12 @@ export function formatSolveReport(r: BalanceResult): string {
     if (r.static_couple) {
       const sc = r.static_couple;
       out.push(
-        `\nThe same correction as static and couple pairs: static ${fixed(sc.static_pair.mass_g_each, 1)} g in each plane at ${fixed(sc.static_pair.angle_deg, 1)} deg; ` +
-          `couple ${fixed(sc.couple_pair.mass_g_each, 1)} g in each plane, ${r.planes[0]} at ${fixed(sc.couple_pair.angle_deg_first_plane, 1)} deg and ${r.planes[1]} at ${fixed(sc.couple_pair.angle_deg_second_plane, 1)} deg.`,
+        `\nThe same correction as static and couple pairs: static ` +
+          `${fixed(sc.static_pair.mass_g_each, 1)} g in each plane ` +
+          `at ${fixed(sc.static_pair.angle_deg, 1)} deg; ` +
+          `couple ${fixed(sc.couple_pair.mass_g_each, 1)} g in each plane, ` +
+          `${r.planes[0]} at ${fixed(sc.couple_pair.angle_deg_first_plane, 1)} deg and ` +
+          `${r.planes[1]} at ${fixed(sc.couple_pair.angle_deg_second_plane, 1)} deg.`,
       );
     }
     out.push('');
@@ -146,7 +164,8 @@ export function formatSolveReport(r: BalanceResult): string {
   );
   if (r.trial_checks.length) {
     out.push(
-      '\nRuns with weights against as found (#n = runs[n]; enough: 30 % in amplitude or 30 deg in phase, common practice):',
+      '\nRuns with weights against as found (#n = runs[n]; enough: ' +
+        '30 % in amplitude or 30 deg in phase, common practice):',
     );
     out.push(
       table(
@@ -169,7 +188,8 @@ export function formatSolveReport(r: BalanceResult): string {
     conds.push(`trial-weight matrix ${fixed(r.trial_condition_number, 2)}`);
   if (conds.length)
     out.push(
-      `\nCondition numbers: ${conds.join(', ')} (1 is ideal; above 10 reading errors are amplified).`,
+      `\nCondition numbers: ${conds.join(', ')} (1 is ` +
+        `ideal; above 10 reading errors are amplified).`,
     );
   if (r.unbalance) {
     const u = r.unbalance;
@@ -183,7 +203,8 @@ export function formatSolveReport(r: BalanceResult): string {
     if (u.permissible_g_mm !== null && u.allocation) {
       const a = u.allocation;
       out.push(
-        `  ISO 21940-11 permissible residual unbalance ${fixed(u.permissible_g_mm, 0)} g mm for the rotor; per plane ` +
+        `  ISO 21940-11 permissible residual unbalance ` +
+          `${fixed(u.permissible_g_mm, 0)} g mm for the rotor; per plane ` +
           r.planes.map((p) => `${p} ${fixed(a.by_plane_g_mm[p]!, 0)}`).join(', ') +
           ` g mm: last run ${u.last_run_within_grade ? 'WITHIN' : 'NOT within'} the grade.`,
       );
@@ -205,7 +226,8 @@ export function formatSplitReport(
     positions_radius_mm: number | null;
     weights: readonly SplitPart[];
   },
-  numbering = 'Positions are numbered from 0 at first_deg, counting in the direction the angles are measured.',
+  numbering = 'Positions are numbered from 0 at first_deg, ' +
+    'counting in the direction the angles are measured.',
 ): string {
   const out: string[] = [];
   out.push(conventionLine(s.angle_convention));
@@ -220,7 +242,9 @@ export function formatSplitReport(
     s.radius_mm !== s.positions_radius_mm
   ) {
     out.push(
-      `Moved to the positions' radius ${fixed(s.positions_radius_mm, 1)} mm: ${fixed(s.moved_mass_g, 2)} g (mass x ${fixed(s.radius_mm, 1)} / ${fixed(s.positions_radius_mm, 1)}).`,
+      `Moved to the positions' radius ${fixed(s.positions_radius_mm, 1)} ` +
+        `mm: ${fixed(s.moved_mass_g, 2)} g (mass x ` +
+        `${fixed(s.radius_mm, 1)} / ${fixed(s.positions_radius_mm, 1)}).`,
     );
   }
   out.push('Fit:');
@@ -237,12 +261,14 @@ export function formatFourRunReport(r: FourRunResult): string {
   const unit = r.amp_unit ?? 'job unit';
   const out: string[] = [];
   out.push(
-    `Amplitude-only balancing (four-run method: as found, trial weight at ${r.fit_residual?.trials.length ?? 'three'} positions), one plane` +
+    `Amplitude-only balancing (four-run method: as found, trial weight ` +
+      `at ${r.fit_residual?.trials.length ?? 'three'} positions), one plane` +
       (r.sensor ? `, sensor ${r.sensor}` : ''),
   );
   out.push(conventionLine(r.angle_convention));
   out.push(
-    `The method uses amplitudes only (no phase); the correction angle is counted like the trial angles. Amplitudes: ${unit}.\n`,
+    `The method uses amplitudes only (no phase); the correction ` +
+      `angle is counted like the trial angles. Amplitudes: ${unit}.\n`,
   );
   if (!r.ok || !r.correction) {
     out.push('NO CORRECTION GIVEN: the readings do not fix the weight honestly.');
@@ -269,15 +295,20 @@ export function formatFourRunReport(r: FourRunResult): string {
     ),
   );
   out.push(
-    `  (+/- is one standard deviation at a reading scatter of ${u.scatter_amp.toPrecision(3)} ${unit})`,
+    `  (+/- is one standard deviation at a reading ` +
+      `scatter of ${u.scatter_amp.toPrecision(3)} ${unit})`,
   );
   const t = r.trial_effect!;
   out.push(
-    `\nTrial effect: ${t.amp.toPrecision(3)} ${unit} for ${fixed(r.trial_mass_g, 1)} g (${t.amp_per_g.toPrecision(3)} per g), ${fixed(t.pct_of_as_found, 0)} % of the as-found ${r.as_found.toPrecision(3)}.`,
+    `\nTrial effect: ${t.amp.toPrecision(3)} ${unit} for ` +
+      `${fixed(r.trial_mass_g, 1)} g (${t.amp_per_g.toPrecision(3)} per g), ` +
+      `${fixed(t.pct_of_as_found, 0)} % of the as-found ${r.as_found.toPrecision(3)}.`,
   );
   const f = r.fit_residual!;
   out.push(
-    `Circles: as-found circle radius ${r.as_found.toPrecision(3)}, trial circles round the trial positions; least-squares meeting point at radius ${r.intersection!.radius.toPrecision(3)}, ${fixed(r.intersection!.angle_deg, 1)} deg.`,
+    `Circles: as-found circle radius ${r.as_found.toPrecision(3)}, trial circles round ` +
+      `the trial positions; least-squares meeting point at radius ` +
+      `${r.intersection!.radius.toPrecision(3)}, ${fixed(r.intersection!.angle_deg, 1)} deg.`,
   );
   out.push(
     table(
@@ -290,10 +321,12 @@ export function formatFourRunReport(r: FourRunResult): string {
     ),
   );
   out.push(
-    `  fit residual ${f.rms_amp.toPrecision(3)} ${unit} r.m.s. (${fixed(f.pct_of_as_found, 1)} % of as found)`,
+    `  fit residual ${f.rms_amp.toPrecision(3)} ${unit} r.m.s. ` +
+      `(${fixed(f.pct_of_as_found, 1)} % of as found)`,
   );
   out.push(
-    '\nFit the correction, remove the trial weight, and do a check run: the 1x should drop well below as found; a second round of the method trims what is left.',
+    '\nFit the correction, remove the trial weight, and do a check run: the 1x should ' +
+      'drop well below as found; a second round of the method trims what is left.',
   );
   out.push('');
   out.push(issueLines('Warnings:', r.warnings));
@@ -304,25 +337,31 @@ export function formatMultiSpeedReport(r: MultiSpeedResult): string {
   const unit = r.amp_unit ?? 'job unit';
   const out: string[] = [];
   out.push(
-    `Multi-speed balancing: ${r.speeds.length} speeds (${r.speeds.map((s) => fixed(s.speed_rpm, 0)).join(', ')} r/min), ${r.planes.length} plane(s) (${r.planes.join(', ')}), ${r.sensors.length} sensor(s) (${r.sensors.join(', ')})`,
+    `Multi-speed balancing: ${r.speeds.length} speeds ` +
+      `(${r.speeds.map((s) => fixed(s.speed_rpm, 0)).join(', ')} r/min), ` +
+      `${r.planes.length} plane(s) (${r.planes.join(', ')}), ` +
+      `${r.sensors.length} sensor(s) (${r.sensors.join(', ')})`,
   );
   out.push(conventionLine(r.angle_convention));
   out.push(
-    `One correction minimising the weighted least squares of the 1x over all speeds and sensors. Amplitudes: ${unit}.\n`,
+    `One correction minimising the weighted least squares of ` +
+      `the 1x over all speeds and sensors. Amplitudes: ${unit}.\n`,
   );
   if (!r.ok) {
     out.push('NO CORRECTION GIVEN:');
     out.push(issueLines('Problems:', r.problems));
   } else {
     out.push(
-      'Correction to add, relative to the rotor as found, with ALL trial weights removed (force at the highest speed):',
+      'Correction to add, relative to the rotor as found, with ' +
+        'ALL trial weights removed (force at the highest speed):',
     );
     out.push(table(WEIGHT_HEADER, weightRows(r.corrections)));
     out.push('');
   }
   const shown = r.speeds.some((s) => s.residual_share !== null);
   out.push(
-    `Per speed (${unit}; "left" = r.m.s. over the sensors of predicted / as found${r.ok ? '' : ', for the compromise that was refused'}):`,
+    `Per speed (${unit}; "left" = r.m.s. over the sensors of predicted / as ` +
+      `found${r.ok ? '' : ', for the compromise that was refused'}):`,
   );
   out.push(
     table(
@@ -352,7 +391,8 @@ export function formatMultiSpeedReport(r: MultiSpeedResult): string {
   );
   if (r.condition_number !== null && Number.isFinite(r.condition_number))
     out.push(
-      `\nCondition number of the stacked influence matrix: ${fixed(r.condition_number, 2)} (1 is ideal).`,
+      `\nCondition number of the stacked influence matrix: ` +
+        `${fixed(r.condition_number, 2)} (1 is ideal).`,
     );
   out.push('');
   out.push(

@@ -61,7 +61,9 @@ export interface SolveOptions {
   readonly trialMinAmpPct: number;
   /** ... or at this phase change, degrees (common practice: 30). */
   readonly trialMinPhaseDeg: number;
-  /** Below this vector change at every sensor, % of the as-found amplitude, a run changed nothing. */
+  /**
+   * Below this vector change at every sensor, % of the as-found amplitude, a run changed nothing.
+   */
   readonly trialNothingPct: number;
   /** Runs whose speeds differ by more than this, % of the as-found speed, get a warning. */
   readonly speedTolerancePct: number;
@@ -76,8 +78,9 @@ export interface SolveOptions {
 /**
  * Defaults. The 30 % / 30 degree trial rule is common practice; the other thresholds are this
  * project's choices, stated so they can be judged: 5 % is about the scatter of repeated 1x readings
- * on a fan in service, 2 % of speed keeps a fan clear of large response changes away from resonance,
- * and a condition number of 10 means reading errors can be amplified tenfold in the corrections.
+ * on a fan in service, 2 % of speed keeps a fan clear of large response changes away from
+ * resonance, and a condition number of 10 means reading errors can be amplified tenfold in the
+ * corrections.
  */
 export const DEFAULT_SOLVE_OPTIONS: SolveOptions = {
   trialMinAmpPct: 30,
@@ -180,14 +183,22 @@ export function solveBalanceJob(
     if (off.length) {
       warnings.push({
         code: 'speed_mismatch',
-        message: `runs at different speeds: ${off.map((x) => `${runName(job, x.j)} at ${fmt(x.sp, 0)} r/min`).join(', ')} against ${fmt(ref, 0)} r/min as found (more than ${opt.speedTolerancePct} % apart)`,
-        hint: 'influence coefficients change with speed: repeat those runs at the as-found speed, or treat the corrections with caution',
+        message:
+          `runs at different speeds: ` +
+          `${off.map((x) => `${runName(job, x.j)} at ${fmt(x.sp, 0)} r/min`).join(', ')} ` +
+          `against ${fmt(ref, 0)} r/min as found (more ` +
+          `than ${opt.speedTolerancePct} % apart)`,
+        hint:
+          'influence coefficients change with speed: repeat those runs ' +
+          'at the as-found speed, or treat the corrections with caution',
       });
     }
     if (known.length < job.runs.length) {
       warnings.push({
         code: 'speed_missing',
-        message: `${job.runs.length - known.length} of ${job.runs.length} runs carry no speed_rpm, so their speed could not be checked`,
+        message:
+          `${job.runs.length - known.length} of ${job.runs.length} runs ` +
+          `carry no speed_rpm, so their speed could not be checked`,
         hint: 'record the speed of every run',
       });
     }
@@ -211,8 +222,12 @@ export function solveBalanceJob(
       if (largest.vector_change_pct > 2 * opt.trialNothingPct) {
         warnings.push({
           code: 'not_repeatable',
-          message: `${runName(job, j)} lists no weights, so it repeats the as-found run, yet its 1x vector differs by ${fmt(largest.vector_change_pct)} % at ${largest.sensor}`,
-          hint: 'the readings are not repeatable (speed, load, temperature or a loose sensor?): settle the machine and repeat before trusting any correction',
+          message:
+            `${runName(job, j)} lists no weights, so it repeats the as-found run, yet its ` +
+            `1x vector differs by ${fmt(largest.vector_change_pct)} % at ${largest.sensor}`,
+          hint:
+            'the readings are not repeatable (speed, load, temperature or a loose ' +
+            'sensor?): settle the machine and repeat before trusting any correction',
         });
       }
       continue;
@@ -222,8 +237,13 @@ export function solveBalanceJob(
     if (largest.vector_change_pct >= opt.trialNothingPct && !checks.some((c) => c.moved_enough)) {
       warnings.push({
         code: 'trial_small_effect',
-        message: `${runName(job, j)} moved no sensor's 1x vector by ${opt.trialMinAmpPct} % in amplitude or ${opt.trialMinPhaseDeg} degrees in phase (largest change ${fmt(largest.vector_change_pct)} % at ${largest.sensor})`,
-        hint: 'the correction is sensitive to reading scatter: a larger trial weight gives a more reliable result (common practice)',
+        message:
+          `${runName(job, j)} moved no sensor's 1x vector by ${opt.trialMinAmpPct} % ` +
+          `in amplitude or ${opt.trialMinPhaseDeg} degrees in phase (largest change ` +
+          `${fmt(largest.vector_change_pct)} % at ${largest.sensor})`,
+        hint:
+          'the correction is sensitive to reading scatter: a larger ' +
+          'trial weight gives a more reliable result (common practice)',
       });
     }
   }
@@ -246,28 +266,36 @@ export function solveBalanceJob(
     if (bare.length) {
       problems.push({
         code: 'plane_without_trial',
-        message: `plane(s) ${list(bare)} carry no weight in any run, so their influence cannot be measured`,
+        message:
+          `plane(s) ${list(bare)} carry no weight in any ` +
+          `run, so their influence cannot be measured`,
         hint: `add a trial run with a weight in ${list(bare)}, or solve a job with fewer planes`,
       });
     } else if (R < P || trialCond >= opt.conditionLimit) {
       problems.push({
         code: 'trial_runs_not_independent',
-        message: `the ${R} run(s) with weights do not separate the ${P} planes (trial-weight matrix ${R < P ? `has ${R} row(s) for ${P} planes` : 'is singular'})`,
-        hint: 'give each plane its own trial run (or static and couple pairs), not the same weights twice',
+        message:
+          `the ${R} run(s) with weights do not separate the ${P} planes (trial-weight ` +
+          `matrix ${R < P ? `has ${R} row(s) for ${P} planes` : 'is singular'})`,
+        hint:
+          'give each plane its own trial run (or static ' +
+          'and couple pairs), not the same weights twice',
       });
     } else {
       if (trialCond > opt.conditionWarn) {
         warnings.push({
           code: 'trial_runs_ill_conditioned',
           message: `the trial runs barely separate the planes (condition number ${fmt(trialCond)})`,
-          hint: 'errors in the readings are amplified in the coefficients: use trial weights that differ clearly between planes',
+          hint:
+            'errors in the readings are amplified in the coefficients: ' +
+            'use trial weights that differ clearly between planes',
         });
       }
       const X = leastSquares(T, dV); // P x S
       H = cmatrix(S, P);
       for (let k = 0; k < S; k++) for (let p = 0; p < P; p++) setEl(H, k, p, getEl(X, p, k));
-      // Did each plane's trial weight change anything measurable? (Per plane, not per run, so a trial
-      // weight left in from an earlier run cannot hide a later one that did nothing.)
+      // Did each plane's trial weight change anything measurable? (Per plane, not per run, so a
+      // trial weight left in from an earlier run cannot hide a later one that did nothing.)
       for (let p = 0; p < P; p++) {
         let tMax = 0;
         for (let r = 0; r < R; r++) tMax = Math.max(tMax, abs(getEl(T, r, p)));
@@ -283,8 +311,13 @@ export function solveBalanceJob(
             .map((j) => runName(job, j));
           problems.push({
             code: 'trial_no_effect',
-            message: `the trial weight in ${planes[p]} (${list(runs)}) changed the 1x vectors by less than ${opt.trialNothingPct} % (largest ${fmt(best)} % at ${at}): it had no measurable effect`,
-            hint: 'check the weight is where the job says, then repeat with a larger trial weight (see `turnwise balance trial-weight`)',
+            message:
+              `the trial weight in ${planes[p]} (${list(runs)}) changed the ` +
+              `1x vectors by less than ${opt.trialNothingPct} % (largest ` +
+              `${fmt(best)} % at ${at}): it had no measurable effect`,
+            hint:
+              'check the weight is where the job says, then repeat with a ' +
+              'larger trial weight (see `turnwise balance trial-weight`)',
           });
         }
       }
@@ -301,8 +334,12 @@ export function solveBalanceJob(
           if (pct > opt.misfitWarnPct) {
             warnings.push({
               code: 'runs_disagree',
-              message: `at ${sensors[k]} the ${R} runs with weights disagree with one linear response by ${fmt(pct)} %`,
-              hint: 'a run may be mis-recorded (weight, angle or plane) or the machine is not linear at this speed: check the runs before using the corrections',
+              message:
+                `at ${sensors[k]} the ${R} runs with weights ` +
+                `disagree with one linear response by ${fmt(pct)} %`,
+              hint:
+                'a run may be mis-recorded (weight, angle or plane) or the machine is ' +
+                'not linear at this speed: check the runs before using the corrections',
             });
           }
         }
@@ -312,7 +349,8 @@ export function solveBalanceJob(
       warnings.push({
         code: 'coefficients_ignored',
         message:
-          'the job has its own runs with weights, so the given influence_coefficients were not used',
+          'the job has its own runs with weights, so the ' +
+          'given influence_coefficients were not used',
         hint: 'remove the trial runs to do a trim run from the given coefficients',
       });
     }
@@ -326,7 +364,10 @@ export function solveBalanceJob(
     ) {
       warnings.push({
         code: 'speed_mismatch',
-        message: `the given influence coefficients were measured at ${fmt(cs, 0)} r/min but this run is at ${fmt(speedRpm, 0)} r/min (more than ${opt.speedTolerancePct} % apart)`,
+        message:
+          `the given influence coefficients were measured at ` +
+          `${fmt(cs, 0)} r/min but this run is at ${fmt(speedRpm, 0)} r/min ` +
+          `(more than ${opt.speedTolerancePct} % apart)`,
         hint: 'run the fan at the speed the coefficients were measured at, or do fresh trial runs',
       });
     }
@@ -341,7 +382,9 @@ export function solveBalanceJob(
     problems.push({
       code: 'no_trial_runs',
       message: 'the job has only the as-found run and no influence coefficients',
-      hint: 'add trial runs, or give known coefficients (`--coefficients FILE`, e.g. the stored balance/coefficients.json) for a trim run',
+      hint:
+        'add trial runs, or give known coefficients (`--coefficients ' +
+        'FILE`, e.g. the stored balance/coefficients.json) for a trim run',
     });
   }
 
@@ -366,20 +409,35 @@ export function solveBalanceJob(
     if (S < P) {
       problems.push({
         code: 'fewer_readings_than_planes',
-        message: `${S} sensor reading${S === 1 ? '' : 's'} per run (${list(sensors)}) for ${P} planes (${list(planes)}): ${P} unknown weights need at least ${P} independent readings, so the corrections are not determined`,
-        hint: `add readings from ${P - S} more sensor${P - S === 1 ? '' : 's'} at another bearing to every run, or solve for ${S === 1 ? 'one plane' : `${S} planes`}`,
+        message:
+          `${S} sensor reading${S === 1 ? '' : 's'} per run (${list(sensors)}) ` +
+          `for ${P} planes (${list(planes)}): ${P} unknown weights need at least ` +
+          `${P} independent readings, so the corrections are not determined`,
+        hint:
+          `add readings from ${P - S} more sensor${P - S === 1 ? '' : 's'} at another ` +
+          `bearing to every run, or solve for ${S === 1 ? 'one plane' : `${S} planes`}`,
       });
     } else if (hCond >= opt.conditionLimit) {
       problems.push({
         code: 'singular',
-        message: `the influence matrix is singular (condition number ${Number.isFinite(hCond) ? hCond.toExponential(1) : 'infinite'}): the sensors do not tell the planes apart`,
-        hint: 'use sensors at different bearings (H and V at one bearing are not independent), or move the trial weights to planes further apart',
+        message:
+          `the influence matrix is singular (condition number ` +
+          `${Number.isFinite(hCond) ? hCond.toExponential(1) : 'infinite'}): ` +
+          `the sensors do not tell the planes apart`,
+        hint:
+          'use sensors at different bearings (H and V at one bearing are not ' +
+          'independent), or move the trial weights to planes further apart',
       });
     } else if (hCond > opt.conditionWarn) {
       warnings.push({
         code: 'ill_conditioned',
-        message: `the influence matrix is badly conditioned (condition number ${fmt(hCond)}): a 5 % error in the readings can change the corrections by up to about ${fmt(5 * hCond, 0)} %`,
-        hint: 'use sensors at different bearings or planes further apart; for a short rotor a single-plane correction may be the honest answer',
+        message:
+          `the influence matrix is badly conditioned (condition number ` +
+          `${fmt(hCond)}): a 5 % error in the readings can change the ` +
+          `corrections by up to about ${fmt(5 * hCond, 0)} %`,
+        hint:
+          'use sensors at different bearings or planes further apart; for ' +
+          'a short rotor a single-plane correction may be the honest answer',
       });
     }
   }
@@ -448,8 +506,13 @@ export function solveBalanceJob(
     if (w.over_max) {
       warnings.push({
         code: 'over_max_mass',
-        message: `the correction for ${w.plane} is ${fmt(w.mass_g)} g, more than the ${fmt(job.max_mass_g![w.plane]!)} g this plane takes (max_mass_g.${w.plane})`,
-        hint: 'check the runs first (a weak trial response inflates corrections); then spread the weight over several positions or fit it at a larger radius (`turnwise balance split`)',
+        message:
+          `the correction for ${w.plane} is ${fmt(w.mass_g)} g, more than the ` +
+          `${fmt(job.max_mass_g![w.plane]!)} g this plane takes (max_mass_g.${w.plane})`,
+        hint:
+          'check the runs first (a weak trial response inflates ' +
+          'corrections); then spread the weight over several positions ' +
+          'or fit it at a larger radius (`turnwise balance split`)',
       });
     }
   }

@@ -1,9 +1,10 @@
 /**
- * Where balancing jobs are kept: one JSON record per job under `<state_dir>/balance/jobs/<job_id>.json`
- * and the influence coefficients of the last finished job in `<state_dir>/balance/coefficients.json`
- * (the watcher's balance forecast reads that file). Files are written atomically: a temporary file
- * in the same directory is written and fsync'ed, renamed over the target, and the directory is
- * fsync'ed, so a power cut leaves either the old or the new file, never half of one.
+ * Where balancing jobs are kept: one JSON record per job under
+ * `<state_dir>/balance/jobs/<job_id>.json` and the influence coefficients of the last finished job
+ * in `<state_dir>/balance/coefficients.json` (the watcher's balance forecast reads that file).
+ * Files are written atomically: a temporary file in the same directory is written and fsync'ed,
+ * renamed over the target, and the directory is fsync'ed, so a power cut leaves either the old or
+ * the new file, never half of one.
  */
 import { randomBytes } from 'node:crypto';
 import { mkdir, open, readdir, readFile, rename, unlink } from 'node:fs/promises';

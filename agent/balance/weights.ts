@@ -136,8 +136,8 @@ const SPLIT_TOTAL_WARN = 1.5;
  * With exactly two holes those two are used; with more, the two nearest holes either side of t.
  * Refuses (SplitRefused) when no honest split exists: two holes 180 degrees apart (their parts can
  * only make a weight on the line through them), holes that do not lie either side of t within less
- * than 180 degrees (one part would be negative, i.e. mass to take off), or coincident holes. A weight
- * within 1e-9 degrees of a hole goes there whole.
+ * than 180 degrees (one part would be negative, i.e. mass to take off), or coincident holes. A
+ * weight within 1e-9 degrees of a hole goes there whole.
  */
 export function splitBetweenHoles(
   massG: number,
@@ -175,15 +175,21 @@ export function splitBetweenHoles(
   if (Math.abs(gap - 180) < 1e-6) {
     throw new SplitRefused(
       'holes_opposite',
-      `the holes either side of ${t.toFixed(1)} deg (${before.a.toFixed(1)} and ${after.a.toFixed(1)} deg) are 180 deg apart: weights in them only act along the line through them, never at ${t.toFixed(1)} deg`,
-      "use a hole between them, or two holes less than 180 deg apart with the weight's angle between them",
+      `the holes either side of ${t.toFixed(1)} deg (${before.a.toFixed(1)} and ` +
+        `${after.a.toFixed(1)} deg) are 180 deg apart: weights in them only act ` +
+        `along the line through them, never at ${t.toFixed(1)} deg`,
+      'use a hole between them, or two holes less than ' +
+        "180 deg apart with the weight's angle between them",
     );
   }
   if (gap > 180) {
     throw new SplitRefused(
       'not_between',
-      `${t.toFixed(1)} deg does not lie between two of the holes (${list} deg) less than 180 deg apart: the nearest either side are ${gap.toFixed(1)} deg apart, so one part would be negative (mass to take off)`,
-      "give holes on both sides of the weight's angle, less than 180 deg apart, or fit the weight at its own angle",
+      `${t.toFixed(1)} deg does not lie between two of the holes (${list} deg) ` +
+        `less than 180 deg apart: the nearest either side are ${gap.toFixed(1)} deg ` +
+        `apart, so one part would be negative (mass to take off)`,
+      "give holes on both sides of the weight's angle, less " +
+        'than 180 deg apart, or fit the weight at its own angle',
     );
   }
   const rad = Math.PI / 180;
@@ -199,8 +205,13 @@ export function splitBetweenHoles(
       ? [
           {
             code: 'split_heavy',
-            message: `the two parts add up to ${total.toFixed(1)} g, ${(total / massG).toFixed(2)} times the ${massG.toFixed(1)} g weight, because the holes are ${gap.toFixed(0)} deg apart`,
-            hint: "holes closer to the weight's angle need less mass; check the plane takes the larger part",
+            message:
+              `the two parts add up to ${total.toFixed(1)} g, ` +
+              `${(total / massG).toFixed(2)} times the ${massG.toFixed(1)} g ` +
+              `weight, because the holes are ${gap.toFixed(0)} deg apart`,
+            hint:
+              "holes closer to the weight's angle need less " +
+              'mass; check the plane takes the larger part',
           },
         ]
       : [];
@@ -238,7 +249,8 @@ export function suggestTrialMassG(
  * ISO 21940-11 (formerly ISO 1940-1) permissible residual unbalance for balance quality grade G:
  *   U_per [g mm] = 1000 * G [mm/s] * m [kg] / omega [rad/s] = 9549 * G * m / n [r/min]
  * (from memory; check against the current edition). For the whole rotor; how it is shared between
- * correction planes depends on the rotor (the standard allocates it by plane and bearing distances).
+ * correction planes depends on the rotor (the standard allocates it by plane and bearing
+ * distances).
  */
 export function permissibleUnbalanceGmm(
   gradeMmS: number,
@@ -248,7 +260,9 @@ export function permissibleUnbalanceGmm(
   return (1000 * gradeMmS * rotorMassKg) / rpmToRadPerS(speedRpm);
 }
 
-/** Parses a balance quality grade written as 6.3, "6.3" or "G6.3" to mm/s; NaN when it is not one. */
+/**
+ * Parses a balance quality grade written as 6.3, "6.3" or "G6.3" to mm/s; NaN when it is not one.
+ */
 export function parseGrade(text: string | number): number {
   if (typeof text === 'number') return text;
   const m = /^\s*G?\s*([0-9]+(?:\.[0-9]+)?)\s*$/i.exec(text);

@@ -35,7 +35,10 @@ export interface CaptureRecord {
   readonly start_index: number;
   readonly trigger_index: number;
   readonly end_index: number;
-  /** Seconds actually captured before and after the trigger (shorter before when the agent had just started or after a gap). */
+  /**
+   * Seconds actually captured before and after the trigger (shorter before when the agent had just
+   * started or after a gap).
+   */
   readonly pre_s: number;
   readonly post_s: number;
   readonly wav: string;
@@ -289,7 +292,10 @@ export class EventCapturer {
   }
 }
 
-/** The config that analyses a capture: the measuring sections of the agent's own, reading the WAV beside it. */
+/**
+ * The config that analyses a capture: the measuring sections of the agent's own, reading the WAV
+ * beside it.
+ */
 export function captureConfigYaml(
   cfg: Config,
   wavName: string,
@@ -308,7 +314,8 @@ export function captureConfigYaml(
     sweep: cfg.sweep,
   };
   return (
-    `# turnwise capture ${p.id}: ${p.reason} at ${p.ts}. Analyse with\n#   turnwise analyze ${wavName} --config ${p.id}.yaml\n` +
+    `# turnwise capture ${p.id}: ${p.reason} at ${p.ts}. Analyse ` +
+    `with\n#   turnwise analyze ${wavName} --config ${p.id}.yaml\n` +
     stringify(keep)
   );
 }

@@ -9,7 +9,10 @@ export class RawRing {
   readonly capacity: number;
   /** Absolute sample index one past the newest sample held. */
   end = 0;
-  /** Absolute sample index of the oldest sample that is part of the current run (after a gap: the gap's end). */
+  /**
+   * Absolute sample index of the oldest sample that is part of the current run (after a gap: the
+   * gap's end).
+   */
   private runStart = 0;
 
   constructor(
@@ -51,7 +54,10 @@ export class RawRing {
     this.end = startIndex + n;
   }
 
-  /** Copies samples [from, to) of every channel into `dest` (each at least to - from long); the caller checks `start`. */
+  /**
+   * Copies samples [from, to) of every channel into `dest` (each at least to - from long); the
+   * caller checks `start`.
+   */
   copy(from: number, to: number, dest: readonly Float32Array[]): void {
     if (from < this.start || to > this.end || to < from)
       throw new RangeError(`samples ${from}-${to} not held (${this.start}-${this.end})`);

@@ -15,7 +15,10 @@ export function parseCommandArgs<T extends NonNullable<ParseArgsConfig['options'
   }
 }
 
-/** A numeric option: undefined when absent, else a finite number that passes `check`, or a UserError naming the option. */
+/**
+ * A numeric option: undefined when absent, else a finite number that passes `check`, or a UserError
+ * naming the option.
+ */
 export function numberOption(
   command: string,
   usage: string,

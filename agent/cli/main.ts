@@ -1,6 +1,7 @@
 #!/usr/bin/env node
-// Only light modules are imported here: a command's own module (and zod, mqtt, aedes, serialport...)
-// loads when that command runs, so `turnwise help` and the Node version check start at once.
+// Only light modules are imported here: a command's own module (and zod, mqtt, aedes,
+// serialport...) loads when that command runs, so `turnwise help` and the Node version check start
+// at once.
 import { isUserError } from '../errors.js';
 import { commands } from './commands/index.js';
 import { nodeVersionProblem } from './node-version.js';
@@ -20,7 +21,8 @@ export async function main(argv: string[]): Promise<number> {
     const target = rest[0] ? commands.find((c) => c.name === rest[0]) : undefined;
     if (rest[0] && !target) {
       process.stderr.write(
-        `turnwise help: unknown command "${rest[0]}"\n  -> run \`turnwise help\` for the list of commands\n`,
+        `turnwise help: unknown command "${rest[0]}"\n` +
+          `  -> run \`turnwise help\` for the list of commands\n`,
       );
       return 2;
     }
@@ -56,7 +58,8 @@ if (tooOld) {
     },
     (e: unknown) => {
       process.stderr.write(
-        `turnwise: internal error, please report it with the command you ran:\n${(e as Error)?.stack ?? String(e)}\n`,
+        `turnwise: internal error, please report it with the ` +
+          `command you ran:\n${(e as Error)?.stack ?? String(e)}\n`,
       );
       process.exitCode = 70;
     },

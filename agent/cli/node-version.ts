@@ -12,7 +12,10 @@ function parts(v: string): number[] {
     .map((p) => Number.parseInt(p, 10) || 0);
 }
 
-/** A one-message explanation when `version` (e.g. process.versions.node) is older than MIN_NODE, else null. */
+/**
+ * A one-message explanation when `version` (e.g. process.versions.node) is older than MIN_NODE,
+ * else null.
+ */
 export function nodeVersionProblem(version: string, what = 'turnwise'): string | null {
   const have = parts(version);
   const need = parts(MIN_NODE);
@@ -20,8 +23,10 @@ export function nodeVersionProblem(version: string, what = 'turnwise'): string |
     if ((have[i] ?? 0) > need[i]!) return null;
     if ((have[i] ?? 0) < need[i]!) {
       return (
-        `${what}: Node.js ${version} is too old; turnwise needs Node.js ${MIN_NODE.replace(/\.0$/, '')} or newer (${process.execPath})\n` +
-        `  -> install Node.js 20 LTS (20.19 or later) or 22, e.g. \`nvm install 20\` or the NodeSource/Debian nodejs 20 package, then run the command again\n`
+        `${what}: Node.js ${version} is too old; turnwise needs Node.js ` +
+        `${MIN_NODE.replace(/\.0$/, '')} or newer (${process.execPath})\n` +
+        `  -> install Node.js 20 LTS (20.19 or later) or 22, e.g. \`nvm install 20\` ` +
+        `or the NodeSource/Debian nodejs 20 package, then run the command again\n`
       );
     }
   }

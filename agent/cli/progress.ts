@@ -1,4 +1,6 @@
-/** Progress on stderr for long work, only when stderr is a terminal; at most a few updates a second. */
+/**
+ * Progress on stderr for long work, only when stderr is a terminal; at most a few updates a second.
+ */
 export class Progress {
   private last = 0;
   private shown = false;

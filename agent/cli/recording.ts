@@ -5,7 +5,10 @@ import { WavSource } from '../../drivers/wav/reader.js';
 import { parseCommandArgs } from './args.js';
 import type { Progress } from './progress.js';
 
-/** The arguments every command that reads one recording takes: REC.wav --config CFG.yaml [--json] [--pcm-full-scale-v VOLTS]. */
+/**
+ * The arguments every command that reads one recording takes: REC.wav --config CFG.yaml [--json]
+ * [--pcm-full-scale-v VOLTS].
+ */
 export function recordingArgs(
   command: string,
   usage: string,

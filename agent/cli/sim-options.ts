@@ -16,7 +16,9 @@ export interface SimTiming {
   readonly seed: number | undefined;
 }
 
-/** Reads --from-day, --time-scale and --seed, with the same limits as the `driver: sim` config keys. */
+/**
+ * Reads --from-day, --time-scale and --seed, with the same limits as the `driver: sim` config keys.
+ */
 export function parseSimTiming(
   command: string,
   usage: string,

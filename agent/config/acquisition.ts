@@ -6,7 +6,9 @@ import { simDriverSchema } from './sim.js';
  * accepts only its own keys, so a key meant for another driver is reported as unknown.
  */
 
-/** A required key whose absence gets a message saying which driver needs it and what to put there. */
+/**
+ * A required key whose absence gets a message saying which driver needs it and what to put there.
+ */
 function needs(driver: string, key: string, what: string) {
   return {
     error: (iss: { input?: unknown }) =>
@@ -25,7 +27,8 @@ export const wavDriverSchema = z
       .boolean()
       .default(false)
       .describe(
-        "Deliver samples at the recording's sample rate (true), or as fast as they can be processed (false).",
+        "Deliver samples at the recording's sample rate " +
+          '(true), or as fast as they can be processed (false).',
       ),
     pcm_full_scale_v: z
       .number()
@@ -33,7 +36,8 @@ export const wavDriverSchema = z
       .max(1000)
       .default(10)
       .describe(
-        'Volts at integer full scale for PCM recordings (the usual +/-10 V input range of acquisition boards); float recordings are volts already.',
+        'Volts at integer full scale for PCM recordings (the usual +/-10 V ' +
+          'input range of acquisition boards); float recordings are volts already.',
       ),
   })
   .strict();
@@ -45,7 +49,8 @@ export const serialDriverSchema = z
       .string(needs('serial', 'device', 'e.g. /dev/serial/by-id/usb-...'))
       .min(1)
       .describe(
-        'Device path. Use the stable /dev/serial/by-id/usb-... link (survives re-plugging and other USB devices), not /dev/ttyACM0.',
+        'Device path. Use the stable /dev/serial/by-id/usb-... link ' +
+          '(survives re-plugging and other USB devices), not /dev/ttyACM0.',
       ),
     baud: z
       .number()
@@ -54,14 +59,16 @@ export const serialDriverSchema = z
       .max(16_000_000)
       .default(921_600)
       .describe(
-        'Line rate, bits/s. USB CDC boards ignore it; a UART needs about 10 bits per byte of frame (8 channels x 25.6 kHz x int24 is about 6.3 Mbit/s).',
+        'Line rate, bits/s. USB CDC boards ignore it; a UART needs about 10 bits ' +
+          'per byte of frame (8 channels x 25.6 kHz x int24 is about 6.3 Mbit/s).',
       ),
     sample_rate_hz: z
       .number(needs('serial', 'sample_rate_hz', "the board's sample rate"))
       .positive()
       .max(1_000_000)
       .describe(
-        "The board's sample rate, Hz. Frames declaring a rate further from it than sample_rate_tolerance_ppm are rejected and counted.",
+        "The board's sample rate, Hz. Frames declaring a rate further " +
+          'from it than sample_rate_tolerance_ppm are rejected and counted.',
       ),
     sample_rate_tolerance_ppm: z
       .number()
@@ -69,7 +76,9 @@ export const serialDriverSchema = z
       .max(10_000)
       .default(100)
       .describe(
-        'How far the rate a frame declares may be from sample_rate_hz, ppm (100 ppm = 0.01 %). Within it the DSP uses sample_rate_hz (a 100 ppm error is a 0.01 % speed error, no phase error: the tach is on the same clock).',
+        'How far the rate a frame declares may be from sample_rate_hz, ppm (100 ' +
+          'ppm = 0.01 %). Within it the DSP uses sample_rate_hz (a 100 ppm error ' +
+          'is a 0.01 % speed error, no phase error: the tach is on the same clock).',
       ),
     channels: z
       .number(needs('serial', 'channels', 'how many channels the board sends'))
@@ -77,13 +86,15 @@ export const serialDriverSchema = z
       .min(1)
       .max(64)
       .describe(
-        'Channels in every frame. Frames with another count are rejected and counted; every sensor channel (and the tach channel, unless board_tach_edges) must be below it.',
+        'Channels in every frame. Frames with another count are rejected and counted; every ' +
+          'sensor channel (and the tach channel, unless board_tach_edges) must be below it.',
       ),
     board_tach_edges: z
       .boolean()
       .default(false)
       .describe(
-        'The board times the tach itself and sends the edges in its frames; the tach then need not be one of its channels (tach.channel is not used).',
+        'The board times the tach itself and sends the edges in its frames; the ' +
+          'tach then need not be one of its channels (tach.channel is not used).',
       ),
     reconnect_min_ms: z
       .number()
@@ -92,7 +103,8 @@ export const serialDriverSchema = z
       .max(60_000)
       .default(500)
       .describe(
-        'First wait before reopening a device that failed or went away, ms; doubles up to reconnect_max_ms.',
+        'First wait before reopening a device that failed ' +
+          'or went away, ms; doubles up to reconnect_max_ms.',
       ),
     reconnect_max_ms: z
       .number()
@@ -117,7 +129,8 @@ export const serialDriverSchema = z
       .max(100_000)
       .default(256)
       .describe(
-        'Frames held for the DSP when it falls behind; beyond that frames are dropped and reported as a gap.',
+        'Frames held for the DSP when it falls behind; beyond ' +
+          'that frames are dropped and reported as a gap.',
       ),
     max_frame_bytes: z
       .number()
@@ -133,7 +146,8 @@ export const serialDriverSchema = z
       .max(65_535)
       .default(8192)
       .describe(
-        'Most samples per channel one frame may carry; frames with more count as bad lengths (the frame must also fit max_frame_bytes).',
+        'Most samples per channel one frame may carry; frames with more ' +
+          'count as bad lengths (the frame must also fit max_frame_bytes).',
       ),
     clock_step_tolerance_ms: z
       .number()
@@ -141,7 +155,9 @@ export const serialDriverSchema = z
       .max(3_600_000)
       .default(1000)
       .describe(
-        'A frame arriving this much earlier than its time on the sample clock (or later, for a whole second of samples) is a step of the wall clock (NTP, manual setting): times are anchored again, the step counted and logged once, ms.',
+        'A frame arriving this much earlier than its time on the sample clock (or ' +
+          'later, for a whole second of samples) is a step of the wall clock (NTP, manual ' +
+          'setting): times are anchored again, the step counted and logged once, ms.',
       ),
   })
   .strict()
@@ -163,7 +179,8 @@ export const acquisitionSchema = z.discriminatedUnion(
     error: (iss) =>
       iss.code === 'invalid_union' &&
       (iss as { note?: string }).note === 'No matching discriminator'
-        ? `driver must be one of ${ACQUISITION_DRIVERS.join(', ')} (wav: a recording; serial: the acquisition board on a serial port; sim: the built-in fan simulator)`
+        ? `driver must be one of ${ACQUISITION_DRIVERS.join(', ')} (wav: a recording; ` +
+          `serial: the acquisition board on a serial port; sim: the built-in fan simulator)`
         : undefined,
   },
 );
@@ -192,14 +209,19 @@ export function checkAcquisitionChannels(cfg: ChannelMap, issue: IssueSink): voi
     if (s.channel >= a.channels) {
       issue(
         ['sensors', i, 'channel'],
-        `sensor ${s.id} is on channel ${s.channel} but acquisition.channels is ${a.channels} (the board sends ${range}); set the sensor's channel to the board input it is wired to, or acquisition.channels to the board's channel count`,
+        `sensor ${s.id} is on channel ${s.channel} but acquisition.channels is ` +
+          `${a.channels} (the board sends ${range}); set the sensor's channel to the board ` +
+          `input it is wired to, or acquisition.channels to the board's channel count`,
       );
     }
   });
   if (!a.board_tach_edges && cfg.tach.channel >= a.channels) {
     issue(
       ['tach', 'channel'],
-      `the tach is on channel ${cfg.tach.channel} but acquisition.channels is ${a.channels} (the board sends ${range}); set tach.channel to the input carrying the once-per-turn pulse, or acquisition.board_tach_edges: true if the board times the tach itself`,
+      `the tach is on channel ${cfg.tach.channel} but acquisition.channels ` +
+        `is ${a.channels} (the board sends ${range}); set tach.channel to the ` +
+        `input carrying the once-per-turn pulse, or ` +
+        `acquisition.board_tach_edges: true if the board times the tach itself`,
     );
   }
 }

@@ -51,7 +51,8 @@ export const advisorySchema = z
       .max(600)
       .default(3)
       .describe(
-        'The vote must hold this long before the advisory is raised, and be gone this long before it clears, s.',
+        'The vote must hold this long before the advisory is ' +
+          'raised, and be gone this long before it clears, s.',
       ),
     sensors: z
       .array(z.string().min(1))
@@ -64,7 +65,8 @@ export const advisorySchema = z
       .max(3600)
       .default(60)
       .describe(
-        'Drop the outputs when no measurement has reached the advisory for this long, s (0 = never).',
+        'Drop the outputs when no measurement has reached ' +
+          'the advisory for this long, s (0 = never).',
       ),
   })
   .strict()

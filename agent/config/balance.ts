@@ -44,7 +44,8 @@ export const balanceSchema = z
       .enum(['against_rotation', 'with_rotation'])
       .default('against_rotation')
       .describe(
-        'How weight angles are measured from the reference mark on this machine: against or with rotation.',
+        'How weight angles are measured from the reference ' +
+          'mark on this machine: against or with rotation.',
       ),
     rotor_mass_kg: z
       .number()

@@ -36,14 +36,17 @@ export const gpioTachSpeedSchema = z
       .max(64)
       .default(4)
       .describe(
-        'Revolutions averaged for the GPIO speed. Only the end edges of the span count: 1 ms of timestamp jitter at each end over 4 turns at 1480 r/min is at most 1.2 % of speed.',
+        'Revolutions averaged for the GPIO speed. Only the end ' +
+          'edges of the span count: 1 ms of timestamp jitter at each ' +
+          'end over 4 turns at 1480 r/min is at most 1.2 % of speed.',
       ),
     min_rpm: z
       .number()
       .positive()
       .optional()
       .describe(
-        'Slower pulses mean a stopped shaft or lost pulses: the GPIO speed becomes unknown, r/min. Default: tach.min_rpm.',
+        'Slower pulses mean a stopped shaft or lost pulses: the ' +
+          'GPIO speed becomes unknown, r/min. Default: tach.min_rpm.',
       ),
     max_rpm: z
       .number()
@@ -56,7 +59,9 @@ export const gpioTachSpeedSchema = z
       .max(50)
       .default(5)
       .describe(
-        'Warn when the GPIO speed lies further than this outside the range of revolution speeds the tach channel measured in the window, % (the default is about 4 times the 1.2 % timing bound of 4 averaged turns).',
+        'Warn when the GPIO speed lies further than this outside the range of ' +
+          'revolution speeds the tach channel measured in the window, % (the ' +
+          'default is about 4 times the 1.2 % timing bound of 4 averaged turns).',
       ),
   })
   .strict()
@@ -73,12 +78,16 @@ export const gpioSchema = z
       .max(64)
       .optional()
       .describe(
-        'Label of the GPIO chip that advisory.* and gpio.tach_speed line offsets refer to, as in /sys/class/gpio/gpiochip*/label (e.g. "pinctrl-bcm2711"). Needed on a board with several chips and no Raspberry Pi header chip.',
+        'Label of the GPIO chip that advisory.* and gpio.tach_speed line offsets ' +
+          'refer to, as in /sys/class/gpio/gpiochip*/label (e.g. "pinctrl-bcm2711"). ' +
+          'Needed on a board with several chips and no Raspberry Pi header chip.',
       ),
     tach_speed: gpioTachSpeedSchema
       .optional()
       .describe(
-        'A once-per-turn pulse on a GPIO input, for a speed cross-check against the tach channel. Speed only, never phase: user-space GPIO timestamps jitter by about a millisecond.',
+        'A once-per-turn pulse on a GPIO input, for a speed cross-check ' +
+          'against the tach channel. Speed only, never phase: user-space ' +
+          'GPIO timestamps jitter by about a millisecond.',
       ),
   })
   .strict();

@@ -19,7 +19,8 @@ export const liveTokenSchema = z
         'letters, digits, "_", "." or "-", at most 32 characters',
       )
       .describe(
-        'Who holds this token (e.g. control-room, balancing-crew); written in the logs and job records, never the token itself.',
+        'Who holds this token (e.g. control-room, balancing-crew); ' +
+          'written in the logs and job records, never the token itself.',
       ),
     role: z
       .enum(['viewer', 'operator'])
@@ -40,7 +41,8 @@ export const liveSchema = z
       .min(1)
       .default('127.0.0.1')
       .describe(
-        "Address to listen on: 127.0.0.1 (this board only), the board's LAN address, or 0.0.0.0 (every interface).",
+        'Address to listen on: 127.0.0.1 (this board only), ' +
+          "the board's LAN address, or 0.0.0.0 (every interface).",
       ),
     port: z
       .number()
@@ -61,7 +63,8 @@ export const liveSchema = z
       .strict()
       .optional()
       .describe(
-        'Serve over HTTPS/WSS. Without it tokens cross the network in clear: bind to 127.0.0.1 or a trusted segment.',
+        'Serve over HTTPS/WSS. Without it tokens cross the ' +
+          'network in clear: bind to 127.0.0.1 or a trusted segment.',
       ),
     update_hz: z
       .number()
@@ -101,7 +104,9 @@ export const liveSchema = z
           .max(100000)
           .optional()
           .describe(
-            'Revolutions skipped before averaging so the live average forgets what came before. Default: 5 x the live average memory (160 revolutions with the default 32).',
+            'Revolutions skipped before averaging so the live ' +
+              'average forgets what came before. Default: 5 x the live ' +
+              'average memory (160 revolutions with the default 32).',
           ),
         speed_tolerance_pct: z
           .number()
@@ -109,7 +114,8 @@ export const liveSchema = z
           .max(20)
           .default(1)
           .describe(
-            'A speed change beyond this, % of the speed at the start of the run, restarts the averaging.',
+            'A speed change beyond this, % of the speed at ' +
+              'the start of the run, restarts the averaging.',
           ),
         max_restarts: z
           .number()

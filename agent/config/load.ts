@@ -33,8 +33,8 @@ export function valueAt(root: unknown, path: readonly PropertyKey[]): unknown {
 }
 
 /**
- * One line per problem: where, what was expected, what was found. `keysReference` names the document
- * to check spelling against when a key is unknown.
+ * One line per problem: where, what was expected, what was found. `keysReference` names the
+ * document to check spelling against when a key is unknown.
  */
 export function formatIssues(
   file: string,
@@ -45,7 +45,10 @@ export function formatIssues(
   return issues.map((iss) => {
     const where = formatPath(iss.path);
     if (iss.code === 'unrecognized_keys') {
-      return `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; check the spelling against ${keysReference}`;
+      return (
+        `${file}: ${where}: unknown key(s) ${iss.keys.map((k) => `"${k}"`).join(', ')}; ` +
+        `check the spelling against ${keysReference}`
+      );
     }
     const found = describeFound(valueAt(raw, iss.path));
     return `${file}: ${where}: ${iss.message} (found ${found})`;
@@ -68,7 +71,8 @@ export function validateConfig(raw: unknown, file = 'config'): Config {
 
 /**
  * Reads a YAML file into plain data. `kind` names the file in messages ("config", "scenario") and
- * `example` is a path shown when the file is missing. Throws UserError for unreadable files and bad YAML.
+ * `example` is a path shown when the file is missing. Throws UserError for unreadable files and bad
+ * YAML.
  */
 export function readYamlFile(file: string, kind: string, example: string): unknown {
   let text: string;

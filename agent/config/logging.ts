@@ -11,7 +11,9 @@ export const loggingSchema = z
       .enum(['auto', 'on', 'off'])
       .default('auto')
       .describe(
-        'Syslog priority prefix (<3> error, <4> warn, <6> info, <7> debug) in front of each line, so `journalctl -p warning` works. auto: on when stdout is the systemd journal.',
+        'Syslog priority prefix (<3> error, <4> warn, <6> info, <7> ' +
+          'debug) in front of each line, so `journalctl -p warning` ' +
+          'works. auto: on when stdout is the systemd journal.',
       ),
   })
   .strict()

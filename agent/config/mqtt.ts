@@ -34,7 +34,8 @@ function checkUrl(url: string, ctx: z.RefinementCtx): void {
     ctx.addIssue({
       code: 'custom',
       message:
-        'credentials must not be written in the URL; use mqtt.username with mqtt.password_file or mqtt.password_env',
+        'credentials must not be written in the URL; use ' +
+        'mqtt.username with mqtt.password_file or mqtt.password_env',
     });
   }
   if (!u.hostname) ctx.addIssue({ code: 'custom', message: 'the URL has no host' });
@@ -46,23 +47,28 @@ const secretRef = (what: string) =>
       file: filePath
         .optional()
         .describe(
-          `File holding the ${what} (one line). Must not be readable by group or others (chmod 600).`,
+          `File holding the ${what} (one line). Must not ` +
+            `be readable by group or others (chmod 600).`,
         ),
       env: envName.optional().describe(`Environment variable holding the ${what}.`),
     })
     .strict();
 
 /**
- * Sparkplug B ids (group, edge node, device, host): the specification (Sparkplug 3.0, "Topic Namespace
- * Elements", tck-id-topic-structure-namespace-valid-group-id / -edge-node-id / -device-id) allows any
- * UTF-8 string except the reserved characters "+", "/" and "#". The agent also refuses the empty
- * string, NUL (not allowed in MQTT topics) and surrounding spaces (a copy-paste slip, never meant).
+ * Sparkplug B ids (group, edge node, device, host): the specification (Sparkplug 3.0, "Topic
+ * Namespace Elements",
+ * tck-id-topic-structure-namespace-valid-group-id / -edge-node-id / -device-id) allows any UTF-8
+ * string except the reserved characters "+", "/" and "#". The agent also refuses the empty string,
+ * NUL (not allowed in MQTT topics) and surrounding spaces (a copy-paste slip, never meant).
  */
 export function sparkplugIdProblem(id: string): string | null {
   if (id.length === 0) return 'must not be empty';
   const bad = [...new Set([...id].filter((ch) => ch === '+' || ch === '/' || ch === '#'))];
   if (bad.length > 0)
-    return `contains ${bad.map((c) => `"${c}"`).join(', ')}, which the Sparkplug specification reserves (no "+", "/" or "#" in a group, edge node, device or host id)`;
+    return (
+      `contains ${bad.map((c) => `"${c}"`).join(', ')}, which the Sparkplug specification ` +
+      `reserves (no "+", "/" or "#" in a group, edge node, device or host id)`
+    );
   if (id.includes('\u0000')) return 'contains a NUL character, which MQTT topics cannot carry';
   if (id.trim() !== id) return 'starts or ends with a space';
   return null;
@@ -76,14 +82,17 @@ const sparkplugId = (what: string) =>
       if (p)
         ctx.addIssue({
           code: 'custom',
-          message: `${what} ${JSON.stringify(v)} ${p}; choose another id (letters, digits, "-", "_", "." are always safe)`,
+          message:
+            `${what} ${JSON.stringify(v)} ${p}; choose another ` +
+            `id (letters, digits, "-", "_", "." are always safe)`,
         });
     });
 
 export const sparkplugSchema = z
   .object({
     group_id: sparkplugId('group_id').describe(
-      'Sparkplug group id: topics are spBv1.0/<group_id>/<message type>/<edge_node_id>[/<device_id>].',
+      'Sparkplug group id: topics are spBv1.0/<group_id>/<message ' +
+        'type>/<edge_node_id>[/<device_id>].',
     ),
     edge_node_id: sparkplugId('edge_node_id').describe(
       'Sparkplug edge node id of this board; unique within the group.',
@@ -94,14 +103,17 @@ export const sparkplugSchema = z
     primary_host_id: sparkplugId('primary_host_id')
       .optional()
       .describe(
-        'Sparkplug host id of the primary host application. When given, the node publishes its births only after spBv1.0/STATE/<primary_host_id> says online, and goes quiet when it goes offline.',
+        'Sparkplug host id of the primary host application. When given, the ' +
+          'node publishes its births only after spBv1.0/STATE/<primary_host_id> ' +
+          'says online, and goes quiet when it goes offline.',
       ),
     client_id: z
       .string()
       .regex(/^[A-Za-z0-9_.-]{1,64}$/, 'letters, digits, "_", "." or "-", at most 64')
       .optional()
       .describe(
-        'MQTT client id of the Sparkplug session (its own connection, because the NDEATH is its will). Default: <mqtt client id>-spb.',
+        'MQTT client id of the Sparkplug session (its own connection, ' +
+          'because the NDEATH is its will). Default: <mqtt client id>-spb.',
       ),
     json_topics: z
       .boolean()
@@ -168,7 +180,8 @@ export const mqttSchema = z
       .max(600)
       .default(15)
       .describe(
-        'An event not acknowledged (PUBACK) within this time makes the agent drop and rebuild the connection, s.',
+        'An event not acknowledged (PUBACK) within this time ' +
+          'makes the agent drop and rebuild the connection, s.',
       ),
     inflight_window: z
       .number()
@@ -219,7 +232,8 @@ export const mqttSchema = z
       .strict()
       .optional()
       .describe(
-        'Accept commands on <prefix>/<asset>/cmd; each must carry this token. Without this key the agent does not listen for commands.',
+        'Accept commands on <prefix>/<asset>/cmd; each must carry this ' +
+          'token. Without this key the agent does not listen for commands.',
       ),
     sparkplug: sparkplugSchema
       .optional()

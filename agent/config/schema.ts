@@ -67,7 +67,8 @@ export const tachSchema = z
       .positive()
       .optional()
       .describe(
-        'The signal must fall this far below trigger_v before the next edge counts. Default: 10 % of |trigger_v|, at least 0.05 V.',
+        'The signal must fall this far below trigger_v before the next ' +
+          'edge counts. Default: 10 % of |trigger_v|, at least 0.05 V.',
       ),
     min_rpm: z
       .number()
@@ -112,14 +113,17 @@ export const sensorSchema = z
       .max(360)
       .default(0)
       .describe(
-        'Extra angle of this sensor relative to the reference position of its direction; 180 for a sensor on the opposite side. Subtracted from its phase before comparisons.',
+        'Extra angle of this sensor relative to the reference ' +
+          'position of its direction; 180 for a sensor on the opposite ' +
+          'side. Subtracted from its phase before comparisons.',
       ),
     bias_v: z
       .object({ min: z.number(), max: z.number() })
       .strict()
       .optional()
       .describe(
-        'Healthy DC bias window in volts for DC-coupled IEPE inputs (common practice: 8-12 V). Omit for AC-coupled boards.',
+        'Healthy DC bias window in volts for DC-coupled IEPE inputs ' +
+          '(common practice: 8-12 V). Omit for AC-coupled boards.',
       ),
     full_scale_v: z
       .number()
@@ -138,14 +142,16 @@ export const dspSchema = z
       .max(4096)
       .default(256)
       .describe(
-        'Angle bins per revolution for synchronous averaging; each bin holds the mean of the signal over it.',
+        'Angle bins per revolution for synchronous averaging; ' +
+          'each bin holds the mean of the signal over it.',
       ),
     orders: z
       .array(z.number().int().min(1).max(100))
       .min(1)
       .default([1, 2, 3])
       .describe(
-        'Orders whose vectors are reported (the blade-pass order is added when machine.blades is set).',
+        'Orders whose vectors are reported (the blade-pass ' +
+          'order is added when machine.blades is set).',
       ),
     spectrum_resolution_hz: z
       .number()
@@ -153,14 +159,16 @@ export const dspSchema = z
       .max(10)
       .optional()
       .describe(
-        'Target line spacing of the averaged spectrum, Hz. Default 1 Hz, or 0.25 Hz when rated_rpm is below 600.',
+        'Target line spacing of the averaged spectrum, Hz. ' +
+          'Default 1 Hz, or 0.25 Hz when rated_rpm is below 600.',
       ),
     band_hz: z
       .object({ low: z.number().positive(), high: z.number().positive() })
       .strict()
       .optional()
       .describe(
-        'Overrides the ISO 20816-3 band for the overall r.m.s. (default 10-1000 Hz, 2-1000 Hz below 600 r/min).',
+        'Overrides the ISO 20816-3 band for the overall r.m.s. ' +
+          '(default 10-1000 Hz, 2-1000 Hz below 600 r/min).',
       ),
   })
   .strict()
@@ -200,7 +208,8 @@ export const configSchema = z
     advisory: advisorySchema
       .optional()
       .describe(
-        'Local safe-stop advisory (relay and lamp); without it (and without gpio.tach_speed) no GPIO is used.',
+        'Local safe-stop advisory (relay and lamp); without ' +
+          'it (and without gpio.tach_speed) no GPIO is used.',
       ),
     gpio: gpioSchema
       .optional()
@@ -208,7 +217,8 @@ export const configSchema = z
     live: liveSchema
       .optional()
       .describe(
-        'Live page and balancing workbench for the technician (HTTP + WebSocket); without it no port is opened.',
+        'Live page and balancing workbench for the technician ' +
+          '(HTTP + WebSocket); without it no port is opened.',
       ),
 
     logging: loggingSchema,
@@ -259,7 +269,9 @@ export const configSchema = z
       ctx.addIssue({
         code: 'custom',
         path: ['gpio', 'tach_speed', gt.min_rpm === undefined ? 'max_rpm' : 'min_rpm'],
-        message: `min_rpm ${gt.min_rpm ?? cfg.tach.min_rpm} must be below max_rpm ${gt.max_rpm ?? cfg.tach.max_rpm} (an unset one is taken from the tach section)`,
+        message:
+          `min_rpm ${gt.min_rpm ?? cfg.tach.min_rpm} must be below max_rpm ` +
+          `${gt.max_rpm ?? cfg.tach.max_rpm} (an unset one is taken from the tach section)`,
       });
     }
     if (cfg.dsp.band_hz && cfg.dsp.band_hz.low >= cfg.dsp.band_hz.high) {

@@ -11,7 +11,8 @@ export const simDriverSchema = z
       .string({
         error: (iss) =>
           iss.input === undefined
-            ? 'driver "sim" needs scenario: the scenario file, relative to this config file (e.g. example-scenario.yaml)'
+            ? 'driver "sim" needs scenario: the scenario file, relative ' +
+              'to this config file (e.g. example-scenario.yaml)'
             : undefined,
       })
       .min(1)
@@ -30,7 +31,8 @@ export const simDriverSchema = z
       .max(1e6)
       .default(1)
       .describe(
-        'Scenario seconds per second of signal: 3600 plays a day of the timeline in 24 s of signal.',
+        'Scenario seconds per second of signal: 3600 plays ' +
+          'a day of the timeline in 24 s of signal.',
       ),
     from_day: z
       .number()

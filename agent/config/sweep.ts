@@ -12,7 +12,9 @@ export const sweepSchema = z
       .max(1)
       .default(0.3)
       .describe(
-        'A run-up or coast-down must move the speed through at least this share of machine.rated_rpm (of the highest speed seen when rated_rpm is unset). Own choice: 0.3.',
+        'A run-up or coast-down must move the speed through at ' +
+          'least this share of machine.rated_rpm (of the highest ' +
+          'speed seen when rated_rpm is unset). Own choice: 0.3.',
       ),
     revolutions_per_point: z
       .number()
@@ -21,7 +23,8 @@ export const sweepSchema = z
       .max(64)
       .default(4)
       .describe(
-        'Revolutions synchronously averaged into each point of the 1x-against-speed curve. Own choice: 4 (more points on a fast sweep, more averaging on a slow one).',
+        'Revolutions synchronously averaged into each point of the 1x-against-speed ' +
+          'curve. Own choice: 4 (more points on a fast sweep, more averaging on a slow one).',
       ),
     min_phase_shift_deg: z
       .number()
@@ -29,7 +32,9 @@ export const sweepSchema = z
       .max(170)
       .default(45)
       .describe(
-        'Smallest 1x phase change across the half-power band for an amplitude peak to count as a resonance, degrees. Own choice: 45 (half the 90 degrees of a single-degree-of-freedom mode, textbook).',
+        'Smallest 1x phase change across the half-power band for an amplitude ' +
+          'peak to count as a resonance, degrees. Own choice: 45 (half the ' +
+          '90 degrees of a single-degree-of-freedom mode, textbook).',
       ),
     reversal_share: z
       .number()
@@ -37,7 +42,8 @@ export const sweepSchema = z
       .max(0.2)
       .default(0.02)
       .describe(
-        'A speed move against the sweep direction larger than this share of the reference speed ends the sweep. Own choice: 0.02.',
+        'A speed move against the sweep direction larger than this ' +
+          'share of the reference speed ends the sweep. Own choice: 0.02.',
       ),
     steady_share: z
       .number()
@@ -45,7 +51,8 @@ export const sweepSchema = z
       .max(0.05)
       .default(0.005)
       .describe(
-        'Points within this share of the start (end) speed are steady running and trimmed off the sweep. Own choice: 0.005.',
+        'Points within this share of the start (end) speed are ' +
+          'steady running and trimmed off the sweep. Own choice: 0.005.',
       ),
     max_point_change_pct: z
       .number()
@@ -53,7 +60,9 @@ export const sweepSchema = z
       .max(10)
       .default(2)
       .describe(
-        'Speed change from one point to the next, as a percentage of the reference speed (machine.rated_rpm, else the highest speed measured), above which the sweep is too fast for the averaging (a warning names the rate). Own choice: 2.',
+        'Speed change from one point to the next, as a percentage of the reference ' +
+          'speed (machine.rated_rpm, else the highest speed measured), above which the ' +
+          'sweep is too fast for the averaging (a warning names the rate). Own choice: 2.',
       ),
     min_points_in_band: z
       .number()
@@ -62,13 +71,16 @@ export const sweepSchema = z
       .max(50)
       .default(5)
       .describe(
-        'A resonance with fewer points than this within its half-power band gets a warning that its peak and amplification factor are doubtful (the sweep passed it too fast). Own choice: 5.',
+        'A resonance with fewer points than this within its half-power ' +
+          'band gets a warning that its peak and amplification factor ' +
+          'are doubtful (the sweep passed it too fast). Own choice: 5.',
       ),
     record: z
       .boolean()
       .default(true)
       .describe(
-        'turnwise run records every run-up and coast-down under state_dir/sweeps and publishes sweep_recorded. Own choice: true.',
+        'turnwise run records every run-up and coast-down under ' +
+          'state_dir/sweeps and publishes sweep_recorded. Own choice: true.',
       ),
     settle_s: z
       .number()
@@ -76,7 +88,8 @@ export const sweepSchema = z
       .max(600)
       .default(5)
       .describe(
-        'In turnwise run, a sweep has ended once the speed has stayed at its final speed (or no trusted revolution has come) for this many seconds. Own choice: 5.',
+        'In turnwise run, a sweep has ended once the speed has stayed at its final ' +
+          'speed (or no trusted revolution has come) for this many seconds. Own choice: 5.',
       ),
     max_points: z
       .number()
@@ -85,7 +98,9 @@ export const sweepSchema = z
       .max(20000)
       .default(2048)
       .describe(
-        'Most points turnwise run holds while a sweep goes on (about 17 + 16 x sensors bytes each); a sweep still going when they are full is recorded as far as it got. Own choice: 2048 (8 minutes of a 1480 r/min fan at 4 revolutions per point).',
+        'Most points turnwise run holds while a sweep goes on (about 17 + 16 x sensors ' +
+          'bytes each); a sweep still going when they are full is recorded as far as it ' +
+          'got. Own choice: 2048 (8 minutes of a 1480 r/min fan at 4 revolutions per point).',
       ),
     max_count: z
       .number()
@@ -94,7 +109,8 @@ export const sweepSchema = z
       .max(1000)
       .default(20)
       .describe(
-        'Most sweeps kept under state_dir/sweeps (the reference sweep not counted); the oldest go first. Own choice: 20.',
+        'Most sweeps kept under state_dir/sweeps (the reference ' +
+          'sweep not counted); the oldest go first. Own choice: 20.',
       ),
     max_mb: z
       .number()
@@ -102,14 +118,16 @@ export const sweepSchema = z
       .max(1000)
       .default(10)
       .describe(
-        'Most MiB the kept sweeps take together (the reference not counted); the oldest go first. Own choice: 10.',
+        'Most MiB the kept sweeps take together (the reference ' +
+          'not counted); the oldest go first. Own choice: 10.',
       ),
     reference_id: z
       .string()
       .regex(/^[0-9]{8}T[0-9]{6}Z-(up|down)(-[0-9]+)?$/, 'a sweep id such as 20261203T063000Z-down')
       .optional()
       .describe(
-        'The stored sweep every new sweep of its direction is compared with. Default: the first sweep recorded in each direction becomes the reference.',
+        'The stored sweep every new sweep of its direction is compared with. ' +
+          'Default: the first sweep recorded in each direction becomes the reference.',
       ),
     moved_share: z
       .number()
@@ -117,7 +135,9 @@ export const sweepSchema = z
       .max(0.5)
       .default(0.05)
       .describe(
-        'A resonance whose speed moved by more than this share from the reference sweep gives a resonance_moved warning. Own choice: 0.05 (a support that lost a tenth of its stiffness moves its resonance about 5 %, sqrt law, textbook).',
+        'A resonance whose speed moved by more than this share from the reference ' +
+          'sweep gives a resonance_moved warning. Own choice: 0.05 (a support that lost ' +
+          'a tenth of its stiffness moves its resonance about 5 %, sqrt law, textbook).',
       ),
   })
   .strict()

@@ -26,7 +26,8 @@ const limitsSchema = z
       })
       .strict()
       .describe(
-        'ISO 14694 in-situ limits (values from memory): zone A up to the start-up limit, B up to the alarm limit, C up to the shut-down limit, D above.',
+        'ISO 14694 in-situ limits (values from memory): zone A up to the start-up ' +
+          'limit, B up to the alarm limit, C up to the shut-down limit, D above.',
       ),
     z
       .object({
@@ -75,7 +76,8 @@ export const watcherSchema = z
       .boolean()
       .default(true)
       .describe(
-        'Once a baseline exists, alarm at baseline + 0.25 x (B/C), capped at 1.25 x (B/C) (ISO 20816-3 practice). Without a baseline the alarm sits at the B/C boundary.',
+        'Once a baseline exists, alarm at baseline + 0.25 x (B/C), capped at 1.25 x (B/C) ' +
+          '(ISO 20816-3 practice). Without a baseline the alarm sits at the B/C boundary.',
       ),
     hysteresis_share: z
       .number()
@@ -89,7 +91,11 @@ export const watcherSchema = z
       .max(3600)
       .default(2)
       .describe(
-        'A new zone, alarm, verdict or sensor state must hold this long (seconds of measured data) before it is reported. Timed from the start of the first window that showed it, so with 2 s windows the default confirms on one window (about 50 revolutions); set it above window_s to need two windows that agree. Machinery-protection practice uses about 1-3 s (API 670, from memory).',
+        'A new zone, alarm, verdict or sensor state must hold this long (seconds of ' +
+          'measured data) before it is reported. Timed from the start of the first ' +
+          'window that showed it, so with 2 s windows the default confirms on one window ' +
+          '(about 50 revolutions); set it above window_s to need two windows that agree. ' +
+          'Machinery-protection practice uses about 1-3 s (API 670, from memory).',
       ),
     window_s: z
       .number()
@@ -97,7 +103,8 @@ export const watcherSchema = z
       .max(600)
       .default(2)
       .describe(
-        'Length of one analysis window for the live agent, seconds (about 50 revolutions at 1485 r/min).',
+        'Length of one analysis window for the live agent, ' +
+          'seconds (about 50 revolutions at 1485 r/min).',
       ),
     min_speed_share: z
       .number()
@@ -105,7 +112,8 @@ export const watcherSchema = z
       .max(1)
       .default(0.8)
       .describe(
-        'Below this share of machine.rated_rpm the fan counts as starting or coasting down (see below_min_speed).',
+        'Below this share of machine.rated_rpm the fan counts ' +
+          'as starting or coasting down (see below_min_speed).',
       ),
     max_speed_share: z
       .number()
@@ -117,7 +125,8 @@ export const watcherSchema = z
       .enum(['inhibit', 'raise'])
       .default('inhibit')
       .describe(
-        'Below min_speed_share: "inhibit" holds the zones and alarms; "raise" multiplies the limits by startup_multiplier.',
+        'Below min_speed_share: "inhibit" holds the zones and ' +
+          'alarms; "raise" multiplies the limits by startup_multiplier.',
       ),
     startup_multiplier: z
       .number()
@@ -125,12 +134,14 @@ export const watcherSchema = z
       .max(5)
       .default(2)
       .describe(
-        'Limit multiplier during start-up when below_min_speed is "raise" (machinery-protection practice uses 2 or 3, from memory).',
+        'Limit multiplier during start-up when below_min_speed is "raise" ' +
+          '(machinery-protection practice uses 2 or 3, from memory).',
       ),
     vector_change_mm_s: mmS
       .optional()
       .describe(
-        'Size of the 1x vector change from baseline that is reported, mm/s r.m.s. Default 0.25 x (B/C).',
+        'Size of the 1x vector change from baseline that ' +
+          'is reported, mm/s r.m.s. Default 0.25 x (B/C).',
       ),
     unbalance: z
       .object({
@@ -138,7 +149,8 @@ export const watcherSchema = z
           .tuple([z.string().min(1), z.string().min(1)])
           .optional()
           .describe(
-            'The two rotor bearings compared for static/couple (default: the first two bearings with radial sensors).',
+            'The two rotor bearings compared for static/couple ' +
+              '(default: the first two bearings with radial sensors).',
           ),
         coupling: z
           .object({
@@ -156,7 +168,9 @@ export const watcherSchema = z
           .strict()
           .optional()
           .describe(
-            'The bearings either side of the coupling. Misalignment is read from high 2x with axial 1x about 180 deg apart across them (common practice); without them it cannot be told from a bent shaft.',
+            'The bearings either side of the coupling. Misalignment is read ' +
+              'from high 2x with axial 1x about 180 deg apart across them (common ' +
+              'practice); without them it cannot be told from a bent shaft.',
           ),
         min_one_x_rms_mm_s: mmS
           .optional()
@@ -205,7 +219,8 @@ export const watcherSchema = z
           .max(90)
           .default(30)
           .describe(
-            '1x phase jumping more than this (median, window to window) is unstable; a baseline is learned only when the phase stays within this of its mean, degrees.',
+            '1x phase jumping more than this (median, window to window) is unstable; a ' +
+              'baseline is learned only when the phase stays within this of its mean, degrees.',
           ),
         stability_windows: z
           .number()
@@ -220,13 +235,16 @@ export const watcherSchema = z
               .object({ basis: z.literal('zone_ab') })
               .strict()
               .describe(
-                "Significant once an OK sensor's overall is above the A/B boundary in force (ISO 20816-3 zone A/B).",
+                "Significant once an OK sensor's overall is above " +
+                  'the A/B boundary in force (ISO 20816-3 zone A/B).',
               ),
             z
               .object({ basis: z.literal('baseline_change') })
               .strict()
               .describe(
-                "Significant once an overall is 0.25 x (B/C) above that sensor's baseline overall (ISO 20816-3 change criterion); the A/B boundary where there is no baseline overall.",
+                'Significant once an overall is 0.25 x (B/C) above that ' +
+                  "sensor's baseline overall (ISO 20816-3 change criterion); " +
+                  'the A/B boundary where there is no baseline overall.',
               ),
             z
               .object({
@@ -240,7 +258,9 @@ export const watcherSchema = z
           ])
           .prefault({ basis: 'zone_ab' })
           .describe(
-            'No unbalance finding (kind none, the residual pattern as information) while every OK sensor is at or below this level and no 1x vector changed significantly from the baseline.',
+            'No unbalance finding (kind none, the residual pattern as ' +
+              'information) while every OK sensor is at or below this level ' +
+              'and no 1x vector changed significantly from the baseline.',
           ),
       })
       .strict()
@@ -252,7 +272,8 @@ export const watcherSchema = z
           .positive()
           .default(0.0002)
           .describe(
-            'Raw signal r.m.s. below this while the fan runs is a flat line (dead sensor or cable), volts.',
+            'Raw signal r.m.s. below this while the fan runs ' +
+              'is a flat line (dead sensor or cable), volts.',
           ),
         clipped_share_max: z
           .number()
@@ -263,7 +284,8 @@ export const watcherSchema = z
         running_overall_mm_s: mmS
           .default(0.2)
           .describe(
-            'Overall above this on any healthy channel means the fan runs (used when there is no speed).',
+            'Overall above this on any healthy channel means ' +
+              'the fan runs (used when there is no speed).',
           ),
         missing_pulse_share_max: z
           .number()
@@ -279,7 +301,9 @@ export const watcherSchema = z
           .max(1000)
           .default(8)
           .describe(
-            'A 10 ms span whose largest excursion from the mean reaches this many times the median span r.m.s. holds an impulse (Gaussian noise passes 5x its r.m.s. in about 6 of 10 million samples: own computation).',
+            'A 10 ms span whose largest excursion from the mean reaches this many ' +
+              'times the median span r.m.s. holds an impulse (Gaussian noise passes ' +
+              '5x its r.m.s. in about 6 of 10 million samples: own computation).',
           ),
         spike_one_sided_ratio: z
           .number()
@@ -287,7 +311,9 @@ export const watcherSchema = z
           .max(100)
           .default(3)
           .describe(
-            'An impulse is one-sided (no ringing) when its excursion one way is at least this many times the other way; an impact ringing a resonance swings both ways about equally (common practice).',
+            'An impulse is one-sided (no ringing) when its excursion one way ' +
+              'is at least this many times the other way; an impact ringing a ' +
+              'resonance swings both ways about equally (common practice).',
           ),
         spikes_per_s: z
           .number()
@@ -295,7 +321,8 @@ export const watcherSchema = z
           .max(1000)
           .default(1)
           .describe(
-            'One-sided impulses per second (and at least 2 in the window) at or above which the channel is not OK (connector or cable fault).',
+            'One-sided impulses per second (and at least 2 in the window) at ' +
+              'or above which the channel is not OK (connector or cable fault).',
           ),
         pile_share_min: z
           .number()
@@ -303,7 +330,9 @@ export const watcherSchema = z
           .max(1)
           .default(0.0002)
           .describe(
-            'Share of samples within tolerance of one extreme value at or above which, with few samples just below (see pile_ratio_min), the signal counts as cut off there.',
+            'Share of samples within tolerance of one extreme value ' +
+              'at or above which, with few samples just below (see ' +
+              'pile_ratio_min), the signal counts as cut off there.',
           ),
         pile_ratio_min: z
           .number()
@@ -311,7 +340,8 @@ export const watcherSchema = z
           .max(1000)
           .default(4)
           .describe(
-            'Samples at the extreme over samples in the band just below it: about 1.4 for a sine (own computation), far more when the signal is cut off.',
+            'Samples at the extreme over samples in the band just below it: about ' +
+              '1.4 for a sine (own computation), far more when the signal is cut off.',
           ),
         saturation_share: z
           .number()
@@ -319,7 +349,8 @@ export const watcherSchema = z
           .max(1)
           .default(0.95)
           .describe(
-            'A signal cut off below this share of full_scale_v is the sensor saturating, not the input range.',
+            'A signal cut off below this share of full_scale_v ' +
+              'is the sensor saturating, not the input range.',
           ),
         steps_spanned_min: z
           .number()
@@ -327,7 +358,9 @@ export const watcherSchema = z
           .max(1e6)
           .default(5)
           .describe(
-            'While the fan turns, a signal spanning fewer converter steps than this is quantisation noise only (a converter at rest toggles 1-2 steps either side of its value, 2-4 steps in all: own judgement).',
+            'While the fan turns, a signal spanning fewer converter steps than ' +
+              'this is quantisation noise only (a converter at rest toggles 1-2 ' +
+              'steps either side of its value, 2-4 steps in all: own judgement).',
           ),
         level_step_ratio: z
           .number()
@@ -335,7 +368,9 @@ export const watcherSchema = z
           .max(1000)
           .default(5)
           .describe(
-            'A 100 ms r.m.s. this many times above (or below) the window median, reached by a jump of at least its square root between neighbouring 100 ms groups, is a sudden level step.',
+            'A 100 ms r.m.s. this many times above (or below) the window ' +
+              'median, reached by a jump of at least its square root ' +
+              'between neighbouring 100 ms groups, is a sudden level step.',
           ),
         ok_after_s: z
           .number()
@@ -343,7 +378,9 @@ export const watcherSchema = z
           .max(86400)
           .default(10)
           .describe(
-            'A sensor fault must be gone this long (seconds of measured data) before the sensor is OK again and sensor_ok is sent; an intermittent connector comes and goes, so this is longer than on_delay_s (own choice: five 2 s windows).',
+            'A sensor fault must be gone this long (seconds of measured data) before the ' +
+              'sensor is OK again and sensor_ok is sent; an intermittent connector comes ' +
+              'and goes, so this is longer than on_delay_s (own choice: five 2 s windows).',
           ),
       })
       .strict()
@@ -379,7 +416,8 @@ export const watcherSchema = z
           .positive()
           .default(604800)
           .describe(
-            'The fit uses the history of this many newest seconds (default 7 days), and none from before the baseline was learned.',
+            'The fit uses the history of this many newest seconds (default ' +
+              '7 days), and none from before the baseline was learned.',
           ),
         max_points: z
           .number()
@@ -388,7 +426,8 @@ export const watcherSchema = z
           .max(1000)
           .default(200)
           .describe(
-            'The history in the span is averaged into at most this many points for the fit (its cost grows with the square).',
+            'The history in the span is averaged into at most this ' +
+              'many points for the fit (its cost grows with the square).',
           ),
         min_r2: z
           .number()

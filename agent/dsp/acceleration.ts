@@ -1,9 +1,9 @@
 /**
  * Stage 1: volts -> acceleration in mm/s^2 with DC removed, plus raw-signal statistics.
  *
- * The DC estimate is an exponential average of means over fixed spans of samples (1 s, time constant
- * `dcTimeConstantS`) and is held constant between span ends, so removing it adds no phase shift at any
- * frequency, unlike a high-pass filter would, and does not depend on the block size.
+ * The DC estimate is an exponential average of means over fixed spans of samples (1 s, time
+ * constant `dcTimeConstantS`) and is held constant between span ends, so removing it adds no phase
+ * shift at any frequency, unlike a high-pass filter would, and does not depend on the block size.
  *
  * Two outputs: `out` (DC estimate removed, for the spectrum) and `syncOut` (a constant reference
  * level removed, for synchronous averaging). Order k >= 1 of a revolution does not see a constant
@@ -119,7 +119,10 @@ export class AccelerationStage {
     return this.ref;
   }
 
-  /** Takes a new reference level for `syncOut` from the next block (after a gap: no revolution spans it). */
+  /**
+   * Takes a new reference level for `syncOut` from the next block (after a gap: no revolution spans
+   * it).
+   */
   rebase(): void {
     this.haveRef = false;
   }

@@ -18,7 +18,8 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
 /**
  * The measurement core: source items in, one WindowResult per window out.
  *
- *   volts --AccelerationStage--> mm/s^2 (constant reference removed) --> SampleRing --(tach revolutions)--> SyncAverager --> order vectors
+ *   volts --AccelerationStage--> mm/s^2 (constant reference removed) --> SampleRing --(tach
+ *   revolutions)--> SyncAverager --> order vectors
  *                                     (DC estimate removed) --> Decimator --> SpectrumAccumulator --> overall r.m.s., non-synchronous peaks
  *   tach volts --TachDetector--> edges --RevolutionTracker--> trusted revolutions
  *
@@ -26,7 +27,9 @@ import type { ChannelResult, LiveFrame, OrderVector, WindowResult } from './type
  * views per block or chunk when copying).
  */
 
-/** ISO 20816-3 measurement band for broadband velocity: 10-1000 Hz, or 2-1000 Hz below 600 r/min. */
+/**
+ * ISO 20816-3 measurement band for broadband velocity: 10-1000 Hz, or 2-1000 Hz below 600 r/min.
+ */
 export function isoBand(speedRpm: number | null | undefined): { low: number; high: number } {
   return { low: speedRpm != null && speedRpm < 600 ? 2 : 10, high: 1000 };
 }
@@ -37,7 +40,10 @@ export function isoBand(speedRpm: number | null | undefined): { low: number; hig
  */
 export const MAX_TIMING_SHIFT_TICKS = 1026;
 
-/** Sampling at least 2.56 times the highest frequency of interest (common practice in vibration analysers). */
+/**
+ * Sampling at least 2.56 times the highest frequency of interest (common practice in vibration
+ * analysers).
+ */
 export const MIN_SAMPLES_PER_HZ = 2.56;
 
 export interface AnalyzerOptions {
@@ -46,7 +52,10 @@ export interface AnalyzerOptions {
   readonly channelCount: number;
   /** Largest block `push` will see (samples per channel). */
   readonly maxBlock?: number;
-  /** Total samples per channel when known (recordings): the spectrum size is reduced for short records. */
+  /**
+   * Total samples per channel when known (recordings): the spectrum size is reduced for short
+   * records.
+   */
   readonly totalSamples?: number;
   /** True when the acquisition board times the tach itself (blocks carry tachEdges). */
   readonly boardTimesTach?: boolean;
@@ -64,13 +73,19 @@ export interface AnalyzerOptions {
  * sample bounds. It must copy what it needs at once: the rings move on.
  */
 export interface RevolutionTap {
-  /** `shifts[i]`: sensor i's samples of this revolution are [start + shifts[i], end + shifts[i]] (declared board delays; 0 without). */
+  /**
+   * `shifts[i]`: sensor i's samples of this revolution are [start + shifts[i], end + shifts[i]]
+   * (declared board delays; 0 without).
+   */
   revolution(rings: readonly SampleRing[], start: number, end: number, shifts: Float64Array): void;
   /** Samples were lost: revolutions on either side are not one run. */
   gap(): void;
 }
 
-/** Picks the spectrum size: the line spacing asked for, reduced so that short records still give 2 segments. */
+/**
+ * Picks the spectrum size: the line spacing asked for, reduced so that short records still give
+ * 2 segments.
+ */
 export function planSpectrumSize(
   sampleRate: number,
   resolutionHz: number,
@@ -102,7 +117,10 @@ interface ChannelState {
 
 export class Analyzer {
   readonly sampleRate: number;
-  /** Sample rate of the spectrum after decimation, Hz (= sampleRate when the source is already slow). */
+  /**
+   * Sample rate of the spectrum after decimation, Hz (= sampleRate when the source is already
+   * slow).
+   */
   readonly spectrumRate: number;
   readonly spectrumSize: number;
   readonly orders: readonly number[];
@@ -153,7 +171,8 @@ export class Analyzer {
       if (s.channel > lastCh) {
         throw new UserError(
           `sensors[${i}].channel`,
-          `sensor ${s.id} is on channel ${s.channel} but ${src} has ${channelCount} channel(s), numbered 0-${lastCh}`,
+          `sensor ${s.id} is on channel ${s.channel} but ${src} has ` +
+            `${channelCount} channel(s), numbered 0-${lastCh}`,
           'fix the channel number in the config, or use the recording made with this channel map',
         );
       }
@@ -161,7 +180,8 @@ export class Analyzer {
     if (!this.boardTimesTach && cfg.tach.channel > lastCh) {
       throw new UserError(
         'tach.channel',
-        `the tach is on channel ${cfg.tach.channel} but ${src} has ${channelCount} channel(s), numbered 0-${lastCh}`,
+        `the tach is on channel ${cfg.tach.channel} but ${src} has ` +
+          `${channelCount} channel(s), numbered 0-${lastCh}`,
         'set tach.channel to the channel that carries the once-per-turn pulse',
       );
     }
@@ -169,7 +189,8 @@ export class Analyzer {
     if (sampleRate < MIN_SAMPLES_PER_HZ * bandHigh) {
       throw new UserError(
         src,
-        `sample rate ${sampleRate} Hz is too low for the band up to ${bandHigh} Hz: it needs at least ${MIN_SAMPLES_PER_HZ * bandHigh} Hz (2.56 x the upper band edge)`,
+        `sample rate ${sampleRate} Hz is too low for the band up to ${bandHigh} Hz: it ` +
+          `needs at least ${MIN_SAMPLES_PER_HZ * bandHigh} Hz (2.56 x the upper band edge)`,
         'record at a higher sample rate (25.6 kHz is usual)',
       );
     }
@@ -201,7 +222,8 @@ export class Analyzer {
     const ringSize = maxRevSamples + maxBlock + 2 * MAX_TIMING_SHIFT_TICKS + 4;
     const plan = new SpectrumPlan(this.spectrumSize);
     const health = cfg.watcher.sensor_health;
-    // The shape stage keeps 10 ms spans of the window: sized for the recording, or 1.5 live windows.
+    // The shape stage keeps 10 ms spans of the window: sized for the recording, or 1.5 live
+    // windows.
     const maxWindowSamples =
       opts.totalSamples ?? Math.ceil(1.5 * cfg.watcher.window_s * sampleRate);
     this.chans = cfg.sensors.map((s) => ({
@@ -264,7 +286,8 @@ export class Analyzer {
     // With a declared delay, or an edge within half a bin of the block's end, the revolution's last
     // samples may not have arrived yet: wait for them.
     if (lastNeeded >= (this.chans[0]?.ring.end ?? 0)) {
-      if (this.pendingCount === this.pendingStart.length) return; // cannot happen with delays <= 1024 ticks; never grows
+      // cannot happen with delays <= 1024 ticks; never grows
+      if (this.pendingCount === this.pendingStart.length) return;
       const k = (this.pendingHead + this.pendingCount) % this.pendingStart.length;
       this.pendingStart[k] = start;
       this.pendingEnd[k] = end;
@@ -274,7 +297,10 @@ export class Analyzer {
     this.addRevolution(start, end);
   }
 
-  /** Adds the waiting revolutions whose samples have all arrived (all, or drops the rest when `gap`). */
+  /**
+   * Adds the waiting revolutions whose samples have all arrived (all, or drops the rest when
+   * `gap`).
+   */
   private drainPending(gap: boolean): void {
     const cap = this.pendingStart.length;
     while (this.pendingCount > 0) {
@@ -384,21 +410,44 @@ export class Analyzer {
     if (!this.boardTimesTach && this.rawEdges === 0) {
       if (d.max === -Infinity) return `no samples were seen on tach channel ${t.channel}`;
       if (d.max < t.trigger_v) {
-        return `the tach on channel ${t.channel} never reached the ${t.trigger_v} V trigger (signal between ${d.min.toFixed(3)} and ${d.max.toFixed(3)} V): check tach.channel, tach.trigger_v and the pickup`;
+        return (
+          `the tach on channel ${t.channel} never reached the ${t.trigger_v} V ` +
+          `trigger (signal between ${d.min.toFixed(3)} and ${d.max.toFixed(3)} V): ` +
+          `check tach.channel, tach.trigger_v and the pickup`
+        );
       }
-      return `the tach on channel ${t.channel} never fell ${(t.trigger_v - (t.hysteresis_v ?? Math.max(0.05, 0.1 * Math.abs(t.trigger_v)))).toFixed(2)} V below the trigger after rising (signal between ${d.min.toFixed(3)} and ${d.max.toFixed(3)} V): check tach.trigger_v and tach.hysteresis_v`;
+      return (
+        `the tach on channel ${t.channel} never fell ` +
+        `${(t.trigger_v - (t.hysteresis_v ?? Math.max(0.05, 0.1 * Math.abs(t.trigger_v)))).toFixed(2)} ` +
+        `V below the trigger after rising (signal between ${d.min.toFixed(3)} and ` +
+        `${d.max.toFixed(3)} V): check tach.trigger_v and tach.hysteresis_v`
+      );
     }
     if (this.rawEdges < 3)
-      return `only ${this.rawEdges} tach pulse(s) found: the record is too short, or the speed is below tach.min_rpm (${t.min_rpm} r/min)`;
+      return (
+        `only ${this.rawEdges} tach pulse(s) found: the record is too ` +
+        `short, or the speed is below tach.min_rpm (${t.min_rpm} r/min)`
+      );
     const apparent =
       (60 * this.sampleRate * (this.rawEdges - 1)) /
       (this.lastRawEdge - this.firstRawEdge) /
       t.pulses_per_rev;
     if (apparent > t.max_rpm)
-      return `tach pulses imply about ${apparent.toFixed(0)} r/min, above tach.max_rpm (${t.max_rpm}): check tach.pulses_per_rev, or a noisy tach signal (raise tach.hysteresis_v)`;
+      return (
+        `tach pulses imply about ${apparent.toFixed(0)} r/min, above ` +
+        `tach.max_rpm (${t.max_rpm}): check tach.pulses_per_rev, or ` +
+        `a noisy tach signal (raise tach.hysteresis_v)`
+      );
     if (apparent < t.min_rpm)
-      return `tach pulses imply about ${apparent.toFixed(1)} r/min, below tach.min_rpm (${t.min_rpm})`;
-    return `${this.rawEdges} tach pulses found but their spacing is too irregular to trust any revolution (about ${apparent.toFixed(0)} r/min on average): check the pickup and tach.pulses_per_rev`;
+      return (
+        `tach pulses imply about ${apparent.toFixed(1)} r/min, ` +
+        `below tach.min_rpm (${t.min_rpm})`
+      );
+    return (
+      `${this.rawEdges} tach pulses found but their spacing is too irregular ` +
+      `to trust any revolution (about ${apparent.toFixed(0)} r/min on ` +
+      `average): check the pickup and tach.pulses_per_rev`
+    );
   }
 
   /** Order vectors in velocity from an averaged revolution of acceleration. */
@@ -509,17 +558,20 @@ export class Analyzer {
     const segments = this.chans[0]?.spectrum.segments ?? 0;
     if (segments === 0)
       warnings.push(
-        `no spectrum segment of ${(N / this.spectrumRate).toFixed(2)} s completed in this window: no overall level`,
+        `no spectrum segment of ${(N / this.spectrumRate).toFixed(2)} s ` +
+          `completed in this window: no overall level`,
       );
     if (revs > 0 && revs < 10)
       warnings.push(`only ${revs} revolution(s) averaged: order vectors are uncertain`);
     if (speedSpread > 0.05)
       warnings.push(
-        `speed varied by ${(speedSpread * 100).toFixed(1)} % over the window: vectors are averaged over that range`,
+        `speed varied by ${(speedSpread * 100).toFixed(1)} % ` +
+          `over the window: vectors are averaged over that range`,
       );
     if (speed !== null && speed < 600 && !this.cfg.dsp.band_hz && df > 0.3) {
       warnings.push(
-        `below 600 r/min with ${df.toFixed(2)} Hz lines: set machine.rated_rpm or dsp.spectrum_resolution_hz (0.25 Hz) for an accurate 2-1000 Hz overall`,
+        `below 600 r/min with ${df.toFixed(2)} Hz lines: set machine.rated_rpm or ` +
+          `dsp.spectrum_resolution_hz (0.25 Hz) for an accurate 2-1000 Hz overall`,
       );
     }
     if (this.gapSamples > 0)

@@ -20,17 +20,17 @@
  *   a polynomial of degree K-1, so the design is the weighted Chebyshev approximation of
  *   1 / (2 cos(theta/2)) with weight cos(theta/2) on [0, 4 pi B / r], solved by the Remez exchange
  *   (Parks & McClellan 1972; the reduction of a half-band to this one-band problem is Vaidyanathan
- *   & Nguyen 1987). The error then reaches +/-delta with alternating signs at K+1 frequencies, which
- *   by Chebyshev's alternation theorem makes delta the smallest any 4K-1 tap half-band can have.
- *   For 120 dB at 25.6 kHz the three stages need 4, 5 and 10 tap pairs (15, 19 and 39 taps),
+ *   & Nguyen 1987). The error then reaches +/-delta with alternating signs at K+1 frequencies,
+ *   which by Chebyshev's alternation theorem makes delta the smallest any 4K-1 tap half-band can
+ *   have. For 120 dB at 25.6 kHz the three stages need 4, 5 and 10 tap pairs (15, 19 and 39 taps),
  *   against 6, 7 and 12 pairs for the best Kaiser-window design.
  * - K is the smallest that meets the spec, checked on a dense grid of the actual taps.
  *
  * Stages are added while the output rate stays at or above `minOutputRateHz` (the analyzer uses
- * 2.56 x the band edge), so 25.6 kHz with a 1 kHz band gives three stages and 3.2 kHz; a source that
- * is already slow gets no stage at all. With the default 120 dB, the passband gain of the whole
- * cascade is within 3e-6 of 1 (three stages of at most 1e-6 each): well below anything the overall
- * can show, so the spectrum needs no passband correction.
+ * 2.56 x the band edge), so 25.6 kHz with a 1 kHz band gives three stages and 3.2 kHz; a source
+ * that is already slow gets no stage at all. With the default 120 dB, the passband gain of the
+ * whole cascade is within 3e-6 of 1 (three stages of at most 1e-6 each): well below anything the
+ * overall can show, so the spectrum needs no passband correction.
  *
  * Processing is streaming and block-size independent: each stage keeps its last 4K-2 inputs (and an
  * odd leftover) across calls and only computes the outputs that are kept (polyphase: one output per
@@ -41,7 +41,10 @@
 /** Default stopband attenuation, dB: about the dynamic range of a 24-bit acquisition front end. */
 export const DEFAULT_ATTENUATION_DB = 120;
 
-/** Input samples per pass through the stages: one channel's stage buffers stay near 16 KB, in L1 cache. */
+/**
+ * Input samples per pass through the stages: one channel's stage buffers stay near 16 KB, in L1
+ * cache.
+ */
 const CHUNK = 1024;
 
 /** Longest half-band considered, K (4K-1 taps); a spec that needs more is refused. */
@@ -55,7 +58,9 @@ export interface HalfBandStageDesign {
   readonly inputRateHz: number;
   /** Passband edge, Hz. */
   readonly passbandEdgeHz: number;
-  /** Stopband edge (= inputRateHz / 2 - passbandEdgeHz): where aliases into the passband begin, Hz. */
+  /**
+   * Stopband edge (= inputRateHz / 2 - passbandEdgeHz): where aliases into the passband begin, Hz.
+   */
   readonly stopbandEdgeHz: number;
   /** Impulse response, 4K-1 taps, symmetric, centre tap 1/2, taps at even distance from it 0. */
   readonly taps: Float64Array;
@@ -65,7 +70,10 @@ export interface HalfBandStageDesign {
   readonly attenuationDb: number;
 }
 
-/** Frequencies 0..edge (fraction of the sample rate) at which a design is checked, with their cosines. */
+/**
+ * Frequencies 0..edge (fraction of the sample rate) at which a design is checked, with their
+ * cosines.
+ */
 class PassbandGrid {
   readonly cosW: Float64Array;
   readonly twoCos2W: Float64Array;
@@ -207,9 +215,10 @@ export function equirippleHalfBandTaps(
     if (same || maxErr - Math.abs(delta) <= 1e-9 * Math.abs(delta)) break;
   }
   if (!found) return null;
-  // Taps from F(theta) = W P = 2 sum_n h_n cos((n + 1/2) theta) sampled at theta_m = pi (m + 1/2) / K
-  // (DCT-IV orthogonality): h_n = (1/K) sum_m F(theta_m) cos((n + 1/2) theta_m). P is evaluated
-  // there in the first (modified Lagrange) barycentric form, which stays accurate outside the grid.
+  // Taps from F(theta) = W P = 2 sum_n h_n cos((n + 1/2) theta) sampled at theta_m = pi
+  // (m + 1/2) / K (DCT-IV orthogonality): h_n = (1/K) sum_m F(theta_m) cos((n + 1/2) theta_m). P is
+  // evaluated there in the first (modified Lagrange) barycentric form, which stays accurate outside
+  // the grid.
   const h = new Float64Array(4 * K - 1);
   const c = 2 * K - 1;
   h[c] = 0.5;
@@ -255,7 +264,8 @@ export function designHalfBand(
   const stopbandEdgeHz = inputRateHz / 2 - passbandEdgeHz;
   if (!(passbandEdgeHz > 0) || !(stopbandEdgeHz > passbandEdgeHz)) {
     throw new Error(
-      `half-band stage at ${inputRateHz} Hz cannot pass up to ${passbandEdgeHz} Hz: the passband edge must be below a quarter of the input rate`,
+      `half-band stage at ${inputRateHz} Hz cannot pass up to ${passbandEdgeHz} Hz: ` +
+        `the passband edge must be below a quarter of the input rate`,
     );
   }
   const delta = 10 ** (-attenuationDb / 20);
@@ -294,7 +304,8 @@ export function designHalfBand(
   if (!a) k = 0;
   while (++k <= MAX_HALF_LENGTH) if ((a = attempt(k))?.ok) return a.design;
   throw new Error(
-    `no half-band filter of up to ${4 * MAX_HALF_LENGTH - 1} taps reaches ${attenuationDb} dB at ${inputRateHz} Hz with a ${passbandEdgeHz} Hz passband`,
+    `no half-band filter of up to ${4 * MAX_HALF_LENGTH - 1} taps reaches ` +
+      `${attenuationDb} dB at ${inputRateHz} Hz with a ${passbandEdgeHz} Hz passband`,
   );
 }
 
@@ -327,7 +338,8 @@ export class DecimatorPlan {
   ) {
     if (!(minOutputRateHz > 2 * bandHighHz))
       throw new Error(
-        `decimator output rate ${minOutputRateHz} Hz leaves no transition band above ${bandHighHz} Hz`,
+        `decimator output rate ${minOutputRateHz} Hz ` +
+          `leaves no transition band above ${bandHighHz} Hz`,
       );
     const stages: HalfBandStageDesign[] = [];
     let rate = inputRateHz;

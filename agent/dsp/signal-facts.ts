@@ -23,17 +23,27 @@ export interface SignalFacts {
   readonly crest_factor: number;
   /** Fourth central moment over the squared variance: 3 for Gaussian noise, 1.5 for a sine. */
   readonly kurtosis: number;
-  /** Smallest non-zero step between neighbouring samples, volts (the converter step for quantised data); null when the signal never moved. */
+  /**
+   * Smallest non-zero step between neighbouring samples, volts (the converter step for quantised
+   * data); null when the signal never moved.
+   */
   readonly min_step_v: number | null;
-  /** (max - min) / min_step_v: how many converter steps the signal spans; null with min_step_v null. */
+  /**
+   * (max - min) / min_step_v: how many converter steps the signal spans; null with min_step_v null.
+   */
   readonly steps_spanned: number | null;
   /** Span length, s. */
   readonly span_s: number;
   /** Median r.m.s. of the spans about the window mean, volts (the robust level). */
   readonly span_rms_median_v: number;
-  /** Spans whose largest excursion reaches spike_ratio x the robust level while neither neighbour does. */
+  /**
+   * Spans whose largest excursion reaches spike_ratio x the robust level while neither neighbour
+   * does.
+   */
   readonly impulses: number;
-  /** Of those, the spans with the excursion on one side at least one_sided_ratio x the other side. */
+  /**
+   * Of those, the spans with the excursion on one side at least one_sided_ratio x the other side.
+   */
   readonly impulses_one_sided: number;
   /** Largest excursion from the mean over the robust level. */
   readonly peak_over_level: number;
@@ -45,16 +55,25 @@ export interface SignalFacts {
   readonly group_rms_min_v: number;
   /** Largest ratio (>= 1) between the r.m.s. of neighbouring groups. */
   readonly group_jump_ratio: number;
-  /** The highest value, the samples within a small tolerance of it, and the samples in the band just below. */
+  /**
+   * The highest value, the samples within a small tolerance of it, and the samples in the band just
+   * below.
+   */
   readonly pile_high: PileUp;
   readonly pile_low: PileUp;
 }
 
 export interface PileUp {
   readonly v: number;
-  /** Samples within tol of the extreme (tol = the larger of 0.1 % of the range and 1.5 converter steps). */
+  /**
+   * Samples within tol of the extreme (tol = the larger of 0.1 % of the range and 1.5 converter
+   * steps).
+   */
   readonly samples: number;
-  /** Samples between 3 tol and tol from it: few when the signal is cut off there, about as many as `samples` otherwise. */
+  /**
+   * Samples between 3 tol and tol from it: few when the signal is cut off there, about as many as
+   * `samples` otherwise.
+   */
   readonly below: number;
 }
 
@@ -294,7 +313,8 @@ export class SignalFactsStage {
       limit > 0 &&
       Math.max(this.spMax[i]! - mean, mean - this.spMin[i]!) >= limit;
     for (let i = 0; i < spans; i++) {
-      // An impulse is short: its span stands out and both neighbours do not (a level step is not an impulse).
+      // An impulse is short: its span stands out and both neighbours do not (a level step is not an
+      // impulse).
       if (!over(i) || over(i - 1) || over(i + 1)) continue;
       const up = this.spMax[i]! - mean;
       const dn = mean - this.spMin[i]!;

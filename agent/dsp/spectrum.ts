@@ -9,8 +9,8 @@ import type { SampleSink } from './decimate.js';
  *
  * Integration to velocity is done in the frequency domain (divide each line by 2*pi*f): exact at
  * every frequency in the band, with no integrator drift and no filter phase. The overall r.m.s. is
- * the band-limited sum of the velocity power by Parseval's theorem, corrected for the window's power
- * (sum of w^2), so a tone's energy is counted whole whichever lines it leaks into.
+ * the band-limited sum of the velocity power by Parseval's theorem, corrected for the window's
+ * power (sum of w^2), so a tone's energy is counted whole whichever lines it leaks into.
  */
 
 /**

@@ -31,7 +31,9 @@ export interface SpeedPoint {
   /** Per channel, config order: 1x zero-to-peak velocity, mm/s, and phase lag, degrees 0-360. */
   readonly amp_pk_mm_s: readonly number[];
   readonly phase_deg: readonly number[];
-  /** True when the revolutions before this point were not contiguous with it (a gap in the samples). */
+  /**
+   * True when the revolutions before this point were not contiguous with it (a gap in the samples).
+   */
   readonly after_gap: boolean;
 }
 
@@ -149,7 +151,10 @@ export class SpeedPointRecorder implements RevolutionTap {
     this.resetAverage();
   }
 
-  /** The slot for a new point: grows the arrays by doubling up to maxPoints, then overwrites the oldest. */
+  /**
+   * The slot for a new point: grows the arrays by doubling up to maxPoints, then overwrites the
+   * oldest.
+   */
   private slot(): number {
     const max = this.opts.maxPoints ?? Infinity;
     if (this.count === this.cap && this.cap < max) this.grow(Math.min(this.cap * 2, max));

@@ -15,8 +15,9 @@
  * bin is its own anti-alias filter for the angle grid. The price is a known gain at order k,
  * sinc(k / points) = sin(pi k / points) / (pi k / points) (the response of a centred moving average
  * one bin wide; textbook), which `orderComponent` divides out: 0.99997 at 1x with 256 bins. The
- * linear interpolation's own response, sinc^2(f / fs), stays (1 - 3e-6 for 1x of a fan at 25.6 kHz).
- * A bin reaches half a bin before `start` and after `end`: `reach` gives the samples needed.
+ * linear interpolation's own response, sinc^2(f / fs), stays (1 - 3e-6 for 1x of a fan at
+ * 25.6 kHz). A bin reaches half a bin before `start` and after `end`: `reach` gives the samples
+ * needed.
  */
 
 export interface OrderComponent {
@@ -39,7 +40,10 @@ export class SampleRing {
     this.mask = cap - 1;
   }
 
-  /** Appends a block whose first sample has absolute index `startIndex` (must equal `end` unless after reset). */
+  /**
+   * Appends a block whose first sample has absolute index `startIndex` (must equal `end` unless
+   * after reset).
+   */
   write(block: Float32Array, startIndex: number, length = block.length): void {
     const cap = this.data.length;
     let w = startIndex & this.mask;
@@ -64,8 +68,8 @@ export class SyncAverager {
   revolutions = 0;
   /**
    * Exponentially weighted average for the live view: each revolution is added with weight 1 and
-   * older ones fade by `liveDecay` per revolution, so the live vectors follow a balancing run within
-   * a few seconds while the window sum keeps every revolution equally.
+   * older ones fade by `liveDecay` per revolution, so the live vectors follow a balancing run
+   * within a few seconds while the window sum keeps every revolution equally.
    */
   readonly live: Float64Array;
   liveWeight = 0;
@@ -80,13 +84,19 @@ export class SyncAverager {
     this.liveDecay = 1 - 1 / Math.max(1, liveRevolutions);
   }
 
-  /** First and last sample index the bins of revolution [start, end] read (half a bin beyond each end). */
+  /**
+   * First and last sample index the bins of revolution [start, end] read (half a bin beyond each
+   * end).
+   */
   reach(start: number, end: number): { from: number; to: number } {
     const half = (end - start) / (2 * this.points);
     return { from: Math.floor(start - half), to: Math.floor(end + half) + 1 };
   }
 
-  /** Adds revolution [start, end] of `ring` to the sum as bin means. The caller checks `ring.holds(reach)`. */
+  /**
+   * Adds revolution [start, end] of `ring` to the sum as bin means. The caller checks
+   * `ring.holds(reach)`.
+   */
   addRevolution(ring: SampleRing, start: number, end: number): void {
     const M = this.points;
     const step = (end - start) / M;

@@ -36,7 +36,10 @@ export class TachDetector {
     this.edges = new Float64Array(Math.ceil(opts.maxBlock / 2) + 2);
   }
 
-  /** Processes one block starting at absolute sample `startIndex`; returns the number of edges written to `edges`. */
+  /**
+   * Processes one block starting at absolute sample `startIndex`; returns the number of edges
+   * written to `edges`.
+   */
   process(x: Float32Array, startIndex: number): number {
     const trig = this.opts.triggerV;
     const rearm = trig - this.opts.hysteresisV;
@@ -93,7 +96,10 @@ export interface RevolutionTrackerOptions {
 /** Called with a trusted revolution [start, end] in fractional absolute sample indices. */
 export type RevolutionSink = (start: number, end: number) => void;
 
-/** Interval ratio limits against the reference interval (common practice: speed changes little in one pulse). */
+/**
+ * Interval ratio limits against the reference interval (common practice: speed changes little in
+ * one pulse).
+ */
 const SHORT_RATIO = 0.6;
 const LONG_RATIO = 1.4;
 /** Largest change of revolution length from one revolution to the next that is still averaged. */
@@ -147,7 +153,8 @@ export class RevolutionTracker {
     const li = this.lastIgnored;
     if (li !== undefined && t - li < this.minPulse) {
       // Pulses keep coming faster than tach.max_rpm allows: not a stray double trigger but a speed
-      // (or a pulses_per_rev setting) the tracker must not average. Nothing is trusted until it stops.
+      // (or a pulses_per_rev setting) the tracker must not average. Nothing is trusted until it
+      // stops.
       this.tooFastPulses++;
       this.last = t;
       this.lastIgnored = undefined;
@@ -229,7 +236,8 @@ export class RevolutionTracker {
       const prev = this.lastRevLength;
       this.lastRevLength = len;
       // Averaging assumes the shaft turns evenly within a revolution: a revolution much longer or
-      // shorter than the previous one (a spliced record, a slipping belt) is counted but not averaged.
+      // shorter than the previous one (a spliced record, a slipping belt) is counted but not
+      // averaged.
       if (prev !== undefined && Math.abs(len / prev - 1) > MAX_REV_CHANGE) {
         this.revolutionsRejected++;
         this.unevenRevolutions++;

@@ -4,8 +4,8 @@ import type { SignalFacts } from './signal-facts.js';
  * What the DSP stage hands to the watcher and the outputs: one `WindowResult` per analysis window
  * (a whole recording for `turnwise analyze`, a few seconds of revolutions for the live agent).
  *
- * Units are in the field names. Phase is a lag in degrees, 0-360 of that order's own cycle, from the
- * tach edge (rising through trigger_v) to the positive peak of that order's velocity component.
+ * Units are in the field names. Phase is a lag in degrees, 0-360 of that order's own cycle, from
+ * the tach edge (rising through trigger_v) to the positive peak of that order's velocity component.
  */
 
 export interface OrderVector {
@@ -39,7 +39,9 @@ export interface ChannelStats {
   /** Samples at or beyond the channel's full scale (0 when full_scale_v is not configured). */
   readonly clipped_samples: number;
   readonly samples: number;
-  /** Shape of the signal for the sensor-fault rules (absent in windows written before it existed). */
+  /**
+   * Shape of the signal for the sensor-fault rules (absent in windows written before it existed).
+   */
   readonly signal?: SignalFacts;
 }
 
@@ -50,9 +52,15 @@ export interface ChannelResult {
   readonly bearing: string;
   readonly direction: 'vertical' | 'horizontal' | 'axial';
   readonly mounting_angle_deg: number;
-  /** Broadband velocity r.m.s. in the band of `WindowResult.band_hz`, mm/s; null when no spectrum segment completed. */
+  /**
+   * Broadband velocity r.m.s. in the band of `WindowResult.band_hz`, mm/s; null when no spectrum
+   * segment completed.
+   */
   readonly overall_rms_mm_s: number | null;
-  /** Order vectors keyed by order number as a string ("1", "2", ...); empty when no revolution was averaged. */
+  /**
+   * Order vectors keyed by order number as a string ("1", "2", ...); empty when no revolution was
+   * averaged.
+   */
   readonly orders: Readonly<Record<string, OrderVector>>;
   /** 1x r.m.s. divided by the overall r.m.s. (0-1); null when either is missing. */
   readonly one_x_share: number | null;
@@ -68,7 +76,9 @@ export interface TachSummary {
   readonly missing_pulses: number;
   /** Edges rejected as double triggers (too soon after the previous one). */
   readonly double_triggers: number;
-  /** Min and max of the tach voltage over the window, volts (null when the board timed the tach). */
+  /**
+   * Min and max of the tach voltage over the window, volts (null when the board timed the tach).
+   */
   readonly min_v: number | null;
   readonly max_v: number | null;
 }
@@ -103,9 +113,15 @@ export interface WindowResult {
 export interface LiveFrame {
   /** Sample-clock index of the newest sample seen. */
   readonly sample_index: number;
-  /** Samples per second of that clock (absent in frames made by hand): elapsed sample time between frames, free of wall-clock steps. */
+  /**
+   * Samples per second of that clock (absent in frames made by hand): elapsed sample time between
+   * frames, free of wall-clock steps.
+   */
   readonly sample_rate_hz?: number;
-  /** Speed from the same weighted average of revolution periods, r/min; null before the first revolution. */
+  /**
+   * Speed from the same weighted average of revolution periods, r/min; null before the first
+   * revolution.
+   */
   readonly speed_rpm: number | null;
   /** Effective number of revolutions in the live average (sum of weights). */
   readonly revolutions_weight: number;

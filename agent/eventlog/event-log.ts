@@ -30,7 +30,10 @@ export interface EventLogOptions {
   readonly stateDir: string;
   readonly maxBytes: number;
   readonly log: Logger;
-  /** Lines are written this long after the first one queued, ms (default 200): a burst is one write and one fsync. */
+  /**
+   * Lines are written this long after the first one queued, ms (default 200): a burst is one write
+   * and one fsync.
+   */
   readonly flushMs?: number;
 }
 
@@ -106,7 +109,9 @@ export class EventLog {
         const code = (err as NodeJS.ErrnoException).code ?? String(err);
         this.log.warn(
           { dir: this.dir, error_code: code },
-          `cannot write the event log in ${this.dir} (${code}); events still go to MQTT and the log, but \`turnwise events\` will miss them until this is fixed: check state_dir (space, permissions)`,
+          `cannot write the event log in ${this.dir} (${code}); events ` +
+            `still go to MQTT and the log, but \`turnwise events\` will miss ` +
+            `them until this is fixed: check state_dir (space, permissions)`,
         );
       }
       this.failing = true;
@@ -134,7 +139,9 @@ export interface ReadResult {
   readonly files: string[];
 }
 
-/** Every event in the log, oldest first, with the filters applied. A missing log is an empty one. */
+/**
+ * Every event in the log, oldest first, with the filters applied. A missing log is an empty one.
+ */
 export function readEventLog(
   stateDir: string,
   f: {

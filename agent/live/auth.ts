@@ -22,7 +22,9 @@ export interface LiveToken extends Principal {
   readonly secret: Secret;
 }
 
-/** Shortest token accepted, characters: a token is typed once and kept; it must not be guessable. */
+/**
+ * Shortest token accepted, characters: a token is typed once and kept; it must not be guessable.
+ */
 export const MIN_TOKEN_CHARS = 16;
 /** Longest token looked at; anything longer is refused without hashing it. */
 const MAX_TOKEN_CHARS = 512;
@@ -86,7 +88,8 @@ export function resolveLiveTokens(
     if (value.length < MIN_TOKEN_CHARS) {
       throw new UserError(
         where,
-        `the token of "${t.name}" has ${value.length} characters; at least ${MIN_TOKEN_CHARS} are needed`,
+        `the token of "${t.name}" has ${value.length} characters; ` +
+          `at least ${MIN_TOKEN_CHARS} are needed`,
         'make a random one with `turnwise live make-token FILE`',
       );
     }

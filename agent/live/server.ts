@@ -1,8 +1,8 @@
 /**
- * The technician's page: an HTTP + WebSocket server (node:http or node:https, and ws) that serves the
- * live 1x view and the balancing workbench. It is an output of the agent: it takes live frames and
- * analysis windows from the runtime (LiveConsumer, WindowConsumer) and the watcher's status, and it
- * never touches the measurement path (sending is throttled and skipped for slow clients).
+ * The technician's page: an HTTP + WebSocket server (node:http or node:https, and ws) that serves
+ * the live 1x view and the balancing workbench. It is an output of the agent: it takes live frames
+ * and analysis windows from the runtime (LiveConsumer, WindowConsumer) and the watcher's status,
+ * and it never touches the measurement path (sending is throttled and skipped for slow clients).
  *
  * Access: every API request carries `Authorization: Bearer TOKEN`; a WebSocket sends
  * {"type":"hello","token":"..."} as its first message (or carries the same header). Viewing needs a
@@ -70,15 +70,25 @@ export interface LiveServerOptions {
   readonly clock: Clock;
   /** Hands an event to the outputs (MQTT outbox); called after the job record is saved. */
   readonly emit: (e: AgentEvent) => void | Promise<void>;
-  /** Called after a finished job's influence coefficients were stored (e.g. watcher.reloadCoefficients()). */
+  /**
+   * Called after a finished job's influence coefficients were stored (e.g.
+   * watcher.reloadCoefficients()).
+   */
   readonly onCoefficientsSaved?: () => void;
   /** Where jobs are kept; default FileBalanceStore(config.state_dir). */
   readonly store?: BalanceStore;
-  /** Memory of the runtime's live average, revolutions (AgentRuntime liveRevolutions; default 32). */
+  /**
+   * Memory of the runtime's live average, revolutions (AgentRuntime liveRevolutions; default 32).
+   */
   readonly liveRevolutions?: number;
-  /** Resonances of the last recorded sweep (the workbench warns when balancing inside one's band). */
+  /**
+   * Resonances of the last recorded sweep (the workbench warns when balancing inside one's band).
+   */
   readonly sweepEvidence?: () => SweepEvidence | null;
-  /** The run-up or coast-down going on now (the agent's sweep recorder); pushed to the page at each window. */
+  /**
+   * The run-up or coast-down going on now (the agent's sweep recorder); pushed to the page at each
+   * window.
+   */
   readonly sweepLive?: () => LiveSweep | null;
   /** Directory of the page files; default the package's agent/live/page. */
   readonly pageDir?: string;
@@ -97,7 +107,8 @@ const SECURITY_HEADERS: Record<string, string> = {
   'Referrer-Policy': 'no-referrer',
   'X-Frame-Options': 'DENY',
   'Content-Security-Policy':
-    "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; connect-src 'self'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'",
+    "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; " +
+    "connect-src 'self'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'",
 };
 
 interface Client {
@@ -201,7 +212,10 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     this.routes = this.buildRoutes();
   }
 
-  /** Reads the tokens named in `config.live` and builds the server. UserError when the section is missing or a token is unusable. */
+  /**
+   * Reads the tokens named in `config.live` and builds the server. UserError when the section is
+   * missing or a token is unusable.
+   */
   static fromConfig(
     config: Config,
     deps: Omit<LiveServerOptions, 'config' | 'live' | 'tokens'>,
@@ -273,7 +287,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
           new UserError(
             'live',
             why,
-            'change live.bind or live.port (ports below 1024 need privileges), or stop the program using it',
+            'change live.bind or live.port (ports below ' +
+              '1024 need privileges), or stop the program using it',
           ),
         );
       };
@@ -303,13 +318,17 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     ) {
       logger.warn(
         { bind: live.bind },
-        'the live page is served without TLS beyond this board: tokens cross the network in clear; set live.tls or use a trusted network segment',
+        'the live page is served without TLS beyond this board: tokens cross ' +
+          'the network in clear; set live.tls or use a trusted network segment',
       );
     }
     return { url, port };
   }
 
-  /** Closes every connection and stops listening. A capture in progress is dropped (the run stays declared). */
+  /**
+   * Closes every connection and stops listening. A capture in progress is dropped (the run stays
+   * declared).
+   */
   async stop(): Promise<void> {
     if (this.flushTimer) clearTimeout(this.flushTimer);
     if (this.pingTimer) clearInterval(this.pingTimer);
@@ -339,7 +358,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
     const point = this.view.onWindow(w, atMs);
     this.send({ type: 'trend_point', point });
     const sweep = this.opts.sweepLive?.() ?? null;
-    // While a run-up or coast-down goes on, the page draws it as it happens (and once more when it has ended).
+    // While a run-up or coast-down goes on, the page draws it as it happens (and once more when it
+    // has ended).
     if (sweep || this.sweepShown) this.send({ type: 'sweep_live', sweep });
     this.sweepShown = sweep !== null;
     this.markDirty('live');
@@ -567,7 +587,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
         `no capture file ${id}.${ext}`,
         'GET /api/captures lists the captures; each has a .wav, .yaml and .json',
       );
-    // Only captures whose record is written (complete) are served; the name is rebuilt from a checked id.
+    // Only captures whose record is written (complete) are served; the name is rebuilt from a
+    // checked id.
     if (!listCaptures(this.captureDir).some((c) => c.id === id))
       throw new ApiError(
         404,
@@ -648,7 +669,8 @@ export class LiveServer implements LiveConsumer, WindowConsumer {
           401,
           'unauthorised',
           'missing or wrong token',
-          'send the viewer or operator token as "Authorization: Bearer TOKEN" (the page asks for it)',
+          'send the viewer or operator token as ' +
+            '"Authorization: Bearer TOKEN" (the page asks for it)',
         );
       }
       if (route.act && !mayAct(principal)) {

@@ -47,7 +47,8 @@ function load(file: string): Buffer {
     throw new UserError(
       file,
       `a file of the live page cannot be read (${(e as NodeJS.ErrnoException).code ?? String(e)})`,
-      'reinstall turnwise (npm ci in a source tree, deploy/install.sh on a board): the page is part of the package',
+      'reinstall turnwise (npm ci in a source tree, ' +
+        'deploy/install.sh on a board): the page is part of the package',
     );
   }
 }
@@ -60,7 +61,9 @@ function entry(body: Buffer, ext: string): StaticFile {
   };
 }
 
-/** Every file the page needs, keyed by URL path ("/", "/app.js", "/vendor/uPlot.iife.min.js" ...). */
+/**
+ * Every file the page needs, keyed by URL path ("/", "/app.js", "/vendor/uPlot.iife.min.js" ...).
+ */
 export function loadStaticFiles(pageDir: string = defaultPageDir()): Map<string, StaticFile> {
   const files = new Map<string, StaticFile>();
   for (const name of PAGE_FILES) {

@@ -38,7 +38,9 @@ export interface ChannelView {
 }
 
 export interface LiveSnapshot {
-  /** Sample-clock time of the newest live frame, ms since the epoch; null before the first frame. */
+  /**
+   * Sample-clock time of the newest live frame, ms since the epoch; null before the first frame.
+   */
   readonly at_ms: number | null;
   readonly speed_rpm: number | null;
   /** Seconds since the last trusted revolution. */
@@ -132,7 +134,9 @@ export class LiveView {
   }
 
   /** Records the window's overall values and adds a trend point; returns the point. */
-  /** The latest analysis window and its wall-clock end (for the four-run tool's amplitude reading). */
+  /**
+   * The latest analysis window and its wall-clock end (for the four-run tool's amplitude reading).
+   */
   latestWindow: { readonly window: WindowResult; readonly at_ms: number } | null = null;
 
   onWindow(w: WindowResult, atMs: number): TrendPoint {
@@ -212,7 +216,9 @@ export class LiveView {
   }
 }
 
-/** What the page learns when it connects: who it is, the machine, the defaults for a balancing job. */
+/**
+ * What the page learns when it connects: who it is, the machine, the defaults for a balancing job.
+ */
 export interface SessionView {
   readonly role: Principal['role'];
   readonly token_name: string;
@@ -277,7 +283,8 @@ export function sessionView(
     capture: { revolutions: capture.revolutions, settle_revolutions: capture.settleRevolutions },
     update_hz: live.update_hz,
     phase_convention:
-      'phase is the lag in degrees from the tach edge (reference mark) to the positive peak of the 1x velocity',
+      'phase is the lag in degrees from the tach edge ' +
+      '(reference mark) to the positive peak of the 1x velocity',
     conventions: {
       against_rotation: conventionText('against_rotation'),
       with_rotation: conventionText('with_rotation'),

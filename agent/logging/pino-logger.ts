@@ -19,7 +19,10 @@ import type { Logger } from '../log.js';
 
 export type LogLevel = 'debug' | 'info' | 'warn' | 'error';
 
-/** syslog priority prefix for a pino numeric level (trace 10, debug 20, info 30, warn 40, error 50, fatal 60). */
+/**
+ * syslog priority prefix for a pino numeric level (trace 10, debug 20, info 30, warn 40, error 50,
+ * fatal 60).
+ */
 export function syslogPrefix(pinoLevel: number): string {
   if (pinoLevel >= 60) return '<2>';
   if (pinoLevel >= 50) return '<3>';

@@ -42,7 +42,9 @@ const STOP_WAIT_MS = 2000;
 
 /** What the owner of a connection does at each step of its life. */
 export interface ConnectionSession {
-  /** A connection attempt begins (before the protocol level is chosen): start what is per attempt. */
+  /**
+   * A connection attempt begins (before the protocol level is chosen): start what is per attempt.
+   */
   beginAttempt(): void;
   /** The last-will of the attempt about to be made. */
   will(): NonNullable<IClientOptions['will']>;
@@ -62,7 +64,9 @@ export interface ConnectionWords {
   connected(): { message: string; fields: Record<string, unknown> };
   /** Connected after `failures` failed attempts: the line that ends the "connect" burst. */
   reconnected(failures: number): string;
-  /** Lost (`wasConnected`) or could not connect, because of `reason`; a retry follows with backoff. */
+  /**
+   * Lost (`wasConnected`) or could not connect, because of `reason`; a retry follows with backoff.
+   */
   retrying(wasConnected: boolean, reason: string): string;
   /** The broker does not take MQTT 5 (`reason`); 3.1.1 from now on, for an hour. */
   fallback(reason: string): string;
@@ -93,7 +97,10 @@ export interface BrokerConnectionOptions {
   readonly random: () => number;
 }
 
-/** Why a connection attempt failed or a connection ended, in words with what to do, and a kind for "once per burst". */
+/**
+ * Why a connection attempt failed or a connection ended, in words with what to do, and a kind for
+ * "once per burst".
+ */
 export function describeConnectError(err: unknown): { kind: string; reason: string } {
   const e = err as (Error & { code?: string | number }) | null;
   if (!e) return { kind: 'closed', reason: 'the connection was closed' };
@@ -110,7 +117,9 @@ export function describeConnectError(err: unknown): { kind: string; reason: stri
     return {
       kind: 'not-authorised',
       reason:
-        "the broker refused the login (not authorised): wrong user name or password, or this client is not allowed; check mqtt.username, mqtt.password and the broker's users",
+        'the broker refused the login (not authorised): wrong ' +
+        'user name or password, or this client is not allowed; ' +
+        "check mqtt.username, mqtt.password and the broker's users",
     };
   }
   if (code === 2 || code === 133)
@@ -124,7 +133,8 @@ export function describeConnectError(err: unknown): { kind: string; reason: stri
     return {
       kind: code,
       reason:
-        'nothing accepts connections there (connection refused); is the broker running and the port right?',
+        'nothing accepts connections there (connection ' +
+        'refused); is the broker running and the port right?',
     };
   if (code === 'ENOTFOUND' || code === 'EAI_AGAIN')
     return {
@@ -142,7 +152,9 @@ export function describeConnectError(err: unknown): { kind: string; reason: stri
   ) {
     return {
       kind: `tls-${code}`,
-      reason: `TLS failed (${code}: ${e.message}); check mqtt.tls.ca_file, the name in the broker certificate (mqtt.tls.servername) and the client certificate`,
+      reason:
+        `TLS failed (${code}: ${e.message}); check mqtt.tls.ca_file, the name in ` +
+        `the broker certificate (mqtt.tls.servername) and the client certificate`,
     };
   }
   if (/connack timeout/i.test(e.message))
@@ -238,11 +250,15 @@ export class BrokerConnection {
     return this.tally;
   }
 
-  /** Starts connecting in the background, with the liveness check. Returns at once; the broker may be down. */
+  /**
+   * Starts connecting in the background, with the liveness check. Returns at once; the broker may
+   * be down.
+   */
   start(): void {
     if (this.started) throw new Error('broker connection already started');
     this.started = true;
-    // Before the first packet: mqtt-packet's process-wide caches must not grow over months (packet-cache.ts).
+    // Before the first packet: mqtt-packet's process-wide caches must not grow over months
+    // (packet-cache.ts).
     settleMqttPacketCaches();
     this.livenessTimer = setInterval(() => this.checkLiveness(), 1000);
     this.livenessTimer.unref();
@@ -270,7 +286,10 @@ export class BrokerConnection {
     return true;
   }
 
-  /** Ends client `c` as failed with `err` and reconnects with backoff; false (and nothing done) when `c` is not the current client. */
+  /**
+   * Ends client `c` as failed with `err` and reconnects with backoff; false (and nothing done) when
+   * `c` is not the current client.
+   */
   fail(c: MqttClient, err: unknown): boolean {
     if (c !== this.current) return false;
     this.lastError = err;

@@ -17,7 +17,8 @@ import type { Secret } from './secrets.js';
  * Commands from the plant network. Who may command: whoever knows the command token (read from a
  * file or environment variable, compared in constant time), and — recommended on top — only the
  * users the broker's ACL lets write `<prefix>/<asset>/cmd`. Every command gets exactly one reply
- * on `<prefix>/<asset>/cmd/reply` with its correlation id; nothing a sender writes can crash the agent.
+ * on `<prefix>/<asset>/cmd/reply` with its correlation id; nothing a sender writes can crash the
+ * agent.
  *
  * The work is done by injected handlers (advisory, watcher, balancing); a handler that is not wired
  * answers "unavailable". A handler throws UserError for a refusal the sender can fix ("rejected")
@@ -98,7 +99,8 @@ export class CommandRouter {
       this.counts.refused++;
       this.burst.report(
         'command-refused',
-        `command refused (${reply.error.code}): ${reply.error.message}; the heartbeat counts every refusal`,
+        `command refused (${reply.error.code}): ` +
+          `${reply.error.message}; the heartbeat counts every refusal`,
         { cmd: reply.cmd, id: reply.id },
         reply.error.code,
       );
@@ -122,7 +124,8 @@ export class CommandRouter {
         null,
         null,
         'malformed',
-        `not valid JSON (${(e as Error).message}); send an object like {"id": "...", "token": "...", "cmd": "advisory.ack", "args": {"by": "..."}}`,
+        `not valid JSON (${(e as Error).message}); send an object like {"id": ` +
+          `"...", "token": "...", "cmd": "advisory.ack", "args": {"by": "..."}}`,
       );
     }
     if (!msg || typeof msg !== 'object' || Array.isArray(msg))
@@ -190,7 +193,8 @@ export class CommandRouter {
 
   private authorised(token: unknown): boolean {
     if (typeof token !== 'string' || token.length === 0 || token.length > 512) return false;
-    // Compare fixed-length digests so the time taken says nothing about the token's length or content.
+    // Compare fixed-length digests so the time taken says nothing about the token's length or
+    // content.
     return timingSafeEqual(digest(token), this.tokenDigest);
   }
 

@@ -6,7 +6,10 @@ import type { IConnackPacket, MqttClient } from 'mqtt';
  * for a client that is stuck.
  */
 
-/** MQTT 5 first; 3.1.1 for an hour after a broker said it does not speak 5, then 5 again (a cluster may get upgraded). */
+/**
+ * MQTT 5 first; 3.1.1 for an hour after a broker said it does not speak 5, then 5 again (a cluster
+ * may get upgraded).
+ */
 export class ProtocolChoice {
   private fallbackUntil = -Infinity;
   constructor(private readonly now: () => number) {}
@@ -75,7 +78,8 @@ function varintBytes(n: number): number {
 /**
  * Liveness of one client: stuck when an attempt has neither connected nor closed well after its
  * connect timeout, or when the agent counts it connected but mqtt.js no longer does and no close
- * came (the "disconnecting" state mqtt.js can be left in after some socket errors). Returns why, or null.
+ * came (the "disconnecting" state mqtt.js can be left in after some socket errors). Returns why, or
+ * null.
  */
 export function stuckReason(
   c: MqttClient,
@@ -95,12 +99,18 @@ export function stuckReason(
       : null;
   }
   if (s.lostSinceMs !== null && nowMs - s.lostSinceMs > Math.max(5000, s.keepaliveS * 1500)) {
-    return `the client stopped being connected ${((nowMs - s.lostSinceMs) / 1000).toFixed(0)} s ago${c.disconnecting ? ' and is stuck disconnecting' : ''} without closing`;
+    return (
+      `the client stopped being connected ${((nowMs - s.lostSinceMs) / 1000).toFixed(0)} ` +
+      `s ago${c.disconnecting ? ' and is stuck disconnecting' : ''} without closing`
+    );
   }
   return null;
 }
 
-/** Ends a client at once, whatever state it is in (a stuck client may not even have a socket; mqtt.js then throws). */
+/**
+ * Ends a client at once, whatever state it is in (a stuck client may not even have a socket;
+ * mqtt.js then throws).
+ */
 export function forceEnd(c: MqttClient): void {
   try {
     c.end(true);

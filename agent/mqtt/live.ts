@@ -67,7 +67,8 @@ export function livePayloadFromFrame(
     speed_rpm: f.speed_rpm,
     channels: f.channels.flatMap((ch) => {
       const s = sensors.find((x) => x.id === ch.id);
-      if (!s) return []; // the frame comes from the same config; a stranger is left out rather than guessed
+      // the frame comes from the same config; a stranger is left out rather than guessed
+      if (!s) return [];
       const overall = lastWindow?.channels.find((x) => x.id === ch.id)?.overall_rms_mm_s ?? null;
       return [channelEntry(ch.id, s.bearing, s.direction, overall, ch.orders['1'], verdict)];
     }),

@@ -6,10 +6,10 @@ import { createRequire } from 'node:module';
  * mqtt-packet (the encoder under mqtt.js, 9.0.x) keeps two process-wide caches:
  *
  * - 65536 two-byte Buffers for every 16-bit number (topic lengths, packet ids), built on the first
- *   packet: about 6.5 MB of heap and 10 MB of RSS measured on Node 20. mqtt.js's `writeCache: false`
- *   turns it off (the publisher passes it); it is also switched off here before anything is written,
- *   so the fill below does not build it. A few 2-byte allocations per packet instead cost nothing
- *   at a few messages a second.
+ *   packet: about 6.5 MB of heap and 10 MB of RSS measured on Node 20. mqtt.js's `writeCache:
+ *   false` turns it off (the publisher passes it); it is also switched off here before anything is
+ *   written, so the fill below does not build it. A few 2-byte allocations per packet instead cost
+ *   nothing at a few messages a second.
  * - the 1-4 byte "remaining length" of every packet length below 16384, cached the first time a
  *   packet of that length is written. Each entry is a Buffer.allocUnsafe slice of Node's shared
  *   8 KiB Buffer pool, and a slice keeps its whole pool block alive: met one at a time over days (a
@@ -68,10 +68,14 @@ export function writePublishOfLength(
   );
 }
 
-/** Turns the number cache off and fills the remaining-length cache for every publish length (see above); returns the lengths written. */
+/**
+ * Turns the number cache off and fills the remaining-length cache for every publish length (see
+ * above); returns the lengths written.
+ */
 export function settleMqttPacketCaches(write: PacketWriter = mqttPacketWriter()): number {
   write.cacheNumbers = false;
-  // One un-pooled payload (larger than half the pool), viewed at every length: nothing else takes from the pool.
+  // One un-pooled payload (larger than half the pool), viewed at every length: nothing else takes
+  // from the pool.
   const payload = Buffer.alloc(CACHED_LENGTHS);
   const sink: PacketSink = {
     write: () => true,

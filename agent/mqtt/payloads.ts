@@ -80,7 +80,8 @@ const agentHealth = z
   .object({
     windows: optCount('Analysis windows closed since the agent started.'),
     gaps: optCount(
-      'Gap markers the measurement loop received from the source since the agent started (samples lost before the DSP).',
+      'Gap markers the measurement loop received from the source ' +
+        'since the agent started (samples lost before the DSP).',
     ),
     events: optCount('Events raised since the agent started.'),
     last_window_revolutions: count
@@ -99,7 +100,8 @@ const agentHealth = z
     captures_failed: count
       .optional()
       .describe(
-        'Event captures that could not be written (full disk...); the log says why, once per burst.',
+        'Event captures that could not be written (full ' +
+          'disk...); the log says why, once per burst.',
       ),
     captures_removed: count
       .optional()
@@ -122,7 +124,8 @@ const agentHealth = z
       .nullable()
       .optional()
       .describe(
-        'Mean speed of the last window from the tach channel, r/min; null when no revolution was averaged.',
+        'Mean speed of the last window from the tach channel, ' +
+          'r/min; null when no revolution was averaged.',
       ),
     source_connected: z.boolean().optional().describe('Serial board: the device is open.'),
     source_device: z.string().optional().describe('Serial board: device path.'),
@@ -141,34 +144,39 @@ const agentHealth = z
     source_sequence_anomalies: optCount('Serial board: sequence numbers out of order.'),
     source_clock_restarts: optCount('Serial board: sample clock restarted (board reset).'),
     source_timing_faults: optCount(
-      'Serial board: version 2 frames with an impossible timing declaration (used with the last good one).',
+      'Serial board: version 2 frames with an impossible ' +
+        'timing declaration (used with the last good one).',
     ),
     source_protocol_version: count
       .nullable()
       .optional()
       .describe(
-        'Serial board: protocol version of the last good frame (1, or 2 with a timing declaration); null before the first.',
+        'Serial board: protocol version of the last good frame (1, ' +
+          'or 2 with a timing declaration); null before the first.',
       ),
     source_sample_delay_ticks: z
       .number()
       .nullable()
       .optional()
       .describe(
-        'Serial board: declared ADC delay in use, sample periods; null when not declared (version 1).',
+        'Serial board: declared ADC delay in use, sample ' +
+          'periods; null when not declared (version 1).',
       ),
     source_tach_delay_ticks: z
       .number()
       .nullable()
       .optional()
       .describe(
-        'Serial board: declared delay of the board-timed tach edges, sample periods; null when not declared.',
+        'Serial board: declared delay of the board-timed ' +
+          'tach edges, sample periods; null when not declared.',
       ),
     source_max_skew_ticks: z
       .number()
       .nullable()
       .optional()
       .describe(
-        'Serial board: largest declared channel skew, sample periods (0: all channels simultaneous); null when not declared.',
+        'Serial board: largest declared channel skew, sample periods ' +
+          '(0: all channels simultaneous); null when not declared.',
       ),
     source_tach_mode_mismatches: optCount(
       'Serial board: frames whose tach timing disagrees with acquisition.board_tach_edges.',
@@ -177,7 +185,8 @@ const agentHealth = z
       .nullable()
       .optional()
       .describe(
-        'Serial board: first missing sample index of the last gap (agent sample clock); null before any gap.',
+        'Serial board: first missing sample index of the ' +
+          'last gap (agent sample clock); null before any gap.',
       ),
     source_last_gap_to_index: count
       .nullable()
@@ -212,40 +221,48 @@ const agentHealth = z
       .optional()
       .describe('Serial board: when the last problem happened, ISO 8601 UTC.'),
     time_anchors: optCount(
-      'Times the sample clock was anchored to the wall clock: 1 at start, +1 per board restart or wall-clock step.',
+      'Times the sample clock was anchored to the wall clock: ' +
+        '1 at start, +1 per board restart or wall-clock step.',
     ),
     wall_clock_steps_back: optCount(
-      'Live board: the wall clock stepped back against the sample clock by more than the tolerance (times re-anchored).',
+      'Live board: the wall clock stepped back against the sample ' +
+        'clock by more than the tolerance (times re-anchored).',
     ),
     wall_clock_steps_forward: optCount(
-      'Live board: the wall clock stepped forward against the sample clock for a whole second of samples (times re-anchored).',
+      'Live board: the wall clock stepped forward against the sample ' +
+        'clock for a whole second of samples (times re-anchored).',
     ),
     time_latency_ms: z
       .number()
       .nullable()
       .optional()
       .describe(
-        'Live board: arrival of the last block minus its stamped time, ms; null for recordings and simulations.',
+        'Live board: arrival of the last block minus its ' +
+          'stamped time, ms; null for recordings and simulations.',
       ),
     time_slew_ms: z
       .number()
       .optional()
       .describe(
-        'Live board: correction slewed into the time anchor since it was set, ms (the board crystal against the wall clock).',
+        'Live board: correction slewed into the time anchor since ' +
+          'it was set, ms (the board crystal against the wall clock).',
       ),
     gpio_speed_rpm: z
       .number()
       .nullable()
       .optional()
       .describe(
-        'Speed from the GPIO tach input (gpio.tach_speed), r/min; speed only, never phase; null when unknown.',
+        'Speed from the GPIO tach input (gpio.tach_speed), ' +
+          'r/min; speed only, never phase; null when unknown.',
       ),
     gpio_speed_check: z
       .enum(['agree', 'stopped', 'mismatch', 'tach_lost', 'gpio_silent'])
       .nullable()
       .optional()
       .describe(
-        'GPIO speed against the tach channel at the last window: agree, stopped (neither turns), mismatch (beyond tolerance_pct), tach_lost (tach channel gave no speed, GPIO says it turns), gpio_silent; null before the first window.',
+        'GPIO speed against the tach channel at the last window: agree, stopped ' +
+          '(neither turns), mismatch (beyond tolerance_pct), tach_lost (tach channel ' +
+          'gave no speed, GPIO says it turns), gpio_silent; null before the first window.',
       ),
     gpio_speed_disagreements_total: optCount('Windows judged mismatch, tach_lost or gpio_silent.'),
     gpio_tach_edges_total: optCount('Rising edges seen on the GPIO tach input.'),
@@ -285,7 +302,8 @@ const agentHealth = z
       .optional()
       .describe('MQTT level of the JSON session: 5, or 4 (3.1.1) when the broker does not take 5.'),
     mqtt_refused_too_large_total: optCount(
-      "Messages not sent because they were over the broker's maximum packet size (each event so refused gets an mqtt_payload_refused event).",
+      "Messages not sent because they were over the broker's maximum packet " +
+        'size (each event so refused gets an mqtt_payload_refused event).',
     ),
     mqtt_stuck_replaced_total: optCount(
       'Clients replaced by the liveness check (stuck neither connecting nor closing).',
@@ -322,7 +340,9 @@ const agentHealth = z
   })
   .catchall(healthValue)
   .describe(
-    'Health figures of the other stages: measurement loop, acquisition source (source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory (advisory_*), event log (event_log_*), MQTT sessions (mqtt_*, sparkplug_*).',
+    'Health figures of the other stages: measurement loop, acquisition source ' +
+      '(source_*, whatever fields the source reports), GPIO tach input (gpio_*), advisory ' +
+      '(advisory_*), event log (event_log_*), MQTT sessions (mqtt_*, sparkplug_*).',
   );
 
 export const heartbeatPayload = z
@@ -354,7 +374,8 @@ export const eventPayload = z
     severity,
   })
   .describe(
-    '<prefix>/<asset>/event/<type>, QoS 1, from the durable outbox. Further fields depend on the type.',
+    '<prefix>/<asset>/event/<type>, QoS 1, from the ' +
+      'durable outbox. Further fields depend on the type.',
   );
 
 /** Fields the advisory adds to the envelope (types advisory_*). */
@@ -373,7 +394,8 @@ export const advisoryEventPayload = eventPayload
     state: z
       .enum(['normal', 'raised', 'acknowledged', 'latched'])
       .describe(
-        'normal: outputs energised; raised: condition met, not acknowledged; acknowledged: condition still met; latched: condition gone, waiting for acknowledgement.',
+        'normal: outputs energised; raised: condition met, not acknowledged; acknowledged: ' +
+          'condition still met; latched: condition gone, waiting for acknowledgement.',
       ),
     outputs_energised: z.boolean().describe('Relay and lamp energised (true = all well).'),
     message: z.string(),
@@ -384,7 +406,8 @@ export const advisoryEventPayload = eventPayload
       .array(z.string())
       .optional()
       .describe(
-        'Bearings with fewer OK voting channels than advisory.min_channels: the advisory cannot be raised for them.',
+        'Bearings with fewer OK voting channels than ' +
+          'advisory.min_channels: the advisory cannot be raised for them.',
       ),
   })
   .describe('Advisory events (a subset of turnwise.event.v1).');
@@ -485,7 +508,8 @@ export const commandPayload = z
       .object({ ...commandEnvelope, cmd: z.literal('capture.take'), args: noArgs })
       .strict()
       .describe(
-        'Writes an event capture (raw samples around now) under state_dir/captures; the reply names its id.',
+        'Writes an event capture (raw samples around now) ' +
+          'under state_dir/captures; the reply names its id.',
       ),
     z
       .object({

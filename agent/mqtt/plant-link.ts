@@ -55,11 +55,17 @@ export interface PlantLink {
   publishLive(build: () => LivePayload): boolean;
   /** Waits until every queued event is acknowledged (true) or the timeout passes (false). */
   drain(timeoutMs: number): Promise<boolean>;
-  /** Publishes the "stopped" status, disconnects, finishes file work. Returns events lost because they were only in memory. */
+  /**
+   * Publishes the "stopped" status, disconnects, finishes file work. Returns events lost because
+   * they were only in memory.
+   */
   close(): Promise<number>;
 }
 
-/** Opens the outbox and starts publishing. Throws UserError for configuration mistakes (secrets, certificates, state_dir). */
+/**
+ * Opens the outbox and starts publishing. Throws UserError for configuration mistakes (secrets,
+ * certificates, state_dir).
+ */
 export async function openPlantLink(o: PlantLinkOptions): Promise<PlantLink> {
   const settings = resolveMqttSettings(o.mqtt, o.asset, o.env);
   const now = o.now ?? Date.now;
@@ -111,7 +117,8 @@ export async function openPlantLink(o: PlantLinkOptions): Promise<PlantLink> {
   let node: SparkplugNode | null = null;
   let spOutbox: Outbox | null = null;
   if (sp) {
-    // Its own outbox: an event leaves it when written to the Sparkplug session (QoS 0), independently of the JSON topic's PUBACKs.
+    // Its own outbox: an event leaves it when written to the Sparkplug session (QoS 0),
+    // independently of the JSON topic's PUBACKs.
     spOutbox = await Outbox.open({
       dir: join(o.stateDir, 'sparkplug-outbox'),
       maxEvents: ob.maxEvents,
@@ -121,7 +128,8 @@ export async function openPlantLink(o: PlantLinkOptions): Promise<PlantLink> {
       onNotice: (n) =>
         o.log.warn(
           { notice: n.kind },
-          `Sparkplug outbox: ${String(eventFromNotice(n, o.asset, new Date(now()).toISOString(), randomUUID()).message)}`,
+          `Sparkplug outbox: ` +
+            `${String(eventFromNotice(n, o.asset, new Date(now()).toISOString(), randomUUID()).message)}`,
         ),
     });
     node = new SparkplugNode({

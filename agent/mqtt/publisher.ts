@@ -28,8 +28,8 @@ export { describeConnectError, type ConnectFn } from './broker-connection.js';
  * - a publish not acknowledged within `publishTimeoutMs` tears the connection down and rebuilds it;
  * - MQTT 5 where the broker speaks it (3.1.1 otherwise): the window shrinks to the broker's Receive
  *   Maximum, a message over its Maximum Packet Size is refused here with an event (never sent to be
- *   dropped by the broker, never silently lost), live and heartbeat messages carry a message expiry,
- *   and a command's response topic and correlation data are honoured;
+ *   dropped by the broker, never silently lost), live and heartbeat messages carry a message
+ *   expiry, and a command's response topic and correlation data are honoured;
  * - a liveness check replaces a client that is stuck neither connecting nor closing;
  * - nothing here is awaited by the sampling path: `queueEvent` and `publishLive` return at once.
  * The connection itself (attempts, protocol level, broker limits, backoff, liveness, orderly stop)
@@ -104,7 +104,8 @@ export class MqttPublisher {
     this.burst = new BurstLog(opts.log, { nowMs: this.now, quietMs: Infinity });
     const s = this.s;
     const backoff = () =>
-      `with backoff (${s.reconnectMinMs / 1000} s up to ${s.reconnectMaxMs / 1000} s); events wait in the outbox`;
+      `with backoff (${s.reconnectMinMs / 1000} s up to ` +
+      `${s.reconnectMaxMs / 1000} s); events wait in the outbox`;
     this.conn = new BrokerConnection({
       settings: s,
       clientId: s.clientId,
@@ -135,7 +136,9 @@ export class MqttPublisher {
             ? `lost the connection to ${s.url}: ${reason}; reconnecting ${backoff()}`
             : `cannot connect to ${s.url}: ${reason}; retrying ${backoff()}`,
         fallback: (reason) =>
-          `the broker at ${s.url} does not take MQTT 5 (${reason}); using MQTT 3.1.1 (no message expiry, no response topics, no broker limits) and trying 5 again in an hour`,
+          `the broker at ${s.url} does not take MQTT 5 (${reason}); ` +
+          `using MQTT 3.1.1 (no message expiry, no response topics, ` +
+          `no broker limits) and trying 5 again in an hour`,
       },
     });
   }
@@ -216,7 +219,10 @@ export class MqttPublisher {
     };
   }
 
-  /** What the broker said it takes (MQTT 5 CONNACK), the protocol level of this connection, and the window in force. */
+  /**
+   * What the broker said it takes (MQTT 5 CONNACK), the protocol level of this connection, and the
+   * window in force.
+   */
   linkInfo(): {
     protocol_version: 4 | 5;
     receive_maximum: number | null;
@@ -247,7 +253,10 @@ export class MqttPublisher {
   /** True (and said once per burst) when a message would pass the broker's Maximum Packet Size. */
   private tooLarge(topic: string, payloadBytes: number, qos: number, what: string): boolean {
     return this.conn.tooLarge(topic, payloadBytes, qos, 16, (size, max) => ({
-      message: `a ${what} message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (the broker would drop the connection). Raise the broker's max_packet_size or send less`,
+      message:
+        `a ${what} message to ${topic} would be ${size} bytes, over the broker's ` +
+        `maximum packet size of ${max} bytes; not sent (the broker would drop ` +
+        `the connection). Raise the broker's max_packet_size or send less`,
       kind: what,
     }));
   }
@@ -305,7 +314,10 @@ export class MqttPublisher {
           receive_maximum: limits.receiveMaximum,
           maximum_packet_size: limits.maximumPacketSize,
         },
-        `broker limits (MQTT ${this.protoVersion === 5 ? '5' : '3.1.1'}): receive maximum ${limits.receiveMaximum ?? 'not given'}, maximum packet size ${limits.maximumPacketSize ?? 'not given'}; events in flight at most ${this.window()}`,
+        `broker limits (MQTT ${this.protoVersion === 5 ? '5' : '3.1.1'}): ` +
+          `receive maximum ${limits.receiveMaximum ?? 'not given'}, maximum ` +
+          `packet size ${limits.maximumPacketSize ?? 'not given'}; events ` +
+          `in flight at most ${this.window()}`,
       );
     }
   }
@@ -322,7 +334,8 @@ export class MqttPublisher {
         if (err || granted?.some((g) => g.qos === 128)) {
           this.burst.report(
             'subscribe',
-            `the broker refused the subscription to ${this.s.topics.cmd}; commands will not arrive (check the broker ACL)`,
+            `the broker refused the subscription to ${this.s.topics.cmd}; ` +
+              `commands will not arrive (check the broker ACL)`,
           );
         }
       });
@@ -337,7 +350,9 @@ export class MqttPublisher {
     this.inflight.clear();
   }
 
-  /** Feeds the client from the outbox, in order, keeping at most `inflightWindow` unacknowledged. */
+  /**
+   * Feeds the client from the outbox, in order, keeping at most `inflightWindow` unacknowledged.
+   */
   private pump(): void {
     const c = this.client;
     if (!this.connected || !c) return;
@@ -369,7 +384,8 @@ export class MqttPublisher {
   /**
    * An event the broker cannot take (over its maximum packet size): it leaves the outbox (it would
    * block every later event) and a small event says which one, how big and the limit; the event
-   * itself stays in the event log under state_dir (turnwise events). An alarm's refusal is an alarm.
+   * itself stays in the event log under state_dir (turnwise events). An alarm's refusal is an
+   * alarm.
    */
   private refuseEvent(ev: {
     seq: number;
@@ -387,7 +403,10 @@ export class MqttPublisher {
       asset: this.asset,
       type: 'mqtt_payload_refused',
       severity: ev.severity === 'alarm' ? 'alarm' : 'warning',
-      message: `event ${ev.id} (${ev.type}, ${bytes} bytes) is over the broker's maximum packet size (${max} bytes) and was not published; it is kept in the agent's event log (turnwise events). Raise the broker's max_packet_size`,
+      message:
+        `event ${ev.id} (${ev.type}, ${bytes} bytes) is over the broker's maximum ` +
+        `packet size (${max} bytes) and was not published; it is kept in the ` +
+        `agent's event log (turnwise events). Raise the broker's max_packet_size`,
       refused_id: ev.id,
       refused_type: ev.type,
       payload_bytes: bytes,
@@ -402,7 +421,8 @@ export class MqttPublisher {
       c,
       Object.assign(
         new Error(
-          `an event was not acknowledged within ${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`,
+          `an event was not acknowledged within ` +
+            `${this.s.publishTimeoutMs / 1000} s (mqtt.publish_timeout_s)`,
         ),
         { code: 'PUBLISH_TIMEOUT' },
       ),
@@ -411,13 +431,15 @@ export class MqttPublisher {
 
   private onMessage(c: MqttClient, topic: string, payload: Buffer, packet?: IPublishPacket): void {
     if (c !== this.client || topic !== this.s.topics.cmd || !this.commands) return;
-    // MQTT 5 request/response: the reply goes to the sender's response topic with its correlation data.
+    // MQTT 5 request/response: the reply goes to the sender's response topic with its correlation
+    // data.
     const rt = packet?.properties?.responseTopic;
     const responseTopic =
       typeof rt === 'string' && rt.length > 0 && rt.length <= 512 && !/[+#]/.test(rt) ? rt : null;
     const correlationData = packet?.properties?.correlationData;
     void this.commands.handle(payload).then((reply) => {
-      // Replies are not durable: a sender that loses the connection asks again (same id, same reply).
+      // Replies are not durable: a sender that loses the connection asks again (same id, same
+      // reply).
       if (c !== this.client || !this.connected) return;
       const to = responseTopic ?? this.s.topics.cmdReply;
       const body = JSON.stringify(reply);

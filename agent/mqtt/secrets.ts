@@ -57,7 +57,8 @@ export function readSecretFile(file: string, where: string): Buffer {
   if (mode & 0o077) {
     throw new UserError(
       where,
-      `secret file ${file} is open to group or others (mode ${mode.toString(8).padStart(4, '0')}); refusing to use it`,
+      `secret file ${file} is open to group or others (mode ` +
+        `${mode.toString(8).padStart(4, '0')}); refusing to use it`,
       `run: chmod 600 ${file}   (and chown it to the user the agent runs as)`,
     );
   }
@@ -89,7 +90,8 @@ export function resolveSecret(
       throw new UserError(
         `${where}.env`,
         `environment variable ${ref.env} is not set or empty`,
-        `set ${ref.env} in the service environment (e.g. an EnvironmentFile= readable by root only)`,
+        `set ${ref.env} in the service environment (e.g. ` +
+          `an EnvironmentFile= readable by root only)`,
       );
     text = v;
   } else {

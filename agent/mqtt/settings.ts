@@ -5,7 +5,10 @@ import { UserError } from '../errors.js';
 import { readSecretFile, resolveSecret, Secret } from './secrets.js';
 import { topicsFor, type Topics } from './topics.js';
 
-/** Everything the publisher needs, with files read and secrets resolved. Secrets print as "[redacted]". */
+/**
+ * Everything the publisher needs, with files read and secrets resolved. Secrets print as
+ * "[redacted]".
+ */
 export interface MqttSettings {
   readonly url: string;
   readonly clientId: string;

@@ -90,7 +90,10 @@ export interface OutboxHealth {
   readonly store_failures_total: number;
 }
 
-/** 'durable': on disk. 'memory': the disk refused it, kept in memory. 'dropped': given up to stay within bounds. */
+/**
+ * 'durable': on disk. 'memory': the disk refused it, kept in memory. 'dropped': given up to stay
+ * within bounds.
+ */
 export type AddOutcome = 'durable' | 'memory' | 'dropped';
 
 type EntryState = 'saving' | 'durable' | 'memory';
@@ -267,9 +270,10 @@ export class Outbox {
 
   /**
    * Queues an event. Never rejects and never waits on the network: the promise settles once the
-   * event is on disk ('durable'), held in memory because the disk refused it ('memory'), or given up
-   * under the size policy ('dropped', never for an alarm). Callers on the sampling path may ignore it.
-   * Throws only for a programming error (no id/type/severity, not serialisable, too large).
+   * event is on disk ('durable'), held in memory because the disk refused it ('memory'), or given
+   * up under the size policy ('dropped', never for an alarm). Callers on the sampling path may
+   * ignore it. Throws only for a programming error (no id/type/severity, not serialisable, too
+   * large).
    */
   add(event: AgentEvent): Promise<AddOutcome> {
     if (this.closed) throw new Error('outbox is closed');
@@ -280,7 +284,8 @@ export class Outbox {
       !(event.severity in RANK)
     ) {
       throw new Error(
-        `outbox.add: event needs a string id, a type and a severity (got id=${String(event.id)}, type=${String(event.type)})`,
+        `outbox.add: event needs a string id, a type and a severity ` +
+          `(got id=${String(event.id)}, type=${String(event.type)})`,
       );
     }
     const json = JSON.stringify(event);
@@ -463,7 +468,8 @@ export class Outbox {
 
   /**
    * The broker acknowledged this event (PUBACK): forget it and delete its file. Deleting is not
-   * fsynced; if power fails before the unlink reaches the disk, the event is sent again with the same id.
+   * fsynced; if power fails before the unlink reaches the disk, the event is sent again with the
+   * same id.
    */
   ack(seq: number): void {
     const entry = this.entries.get(seq);
@@ -484,7 +490,9 @@ export class Outbox {
     }
   }
 
-  /** Calls `fn` whenever new events become sendable or the outbox empties. Returns an unsubscribe. */
+  /**
+   * Calls `fn` whenever new events become sendable or the outbox empties. Returns an unsubscribe.
+   */
   onChange(fn: () => void): () => void {
     this.listeners.add(fn);
     return () => this.listeners.delete(fn);
@@ -519,7 +527,10 @@ export class Outbox {
     } while (c !== this.chain);
   }
 
-  /** Finishes queued file work and stops retrying. Returns how many pending events exist only in memory (lost at exit). */
+  /**
+   * Finishes queued file work and stops retrying. Returns how many pending events exist only in
+   * memory (lost at exit).
+   */
   async close(): Promise<number> {
     await this.settled();
     this.closed = true;

@@ -8,7 +8,8 @@ import type { AgentEvent } from '../events.js';
  *   <the event as JSON, exactly the bytes that are published>\n
  *
  * The header makes a torn or damaged file detectable: a wrong magic, a length that does not match,
- * a checksum that does not match, JSON that does not parse, or an envelope without id/type/severity.
+ * a checksum that does not match, JSON that does not parse, or an envelope without
+ * id/type/severity.
  */
 const MAGIC = 'twob1';
 const SEVERITIES = new Set(['info', 'warning', 'alarm']);

@@ -13,7 +13,10 @@ export function fmtVel(mmPerS: number | null | undefined, units: DisplayUnits): 
   return toDisplay(mmPerS, units).toFixed(units === 'in/s' ? 3 : 2);
 }
 
-/** Rounds to a number of decimals for JSON output (keeps JSON readable, far finer than the accuracy). */
+/**
+ * Rounds to a number of decimals for JSON output (keeps JSON readable, far finer than the
+ * accuracy).
+ */
 export function round(x: number | null | undefined, decimals: number): number | null {
   if (x == null || !Number.isFinite(x)) return null;
   const f = 10 ** decimals;

@@ -38,7 +38,10 @@ export interface AgentOptions {
   readonly boardTimesTach: boolean;
   readonly clock: Clock;
   readonly logger: Logger;
-  /** GPIO lines for the advisory and the GPIO tach input; required when the config has `advisory` or `gpio.tach_speed`. */
+  /**
+   * GPIO lines for the advisory and the GPIO tach input; required when the config has `advisory` or
+   * `gpio.tach_speed`.
+   */
   readonly gpio?: GpioLines;
   /** Further consumers (the live page). */
   readonly windowConsumers?: readonly WindowConsumer[];
@@ -79,7 +82,9 @@ export class Agent {
   private lastStatus: WatchStatus | null = null;
   private events = 0;
   private readonly early: AgentEvent[] = [];
-  /** The watcher's clock follows the sample clock, so events carry the time their data was measured. */
+  /**
+   * The watcher's clock follows the sample clock, so events carry the time their data was measured.
+   */
   private readonly dataClock: ManualClock;
 
   constructor(private readonly o: AgentOptions) {
@@ -222,7 +227,10 @@ export class Agent {
     };
   }
 
-  /** MQTT session facts for the heartbeat: protocol level, refusals, stuck clients, and the Sparkplug node's state. */
+  /**
+   * MQTT session facts for the heartbeat: protocol level, refusals, stuck clients, and the
+   * Sparkplug node's state.
+   */
   private linkHealth(): Record<string, number | boolean | null> {
     if (!this.link) return {};
     const i = this.link.publisher.linkInfo();
@@ -246,7 +254,10 @@ export class Agent {
     return out;
   }
 
-  /** Opens outputs, runs until the source ends or stop(), then drains the outbox for at most `drainMs`. */
+  /**
+   * Opens outputs, runs until the source ends or stop(), then drains the outbox for at most
+   * `drainMs`.
+   */
   async run(drainMs = 5000): Promise<AgentSummary> {
     const cfg = this.o.config;
     const log = this.o.logger;
@@ -290,11 +301,13 @@ export class Agent {
     }
     let summary: RunSummary;
     try {
-      // Opened before the advisory energises its outputs, so a refused input line leaves them untouched.
+      // Opened before the advisory energises its outputs, so a refused input line leaves them
+      // untouched.
       if (cfg.gpio?.tach_speed) {
         if (!this.o.gpio)
           throw new Error('gpio.tach_speed configured but no GPIO lines were given');
-        // Speed cross-check only: GPIO edges are timed by the wall clock, far too coarsely for phase.
+        // Speed cross-check only: GPIO edges are timed by the wall clock, far too coarsely for
+        // phase.
         this.gpioSpeed = await GpioSpeedCheck.open({
           config: cfg.gpio.tach_speed,
           tach: cfg.tach,

@@ -38,7 +38,10 @@ export interface AssemblyOptions extends AssemblyFactories {
   readonly config: Config;
   readonly clock: Clock;
   readonly logger: Logger;
-  /** Where secrets named in the config are looked up (live tokens, MQTT credentials); default process.env. */
+  /**
+   * Where secrets named in the config are looked up (live tokens, MQTT credentials); default
+   * process.env.
+   */
   readonly env?: NodeJS.ProcessEnv;
   readonly agentVersion?: string;
   /** Wall-clock time of sample 0 (simulations that start on a given day), ms. */
@@ -57,13 +60,17 @@ export interface Assembly {
   readonly agent: Agent;
   /** The live page's server; null when the config has no `live` section. */
   readonly live: LiveServer | null;
-  /** Listens for the page when there is one; resolves with its URL (null without a live section). */
+  /**
+   * Listens for the page when there is one; resolves with its URL (null without a live section).
+   */
   startLive(): Promise<string | null>;
   /** Closes the page's connections and stops listening (nothing to do without one). */
   stopLive(): Promise<void>;
 }
 
-/** Builds the agent, the live server and their links. UserError when the live tokens are unusable. */
+/**
+ * Builds the agent, the live server and their links. UserError when the live tokens are unusable.
+ */
 export async function assemble(o: AssemblyOptions): Promise<Assembly> {
   const cfg = o.config;
   const gpio = await o.openGpio(cfg);

@@ -40,7 +40,8 @@ export function loadGuardedConfig(file: string, lastGood: string): GuardedConfig
   } catch (e) {
     if (!isUserError(e)) throw e;
     const fallback = fallbackConfig(file, lastGood, e);
-    if (!fallback) throw e; // no usable last-good copy: the original error is what the user must see
+    // no usable last-good copy: the original error is what the user must see
+    if (!fallback) throw e;
     return fallback;
   }
 }

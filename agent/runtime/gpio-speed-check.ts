@@ -5,7 +5,8 @@
  * (about a millisecond of jitter, about 9 degrees at 1480 r/min), so nothing here reaches the DSP.
  * Once per analysis window the GPIO speed is compared with the revolution speeds the tach channel
  * measured in that window; a disagreement, a tach channel that lost the pulse while the GPIO input
- * says the fan turns, or a silent GPIO input while the tach channel turns, is logged once per burst.
+ * says the fan turns, or a silent GPIO input while the tach channel turns, is logged once per
+ * burst.
  */
 import { GpioTachSpeed, PulseSpeed } from '../../drivers/gpio/tach-speed.js';
 import type { GpioLines } from '../../drivers/gpio/types.js';
@@ -18,7 +19,8 @@ import type { Logger } from '../log.js';
 /**
  * agree: both speeds known and within the tolerance; stopped: neither input sees the fan turn;
  * mismatch: both known but too far apart; tach_lost: the tach channel gave no speed while the
- * GPIO input says the fan turns; gpio_silent: the GPIO input gives no speed while the tach channel does.
+ * GPIO input says the fan turns; gpio_silent: the GPIO input gives no speed while the tach channel
+ * does.
  */
 export type SpeedCheckState = 'agree' | 'stopped' | 'mismatch' | 'tach_lost' | 'gpio_silent';
 
@@ -46,13 +48,18 @@ export function judgeGpioSpeed(
   if (tach === null) {
     return {
       state: 'tach_lost',
-      detail: `the tach channel gave no speed in this window, but the GPIO tach input says the fan turns at ${f1(gpioRpm!)} r/min: check the tach pickup, its cable and tach.trigger_v`,
+      detail:
+        `the tach channel gave no speed in this window, but the GPIO ` +
+        `tach input says the fan turns at ${f1(gpioRpm!)} r/min: ` +
+        `check the tach pickup, its cable and tach.trigger_v`,
     };
   }
   if (gpioRpm === null) {
     return {
       state: 'gpio_silent',
-      detail: `the GPIO tach input gives no speed while the tach channel measures ${f1(tach)} r/min: check the GPIO pickup, its wiring and gpio.tach_speed.line`,
+      detail:
+        `the GPIO tach input gives no speed while the tach channel measures ` +
+        `${f1(tach)} r/min: check the GPIO pickup, its wiring and gpio.tach_speed.line`,
     };
   }
   const lo = (w.speed_min_rpm ?? tach) * (1 - tolerancePct / 100);
@@ -66,8 +73,10 @@ export function judgeGpioSpeed(
   return {
     state: 'mismatch',
     detail:
-      `the GPIO tach input says ${f1(gpioRpm)} r/min, the tach channel ${f1(tach)} r/min${range}: ${pct > 0 ? '+' : ''}${pct.toFixed(1)} %, ` +
-      `beyond gpio.tach_speed.tolerance_pct (${tolerancePct} %); check tach.pulses_per_rev, gpio.tach_speed.pulses_per_rev and both pickups`,
+      `the GPIO tach input says ${f1(gpioRpm)} r/min, the tach channel ` +
+      `${f1(tach)} r/min${range}: ${pct > 0 ? '+' : ''}${pct.toFixed(1)} %, ` +
+      `beyond gpio.tach_speed.tolerance_pct (${tolerancePct} %); check ` +
+      `tach.pulses_per_rev, gpio.tach_speed.pulses_per_rev and both pickups`,
   };
 }
 
@@ -117,7 +126,10 @@ export class GpioSpeedCheck {
     return this.input.rpm(this.o.nowMs());
   }
 
-  /** Compares with the window just closed; logs the first of a burst of disagreements and when it ends. */
+  /**
+   * Compares with the window just closed; logs the first of a burst of disagreements and when it
+   * ends.
+   */
   onWindow(w: WindowResult): SpeedVerdict {
     const gpioRpm = this.rpm();
     const v = judgeGpioSpeed(w, gpioRpm, this.o.config.tolerance_pct);

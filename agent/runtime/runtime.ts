@@ -11,11 +11,11 @@ import { SampleTimeline, type TimelineHealth } from './sample-time.js';
  * The agent's main loop: source -> DSP -> window consumers (watcher, outputs) and live consumers.
  *
  * Time inside the loop is the sample clock: a window closes every `windowSeconds` of samples and a
- * live frame goes out every `liveSeconds` of samples, so a recording or a simulation run faster than
- * real time behaves exactly as the live fan would. The wall-clock time of a sample comes from the
- * sample clock anchored to the wall clock (`SampleTimeline`): for a live board at the arrival of the
- * first block after every start of the agent or restart of the board, then slewed and checked for
- * wall-clock steps; for recordings and simulations at the source's start time.
+ * live frame goes out every `liveSeconds` of samples, so a recording or a simulation run faster
+ * than real time behaves exactly as the live fan would. The wall-clock time of a sample comes from
+ * the sample clock anchored to the wall clock (`SampleTimeline`): for a live board at the arrival
+ * of the first block after every start of the agent or restart of the board, then slewed and
+ * checked for wall-clock steps; for recordings and simulations at the source's start time.
  */
 
 export interface WindowConsumer {
@@ -46,7 +46,10 @@ export interface RuntimeOptions {
   readonly liveConsumers: readonly LiveConsumer[];
   /** Wall-clock time of sample 0, ms; default: the clock when the source opened. */
   readonly startMs?: number;
-  /** Seconds of (simulated) calendar per second of samples: a simulation at time_scale 3600 plays an hour a second. */
+  /**
+   * Seconds of (simulated) calendar per second of samples: a simulation at time_scale 3600 plays an
+   * hour a second.
+   */
   readonly timeScale?: number;
   /** True when blocks carry board-timed tach edges. */
   readonly boardTimesTach?: boolean;
@@ -56,9 +59,14 @@ export interface RuntimeOptions {
     timeOf: (index: number) => number,
     maxBlock: number,
   ) => RawTap;
-  /** Built once the source is open: sees every trusted revolution (the sweep recorder's speed points). */
+  /**
+   * Built once the source is open: sees every trusted revolution (the sweep recorder's speed
+   * points).
+   */
   readonly revolutionTap?: (info: SourceInfo, timeOf: (index: number) => number) => RevolutionTap;
-  /** A live block later or earlier than its stamped time by more than this is a wall-clock step, ms. */
+  /**
+   * A live block later or earlier than its stamped time by more than this is a wall-clock step, ms.
+   */
   readonly clockStepToleranceMs?: number;
 }
 
@@ -92,7 +100,10 @@ export class AgentRuntime {
     return this.timeline?.health() ?? null;
   }
 
-  /** Runs until the source ends or stop() is called; rejects only on programming errors or a failing consumer. */
+  /**
+   * Runs until the source ends or stop() is called; rejects only on programming errors or a failing
+   * consumer.
+   */
   async run(): Promise<RunSummary> {
     const { source, config, clock, logger } = this.opts;
     const info = await source.open();

@@ -42,11 +42,16 @@ export type TimeStepKind = 'wall_clock_back' | 'wall_clock_forward' | 'board_res
 
 /** Counters for the heartbeat; field names carry their units. */
 export type TimelineHealth = {
-  /** Times the sample clock was anchored to the wall clock (1 at start, +1 per board restart or wall-clock step). */
+  /**
+   * Times the sample clock was anchored to the wall clock (1 at start, +1 per board restart or
+   * wall-clock step).
+   */
   readonly time_anchors: number;
   readonly wall_clock_steps_back: number;
   readonly wall_clock_steps_forward: number;
-  /** Latency of the last block: wall-clock arrival minus its stamped time, ms (live boards only). */
+  /**
+   * Latency of the last block: wall-clock arrival minus its stamped time, ms (live boards only).
+   */
   readonly time_latency_ms: number | null;
   /** Total slew applied since the last anchoring, ms (positive: the board's clock runs slow). */
   readonly time_slew_ms: number;
@@ -65,7 +70,10 @@ export class SampleTimeline {
   /** Least latency in the current slew span, and the span's end index. */
   private spanMin = Infinity;
   private spanEnd = 0;
-  /** Forward-step candidate: least latency since the first block later than the tolerance, and where it began. */
+  /**
+   * Forward-step candidate: least latency since the first block later than the tolerance, and where
+   * it began.
+   */
   private lateSince: number | null = null;
   private lateMin = Infinity;
   private anchors = 0;
@@ -121,7 +129,8 @@ export class SampleTimeline {
       if (restart)
         this.opts.onStep?.(
           'board_restart',
-          "the board's sample clock restarted; times anchored again to the wall clock at its first frame",
+          "the board's sample clock restarted; times anchored " +
+            'again to the wall clock at its first frame',
           0,
         );
       this.lastLatency = 0;
@@ -134,7 +143,8 @@ export class SampleTimeline {
       this.anchor(endIndex, arrivedMs);
       this.opts.onStep?.(
         'wall_clock_back',
-        `the wall clock is ${(-lat / 1000).toFixed(3)} s behind the board's sample clock (stepped back: NTP or a manual setting?); times anchored again, sampling goes on`,
+        `the wall clock is ${(-lat / 1000).toFixed(3)} s behind the board's sample clock ` +
+          `(stepped back: NTP or a manual setting?); times anchored again, sampling goes on`,
         lat,
       );
       this.lastLatency = 0;
@@ -152,7 +162,9 @@ export class SampleTimeline {
         this.anchor(idx, at);
         this.opts.onStep?.(
           'wall_clock_forward',
-          `the wall clock is ${(step / 1000).toFixed(3)} s ahead of the board's sample clock for a whole second of samples (stepped forward: NTP or a manual setting?); times anchored again, sampling goes on`,
+          `the wall clock is ${(step / 1000).toFixed(3)} s ahead of the board's ` +
+            `sample clock for a whole second of samples (stepped forward: NTP or ` +
+            `a manual setting?); times anchored again, sampling goes on`,
           step,
         );
         this.lastLatency = lat - step;

@@ -18,7 +18,8 @@ export function startChecks(cfg: Config): void {
   if (2 * maxOrder >= cfg.dsp.resample_points) {
     throw new UserError(
       'dsp.resample_points',
-      `${cfg.dsp.resample_points} points per revolution cannot resolve order ${maxOrder}${cfg.machine.blades === maxOrder ? ' (blade pass, machine.blades)' : ''}`,
+      `${cfg.dsp.resample_points} points per revolution cannot resolve order ` +
+        `${maxOrder}${cfg.machine.blades === maxOrder ? ' (blade pass, machine.blades)' : ''}`,
       `raise dsp.resample_points above ${2 * maxOrder}`,
     );
   }

@@ -46,7 +46,10 @@ for line in iter(sys.stdin.buffer.readline, b""):
         sys.stderr.flush()
 `;
 
-/** Half of WATCHDOG_USEC in ms, or null when there is no watchdog for this process (sd_watchdog_enabled(3)). */
+/**
+ * Half of WATCHDOG_USEC in ms, or null when there is no watchdog for this process
+ * (sd_watchdog_enabled(3)).
+ */
 export function watchdogPingMsFromEnv(env: NodeJS.ProcessEnv, pid: number): number | null {
   const usec = env.WATCHDOG_USEC;
   if (!usec) return null;
@@ -74,7 +77,9 @@ export function createServiceNotifier(opts: SystemdNotifierOptions): ServiceNoti
   if (!socketName.startsWith('/') && !socketName.startsWith('@')) {
     opts.logger.error(
       { notify_socket: socketName },
-      'NOTIFY_SOCKET is neither a path nor an abstract socket name; systemd will not hear from the agent and will restart it after its start timeout. Run it from the shipped unit file (deploy/turnwise.service)',
+      'NOTIFY_SOCKET is neither a path nor an abstract socket name; systemd ' +
+        'will not hear from the agent and will restart it after its start ' +
+        'timeout. Run it from the shipped unit file (deploy/turnwise.service)',
     );
     return new NoopNotifier();
   }
@@ -225,7 +230,9 @@ export class SystemdNotifier implements ServiceNotifier {
     const delayMs = Math.min(60_000, 1000 * 2 ** (this.failures - 1));
     const fields = { reason: why, python: this.python, retry_in_s: delayMs / 1000 };
     const msg =
-      'the sd_notify relay stopped: systemd hears nothing from the agent until it is back, and restarts the service when its watchdog runs out. Check that python3 is installed (deploy/install.sh installs it)';
+      'the sd_notify relay stopped: systemd hears nothing from the agent ' +
+      'until it is back, and restarts the service when its watchdog runs ' +
+      'out. Check that python3 is installed (deploy/install.sh installs it)';
     if (this.failures === 1) this.logger.error(fields, msg);
     else this.problems.report('sd-notify-relay', msg, fields);
     this.cancelRestart = this.timers.after(delayMs, () => this.startRelay());

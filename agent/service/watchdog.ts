@@ -63,7 +63,8 @@ export class WatchdogKeeper {
     if (this.withheld === null) {
       this.logger.error(
         { reason },
-        `withholding the systemd watchdog ping: ${reason}. systemd restarts the service if this lasts WatchdogSec`,
+        `withholding the systemd watchdog ping: ${reason}. systemd ` +
+          `restarts the service if this lasts WatchdogSec`,
       );
     }
     this.withheld = reason;

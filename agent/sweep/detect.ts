@@ -3,10 +3,10 @@
  *
  * The trace is walked once with a running extreme: a sweep goes on while the speed keeps moving the
  * same way, reversals smaller than `reversalRpm` are ignored (tach jitter, a control loop hunting),
- * a larger reversal ends it at its extreme. The ends are then trimmed to the last point still at the
- * starting speed and the first point already at the final speed (within `steadyRpm`), so a steady
- * run before or after a sweep is not part of it. A sweep is kept when the speed moved through at
- * least `minChangeRpm`.
+ * a larger reversal ends it at its extreme. The ends are then trimmed to the last point still at
+ * the starting speed and the first point already at the final speed (within `steadyRpm`), so a
+ * steady run before or after a sweep is not part of it. A sweep is kept when the speed moved
+ * through at least `minChangeRpm`.
  */
 
 export interface SweepSpan {

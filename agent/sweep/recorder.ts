@@ -28,7 +28,10 @@ import { sweepRecordJson, sweepsFromPoints, type Sweep } from './sweeps.js';
 
 export interface LiveSweep {
   readonly direction: 'up' | 'down';
-  /** Points so far, in the order measured: speed and per channel (config order) 1x amplitude and phase. */
+  /**
+   * Points so far, in the order measured: speed and per channel (config order) 1x amplitude and
+   * phase.
+   */
   readonly points: readonly {
     readonly rpm: number;
     readonly amp_pk_mm_s: readonly number[];
@@ -125,7 +128,9 @@ export class SweepRecorder {
   private queue: Promise<void> = Promise.resolve();
   private readonly settle: number;
   private refCache = new Map<string, StoredSweep | null>();
-  /** Ids given out but perhaps not yet on disk (so a failed write does not hand the same id twice). */
+  /**
+   * Ids given out but perhaps not yet on disk (so a failed write does not hand the same id twice).
+   */
   private readonly given = new Set<string>();
   /** The reference given to a sweep whose write is still queued. */
   private readonly pendingRef = new Map<'up' | 'down', string>();
@@ -253,7 +258,9 @@ export class SweepRecorder {
       const warn =
         full && !stale && s.last_index === lastIdx
           ? [
-              `the held points were full (sweep.max_points = ${this.o.config.sweep.max_points}): the sweep is recorded as far as it had got`,
+              `the held points were full (sweep.max_points ` +
+                `= ${this.o.config.sweep.max_points}): the ` +
+                `sweep is recorded as far as it had got`,
             ]
           : [];
       this.record(s, warn);

@@ -14,7 +14,8 @@
  *   AF < 2.5: critically damped, no margin required;
  *   resonance below the operating speed: SM = min(16, 17 * (1 - 1 / (AF - 1.5))) %;
  *   resonance above the operating speed: SM = min(26, 10 + 17 * (1 - 1 / (AF - 1.5))) %.
- * Separation margin here = 100 * |N_rated - N_peak| / N_rated (margin relative to the operating speed).
+ * Separation margin here = 100 * |N_rated - N_peak| / N_rated (margin relative to the operating
+ * speed).
  */
 
 export interface Resonance {

@@ -18,7 +18,10 @@ export interface StoredSweep extends SweepRecordJson {
   readonly ts: string;
   readonly end_ts: string;
   readonly sample_rate_hz: number;
-  /** True for the sweep new ones of its direction are compared with (when sweep.reference_id names none). */
+  /**
+   * True for the sweep new ones of its direction are compared with (when sweep.reference_id names
+   * none).
+   */
   readonly reference: boolean;
   /** The reference this sweep was compared with (null: none yet, it became the reference). */
   readonly compared_with: string | null;
@@ -69,7 +72,10 @@ export class SweepStore {
     return this.index.some((e) => e.id === id);
   }
 
-  /** The reference for a direction: the configured one if it is of that direction, else the first flagged. */
+  /**
+   * The reference for a direction: the configured one if it is of that direction, else the first
+   * flagged.
+   */
   referenceFor(direction: 'up' | 'down'): string | null {
     const r = this.bounds.referenceId;
     if (r && directionOfId(r) === direction) return r;
@@ -86,7 +92,9 @@ export class SweepStore {
     }
   }
 
-  /** Writes one sweep (fsync, atomic), after removing the oldest non-reference sweeps until it fits. */
+  /**
+   * Writes one sweep (fsync, atomic), after removing the oldest non-reference sweeps until it fits.
+   */
   async write(s: StoredSweep): Promise<void> {
     const text = JSON.stringify(s) + '\n';
     const bytes = Buffer.byteLength(text);

@@ -82,8 +82,12 @@ export function sweepsFromPoints(
       const b = pts[worstAt]!;
       const rate = ((b.rpm - a.rpm) * sampleRate) / (b.end_index - a.end_index);
       warnings.push(
-        `the speed changed ${Math.abs(b.rpm - a.rpm).toFixed(0)} r/min (${(worst * 100).toFixed(1)} % of ${ref.toFixed(0)} r/min) between two points near ${b.rpm.toFixed(0)} r/min (${rate.toFixed(0)} r/min per s): ` +
-          `too fast for ${s.revolutions_per_point} revolution(s) per point, so the curve is smeared there; lower sweep.revolutions_per_point, or sweep more slowly (limit sweep.max_point_change_pct = ${s.max_point_change_pct} %)`,
+        `the speed changed ${Math.abs(b.rpm - a.rpm).toFixed(0)} r/min ` +
+          `(${(worst * 100).toFixed(1)} % of ${ref.toFixed(0)} r/min) between two ` +
+          `points near ${b.rpm.toFixed(0)} r/min (${rate.toFixed(0)} r/min per s): ` +
+          `too fast for ${s.revolutions_per_point} revolution(s) per point, so the ` +
+          `curve is smeared there; lower sweep.revolutions_per_point, or sweep more ` +
+          `slowly (limit sweep.max_point_change_pct = ${s.max_point_change_pct} %)`,
       );
     }
     const gaps = pts.slice(1).filter((p) => p.after_gap).length;
@@ -152,12 +156,18 @@ function thinResonances(
     }
   return thin.map(
     (t) =>
-      `the resonance near ${t.rpm.toFixed(0)} r/min (${t.ids.join(', ')}) rests on ${t.inBand} point(s) within its half-power band ${t.lo.toFixed(0)}-${t.hi.toFixed(0)} r/min, fewer than ${minPoints}: ` +
-      `its peak speed, height and amplification factor are doubtful; sweep through it more slowly or lower sweep.revolutions_per_point (now ${revsPerPoint}) (limit sweep.min_points_in_band = ${minPoints})`,
+      `the resonance near ${t.rpm.toFixed(0)} r/min (${t.ids.join(', ')}) ` +
+      `rests on ${t.inBand} point(s) within its half-power band ` +
+      `${t.lo.toFixed(0)}-${t.hi.toFixed(0)} r/min, fewer than ${minPoints}: ` +
+      `its peak speed, height and amplification factor are doubtful; sweep ` +
+      `through it more slowly or lower sweep.revolutions_per_point (now ` +
+      `${revsPerPoint}) (limit sweep.min_points_in_band = ${minPoints})`,
   );
 }
 
-/** One sweep as `turnwise sweep --json` prints it (also the body of each sweep the agent stores). */
+/**
+ * One sweep as `turnwise sweep --json` prints it (also the body of each sweep the agent stores).
+ */
 export function sweepRecordJson(s: Sweep): SweepRecordJson {
   return {
     direction: s.direction,

@@ -75,9 +75,9 @@ export function assessWith(
 
 /**
  * Severity zones, sensor health and unbalance signature of one DSP window (for `turnwise analyze`).
- * Pure: no files, no clock. `baseline` defaults to the one in the config (watcher.baseline); pass the
- * stored one (FileBaselineStore) to get vector changes and the baseline alarm. `recent` are earlier
- * windows of the same run, oldest first, for the 1x phase-stability rule.
+ * Pure: no files, no clock. `baseline` defaults to the one in the config (watcher.baseline); pass
+ * the stored one (FileBaselineStore) to get vector changes and the baseline alarm. `recent` are
+ * earlier windows of the same run, oldest first, for the 1x phase-stability rule.
  * Throws UserError when the watcher section names sensors or bearings that do not exist.
  */
 export function assessWindow(

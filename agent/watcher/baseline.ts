@@ -16,7 +16,8 @@ import type { WatcherSettings } from './settings.js';
 
 /**
  * The commissioning baseline: each sensor's 1x vector (and overall) when the fan was known good.
- * Phases are as measured (mounting angle not subtracted): a baseline is only compared with the same sensor.
+ * Phases are as measured (mounting angle not subtracted): a baseline is only compared with the same
+ * sensor.
  */
 export interface BaselineChannel {
   readonly one_x_rms_mm_s: number;
@@ -137,7 +138,8 @@ export class BaselineLearner {
       throw new UserError(
         where,
         `only ${this.windows} window(s) with a healthy 1x vector were seen`,
-        `keep the fan at steady speed and load for at least ${minWindows} windows, then stop learning`,
+        `keep the fan at steady speed and load for at ` +
+          `least ${minWindows} windows, then stop learning`,
       );
     }
     const meanSpeed = this.speeds.reduce((a, b) => a + b, 0) / Math.max(1, this.speeds.length);

@@ -1,7 +1,8 @@
 /**
- * Angle helpers for 1x vectors, over the project's one complex-number module (agent/balance/complex.ts).
- * A vector is written as amplitude at an angle; the angle is the phase lag in degrees exactly as the
- * DSP reports it (no sign flip), so every difference and ratio stays in that same convention.
+ * Angle helpers for 1x vectors, over the project's one complex-number module
+ * (agent/balance/complex.ts). A vector is written as amplitude at an angle; the angle is the phase
+ * lag in degrees exactly as the DSP reports it (no sign flip), so every difference and ratio stays
+ * in that same convention.
  */
 import { argDeg, deltaDeg, wrapDeg } from '../balance/complex.js';
 

@@ -1,8 +1,8 @@
 /**
  * On-delay for a reported state: a new value must hold over consecutive windows spanning at least
- * `delayS` seconds of measured data (from the start of the first window that showed it to the end of
- * the latest) before it replaces the confirmed value. Time is the window's own sample clock, so the
- * delay means the same on a live board and when a recording is replayed.
+ * `delayS` seconds of measured data (from the start of the first window that showed it to the end
+ * of the latest) before it replaces the confirmed value. Time is the window's own sample clock, so
+ * the delay means the same on a live board and when a recording is replayed.
  */
 export class OnDelay<T> {
   private confirmed: T | undefined;
@@ -23,11 +23,12 @@ export class OnDelay<T> {
   }
 
   /**
-   * Feeds the value seen over a window [startS, endS). Returns the change when the value is confirmed,
-   * otherwise null.
+   * Feeds the value seen over a window [startS, endS). Returns the change when the value is
+   * confirmed, otherwise null.
    */
   update(seen: T, startS: number, endS: number): { from: T | undefined; to: T } | null {
-    if (startS < this.lastEndS) this.pending = undefined; // sample clock restarted: start timing afresh
+    // sample clock restarted: start timing afresh
+    if (startS < this.lastEndS) this.pending = undefined;
     this.lastEndS = endS;
     if (seen === this.confirmed) {
       this.pending = undefined;

@@ -4,7 +4,8 @@ import type { AgentEvent, EventBase } from '../events.js';
 
 /**
  * The watcher's events: one zod schema per type for the fields it adds to the envelope
- * (agent/events.ts). `turnwise mqtt schemas` writes them as config/schemas/mqtt/event-watcher.v1.schema.json.
+ * (agent/events.ts). `turnwise mqtt schemas` writes them as
+ * config/schemas/mqtt/event-watcher.v1.schema.json.
  */
 
 const zone = z.enum(['A', 'B', 'C', 'D']);
@@ -25,7 +26,8 @@ const pointsTo = z
   .describe('Other 1x causes the findings point to, and why.');
 const unbalanceFields = {
   kind: kind.describe(
-    'Unbalance verdict: static, couple, dynamic, overhung; none when there is no significant unbalance.',
+    'Unbalance verdict: static, couple, dynamic, overhung; ' +
+      'none when there is no significant unbalance.',
   ),
   confidence: z.enum(['high', 'medium', 'low']),
   evidence: words.describe('Findings in plain words.'),
@@ -132,7 +134,10 @@ export type FaultCode = z.infer<typeof fault>['code'];
 
 export interface EventOrigin {
   readonly asset: string;
-  /** Start counter of the watcher (persisted), so ids stay unique across restarts of the sample clock. */
+  /**
+   * Start counter of the watcher (persisted), so ids stay unique across restarts of the sample
+   * clock.
+   */
   readonly run: number;
   readonly window: WindowResult;
   /** ISO 8601 UTC time from the injected clock. */
@@ -140,9 +145,9 @@ export interface EventOrigin {
 }
 
 /**
- * Builds an event. The id is derived from asset, type, subject (sensor id or "machine"), start counter
- * and the window's first sample index: the same event always gets the same id, and no two events share
- * one (one event per type and subject per window).
+ * Builds an event. The id is derived from asset, type, subject (sensor id or "machine"), start
+ * counter and the window's first sample index: the same event always gets the same id, and no two
+ * events share one (one event per type and subject per window).
  */
 export function watcherEvent<T extends WatcherEventType>(
   o: EventOrigin,

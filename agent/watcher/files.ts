@@ -39,7 +39,10 @@ export function fsyncDir(dir: string): void {
   }
 }
 
-/** Writes all of `text` (writeSync may write less than asked, e.g. into the last free block of a disk). */
+/**
+ * Writes all of `text` (writeSync may write less than asked, e.g. into the last free block of a
+ * disk).
+ */
 function writeAll(fd: number, text: string): void {
   const buf = Buffer.from(text);
   let off = 0;
@@ -103,8 +106,9 @@ export function appendLineDurable(file: string, line: string): void {
 }
 
 /**
- * Reads a text file; null when it does not exist. Missing permissions are a UserError naming the file
- * (the installation needs fixing); any other read error means the file is damaged (DamagedFileError).
+ * Reads a text file; null when it does not exist. Missing permissions are a UserError naming the
+ * file (the installation needs fixing); any other read error means the file is damaged
+ * (DamagedFileError).
  */
 export function readTextOrNull(file: string): string | null {
   try {
@@ -140,8 +144,8 @@ export function parseJsonFile(file: string, text: string): unknown {
 }
 
 /**
- * Moves a damaged state file to `quarantine/` beside it (see quarantinePath) for inspection. Returns
- * where it went, or null when it could not be moved (it is then left where it is).
+ * Moves a damaged state file to `quarantine/` beside it (see quarantinePath) for inspection.
+ * Returns where it went, or null when it could not be moved (it is then left where it is).
  */
 export function moveAside(file: string, nowMs: number): string | null {
   const to = quarantinePath(file, nowMs);

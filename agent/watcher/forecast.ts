@@ -26,7 +26,8 @@ import type { HealthReport } from './health.js';
  */
 
 export const BALANCE_CAUTIONS: readonly string[] = [
-  'A forecast to prepare a weight before a planned stop, not an instruction: confirm with a check run after fitting it.',
+  'A forecast to prepare a weight before a planned stop, not ' +
+    'an instruction: confirm with a check run after fitting it.',
   'Lock out and tag out before anyone touches the rotor.',
   'Weld or bolt weights as the fan maker allows; a weight sees F = m r omega^2.',
   'Nobody stands in line with the impeller at start-up.',
@@ -40,7 +41,10 @@ export interface BalanceForecast {
   readonly angle_convention: StoredCoefficients['angle_convention'] | null;
   /** Target of the correction: the baseline 1x vectors, or zero when no baseline exists. */
   readonly target: 'baseline' | 'zero' | null;
-  /** Per plane: mass and angle, at the radius the job's weights sat at (null when the job did not say). */
+  /**
+   * Per plane: mass and angle, at the radius the job's weights sat at (null when the job did not
+   * say).
+   */
   readonly weights: readonly {
     readonly plane: string;
     readonly mass_g: number;
@@ -48,7 +52,10 @@ export interface BalanceForecast {
     readonly radius_mm: number | null;
   }[];
   readonly sensors_used: readonly string[];
-  /** Predicted remaining 1x difference from the target after the correction, r.m.s. over the sensors used, mm/s peak. */
+  /**
+   * Predicted remaining 1x difference from the target after the correction, r.m.s. over the sensors
+   * used, mm/s peak.
+   */
   readonly residual_pk_mm_s: number | null;
   readonly condition: number | null;
   readonly notes: readonly string[];
@@ -119,7 +126,8 @@ export function forecastBalance(
   if (used.length < coeffs.planes.length) {
     return {
       ...unavailable(
-        `${used.length} healthy sensor(s) with coefficients for ${coeffs.planes.length} plane(s): at least as many sensors as planes are needed`,
+        `${used.length} healthy sensor(s) with coefficients for ` +
+          `${coeffs.planes.length} plane(s): at least as many sensors as planes are needed`,
         coeffs,
       ),
       notes,
@@ -130,14 +138,16 @@ export function forecastBalance(
   if (condition >= DEFAULT_SOLVE_OPTIONS.conditionLimit)
     return {
       ...unavailable(
-        'the stored coefficients cannot separate the planes with the sensors available (singular system)',
+        'the stored coefficients cannot separate the planes ' +
+          'with the sensors available (singular system)',
         coeffs,
       ),
       notes,
     };
   if (condition > DEFAULT_SOLVE_OPTIONS.conditionWarn) {
     notes.push(
-      `the planes are hard to separate with these sensors (condition number ${condition.toFixed(0)}): treat the split between planes with care`,
+      `the planes are hard to separate with these sensors (condition number ` +
+        `${condition.toFixed(0)}): treat the split between planes with care`,
     );
   }
   const solved = leastSquares(h, cmatrixFrom(rhs.map((r) => [r])));
@@ -147,7 +157,8 @@ export function forecastBalance(
     Math.abs(window.speed_rpm - coeffs.speed_rpm) / coeffs.speed_rpm > 0.05
   ) {
     notes.push(
-      `coefficients were measured at ${coeffs.speed_rpm.toFixed(0)} r/min, the fan runs at ${window.speed_rpm.toFixed(0)} r/min: the forecast is less reliable`,
+      `coefficients were measured at ${coeffs.speed_rpm.toFixed(0)} r/min, the fan ` +
+        `runs at ${window.speed_rpm.toFixed(0)} r/min: the forecast is less reliable`,
     );
   }
   let ss = 0;
@@ -158,7 +169,11 @@ export function forecastBalance(
   });
   return {
     available: true,
-    why: `from balancing job ${coeffs.job_id} (saved ${coeffs.saved_at}), ${used.length} sensor(s), target ${baseline ? 'the baseline 1x vectors' : 'zero 1x (no baseline)'}; weight angles from the reference mark, ${coeffs.angle_convention.replace('_', ' ')}`,
+    why:
+      `from balancing job ${coeffs.job_id} (saved ${coeffs.saved_at}), ` +
+      `${used.length} sensor(s), target ` +
+      `${baseline ? 'the baseline 1x vectors' : 'zero 1x (no baseline)'}; weight ` +
+      `angles from the reference mark, ${coeffs.angle_convention.replace('_', ' ')}`,
     job_id: coeffs.job_id,
     angle_convention: coeffs.angle_convention,
     target: baseline ? 'baseline' : 'zero',

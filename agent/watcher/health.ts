@@ -44,7 +44,9 @@ function f(v: number, digits = 2): string {
 
 type Fault = { code: FaultCode; words: string };
 
-/** True when a 100 ms level varies by `ratio` or more about the window median, with a sudden jump. */
+/**
+ * True when a 100 ms level varies by `ratio` or more about the window median, with a sudden jump.
+ */
 function levelStep(sig: SignalFacts, ratio: number): boolean {
   if (sig.groups < 3 || !(sig.group_rms_median_v > 0)) return false;
   const up = sig.group_rms_max_v / sig.group_rms_median_v;
@@ -53,10 +55,11 @@ function levelStep(sig: SignalFacts, ratio: number): boolean {
 }
 
 /**
- * Faults read from the shape of the signal (agent/dsp/signal-facts.ts), with or without full_scale_v:
- * one-sided impulses (connector, cable), samples piling up at an extreme (clipping at a limit nobody
- * configured, or the sensor saturating below the input range), sudden level steps. What can be read
- * either way goes to `doubt`: the channel stays in, but cannot raise the machine to zone D alone.
+ * Faults read from the shape of the signal (agent/dsp/signal-facts.ts), with or without
+ * full_scale_v: one-sided impulses (connector, cable), samples piling up at an extreme (clipping at
+ * a limit nobody configured, or the sensor saturating below the input range), sudden level steps.
+ * What can be read either way goes to `doubt`: the channel stays in, but cannot raise the machine
+ * to zone D alone.
  */
 function shapeFaults(
   sensor: SensorConfig,
@@ -76,7 +79,11 @@ function shapeFaults(
   // Impulses: one-sided ones are a connector or cable; ringing ones are mechanical impacts.
   const need = Math.max(2, h.spikes_per_s * seconds);
   if (sig.impulses_one_sided >= need) {
-    const words = `${sig.impulses_one_sided} separate one-sided impulses in ${f(seconds, 1)} s (${f(sig.impulses_one_sided / seconds, 1)} per second), up to ${f(sig.peak_over_level, 0)} times the signal's typical level, without the ringing of a mechanical impact`;
+    const words =
+      `${sig.impulses_one_sided} separate one-sided impulses in ` +
+      `${f(seconds, 1)} s (${f(sig.impulses_one_sided / seconds, 1)} per ` +
+      `second), up to ${f(sig.peak_over_level, 0)} times the signal's ` +
+      `typical level, without the ringing of a mechanical impact`;
     if (sig.impulses_one_sided >= 0.5 * sig.impulses)
       p.push({
         code: 'spikes',
@@ -84,7 +91,8 @@ function shapeFaults(
       });
     else
       doubt.push(
-        `${words}, among ${sig.impulses} impulses that mostly ring: a loose connector or real impacts`,
+        `${words}, among ${sig.impulses} impulses that ` +
+          `mostly ring: a loose connector or real impacts`,
       );
   }
 
@@ -108,12 +116,19 @@ function shapeFaults(
       if (fs !== undefined && Math.abs(pile.v) < h.saturation_share * fs) {
         p.push({
           code: 'saturation',
-          words: `saturated: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, with only ${pile.below} just below, well inside the ${fs} V input range: the sensor or its amplifier saturates, the true vibration is larger than measured`,
+          words:
+            `saturated: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, ` +
+            `with only ${pile.below} just below, well inside the ${fs} V input range: the ` +
+            `sensor or its amplifier saturates, the true vibration is larger than measured`,
         });
       } else if (fs === undefined) {
         p.push({
           code: 'pile_up',
-          words: `cut off: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the signal, with only ${pile.below} just below: the signal is clipped at a limit that is not configured (the input range or the sensor's own output limit; set full_scale_v of this sensor to the input range)`,
+          words:
+            `cut off: ${share} sit at ${f(pile.v, 3)} V, the ${side} of the ` +
+            `signal, with only ${pile.below} just below: the signal is clipped at ` +
+            `a limit that is not configured (the input range or the sensor's own ` +
+            `output limit; set full_scale_v of this sensor to the input range)`,
         });
       }
       break;
@@ -133,15 +148,23 @@ function shapeFaults(
       sig.group_rms_max_v / sig.group_rms_median_v,
       sig.group_rms_min_v > 0 ? sig.group_rms_median_v / sig.group_rms_min_v : Infinity,
     );
-    const what = `the ${f(sig.group_s * 1000, 0)} ms r.m.s. stepped ${Number.isFinite(ratio) ? `${f(ratio, 0)}-fold` : 'to nothing'} (between ${f(sig.group_rms_min_v * 1000, 1)} and ${f(sig.group_rms_max_v * 1000, 1)} mV, typically ${f(sig.group_rms_median_v * 1000, 1)} mV) with a sudden jump`;
+    const what =
+      `the ${f(sig.group_s * 1000, 0)} ms r.m.s. stepped ` +
+      `${Number.isFinite(ratio) ? `${f(ratio, 0)}-fold` : 'to nothing'} (between ` +
+      `${f(sig.group_rms_min_v * 1000, 1)} and ${f(sig.group_rms_max_v * 1000, 1)} mV, ` +
+      `typically ${f(sig.group_rms_median_v * 1000, 1)} mV) with a sudden jump`;
     if (others.length && others.every((o) => !o.stepped)) {
       p.push({
         code: 'level_step',
-        words: `sudden level step: ${what}, while ${others.map((o) => o.id).join(', ')} at ${sensor.bearing} stayed steady (an intermittent connection or a failing sensor)`,
+        words:
+          `sudden level step: ${what}, while ` +
+          `${others.map((o) => o.id).join(', ')} at ${sensor.bearing} stayed ` +
+          `steady (an intermittent connection or a failing sensor)`,
       });
     } else if (!others.length) {
       doubt.push(
-        `${what}, and no other sensor at ${sensor.bearing} can confirm it: a sensor fault or a real event (impact, rub)`,
+        `${what}, and no other sensor at ${sensor.bearing} can ` +
+          `confirm it: a sensor fault or a real event (impact, rub)`,
       );
     }
   }
@@ -167,14 +190,18 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
             : 'open cable or sensor';
         p.push({
           code: 'bias',
-          words: `bias ${f(c.stats.dc_v)} V outside its ${sensor.bias_v.min}-${sensor.bias_v.max} V window (${hint})`,
+          words:
+            `bias ${f(c.stats.dc_v)} V outside its ` +
+            `${sensor.bias_v.min}-${sensor.bias_v.max} V window (${hint})`,
         });
       }
       const clipShare = c.stats.clipped_samples / c.stats.samples;
       if (c.stats.clipped_samples > 0 && clipShare > h.clipped_share_max) {
         p.push({
           code: 'clipped',
-          words: `clipped: ${c.stats.clipped_samples} of ${c.stats.samples} samples at full scale (input range too small or sensor overloaded)`,
+          words:
+            `clipped: ${c.stats.clipped_samples} of ${c.stats.samples} samples ` +
+            `at full scale (input range too small or sensor overloaded)`,
         });
       }
       shapeFaults(sensor, c, window, s, byId, p, doubts.get(sensor.id)!);
@@ -199,7 +226,9 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
       if (c && c.stats.samples > 0 && c.stats.ac_rms_v < h.flat_ac_rms_v) {
         faults.get(sensor.id)!.push({
           code: 'flat',
-          words: `flat line: ${f(c.stats.ac_rms_v * 1000, 3)} mV r.m.s. while the fan turns (dead sensor or broken cable)`,
+          words:
+            `flat line: ${f(c.stats.ac_rms_v * 1000, 3)} mV r.m.s. ` +
+            `while the fan turns (dead sensor or broken cable)`,
         });
       } else if (
         c?.stats.signal?.steps_spanned != null &&
@@ -208,7 +237,10 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
         const sig = c.stats.signal;
         faults.get(sensor.id)!.push({
           code: 'quantisation_only',
-          words: `only quantisation noise: the signal spans ${Math.round(sig.steps_spanned!)} converter steps of ${f(sig.min_step_v! * 1000, 3)} mV while the fan turns (sensor unpowered or disconnected, or its gain far too low)`,
+          words:
+            `only quantisation noise: the signal spans ${Math.round(sig.steps_spanned!)} ` +
+            `converter steps of ${f(sig.min_step_v! * 1000, 3)} mV while the fan turns ` +
+            `(sensor unpowered or disconnected, or its gain far too low)`,
         });
       }
     }
@@ -220,13 +252,17 @@ export function assessHealth(window: WindowResult, s: WatcherSettings): HealthRe
     tach = running
       ? {
           state: 'lost',
-          why: `no usable revolutions (${window.tach.edges} tach edges) while the fan vibrates: check the once-per-turn pickup and its mark`,
+          why:
+            `no usable revolutions (${window.tach.edges} tach edges) while ` +
+            `the fan vibrates: check the once-per-turn pickup and its mark`,
         }
       : { state: 'stopped', why: 'no tach pulses and no vibration: the fan appears to be stopped' };
   } else if (pulses > 0 && window.tach.missing_pulses / pulses > h.missing_pulse_share_max) {
     tach = {
       state: 'lost',
-      why: `${window.tach.missing_pulses} of ${pulses} tach pulses missing: the reference is unreliable for phase (check the pickup gap and the mark)`,
+      why:
+        `${window.tach.missing_pulses} of ${pulses} tach pulses missing: the ` +
+        `reference is unreliable for phase (check the pickup gap and the mark)`,
     };
   } else
     tach = {

@@ -30,8 +30,8 @@ export interface HistoryPoint {
 export interface HistoryStore extends Quarantinable {
   /**
    * Points oldest first, words about anything that had to be skipped, and whether the stored form
-   * should be rewritten from the points (a torn or unreadable line). Throws DamagedFileError when the
-   * stored history cannot be read at all.
+   * should be rewritten from the points (a torn or unreadable line). Throws DamagedFileError when
+   * the stored history cannot be read at all.
    */
   load(): { points: HistoryPoint[]; warnings: string[]; rewrite: boolean };
   append(p: HistoryPoint): void;
@@ -81,10 +81,12 @@ export class FileHistoryStore implements HistoryStore {
       if (r.success) points.push(r.data);
       else
         warnings.push(
-          `${this.file}: line ${i + 1} is not a history point (${r.error.issues[0]?.message ?? 'invalid'}), skipped`,
+          `${this.file}: line ${i + 1} is not a history point ` +
+            `(${r.error.issues[0]?.message ?? 'invalid'}), skipped`,
         );
     });
-    // A torn last line would swallow the next append: the file must be rewritten from what was readable.
+    // A torn last line would swallow the next append: the file must be rewritten from what was
+    // readable.
     return { points, warnings, rewrite: !text.endsWith('\n') || warnings.length > 0 };
   }
 
@@ -112,7 +114,9 @@ function weightedMean(pairs: readonly [number | null, number][]): number | null 
   return w > 0 ? sum / w : null;
 }
 
-/** Merges points into one: means weighted by windows; the 1x phase is the angle of the mean vector. */
+/**
+ * Merges points into one: means weighted by windows; the 1x phase is the angle of the mean vector.
+ */
 export function mergePoints(points: readonly HistoryPoint[]): HistoryPoint {
   const windows = points.reduce((a, p) => a + p.windows, 0);
   const tMs = points.reduce((a, p) => a + Date.parse(p.ts) * p.windows, 0) / windows;
@@ -141,7 +145,10 @@ export function mergePoints(points: readonly HistoryPoint[]): HistoryPoint {
   };
 }
 
-/** Keeps the newest half of `max` as it is and merges the older points pairwise until at most `max` remain. */
+/**
+ * Keeps the newest half of `max` as it is and merges the older points pairwise until at most `max`
+ * remain.
+ */
 export function decimate(points: readonly HistoryPoint[], max: number): HistoryPoint[] {
   let out = [...points];
   const keep = Math.floor(max / 2);
@@ -166,7 +173,10 @@ export class History {
   /** The store does not hold what is in memory (repair pending, merged, or a write failed). */
   private unsaved: boolean;
 
-  /** `loaded`: what the store held (the caller may have read it already, to deal with a damaged file). */
+  /**
+   * `loaded`: what the store held (the caller may have read it already, to deal with a damaged
+   * file).
+   */
   constructor(
     private readonly store: HistoryStore,
     private readonly maxPoints: number,
@@ -181,7 +191,10 @@ export class History {
     return this.pts;
   }
 
-  /** Points not yet in the store are written now (a whole rewrite); false when there was nothing to do. Throws when the store fails. */
+  /**
+   * Points not yet in the store are written now (a whole rewrite); false when there was nothing to
+   * do. Throws when the store fails.
+   */
   flush(): boolean {
     if (!this.unsaved) return false;
     this.store.replace(this.pts);
@@ -212,8 +225,9 @@ interface ChannelAcc {
 }
 
 /**
- * Averages healthy readings over `intervalS` of clock time into one history point. Intervals follow one
- * another from the first window seen; a gap (fan stopped, agent down) simply lengthens the interval.
+ * Averages healthy readings over `intervalS` of clock time into one history point. Intervals follow
+ * one another from the first window seen; a gap (fan stopped, agent down) simply lengthens the
+ * interval.
  */
 export class HistoryAggregator {
   private startMs: number | null = null;

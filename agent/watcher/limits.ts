@@ -2,7 +2,8 @@
  * Severity limits and zones. Zones apply to the broadband velocity r.m.s. on a bearing housing
  * (`ChannelResult.overall_rms_mm_s`), which is what ISO 20816-3 and ISO 14694 rate.
  *
- * A value on a boundary belongs to the zone below it (a boundary is the upper limit of its lower zone).
+ * A value on a boundary belongs to the zone below it (a boundary is the upper limit of its lower
+ * zone).
  */
 
 export type Zone = 'A' | 'B' | 'C' | 'D';
@@ -24,8 +25,9 @@ export interface Limits extends Boundaries {
 }
 
 /**
- * ISO 20816-3 (replaced ISO 10816-3), zone boundaries A/B, B/C, C/D in mm/s r.m.s. for bearing-housing
- * velocity, 10-1000 Hz (2-1000 Hz below 600 r/min). Group 1: over 300 kW; group 2: 15-300 kW.
+ * ISO 20816-3 (replaced ISO 10816-3), zone boundaries A/B, B/C, C/D in mm/s r.m.s. for
+ * bearing-housing velocity, 10-1000 Hz (2-1000 Hz below 600 r/min). Group 1: over 300 kW; group 2:
+ * 15-300 kW.
  */
 export const ISO_20816_3: Readonly<
   Record<1 | 2, Readonly<Record<'rigid' | 'flexible', Boundaries>>>
@@ -46,7 +48,10 @@ export interface Iso14694Limits {
   readonly shutdown_mm_s: number;
 }
 
-/** ISO 14694 in-situ broadband limits for fans, mm/s r.m.s. Values from memory: check the current edition. */
+/**
+ * ISO 14694 in-situ broadband limits for fans, mm/s r.m.s. Values from memory: check the current
+ * edition.
+ */
 export const ISO_14694: Readonly<
   Record<'BV-3' | 'BV-4', Readonly<Record<'rigid' | 'flexible', Iso14694Limits>>>
 > = {
@@ -68,7 +73,10 @@ export function iso20816Limits(group: 1 | 2, support: 'rigid' | 'flexible'): Lim
   };
 }
 
-/** Maps the fan-standard levels onto zones: A up to start-up, B up to alarm, C up to shut-down, D above. */
+/**
+ * Maps the fan-standard levels onto zones: A up to start-up, B up to alarm, C up to shut-down, D
+ * above.
+ */
 export function iso14694Limits(category: 'BV-3' | 'BV-4', mounting: 'rigid' | 'flexible'): Limits {
   const l = ISO_14694[category][mounting];
   return {
@@ -76,7 +84,9 @@ export function iso14694Limits(category: 'BV-3' | 'BV-4', mounting: 'rigid' | 'f
     bc_mm_s: l.alarm_mm_s,
     cd_mm_s: l.shutdown_mm_s,
     source: 'iso14694',
-    basis: `ISO 14694 ${category}, ${mounting} mounting (values from memory: A up to start-up, B up to alarm, C up to shut-down)`,
+    basis:
+      `ISO 14694 ${category}, ${mounting} mounting (values from ` +
+      `memory: A up to start-up, B up to alarm, C up to shut-down)`,
   };
 }
 
@@ -107,8 +117,9 @@ export function classifyZone(valueMmS: number, b: Boundaries): Zone {
 }
 
 /**
- * Zone with hysteresis: the zone rises as soon as a boundary is passed, but drops only once the value
- * is `share` below the boundary it came over. `previous` is the last zone this returned (null at start).
+ * Zone with hysteresis: the zone rises as soon as a boundary is passed, but drops only once the
+ * value is `share` below the boundary it came over. `previous` is the last zone this returned (null
+ * at start).
  */
 export function zoneWithHysteresis(
   valueMmS: number,

@@ -14,9 +14,15 @@ export interface WatcherSettings {
   readonly rotor: 'centre_hung' | 'overhung';
   readonly blades: number | null;
   readonly sensors: readonly SensorConfig[];
-  /** The two rotor bearings compared for static/couple; null when fewer than two carry radial sensors. */
+  /**
+   * The two rotor bearings compared for static/couple; null when fewer than two carry radial
+   * sensors.
+   */
   readonly bearings: readonly [string, string] | null;
-  /** The bearings either side of the coupling (watcher.unbalance.coupling); null when not configured. */
+  /**
+   * The bearings either side of the coupling (watcher.unbalance.coupling); null when not
+   * configured.
+   */
   readonly coupling: { readonly driver: string; readonly driven: string } | null;
   /** 1x below this is too small to judge, mm/s r.m.s. */
   readonly minOneXMmS: number;
@@ -28,7 +34,9 @@ function isRadial(s: { direction: string }): boolean {
   return s.direction === 'vertical' || s.direction === 'horizontal';
 }
 
-/** Resolves the watcher settings and checks what the schema cannot see (sensor ids, bearing names). */
+/**
+ * Resolves the watcher settings and checks what the schema cannot see (sensor ids, bearing names).
+ */
 export function resolveWatcherSettings(cfg: Config): WatcherSettings {
   const w = cfg.watcher;
   const l = w.limits;
@@ -91,7 +99,8 @@ export function resolveWatcherSettings(cfg: Config): WatcherSettings {
     if (v !== undefined && v > cd) {
       throw new UserError(
         path,
-        `${v} mm/s is above the C/D boundary (${cd} mm/s, ${limits.basis}): nothing below zone D would ever reach it`,
+        `${v} mm/s is above the C/D boundary (${cd} mm/s, ` +
+          `${limits.basis}): nothing below zone D would ever reach it`,
         `give a value above 0 and at most ${cd} mm/s`,
       );
     }

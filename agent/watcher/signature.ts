@@ -22,9 +22,9 @@ import type { WatcherSettings } from './settings.js';
 /**
  * Unbalance signature over one window (plus recent windows for phase stability), from the rules of
  * the trade, each one declaration under agent/watcher/rules/ (see RULES there). This file only runs
- * them in order and builds the verdict from their facts: not 1x-dominated or any other cause pointed
- * to -> "none"; an overhung rotor or the overhung pattern -> "overhung"; else the bearing-to-bearing
- * pattern (static, couple, dynamic); without one, "dynamic", the general case.
+ * them in order and builds the verdict from their facts: not 1x-dominated or any other cause
+ * pointed to -> "none"; an overhung rotor or the overhung pattern -> "overhung"; else the
+ * bearing-to-bearing pattern (static, couple, dynamic); without one, "dynamic", the general case.
  */
 
 export type { OneXCause, PhasePair, RecentWindow, RuleResult, UnbalanceKind, UnbalanceMeasures };
@@ -46,7 +46,10 @@ export interface UnbalanceAssessment {
    * residual 1x shows (static, couple, ...), as information; null otherwise.
    */
   readonly residual_pattern: UnbalanceKind | null;
-  /** Each rule's own result, in the order run (rules not run because an earlier one stopped are absent). */
+  /**
+   * Each rule's own result, in the order run (rules not run because an earlier one stopped are
+   * absent).
+   */
   readonly rules: readonly RuleResult[];
 }
 
@@ -133,7 +136,8 @@ export function diagnoseUnbalance(
   else if (facts.pair_kind) pattern = facts.pair_kind;
   else {
     limits.push(
-      'reported as dynamic unbalance, the general case (two correction planes), because the bearings could not be compared',
+      'reported as dynamic unbalance, the general case (two ' +
+        'correction planes), because the bearings could not be compared',
     );
     pattern = 'dynamic';
   }

@@ -5,9 +5,9 @@ import { OnDelay } from './debounce.js';
 import type { WatcherEventType } from './events.js';
 
 /**
- * The watcher's confirmed states, one row each: the snapshot key, whether there is one value for the
- * machine or one per sensor, the values it takes, the on-delay before a new value is confirmed, and
- * the event (with its severity) that a confirmed change raises. The snapshot written to
+ * The watcher's confirmed states, one row each: the snapshot key, whether there is one value for
+ * the machine or one per sensor, the values it takes, the on-delay before a new value is confirmed,
+ * and the event (with its severity) that a confirmed change raises. The snapshot written to
  * `<state_dir>/watcher/state.json`, its zod schema and `WatchStatus.confirmed` are all derived from
  * this table: adding a state is adding a row.
  */
@@ -20,7 +20,10 @@ export interface StateRow<T extends Scalar> {
   readonly value: z.ZodType<T>;
   /** Seconds of measured data a new value must hold before it is confirmed. */
   readonly delay_s: (w: WatcherConfig, to: T) => number;
-  /** The event a confirmed change from `from` (undefined: nothing confirmed yet) to `to` raises; null: none. */
+  /**
+   * The event a confirmed change from `from` (undefined: nothing confirmed yet) to `to` raises;
+   * null: none.
+   */
   readonly event: (
     from: T | undefined,
     to: T,
@@ -144,7 +147,10 @@ export type ConfirmedStates = { readonly [K in StateKey]: Stored<K> };
 
 export const STATE_VERSION = 2;
 
-/** What the watcher has confirmed and reported, so a restart neither repeats nor loses events (state.json). */
+/**
+ * What the watcher has confirmed and reported, so a restart neither repeats nor loses events
+ * (state.json).
+ */
 export type WatcherSnapshot = {
   readonly version: typeof STATE_VERSION;
   readonly run: number;

@@ -15,8 +15,8 @@ import {
 import { snapshotFileSchema, type WatcherSnapshot } from './state-table.js';
 
 /**
- * The watcher's persistent state sits behind these interfaces; the file implementations keep it under
- * `<state_dir>/watcher/` (and read balancing results from `<state_dir>/balance/`).
+ * The watcher's persistent state sits behind these interfaces; the file implementations keep it
+ * under `<state_dir>/watcher/` (and read balancing results from `<state_dir>/balance/`).
  */
 
 /** A stored file that can be moved aside when it turns out to be damaged. */
@@ -38,7 +38,10 @@ export interface BaselineStore extends Quarantinable {
 
 export type SpeedState = 'in_range' | 'low' | 'high';
 
-/** What the watcher has confirmed and reported (state.json), derived from STATE_ROWS in state-table.ts. */
+/**
+ * What the watcher has confirmed and reported (state.json), derived from STATE_ROWS in
+ * state-table.ts.
+ */
 export type { WatcherSnapshot };
 
 export interface WatcherStateStore extends Quarantinable {
@@ -98,7 +101,8 @@ export class FileBaselineStore implements BaselineStore {
           baselineFileSchema,
           this.file,
           text,
-          'learn the baseline again (`turnwise condition clear-baseline` removes this file; `turnwise run` moves it to quarantine/)',
+          'learn the baseline again (`turnwise condition clear-baseline` ' +
+            'removes this file; `turnwise run` moves it to quarantine/)',
         );
   }
   quarantine(nowMs: number): string | null {
@@ -125,7 +129,8 @@ export class FileWatcherStateStore implements WatcherStateStore {
           snapshotFileSchema as unknown as z.ZodType<WatcherSnapshot>,
           this.file,
           text,
-          '`turnwise run` moves it to quarantine/ and starts afresh (the current zones and states are reported again); or delete it',
+          '`turnwise run` moves it to quarantine/ and starts afresh (the ' +
+            'current zones and states are reported again); or delete it',
         );
   }
   quarantine(nowMs: number): string | null {

@@ -5,9 +5,9 @@ import type { WatcherSettings } from './settings.js';
 
 /**
  * Trend of a history series by a robust straight-line fit (Theil-Sen: the median of all pairwise
- * slopes, with Sen's distribution-free 95 % range for the slope), and when the fitted line will cross
- * the next limit above it. A fit whose slope range includes zero, or which explains too little of the
- * variation, is reported as "no trend".
+ * slopes, with Sen's distribution-free 95 % range for the slope), and when the fitted line will
+ * cross the next limit above it. A fit whose slope range includes zero, or which explains too
+ * little of the variation, is reported as "no trend".
  */
 
 export interface LineFit {
@@ -18,14 +18,18 @@ export interface LineFit {
   readonly slopeHigh: number;
   /** Value of the line at t = 0. */
   readonly intercept: number;
-  /** Share of the variance about the mean explained by the line (may be negative for a poor robust fit). */
+  /**
+   * Share of the variance about the mean explained by the line (may be negative for a poor robust
+   * fit).
+   */
   readonly r2: number;
   readonly n: number;
 }
 
 /**
  * Puts the k-th smallest of a[left..right] at index k, smaller ones before it and larger after it
- * (quickselect, median-of-three pivot), in place. Far cheaper than a sort for a few order statistics.
+ * (quickselect, median-of-three pivot), in place. Far cheaper than a sort for a few order
+ * statistics.
  */
 function select(a: Float64Array, k: number, left = 0, right = a.length - 1): number {
   while (right > left) {
@@ -60,7 +64,8 @@ function median(a: Float64Array): number {
   const hi = select(a, m);
   if (a.length % 2) return hi;
   let lo = -Infinity;
-  for (let i = 0; i < m; i++) if (a[i]! > lo) lo = a[i]!; // after select, everything below m is <= a[m]
+  // after select, everything below m is <= a[m]
+  for (let i = 0; i < m; i++) if (a[i]! > lo) lo = a[i]!;
   return (lo + hi) / 2;
 }
 
@@ -79,8 +84,8 @@ export function theilSen(t: ArrayLike<number>, y: ArrayLike<number>): LineFit | 
   if (k === 0) return null;
   const s = all.subarray(0, k);
   const slope = median(s);
-  // Sen's confidence range: C = z * sqrt(Var S), Var S = n(n-1)(2n+5)/18 (ties ignored); the bounds are
-  // the M1-th and (M2+1)-th smallest slopes, M1 = (N - C) / 2, M2 = (N + C) / 2.
+  // Sen's confidence range: C = z * sqrt(Var S), Var S = n(n-1)(2n+5)/18 (ties ignored); the bounds
+  // are the M1-th and (M2+1)-th smallest slopes, M1 = (N - C) / 2, M2 = (N + C) / 2.
   const c = 1.96 * Math.sqrt((n * (n - 1) * (2 * n + 5)) / 18);
   const lo = Math.max(0, Math.min(k - 1, Math.round((k - c) / 2) - 1));
   const hi = Math.max(0, Math.min(k - 1, Math.round((k + c) / 2)));
@@ -118,7 +123,10 @@ export interface SeriesTrend {
   readonly fitted_now_mm_s: number | null;
   /** The lowest limit above the fitted value (rising trends only). */
   readonly next_limit: NamedLimit | null;
-  /** When the fitted line crosses next_limit, ISO 8601 UTC, and the range from the slope's 95 % range. */
+  /**
+   * When the fitted line crosses next_limit, ISO 8601 UTC, and the range from the slope's 95 %
+   * range.
+   */
   readonly crossing_at: string | null;
   readonly crossing_range: readonly [string, string] | null;
 }
@@ -136,8 +144,8 @@ const iso = (ms: number): string => new Date(ms).toISOString();
 const perDay = (x: number): string => `${(x * DAY_S).toFixed(3)} mm/s per day`;
 
 /**
- * Trend of one series over the newest `span_s`. `tMs` oldest first; null values are skipped. `limits`
- * are the levels whose crossing is forecast (zone boundaries, alarm).
+ * Trend of one series over the newest `span_s`. `tMs` oldest first; null values are skipped.
+ * `limits` are the levels whose crossing is forecast (zone boundaries, alarm).
  */
 export function seriesTrend(
   tMs: readonly number[],
@@ -172,7 +180,9 @@ export function seriesTrend(
   if (n < cfg.min_points || spanS < cfg.min_span_s) {
     return {
       state: 'too_little_data',
-      why: `${n} point(s) over ${(spanS / 3600).toFixed(1)} h; a trend needs at least ${cfg.min_points} points over ${(cfg.min_span_s / 3600).toFixed(1)} h`,
+      why:
+        `${n} point(s) over ${(spanS / 3600).toFixed(1)} h; a trend needs at least ` +
+        `${cfg.min_points} points over ${(cfg.min_span_s / 3600).toFixed(1)} h`,
       ...empty,
     };
   }
@@ -213,7 +223,9 @@ export function seriesTrend(
   if (fit.r2 < cfg.min_r2) {
     return {
       state: 'no_trend',
-      why: `no trend: the line explains only ${Math.round(Math.max(0, fit.r2) * 100)} % of the variation (at least ${Math.round(cfg.min_r2 * 100)} % needed)`,
+      why:
+        `no trend: the line explains only ${Math.round(Math.max(0, fit.r2) * 100)} % ` +
+        `of the variation (at least ${Math.round(cfg.min_r2 * 100)} % needed)`,
       ...base,
       ...none,
     };
@@ -241,7 +253,9 @@ export function seriesTrend(
   const at = tEndMs + (gap / fit.slope) * 1000;
   return {
     state: 'rising',
-    why: `rising ${perDay(fit.slope)} (95 % range ${range}); the fitted line reaches ${next.name} (${next.value_mm_s.toFixed(2)} mm/s) about ${iso(at)}`,
+    why:
+      `rising ${perDay(fit.slope)} (95 % range ${range}); the fitted line ` +
+      `reaches ${next.name} (${next.value_mm_s.toFixed(2)} mm/s) about ${iso(at)}`,
     ...base,
     next_limit: next,
     crossing_at: iso(at),
@@ -266,9 +280,9 @@ export interface TrendReport {
 }
 
 /**
- * Trend of overall and 1x per sensor over the history, with crossings of the zone boundaries and, once
- * a baseline exists, of the alarm level. (1x reaching a limit means the overall is at least there too.)
- * History from before a learned baseline (an earlier balance state) is left out.
+ * Trend of overall and 1x per sensor over the history, with crossings of the zone boundaries and,
+ * once a baseline exists, of the alarm level. (1x reaching a limit means the overall is at least
+ * there too.) History from before a learned baseline (an earlier balance state) is left out.
  */
 export function trendReport(
   s: WatcherSettings,

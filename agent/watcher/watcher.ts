@@ -60,7 +60,10 @@ export interface WatchStatus {
   readonly window: { readonly start_index: number; readonly end_index: number } | null;
   /** This window's findings, before on-delay. */
   readonly latest: WindowAssessment | null;
-  /** States confirmed after hysteresis and on-delay (what events were sent about), keyed as STATE_ROWS. */
+  /**
+   * States confirmed after hysteresis and on-delay (what events were sent about), keyed as
+   * STATE_ROWS.
+   */
   readonly confirmed: ConfirmedStates;
   readonly baseline: Baseline | null;
   readonly learning: { readonly windows: number } | null;
@@ -74,7 +77,10 @@ export interface WatchUpdate {
   readonly status: WatchStatus;
 }
 
-/** Problems saving under state_dir: each is logged once per burst and listed in status.warnings until a save works again. */
+/**
+ * Problems saving under state_dir: each is logged once per burst and listed in status.warnings
+ * until a save works again.
+ */
 const STATE_NOT_SAVED = 'confirmed states not saved';
 const HISTORY_NOT_SAVED = 'history not saved';
 
@@ -82,7 +88,10 @@ function errorText(e: unknown): string {
   return isUserError(e) ? e.format() : e instanceof Error ? e.message : String(e);
 }
 
-/** Boolean state with hysteresis: once true, it stays true until the value falls `share` below the limit. */
+/**
+ * Boolean state with hysteresis: once true, it stays true until the value falls `share` below the
+ * limit.
+ */
 function overWithHysteresis(
   prev: boolean | undefined,
   value: number,
@@ -93,9 +102,10 @@ function overWithHysteresis(
 }
 
 /**
- * The live watcher: feeds each DSP window through the pure rules, holds zones, verdicts and sensor states
- * behind hysteresis and on-delay, returns events for what changed, learns and keeps the baseline, keeps
- * history and its trend, and forecasts the balance correction when coefficients are stored.
+ * The live watcher: feeds each DSP window through the pure rules, holds zones, verdicts and sensor
+ * states behind hysteresis and on-delay, returns events for what changed, learns and keeps the
+ * baseline, keeps history and its trend, and forecasts the balance correction when coefficients are
+ * stored.
  */
 export class Watcher {
   private sweepEvidence: SweepEvidence | null = null;
@@ -115,7 +125,10 @@ export class Watcher {
   private lastWindow: WindowResult | null = null;
   private run: number;
   private savedSnapshot = '';
-  /** Facts about this start (damaged files moved aside, torn history lines, ...): logged once, listed for the whole run. */
+  /**
+   * Facts about this start (damaged files moved aside, torn history lines, ...): logged once,
+   * listed for the whole run.
+   */
   private readonly notes: string[] = [];
   /** Current save problems by key; cleared when a save works again. */
   private readonly problems = new Map<string, string>();
@@ -140,8 +153,8 @@ export class Watcher {
       'the watcher starts afresh: the current zones and states are reported again',
     );
     this.run = (prev?.run ?? 0) + 1;
-    // Without the stored start counter, the next one is unknown: count on from the clock's seconds, so
-    // event ids do not repeat those of earlier starts.
+    // Without the stored start counter, the next one is unknown: count on from the clock's seconds,
+    // so event ids do not repeat those of earlier starts.
     if (this.quarantined.length) this.run = this.runFromClock();
     this.states = new StateTable(
       s.w,
@@ -157,7 +170,8 @@ export class Watcher {
     const stored = this.loadOrQuarantine(
       deps.baselineStore,
       null,
-      'no learned baseline: learn it again at steady running (baseline-relative alarm and vector change are off until then)',
+      'no learned baseline: learn it again at steady running ' +
+        '(baseline-relative alarm and vector change are off until then)',
     );
     if (stored && stored.asset !== s.asset) {
       throw new UserError(
@@ -182,8 +196,8 @@ export class Watcher {
     this.reloadCoefficients();
     this.trendCache = this.computeTrend();
     // Records the new start counter. If it cannot be saved, a restart would use the same one again:
-    // this run counts from the clock instead, so its event ids cannot be repeated by the next (every
-    // window tries to save it again).
+    // this run counts from the clock instead, so its event ids cannot be repeated by the next
+    // (every window tries to save it again).
     if (!this.persist()) this.run = Math.max(this.run, this.runFromClock());
   }
 
@@ -208,7 +222,9 @@ export class Watcher {
       const movedTo = store.quarantine(this.deps.clock.now());
       this.quarantined.push({ file: e.file, moved_to: movedTo, problem: e.problem });
       this.note(
-        `${e.file} is damaged (${e.problem}); ${movedTo ? `moved to ${movedTo} for inspection` : 'it could not be moved aside'}; ${consequence}`,
+        `${e.file} is damaged (${e.problem}); ` +
+          `${movedTo ? `moved to ${movedTo} for inspection` : 'it could not be moved aside'}; ` +
+          `${consequence}`,
       );
       return fresh;
     }
@@ -224,7 +240,10 @@ export class Watcher {
   }
 
   /** Reads the stored influence coefficients again (call after a balancing job saved new ones). */
-  /** The last recorded sweep's resonances, used as evidence from the next window on (null: none known). */
+  /**
+   * The last recorded sweep's resonances, used as evidence from the next window on (null: none
+   * known).
+   */
   setSweepEvidence(e: SweepEvidence | null): void {
     this.sweepEvidence = e;
   }
@@ -261,7 +280,8 @@ export class Watcher {
         'start learning first, let the fan run steadily for a few windows, then stop',
       );
     const res = this.learner.finish(new Date(this.deps.clock.now()).toISOString());
-    this.deps.baselineStore.save(res.baseline); // when this throws, learning goes on and stopping can be tried again
+    // when this throws, learning goes on and stopping can be tried again
+    this.deps.baselineStore.save(res.baseline);
     this.learner = null;
     this.setBaseline(res.baseline);
     return res;
@@ -334,7 +354,9 @@ export class Watcher {
       const files = this.quarantined;
       this.quarantined = [];
       emit('state_files_quarantined', 'machine', 'warning', {
-        message: `damaged watcher file(s) moved aside at start, the watcher went on without them: ${files.map((f) => `${f.file} (${f.problem.split('\n')[0]})`).join('; ')}`,
+        message:
+          `damaged watcher file(s) moved aside at start, the watcher went on without ` +
+          `them: ${files.map((f) => `${f.file} (${f.problem.split('\n')[0]})`).join('; ')}`,
         files,
       });
     }
@@ -367,7 +389,8 @@ export class Watcher {
 
     const hold = a.zone.inhibited || !health.running;
     if (!hold) {
-      // Zones: hysteresis per window, then on-delay. A doubtful sensor alone does not put the machine in D.
+      // Zones: hysteresis per window, then on-delay. A doubtful sensor alone does not put the
+      // machine in D.
       let machine: Zone | null = null;
       let machineSure: Zone | null = null;
       const doubtfulD: string[] = [];
@@ -478,9 +501,9 @@ export class Watcher {
   }
 
   /**
-   * Keeps watching when the disk fails (full, read-only): the first failure of a burst is logged, the
-   * rest counted, and the problem listed in status.warnings; the first save that works again clears
-   * it with an info line (`recovered`). False when `fn` threw.
+   * Keeps watching when the disk fails (full, read-only): the first failure of a burst is logged,
+   * the rest counted, and the problem listed in status.warnings; the first save that works again
+   * clears it with an info line (`recovered`). False when `fn` threw.
    */
   private guarded(key: string, fn: () => void, recovered: string): boolean {
     try {
@@ -496,7 +519,9 @@ export class Watcher {
     return true;
   }
 
-  /** A fact about this start: logged once as a warning and listed in status.warnings for the run. */
+  /**
+   * A fact about this start: logged once as a warning and listed in status.warnings for the run.
+   */
   private note(message: string): void {
     this.deps.log.warn({}, message);
     this.notes.push(message);

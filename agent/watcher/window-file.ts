@@ -5,8 +5,9 @@ import { UserError } from '../errors.js';
 import { parseJsonFile, readTextOrNull } from './files.js';
 
 /**
- * Reads DSP windows saved as JSON (for learning a baseline from a recording): one WindowResult, a list
- * of them, or an object holding them under "windows" or "window" (e.g. the output of an analysis).
+ * Reads DSP windows saved as JSON (for learning a baseline from a recording): one WindowResult, a
+ * list of them, or an object holding them under "windows" or "window" (e.g. the output of an
+ * analysis).
  */
 
 const orderSchema = z.object({

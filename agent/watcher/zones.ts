@@ -33,9 +33,15 @@ export interface PulsesPerRevHint {
 
 /** Largest factor k looked for: measured speed near rated x k or rated / k, k = 2..4. */
 const PPR_MAX_FACTOR = 4;
-/** How close to rated x k or rated / k the speed must be (a fan's speed sits within a few % of rated). */
+/**
+ * How close to rated x k or rated / k the speed must be (a fan's speed sits within a few % of
+ * rated).
+ */
 const PPR_RATIO_TOLERANCE = 0.03;
-/** Largest speed spread over the window, (max - min) / mean, for the speed to count as steady (a 180 s coast-down passes rated / 2 at about 2 % per 2 s window). */
+/**
+ * Largest speed spread over the window, (max - min) / mean, for the speed to count as steady (a
+ * 180 s coast-down passes rated / 2 at about 2 % per 2 s window).
+ */
 const PPR_STEADY_SPREAD = 0.015;
 
 /**
@@ -54,7 +60,8 @@ export function pulsesPerRevHint(
   if (rated === null || v === null || !(v > 0)) return null;
   const lo = window.speed_min_rpm ?? v;
   const hi = window.speed_max_rpm ?? v;
-  if ((hi - lo) / v > PPR_STEADY_SPREAD) return null; // starting or coasting: passing rated / k means nothing
+  // starting or coasting: passing rated / k means nothing
+  if ((hi - lo) / v > PPR_STEADY_SPREAD) return null;
   const ppr = s.pulsesPerRev;
   const at = `${v.toFixed(0)} r/min`;
   for (let k = 2; k <= PPR_MAX_FACTOR; k++) {
@@ -64,7 +71,11 @@ export function pulsesPerRevHint(
         speed_ratio: k,
         configured: ppr,
         fits,
-        why: `${at} is about ${k} x machine.rated_rpm (${rated}): tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulses per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders`,
+        why:
+          `${at} is about ${k} x machine.rated_rpm (${rated}): ` +
+          `tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulses ` +
+          `per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then ` +
+          `the 1x, 2x, ... vectors are not the shaft's orders`,
       };
     }
     if (ppr % k === 0 && Math.abs((v * k) / rated - 1) <= PPR_RATIO_TOLERANCE) {
@@ -73,7 +84,11 @@ export function pulsesPerRevHint(
         speed_ratio: 1 / k,
         configured: ppr,
         fits,
-        why: `${at} is about 1/${k} of machine.rated_rpm (${rated}): unless the fan really runs at 1/${k} of its rated speed, tach.pulses_per_rev is probably wrong, the tach gives ${fits} pulse(s) per turn, not ${ppr} (set tach.pulses_per_rev: ${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders`,
+        why:
+          `${at} is about 1/${k} of machine.rated_rpm (${rated}): unless the fan really ` +
+          `runs at 1/${k} of its rated speed, tach.pulses_per_rev is probably wrong, the ` +
+          `tach gives ${fits} pulse(s) per turn, not ${ppr} (set tach.pulses_per_rev: ` +
+          `${fits}); until then the 1x, 2x, ... vectors are not the shaft's orders`,
       };
     }
   }
@@ -107,7 +122,9 @@ export function speedReport(s: WatcherSettings, window: WindowResult): SpeedRepo
       state: 'low',
       speed_rpm: v,
       range_rpm: range,
-      why: `${at} is below ${range.min.toFixed(0)} r/min (${Math.round(s.w.min_speed_share * 100)} % of rated): starting or coasting down`,
+      why:
+        `${at} is below ${range.min.toFixed(0)} r/min ` +
+        `(${Math.round(s.w.min_speed_share * 100)} % of rated): starting or coasting down`,
       pulses_per_rev_hint: hint,
     };
   if (v > range.max)
@@ -115,7 +132,9 @@ export function speedReport(s: WatcherSettings, window: WindowResult): SpeedRepo
       state: 'high',
       speed_rpm: v,
       range_rpm: range,
-      why: `${at} is above ${range.max.toFixed(0)} r/min (${Math.round(s.w.max_speed_share * 100)} % of rated)`,
+      why:
+        `${at} is above ${range.max.toFixed(0)} r/min ` +
+        `(${Math.round(s.w.max_speed_share * 100)} % of rated)`,
       pulses_per_rev_hint: hint,
     };
   return {
@@ -133,7 +152,10 @@ export interface ChannelZone {
   readonly overall_rms_mm_s: number | null;
   /** Zone of this window's overall; null when the sensor is not OK or there is no overall. */
   readonly zone: Zone | null;
-  /** Alarm level in force, mm/s r.m.s. (ISO 20816-3: baseline + 0.25 x B/C, at most 1.25 x B/C; B/C without baseline). */
+  /**
+   * Alarm level in force, mm/s r.m.s. (ISO 20816-3: baseline + 0.25 x B/C, at most 1.25 x B/C; B/C
+   * without baseline).
+   */
   readonly alarm_mm_s: number;
   readonly over_alarm: boolean;
 }
@@ -144,7 +166,10 @@ export interface ZoneReport {
   readonly channels: Readonly<Record<string, ChannelZone>>;
   /** Boundaries in force for this window (raised by the start-up multiplier when it applies). */
   readonly limits: Boundaries & { readonly basis: string; readonly multiplier: number };
-  /** True below the minimum speed share with below_min_speed "inhibit": zones are shown but not acted on. */
+  /**
+   * True below the minimum speed share with below_min_speed "inhibit": zones are shown but not
+   * acted on.
+   */
   readonly inhibited: boolean;
   readonly notes: readonly string[];
 }

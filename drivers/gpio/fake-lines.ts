@@ -117,7 +117,10 @@ export class FakeGpioLines implements GpioLines {
     return l;
   }
 
-  /** Drives an input to `value` (logical level) as the outside world would; listeners see it if their edge matches. */
+  /**
+   * Drives an input to `value` (logical level) as the outside world would; listeners see it if
+   * their edge matches.
+   */
   setInput(name: string, value: boolean, atMs = this.nowMs()): void {
     const l = this.get(name, 'input');
     if (l.value === value) return;

@@ -36,7 +36,9 @@ export type GpioClass = new (
 ) => Pick<OnoffGpio, 'read' | 'write' | 'watch' | 'unwatch' | 'unexport'>;
 
 export interface OnoffLinesOptions {
-  /** Label of the GPIO chip the line offsets refer to (e.g. "pinctrl-bcm2711"); see pickGpioChip. */
+  /**
+   * Label of the GPIO chip the line offsets refer to (e.g. "pinctrl-bcm2711"); see pickGpioChip.
+   */
   readonly chipLabel?: string;
   readonly sysfsRoot?: string;
   readonly log: Logger;
@@ -52,20 +54,23 @@ export function explainGpioError(
   chip: GpioChip,
 ): UserError {
   const e = err as NodeJS.ErrnoException;
-  const where = `GPIO "${name}" (line ${offset} on ${chip.name} "${chip.label}", sysfs number ${global})`;
+  const where =
+    `GPIO "${name}" (line ${offset} on ` + `${chip.name} "${chip.label}", sysfs number ${global})`;
   switch (e?.code) {
     case 'EACCES':
     case 'EPERM':
       return new UserError(
         where,
         `permission denied on the sysfs GPIO files (${e.message})`,
-        'add the service user to the gpio group (sudo usermod -aG gpio USER, then restart the service) or install the udev rule deploy/udev/99-turnwise-gpio.rules',
+        'add the service user to the gpio group (sudo usermod -aG gpio USER, then ' +
+          'restart the service) or install the udev rule deploy/udev/99-turnwise-gpio.rules',
       );
     case 'EINVAL':
       return new UserError(
         where,
         `the kernel refused GPIO number ${global} (${e.message})`,
-        'check the chip label and the line offset; numbers are chip base + offset and the base changes between kernels',
+        'check the chip label and the line offset; numbers are ' +
+          'chip base + offset and the base changes between kernels',
       );
     case 'EBUSY':
       return new UserError(
@@ -114,7 +119,8 @@ export class OnoffLines implements GpioLines {
       throw new UserError(
         'GPIO',
         `the onoff module could not be loaded (${(e as Error).message})`,
-        'on the board install build tools (build-essential, python3) and run `npm rebuild epoll`; on a machine without GPIO use the fake lines',
+        'on the board install build tools (build-essential, python3) and run ' +
+          '`npm rebuild epoll`; on a machine without GPIO use the fake lines',
       );
     }
     opts.log.info(

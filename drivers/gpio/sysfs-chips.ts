@@ -71,7 +71,8 @@ export function pickGpioChip(
     throw new UserError(
       root,
       'no GPIO chips found (the sysfs GPIO interface is missing or not enabled in this kernel)',
-      'run on the board, or check that CONFIG_GPIO_SYSFS is enabled; on a laptop use the fake GPIO lines',
+      'run on the board, or check that CONFIG_GPIO_SYSFS ' +
+        'is enabled; on a laptop use the fake GPIO lines',
     );
   }
   if (label !== undefined) {
@@ -84,7 +85,8 @@ export function pickGpioChip(
         : `${hit.length} GPIO chips are labelled "${label}": ${describe(hit)}`,
       hit.length === 0
         ? `set ${CHIP_LABEL_KEY} in the config to one of the labels listed`
-        : `${CHIP_LABEL_KEY} cannot tell chips with the same label apart; wire the lines to a chip whose label is unique`,
+        : `${CHIP_LABEL_KEY} cannot tell chips with the same label ` +
+            `apart; wire the lines to a chip whose label is unique`,
     );
   }
   if (chips.length === 1) return chips[0]!;
@@ -95,17 +97,21 @@ export function pickGpioChip(
   throw new UserError(
     root,
     `several GPIO chips and none is known to carry the pin header: ${describe(chips)}`,
-    `set ${CHIP_LABEL_KEY} in the config to the label of the chip your relay, lamp, button and GPIO tach input are wired to (one of the labels listed)`,
+    `set ${CHIP_LABEL_KEY} in the config to the label of the chip your relay, ` +
+      `lamp, button and GPIO tach input are wired to (one of the labels listed)`,
   );
 }
 
-/** Global sysfs number of line `offset` on `chip`; throws UserError when the chip has no such line. */
+/**
+ * Global sysfs number of line `offset` on `chip`; throws UserError when the chip has no such line.
+ */
 export function globalLineNumber(chip: GpioChip, offset: number, what: string): number {
   if (!Number.isInteger(offset) || offset < 0 || offset >= chip.ngpio) {
     throw new UserError(
       what,
       `line ${offset} does not exist on ${chip.name} "${chip.label}" (lines 0-${chip.ngpio - 1})`,
-      'give the line offset on the chip (for a Raspberry Pi: the BCM GPIO number), not the header pin number',
+      'give the line offset on the chip (for a Raspberry ' +
+        'Pi: the BCM GPIO number), not the header pin number',
     );
   }
   return chip.base + offset;

@@ -74,7 +74,10 @@ export class PulseSpeed {
     this.next = (this.next + 1) % this.intervals.length;
   }
 
-  /** Speed in r/min averaged over the last intervals, or null when unknown (no pulses, stopped, lost). */
+  /**
+   * Speed in r/min averaged over the last intervals, or null when unknown (no pulses, stopped,
+   * lost).
+   */
   rpm(nowMs: number): number | null {
     if (this.count === 0 || this.lastMs === null || nowMs - this.lastMs > this.maxIntervalMs)
       return null;

@@ -15,7 +15,10 @@ class Slot {
   private edges = new Float64Array(0);
   private delays = new Float64Array(0);
 
-  /** Copies the frame's samples and edges into this slot's arrays (grown only when a frame is larger). */
+  /**
+   * Copies the frame's samples and edges into this slot's arrays (grown only when a frame is
+   * larger).
+   */
   fill(
     startIndex: number,
     channels: readonly Float32Array[],
@@ -131,7 +134,9 @@ export class BlockQueue {
           kind: 'gap',
           fromIndex: from,
           toIndex: index,
-          reason: `the consumer fell behind: ${this.dropped} frame(s) dropped because all ${this.slots} queue slots were full`,
+          reason:
+            `the consumer fell behind: ${this.dropped} frame(s) ` +
+            `dropped because all ${this.slots} queue slots were full`,
         },
         slot: null,
       });

@@ -28,7 +28,9 @@ export const CHANNEL_ENTRY_LEN_V1 = 8;
 export const HEADER_LEN_V2 = 48;
 /** Version 2 channel entry: version 1's plus f32 skew_ticks. */
 export const CHANNEL_ENTRY_LEN_V2 = 12;
-/** Largest ADC or tach delay a board may declare, ticks (sigma-delta filters delay tens of samples). */
+/**
+ * Largest ADC or tach delay a board may declare, ticks (sigma-delta filters delay tens of samples).
+ */
 export const MAX_DELAY_TICKS = 1024;
 export const TACH_EDGE_LEN = 8;
 export const CRC_LEN = 4;
@@ -94,11 +96,16 @@ export function frameLength(
 
 /** A version 2 board's timing declaration (PROTOCOL.md 2.6). */
 export interface BoardTiming {
-  /** The value indexed i describes the input at tick i - sampleDelayTicks (+ the channel's skew). */
+  /**
+   * The value indexed i describes the input at tick i - sampleDelayTicks (+ the channel's skew).
+   */
   readonly sampleDelayTicks: number;
   /** A board-timed edge reported at tick t happened at t - tachDelayTicks. */
   readonly tachDelayTicks: number;
-  /** Per channel, how long after the sample instant it is converted, ticks, 0 <= skew < 1 (all 0: simultaneous). */
+  /**
+   * Per channel, how long after the sample instant it is converted, ticks, 0 <= skew < 1 (all 0:
+   * simultaneous).
+   */
   readonly skewTicks: ArrayLike<number>;
 }
 
@@ -117,7 +124,10 @@ export function timingFault(t: {
   for (let c = 0; c < t.skewTicks.length; c++) {
     const s = t.skewTicks[c]!;
     if (!Number.isFinite(s) || s < 0 || s >= 1)
-      return `channel ${c} skew_ticks ${s} outside 0 to below 1 (a channel is converted within its sample period)`;
+      return (
+        `channel ${c} skew_ticks ${s} outside 0 to below ` +
+        `1 (a channel is converted within its sample period)`
+      );
   }
   return null;
 }
@@ -143,11 +153,17 @@ export interface FrameContent {
    * [firstSample, firstSample + samples per channel). Undefined: the board does not time the tach.
    */
   readonly tachEdges?: ArrayLike<number>;
-  /** Present: a version 2 frame declaring this timing; absent: a version 1 frame. Encoded as given (not checked), so tests can send impossible ones. */
+  /**
+   * Present: a version 2 frame declaring this timing; absent: a version 1 frame. Encoded as given
+   * (not checked), so tests can send impossible ones.
+   */
   readonly timing?: BoardTiming;
 }
 
-/** Encodes one version 1 frame, or version 2 when `timing` is given. Pure; throws RangeError on content that cannot be encoded. */
+/**
+ * Encodes one version 1 frame, or version 2 when `timing` is given. Pure; throws RangeError on
+ * content that cannot be encoded.
+ */
 export function encodeFrame(c: FrameContent): Uint8Array {
   const channelCount = c.samples.length;
   if (channelCount < 1 || channelCount > 255)
@@ -243,7 +259,10 @@ export function encodeFrame(c: FrameContent): Uint8Array {
   return out;
 }
 
-/** One decoded frame. The decoder reuses this object and its arrays: valid only during `FrameSink.frame`. */
+/**
+ * One decoded frame. The decoder reuses this object and its arrays: valid only during
+ * `FrameSink.frame`.
+ */
 export class DecodedFrame {
   sequence = 0;
   /** First sample's index on the board's own sample clock. */
@@ -255,9 +274,15 @@ export class DecodedFrame {
   samplesPerChannel = 0;
   /** Volts, one view per channel, length `samplesPerChannel`. */
   channels: readonly Float32Array[] = [];
-  /** Rising tach edges, absolute fractional output-clock indices; undefined when the board does not time the tach. */
+  /**
+   * Rising tach edges, absolute fractional output-clock indices; undefined when the board does not
+   * time the tach.
+   */
   tachEdges: Float64Array | undefined = undefined;
-  /** Per-channel timing delay in ticks (version 2 frames: ADC delay + channel skew); undefined for version 1. */
+  /**
+   * Per-channel timing delay in ticks (version 2 frames: ADC delay + channel skew); undefined for
+   * version 1.
+   */
   channelDelays: Float64Array | undefined = undefined;
 }
 
@@ -296,7 +321,10 @@ export const DEFAULT_LIMITS: DecoderLimits = {
   maxTachEdges: 256,
 };
 
-/** Default tolerance on the declared sample rate against the configured one, ppm (acquisition.sample_rate_tolerance_ppm). */
+/**
+ * Default tolerance on the declared sample rate against the configured one, ppm
+ * (acquisition.sample_rate_tolerance_ppm).
+ */
 export const DEFAULT_RATE_TOLERANCE_PPM = 100;
 
 export interface DecoderOptions {
@@ -324,7 +352,10 @@ export interface DecoderCounters {
   rejected_frames: number;
   /** Times the decoder lost step and had to search for the next sync word. */
   resyncs: number;
-  /** Bytes that were not part of any good frame (garbage, damaged frames, partial frames at disconnect). */
+  /**
+   * Bytes that were not part of any good frame (garbage, damaged frames, partial frames at
+   * disconnect).
+   */
   bytes_skipped: number;
   gaps: number;
   samples_lost: number;
@@ -332,7 +363,10 @@ export interface DecoderCounters {
   sequence_anomalies: number;
   /** Times the board's sample clock went backwards (board restarted). */
   clock_restarts: number;
-  /** Version 2 frames whose timing declaration was impossible (their samples were used with the last good declaration). */
+  /**
+   * Version 2 frames whose timing declaration was impossible (their samples were used with the last
+   * good declaration).
+   */
   timing_faults: number;
 }
 
@@ -540,7 +574,9 @@ export class FrameDecoder {
       const minEntry =
         version === PROTOCOL_VERSION_TIMED ? CHANNEL_ENTRY_LEN_V2 : CHANNEL_ENTRY_LEN_V1;
       if (version !== PROTOCOL_VERSION && version !== PROTOCOL_VERSION_TIMED)
-        headerFault = `protocol version ${version} (this agent reads versions ${PROTOCOL_VERSIONS.join(' and ')})`;
+        headerFault =
+          `protocol version ${version} (this agent reads ` +
+          `versions ${PROTOCOL_VERSIONS.join(' and ')})`;
       else if (headerLen < minHeader)
         headerFault = `header length ${headerLen} below ${minHeader} (version ${version})`;
       else if (entryLen < minEntry)
@@ -589,7 +625,9 @@ export class FrameDecoder {
         this.since.crc++;
         this.sink.problem(
           'crc',
-          `CRC mismatch in frame ${dv.getUint32(pos + 12, true)}: stored 0x${wanted.toString(16).padStart(8, '0')}, computed 0x${got.toString(16).padStart(8, '0')}`,
+          `CRC mismatch in frame ${dv.getUint32(pos + 12, true)}: ` +
+            `stored 0x${wanted.toString(16).padStart(8, '0')}, computed ` +
+            `0x${got.toString(16).padStart(8, '0')}`,
         );
         this.skip(1);
         pos += 1;
@@ -655,7 +693,8 @@ export class FrameDecoder {
     if (this.expectChannels !== undefined && channelCount !== this.expectChannels) {
       return reject(
         'rejected',
-        `${channelCount} channel(s), the configuration says ${this.expectChannels} (acquisition.channels)`,
+        `${channelCount} channel(s), the configuration ` +
+          `says ${this.expectChannels} (acquisition.channels)`,
       );
     }
     if (
@@ -665,7 +704,10 @@ export class FrameDecoder {
       const ppm = ((rate - this.expectRate) / this.expectRate) * 1e6;
       return reject(
         'rejected',
-        `sample rate ${rate} Hz declared, ${ppm >= 0 ? '+' : ''}${ppm.toFixed(0)} ppm from the configured ${this.expectRate} Hz, beyond the tolerance of ${(this.rateTolerance * 1e6).toFixed(0)} ppm: set acquisition.sample_rate_hz to the board's rate (or widen acquisition.sample_rate_tolerance_ppm)`,
+        `sample rate ${rate} Hz declared, ${ppm >= 0 ? '+' : ''}${ppm.toFixed(0)} ppm ` +
+          `from the configured ${this.expectRate} Hz, beyond the tolerance of ` +
+          `${(this.rateTolerance * 1e6).toFixed(0)} ppm: set acquisition.sample_rate_hz ` +
+          `to the board's rate (or widen acquisition.sample_rate_tolerance_ppm)`,
       );
     }
     const timed = version === PROTOCOL_VERSION_TIMED;
@@ -686,8 +728,8 @@ export class FrameDecoder {
       if (timed) this.skews[ch] = dv.getFloat32(o + 8, true);
       o += entryLen;
     }
-    // An impossible timing declaration does not stop monitoring: it is counted and reported, and the
-    // samples are placed with the last good declaration (zeros if none came yet).
+    // An impossible timing declaration does not stop monitoring: it is counted and reported, and
+    // the samples are placed with the last good declaration (zeros if none came yet).
     const tm = this.timing;
     if (timed) {
       const fault = timingFault({
@@ -699,7 +741,10 @@ export class FrameDecoder {
         this.counters.timing_faults++;
         this.sink.problem(
           'timing',
-          `frame ${sequence}: impossible timing declaration (${fault}); its samples are used with the last good declaration (${tm.declared ? `sample delay ${tm.sampleDelayTicks} ticks, tach delay ${tm.tachDelayTicks} ticks` : 'none yet: no delay compensation'}): fix the board's firmware (PROTOCOL.md 2.6)`,
+          `frame ${sequence}: impossible timing declaration (${fault}); its ` +
+            `samples are used with the last good declaration ` +
+            `(${tm.declared ? `sample delay ${tm.sampleDelayTicks} ticks, tach delay ${tm.tachDelayTicks} ticks` : 'none yet: no delay compensation'}): ` +
+            `fix the board's firmware (PROTOCOL.md 2.6)`,
         );
       } else {
         tm.declared = true;
@@ -801,7 +846,10 @@ export class FrameDecoder {
     return true;
   }
 
-  /** Compares a good frame with the one before it; reports gaps and moves the output clock on a board restart. */
+  /**
+   * Compares a good frame with the one before it; reports gaps and moves the output clock on a
+   * board restart.
+   */
   private checkContinuity(sequence: number, boardFirst: number, spc: number, rate: number): void {
     const expected = this.nextBoardIndex;
     if (expected === null) return;
@@ -811,7 +859,8 @@ export class FrameDecoder {
         this.counters.sequence_anomalies++;
         this.sink.problem(
           'sequence',
-          `sequence jumped ${prevSeq} -> ${sequence} but the sample clock is continuous (no samples lost)`,
+          `sequence jumped ${prevSeq} -> ${sequence} but ` +
+            `the sample clock is continuous (no samples lost)`,
         );
       }
       return;
@@ -827,7 +876,8 @@ export class FrameDecoder {
       what =
         missingFrames > 0
           ? `sequence jump ${prevSeq} -> ${sequence} (${missingFrames} frame(s) missing)`
-          : `board sample clock jumped ahead by ${boardFirst - expected} samples with the sequence continuous (board-side overrun)`;
+          : `board sample clock jumped ahead by ${boardFirst - expected} samples ` +
+            `with the sequence continuous (board-side overrun)`;
     } else {
       // The board's clock went backwards: it restarted. How much was lost is only known from the
       // wall clock: the time since the last good frame, less this frame's own duration.
@@ -838,7 +888,10 @@ export class FrameDecoder {
       from = expected + this.clockOffset;
       to = from + estimate;
       this.clockOffset = to - boardFirst;
-      what = `board sample clock restarted (index ${expected} expected, ${boardFirst} received; sequence ${prevSeq} -> ${sequence}); samples lost estimated from the wall clock`;
+      what =
+        `board sample clock restarted (index ${expected} expected, ` +
+        `${boardFirst} received; sequence ${prevSeq} -> ${sequence}); ` +
+        `samples lost estimated from the wall clock`;
       this.sink.problem('clock_restart', what);
     }
     const reason = this.describeCause(what);

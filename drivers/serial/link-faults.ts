@@ -1,13 +1,14 @@
 /**
- * Faults of a serial line, injected into a stream of encoded frames on the board's side, so that the
- * agent's decoder, its gap reporting and the measurement core behind it can be tried against a board
- * (real or simulated) on a noisy link: bursts of garbage bytes between frames, and frames with a bit
- * flipped in their samples so that their CRC-32 fails.
+ * Faults of a serial line, injected into a stream of encoded frames on the board's side, so that
+ * the agent's decoder, its gap reporting and the measurement core behind it can be tried against a
+ * board (real or simulated) on a noisy link: bursts of garbage bytes between frames, and frames
+ * with a bit flipped in their samples so that their CRC-32 fails.
  *
- * What the agent must make of them (PROTOCOL.md): garbage is skipped and costs no samples (a resync,
- * its bytes counted as skipped); a damaged frame is dropped whole, and its samples are a gap with the
- * frame's exact sample-clock bounds. The garbage never holds the sync word's first byte (0xA5), so it
- * cannot hide a false frame start: every injected byte is skipped and no intact frame is lost to it.
+ * What the agent must make of them (PROTOCOL.md): garbage is skipped and costs no samples (a
+ * resync, its bytes counted as skipped); a damaged frame is dropped whole, and its samples are a
+ * gap with the frame's exact sample-clock bounds. The garbage never holds the sync word's first
+ * byte (0xA5), so it cannot hide a false frame start: every injected byte is skipped and no intact
+ * frame is lost to it.
  */
 import { CRC_LEN, FRAME_SYNC } from './frame.js';
 
@@ -16,7 +17,10 @@ export interface FrameFaultOptions {
   readonly garbageEvery?: number;
   /** Bytes per garbage burst (default 64). */
   readonly garbageBytes?: number;
-  /** Every N-th frame goes out with one bit of its samples flipped: its CRC-32 fails (0 or absent: never). */
+  /**
+   * Every N-th frame goes out with one bit of its samples flipped: its CRC-32 fails (0 or absent:
+   * never).
+   */
   readonly corruptEvery?: number;
   /** Seed of the garbage bytes; the same seed gives the same bytes. */
   readonly seed?: number;
@@ -67,9 +71,9 @@ export class FrameFaults {
   }
 
   /**
-   * The bytes to send for one encoded frame: the frame (damaged when its turn has come), followed by
-   * a garbage burst when its turn has come, in one piece so that a link dropping whole writes never
-   * tears a frame. The frame passed in is not changed.
+   * The bytes to send for one encoded frame: the frame (damaged when its turn has come), followed
+   * by a garbage burst when its turn has come, in one piece so that a link dropping whole writes
+   * never tears a frame. The frame passed in is not changed.
    */
   apply(frame: Uint8Array): Uint8Array {
     this.frames++;
@@ -90,7 +94,10 @@ export class FrameFaults {
     return out;
   }
 
-  /** Flips one bit in the middle of the frame's sample bytes (header layout of PROTOCOL.md, version 1). */
+  /**
+   * Flips one bit in the middle of the frame's sample bytes (header layout of PROTOCOL.md, version
+   * 1).
+   */
   private damage(f: Uint8Array, length: number): void {
     const dv = new DataView(f.buffer, f.byteOffset, length);
     const headerLen = f[5]!;

@@ -6,28 +6,37 @@
  * each time the poller reports the port readable, one read() on the main thread into one buffer
  * reused for every read. serialport's own stream instead sends every read to libuv's thread pool,
  * where the non-blocking descriptor usually answers EAGAIN first (an exception and a rejected
- * promise), then waits for the poller and reads again in the pool: two thread hand-overs and several
- * promises per chunk of at most 4 KiB (the tty layer's read size), some 200 times a second at
- * 8 channels x 25.6 kHz x int24. Where the binding has no poller (Windows) its read() is used.
+ * promise), then waits for the poller and reads again in the pool: two thread hand-overs and
+ * several promises per chunk of at most 4 KiB (the tty layer's read size), some 200 times a second
+ * at 8 channels x 25.6 kHz x int24. Where the binding has no poller (Windows) its read() is used.
  *
  * The chunk handed to `data` is valid only during the call: the next read overwrites it.
  */
 import { readSync } from 'node:fs';
 
-/** What the reader needs of a binding port (serialport's LinuxPortBinding and DarwinPortBinding have it all). */
+/**
+ * What the reader needs of a binding port (serialport's LinuxPortBinding and DarwinPortBinding have
+ * it all).
+ */
 export interface ReadablePort {
   readonly isOpen: boolean;
   read(buffer: Buffer, offset: number, length: number): Promise<{ bytesRead: number }>;
   /** The open, non-blocking file descriptor (Linux, macOS). */
   readonly fd?: number | null;
-  /** Calls back once when the descriptor is readable, or with an error (`canceled` when the port closed). */
+  /**
+   * Calls back once when the descriptor is readable, or with an error (`canceled` when the port
+   * closed).
+   */
   readonly poller?: { once(event: 'readable', callback: (err: Error | null) => void): unknown };
 }
 
 export interface PortReaderSink {
   /** Bytes as they arrived; the buffer is reused after the call returns. */
   data(chunk: Buffer): void;
-  /** The port failed (device gone, read error, hang-up): called once, after which the reader has stopped. Never after stop(). */
+  /**
+   * The port failed (device gone, read error, hang-up): called once, after which the reader has
+   * stopped. Never after stop().
+   */
   failed(err: Error): void;
 }
 
@@ -37,7 +46,9 @@ const canceled = (e: unknown) => (e as { canceled?: boolean } | null)?.canceled 
 const RETRY = new Set(['EAGAIN', 'EWOULDBLOCK', 'EINTR']);
 
 export class PortReader {
-  /** How this port is read: `poll` (poller + read on the main thread) where the binding allows it. */
+  /**
+   * How this port is read: `poll` (poller + read on the main thread) where the binding allows it.
+   */
   readonly mode: ReadMode;
   /** read() calls that returned bytes. */
   reads = 0;

@@ -52,7 +52,8 @@ export interface PortListing {
 
 /**
  * Everything known about serial ports. serialport's list() runs `udevadm` on Linux; where udevadm
- * is missing it fails with ENOENT, which is caught here and explained instead of ending the process.
+ * is missing it fails with ENOENT, which is caught here and explained instead of ending the
+ * process.
  */
 export async function listPorts(dir = BY_ID_DIR): Promise<PortListing> {
   const stable = await listStablePorts(dir);
@@ -64,7 +65,8 @@ export async function listPorts(dir = BY_ID_DIR): Promise<PortListing> {
     const err = e as NodeJS.ErrnoException;
     const listError =
       err.code === 'ENOENT'
-        ? 'udevadm is not installed, so USB details are unavailable (install the Debian package udev); the /dev/serial/by-id links still work'
+        ? 'udevadm is not installed, so USB details are unavailable (install ' +
+          'the Debian package udev); the /dev/serial/by-id links still work'
         : `listing serial ports failed: ${err.message}`;
     return { stable, detailed: [], listError };
   }
@@ -78,7 +80,9 @@ export interface OpenFailure {
   readonly hint: string;
 }
 
-/** Explains why opening `device` failed. serialport reports most of these in the message text only. */
+/**
+ * Explains why opening `device` failed. serialport reports most of these in the message text only.
+ */
 export function describeOpenFailure(device: string, err: Error): OpenFailure {
   const code = (err as NodeJS.ErrnoException).code;
   const msg = err.message;
@@ -86,28 +90,37 @@ export function describeOpenFailure(device: string, err: Error): OpenFailure {
     return {
       kind: 'not_found',
       detail: `${device} does not exist`,
-      hint: 'check the board is plugged in and powered; use its /dev/serial/by-id/... link (`turnwise probe-serial` lists them)',
+      hint:
+        'check the board is plugged in and powered; use its ' +
+        '/dev/serial/by-id/... link (`turnwise probe-serial` lists them)',
     };
   }
   if (code === 'EACCES' || /Permission denied/i.test(msg)) {
     return {
       kind: 'permission',
       detail: `no permission to open ${device}`,
-      hint: 'add the service user to the dialout group (sudo usermod -aG dialout USER, then log in again) or install deploy/udev/70-turnwise-daq.rules',
+      hint:
+        'add the service user to the dialout group (sudo usermod -aG dialout ' +
+        'USER, then log in again) or install deploy/udev/70-turnwise-daq.rules',
     };
   }
   if (/Cannot lock port/i.test(msg)) {
     return {
       kind: 'locked',
       detail: `${device} is locked by another open handle`,
-      hint: 'another program (a second turnwise, a terminal program) has the port open; stop it. Right after an unplug the old handle may still be closing: the agent retries by itself',
+      hint:
+        'another program (a second turnwise, a terminal program) ' +
+        'has the port open; stop it. Right after an unplug the old ' +
+        'handle may still be closing: the agent retries by itself',
     };
   }
   if (code === 'EBUSY' || /Resource busy|Device or resource busy/i.test(msg)) {
     return {
       kind: 'busy',
       detail: `${device} is busy`,
-      hint: 'ModemManager probes new ttyACM devices for several seconds: install deploy/udev/70-turnwise-daq.rules (sets ID_MM_DEVICE_IGNORE) or stop ModemManager',
+      hint:
+        'ModemManager probes new ttyACM devices for several seconds: install ' +
+        'deploy/udev/70-turnwise-daq.rules (sets ID_MM_DEVICE_IGNORE) or stop ModemManager',
     };
   }
   return {

@@ -19,7 +19,10 @@ export interface ProbeFormat {
   readonly sample_format: SampleFormat;
   readonly samples_per_frame: number;
   readonly tach_timed: boolean;
-  /** Version 2 frames: the declared ADC delay, tach delay and largest channel skew, ticks; null for version 1. */
+  /**
+   * Version 2 frames: the declared ADC delay, tach delay and largest channel skew, ticks; null for
+   * version 1.
+   */
   readonly sample_delay_ticks: number | null;
   readonly tach_delay_ticks: number | null;
   readonly max_skew_ticks: number | null;
@@ -44,7 +47,10 @@ export interface ProbeReport {
   readonly counters: DecoderCounters;
   /** Format of the first good frame; null when none arrived. */
   readonly format: ProbeFormat | null;
-  /** Every distinct format and frame size seen, in the order first seen (a firmware that changes them shows each). */
+  /**
+   * Every distinct format and frame size seen, in the order first seen (a firmware that changes
+   * them shows each).
+   */
   readonly formats_seen: readonly ProbeFormatSeen[];
   /** Every gap with its bounds (decoder sample clock), the first 100. */
   readonly gap_list: readonly ProbeGap[];
@@ -74,7 +80,8 @@ export async function probeSerial(
       'run `npm rebuild @serialport/bindings-cpp` (needs build tools)',
     );
   }
-  // The agent's UART settings (8N1, no flow control); DTR and RTS asserted after opening, as the agent does.
+  // The agent's UART settings (8N1, no flow control); DTR and RTS asserted after opening, as the
+  // agent does.
   const port = new SerialPort({
     path: device,
     baudRate: baud,
@@ -172,7 +179,8 @@ export async function probeSerial(
   const tick = setInterval(
     () =>
       onProgress?.(
-        `${((performance.now() - t0) / 1000).toFixed(0)} s: ${decoder.counters.frames_ok} frames, ${decoder.counters.bytes_received} bytes`,
+        `${((performance.now() - t0) / 1000).toFixed(0)} s: ` +
+          `${decoder.counters.frames_ok} frames, ${decoder.counters.bytes_received} bytes`,
       ),
     1000,
   );

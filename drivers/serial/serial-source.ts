@@ -28,7 +28,10 @@ export interface SerialSourceOptions {
   /** How far a frame's declared rate may be from sampleRateHz, ppm (default 100). */
   readonly sampleRateTolerancePpm?: number;
   readonly channels: number;
-  /** The config says the board times the tach (acquisition.board_tach_edges); frames that disagree are reported once. */
+  /**
+   * The config says the board times the tach (acquisition.board_tach_edges); frames that disagree
+   * are reported once.
+   */
   readonly boardTachEdges?: boolean;
   /** Most samples per channel in one frame (default 8192). */
   readonly maxSamplesPerChannel?: number;
@@ -64,7 +67,10 @@ export function serialOptionsFromConfig(a: SerialDriverConfig, log: Logger): Ser
   };
 }
 
-/** Health counters, for the heartbeat and `turnwise probe-serial`. (A type, not an interface, so it fits SourceHealth.) */
+/**
+ * Health counters, for the heartbeat and `turnwise probe-serial`. (A type, not an interface, so it
+ * fits SourceHealth.)
+ */
 export type SerialHealth = {
   readonly device: string;
   readonly connected: boolean;
@@ -84,13 +90,22 @@ export type SerialHealth = {
   readonly timing_faults: number;
   /** Protocol version of the last good frame; null before the first. */
   readonly protocol_version: number | null;
-  /** Timing in use: declared by a version 2 board, or null (version 1: samples taken as simultaneous and undelayed). */
+  /**
+   * Timing in use: declared by a version 2 board, or null (version 1: samples taken as simultaneous
+   * and undelayed).
+   */
   readonly sample_delay_ticks: number | null;
   readonly tach_delay_ticks: number | null;
   readonly max_skew_ticks: number | null;
-  /** Frames whose tach mode disagrees with acquisition.board_tach_edges (their edges, or the lack of them, noted once). */
+  /**
+   * Frames whose tach mode disagrees with acquisition.board_tach_edges (their edges, or the lack of
+   * them, noted once).
+   */
   readonly tach_mode_mismatches: number;
-  /** Bounds of the last gap on the agent's sample clock (first missing index, first index present again), and why. */
+  /**
+   * Bounds of the last gap on the agent's sample clock (first missing index, first index present
+   * again), and why.
+   */
   readonly last_gap_from_index: number | null;
   readonly last_gap_to_index: number | null;
   readonly last_gap_reason: string | null;
@@ -115,7 +130,10 @@ interface OpenPort extends ReadablePort {
   close(): Promise<void>;
 }
 
-/** Wait before reopen attempt number `attempt` (0 = first): doubling from `minMs`, capped at `maxMs`. */
+/**
+ * Wait before reopen attempt number `attempt` (0 = first): doubling from `minMs`, capped at
+ * `maxMs`.
+ */
 export function reconnectDelayMs(attempt: number, minMs: number, maxMs: number): number {
   return Math.min(maxMs, minMs * 2 ** Math.min(attempt, 30));
 }
@@ -193,7 +211,8 @@ export class SerialSource implements SampleSource {
       throw new UserError(
         'acquisition.driver: serial',
         `the serialport native module could not be loaded (${(e as Error).message})`,
-        'on this board run `npm rebuild @serialport/bindings-cpp` (needs build tools: build-essential, python3)',
+        'on this board run `npm rebuild @serialport/bindings-cpp` ' +
+          '(needs build tools: build-essential, python3)',
       );
     }
     this.opened = true;
@@ -277,7 +296,8 @@ export class SerialSource implements SampleSource {
   }
 
   private onGap(g: GapMarker): void {
-    // Every gap, also those inside a burst that the warning summarises: bounds in the heartbeat and a debug line.
+    // Every gap, also those inside a burst that the warning summarises: bounds in the heartbeat and
+    // a debug line.
     this.lastGap = g;
     this.log.debug(
       {
@@ -302,8 +322,12 @@ export class SerialSource implements SampleSource {
       this.burst.report(
         'tach_mode',
         want
-          ? `${this.opts.device}: acquisition.board_tach_edges is true but frame ${f.sequence} does not set tach_timed (flags bit 0): no revolution can be averaged; set board_tach_edges: false and tach.channel, or fix the board`
-          : `${this.opts.device}: frame ${f.sequence} carries board-timed tach edges but acquisition.board_tach_edges is false: the edges are ignored and the tach is found on tach.channel; set board_tach_edges: true to use them`,
+          ? `${this.opts.device}: acquisition.board_tach_edges is true but frame ` +
+              `${f.sequence} does not set tach_timed (flags bit 0): no revolution can be ` +
+              `averaged; set board_tach_edges: false and tach.channel, or fix the board`
+          : `${this.opts.device}: frame ${f.sequence} carries board-timed tach edges ` +
+              `but acquisition.board_tach_edges is false: the edges are ignored and the ` +
+              `tach is found on tach.channel; set board_tach_edges: true to use them`,
         { device: this.opts.device },
       );
     }
@@ -316,7 +340,8 @@ export class SerialSource implements SampleSource {
     if (this.closing) return;
     let opening: Promise<OpenPort>;
     try {
-      // UART settings: 8 data bits, no parity, 1 stop bit, no flow control; DTR and RTS dropped on close (hupcl).
+      // UART settings: 8 data bits, no parity, 1 stop bit, no flow control; DTR and RTS dropped on
+      // close (hupcl).
       opening = this.mod!.SerialPort.binding.open({
         path: this.opts.device,
         baudRate: this.opts.baud,
@@ -382,13 +407,17 @@ export class SerialSource implements SampleSource {
         await p.set({ dtr: true, rts: true });
         this.modemLines = 'asserted';
       } catch (e) {
-        this.modemLines = `not supported by the device (${(e as Error).message}; a pseudo-terminal has no modem lines)`;
+        this.modemLines =
+          `not supported by the device (${(e as Error).message}; ` +
+          `a pseudo-terminal has no modem lines)`;
       }
     }
     return this.modemLines;
   }
 
-  /** Stops reading and closes the port; `failure` is the read error that made it necessary, if any. */
+  /**
+   * Stops reading and closes the port; `failure` is the read error that made it necessary, if any.
+   */
   private closePort(port: OpenPort, failure: Error | null): Promise<void> {
     if (this.port !== port) return this.portClosing ?? Promise.resolve();
     this.port = null;
@@ -421,7 +450,8 @@ export class SerialSource implements SampleSource {
     this.burst.report('disconnect', `${this.opts.device}: ${why}; reopening with backoff`, {
       device: this.opts.device,
     });
-    // Reopen only now that the close has completed: reopening a port still closing can fail with "Cannot lock port".
+    // Reopen only now that the close has completed: reopening a port still closing can fail with
+    // "Cannot lock port".
     this.scheduleReopen();
   }
 

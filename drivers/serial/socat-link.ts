@@ -5,13 +5,13 @@
  * to raw mode at a baud rate (`device`, e.g. one end of a null-modem cable).
  *
  * Like a board whose host stops reading, the link never blocks its writer: when the reader falls
- * behind and socat's backlog passes `maxBacklogBytes`, whole frames are dropped (and counted), so the
- * agent sees a sequence gap, never a torn frame.
+ * behind and socat's backlog passes `maxBacklogBytes`, whole frames are dropped (and counted), so
+ * the agent sees a sequence gap, never a torn frame.
  *
- * `stop()` ends socat at once and waits until it has removed its link. Should this process die without
- * stopping it (even by SIGKILL), socat ends too: started through setpriv (util-linux) with a parent-death
- * signal where setpriv is installed, and in any case when it next reads its closed stdin (it does not
- * read while the pseudo-terminal is full, hence setpriv).
+ * `stop()` ends socat at once and waits until it has removed its link. Should this process die
+ * without stopping it (even by SIGKILL), socat ends too: started through setpriv (util-linux) with
+ * a parent-death signal where setpriv is installed, and in any case when it next reads its closed
+ * stdin (it does not read while the pseudo-terminal is full, hence setpriv).
  */
 import { spawn, type ChildProcess } from 'node:child_process';
 import {
@@ -36,8 +36,9 @@ export interface SocatLinkOptions {
   /** How long socat may take to make the link, ms. */
   readonly startTimeoutMs?: number;
   /**
-   * Bytes held in this process for socat (beyond the pipe's own buffer) past which frames are dropped;
-   * default 256 KiB. About a second of frames rides out a stall of either process without loss.
+   * Bytes held in this process for socat (beyond the pipe's own buffer) past which frames are
+   * dropped; default 256 KiB. About a second of frames rides out a stall of either process without
+   * loss.
    */
   readonly maxBacklogBytes?: number;
 }
@@ -123,7 +124,10 @@ export class SocatLink {
     });
   }
 
-  /** Starts socat and waits until the link (or the device) is ready. Rejects with a UserError naming the problem. */
+  /**
+   * Starts socat and waits until the link (or the device) is ready. Rejects with a UserError naming
+   * the problem.
+   */
   static async start(target: SocatTarget, opts: SocatLinkOptions = {}): Promise<SocatLink> {
     const socat = onPath('socat');
     if (!socat)
@@ -145,7 +149,8 @@ export class SocatLink {
       throw new UserError(
         target.path,
         'no such device',
-        'give the serial device to write to (e.g. /dev/ttyUSB0), or leave --device out to make a pseudo-terminal',
+        'give the serial device to write to (e.g. /dev/ttyUSB0), ' +
+          'or leave --device out to make a pseudo-terminal',
       );
     const out =
       target.kind === 'pty'
@@ -153,7 +158,8 @@ export class SocatLink {
         : `${target.path},rawer,b${target.baud}`;
     const args = ['-d', '-d', '-u', 'STDIN', out];
     const setpriv = onPath('setpriv');
-    // Its own process group: Ctrl-C in the terminal reaches this process only, which then stops socat.
+    // Its own process group: Ctrl-C in the terminal reaches this process only, which then stops
+    // socat.
     const proc = setpriv
       ? spawn(setpriv, ['--pdeathsig', 'TERM', '--', socat, ...args], {
           stdio: ['pipe', 'ignore', 'pipe'],
@@ -185,7 +191,8 @@ export class SocatLink {
       if (this.exit) {
         throw new UserError(
           where,
-          `socat stopped at once (exit ${this.exit.code ?? this.exit.signal}; its last message: "${this.lastMessage()}")`,
+          `socat stopped at once (exit ${this.exit.code ?? this.exit.signal}; ` +
+            `its last message: "${this.lastMessage()}")`,
           this.target.kind === 'device'
             ? 'check the device path, its permissions (dialout group) and the baud rate'
             : 'check that the link folder is writable',
@@ -224,7 +231,8 @@ export class SocatLink {
 
   /**
    * Hands one frame to socat, or drops it whole when socat's backlog is full (the reader is not
-   * keeping up, or nobody has the device open). Returns false when dropped; throws once socat has exited.
+   * keeping up, or nobody has the device open). Returns false when dropped; throws once socat has
+   * exited.
    */
   write(frame: Uint8Array): boolean {
     if (this.exit) {

@@ -7,16 +7,18 @@ import type { FanSimulator } from './simulator.js';
  * The simulated fan as the input signals of the serial board (`BoardSignal`), so the board emulator
  * can play the acquisition board with the simulator's physics behind it.
  *
- * - The board may have more inputs than the channel map uses (`channelCount` above the simulator's):
- *   the extra inputs read 0 V. It may also have fewer, when it times the tach itself and does not
- *   digitise it: channels from `channelCount` up are not sent (the caller checks no sensor is lost).
+ * - The board may have more inputs than the channel map uses (`channelCount` above the
+ *   simulator's): the extra inputs read 0 V. It may also have fewer, when it times the tach itself
+ *   and does not
+ *   digitise it: channels from `channelCount` up are not sent (the caller checks no sensor is
+ *   lost).
  * - The simulator reports a tach edge with the sample after it, so an edge falling between the last
- *   sample of one frame and the first of the next would arrive one frame late. This signal renders one
- *   sample ahead and keeps it back for the next call, so every edge lands in the frame whose samples
- *   span it, as the protocol wants.
+ *   sample of one frame and the first of the next would arrive one frame late. This signal renders
+ *   one sample ahead and keeps it back for the next call, so every edge lands in the frame whose
+ *   samples span it, as the protocol wants.
  * - The fan keeps turning whatever the board does: when the board skips samples (a lost frame) the
- *   simulator runs on through them, and when the board's clock restarts at 0 the simulation continues
- *   where it was, only the board's sample numbers start again.
+ *   simulator runs on through them, and when the board's clock restarts at 0 the simulation
+ *   continues where it was, only the board's sample numbers start again.
  */
 export class SimBoardSignal implements BoardSignal {
   readonly channelCount: number;
@@ -75,8 +77,9 @@ export class SimBoardSignal implements BoardSignal {
   }
 
   /**
-   * Hands out the next k board samples (into `out` from `outOffset` when given) and their tach edges
-   * (board sample indices, into `edges` from `edgeCount` as room allows); returns the new edge count.
+   * Hands out the next k board samples (into `out` from `outOffset` when given) and their tach
+   * edges (board sample indices, into `edges` from `edgeCount` as room allows); returns the new
+   * edge count.
    */
   private advance(
     k: number,
@@ -107,9 +110,9 @@ export class SimBoardSignal implements BoardSignal {
 
 /**
  * Volts per count of each board channel for `format`: the input range of a sensor channel is its
- * `full_scale_v` from the config, else the IEPE supply (an open cable reads just below it); the tach
- * channel's covers its high level with a quarter to spare; an unused input gets 10 V. Float32 frames
- * carry volts (1 V per count).
+ * `full_scale_v` from the config, else the IEPE supply (an open cable reads just below it); the
+ * tach channel's covers its high level with a quarter to spare; an unused input gets 10 V. Float32
+ * frames carry volts (1 V per count).
  */
 export function boardScales(plan: SimPlan, channelCount: number, format: SampleFormat): number[] {
   const range = new Array<number>(channelCount).fill(10);

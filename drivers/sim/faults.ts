@@ -5,17 +5,19 @@ import type { FaultSpec } from './scenario.js';
 /**
  * Vibration signatures of faults other than unbalance (pure functions).
  *
- * Unbalance and support resonance come from the physics in physics.ts. The faults below are signature
- * models: each is given by a velocity amplitude at rated speed and produces the pattern the trade reads
- * as that fault (common practice; see the notes beside each). Amplitudes scale with (speed / rated)^2,
- * as a force would, except the bent shaft's, which scales with speed (a fixed bow moving faster).
- * Phases follow the convention of physics.ts: lag from the tach edge, degrees of the order's own cycle;
- * `psi` below is the sensor's stator angle (direction angle plus mounting angle).
+ * Unbalance and support resonance come from the physics in physics.ts. The faults below are
+ * signature
+ * models: each is given by a velocity amplitude at rated speed and produces the pattern the trade
+ * reads as that fault (common practice; see the notes beside each). Amplitudes scale with
+ * (speed / rated)^2, as a force would, except the bent shaft's, which scales with speed (a fixed
+ * bow moving faster). Phases follow the convention of physics.ts: lag from the tach edge, degrees
+ * of the order's own cycle; `psi` below is the sensor's stator angle (direction angle plus mounting
+ * angle).
  *
- * - misalignment: high 2x radial (full at the coupling bearing, half at the other), some 1x, and high
- *   axial 1x and 2x with the coupling bearing and the far bearing 180 deg apart.
- * - looseness: harmonics 1x..Nx (amplitude 1/sqrt(n)) and half orders, strongest in the loose direction,
- *   each phase wandering at random from revolution to revolution (erratic phase).
+ * - misalignment: high 2x radial (full at the coupling bearing, half at the other), some 1x, and
+ *   high axial 1x and 2x with the coupling bearing and the far bearing 180 deg apart.
+ * - looseness: harmonics 1x..Nx (amplitude 1/sqrt(n)) and half orders, strongest in the loose
+ *   direction, each phase wandering at random from revolution to revolution (erratic phase).
  * - bent shaft: axial 1x 180 deg apart end to end, plus radial 1x in phase at both bearings.
  * - eccentricity: 1x along one straight line, so H and V are in phase (or 180 apart) with a large
  *   amplitude ratio.
@@ -158,7 +160,10 @@ function velocityTone(
   };
 }
 
-/** Tones a fault adds (bearing defects and fixed tones); `draws` are the fault's fixed random numbers in [0,1). */
+/**
+ * Tones a fault adds (bearing defects and fixed tones); `draws` are the fault's fixed random
+ * numbers in [0,1).
+ */
 export function toneDefs(f: FaultSpec, g: RotorGeometry, draws: Float64Array): ToneDef[] {
   if (f.kind === 'bearing_defect') {
     const b = bearingIndex(g, f.bearing);
@@ -177,8 +182,8 @@ export function toneDefs(f: FaultSpec, g: RotorGeometry, draws: Float64Array): T
         ),
       );
     }
-    // impacts ring the housing: carrier (1 + cos defect) / 2 = carrier/2 + two sidebands/4, phase-coherent
-    // because all three accumulators start together at 0
+    // impacts ring the housing: carrier (1 + cos defect) / 2 = carrier/2 + two sidebands/4,
+    // phase-coherent because all three accumulators start together at 0
     const ring = (part: number, key: string, order: number): ToneDef => ({
       key: `${f.id}:${key}`,
       order,

@@ -2,54 +2,57 @@
  * Rigid-rotor physics of the simulated fan: pure functions, SI units inside, no state.
  *
  * ## Model
- * A rigid rotor turns in two bearings (A and B, e.g. DE and NDE) at axial positions z_A, z_B. Unbalance
- * sits in one or two correction planes at z_p. Each plane's unbalance is a mass m at radius r, i.e. an
- * unbalance U = m r (kg m), which at shaft speed omega pulls with the centrifugal force
- * F = m r omega^2 (N) towards the heavy spot, turning with the rotor.
+ * A rigid rotor turns in two bearings (A and B, e.g. DE and NDE) at axial positions z_A, z_B.
+ * Unbalance sits in one or two correction planes at z_p. Each plane's unbalance is a mass m at
+ * radius r, i.e. an unbalance U = m r (kg m), which at shaft speed omega pulls with the centrifugal
+ * force F = m r omega^2 (N) towards the heavy spot, turning with the rotor.
  *
  * The rotating force of each plane is shared between the two bearings by statics (lever rule for a
  * beam on two supports): bearing A carries F (z_B - z_p) / (z_B - z_A), bearing B carries
- * F (z_p - z_A) / (z_B - z_A). For a plane outside the span (overhung impeller) the near bearing carries
- * more than F and the far bearing a negative share (pushed the other way).
+ * F (z_p - z_A) / (z_B - z_A). For a plane outside the span (overhung impeller) the near bearing
+ * carries more than F and the far bearing a negative share (pushed the other way).
  *
  * Each bearing housing moves in each direction (vertical, horizontal, axial) through its own
- * single-degree-of-freedom receptance G(omega) = (1/k) / (1 - (omega/omega_n)^2 + i 2 zeta omega/omega_n):
- * stiffness k, natural frequency omega_n and damping ratio zeta of that support direction. Well below
- * omega_n this is nearly 1/k (gentle rise with speed, small lag); near omega_n it resonates (lag 90 deg).
- * A softer horizontal support gives a larger horizontal reading; the sensors' 90 deg spacing around the
- * shaft gives the H/V phase difference of about 90 deg of a circular-to-elliptical orbit.
+ * single-degree-of-freedom receptance G(omega) = (1/k) / (1 - (omega/omega_n)^2 + i 2 zeta
+ * omega/omega_n): stiffness k, natural frequency omega_n and damping ratio zeta of that support
+ * direction. Well below omega_n this is nearly 1/k (gentle rise with speed, small lag); near
+ * omega_n it resonates (lag 90 deg). A softer horizontal support gives a larger horizontal reading;
+ * the sensors' 90 deg spacing around the shaft gives the H/V phase difference of about 90 deg of a
+ * circular-to-elliptical orbit.
  *
- * Axial motion: an unbalance force sets up a small rocking moment on the housings that shows as axial
- * 1x at both bearings, in phase. It is modelled as an axial force equal to `axial_coupling` times each
- * plane's force (projected on the axial sensor's angular position), the same at both bearings. The
- * coupling is small for planes between the bearings (default 0.05; centre-hung: little axial) and large
- * for planes outside them (default 1.5; overhung: high axial 1x, in phase at both bearings). These two
- * numbers are a signature model, not derived from the rotor's dimensions.
+ * Axial motion: an unbalance force sets up a small rocking moment on the housings that shows as
+ * axial 1x at both bearings, in phase. It is modelled as an axial force equal to `axial_coupling`
+ * times each plane's force (projected on the axial sensor's angular position), the same at both
+ * bearings. The coupling is small for planes between the bearings (default 0.05; centre-hung:
+ * little axial) and large for planes outside them (default 1.5; overhung: high axial 1x, in phase
+ * at both bearings). These two numbers are a signature model, not derived from the rotor's
+ * dimensions.
  *
  * The model is linear in the unbalance: the 1x velocity at every sensor is a sum of influence
- * coefficients times the plane unbalances, and the coefficients stay constant at constant speed, so an
- * influence-coefficient balancing job on the simulated fan converges as it does on a real one.
- * Simplifications (stated so nobody mistakes them for more): the rotor's inertia does not couple the two
- * bearings (each bearing is its own oscillator), and the supports have no cross-coupling between
- * directions.
+ * coefficients times the plane unbalances, and the coefficients stay constant at constant speed, so
+ * an influence-coefficient balancing job on the simulated fan converges as it does on a real one.
+ * Simplifications (stated so nobody mistakes them for more): the rotor's inertia does not couple
+ * the two bearings (each bearing is its own oscillator), and the supports have no cross-coupling
+ * between directions.
  *
  * ## Angles and phase (the conventions everything else must share)
  * - Shaft angle phi: 0 when the reference mark passes the tach pickup, growing in the direction of
  *   rotation. The tach pulse's rising edge (its 50 % point) is at phi = 0 (mod 2 pi).
- * - Stator angles (sensor positions) psi are measured from the tach pickup in the direction of rotation.
- *   A sensor's angle is the stator angle of its direction (vertical, horizontal, axial) plus its
- *   `mounting_angle_deg` from the config.
+ * - Stator angles (sensor positions) psi are measured from the tach pickup in the direction of
+ *   rotation. A sensor's angle is the stator angle of its direction (vertical, horizontal, axial)
+ *   plus its `mounting_angle_deg` from the config.
  * - Weight angle beta is measured on the rotor from the reference mark, against rotation by default
- *   (`against_rotation`), or with rotation. A weight at beta against rotation passes a fixed point beta
- *   degrees of rotation after the mark does.
- * - A phasor p describes x(t) = Re{ p e^{i k phi(t)} } = |p| cos(k phi - lag), lag = -arg p (degrees,
- *   0-360): the lag from the tach edge to the positive peak, in degrees of that order's own cycle. This
- *   is the product's phase convention.
+ *   (`against_rotation`), or with rotation. A weight at beta against rotation passes a fixed point
+ *   beta degrees of rotation after the mark does.
+ * - A phasor p describes x(t) = Re{ p e^{i k phi(t)} } = |p| cos(k phi - lag), lag = -arg p
+ *   (degrees, 0-360): the lag from the tach edge to the positive peak, in degrees of that order's
+ *   own cycle. This is the product's phase convention.
  * - Unbalance phasor u = m r e^{-i beta} (against rotation) or m r e^{+i beta} (with rotation).
- *   The force along a sensor direction psi is omega^2 u e^{-i psi}: lag = psi + beta. Displacement lags
- *   the force by the receptance lag; velocity leads displacement by 90 deg; acceleration leads it by 180.
- *   So for one weight: velocity lag = psi + beta + lag(G) - 90 (+ 180 where the lever share is negative).
- *   Adding a weight beta degrees further against rotation adds beta to every sensor's phase lag.
+ *   The force along a sensor direction psi is omega^2 u e^{-i psi}: lag = psi + beta. Displacement
+ *   lags the force by the receptance lag; velocity leads displacement by 90 deg; acceleration leads
+ *   it by 180. So for one weight: velocity lag = psi + beta + lag(G) - 90 (+ 180 where the lever
+ *   share is negative). Adding a weight beta degrees further against rotation adds beta to every
+ *   sensor's phase lag.
  */
 
 import {
@@ -72,8 +75,8 @@ export type Direction = 'vertical' | 'horizontal' | 'axial';
 export type { AngleConvention };
 
 /**
- * A complex amplitude; see the module comment for the convention (lag = -arg). The arithmetic is the
- * project's one complex module; only the phase reading below is the simulator's own.
+ * A complex amplitude; see the module comment for the convention (lag = -arg). The arithmetic is
+ * the project's one complex module; only the phase reading below is the simulator's own.
  */
 export type Phasor = Complex;
 export { add, div, mul, scale, sub, ZERO };
@@ -114,7 +117,9 @@ export function centrifugalForceN(massKg: number, radiusM: number, omegaRadS: nu
   return massKg * radiusM * omegaRadS * omegaRadS;
 }
 
-/** Unbalance of a mass at a radius and angle, as a phasor in kg m (see the angle convention above). */
+/**
+ * Unbalance of a mass at a radius and angle, as a phasor in kg m (see the angle convention above).
+ */
 export function unbalancePhasor(
   massG: number,
   radiusMm: number,
@@ -125,7 +130,10 @@ export function unbalancePhasor(
   return convention === 'against_rotation' ? phasor(u, angleDeg) : phasor(u, -angleDeg);
 }
 
-/** Shares of a plane's force carried by bearings A and B (lever rule, statics of a beam on two supports). */
+/**
+ * Shares of a plane's force carried by bearings A and B (lever rule, statics of a beam on two
+ * supports).
+ */
 export function leverShares(
   bearingAMm: number,
   bearingBMm: number,
@@ -170,7 +178,10 @@ export interface PlaneGeometry {
 export interface RotorGeometry {
   readonly bearings: readonly [BearingGeometry, BearingGeometry];
   readonly planes: readonly PlaneGeometry[];
-  /** Stator angle of each direction's reference sensor position, degrees from the tach pickup in the direction of rotation. */
+  /**
+   * Stator angle of each direction's reference sensor position, degrees from the tach pickup in the
+   * direction of rotation.
+   */
   readonly directions_deg: Readonly<Record<Direction, number>>;
   /** Axial force per radial plane force, for planes between the bearings and outside them. */
   readonly axial_coupling: { readonly between_bearings: number; readonly outboard: number };
@@ -214,7 +225,10 @@ export function influenceCoefficient(
   return leadQuarter(x, omegaRadS);
 }
 
-/** 1x velocity phasor (m/s) at a sensor from the unbalance phasors (kg m) of every plane, in plane order. */
+/**
+ * 1x velocity phasor (m/s) at a sensor from the unbalance phasors (kg m) of every plane, in plane
+ * order.
+ */
 export function unbalanceVelocity(
   g: RotorGeometry,
   at: SensorPlace,

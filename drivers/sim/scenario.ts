@@ -37,7 +37,10 @@ const rampDays = z
 
 const AT_PATTERN = /^day\s+(\d+(?:\.\d+)?)(?:\s+(\d{1,2}):(\d{2})(?::(\d{2}(?:\.\d+)?))?)?$/i;
 
-/** Parses an event time: seconds from the scenario start, or "day N [HH:MM[:SS]]" (day 0 is the first day). */
+/**
+ * Parses an event time: seconds from the scenario start, or "day N [HH:MM[:SS]]" (day 0 is the
+ * first day).
+ */
 export function parseAt(v: unknown): number | undefined {
   if (typeof v === 'number') return Number.isFinite(v) && v >= 0 ? v : undefined;
   if (typeof v !== 'string') return undefined;
@@ -79,7 +82,8 @@ const supportSchema = z
       .max(1e5)
       .optional()
       .describe(
-        'Natural frequency of the support in this direction, Hz. Default: sqrt(k/m)/2pi with m the rotor mass the bearing carries.',
+        'Natural frequency of the support in this direction, Hz. Default: ' +
+          'sqrt(k/m)/2pi with m the rotor mass the bearing carries.',
       ),
     damping_ratio: z
       .number()
@@ -139,7 +143,8 @@ const faultSchema = z.discriminatedUnion('kind', [
       amp_pk_mm_s: positive
         .max(1000)
         .describe(
-          '1x velocity of the looseness pattern at rated speed, mm/s peak; harmonics fall off as 1/sqrt(order).',
+          '1x velocity of the looseness pattern at rated speed, ' +
+            'mm/s peak; harmonics fall off as 1/sqrt(order).',
         ),
       direction: z
         .enum(['vertical', 'horizontal'])
@@ -187,7 +192,8 @@ const faultSchema = z.discriminatedUnion('kind', [
         .max(360)
         .optional()
         .describe(
-          'Stator angle of the straight-line motion, from the tach pickup with rotation. Default: 15 deg past the vertical.',
+          'Stator angle of the straight-line motion, from the tach ' +
+            'pickup with rotation. Default: 15 deg past the vertical.',
         ),
       angle_deg: angleDeg.default(0),
       ramp_days: rampDays,
@@ -278,7 +284,8 @@ const eventSchema = z
           .max(1e5)
           .optional()
           .describe(
-            'New natural frequency, Hz. Default: unchanged, or moved with sqrt(new/old stiffness) when stiffness_mn_per_m is given (same mass on the support).',
+            'New natural frequency, Hz. Default: unchanged, or moved with sqrt(new/old ' +
+              'stiffness) when stiffness_mn_per_m is given (same mass on the support).',
           ),
         stiffness_mn_per_m: positive.max(1e5).optional(),
         damping_ratio: z.number().gt(0).lt(1).optional(),
@@ -395,7 +402,8 @@ export const scenarioSchema = z
           .strict()
           .default({ vertical: 0, horizontal: 90, axial: 90 })
           .describe(
-            "Stator angle of each direction's sensor position, from the tach pickup in the direction of rotation.",
+            "Stator angle of each direction's sensor position, " +
+              'from the tach pickup in the direction of rotation.',
           ),
         unbalance: z
           .array(massSchema)
@@ -439,7 +447,8 @@ export const scenarioSchema = z
           .max(1e5)
           .default(150)
           .describe(
-            'Linear rise (and fall) time of the pulse edges, microseconds; at least two sample periods.',
+            'Linear rise (and fall) time of the pulse edges, ' +
+              'microseconds; at least two sample periods.',
           ),
         mark_width_deg: positive.max(180).default(15),
         noise_rms_v: z.number().min(0).max(10).default(0.005),
@@ -460,7 +469,8 @@ export const scenarioSchema = z
           .max(30)
           .optional()
           .describe(
-            "DC bias added to every sensor, volts. Default: the middle of the sensor's bias_v window in the config, or 0 (AC-coupled).",
+            'DC bias added to every sensor, volts. Default: the middle of ' +
+              "the sensor's bias_v window in the config, or 0 (AC-coupled).",
           ),
         supply_v: positive
           .max(40)
@@ -490,7 +500,8 @@ export const scenarioSchema = z
           message:
             actions.length === 0
               ? `give one action: ${EVENT_ACTIONS.join(', ')}`
-              : `give one action per event, found ${actions.join(' and ')}; split them into separate events`,
+              : `give one action per event, found ` +
+                `${actions.join(' and ')}; split them into separate events`,
         });
       }
       const prev = s.timeline[i - 1];
@@ -498,7 +509,9 @@ export const scenarioSchema = z
         ctx.addIssue({
           code: 'custom',
           path: ['timeline', i, 'at'],
-          message: `is before timeline[${i - 1}].at (${formatAt(prev.at)}); list events in time order`,
+          message:
+            `is before timeline[${i - 1}].at ` +
+            `(${formatAt(prev.at)}); list events in time order`,
         });
       }
     });
@@ -533,7 +546,9 @@ export const scenarioSchema = z
       ctx.addIssue({
         code: 'custom',
         path: ['tach', 'rise_us'],
-        message: `must span at least two sample periods (${(2e6 / s.sample_rate_hz).toFixed(1)} us at ${s.sample_rate_hz} Hz) so the edge can be timed between samples`,
+        message:
+          `must span at least two sample periods (${(2e6 / s.sample_rate_hz).toFixed(1)} ` +
+          `us at ${s.sample_rate_hz} Hz) so the edge can be timed between samples`,
       });
     }
   });
@@ -645,7 +660,9 @@ export function resolveScenario(
   cfg.sensors.forEach((x, i) => {
     if (!bearingNames.includes(x.bearing)) {
       problems.push(
-        `${configFile}: sensors[${i}].bearing: bearing "${x.bearing}" is not in ${scenarioFile} rotor.bearings (${bearingNames.join(', ')}); name the scenario's bearings as the config does`,
+        `${configFile}: sensors[${i}].bearing: bearing "${x.bearing}" is not ` +
+          `in ${scenarioFile} rotor.bearings (${bearingNames.join(', ')}); ` +
+          `name the scenario's bearings as the config does`,
       );
     }
   });
@@ -654,26 +671,31 @@ export function resolveScenario(
   if (overhung !== (cfg.machine.rotor === 'overhung')) {
     sp(
       'rotor.planes',
-      `the planes are ${overhung ? 'outside' : 'between'} the bearings (${overhung ? 'overhung' : 'centre-hung'}) but ${configFile} machine.rotor is ${cfg.machine.rotor}; make the two agree`,
+      `the planes are ${overhung ? 'outside' : 'between'} the bearings ` +
+        `(${overhung ? 'overhung' : 'centre-hung'}) but ` +
+        `${configFile} machine.rotor is ${cfg.machine.rotor}; make the two agree`,
     );
   }
   if (cfg.tach.trigger_v <= s.tach.low_v || cfg.tach.trigger_v >= s.tach.high_v) {
     sp(
       'tach',
-      `the pulse (${s.tach.low_v} to ${s.tach.high_v} V) never crosses ${configFile} tach.trigger_v (${cfg.tach.trigger_v} V); set low_v/high_v around it`,
+      `the pulse (${s.tach.low_v} to ${s.tach.high_v} V) never crosses ` +
+        `${configFile} tach.trigger_v (${cfg.tach.trigger_v} V); set low_v/high_v around it`,
     );
   }
   if (s.tach.mark_width_deg >= 180 / cfg.tach.pulses_per_rev) {
     sp(
       'tach.mark_width_deg',
-      `must be under half the pulse pitch (${180 / cfg.tach.pulses_per_rev} deg for ${configFile} tach.pulses_per_rev ${cfg.tach.pulses_per_rev})`,
+      `must be under half the pulse pitch (${180 / cfg.tach.pulses_per_rev} deg ` +
+        `for ${configFile} tach.pulses_per_rev ${cfg.tach.pulses_per_rev})`,
     );
   }
   const rated = s.speed.rated_rpm ?? cfg.machine.rated_rpm;
   if (rated === undefined)
     sp(
       'speed.rated_rpm',
-      `not set and ${configFile} has no machine.rated_rpm; give the speed that fault amplitudes refer to`,
+      `not set and ${configFile} has no machine.rated_rpm; ` +
+        `give the speed that fault amplitudes refer to`,
     );
   s.rotor.unbalance.forEach((m, i) => checkPlane(`rotor.unbalance[${i}].plane`, m.plane));
   const weights = new Set<string>();
@@ -703,7 +725,8 @@ export function resolveScenario(
       if (!weights.has(id))
         sp(
           `${p}.${k}.id`,
-          `no weight "${id}" on the rotor at that time (fitted: ${[...weights].join(', ') || 'none'})`,
+          `no weight "${id}" on the rotor at that time ` +
+            `(fitted: ${[...weights].join(', ') || 'none'})`,
         );
       weights.delete(id);
     }
@@ -717,7 +740,8 @@ export function resolveScenario(
     if (e.fault_cleared && !faults.has(e.fault_cleared.id)) {
       sp(
         `${p}.fault_cleared.id`,
-        `no fault "${e.fault_cleared.id}" is active at that time (active: ${[...faults].join(', ') || 'none'})`,
+        `no fault "${e.fault_cleared.id}" is active at that ` +
+          `time (active: ${[...faults].join(', ') || 'none'})`,
       );
     }
     if (e.fault_cleared) faults.delete(e.fault_cleared.id);
@@ -735,7 +759,8 @@ export function resolveScenario(
     if (e.sensor_fault?.kind === 'clipping' && e.sensor_fault.limit_v === undefined) {
       sp(
         `${p}.sensor_fault.limit_v`,
-        'needed for kind clipping: the output swing (volts either side of the bias) where the signal flattens',
+        'needed for kind clipping: the output swing (volts ' +
+          'either side of the bias) where the signal flattens',
       );
     }
     for (const k of ['sensor_fault', 'sensor_repaired'] as const) {
@@ -751,7 +776,8 @@ export function resolveScenario(
   if (problems.length > 0) {
     throw new UserError(
       scenarioFile,
-      `${problems.length} problem(s) between the scenario and the config:\n  ${problems.join('\n  ')}`,
+      `${problems.length} problem(s) between the scenario ` +
+        `and the config:\n  ${problems.join('\n  ')}`,
       'make the scenario and the config describe the same fan and channels',
     );
   }
@@ -822,8 +848,8 @@ function buildGeometry(s: Scenario): RotorGeometry {
   const support = (i: 0 | 1, d: Direction): SupportDynamics => {
     const spec = s.rotor.bearings[i].support?.[d] ?? s.rotor.support[d];
     const k = spec.stiffness_mn_per_m * 1e6;
-    // an overhung rotor can lift the far bearing (negative share): its support then carries no rotor mass
-    // of its own; the housing's mass is unknown, so use a tenth of the rotor as a floor
+    // an overhung rotor can lift the far bearing (negative share): its support then carries no
+    // rotor mass of its own; the housing's mass is unknown, so use a tenth of the rotor as a floor
     const m = Math.max(Math.abs(masses[i]), s.rotor.mass_kg * 0.1);
     return {
       stiffness_n_per_m: k,

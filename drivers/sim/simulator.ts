@@ -21,17 +21,18 @@ import { FanState, type ActiveFault, type AppliedEvent } from './state.js';
 /**
  * Synthesizes the acquisition board's channels (volts) for the simulated fan, block by block.
  *
- * Internally the signal is made in sub-blocks of SUB_BLOCK samples. At the end of each sub-block the
- * fan's state (speed, unbalance, faults, supports) is evaluated and turned into complex amplitudes per
- * channel and order; within the sub-block the amplitudes and the speed are interpolated linearly, and
- * the shaft angle is integrated from the speed sample by sample. Everything is preallocated: rendering
- * allocates nothing per sample (a few small objects per sub-block when the state is evaluated).
+ * Internally the signal is made in sub-blocks of SUB_BLOCK samples. At the end of each sub-block
+ * the fan's state (speed, unbalance, faults, supports) is evaluated and turned into complex
+ * amplitudes per channel and order; within the sub-block the amplitudes and the speed are
+ * interpolated linearly, and the shaft angle is integrated from the speed sample by sample.
+ * Everything is preallocated: rendering allocates nothing per sample (a few small objects per
+ * sub-block when the state is evaluated).
  *
- * Sensor channels: bias + acceleration (g) x sensitivity (V/g) + white noise, then the sensor's fault
- * (open cable, short, flat line, clipping) and the board's input range. Tach channel: a pulse whose
- * rising edge ramps linearly over rise_s and crosses its 50 % level exactly when the shaft angle is a
- * whole number of revolutions (the reference mark at the pickup), so edge interpolation between samples
- * recovers the mark to a small fraction of a sample.
+ * Sensor channels: bias + acceleration (g) x sensitivity (V/g) + white noise, then the sensor's
+ * fault (open cable, short, flat line, clipping) and the board's input range. Tach channel: a pulse
+ * whose rising edge ramps linearly over rise_s and crosses its 50 % level exactly when the shaft
+ * angle is a whole number of revolutions (the reference mark at the pickup), so edge interpolation
+ * between samples recovers the mark to a small fraction of a sample.
  */
 
 export const SUB_BLOCK = 256;
@@ -46,7 +47,10 @@ export interface SimulatorOptions {
   readonly timeScale?: number;
   /** Overrides the scenario's seed. */
   readonly seed?: number;
-  /** Called for every timeline event as it takes effect (not for the history replayed before startS). */
+  /**
+   * Called for every timeline event as it takes effect (not for the history replayed before
+   * startS).
+   */
   readonly onEvent?: (e: AppliedEvent) => void;
 }
 
@@ -96,7 +100,10 @@ export class FanSimulator {
   private readonly cosT: Float64Array;
   private readonly sinT: Float64Array;
   private readonly acc = new Float64Array(SUB_BLOCK);
-  /** Coefficients in volts per sensor and half order, [sensor][halfOrder][re, im], at the previous and current sub-block end. */
+  /**
+   * Coefficients in volts per sensor and half order, [sensor][halfOrder][re, im], at the previous
+   * and current sub-block end.
+   */
   private coefPrev: Float64Array;
   private coefNext: Float64Array;
   private readonly activeOrders: Uint8Array;
@@ -155,9 +162,9 @@ export class FanSimulator {
   }
 
   /**
-   * What the model says the velocity vector of one order is at every sensor right now (steady state at
-   * the current speed): unbalance and the synchronous fault terms. Noise, sensor faults and the tones
-   * (blade pass, bearing defects, fixed tones) are not included. Order 1 is the 1x vector.
+   * What the model says the velocity vector of one order is at every sensor right now (steady state
+   * at the current speed): unbalance and the synchronous fault terms. Noise, sensor faults and the
+   * tones (blade pass, bearing defects, fixed tones) are not included. Order 1 is the 1x vector.
    */
   modelOrder(order = 1): OrderVectorModel[] {
     const ts = this.produced * this.dt;
@@ -279,7 +286,8 @@ export class FanSimulator {
     const S = this.plan.sensors.length;
     this.toneCoefPrev = new Float64Array(this.tones.length * S * 2);
     this.toneCoefNext = new Float64Array(this.tones.length * S * 2);
-    // a tone that stays keeps its latest amplitudes; a new one fades in from zero over one sub-block
+    // a tone that stays keeps its latest amplitudes; a new one fades in from zero over one
+    // sub-block
     this.tones.forEach((t, i) => {
       const j = oldIndex.get(t.def.key);
       if (j !== undefined)
@@ -403,8 +411,10 @@ export class FanSimulator {
         sinT[h * SUB_BLOCK + i] = s;
       }
     }
-    // advance the tones once for all sensors. Each tone turns by order x (shaft turn in this sub-block)
-    // + 2 pi hz x duration; spread evenly over the samples (exact at steady speed; while the speed ramps
+    // advance the tones once for all sensors. Each tone turns by order x (shaft turn in this
+    // sub-block)
+    // + 2 pi hz x duration; spread evenly over the samples (exact at steady speed; while the speed
+    //   ramps
     // the shaft angle within a sub-block bends by micro-radians) by rotating a unit phasor, so the
     // sub-block costs two trig calls per tone instead of two per sample.
     const T = this.tones.length;
@@ -471,7 +481,8 @@ export class FanSimulator {
       const noiseV = this.plan.noiseRmsG * sensor.v_per_g;
       const bias = sensor.bias_v;
       const fault = this.state.sensorFaults.get(s);
-      // board input range (doubles kept apart from the optional config value so the loops stay unboxed)
+      // board input range (doubles kept apart from the optional config value so the loops stay
+      // unboxed)
       const hi = sensor.full_scale_v === undefined ? Infinity : sensor.full_scale_v;
       const lo = -hi;
       if (!fault) {
@@ -496,7 +507,8 @@ export class FanSimulator {
       } else if (fault.kind === 'flat') {
         out.fill(Math.min(hi, Math.max(lo, bias)));
       } else {
-        // open cable reads just below the supply, a short just above 0 V; a little electrical noise on both
+        // open cable reads just below the supply, a short just above 0 V; a little electrical noise
+        // on both
         const level = fault.kind === 'open' ? this.plan.supplyV - 0.3 : 0.01;
         for (let i = 0; i < SUB_BLOCK; i++) {
           x ^= x << 13;
@@ -531,7 +543,8 @@ export class FanSimulator {
     this.subEdgeCount = 0;
     for (let i = 0; i < SUB_BLOCK; i++) {
       const phi = this.phiArr[i]!;
-      // angle since the nearest mark, in [-pitch/2, pitch/2); continuous across the 4 pi wrap of phi
+      // angle since the nearest mark, in [-pitch/2, pitch/2); continuous across the 4 pi wrap of
+      // phi
       let psi = phi % pitch;
       if (psi >= halfPitch) psi -= pitch;
       // a pulse is kept or dropped as a whole: decide half a pitch before each mark
@@ -547,7 +560,8 @@ export class FanSimulator {
         const down = 0.5 + (width - psi) / ramp;
         level = up < down ? up : down;
         level = level < 0 ? 0 : level > 1 ? 1 : level;
-        // mark crossing between the previous sample and this one (the angle passes a multiple of pitch)
+        // mark crossing between the previous sample and this one (the angle passes a multiple of
+        // pitch)
         const d = this.dphiArr[i]!;
         if (d > 0 && psi >= 0 && psi < d && n0 + i > 0) {
           const frac = 1 - psi / d;

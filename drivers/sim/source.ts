@@ -119,7 +119,10 @@ export class SimSource implements SampleSource {
     return this.sim.state.weights();
   }
 
-  /** The model's steady-state velocity vectors of one order at every sensor now (for checks and demos). */
+  /**
+   * The model's steady-state velocity vectors of one order at every sensor now (for checks and
+   * demos).
+   */
   modelOrder(order = 1): OrderVectorModel[] {
     return this.sim.modelOrder(order);
   }
@@ -133,7 +136,10 @@ export class SimSource implements SampleSource {
   }
 }
 
-/** Builds the `driver: sim` source from the config's acquisition section; the scenario path is relative to the config file. */
+/**
+ * Builds the `driver: sim` source from the config's acquisition section; the scenario path is
+ * relative to the config file.
+ */
 export function createSimSource(
   cfg: Config,
   section: SimDriverConfig,

@@ -15,14 +15,18 @@ import { formatAt, type FaultSpec, type ScenarioEvent, type SimPlan } from './sc
 /**
  * The state of the simulated fan over time, driven by the scenario's timeline.
  *
- * Two clocks: signal time `ts` (seconds of samples since the simulation started; it turns the shaft)
- * and scenario time `tc` (seconds since day 0 of the timeline; it grows the build-up and fires events).
- * tc = startS + timeScale * ts. With timeScale > 1 a week of slow changes plays in minutes while the
- * signal itself stays physical; speed ramps and coast-downs always last their stated seconds of signal.
- * Events before the start are replayed at construction so a run from day 5 begins in day 5's state.
+ * Two clocks: signal time `ts` (seconds of samples since the simulation started; it turns the
+ * shaft) and scenario time `tc` (seconds since day 0 of the timeline; it grows the build-up and
+ * fires events). tc = startS + timeScale * ts. With timeScale > 1 a week of slow changes plays in
+ * minutes while the signal itself stays physical; speed ramps and coast-downs always last their
+ * stated seconds of signal. Events before the start are replayed at construction so a run from day
+ * 5 begins in day 5's state.
  */
 
-/** Friction torque over aerodynamic drag torque at the start of a coast-down (sets the curve's tail). */
+/**
+ * Friction torque over aerodynamic drag torque at the start of a coast-down (sets the curve's
+ * tail).
+ */
 const COAST_FRICTION_SHARE = 0.05;
 
 interface SpeedSegment {
@@ -36,8 +40,8 @@ interface SpeedSegment {
 
 /**
  * Speed of a segment at signal time t, rad/s. Ramps are linear. A coast-down follows
- * d omega/dt = -a omega^2 - b (fan drag plus bearing friction), whose solution reaching 0 after `dur` is
- * omega(t) = omega0 e tan(atan(1/e) (1 - t/dur)), e = sqrt(b / (a omega0^2)).
+ * d omega/dt = -a omega^2 - b (fan drag plus bearing friction), whose solution reaching 0 after
+ * `dur` is omega(t) = omega0 e tan(atan(1/e) (1 - t/dur)), e = sqrt(b / (a omega0^2)).
  */
 function segmentSpeed(s: SpeedSegment, t: number): number {
   const x = s.dur > 0 ? (t - s.t0) / s.dur : 1;
@@ -60,7 +64,10 @@ interface BuildUp {
 export interface ActiveFault {
   readonly spec: FaultSpec;
   readonly startTc: number;
-  /** Random numbers in [0, 1) drawn once when the fault appears, so a fault looks the same every run. */
+  /**
+   * Random numbers in [0, 1) drawn once when the fault appears, so a fault looks the same every
+   * run.
+   */
   readonly draws: Float64Array;
   /** Phases in degrees that the synthesizer moves at random (looseness); empty for other faults. */
   readonly phases: Float64Array;
@@ -241,7 +248,10 @@ export class FanState {
     this.fitWeight(w);
     this.log({
       at_s: this.lastTc,
-      text: `${formatAt(this.lastTc)} weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg ${w.convention.replace('_', ' ')}, plane ${w.plane}`,
+      text:
+        `${formatAt(this.lastTc)} weight ${w.id} fitted: ` +
+        `${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg ` +
+        `${w.convention.replace('_', ' ')}, plane ${w.plane}`,
     });
   }
 
@@ -310,7 +320,8 @@ export class FanState {
         until: b.days === undefined ? Infinity : tc + b.days * 86400,
       });
       say(
-        `build-up starts on plane ${b.plane}: ${b.mass_g_per_day} g/day at ${b.radius_mm} mm, ${b.angle_deg} deg`,
+        `build-up starts on plane ${b.plane}: ${b.mass_g_per_day} g/day ` +
+          `at ${b.radius_mm} mm, ${b.angle_deg} deg`,
       );
     } else if (e.build_up_shed) {
       const p = this.planeIndex(e.build_up_shed.plane);
@@ -323,13 +334,15 @@ export class FanState {
       }
       this.buildUpFixed[p] = fixed;
       say(
-        `${Math.round(e.build_up_shed.fraction * 100)} % of the build-up on plane ${e.build_up_shed.plane} flakes off`,
+        `${Math.round(e.build_up_shed.fraction * 100)} % of the ` +
+          `build-up on plane ${e.build_up_shed.plane} flakes off`,
       );
     } else if (e.weight_added) {
       this.fitWeight({ ...e.weight_added, convention: this.plan.angleConvention });
       const w = e.weight_added;
       say(
-        `weight ${w.id} fitted: ${w.mass_g} g at ${w.radius_mm} mm, ${w.angle_deg} deg, plane ${w.plane}`,
+        `weight ${w.id} fitted: ${w.mass_g} g at ` +
+          `${w.radius_mm} mm, ${w.angle_deg} deg, plane ${w.plane}`,
       );
     } else if (e.weight_thrown || e.weight_removed) {
       const id = (e.weight_thrown ?? e.weight_removed)!.id;
@@ -343,7 +356,8 @@ export class FanState {
       this.faults.set(e.fault.id, { spec: e.fault, startTc: tc, draws, phases });
       this.faultGeneration++;
       say(
-        `fault ${e.fault.id} (${e.fault.kind.replace('_', ' ')}) appears${e.fault.ramp_days > 0 ? ` and grows over ${e.fault.ramp_days} days` : ''}`,
+        `fault ${e.fault.id} (${e.fault.kind.replace('_', ' ')}) ` +
+          `appears${e.fault.ramp_days > 0 ? ` and grows over ${e.fault.ramp_days} days` : ''}`,
       );
     } else if (e.fault_cleared) {
       this.faults.delete(e.fault_cleared.id);
@@ -358,14 +372,17 @@ export class FanState {
         c.stiffness_mn_per_m !== undefined ? c.stiffness_mn_per_m * 1e6 : from.stiffness_n_per_m;
       const to: SupportDynamics = {
         stiffness_n_per_m: k,
-        // a stiffness change alone keeps the mass on the support: f_n = sqrt(k/m) / 2 pi moves with sqrt(k)
+        // a stiffness change alone keeps the mass on the support: f_n = sqrt(k/m) / 2 pi moves with
+        // sqrt(k)
         natural_hz: c.natural_hz ?? from.natural_hz * Math.sqrt(k / from.stiffness_n_per_m),
         damping_ratio: c.damping_ratio ?? from.damping_ratio,
       };
       slot.base = to;
       slot.ramp = { from, to, startTc: tc, durS: c.ramp_days * 86400 };
       say(
-        `support of ${c.bearing} ${c.direction} changes: natural frequency ${to.natural_hz.toFixed(1)} Hz, stiffness ${(to.stiffness_n_per_m / 1e6).toFixed(1)} MN/m`,
+        `support of ${c.bearing} ${c.direction} changes: natural ` +
+          `frequency ${to.natural_hz.toFixed(1)} Hz, stiffness ` +
+          `${(to.stiffness_n_per_m / 1e6).toFixed(1)} MN/m`,
       );
     } else if (e.sensor_fault) {
       const f = e.sensor_fault;
@@ -375,7 +392,8 @@ export class FanState {
         limit_v: f.limit_v,
       });
       say(
-        `sensor ${f.sensor}: ${f.kind === 'open' ? 'open cable' : f.kind === 'short' ? 'short circuit' : f.kind === 'flat' ? 'flat line' : 'clipping'}`,
+        `sensor ${f.sensor}: ` +
+          `${f.kind === 'open' ? 'open cable' : f.kind === 'short' ? 'short circuit' : f.kind === 'flat' ? 'flat line' : 'clipping'}`,
       );
     } else if (e.sensor_repaired) {
       this.sensorFaults.delete(this.sensorIndex(e.sensor_repaired.sensor));

@@ -121,7 +121,9 @@ export async function readWavFormat(fh: FileHandle, file: string): Promise<WavFo
       if (len > available) {
         fail(
           file,
-          `truncated: the data chunk declares ${len} bytes but only ${available} are in the file (${((len - available) / fmt.blockAlign / fmt.sampleRate).toFixed(2)} s missing)`,
+          `truncated: the data chunk declares ${len} bytes but only ${available} are in ` +
+            `the file (${((len - available) / fmt.blockAlign / fmt.sampleRate).toFixed(2)} s ` +
+            `missing)`,
           'the recording was cut short; re-copy it, or repair the header to the length present',
         );
       }
@@ -201,7 +203,8 @@ export class WavSource implements SampleSource {
       if (got < want) {
         throw new UserError(
           this.file,
-          `truncated: read stopped at sample ${frame + Math.floor(got / blockAlign)} of ${fmt.frames}`,
+          `truncated: read stopped at sample ` +
+            `${frame + Math.floor(got / blockAlign)} of ${fmt.frames}`,
           'the file changed or was cut while being read',
         );
       }

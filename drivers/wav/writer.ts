@@ -3,14 +3,14 @@ import { endianness } from 'node:os';
 import { UserError } from '../../agent/errors.js';
 
 /**
- * Streams a multichannel recording to disk as RIFF/WAVE, IEEE float32 samples (format tag 3, the plain
- * WAVEFORMATEX form that common readers accept), little-endian, channels interleaved in the acquisition
- * board's channel order, values in volts. Only one block is held in memory at a time; the sizes in the
- * header are patched when the writer is closed, then the file is fsync'ed.
+ * Streams a multichannel recording to disk as RIFF/WAVE, IEEE float32 samples (format tag 3, the
+ * plain WAVEFORMATEX form that common readers accept), little-endian, channels interleaved in the
+ * acquisition board's channel order, values in volts. Only one block is held in memory at a time;
+ * the sizes in the header are patched when the writer is closed, then the file is fsync'ed.
  *
- * Layout: RIFF/WAVE, `fmt ` (18 bytes: tag 3, channels, rate, bytes/s, block align, 32 bits, cbSize 0),
- * `fact` (frames per channel, required for non-PCM data), `LIST`/`INFO` with `ISFT` (software) and
- * `ICMT` (comment, e.g. the channel map), then `data`.
+ * Layout: RIFF/WAVE, `fmt ` (18 bytes: tag 3, channels, rate, bytes/s, block align, 32 bits, cbSize
+ * 0), `fact` (frames per channel, required for non-PCM data), `LIST`/`INFO` with `ISFT` (software)
+ * and `ICMT` (comment, e.g. the channel map), then `data`.
  */
 
 const WAVE_FORMAT_IEEE_FLOAT = 3;
@@ -35,7 +35,9 @@ function infoSubchunk(id: string, text: string): Buffer {
   return b;
 }
 
-/** Header bytes up to and including the `data` chunk id and size; `frames` may be 0 (patched later). */
+/**
+ * Header bytes up to and including the `data` chunk id and size; `frames` may be 0 (patched later).
+ */
 export function wavHeader(
   opts: WavWriterOptions,
   frames: number,
@@ -165,7 +167,8 @@ export class WavWriter {
     if (this.frames + count > this.maxFrames) {
       throw new UserError(
         this.path,
-        `the recording would pass the 4 GiB limit of a WAV file (${this.maxFrames} frames at ${ch} channels)`,
+        `the recording would pass the 4 GiB limit of a WAV ` +
+          `file (${this.maxFrames} frames at ${ch} channels)`,
         'record fewer seconds per file',
       );
     }
@@ -197,7 +200,9 @@ export class WavWriter {
     await this.fh.close().catch(() => undefined);
   }
 
-  /** Patches the sizes into the header, flushes to disk and closes. Returns the file size in bytes. */
+  /**
+   * Patches the sizes into the header, flushes to disk and closes. Returns the file size in bytes.
+   */
   async close(): Promise<number> {
     if (this.closed) throw new Error('WavWriter closed twice');
     this.closed = true;

@@ -5,11 +5,13 @@
  *     MQTT to an in-process broker, live publishing) for --seconds: CPU share of one core, peak and
  *     steady RSS; the simulated fan throws a balance weight part-way and the time from that step to
  *     the MQTT event is measured at the subscriber;
- *  2. soak: 7 simulated days played faster than real time (time_scale 60: a minute of the scenario per
+ *  2. soak: 7 simulated days played faster than real time (time_scale 60: a minute of the scenario
+ *     per
  *     second of signal): RSS, V8's young generation, live heap and ArrayBuffers after GC beside the
  *     history's size (the heap just after each merge of the history compares like with like), and
  *     the state directory's size on disk;
- *  3. outage: one simulated day with the broker unreachable, then the broker comes back: events kept on
+ *  3. outage: one simulated day with the broker unreachable, then the broker comes back: events
+ *     kept on
  *     disk, bytes, and the time to deliver them;
  *  4. serial: the real path as on the plant, in separate processes: `turnwise run` (driver serial,
  *     8 channels x 25.6 kHz, MQTT to a mosquitto started here on a free loopback port) reading
@@ -72,7 +74,8 @@ function dirBytes(dir: string): number {
 
 async function realtime(seconds: number): Promise<void> {
   const b = await broker();
-  // Day 5 14:20 the balance weight W1 is thrown (config/example-scenario.yaml); start 20 s before it.
+  // Day 5 14:20 the balance weight W1 is thrown (config/example-scenario.yaml); start 20 s before
+  // it.
   const stepAtS = 20;
   const fromDay = 5 + (14 * 3600 + 20 * 60 - stepAtS) / 86400;
   const cfg = config({
@@ -108,7 +111,8 @@ async function realtime(seconds: number): Promise<void> {
   t0 = Date.now();
   c0 = process.cpuUsage();
   log(
-    `real time: ${seconds} s of the simulated board at 25.6 kHz, weight thrown after ${stepAtS} s ...`,
+    `real time: ${seconds} s of the simulated board ` +
+      `at 25.6 kHz, weight thrown after ${stepAtS} s ...`,
   );
   await run;
   const wall = (Date.now() - t0) / 1000;
@@ -124,14 +128,18 @@ async function realtime(seconds: number): Promise<void> {
       ),
   );
   console.log(
-    `agent in real time, 7 channels x 25.6 kHz (6 sensors + tach), watcher, outbox, MQTT, live: ${(((c.user + c.system) / 1e6 / wall) * 100).toFixed(1)} % of one core over ${wall.toFixed(0)} s (in-process broker included)`,
+    `agent in real time, 7 channels x 25.6 kHz (6 sensors + tach), watcher, outbox, ` +
+      `MQTT, live: ${(((c.user + c.system) / 1e6 / wall) * 100).toFixed(1)} % of one ` +
+      `core over ${wall.toFixed(0)} s (in-process broker included)`,
   );
   console.log(
-    `RSS: peak ${(Math.max(...rss) / 2 ** 20).toFixed(0)} MB, steady (median of the second half) ${(steady[Math.floor(steady.length / 2)]! / 2 ** 20).toFixed(0)} MB`,
+    `RSS: peak ${(Math.max(...rss) / 2 ** 20).toFixed(0)} MB, steady (median of the ` +
+      `second half) ${(steady[Math.floor(steady.length / 2)]! / 2 ** 20).toFixed(0)} MB`,
   );
   if (firstAfter.length)
     console.log(
-      `step change (weight thrown) to first MQTT event (${firstAfter[0]!.type}): ${((firstAfter[0]!.at - (t0 + stepAtS * 1000)) / 1000).toFixed(1)} s`,
+      `step change (weight thrown) to first MQTT event (${firstAfter[0]!.type}): ` +
+        `${((firstAfter[0]!.at - (t0 + stepAtS * 1000)) / 1000).toFixed(1)} s`,
     );
   else console.log('step change to MQTT event: no event arrived after the step');
   sub.end(true);
@@ -163,8 +171,9 @@ async function soak(days: number, timeScale: number): Promise<void> {
   const signalS = (days * 86400) / timeScale;
   const maxPoints = cfg.watcher.history.max_points;
   const windowSamples = cfg.watcher.window_s * 25600;
-  // One sample a second: RSS; live heap and ArrayBuffer memory after a full collection (a leak shows
-  // there; RSS alone also shows the allocator's slack); V8's young generation; the history's size.
+  // One sample a second: RSS; live heap and ArrayBuffer memory after a full collection (a leak
+  // shows there; RSS alone also shows the allocator's slack); V8's young generation; the history's
+  // size.
   const samples: Array<{
     win: number;
     rss: number;
@@ -191,10 +200,12 @@ async function soak(days: number, timeScale: number): Promise<void> {
     const l = samples[samples.length - 1]!;
     if (samples.length % 10 === 0)
       log(
-        `soak: ${((Date.now() - t0) / 1000).toFixed(0)} s, RSS ${mb(l.rss, 0)} MB, heap ${mb(l.heap)} MB, history ${l.hist} points`,
+        `soak: ${((Date.now() - t0) / 1000).toFixed(0)} s, RSS ` +
+          `${mb(l.rss, 0)} MB, heap ${mb(l.heap)} MB, history ${l.hist} points`,
       );
   }, 1000);
-  // The simulated source never ends by itself: stop after the signal of `days` days has been played.
+  // The simulated source never ends by itself: stop after the signal of `days` days has been
+  // played.
   let done = false;
   const check = setInterval(() => {
     if (
@@ -208,7 +219,8 @@ async function soak(days: number, timeScale: number): Promise<void> {
     }
   }, 200);
   log(
-    `soak: ${days} simulated days at time_scale ${timeScale} (${signalS.toFixed(0)} s of signal, as fast as it goes) ...`,
+    `soak: ${days} simulated days at time_scale ` +
+      `${timeScale} (${signalS.toFixed(0)} s of signal, as fast as it goes) ...`,
   );
   const sum = await agent.run(5000);
   clearInterval(timer);
@@ -217,16 +229,23 @@ async function soak(days: number, timeScale: number): Promise<void> {
   const series = (get: (s: (typeof samples)[number]) => string) =>
     [0.1, 0.5, 0.9, 1].map((f) => get(at(f))).join(' / ');
   console.log(
-    `soak: ${days} simulated days (${signalS.toFixed(0)} s of signal) in ${((Date.now() - t0) / 1000).toFixed(0)} s wall; ${sum.windows} windows, ${sum.events} events`,
+    `soak: ${days} simulated days (${signalS.toFixed(0)} s of ` +
+      `signal) in ${((Date.now() - t0) / 1000).toFixed(0)} s ` +
+      `wall; ${sum.windows} windows, ${sum.events} events`,
   );
   console.log(
-    `soak RSS at 10/50/90/100 % of the run: ${series((s) => mb(s.rss, 0))} MB (V8 young generation ${series((s) => mb(s.young, 0))} MB); state directory ${(dirBytes(cfg.state_dir) / 1024).toFixed(0)} KiB`,
+    `soak RSS at 10/50/90/100 % of the run: ${series((s) => mb(s.rss, 0))} MB ` +
+      `(V8 young generation ${series((s) => mb(s.young, 0))} MB); state ` +
+      `directory ${(dirBytes(cfg.state_dir) / 1024).toFixed(0)} KiB`,
   );
   if (!gc) return void (await b.close());
   console.log(
-    `soak live heap after GC at 10/50/90/100 %: ${series((s) => mb(s.heap))} MB with ${series((s) => String(s.hist))} history points; ArrayBuffers ${series((s) => mb(s.ab, 2))} MB`,
+    `soak live heap after GC at 10/50/90/100 %: ${series((s) => mb(s.heap))} MB ` +
+      `with ${series((s) => String(s.hist))} history points; ArrayBuffers ` +
+      `${series((s) => mb(s.ab, 2))} MB`,
   );
-  // The history is bounded: it grows to max_points, then is merged back to 3/4 of it and grows again.
+  // The history is bounded: it grows to max_points, then is merged back to 3/4 of it and grows
+  // again.
   const merged = samples.filter((s, i) => i > 0 && s.hist < samples[i - 1]!.hist);
   const full = merged.length ? samples.indexOf(merged[0]!) : -1;
   if (full < 0)
@@ -235,12 +254,17 @@ async function soak(days: number, timeScale: number): Promise<void> {
     const after = samples.slice(full);
     const h = after.map((s) => s.heap);
     console.log(
-      `soak: history full (${maxPoints} points, first merge) at window ${after[0]!.win} (${((full / samples.length) * 100).toFixed(0)} % of the run); after that live heap ${mb(Math.min(...h))}-${mb(Math.max(...h))} MB ` +
-        `(first ${mb(h[0]!)}, last ${mb(h[h.length - 1]!)} MB), ArrayBuffers ${mb(after[0]!.ab, 2)} -> ${mb(after[after.length - 1]!.ab, 2)} MB`,
+      `soak: history full (${maxPoints} points, first merge) at window ` +
+        `${after[0]!.win} (${((full / samples.length) * 100).toFixed(0)} % of the ` +
+        `run); after that live heap ${mb(Math.min(...h))}-${mb(Math.max(...h))} MB ` +
+        `(first ${mb(h[0]!)}, last ${mb(h[h.length - 1]!)} MB), ArrayBuffers ` +
+        `${mb(after[0]!.ab, 2)} -> ${mb(after[after.length - 1]!.ab, 2)} MB`,
     );
-    // Like for like: the heap just after each merge, when the history is back to about 3/4 of max_points.
+    // Like for like: the heap just after each merge, when the history is back to about 3/4 of
+    // max_points.
     console.log(
-      `soak: live heap just after each merge of the history: ${merged.map((s) => `${mb(s.heap)} MB (window ${s.win}, ${s.hist} points)`).join(', ')}`,
+      `soak: live heap just after each merge of the history: ` +
+        `${merged.map((s) => `${mb(s.heap)} MB (window ${s.win}, ${s.hist} points)`).join(', ')}`,
     );
   }
   await b.close();
@@ -282,7 +306,8 @@ async function outage(timeScale: number): Promise<void> {
   const outboxDir = join(cfg.state_dir, 'outbox');
   const kept = readdirSync(outboxDir).filter((f) => f.endsWith('.rec'));
   console.log(
-    `outage: ${sum.events} events in one simulated day with the broker down; ${kept.length} kept on disk, ${(dirBytes(outboxDir) / 1024).toFixed(0)} KiB`,
+    `outage: ${sum.events} events in one simulated day with the broker down; ` +
+      `${kept.length} kept on disk, ${(dirBytes(outboxDir) / 1024).toFixed(0)} KiB`,
   );
   const b = await broker(port);
   const sub = connect(b.url);
@@ -306,7 +331,8 @@ async function outage(timeScale: number): Promise<void> {
   const s2 = await again.run(60_000);
   const left = readdirSync(outboxDir).filter((f) => f.endsWith('.rec')).length;
   console.log(
-    `outage: broker back: ${got} events received in ${((Date.now() - t0) / 1000).toFixed(1)} s, drained ${s2.drained}, ${left} left on disk`,
+    `outage: broker back: ${got} events received in ` +
+      `${((Date.now() - t0) / 1000).toFixed(1)} s, drained ${s2.drained}, ${left} left on disk`,
   );
   sub.end(true);
   await b.close();
@@ -315,13 +341,17 @@ async function outage(timeScale: number): Promise<void> {
 /** CPU time (user, system) of a process so far, s, from /proc/<pid>/stat. */
 function procCpuS(pid: number, file = `/proc/${pid}/stat`): { user: number; system: number } {
   const stat = readFileSync(file, 'utf8');
-  // Fields after the command name (which may hold spaces) in parentheses; utime and stime are fields 14 and 15.
+  // Fields after the command name (which may hold spaces) in parentheses; utime and stime are
+  // fields 14 and 15.
   const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
   const tick = 100; // USER_HZ: 100 on every Linux architecture the board runs
   return { user: Number(f[11]) / tick, system: Number(f[12]) / tick };
 }
 
-/** CPU time so far of each thread of a process, s, by thread name (the main thread first, as "main"). */
+/**
+ * CPU time so far of each thread of a process, s, by thread name (the main thread first, as
+ * "main").
+ */
 function threadCpuS(pid: number): Map<string, number> {
   const by = new Map<string, number>();
   for (const tid of readdirSync(`/proc/${pid}/task`)) {
@@ -349,7 +379,9 @@ function procRssMb(pid: number): { now: number; peak: number } {
 
 const loadavg = () => readFileSync('/proc/loadavg', 'utf8').split(' ').slice(0, 3).join(' ');
 
-/** A child process whose output is collected; `waitFor` resolves when its stdout or stderr matches. */
+/**
+ * A child process whose output is collected; `waitFor` resolves when its stdout or stderr matches.
+ */
 function startChild(
   args: string[],
   nodeArgs: string[] = [],
@@ -413,7 +445,9 @@ interface SerialRun {
   frames_dropped: number;
 }
 
-/** One run of `turnwise run` on the serial driver against `turnwise sim-board`, both as processes. */
+/**
+ * One run of `turnwise run` on the serial driver against `turnwise sim-board`, both as processes.
+ */
 async function serialRun(
   seconds: number,
   broker: Mosquitto,
@@ -538,27 +572,36 @@ async function serial(
 ): Promise<void> {
   const broker = await Mosquitto.start().catch((e: Error) => {
     throw new Error(
-      `bench serial: could not start mosquitto (${e.message}); install the Debian package mosquitto, or set TURNWISE_MOSQUITTO to its path`,
+      `bench serial: could not start mosquitto (${e.message}); install ` +
+        `the Debian package mosquitto, or set TURNWISE_MOSQUITTO to its path`,
     );
   });
   const cpus: number[] = [];
   try {
     for (let i = 1; i <= runs; i++) {
       log(
-        `serial: run ${i}/${runs}: turnwise run (serial, 8 ch x 25.6 kHz, MQTT to mosquitto) reading turnwise sim-board through a socat pty, ${seconds} s measured after 10 s ...`,
+        `serial: run ${i}/${runs}: turnwise run (serial, 8 ch x ` +
+          `25.6 kHz, MQTT to mosquitto) reading turnwise sim-board ` +
+          `through a socat pty, ${seconds} s measured after 10 s ...`,
       );
       const r = await serialRun(seconds, broker, profileDir);
       cpus.push(r.cpu_pct);
-      // sim-board's own frames in flight at the agent's stop are the only ones it may not have read.
+      // sim-board's own frames in flight at the agent's stop are the only ones it may not have
+      // read.
       const unread = r.frames_sent - r.frames_dropped - r.samples / 256;
       console.log(
-        `serial run ${i}: turnwise run ${r.cpu_pct.toFixed(1)} % of one core over ${r.wall_s.toFixed(0)} s (user ${r.user_s.toFixed(2)} s, system ${r.system_s.toFixed(2)} s); ` +
+        `serial run ${i}: turnwise run ${r.cpu_pct.toFixed(1)} % of ` +
+          `one core over ${r.wall_s.toFixed(0)} s (user ` +
+          `${r.user_s.toFixed(2)} s, system ${r.system_s.toFixed(2)} s); ` +
           `threads: ${Object.entries(r.threads_pct)
             .map(([n, p]) => `${n} ${p.toFixed(1)} %`)
             .join(
               ', ',
             )}; RSS ${r.rss_mb.now.toFixed(0)} MB (peak ${r.rss_mb.peak.toFixed(0)} MB); sim-board ${r.board_cpu_pct.toFixed(1)} %; load average ${r.loadavg_before} -> ${r.loadavg_after}; ` +
-          `${r.live_messages} live messages in the measurement; whole run: ${r.windows} windows, frames ${r.frames_sent} sent, ${r.frames_dropped} dropped by the board, ${r.gaps} gap(s) at the agent, ${unread} sent after the agent stopped reading`,
+          `${r.live_messages} live messages in the measurement; whole ` +
+          `run: ${r.windows} windows, frames ${r.frames_sent} sent, ` +
+          `${r.frames_dropped} dropped by the board, ${r.gaps} gap(s) ` +
+          `at the agent, ${unread} sent after the agent stopped reading`,
       );
     }
     if (runs > 1)

@@ -82,8 +82,12 @@ function coreRealtimeFactor(): {
 
 const r = coreRealtimeFactor();
 console.log(
-  `core, 8 ch x 25.6 kHz: ${r.rtf.toFixed(0)}x real time on one core (${r.cpuS.toFixed(3)} s CPU for ${r.audioS} s of signal, best of ${TIMED_RUNS} after a warm-up run)`,
+  `core, 8 ch x 25.6 kHz: ${r.rtf.toFixed(0)}x real time on ` +
+    `one core (${r.cpuS.toFixed(3)} s CPU for ${r.audioS} s ` +
+    `of signal, best of ${TIMED_RUNS} after a warm-up run)`,
 );
 console.log(
-  `peak RSS ${r.peakRssMb.toFixed(0)} MB (includes the ${((8 * 4 * fs * r.audioS) / 2 ** 20).toFixed(0)} MB test signal held in memory); heap in use ${r.heapMb.toFixed(0)} MB`,
+  `peak RSS ${r.peakRssMb.toFixed(0)} MB (includes the ` +
+    `${((8 * 4 * fs * r.audioS) / 2 ** 20).toFixed(0)} MB test ` +
+    `signal held in memory); heap in use ${r.heapMb.toFixed(0)} MB`,
 );

@@ -1,7 +1,8 @@
 /**
  * Outbox cost on this machine: time from add() to "on disk" (write + fsync + rename + directory
  * fsync) per event, and the cost of the acknowledgement (unlink). Run after a build:
- *   node dist/test/bench/outbox.bench.js [DIR]     (DIR: a directory on the disk to measure; default the temp dir)
+ *   node dist/test/bench/outbox.bench.js [DIR] (DIR: a directory on the disk to measure; default
+ *   the temp dir)
  */
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -46,8 +47,11 @@ rmSync(root, { recursive: true, force: true });
 lat.sort((a, b) => a - b);
 const q = (p: number) => lat[Math.min(lat.length - 1, Math.floor(p * lat.length))]!.toFixed(2);
 process.stdout.write(
-  `outbox on ${process.argv[2] ?? tmpdir()}, ${N} events of ~${JSON.stringify(event(0)).length} bytes\n` +
-    `  add -> durable, one at a time: median ${q(0.5)} ms, p99 ${q(0.99)} ms, ${(N / (serialMs / 1000)).toFixed(0)} events/s\n` +
-    `  add -> durable, burst of ${N}:  ${(burstMs / N).toFixed(2)} ms per event, ${(N / (burstMs / 1000)).toFixed(0)} events/s\n` +
+  `outbox on ${process.argv[2] ?? tmpdir()}, ${N} events ` +
+    `of ~${JSON.stringify(event(0)).length} bytes\n` +
+    `  add -> durable, one at a time: median ${q(0.5)} ms, p99 ` +
+    `${q(0.99)} ms, ${(N / (serialMs / 1000)).toFixed(0)} events/s\n` +
+    `  add -> durable, burst of ${N}:  ${(burstMs / N).toFixed(2)} ms ` +
+    `per event, ${(N / (burstMs / 1000)).toFixed(0)} events/s\n` +
     `  ack (unlink) of ${2 * N}:         ${((ackMs / (2 * N)) * 1000).toFixed(0)} us per event\n`,
 );

@@ -218,7 +218,8 @@ async function measureOn(pty: PtyPair, kind: Kind, seconds: number): Promise<Mea
   );
   await new Promise((r) => setTimeout(r, 1000));
   process.stderr.write(
-    `serial bench (${kind}): measuring ${seconds} s of 8 ch x 25.6 kHz x int24 through ${pty.agentPath}...\n`,
+    `serial bench (${kind}): measuring ${seconds} s of ` +
+      `8 ch x 25.6 kHz x int24 through ${pty.agentPath}...\n`,
   );
   const samples0 = samples;
   const bytes0 = bytes;
@@ -281,7 +282,8 @@ async function main(): Promise<void> {
   const readerM = await measure('reader', seconds);
   const streamM = await measure('stream', seconds);
   process.stderr.write(
-    `serial bench: a timer waking ${readerM.reads_per_s.toFixed(0)} times a second for ${seconds} s...\n`,
+    `serial bench: a timer waking ${readerM.reads_per_s.toFixed(0)} times ` +
+      `a second for ${seconds} s...\n`,
   );
   const floor = await wakeFloor(readerM.reads_per_s, seconds);
   const keepsUp =
@@ -311,7 +313,8 @@ async function main(): Promise<void> {
     const rows: [string, string][] = [
       [
         'stream',
-        `${CHANNELS} ch x ${RATE} Hz x int24, ${SPF} samples/frame (${((RATE * CHANNELS * 3) / 1e3).toFixed(1)} kB/s of samples)`,
+        `${CHANNELS} ch x ${RATE} Hz x int24, ${SPF} samples/frame ` +
+          `(${((RATE * CHANNELS * 3) / 1e3).toFixed(1)} kB/s of samples)`,
       ],
       ['measured', `${src.wall_s.toFixed(1)} s wall per run`],
       ['keeps up', keepsUp ? 'yes' : 'NO'],
@@ -321,19 +324,23 @@ async function main(): Promise<void> {
       ['gaps, crc errors, overruns', `${src.gaps}, ${src.crc_errors}, ${src.overruns}`],
       [
         'reader CPU (SerialSource)',
-        `${cpuPercent(src).toFixed(2)} % of one core (user ${src.cpu_user_s.toFixed(2)} s, system ${src.cpu_system_s.toFixed(2)} s)`,
+        `${cpuPercent(src).toFixed(2)} % of one core (user ` +
+          `${src.cpu_user_s.toFixed(2)} s, system ${src.cpu_system_s.toFixed(2)} s)`,
       ],
       [
         'PortReader alone',
-        `${cpuPercent(readerM).toFixed(2)} % of one core (no decoding; ${readerM.reads_per_s.toFixed(0)} reads/s)`,
+        `${cpuPercent(readerM).toFixed(2)} % of one core (no ` +
+          `decoding; ${readerM.reads_per_s.toFixed(0)} reads/s)`,
       ],
       [
         'serialport stream alone',
-        `${cpuPercent(streamM).toFixed(2)} % of one core (no decoding; ${streamM.reads_per_s.toFixed(0)} reads/s; the agent's former path)`,
+        `${cpuPercent(streamM).toFixed(2)} % of one core (no decoding; ` +
+          `${streamM.reads_per_s.toFixed(0)} reads/s; the agent's former path)`,
       ],
       [
         'timer waking as often, alone',
-        `${floor.cpu_percent_of_one_core.toFixed(2)} % of one core (${floor.wakeups_per_s.toFixed(0)} wake-ups/s, nothing read)`,
+        `${floor.cpu_percent_of_one_core.toFixed(2)} % of one core ` +
+          `(${floor.wakeups_per_s.toFixed(0)} wake-ups/s, nothing read)`,
       ],
       ['heap growth (SerialSource)', `${src.heap_growth_mb.toFixed(2)} MB`],
       [

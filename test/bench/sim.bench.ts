@@ -162,19 +162,25 @@ if (process.argv.includes('--json')) {
   process.stdout.write(JSON.stringify(result, null, 2) + '\n');
 } else {
   const row = (name: string, r: { seconds: number; x_realtime: number }, extra: string) =>
-    `  ${name.padEnd(30)} wall ${r.seconds.toFixed(3).padStart(6)} s (${r.x_realtime.toFixed(0).padStart(4)}x real time)  ${extra}`;
+    `  ${name.padEnd(30)} wall ${r.seconds.toFixed(3).padStart(6)} s ` +
+    `(${r.x_realtime.toFixed(0).padStart(4)}x real time)  ${extra}`;
   process.stdout.write(
-    `fan simulator, ${SECONDS} s of 7 channels at 25.6 kHz, best of ${REPEATS} runs (node ${process.version}, ${process.arch}, load average ${loadavg()[0]!.toFixed(1)})\n` +
+    `fan simulator, ${SECONDS} s of 7 channels at 25.6 kHz, best of ${REPEATS} runs (node ` +
+      `${process.version}, ${process.arch}, load average ${loadavg()[0]!.toFixed(1)})\n` +
       row(
         'render, demo scenario',
         demo,
-        `cpu ${demo.cpu_s.toFixed(3)} s (${demo.x_realtime_cpu.toFixed(0)}x), ${demo.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${demo.heap_growth_kb.toFixed(0)} kB`,
+        `cpu ${demo.cpu_s.toFixed(3)} s (${demo.x_realtime_cpu.toFixed(0)}x), ` +
+          `${demo.ns_per_sample_channel.toFixed(1)} cpu ns per sample per ` +
+          `channel, heap growth ${demo.heap_growth_kb.toFixed(0)} kB`,
       ) +
       '\n' +
       row(
         'render, every fault kind on',
         faults,
-        `cpu ${faults.cpu_s.toFixed(3)} s (${faults.x_realtime_cpu.toFixed(0)}x), ${faults.ns_per_sample_channel.toFixed(1)} cpu ns per sample per channel, heap growth ${faults.heap_growth_kb.toFixed(0)} kB`,
+        `cpu ${faults.cpu_s.toFixed(3)} s (${faults.x_realtime_cpu.toFixed(0)}x), ` +
+          `${faults.ns_per_sample_channel.toFixed(1)} cpu ns per sample per ` +
+          `channel, heap growth ${faults.heap_growth_kb.toFixed(0)} kB`,
       ) +
       '\n' +
       row('render + write WAV (fsync)', wav, `${wav.mb_per_s.toFixed(0)} MB/s`) +

@@ -35,7 +35,8 @@ function childCpuS(): number | null {
   try {
     const stat = readFileSync('/proc/self/stat', 'utf8');
     const f = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
-    // Fields after the command name start at field 3 (state); cutime and cstime are fields 16 and 17.
+    // Fields after the command name start at field 3 (state); cutime and cstime are fields
+    // 16 and 17.
     return (Number(f[16 - 3]) + Number(f[17 - 3])) / 100;
   } catch {
     return null;
@@ -63,7 +64,8 @@ function once(
   const c1 = childCpuS();
   if (r.status !== 0)
     throw new Error(
-      `${cmd} ${args.join(' ')} failed (exit ${r.status}): ${(r.stderr ?? '') + (r.error ? String(r.error) : '')}`,
+      `${cmd} ${args.join(' ')} failed (exit ${r.status}): ` +
+        `${(r.stderr ?? '') + (r.error ? String(r.error) : '')}`,
     );
   return { wallS, cpuS: c0 === null || c1 === null ? null : c1 - c0, out: r.stdout };
 }
@@ -74,7 +76,10 @@ const median = (xs: number[]): number => {
   return s.length % 2 ? s[m]! : (s[m - 1]! + s[m]!) / 2;
 };
 
-/** Median wall time of `runs` runs after one untimed run (file cache warm), and mean CPU time per run. */
+/**
+ * Median wall time of `runs` runs after one untimed run (file cache warm), and mean CPU time per
+ * run.
+ */
 function timed(
   cmd: string,
   args: string[],
@@ -90,7 +95,8 @@ function timed(
 
 const ms = (s: number) => `${(s * 1000).toFixed(0)} ms`;
 const fig = (t: { medianS: number; minS: number; cpuS: number | null }, runs: number) =>
-  `${ms(t.medianS)} wall, median of ${runs} (min ${ms(t.minS)}); CPU ${t.cpuS === null ? 'n/a' : ms(t.cpuS)} per run`;
+  `${ms(t.medianS)} wall, median of ${runs} (min ${ms(t.minS)}); ` +
+  `CPU ${t.cpuS === null ? 'n/a' : ms(t.cpuS)} per run`;
 const load = () =>
   loadavg()
     .map((x) => x.toFixed(2))
@@ -110,7 +116,8 @@ console.log(`node -e 0 (Node's own start-up, for reference): ${fig(bare, N)}`);
 if (extraCa) {
   const withCa = timed(process.execPath, ['-e', '0'], N, process.env);
   console.log(
-    `  (NODE_EXTRA_CA_CERTS is set here; the figures are without it: with it, node -e 0 takes ${fig(withCa, N)})`,
+    `  (NODE_EXTRA_CA_CERTS is set here; the figures are ` +
+      `without it: with it, node -e 0 takes ${fig(withCa, N)})`,
   );
 }
 console.log(
@@ -137,11 +144,13 @@ try {
   const cfgFile = join(dir, 'cfg.yaml');
   writeFileSync(
     cfgFile,
-    `machine: {id: bench, group: 2, support: rigid, rated_rpm: 1485}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n` +
+    `machine: {id: bench, group: 2, support: rigid, rated_rpm: ` +
+      `1485}\ntach: {channel: 6, trigger_v: 2.5}\nsensors:\n` +
       sensors
         .map(
           (_, i) =>
-            `  - {id: S${i}, channel: ${i}, bearing: ${i < 3 ? 'DE' : 'NDE'}, direction: vertical, sensitivity_mv_per_g: 100}`,
+            `  - {id: S${i}, channel: ${i}, bearing: ${i < 3 ? 'DE' : 'NDE'}, direction: ` +
+            `vertical, sensitivity_mv_per_g: 100}`,
         )
         .join('\n') +
       '\n',
@@ -153,7 +162,8 @@ try {
     py = timed(python, [peer, rec, '6', '100'], R);
   } catch (e) {
     log(
-      `bench: numpy/scipy peer not run (${python} with numpy and scipy is needed): ${(e as Error).message.split('\n').slice(-2).join(' ')}`,
+      `bench: numpy/scipy peer not run (${python} with numpy and scipy is ` +
+        `needed): ${(e as Error).message.split('\n').slice(-2).join(' ')}`,
     );
   }
   console.log(`turnwise analyze, 60 s x 7 ch at 25.6 kHz:      ${fig(tw, R)}`);
@@ -164,12 +174,16 @@ try {
     const cpuRatio =
       tw.cpuS !== null && py.cpuS !== null ? `, CPU ${(tw.cpuS / py.cpuS).toFixed(2)} x` : '';
     console.log(
-      `turnwise / peer: wall ${(tw.medianS / py.medianS).toFixed(2)} x (target <= 0.5 x)${cpuRatio}; 1x on S0: turnwise ${a.amp_pk_mm_s} mm/s @ ${a.phase_deg} deg, peer ${b.amp_pk_mm_s.toFixed(3)} mm/s @ ${b.phase_deg.toFixed(1)} deg`,
+      `turnwise / peer: wall ${(tw.medianS / py.medianS).toFixed(2)} x ` +
+        `(target <= 0.5 x)${cpuRatio}; 1x on S0: turnwise ` +
+        `${a.amp_pk_mm_s} mm/s @ ${a.phase_deg} deg, peer ` +
+        `${b.amp_pk_mm_s.toFixed(3)} mm/s @ ${b.phase_deg.toFixed(1)} deg`,
     );
   }
 } finally {
   rmSync(dir, { recursive: true, force: true });
 }
 console.log(
-  `load average before ${loadBefore}, after ${load()} (${cpus().length} cores): figures are wall times and grow with the load`,
+  `load average before ${loadBefore}, after ${load()} (${cpus().length} cores): ` +
+    `figures are wall times and grow with the load`,
 );

@@ -85,10 +85,14 @@ const tc = process.cpuUsage(t0);
 const findS = (tc.user + tc.system) / 1e6 / 20;
 const bytesPerPoint = 8 * 2 + 1 + 2 * 8 * 6;
 console.log(
-  `sweep analysis, 6 ch x 25.6 kHz coast-down: ${(seconds / swept.cpuS).toFixed(0)}x real time on one core (${swept.cpuS.toFixed(3)} s CPU for ${seconds} s); core alone ${(seconds / core.cpuS).toFixed(0)}x (${core.cpuS.toFixed(3)} s); best of ${TIMED_RUNS}`,
+  `sweep analysis, 6 ch x 25.6 kHz coast-down: ${(seconds / swept.cpuS).toFixed(0)}x real ` +
+    `time on one core (${swept.cpuS.toFixed(3)} s CPU for ${seconds} s); core alone ` +
+    `${(seconds / core.cpuS).toFixed(0)}x (${core.cpuS.toFixed(3)} s); best of ${TIMED_RUNS}`,
 );
 console.log(
-  `speed points: ${swept.points} (${cfg.sweep.revolutions_per_point} revolutions each), ${bytesPerPoint} bytes each = ${((swept.points * bytesPerPoint) / 1024).toFixed(1)} KiB; finding ${found} sweep(s) and their resonances: ${(findS * 1000).toFixed(2)} ms`,
+  `speed points: ${swept.points} (${cfg.sweep.revolutions_per_point} revolutions each), ` +
+    `${bytesPerPoint} bytes each = ${((swept.points * bytesPerPoint) / 1024).toFixed(1)} KiB; ` +
+    `finding ${found} sweep(s) and their resonances: ${(findS * 1000).toFixed(2)} ms`,
 );
 
 // The event captures' raw ring (agent/capture/raw-ring.ts) at the board's size: 8 channels at
@@ -111,7 +115,10 @@ console.log(
     if (rep > 0) bestS = Math.min(bestS, (c.user + c.system) / 1e6);
   }
   console.log(
-    `capture ring, 8 ch x 25.6 kHz x (10 s + one 65 536-sample block): ${(ring.bytes / 2 ** 20).toFixed(1)} MiB (ArrayBuffers grew ${((after - before) / 2 ** 20).toFixed(1)} MiB); ` +
-      `writing 60 s in 256-sample frames: ${(seconds / bestS).toFixed(0)}x real time on one core (${(bestS * 1000).toFixed(1)} ms CPU)`,
+    `capture ring, 8 ch x 25.6 kHz x (10 s + one 65 536-sample ` +
+      `block): ${(ring.bytes / 2 ** 20).toFixed(1)} MiB (ArrayBuffers ` +
+      `grew ${((after - before) / 2 ** 20).toFixed(1)} MiB); ` +
+      `writing 60 s in 256-sample frames: ${(seconds / bestS).toFixed(0)}x ` +
+      `real time on one core (${(bestS * 1000).toFixed(1)} ms CPU)`,
   );
 }

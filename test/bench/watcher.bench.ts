@@ -20,7 +20,9 @@ function measure(label: string, reps: number, fn: (i: number) => void): void {
   for (let i = 0; i < reps; i++) fn(i);
   const us = Number(process.hrtime.bigint() - t0) / 1000 / reps;
   process.stdout.write(
-    `${label.padEnd(58)} ${us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us.toFixed(1)} us`} per call (${reps} calls)\n`,
+    `${label.padEnd(58)} ` +
+      `${us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us.toFixed(1)} us`} per ` +
+      `call (${reps} calls)\n`,
   );
 }
 

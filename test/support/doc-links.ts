@@ -79,7 +79,9 @@ export function checkLinks(files: readonly string[], root: string): LinkProblem[
           if (statSync(dest).isDirectory() || !dest.endsWith('.md')) {
             problems.push({
               ...where,
-              problem: `#${fragment} points into ${relative(root, dest)}, which is not a Markdown file`,
+              problem:
+                `#${fragment} points into ${relative(root, dest)}, which ` +
+                `is not a Markdown file`,
             });
           } else if (!anchorsOf(readFileSync(dest, 'utf8')).has(fragment)) {
             problems.push({

@@ -1,7 +1,7 @@
 /**
  * Builds DSP windows (WindowResult) the way the DSP would deliver them from the invented demo fan
- * (Kessrow Board Mill ID-3A, config/example.yaml) in a given mechanical state. The 1x vectors follow the
- * rules of the trade for each state (common practice); overall, 1x
+ * (Kessrow Board Mill ID-3A, config/example.yaml) in a given mechanical state. The 1x vectors
+ * follow the rules of the trade for each state (common practice); overall, 1x
  * share and raw-signal statistics are derived from the vectors so the window is self-consistent.
  */
 import { readFileSync } from 'node:fs';
@@ -34,7 +34,10 @@ export const DEMO_SENSORS: readonly SensorSpec[] = [
   { id: 'NDE-A', channel: 5, bearing: 'NDE', direction: 'axial', mounting_angle_deg: 0 },
 ];
 
-/** A 1x (or other order) vector: r.m.s. amplitude, mm/s, and phase lag as the sensor reads it, degrees. */
+/**
+ * A 1x (or other order) vector: r.m.s. amplitude, mm/s, and phase lag as the sensor reads it,
+ * degrees.
+ */
 export interface Vec {
   readonly amp: number;
   readonly phase: number;
@@ -59,7 +62,10 @@ export interface WindowSpec {
 export const SAMPLE_RATE_HZ = 5120;
 const G = 9.80665;
 
-/** Raw-signal r.m.s. volts of a 100 mV/g accelerometer for velocity components (mm/s r.m.s.) at frequencies (Hz). */
+/**
+ * Raw-signal r.m.s. volts of a 100 mV/g accelerometer for velocity components (mm/s r.m.s.) at
+ * frequencies (Hz).
+ */
 function acRmsV(parts: readonly { v: number; f: number }[]): number {
   let s = 0;
   for (const p of parts) s += ((((p.v / 1000) * 2 * Math.PI * p.f) / G) * 0.1) ** 2;
@@ -154,8 +160,8 @@ export type FanCase =
  * 1x vectors (and 2x where the case needs it) for a fan in a given state, by the trade's rules
  * (common practice): unbalance gives H about 90 deg from V with a modest ratio; static puts both
  * bearings in phase, couple 180 apart, dynamic in between; an overhung rotor adds high axial 1x in
- * phase at both bearings; misalignment gives high 2x and axial 1x 180 apart; directional 1x has H and V
- * in phase with a large ratio.
+ * phase at both bearings; misalignment gives high 2x and axial 1x 180 apart; directional 1x has H
+ * and V in phase with a large ratio.
  */
 export function fanCase(
   c: FanCase,
@@ -247,7 +253,10 @@ export function fanCase(
   }
 }
 
-/** The demo config (config/example.yaml, invented scenario) with healthy IEPE bias windows and overrides. */
+/**
+ * The demo config (config/example.yaml, invented scenario) with healthy IEPE bias windows and
+ * overrides.
+ */
 export function demoConfig(
   overrides: {
     machine?: Record<string, unknown>;

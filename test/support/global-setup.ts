@@ -18,9 +18,12 @@ export default async function setup(): Promise<() => Promise<void>> {
       broker = await Mosquitto.start();
       process.env.TURNWISE_TEST_MQTT_URL = broker.url;
     } catch (e) {
-      // `npm test` checked for mosquitto first; a single file run without it only fails its MQTT tests.
+      // `npm test` checked for mosquitto first; a single file run without it only fails its MQTT
+      // tests.
       process.stderr.write(
-        `test setup: no shared mosquitto (${(e as Error).message.split('\n')[0]}); tests that need a broker will fail\n  -> install it: apt-get install mosquitto (\`node scripts/test-prereqs.mjs\` checks everything the tests use)\n`,
+        `test setup: no shared mosquitto (${(e as Error).message.split('\n')[0]}); ` +
+          `tests that need a broker will fail\n  -> install it: apt-get install mosquitto ` +
+          `(\`node scripts/test-prereqs.mjs\` checks everything the tests use)\n`,
       );
     }
   }

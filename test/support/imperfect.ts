@@ -1,8 +1,9 @@
 /**
  * Plant imperfections for the sensor-fault tests, written here and nowhere else: neither the
  * product's simulator (drivers/sim) nor the test synthesizer (synth.ts) makes these signals. Every
- * channel is volts as a board would deliver them: an acceleration signal in g times the sensitivity,
- * plus whatever the fault adds, then the converter (clamped to its rails, rounded to its step).
+ * channel is volts as a board would deliver them: an acceleration signal in g times the
+ * sensitivity, plus whatever the fault adds, then the converter (clamped to its rails, rounded to
+ * its step).
  *
  * Bases of the shapes:
  * - Bearing outer-race defect: each roller passing the defect strikes it and rings a structural
@@ -11,7 +12,8 @@
  *   rollers slip a little so the impacts are not exactly periodic (1-2 %, common practice), and
  *   the impact force is modulated once per turn by the rotating load (common practice).
  * - Intermittent connector: the contact opens for a fraction of a millisecond and the input jumps
- *   one way by several volts, into the board's rail, then comes back without ringing (common practice).
+ *   one way by several volts, into the board's rail, then comes back without ringing (common
+ *   practice).
  */
 import { STANDARD_GRAVITY_M_S2 } from '../../agent/dsp/acceleration.js';
 
@@ -40,7 +42,10 @@ export interface Plant {
   readonly channels: number;
 }
 
-/** A steady 1x of `velPkMmS` (zero-to-peak velocity, mm/s) at phase lag `phaseDeg`, as acceleration in g. */
+/**
+ * A steady 1x of `velPkMmS` (zero-to-peak velocity, mm/s) at phase lag `phaseDeg`, as acceleration
+ * in g.
+ */
 export function oneXAccelG(p: Plant, velPkMmS: number, phaseDeg: number, t: number): number {
   const w = (2 * Math.PI * p.rpm) / 60;
   // v = V cos(w t - phi) -> a = -V w sin(w t - phi); mm/s^2 -> g
@@ -100,7 +105,10 @@ export interface ConnectorFault {
   readonly seed: number;
 }
 
-/** Volts a bad connector adds: one-sided jumps with a 50 us edge, random sign per opening. Returns the opening times too. */
+/**
+ * Volts a bad connector adds: one-sided jumps with a 50 us edge, random sign per opening. Returns
+ * the opening times too.
+ */
 export function connectorV(p: Plant, c: ConnectorFault): { v: Float64Array; openings: number } {
   const n = Math.round(p.seconds * p.sampleRate);
   const v = new Float64Array(n);

@@ -1,12 +1,13 @@
 /**
  * A child process holding a real plant link (outbox on disk + MQTT publisher), for tests that kill
- * it with SIGKILL. Run: node --import ./test/support/ts-hooks.mjs test/support/link-child.ts '<json>'
+ * it with SIGKILL. Run: node --import ./test/support/ts-hooks.mjs test/support/link-child.ts
+ * '<json>'
  * JSON: { url, prefix, asset, stateDir, mode, count?, idPrefix?, waitForGo? }
  *   mode "add":   queue `count` events, print {"durable": id} as each is on disk, then wait forever
  *   mode "loop":  queue events without end, printing {"durable": id} as each is on disk
  *   mode "drain": queue nothing; print {"drained": true} once the outbox is empty, then exit 0
- * Prints {"connected": true} when the broker accepts the connection. With waitForGo, "add" starts only
- * after a line arrives on stdin.
+ * Prints {"connected": true} when the broker accepts the connection. With waitForGo, "add" starts
+ * only after a line arrives on stdin.
  */
 import { openPlantLink } from '../../agent/mqtt/plant-link.js';
 import { mqttSchema } from '../../agent/config/mqtt.js';

@@ -20,7 +20,10 @@ export interface MosquittoOptions {
   readonly tls?: { readonly requireClientCert: boolean };
   /** Plain listener port (default: a free one). */
   readonly port?: number;
-  /** Further lines for mosquitto.conf, before the listeners (e.g. "max_packet_size 2048", "max_inflight_messages 2"). */
+  /**
+   * Further lines for mosquitto.conf, before the listeners (e.g. "max_packet_size 2048",
+   * "max_inflight_messages 2").
+   */
   readonly extraConfig?: readonly string[];
 }
 
@@ -162,7 +165,9 @@ export class Mosquitto {
     throw new Error(`mosquitto did not open port ${this.port} within 10 s:\n${this.log}`);
   }
 
-  /** Stops the broker gracefully (SIGTERM: it saves persistent sessions) and waits for it to exit. */
+  /**
+   * Stops the broker gracefully (SIGTERM: it saves persistent sessions) and waits for it to exit.
+   */
   async stop(): Promise<void> {
     const p = this.proc;
     this.proc = null;

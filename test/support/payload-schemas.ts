@@ -23,6 +23,8 @@ export function assertMatches(name: string, value: unknown): void {
   const r = schemaFile(name).safeParse(value);
   if (!r.success)
     throw new Error(
-      `payload does not match ${name}.schema.json: ${r.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}\n${JSON.stringify(value)}`,
+      `payload does not match ${name}.schema.json: ` +
+        `${r.error.issues.map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}\n` +
+        `${JSON.stringify(value)}`,
     );
 }

@@ -6,18 +6,18 @@
  *
  * Model (all own computation, SI units inside):
  * - A rigid rotor on two bearings. Each unbalance mass m at radius r, angle alpha (degrees from the
- *   reference mark, against rotation) and axial plane z pulls F = m r omega^2; the lever rule shares
- *   it between the bearings (F_DE = F (L - z) / L, F_NDE = F z / L).
+ *   reference mark, against rotation) and axial plane z pulls F = m r omega^2; the lever rule
+ *   shares it between the bearings (F_DE = F (L - z) / L, F_NDE = F z / L).
  * - Each bearing housing moves in the vertical and the horizontal direction as its own 2nd-order
- *   system (modal mass, natural frequency, damping ratio): x'' + 2 zeta w_n x' + w_n^2 x = F_dir / m.
- *   It is integrated sample by sample with the exact step of a linear 2nd-order system under a force
- *   held over the step (taken at mid-step), from the steady state at t = 0, so speed ramps and jitter
- *   act through the dynamics, not through a formula.
+ *   system (modal mass, natural frequency, damping ratio): x'' + 2 zeta w_n x' + w_n^2
+ *   x = F_dir / m. It is integrated sample by sample with the exact step of a linear 2nd-order
+ *   system under a force held over the step (taken at mid-step), from the steady state at t = 0, so
+ *   speed ramps and jitter act through the dynamics, not through a formula.
  * - Geometry: shaft angle theta is 0 when the mark passes the tach pickup. A sensor axis at angle
  *   psi (degrees in the direction of rotation from the pickup) sees the force F cos(theta - alpha -
  *   psi). Vertical axes sit at `vertical_axis_deg`, horizontal ones 90 degrees further in the
- *   direction of rotation; a sensor mounted on the opposite side has its axis turned by 180 degrees,
- *   so it reads the negative of the housing's motion.
+ *   direction of rotation; a sensor mounted on the opposite side has its axis turned by
+ *   180 degrees, so it reads the negative of the housing's motion.
  * - Accelerometers read the housing acceleration x'' in volts at their sensitivity (mV/g,
  *   g = 9.80665 m/s^2), plus white noise, a small DC offset, and what the plant adds (below).
  * - The board: +/-`range_v` input range (every channel is clipped there) and 24-bit steps.
@@ -26,18 +26,19 @@
  *   speed, so a ramp and per-revolution speed jitter show up in the pulse train as they would.
  *
  * Imperfections (each optional):
- * - `neighbour`: a second fan on the same floor at `ratio` x our nominal speed, reaching our sensors
- *   as a velocity sinusoid at its own fixed frequency (it beats with our 1x).
+ * - `neighbour`: a second fan on the same floor at `ratio` x our nominal speed, reaching our
+ *   sensors as a velocity sinusoid at its own fixed frequency (it beats with our 1x).
  * - `ramp`: a variable-speed drive changes the speed linearly between two times.
  * - `jitter_per_rev`: each revolution's speed differs from nominal by a Gaussian share (speed is
  *   linear between revolution nodes, so the shaft angle stays smooth).
- * - `mains`: 50 and 100 Hz pickup in volts on the sensor cable (ground loop), added after the sensor.
+ * - `mains`: 50 and 100 Hz pickup in volts on the sensor cable (ground loop), added after the
+ *   sensor.
  * - `impacts`: a bearing defect: force pulses (half sine, `pulse_ms`) at a non-integer order (the
  *   defect frequency, with random slip) ring a housing resonance (its own 2nd-order system); every
  *   sensor on that bearing reads its acceleration times a transmission share.
- * - `connector`: an intermittent connector: short pulses of several volts at random times (Poisson),
- *   a decaying ring of the cable (e^(-t/decay) cos(2 pi f t)); they hit the input rail and are
- *   clipped there.
+ * - `connector`: an intermittent connector: short pulses of several volts at random times
+ *   (Poisson), a decaying ring of the cable (e^(-t/decay) cos(2 pi f t)); they hit the input rail
+ *   and are clipped there.
  */
 import { closeSync, openSync, writeFileSync, writeSync } from 'node:fs';
 
@@ -94,13 +95,19 @@ export interface SensorSpec {
   /** White acceleration noise, g r.m.s. over the full sample band. */
   readonly noise_g: number;
   readonly dc_v: number;
-  /** Neighbouring fan's vibration at this sensor: velocity zero-to-peak, mm/s, and phase at t = 0, degrees. */
+  /**
+   * Neighbouring fan's vibration at this sensor: velocity zero-to-peak, mm/s, and phase at t = 0,
+   * degrees.
+   */
   readonly neighbour?: { readonly vel_pk_mm_s: number; readonly phase_deg: number };
   /** Mains pickup, volts zero-to-peak. */
   readonly mains?: { readonly v50_pk: number; readonly v100_pk: number; readonly freq_hz: number };
   /** Share of the bearing's impact-train acceleration this sensor reads. */
   readonly impact_share?: number;
-  /** Intermittent connector: pulses e^(-t/decay) cos(2 pi ring_hz t) of `min_v`..`max_v` volts (random sign) at random times. */
+  /**
+   * Intermittent connector: pulses e^(-t/decay) cos(2 pi ring_hz t) of `min_v`..`max_v` volts
+   * (random sign) at random times.
+   */
   readonly connector?: {
     readonly rate_per_s: number;
     readonly min_v: number;
@@ -304,7 +311,8 @@ export function oneXVelocity(spec: PlantSpec, s: SensorSpec, w: number): Cx {
   for (const u of spec.unbalance) {
     const F =
       u.grams * 1e-3 * u.radius_mm * 1e-3 * w * w * bearingShare(spec, s.bearing, u.plane_mm);
-    // the housing's motion along the reference axis of this direction (a sensor turned by 180 deg reads its negative)
+    // the housing's motion along the reference axis of this direction (a sensor turned by 180 deg
+    // reads its negative)
     const p = phasor(
       F,
       u.angle_deg + spec.vertical_axis_deg + (s.direction === 'horizontal' ? 90 : 0),
@@ -318,7 +326,10 @@ export function oneXVelocity(spec: PlantSpec, s: SensorSpec, w: number): Cx {
 
 const tracks = new WeakMap<PlantSpec, ReturnType<typeof computeTrack>>();
 
-/** Shaft-angle track: theta per sample (rad), speed per sample (rad/s) and the mark passage times (s). Cached per spec. */
+/**
+ * Shaft-angle track: theta per sample (rad), speed per sample (rad/s) and the mark passage times
+ * (s). Cached per spec.
+ */
 export function shaftTrack(spec: PlantSpec): {
   theta: Float64Array;
   omega: Float64Array;
@@ -477,7 +488,8 @@ export function record(spec: PlantSpec): Float32Array[] {
     }
   }
 
-  // Tach pickup: first-order rise from each mark passage, first-order fall after pulse_deg of rotation.
+  // Tach pickup: first-order rise from each mark passage, first-order fall after pulse_deg of
+  // rotation.
   const tach = out[spec.tach.channel]!;
   {
     const tauT = spec.tach.rise_us * 1e-6;
@@ -635,13 +647,16 @@ export function writeExtensibleWav(
 /** The config a technician would write for this recording. */
 export function configYaml(spec: PlantSpec, stateDir: string): string {
   const lines = [
-    `machine: {id: kessrow-id3a, name: "Kessrow Board Mill fan ID-3A (invented)", group: ${spec.machine.group}, support: ${spec.machine.support}, rated_rpm: ${spec.machine.rated_rpm}}`,
+    `machine: {id: kessrow-id3a, name: "Kessrow Board Mill fan ` +
+      `ID-3A (invented)", group: ${spec.machine.group}, support: ` +
+      `${spec.machine.support}, rated_rpm: ${spec.machine.rated_rpm}}`,
     `tach: {channel: ${spec.tach.channel}, trigger_v: ${spec.tach.high_v / 2}}`,
     `state_dir: ${JSON.stringify(stateDir)}`,
     'sensors:',
     ...spec.sensors.map(
       (s) =>
-        `  - {id: ${s.id}, channel: ${s.channel}, bearing: ${s.bearing}, direction: ${s.direction}, sensitivity_mv_per_g: ${s.sensitivity_mv_per_g}` +
+        `  - {id: ${s.id}, channel: ${s.channel}, bearing: ${s.bearing}, direction: ` +
+        `${s.direction}, sensitivity_mv_per_g: ${s.sensitivity_mv_per_g}` +
         (s.config_mounting_angle_deg !== undefined
           ? `, mounting_angle_deg: ${s.config_mounting_angle_deg}`
           : '') +
@@ -674,7 +689,9 @@ export function noiseBandRmsMmS(noiseG: number, fs: number, lowHz: number, highH
   return Math.sqrt((psd / (4 * Math.PI * Math.PI)) * (1 / lowHz - 1 / highHz));
 }
 
-/** Velocity-equivalent r.m.s. of the mains pickup, mm/s (volts -> m/s^2 at the sensitivity -> / w). */
+/**
+ * Velocity-equivalent r.m.s. of the mains pickup, mm/s (volts -> m/s^2 at the sensitivity -> / w).
+ */
 export function mainsRmsMmS(s: SensorSpec): number {
   if (!s.mains) return 0;
   const perV = (G_M_S2 * 1000) / (s.sensitivity_mv_per_g / 1000); // mm/s^2 per volt
@@ -724,11 +741,12 @@ export function markTimes(spec: PlantSpec): number[] {
 
 /**
  * Expected synchronous-average 1x velocity phasor of a sensor, mm/s zero-to-peak (lag convention):
- * the steady-state 1x phasor at each revolution's mean speed, with the sensor's 180-degree turn, plus
- * the neighbour's order-1 Fourier coefficient over that revolution, averaged over the revolutions
- * from `firstRev` on. Includes the tach pickup's trigger delay (tau ln 2 at a half-height trigger).
- * `domain: 'acceleration'` averages i w v instead (what an order-tracked average of the raw
- * acceleration gives) and turns it into velocity at the mean speed; at steady speed both agree.
+ * the steady-state 1x phasor at each revolution's mean speed, with the sensor's 180-degree turn,
+ * plus the neighbour's order-1 Fourier coefficient over that revolution, averaged over the
+ * revolutions from `firstRev` on. Includes the tach pickup's trigger delay (tau ln 2 at a
+ * half-height trigger). `domain: 'acceleration'` averages i w v instead (what an order-tracked
+ * average of the raw acceleration gives) and turns it into velocity at the mean speed; at steady
+ * speed both agree.
  */
 export function expectedOneX(
   spec: PlantSpec,
@@ -752,7 +770,8 @@ export function expectedOneX(
     if (s.opposite_side) p = [-p[0], -p[1]];
     if (s.neighbour) {
       // neighbour velocity over the revolution as a function of shaft angle u in [0, 2 pi):
-      // V cos(r u + beta), r = fNb T, beta = 2 pi fNb t0 - phi. Order-1 coefficient c = (1/pi) int V cos(r u + beta) e^{-iu} du.
+      // V cos(r u + beta), r = fNb T, beta = 2 pi fNb t0 - phi. Order-1 coefficient c = (1/pi) int
+      // V cos(r u + beta) e^{-iu} du.
       const r = fNb * T;
       const beta = 2 * Math.PI * fNb * t0 - s.neighbour.phase_deg * RAD;
       const V = s.neighbour.vel_pk_mm_s;
@@ -779,7 +798,8 @@ export function expectedOneX(
     re /= wMean;
     im /= wMean;
   }
-  // The trigger crosses half height tau ln 2 after the mark: the reference comes later, the lag is smaller.
+  // The trigger crosses half height tau ln 2 after the mark: the reference comes later, the lag is
+  // smaller.
   const delayDeg = 360 * (spec.speed.rpm / 60) * spec.tach.rise_us * 1e-6 * Math.LN2;
   const avg: Cx = [re / count, im / count];
   return phasor(ampOf(avg), lagOf(avg) - delayDeg);

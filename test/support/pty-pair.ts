@@ -37,7 +37,8 @@ export class PtyPair {
       if (p.exitCode !== null) throw new Error(`socat exited with ${p.exitCode}: ${this.stderr}`);
       if (Date.now() - t0 > timeoutMs)
         throw new Error(
-          `socat did not create ${this.boardPath} and ${this.agentPath} within ${timeoutMs} ms: ${this.stderr}`,
+          `socat did not create ${this.boardPath} and ` +
+            `${this.agentPath} within ${timeoutMs} ms: ${this.stderr}`,
         );
       await new Promise((r) => setTimeout(r, 20));
     }

@@ -1,7 +1,7 @@
 /**
  * The agent's measurement loop on a real pseudo-terminal: a socat pty pair (PtyPair), the real
- * SerialSource on one end, an AgentRuntime pulling from it, and the board's end open for the test to
- * write frames into. `dispose()` (in afterEach) closes whatever was opened.
+ * SerialSource on one end, an AgentRuntime pulling from it, and the board's end open for the test
+ * to write frames into. `dispose()` (in afterEach) closes whatever was opened.
  */
 import { ManualClock } from '../../agent/clock.js';
 import { MemoryLogger } from '../../agent/log.js';
@@ -23,7 +23,10 @@ export class PtyRuntimeRig {
   runtime: AgentRuntime | null = null;
   private running: Promise<unknown> | null = null;
 
-  /** Starts socat, the source and the runtime; resolves once the port is open and the board's end can be written. */
+  /**
+   * Starts socat, the source and the runtime; resolves once the port is open and the board's end
+   * can be written.
+   */
   async start(
     src: RigSourceOptions,
     rt: RigRuntimeOptions,
@@ -55,7 +58,10 @@ export class PtyRuntimeRig {
     return { source, writer: this.writer, runtime };
   }
 
-  /** Waits until the source has accepted `frames` frames (at most `timeoutMs`), lets the loop catch up, and stops the runtime. */
+  /**
+   * Waits until the source has accepted `frames` frames (at most `timeoutMs`), lets the loop catch
+   * up, and stops the runtime.
+   */
   async finish(frames: number | null, timeoutMs = 10_000): Promise<void> {
     const t0 = Date.now();
     if (frames !== null)

@@ -75,7 +75,10 @@ function sensors(over: Partial<Record<string, Partial<SensorSpec>>> = {}): Senso
   return base.map((s) => ({ ...s, ...(over[s.id] ?? {}) }) as SensorSpec);
 }
 
-/** A static unbalance of `gramMm` g mm at the impeller plane (900 mm), 70 deg from the mark against rotation. */
+/**
+ * A static unbalance of `gramMm` g mm at the impeller plane (900 mm), 70 deg from the mark against
+ * rotation.
+ */
 function fan(
   name: string,
   gramMm: number,
@@ -107,8 +110,8 @@ export const CORPUS: Record<string, PlantSpec> = {
   'zone-a-residual': fan('zone-a-residual', 4400, { seed: 11 }),
   // (a') the same fan a little less well balanced: 1x about 1 mm/s r.m.s., still zone A.
   'zone-a-residual-1mm': fan('zone-a-residual-1mm', 6800, { seed: 12 }),
-  // (b) a loose connector on DE-H: impulses of 3-9 V, about 40 a second, clipped at the +/-5 V rail.
-  // A larger fan (group 1, over 300 kW) whose impeller sits nearer DE and whose DE housing is
+  // (b) a loose connector on DE-H: impulses of 3-9 V, about 40 a second, clipped at the +/-5 V
+  // rail. A larger fan (group 1, over 300 kW) whose impeller sits nearer DE and whose DE housing is
   // stiffer horizontally; DE-H's true overall is about 4.7 mm/s.
   'loose-connector': fan(
     'loose-connector',

@@ -17,7 +17,10 @@ import { connect, type MqttClient } from 'mqtt';
 
 export const PYTHON = existsSync('/usr/bin/python3') ? '/usr/bin/python3' : 'python3';
 
-/** Written for the tests from the specification's section 6.4; a different package and layout from the agent's copy on purpose. */
+/**
+ * Written for the tests from the specification's section 6.4; a different package and layout from
+ * the agent's copy on purpose.
+ */
 const HOST_PROTO = `syntax = "proto2";
 package hostcheck;
 

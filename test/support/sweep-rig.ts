@@ -58,7 +58,10 @@ function gaussian(seed: number): () => number {
   return () => Math.sqrt(-2 * Math.log(u())) * Math.cos(2 * Math.PI * u());
 }
 
-/** A speed profile: steady `holdS` at `fromRpm`, a linear ramp over `rampS` to `toRpm`, steady `holdS`. */
+/**
+ * A speed profile: steady `holdS` at `fromRpm`, a linear ramp over `rampS` to `toRpm`, steady
+ * `holdS`.
+ */
 export function rampProfile(
   fromRpm: number,
   toRpm: number,
@@ -89,7 +92,8 @@ export function recordSweep(opts: {
   const turns = new Float64Array(n);
   for (let i = 1; i < n; i++)
     turns[i] = turns[i - 1]! + ((speed((i - 1) * dt) + speed(i * dt)) / 120) * dt;
-  // Tach: 0-5 V, rising edge a ramp from 0 to 5 V over two samples centred on each whole turn, high for 20 % of a turn.
+  // Tach: 0-5 V, rising edge a ramp from 0 to 5 V over two samples centred on each whole turn, high
+  // for 20 % of a turn.
   for (let i = 0; i < n; i++) {
     const frac = turns[i]! - Math.floor(turns[i]!);
     const perSample = Math.max(1e-9, turns[i]! - (i > 0 ? turns[i - 1]! : 0));
@@ -138,7 +142,10 @@ export function recordSweep(opts: {
   return { sampleRate: fs, channels: [...out, tach] };
 }
 
-/** Steady-state 1x velocity of a mode at a speed: zero-to-peak mm/s and lag from the tach edge, degrees (own computation). */
+/**
+ * Steady-state 1x velocity of a mode at a speed: zero-to-peak mm/s and lag from the tach edge,
+ * degrees (own computation).
+ */
 export function steadyVelocity(m: Mode, rpm: number): { ampPk: number; phaseDeg: number } {
   const w = (2 * Math.PI * rpm) / 60;
   const r = w / (2 * Math.PI * m.fnHz);

@@ -56,7 +56,10 @@ export function agentConfig(
   });
 }
 
-/** Stand still, run up over 60 s to 1500 r/min, run 20 s, coast down over 60 s; then softer horizontal supports and a second run-up. */
+/**
+ * Stand still, run up over 60 s to 1500 r/min, run 20 s, coast down over 60 s; then softer
+ * horizontal supports and a second run-up.
+ */
 export function scenario(fnH: number, second?: { fnH: number }) {
   const base = testScenario({
     sample_rate_hz: FS,

@@ -13,7 +13,9 @@ export interface OrderSpec {
   readonly order: number;
   /** Zero-to-peak velocity, mm/s. */
   readonly velPk: number;
-  /** Phase lag, degrees of the order's own cycle, from the tach mark to the positive velocity peak. */
+  /**
+   * Phase lag, degrees of the order's own cycle, from the tach mark to the positive velocity peak.
+   */
   readonly phaseDeg: number;
   /** Present only from this time on, seconds (a step change). */
   readonly fromS?: number;
@@ -49,7 +51,10 @@ export interface SynthSpec {
   readonly tachHighV?: number;
   /** Rise time of the tach edge in samples (linear ramp; its 50 % point is the mark). */
   readonly tachRiseSamples?: number;
-  /** Shaft angles (rad, mod 2 pi) at which the pulse is missing entirely (e.g. a dirty mark): revolutions given by index. */
+  /**
+   * Shaft angles (rad, mod 2 pi) at which the pulse is missing entirely (e.g. a dirty mark):
+   * revolutions given by index.
+   */
   readonly dropPulsesAtRevs?: readonly number[];
   readonly seed?: number;
 }
@@ -70,7 +75,9 @@ export function gaussian(seed: number): () => number {
   };
 }
 
-/** Returns one Float32Array of volts per channel (channels, with the tach inserted at tachChannel). */
+/**
+ * Returns one Float32Array of volts per channel (channels, with the tach inserted at tachChannel).
+ */
 export function synthesize(spec: SynthSpec): Float32Array[] {
   const fs = spec.sampleRate;
   const n = Math.round(spec.seconds * fs);
@@ -134,7 +141,10 @@ export function synthesize(spec: SynthSpec): Float32Array[] {
   return out;
 }
 
-/** Splits channel arrays into source items of `block` samples, as a recording driver would yield them. */
+/**
+ * Splits channel arrays into source items of `block` samples, as a recording driver would yield
+ * them.
+ */
 export function* asBlocks(
   channels: Float32Array[],
   block = 4096,

@@ -25,8 +25,8 @@ export function unmountTmpfs(mnt: string): void {
 }
 
 /**
- * Fills the filesystem at `mnt` with a ballast file until the kernel refuses; returns the error code
- * of the refusal (ENOSPC on a full disk) and the ballast's path (remove it to free the space).
+ * Fills the filesystem at `mnt` with a ballast file until the kernel refuses; returns the error
+ * code of the refusal (ENOSPC on a full disk) and the ballast's path (remove it to free the space).
  */
 export function fillUp(mnt: string): { code: string | null; ballast: string } {
   const ballast = join(mnt, 'ballast');

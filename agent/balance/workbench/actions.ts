@@ -1,11 +1,12 @@
 /**
  * The balancing workbench's actions: one balancing job at a time on this fan, run by an operator
  * step by step (records.ts describes a job). The maths is agent/balance's (solveBalanceJob,
- * trialMove, the weight arithmetic); this module keeps the open job, captures each run from the live
- * 1x vectors, checks every request against the state of the job, and records everything (who, when,
- * what) through the balancing store, so a restart loses nothing but a capture in progress. Every
- * action is validated, logged, evented and saved, one at a time. The live server's HTTP routes and
- * the MQTT `balancing.session` command call these actions; they hold no logic of their own.
+ * trialMove, the weight arithmetic); this module keeps the open job, captures each run from the
+ * live 1x vectors, checks every request against the state of the job, and records everything (who,
+ * when, what) through the balancing store, so a restart loses nothing but a capture in progress.
+ * Every action is validated, logged, evented and saved, one at a time. The live server's HTTP
+ * routes and the MQTT `balancing.session` command call these actions; they hold no logic of their
+ * own.
  */
 import type { SweepEvidence } from '../../watcher/rules/types.js';
 import type { z } from 'zod';
@@ -64,7 +65,9 @@ export interface WorkbenchDeps {
   readonly capture: Omit<CaptureSettings, 'revolutions'> & { readonly revolutions: number };
   /** Latest live speed, r/min. */
   readonly liveSpeed: () => number | null;
-  /** Resonances of the last recorded run-up or coast-down (agent/sweep), for the warning near one. */
+  /**
+   * Resonances of the last recorded run-up or coast-down (agent/sweep), for the warning near one.
+   */
   readonly sweepEvidence?: () => SweepEvidence | null;
   /** Told whenever the open job changes (also on capture progress). */
   readonly onChange?: (view: JobView | null) => void;
@@ -182,7 +185,8 @@ export class BalancingWorkbench {
         actor,
         'job_started',
         'info',
-        `${req.kind} job, planes ${planes.map((p) => p.name).join(', ')}, sensors ${sensors.join(', ')}, ${convention}`,
+        `${req.kind} job, planes ${planes.map((p) => p.name).join(', ')}, sensors ` +
+          `${sensors.join(', ')}, ${convention}`,
         {
           kind: req.kind,
           angle_convention: convention,
@@ -205,7 +209,8 @@ export class BalancingWorkbench {
       if (req.acknowledge_cautions !== true) {
         throw badRequest(
           'the safety cautions were not acknowledged',
-          'read the cautions shown with the weight change and confirm them (acknowledge_cautions: true) before anyone touches the rotor',
+          'read the cautions shown with the weight change and confirm them ' +
+            '(acknowledge_cautions: true) before anyone touches the rotor',
         );
       }
       if (req.purpose === 'trial') {
@@ -233,7 +238,8 @@ export class BalancingWorkbench {
         const unknown = req.remove.filter((id) => !current.some((w) => w.id === id));
         if (unknown.length) {
           throw badRequest(
-            `remove: ${unknown.map((u) => `"${u}"`).join(', ')} is not on the rotor (on it now: ${current.map((w) => w.id).join(', ') || 'none'})`,
+            `remove: ${unknown.map((u) => `"${u}"`).join(', ')} is not on the ` +
+              `rotor (on it now: ${current.map((w) => w.id).join(', ') || 'none'})`,
             'name weights by the ids the job gave them',
           );
         }
@@ -245,13 +251,16 @@ export class BalancingWorkbench {
           const plane = job.setup.planes.find((p) => p.name === a.plane);
           if (!plane) {
             problems.push(
-              `add[${i}].plane: "${a.plane}" is not a plane of this job (${job.setup.planes.map((p) => p.name).join(', ')})`,
+              `add[${i}].plane: "${a.plane}" is not a plane of this ` +
+                `job (${job.setup.planes.map((p) => p.name).join(', ')})`,
             );
             return null;
           }
           if (plane.max_mass_g !== null && a.mass_g > plane.max_mass_g) {
             problems.push(
-              `add[${i}].mass_g: ${fmt(a.mass_g)} g is more than the ${fmt(plane.max_mass_g)} g plane ${plane.name} takes; split it onto two positions or fit it at a larger radius (mass x r_old / r_new)`,
+              `add[${i}].mass_g: ${fmt(a.mass_g)} g is more than the ` +
+                `${fmt(plane.max_mass_g)} g plane ${plane.name} takes; split it onto ` +
+                `two positions or fit it at a larger radius (mass x r_old / r_new)`,
             );
           }
           const role = req.purpose === 'trial' ? 'trial' : 'correction';
@@ -294,12 +303,14 @@ export class BalancingWorkbench {
         (req.purpose === 'trial' ? `trial ${nTrial}` : nCheck === 1 ? 'check' : `check ${nCheck}`);
       const run = newRun(job, req.purpose, label, weights, changes, this.nowIso(), actor, true);
       job.runs.push(run);
-      if (req.purpose === 'trial') job.solution = null; // a failed attempt is out of date once a run is added
+      // a failed attempt is out of date once a run is added
+      if (req.purpose === 'trial') job.solution = null;
       const what =
         changes
           .map(
             (c) =>
-              `${c.action} ${c.weight.id} ${fmt(c.weight.mass_g)} g at ${fmt(c.weight.angle_deg)} deg in ${c.weight.plane}`,
+              `${c.action} ${c.weight.id} ${fmt(c.weight.mass_g)} g ` +
+              `at ${fmt(c.weight.angle_deg)} deg in ${c.weight.plane}`,
           )
           .join('; ') || 'no weight change';
       await this.record(
@@ -337,7 +348,8 @@ export class BalancingWorkbench {
             'declare the check run next',
           );
         }
-        if (last.purpose !== 'check') job.solution = null; // a failed attempt is out of date once a run changes
+        // a failed attempt is out of date once a run changes
+        if (last.purpose !== 'check') job.solution = null;
         const settings: CaptureSettings = {
           ...this.deps.capture,
           revolutions: req.revolutions ?? this.deps.capture.revolutions,
@@ -352,7 +364,9 @@ export class BalancingWorkbench {
           actor,
           'capture_started',
           'info',
-          `${runName(last)}${last.capture ? ' (repeat)' : ''}: ${settings.settleRevolutions} revolutions to settle, ${settings.revolutions} averaged`,
+          `${runName(last)}${last.capture ? ' (repeat)' : ''}: ` +
+            `${settings.settleRevolutions} revolutions ` +
+            `to settle, ${settings.revolutions} averaged`,
           {
             run: last.index,
             label: last.label,
@@ -468,7 +482,8 @@ export class BalancingWorkbench {
         const trials = job.runs.filter((r) => r.purpose === 'trial' && !r.discarded).length;
         if (trials < TRIALS_NEEDED[job.setup.kind]) {
           throw conflict(
-            `a ${job.setup.kind.replace('_', '-')} job needs ${TRIALS_NEEDED[job.setup.kind]} trial run(s); ${trials} measured`,
+            `a ${job.setup.kind.replace('_', '-')} job needs ` +
+              `${TRIALS_NEEDED[job.setup.kind]} trial run(s); ${trials} measured`,
             'declare and capture the next trial run',
           );
         }
@@ -493,7 +508,8 @@ export class BalancingWorkbench {
       const result = solveBalanceJob(balanceJob);
       job.solution = { at: this.nowIso(), by: actor, job: balanceJob, result };
       const summary = result.ok
-        ? `corrections ${result.corrections.map((c) => `${c.plane} ${fmt(c.mass_g)} g at ${fmt(c.angle_deg)} deg`).join(', ')}`
+        ? `corrections ` +
+          `${result.corrections.map((c) => `${c.plane} ${fmt(c.mass_g)} g at ${fmt(c.angle_deg)} deg`).join(', ')}`
         : `no correction: ${result.problems.map((p) => p.message).join('; ')}`;
       await this.record(job, actor, 'job_solved', result.ok ? 'info' : 'warning', summary, {
         ok: result.ok,
@@ -545,7 +561,10 @@ export class BalancingWorkbench {
           actor,
           'job_finished',
           'info',
-          `finished; weights on the rotor: ${left.map((w) => `${w.id} ${fmt(w.mass_g)} g at ${fmt(w.angle_deg)} deg in ${w.plane}`).join(', ') || 'none'}; coefficients ${job.coefficients.saved ? 'kept for the watcher' : `not kept (${job.coefficients.reason})`}`,
+          `finished; weights on the rotor: ` +
+            `${left.map((w) => `${w.id} ${fmt(w.mass_g)} g at ${fmt(w.angle_deg)} deg in ${w.plane}`).join(', ') || 'none'}; ` +
+            `coefficients ` +
+            `${job.coefficients.saved ? 'kept for the watcher' : `not kept (${job.coefficients.reason})`}`,
           {
             weights_on_rotor: left,
             coefficients_saved: job.coefficients.saved,
@@ -586,7 +605,8 @@ export class BalancingWorkbench {
           actor,
           'job_abandoned',
           left.length ? 'warning' : 'info',
-          `abandoned: ${req.reason}${left.length ? `; STILL ON THE ROTOR: ${left.map((w) => `${w.id} ${fmt(w.mass_g)} g at ${fmt(w.angle_deg)} deg in ${w.plane}`).join(', ')}` : ''}`,
+          `abandoned: ` +
+            `${req.reason}${left.length ? `; STILL ON THE ROTOR: ${left.map((w) => `${w.id} ${fmt(w.mass_g)} g at ${fmt(w.angle_deg)} deg in ${w.plane}`).join(', ')}` : ''}`,
           {
             reason: req.reason,
             weights_on_rotor: left,
@@ -688,7 +708,10 @@ export class BalancingWorkbench {
 
   // ---- internals ----
 
-  /** One action on the open job: the body checked, run in turn with the others, the job's view returned. */
+  /**
+   * One action on the open job: the body checked, run in turn with the others, the job's view
+   * returned.
+   */
   private async step<T extends { by?: string }>(
     schema: z.ZodType<T>,
     raw: unknown,
@@ -784,7 +807,8 @@ export class BalancingWorkbench {
     const text = job.setup.sensors
       .map(
         (s) =>
-          `${s} ${fmt(result.readings[s]!.amp_pk_mm_s, 2)} mm/s pk at ${fmt(result.readings[s]!.phase_deg)} deg`,
+          `${s} ${fmt(result.readings[s]!.amp_pk_mm_s, 2)} mm/s ` +
+          `pk at ${fmt(result.readings[s]!.phase_deg)} deg`,
       )
       .join(', ');
     await this.record(
@@ -792,7 +816,8 @@ export class BalancingWorkbench {
       c.by,
       'run_captured',
       'info',
-      `${runName(run)} at ${fmt(result.speed_rpm, 0)} r/min over ${fmt(result.revolutions, 0)} revolutions: ${text}`,
+      `${runName(run)} at ${fmt(result.speed_rpm, 0)} r/min ` +
+        `over ${fmt(result.revolutions, 0)} revolutions: ${text}`,
       {
         run: run.index,
         label: run.label,
@@ -859,7 +884,8 @@ export class BalancingWorkbench {
     } catch (e) {
       this.deps.logger.error(
         { job_id: job.job_id, error: (e as Error).message },
-        'saving the balancing job failed; it is kept in memory and saved again with the next action',
+        'saving the balancing job failed; it is kept ' +
+          'in memory and saved again with the next action',
       );
     }
     const type = `balancing_${action}`;

@@ -1,8 +1,9 @@
 /**
  * Capturing one balancing run from the live 1x vectors: wait until the live average has forgotten
- * what came before (the weight change, the run-up), then average the live vectors over N revolutions
- * at steady speed. A speed change beyond the tolerance restarts the averaging (and is flagged); a
- * tach that stops delivering revolutions pauses it. Pure: frames in, progress and a result out.
+ * what came before (the weight change, the run-up), then average the live vectors over N
+ * revolutions at steady speed. A speed change beyond the tolerance restarts the averaging (and is
+ * flagged); a tach that stops delivering revolutions pauses it. Pure: frames in, progress and a
+ * result out.
  *
  * The live vectors are themselves averages over the last few dozen revolutions with exponential
  * forgetting (agent/dsp: LiveFrame), so consecutive frames overlap. Each frame is weighted by the
@@ -21,18 +22,27 @@ export interface CaptureSettings {
   readonly speedTolerancePct: number;
   /** Restarts after speed changes before the capture gives up. */
   readonly maxRestarts: number;
-  /** A frame whose last trusted revolution is older than this (or than three revolutions) is not used, s. */
+  /**
+   * A frame whose last trusted revolution is older than this (or than three revolutions) is not
+   * used, s.
+   */
   readonly maxAgeS: number;
-  /** Vector scatter (r.m.s. distance of the frames from their mean, % of the mean) that is flagged ... */
+  /**
+   * Vector scatter (r.m.s. distance of the frames from their mean, % of the mean) that is
+   * flagged ...
+   */
   readonly scatterWarnPct: number;
-  /** ... when it is also above this, mm/s pk (a tiny residual vector always scatters by a large share of itself). */
+  /**
+   * ... when it is also above this, mm/s pk (a tiny residual vector always scatters by a large
+   * share of itself).
+   */
   readonly scatterFloorMmS: number;
 }
 
 /**
  * The capture settings of the `live.capture` config section. `liveRevolutions` is the memory of the
- * runtime's live average (AgentRuntime liveRevolutions); without settle_revolutions the capture skips
- * five times that, for the average to forget what came before.
+ * runtime's live average (AgentRuntime liveRevolutions); without settle_revolutions the capture
+ * skips five times that, for the average to forget what came before.
  */
 export function captureSettingsFrom(
   capture: LiveConfig['capture'],
@@ -164,7 +174,8 @@ export class RunCapture {
       this.waiting =
         speed === null
           ? 'no speed yet: is the fan turning and the tach pickup seeing its mark?'
-          : `no trusted revolution for ${fmt(Math.min(frame.age_s, 9999))} s: tach lost or fan stopped`;
+          : `no trusted revolution for ${fmt(Math.min(frame.age_s, 9999))} s: ` +
+            `tach lost or fan stopped`;
       this.restartSettling(null);
       return this.progress();
     }
@@ -174,7 +185,8 @@ export class RunCapture {
     }
     this.refSpeed ??= speed;
     // Elapsed time from the sample clock when the frame says its rate: the wall-clock time on live
-    // frames is re-anchored after a board restart or a wall-clock step, and must not count revolutions.
+    // frames is re-anchored after a board restart or a wall-clock step, and must not count
+    // revolutions.
     const fs = frame.sample_rate_hz;
     const elapsedS =
       fs !== undefined && fs > 0 && prevIndex !== null
@@ -190,16 +202,21 @@ export class RunCapture {
       if (this.phase === 'measuring' && this.measured > 0) {
         this.restarts++;
         this.notes.push(
-          `speed changed from ${fmt(ref, 0)} to ${fmt(speed, 0)} r/min (${fmt(changePct)} %) during the averaging: restarted`,
+          `speed changed from ${fmt(ref, 0)} to ${fmt(speed, 0)} r/min ` +
+            `(${fmt(changePct)} %) during the averaging: restarted`,
         );
         if (this.restarts > this.settings.maxRestarts) {
           return this.fail(
-            `the speed kept changing (${this.restarts} restarts, last ${fmt(ref, 0)} -> ${fmt(speed, 0)} r/min): hold the fan at a steady speed and capture the run again`,
+            `the speed kept changing (${this.restarts} restarts, ` +
+              `last ${fmt(ref, 0)} -> ${fmt(speed, 0)} r/min): hold ` +
+              `the fan at a steady speed and capture the run again`,
           );
         }
       }
       this.restartSettling(speed);
-      this.unsteady = `speed changing (${fmt(ref, 0)} -> ${fmt(speed, 0)} r/min): waiting for it to hold within ${fmt(this.settings.speedTolerancePct)} %`;
+      this.unsteady =
+        `speed changing (${fmt(ref, 0)} -> ${fmt(speed, 0)} r/min): waiting ` +
+        `for it to hold within ${fmt(this.settings.speedTolerancePct)} %`;
       return this.progress();
     }
     this.unsteady = null;
@@ -218,7 +235,8 @@ export class RunCapture {
       const v = frame.channels.find((c) => c.id === id)?.orders['1'];
       if (!v || !Number.isFinite(v.amp_pk_mm_s) || !Number.isFinite(v.phase_deg)) {
         return this.fail(
-          `no 1x vector for ${id} in the live data: check the sensor (the live page shows whether it is OK), or leave it out of the job`,
+          `no 1x vector for ${id} in the live data: check the sensor (the ` +
+            `live page shows whether it is OK), or leave it out of the job`,
         );
       }
       re[k] = v.amp_pk_mm_s * Math.cos(v.phase_deg * D2R);
@@ -280,7 +298,8 @@ export class RunCapture {
       };
       if (scatter > this.settings.scatterWarnPct && spread > this.settings.scatterFloorMmS) {
         this.notes.push(
-          `the 1x vector at ${id} was unsteady during the run (scatter ${fmt(scatter)} % of its amplitude): load, speed or a loose sensor; consider repeating the run`,
+          `the 1x vector at ${id} was unsteady during the run (scatter ${fmt(scatter)} % ` +
+            `of its amplitude): load, speed or a loose sensor; consider repeating the run`,
         );
       }
     });

@@ -1,19 +1,21 @@
 /**
- * The balancing workbench's records: one job at a time on this fan, run by an operator step by step.
+ * The balancing workbench's records: one job at a time on this fan, run by an operator step by
+ * step.
  *
  * A job is a sequence of runs. runs[0] is the rotor as found. Each later run is DECLARED first (the
  * weights removed and fitted since the previous run, with the safety cautions acknowledged), then
- * CAPTURED (its 1x vectors averaged at steady speed). Weights are kept relative to as found, with an
- * id each (T1, T2 ... trial, C1, C2 ... correction), the radius they sit at, and the job's angle
+ * CAPTURED (its 1x vectors averaged at steady speed). Weights are kept relative to as found, with
+ * an id each (T1, T2 ... trial, C1, C2 ... correction), the radius they sit at, and the job's angle
  * convention. The solver gets each weight as its equivalent mass at the plane's radius.
  *
- *  trial jobs:  as found -> trial run(s) -> solve -> check run (corrections fitted) -> [trim -> check] -> finish
+ *  trial jobs: as found -> trial run(s) -> solve -> check run (corrections
+ *  fitted) -> [trim -> check] -> finish
  *  trim jobs:   as found -> solve from the stored influence coefficients -> check run -> finish
  *
  * The saved record is agent/balance's BalanceJobRecord: `job` and `result` are the job exactly as
- * solved for the correction (as found plus trial runs, or as found plus the stored coefficients), and
- * `workbench` holds every run (check runs included) with its capture details and the action log.
- * Everything here is pure: records in, records out.
+ * solved for the correction (as found plus trial runs, or as found plus the stored coefficients),
+ * and `workbench` holds every run (check runs included) with its capture details and the action
+ * log. Everything here is pure: records in, records out.
  */
 import { conventionText, type AngleConvention } from '../conventions.js';
 import type {
@@ -30,11 +32,15 @@ import { permissibleUnbalanceGmm } from '../weights.js';
 import type { CaptureResult } from './capture.js';
 import type { JobKind } from './requests.js';
 
-/** Who did something: the name typed on the page and the token (holder name and role) it came with. */
+/**
+ * Who did something: the name typed on the page and the token (holder name and role) it came with.
+ */
 export interface Actor {
   readonly name: string;
   readonly token: string;
-  /** The token's role on the live page (agent/live/auth.ts LiveRole), or a plant command over MQTT. */
+  /**
+   * The token's role on the live page (agent/live/auth.ts LiveRole), or a plant command over MQTT.
+   */
   readonly role: 'viewer' | 'operator' | 'command';
 }
 
@@ -168,7 +174,9 @@ export interface ProposedChange {
     readonly angle_deg: number;
     readonly radius_mm: number;
   }>;
-  /** The same weights split onto each plane's fixed positions (null when no plane has positions). */
+  /**
+   * The same weights split onto each plane's fixed positions (null when no plane has positions).
+   */
   readonly add_split: ReadonlyArray<{
     readonly plane: string;
     readonly mass_g: number;
@@ -311,7 +319,10 @@ export function trialCheckOf(
   });
 }
 
-/** The check run against as found, and through the job's coefficients as residual unbalance and trim weights. */
+/**
+ * The check run against as found, and through the job's coefficients as residual unbalance and trim
+ * weights.
+ */
 export function residualOf(job: WorkbenchJob, run: WorkbenchRun): ResidualReport {
   const sol = job.solution!;
   const asFound = job.runs[0]!.capture!;
@@ -367,7 +378,10 @@ export function residualOf(job: WorkbenchJob, run: WorkbenchRun): ResidualReport
   };
 }
 
-/** The record saved for a job: agent/balance's BalanceJobRecord plus the workbench's state; the job solved anew when it was not yet. */
+/**
+ * The record saved for a job: agent/balance's BalanceJobRecord plus the workbench's state; the job
+ * solved anew when it was not yet.
+ */
 export function recordOf(job: WorkbenchJob, savedAt: string): WorkbenchRecord {
   let solved = job.solution;
   if (!solved && job.runs[0]?.capture) {

@@ -58,7 +58,8 @@ export function jobSetupFrom(
       const c = bal?.planes?.[p];
       if (!c) {
         problems.push(
-          `planes: no radius for plane "${p}" of the stored coefficients; give planes [{name: "${p}", radius_mm: ...}] or set balance.planes.${p} in the config`,
+          `planes: no radius for plane "${p}" of the stored coefficients; give planes ` +
+            `[{name: "${p}", radius_mm: ...}] or set balance.planes.${p} in the config`,
         );
       }
       return {
@@ -73,13 +74,15 @@ export function jobSetupFrom(
       .map((p) => p.name);
     if (unknownPlanes.length) {
       problems.push(
-        `planes: ${unknownPlanes.join(', ')} not in the stored coefficients (planes ${stored.planes.join(', ')})`,
+        `planes: ${unknownPlanes.join(', ')} not in the stored ` +
+          `coefficients (planes ${stored.planes.join(', ')})`,
       );
     }
     const noCoeff = sensors.filter((id) => !stored.coefficients[id]);
     if (noCoeff.length) {
       problems.push(
-        `sensors: no stored coefficients for ${noCoeff.join(', ')} (stored: ${Object.keys(stored.coefficients).join(', ')})`,
+        `sensors: no stored coefficients for ${noCoeff.join(', ')} (stored: ` +
+          `${Object.keys(stored.coefficients).join(', ')})`,
       );
     }
   } else {
@@ -95,7 +98,9 @@ export function jobSetupFrom(
     }
     if (planesIn.length !== PLANES_NEEDED[req.kind]) {
       problems.push(
-        `planes: a ${req.kind.replace('_', '-')} job needs ${PLANES_NEEDED[req.kind]} plane(s), ${planesIn.length} given${req.planes ? '' : " (from the config's balance.planes)"}`,
+        `planes: a ${req.kind.replace('_', '-')} job needs ` +
+          `${PLANES_NEEDED[req.kind]} plane(s), ${planesIn.length} ` +
+          `given${req.planes ? '' : " (from the config's balance.planes)"}`,
       );
     }
   }
@@ -111,7 +116,8 @@ export function jobSetupFrom(
     problems.push('planes: the two planes need different names');
   if (planes.length > 0 && sensors.length < planes.length) {
     problems.push(
-      `sensors: ${planes.length} planes need at least ${planes.length} sensors, at different bearings (${sensors.length} given)`,
+      `sensors: ${planes.length} planes need at least ${planes.length} sensors, ` +
+        `at different bearings (${sensors.length} given)`,
     );
   }
   const grade = req.grade !== undefined ? parseGrade(req.grade) : (bal?.grade_mm_s ?? null);

@@ -2,7 +2,8 @@
  * The balancing calculators the live page offers beside a job (trial weight, split onto fixed
  * positions or between holes, combine, move to another radius, balance quality grade, the four-run
  * method without phase and the 1x amplitude it needs): each takes a request body,
- * checks it (ApiError 400 naming every problem) and answers with plain data in the units of its field
+ * checks it (ApiError 400 naming every problem) and answers with plain data in the units of its
+ * field
  * names. Pure: the maths is agent/balance/weights.ts.
  */
 import { z } from 'zod';
@@ -38,7 +39,10 @@ import {
   trialWeightSchema,
 } from './requests.js';
 
-/** agent/balance's parsers throw UserError with every problem; the API answers 400 with the same text. */
+/**
+ * agent/balance's parsers throw UserError with every problem; the API answers 400 with the same
+ * text.
+ */
 function parseWithBalance<T>(fn: () => T): T {
   try {
     return fn();
@@ -66,7 +70,10 @@ export function trialWeightTool(body: unknown) {
   };
 }
 
-/** A weight split onto the two fixed positions either side of its angle (moved to their radius first). */
+/**
+ * A weight split onto the two fixed positions either side of its angle (moved to their radius
+ * first).
+ */
 export function splitTool(body: unknown) {
   if (body !== null && typeof body === 'object' && 'holes' in body) return splitHolesTool(body);
   const q = parseWithBalance(() => parseSplitRequest(body, 'split request'));
@@ -103,7 +110,10 @@ export function moveRadiusTool(body: unknown) {
   };
 }
 
-/** The permissible residual unbalance of a balance quality grade, and whether a residual is within it. */
+/**
+ * The permissible residual unbalance of a balance quality grade, and whether a residual is within
+ * it.
+ */
 export function gradeTool(body: unknown) {
   const q = parseBody(gradeSchema, body, 'grade request');
   const g = parseGrade(q.grade);
@@ -141,7 +151,9 @@ function splitHolesTool(body: unknown) {
   }
 }
 
-/** Amplitude-only balancing (four-run method): correction, uncertainty, trial effect, fit residual. */
+/**
+ * Amplitude-only balancing (four-run method): correction, uncertainty, trial effect, fit residual.
+ */
 export function fourRunTool(body: unknown) {
   const q = parseWithBalance(() => parseFourRun(body, 'four-run request'));
   return { ...solveFourRun(q), cautions: balancingCautions() };

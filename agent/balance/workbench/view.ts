@@ -46,7 +46,10 @@ export interface JobView {
   }> | null;
   readonly trial_suggestion_missing: string | null;
   readonly proposals: readonly ProposedChange[];
-  /** Set when the balancing speed sits inside a resonance's half-power band on the last recorded sweep. */
+  /**
+   * Set when the balancing speed sits inside a resonance's half-power band on the last recorded
+   * sweep.
+   */
   readonly resonance_warning: string | null;
   readonly cautions: readonly string[];
 }
@@ -80,16 +83,24 @@ export function resonanceWarning(
   const where = near
     .map(
       (r) =>
-        `${Math.round(r.rpm)} r/min on ${r.sensor} (half-power band ${Math.round(r.half_power_rpm[0])}-${Math.round(r.half_power_rpm[1])})`,
+        `${Math.round(r.rpm)} r/min on ${r.sensor} (half-power band ` +
+        `${Math.round(r.half_power_rpm[0])}-${Math.round(r.half_power_rpm[1])})`,
     )
     .join('; ');
   return (
-    `The balancing speed ${Math.round(speedRpm)} r/min is inside the band of a resonance found on the last ${sweep.direction === 'up' ? 'run-up' : 'coast-down'} (sweep ${sweep.sweep_id}): ${where}. ` +
-    'Influence coefficients measured here are unreliable: the 1x swings with small speed changes. Balance at a speed away from the resonance if the process allows, and have the support checked.'
+    `The balancing speed ${Math.round(speedRpm)} r/min is inside the band of a resonance ` +
+    `found on the last ${sweep.direction === 'up' ? 'run-up' : 'coast-down'} (sweep ` +
+    `${sweep.sweep_id}): ${where}. ` +
+    'Influence coefficients measured here are unreliable: the 1x ' +
+    'swings with small speed changes. Balance at a speed away from the ' +
+    'resonance if the process allows, and have the support checked.'
   );
 }
 
-/** Speed for forces and suggestions: the job's given speed, else the as-found run's, else live, else rated, r/min. */
+/**
+ * Speed for forces and suggestions: the job's given speed, else the as-found run's, else live, else
+ * rated, r/min.
+ */
 export function speedFor(
   job: WorkbenchJob,
   ctx: Pick<ViewContext, 'liveSpeedRpm' | 'ratedRpm'>,
@@ -236,7 +247,10 @@ function proposalFrom(
   return { title, remove, add, add_split };
 }
 
-/** The weight changes to propose next: the corrections (trial weights off or left on), or the trim weights after a check run. */
+/**
+ * The weight changes to propose next: the corrections (trial weights off or left on), or the trim
+ * weights after a check run.
+ */
 export function proposals(job: WorkbenchJob): ProposedChange[] {
   if (job.status !== 'open' || !job.solution?.result.ok) return [];
   const r = job.solution.result;

@@ -19,7 +19,10 @@ export async function analyzeRecording(
   return (await measureRecording(file, cfg, opts)).analyzer.takeWindow();
 }
 
-/** The DSP's warnings, and the watcher's about the setup (a tach.pulses_per_rev that does not fit the rated speed). */
+/**
+ * The DSP's warnings, and the watcher's about the setup (a tach.pulses_per_rev that does not fit
+ * the rated speed).
+ */
 export function analysisWarnings(w: WindowResult, a: WindowAssessment): string[] {
   const hint = a.speed.pulses_per_rev_hint;
   return hint ? [hint.why, ...w.warnings] : [...w.warnings];
@@ -45,7 +48,8 @@ export function analysisJson(
     spectrum_resolution_hz: round(w.spectrum_resolution_hz, 4),
     spectrum_segments: w.spectrum_segments,
     phase_convention:
-      "lag in degrees (0-360 of the order's own cycle) from the tach rising edge to the positive peak of the velocity component",
+      "lag in degrees (0-360 of the order's own cycle) from the tach " +
+      'rising edge to the positive peak of the velocity component',
     tach: w.tach,
     zone: {
       machine: z.machine,
@@ -131,10 +135,15 @@ export function analysisTable(
     }),
   ]);
   const head =
-    `${file}: ${cfg.machine.id}, ${((w.end_index - w.start_index) / w.sample_rate_hz).toFixed(1)} s at ${w.sample_rate_hz} Hz\n` +
-    `speed ${w.speed_rpm?.toFixed(1)} r/min (${w.speed_min_rpm?.toFixed(1)}-${w.speed_max_rpm?.toFixed(1)}), ${w.revolutions} revolutions averaged` +
+    `${file}: ${cfg.machine.id}, ` +
+    `${((w.end_index - w.start_index) / w.sample_rate_hz).toFixed(1)} s ` +
+    `at ${w.sample_rate_hz} Hz\n` +
+    `speed ${w.speed_rpm?.toFixed(1)} r/min ` +
+    `(${w.speed_min_rpm?.toFixed(1)}-${w.speed_max_rpm?.toFixed(1)}), ` +
+    `${w.revolutions} revolutions averaged` +
     (w.revolutions_rejected ? `, ${w.revolutions_rejected} rejected` : '') +
-    `\noverall band ${w.band_hz.low}-${w.band_hz.high} Hz; phase = lag from the tach edge to the positive velocity peak\n\n`;
+    (`\noverall band ${w.band_hz.low}-${w.band_hz.high} Hz; ` +
+      `phase = lag from the tach edge to the positive velocity peak\n\n`);
   const peaks = w.channels
     .filter((c) => c.nonsync_peaks.length > 0)
     .map(
@@ -144,13 +153,15 @@ export function analysisTable(
           .slice(0, 3)
           .map(
             (p) =>
-              `${p.freq_hz.toFixed(1)} Hz (${p.order.toFixed(2)}x) ${fmtVel(p.amp_rms_mm_s, u)} ${u} rms`,
+              `${p.freq_hz.toFixed(1)} Hz (${p.order.toFixed(2)}x) ` +
+              `${fmtVel(p.amp_rms_mm_s, u)} ${u} rms`,
           )
           .join(', '),
     );
   const z = a.zone;
   const verdict =
-    `\n\nzone ${z.machine} (${z.limits.basis}: A/B ${fmtVel(z.limits.ab_mm_s, u)}, B/C ${fmtVel(z.limits.bc_mm_s, u)}, C/D ${fmtVel(z.limits.cd_mm_s, u)} ${u} rms)` +
+    `\n\nzone ${z.machine} (${z.limits.basis}: A/B ${fmtVel(z.limits.ab_mm_s, u)}, B/C ` +
+    `${fmtVel(z.limits.bc_mm_s, u)}, C/D ${fmtVel(z.limits.cd_mm_s, u)} ${u} rms)` +
     (z.notes.length ? `\n${z.notes.map((n) => `  - ${n}`).join('\n')}` : '') +
     `\nunbalance: ${a.unbalance.kind} (confidence ${a.unbalance.confidence})\n` +
     a.unbalance.evidence.map((e) => `  - ${e}`).join('\n') +
@@ -184,7 +195,8 @@ export const analyzeCommand: Command = {
       pcmFullScaleV,
       progress: new Progress('analyze'),
     });
-    // The stored baseline (learned at commissioning) when there is one, for the baseline-relative alarm.
+    // The stored baseline (learned at commissioning) when there is one, for the baseline-relative
+    // alarm.
     const a = assessWindow(cfg, w, {
       baseline: new FileBaselineStore(cfg.state_dir).load() ?? undefined,
     });

@@ -162,14 +162,19 @@ function num(
   if (!Number.isFinite(x) || (opts.positive && x <= 0) || (opts.integer && !Number.isInteger(x))) {
     throw new UserError(
       sub,
-      `--${flag} must be a ${opts.integer ? 'whole ' : ''}number${opts.positive ? ' above 0' : ''} (found "${v}")`,
+      `--${flag} must be a ` +
+        `${opts.integer ? 'whole ' : ''}number${opts.positive ? ' above 0' : ''} (found ` +
+        `"${v}")`,
       `give --${flag} as a plain number, e.g. --${flag} 600`,
     );
   }
   return x;
 }
 
-/** Rounds numbers for JSON output: angles to 0.01 deg (0-360), other fractions to 6 significant digits. */
+/**
+ * Rounds numbers for JSON output: angles to 0.01 deg (0-360), other fractions to 6 significant
+ * digits.
+ */
 function jsonText(value: unknown): string {
   return (
     JSON.stringify(
@@ -265,7 +270,8 @@ async function solve(argv: string[]): Promise<number> {
       notes.push({
         code: 'unit_assumed',
         message:
-          'the job gives no amp_unit: its readings are taken as mm/s pk, the unit of the stored coefficients',
+          'the job gives no amp_unit: its readings are taken ' +
+          'as mm/s pk, the unit of the stored coefficients',
         hint: 'set "amp_unit" in the job to say what the readings are',
       });
     }
@@ -323,7 +329,8 @@ async function solve(argv: string[]): Promise<number> {
   if (!result.ok) {
     if (!values.json)
       process.stderr.write(
-        `turnwise balance solve: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+        `turnwise balance solve: ${file}: no correction given:\n` +
+          `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
       );
     return EXIT_UNSOLVABLE;
   }
@@ -340,7 +347,8 @@ async function fourRun(argv: string[]): Promise<number> {
   if (!result.ok) {
     if (!values.json)
       process.stderr.write(
-        `turnwise balance four-run: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+        `turnwise balance four-run: ${file}: no correction given:\n` +
+          `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
       );
     return EXIT_UNSOLVABLE;
   }
@@ -357,7 +365,8 @@ async function multiSpeed(argv: string[]): Promise<number> {
   if (!result.ok) {
     if (!values.json)
       process.stderr.write(
-        `turnwise balance multi-speed: ${file}: no correction given:\n${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+        `turnwise balance multi-speed: ${file}: no correction given:\n` +
+          `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
       );
     return EXIT_UNSOLVABLE;
   }
@@ -450,7 +459,8 @@ async function combine(argv: string[]): Promise<number> {
   if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else {
     out(
-      `${conventionLine(req.angle_convention)}\n${req.weights.length} weight(s) act as one weight of ${fixed(w.mass_g, 2)} g at ${fixed(w.angle_deg, 1)} deg` +
+      `${conventionLine(req.angle_convention)}\n${req.weights.length} weight(s) act as one ` +
+        `weight of ${fixed(w.mass_g, 2)} g at ${fixed(w.angle_deg, 1)} deg` +
         (req.to_radius_mm !== undefined ? ` at radius ${fixed(req.to_radius_mm, 1)} mm` : '') +
         '.\n\n' +
         cautionBlock(),
@@ -489,7 +499,8 @@ async function trialWeight(argv: string[]): Promise<number> {
     throw new UserError(
       sub,
       'needs the rotor mass',
-      'give --rotor-kg KG (and --bearings N, default 2), or --bearing-kg KG for the load on the nearest bearing',
+      'give --rotor-kg KG (and --bearings N, default 2), or ' +
+        '--bearing-kg KG for the load on the nearest bearing',
     );
   }
   const bearingKg = bearingKgFlag ?? rotorKg! / bearings;
@@ -512,15 +523,20 @@ async function trialWeight(argv: string[]): Promise<number> {
     bearing_load_n: bearingKg * STANDARD_GRAVITY,
     fraction,
     force_n: force,
-    rule: 'm_t = fraction * M_b * g / (r * omega^2): trial-weight force a fraction of the rotor weight on one bearing (common practice)',
+    rule:
+      'm_t = fraction * M_b * g / (r * omega^2): trial-weight force a ' +
+      'fraction of the rotor weight on one bearing (common practice)',
   };
   if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
   else {
     out(
       `Trial weight: ${fixed(mass, 1)} g at radius ${fixed(radiusMm, 1)} mm\n` +
-        `  force at ${fixed(speedRpm, 0)} r/min: ${fixed(force, 0)} N = ${fixed(fraction * 100, 0)} % of the ${fixed(bearingKg, 1)} kg (${fixed(bearingKg * STANDARD_GRAVITY, 0)} N) on one bearing\n` +
+        `  force at ${fixed(speedRpm, 0)} r/min: ${fixed(force, 0)} N = ` +
+        `${fixed(fraction * 100, 0)} % of the ${fixed(bearingKg, 1)} kg ` +
+        `(${fixed(bearingKg * STANDARD_GRAVITY, 0)} N) on one bearing\n` +
         `  rule: ${result.rule}\n` +
-        '  After the trial run, check the 1x vector moved by at least 30 % in amplitude or 30 deg in phase (common practice).\n\n' +
+        '  After the trial run, check the 1x vector moved by at least ' +
+        '30 % in amplitude or 30 deg in phase (common practice).\n\n' +
         cautionBlock(),
     );
   }
@@ -580,7 +596,8 @@ async function checkGrade(argv: string[]): Promise<number> {
           .filter((f) => values[f] === undefined)
           .map((f) => `--${f}`)
           .join(', ')})`,
-        'axial positions from one datum, mm, e.g. --bearings-mm 0,1400 --com-mm 650 --planes-mm 450,950',
+        'axial positions from one datum, mm, e.g. ' +
+          '--bearings-mm 0,1400 --com-mm 650 --planes-mm 450,950',
       );
     }
     const pair = (flag: string, v: string): [number, number] => {
@@ -627,23 +644,29 @@ async function checkGrade(argv: string[]): Promise<number> {
     allocation,
     residual_g_mm: residual ?? null,
     within: residual === undefined ? null : residual <= uper,
-    rule: 'ISO 21940-11: U_per = 9549 * G * m / n (g mm; G mm/s, m kg, n r/min), from memory: check the current edition',
+    rule:
+      'ISO 21940-11: U_per = 9549 * G * m / n (g mm; G mm/s, ' +
+      'm kg, n r/min), from memory: check the current edition',
   };
   if (values.json) out(jsonText(result));
   else {
     out(
-      `ISO 21940-11, G${grade}: permissible residual unbalance ${fixed(uper, 0)} g mm for a ${rotorKg} kg rotor at ${speedRpm} r/min` +
+      `ISO 21940-11, G${grade}: permissible residual unbalance ` +
+        `${fixed(uper, 0)} g mm for a ${rotorKg} kg rotor at ${speedRpm} r/min` +
         '.\n' +
         (planes > 1
-          ? `  per plane: ${planeNames.map((p) => `${p} ${fixed(allocation.by_plane_g_mm[p]!, 0)} g mm`).join(', ')}` +
+          ? `  per plane: ` +
+            `${planeNames.map((p) => `${p} ${fixed(allocation.by_plane_g_mm[p]!, 0)} g mm`).join(', ')}` +
             (allocation.bearing_planes_g_mm
-              ? ` (bearing planes A ${fixed(allocation.bearing_planes_g_mm.A, 0)}, B ${fixed(allocation.bearing_planes_g_mm.B, 0)} g mm)`
+              ? ` (bearing planes A ${fixed(allocation.bearing_planes_g_mm.A, 0)}, B ` +
+                `${fixed(allocation.bearing_planes_g_mm.B, 0)} g mm)`
               : '') +
             `\n  allocation: ${allocation.basis}\n` +
             allocation.warnings.map((w) => `  Warning: ${w.message}\n    -> ${w.hint}\n`).join('')
           : '') +
         (residual !== undefined
-          ? `Residual ${fixed(residual, 0)} g mm: ${residual <= uper ? 'WITHIN' : 'NOT within'} G${grade}.\n`
+          ? `Residual ${fixed(residual, 0)} g mm: ` +
+            `${residual <= uper ? 'WITHIN' : 'NOT within'} G${grade}.\n`
           : '') +
         `  ${result.rule}\n`,
     );
@@ -680,7 +703,8 @@ async function exportJob(argv: string[]): Promise<number> {
     throw new UserError(
       'export',
       'expects exactly one job id',
-      'usage: turnwise balance export JOB_ID [--state-dir DIR | --config FILE]; `turnwise balance jobs` lists them',
+      'usage: turnwise balance export JOB_ID [--state-dir DIR ' +
+        '| --config FILE]; `turnwise balance jobs` lists them',
     );
   const cfg = values.config ? loadConfig(values.config) : null;
   const store = new FileBalanceStore(stateDirOf('export', values, cfg));

@@ -33,12 +33,15 @@ export const checkConfigCommand: Command = {
       process.stdout.write(JSON.stringify({ ok: true, file, config: cfg }, null, 2) + '\n');
     } else {
       process.stdout.write(
-        `${file}: OK\n  machine ${cfg.machine.id} (ISO 20816-3 group ${cfg.machine.group}, ${cfg.machine.support} support)\n` +
-          `  tach on channel ${cfg.tach.channel}, ${cfg.tach.pulses_per_rev} pulse(s)/rev, trigger ${cfg.tach.trigger_v} V\n` +
+        `${file}: OK\n  machine ${cfg.machine.id} (ISO 20816-3 group ` +
+          `${cfg.machine.group}, ${cfg.machine.support} support)\n` +
+          `  tach on channel ${cfg.tach.channel}, ${cfg.tach.pulses_per_rev} pulse(s)/rev, ` +
+          `trigger ${cfg.tach.trigger_v} V\n` +
           cfg.sensors
             .map(
               (s) =>
-                `  sensor ${s.id}: channel ${s.channel}, ${s.bearing} ${s.direction}, ${s.sensitivity_mv_per_g} mV/g`,
+                `  sensor ${s.id}: channel ${s.channel}, ${s.bearing} ` +
+                `${s.direction}, ${s.sensitivity_mv_per_g} mV/g`,
             )
             .join('\n') +
           '\n',

@@ -25,7 +25,10 @@ function velocity(cfg: Config, mmS: number | null | undefined): string {
 
 function trendWords(t: SeriesTrend): string {
   if (t.state === 'rising' && t.crossing_at && t.next_limit)
-    return `rising, reaches ${t.next_limit.name} about ${t.crossing_at.slice(0, 16).replace('T', ' ')} UTC`;
+    return (
+      `rising, reaches ${t.next_limit.name} about ` +
+      `${t.crossing_at.slice(0, 16).replace('T', ' ')} UTC`
+    );
   if (t.state === 'rising') return 'rising, above every limit';
   if (t.state === 'falling') return 'falling';
   if (t.state === 'no_trend') return 'no trend';
@@ -35,14 +38,18 @@ function trendWords(t: SeriesTrend): string {
 function baselineTable(cfg: Config, b: Baseline, out: string[]): void {
   const u = cfg.units;
   out.push(
-    `  baseline: ${b.source === 'config' ? 'from the config (watcher.baseline)' : `learned ${b.learned_at}, ${b.windows} windows`}${b.speed_rpm ? ` at ${b.speed_rpm.toFixed(0)} r/min` : ''}`,
+    `  baseline: ` +
+      `${b.source === 'config' ? 'from the config (watcher.baseline)' : `learned ${b.learned_at}, ${b.windows} windows`}${b.speed_rpm ? ` at ${b.speed_rpm.toFixed(0)} r/min` : ''}`,
   );
   out.push(
-    `    ${'sensor'.padEnd(8)} ${`1x ${u} rms`.padStart(12)} ${'phase deg'.padStart(10)} ${`overall ${u}`.padStart(14)}`,
+    `    ${'sensor'.padEnd(8)} ${`1x ${u} rms`.padStart(12)} ` +
+      `${'phase deg'.padStart(10)} ${`overall ${u}`.padStart(14)}`,
   );
   for (const [id, c] of Object.entries(b.channels)) {
     out.push(
-      `    ${id.padEnd(8)} ${velocity(cfg, c.one_x_rms_mm_s).padStart(12)} ${c.one_x_phase_deg.toFixed(0).padStart(10)} ${velocity(cfg, c.overall_rms_mm_s).padStart(14)}`,
+      `    ${id.padEnd(8)} ${velocity(cfg, c.one_x_rms_mm_s).padStart(12)} ` +
+        `${c.one_x_phase_deg.toFixed(0).padStart(10)} ` +
+        `${velocity(cfg, c.overall_rms_mm_s).padStart(14)}`,
     );
   }
 }
@@ -75,11 +82,13 @@ function show(cfg: Config, json: boolean): void {
   const u = cfg.units;
   const out: string[] = [`${s.asset}: condition from ${cfg.state_dir}`];
   out.push(
-    `  limits: ${s.limits.basis}: A/B ${velocity(cfg, s.limits.ab_mm_s)}, B/C ${velocity(cfg, s.limits.bc_mm_s)}, C/D ${velocity(cfg, s.limits.cd_mm_s)} ${u}`,
+    `  limits: ${s.limits.basis}: A/B ${velocity(cfg, s.limits.ab_mm_s)}, B/C ` +
+      `${velocity(cfg, s.limits.bc_mm_s)}, C/D ${velocity(cfg, s.limits.cd_mm_s)} ${u}`,
   );
   out.push(
     state
-      ? `  last reported: machine zone ${state.machine_zone ?? '-'}, unbalance ${state.unbalance ?? '-'}, tach ${state.tach ?? '-'}, speed ${state.speed ?? '-'}`
+      ? `  last reported: machine zone ${state.machine_zone ?? '-'}, unbalance ` +
+          `${state.unbalance ?? '-'}, tach ${state.tach ?? '-'}, speed ${state.speed ?? '-'}`
       : '  last reported: nothing yet (the watcher has not run on this state directory)',
   );
   if (baseline) baselineTable(cfg, baseline, out);
@@ -88,7 +97,8 @@ function show(cfg: Config, json: boolean): void {
       '  baseline: none (learn one at commissioning, or set watcher.baseline in the config)',
     );
   out.push(
-    `  history: ${history.points.length} point(s)${history.points.length ? ` from ${history.points[0]!.ts} to ${history.points[history.points.length - 1]!.ts}` : ''}`,
+    `  history: ${history.points.length} ` +
+      `point(s)${history.points.length ? ` from ${history.points[0]!.ts} to ${history.points[history.points.length - 1]!.ts}` : ''}`,
   );
   for (const w of history.warnings) out.push(`    ! ${w}`);
   out.push(`    ${'sensor'.padEnd(8)} ${'overall'.padEnd(48)} 1x`);
@@ -96,7 +106,9 @@ function show(cfg: Config, json: boolean): void {
     out.push(`    ${id.padEnd(8)} ${trendWords(t.overall).padEnd(48)} ${trendWords(t.one_x)}`);
   if (trend.soonest)
     out.push(
-      `  soonest crossing: ${trend.soonest.sensor} ${trend.soonest.series === 'overall' ? 'overall' : '1x'} reaches ${trend.soonest.limit.name} about ${trend.soonest.crossing_at}`,
+      `  soonest crossing: ${trend.soonest.sensor} ` +
+        `${trend.soonest.series === 'overall' ? 'overall' : '1x'} reaches ` +
+        `${trend.soonest.limit.name} about ${trend.soonest.crossing_at}`,
     );
   process.stdout.write(out.join('\n') + '\n');
 }
@@ -119,7 +131,8 @@ function learn(cfg: Config, file: string, json: boolean, clock: Clock): void {
     return;
   }
   const out = [
-    `${s.asset}: baseline learned from ${windows.length} window(s) of ${file}, saved under ${cfg.state_dir}`,
+    `${s.asset}: baseline learned from ${windows.length} window(s) ` +
+      `of ${file}, saved under ${cfg.state_dir}`,
   ];
   baselineTable(cfg, baseline, out);
   for (const l of left_out) out.push(`  left out: ${l}`);

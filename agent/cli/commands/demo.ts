@@ -33,7 +33,8 @@ const num = (
 import type { Command } from '../command.js';
 
 const usage =
-  'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port N] [--speed X] [--from-day D] [--seconds S] [--state-dir DIR]';
+  'turnwise demo [--broker mqtt://HOST:PORT] [--mqtt-port N] [--port ' +
+  'N] [--speed X] [--from-day D] [--seconds S] [--state-dir DIR]';
 
 const CONFIG_DIR = join(packageRoot(import.meta.url), 'config');
 
@@ -51,8 +52,10 @@ function listenOn(server: Server, port: number): Promise<number> {
 function portInUse(option: '--port' | '--mqtt-port', port: number, what: string): UserError {
   return new UserError(
     `${option} ${port}`,
-    `port ${port} on 127.0.0.1, for ${what}, is already in use, probably by another turnwise demo${option === '--mqtt-port' ? ' or an MQTT broker such as mosquitto' : ''}`,
-    `start the demo on another port, e.g. \`npm start -- ${option} ${port + 1}\` (or ${option} 0 for any free port), or stop the program using port ${port}`,
+    `port ${port} on 127.0.0.1, for ${what}, is already in use, probably by another ` +
+      `turnwise demo${option === '--mqtt-port' ? ' or an MQTT broker such as mosquitto' : ''}`,
+    `start the demo on another port, e.g. \`npm start -- ${option} ${port + 1}\` ` +
+      `(or ${option} 0 for any free port), or stop the program using port ${port}`,
   );
 }
 
@@ -212,7 +215,8 @@ export const demoCommand: Command = {
         timeScale: speed,
         onEvent: (e) =>
           process.stdout.write(
-            `  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ${e.severity.padEnd(7)} ${describeEvent(e)}\n`,
+            `  [${scenarioTime(e.ts, startMs - fromDay * 86400_000)}] ` +
+              `${e.severity.padEnd(7)} ${describeEvent(e)}\n`,
           ),
       });
       const url = await startLive();
@@ -223,12 +227,18 @@ export const demoCommand: Command = {
           `  token       ${token}   (operator role; the page asks for it)\n` +
           `  MQTT        ${brokerUrl}${values.broker ? '' : ` (embedded broker${brokerNote})`}\n` +
           `  watch with  mosquitto_sub -h ${host} -p ${port ?? 1883} -t '${prefix}/#' -v\n` +
-          `  topics      ${prefix}/${cfg.machine.id}/status, /heartbeat, /live, /event/<type>, /cmd, /cmd/reply\n` +
-          `  timeline    one scenario day every ${(86400 / speed).toFixed(0)} s: start-up, build-up from day 3, a cable fault on day 4,\n` +
-          `              a balance weight thrown on day 5 (alarm and safe-stop advisory), stop on day 6\n` +
-          `  advisory    demo condition: zone C or worse on two OK channels of one bearing for 1 s of signal (default: zone D for 3 s)\n` +
-          `  state       ${stateDir}${givenState === undefined ? '   (temporary: removed when the demo ends; --state-dir DIR keeps it)' : ''}\n` +
-          `The safe-stop advisory is an advice to people, not a protective trip. Ctrl-C stops the demo.\nEvents:\n`,
+          `  topics      ${prefix}/${cfg.machine.id}/status, ` +
+          `/heartbeat, /live, /event/<type>, /cmd, /cmd/reply\n` +
+          `  timeline    one scenario day every ${(86400 / speed).toFixed(0)} s: ` +
+          `start-up, build-up from day 3, a cable fault on day 4,\n` +
+          `              a balance weight thrown on day ` +
+          `5 (alarm and safe-stop advisory), stop on day 6\n` +
+          `  advisory    demo condition: zone C or worse on two OK channels ` +
+          `of one bearing for 1 s of signal (default: zone D for 3 s)\n` +
+          `  state       ` +
+          `${stateDir}${givenState === undefined ? '   (temporary: removed when the demo ends; --state-dir DIR keeps it)' : ''}\n` +
+          `The safe-stop advisory is an advice to people, not ` +
+          `a protective trip. Ctrl-C stops the demo.\nEvents:\n`,
       );
       const stop = () => agent.stop();
       process.once('SIGINT', stop);
@@ -248,7 +258,8 @@ export const demoCommand: Command = {
           rmSync(stateDir, { recursive: true, force: true });
         } catch (e) {
           process.stderr.write(
-            `turnwise demo: could not remove the temporary state directory ${stateDir}: ${(e as Error).message}\n`,
+            `turnwise demo: could not remove the temporary state ` +
+              `directory ${stateDir}: ${(e as Error).message}\n`,
           );
         }
       }

@@ -5,11 +5,14 @@ import { parseCommandArgs } from '../args.js';
 import type { Command } from '../command.js';
 
 const usage =
-  'turnwise events --config CFG.yaml [--since 24h|2026-12-01T06:00Z] [--until TIME] [--type T[,T...]] [--severity info|warning|alarm] [--json]';
+  'turnwise events --config CFG.yaml [--since 24h|2026-12-01T06:00Z] ' +
+  '[--until TIME] [--type T[,T...]] [--severity info|warning|alarm] [--json]';
 
 const UNIT_MS: Record<string, number> = { s: 1000, m: 60_000, h: 3_600_000, d: 86_400_000 };
 
-/** "90s", "30m", "2h", "7d" (before now) or an ISO 8601 time; UserError naming the option otherwise. */
+/**
+ * "90s", "30m", "2h", "7d" (before now) or an ISO 8601 time; UserError naming the option otherwise.
+ */
 export function parseTimeOption(name: string, raw: string, nowMs: number): number {
   const d = /^(\d+(?:\.\d+)?)\s*([smhd])$/.exec(raw.trim());
   if (d) return nowMs - Number(d[1]) * UNIT_MS[d[2]];
@@ -20,7 +23,8 @@ export function parseTimeOption(name: string, raw: string, nowMs: number): numbe
   throw new UserError(
     `turnwise events --${name}`,
     `"${raw}" is neither a duration nor a date`,
-    'write a duration before now (90s, 30m, 2h, 7d) or an ISO 8601 time (2026-12-01T06:00Z; without a zone it is local time)',
+    'write a duration before now (90s, 30m, 2h, 7d) or an ISO ' +
+      '8601 time (2026-12-01T06:00Z; without a zone it is local time)',
   );
 }
 
@@ -37,7 +41,10 @@ function summary(e: Record<string, unknown>): string {
   return parts.join(' ');
 }
 
-/** Reads the agent's own event log under state_dir (kept across reboots, bounded by event_log.max_mb). */
+/**
+ * Reads the agent's own event log under state_dir (kept across reboots, bounded by
+ * event_log.max_mb).
+ */
 export const eventsCommand: Command = {
   name: 'events',
   usage,
@@ -84,7 +91,8 @@ export const eventsCommand: Command = {
     const r = readEventLog(cfg.state_dir, { sinceMs, untilMs, types, minSeverity: sev });
     if (r.skipped > 0)
       process.stderr.write(
-        `turnwise events: ${r.skipped} line(s) in the event log were not whole events (a write cut by a power loss) and were skipped\n`,
+        `turnwise events: ${r.skipped} line(s) in the event log were not ` +
+          `whole events (a write cut by a power loss) and were skipped\n`,
       );
     if (values.json) {
       process.stdout.write(
@@ -104,7 +112,9 @@ export const eventsCommand: Command = {
     }
     if (r.files.length === 0) {
       process.stdout.write(
-        `no event log under ${cfg.state_dir} yet (the agent writes one once it has raised an event${cfg.event_log.enabled ? '' : '; event_log.enabled is false in this config'})\n`,
+        `no event log under ${cfg.state_dir} yet (the agent ` +
+          `writes one once it has raised an ` +
+          `event${cfg.event_log.enabled ? '' : '; event_log.enabled is false in this config'})\n`,
       );
       return 0;
     }

@@ -14,7 +14,8 @@ export const commands: readonly CommandEntry[] = [
   {
     name: 'balance',
     summary:
-      'balancing: solve a job, amplitude-only four-run, multi-speed, split or combine weights, trial weight, ISO 21940-11 check',
+      'balancing: solve a job, amplitude-only four-run, multi-speed, ' +
+      'split or combine weights, trial weight, ISO 21940-11 check',
     load: async () => (await import('./balance.js')).balanceCommand,
   },
   {
@@ -30,7 +31,8 @@ export const commands: readonly CommandEntry[] = [
   {
     name: 'demo',
     summary:
-      'the whole product on a laptop: simulated demo fan, MQTT broker, live page, a week in minutes',
+      'the whole product on a laptop: simulated demo ' +
+      'fan, MQTT broker, live page, a week in minutes',
     load: async () => (await import('./demo.js')).demoCommand,
   },
   {
@@ -52,7 +54,8 @@ export const commands: readonly CommandEntry[] = [
   {
     name: 'outputs-off',
     summary:
-      'drop the advisory relay and lamp (run by systemd after the agent stopped, however it stopped)',
+      'drop the advisory relay and lamp (run by systemd ' +
+      'after the agent stopped, however it stopped)',
     load: async () => (await import('./outputs-off.js')).outputsOffCommand,
   },
   {
@@ -63,31 +66,36 @@ export const commands: readonly CommandEntry[] = [
   {
     name: 'run',
     summary:
-      'the agent: acquire, measure, watch, publish over MQTT, drive the advisory, serve the live page',
+      'the agent: acquire, measure, watch, publish over ' +
+      'MQTT, drive the advisory, serve the live page',
     load: async () => (await import('./run.js')).runCommand,
   },
   {
     name: 'sim-board',
     summary:
-      'play the simulated fan as the serial acquisition board on a pseudo-terminal, in real time, until stopped',
+      'play the simulated fan as the serial acquisition board ' +
+      'on a pseudo-terminal, in real time, until stopped',
     load: async () => (await import('./sim-board.js')).simBoardCommand,
   },
   {
     name: 'simulate',
     summary:
-      "play a scenario on the simulated fan and record it as a WAV file (float32 volts, the board's channel map)",
+      'play a scenario on the simulated fan and record it as ' +
+      "a WAV file (float32 volts, the board's channel map)",
     load: async () => (await import('./simulate.js')).simulateCommand,
   },
   {
     name: 'sweep',
     summary:
-      'find run-ups and coast-downs in a recording: 1x vector against speed (Bode, polar) and resonances',
+      'find run-ups and coast-downs in a recording: 1x ' +
+      'vector against speed (Bode, polar) and resonances',
     load: async () => (await import('./sweep.js')).sweepCommand,
   },
   {
     name: 'zone',
     summary:
-      'classify one handheld velocity reading against ISO 20816-3 or ISO 14694, with the boundaries and their source',
+      'classify one handheld velocity reading against ISO ' +
+      '20816-3 or ISO 14694, with the boundaries and their source',
     load: async () => (await import('./zone.js')).zoneCommand,
   },
 ];

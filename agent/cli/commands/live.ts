@@ -58,7 +58,8 @@ function makeToken(argv: string[]): number {
     `Wrote a new token to ${file} (mode 600).\n` +
       'Use it in the config, with the role of its holder (viewer or operator):\n\n' +
       `live:\n  tokens:\n    - { name: HOLDER, role: operator, file: ${file} }\n\n` +
-      "The agent must run as the file's owner. Give the token to its holder from the file; it is never logged.\n",
+      "The agent must run as the file's owner. Give the token " +
+      'to its holder from the file; it is never logged.\n',
   );
   return 0;
 }
@@ -95,9 +96,11 @@ function check(argv: string[]): number {
   if (values.json) process.stdout.write(JSON.stringify(summary, null, 2) + '\n');
   else {
     process.stdout.write(
-      `${values.config}: live page OK\n  listens on ${summary.url}${live.tls ? '' : ' (no TLS: tokens cross the network in clear unless bound to 127.0.0.1)'}\n` +
+      `${values.config}: live page OK\n  listens on ` +
+        `${summary.url}${live.tls ? '' : ' (no TLS: tokens cross the network in clear unless bound to 127.0.0.1)'}\n` +
         tokens.map((t) => `  token "${t.name}": ${t.role}`).join('\n') +
-        `\n  up to ${live.update_hz} updates per second; runs averaged over ${live.capture.revolutions} revolutions\n`,
+        (`\n  up to ${live.update_hz} updates per second; runs ` +
+          `averaged over ${live.capture.revolutions} revolutions\n`),
     );
   }
   return 0;

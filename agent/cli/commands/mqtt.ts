@@ -12,8 +12,10 @@ import type { Command } from '../command.js';
 
 const usage = [
   'turnwise mqtt topics --config CFG [--json]      topic layout for this config',
-  '       turnwise mqtt outbox --config CFG [--json]      events waiting in the outbox, and quarantined files',
-  '       turnwise mqtt schemas --out DIR [--check]       write (or check) the JSON Schema of every MQTT payload',
+  '       turnwise mqtt outbox --config CFG [--json]      ' +
+    'events waiting in the outbox, and quarantined files',
+  '       turnwise mqtt schemas --out DIR [--check]       ' +
+    'write (or check) the JSON Schema of every MQTT payload',
 ].join('\n');
 
 function schemasAction(out: string | undefined, check: boolean): number {
@@ -28,7 +30,8 @@ function schemasAction(out: string | undefined, check: boolean): number {
       .map(([n]) => n);
     if (stale.length) {
       process.stderr.write(
-        `${out}: out of date: ${stale.join(', ')}\n  -> run \`turnwise mqtt schemas --out ${out}\` and commit the result\n`,
+        `${out}: out of date: ${stale.join(', ')}\n` +
+          `  -> run \`turnwise mqtt schemas --out ${out}\` and commit the result\n`,
       );
       return 1;
     }

@@ -19,8 +19,8 @@ const stderrLogger: Logger = {
 
 /**
  * Drops the safe-stop advisory's relay and lamp. systemd runs it after every stop of the service
- * (ExecStopPost): after an orderly stop it finds them dropped already; after kill -9, a crash or the
- * watchdog's abort it drops what the dead agent left energised.
+ * (ExecStopPost): after an orderly stop it finds them dropped already; after kill -9, a crash or
+ * the watchdog's abort it drops what the dead agent left energised.
  */
 export const outputsOffCommand: Command = {
   name: 'outputs-off',
@@ -36,7 +36,8 @@ export const outputsOffCommand: Command = {
         values.config ? `unexpected argument "${positionals[0]}"` : 'missing --config',
         `usage: ${usage}`,
       );
-    // The lines of the config the agent ran on: the given one, or the last good copy it fell back to.
+    // The lines of the config the agent ran on: the given one, or the last good copy it fell back
+    // to.
     const { config, from } = loadGuardedConfig(
       values.config,
       values['last-good'] ?? defaultLastGoodPath(),

@@ -72,7 +72,8 @@ export const probeSerialCommand: Command = {
         ...(l.detailed.length
           ? l.detailed.map(
               (p) =>
-                `  ${p.path}  ${[p.manufacturer, p.vendorId && `${p.vendorId}:${p.productId}`, p.serialNumber && `serial ${p.serialNumber}`].filter(Boolean).join(', ')}`,
+                `  ${p.path}  ` +
+                `${[p.manufacturer, p.vendorId && `${p.vendorId}:${p.productId}`, p.serialNumber && `serial ${p.serialNumber}`].filter(Boolean).join(', ')}`,
             )
           : ['  none found']),
       );
@@ -101,16 +102,21 @@ export const probeSerialCommand: Command = {
         const what = `${f.frames} frame(s) from sequence ${f.first_sequence}`;
         if (acq.channels !== f.channels)
           mismatch.push(
-            `${what}: the board sends ${f.channels} channel(s), acquisition.channels is ${acq.channels}`,
+            `${what}: the board sends ${f.channels} channel(s), ` +
+              `acquisition.channels is ${acq.channels}`,
           );
         const ppm = ((f.sample_rate_hz - acq.sample_rate_hz) / acq.sample_rate_hz) * 1e6;
         if (Math.abs(ppm) > tolPpm)
           mismatch.push(
-            `${what}: the board samples at ${f.sample_rate_hz} Hz, ${ppm.toFixed(0)} ppm from acquisition.sample_rate_hz ${acq.sample_rate_hz}, beyond sample_rate_tolerance_ppm ${tolPpm}`,
+            `${what}: the board samples at ${f.sample_rate_hz} Hz, ` +
+              `${ppm.toFixed(0)} ppm from acquisition.sample_rate_hz ` +
+              `${acq.sample_rate_hz}, beyond sample_rate_tolerance_ppm ${tolPpm}`,
           );
         if (acq.board_tach_edges !== f.tach_timed)
           mismatch.push(
-            `${what}: tach ${f.tach_timed ? 'timed by the board' : 'not timed by the board'} but acquisition.board_tach_edges is ${acq.board_tach_edges}`,
+            `${what}: tach ` +
+              `${f.tach_timed ? 'timed by the board' : 'not timed by the board'} but ` +
+              `acquisition.board_tach_edges is ${acq.board_tach_edges}`,
           );
       }
     }
@@ -124,9 +130,12 @@ export const probeSerialCommand: Command = {
     }
     const f = r.format;
     const describe = (x: (typeof r.formats_seen)[number]) =>
-      `v${x.protocol_version}, ${x.channels} channel(s), ${x.sample_format}, ${x.samples_per_frame} samples/frame, ${x.sample_rate_hz} Hz, tach ${x.tach_timed ? 'timed by the board' : 'not timed (edges found on a channel)'}` +
+      `v${x.protocol_version}, ${x.channels} channel(s), ` +
+      `${x.sample_format}, ${x.samples_per_frame} samples/frame, ${x.sample_rate_hz} Hz, ` +
+      `tach ${x.tach_timed ? 'timed by the board' : 'not timed (edges found on a channel)'}` +
       (x.sample_delay_ticks !== null
-        ? `, ADC delay ${x.sample_delay_ticks} ticks, tach delay ${x.tach_delay_ticks} ticks, skew up to ${x.max_skew_ticks} ticks`
+        ? `, ADC delay ${x.sample_delay_ticks} ticks, tach delay ` +
+          `${x.tach_delay_ticks} ticks, skew up to ${x.max_skew_ticks} ticks`
         : x.protocol_version === 1
           ? ', no timing declared (version 1)'
           : '') +
@@ -142,7 +151,8 @@ export const probeSerialCommand: Command = {
       [
         'sample rate',
         f
-          ? `${f.sample_rate_hz} Hz declared${r.measured_rate_hz !== null ? `, ${r.measured_rate_hz.toFixed(0)} Hz measured by the wall clock` : ''}`
+          ? `${f.sample_rate_hz} Hz ` +
+            `declared${r.measured_rate_hz !== null ? `, ${r.measured_rate_hz.toFixed(0)} Hz measured by the wall clock` : ''}`
           : '-',
       ],
       ['frames ok', String(c.frames_ok)],
@@ -177,7 +187,8 @@ export const probeSerialCommand: Command = {
       out.push(
         c.bytes_received === 0
           ? 'nothing received: is the board powered and streaming? is this the right device?'
-          : 'bytes arrived but no valid frame: check the baud rate and that the firmware speaks drivers/serial/PROTOCOL.md',
+          : 'bytes arrived but no valid frame: check the baud rate ' +
+              'and that the firmware speaks drivers/serial/PROTOCOL.md',
       );
     process.stdout.write(out.join('\n') + '\n');
     return ok ? 0 : 1;

@@ -114,7 +114,8 @@ async function runAgent(
       keepLastGood(file, plan.lastGood, (e) =>
         log.warn(
           { last_good: plan.lastGood },
-          `cannot keep a copy of the config as the last good one (${e.message}); a broken config later would find no fallback`,
+          `cannot keep a copy of the config as the last good one ` +
+            `(${e.message}); a broken config later would find no fallback`,
         ),
       );
     };
@@ -141,7 +142,9 @@ async function runAgent(
         asset: cfg.machine.id,
         type: 'config_rejected',
         severity: 'alarm',
-        message: `the config ${file} was rejected; monitoring continues on the last good config (${guarded.from})`,
+        message:
+          `the config ${file} was rejected; monitoring ` +
+          `continues on the last good config (${guarded.from})`,
         error: guarded.rejected.message,
       });
     }

@@ -21,16 +21,19 @@ import {
 import { FanSimulator } from '../../../drivers/sim/simulator.js';
 
 const usage =
-  'turnwise sim-board --scenario S.yaml --config CFG.yaml [--link PATH | --device PATH [--baud N]] [--seconds N] [--from-day D] [--time-scale K] [--seed N] ' +
+  'turnwise sim-board --scenario S.yaml --config CFG.yaml [--link PATH | --device ' +
+  'PATH [--baud N]] [--seconds N] [--from-day D] [--time-scale K] [--seed N] ' +
   '[--channels N] [--format int24|int16|float32] [--frame-samples N] [--tach-edges] ' +
-  '[--garbage-every N [--garbage-bytes B]] [--corrupt-every N] [--link-drop-at S [--link-down-s D]] [--json]';
+  '[--garbage-every N [--garbage-bytes B]] [--corrupt-every ' +
+  'N] [--link-drop-at S [--link-down-s D]] [--json]';
 
 const DEFAULT_LINK = join(tmpdir(), 'turnwise-sim-board');
 const FORMATS: readonly SampleFormat[] = ['int24', 'int16', 'float32'];
 
 /**
- * The simulated fan playing the acquisition board over a serial link: frames of the serial protocol,
- * in real time, into a pseudo-terminal (or a serial device) that the agent opens as `driver: serial`.
+ * The simulated fan playing the acquisition board over a serial link: frames of the serial
+ * protocol, in real time, into a pseudo-terminal (or a serial device) that the agent opens as
+ * `driver: serial`.
  */
 export const simBoardCommand: Command = {
   name: 'sim-board',
@@ -106,7 +109,8 @@ export const simBoardCommand: Command = {
       throw fail('--link-down-s goes with --link-drop-at (when the link drops)');
     if (linkDropAt !== undefined && values.device)
       throw fail(
-        '--link-drop-at needs the pseudo-terminal (--link): a serial device given with --device cannot be removed and made again',
+        '--link-drop-at needs the pseudo-terminal (--link): a serial ' +
+          'device given with --device cannot be removed and made again',
       );
     const format = (values.format ?? 'int24') as SampleFormat;
     if (!FORMATS.includes(format))
@@ -145,21 +149,25 @@ export const simBoardCommand: Command = {
     if (channels <= lastNeeded) {
       throw new UserError(
         channelsFrom,
-        `the board would send ${channels} channel(s), but the config uses channel ${lastNeeded}${tachEdges ? '' : ' (sensors and tach)'}`,
-        `send at least ${lastNeeded + 1} channels${tachEdges ? '' : ', or let the board time the tach (--tach-edges)'}`,
+        `the board would send ${channels} channel(s), but the config uses ` +
+          `channel ${lastNeeded}${tachEdges ? '' : ' (sensors and tach)'}`,
+        `send at least ${lastNeeded + 1} ` +
+          `channels${tachEdges ? '' : ', or let the board time the tach (--tach-edges)'}`,
       );
     }
     if (acq && channels !== acq.channels) {
       throw new UserError(
         'turnwise sim-board --channels',
-        `is ${channels} but ${values.config} tells the agent to expect ${acq.channels} (acquisition.channels); the agent would reject every frame`,
+        `is ${channels} but ${values.config} tells the agent to expect ` +
+          `${acq.channels} (acquisition.channels); the agent would reject every frame`,
         'leave --channels out, or change acquisition.channels',
       );
     }
     if (acq && acq.sample_rate_hz !== plan.sampleRate) {
       throw new UserError(
         `${values.config}: acquisition.sample_rate_hz`,
-        `is ${acq.sample_rate_hz} Hz but the scenario samples at ${plan.sampleRate} Hz (${values.scenario}: sample_rate_hz); the agent would reject every frame`,
+        `is ${acq.sample_rate_hz} Hz but the scenario samples at ${plan.sampleRate} Hz ` +
+          `(${values.scenario}: sample_rate_hz); the agent would reject every frame`,
         'make the two equal',
       );
     }
@@ -229,20 +237,29 @@ export const simBoardCommand: Command = {
       );
       const unused = channels - plan.channelCount;
       const agentSide = (device: string) =>
-        `acquisition: {driver: serial, device: ${device}, sample_rate_hz: ${plan.sampleRate}, channels: ${channels}${tachEdges ? ', board_tach_edges: true' : ''}}`;
+        `acquisition: {driver: serial, device: ` +
+        `${device}, sample_rate_hz: ${plan.sampleRate}, channels: ` +
+        `${channels}${tachEdges ? ', board_tach_edges: true' : ''}}`;
       process.stderr.write(
-        `simulated board streaming on ${where}: ${channels} channel(s) x ${plan.sampleRate} Hz, ${format}, ${frameSamples} samples per frame, ` +
-          `tach ${tachEdges ? 'edges timed by the board' : `on channel ${plan.tach.channel}`}; scenario "${plan.name}" from ${formatAt(startAt)}\n` +
+        `simulated board streaming on ${where}: ${channels} channel(s) x ` +
+          `${plan.sampleRate} Hz, ${format}, ${frameSamples} samples per frame, ` +
+          `tach ` +
+          `${tachEdges ? 'edges timed by the board' : `on channel ${plan.tach.channel}`}; ` +
+          `scenario "${plan.name}" from ${formatAt(startAt)}\n` +
           `  channels: ${used.map((c) => `${c.channel}=${c.id}`).join(' ')}` +
           (unused > 0
-            ? ` (${unused === 1 ? `channel ${plan.channelCount}` : `channels ${plan.channelCount}-${channels - 1}`} unused, 0 V)`
+            ? ` ` +
+              `(${unused === 1 ? `channel ${plan.channelCount}` : `channels ${plan.channelCount}-${channels - 1}`} ` +
+              `unused, 0 V)`
             : '') +
           '\n' +
           (target.kind === 'pty'
             ? `  point the agent at it with:\n    ${agentSide(where)}\n`
-            : `  the agent reads the other end of this serial line:\n    ${agentSide('<that device>')}\n`) +
+            : `  the agent reads the other end of this serial ` +
+              `line:\n    ${agentSide('<that device>')}\n`) +
           (speedStart < 1
-            ? `  the fan stands still at ${formatAt(startAt)}: --from-day D starts the scenario where it runs\n`
+            ? `  the fan stands still at ${formatAt(startAt)}: ` +
+              `--from-day D starts the scenario where it runs\n`
             : '') +
           (faults.active || drop
             ? `  faults injected: ${faultWords(garbageEvery, garbageBytes, corruptEvery, drop)}\n`
@@ -267,13 +284,15 @@ export const simBoardCommand: Command = {
             const atS = (frames * frameSamples) / plan.sampleRate;
             frames++;
             if (drop && linkDrops === 0 && atS >= drop.atS) {
-              // the link goes away: socat stops and removes it, the agent sees its device vanish; the board samples on
+              // the link goes away: socat stops and removes it, the agent sees its device vanish;
+              // the board samples on
               await link!.stop();
               link = undefined;
               linkDrops++;
               downUntilS = atS + drop.downS;
               note(
-                `link dropped at ${atS.toFixed(2)} s of signal: ${where} removed, made again in ${drop.downS} s`,
+                `link dropped at ${atS.toFixed(2)} s of signal: ` +
+                  `${where} removed, made again in ${drop.downS} s`,
               );
             }
             if (downUntilS !== null && atS >= downUntilS) {
@@ -288,7 +307,8 @@ export const simBoardCommand: Command = {
             progress.update(
               frames,
               seconds !== undefined ? maxFrames : 0,
-              `${elapsed.toFixed(1)} s, ${dropped} frame(s) dropped, speed ${sim.speedRpm.toFixed(1)} r/min`,
+              `${elapsed.toFixed(1)} s, ${dropped} frame(s) ` +
+                `dropped, speed ${sim.speedRpm.toFixed(1)} r/min`,
             );
           },
         },
@@ -335,13 +355,20 @@ export const simBoardCommand: Command = {
       if (values.json) process.stdout.write(JSON.stringify(summary, null, 2) + '\n');
       else {
         process.stdout.write(
-          `streamed ${summary.signal_s} s of signal in ${summary.elapsed_s} s: ${summary.frames_sent} frame(s) sent, ${summary.frames_dropped} dropped (nobody reading, or the reader fell behind)\n` +
+          `streamed ${summary.signal_s} s of signal in ${summary.elapsed_s} s: ` +
+            `${summary.frames_sent} frame(s) sent, ${summary.frames_dropped} dropped ` +
+            `(nobody reading, or the reader fell behind)\n` +
             (faults.active || drop
-              ? `faults injected: ${summary.garbage_bursts} garbage burst(s) (${summary.garbage_bytes} bytes), ${summary.frames_corrupted} frame(s) with a bad CRC, ` +
-                `${summary.link_drops} link drop(s) (${summary.frames_unsent_link_down} frame(s) not sent while down)\n`
+              ? `faults injected: ${summary.garbage_bursts} garbage ` +
+                `burst(s) (${summary.garbage_bytes} bytes), ` +
+                `${summary.frames_corrupted} frame(s) with a bad CRC, ` +
+                `${summary.link_drops} link drop(s) ` +
+                `(${summary.frames_unsent_link_down} frame(s) not sent while down)\n`
               : '') +
-            `scenario time ${summary.start_at} to ${summary.end_at}; speed ${summary.speed_end_rpm} r/min at the end; ${events.length} timeline event(s)\n` +
-            `model 1x at the end (phase = lag from the tach edge to the positive velocity peak):\n\n` +
+            (`scenario time ${summary.start_at} to ${summary.end_at}; speed ` +
+              `${summary.speed_end_rpm} r/min at the end; ${events.length} timeline event(s)\n`) +
+            `model 1x at the end (phase = lag from the ` +
+            `tach edge to the positive velocity peak):\n\n` +
             table(
               ['id', `1x ${cfg.units} rms`, '1x phase deg'],
               summary.model_1x_end.map((m) => [
@@ -372,11 +399,13 @@ function faultWords(
   const parts: string[] = [];
   if (garbageEvery !== undefined)
     parts.push(
-      `${garbageBytes ?? DEFAULT_GARBAGE_BYTES} garbage bytes after every ${garbageEvery === 1 ? 'frame' : `${garbageEvery} frames`}`,
+      `${garbageBytes ?? DEFAULT_GARBAGE_BYTES} garbage bytes after ` +
+        `every ${garbageEvery === 1 ? 'frame' : `${garbageEvery} frames`}`,
     );
   if (corruptEvery !== undefined)
     parts.push(
-      `one bit flipped (bad CRC) in ${corruptEvery === 1 ? 'every frame' : `one frame in ${corruptEvery}`}`,
+      `one bit flipped (bad CRC) in ` +
+        `${corruptEvery === 1 ? 'every frame' : `one frame in ${corruptEvery}`}`,
     );
   if (drop)
     parts.push(`the link removed at ${drop.atS} s of signal and made again ${drop.downS} s later`);

@@ -16,7 +16,8 @@ import type { AppliedEvent } from '../../../drivers/sim/state.js';
 import { maxWavFrames, WavWriter } from '../../../drivers/wav/writer.js';
 
 const usage =
-  'turnwise simulate --scenario S.yaml --config CFG.yaml --out REC.wav --seconds N [--from-day D] [--time-scale K] [--seed N] [--json]';
+  'turnwise simulate --scenario S.yaml --config CFG.yaml --out REC.wav ' +
+  '--seconds N [--from-day D] [--time-scale K] [--seed N] [--json]';
 
 /** Samples per channel rendered and written at a time. */
 const BLOCK = 8192;
@@ -64,8 +65,10 @@ export const simulateCommand: Command = {
     if (frames > maxWavFrames(plan.channelCount)) {
       throw new UserError(
         'turnwise simulate --seconds',
-        `${seconds} s of ${plan.channelCount} channels at ${plan.sampleRate} Hz would pass the 4 GiB limit of a WAV file`,
-        `record at most ${Math.floor(maxWavFrames(plan.channelCount) / plan.sampleRate)} s per file`,
+        `${seconds} s of ${plan.channelCount} channels at ` +
+          `${plan.sampleRate} Hz would pass the 4 GiB limit of a WAV file`,
+        `record at most ` +
+          `${Math.floor(maxWavFrames(plan.channelCount) / plan.sampleRate)} s per file`,
       );
     }
 
@@ -87,7 +90,9 @@ export const simulateCommand: Command = {
     const writer = await WavWriter.create(values.out!, {
       sampleRate: plan.sampleRate,
       channelCount: plan.channelCount,
-      comment: `turnwise simulate: ${plan.name}; from ${formatAt(startS)}; channels: ${channels.map((c) => `${c.channel}=${c.id}`).join(' ')}; volts`,
+      comment:
+        `turnwise simulate: ${plan.name}; from ${formatAt(startS)}; channels: ` +
+        `${channels.map((c) => `${c.channel}=${c.id}`).join(' ')}; volts`,
     });
 
     const buffers = Array.from({ length: plan.channelCount }, () => new Float32Array(BLOCK));
@@ -174,11 +179,14 @@ function humanSummary(s: Summary, units: DisplayUnits): string {
     ];
   });
   return (
-    `wrote ${s.file}: ${s.duration_s.toFixed(1)} s, ${s.channels} channels x ${s.sample_rate_hz} Hz, float32 volts, ${(s.bytes / 1e6).toFixed(1)} MB\n` +
-    `scenario time ${s.start_at} to ${s.end_at}; speed ${s.speed_start_rpm?.toFixed(1)} r/min at start, ${s.speed_end_rpm?.toFixed(1)} r/min at end\n` +
+    `wrote ${s.file}: ${s.duration_s.toFixed(1)} s, ${s.channels} channels x ` +
+    `${s.sample_rate_hz} Hz, float32 volts, ${(s.bytes / 1e6).toFixed(1)} MB\n` +
+    `scenario time ${s.start_at} to ${s.end_at}; speed ${s.speed_start_rpm?.toFixed(1)} ` +
+    `r/min at start, ${s.speed_end_rpm?.toFixed(1)} r/min at end\n` +
     `model 1x at the end (phase = lag from the tach edge to the positive velocity peak):\n\n` +
     table(['channel', 'id', 'what', `1x ${units} rms`, '1x phase deg'], rows) +
     `\n\n${s.events.length} timeline event(s) during the recording\n` +
-    `simulated ${s.duration_s.toFixed(1)} s in ${s.elapsed_s?.toFixed(2)} s (${s.realtime_factor}x real time)\n`
+    (`simulated ${s.duration_s.toFixed(1)} s in ` +
+      `${s.elapsed_s?.toFixed(2)} s (${s.realtime_factor}x real time)\n`)
   );
 }

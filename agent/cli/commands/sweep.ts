@@ -36,11 +36,14 @@ export function sweepJson(file: string, sweeps: readonly Sweep[]): Record<string
   return {
     file,
     phase_convention:
-      'lag in degrees (0-360) from the tach rising edge to the positive peak of the 1x velocity component, as measured (mounting_angle_deg not subtracted)',
+      'lag in degrees (0-360) from the tach rising edge to the positive peak of ' +
+      'the 1x velocity component, as measured (mounting_angle_deg not subtracted)',
     amplification_factor_method:
-      'half-power on the measured 1x amplitude curve: AF = N_peak / (N2 - N1) at 0.707 of the peak (API 684 practice, from memory)',
+      'half-power on the measured 1x amplitude curve: AF = N_peak / (N2 - N1) ' +
+      'at 0.707 of the peak (API 684 practice, from memory)',
     separation_margin_basis:
-      'separation_margin_pct = 100 x |rated - N_peak| / rated; required_margin_pct per API 684 for that AF (from memory)',
+      'separation_margin_pct = 100 x |rated - N_peak| / rated; ' +
+      'required_margin_pct per API 684 for that AF (from memory)',
     sweeps: sweeps.map(sweepRecordJson),
   };
 }
@@ -48,9 +51,18 @@ export function sweepJson(file: string, sweeps: readonly Sweep[]): Record<string
 export function sweepTable(file: string, sweeps: readonly Sweep[], cfg: Config): string {
   const u = cfg.units;
   if (sweeps.length === 0)
-    return `${file}: no run-up or coast-down found (the speed never moved through ${Math.round(cfg.sweep.min_change_share * 100)} % of ${cfg.machine.rated_rpm ? 'rated speed' : 'the highest speed seen'}; sweep.min_change_share)\n`;
+    return (
+      `${file}: no run-up or coast-down found (the speed never moved ` +
+      `through ${Math.round(cfg.sweep.min_change_share * 100)} % of ` +
+      `${cfg.machine.rated_rpm ? 'rated speed' : 'the highest speed seen'}; ` +
+      `sweep.min_change_share)\n`
+    );
   const parts = sweeps.map((s, i) => {
-    const head = `sweep ${i + 1}: ${s.direction === 'up' ? 'run-up' : 'coast-down'} ${s.from_rpm.toFixed(0)} -> ${s.to_rpm.toFixed(0)} r/min, ${s.duration_s.toFixed(1)} s from ${s.start_s.toFixed(1)} s (${s.rate_rpm_per_s.toFixed(1)} r/min per s), ${s.points} points`;
+    const head =
+      `sweep ${i + 1}: ${s.direction === 'up' ? 'run-up' : 'coast-down'} ` +
+      `${s.from_rpm.toFixed(0)} -> ${s.to_rpm.toFixed(0)} r/min, ` +
+      `${s.duration_s.toFixed(1)} s from ${s.start_s.toFixed(1)} s ` +
+      `(${s.rate_rpm_per_s.toFixed(1)} r/min per s), ${s.points} points`;
     const rows = s.channels.flatMap((c) =>
       c.resonances.length === 0
         ? [[c.id, 'none', '-', '-', '-', '-', '-', '-']]
@@ -86,7 +98,9 @@ export function sweepTable(file: string, sweeps: readonly Sweep[], cfg: Config):
     return `${head}\n${t}${w}`;
   });
   return (
-    `${file}: ${cfg.machine.id}\nphase = lag from the tach edge to the positive 1x velocity peak; AF by the half-power method (API 684 practice, from memory); margin from rated speed\n\n` +
+    `${file}: ${cfg.machine.id}\nphase = lag from the tach edge to ` +
+    `the positive 1x velocity peak; AF by the half-power method ` +
+    `(API 684 practice, from memory); margin from rated speed\n\n` +
     parts.join('\n\n') +
     '\n'
   );

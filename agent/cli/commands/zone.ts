@@ -22,7 +22,9 @@ const usage = `turnwise zone --mm-s V (--group 1|2 | --fan-category BV-3|BV-4) -
 const ISO_20816_MEANING: Readonly<Record<Zone, string>> = {
   A: 'typical of newly commissioned machines',
   B: 'acceptable for unrestricted long-term operation',
-  C: 'not acceptable for long-term continuous operation: run for a limited period until remedial action',
+  C:
+    'not acceptable for long-term continuous operation: ' +
+    'run for a limited period until remedial action',
   D: 'severe enough to damage the machine',
 };
 
@@ -70,13 +72,16 @@ export function classifyReading(valueMmS: number, limits: Limits): ZoneClassific
       { name: names[2]!, value_mm_s: limits.cd_mm_s, source: src },
     ],
     notes: [
-      'the reading must be broadband velocity r.m.s. on the bearing housing (not a 1x peak, not displacement); a value on a boundary belongs to the zone below it',
+      'the reading must be broadband velocity r.m.s. on the bearing housing (not a ' +
+        '1x peak, not displacement); a value on a boundary belongs to the zone below it',
       ...(iso14694
         ? []
         : [
-            'ISO 20816-3 also calls a change of 25 % of the B/C value significant even inside a zone',
+            'ISO 20816-3 also calls a change of 25 % of ' +
+              'the B/C value significant even inside a zone',
           ]),
-      "a zone is guidance for people: the plant's own alarm and trip settings, the fan maker's limits and local codes take precedence",
+      "a zone is guidance for people: the plant's own alarm and trip " +
+        "settings, the fan maker's limits and local codes take precedence",
     ],
   };
 }
@@ -117,7 +122,8 @@ export const zoneCommand: Command = {
       throw new UserError(
         'turnwise zone --support',
         support === undefined ? 'is required' : `expected rigid or flexible, got "${support}"`,
-        'rigid when the lowest natural frequency of machine and support is at least 25 % above running speed, otherwise flexible; if unsure, check both',
+        'rigid when the lowest natural frequency of machine and support is at ' +
+          'least 25 % above running speed, otherwise flexible; if unsure, check both',
       );
     }
     const cat = values['fan-category'];
@@ -134,7 +140,8 @@ export const zoneCommand: Command = {
         throw new UserError(
           '--fan-category',
           `expected one of ${Object.keys(ISO_14694).join(', ')}, got "${cat}"`,
-          'ISO 14694 fan application categories (from memory): BV-3 for industrial process and power-generation fans, BV-4 for the most demanding duty',
+          'ISO 14694 fan application categories (from memory): BV-3 for industrial ' +
+            'process and power-generation fans, BV-4 for the most demanding duty',
         );
       limits = iso14694Limits(key as keyof typeof ISO_14694, support);
     } else {
@@ -144,7 +151,8 @@ export const zoneCommand: Command = {
           values.group === undefined
             ? 'is required (or --fan-category)'
             : `expected 1 or 2, got "${values.group}"`,
-          'ISO 20816-3 group 1: machines over 300 kW; group 2: 15 to 300 kW; for a fan rated by ISO 14694 give --fan-category BV-3|BV-4 instead',
+          'ISO 20816-3 group 1: machines over 300 kW; group 2: 15 to 300 kW; ' +
+            'for a fan rated by ISO 14694 give --fan-category BV-3|BV-4 instead',
         );
       }
       limits = iso20816Limits(Number(values.group) as 1 | 2, support);
@@ -157,7 +165,8 @@ export const zoneCommand: Command = {
     const lines = [`${v.toFixed(2)} mm/s r.m.s. is in zone ${r.zone} of ${r.basis}: ${r.meaning}.`];
     for (const b of r.boundaries)
       lines.push(
-        `  ${b.name.padEnd(16)} ${b.value_mm_s.toFixed(1).padStart(5)} mm/s r.m.s.  ${v <= b.value_mm_s ? 'not passed' : 'passed'}   source: ${b.source}`,
+        `  ${b.name.padEnd(16)} ${b.value_mm_s.toFixed(1).padStart(5)} mm/s r.m.s.  ` +
+          `${v <= b.value_mm_s ? 'not passed' : 'passed'}   source: ${b.source}`,
       );
     for (const n of r.notes) lines.push(`  note: ${n}`);
     process.stdout.write(lines.join('\n') + '\n');

@@ -1,9 +1,9 @@
 // @ts-check
 /**
- * The live page: asks for the token (kept in sessionStorage for this tab only), opens the WebSocket,
- * draws one card per sensor (1x vector on a polar plot with its trail, amplitude and phase in large
- * figures, overall, zone, OK) and the session trend, and routes to the balancing workbench, the job
- * records and the printable report.
+ * The live page: asks for the token (kept in sessionStorage for this tab only), opens the
+ * WebSocket, draws one card per sensor (1x vector on a polar plot with its trail, amplitude and
+ * phase in large figures, overall, zone, OK) and the session trend, and routes to the balancing
+ * workbench, the job records and the printable report.
  */
 import { api, deg, fill, h, num, units, vel } from './format.js';
 import { PolarPlot } from './polar.js';
@@ -187,7 +187,8 @@ let shownForecast = '';
 
 /**
  * The watcher's balance forecast: the weight a crew could prepare before the next stop, with the
- * job it comes from, the angle convention and the cautions. Hidden while no coefficients are stored.
+ * job it comes from, the angle convention and the cautions. Hidden while no coefficients are
+ * stored.
  * @param {any} f
  */
 function renderForecast(f) {
@@ -205,7 +206,8 @@ function renderForecast(f) {
           h(
             'div',
             { class: 'conv-banner' },
-            `Weight angles in degrees from the reference mark, measured ${conv} (as in job ${f.job_id}).`,
+            `Weight angles in degrees from the reference ` +
+              `mark, measured ${conv} (as in job ${f.job_id}).`,
           ),
           h(
             'table',
@@ -247,7 +249,8 @@ function renderForecast(f) {
           h(
             'p',
             { class: 'note' },
-            `${f.why}. Predicted 1x left after it: ${vel(f.residual_pk_mm_s)} ${units.velocity} pk (r.m.s. over ${f.sensors_used.length} sensors).`,
+            `${f.why}. Predicted 1x left after it: ${vel(f.residual_pk_mm_s)} ` +
+              `${units.velocity} pk (r.m.s. over ${f.sensors_used.length} sensors).`,
           ),
           ...f.notes.map((/** @type {string} */ n) => h('p', { class: 'msg msg-warn' }, n)),
         ]
@@ -269,7 +272,9 @@ function checkStale() {
   else if (quiet !== null && quiet > 3)
     text = `NO LIVE DATA for ${Math.round(quiet)} s: the figures below are old.`;
   else if (lastLive && lastLive.age_s !== null && lastLive.age_s > 3)
-    text = `No trusted revolution for ${Math.round(lastLive.age_s)} s: fan stopped or tach lost. 1x figures are old.`;
+    text =
+      `No trusted revolution for ${Math.round(lastLive.age_s)} s: ` +
+      `fan stopped or tach lost. 1x figures are old.`;
   else if (lastLive && lastLive.at_ms === null) text = 'Waiting for the first measurement.';
   box.hidden = !text;
   box.textContent = text;

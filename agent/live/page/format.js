@@ -33,7 +33,11 @@ export function h(tag, attrs, ...children) {
   return el;
 }
 
-/** Appends children as h() takes them (strings, nodes, arrays; null and false skipped). @param {Element} el @param {...any} children */
+/**
+ * Appends children as h() takes them (strings, nodes, arrays; null and false skipped).
+ * @param {Element} el
+ * @param {...any} children
+ */
 export function append(el, ...children) {
   const holder = h('div', null, ...children);
   el.append(...Array.from(holder.childNodes));
@@ -53,7 +57,10 @@ export function num(x, digits) {
 /** Display units of velocity, as the config sets them. */
 export const units = { velocity: /** @type {'mm/s' | 'in/s'} */ ('mm/s') };
 
-/** A velocity in mm/s as a number string in the display units. @param {number | null | undefined} mmS */
+/**
+ * A velocity in mm/s as a number string in the display units.
+ * @param {number | null | undefined} mmS
+ */
 export function vel(mmS) {
   if (mmS === null || mmS === undefined || !Number.isFinite(mmS)) return '-';
   return units.velocity === 'in/s' ? (mmS / 25.4).toFixed(3) : mmS.toFixed(2);
@@ -70,7 +77,10 @@ export function deg(d) {
 export function when(iso) {
   if (!iso) return '-';
   const d = new Date(iso);
-  return `${d.toLocaleDateString(undefined, { year: 'numeric', month: 'short', day: 'numeric' })} ${d.toLocaleTimeString(undefined, { hour: '2-digit', minute: '2-digit', second: '2-digit' })}`;
+  return (
+    `${d.toLocaleDateString(undefined, { year: 'numeric', month: 'short', day: 'numeric' })} ` +
+    `${d.toLocaleTimeString(undefined, { hour: '2-digit', minute: '2-digit', second: '2-digit' })}`
+  );
 }
 
 /** F = m r omega^2, N. @param {number} massG @param {number} radiusMm @param {number | null} rpm */
@@ -81,7 +91,13 @@ export function forceN(massG, radiusMm, rpm) {
 }
 
 export class ApiFailure extends Error {
-  /** @param {number} status @param {string} code @param {string} message @param {string} hint @param {string[]} problems */
+  /**
+   * @param {number} status
+   * @param {string} code
+   * @param {string} message
+   * @param {string} hint
+   * @param {string[]} problems
+   */
   constructor(status, code, message, hint, problems) {
     super(message);
     this.status = status;

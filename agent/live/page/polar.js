@@ -17,7 +17,8 @@ function niceCeil(x) {
 }
 
 /**
- * @typedef {{ amp: number, phase_deg: number }} PolarVector amplitude in display units, phase lag in degrees
+ * @typedef {{ amp: number, phase_deg: number }} PolarVector amplitude in display units, phase lag
+ *   in degrees
  */
 
 export class PolarPlot {

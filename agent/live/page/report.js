@@ -61,7 +61,10 @@ export async function showRecords(root) {
   }
 }
 
-/** Downloads the job record (needs the token, so through fetch and a blob). @param {string} jobId */
+/**
+ * Downloads the job record (needs the token, so through fetch and a blob).
+ * @param {string} jobId
+ */
 async function exportJob(jobId) {
   const rec = await api.get(`/api/jobs/${encodeURIComponent(jobId)}/export`);
   const url = URL.createObjectURL(
@@ -138,7 +141,8 @@ export async function showReport(root, jobId, session) {
             s.planes
               .map(
                 (/** @type {any} */ p) =>
-                  `${p.name}: radius ${num(p.radius_mm, 0)} mm${p.max_mass_g ? `, at most ${num(p.max_mass_g, 0)} g` : ''}${p.positions ? `, ${p.positions.count} positions from ${deg(p.positions.first_deg)}` : ''}`,
+                  `${p.name}: radius ${num(p.radius_mm, 0)} ` +
+                  `mm${p.max_mass_g ? `, at most ${num(p.max_mass_g, 0)} g` : ''}${p.positions ? `, ${p.positions.count} positions from ${deg(p.positions.first_deg)}` : ''}`,
               )
               .join('; '),
           ),
@@ -150,7 +154,9 @@ export async function showReport(root, jobId, session) {
           h(
             'td',
             null,
-            `${s.rotor_mass_kg === null ? 'mass not given' : `${num(s.rotor_mass_kg, 0)} kg`} on ${s.bearings} bearings; grade ${s.grade_mm_s === null ? 'not given' : `G${s.grade_mm_s}`}`,
+            `${s.rotor_mass_kg === null ? 'mass not given' : `${num(s.rotor_mass_kg, 0)} kg`} ` +
+              `on ${s.bearings} bearings; grade ` +
+              `${s.grade_mm_s === null ? 'not given' : `G${s.grade_mm_s}`}`,
           ),
         ),
         s.coefficients_from
@@ -161,7 +167,9 @@ export async function showReport(root, jobId, session) {
               h(
                 'td',
                 null,
-                `stored from job ${s.coefficients_from.job_id} (${when(s.coefficients_from.saved_at)}, ${num(s.coefficients_from.speed_rpm, 0)} r/min)`,
+                `stored from job ${s.coefficients_from.job_id} ` +
+                  `(${when(s.coefficients_from.saved_at)}, ` +
+                  `${num(s.coefficients_from.speed_rpm, 0)} r/min)`,
               ),
             )
           : null,
@@ -180,18 +188,23 @@ export async function showReport(root, jobId, session) {
           h(
             'h3',
             null,
-            `Run ${run.index}: ${run.label}${run.discarded ? ` (left out: ${run.discarded.reason})` : ''}`,
+            `Run ${run.index}: ` +
+              `${run.label}${run.discarded ? ` (left out: ${run.discarded.reason})` : ''}`,
           ),
           h(
             'p',
             null,
-            `Declared ${when(run.declared_at)} by ${run.declared_by.name}${run.cautions_acknowledged ? ', safety cautions acknowledged' : ''}. Weights on the rotor: ${run.weights.length ? run.weights.map(weightText).join('; ') : 'none (as found)'}.`,
+            `Declared ${when(run.declared_at)} by ` +
+              `${run.declared_by.name}${run.cautions_acknowledged ? ', safety cautions acknowledged' : ''}. ` +
+              `Weights on the rotor: ` +
+              `${run.weights.length ? run.weights.map(weightText).join('; ') : 'none (as found)'}.`,
           ),
           run.changes.length
             ? h(
                 'p',
                 null,
-                `Changes: ${run.changes.map((/** @type {any} */ c) => `${c.action} ${c.weight.id}${c.force_n !== null ? ` (${num(c.force_n, 0)} N)` : ''}`).join(', ')}.`,
+                `Changes: ` +
+                  `${run.changes.map((/** @type {any} */ c) => `${c.action} ${c.weight.id}${c.force_n !== null ? ` (${num(c.force_n, 0)} N)` : ''}`).join(', ')}.`,
               )
             : null,
           run.capture
@@ -199,7 +212,11 @@ export async function showReport(root, jobId, session) {
                 h(
                   'p',
                   null,
-                  `Captured ${when(run.capture.at)} by ${run.capture.by.name}: ${num(run.capture.speed_rpm, 1)} r/min (${num(run.capture.speed_min_rpm, 1)}-${num(run.capture.speed_max_rpm, 1)}), ${num(run.capture.revolutions, 0)} revolutions averaged, ${run.capture.restarts} restart(s).`,
+                  `Captured ${when(run.capture.at)} by ${run.capture.by.name}: ` +
+                    `${num(run.capture.speed_rpm, 1)} r/min ` +
+                    `(${num(run.capture.speed_min_rpm, 1)}-${num(run.capture.speed_max_rpm, 1)}), ` +
+                    `${num(run.capture.revolutions, 0)} revolutions averaged, ` +
+                    `${run.capture.restarts} restart(s).`,
                 ),
                 h(
                   'table',
@@ -233,21 +250,25 @@ export async function showReport(root, jobId, session) {
             ? h(
                 'p',
                 null,
-                `Trial check (30 % or 30\u00b0, common practice): ${run.trial_check.map((/** @type {any} */ t) => `${t.sensor} ${num(t.amp_change_pct, 0)} % / ${num(t.phase_change_deg, 0)}\u00b0 ${t.moved_enough ? 'enough' : 'not enough'}`).join('; ')}.`,
+                `Trial check (30 % or 30\u00b0, common practice): ` +
+                  `${run.trial_check.map((/** @type {any} */ t) => `${t.sensor} ${num(t.amp_change_pct, 0)} % / ${num(t.phase_change_deg, 0)}\u00b0 ${t.moved_enough ? 'enough' : 'not enough'}`).join('; ')}.`,
               )
             : null,
           run.residual
             ? h(
                 'p',
                 null,
-                `Residual: ${run.residual.sensors.map((/** @type {any} */ x) => `${x.sensor} ${num(x.pct_of_as_found, 1)} % of as found`).join('; ')}.`,
+                `Residual: ` +
+                  `${run.residual.sensors.map((/** @type {any} */ x) => `${x.sensor} ${num(x.pct_of_as_found, 1)} % of as found`).join('; ')}.`,
                 run.residual.unbalance_g_mm
                   ? ` Residual unbalance ${Object.entries(run.residual.unbalance_g_mm)
                       .map(([p, u]) => `${p} ${num(/** @type {number} */ (u), 0)} g mm`)
                       .join(', ')}.`
                   : '',
                 run.residual.permissible_per_plane_g_mm !== null
-                  ? ` ISO 21940-11 G${s.grade_mm_s}: ${num(run.residual.permissible_per_plane_g_mm, 0)} g mm per plane: ${run.residual.within_grade ? 'WITHIN' : 'NOT within'} the grade.`
+                  ? ` ISO 21940-11 G${s.grade_mm_s}: ` +
+                      `${num(run.residual.permissible_per_plane_g_mm, 0)} g mm per plane: ` +
+                      `${run.residual.within_grade ? 'WITHIN' : 'NOT within'} the grade.`
                   : '',
               )
             : null,
@@ -259,7 +280,9 @@ export async function showReport(root, jobId, session) {
             h(
               'p',
               null,
-              `Solved ${when(sol.at)} by ${sol.by.name} from ${r.method === 'given_coefficients' ? 'the stored influence coefficients' : 'the trial runs'} at ${num(r.speed_rpm, 0)} r/min.`,
+              `Solved ${when(sol.at)} by ${sol.by.name} from ` +
+                `${r.method === 'given_coefficients' ? 'the stored influence coefficients' : 'the trial runs'} ` +
+                `at ${num(r.speed_rpm, 0)} r/min.`,
             ),
             r.ok
               ? h(
@@ -335,7 +358,8 @@ export async function showReport(root, jobId, session) {
             'p',
             null,
             j.coefficients.saved
-              ? "Influence coefficients kept for the watcher's balance forecast and later trim runs."
+              ? "Influence coefficients kept for the watcher's " +
+                  'balance forecast and later trim runs.'
               : `Influence coefficients not kept: ${j.coefficients.reason}.`,
           )
         : null,

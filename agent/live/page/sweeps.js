@@ -65,7 +65,9 @@ export class SweepsView {
       h(
         'p',
         { class: 'legend' },
-        'Bode plot: 1x amplitude and phase lag against speed. Polar plot: the 1x vector along the sweep, 0° at the top, lag clockwise. Rings mark the resonances found (amplitude peak with the phase swing through it).',
+        'Bode plot: 1x amplitude and phase lag against speed. Polar plot: the ' +
+          '1x vector along the sweep, 0° at the top, lag clockwise. Rings mark ' +
+          'the resonances found (amplitude peak with the phase swing through it).',
       ),
       h(
         'div',
@@ -82,7 +84,8 @@ export class SweepsView {
       h(
         'p',
         { class: 'legend' },
-        'Raw samples of every channel around each alarm. The .wav opens with turnwise analyze or sweep, using the .yaml beside it.',
+        'Raw samples of every channel around each alarm. The .wav opens ' +
+          'with turnwise analyze or sweep, using the .yaml beside it.',
       ),
       this.captures,
     );
@@ -171,13 +174,17 @@ export class SweepsView {
                 h(
                   'label',
                   { for: `tick-${s.id}` },
-                  `${s.ts.slice(0, 16).replace('T', ' ')} ${s.direction === 'up' ? 'run-up' : 'coast-down'} ${num(s.from_rpm, 0)}-${num(s.to_rpm, 0)} r/min${s.reference ? ' (reference)' : ''}`,
+                  `${s.ts.slice(0, 16).replace('T', ' ')} ` +
+                    `${s.direction === 'up' ? 'run-up' : 'coast-down'} ` +
+                    `${num(s.from_rpm, 0)}-${num(s.to_rpm, 0)} ` +
+                    `r/min${s.reference ? ' (reference)' : ''}`,
                 ),
                 h(
                   'span',
                   { class: 'note' },
                   res.length
-                    ? ` resonance ${res.map((/** @type {any} */ r) => `${num(r.rpm, 0)} r/min, AF ${num(r.amplification_factor, 1)}${r.margin_ok === false ? ' TOO CLOSE to running speed' : ''}`).join('; ')}`
+                    ? ` resonance ` +
+                        `${res.map((/** @type {any} */ r) => `${num(r.rpm, 0)} r/min, AF ${num(r.amplification_factor, 1)}${r.margin_ok === false ? ' TOO CLOSE to running speed' : ''}`).join('; ')}`
                     : '',
                 ),
               );
@@ -219,7 +226,10 @@ export class SweepsView {
     );
   }
 
-  /** The curves to draw for the chosen sensor: the ticked sweeps, oldest first, then the live one. @returns {Curve[]} */
+  /**
+   * The curves to draw for the chosen sensor: the ticked sweeps, oldest first, then the live one.
+   * @returns {Curve[]}
+   */
   curves() {
     /** @type {Curve[]} */
     const out = [];
@@ -254,7 +264,8 @@ export class SweepsView {
     if (this.root.clientWidth === 0) return;
     const curves = this.curves();
     this.status.textContent = this.live
-      ? `${this.live.direction === 'up' ? 'Run-up' : 'Coast-down'} going on: ${this.live.points.length} points so far.`
+      ? `${this.live.direction === 'up' ? 'Run-up' : 'Coast-down'} going ` +
+        `on: ${this.live.points.length} points so far.`
       : curves.length
         ? `${this.sensor}: ${curves.length} sweep(s) shown.`
         : 'No run-up or coast-down to show yet.';
@@ -425,12 +436,17 @@ function drawPolar(c, curves, css) {
   });
 }
 
-/** Fetches a file with the token and hands it to the browser as a download. @param {string} path @param {string} name */
+/**
+ * Fetches a file with the token and hands it to the browser as a download.
+ * @param {string} path
+ * @param {string} name
+ */
 async function download(path, name) {
   const res = await fetch(path, { headers: { Authorization: `Bearer ${api.token}` } });
   if (!res.ok) {
     alert(
-      `Download failed (${res.status}): the capture may have been removed to keep within capture.max_count.`,
+      `Download failed (${res.status}): the capture may ` +
+        `have been removed to keep within capture.max_count.`,
     );
     return;
   }

@@ -33,7 +33,12 @@ function numVal(form, id) {
   const t = val(form, id);
   return t === '' ? undefined : Number(t);
 }
-/** @param {string} name @param {string} label @param {any} value @param {Record<string, any>} [extra] */
+/**
+ * @param {string} name
+ * @param {string} label
+ * @param {any} value
+ * @param {Record<string, any>} [extra]
+ */
 function field(name, label, value, extra = {}) {
   return h(
     'div',
@@ -42,7 +47,13 @@ function field(name, label, value, extra = {}) {
     h('input', { id: `f-${name}`, name, value: value ?? '', ...extra }),
   );
 }
-/** @param {string} name @param {string} label @param {any} value @param {string} unit @param {Record<string, any>} [extra] */
+/**
+ * @param {string} name
+ * @param {string} label
+ * @param {any} value
+ * @param {string} unit
+ * @param {Record<string, any>} [extra]
+ */
 function numField(name, label, value, unit, extra = {}) {
   return h(
     'div',
@@ -61,7 +72,11 @@ function numField(name, label, value, unit, extra = {}) {
 }
 
 export class Workbench {
-  /** @param {HTMLElement} root @param {SessionView} session @param {() => LiveSnapshot | null} getLive */
+  /**
+   * @param {HTMLElement} root
+   * @param {SessionView} session
+   * @param {() => LiveSnapshot | null} getLive
+   */
   constructor(root, session, getLive) {
     this.root = root;
     this.session = session;
@@ -201,13 +216,16 @@ export class Workbench {
       h(
         'p',
         null,
-        `Job ${j.job_id}, started ${when(j.created_at)} by ${j.created_by.name}. Planes: ${s.planes.map((p) => `${p.name} (radius ${num(p.radius_mm, 0)} mm)`).join(', ')}. Sensors: ${s.sensors.join(', ')}.`,
+        `Job ${j.job_id}, started ${when(j.created_at)} by ${j.created_by.name}. Planes: ` +
+          `${s.planes.map((p) => `${p.name} (radius ${num(p.radius_mm, 0)} mm)`).join(', ')}. ` +
+          `Sensors: ${s.sensors.join(', ')}.`,
       ),
       j.status !== 'open'
         ? h(
             'div',
             { class: 'msg msg-ok' },
-            `This job is ${j.status} (${when(j.closed?.at)}, ${j.closed?.by.name}${j.closed?.note ? `: ${j.closed.note}` : ''}).`,
+            `This job is ${j.status} (${when(j.closed?.at)}, ` +
+              `${j.closed?.by.name}${j.closed?.note ? `: ${j.closed.note}` : ''}).`,
             ' ',
             h('a', { href: `#report/${encodeURIComponent(j.job_id)}` }, 'Open the report'),
           )
@@ -239,7 +257,11 @@ export class Workbench {
     );
   }
 
-  /** The newest result worth seeing first: the last run's residual or trial check, or the correction. @param {JobView} v */
+  /**
+   * The newest result worth seeing first: the last run's residual or trial check, or the
+   * correction.
+   * @param {JobView} v
+   */
   latestBlock(v) {
     const j = v.job;
     const last = [...j.runs].reverse().find((r) => r.capture && !r.discarded);
@@ -317,7 +339,8 @@ export class Workbench {
       h(
         'p',
         null,
-        `Each sensor: 1x amplitude in ${units.velocity} pk / phase lag. Weights: mass at angle, relative to as found.`,
+        `Each sensor: 1x amplitude in ${units.velocity} pk / phase ` +
+          `lag. Weights: mass at angle, relative to as found.`,
       ),
       h(
         'div',
@@ -400,7 +423,8 @@ export class Workbench {
       h(
         'h3',
         null,
-        `Did ${r.label} move the 1x enough? (at least 30 % in amplitude or 30\u00b0 in phase: common practice)`,
+        `Did ${r.label} move the 1x enough? (at least 30 % ` +
+          `in amplitude or 30\u00b0 in phase: common practice)`,
       ),
       h(
         'table',
@@ -431,7 +455,9 @@ export class Workbench {
         : h(
             'div',
             { class: 'msg msg-warn' },
-            'No sensor moved enough: the correction would be sensitive to reading scatter. Repeat this run with a larger trial weight (leave this run out, then declare a new trial run).',
+            'No sensor moved enough: the correction would be sensitive ' +
+              'to reading scatter. Repeat this run with a larger trial ' +
+              'weight (leave this run out, then declare a new trial run).',
           ),
     );
   }
@@ -481,7 +507,10 @@ export class Workbench {
               ? h(
                   'strong',
                   { class: x.within_grade ? 'yes' : 'no' },
-                  `ISO 21940-11 G${num(j.setup.grade_mm_s, 1)}: ${num(x.permissible_g_mm, 0)} g mm for the rotor, ${num(x.permissible_per_plane_g_mm, 0)} g mm per plane shared equally: ${x.within_grade ? 'WITHIN the grade' : 'NOT within the grade'}.`,
+                  `ISO 21940-11 G${num(j.setup.grade_mm_s, 1)}: ` +
+                    `${num(x.permissible_g_mm, 0)} g mm for the rotor, ` +
+                    `${num(x.permissible_per_plane_g_mm, 0)} g mm per plane shared equally: ` +
+                    `${x.within_grade ? 'WITHIN the grade' : 'NOT within the grade'}.`,
                 )
               : 'Give the rotor mass and a G grade to compare with ISO 21940-11.',
           )
@@ -490,7 +519,8 @@ export class Workbench {
         ? h(
             'p',
             null,
-            `Trim weights that would remove the residual: ${x.trim.map((w) => `${w.plane} ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)}`).join(', ')}.`,
+            `Trim weights that would remove the residual: ` +
+              `${x.trim.map((w) => `${w.plane} ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)}`).join(', ')}.`,
           )
         : null,
       x.warnings.map((w) => h('div', { class: 'msg msg-warn' }, w.message, ' \u2192 ', w.hint)),
@@ -551,7 +581,13 @@ export class Workbench {
               ? h(
                   'p',
                   null,
-                  `The same correction as a static pair: ${num(r.static_couple.static_pair.mass_g_each, 1)} g in each plane at ${deg(r.static_couple.static_pair.angle_deg)}; and a couple pair: ${num(r.static_couple.couple_pair.mass_g_each, 1)} g, ${r.planes[0]} at ${deg(r.static_couple.couple_pair.angle_deg_first_plane)} and ${r.planes[1]} at ${deg(r.static_couple.couple_pair.angle_deg_second_plane)}.`,
+                  `The same correction as a static pair: ` +
+                    `${num(r.static_couple.static_pair.mass_g_each, 1)} g in each plane at ` +
+                    `${deg(r.static_couple.static_pair.angle_deg)}; and a couple pair: ` +
+                    `${num(r.static_couple.couple_pair.mass_g_each, 1)} g, ${r.planes[0]} at ` +
+                    `${deg(r.static_couple.couple_pair.angle_deg_first_plane)} and ` +
+                    `${r.planes[1]} at ` +
+                    `${deg(r.static_couple.couple_pair.angle_deg_second_plane)}.`,
                 )
               : null,
           ]
@@ -563,7 +599,8 @@ export class Workbench {
             h(
               'h3',
               null,
-              `Influence coefficients (1x a 1 g weight on the reference mark adds, ${units.velocity} pk per g)`,
+              `Influence coefficients (1x a 1 g weight on the ` +
+                `reference mark adds, ${units.velocity} pk per g)`,
             ),
             h(
               'table',
@@ -599,7 +636,8 @@ export class Workbench {
         ? h(
             'p',
             null,
-            `Condition number of the influence matrix: ${num(r.condition_number, 2)} (1 is ideal; above 10 reading errors are amplified).`,
+            `Condition number of the influence matrix: ${num(r.condition_number, 2)} (1 ` +
+              `is ideal; above 10 reading errors are amplified).`,
           )
         : null,
       r.warnings.map((w) => h('div', { class: 'msg msg-warn' }, w.message, ' \u2192 ', w.hint)),
@@ -810,8 +848,10 @@ export class Workbench {
               'p',
               null,
               j.setup.kind === 'trim'
-                ? 'The correction comes from the stored influence coefficients and the as-found run.'
-                : 'The influence coefficients come from the trial runs; the correction follows from them and the as-found run.',
+                ? 'The correction comes from the stored ' +
+                    'influence coefficients and the as-found run.'
+                : 'The influence coefficients come from the trial runs; ' +
+                    'the correction follows from them and the as-found run.',
             ),
             h(
               'div',
@@ -876,7 +916,8 @@ export class Workbench {
             h(
               'p',
               null,
-              'The weight change recorded for this run. Check it is done exactly so before the fan is started:',
+              'The weight change recorded for this run. Check ' +
+                'it is done exactly so before the fan is started:',
             ),
             h(
               'ol',
@@ -911,7 +952,8 @@ export class Workbench {
           h(
             'li',
             null,
-            'Everyone clear of the fan; nobody in line with the impeller (in its plane of rotation).',
+            'Everyone clear of the fan; nobody in line ' +
+              'with the impeller (in its plane of rotation).',
           ),
           h(
             'li',
@@ -921,14 +963,17 @@ export class Workbench {
           h(
             'li',
             null,
-            "Watch the vibration during the run; stop the fan at once if it climbs into zone D or to the plant's trip level.",
+            'Watch the vibration during the run; stop the fan at once ' +
+              "if it climbs into zone D or to the plant's trip level.",
           ),
         ),
       ),
       h(
         'p',
         null,
-        `Run the fan at steady speed. The reading settles over ${this.session.capture.settle_revolutions} revolutions, then the 1x vectors are averaged over:`,
+        `Run the fan at steady speed. The reading settles over ` +
+          `${this.session.capture.settle_revolutions} revolutions, ` +
+          `then the 1x vectors are averaged over:`,
       ),
       h('label', { for: 'f-revolutions' }, 'revolutions'),
       revs,
@@ -1006,7 +1051,9 @@ export class Workbench {
             h(
               'strong',
               null,
-              `${w.label}: ${num(w.mass_g, 1)} g at ${num(w.radius_mm, 0)} mm pulls F = m r \u03c9\u00b2 = ${f === null ? '? (speed unknown)' : `${num(f, 0)} N`} at ${num(speed, 0)} r/min`,
+              `${w.label}: ${num(w.mass_g, 1)} g at ${num(w.radius_mm, 0)} mm pulls F = m ` +
+                `r \u03c9\u00b2 = ${f === null ? '? (speed unknown)' : `${num(f, 0)} N`} at ` +
+                `${num(speed, 0)} r/min`,
             ),
             share !== null ? ` (${num(share, 0)} % of the rotor weight on one bearing)` : '',
           );
@@ -1033,7 +1080,8 @@ export class Workbench {
           'label',
           { class: 'check' },
           ack,
-          'I have read these cautions. The fan is locked out and tagged out while weights are changed.',
+          'I have read these cautions. The fan is locked ' +
+            'out and tagged out while weights are changed.',
         ),
       ),
       refresh,
@@ -1078,7 +1126,10 @@ export class Workbench {
         ? h(
             'p',
             { id: 'trial-suggestion' },
-            `Suggested: ${num(sug.mass_g, 0)} g at ${num(sug.radius_mm, 0)} mm, a force of ${num(sug.force_n, 0)} N, 10 % of the ${num(sug.bearing_load_kg, 0)} kg on one bearing (common practice). After the run, the 1x should have moved by 30 % or 30\u00b0.`,
+            `Suggested: ${num(sug.mass_g, 0)} g at ${num(sug.radius_mm, 0)} mm, ` +
+              `a force of ${num(sug.force_n, 0)} N, 10 % of the ` +
+              `${num(sug.bearing_load_kg, 0)} kg on one bearing (common practice). ` +
+              `After the run, the 1x should have moved by 30 % or 30\u00b0.`,
           )
         : h('p', null, v.trial_suggestion_missing ?? ''),
       h(
@@ -1248,7 +1299,8 @@ export class Workbench {
           h(
             'p',
             null,
-            'Change the figures to what you actually fitted (another radius: mass x r_old / r_new, see the tools below).',
+            'Change the figures to what you actually fitted (another ' +
+              'radius: mass x r_old / r_new, see the tools below).',
           ),
         );
       };
@@ -1346,7 +1398,8 @@ export class Workbench {
       h(
         'p',
         null,
-        "Finishing keeps the job record and its influence coefficients (for the watcher's balance forecast and later trim runs).",
+        'Finishing keeps the job record and its influence coefficients ' +
+          "(for the watcher's balance forecast and later trim runs).",
       ),
       h('label', { for: 'f-note' }, 'Closing note'),
       note,
@@ -1440,7 +1493,12 @@ export class Workbench {
   // ---- tools ----
 
   buildTools() {
-    /** @param {string} title @param {any[]} fields @param {(f: HTMLElement) => [string, any]} request @param {(r: any) => string} show */
+    /**
+     * @param {string} title
+     * @param {any[]} fields
+     * @param {(f: HTMLElement) => [string, any]} request
+     * @param {(r: any) => string} show
+     */
     const tool = (title, fields, request, show) => {
       const out = h('div', { class: 'result', 'aria-live': 'polite' });
       const form = h(
@@ -1469,12 +1527,14 @@ export class Workbench {
       h(
         'summary',
         null,
-        'Weight tools: trial weight, split, other radius, combine, ISO 21940-11 grade, balancing without phase',
+        'Weight tools: trial weight, split, other radius, ' +
+          'combine, ISO 21940-11 grade, balancing without phase',
       ),
       h(
         'p',
         null,
-        'Angles in these tools are in one convention of your choice, the same for every angle you enter.',
+        'Angles in these tools are in one convention of ' +
+          'your choice, the same for every angle you enter.',
       ),
       this.fourRunTool(),
       tool(
@@ -1495,7 +1555,8 @@ export class Workbench {
           },
         ],
         (r) =>
-          `${num(r.mass_g, 1)} g at ${num(r.radius_mm, 0)} mm: ${num(r.force_n, 0)} N at ${num(r.speed_rpm, 0)} r/min`,
+          `${num(r.mass_g, 1)} g at ${num(r.radius_mm, 0)} mm: ` +
+          `${num(r.force_n, 0)} N at ${num(r.speed_rpm, 0)} r/min`,
       ),
       tool(
         'Split onto fixed positions (law of sines)',
@@ -1611,16 +1672,17 @@ export class Workbench {
           },
         ],
         (r) =>
-          `U_per = ${num(r.permissible_g_mm, 0)} g mm for the rotor${r.within === null ? '' : r.within ? ': the residual is WITHIN it' : ': the residual is NOT within it'}`,
+          `U_per = ${num(r.permissible_g_mm, 0)} g mm for the ` +
+          `rotor${r.within === null ? '' : r.within ? ': the residual is WITHIN it' : ': the residual is NOT within it'}`,
       ),
     );
   }
 
   /**
    * Balancing without phase (the four-run method) for when the once-per-turn pickup is missing or
-   * failed: as found, then one trial weight at three positions; each amplitude typed in or read from
-   * the latest analysis window ("Read": the synchronous 1x if the tach works, else the spectral peak
-   * near the stated speed). One plane, one sensor.
+   * failed: as found, then one trial weight at three positions; each amplitude typed in or read
+   * from the latest analysis window ("Read": the synchronous 1x if the tach works, else the
+   * spectral peak near the stated speed). One plane, one sensor.
    */
   fourRunTool() {
     const radial = this.session.sensors.filter((x) => x.direction !== 'axial');
@@ -1638,7 +1700,12 @@ export class Workbench {
           input.value = r.amp_pk_mm_s.toFixed(3);
           fill(
             note,
-            `${sensor}: ${num(r.amp_pk_mm_s, 3)} mm/s pk ${r.upper_bound ? '(below the peak threshold: an upper bound) ' : ''}from ${r.source === 'tach' ? 'the synchronous 1x' : `the spectral peak at ${num(r.freq_hz, 2)} Hz (no tach)`}, window of ${num(r.window_s, 1)} s ending ${when(new Date(r.window_end_ms).toISOString())}. Wait for a fresh window after every weight change.`,
+            `${sensor}: ${num(r.amp_pk_mm_s, 3)} mm/s pk ` +
+              `${r.upper_bound ? '(below the peak threshold: an upper bound) ' : ''}from ` +
+              `${r.source === 'tach' ? 'the synchronous 1x' : `the spectral peak at ${num(r.freq_hz, 2)} Hz (no tach)`}, ` +
+              `window of ${num(r.window_s, 1)} s ending ` +
+              `${when(new Date(r.window_end_ms).toISOString())}. Wait for ` +
+              `a fresh window after every weight change.`,
           );
         } catch (e) {
           fill(note, errorBox(e));
@@ -1670,7 +1737,9 @@ export class Workbench {
       h(
         'p',
         null,
-        'For when the tach pickup cannot be mounted or has failed. Fit the same trial weight at the three positions in turn (same radius), run at the same speed, read the 1x after each; take the trial weight off before fitting the correction.',
+        'For when the tach pickup cannot be mounted or has failed. Fit the same trial ' +
+          'weight at the three positions in turn (same radius), run at the same speed, ' +
+          'read the 1x after each; take the trial weight off before fitting the correction.',
       ),
       h(
         'div',
@@ -1781,9 +1850,17 @@ export class Workbench {
             h(
               'strong',
               null,
-              `Fit ${num(c.mass_g, 1)} g (\u00b1 ${num(u.mass_g, 1)}) at ${deg(c.angle_deg)} (\u00b1 ${num(u.angle_deg, 1)} deg), ${r.angle_convention === 'against_rotation' ? 'against' : 'with'} rotation from the reference mark`,
+              `Fit ${num(c.mass_g, 1)} g (\u00b1 ${num(u.mass_g, 1)}) at ` +
+                `${deg(c.angle_deg)} (\u00b1 ${num(u.angle_deg, 1)} deg), ` +
+                `${r.angle_convention === 'against_rotation' ? 'against' : 'with'} rotation ` +
+                `from the reference mark`,
             ),
-            `, with the trial weight removed${c.force_n !== undefined ? `: ${num(c.force_n, 0)} N at speed` : ''}. Trial effect ${num(r.trial_effect.amp, 2)} mm/s pk (${num(r.trial_effect.pct_of_as_found, 0)} % of as found); the circles miss one point by ${num(r.fit_residual.rms_amp, 2)} mm/s pk r.m.s. (${num(r.fit_residual.pct_of_as_found, 1)} %). Then do a check run.`,
+            `, with the trial weight ` +
+              `removed${c.force_n !== undefined ? `: ${num(c.force_n, 0)} N at speed` : ''}. ` +
+              `Trial effect ${num(r.trial_effect.amp, 2)} mm/s pk ` +
+              `(${num(r.trial_effect.pct_of_as_found, 0)} % of as found); the circles ` +
+              `miss one point by ${num(r.fit_residual.rms_amp, 2)} mm/s pk r.m.s. ` +
+              `(${num(r.fit_residual.pct_of_as_found, 1)} %). Then do a check run.`,
           ),
           issues(r.warnings),
           cautions,
@@ -1798,5 +1875,8 @@ export class Workbench {
 
 /** @param {FittedWeight} w */
 export function weightText(w) {
-  return `${w.id}: ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)} in ${w.plane}, radius ${num(w.radius_mm, 0)} mm`;
+  return (
+    `${w.id}: ${num(w.mass_g, 1)} g at ${deg(w.angle_deg)} in ` +
+    `${w.plane}, radius ${num(w.radius_mm, 0)} mm`
+  );
 }

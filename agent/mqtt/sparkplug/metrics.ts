@@ -24,7 +24,10 @@ export interface MetricDef {
 /** Name of the metric that carries events (turnwise.event.v1 JSON, one per DDATA). */
 export const EVENT_METRIC = 'Event';
 
-/** Metric names and definitions, in the order they appear in the DBIRTH. Aliases start at 1 (the node's own metrics carry none). */
+/**
+ * Metric names and definitions, in the order they appear in the DBIRTH. Aliases start at 1 (the
+ * node's own metrics carry none).
+ */
 export function deviceMetrics(sensors: readonly SensorConfig[]): MetricDef[] {
   const defs: Omit<MetricDef, 'alias'>[] = [
     {
@@ -41,7 +44,9 @@ export function deviceMetrics(sensors: readonly SensorConfig[]): MetricDef[] {
         name: `${s.id}/Overall`,
         datatype: DataType.Double,
         unit: 'mm/s',
-        description: `Broadband velocity r.m.s. at ${at}, in the window's band (ISO 20816-3: 10-1000 Hz).`,
+        description:
+          `Broadband velocity r.m.s. at ${at}, in the ` +
+          `window's band (ISO 20816-3: 10-1000 Hz).`,
       },
       {
         name: `${s.id}/1x Amplitude`,
@@ -53,12 +58,16 @@ export function deviceMetrics(sensors: readonly SensorConfig[]): MetricDef[] {
         name: `${s.id}/1x Phase`,
         datatype: DataType.Double,
         unit: 'deg',
-        description: `1x phase at ${at}: lag from the tach rising edge to the positive peak of velocity, 0-360.`,
+        description:
+          `1x phase at ${at}: lag from the tach rising ` +
+          `edge to the positive peak of velocity, 0-360.`,
       },
       {
         name: `${s.id}/Zone`,
         datatype: DataType.String,
-        description: `Severity zone A-D at ${at}; empty when not judged (sensor not OK, below minimum speed).`,
+        description:
+          `Severity zone A-D at ${at}; empty when not ` +
+          `judged (sensor not OK, below minimum speed).`,
       },
       {
         name: `${s.id}/Sensor OK`,
@@ -77,7 +86,8 @@ export function deviceMetrics(sensors: readonly SensorConfig[]): MetricDef[] {
       name: 'Unbalance/Verdict',
       datatype: DataType.String,
       description:
-        "The watcher's 1x verdict: static, couple, dynamic, overhung, or none (1x points to another cause or is too small).",
+        "The watcher's 1x verdict: static, couple, dynamic, overhung, " +
+        'or none (1x points to another cause or is too small).',
     },
     {
       name: 'Unbalance/Confidence',
@@ -88,7 +98,8 @@ export function deviceMetrics(sensors: readonly SensorConfig[]): MetricDef[] {
       name: 'Advisory/State',
       datatype: DataType.String,
       description:
-        'Safe-stop advisory (an advisory to people, not a protective trip): normal, raised, acknowledged, latched.',
+        'Safe-stop advisory (an advisory to people, not a ' +
+        'protective trip): normal, raised, acknowledged, latched.',
     },
     {
       name: 'Advisory/Outputs Energised',
@@ -99,7 +110,8 @@ export function deviceMetrics(sensors: readonly SensorConfig[]): MetricDef[] {
       name: EVENT_METRIC,
       datatype: DataType.String,
       description:
-        'Each event as turnwise.event.v1 JSON; is_historical when it waited in the outbox through an outage.',
+        'Each event as turnwise.event.v1 JSON; is_historical ' +
+        'when it waited in the outbox through an outage.',
     },
   );
   return defs.map((d, i) => ({ ...d, alias: i + 1 }));
@@ -110,7 +122,10 @@ export interface AdvisoryView {
   readonly energised: boolean | null;
 }
 
-/** Current values of the device's metrics (all but Event) from the last window, the watcher's status and the advisory. */
+/**
+ * Current values of the device's metrics (all but Event) from the last window, the watcher's status
+ * and the advisory.
+ */
 export function metricValues(
   sensors: readonly SensorConfig[],
   w: WindowResult | null,
@@ -141,7 +156,10 @@ export function metricValues(
   return v;
 }
 
-/** The value part of a metric message for a datatype; null becomes is_null (Sparkplug 3.0, tck-id-operational-behavior-data-publish-dbirth-values). */
+/**
+ * The value part of a metric message for a datatype; null becomes is_null (Sparkplug 3.0,
+ * tck-id-operational-behavior-data-publish-dbirth-values).
+ */
 export function valueFields(datatype: number, value: MetricValue): Partial<MetricMsg> {
   if (
     value === null ||

@@ -44,9 +44,11 @@ import { DataType, SparkplugCodec, type MetricMsg, type PayloadMsg } from './pro
  * - DDATA carries only the metrics that changed, by alias only, without datatype.
  * - Events from this node's own durable outbox as the metric 'Event', one per DDATA, with the
  *   event's time; is_historical when the event waited through an outage (or a restart).
- * - NCMD 'Node Control/Rebirth' = true: stop data, publish NBIRTH + DBIRTH again with the same bdSeq.
- *   Any other NCMD or DCMD metric is refused in the log (once per burst) and changes nothing.
- * - Intentional stop: DDEATH, NDEATH, then DISCONNECT (tck-id-operational-behavior-edge-node-intentional-disconnect-*).
+ * - NCMD 'Node Control/Rebirth' = true: stop data, publish NBIRTH + DBIRTH again with the same
+ *   bdSeq. Any other NCMD or DCMD metric is refused in the log (once per burst) and changes
+ *   nothing.
+ * - Intentional stop: DDEATH, NDEATH, then DISCONNECT
+ *   (tck-id-operational-behavior-edge-node-intentional-disconnect-*).
  *
  * Delivery of events: Sparkplug requires QoS 0 for DDATA, so an event counts as sent once mqtt.js
  * has written it to the socket; the JSON event topic (QoS 1, deleted on PUBACK) stays the
@@ -71,7 +73,10 @@ export interface BdSeqStore {
   next(): number;
 }
 
-/** bdSeq in a small JSON file (write to a temporary name, fsync, rename). A file that cannot be read starts at 0; one that cannot be written is said once and the count goes on in memory. */
+/**
+ * bdSeq in a small JSON file (write to a temporary name, fsync, rename). A file that cannot be read
+ * starts at 0; one that cannot be written is said once and the count goes on in memory.
+ */
 export class FileBdSeqStore implements BdSeqStore {
   private value: number;
   private warned = false;
@@ -118,7 +123,8 @@ export class FileBdSeqStore implements BdSeqStore {
       if (!this.warned)
         this.log.warn(
           { file: this.file, error: String(e) },
-          `cannot save the Sparkplug bdSeq to ${this.file}; it goes on in memory (after a restart a host may see a bdSeq again): check state_dir`,
+          `cannot save the Sparkplug bdSeq to ${this.file}; it goes on in memory ` +
+            `(after a restart a host may see a bdSeq again): check state_dir`,
         );
       this.warned = true;
     }
@@ -147,7 +153,10 @@ export interface SparkplugNodeOptions {
   readonly connect?: ConnectFn;
   readonly now?: () => number;
   readonly random?: () => number;
-  /** Connected this long without an online STATE from the primary host: said once per burst, ms (default 10 s). */
+  /**
+   * Connected this long without an online STATE from the primary host: said once per burst, ms
+   * (default 10 s).
+   */
   readonly hostWaitReportMs?: number;
 }
 
@@ -217,7 +226,9 @@ export class SparkplugNode {
   private readonly values = new Map<string, MetricValue>();
   /** Values last reported in this session (report by exception). */
   private readonly reported = new Map<string, MetricValue>();
-  /** Ids of events queued while born in this session: sent as live; every other event is historical. */
+  /**
+   * Ids of events queued while born in this session: sent as live; every other event is historical.
+   */
   private readonly liveIds = new Set<string>();
   private readonly counts = {
     births: 0,
@@ -271,7 +282,8 @@ export class SparkplugNode {
           fields: { client_id: o.ids.clientId, bdseq: this.bdSeq },
         }),
         reconnected: (failures) =>
-          `Sparkplug session connected to ${s.url} after ${failures} failed attempt(s) (bdSeq ${this.bdSeq})`,
+          `Sparkplug session connected to ${s.url} after ` +
+          `${failures} failed attempt(s) (bdSeq ${this.bdSeq})`,
         retrying: (wasConnected, reason) =>
           `${
             wasConnected
@@ -279,7 +291,8 @@ export class SparkplugNode {
               : `cannot open the Sparkplug session to ${s.url}: ${reason}`
           }; retrying with backoff (${s.reconnectMinMs / 1000} s up to ${s.reconnectMaxMs / 1000} s), each CONNECT with the next bdSeq`,
         fallback: () =>
-          `the broker at ${s.url} does not take MQTT 5; the Sparkplug session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`,
+          `the broker at ${s.url} does not take MQTT 5; the Sparkplug ` +
+          `session uses MQTT 3.1.1 (the next CONNECT carries the next bdSeq)`,
       },
     });
   }
@@ -299,7 +312,10 @@ export class SparkplugNode {
     this.conn.start();
   }
 
-  /** New current values (from a window); publishes a DDATA with those that changed when the session is born. */
+  /**
+   * New current values (from a window); publishes a DDATA with those that changed when the session
+   * is born.
+   */
   update(values: ReadonlyMap<string, MetricValue>): void {
     for (const [k, v] of values) if (k !== EVENT_METRIC) this.values.set(k, v);
     if (!this.born || !this.client) return;
@@ -315,7 +331,10 @@ export class SparkplugNode {
     if (metrics.length > 0) this.send(this.topics.ddata, { timestamp: t, metrics });
   }
 
-  /** Queues an event in this node's durable outbox; it goes out as the 'Event' metric. Never waits on the network. */
+  /**
+   * Queues an event in this node's durable outbox; it goes out as the 'Event' metric. Never waits
+   * on the network.
+   */
   queueEvent(e: AgentEvent): Promise<AddOutcome> {
     if (this.born) this.liveIds.add(e.id);
     return this.outbox.add(e);
@@ -353,7 +372,10 @@ export class SparkplugNode {
     return true;
   }
 
-  /** DDEATH and NDEATH when born, then DISCONNECT (so the broker does not publish the will), and no more reconnects. */
+  /**
+   * DDEATH and NDEATH when born, then DISCONNECT (so the broker does not publish the will), and no
+   * more reconnects.
+   */
   async stop(): Promise<void> {
     if (this.conn.stopping) return;
     if (this.hostTimer) clearTimeout(this.hostTimer);
@@ -375,7 +397,8 @@ export class SparkplugNode {
   // --- session -------------------------------------------------------------------------------
 
   private deathPayload(): Buffer {
-    // No seq in an NDEATH (tck-id-payloads-ndeath-seq); only the bdSeq metric (tck-id-topics-ndeath-payload).
+    // No seq in an NDEATH (tck-id-payloads-ndeath-seq); only the bdSeq metric
+    // (tck-id-topics-ndeath-payload).
     return this.codec.encode({
       timestamp: this.now(),
       metrics: [
@@ -398,7 +421,9 @@ export class SparkplugNode {
       if (err || granted?.some((g) => g.qos === 128)) {
         this.burst.report(
           'subscribe',
-          `the broker refused a Sparkplug subscription (${filters.join(', ')}); rebirth requests${this.topics.state ? ' and the primary host STATE' : ''} will not arrive (check the broker ACL)`,
+          `the broker refused a Sparkplug subscription (${filters.join(', ')}); rebirth ` +
+            `requests${this.topics.state ? ' and the primary host STATE' : ''} will not ` +
+            `arrive (check the broker ACL)`,
         );
       }
       if (!this.topics.state) this.birth(false);
@@ -413,7 +438,11 @@ export class SparkplugNode {
       if (c !== this.client || this.born) return;
       this.burst.report(
         'primary-host',
-        `Sparkplug: no online STATE from primary host "${this.ids.primaryHostId}" on ${this.topics.state} after ${(this.hostWaitReportMs / 1000).toFixed(0)} s; the node stays quiet (no births, no data) until it comes online. The agent keeps measuring, keeps driving the advisory and keeps the JSON topics and the event outbox going`,
+        `Sparkplug: no online STATE from primary host "${this.ids.primaryHostId}" ` +
+          `on ${this.topics.state} after ` +
+          `${(this.hostWaitReportMs / 1000).toFixed(0)} s; the node stays quiet (no ` +
+          `births, no data) until it comes online. The agent keeps measuring, keeps ` +
+          `driving the advisory and keeps the JSON topics and the event outbox going`,
         { host: this.ids.primaryHostId },
         this.hostOnline === false ? 'offline' : 'silent',
       );
@@ -421,7 +450,9 @@ export class SparkplugNode {
     this.hostTimer.unref();
   }
 
-  /** The client is gone: no session, nothing being sent, every waiting event historical from now on. */
+  /**
+   * The client is gone: no session, nothing being sent, every waiting event historical from now on.
+   */
   private onDropped(): void {
     this.born = false;
     this.sending = false;
@@ -441,7 +472,8 @@ export class SparkplugNode {
       timestamp: t,
       metrics: [
         { name: 'bdSeq', timestamp: t, datatype: DataType.Int64, long_value: this.bdSeq },
-        // No alias for the rebirth metric (tck-id-operational-behavior-data-commands-rebirth-name-aliases).
+        // No alias for the rebirth metric
+        // (tck-id-operational-behavior-data-commands-rebirth-name-aliases).
         { name: REBIRTH, timestamp: t, datatype: DataType.Boolean, boolean_value: false },
         {
           name: 'Properties/Software',
@@ -470,7 +502,8 @@ export class SparkplugNode {
     if (rebirth) this.counts.rebirths++;
     this.burst.resolved(
       'primary-host',
-      `Sparkplug: primary host "${this.ids.primaryHostId}" is online; births published (bdSeq ${this.bdSeq})`,
+      `Sparkplug: primary host "${this.ids.primaryHostId}" ` +
+        `is online; births published (bdSeq ${this.bdSeq})`,
     );
     this.pump();
   }
@@ -486,7 +519,10 @@ export class SparkplugNode {
     const seq = this.seq;
     const bytes = this.codec.encode({ ...p, seq });
     const refused = this.conn.tooLarge(topic, bytes.length, 0, 0, (size, max) => ({
-      message: `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's maximum packet size of ${max} bytes; not sent (raise the broker's max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`,
+      message:
+        `Sparkplug: a message to ${topic} would be ${size} bytes, over the broker's ` +
+        `maximum packet size of ${max} bytes; not sent (raise the broker's ` +
+        `max_packet_size${topic.includes('BIRTH') ? '; without its births the node cannot come online' : ''})`,
       kind: topic.split('/')[2],
     }));
     if (refused) return false;
@@ -537,13 +573,15 @@ export class SparkplugNode {
       },
     );
     if (!sent) {
-      // Too large for the broker: it would block every later event. It stays in the event log under state_dir (turnwise events).
+      // Too large for the broker: it would block every later event. It stays in the event log under
+      // state_dir (turnwise events).
       this.sending = false;
       this.outbox.ack(e.seq);
       this.liveIds.delete(e.id);
       this.log.warn(
         { event_id: e.id, type: e.type },
-        `Sparkplug: event ${e.id} (${e.type}) is too large for the broker and was not sent as a metric; it is kept in the agent's event log (turnwise events)`,
+        `Sparkplug: event ${e.id} (${e.type}) is too large for the broker and was ` +
+          `not sent as a metric; it is kept in the agent's event log (turnwise events)`,
       );
       setTimeout(() => this.pump(), 0).unref();
     }
@@ -572,7 +610,10 @@ export class SparkplugNode {
     this.burst.report('command', `Sparkplug: ${message}`, {}, kind);
   }
 
-  /** spBv1.0/STATE/<host>: JSON {"online": bool, "timestamp": ms} (Sparkplug 3.0, STATE birth/death payload). */
+  /**
+   * spBv1.0/STATE/<host>: JSON {"online": bool, "timestamp": ms} (Sparkplug 3.0, STATE birth/death
+   * payload).
+   */
   private onState(c: MqttClient, payload: Buffer): void {
     let online: boolean | null = null;
     let ts = NaN;
@@ -587,13 +628,16 @@ export class SparkplugNode {
     if (online === null) {
       this.burst.report(
         'state-payload',
-        `Sparkplug: STATE message on ${this.topics.state} is not {"online": true|false, "timestamp": <ms>} (got ${JSON.stringify(text.slice(0, 80))}); ignored. Check that the primary host speaks Sparkplug 3.0`,
+        `Sparkplug: STATE message on ${this.topics.state} is not {"online": ` +
+          `true|false, "timestamp": <ms>} (got ${JSON.stringify(text.slice(0, 80))}); ` +
+          `ignored. Check that the primary host speaks Sparkplug 3.0`,
         {},
         'bad',
       );
       return;
     }
-    // An older STATE (lower timestamp) than one already seen is stale: a retained copy racing a new one.
+    // An older STATE (lower timestamp) than one already seen is stale: a retained copy racing a new
+    // one.
     if (Number.isFinite(ts)) {
       if (ts < this.hostTs) return;
       this.hostTs = ts;
@@ -606,12 +650,16 @@ export class SparkplugNode {
     if (this.born) {
       this.burst.report(
         'primary-host',
-        `Sparkplug: primary host "${this.ids.primaryHostId}" went offline; ending this Sparkplug session (NDEATH) and going quiet until it is back online. The agent keeps measuring, driving the advisory and queueing events`,
+        `Sparkplug: primary host "${this.ids.primaryHostId}" went offline; ending ` +
+          `this Sparkplug session (NDEATH) and going quiet until it is back online. ` +
+          `The agent keeps measuring, driving the advisory and queueing events`,
         { host: this.ids.primaryHostId },
         'offline',
       );
       this.born = false;
-      // Ends the session as the specification asks (tck-id-operational-behavior-edge-node-termination-host-offline); onClose reconnects with backoff and waits for an online STATE.
+      // Ends the session as the specification asks
+      // (tck-id-operational-behavior-edge-node-termination-host-offline); onClose reconnects with
+      // backoff and waits for an online STATE.
       c.publish(this.topics.ndeath, this.deathPayload(), { qos: 1, retain: false }, () =>
         c.end(false),
       );
@@ -642,7 +690,8 @@ export class SparkplugNode {
       if (verb === 'NCMD' && name === REBIRTH) {
         if (m.boolean_value !== true) {
           this.refuse(
-            `${verb} '${REBIRTH}' needs the boolean value true (tck-id-operational-behavior-data-commands-ncmd-rebirth-value); ignored`,
+            `${verb} '${REBIRTH}' needs the boolean value true ` +
+              `(tck-id-operational-behavior-data-commands-ncmd-rebirth-value); ignored`,
             'rebirth-value',
           );
           continue;
@@ -650,14 +699,16 @@ export class SparkplugNode {
         if (!this.connected) continue;
         if (this.topics.state && this.hostOnline !== true) {
           this.refuse(
-            `rebirth requested while primary host "${this.ids.primaryHostId}" is not online; the births follow once its STATE says online`,
+            `rebirth requested while primary host "${this.ids.primaryHostId}" ` +
+              `is not online; the births follow once its STATE says online`,
             'rebirth-waiting',
           );
           continue;
         }
         this.log.info(
           { bdseq: this.bdSeq },
-          'Sparkplug: rebirth requested (NCMD); publishing NBIRTH and DBIRTH again with the same bdSeq',
+          'Sparkplug: rebirth requested (NCMD); publishing ' +
+            'NBIRTH and DBIRTH again with the same bdSeq',
         );
         this.birth(true);
         continue;
@@ -665,7 +716,10 @@ export class SparkplugNode {
       const shown = name ?? (m.alias !== undefined ? `alias ${m.alias}` : '(no name, no alias)');
       const where = verb === 'DCMD' ? ` for device "${device}"` : '';
       this.refuse(
-        `${verb}${where} writes metric ${JSON.stringify(shown)}, which this node does not accept: the only writable metric is NCMD '${REBIRTH}' (measurements and verdicts are read-only; acknowledge the advisory and start baselines through the JSON command topic). Nothing was changed`,
+        `${verb}${where} writes metric ${JSON.stringify(shown)}, which this ` +
+          `node does not accept: the only writable metric is NCMD '${REBIRTH}' ` +
+          `(measurements and verdicts are read-only; acknowledge the advisory and ` +
+          `start baselines through the JSON command topic). Nothing was changed`,
         `${verb}-unknown`,
       );
     }

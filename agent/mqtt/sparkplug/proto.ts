@@ -7,7 +7,8 @@ import protobuf from 'protobufjs';
  * 6.4.10 PropertySetList, 6.4.11-13 DataSet, 6.4.14-15 Template, 6.4.16 Data Types). Field numbers
  * and types are those of the schema file the specification points to (eclipse/tahu
  * sparkplug_b/sparkplug_b.proto); the extension ranges are left out (protobuf skips unknown
- * fields when decoding, and this node never writes extensions). Parsed by protobufjs, once per codec.
+ * fields when decoding, and this node never writes extensions). Parsed by protobufjs, once per
+ * codec.
  */
 export const SPARKPLUG_B_PROTO = `
 syntax = "proto2";
@@ -113,7 +114,10 @@ message Payload {
 }
 `;
 
-/** Sparkplug 3.0.0 section 6.4.16 "Data Types": the numbers carried in Metric.datatype and PropertyValue.type. */
+/**
+ * Sparkplug 3.0.0 section 6.4.16 "Data Types": the numbers carried in Metric.datatype and
+ * PropertyValue.type.
+ */
 export const DataType = {
   Unknown: 0,
   Int8: 1,
@@ -183,7 +187,8 @@ export class SparkplugCodec {
   private readonly type: protobuf.Type;
 
   constructor() {
-    // keepCase: field names stay as the specification writes them (is_historical, string_value ...).
+    // keepCase: field names stay as the specification writes them (is_historical,
+    // string_value ...).
     this.type = protobuf
       .parse(SPARKPLUG_B_PROTO, { keepCase: true })
       .root.lookupType('turnwise.sparkplug_b.Payload');
@@ -195,10 +200,14 @@ export class SparkplugCodec {
     return Buffer.from(this.type.encode(this.type.fromObject(p)).finish());
   }
 
-  /** Decodes a payload; throws Error naming what is wrong for bytes that are not a Sparkplug B payload. */
+  /**
+   * Decodes a payload; throws Error naming what is wrong for bytes that are not a Sparkplug B
+   * payload.
+   */
   decode(bytes: Uint8Array): PayloadMsg {
     const msg = this.type.decode(bytes);
-    // longs as numbers (aliases, timestamps and seq fit well inside 2^53); oneofs keep only the set field.
+    // longs as numbers (aliases, timestamps and seq fit well inside 2^53); oneofs keep only the set
+    // field.
     return this.type.toObject(msg, {
       longs: Number,
       bytes: Buffer,

@@ -1,18 +1,20 @@
 import { deg, Finding, type WatcherRule } from './types.js';
 
 /**
- * Bearing to bearing in one direction (common practice): near 0 deg -> static (force) unbalance, one
- * correction plane; near 180 -> couple; in between -> dynamic, two planes.
+ * Bearing to bearing in one direction (common practice): near 0 deg -> static (force) unbalance,
+ * one correction plane; near 180 -> couple; in between -> dynamic, two planes.
  */
 export const bearingPhase: WatcherRule = {
   name: 'bearing-phase',
   summary:
-    'radial 1x of the two rotor bearings in one direction: in phase -> static, opposed -> couple, between -> dynamic (common practice)',
+    'radial 1x of the two rotor bearings in one direction: in ' +
+    'phase -> static, opposed -> couple, between -> dynamic (common practice)',
   run({ s, pairRelation, measures }) {
     const f = new Finding();
     if (!s.bearings) {
       f.limits.push(
-        'only one bearing has radial sensors: static, couple and dynamic unbalance cannot be told apart',
+        'only one bearing has radial sensors: static, ' +
+          'couple and dynamic unbalance cannot be told apart',
       );
       f.missing += 3;
       return f.done();
@@ -22,7 +24,8 @@ export const bearingPhase: WatcherRule = {
     measures.bearing_pair = { bearings: s.bearings, directions: pairs };
     if (pairs.length === 0) {
       f.limits.push(
-        `no direction has healthy 1x readings at both ${b1} and ${b2}: static, couple and dynamic unbalance cannot be told apart`,
+        `no direction has healthy 1x readings at both ${b1} and ${b2}: ` +
+          `static, couple and dynamic unbalance cannot be told apart`,
       );
       f.missing += 3;
       return f.done();

@@ -23,7 +23,8 @@ function harmonicsAbove(r: Reading, ratio: number, blades: number | null): strin
 export const harmonics: WatcherRule = {
   name: 'harmonics',
   summary:
-    '2x/1x at or above watcher.unbalance.two_x_ratio_max points to misalignment; 3 or more harmonics above harmonic_ratio to looseness (common practice)',
+    '2x/1x at or above watcher.unbalance.two_x_ratio_max points to misalignment; ' +
+    '3 or more harmonics above harmonic_ratio to looseness (common practice)',
   run({ s, readings, main, maxRadial, measures }) {
     const u = s.w.unbalance;
     const f = new Finding();
@@ -53,7 +54,8 @@ export const harmonics: WatcherRule = {
           `${h.join(', ')} all above ${pct(u.harmonic_ratio)} of 1x at ${r.id} (many harmonics)`,
         );
         f.evidence.push(
-          `${r.id} shows ${h.length} harmonics or half orders above ${pct(u.harmonic_ratio)} of 1x (${h.join(', ')}): points to looseness`,
+          `${r.id} shows ${h.length} harmonics or half orders above ` +
+            `${pct(u.harmonic_ratio)} of 1x (${h.join(', ')}): points to looseness`,
         );
       }
     }

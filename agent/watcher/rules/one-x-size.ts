@@ -1,13 +1,14 @@
 import { Finding, mm, type WatcherRule } from './types.js';
 
 /**
- * A 1x too small to judge is no finding: below watcher.unbalance.min_one_x_rms_mm_s (default half the
- * A/B boundary) no unbalance verdict is given.
+ * A 1x too small to judge is no finding: below watcher.unbalance.min_one_x_rms_mm_s (default half
+ * the A/B boundary) no unbalance verdict is given.
  */
 export const oneXSize: WatcherRule = {
   name: 'one-x-size',
   summary:
-    'the largest radial 1x must reach watcher.unbalance.min_one_x_rms_mm_s (default half the A/B boundary) to be judged at all',
+    'the largest radial 1x must reach watcher.unbalance.min_one_x_rms_mm_s ' +
+    '(default half the A/B boundary) to be judged at all',
   run({ s, radial, maxRadial, measures }) {
     const f = new Finding();
     if (radial.length === 0 || !maxRadial) {
@@ -18,7 +19,8 @@ export const oneXSize: WatcherRule = {
     measures.max_radial_one_x_rms_mm_s = maxRadial.amp;
     if (maxRadial.amp < s.minOneXMmS) {
       f.evidence.push(
-        `largest radial 1x is ${mm(maxRadial.amp)} r.m.s. at ${maxRadial.id}, below the ${mm(s.minOneXMmS)} needed to judge unbalance: no significant unbalance`,
+        `largest radial 1x is ${mm(maxRadial.amp)} r.m.s. at ${maxRadial.id}, below ` +
+          `the ${mm(s.minOneXMmS)} needed to judge unbalance: no significant unbalance`,
       );
       f.facts.stop = true;
     }

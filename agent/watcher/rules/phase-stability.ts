@@ -21,9 +21,10 @@ interface Stability {
 }
 
 /**
- * Phase stability of the channels that carry the 1x, over windows oldest first (the current one last).
- * Unstable means the phase jumps from window to window (median jump above the tolerance): a single step
- * (a weight lost) or a slow drift (build-up) is a fixed heavy spot that moved, not an unstable one.
+ * Phase stability of the channels that carry the 1x, over windows oldest first (the current one
+ * last). Unstable means the phase jumps from window to window (median jump above the tolerance): a
+ * single step (a weight lost) or a slow drift (build-up) is a fixed heavy spot that moved, not an
+ * unstable one.
  * Resonance: amplitude and phase swing together while the speed changes only a little.
  */
 function phaseStability(
@@ -67,7 +68,9 @@ function phaseStability(
   if (chans.length === 0) {
     return {
       kind: 'not_judged',
-      words: `1x phase stability not judged: ${most} window(s) with a 1x vector, at least 3 are needed`,
+      words:
+        `1x phase stability not judged: ${most} window(s) ` +
+        `with a 1x vector, at least 3 are needed`,
       spreadDeg: null,
       stepDeg: null,
       windows: most,
@@ -78,7 +81,9 @@ function phaseStability(
   if (worst.speedSpan > 0.05) {
     return {
       kind: 'not_judged',
-      words: `1x phase stability not judged: speed changed ${pct1(worst.speedSpan)} over the last ${worst.n} windows`,
+      words:
+        `1x phase stability not judged: speed changed ` +
+        `${pct1(worst.speedSpan)} over the last ${worst.n} windows`,
       ...base,
     };
   }
@@ -86,7 +91,10 @@ function phaseStability(
   if (res) {
     return {
       kind: 'resonance',
-      words: `${res.id}: 1x amplitude changed ${res.ampRatio.toFixed(1)}-fold and its phase swung up to ${deg(res.spread)} from its mean while speed changed only ${pct1(res.speedSpan)}`,
+      words:
+        `${res.id}: 1x amplitude changed ${res.ampRatio.toFixed(1)}-fold ` +
+        `and its phase swung up to ${deg(res.spread)} from its mean ` +
+        `while speed changed only ${pct1(res.speedSpan)}`,
       spreadDeg: res.spread,
       stepDeg: res.step,
       windows: res.n,
@@ -95,26 +103,32 @@ function phaseStability(
   if (worst.step > u.phase_stability_deg) {
     return {
       kind: 'unstable_phase',
-      words: `${worst.id}: 1x phase jumps a median ${deg(worst.step)} from one window to the next over the last ${worst.n} windows (speed within ${pct1(worst.speedSpan)})`,
+      words:
+        `${worst.id}: 1x phase jumps a median ${deg(worst.step)} from one window to the ` +
+        `next over the last ${worst.n} windows (speed within ${pct1(worst.speedSpan)})`,
       ...base,
     };
   }
   return {
     kind: 'steady',
-    words: `1x phase steady: a median ${deg(worst.step)} from one window to the next over the last ${worst.n} windows (${worst.id})`,
+    words:
+      `1x phase steady: a median ${deg(worst.step)} from one window ` +
+      `to the next over the last ${worst.n} windows (${worst.id})`,
     ...base,
   };
 }
 
 /**
- * At steady speed and load the 1x phase of unbalance is steady (common practice); a phase that jumps
- * is not a fixed heavy spot, and amplitude and phase swinging together with a small speed change
- * point to resonance.
+ * At steady speed and load the 1x phase of unbalance is steady (common practice); a phase that
+ * jumps is not a fixed heavy spot, and amplitude and phase swinging together with a small speed
+ * change point to resonance.
  */
 export const phaseStabilityRule: WatcherRule = {
   name: 'phase-stability',
   summary:
-    '1x phase over the last stability_windows windows: median window-to-window jump above phase_stability_deg is unstable; 1.5-fold amplitude with 45 deg phase swing at 1-5 % speed change is resonance (common practice)',
+    '1x phase over the last stability_windows windows: median window-to-window ' +
+    'jump above phase_stability_deg is unstable; 1.5-fold amplitude with ' +
+    '45 deg phase swing at 1-5 % speed change is resonance (common practice)',
   run({ s, window, health, recent, main, measures }) {
     const f = new Finding();
     const stab = phaseStability(s, [...recent, { window, health }], main);
@@ -128,7 +142,8 @@ export const phaseStabilityRule: WatcherRule = {
     else {
       f.point([stab.kind], stab.words);
       f.evidence.push(
-        `${stab.words}: points to ${stab.kind === 'resonance' ? 'resonance' : 'something other than a fixed heavy spot'}`,
+        `${stab.words}: points to ` +
+          `${stab.kind === 'resonance' ? 'resonance' : 'something other than a fixed heavy spot'}`,
       );
     }
     return f.done();

@@ -3,14 +3,15 @@ import { Finding, type WatcherRule } from './types.js';
 
 /**
  * Sensor faults and the phase reference (machinery-protection practice: a channel whose sensor or
- * cable has failed is "not OK" and takes no part in any verdict). The faults themselves are found in
- * agent/watcher/health.ts from the signal; this rule says which channels the verdict leaves out and
- * why, and holds the confidence low when the speed betrays a wrong tach.pulses_per_rev.
+ * cable has failed is "not OK" and takes no part in any verdict). The faults themselves are found
+ * in agent/watcher/health.ts from the signal; this rule says which channels the verdict leaves out
+ * and why, and holds the confidence low when the speed betrays a wrong tach.pulses_per_rev.
  */
 export const sensorFaults: WatcherRule = {
   name: 'sensor-faults',
   summary:
-    'channels not OK (bias, clipping, spikes, flat line, quantisation only, level step) and a lost tach are left out of every rule',
+    'channels not OK (bias, clipping, spikes, flat line, quantisation ' +
+    'only, level step) and a lost tach are left out of every rule',
   run({ s, window, health }) {
     const f = new Finding();
     const hint = pulsesPerRevHint(s, window);

@@ -17,7 +17,8 @@ import { Finding, mm, type WatcherRule } from './types.js';
 export const significance: WatcherRule = {
   name: 'significance',
   summary:
-    'no unbalance finding while every OK sensor is below the significance level (default the A/B boundary, ISO 20816-3) and no 1x vector changed significantly from the baseline',
+    'no unbalance finding while every OK sensor is below the significance level (default ' +
+    'the A/B boundary, ISO 20816-3) and no 1x vector changed significantly from the baseline',
   run({ s, health, window, inputs }) {
     const f = new Finding();
     if (!inputs) return f.done();
@@ -52,14 +53,16 @@ export const significance: WatcherRule = {
       sig.basis === 'custom'
         ? `watcher.unbalance.significance overall_mm_s ${sig.overall_mm_s} (set in the config)`
         : sig.basis === 'baseline_change'
-          ? `baseline overall + 0.25 x B/C (ISO 20816-3 change criterion; A/B where no baseline overall)`
+          ? `baseline overall + 0.25 x B/C (ISO 20816-3 ` +
+            `change criterion; A/B where no baseline overall)`
           : `the A/B boundary, ${mm(ab)} (${inputs.zone.limits.basis})`;
     if (over.length || changed.length) {
       const why = [
         ...(over.length ? [`overall ${over.join(', ')}`] : []),
         ...changed.map(
           ([id, c]) =>
-            `${id} 1x changed ${mm(c.delta_mm_s)} from baseline (reported from ${mm(s.vectorChangeMmS)})`,
+            `${id} 1x changed ${mm(c.delta_mm_s)} from ` +
+            `baseline (reported from ${mm(s.vectorChangeMmS)})`,
         ),
       ].join('; ');
       f.evidence.push(`significant: ${why} (level: ${basis})`);
@@ -68,7 +71,11 @@ export const significance: WatcherRule = {
     f.facts.not_significant = true;
     const top = largest!;
     f.evidence.push(
-      `not significant: the largest overall is ${mm(top.v)} at ${top.id}, within ${basis}, and ${inputs.baseline ? `no 1x vector changed from the baseline by ${mm(s.vectorChangeMmS)} or more` : 'there is no baseline to compare with'}: every rotor has some residual unbalance, so the 1x pattern above is information, not a finding`,
+      `not significant: the largest overall is ${mm(top.v)} at ` +
+        `${top.id}, within ${basis}, and ` +
+        `${inputs.baseline ? `no 1x vector changed from the baseline by ${mm(s.vectorChangeMmS)} or more` : 'there is no baseline to compare with'}: ` +
+        `every rotor has some residual unbalance, so the 1x pattern ` +
+        `above is information, not a finding`,
     );
     void window;
     return f.done();

@@ -9,7 +9,8 @@ import { Finding, type WatcherRule } from './types.js';
 export const sweepResonance: WatcherRule = {
   name: 'sweep-resonance',
   summary:
-    'running speed within the half-power band of a resonance on the last recorded run-up or coast-down (common practice)',
+    'running speed within the half-power band of a resonance on ' +
+    'the last recorded run-up or coast-down (common practice)',
   run({ window, inputs }) {
     const f = new Finding();
     const sweep = inputs?.sweep ?? null;
@@ -18,7 +19,10 @@ export const sweepResonance: WatcherRule = {
     for (const r of sweep.resonances) {
       const [lo, hi] = r.half_power_rpm;
       if (rpm >= lo && rpm <= hi) {
-        const why = `running at ${Math.round(rpm)} r/min, inside the half-power band ${Math.round(lo)}-${Math.round(hi)} r/min of the resonance at ${Math.round(r.rpm)} r/min on ${r.sensor} (sweep ${sweep.sweep_id})`;
+        const why =
+          `running at ${Math.round(rpm)} r/min, inside the half-power band ` +
+          `${Math.round(lo)}-${Math.round(hi)} r/min of the resonance at ` +
+          `${Math.round(r.rpm)} r/min on ${r.sensor} (sweep ${sweep.sweep_id})`;
         f.point(['resonance'], why);
         f.evidence.push(`${why}: 1x there is amplified by the support, not unbalance alone`);
       }

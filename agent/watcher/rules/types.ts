@@ -7,10 +7,11 @@ import type { WatcherSettings } from '../settings.js';
 
 /**
  * What every watcher rule sees and returns. A rule is one declaration in one file under
- * agent/watcher/rules/: it reads the window (and the recent windows), says what it found (evidence),
- * what it could not check (limits, with a weight in `missing`), which other 1x causes the findings
- * point to, and the facts the verdict is built from. The composer (agent/watcher/signature.ts) runs
- * them in the order of RULES (rules/index.ts) and builds the verdict from their facts.
+ * agent/watcher/rules/: it reads the window (and the recent windows), says what it found
+ * (evidence), what it could not check (limits, with a weight in `missing`), which other 1x causes
+ * the findings point to, and the facts the verdict is built from. The composer
+ * (agent/watcher/signature.ts) runs them in the order of RULES (rules/index.ts) and builds the
+ * verdict from their facts.
  */
 
 export type UnbalanceKind = 'static' | 'couple' | 'dynamic' | 'overhung' | 'none';
@@ -68,9 +69,14 @@ export interface UnbalanceMeasures {
     readonly bearings: readonly [string, string];
     readonly directions: readonly PhasePair[];
   } | null;
-  /** Largest 1x phase deviation from its mean over the recent windows, degrees; null when not judged. */
+  /**
+   * Largest 1x phase deviation from its mean over the recent windows, degrees; null when not
+   * judged.
+   */
   phase_spread_deg: number | null;
-  /** Median 1x phase jump from one window to the next (worst sensor), degrees; null when not judged. */
+  /**
+   * Median 1x phase jump from one window to the next (worst sensor), degrees; null when not judged.
+   */
   phase_step_deg: number | null;
   stability_windows: number;
 }
@@ -89,11 +95,16 @@ export interface RuleFacts {
   overhung_pattern?: boolean;
   /** Held to "low" whatever the rest says (e.g. a suspect tach.pulses_per_rev). */
   confidence_low?: boolean;
-  /** Nothing is significant (zone A, no baseline change): no finding, the pattern is information. */
+  /**
+   * Nothing is significant (zone A, no baseline change): no finding, the pattern is information.
+   */
   not_significant?: boolean;
 }
 
-/** The resonances of the last recorded run-up or coast-down (agent/sweep), as evidence for the 1x rules. */
+/**
+ * The resonances of the last recorded run-up or coast-down (agent/sweep), as evidence for the 1x
+ * rules.
+ */
 export interface SweepEvidence {
   readonly sweep_id: string;
   readonly direction: 'up' | 'down';
@@ -104,7 +115,10 @@ export interface SweepEvidence {
   }[];
 }
 
-/** What the significance rule compares against: this window's zones and the change from the baseline. */
+/**
+ * What the significance rule compares against: this window's zones and the change from the
+ * baseline.
+ */
 export interface SignificanceInputs {
   readonly zone: ZoneReport;
   readonly vectorChange: Readonly<
@@ -124,12 +138,17 @@ export interface RuleResult {
   readonly limits: readonly string[];
   /** Other 1x causes the findings point to, and why. */
   readonly points_to: readonly { readonly cause: OneXCause; readonly why: string }[];
-  /** Weight of checks the data did not allow (3 or more over all rules leaves the verdict "low"). */
+  /**
+   * Weight of checks the data did not allow (3 or more over all rules leaves the verdict "low").
+   */
   readonly missing: number;
   readonly facts: RuleFacts;
 }
 
-/** What a rule reads. `readings` are the phase-OK channels' 1x vectors with mounting angles subtracted. */
+/**
+ * What a rule reads. `readings` are the phase-OK channels' 1x vectors with mounting angles
+ * subtracted.
+ */
 export interface RuleContext {
   readonly s: WatcherSettings;
   readonly window: WindowResult;
@@ -140,11 +159,16 @@ export interface RuleContext {
   readonly radial: readonly Reading[];
   /** The radial reading with the largest 1x; null when there is none. */
   readonly maxRadial: Reading | null;
-  /** Radial readings with at least half the largest radial 1x: the sensors that carry most of it. */
+  /**
+   * Radial readings with at least half the largest radial 1x: the sensors that carry most of it.
+   */
   readonly main: readonly Reading[];
   readonly bearingNames: readonly string[];
   readonly measures: UnbalanceMeasures;
-  /** Zones and baseline change of this window; null when the caller has none (then nothing is gated). */
+  /**
+   * Zones and baseline change of this window; null when the caller has none (then nothing is
+   * gated).
+   */
   readonly inputs: SignificanceInputs | null;
   /** Facts stated by the rules run before this one. */
   readonly facts: Readonly<RuleFacts>;
