@@ -10,7 +10,15 @@
 //
 // dist/agent/cli/chunks/modules.json lists the modules in each chunk, so a test can tell which
 // modules a command loaded from the chunks it read.
-import { chmodSync, existsSync, mkdtempSync, renameSync, rmSync, writeFileSync } from 'node:fs';
+import {
+  chmodSync,
+  existsSync,
+  mkdtempSync,
+  readFileSync,
+  renameSync,
+  rmSync,
+  writeFileSync,
+} from 'node:fs';
 import { dirname, join, relative } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { rolldown } from 'rolldown';
@@ -29,6 +37,15 @@ function packageOf(id) {
 if (!existsSync(entry)) {
   console.error(`post-build: ${relative(root, entry)} is missing; run tsc first (npm run build)`);
   process.exit(1);
+}
+// Run a second time without tsc in between, the entry is the bundle already: bundling it again
+// would list chunks as the modules in modules.json. Leave it as it is.
+if (/\b(?:from|import\()\s*["']\.\/chunks\//.test(readFileSync(entry, 'utf8'))) {
+  console.error(
+    `post-build: ${relative(root, entry)} is already the bundle; ` +
+      `nothing to do (npm run build compiles and bundles again)`,
+  );
+  process.exit(0);
 }
 
 const out = mkdtempSync(join(root, 'dist/.cli-bundle-'));

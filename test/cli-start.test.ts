@@ -133,6 +133,17 @@ describe('turnwise start-up', () => {
     expect(new Set(r.files).size).toBeLessThan(20);
   });
 
+  it('post-build run again without tsc leaves the bundle as it is (no bundle of the bundle)', () => {
+    const before = readFileSync(join(CHUNKS, 'modules.json'), 'utf8');
+    const r = spawnSync(process.execPath, [join(ROOT, 'scripts/post-build.mjs')], {
+      encoding: 'utf8',
+      timeout: 60_000,
+    });
+    expect(r.status).toBe(0);
+    expect(r.stderr).toContain('is already the bundle; nothing to do');
+    expect(readFileSync(join(CHUNKS, 'modules.json'), 'utf8')).toBe(before);
+  });
+
   it('the CLI is a bundle: main.js and its chunks, each listed with its modules in chunks/modules.json', () => {
     const chunkFiles = readdirSync(CHUNKS).filter((f) => f.endsWith('.js'));
     expect(Object.keys(manifest).sort()).toEqual(
