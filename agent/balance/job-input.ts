@@ -18,6 +18,13 @@ const name = z
 const finite = z.number().refine(Number.isFinite, 'must be a finite number');
 const positive = finite.refine((x) => x > 0, 'must be above 0');
 const convention = z.enum(['against_rotation', 'with_rotation']);
+/** The field types the workbench's requests share with the job files (same words in errors). */
+export {
+  name as nameField,
+  finite as finiteNumber,
+  positive as positiveNumber,
+  convention as conventionField,
+};
 
 const readingSchema = z
   .object({ amp: finite.refine((x) => x >= 0, 'must be 0 or more'), phase_deg: finite })

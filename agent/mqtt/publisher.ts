@@ -2,7 +2,7 @@ import { connect as mqttConnect, type IPublishPacket, type MqttClient } from 'mq
 import { BrokerConnection, type ConnectFn } from './broker-connection.js';
 import type { BrokerLimits } from './link-habits.js';
 import type { AgentEvent } from '../events.js';
-import type { AddOutcome, Outbox } from '../outbox/outbox.js';
+import { waitUntilEmpty, type AddOutcome, type Outbox } from '../outbox/outbox.js';
 import type { Logger } from '../log.js';
 import { BurstLog } from '../burst-log.js';
 import {
@@ -262,13 +262,8 @@ export class MqttPublisher {
   }
 
   /** Waits until the outbox is empty (true) or `timeoutMs` has passed (false). */
-  async drain(timeoutMs: number): Promise<boolean> {
-    const until = this.now() + timeoutMs;
-    while (this.outbox.size > 0) {
-      if (this.now() >= until) return false;
-      await new Promise((r) => setTimeout(r, 50));
-    }
-    return true;
+  drain(timeoutMs: number): Promise<boolean> {
+    return waitUntilEmpty(this.outbox, this.now, timeoutMs);
   }
 
   /** Publishes the retained "stopped" status, disconnects cleanly and stops reconnecting. */

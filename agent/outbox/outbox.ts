@@ -115,6 +115,23 @@ function errCode(e: unknown): string {
   return (e as NodeJS.ErrnoException)?.code ?? 'EUNKNOWN';
 }
 
+/**
+ * Waits until `outbox` is empty (true) or `timeoutMs` has passed on the `now` clock (false),
+ * looking every 50 ms: how a publisher drains its outbox before an orderly stop.
+ */
+export async function waitUntilEmpty(
+  outbox: { readonly size: number },
+  now: () => number,
+  timeoutMs: number,
+): Promise<boolean> {
+  const until = now() + timeoutMs;
+  while (outbox.size > 0) {
+    if (now() >= until) return false;
+    await new Promise((r) => setTimeout(r, 50));
+  }
+  return true;
+}
+
 export class Outbox {
   readonly dir: string;
   readonly quarantineDir: string;

@@ -6,6 +6,12 @@
  */
 import { z } from 'zod';
 import { formatPath, valueAt } from '../../config/load.js';
+import {
+  conventionField as convention,
+  finiteNumber as finite,
+  nameField as name,
+  positiveNumber as positive,
+} from '../job-input.js';
 
 export class ApiError extends Error {
   constructor(
@@ -37,15 +43,6 @@ export const conflict = (message: string, hint: string): ApiError =>
 export const badRequest = (message: string, hint: string): ApiError =>
   new ApiError(400, 'invalid_request', message, hint);
 
-const name = z
-  .string()
-  .regex(
-    /^[A-Za-z0-9][A-Za-z0-9_.-]{0,31}$/,
-    'letters, digits, "_", "." or "-", at most 32 characters',
-  );
-const finite = z.number().refine(Number.isFinite, 'must be a finite number');
-const positive = finite.refine((x) => x > 0, 'must be above 0');
-const convention = z.enum(['against_rotation', 'with_rotation']);
 const person = z.string().trim().min(1, 'must not be empty').max(64, 'at most 64 characters');
 const grade = z.union([
   positive,

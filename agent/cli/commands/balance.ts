@@ -326,15 +326,38 @@ async function solve(argv: string[]): Promise<number> {
     }
     out('\n' + cautionBlock());
   }
-  if (!result.ok) {
-    if (!values.json)
-      process.stderr.write(
-        `turnwise balance solve: ${file}: no correction given:\n` +
-          `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
-      );
-    return EXIT_UNSOLVABLE;
-  }
-  return 0;
+  return exitFor('solve', file, result, values.json === true);
+}
+
+interface Solved {
+  readonly ok: boolean;
+  readonly problems: readonly { readonly message: string; readonly hint: string }[];
+}
+
+/** 0, or EXIT_UNSOLVABLE with the reasons on stderr (in the JSON already when `json`). */
+function exitFor(sub: string, file: string, result: Solved, json: boolean): number {
+  if (result.ok) return 0;
+  if (!json)
+    process.stderr.write(
+      `turnwise balance ${sub}: ${file}: no correction given:\n` +
+        `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
+    );
+  return EXIT_UNSOLVABLE;
+}
+
+/**
+ * Prints a solver's result with the cautions, as JSON or as its report, and gives the exit code.
+ */
+function report<R extends Solved>(
+  sub: string,
+  file: string,
+  result: R,
+  json: boolean,
+  format: (r: R) => string,
+): number {
+  if (json) out(jsonText({ ...result, cautions: balancingCautions() }));
+  else out(format(result) + '\n' + cautionBlock());
+  return exitFor(sub, file, result, json);
 }
 
 async function fourRun(argv: string[]): Promise<number> {
@@ -342,17 +365,7 @@ async function fourRun(argv: string[]): Promise<number> {
   const file = singleFile('four-run', positionals, 'four-run request');
   const req = parseFourRun(readJsonFile(file, 'four-run request'), file);
   const result = solveFourRun(req);
-  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
-  else out(formatFourRunReport(result) + '\n' + cautionBlock());
-  if (!result.ok) {
-    if (!values.json)
-      process.stderr.write(
-        `turnwise balance four-run: ${file}: no correction given:\n` +
-          `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
-      );
-    return EXIT_UNSOLVABLE;
-  }
-  return 0;
+  return report('four-run', file, result, values.json === true, formatFourRunReport);
 }
 
 async function multiSpeed(argv: string[]): Promise<number> {
@@ -360,17 +373,7 @@ async function multiSpeed(argv: string[]): Promise<number> {
   const file = singleFile('multi-speed', positionals, 'multi-speed job');
   const job = parseMultiSpeed(readJsonFile(file, 'multi-speed job'), file);
   const result = solveMultiSpeed(job);
-  if (values.json) out(jsonText({ ...result, cautions: balancingCautions() }));
-  else out(formatMultiSpeedReport(result) + '\n' + cautionBlock());
-  if (!result.ok) {
-    if (!values.json)
-      process.stderr.write(
-        `turnwise balance multi-speed: ${file}: no correction given:\n` +
-          `${result.problems.map((p) => `  ${p.message}\n  -> ${p.hint}`).join('\n')}\n`,
-      );
-    return EXIT_UNSOLVABLE;
-  }
-  return 0;
+  return report('multi-speed', file, result, values.json === true, formatMultiSpeedReport);
 }
 
 async function splitHoles(raw: unknown, file: string, json: boolean): Promise<number> {
