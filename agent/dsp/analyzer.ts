@@ -68,16 +68,14 @@ export interface AnalyzerOptions {
 }
 
 /**
- * A consumer of the trusted revolutions, beside the window's own average: called with the rings of
- * acceleration (mm/s^2, one per configured sensor, in config order) and the revolution's fractional
- * sample bounds. It must copy what it needs at once: the rings move on.
+ * A consumer of the trusted revolutions, beside the window's own average: called with each
+ * revolution as the window's averagers cut it, one array of `dsp.resample_points` bin means of
+ * acceleration (mm/s^2) per configured sensor, in config order, each read at that sensor's declared
+ * delay, and the revolution's fractional sample bounds. It must copy what it needs at once: the
+ * arrays are overwritten by the next revolution.
  */
 export interface RevolutionTap {
-  /**
-   * `shifts[i]`: sensor i's samples of this revolution are [start + shifts[i], end + shifts[i]]
-   * (declared board delays; 0 without).
-   */
-  revolution(rings: readonly SampleRing[], start: number, end: number, shifts: Float64Array): void;
+  revolution(bins: readonly Float64Array[], start: number, end: number): void;
   /** Samples were lost: revolutions on either side are not one run. */
   gap(): void;
 }
@@ -145,9 +143,8 @@ export class Analyzer {
   private lastRevEnd = NaN;
   private readonly liveDecay: number;
   private readonly tap: RevolutionTap | undefined;
-  private readonly rings: readonly SampleRing[];
-  /** Per configured sensor, the shift its revolution was read at (handed to the tap). */
-  private readonly tapShifts: Float64Array;
+  /** Per configured sensor, its averager's bins of the last revolution (handed to the tap). */
+  private readonly tapBins: readonly Float64Array[];
   /** Declared timing delay of each source channel, ticks (version 2 boards; zeros otherwise). */
   private readonly delays: Float64Array;
   /** Revolutions waiting for their delayed samples (a small ring of [start, end]). */
@@ -245,9 +242,8 @@ export class Analyzer {
       decimator: new Decimator(decimation),
       spectrum: new SpectrumAccumulator(plan),
     }));
-    this.rings = this.chans.map((c) => c.ring);
+    this.tapBins = this.chans.map((c) => c.avg.last);
     this.tap = opts.revolutionTap;
-    this.tapShifts = new Float64Array(this.chans.length);
     this.scratch = new Float32Array(maxBlock);
     this.syncScratch = new Float32Array(maxBlock);
     this.tachChannel = cfg.tach.channel;
@@ -324,10 +320,7 @@ export class Analyzer {
       const s = this.shiftOf(c);
       c.avg.addRevolution(c.ring, start + s, end + s);
     }
-    if (this.tap) {
-      for (let i = 0; i < this.chans.length; i++) this.tapShifts[i] = this.shiftOf(this.chans[i]!);
-      this.tap.revolution(this.rings, start, end, this.tapShifts);
-    }
+    this.tap?.revolution(this.tapBins, start, end);
     const p = end - start;
     this.livePeriod = this.livePeriod * this.liveDecay + p;
     this.lastRevEnd = end;

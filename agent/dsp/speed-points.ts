@@ -1,5 +1,5 @@
 import type { RevolutionTap } from './analyzer.js';
-import { SampleRing, SyncAverager, velocityOrderComponent } from './sync-average.js';
+import { SyncAverager, velocityOrderComponent } from './sync-average.js';
 import { rpmFromPeriod } from './tach.js';
 
 /**
@@ -7,8 +7,8 @@ import { rpmFromPeriod } from './tach.js';
  * from (Bode and polar plots, resonances).
  *
  * Each point is the synchronous average of `revolutionsPerPoint` consecutive trusted revolutions
- * (angle domain, tach-referenced, the same resampling and phase convention as the window's order
- * vectors), so a point is as short as the speed change allows and still rejects what is not
+ * (angle domain, tach-referenced, the very bins the window's averagers cut, and their phase
+ * convention), so a point is as short as the speed change allows and still rejects what is not
  * synchronous. Points are kept in typed arrays that grow by doubling (a few hundred bytes every few
  * revolutions, never per sample); `maxPoints` bounds them for the agent, the oldest dropped first.
  */
@@ -64,9 +64,8 @@ export class SpeedPointRecorder implements RevolutionTap {
     this.afterGap = new Uint8Array(this.cap);
   }
 
-  revolution(rings: readonly SampleRing[], start: number, end: number, shifts: Float64Array): void {
-    for (let c = 0; c < this.avgs.length; c++)
-      this.avgs[c]!.addRevolution(rings[c]!, start + shifts[c]!, end + shifts[c]!);
+  revolution(bins: readonly Float64Array[], start: number, end: number): void {
+    for (let c = 0; c < this.avgs.length; c++) this.avgs[c]!.addBins(bins[c]!);
     this.revs++;
     this.periodSum += end - start;
     if (this.revs >= this.opts.revolutionsPerPoint) this.closePoint(end);

@@ -73,6 +73,8 @@ export class SyncAverager {
    */
   readonly live: Float64Array;
   liveWeight = 0;
+  /** The bins of the last revolution added (what a second average of the same revolutions adds). */
+  readonly last: Float64Array;
   private readonly liveDecay: number;
 
   constructor(
@@ -81,6 +83,7 @@ export class SyncAverager {
   ) {
     this.sum = new Float64Array(points);
     this.live = new Float64Array(points);
+    this.last = new Float64Array(points);
     this.liveDecay = 1 - 1 / Math.max(1, liveRevolutions);
   }
 
@@ -105,6 +108,7 @@ export class SyncAverager {
     const mask = ring.mask;
     const sum = this.sum;
     const live = this.live;
+    const last = this.last;
     const decay = this.liveDecay;
     // Bin m spans [p, q] = start + (m -+ 0.5) step. The integral of the linear interpolation over
     // it is a trapezoid from p to the first sample after it, the trapezoids between the samples
@@ -133,8 +137,16 @@ export class SyncAverager {
       const x = acc * inv;
       sum[m] = sum[m]! + x;
       live[m] = live[m]! * decay + x;
+      last[m] = x;
     }
     this.liveWeight = this.liveWeight * decay + 1;
+    this.revolutions++;
+  }
+
+  /** Adds a revolution already cut into bins (another averager's `last`) to the sum. */
+  addBins(bins: Float64Array): void {
+    const sum = this.sum;
+    for (let m = 0; m < this.points; m++) sum[m] = sum[m]! + bins[m]!;
     this.revolutions++;
   }
 
